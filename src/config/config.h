@@ -1,0 +1,65 @@
+/*
+ * config.h - the daemon's configuration: one INI file parsed with inih,
+ * described by one declarative table (config.c) that parses the file,
+ * validates bounds, prints the effective configuration and documents each
+ * key. A bad value is reported as "FILE:LINE: [section] key: reason".
+ *
+ * Ownership: config_load() fills a caller-supplied config whose strings
+ * are heap copies; config_free() releases them. Relative paths in the file
+ * are resolved against the folder holding the file.
+ */
+#ifndef MITILOG_CONFIG_H
+#define MITILOG_CONFIG_H
+
+#include <stdio.h>
+
+#include "util/status.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+typedef struct config {
+    char *source_path;             /* the file loaded, or "(defaults)" */
+
+    /* [dicom] */
+    char *ae_title;
+    unsigned port;
+    char *allowed_calling_ae_titles; /* "AE[@address], ..." or "" = any */
+    unsigned max_associations;
+    unsigned acse_timeout_seconds;
+    unsigned dimse_timeout_seconds;
+    unsigned max_pdu_bytes;
+
+    /* [http] */
+    char *http_address;
+    unsigned http_port;
+    char *web_root;
+
+    /* [storage] */
+    char *data_directory;
+    char *database_path;           /* default: data_directory/mitilog.sqlite3 */
+    char *retention;               /* "none", "header" or "full" */
+    unsigned busy_timeout_ms;
+
+    /* [log] */
+    char *log_level;               /* debug, info, warning, error */
+} config;
+
+/* Fills config with the built-in defaults. */
+mitilog_status config_set_defaults(config *config, mitilog_error *error);
+
+/* Defaults, then the file. */
+mitilog_status config_load(const char *path, config *config,
+                           mitilog_error *error);
+
+/* Writes the effective configuration as a valid INI file. */
+void config_print(const config *config, FILE *out);
+
+void config_free(config *config);
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif

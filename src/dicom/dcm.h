@@ -1,0 +1,283 @@
+/*
+ * dcm.h - the C face of the DCMTK shim, the only C++ in mitilog.
+ *
+ * Owns every byte of DICOM: receiving objects over the network (a Storage
+ * SCP with Verification), reading files and received objects into plain C
+ * "facts" (raw attribute strings, ultrasound regions, SR content items),
+ * writing header copies, and building new files for the simulator.
+ *
+ * No C++ type crosses this header: handles are opaque, structs are plain C,
+ * every call returns a mitilog_status and fills a caller-supplied
+ * mitilog_error. Every C++ exception is caught inside the shim.
+ *
+ * Ownership: dcm_object_load() gives the caller a dcm_object that it frees
+ * with dcm_object_free(); dcm_facts filled by dcm_object_facts() are freed
+ * with dcm_facts_free() (strings inside are heap copies owned by the facts).
+ * The dcm_server owns its threads; dcm_server_free() after dcm_server_stop().
+ */
+#ifndef MITILOG_DCM_H
+#define MITILOG_DCM_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#include "util/status.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* ------------------------------------------------------------------ */
+/* Process set-up                                                      */
+/* ------------------------------------------------------------------ */
+
+/* Loads the data dictionary, quiets DCMTK's own logger to the level given
+ * (0 debug .. 3 error), sets TCP_NODELAY for dcmnet. Call once from main
+ * before any thread starts. Fails if the dictionary cannot be loaded. */
+mitilog_status dcm_initialise(int log_level, mitilog_error *error);
+
+/* ------------------------------------------------------------------ */
+/* Reading                                                             */
+/* ------------------------------------------------------------------ */
+
+/* The attributes extraction needs, as (keyword, group, element). Values
+ * are taken from the top-level dataset; the transfer syntax comes from the
+ * file meta information. */
+#define DCM_ATTRIBUTE_LIST(X)                                              \
+    X(SPECIFIC_CHARACTER_SET, 0x0008, 0x0005)                              \
+    X(IMAGE_TYPE, 0x0008, 0x0008)                                          \
+    X(INSTANCE_CREATION_DATE, 0x0008, 0x0012)                              \
+    X(INSTANCE_CREATION_TIME, 0x0008, 0x0013)                              \
+    X(SOP_CLASS_UID, 0x0008, 0x0016)                                       \
+    X(SOP_INSTANCE_UID, 0x0008, 0x0018)                                    \
+    X(STUDY_DATE, 0x0008, 0x0020)                                          \
+    X(ACQUISITION_DATE, 0x0008, 0x0022)                                    \
+    X(CONTENT_DATE, 0x0008, 0x0023)                                        \
+    X(ACQUISITION_DATE_TIME, 0x0008, 0x002A)                               \
+    X(STUDY_TIME, 0x0008, 0x0030)                                          \
+    X(ACQUISITION_TIME, 0x0008, 0x0032)                                    \
+    X(CONTENT_TIME, 0x0008, 0x0033)                                        \
+    X(ACCESSION_NUMBER, 0x0008, 0x0050)                                    \
+    X(MODALITY, 0x0008, 0x0060)                                            \
+    X(MANUFACTURER, 0x0008, 0x0070)                                        \
+    X(INSTITUTION_NAME, 0x0008, 0x0080)                                    \
+    X(TIMEZONE_OFFSET_FROM_UTC, 0x0008, 0x0201)                            \
+    X(STATION_NAME, 0x0008, 0x1010)                                        \
+    X(STUDY_DESCRIPTION, 0x0008, 0x1030)                                   \
+    X(SERIES_DESCRIPTION, 0x0008, 0x103E)                                  \
+    X(INSTITUTIONAL_DEPARTMENT_NAME, 0x0008, 0x1040)                       \
+    X(OPERATORS_NAME, 0x0008, 0x1070)                                      \
+    X(MANUFACTURER_MODEL_NAME, 0x0008, 0x1090)                             \
+    X(PATIENT_ID, 0x0010, 0x0020)                                          \
+    X(PATIENT_BIRTH_DATE, 0x0010, 0x0030)                                  \
+    X(PATIENT_AGE, 0x0010, 0x1010)                                         \
+    X(BODY_PART_EXAMINED, 0x0018, 0x0015)                                  \
+    X(FRAME_TIME, 0x0018, 0x1063)                                          \
+    X(PROTOCOL_NAME, 0x0018, 0x1030)                                       \
+    X(TRANSDUCER_DATA, 0x0018, 0x5010)                                     \
+    X(MECHANICAL_INDEX, 0x0018, 0x5022)                                    \
+    X(BONE_THERMAL_INDEX, 0x0018, 0x5024)                                  \
+    X(CRANIAL_THERMAL_INDEX, 0x0018, 0x5026)                               \
+    X(SOFT_TISSUE_THERMAL_INDEX, 0x0018, 0x5027)                           \
+    X(SOFT_TISSUE_FOCUS_THERMAL_INDEX, 0x0018, 0x5028)                     \
+    X(SOFT_TISSUE_SURFACE_THERMAL_INDEX, 0x0018, 0x5029)                   \
+    X(TRANSDUCER_TYPE, 0x0018, 0x6031)                                     \
+    X(STUDY_INSTANCE_UID, 0x0020, 0x000D)                                  \
+    X(SERIES_INSTANCE_UID, 0x0020, 0x000E)                                 \
+    X(INSTANCE_NUMBER, 0x0020, 0x0013)                                     \
+    X(NUMBER_OF_FRAMES, 0x0028, 0x0008)                                    \
+    X(PERFORMED_PROCEDURE_STEP_DESCRIPTION, 0x0040, 0x0254)
+
+typedef enum dcm_attribute {
+#define DCM_ATTRIBUTE_ENUM(name, group, element) DCM_ATTRIBUTE_##name,
+    DCM_ATTRIBUTE_LIST(DCM_ATTRIBUTE_ENUM)
+#undef DCM_ATTRIBUTE_ENUM
+    DCM_ATTRIBUTE_COUNT
+} dcm_attribute;
+
+/* One item of Sequence of Ultrasound Regions (0018,6011). Binary values
+ * with a presence flag each. */
+typedef struct dcm_region {
+    int has_region_data_type;
+    uint16_t region_data_type;          /* (0018,6014) US */
+    int has_transducer_frequency;
+    uint32_t transducer_frequency_khz;  /* (0018,6030) UL, kHz */
+    int has_pulse_repetition_frequency;
+    uint32_t pulse_repetition_frequency_hz; /* (0018,6032) UL, Hz */
+} dcm_region;
+
+/* One content item of a structured report, in document order (depth-first
+ * pre-order). Strings are heap copies, never NULL ("" when absent). */
+typedef struct dcm_sr_item {
+    unsigned depth;              /* root container is 0 */
+    unsigned long node_id;       /* DCMTK's node id: unique in the document */
+    char *position;              /* "1.2.3" style position in the tree */
+    char *value_type;            /* "CONTAINER", "NUM", "CODE", "TEXT", ... */
+    char *relationship;          /* "CONTAINS", "HAS PROPERTIES", ... or "" */
+    char *concept_scheme;        /* concept name: coding scheme designator */
+    char *concept_code;          /* concept name: code value */
+    char *concept_meaning;       /* concept name: code meaning */
+    char *numeric_value;         /* NUM: the DS string as sent */
+    char *unit_scheme;           /* NUM: measurement units code */
+    char *unit_code;
+    char *unit_meaning;
+    char *code_scheme;           /* CODE: the coded value */
+    char *code_value;
+    char *code_meaning;
+    char *text_value;            /* TEXT / other string values */
+} dcm_sr_item;
+
+/* Plain facts read from one object. values[a] is the raw attribute value
+ * as stored (backslash-separated when multi-valued, padding kept,
+ * converted to UTF-8 according to Specific Character Set where DCMTK
+ * could), NULL when the attribute is absent, "" when present but empty. */
+typedef struct dcm_facts {
+    char *values[DCM_ATTRIBUTE_COUNT];
+    char *transfer_syntax_uid;   /* from the meta header; NULL if none */
+    int character_set_converted; /* 1 if values were converted to UTF-8 */
+    size_t region_count;
+    dcm_region *regions;
+    int is_structured_report;    /* SOP class is an SR storage class */
+    size_t sr_item_count;
+    dcm_sr_item *sr_items;
+    int sr_truncated;            /* SR deeper than the limit: rest skipped */
+} dcm_facts;
+
+typedef struct dcm_object dcm_object;
+
+/* Reads a DICOM file (Part 10, or a bare dataset as a fall-back).
+ * Large values are read lazily: the file must stay in place until
+ * dcm_object_free(). */
+mitilog_status dcm_object_load(const char *path, dcm_object **out,
+                               mitilog_error *error);
+void dcm_object_free(dcm_object *object);
+
+/* Fills facts (zeroed first). sr_depth_limit bounds the SR walk. */
+mitilog_status dcm_object_facts(dcm_object *object, unsigned sr_depth_limit,
+                                dcm_facts *facts, mitilog_error *error);
+void dcm_facts_free(dcm_facts *facts);
+
+/* Writes the object without its pixel data (and without other bulk
+ * data over 64 KiB) as a Part 10 file; the directory must exist. */
+mitilog_status dcm_object_save_header(dcm_object *object, const char *path,
+                                      mitilog_error *error);
+
+/* ------------------------------------------------------------------ */
+/* Receiving: Storage SCP + Verification SCP                           */
+/* ------------------------------------------------------------------ */
+
+/* DIMSE statuses mitilog answers with. */
+enum {
+    DCM_STATUS_SUCCESS = 0x0000,
+    DCM_STATUS_OUT_OF_RESOURCES = 0xA700,
+    DCM_STATUS_CANNOT_UNDERSTAND = 0xC000
+};
+
+/* What the handler is told about one received C-STORE. The object has
+ * been written byte for byte, with a meta header, to spool_path; the
+ * handler must move or delete that file before it returns. */
+typedef struct dcm_received {
+    const char *spool_path;
+    const char *calling_ae_title;
+    const char *called_ae_title;
+    const char *peer_address;
+    const char *affected_sop_class_uid;    /* from the C-STORE command */
+    const char *affected_sop_instance_uid; /* from the C-STORE command */
+    unsigned long association_id;          /* for log lines */
+} dcm_received;
+
+/* Called on the association's own thread, possibly on several threads at
+ * once. Returns the DIMSE status to answer with (DCM_STATUS_*). */
+typedef uint16_t (*dcm_store_handler)(void *context,
+                                      const dcm_received *object);
+
+typedef struct dcm_allowed_peer {
+    const char *ae_title;        /* calling AE title */
+    const char *address;         /* NULL or "" = any source address */
+} dcm_allowed_peer;
+
+typedef struct dcm_server_settings {
+    const char *ae_title;              /* our AE title (called AE enforced) */
+    unsigned port;
+    const dcm_allowed_peer *allowed_peers; /* NULL = accept any caller */
+    size_t allowed_peer_count;
+    unsigned max_associations;         /* concurrent; extra are refused */
+    unsigned acse_timeout_seconds;
+    unsigned dimse_timeout_seconds;
+    uint32_t max_pdu;                  /* receive PDU size in bytes */
+    const char *spool_directory;       /* where received objects land */
+    /* TLS: all NULL = plain TCP. */
+    const char *tls_certificate_file;
+    const char *tls_private_key_file;
+    const char *tls_ca_file;           /* non-NULL: require client certs */
+} dcm_server_settings;
+
+typedef struct dcm_server dcm_server;
+
+/* Copies the settings. Does not bind yet. */
+mitilog_status dcm_server_create(const dcm_server_settings *settings,
+                                 dcm_store_handler handler, void *context,
+                                 dcm_server **out, mitilog_error *error);
+/* Binds the port and starts the listener thread; returns once listening
+ * (an error if the port cannot be bound). */
+mitilog_status dcm_server_start(dcm_server *server, mitilog_error *error);
+/* Stops accepting, lets associations in flight finish, joins threads. */
+void dcm_server_stop(dcm_server *server);
+void dcm_server_free(dcm_server *server);
+
+/* Counters since start, for the health check. */
+typedef struct dcm_server_counters {
+    unsigned long associations_accepted;
+    unsigned long associations_refused;
+    unsigned long associations_active;
+    unsigned long objects_received;
+} dcm_server_counters;
+void dcm_server_get_counters(dcm_server *server, dcm_server_counters *out);
+
+/* ------------------------------------------------------------------ */
+/* Building files (the simulator; test fixtures)                       */
+/* ------------------------------------------------------------------ */
+
+typedef struct dcm_builder dcm_builder;
+
+mitilog_status dcm_builder_create(dcm_builder **out, mitilog_error *error);
+void dcm_builder_free(dcm_builder *builder);
+
+/* Puts a string-valued attribute (any string VR, DS, IS, UI, DA, TM...)
+ * into the current item (top level, or the innermost open sequence item).
+ * The VR comes from the data dictionary. */
+mitilog_status dcm_builder_put_string(dcm_builder *builder, uint16_t group,
+                                      uint16_t element, const char *value,
+                                      mitilog_error *error);
+/* US / UL / SS / SL valued attributes. */
+mitilog_status dcm_builder_put_unsigned(dcm_builder *builder, uint16_t group,
+                                        uint16_t element, uint32_t value,
+                                        mitilog_error *error);
+mitilog_status dcm_builder_put_signed(dcm_builder *builder, uint16_t group,
+                                      uint16_t element, int32_t value,
+                                      mitilog_error *error);
+/* FD / FL valued attributes. */
+mitilog_status dcm_builder_put_float(dcm_builder *builder, uint16_t group,
+                                     uint16_t element, double value,
+                                     mitilog_error *error);
+/* Opens a new item in sequence (group,element) of the current item (the
+ * sequence is created on first use); nested calls nest. */
+mitilog_status dcm_builder_begin_item(dcm_builder *builder, uint16_t group,
+                                      uint16_t element, mitilog_error *error);
+mitilog_status dcm_builder_end_item(dcm_builder *builder,
+                                    mitilog_error *error);
+/* Pixel Data (7FE0,0010) as OB/OW from the given bytes (copied). */
+mitilog_status dcm_builder_put_pixels(dcm_builder *builder,
+                                      const uint8_t *bytes, size_t size,
+                                      mitilog_error *error);
+/* Writes a Part 10 file with a meta header in the given transfer syntax
+ * (UID string; NULL = Explicit VR Little Endian). */
+mitilog_status dcm_builder_save(dcm_builder *builder, const char *path,
+                                const char *transfer_syntax_uid,
+                                mitilog_error *error);
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif

@@ -1,0 +1,131 @@
+/*
+ * ext.h - extraction: DICOM facts (dcm_facts) to an exposure record.
+ *
+ * Owns the interpretation of attribute values: DS/IS classification
+ * (ok / missing / invalid, never guessed), the acquisition date-time with
+ * its fall-backs, and the six displayed acoustic output indices. The
+ * ext_record is the struct that the store writes and that rules and
+ * statistics read back.
+ *
+ * Ownership: ext_record_from_facts() fills a caller-supplied record whose
+ * strings are heap copies owned by the record; free with ext_record_free().
+ * The facts are not kept.
+ */
+#ifndef MITILOG_EXT_H
+#define MITILOG_EXT_H
+
+#include <stddef.h>
+
+#include "dicom/dcm.h"
+#include "util/status.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+typedef enum ext_value_status {
+    EXT_VALUE_MISSING = 0, /* attribute absent or empty                 */
+    EXT_VALUE_OK,          /* one well-formed number                     */
+    EXT_VALUE_INVALID      /* present but not one well-formed number     */
+} ext_value_status;
+
+const char *ext_value_status_name(ext_value_status status);
+
+typedef struct ext_number {
+    ext_value_status status;
+    double value;    /* meaningful only when status == EXT_VALUE_OK */
+} ext_number;
+
+/* Decimal String (PS3.5 6.2, VR DS): leading/trailing spaces allowed,
+ * at most 16 characters, [+-]digits[.digits][(E|e)[+-]digits]. Exactly one
+ * value (VM 1): a backslash makes it invalid. NULL or all spaces: missing. */
+ext_number ext_parse_decimal_string(const char *raw);
+/* Integer String (VR IS): at most 12 characters, [+-]digits, VM 1. */
+ext_number ext_parse_integer_string(const char *raw);
+
+/* The displayed indices, in the order of the domain reference. */
+typedef enum ext_index {
+    EXT_INDEX_MI = 0,      /* (0018,5022) MechanicalIndex                */
+    EXT_INDEX_TIS,         /* (0018,5027) SoftTissueThermalIndex         */
+    EXT_INDEX_TIB,         /* (0018,5024) BoneThermalIndex               */
+    EXT_INDEX_TIC,         /* (0018,5026) CranialThermalIndex            */
+    EXT_INDEX_TIS_FOCUS,   /* (0018,5028) SoftTissueFocusThermalIndex    */
+    EXT_INDEX_TIS_SURFACE, /* (0018,5029) SoftTissueSurfaceThermalIndex  */
+    EXT_INDEX_COUNT
+} ext_index;
+
+/* API / column name of an index: "mi", "tis", "tib", "tic", "tis_focus",
+ * "tis_surface". */
+const char *ext_index_name(ext_index index);
+
+typedef enum ext_time_source {
+    EXT_TIME_NONE = 0,
+    EXT_TIME_ACQUISITION_DATE_TIME, /* (0008,002A)                        */
+    EXT_TIME_ACQUISITION,           /* (0008,0022) + (0008,0032)          */
+    EXT_TIME_CONTENT,               /* (0008,0023) + (0008,0033)          */
+    EXT_TIME_INSTANCE_CREATION,     /* (0008,0012) + (0008,0013)          */
+    EXT_TIME_STUDY                  /* (0008,0020) + (0008,0030)          */
+} ext_time_source;
+
+const char *ext_time_source_name(ext_time_source source);
+
+enum { EXT_ISO_TIME_SIZE = 40 };
+
+/* Converts DICOM DA + TM (either may be NULL) or one DT to ISO 8601
+ * ("YYYY-MM-DDTHH:MM:SS[.ffffff][+HH:MM]"); the offset is appended only
+ * when the DT carries one or timezone_offset (0008,0201, "+HHMM") is
+ * given. Returns 0 on success, -1 if the values are missing or malformed. */
+int ext_iso_from_date_time(const char *date, const char *time,
+                           const char *timezone_offset,
+                           char out[EXT_ISO_TIME_SIZE]);
+int ext_iso_from_dt(const char *date_time, const char *timezone_offset,
+                    char out[EXT_ISO_TIME_SIZE]);
+
+/* Acquisition time with the fall-backs of the domain reference:
+ * acquisition date-time, acquisition date + time, content date + time,
+ * instance creation date + time, then study date + time. */
+ext_time_source ext_acquisition_time(const dcm_facts *facts,
+                                     char out[EXT_ISO_TIME_SIZE]);
+
+/* One received or imported instance. Strings are owned, NULL if absent. */
+typedef struct ext_record {
+    char *sop_class_uid;
+    char *sop_instance_uid;
+    char *study_instance_uid;
+    char *series_instance_uid;
+    char *modality;
+    char *station_name;
+    char *institutional_department_name;
+    char *study_description;
+    char *protocol_name;
+    char *transfer_syntax_uid;
+    char *calling_ae_title;         /* "" for imported files */
+    char *source_path;              /* imported file, NULL for network */
+
+    char acquired_at[EXT_ISO_TIME_SIZE];  /* "" when no time at all */
+    ext_time_source acquired_at_source;
+    char received_at[EXT_ISO_TIME_SIZE];  /* UTC, set by the caller */
+
+    ext_number number_of_frames;
+    ext_number frame_time_ms;
+
+    int is_ultrasound;             /* modality US or an US SOP class */
+    ext_number indices[EXT_INDEX_COUNT];
+    char *index_raw[EXT_INDEX_COUNT]; /* raw text as sent, NULL if absent */
+} ext_record;
+
+/* Builds the record. Fails (MITILOG_ERROR_INVALID) only when the object
+ * cannot be stored at all: no SOP Instance UID or no SOP Class UID. */
+mitilog_status ext_record_from_facts(const dcm_facts *facts,
+                                     ext_record *record,
+                                     mitilog_error *error);
+void ext_record_free(ext_record *record);
+
+/* 1 for the ultrasound storage SOP classes of the domain reference. */
+int ext_is_ultrasound_sop_class(const char *sop_class_uid);
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif

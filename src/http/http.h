@@ -1,0 +1,38 @@
+/*
+ * http.h - the HTTP server (libmicrohttpd): JSON API and the dashboard's
+ * static files from web/.
+ *
+ * Owns the libmicrohttpd daemon and its threads. Reads the database only
+ * through store.h. Only GET (and HEAD) is served; unknown paths answer 404
+ * and bad parameters 400, both with a JSON error object.
+ *
+ * Ownership: http_server_start() gives a server freed by http_server_stop().
+ * The store must outlive the server.
+ */
+#ifndef MITILOG_HTTP_H
+#define MITILOG_HTTP_H
+
+#include "store/store.h"
+#include "util/status.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+typedef struct http_settings {
+    const char *address;    /* IPv4 literal, e.g. "127.0.0.1" */
+    unsigned port;
+    const char *web_root;   /* folder with the dashboard's files; may be NULL */
+} http_settings;
+
+typedef struct http_server http_server;
+
+mitilog_status http_server_start(const http_settings *settings, store *store,
+                                 http_server **out, mitilog_error *error);
+void http_server_stop(http_server *server);
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif

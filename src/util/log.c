@@ -1,0 +1,61 @@
+#include "util/log.h"
+
+#include <pthread.h>
+#include <stdarg.h>
+#include <stdio.h>
+#include <string.h>
+#include <strings.h>
+#include <sys/time.h>
+#include <time.h>
+
+static log_level minimum_level = LOG_LEVEL_INFO;
+static pthread_mutex_t output_lock = PTHREAD_MUTEX_INITIALIZER;
+
+void log_set_level(log_level level) { minimum_level = level; }
+
+int log_parse_level(const char *text, log_level *level)
+{
+    static const char *const names[] = {"debug", "info", "warning", "error"};
+    for (int i = 0; i < 4; i++) {
+        if (strcasecmp(text, names[i]) == 0) {
+            *level = (log_level)i;
+            return 0;
+        }
+    }
+    return -1;
+}
+
+static void log_write(log_level level, const char *format, va_list arguments)
+{
+    static const char *const labels[] = {"debug", "info", "warning", "error"};
+    if (level < minimum_level)
+        return;
+    char line[2048];
+    struct timeval now;
+    struct tm broken;
+    gettimeofday(&now, NULL);
+    gmtime_r(&now.tv_sec, &broken);
+    int used = (int)strftime(line, sizeof line, "%Y-%m-%dT%H:%M:%S", &broken);
+    used += snprintf(line + used, sizeof line - (size_t)used, ".%03ldZ %s: ",
+                     (long)(now.tv_usec / 1000), labels[level]);
+    vsnprintf(line + used, sizeof line - (size_t)used, format, arguments);
+    pthread_mutex_lock(&output_lock);
+    fputs(line, stderr);
+    fputc('\n', stderr);
+    fflush(stderr);
+    pthread_mutex_unlock(&output_lock);
+}
+
+#define LOG_DEFINE(name, level)                                              \
+    void name(const char *format, ...)                                       \
+    {                                                                        \
+        va_list arguments;                                                   \
+        va_start(arguments, format);                                         \
+        log_write(level, format, arguments);                                 \
+        va_end(arguments);                                                   \
+    }
+
+LOG_DEFINE(log_debug, LOG_LEVEL_DEBUG)
+LOG_DEFINE(log_info, LOG_LEVEL_INFO)
+LOG_DEFINE(log_warning, LOG_LEVEL_WARNING)
+LOG_DEFINE(log_error, LOG_LEVEL_ERROR)
