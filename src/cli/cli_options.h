@@ -1,0 +1,16 @@
+/*
+ * cli_options.h - shared option handling for the subcommands: --config
+ * and --help, and loading the configuration with a clear message.
+ */
+#ifndef MITILOG_CLI_OPTIONS_H
+#define MITILOG_CLI_OPTIONS_H
+
+#include "config/config.h"
+
+/* 1 if argv holds --help or -h. */
+int cli_wants_help(int argc, char **argv);
+/* Loads path (or the built-in defaults when path is NULL) and sets the log
+ * level; on failure prints the reason and returns -1. */
+int cli_load_config(const char *path, config *config);
+
+#endif

@@ -1,0 +1,152 @@
+/* mitilog serve --config FILE: the Storage SCP and the HTTP dashboard,
+ * until SIGTERM or SIGINT. */
+#include <pthread.h>
+#include <signal.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "cli/cli_options.h"
+#include "cli/commands.h"
+#include "config/config_peers.h"
+#include "dicom/dcm.h"
+#include "http/http.h"
+#include "ingest/ingest.h"
+#include "store/store.h"
+#include "util/log.h"
+
+static void print_serve_usage(FILE *out)
+{
+    fprintf(out,
+            "usage: mitilog serve [--config FILE]\n"
+            "Receives DICOM objects (C-STORE, C-ECHO) and serves the HTTP API and\n"
+            "dashboard. Without --config the built-in defaults are used (see\n"
+            "conf/mitilog.ini). Stops cleanly on SIGTERM or SIGINT: no new\n"
+            "associations, objects in flight are answered, the database is closed.\n");
+}
+
+/* Holds everything serve starts, so one function can stop it in order. */
+typedef struct serve_state {
+    config config;
+    store *store;
+    ingest *ingest;
+    dcm_server *dicom;
+    http_server *http;
+    config_peer *peers;
+    dcm_allowed_peer *allowed;
+} serve_state;
+
+static void serve_stop(serve_state *state)
+{
+    if (state->dicom != NULL) {
+        dcm_server_stop(state->dicom);
+        dcm_server_free(state->dicom);
+    }
+    if (state->http != NULL)
+        http_server_stop(state->http);
+    ingest_free(state->ingest);
+    store_close(state->store);
+    free(state->allowed);
+    free(state->peers);
+    config_free(&state->config);
+}
+
+static int serve_start(serve_state *state, mitilog_error *error)
+{
+    const config *config = &state->config;
+    if (store_open(config->database_path, (int)config->busy_timeout_ms, &state->store, error) !=
+        MITILOG_OK)
+        return -1;
+    if (ingest_create(config, state->store, &state->ingest, error) != MITILOG_OK)
+        return -1;
+    size_t peer_count = 0;
+    if (config_peers_parse(config->allowed_calling_ae_titles, &state->peers, &peer_count, error) !=
+        MITILOG_OK)
+        return -1;
+    if (peer_count > 0) {
+        state->allowed = calloc(peer_count, sizeof *state->allowed);
+        if (state->allowed == NULL)
+            return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory"), -1;
+        for (size_t i = 0; i < peer_count; i++) {
+            state->allowed[i].ae_title = state->peers[i].ae_title;
+            state->allowed[i].address = state->peers[i].address;
+        }
+    }
+    dcm_server_settings settings = {
+        .ae_title = config->ae_title,
+        .port = config->port,
+        .allowed_peers = state->allowed,
+        .allowed_peer_count = peer_count,
+        .max_associations = config->max_associations,
+        .acse_timeout_seconds = config->acse_timeout_seconds,
+        .dimse_timeout_seconds = config->dimse_timeout_seconds,
+        .max_pdu = config->max_pdu_bytes,
+        .spool_directory = ingest_spool_directory(state->ingest),
+    };
+    if (dcm_server_create(&settings, ingest_store_handler, state->ingest, &state->dicom, error) !=
+            MITILOG_OK ||
+        dcm_server_start(state->dicom, error) != MITILOG_OK)
+        return -1;
+    http_settings web = {config->http_address, config->http_port, config->web_root};
+    if (http_server_start(&web, state->store, &state->http, error) != MITILOG_OK)
+        return -1;
+    return 0;
+}
+
+int command_serve(int argc, char **argv)
+{
+    const char *config_path = NULL;
+    for (int i = 1; i < argc; i++) {
+        if (strcmp(argv[i], "--help") == 0 || strcmp(argv[i], "-h") == 0) {
+            print_serve_usage(stdout);
+            return EXIT_STATUS_SUCCESS;
+        } else if (strcmp(argv[i], "--config") == 0 && i + 1 < argc) {
+            config_path = argv[++i];
+        } else {
+            print_serve_usage(stderr);
+            return EXIT_STATUS_USAGE;
+        }
+    }
+    /* Signals are blocked before any thread exists, so every thread
+     * inherits the mask and only sigwait() below sees them. */
+    sigset_t signals;
+    sigemptyset(&signals);
+    sigaddset(&signals, SIGINT);
+    sigaddset(&signals, SIGTERM);
+    sigaddset(&signals, SIGHUP);
+    pthread_sigmask(SIG_BLOCK, &signals, NULL);
+
+    serve_state state;
+    memset(&state, 0, sizeof state);
+    if (cli_load_config(config_path, &state.config) != 0) {
+        config_free(&state.config);
+        return EXIT_STATUS_USAGE;
+    }
+    mitilog_error error;
+    log_level level = LOG_LEVEL_INFO;
+    log_parse_level(state.config.log_level, &level);
+    if (dcm_initialise((int)level, &error) != MITILOG_OK || serve_start(&state, &error) != 0) {
+        log_error("cannot start: %s", error.text);
+        serve_stop(&state);
+        return EXIT_STATUS_FAILURE;
+    }
+    log_info("mitilog %s: DICOM AE '%s' on port %u (all interfaces); HTTP on http://%s:%u/; "
+             "database %s",
+             MITILOG_VERSION, state.config.ae_title, state.config.port, state.config.http_address,
+             state.config.http_port, state.config.database_path);
+    for (;;) {
+        int received = 0;
+        if (sigwait(&signals, &received) != 0)
+            continue;
+        if (received == SIGHUP) {
+            log_info("SIGHUP: configuration is read at start only; restart to apply changes");
+            continue;
+        }
+        log_info("signal %d: stopping (no new associations; objects in flight are answered)",
+                 received);
+        break;
+    }
+    serve_stop(&state);
+    log_info("stopped cleanly");
+    return EXIT_STATUS_SUCCESS;
+}

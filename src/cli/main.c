@@ -1,0 +1,58 @@
+/* mitilog: the executable's entry point; dispatches to a subcommand. */
+#include <stdio.h>
+#include <string.h>
+
+#include "cli/commands.h"
+
+typedef struct subcommand {
+    const char *name;
+    int (*run)(int argc, char **argv);
+    const char *summary;
+} subcommand;
+
+static const subcommand subcommands[] = {
+    {"serve", command_serve, "run the DICOM receiver and the HTTP dashboard"},
+    {"import", command_import, "read DICOM files or folders into the database"},
+    {"check-config", command_check_config, "validate a configuration and print it"},
+    {"simulate", command_simulate, "generate a fictional department's ultrasound traffic"},
+};
+
+static void print_usage(FILE *out)
+{
+    fprintf(out,
+            "usage: mitilog SUBCOMMAND [OPTIONS]\n"
+            "\n"
+            "mitilog %s audits the acoustic output (MI, TIS, TIB, TIC) displayed on\n"
+            "ultrasound images received over DICOM. It advises; the department's\n"
+            "safety policy, its medical physicist and local regulation decide.\n"
+            "\n"
+            "subcommands:\n",
+            MITILOG_VERSION);
+    for (size_t i = 0; i < sizeof subcommands / sizeof subcommands[0]; i++)
+        fprintf(out, "  %-14s %s\n", subcommands[i].name, subcommands[i].summary);
+    fprintf(out, "\n'mitilog SUBCOMMAND --help' describes each one.\n");
+}
+
+int main(int argc, char **argv)
+{
+    if (argc < 2) {
+        print_usage(stderr);
+        return EXIT_STATUS_USAGE;
+    }
+    if (strcmp(argv[1], "--help") == 0 || strcmp(argv[1], "-h") == 0 ||
+        strcmp(argv[1], "help") == 0) {
+        print_usage(stdout);
+        return EXIT_STATUS_SUCCESS;
+    }
+    if (strcmp(argv[1], "--version") == 0) {
+        printf("mitilog %s\n", MITILOG_VERSION);
+        return EXIT_STATUS_SUCCESS;
+    }
+    for (size_t i = 0; i < sizeof subcommands / sizeof subcommands[0]; i++) {
+        if (strcmp(argv[1], subcommands[i].name) == 0)
+            return subcommands[i].run(argc - 1, argv + 1);
+    }
+    fprintf(stderr, "mitilog: unknown subcommand '%s'\n\n", argv[1]);
+    print_usage(stderr);
+    return EXIT_STATUS_USAGE;
+}

@@ -1,0 +1,329 @@
+#include "config/config.h"
+
+#include <errno.h>
+#include <ini.h>
+#include <limits.h>
+#include <stddef.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <strings.h>
+
+#include "config/config_paths.h"
+#include "config/config_peers.h"
+
+/* One row per key: the single description of the configuration. It parses
+ * the file, checks bounds, prints the effective values, and is what
+ * docs/configuration.md documents. */
+typedef enum option_type { OPTION_STRING, OPTION_UNSIGNED, OPTION_CHOICE } option_type;
+
+typedef struct option {
+    const char *section;
+    const char *key;
+    option_type type;
+    size_t offset;
+    const char *default_value;
+    unsigned long minimum;      /* OPTION_UNSIGNED */
+    unsigned long maximum;
+    const char *choices;        /* OPTION_CHOICE: "|a|b|c|" */
+    int is_path;                /* resolved against the config's folder */
+    const char *description;
+} option;
+
+#define FIELD(name) offsetof(config, name)
+
+static const option options[] = {
+    {"dicom", "ae_title", OPTION_STRING, FIELD(ae_title), "MITILOG", 0, 0, NULL, 0,
+     "Called AE title this Storage SCP answers to (1-16 characters)."},
+    {"dicom", "port", OPTION_UNSIGNED, FIELD(port), "11112", 1, 65535, NULL, 0,
+     "TCP port of the Storage SCP. DCMTK 3.6.7 listens on every interface."},
+    {"dicom", "allowed_calling_ae_titles", OPTION_STRING, FIELD(allowed_calling_ae_titles), "", 0, 0,
+     NULL, 0, "Comma-separated calling AE titles, each optionally AE@IPv4; empty accepts any."},
+    {"dicom", "max_associations", OPTION_UNSIGNED, FIELD(max_associations), "16", 1, 256, NULL, 0,
+     "Concurrent associations; further ones are refused (local limit exceeded)."},
+    {"dicom", "acse_timeout_seconds", OPTION_UNSIGNED, FIELD(acse_timeout_seconds), "5", 1, 600, NULL,
+     0, "Time allowed for association negotiation."},
+    {"dicom", "dimse_timeout_seconds", OPTION_UNSIGNED, FIELD(dimse_timeout_seconds), "60", 1, 3600,
+     NULL, 0, "Idle time allowed between DIMSE messages within an association."},
+    {"dicom", "max_pdu_bytes", OPTION_UNSIGNED, FIELD(max_pdu_bytes), "65536", 4096, 131072, NULL, 0,
+     "Largest PDU this receiver accepts."},
+    {"http", "address", OPTION_STRING, FIELD(http_address), "127.0.0.1", 0, 0, NULL, 0,
+     "IPv4 address of the HTTP API and dashboard."},
+    {"http", "port", OPTION_UNSIGNED, FIELD(http_port), "8080", 1, 65535, NULL, 0,
+     "TCP port of the HTTP API and dashboard."},
+    {"http", "web_root", OPTION_STRING, FIELD(web_root), MITILOG_SOURCE_DIR "/web", 0, 0, NULL, 1,
+     "Folder holding the dashboard's files."},
+    {"storage", "data_directory", OPTION_STRING, FIELD(data_directory), "var", 0, 0, NULL, 1,
+     "Folder for the database, spool, quarantine and header copies."},
+    {"storage", "database", OPTION_STRING, FIELD(database_path), "mitilog.sqlite3", 0, 0, NULL, 0,
+     "SQLite database file; relative to data_directory."},
+    {"storage", "retention", OPTION_CHOICE, FIELD(retention), "header", 0, 0, "|none|header|full|", 0,
+     "What is kept of each object: none, header (pixel data dropped) or full."},
+    {"storage", "busy_timeout_ms", OPTION_UNSIGNED, FIELD(busy_timeout_ms), "5000", 0, 600000, NULL, 0,
+     "How long a write waits for a locked database before answering A700."},
+    {"log", "level", OPTION_CHOICE, FIELD(log_level), "info", 0, 0, "|debug|info|warning|error|", 0,
+     "Lowest level written to stderr."},
+};
+
+enum { OPTION_COUNT = sizeof options / sizeof options[0] };
+
+typedef struct load_state {
+    config *config;
+    const char *path;
+    char *base_directory;
+    mitilog_status status;
+    mitilog_error *error;
+    int lines[sizeof options / sizeof options[0]]; /* where each key was set */
+    FILE *file;
+    int line_number;        /* line of the text inih is looking at */
+    int previous_complete;  /* the last chunk read ended a line */
+    int error_line;         /* line of the first bad key, 0 if none */
+} load_state;
+
+/* Debian's inih does not pass line numbers to handlers, so the reader
+ * counts them: inih asks for one line per call. */
+static char *read_line(char *buffer, int size, void *stream)
+{
+    load_state *state = stream;
+    char *line = fgets(buffer, size, state->file);
+    if (line != NULL) {
+        state->line_number += state->previous_complete;
+        state->previous_complete = strchr(line, '\n') != NULL;
+    }
+    return line;
+}
+
+static char **string_field(config *config, const option *option)
+{
+    return (char **)((char *)config + option->offset);
+}
+
+static unsigned *unsigned_field(config *config, const option *option)
+{
+    return (unsigned *)((char *)config + option->offset);
+}
+
+/* Stores value into the option's field; on a bad value writes the reason
+ * (without location) into reason and returns -1. */
+static int option_assign(config *config, const option *option, const char *value,
+                         const char *base_directory, char *reason, size_t reason_size)
+{
+    if (option->type == OPTION_UNSIGNED) {
+        char *end = NULL;
+        errno = 0;
+        unsigned long number = strtoul(value, &end, 10);
+        if (value[0] == '\0' || value[0] == '-' || value[0] == '+' || *end != '\0' || errno != 0) {
+            snprintf(reason, reason_size, "'%s' is not a whole number", value);
+            return -1;
+        }
+        if (number < option->minimum || number > option->maximum) {
+            snprintf(reason, reason_size, "%lu is outside %lu..%lu", number, option->minimum,
+                     option->maximum);
+            return -1;
+        }
+        *unsigned_field(config, option) = (unsigned)number;
+        return 0;
+    }
+    if (option->type == OPTION_CHOICE) {
+        char needle[64];
+        snprintf(needle, sizeof needle, "|%s|", value);
+        if (value[0] == '\0' || strchr(value, '|') != NULL || strstr(option->choices, needle) == NULL) {
+            snprintf(reason, reason_size, "'%s' is not one of %s", value, option->choices);
+            return -1;
+        }
+    }
+    char *copy = option->is_path ? config_resolve_path(base_directory, value) : strdup(value);
+    if (copy == NULL) {
+        snprintf(reason, reason_size, "out of memory");
+        return -1;
+    }
+    char **field = string_field(config, option);
+    free(*field);
+    *field = copy;
+    return 0;
+}
+
+static const option *option_find(const char *section, const char *key)
+{
+    for (size_t i = 0; i < OPTION_COUNT; i++) {
+        if (strcasecmp(options[i].section, section) == 0 && strcasecmp(options[i].key, key) == 0)
+            return &options[i];
+    }
+    return NULL;
+}
+
+/* Checks that only make sense across keys or need more than a bound. */
+static int config_validate(const config *config, char *reason, size_t reason_size,
+                           const char **section, const char **key)
+{
+    size_t length = strlen(config->ae_title);
+    if (length == 0 || length > 16 || strchr(config->ae_title, '\\') != NULL) {
+        *section = "dicom";
+        *key = "ae_title";
+        snprintf(reason, reason_size, "an AE title has 1 to 16 characters and no backslash");
+        return -1;
+    }
+    config_peer *peers = NULL;
+    size_t peer_count = 0;
+    mitilog_error peer_error;
+    if (config_peers_parse(config->allowed_calling_ae_titles, &peers, &peer_count, &peer_error) !=
+        MITILOG_OK) {
+        *section = "dicom";
+        *key = "allowed_calling_ae_titles";
+        snprintf(reason, reason_size, "%s", peer_error.text);
+        return -1;
+    }
+    free(peers);
+    if (config->http_port == config->port) {
+        *section = "http";
+        *key = "port";
+        snprintf(reason, reason_size, "the HTTP port equals the DICOM port %u", config->port);
+        return -1;
+    }
+    return 0;
+}
+
+static int handle_entry(void *user, const char *section, const char *key, const char *value)
+{
+    load_state *state = user;
+    int line = state->line_number;
+    if (state->status != MITILOG_OK)
+        return 0;
+    const option *option = option_find(section, key);
+    if (option == NULL) {
+        state->error_line = line;
+        state->status = mitilog_error_set(state->error, MITILOG_ERROR_INVALID,
+                                          "%s:%d: [%s] %s: unknown key", state->path, line,
+                                          section, key);
+        return 0;
+    }
+    state->lines[option - options] = line;
+    char reason[256];
+    if (option_assign(state->config, option, value, state->base_directory, reason, sizeof reason) !=
+        0) {
+        state->error_line = line;
+        state->status = mitilog_error_set(state->error, MITILOG_ERROR_INVALID, "%s:%d: [%s] %s: %s",
+                                          state->path, line, option->section, option->key, reason);
+        return 0;
+    }
+    return 1;
+}
+
+static mitilog_status config_finish(config *config, mitilog_error *error)
+{
+    /* The database path is relative to the data folder unless absolute. */
+    char *database = config_resolve_path(config->data_directory, config->database_path);
+    if (database == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    free(config->database_path);
+    config->database_path = database;
+    return MITILOG_OK;
+}
+
+mitilog_status config_set_defaults(config *config, mitilog_error *error)
+{
+    memset(config, 0, sizeof *config);
+    config->source_path = strdup("(defaults)");
+    char *base = config_current_directory();
+    if (config->source_path == NULL || base == NULL) {
+        free(base);
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    }
+    for (size_t i = 0; i < OPTION_COUNT; i++) {
+        char reason[256];
+        if (option_assign(config, &options[i], options[i].default_value, base, reason,
+                          sizeof reason) != 0) {
+            free(base);
+            return mitilog_error_set(error, MITILOG_ERROR_INVALID, "default of %s: %s",
+                                     options[i].key, reason);
+        }
+    }
+    free(base);
+    return MITILOG_OK;
+}
+
+mitilog_status config_load(const char *path, config *config, mitilog_error *error)
+{
+    mitilog_status status = config_set_defaults(config, error);
+    if (status != MITILOG_OK)
+        return status;
+    FILE *file = fopen(path, "r");
+    if (file == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_IO, "%s: %s", path, strerror(errno));
+    load_state state = {config, path, config_parent_directory(path), MITILOG_OK, error, {0},
+                        file, 0, 1, 0};
+    if (state.base_directory == NULL) {
+        fclose(file);
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    }
+    /* Paths given as defaults are relative to the working directory; those
+     * in the file are relative to the file. Re-resolve the defaults of path
+     * options against the file's folder so a config is self-contained. */
+    for (size_t i = 0; i < OPTION_COUNT; i++) {
+        char reason[256];
+        if (options[i].is_path && options[i].default_value[0] != '/')
+            option_assign(config, &options[i], options[i].default_value, state.base_directory,
+                          reason, sizeof reason);
+    }
+    int result = ini_parse_stream(read_line, &state, handle_entry, &state);
+    fclose(file);
+    if (result > 0 && (state.status == MITILOG_OK || result < state.error_line))
+        state.status = mitilog_error_set(error, MITILOG_ERROR_PARSE,
+                                         "%s:%d: syntax error (expected [section] or key = value)",
+                                         path, result);
+    else if (state.status == MITILOG_OK && result < 0)
+        state.status = mitilog_error_set(error, MITILOG_ERROR_IO, "%s: cannot be read", path);
+    free(state.base_directory);
+    if (state.status != MITILOG_OK)
+        return state.status;
+    free(config->source_path);
+    config->source_path = strdup(path);
+    if (config->source_path == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    char reason[256];
+    const char *section = "", *key = "";
+    if (config_validate(config, reason, sizeof reason, &section, &key) != 0) {
+        const option *option = option_find(section, key);
+        int line = option ? state.lines[option - options] : 0;
+        if (line > 0)
+            return mitilog_error_set(error, MITILOG_ERROR_INVALID, "%s:%d: [%s] %s: %s", path,
+                                     line, section, key, reason);
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "%s: [%s] %s (default): %s", path,
+                                 section, key, reason);
+    }
+    return config_finish(config, error);
+}
+
+void config_print(const config *config, FILE *out)
+{
+    const char *section = "";
+    fprintf(out, "; effective configuration (from %s)\n", config->source_path);
+    for (size_t i = 0; i < OPTION_COUNT; i++) {
+        const option *option = &options[i];
+        if (strcmp(section, option->section) != 0) {
+            section = option->section;
+            fprintf(out, "\n[%s]\n", section);
+        }
+        fprintf(out, "; %s\n", option->description);
+        struct config *mutable_config = (struct config *)config;
+        if (option->type == OPTION_UNSIGNED)
+            fprintf(out, "%s = %u\n", option->key, *unsigned_field(mutable_config, option));
+        else
+            fprintf(out, "%s = %s\n", option->key, *string_field(mutable_config, option));
+    }
+}
+
+void config_free(config *config)
+{
+    if (config == NULL)
+        return;
+    for (size_t i = 0; i < OPTION_COUNT; i++) {
+        if (options[i].type != OPTION_UNSIGNED) {
+            char **field = string_field(config, &options[i]);
+            free(*field);
+            *field = NULL;
+        }
+    }
+    free(config->source_path);
+    config->source_path = NULL;
+}

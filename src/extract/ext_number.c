@@ -1,0 +1,116 @@
+/* Classification of DS and IS values: ok, missing or invalid. The grammar
+ * is the one of DICOM PS3.5 section 6.2 (Table 6.2-1); a value that does
+ * not follow it is recorded as invalid, never repaired or guessed. */
+#include <ctype.h>
+#include <errno.h>
+#include <limits.h>
+#include <stdint.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "extract/ext.h"
+
+enum { DECIMAL_STRING_MAXIMUM = 16, INTEGER_STRING_MAXIMUM = 12 };
+
+/* Finds the value between leading and trailing spaces. Returns its length
+ * and sets *start; 0 when the text is only spaces. */
+static size_t trimmed_span(const char *raw, const char **start)
+{
+    const char *begin = raw;
+    while (*begin == ' ')
+        begin++;
+    const char *end = begin + strlen(begin);
+    while (end > begin && end[-1] == ' ')
+        end--;
+    *start = begin;
+    return (size_t)(end - begin);
+}
+
+static size_t count_digits(const char *text, size_t length, size_t *position)
+{
+    size_t count = 0;
+    while (*position < length && isdigit((unsigned char)text[*position])) {
+        (*position)++;
+        count++;
+    }
+    return count;
+}
+
+/* [+-] digits [. digits] [(E|e) [+-] digits], at least one mantissa digit. */
+static int decimal_grammar_ok(const char *text, size_t length)
+{
+    size_t position = 0;
+    if (position < length && (text[position] == '+' || text[position] == '-'))
+        position++;
+    size_t digits = count_digits(text, length, &position);
+    if (position < length && text[position] == '.') {
+        position++;
+        digits += count_digits(text, length, &position);
+    }
+    if (digits == 0)
+        return 0;
+    if (position < length && (text[position] == 'E' || text[position] == 'e')) {
+        position++;
+        if (position < length && (text[position] == '+' || text[position] == '-'))
+            position++;
+        if (count_digits(text, length, &position) == 0)
+            return 0;
+    }
+    return position == length;
+}
+
+ext_number ext_parse_decimal_string(const char *raw)
+{
+    ext_number number = {EXT_VALUE_MISSING, 0.0};
+    if (raw == NULL)
+        return number;
+    const char *start = NULL;
+    size_t length = trimmed_span(raw, &start);
+    if (length == 0)
+        return number;
+    number.status = EXT_VALUE_INVALID;
+    if (strlen(raw) > DECIMAL_STRING_MAXIMUM || !decimal_grammar_ok(start, length))
+        return number;
+    char buffer[DECIMAL_STRING_MAXIMUM + 1];
+    memcpy(buffer, start, length);
+    buffer[length] = '\0';
+    /* strtod in the "C" locale: mitilog never calls setlocale(LC_NUMERIC). */
+    errno = 0;
+    double value = strtod(buffer, NULL);
+    if (errno == ERANGE || !isfinite(value))
+        return number;
+    number.status = EXT_VALUE_OK;
+    number.value = value;
+    return number;
+}
+
+ext_number ext_parse_integer_string(const char *raw)
+{
+    ext_number number = {EXT_VALUE_MISSING, 0.0};
+    if (raw == NULL)
+        return number;
+    const char *start = NULL;
+    size_t length = trimmed_span(raw, &start);
+    if (length == 0)
+        return number;
+    number.status = EXT_VALUE_INVALID;
+    if (strlen(raw) > INTEGER_STRING_MAXIMUM)
+        return number;
+    size_t position = 0;
+    if (start[0] == '+' || start[0] == '-')
+        position++;
+    if (count_digits(start, length, &position) == 0 || position != length)
+        return number;
+    char buffer[INTEGER_STRING_MAXIMUM + 1];
+    memcpy(buffer, start, length);
+    buffer[length] = '\0';
+    errno = 0;
+    long value = strtol(buffer, NULL, 10);
+    /* PS3.5: -2^31 <= n <= 2^31 - 1 */
+    if (errno == ERANGE || value < INT32_MIN || value > INT32_MAX)
+        return number;
+    number.status = EXT_VALUE_OK;
+    number.value = (double)value;
+    return number;
+}

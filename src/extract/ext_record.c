@@ -1,0 +1,136 @@
+/* Building the exposure record of one instance from its DICOM facts. */
+#include <stdlib.h>
+#include <string.h>
+
+#include "extract/ext.h"
+
+/* The attribute carrying each displayed index, in ext_index order. */
+static const dcm_attribute index_attributes[EXT_INDEX_COUNT] = {
+    DCM_ATTRIBUTE_MECHANICAL_INDEX,
+    DCM_ATTRIBUTE_SOFT_TISSUE_THERMAL_INDEX,
+    DCM_ATTRIBUTE_BONE_THERMAL_INDEX,
+    DCM_ATTRIBUTE_CRANIAL_THERMAL_INDEX,
+    DCM_ATTRIBUTE_SOFT_TISSUE_FOCUS_THERMAL_INDEX,
+    DCM_ATTRIBUTE_SOFT_TISSUE_SURFACE_THERMAL_INDEX,
+};
+
+int ext_is_ultrasound_sop_class(const char *sop_class_uid)
+{
+    static const char *const classes[] = {
+        "1.2.840.10008.5.1.4.1.1.6.1", /* US Image Storage */
+        "1.2.840.10008.5.1.4.1.1.3.1", /* US Multi-frame Image Storage */
+        "1.2.840.10008.5.1.4.1.1.6.2", /* Enhanced US Volume Storage */
+        "1.2.840.10008.5.1.4.1.1.6",   /* US Image Storage (retired) */
+        "1.2.840.10008.5.1.4.1.1.3",   /* US Multi-frame Storage (retired) */
+    };
+    if (sop_class_uid == NULL)
+        return 0;
+    for (size_t i = 0; i < sizeof classes / sizeof classes[0]; i++) {
+        if (strcmp(sop_class_uid, classes[i]) == 0)
+            return 1;
+    }
+    return 0;
+}
+
+/* Copy without the leading and trailing spaces that DICOM pads with
+ * (insignificant for SH, LO, CS, UI per PS3.5 6.2); NULL stays NULL. */
+static char *trimmed_duplicate(const char *raw, int *failed)
+{
+    if (raw == NULL)
+        return NULL;
+    while (*raw == ' ')
+        raw++;
+    size_t length = strlen(raw);
+    while (length > 0 && raw[length - 1] == ' ')
+        length--;
+    char *copy = malloc(length + 1);
+    if (copy == NULL) {
+        *failed = 1;
+        return NULL;
+    }
+    memcpy(copy, raw, length);
+    copy[length] = '\0';
+    return copy;
+}
+
+static char *exact_duplicate(const char *raw, int *failed)
+{
+    if (raw == NULL)
+        return NULL;
+    char *copy = strdup(raw);
+    if (copy == NULL)
+        *failed = 1;
+    return copy;
+}
+
+mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
+                                     mitilog_error *error)
+{
+    memset(record, 0, sizeof *record);
+    const char *const *values = (const char *const *)facts->values;
+    int failed = 0;
+    record->sop_class_uid = trimmed_duplicate(values[DCM_ATTRIBUTE_SOP_CLASS_UID], &failed);
+    record->sop_instance_uid = trimmed_duplicate(values[DCM_ATTRIBUTE_SOP_INSTANCE_UID], &failed);
+    if (!failed && (record->sop_instance_uid == NULL || record->sop_instance_uid[0] == '\0')) {
+        ext_record_free(record);
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no SOP Instance UID (0008,0018)");
+    }
+    if (!failed && (record->sop_class_uid == NULL || record->sop_class_uid[0] == '\0')) {
+        ext_record_free(record);
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no SOP Class UID (0008,0016)");
+    }
+    record->study_instance_uid =
+        trimmed_duplicate(values[DCM_ATTRIBUTE_STUDY_INSTANCE_UID], &failed);
+    record->series_instance_uid =
+        trimmed_duplicate(values[DCM_ATTRIBUTE_SERIES_INSTANCE_UID], &failed);
+    record->modality = trimmed_duplicate(values[DCM_ATTRIBUTE_MODALITY], &failed);
+    record->station_name = trimmed_duplicate(values[DCM_ATTRIBUTE_STATION_NAME], &failed);
+    record->institutional_department_name =
+        trimmed_duplicate(values[DCM_ATTRIBUTE_INSTITUTIONAL_DEPARTMENT_NAME], &failed);
+    record->study_description = trimmed_duplicate(values[DCM_ATTRIBUTE_STUDY_DESCRIPTION], &failed);
+    record->protocol_name = trimmed_duplicate(values[DCM_ATTRIBUTE_PROTOCOL_NAME], &failed);
+    record->transfer_syntax_uid = trimmed_duplicate(facts->transfer_syntax_uid, &failed);
+
+    record->acquired_at_source = ext_acquisition_time(facts, record->acquired_at);
+    record->number_of_frames = ext_parse_integer_string(values[DCM_ATTRIBUTE_NUMBER_OF_FRAMES]);
+    record->frame_time_ms = ext_parse_decimal_string(values[DCM_ATTRIBUTE_FRAME_TIME]);
+
+    record->is_ultrasound = ext_is_ultrasound_sop_class(record->sop_class_uid) ||
+                            (record->modality != NULL && strcmp(record->modality, "US") == 0);
+    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+        const char *raw = record->is_ultrasound ? values[index_attributes[i]] : NULL;
+        record->indices[i] = ext_parse_decimal_string(raw);
+        record->index_raw[i] = exact_duplicate(raw, &failed);
+    }
+    if (failed) {
+        ext_record_free(record);
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    }
+    return MITILOG_OK;
+}
+
+void ext_record_free(ext_record *record)
+{
+    if (record == NULL)
+        return;
+    char **strings[] = {&record->sop_class_uid,
+                        &record->sop_instance_uid,
+                        &record->study_instance_uid,
+                        &record->series_instance_uid,
+                        &record->modality,
+                        &record->station_name,
+                        &record->institutional_department_name,
+                        &record->study_description,
+                        &record->protocol_name,
+                        &record->transfer_syntax_uid,
+                        &record->calling_ae_title,
+                        &record->source_path};
+    for (size_t i = 0; i < sizeof strings / sizeof strings[0]; i++) {
+        free(*strings[i]);
+        *strings[i] = NULL;
+    }
+    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+        free(record->index_raw[i]);
+        record->index_raw[i] = NULL;
+    }
+}

@@ -1,0 +1,212 @@
+#include "ingest/ingest.h"
+
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "extract/ext.h"
+#include "util/files.h"
+#include "util/hash.h"
+#include "util/log.h"
+
+typedef enum retention { RETENTION_NONE, RETENTION_HEADER, RETENTION_FULL } retention;
+
+/* Data folder paths are bounded by FOLDER_SIZE so every derived path fits
+ * in PATH_SIZE (checked in ingest_create). */
+enum { SR_DEPTH_LIMIT = 64, FOLDER_SIZE = 3072, PATH_SIZE = 4096 };
+
+struct ingest {
+    store *store;
+    retention retention;
+    char spool[FOLDER_SIZE];
+    char quarantine[FOLDER_SIZE];
+    char headers[FOLDER_SIZE];
+    char objects[FOLDER_SIZE];
+};
+
+mitilog_status ingest_create(const config *config, store *store, ingest **out,
+                             mitilog_error *error)
+{
+    ingest *created = calloc(1, sizeof *created);
+    if (created == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    created->store = store;
+    created->retention = strcmp(config->retention, "none") == 0   ? RETENTION_NONE
+                         : strcmp(config->retention, "full") == 0 ? RETENTION_FULL
+                                                                  : RETENTION_HEADER;
+    const char *base = config->data_directory;
+    if (strlen(base) > FOLDER_SIZE - 16) {
+        free(created);
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "data_directory path too long");
+    }
+    snprintf(created->spool, FOLDER_SIZE, "%s/spool", base);
+    snprintf(created->quarantine, FOLDER_SIZE, "%s/quarantine", base);
+    snprintf(created->headers, FOLDER_SIZE, "%s/headers", base);
+    snprintf(created->objects, FOLDER_SIZE, "%s/objects", base);
+    const char *folders[] = {created->spool, created->quarantine, created->headers,
+                             created->objects};
+    for (size_t i = 0; i < 4; i++) {
+        mitilog_status status = files_make_directories(folders[i], error);
+        if (status != MITILOG_OK) {
+            free(created);
+            return status;
+        }
+    }
+    *out = created;
+    return MITILOG_OK;
+}
+
+void ingest_free(ingest *ingest) { free(ingest); }
+
+const char *ingest_spool_directory(const ingest *ingest) { return ingest->spool; }
+
+/* folder/ab/<hash>.dcm for the hash of key; creates folder/ab. */
+static mitilog_status hashed_path(const char *folder, const char *key, char path[PATH_SIZE],
+                                  mitilog_error *error)
+{
+    char hex[HASH_HEX_SIZE];
+    if (hash_text_hex(key, hex) != MITILOG_OK)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "cannot hash");
+    char subfolder[FOLDER_SIZE + 4];
+    snprintf(subfolder, sizeof subfolder, "%s/%.2s", folder, hex);
+    mitilog_status status = files_make_directories(subfolder, error);
+    if (status == MITILOG_OK)
+        snprintf(path, PATH_SIZE, "%s/%s.dcm", subfolder, hex);
+    return status;
+}
+
+/* Keeps the received bytes of a rejected object and records the reason. */
+static void quarantine(ingest *ingest, const ingest_source *source, const char *reason)
+{
+    char kept[PATH_SIZE] = "";
+    mitilog_error error;
+    if (source->is_spool) {
+        char hex[HASH_HEX_SIZE];
+        if (hash_file_hex(source->path, hex, &error) == MITILOG_OK) {
+            snprintf(kept, sizeof kept, "%s/%s.dcm", ingest->quarantine, hex);
+            if (files_move(source->path, kept, &error) != MITILOG_OK) {
+                log_error("quarantine failed: %s", error.text);
+                kept[0] = '\0';
+            }
+        }
+        if (kept[0] == '\0')
+            unlink(source->path); /* the handler must not leave the spool file */
+    }
+    char now[32];
+    files_utc_now(now, sizeof now);
+    store_rejection rejection = {now,
+                                 source->calling_ae_title,
+                                 source->peer_address,
+                                 source->announced_sop_class_uid,
+                                 source->announced_sop_instance_uid,
+                                 source->is_spool ? "" : source->path,
+                                 kept,
+                                 reason};
+    if (store_put_rejection(ingest->store, &rejection, &error) != MITILOG_OK)
+        log_error("cannot record rejection: %s", error.text);
+    if (source->is_spool)
+        log_warning("association %lu: object %s from AE '%s' rejected: %s; bytes kept in %s",
+                    source->association_id, source->announced_sop_instance_uid,
+                    source->calling_ae_title, reason, kept[0] ? kept : "(nowhere)");
+    else
+        log_warning("import: %s rejected: %s", source->path, reason);
+}
+
+/* Writes the copy the retention setting asks for. */
+static mitilog_status retain(ingest *ingest, dcm_object *object, const ingest_source *source,
+                             const char *sop_instance_uid, mitilog_error *error)
+{
+    if (ingest->retention == RETENTION_NONE)
+        return MITILOG_OK;
+    char path[PATH_SIZE];
+    const char *folder = ingest->retention == RETENTION_FULL ? ingest->objects : ingest->headers;
+    mitilog_status status = hashed_path(folder, sop_instance_uid, path, error);
+    if (status != MITILOG_OK)
+        return status;
+    if (ingest->retention == RETENTION_FULL)
+        return files_copy(source->path, path, error);
+    char temporary[PATH_SIZE + 8];
+    snprintf(temporary, sizeof temporary, "%s.part", path);
+    status = dcm_object_save_header(object, temporary, error);
+    if (status == MITILOG_OK && rename(temporary, path) != 0)
+        status = mitilog_error_set(error, MITILOG_ERROR_IO, "cannot rename %s", temporary);
+    if (status != MITILOG_OK)
+        unlink(temporary);
+    return status;
+}
+
+static ingest_outcome reject(ingest *ingest, const ingest_source *source, mitilog_error *reason)
+{
+    quarantine(ingest, source, reason->text);
+    return INGEST_OUTCOME_REJECTED;
+}
+
+ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilog_error *reason)
+{
+    dcm_object *object = NULL;
+    dcm_facts facts;
+    ext_record record;
+    memset(&facts, 0, sizeof facts);
+    memset(&record, 0, sizeof record);
+    ingest_outcome outcome = INGEST_OUTCOME_NOT_STORED;
+
+    if (dcm_object_load(source->path, &object, reason) != MITILOG_OK)
+        return reject(ingest, source, reason);
+    if (dcm_object_facts(object, SR_DEPTH_LIMIT, &facts, reason) != MITILOG_OK ||
+        ext_record_from_facts(&facts, &record, reason) != MITILOG_OK) {
+        dcm_object_free(object);
+        dcm_facts_free(&facts);
+        return reject(ingest, source, reason);
+    }
+    if (source->announced_sop_instance_uid[0] != '\0' &&
+        strcmp(source->announced_sop_instance_uid, record.sop_instance_uid) != 0)
+        log_warning("association %lu: C-STORE announced %s but the object is %s; stored as %s",
+                    source->association_id, source->announced_sop_instance_uid,
+                    record.sop_instance_uid, record.sop_instance_uid);
+    record.calling_ae_title = strdup(source->calling_ae_title);
+    record.source_path = source->is_spool ? NULL : strdup(source->path);
+    files_utc_now(record.received_at, sizeof record.received_at);
+
+    store_put_outcome put = STORE_PUT_INSERTED;
+    if (record.calling_ae_title == NULL) {
+        mitilog_error_set(reason, MITILOG_ERROR_MEMORY, "out of memory");
+    } else if (retain(ingest, object, source, record.sop_instance_uid, reason) != MITILOG_OK) {
+        log_error("object %s: cannot keep its copy: %s", record.sop_instance_uid, reason->text);
+    } else if (store_put_instance(ingest->store, &record, &put, reason) != MITILOG_OK) {
+        log_error("object %s not stored: %s", record.sop_instance_uid, reason->text);
+    } else {
+        outcome = put == STORE_PUT_REPLACED ? INGEST_OUTCOME_REPLACED : INGEST_OUTCOME_STORED;
+        log_debug("object %s stored (%s)", record.sop_instance_uid,
+                  put == STORE_PUT_REPLACED ? "replaced" : "new");
+    }
+    dcm_object_free(object);
+    dcm_facts_free(&facts);
+    ext_record_free(&record);
+    if (source->is_spool)
+        unlink(source->path);
+    return outcome;
+}
+
+uint16_t ingest_store_handler(void *context, const dcm_received *object)
+{
+    ingest_source source = {object->spool_path,
+                            1,
+                            object->calling_ae_title ? object->calling_ae_title : "",
+                            object->peer_address ? object->peer_address : "",
+                            object->affected_sop_class_uid ? object->affected_sop_class_uid : "",
+                            object->affected_sop_instance_uid ? object->affected_sop_instance_uid
+                                                              : "",
+                            object->association_id};
+    mitilog_error reason;
+    switch (ingest_object(context, &source, &reason)) {
+    case INGEST_OUTCOME_STORED:
+    case INGEST_OUTCOME_REPLACED:
+        return DCM_STATUS_SUCCESS;
+    case INGEST_OUTCOME_REJECTED:
+        return DCM_STATUS_CANNOT_UNDERSTAND;
+    case INGEST_OUTCOME_NOT_STORED:
+        break;
+    }
+    return DCM_STATUS_OUT_OF_RESOURCES;
+}

@@ -1,0 +1,56 @@
+/*
+ * ingest.h - one object through the pipeline: read (dicom shim), extract
+ * (ext), keep a copy per the retention setting, commit (store), and decide
+ * the DIMSE status. Used by `serve` (network objects arriving in the spool
+ * folder) and by `import` (files and folders).
+ *
+ * Owns the data folder layout: spool/, quarantine/, headers/, objects/,
+ * each file named from a SHA-256, never from header text. The store is
+ * borrowed (it must outlive the ingest). ingest_create() gives an ingest
+ * freed by ingest_free(). Thread-safe: network threads call it at once.
+ */
+#ifndef MITILOG_INGEST_H
+#define MITILOG_INGEST_H
+
+#include <stdint.h>
+
+#include "config/config.h"
+#include "dicom/dcm.h"
+#include "store/store.h"
+#include "util/status.h"
+
+typedef struct ingest ingest;
+
+typedef enum ingest_outcome {
+    INGEST_OUTCOME_STORED = 0,
+    INGEST_OUTCOME_REPLACED,   /* same SOP Instance UID stored before     */
+    INGEST_OUTCOME_REJECTED,   /* cannot be understood: quarantined       */
+    INGEST_OUTCOME_NOT_STORED  /* database or disk failure: retry later   */
+} ingest_outcome;
+
+typedef struct ingest_source {
+    const char *path;
+    int is_spool;                 /* 1: ours to move or delete           */
+    const char *calling_ae_title; /* "" for imports                      */
+    const char *peer_address;     /* "" for imports                      */
+    const char *announced_sop_class_uid;    /* C-STORE command, or ""    */
+    const char *announced_sop_instance_uid;
+    unsigned long association_id; /* 0 for imports                       */
+} ingest_source;
+
+/* Creates the data folders (mode 0750) from the configuration. */
+mitilog_status ingest_create(const config *config, store *store, ingest **out,
+                             mitilog_error *error);
+void ingest_free(ingest *ingest);
+
+const char *ingest_spool_directory(const ingest *ingest);
+
+/* Runs one object through the pipeline. reason receives the cause of a
+ * rejection or failure (it is also logged). */
+ingest_outcome ingest_object(ingest *ingest, const ingest_source *source,
+                             mitilog_error *reason);
+
+/* dcm_store_handler for the receiver: context is the ingest. */
+uint16_t ingest_store_handler(void *context, const dcm_received *object);
+
+#endif

@@ -1,0 +1,123 @@
+/* Unit tests of the configuration: defaults, file values, relative paths,
+ * and errors that name file, line and key. */
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include <cmocka.h>
+
+#include "config/config.h"
+#include "config/config_peers.h"
+
+static char folder[] = "/tmp/mitilog-config-XXXXXX";
+
+static const char *write_config(const char *name, const char *text)
+{
+    static char path[512];
+    snprintf(path, sizeof path, "%s/%s", folder, name);
+    FILE *file = fopen(path, "w");
+    assert_non_null(file);
+    fputs(text, file);
+    fclose(file);
+    return path;
+}
+
+/* Defaults documented in conf/mitilog.ini and docs/configuration.md;
+ * 11112 is the port the issue and DICOM practice use (common practice). */
+static void defaults(void **state)
+{
+    (void)state;
+    config config;
+    assert_int_equal(config_set_defaults(&config, NULL), MITILOG_OK);
+    assert_string_equal(config.ae_title, "MITILOG");
+    assert_int_equal(config.port, 11112);
+    assert_string_equal(config.http_address, "127.0.0.1");
+    assert_int_equal(config.http_port, 8080);
+    assert_string_equal(config.retention, "header");
+    config_free(&config);
+}
+
+static void values_and_paths(void **state)
+{
+    (void)state;
+    const char *path = write_config("good.ini", "[dicom]\n"
+                                                "ae_title = AUDIT1\n"
+                                                "port = 4242 ; inline comment\n"
+                                                "allowed_calling_ae_titles = ROOM1, ROOM2@127.0.0.1\n"
+                                                "[storage]\n"
+                                                "data_directory = data\n"
+                                                "retention = none\n");
+    config config;
+    mitilog_error error;
+    assert_int_equal(config_load(path, &config, &error), MITILOG_OK);
+    assert_string_equal(config.ae_title, "AUDIT1");
+    assert_int_equal(config.port, 4242);
+    char expected[600];
+    snprintf(expected, sizeof expected, "%s/data", folder);
+    assert_string_equal(config.data_directory, expected);
+    snprintf(expected, sizeof expected, "%s/data/mitilog.sqlite3", folder);
+    assert_string_equal(config.database_path, expected);
+    assert_string_equal(config.retention, "none");
+
+    config_peer *peers = NULL;
+    size_t count = 0;
+    assert_int_equal(config_peers_parse(config.allowed_calling_ae_titles, &peers, &count, &error),
+                     MITILOG_OK);
+    assert_int_equal(count, 2);
+    assert_string_equal(peers[0].ae_title, "ROOM1");
+    assert_string_equal(peers[0].address, "");
+    assert_string_equal(peers[1].ae_title, "ROOM2");
+    assert_string_equal(peers[1].address, "127.0.0.1");
+    free(peers);
+    config_free(&config);
+}
+
+static void assert_load_error(const char *text, const char *expected_fragment)
+{
+    const char *path = write_config("bad.ini", text);
+    config config;
+    mitilog_error error;
+    assert_int_not_equal(config_load(path, &config, &error), MITILOG_OK);
+    if (strstr(error.text, expected_fragment) == NULL)
+        fail_msg("error '%s' does not contain '%s'", error.text, expected_fragment);
+    config_free(&config);
+}
+
+static void errors_name_file_line_and_key(void **state)
+{
+    (void)state;
+    assert_load_error("[dicom]\nport = 70000\n", "bad.ini:2: [dicom] port: 70000 is outside");
+    assert_load_error("[dicom]\n\nport = eleven\n", "bad.ini:3: [dicom] port: 'eleven' is not");
+    assert_load_error("[storage]\nretention = some\n", "bad.ini:2: [storage] retention:");
+    assert_load_error("[dicom]\ncolour = blue\n", "bad.ini:2: [dicom] colour: unknown key");
+    assert_load_error("[dicom]\nae_title = ABCDEFGHIJKLMNOPQ\n", "bad.ini:2: [dicom] ae_title");
+    assert_load_error("[dicom]\nallowed_calling_ae_titles = A@999.1.1.1\n",
+                      "bad.ini:2: [dicom] allowed_calling_ae_titles");
+    assert_load_error("[dicom]\nport = 8080\n", "bad.ini: [http] port (default)");
+    assert_load_error("[dicom\nport = 1\n", "bad.ini:1: syntax error");
+}
+
+static int remove_folder(void **state)
+{
+    (void)state;
+    char command[600];
+    snprintf(command, sizeof command, "rm -rf '%s'", folder);
+    return system(command);
+}
+
+int main(void)
+{
+    if (mkdtemp(folder) == NULL)
+        return 1;
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(defaults),
+        cmocka_unit_test(values_and_paths),
+        cmocka_unit_test(errors_name_file_line_and_key),
+    };
+    return cmocka_run_group_tests(tests, NULL, remove_folder);
+}
