@@ -13,4 +13,7 @@ int cli_wants_help(int argc, char **argv);
  * level; on failure prints the reason and returns -1. */
 int cli_load_config(const char *path, config *config);
 
+/* Creates the data folder and the database's folder (mode 0750). */
+int cli_prepare_data_directory(const config *config, mitilog_error *error);
+
 #endif

@@ -87,6 +87,7 @@ int command_import(int argc, char **argv)
     import_totals totals = {0, 0, 0, 0};
     int status = EXIT_STATUS_FAILURE;
     if (dcm_initialise(LOG_LEVEL_WARNING, &error) != MITILOG_OK ||
+        cli_prepare_data_directory(&config, &error) != 0 ||
         store_open(config.database_path, (int)config.busy_timeout_ms, &store, &error) !=
             MITILOG_OK ||
         ingest_create(&config, store, &pipeline, &error) != MITILOG_OK) {

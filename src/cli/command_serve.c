@@ -54,6 +54,8 @@ static void serve_stop(serve_state *state)
 static int serve_start(serve_state *state, mitilog_error *error)
 {
     const config *config = &state->config;
+    if (cli_prepare_data_directory(config, error) != 0)
+        return -1;
     if (store_open(config->database_path, (int)config->busy_timeout_ms, &state->store, error) !=
         MITILOG_OK)
         return -1;

@@ -170,7 +170,7 @@ static int config_validate(const config *config, char *reason, size_t reason_siz
         MITILOG_OK) {
         *section = "dicom";
         *key = "allowed_calling_ae_titles";
-        snprintf(reason, reason_size, "%s", peer_error.text);
+        snprintf(reason, reason_size, "%.200s", peer_error.text);
         return -1;
     }
     free(peers);

@@ -276,6 +276,55 @@ mitilog_status dcm_builder_save(dcm_builder *builder, const char *path,
                                 const char *transfer_syntax_uid,
                                 mitilog_error *error);
 
+/* ------------------------------------------------------------------ */
+/* Building structured reports (the simulator)                         */
+/* ------------------------------------------------------------------ */
+
+/* One content item to build, in document order (depth-first pre-order).
+ * depth 0 is the root CONTAINER (exactly one, first); an item at depth
+ * d+1 is a child of the last item at depth d. Strings are borrowed; NULL
+ * where not used. */
+typedef struct dcm_sr_build_item {
+    unsigned depth;
+    const char *value_type;      /* "CONTAINER", "NUM", "CODE", "TEXT" */
+    const char *relationship;    /* "CONTAINS", "HAS PROPERTIES", ...;
+                                  * ignored for the root */
+    const char *concept_scheme;  /* concept name code triple */
+    const char *concept_code;
+    const char *concept_meaning;
+    const char *numeric_value;   /* NUM: DS string */
+    const char *unit_scheme;     /* NUM: measurement units, e.g. "UCUM" */
+    const char *unit_code;
+    const char *unit_meaning;
+    const char *code_scheme;     /* CODE: the coded value */
+    const char *code_value;
+    const char *code_meaning;
+    const char *text_value;      /* TEXT */
+} dcm_sr_build_item;
+
+/* A coding scheme to list in Coding Scheme Identification (0008,0110),
+ * e.g. a private '99' scheme. Strings borrowed; name/organisation may be
+ * NULL. */
+typedef struct dcm_sr_coding_scheme {
+    const char *designator;
+    const char *name;
+    const char *responsible_organization;
+} dcm_sr_coding_scheme;
+
+/* Builds a Comprehensive SR content tree with DCMTK's dcmsr and puts its
+ * document-level attributes into the builder's top-level dataset: SOP
+ * Class UID (Comprehensive SR), Modality SR, Value Type, Concept Name Code
+ * Sequence, Continuity Of Content, Content Sequence, Completion and
+ * Verification Flags, Performed Procedure Code Sequence, Coding Scheme
+ * Identification Sequence, and an empty Referenced Performed Procedure
+ * Step Sequence (Type 2) unless dcmsr wrote one. Nothing time- or UID-dependent is copied from
+ * dcmsr: the caller puts SOP Instance, Study and Series UIDs, dates and
+ * times, patient and equipment attributes itself, like for an image. */
+mitilog_status dcm_builder_put_sr_content(
+    dcm_builder *builder, const dcm_sr_build_item *items, size_t item_count,
+    const dcm_sr_coding_scheme *schemes, size_t scheme_count,
+    mitilog_error *error);
+
 #ifdef __cplusplus
 }
 #endif

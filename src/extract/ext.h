@@ -112,6 +112,8 @@ typedef struct ext_record {
     int is_ultrasound;             /* modality US or an US SOP class */
     ext_number indices[EXT_INDEX_COUNT];
     char *index_raw[EXT_INDEX_COUNT]; /* raw text as sent, NULL if absent */
+
+    int text_replaced;   /* some text was not UTF-8: bad bytes became U+FFFD */
 } ext_record;
 
 /* Builds the record. Fails (MITILOG_ERROR_INVALID) only when the object

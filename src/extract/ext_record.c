@@ -3,6 +3,7 @@
 #include <string.h>
 
 #include "extract/ext.h"
+#include "extract/ext_text.h"
 
 /* The attribute carrying each displayed index, in ext_index order. */
 static const dcm_attribute index_attributes[EXT_INDEX_COUNT] = {
@@ -34,7 +35,7 @@ int ext_is_ultrasound_sop_class(const char *sop_class_uid)
 
 /* Copy without the leading and trailing spaces that DICOM pads with
  * (insignificant for SH, LO, CS, UI per PS3.5 6.2); NULL stays NULL. */
-static char *trimmed_duplicate(const char *raw, int *failed)
+static char *trimmed_duplicate(const char *raw, int *failed, int *replaced)
 {
     if (raw == NULL)
         return NULL;
@@ -50,14 +51,21 @@ static char *trimmed_duplicate(const char *raw, int *failed)
     }
     memcpy(copy, raw, length);
     copy[length] = '\0';
+    if (!ext_text_is_utf8(copy)) {
+        char *repaired = ext_text_to_utf8(copy, replaced);
+        free(copy);
+        if (repaired == NULL)
+            *failed = 1;
+        return repaired;
+    }
     return copy;
 }
 
-static char *exact_duplicate(const char *raw, int *failed)
+static char *exact_duplicate(const char *raw, int *failed, int *replaced)
 {
     if (raw == NULL)
         return NULL;
-    char *copy = strdup(raw);
+    char *copy = ext_text_to_utf8(raw, replaced);
     if (copy == NULL)
         *failed = 1;
     return copy;
@@ -69,8 +77,8 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
     memset(record, 0, sizeof *record);
     const char *const *values = (const char *const *)facts->values;
     int failed = 0;
-    record->sop_class_uid = trimmed_duplicate(values[DCM_ATTRIBUTE_SOP_CLASS_UID], &failed);
-    record->sop_instance_uid = trimmed_duplicate(values[DCM_ATTRIBUTE_SOP_INSTANCE_UID], &failed);
+    record->sop_class_uid = trimmed_duplicate(values[DCM_ATTRIBUTE_SOP_CLASS_UID], &failed, &record->text_replaced);
+    record->sop_instance_uid = trimmed_duplicate(values[DCM_ATTRIBUTE_SOP_INSTANCE_UID], &failed, &record->text_replaced);
     if (!failed && (record->sop_instance_uid == NULL || record->sop_instance_uid[0] == '\0')) {
         ext_record_free(record);
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no SOP Instance UID (0008,0018)");
@@ -80,16 +88,16 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no SOP Class UID (0008,0016)");
     }
     record->study_instance_uid =
-        trimmed_duplicate(values[DCM_ATTRIBUTE_STUDY_INSTANCE_UID], &failed);
+        trimmed_duplicate(values[DCM_ATTRIBUTE_STUDY_INSTANCE_UID], &failed, &record->text_replaced);
     record->series_instance_uid =
-        trimmed_duplicate(values[DCM_ATTRIBUTE_SERIES_INSTANCE_UID], &failed);
-    record->modality = trimmed_duplicate(values[DCM_ATTRIBUTE_MODALITY], &failed);
-    record->station_name = trimmed_duplicate(values[DCM_ATTRIBUTE_STATION_NAME], &failed);
+        trimmed_duplicate(values[DCM_ATTRIBUTE_SERIES_INSTANCE_UID], &failed, &record->text_replaced);
+    record->modality = trimmed_duplicate(values[DCM_ATTRIBUTE_MODALITY], &failed, &record->text_replaced);
+    record->station_name = trimmed_duplicate(values[DCM_ATTRIBUTE_STATION_NAME], &failed, &record->text_replaced);
     record->institutional_department_name =
-        trimmed_duplicate(values[DCM_ATTRIBUTE_INSTITUTIONAL_DEPARTMENT_NAME], &failed);
-    record->study_description = trimmed_duplicate(values[DCM_ATTRIBUTE_STUDY_DESCRIPTION], &failed);
-    record->protocol_name = trimmed_duplicate(values[DCM_ATTRIBUTE_PROTOCOL_NAME], &failed);
-    record->transfer_syntax_uid = trimmed_duplicate(facts->transfer_syntax_uid, &failed);
+        trimmed_duplicate(values[DCM_ATTRIBUTE_INSTITUTIONAL_DEPARTMENT_NAME], &failed, &record->text_replaced);
+    record->study_description = trimmed_duplicate(values[DCM_ATTRIBUTE_STUDY_DESCRIPTION], &failed, &record->text_replaced);
+    record->protocol_name = trimmed_duplicate(values[DCM_ATTRIBUTE_PROTOCOL_NAME], &failed, &record->text_replaced);
+    record->transfer_syntax_uid = trimmed_duplicate(facts->transfer_syntax_uid, &failed, &record->text_replaced);
 
     record->acquired_at_source = ext_acquisition_time(facts, record->acquired_at);
     record->number_of_frames = ext_parse_integer_string(values[DCM_ATTRIBUTE_NUMBER_OF_FRAMES]);
@@ -100,7 +108,7 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
     for (int i = 0; i < EXT_INDEX_COUNT; i++) {
         const char *raw = record->is_ultrasound ? values[index_attributes[i]] : NULL;
         record->indices[i] = ext_parse_decimal_string(raw);
-        record->index_raw[i] = exact_duplicate(raw, &failed);
+        record->index_raw[i] = exact_duplicate(raw, &failed, &record->text_replaced);
     }
     if (failed) {
         ext_record_free(record);

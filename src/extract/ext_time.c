@@ -100,7 +100,13 @@ static int parse_offset(const char *text, char out[7])
     if (read_digits(&digits, 2, &hours) || read_digits(&digits, 2, &minutes) || hours > 14 ||
         minutes > 59)
         return -1;
-    snprintf(out, 7, "%c%02d:%02d", text[0], hours, minutes);
+    out[0] = text[0];
+    out[1] = text[1];
+    out[2] = text[2];
+    out[3] = ':';
+    out[4] = text[3];
+    out[5] = text[4];
+    out[6] = '\0';
     return 0;
 }
 

@@ -1,0 +1,105 @@
+#!/usr/bin/env bash
+# The one-command demo: installs what is needed, builds build/mitilog,
+# starts `mitilog serve` with its embedded SQLite database under
+# demo-data/, feeds it four weeks of a fictional department's ultrasound
+# traffic over DICOM (DCMTK's storescu, the real network path), prints
+# where to look, and keeps the daemon running until Ctrl-C.
+#
+# Running it again: a daemon left by an earlier run is stopped, the
+# database is kept, and the same simulated traffic (same seed, same SOP
+# Instance UIDs) is sent again, so rows are replaced, never duplicated.
+# A port taken by another program is skipped for the next free one.
+#
+# Environment: DEMO_DAYS (default 28), DEMO_SEED (default 2026),
+# DEMO_SPEED (0 = as fast as possible; N = N times real time).
+set -euo pipefail
+cd "$(dirname "$0")/.."
+root=$PWD
+days=${DEMO_DAYS:-28}
+seed=${DEMO_SEED:-2026}
+speed=${DEMO_SPEED:-0}
+
+bash deploy/install-dependencies.sh
+cmake -S . -B build -DCMAKE_BUILD_TYPE=RelWithDebInfo -DMITILOG_TESTS=OFF >/dev/null
+cmake --build build -j"$(nproc)"
+
+data=$root/demo-data
+mkdir -p "$data"
+if [ -f "$data/serve.pid" ]; then
+    old=$(cat "$data/serve.pid")
+    if kill -0 "$old" 2>/dev/null && grep -q mitilog "/proc/$old/cmdline" 2>/dev/null; then
+        echo "demo: stopping the daemon of an earlier run (pid $old)"
+        kill -TERM "$old"
+        for _ in $(seq 1 100); do kill -0 "$old" 2>/dev/null || break; sleep 0.1; done
+    fi
+    rm -f "$data/serve.pid"
+fi
+
+port_in_use() { (exec 3<>"/dev/tcp/127.0.0.1/$1") 2>/dev/null; }
+free_port() {
+    local port=$1
+    while port_in_use "$port"; do port=$((port + 1)); done
+    echo "$port"
+}
+dicom_port=$(free_port 11112)
+http_port=$(free_port 8080)
+[ "$http_port" = "$dicom_port" ] && http_port=$(free_port $((dicom_port + 1)))
+[ "$dicom_port" = 11112 ] || echo "demo: port 11112 is taken; DICOM uses $dicom_port"
+[ "$http_port" = 8080 ] || echo "demo: port 8080 is taken; HTTP uses $http_port"
+
+cat > "$data/mitilog.ini" <<INI
+; Written by deploy/demo.sh for the demo; conf/mitilog.ini documents every key.
+[dicom]
+ae_title = MITILOG
+port = $dicom_port
+[http]
+address = 127.0.0.1
+port = $http_port
+web_root = $root/web
+[storage]
+data_directory = $data/var
+retention = header
+[log]
+level = info
+INI
+build/mitilog check-config "$data/mitilog.ini" >/dev/null
+
+build/mitilog serve --config "$data/mitilog.ini" 2>>"$data/serve.log" &
+pid=$!
+echo "$pid" > "$data/serve.pid"
+stop() {
+    trap - INT TERM EXIT
+    if kill -0 "$pid" 2>/dev/null; then
+        echo; echo "demo: stopping the daemon"
+        kill -TERM "$pid"; wait "$pid" || true
+    fi
+    rm -f "$data/serve.pid"
+}
+trap stop INT TERM EXIT
+
+export TCP_NODELAY=1
+for _ in $(seq 1 100); do
+    echoscu -aec MITILOG 127.0.0.1 "$dicom_port" 2>/dev/null && break
+    kill -0 "$pid" 2>/dev/null || { echo "demo: the daemon did not start; see $data/serve.log"; exit 1; }
+    sleep 0.1
+done
+
+echo "demo: sending $days days of simulated traffic (seed $seed) to 127.0.0.1:$dicom_port"
+build/mitilog simulate --days "$days" --seed "$seed" --out "$data/simulated" \
+    --send "127.0.0.1:$dicom_port" --aet SIMULATOR --called-aet MITILOG --speed "$speed"
+
+cat <<TEXT
+
+mitilog is running.
+  HTTP:   http://127.0.0.1:$http_port/          (health: /healthz)
+  API:    http://127.0.0.1:$http_port/api/v1/studies?from=2026-11-01&to=2026-12-31
+  DICOM:  AE MITILOG on port $dicom_port (echoscu -aec MITILOG 127.0.0.1 $dicom_port)
+  Data:   $data/var (SQLite: $data/var/mitilog.sqlite3)
+  Log:    $data/serve.log
+  What to look for in the simulated data: docs/demo.md
+
+mitilog advises; the department's safety policy, its physicist and local
+regulation decide. Press Ctrl-C to stop.
+TEXT
+curl -s "http://127.0.0.1:$http_port/healthz" && echo
+wait "$pid"

@@ -1,0 +1,51 @@
+#!/usr/bin/env bash
+# install-dependencies.sh - installs, from Debian 12's apt repositories,
+# everything mitilog needs to build, run and test. Idempotent: when every
+# package is already installed it says so and returns without touching apt.
+# Run as root (or as a user with sudo).
+set -euo pipefail
+
+packages=(
+  # build
+  build-essential cmake pkg-config g++
+  libdcmtk-dev libsqlite3-dev libmicrohttpd-dev libgnutls28-dev
+  libinih-dev libssl-dev zlib1g-dev
+  # unit tests
+  libcmocka-dev
+  # run and operate: DCMTK tools (storescu, echoscu, img2dcm), sqlite3 CLI,
+  # curl for the HTTP API, openssl for TLS certificates
+  dcmtk sqlite3 curl openssl
+  # integration tests: pydicom is the independent parser, Pillow makes the
+  # JPEG fixture, dicom3tools' dciodvfy checks the fixtures against the IODs
+  python3 python3-pydicom python3-pytest python3-pil dicom3tools
+  # dashboard tests (later): uncomment when the browser tests land.
+  # chromium nodejs npm
+)
+
+missing=()
+for package in "${packages[@]}"; do
+  status=$(dpkg-query -W -f='${db:Status-Status}' "$package" 2>/dev/null || true)
+  if [ "$status" != "installed" ]; then
+    missing+=("$package")
+  fi
+done
+
+if [ ${#missing[@]} -eq 0 ]; then
+  echo "install-dependencies: all ${#packages[@]} packages already installed, nothing to do"
+  exit 0
+fi
+
+if [ "$(id -u)" -eq 0 ]; then
+  as_root=()
+elif command -v sudo >/dev/null 2>&1; then
+  as_root=(sudo)
+else
+  echo "install-dependencies: missing packages (${missing[*]}) and not root, no sudo" >&2
+  exit 1
+fi
+
+echo "install-dependencies: installing ${missing[*]}"
+"${as_root[@]}" apt-get update
+"${as_root[@]}" env DEBIAN_FRONTEND=noninteractive \
+  apt-get install -y --no-install-recommends "${packages[@]}"
+echo "install-dependencies: done"

@@ -1,0 +1,62 @@
+-- Store one instance (store_put_instance). A re-sent SOP Instance UID
+-- updates the row in place: same id, replaced_count + 1, first_received_at
+-- kept. Returns replaced_count: 0 for a new row, > 0 for a replacement.
+-- An empty :received_at means "now" (UTC).
+INSERT INTO instances (
+    sop_instance_uid, sop_class_uid, study_instance_uid, series_instance_uid,
+    modality, station_name, institutional_department_name, study_description,
+    protocol_name, transfer_syntax_uid, calling_ae_title, source_path,
+    acquired_at, acquired_at_source, received_at, first_received_at,
+    number_of_frames, number_of_frames_status,
+    frame_time_ms, frame_time_ms_status, is_ultrasound,
+    mi, mi_status, mi_raw,
+    tis, tis_status, tis_raw,
+    tib, tib_status, tib_raw,
+    tic, tic_status, tic_raw,
+    tis_focus, tis_focus_status, tis_focus_raw,
+    tis_surface, tis_surface_status, tis_surface_raw)
+VALUES (
+    :sop_instance_uid, :sop_class_uid, :study_instance_uid, :series_instance_uid,
+    :modality, :station_name, :institutional_department_name, :study_description,
+    :protocol_name, :transfer_syntax_uid, :calling_ae_title, :source_path,
+    :acquired_at, :acquired_at_source,
+    coalesce(nullif(:received_at, ''), strftime('%Y-%m-%dT%H:%M:%fZ', 'now')),
+    coalesce(nullif(:received_at, ''), strftime('%Y-%m-%dT%H:%M:%fZ', 'now')),
+    :number_of_frames, :number_of_frames_status,
+    :frame_time_ms, :frame_time_ms_status, :is_ultrasound,
+    :mi, :mi_status, :mi_raw,
+    :tis, :tis_status, :tis_raw,
+    :tib, :tib_status, :tib_raw,
+    :tic, :tic_status, :tic_raw,
+    :tis_focus, :tis_focus_status, :tis_focus_raw,
+    :tis_surface, :tis_surface_status, :tis_surface_raw)
+ON CONFLICT (sop_instance_uid) DO UPDATE SET
+    sop_class_uid = excluded.sop_class_uid,
+    study_instance_uid = excluded.study_instance_uid,
+    series_instance_uid = excluded.series_instance_uid,
+    modality = excluded.modality,
+    station_name = excluded.station_name,
+    institutional_department_name = excluded.institutional_department_name,
+    study_description = excluded.study_description,
+    protocol_name = excluded.protocol_name,
+    transfer_syntax_uid = excluded.transfer_syntax_uid,
+    calling_ae_title = excluded.calling_ae_title,
+    source_path = excluded.source_path,
+    acquired_at = excluded.acquired_at,
+    acquired_at_source = excluded.acquired_at_source,
+    received_at = excluded.received_at,
+    replaced_count = instances.replaced_count + 1,
+    number_of_frames = excluded.number_of_frames,
+    number_of_frames_status = excluded.number_of_frames_status,
+    frame_time_ms = excluded.frame_time_ms,
+    frame_time_ms_status = excluded.frame_time_ms_status,
+    is_ultrasound = excluded.is_ultrasound,
+    mi = excluded.mi, mi_status = excluded.mi_status, mi_raw = excluded.mi_raw,
+    tis = excluded.tis, tis_status = excluded.tis_status, tis_raw = excluded.tis_raw,
+    tib = excluded.tib, tib_status = excluded.tib_status, tib_raw = excluded.tib_raw,
+    tic = excluded.tic, tic_status = excluded.tic_status, tic_raw = excluded.tic_raw,
+    tis_focus = excluded.tis_focus, tis_focus_status = excluded.tis_focus_status,
+    tis_focus_raw = excluded.tis_focus_raw,
+    tis_surface = excluded.tis_surface, tis_surface_status = excluded.tis_surface_status,
+    tis_surface_raw = excluded.tis_surface_raw
+RETURNING replaced_count;

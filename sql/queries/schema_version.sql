@@ -1,0 +1,2 @@
+-- The number of the last applied migration.
+PRAGMA user_version;

@@ -1,0 +1,2 @@
+-- Group commit: one write transaction per batch of queued records.
+BEGIN IMMEDIATE;

@@ -1,0 +1,2 @@
+-- Group commit: end of the batch; callers are told only after this.
+COMMIT;

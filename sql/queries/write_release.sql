@@ -1,0 +1,2 @@
+-- Group commit: keep the record's changes in the batch.
+RELEASE record;

@@ -1,0 +1,2 @@
+-- Group commit: undo the whole batch after a failed commit.
+ROLLBACK;

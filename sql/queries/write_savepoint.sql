@@ -1,0 +1,2 @@
+-- Group commit: one savepoint per record, so a bad record fails alone.
+SAVEPOINT record;

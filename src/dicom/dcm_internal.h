@@ -1,0 +1,44 @@
+/*
+ * dcm_internal.h - helpers shared by the C++ files of the DCMTK shim.
+ * C++ only; never included from C. Turns DCMTK conditions and C++
+ * exceptions into the mitilog result convention (util/status.h).
+ */
+#ifndef MITILOG_DCM_INTERNAL_H
+#define MITILOG_DCM_INTERNAL_H
+
+#ifndef __cplusplus
+#error "dcm_internal.h is C++ only"
+#endif
+
+#include "dcmtk/config/osconfig.h" /* must come first for DCMTK */
+#include "dcmtk/ofstd/ofcond.h"
+
+#include "dicom/dcm.h"
+
+/* Writes "<what>: <DCMTK condition text>" into error (the condition text
+ * lives only as long as the condition, so it is copied). Returns status. */
+mitilog_status dcm_error_from_condition(mitilog_error *error,
+                                        mitilog_status status,
+                                        const char *what,
+                                        const OFCondition &condition);
+
+/* Call only inside a catch block: classifies the exception in flight
+ * (std::bad_alloc -> MITILOG_ERROR_MEMORY, anything else -> status) and
+ * writes "<what>: <exception text>" into error. */
+mitilog_status dcm_error_from_exception(mitilog_error *error,
+                                        mitilog_status status,
+                                        const char *what);
+
+/* malloc'd copy of text (NULL text gives NULL); throws std::bad_alloc when
+ * the allocation fails so that callers can use one cleanup path. */
+char *dcm_string_copy(const char *text);
+char *dcm_string_copy_length(const char *text, size_t length);
+
+/* Catch-all for the C boundary: every exception becomes a status. */
+#define DCM_CATCH_ALL(error, status, what)                                 \
+    catch (...)                                                            \
+    {                                                                      \
+        return dcm_error_from_exception((error), (status), (what));        \
+    }
+
+#endif

@@ -1,0 +1,449 @@
+/*
+ * dcm_read.cc - reading DICOM files into plain C facts: raw attribute
+ * strings (converted to UTF-8 where DCMTK can), ultrasound regions, the
+ * transfer syntax, and the content tree of structured reports.
+ */
+#include "dicom/dcm_internal.h"
+
+#include "dcmtk/dcmdata/dcdatset.h"
+#include "dcmtk/dcmdata/dcdeftag.h"
+#include "dcmtk/dcmdata/dcfilefo.h"
+#include "dcmtk/dcmdata/dcmetinf.h"
+#include "dcmtk/dcmdata/dcspchrs.h"
+#include "dcmtk/dcmdata/dcxfer.h"
+#include "dcmtk/dcmsr/dsrdoc.h"
+
+extern "C" {
+#include "util/log.h"
+}
+
+#include <cerrno>
+#include <cstdlib>
+#include <cstring>
+#include <memory>
+#include <new>
+#include <string>
+#include <sys/stat.h>
+
+struct dcm_object {
+    DcmFileFormat file; /* large values are read lazily from path */
+    std::string path;
+};
+
+static const DcmTagKey dcm_attribute_tags[DCM_ATTRIBUTE_COUNT] = {
+#define DCM_ATTRIBUTE_TAG(name, group, element) DcmTagKey(group, element),
+    DCM_ATTRIBUTE_LIST(DCM_ATTRIBUTE_TAG)
+#undef DCM_ATTRIBUTE_TAG
+};
+
+/* SR storage SOP classes all live under this root [std: DICOM PS3.4
+ * B.5, e.g. Comprehensive SR 1.2.840.10008.5.1.4.1.1.88.33]. */
+static const char dcm_sr_class_root[] = "1.2.840.10008.5.1.4.1.1.88.";
+
+mitilog_status dcm_object_load(const char *path, dcm_object **out,
+                               mitilog_error *error)
+{
+    if (path == NULL || out == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "dcm_object_load: NULL argument");
+    *out = NULL;
+    struct stat status;
+    if (stat(path, &status) != 0)
+        return mitilog_error_set(error, MITILOG_ERROR_IO, "%s: %s", path,
+                                 strerror(errno));
+    /* A FIFO or device would block the reader: regular files only. */
+    if (!S_ISREG(status.st_mode))
+        return mitilog_error_set(error, MITILOG_ERROR_PARSE,
+                                 "%s: not a regular file", path);
+    if (status.st_size == 0)
+        return mitilog_error_set(error, MITILOG_ERROR_PARSE,
+                                 "%s: empty file, not DICOM", path);
+    try {
+        std::unique_ptr<dcm_object> object(new dcm_object);
+        object->path = path;
+        /* ERM_autoDetect: Part 10 with a meta header, else a bare
+         * dataset; values over DCM_MaxReadLength stay in the file. */
+        OFCondition condition =
+            object->file.loadFile(OFFilename(path), EXS_Unknown, EGL_noChange,
+                                  DCM_MaxReadLength, ERM_autoDetect);
+        if (condition.bad())
+            return dcm_error_from_condition(error, MITILOG_ERROR_PARSE, path,
+                                            condition);
+        if (object->file.getDataset() == NULL ||
+            object->file.getDataset()->card() == 0)
+            return mitilog_error_set(error, MITILOG_ERROR_PARSE,
+                                     "%s: no data elements, not DICOM", path);
+        *out = object.release();
+        return MITILOG_OK;
+    }
+    DCM_CATCH_ALL(error, MITILOG_ERROR_PARSE, "dcm_object_load")
+}
+
+void dcm_object_free(dcm_object *object)
+{
+    delete object;
+}
+
+/* ------------------------------------------------------------------ */
+/* Facts                                                               */
+/* ------------------------------------------------------------------ */
+
+/* The stored value: multi-valued joined by backslashes, padding kept.
+ * (findAndGetOFStringArray has no normalize flag in 3.6.7 and strips the
+ * padding, hence getOFStringArray(value, OFFalse) on the element.) */
+static mitilog_status dcm_read_raw_value(DcmItem &item, const DcmTagKey &tag,
+                                         char **out, mitilog_error *error)
+{
+    DcmElement *element = NULL;
+    if (item.findAndGetElement(tag, element).bad() || element == NULL)
+        return MITILOG_OK; /* absent: stays NULL */
+    OFString value;
+    OFCondition condition = element->getOFStringArray(value, OFFalse);
+    if (condition.bad() && element->getLength() != 0)
+        return dcm_error_from_condition(error, MITILOG_ERROR_PARSE,
+                                        DcmTag(tag).getTagName(), condition);
+    *out = dcm_string_copy_length(value.c_str(), value.length());
+    return MITILOG_OK;
+}
+
+static void dcm_read_regions(DcmItem &dataset, dcm_facts *facts)
+{
+    DcmSequenceOfItems *sequence = NULL;
+    if (dataset.findAndGetSequence(DCM_SequenceOfUltrasoundRegions, sequence)
+            .bad() ||
+        sequence == NULL || sequence->card() == 0)
+        return;
+    unsigned long count = sequence->card();
+    facts->regions =
+        static_cast<dcm_region *>(calloc(count, sizeof *facts->regions));
+    if (facts->regions == NULL)
+        throw std::bad_alloc();
+    facts->region_count = count;
+    for (unsigned long i = 0; i < count; i++) {
+        DcmItem *item = sequence->getItem(i);
+        dcm_region *region = &facts->regions[i];
+        Uint16 data_type = 0;
+        Uint32 value = 0;
+        if (item == NULL)
+            continue;
+        if (item->findAndGetUint16(DCM_RegionDataType, data_type).good()) {
+            region->has_region_data_type = 1;
+            region->region_data_type = data_type;
+        }
+        if (item->findAndGetUint32(DCM_TransducerFrequency, value).good()) {
+            region->has_transducer_frequency = 1;
+            region->transducer_frequency_khz = value;
+        }
+        if (item->findAndGetUint32(DCM_PulseRepetitionFrequency, value)
+                .good()) {
+            region->has_pulse_repetition_frequency = 1;
+            region->pulse_repetition_frequency_hz = value;
+        }
+    }
+}
+
+static char *dcm_copy_ofstring(const OFString &text)
+{
+    return dcm_string_copy_length(text.c_str(), text.length());
+}
+
+static char *dcm_copy_term(const char *text)
+{
+    return dcm_string_copy(text != NULL ? text : "");
+}
+
+static void dcm_sr_fill_item(DSRDocumentTree &tree, unsigned depth,
+                             dcm_sr_item *out)
+{
+    DSRContentItem &item = tree.getCurrentContentItem();
+    OFString position;
+    out->depth = depth;
+    out->node_id = tree.getNodeID();
+    out->position = dcm_copy_ofstring(tree.getPosition(position));
+    out->value_type =
+        dcm_copy_term(DSRTypes::valueTypeToDefinedTerm(item.getValueType()));
+    out->relationship =
+        item.getRelationshipType() == DSRTypes::RT_isRoot
+            ? dcm_string_copy("")
+            : dcm_copy_term(DSRTypes::relationshipTypeToDefinedTerm(
+                  item.getRelationshipType()));
+    const DSRCodedEntryValue &concept_name = item.getConceptName();
+    out->concept_scheme =
+        dcm_copy_ofstring(concept_name.getCodingSchemeDesignator());
+    out->concept_code = dcm_copy_ofstring(concept_name.getCodeValue());
+    out->concept_meaning = dcm_copy_ofstring(concept_name.getCodeMeaning());
+    const DSRNumericMeasurementValue *numeric = item.getNumericValuePtr();
+    const DSRCodedEntryValue *unit =
+        numeric != NULL ? &numeric->getMeasurementUnit() : NULL;
+    out->numeric_value =
+        dcm_copy_ofstring(numeric ? numeric->getNumericValue() : "");
+    out->unit_scheme =
+        dcm_copy_ofstring(unit ? unit->getCodingSchemeDesignator() : "");
+    out->unit_code = dcm_copy_ofstring(unit ? unit->getCodeValue() : "");
+    out->unit_meaning = dcm_copy_ofstring(unit ? unit->getCodeMeaning() : "");
+    const DSRCodedEntryValue *code = item.getCodeValuePtr();
+    out->code_scheme =
+        dcm_copy_ofstring(code ? code->getCodingSchemeDesignator() : "");
+    out->code_value = dcm_copy_ofstring(code ? code->getCodeValue() : "");
+    out->code_meaning = dcm_copy_ofstring(code ? code->getCodeMeaning() : "");
+    out->text_value = dcm_copy_ofstring(item.getStringValue());
+}
+
+static dcm_sr_item *dcm_sr_append(dcm_facts *facts, size_t *capacity)
+{
+    if (facts->sr_item_count == *capacity) {
+        size_t grown = *capacity == 0 ? 16 : *capacity * 2;
+        void *items = realloc(facts->sr_items, grown * sizeof *facts->sr_items);
+        if (items == NULL)
+            throw std::bad_alloc();
+        facts->sr_items = static_cast<dcm_sr_item *>(items);
+        *capacity = grown;
+    }
+    dcm_sr_item *item = &facts->sr_items[facts->sr_item_count++];
+    memset(item, 0, sizeof *item);
+    return item;
+}
+
+/* Depth-first pre-order; children of items at depth == limit are
+ * skipped and flagged. Items are counted before they are filled so that
+ * dcm_facts_free() cleans up a half-filled one. */
+static void dcm_sr_walk(DSRDocumentTree &tree, unsigned depth_limit,
+                        dcm_facts *facts)
+{
+    size_t capacity = 0;
+    if (tree.gotoRoot() == 0)
+        return;
+    for (;;) {
+        unsigned depth = static_cast<unsigned>(tree.getLevel() - 1);
+        dcm_sr_fill_item(tree, depth, dcm_sr_append(facts, &capacity));
+        /* getNode() is protected: probe for children by going down. */
+        if (tree.goDown() != 0) {
+            if (depth < depth_limit)
+                continue;
+            tree.goUp();
+            facts->sr_truncated = 1;
+        }
+        while (tree.gotoNext() == 0)
+            if (tree.goUp() == 0)
+                return;
+    }
+}
+
+/* With input data correction off (dcm_initialise), UI values keep their
+ * NUL padding and DSRDocument::read() rejects them as invalid ("violates
+ * VR definition"): trim every UID of the private copy the SR is read
+ * from. */
+static void dcm_trim_uids(DcmDataset &dataset)
+{
+    DcmStack stack;
+    while (dataset.nextObject(stack, OFTrue).good()) {
+        DcmObject *object = stack.top();
+        if (object->ident() != EVR_UI)
+            continue;
+        DcmElement *element = static_cast<DcmElement *>(object);
+        OFString value;
+        if (element->getOFStringArray(value, OFTrue).good())
+            element->putOFStringArray(value);
+    }
+}
+
+/* dataset is a private copy (it is modified). */
+static void dcm_read_structured_report(DcmDataset &dataset,
+                                       unsigned depth_limit,
+                                       const char *sop_instance_uid,
+                                       dcm_facts *facts)
+{
+    dcm_trim_uids(dataset);
+    DSRDocument document;
+    OFCondition condition =
+        document.read(dataset, DSRTypes::RF_ignoreRelationshipConstraints |
+                                   DSRTypes::RF_acceptUnknownRelationshipType |
+                                   DSRTypes::RF_skipInvalidContentItems);
+    if (condition.bad()) {
+        log_warning("SR %s: content tree not readable, no SR items: %s",
+                    sop_instance_uid, condition.text());
+        return;
+    }
+    dcm_sr_walk(document.getTree(), depth_limit, facts);
+}
+
+/* A UTF-8 copy of the dataset, or NULL when DCMTK cannot convert it (no
+ * converter built in, unknown or broken character set). */
+static DcmDataset *dcm_utf8_copy(DcmDataset &original,
+                                 const char *sop_instance_uid)
+{
+    if (!DcmSpecificCharacterSet::isConversionAvailable())
+        return NULL;
+    std::unique_ptr<DcmDataset> copy(new DcmDataset(original));
+    OFCondition condition = copy->convertToUTF8();
+    if (condition.bad()) {
+        log_warning("object %s: character set not converted to UTF-8, "
+                    "keeping the raw bytes: %s",
+                    sop_instance_uid, condition.text());
+        return NULL;
+    }
+    return copy.release();
+}
+
+static void dcm_read_transfer_syntax(DcmFileFormat &file, dcm_facts *facts)
+{
+    OFString uid;
+    DcmMetaInfo *meta = file.getMetaInfo();
+    if (meta != NULL &&
+        meta->findAndGetOFString(DCM_TransferSyntaxUID, uid).good() &&
+        !uid.empty()) {
+        facts->transfer_syntax_uid = dcm_copy_ofstring(uid);
+        return;
+    }
+    E_TransferSyntax xfer = file.getDataset()->getOriginalXfer();
+    if (xfer != EXS_Unknown)
+        facts->transfer_syntax_uid = dcm_string_copy(DcmXfer(xfer).getXferID());
+}
+
+mitilog_status dcm_object_facts(dcm_object *object, unsigned sr_depth_limit,
+                                dcm_facts *facts, mitilog_error *error)
+{
+    if (object == NULL || facts == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "dcm_object_facts: NULL argument");
+    memset(facts, 0, sizeof *facts);
+    try {
+        DcmDataset &original = *object->file.getDataset();
+        OFString sop_instance_uid, sop_class_uid;
+        original.findAndGetOFString(DCM_SOPInstanceUID, sop_instance_uid);
+        original.findAndGetOFString(DCM_SOPClassUID, sop_class_uid);
+
+        std::unique_ptr<DcmDataset> utf8(
+            dcm_utf8_copy(original, sop_instance_uid.c_str()));
+        facts->character_set_converted = utf8 != NULL;
+        DcmDataset &dataset = utf8 ? *utf8 : original;
+
+        for (int a = 0; a < DCM_ATTRIBUTE_COUNT; a++) {
+            /* The character set as sent, not the ISO_IR 192 of the copy. */
+            DcmDataset &source =
+                a == DCM_ATTRIBUTE_SPECIFIC_CHARACTER_SET ? original : dataset;
+            mitilog_status status = dcm_read_raw_value(
+                source, dcm_attribute_tags[a], &facts->values[a], error);
+            if (status != MITILOG_OK) {
+                dcm_facts_free(facts);
+                return status;
+            }
+        }
+        dcm_read_transfer_syntax(object->file, facts);
+        dcm_read_regions(dataset, facts);
+        facts->is_structured_report =
+            sop_class_uid.compare(0, sizeof dcm_sr_class_root - 1,
+                                  dcm_sr_class_root) == 0;
+        if (facts->is_structured_report) {
+            if (!utf8)
+                utf8.reset(new DcmDataset(original));
+            dcm_read_structured_report(*utf8, sr_depth_limit,
+                                       sop_instance_uid.c_str(), facts);
+        }
+        return MITILOG_OK;
+    } catch (...) {
+        dcm_facts_free(facts);
+        return dcm_error_from_exception(error, MITILOG_ERROR_PARSE,
+                                        "dcm_object_facts");
+    }
+}
+
+static void dcm_sr_item_free(dcm_sr_item *item)
+{
+    char **strings[] = {
+        &item->position,       &item->value_type,   &item->relationship,
+        &item->concept_scheme, &item->concept_code, &item->concept_meaning,
+        &item->numeric_value,  &item->unit_scheme,  &item->unit_code,
+        &item->unit_meaning,   &item->code_scheme,  &item->code_value,
+        &item->code_meaning,   &item->text_value,
+    };
+    for (size_t i = 0; i < sizeof strings / sizeof strings[0]; i++) {
+        free(*strings[i]);
+        *strings[i] = NULL;
+    }
+}
+
+void dcm_facts_free(dcm_facts *facts)
+{
+    if (facts == NULL)
+        return;
+    for (int a = 0; a < DCM_ATTRIBUTE_COUNT; a++)
+        free(facts->values[a]);
+    free(facts->transfer_syntax_uid);
+    free(facts->regions);
+    for (size_t i = 0; i < facts->sr_item_count; i++)
+        dcm_sr_item_free(&facts->sr_items[i]);
+    free(facts->sr_items);
+    memset(facts, 0, sizeof *facts);
+}
+
+/* ------------------------------------------------------------------ */
+/* Header copies                                                       */
+/* ------------------------------------------------------------------ */
+
+enum { DCM_BULK_LIMIT = 64 * 1024 };
+
+/* Removes Pixel Data at the top level, and any non-sequence element over
+ * 64 KiB at any depth (float pixel data, waveform data, ...). With
+ * every_pixel_data, also each remaining Pixel Data (icons) at any depth. */
+static void dcm_remove_bulk(DcmDataset &dataset, E_TransferSyntax xfer,
+                            bool every_pixel_data)
+{
+    DcmStack stack;
+    OFList<DcmObject *> doomed;
+    OFList<DcmItem *> parents;
+    while (dataset.nextObject(stack, OFTrue).good()) {
+        DcmObject *object = stack.top();
+        DcmObject *parent = stack.card() > 1 ? stack.elem(1) : NULL;
+        DcmEVR vr = object->ident();
+        if (parent == NULL || vr == EVR_SQ || vr == EVR_item ||
+            vr == EVR_pixelSQ || vr == EVR_pixelItem)
+            continue;
+        if (parent->ident() != EVR_dataset && parent->ident() != EVR_item)
+            continue; /* fragments of an encapsulated pixel sequence */
+        bool pixel_data = object->getTag() == DCM_PixelData;
+        bool top_level = parent == &dataset;
+        if ((pixel_data && (top_level || every_pixel_data)) ||
+            object->getLength(xfer, EET_ExplicitLength) > DCM_BULK_LIMIT) {
+            doomed.push_back(object);
+            parents.push_back(static_cast<DcmItem *>(parent));
+        }
+    }
+    OFListIterator(DcmObject *) object = doomed.begin();
+    OFListIterator(DcmItem *) parent = parents.begin();
+    for (; object != doomed.end(); ++object, ++parent)
+        delete (*parent)->remove(*object);
+}
+
+mitilog_status dcm_object_save_header(dcm_object *object, const char *path,
+                                      mitilog_error *error)
+{
+    if (object == NULL || path == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "dcm_object_save_header: NULL argument");
+    try {
+        /* Work on a copy: the loaded object stays usable. */
+        DcmFileFormat copy(object->file);
+        DcmDataset &dataset = *copy.getDataset();
+        E_TransferSyntax original =
+            object->file.getDataset()->getOriginalXfer();
+        if (original == EXS_Unknown)
+            original = EXS_LittleEndianExplicit;
+        dcm_remove_bulk(dataset, original, false);
+        E_TransferSyntax xfer = original;
+        if (!dataset.canWriteXfer(xfer, original)) {
+            /* e.g. an encapsulated icon left in a compressed object. */
+            xfer = EXS_LittleEndianExplicit;
+            if (!dataset.canWriteXfer(xfer, original))
+                dcm_remove_bulk(dataset, original, true);
+        }
+        OFCondition condition =
+            copy.saveFile(OFFilename(path), xfer, EET_ExplicitLength,
+                          EGL_recalcGL, EPD_noChange, 0, 0, EWM_fileformat);
+        if (condition.bad())
+            return dcm_error_from_condition(error, MITILOG_ERROR_IO, path,
+                                            condition);
+        return MITILOG_OK;
+    }
+    DCM_CATCH_ALL(error, MITILOG_ERROR_IO, "dcm_object_save_header")
+}

@@ -1,0 +1,50 @@
+/*
+ * http_internal.h - what the files of src/http/ share; not API.
+ *
+ * http_server.c  the daemon, dispatch by method and path, common headers,
+ *                JSON and error responses;
+ * http_routes.c  the JSON API (/healthz, /api/v1/...): parameter checks;
+ * http_static.c  the dashboard's files under web_root.
+ */
+#ifndef MITILOG_HTTP_INTERNAL_H
+#define MITILOG_HTTP_INTERNAL_H
+
+#include <microhttpd.h>
+#include <pthread.h>
+#include <sqlite3.h>
+
+#include "http/http.h"
+
+struct http_server {
+    struct MHD_Daemon *daemon;
+    store *store;
+    char *web_root;              /* resolved real path, NULL: no files   */
+    sqlite3 *json;               /* in-memory, quotes error messages     */
+    sqlite3_stmt *error_json;    /* queries/error_json.sql, under lock   */
+    pthread_mutex_t json_lock;
+    unsigned port;               /* the bound port                       */
+};
+
+/* A response to queue: status code and the response (owned). */
+typedef struct http_reply {
+    unsigned status;
+    struct MHD_Response *response;
+} http_reply;
+
+/* http_server.c */
+/* JSON body (malloc'ed, taken over) with the API headers. */
+http_reply http_json_reply(unsigned status, char *json);
+/* {"error": message} built by SQLite (valid JSON for any message). */
+http_reply http_error_reply(http_server *server, unsigned status,
+                            const char *format, ...)
+    __attribute__((format(printf, 3, 4)));
+
+/* http_routes.c: handles /healthz and /api/...; 0 if url is neither. */
+int http_route_api(http_server *server, struct MHD_Connection *connection,
+                   const char *url, http_reply *reply);
+
+/* http_static.c: serves url from web_root; 0 if there is no such file. */
+int http_route_static(const http_server *server, const char *url,
+                      http_reply *reply);
+
+#endif

@@ -1,0 +1,149 @@
+/*
+ * sim_exam.c - one exam: patient, operator, capture times, modes, cine
+ * loops and displayed indices (the model in sim_department.c), bent by the
+ * planted problems of sim_planted.c.
+ */
+#include "sim/sim.h"
+
+#include <math.h>
+#include <string.h>
+
+static double sim_round1(double value, double floor_value)
+{
+    double r = round(value * 10.0) / 10.0;
+    return r < floor_value ? floor_value : r;
+}
+
+static void sim_sort_seconds(long *values, size_t count)
+{
+    for (size_t i = 1; i < count; i++) {
+        long key = values[i];
+        size_t j = i;
+        while (j > 0 && values[j - 1] > key) {
+            values[j] = values[j - 1];
+            j--;
+        }
+        values[j] = key;
+    }
+}
+
+/* Sets the model's indices for a capture in its mode. */
+static void sim_model_indices(const sim_exam_type *type, sim_capture *c,
+                              sim_rng *rng)
+{
+    double noise_mi = 1.0 + 0.06 * sim_rng_normal(rng);
+    double noise_ti = 1.0 + 0.06 * sim_rng_normal(rng);
+    double mi = type->mi_b * sim_mode_mi_factor(c->mode) * noise_mi;
+    double ti = type->ti_b * sim_mode_ti_factor(c->mode) * noise_ti;
+    c->has_indices = 1;
+    c->mi = mi;
+    c->tib = c->tic = 0.0;
+    switch (type->indices) {
+    case SIM_INDICES_TIS:
+        c->tis = ti;
+        break;
+    case SIM_INDICES_TIB:
+        c->tib = ti;
+        c->tis = ti * 0.6;   /* soft tissue below the bone-at-focus value */
+        break;
+    case SIM_INDICES_TIC:
+        c->tic = ti;
+        c->tis = ti * 0.5;
+        break;
+    }
+}
+
+static void sim_round_indices(sim_capture *c)
+{
+    c->mi = sim_round1(c->mi, 0.1);
+    c->tis = sim_round1(c->tis, 0.1);
+    c->tib = c->tib > 0.0 ? sim_round1(c->tib, 0.1) : 0.0;
+    c->tic = c->tic > 0.0 ? sim_round1(c->tic, 0.1) : 0.0;
+}
+
+static int sim_cine_frames(sim_rng *rng)
+{
+    /* Mostly short loops (20-60 frames), a few long ones up to 120. */
+    if (sim_rng_uniform(rng) < 0.8)
+        return sim_rng_range(rng, 20, 60);
+    return sim_rng_range(rng, 61, 120);
+}
+
+void sim_exam_build(int day_index, int exam_number, const sim_slot *slot,
+                    sim_exam *exam)
+{
+    const sim_exam_type *type = &sim_exam_types[slot->exam_type];
+    sim_rng rng;
+    sim_rng_seed(&rng, slot->seed);
+    memset(exam, 0, sizeof *exam);
+    exam->day_index = day_index;
+    exam->exam_number = exam_number;
+    exam->slot = *slot;
+    exam->planted = slot->planted;
+    exam->operator_index = sim_rng_range(&rng, 0, SIM_OPERATOR_COUNT - 1);
+    exam->patient_number = (uint32_t)(day_index * 1000 + exam_number);
+    exam->patient_age_days = sim_rng_range(&rng, type->age_low_days,
+                                           type->age_high_days);
+    exam->patient_sex = type->sex != 0 ? type->sex
+                        : (sim_rng_uniform(&rng) < 0.5 ? 'F' : 'M');
+    if (type->gestation_low_weeks > 0)
+        exam->gestation_days = sim_rng_range(&rng,
+                                             type->gestation_low_weeks * 7,
+                                             type->gestation_high_weeks * 7
+                                                 + 6);
+
+    int dwell = (exam->planted & SIM_PLANTED_NIGHT_OB_DWELL) != 0;
+    int n = sim_rng_range(&rng, type->captures_low, type->captures_high);
+    int minutes = slot->duration_minutes;
+    if (dwell) {
+        n = sim_rng_range(&rng, 15, 25);
+        minutes = 5 + sim_rng_range(&rng, 15, 25);
+    }
+    if (n < SIM_CAPTURES_LOW)
+        n = SIM_CAPTURES_LOW;
+    if (n > SIM_CAPTURES_HIGH)
+        n = SIM_CAPTURES_HIGH;
+
+    long start = (long)slot->start_minute * 60 + sim_rng_range(&rng, 30, 120);
+    long span = (long)minutes * 60 - 150;
+    if (span < n * 10)
+        span = n * 10;
+    long seconds[SIM_MAX_CAPTURES];
+    for (int i = 0; i < n; i++) {
+        if (dwell)   /* 3 B-mode views in 5 min, then PW to the end */
+            seconds[i] = i < 3 ? 40 + i * 80
+                               : 300 + (span - 300) * (i - 2) / (n - 2);
+        else
+            seconds[i] = (long)(sim_rng_uniform(&rng) * (double)span);
+    }
+    sim_sort_seconds(seconds, (size_t)n);
+
+    exam->capture_count = (size_t)n;
+    long previous = -1;
+    for (int i = 0; i < n; i++) {
+        sim_capture *c = &exam->captures[i];
+        long t = start + seconds[i];
+        if (t <= previous)
+            t = previous + 1;
+        previous = t;
+        c->second = t;
+        int mode = dwell ? (i < 3 ? SIM_MODE_B : SIM_MODE_PW)
+                         : sim_rng_pick(&rng, type->mode_weights,
+                                        SIM_MODE_COUNT);
+        c->mode = mode < 0 ? SIM_MODE_B : (sim_mode)mode;
+        double cine = type->cine_fraction;
+        if (c->mode == SIM_MODE_PW || c->mode == SIM_MODE_CW)
+            cine *= 1.5;
+        c->frames = 1;
+        c->frame_time_ms = 0.0;
+        if (c->mode != SIM_MODE_3D && (dwell ? i >= 3
+                                             : sim_rng_uniform(&rng) < cine)) {
+            c->frames = dwell ? sim_rng_range(&rng, 100, 120)
+                              : sim_cine_frames(&rng);
+            c->frame_time_ms = dwell ? 40.0 : (double)sim_rng_range(&rng, 20, 40);
+        }
+        sim_model_indices(type, c, &rng);
+        sim_planted_apply(exam, c, (size_t)i, &rng);
+        sim_round_indices(c);
+    }
+}

@@ -1,0 +1,96 @@
+/*
+ * store_internal.h - what the files of src/store/ share; not API.
+ *
+ * store_open.c  opens the connections and applies the migrations;
+ * store_sql.c   prepares and runs the embedded SQL files;
+ * store_write.c group commit on the writer connection;
+ * store_read.c  the JSON queries on the read connection.
+ */
+#ifndef MITILOG_STORE_INTERNAL_H
+#define MITILOG_STORE_INTERNAL_H
+
+#include <pthread.h>
+#include <sqlite3.h>
+
+#include "store/store.h"
+
+/* One queued write: a caller's record (or rejection) and, once the batch
+ * that holds it has committed or failed, its result. Lives on the caller's
+ * stack while the caller waits. */
+typedef struct store_request {
+    const ext_record *record;           /* exactly one of record ...     */
+    const store_rejection *rejection;   /* ... and rejection is set      */
+    mitilog_status status;
+    store_put_outcome outcome;
+    mitilog_error error;
+    int done;                           /* under queue_lock              */
+    struct store_request *next;
+} store_request;
+
+/* Statements of the writer connection; used only by the current leader. */
+typedef struct store_write_statements {
+    sqlite3_stmt *begin;
+    sqlite3_stmt *commit;
+    sqlite3_stmt *rollback;
+    sqlite3_stmt *savepoint;
+    sqlite3_stmt *release;
+    sqlite3_stmt *rollback_to;
+    sqlite3_stmt *upsert_instance;
+    sqlite3_stmt *insert_rejection;
+} store_write_statements;
+
+/* Statements of the read connection; used under reader_lock. */
+typedef struct store_read_statements {
+    sqlite3_stmt *instances_by_study;
+    sqlite3_stmt *instances_since;
+    sqlite3_stmt *studies;
+    sqlite3_stmt *health;
+    sqlite3_stmt *health_error;
+} store_read_statements;
+
+struct store {
+    sqlite3 *writer;
+    store_write_statements write;
+    pthread_mutex_t queue_lock;
+    pthread_cond_t queue_changed;       /* a batch finished              */
+    store_request *queue_head;
+    store_request *queue_tail;
+    int leader_active;                  /* a caller is writing a batch   */
+
+    sqlite3 *reader;
+    store_read_statements read;
+    pthread_mutex_t reader_lock;
+
+    int schema_version;
+};
+
+/* store_sql.c */
+mitilog_status store_sql_error(mitilog_error *error, sqlite3 *db,
+                               const char *what);
+mitilog_status store_prepare(sqlite3 *db, const char *name,
+                             sqlite3_stmt **statement, mitilog_error *error);
+mitilog_status store_exec_file(sqlite3 *db, const char *name,
+                               mitilog_error *error);
+mitilog_status store_exec_text(sqlite3 *db, const char *name,
+                               const char *text, mitilog_error *error);
+/* Steps a prepared statement without results to SQLITE_DONE, resets it. */
+int store_step_done(sqlite3_stmt *statement);
+/* Copies column 0 of the current row into a malloc'ed string. */
+mitilog_status store_column_dup(sqlite3_stmt *statement, char **out,
+                                mitilog_error *error);
+
+/* store_write.c */
+mitilog_status store_write_prepare(store *store, mitilog_error *error);
+void store_write_finalize(store *store);
+/* Blocks until no batch is being written and the queue is empty. */
+void store_write_drain(store *store);
+
+/* store_read.c */
+mitilog_status store_read_prepare(store *store, mitilog_error *error);
+void store_read_finalize(store *store);
+
+/* For fault injection in tests only (e.g. PRAGMA query_only, max_page_count
+ * on the writer); call only while no store_put_* is running. */
+sqlite3 *store_writer_connection(store *store);
+
+#endif

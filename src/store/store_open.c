@@ -1,0 +1,243 @@
+/*
+ * store_open.c - opening and closing the store: the writer connection
+ * (WAL, synchronous FULL), the schema migrations of sql/migrations, and
+ * the read-only connection for the queries.
+ */
+#include "store/store_internal.h"
+
+#include <stdlib.h>
+#include <string.h>
+
+#include "store/sql_files.h"
+#include "util/log.h"
+
+static const char migration_prefix[] = "migrations/";
+
+/* The number NNN of "migrations/NNN_name.sql", or -1 for other files. */
+static int store_migration_number(const char *name)
+{
+    size_t prefix = sizeof migration_prefix - 1;
+    if (strncmp(name, migration_prefix, prefix) != 0)
+        return -1;
+    int number = 0;
+    const char *digit = name + prefix;
+    for (; *digit >= '0' && *digit <= '9'; digit++) {
+        if (number > 100000)
+            return -1;
+        number = number * 10 + (*digit - '0');
+    }
+    if (digit == name + prefix || *digit != '_')
+        return -1;
+    return number;
+}
+
+/* Reads PRAGMA user_version into *version. */
+static mitilog_status store_read_version(sqlite3 *db, int *version,
+                                         mitilog_error *error)
+{
+    sqlite3_stmt *statement = NULL;
+    mitilog_status status = store_prepare(db, "queries/schema_version.sql",
+                                          &statement, error);
+    if (status != MITILOG_OK)
+        return status;
+    if (sqlite3_step(statement) == SQLITE_ROW) {
+        *version = sqlite3_column_int(statement, 0);
+    } else {
+        status = store_sql_error(error, db, "read schema version");
+    }
+    sqlite3_finalize(statement);
+    return status;
+}
+
+/* Applies one migration in its own transaction, unless another process
+ * applied it meanwhile. The file itself sets user_version; this checks it. */
+static mitilog_status store_apply_migration(sqlite3 *db, const sql_file *file,
+                                            int number, const char *path,
+                                            mitilog_error *error)
+{
+    mitilog_status status = store_exec_file(db, "queries/write_begin.sql",
+                                            error);
+    if (status != MITILOG_OK)
+        return status;
+    int version = 0;
+    status = store_read_version(db, &version, error);
+    if (status == MITILOG_OK && version < number) {
+        status = store_exec_text(db, file->name, file->text, error);
+        if (status == MITILOG_OK)
+            status = store_read_version(db, &version, error);
+        if (status == MITILOG_OK && version != number)
+            status = mitilog_error_set(error, MITILOG_ERROR_DATABASE,
+                                       "%s left user_version at %d, "
+                                       "expected %d", file->name, version,
+                                       number);
+    }
+    if (status == MITILOG_OK)
+        status = store_exec_file(db, "queries/write_commit.sql", error);
+    if (status != MITILOG_OK) {
+        store_exec_file(db, "queries/write_rollback.sql", NULL);
+        return status;
+    }
+    log_info("database %s: schema at version %d (%s)", path, number,
+             file->name);
+    return MITILOG_OK;
+}
+
+/* Brings the schema up to the newest built-in migration; *version gets
+ * the resulting schema version. */
+static mitilog_status store_migrate(sqlite3 *db, const char *path,
+                                    int *version, mitilog_error *error)
+{
+    int latest = 0;
+    for (const sql_file *file = sql_files; file->name != NULL; file++) {
+        int number = store_migration_number(file->name);
+        if (number < 0)
+            continue;
+        if (number != latest + 1)
+            return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
+                                     "migration %s out of sequence "
+                                     "(expected number %d)", file->name,
+                                     latest + 1);
+        latest = number;
+    }
+    mitilog_status status = store_read_version(db, version, error);
+    if (status != MITILOG_OK)
+        return status;
+    if (*version > latest)
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
+                                 "database %s has schema version %d, newer "
+                                 "than this program's %d", path, *version,
+                                 latest);
+    for (const sql_file *file = sql_files; file->name != NULL; file++) {
+        int number = store_migration_number(file->name);
+        if (number <= *version)
+            continue;
+        status = store_apply_migration(db, file, number, path, error);
+        if (status != MITILOG_OK)
+            return status;
+        *version = number;
+    }
+    return MITILOG_OK;
+}
+
+/* Opens path with flags, extended result codes and the busy timeout. */
+static mitilog_status store_connect(const char *path, int flags,
+                                    int busy_timeout_ms, sqlite3 **out,
+                                    mitilog_error *error)
+{
+    sqlite3 *db = NULL;
+    if (sqlite3_open_v2(path, &db, flags | SQLITE_OPEN_FULLMUTEX, NULL) !=
+        SQLITE_OK) {
+        mitilog_error_set(error, MITILOG_ERROR_DATABASE, "open %s: %s", path,
+                          db != NULL ? sqlite3_errmsg(db) : "out of memory");
+        sqlite3_close(db);
+        return MITILOG_ERROR_DATABASE;
+    }
+    sqlite3_extended_result_codes(db, 1);
+    sqlite3_busy_timeout(db, busy_timeout_ms > 0 ? busy_timeout_ms : 0);
+    *out = db;
+    return MITILOG_OK;
+}
+
+/* Puts the writer into WAL mode and applies its PRAGMAs. */
+static mitilog_status store_configure_writer(sqlite3 *db, const char *path,
+                                             mitilog_error *error)
+{
+    sqlite3_stmt *statement = NULL;
+    mitilog_status status = store_prepare(db, "queries/pragma_journal_wal.sql",
+                                          &statement, error);
+    if (status != MITILOG_OK)
+        return status;
+    if (sqlite3_step(statement) != SQLITE_ROW) {
+        status = store_sql_error(error, db, "set WAL mode");
+    } else {
+        const char *mode = (const char *)sqlite3_column_text(statement, 0);
+        if (mode == NULL || strcmp(mode, "wal") != 0)
+            status = mitilog_error_set(error, MITILOG_ERROR_DATABASE,
+                                       "database %s: cannot use WAL mode "
+                                       "(journal mode stays %s)", path,
+                                       mode != NULL ? mode : "unknown");
+    }
+    sqlite3_finalize(statement);
+    if (status != MITILOG_OK)
+        return status;
+    return store_exec_file(db, "queries/pragma_writer.sql", error);
+}
+
+mitilog_status store_open(const char *path, int busy_timeout_ms, store **out,
+                          mitilog_error *error)
+{
+    if (out == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "store_open: no result pointer");
+    *out = NULL;
+    if (path == NULL || path[0] == '\0')
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "store_open: no database path");
+    store *opened = calloc(1, sizeof *opened);
+    if (opened == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY,
+                                 "out of memory opening %s", path);
+    pthread_mutex_init(&opened->queue_lock, NULL);
+    pthread_cond_init(&opened->queue_changed, NULL);
+    pthread_mutex_init(&opened->reader_lock, NULL);
+
+    mitilog_status status = store_connect(
+        path, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE, busy_timeout_ms,
+        &opened->writer, error);
+    if (status == MITILOG_OK)
+        status = store_configure_writer(opened->writer, path, error);
+    if (status == MITILOG_OK)
+        status = store_migrate(opened->writer, path, &opened->schema_version,
+                               error);
+    if (status == MITILOG_OK)
+        status = store_write_prepare(opened, error);
+    /* The read connection is opened after the migrations, read-only. */
+    if (status == MITILOG_OK)
+        status = store_connect(path, SQLITE_OPEN_READONLY, busy_timeout_ms,
+                               &opened->reader, error);
+    if (status == MITILOG_OK)
+        status = store_exec_file(opened->reader, "queries/pragma_reader.sql",
+                                 error);
+    if (status == MITILOG_OK)
+        status = store_read_prepare(opened, error);
+    if (status != MITILOG_OK) {
+        store_close(opened);
+        return status;
+    }
+    *out = opened;
+    return MITILOG_OK;
+}
+
+void store_close(store *st)
+{
+    if (st == NULL)
+        return;
+    store_write_drain(st);
+    store_read_finalize(st);
+    sqlite3_close(st->reader);
+    store_write_finalize(st);
+    if (st->writer != NULL) {
+        mitilog_error error;
+        if (store_exec_file(st->writer, "queries/checkpoint.sql",
+                            &error) != MITILOG_OK)
+            log_warning("database checkpoint at close failed: %s",
+                        error.text);
+        if (sqlite3_close(st->writer) != SQLITE_OK)
+            log_warning("database close failed: %s",
+                        sqlite3_errmsg(st->writer));
+    }
+    pthread_mutex_destroy(&st->reader_lock);
+    pthread_cond_destroy(&st->queue_changed);
+    pthread_mutex_destroy(&st->queue_lock);
+    free(st);
+}
+
+int store_schema_version(store *st)
+{
+    return st != NULL ? st->schema_version : 0;
+}
+
+sqlite3 *store_writer_connection(store *st)
+{
+    return st != NULL ? st->writer : NULL;
+}

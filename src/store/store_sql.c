@@ -1,0 +1,115 @@
+/*
+ * store_sql.c - running the SQL files of sql/ (embedded at build time):
+ * preparing one-statement query files, running multi-statement scripts
+ * (migrations, PRAGMA files), and turning SQLite errors into mitilog
+ * errors.
+ */
+#include "store/store_internal.h"
+
+#include <stdlib.h>
+#include <string.h>
+
+#include "store/sql_files.h"
+
+mitilog_status store_sql_error(mitilog_error *error, sqlite3 *db,
+                               const char *what)
+{
+    if (db == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
+                                 "%s: out of memory", what);
+    return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: %s", what,
+                             sqlite3_errmsg(db));
+}
+
+mitilog_status store_prepare(sqlite3 *db, const char *name,
+                             sqlite3_stmt **statement, mitilog_error *error)
+{
+    *statement = NULL;
+    const char *text = sql_file_text(name);
+    if (text == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
+                                 "SQL file %s is not built in", name);
+    const char *tail = NULL;
+    if (sqlite3_prepare_v3(db, text, -1, SQLITE_PREPARE_PERSISTENT, statement,
+                           &tail) != SQLITE_OK || *statement == NULL) {
+        mitilog_status status = store_sql_error(error, db, name);
+        sqlite3_finalize(*statement);
+        *statement = NULL;
+        return status;
+    }
+    /* A query file holds exactly one statement; anything after it but
+     * comments and blanks would be silently ignored. */
+    sqlite3_stmt *extra = NULL;
+    if (sqlite3_prepare_v2(db, tail, -1, &extra, NULL) != SQLITE_OK ||
+        extra != NULL) {
+        sqlite3_finalize(extra);
+        sqlite3_finalize(*statement);
+        *statement = NULL;
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
+                                 "%s: must hold exactly one statement", name);
+    }
+    return MITILOG_OK;
+}
+
+mitilog_status store_exec_text(sqlite3 *db, const char *name,
+                               const char *text, mitilog_error *error)
+{
+    const char *next = text;
+    while (next != NULL && *next != '\0') {
+        sqlite3_stmt *statement = NULL;
+        const char *tail = NULL;
+        if (sqlite3_prepare_v2(db, next, -1, &statement, &tail) != SQLITE_OK)
+            return store_sql_error(error, db, name);
+        if (statement == NULL) /* only comments or blanks were left */
+            break;
+        int rc;
+        while ((rc = sqlite3_step(statement)) == SQLITE_ROW)
+            continue;
+        if (rc != SQLITE_DONE) {
+            mitilog_status status = store_sql_error(error, db, name);
+            sqlite3_finalize(statement);
+            return status;
+        }
+        sqlite3_finalize(statement);
+        next = tail;
+    }
+    return MITILOG_OK;
+}
+
+mitilog_status store_exec_file(sqlite3 *db, const char *name,
+                               mitilog_error *error)
+{
+    const char *text = sql_file_text(name);
+    if (text == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
+                                 "SQL file %s is not built in", name);
+    return store_exec_text(db, name, text, error);
+}
+
+int store_step_done(sqlite3_stmt *statement)
+{
+    int rc;
+    while ((rc = sqlite3_step(statement)) == SQLITE_ROW)
+        continue;
+    sqlite3_reset(statement);
+    return rc;
+}
+
+mitilog_status store_column_dup(sqlite3_stmt *statement, char **out,
+                                mitilog_error *error)
+{
+    const unsigned char *text = sqlite3_column_text(statement, 0);
+    size_t length = (size_t)sqlite3_column_bytes(statement, 0);
+    if (text == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
+                                 "query gave no text");
+    char *copy = malloc(length + 1);
+    if (copy == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY,
+                                 "out of memory for a %zu-byte result",
+                                 length);
+    memcpy(copy, text, length);
+    copy[length] = '\0';
+    *out = copy;
+    return MITILOG_OK;
+}

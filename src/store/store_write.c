@@ -1,0 +1,500 @@
+/*
+ * store_write.c - writing with group commit.
+ *
+ * Callers of store_put_* queue a request and wait. Whoever finds no batch
+ * being written becomes the leader: it takes the queued requests (at most
+ * STORE_BATCH_MAX), writes them on the writer connection inside one
+ * BEGIN IMMEDIATE ... COMMIT with a SAVEPOINT per record (so one bad record
+ * fails alone), commits, and wakes every waiter with its own result. So a
+ * caller returns only after the commit that holds its record, and many
+ * concurrent associations share one WAL sync.
+ *
+ * If the commit fails (or SQLite rolls the transaction back by itself, as
+ * it may on a full disk or an I/O error), every record of the batch fails
+ * with MITILOG_ERROR_DATABASE and nothing of them is kept; the connection
+ * is rolled back so that the next batch starts clean.
+ */
+#include "store/store_internal.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "util/log.h"
+
+enum { STORE_BATCH_MAX = 256 };
+
+/* Column and API names of the indices, in ext_index order (ext.h). */
+static const char *const store_index_names[EXT_INDEX_COUNT] = {
+    "mi", "tis", "tib", "tic", "tis_focus", "tis_surface"};
+
+/* The schema's name of a value status (CHECK constraint), NULL if bad. */
+static const char *store_value_status_name(ext_value_status status)
+{
+    switch (status) {
+    case EXT_VALUE_MISSING: return "missing";
+    case EXT_VALUE_OK: return "ok";
+    case EXT_VALUE_INVALID: return "invalid";
+    }
+    return NULL;
+}
+
+/* The stored name of an acquisition time source, NULL if bad. Must match
+ * ext_time_source_name() (src/extract/); kept here so that the store
+ * depends on no other stage. */
+static const char *store_time_source_name(ext_time_source source)
+{
+    switch (source) {
+    case EXT_TIME_NONE: return "none";
+    case EXT_TIME_ACQUISITION_DATE_TIME: return "acquisition_datetime";
+    case EXT_TIME_ACQUISITION: return "acquisition";
+    case EXT_TIME_CONTENT: return "content";
+    case EXT_TIME_INSTANCE_CREATION: return "instance_creation";
+    case EXT_TIME_STUDY: return "study";
+    }
+    return NULL;
+}
+
+/* 1 if text (may be NULL) is well-formed UTF-8: JSON output needs it. */
+static int store_is_utf8(const char *text)
+{
+    const unsigned char *byte = (const unsigned char *)text;
+    while (byte != NULL && *byte != 0) {
+        int follow;
+        if (*byte < 0x80) follow = 0;
+        else if (*byte >= 0xc2 && *byte <= 0xdf) follow = 1;
+        else if (*byte >= 0xe0 && *byte <= 0xef) follow = 2;
+        else if (*byte >= 0xf0 && *byte <= 0xf4) follow = 3;
+        else return 0;
+        byte++;
+        for (int i = 0; i < follow; i++, byte++) {
+            if ((*byte & 0xc0) != 0x80)
+                return 0;
+        }
+    }
+    return 1;
+}
+
+/* Checks a value classification: a known status, a finite value when ok. */
+static int store_number_is_valid(ext_number number)
+{
+    if (store_value_status_name(number.status) == NULL)
+        return 0;
+    return number.status != EXT_VALUE_OK || isfinite(number.value);
+}
+
+/* Rejects records the schema would refuse or that could not be served as
+ * JSON, before they reach the queue. */
+static mitilog_status store_check_record(const ext_record *record,
+                                         mitilog_error *error)
+{
+    if (record == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no record");
+    if (record->sop_instance_uid == NULL || record->sop_instance_uid[0] == 0)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "record without SOP Instance UID");
+    if (record->sop_class_uid == NULL || record->sop_class_uid[0] == 0)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "%s: record without SOP Class UID",
+                                 record->sop_instance_uid);
+    if (memchr(record->acquired_at, 0, sizeof record->acquired_at) == NULL ||
+        memchr(record->received_at, 0, sizeof record->received_at) == NULL ||
+        store_time_source_name(record->acquired_at_source) == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "%s: bad acquisition or receipt time",
+                                 record->sop_instance_uid);
+    int numbers_ok = store_number_is_valid(record->number_of_frames) &&
+                     store_number_is_valid(record->frame_time_ms) &&
+                     (record->number_of_frames.status != EXT_VALUE_OK ||
+                      fabs(record->number_of_frames.value) < 9.0e15);
+    for (int i = 0; i < EXT_INDEX_COUNT; i++)
+        numbers_ok = numbers_ok && store_number_is_valid(record->indices[i]);
+    if (!numbers_ok)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "%s: bad value classification",
+                                 record->sop_instance_uid);
+    const char *texts[] = {
+        record->sop_class_uid, record->sop_instance_uid,
+        record->study_instance_uid, record->series_instance_uid,
+        record->modality, record->station_name,
+        record->institutional_department_name, record->study_description,
+        record->protocol_name, record->transfer_syntax_uid,
+        record->calling_ae_title, record->source_path, record->acquired_at,
+        record->received_at, record->index_raw[0], record->index_raw[1],
+        record->index_raw[2], record->index_raw[3], record->index_raw[4],
+        record->index_raw[5]};
+    for (size_t i = 0; i < sizeof texts / sizeof texts[0]; i++) {
+        if (!store_is_utf8(texts[i]))
+            return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                     "%s: text attribute is not UTF-8",
+                                     record->sop_instance_uid);
+    }
+    return MITILOG_OK;
+}
+
+/* Binds text (NULL: SQL NULL) to the named parameter. SQLITE_STATIC: the
+ * caller's record outlives the statement's use (bindings are cleared). */
+static int store_bind_text(sqlite3_stmt *statement, const char *name,
+                           const char *value)
+{
+    int index = sqlite3_bind_parameter_index(statement, name);
+    if (index == 0)
+        return SQLITE_RANGE;
+    if (value == NULL)
+        return sqlite3_bind_null(statement, index);
+    return sqlite3_bind_text(statement, index, value, -1, SQLITE_STATIC);
+}
+
+/* Binds a classified number to :<name> (value or NULL) and
+ * :<name>_status; as an integer when integer is set. */
+static int store_bind_number(sqlite3_stmt *statement, const char *name,
+                             ext_number number, int integer)
+{
+    char parameter[64];
+    snprintf(parameter, sizeof parameter, ":%s", name);
+    int index = sqlite3_bind_parameter_index(statement, parameter);
+    if (index == 0)
+        return SQLITE_RANGE;
+    int rc;
+    if (number.status != EXT_VALUE_OK)
+        rc = sqlite3_bind_null(statement, index);
+    else if (integer)
+        rc = sqlite3_bind_int64(statement, index,
+                                (sqlite3_int64)number.value);
+    else
+        rc = sqlite3_bind_double(statement, index, number.value);
+    if (rc != SQLITE_OK)
+        return rc;
+    snprintf(parameter, sizeof parameter, ":%s_status", name);
+    return store_bind_text(statement, parameter,
+                           store_value_status_name(number.status));
+}
+
+/* Binds every parameter of queries/instance_upsert.sql from record. */
+static int store_bind_instance(sqlite3_stmt *statement,
+                               const ext_record *record)
+{
+    const struct {
+        const char *name;
+        const char *value;
+    } texts[] = {
+        {":sop_instance_uid", record->sop_instance_uid},
+        {":sop_class_uid", record->sop_class_uid},
+        {":study_instance_uid", record->study_instance_uid},
+        {":series_instance_uid", record->series_instance_uid},
+        {":modality", record->modality},
+        {":station_name", record->station_name},
+        {":institutional_department_name",
+         record->institutional_department_name},
+        {":study_description", record->study_description},
+        {":protocol_name", record->protocol_name},
+        {":transfer_syntax_uid", record->transfer_syntax_uid},
+        {":calling_ae_title", record->calling_ae_title},
+        {":source_path", record->source_path},
+        {":acquired_at",
+         record->acquired_at[0] != 0 ? record->acquired_at : NULL},
+        {":acquired_at_source",
+         store_time_source_name(record->acquired_at_source)},
+        {":received_at", record->received_at},
+    };
+    int rc = SQLITE_OK;
+    for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0];
+         i++)
+        rc = store_bind_text(statement, texts[i].name, texts[i].value);
+    if (rc == SQLITE_OK)
+        rc = store_bind_number(statement, "number_of_frames",
+                               record->number_of_frames, 1);
+    if (rc == SQLITE_OK)
+        rc = store_bind_number(statement, "frame_time_ms",
+                               record->frame_time_ms, 0);
+    if (rc == SQLITE_OK)
+        rc = sqlite3_bind_int(statement,
+                              sqlite3_bind_parameter_index(statement,
+                                                           ":is_ultrasound"),
+                              record->is_ultrasound ? 1 : 0);
+    for (int i = 0; rc == SQLITE_OK && i < EXT_INDEX_COUNT; i++) {
+        char parameter[64];
+        rc = store_bind_number(statement, store_index_names[i],
+                               record->indices[i], 0);
+        snprintf(parameter, sizeof parameter, ":%s_raw", store_index_names[i]);
+        if (rc == SQLITE_OK)
+            rc = store_bind_text(statement, parameter, record->index_raw[i]);
+    }
+    return rc;
+}
+
+/* Writes one instance row (inside the batch's savepoint). */
+static mitilog_status store_write_instance(store *st,
+                                           store_request *request)
+{
+    sqlite3_stmt *statement = st->write.upsert_instance;
+    const ext_record *record = request->record;
+    mitilog_status status = MITILOG_OK;
+    int rc = store_bind_instance(statement, record);
+    if (rc != SQLITE_OK) {
+        status = mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE,
+                                   "%s: bind: %s", record->sop_instance_uid,
+                                   sqlite3_errstr(rc));
+    } else if ((rc = sqlite3_step(statement)) != SQLITE_ROW) {
+        status = mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE,
+                                   "%s: store instance: %s",
+                                   record->sop_instance_uid,
+                                   sqlite3_errmsg(st->writer));
+    } else {
+        request->outcome = sqlite3_column_int64(statement, 0) > 0
+                               ? STORE_PUT_REPLACED
+                               : STORE_PUT_INSERTED;
+        if ((rc = store_step_done(statement)) != SQLITE_DONE)
+            status = mitilog_error_set(&request->error,
+                                       MITILOG_ERROR_DATABASE,
+                                       "%s: store instance: %s",
+                                       record->sop_instance_uid,
+                                       sqlite3_errmsg(st->writer));
+    }
+    sqlite3_reset(statement);
+    sqlite3_clear_bindings(statement);
+    return status;
+}
+
+/* Writes one rejection row (inside the batch's savepoint); NULL fields
+ * are stored as "". */
+static mitilog_status store_write_rejection(store *st,
+                                            store_request *request)
+{
+    sqlite3_stmt *statement = st->write.insert_rejection;
+    const store_rejection *rejection = request->rejection;
+#define STORE_TEXT(field) ((field) != NULL ? (field) : "")
+    const struct {
+        const char *name;
+        const char *value;
+    } texts[] = {
+        {":received_at", STORE_TEXT(rejection->received_at)},
+        {":calling_ae_title", STORE_TEXT(rejection->calling_ae_title)},
+        {":peer_address", STORE_TEXT(rejection->peer_address)},
+        {":sop_class_uid", STORE_TEXT(rejection->sop_class_uid)},
+        {":sop_instance_uid", STORE_TEXT(rejection->sop_instance_uid)},
+        {":source_path", STORE_TEXT(rejection->source_path)},
+        {":quarantine_path", STORE_TEXT(rejection->quarantine_path)},
+        {":reason", STORE_TEXT(rejection->reason)},
+    };
+#undef STORE_TEXT
+    int rc = SQLITE_OK;
+    for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0];
+         i++)
+        rc = store_bind_text(statement, texts[i].name, texts[i].value);
+    mitilog_status status = MITILOG_OK;
+    if (rc != SQLITE_OK)
+        status = mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE,
+                                   "rejection: bind: %s", sqlite3_errstr(rc));
+    else if (store_step_done(statement) != SQLITE_DONE)
+        status = mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE,
+                                   "store rejection: %s",
+                                   sqlite3_errmsg(st->writer));
+    sqlite3_reset(statement);
+    sqlite3_clear_bindings(statement);
+    return status;
+}
+
+/* Fails every request of the batch that has not failed on its own. */
+static void store_fail_batch(store_request *batch, const char *what,
+                             const char *message)
+{
+    for (store_request *request = batch; request != NULL;
+         request = request->next) {
+        if (request->status == MITILOG_OK)
+            request->status = mitilog_error_set(
+                &request->error, MITILOG_ERROR_DATABASE, "%s: %s", what,
+                message);
+    }
+}
+
+/* Writes one record inside its own savepoint; returns its status. */
+static mitilog_status store_write_one(store *st, store_request *request)
+{
+    store_write_statements *write = &st->write;
+    if (store_step_done(write->savepoint) != SQLITE_DONE)
+        return mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE,
+                                 "savepoint: %s",
+                                 sqlite3_errmsg(st->writer));
+    mitilog_status status = request->record != NULL
+                                ? store_write_instance(st, request)
+                                : store_write_rejection(st, request);
+    if (sqlite3_get_autocommit(st->writer))
+        return status; /* SQLite already rolled the transaction back */
+    if (status != MITILOG_OK)
+        store_step_done(write->rollback_to);
+    if (store_step_done(write->release) != SQLITE_DONE &&
+        status == MITILOG_OK)
+        status = mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE,
+                                   "release savepoint: %s",
+                                   sqlite3_errmsg(st->writer));
+    return status;
+}
+
+/* The leader's work: one transaction for the whole batch. Fills in each
+ * request's status, outcome and error. */
+static void store_write_batch(store *st, store_request *batch)
+{
+    store_write_statements *write = &st->write;
+    for (store_request *request = batch; request != NULL;
+         request = request->next)
+        request->status = MITILOG_OK;
+    if (store_step_done(write->begin) != SQLITE_DONE) {
+        store_fail_batch(batch, "begin transaction",
+                         sqlite3_errmsg(st->writer));
+        log_warning("database: cannot begin a write: %s",
+                    sqlite3_errmsg(st->writer));
+        return;
+    }
+    for (store_request *request = batch; request != NULL;
+         request = request->next) {
+        request->status = store_write_one(st, request);
+        if (sqlite3_get_autocommit(st->writer)) {
+            /* The transaction is gone (full disk, I/O error): nothing of
+             * the batch was kept. */
+            char message[MITILOG_ERROR_TEXT_SIZE];
+            snprintf(message, sizeof message, "%s",
+                     sqlite3_errmsg(st->writer));
+            store_fail_batch(batch, "transaction rolled back", message);
+            log_warning("database: write transaction rolled back: %s",
+                        message);
+            return;
+        }
+    }
+    if (store_step_done(write->commit) != SQLITE_DONE) {
+        char message[MITILOG_ERROR_TEXT_SIZE];
+        snprintf(message, sizeof message, "%s",
+                 sqlite3_errmsg(st->writer));
+        if (!sqlite3_get_autocommit(st->writer))
+            store_step_done(write->rollback);
+        store_fail_batch(batch, "commit", message);
+        log_warning("database: commit failed, batch rolled back: %s",
+                    message);
+    }
+}
+
+/* Queues request and waits until a committed (or failed) batch holds it;
+ * leads the next batch when nobody else is writing. */
+static mitilog_status store_submit(store *st, store_request *request,
+                                   mitilog_error *error)
+{
+    request->next = NULL;
+    request->done = 0;
+    request->status = MITILOG_OK;
+    request->outcome = STORE_PUT_INSERTED;
+    request->error.text[0] = '\0';
+
+    pthread_mutex_lock(&st->queue_lock);
+    if (st->queue_tail != NULL)
+        st->queue_tail->next = request;
+    else
+        st->queue_head = request;
+    st->queue_tail = request;
+    while (!request->done) {
+        if (st->leader_active) {
+            pthread_cond_wait(&st->queue_changed, &st->queue_lock);
+            continue;
+        }
+        st->leader_active = 1;
+        store_request *batch = st->queue_head;
+        store_request *last = batch;
+        for (int count = 1; count < STORE_BATCH_MAX && last->next != NULL;
+             count++)
+            last = last->next;
+        st->queue_head = last->next;
+        if (st->queue_head == NULL)
+            st->queue_tail = NULL;
+        last->next = NULL;
+        pthread_mutex_unlock(&st->queue_lock);
+
+        store_write_batch(st, batch);
+
+        pthread_mutex_lock(&st->queue_lock);
+        while (batch != NULL) {
+            store_request *next = batch->next;
+            batch->done = 1; /* the waiter may return once we unlock */
+            batch = next;
+        }
+        st->leader_active = 0;
+        pthread_cond_broadcast(&st->queue_changed);
+    }
+    pthread_mutex_unlock(&st->queue_lock);
+    if (request->status != MITILOG_OK && error != NULL)
+        *error = request->error;
+    return request->status;
+}
+
+mitilog_status store_put_instance(store *st, const ext_record *record,
+                                  store_put_outcome *outcome,
+                                  mitilog_error *error)
+{
+    if (st == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no store");
+    mitilog_status status = store_check_record(record, error);
+    if (status != MITILOG_OK)
+        return status;
+    store_request request = {.record = record};
+    status = store_submit(st, &request, error);
+    if (status == MITILOG_OK && outcome != NULL)
+        *outcome = request.outcome;
+    return status;
+}
+
+mitilog_status store_put_rejection(store *st,
+                                   const store_rejection *rejection,
+                                   mitilog_error *error)
+{
+    if (st == NULL || rejection == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "no store or no rejection");
+    if (rejection->reason == NULL || rejection->reason[0] == '\0')
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "rejection without a reason");
+    store_request request = {.rejection = rejection};
+    return store_submit(st, &request, error);
+}
+
+mitilog_status store_write_prepare(store *st, mitilog_error *error)
+{
+    const struct {
+        const char *name;
+        sqlite3_stmt **statement;
+    } files[] = {
+        {"queries/write_begin.sql", &st->write.begin},
+        {"queries/write_commit.sql", &st->write.commit},
+        {"queries/write_rollback.sql", &st->write.rollback},
+        {"queries/write_savepoint.sql", &st->write.savepoint},
+        {"queries/write_release.sql", &st->write.release},
+        {"queries/write_rollback_to.sql", &st->write.rollback_to},
+        {"queries/instance_upsert.sql", &st->write.upsert_instance},
+        {"queries/rejection_insert.sql", &st->write.insert_rejection},
+    };
+    for (size_t i = 0; i < sizeof files / sizeof files[0]; i++) {
+        mitilog_status status = store_prepare(st->writer, files[i].name,
+                                              files[i].statement, error);
+        if (status != MITILOG_OK)
+            return status;
+    }
+    return MITILOG_OK;
+}
+
+void store_write_finalize(store *st)
+{
+    sqlite3_stmt **statements[] = {
+        &st->write.begin, &st->write.commit, &st->write.rollback,
+        &st->write.savepoint, &st->write.release,
+        &st->write.rollback_to, &st->write.upsert_instance,
+        &st->write.insert_rejection};
+    for (size_t i = 0; i < sizeof statements / sizeof statements[0]; i++) {
+        sqlite3_finalize(*statements[i]);
+        *statements[i] = NULL;
+    }
+}
+
+void store_write_drain(store *st)
+{
+    pthread_mutex_lock(&st->queue_lock);
+    while (st->leader_active || st->queue_head != NULL)
+        pthread_cond_wait(&st->queue_changed, &st->queue_lock);
+    pthread_mutex_unlock(&st->queue_lock);
+}

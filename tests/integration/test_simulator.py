@@ -1,0 +1,240 @@
+"""Black-box tests of `mitilog simulate` (src/sim).
+
+Run with /usr/bin/python3 -m pytest tests/integration/test_simulator.py
+(Debian's python3 has pydicom). The binary is $MITILOG_BINARY or
+build/mitilog. Files are read with pydicom, never with mitilog.
+"""
+import collections
+import glob
+import hashlib
+import os
+import shutil
+import statistics
+import subprocess
+
+import pydicom
+import pytest
+
+ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
+BINARY = os.environ.get("MITILOG_BINARY", os.path.join(ROOT, "build", "mitilog"))
+
+# Documented per-mode medians: docs/demo.md ("Index model") is the source;
+# keep the two in sync. mode: ((MI low, MI high), (TI low, TI high)), TI =
+# the governing index present (TIC, else TIB, else TIS).
+MODE_MEDIAN_RANGES = {
+    "b": ((0.9, 1.2), (0.2, 0.4)),
+    "m": ((0.8, 1.2), (0.1, 0.3)),
+    "colour": ((0.6, 0.9), (0.4, 0.7)),
+    "pw": ((0.4, 0.7), (0.9, 1.5)),
+    "cw": ((0.3, 0.5), (1.0, 1.6)),
+    "3d": ((0.8, 1.0), (0.3, 0.5)),
+}
+# Documented exam mix over a week (docs/demo.md, "Exam mix"): fraction of
+# studies by Study Description group.
+MIX_RANGES = {
+    "obstetric": (("US OBSTETRIC EARLY PREGNANCY", "US OBSTETRIC 2ND TRIMESTER",
+                   "US OBSTETRIC 3RD TRIMESTER"), (0.20, 0.38)),
+    "abdomen": (("US ABDOMEN", "US RENAL TRACT", "US PAEDIATRIC ABDOMEN"), (0.20, 0.38)),
+    "echo": (("ECHO ADULT TTE", "ECHO PAEDIATRIC TTE"), (0.04, 0.14)),
+    "vascular": (("US CAROTID DOPPLER", "US VENOUS LEG DOPPLER",
+                  "US TRANSCRANIAL DOPPLER"), (0.08, 0.22)),
+}
+WEEK_STUDIES = (5 * 55 + 2 * 25, 5 * 95 + 2 * 55)   # SIM_WEEKDAY/WEEKEND_EXAMS_*
+
+US_IMAGE = "1.2.840.10008.5.1.4.1.1.6.1"
+US_MULTIFRAME = "1.2.840.10008.5.1.4.1.1.3.1"
+COMPREHENSIVE_SR = "1.2.840.10008.5.1.4.1.1.88.33"
+
+
+def mode_of(bitmap):
+    """Image Type value 4 bitmap (DICOM PS3.3 C.8.5.6.1.1): 0001 2D,
+    0002 M-mode, 0004 CW Doppler, 0008 PW Doppler, 0010 Colour Doppler,
+    0020 Colour M-mode, 0040 3D rendering, 0100 Colour Power Mode; the
+    strongest emitter present names the mode."""
+    if bitmap & 0x0004:
+        return "cw"
+    if bitmap & 0x0008:
+        return "pw"
+    if bitmap & (0x0010 | 0x0020 | 0x0100):
+        return "colour"
+    if bitmap & 0x0002:
+        return "m"
+    if bitmap & 0x0040:
+        return "3d"
+    return "b"
+
+
+def simulate(out, days, seed):
+    if not os.access(BINARY, os.X_OK):
+        pytest.skip("no mitilog binary at %s (set MITILOG_BINARY)" % BINARY)
+    subprocess.run([BINARY, "simulate", "--out", str(out), "--days", str(days),
+                    "--seed", str(seed)], check=True, capture_output=True)
+
+
+def digests(directory):
+    result = {}
+    for path in sorted(glob.glob(os.path.join(str(directory), "**", "*"), recursive=True)):
+        if os.path.isfile(path):
+            with open(path, "rb") as f:
+                result[os.path.relpath(path, str(directory))] = hashlib.sha256(f.read()).hexdigest()
+    return result
+
+
+@pytest.fixture(scope="module")
+def week(tmp_path_factory):
+    out = tmp_path_factory.mktemp("week")
+    simulate(out, 7, 1)
+    return out
+
+
+def test_same_seed_identical_files(tmp_path):
+    simulate(tmp_path / "a", 1, 5)
+    simulate(tmp_path / "b", 1, 5)
+    simulate(tmp_path / "c", 1, 6)
+    a, b, c = digests(tmp_path / "a"), digests(tmp_path / "b"), digests(tmp_path / "c")
+    assert len(a) > 100
+    assert a == b
+    assert a != c
+
+
+def test_meta_header_is_deterministic(week):
+    path = sorted(glob.glob(os.path.join(str(week), "*", "*", "001.dcm")))[0]
+    ds = pydicom.dcmread(path)
+    assert ds.file_meta.MediaStorageSOPInstanceUID == ds.SOPInstanceUID
+    assert ds.SOPInstanceUID.startswith("2.25.")
+    assert ds.InstanceCreationDate == ds.AcquisitionDateTime[:8]
+
+
+def test_distributions_match_documented_ranges(week):
+    values = collections.defaultdict(lambda: ([], []))
+    studies = {}
+    for path in glob.glob(os.path.join(str(week), "*", "*", "*.dcm")):
+        ds = pydicom.dcmread(path, stop_before_pixels=True)
+        studies[ds.StudyInstanceUID] = ds.StudyDescription
+        if ds.Modality != "US" or "MechanicalIndex" not in ds:
+            continue
+        mode = mode_of(int(ds.ImageType[3], 16))
+        ti = (ds.get("CranialThermalIndex") or ds.get("BoneThermalIndex")
+              or ds.get("SoftTissueThermalIndex"))
+        values[mode][0].append(float(ds.MechanicalIndex))
+        values[mode][1].append(float(ti))
+    assert set(values) == set(MODE_MEDIAN_RANGES)
+    for mode, ((mi_lo, mi_hi), (ti_lo, ti_hi)) in MODE_MEDIAN_RANGES.items():
+        mi = statistics.median(values[mode][0])
+        ti = statistics.median(values[mode][1])
+        assert mi_lo <= mi <= mi_hi, (mode, "MI", mi)
+        assert ti_lo <= ti <= ti_hi, (mode, "TI", ti)
+    # Doppler heats more than B-mode; B-mode has the highest MI.
+    assert statistics.median(values["pw"][1]) > statistics.median(values["colour"][1]) \
+        > statistics.median(values["b"][1])
+    assert statistics.median(values["b"][0]) > statistics.median(values["pw"][0])
+
+    assert WEEK_STUDIES[0] <= len(studies) <= WEEK_STUDIES[1]
+    mix = collections.Counter(studies.values())
+    for name, (descriptions, (low, high)) in MIX_RANGES.items():
+        share = sum(mix[d] for d in descriptions) / len(studies)
+        assert low <= share <= high, (name, share)
+
+
+def test_manifest_records_planted_problems(week):
+    with open(os.path.join(str(week), "manifest.csv")) as f:
+        header = f.readline().strip().split(",")
+        rows = [dict(zip(header, line.rstrip("\n").split(","))) for line in f]
+    assert header == ["path", "sop_instance_uid", "study_instance_uid", "exam_type",
+                      "preset", "room", "planted"]
+    tags = collections.Counter(t for r in rows for t in r["planted"].split(";") if t)
+    assert tags["mi-over-limit"] > 0          # day 5 (index 4) is in week 1
+    assert tags["resend"] > 0
+    resent = {r["sop_instance_uid"] for r in rows if "resend" in r["planted"]}
+    originals = [r for r in rows if r["sop_instance_uid"] in resent and "resend" not in r["planted"]]
+    assert len(originals) == len(resent)      # same UIDs appear twice
+    for r in rows[:50]:
+        assert os.path.isfile(os.path.join(str(week), r["path"]))
+
+
+def sample_of_each_kind(directory):
+    kinds = {}
+    for path in sorted(glob.glob(os.path.join(str(directory), "*", "*", "*.dcm"))):
+        ds = pydicom.dcmread(path, stop_before_pixels=True)
+        key = (ds.SOPClassUID, ds.get("PhotometricInterpretation", ""),
+               ds.ImageType[3] if "ImageType" in ds else "")
+        kinds.setdefault(key, path)
+    return kinds
+
+
+def test_dciodvfy_reports_no_errors(week):
+    if shutil.which("dciodvfy") is None:
+        pytest.skip("dciodvfy not installed")
+    kinds = sample_of_each_kind(week)
+    classes = {k[0] for k in kinds}
+    assert {US_IMAGE, US_MULTIFRAME, COMPREHENSIVE_SR} <= classes
+    for key, path in kinds.items():
+        run = subprocess.run(["dciodvfy", path], capture_output=True, text=True)
+        errors = [l for l in (run.stdout + run.stderr).splitlines() if l.startswith("Error")]
+        assert errors == [], (key, path, errors)
+
+
+def test_pydicom_reads_every_kind(week):
+    for (sop_class, _, _), path in sample_of_each_kind(week).items():
+        ds = pydicom.dcmread(path)
+        if sop_class == COMPREHENSIVE_SR:
+            codes = {(i.ConceptNameCodeSequence[0].CodingSchemeDesignator,
+                      i.ConceptNameCodeSequence[0].CodeValue) for i in ds.ContentSequence}
+            assert ("99MTSIM", "AO-SCANTIME") in codes
+            continue
+        pixels = ds.pixel_array
+        frames = int(ds.get("NumberOfFrames", 1))
+        expected = (((frames,) if frames > 1 else ()) + (ds.Rows, ds.Columns)
+                    + ((3,) if ds.SamplesPerPixel == 3 else ()))
+        assert pixels.shape == expected
+        assert len(ds.SequenceOfUltrasoundRegions) >= 1
+        if frames > 1:
+            assert ds.FrameIncrementPointer == 0x00181063
+
+
+def test_bad_arguments_exit_2(tmp_path):
+    if not os.access(BINARY, os.X_OK):
+        pytest.skip("no mitilog binary")
+    for args in (["--days", "0", "--out", str(tmp_path)], ["--bogus"],
+                 ["--out", str(tmp_path), "--start", "2026-13-01"], [],
+                 ["--send", "nohostport"]):
+        run = subprocess.run([BINARY, "simulate"] + args, capture_output=True)
+        assert run.returncode == 2, args
+    run = subprocess.run([BINARY, "simulate", "--help"], capture_output=True, text=True)
+    assert run.returncode == 0 and "--seed" in run.stdout
+
+
+def test_send_to_storescp(tmp_path):
+    """--send streams every study (the resend twice) with storescu."""
+    if shutil.which("storescp") is None or not os.access(BINARY, os.X_OK):
+        pytest.skip("storescp or mitilog missing")
+    import socket
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        port = s.getsockname()[1]
+    received = tmp_path / "received"
+    received.mkdir()
+    scp = subprocess.Popen(["storescp", "-od", str(received), "-uf", "--accept-all", str(port)],
+                           stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    try:
+        import time
+        time.sleep(0.5)
+        run = subprocess.run([BINARY, "simulate", "--days", "1", "--seed", "3",
+                              "--out", str(tmp_path / "out"), "--send", "127.0.0.1:%d" % port,
+                              "--called-aet", "ANY-SCP", "--speed", "0"],
+                             capture_output=True, text=True, timeout=300)
+    finally:
+        scp.terminate()
+        scp.wait()
+    assert run.returncode == 0, run.stderr
+    summary = [l for l in run.stdout.splitlines() if l.startswith("summary:")][0]
+    assert " 0 failed" in summary
+    with open(tmp_path / "out" / "manifest.csv") as f:
+        lines = f.read().splitlines()[1:]
+    assert "%d object(s) sent" % len(lines) in summary
+    assert len(os.listdir(received)) == len({l.split(",")[1] for l in lines})
+    # A dead port fails with a non-zero exit.
+    run = subprocess.run([BINARY, "simulate", "--days", "1", "--seed", "3",
+                          "--out", str(tmp_path / "out2"), "--send", "127.0.0.1:%d" % port],
+                         capture_output=True, text=True, timeout=300)
+    assert run.returncode == 1

@@ -1,0 +1,67 @@
+#!/usr/bin/env bash
+# tests/run.sh - the test command: installs the dependencies, builds the
+# normal tree (build/) and the sanitizer tree (build-asan/), runs the unit
+# tests of both with ctest, then the black-box integration tests against
+# both executables. Exits non-zero if anything fails; prints a summary.
+set -uo pipefail
+
+top=$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)
+cd "$top"
+
+# Debian's interpreter: it has python3-pydicom and python3-pytest (a python3
+# earlier on PATH, e.g. pyenv's, may not).
+python=/usr/bin/python3
+jobs=$(nproc 2>/dev/null || echo 2)
+started=$(date +%s)
+declare -a results=()
+failed=0
+
+step() {  # step NAME COMMAND...: runs, records PASS/FAIL with the duration
+  local name=$1; shift
+  local t0=$(date +%s)
+  echo
+  echo "=== $name"
+  if "$@"; then
+    results+=("PASS  $name ($(( $(date +%s) - t0 ))s)")
+  else
+    results+=("FAIL  $name ($(( $(date +%s) - t0 ))s)")
+    failed=1
+  fi
+}
+
+build_tree() {  # build_tree DIR CMAKE-OPTIONS...
+  local dir=$1; shift
+  cmake -S "$top" -B "$top/$dir" -DCMAKE_BUILD_TYPE=RelWithDebInfo "$@" &&
+    cmake --build "$top/$dir" -j"$jobs"
+}
+
+summary() {
+  echo
+  echo "=== summary ($(( $(date +%s) - started ))s)"
+  printf '%s\n' "${results[@]}"
+  if [ "$failed" -eq 0 ]; then echo "ALL PASSED"; else echo "FAILED"; fi
+}
+trap summary EXIT
+
+step "install dependencies" bash "$top/deploy/install-dependencies.sh" || true
+if [ "$failed" -ne 0 ]; then exit 1; fi
+
+step "build build/ (RelWithDebInfo)" build_tree build
+step "build build-asan/ (MITILOG_SANITIZE=ON)" build_tree build-asan -DMITILOG_SANITIZE=ON
+
+export ASAN_OPTIONS=detect_leaks=1:abort_on_error=1
+export UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1
+export TCP_NODELAY=1
+
+for tree in build build-asan; do
+  if [ -x "$top/$tree/mitilog" ]; then
+    step "unit tests $tree/" ctest --test-dir "$top/$tree" --output-on-failure -j"$jobs"
+    step "integration tests $tree/mitilog" env MITILOG_BINARY="$top/$tree/mitilog" \
+      "$python" -m pytest -v -p no:cacheprovider tests/integration
+  else
+    results+=("FAIL  $tree/mitilog was not built: tests not run")
+    failed=1
+  fi
+done
+
+exit "$failed"

@@ -1,0 +1,790 @@
+/* Unit tests of the store: schema migrations, writing with group commit
+ * (replacement, concurrency, one bad record failing alone, read-only and
+ * full databases) and the JSON queries. Each test uses a real database
+ * file in a fresh temporary directory. JSON results are read back with
+ * SQLite's own json_extract/json_type, never with a hand-made parser. */
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+
+#include <cmocka.h>
+
+#include <pthread.h>
+#include <sqlite3.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include "store/sql_files.h"
+#include "store/store.h"
+#include "store/store_internal.h"
+
+typedef struct fixture {
+    char directory[64];
+    char path[128];
+    store *store;
+} fixture;
+
+/* --- helpers ------------------------------------------------------------ */
+
+/* Creates a temporary directory and opens a store in it. */
+static int fixture_setup(void **state)
+{
+    fixture *f = calloc(1, sizeof *f);
+    assert_non_null(f);
+    snprintf(f->directory, sizeof f->directory, "/tmp/mitilog-store-XXXXXX");
+    assert_non_null(mkdtemp(f->directory));
+    snprintf(f->path, sizeof f->path, "%s/mitilog.db", f->directory);
+    mitilog_error error = {{0}};
+    if (store_open(f->path, 5000, &f->store, &error) != MITILOG_OK)
+        fail_msg("store_open: %s", error.text);
+    *state = f;
+    return 0;
+}
+
+/* Closes the store and removes the database files and the directory. */
+static int fixture_teardown(void **state)
+{
+    fixture *f = *state;
+    store_close(f->store);
+    const char *suffixes[] = {"", "-wal", "-shm"};
+    for (int i = 0; i < 3; i++) {
+        char name[160];
+        snprintf(name, sizeof name, "%s%s", f->path, suffixes[i]);
+        unlink(name);
+    }
+    chmod(f->directory, 0700);
+    rmdir(f->directory);
+    free(f);
+    return 0;
+}
+
+/* Duplicates text (NULL stays NULL). */
+static char *dup_text(const char *text)
+{
+    return text != NULL ? strdup(text) : NULL;
+}
+
+static ext_number ok_number(double value)
+{
+    ext_number number = {EXT_VALUE_OK, value};
+    return number;
+}
+
+static const ext_number missing_number = {EXT_VALUE_MISSING, 0.0};
+static const ext_number invalid_number = {EXT_VALUE_INVALID, 0.0};
+
+/* A record built by hand: every index missing unless set afterwards. */
+static void make_record(ext_record *record, const char *sop_instance_uid,
+                        const char *study_instance_uid,
+                        const char *acquired_at, const char *received_at)
+{
+    memset(record, 0, sizeof *record);
+    record->sop_class_uid = dup_text("1.2.840.10008.5.1.4.1.1.6.1");
+    record->sop_instance_uid = dup_text(sop_instance_uid);
+    record->study_instance_uid = dup_text(study_instance_uid);
+    record->series_instance_uid = dup_text("1.2.3.4");
+    record->modality = dup_text("US");
+    record->station_name = dup_text("US-ROOM-1");
+    record->institutional_department_name = dup_text("Imaging");
+    record->study_description = dup_text("OB 2nd trimester");
+    record->protocol_name = dup_text("OB General");
+    record->transfer_syntax_uid = dup_text("1.2.840.10008.1.2.1");
+    record->calling_ae_title = dup_text("SCANNER1");
+    snprintf(record->acquired_at, sizeof record->acquired_at, "%s",
+             acquired_at != NULL ? acquired_at : "");
+    record->acquired_at_source =
+        acquired_at != NULL ? EXT_TIME_ACQUISITION : EXT_TIME_NONE;
+    snprintf(record->received_at, sizeof record->received_at, "%s",
+             received_at != NULL ? received_at : "");
+    record->number_of_frames = missing_number;
+    record->frame_time_ms = missing_number;
+    record->is_ultrasound = 1;
+    for (int i = 0; i < EXT_INDEX_COUNT; i++)
+        record->indices[i] = missing_number;
+}
+
+/* Sets index i to an ok value with its raw text. */
+static void set_index(ext_record *record, ext_index index, ext_number number,
+                      const char *raw)
+{
+    record->indices[index] = number;
+    free(record->index_raw[index]);
+    record->index_raw[index] = dup_text(raw);
+}
+
+/* Frees what make_record() and set_index() allocated. */
+static void free_record(ext_record *record)
+{
+    char **texts[] = {
+        &record->sop_class_uid, &record->sop_instance_uid,
+        &record->study_instance_uid, &record->series_instance_uid,
+        &record->modality, &record->station_name,
+        &record->institutional_department_name, &record->study_description,
+        &record->protocol_name, &record->transfer_syntax_uid,
+        &record->calling_ae_title, &record->source_path};
+    for (size_t i = 0; i < sizeof texts / sizeof texts[0]; i++) {
+        free(*texts[i]);
+        *texts[i] = NULL;
+    }
+    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+        free(record->index_raw[i]);
+        record->index_raw[i] = NULL;
+    }
+}
+
+/* Evaluates "SELECT <function>(json, path)" in an in-memory SQLite and
+ * returns the result as malloc'ed text ("(null)" for SQL NULL). */
+static char *json_eval(const char *function, const char *json,
+                       const char *path)
+{
+    sqlite3 *db = NULL;
+    assert_int_equal(sqlite3_open(":memory:", &db), SQLITE_OK);
+    char sql[64];
+    snprintf(sql, sizeof sql, "SELECT %s(?1, ?2)", function);
+    sqlite3_stmt *statement = NULL;
+    assert_int_equal(sqlite3_prepare_v2(db, sql, -1, &statement, NULL),
+                     SQLITE_OK);
+    sqlite3_bind_text(statement, 1, json, -1, SQLITE_STATIC);
+    sqlite3_bind_text(statement, 2, path, -1, SQLITE_STATIC);
+    if (sqlite3_step(statement) != SQLITE_ROW)
+        fail_msg("%s(%s): %s", function, path, sqlite3_errmsg(db));
+    const unsigned char *text = sqlite3_column_text(statement, 0);
+    char *result = strdup(text != NULL ? (const char *)text : "(null)");
+    sqlite3_finalize(statement);
+    sqlite3_close(db);
+    return result;
+}
+
+/* Asserts that json_extract(json, path) is the text expected. */
+static void assert_json(const char *json, const char *path,
+                        const char *expected)
+{
+    char *value = json_eval("json_extract", json, path);
+    if (strcmp(value, expected) != 0)
+        fail_msg("%s: got '%s', expected '%s' in %s", path, value, expected,
+                 json);
+    free(value);
+}
+
+/* Asserts json_type(json, path): 'null', 'true', 'real', 'integer', ... */
+static void assert_json_type(const char *json, const char *path,
+                             const char *expected)
+{
+    char *type = json_eval("json_type", json, path);
+    if (strcmp(type, expected) != 0)
+        fail_msg("%s: type '%s', expected '%s'", path, type, expected);
+    free(type);
+}
+
+/* Asserts that json is an array of length elements. */
+static void assert_json_length(const char *json, int length)
+{
+    char *value = json_eval("json_array_length", json, "$");
+    char expected[16];
+    snprintf(expected, sizeof expected, "%d", length);
+    if (strcmp(value, expected) != 0)
+        fail_msg("array length %s, expected %d: %s", value, length, json);
+    free(value);
+}
+
+/* Runs one integer-valued SQL query on the database file with a separate
+ * connection, as the sqlite3 CLI would. */
+static long long query_int(const char *path, const char *sql)
+{
+    sqlite3 *db = NULL;
+    assert_int_equal(sqlite3_open_v2(path, &db, SQLITE_OPEN_READONLY, NULL),
+                     SQLITE_OK);
+    sqlite3_stmt *statement = NULL;
+    if (sqlite3_prepare_v2(db, sql, -1, &statement, NULL) != SQLITE_OK)
+        fail_msg("%s: %s", sql, sqlite3_errmsg(db));
+    assert_int_equal(sqlite3_step(statement), SQLITE_ROW);
+    long long value = sqlite3_column_int64(statement, 0);
+    sqlite3_finalize(statement);
+    sqlite3_close(db);
+    return value;
+}
+
+static char *instances_of_study(store *st, const char *study)
+{
+    store_instance_filter filter = {study, NULL, 0};
+    char *json = NULL;
+    mitilog_error error = {{0}};
+    if (store_instances_json(st, &filter, &json, &error) != MITILOG_OK)
+        fail_msg("store_instances_json: %s", error.text);
+    return json;
+}
+
+static int migration_count(void)
+{
+    int count = 0;
+    for (const sql_file *file = sql_files; file->name != NULL; file++)
+        count += strncmp(file->name, "migrations/", 11) == 0;
+    return count;
+}
+
+/* --- tests -------------------------------------------------------------- */
+
+static void open_creates_schema(void **state)
+{
+    fixture *f = *state;
+    assert_int_equal(migration_count(), 1);
+    assert_int_equal(store_schema_version(f->store), migration_count());
+    assert_int_equal(query_int(f->path, "PRAGMA user_version"),
+                     migration_count());
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM sqlite_schema "
+                                        "WHERE name IN ('instances', "
+                                        "'rejections')"),
+                     2);
+    /* Journal mode is persistent in the file: WAL. */
+    sqlite3 *db = NULL;
+    assert_int_equal(sqlite3_open(f->path, &db), SQLITE_OK);
+    sqlite3_stmt *statement = NULL;
+    sqlite3_prepare_v2(db, "PRAGMA journal_mode", -1, &statement, NULL);
+    assert_int_equal(sqlite3_step(statement), SQLITE_ROW);
+    assert_string_equal((const char *)sqlite3_column_text(statement, 0), "wal");
+    sqlite3_finalize(statement);
+    sqlite3_close(db);
+}
+
+static void put_and_read_back(void **state)
+{
+    fixture *f = *state;
+    ext_record record;
+    make_record(&record, "1.2.3.4.5.1", "1.2.3.4.5", "2024-03-01T10:15:00",
+                "2024-03-01T09:15:02.123Z");
+    set_index(&record, EXT_INDEX_MI, ok_number(0.8), "0.8");
+    set_index(&record, EXT_INDEX_TIS, ok_number(1.25), " 1.25 ");
+    set_index(&record, EXT_INDEX_TIB, missing_number, NULL);
+    set_index(&record, EXT_INDEX_TIC, invalid_number, "1,2");
+    set_index(&record, EXT_INDEX_TIS_FOCUS, ok_number(0.3), "3E-1");
+    set_index(&record, EXT_INDEX_TIS_SURFACE, missing_number, "");
+    record.number_of_frames = ok_number(12);
+    record.frame_time_ms = ok_number(33.5);
+
+    store_put_outcome outcome = STORE_PUT_REPLACED;
+    mitilog_error error = {{0}};
+    if (store_put_instance(f->store, &record, &outcome, &error) != MITILOG_OK)
+        fail_msg("put: %s", error.text);
+    assert_int_equal(outcome, STORE_PUT_INSERTED);
+
+    char *json = instances_of_study(f->store, "1.2.3.4.5");
+    assert_json_length(json, 1);
+    assert_json(json, "$[0].sop_instance_uid", "1.2.3.4.5.1");
+    assert_json(json, "$[0].study_instance_uid", "1.2.3.4.5");
+    assert_json(json, "$[0].sop_class_uid", "1.2.840.10008.5.1.4.1.1.6.1");
+    assert_json(json, "$[0].modality", "US");
+    assert_json(json, "$[0].station_name", "US-ROOM-1");
+    assert_json(json, "$[0].acquired_at", "2024-03-01T10:15:00");
+    assert_json(json, "$[0].acquired_at_source", "acquisition");
+    assert_json(json, "$[0].received_at", "2024-03-01T09:15:02.123Z");
+    assert_json(json, "$[0].number_of_frames", "12");
+    assert_json_type(json, "$[0].number_of_frames", "integer");
+    assert_json(json, "$[0].frame_time_ms", "33.5");
+    assert_json_type(json, "$[0].is_ultrasound", "true");
+    assert_json(json, "$[0].mi", "0.8");
+    assert_json(json, "$[0].tis", "1.25");
+    assert_json_type(json, "$[0].tib", "null");
+    assert_json_type(json, "$[0].tic", "null");
+    assert_json(json, "$[0].tis_focus", "0.3");
+    assert_json_type(json, "$[0].tis_surface", "null");
+    assert_json(json, "$[0].index_status.mi", "ok");
+    assert_json(json, "$[0].index_status.tib", "missing");
+    assert_json(json, "$[0].index_status.tic", "invalid");
+    assert_json(json, "$[0].index_raw.tis", " 1.25 ");
+    assert_json(json, "$[0].index_raw.tic", "1,2");
+    assert_json(json, "$[0].index_raw.tis_focus", "3E-1");
+    assert_json_type(json, "$[0].index_raw.tib", "null");
+    assert_json(json, "$[0].index_raw.tis_surface", "");
+    assert_json(json, "$[0].replaced_count", "0");
+    free(json);
+
+    /* The same instance through the since filter; a later since: none. */
+    store_instance_filter since = {NULL, "2024-03-01", 0};
+    assert_int_equal(store_instances_json(f->store, &since, &json, &error),
+                     MITILOG_OK);
+    assert_json(json, "$[0].sop_instance_uid", "1.2.3.4.5.1");
+    free(json);
+    since.since = "2024-03-02";
+    assert_int_equal(store_instances_json(f->store, &since, &json, &error),
+                     MITILOG_OK);
+    assert_string_equal(json, "[]");
+    free(json);
+    free_record(&record);
+}
+
+static void resend_replaces(void **state)
+{
+    fixture *f = *state;
+    ext_record record;
+    make_record(&record, "1.2.3.9.1", "1.2.3.9", "2024-03-01T10:00:00",
+                "2024-03-01T10:00:05.000Z");
+    set_index(&record, EXT_INDEX_MI, ok_number(1.0), "1.0");
+    store_put_outcome outcome;
+    mitilog_error error = {{0}};
+    assert_int_equal(store_put_instance(f->store, &record, &outcome, &error),
+                     MITILOG_OK);
+    assert_int_equal(outcome, STORE_PUT_INSERTED);
+
+    set_index(&record, EXT_INDEX_MI, ok_number(1.2), "1.2");
+    snprintf(record.received_at, sizeof record.received_at,
+             "2024-03-01T11:00:00.000Z");
+    assert_int_equal(store_put_instance(f->store, &record, &outcome, &error),
+                     MITILOG_OK);
+    assert_int_equal(outcome, STORE_PUT_REPLACED);
+
+    char *json = instances_of_study(f->store, "1.2.3.9");
+    assert_json_length(json, 1);
+    assert_json(json, "$[0].mi", "1.2");
+    assert_json(json, "$[0].replaced_count", "1");
+    assert_json(json, "$[0].received_at", "2024-03-01T11:00:00.000Z");
+    free(json);
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM instances "
+                                        "WHERE first_received_at = "
+                                        "'2024-03-01T10:00:05.000Z'"),
+                     1);
+    free_record(&record);
+}
+
+enum { THREADS = 8, PUTS_PER_THREAD = 200, UID_STRIDE = 100 };
+
+typedef struct worker {
+    store *store;
+    int thread;
+    int inserted;
+    int replaced;
+    int failed;
+} worker;
+
+/* Thread t puts UIDs t*100 .. t*100+199: neighbours overlap by 100. */
+static void *put_worker(void *argument)
+{
+    worker *w = argument;
+    for (int i = 0; i < PUTS_PER_THREAD; i++) {
+        char uid[64];
+        snprintf(uid, sizeof uid, "1.2.826.0.1.%d", w->thread * UID_STRIDE + i);
+        ext_record record;
+        make_record(&record, uid, "1.2.826.0.1", "2024-03-01T10:00:00", NULL);
+        set_index(&record, EXT_INDEX_MI, ok_number(0.01 * i), "x");
+        store_put_outcome outcome;
+        mitilog_error error;
+        if (store_put_instance(w->store, &record, &outcome, &error) !=
+            MITILOG_OK)
+            w->failed++;
+        else if (outcome == STORE_PUT_INSERTED)
+            w->inserted++;
+        else
+            w->replaced++;
+        free_record(&record);
+    }
+    return NULL;
+}
+
+static void concurrent_puts(void **state)
+{
+    fixture *f = *state;
+    pthread_t threads[THREADS];
+    worker workers[THREADS];
+    for (int t = 0; t < THREADS; t++) {
+        workers[t] = (worker){f->store, t, 0, 0, 0};
+        assert_int_equal(pthread_create(&threads[t], NULL, put_worker,
+                                        &workers[t]), 0);
+    }
+    int inserted = 0, replaced = 0, failed = 0;
+    for (int t = 0; t < THREADS; t++) {
+        pthread_join(threads[t], NULL);
+        inserted += workers[t].inserted;
+        replaced += workers[t].replaced;
+        failed += workers[t].failed;
+    }
+    /* Distinct UIDs: 0 .. 7*100+199 = 900; 1600 puts, so 700 replaced. */
+    assert_int_equal(failed, 0);
+    assert_int_equal(inserted, 900);
+    assert_int_equal(replaced, 700);
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM instances"), 900);
+    assert_int_equal(query_int(f->path,
+                               "SELECT sum(replaced_count) FROM instances"),
+                     700);
+}
+
+static void reopen_keeps_schema_and_rows(void **state)
+{
+    fixture *f = *state;
+    ext_record record;
+    make_record(&record, "1.2.3.7.1", "1.2.3.7", NULL, NULL);
+    mitilog_error error = {{0}};
+    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+                     MITILOG_OK);
+    store_close(f->store);
+    f->store = NULL;
+    /* After close the WAL was checkpointed and truncated into the file. */
+    char wal[160];
+    struct stat info;
+    snprintf(wal, sizeof wal, "%s-wal", f->path);
+    assert_true(stat(wal, &info) != 0 || info.st_size == 0);
+
+    /* Reopen: migration 001 would fail on CREATE TABLE if re-applied. */
+    if (store_open(f->path, 5000, &f->store, &error) != MITILOG_OK)
+        fail_msg("reopen: %s", error.text);
+    assert_int_equal(store_schema_version(f->store), migration_count());
+    char *json = instances_of_study(f->store, "1.2.3.7");
+    assert_json(json, "$[0].sop_instance_uid", "1.2.3.7.1");
+    assert_json_type(json, "$[0].acquired_at", "null");
+    assert_json(json, "$[0].acquired_at_source", "none");
+    free(json);
+    /* An empty received_at is filled with the UTC time of the write. */
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM instances "
+                                        "WHERE received_at GLOB "
+                                        "'2[0-9][0-9][0-9]-*T*Z'"),
+                     1);
+    free_record(&record);
+}
+
+static void read_only_database_fails_cleanly(void **state)
+{
+    fixture *f = *state;
+    ext_record record;
+    make_record(&record, "1.2.3.8.1", "1.2.3.8", NULL, NULL);
+    mitilog_error error = {{0}};
+    /* The process runs as root in CI, where file modes do not stop writes;
+     * query_only makes the writer connection refuse every write with
+     * SQLITE_READONLY, as a read-only file would. */
+    sqlite3 *writer = store_writer_connection(f->store);
+    assert_int_equal(sqlite3_exec(writer, "PRAGMA query_only = ON", NULL,
+                                  NULL, NULL), SQLITE_OK);
+    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+                     MITILOG_ERROR_DATABASE);
+    assert_non_null(strstr(error.text, "readonly"));
+    store_rejection rejection = {"", "", "", "", "", "", "", "test"};
+    assert_int_equal(store_put_rejection(f->store, &rejection, &error),
+                     MITILOG_ERROR_DATABASE);
+    /* Writable again: the connection recovers. */
+    assert_int_equal(sqlite3_exec(writer, "PRAGMA query_only = OFF", NULL,
+                                  NULL, NULL), SQLITE_OK);
+    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+                     MITILOG_OK);
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM instances"), 1);
+
+    /* A real read-only file, where file modes apply (not as root). */
+    if (geteuid() != 0) {
+        chmod(f->path, 0444);
+        chmod(f->directory, 0555);
+        store *read_only = NULL;
+        mitilog_status status = store_open(f->path, 100, &read_only, &error);
+        if (status == MITILOG_OK) {
+            assert_int_equal(store_put_instance(read_only, &record, NULL,
+                                                &error),
+                             MITILOG_ERROR_DATABASE);
+            store_close(read_only);
+        } else {
+            assert_int_equal(status, MITILOG_ERROR_DATABASE);
+        }
+        chmod(f->directory, 0700);
+        chmod(f->path, 0644);
+    }
+    free_record(&record);
+}
+
+static void full_database_fails_and_recovers(void **state)
+{
+    fixture *f = *state;
+    sqlite3 *writer = store_writer_connection(f->store);
+    /* Cap the file at its current size: the next new page is SQLITE_FULL,
+     * as on a full disk. */
+    assert_int_equal(sqlite3_exec(writer, "PRAGMA max_page_count = 1", NULL,
+                                  NULL, NULL), SQLITE_OK);
+    char long_text[4000];
+    memset(long_text, 'a', sizeof long_text - 1);
+    long_text[sizeof long_text - 1] = '\0';
+    ext_record record;
+    make_record(&record, "1.2.3.6.1", "1.2.3.6", NULL, NULL);
+    free(record.study_description);
+    record.study_description = strdup(long_text);
+    mitilog_error error = {{0}};
+    int failures = 0;
+    for (int i = 0; i < 20 && failures == 0; i++) {
+        char uid[32];
+        snprintf(uid, sizeof uid, "1.2.3.6.%d", i + 1);
+        free(record.sop_instance_uid);
+        record.sop_instance_uid = strdup(uid);
+        mitilog_status status = store_put_instance(f->store, &record, NULL,
+                                                   &error);
+        if (status != MITILOG_OK) {
+            assert_int_equal(status, MITILOG_ERROR_DATABASE);
+            assert_non_null(strstr(error.text, "full"));
+            failures++;
+            /* Nothing of the failed record is kept. */
+            char sql[96];
+            snprintf(sql, sizeof sql, "SELECT count(*) FROM instances "
+                                      "WHERE sop_instance_uid = '%s'", uid);
+            assert_int_equal(query_int(f->path, sql), 0);
+        }
+    }
+    assert_int_equal(failures, 1);
+    /* Space again: the same record goes in. */
+    assert_int_equal(sqlite3_exec(writer, "PRAGMA max_page_count = 1000000",
+                                  NULL, NULL, NULL), SQLITE_OK);
+    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+                     MITILOG_OK);
+    free_record(&record);
+}
+
+typedef struct batch_put {
+    store *store;
+    const char *uid;
+    mitilog_status status;
+    mitilog_error error;
+} batch_put;
+
+static void *batch_put_worker(void *argument)
+{
+    batch_put *put = argument;
+    ext_record record;
+    make_record(&record, put->uid, "1.2.3.5", NULL, NULL);
+    put->status = store_put_instance(put->store, &record, NULL, &put->error);
+    free_record(&record);
+    return NULL;
+}
+
+static void bad_record_fails_alone(void **state)
+{
+    fixture *f = *state;
+    /* A trigger on the writer refuses one UID inside the write. */
+    sqlite3 *writer = store_writer_connection(f->store);
+    assert_int_equal(
+        sqlite3_exec(writer,
+                     "CREATE TEMP TRIGGER refuse BEFORE INSERT ON "
+                     "main.instances WHEN NEW.sop_instance_uid = '1.2.3.5.66' "
+                     "BEGIN SELECT RAISE(ABORT, 'refused by test'); END",
+                     NULL, NULL, NULL),
+        SQLITE_OK);
+    /* Hold the write lock from another connection, so that the first
+     * leader waits in BEGIN IMMEDIATE while the others queue up behind it
+     * and then share one batch. */
+    sqlite3 *blocker = NULL;
+    assert_int_equal(sqlite3_open(f->path, &blocker), SQLITE_OK);
+    assert_int_equal(sqlite3_exec(blocker, "BEGIN IMMEDIATE", NULL, NULL,
+                                  NULL), SQLITE_OK);
+    const char *uids[] = {"1.2.3.5.1", "1.2.3.5.2", "1.2.3.5.66", "1.2.3.5.3"};
+    batch_put puts[4];
+    pthread_t threads[4];
+    for (int i = 0; i < 4; i++) {
+        puts[i] = (batch_put){f->store, uids[i], MITILOG_OK, {{0}}};
+        assert_int_equal(pthread_create(&threads[i], NULL, batch_put_worker,
+                                        &puts[i]), 0);
+        usleep(50000);
+    }
+    usleep(200000);
+    assert_int_equal(sqlite3_exec(blocker, "COMMIT", NULL, NULL, NULL),
+                     SQLITE_OK);
+    sqlite3_close(blocker);
+    for (int i = 0; i < 4; i++)
+        pthread_join(threads[i], NULL);
+    assert_int_equal(puts[0].status, MITILOG_OK);
+    assert_int_equal(puts[1].status, MITILOG_OK);
+    assert_int_equal(puts[2].status, MITILOG_ERROR_DATABASE);
+    assert_non_null(strstr(puts[2].error.text, "refused by test"));
+    assert_int_equal(puts[3].status, MITILOG_OK);
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM instances"), 3);
+}
+
+static void bad_input_is_refused(void **state)
+{
+    fixture *f = *state;
+    mitilog_error error = {{0}};
+    store *none = NULL;
+    assert_int_equal(store_open(NULL, 0, &none, &error), MITILOG_ERROR_INVALID);
+    assert_int_equal(store_open("/nonexistent-dir/x/y.db", 0, &none, &error),
+                     MITILOG_ERROR_DATABASE);
+    assert_null(none);
+    assert_int_equal(store_put_instance(f->store, NULL, NULL, &error),
+                     MITILOG_ERROR_INVALID);
+    assert_int_equal(store_put_instance(NULL, NULL, NULL, NULL),
+                     MITILOG_ERROR_INVALID);
+
+    ext_record record;
+    make_record(&record, "", "1.2", NULL, NULL);
+    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+                     MITILOG_ERROR_INVALID);
+    free_record(&record);
+
+    make_record(&record, "1.2.1", "1.2", NULL, NULL);
+    record.indices[EXT_INDEX_MI].status = (ext_value_status)42;
+    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+                     MITILOG_ERROR_INVALID);
+    record.indices[EXT_INDEX_MI] = ok_number(0.0 / 0.0); /* NaN */
+    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+                     MITILOG_ERROR_INVALID);
+    record.indices[EXT_INDEX_MI] = missing_number;
+    free(record.station_name);
+    record.station_name = strdup("Salle \xe9"); /* Latin-1, not UTF-8 */
+    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+                     MITILOG_ERROR_INVALID);
+    memset(record.acquired_at, 'x', sizeof record.acquired_at); /* no NUL */
+    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+                     MITILOG_ERROR_INVALID);
+    free_record(&record);
+    store_rejection no_reason = {0};
+    assert_int_equal(store_put_rejection(f->store, &no_reason, &error),
+                     MITILOG_ERROR_INVALID);
+    char *json = NULL;
+    assert_int_equal(store_instances_json(NULL, NULL, &json, &error),
+                     MITILOG_ERROR_INVALID);
+    store_close(NULL);
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM instances"), 0);
+}
+
+/* Puts one instance of study with the given time and indices (NAN: the
+ * index is missing). */
+static void put_study_instance(store *st, const char *uid, const char *study,
+                               const char *station, const char *acquired_at,
+                               const char *received_at, double mi, double tis)
+{
+    ext_record record;
+    make_record(&record, uid, study, acquired_at, received_at);
+    free(record.station_name);
+    record.station_name = strdup(station);
+    if (mi == mi)
+        set_index(&record, EXT_INDEX_MI, ok_number(mi), "mi");
+    else
+        set_index(&record, EXT_INDEX_MI, invalid_number, "bad");
+    if (tis == tis)
+        set_index(&record, EXT_INDEX_TIS, ok_number(tis), "tis");
+    mitilog_error error = {{0}};
+    if (store_put_instance(st, &record, NULL, &error) != MITILOG_OK)
+        fail_msg("put %s: %s", uid, error.text);
+    free_record(&record);
+}
+
+static void studies_aggregate(void **state)
+{
+    fixture *f = *state;
+    const double none = 0.0 / 0.0;
+    /* Study A, 2024-03-01, three instances sent out of order:
+     *   10:05 ROOM-2  MI 1.1  TIS -      (TIS missing)
+     *   10:00 ROOM-1  MI 0.8  TIS 0.4    <- first instance: station ROOM-1
+     *   10:20 ROOM-2  MI bad  TIS 0.9    (MI invalid: not counted)
+     * so max_mi = max(0.8, 1.1) = 1.1, max_tis = max(0.4, 0.9) = 0.9,
+     * max_tib = null (never ok), instance_count 3,
+     * first 10:00, last 10:20.
+     * Study B, no acquisition time, received 2024-03-02: MI 0.5. */
+    put_study_instance(f->store, "9.1.2", "9.1", "ROOM-2",
+                       "2024-03-01T10:05:00", "2024-03-01T09:06:00.000Z",
+                       1.1, none);
+    put_study_instance(f->store, "9.1.1", "9.1", "ROOM-1",
+                       "2024-03-01T10:00:00", "2024-03-01T09:01:00.000Z",
+                       0.8, 0.4);
+    put_study_instance(f->store, "9.1.3", "9.1", "ROOM-2",
+                       "2024-03-01T10:20:00", "2024-03-01T09:21:00.000Z",
+                       none, 0.9);
+    put_study_instance(f->store, "9.2.1", "9.2", "ROOM-3", NULL,
+                       "2024-03-02T08:00:00.000Z", 0.5, none);
+
+    char *json = NULL;
+    mitilog_error error = {{0}};
+    assert_int_equal(store_studies_json(f->store, NULL, NULL, &json, &error),
+                     MITILOG_OK);
+    assert_json_length(json, 2);
+    assert_json(json, "$[0].study_instance_uid", "9.1");
+    assert_json(json, "$[0].station_name", "ROOM-1");
+    assert_json(json, "$[0].instance_count", "3");
+    assert_json(json, "$[0].first_acquired_at", "2024-03-01T10:00:00");
+    assert_json(json, "$[0].last_acquired_at", "2024-03-01T10:20:00");
+    assert_json(json, "$[0].max_mi", "1.1");
+    assert_json(json, "$[0].max_tis", "0.9");
+    assert_json_type(json, "$[0].max_tib", "null");
+    assert_json(json, "$[1].study_instance_uid", "9.2");
+    assert_json_type(json, "$[1].first_acquired_at", "null");
+    assert_json(json, "$[1].max_mi", "0.5");
+    assert_json_type(json, "$[1].max_tis", "null");
+    free(json);
+
+    assert_int_equal(store_studies_json(f->store, "2024-03-01", "2024-03-01",
+                                        &json, &error), MITILOG_OK);
+    assert_json_length(json, 1);
+    assert_json(json, "$[0].study_instance_uid", "9.1");
+    free(json);
+    assert_int_equal(store_studies_json(f->store, "2024-03-02", NULL, &json,
+                                        &error), MITILOG_OK);
+    assert_json(json, "$[0].study_instance_uid", "9.2");
+    free(json);
+    assert_int_equal(store_studies_json(f->store, "2024-03-03", "2024-12-31",
+                                        &json, &error), MITILOG_OK);
+    assert_string_equal(json, "[]");
+    free(json);
+
+    /* Instances of study A in acquisition order, and the limit. */
+    store_instance_filter filter = {"9.1", NULL, 2};
+    assert_int_equal(store_instances_json(f->store, &filter, &json, &error),
+                     MITILOG_OK);
+    assert_json_length(json, 2);
+    assert_json(json, "$[0].sop_instance_uid", "9.1.1");
+    assert_json(json, "$[1].sop_instance_uid", "9.1.2");
+    free(json);
+}
+
+static void health_counts(void **state)
+{
+    fixture *f = *state;
+    char *json = NULL;
+    mitilog_error error = {{0}};
+    assert_int_equal(store_health_json(f->store, &json, &error), MITILOG_OK);
+    assert_json(json, "$.status", "ok");
+    assert_json(json, "$.database", "ok");
+    assert_json(json, "$.schema_version", "1");
+    assert_json(json, "$.instances", "0");
+    assert_json_type(json, "$.last_received_at", "null");
+    free(json);
+
+    put_study_instance(f->store, "8.1.1", "8.1", "R", NULL,
+                       "2024-05-01T10:00:00.000Z", 0.2, 0.1);
+    put_study_instance(f->store, "8.2.1", "8.2", "R", NULL,
+                       "2024-05-02T10:00:00.000Z", 0.2, 0.1);
+    store_rejection rejection = {"2024-05-02T10:00:01.000Z", "SCANNER1",
+                                 "10.0.0.5", "1.2.840.10008.5.1.4.1.1.7", "",
+                                 "", "", "no SOP Instance UID"};
+    assert_int_equal(store_put_rejection(f->store, &rejection, &error),
+                     MITILOG_OK);
+    assert_int_equal(store_health_json(f->store, &json, &error), MITILOG_OK);
+    assert_json(json, "$.instances", "2");
+    assert_json(json, "$.studies", "2");
+    assert_json(json, "$.rejections", "1");
+    assert_json(json, "$.last_received_at", "2024-05-02T10:00:00.000Z");
+    free(json);
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM rejections "
+                                        "WHERE reason = 'no SOP Instance UID' "
+                                        "AND peer_address = '10.0.0.5'"),
+                     1);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test_setup_teardown(open_creates_schema, fixture_setup,
+                                        fixture_teardown),
+        cmocka_unit_test_setup_teardown(put_and_read_back, fixture_setup,
+                                        fixture_teardown),
+        cmocka_unit_test_setup_teardown(resend_replaces, fixture_setup,
+                                        fixture_teardown),
+        cmocka_unit_test_setup_teardown(concurrent_puts, fixture_setup,
+                                        fixture_teardown),
+        cmocka_unit_test_setup_teardown(reopen_keeps_schema_and_rows,
+                                        fixture_setup, fixture_teardown),
+        cmocka_unit_test_setup_teardown(read_only_database_fails_cleanly,
+                                        fixture_setup, fixture_teardown),
+        cmocka_unit_test_setup_teardown(full_database_fails_and_recovers,
+                                        fixture_setup, fixture_teardown),
+        cmocka_unit_test_setup_teardown(bad_record_fails_alone, fixture_setup,
+                                        fixture_teardown),
+        cmocka_unit_test_setup_teardown(bad_input_is_refused, fixture_setup,
+                                        fixture_teardown),
+        cmocka_unit_test_setup_teardown(studies_aggregate, fixture_setup,
+                                        fixture_teardown),
+        cmocka_unit_test_setup_teardown(health_counts, fixture_setup,
+                                        fixture_teardown),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}
