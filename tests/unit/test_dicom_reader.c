@@ -622,7 +622,16 @@ static void test_save_header_encapsulated(void **state)
     assert_string_equal(reference, "");
     dcmdump_value(header_path, "0018,5022", reference, sizeof reference);
     assert_string_equal(reference, "0.7");
+    /* Nothing encapsulated is left, so the original transfer syntax
+     * (JPEG Baseline [std: PS3.5 A.4.1, 1.2.840.10008.1.2.4.50]) is kept;
+     * dcmdump shows it as =JPEGBaseline. */
+    dcmdump_value(header_path, "0002,0010", reference, sizeof reference);
+    assert_string_equal(reference, "=JPEGBaseline");
+    dcm_facts facts;
     assert_int_equal(dcm_object_load(header_path, &object, &error), MITILOG_OK);
+    assert_int_equal(dcm_object_facts(object, 8, &facts, &error), MITILOG_OK);
+    assert_string_equal(facts.transfer_syntax_uid, "1.2.840.10008.1.2.4.50");
+    dcm_facts_free(&facts);
     dcm_object_free(object);
 }
 
