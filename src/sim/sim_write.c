@@ -610,9 +610,15 @@ static mitilog_status sim_write_exam(sim_writer *w, const sim_exam *exam,
         }
         snprintf(relative, sizeof relative, "%s/%03zu.dcm", study_dir, i + 1);
         CHECK(sim_save(w, relative));
-        snprintf(kept->lines[kept->count++], sizeof kept->lines[0],
-                 "%s,%s,%s,%s,%s,%s", relative, sop, study_uid, type->key,
-                 type->preset, sim_rooms[exam->slot.room].station_name);
+        int written = snprintf(kept->lines[kept->count++],
+                               sizeof kept->lines[0], "%s,%s,%s,%s,%s,%s",
+                               relative, sop, study_uid, type->key,
+                               type->preset,
+                               sim_rooms[exam->slot.room].station_name);
+        if (written < 0 || (size_t)written >= sizeof kept->lines[0])
+            return mitilog_error_set(w->error, MITILOG_ERROR_INVALID,
+                                     "manifest line too long for %s",
+                                     relative);
         fprintf(w->manifest, "%s,%s\n", kept->lines[kept->count - 1], tags);
     }
 

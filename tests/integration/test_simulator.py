@@ -214,7 +214,8 @@ def test_send_to_storescp(tmp_path):
         port = s.getsockname()[1]
     received = tmp_path / "received"
     received.mkdir()
-    scp = subprocess.Popen(["storescp", "-od", str(received), "-uf", "--accept-all", str(port)],
+    env = dict(os.environ, TCP_NODELAY="1")   # see shared dcmtk-notes: Nagle
+    scp = subprocess.Popen(["storescp", "-od", str(received), "-uf", "--accept-all", str(port)], env=env,
                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     try:
         import time
