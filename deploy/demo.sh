@@ -86,7 +86,7 @@ done
 
 echo "demo: sending $days days of simulated traffic (seed $seed) to 127.0.0.1:$dicom_port"
 build/mitilog simulate --days "$days" --seed "$seed" --out "$data/simulated" \
-    --send "127.0.0.1:$dicom_port" --aet SIMULATOR --called-aet MITILOG --speed "$speed"
+    --send "127.0.0.1:$dicom_port" --called-aet MITILOG --speed "$speed"
 
 cat <<TEXT
 
