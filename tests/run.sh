@@ -46,20 +46,28 @@ trap summary EXIT
 step "install dependencies" bash "$top/deploy/install-dependencies.sh" || true
 if [ "$failed" -ne 0 ]; then exit 1; fi
 
-step "build build/ (RelWithDebInfo)" build_tree build
-step "build build-asan/ (MITILOG_SANITIZE=ON)" build_tree build-asan -DMITILOG_SANITIZE=ON
+declare -A built=()
+for tree in build build-asan; do
+  options=(-DMITILOG_SANITIZE=OFF)
+  [ "$tree" = build-asan ] && options=(-DMITILOG_SANITIZE=ON)
+  before=$failed
+  failed=0
+  step "build $tree/ (RelWithDebInfo, ${options[*]})" build_tree "$tree" "${options[@]}"
+  [ "$failed" -eq 0 ] && built[$tree]=1
+  [ "$before" -ne 0 ] && failed=1
+done
 
 export ASAN_OPTIONS=detect_leaks=1:abort_on_error=1
 export UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1
 export TCP_NODELAY=1
 
 for tree in build build-asan; do
-  if [ -x "$top/$tree/mitilog" ]; then
+  if [ -n "${built[$tree]:-}" ] && [ -x "$top/$tree/mitilog" ]; then
     step "unit tests $tree/" ctest --test-dir "$top/$tree" --output-on-failure -j"$jobs"
     step "integration tests $tree/mitilog" env MITILOG_BINARY="$top/$tree/mitilog" \
       "$python" -m pytest -v -p no:cacheprovider tests/integration
   else
-    results+=("FAIL  $tree/mitilog was not built: tests not run")
+    results+=("FAIL  $tree/ did not build: its tests were not run")
     failed=1
   fi
 done

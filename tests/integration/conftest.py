@@ -53,10 +53,14 @@ def echoscu(port, called=AE_TITLE, calling="ECHOSCU", timeout=10):
                 "-aet", calling, "127.0.0.1", str(port)], timeout=timeout)
 
 
+LIVE_DAEMONS = []
+
+
 class Daemon:
     """One mitilog configuration (and, once started, one serve process)."""
 
     def __init__(self, workdir, dicom=None, http=None, storage=None):
+        LIVE_DAEMONS.append(self)
         self.workdir = str(workdir)
         os.makedirs(self.workdir, exist_ok=True)
         self.dicom_port = free_port()
@@ -88,6 +92,7 @@ class Daemon:
         self.stderr_path = os.path.join(self.workdir, "serve.stderr")
         self.process = None
         self.returncode = None
+        self.stopped_at = None
         self.allowed_error_windows = []   # (start, end) offsets in stderr
         self.allowed_error_patterns = []
 
@@ -136,6 +141,7 @@ class Daemon:
         finally:
             self._out.close()
             self._err.close()
+            self.stopped_at = time.time()
         return self.returncode
 
     def stop(self, timeout=60):
@@ -279,6 +285,23 @@ def module_daemon_factory(tmp_path_factory):
         except AssertionError as e:
             failures.append(str(e))
     assert not failures, "\n\n".join(failures)
+
+
+@pytest.hookimpl(hookwrapper=True)
+def pytest_runtest_makereport(item, call):
+    """On a failure, attach the stderr of every daemon of the test run."""
+    outcome = yield
+    report = outcome.get_result()
+    if report.failed:
+        for daemon in LIVE_DAEMONS:
+            if daemon.process is None or (daemon.returncode is not None
+                                          and daemon.stopped_at < call.start):
+                continue  # not running during this test
+            text = daemon.log()
+            if text:
+                tail = "\n".join(text.splitlines()[-150:])
+                report.sections.append(("mitilog stderr (%s)" % daemon.workdir,
+                                        tail))
 
 
 def pytest_report_header(config):
