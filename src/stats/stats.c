@@ -1,0 +1,96 @@
+#include "stats/stats.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+static int compare_doubles(const void *left, const void *right)
+{
+    double a = *(const double *)left, b = *(const double *)right;
+    return (a > b) - (a < b);
+}
+
+void stats_sort(double *values, size_t count)
+{
+    if (count > 1)
+        qsort(values, count, sizeof *values, compare_doubles);
+}
+
+mitilog_status stats_quantile_sorted(const double *sorted, size_t count, double p, double *out)
+{
+    if (count == 0 || !(p >= 0.0 && p <= 1.0))
+        return MITILOG_ERROR_INVALID;
+    double h = (double)(count - 1) * p;
+    size_t low = (size_t)floor(h);
+    if (low >= count - 1) {
+        *out = sorted[count - 1];
+        return MITILOG_OK;
+    }
+    double fraction = h - (double)low;
+    *out = sorted[low] + fraction * (sorted[low + 1] - sorted[low]);
+    return MITILOG_OK;
+}
+
+mitilog_status stats_median_sorted(const double *sorted, size_t count, double *out)
+{
+    return stats_quantile_sorted(sorted, count, 0.5, out);
+}
+
+mitilog_status stats_mad(const double *values, size_t count, double *scratch, double *median,
+                         double *mad)
+{
+    if (count == 0)
+        return MITILOG_ERROR_INVALID;
+    memcpy(scratch, values, count * sizeof *scratch);
+    stats_sort(scratch, count);
+    stats_median_sorted(scratch, count, median);
+    for (size_t i = 0; i < count; i++)
+        scratch[i] = fabs(values[i] - *median);
+    stats_sort(scratch, count);
+    return stats_median_sorted(scratch, count, mad);
+}
+
+mitilog_status stats_robust_z(double x, double median, double mad, double *out)
+{
+    if (!(mad > 0.0))
+        return MITILOG_ERROR_INVALID;
+    *out = (x - median) / (STATS_MAD_SCALE * mad);
+    return MITILOG_OK;
+}
+
+mitilog_status stats_summarise(double *values, size_t count, stats_summary *summary)
+{
+    memset(summary, 0, sizeof *summary);
+    if (count == 0)
+        return MITILOG_ERROR_INVALID;
+    stats_sort(values, count);
+    summary->count = count;
+    summary->minimum = values[0];
+    summary->maximum = values[count - 1];
+    stats_quantile_sorted(values, count, 0.5, &summary->median);
+    stats_quantile_sorted(values, count, 0.75, &summary->p75);
+    stats_quantile_sorted(values, count, 0.95, &summary->p95);
+    return MITILOG_OK;
+}
+
+mitilog_status stats_outlier_test(double x, const double *baseline_sorted, size_t baseline_count,
+                                  double *scratch, double z_limit, stats_outlier *result)
+{
+    memset(result, 0, sizeof *result);
+    result->robust_z = NAN;
+    if (baseline_count == 0)
+        return MITILOG_ERROR_INVALID;
+    if (z_limit <= 0)
+        z_limit = 3.0;
+    stats_mad(baseline_sorted, baseline_count, scratch, &result->baseline_median,
+              &result->baseline_mad);
+    stats_quantile_sorted(baseline_sorted, baseline_count, 0.95, &result->baseline_p95);
+    double z;
+    if (stats_robust_z(x, result->baseline_median, result->baseline_mad, &z) == MITILOG_OK) {
+        result->robust_z = z;
+        result->above_robust_z = z > z_limit;
+    }
+    result->above_p95 = x > result->baseline_p95;
+    result->is_outlier = result->above_robust_z || result->above_p95;
+    return MITILOG_OK;
+}

@@ -1,0 +1,126 @@
+/* Statistics checked against Python's statistics module on the same
+ * numbers. The expected values were printed by (Python 3.11):
+ *   import statistics as s
+ *   data = [0.4,1.2,0.9,2.3,0.7,1.1,1.5,0.3,0.8,1.0,1.9]
+ *   s.median(data)                                  -> 1.0
+ *   s.quantiles(data, n=4, method='inclusive')      -> [0.75, 1.0, 1.35]
+ *   s.quantiles(data, n=20, method='inclusive')[18] -> 2.1   (P95)
+ *   even = [1.0, 2.0, 4.0, 7.0]
+ *   s.median(even) -> 3.0; quantiles(n=4) -> [1.75, 3.0, 4.75];
+ *   quantiles(n=20)[18] -> 6.55
+ * The 'inclusive' method is Hyndman & Fan (1996) type 7 (R's default). */
+#include <math.h>
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <string.h>
+
+#include <cmocka.h>
+
+#include "stats/stats.h"
+
+#define assert_close(actual, expected)                                                  \
+    do {                                                                                \
+        double actual_value = (actual), expected_value = (expected);                    \
+        if (fabs(actual_value - expected_value) > 1e-12)                                \
+            fail_msg("%.15g != %.15g", actual_value, expected_value);                   \
+    } while (0)
+
+static const double data[] = {0.4, 1.2, 0.9, 2.3, 0.7, 1.1, 1.5, 0.3, 0.8, 1.0, 1.9};
+enum { DATA_COUNT = sizeof data / sizeof data[0] };
+
+static void quantiles_match_python_inclusive(void **state)
+{
+    (void)state;
+    double sorted[DATA_COUNT];
+    memcpy(sorted, data, sizeof data);
+    stats_sort(sorted, DATA_COUNT);
+    double value;
+    assert_int_equal(stats_median_sorted(sorted, DATA_COUNT, &value), MITILOG_OK);
+    assert_close(value, 1.0);
+    stats_quantile_sorted(sorted, DATA_COUNT, 0.25, &value);
+    assert_close(value, 0.75);
+    stats_quantile_sorted(sorted, DATA_COUNT, 0.75, &value);
+    assert_close(value, 1.35);
+    stats_quantile_sorted(sorted, DATA_COUNT, 0.95, &value);
+    assert_close(value, 2.1);
+    stats_quantile_sorted(sorted, DATA_COUNT, 0.0, &value);
+    assert_close(value, 0.3);
+    stats_quantile_sorted(sorted, DATA_COUNT, 1.0, &value);
+    assert_close(value, 2.3);
+}
+
+static void even_count(void **state)
+{
+    (void)state;
+    double even[] = {7.0, 1.0, 4.0, 2.0};
+    stats_summary summary;
+    assert_int_equal(stats_summarise(even, 4, &summary), MITILOG_OK);
+    assert_close(summary.median, 3.0);
+    assert_close(summary.p75, 4.75);
+    assert_close(summary.p95, 6.55);
+    assert_close(summary.minimum, 1.0);
+    assert_close(summary.maximum, 7.0);
+    double one = 0.8;
+    assert_int_equal(stats_summarise(&one, 1, &summary), MITILOG_OK);
+    assert_close(summary.p95, 0.8);
+    assert_int_equal(stats_summarise(even, 0, &summary), MITILOG_ERROR_INVALID);
+    double value;
+    assert_int_equal(stats_quantile_sorted(even, 4, 1.5, &value), MITILOG_ERROR_INVALID);
+}
+
+/* Robust z, worked by hand on the data above: median 1.0; absolute
+ * deviations sorted 0,0.1,0.1,0.2,0.2,0.3,0.3,0.5,0.6,0.7,1.3 -> MAD 0.3;
+ * z(2.5) = (2.5 - 1.0) / (1.4826 x 0.3) = 1.5 / 0.44478 = 3.37245...
+ * z(2.3) = 1.3 / 0.44478 = 2.92279... (below 3, but above P95 = 2.1). */
+static void robust_z_hand_worked(void **state)
+{
+    (void)state;
+    double scratch[DATA_COUNT], median, mad, z;
+    assert_int_equal(stats_mad(data, DATA_COUNT, scratch, &median, &mad), MITILOG_OK);
+    assert_close(median, 1.0);
+    assert_close(mad, 0.3);
+    stats_robust_z(2.5, median, mad, &z);
+    assert_close(z, 1.5 / (1.4826 * 0.3));
+    assert_true(z > 3.3724 && z < 3.3725);
+
+    double sorted[DATA_COUNT];
+    memcpy(sorted, data, sizeof data);
+    stats_sort(sorted, DATA_COUNT);
+    stats_outlier outlier;
+    stats_outlier_test(2.3, sorted, DATA_COUNT, scratch, 3.0, &outlier);
+    assert_true(outlier.is_outlier);
+    assert_false(outlier.above_robust_z);
+    assert_true(outlier.above_p95);
+    stats_outlier_test(2.0, sorted, DATA_COUNT, scratch, 3.0, &outlier);
+    assert_false(outlier.is_outlier); /* z = 2.248, below P95 2.1 */
+    stats_outlier_test(2.5, sorted, DATA_COUNT, scratch, 3.0, &outlier);
+    assert_true(outlier.above_robust_z && outlier.above_p95);
+}
+
+/* A baseline of identical values has MAD 0: z is undefined and only the
+ * P95 criterion decides (documented choice, common practice, no source). */
+static void zero_mad_falls_back_on_p95(void **state)
+{
+    (void)state;
+    double flat[] = {0.3, 0.3, 0.3, 0.3, 0.3};
+    double scratch[5];
+    stats_outlier outlier;
+    stats_outlier_test(0.3, flat, 5, scratch, 3.0, &outlier);
+    assert_false(outlier.is_outlier);
+    assert_true(isnan(outlier.robust_z));
+    stats_outlier_test(0.4, flat, 5, scratch, 3.0, &outlier);
+    assert_true(outlier.is_outlier && outlier.above_p95 && !outlier.above_robust_z);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(quantiles_match_python_inclusive),
+        cmocka_unit_test(even_count),
+        cmocka_unit_test(robust_z_hand_worked),
+        cmocka_unit_test(zero_mad_falls_back_on_p95),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}
