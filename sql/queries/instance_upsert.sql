@@ -1,6 +1,7 @@
 -- Store one instance (store_put_instance). A re-sent SOP Instance UID
 -- updates the row in place: same id, replaced_count + 1, first_received_at
--- kept. Returns replaced_count: 0 for a new row, > 0 for a replacement.
+-- kept. Returns replaced_count (0 for a new row, > 0 for a replacement)
+-- and the row's id.
 -- An empty :received_at means "now" (UTC).
 INSERT INTO instances (
     sop_instance_uid, sop_class_uid, study_instance_uid, series_instance_uid,
@@ -14,7 +15,16 @@ INSERT INTO instances (
     tib, tib_status, tib_raw,
     tic, tic_status, tic_raw,
     tis_focus, tis_focus_status, tis_focus_raw,
-    tis_surface, tis_surface_status, tis_surface_raw)
+    tis_surface, tis_surface_status, tis_surface_raw,
+    object_kind, has_acoustic_record, specific_character_set, image_type,
+    series_description, body_part_examined, performed_procedure_step_description,
+    procedure_codes, modes, image_type_bitmap, image_type_bitmap_status,
+    modes_conflict, transducer_data, transducer_source, transducer_type,
+    frequency_khz, frequency_source, cine_seconds, exam_type, exam_type_label,
+    exam_type_source, governing_index, governing_index_source,
+    gestational_age_weeks, gestational_age_source, preset, preset_source, room,
+    room_source, shift, shift_source, age_group, age_group_source,
+    operator_name, operator_source, overlong_fields, text_replaced)
 VALUES (
     :sop_instance_uid, :sop_class_uid, :study_instance_uid, :series_instance_uid,
     :modality, :station_name, :institutional_department_name, :study_description,
@@ -29,7 +39,8 @@ VALUES (
     :tib, :tib_status, :tib_raw,
     :tic, :tic_status, :tic_raw,
     :tis_focus, :tis_focus_status, :tis_focus_raw,
-    :tis_surface, :tis_surface_status, :tis_surface_raw)
+    :tis_surface, :tis_surface_status, :tis_surface_raw,
+    :object_kind, :has_acoustic_record, :specific_character_set, :image_type, :series_description, :body_part_examined, :performed_procedure_step_description, :procedure_codes, :modes, :image_type_bitmap, :image_type_bitmap_status, :modes_conflict, :transducer_data, :transducer_source, :transducer_type, :frequency_khz, :frequency_source, :cine_seconds, :exam_type, :exam_type_label, :exam_type_source, :governing_index, :governing_index_source, :gestational_age_weeks, :gestational_age_source, :preset, :preset_source, :room, :room_source, :shift, :shift_source, :age_group, :age_group_source, :operator_name, :operator_source, :overlong_fields, :text_replaced)
 ON CONFLICT (sop_instance_uid) DO UPDATE SET
     sop_class_uid = excluded.sop_class_uid,
     study_instance_uid = excluded.study_instance_uid,
@@ -58,5 +69,42 @@ ON CONFLICT (sop_instance_uid) DO UPDATE SET
     tis_focus = excluded.tis_focus, tis_focus_status = excluded.tis_focus_status,
     tis_focus_raw = excluded.tis_focus_raw,
     tis_surface = excluded.tis_surface, tis_surface_status = excluded.tis_surface_status,
-    tis_surface_raw = excluded.tis_surface_raw
-RETURNING replaced_count;
+    tis_surface_raw = excluded.tis_surface_raw,
+    object_kind = excluded.object_kind,
+    has_acoustic_record = excluded.has_acoustic_record,
+    specific_character_set = excluded.specific_character_set,
+    image_type = excluded.image_type,
+    series_description = excluded.series_description,
+    body_part_examined = excluded.body_part_examined,
+    performed_procedure_step_description = excluded.performed_procedure_step_description,
+    procedure_codes = excluded.procedure_codes,
+    modes = excluded.modes,
+    image_type_bitmap = excluded.image_type_bitmap,
+    image_type_bitmap_status = excluded.image_type_bitmap_status,
+    modes_conflict = excluded.modes_conflict,
+    transducer_data = excluded.transducer_data,
+    transducer_source = excluded.transducer_source,
+    transducer_type = excluded.transducer_type,
+    frequency_khz = excluded.frequency_khz,
+    frequency_source = excluded.frequency_source,
+    cine_seconds = excluded.cine_seconds,
+    exam_type = excluded.exam_type,
+    exam_type_label = excluded.exam_type_label,
+    exam_type_source = excluded.exam_type_source,
+    governing_index = excluded.governing_index,
+    governing_index_source = excluded.governing_index_source,
+    gestational_age_weeks = excluded.gestational_age_weeks,
+    gestational_age_source = excluded.gestational_age_source,
+    preset = excluded.preset,
+    preset_source = excluded.preset_source,
+    room = excluded.room,
+    room_source = excluded.room_source,
+    shift = excluded.shift,
+    shift_source = excluded.shift_source,
+    age_group = excluded.age_group,
+    age_group_source = excluded.age_group_source,
+    operator_name = excluded.operator_name,
+    operator_source = excluded.operator_source,
+    overlong_fields = excluded.overlong_fields,
+    text_replaced = excluded.text_replaced
+RETURNING replaced_count, id;

@@ -8,7 +8,8 @@
 -- max_*: the largest 'ok' value of each index (the value columns hold
 -- numbers only for 'ok'), null when none. Instances without a Study
 -- Instance UID belong to no study and are left out.
--- station_name and study_description are those of the first instance.
+-- station_name, study_description, transducer, preset, room, shift and
+-- age_group are those of the first instance; modes: of all instances.
 WITH ranked AS (
     SELECT *,
            coalesce(acquired_at, received_at) AS effective_at,
@@ -31,25 +32,61 @@ studies AS (
            max(tib) AS max_tib,
            max(tic) AS max_tic,
            max(tis_focus) AS max_tis_focus,
-           max(tis_surface) AS max_tis_surface
+           max(tis_surface) AS max_tis_surface,
+           max(iif(position = 1, transducer_data, NULL)) AS transducer,
+           max(iif(position = 1, frequency_khz / 1000.0, NULL)) AS frequency_mhz,
+           max(iif(position = 1, preset, NULL)) AS preset,
+           max(iif(position = 1, room, NULL)) AS room,
+           max(iif(position = 1, shift, NULL)) AS shift,
+           max(iif(position = 1, age_group, NULL)) AS age_group,
+           (SELECT json_group_array(mode) FROM
+               (SELECT DISTINCT m.mode, m.rank FROM instance_modes m
+                JOIN instances j ON j.id = m.instance_id
+                WHERE j.study_instance_uid = ranked.study_instance_uid
+                ORDER BY m.rank)) AS modes
     FROM ranked
     GROUP BY study_instance_uid
 )
 SELECT json_group_array(json_object(
-    'study_instance_uid', study_instance_uid,
-    'study_description', study_description,
-    'station_name', station_name,
-    'instance_count', instance_count,
-    'first_acquired_at', first_acquired_at,
-    'last_acquired_at', last_acquired_at,
-    'max_mi', max_mi,
-    'max_tis', max_tis,
-    'max_tib', max_tib,
-    'max_tic', max_tic,
-    'max_tis_focus', max_tis_focus,
-    'max_tis_surface', max_tis_surface))
+    'study_instance_uid', s.study_instance_uid,
+    'study_description', s.study_description,
+    'station_name', s.station_name,
+    'instance_count', s.instance_count,
+    'first_acquired_at', s.first_acquired_at,
+    'last_acquired_at', s.last_acquired_at,
+    'max_mi', s.max_mi,
+    'max_tis', s.max_tis,
+    'max_tib', s.max_tib,
+    'max_tic', s.max_tic,
+    'max_tis_focus', s.max_tis_focus,
+    'max_tis_surface', s.max_tis_surface,
+    -- The exam record (migration 002), null until it has been built.
+    'exam_type', e.exam_type,
+    'exam_type_label', e.exam_type_label,
+    'governing_index', e.governing_index,
+    'max_governing', CASE e.governing_index WHEN 'tis' THEN s.max_tis
+                     WHEN 'tib' THEN s.max_tib WHEN 'tic' THEN s.max_tic END,
+    'gestational_age_weeks', e.gestational_age_weeks,
+    'modes', json(s.modes),
+    'transducer', s.transducer,
+    'frequency_mhz', s.frequency_mhz,
+    'preset', s.preset,
+    'room', s.room,
+    'shift', s.shift,
+    'age_group', s.age_group,
+    'estimated_scan_seconds', e.estimated_seconds,
+    'source', json_object(
+        'exam_type', e.exam_type_source,
+        'governing_index', e.governing_index_source,
+        'gestational_age_weeks', e.gestational_age_source,
+        'transducer', 'first instance',
+        'preset', 'first instance',
+        'room', 'first instance',
+        'shift', 'first instance',
+        'age_group', 'first instance')))
 FROM (
     SELECT * FROM studies
     WHERE (?1 IS NULL OR substr(first_effective_at, 1, 10) >= ?1)
       AND (?2 IS NULL OR substr(first_effective_at, 1, 10) <= ?2)
-    ORDER BY first_effective_at, study_instance_uid);
+    ORDER BY first_effective_at, study_instance_uid) AS s
+LEFT JOIN exams e ON e.study_instance_uid = s.study_instance_uid;

@@ -14,6 +14,7 @@ static const subcommand subcommands[] = {
     {"serve", command_serve, "run the DICOM receiver and the HTTP dashboard"},
     {"import", command_import, "read DICOM files or folders into the database"},
     {"check-config", command_check_config, "validate a configuration and print it"},
+    {"inspect", command_inspect, "print what mitilog extracts from one DICOM file"},
     {"simulate", command_simulate, "generate a fictional department's ultrasound traffic"},
 };
 

@@ -61,6 +61,12 @@ static const option options[] = {
      "What is kept of each object: none, header (pixel data dropped) or full."},
     {"storage", "busy_timeout_ms", OPTION_UNSIGNED, FIELD(busy_timeout_ms), "5000", 0, 600000, NULL, 0,
      "How long a write waits for a locked database before answering A700."},
+    {"site", "rules", OPTION_STRING, FIELD(site_rules_path), MITILOG_SOURCE_DIR "/conf/site.ini", 0,
+     0, NULL, 1,
+     "Site file: exam types, rooms, shifts, age groups, SR codes (docs/configuration.md); "
+     "empty for none."},
+    {"rules", "policy", OPTION_STRING, FIELD(rules_policy_path), MITILOG_SOURCE_DIR "/conf/policy.ini",
+     0, 0, NULL, 1, "ALARA policy file: rules, limits and their sources (docs/policy.md)."},
     {"log", "level", OPTION_CHOICE, FIELD(log_level), "info", 0, 0, "|debug|info|warning|error|", 0,
      "Lowest level written to stderr."},
 };

@@ -42,6 +42,12 @@ typedef struct config {
     char *retention;               /* "none", "header" or "full" */
     unsigned busy_timeout_ms;
 
+    /* [site] */
+    char *site_rules_path;         /* the site file (conf/site.ini); "" = none */
+
+    /* [rules] */
+    char *rules_policy_path;       /* the ALARA policy file (conf/policy.ini) */
+
     /* [log] */
     char *log_level;               /* debug, info, warning, error */
 } config;

@@ -170,8 +170,16 @@ mitilog_status dcm_object_save_header(dcm_object *object, const char *path,
 enum {
     DCM_STATUS_SUCCESS = 0x0000,
     DCM_STATUS_OUT_OF_RESOURCES = 0xA700,
-    DCM_STATUS_CANNOT_UNDERSTAND = 0xC000
+    DCM_STATUS_CANNOT_UNDERSTAND = 0xC000,
+    /* Cxxx "Error: Cannot understand" (PS3.4 B.2.3), a failure the sender
+     * should not retry: the object exceeds [dicom] max_object_bytes. */
+    DCM_STATUS_TOO_LARGE = 0xC001
 };
+
+/* When the spool's filesystem has less free space than this, a C-STORE
+ * is read into memory, dropped and answered A700: DCMTK 3.6.7 stalls
+ * until the DIMSE timeout when writing the spool file fails. */
+enum { DCM_SPOOL_RESERVE_BYTES = 1 << 20 };
 
 /* What the handler is told about one received C-STORE. The object has
  * been written byte for byte, with a meta header, to spool_path; the
@@ -210,6 +218,9 @@ typedef struct dcm_server_settings {
     const char *tls_certificate_file;
     const char *tls_private_key_file;
     const char *tls_ca_file;           /* non-NULL: require client certs */
+    /* Objects larger than this (bytes as received, meta header included)
+     * are answered DCM_STATUS_TOO_LARGE and deleted; 0 = no limit. */
+    uint64_t max_object_bytes;
 } dcm_server_settings;
 
 typedef struct dcm_server dcm_server;
@@ -324,6 +335,46 @@ mitilog_status dcm_builder_put_sr_content(
     dcm_builder *builder, const dcm_sr_build_item *items, size_t item_count,
     const dcm_sr_coding_scheme *schemes, size_t scheme_count,
     mitilog_error *error);
+
+/* ------------------------------------------------------------------ */
+/* Further facts for the exam context (dcm_extra.cc)                   */
+/* ------------------------------------------------------------------ */
+
+enum { DCM_EXTRA_PRIVATE_MAX = 4 };
+
+/* A private attribute to read: (group, 0xXXee) in the block reserved by
+ * private_creator; only the low byte of element is used. */
+typedef struct dcm_private_request {
+    uint16_t group;
+    uint16_t element;
+    const char *private_creator;
+} dcm_private_request;
+
+/* Strings are raw bytes as stored (not charset-converted; decode them
+ * with Specific Character Set), heap copies, NULL when absent. */
+typedef struct dcm_extra {
+    /* "SCHEME:CODE meaning" per item of Procedure Code Sequence
+     * (0008,1032), Performed Protocol Code Sequence (0040,0260) and
+     * Requested Procedure Code Sequence (0032,1064), joined by '\'. */
+    char *procedure_codes;
+    char *private_values[DCM_EXTRA_PRIVATE_MAX]; /* per request */
+    size_t region_count;                 /* as dcm_facts.region_count */
+    int *region_spatial_formats;         /* (0018,6012); -1 absent */
+    /* Enhanced multi-frame objects: Frame Content Sequence (0020,9111)
+     * in the Shared (5200,9229) and Per-frame (5200,9230) Functional
+     * Groups. */
+    int has_functional_groups;
+    size_t frame_content_count;
+    double frame_duration_ms_sum;        /* Frame Acquisition Duration (0018,9220) */
+    size_t frame_duration_count;
+    char *first_frame_acquisition_datetime; /* (0018,9074), earliest */
+} dcm_extra;
+
+mitilog_status dcm_object_extra(dcm_object *object,
+                                const dcm_private_request *requests,
+                                size_t request_count, dcm_extra *extra,
+                                mitilog_error *error);
+void dcm_extra_free(dcm_extra *extra);
 
 #ifdef __cplusplus
 }

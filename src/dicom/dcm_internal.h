@@ -34,6 +34,11 @@ mitilog_status dcm_error_from_exception(mitilog_error *error,
 char *dcm_string_copy(const char *text);
 char *dcm_string_copy_length(const char *text, size_t length);
 
+class DcmFileFormat;
+/* The loaded file of an object (dcm_read.cc), for the other readers of
+ * the shim (dcm_extra.cc). */
+DcmFileFormat *dcm_object_file(dcm_object *object);
+
 /* Catch-all for the C boundary: every exception becomes a status. */
 #define DCM_CATCH_ALL(error, status, what)                                 \
     catch (...)                                                            \

@@ -30,6 +30,11 @@ struct dcm_object {
     std::string path;
 };
 
+DcmFileFormat *dcm_object_file(dcm_object *object)
+{
+    return object != NULL ? &object->file : NULL;
+}
+
 static const DcmTagKey dcm_attribute_tags[DCM_ATTRIBUTE_COUNT] = {
 #define DCM_ATTRIBUTE_TAG(name, group, element) DcmTagKey(group, element),
     DCM_ATTRIBUTE_LIST(DCM_ATTRIBUTE_TAG)

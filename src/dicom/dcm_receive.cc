@@ -24,6 +24,8 @@ extern "C" {
 #include <memory>
 #include <string>
 #include <sys/random.h>
+#include <sys/stat.h>
+#include <sys/statvfs.h>
 #include <thread>
 #include <time.h>
 #include <unistd.h>
@@ -78,6 +80,7 @@ struct dcm_server {
     unsigned acse_timeout = DCM_DEFAULT_ACSE_TIMEOUT;
     uint32_t max_pdu = ASC_DEFAULTMAXPDU;
     std::string spool_directory;
+    uint64_t max_object_bytes = 0; /* 0 = no limit */
     std::string tls_certificate_file, tls_private_key_file, tls_ca_file;
     bool tls = false, tls_require_client = false;
     dcm_store_handler handler = NULL;
@@ -146,6 +149,9 @@ class dcm_association_scp : public DcmThreadSCP
   private:
     OFCondition receive_store(T_DIMSE_C_StoreRQ &request,
                               T_ASC_PresentationContextID context_id);
+    OFCondition refuse_store(T_DIMSE_C_StoreRQ &request,
+                             T_ASC_PresentationContextID context_id);
+    bool spool_nearly_full();
     std::string spool_path();
 
     dcm_server *server_;
@@ -276,10 +282,41 @@ std::string dcm_association_scp::spool_path()
     return server_->spool_directory + name;
 }
 
+bool dcm_association_scp::spool_nearly_full()
+{
+    struct statvfs info;
+    if (statvfs(server_->spool_directory.c_str(), &info) != 0)
+        return false; /* the spool write itself will tell */
+    uint64_t free_bytes = static_cast<uint64_t>(info.f_bavail) * info.f_frsize;
+    return free_bytes < DCM_SPOOL_RESERVE_BYTES;
+}
+
+/* Reads the data set into memory, drops it and answers A700. */
+OFCondition
+dcm_association_scp::refuse_store(T_DIMSE_C_StoreRQ &request,
+                                  T_ASC_PresentationContextID context_id)
+{
+    DcmDataset *dataset = NULL;
+    OFCondition condition =
+        receiveSTORERequest(request, context_id, dataset);
+    delete dataset;
+    if (condition.bad())
+        return condition;
+    log_warning("association %lu from AE '%s' (%s): object %s answered "
+                "A700: less than %d bytes free for the spool in %s",
+                id_, calling_ae_.c_str(), peer_ip_.c_str(),
+                request.AffectedSOPInstanceUID, DCM_SPOOL_RESERVE_BYTES,
+                server_->spool_directory.c_str());
+    return sendSTOREResponse(context_id, request,
+                             DCM_STATUS_OUT_OF_RESOURCES);
+}
+
 OFCondition
 dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
                                    T_ASC_PresentationContextID context_id)
 {
+    if (spool_nearly_full())
+        return refuse_store(request, context_id);
     std::string path = spool_path();
     OFCondition condition =
         receiveSTORERequest(request, context_id, OFString(path.c_str()));
@@ -293,6 +330,18 @@ dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
     }
     objects_++;
     server_->objects++;
+    struct stat info;
+    if (server_->max_object_bytes > 0 && stat(path.c_str(), &info) == 0 &&
+        static_cast<uint64_t>(info.st_size) > server_->max_object_bytes) {
+        unlink(path.c_str());
+        log_warning("association %lu from AE '%s' (%s): object %s refused "
+                    "(0x%04X): %lld bytes exceed max_object_bytes %llu",
+                    id_, calling_ae_.c_str(), peer_ip_.c_str(),
+                    request.AffectedSOPInstanceUID, DCM_STATUS_TOO_LARGE,
+                    static_cast<long long>(info.st_size),
+                    static_cast<unsigned long long>(server_->max_object_bytes));
+        return sendSTOREResponse(context_id, request, DCM_STATUS_TOO_LARGE);
+    }
     dcm_received received;
     received.spool_path = path.c_str();
     received.calling_ae_title = calling_ae_.c_str();
@@ -522,6 +571,7 @@ mitilog_status dcm_server_create(const dcm_server_settings *settings,
                           : pdu > ASC_MAXIMUMPDUSIZE ? ASC_MAXIMUMPDUSIZE
                                                      : pdu;
         server->spool_directory = settings->spool_directory;
+        server->max_object_bytes = settings->max_object_bytes;
         server->tls = certificate;
         if (certificate) {
             server->tls_certificate_file = settings->tls_certificate_file;

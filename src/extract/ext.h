@@ -87,6 +87,19 @@ int ext_iso_from_dt(const char *date_time, const char *timezone_offset,
 ext_time_source ext_acquisition_time(const dcm_facts *facts,
                                      char out[EXT_ISO_TIME_SIZE]);
 
+/* What kind of object an instance is, from its SOP Class UID. */
+typedef enum ext_object_kind {
+    EXT_KIND_OTHER = 0,   /* any other class: no acoustic record */
+    EXT_KIND_IMAGE,       /* US Image Storage (and its retired UID) */
+    EXT_KIND_MULTIFRAME,  /* US Multi-frame Image Storage (and retired) */
+    EXT_KIND_VOLUME,      /* Enhanced US Volume Storage */
+    EXT_KIND_SR           /* Comprehensive, Enhanced, Comprehensive 3D SR */
+} ext_object_kind;
+
+ext_object_kind ext_object_kind_of(const char *sop_class_uid);
+/* "other", "image", "multiframe", "volume", "sr" */
+const char *ext_object_kind_name(ext_object_kind kind);
+
 /* One received or imported instance. Strings are owned, NULL if absent. */
 typedef struct ext_record {
     char *sop_class_uid;
@@ -114,6 +127,55 @@ typedef struct ext_record {
     char *index_raw[EXT_INDEX_COUNT]; /* raw text as sent, NULL if absent */
 
     int text_replaced;   /* some text was not UTF-8: bad bytes became U+FFFD */
+
+    /* ---- Exam context: filled by ext_record_enrich() (ext_context.c);
+     * zero / NULL until then. *_source members are static provenance
+     * names (docs/extraction.md), NULL when the value is absent. ---- */
+    int enriched;
+    ext_object_kind kind;
+    int has_acoustic_record;       /* an US image, cine, volume or SR */
+    char *specific_character_set;  /* as sent */
+    char *image_type;
+    char *series_description;
+    char *body_part_examined;
+    char *performed_procedure_step_description;
+    char *procedure_codes;         /* "SCHEME:CODE meaning\\..." */
+
+    unsigned modes;                /* union of the three sources below */
+    unsigned modes_image_type;     /* Image Type value 4 (ext_modes.h) */
+    int image_type_bitmap_status;  /* ext_bitmap_status */
+    unsigned image_type_bitmap;    /* the raw 16 bits when ok */
+    unsigned modes_regions;        /* Region Data Types */
+    unsigned modes_sr;             /* SR mode containers */
+    int modes_conflict;            /* image type and regions disagree */
+
+    char *transducer_data;         /* (0018,5010), all values */
+    const char *transducer_source;
+    char *transducer_type;         /* (0018,6031) */
+    int has_frequency;
+    unsigned frequency_khz;        /* (0018,6030) of the first region with one */
+    char frequency_source[48];     /* "ultrasound_region_N" */
+    double cine_seconds;           /* frames x frame time, or the sum of
+                                    * Frame Acquisition Durations */
+
+    char *exam_type;               /* key of the site's exam type */
+    char *exam_type_label;
+    const char *exam_type_source;
+    int has_governing_index;
+    ext_index governing_index;
+    const char *governing_index_source;
+    int has_gestational_age;
+    double gestational_age_weeks;
+    char gestational_age_source[160];
+    int trimester;
+    char *preset;              const char *preset_source;
+    char *room;                const char *room_source;
+    char *shift;               const char *shift_source;
+    const char *age_group;     const char *age_group_source;
+    char *operator_name;       const char *operator_source;
+
+    struct ext_sr_result *sr;      /* SR objects only, else NULL */
+    char overlong_fields[256];     /* comma-separated field names */
 } ext_record;
 
 /* Builds the record. Fails (MITILOG_ERROR_INVALID) only when the object
@@ -122,6 +184,18 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts,
                                      ext_record *record,
                                      mitilog_error *error);
 void ext_record_free(ext_record *record);
+
+struct ext_site_rules;
+/* Adds the exam context (modes, transducer, exam type, preset, room,
+ * shift, age group, operator, SR values, governing index, gestational
+ * age) by the site's rules. extra may be NULL. Call after setting
+ * calling_ae_title and received_at. Fails only when out of memory. */
+mitilog_status ext_record_enrich(ext_record *record, const dcm_facts *facts,
+                                 const dcm_extra *extra,
+                                 const struct ext_site_rules *rules,
+                                 mitilog_error *error);
+/* Frees what ext_record_enrich() added (called by ext_record_free). */
+void ext_record_free_context(ext_record *record);
 
 /* 1 for the ultrasound storage SOP classes of the domain reference. */
 int ext_is_ultrasound_sop_class(const char *sop_class_uid);

@@ -35,7 +35,7 @@ int ext_is_ultrasound_sop_class(const char *sop_class_uid)
 
 /* Copy without the leading and trailing spaces that DICOM pads with
  * (insignificant for SH, LO, CS, UI per PS3.5 6.2); NULL stays NULL. */
-static char *trimmed_duplicate(const char *raw, int *failed, int *replaced)
+static char *trimmed_duplicate(const char *raw, int *failed, int *replaced, int latin1)
 {
     if (raw == NULL)
         return NULL;
@@ -51,6 +51,13 @@ static char *trimmed_duplicate(const char *raw, int *failed, int *replaced)
     }
     memcpy(copy, raw, length);
     copy[length] = '\0';
+    if (latin1 && !ext_text_is_ascii(copy)) {
+        char *decoded = ext_text_latin1_to_utf8(copy);
+        free(copy);
+        if (decoded == NULL)
+            *failed = 1;
+        return decoded;
+    }
     if (!ext_text_is_utf8(copy)) {
         char *repaired = ext_text_to_utf8(copy, replaced);
         free(copy);
@@ -77,8 +84,12 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
     memset(record, 0, sizeof *record);
     const char *const *values = (const char *const *)facts->values;
     int failed = 0;
-    record->sop_class_uid = trimmed_duplicate(values[DCM_ATTRIBUTE_SOP_CLASS_UID], &failed, &record->text_replaced);
-    record->sop_instance_uid = trimmed_duplicate(values[DCM_ATTRIBUTE_SOP_INSTANCE_UID], &failed, &record->text_replaced);
+    /* Values are UTF-8 when the shim converted them; when DCMTK could not,
+     * Latin-1 (ISO_IR 100) is decoded here [std: DICOM PS3.3 C.12.1.1.2]. */
+    int latin1 = !facts->character_set_converted &&
+                 ext_charset_is_latin1(values[DCM_ATTRIBUTE_SPECIFIC_CHARACTER_SET]);
+    record->sop_class_uid = trimmed_duplicate(values[DCM_ATTRIBUTE_SOP_CLASS_UID], &failed, &record->text_replaced, latin1);
+    record->sop_instance_uid = trimmed_duplicate(values[DCM_ATTRIBUTE_SOP_INSTANCE_UID], &failed, &record->text_replaced, latin1);
     if (!failed && (record->sop_instance_uid == NULL || record->sop_instance_uid[0] == '\0')) {
         ext_record_free(record);
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no SOP Instance UID (0008,0018)");
@@ -88,16 +99,16 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no SOP Class UID (0008,0016)");
     }
     record->study_instance_uid =
-        trimmed_duplicate(values[DCM_ATTRIBUTE_STUDY_INSTANCE_UID], &failed, &record->text_replaced);
+        trimmed_duplicate(values[DCM_ATTRIBUTE_STUDY_INSTANCE_UID], &failed, &record->text_replaced, latin1);
     record->series_instance_uid =
-        trimmed_duplicate(values[DCM_ATTRIBUTE_SERIES_INSTANCE_UID], &failed, &record->text_replaced);
-    record->modality = trimmed_duplicate(values[DCM_ATTRIBUTE_MODALITY], &failed, &record->text_replaced);
-    record->station_name = trimmed_duplicate(values[DCM_ATTRIBUTE_STATION_NAME], &failed, &record->text_replaced);
+        trimmed_duplicate(values[DCM_ATTRIBUTE_SERIES_INSTANCE_UID], &failed, &record->text_replaced, latin1);
+    record->modality = trimmed_duplicate(values[DCM_ATTRIBUTE_MODALITY], &failed, &record->text_replaced, latin1);
+    record->station_name = trimmed_duplicate(values[DCM_ATTRIBUTE_STATION_NAME], &failed, &record->text_replaced, latin1);
     record->institutional_department_name =
-        trimmed_duplicate(values[DCM_ATTRIBUTE_INSTITUTIONAL_DEPARTMENT_NAME], &failed, &record->text_replaced);
-    record->study_description = trimmed_duplicate(values[DCM_ATTRIBUTE_STUDY_DESCRIPTION], &failed, &record->text_replaced);
-    record->protocol_name = trimmed_duplicate(values[DCM_ATTRIBUTE_PROTOCOL_NAME], &failed, &record->text_replaced);
-    record->transfer_syntax_uid = trimmed_duplicate(facts->transfer_syntax_uid, &failed, &record->text_replaced);
+        trimmed_duplicate(values[DCM_ATTRIBUTE_INSTITUTIONAL_DEPARTMENT_NAME], &failed, &record->text_replaced, latin1);
+    record->study_description = trimmed_duplicate(values[DCM_ATTRIBUTE_STUDY_DESCRIPTION], &failed, &record->text_replaced, latin1);
+    record->protocol_name = trimmed_duplicate(values[DCM_ATTRIBUTE_PROTOCOL_NAME], &failed, &record->text_replaced, latin1);
+    record->transfer_syntax_uid = trimmed_duplicate(facts->transfer_syntax_uid, &failed, &record->text_replaced, latin1);
 
     record->acquired_at_source = ext_acquisition_time(facts, record->acquired_at);
     record->number_of_frames = ext_parse_integer_string(values[DCM_ATTRIBUTE_NUMBER_OF_FRAMES]);
@@ -141,4 +152,5 @@ void ext_record_free(ext_record *record)
         free(record->index_raw[i]);
         record->index_raw[i] = NULL;
     }
+    ext_record_free_context(record);
 }

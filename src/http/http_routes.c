@@ -1,6 +1,6 @@
 /*
- * http_routes.c - the JSON API: /healthz, /api/v1/instances and
- * /api/v1/studies. Checks every parameter before the store sees it; a bad
+ * http_routes.c - the JSON API: /healthz, /api/v1/instances,
+ * /api/v1/studies and /api/v1/studies/{study_uid}. Checks every parameter before the store sees it; a bad
  * one answers 400 naming the parameter. Unknown parameters are ignored.
  */
 #include "http/http_internal.h"
@@ -152,6 +152,24 @@ static http_reply http_studies(http_server *server,
     return http_store_reply(server, status, json, &error);
 }
 
+/* GET /api/v1/studies/{study_uid}: one exam with its instances and
+ * timeline; 400 for a malformed UID, 404 for an unknown one. */
+static http_reply http_study(http_server *server, const char *uid)
+{
+    if (!http_is_uid(uid))
+        return http_error_reply(server, MHD_HTTP_BAD_REQUEST,
+                                "study UID: not a UID (digits and dots, at "
+                                "most 64)");
+    char *json = NULL;
+    mitilog_error error = {{0}};
+    mitilog_status status = store_study_json(server->store, uid, &json,
+                                             &error);
+    if (status == MITILOG_ERROR_NOT_FOUND)
+        return http_error_reply(server, MHD_HTTP_NOT_FOUND, "no study %s",
+                                uid);
+    return http_store_reply(server, status, json, &error);
+}
+
 int http_route_api(http_server *server, struct MHD_Connection *connection,
                    const char *url, http_reply *reply)
 {
@@ -161,6 +179,8 @@ int http_route_api(http_server *server, struct MHD_Connection *connection,
         *reply = http_instances(server, connection);
     else if (strcmp(url, "/api/v1/studies") == 0)
         *reply = http_studies(server, connection);
+    else if (strncmp(url, "/api/v1/studies/", 16) == 0)
+        *reply = http_study(server, url + 16);
     else if (strncmp(url, "/api/", 5) == 0 || strcmp(url, "/api") == 0)
         *reply = http_error_reply(server, MHD_HTTP_NOT_FOUND,
                                   "not found: %s", url);

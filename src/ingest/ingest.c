@@ -5,7 +5,10 @@
 #include <string.h>
 #include <unistd.h>
 
+#include "config/config_site.h"
 #include "extract/ext.h"
+#include "extract/ext_sr.h"
+#include "ingest/ingest_internal.h"
 #include "util/files.h"
 #include "util/hash.h"
 #include "util/log.h"
@@ -23,6 +26,10 @@ struct ingest {
     char quarantine[FOLDER_SIZE];
     char headers[FOLDER_SIZE];
     char objects[FOLDER_SIZE];
+    ext_site_rules rules;         /* the site file, read at start */
+    dcm_private_request private_requests[EXT_SITE_PRESET_SOURCES_MAX];
+    ingest_exams exams;
+    ingest_schemes schemes;
 };
 
 mitilog_status ingest_create(const config *config, store *store, ingest **out,
@@ -53,11 +60,74 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out,
             return status;
         }
     }
+    pthread_mutex_init(&created->schemes.lock, NULL);
+    mitilog_status status = config_site_load(config->site_rules_path, &created->rules, error);
+    for (size_t i = 0; status == MITILOG_OK && i < created->rules.preset_count; i++) {
+        const ext_preset_source *preset = &created->rules.presets[i];
+        if (preset->is_private)
+            created->private_requests[i] = (dcm_private_request){
+                preset->group, preset->element, preset->private_creator};
+    }
+    if (status == MITILOG_OK)
+        status = ingest_exams_start(&created->exams, store, &created->rules, error);
+    if (status != MITILOG_OK) {
+        ext_site_rules_free(&created->rules);
+        pthread_mutex_destroy(&created->schemes.lock);
+        free(created);
+        return status;
+    }
+    log_info("site rules %s: %zu exam types, %zu rooms, %zu shifts, %zu SR codes",
+             created->rules.source_path, created->rules.exam_type_count,
+             created->rules.room_count + created->rules.room_by_ae_count,
+             created->rules.shift_count, created->rules.sr_code_count);
     *out = created;
     return MITILOG_OK;
 }
 
-void ingest_free(ingest *ingest) { free(ingest); }
+void ingest_flush(ingest *ingest)
+{
+    if (ingest != NULL)
+        ingest_exams_flush(&ingest->exams);
+}
+
+void ingest_free(ingest *ingest)
+{
+    if (ingest == NULL)
+        return;
+    ingest_exams_stop(&ingest->exams);
+    ext_site_rules_free(&ingest->rules);
+    ingest_schemes_free(&ingest->schemes);
+    pthread_mutex_destroy(&ingest->schemes.lock);
+    free(ingest);
+}
+
+const ext_site_rules *ingest_site_rules(const ingest *ingest) { return &ingest->rules; }
+
+mitilog_status ingest_read_record(dcm_object *object, const ext_site_rules *rules,
+                                  const dcm_private_request *requests,
+                                  const char *calling_ae_title, const char *received_at,
+                                  dcm_facts *facts, ext_record *record, mitilog_error *error)
+{
+    memset(facts, 0, sizeof *facts);
+    memset(record, 0, sizeof *record);
+    mitilog_status status = dcm_object_facts(object, SR_DEPTH_LIMIT, facts, error);
+    if (status == MITILOG_OK)
+        status = ext_record_from_facts(facts, record, error);
+    if (status != MITILOG_OK)
+        return status;
+    record->calling_ae_title = strdup(calling_ae_title != NULL ? calling_ae_title : "");
+    if (record->calling_ae_title == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    if (received_at != NULL)
+        snprintf(record->received_at, sizeof record->received_at, "%s", received_at);
+    dcm_extra extra;
+    status = dcm_object_extra(object, requests, rules->preset_count, &extra, error);
+    if (status == MITILOG_OK) {
+        status = ext_record_enrich(record, facts, &extra, rules, error);
+        dcm_extra_free(&extra);
+    }
+    return status;
+}
 
 const char *ingest_spool_directory(const ingest *ingest) { return ingest->spool; }
 
@@ -153,20 +223,38 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
 
     if (dcm_object_load(source->path, &object, reason) != MITILOG_OK)
         return reject(ingest, source, reason);
-    if (dcm_object_facts(object, SR_DEPTH_LIMIT, &facts, reason) != MITILOG_OK ||
-        ext_record_from_facts(&facts, &record, reason) != MITILOG_OK) {
+    char now[EXT_ISO_TIME_SIZE];
+    files_utc_now(now, sizeof now);
+    mitilog_status read = ingest_read_record(object, &ingest->rules, ingest->private_requests,
+                                             source->calling_ae_title, now, &facts, &record,
+                                             reason);
+    if (read == MITILOG_ERROR_MEMORY) {
         dcm_object_free(object);
         dcm_facts_free(&facts);
+        ext_record_free(&record);
+        if (source->is_spool)
+            unlink(source->path);
+        log_error("object: out of memory reading it: %s", reason->text);
+        return INGEST_OUTCOME_NOT_STORED;
+    }
+    if (read != MITILOG_OK) {
+        dcm_object_free(object);
+        dcm_facts_free(&facts);
+        ext_record_free(&record);
         return reject(ingest, source, reason);
     }
+    for (size_t i = 0; record.sr != NULL && i < record.sr->unknown_scheme_count; i++)
+        ingest_schemes_note(&ingest->schemes, record.sr->unknown_schemes[i],
+                            record.sop_instance_uid);
+    if (facts.sr_truncated)
+        log_warning("SR %s: content tree deeper than %d levels; deeper items not read",
+                    record.sop_instance_uid, SR_DEPTH_LIMIT);
     if (source->announced_sop_instance_uid[0] != '\0' &&
         strcmp(source->announced_sop_instance_uid, record.sop_instance_uid) != 0)
         log_warning("association %lu: C-STORE announced %s but the object is %s; stored as %s",
                     source->association_id, source->announced_sop_instance_uid,
                     record.sop_instance_uid, record.sop_instance_uid);
-    record.calling_ae_title = strdup(source->calling_ae_title);
     record.source_path = source->is_spool ? NULL : strdup(source->path);
-    files_utc_now(record.received_at, sizeof record.received_at);
 
     store_put_outcome put = STORE_PUT_INSERTED;
     if (record.calling_ae_title == NULL) {
@@ -177,6 +265,7 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
         log_error("object %s not stored: %s", record.sop_instance_uid, reason->text);
     } else {
         outcome = put == STORE_PUT_REPLACED ? INGEST_OUTCOME_REPLACED : INGEST_OUTCOME_STORED;
+        ingest_exams_mark(&ingest->exams, record.study_instance_uid);
         log_debug("object %s stored (%s)", record.sop_instance_uid,
                   put == STORE_PUT_REPLACED ? "replaced" : "new");
     }

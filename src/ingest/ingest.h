@@ -16,6 +16,7 @@
 
 #include "config/config.h"
 #include "dicom/dcm.h"
+#include "extract/ext.h"
 #include "store/store.h"
 #include "util/status.h"
 
@@ -49,6 +50,25 @@ const char *ingest_spool_directory(const ingest *ingest);
  * rejection or failure (it is also logged). */
 ingest_outcome ingest_object(ingest *ingest, const ingest_source *source,
                              mitilog_error *reason);
+
+/* Waits until the exam records of every study touched so far have been
+ * rebuilt (the exam worker, ingest_exam.c). ingest_free() also drains. */
+void ingest_flush(ingest *ingest);
+
+/* The site rules the ingest was created with (borrowed). */
+const struct ext_site_rules *ingest_site_rules(const ingest *ingest);
+
+/* Reads one loaded object into facts and a fully enriched record (the
+ * same path ingest_object() takes; `mitilog inspect` uses it). The caller
+ * frees both (dcm_facts_free, ext_record_free), also after a failure.
+ * requests: the private tags of the rules' preset sources, index-aligned
+ * with rules->presets (NULL creators for non-private entries). */
+mitilog_status ingest_read_record(dcm_object *object,
+                                  const struct ext_site_rules *rules,
+                                  const dcm_private_request *requests,
+                                  const char *calling_ae_title,
+                                  const char *received_at, dcm_facts *facts,
+                                  ext_record *record, mitilog_error *error);
 
 /* dcm_store_handler for the receiver: context is the ingest. */
 uint16_t ingest_store_handler(void *context, const dcm_received *object);

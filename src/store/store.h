@@ -19,6 +19,7 @@
 #include <stddef.h>
 
 #include "extract/ext.h"
+#include "extract/ext_exam.h"
 #include "util/status.h"
 
 #ifdef __cplusplus
@@ -66,6 +67,33 @@ typedef struct store_rejection {
 mitilog_status store_put_rejection(store *store,
                                    const store_rejection *rejection,
                                    mitilog_error *error);
+
+/* An exam to write: the record built by ext_exam_build() from the
+ * instances it was built from (their strings are borrowed). */
+typedef struct store_exam {
+    const char *study_instance_uid;
+    const ext_exam *exam;
+    const ext_exam_instance *instances;
+    size_t instance_count;
+} store_exam;
+
+/* Writes (replaces) the study's exam row, timeline and per-mode maxima in
+ * one transaction; returns after the commit. */
+mitilog_status store_put_exam(store *store, const store_exam *exam,
+                              mitilog_error *error);
+
+/* The study's instances as plain structs for ext_exam_build(), in
+ * acquisition order; *instances is malloc'ed (NULL with count 0 when the
+ * study has none). Free with store_study_free(). */
+mitilog_status store_load_study(store *store, const char *study_instance_uid,
+                                ext_exam_instance **instances, size_t *count,
+                                mitilog_error *error);
+void store_study_free(ext_exam_instance *instances, size_t count);
+
+/* JSON object of one exam with its instances and timeline;
+ * MITILOG_ERROR_NOT_FOUND when no instance has that Study Instance UID. */
+mitilog_status store_study_json(store *store, const char *study_instance_uid,
+                                char **json, mitilog_error *error);
 
 /* Read side. Filters: NULL or "" means "no filter". */
 typedef struct store_instance_filter {

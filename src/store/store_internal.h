@@ -12,6 +12,7 @@
 #include <pthread.h>
 #include <sqlite3.h>
 
+#include "extract/ext_exam.h"
 #include "store/store.h"
 
 /* One queued write: a caller's record (or rejection) and, once the batch
@@ -19,7 +20,8 @@
  * stack while the caller waits. */
 typedef struct store_request {
     const ext_record *record;           /* exactly one of record ...     */
-    const store_rejection *rejection;   /* ... and rejection is set      */
+    const store_rejection *rejection;   /* ... rejection ...             */
+    const store_exam *exam;             /* ... and exam is set           */
     mitilog_status status;
     store_put_outcome outcome;
     mitilog_error error;
@@ -37,6 +39,15 @@ typedef struct store_write_statements {
     sqlite3_stmt *rollback_to;
     sqlite3_stmt *upsert_instance;
     sqlite3_stmt *insert_rejection;
+    sqlite3_stmt *delete_modes;
+    sqlite3_stmt *insert_mode;
+    sqlite3_stmt *delete_sr_values;
+    sqlite3_stmt *insert_sr_value;
+    sqlite3_stmt *upsert_exam;
+    sqlite3_stmt *delete_timeline;
+    sqlite3_stmt *delete_mode_maxima;
+    sqlite3_stmt *insert_timeline;
+    sqlite3_stmt *insert_mode_maximum;
 } store_write_statements;
 
 /* Statements of the read connection; used under reader_lock. */
@@ -46,6 +57,8 @@ typedef struct store_read_statements {
     sqlite3_stmt *studies;
     sqlite3_stmt *health;
     sqlite3_stmt *health_error;
+    sqlite3_stmt *study_load;
+    sqlite3_stmt *study_detail;
 } store_read_statements;
 
 struct store {
@@ -84,6 +97,24 @@ mitilog_status store_write_prepare(store *store, mitilog_error *error);
 void store_write_finalize(store *store);
 /* Blocks until no batch is being written and the queue is empty. */
 void store_write_drain(store *store);
+
+/* store_write_context.c: an instance's modes and SR values, after its
+ * row (instance_id) was written; inside the record's savepoint. */
+mitilog_status store_write_context(store *store, const ext_record *record,
+                                   sqlite3_int64 instance_id,
+                                   mitilog_error *error);
+/* store_write_exam.c: one exam with its timeline and mode maxima. */
+mitilog_status store_write_exam(store *store, const store_exam *exam,
+                                mitilog_error *error);
+/* 1 if text is well-formed UTF-8 (store_write.c). */
+int store_is_text_utf8(const char *text);
+/* Binding helpers shared by the writers (store_write_context.c). */
+int store_bind_text_named(sqlite3_stmt *statement, const char *name,
+                          const char *value);
+int store_bind_double_named(sqlite3_stmt *statement, const char *name,
+                            int present, double value);
+int store_bind_int_named(sqlite3_stmt *statement, const char *name,
+                         sqlite3_int64 value);
 
 /* store_read.c */
 mitilog_status store_read_prepare(store *store, mitilog_error *error);

@@ -143,6 +143,8 @@ mitilog_status store_read_prepare(store *st, mitilog_error *error)
         {"queries/studies.sql", &st->read.studies},
         {"queries/health.sql", &st->read.health},
         {"queries/health_error.sql", &st->read.health_error},
+        {"queries/study_load.sql", &st->read.study_load},
+        {"queries/study_detail.sql", &st->read.study_detail},
     };
     for (size_t i = 0; i < sizeof files / sizeof files[0]; i++) {
         mitilog_status status = store_prepare(st->reader, files[i].name,
@@ -157,7 +159,8 @@ void store_read_finalize(store *st)
 {
     sqlite3_stmt **statements[] = {
         &st->read.instances_by_study, &st->read.instances_since,
-        &st->read.studies, &st->read.health, &st->read.health_error};
+        &st->read.studies, &st->read.health, &st->read.health_error,
+        &st->read.study_load, &st->read.study_detail};
     for (size_t i = 0; i < sizeof statements / sizeof statements[0]; i++) {
         sqlite3_finalize(*statements[i]);
         *statements[i] = NULL;

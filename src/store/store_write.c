@@ -75,6 +75,11 @@ static int store_is_utf8(const char *text)
     return 1;
 }
 
+int store_is_text_utf8(const char *text)
+{
+    return store_is_utf8(text);
+}
+
 /* Checks a value classification: a known status, a finite value when ok. */
 static int store_number_is_valid(ext_number number)
 {
@@ -122,7 +127,14 @@ static mitilog_status store_check_record(const ext_record *record,
         record->calling_ae_title, record->source_path, record->acquired_at,
         record->received_at, record->index_raw[0], record->index_raw[1],
         record->index_raw[2], record->index_raw[3], record->index_raw[4],
-        record->index_raw[5]};
+        record->index_raw[5], record->specific_character_set,
+        record->image_type, record->series_description,
+        record->body_part_examined,
+        record->performed_procedure_step_description,
+        record->procedure_codes, record->transducer_data,
+        record->transducer_type, record->exam_type, record->exam_type_label,
+        record->preset, record->room, record->shift, record->operator_name,
+        record->gestational_age_source};
     for (size_t i = 0; i < sizeof texts / sizeof texts[0]; i++) {
         if (!store_is_utf8(texts[i]))
             return mitilog_error_set(error, MITILOG_ERROR_INVALID,
@@ -168,6 +180,126 @@ static int store_bind_number(sqlite3_stmt *statement, const char *name,
     snprintf(parameter, sizeof parameter, ":%s_status", name);
     return store_bind_text(statement, parameter,
                            store_value_status_name(number.status));
+}
+
+int store_bind_text_named(sqlite3_stmt *statement, const char *name,
+                          const char *value)
+{
+    return store_bind_text(statement, name, value);
+}
+
+int store_bind_double_named(sqlite3_stmt *statement, const char *name,
+                            int present, double value)
+{
+    int index = sqlite3_bind_parameter_index(statement, name);
+    if (index == 0)
+        return SQLITE_RANGE;
+    if (!present || !isfinite(value))
+        return sqlite3_bind_null(statement, index);
+    return sqlite3_bind_double(statement, index, value);
+}
+
+int store_bind_int_named(sqlite3_stmt *statement, const char *name,
+                         sqlite3_int64 value)
+{
+    int index = sqlite3_bind_parameter_index(statement, name);
+    if (index == 0)
+        return SQLITE_RANGE;
+    return sqlite3_bind_int64(statement, index, value);
+}
+
+static const char *store_bitmap_status_name(int status)
+{
+    return status == 1 ? "ok" : status == 2 ? "invalid" : "missing";
+}
+
+/* Binds the exam-context columns (migration 002) from record. */
+static int store_bind_context(sqlite3_stmt *statement,
+                              const ext_record *record)
+{
+    static const char *const kinds[] = {"other", "image", "multiframe",
+                                        "volume", "sr"};
+    const char *kind = (unsigned)record->kind < 5 ? kinds[record->kind]
+                                                  : "other";
+    const struct {
+        const char *name;
+        const char *value;
+    } texts[] = {
+        {":object_kind", kind},
+        {":specific_character_set", record->specific_character_set},
+        {":image_type", record->image_type},
+        {":series_description", record->series_description},
+        {":body_part_examined", record->body_part_examined},
+        {":performed_procedure_step_description",
+         record->performed_procedure_step_description},
+        {":procedure_codes", record->procedure_codes},
+        {":image_type_bitmap_status",
+         store_bitmap_status_name(record->image_type_bitmap_status)},
+        {":transducer_data", record->transducer_data},
+        {":transducer_source", record->transducer_source},
+        {":transducer_type", record->transducer_type},
+        {":frequency_source",
+         record->has_frequency ? record->frequency_source : NULL},
+        {":exam_type", record->exam_type},
+        {":exam_type_label", record->exam_type_label},
+        {":exam_type_source", record->exam_type_source},
+        {":governing_index", record->has_governing_index
+                                 ? store_index_names[record->governing_index]
+                                 : NULL},
+        {":governing_index_source", record->has_governing_index
+                                        ? record->governing_index_source
+                                        : NULL},
+        {":gestational_age_source", record->has_gestational_age
+                                        ? record->gestational_age_source
+                                        : NULL},
+        {":preset", record->preset},
+        {":preset_source", record->preset_source},
+        {":room", record->room},
+        {":room_source", record->room_source},
+        {":shift", record->shift},
+        {":shift_source", record->shift_source},
+        {":age_group", record->age_group},
+        {":age_group_source", record->age_group_source},
+        {":operator_name", record->operator_name},
+        {":operator_source", record->operator_source},
+        {":overlong_fields", record->overlong_fields[0] != '\0'
+                                 ? record->overlong_fields
+                                 : NULL},
+    };
+    int rc = SQLITE_OK;
+    for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0];
+         i++)
+        rc = store_bind_text(statement, texts[i].name, texts[i].value);
+    if (rc == SQLITE_OK)
+        rc = store_bind_int_named(statement, ":has_acoustic_record",
+                                  record->has_acoustic_record ? 1 : 0);
+    if (rc == SQLITE_OK)
+        rc = store_bind_int_named(statement, ":modes", record->modes);
+    if (rc == SQLITE_OK)
+        rc = record->image_type_bitmap_status == 1
+                 ? store_bind_int_named(statement, ":image_type_bitmap",
+                                        record->image_type_bitmap)
+                 : store_bind_text(statement, ":image_type_bitmap", NULL);
+    if (rc == SQLITE_OK)
+        rc = store_bind_int_named(statement, ":modes_conflict",
+                                  record->modes_conflict ? 1 : 0);
+    if (rc == SQLITE_OK)
+        rc = record->has_frequency
+                 ? store_bind_int_named(statement, ":frequency_khz",
+                                        record->frequency_khz)
+                 : store_bind_text(statement, ":frequency_khz", NULL);
+    if (rc == SQLITE_OK)
+        rc = store_bind_double_named(statement, ":cine_seconds",
+                                     record->cine_seconds > 0,
+                                     record->cine_seconds);
+    if (rc == SQLITE_OK)
+        rc = store_bind_double_named(statement, ":gestational_age_weeks",
+                                     record->has_gestational_age,
+                                     record->gestational_age_weeks);
+    if (rc == SQLITE_OK)
+        rc = store_bind_int_named(statement, ":text_replaced",
+                                  record->text_replaced ? 1 : 0);
+    return rc;
 }
 
 /* Binds every parameter of queries/instance_upsert.sql from record. */
@@ -220,6 +352,8 @@ static int store_bind_instance(sqlite3_stmt *statement,
         if (rc == SQLITE_OK)
             rc = store_bind_text(statement, parameter, record->index_raw[i]);
     }
+    if (rc == SQLITE_OK)
+        rc = store_bind_context(statement, record);
     return rc;
 }
 
@@ -244,12 +378,16 @@ static mitilog_status store_write_instance(store *st,
         request->outcome = sqlite3_column_int64(statement, 0) > 0
                                ? STORE_PUT_REPLACED
                                : STORE_PUT_INSERTED;
+        sqlite3_int64 instance_id = sqlite3_column_int64(statement, 1);
         if ((rc = store_step_done(statement)) != SQLITE_DONE)
             status = mitilog_error_set(&request->error,
                                        MITILOG_ERROR_DATABASE,
                                        "%s: store instance: %s",
                                        record->sop_instance_uid,
                                        sqlite3_errmsg(st->writer));
+        else
+            status = store_write_context(st, record, instance_id,
+                                         &request->error);
     }
     sqlite3_reset(statement);
     sqlite3_clear_bindings(statement);
@@ -316,8 +454,10 @@ static mitilog_status store_write_one(store *st, store_request *request)
         return mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE,
                                  "savepoint: %s",
                                  sqlite3_errmsg(st->writer));
-    mitilog_status status = request->record != NULL
-                                ? store_write_instance(st, request)
+    mitilog_status status =
+        request->record != NULL ? store_write_instance(st, request)
+        : request->exam != NULL ? store_write_exam(st, request->exam,
+                                                   &request->error)
                                 : store_write_rejection(st, request);
     if (sqlite3_get_autocommit(st->writer))
         return status; /* SQLite already rolled the transaction back */
@@ -440,6 +580,22 @@ mitilog_status store_put_instance(store *st, const ext_record *record,
     return status;
 }
 
+mitilog_status store_put_exam(store *st, const store_exam *exam,
+                              mitilog_error *error)
+{
+    if (st == NULL || exam == NULL || exam->exam == NULL ||
+        exam->study_instance_uid == NULL || exam->study_instance_uid[0] == 0)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "store_put_exam: no store, exam or study");
+    if (!store_is_utf8(exam->study_instance_uid) ||
+        !store_is_utf8(exam->exam->exam_type_source) ||
+        !store_is_utf8(exam->exam->gestational_age_source))
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "exam: text is not UTF-8");
+    store_request request = {.exam = exam};
+    return store_submit(st, &request, error);
+}
+
 mitilog_status store_put_rejection(store *st,
                                    const store_rejection *rejection,
                                    mitilog_error *error)
@@ -468,6 +624,17 @@ mitilog_status store_write_prepare(store *st, mitilog_error *error)
         {"queries/write_rollback_to.sql", &st->write.rollback_to},
         {"queries/instance_upsert.sql", &st->write.upsert_instance},
         {"queries/rejection_insert.sql", &st->write.insert_rejection},
+        {"queries/instance_modes_delete.sql", &st->write.delete_modes},
+        {"queries/instance_mode_insert.sql", &st->write.insert_mode},
+        {"queries/sr_values_delete.sql", &st->write.delete_sr_values},
+        {"queries/sr_value_insert.sql", &st->write.insert_sr_value},
+        {"queries/exam_upsert.sql", &st->write.upsert_exam},
+        {"queries/exam_timeline_delete.sql", &st->write.delete_timeline},
+        {"queries/exam_mode_maxima_delete.sql",
+         &st->write.delete_mode_maxima},
+        {"queries/exam_timeline_insert.sql", &st->write.insert_timeline},
+        {"queries/exam_mode_maximum_insert.sql",
+         &st->write.insert_mode_maximum},
     };
     for (size_t i = 0; i < sizeof files / sizeof files[0]; i++) {
         mitilog_status status = store_prepare(st->writer, files[i].name,
@@ -484,7 +651,11 @@ void store_write_finalize(store *st)
         &st->write.begin, &st->write.commit, &st->write.rollback,
         &st->write.savepoint, &st->write.release,
         &st->write.rollback_to, &st->write.upsert_instance,
-        &st->write.insert_rejection};
+        &st->write.insert_rejection, &st->write.delete_modes,
+        &st->write.insert_mode, &st->write.delete_sr_values,
+        &st->write.insert_sr_value, &st->write.upsert_exam,
+        &st->write.delete_timeline, &st->write.delete_mode_maxima,
+        &st->write.insert_timeline, &st->write.insert_mode_maximum};
     for (size_t i = 0; i < sizeof statements / sizeof statements[0]; i++) {
         sqlite3_finalize(*statements[i]);
         *statements[i] = NULL;

@@ -1,0 +1,53 @@
+-- GET /api/v1/studies/{uid}: one exam with its instances (acquisition
+-- order), timeline (time order), per-mode maxima and SR values; no row
+-- when the study has no instance. ?1 study UID.
+-- The timeline is an ESTIMATE (docs/extraction.md, "Exam timeline").
+SELECT json_object(
+    'study_instance_uid', ?1,
+    'exam_type', e.exam_type,
+    'exam_type_label', e.exam_type_label,
+    'governing_index', e.governing_index,
+    'gestational_age_weeks', e.gestational_age_weeks,
+    'first_acquired_at', e.first_acquired_at,
+    'last_acquired_at', e.last_acquired_at,
+    'instance_count', (SELECT count(*) FROM instances WHERE study_instance_uid = ?1),
+    'capture_count', e.capture_count,
+    'cine_count', e.cine_count,
+    'sr_count', e.sr_count,
+    'other_count', e.other_count,
+    'maxima', json_object('mi', e.max_mi, 'tis', e.max_tis, 'tib', e.max_tib,
+                          'tic', e.max_tic, 'tis_focus', e.max_tis_focus,
+                          'tis_surface', e.max_tis_surface),
+    'maxima_by_mode', (SELECT json_group_object(mode, json(maxima)) FROM
+        (SELECT mode, json_group_object(index_name, max_value) AS maxima
+         FROM (SELECT * FROM exam_mode_maxima WHERE study_instance_uid = ?1
+               ORDER BY rank, index_name)
+         GROUP BY mode ORDER BY min(rank))),
+    'timeline_summary', json_object(
+        'estimate', json('true'),
+        'estimated_seconds', e.estimated_seconds,
+        'unscaled_seconds', e.unscaled_seconds,
+        'scale', e.scale,
+        'span_seconds', e.span_seconds,
+        'timed_count', e.timed_count,
+        'untimed_count', e.untimed_count,
+        'capped_count', e.capped_count,
+        'gap_cap_seconds', e.gap_cap_seconds,
+        'sr_scan_time_seconds', e.sr_scan_time_seconds),
+    'timeline', (SELECT json_group_array(json_object(
+            'position', position, 'sop_instance_uid', sop_instance_uid,
+            'start_seconds', start_seconds, 'interval_seconds', interval_seconds,
+            'cine_seconds', cine_seconds, 'attributed_seconds', attributed_seconds,
+            'capped', json(iif(capped, 'true', 'false'))))
+        FROM (SELECT * FROM exam_timeline WHERE study_instance_uid = ?1
+              ORDER BY position)),
+    'source', json_object(
+        'exam_type', e.exam_type_source,
+        'governing_index', e.governing_index_source,
+        'gestational_age_weeks', e.gestational_age_source),
+    'updated_at', e.updated_at,
+    'instances', (SELECT json_group_array(json(document)) FROM
+        (SELECT document FROM instance_documents WHERE study_instance_uid = ?1
+         ORDER BY acquired_at IS NULL, acquired_at, id)))
+FROM (SELECT 1 FROM instances WHERE study_instance_uid = ?1 LIMIT 1)
+LEFT JOIN exams e ON e.study_instance_uid = ?1;

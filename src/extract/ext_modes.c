@@ -1,0 +1,148 @@
+/* Imaging modes from Image Type value 4 and from ultrasound regions
+ * (tables and citations in ext_modes.h). */
+#include "extract/ext_modes.h"
+
+#include <string.h>
+#include <strings.h>
+
+static const char *const mode_names[EXT_MODE_COUNT] = {
+    "2d", "m", "cw", "pw", "colour", "colour_m", "3d", "power",
+    "tissue_characterization", "spatially_related_frames"};
+
+/* PS3.3 C.8.5.6.1.1: bit value of each mode, in ext_mode order. */
+static const unsigned mode_bits[EXT_MODE_COUNT] = {
+    0x0001, 0x0002, 0x0004, 0x0008, 0x0010, 0x0020, 0x0040, 0x0100,
+    0x0200, 0x0400};
+
+const char *ext_mode_name(ext_mode mode)
+{
+    if ((int)mode < 0 || mode >= EXT_MODE_COUNT)
+        return NULL;
+    return mode_names[mode];
+}
+
+int ext_mode_from_name(const char *name)
+{
+    if (name == NULL)
+        return -1;
+    for (int i = 0; i < EXT_MODE_COUNT; i++)
+        if (strcasecmp(name, mode_names[i]) == 0)
+            return i;
+    if (strcasecmp(name, "b") == 0)
+        return EXT_MODE_2D;
+    if (strcasecmp(name, "color") == 0)
+        return EXT_MODE_COLOUR;
+    if (strcasecmp(name, "color_m") == 0)
+        return EXT_MODE_COLOUR_M;
+    return -1;
+}
+
+int ext_multi_value(const char *values, int number, char *out, size_t size)
+{
+    if (size == 0)
+        return 0;
+    out[0] = '\0';
+    if (values == NULL || number < 1)
+        return 0;
+    const char *start = values;
+    for (int i = 1; i < number; i++) {
+        start = strchr(start, '\\');
+        if (start == NULL)
+            return 0;
+        start++;
+    }
+    const char *end = strchr(start, '\\');
+    size_t length = end != NULL ? (size_t)(end - start) : strlen(start);
+    while (length > 0 && (*start == ' ' || *start == '\0')) {
+        start++;
+        length--;
+    }
+    while (length > 0 && start[length - 1] == ' ')
+        length--;
+    if (length == 0)
+        return 0;
+    if (length >= size)
+        length = size - 1;
+    memcpy(out, start, length);
+    out[length] = '\0';
+    return 1;
+}
+
+static int hex_digit(char c)
+{
+    if (c >= '0' && c <= '9')
+        return c - '0';
+    if (c >= 'A' && c <= 'F')
+        return c - 'A' + 10;
+    if (c >= 'a' && c <= 'f')
+        return c - 'a' + 10;
+    return -1;
+}
+
+ext_bitmap ext_modes_from_image_type(const char *image_type)
+{
+    ext_bitmap result = {EXT_BITMAP_MISSING, 0, 0, 0};
+    char value[32];
+    if (!ext_multi_value(image_type, 4, value, sizeof value))
+        return result;
+    result.status = EXT_BITMAP_INVALID;
+    if (strlen(value) != 4)
+        return result;
+    unsigned raw = 0;
+    for (int i = 0; i < 4; i++) {
+        int digit = hex_digit(value[i]);
+        if (digit < 0)
+            return result;
+        raw = raw * 16 + (unsigned)digit;
+    }
+    result.status = EXT_BITMAP_OK;
+    result.raw = raw;
+    unsigned known = 0;
+    for (int m = 0; m < EXT_MODE_COUNT; m++) {
+        known |= mode_bits[m];
+        if (raw & mode_bits[m])
+            result.modes |= EXT_MODE_BIT(m);
+    }
+    result.unknown_bits = raw & ~known;
+    return result;
+}
+
+unsigned ext_modes_from_regions(const ext_region_mode_input *regions,
+                                size_t count)
+{
+    unsigned modes = 0;
+    for (size_t i = 0; i < count; i++) {
+        int m_mode = regions[i].region_spatial_format == 0x0002;
+        switch (regions[i].region_data_type) {
+        case 0x0001: /* tissue */
+            modes |= EXT_MODE_BIT(m_mode ? EXT_MODE_M : EXT_MODE_2D);
+            break;
+        case 0x0002: /* color flow */
+            modes |= EXT_MODE_BIT(m_mode ? EXT_MODE_COLOUR_M
+                                         : EXT_MODE_COLOUR);
+            break;
+        case 0x0003: modes |= EXT_MODE_BIT(EXT_MODE_PW); break;
+        case 0x0004: modes |= EXT_MODE_BIT(EXT_MODE_CW); break;
+        default: break; /* traces, bars, physiological: no mode */
+        }
+    }
+    return modes;
+}
+
+int ext_modes_conflict(const ext_bitmap *bitmap, unsigned region_modes,
+                       size_t region_count)
+{
+    if (bitmap->status != EXT_BITMAP_OK || region_count == 0 ||
+        region_modes == 0)
+        return 0;
+    /* Modes a region cannot express: compare only what both can say.
+     * Colour power is drawn in a color flow region. */
+    unsigned comparable = EXT_MODE_BIT(EXT_MODE_2D) | EXT_MODE_BIT(EXT_MODE_M) |
+                          EXT_MODE_BIT(EXT_MODE_CW) | EXT_MODE_BIT(EXT_MODE_PW) |
+                          EXT_MODE_BIT(EXT_MODE_COLOUR) |
+                          EXT_MODE_BIT(EXT_MODE_COLOUR_M);
+    unsigned from_bitmap = bitmap->modes & comparable;
+    if (bitmap->modes & EXT_MODE_BIT(EXT_MODE_POWER))
+        from_bitmap |= EXT_MODE_BIT(EXT_MODE_COLOUR);
+    return from_bitmap != (region_modes & comparable);
+}

@@ -1,0 +1,59 @@
+/*
+ * ingest_internal.h - what the files of src/ingest/ share; not API.
+ *
+ * ingest.c       one object through read, extract, retain, commit;
+ * ingest_exam.c  the exam worker: studies marked dirty after a commit are
+ *                rebuilt (store_load_study -> ext_exam_build ->
+ *                store_put_exam) on one background thread, so a C-STORE
+ *                is answered as soon as its instance has committed;
+ * ingest_site.c  the site rules, and logging unknown SR schemes once.
+ */
+#ifndef MITILOG_INGEST_INTERNAL_H
+#define MITILOG_INGEST_INTERNAL_H
+
+#include <pthread.h>
+
+#include "extract/ext_site.h"
+#include "store/store.h"
+
+typedef struct ingest_exams {
+    store *store;
+    const ext_site_rules *rules;
+    pthread_mutex_t lock;
+    pthread_cond_t changed;
+    char **dirty;                 /* study UIDs waiting, no duplicates */
+    size_t dirty_count, dirty_capacity;
+    int busy;                     /* the worker is rebuilding one */
+    int stopping;
+    int started;
+    pthread_t thread;
+    unsigned long rebuilt, failed;
+} ingest_exams;
+
+mitilog_status ingest_exams_start(ingest_exams *exams, store *store,
+                                  const ext_site_rules *rules,
+                                  mitilog_error *error);
+/* Queues a study (copied); a study already waiting is not queued twice. */
+void ingest_exams_mark(ingest_exams *exams, const char *study_instance_uid);
+/* Waits until every queued study has been rebuilt. */
+void ingest_exams_flush(ingest_exams *exams);
+/* Flushes, stops and joins the worker. */
+void ingest_exams_stop(ingest_exams *exams);
+
+/* Rebuilds one study's exam now (also used by tests). */
+mitilog_status ingest_exam_rebuild(store *store, const ext_site_rules *rules,
+                                   const char *study_instance_uid,
+                                   mitilog_error *error);
+
+typedef struct ingest_schemes {
+    pthread_mutex_t lock;
+    char **seen;
+    size_t count;
+} ingest_schemes;
+
+/* Logs "SR coding scheme X is not in [sr_codes]" the first time only. */
+void ingest_schemes_note(ingest_schemes *schemes, const char *scheme,
+                         const char *sop_instance_uid);
+void ingest_schemes_free(ingest_schemes *schemes);
+
+#endif

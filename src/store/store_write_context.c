@@ -1,0 +1,127 @@
+/*
+ * store_write_context.c - the rows that go with an instance row: its
+ * modes (one per mode and source, instance_modes) and its SR values
+ * (sr_values), rewritten whenever the instance is (re)stored. Runs on the
+ * writer connection inside the record's savepoint (store_write.c).
+ */
+#include "store/store_internal.h"
+
+#include "extract/ext_modes.h"
+#include "extract/ext_sr.h"
+
+static mitilog_status store_context_error(store *st, mitilog_error *error,
+                                          const ext_record *record,
+                                          const char *what, int rc)
+{
+    return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: %s: %s",
+                             record->sop_instance_uid, what,
+                             rc == SQLITE_RANGE ? "bad parameter"
+                                                : sqlite3_errmsg(st->writer));
+}
+
+static int store_write_mode_bits(store *st, sqlite3_int64 instance_id,
+                                 unsigned modes, const char *source)
+{
+    sqlite3_stmt *statement = st->write.insert_mode;
+    for (int m = 0; m < EXT_MODE_COUNT; m++) {
+        if (!(modes & EXT_MODE_BIT(m)))
+            continue;
+        int rc = store_bind_int_named(statement, ":instance_id", instance_id);
+        if (rc == SQLITE_OK)
+            rc = store_bind_text_named(statement, ":mode",
+                                       ext_mode_name((ext_mode)m));
+        if (rc == SQLITE_OK)
+            rc = store_bind_int_named(statement, ":rank", m);
+        if (rc == SQLITE_OK)
+            rc = store_bind_text_named(statement, ":source", source);
+        if (rc == SQLITE_OK)
+            rc = store_step_done(statement) == SQLITE_DONE ? SQLITE_OK
+                                                           : SQLITE_ERROR;
+        sqlite3_clear_bindings(statement);
+        if (rc != SQLITE_OK)
+            return rc;
+    }
+    return SQLITE_OK;
+}
+
+static int store_write_sr_value(store *st, sqlite3_int64 instance_id,
+                                const ext_record *record,
+                                const ext_sr_value *value)
+{
+    sqlite3_stmt *statement = st->write.insert_sr_value;
+    int rc = store_bind_int_named(statement, ":instance_id", instance_id);
+    if (rc == SQLITE_OK)
+        rc = store_bind_text_named(statement, ":study_instance_uid",
+                                   record->study_instance_uid);
+    if (rc == SQLITE_OK)
+        rc = store_bind_text_named(statement, ":quantity",
+                                   ext_quantity_name(value->quantity));
+    if (rc == SQLITE_OK)
+        rc = store_bind_double_named(statement, ":value",
+                                     value->number.status == EXT_VALUE_OK,
+                                     value->number.value);
+    if (rc == SQLITE_OK)
+        rc = store_bind_text_named(statement, ":raw_value", value->raw);
+    if (rc == SQLITE_OK)
+        rc = store_bind_text_named(statement, ":unit", value->unit);
+    if (rc == SQLITE_OK)
+        rc = store_bind_double_named(statement, ":normalised",
+                                     value->normalised_ok, value->normalised);
+    if (rc == SQLITE_OK)
+        rc = store_bind_text_named(statement, ":concept", value->concept);
+    if (rc == SQLITE_OK)
+        rc = store_bind_text_named(statement, ":concept_meaning",
+                                   value->meaning);
+    if (rc == SQLITE_OK)
+        rc = store_bind_text_named(statement, ":item_position",
+                                   value->position);
+    if (rc == SQLITE_OK)
+        rc = store_bind_text_named(
+            statement, ":mode",
+            value->mode >= 0 ? ext_mode_name((ext_mode)value->mode) : NULL);
+    if (rc == SQLITE_OK)
+        rc = store_step_done(statement) == SQLITE_DONE ? SQLITE_OK
+                                                       : SQLITE_ERROR;
+    sqlite3_clear_bindings(statement);
+    return rc;
+}
+
+mitilog_status store_write_context(store *st, const ext_record *record,
+                                   sqlite3_int64 instance_id,
+                                   mitilog_error *error)
+{
+    sqlite3_stmt *deletes[] = {st->write.delete_modes,
+                               st->write.delete_sr_values};
+    for (size_t i = 0; i < 2; i++) {
+        int rc = sqlite3_bind_int64(deletes[i], 1, instance_id);
+        if (rc == SQLITE_OK)
+            rc = store_step_done(deletes[i]) == SQLITE_DONE ? SQLITE_OK
+                                                            : SQLITE_ERROR;
+        sqlite3_clear_bindings(deletes[i]);
+        if (rc != SQLITE_OK)
+            return store_context_error(st, error, record, "clear context", rc);
+    }
+    int rc = store_write_mode_bits(st, instance_id, record->modes_image_type,
+                                   "image_type");
+    if (rc == SQLITE_OK)
+        rc = store_write_mode_bits(st, instance_id, record->modes_regions,
+                                   "region_data_type");
+    if (rc == SQLITE_OK)
+        rc = store_write_mode_bits(st, instance_id, record->modes_sr,
+                                   "sr_container");
+    if (rc != SQLITE_OK)
+        return store_context_error(st, error, record, "store modes", rc);
+    for (size_t i = 0; record->sr != NULL && i < record->sr->value_count; i++) {
+        const ext_sr_value *value = &record->sr->values[i];
+        if ((value->raw != NULL && !store_is_text_utf8(value->raw)) ||
+            (value->meaning != NULL && !store_is_text_utf8(value->meaning)) ||
+            !store_is_text_utf8(value->concept) ||
+            (value->unit != NULL && !store_is_text_utf8(value->unit)))
+            continue; /* not servable as JSON: left out, the item is logged */
+        rc = store_write_sr_value(st, instance_id, record, value);
+        if (rc != SQLITE_OK)
+            return store_context_error(st, error, record, "store SR value",
+                                       rc);
+    }
+    return MITILOG_OK;
+}
