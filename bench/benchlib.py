@@ -1,0 +1,279 @@
+"""Shared helpers of the benchmarks under bench/ (not a test module).
+
+Each benchmark script imports this: it finds (or builds) the mitilog
+binary, generates the simulated file set once into bench/out/, starts
+`mitilog serve` and DCMTK's `storescp` on free loopback ports, and
+formats the results. Every child process gets TCP_NODELAY=1 (see
+docs/performance.md: without it a one-at-a-time sender is Nagle-bound).
+"""
+import atexit
+import datetime
+import os
+import platform
+import shutil
+import signal
+import socket
+import sqlite3
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+
+BENCH = os.path.dirname(os.path.abspath(__file__))
+ROOT = os.path.dirname(BENCH)
+OUT = os.path.join(BENCH, "out")
+AE_TITLE = "MITILOG"
+CALLING = "BENCH"
+
+ENV = dict(os.environ, TCP_NODELAY="1")
+
+# Run folders are removed at exit, not between runs: on ext4 without a
+# journal (this machine's /tmp) every file created within 30 s of many
+# deletions pays for skipping the recently deleted inodes
+# (fs/ext4/ialloc.c recently_deleted()), so deleting one run's thousands
+# of files would slow the next run's server, whichever it is.
+_LEFT_OVER = []
+
+
+@atexit.register
+def _remove_left_over():
+    for folder in _LEFT_OVER:
+        shutil.rmtree(folder, ignore_errors=True)
+
+
+def remove_later(folder):
+    _LEFT_OVER.append(folder)
+
+
+def log(message):
+    print(message, flush=True)
+
+
+def mitilog_binary():
+    """$MITILOG, else build/mitilog (built with cmake if missing)."""
+    binary = os.environ.get("MITILOG")
+    if binary:
+        return os.path.abspath(binary)
+    binary = os.path.join(ROOT, "build", "mitilog")
+    if not os.path.exists(binary):
+        build = os.path.join(ROOT, "build")
+        if not os.path.exists(os.path.join(build, "CMakeCache.txt")):
+            subprocess.run(["cmake", "-S", ROOT, "-B", build], check=True)
+        subprocess.run(["cmake", "--build", build, "-j2"], check=True)
+    return binary
+
+
+def require_tools(*names):
+    missing = [n for n in names if shutil.which(n) is None]
+    if missing:
+        sys.exit("bench: missing %s (bash deploy/install-dependencies.sh)"
+                 % ", ".join(missing))
+
+
+def file_set(binary, days, seed, limit=None):
+    """The simulated files (sorted paths) and their total size in bytes.
+
+    Generated once into bench/out/sim-d<days>-s<seed>/files/; the manifest
+    is moved beside files/ so that the folder holds DICOM files only."""
+    folder = os.path.join(OUT, "sim-d%d-s%d" % (days, seed))
+    files_dir = os.path.join(folder, "files")
+    done = os.path.join(folder, "complete")
+    if not os.path.exists(done):
+        shutil.rmtree(folder, ignore_errors=True)
+        os.makedirs(folder)
+        log("generating the file set: mitilog simulate --days %d --seed %d"
+            % (days, seed))
+        subprocess.run([binary, "simulate", "--out", files_dir, "--days",
+                        str(days), "--seed", str(seed)], check=True,
+                       stdout=subprocess.DEVNULL)
+        os.rename(os.path.join(files_dir, "manifest.csv"),
+                  os.path.join(folder, "manifest.csv"))
+        open(done, "w").close()
+    paths = []
+    for directory, _, names in os.walk(files_dir):
+        paths.extend(os.path.join(directory, n) for n in names
+                     if n.endswith(".dcm"))
+    paths.sort()
+    if limit is not None:
+        paths = paths[:limit]
+    size = sum(os.path.getsize(p) for p in paths)
+    return paths, size
+
+
+def free_port():
+    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+def echo(port):
+    return subprocess.run(["echoscu", "-aet", CALLING, "-aec", AE_TITLE,
+                           "127.0.0.1", str(port)], env=ENV,
+                          stdout=subprocess.DEVNULL,
+                          stderr=subprocess.DEVNULL).returncode == 0
+
+
+def wait_for_echo(process, port, what, timeout=30):
+    deadline = time.monotonic() + timeout
+    while not echo(port):
+        if process.poll() is not None:
+            raise RuntimeError("%s exited early (%d)" % (what,
+                                                         process.returncode))
+        if time.monotonic() > deadline:
+            raise RuntimeError("%s does not answer C-ECHO" % what)
+        time.sleep(0.1)
+
+
+def storescu_command(port, paths):
+    """One association carrying every path (many files per association)."""
+    return (["storescu", "-aet", CALLING, "-aec", AE_TITLE, "-nh",
+             "127.0.0.1", str(port)] + list(paths))
+
+
+def split(paths, parts):
+    """parts contiguous slices of nearly equal length (studies stay whole
+    except at the cuts)."""
+    size, extra = divmod(len(paths), parts)
+    out, start = [], 0
+    for i in range(parts):
+        end = start + size + (1 if i < extra else 0)
+        out.append(paths[start:end])
+        start = end
+    return out
+
+
+class Mitilog:
+    """mitilog serve with a temporary configuration on free ports and a
+    data directory under /tmp (removed by close())."""
+
+    def __init__(self, binary, retention="header", level="warning",
+                 root="/tmp"):
+        self.binary = binary
+        self.workdir = tempfile.mkdtemp(prefix="mitilog-bench-", dir=root)
+        self.port = free_port()
+        self.http_port = free_port()
+        self.data = os.path.join(self.workdir, "var")
+        self.database = os.path.join(self.data, "mitilog.sqlite3")
+        self.config = os.path.join(self.workdir, "mitilog.ini")
+        with open(self.config, "w") as f:
+            f.write("[dicom]\nae_title = %s\nport = %d\nmax_associations = 16\n"
+                    "acse_timeout_seconds = 5\ndimse_timeout_seconds = 60\n"
+                    "max_pdu_bytes = 65536\n\n"
+                    "[http]\naddress = 127.0.0.1\nport = %d\n\n"
+                    "[storage]\ndata_directory = %s\nretention = %s\n\n"
+                    "[log]\nlevel = %s\n"
+                    % (AE_TITLE, self.port, self.http_port, self.data,
+                       retention, level))
+        self.stderr_path = os.path.join(self.workdir, "serve.stderr")
+        self.process = None
+
+    def start(self):
+        self._err = open(self.stderr_path, "wb")
+        self.process = subprocess.Popen(
+            [self.binary, "serve", "--config", self.config], env=ENV,
+            stdout=subprocess.DEVNULL, stderr=self._err)
+        wait_for_echo(self.process, self.port, "mitilog serve")
+        return self
+
+    def cpu_seconds(self):
+        """utime + stime of the serve process so far."""
+        with open("/proc/%d/stat" % self.process.pid) as f:
+            fields = f.read().rsplit(")", 1)[1].split()
+        return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
+
+    def stop(self):
+        if self.process is not None and self.process.poll() is None:
+            self.process.send_signal(signal.SIGTERM)
+            try:
+                self.process.wait(timeout=60)
+            except subprocess.TimeoutExpired:
+                self.process.kill()
+                self.process.wait()
+                raise RuntimeError("mitilog serve ignored SIGTERM")
+            self._err.close()
+        return self.process.returncode
+
+    def count(self, table="instances"):
+        with sqlite3.connect("file:%s?mode=ro" % self.database,
+                             uri=True) as db:
+            return db.execute("select count(*) from %s" % table).fetchone()[0]
+
+    def log_tail(self, lines=20):
+        try:
+            with open(self.stderr_path, errors="replace") as f:
+                return "".join(f.readlines()[-lines:])
+        except OSError:
+            return ""
+
+    def close(self):
+        self.stop()
+        remove_later(self.workdir)
+
+
+class Storescp:
+    """DCMTK's storescp --fork (one child process per association, so
+    several associations are received at once) writing files to /tmp."""
+
+    def __init__(self):
+        self.workdir = tempfile.mkdtemp(prefix="storescp-bench-", dir="/tmp")
+        self.port = free_port()
+        self.process = None
+
+    def start(self):
+        self.process = subprocess.Popen(
+            ["storescp", "--fork", "-aet", AE_TITLE, "-pdu", "65536",
+             "-od", self.workdir, str(self.port)], env=ENV,
+            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        wait_for_echo(self.process, self.port, "storescp")
+        return self
+
+    def count(self):
+        return sum(len(names) for _, _, names in os.walk(self.workdir))
+
+    def close(self):
+        if self.process is not None and self.process.poll() is None:
+            self.process.send_signal(signal.SIGTERM)
+            try:
+                self.process.wait(timeout=30)
+            except subprocess.TimeoutExpired:
+                self.process.kill()
+                self.process.wait()
+        remove_later(self.workdir)
+
+
+def run_senders(port, parts):
+    """Starts one storescu per part at once; returns the wall time from the
+    first start to the last exit and the exit statuses."""
+    started = time.monotonic()
+    senders = [subprocess.Popen(storescu_command(port, part), env=ENV,
+                                stdout=subprocess.DEVNULL,
+                                stderr=subprocess.PIPE)
+               for part in parts]
+    errors = [s.communicate()[1] for s in senders]
+    elapsed = time.monotonic() - started
+    return elapsed, [s.returncode for s in senders], errors
+
+
+def median(values):
+    return statistics.median(values)
+
+
+def machine():
+    model = "unknown"
+    try:
+        with open("/proc/cpuinfo") as f:
+            for line in f:
+                if line.startswith("model name"):
+                    model = line.split(":", 1)[1].strip()
+                    break
+    except OSError:
+        pass
+    return "%d cores, %s, Linux %s" % (os.cpu_count(), model,
+                                       platform.release())
+
+
+def header(title):
+    log("%s -- %s" % (title, datetime.datetime.now().strftime(
+        "%Y-%m-%d %H:%M")))
+    log("machine: %s" % machine())

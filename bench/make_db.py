@@ -1,0 +1,94 @@
+#!/usr/bin/python3
+"""Builds a large mitilog database from simulated traffic, for the query
+benchmarks to come (issue parts 3 and 5: they need endpoints that do not
+exist yet).
+
+The simulator is run in chunks of --chunk-days consecutive days (seed
+SEED + chunk number, so UIDs never collide between chunks), each chunk is
+imported with `mitilog import` (retention none) and its files deleted, so
+the disk holds one chunk at a time. The result is cached as
+bench/out/db-d<days>-s<seed>/var/mitilog.sqlite3 and reused; --force
+rebuilds it. Prints the instance count and the build time.
+
+    /usr/bin/python3 bench/make_db.py --days 366        # a year, ~400,000 rows
+    /usr/bin/python3 bench/make_db.py --tiny            # 2 days, for CI
+"""
+import argparse
+import datetime
+import os
+import re
+import shutil
+import sqlite3
+import subprocess
+import sys
+import tempfile
+import time
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+import benchlib  # noqa: E402
+
+FIRST_DAY = datetime.date(2026, 1, 5)  # a Monday
+
+
+def main():
+    parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    parser.add_argument("--days", type=int, default=366)
+    parser.add_argument("--seed", type=int, default=1)
+    parser.add_argument("--chunk-days", type=int, default=28)
+    parser.add_argument("--force", action="store_true")
+    parser.add_argument("--tiny", action="store_true", help="2 days")
+    args = parser.parse_args()
+    if args.tiny:
+        args.days, args.chunk_days = 2, 1
+    binary = benchlib.mitilog_binary()
+    folder = os.path.join(benchlib.OUT, "db-d%d-s%d" % (args.days, args.seed))
+    database = os.path.join(folder, "var", "mitilog.sqlite3")
+    done = os.path.join(folder, "complete")
+    if os.path.exists(done) and not args.force:
+        benchlib.log("cached: %s" % os.path.relpath(database))
+    else:
+        shutil.rmtree(folder, ignore_errors=True)
+        os.makedirs(folder)
+        config = os.path.join(folder, "mitilog.ini")
+        with open(config, "w") as f:
+            f.write("[storage]\ndata_directory = %s\nretention = none\n\n"
+                    "[log]\nlevel = warning\n" % os.path.join(folder, "var"))
+        started = time.monotonic()
+        day, chunk = 0, 0
+        while day < args.days:
+            days = min(args.chunk_days, args.days - day)
+            start = FIRST_DAY + datetime.timedelta(days=day)
+            files = tempfile.mkdtemp(prefix="mitilog-db-", dir="/tmp")
+            try:
+                subprocess.run([binary, "simulate", "--out", files, "--days",
+                                str(days), "--seed", str(args.seed + chunk),
+                                "--start", start.isoformat()], check=True,
+                               stdout=subprocess.DEVNULL)
+                os.unlink(os.path.join(files, "manifest.csv"))
+                result = subprocess.run([binary, "import", "--config", config,
+                                         files], stdout=subprocess.PIPE,
+                                        stderr=subprocess.PIPE)
+                out = result.stdout.decode(errors="replace").strip()
+                if result.returncode != 0 or not re.search(
+                        r"rejected 0, not stored 0", out):
+                    raise SystemExit("make_db: import of %s failed: %s\n%s"
+                                     % (start, out, result.stderr.decode(
+                                         errors="replace")[-2000:]))
+                benchlib.log("  %s + %d days: %s" % (start, days, out))
+            finally:
+                shutil.rmtree(files, ignore_errors=True)
+            day += days
+            chunk += 1
+        open(done, "w").close()
+        benchlib.log("built in %.0f s" % (time.monotonic() - started))
+    with sqlite3.connect("file:%s?mode=ro" % database, uri=True) as db:
+        count = db.execute("select count(*) from instances").fetchone()[0]
+        studies = db.execute("select count(distinct study_instance_uid) "
+                             "from instances").fetchone()[0]
+    benchlib.log("%s: %d instances, %d studies, %.1f MB"
+                 % (os.path.relpath(database), count, studies,
+                    os.path.getsize(database) / 1e6))
+
+
+if __name__ == "__main__":
+    main()
