@@ -12,6 +12,8 @@ packages=(
   libinih-dev libssl-dev zlib1g-dev
   # unit tests
   libcmocka-dev
+  # fuzzing (tests/fuzz/run.sh): clang with libFuzzer and its sanitizer runtimes
+  clang libclang-rt-14-dev
   # run and operate: DCMTK tools (storescu, echoscu, img2dcm), sqlite3 CLI,
   # curl for the HTTP API, openssl for TLS certificates
   dcmtk sqlite3 curl openssl
@@ -19,7 +21,9 @@ packages=(
   # JPEG fixture, dicom3tools' dciodvfy checks the fixtures against the IODs
   python3 python3-pydicom python3-pytest python3-pil dicom3tools
   # dashboard tests (later): uncomment when the browser tests land.
-  # chromium nodejs npm
+  # dashboard browser tests (tests/browser): headless Chromium driven by
+  # playwright-core from npm (no downloaded browsers)
+  chromium nodejs npm
 )
 
 missing=()

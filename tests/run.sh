@@ -61,6 +61,12 @@ export ASAN_OPTIONS=detect_leaks=1:abort_on_error=1
 export UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1
 export TCP_NODELAY=1
 
+# The dashboard's browser test (tests/integration/test_dashboard.py) drives
+# Debian's chromium with playwright-core, pinned in tests/browser/.
+step "browser test packages (npm ci in tests/browser/)" \
+  bash -c "cd '$top/tests/browser' && npm ci --no-audit --no-fund --loglevel=error"
+export MITILOG_REQUIRE_BROWSER=1
+
 for tree in build build-asan; do
   if [ -n "${built[$tree]:-}" ] && [ -x "$top/$tree/mitilog" ]; then
     step "unit tests $tree/" ctest --test-dir "$top/$tree" --output-on-failure -j"$jobs"
@@ -71,5 +77,12 @@ for tree in build build-asan; do
     failed=1
   fi
 done
+
+# A short libFuzzer run over the reader and extraction (clang; build-fuzz/).
+# MITILOG_FUZZ_SECONDS=0 skips it; bench/README.md describes a long run.
+fuzz_seconds=${MITILOG_FUZZ_SECONDS:-60}
+if [ "$fuzz_seconds" -gt 0 ]; then
+  step "fuzz reader ${fuzz_seconds}s (build-fuzz/)" bash "$top/tests/fuzz/run.sh" "$fuzz_seconds"
+fi
 
 exit "$failed"

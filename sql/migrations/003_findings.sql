@@ -11,7 +11,14 @@ CREATE TABLE policies (
     version          TEXT PRIMARY KEY,
     name             TEXT,
     normalised_text  TEXT NOT NULL,
-    first_loaded_at  TEXT NOT NULL
+    first_loaded_at  TEXT NOT NULL,
+    -- The rules as GET /api/v1/policy serves them: a JSON array of
+    -- {id, kind, severity, enabled, source, description, settings{}},
+    -- built by SQLite's JSON functions when the policy is registered.
+    rules_json       TEXT NOT NULL DEFAULT '[]' CHECK (json_valid(rules_json)),
+    closed_after_idle_minutes REAL,
+    gap_cap_seconds  REAL,
+    last_loaded_at   TEXT
 ) STRICT;
 
 -- Exam-level context the rules and statistics group by, and the exam's
@@ -52,9 +59,14 @@ CREATE TABLE findings (
     preset              TEXT,
     shift               TEXT,
     transducer          TEXT,
-    evaluated_at        TEXT NOT NULL
+    evaluated_at        TEXT NOT NULL,
+    -- Device-level findings (output_not_reported, study NULL): the day
+    -- 'YYYY-MM-DD' (first acquisition) or rescore period they cover.
+    period              TEXT
 ) STRICT;
 
+CREATE INDEX findings_device ON findings (rule_id, policy_version, period)
+    WHERE study_instance_uid IS NULL;
 CREATE INDEX findings_study ON findings (study_instance_uid, superseded);
 CREATE INDEX findings_period ON findings (superseded, started_at);
 
@@ -71,7 +83,22 @@ CREATE TABLE exam_measurements (
     doppler_seconds     REAL,
     seconds_at_or_above TEXT NOT NULL DEFAULT '{}' CHECK (json_valid(seconds_at_or_above)),
     evaluated_at        TEXT NOT NULL,
+    -- SHA-256 of what the evaluation produced (findings, provisional flags,
+    -- measurements; not evaluated_at): an evaluation that would write the
+    -- same is skipped, so rescoring twice leaves the tables byte-identical.
+    evaluation_hash     TEXT,
     PRIMARY KEY (study_instance_uid, policy_version)
+) STRICT;
+
+-- Device-level evaluations (output_not_reported per period): the same
+-- skip-if-unchanged hash as exam_measurements.
+CREATE TABLE device_evaluations (
+    rule_id          TEXT NOT NULL,
+    policy_version   TEXT NOT NULL REFERENCES policies (version),
+    period           TEXT NOT NULL,
+    evaluation_hash  TEXT NOT NULL,
+    evaluated_at     TEXT NOT NULL,
+    PRIMARY KEY (rule_id, policy_version, period)
 ) STRICT;
 
 PRAGMA user_version = 3;

@@ -1,6 +1,8 @@
 -- GET /api/v1/studies/{uid}: one exam with its instances (acquisition
 -- order), timeline (time order), per-mode maxima and SR values; no row
--- when the study has no instance. ?1 study UID.
+-- when the study has no instance. ?1 study UID, ?2 the active policy
+-- version (NULL: the latest evaluated). findings: current (not superseded)
+-- findings of the study; measurements: the evaluation's values.
 -- The timeline is an ESTIMATE (docs/extraction.md, "Exam timeline").
 SELECT json_object(
     'study_instance_uid', ?1,
@@ -46,6 +48,31 @@ SELECT json_object(
         'governing_index', e.governing_index_source,
         'gestational_age_weeks', e.gestational_age_source),
     'updated_at', e.updated_at,
+    'context', json((SELECT json_object('room', room, 'preset', preset, 'shift', shift,
+                    'transducer', transducer, 'age_group', age_group,
+                    'last_received_at', last_received_at,
+                    'closed', json(iif(closed, 'true', 'false')))
+                FROM exam_context WHERE study_instance_uid = ?1)),
+    'findings', (SELECT json_group_array(json_object(
+            'id', id, 'rule_id', rule_id, 'severity', severity, 'quantity', quantity,
+            'measured_value', measured_value, 'unit', unit, 'limit_value', limit_value,
+            'threshold', threshold, 'governing_index', governing_index,
+            'instance_uids', json(instance_uids), 'started_at', started_at,
+            'ended_at', ended_at, 'estimated_seconds', estimated_seconds,
+            'assumptions', assumptions, 'source', source_text,
+            'provisional', json(iif(provisional, 'true', 'false')),
+            'policy_version', policy_version, 'evaluated_at', evaluated_at))
+        FROM (SELECT * FROM findings WHERE study_instance_uid = ?1 AND superseded = 0
+              ORDER BY id)),
+    'measurements', json((SELECT json_object(
+            'policy_version', policy_version, 'governing_index', governing_index,
+            'max_governing', max_governing, 'max_mi', max_mi,
+            'cem43_minutes', cem43_minutes, 'estimated_seconds', estimated_seconds,
+            'doppler_seconds', doppler_seconds,
+            'seconds_at_or_above', json(seconds_at_or_above),
+            'estimate', json('true'), 'evaluated_at', evaluated_at)
+        FROM exam_measurements WHERE study_instance_uid = ?1
+        ORDER BY policy_version = ?2 DESC, evaluated_at DESC LIMIT 1)),
     'instances', (SELECT json_group_array(json(document)) FROM
         (SELECT document FROM instance_documents WHERE study_instance_uid = ?1
          ORDER BY acquired_at IS NULL, acquired_at, id)))

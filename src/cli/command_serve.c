@@ -5,8 +5,11 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
 
 #include "cli/cli_options.h"
+#include "cli/cli_privileges.h"
 #include "cli/commands.h"
 #include "config/config_peers.h"
 #include "dicom/dcm.h"
@@ -51,15 +54,27 @@ static void serve_stop(serve_state *state)
     config_free(&state->config);
 }
 
+/* NULL for an empty setting (the shim's "not set"). */
+static const char *serve_optional(const char *value)
+{
+    return value != NULL && value[0] != '\0' ? value : NULL;
+}
+
 static int serve_start(serve_state *state, mitilog_error *error)
 {
     const config *config = &state->config;
+    cli_identity identity;
+    if (cli_identity_resolve(config->service_user, &identity, error) != MITILOG_OK)
+        return -1;
     if (cli_prepare_data_directory(config, error) != 0)
         return -1;
     if (store_open(config->database_path, (int)config->busy_timeout_ms, &state->store, error) !=
         MITILOG_OK)
         return -1;
     if (ingest_create(config, state->store, &state->ingest, error) != MITILOG_OK)
+        return -1;
+    /* After the store and ingest made their files and folders. */
+    if (cli_identity_give(&identity, config->data_directory, error) != MITILOG_OK)
         return -1;
     size_t peer_count = 0;
     if (config_peers_parse(config->allowed_calling_ae_titles, &state->peers, &peer_count, error) !=
@@ -84,15 +99,53 @@ static int serve_start(serve_state *state, mitilog_error *error)
         .dimse_timeout_seconds = config->dimse_timeout_seconds,
         .max_pdu = config->max_pdu_bytes,
         .spool_directory = ingest_spool_directory(state->ingest),
+        .tls_certificate_file = serve_optional(config->dicom_tls_certificate),
+        .tls_private_key_file = serve_optional(config->dicom_tls_private_key),
+        .tls_ca_file = serve_optional(config->dicom_tls_ca_certificates),
+        .max_object_bytes = config->max_object_bytes,
     };
     if (dcm_server_create(&settings, ingest_store_handler, state->ingest, &state->dicom, error) !=
             MITILOG_OK ||
         dcm_server_start(state->dicom, error) != MITILOG_OK)
         return -1;
-    http_settings web = {config->http_address, config->http_port, config->web_root};
+    http_settings web = {config->http_address,       config->http_port,
+                         config->web_root,           config->http_tls_certificate,
+                         config->http_tls_private_key, config->http_password_file};
     if (http_server_start(&web, state->store, &state->http, error) != MITILOG_OK)
         return -1;
+    /* Both ports are bound: root is no longer needed. */
+    if (cli_identity_become(&identity, error) != MITILOG_OK)
+        return -1;
+    if (identity.change)
+        log_info("running as user %s (uid %u)", identity.name, (unsigned)identity.uid);
+    else if (geteuid() == 0)
+        log_warning("running as root: set [service] user to drop privileges after binding");
     return 0;
+}
+
+/* SIGHUP: re-reads the ALARA policy ([rules] policy); the rest of the
+ * configuration is read at start only. On an error the old policy stays
+ * (the message names file:line). Exams are re-evaluated under the new
+ * policy as they are touched; `mitilog rescore` re-evaluates all. */
+static void serve_reload_policy(serve_state *state)
+{
+    const char *path = state->config.rules_policy_path;
+    if (path == NULL || path[0] == '\0') {
+        log_info("SIGHUP: no [rules] policy configured; the rest of the configuration is "
+                 "read at start only");
+        return;
+    }
+    rules_policy *policy = NULL;
+    mitilog_error error;
+    if (rules_policy_load(path, &policy, &error) != MITILOG_OK ||
+        ingest_set_policy(state->ingest, policy, &error) != MITILOG_OK) {
+        log_error("SIGHUP: policy not reloaded, the previous one stays: %s", error.text);
+        return;
+    }
+    char version[65];
+    store_active_policy_version(state->store, version);
+    log_info("SIGHUP: policy %s reloaded: version %s (other settings are read at start only)",
+             path, version);
 }
 
 int command_serve(int argc, char **argv)
@@ -118,6 +171,8 @@ int command_serve(int argc, char **argv)
     sigaddset(&signals, SIGHUP);
     pthread_sigmask(SIG_BLOCK, &signals, NULL);
 
+    /* Files and folders the daemon creates are its own alone. */
+    umask(0077);
     serve_state state;
     memset(&state, 0, sizeof state);
     if (cli_load_config(config_path, &state.config) != 0) {
@@ -132,16 +187,18 @@ int command_serve(int argc, char **argv)
         serve_stop(&state);
         return EXIT_STATUS_FAILURE;
     }
-    log_info("mitilog %s: DICOM AE '%s' on port %u (all interfaces); HTTP on http://%s:%u/; "
+    log_info("mitilog %s: DICOM AE '%s' on port %u (all interfaces%s); HTTP on http://%s:%u/; "
              "database %s",
-             MITILOG_VERSION, state.config.ae_title, state.config.port, state.config.http_address,
+             MITILOG_VERSION, state.config.ae_title, state.config.port,
+             state.config.dicom_tls_certificate[0] != '\0' ? ", TLS" : "",
+             state.config.http_address,
              state.config.http_port, state.config.database_path);
     for (;;) {
         int received = 0;
         if (sigwait(&signals, &received) != 0)
             continue;
         if (received == SIGHUP) {
-            log_info("SIGHUP: configuration is read at start only; restart to apply changes");
+            serve_reload_policy(&state);
             continue;
         }
         log_info("signal %d: stopping (no new associations; objects in flight are answered)",

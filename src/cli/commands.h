@@ -13,6 +13,9 @@ int command_import(int argc, char **argv);
 int command_check_config(int argc, char **argv);
 int command_simulate(int argc, char **argv);
 int command_inspect(int argc, char **argv);
+int command_report(int argc, char **argv);
+int command_rescore(int argc, char **argv);
+int command_passwd(int argc, char **argv);
 
 enum {
     EXIT_STATUS_SUCCESS = 0,

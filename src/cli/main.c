@@ -14,7 +14,10 @@ static const subcommand subcommands[] = {
     {"serve", command_serve, "run the DICOM receiver and the HTTP dashboard"},
     {"import", command_import, "read DICOM files or folders into the database"},
     {"check-config", command_check_config, "validate a configuration and print it"},
+    {"rescore", command_rescore, "re-evaluate stored exams under the current ALARA policy"},
     {"inspect", command_inspect, "print what mitilog extracts from one DICOM file"},
+    {"passwd", command_passwd, "make a password-file line for the HTTP login"},
+    {"report", command_report, "write the weekly outlier list or exposure statistics"},
     {"simulate", command_simulate, "generate a fictional department's ultrasound traffic"},
 };
 

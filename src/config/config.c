@@ -1,5 +1,6 @@
 #include "config/config.h"
 
+#include <arpa/inet.h>
 #include <errno.h>
 #include <ini.h>
 #include <limits.h>
@@ -47,12 +48,33 @@ static const option options[] = {
      NULL, 0, "Idle time allowed between DIMSE messages within an association."},
     {"dicom", "max_pdu_bytes", OPTION_UNSIGNED, FIELD(max_pdu_bytes), "65536", 4096, 131072, NULL, 0,
      "Largest PDU this receiver accepts."},
+    {"dicom", "max_object_bytes", OPTION_UNSIGNED, FIELD(max_object_bytes), "2147483648", 0,
+     4294967295UL, NULL, 0,
+     "Largest object accepted (bytes received); larger ones get C001 and are deleted; 0 = no "
+     "limit."},
+    {"dicom", "tls_certificate", OPTION_STRING, FIELD(dicom_tls_certificate), "", 0, 0, NULL, 1,
+     "PEM certificate for DICOM TLS; with tls_private_key: TLS only, no plain TCP. Empty: plain "
+     "TCP."},
+    {"dicom", "tls_private_key", OPTION_STRING, FIELD(dicom_tls_private_key), "", 0, 0, NULL, 1,
+     "PEM private key matching tls_certificate (unencrypted; keep it mode 0640)."},
+    {"dicom", "tls_ca_certificates", OPTION_STRING, FIELD(dicom_tls_ca_certificates), "", 0, 0, NULL,
+     1, "PEM CA certificate(s); non-empty: senders must present a certificate signed by one."},
     {"http", "address", OPTION_STRING, FIELD(http_address), "127.0.0.1", 0, 0, NULL, 0,
      "IPv4 address of the HTTP API and dashboard."},
     {"http", "port", OPTION_UNSIGNED, FIELD(http_port), "8080", 1, 65535, NULL, 0,
      "TCP port of the HTTP API and dashboard."},
     {"http", "web_root", OPTION_STRING, FIELD(web_root), MITILOG_SOURCE_DIR "/web", 0, 0, NULL, 1,
      "Folder holding the dashboard's files."},
+    {"http", "allow_insecure_non_loopback", OPTION_CHOICE, FIELD(http_allow_insecure_non_loopback),
+     "no", 0, 0, "|yes|no|", 0,
+     "HTTP has no TLS or login yet: serve refuses a non-loopback address unless this says yes."},
+    {"http", "tls_certificate", OPTION_STRING, FIELD(http_tls_certificate), "", 0, 0, NULL, 1,
+     "PEM certificate for HTTPS; with tls_private_key the API and dashboard use TLS."},
+    {"http", "tls_private_key", OPTION_STRING, FIELD(http_tls_private_key), "", 0, 0, NULL, 1,
+     "PEM private key for HTTPS."},
+    {"http", "password_file", OPTION_STRING, FIELD(http_password_file), "", 0, 0, NULL, 1,
+     "File of user:crypt-hash lines (mitilog passwd); set: every request but /healthz needs a "
+     "login. Needs HTTPS."},
     {"storage", "data_directory", OPTION_STRING, FIELD(data_directory), "var", 0, 0, NULL, 1,
      "Folder for the database, spool, quarantine and header copies."},
     {"storage", "database", OPTION_STRING, FIELD(database_path), "mitilog.sqlite3", 0, 0, NULL, 0,
@@ -61,12 +83,16 @@ static const option options[] = {
      "What is kept of each object: none, header (pixel data dropped) or full."},
     {"storage", "busy_timeout_ms", OPTION_UNSIGNED, FIELD(busy_timeout_ms), "5000", 0, 600000, NULL, 0,
      "How long a write waits for a locked database before answering A700."},
+    {"storage", "sr_depth_limit", OPTION_UNSIGNED, FIELD(sr_depth_limit), "64", 1, 1024, NULL, 0,
+     "Levels of an SR content tree read; deeper items are skipped (and logged)."},
     {"site", "rules", OPTION_STRING, FIELD(site_rules_path), MITILOG_SOURCE_DIR "/conf/site.ini", 0,
      0, NULL, 1,
      "Site file: exam types, rooms, shifts, age groups, SR codes (docs/configuration.md); "
      "empty for none."},
     {"rules", "policy", OPTION_STRING, FIELD(rules_policy_path), MITILOG_SOURCE_DIR "/conf/policy.ini",
      0, 0, NULL, 1, "ALARA policy file: rules, limits and their sources (docs/policy.md)."},
+    {"service", "user", OPTION_STRING, FIELD(service_user), "", 0, 0, NULL, 0,
+     "Started as root: after binding, switch to this user (and its groups); empty: stay."},
     {"log", "level", OPTION_CHOICE, FIELD(log_level), "info", 0, 0, "|debug|info|warning|error|", 0,
      "Lowest level written to stderr."},
 };
@@ -158,6 +184,15 @@ static const option *option_find(const char *section, const char *key)
     return NULL;
 }
 
+/* 1 for an IPv4 literal in 127.0.0.0/8 (RFC 1122 3.2.1.3: loopback). */
+static int config_address_is_loopback(const char *address)
+{
+    struct in_addr parsed;
+    if (inet_pton(AF_INET, address, &parsed) != 1)
+        return 0;
+    return (ntohl(parsed.s_addr) >> 24) == 127;
+}
+
 /* Checks that only make sense across keys or need more than a bound. */
 static int config_validate(const config *config, char *reason, size_t reason_size,
                            const char **section, const char **key)
@@ -180,6 +215,43 @@ static int config_validate(const config *config, char *reason, size_t reason_siz
         return -1;
     }
     free(peers);
+    int certificate = config->dicom_tls_certificate[0] != '\0';
+    if (certificate != (config->dicom_tls_private_key[0] != '\0') ||
+        (config->dicom_tls_ca_certificates[0] != '\0' && !certificate)) {
+        *section = "dicom";
+        *key = certificate ? "tls_private_key" : "tls_certificate";
+        snprintf(reason, reason_size,
+                 "DICOM TLS needs both tls_certificate and tls_private_key "
+                 "(tls_ca_certificates only with them)");
+        return -1;
+    }
+    int https = config->http_tls_certificate[0] != '\0';
+    if (https != (config->http_tls_private_key[0] != '\0')) {
+        *section = "http";
+        *key = https ? "tls_private_key" : "tls_certificate";
+        snprintf(reason, reason_size, "HTTPS needs both tls_certificate and tls_private_key");
+        return -1;
+    }
+    int login = config->http_password_file[0] != '\0';
+    if (login && !https) {
+        *section = "http";
+        *key = "password_file";
+        snprintf(reason, reason_size,
+                 "a login over plain HTTP would send passwords in clear: set tls_certificate "
+                 "and tls_private_key too");
+        return -1;
+    }
+    if (!config_address_is_loopback(config->http_address) && !(https && login) &&
+        strcmp(config->http_allow_insecure_non_loopback, "yes") != 0) {
+        *section = "http";
+        *key = "address";
+        snprintf(reason, reason_size,
+                 "%.64s is not a loopback address: set tls_certificate, tls_private_key and "
+                 "password_file (HTTPS with a login), or use 127.0.0.1 behind a reverse "
+                 "proxy, or set allow_insecure_non_loopback = yes",
+                 config->http_address);
+        return -1;
+    }
     if (config->http_port == config->port) {
         *section = "http";
         *key = "port";

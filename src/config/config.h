@@ -30,23 +30,35 @@ typedef struct config {
     unsigned acse_timeout_seconds;
     unsigned dimse_timeout_seconds;
     unsigned max_pdu_bytes;
+    unsigned max_object_bytes;     /* 0 = no limit */
+    char *dicom_tls_certificate;   /* "" = plain TCP */
+    char *dicom_tls_private_key;
+    char *dicom_tls_ca_certificates; /* non-empty: client certificates required */
 
     /* [http] */
     char *http_address;
     unsigned http_port;
     char *web_root;
+    char *http_allow_insecure_non_loopback; /* "yes" or "no" */
+    char *http_tls_certificate;    /* PEM; "" = plain HTTP */
+    char *http_tls_private_key;    /* PEM */
+    char *http_password_file;      /* "user:crypt-hash" lines; "" = no login */
 
     /* [storage] */
     char *data_directory;
     char *database_path;           /* default: data_directory/mitilog.sqlite3 */
     char *retention;               /* "none", "header" or "full" */
     unsigned busy_timeout_ms;
+    unsigned sr_depth_limit;       /* SR content tree levels read */
 
     /* [site] */
     char *site_rules_path;         /* the site file (conf/site.ini); "" = none */
 
     /* [rules] */
     char *rules_policy_path;       /* the ALARA policy file (conf/policy.ini) */
+
+    /* [service] */
+    char *service_user;            /* "" = keep the starting user */
 
     /* [log] */
     char *log_level;               /* debug, info, warning, error */

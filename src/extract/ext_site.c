@@ -112,6 +112,7 @@ void ext_site_rules_free(ext_site_rules *rules)
         free(type->matches);
         free(type->key);
         free(type->label);
+        free(type->group);
     }
     free(rules->exam_types);
     free_names(rules->rooms, rules->room_count);

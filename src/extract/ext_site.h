@@ -56,6 +56,10 @@ typedef struct ext_exam_type {
     int obstetric;
     int trimester;              /* 0 unknown, 1..3 */
     double nominal_gestational_age_weeks; /* 0: none configured */
+    char *group;                /* policy group ("obstetric", "neonatal",
+                                 * "transcranial", "ophthalmic", "contrast",
+                                 * "general"); NULL: not set (obstetric
+                                 * types count as obstetric, others general) */
     ext_match *matches;         /* tried in order */
     size_t match_count;
 } ext_exam_type;

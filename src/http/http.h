@@ -23,6 +23,9 @@ typedef struct http_settings {
     const char *address;    /* IPv4 literal, e.g. "127.0.0.1" */
     unsigned port;
     const char *web_root;   /* folder with the dashboard's files; may be NULL */
+    const char *tls_certificate_file; /* PEM; NULL or "" = plain HTTP   */
+    const char *tls_private_key_file; /* PEM                             */
+    const char *password_file; /* NULL or "": no login (see http_auth.h) */
 } http_settings;
 
 typedef struct http_server http_server;

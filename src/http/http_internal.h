@@ -14,6 +14,7 @@
 #include <sqlite3.h>
 
 #include "http/http.h"
+#include "http/http_auth.h"
 
 struct http_server {
     struct MHD_Daemon *daemon;
@@ -23,6 +24,9 @@ struct http_server {
     sqlite3_stmt *error_json;    /* queries/error_json.sql, under lock   */
     pthread_mutex_t json_lock;
     unsigned port;               /* the bound port                       */
+    http_auth *auth;             /* NULL: no login required              */
+    char *tls_certificate;       /* PEM text kept for MHD, NULL: HTTP    */
+    char *tls_private_key;
 };
 
 /* A response to queue: status code and the response (owned). */
@@ -42,6 +46,16 @@ http_reply http_error_reply(http_server *server, unsigned status,
 /* http_routes.c: handles /healthz and /api/...; 0 if url is neither. */
 int http_route_api(http_server *server, struct MHD_Connection *connection,
                    const char *url, http_reply *reply);
+
+/* http_routes_findings.c: /api/v1/findings and /api/v1/policy; 0 if url
+ * is neither. */
+int http_route_findings(http_server *server, struct MHD_Connection *connection,
+                        const char *url, http_reply *reply);
+
+/* http_routes_stats.c: /api/v1/outliers, /api/v1/stats, /api/v1/drift and
+ * /api/v1/ingest; 0 if url is none of them. */
+int http_route_stats(http_server *server, struct MHD_Connection *connection,
+                     const char *url, http_reply *reply);
 
 /* http_static.c: serves url from web_root; 0 if there is no such file. */
 int http_route_static(const http_server *server, const char *url,

@@ -32,6 +32,7 @@ static const char http_fallback_error[] = "{\"error\":\"internal error\"}";
 /* Headers of every response: no MIME sniffing, no framing, own origin. */
 static void http_add_common_headers(struct MHD_Response *response)
 {
+    MHD_add_response_header(response, "Referrer-Policy", "no-referrer");
     MHD_add_response_header(response, "X-Content-Type-Options", "nosniff");
     MHD_add_response_header(response, "X-Frame-Options", "DENY");
     MHD_add_response_header(response, "Content-Security-Policy",
@@ -111,6 +112,34 @@ static enum MHD_Result http_queue(struct MHD_Connection *connection,
     return result;
 }
 
+/* 1 when the request carries a user and password of the password file. */
+static int http_login_accepted(http_server *server, struct MHD_Connection *connection)
+{
+    char *password = NULL;
+    char *user = MHD_basic_auth_get_username_password(connection, &password);
+    int accepted = http_auth_check(server->auth, user, password);
+    if (user != NULL)
+        MHD_free(user);
+    if (password != NULL)
+        MHD_free(password);
+    return accepted;
+}
+
+/* 401 with a Basic challenge and a JSON body. */
+static enum MHD_Result http_queue_login_request(http_server *server,
+                                                struct MHD_Connection *connection)
+{
+    http_reply reply = http_error_reply(server, MHD_HTTP_UNAUTHORIZED,
+                                        "a login is required");
+    if (reply.response == NULL)
+        return MHD_NO;
+    http_add_common_headers(reply.response);
+    enum MHD_Result result =
+        MHD_queue_basic_auth_fail_response(connection, "mitilog", reply.response);
+    MHD_destroy_response(reply.response);
+    return result;
+}
+
 /* MHD access handler: GET and HEAD only (MHD leaves out the body of a
  * HEAD reply), then the API, then static files, else 404. Answers on the
  * first call: no request body is ever needed. */
@@ -127,6 +156,9 @@ static enum MHD_Result http_handle(void *context,
     (void)state;
     http_server *server = context;
     http_reply reply;
+    if (server->auth != NULL && strcmp(url, "/healthz") != 0 &&
+        !http_login_accepted(server, connection))
+        return http_queue_login_request(server, connection);
     if (strcmp(method, MHD_HTTP_METHOD_GET) != 0 &&
         strcmp(method, MHD_HTTP_METHOD_HEAD) != 0) {
         reply = http_error_reply(server, MHD_HTTP_METHOD_NOT_ALLOWED,
@@ -180,6 +212,64 @@ static mitilog_status http_start_error(const struct sockaddr_in *address,
     return mitilog_error_set(error, MITILOG_ERROR_IO,
                              "HTTP: cannot start the server on %s:%u", text,
                              port);
+}
+
+/* Reads a whole PEM file into a malloc'ed string. */
+static mitilog_status http_read_pem(const char *path, char **out, mitilog_error *error)
+{
+    FILE *file = fopen(path, "rb");
+    if (file == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_IO, "HTTPS: %s: %s", path,
+                                 strerror(errno));
+    char *text = NULL;
+    size_t used = 0, size = 0;
+    mitilog_status status = MITILOG_OK;
+    for (;;) {
+        if (used + 4096 + 1 > size) {
+            size = size ? size * 2 : 8192;
+            char *grown = size <= (1u << 20) ? realloc(text, size) : NULL;
+            if (grown == NULL) {
+                status = mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                           "HTTPS: %s is too large for a PEM file", path);
+                break;
+            }
+            text = grown;
+        }
+        size_t count = fread(text + used, 1, 4096, file);
+        used += count;
+        if (count < 4096)
+            break;
+    }
+    fclose(file);
+    if (status != MITILOG_OK) {
+        free(text);
+        return status;
+    }
+    text[used] = '\0';
+    *out = text;
+    return MITILOG_OK;
+}
+
+/* Loads the TLS key and certificate and the password file, if set. */
+static mitilog_status http_prepare_security(http_server *server, const http_settings *settings,
+                                            mitilog_error *error)
+{
+    if (settings->tls_certificate_file != NULL && settings->tls_certificate_file[0] != '\0') {
+        mitilog_status status =
+            http_read_pem(settings->tls_certificate_file, &server->tls_certificate, error);
+        if (status == MITILOG_OK)
+            status = http_read_pem(settings->tls_private_key_file, &server->tls_private_key,
+                                   error);
+        if (status != MITILOG_OK)
+            return status;
+    }
+    if (settings->password_file != NULL && settings->password_file[0] != '\0') {
+        if (server->tls_certificate == NULL)
+            return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                     "HTTP login without HTTPS would send passwords in clear");
+        return http_auth_load(settings->password_file, &server->auth, error);
+    }
+    return MITILOG_OK;
 }
 
 /* The resolved web_root, or NULL (with a warning) when it is unusable. */
@@ -239,10 +329,24 @@ mitilog_status http_server_start(const http_settings *settings, store *st,
                                  "HTTP: cannot prepare error responses");
     }
     server->web_root = http_resolve_web_root(settings->web_root);
+    unsigned flags = MHD_USE_AUTO_INTERNAL_THREAD | MHD_USE_ERROR_LOG;
+    if (http_prepare_security(server, settings, error) != MITILOG_OK) {
+        http_server_stop(server);
+        return MITILOG_ERROR_INVALID;
+    }
+    if (server->tls_certificate != NULL)
+        flags |= MHD_USE_TLS;
 
+    /* The HTTPS options only when TLS is on: MHD refuses them otherwise. */
+    struct MHD_OptionItem tls_options[] = {
+        {MHD_OPTION_HTTPS_MEM_CERT, 0, server->tls_certificate},
+        {MHD_OPTION_HTTPS_MEM_KEY, 0, server->tls_private_key},
+        {MHD_OPTION_END, 0, NULL}};
+    if (server->tls_certificate == NULL)
+        tls_options[0].option = MHD_OPTION_END;
     server->daemon = MHD_start_daemon(
-        MHD_USE_AUTO_INTERNAL_THREAD | MHD_USE_ERROR_LOG,
-        (uint16_t)settings->port, NULL, NULL, &http_handle, server,
+        flags, (uint16_t)settings->port, NULL, NULL, &http_handle, server,
+        MHD_OPTION_ARRAY, tls_options,
         MHD_OPTION_EXTERNAL_LOGGER, &http_log_library, NULL,
         MHD_OPTION_SOCK_ADDR, (struct sockaddr *)&address,
         MHD_OPTION_THREAD_POOL_SIZE, (unsigned)HTTP_THREAD_POOL_SIZE,
@@ -258,7 +362,9 @@ mitilog_status http_server_start(const http_settings *settings, store *st,
     const union MHD_DaemonInfo *info =
         MHD_get_daemon_info(server->daemon, MHD_DAEMON_INFO_BIND_PORT);
     server->port = info != NULL ? info->port : settings->port;
-    log_info("http: listening on %s:%u%s%s", text, server->port,
+    log_info("http: listening on %s://%s:%u%s%s%s",
+             server->tls_certificate != NULL ? "https" : "http", text, server->port,
+             server->auth != NULL ? " (login required)" : "",
              server->web_root != NULL ? ", files from " : "",
              server->web_root != NULL ? server->web_root : "");
     *out = server;
@@ -275,5 +381,8 @@ void http_server_stop(http_server *server)
     sqlite3_close(server->json);
     pthread_mutex_destroy(&server->json_lock);
     free(server->web_root);
+    http_auth_free(server->auth);
+    free(server->tls_certificate);
+    free(server->tls_private_key);
     free(server);
 }

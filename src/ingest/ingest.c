@@ -30,6 +30,7 @@ struct ingest {
     dcm_private_request private_requests[EXT_SITE_PRESET_SOURCES_MAX];
     ingest_exams exams;
     ingest_schemes schemes;
+    unsigned sr_depth_limit;      /* [storage] sr_depth_limit */
 };
 
 mitilog_status ingest_create(const config *config, store *store, ingest **out,
@@ -39,6 +40,7 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out,
     if (created == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
     created->store = store;
+    created->sr_depth_limit = config->sr_depth_limit > 0 ? config->sr_depth_limit : SR_DEPTH_LIMIT;
     created->retention = strcmp(config->retention, "none") == 0   ? RETENTION_NONE
                          : strcmp(config->retention, "full") == 0 ? RETENTION_FULL
                                                                   : RETENTION_HEADER;
@@ -76,6 +78,19 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out,
         free(created);
         return status;
     }
+    if (config->rules_policy_path != NULL && config->rules_policy_path[0] != '\0') {
+        rules_policy *policy = NULL;
+        status = rules_policy_load(config->rules_policy_path, &policy, error);
+        if (status == MITILOG_OK)
+            status = ingest_set_policy(created, policy, error);
+        if (status != MITILOG_OK) {
+            ingest_free(created);
+            return status;
+        }
+        char version[65];
+        store_active_policy_version(store, version);
+        log_info("policy %s: version %s", config->rules_policy_path, version);
+    }
     log_info("site rules %s: %zu exam types, %zu rooms, %zu shifts, %zu SR codes",
              created->rules.source_path, created->rules.exam_type_count,
              created->rules.room_count + created->rules.room_by_ae_count,
@@ -103,14 +118,43 @@ void ingest_free(ingest *ingest)
 
 const ext_site_rules *ingest_site_rules(const ingest *ingest) { return &ingest->rules; }
 
+mitilog_status ingest_set_policy(ingest *ingest, rules_policy *policy, mitilog_error *error)
+{
+    if (policy != NULL) {
+        mitilog_status status = ingest_register_policy(ingest->store, policy, error);
+        if (status != MITILOG_OK) {
+            rules_policy_free(policy);
+            return status;
+        }
+    }
+    ingest_exams_swap_policy(&ingest->exams, policy);
+    return MITILOG_OK;
+}
+
+static mitilog_status read_record(dcm_object *object, const ext_site_rules *rules,
+                                  const dcm_private_request *requests,
+                                  const char *calling_ae_title, const char *received_at,
+                                  unsigned sr_depth_limit, dcm_facts *facts, ext_record *record,
+                                  mitilog_error *error);
+
 mitilog_status ingest_read_record(dcm_object *object, const ext_site_rules *rules,
                                   const dcm_private_request *requests,
                                   const char *calling_ae_title, const char *received_at,
                                   dcm_facts *facts, ext_record *record, mitilog_error *error)
 {
+    return read_record(object, rules, requests, calling_ae_title, received_at, SR_DEPTH_LIMIT,
+                       facts, record, error);
+}
+
+static mitilog_status read_record(dcm_object *object, const ext_site_rules *rules,
+                                  const dcm_private_request *requests,
+                                  const char *calling_ae_title, const char *received_at,
+                                  unsigned sr_depth_limit, dcm_facts *facts, ext_record *record,
+                                  mitilog_error *error)
+{
     memset(facts, 0, sizeof *facts);
     memset(record, 0, sizeof *record);
-    mitilog_status status = dcm_object_facts(object, SR_DEPTH_LIMIT, facts, error);
+    mitilog_status status = dcm_object_facts(object, sr_depth_limit, facts, error);
     if (status == MITILOG_OK)
         status = ext_record_from_facts(facts, record, error);
     if (status != MITILOG_OK)
@@ -225,9 +269,9 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
         return reject(ingest, source, reason);
     char now[EXT_ISO_TIME_SIZE];
     files_utc_now(now, sizeof now);
-    mitilog_status read = ingest_read_record(object, &ingest->rules, ingest->private_requests,
-                                             source->calling_ae_title, now, &facts, &record,
-                                             reason);
+    mitilog_status read = read_record(object, &ingest->rules, ingest->private_requests,
+                                      source->calling_ae_title, now, ingest->sr_depth_limit,
+                                      &facts, &record, reason);
     if (read == MITILOG_ERROR_MEMORY) {
         dcm_object_free(object);
         dcm_facts_free(&facts);
@@ -247,8 +291,8 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
         ingest_schemes_note(&ingest->schemes, record.sr->unknown_schemes[i],
                             record.sop_instance_uid);
     if (facts.sr_truncated)
-        log_warning("SR %s: content tree deeper than %d levels; deeper items not read",
-                    record.sop_instance_uid, SR_DEPTH_LIMIT);
+        log_warning("SR %s: content tree deeper than %u levels; deeper items not read",
+                    record.sop_instance_uid, ingest->sr_depth_limit);
     if (source->announced_sop_instance_uid[0] != '\0' &&
         strcmp(source->announced_sop_instance_uid, record.sop_instance_uid) != 0)
         log_warning("association %lu: C-STORE announced %s but the object is %s; stored as %s",

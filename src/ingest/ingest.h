@@ -17,6 +17,7 @@
 #include "config/config.h"
 #include "dicom/dcm.h"
 #include "extract/ext.h"
+#include "rules/rules.h"
 #include "store/store.h"
 #include "util/status.h"
 
@@ -69,6 +70,41 @@ mitilog_status ingest_read_record(dcm_object *object,
                                   const char *calling_ae_title,
                                   const char *received_at, dcm_facts *facts,
                                   ext_record *record, mitilog_error *error);
+
+/* ---- The ALARA policy (ingest_rules.c). ingest_create() loads
+ * [rules] policy (none when the path is ""); every rebuilt exam is then
+ * evaluated and its findings written (store_put_evaluation), and once a
+ * sweep interval (a minute, shorter for a short closing time) open exams
+ * that have been idle for closed_after_idle_minutes are re-evaluated so
+ * their findings lose the provisional flag. */
+
+/* Makes policy (taken over; NULL allowed) current for exams evaluated
+ * from now on and registers it in the store. The previous policy is freed
+ * when the worker no longer uses it. On error the policy is freed and the
+ * old one stays. */
+mitilog_status ingest_set_policy(ingest *ingest, rules_policy *policy,
+                                 mitilog_error *error);
+
+/* The clock of open/closed decisions: Unix seconds. */
+double ingest_clock_now(void);
+
+/* Registers a policy in the store (policies row, rules as JSON) and makes
+ * it the store's active one. */
+mitilog_status ingest_register_policy(store *store, const rules_policy *policy,
+                                      mitilog_error *error);
+
+/* Rebuilds a study's exam record and, with a policy, evaluates it at now
+ * (and, with with_days, output_not_reported for the days of its
+ * instances). counts may be NULL. `mitilog rescore` uses it. */
+mitilog_status ingest_evaluate_study(store *store, const struct ext_site_rules *rules,
+                                     const rules_policy *policy,
+                                     const char *study_instance_uid, double now,
+                                     int with_days, store_evaluation_counts *counts,
+                                     mitilog_error *error);
+/* output_not_reported over the ultrasound instances of one day. */
+mitilog_status ingest_evaluate_day(store *store, const rules_policy *policy,
+                                   const char *day, store_evaluation_counts *counts,
+                                   mitilog_error *error);
 
 /* dcm_store_handler for the receiver: context is the ingest. */
 uint16_t ingest_store_handler(void *context, const dcm_received *object);

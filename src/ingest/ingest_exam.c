@@ -9,10 +9,13 @@
  */
 #include "ingest/ingest_internal.h"
 
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <time.h>
 
 #include "extract/ext_exam.h"
+#include "ingest/ingest.h"
 #include "util/log.h"
 
 mitilog_status ingest_exam_rebuild(store *store, const ext_site_rules *rules,
@@ -36,13 +39,114 @@ mitilog_status ingest_exam_rebuild(store *store, const ext_site_rules *rules,
     return status;
 }
 
+ingest_policy_handle *ingest_exams_hold_policy(ingest_exams *exams)
+{
+    pthread_mutex_lock(&exams->policy_lock);
+    ingest_policy_handle *handle = exams->policy;
+    if (handle != NULL)
+        handle->holders++;
+    pthread_mutex_unlock(&exams->policy_lock);
+    return handle;
+}
+
+static void ingest_policy_handle_drop(ingest_policy_handle *handle)
+{
+    rules_policy_free(handle->policy);
+    free(handle);
+}
+
+void ingest_exams_release_policy(ingest_exams *exams, ingest_policy_handle *handle)
+{
+    if (handle == NULL)
+        return;
+    pthread_mutex_lock(&exams->policy_lock);
+    int last = --handle->holders == 0;
+    pthread_mutex_unlock(&exams->policy_lock);
+    if (last)
+        ingest_policy_handle_drop(handle);
+}
+
+void ingest_exams_swap_policy(ingest_exams *exams, rules_policy *policy)
+{
+    ingest_policy_handle *handle = NULL;
+    if (policy != NULL) {
+        handle = calloc(1, sizeof *handle);
+        if (handle == NULL) {
+            log_error("policy: out of memory, the previous policy stays");
+            rules_policy_free(policy);
+            return;
+        }
+        handle->policy = policy;
+        handle->holders = 1; /* the exams' own reference */
+    }
+    pthread_mutex_lock(&exams->policy_lock);
+    ingest_policy_handle *old = exams->policy;
+    exams->policy = handle;
+    pthread_mutex_unlock(&exams->policy_lock);
+    ingest_exams_release_policy(exams, old);
+    pthread_mutex_lock(&exams->lock);
+    exams->next_sweep = 0; /* sweep soon under the new closing time */
+    pthread_cond_broadcast(&exams->changed);
+    pthread_mutex_unlock(&exams->lock);
+}
+
+/* Seconds between sweeps: a minute, or a quarter of a short closing time
+ * (at least a second), so tests with closed_after_idle_minutes = 0.05 see
+ * exams close within seconds. */
+static double ingest_sweep_interval(const rules_policy *policy)
+{
+    double idle = rules_policy_closed_after_idle_minutes(policy) * 60.0 / 4.0;
+    return idle < 1.0 ? 1.0 : idle > 60.0 ? 60.0 : idle;
+}
+
+/* Queues the open exams that have been idle long enough (under lock). */
+static void ingest_exams_sweep(ingest_exams *exams, const rules_policy *policy)
+{
+    char now_text[64], idle_text[64];
+    snprintf(now_text, sizeof now_text, "%.3f", ingest_clock_now());
+    snprintf(idle_text, sizeof idle_text, "%.3f",
+             rules_policy_closed_after_idle_minutes(policy) * 60.0);
+    char **due = NULL;
+    size_t count = 0;
+    mitilog_error error;
+    if (store_list(exams->store, STORE_LIST_DUE_CLOSING, now_text, idle_text, &due, &count,
+                   &error) != MITILOG_OK) {
+        log_warning("closing sweep: %s", error.text);
+        return;
+    }
+    if (count > 0)
+        log_debug("closing sweep: %zu exam(s) became closed", count);
+    for (size_t i = 0; i < count; i++)
+        ingest_exams_mark(exams, due[i]);
+    store_texts_free(due, count);
+}
+
 static void *ingest_exams_run(void *argument)
 {
     ingest_exams *exams = argument;
     pthread_mutex_lock(&exams->lock);
     for (;;) {
-        while (exams->dirty_count == 0 && !exams->stopping)
-            pthread_cond_wait(&exams->changed, &exams->lock);
+        while (exams->dirty_count == 0 && !exams->stopping) {
+            ingest_policy_handle *handle = ingest_exams_hold_policy(exams);
+            if (handle == NULL) {
+                pthread_cond_wait(&exams->changed, &exams->lock);
+                continue;
+            }
+            double now = ingest_clock_now();
+            if (now >= exams->next_sweep) {
+                exams->next_sweep = now + ingest_sweep_interval(handle->policy);
+                pthread_mutex_unlock(&exams->lock);
+                ingest_exams_sweep(exams, handle->policy);
+                ingest_exams_release_policy(exams, handle);
+                pthread_mutex_lock(&exams->lock);
+                continue;
+            }
+            ingest_exams_release_policy(exams, handle);
+            struct timespec until;
+            until.tv_sec = (time_t)exams->next_sweep;
+            until.tv_nsec = (long)((exams->next_sweep - (double)until.tv_sec) * 1e9);
+            pthread_cond_timedwait(&exams->changed, &exams->lock, &until);
+        }
         if (exams->dirty_count == 0)
             break; /* stopping, nothing left */
         char *study = exams->dirty[0];
@@ -52,11 +156,18 @@ static void *ingest_exams_run(void *argument)
         pthread_mutex_unlock(&exams->lock);
 
         mitilog_error error;
-        mitilog_status status = ingest_exam_rebuild(exams->store, exams->rules, study, &error);
+        ingest_policy_handle *handle = ingest_exams_hold_policy(exams);
+        store_evaluation_counts counts = {0};
+        mitilog_status status = ingest_evaluate_study(
+            exams->store, exams->rules, handle != NULL ? handle->policy : NULL, study,
+            ingest_clock_now(), 1, &counts, &error);
+        ingest_exams_release_policy(exams, handle);
         if (status != MITILOG_OK)
-            log_error("study %s: exam record not rebuilt: %s", study, error.text);
+            log_error("study %s: exam record not rebuilt or not evaluated: %s", study,
+                      error.text);
         else
-            log_debug("study %s: exam record rebuilt", study);
+            log_debug("study %s: exam record rebuilt; %lu finding(s) written, %lu superseded",
+                      study, counts.written, counts.superseded);
         free(study);
 
         pthread_mutex_lock(&exams->lock);
@@ -78,10 +189,12 @@ mitilog_status ingest_exams_start(ingest_exams *exams, store *store, const ext_s
     exams->store = store;
     exams->rules = rules;
     pthread_mutex_init(&exams->lock, NULL);
+    pthread_mutex_init(&exams->policy_lock, NULL);
     pthread_cond_init(&exams->changed, NULL);
     if (pthread_create(&exams->thread, NULL, ingest_exams_run, exams) != 0) {
         pthread_cond_destroy(&exams->changed);
         pthread_mutex_destroy(&exams->lock);
+        pthread_mutex_destroy(&exams->policy_lock);
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "cannot start the exam worker");
     }
     exams->started = 1;
@@ -144,7 +257,10 @@ void ingest_exams_stop(ingest_exams *exams)
     for (size_t i = 0; i < exams->dirty_count; i++)
         free(exams->dirty[i]);
     free(exams->dirty);
+    ingest_exams_release_policy(exams, exams->policy);
+    exams->policy = NULL;
     pthread_cond_destroy(&exams->changed);
     pthread_mutex_destroy(&exams->lock);
+    pthread_mutex_destroy(&exams->policy_lock);
     exams->started = 0;
 }

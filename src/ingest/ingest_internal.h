@@ -14,7 +14,15 @@
 #include <pthread.h>
 
 #include "extract/ext_site.h"
+#include "rules/rules.h"
 #include "store/store.h"
+
+/* A policy shared by the worker and whoever swaps it (SIGHUP): freed when
+ * the last holder releases it (ingest_rules_handle_release). */
+typedef struct ingest_policy_handle {
+    rules_policy *policy;
+    unsigned holders;              /* under ingest_exams.policy_lock     */
+} ingest_policy_handle;
 
 typedef struct ingest_exams {
     store *store;
@@ -28,7 +36,18 @@ typedef struct ingest_exams {
     int started;
     pthread_t thread;
     unsigned long rebuilt, failed;
+    pthread_mutex_t policy_lock;
+    ingest_policy_handle *policy;  /* current; NULL: exams not evaluated */
+    double next_sweep;             /* ingest_clock_now() of the next sweep */
 } ingest_exams;
+
+/* The current policy, held until ingest_exams_release_policy (NULL: none). */
+ingest_policy_handle *ingest_exams_hold_policy(ingest_exams *exams);
+void ingest_exams_release_policy(ingest_exams *exams, ingest_policy_handle *handle);
+/* Makes policy (taken over) current; the old one is freed once released. */
+void ingest_exams_swap_policy(ingest_exams *exams, rules_policy *policy);
+/* ext_mode bits to RULES_MODE_* (Image Type value 4) bits. */
+unsigned ingest_rules_modes(unsigned ext_modes);
 
 mitilog_status ingest_exams_start(ingest_exams *exams, store *store,
                                   const ext_site_rules *rules,

@@ -172,6 +172,8 @@ void rules_policy_free(rules_policy *policy);
 /* SHA-256 hex of the normalised content: whitespace, comments, key order
  * and number spelling ("2" vs "2.0") do not change it; any value does. */
 const char *rules_policy_version(const rules_policy *policy);
+/* [policy] name; NULL when not set. */
+const char *rules_policy_name(const rules_policy *policy);
 /* Normalised serialisation the version is computed from. */
 const char *rules_policy_normalised(const rules_policy *policy);
 

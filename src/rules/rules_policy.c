@@ -283,6 +283,11 @@ const char *rules_policy_version(const rules_policy *policy)
     return policy->version;
 }
 
+const char *rules_policy_name(const rules_policy *policy)
+{
+    return policy->name;
+}
+
 const char *rules_policy_normalised(const rules_policy *policy)
 {
     return policy->normalised;

@@ -117,6 +117,239 @@ mitilog_status store_studies_json(store *store, const char *from,
 mitilog_status store_health_json(store *store, char **json,
                                  mitilog_error *error);
 
+/* ---- ALARA policy and findings (store_findings.c, store_findings_read.c).
+ * The store knows no rules: callers (src/ingest, src/cli) flatten a
+ * policy and its findings into the plain structs below; every string is
+ * borrowed for the call. */
+
+typedef struct store_policy_rule {
+    const char *id, *kind, *severity;   /* "ti_ceiling", "warning" */
+    int enabled;
+    const char *source, *description;
+    const char *const *setting_keys;    /* "limit.group.ophthalmic" */
+    const char *const *setting_values;  /* normalised text: "2", "off" */
+    size_t setting_count;
+} store_policy_rule;
+
+typedef struct store_policy {
+    const char *version;                /* SHA-256 hex of the normalised text */
+    const char *name;
+    const char *normalised_text;
+    double closed_after_idle_minutes, gap_cap_seconds;
+    const store_policy_rule *rules;
+    size_t rule_count;
+} store_policy;
+
+/* Writes (or refreshes) the policy row with its rules described as JSON
+ * (built by SQLite's JSON functions) and makes it this store's active
+ * policy: the one GET /api/v1/policy serves and study details use. */
+mitilog_status store_register_policy(store *store, const store_policy *policy,
+                                     mitilog_error *error);
+/* Copies the active version ("" when none) into out. */
+void store_active_policy_version(store *store, char out[65]);
+
+typedef struct store_finding {
+    const char *rule_id, *severity, *quantity, *unit;
+    double measured;
+    int has_limit;
+    double limit;
+    double threshold;
+    const char *governing_index;        /* "tib", NULL */
+    const char *const *instance_uids;
+    size_t instance_count;
+    int has_span;
+    double first_seconds, last_seconds; /* ext_iso_to_seconds scale */
+    double estimated_seconds;
+    const char *assumptions, *source;
+    int provisional;
+    const char *room, *transducer;      /* device-level findings */
+} store_finding;
+
+enum { STORE_DWELL_STEPS = 6 };         /* 0.7 1.0 1.5 2.0 2.5 3.0 */
+
+/* One evaluation: of an exam (study_instance_uid set) or of a
+ * device-level rule over a period (study_instance_uid NULL, rule_id and
+ * period set). Written in ONE transaction: policy row ensured, this
+ * version's findings of the exam (or rule and period) deleted, other
+ * versions' marked superseded, the new findings inserted, and for an
+ * exam its exam_context and exam_measurements rows upserted. An
+ * evaluation whose content hash equals the stored one (and that leaves
+ * nothing to supersede) writes nothing: re-evaluating is idempotent. */
+typedef struct store_evaluation {
+    const char *policy_version, *policy_name, *normalised_text;
+    const char *study_instance_uid;
+    const char *rule_id, *period;       /* device-level */
+    /* exam context */
+    const char *exam_type, *room, *preset, *shift, *transducer, *age_group;
+    const char *last_received_at;
+    int closed;
+    const store_finding *findings;
+    size_t finding_count;
+    /* exam measurements */
+    const char *governing_index;
+    int has_max_governing, has_max_mi;
+    double max_governing, max_mi;
+    double cem43_minutes, estimated_seconds, doppler_seconds;
+    double seconds_at_or_above[STORE_DWELL_STEPS];
+} store_evaluation;
+
+typedef struct store_evaluation_counts {
+    unsigned long evaluations, unchanged, written, superseded;
+} store_evaluation_counts;
+
+/* counts (may be NULL) is added to. */
+mitilog_status store_put_evaluation(store *store, const store_evaluation *evaluation,
+                                    store_evaluation_counts *counts,
+                                    mitilog_error *error);
+
+/* A study's context for an evaluation (malloc'ed strings, NULL when
+ * absent; store_study_context_free). found = 0: no instance. */
+typedef struct store_study_context {
+    int found;
+    char *room, *preset, *shift, *transducer, *age_group, *last_received_at;
+    double idle_seconds;                /* now - last receipt */
+} store_study_context;
+mitilog_status store_load_study_context(store *store, const char *study_instance_uid,
+                                        double now_unix_seconds,
+                                        store_study_context *context,
+                                        mitilog_error *error);
+void store_study_context_free(store_study_context *context);
+
+/* Lists of text (malloc'ed array of malloc'ed strings; store_texts_free).
+ * STORE_LIST_EXAMS_IN_PERIOD: study UIDs by first acquisition date in
+ * [a, b] (dates, NULL open). STORE_LIST_DUE_CLOSING: open exams idle for
+ * at least b seconds at a (Unix seconds, both as decimal text).
+ * STORE_LIST_STUDY_DAYS: days of study a. STORE_LIST_DAYS: days with
+ * ultrasound instances in [a, b]. */
+typedef enum store_list_kind {
+    STORE_LIST_EXAMS_IN_PERIOD = 0,
+    STORE_LIST_DUE_CLOSING,
+    STORE_LIST_STUDY_DAYS,
+    STORE_LIST_DAYS
+} store_list_kind;
+mitilog_status store_list(store *store, store_list_kind kind, const char *a, const char *b,
+                          char ***texts, size_t *count, mitilog_error *error);
+void store_texts_free(char **texts, size_t count);
+
+/* Ultrasound instances of one day for rule output_not_reported. */
+typedef struct store_device_instance {
+    char *sop_instance_uid, *study_instance_uid, *room, *transducer, *acquired_at;
+    int has_any_index;
+} store_device_instance;
+mitilog_status store_load_day_instances(store *store, const char *day,
+                                        store_device_instance **instances, size_t *count,
+                                        mitilog_error *error);
+void store_day_instances_free(store_device_instance *instances, size_t count);
+
+/* GET /api/v1/findings. Filters: NULL or "" = none. */
+typedef struct store_finding_filter {
+    const char *from, *to;              /* dates YYYY-MM-DD */
+    const char *severity, *rule, *room, *preset, *shift;
+    int include_superseded;
+    long limit;                         /* <= 0: default 1000 */
+} store_finding_filter;
+mitilog_status store_findings_json(store *store, const store_finding_filter *filter,
+                                   char **json, mitilog_error *error);
+/* GET /api/v1/policy: the active policy; MITILOG_ERROR_NOT_FOUND if none. */
+mitilog_status store_policy_json(store *store, char **json, mitilog_error *error);
+
+
+/* ---- Statistics reads (store_read_stats.c) ---- */
+
+enum { STORE_THRESHOLD_COUNT = 4 };   /* governing TI 0.7, 1.0, 1.5, 2.0 */
+
+/* One exam for statistics (sql/queries/stats_exam_rows.sql). Strings are
+ * malloc'ed (NULL: not recorded); freed by store_exam_rows_free(). */
+typedef struct store_exam_row {
+    char *study_instance_uid;
+    char *day;                  /* local date of the first capture */
+    char *exam_type, *exam_type_label, *governing_index;
+    double max_governing;       /* when has_max_governing */
+    int has_max_governing;
+    double max_mi;
+    int has_max_mi;
+    char *room, *preset, *shift, *transducer;
+    char *study_description;
+    double estimated_seconds;
+    double seconds_at_or_above[STORE_THRESHOLD_COUNT];
+    long capture_count, indexed_count;
+    long finding_count;
+    char *first_acquired_at;
+} store_exam_row;
+
+/* Exams whose day is between from_day and to_day (YYYY-MM-DD, inclusive),
+ * ordered by Study Instance UID. *rows is NULL with count 0 when none. */
+mitilog_status store_load_exam_rows(store *store, const char *from_day,
+                                    const char *to_day, store_exam_row **rows,
+                                    size_t *count, mitilog_error *error);
+void store_exam_rows_free(store_exam_row *rows, size_t count);
+
+/* Findings (not superseded) per exam and rule for the same period,
+ * ordered by Study Instance UID, then rule. */
+typedef struct store_finding_count {
+    char *study_instance_uid;
+    char *rule_id;
+    long count;
+} store_finding_count;
+
+mitilog_status store_load_finding_counts(store *store, const char *from_day,
+                                         const char *to_day,
+                                         store_finding_count **rows,
+                                         size_t *count, mitilog_error *error);
+void store_finding_counts_free(store_finding_count *rows, size_t count);
+
+/* What a report states: the current policy (NULL when none was recorded),
+ * the versions of the period's findings ("v1,v2" or NULL) and the first
+ * and last exam day held (NULL when no exam). Free with
+ * store_period_info_free(). */
+typedef struct store_period_info {
+    char *policy_version;
+    char *policy_name;
+    char *finding_policy_versions;
+    char *first_day, *last_day;
+} store_period_info;
+
+mitilog_status store_load_period_info(store *store, const char *from_day,
+                                      const char *to_day,
+                                      store_period_info *info,
+                                      mitilog_error *error);
+void store_period_info_free(store_period_info *info);
+
+/* JSON object for GET /api/v1/ingest (docs/api.md): objects per hour over
+ * window_hours, rejections and quarantine, devices (silent after
+ * silent_hours), transducers not reporting output in the last days. */
+mitilog_status store_ingest_json(store *store, int window_hours,
+                                 int silent_hours, int days, char **json,
+                                 mitilog_error *error);
+
+/* A one-off in-memory SQLite connection for building documents with
+ * SQLite's JSON functions from computed values (src/report/). schema
+ * names an sql/ file run at open. Freed with store_scratch_close(). */
+typedef struct store_scratch store_scratch;
+mitilog_status store_scratch_open(const char *schema, store_scratch **out,
+                                  mitilog_error *error);
+void store_scratch_close(store_scratch *scratch);
+/* Prepares sql/NAME on the scratch connection; the statement is owned by
+ * the scratch (finalised at close) and reset by store_scratch_step. */
+typedef struct store_scratch_statement store_scratch_statement;
+mitilog_status store_scratch_prepare(store_scratch *scratch, const char *name,
+                                     store_scratch_statement **out,
+                                     mitilog_error *error);
+/* Binding by parameter name (":key"); text NULL binds NULL. */
+mitilog_status store_scratch_bind_text(store_scratch_statement *statement,
+                                       const char *name, const char *text);
+mitilog_status store_scratch_bind_double(store_scratch_statement *statement,
+                                         const char *name, int present,
+                                         double value);
+mitilog_status store_scratch_bind_int(store_scratch_statement *statement,
+                                      const char *name, long long value);
+/* Runs to completion (inserts) and resets, clearing bindings. */
+mitilog_status store_scratch_run(store_scratch_statement *statement,
+                                 mitilog_error *error);
+/* Runs a one-row, one-column query; *text malloc'ed. Resets. */
+mitilog_status store_scratch_text(store_scratch_statement *statement,
+                                  char **text, mitilog_error *error);
+
 #ifdef __cplusplus
 }
 #endif

@@ -21,7 +21,10 @@
 typedef struct store_request {
     const ext_record *record;           /* exactly one of record ...     */
     const store_rejection *rejection;   /* ... rejection ...             */
-    const store_exam *exam;             /* ... and exam is set           */
+    const store_exam *exam;             /* ... exam ...                  */
+    const store_evaluation *evaluation; /* ... evaluation ...            */
+    const store_policy *policy;         /* ... or policy is set          */
+    store_evaluation_counts counts;     /* evaluation: what it did       */
     mitilog_status status;
     store_put_outcome outcome;
     mitilog_error error;
@@ -75,6 +78,7 @@ struct store {
     pthread_mutex_t reader_lock;
 
     int schema_version;
+    char active_policy[65];             /* under reader_lock; "" = none  */
 };
 
 /* store_sql.c */
@@ -115,6 +119,13 @@ int store_bind_double_named(sqlite3_stmt *statement, const char *name,
                             int present, double value);
 int store_bind_int_named(sqlite3_stmt *statement, const char *name,
                          sqlite3_int64 value);
+
+/* store_findings.c: inside the request's savepoint. */
+mitilog_status store_write_evaluation(store *store, const store_evaluation *evaluation,
+                                      store_evaluation_counts *counts,
+                                      mitilog_error *error);
+mitilog_status store_write_policy(store *store, const store_policy *policy,
+                                  mitilog_error *error);
 
 /* store_read.c */
 mitilog_status store_read_prepare(store *store, mitilog_error *error);

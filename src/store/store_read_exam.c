@@ -126,6 +126,10 @@ mitilog_status store_study_json(store *st, const char *study_instance_uid, char 
     sqlite3_stmt *statement = st->read.study_detail;
     mitilog_status status;
     int rc = sqlite3_bind_text(statement, 1, study_instance_uid, -1, SQLITE_TRANSIENT);
+    if (rc == SQLITE_OK)
+        rc = st->active_policy[0] != '\0'
+                 ? sqlite3_bind_text(statement, 2, st->active_policy, -1, SQLITE_TRANSIENT)
+                 : sqlite3_bind_null(statement, 2);
     if (rc != SQLITE_OK)
         status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "study: bind: %s",
                                    sqlite3_errstr(rc));

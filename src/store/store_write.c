@@ -458,6 +458,11 @@ static mitilog_status store_write_one(store *st, store_request *request)
         request->record != NULL ? store_write_instance(st, request)
         : request->exam != NULL ? store_write_exam(st, request->exam,
                                                    &request->error)
+        : request->evaluation != NULL
+            ? store_write_evaluation(st, request->evaluation,
+                                     &request->counts, &request->error)
+        : request->policy != NULL ? store_write_policy(st, request->policy,
+                                                       &request->error)
                                 : store_write_rejection(st, request);
     if (sqlite3_get_autocommit(st->writer))
         return status; /* SQLite already rolled the transaction back */
@@ -594,6 +599,43 @@ mitilog_status store_put_exam(store *st, const store_exam *exam,
                                  "exam: text is not UTF-8");
     store_request request = {.exam = exam};
     return store_submit(st, &request, error);
+}
+
+mitilog_status store_put_evaluation(store *st,
+                                    const store_evaluation *evaluation,
+                                    store_evaluation_counts *counts,
+                                    mitilog_error *error)
+{
+    if (st == NULL || evaluation == NULL || evaluation->policy_version == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "store_put_evaluation: no store or evaluation");
+    store_request request = {.evaluation = evaluation};
+    mitilog_status status = store_submit(st, &request, error);
+    if (status == MITILOG_OK && counts != NULL) {
+        counts->evaluations += request.counts.evaluations;
+        counts->unchanged += request.counts.unchanged;
+        counts->written += request.counts.written;
+        counts->superseded += request.counts.superseded;
+    }
+    return status;
+}
+
+mitilog_status store_register_policy(store *st, const store_policy *policy,
+                                     mitilog_error *error)
+{
+    if (st == NULL || policy == NULL || policy->version == NULL ||
+        strlen(policy->version) >= sizeof st->active_policy)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "store_register_policy: no store or policy");
+    store_request request = {.policy = policy};
+    mitilog_status status = store_submit(st, &request, error);
+    if (status == MITILOG_OK) {
+        pthread_mutex_lock(&st->reader_lock);
+        snprintf(st->active_policy, sizeof st->active_policy, "%s",
+                 policy->version);
+        pthread_mutex_unlock(&st->reader_lock);
+    }
+    return status;
 }
 
 mitilog_status store_put_rejection(store *st,

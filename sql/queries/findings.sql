@@ -1,0 +1,29 @@
+-- GET /api/v1/findings: a JSON array of findings, newest first.
+-- ?1 from, ?2 to (dates 'YYYY-MM-DD', inclusive, on the finding's
+-- started_at, else the exam's first acquisition, else its period),
+-- ?3 severity, ?4 rule, ?5 room, ?6 preset, ?7 shift (NULL = any),
+-- ?8 include superseded (0/1), ?9 limit.
+WITH chosen AS (
+    SELECT f.*, substr(coalesce(f.started_at, e.first_acquired_at, f.period), 1, 10) AS day
+    FROM findings f LEFT JOIN exams e ON e.study_instance_uid = f.study_instance_uid
+    WHERE (?8 OR f.superseded = 0)
+      AND (?3 IS NULL OR f.severity = ?3) AND (?4 IS NULL OR f.rule_id = ?4)
+      AND (?5 IS NULL OR f.room = ?5) AND (?6 IS NULL OR f.preset = ?6)
+      AND (?7 IS NULL OR f.shift = ?7))
+SELECT coalesce(json_group_array(json(document)), '[]') FROM (
+    SELECT json_object(
+        'id', id, 'study_instance_uid', study_instance_uid, 'rule_id', rule_id,
+        'severity', severity, 'quantity', quantity, 'measured_value', measured_value,
+        'unit', unit, 'limit_value', limit_value, 'threshold', threshold,
+        'governing_index', governing_index, 'instance_uids', json(instance_uids),
+        'started_at', started_at, 'ended_at', ended_at,
+        'estimated_seconds', estimated_seconds, 'assumptions', assumptions,
+        'source', source_text,
+        'provisional', json(iif(provisional, 'true', 'false')),
+        'superseded', json(iif(superseded, 'true', 'false')),
+        'policy_version', policy_version, 'exam_type', exam_type, 'room', room,
+        'preset', preset, 'shift', shift, 'transducer', transducer,
+        'period', period, 'evaluated_at', evaluated_at) AS document
+    FROM chosen
+    WHERE (?1 IS NULL OR day >= ?1) AND (?2 IS NULL OR day <= ?2)
+    ORDER BY day DESC, id DESC LIMIT ?9);

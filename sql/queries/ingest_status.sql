@@ -1,0 +1,74 @@
+-- The ingest status document (store_ingest_json, GET /api/v1/ingest).
+-- ?1: window in hours (objects per hour, device activity); received_at is
+-- UTC. A device (calling AE title and Station Name) is "silent" when it
+-- has sent nothing for ?2 hours although it sent before. not_reporting:
+-- per room and transducer, image objects of the last ?3 days of data
+-- (by acquisition day) that carried no index at all.
+WITH now AS (
+    SELECT strftime('%Y-%m-%dT%H:%M:%SZ', 'now') AS at,
+           strftime('%Y-%m-%dT%H:%M:%SZ', 'now', printf('-%d hours', ?1)) AS window_start,
+           strftime('%Y-%m-%dT%H:%M:%SZ', 'now', printf('-%d hours', ?2)) AS silent_before
+),
+hours AS (
+    SELECT substr(received_at, 1, 13) AS hour, count(*) AS objects,
+           sum(iif(object_kind IN ('image', 'multiframe', 'volume')
+                   AND mi IS NULL AND tis IS NULL AND tib IS NULL AND tic IS NULL, 1, 0))
+               AS without_indices
+    FROM instances WHERE received_at >= (SELECT window_start FROM now)
+    GROUP BY 1 ORDER BY 1
+),
+devices AS (
+    SELECT coalesce(nullif(calling_ae_title, ''), '(import)') AS calling_ae_title,
+           station_name, max(room) AS room, count(*) AS objects,
+           sum(iif(received_at >= (SELECT window_start FROM now), 1, 0)) AS objects_in_window,
+           max(received_at) AS last_received_at
+    FROM instances GROUP BY 1, 2 ORDER BY 1, 2
+),
+last_day AS (
+    SELECT max(substr(acquired_at, 1, 10)) AS day FROM instances
+),
+not_reporting AS (
+    SELECT room, transducer_data AS transducer, count(*) AS instances,
+           sum(iif(mi IS NULL AND tis IS NULL AND tib IS NULL AND tic IS NULL, 1, 0))
+               AS without_indices,
+           min(iif(mi IS NULL AND tis IS NULL AND tib IS NULL AND tic IS NULL,
+                   acquired_at, NULL)) AS first_without_at
+    FROM instances
+    WHERE object_kind IN ('image', 'multiframe', 'volume')
+      AND substr(acquired_at, 1, 10) >= date((SELECT day FROM last_day), printf('-%d days', ?3 - 1))
+    GROUP BY 1, 2
+    HAVING without_indices > 0
+    ORDER BY without_indices DESC, 1, 2
+)
+SELECT json_object(
+    'generated_at', (SELECT at FROM now),
+    'window_hours', ?1,
+    'silent_after_hours', ?2,
+    'not_reporting_days', ?3,
+    'totals', json_object(
+        'instances', (SELECT count(*) FROM instances),
+        'studies', (SELECT count(*) FROM exams),
+        'rejections', (SELECT count(*) FROM rejections),
+        'quarantined', (SELECT count(*) FROM rejections WHERE quarantine_path <> ''),
+        'last_received_at', (SELECT max(received_at) FROM instances)),
+    'objects_per_hour', (SELECT json_group_array(json_object(
+        'hour', hour || ':00Z', 'objects', objects, 'without_indices', without_indices))
+        FROM hours),
+    'rejections_by_reason', (SELECT json_group_array(json_object('reason', reason, 'count', n))
+        FROM (SELECT reason, count(*) AS n FROM rejections GROUP BY reason
+              ORDER BY n DESC, reason LIMIT 50)),
+    'rejections_recent', (SELECT json_group_array(json_object(
+        'received_at', received_at, 'calling_ae_title', calling_ae_title,
+        'sop_class_uid', sop_class_uid, 'reason', reason,
+        'quarantined', json(iif(quarantine_path <> '', 'true', 'false'))))
+        FROM (SELECT * FROM rejections ORDER BY received_at DESC, id DESC LIMIT 50)),
+    'devices', (SELECT json_group_array(json_object(
+        'calling_ae_title', calling_ae_title, 'station_name', station_name, 'room', room,
+        'objects', objects, 'objects_in_window', objects_in_window,
+        'last_received_at', last_received_at,
+        'silent', json(iif(last_received_at < (SELECT silent_before FROM now), 'true', 'false'))))
+        FROM devices),
+    'not_reporting', (SELECT json_group_array(json_object(
+        'room', room, 'transducer', transducer, 'instances', instances,
+        'without_indices', without_indices, 'first_without_at', first_without_at))
+        FROM not_reporting));

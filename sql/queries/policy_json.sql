@@ -1,0 +1,11 @@
+-- GET /api/v1/policy: the active policy of this process. ?1 version.
+SELECT json_object(
+    'version', version, 'name', name,
+    'first_loaded_at', first_loaded_at, 'loaded_at', last_loaded_at,
+    'closed_after_idle_minutes', closed_after_idle_minutes,
+    'gap_cap_seconds', gap_cap_seconds,
+    'rules', json(rules_json),
+    'caution', 'Defaults typed from the domain reference; values marked "from memory" must be '
+               || 'checked against the named document. Local policy governs: the department''s '
+               || 'safety policy, its medical physicist and local regulation decide; mitilog advises.')
+FROM policies WHERE version = ?1;

@@ -1,0 +1,131 @@
+#include "http/http_auth.h"
+
+#include <crypt.h>
+#include <errno.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+typedef struct http_user {
+    char *name;
+    char *hash;
+} http_user;
+
+struct http_auth {
+    http_user *users;
+    size_t count;
+};
+
+void http_auth_free(http_auth *auth)
+{
+    if (auth == NULL)
+        return;
+    for (size_t i = 0; i < auth->count; i++) {
+        free(auth->users[i].name);
+        free(auth->users[i].hash);
+    }
+    free(auth->users);
+    free(auth);
+}
+
+/* Adds "name:hash" (line without its newline) to the table. */
+static mitilog_status http_auth_add(http_auth *auth, char *line, const char *path, int number,
+                                    mitilog_error *error)
+{
+    char *colon = strchr(line, ':');
+    if (colon == NULL || colon == line || colon[1] != '$')
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "%s:%d: expected user:$crypt-hash", path, number);
+    *colon = '\0';
+    http_user *grown = realloc(auth->users, (auth->count + 1) * sizeof *grown);
+    if (grown == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    auth->users = grown;
+    http_user *user = &auth->users[auth->count];
+    user->name = strdup(line);
+    user->hash = strdup(colon + 1);
+    if (user->name == NULL || user->hash == NULL) {
+        free(user->name);
+        free(user->hash);
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    }
+    auth->count++;
+    return MITILOG_OK;
+}
+
+mitilog_status http_auth_load(const char *path, http_auth **out, mitilog_error *error)
+{
+    FILE *file = fopen(path, "r");
+    if (file == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_IO, "%s: %s", path, strerror(errno));
+    http_auth *auth = calloc(1, sizeof *auth);
+    mitilog_status status = auth ? MITILOG_OK : MITILOG_ERROR_MEMORY;
+    char line[1024];
+    int number = 0;
+    while (status == MITILOG_OK && fgets(line, sizeof line, file) != NULL) {
+        number++;
+        line[strcspn(line, "\r\n")] = '\0';
+        if (line[0] == '\0' || line[0] == '#')
+            continue;
+        status = http_auth_add(auth, line, path, number, error);
+    }
+    fclose(file);
+    if (status == MITILOG_OK && auth->count == 0)
+        status = mitilog_error_set(error, MITILOG_ERROR_INVALID, "%s: no users", path);
+    if (status != MITILOG_OK) {
+        http_auth_free(auth);
+        return status;
+    }
+    *out = auth;
+    return MITILOG_OK;
+}
+
+/* Compares without an early exit, so timing does not tell how much of a
+ * hash matched. */
+static int same_text(const char *left, const char *right)
+{
+    size_t left_length = strlen(left), right_length = strlen(right);
+    unsigned char difference = (unsigned char)(left_length != right_length);
+    size_t length = left_length < right_length ? left_length : right_length;
+    for (size_t i = 0; i < length; i++)
+        difference |= (unsigned char)(left[i] ^ right[i]);
+    return difference == 0;
+}
+
+int http_auth_check(const http_auth *auth, const char *user, const char *password)
+{
+    if (auth == NULL || user == NULL || password == NULL)
+        return 0;
+    for (size_t i = 0; i < auth->count; i++) {
+        if (strcmp(auth->users[i].name, user) != 0)
+            continue;
+        struct crypt_data *data = calloc(1, sizeof *data); /* ~32 KiB: not on the stack */
+        if (data == NULL)
+            return 0;
+        const char *computed = crypt_r(password, auth->users[i].hash, data);
+        int match = computed != NULL && computed[0] != '*' &&
+                    same_text(computed, auth->users[i].hash);
+        free(data);
+        return match;
+    }
+    return 0;
+}
+
+mitilog_status http_auth_hash(const char *password, char *out, size_t size, mitilog_error *error)
+{
+    char salt[CRYPT_GENSALT_OUTPUT_SIZE];
+    if (crypt_gensalt_rn("$y$", 0, NULL, 0, salt, sizeof salt) == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_IO, "cannot make a salt: %s",
+                                 strerror(errno));
+    struct crypt_data *data = calloc(1, sizeof *data);
+    if (data == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    const char *hash = crypt_r(password, salt, data);
+    mitilog_status status = MITILOG_OK;
+    if (hash == NULL || hash[0] == '*' || strlen(hash) >= size)
+        status = mitilog_error_set(error, MITILOG_ERROR_IO, "crypt failed");
+    else
+        snprintf(out, size, "%s", hash);
+    free(data);
+    return status;
+}

@@ -1,0 +1,32 @@
+/*
+ * http_auth.h - HTTP Basic authentication against a password file, for
+ * the API and dashboard when they are reachable beyond this machine (and
+ * then only over HTTPS).
+ *
+ * The file holds one "user:hash" line per user; the hash is a crypt(3)
+ * string from libxcrypt (yescrypt "$y$...", or SHA-512 "$6$..."), made
+ * with `mitilog passwd USER` or `mkpasswd -m yescrypt`. Lines starting
+ * with '#' and blank lines are ignored.
+ *
+ * Ownership: http_auth_load() gives a table freed by http_auth_free().
+ * http_auth_check() is thread-safe.
+ */
+#ifndef MITILOG_HTTP_AUTH_H
+#define MITILOG_HTTP_AUTH_H
+
+#include "util/status.h"
+
+typedef struct http_auth http_auth;
+
+mitilog_status http_auth_load(const char *path, http_auth **out, mitilog_error *error);
+void http_auth_free(http_auth *auth);
+
+/* 1 when user and password match a line of the file, 0 otherwise. */
+int http_auth_check(const http_auth *auth, const char *user, const char *password);
+
+/* A new crypt(3) hash of password with a fresh random salt (yescrypt);
+ * out must hold 256 bytes. */
+mitilog_status http_auth_hash(const char *password, char *out, size_t size,
+                              mitilog_error *error);
+
+#endif

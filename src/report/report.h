@@ -1,0 +1,74 @@
+/*
+ * report.h - the weekly outlier list, statistics for a period and preset
+ * drift as documents: loads exam rows through store.h, computes with
+ * stats_week.h, and writes JSON (built by SQLite's JSON functions on a
+ * scratch connection), CSV (RFC 4180, UTF-8, CRLF) or printable HTML
+ * (every text escaped). Used by the HTTP API (/api/v1/outliers,
+ * /api/v1/stats, /api/v1/drift) and by `mitilog report`.
+ *
+ * Every document states the period, the policy version, the data
+ * completeness (share of captures carrying indices) and the caution.
+ * Ownership: *out is malloc'ed; the caller frees it.
+ */
+#ifndef MITILOG_REPORT_H
+#define MITILOG_REPORT_H
+
+#include "stats/stats_week.h"
+#include "store/store.h"
+#include "util/status.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* The advisory caution every page, report and file carries. */
+extern const char report_caution[];
+
+typedef enum report_format { REPORT_JSON = 0, REPORT_CSV, REPORT_HTML } report_format;
+
+/* 0 and *format set for "json", "csv", "html"; -1 otherwise. */
+int report_format_parse(const char *name, report_format *format);
+
+typedef struct report_week_request {
+    int has_week;               /* 0: the week of the latest exam held */
+    int iso_year, iso_week;
+    stats_dimension group;      /* room, preset, shift, transducer, exam_type */
+    stats_week_settings settings;
+    int all_exams;              /* list every exam of each group, not only
+                                   outliers and exams with findings */
+} report_week_request;
+
+/* Defaults: latest week, by preset, stats_week_default_settings(). */
+report_week_request report_week_default_request(void);
+
+mitilog_status report_week(store *store, const report_week_request *request,
+                           report_format format, char **out, mitilog_error *error);
+
+typedef struct report_stats_request {
+    const char *from, *to;      /* YYYY-MM-DD inclusive; NULL: all held */
+    stats_dimension by;
+} report_stats_request;
+
+mitilog_status report_stats(store *store, const report_stats_request *request,
+                            report_format format, char **out, mitilog_error *error);
+
+typedef struct report_drift_request {
+    int has_week;               /* last week shown; 0: the latest held */
+    int iso_year, iso_week;
+    size_t weeks;               /* weeks shown, default 12 */
+    size_t baseline_weeks;      /* default 12 */
+    size_t minimum_baseline;    /* default 10 */
+    double z_limit;             /* default 3 */
+} report_drift_request;
+
+report_drift_request report_drift_default_request(void);
+
+/* JSON only. */
+mitilog_status report_drift(store *store, const report_drift_request *request, char **out,
+                            mitilog_error *error);
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif

@@ -1,0 +1,351 @@
+/* report_data.c - loading a period and the CSV/HTML helpers. */
+#include "report/report_internal.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+#include "util/hash.h"
+
+_Static_assert((int)STORE_THRESHOLD_COUNT == (int)STATS_THRESHOLD_COUNT,
+               "store and stats thresholds differ");
+
+const char report_caution[] =
+    "Advisory: these figures are estimates from the indices the equipment displayed. "
+    "They do not replace the department's safety policy, its medical physicist or "
+    "local regulation, which decide.";
+
+int report_format_parse(const char *name, report_format *format)
+{
+    static const char *const names[] = {"json", "csv", "html"};
+    for (int i = 0; name != NULL && i < 3; i++) {
+        if (strcmp(name, names[i]) == 0) {
+            *format = (report_format)i;
+            return 0;
+        }
+    }
+    return -1;
+}
+
+void report_data_free(report_data *data)
+{
+    store_exam_rows_free(data->rows, data->row_count);
+    store_finding_counts_free(data->findings, data->finding_count);
+    store_period_info_free(&data->info);
+    free(data->rules);
+    free(data->exams);
+    free(data->keys);
+    memset(data, 0, sizeof *data);
+}
+
+mitilog_status report_data_load(store *st, const char *from, const char *to,
+                                report_data *data, mitilog_error *error)
+{
+    memset(data, 0, sizeof *data);
+    mitilog_status status = store_load_exam_rows(st, from, to, &data->rows, &data->row_count,
+                                                 error);
+    if (status == MITILOG_OK)
+        status = store_load_finding_counts(st, from, to, &data->findings,
+                                           &data->finding_count, error);
+    if (status == MITILOG_OK)
+        status = store_load_period_info(st, from, to, &data->info, error);
+    if (status != MITILOG_OK) {
+        report_data_free(data);
+        return status;
+    }
+    data->exams = calloc(data->row_count + 1, sizeof *data->exams);
+    data->keys = calloc(data->row_count + 1, sizeof *data->keys);
+    data->rules = calloc(data->finding_count + 1, sizeof *data->rules);
+    if (data->exams == NULL || data->keys == NULL || data->rules == NULL) {
+        report_data_free(data);
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "report: out of memory");
+    }
+    for (size_t f = 0; f < data->finding_count; f++) {
+        data->rules[f].rule_id = data->findings[f].rule_id;
+        data->rules[f].count = data->findings[f].count > 0 ? (size_t)data->findings[f].count : 0;
+    }
+    size_t f = 0;
+    for (size_t i = 0; i < data->row_count; i++) {
+        const store_exam_row *row = &data->rows[i];
+        stats_exam *exam = &data->exams[i];
+        exam->study_instance_uid = row->study_instance_uid;
+        exam->day = row->day;
+        exam->exam_type = row->exam_type;
+        exam->room = row->room;
+        exam->preset = row->preset;
+        exam->shift = row->shift;
+        exam->transducer = row->transducer;
+        exam->max_governing = row->max_governing;
+        exam->has_governing = row->has_max_governing;
+        exam->max_mi = row->max_mi;
+        exam->has_mi = row->has_max_mi;
+        exam->estimated_seconds = row->estimated_seconds;
+        memcpy(exam->seconds_at_or_above, row->seconds_at_or_above,
+               sizeof exam->seconds_at_or_above);
+        exam->capture_count = row->capture_count > 0 ? (size_t)row->capture_count : 0;
+        exam->indexed_count = row->indexed_count > 0 ? (size_t)row->indexed_count : 0;
+        exam->finding_count = row->finding_count > 0 ? (size_t)row->finding_count : 0;
+        data->capture_count += exam->capture_count;
+        data->indexed_count += exam->indexed_count;
+        /* Both lists are ordered by Study Instance UID (SQLite's BINARY
+         * collation is strcmp order). */
+        while (f < data->finding_count && row->study_instance_uid != NULL &&
+               strcmp(data->findings[f].study_instance_uid, row->study_instance_uid) < 0)
+            f++;
+        size_t first = f;
+        while (f < data->finding_count && row->study_instance_uid != NULL &&
+               strcmp(data->findings[f].study_instance_uid, row->study_instance_uid) == 0)
+            f++;
+        exam->rules = f > first ? &data->rules[first] : NULL;
+        exam->rule_count = f - first;
+        char hex[HASH_HEX_SIZE];
+        if (row->study_instance_uid != NULL &&
+            hash_text_hex(row->study_instance_uid, hex) == MITILOG_OK) {
+            memcpy(data->keys[i], hex, 8);
+            data->keys[i][8] = '\0';
+        }
+    }
+    return MITILOG_OK;
+}
+
+long report_latest_day(store *st)
+{
+    store_period_info info;
+    mitilog_error ignored;
+    long day = -1;
+    if (store_load_period_info(st, NULL, NULL, &info, &ignored) == MITILOG_OK) {
+        if (info.last_day == NULL || stats_day_number(info.last_day, &day) != MITILOG_OK)
+            day = -1;
+        store_period_info_free(&info);
+    }
+    if (day < 0) {
+        time_t now = time(NULL);
+        struct tm local;
+        char text[16];
+        localtime_r(&now, &local);
+        strftime(text, sizeof text, "%Y-%m-%d", &local);
+        if (stats_day_number(text, &day) != MITILOG_OK)
+            day = 0;
+    }
+    return day;
+}
+
+double report_completeness(size_t captures, size_t indexed)
+{
+    return captures > 0 ? (double)indexed / (double)captures : NAN;
+}
+
+mitilog_status report_buffer_open(report_buffer *buffer, mitilog_error *error)
+{
+    buffer->text = NULL;
+    buffer->length = 0;
+    buffer->file = open_memstream(&buffer->text, &buffer->length);
+    if (buffer->file == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "report: no memory stream");
+    return MITILOG_OK;
+}
+
+mitilog_status report_buffer_finish(report_buffer *buffer, char **out, mitilog_error *error)
+{
+    int failed = ferror(buffer->file);
+    if (fclose(buffer->file) != 0)
+        failed = 1;
+    buffer->file = NULL;
+    if (failed || buffer->text == NULL) {
+        free(buffer->text);
+        buffer->text = NULL;
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "report: writing failed");
+    }
+    *out = buffer->text;
+    buffer->text = NULL;
+    return MITILOG_OK;
+}
+
+void report_csv_field(FILE *out, int first, const char *text)
+{
+    if (!first)
+        fputc(',', out);
+    if (text == NULL)
+        return;
+    if (strpbrk(text, ",\"\r\n") == NULL) {
+        fputs(text, out);
+        return;
+    }
+    fputc('"', out);
+    for (const char *c = text; *c != '\0'; c++) {
+        if (*c == '"')
+            fputc('"', out);
+        fputc(*c, out);
+    }
+    fputc('"', out);
+}
+
+void report_csv_number(FILE *out, int present, double value)
+{
+    fputc(',', out);
+    if (present && isfinite(value))
+        fprintf(out, "%.6g", value);
+}
+
+void report_csv_count(FILE *out, size_t value)
+{
+    fprintf(out, ",%zu", value);
+}
+
+void report_csv_end(FILE *out)
+{
+    fputs("\r\n", out);
+}
+
+void report_html_text(FILE *out, const char *text)
+{
+    if (text == NULL)
+        return;
+    for (const char *c = text; *c != '\0'; c++) {
+        switch (*c) {
+        case '&': fputs("&amp;", out); break;
+        case '<': fputs("&lt;", out); break;
+        case '>': fputs("&gt;", out); break;
+        case '"': fputs("&quot;", out); break;
+        case '\'': fputs("&#39;", out); break;
+        default: fputc(*c, out);
+        }
+    }
+}
+
+void report_html_number(FILE *out, int present, double value, int digits)
+{
+    if (present && isfinite(value))
+        fprintf(out, "%.*g", digits, value);
+    else
+        fputs("&mdash;", out);
+}
+
+const char *report_policy_text(const store_period_info *info, char *buffer, size_t size)
+{
+    if (info->policy_version == NULL)
+        snprintf(buffer, size, "none recorded (no exam of this period has been evaluated "
+                               "by the policy engine)");
+    else
+        snprintf(buffer, size, "%s%s%s%s", info->policy_version,
+                 info->policy_name != NULL ? " (" : "",
+                 info->policy_name != NULL ? info->policy_name : "",
+                 info->policy_name != NULL ? ")" : "");
+    return buffer;
+}
+
+static const char report_css[] =
+    "body{font-family:'DejaVu Sans',Arial,sans-serif;color:#1d2a2f;margin:1.5em;"
+    "font-size:10.5pt;line-height:1.35}\n"
+    "h1{font-size:16pt;margin:0 0 .2em}h2{font-size:12.5pt;margin:1.2em 0 .3em;"
+    "border-bottom:1px solid #8aa3a8}h3{font-size:11pt;margin:.8em 0 .2em}\n"
+    ".caution{border:1px solid #7a6a2f;background:#fbf6e4;padding:.4em .6em;margin:.6em 0}\n"
+    "dl.facts{display:grid;grid-template-columns:max-content auto;gap:.1em 1em;margin:.5em 0}\n"
+    "dl.facts dt{font-weight:bold}dl.facts dd{margin:0;word-break:break-all}\n"
+    "table{border-collapse:collapse;margin:.3em 0 .8em;width:100%}\n"
+    "th,td{border:1px solid #b7c6c9;padding:.15em .4em;text-align:left;vertical-align:top}\n"
+    "th{background:#e8eff0}td.n{text-align:right;font-variant-numeric:tabular-nums}\n"
+    ".flag{font-weight:bold}.note{color:#44565b}\n"
+    "@media print{body{margin:0;font-size:9pt}.caution{background:none}"
+    "h2{break-after:avoid}tr{break-inside:avoid}}\n"
+    "@page{size:A4;margin:14mm}\n";
+
+void report_html_begin(FILE *out, const char *title, const char *period,
+                       const store_period_info *info, double completeness, size_t captures,
+                       size_t indexed)
+{
+    char policy[256];
+    fputs("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">\n<title>", out);
+    report_html_text(out, title);
+    fputs("</title>\n<style>\n", out);
+    fputs(report_css, out);
+    fputs("</style></head><body>\n<h1>", out);
+    report_html_text(out, title);
+    fputs("</h1>\n<p class=\"caution\"><strong>Advisory.</strong> ", out);
+    report_html_text(out, report_caution);
+    fputs("</p>\n<dl class=\"facts\"><dt>Period</dt><dd>", out);
+    report_html_text(out, period);
+    fputs("</dd><dt>Policy version</dt><dd>", out);
+    report_html_text(out, report_policy_text(info, policy, sizeof policy));
+    if (info->finding_policy_versions != NULL) {
+        fputs("; findings shown from: ", out);
+        report_html_text(out, info->finding_policy_versions);
+    }
+    fputs("</dd><dt>Data completeness</dt><dd>", out);
+    if (isfinite(completeness))
+        fprintf(out, "%.1f %% of captures carry indices (%zu of %zu)", 100.0 * completeness,
+                indexed, captures);
+    else
+        fputs("no captures in this period", out);
+    fputs("</dd><dt>Produced by</dt><dd>mitilog " MITILOG_VERSION "</dd></dl>\n", out);
+}
+
+void report_html_end(FILE *out)
+{
+    fputs("<p class=\"note\">Times are estimates from the exam timeline (docs/extraction.md); "
+          "percentiles use the inclusive method (Hyndman &amp; Fan type 7).</p>\n"
+          "</body></html>\n",
+          out);
+}
+
+static void report_meta_insert(report_meta *meta, const char *name)
+{
+    if (meta->status == MITILOG_OK)
+        meta->status = store_scratch_bind_text(meta->insert, ":name", name);
+    if (meta->status == MITILOG_OK)
+        meta->status = store_scratch_run(meta->insert, meta->error);
+    else
+        mitilog_error_set(meta->error, meta->status, "report: meta %s", name);
+}
+
+void report_meta_text(report_meta *meta, const char *name, const char *text)
+{
+    if (meta->status == MITILOG_OK)
+        meta->status = store_scratch_bind_text(meta->insert, ":value", text);
+    if (meta->status == MITILOG_OK)
+        meta->status = store_scratch_bind_int(meta->insert, ":is_bool", 0);
+    report_meta_insert(meta, name);
+}
+
+void report_meta_number(report_meta *meta, const char *name, int present, double value)
+{
+    if (meta->status == MITILOG_OK)
+        meta->status = store_scratch_bind_double(meta->insert, ":value", present, value);
+    if (meta->status == MITILOG_OK)
+        meta->status = store_scratch_bind_int(meta->insert, ":is_bool", 0);
+    report_meta_insert(meta, name);
+}
+
+void report_meta_int(report_meta *meta, const char *name, long long value)
+{
+    if (meta->status == MITILOG_OK)
+        meta->status = store_scratch_bind_int(meta->insert, ":value", value);
+    if (meta->status == MITILOG_OK)
+        meta->status = store_scratch_bind_int(meta->insert, ":is_bool", 0);
+    report_meta_insert(meta, name);
+}
+
+void report_meta_bool(report_meta *meta, const char *name, int value)
+{
+    if (meta->status == MITILOG_OK)
+        meta->status = store_scratch_bind_int(meta->insert, ":value", value != 0);
+    if (meta->status == MITILOG_OK)
+        meta->status = store_scratch_bind_int(meta->insert, ":is_bool", 1);
+    report_meta_insert(meta, name);
+}
+
+void report_meta_common(report_meta *meta, const store_period_info *info, size_t captures,
+                        size_t indexed)
+{
+    report_meta_text(meta, "policy_version", info->policy_version);
+    report_meta_text(meta, "policy_name", info->policy_name);
+    report_meta_text(meta, "finding_policy_versions", info->finding_policy_versions);
+    double completeness = report_completeness(captures, indexed);
+    report_meta_number(meta, "data_completeness", isfinite(completeness), completeness);
+    report_meta_int(meta, "captures", (long long)captures);
+    report_meta_int(meta, "captures_with_indices", (long long)indexed);
+    report_meta_text(meta, "data_first_day", info->first_day);
+    report_meta_text(meta, "data_last_day", info->last_day);
+    report_meta_text(meta, "caution", report_caution);
+}

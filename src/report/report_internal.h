@@ -1,0 +1,84 @@
+/*
+ * report_internal.h - what the files of src/report/ share; not API.
+ *
+ * report_data.c   loads a period's exams and findings and turns them into
+ *                 stats_exam rows; CSV and HTML writing helpers;
+ * report_week.c   the weekly outlier list;
+ * report_stats.c  statistics for a period and preset drift.
+ */
+#ifndef MITILOG_REPORT_INTERNAL_H
+#define MITILOG_REPORT_INTERNAL_H
+
+#include <stdio.h>
+
+#include "report/report.h"
+
+typedef struct report_data {
+    store_exam_row *rows;           /* ordered by Study Instance UID */
+    size_t row_count;
+    store_finding_count *findings;
+    size_t finding_count;
+    stats_rule_count *rules;        /* parallel to findings */
+    stats_exam *exams;              /* parallel to rows */
+    char (*keys)[9];                /* short study keys, parallel to rows */
+    store_period_info info;
+    size_t capture_count, indexed_count;   /* over all rows */
+} report_data;
+
+mitilog_status report_data_load(store *store, const char *from, const char *to,
+                                report_data *data, mitilog_error *error);
+void report_data_free(report_data *data);
+
+/* The day number of the latest exam held, else of today (local). */
+long report_latest_day(store *store);
+
+/* Share of captures with indices, NAN when there are none. */
+double report_completeness(size_t captures, size_t indexed);
+
+/* Output through open_memstream. */
+typedef struct report_buffer {
+    FILE *file;
+    char *text;
+    size_t length;
+} report_buffer;
+mitilog_status report_buffer_open(report_buffer *buffer, mitilog_error *error);
+/* Closes the stream; on success *out takes the text. */
+mitilog_status report_buffer_finish(report_buffer *buffer, char **out, mitilog_error *error);
+
+/* CSV (RFC 4180): a field, quoted when it holds a comma, quote, CR or LF
+ * (quotes doubled); separators are written by report_csv_field itself
+ * (first != 0 for the first field of a record); records end in CRLF. */
+void report_csv_field(FILE *out, int first, const char *text);
+void report_csv_number(FILE *out, int present, double value);
+void report_csv_count(FILE *out, size_t value);
+void report_csv_end(FILE *out);
+
+/* HTML: text with & < > " ' escaped. */
+void report_html_text(FILE *out, const char *text);
+/* A number as text ("—" when absent), digits significant. */
+void report_html_number(FILE *out, int present, double value, int digits);
+/* The page head with printable CSS, the title, the caution and the facts
+ * every report states. */
+void report_html_begin(FILE *out, const char *title, const char *period,
+                       const store_period_info *info, double completeness,
+                       size_t captures, size_t indexed);
+void report_html_end(FILE *out);
+
+/* The policy statement: "VERSION (name)" or "none recorded ...". */
+const char *report_policy_text(const store_period_info *info, char *buffer, size_t size);
+
+/* Typed key/value pairs of a document's top level (scratch table meta). */
+typedef struct report_meta {
+    store_scratch_statement *insert;
+    mitilog_status status;
+    mitilog_error *error;
+} report_meta;
+void report_meta_text(report_meta *meta, const char *name, const char *text);
+void report_meta_number(report_meta *meta, const char *name, int present, double value);
+void report_meta_int(report_meta *meta, const char *name, long long value);
+void report_meta_bool(report_meta *meta, const char *name, int value);
+/* The facts every document states: policy, completeness, caution. */
+void report_meta_common(report_meta *meta, const store_period_info *info,
+                        size_t captures, size_t indexed);
+
+#endif

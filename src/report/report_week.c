@@ -1,0 +1,506 @@
+/*
+ * report_week.c - the weekly outlier list: the chosen ISO week's exams
+ * against a trailing baseline per exam type (stats_week_outliers), grouped
+ * by room, preset, shift, transducer or exam type; as JSON, CSV or HTML.
+ */
+#include "report/report_internal.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+report_week_request report_week_default_request(void)
+{
+    report_week_request request;
+    memset(&request, 0, sizeof request);
+    request.group = STATS_BY_PRESET;
+    request.settings = stats_week_default_settings();
+    return request;
+}
+
+/* Everything the three formats write. */
+typedef struct week_document {
+    char week[9], monday[11], sunday[11], baseline_from[11], baseline_to[11];
+    const report_week_request *request;
+    report_data data;
+    store_period_info week_info;     /* policy facts for the week itself */
+    stats_exam *week_exams, *baseline_exams;
+    size_t *week_rows;               /* week exam -> data row */
+    size_t week_count, baseline_count;
+    stats_week_result result;
+    size_t captures, indexed, outliers;
+} week_document;
+
+static void week_document_free(week_document *doc)
+{
+    stats_week_result_free(&doc->result);
+    free(doc->week_exams);
+    free(doc->baseline_exams);
+    free(doc->week_rows);
+    store_period_info_free(&doc->week_info);
+    report_data_free(&doc->data);
+}
+
+/* Listed in a group: an outlier or an exam with findings (all with
+ * request->all_exams). */
+static int week_listed(const week_document *doc, size_t exam)
+{
+    return doc->request->all_exams || doc->result.flags[exam].is_outlier ||
+           doc->week_exams[exam].finding_count > 0;
+}
+
+static mitilog_status week_compute(store *st, const report_week_request *request,
+                                   week_document *doc, mitilog_error *error)
+{
+    memset(doc, 0, sizeof *doc);
+    doc->request = request;
+    int year = request->iso_year, week = request->iso_week;
+    if (!request->has_week)
+        stats_iso_week_of_day(report_latest_day(st), &year, &week);
+    long monday;
+    if (stats_iso_week_monday(year, week, &monday) != MITILOG_OK)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no ISO week %d-W%02d", year,
+                                 week);
+    stats_week_settings settings = request->settings;
+    if (settings.baseline_weeks == 0)
+        settings.baseline_weeks = stats_week_default_settings().baseline_weeks;
+    long first, last;
+    stats_week_days(monday, settings.baseline_weeks, &first, &last);
+    stats_iso_week_text(year, week, doc->week);
+    stats_day_text(monday, doc->monday);
+    stats_day_text(last, doc->sunday);
+    stats_day_text(first, doc->baseline_from);
+    stats_day_text(monday - 1, doc->baseline_to);
+
+    mitilog_status status = report_data_load(st, doc->baseline_from, doc->sunday, &doc->data,
+                                             error);
+    if (status == MITILOG_OK)
+        status = store_load_period_info(st, doc->monday, doc->sunday, &doc->week_info, error);
+    if (status != MITILOG_OK)
+        return status;
+    size_t n = doc->data.row_count;
+    doc->week_exams = calloc(n + 1, sizeof *doc->week_exams);
+    doc->baseline_exams = calloc(n + 1, sizeof *doc->baseline_exams);
+    doc->week_rows = calloc(n + 1, sizeof *doc->week_rows);
+    if (doc->week_exams == NULL || doc->baseline_exams == NULL || doc->week_rows == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "weekly report: out of memory");
+    for (size_t i = 0; i < n; i++) {
+        const stats_exam *exam = &doc->data.exams[i];
+        if (exam->day != NULL && strcmp(exam->day, doc->monday) >= 0) {
+            doc->week_rows[doc->week_count] = i;
+            doc->week_exams[doc->week_count++] = *exam;
+            doc->captures += exam->capture_count;
+            doc->indexed += exam->indexed_count;
+        } else {
+            doc->baseline_exams[doc->baseline_count++] = *exam;
+        }
+    }
+    status = stats_week_outliers(doc->week_exams, doc->week_count, doc->baseline_exams,
+                                 doc->baseline_count, &settings, request->group, &doc->result,
+                                 error);
+    for (size_t i = 0; status == MITILOG_OK && i < doc->result.flag_count; i++)
+        doc->outliers += doc->result.flags[i].is_outlier != 0;
+    return status;
+}
+
+static double ratio(const stats_group *group)
+{
+    return group->has_median && group->department_median > 0
+               ? group->median_governing / group->department_median
+               : NAN;
+}
+
+/* The baseline remark: which exam types had a thin baseline. */
+static void week_thin_types(const week_document *doc, FILE *out, int html)
+{
+    int first = 1;
+    for (size_t b = 0; b < doc->result.baseline_count; b++) {
+        const stats_baseline *base = &doc->result.baselines[b];
+        if (!base->thin)
+            continue;
+        fputs(first ? "" : ", ", out);
+        const char *name = base->exam_type != NULL ? base->exam_type : "(unclassified)";
+        if (html)
+            report_html_text(out, name);
+        else
+            fputs(name, out);
+        fprintf(out, " (%zu)", base->trailing_count);
+        first = 0;
+    }
+}
+
+/* ---- JSON ---- */
+
+#define BIND_TEXT(statement, name, value) store_scratch_bind_text(statement, ":" name, value)
+#define BIND_NUMBER(statement, name, present, value)                                  \
+    store_scratch_bind_double(statement, ":" name, present, value)
+#define BIND_INT(statement, name, value) store_scratch_bind_int(statement, ":" name, value)
+
+static mitilog_status week_json(const week_document *doc, char **out, mitilog_error *error)
+{
+    store_scratch *scratch = NULL;
+    store_scratch_statement *meta_insert, *baseline_insert, *group_insert, *rule_insert,
+        *exam_insert, *query;
+    mitilog_status status = store_scratch_open("queries/report_schema.sql", &scratch, error);
+    if (status == MITILOG_OK)
+        status = store_scratch_prepare(scratch, "queries/report_insert_meta.sql", &meta_insert,
+                                       error);
+    if (status == MITILOG_OK)
+        status = store_scratch_prepare(scratch, "queries/report_insert_baseline.sql",
+                                       &baseline_insert, error);
+    if (status == MITILOG_OK)
+        status = store_scratch_prepare(scratch, "queries/report_insert_group.sql",
+                                       &group_insert, error);
+    if (status == MITILOG_OK)
+        status = store_scratch_prepare(scratch, "queries/report_insert_group_rule.sql",
+                                       &rule_insert, error);
+    if (status == MITILOG_OK)
+        status = store_scratch_prepare(scratch, "queries/report_insert_group_exam.sql",
+                                       &exam_insert, error);
+    if (status == MITILOG_OK)
+        status = store_scratch_prepare(scratch, "queries/report_week_json.sql", &query, error);
+    if (status != MITILOG_OK)
+        goto done;
+
+    const stats_week_settings *settings = &doc->request->settings;
+    report_meta meta = {meta_insert, MITILOG_OK, error};
+    report_meta_text(&meta, "report", "weekly_outliers");
+    report_meta_text(&meta, "week", doc->week);
+    report_meta_text(&meta, "from", doc->monday);
+    report_meta_text(&meta, "to", doc->sunday);
+    report_meta_text(&meta, "group_by", stats_dimension_name(doc->request->group));
+    report_meta_int(&meta, "baseline_weeks",
+                    (long long)(settings->baseline_weeks ? settings->baseline_weeks : 12));
+    report_meta_text(&meta, "baseline_from", doc->baseline_from);
+    report_meta_text(&meta, "baseline_to", doc->baseline_to);
+    report_meta_int(&meta, "minimum_baseline", (long long)settings->minimum_baseline);
+    report_meta_number(&meta, "z_limit", 1, settings->z_limit > 0 ? settings->z_limit : 3.0);
+    report_meta_bool(&meta, "baseline_thin", doc->result.any_thin);
+    report_meta_int(&meta, "exam_count", (long long)doc->week_count);
+    report_meta_int(&meta, "baseline_exam_count", (long long)doc->baseline_count);
+    report_meta_int(&meta, "outlier_count", (long long)doc->outliers);
+    report_meta_common(&meta, &doc->week_info, doc->captures, doc->indexed);
+    status = meta.status;
+
+    for (size_t b = 0; status == MITILOG_OK && b < doc->result.baseline_count; b++) {
+        const stats_baseline *base = &doc->result.baselines[b];
+        BIND_INT(baseline_insert, "position", (long long)b + 1);
+        BIND_TEXT(baseline_insert, "exam_type", base->exam_type);
+        BIND_INT(baseline_insert, "count", (long long)base->count);
+        BIND_INT(baseline_insert, "trailing_count", (long long)base->trailing_count);
+        BIND_INT(baseline_insert, "thin", base->thin);
+        BIND_NUMBER(baseline_insert, "median", base->count > 0, base->median);
+        BIND_NUMBER(baseline_insert, "mad", base->count > 0, base->mad);
+        BIND_NUMBER(baseline_insert, "p95", base->count > 0, base->p95);
+        status = store_scratch_run(baseline_insert, error);
+    }
+    for (size_t g = 0; status == MITILOG_OK && g < doc->result.group_count; g++) {
+        const stats_group *group = &doc->result.groups[g];
+        long long position = (long long)g + 1;
+        double completeness = report_completeness(group->capture_count, group->indexed_count);
+        BIND_INT(group_insert, "position", position);
+        BIND_TEXT(group_insert, "key", group->key);
+        BIND_INT(group_insert, "exam_count", (long long)group->exam_count);
+        BIND_INT(group_insert, "valued_count", (long long)group->valued_count);
+        BIND_INT(group_insert, "outlier_count", (long long)group->outlier_count);
+        BIND_NUMBER(group_insert, "outlier_rate", 1, group->outlier_rate);
+        BIND_NUMBER(group_insert, "median_governing", group->has_median,
+                    group->median_governing);
+        BIND_NUMBER(group_insert, "department_median", group->has_median,
+                    group->department_median);
+        BIND_NUMBER(group_insert, "median_ratio", 1, ratio(group));
+        BIND_NUMBER(group_insert, "median_mi", 1, group->median_mi);
+        BIND_INT(group_insert, "capture_count", (long long)group->capture_count);
+        BIND_INT(group_insert, "indexed_count", (long long)group->indexed_count);
+        BIND_NUMBER(group_insert, "completeness", 1, completeness);
+        BIND_INT(group_insert, "finding_count", (long long)group->finding_count);
+        status = store_scratch_run(group_insert, error);
+        for (size_t r = 0; status == MITILOG_OK && r < group->rule_count; r++) {
+            BIND_INT(rule_insert, "group_position", position);
+            BIND_TEXT(rule_insert, "rule_id", group->rules[r].rule_id);
+            BIND_INT(rule_insert, "count", (long long)group->rules[r].count);
+            status = store_scratch_run(rule_insert, error);
+        }
+        for (size_t m = 0; status == MITILOG_OK && m < group->member_count; m++) {
+            size_t e = group->members[m];
+            if (!week_listed(doc, e))
+                continue;
+            const stats_exam_flag *flag = &doc->result.flags[e];
+            const stats_baseline *base = &doc->result.baselines[flag->baseline];
+            size_t row_index = doc->week_rows[e];
+            const store_exam_row *row = &doc->data.rows[row_index];
+            BIND_INT(exam_insert, "group_position", position);
+            BIND_INT(exam_insert, "position", (long long)m + 1);
+            BIND_TEXT(exam_insert, "study_instance_uid", row->study_instance_uid);
+            BIND_TEXT(exam_insert, "study_key", doc->data.keys[row_index]);
+            BIND_TEXT(exam_insert, "day", row->day);
+            BIND_TEXT(exam_insert, "first_acquired_at", row->first_acquired_at);
+            BIND_TEXT(exam_insert, "exam_type", row->exam_type);
+            BIND_TEXT(exam_insert, "exam_type_label", row->exam_type_label);
+            BIND_TEXT(exam_insert, "study_description", row->study_description);
+            BIND_TEXT(exam_insert, "room", row->room);
+            BIND_TEXT(exam_insert, "preset", row->preset);
+            BIND_TEXT(exam_insert, "shift", row->shift);
+            BIND_TEXT(exam_insert, "transducer", row->transducer);
+            BIND_TEXT(exam_insert, "governing_index", row->governing_index);
+            BIND_NUMBER(exam_insert, "max_governing", row->has_max_governing,
+                        row->max_governing);
+            BIND_NUMBER(exam_insert, "max_mi", row->has_max_mi, row->max_mi);
+            BIND_NUMBER(exam_insert, "robust_z", 1, flag->robust_z);
+            BIND_INT(exam_insert, "above_robust_z", flag->above_robust_z);
+            BIND_INT(exam_insert, "above_p95", flag->above_p95);
+            BIND_INT(exam_insert, "outlier", flag->is_outlier);
+            BIND_INT(exam_insert, "finding_count", (long long)doc->week_exams[e].finding_count);
+            BIND_INT(exam_insert, "baseline_thin", base->thin);
+            BIND_NUMBER(exam_insert, "baseline_median", base->count > 0, base->median);
+            BIND_NUMBER(exam_insert, "baseline_p95", base->count > 0, base->p95);
+            BIND_NUMBER(exam_insert, "estimated_seconds", 1, row->estimated_seconds);
+            status = store_scratch_run(exam_insert, error);
+        }
+    }
+    if (status == MITILOG_OK)
+        status = store_scratch_text(query, out, error);
+done:
+    store_scratch_close(scratch);
+    return status;
+}
+
+/* ---- CSV ---- */
+
+static const char *const week_csv_columns[] = {
+    "record", "week", "group_by", "group", "rank", "exams", "outliers", "outlier_rate",
+    "median_governing", "department_median", "median_mi", "findings", "data_completeness",
+    "study_key", "day", "exam_type", "room", "preset", "shift", "transducer",
+    "governing_index", "max_governing", "max_mi", "robust_z", "reason", "policy_version",
+    "note"};
+enum { WEEK_CSV_COLUMNS = sizeof week_csv_columns / sizeof week_csv_columns[0] };
+
+static void csv_empty(FILE *out, int count)
+{
+    for (int i = 0; i < count; i++)
+        fputc(',', out);
+}
+
+static void week_csv(const week_document *doc, FILE *out)
+{
+    const char *group_by = stats_dimension_name(doc->request->group);
+    for (int c = 0; c < WEEK_CSV_COLUMNS; c++)
+        report_csv_field(out, c == 0, week_csv_columns[c]);
+    report_csv_end(out);
+    char policy[256], note[1024];
+    double completeness = report_completeness(doc->captures, doc->indexed);
+    /* record "report": the facts of the whole list */
+    snprintf(note, sizeof note, "%s Period %s to %s; baseline %s to %s%s.", report_caution,
+             doc->monday, doc->sunday, doc->baseline_from, doc->baseline_to,
+             doc->result.any_thin ? " (thin for some exam types: the week's own exams added)"
+                                  : "");
+    report_csv_field(out, 1, "report");
+    report_csv_field(out, 0, doc->week);
+    report_csv_field(out, 0, group_by);
+    csv_empty(out, 2);
+    report_csv_count(out, doc->week_count);
+    report_csv_count(out, doc->outliers);
+    csv_empty(out, 5);
+    report_csv_number(out, isfinite(completeness), completeness);
+    csv_empty(out, 12);
+    report_csv_field(out, 0, report_policy_text(&doc->week_info, policy, sizeof policy));
+    report_csv_field(out, 0, note);
+    report_csv_end(out);
+    for (size_t g = 0; g < doc->result.group_count; g++) {
+        const stats_group *group = &doc->result.groups[g];
+        double group_completeness =
+            report_completeness(group->capture_count, group->indexed_count);
+        report_csv_field(out, 1, "group");
+        report_csv_field(out, 0, doc->week);
+        report_csv_field(out, 0, group_by);
+        report_csv_field(out, 0, group->key != NULL ? group->key : "");
+        report_csv_count(out, g + 1);
+        report_csv_count(out, group->exam_count);
+        report_csv_count(out, group->outlier_count);
+        report_csv_number(out, 1, group->outlier_rate);
+        report_csv_number(out, group->has_median, group->median_governing);
+        report_csv_number(out, group->has_median, group->department_median);
+        report_csv_number(out, 1, group->median_mi);
+        report_csv_count(out, group->finding_count);
+        report_csv_number(out, isfinite(group_completeness), group_completeness);
+        csv_empty(out, 12);
+        report_csv_field(out, 0, doc->week_info.policy_version);
+        report_csv_field(out, 0, "");
+        report_csv_end(out);
+        for (size_t m = 0; m < group->member_count; m++) {
+            size_t e = group->members[m];
+            if (!week_listed(doc, e))
+                continue;
+            const stats_exam_flag *flag = &doc->result.flags[e];
+            const store_exam_row *row = &doc->data.rows[doc->week_rows[e]];
+            char reason[128];
+            snprintf(reason, sizeof reason, "%s%s%s%s", flag->above_robust_z ? "robust z > limit" : "",
+                     flag->above_robust_z && flag->above_p95 ? "; " : "",
+                     flag->above_p95 ? "above baseline P95" : "",
+                     row->finding_count > 0 ? (flag->is_outlier ? "; findings" : "findings") : "");
+            report_csv_field(out, 1, "exam");
+            report_csv_field(out, 0, doc->week);
+            report_csv_field(out, 0, group_by);
+            report_csv_field(out, 0, group->key != NULL ? group->key : "");
+            report_csv_count(out, g + 1);
+            csv_empty(out, 6);
+            report_csv_count(out, (size_t)(row->finding_count > 0 ? row->finding_count : 0));
+            csv_empty(out, 1);
+            report_csv_field(out, 0, doc->data.keys[doc->week_rows[e]]);
+            report_csv_field(out, 0, row->day);
+            report_csv_field(out, 0, row->exam_type);
+            report_csv_field(out, 0, row->room);
+            report_csv_field(out, 0, row->preset);
+            report_csv_field(out, 0, row->shift);
+            report_csv_field(out, 0, row->transducer);
+            report_csv_field(out, 0, row->governing_index);
+            report_csv_number(out, row->has_max_governing, row->max_governing);
+            report_csv_number(out, row->has_max_mi, row->max_mi);
+            report_csv_number(out, 1, flag->robust_z);
+            report_csv_field(out, 0, reason);
+            report_csv_field(out, 0, doc->week_info.policy_version);
+            report_csv_field(out, 0, "");
+            report_csv_end(out);
+        }
+    }
+}
+
+/* ---- HTML ---- */
+
+static void html_cell_text(FILE *out, const char *text)
+{
+    fputs("<td>", out);
+    report_html_text(out, text != NULL ? text : "(not recorded)");
+    fputs("</td>", out);
+}
+
+static void html_cell_number(FILE *out, int present, double value, int digits)
+{
+    fputs("<td class=\"n\">", out);
+    report_html_number(out, present, value, digits);
+    fputs("</td>", out);
+}
+
+static void week_html(const week_document *doc, FILE *out)
+{
+    const char *group_by = stats_dimension_name(doc->request->group);
+    char title[128], period[160];
+    snprintf(title, sizeof title, "Weekly outlier list %s, by %s", doc->week, group_by);
+    snprintf(period, sizeof period, "ISO week %s: %s to %s (local dates)", doc->week,
+             doc->monday, doc->sunday);
+    report_html_begin(out, title, period, &doc->week_info,
+                      report_completeness(doc->captures, doc->indexed), doc->captures,
+                      doc->indexed);
+    fprintf(out, "<p>%zu exams this week, %zu outliers. Baseline: each exam type's exams "
+                 "from %s to %s. An exam is an outlier when its highest governing thermal "
+                 "index has robust z above ",
+            doc->week_count, doc->outliers, doc->baseline_from, doc->baseline_to);
+    report_html_number(out, 1, doc->request->settings.z_limit > 0 ? doc->request->settings.z_limit : 3.0, 3);
+    fputs(" or exceeds the baseline's 95th percentile.", out);
+    if (doc->result.any_thin) {
+        fputs(" <strong>Baseline thin</strong> (fewer than ", out);
+        fprintf(out, "%zu exams; the week's own exams were added) for: ",
+                doc->request->settings.minimum_baseline);
+        week_thin_types(doc, out, 1);
+        fputs(".", out);
+    }
+    fputs("</p>\n<h2>Groups</h2>\n<table><thead><tr><th>Rank</th><th>", out);
+    report_html_text(out, group_by);
+    fputs("</th><th>Exams</th><th>Outliers</th><th>Rate</th><th>Median governing TI</th>"
+          "<th>Department median (same exam types)</th><th>Median MI</th><th>Findings</th>"
+          "<th>Captures with indices</th></tr></thead><tbody>\n",
+          out);
+    for (size_t g = 0; g < doc->result.group_count; g++) {
+        const stats_group *group = &doc->result.groups[g];
+        double completeness = report_completeness(group->capture_count, group->indexed_count);
+        fprintf(out, "<tr><td class=\"n\">%zu</td>", g + 1);
+        html_cell_text(out, group->key);
+        fprintf(out, "<td class=\"n\">%zu</td><td class=\"n\">%zu</td>", group->exam_count,
+                group->outlier_count);
+        fprintf(out, "<td class=\"n\">%.0f %%</td>", 100.0 * group->outlier_rate);
+        html_cell_number(out, group->has_median, group->median_governing, 3);
+        html_cell_number(out, group->has_median, group->department_median, 3);
+        html_cell_number(out, 1, group->median_mi, 3);
+        fprintf(out, "<td class=\"n\">%zu</td>", group->finding_count);
+        fputs("<td class=\"n\">", out);
+        if (isfinite(completeness))
+            fprintf(out, "%.0f %%", 100.0 * completeness);
+        else
+            fputs("&mdash;", out);
+        fputs("</td></tr>\n", out);
+    }
+    fputs("</tbody></table>\n", out);
+    for (size_t g = 0; g < doc->result.group_count; g++) {
+        const stats_group *group = &doc->result.groups[g];
+        size_t listed = 0;
+        for (size_t m = 0; m < group->member_count; m++)
+            listed += week_listed(doc, group->members[m]) != 0;
+        if (listed == 0)
+            continue;
+        fputs("<h3>", out);
+        report_html_text(out, group->key != NULL ? group->key : "(not recorded)");
+        fprintf(out, ": %zu exams listed</h3>\n", listed);
+        fputs("<table><thead><tr><th>Study key</th><th>Day</th><th>Exam type</th><th>Room</th>"
+              "<th>Preset</th><th>Shift</th><th>Transducer</th><th>Index</th><th>Max</th>"
+              "<th>Max MI</th><th>Robust z</th><th>Why listed</th></tr></thead><tbody>\n",
+              out);
+        for (size_t m = 0; m < group->member_count; m++) {
+            size_t e = group->members[m];
+            if (!week_listed(doc, e))
+                continue;
+            const stats_exam_flag *flag = &doc->result.flags[e];
+            const store_exam_row *row = &doc->data.rows[doc->week_rows[e]];
+            fputs("<tr>", out);
+            html_cell_text(out, doc->data.keys[doc->week_rows[e]]);
+            html_cell_text(out, row->day);
+            html_cell_text(out, row->exam_type_label != NULL ? row->exam_type_label
+                                                             : row->exam_type);
+            html_cell_text(out, row->room);
+            html_cell_text(out, row->preset);
+            html_cell_text(out, row->shift);
+            html_cell_text(out, row->transducer);
+            html_cell_text(out, row->governing_index);
+            html_cell_number(out, row->has_max_governing, row->max_governing, 3);
+            html_cell_number(out, row->has_max_mi, row->max_mi, 3);
+            html_cell_number(out, 1, flag->robust_z, 3);
+            fputs("<td>", out);
+            if (flag->above_robust_z)
+                fputs("robust z above limit; ", out);
+            if (flag->above_p95)
+                fputs("above baseline P95; ", out);
+            if (row->finding_count > 0)
+                fprintf(out, "%ld findings", row->finding_count);
+            fputs("</td></tr>\n", out);
+        }
+        fputs("</tbody></table>\n", out);
+    }
+    report_html_end(out);
+}
+
+mitilog_status report_week(store *st, const report_week_request *request,
+                           report_format format, char **out, mitilog_error *error)
+{
+    *out = NULL;
+    report_week_request defaults = report_week_default_request();
+    if (request == NULL)
+        request = &defaults;
+    week_document doc;
+    mitilog_status status = week_compute(st, request, &doc, error);
+    if (status == MITILOG_OK) {
+        if (format == REPORT_JSON) {
+            status = week_json(&doc, out, error);
+        } else {
+            report_buffer buffer;
+            status = report_buffer_open(&buffer, error);
+            if (status == MITILOG_OK) {
+                if (format == REPORT_CSV)
+                    week_csv(&doc, buffer.file);
+                else
+                    week_html(&doc, buffer.file);
+                status = report_buffer_finish(&buffer, out, error);
+            }
+        }
+    }
+    week_document_free(&doc);
+    return status;
+}
