@@ -148,7 +148,7 @@ class Mitilog:
     data directory under /tmp (removed by close())."""
 
     def __init__(self, binary, retention="header", level="warning",
-                 root="/tmp"):
+                 root="/tmp", durability="power_loss"):
         self.binary = binary
         self.workdir = tempfile.mkdtemp(prefix="mitilog-bench-", dir=root)
         self.port = free_port()
@@ -161,10 +161,11 @@ class Mitilog:
                     "acse_timeout_seconds = 5\ndimse_timeout_seconds = 60\n"
                     "max_pdu_bytes = 65536\n\n"
                     "[http]\naddress = 127.0.0.1\nport = %d\n\n"
-                    "[storage]\ndata_directory = %s\nretention = %s\n\n"
+                    "[storage]\ndata_directory = %s\nretention = %s\n"
+                    "durability = %s\n\n"
                     "[log]\nlevel = %s\n"
                     % (AE_TITLE, self.port, self.http_port, self.data,
-                       retention, level))
+                       retention, durability, level))
         self.stderr_path = os.path.join(self.workdir, "serve.stderr")
         self.process = None
 

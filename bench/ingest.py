@@ -70,6 +70,9 @@ def main():
     parser.add_argument("--senders", default="1,2,4",
                         help="comma-separated concurrencies")
     parser.add_argument("--repeats", type=int, default=3)
+    parser.add_argument("--durability", default="power_loss",
+                        choices=["power_loss", "process"],
+                        help="mitilog's [storage] durability (default power_loss)")
     parser.add_argument("--retention", default="header",
                         choices=("none", "header", "full"),
                         help="mitilog's [storage] retention (default header)")
@@ -102,7 +105,8 @@ def main():
             for name in ("storescp", "mitilog"):
                 server = (benchlib.Storescp() if name == "storescp"
                           else benchlib.Mitilog(binary, args.retention,
-                                                  root=args.data_root))
+                                                  root=args.data_root,
+                                                  durability=args.durability))
                 sample = one_run(server, paths, senders, size)
                 samples[name].append(sample)
                 benchlib.log("  senders %d repeat %d %-8s %7.0f objects/s "
@@ -137,7 +141,7 @@ def main():
     os.makedirs(os.path.dirname(args.json), exist_ok=True)
     with open(args.json, "w") as f:
         json.dump({"machine": benchlib.machine(), "objects": len(paths),
-                   "retention": args.retention, "data_root": args.data_root,
+                   "retention": args.retention, "durability": args.durability, "data_root": args.data_root,
                    "bytes": size, "results": results}, f, indent=1)
     benchlib.log("results written to %s" % os.path.relpath(args.json))
 

@@ -20,13 +20,18 @@ packages=(
   # integration tests: pydicom is the independent parser, Pillow makes the
   # JPEG fixture, dicom3tools' dciodvfy checks the fixtures against the IODs
   python3 python3-pydicom python3-pytest python3-pil dicom3tools
-  # dashboard tests (later): uncomment when the browser tests land.
   # dashboard browser tests (tests/browser): headless Chromium driven by
   # playwright-core from npm (no downloaded browsers)
-  chromium nodejs npm
+  chromium
 )
 
 missing=()
+# Node.js and npm: Debian's packages, unless the machine already has a
+# Node.js that brings its own npm (e.g. a vendor build, which conflicts
+# with Debian's npm package).
+if ! command -v node >/dev/null 2>&1 || ! command -v npm >/dev/null 2>&1; then
+  packages+=(nodejs npm)
+fi
 for package in "${packages[@]}"; do
   status=$(dpkg-query -W -f='${db:Status-Status}' "$package" 2>/dev/null || true)
   if [ "$status" != "installed" ]; then

@@ -71,6 +71,12 @@ static int serve_start(serve_state *state, mitilog_error *error)
     if (store_open(config->database_path, (int)config->busy_timeout_ms, &state->store, error) !=
         MITILOG_OK)
         return -1;
+    if (store_set_durability(state->store,
+                             strcmp(config->durability, "process") == 0
+                                 ? STORE_DURABILITY_PROCESS
+                                 : STORE_DURABILITY_POWER_LOSS,
+                             error) != MITILOG_OK)
+        return -1;
     if (ingest_create(config, state->store, &state->ingest, error) != MITILOG_OK)
         return -1;
     /* After the store and ingest made their files and folders. */

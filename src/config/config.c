@@ -81,6 +81,10 @@ static const option options[] = {
      "SQLite database file; relative to data_directory."},
     {"storage", "retention", OPTION_CHOICE, FIELD(retention), "header", 0, 0, "|none|header|full|", 0,
      "What is kept of each object: none, header (pixel data dropped) or full."},
+    {"storage", "durability", OPTION_CHOICE, FIELD(durability), "power_loss", 0, 0,
+     "|power_loss|process|", 0,
+     "power_loss: each commit is synced before Success is sent; process: survives the daemon "
+     "being killed, not a power loss (faster on slow disks)."},
     {"storage", "busy_timeout_ms", OPTION_UNSIGNED, FIELD(busy_timeout_ms), "5000", 0, 600000, NULL, 0,
      "How long a write waits for a locked database before answering A700."},
     {"storage", "sr_depth_limit", OPTION_UNSIGNED, FIELD(sr_depth_limit), "64", 1, 1024, NULL, 0,

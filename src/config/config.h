@@ -48,6 +48,7 @@ typedef struct config {
     char *data_directory;
     char *database_path;           /* default: data_directory/mitilog.sqlite3 */
     char *retention;               /* "none", "header" or "full" */
+    char *durability;              /* "power_loss" or "process" */
     unsigned busy_timeout_ms;
     unsigned sr_depth_limit;       /* SR content tree levels read */
 

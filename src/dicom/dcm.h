@@ -183,7 +183,9 @@ enum { DCM_SPOOL_RESERVE_BYTES = 1 << 20 };
 
 /* What the handler is told about one received C-STORE. The object has
  * been written byte for byte, with a meta header, to spool_path; the
- * handler must move or delete that file before it returns. */
+ * handler may move that file away (to quarantine or retention); if it
+ * leaves it, the shim writes the association's next object over it and
+ * deletes it when the association ends. */
 typedef struct dcm_received {
     const char *spool_path;
     const char *calling_ae_title;

@@ -23,6 +23,7 @@ extern "C" {
 #include <list>
 #include <memory>
 #include <string>
+#include <dirent.h>
 #include <sys/random.h>
 #include <sys/stat.h>
 #include <sys/statvfs.h>
@@ -159,6 +160,10 @@ class dcm_association_scp : public DcmThreadSCP
     std::string calling_ae_, called_ae_, peer_ip_;
     unsigned long objects_ = 0;
     std::string outcome_ = "aborted (during negotiation)";
+    /* One spool file per association, rewritten for each object: creating
+     * and deleting a file per object costs more than the object's commit
+     * on some file systems (bench/README.md). */
+    std::string spool_;
 };
 
 void dcm_association_scp::notifyAssociationRequest(
@@ -257,13 +262,15 @@ void dcm_association_scp::notifyDIMSEError(const OFCondition &condition)
 
 void dcm_association_scp::notifyAssociationTermination()
 {
+    if (!spool_.empty())
+        unlink(spool_.c_str()); /* ENOENT when the handler moved it away */
     log_info("association %lu from AE '%s' (%s): %lu object%s, %s", id_,
              calling_ae_.c_str(), peer_ip_.c_str(), objects_,
              objects_ == 1 ? "" : "s", outcome_.c_str());
 }
 
-/* Unique and never derived from header strings: association id, a
- * per-association counter and 64 random bits (ids restart with the
+/* Unique and never derived from header strings: association id, the
+ * number of objects so far and 64 random bits (ids restart with the
  * process, the random part keeps names apart across restarts). */
 std::string dcm_association_scp::spool_path()
 {
@@ -317,7 +324,9 @@ dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
 {
     if (spool_nearly_full())
         return refuse_store(request, context_id);
-    std::string path = spool_path();
+    if (spool_.empty())
+        spool_ = spool_path();
+    const std::string &path = spool_;
     OFCondition condition =
         receiveSTORERequest(request, context_id, OFString(path.c_str()));
     if (condition.bad()) {
@@ -653,6 +662,27 @@ static mitilog_status dcm_tls_setup(dcm_server *server, mitilog_error *error)
     return status;
 }
 
+/* Removes spool files a killed process left (our own naming only): their
+ * objects were never acknowledged, so the senders send them again. */
+static void dcm_clean_spool(const std::string &folder)
+{
+    DIR *directory = opendir(folder.c_str());
+    if (directory == NULL)
+        return;
+    unsigned long removed = 0;
+    while (struct dirent *entry = readdir(directory)) {
+        size_t length = strlen(entry->d_name);
+        if (strncmp(entry->d_name, "receive-", 8) == 0 && length > 12 &&
+            strcmp(entry->d_name + length - 4, ".dcm") == 0 &&
+            unlinkat(dirfd(directory), entry->d_name, 0) == 0)
+            removed++;
+    }
+    closedir(directory);
+    if (removed > 0)
+        log_info("spool: removed %lu unacknowledged object%s left by an earlier run", removed,
+                 removed == 1 ? "" : "s");
+}
+
 mitilog_status dcm_server_start(dcm_server *server, mitilog_error *error)
 {
     if (server == NULL)
@@ -663,6 +693,7 @@ mitilog_status dcm_server_start(dcm_server *server, mitilog_error *error)
                                  "DICOM server already started");
     try {
         dcmDisableGethostbyaddr.set(OFTrue); /* no reverse DNS per peer */
+        dcm_clean_spool(server->spool_directory);
         errno = 0;
         OFCondition condition = ASC_initializeNetwork(
             NET_ACCEPTOR, static_cast<int>(server->port),

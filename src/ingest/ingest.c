@@ -33,6 +33,19 @@ struct ingest {
     unsigned sr_depth_limit;      /* [storage] sr_depth_limit */
 };
 
+/* folder/00 .. folder/ff, so that writing a copy needs no mkdir. */
+static mitilog_status ingest_make_subfolders(const char *folder, mitilog_error *error)
+{
+    for (unsigned i = 0; i < 256; i++) {
+        char subfolder[FOLDER_SIZE + 4];
+        snprintf(subfolder, sizeof subfolder, "%s/%02x", folder, i);
+        mitilog_status status = files_make_directories(subfolder, error);
+        if (status != MITILOG_OK)
+            return status;
+    }
+    return MITILOG_OK;
+}
+
 mitilog_status ingest_create(const config *config, store *store, ingest **out,
                              mitilog_error *error)
 {
@@ -57,6 +70,8 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out,
                              created->objects};
     for (size_t i = 0; i < 4; i++) {
         mitilog_status status = files_make_directories(folders[i], error);
+        if (status == MITILOG_OK && i >= 2)
+            status = ingest_make_subfolders(folders[i], error);
         if (status != MITILOG_OK) {
             free(created);
             return status;
@@ -175,20 +190,18 @@ static mitilog_status read_record(dcm_object *object, const ext_site_rules *rule
 
 const char *ingest_spool_directory(const ingest *ingest) { return ingest->spool; }
 
-/* folder/ab/<hash>.dcm for the hash of key; creates folder/ab. */
+/* folder/ab/<hash>.dcm for the hash of key. The 256 subfolders are made
+ * by ingest_create (ingest_make_subfolders), not once per object. */
 static mitilog_status hashed_path(const char *folder, const char *key, char path[PATH_SIZE],
                                   mitilog_error *error)
 {
     char hex[HASH_HEX_SIZE];
     if (hash_text_hex(key, hex) != MITILOG_OK)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "cannot hash");
-    char subfolder[FOLDER_SIZE + 4];
-    snprintf(subfolder, sizeof subfolder, "%s/%.2s", folder, hex);
-    mitilog_status status = files_make_directories(subfolder, error);
-    if (status == MITILOG_OK)
-        snprintf(path, PATH_SIZE, "%s/%s.dcm", subfolder, hex);
-    return status;
+    snprintf(path, PATH_SIZE, "%s/%.2s/%s.dcm", folder, hex, hex);
+    return MITILOG_OK;
 }
+
 
 /* Keeps the received bytes of a rejected object and records the reason. */
 static void quarantine(ingest *ingest, const ingest_source *source, const char *reason)
@@ -204,8 +217,6 @@ static void quarantine(ingest *ingest, const ingest_source *source, const char *
                 kept[0] = '\0';
             }
         }
-        if (kept[0] == '\0')
-            unlink(source->path); /* the handler must not leave the spool file */
     }
     char now[32];
     files_utc_now(now, sizeof now);
@@ -239,7 +250,8 @@ static mitilog_status retain(ingest *ingest, dcm_object *object, const ingest_so
     if (status != MITILOG_OK)
         return status;
     if (ingest->retention == RETENTION_FULL)
-        return files_copy(source->path, path, error);
+        return source->is_spool ? files_move(source->path, path, error)
+                                : files_copy(source->path, path, error);
     char temporary[PATH_SIZE + 8];
     snprintf(temporary, sizeof temporary, "%s.part", path);
     status = dcm_object_save_header(object, temporary, error);
@@ -276,8 +288,6 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
         dcm_object_free(object);
         dcm_facts_free(&facts);
         ext_record_free(&record);
-        if (source->is_spool)
-            unlink(source->path);
         log_error("object: out of memory reading it: %s", reason->text);
         return INGEST_OUTCOME_NOT_STORED;
     }
@@ -313,11 +323,10 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
         log_debug("object %s stored (%s)", record.sop_instance_uid,
                   put == STORE_PUT_REPLACED ? "replaced" : "new");
     }
+    /* A spool file left here is the receiver's: it reuses or deletes it. */
     dcm_object_free(object);
     dcm_facts_free(&facts);
     ext_record_free(&record);
-    if (source->is_spool)
-        unlink(source->path);
     return outcome;
 }
 

@@ -18,6 +18,47 @@
 #include "ingest/ingest.h"
 #include "util/log.h"
 
+/* A study is rebuilt once no instance of it has arrived for SETTLE
+ * seconds, or MAX_WAIT seconds after its first waiting instance, so a
+ * study sent as a burst costs one rebuild instead of one per image. */
+#define INGEST_EXAM_SETTLE_SECONDS 0.5
+#define INGEST_EXAM_MAX_WAIT_SECONDS 5.0
+
+/* Index of the first waiting study that is due, or -1; *wake is set to
+ * the earliest time one becomes due. Under exams->lock. */
+static long ingest_exams_due(const ingest_exams *exams, double now, double *wake)
+{
+    *wake = now + INGEST_EXAM_MAX_WAIT_SECONDS;
+    for (size_t i = 0; i < exams->dirty_count; i++) {
+        double due = exams->dirty_last[i] + INGEST_EXAM_SETTLE_SECONDS;
+        double limit = exams->dirty_first[i] + INGEST_EXAM_MAX_WAIT_SECONDS;
+        if (limit < due)
+            due = limit;
+        if (exams->flushing || exams->stopping || due <= now)
+            return (long)i;
+        if (due < *wake)
+            *wake = due;
+    }
+    return -1;
+}
+
+static void ingest_exams_remove(ingest_exams *exams, size_t i)
+{
+    size_t after = exams->dirty_count - i - 1;
+    memmove(exams->dirty + i, exams->dirty + i + 1, after * sizeof *exams->dirty);
+    memmove(exams->dirty_first + i, exams->dirty_first + i + 1, after * sizeof(double));
+    memmove(exams->dirty_last + i, exams->dirty_last + i + 1, after * sizeof(double));
+    exams->dirty_count--;
+}
+
+static void ingest_exams_wait_until(ingest_exams *exams, double when)
+{
+    struct timespec until;
+    until.tv_sec = (time_t)when;
+    until.tv_nsec = (long)((when - (double)until.tv_sec) * 1e9);
+    pthread_cond_timedwait(&exams->changed, &exams->lock, &until);
+}
+
 mitilog_status ingest_exam_rebuild(store *store, const ext_site_rules *rules,
                                    const char *study_instance_uid, mitilog_error *error)
 {
@@ -149,9 +190,14 @@ static void *ingest_exams_run(void *argument)
         }
         if (exams->dirty_count == 0)
             break; /* stopping, nothing left */
-        char *study = exams->dirty[0];
-        memmove(exams->dirty, exams->dirty + 1, (exams->dirty_count - 1) * sizeof *exams->dirty);
-        exams->dirty_count--;
+        double wake;
+        long due = ingest_exams_due(exams, ingest_clock_now(), &wake);
+        if (due < 0) {
+            ingest_exams_wait_until(exams, wake);
+            continue;
+        }
+        char *study = exams->dirty[due];
+        ingest_exams_remove(exams, (size_t)due);
         exams->busy = 1;
         pthread_mutex_unlock(&exams->lock);
 
@@ -205,9 +251,11 @@ void ingest_exams_mark(ingest_exams *exams, const char *study_instance_uid)
 {
     if (!exams->started || study_instance_uid == NULL || study_instance_uid[0] == '\0')
         return;
+    double now = ingest_clock_now();
     pthread_mutex_lock(&exams->lock);
     for (size_t i = 0; i < exams->dirty_count; i++) {
         if (strcmp(exams->dirty[i], study_instance_uid) == 0) {
+            exams->dirty_last[i] = now;
             pthread_mutex_unlock(&exams->lock);
             return;
         }
@@ -215,12 +263,19 @@ void ingest_exams_mark(ingest_exams *exams, const char *study_instance_uid)
     if (exams->dirty_count == exams->dirty_capacity) {
         size_t grown = exams->dirty_capacity == 0 ? 16 : exams->dirty_capacity * 2;
         char **array = realloc(exams->dirty, grown * sizeof *array);
-        if (array == NULL) {
+        if (array != NULL)
+            exams->dirty = array;
+        double *first = array ? realloc(exams->dirty_first, grown * sizeof *first) : NULL;
+        if (first != NULL)
+            exams->dirty_first = first;
+        double *last = first ? realloc(exams->dirty_last, grown * sizeof *last) : NULL;
+        if (last != NULL)
+            exams->dirty_last = last;
+        if (last == NULL) {
             pthread_mutex_unlock(&exams->lock);
             log_error("study %s: out of memory, exam record not rebuilt", study_instance_uid);
             return;
         }
-        exams->dirty = array;
         exams->dirty_capacity = grown;
     }
     char *copy = strdup(study_instance_uid);
@@ -229,6 +284,8 @@ void ingest_exams_mark(ingest_exams *exams, const char *study_instance_uid)
         log_error("study %s: out of memory, exam record not rebuilt", study_instance_uid);
         return;
     }
+    exams->dirty_first[exams->dirty_count] = now;
+    exams->dirty_last[exams->dirty_count] = now;
     exams->dirty[exams->dirty_count++] = copy;
     pthread_cond_broadcast(&exams->changed);
     pthread_mutex_unlock(&exams->lock);
@@ -239,8 +296,11 @@ void ingest_exams_flush(ingest_exams *exams)
     if (!exams->started)
         return;
     pthread_mutex_lock(&exams->lock);
+    exams->flushing++;
+    pthread_cond_broadcast(&exams->changed);
     while (exams->dirty_count > 0 || exams->busy)
         pthread_cond_wait(&exams->changed, &exams->lock);
+    exams->flushing--;
     pthread_mutex_unlock(&exams->lock);
 }
 
@@ -257,6 +317,8 @@ void ingest_exams_stop(ingest_exams *exams)
     for (size_t i = 0; i < exams->dirty_count; i++)
         free(exams->dirty[i]);
     free(exams->dirty);
+    free(exams->dirty_first);
+    free(exams->dirty_last);
     ingest_exams_release_policy(exams, exams->policy);
     exams->policy = NULL;
     pthread_cond_destroy(&exams->changed);

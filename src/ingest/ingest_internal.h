@@ -30,7 +30,10 @@ typedef struct ingest_exams {
     pthread_mutex_t lock;
     pthread_cond_t changed;
     char **dirty;                 /* study UIDs waiting, no duplicates */
+    double *dirty_first;          /* ingest_clock_now() of the first mark */
+    double *dirty_last;           /* ... and of the latest mark */
     size_t dirty_count, dirty_capacity;
+    int flushing;                 /* rebuild everything now, no settling */
     int busy;                     /* the worker is rebuilding one */
     int stopping;
     int started;

@@ -36,6 +36,18 @@ mitilog_status store_open(const char *path, int busy_timeout_ms, store **out,
 /* Finishes pending writes, checkpoints the WAL and closes. NULL is fine. */
 void store_close(store *store);
 
+/* How far a commit is durable before store_put_* returns (and so before
+ * a C-STORE is answered). POWER_LOSS (the default after store_open):
+ * every commit syncs the WAL. PROCESS: a commit survives the process being
+ * killed but not a power loss (the WAL is synced at checkpoints). */
+typedef enum store_durability {
+    STORE_DURABILITY_POWER_LOSS = 0,
+    STORE_DURABILITY_PROCESS
+} store_durability;
+
+mitilog_status store_set_durability(store *store, store_durability durability,
+                                    mitilog_error *error);
+
 /* Schema version after migration (PRAGMA user_version). */
 int store_schema_version(store *store);
 

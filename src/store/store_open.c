@@ -241,3 +241,21 @@ sqlite3 *store_writer_connection(store *st)
 {
     return st != NULL ? st->writer : NULL;
 }
+
+mitilog_status store_set_durability(store *st, store_durability durability, mitilog_error *error)
+{
+    if (st == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_set_durability: no store");
+    /* The writer connection belongs to whoever leads a batch: wait until
+     * nobody does, and hold the queue so nobody starts meanwhile. */
+    pthread_mutex_lock(&st->queue_lock);
+    while (st->leader_active)
+        pthread_cond_wait(&st->queue_changed, &st->queue_lock);
+    mitilog_status status = store_exec_file(
+        st->writer,
+        durability == STORE_DURABILITY_PROCESS ? "queries/pragma_synchronous_normal.sql"
+                                               : "queries/pragma_synchronous_full.sql",
+        error);
+    pthread_mutex_unlock(&st->queue_lock);
+    return status;
+}

@@ -227,6 +227,32 @@ static int migration_count(void)
 }
 
 /* --- tests -------------------------------------------------------------- */
+/* PRAGMA synchronous of the writer: SQLite documents FULL = 2, NORMAL = 1
+ * (sqlite.org/pragma.html#pragma_synchronous). */
+static int writer_synchronous(store *st)
+{
+    sqlite3_stmt *statement = NULL;
+    int value = -1;
+    if (sqlite3_prepare_v2(store_writer_connection(st), "PRAGMA synchronous", -1, &statement,
+                           NULL) == SQLITE_OK &&
+        sqlite3_step(statement) == SQLITE_ROW)
+        value = sqlite3_column_int(statement, 0);
+    sqlite3_finalize(statement);
+    return value;
+}
+
+static void durability_setting(void **state)
+{
+    fixture *f = *state;
+    mitilog_error error;
+    assert_int_equal(writer_synchronous(f->store), 2); /* the default: FULL */
+    assert_int_equal(store_set_durability(f->store, STORE_DURABILITY_PROCESS, &error), MITILOG_OK);
+    assert_int_equal(writer_synchronous(f->store), 1); /* NORMAL */
+    assert_int_equal(store_set_durability(f->store, STORE_DURABILITY_POWER_LOSS, &error),
+                     MITILOG_OK);
+    assert_int_equal(writer_synchronous(f->store), 2);
+}
+
 
 static void open_creates_schema(void **state)
 {
@@ -765,6 +791,7 @@ static void health_counts(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
+        cmocka_unit_test_setup_teardown(durability_setting, fixture_setup, fixture_teardown),
         cmocka_unit_test_setup_teardown(open_creates_schema, fixture_setup,
                                         fixture_teardown),
         cmocka_unit_test_setup_teardown(put_and_read_back, fixture_setup,
