@@ -1,7 +1,7 @@
 /*
- * ext_text.h - UTF-8 validity for stored strings (RFC 3629). Internal to
- * extraction. ext_text_to_utf8() returns a malloc'ed copy (NULL only for
- * NULL input or out of memory) with invalid bytes replaced by U+FFFD and
+ * ext_text.h - UTF-8 validity for stored strings (RFC 3629), used by
+ * extraction and by the store's input checks. ext_text_to_utf8()
+ * returns a malloc'ed copy (NULL only for NULL input or out of memory) with invalid bytes replaced by U+FFFD and
  * sets *replaced to 1 when it replaced anything.
  */
 #ifndef MITILOG_EXT_TEXT_H

@@ -20,13 +20,10 @@
 #include <stdio.h>
 #include <string.h>
 
+#include "extract/ext_text.h"
 #include "util/log.h"
 
 enum { STORE_BATCH_MAX = 256 };
-
-/* Column and API names of the indices, in ext_index order (ext.h). */
-static const char *const store_index_names[EXT_INDEX_COUNT] = {
-    "mi", "tis", "tib", "tic", "tis_focus", "tis_surface"};
 
 /* The schema's name of a value status (CHECK constraint), NULL if bad. */
 static const char *store_value_status_name(ext_value_status status)
@@ -56,24 +53,7 @@ static const char *store_time_source_name(ext_time_source source)
 }
 
 /* 1 if text (may be NULL) is well-formed UTF-8: JSON output needs it. */
-static int store_is_utf8(const char *text)
-{
-    const unsigned char *byte = (const unsigned char *)text;
-    while (byte != NULL && *byte != 0) {
-        int follow;
-        if (*byte < 0x80) follow = 0;
-        else if (*byte >= 0xc2 && *byte <= 0xdf) follow = 1;
-        else if (*byte >= 0xe0 && *byte <= 0xef) follow = 2;
-        else if (*byte >= 0xf0 && *byte <= 0xf4) follow = 3;
-        else return 0;
-        byte++;
-        for (int i = 0; i < follow; i++, byte++) {
-            if ((*byte & 0xc0) != 0x80)
-                return 0;
-        }
-    }
-    return 1;
-}
+static int store_is_utf8(const char *text) { return text == NULL || ext_text_is_utf8(text); }
 
 int store_is_text_utf8(const char *text)
 {
@@ -244,7 +224,7 @@ static int store_bind_context(sqlite3_stmt *statement,
         {":exam_type_label", record->exam_type_label},
         {":exam_type_source", record->exam_type_source},
         {":governing_index", record->has_governing_index
-                                 ? store_index_names[record->governing_index]
+                                 ? ext_index_name(record->governing_index)
                                  : NULL},
         {":governing_index_source", record->has_governing_index
                                         ? record->governing_index_source
@@ -346,9 +326,9 @@ static int store_bind_instance(sqlite3_stmt *statement,
                               record->is_ultrasound ? 1 : 0);
     for (int i = 0; rc == SQLITE_OK && i < EXT_INDEX_COUNT; i++) {
         char parameter[64];
-        rc = store_bind_number(statement, store_index_names[i],
+        rc = store_bind_number(statement, ext_index_name((ext_index)i),
                                record->indices[i], 0);
-        snprintf(parameter, sizeof parameter, ":%s_raw", store_index_names[i]);
+        snprintf(parameter, sizeof parameter, ":%s_raw", ext_index_name((ext_index)i));
         if (rc == SQLITE_OK)
             rc = store_bind_text(statement, parameter, record->index_raw[i]);
     }
