@@ -34,9 +34,12 @@ dwell AS (
     FROM (SELECT tl.study_instance_uid, tl.attributed_seconds,
                  CASE p.governing_index WHEN 'tis' THEN i.tis WHEN 'tib' THEN i.tib
                                         WHEN 'tic' THEN i.tic END AS value
+          -- CROSS JOIN keeps this order: from the period's exams to their
+          -- timelines, never a scan of every timeline (EXPLAIN QUERY PLAN,
+          -- bench/query.py: 260 ms to 50 ms for a week of 90,000 instances).
           FROM period p
-          JOIN exam_timeline tl ON tl.study_instance_uid = p.study_instance_uid
-          JOIN instances i ON i.sop_instance_uid = tl.sop_instance_uid) AS t
+          CROSS JOIN exam_timeline tl ON tl.study_instance_uid = p.study_instance_uid
+          CROSS JOIN instances i ON i.sop_instance_uid = tl.sop_instance_uid) AS t
     GROUP BY t.study_instance_uid
 ),
 counts AS (
