@@ -80,7 +80,7 @@ int command_rescore(int argc, char **argv)
         goto failed;
     double now = ingest_clock_now();
     for (size_t i = 0; i < count; i++)
-        if (ingest_evaluate_study(st, &rules, policy, items[i], now, 0, &exams, &error) !=
+        if (ingest_evaluate_study(st, &rules, policy, items[i], now, &exams, &error) !=
             MITILOG_OK)
             goto failed;
     store_texts_free(items, count);

@@ -94,12 +94,12 @@ mitilog_status ingest_register_policy(store *store, const rules_policy *policy,
                                       mitilog_error *error);
 
 /* Rebuilds a study's exam record and, with a policy, evaluates it at now
- * (and, with with_days, output_not_reported for the days of its
- * instances). counts may be NULL. `mitilog rescore` uses it. */
+ * (the day-level rules are evaluated apart: ingest_evaluate_day). counts
+ * may be NULL. The exam worker and `mitilog rescore` use it. */
 mitilog_status ingest_evaluate_study(store *store, const struct ext_site_rules *rules,
                                      const rules_policy *policy,
                                      const char *study_instance_uid, double now,
-                                     int with_days, store_evaluation_counts *counts,
+                                     store_evaluation_counts *counts,
                                      mitilog_error *error);
 /* output_not_reported over the ultrasound instances of one day. */
 mitilog_status ingest_evaluate_day(store *store, const rules_policy *policy,

@@ -4,8 +4,10 @@
  * instance (and only then is the C-STORE answered), then marks its study
  * dirty; this thread rebuilds dirty studies one at a time from what the
  * store holds, so a burst of a study's images costs few rebuilds (marks
- * coalesce while a study waits). `import` flushes before it exits and
- * `serve` drains the queue at shutdown (ingest_free).
+ * coalesce while a study waits). A rebuilt study queues its days, and
+ * the day-level rules run once a day has settled. `import` flushes
+ * before it exits and `serve` drains the queues at shutdown
+ * (ingest_free).
  */
 #include "ingest/ingest_internal.h"
 
@@ -20,18 +22,23 @@
 
 /* A study is rebuilt once no instance of it has arrived for SETTLE
  * seconds, or MAX_WAIT seconds after its first waiting instance, so a
- * study sent as a burst costs one rebuild instead of one per image. */
+ * study sent as a burst costs one rebuild instead of one per image. A
+ * day's device-level rules (output_not_reported) read every instance of
+ * the day, so a day waits longer: it is evaluated once its studies have
+ * been quiet for DAY_SETTLE seconds (at most DAY_MAX_WAIT). */
 #define INGEST_EXAM_SETTLE_SECONDS 0.5
 #define INGEST_EXAM_MAX_WAIT_SECONDS 5.0
+#define INGEST_DAY_SETTLE_SECONDS 5.0
+#define INGEST_DAY_MAX_WAIT_SECONDS 60.0
 
-/* Index of the first waiting study that is due, or -1; *wake is set to
- * the earliest time one becomes due. Under exams->lock. */
-static long ingest_exams_due(const ingest_exams *exams, double now, double *wake)
+/* Index of the first key of pending that is due, or -1; *wake is lowered
+ * to the earliest time one becomes due. Under exams->lock. */
+static long ingest_pending_due(const ingest_exams *exams, const ingest_pending *pending,
+                               double settle, double max_wait, double now, double *wake)
 {
-    *wake = now + INGEST_EXAM_MAX_WAIT_SECONDS;
-    for (size_t i = 0; i < exams->dirty_count; i++) {
-        double due = exams->dirty_last[i] + INGEST_EXAM_SETTLE_SECONDS;
-        double limit = exams->dirty_first[i] + INGEST_EXAM_MAX_WAIT_SECONDS;
+    for (size_t i = 0; i < pending->count; i++) {
+        double due = pending->last[i] + settle;
+        double limit = pending->first[i] + max_wait;
         if (limit < due)
             due = limit;
         if (exams->flushing || exams->stopping || due <= now)
@@ -42,13 +49,60 @@ static long ingest_exams_due(const ingest_exams *exams, double now, double *wake
     return -1;
 }
 
-static void ingest_exams_remove(ingest_exams *exams, size_t i)
+/* Takes key i out of pending; the caller frees the returned key. */
+static char *ingest_pending_take(ingest_pending *pending, size_t i)
 {
-    size_t after = exams->dirty_count - i - 1;
-    memmove(exams->dirty + i, exams->dirty + i + 1, after * sizeof *exams->dirty);
-    memmove(exams->dirty_first + i, exams->dirty_first + i + 1, after * sizeof(double));
-    memmove(exams->dirty_last + i, exams->dirty_last + i + 1, after * sizeof(double));
-    exams->dirty_count--;
+    char *key = pending->keys[i];
+    size_t after = pending->count - i - 1;
+    memmove(pending->keys + i, pending->keys + i + 1, after * sizeof *pending->keys);
+    memmove(pending->first + i, pending->first + i + 1, after * sizeof(double));
+    memmove(pending->last + i, pending->last + i + 1, after * sizeof(double));
+    pending->count--;
+    return key;
+}
+
+/* Adds key (copied) or, when it is waiting already, moves its latest
+ * mark to now. Returns 0, or -1 when out of memory. */
+static int ingest_pending_mark(ingest_pending *pending, const char *key, double now)
+{
+    for (size_t i = 0; i < pending->count; i++) {
+        if (strcmp(pending->keys[i], key) == 0) {
+            pending->last[i] = now;
+            return 0;
+        }
+    }
+    if (pending->count == pending->capacity) {
+        size_t grown = pending->capacity == 0 ? 16 : pending->capacity * 2;
+        char **keys = realloc(pending->keys, grown * sizeof *keys);
+        if (keys != NULL)
+            pending->keys = keys;
+        double *first = keys ? realloc(pending->first, grown * sizeof *first) : NULL;
+        if (first != NULL)
+            pending->first = first;
+        double *last = first ? realloc(pending->last, grown * sizeof *last) : NULL;
+        if (last != NULL)
+            pending->last = last;
+        if (last == NULL)
+            return -1;
+        pending->capacity = grown;
+    }
+    char *copy = strdup(key);
+    if (copy == NULL)
+        return -1;
+    pending->first[pending->count] = now;
+    pending->last[pending->count] = now;
+    pending->keys[pending->count++] = copy;
+    return 0;
+}
+
+static void ingest_pending_free(ingest_pending *pending)
+{
+    for (size_t i = 0; i < pending->count; i++)
+        free(pending->keys[i]);
+    free(pending->keys);
+    free(pending->first);
+    free(pending->last);
+    memset(pending, 0, sizeof *pending);
 }
 
 static void ingest_exams_wait_until(ingest_exams *exams, double when)
@@ -162,12 +216,58 @@ static void ingest_exams_sweep(ingest_exams *exams, const rules_policy *policy)
     store_texts_free(due, count);
 }
 
+/* Rebuilds and evaluates one study, then queues its days. */
+static void ingest_exams_do_study(ingest_exams *exams, const char *study)
+{
+    mitilog_error error;
+    ingest_policy_handle *handle = ingest_exams_hold_policy(exams);
+    const rules_policy *policy = handle != NULL ? handle->policy : NULL;
+    store_evaluation_counts counts = {0};
+    mitilog_status status = ingest_evaluate_study(exams->store, exams->rules, policy, study,
+                                                  ingest_clock_now(), &counts, &error);
+    char **days = NULL;
+    size_t day_count = 0;
+    if (status == MITILOG_OK && policy != NULL)
+        status = store_list(exams->store, STORE_LIST_STUDY_DAYS, study, NULL, &days,
+                            &day_count, &error);
+    ingest_exams_release_policy(exams, handle);
+    if (status != MITILOG_OK)
+        log_error("study %s: exam record not rebuilt or not evaluated: %s", study, error.text);
+    else
+        log_debug("study %s: exam record rebuilt; %lu finding(s) written, %lu superseded",
+                  study, counts.written, counts.superseded);
+    pthread_mutex_lock(&exams->lock);
+    double now = ingest_clock_now();
+    for (size_t i = 0; i < day_count; i++)
+        if (ingest_pending_mark(&exams->days, days[i], now) != 0)
+            log_error("day %s: out of memory, output_not_reported not evaluated", days[i]);
+    if (status == MITILOG_OK)
+        exams->rebuilt++;
+    else
+        exams->failed++;
+    pthread_mutex_unlock(&exams->lock);
+    store_texts_free(days, day_count);
+}
+
+/* Evaluates the day-level rules of one day under the current policy. */
+static void ingest_exams_do_day(ingest_exams *exams, const char *day)
+{
+    ingest_policy_handle *handle = ingest_exams_hold_policy(exams);
+    if (handle == NULL)
+        return;
+    mitilog_error error;
+    store_evaluation_counts counts = {0};
+    if (ingest_evaluate_day(exams->store, handle->policy, day, &counts, &error) != MITILOG_OK)
+        log_error("day %s: output_not_reported not evaluated: %s", day, error.text);
+    ingest_exams_release_policy(exams, handle);
+}
+
 static void *ingest_exams_run(void *argument)
 {
     ingest_exams *exams = argument;
     pthread_mutex_lock(&exams->lock);
     for (;;) {
-        while (exams->dirty_count == 0 && !exams->stopping) {
+        while (exams->studies.count == 0 && exams->days.count == 0 && !exams->stopping) {
             ingest_policy_handle *handle = ingest_exams_hold_policy(exams);
             if (handle == NULL) {
                 pthread_cond_wait(&exams->changed, &exams->lock);
@@ -188,40 +288,33 @@ static void *ingest_exams_run(void *argument)
             until.tv_nsec = (long)((exams->next_sweep - (double)until.tv_sec) * 1e9);
             pthread_cond_timedwait(&exams->changed, &exams->lock, &until);
         }
-        if (exams->dirty_count == 0)
+        if (exams->studies.count == 0 && exams->days.count == 0)
             break; /* stopping, nothing left */
-        double wake;
-        long due = ingest_exams_due(exams, ingest_clock_now(), &wake);
-        if (due < 0) {
+        double now = ingest_clock_now();
+        double wake = now + INGEST_DAY_MAX_WAIT_SECONDS;
+        long study = ingest_pending_due(exams, &exams->studies, INGEST_EXAM_SETTLE_SECONDS,
+                                        INGEST_EXAM_MAX_WAIT_SECONDS, now, &wake);
+        /* Days go after every waiting study: a study's rebuild may queue
+         * its days again. */
+        long day = study >= 0 || exams->studies.count > 0
+                       ? -1
+                       : ingest_pending_due(exams, &exams->days, INGEST_DAY_SETTLE_SECONDS,
+                                            INGEST_DAY_MAX_WAIT_SECONDS, now, &wake);
+        if (study < 0 && day < 0) {
             ingest_exams_wait_until(exams, wake);
             continue;
         }
-        char *study = exams->dirty[due];
-        ingest_exams_remove(exams, (size_t)due);
+        char *key = study >= 0 ? ingest_pending_take(&exams->studies, (size_t)study)
+                               : ingest_pending_take(&exams->days, (size_t)day);
         exams->busy = 1;
         pthread_mutex_unlock(&exams->lock);
-
-        mitilog_error error;
-        ingest_policy_handle *handle = ingest_exams_hold_policy(exams);
-        store_evaluation_counts counts = {0};
-        mitilog_status status = ingest_evaluate_study(
-            exams->store, exams->rules, handle != NULL ? handle->policy : NULL, study,
-            ingest_clock_now(), 1, &counts, &error);
-        ingest_exams_release_policy(exams, handle);
-        if (status != MITILOG_OK)
-            log_error("study %s: exam record not rebuilt or not evaluated: %s", study,
-                      error.text);
+        if (study >= 0)
+            ingest_exams_do_study(exams, key);
         else
-            log_debug("study %s: exam record rebuilt; %lu finding(s) written, %lu superseded",
-                      study, counts.written, counts.superseded);
-        free(study);
-
+            ingest_exams_do_day(exams, key);
+        free(key);
         pthread_mutex_lock(&exams->lock);
         exams->busy = 0;
-        if (status == MITILOG_OK)
-            exams->rebuilt++;
-        else
-            exams->failed++;
         pthread_cond_broadcast(&exams->changed);
     }
     pthread_mutex_unlock(&exams->lock);
@@ -251,43 +344,11 @@ void ingest_exams_mark(ingest_exams *exams, const char *study_instance_uid)
 {
     if (!exams->started || study_instance_uid == NULL || study_instance_uid[0] == '\0')
         return;
-    double now = ingest_clock_now();
     pthread_mutex_lock(&exams->lock);
-    for (size_t i = 0; i < exams->dirty_count; i++) {
-        if (strcmp(exams->dirty[i], study_instance_uid) == 0) {
-            exams->dirty_last[i] = now;
-            pthread_mutex_unlock(&exams->lock);
-            return;
-        }
-    }
-    if (exams->dirty_count == exams->dirty_capacity) {
-        size_t grown = exams->dirty_capacity == 0 ? 16 : exams->dirty_capacity * 2;
-        char **array = realloc(exams->dirty, grown * sizeof *array);
-        if (array != NULL)
-            exams->dirty = array;
-        double *first = array ? realloc(exams->dirty_first, grown * sizeof *first) : NULL;
-        if (first != NULL)
-            exams->dirty_first = first;
-        double *last = first ? realloc(exams->dirty_last, grown * sizeof *last) : NULL;
-        if (last != NULL)
-            exams->dirty_last = last;
-        if (last == NULL) {
-            pthread_mutex_unlock(&exams->lock);
-            log_error("study %s: out of memory, exam record not rebuilt", study_instance_uid);
-            return;
-        }
-        exams->dirty_capacity = grown;
-    }
-    char *copy = strdup(study_instance_uid);
-    if (copy == NULL) {
-        pthread_mutex_unlock(&exams->lock);
+    if (ingest_pending_mark(&exams->studies, study_instance_uid, ingest_clock_now()) != 0)
         log_error("study %s: out of memory, exam record not rebuilt", study_instance_uid);
-        return;
-    }
-    exams->dirty_first[exams->dirty_count] = now;
-    exams->dirty_last[exams->dirty_count] = now;
-    exams->dirty[exams->dirty_count++] = copy;
-    pthread_cond_broadcast(&exams->changed);
+    else
+        pthread_cond_broadcast(&exams->changed);
     pthread_mutex_unlock(&exams->lock);
 }
 
@@ -298,7 +359,7 @@ void ingest_exams_flush(ingest_exams *exams)
     pthread_mutex_lock(&exams->lock);
     exams->flushing++;
     pthread_cond_broadcast(&exams->changed);
-    while (exams->dirty_count > 0 || exams->busy)
+    while (exams->studies.count > 0 || exams->days.count > 0 || exams->busy)
         pthread_cond_wait(&exams->changed, &exams->lock);
     exams->flushing--;
     pthread_mutex_unlock(&exams->lock);
@@ -314,11 +375,8 @@ void ingest_exams_stop(ingest_exams *exams)
     pthread_cond_broadcast(&exams->changed);
     pthread_mutex_unlock(&exams->lock);
     pthread_join(exams->thread, NULL);
-    for (size_t i = 0; i < exams->dirty_count; i++)
-        free(exams->dirty[i]);
-    free(exams->dirty);
-    free(exams->dirty_first);
-    free(exams->dirty_last);
+    ingest_pending_free(&exams->studies);
+    ingest_pending_free(&exams->days);
     ingest_exams_release_policy(exams, exams->policy);
     exams->policy = NULL;
     pthread_cond_destroy(&exams->changed);

@@ -24,15 +24,22 @@ typedef struct ingest_policy_handle {
     unsigned holders;              /* under ingest_exams.policy_lock     */
 } ingest_policy_handle;
 
+/* Keys waiting for work, each with the times of its first and latest
+ * mark (ingest_clock_now()); no duplicates. Under ingest_exams.lock. */
+typedef struct ingest_pending {
+    char **keys;
+    double *first;
+    double *last;
+    size_t count, capacity;
+} ingest_pending;
+
 typedef struct ingest_exams {
     store *store;
     const ext_site_rules *rules;
     pthread_mutex_t lock;
     pthread_cond_t changed;
-    char **dirty;                 /* study UIDs waiting, no duplicates */
-    double *dirty_first;          /* ingest_clock_now() of the first mark */
-    double *dirty_last;           /* ... and of the latest mark */
-    size_t dirty_count, dirty_capacity;
+    ingest_pending studies;       /* study UIDs whose exam is rebuilt */
+    ingest_pending days;          /* days whose device rules are evaluated */
     int flushing;                 /* rebuild everything now, no settling */
     int busy;                     /* the worker is rebuilding one */
     int stopping;
@@ -55,7 +62,9 @@ unsigned ingest_rules_modes(unsigned ext_modes);
 mitilog_status ingest_exams_start(ingest_exams *exams, store *store,
                                   const ext_site_rules *rules,
                                   mitilog_error *error);
-/* Queues a study (copied); a study already waiting is not queued twice. */
+/* Queues a study (copied); a study already waiting is not queued twice.
+ * Once rebuilt, its days are queued in turn, so the day-level rules run
+ * once per settled day, not once per study. */
 void ingest_exams_mark(ingest_exams *exams, const char *study_instance_uid);
 /* Waits until every queued study has been rebuilt. */
 void ingest_exams_flush(ingest_exams *exams);

@@ -293,8 +293,8 @@ done:
 
 mitilog_status ingest_evaluate_study(store *st, const ext_site_rules *rules,
                                      const rules_policy *policy, const char *study,
-                                     double now, int with_days,
-                                     store_evaluation_counts *counts, mitilog_error *error)
+                                     double now, store_evaluation_counts *counts,
+                                     mitilog_error *error)
 {
     ext_exam_instance *instances = NULL;
     size_t count = 0;
@@ -314,13 +314,5 @@ mitilog_status ingest_evaluate_study(store *st, const ext_site_rules *rules,
         ext_exam_free(&exam);
     }
     store_study_free(instances, count);
-    if (status == MITILOG_OK && policy != NULL && with_days) {
-        char **days = NULL;
-        size_t day_count = 0;
-        status = store_list(st, STORE_LIST_STUDY_DAYS, study, NULL, &days, &day_count, error);
-        for (size_t i = 0; status == MITILOG_OK && i < day_count; i++)
-            status = ingest_evaluate_day(st, policy, days[i], counts, error);
-        store_texts_free(days, day_count);
-    }
     return status;
 }
