@@ -104,7 +104,6 @@ static int serve_start(serve_state *state, mitilog_error *error)
         .acse_timeout_seconds = config->acse_timeout_seconds,
         .dimse_timeout_seconds = config->dimse_timeout_seconds,
         .max_pdu = config->max_pdu_bytes,
-        .spool_directory = ingest_spool_directory(state->ingest),
         .tls_certificate_file = serve_optional(config->dicom_tls_certificate),
         .tls_private_key_file = serve_optional(config->dicom_tls_private_key),
         .tls_ca_file = serve_optional(config->dicom_tls_ca_certificates),

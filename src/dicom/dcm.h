@@ -157,10 +157,13 @@ mitilog_status dcm_object_facts(dcm_object *object, unsigned sr_depth_limit,
                                 dcm_facts *facts, mitilog_error *error);
 void dcm_facts_free(dcm_facts *facts);
 
-/* Writes the object without its pixel data (and without other bulk
- * data over 64 KiB) as a Part 10 file; the directory must exist. */
-mitilog_status dcm_object_save_header(dcm_object *object, const char *path,
-                                      mitilog_error *error);
+/* The object without its pixel data (and without other bulk data over
+ * 64 KiB) as the bytes of a Part 10 file, in *bytes (malloc'd, the caller
+ * frees it) of *size bytes. The bulk data is removed from the loaded
+ * object itself, not from a copy: read its facts first; afterwards it is
+ * good for nothing but another header copy and dcm_object_free(). */
+mitilog_status dcm_object_header_bytes(dcm_object *object, unsigned char **bytes,
+                                       size_t *size, mitilog_error *error);
 
 /* ------------------------------------------------------------------ */
 /* Receiving: Storage SCP + Verification SCP                           */
@@ -176,16 +179,14 @@ enum {
     DCM_STATUS_TOO_LARGE = 0xC001
 };
 
-/* When the spool's filesystem has less free space than this, a C-STORE
- * is read into memory, dropped and answered A700: DCMTK 3.6.7 stalls
- * until the DIMSE timeout when writing the spool file fails. */
-enum { DCM_SPOOL_RESERVE_BYTES = 1 << 20 };
-
 /* What the handler is told about one received C-STORE. The object has
- * been written byte for byte, with a meta header, to spool_path; the
- * handler may move that file away (to quarantine or retention); if it
- * leaves it, the shim writes the association's next object over it and
- * deletes it when the association ends. */
+ * been written byte for byte, with a meta header, to a memory file of
+ * the association (memfd_create(2)) that spool_path names
+ * ("/proc/self/fd/N"): the handler may open, read or copy it during the
+ * call, but not rename or delete it. The shim writes the association's
+ * next object over it, empties it after each handler call and closes it
+ * when the association ends; nothing of a received object touches the
+ * disk unless the handler writes it there. */
 typedef struct dcm_received {
     const char *spool_path;
     const char *calling_ae_title;
@@ -215,13 +216,13 @@ typedef struct dcm_server_settings {
     unsigned acse_timeout_seconds;
     unsigned dimse_timeout_seconds;
     uint32_t max_pdu;                  /* receive PDU size in bytes */
-    const char *spool_directory;       /* where received objects land */
     /* TLS: all NULL = plain TCP. */
     const char *tls_certificate_file;
     const char *tls_private_key_file;
     const char *tls_ca_file;           /* non-NULL: require client certs */
     /* Objects larger than this (bytes as received, meta header included)
-     * are answered DCM_STATUS_TOO_LARGE and deleted; 0 = no limit. */
+     * are answered DCM_STATUS_TOO_LARGE and dropped; 0 = no limit. An
+     * association holds at most one object in memory at a time. */
     uint64_t max_object_bytes;
 } dcm_server_settings;
 

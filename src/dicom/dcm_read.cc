@@ -9,6 +9,8 @@
 #include "dcmtk/dcmdata/dcdeftag.h"
 #include "dcmtk/dcmdata/dcfilefo.h"
 #include "dcmtk/dcmdata/dcmetinf.h"
+#include "dcmtk/dcmdata/dcostrma.h"
+#include "dcmtk/dcmdata/dcwcache.h"
 #include "dcmtk/dcmdata/dcspchrs.h"
 #include "dcmtk/dcmdata/dcxfer.h"
 #include "dcmtk/dcmsr/dsrdoc.h"
@@ -272,12 +274,32 @@ static void dcm_read_structured_report(DcmDataset &dataset,
     dcm_sr_walk(document.getTree(), depth_limit, facts);
 }
 
-/* A UTF-8 copy of the dataset, or NULL when DCMTK cannot convert it (no
- * converter built in, unknown or broken character set). */
+/* 1 if the object's text is already UTF-8 when it is valid at all: no
+ * Specific Character Set (the default repertoire, ASCII), "ISO_IR 6"
+ * (read as ASCII) or "ISO_IR 192" (UTF-8). DCMTK's conversion of such an
+ * object changes no valid value and fails on an invalid one, which then
+ * stays as it was sent: reading the original gives the same values. */
+static bool dcm_text_is_utf8_already(DcmDataset &dataset)
+{
+    OFString charset;
+    if (dataset.findAndGetOFStringArray(DCM_SpecificCharacterSet, charset).bad())
+        return true;
+    size_t first = charset.find_first_not_of(' ');
+    if (first == OFString_npos)
+        return true;
+    size_t last = charset.find_last_not_of(' ');
+    OFString trimmed = charset.substr(first, last - first + 1);
+    return trimmed == "ISO_IR 6" || trimmed == "ISO_IR 192";
+}
+
+/* A UTF-8 copy of the dataset, or NULL when none is needed (text already
+ * UTF-8) or DCMTK cannot convert it (no converter built in, unknown or
+ * broken character set). */
 static DcmDataset *dcm_utf8_copy(DcmDataset &original,
                                  const char *sop_instance_uid)
 {
-    if (!DcmSpecificCharacterSet::isConversionAvailable())
+    if (dcm_text_is_utf8_already(original) ||
+        !DcmSpecificCharacterSet::isConversionAvailable())
         return NULL;
     std::unique_ptr<DcmDataset> copy(new DcmDataset(original));
     OFCondition condition = copy->convertToUTF8();
@@ -420,18 +442,51 @@ static void dcm_remove_bulk(DcmDataset &dataset, E_TransferSyntax xfer,
         delete (*parent)->remove(*object);
 }
 
-mitilog_status dcm_object_save_header(dcm_object *object, const char *path,
-                                      mitilog_error *error)
+/* An output stream into a growing std::string (DCMTK 3.6.7 has file and
+ * fixed-buffer streams only), shaped like DcmOutputFileStream. */
+class dcm_string_consumer : public DcmConsumer
 {
-    if (object == NULL || path == NULL)
+  public:
+    explicit dcm_string_consumer(std::string &out) : out_(out) {}
+    OFBool good() const override { return OFTrue; }
+    OFCondition status() const override { return EC_Normal; }
+    OFBool isFlushed() const override { return OFTrue; }
+    offile_off_t avail() const override { return OFstatic_cast(offile_off_t, 1) << 30; }
+    offile_off_t write(const void *buffer, offile_off_t length) override
+    {
+        out_.append(static_cast<const char *>(buffer), static_cast<size_t>(length));
+        return length;
+    }
+    void flush() override {}
+
+  private:
+    std::string &out_;
+};
+
+class dcm_string_stream : public DcmOutputStream
+{
+  public:
+    explicit dcm_string_stream(std::string &out)
+        : DcmOutputStream(&consumer_), consumer_(out)
+    {
+    }
+
+  private:
+    dcm_string_consumer consumer_;
+};
+
+mitilog_status dcm_object_header_bytes(dcm_object *object, unsigned char **bytes,
+                                       size_t *size, mitilog_error *error)
+{
+    if (object == NULL || bytes == NULL || size == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "dcm_object_save_header: NULL argument");
+                                 "dcm_object_header_bytes: NULL argument");
+    *bytes = NULL;
+    *size = 0;
     try {
-        /* Work on a copy: the loaded object stays usable. */
-        DcmFileFormat copy(object->file);
-        DcmDataset &dataset = *copy.getDataset();
-        E_TransferSyntax original =
-            object->file.getDataset()->getOriginalXfer();
+        DcmFileFormat &file = object->file;
+        DcmDataset &dataset = *file.getDataset();
+        E_TransferSyntax original = dataset.getOriginalXfer();
         if (original == EXS_Unknown)
             original = EXS_LittleEndianExplicit;
         dcm_remove_bulk(dataset, original, false);
@@ -442,13 +497,37 @@ mitilog_status dcm_object_save_header(dcm_object *object, const char *path,
             if (!dataset.canWriteXfer(xfer, original))
                 dcm_remove_bulk(dataset, original, true);
         }
-        OFCondition condition =
-            copy.saveFile(OFFilename(path), xfer, EET_ExplicitLength,
-                          EGL_recalcGL, EPD_noChange, 0, 0, EWM_fileformat);
+        /* What saveFile() does before writing: a meta header that matches
+         * the data set and the transfer syntax written. */
+        OFCondition condition = file.validateMetaInfo(xfer, EWM_fileformat);
+        std::string out;
+        if (condition.good()) {
+            dcm_string_stream stream(out);
+            DcmWriteCache cache;
+            file.transferInit();
+            condition = file.write(stream, xfer, EET_ExplicitLength, &cache,
+                                   EGL_recalcGL, EPD_noChange, 0, 0, 0,
+                                   EWM_fileformat);
+            file.transferEnd();
+            /* A deflated transfer syntax writes through a zlib filter that
+             * keeps its tail until flushed (DcmOutputFileStream flushes in
+             * its destructor). */
+            for (int round = 0; condition.good() && !stream.isFlushed() && round < 16; round++)
+                stream.flush();
+            if (condition.good() && !stream.isFlushed())
+                condition = EC_IllegalCall;
+        }
         if (condition.bad())
-            return dcm_error_from_condition(error, MITILOG_ERROR_IO, path,
-                                            condition);
+            return dcm_error_from_condition(error, MITILOG_ERROR_IO,
+                                            "header copy", condition);
+        unsigned char *copy = static_cast<unsigned char *>(malloc(out.size()));
+        if (copy == NULL)
+            return mitilog_error_set(error, MITILOG_ERROR_MEMORY,
+                                     "header copy: out of memory");
+        memcpy(copy, out.data(), out.size());
+        *bytes = copy;
+        *size = out.size();
         return MITILOG_OK;
     }
-    DCM_CATCH_ALL(error, MITILOG_ERROR_IO, "dcm_object_save_header")
+    DCM_CATCH_ALL(error, MITILOG_ERROR_IO, "dcm_object_header_bytes")
 }

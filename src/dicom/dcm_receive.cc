@@ -2,8 +2,8 @@
  * dcm_receive.cc - the Storage SCP (with Verification): an accept loop of
  * our own on a listener thread, one thread per association running a
  * DcmThreadSCP subclass (dcmtk-notes.md, approach (b)). Each C-STORE is
- * written byte for byte to a spool file and handed to the C handler,
- * whose status is the C-STORE response.
+ * written byte for byte to the association's memory file and handed to
+ * the C handler, whose status is the C-STORE response.
  */
 #include "dicom/dcm_internal.h"
 
@@ -23,12 +23,9 @@ extern "C" {
 #include <list>
 #include <memory>
 #include <string>
-#include <dirent.h>
-#include <sys/random.h>
+#include <sys/mman.h>
 #include <sys/stat.h>
-#include <sys/statvfs.h>
 #include <thread>
-#include <time.h>
 #include <unistd.h>
 #include <vector>
 
@@ -80,7 +77,6 @@ struct dcm_server {
     unsigned max_associations = 1;
     unsigned acse_timeout = DCM_DEFAULT_ACSE_TIMEOUT;
     uint32_t max_pdu = ASC_DEFAULTMAXPDU;
-    std::string spool_directory;
     uint64_t max_object_bytes = 0; /* 0 = no limit */
     std::string tls_certificate_file, tls_private_key_file, tls_ca_file;
     bool tls = false, tls_require_client = false;
@@ -151,19 +147,27 @@ class dcm_association_scp : public DcmThreadSCP
     OFCondition receive_store(T_DIMSE_C_StoreRQ &request,
                               T_ASC_PresentationContextID context_id);
     OFCondition refuse_store(T_DIMSE_C_StoreRQ &request,
-                             T_ASC_PresentationContextID context_id);
-    bool spool_nearly_full();
-    std::string spool_path();
+                             T_ASC_PresentationContextID context_id,
+                             const char *reason);
+    bool open_spool();
 
     dcm_server *server_;
     unsigned long id_;
     std::string calling_ae_, called_ae_, peer_ip_;
     unsigned long objects_ = 0;
     std::string outcome_ = "aborted (during negotiation)";
-    /* One spool file per association, rewritten for each object: creating
-     * and deleting a file per object costs more than the object's commit
-     * on some file systems (bench/README.md). */
+    /* One memory file per association, rewritten for each object: no
+     * file is created, written or deleted on disk per object
+     * (docs/performance.md). spool_ is its /proc/self/fd path. */
+    int spool_fd_ = -1;
     std::string spool_;
+
+  public:
+    ~dcm_association_scp() override
+    {
+        if (spool_fd_ >= 0)
+            close(spool_fd_);
+    }
 };
 
 void dcm_association_scp::notifyAssociationRequest(
@@ -262,46 +266,38 @@ void dcm_association_scp::notifyDIMSEError(const OFCondition &condition)
 
 void dcm_association_scp::notifyAssociationTermination()
 {
-    if (!spool_.empty())
-        unlink(spool_.c_str()); /* ENOENT when the handler moved it away */
+    if (spool_fd_ >= 0) {
+        close(spool_fd_);
+        spool_fd_ = -1;
+        spool_.clear();
+    }
     log_info("association %lu from AE '%s' (%s): %lu object%s, %s", id_,
              calling_ae_.c_str(), peer_ip_.c_str(), objects_,
              objects_ == 1 ? "" : "s", outcome_.c_str());
 }
 
-/* Unique and never derived from header strings: association id, the
- * number of objects so far and 64 random bits (ids restart with the
- * process, the random part keeps names apart across restarts). */
-std::string dcm_association_scp::spool_path()
+/* Makes the association's memory file. The path goes through /proc so
+ * that DCMTK, which writes received objects to a named file, can open it
+ * (dcm_server_start checks once that this works). */
+bool dcm_association_scp::open_spool()
 {
-    uint64_t random_bits = 0;
-    if (getrandom(&random_bits, sizeof random_bits, GRND_NONBLOCK) !=
-        static_cast<ssize_t>(sizeof random_bits)) {
-        struct timespec now;
-        clock_gettime(CLOCK_REALTIME, &now);
-        random_bits = (static_cast<uint64_t>(now.tv_sec) << 30) ^
-                      static_cast<uint64_t>(now.tv_nsec) ^
-                      (static_cast<uint64_t>(getpid()) << 48);
+    if (spool_fd_ >= 0)
+        return true;
+    spool_fd_ = memfd_create("mitilog-received", MFD_CLOEXEC);
+    if (spool_fd_ < 0) {
+        log_error("association %lu: cannot make a memory file: %s", id_,
+                  strerror(errno));
+        return false;
     }
-    char name[96];
-    snprintf(name, sizeof name, "/receive-%lu-%lu-%016llx.dcm", id_,
-             objects_ + 1, static_cast<unsigned long long>(random_bits));
-    return server_->spool_directory + name;
-}
-
-bool dcm_association_scp::spool_nearly_full()
-{
-    struct statvfs info;
-    if (statvfs(server_->spool_directory.c_str(), &info) != 0)
-        return false; /* the spool write itself will tell */
-    uint64_t free_bytes = static_cast<uint64_t>(info.f_bavail) * info.f_frsize;
-    return free_bytes < DCM_SPOOL_RESERVE_BYTES;
+    spool_ = "/proc/self/fd/" + std::to_string(spool_fd_);
+    return true;
 }
 
 /* Reads the data set into memory, drops it and answers A700. */
 OFCondition
 dcm_association_scp::refuse_store(T_DIMSE_C_StoreRQ &request,
-                                  T_ASC_PresentationContextID context_id)
+                                  T_ASC_PresentationContextID context_id,
+                                  const char *reason)
 {
     DcmDataset *dataset = NULL;
     OFCondition condition =
@@ -310,10 +306,9 @@ dcm_association_scp::refuse_store(T_DIMSE_C_StoreRQ &request,
     if (condition.bad())
         return condition;
     log_warning("association %lu from AE '%s' (%s): object %s answered "
-                "A700: less than %d bytes free for the spool in %s",
+                "A700: %s",
                 id_, calling_ae_.c_str(), peer_ip_.c_str(),
-                request.AffectedSOPInstanceUID, DCM_SPOOL_RESERVE_BYTES,
-                server_->spool_directory.c_str());
+                request.AffectedSOPInstanceUID, reason);
     return sendSTOREResponse(context_id, request,
                              DCM_STATUS_OUT_OF_RESOURCES);
 }
@@ -322,10 +317,8 @@ OFCondition
 dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
                                    T_ASC_PresentationContextID context_id)
 {
-    if (spool_nearly_full())
-        return refuse_store(request, context_id);
-    if (spool_.empty())
-        spool_ = spool_path();
+    if (!open_spool())
+        return refuse_store(request, context_id, "no memory file to receive into");
     const std::string &path = spool_;
     OFCondition condition =
         receiveSTORERequest(request, context_id, OFString(path.c_str()));
@@ -334,36 +327,44 @@ dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
                     "of %s failed: %s",
                     id_, calling_ae_.c_str(), peer_ip_.c_str(),
                     request.AffectedSOPInstanceUID, condition.text());
-        unlink(path.c_str()); /* partial file, if any */
-        return condition;     /* DCMTK aborts the association */
+        if (ftruncate(spool_fd_, 0) != 0)
+            log_warning("association %lu: cannot empty the memory file: %s",
+                        id_, strerror(errno));
+        return condition; /* DCMTK aborts the association */
     }
     objects_++;
     server_->objects++;
     struct stat info;
-    if (server_->max_object_bytes > 0 && stat(path.c_str(), &info) == 0 &&
+    uint16_t status;
+    if (server_->max_object_bytes > 0 && fstat(spool_fd_, &info) == 0 &&
         static_cast<uint64_t>(info.st_size) > server_->max_object_bytes) {
-        unlink(path.c_str());
         log_warning("association %lu from AE '%s' (%s): object %s refused "
                     "(0x%04X): %lld bytes exceed max_object_bytes %llu",
                     id_, calling_ae_.c_str(), peer_ip_.c_str(),
                     request.AffectedSOPInstanceUID, DCM_STATUS_TOO_LARGE,
                     static_cast<long long>(info.st_size),
                     static_cast<unsigned long long>(server_->max_object_bytes));
-        return sendSTOREResponse(context_id, request, DCM_STATUS_TOO_LARGE);
+        status = DCM_STATUS_TOO_LARGE;
+    } else {
+        dcm_received received;
+        received.spool_path = path.c_str();
+        received.calling_ae_title = calling_ae_.c_str();
+        received.called_ae_title = called_ae_.c_str();
+        received.peer_address = peer_ip_.c_str();
+        received.affected_sop_class_uid = request.AffectedSOPClassUID;
+        received.affected_sop_instance_uid = request.AffectedSOPInstanceUID;
+        received.association_id = id_;
+        status = server_->handler(server_->context, &received);
+        log_debug("association %lu: object %lu, SOP instance %s (class %s), "
+                  "status 0x%04X",
+                  id_, objects_, request.AffectedSOPInstanceUID,
+                  request.AffectedSOPClassUID, status);
     }
-    dcm_received received;
-    received.spool_path = path.c_str();
-    received.calling_ae_title = calling_ae_.c_str();
-    received.called_ae_title = called_ae_.c_str();
-    received.peer_address = peer_ip_.c_str();
-    received.affected_sop_class_uid = request.AffectedSOPClassUID;
-    received.affected_sop_instance_uid = request.AffectedSOPInstanceUID;
-    received.association_id = id_;
-    uint16_t status = server_->handler(server_->context, &received);
-    log_debug("association %lu: object %lu, SOP instance %s (class %s), "
-              "status 0x%04X",
-              id_, objects_, request.AffectedSOPInstanceUID,
-              request.AffectedSOPClassUID, status);
+    /* The object is done with: give its memory back now rather than when
+     * the next one arrives (a cine loop can be hundreds of MB). */
+    if (ftruncate(spool_fd_, 0) != 0)
+        log_warning("association %lu: cannot empty the memory file: %s", id_,
+                    strerror(errno));
     return sendSTOREResponse(context_id, request, status);
 }
 
@@ -548,9 +549,6 @@ mitilog_status dcm_server_create(const dcm_server_settings *settings,
     if (settings->port > 65535)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "port %u out of range", settings->port);
-    if (!dcm_is_set(settings->spool_directory))
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "spool directory not set");
     bool certificate = dcm_is_set(settings->tls_certificate_file);
     bool key = dcm_is_set(settings->tls_private_key_file);
     if (certificate != key ||
@@ -579,7 +577,6 @@ mitilog_status dcm_server_create(const dcm_server_settings *settings,
         server->max_pdu = pdu < ASC_MINIMUMPDUSIZE   ? ASC_MINIMUMPDUSIZE
                           : pdu > ASC_MAXIMUMPDUSIZE ? ASC_MAXIMUMPDUSIZE
                                                      : pdu;
-        server->spool_directory = settings->spool_directory;
         server->max_object_bytes = settings->max_object_bytes;
         server->tls = certificate;
         if (certificate) {
@@ -662,25 +659,27 @@ static mitilog_status dcm_tls_setup(dcm_server *server, mitilog_error *error)
     return status;
 }
 
-/* Removes spool files a killed process left (our own naming only): their
- * objects were never acknowledged, so the senders send them again. */
-static void dcm_clean_spool(const std::string &folder)
+/* Received objects go to memory files opened by their /proc/self/fd
+ * path (dcm_association_scp::open_spool): checks once, at start, that
+ * this works here (it needs /proc). */
+static mitilog_status dcm_check_memory_files(mitilog_error *error)
 {
-    DIR *directory = opendir(folder.c_str());
-    if (directory == NULL)
-        return;
-    unsigned long removed = 0;
-    while (struct dirent *entry = readdir(directory)) {
-        size_t length = strlen(entry->d_name);
-        if (strncmp(entry->d_name, "receive-", 8) == 0 && length > 12 &&
-            strcmp(entry->d_name + length - 4, ".dcm") == 0 &&
-            unlinkat(dirfd(directory), entry->d_name, 0) == 0)
-            removed++;
-    }
-    closedir(directory);
-    if (removed > 0)
-        log_info("spool: removed %lu unacknowledged object%s left by an earlier run", removed,
-                 removed == 1 ? "" : "s");
+    int fd = memfd_create("mitilog-check", MFD_CLOEXEC);
+    if (fd < 0)
+        return mitilog_error_set(error, MITILOG_ERROR_IO,
+                                 "memfd_create: %s", strerror(errno));
+    std::string path = "/proc/self/fd/" + std::to_string(fd);
+    FILE *file = fopen(path.c_str(), "wb");
+    int saved = errno;
+    if (file != NULL)
+        fclose(file);
+    close(fd);
+    if (file == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_IO,
+                                 "cannot open a memory file as %s (is /proc "
+                                 "mounted?): %s",
+                                 path.c_str(), strerror(saved));
+    return MITILOG_OK;
 }
 
 mitilog_status dcm_server_start(dcm_server *server, mitilog_error *error)
@@ -693,7 +692,9 @@ mitilog_status dcm_server_start(dcm_server *server, mitilog_error *error)
                                  "DICOM server already started");
     try {
         dcmDisableGethostbyaddr.set(OFTrue); /* no reverse DNS per peer */
-        dcm_clean_spool(server->spool_directory);
+        mitilog_status checked = dcm_check_memory_files(error);
+        if (checked != MITILOG_OK)
+            return checked;
         errno = 0;
         OFCondition condition = ASC_initializeNetwork(
             NET_ACCEPTOR, static_cast<int>(server->port),

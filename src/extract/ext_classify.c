@@ -14,18 +14,29 @@ const ext_exam_type *ext_classify_exam_type(const ext_site_rules *rules,
                                             const char *const *fields, const char **source)
 {
     *source = NULL;
-    for (size_t t = 0; t < rules->exam_type_count; t++) {
+    long cached = -1;
+    if (rules->classify_cache != NULL &&
+        ext_classify_cache_get(rules->classify_cache, fields, &cached, source))
+        return cached >= 0 && (size_t)cached < rules->exam_type_count
+                   ? &rules->exam_types[cached]
+                   : NULL;
+    const ext_exam_type *found = NULL;
+    for (size_t t = 0; t < rules->exam_type_count && found == NULL; t++) {
         const ext_exam_type *type = &rules->exam_types[t];
         for (size_t m = 0; m < type->match_count; m++) {
             const ext_match *match = &type->matches[m];
             const char *text = fields[match->field];
             if (present(text) && regexec(&match->regex, text, 0, NULL, 0) == 0) {
                 *source = ext_field_name(match->field);
-                return type;
+                found = type;
+                break;
             }
         }
     }
-    return NULL;
+    if (rules->classify_cache != NULL)
+        ext_classify_cache_put(rules->classify_cache, fields,
+                               found != NULL ? (long)(found - rules->exam_types) : -1, *source);
+    return found;
 }
 
 const char *ext_classify_shift(const ext_site_rules *rules, int minute)

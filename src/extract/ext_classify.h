@@ -43,10 +43,24 @@ void ext_classify(const ext_site_rules *rules, const ext_classify_input *input,
                   ext_classification *out);
 
 /* First exam type in file order with a matching rule; NULL if none.
- * *source gets the field name of the match. */
+ * *source gets the field name of the match. The answer for a set of field
+ * values is kept in rules->classify_cache (when there is one), so the
+ * images of a study, which share their values, run the regular
+ * expressions once. Thread-safe. */
 const ext_exam_type *ext_classify_exam_type(const ext_site_rules *rules,
                                             const char *const *fields,
                                             const char **source);
+
+/* The cache of ext_classify_exam_type (ext_classify_cache.c): made empty
+ * (NULL when out of memory: classification then runs uncached), freed
+ * with its keys. ext_site_rules_init/free call these. */
+struct ext_classify_cache *ext_classify_cache_create(void);
+void ext_classify_cache_free(struct ext_classify_cache *cache);
+/* Looks fields up: 1 and *type_index (-1: no type), *source when known. */
+int ext_classify_cache_get(struct ext_classify_cache *cache, const char *const *fields,
+                           long *type_index, const char **source);
+void ext_classify_cache_put(struct ext_classify_cache *cache, const char *const *fields,
+                            long type_index, const char *source);
 
 /* First shift (file order) holding minute (0..1439); NULL if none.
  * from <= minute < to, or wrapping midnight when to <= from. */

@@ -7,6 +7,7 @@
 #include <string.h>
 #include <strings.h>
 
+#include "extract/ext_classify.h"
 #include "extract/ext_modes.h"
 
 static const char *const field_names[EXT_FIELD_COUNT] = {
@@ -80,6 +81,7 @@ mitilog_status ext_site_rules_init(ext_site_rules *rules, mitilog_error *error)
      * definition, from memory]. The child/adult boundary at the 16th
      * birthday is common practice, no source (paediatric services vary
      * from 16 to 18). */
+    rules->classify_cache = ext_classify_cache_create();
     rules->neonate_max_days = 28;
     rules->child_max_years = 15;
     rules->presets[0].field = EXT_FIELD_PROTOCOL_NAME;
@@ -115,6 +117,7 @@ void ext_site_rules_free(ext_site_rules *rules)
         free(type->group);
     }
     free(rules->exam_types);
+    ext_classify_cache_free(rules->classify_cache);
     free_names(rules->rooms, rules->room_count);
     free_names(rules->rooms_by_ae, rules->room_by_ae_count);
     for (size_t i = 0; i < rules->shift_count; i++)

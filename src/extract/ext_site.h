@@ -124,6 +124,10 @@ typedef struct ext_site_rules {
     ext_sr_code *sr_codes;
     size_t sr_code_count;
     double gap_cap_seconds;     /* exam timeline; 0 = default 300 */
+    /* Exam types already decided for a set of field values
+     * (ext_classify.c); made by ext_site_rules_init, freed with the rules;
+     * NULL: no cache. The rules must not be changed once in use. */
+    struct ext_classify_cache *classify_cache;
 } ext_site_rules;
 
 /* Built-in defaults: no exam types, rooms or shifts; neonate <= 28 days,

@@ -22,9 +22,7 @@ enum { SR_DEPTH_LIMIT = 64, FOLDER_SIZE = 3072, PATH_SIZE = 4096 };
 struct ingest {
     store *store;
     retention retention;
-    char spool[FOLDER_SIZE];
     char quarantine[FOLDER_SIZE];
-    char headers[FOLDER_SIZE];
     char objects[FOLDER_SIZE];
     ext_site_rules rules;         /* the site file, read at start */
     dcm_private_request private_requests[EXT_SITE_PRESET_SOURCES_MAX];
@@ -62,15 +60,12 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out,
         free(created);
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "data_directory path too long");
     }
-    snprintf(created->spool, FOLDER_SIZE, "%s/spool", base);
     snprintf(created->quarantine, FOLDER_SIZE, "%s/quarantine", base);
-    snprintf(created->headers, FOLDER_SIZE, "%s/headers", base);
     snprintf(created->objects, FOLDER_SIZE, "%s/objects", base);
-    const char *folders[] = {created->spool, created->quarantine, created->headers,
-                             created->objects};
-    for (size_t i = 0; i < 4; i++) {
+    const char *folders[] = {created->quarantine, created->objects};
+    for (size_t i = 0; i < 2; i++) {
         mitilog_status status = files_make_directories(folders[i], error);
-        if (status == MITILOG_OK && i >= 2)
+        if (status == MITILOG_OK && i == 1 && created->retention == RETENTION_FULL)
             status = ingest_make_subfolders(folders[i], error);
         if (status != MITILOG_OK) {
             free(created);
@@ -188,8 +183,6 @@ static mitilog_status read_record(dcm_object *object, const ext_site_rules *rule
     return status;
 }
 
-const char *ingest_spool_directory(const ingest *ingest) { return ingest->spool; }
-
 /* folder/ab/<hash>.dcm for the hash of key. The 256 subfolders are made
  * by ingest_create (ingest_make_subfolders), not once per object. */
 static mitilog_status hashed_path(const char *folder, const char *key, char path[PATH_SIZE],
@@ -212,7 +205,7 @@ static void quarantine(ingest *ingest, const ingest_source *source, const char *
         char hex[HASH_HEX_SIZE];
         if (hash_file_hex(source->path, hex, &error) == MITILOG_OK) {
             snprintf(kept, sizeof kept, "%s/%s.dcm", ingest->quarantine, hex);
-            if (files_move(source->path, kept, &error) != MITILOG_OK) {
+            if (files_copy(source->path, kept, &error) != MITILOG_OK) {
                 log_error("quarantine failed: %s", error.text);
                 kept[0] = '\0';
             }
@@ -238,28 +231,22 @@ static void quarantine(ingest *ingest, const ingest_source *source, const char *
         log_warning("import: %s rejected: %s", source->path, reason);
 }
 
-/* Writes the copy the retention setting asks for. */
+/* Keeps what the retention setting asks for: the whole object as a file
+ * under objects/ (full), or its header in *header_bytes (header), for
+ * the store to commit with the instance's row. */
 static mitilog_status retain(ingest *ingest, dcm_object *object, const ingest_source *source,
-                             const char *sop_instance_uid, mitilog_error *error)
+                             const char *sop_instance_uid, unsigned char **header_bytes,
+                             size_t *header_size, mitilog_error *error)
 {
+    if (ingest->retention == RETENTION_HEADER)
+        return dcm_object_header_bytes(object, header_bytes, header_size, error);
     if (ingest->retention == RETENTION_NONE)
         return MITILOG_OK;
     char path[PATH_SIZE];
-    const char *folder = ingest->retention == RETENTION_FULL ? ingest->objects : ingest->headers;
-    mitilog_status status = hashed_path(folder, sop_instance_uid, path, error);
+    mitilog_status status = hashed_path(ingest->objects, sop_instance_uid, path, error);
     if (status != MITILOG_OK)
         return status;
-    if (ingest->retention == RETENTION_FULL)
-        return source->is_spool ? files_move(source->path, path, error)
-                                : files_copy(source->path, path, error);
-    char temporary[PATH_SIZE + 8];
-    snprintf(temporary, sizeof temporary, "%s.part", path);
-    status = dcm_object_save_header(object, temporary, error);
-    if (status == MITILOG_OK && rename(temporary, path) != 0)
-        status = mitilog_error_set(error, MITILOG_ERROR_IO, "cannot rename %s", temporary);
-    if (status != MITILOG_OK)
-        unlink(temporary);
-    return status;
+    return files_copy(source->path, path, error);
 }
 
 static ingest_outcome reject(ingest *ingest, const ingest_source *source, mitilog_error *reason)
@@ -311,11 +298,18 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
     record.source_path = source->is_spool ? NULL : strdup(source->path);
 
     store_put_outcome put = STORE_PUT_INSERTED;
+    unsigned char *header_bytes = NULL;
+    size_t header_size = 0;
     if (record.calling_ae_title == NULL) {
         mitilog_error_set(reason, MITILOG_ERROR_MEMORY, "out of memory");
-    } else if (retain(ingest, object, source, record.sop_instance_uid, reason) != MITILOG_OK) {
+    } else if (retain(ingest, object, source, record.sop_instance_uid, &header_bytes,
+                      &header_size, reason) != MITILOG_OK) {
         log_error("object %s: cannot keep its copy: %s", record.sop_instance_uid, reason->text);
-    } else if (store_put_instance(ingest->store, &record, &put, reason) != MITILOG_OK) {
+    } else if (store_put_instance(ingest->store, &record,
+                                  header_bytes != NULL
+                                      ? &(store_bytes){header_bytes, header_size}
+                                      : NULL,
+                                  &put, reason) != MITILOG_OK) {
         log_error("object %s not stored: %s", record.sop_instance_uid, reason->text);
     } else {
         outcome = put == STORE_PUT_REPLACED ? INGEST_OUTCOME_REPLACED : INGEST_OUTCOME_STORED;
@@ -323,7 +317,7 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
         log_debug("object %s stored (%s)", record.sop_instance_uid,
                   put == STORE_PUT_REPLACED ? "replaced" : "new");
     }
-    /* A spool file left here is the receiver's: it reuses or deletes it. */
+    free(header_bytes);
     dcm_object_free(object);
     dcm_facts_free(&facts);
     ext_record_free(&record);

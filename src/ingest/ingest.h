@@ -32,7 +32,7 @@ typedef enum ingest_outcome {
 
 typedef struct ingest_source {
     const char *path;
-    int is_spool;                 /* 1: ours to move or delete           */
+    int is_spool;                 /* 1: the receiver's memory file       */
     const char *calling_ae_title; /* "" for imports                      */
     const char *peer_address;     /* "" for imports                      */
     const char *announced_sop_class_uid;    /* C-STORE command, or ""    */
@@ -44,8 +44,6 @@ typedef struct ingest_source {
 mitilog_status ingest_create(const config *config, store *store, ingest **out,
                              mitilog_error *error);
 void ingest_free(ingest *ingest);
-
-const char *ingest_spool_directory(const ingest *ingest);
 
 /* Runs one object through the pipeline. reason receives the cause of a
  * rejection or failure (it is also logged). */

@@ -56,13 +56,28 @@ typedef enum store_put_outcome {
     STORE_PUT_REPLACED        /* same SOP Instance UID was stored before */
 } store_put_outcome;
 
-/* Writes the instance row and its indices in one transaction; returns
- * after the commit. Re-sending a SOP Instance UID replaces its row.
- * MITILOG_ERROR_DATABASE when the database cannot be written (locked,
- * read-only, full): nothing of the record is kept. */
+/* Bytes borrowed for the duration of a call. */
+typedef struct store_bytes {
+    const void *data;
+    size_t size;
+} store_bytes;
+
+/* Writes the instance row, its indices and, when header is not NULL, its
+ * header copy (the Part 10 bytes of dcm_object_header_bytes) in one
+ * transaction; returns after the commit. Re-sending a SOP Instance UID
+ * replaces its row and its copy (a re-send without a header removes the
+ * older copy). MITILOG_ERROR_DATABASE when the database cannot be written
+ * (locked, read-only, full): nothing of the record is kept. */
 mitilog_status store_put_instance(store *store, const ext_record *record,
+                                  const store_bytes *header,
                                   store_put_outcome *outcome,
                                   mitilog_error *error);
+
+/* The header copy of an instance, malloc'd into *bytes (the caller frees
+ * it); *bytes stays NULL when the instance or its copy is not stored. */
+mitilog_status store_get_header(store *store, const char *sop_instance_uid,
+                                unsigned char **bytes, size_t *size,
+                                mitilog_error *error);
 
 /* A rejected object: the received bytes were moved to quarantine_path. */
 typedef struct store_rejection {

@@ -103,7 +103,7 @@ static int store_evaluation_hash(const store_evaluation *e, char out[HASH_HEX_SI
     return rc;
 }
 
-/* Prepared statements of one call, finalized together. */
+/* The cached statements of one call, released together. */
 enum { STORE_FINDINGS_STATEMENTS = 12 };
 typedef struct store_statements {
     sqlite3_stmt *list[STORE_FINDINGS_STATEMENTS];
@@ -115,7 +115,8 @@ static sqlite3_stmt *store_statement(store *st, store_statements *set, const cha
 {
     sqlite3_stmt *statement = NULL;
     if (set->count == STORE_FINDINGS_STATEMENTS ||
-        store_prepare(st->writer, name, &statement, error) != MITILOG_OK)
+        store_cached_statement(&st->writer_cache, st->writer, name, &statement, error) !=
+            MITILOG_OK)
         return NULL;
     set->list[set->count++] = statement;
     return statement;
@@ -124,7 +125,7 @@ static sqlite3_stmt *store_statement(store *st, store_statements *set, const cha
 static void store_statements_finalize(store_statements *set)
 {
     for (size_t i = 0; i < set->count; i++)
-        sqlite3_finalize(set->list[i]);
+        store_release(set->list[i]);
     set->count = 0;
 }
 

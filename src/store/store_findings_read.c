@@ -63,7 +63,7 @@ mitilog_status store_load_study_context(store *st, const char *study_instance_ui
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "study context: no study");
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_prepare(st->reader, "queries/study_context.sql", &statement,
+    mitilog_status status = store_cached_statement(&st->reader_cache, st->reader, "queries/study_context.sql", &statement,
                                           error);
     if (status == MITILOG_OK) {
         int rc = sqlite3_bind_text(statement, 1, study_instance_uid, -1, SQLITE_TRANSIENT);
@@ -85,7 +85,7 @@ mitilog_status store_load_study_context(store *st, const char *study_instance_ui
             status = store_sql_error(error, st->reader, "study context");
         }
     }
-    sqlite3_finalize(statement);
+    store_release(statement);
     pthread_mutex_unlock(&st->reader_lock);
     if (status != MITILOG_OK)
         store_study_context_free(context);
@@ -111,7 +111,7 @@ mitilog_status store_list(store *st, store_list_kind kind, const char *a, const 
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_list: bad arguments");
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_prepare(st->reader, files[kind], &statement, error);
+    mitilog_status status = store_cached_statement(&st->reader_cache, st->reader, files[kind], &statement, error);
     size_t capacity = 0;
     if (status == MITILOG_OK) {
         int rc;
@@ -151,7 +151,7 @@ mitilog_status store_list(store *st, store_list_kind kind, const char *a, const 
                          ? mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory")
                          : store_sql_error(error, st->reader, files[kind]);
     }
-    sqlite3_finalize(statement);
+    store_release(statement);
     pthread_mutex_unlock(&st->reader_lock);
     if (status != MITILOG_OK) {
         store_texts_free(*texts, *count);
@@ -183,7 +183,7 @@ mitilog_status store_load_day_instances(store *st, const char *day,
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "day instances: no day");
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_prepare(st->reader, "queries/device_instances.sql",
+    mitilog_status status = store_cached_statement(&st->reader_cache, st->reader, "queries/device_instances.sql",
                                           &statement, error);
     size_t capacity = 0;
     if (status == MITILOG_OK) {
@@ -219,7 +219,7 @@ mitilog_status store_load_day_instances(store *st, const char *day,
                          ? mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory")
                          : store_sql_error(error, st->reader, "day instances");
     }
-    sqlite3_finalize(statement);
+    store_release(statement);
     pthread_mutex_unlock(&st->reader_lock);
     if (status != MITILOG_OK) {
         store_day_instances_free(*instances, *count);
@@ -260,7 +260,7 @@ mitilog_status store_findings_json(store *st, const store_finding_filter *filter
                                                             : filter->limit;
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_prepare(st->reader, "queries/findings.sql", &statement, error);
+    mitilog_status status = store_cached_statement(&st->reader_cache, st->reader, "queries/findings.sql", &statement, error);
     if (status == MITILOG_OK) {
         const char *texts[] = {filter->from, filter->to, filter->severity, filter->rule,
                                filter->room, filter->preset, filter->shift};
@@ -273,7 +273,7 @@ mitilog_status store_findings_json(store *st, const store_finding_filter *filter
             rc = sqlite3_bind_int64(statement, 9, limit);
         status = store_json_query(st, statement, rc, "query findings", json, error);
     }
-    sqlite3_finalize(statement);
+    store_release(statement);
     pthread_mutex_unlock(&st->reader_lock);
     return status;
 }
@@ -288,13 +288,13 @@ mitilog_status store_policy_json(store *st, char **json, mitilog_error *error)
     sqlite3_stmt *statement = NULL;
     if (st->active_policy[0] == '\0')
         status = mitilog_error_set(error, MITILOG_ERROR_NOT_FOUND, "no policy is loaded");
-    else if ((status = store_prepare(st->reader, "queries/policy_json.sql", &statement,
+    else if ((status = store_cached_statement(&st->reader_cache, st->reader, "queries/policy_json.sql", &statement,
                                      error)) == MITILOG_OK)
         status = store_json_query(st, statement,
                                   sqlite3_bind_text(statement, 1, st->active_policy, -1,
                                                     SQLITE_TRANSIENT),
                                   "query policy", json, error);
-    sqlite3_finalize(statement);
+    store_release(statement);
     pthread_mutex_unlock(&st->reader_lock);
     return status;
 }

@@ -20,6 +20,7 @@
  * stack while the caller waits. */
 typedef struct store_request {
     const ext_record *record;           /* exactly one of record ...     */
+    const store_bytes *header;          /* record's header copy, or NULL */
     const store_rejection *rejection;   /* ... rejection ...             */
     const store_exam *exam;             /* ... exam ...                  */
     const store_evaluation *evaluation; /* ... evaluation ...            */
@@ -51,6 +52,8 @@ typedef struct store_write_statements {
     sqlite3_stmt *delete_mode_maxima;
     sqlite3_stmt *insert_timeline;
     sqlite3_stmt *insert_mode_maximum;
+    sqlite3_stmt *upsert_header;
+    sqlite3_stmt *delete_header;
 } store_write_statements;
 
 /* Statements of the read connection; used under reader_lock. */
@@ -64,8 +67,18 @@ typedef struct store_read_statements {
     sqlite3_stmt *study_detail;
 } store_read_statements;
 
+/* Statements prepared once per connection and kept for the store's life
+ * (store_cached_statement); used under the lock of their connection. */
+enum { STORE_CACHE_MAX = 48 };
+typedef struct store_cache {
+    const char *names[STORE_CACHE_MAX];
+    sqlite3_stmt *statements[STORE_CACHE_MAX];
+    size_t count;
+} store_cache;
+
 struct store {
     sqlite3 *writer;
+    store_cache writer_cache;           /* used by the batch leader only */
     store_write_statements write;
     pthread_mutex_t queue_lock;
     pthread_cond_t queue_changed;       /* a batch finished              */
@@ -75,6 +88,7 @@ struct store {
 
     sqlite3 *reader;
     store_read_statements read;
+    store_cache reader_cache;           /* under reader_lock             */
     pthread_mutex_t reader_lock;
 
     int schema_version;
@@ -86,6 +100,18 @@ mitilog_status store_sql_error(mitilog_error *error, sqlite3 *db,
                                const char *what);
 mitilog_status store_prepare(sqlite3 *db, const char *name,
                              sqlite3_stmt **statement, mitilog_error *error);
+/* The statement of built-in SQL file name on db, prepared on its first use
+ * and kept in cache (one cache per connection, used under that
+ * connection's lock): parsing the SQL again for every call cost more than
+ * running it. Give it back with store_release(), never finalize it;
+ * store_cache_finalize() does that at close. */
+mitilog_status store_cached_statement(store_cache *cache, sqlite3 *db,
+                                      const char *name,
+                                      sqlite3_stmt **statement,
+                                      mitilog_error *error);
+/* Resets a cached statement and clears its bindings (NULL: nothing). */
+void store_release(sqlite3_stmt *statement);
+void store_cache_finalize(store_cache *cache);
 mitilog_status store_exec_file(sqlite3 *db, const char *name,
                                mitilog_error *error);
 mitilog_status store_exec_text(sqlite3 *db, const char *name,
@@ -102,9 +128,11 @@ void store_write_finalize(store *store);
 /* Blocks until no batch is being written and the queue is empty. */
 void store_write_drain(store *store);
 
-/* store_write_context.c: an instance's modes and SR values, after its
- * row (instance_id) was written; inside the record's savepoint. */
+/* store_write_context.c: an instance's modes, SR values and header copy
+ * (header may be NULL), after its row (instance_id) was written; inside
+ * the record's savepoint. */
 mitilog_status store_write_context(store *store, const ext_record *record,
+                                   const store_bytes *header,
                                    sqlite3_int64 instance_id,
                                    mitilog_error *error);
 /* store_write_exam.c: one exam with its timeline and mode maxima. */

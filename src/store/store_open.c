@@ -214,8 +214,10 @@ void store_close(store *st)
         return;
     store_write_drain(st);
     store_read_finalize(st);
+    store_cache_finalize(&st->reader_cache);
     sqlite3_close(st->reader);
     store_write_finalize(st);
+    store_cache_finalize(&st->writer_cache);
     if (st->writer != NULL) {
         mitilog_error error;
         if (store_exec_file(st->writer, "queries/checkpoint.sql",

@@ -51,6 +51,43 @@ mitilog_status store_prepare(sqlite3 *db, const char *name,
     return MITILOG_OK;
 }
 
+mitilog_status store_cached_statement(store_cache *cache, sqlite3 *db,
+                                      const char *name,
+                                      sqlite3_stmt **statement,
+                                      mitilog_error *error)
+{
+    for (size_t i = 0; i < cache->count; i++) {
+        if (cache->names[i] == name || strcmp(cache->names[i], name) == 0) {
+            *statement = cache->statements[i];
+            return MITILOG_OK;
+        }
+    }
+    if (cache->count == STORE_CACHE_MAX)
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
+                                 "%s: statement cache full", name);
+    mitilog_status status = store_prepare(db, name, statement, error);
+    if (status != MITILOG_OK)
+        return status;
+    cache->names[cache->count] = name;
+    cache->statements[cache->count++] = *statement;
+    return MITILOG_OK;
+}
+
+void store_release(sqlite3_stmt *statement)
+{
+    if (statement == NULL)
+        return;
+    sqlite3_reset(statement);
+    sqlite3_clear_bindings(statement);
+}
+
+void store_cache_finalize(store_cache *cache)
+{
+    for (size_t i = 0; i < cache->count; i++)
+        sqlite3_finalize(cache->statements[i]);
+    memset(cache, 0, sizeof *cache);
+}
+
 mitilog_status store_exec_text(sqlite3 *db, const char *name,
                                const char *text, mitilog_error *error)
 {

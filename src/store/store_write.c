@@ -366,8 +366,8 @@ static mitilog_status store_write_instance(store *st,
                                        record->sop_instance_uid,
                                        sqlite3_errmsg(st->writer));
         else
-            status = store_write_context(st, record, instance_id,
-                                         &request->error);
+            status = store_write_context(st, record, request->header,
+                                         instance_id, &request->error);
     }
     sqlite3_reset(statement);
     sqlite3_clear_bindings(statement);
@@ -550,6 +550,7 @@ static mitilog_status store_submit(store *st, store_request *request,
 }
 
 mitilog_status store_put_instance(store *st, const ext_record *record,
+                                  const store_bytes *header,
                                   store_put_outcome *outcome,
                                   mitilog_error *error)
 {
@@ -558,7 +559,11 @@ mitilog_status store_put_instance(store *st, const ext_record *record,
     mitilog_status status = store_check_record(record, error);
     if (status != MITILOG_OK)
         return status;
-    store_request request = {.record = record};
+    if (header != NULL && (header->data == NULL || header->size == 0))
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "%s: empty header copy",
+                                 record->sop_instance_uid);
+    store_request request = {.record = record, .header = header};
     status = store_submit(st, &request, error);
     if (status == MITILOG_OK && outcome != NULL)
         *outcome = request.outcome;
@@ -657,6 +662,8 @@ mitilog_status store_write_prepare(store *st, mitilog_error *error)
         {"queries/exam_timeline_insert.sql", &st->write.insert_timeline},
         {"queries/exam_mode_maximum_insert.sql",
          &st->write.insert_mode_maximum},
+        {"queries/instance_header_upsert.sql", &st->write.upsert_header},
+        {"queries/instance_header_delete.sql", &st->write.delete_header},
     };
     for (size_t i = 0; i < sizeof files / sizeof files[0]; i++) {
         mitilog_status status = store_prepare(st->writer, files[i].name,
@@ -677,7 +684,8 @@ void store_write_finalize(store *st)
         &st->write.insert_mode, &st->write.delete_sr_values,
         &st->write.insert_sr_value, &st->write.upsert_exam,
         &st->write.delete_timeline, &st->write.delete_mode_maxima,
-        &st->write.insert_timeline, &st->write.insert_mode_maximum};
+        &st->write.insert_timeline, &st->write.insert_mode_maximum,
+        &st->write.upsert_header, &st->write.delete_header};
     for (size_t i = 0; i < sizeof statements / sizeof statements[0]; i++) {
         sqlite3_finalize(*statements[i]);
         *statements[i] = NULL;

@@ -1,7 +1,8 @@
 /*
  * store_write_context.c - the rows that go with an instance row: its
- * modes (one per mode and source, instance_modes) and its SR values
- * (sr_values), rewritten whenever the instance is (re)stored. Runs on the
+ * modes (one per mode and source, instance_modes), its SR values
+ * (sr_values) and its header copy (instance_headers), rewritten whenever
+ * the instance is (re)stored. Runs on the
  * writer connection inside the record's savepoint (store_write.c).
  */
 #include "store/store_internal.h"
@@ -86,7 +87,28 @@ static int store_write_sr_value(store *st, sqlite3_int64 instance_id,
     return rc;
 }
 
+/* The header copy, or no copy: an older one is removed. */
+static int store_write_header(store *st, const store_bytes *header,
+                              sqlite3_int64 instance_id)
+{
+    sqlite3_stmt *statement =
+        header != NULL ? st->write.upsert_header : st->write.delete_header;
+    int rc = store_bind_int_named(statement, ":instance_id", instance_id);
+    if (rc == SQLITE_OK && header != NULL) {
+        int index = sqlite3_bind_parameter_index(statement, ":bytes");
+        rc = index == 0 ? SQLITE_RANGE
+                        : sqlite3_bind_blob64(statement, index, header->data,
+                                              header->size, SQLITE_STATIC);
+    }
+    if (rc == SQLITE_OK)
+        rc = store_step_done(statement) == SQLITE_DONE ? SQLITE_OK
+                                                       : SQLITE_ERROR;
+    sqlite3_clear_bindings(statement);
+    return rc;
+}
+
 mitilog_status store_write_context(store *st, const ext_record *record,
+                                   const store_bytes *header,
                                    sqlite3_int64 instance_id,
                                    mitilog_error *error)
 {
@@ -111,6 +133,9 @@ mitilog_status store_write_context(store *st, const ext_record *record,
                                    "sr_container");
     if (rc != SQLITE_OK)
         return store_context_error(st, error, record, "store modes", rc);
+    rc = store_write_header(st, header, instance_id);
+    if (rc != SQLITE_OK)
+        return store_context_error(st, error, record, "store header copy", rc);
     for (size_t i = 0; record->sr != NULL && i < record->sr->value_count; i++) {
         const ext_sr_value *value = &record->sr->values[i];
         if ((value->raw != NULL && !store_is_text_utf8(value->raw)) ||

@@ -144,7 +144,7 @@ def test_sigkill_at_random_moments_loses_nothing_acknowledged(daemon_factory, tm
     assert all(s.startswith("Refused: OutOfResources") for _, s in other_statuses), other_statuses[:5]
     counts = uid_counts(daemon)
     expected = {rows[f]["sop_instance_uid"] for f in acknowledged}
-    # the issue: every acknowledged object in the database exactly once
+    # every acknowledged object in the database exactly once
     assert {u: counts.get(u, 0) for u in expected if counts.get(u, 0) != 1} == {}
     # SQLite docs (pragma.html#pragma_integrity_check): "ok" when sound
     assert integrity(daemon) == [("ok",)]
@@ -155,12 +155,8 @@ def test_sigkill_at_random_moments_loses_nothing_acknowledged(daemon_factory, tm
     counts = uid_counts(daemon)
     assert len(counts) == len({rows[f]["sop_instance_uid"] for f in files})
     assert set(counts.values()) == {1}
-    spool = os.path.join(daemon.data_directory, "spool")
     daemon.stop()
     assert_studies_consistent(daemon)
-    # the issue (report): what a killed association leaves in the spool
-    leftovers = os.listdir(spool) if os.path.isdir(spool) else []
-    print("spool files left by %d kills: %d" % (kills, len(leftovers)))
 
 
 def test_many_associations_with_overlapping_studies(daemon_factory, tmp_path):

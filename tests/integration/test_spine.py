@@ -422,28 +422,32 @@ def test_studies_summary(spine):
     assert not [s for s in earlier if s["study_instance_uid"] in refs]
 
 
-def test_header_retention(spine):
-    # retention = header: a header copy per instance, named by a hash,
-    # without pixel data (reference: pydicom reads the copy)
-    headers = [p for p in glob.glob(os.path.join(spine.data_directory,
-                                                 "headers", "**"),
-                                    recursive=True) if os.path.isfile(p)]
-    found = {}
-    for path in headers:
-        ds = pydicom.dcmread(path)
-        found[str(ds.SOPInstanceUID)] = (path, ds)
+def test_header_retention(spine, tmp_path):
+    # retention = header: a header copy per instance, kept in the database
+    # with its row and written out by `mitilog header`, without pixel data
+    # (reference: pydicom reads the copy as a DICOM file)
     problems = []
+    with spine.db() as db:
+        kept = db.execute("SELECT count(*) FROM instance_headers").fetchone()[0]
+    assert kept == len({e["sop_instance_uid"] for e in spine.entries})
     for entry in spine.entries:
         uid = entry["sop_instance_uid"]
-        if uid not in found:
-            problems.append("no header copy for %s" % entry["name"])
+        path = str(tmp_path / ("%s.dcm" % entry["name"]))
+        result = run([BINARY, "header", "--config", spine.config, "--output", path, uid])
+        if result.returncode != 0:
+            problems.append("no header copy for %s: %s" % (entry["name"], result.stderr))
             continue
-        path, ds = found[uid]
-        if uid in os.path.relpath(path, spine.data_directory):
-            problems.append("%s: file name shows the UID" % path)
+        ds = pydicom.dcmread(path)
+        if str(ds.SOPInstanceUID) != uid or str(ds.file_meta.MediaStorageSOPInstanceUID) != uid:
+            problems.append("%s: copy of %s" % (entry["name"], ds.SOPInstanceUID))
         if "PixelData" in ds or (0x7FE0, 0x0010) in ds:
             problems.append("%s: header copy keeps PixelData" % entry["name"])
+        original = pydicom.dcmread(entry["path"], stop_before_pixels=True)
+        if str(ds.get("StudyDescription", "")) != str(original.get("StudyDescription", "")):
+            problems.append("%s: study description differs" % entry["name"])
     assert not problems, "\n".join(problems)
+    missing = run([BINARY, "header", "--config", spine.config, "2.25.404"])
+    assert missing.returncode == 1 and "no header copy" in missing.stderr
 
 
 def test_resend_replaces(spine):

@@ -271,10 +271,40 @@ static void site_file_errors(void **state)
     unlink(path);
 }
 
+/* The exam-type cache changes no answer: every field value of the
+ * shipped rules' test table, in every field, classified twice with the
+ * cache and once without it (the reference: the regular expressions run
+ * every time), gives the same type and the same source. */
+static void cache_changes_no_answer(void **state)
+{
+    ext_site_rules *rules = *state;
+    const char *texts[] = {"US OB 2ND TRI", "OB 2nd/3rd Tri", "OBSTETRICAL", "TCD",
+                           "LN:24558-9 US Abdomen", "US THYROID", "QA phantom", "",
+                           "Échographie obstétricale T3", "CEUS liver"};
+    struct ext_classify_cache *cache = rules->classify_cache;
+    assert_non_null(cache);
+    for (int round = 0; round < 2; round++) {
+        for (size_t t = 0; t < sizeof texts / sizeof texts[0]; t++) {
+            for (int f = 0; f < EXT_FIELD_COUNT; f++) {
+                const char *cached_source = NULL, *reference_source = NULL;
+                rules->classify_cache = cache;
+                const char *cached = classify_field(rules, (ext_field)f, texts[t], &cached_source);
+                rules->classify_cache = NULL;
+                const char *reference =
+                    classify_field(rules, (ext_field)f, texts[t], &reference_source);
+                rules->classify_cache = cache;
+                assert_string_equal(cached, reference);
+                assert_true(cached_source == reference_source);
+            }
+        }
+    }
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(descriptions),
+        cmocka_unit_test(cache_changes_no_answer),
         cmocka_unit_test(context_and_provenance),
         cmocka_unit_test(shift_boundaries),
         cmocka_unit_test(shift_across_dst),

@@ -83,7 +83,7 @@ static void put_instance(store *st, const char *uid, const char *study,
     record.indices[EXT_INDEX_MI] = (ext_number){EXT_VALUE_OK, mi};
     record.index_raw[EXT_INDEX_MI] = strdup("0.9");
     mitilog_error error = {{0}};
-    if (store_put_instance(st, &record, NULL, &error) != MITILOG_OK)
+    if (store_put_instance(st, &record, NULL, NULL, &error) != MITILOG_OK)
         fail_msg("put: %s", error.text);
     free(record.sop_class_uid);
     free(record.sop_instance_uid);
@@ -303,7 +303,7 @@ static void health(void **state)
     response r = get_json(f, "/healthz", 200);
     assert_json(r.body, "$.status", "ok");
     assert_json(r.body, "$.database", "ok");
-    assert_json(r.body, "$.schema_version", "3"); /* migrations 001 to 003 */
+    assert_json(r.body, "$.schema_version", "4"); /* migrations 001 to 004 */
     assert_json(r.body, "$.instances", "2");
     assert_json(r.body, "$.studies", "1");
     assert_json(r.body, "$.rejections", "0");

@@ -257,7 +257,7 @@ static void durability_setting(void **state)
 static void open_creates_schema(void **state)
 {
     fixture *f = *state;
-    assert_int_equal(migration_count(), 3); /* sql/migrations/001..003 */
+    assert_int_equal(migration_count(), 4); /* sql/migrations/001..004 */
     assert_int_equal(store_schema_version(f->store), migration_count());
     assert_int_equal(query_int(f->path, "PRAGMA user_version"),
                      migration_count());
@@ -293,7 +293,7 @@ static void put_and_read_back(void **state)
 
     store_put_outcome outcome = STORE_PUT_REPLACED;
     mitilog_error error = {{0}};
-    if (store_put_instance(f->store, &record, &outcome, &error) != MITILOG_OK)
+    if (store_put_instance(f->store, &record, NULL, &outcome, &error) != MITILOG_OK)
         fail_msg("put: %s", error.text);
     assert_int_equal(outcome, STORE_PUT_INSERTED);
 
@@ -342,6 +342,49 @@ static void put_and_read_back(void **state)
     free_record(&record);
 }
 
+/* The header copy is committed with its row and read back byte for byte;
+ * a re-send replaces it, a re-send without one removes it (the rows'
+ * reference: the bytes put, compared with memcmp). */
+static void header_copy_follows_its_row(void **state)
+{
+    fixture *f = *state;
+    ext_record record;
+    make_record(&record, "1.2.3.8.1", "1.2.3.8", "2024-03-01T10:00:00",
+                "2024-03-01T10:00:05.000Z");
+    const unsigned char first[] = {'D', 'I', 'C', 'M', 0, 1, 2, 0xFF};
+    const unsigned char second[] = {'D', 'I', 'C', 'M', 9, 9};
+    mitilog_error error = {{0}};
+    unsigned char *bytes = NULL;
+    size_t size = 0;
+    assert_int_equal(store_put_instance(f->store, &record, &(store_bytes){first, sizeof first},
+                                        NULL, &error),
+                     MITILOG_OK);
+    assert_int_equal(store_get_header(f->store, "1.2.3.8.1", &bytes, &size, &error), MITILOG_OK);
+    assert_int_equal(size, sizeof first);
+    assert_memory_equal(bytes, first, sizeof first);
+    free(bytes);
+
+    assert_int_equal(store_put_instance(f->store, &record, &(store_bytes){second, sizeof second},
+                                        NULL, &error),
+                     MITILOG_OK);
+    assert_int_equal(store_get_header(f->store, "1.2.3.8.1", &bytes, &size, &error), MITILOG_OK);
+    assert_int_equal(size, sizeof second);
+    assert_memory_equal(bytes, second, sizeof second);
+    free(bytes);
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM instance_headers"), 1);
+
+    assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error), MITILOG_OK);
+    assert_int_equal(store_get_header(f->store, "1.2.3.8.1", &bytes, &size, &error), MITILOG_OK);
+    assert_null(bytes);
+    assert_int_equal(store_get_header(f->store, "1.2.3.404", &bytes, &size, &error), MITILOG_OK);
+    assert_null(bytes);
+    /* An empty copy is refused before anything is written. */
+    assert_int_equal(store_put_instance(f->store, &record, &(store_bytes){first, 0}, NULL,
+                                        &error),
+                     MITILOG_ERROR_INVALID);
+    free_record(&record);
+}
+
 static void resend_replaces(void **state)
 {
     fixture *f = *state;
@@ -351,14 +394,14 @@ static void resend_replaces(void **state)
     set_index(&record, EXT_INDEX_MI, ok_number(1.0), "1.0");
     store_put_outcome outcome;
     mitilog_error error = {{0}};
-    assert_int_equal(store_put_instance(f->store, &record, &outcome, &error),
+    assert_int_equal(store_put_instance(f->store, &record, NULL, &outcome, &error),
                      MITILOG_OK);
     assert_int_equal(outcome, STORE_PUT_INSERTED);
 
     set_index(&record, EXT_INDEX_MI, ok_number(1.2), "1.2");
     snprintf(record.received_at, sizeof record.received_at,
              "2024-03-01T11:00:00.000Z");
-    assert_int_equal(store_put_instance(f->store, &record, &outcome, &error),
+    assert_int_equal(store_put_instance(f->store, &record, NULL, &outcome, &error),
                      MITILOG_OK);
     assert_int_equal(outcome, STORE_PUT_REPLACED);
 
@@ -397,7 +440,7 @@ static void *put_worker(void *argument)
         set_index(&record, EXT_INDEX_MI, ok_number(0.01 * i), "x");
         store_put_outcome outcome;
         mitilog_error error;
-        if (store_put_instance(w->store, &record, &outcome, &error) !=
+        if (store_put_instance(w->store, &record, NULL, &outcome, &error) !=
             MITILOG_OK)
             w->failed++;
         else if (outcome == STORE_PUT_INSERTED)
@@ -442,7 +485,7 @@ static void reopen_keeps_schema_and_rows(void **state)
     ext_record record;
     make_record(&record, "1.2.3.7.1", "1.2.3.7", NULL, NULL);
     mitilog_error error = {{0}};
-    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+    assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error),
                      MITILOG_OK);
     store_close(f->store);
     f->store = NULL;
@@ -481,7 +524,7 @@ static void read_only_database_fails_cleanly(void **state)
     sqlite3 *writer = store_writer_connection(f->store);
     assert_int_equal(sqlite3_exec(writer, "PRAGMA query_only = ON", NULL,
                                   NULL, NULL), SQLITE_OK);
-    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+    assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error),
                      MITILOG_ERROR_DATABASE);
     assert_non_null(strstr(error.text, "readonly"));
     store_rejection rejection = {"", "", "", "", "", "", "", "test"};
@@ -490,7 +533,7 @@ static void read_only_database_fails_cleanly(void **state)
     /* Writable again: the connection recovers. */
     assert_int_equal(sqlite3_exec(writer, "PRAGMA query_only = OFF", NULL,
                                   NULL, NULL), SQLITE_OK);
-    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+    assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error),
                      MITILOG_OK);
     assert_int_equal(query_int(f->path, "SELECT count(*) FROM instances"), 1);
 
@@ -501,7 +544,7 @@ static void read_only_database_fails_cleanly(void **state)
         store *read_only = NULL;
         mitilog_status status = store_open(f->path, 100, &read_only, &error);
         if (status == MITILOG_OK) {
-            assert_int_equal(store_put_instance(read_only, &record, NULL,
+            assert_int_equal(store_put_instance(read_only, &record, NULL, NULL,
                                                 &error),
                              MITILOG_ERROR_DATABASE);
             store_close(read_only);
@@ -536,7 +579,7 @@ static void full_database_fails_and_recovers(void **state)
         snprintf(uid, sizeof uid, "1.2.3.6.%d", i + 1);
         free(record.sop_instance_uid);
         record.sop_instance_uid = strdup(uid);
-        mitilog_status status = store_put_instance(f->store, &record, NULL,
+        mitilog_status status = store_put_instance(f->store, &record, NULL, NULL,
                                                    &error);
         if (status != MITILOG_OK) {
             assert_int_equal(status, MITILOG_ERROR_DATABASE);
@@ -553,7 +596,7 @@ static void full_database_fails_and_recovers(void **state)
     /* Space again: the same record goes in. */
     assert_int_equal(sqlite3_exec(writer, "PRAGMA max_page_count = 1000000",
                                   NULL, NULL, NULL), SQLITE_OK);
-    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+    assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error),
                      MITILOG_OK);
     free_record(&record);
 }
@@ -570,7 +613,7 @@ static void *batch_put_worker(void *argument)
     batch_put *put = argument;
     ext_record record;
     make_record(&record, put->uid, "1.2.3.5", NULL, NULL);
-    put->status = store_put_instance(put->store, &record, NULL, &put->error);
+    put->status = store_put_instance(put->store, &record, NULL, NULL, &put->error);
     free_record(&record);
     return NULL;
 }
@@ -626,31 +669,31 @@ static void bad_input_is_refused(void **state)
     assert_int_equal(store_open("/nonexistent-dir/x/y.db", 0, &none, &error),
                      MITILOG_ERROR_DATABASE);
     assert_null(none);
-    assert_int_equal(store_put_instance(f->store, NULL, NULL, &error),
+    assert_int_equal(store_put_instance(f->store, NULL, NULL, NULL, &error),
                      MITILOG_ERROR_INVALID);
-    assert_int_equal(store_put_instance(NULL, NULL, NULL, NULL),
+    assert_int_equal(store_put_instance(NULL, NULL, NULL, NULL, NULL),
                      MITILOG_ERROR_INVALID);
 
     ext_record record;
     make_record(&record, "", "1.2", NULL, NULL);
-    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+    assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error),
                      MITILOG_ERROR_INVALID);
     free_record(&record);
 
     make_record(&record, "1.2.1", "1.2", NULL, NULL);
     record.indices[EXT_INDEX_MI].status = (ext_value_status)42;
-    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+    assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error),
                      MITILOG_ERROR_INVALID);
     record.indices[EXT_INDEX_MI] = ok_number(0.0 / 0.0); /* NaN */
-    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+    assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error),
                      MITILOG_ERROR_INVALID);
     record.indices[EXT_INDEX_MI] = missing_number;
     free(record.station_name);
     record.station_name = strdup("Salle \xe9"); /* Latin-1, not UTF-8 */
-    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+    assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error),
                      MITILOG_ERROR_INVALID);
     memset(record.acquired_at, 'x', sizeof record.acquired_at); /* no NUL */
-    assert_int_equal(store_put_instance(f->store, &record, NULL, &error),
+    assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error),
                      MITILOG_ERROR_INVALID);
     free_record(&record);
     store_rejection no_reason = {0};
@@ -680,7 +723,7 @@ static void put_study_instance(store *st, const char *uid, const char *study,
     if (tis == tis)
         set_index(&record, EXT_INDEX_TIS, ok_number(tis), "tis");
     mitilog_error error = {{0}};
-    if (store_put_instance(st, &record, NULL, &error) != MITILOG_OK)
+    if (store_put_instance(st, &record, NULL, NULL, &error) != MITILOG_OK)
         fail_msg("put %s: %s", uid, error.text);
     free_record(&record);
 }
@@ -795,6 +838,8 @@ int main(void)
         cmocka_unit_test_setup_teardown(open_creates_schema, fixture_setup,
                                         fixture_teardown),
         cmocka_unit_test_setup_teardown(put_and_read_back, fixture_setup,
+                                        fixture_teardown),
+        cmocka_unit_test_setup_teardown(header_copy_follows_its_row, fixture_setup,
                                         fixture_teardown),
         cmocka_unit_test_setup_teardown(resend_replaces, fixture_setup,
                                         fixture_teardown),
