@@ -17,9 +17,10 @@ packages=(
   # run and operate: DCMTK tools (storescu, echoscu, img2dcm), sqlite3 CLI,
   # curl for the HTTP API, openssl for TLS certificates
   dcmtk sqlite3 curl openssl
-  # integration tests: pydicom is the independent parser, Pillow makes the
-  # JPEG fixture, dicom3tools' dciodvfy checks the fixtures against the IODs
-  python3 python3-pydicom python3-pytest python3-pil dicom3tools
+  # integration tests: pydicom is the independent parser (NumPy decodes the
+  # simulator's pixel data for it), Pillow makes the JPEG fixture,
+  # dicom3tools' dciodvfy checks the fixtures against the IODs
+  python3 python3-pydicom python3-pytest python3-pil python3-numpy dicom3tools
   # dashboard browser tests (tests/browser): headless Chromium driven by
   # playwright-core from npm (no downloaded browsers)
   chromium

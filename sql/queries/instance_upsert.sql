@@ -18,7 +18,8 @@ INSERT INTO instances (
     tis_surface, tis_surface_status, tis_surface_raw,
     object_kind, has_acoustic_record, specific_character_set, image_type,
     series_description, body_part_examined, performed_procedure_step_description,
-    procedure_codes, modes, image_type_bitmap, image_type_bitmap_status,
+    procedure_codes, modes, modes_image_type, modes_regions, modes_sr,
+    image_type_bitmap, image_type_bitmap_status,
     modes_conflict, transducer_data, transducer_source, transducer_type,
     frequency_khz, frequency_source, cine_seconds, exam_type, exam_type_label,
     exam_type_source, governing_index, governing_index_source,
@@ -40,7 +41,7 @@ VALUES (
     :tic, :tic_status, :tic_raw,
     :tis_focus, :tis_focus_status, :tis_focus_raw,
     :tis_surface, :tis_surface_status, :tis_surface_raw,
-    :object_kind, :has_acoustic_record, :specific_character_set, :image_type, :series_description, :body_part_examined, :performed_procedure_step_description, :procedure_codes, :modes, :image_type_bitmap, :image_type_bitmap_status, :modes_conflict, :transducer_data, :transducer_source, :transducer_type, :frequency_khz, :frequency_source, :cine_seconds, :exam_type, :exam_type_label, :exam_type_source, :governing_index, :governing_index_source, :gestational_age_weeks, :gestational_age_source, :preset, :preset_source, :room, :room_source, :shift, :shift_source, :age_group, :age_group_source, :operator_name, :operator_source, :overlong_fields, :text_replaced)
+    :object_kind, :has_acoustic_record, :specific_character_set, :image_type, :series_description, :body_part_examined, :performed_procedure_step_description, :procedure_codes, :modes, :modes_image_type, :modes_regions, :modes_sr, :image_type_bitmap, :image_type_bitmap_status, :modes_conflict, :transducer_data, :transducer_source, :transducer_type, :frequency_khz, :frequency_source, :cine_seconds, :exam_type, :exam_type_label, :exam_type_source, :governing_index, :governing_index_source, :gestational_age_weeks, :gestational_age_source, :preset, :preset_source, :room, :room_source, :shift, :shift_source, :age_group, :age_group_source, :operator_name, :operator_source, :overlong_fields, :text_replaced)
 ON CONFLICT (sop_instance_uid) DO UPDATE SET
     sop_class_uid = excluded.sop_class_uid,
     study_instance_uid = excluded.study_instance_uid,
@@ -79,6 +80,9 @@ ON CONFLICT (sop_instance_uid) DO UPDATE SET
     performed_procedure_step_description = excluded.performed_procedure_step_description,
     procedure_codes = excluded.procedure_codes,
     modes = excluded.modes,
+    modes_image_type = excluded.modes_image_type,
+    modes_regions = excluded.modes_regions,
+    modes_sr = excluded.modes_sr,
     image_type_bitmap = excluded.image_type_bitmap,
     image_type_bitmap_status = excluded.image_type_bitmap_status,
     modes_conflict = excluded.modes_conflict,

@@ -40,10 +40,11 @@ studies AS (
            max(iif(position = 1, shift, NULL)) AS shift,
            max(iif(position = 1, age_group, NULL)) AS age_group,
            (SELECT json_group_array(mode) FROM
-               (SELECT DISTINCT m.mode, m.rank FROM instance_modes m
-                JOIN instances j ON j.id = m.instance_id
-                WHERE j.study_instance_uid = ranked.study_instance_uid
-                ORDER BY m.rank)) AS modes
+               (SELECT n.mode FROM mode_names n
+                WHERE EXISTS (SELECT 1 FROM instances j
+                              WHERE j.study_instance_uid = ranked.study_instance_uid
+                                AND (j.modes >> n.rank) & 1)
+                ORDER BY n.rank)) AS modes
     FROM ranked
     GROUP BY study_instance_uid
 )

@@ -505,8 +505,10 @@ mitilog_status dcm_object_header_bytes(dcm_object *object, unsigned char **bytes
             dcm_string_stream stream(out);
             DcmWriteCache cache;
             file.transferInit();
+            /* Without group lengths (retired in the data set, PS3.5
+             * 7.2): recalculating them walked the data set once more. */
             condition = file.write(stream, xfer, EET_ExplicitLength, &cache,
-                                   EGL_recalcGL, EPD_noChange, 0, 0, 0,
+                                   EGL_withoutGL, EPD_noChange, 0, 0, 0,
                                    EWM_fileformat);
             file.transferEnd();
             /* A deflated transfer syntax writes through a zlib filter that

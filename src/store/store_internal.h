@@ -43,8 +43,6 @@ typedef struct store_write_statements {
     sqlite3_stmt *rollback_to;
     sqlite3_stmt *upsert_instance;
     sqlite3_stmt *insert_rejection;
-    sqlite3_stmt *delete_modes;
-    sqlite3_stmt *insert_mode;
     sqlite3_stmt *delete_sr_values;
     sqlite3_stmt *insert_sr_value;
     sqlite3_stmt *upsert_exam;
@@ -109,6 +107,12 @@ mitilog_status store_cached_statement(store_cache *cache, sqlite3 *db,
                                       const char *name,
                                       sqlite3_stmt **statement,
                                       mitilog_error *error);
+/* sqlite3_bind_parameter_index() remembered per thread: binding an
+ * instance by the names of its ~90 parameters spent more instructions on
+ * finding them than on the insert. A remembered index is checked against
+ * the statement's own name for it, so a statement that reuses another's
+ * address gets the right answer. */
+int store_parameter_index(sqlite3_stmt *statement, const char *name);
 /* Resets a cached statement and clears its bindings (NULL: nothing). */
 void store_release(sqlite3_stmt *statement);
 void store_cache_finalize(store_cache *cache);

@@ -49,8 +49,30 @@ static mitilog_status store_read_version(sqlite3 *db, int *version,
     return status;
 }
 
+/* MITILOG_OK when no foreign key of the database is dangling. */
+static mitilog_status store_check_foreign_keys(sqlite3 *db, const char *name,
+                                               mitilog_error *error)
+{
+    sqlite3_stmt *statement = NULL;
+    mitilog_status status = store_prepare(db, "queries/foreign_key_check.sql",
+                                          &statement, error);
+    if (status != MITILOG_OK)
+        return status;
+    int rc = sqlite3_step(statement);
+    if (rc == SQLITE_ROW)
+        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE,
+                                   "%s left a dangling reference in table %s",
+                                   name, sqlite3_column_text(statement, 0));
+    else if (rc != SQLITE_DONE)
+        status = store_sql_error(error, db, name);
+    sqlite3_finalize(statement);
+    return status;
+}
+
 /* Applies one migration in its own transaction, unless another process
- * applied it meanwhile. The file itself sets user_version; this checks it. */
+ * applied it meanwhile. The file itself sets user_version; this checks it,
+ * and that no reference is left dangling (foreign keys are off while
+ * migrations run, so that a table can be rebuilt). */
 static mitilog_status store_apply_migration(sqlite3 *db, const sql_file *file,
                                             int number, const char *path,
                                             mitilog_error *error)
@@ -70,6 +92,8 @@ static mitilog_status store_apply_migration(sqlite3 *db, const sql_file *file,
                                        "%s left user_version at %d, "
                                        "expected %d", file->name, version,
                                        number);
+        if (status == MITILOG_OK)
+            status = store_check_foreign_keys(db, file->name, error);
     }
     if (status == MITILOG_OK)
         status = store_exec_file(db, "queries/write_commit.sql", error);
@@ -107,16 +131,24 @@ static mitilog_status store_migrate(sqlite3 *db, const char *path,
                                  "database %s has schema version %d, newer "
                                  "than this program's %d", path, *version,
                                  latest);
-    for (const sql_file *file = sql_files; file->name != NULL; file++) {
+    if (*version == latest)
+        return MITILOG_OK;
+    status = store_exec_file(db, "queries/pragma_foreign_keys_off.sql", error);
+    for (const sql_file *file = sql_files; status == MITILOG_OK && file->name != NULL;
+         file++) {
         int number = store_migration_number(file->name);
         if (number <= *version)
             continue;
         status = store_apply_migration(db, file, number, path, error);
-        if (status != MITILOG_OK)
-            return status;
-        *version = number;
+        if (status == MITILOG_OK)
+            *version = number;
     }
-    return MITILOG_OK;
+    mitilog_error restore_error;
+    mitilog_status restored =
+        store_exec_file(db, "queries/pragma_foreign_keys_on.sql", &restore_error);
+    if (status == MITILOG_OK && restored != MITILOG_OK && error != NULL)
+        *error = restore_error;
+    return status != MITILOG_OK ? status : restored;
 }
 
 /* Opens path with flags, extended result codes and the busy timeout. */

@@ -7,6 +7,7 @@
 #include "store/store_internal.h"
 
 #include <stdlib.h>
+#include <stdint.h>
 #include <string.h>
 
 #include "store/sql_files.h"
@@ -71,6 +72,32 @@ mitilog_status store_cached_statement(store_cache *cache, sqlite3 *db,
     cache->names[cache->count] = name;
     cache->statements[cache->count++] = *statement;
     return MITILOG_OK;
+}
+
+enum { STORE_PARAMETER_SLOTS = 512 };
+
+int store_parameter_index(sqlite3_stmt *statement, const char *name)
+{
+    static _Thread_local struct {
+        sqlite3_stmt *statement;
+        int index;
+    } remembered[STORE_PARAMETER_SLOTS];
+    /* FNV-1a over the name, mixed with the statement's address. */
+    uint64_t hash = 14695981039346656037ULL ^ (uint64_t)(uintptr_t)statement;
+    for (const unsigned char *c = (const unsigned char *)name; *c != '\0'; c++) {
+        hash ^= *c;
+        hash *= 1099511628211ULL;
+    }
+    size_t slot = (size_t)(hash % STORE_PARAMETER_SLOTS);
+    if (remembered[slot].statement == statement && remembered[slot].index > 0) {
+        const char *known = sqlite3_bind_parameter_name(statement, remembered[slot].index);
+        if (known != NULL && strcmp(known, name) == 0)
+            return remembered[slot].index;
+    }
+    int index = sqlite3_bind_parameter_index(statement, name);
+    remembered[slot].statement = statement;
+    remembered[slot].index = index;
+    return index;
 }
 
 void store_release(sqlite3_stmt *statement)

@@ -129,7 +129,7 @@ static mitilog_status store_check_record(const ext_record *record,
 static int store_bind_text(sqlite3_stmt *statement, const char *name,
                            const char *value)
 {
-    int index = sqlite3_bind_parameter_index(statement, name);
+    int index = store_parameter_index(statement, name);
     if (index == 0)
         return SQLITE_RANGE;
     if (value == NULL)
@@ -144,7 +144,7 @@ static int store_bind_number(sqlite3_stmt *statement, const char *name,
 {
     char parameter[64];
     snprintf(parameter, sizeof parameter, ":%s", name);
-    int index = sqlite3_bind_parameter_index(statement, parameter);
+    int index = store_parameter_index(statement, parameter);
     if (index == 0)
         return SQLITE_RANGE;
     int rc;
@@ -171,7 +171,7 @@ int store_bind_text_named(sqlite3_stmt *statement, const char *name,
 int store_bind_double_named(sqlite3_stmt *statement, const char *name,
                             int present, double value)
 {
-    int index = sqlite3_bind_parameter_index(statement, name);
+    int index = store_parameter_index(statement, name);
     if (index == 0)
         return SQLITE_RANGE;
     if (!present || !isfinite(value))
@@ -182,7 +182,7 @@ int store_bind_double_named(sqlite3_stmt *statement, const char *name,
 int store_bind_int_named(sqlite3_stmt *statement, const char *name,
                          sqlite3_int64 value)
 {
-    int index = sqlite3_bind_parameter_index(statement, name);
+    int index = store_parameter_index(statement, name);
     if (index == 0)
         return SQLITE_RANGE;
     return sqlite3_bind_int64(statement, index, value);
@@ -256,6 +256,12 @@ static int store_bind_context(sqlite3_stmt *statement,
     if (rc == SQLITE_OK)
         rc = store_bind_int_named(statement, ":modes", record->modes);
     if (rc == SQLITE_OK)
+        rc = store_bind_int_named(statement, ":modes_image_type", record->modes_image_type);
+    if (rc == SQLITE_OK)
+        rc = store_bind_int_named(statement, ":modes_regions", record->modes_regions);
+    if (rc == SQLITE_OK)
+        rc = store_bind_int_named(statement, ":modes_sr", record->modes_sr);
+    if (rc == SQLITE_OK)
         rc = record->image_type_bitmap_status == 1
                  ? store_bind_int_named(statement, ":image_type_bitmap",
                                         record->image_type_bitmap)
@@ -321,7 +327,7 @@ static int store_bind_instance(sqlite3_stmt *statement,
                                record->frame_time_ms, 0);
     if (rc == SQLITE_OK)
         rc = sqlite3_bind_int(statement,
-                              sqlite3_bind_parameter_index(statement,
+                              store_parameter_index(statement,
                                                            ":is_ultrasound"),
                               record->is_ultrasound ? 1 : 0);
     for (int i = 0; rc == SQLITE_OK && i < EXT_INDEX_COUNT; i++) {
@@ -651,8 +657,6 @@ mitilog_status store_write_prepare(store *st, mitilog_error *error)
         {"queries/write_rollback_to.sql", &st->write.rollback_to},
         {"queries/instance_upsert.sql", &st->write.upsert_instance},
         {"queries/rejection_insert.sql", &st->write.insert_rejection},
-        {"queries/instance_modes_delete.sql", &st->write.delete_modes},
-        {"queries/instance_mode_insert.sql", &st->write.insert_mode},
         {"queries/sr_values_delete.sql", &st->write.delete_sr_values},
         {"queries/sr_value_insert.sql", &st->write.insert_sr_value},
         {"queries/exam_upsert.sql", &st->write.upsert_exam},
@@ -680,8 +684,7 @@ void store_write_finalize(store *st)
         &st->write.begin, &st->write.commit, &st->write.rollback,
         &st->write.savepoint, &st->write.release,
         &st->write.rollback_to, &st->write.upsert_instance,
-        &st->write.insert_rejection, &st->write.delete_modes,
-        &st->write.insert_mode, &st->write.delete_sr_values,
+        &st->write.insert_rejection, &st->write.delete_sr_values,
         &st->write.insert_sr_value, &st->write.upsert_exam,
         &st->write.delete_timeline, &st->write.delete_mode_maxima,
         &st->write.insert_timeline, &st->write.insert_mode_maximum,

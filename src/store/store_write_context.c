@@ -1,8 +1,8 @@
 /*
- * store_write_context.c - the rows that go with an instance row: its
- * modes (one per mode and source, instance_modes), its SR values
- * (sr_values) and its header copy (instance_headers), rewritten whenever
- * the instance is (re)stored. Runs on the
+ * store_write_context.c - the rows that go with an instance row: its SR
+ * values (sr_values) and its header copy (instance_headers), rewritten
+ * whenever the instance is (re)stored (its modes are columns of the row
+ * itself, migration 004). Runs on the
  * writer connection inside the record's savepoint (store_write.c).
  */
 #include "store/store_internal.h"
@@ -18,31 +18,6 @@ static mitilog_status store_context_error(store *st, mitilog_error *error,
                              record->sop_instance_uid, what,
                              rc == SQLITE_RANGE ? "bad parameter"
                                                 : sqlite3_errmsg(st->writer));
-}
-
-static int store_write_mode_bits(store *st, sqlite3_int64 instance_id,
-                                 unsigned modes, const char *source)
-{
-    sqlite3_stmt *statement = st->write.insert_mode;
-    for (int m = 0; m < EXT_MODE_COUNT; m++) {
-        if (!(modes & EXT_MODE_BIT(m)))
-            continue;
-        int rc = store_bind_int_named(statement, ":instance_id", instance_id);
-        if (rc == SQLITE_OK)
-            rc = store_bind_text_named(statement, ":mode",
-                                       ext_mode_name((ext_mode)m));
-        if (rc == SQLITE_OK)
-            rc = store_bind_int_named(statement, ":rank", m);
-        if (rc == SQLITE_OK)
-            rc = store_bind_text_named(statement, ":source", source);
-        if (rc == SQLITE_OK)
-            rc = store_step_done(statement) == SQLITE_DONE ? SQLITE_OK
-                                                           : SQLITE_ERROR;
-        sqlite3_clear_bindings(statement);
-        if (rc != SQLITE_OK)
-            return rc;
-    }
-    return SQLITE_OK;
 }
 
 static int store_write_sr_value(store *st, sqlite3_int64 instance_id,
@@ -95,7 +70,7 @@ static int store_write_header(store *st, const store_bytes *header,
         header != NULL ? st->write.upsert_header : st->write.delete_header;
     int rc = store_bind_int_named(statement, ":instance_id", instance_id);
     if (rc == SQLITE_OK && header != NULL) {
-        int index = sqlite3_bind_parameter_index(statement, ":bytes");
+        int index = store_parameter_index(statement, ":bytes");
         rc = index == 0 ? SQLITE_RANGE
                         : sqlite3_bind_blob64(statement, index, header->data,
                                               header->size, SQLITE_STATIC);
@@ -112,27 +87,13 @@ mitilog_status store_write_context(store *st, const ext_record *record,
                                    sqlite3_int64 instance_id,
                                    mitilog_error *error)
 {
-    sqlite3_stmt *deletes[] = {st->write.delete_modes,
-                               st->write.delete_sr_values};
-    for (size_t i = 0; i < 2; i++) {
-        int rc = sqlite3_bind_int64(deletes[i], 1, instance_id);
-        if (rc == SQLITE_OK)
-            rc = store_step_done(deletes[i]) == SQLITE_DONE ? SQLITE_OK
-                                                            : SQLITE_ERROR;
-        sqlite3_clear_bindings(deletes[i]);
-        if (rc != SQLITE_OK)
-            return store_context_error(st, error, record, "clear context", rc);
-    }
-    int rc = store_write_mode_bits(st, instance_id, record->modes_image_type,
-                                   "image_type");
+    sqlite3_stmt *clear = st->write.delete_sr_values;
+    int rc = sqlite3_bind_int64(clear, 1, instance_id);
     if (rc == SQLITE_OK)
-        rc = store_write_mode_bits(st, instance_id, record->modes_regions,
-                                   "region_data_type");
-    if (rc == SQLITE_OK)
-        rc = store_write_mode_bits(st, instance_id, record->modes_sr,
-                                   "sr_container");
+        rc = store_step_done(clear) == SQLITE_DONE ? SQLITE_OK : SQLITE_ERROR;
+    sqlite3_clear_bindings(clear);
     if (rc != SQLITE_OK)
-        return store_context_error(st, error, record, "store modes", rc);
+        return store_context_error(st, error, record, "clear SR values", rc);
     rc = store_write_header(st, header, instance_id);
     if (rc != SQLITE_OK)
         return store_context_error(st, error, record, "store header copy", rc);

@@ -19,6 +19,7 @@
 #include <unistd.h>
 
 #include "store/sql_files.h"
+#include "extract/ext_modes.h"
 #include "store/store.h"
 #include "store/store_internal.h"
 
@@ -383,6 +384,122 @@ static void header_copy_follows_its_row(void **state)
                                         &error),
                      MITILOG_ERROR_INVALID);
     free_record(&record);
+}
+
+/* The schema's mode_names (migration 004) name each bit as the
+ * extraction does (ext_mode_name): the modes columns and the
+ * instance_modes view read back what was written. */
+static void mode_names_match_extraction(void **state)
+{
+    fixture *f = *state;
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM mode_names"), EXT_MODE_COUNT);
+    for (int m = 0; m < EXT_MODE_COUNT; m++) {
+        char sql[160];
+        snprintf(sql, sizeof sql, "SELECT count(*) FROM mode_names WHERE rank = %d AND mode = '%s'",
+                 m, ext_mode_name((ext_mode)m));
+        assert_int_equal(query_int(f->path, sql), 1);
+    }
+    ext_record record;
+    make_record(&record, "1.2.3.7.1", "1.2.3.7", "2024-03-01T10:00:00",
+                "2024-03-01T10:00:05.000Z");
+    record.modes_image_type = EXT_MODE_BIT(EXT_MODE_2D) | EXT_MODE_BIT(EXT_MODE_PW);
+    record.modes_regions = EXT_MODE_BIT(EXT_MODE_2D);
+    record.modes_sr = EXT_MODE_BIT(EXT_MODE_POWER);
+    record.modes = record.modes_image_type | record.modes_regions | record.modes_sr;
+    mitilog_error error = {{0}};
+    assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error), MITILOG_OK);
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM instance_modes"), 4);
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM instance_modes WHERE "
+                                        "source = 'image_type' AND mode IN ('2d', 'pw')"),
+                     2);
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM instance_modes WHERE "
+                                        "source = 'sr_container' AND mode = 'power' "
+                                        "AND rank = 7"),
+                     1);
+    free_record(&record);
+}
+
+/* A database made by the three earlier migrations, with the modes of an
+ * instance as rows of the old instance_modes table, is brought to
+ * version 4 by store_open: the rows become the modes columns and read
+ * back the same through the view (reference: the rows inserted here). */
+static void migration_4_keeps_modes(void **state)
+{
+    fixture *f = *state;
+    store_close(f->store);
+    f->store = NULL;
+    char path[160];
+    snprintf(path, sizeof path, "%s/old.db", f->directory);
+    sqlite3 *db = NULL;
+    assert_int_equal(sqlite3_open(path, &db), SQLITE_OK);
+    const char *migrations[] = {"migrations/001_instances.sql", "migrations/002_exam_context.sql",
+                                "migrations/003_findings.sql"};
+    for (int i = 0; i < 3; i++)
+        assert_int_equal(sqlite3_exec(db, sql_file_text(migrations[i]), NULL, NULL, NULL),
+                         SQLITE_OK);
+    const char *rows =
+        "INSERT INTO instances (id, sop_instance_uid, sop_class_uid, acquired_at_source,"
+        " received_at, first_received_at, number_of_frames_status, frame_time_ms_status,"
+        " is_ultrasound, mi_status, tis_status, tib_status, tic_status, tis_focus_status,"
+        " tis_surface_status, modes) VALUES (7, '1.2.3.6.1', '1.2.840.10008.5.1.4.1.1.6.1',"
+        " 'none', '2024-03-01T10:00:00Z', '2024-03-01T10:00:00Z', 'missing', 'missing', 1,"
+        " 'missing', 'missing', 'missing', 'missing', 'missing', 'missing', 9);"
+        "INSERT INTO instance_modes VALUES (7, '2d', 0, 'image_type'), (7, 'pw', 3, 'image_type'),"
+        " (7, '2d', 0, 'region_data_type');"
+        "INSERT INTO sr_values (instance_id, study_instance_uid, quantity, value, concept,"
+        " item_position) VALUES (7, '1.2.3.6', 'tib', 1.5, 'DCM:1', '1.2');"
+        "INSERT INTO exams (study_instance_uid, exam_type_source, governing_index,"
+        " governing_index_source, instance_count, capture_count, cine_count, sr_count,"
+        " other_count, estimated_seconds, unscaled_seconds, scale, span_seconds, timed_count,"
+        " untimed_count, capped_count, gap_cap_seconds, updated_at) VALUES ('1.2.3.6', 'none',"
+        " 'tib', 'default', 1, 1, 0, 0, 0, 60, 60, 1, 0, 1, 0, 0, 300, 'now');"
+        "INSERT INTO exam_timeline VALUES ('1.2.3.6', 0, '1.2.3.6.1', 0, 60, 0, 60, 1);"
+        "INSERT INTO exam_context (study_instance_uid, room, closed) VALUES ('1.2.3.6', 'R1', 1);"
+        "INSERT INTO policies (version, normalised_text, first_loaded_at) VALUES ('v', '', 'now');"
+        "INSERT INTO findings (study_instance_uid, rule_id, severity, policy_version,"
+        " evaluated_at, superseded) VALUES ('1.2.3.6', 'ti_ceiling', 'warning', 'v', 'now', 1);";
+    assert_int_equal(sqlite3_exec(db, rows, NULL, NULL, NULL), SQLITE_OK);
+    sqlite3_close(db);
+    mitilog_error error = {{0}};
+    store *st = NULL;
+    if (store_open(path, 5000, &st, &error) != MITILOG_OK)
+        fail_msg("store_open: %s", error.text);
+    assert_int_equal(store_schema_version(st), 4);
+    store_close(st);
+    assert_int_equal(query_int(path, "SELECT modes_image_type FROM instances WHERE id = 7"), 9);
+    assert_int_equal(query_int(path, "SELECT modes_regions FROM instances WHERE id = 7"), 1);
+    assert_int_equal(query_int(path, "SELECT modes_sr FROM instances WHERE id = 7"), 0);
+    assert_int_equal(query_int(path, "SELECT count(*) FROM instance_modes WHERE instance_id = 7"),
+                     3);
+    /* The rebuilt tables keep their rows, and their checks still refuse
+     * what they refused (an unknown severity). */
+    assert_int_equal(query_int(path, "SELECT count(*) FROM sr_values WHERE instance_id = 7 "
+                                     "AND quantity = 'tib' AND value = 1.5"), 1);
+    assert_int_equal(query_int(path, "SELECT capped FROM exam_timeline"), 1);
+    assert_int_equal(query_int(path, "SELECT closed FROM exam_context WHERE room = 'R1'"), 1);
+    assert_int_equal(query_int(path, "SELECT superseded FROM findings WHERE severity = 'warning'"),
+                     1);
+    assert_int_equal(query_int(path, "SELECT count(*) FROM exams WHERE governing_index = 'tib'"),
+                     1);
+    sqlite3 *check = NULL;
+    assert_int_equal(sqlite3_open(path, &check), SQLITE_OK);
+    assert_int_not_equal(sqlite3_exec(check, "INSERT INTO findings (rule_id, severity, "
+                                             "policy_version, evaluated_at) VALUES "
+                                             "('x', 'severe', 'v', 'now')",
+                                      NULL, NULL, NULL),
+                         SQLITE_OK);
+    assert_int_not_equal(sqlite3_exec(check, "UPDATE instances SET mi_status = 'fine'", NULL,
+                                      NULL, NULL),
+                         SQLITE_OK);
+    sqlite3_close(check);
+    const char *suffixes[] = {"", "-wal", "-shm"};
+    for (int i = 0; i < 3; i++) {
+        char name[200];
+        snprintf(name, sizeof name, "%s%s", path, suffixes[i]);
+        unlink(name);
+    }
+    if (store_open(f->path, 5000, &f->store, &error) != MITILOG_OK)
+        fail_msg("store_open: %s", error.text);
 }
 
 static void resend_replaces(void **state)
@@ -840,6 +957,10 @@ int main(void)
         cmocka_unit_test_setup_teardown(put_and_read_back, fixture_setup,
                                         fixture_teardown),
         cmocka_unit_test_setup_teardown(header_copy_follows_its_row, fixture_setup,
+                                        fixture_teardown),
+        cmocka_unit_test_setup_teardown(mode_names_match_extraction, fixture_setup,
+                                        fixture_teardown),
+        cmocka_unit_test_setup_teardown(migration_4_keeps_modes, fixture_setup,
                                         fixture_teardown),
         cmocka_unit_test_setup_teardown(resend_replaces, fixture_setup,
                                         fixture_teardown),
