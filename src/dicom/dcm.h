@@ -159,9 +159,13 @@ void dcm_facts_free(dcm_facts *facts);
 
 /* The object without its pixel data (and without other bulk data over
  * 64 KiB) as the bytes of a Part 10 file, in *bytes (malloc'd, the caller
- * frees it) of *size bytes. The bulk data is removed from the loaded
- * object itself, not from a copy: read its facts first; afterwards it is
- * good for nothing but another header copy and dcm_object_free(). */
+ * frees it) of *size bytes. Usually these are the file's own bytes up to
+ * where DCMTK found the top-level Pixel Data, so the copy is the object
+ * as received, cut before its pixels. When that cannot be (a deflated
+ * transfer syntax, other bulk data, a group length over the pixels), the
+ * copy is written by DCMTK instead, and the bulk data is then removed from
+ * the loaded object itself: read its facts first; afterwards it is good
+ * for nothing but another header copy and dcm_object_free(). */
 mitilog_status dcm_object_header_bytes(dcm_object *object, unsigned char **bytes,
                                        size_t *size, mitilog_error *error);
 

@@ -422,6 +422,21 @@ def test_studies_summary(spine):
     assert not [s for s in earlier if s["study_instance_uid"] in refs]
 
 
+def _bytes_before_pixels(path):
+    """The file's bytes and where pydicom stops before its Pixel Data."""
+    with open(path, "rb") as f:
+        pydicom.dcmread(f, stop_before_pixels=True)
+        end = f.tell()
+        f.seek(0)
+        return f.read(), end
+
+
+def _meta_end(data):
+    """Offset of the data set in Part 10 bytes: preamble, "DICM", then
+    (0002,0000) UL whose value is the meta group's length (PS3.10 7.1)."""
+    return 132 + 12 + struct.unpack_from("<I", data, 140)[0]
+
+
 def test_header_retention(spine, tmp_path):
     # retention = header: a header copy per instance, kept in the database
     # with its row and written out by `mitilog header`, without pixel data
@@ -445,6 +460,14 @@ def test_header_retention(spine, tmp_path):
         original = pydicom.dcmread(entry["path"], stop_before_pixels=True)
         if str(ds.get("StudyDescription", "")) != str(original.get("StudyDescription", "")):
             problems.append("%s: study description differs" % entry["name"])
+        # Not deflated: the copy's data set is the sent data set's bytes up
+        # to where pydicom stops before the pixels (the meta header is the
+        # receiver's own, written by DCMTK).
+        if ds.file_meta.TransferSyntaxUID != pydicom.uid.DeflatedExplicitVRLittleEndian:
+            sent, sent_end = _bytes_before_pixels(entry["path"])
+            kept, kept_end = _bytes_before_pixels(path)
+            if kept_end != len(kept) or kept[_meta_end(kept):] != sent[_meta_end(sent):sent_end]:
+                problems.append("%s: copy is not the sent bytes before the pixels" % entry["name"])
     assert not problems, "\n".join(problems)
     missing = run([BINARY, "header", "--config", spine.config, "2.25.404"])
     assert missing.returncode == 1 and "no header copy" in missing.stderr
