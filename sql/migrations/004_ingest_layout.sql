@@ -28,8 +28,8 @@
 --
 -- 4. The day of an instance (acquisition, else receipt), by which the
 --    day-level rules and their lists read instances, gets an index on
---    that expression; the index on acquired_at alone, which no query
---    used, goes.
+--    that expression; the indexes on acquired_at alone and on exam_type,
+--    which no query used (the exam type is read from exams), go.
 --
 -- store_open() applies migrations with foreign keys off and checks them
 -- before committing (the table rebuild procedure of SQLite's ALTER TABLE
@@ -211,7 +211,6 @@ ALTER TABLE instances_rebuilt RENAME TO instances;
 
 CREATE INDEX instances_study ON instances (study_instance_uid, acquired_at);
 CREATE INDEX instances_received ON instances (received_at);
-CREATE INDEX instances_exam_type ON instances (exam_type);
 CREATE INDEX instances_day ON instances (substr(coalesce(acquired_at, received_at), 1, 10));
 
 CREATE VIEW instance_modes AS

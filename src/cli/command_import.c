@@ -1,10 +1,14 @@
-/* mitilog import --config FILE PATH...: files and folders (recursively)
- * through the same pipeline as network objects. */
+/* mitilog import --config FILE [--jobs N] PATH...: files and folders
+ * (recursively) through the same pipeline as network objects, several
+ * files at once. */
 #define _XOPEN_SOURCE 700
 #include <ftw.h>
+#include <pthread.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <unistd.h>
 
 #include "cli/cli_options.h"
 #include "cli/commands.h"
@@ -17,20 +21,82 @@ typedef struct import_totals {
     unsigned long imported, replaced, rejected, failed;
 } import_totals;
 
-/* nftw() has no user pointer: the walk's state lives here for its duration. */
-static ingest *walk_ingest;
-static import_totals *walk_totals;
+/* The walk hands paths to the workers through a small ring: the workers
+ * read and commit files at once (group commit puts their rows in shared
+ * transactions), while the walk goes on finding the next ones. */
+enum { IMPORT_QUEUE_SIZE = 256, IMPORT_JOBS_MAX = 16 };
 
-static void import_one(const char *path)
+typedef struct import_queue {
+    pthread_mutex_t lock;
+    pthread_cond_t changed;
+    char *paths[IMPORT_QUEUE_SIZE];
+    size_t head, count;
+    int closed;                     /* the walk is over */
+    ingest *pipeline;
+    import_totals totals;           /* under lock */
+} import_queue;
+
+/* nftw() has no user pointer: the walk's queue lives here for its duration. */
+static import_queue *walk_queue;
+
+static void import_count(import_queue *queue, ingest_outcome outcome)
+{
+    pthread_mutex_lock(&queue->lock);
+    switch (outcome) {
+    case INGEST_OUTCOME_STORED: queue->totals.imported++; break;
+    case INGEST_OUTCOME_REPLACED: queue->totals.replaced++; break;
+    case INGEST_OUTCOME_REJECTED: queue->totals.rejected++; break;
+    case INGEST_OUTCOME_NOT_STORED: queue->totals.failed++; break;
+    }
+    pthread_mutex_unlock(&queue->lock);
+}
+
+static void import_one(import_queue *queue, const char *path)
 {
     ingest_source source = {path, 0, "", "", "", "", 0};
     mitilog_error reason;
-    switch (ingest_object(walk_ingest, &source, &reason)) {
-    case INGEST_OUTCOME_STORED: walk_totals->imported++; break;
-    case INGEST_OUTCOME_REPLACED: walk_totals->replaced++; break;
-    case INGEST_OUTCOME_REJECTED: walk_totals->rejected++; break;
-    case INGEST_OUTCOME_NOT_STORED: walk_totals->failed++; break;
+    import_count(queue, ingest_object(queue->pipeline, &source, &reason));
+}
+
+static void *import_worker(void *argument)
+{
+    import_queue *queue = argument;
+    pthread_mutex_lock(&queue->lock);
+    for (;;) {
+        while (queue->count == 0 && !queue->closed)
+            pthread_cond_wait(&queue->changed, &queue->lock);
+        if (queue->count == 0)
+            break;
+        char *path = queue->paths[queue->head];
+        queue->head = (queue->head + 1) % IMPORT_QUEUE_SIZE;
+        queue->count--;
+        pthread_cond_broadcast(&queue->changed);
+        pthread_mutex_unlock(&queue->lock);
+        import_one(queue, path);
+        free(path);
+        pthread_mutex_lock(&queue->lock);
     }
+    pthread_mutex_unlock(&queue->lock);
+    return NULL;
+}
+
+/* Queues path for the workers (waits while the ring is full). Without
+ * memory for its copy the file is counted as not stored. */
+static void import_queue_push(import_queue *queue, const char *path)
+{
+    char *copy = strdup(path);
+    if (copy == NULL) {
+        log_error("import: %s: out of memory, not stored", path);
+        import_count(queue, INGEST_OUTCOME_NOT_STORED);
+        return;
+    }
+    pthread_mutex_lock(&queue->lock);
+    while (queue->count == IMPORT_QUEUE_SIZE)
+        pthread_cond_wait(&queue->changed, &queue->lock);
+    queue->paths[(queue->head + queue->count) % IMPORT_QUEUE_SIZE] = copy;
+    queue->count++;
+    pthread_cond_broadcast(&queue->changed);
+    pthread_mutex_unlock(&queue->lock);
 }
 
 static int visit(const char *path, const struct stat *info, int type, struct FTW *walk)
@@ -38,32 +104,50 @@ static int visit(const char *path, const struct stat *info, int type, struct FTW
     (void)info;
     (void)walk;
     if (type == FTW_F)
-        import_one(path);
+        import_queue_push(walk_queue, path);
     else if (type == FTW_DNR || type == FTW_NS) {
         log_warning("import: %s cannot be read", path);
-        walk_totals->rejected++;
+        import_count(walk_queue, INGEST_OUTCOME_REJECTED);
     }
     return 0;
 }
 
+/* Workers by default: one per processor online, at most 4. */
+static unsigned import_default_jobs(void)
+{
+    long online = sysconf(_SC_NPROCESSORS_ONLN);
+    return online < 1 ? 1 : online > 4 ? 4 : (unsigned)online;
+}
+
 static void print_import_usage(FILE *out)
 {
-    fprintf(out, "usage: mitilog import [--config FILE] PATH...\n"
+    fprintf(out, "usage: mitilog import [--config FILE] [--jobs N] PATH...\n"
                  "Reads DICOM files, and folders recursively, into the database. Prints one\n"
                  "summary line. Exit status: 0 all stored, 1 something was rejected or could\n"
-                 "not be stored (reasons on stderr and in the rejections table), 2 usage.\n");
+                 "not be stored (reasons on stderr and in the rejections table), 2 usage.\n"
+                 "  --jobs N   files read at once, 1-%d (default: one per processor, at most 4)\n",
+            IMPORT_JOBS_MAX);
 }
 
 int command_import(int argc, char **argv)
 {
     const char *config_path = NULL;
     int first_path = 0;
+    unsigned jobs = import_default_jobs();
     for (int i = 1; i < argc; i++) {
         if (strcmp(argv[i], "--help") == 0 || strcmp(argv[i], "-h") == 0) {
             print_import_usage(stdout);
             return EXIT_STATUS_SUCCESS;
         } else if (strcmp(argv[i], "--config") == 0 && i + 1 < argc) {
             config_path = argv[++i];
+        } else if (strcmp(argv[i], "--jobs") == 0 && i + 1 < argc) {
+            char *end = NULL;
+            long value = strtol(argv[++i], &end, 10);
+            if (end == argv[i] || *end != '\0' || value < 1 || value > IMPORT_JOBS_MAX) {
+                print_import_usage(stderr);
+                return EXIT_STATUS_USAGE;
+            }
+            jobs = (unsigned)value;
         } else if (argv[i][0] == '-' && strcmp(argv[i], "--") != 0) {
             print_import_usage(stderr);
             return EXIT_STATUS_USAGE;
@@ -84,7 +168,12 @@ int command_import(int argc, char **argv)
     mitilog_error error;
     store *store = NULL;
     ingest *pipeline = NULL;
-    import_totals totals = {0, 0, 0, 0};
+    import_queue queue;
+    memset(&queue, 0, sizeof queue);
+    pthread_mutex_init(&queue.lock, NULL);
+    pthread_cond_init(&queue.changed, NULL);
+    pthread_t workers[IMPORT_JOBS_MAX];
+    unsigned started = 0;
     int status = EXIT_STATUS_FAILURE;
     if (dcm_initialise(LOG_LEVEL_WARNING, &error) != MITILOG_OK ||
         cli_prepare_data_directory(&config, &error) != 0 ||
@@ -98,30 +187,47 @@ int command_import(int argc, char **argv)
         log_error("import: %s", error.text);
         goto done;
     }
-    walk_ingest = pipeline;
-    walk_totals = &totals;
+    queue.pipeline = pipeline;
+    for (; started < jobs; started++)
+        if (pthread_create(&workers[started], NULL, import_worker, &queue) != 0)
+            break;
+    if (started == 0) {
+        log_error("import: cannot start a worker thread");
+        goto done;
+    }
+    walk_queue = &queue;
     for (int i = first_path; i < argc; i++) {
         struct stat info;
         if (stat(argv[i], &info) != 0) {
             log_warning("import: %s does not exist", argv[i]);
-            totals.rejected++;
+            import_count(&queue, INGEST_OUTCOME_REJECTED);
         } else if (S_ISDIR(info.st_mode)) {
             nftw(argv[i], visit, 32, FTW_PHYS);
         } else {
-            import_one(argv[i]);
+            import_queue_push(&queue, argv[i]);
         }
     }
+    pthread_mutex_lock(&queue.lock);
+    queue.closed = 1;
+    pthread_cond_broadcast(&queue.changed);
+    pthread_mutex_unlock(&queue.lock);
+    for (unsigned i = 0; i < started; i++)
+        pthread_join(workers[i], NULL);
+    started = 0;
     /* Exam records rebuilt, WAL checkpointed and synced: then the summary. */
     ingest_free(pipeline);
     pipeline = NULL;
     store_close(store);
     store = NULL;
-    printf("imported %lu, replaced %lu, rejected %lu, not stored %lu\n", totals.imported,
-           totals.replaced, totals.rejected, totals.failed);
-    status = totals.rejected + totals.failed > 0 ? EXIT_STATUS_FAILURE : EXIT_STATUS_SUCCESS;
+    const import_totals *totals = &queue.totals;
+    printf("imported %lu, replaced %lu, rejected %lu, not stored %lu\n", totals->imported,
+           totals->replaced, totals->rejected, totals->failed);
+    status = totals->rejected + totals->failed > 0 ? EXIT_STATUS_FAILURE : EXIT_STATUS_SUCCESS;
 done:
     ingest_free(pipeline);
     store_close(store);
+    pthread_cond_destroy(&queue.changed);
+    pthread_mutex_destroy(&queue.lock);
     config_free(&config);
     return status;
 }

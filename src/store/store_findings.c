@@ -3,7 +3,7 @@
  * registering a policy (policies, rules described as JSON by SQLite) and
  * one evaluation (findings, exam_context, exam_measurements or
  * device_evaluations) in one transaction. Runs on the writer connection
- * inside the request's savepoint (store_write.c). Statements are prepared
+ * inside the batch's transaction (store_write.c). Statements are prepared
  * per call: evaluations are rare next to instance writes.
  *
  * Idempotence: an evaluation's content (every finding field but

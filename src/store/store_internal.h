@@ -38,9 +38,6 @@ typedef struct store_write_statements {
     sqlite3_stmt *begin;
     sqlite3_stmt *commit;
     sqlite3_stmt *rollback;
-    sqlite3_stmt *savepoint;
-    sqlite3_stmt *release;
-    sqlite3_stmt *rollback_to;
     sqlite3_stmt *upsert_instance;
     sqlite3_stmt *insert_rejection;
     sqlite3_stmt *delete_sr_values;
@@ -134,7 +131,7 @@ void store_write_drain(store *store);
 
 /* store_write_context.c: an instance's modes, SR values and header copy
  * (header may be NULL), after its row (instance_id) was written; inside
- * the record's savepoint. */
+ * the batch's transaction. */
 mitilog_status store_write_context(store *store, const ext_record *record,
                                    const store_bytes *header,
                                    sqlite3_int64 instance_id,
@@ -152,7 +149,7 @@ int store_bind_double_named(sqlite3_stmt *statement, const char *name,
 int store_bind_int_named(sqlite3_stmt *statement, const char *name,
                          sqlite3_int64 value);
 
-/* store_findings.c: inside the request's savepoint. */
+/* store_findings.c: inside the batch's transaction. */
 mitilog_status store_write_evaluation(store *store, const store_evaluation *evaluation,
                                       store_evaluation_counts *counts,
                                       mitilog_error *error);

@@ -4,8 +4,9 @@
  * Callers of store_put_* queue a request and wait. Whoever finds no batch
  * being written becomes the leader: it takes the queued requests (at most
  * STORE_BATCH_MAX), writes them on the writer connection inside one
- * BEGIN IMMEDIATE ... COMMIT with a SAVEPOINT per record (so one bad record
- * fails alone), commits, and wakes every waiter with its own result. So a
+ * BEGIN IMMEDIATE ... COMMIT (when one of them fails on its own, the batch
+ * is written again one record per transaction, so a bad record fails
+ * alone), and wakes every waiter with its own result. So a
  * caller returns only after the commit that holds its record, and many
  * concurrent associations share one WAL sync.
  *
@@ -343,7 +344,7 @@ static int store_bind_instance(sqlite3_stmt *statement,
     return rc;
 }
 
-/* Writes one instance row (inside the batch's savepoint). */
+/* Writes one instance row (inside the batch's transaction). */
 static mitilog_status store_write_instance(store *st,
                                            store_request *request)
 {
@@ -380,7 +381,7 @@ static mitilog_status store_write_instance(store *st,
     return status;
 }
 
-/* Writes one rejection row (inside the batch's savepoint); NULL fields
+/* Writes one rejection row (inside the batch's transaction); NULL fields
  * are stored as "". */
 static mitilog_status store_write_rejection(store *st,
                                             store_request *request)
@@ -432,75 +433,97 @@ static void store_fail_batch(store_request *batch, const char *what,
     }
 }
 
-/* Writes one record inside its own savepoint; returns its status. */
+/* Writes one request's rows in the open transaction; returns its status. */
 static mitilog_status store_write_one(store *st, store_request *request)
 {
-    store_write_statements *write = &st->write;
-    if (store_step_done(write->savepoint) != SQLITE_DONE)
-        return mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE,
-                                 "savepoint: %s",
-                                 sqlite3_errmsg(st->writer));
-    mitilog_status status =
-        request->record != NULL ? store_write_instance(st, request)
-        : request->exam != NULL ? store_write_exam(st, request->exam,
-                                                   &request->error)
-        : request->evaluation != NULL
-            ? store_write_evaluation(st, request->evaluation,
-                                     &request->counts, &request->error)
-        : request->policy != NULL ? store_write_policy(st, request->policy,
-                                                       &request->error)
-                                : store_write_rejection(st, request);
-    if (sqlite3_get_autocommit(st->writer))
-        return status; /* SQLite already rolled the transaction back */
-    if (status != MITILOG_OK)
-        store_step_done(write->rollback_to);
-    if (store_step_done(write->release) != SQLITE_DONE &&
-        status == MITILOG_OK)
-        status = mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE,
-                                   "release savepoint: %s",
-                                   sqlite3_errmsg(st->writer));
-    return status;
+    request->outcome = STORE_PUT_INSERTED;
+    memset(&request->counts, 0, sizeof request->counts);
+    request->error.text[0] = '\0';
+    return request->record != NULL ? store_write_instance(st, request)
+           : request->exam != NULL ? store_write_exam(st, request->exam, &request->error)
+           : request->evaluation != NULL
+               ? store_write_evaluation(st, request->evaluation, &request->counts,
+                                        &request->error)
+           : request->policy != NULL ? store_write_policy(st, request->policy, &request->error)
+                                     : store_write_rejection(st, request);
 }
 
-/* The leader's work: one transaction for the whole batch. Fills in each
- * request's status, outcome and error. */
-static void store_write_batch(store *st, store_request *batch)
+/* Ends the open transaction: COMMIT, or ROLLBACK when rollback is set.
+ * Returns 0 when committed. */
+static int store_end_transaction(store *st, int rollback, char *message, size_t size)
 {
     store_write_statements *write = &st->write;
-    for (store_request *request = batch; request != NULL;
-         request = request->next)
-        request->status = MITILOG_OK;
-    if (store_step_done(write->begin) != SQLITE_DONE) {
-        store_fail_batch(batch, "begin transaction",
-                         sqlite3_errmsg(st->writer));
-        log_warning("database: cannot begin a write: %s",
-                    sqlite3_errmsg(st->writer));
-        return;
+    if (rollback) {
+        if (!sqlite3_get_autocommit(st->writer))
+            store_step_done(write->rollback);
+        return -1;
     }
-    for (store_request *request = batch; request != NULL;
-         request = request->next) {
+    if (store_step_done(write->commit) == SQLITE_DONE)
+        return 0;
+    snprintf(message, size, "%s", sqlite3_errmsg(st->writer));
+    if (!sqlite3_get_autocommit(st->writer))
+        store_step_done(write->rollback);
+    return -1;
+}
+
+/* Writes the requests of batch in one transaction. Returns 0 when it
+ * committed; -1 when a request failed on its own (the transaction is
+ * rolled back, *failed_alone set) or the database failed (rolled back,
+ * every request failed with the reason). */
+static int store_write_together(store *st, store_request *batch, int *failed_alone)
+{
+    char message[MITILOG_ERROR_TEXT_SIZE] = "";
+    *failed_alone = 0;
+    if (store_step_done(st->write.begin) != SQLITE_DONE) {
+        store_fail_batch(batch, "begin transaction", sqlite3_errmsg(st->writer));
+        log_warning("database: cannot begin a write: %s", sqlite3_errmsg(st->writer));
+        return -1;
+    }
+    for (store_request *request = batch; request != NULL; request = request->next) {
         request->status = store_write_one(st, request);
         if (sqlite3_get_autocommit(st->writer)) {
             /* The transaction is gone (full disk, I/O error): nothing of
              * the batch was kept. */
-            char message[MITILOG_ERROR_TEXT_SIZE];
-            snprintf(message, sizeof message, "%s",
-                     sqlite3_errmsg(st->writer));
+            snprintf(message, sizeof message, "%s", sqlite3_errmsg(st->writer));
             store_fail_batch(batch, "transaction rolled back", message);
-            log_warning("database: write transaction rolled back: %s",
-                        message);
-            return;
+            log_warning("database: write transaction rolled back: %s", message);
+            return -1;
+        }
+        if (request->status != MITILOG_OK) {
+            *failed_alone = 1;
+            store_end_transaction(st, 1, message, sizeof message);
+            return -1;
         }
     }
-    if (store_step_done(write->commit) != SQLITE_DONE) {
-        char message[MITILOG_ERROR_TEXT_SIZE];
-        snprintf(message, sizeof message, "%s",
-                 sqlite3_errmsg(st->writer));
-        if (!sqlite3_get_autocommit(st->writer))
-            store_step_done(write->rollback);
-        store_fail_batch(batch, "commit", message);
-        log_warning("database: commit failed, batch rolled back: %s",
-                    message);
+    if (store_end_transaction(st, 0, message, sizeof message) == 0)
+        return 0;
+    for (store_request *request = batch; request != NULL; request = request->next)
+        request->status = MITILOG_OK;
+    store_fail_batch(batch, "commit", message);
+    log_warning("database: commit failed, batch rolled back: %s", message);
+    return -1;
+}
+
+/* The leader's work: one transaction for the whole batch. A request that
+ * fails on its own (a row the schema refuses) rolls the transaction
+ * back, and the batch is written again one request per transaction, so
+ * that it fails alone: savepoints per request, the other way to get
+ * there, made SQLite copy every page a request touched, for the rare case
+ * of a failure. Fills in each request's status, outcome and error. */
+static void store_write_batch(store *st, store_request *batch)
+{
+    for (store_request *request = batch; request != NULL; request = request->next)
+        request->status = MITILOG_OK;
+    int failed_alone = 0;
+    if (store_write_together(st, batch, &failed_alone) == 0 || !failed_alone ||
+        batch->next == NULL)
+        return;
+    for (store_request *request = batch; request != NULL; request = request->next) {
+        store_request *next = request->next;
+        request->next = NULL;
+        request->status = MITILOG_OK;
+        store_write_together(st, request, &failed_alone);
+        request->next = next;
     }
 }
 
@@ -652,9 +675,6 @@ mitilog_status store_write_prepare(store *st, mitilog_error *error)
         {"queries/write_begin.sql", &st->write.begin},
         {"queries/write_commit.sql", &st->write.commit},
         {"queries/write_rollback.sql", &st->write.rollback},
-        {"queries/write_savepoint.sql", &st->write.savepoint},
-        {"queries/write_release.sql", &st->write.release},
-        {"queries/write_rollback_to.sql", &st->write.rollback_to},
         {"queries/instance_upsert.sql", &st->write.upsert_instance},
         {"queries/rejection_insert.sql", &st->write.insert_rejection},
         {"queries/sr_values_delete.sql", &st->write.delete_sr_values},
@@ -682,8 +702,7 @@ void store_write_finalize(store *st)
 {
     sqlite3_stmt **statements[] = {
         &st->write.begin, &st->write.commit, &st->write.rollback,
-        &st->write.savepoint, &st->write.release,
-        &st->write.rollback_to, &st->write.upsert_instance,
+        &st->write.upsert_instance,
         &st->write.insert_rejection, &st->write.delete_sr_values,
         &st->write.insert_sr_value, &st->write.upsert_exam,
         &st->write.delete_timeline, &st->write.delete_mode_maxima,

@@ -3,7 +3,7 @@
  * values (sr_values) and its header copy (instance_headers), rewritten
  * whenever the instance is (re)stored (its modes are columns of the row
  * itself, migration 004). Runs on the
- * writer connection inside the record's savepoint (store_write.c).
+ * writer connection inside the batch's transaction (store_write.c).
  */
 #include "store/store_internal.h"
 

@@ -1,8 +1,8 @@
 /*
  * store_write_exam.c - writing one exam record (exams), its timeline
  * (exam_timeline) and per-mode maxima (exam_mode_maxima), replacing what
- * the study had. Runs on the writer connection inside the request's
- * savepoint (store_write.c), so the three are one transaction.
+ * the study had. Runs on the writer connection inside the batch's
+ * transaction (store_write.c), so the three are written together.
  */
 #include "store/store_internal.h"
 

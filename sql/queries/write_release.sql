@@ -1,2 +1,0 @@
--- Group commit: keep the record's changes in the batch.
-RELEASE record;

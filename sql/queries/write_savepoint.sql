@@ -1,2 +1,0 @@
--- Group commit: one savepoint per record, so a bad record fails alone.
-SAVEPOINT record;
