@@ -104,12 +104,15 @@ mitilog_status store_cached_statement(store_cache *cache, sqlite3 *db,
                                       const char *name,
                                       sqlite3_stmt **statement,
                                       mitilog_error *error);
-/* sqlite3_bind_parameter_index() remembered per thread: binding an
- * instance by the names of its ~90 parameters spent more instructions on
- * finding them than on the insert. A remembered index is checked against
- * the statement's own name for it, so a statement that reuses another's
- * address gets the right answer. */
+/* sqlite3_bind_parameter_index() remembered per thread, by statement and
+ * a 64-bit hash of the name: binding an instance by the names of its ~90
+ * parameters spent more instructions on finding them than on the insert.
+ * Only for the writer's statements, which live until store_close();
+ * store_close() calls store_parameter_forget() before it finalizes them,
+ * so a later statement at the same address is never answered from an
+ * older one's memory. */
 int store_parameter_index(sqlite3_stmt *statement, const char *name);
+void store_parameter_forget(void);
 /* Resets a cached statement and clears its bindings (NULL: nothing). */
 void store_release(sqlite3_stmt *statement);
 void store_cache_finalize(store_cache *cache);

@@ -245,6 +245,9 @@ void store_close(store *st)
     if (st == NULL)
         return;
     store_write_drain(st);
+    /* Nobody writes any more: what threads remember of the writer's
+     * parameters is forgotten before its statements are finalized. */
+    store_parameter_forget();
     store_read_finalize(st);
     store_cache_finalize(&st->reader_cache);
     sqlite3_close(st->reader);

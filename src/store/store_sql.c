@@ -76,28 +76,40 @@ mitilog_status store_cached_statement(store_cache *cache, sqlite3 *db,
 
 enum { STORE_PARAMETER_SLOTS = 512 };
 
+/* Bumped by store_parameter_forget(): what a thread remembered before
+ * belongs to statements that may be gone. */
+static _Atomic unsigned store_parameter_generation = 1;
+
 int store_parameter_index(sqlite3_stmt *statement, const char *name)
 {
     static _Thread_local struct {
         sqlite3_stmt *statement;
+        uint64_t hash;
+        unsigned generation;
         int index;
     } remembered[STORE_PARAMETER_SLOTS];
-    /* FNV-1a over the name, mixed with the statement's address. */
-    uint64_t hash = 14695981039346656037ULL ^ (uint64_t)(uintptr_t)statement;
+    /* FNV-1a over the name [std: FNV, 64-bit offset basis and prime]. */
+    uint64_t hash = 14695981039346656037ULL;
     for (const unsigned char *c = (const unsigned char *)name; *c != '\0'; c++) {
         hash ^= *c;
         hash *= 1099511628211ULL;
     }
-    size_t slot = (size_t)(hash % STORE_PARAMETER_SLOTS);
-    if (remembered[slot].statement == statement && remembered[slot].index > 0) {
-        const char *known = sqlite3_bind_parameter_name(statement, remembered[slot].index);
-        if (known != NULL && strcmp(known, name) == 0)
-            return remembered[slot].index;
-    }
+    unsigned generation = store_parameter_generation;
+    size_t slot = (size_t)((hash ^ (uint64_t)(uintptr_t)statement) % STORE_PARAMETER_SLOTS);
+    if (remembered[slot].statement == statement && remembered[slot].hash == hash &&
+        remembered[slot].generation == generation)
+        return remembered[slot].index;
     int index = sqlite3_bind_parameter_index(statement, name);
     remembered[slot].statement = statement;
+    remembered[slot].hash = hash;
+    remembered[slot].generation = generation;
     remembered[slot].index = index;
     return index;
+}
+
+void store_parameter_forget(void)
+{
+    store_parameter_generation++;
 }
 
 void store_release(sqlite3_stmt *statement)
