@@ -109,7 +109,7 @@ def test_tls_key_without_certificate_is_a_config_error(daemon_factory, pki):
 def test_http_on_non_loopback_needs_explicit_consent(daemon_factory):
     daemon = daemon_factory("public", http=dict(address="0.0.0.0"))
     result = run([BINARY, "serve", "--config", daemon.config], timeout=30)
-    # the issue: refuse to start on a non-loopback address without TLS and
+    # design rule: refuse to start on a non-loopback address without TLS and
     # authentication unless explicitly told so
     assert result.returncode != 0
     assert "allow_insecure_non_loopback" in result.stderr, result.stderr

@@ -5,7 +5,7 @@ edited policy, `mitilog rescore` idempotence, provisional -> closed.
 Expected values: docs/demo.md "Planted problems" (which studies carry
 mi-over-limit and tic-high), docs/policy.md (equipment_maxima MI 1.9,
 ti_ceiling TI 2.0 on the governing index; TIC for transcranial exams, domain
-reference section 3), the issue (rescoring twice changes nothing).
+reference section 3), the design rule that rescoring twice changes nothing.
 """
 import csv
 import os

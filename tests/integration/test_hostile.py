@@ -197,7 +197,7 @@ def test_hostile_strings_are_stored_as_given_and_inert(daemon_factory, tmp_path)
         for keyword, value in expected.items():
             column = {"StationName": "station_name", "StudyDescription":
                       "study_description", "ProtocolName": "protocol_name"}[keyword]
-            # the issue: stored as given (DICOM padding aside, PS3.5 6.2)
+            # design rule: stored as given (DICOM padding aside, PS3.5 6.2)
             assert row[column].rstrip(" ") == value.rstrip(" "), (column, row[column][:80])
         # served as JSON, never sniffed as HTML (WHATWG Fetch: nosniff)
         assert headers["Content-Type"].startswith("application/json")

@@ -76,7 +76,7 @@ def test_sr_depth_limit(daemon_factory, sim, tmp_path):
     daemon = daemon_factory("srdepth", storage=dict(sr_depth_limit=2)).start()
     statuses = storescu_statuses(daemon.dicom_port, [deep])
     assert set(statuses.values()) == {"Success"}
-    # the issue: the SR walk stops at the configured depth, and says so
+    # design rule: the SR walk stops at the configured depth, and says so
     assert "deeper than 2 levels" in daemon.log()
 
 
@@ -110,7 +110,7 @@ def test_acse_timeout_closes_a_silent_connection(daemon_factory):
     started = time.monotonic()
     with socket.create_connection(("127.0.0.1", daemon.dicom_port), timeout=20) as s:
         data = s.recv(100)  # nothing sent: the daemon gives up on us
-    # the issue: association timeout configurable (PS3.8 9.1.5 ARTIM)
+    # design rule: association timeout configurable (PS3.8 9.1.5 ARTIM)
     assert data == b"" or data[0] == 0x07
     assert time.monotonic() - started < 10
     assert echo_ok(daemon)

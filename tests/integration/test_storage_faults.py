@@ -32,7 +32,7 @@ def stored_uids(daemon):
 
 
 def assert_nothing_false(daemon, statuses, rows):
-    """the issue: nothing acknowledged that was not written"""
+    """Design rule: nothing acknowledged that was not written."""
     stored = stored_uids(daemon)
     lost = [f for f, s in statuses.items() if s == "Success"
             and rows[f]["sop_instance_uid"] not in stored]
@@ -108,7 +108,7 @@ def test_disk_full_answers_a700_then_recovers(daemon_factory, sim, small_fs):
     daemon.allow_errors_since(mark)
     assert_nothing_false(daemon, statuses, rows)
     refused = [f for f, s in statuses.items() if s != "Success"]
-    # the issue: a full disk gives A700 (PS3.4 B.2.3 Out of Resources)
+    # design rule: a full disk gives A700 (PS3.4 B.2.3 Out of Resources)
     assert refused and {statuses[f] for f in refused} == {REFUSED}, statuses
     os.unlink(filler)  # space returns
     again = storescu_statuses(daemon.dicom_port, files[3:40])

@@ -28,7 +28,7 @@ static const char *write_config(const char *name, const char *text)
 }
 
 /* Defaults documented in conf/mitilog.ini and docs/configuration.md;
- * 11112 is the port the issue and DICOM practice use (common practice). */
+ * 11112 is the port DICOM practice uses (common practice, no source). */
 static void defaults(void **state)
 {
     (void)state;

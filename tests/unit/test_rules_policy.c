@@ -20,7 +20,7 @@ static void shipped_policy_loads(void **state)
     assert_int_equal(strlen(rules_policy_version(policy)), 64);
     assert_close(rules_policy_closed_after_idle_minutes(policy), 60, 0);
     assert_close(rules_policy_gap_cap_seconds(policy), 300, 0);
-    /* Every rule of the issue, each with a source. */
+    /* Every rule of the policy engine, each with a source. */
     const char *expected[] = {"ti_ceiling", "mi_ceiling", "equipment_maxima",
                               "dwell_general", "dwell_obstetric_neonatal",
                               "first_trimester_doppler", "output_not_reported",

@@ -4,7 +4,7 @@
  * one; re-evaluating with the same content changes nothing (the whole
  * findings table compared before and after); the ext_mode to Image Type
  * bit mapping of the ingest. Expected values: docs/policy.md ("A finding",
- * "Version") and the issue's property "rescoring twice under the same
+ * "Version") and the design rule "rescoring twice under the same
  * policy changes nothing"; bit values DICOM PS3.3 C.8.5.6.1.1.
  */
 #include <setjmp.h>
