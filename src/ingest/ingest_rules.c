@@ -1,9 +1,10 @@
 /*
  * ingest_rules.c - the ALARA policy engine (src/rules) made live: after a
  * study's exam record is rebuilt, the exam is evaluated under the current
- * policy and the result written in one transaction (store_put_evaluation);
- * rule output_not_reported is evaluated per day over that day's
- * instances (device-level findings, study NULL, period = the day).
+ * policy and the result written with the exam record in one transaction
+ * (store_put_evaluation); rule output_not_reported is evaluated per day
+ * over that day's instances (device-level findings, study NULL, period =
+ * the day).
  *
  * Open/closed: an exam is closed when now - its last receipt >=
  * closed_after_idle_minutes; the clock is ingest_clock_now() only.
@@ -187,18 +188,22 @@ done:
     return status;
 }
 
-/* Evaluates a built exam (the instances it was built from) and writes it. */
+/* Evaluates a built exam (the instances it was built from) and writes
+ * the exam record with its evaluation, in one transaction. */
 static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy,
-                                           const char *study, const ext_exam *exam,
-                                           const ext_exam_instance *instances, double now,
+                                           const store_exam *record, double now,
                                            store_evaluation_counts *counts,
                                            mitilog_error *error)
 {
+    const char *study = record->study_instance_uid;
+    const ext_exam *exam = record->exam;
+    const ext_exam_instance *instances = record->instances;
     store_study_context context;
     mitilog_status status = store_load_study_context(st, study, now, &context, error);
     if (status != MITILOG_OK || !context.found) {
         store_study_context_free(&context);
-        return status;
+        /* No instance left to give a context: the record alone. */
+        return status != MITILOG_OK ? status : store_put_exam(st, record, error);
     }
     size_t n = exam->capture_count;
     rules_capture *captures = calloc(n ? n : 1, sizeof *captures);
@@ -249,6 +254,7 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
     }
     const rules_measurements *m = &result.measurements;
     store_evaluation evaluation = {
+        .exam = record,
         .policy_version = rules_policy_version(policy),
         .policy_name = rules_policy_name(policy),
         .normalised_text = rules_policy_normalised(policy),
@@ -307,10 +313,8 @@ mitilog_status ingest_evaluate_study(store *st, const ext_site_rules *rules,
     status = ext_exam_build(rules, instances, count, &exam, error);
     if (status == MITILOG_OK) {
         store_exam input = {study, &exam, instances, count};
-        status = store_put_exam(st, &input, error);
-        if (status == MITILOG_OK && policy != NULL)
-            status = ingest_evaluate_exam(st, policy, study, &exam, instances, now, counts,
-                                          error);
+        status = policy != NULL ? ingest_evaluate_exam(st, policy, &input, now, counts, error)
+                                : store_put_exam(st, &input, error);
         ext_exam_free(&exam);
     }
     store_study_free(instances, count);

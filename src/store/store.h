@@ -203,6 +203,10 @@ enum { STORE_DWELL_STEPS = 6 };         /* 0.7 1.0 1.5 2.0 2.5 3.0 */
  * evaluation whose content hash equals the stored one (and that leaves
  * nothing to supersede) writes nothing: re-evaluating is idempotent. */
 typedef struct store_evaluation {
+    /* The exam record this evaluation was made from, written first in
+     * the same transaction (one commit per rebuilt exam instead of two);
+     * NULL: only the evaluation. */
+    const store_exam *exam;
     const char *policy_version, *policy_name, *normalised_text;
     const char *study_instance_uid;
     const char *rule_id, *period;       /* device-level */

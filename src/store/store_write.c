@@ -433,6 +433,18 @@ static void store_fail_batch(store_request *batch, const char *what,
     }
 }
 
+/* An evaluation, after the exam record it was made from when it has one. */
+static mitilog_status store_write_evaluated(store *st, store_request *request)
+{
+    const store_evaluation *evaluation = request->evaluation;
+    if (evaluation->exam != NULL) {
+        mitilog_status status = store_write_exam(st, evaluation->exam, &request->error);
+        if (status != MITILOG_OK)
+            return status;
+    }
+    return store_write_evaluation(st, evaluation, &request->counts, &request->error);
+}
+
 /* Writes one request's rows in the open transaction; returns its status. */
 static mitilog_status store_write_one(store *st, store_request *request)
 {
@@ -441,9 +453,7 @@ static mitilog_status store_write_one(store *st, store_request *request)
     request->error.text[0] = '\0';
     return request->record != NULL ? store_write_instance(st, request)
            : request->exam != NULL ? store_write_exam(st, request->exam, &request->error)
-           : request->evaluation != NULL
-               ? store_write_evaluation(st, request->evaluation, &request->counts,
-                                        &request->error)
+           : request->evaluation != NULL ? store_write_evaluated(st, request)
            : request->policy != NULL ? store_write_policy(st, request->policy, &request->error)
                                      : store_write_rejection(st, request);
 }
@@ -599,18 +609,29 @@ mitilog_status store_put_instance(store *st, const ext_record *record,
     return status;
 }
 
-mitilog_status store_put_exam(store *st, const store_exam *exam,
-                              mitilog_error *error)
+/* Refuses an exam the schema would refuse or JSON could not serve. */
+static mitilog_status store_check_exam(const store_exam *exam, mitilog_error *error)
 {
-    if (st == NULL || exam == NULL || exam->exam == NULL ||
-        exam->study_instance_uid == NULL || exam->study_instance_uid[0] == 0)
+    if (exam == NULL || exam->exam == NULL || exam->study_instance_uid == NULL ||
+        exam->study_instance_uid[0] == 0)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "store_put_exam: no store, exam or study");
+                                 "store_put_exam: no exam or study");
     if (!store_is_utf8(exam->study_instance_uid) ||
         !store_is_utf8(exam->exam->exam_type_source) ||
         !store_is_utf8(exam->exam->gestational_age_source))
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "exam: text is not UTF-8");
+    return MITILOG_OK;
+}
+
+mitilog_status store_put_exam(store *st, const store_exam *exam,
+                              mitilog_error *error)
+{
+    if (st == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_put_exam: no store");
+    mitilog_status status = store_check_exam(exam, error);
+    if (status != MITILOG_OK)
+        return status;
     store_request request = {.exam = exam};
     return store_submit(st, &request, error);
 }
@@ -623,6 +644,11 @@ mitilog_status store_put_evaluation(store *st,
     if (st == NULL || evaluation == NULL || evaluation->policy_version == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "store_put_evaluation: no store or evaluation");
+    if (evaluation->exam != NULL) {
+        mitilog_status checked = store_check_exam(evaluation->exam, error);
+        if (checked != MITILOG_OK)
+            return checked;
+    }
     store_request request = {.evaluation = evaluation};
     mitilog_status status = store_submit(st, &request, error);
     if (status == MITILOG_OK && counts != NULL) {
