@@ -61,11 +61,11 @@ static char *ingest_pending_take(ingest_pending *pending, size_t i)
     return key;
 }
 
-/* Adds key (copied) or, when it is waiting already, moves its latest
- * mark to now. Returns 0, or -1 when out of memory. */
+/* Adds key (copied) and returns 1, or, when it is waiting already, moves
+ * its latest mark to now and returns 0; -1 when out of memory. */
 static int ingest_pending_mark(ingest_pending *pending, const char *key, double now)
 {
-    for (size_t i = 0; i < pending->count; i++) {
+    for (size_t i = pending->count; i-- > 0;) {
         if (strcmp(pending->keys[i], key) == 0) {
             pending->last[i] = now;
             return 0;
@@ -92,7 +92,7 @@ static int ingest_pending_mark(ingest_pending *pending, const char *key, double 
     pending->first[pending->count] = now;
     pending->last[pending->count] = now;
     pending->keys[pending->count++] = copy;
-    return 0;
+    return 1;
 }
 
 static void ingest_pending_free(ingest_pending *pending)
@@ -239,7 +239,7 @@ static void ingest_exams_do_study(ingest_exams *exams, const char *study)
     pthread_mutex_lock(&exams->lock);
     double now = ingest_clock_now();
     for (size_t i = 0; i < day_count; i++)
-        if (ingest_pending_mark(&exams->days, days[i], now) != 0)
+        if (ingest_pending_mark(&exams->days, days[i], now) < 0)
             log_error("day %s: out of memory, output_not_reported not evaluated", days[i]);
     if (status == MITILOG_OK)
         exams->rebuilt++;
@@ -345,11 +345,15 @@ void ingest_exams_mark(ingest_exams *exams, const char *study_instance_uid)
     if (!exams->started || study_instance_uid == NULL || study_instance_uid[0] == '\0')
         return;
     pthread_mutex_lock(&exams->lock);
-    if (ingest_pending_mark(&exams->studies, study_instance_uid, ingest_clock_now()) != 0)
-        log_error("study %s: out of memory, exam record not rebuilt", study_instance_uid);
-    else
+    int added = ingest_pending_mark(&exams->studies, study_instance_uid, ingest_clock_now());
+    /* Only a new study can be due before the worker's next wake-up (a
+     * further mark of a waiting one only delays it): waking the worker
+     * for every image cost a context switch per object. */
+    if (added > 0)
         pthread_cond_broadcast(&exams->changed);
     pthread_mutex_unlock(&exams->lock);
+    if (added < 0)
+        log_error("study %s: out of memory, exam record not rebuilt", study_instance_uid);
 }
 
 void ingest_exams_flush(ingest_exams *exams)
