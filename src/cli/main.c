@@ -42,9 +42,10 @@ static void print_usage(FILE *out)
 /* Memory freed at the top of a heap is kept for reuse up to this much
  * instead of going back to the kernel at once: SQLite's statement
  * journal allocates and frees page copies for every row written, and
- * glibc's default returned them with a madvise() call per object (about
- * one system call and the page faults after it per object received). */
-enum { MAIN_TRIM_THRESHOLD_BYTES = 32 << 20 };
+ * glibc's default (a threshold that starts at 128 KiB) returned them with
+ * a madvise() call per object (a system call and the page faults after
+ * it, per object received). */
+enum { MAIN_TRIM_THRESHOLD_BYTES = 4 << 20 };
 
 int main(int argc, char **argv)
 {
