@@ -10,10 +10,60 @@ static int compare_doubles(const void *left, const void *right)
     return (a > b) - (a < b);
 }
 
+/* Stable insertion sort of a short run. */
+static void insertion_sort(double *values, size_t count)
+{
+    for (size_t i = 1; i < count; i++) {
+        double value = values[i];
+        size_t j = i;
+        while (j > 0 && values[j - 1] > value) {
+            values[j] = values[j - 1];
+            j--;
+        }
+        values[j] = value;
+    }
+}
+
+enum { SORT_RUN = 16 };
+
+/* Ascending and stable (equal values keep their order, as with glibc's
+ * merge-sort qsort, so results do not depend on the sort used): sorted
+ * runs of SORT_RUN, then bottom-up merges through a scratch buffer. The
+ * comparisons are inline, which is what makes the period statistics'
+ * many sorts cheap. */
 void stats_sort(double *values, size_t count)
 {
-    if (count > 1)
+    if (count <= SORT_RUN) {
+        insertion_sort(values, count);
+        return;
+    }
+    double *scratch = malloc(count * sizeof *scratch);
+    if (scratch == NULL) {
         qsort(values, count, sizeof *values, compare_doubles);
+        return;
+    }
+    for (size_t start = 0; start < count; start += SORT_RUN)
+        insertion_sort(values + start, count - start < SORT_RUN ? count - start : SORT_RUN);
+    double *from = values, *to = scratch;
+    for (size_t width = SORT_RUN; width < count; width *= 2) {
+        for (size_t left = 0; left < count; left += 2 * width) {
+            size_t middle = left + width < count ? left + width : count;
+            size_t right = middle + width < count ? middle + width : count;
+            size_t i = left, j = middle, k = left;
+            while (i < middle && j < right)
+                to[k++] = from[j] < from[i] ? from[j++] : from[i++];
+            while (i < middle)
+                to[k++] = from[i++];
+            while (j < right)
+                to[k++] = from[j++];
+        }
+        double *swap = from;
+        from = to;
+        to = swap;
+    }
+    if (from != values)
+        memcpy(values, from, count * sizeof *values);
+    free(scratch);
 }
 
 mitilog_status stats_quantile_sorted(const double *sorted, size_t count, double p, double *out)
