@@ -1,17 +1,20 @@
 #!/usr/bin/python3
 """Builds a large mitilog database from simulated traffic, for the query
-benchmarks to come (issue parts 3 and 5: they need endpoints that do not
-exist yet).
+latency benchmark (bench/query.py).
 
-The simulator is run in chunks of --chunk-days consecutive days (seed
-SEED + chunk number, so UIDs never collide between chunks), each chunk is
-imported with `mitilog import` (retention none) and its files deleted, so
-the disk holds one chunk at a time. The result is cached as
-bench/out/db-d<days>-s<seed>/var/mitilog.sqlite3 and reused; --force
-rebuilds it. Prints the instance count and the build time.
+The simulator is run in chunks of --chunk-days consecutive days, once per
+site (--sites N: the department's rooms at N sites, `mitilog simulate
+--site`; seed SEED + chunk + 1000 x (site - 1), so UIDs never collide),
+each chunk is imported with `mitilog import` (the real pipeline, retention
+none, which also builds the exams and evaluates the policy) and its files
+deleted, so the disk holds one chunk at a time. The result is cached as
+bench/out/db-d<days>-s<seed>[-x<sites>]/var/mitilog.sqlite3 and reused;
+--force rebuilds it. Prints the instance and study counts and the build
+time.
 
-    /usr/bin/python3 bench/make_db.py --days 366        # a year, ~400,000 rows
-    /usr/bin/python3 bench/make_db.py --tiny            # 2 days, for CI
+    /usr/bin/python3 bench/make_db.py --days 366             # a year, ~400,000 instances
+    /usr/bin/python3 bench/make_db.py --days 310 --sites 3   # ~1,000,000 instances
+    /usr/bin/python3 bench/make_db.py --tiny                 # 2 days, for CI
 """
 import argparse
 import datetime
@@ -30,10 +33,20 @@ import benchlib  # noqa: E402
 FIRST_DAY = datetime.date(2026, 1, 5)  # a Monday
 
 
+def database_folder(days, seed, sites=1):
+    """Where the database of these options is cached."""
+    name = "db-d%d-s%d" % (days, seed)
+    if sites > 1:
+        name += "-x%d" % sites
+    return os.path.join(benchlib.OUT, name)
+
+
 def main():
     parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     parser.add_argument("--days", type=int, default=366)
     parser.add_argument("--seed", type=int, default=1)
+    parser.add_argument("--sites", type=int, default=1, choices=range(1, 10),
+                        metavar="1-9", help="sites of the department (default 1)")
     parser.add_argument("--chunk-days", type=int, default=28)
     parser.add_argument("--force", action="store_true")
     parser.add_argument("--tiny", action="store_true", help="2 days")
@@ -41,7 +54,7 @@ def main():
     if args.tiny:
         args.days, args.chunk_days = 2, 1
     binary = benchlib.mitilog_binary()
-    folder = os.path.join(benchlib.OUT, "db-d%d-s%d" % (args.days, args.seed))
+    folder = database_folder(args.days, args.seed, args.sites)
     database = os.path.join(folder, "var", "mitilog.sqlite3")
     done = os.path.join(folder, "complete")
     if os.path.exists(done) and not args.force:
@@ -60,13 +73,19 @@ def main():
             start = FIRST_DAY + datetime.timedelta(days=day)
             files = tempfile.mkdtemp(prefix="mitilog-db-", dir="/tmp")
             try:
-                subprocess.run([binary, "simulate", "--out", files, "--days",
-                                str(days), "--seed", str(args.seed + chunk),
-                                "--start", start.isoformat()], check=True,
-                               stdout=subprocess.DEVNULL)
-                os.unlink(os.path.join(files, "manifest.csv"))
-                result = subprocess.run([binary, "import", "--config", config,
-                                         files], stdout=subprocess.PIPE,
+                sites = []
+                for site in range(1, args.sites + 1):
+                    out = os.path.join(files, "site%d" % site)
+                    subprocess.run([binary, "simulate", "--out", out, "--days",
+                                    str(days), "--seed",
+                                    str(args.seed + chunk + 1000 * (site - 1)),
+                                    "--site", str(site),
+                                    "--start", start.isoformat()], check=True,
+                                   stdout=subprocess.DEVNULL)
+                    os.unlink(os.path.join(out, "manifest.csv"))
+                    sites.append(out)
+                result = subprocess.run([binary, "import", "--config", config]
+                                        + sites, stdout=subprocess.PIPE,
                                         stderr=subprocess.PIPE)
                 out = result.stdout.decode(errors="replace").strip()
                 if result.returncode != 0 or not re.search(
