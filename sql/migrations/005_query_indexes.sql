@@ -2,7 +2,8 @@
 -- period, weekly outliers, drift; sql/queries/stats_*.sql): one row per
 -- exam in exam_summaries, kept exact by the triggers below, so that a
 -- period is one range scan by day instead of a walk over every instance
--- and timeline row of the period (docs/performance.md, "Query latency").
+-- and timeline row of the period (docs/performance.md, "Query latency"),
+-- read through the view exam_period_rows.
 --
 -- Each summary row holds, for its exam:
 --   - copies of the exam record (exams) and of its context (exam_context);
@@ -68,6 +69,70 @@ CREATE TABLE exam_summaries (
 ) STRICT, WITHOUT ROWID;
 
 CREATE UNIQUE INDEX exam_summaries_study ON exam_summaries (study_instance_uid);
+
+-- What the period queries read of each exam (stats_exam_rows.sql,
+-- stats_exam_values.sql): the summary with context from exam_context when
+-- the policy engine has written it, else from the first instance;
+-- estimated seconds of the current policy's measurement when there is
+-- one, else of the exam record; dwell sums from the timeline when the
+-- summary's are not known (the same sums the refresh makes). A view, so a
+-- query computes only the columns it selects.
+CREATE VIEW exam_period_rows AS
+SELECT s.day,
+       s.study_instance_uid,
+       s.first_acquired_at,
+       s.exam_type,
+       s.exam_type_label,
+       s.governing_index,
+       s.max_governing,
+       s.max_mi,
+       coalesce(s.context_room, s.first_room) AS room,
+       coalesce(s.context_preset, s.first_preset) AS preset,
+       coalesce(s.context_shift, s.first_shift) AS shift,
+       coalesce(s.context_transducer, s.first_transducer) AS transducer,
+       s.study_description,
+       coalesce(CASE WHEN s.measured_policy IS (SELECT version FROM policies
+                                                 ORDER BY first_loaded_at DESC, rowid DESC
+                                                 LIMIT 1)
+                     THEN s.measured_seconds
+                     ELSE (SELECT m.estimated_seconds FROM exam_measurements m
+                           WHERE m.study_instance_uid = s.study_instance_uid
+                             AND m.policy_version = (SELECT version FROM policies
+                                                     ORDER BY first_loaded_at DESC,
+                                                              rowid DESC LIMIT 1)) END,
+                s.estimated_seconds) AS estimated_seconds,
+       coalesce(s.s07, (SELECT coalesce(sum(iif(
+                    CASE s.governing_index WHEN 'tis' THEN i.tis WHEN 'tib' THEN i.tib
+                                           WHEN 'tic' THEN i.tic END >= 0.7,
+                    tl.attributed_seconds, 0)), 0)
+                FROM exam_timeline tl
+                CROSS JOIN instances i ON i.sop_instance_uid = tl.sop_instance_uid
+                WHERE tl.study_instance_uid = s.study_instance_uid)) AS s07,
+       coalesce(s.s10, (SELECT coalesce(sum(iif(
+                    CASE s.governing_index WHEN 'tis' THEN i.tis WHEN 'tib' THEN i.tib
+                                           WHEN 'tic' THEN i.tic END >= 1.0,
+                    tl.attributed_seconds, 0)), 0)
+                FROM exam_timeline tl
+                CROSS JOIN instances i ON i.sop_instance_uid = tl.sop_instance_uid
+                WHERE tl.study_instance_uid = s.study_instance_uid)) AS s10,
+       coalesce(s.s15, (SELECT coalesce(sum(iif(
+                    CASE s.governing_index WHEN 'tis' THEN i.tis WHEN 'tib' THEN i.tib
+                                           WHEN 'tic' THEN i.tic END >= 1.5,
+                    tl.attributed_seconds, 0)), 0)
+                FROM exam_timeline tl
+                CROSS JOIN instances i ON i.sop_instance_uid = tl.sop_instance_uid
+                WHERE tl.study_instance_uid = s.study_instance_uid)) AS s15,
+       coalesce(s.s20, (SELECT coalesce(sum(iif(
+                    CASE s.governing_index WHEN 'tis' THEN i.tis WHEN 'tib' THEN i.tib
+                                           WHEN 'tic' THEN i.tic END >= 2.0,
+                    tl.attributed_seconds, 0)), 0)
+                FROM exam_timeline tl
+                CROSS JOIN instances i ON i.sop_instance_uid = tl.sop_instance_uid
+                WHERE tl.study_instance_uid = s.study_instance_uid)) AS s20,
+       s.captures,
+       s.indexed_count,
+       s.finding_count
+FROM exam_summaries s;
 
 -- Procedures: inserting a Study Instance UID into these views runs their
 -- INSTEAD OF trigger; nothing is stored in them.

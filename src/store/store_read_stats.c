@@ -130,15 +130,73 @@ enum {
     EXAM_INDEXED, EXAM_FINDINGS, EXAM_FIRST_ACQUIRED
 };
 
-/* One row of stats_exam_rows.sql, or of stats_exam_governing.sql when
- * governing_only. */
+/* The queries the loader chooses from. */
+typedef enum store_exam_query {
+    STORE_QUERY_ROWS,           /* stats_exam_rows.sql: every column */
+    STORE_QUERY_VALUES,         /* stats_exam_values.sql: type, one key, values */
+    STORE_QUERY_GOVERNING       /* stats_exam_governing.sql: type, governing value */
+} store_exam_query;
+
+/* Columns of stats_exam_values.sql. */
+enum {
+    VALUES_TYPE, VALUES_KEY, VALUES_MAX_GOVERNING, VALUES_MAX_MI, VALUES_ESTIMATED,
+    VALUES_SECONDS, VALUES_CAPTURES = VALUES_SECONDS + STORE_THRESHOLD_COUNT, VALUES_INDEXED,
+    VALUES_FINDINGS
+};
+
+/* The context column of a single STORE_EXAM_ROOM/PRESET/SHIFT/TRANSDUCER
+ * bit, as stats_exam_values.sql names it; "" for none; NULL for several. */
+static const char *store_key_name(unsigned columns)
+{
+    switch (columns & (STORE_EXAM_ROOM | STORE_EXAM_PRESET | STORE_EXAM_SHIFT |
+                       STORE_EXAM_TRANSDUCER)) {
+    case 0: return "";
+    case STORE_EXAM_ROOM: return "room";
+    case STORE_EXAM_PRESET: return "preset";
+    case STORE_EXAM_SHIFT: return "shift";
+    case STORE_EXAM_TRANSDUCER: return "transducer";
+    default: return NULL;
+    }
+}
+
+/* Where a row of stats_exam_values.sql puts its key. */
+static char **store_key_field(store_exam_row *row, unsigned columns)
+{
+    if (columns & STORE_EXAM_ROOM)
+        return &row->room;
+    if (columns & STORE_EXAM_PRESET)
+        return &row->preset;
+    if (columns & STORE_EXAM_SHIFT)
+        return &row->shift;
+    if (columns & STORE_EXAM_TRANSDUCER)
+        return &row->transducer;
+    return NULL;
+}
+
+/* One row of the chosen query. */
 static int store_exam_row_read(store_exam_list *list, store_exam_row *row,
-                               sqlite3_stmt *statement, unsigned columns, int governing_only)
+                               sqlite3_stmt *statement, unsigned columns, store_exam_query query)
 {
     int failed = 0;
-    if (governing_only) {
+    if (query == STORE_QUERY_GOVERNING) {
         row->exam_type = store_list_text(list, statement, 0, &failed);
         row->max_governing = store_double(statement, 1, &row->has_max_governing);
+        return failed;
+    }
+    if (query == STORE_QUERY_VALUES) {
+        row->exam_type = store_list_text(list, statement, VALUES_TYPE, &failed);
+        char **key = store_key_field(row, columns);
+        if (key != NULL)
+            *key = store_list_text(list, statement, VALUES_KEY, &failed);
+        row->max_governing =
+            store_double(statement, VALUES_MAX_GOVERNING, &row->has_max_governing);
+        row->max_mi = store_double(statement, VALUES_MAX_MI, &row->has_max_mi);
+        row->estimated_seconds = store_double(statement, VALUES_ESTIMATED, NULL);
+        for (int t = 0; t < STORE_THRESHOLD_COUNT; t++)
+            row->seconds_at_or_above[t] = store_double(statement, VALUES_SECONDS + t, NULL);
+        row->capture_count = (long)sqlite3_column_int64(statement, VALUES_CAPTURES);
+        row->indexed_count = (long)sqlite3_column_int64(statement, VALUES_INDEXED);
+        row->finding_count = (long)sqlite3_column_int64(statement, VALUES_FINDINGS);
         return failed;
     }
     row->exam_type = store_list_text(list, statement, EXAM_TYPE, &failed);
@@ -171,11 +229,13 @@ static int store_exam_row_read(store_exam_list *list, store_exam_row *row,
     return failed;
 }
 
-static mitilog_status store_load_exams(store *st, const char *query, const char *from_day,
+static mitilog_status store_load_exams(store *st, store_exam_query query, const char *from_day,
                                        const char *to_day, unsigned columns,
-                                       int governing_only, store_exam_list *list,
-                                       mitilog_error *error)
+                                       store_exam_list *list, mitilog_error *error)
 {
+    static const char *const names[] = {"queries/stats_exam_rows.sql",
+                                        "queries/stats_exam_values.sql",
+                                        "queries/stats_exam_governing.sql"};
     memset(list, 0, sizeof *list);
     if (st == NULL || from_day == NULL || to_day == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
@@ -183,12 +243,17 @@ static mitilog_status store_load_exams(store *st, const char *query, const char 
     sqlite3_stmt *statement = NULL;
     size_t capacity = 0;
     pthread_mutex_lock(&st->reader_lock);
-    mitilog_status status = store_period_statement(st, query, from_day, to_day, &statement,
-                                                   error);
+    mitilog_status status = store_period_statement(st, names[query], from_day, to_day,
+                                                   &statement, error);
+    if (status == MITILOG_OK && query == STORE_QUERY_VALUES &&
+        sqlite3_bind_text(statement, 3, store_key_name(columns), -1, SQLITE_STATIC) !=
+            SQLITE_OK)
+        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: bind failed",
+                                   names[query]);
     int rc = SQLITE_DONE;
     while (status == MITILOG_OK && (rc = sqlite3_step(statement)) == SQLITE_ROW) {
         store_exam_row *row = store_list_add(list, &capacity);
-        if (row == NULL || store_exam_row_read(list, row, statement, columns, governing_only))
+        if (row == NULL || store_exam_row_read(list, row, statement, columns, query))
             status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "exam rows: out of memory");
     }
     if (status == MITILOG_OK && rc != SQLITE_DONE)
@@ -204,16 +269,20 @@ mitilog_status store_load_exam_rows(store *st, const char *from_day, const char 
                                     unsigned columns, store_exam_list *list,
                                     mitilog_error *error)
 {
-    return store_load_exams(st, "queries/stats_exam_rows.sql", from_day, to_day, columns, 0,
-                            list, error);
+    /* Without identity and detail columns and with at most one grouping
+     * column, the short rows of stats_exam_values.sql do. */
+    store_exam_query query =
+        (columns & (STORE_EXAM_IDENTITY | STORE_EXAM_DETAIL)) == 0 && store_key_name(columns)
+            ? STORE_QUERY_VALUES
+            : STORE_QUERY_ROWS;
+    return store_load_exams(st, query, from_day, to_day, columns, list, error);
 }
 
 mitilog_status store_load_exam_governing(store *st, const char *from_day,
                                          const char *before_day, store_exam_list *list,
                                          mitilog_error *error)
 {
-    return store_load_exams(st, "queries/stats_exam_governing.sql", from_day, before_day, 0, 1,
-                            list, error);
+    return store_load_exams(st, STORE_QUERY_GOVERNING, from_day, before_day, 0, list, error);
 }
 
 void store_finding_counts_free(store_finding_count *rows, size_t count)

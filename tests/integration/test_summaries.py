@@ -4,9 +4,9 @@ The period views read one summary row per exam, kept by triggers. These
 tests compute the same rows the way the views did before the summaries
 existed (ORACLE below: from exams, exam_timeline, instances, exam_context,
 exam_measurements and findings directly) and require the rows of
-sql/queries/stats_exam_rows.sql, stats_finding_counts.sql and
-stats_policy_info.sql to be identical, value for value (floats compared
-exactly): after an import, after an object is sent again over DICOM with a
+sql/queries/stats_exam_rows.sql, stats_exam_values.sql,
+stats_exam_governing.sql, stats_finding_counts.sql and stats_policy_info.sql
+to be identical, value for value (floats compared exactly): after an import, after an object is sent again over DICOM with a
 changed index, and after each of a series of direct edits of the base
 tables (every trigger path: instance value change, move to another study,
 deletion, an earlier instance, timeline rewrites, context, measurements, a
@@ -120,6 +120,11 @@ def exact(rows):
     return [tuple(repr(v) if isinstance(v, float) else v for v in row) for row in rows]
 
 
+def zero_as_real(rows):
+    """0 and 0.0 are the same number to the reader (sqlite3_column_double)."""
+    return [tuple(0.0 if v == 0 and isinstance(v, int) else v for v in row) for row in rows]
+
+
 def assert_summaries_exact(db, periods=(("0000-00-00", "9999-99-99"),)):
     for first, last in periods:
         for oracle, name in ((ORACLE_EXAM_ROWS, "stats_exam_rows.sql"),
@@ -127,12 +132,20 @@ def assert_summaries_exact(db, periods=(("0000-00-00", "9999-99-99"),)):
                              (ORACLE_POLICY_INFO, "stats_policy_info.sql")):
             expected = db.execute(oracle, (first, last)).fetchall()
             got = db.execute(query_text(name), (first, last)).fetchall()
-            # 0 and 0.0 are the same number to the reader (sqlite3_column_double)
-            expected = [tuple(0.0 if v == 0 and isinstance(v, int) else v for v in row)
-                        for row in expected]
-            got = [tuple(0.0 if v == 0 and isinstance(v, int) else v for v in row)
-                   for row in got]
-            assert exact(got) == exact(expected), (name, first, last)
+            assert exact(zero_as_real(got)) == exact(zero_as_real(expected)), (name, first, last)
+        # the short rows statistics read: the same exams and values, in the
+        # same order, with one grouping key
+        expected = db.execute(ORACLE_EXAM_ROWS, (first, last)).fetchall()
+        for key, column in (("", None), ("room", 7), ("preset", 8), ("shift", 9),
+                            ("transducer", 10)):
+            got = db.execute(query_text("stats_exam_values.sql"), (first, last, key)).fetchall()
+            assert exact(zero_as_real(got)) == exact(zero_as_real(
+                [(r[2], r[column] if column else None) + r[5:7] + r[12:20]
+                 for r in expected])), key
+        # a weekly baseline: type and governing value of the days before the last
+        got = db.execute(query_text("stats_exam_governing.sql"), (first, last)).fetchall()
+        assert sorted(exact(got), key=repr) == sorted(
+            exact([(r[2], r[5]) for r in expected if r[1] < last]), key=repr)
     assert db.execute("SELECT count(*) FROM exam_summaries").fetchone()[0] == \
         db.execute("SELECT count(*) FROM exams").fetchone()[0]
 
