@@ -220,11 +220,34 @@ CREATE TRIGGER exam_summaries_exam_insert AFTER INSERT ON exams
 BEGIN
     INSERT INTO exam_summary_refresh VALUES (NEW.study_instance_uid);
 END;
+-- A rewritten exam record: its own columns, and its dwell sums when the
+-- governing index changed or the timeline is empty (a rebuild deletes it
+-- first); what comes from instances is kept by their triggers.
 CREATE TRIGGER exam_summaries_exam_update AFTER UPDATE ON exams
 BEGIN
-    INSERT INTO exam_summary_refresh VALUES (OLD.study_instance_uid);
-    INSERT INTO exam_summary_refresh SELECT NEW.study_instance_uid
+    INSERT INTO exam_summary_refresh SELECT OLD.study_instance_uid
         WHERE NEW.study_instance_uid IS NOT OLD.study_instance_uid;
+    INSERT INTO exam_summary_refresh SELECT NEW.study_instance_uid
+        WHERE NEW.study_instance_uid IS NOT OLD.study_instance_uid
+           OR NOT EXISTS (SELECT 1 FROM exam_summaries
+                          WHERE study_instance_uid = NEW.study_instance_uid);
+    UPDATE exam_summaries SET
+        day = coalesce(substr(coalesce(NEW.first_acquired_at, min_received_at), 1, 10), ''),
+        first_acquired_at = NEW.first_acquired_at,
+        exam_type = NEW.exam_type,
+        exam_type_label = NEW.exam_type_label,
+        governing_index = NEW.governing_index,
+        max_governing = CASE NEW.governing_index WHEN 'tis' THEN NEW.max_tis
+                        WHEN 'tib' THEN NEW.max_tib WHEN 'tic' THEN NEW.max_tic END,
+        max_mi = NEW.max_mi,
+        estimated_seconds = NEW.estimated_seconds
+    WHERE study_instance_uid = NEW.study_instance_uid
+      AND NEW.study_instance_uid IS OLD.study_instance_uid;
+    INSERT INTO exam_summary_dwell_refresh SELECT NEW.study_instance_uid
+        WHERE NEW.study_instance_uid IS OLD.study_instance_uid
+          AND (NEW.governing_index IS NOT OLD.governing_index
+               OR NOT EXISTS (SELECT 1 FROM exam_timeline
+                              WHERE study_instance_uid = NEW.study_instance_uid));
 END;
 CREATE TRIGGER exam_summaries_exam_delete AFTER DELETE ON exams
 BEGIN
@@ -270,16 +293,36 @@ BEGIN
         day = coalesce(substr(coalesce(first_acquired_at,
                                        iif(min_received_at IS NULL
                                            OR NEW.received_at < min_received_at,
-                                           NEW.received_at, min_received_at)), 1, 10), '')
+                                           NEW.received_at, min_received_at)), 1, 10), ''),
+        first_key = iif((first_id IS NULL OR coalesce(NEW.acquired_at, NEW.received_at) < first_key
+                     OR (coalesce(NEW.acquired_at, NEW.received_at) = first_key
+                         AND NEW.id < first_id)),
+                 coalesce(NEW.acquired_at, NEW.received_at), first_key),
+        first_id = iif((first_id IS NULL OR coalesce(NEW.acquired_at, NEW.received_at) < first_key
+                     OR (coalesce(NEW.acquired_at, NEW.received_at) = first_key
+                         AND NEW.id < first_id)),
+                 NEW.id, first_id),
+        first_room = iif((first_id IS NULL OR coalesce(NEW.acquired_at, NEW.received_at) < first_key
+                     OR (coalesce(NEW.acquired_at, NEW.received_at) = first_key
+                         AND NEW.id < first_id)),
+                 NEW.room, first_room),
+        first_preset = iif((first_id IS NULL OR coalesce(NEW.acquired_at, NEW.received_at) < first_key
+                     OR (coalesce(NEW.acquired_at, NEW.received_at) = first_key
+                         AND NEW.id < first_id)),
+                 NEW.preset, first_preset),
+        first_shift = iif((first_id IS NULL OR coalesce(NEW.acquired_at, NEW.received_at) < first_key
+                     OR (coalesce(NEW.acquired_at, NEW.received_at) = first_key
+                         AND NEW.id < first_id)),
+                 NEW.shift, first_shift),
+        first_transducer = iif((first_id IS NULL OR coalesce(NEW.acquired_at, NEW.received_at) < first_key
+                     OR (coalesce(NEW.acquired_at, NEW.received_at) = first_key
+                         AND NEW.id < first_id)),
+                 NEW.transducer_data, first_transducer),
+        study_description = iif((first_id IS NULL OR coalesce(NEW.acquired_at, NEW.received_at) < first_key
+                     OR (coalesce(NEW.acquired_at, NEW.received_at) = first_key
+                         AND NEW.id < first_id)),
+                 NEW.study_description, study_description)
     WHERE study_instance_uid = NEW.study_instance_uid;
-    UPDATE exam_summaries SET
-        (first_key, first_id, first_room, first_preset, first_shift, first_transducer,
-         study_description) =
-            (coalesce(NEW.acquired_at, NEW.received_at), NEW.id, NEW.room, NEW.preset,
-             NEW.shift, NEW.transducer_data, NEW.study_description)
-    WHERE study_instance_uid = NEW.study_instance_uid
-      AND (first_id IS NULL OR coalesce(NEW.acquired_at, NEW.received_at) < first_key
-           OR (coalesce(NEW.acquired_at, NEW.received_at) = first_key AND NEW.id < first_id));
 END;
 CREATE TRIGGER exam_summaries_instance_update
 AFTER UPDATE OF study_instance_uid, sop_instance_uid, object_kind, mi, tis, tib, tic,
