@@ -272,7 +272,7 @@ enum { STORE_THRESHOLD_COUNT = 4 };   /* governing TI 0.7, 1.0, 1.5, 2.0 */
 
 /* One exam for statistics (sql/queries/stats_exam_rows.sql). Strings
  * belong to the store_exam_list that holds the row (NULL: not recorded,
- * or a column not asked for). */
+ * or a column not asked for; study_instance_uid is always read). */
 typedef struct store_exam_row {
     char *study_instance_uid;
     char *day;                  /* local date of the first capture */
@@ -294,7 +294,7 @@ typedef struct store_exam_row {
  * others are left NULL): copying only what a report uses keeps a long
  * period cheap. */
 enum {
-    STORE_EXAM_IDENTITY = 1 << 0,   /* study_instance_uid, day, first_acquired_at */
+    STORE_EXAM_IDENTITY = 1 << 0,   /* day, first_acquired_at */
     STORE_EXAM_DETAIL = 1 << 1,     /* exam_type_label, governing_index, study_description */
     STORE_EXAM_ROOM = 1 << 2,
     STORE_EXAM_PRESET = 1 << 3,

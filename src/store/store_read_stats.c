@@ -28,12 +28,15 @@ static char *store_text_copy(sqlite3_stmt *statement, int column, int *failed)
     return copy;
 }
 
+/* One call into the connection per column (each sqlite3_column_* call
+ * takes the connection's mutex; the value's type and number do not). */
 static double store_double(sqlite3_stmt *statement, int column, int *present)
 {
-    int null = sqlite3_column_type(statement, column) == SQLITE_NULL;
+    sqlite3_value *value = sqlite3_column_value(statement, column);
+    int null = sqlite3_value_type(value) == SQLITE_NULL;
     if (present != NULL)
         *present = !null;
-    return null ? 0.0 : sqlite3_column_double(statement, column);
+    return null ? 0.0 : sqlite3_value_double(value);
 }
 
 /* Prepares name on the reader and binds the two days. Call under lock. */
@@ -141,7 +144,7 @@ typedef enum store_exam_query {
 enum {
     VALUES_TYPE, VALUES_KEY, VALUES_MAX_GOVERNING, VALUES_MAX_MI, VALUES_ESTIMATED,
     VALUES_SECONDS, VALUES_CAPTURES = VALUES_SECONDS + STORE_THRESHOLD_COUNT, VALUES_INDEXED,
-    VALUES_FINDINGS
+    VALUES_FINDINGS, VALUES_UID
 };
 
 /* The context column of a single STORE_EXAM_ROOM/PRESET/SHIFT/TRANSDUCER
@@ -197,11 +200,12 @@ static int store_exam_row_read(store_exam_list *list, store_exam_row *row,
         row->capture_count = (long)sqlite3_column_int64(statement, VALUES_CAPTURES);
         row->indexed_count = (long)sqlite3_column_int64(statement, VALUES_INDEXED);
         row->finding_count = (long)sqlite3_column_int64(statement, VALUES_FINDINGS);
+        row->study_instance_uid = store_list_text(list, statement, VALUES_UID, &failed);
         return failed;
     }
     row->exam_type = store_list_text(list, statement, EXAM_TYPE, &failed);
+    row->study_instance_uid = store_list_text(list, statement, EXAM_UID, &failed);
     if (columns & STORE_EXAM_IDENTITY) {
-        row->study_instance_uid = store_list_text(list, statement, EXAM_UID, &failed);
         row->day = store_list_text(list, statement, EXAM_DAY, &failed);
         row->first_acquired_at = store_list_text(list, statement, EXAM_FIRST_ACQUIRED, &failed);
     }
@@ -227,6 +231,14 @@ static int store_exam_row_read(store_exam_list *list, store_exam_row *row,
     row->indexed_count = (long)sqlite3_column_int64(statement, EXAM_INDEXED);
     row->finding_count = (long)sqlite3_column_int64(statement, EXAM_FINDINGS);
     return failed;
+}
+
+/* Study Instance UID order: SQLite's BINARY collation (memcmp, then
+ * length) is strcmp's order on these NUL-free strings; UIDs are unique. */
+static int store_compare_rows(const void *left, const void *right)
+{
+    const store_exam_row *a = left, *b = right;
+    return strcmp(a->study_instance_uid, b->study_instance_uid);
 }
 
 static mitilog_status store_load_exams(store *st, store_exam_query query, const char *from_day,
@@ -260,9 +272,15 @@ static mitilog_status store_load_exams(store *st, store_exam_query query, const 
         status = store_sql_error(error, st->reader, "query exam rows");
     sqlite3_finalize(statement);
     pthread_mutex_unlock(&st->reader_lock);
-    if (status != MITILOG_OK)
+    if (status != MITILOG_OK) {
         store_exam_list_free(list);
-    return status;
+        return status;
+    }
+    /* Sorted here rather than by the query: SQLite's sorter copied every
+     * row into a record and back, about as much work as the scan. */
+    if (query != STORE_QUERY_GOVERNING && list->count > 1)
+        qsort(list->rows, list->count, sizeof *list->rows, store_compare_rows);
+    return MITILOG_OK;
 }
 
 mitilog_status store_load_exam_rows(store *st, const char *from_day, const char *to_day,
