@@ -12,6 +12,14 @@ bench/out/db-d<days>-s<seed>[-x<sites>]/var/mitilog.sqlite3 and reused;
 --force rebuilds it. Prints the instance and study counts and the build
 time.
 
+A department's database holds closed exams (an exam closes when its last
+object is older than the policy's closing time, 60 minutes, and is then
+evaluated once more, its findings no longer provisional). An import closes
+only the exams it received more than that long before it ends, so once
+that time has passed, make_db.py (every call, cached or not) runs
+`mitilog serve` on the database until its closing sweep has closed them;
+until then it says how many are still open and when they are due.
+
     /usr/bin/python3 bench/make_db.py --days 366             # a year, ~400,000 instances
     /usr/bin/python3 bench/make_db.py --days 310 --sites 3   # ~1,000,000 instances
     /usr/bin/python3 bench/make_db.py --tiny                 # 2 days, for CI
@@ -21,6 +29,7 @@ import datetime
 import os
 import re
 import shutil
+import signal
 import sqlite3
 import subprocess
 import sys
@@ -39,6 +48,82 @@ def database_folder(days, seed, sites=1):
     if sites > 1:
         name += "-x%d" % sites
     return os.path.join(benchlib.OUT, name)
+
+
+# Open exams the closing sweep of `mitilog serve` would close now: idle for
+# at least the current policy's closing time (exams_due_closing.sql).
+DUE = """SELECT count(*),
+       (SELECT count(*) FROM exam_context WHERE closed = 0),
+       (SELECT min(last_received_at) FROM exam_context WHERE closed = 0)
+FROM exam_context
+WHERE closed = 0
+  AND (julianday('now') - julianday(last_received_at)) * 86400.0
+      >= 60.0 * coalesce((SELECT closed_after_idle_minutes FROM policies
+                          ORDER BY first_loaded_at DESC, rowid DESC LIMIT 1), 60)"""
+
+
+def open_exams(database):
+    """(exams due for closing now, exams open, oldest open receipt)."""
+    with sqlite3.connect("file:%s?mode=ro" % database, uri=True, timeout=30) as db:
+        return db.execute(DUE).fetchone()
+
+
+def wait_closed(database, pid, timeout=3600):
+    """Waits until the serve process pid has closed every exam due for
+    closing and its CPU time has stopped growing (the re-evaluations are
+    done). Returns the seconds waited."""
+    started = time.monotonic()
+    last_cpu, quiet = None, 0
+    while True:
+        due, _, _ = open_exams(database)
+        with open("/proc/%d/stat" % pid) as f:
+            fields = f.read().rsplit(")", 1)[1].split()
+        cpu = int(fields[11]) + int(fields[12])
+        quiet = quiet + 1 if due == 0 and cpu == last_cpu else 0
+        if quiet >= 3:
+            return time.monotonic() - started
+        if time.monotonic() - started > timeout:
+            raise SystemExit("make_db: %d exam(s) still due for closing after %d s"
+                             % (due, timeout))
+        last_cpu = cpu
+        time.sleep(2)
+
+
+def settle(binary, folder):
+    """Brings a built database to the state of a department whose data is
+    older than the closing time: every exam closed, its findings final.
+    Exams close when their last receipt is older than the policy's closing
+    time (60 minutes by default), so right after a build nothing is due;
+    once some are, `mitilog serve` runs on the database until its closing
+    sweep has re-evaluated them all. Returns (exams still open, minutes
+    until the oldest of them is due, or None)."""
+    database = os.path.join(folder, "var", "mitilog.sqlite3")
+    due, still_open, _ = open_exams(database)
+    if due > 0:
+        config = os.path.join(folder, "settle.ini")
+        with open(config, "w") as f:
+            f.write("[dicom]\nport = %d\n\n[http]\naddress = 127.0.0.1\nport = %d\n\n"
+                    "[storage]\ndata_directory = %s\nretention = none\n\n"
+                    "[log]\nlevel = warning\n" % (benchlib.free_port(), benchlib.free_port(),
+                                                   os.path.join(folder, "var")))
+        benchlib.log("settling: %d exam(s) due for closing, running mitilog serve" % due)
+        process = subprocess.Popen([binary, "serve", "--config", config], env=benchlib.ENV,
+                                   stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        try:
+            seconds = wait_closed(database, process.pid)
+        finally:
+            process.send_signal(signal.SIGTERM)
+            process.wait(timeout=600)
+        benchlib.log("settled in %.0f s" % seconds)
+    due, still_open, oldest = open_exams(database)
+    minutes = None
+    if still_open:
+        with sqlite3.connect("file:%s?mode=ro" % database, uri=True) as db:
+            minutes = db.execute(
+                "SELECT 60.0 * coalesce((SELECT closed_after_idle_minutes FROM policies "
+                "ORDER BY first_loaded_at DESC, rowid DESC LIMIT 1), 60) - "
+                "(julianday('now') - julianday(?)) * 1440.0", (oldest,)).fetchone()[0]
+    return still_open, minutes
 
 
 def main():
@@ -100,6 +185,10 @@ def main():
             chunk += 1
         open(done, "w").close()
         benchlib.log("built in %.0f s" % (time.monotonic() - started))
+    still_open, minutes = settle(binary, folder)
+    if still_open:
+        benchlib.log("%d exam(s) still open: the next become due for closing in %.0f minutes "
+                     "(run make_db.py again then to settle them)" % (still_open, minutes))
     with sqlite3.connect("file:%s?mode=ro" % database, uri=True) as db:
         count = db.execute("select count(*) from instances").fetchone()[0]
         studies = db.execute("select count(distinct study_instance_uid) "

@@ -2,8 +2,9 @@
 """Query latency of the dashboard's endpoints over HTTP, on databases made
 by bench/make_db.py, at one or more sizes (the scale curve).
 
-For each size the cached database is copied, brought to the current
-schema (migrations run on the copy, timed) and served by `mitilog serve`; each endpoint is then
+For each size the cached database (settled: its exams closed, see
+make_db.py) is copied, brought to the current schema (migrations run on the
+copy, timed) and served by `mitilog serve`; each endpoint is then
 loaded with wrk (Debian's package; bench/query.lua prints its latency
 percentiles): one connection, requests one after another for --seconds
 after a one-second warm-up, so a latency is one request's service time
@@ -44,11 +45,11 @@ ENDPOINTS = ("weekly outliers", "stats, a quarter", "one exam", "findings filter
 
 
 def prepare(days, seed, sites):
-    """The cached database of this size, built if missing."""
+    """The cached database of this size, built if missing and settled (its
+    exams closed) when their closing time has passed (make_db.py)."""
     folder = make_db.database_folder(days, seed, sites)
-    if not os.path.exists(os.path.join(folder, "complete")):
-        subprocess.run([sys.executable, os.path.join(HERE, "make_db.py"), "--days", str(days),
-                        "--seed", str(seed), "--sites", str(sites)], check=True)
+    subprocess.run([sys.executable, os.path.join(HERE, "make_db.py"), "--days", str(days),
+                    "--seed", str(seed), "--sites", str(sites)], check=True)
     return os.path.join(folder, "var", "mitilog.sqlite3")
 
 
@@ -131,6 +132,16 @@ def run_size(binary, days, seed, sites, seconds, connections):
     instances, studies, first_day, last_day, busiest = facts(server.database)
     server.start()
     try:
+        # Exams that became due for closing since the cache was settled are
+        # closed by the server's sweep before anything is timed.
+        due, still_open, _ = make_db.open_exams(server.database)
+        if due:
+            benchlib.log("waiting for the closing sweep: %d exam(s) due" % due)
+            make_db.wait_closed(server.database, server.process.pid)
+        due, still_open, _ = make_db.open_exams(server.database)
+        if still_open:
+            benchlib.log("warning: %d exam(s) still open; the closing sweep will re-evaluate "
+                         "them while this runs if their closing time passes" % still_open)
         results = [dict(measure(server.http_port, path, seconds, connections), endpoint=name)
                    for name, path in endpoints(first_day, last_day, busiest)]
     finally:
@@ -138,7 +149,7 @@ def run_size(binary, days, seed, sites, seconds, connections):
         server.close()
     return {"days": days, "sites": sites, "seed": seed, "instances": instances,
             "studies": studies, "database_mb": round(size_mb, 1),
-            "migration_seconds": round(migration_seconds, 1),
+            "migration_seconds": round(migration_seconds, 1), "open_exams": still_open,
             "endpoints": results}
 
 
