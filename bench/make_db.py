@@ -120,7 +120,7 @@ def settle(binary, folder):
     if still_open:
         with sqlite3.connect("file:%s?mode=ro" % database, uri=True) as db:
             minutes = db.execute(
-                "SELECT 60.0 * coalesce((SELECT closed_after_idle_minutes FROM policies "
+                "SELECT coalesce((SELECT closed_after_idle_minutes FROM policies "
                 "ORDER BY first_loaded_at DESC, rowid DESC LIMIT 1), 60) - "
                 "(julianday('now') - julianday(?)) * 1440.0", (oldest,)).fetchone()[0]
     return still_open, minutes
