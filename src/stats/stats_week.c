@@ -372,14 +372,14 @@ static void distribution_of(double *values, size_t count, stats_distribution *ou
     out->count = count;
     if (count == 0)
         return;
-    stats_sort(values, count);
-    out->minimum = values[0];
-    out->maximum = values[count - 1];
-    stats_quantile_sorted(values, count, 0.05, &out->p05);
-    stats_quantile_sorted(values, count, 0.25, &out->p25);
-    stats_quantile_sorted(values, count, 0.50, &out->median);
-    stats_quantile_sorted(values, count, 0.75, &out->p75);
-    stats_quantile_sorted(values, count, 0.95, &out->p95);
+    static const double p[] = {0.05, 0.25, 0.50, 0.75, 0.95};
+    double q[5];
+    stats_quantiles(values, count, p, 5, q, &out->minimum, &out->maximum);
+    out->p05 = q[0];
+    out->p25 = q[1];
+    out->median = q[2];
+    out->p75 = q[3];
+    out->p95 = q[4];
 }
 
 /* ---- weekly outliers ---- */
@@ -693,9 +693,11 @@ static void period_row(const stats_exam *exams, const size_t *members, size_t co
                 time->exam_count++;
         }
         if (n > 0) {
-            stats_sort(values, n);
-            stats_median_sorted(values, n, &time->median_seconds);
-            stats_quantile_sorted(values, n, 0.95, &time->p95_seconds);
+            static const double p[] = {0.50, 0.95};
+            double q[2];
+            stats_quantiles(values, n, p, 2, q, NULL, NULL);
+            time->median_seconds = q[0];
+            time->p95_seconds = q[1];
         }
     }
 #undef MEMBER

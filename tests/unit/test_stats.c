@@ -164,11 +164,57 @@ static void sort_is_ascending_and_stable(void **state)
     }
 }
 
+/* stats_quantiles against sorting: the same numbers, bit for bit, for
+ * sizes around the selection's cut-over, many equal values (zeros, as
+ * dwell times have) and distinct ones; the type 7 quantiles of Python's
+ * statistics module at the top of this file come out of stats_sort and
+ * stats_quantile_sorted, so this ties the selection to them.
+ * Common practice, no source. */
+static void quantiles_select_as_sorting_does(void **state)
+{
+    (void)state;
+    static const size_t sizes[] = {1, 2, 3, 16, 17, 40, 101, 1000, 5003};
+    static const double p[] = {0.05, 0.25, 0.50, 0.75, 0.95, 0.999, 0.0, 1.0};
+    enum { P = sizeof p / sizeof p[0] };
+    uint64_t random_state = 987654321;
+    for (int kind = 0; kind < 3; kind++) {
+        for (size_t s = 0; s < sizeof sizes / sizeof sizes[0]; s++) {
+            size_t n = sizes[s];
+            double *values = malloc(n * sizeof *values), *sorted = malloc(n * sizeof *sorted);
+            assert_non_null(values);
+            assert_non_null(sorted);
+            for (size_t i = 0; i < n; i++) {
+                random_state = random_state * 6364136223846793005u + 1442695040888963407u;
+                unsigned r = (unsigned)(random_state >> 33);
+                values[i] = kind == 0   ? (r % 10 < 7 ? 0.0 : (double)(r % 50) / 10.0)
+                            : kind == 1 ? (double)(r % 1000003) / 7.0
+                                        : (double)(n - i);   /* descending */
+                sorted[i] = values[i];
+            }
+            stats_sort(sorted, n);
+            double got[P], minimum, maximum;
+            stats_quantiles(values, n, p, P, got, &minimum, &maximum);
+            assert_memory_equal(&minimum, &sorted[0], sizeof minimum);
+            assert_memory_equal(&maximum, &sorted[n - 1], sizeof maximum);
+            for (size_t q = 0; q < P; q++) {
+                double expected;
+                assert_int_equal(stats_quantile_sorted(sorted, n, p[q], &expected), MITILOG_OK);
+                if (memcmp(&got[q], &expected, sizeof expected) != 0)
+                    fail_msg("kind %d, n %zu, p %g: %.17g != %.17g", kind, n, p[q], got[q],
+                             expected);
+            }
+            free(values);
+            free(sorted);
+        }
+    }
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(quantiles_match_python_inclusive),
         cmocka_unit_test(sort_is_ascending_and_stable),
+        cmocka_unit_test(quantiles_select_as_sorting_does),
         cmocka_unit_test(even_count),
         cmocka_unit_test(robust_z_hand_worked),
         cmocka_unit_test(zero_mad_falls_back_on_p95),
