@@ -7,7 +7,8 @@ exam_measurements and findings directly) and require the rows of
 sql/queries/stats_exam_rows.sql, stats_exam_values.sql (both in the Study
 Instance UID order the store sorts them into), stats_exam_governing.sql,
 stats_finding_counts.sql and stats_policy_info.sql to be identical, value
-for value (floats compared exactly): after an import, after an object is sent again over DICOM with a
+for value (floats compared exactly), and findings.sql to return the same
+document as the full scan it replaced: after an import, after an object is sent again over DICOM with a
 changed index, and after each of a series of direct edits of the base
 tables (every trigger path: instance value change, move to another study,
 deletion, an earlier instance, timeline rewrites, context, measurements, a
@@ -96,6 +97,33 @@ WHERE f.superseded = 0
       BETWEEN ?1 AND ?2
 GROUP BY f.study_instance_uid, f.rule_id
 ORDER BY f.study_instance_uid, f.rule_id
+"""
+
+ORACLE_FINDINGS = """
+WITH chosen AS (
+    SELECT f.*, substr(coalesce(f.started_at, e.first_acquired_at, f.period), 1, 10) AS day
+    FROM findings f LEFT JOIN exams e ON e.study_instance_uid = f.study_instance_uid
+    WHERE (?8 OR f.superseded = 0)
+      AND (?3 IS NULL OR f.severity = ?3) AND (?4 IS NULL OR f.rule_id = ?4)
+      AND (?5 IS NULL OR f.room = ?5) AND (?6 IS NULL OR f.preset = ?6)
+      AND (?7 IS NULL OR f.shift = ?7))
+SELECT coalesce(json_group_array(json(document)), '[]') FROM (
+    SELECT json_object(
+        'id', id, 'study_instance_uid', study_instance_uid, 'rule_id', rule_id,
+        'severity', severity, 'quantity', quantity, 'measured_value', measured_value,
+        'unit', unit, 'limit_value', limit_value, 'threshold', threshold,
+        'governing_index', governing_index, 'instance_uids', json(instance_uids),
+        'started_at', started_at, 'ended_at', ended_at,
+        'estimated_seconds', estimated_seconds, 'assumptions', assumptions,
+        'source', source_text,
+        'provisional', json(iif(provisional, 'true', 'false')),
+        'superseded', json(iif(superseded, 'true', 'false')),
+        'policy_version', policy_version, 'exam_type', exam_type, 'room', room,
+        'preset', preset, 'shift', shift, 'transducer', transducer,
+        'period', period, 'evaluated_at', evaluated_at) AS document
+    FROM chosen
+    WHERE (?1 IS NULL OR day >= ?1) AND (?2 IS NULL OR day <= ?2)
+    ORDER BY day DESC, id DESC LIMIT ?9)
 """
 
 ORACLE_POLICY_INFO = """
@@ -299,6 +327,20 @@ def test_every_trigger_path_keeps_summaries_exact(imported, tmp_path):
           "evaluated_at) SELECT ?, 'test_rule', 'advisory', policy_version, 'now' "
           "FROM findings WHERE id = ?", (exams[3], finding[0])))
     edit(("DELETE FROM findings WHERE id = ?", (finding[0],)))
+    # the findings filter (findings.sql: candidates by start time) returns
+    # what the former full scan did, superseded findings and findings
+    # without a start time included
+    edit("UPDATE findings SET superseded = 1 WHERE id % 3 = 0",
+         "UPDATE findings SET started_at = NULL WHERE id % 5 = 0",
+         "UPDATE findings SET started_at = NULL, study_instance_uid = NULL, "
+         "period = '2026-11-03' WHERE id % 7 = 0")
+    for first, last in ((None, None), ("2026-11-03", "2026-11-03"), (None, "2026-11-03"),
+                        ("2026-11-04", None)):
+        for severity in (None, "warning", "advisory"):
+            for superseded in (0, 1):
+                args = (first, last, severity, None, None, None, None, superseded, 1000)
+                assert db.execute(query_text("findings.sql"), args).fetchone() == \
+                    db.execute(ORACLE_FINDINGS, args).fetchone(), args
     # an exam deleted with everything that refers to it
     edit(("DELETE FROM exam_measurements WHERE study_instance_uid = ?", (exams[11],)),
          ("DELETE FROM findings WHERE study_instance_uid = ?", (exams[11],)),
