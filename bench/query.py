@@ -1,20 +1,35 @@
 #!/usr/bin/python3
-"""Query latency of the dashboard's endpoints over HTTP, on a database made
-by bench/make_db.py (default: a year of simulated traffic).
+"""Query latency of the dashboard's endpoints over HTTP, on databases made
+by bench/make_db.py, at one or more sizes (the scale curve).
 
-mitilog serve is started on a copy of the cached database; each endpoint is
-requested --requests times in turn (after one warm-up request) with a plain
-HTTP client, and p50/p95 (statistics.quantiles, method 'inclusive') are
-printed. Latency is wall time from sending the request to the last byte.
+For each size the cached database (settled: its exams closed, see
+make_db.py) is copied, brought to the current schema (migrations run on the
+copy, timed) and served by `mitilog serve`; each endpoint is then
+loaded with wrk (Debian's package; bench/query.lua prints its latency
+percentiles): one connection, requests one after another for --seconds
+after a one-second warm-up, so a latency is one request's service time
+(sending the request to the last byte of the reply). Every reply must be
+200 (checked once with a plain client, which also parses the JSON, then by
+wrk's count of other statuses). Prints a table and writes it as JSON to
+bench/out/query-<date>.json.
 
-    /usr/bin/python3 bench/query.py                 # the 366-day database
-    /usr/bin/python3 bench/query.py --tiny          # 2 days, for CI
+Sizes (--instances): 10000 = 9 days, 100000 = 93 days, 1000000 = 310
+days at 3 sites (make_db.py --sites 3); the simulated department has
+about 1,070 instances and 60 studies a day per site.
+
+    /usr/bin/python3 bench/query.py                                # 1,000,000 instances
+    /usr/bin/python3 bench/query.py --instances 10000,100000,1000000  # the scale curve
+    /usr/bin/python3 bench/query.py --days 84                      # any make_db size
+    /usr/bin/python3 bench/query.py --tiny                         # 2 days, for CI
 """
 import argparse
+import datetime
+import json
 import os
+import platform
+import re
 import shutil
 import sqlite3
-import statistics
 import subprocess
 import sys
 import time
@@ -22,70 +37,175 @@ import urllib.request
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 import benchlib  # noqa: E402
+import make_db  # noqa: E402
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+SIZES = {10000: (9, 1), 100000: (93, 1), 1000000: (310, 3)}
+ENDPOINTS = ("weekly outliers", "stats, a quarter", "one exam", "findings filter")
 
 
-def fetch(port, path):
-    started = time.perf_counter()
-    with urllib.request.urlopen("http://127.0.0.1:%d%s" % (port, path), timeout=60) as reply:
-        reply.read()
-        status = reply.status
-    return time.perf_counter() - started, status
+def prepare(days, seed, sites):
+    """The cached database of this size, built if missing and settled (its
+    exams closed) when their closing time has passed (make_db.py)."""
+    folder = make_db.database_folder(days, seed, sites)
+    subprocess.run([sys.executable, os.path.join(HERE, "make_db.py"), "--days", str(days),
+                    "--seed", str(seed), "--sites", str(sites)], check=True)
+    return os.path.join(folder, "var", "mitilog.sqlite3")
+
+
+def migrate(binary, config):
+    """Opens the store once (a report does), which applies the migrations
+    the database lacks; returns the seconds it took."""
+    started = time.monotonic()
+    subprocess.run([binary, "report", "stats", "--from", "2000-01-01", "--to", "2000-01-01",
+                    "--config", config, "--output", os.devnull], check=True,
+                   stdout=subprocess.DEVNULL)
+    return time.monotonic() - started
+
+
+def facts(database):
+    with sqlite3.connect("file:%s?mode=ro" % database, uri=True) as db:
+        instances = db.execute("SELECT count(*) FROM instances").fetchone()[0]
+        studies = db.execute("SELECT count(*) FROM exams").fetchone()[0]
+        first, last = db.execute("SELECT min(first_acquired_at), max(first_acquired_at) "
+                                 "FROM exams").fetchone()
+        busiest = db.execute("SELECT study_instance_uid FROM exams "
+                             "ORDER BY instance_count DESC, study_instance_uid LIMIT 1"
+                             ).fetchone()[0]
+    return (instances, studies, datetime.date.fromisoformat(first[:10]),
+            datetime.date.fromisoformat(last[:10]), busiest)
+
+
+def endpoints(first_day, last_day, busiest):
+    """The dashboard's four views at the end of the data: the last complete
+    ISO week (the last day's when the data spans less than a week; 12-week
+    baseline), the quarter (92 days) ending on the last day, the largest
+    study, warnings of the quarter."""
+    week_day = last_day
+    if last_day.isoweekday() != 7 and (last_day - first_day).days >= 7:
+        week_day = last_day - datetime.timedelta(days=last_day.isoweekday())
+    year, week, _ = week_day.isocalendar()
+    start = last_day - datetime.timedelta(days=91)
+    return [
+        ("weekly outliers", "/api/v1/outliers?week=%d-W%02d&group=preset" % (year, week)),
+        ("stats, a quarter", "/api/v1/stats?from=%s&to=%s&by=exam_type" % (start, last_day)),
+        ("one exam", "/api/v1/studies/%s" % busiest),
+        ("findings filter", "/api/v1/findings?from=%s&to=%s&severity=warning"
+         % (start, last_day)),
+    ]
+
+
+def wrk(url, seconds, connections):
+    result = subprocess.run(["wrk", "-t1", "-c%d" % connections, "-d%ds" % seconds,
+                             "--timeout", "60s", "-s", os.path.join(HERE, "query.lua"), url],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    line = [l for l in result.stdout.splitlines() if l.startswith("result ")]
+    if result.returncode != 0 or not line:
+        raise SystemExit("query: wrk failed on %s:\n%s%s" % (url, result.stdout, result.stderr))
+    values = dict((k, int(v)) for k, v in re.findall(r"(\w+)=(\d+)", line[0]))
+    if values["errors"] or values["status_errors"] or values["requests"] == 0:
+        raise SystemExit("query: %s: %s" % (url, line[0]))
+    return values
+
+
+def measure(port, path, seconds, connections):
+    url = "http://127.0.0.1:%d%s" % (port, path)
+    with urllib.request.urlopen(url, timeout=120) as reply:
+        body = reply.read()
+        if reply.status != 200:
+            raise SystemExit("query: %s: status %d" % (path, reply.status))
+    json.loads(body)   # a JSON document (an empty list of findings is one)
+    wrk(url, 1, connections)   # warm-up
+    values = wrk(url, seconds, connections)
+    return {"path": path, "requests": values["requests"], "bytes": len(body),
+            "p50_ms": values["p50_us"] / 1000.0, "p95_ms": values["p95_us"] / 1000.0,
+            "p99_ms": values["p99_us"] / 1000.0, "max_ms": values["max_us"] / 1000.0}
+
+
+def run_size(binary, days, seed, sites, seconds, connections):
+    source = prepare(days, seed, sites)
+    server = benchlib.Mitilog(binary, retention="none")
+    os.makedirs(server.data, exist_ok=True)
+    shutil.copy(source, server.database)
+    migration_seconds = migrate(binary, server.config)
+    size_mb = os.path.getsize(server.database) / 1e6
+    instances, studies, first_day, last_day, busiest = facts(server.database)
+    server.start()
+    try:
+        # Exams that became due for closing since the cache was settled are
+        # closed by the server's sweep before anything is timed.
+        due, still_open, _ = make_db.open_exams(server.database)
+        if due:
+            benchlib.log("waiting for the closing sweep: %d exam(s) due" % due)
+            make_db.wait_closed(server.database, server.process.pid)
+        due, still_open, _ = make_db.open_exams(server.database)
+        if still_open:
+            benchlib.log("warning: %d exam(s) still open; the closing sweep will re-evaluate "
+                         "them while this runs if their closing time passes" % still_open)
+        results = [dict(measure(server.http_port, path, seconds, connections), endpoint=name)
+                   for name, path in endpoints(first_day, last_day, busiest)]
+    finally:
+        server.stop()
+        server.close()
+    return {"days": days, "sites": sites, "seed": seed, "instances": instances,
+            "studies": studies, "database_mb": round(size_mb, 1),
+            "migration_seconds": round(migration_seconds, 1), "open_exams": still_open,
+            "endpoints": results}
 
 
 def main():
     parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
-    parser.add_argument("--days", type=int, default=366)
+    parser.add_argument("--instances", default=None,
+                        help="comma-separated sizes among %s (default 1000000)"
+                        % ",".join(str(s) for s in SIZES))
+    parser.add_argument("--days", type=int, help="instead of --instances: make_db days")
+    parser.add_argument("--sites", type=int, default=1, help="with --days (default 1)")
     parser.add_argument("--seed", type=int, default=1)
-    parser.add_argument("--requests", type=int, default=30)
-    parser.add_argument("--tiny", action="store_true")
+    parser.add_argument("--seconds", type=int, default=10, help="wrk run per endpoint")
+    parser.add_argument("--connections", type=int, default=1)
+    parser.add_argument("--tiny", action="store_true", help="2 days, 1 second each")
     args = parser.parse_args()
+    benchlib.require_tools("wrk")
     if args.tiny:
-        args.days, args.requests = 2, 3
-    here = os.path.dirname(os.path.abspath(__file__))
-    source = os.path.join(here, "out", "db-d%d-s%d" % (args.days, args.seed), "var",
-                          "mitilog.sqlite3")
-    if not os.path.exists(source):
-        subprocess.run([sys.executable, os.path.join(here, "make_db.py"), "--days",
-                        str(args.days), "--seed", str(args.seed)], check=True)
+        runs, args.seconds = [(2, 1)], 1
+    elif args.days is not None:
+        runs = [(args.days, args.sites)]
+    else:
+        sizes = [int(s) for s in (args.instances or "1000000").split(",")]
+        unknown = [s for s in sizes if s not in SIZES]
+        if unknown:
+            parser.error("--instances: one of %s" % ", ".join(str(s) for s in SIZES))
+        runs = [SIZES[s] for s in sizes]
     binary = benchlib.mitilog_binary()
-    server = benchlib.Mitilog(binary, retention="none")
-    os.makedirs(server.data, exist_ok=True)
-    shutil.copy(source, server.database)
-    with sqlite3.connect(server.database) as db:
-        instances = db.execute("SELECT count(*) FROM instances").fetchone()[0]
-        studies = db.execute("SELECT count(DISTINCT study_instance_uid) FROM instances").fetchone()[0]
-        last = db.execute("SELECT max(acquired_at) FROM instances").fetchone()[0]
-        busiest = db.execute(
-            "SELECT study_instance_uid FROM instances GROUP BY 1 ORDER BY count(*) DESC LIMIT 1"
-        ).fetchone()[0]
-    server.start()
-    try:
-        year, week, _ = __import__("datetime").date.fromisoformat(last[:10]).isocalendar()
-        end = last[:10]
-        start = (__import__("datetime").date.fromisoformat(end)
-                 - __import__("datetime").timedelta(days=91)).isoformat()
-        endpoints = [
-            ("weekly outliers by preset", "/api/v1/outliers?week=%d-W%02d&group=preset" % (year, week)),
-            ("stats by exam type, a quarter", "/api/v1/stats?from=%s&to=%s&by=exam_type" % (start, end)),
-            ("one exam", "/api/v1/studies/%s" % busiest),
-            ("findings filter", "/api/v1/findings?from=%s&to=%s&severity=warning" % (start, end)),
-        ]
-        benchlib.header("Query latency: %d instances, %d studies" % (instances, studies))
-        print("| endpoint | p50 ms | p95 ms | requests |")
-        print("|---|---:|---:|---:|")
-        for name, path in endpoints:
-            fetch(server.http_port, path)  # warm-up
-            times = []
-            for _ in range(args.requests):
-                seconds, status = fetch(server.http_port, path)
-                assert status == 200, (path, status)
-                times.append(seconds * 1000)
-            cuts = statistics.quantiles(times, n=20, method="inclusive") if len(times) > 1 else times * 19
-            print("| %s `%s` | %.1f | %.1f | %d |" % (name, path, statistics.median(times),
-                                                      cuts[18], len(times)))
-    finally:
-        server.stop()
-        server.close()
+    started = datetime.datetime.now()
+    benchlib.header("Query latency over HTTP (wrk, %d connection, %d s per endpoint)"
+                    % (args.connections, args.seconds))
+    sizes = [run_size(binary, days, args.seed, sites, args.seconds, args.connections)
+             for days, sites in runs]
+    print("| instances | studies | days x sites | %s |" % " | ".join(
+        "%s p50 / p95 ms" % name for name in ENDPOINTS))
+    print("|---:|---:|---|" + "---:|" * len(ENDPOINTS))
+    for size in sizes:
+        print("| %d | %d | %d x %d | %s |" % (
+            size["instances"], size["studies"], size["days"], size["sites"],
+            " | ".join("%.1f / %.1f" % (e["p50_ms"], e["p95_ms"]) for e in size["endpoints"])))
+    for size in sizes:
+        print("\n%d instances:" % size["instances"])
+        for e in size["endpoints"]:
+            print("  %-17s %s  (%d requests, %d bytes)" % (e["endpoint"], e["path"],
+                                                          e["requests"], e["bytes"]))
+    git = subprocess.run(["git", "-C", HERE, "rev-parse", "--short", "HEAD"],
+                         stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, text=True)
+    record = {"benchmark": "query latency", "started": started.isoformat(timespec="seconds"),
+              "machine": benchlib.machine(), "cpus": os.cpu_count(),
+              "python": platform.python_version(), "sqlite": sqlite3.sqlite_version,
+              "commit": git.stdout.strip() or None, "tool": "wrk",
+              "connections": args.connections, "seconds": args.seconds, "sizes": sizes}
+    os.makedirs(benchlib.OUT, exist_ok=True)
+    path = os.path.join(benchlib.OUT, "query-%s.json" % started.strftime("%Y%m%d-%H%M%S"))
+    with open(path, "w") as f:
+        json.dump(record, f, indent=1)
+    benchlib.log("written %s" % os.path.relpath(path))
 
 
 if __name__ == "__main__":

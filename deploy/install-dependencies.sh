@@ -17,6 +17,8 @@ packages=(
   # run and operate: DCMTK tools (storescu, echoscu, img2dcm), sqlite3 CLI,
   # curl for the HTTP API, openssl for TLS certificates
   dcmtk sqlite3 curl openssl
+  # benchmarks: wrk measures the HTTP API's latency (bench/query.py)
+  wrk
   # integration tests: pydicom is the independent parser (NumPy decodes the
   # simulator's pixel data for it), Pillow makes the JPEG fixture,
   # dicom3tools' dciodvfy checks the fixtures against the IODs

@@ -40,7 +40,7 @@ DROP VIEW instance_documents;
 -- 1. Header copies ----------------------------------------------------
 
 CREATE TABLE instance_headers (
-    instance_id  INTEGER PRIMARY KEY REFERENCES instances (id),
+    instance_id  INTEGER PRIMARY KEY REFERENCES instances (id) ON DELETE CASCADE,
     bytes        BLOB NOT NULL    -- Part 10 file: preamble, meta header, data set
 ) STRICT;
 

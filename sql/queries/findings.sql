@@ -3,11 +3,27 @@
 -- started_at, else the exam's first acquisition, else its period),
 -- ?3 severity, ?4 rule, ?5 room, ?6 preset, ?7 shift (NULL = any),
 -- ?8 include superseded (0/1), ?9 limit.
-WITH chosen AS (
+--
+-- Findings with a start time are found through findings_period
+-- (superseded, started_at) in a range that holds every start time whose
+-- date is in [?1, ?2] (the text of a time on day D sorts from D up to, not
+-- including, D + 1 day), so the work follows the period, not the findings
+-- held; the exact day test below still decides. Findings without one are
+-- few (the same index, started_at NULL) and take their day from the exam
+-- or their period.
+WITH candidates AS (
+    SELECT f.* FROM findings f
+    WHERE f.superseded IN (0, iif(?8, 1, 0))
+      AND f.started_at >= coalesce(?1, '')
+      AND f.started_at < coalesce(date(?2, '+1 day'), char(1114111))
+    UNION ALL
+    SELECT f.* FROM findings f
+    WHERE f.superseded IN (0, iif(?8, 1, 0)) AND f.started_at IS NULL
+),
+chosen AS (
     SELECT f.*, substr(coalesce(f.started_at, e.first_acquired_at, f.period), 1, 10) AS day
-    FROM findings f LEFT JOIN exams e ON e.study_instance_uid = f.study_instance_uid
-    WHERE (?8 OR f.superseded = 0)
-      AND (?3 IS NULL OR f.severity = ?3) AND (?4 IS NULL OR f.rule_id = ?4)
+    FROM candidates f LEFT JOIN exams e ON e.study_instance_uid = f.study_instance_uid
+    WHERE (?3 IS NULL OR f.severity = ?3) AND (?4 IS NULL OR f.rule_id = ?4)
       AND (?5 IS NULL OR f.room = ?5) AND (?6 IS NULL OR f.preset = ?6)
       AND (?7 IS NULL OR f.shift = ?7))
 SELECT coalesce(json_group_array(json(document)), '[]') FROM (

@@ -1,14 +1,18 @@
 -- What a report states about its data (store_load_period_info): the
 -- current policy (the last one loaded), the policy versions of the
--- period's findings (not superseded; ?1, ?2 as in stats_exam_rows.sql),
--- and the first and last exam day held.
+-- period's findings (not superseded; ?1, ?2 as in stats_exam_rows.sql, on
+-- exams with a first acquisition), and the first and last exam day held
+-- (exams_first_acquired; the date part is monotonic in the text, so the
+-- date of the least time is the least date).
 SELECT (SELECT version FROM policies ORDER BY first_loaded_at DESC, rowid DESC LIMIT 1),
        (SELECT name FROM policies ORDER BY first_loaded_at DESC, rowid DESC LIMIT 1),
        (SELECT group_concat(version, ',') FROM
            (SELECT DISTINCT f.policy_version AS version
-            FROM findings f JOIN exams e ON e.study_instance_uid = f.study_instance_uid
-            WHERE f.superseded = 0
-              AND substr(e.first_acquired_at, 1, 10) BETWEEN ?1 AND ?2
+            FROM exam_summaries s
+            CROSS JOIN findings f ON f.study_instance_uid = s.study_instance_uid
+                           AND f.superseded = 0
+            WHERE s.day >= ?1 AND s.day <= ?2 AND s.finding_count > 0
+              AND s.first_acquired_at IS NOT NULL
             ORDER BY 1)),
-       (SELECT min(substr(first_acquired_at, 1, 10)) FROM exams),
-       (SELECT max(substr(first_acquired_at, 1, 10)) FROM exams);
+       substr((SELECT min(first_acquired_at) FROM exams), 1, 10),
+       substr((SELECT max(first_acquired_at) FROM exams), 1, 10);

@@ -20,7 +20,7 @@ static void simulate_usage(FILE *out)
 {
     fprintf(out,
         "usage: mitilog simulate --out DIR [--days N] [--seed S]\n"
-        "                        [--start YYYY-MM-DD]\n"
+        "                        [--start YYYY-MM-DD] [--site N]\n"
         "       mitilog simulate --send HOST:PORT [--out DIR] [--days N]\n"
         "                        [--seed S] [--start YYYY-MM-DD] [--aet AE]\n"
         "                        [--called-aet AE] [--speed X]\n"
@@ -34,6 +34,10 @@ static void simulate_usage(FILE *out)
         "  --days N          days to simulate, 1-366 (default 28)\n"
         "  --seed S          random seed, unsigned 64-bit (default 1)\n"
         "  --start DATE      first day (default 2026-11-02, a Monday)\n"
+        "  --site N          site 1-9 (default 1): N > 1 appends -N to the\n"
+        "                    rooms' station names, AE titles and serials;\n"
+        "                    other seeds over the same days at other sites\n"
+        "                    make a bigger department\n"
         "  --send HOST:PORT  stream the studies with storescu in time order\n"
         "  --aet AE          calling AE title (default: each room's own)\n"
         "  --called-aet AE   called AE title (default MITILOG)\n"
@@ -72,6 +76,7 @@ int command_simulate(int argc, char **argv)
         {"aet", required_argument, NULL, 'a'},
         {"called-aet", required_argument, NULL, 'c'},
         {"speed", required_argument, NULL, 'x'},
+        {"site", required_argument, NULL, 'i'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
@@ -138,6 +143,14 @@ int command_simulate(int argc, char **argv)
                 return simulate_bad("bad --called-aet", optarg);
             options.called_ae = optarg;
             break;
+        case 'i': {
+            errno = 0;
+            long site = strtol(optarg, &end, 10);
+            if (errno != 0 || *end != '\0' || site < 1 || site > 9)
+                return simulate_bad("--site must be 1-9", optarg);
+            options.site = (int)site;
+            break;
+        }
         case 'x':
             errno = 0;
             options.speed = strtod(optarg, &end);

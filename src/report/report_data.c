@@ -30,34 +30,57 @@ int report_format_parse(const char *name, report_format *format)
 
 void report_data_free(report_data *data)
 {
-    store_exam_rows_free(data->rows, data->row_count);
+    store_exam_list_free(&data->list);
     store_finding_counts_free(data->findings, data->finding_count);
     store_period_info_free(&data->info);
     free(data->rules);
     free(data->exams);
-    free(data->keys);
     memset(data, 0, sizeof *data);
 }
 
-mitilog_status report_data_load(store *st, const char *from, const char *to,
-                                report_data *data, mitilog_error *error)
+unsigned report_dimension_column(stats_dimension dimension)
+{
+    switch (dimension) {
+    case STATS_BY_ROOM: return STORE_EXAM_ROOM;
+    case STATS_BY_PRESET: return STORE_EXAM_PRESET;
+    case STATS_BY_SHIFT: return STORE_EXAM_SHIFT;
+    case STATS_BY_TRANSDUCER: return STORE_EXAM_TRANSDUCER;
+    case STATS_BY_EXAM_TYPE: break;
+    }
+    return 0;
+}
+
+void report_study_key(const char *study_instance_uid, char key[9])
+{
+    char hex[HASH_HEX_SIZE];
+    key[0] = '\0';
+    if (study_instance_uid != NULL && hash_text_hex(study_instance_uid, hex) == MITILOG_OK) {
+        memcpy(key, hex, 8);
+        key[8] = '\0';
+    }
+}
+
+mitilog_status report_data_load(store *st, const char *from, const char *to, unsigned columns,
+                                unsigned load, report_data *data, mitilog_error *error)
 {
     memset(data, 0, sizeof *data);
-    mitilog_status status = store_load_exam_rows(st, from, to, &data->rows, &data->row_count,
-                                                 error);
-    if (status == MITILOG_OK)
+    if (load & REPORT_LOAD_RULES)
+        columns |= STORE_EXAM_IDENTITY;
+    mitilog_status status = store_load_exam_rows(st, from, to, columns, &data->list, error);
+    data->rows = data->list.rows;
+    data->row_count = data->list.count;
+    if (status == MITILOG_OK && (load & REPORT_LOAD_RULES))
         status = store_load_finding_counts(st, from, to, &data->findings,
                                            &data->finding_count, error);
-    if (status == MITILOG_OK)
+    if (status == MITILOG_OK && (load & REPORT_LOAD_INFO))
         status = store_load_period_info(st, from, to, &data->info, error);
     if (status != MITILOG_OK) {
         report_data_free(data);
         return status;
     }
     data->exams = calloc(data->row_count + 1, sizeof *data->exams);
-    data->keys = calloc(data->row_count + 1, sizeof *data->keys);
     data->rules = calloc(data->finding_count + 1, sizeof *data->rules);
-    if (data->exams == NULL || data->keys == NULL || data->rules == NULL) {
+    if (data->exams == NULL || data->rules == NULL) {
         report_data_free(data);
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "report: out of memory");
     }
@@ -99,26 +122,21 @@ mitilog_status report_data_load(store *st, const char *from, const char *to,
             f++;
         exam->rules = f > first ? &data->rules[first] : NULL;
         exam->rule_count = f - first;
-        char hex[HASH_HEX_SIZE];
-        if (row->study_instance_uid != NULL &&
-            hash_text_hex(row->study_instance_uid, hex) == MITILOG_OK) {
-            memcpy(data->keys[i], hex, 8);
-            data->keys[i][8] = '\0';
-        }
     }
     return MITILOG_OK;
 }
 
 long report_latest_day(store *st)
 {
-    store_period_info info;
+    char *first = NULL, *last = NULL;
     mitilog_error ignored;
     long day = -1;
-    if (store_load_period_info(st, NULL, NULL, &info, &ignored) == MITILOG_OK) {
-        if (info.last_day == NULL || stats_day_number(info.last_day, &day) != MITILOG_OK)
+    if (store_load_day_range(st, &first, &last, &ignored) == MITILOG_OK) {
+        if (last == NULL || stats_day_number(last, &day) != MITILOG_OK)
             day = -1;
-        store_period_info_free(&info);
     }
+    free(first);
+    free(last);
     if (day < 0) {
         time_t now = time(NULL);
         struct tm local;

@@ -14,20 +14,38 @@
 #include "report/report.h"
 
 typedef struct report_data {
-    store_exam_row *rows;           /* ordered by Study Instance UID */
+    store_exam_list list;           /* the rows and their strings */
+    store_exam_row *rows;           /* list.rows, ordered by Study Instance UID */
     size_t row_count;
-    store_finding_count *findings;
+    store_finding_count *findings;  /* with REPORT_LOAD_RULES */
     size_t finding_count;
     stats_rule_count *rules;        /* parallel to findings */
     stats_exam *exams;              /* parallel to rows */
-    char (*keys)[9];                /* short study keys, parallel to rows */
-    store_period_info info;
+    store_period_info info;         /* with REPORT_LOAD_INFO */
     size_t capture_count, indexed_count;   /* over all rows */
 } report_data;
 
+/* What report_data_load reads besides the exam rows. */
+enum {
+    REPORT_LOAD_RULES = 1 << 0,     /* findings by rule of each exam (needs
+                                       STORE_EXAM_IDENTITY) */
+    REPORT_LOAD_INFO = 1 << 1       /* the period's policy facts */
+};
+
+/* The exams of [from, to] with the text columns a report uses
+ * (STORE_EXAM_* bits) and what load asks for (REPORT_LOAD_* bits). */
 mitilog_status report_data_load(store *store, const char *from, const char *to,
-                                report_data *data, mitilog_error *error);
+                                unsigned columns, unsigned load, report_data *data,
+                                mitilog_error *error);
 void report_data_free(report_data *data);
+
+/* The text column a dimension groups by (STORE_EXAM_ROOM, ...; 0 for the
+ * exam type, always read). */
+unsigned report_dimension_column(stats_dimension dimension);
+
+/* The short key of a study shown in reports: the first 8 hex digits of the
+ * SHA-256 of its UID ("" when it has none). */
+void report_study_key(const char *study_instance_uid, char key[9]);
 
 /* The day number of the latest exam held, else of today (local). */
 long report_latest_day(store *store);

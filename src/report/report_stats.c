@@ -27,20 +27,20 @@ static mitilog_status stats_compute(store *st, const report_stats_request *reque
     memset(doc, 0, sizeof *doc);
     doc->by = request->by;
     long from_day, to_day;
-    long latest = report_latest_day(st);
     if (request->to == NULL || request->to[0] == '\0')
-        to_day = latest;
+        to_day = report_latest_day(st);
     else if (stats_day_number(request->to, &to_day) != MITILOG_OK)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "to: not a date YYYY-MM-DD");
     if (request->from == NULL || request->from[0] == '\0') {
-        store_period_info info;
+        char *first_day = NULL, *last_day = NULL;
         from_day = to_day - 27;
-        if (store_load_period_info(st, NULL, NULL, &info, error) == MITILOG_OK) {
+        if (store_load_day_range(st, &first_day, &last_day, error) == MITILOG_OK) {
             long first;
-            if (info.first_day != NULL && stats_day_number(info.first_day, &first) == MITILOG_OK)
+            if (first_day != NULL && stats_day_number(first_day, &first) == MITILOG_OK)
                 from_day = first;
-            store_period_info_free(&info);
         }
+        free(first_day);
+        free(last_day);
     } else if (stats_day_number(request->from, &from_day) != MITILOG_OK) {
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "from: not a date YYYY-MM-DD");
     }
@@ -48,7 +48,10 @@ static mitilog_status stats_compute(store *st, const report_stats_request *reque
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "from is after to");
     stats_day_text(from_day, doc->from);
     stats_day_text(to_day, doc->to);
-    mitilog_status status = report_data_load(st, doc->from, doc->to, &doc->data, error);
+    /* Statistics need the grouping column only, not the findings by rule. */
+    mitilog_status status = report_data_load(st, doc->from, doc->to,
+                                             report_dimension_column(doc->by), REPORT_LOAD_INFO,
+                                             &doc->data, error);
     if (status == MITILOG_OK)
         status = stats_period_table(doc->data.exams, doc->data.row_count, doc->by, &doc->result,
                                     error);
@@ -370,7 +373,10 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
     stats_drift_result result;
     memset(&result, 0, sizeof result);
     store_scratch *scratch = NULL;
-    mitilog_status status = report_data_load(st, from, to, &data, error);
+    mitilog_status status = report_data_load(st, from, to,
+                                             STORE_EXAM_IDENTITY | STORE_EXAM_ROOM |
+                                                 STORE_EXAM_PRESET,
+                                             REPORT_LOAD_INFO, &data, error);
     if (status != MITILOG_OK)
         return status;
     status = stats_drift(data.exams, data.row_count, first_monday, weeks, baseline_weeks,

@@ -22,7 +22,8 @@ report_week_request report_week_default_request(void)
 typedef struct week_document {
     char week[9], monday[11], sunday[11], baseline_from[11], baseline_to[11];
     const report_week_request *request;
-    report_data data;
+    report_data data;                /* the week's exams */
+    store_exam_list baseline;        /* the baseline weeks' exam types and values */
     store_period_info week_info;     /* policy facts for the week itself */
     stats_exam *week_exams, *baseline_exams;
     size_t *week_rows;               /* week exam -> data row */
@@ -38,6 +39,7 @@ static void week_document_free(week_document *doc)
     free(doc->baseline_exams);
     free(doc->week_rows);
     store_period_info_free(&doc->week_info);
+    store_exam_list_free(&doc->baseline);
     report_data_free(&doc->data);
 }
 
@@ -72,28 +74,37 @@ static mitilog_status week_compute(store *st, const report_week_request *request
     stats_day_text(first, doc->baseline_from);
     stats_day_text(monday - 1, doc->baseline_to);
 
-    mitilog_status status = report_data_load(st, doc->baseline_from, doc->sunday, &doc->data,
+    /* The week's exams in full; of the baseline weeks only what the
+     * baselines use (exam type, governing value). */
+    mitilog_status status = report_data_load(st, doc->monday, doc->sunday, STORE_EXAM_ALL,
+                                             REPORT_LOAD_RULES | REPORT_LOAD_INFO, &doc->data,
                                              error);
     if (status == MITILOG_OK)
-        status = store_load_period_info(st, doc->monday, doc->sunday, &doc->week_info, error);
+        status = store_load_exam_governing(st, doc->baseline_from, doc->monday, &doc->baseline,
+                                           error);
     if (status != MITILOG_OK)
         return status;
+    doc->week_info = doc->data.info;
+    memset(&doc->data.info, 0, sizeof doc->data.info);
     size_t n = doc->data.row_count;
     doc->week_exams = calloc(n + 1, sizeof *doc->week_exams);
-    doc->baseline_exams = calloc(n + 1, sizeof *doc->baseline_exams);
+    doc->baseline_exams = calloc(doc->baseline.count + 1, sizeof *doc->baseline_exams);
     doc->week_rows = calloc(n + 1, sizeof *doc->week_rows);
     if (doc->week_exams == NULL || doc->baseline_exams == NULL || doc->week_rows == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "weekly report: out of memory");
     for (size_t i = 0; i < n; i++) {
         const stats_exam *exam = &doc->data.exams[i];
-        if (exam->day != NULL && strcmp(exam->day, doc->monday) >= 0) {
-            doc->week_rows[doc->week_count] = i;
-            doc->week_exams[doc->week_count++] = *exam;
-            doc->captures += exam->capture_count;
-            doc->indexed += exam->indexed_count;
-        } else {
-            doc->baseline_exams[doc->baseline_count++] = *exam;
-        }
+        doc->week_rows[doc->week_count] = i;
+        doc->week_exams[doc->week_count++] = *exam;
+        doc->captures += exam->capture_count;
+        doc->indexed += exam->indexed_count;
+    }
+    for (size_t i = 0; i < doc->baseline.count; i++) {
+        const store_exam_row *row = &doc->baseline.rows[i];
+        stats_exam *exam = &doc->baseline_exams[doc->baseline_count++];
+        exam->exam_type = row->exam_type;
+        exam->has_governing = row->has_max_governing;
+        exam->max_governing = row->max_governing;
     }
     status = stats_week_outliers(doc->week_exams, doc->week_count, doc->baseline_exams,
                                  doc->baseline_count, &settings, request->group, &doc->result,
@@ -232,7 +243,9 @@ static mitilog_status week_json(const week_document *doc, char **out, mitilog_er
             BIND_INT(exam_insert, "group_position", position);
             BIND_INT(exam_insert, "position", (long long)m + 1);
             BIND_TEXT(exam_insert, "study_instance_uid", row->study_instance_uid);
-            BIND_TEXT(exam_insert, "study_key", doc->data.keys[row_index]);
+            char study_key[9];
+            report_study_key(row->study_instance_uid, study_key);
+            BIND_TEXT(exam_insert, "study_key", study_key);
             BIND_TEXT(exam_insert, "day", row->day);
             BIND_TEXT(exam_insert, "first_acquired_at", row->first_acquired_at);
             BIND_TEXT(exam_insert, "exam_type", row->exam_type);
@@ -346,7 +359,9 @@ static void week_csv(const week_document *doc, FILE *out)
             csv_empty(out, 6);
             report_csv_count(out, (size_t)(row->finding_count > 0 ? row->finding_count : 0));
             csv_empty(out, 1);
-            report_csv_field(out, 0, doc->data.keys[doc->week_rows[e]]);
+            char study_key[9];
+            report_study_key(row->study_instance_uid, study_key);
+            report_csv_field(out, 0, study_key);
             report_csv_field(out, 0, row->day);
             report_csv_field(out, 0, row->exam_type);
             report_csv_field(out, 0, row->room);
@@ -451,7 +466,9 @@ static void week_html(const week_document *doc, FILE *out)
             const stats_exam_flag *flag = &doc->result.flags[e];
             const store_exam_row *row = &doc->data.rows[doc->week_rows[e]];
             fputs("<tr>", out);
-            html_cell_text(out, doc->data.keys[doc->week_rows[e]]);
+            char study_key[9];
+            report_study_key(row->study_instance_uid, study_key);
+            html_cell_text(out, study_key);
             html_cell_text(out, row->day);
             html_cell_text(out, row->exam_type_label != NULL ? row->exam_type_label
                                                              : row->exam_type);

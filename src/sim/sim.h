@@ -142,6 +142,10 @@ extern const char *const sim_operators[SIM_OPERATOR_COUNT];
 
 /* Index of the exam type with this key, or -1. */
 int sim_exam_type_find(const char *key);
+/* name as it reads at a site (sim_options.site): name itself for site 0
+ * or 1, else "name-N" (buffer holds 17 bytes: SH, AE and LO values stay
+ * within 16 characters for sites up to 9). Returns name or buffer. */
+const char *sim_site_name(const char *name, int site, char buffer[17]);
 /* Image Type value 4 bitmap of a mode. */
 unsigned sim_mode_bitmap(sim_mode mode);
 /* Short lower-case name of a mode ("b", "pw", ...). */
@@ -269,6 +273,11 @@ typedef struct sim_options {
     int days;
     uint64_t seed;
     sim_date start;
+    /* Which site of the department the rooms belong to: 0 or 1 keeps the
+     * rooms' own names; N > 1 appends "-N" to every Station Name, AE title
+     * and device serial, so that runs with other seeds over the same days
+     * add sister rooms (a bigger department) rather than busier ones. */
+    int site;
     /* --send */
     const char *send_host;      /* NULL: write files only */
     unsigned send_port;

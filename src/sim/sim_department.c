@@ -14,6 +14,7 @@
  */
 #include "sim/sim.h"
 
+#include <stdio.h>
 #include <string.h>
 
 const sim_room sim_rooms[SIM_ROOM_COUNT] = {
@@ -149,4 +150,12 @@ double sim_mode_mi_factor(sim_mode mode)
 double sim_mode_ti_factor(sim_mode mode)
 {
     return sim_mode_table[mode].ti_factor;
+}
+
+const char *sim_site_name(const char *name, int site, char buffer[17])
+{
+    if (site <= 1)
+        return name;
+    snprintf(buffer, 17, "%.13s-%d", name, site % 10);
+    return buffer;
 }

@@ -103,9 +103,11 @@ mitilog_status sim_send_all(const sim_options *options, const sim_run *run,
             if (wait > 0)
                 sim_sleep(wait);
         }
+        char site_ae[17];
         const char *calling = options->calling_ae
                                   ? options->calling_ae
-                                  : sim_rooms[study->room].ae_title;
+                                  : sim_site_name(sim_rooms[study->room].ae_title,
+                                                  options->site, site_ae);
         int rc = sim_storescu(options, calling, study);
         if (rc == 0) {
             sent += study->file_count;

@@ -119,7 +119,7 @@ static mitilog_status sim_put_common(sim_writer *w, const sim_exam *exam,
 {
     const sim_exam_type *type = &sim_exam_types[exam->slot.exam_type];
     const sim_room *room = &sim_rooms[exam->slot.room];
-    char text[96];
+    char text[96], station[17], serial[17];
     sim_stamp study, birth;
 
     sim_stamp_of(w, exam->day_index, exam->captures[0].second - 60, &study);
@@ -150,10 +150,11 @@ static mitilog_status sim_put_common(sim_writer *w, const sim_exam *exam,
 
     PUT_S(0x0008, 0x0070, SIM_MANUFACTURER);
     PUT_S(0x0008, 0x0080, SIM_HOSPITAL_NAME);
-    PUT_S(0x0008, 0x1010, room->station_name);
+    PUT_S(0x0008, 0x1010,
+          sim_site_name(room->station_name, w->options->site, station));
     PUT_S(0x0008, 0x1040, SIM_DEPARTMENT_NAME);
     PUT_S(0x0008, 0x1090, SIM_MODEL_NAME);
-    PUT_S(0x0018, 0x1000, room->serial);
+    PUT_S(0x0018, 0x1000, sim_site_name(room->serial, w->options->site, serial));
     PUT_S(0x0018, 0x1020, "SIM 1.0");
     if (is_image)   /* Operators' Name is not in the SR IODs */
         PUT_S(0x0008, 0x1070, sim_operators[exam->operator_index]);
@@ -588,7 +589,7 @@ static mitilog_status sim_write_exam(sim_writer *w, const sim_exam *exam,
              study_dir);
     CHECK(sim_mkdir(path, w->error));
 
-    char tags[128];
+    char tags[128], station[17];
     sim_planted_tags(exam->planted & ~(unsigned)SIM_PLANTED_RESEND, tags,
                      sizeof tags);
     kept->count = 0;
@@ -614,7 +615,8 @@ static mitilog_status sim_write_exam(sim_writer *w, const sim_exam *exam,
                                sizeof kept->lines[0], "%s,%s,%s,%s,%s,%s",
                                relative, sop, study_uid, type->key,
                                type->preset,
-                               sim_rooms[exam->slot.room].station_name);
+                               sim_site_name(sim_rooms[exam->slot.room].station_name,
+                                             w->options->site, station));
         if (written < 0 || (size_t)written >= sizeof kept->lines[0])
             return mitilog_error_set(w->error, MITILOG_ERROR_INVALID,
                                      "manifest line too long for %s",

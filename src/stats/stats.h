@@ -30,6 +30,14 @@ void stats_sort(double *values, size_t count);
  * MITILOG_ERROR_INVALID if count == 0 or p is outside [0, 1]. */
 mitilog_status stats_quantile_sorted(const double *sorted, size_t count, double p, double *out);
 
+/* The type 7 quantiles p[0..count) (each in [0, 1]) of values[0..n),
+ * n > 0, into out[], and the minimum and maximum when not NULL: the same
+ * numbers as stats_quantile_sorted() on the sorted values, found by
+ * selecting only the order statistics they use (expected linear time
+ * rather than a full sort). values is reordered. */
+void stats_quantiles(double *values, size_t n, const double *p, size_t count, double *out,
+                     double *minimum, double *maximum);
+
 /* Median of ascending sorted values (the type 7 quantile at 0.5, which
  * is the usual median: middle value, or the mean of the two middle). */
 mitilog_status stats_median_sorted(const double *sorted, size_t count, double *out);

@@ -5,6 +5,7 @@
 #include "stats/stats_week.h"
 
 #include <math.h>
+#include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -197,30 +198,162 @@ static int keys_compare(const char *a, const char *b)
     return strcmp(a, b);
 }
 
-/* Distinct keys, in first-seen order; *keys malloc'ed. */
-static mitilog_status distinct_keys(const stats_exam *exams, size_t count,
-                                    stats_dimension dimension, const char ***keys,
-                                    size_t *key_count)
+/* ---- keys: every computation below groups exams by a text key (exam
+ * type, room, ...). A hash table gives each distinct key an index in
+ * first-seen order, and each group lists its members in input order, so
+ * the work is one pass per value instead of one per key and exam, and
+ * every sum and value list is built in the same order as by a scan. ---- */
+
+typedef struct key_table {
+    const char **keys;          /* by index, first-seen order */
+    size_t count, capacity;
+    size_t *slots;              /* index + 1; 0 = empty */
+    size_t slot_count;          /* a power of two */
+    size_t null_index;          /* index + 1 of the NULL key; 0 = none yet */
+} key_table;
+
+static void key_table_free(key_table *table)
 {
-    *keys = NULL;
-    *key_count = 0;
-    if (count == 0)
+    free(table->keys);
+    free(table->slots);
+    memset(table, 0, sizeof *table);
+}
+
+/* FNV-1a, 64-bit. */
+static uint64_t key_hash(const char *key)
+{
+    uint64_t hash = 0xcbf29ce484222325u;
+    for (const unsigned char *c = (const unsigned char *)key; *c != '\0'; c++)
+        hash = (hash ^ *c) * 0x100000001b3u;
+    return hash;
+}
+
+/* The slot holding key, or the empty slot where it would go. */
+static size_t key_slot(const key_table *table, const char *key)
+{
+    size_t mask = table->slot_count - 1;
+    size_t slot = (size_t)key_hash(key) & mask;
+    while (table->slots[slot] != 0 && !keys_equal(table->keys[table->slots[slot] - 1], key))
+        slot = (slot + 1) & mask;
+    return slot;
+}
+
+/* The key's index, or SIZE_MAX when the table does not hold it. */
+static size_t key_find(const key_table *table, const char *key)
+{
+    if (key == NULL)
+        return table->null_index > 0 ? table->null_index - 1 : SIZE_MAX;
+    if (table->slot_count == 0)
+        return SIZE_MAX;
+    size_t slot = key_slot(table, key);
+    return table->slots[slot] > 0 ? table->slots[slot] - 1 : SIZE_MAX;
+}
+
+/* The key's index, added when new. */
+static mitilog_status key_add(key_table *table, const char *key, size_t *index)
+{
+    *index = key_find(table, key);
+    if (*index != SIZE_MAX)
         return MITILOG_OK;
-    const char **list = malloc(count * sizeof *list);
-    if (list == NULL)
-        return MITILOG_ERROR_MEMORY;
-    size_t n = 0;
-    for (size_t i = 0; i < count; i++) {
-        const char *key = stats_exam_key(&exams[i], dimension);
-        size_t j = 0;
-        while (j < n && !keys_equal(list[j], key))
-            j++;
-        if (j == n)
-            list[n++] = key;
+    if (key != NULL && 2 * (table->count + 1) > table->slot_count) {
+        size_t slot_count = table->slot_count ? table->slot_count * 2 : 64;
+        size_t *slots = calloc(slot_count, sizeof *slots);
+        if (slots == NULL)
+            return MITILOG_ERROR_MEMORY;
+        free(table->slots);
+        table->slots = slots;
+        table->slot_count = slot_count;
+        for (size_t k = 0; k < table->count; k++) {
+            if (table->keys[k] != NULL)
+                table->slots[key_slot(table, table->keys[k])] = k + 1;
+        }
     }
-    *keys = list;
-    *key_count = n;
+    if (table->count == table->capacity) {
+        size_t capacity = table->capacity ? table->capacity * 2 : 16;
+        const char **keys = realloc(table->keys, capacity * sizeof *keys);
+        if (keys == NULL)
+            return MITILOG_ERROR_MEMORY;
+        table->keys = keys;
+        table->capacity = capacity;
+    }
+    *index = table->count;
+    table->keys[table->count++] = key;
+    if (key == NULL)
+        table->null_index = *index + 1;
+    else
+        table->slots[key_slot(table, key)] = *index + 1;
     return MITILOG_OK;
+}
+
+/* Exams grouped by a key: table.keys in first-seen order; the members of
+ * key k are members[start[k]] .. members[start[k + 1] - 1], in input
+ * order; key_of[i] is exam i's key. */
+typedef struct key_groups {
+    key_table table;
+    size_t *key_of;
+    size_t *start;
+    size_t *members;
+} key_groups;
+
+static void key_groups_free(key_groups *groups)
+{
+    key_table_free(&groups->table);
+    free(groups->key_of);
+    free(groups->start);
+    free(groups->members);
+    memset(groups, 0, sizeof *groups);
+}
+
+/* Counting sort of the exams by key_of (stable: input order within);
+ * keys: how many key indices there are. */
+static mitilog_status key_groups_fill(key_groups *groups, size_t count, size_t keys)
+{
+    groups->start = calloc(keys + 2, sizeof *groups->start);
+    groups->members = malloc((count + 1) * sizeof *groups->members);
+    if (groups->start == NULL || groups->members == NULL)
+        return MITILOG_ERROR_MEMORY;
+    for (size_t i = 0; i < count; i++) {
+        if (groups->key_of[i] != SIZE_MAX)
+            groups->start[groups->key_of[i] + 2]++;
+    }
+    for (size_t k = 2; k < keys + 2; k++)
+        groups->start[k] += groups->start[k - 1];
+    /* start[k + 1] is now where key k's members begin. */
+    for (size_t i = 0; i < count; i++) {
+        if (groups->key_of[i] != SIZE_MAX)
+            groups->members[groups->start[groups->key_of[i] + 1]++] = i;
+    }
+    return MITILOG_OK;
+}
+
+static mitilog_status group_by_key(const stats_exam *exams, size_t count,
+                                   stats_dimension dimension, key_groups *groups)
+{
+    memset(groups, 0, sizeof *groups);
+    groups->key_of = malloc((count + 1) * sizeof *groups->key_of);
+    if (groups->key_of == NULL)
+        return MITILOG_ERROR_MEMORY;
+    for (size_t i = 0; i < count; i++) {
+        if (key_add(&groups->table, stats_exam_key(&exams[i], dimension), &groups->key_of[i]) !=
+            MITILOG_OK)
+            return MITILOG_ERROR_MEMORY;
+    }
+    return key_groups_fill(groups, count, groups->table.count);
+}
+
+/* The exams whose key the table of another grouping holds, grouped by its
+ * keys (exams with other keys are left out). */
+static mitilog_status group_by_known_key(const stats_exam *exams, size_t count,
+                                         stats_dimension dimension, const key_table *known,
+                                         key_groups *groups)
+{
+    memset(groups, 0, sizeof *groups);
+    groups->key_of = malloc((count + 1) * sizeof *groups->key_of);
+    if (groups->key_of == NULL)
+        return MITILOG_ERROR_MEMORY;
+    for (size_t i = 0; i < count; i++)
+        groups->key_of[i] = key_find(known, stats_exam_key(&exams[i], dimension));
+    return key_groups_fill(groups, count, known->count);
 }
 
 static double median_of(double *values, size_t count)
@@ -239,14 +372,14 @@ static void distribution_of(double *values, size_t count, stats_distribution *ou
     out->count = count;
     if (count == 0)
         return;
-    stats_sort(values, count);
-    out->minimum = values[0];
-    out->maximum = values[count - 1];
-    stats_quantile_sorted(values, count, 0.05, &out->p05);
-    stats_quantile_sorted(values, count, 0.25, &out->p25);
-    stats_quantile_sorted(values, count, 0.50, &out->median);
-    stats_quantile_sorted(values, count, 0.75, &out->p75);
-    stats_quantile_sorted(values, count, 0.95, &out->p95);
+    static const double p[] = {0.05, 0.25, 0.50, 0.75, 0.95};
+    double q[5];
+    stats_quantiles(values, count, p, 5, q, &out->minimum, &out->maximum);
+    out->p05 = q[0];
+    out->p25 = q[1];
+    out->median = q[2];
+    out->p75 = q[3];
+    out->p95 = q[4];
 }
 
 /* ---- weekly outliers ---- */
@@ -353,9 +486,12 @@ mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
     if (settings == NULL)
         settings = &defaults;
     double z_limit = settings->z_limit > 0 ? settings->z_limit : 3.0;
-    const char **types = NULL, **keys = NULL;
-    size_t type_count = 0, key_count = 0;
+    key_groups types, base_types, keys;
+    memset(&types, 0, sizeof types);
+    memset(&base_types, 0, sizeof base_types);
+    memset(&keys, 0, sizeof keys);
     double *values = NULL, *scratch = NULL;
+    unsigned char *has_type = NULL;
     mitilog_status status = MITILOG_ERROR_MEMORY;
     size_t capacity = week_count + baseline_count + 1;
 
@@ -363,31 +499,37 @@ mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
     scratch = malloc(capacity * sizeof *scratch);
     result->flags = calloc(week_count + 1, sizeof *result->flags);
     if (values == NULL || scratch == NULL || result->flags == NULL ||
-        distinct_keys(week, week_count, STATS_BY_EXAM_TYPE, &types, &type_count) != MITILOG_OK ||
-        distinct_keys(week, week_count, by, &keys, &key_count) != MITILOG_OK)
+        group_by_key(week, week_count, STATS_BY_EXAM_TYPE, &types) != MITILOG_OK ||
+        group_by_known_key(baseline, baseline_count, STATS_BY_EXAM_TYPE, &types.table,
+                           &base_types) != MITILOG_OK ||
+        group_by_key(week, week_count, by, &keys) != MITILOG_OK)
         goto done;
+    size_t type_count = types.table.count, key_count = keys.table.count;
     result->flag_count = week_count;
     result->baselines = calloc(type_count + 1, sizeof *result->baselines);
     result->groups = calloc(key_count + 1, sizeof *result->groups);
-    if (result->baselines == NULL || result->groups == NULL)
+    has_type = malloc(type_count + 1);
+    if (result->baselines == NULL || result->groups == NULL || has_type == NULL)
         goto done;
 
-    /* Baselines per exam type, and each exam's flags. */
+    /* Baselines per exam type (of the week), and each exam's flags. */
     for (size_t t = 0; t < type_count; t++) {
         stats_baseline *base = &result->baselines[t];
-        base->exam_type = types[t];
+        base->exam_type = types.table.keys[t];
         size_t n = 0;
-        for (size_t i = 0; i < baseline_count; i++) {
-            if (baseline[i].has_governing && keys_equal(baseline[i].exam_type, types[t]))
-                values[n++] = baseline[i].max_governing;
+        for (size_t at = base_types.start[t]; at < base_types.start[t + 1]; at++) {
+            const stats_exam *exam = &baseline[base_types.members[at]];
+            if (exam->has_governing)
+                values[n++] = exam->max_governing;
         }
         base->trailing_count = n;
         if (n < settings->minimum_baseline) {
             base->thin = 1;
             result->any_thin = 1;
-            for (size_t i = 0; i < week_count; i++) {
-                if (week[i].has_governing && keys_equal(week[i].exam_type, types[t]))
-                    values[n++] = week[i].max_governing;
+            for (size_t at = types.start[t]; at < types.start[t + 1]; at++) {
+                const stats_exam *exam = &week[types.members[at]];
+                if (exam->has_governing)
+                    values[n++] = exam->max_governing;
             }
         }
         base->count = n;
@@ -397,9 +539,8 @@ mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
             stats_mad(values, n, scratch, &base->median, &base->mad);
             stats_quantile_sorted(values, n, 0.95, &base->p95);
         }
-        for (size_t i = 0; i < week_count; i++) {
-            if (!keys_equal(week[i].exam_type, types[t]))
-                continue;
+        for (size_t at = types.start[t]; at < types.start[t + 1]; at++) {
+            size_t i = types.members[at];
             stats_exam_flag *flag = &result->flags[i];
             flag->baseline = t;
             flag->robust_z = NAN;
@@ -423,16 +564,17 @@ mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
     for (size_t g = 0; g < key_count; g++) {
         stats_group *group = &result->groups[g];
         result->group_count++;
-        group->key = keys[g];
-        group->members = malloc((week_count + 1) * sizeof *group->members);
+        group->key = keys.table.keys[g];
+        group->members = malloc((keys.start[g + 1] - keys.start[g] + 1) * sizeof *group->members);
         if (group->members == NULL)
             goto done;
         size_t n = 0, mi_n = 0;
-        for (size_t i = 0; i < week_count; i++) {
+        memset(has_type, 0, type_count + 1);
+        for (size_t at = keys.start[g]; at < keys.start[g + 1]; at++) {
+            size_t i = keys.members[at];
             const stats_exam *exam = &week[i];
-            if (!keys_equal(stats_exam_key(exam, by), keys[g]))
-                continue;
             group->members[group->member_count++] = i;
+            has_type[types.key_of[i]] = 1;
             group->exam_count++;
             group->capture_count += exam->capture_count;
             group->indexed_count += exam->indexed_count;
@@ -448,9 +590,10 @@ mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
         }
         group->has_median = n > 0;
         group->median_governing = median_of(values, n);
-        for (size_t i = 0; i < week_count; i++) {
-            if (keys_equal(stats_exam_key(&week[i], by), keys[g]) && week[i].has_mi)
-                values[mi_n++] = week[i].max_mi;
+        for (size_t at = keys.start[g]; at < keys.start[g + 1]; at++) {
+            const stats_exam *exam = &week[keys.members[at]];
+            if (exam->has_mi)
+                values[mi_n++] = exam->max_mi;
         }
         group->median_mi = median_of(values, mi_n);
         group->outlier_rate =
@@ -459,14 +602,8 @@ mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
         /* The department's median over the exam types this group has. */
         size_t d = 0;
         for (size_t i = 0; i < week_count; i++) {
-            if (!week[i].has_governing)
-                continue;
-            for (size_t m = 0; m < group->member_count; m++) {
-                if (keys_equal(week[group->members[m]].exam_type, week[i].exam_type)) {
-                    values[d++] = week[i].max_governing;
-                    break;
-                }
-            }
+            if (week[i].has_governing && has_type[types.key_of[i]])
+                values[d++] = week[i].max_governing;
         }
         group->department_median = median_of(values, d);
         if (group->member_count > 1)
@@ -480,8 +617,10 @@ mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
 done:
     free(values);
     free(scratch);
-    free(types);
-    free(keys);
+    free(has_type);
+    key_groups_free(&types);
+    key_groups_free(&base_types);
+    key_groups_free(&keys);
     if (status != MITILOG_OK) {
         stats_week_result_free(result);
         mitilog_error_set(error, status, "weekly outliers: out of memory");
@@ -505,17 +644,17 @@ static int compare_rows(const void *left, const void *right)
     return keys_compare(a->key, b->key);
 }
 
-/* One row over the exams whose key matches (all exams when all != 0). */
-static void period_row(const stats_exam *exams, size_t count, stats_dimension by,
-                       const char *key, int all, double *values, stats_period_row *row)
+/* One row over the exams listed in members (count of them), or over all
+ * exams in input order when members is NULL. */
+static void period_row(const stats_exam *exams, const size_t *members, size_t count,
+                       const char *key, double *values, stats_period_row *row)
 {
+#define MEMBER(at) (&exams[members != NULL ? members[at] : (at)])
     memset(row, 0, sizeof *row);
-    row->key = all ? NULL : key;
+    row->key = key;
     size_t n = 0;
-    for (size_t i = 0; i < count; i++) {
-        const stats_exam *exam = &exams[i];
-        if (!all && !keys_equal(stats_exam_key(exam, by), key))
-            continue;
+    for (size_t at = 0; at < count; at++) {
+        const stats_exam *exam = MEMBER(at);
         row->exam_count++;
         row->capture_count += exam->capture_count;
         row->indexed_count += exam->indexed_count;
@@ -528,25 +667,24 @@ static void period_row(const stats_exam *exams, size_t count, stats_dimension by
         row->exam_count > 0 ? (double)row->with_findings_count / (double)row->exam_count : 0.0;
     distribution_of(values, n, &row->governing);
     n = 0;
-    for (size_t i = 0; i < count; i++) {
-        if ((all || keys_equal(stats_exam_key(&exams[i], by), key)) && exams[i].has_mi)
-            values[n++] = exams[i].max_mi;
+    for (size_t at = 0; at < count; at++) {
+        if (MEMBER(at)->has_mi)
+            values[n++] = MEMBER(at)->max_mi;
     }
     distribution_of(values, n, &row->mi);
     n = 0;
-    for (size_t i = 0; i < count; i++) {
-        if ((all || keys_equal(stats_exam_key(&exams[i], by), key)) &&
-            exams[i].has_governing)
-            values[n++] = exams[i].estimated_seconds;
+    for (size_t at = 0; at < count; at++) {
+        if (MEMBER(at)->has_governing)
+            values[n++] = MEMBER(at)->estimated_seconds;
     }
     distribution_of(values, n, &row->estimated_seconds);
     for (int t = 0; t < STATS_THRESHOLD_COUNT; t++) {
         stats_threshold_time *time = &row->thresholds[t];
         time->threshold = stats_thresholds[t];
         n = 0;
-        for (size_t i = 0; i < count; i++) {
-            const stats_exam *exam = &exams[i];
-            if ((!all && !keys_equal(stats_exam_key(exam, by), key)) || !exam->has_governing)
+        for (size_t at = 0; at < count; at++) {
+            const stats_exam *exam = MEMBER(at);
+            if (!exam->has_governing)
                 continue;
             double seconds = exam->seconds_at_or_above[t];
             values[n++] = seconds;
@@ -555,11 +693,14 @@ static void period_row(const stats_exam *exams, size_t count, stats_dimension by
                 time->exam_count++;
         }
         if (n > 0) {
-            stats_sort(values, n);
-            stats_median_sorted(values, n, &time->median_seconds);
-            stats_quantile_sorted(values, n, 0.95, &time->p95_seconds);
+            static const double p[] = {0.50, 0.95};
+            double q[2];
+            stats_quantiles(values, n, p, 2, q, NULL, NULL);
+            time->median_seconds = q[0];
+            time->p95_seconds = q[1];
         }
     }
+#undef MEMBER
 }
 
 mitilog_status stats_period_table(const stats_exam *exams, size_t count,
@@ -567,25 +708,27 @@ mitilog_status stats_period_table(const stats_exam *exams, size_t count,
                                   mitilog_error *error)
 {
     memset(result, 0, sizeof *result);
-    const char **keys = NULL;
-    size_t key_count = 0;
+    key_groups keys;
+    memset(&keys, 0, sizeof keys);
     double *values = malloc((count + 1) * sizeof *values);
     mitilog_status status = MITILOG_ERROR_MEMORY;
-    if (values == NULL || distinct_keys(exams, count, by, &keys, &key_count) != MITILOG_OK)
+    if (values == NULL || group_by_key(exams, count, by, &keys) != MITILOG_OK)
         goto done;
+    size_t key_count = keys.table.count;
     result->rows = calloc(key_count + 1, sizeof *result->rows);
     if (result->rows == NULL)
         goto done;
     for (size_t k = 0; k < key_count; k++)
-        period_row(exams, count, by, keys[k], 0, values, &result->rows[k]);
+        period_row(exams, &keys.members[keys.start[k]], keys.start[k + 1] - keys.start[k],
+                   keys.table.keys[k], values, &result->rows[k]);
     result->row_count = key_count;
     if (key_count > 1)
         qsort(result->rows, key_count, sizeof *result->rows, compare_rows);
-    period_row(exams, count, by, NULL, 1, values, &result->total);
+    period_row(exams, NULL, count, NULL, values, &result->total);
     status = MITILOG_OK;
 done:
     free(values);
-    free(keys);
+    key_groups_free(&keys);
     if (status != MITILOG_OK) {
         stats_period_result_free(result);
         mitilog_error_set(error, status, "period statistics: out of memory");
@@ -627,11 +770,21 @@ mitilog_status stats_drift(const stats_exam *exams, size_t count, long first_mon
         z_limit = 3.0;
     if (minimum_baseline < 1)
         minimum_baseline = 1;
+    key_table presets, rooms;
+    memset(&presets, 0, sizeof presets);
+    memset(&rooms, 0, sizeof rooms);
+    key_groups series_groups;
+    memset(&series_groups, 0, sizeof series_groups);
+    size_t *preset_of = malloc((count + 1) * sizeof *preset_of);
+    size_t *room_of = malloc((count + 1) * sizeof *room_of);
+    size_t *pairs = NULL;
     long *days = malloc((count + 1) * sizeof *days);
     double *values = malloc((count + 1) * sizeof *values);
     double *scratch = malloc((count + 1) * sizeof *scratch);
     mitilog_status status = MITILOG_ERROR_MEMORY;
-    if (days == NULL || values == NULL || scratch == NULL)
+    series_groups.key_of = malloc((count + 1) * sizeof *series_groups.key_of);
+    if (preset_of == NULL || room_of == NULL || days == NULL || values == NULL ||
+        scratch == NULL || series_groups.key_of == NULL)
         goto done;
     result->series = calloc(count + 1, sizeof *result->series);
     if (result->series == NULL)
@@ -639,49 +792,54 @@ mitilog_status stats_drift(const stats_exam *exams, size_t count, long first_mon
     for (size_t i = 0; i < count; i++) {
         if (exams[i].preset == NULL || stats_day_number(exams[i].day, &days[i]) != MITILOG_OK)
             days[i] = -1;
-    }
-    for (size_t i = 0; i < count; i++) {
-        if (days[i] < 0)
-            continue;
-        size_t s = 0;
-        while (s < result->series_count &&
-               !(keys_equal(result->series[s].preset, exams[i].preset) &&
-                 keys_equal(result->series[s].room, exams[i].room)))
-            s++;
-        if (s < result->series_count)
-            continue;
-        stats_drift_series *series = &result->series[result->series_count++];
-        series->preset = exams[i].preset;
-        series->room = exams[i].room;
-        series->exam_type = exams[i].exam_type;
-        series->points = calloc(week_count + 1, sizeof *series->points);
-        if (series->points == NULL)
+        else if (key_add(&presets, exams[i].preset, &preset_of[i]) != MITILOG_OK ||
+                 key_add(&rooms, exams[i].room, &room_of[i]) != MITILOG_OK)
             goto done;
     }
+    /* Series: each (preset, room) pair, in first-seen order. */
+    pairs = calloc(presets.count * rooms.count + 1, sizeof *pairs);
+    if (pairs == NULL)
+        goto done;
+    for (size_t i = 0; i < count; i++) {
+        series_groups.key_of[i] = SIZE_MAX;
+        if (days[i] < 0)
+            continue;
+        size_t *pair = &pairs[preset_of[i] * rooms.count + room_of[i]];
+        if (*pair == 0) {
+            stats_drift_series *series = &result->series[result->series_count++];
+            series->preset = exams[i].preset;
+            series->room = exams[i].room;
+            series->exam_type = exams[i].exam_type;
+            series->points = calloc(week_count + 1, sizeof *series->points);
+            if (series->points == NULL)
+                goto done;
+            *pair = result->series_count;
+        }
+        series_groups.key_of[i] = *pair - 1;
+    }
+    if (key_groups_fill(&series_groups, count, result->series_count) != MITILOG_OK)
+        goto done;
     for (size_t s = 0; s < result->series_count; s++) {
         stats_drift_series *series = &result->series[s];
+        const size_t *members = &series_groups.members[series_groups.start[s]];
+        size_t member_count = series_groups.start[s + 1] - series_groups.start[s];
         for (size_t w = 0; w < week_count; w++) {
             stats_drift_point *point = &series->points[w];
             long monday = first_monday + 7L * (long)w;
             stats_iso_week_of_day(monday, &point->iso_year, &point->iso_week);
             size_t n = 0, b = 0;
-            for (size_t i = 0; i < count; i++) {
-                if (days[i] < 0 || !exams[i].has_governing ||
-                    !keys_equal(exams[i].preset, series->preset) ||
-                    !keys_equal(exams[i].room, series->room))
-                    continue;
-                if (days[i] >= monday && days[i] <= monday + 6)
+            for (size_t m = 0; m < member_count; m++) {
+                size_t i = members[m];
+                if (exams[i].has_governing && days[i] >= monday && days[i] <= monday + 6)
                     values[n++] = exams[i].max_governing;
             }
             point->count = n;
             point->has_median = n > 0;
             point->median = median_of(values, n);
-            for (size_t i = 0; i < count; i++) {
-                if (days[i] < 0 || !exams[i].has_governing ||
-                    !keys_equal(exams[i].preset, series->preset) ||
-                    !keys_equal(exams[i].room, series->room))
-                    continue;
-                if (days[i] < monday && days[i] >= monday - 7L * (long)baseline_weeks)
+            for (size_t m = 0; m < member_count; m++) {
+                size_t i = members[m];
+                if (exams[i].has_governing && days[i] < monday &&
+                    days[i] >= monday - 7L * (long)baseline_weeks)
                     values[b++] = exams[i].max_governing;
             }
             point->baseline_count = b;
@@ -704,9 +862,15 @@ mitilog_status stats_drift(const stats_exam *exams, size_t count, long first_mon
         qsort(result->series, result->series_count, sizeof *result->series, compare_series);
     status = MITILOG_OK;
 done:
+    free(preset_of);
+    free(room_of);
+    free(pairs);
     free(days);
     free(values);
     free(scratch);
+    key_table_free(&presets);
+    key_table_free(&rooms);
+    key_groups_free(&series_groups);
     if (status != MITILOG_OK) {
         stats_drift_result_free(result);
         mitilog_error_set(error, status, "preset drift: out of memory");

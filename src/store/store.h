@@ -289,8 +289,9 @@ mitilog_status store_policy_json(store *store, char **json, mitilog_error *error
 
 enum { STORE_THRESHOLD_COUNT = 4 };   /* governing TI 0.7, 1.0, 1.5, 2.0 */
 
-/* One exam for statistics (sql/queries/stats_exam_rows.sql). Strings are
- * malloc'ed (NULL: not recorded); freed by store_exam_rows_free(). */
+/* One exam for statistics (sql/queries/stats_exam_rows.sql). Strings
+ * belong to the store_exam_list that holds the row (NULL: not recorded,
+ * or a column not asked for; study_instance_uid is always read). */
 typedef struct store_exam_row {
     char *study_instance_uid;
     char *day;                  /* local date of the first capture */
@@ -308,12 +309,41 @@ typedef struct store_exam_row {
     char *first_acquired_at;
 } store_exam_row;
 
+/* The text columns store_load_exam_rows copies besides exam_type (the
+ * others are left NULL): copying only what a report uses keeps a long
+ * period cheap. */
+enum {
+    STORE_EXAM_IDENTITY = 1 << 0,   /* day, first_acquired_at */
+    STORE_EXAM_DETAIL = 1 << 1,     /* exam_type_label, governing_index, study_description */
+    STORE_EXAM_ROOM = 1 << 2,
+    STORE_EXAM_PRESET = 1 << 3,
+    STORE_EXAM_SHIFT = 1 << 4,
+    STORE_EXAM_TRANSDUCER = 1 << 5,
+    STORE_EXAM_ALL = (1 << 6) - 1
+};
+
+/* Rows and the memory of their strings; free with store_exam_list_free()
+ * (a zeroed list is empty). */
+typedef struct store_exam_text_block store_exam_text_block;
+typedef struct store_exam_list {
+    store_exam_row *rows;
+    size_t count;
+    store_exam_text_block *texts;
+} store_exam_list;
+
 /* Exams whose day is between from_day and to_day (YYYY-MM-DD, inclusive),
- * ordered by Study Instance UID. *rows is NULL with count 0 when none. */
+ * ordered by Study Instance UID; columns: STORE_EXAM_* bits. */
 mitilog_status store_load_exam_rows(store *store, const char *from_day,
-                                    const char *to_day, store_exam_row **rows,
-                                    size_t *count, mitilog_error *error);
-void store_exam_rows_free(store_exam_row *rows, size_t count);
+                                    const char *to_day, unsigned columns,
+                                    store_exam_list *list, mitilog_error *error);
+/* Only exam_type and the governing maximum (has_max_governing,
+ * max_governing) of the exams whose day is at or after from_day and
+ * before before_day, in no particular order (sql/queries/
+ * stats_exam_governing.sql): a baseline. */
+mitilog_status store_load_exam_governing(store *store, const char *from_day,
+                                         const char *before_day, store_exam_list *list,
+                                         mitilog_error *error);
+void store_exam_list_free(store_exam_list *list);
 
 /* Findings (not superseded) per exam and rule for the same period,
  * ordered by Study Instance UID, then rule. */
@@ -345,6 +375,11 @@ mitilog_status store_load_period_info(store *store, const char *from_day,
                                       store_period_info *info,
                                       mitilog_error *error);
 void store_period_info_free(store_period_info *info);
+
+/* The first and last exam day held (first acquisition; NULL when no
+ * exam), malloc'ed; the caller frees both. */
+mitilog_status store_load_day_range(store *store, char **first_day, char **last_day,
+                                    mitilog_error *error);
 
 /* JSON object for GET /api/v1/ingest (docs/api.md): objects per hour over
  * window_hours, rejections and quarantine, devices (silent after

@@ -28,12 +28,15 @@ static char *store_text_copy(sqlite3_stmt *statement, int column, int *failed)
     return copy;
 }
 
+/* One call into the connection per column (each sqlite3_column_* call
+ * takes the connection's mutex; the value's type and number do not). */
 static double store_double(sqlite3_stmt *statement, int column, int *present)
 {
-    int null = sqlite3_column_type(statement, column) == SQLITE_NULL;
+    sqlite3_value *value = sqlite3_column_value(statement, column);
+    int null = sqlite3_value_type(value) == SQLITE_NULL;
     if (present != NULL)
         *present = !null;
-    return null ? 0.0 : sqlite3_column_double(statement, column);
+    return null ? 0.0 : sqlite3_value_double(value);
 }
 
 /* Prepares name on the reader and binds the two days. Call under lock. */
@@ -55,75 +58,214 @@ static mitilog_status store_period_statement(store *st, const char *name,
     return MITILOG_OK;
 }
 
-void store_exam_rows_free(store_exam_row *rows, size_t count)
+/* The strings of an exam list: blocks of at least 64 KiB, filled in turn,
+ * freed together (one allocation per block rather than per string). */
+struct store_exam_text_block {
+    store_exam_text_block *next;
+    size_t used, size;
+    char text[];
+};
+enum { STORE_TEXT_BLOCK_SIZE = 64 * 1024 };
+
+/* Copies a column's text into the list's blocks (NULL stays NULL); sets
+ * *failed on allocation failure. */
+static char *store_list_text(store_exam_list *list, sqlite3_stmt *statement, int column,
+                             int *failed)
 {
-    for (size_t i = 0; rows != NULL && i < count; i++) {
-        store_exam_row *row = &rows[i];
-        free(row->study_instance_uid);
-        free(row->day);
-        free(row->exam_type);
-        free(row->exam_type_label);
-        free(row->governing_index);
-        free(row->room);
-        free(row->preset);
-        free(row->shift);
-        free(row->transducer);
-        free(row->study_description);
-        free(row->first_acquired_at);
+    const unsigned char *text = sqlite3_column_text(statement, column);
+    if (text == NULL)
+        return NULL;
+    /* NUL-terminated by SQLite; its consumers read C strings. */
+    size_t length = strlen((const char *)text) + 1;
+    store_exam_text_block *block = list->texts;
+    if (block == NULL || block->size - block->used < length) {
+        size_t size = length > STORE_TEXT_BLOCK_SIZE ? length : STORE_TEXT_BLOCK_SIZE;
+        store_exam_text_block *grown = malloc(sizeof *grown + size);
+        if (grown == NULL) {
+            *failed = 1;
+            return NULL;
+        }
+        grown->next = block;
+        grown->used = 0;
+        grown->size = size;
+        list->texts = block = grown;
     }
-    free(rows);
+    char *copy = block->text + block->used;
+    memcpy(copy, text, length);
+    block->used += length;
+    return copy;
 }
 
-mitilog_status store_load_exam_rows(store *st, const char *from_day, const char *to_day,
-                                    store_exam_row **rows, size_t *count,
-                                    mitilog_error *error)
+void store_exam_list_free(store_exam_list *list)
 {
-    *rows = NULL;
-    *count = 0;
+    if (list == NULL)
+        return;
+    store_exam_text_block *next;
+    for (store_exam_text_block *block = list->texts; block != NULL; block = next) {
+        next = block->next;
+        free(block);
+    }
+    free(list->rows);
+    memset(list, 0, sizeof *list);
+}
+
+/* Appends a zeroed row; NULL when out of memory. */
+static store_exam_row *store_list_add(store_exam_list *list, size_t *capacity)
+{
+    if (list->count == *capacity) {
+        size_t grown_capacity = *capacity ? *capacity * 2 : 256;
+        store_exam_row *grown = realloc(list->rows, grown_capacity * sizeof *grown);
+        if (grown == NULL)
+            return NULL;
+        list->rows = grown;
+        *capacity = grown_capacity;
+    }
+    store_exam_row *row = &list->rows[list->count++];
+    memset(row, 0, sizeof *row);
+    return row;
+}
+
+/* Columns of stats_exam_rows.sql. */
+enum {
+    EXAM_UID, EXAM_DAY, EXAM_TYPE, EXAM_TYPE_LABEL, EXAM_GOVERNING_INDEX, EXAM_MAX_GOVERNING,
+    EXAM_MAX_MI, EXAM_ROOM, EXAM_PRESET, EXAM_SHIFT, EXAM_TRANSDUCER, EXAM_DESCRIPTION,
+    EXAM_ESTIMATED, EXAM_SECONDS, EXAM_CAPTURES = EXAM_SECONDS + STORE_THRESHOLD_COUNT,
+    EXAM_INDEXED, EXAM_FINDINGS, EXAM_FIRST_ACQUIRED
+};
+
+/* The queries the loader chooses from. */
+typedef enum store_exam_query {
+    STORE_QUERY_ROWS,           /* stats_exam_rows.sql: every column */
+    STORE_QUERY_VALUES,         /* stats_exam_values.sql: type, one key, values */
+    STORE_QUERY_GOVERNING       /* stats_exam_governing.sql: type, governing value */
+} store_exam_query;
+
+/* Columns of stats_exam_values.sql. */
+enum {
+    VALUES_TYPE, VALUES_KEY, VALUES_MAX_GOVERNING, VALUES_MAX_MI, VALUES_ESTIMATED,
+    VALUES_SECONDS, VALUES_CAPTURES = VALUES_SECONDS + STORE_THRESHOLD_COUNT, VALUES_INDEXED,
+    VALUES_FINDINGS, VALUES_UID
+};
+
+/* The context column of a single STORE_EXAM_ROOM/PRESET/SHIFT/TRANSDUCER
+ * bit, as stats_exam_values.sql names it; "" for none; NULL for several. */
+static const char *store_key_name(unsigned columns)
+{
+    switch (columns & (STORE_EXAM_ROOM | STORE_EXAM_PRESET | STORE_EXAM_SHIFT |
+                       STORE_EXAM_TRANSDUCER)) {
+    case 0: return "";
+    case STORE_EXAM_ROOM: return "room";
+    case STORE_EXAM_PRESET: return "preset";
+    case STORE_EXAM_SHIFT: return "shift";
+    case STORE_EXAM_TRANSDUCER: return "transducer";
+    default: return NULL;
+    }
+}
+
+/* Where a row of stats_exam_values.sql puts its key. */
+static char **store_key_field(store_exam_row *row, unsigned columns)
+{
+    if (columns & STORE_EXAM_ROOM)
+        return &row->room;
+    if (columns & STORE_EXAM_PRESET)
+        return &row->preset;
+    if (columns & STORE_EXAM_SHIFT)
+        return &row->shift;
+    if (columns & STORE_EXAM_TRANSDUCER)
+        return &row->transducer;
+    return NULL;
+}
+
+/* One row of the chosen query. */
+static int store_exam_row_read(store_exam_list *list, store_exam_row *row,
+                               sqlite3_stmt *statement, unsigned columns, store_exam_query query)
+{
+    int failed = 0;
+    if (query == STORE_QUERY_GOVERNING) {
+        row->exam_type = store_list_text(list, statement, 0, &failed);
+        row->max_governing = store_double(statement, 1, &row->has_max_governing);
+        return failed;
+    }
+    if (query == STORE_QUERY_VALUES) {
+        row->exam_type = store_list_text(list, statement, VALUES_TYPE, &failed);
+        char **key = store_key_field(row, columns);
+        if (key != NULL)
+            *key = store_list_text(list, statement, VALUES_KEY, &failed);
+        row->max_governing =
+            store_double(statement, VALUES_MAX_GOVERNING, &row->has_max_governing);
+        row->max_mi = store_double(statement, VALUES_MAX_MI, &row->has_max_mi);
+        row->estimated_seconds = store_double(statement, VALUES_ESTIMATED, NULL);
+        for (int t = 0; t < STORE_THRESHOLD_COUNT; t++)
+            row->seconds_at_or_above[t] = store_double(statement, VALUES_SECONDS + t, NULL);
+        row->capture_count = (long)sqlite3_column_int64(statement, VALUES_CAPTURES);
+        row->indexed_count = (long)sqlite3_column_int64(statement, VALUES_INDEXED);
+        row->finding_count = (long)sqlite3_column_int64(statement, VALUES_FINDINGS);
+        row->study_instance_uid = store_list_text(list, statement, VALUES_UID, &failed);
+        return failed;
+    }
+    row->exam_type = store_list_text(list, statement, EXAM_TYPE, &failed);
+    row->study_instance_uid = store_list_text(list, statement, EXAM_UID, &failed);
+    if (columns & STORE_EXAM_IDENTITY) {
+        row->day = store_list_text(list, statement, EXAM_DAY, &failed);
+        row->first_acquired_at = store_list_text(list, statement, EXAM_FIRST_ACQUIRED, &failed);
+    }
+    if (columns & STORE_EXAM_DETAIL) {
+        row->exam_type_label = store_list_text(list, statement, EXAM_TYPE_LABEL, &failed);
+        row->governing_index = store_list_text(list, statement, EXAM_GOVERNING_INDEX, &failed);
+        row->study_description = store_list_text(list, statement, EXAM_DESCRIPTION, &failed);
+    }
+    if (columns & STORE_EXAM_ROOM)
+        row->room = store_list_text(list, statement, EXAM_ROOM, &failed);
+    if (columns & STORE_EXAM_PRESET)
+        row->preset = store_list_text(list, statement, EXAM_PRESET, &failed);
+    if (columns & STORE_EXAM_SHIFT)
+        row->shift = store_list_text(list, statement, EXAM_SHIFT, &failed);
+    if (columns & STORE_EXAM_TRANSDUCER)
+        row->transducer = store_list_text(list, statement, EXAM_TRANSDUCER, &failed);
+    row->max_governing = store_double(statement, EXAM_MAX_GOVERNING, &row->has_max_governing);
+    row->max_mi = store_double(statement, EXAM_MAX_MI, &row->has_max_mi);
+    row->estimated_seconds = store_double(statement, EXAM_ESTIMATED, NULL);
+    for (int t = 0; t < STORE_THRESHOLD_COUNT; t++)
+        row->seconds_at_or_above[t] = store_double(statement, EXAM_SECONDS + t, NULL);
+    row->capture_count = (long)sqlite3_column_int64(statement, EXAM_CAPTURES);
+    row->indexed_count = (long)sqlite3_column_int64(statement, EXAM_INDEXED);
+    row->finding_count = (long)sqlite3_column_int64(statement, EXAM_FINDINGS);
+    return failed;
+}
+
+/* Study Instance UID order: SQLite's BINARY collation (memcmp, then
+ * length) is strcmp's order on these NUL-free strings; UIDs are unique. */
+static int store_compare_rows(const void *left, const void *right)
+{
+    const store_exam_row *a = left, *b = right;
+    return strcmp(a->study_instance_uid, b->study_instance_uid);
+}
+
+static mitilog_status store_load_exams(store *st, store_exam_query query, const char *from_day,
+                                       const char *to_day, unsigned columns,
+                                       store_exam_list *list, mitilog_error *error)
+{
+    static const char *const names[] = {"queries/stats_exam_rows.sql",
+                                        "queries/stats_exam_values.sql",
+                                        "queries/stats_exam_governing.sql"};
+    memset(list, 0, sizeof *list);
     if (st == NULL || from_day == NULL || to_day == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "store_load_exam_rows: no store or period");
     sqlite3_stmt *statement = NULL;
-    store_exam_row *list = NULL;
-    size_t n = 0, capacity = 0;
+    size_t capacity = 0;
     pthread_mutex_lock(&st->reader_lock);
-    mitilog_status status = store_period_statement(st, "queries/stats_exam_rows.sql",
-                                                   from_day, to_day, &statement, error);
+    mitilog_status status = store_period_statement(st, names[query], from_day, to_day,
+                                                   &statement, error);
+    if (status == MITILOG_OK && query == STORE_QUERY_VALUES &&
+        sqlite3_bind_text(statement, 3, store_key_name(columns), -1, SQLITE_STATIC) !=
+            SQLITE_OK)
+        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: bind failed",
+                                   names[query]);
     int rc = SQLITE_DONE;
     while (status == MITILOG_OK && (rc = sqlite3_step(statement)) == SQLITE_ROW) {
-        if (n == capacity) {
-            size_t grown_capacity = capacity ? capacity * 2 : 256;
-            store_exam_row *grown = realloc(list, grown_capacity * sizeof *grown);
-            if (grown == NULL) {
-                status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "exam rows: out of memory");
-                break;
-            }
-            list = grown;
-            capacity = grown_capacity;
-        }
-        store_exam_row *row = &list[n++];
-        memset(row, 0, sizeof *row);
-        int failed = 0;
-        row->study_instance_uid = store_text_copy(statement, 0, &failed);
-        row->day = store_text_copy(statement, 1, &failed);
-        row->exam_type = store_text_copy(statement, 2, &failed);
-        row->exam_type_label = store_text_copy(statement, 3, &failed);
-        row->governing_index = store_text_copy(statement, 4, &failed);
-        row->max_governing = store_double(statement, 5, &row->has_max_governing);
-        row->max_mi = store_double(statement, 6, &row->has_max_mi);
-        row->room = store_text_copy(statement, 7, &failed);
-        row->preset = store_text_copy(statement, 8, &failed);
-        row->shift = store_text_copy(statement, 9, &failed);
-        row->transducer = store_text_copy(statement, 10, &failed);
-        row->study_description = store_text_copy(statement, 11, &failed);
-        row->estimated_seconds = store_double(statement, 12, NULL);
-        for (int t = 0; t < STORE_THRESHOLD_COUNT; t++)
-            row->seconds_at_or_above[t] = store_double(statement, 13 + t, NULL);
-        row->capture_count = (long)sqlite3_column_int64(statement, 17);
-        row->indexed_count = (long)sqlite3_column_int64(statement, 18);
-        row->finding_count = (long)sqlite3_column_int64(statement, 19);
-        row->first_acquired_at = store_text_copy(statement, 20, &failed);
-        if (failed)
+        store_exam_row *row = store_list_add(list, &capacity);
+        if (row == NULL || store_exam_row_read(list, row, statement, columns, query))
             status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "exam rows: out of memory");
     }
     if (status == MITILOG_OK && rc != SQLITE_DONE)
@@ -131,12 +273,34 @@ mitilog_status store_load_exam_rows(store *st, const char *from_day, const char 
     sqlite3_finalize(statement);
     pthread_mutex_unlock(&st->reader_lock);
     if (status != MITILOG_OK) {
-        store_exam_rows_free(list, n);
+        store_exam_list_free(list);
         return status;
     }
-    *rows = list;
-    *count = n;
+    /* Sorted here rather than by the query: SQLite's sorter copied every
+     * row into a record and back, about as much work as the scan. */
+    if (query != STORE_QUERY_GOVERNING && list->count > 1)
+        qsort(list->rows, list->count, sizeof *list->rows, store_compare_rows);
     return MITILOG_OK;
+}
+
+mitilog_status store_load_exam_rows(store *st, const char *from_day, const char *to_day,
+                                    unsigned columns, store_exam_list *list,
+                                    mitilog_error *error)
+{
+    /* Without identity and detail columns and with at most one grouping
+     * column, the short rows of stats_exam_values.sql do. */
+    store_exam_query query =
+        (columns & (STORE_EXAM_IDENTITY | STORE_EXAM_DETAIL)) == 0 && store_key_name(columns)
+            ? STORE_QUERY_VALUES
+            : STORE_QUERY_ROWS;
+    return store_load_exams(st, query, from_day, to_day, columns, list, error);
+}
+
+mitilog_status store_load_exam_governing(store *st, const char *from_day,
+                                         const char *before_day, store_exam_list *list,
+                                         mitilog_error *error)
+{
+    return store_load_exams(st, STORE_QUERY_GOVERNING, from_day, before_day, 0, list, error);
 }
 
 void store_finding_counts_free(store_finding_count *rows, size_t count)
@@ -239,6 +403,38 @@ mitilog_status store_load_period_info(store *st, const char *from_day, const cha
     pthread_mutex_unlock(&st->reader_lock);
     if (status != MITILOG_OK)
         store_period_info_free(info);
+    return status;
+}
+
+mitilog_status store_load_day_range(store *st, char **first_day, char **last_day,
+                                    mitilog_error *error)
+{
+    *first_day = NULL;
+    *last_day = NULL;
+    if (st == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_load_day_range: no store");
+    sqlite3_stmt *statement = NULL;
+    pthread_mutex_lock(&st->reader_lock);
+    mitilog_status status = store_prepare(st->reader, "queries/stats_day_range.sql", &statement,
+                                          error);
+    if (status == MITILOG_OK) {
+        if (sqlite3_step(statement) != SQLITE_ROW) {
+            status = store_sql_error(error, st->reader, "query exam days");
+        } else {
+            int failed = 0;
+            *first_day = store_text_copy(statement, 0, &failed);
+            *last_day = store_text_copy(statement, 1, &failed);
+            if (failed)
+                status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "exam days: out of memory");
+        }
+    }
+    sqlite3_finalize(statement);
+    pthread_mutex_unlock(&st->reader_lock);
+    if (status != MITILOG_OK) {
+        free(*first_day);
+        free(*last_day);
+        *first_day = *last_day = NULL;
+    }
     return status;
 }
 

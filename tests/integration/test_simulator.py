@@ -97,6 +97,32 @@ def test_same_seed_identical_files(tmp_path):
     assert a != c
 
 
+def test_site_renames_rooms_only(tmp_path):
+    """--site 1 is the default; --site 2 names the same rooms "-2" (Station
+    Name, serial, manifest room) and changes nothing else of a file."""
+    if not os.access(BINARY, os.X_OK):
+        pytest.skip("no mitilog binary at %s (set MITILOG_BINARY)" % BINARY)
+    for name, site in (("one", "1"), ("two", "2")):
+        subprocess.run([BINARY, "simulate", "--out", str(tmp_path / name), "--days", "1",
+                        "--seed", "5", "--site", site], check=True, capture_output=True)
+    simulate(tmp_path / "default", 1, 5)
+    assert digests(tmp_path / "one") == digests(tmp_path / "default")
+    with open(tmp_path / "two" / "manifest.csv") as f:
+        rooms = {line.split(",")[5] for line in f.read().splitlines()[1:]}
+    assert rooms and all(room.endswith("-2") for room in rooms), rooms
+    first = sorted(glob.glob(str(tmp_path / "one" / "*" / "e001" / "001.dcm")))[0]
+    second = first.replace(str(tmp_path / "one"), str(tmp_path / "two"))
+    a, b = pydicom.dcmread(first), pydicom.dcmread(second)
+    assert b.StationName == a.StationName + "-2"
+    assert b.DeviceSerialNumber == a.DeviceSerialNumber + "-2"
+    for element in a:
+        if element.tag not in (0x00081010, 0x00181000):
+            assert b[element.tag] == element, element.tag
+    run = subprocess.run([BINARY, "simulate", "--out", str(tmp_path / "bad"), "--site", "10"],
+                         capture_output=True)
+    assert run.returncode == 2
+
+
 def test_meta_header_is_deterministic(week):
     path = sorted(glob.glob(os.path.join(str(week), "*", "*", "001.dcm")))[0]
     ds = pydicom.dcmread(path)

@@ -14,6 +14,7 @@
 #include <stdarg.h>
 #include <stddef.h>
 #include <stdint.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include <cmocka.h>
@@ -114,10 +115,106 @@ static void zero_mad_falls_back_on_p95(void **state)
     assert_true(outlier.is_outlier && outlier.above_p95 && !outlier.above_robust_z);
 }
 
+/* stats_sort against a reference: the values tagged with their position,
+ * ordered by value then position (a stable sort's result, what glibc's
+ * merge-sort qsort gives), compared bit for bit so that the order of equal
+ * values (0.0 and -0.0 among them) counts. Sizes around the 16-value runs
+ * and the merge widths; few distinct values, so most compare equal.
+ * Common practice, no source. */
+typedef struct tagged {
+    double value;
+    size_t position;
+} tagged;
+
+static int compare_tagged(const void *left, const void *right)
+{
+    const tagged *a = left, *b = right;
+    if (a->value != b->value)
+        return a->value < b->value ? -1 : 1;
+    return (a->position > b->position) - (a->position < b->position);
+}
+
+static void sort_is_ascending_and_stable(void **state)
+{
+    (void)state;
+    static const size_t sizes[] = {0, 1, 2, 15, 16, 17, 31, 32, 33, 100, 1000, 4099};
+    uint64_t random_state = 12345;
+    for (size_t s = 0; s < sizeof sizes / sizeof sizes[0]; s++) {
+        size_t n = sizes[s];
+        double *values = malloc((n + 1) * sizeof *values);
+        tagged *reference = malloc((n + 1) * sizeof *reference);
+        assert_non_null(values);
+        assert_non_null(reference);
+        for (size_t i = 0; i < n; i++) {
+            random_state = random_state * 6364136223846793005u + 1442695040888963407u;
+            unsigned pick = (unsigned)(random_state >> 33) % 23;
+            values[i] = pick == 0 ? -0.0 : (double)((int)pick - 11) / 10.0;
+            reference[i].value = values[i];
+            reference[i].position = i;
+        }
+        stats_sort(values, n);
+        qsort(reference, n, sizeof *reference, compare_tagged);
+        for (size_t i = 0; i < n; i++) {
+            if (memcmp(&values[i], &reference[i].value, sizeof values[i]) != 0)
+                fail_msg("size %zu, position %zu: %g != %g", n, i, values[i],
+                         reference[i].value);
+        }
+        free(values);
+        free(reference);
+    }
+}
+
+/* stats_quantiles against sorting: the same numbers, bit for bit, for
+ * sizes around the selection's cut-over, many equal values (zeros, as
+ * dwell times have) and distinct ones; the type 7 quantiles of Python's
+ * statistics module at the top of this file come out of stats_sort and
+ * stats_quantile_sorted, so this ties the selection to them.
+ * Common practice, no source. */
+static void quantiles_select_as_sorting_does(void **state)
+{
+    (void)state;
+    static const size_t sizes[] = {1, 2, 3, 16, 17, 40, 101, 1000, 5003};
+    static const double p[] = {0.05, 0.25, 0.50, 0.75, 0.95, 0.999, 0.0, 1.0};
+    enum { P = sizeof p / sizeof p[0] };
+    uint64_t random_state = 987654321;
+    for (int kind = 0; kind < 3; kind++) {
+        for (size_t s = 0; s < sizeof sizes / sizeof sizes[0]; s++) {
+            size_t n = sizes[s];
+            double *values = malloc(n * sizeof *values), *sorted = malloc(n * sizeof *sorted);
+            assert_non_null(values);
+            assert_non_null(sorted);
+            for (size_t i = 0; i < n; i++) {
+                random_state = random_state * 6364136223846793005u + 1442695040888963407u;
+                unsigned r = (unsigned)(random_state >> 33);
+                values[i] = kind == 0   ? (r % 10 < 7 ? 0.0 : (double)(r % 50) / 10.0)
+                            : kind == 1 ? (double)(r % 1000003) / 7.0
+                                        : (double)(n - i);   /* descending */
+                sorted[i] = values[i];
+            }
+            stats_sort(sorted, n);
+            double got[P], minimum, maximum;
+            stats_quantiles(values, n, p, P, got, &minimum, &maximum);
+            assert_memory_equal(&minimum, &sorted[0], sizeof minimum);
+            assert_memory_equal(&maximum, &sorted[n - 1], sizeof maximum);
+            for (size_t q = 0; q < P; q++) {
+                double expected;
+                assert_int_equal(stats_quantile_sorted(sorted, n, p[q], &expected), MITILOG_OK);
+                if (memcmp(&got[q], &expected, sizeof expected) != 0)
+                    fail_msg("kind %d, n %zu, p %g: %.17g != %.17g", kind, n, p[q], got[q],
+                             expected);
+            }
+            free(values);
+            free(sorted);
+        }
+    }
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(quantiles_match_python_inclusive),
+        cmocka_unit_test(sort_is_ascending_and_stable),
+        cmocka_unit_test(quantiles_select_as_sorting_does),
         cmocka_unit_test(even_count),
         cmocka_unit_test(robust_z_hand_worked),
         cmocka_unit_test(zero_mad_falls_back_on_p95),

@@ -258,7 +258,7 @@ static void durability_setting(void **state)
 static void open_creates_schema(void **state)
 {
     fixture *f = *state;
-    assert_int_equal(migration_count(), 4); /* sql/migrations/001..004 */
+    assert_int_equal(migration_count(), 5); /* sql/migrations/001..005 */
     assert_int_equal(store_schema_version(f->store), migration_count());
     assert_int_equal(query_int(f->path, "PRAGMA user_version"),
                      migration_count());
@@ -464,7 +464,7 @@ static void migration_4_keeps_modes(void **state)
     store *st = NULL;
     if (store_open(path, 5000, &st, &error) != MITILOG_OK)
         fail_msg("store_open: %s", error.text);
-    assert_int_equal(store_schema_version(st), 4);
+    assert_int_equal(store_schema_version(st), migration_count());
     store_close(st);
     assert_int_equal(query_int(path, "SELECT modes_image_type FROM instances WHERE id = 7"), 9);
     assert_int_equal(query_int(path, "SELECT modes_regions FROM instances WHERE id = 7"), 1);
@@ -948,10 +948,88 @@ static void health_counts(void **state)
                      1);
 }
 
+/* Runs SQL on the database file with a separate connection (committed
+ * before it returns), failing the test on error. */
+static void exec_sql(const char *path, const char *sql)
+{
+    sqlite3 *db = NULL;
+    char *message = NULL;
+    assert_int_equal(sqlite3_open(path, &db), SQLITE_OK);
+    sqlite3_busy_timeout(db, 5000);
+    if (sqlite3_exec(db, sql, NULL, NULL, &message) != SQLITE_OK)
+        fail_msg("%s: %s", sql, message);
+    sqlite3_free(message);
+    sqlite3_close(db);
+}
+
+/* The exam-row loaders: exams of five days written out of UID order; a
+ * period returns its exams sorted by Study Instance UID (the order reports
+ * sum in), only the text columns asked for, and the baseline loader stops
+ * before its end day. Common practice, no source. */
+static void exam_rows_sorted_by_uid(void **state)
+{
+    fixture *f = *state;
+    static const char *const exams[][2] = {
+        {"1.9", "2024-03-01"}, {"1.4", "2024-03-02"}, {"1.30", "2024-03-02"},
+        {"1.10", "2024-03-03"}, {"1.2", "2024-03-04"}, {"1.1", "2024-03-05"}};
+    for (size_t i = 0; i < sizeof exams / sizeof exams[0]; i++) {
+        char sql[1024];
+        snprintf(sql, sizeof sql,
+                 "INSERT INTO exams (study_instance_uid, exam_type, exam_type_source, "
+                 "governing_index, governing_index_source, first_acquired_at, instance_count, "
+                 "capture_count, cine_count, sr_count, other_count, max_tis, estimated_seconds, "
+                 "unscaled_seconds, scale, span_seconds, timed_count, untimed_count, "
+                 "capped_count, gap_cap_seconds, updated_at) VALUES ('%s', 'abdomen', 'test', "
+                 "'tis', 'test', '%sT10:00:00', 0, 0, 0, 0, 0, %zu.5, 60, 60, 1, 60, 0, 0, 0, "
+                 "120, 'now')",
+                 exams[i][0], exams[i][1], i);
+        exec_sql(f->path, sql);
+    }
+    store_exam_list list = {0};
+    mitilog_error error = {{0}};
+    assert_int_equal(store_load_exam_rows(f->store, "2024-03-02", "2024-03-04",
+                                          STORE_EXAM_IDENTITY, &list, &error),
+                     MITILOG_OK);
+    /* strcmp order "1.10" < "1.2" < "1.30" < "1.4", not the days' order */
+    static const char *const expected[] = {"1.10", "1.2", "1.30", "1.4"};
+    assert_int_equal(list.count, 4);
+    for (size_t i = 0; i < list.count; i++) {
+        assert_string_equal(list.rows[i].study_instance_uid, expected[i]);
+        assert_non_null(list.rows[i].day);
+        assert_string_equal(list.rows[i].exam_type, "abdomen");
+        assert_null(list.rows[i].room);   /* not asked for */
+        assert_int_equal(list.rows[i].has_max_governing, 1);
+    }
+    assert_string_equal(list.rows[0].day, "2024-03-03");
+    store_exam_list_free(&list);
+    /* the short rows of statistics: same exams, same order */
+    assert_int_equal(store_load_exam_rows(f->store, "2024-03-02", "2024-03-04",
+                                          STORE_EXAM_ROOM, &list, &error),
+                     MITILOG_OK);
+    assert_int_equal(list.count, 4);
+    for (size_t i = 0; i < list.count; i++) {
+        assert_string_equal(list.rows[i].study_instance_uid, expected[i]);
+        assert_null(list.rows[i].day);
+    }
+    store_exam_list_free(&list);
+    /* a baseline: from the first day, before the end day */
+    assert_int_equal(store_load_exam_governing(f->store, "2024-03-01", "2024-03-04", &list,
+                                               &error),
+                     MITILOG_OK);
+    assert_int_equal(list.count, 4);
+    double sum = 0;
+    for (size_t i = 0; i < list.count; i++)
+        sum += list.rows[i].max_governing;
+    assert_true(sum == 0.5 + 1.5 + 2.5 + 3.5);
+    store_exam_list_free(&list);
+    store_exam_list_free(&list);   /* a freed list is empty */
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test_setup_teardown(durability_setting, fixture_setup, fixture_teardown),
+        cmocka_unit_test_setup_teardown(exam_rows_sorted_by_uid, fixture_setup, fixture_teardown),
         cmocka_unit_test_setup_teardown(open_creates_schema, fixture_setup,
                                         fixture_teardown),
         cmocka_unit_test_setup_teardown(put_and_read_back, fixture_setup,
