@@ -49,6 +49,7 @@ typedef struct store_write_statements {
     sqlite3_stmt *insert_mode_maximum;
     sqlite3_stmt *upsert_header;
     sqlite3_stmt *delete_header;
+    sqlite3_stmt *refresh_summary;
 } store_write_statements;
 
 /* Statements of the read connection; used under reader_lock. */

@@ -433,7 +433,33 @@ static void store_fail_batch(store_request *batch, const char *what,
     }
 }
 
-/* An evaluation, after the exam record it was made from when it has one. */
+/* Rewrites the summary row of an exam (migration 005) from what this
+ * transaction wrote: once per exam written, not once per row. */
+static mitilog_status store_refresh_summary(store *st, const char *study_instance_uid,
+                                            mitilog_error *error)
+{
+    sqlite3_stmt *statement = st->write.refresh_summary;
+    int rc = sqlite3_bind_text(statement, 1, study_instance_uid, -1, SQLITE_STATIC);
+    if (rc == SQLITE_OK)
+        rc = store_step_done(statement) == SQLITE_DONE ? SQLITE_OK : SQLITE_ERROR;
+    sqlite3_clear_bindings(statement);
+    if (rc != SQLITE_OK)
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: exam summary: %s",
+                                 study_instance_uid, sqlite3_errmsg(st->writer));
+    return MITILOG_OK;
+}
+
+/* An exam record alone, with its summary. */
+static mitilog_status store_write_exam_summarised(store *st, store_request *request)
+{
+    mitilog_status status = store_write_exam(st, request->exam, &request->error);
+    if (status == MITILOG_OK)
+        status = store_refresh_summary(st, request->exam->study_instance_uid, &request->error);
+    return status;
+}
+
+/* An evaluation, after the exam record it was made from when it has one;
+ * an exam's evaluation then rewrites the exam's summary. */
 static mitilog_status store_write_evaluated(store *st, store_request *request)
 {
     const store_evaluation *evaluation = request->evaluation;
@@ -442,7 +468,11 @@ static mitilog_status store_write_evaluated(store *st, store_request *request)
         if (status != MITILOG_OK)
             return status;
     }
-    return store_write_evaluation(st, evaluation, &request->counts, &request->error);
+    mitilog_status status =
+        store_write_evaluation(st, evaluation, &request->counts, &request->error);
+    if (status == MITILOG_OK && evaluation->study_instance_uid != NULL)
+        status = store_refresh_summary(st, evaluation->study_instance_uid, &request->error);
+    return status;
 }
 
 /* Writes one request's rows in the open transaction; returns its status. */
@@ -452,7 +482,7 @@ static mitilog_status store_write_one(store *st, store_request *request)
     memset(&request->counts, 0, sizeof request->counts);
     request->error.text[0] = '\0';
     return request->record != NULL ? store_write_instance(st, request)
-           : request->exam != NULL ? store_write_exam(st, request->exam, &request->error)
+           : request->exam != NULL ? store_write_exam_summarised(st, request)
            : request->evaluation != NULL ? store_write_evaluated(st, request)
            : request->policy != NULL ? store_write_policy(st, request->policy, &request->error)
                                      : store_write_rejection(st, request);
@@ -714,6 +744,7 @@ mitilog_status store_write_prepare(store *st, mitilog_error *error)
          &st->write.insert_mode_maximum},
         {"queries/instance_header_upsert.sql", &st->write.upsert_header},
         {"queries/instance_header_delete.sql", &st->write.delete_header},
+        {"queries/exam_summary_refresh.sql", &st->write.refresh_summary},
     };
     for (size_t i = 0; i < sizeof files / sizeof files[0]; i++) {
         mitilog_status status = store_prepare(st->writer, files[i].name,
@@ -733,7 +764,7 @@ void store_write_finalize(store *st)
         &st->write.insert_sr_value, &st->write.upsert_exam,
         &st->write.delete_timeline, &st->write.delete_mode_maxima,
         &st->write.insert_timeline, &st->write.insert_mode_maximum,
-        &st->write.upsert_header, &st->write.delete_header};
+        &st->write.upsert_header, &st->write.delete_header, &st->write.refresh_summary};
     for (size_t i = 0; i < sizeof statements / sizeof statements[0]; i++) {
         sqlite3_finalize(*statements[i]);
         *statements[i] = NULL;
