@@ -225,7 +225,10 @@ mitilog_status store_open(const char *path, int busy_timeout_ms, store **out,
         status = store_write_prepare(opened, error);
     /* The read connection is opened after the migrations, read-only. */
     if (status == MITILOG_OK)
-        status = store_connect(path, SQLITE_OPEN_READONLY, busy_timeout_ms,
+        /* NOMUTEX: every use of the read connection is already serialised
+         * by reader_lock, and SQLite's own mutex around each column call
+         * cost a sixth of a period view's instructions. */
+        status = store_connect(path, SQLITE_OPEN_READONLY | SQLITE_OPEN_NOMUTEX, busy_timeout_ms,
                                &opened->reader, error);
     if (status == MITILOG_OK)
         status = store_exec_file(opened->reader, "queries/pragma_reader.sql",
