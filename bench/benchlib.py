@@ -71,21 +71,25 @@ def require_tools(*names):
                  % ", ".join(missing))
 
 
-def file_set(binary, days, seed, limit=None):
+def file_set(binary, days, seed, limit=None, matrix=None):
     """The simulated files (sorted paths) and their total size in bytes.
 
-    Generated once into bench/out/sim-d<days>-s<seed>/files/; the manifest
-    is moved beside files/ so that the folder holds DICOM files only."""
-    folder = os.path.join(OUT, "sim-d%d-s%d" % (days, seed))
+    Generated once into bench/out/sim-d<days>-s<seed>[-m<matrix>]/files/
+    (matrix: `mitilog simulate --matrix`, e.g. "640x480"; None: the tiny
+    default); the manifest is moved beside files/ so that the folder holds
+    DICOM files only."""
+    folder = os.path.join(OUT, "sim-d%d-s%d%s" % (days, seed,
+                                                 "-m" + matrix if matrix else ""))
     files_dir = os.path.join(folder, "files")
     done = os.path.join(folder, "complete")
     if not os.path.exists(done):
         shutil.rmtree(folder, ignore_errors=True)
         os.makedirs(folder)
-        log("generating the file set: mitilog simulate --days %d --seed %d"
-            % (days, seed))
+        log("generating the file set: mitilog simulate --days %d --seed %d%s"
+            % (days, seed, " --matrix " + matrix if matrix else ""))
         subprocess.run([binary, "simulate", "--out", files_dir, "--days",
-                        str(days), "--seed", str(seed)], check=True,
+                        str(days), "--seed", str(seed)]
+                       + (["--matrix", matrix] if matrix else []), check=True,
                        stdout=subprocess.DEVNULL)
         os.rename(os.path.join(files_dir, "manifest.csv"),
                   os.path.join(folder, "manifest.csv"))

@@ -6,14 +6,20 @@ The same simulated files are sent with N concurrent storescu processes
   (a) storescp --fork -od /tmp/...  (one child process per association,
       so N associations are received at once), and
   (b) mitilog serve, retention = header, each C-STORE answered after the
-      commit that holds its row (group commit), data directory in /tmp.
+      commit that holds its row (group commit), data directory in /tmp,
+      durability process by default: a commit survives the daemon being
+      killed, not a power loss, the guarantee storescp gives (it writes
+      files without syncing them); --durability power_loss syncs the WAL
+      before every answer.
 Wall time from the first sender's start to the last sender's exit.
 Repeats alternate the servers (a b a b ...); the median is reported.
 After each mitilog run the database must hold exactly the expected number
 of instances, and storescp's folder exactly the expected number of files,
 or the script fails.
 
-    /usr/bin/python3 bench/ingest.py              # full: ~3,800 objects
+    /usr/bin/python3 bench/ingest.py              # full: ~3,800 small objects
+    /usr/bin/python3 bench/ingest.py --matrix 640x480 --days 1 --limit 400
+                                      # 400 objects of department size (~1 GB)
     /usr/bin/python3 bench/ingest.py --tiny       # seconds, for CI
 """
 import argparse
@@ -70,9 +76,13 @@ def main():
     parser.add_argument("--senders", default="1,2,4",
                         help="comma-separated concurrencies")
     parser.add_argument("--repeats", type=int, default=3)
-    parser.add_argument("--durability", default="power_loss",
+    parser.add_argument("--durability", default="process",
                         choices=["power_loss", "process"],
-                        help="mitilog's [storage] durability (default power_loss)")
+                        help="mitilog's [storage] durability (default process: "
+                             "storescp does not sync either)")
+    parser.add_argument("--matrix", default=None,
+                        help="pixel matrix of the simulated single frames, e.g. "
+                             "640x480 (default: the simulator's tiny one)")
     parser.add_argument("--retention", default="header",
                         choices=("none", "header", "full"),
                         help="mitilog's [storage] retention (default header)")
@@ -90,14 +100,15 @@ def main():
         args.json = os.path.join(benchlib.OUT, "ingest-tiny.json")
     benchlib.require_tools("storescu", "storescp", "echoscu")
     binary = benchlib.mitilog_binary()
-    paths, size = benchlib.file_set(binary, args.days, args.seed, args.limit)
+    paths, size = benchlib.file_set(binary, args.days, args.seed, args.limit, args.matrix)
     benchlib.header("ingest throughput")
-    benchlib.log("file set: %d objects, %.1f MB (simulate --days %d --seed %d)"
-                 % (len(paths), size / 1e6, args.days, args.seed))
+    benchlib.log("file set: %d objects, %.1f MB (simulate --days %d --seed %d%s)"
+                 % (len(paths), size / 1e6, args.days, args.seed,
+                    " --matrix " + args.matrix if args.matrix else ""))
     benchlib.log("storescp --fork -pdu 65536 (files in /tmp) vs mitilog serve "
-                 "(retention %s, ack after commit, data in %s); "
+                 "(retention %s, durability %s, ack after commit, data in %s); "
                  "TCP_NODELAY=1; %d repeats, a-b alternating"
-                 % (args.retention, args.data_root, args.repeats))
+                 % (args.retention, args.durability, args.data_root, args.repeats))
     results = []
     for senders in [int(s) for s in args.senders.split(",")]:
         samples = {"storescp": [], "mitilog": []}
@@ -140,7 +151,7 @@ def main():
             row["mitilog"]["server_cpu_ms_per_object"]))
     os.makedirs(os.path.dirname(args.json), exist_ok=True)
     with open(args.json, "w") as f:
-        json.dump({"machine": benchlib.machine(), "objects": len(paths),
+        json.dump({"machine": benchlib.machine(), "objects": len(paths), "matrix": args.matrix,
                    "retention": args.retention, "durability": args.durability, "data_root": args.data_root,
                    "bytes": size, "results": results}, f, indent=1)
     benchlib.log("results written to %s" % os.path.relpath(args.json))

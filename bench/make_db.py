@@ -169,16 +169,23 @@ def main():
                                    stdout=subprocess.DEVNULL)
                     os.unlink(os.path.join(out, "manifest.csv"))
                     sites.append(out)
+                imported_at = time.monotonic()
                 result = subprocess.run([binary, "import", "--config", config]
                                         + sites, stdout=subprocess.PIPE,
                                         stderr=subprocess.PIPE)
+                import_seconds = time.monotonic() - imported_at
                 out = result.stdout.decode(errors="replace").strip()
                 if result.returncode != 0 or not re.search(
                         r"rejected 0, not stored 0", out):
                     raise SystemExit("make_db: import of %s failed: %s\n%s"
                                      % (start, out, result.stderr.decode(
                                          errors="replace")[-2000:]))
-                benchlib.log("  %s + %d days: %s" % (start, days, out))
+                held = sqlite3.connect("file:%s?mode=ro" % database, uri=True).execute(
+                    "SELECT count(*) FROM instances").fetchone()[0]
+                added = int(re.search(r"imported (\d+)", out).group(1))
+                benchlib.log("  %s + %d days: %s; import %.1f s, %.0f files/s, %d instances held"
+                             % (start, days, out, import_seconds,
+                                added / import_seconds, held))
             finally:
                 shutil.rmtree(files, ignore_errors=True)
             day += days

@@ -21,6 +21,7 @@ static void simulate_usage(FILE *out)
     fprintf(out,
         "usage: mitilog simulate --out DIR [--days N] [--seed S]\n"
         "                        [--start YYYY-MM-DD] [--site N]\n"
+        "                        [--matrix COLUMNSxROWS]\n"
         "       mitilog simulate --send HOST:PORT [--out DIR] [--days N]\n"
         "                        [--seed S] [--start YYYY-MM-DD] [--aet AE]\n"
         "                        [--called-aet AE] [--speed X]\n"
@@ -38,6 +39,9 @@ static void simulate_usage(FILE *out)
         "                    rooms' station names, AE titles and serials;\n"
         "                    other seeds over the same days at other sites\n"
         "                    make a bigger department\n"
+        "  --matrix CxR      pixel matrix of single frames, 2x2 to 2048x2048\n"
+        "                    (cine frames: half each way); default 32x24,\n"
+        "                    tiny; e.g. 640x480 gives objects of realistic size\n"
         "  --send HOST:PORT  stream the studies with storescu in time order\n"
         "  --aet AE          calling AE title (default: each room's own)\n"
         "  --called-aet AE   called AE title (default MITILOG)\n"
@@ -77,6 +81,7 @@ int command_simulate(int argc, char **argv)
         {"called-aet", required_argument, NULL, 'c'},
         {"speed", required_argument, NULL, 'x'},
         {"site", required_argument, NULL, 'i'},
+        {"matrix", required_argument, NULL, 'm'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
@@ -149,6 +154,16 @@ int command_simulate(int argc, char **argv)
             if (errno != 0 || *end != '\0' || site < 1 || site > 9)
                 return simulate_bad("--site must be 1-9", optarg);
             options.site = (int)site;
+            break;
+        }
+        case 'm': {
+            unsigned columns = 0, rows = 0;
+            char extra = 0;
+            if (sscanf(optarg, "%ux%u%c", &columns, &rows, &extra) != 2 || columns < 2 ||
+                rows < 2 || columns > 2048 || rows > 2048)
+                return simulate_bad("--matrix must be COLUMNSxROWS, 2 to 2048 each", optarg);
+            options.matrix_columns = columns;
+            options.matrix_rows = rows;
             break;
         }
         case 'x':

@@ -278,6 +278,11 @@ typedef struct sim_options {
      * and device serial, so that runs with other seeds over the same days
      * add sister rooms (a bigger department) rather than busier ones. */
     int site;
+    /* Pixel matrix of single frames, columns x rows; cine frames are half
+     * as wide and half as high. 0: the tiny default (32 x 24), which keeps
+     * four weeks to a couple of hundred MB; department-sized matrices
+     * (e.g. 640 x 480) give objects of realistic size for benchmarks. */
+    unsigned matrix_columns, matrix_rows;
     /* --send */
     const char *send_host;      /* NULL: write files only */
     unsigned send_port;

@@ -290,6 +290,10 @@ static mitilog_status sim_put_image(sim_writer *w, const sim_exam *exam,
     int cine = c->frames > 1;
     unsigned cols = cine ? CINE_COLUMNS : SINGLE_COLUMNS;
     unsigned rows = cine ? CINE_ROWS : SINGLE_ROWS;
+    if (w->options->matrix_columns > 0 && w->options->matrix_rows > 0) {
+        cols = cine ? w->options->matrix_columns / 2 : w->options->matrix_columns;
+        rows = cine ? w->options->matrix_rows / 2 : w->options->matrix_rows;
+    }
     int colour = sim_mode_is_colour(c->mode);
     char text[96];
     sim_stamp at, series;

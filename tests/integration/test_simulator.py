@@ -123,6 +123,31 @@ def test_site_renames_rooms_only(tmp_path):
     assert run.returncode == 2
 
 
+def test_matrix_sets_the_pixel_matrix(tmp_path):
+    """--matrix 64x48: single frames 64 x 48, cine frames 32 x 24, and as
+    many pixel bytes as the matrix, frames and samples say (reference:
+    pydicom's reading of Rows, Columns, Number of Frames and Pixel Data)."""
+    if not os.access(BINARY, os.X_OK):
+        pytest.skip("no mitilog binary at %s (set MITILOG_BINARY)" % BINARY)
+    subprocess.run([BINARY, "simulate", "--out", str(tmp_path / "m"), "--days", "1",
+                    "--seed", "5", "--matrix", "64x48"], check=True, capture_output=True)
+    kinds = set()
+    for path in glob.glob(str(tmp_path / "m" / "*" / "*" / "*.dcm")):
+        ds = pydicom.dcmread(path)
+        if "PixelData" not in ds:
+            continue
+        frames = int(ds.get("NumberOfFrames", 1) or 1)
+        expected = (32, 24) if "NumberOfFrames" in ds else (64, 48)
+        assert (ds.Columns, ds.Rows) == expected, path
+        assert len(ds.PixelData) == ds.Columns * ds.Rows * frames * ds.SamplesPerPixel
+        kinds.add("NumberOfFrames" in ds)
+    assert kinds == {True, False}
+    for bad in ("64", "1x1", "64x48x2", "4096x2"):
+        run = subprocess.run([BINARY, "simulate", "--out", str(tmp_path / "bad"),
+                              "--matrix", bad], capture_output=True)
+        assert run.returncode == 2, bad
+
+
 def test_meta_header_is_deterministic(week):
     path = sorted(glob.glob(os.path.join(str(week), "*", "*", "001.dcm")))[0]
     ds = pydicom.dcmread(path)
