@@ -16,3 +16,7 @@ PRAGMA foreign_keys = ON;
 -- WAL file is cut back to at most 64 MiB.
 PRAGMA wal_autocheckpoint = 8192;
 PRAGMA journal_size_limit = 67108864;
+-- Page cache of 16 MiB (SQLite's default is 2 MiB): the indexes by SOP
+-- Instance UID and by study are written at random places, and with a
+-- small cache every commit read their pages back from the file.
+PRAGMA cache_size = -16384;
