@@ -78,6 +78,19 @@ for tree in build build-asan; do
   fi
 done
 
+# Every benchmark once at its tiny size, so that none of them rots (speed
+# is never asserted: bench/README.md). MITILOG_BENCH=0 skips them.
+if [ "${MITILOG_BENCH:-1}" != 0 ] && [ -n "${built[build]:-}" ]; then
+  bench_tiny() {
+    local script
+    for script in ingest parse memory query scale; do
+      echo "--- bench/$script.py --tiny"
+      MITILOG="$top/build/mitilog" "$python" "$top/bench/$script.py" --tiny || return 1
+    done
+  }
+  step "benchmarks at tiny size (bench/*.py --tiny)" bench_tiny
+fi
+
 # A short libFuzzer run over the reader and extraction (clang; build-fuzz/).
 # MITILOG_FUZZ_SECONDS=0 skips it; bench/README.md describes a long run.
 fuzz_seconds=${MITILOG_FUZZ_SECONDS:-60}
