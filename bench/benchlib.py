@@ -32,8 +32,11 @@ ENV = dict(os.environ, TCP_NODELAY="1")
 # journal (this machine's /tmp) every file created within 30 s of many
 # deletions pays for skipping the recently deleted inodes
 # (fs/ext4/ialloc.c recently_deleted()), so deleting one run's thousands
-# of files would slow the next run's server, whichever it is.
+# of files would slow the next run's server, whichever it is. A folder of
+# more than LARGE_FOLDER_BYTES (department-size objects: few files, many
+# gigabytes) is removed at once instead, or a few runs would fill the disk.
 _LEFT_OVER = []
+LARGE_FOLDER_BYTES = 1 << 30
 
 
 @atexit.register
@@ -42,8 +45,35 @@ def _remove_left_over():
         shutil.rmtree(folder, ignore_errors=True)
 
 
+def folder_bytes(folder):
+    total = 0
+    for directory, _, names in os.walk(folder):
+        for name in names:
+            try:
+                total += os.lstat(os.path.join(directory, name)).st_size
+            except OSError:
+                pass
+    return total
+
+
 def remove_later(folder):
-    _LEFT_OVER.append(folder)
+    if folder_bytes(folder) > LARGE_FOLDER_BYTES:
+        shutil.rmtree(folder, ignore_errors=True)
+    else:
+        _LEFT_OVER.append(folder)
+
+
+def copy_database(source, destination):
+    """Copies a SQLite database with SQLite's backup API: what a copy of
+    the main file alone would miss (commits still in its WAL) is copied
+    too."""
+    src = sqlite3.connect("file:%s?mode=ro" % source, uri=True)
+    dst = sqlite3.connect(destination)
+    try:
+        src.backup(dst, pages=65536)
+    finally:
+        dst.close()
+        src.close()
 
 
 def log(message):

@@ -17,9 +17,10 @@ After each mitilog run the database must hold exactly the expected number
 of instances, and storescp's folder exactly the expected number of files,
 or the script fails.
 
-    /usr/bin/python3 bench/ingest.py              # full: ~3,800 small objects
-    /usr/bin/python3 bench/ingest.py --matrix 640x480 --days 1 --limit 400
-                                      # 400 objects of department size (~1 GB)
+    /usr/bin/python3 bench/ingest.py --matrix 640x480
+                                      # 3,798 objects of department size (~8.5 GB)
+    /usr/bin/python3 bench/ingest.py              # the same 3,798 objects with
+                                      # tiny pixels (31 MB): per-object cost only
     /usr/bin/python3 bench/ingest.py --tiny       # seconds, for CI
 """
 import argparse

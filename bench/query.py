@@ -28,7 +28,6 @@ import json
 import os
 import platform
 import re
-import shutil
 import sqlite3
 import subprocess
 import sys
@@ -126,7 +125,7 @@ def run_size(binary, days, seed, sites, seconds, connections):
     source = prepare(days, seed, sites)
     server = benchlib.Mitilog(binary, retention="none")
     os.makedirs(server.data, exist_ok=True)
-    shutil.copy(source, server.database)
+    benchlib.copy_database(source, server.database)
     migration_seconds = migrate(binary, server.config)
     size_mb = os.path.getsize(server.database) / 1e6
     instances, studies, first_day, last_day, busiest = facts(server.database)

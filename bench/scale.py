@@ -61,7 +61,7 @@ def one_size(binary, source, days_sent):
     server = benchlib.Mitilog(binary, retention="header", durability="process")
     os.makedirs(server.data, exist_ok=True)
     if source is not None:
-        shutil.copy(source, server.database)
+        benchlib.copy_database(source, server.database)
     server.start()   # applies any migration the copy lacks before it listens
     rows = []
     try:
