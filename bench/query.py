@@ -40,7 +40,8 @@ import make_db  # noqa: E402
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 SIZES = {10000: (9, 1), 100000: (93, 1), 1000000: (310, 3)}
-ENDPOINTS = ("weekly outliers", "stats, a quarter", "one exam", "findings filter")
+ENDPOINTS = ("weekly outliers", "stats, a quarter", "one exam", "findings filter",
+             "drift, 12 weeks")
 
 
 def prepare(days, seed, sites):
@@ -76,10 +77,11 @@ def facts(database):
 
 
 def endpoints(first_day, last_day, busiest):
-    """The dashboard's four views at the end of the data: the last complete
-    ISO week (the last day's when the data spans less than a week; 12-week
-    baseline), the quarter (92 days) ending on the last day, the largest
-    study, warnings of the quarter."""
+    """The dashboard's four views at the end of the data, and drift: the
+    last complete ISO week (the last day's when the data spans less than a
+    week; 12-week baseline), the quarter (92 days) ending on the last day,
+    the largest study, warnings of the quarter, drift of the 12 weeks
+    ending with that week (each against its 12 baseline weeks)."""
     week_day = last_day
     if last_day.isoweekday() != 7 and (last_day - first_day).days >= 7:
         week_day = last_day - datetime.timedelta(days=last_day.isoweekday())
@@ -91,6 +93,7 @@ def endpoints(first_day, last_day, busiest):
         ("one exam", "/api/v1/studies/%s" % busiest),
         ("findings filter", "/api/v1/findings?from=%s&to=%s&severity=warning"
          % (start, last_day)),
+        ("drift, 12 weeks", "/api/v1/drift?week=%d-W%02d" % (year, week)),
     ]
 
 
