@@ -374,7 +374,7 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
     memset(&result, 0, sizeof result);
     store_scratch *scratch = NULL;
     mitilog_status status = report_data_load(st, from, to,
-                                             STORE_EXAM_IDENTITY | STORE_EXAM_ROOM |
+                                             STORE_EXAM_DAY | STORE_EXAM_ROOM |
                                                  STORE_EXAM_PRESET,
                                              REPORT_LOAD_INFO, &data, error);
     if (status != MITILOG_OK)

@@ -319,7 +319,11 @@ enum {
     STORE_EXAM_PRESET = 1 << 3,
     STORE_EXAM_SHIFT = 1 << 4,
     STORE_EXAM_TRANSDUCER = 1 << 5,
-    STORE_EXAM_ALL = (1 << 6) - 1
+    /* day only; with ROOM and PRESET and no other bit, the short rows of
+     * sql/queries/stats_exam_series.sql: exam type, day, room, preset,
+     * governing maximum, capture and indexed counts (drift) */
+    STORE_EXAM_DAY = 1 << 6,
+    STORE_EXAM_ALL = (1 << 7) - 1
 };
 
 /* Rows and the memory of their strings; free with store_exam_list_free()

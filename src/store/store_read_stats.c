@@ -137,8 +137,15 @@ enum {
 typedef enum store_exam_query {
     STORE_QUERY_ROWS,           /* stats_exam_rows.sql: every column */
     STORE_QUERY_VALUES,         /* stats_exam_values.sql: type, one key, values */
-    STORE_QUERY_GOVERNING       /* stats_exam_governing.sql: type, governing value */
+    STORE_QUERY_GOVERNING,      /* stats_exam_governing.sql: type, governing value */
+    STORE_QUERY_SERIES          /* stats_exam_series.sql: type, day, room, preset, values */
 } store_exam_query;
+
+/* Columns of stats_exam_series.sql. */
+enum {
+    SERIES_TYPE, SERIES_DAY, SERIES_ROOM, SERIES_PRESET, SERIES_MAX_GOVERNING,
+    SERIES_CAPTURES, SERIES_INDEXED, SERIES_UID
+};
 
 /* Columns of stats_exam_values.sql. */
 enum {
@@ -186,6 +193,20 @@ static int store_exam_row_read(store_exam_list *list, store_exam_row *row,
         row->max_governing = store_double(statement, 1, &row->has_max_governing);
         return failed;
     }
+    if (query == STORE_QUERY_SERIES) {
+        row->exam_type = store_list_text(list, statement, SERIES_TYPE, &failed);
+        row->day = store_list_text(list, statement, SERIES_DAY, &failed);
+        if (columns & STORE_EXAM_ROOM)
+            row->room = store_list_text(list, statement, SERIES_ROOM, &failed);
+        if (columns & STORE_EXAM_PRESET)
+            row->preset = store_list_text(list, statement, SERIES_PRESET, &failed);
+        row->max_governing =
+            store_double(statement, SERIES_MAX_GOVERNING, &row->has_max_governing);
+        row->capture_count = (long)sqlite3_column_int64(statement, SERIES_CAPTURES);
+        row->indexed_count = (long)sqlite3_column_int64(statement, SERIES_INDEXED);
+        row->study_instance_uid = store_list_text(list, statement, SERIES_UID, &failed);
+        return failed;
+    }
     if (query == STORE_QUERY_VALUES) {
         row->exam_type = store_list_text(list, statement, VALUES_TYPE, &failed);
         char **key = store_key_field(row, columns);
@@ -205,10 +226,10 @@ static int store_exam_row_read(store_exam_list *list, store_exam_row *row,
     }
     row->exam_type = store_list_text(list, statement, EXAM_TYPE, &failed);
     row->study_instance_uid = store_list_text(list, statement, EXAM_UID, &failed);
-    if (columns & STORE_EXAM_IDENTITY) {
+    if (columns & (STORE_EXAM_IDENTITY | STORE_EXAM_DAY))
         row->day = store_list_text(list, statement, EXAM_DAY, &failed);
+    if (columns & STORE_EXAM_IDENTITY)
         row->first_acquired_at = store_list_text(list, statement, EXAM_FIRST_ACQUIRED, &failed);
-    }
     if (columns & STORE_EXAM_DETAIL) {
         row->exam_type_label = store_list_text(list, statement, EXAM_TYPE_LABEL, &failed);
         row->governing_index = store_list_text(list, statement, EXAM_GOVERNING_INDEX, &failed);
@@ -247,7 +268,8 @@ static mitilog_status store_load_exams(store *st, store_exam_query query, const 
 {
     static const char *const names[] = {"queries/stats_exam_rows.sql",
                                         "queries/stats_exam_values.sql",
-                                        "queries/stats_exam_governing.sql"};
+                                        "queries/stats_exam_governing.sql",
+                                        "queries/stats_exam_series.sql"};
     memset(list, 0, sizeof *list);
     if (st == NULL || from_day == NULL || to_day == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
@@ -288,9 +310,13 @@ mitilog_status store_load_exam_rows(store *st, const char *from_day, const char 
                                     mitilog_error *error)
 {
     /* Without identity and detail columns and with at most one grouping
-     * column, the short rows of stats_exam_values.sql do. */
+     * column, the short rows of stats_exam_values.sql do; the day with
+     * room and preset alone, those of stats_exam_series.sql. */
+    const unsigned series = STORE_EXAM_DAY | STORE_EXAM_ROOM | STORE_EXAM_PRESET;
     store_exam_query query =
-        (columns & (STORE_EXAM_IDENTITY | STORE_EXAM_DETAIL)) == 0 && store_key_name(columns)
+        (columns & STORE_EXAM_DAY) && (columns & ~series) == 0 ? STORE_QUERY_SERIES
+        : (columns & (STORE_EXAM_IDENTITY | STORE_EXAM_DETAIL | STORE_EXAM_DAY)) == 0 &&
+                store_key_name(columns)
             ? STORE_QUERY_VALUES
             : STORE_QUERY_ROWS;
     return store_load_exams(st, query, from_day, to_day, columns, list, error);

@@ -964,8 +964,9 @@ static void exec_sql(const char *path, const char *sql)
 
 /* The exam-row loaders: exams of five days written out of UID order; a
  * period returns its exams sorted by Study Instance UID (the order reports
- * sum in), only the text columns asked for, and the baseline loader stops
- * before its end day. Common practice, no source. */
+ * sum in), only the text columns asked for, the same exams whichever of
+ * the three row queries is chosen, and the baseline loader stops before
+ * its end day. Common practice, no source. */
 static void exam_rows_sorted_by_uid(void **state)
 {
     fixture *f = *state;
@@ -1012,6 +1013,25 @@ static void exam_rows_sorted_by_uid(void **state)
     for (size_t i = 0; i < list.count; i++) {
         assert_string_equal(list.rows[i].study_instance_uid, expected[i]);
         assert_null(list.rows[i].day);
+    }
+    store_exam_list_free(&list);
+    /* the short rows of drift: same exams, same order, the day with them */
+    assert_int_equal(store_load_exam_rows(f->store, "2024-03-02", "2024-03-04",
+                                          STORE_EXAM_DAY | STORE_EXAM_ROOM | STORE_EXAM_PRESET,
+                                          &list, &error),
+                     MITILOG_OK);
+    static const char *const expected_days[] = {"2024-03-03", "2024-03-04", "2024-03-02",
+                                                "2024-03-02"};
+    static const double expected_governing[] = {3.5, 4.5, 2.5, 1.5};
+    assert_int_equal(list.count, 4);
+    for (size_t i = 0; i < list.count; i++) {
+        assert_string_equal(list.rows[i].study_instance_uid, expected[i]);
+        assert_string_equal(list.rows[i].day, expected_days[i]);
+        assert_string_equal(list.rows[i].exam_type, "abdomen");
+        assert_int_equal(list.rows[i].has_max_governing, 1);
+        assert_true(list.rows[i].max_governing == expected_governing[i]);
+        assert_null(list.rows[i].first_acquired_at);   /* identity not asked for */
+        assert_null(list.rows[i].shift);
     }
     store_exam_list_free(&list);
     /* a baseline: from the first day, before the end day */
