@@ -4,15 +4,18 @@
  * cost more per image than reading the image's header, and a study's
  * images share their Study Description, Protocol Name and so on, so the
  * answer is kept: a direct-mapped table of EXT_CLASSIFY_CACHE_SLOTS
- * entries keyed by the field values joined, under one mutex (the network
+ * entries keyed by the field values, length-prefixed, under one mutex (the network
  * threads classify at once). A collision replaces the older entry.
  */
 #include "extract/ext_classify.h"
 
 #include <pthread.h>
 #include <stdint.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+
+#include "util/hash.h"
 
 enum { EXT_CLASSIFY_CACHE_SLOTS = 512, EXT_CLASSIFY_KEY_MAX = 4096 };
 
@@ -48,30 +51,29 @@ void ext_classify_cache_free(struct ext_classify_cache *cache)
     free(cache);
 }
 
-/* The fields joined with unit separators (an absent field as a record
- * separator, so NULL and "" differ) into key, and its FNV-1a hash
- * [std: FNV, Fowler-Noll-Vo, 64-bit offset basis and prime]. Returns the
- * key's length, or 0 when the values are too long to be cached. */
+/* The fields, each as its length, a colon and its bytes ("-:" for an
+ * absent one, so NULL and "" differ and no value can pose as two), into
+ * key, and the key's FNV-1a hash. Returns the key's length, or 0 when the
+ * values are too long to be cached. */
 static size_t ext_classify_key(const char *const *fields, char key[EXT_CLASSIFY_KEY_MAX],
                                uint64_t *hash)
 {
     size_t length = 0;
     for (int f = 0; f < EXT_FIELD_COUNT; f++) {
-        const char *text = fields[f] != NULL ? fields[f] : "\x1e";
-        size_t size = strlen(text);
-        if (length + size + 2 > EXT_CLASSIFY_KEY_MAX)
+        size_t size = fields[f] != NULL ? strlen(fields[f]) : 0;
+        char prefix[32];
+        int written = fields[f] != NULL ? snprintf(prefix, sizeof prefix, "%zu:", size)
+                                        : snprintf(prefix, sizeof prefix, "-:");
+        if (written < 0 || length + (size_t)written + size + 1 > EXT_CLASSIFY_KEY_MAX)
             return 0;
-        memcpy(key + length, text, size);
+        memcpy(key + length, prefix, (size_t)written);
+        length += (size_t)written;
+        if (size > 0)
+            memcpy(key + length, fields[f], size);
         length += size;
-        key[length++] = '\x1f';
     }
     key[length] = '\0';
-    uint64_t h = 14695981039346656037ULL;
-    for (size_t i = 0; i < length; i++) {
-        h ^= (unsigned char)key[i];
-        h *= 1099511628211ULL;
-    }
-    *hash = h;
+    *hash = hash_fnv1a(key, length);
     return length;
 }
 

@@ -108,10 +108,11 @@ mitilog_status store_cached_statement(store_cache *cache, sqlite3 *db,
 /* sqlite3_bind_parameter_index() remembered per thread, by statement and
  * a 64-bit hash of the name: binding an instance by the names of its ~90
  * parameters spent more instructions on finding them than on the insert.
- * Only for the writer's statements, which live until store_close();
- * store_close() calls store_parameter_forget() before it finalizes them,
- * so a later statement at the same address is never answered from an
- * older one's memory. */
+ * Only for statements that live until store_close() (the caches above and
+ * the reader's statements of store_read.c); statements prepared for one
+ * call bind by position. store_close() calls store_parameter_forget()
+ * before it finalizes them, so a later statement at the same address is
+ * never answered from an older one's memory. */
 int store_parameter_index(sqlite3_stmt *statement, const char *name);
 void store_parameter_forget(void);
 /* Resets a cached statement and clears its bindings (NULL: nothing). */

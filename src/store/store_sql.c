@@ -11,6 +11,7 @@
 #include <string.h>
 
 #include "store/sql_files.h"
+#include "util/hash.h"
 
 mitilog_status store_sql_error(mitilog_error *error, sqlite3 *db,
                                const char *what)
@@ -88,12 +89,7 @@ int store_parameter_index(sqlite3_stmt *statement, const char *name)
         unsigned generation;
         int index;
     } remembered[STORE_PARAMETER_SLOTS];
-    /* FNV-1a over the name [std: FNV, 64-bit offset basis and prime]. */
-    uint64_t hash = 14695981039346656037ULL;
-    for (const unsigned char *c = (const unsigned char *)name; *c != '\0'; c++) {
-        hash ^= *c;
-        hash *= 1099511628211ULL;
-    }
+    uint64_t hash = hash_fnv1a(name, strlen(name));
     unsigned generation = store_parameter_generation;
     size_t slot = (size_t)((hash ^ (uint64_t)(uintptr_t)statement) % STORE_PARAMETER_SLOTS);
     if (remembered[slot].statement == statement && remembered[slot].hash == hash &&

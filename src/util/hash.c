@@ -53,3 +53,14 @@ done:
     fclose(file);
     return status;
 }
+
+uint64_t hash_fnv1a(const void *bytes, size_t size)
+{
+    uint64_t hash = 14695981039346656037ULL;
+    const unsigned char *byte = bytes;
+    for (size_t i = 0; i < size; i++) {
+        hash ^= byte[i];
+        hash *= 1099511628211ULL;
+    }
+    return hash;
+}

@@ -15,6 +15,7 @@
 
 #include "config/config_site.h"
 #include "extract/ext_classify.h"
+#include "util/hash.h"
 
 static int load_shipped(void **state)
 {
@@ -300,11 +301,52 @@ static void cache_changes_no_answer(void **state)
     }
 }
 
+/* Cache keys cannot be confused: values that join to the same characters
+ * when split at another place, an absent field and an empty one, are
+ * different entries. Common practice, no source. */
+static void cache_keys_are_unambiguous(void **state)
+{
+    (void)state;
+    struct ext_classify_cache *cache = ext_classify_cache_create();
+    assert_non_null(cache);
+    const char *stored[EXT_FIELD_COUNT] = {0}, *asked[EXT_FIELD_COUNT] = {0};
+    stored[0] = "OB\x1f";
+    stored[1] = "2ND";
+    asked[0] = "OB";
+    asked[1] = "\x1f" "2ND";
+    ext_classify_cache_put(cache, stored, 3, NULL);
+    long type_index = -2;
+    const char *source = NULL;
+    assert_int_equal(ext_classify_cache_get(cache, asked, &type_index, &source), 0);
+    assert_int_equal(ext_classify_cache_get(cache, stored, &type_index, &source), 1);
+    assert_int_equal(type_index, 3);
+    const char *empty[EXT_FIELD_COUNT] = {0};
+    empty[0] = "";
+    const char *absent[EXT_FIELD_COUNT] = {0};
+    ext_classify_cache_put(cache, empty, 5, NULL);
+    assert_int_equal(ext_classify_cache_get(cache, absent, &type_index, &source), 0);
+    ext_classify_cache_free(cache);
+}
+
+/* The cache's hash against the FNV-1a 64-bit test vectors of the FNV
+ * reference code (fnv_test.c; values from memory of that table, also
+ * computed with Python's integers): "" -> cbf29ce484222325, "a" ->
+ * af63dc4c8601ec8c, "foobar" -> 85944171f73967e8. */
+static void fnv1a_test_vectors(void **state)
+{
+    (void)state;
+    assert_true(hash_fnv1a("", 0) == 0xcbf29ce484222325ULL);
+    assert_true(hash_fnv1a("a", 1) == 0xaf63dc4c8601ec8cULL);
+    assert_true(hash_fnv1a("foobar", 6) == 0x85944171f73967e8ULL);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(descriptions),
         cmocka_unit_test(cache_changes_no_answer),
+        cmocka_unit_test(cache_keys_are_unambiguous),
+        cmocka_unit_test(fnv1a_test_vectors),
         cmocka_unit_test(context_and_provenance),
         cmocka_unit_test(shift_boundaries),
         cmocka_unit_test(shift_across_dst),
