@@ -24,7 +24,12 @@ typedef struct store_request {
     const store_rejection *rejection;   /* ... rejection ...             */
     const store_exam *exam;             /* ... exam ...                  */
     const store_evaluation *evaluation; /* ... evaluation ...            */
-    const store_policy *policy;         /* ... or policy is set          */
+    const store_policy *policy;         /* ... policy ...                */
+    /* ... or a write of its own (screen profiles): custom runs in the
+     * open transaction with custom_context. */
+    mitilog_status (*custom)(struct store *st, const void *context,
+                             mitilog_error *error);
+    const void *custom_context;
     store_evaluation_counts counts;     /* evaluation: what it did       */
     mitilog_status status;
     store_put_outcome outcome;
@@ -90,6 +95,14 @@ struct store {
     int schema_version;
     char active_policy[65];             /* under reader_lock; "" = none  */
 };
+
+/* store_write.c: runs request (with its custom write) in a batch of the
+ * writer, waiting until it has committed or failed. */
+mitilog_status store_submit_custom(struct store *st,
+                                   mitilog_status (*custom)(struct store *st,
+                                                            const void *context,
+                                                            mitilog_error *error),
+                                   const void *context, mitilog_error *error);
 
 /* store_sql.c */
 mitilog_status store_sql_error(mitilog_error *error, sqlite3 *db,

@@ -485,6 +485,7 @@ static mitilog_status store_write_one(store *st, store_request *request)
            : request->exam != NULL ? store_write_exam_summarised(st, request)
            : request->evaluation != NULL ? store_write_evaluated(st, request)
            : request->policy != NULL ? store_write_policy(st, request->policy, &request->error)
+           : request->custom != NULL ? request->custom(st, request->custom_context, &request->error)
                                      : store_write_rejection(st, request);
 }
 
@@ -706,6 +707,18 @@ mitilog_status store_register_policy(store *st, const store_policy *policy,
         pthread_mutex_unlock(&st->reader_lock);
     }
     return status;
+}
+
+mitilog_status store_submit_custom(store *st,
+                                   mitilog_status (*custom)(store *st, const void *context,
+                                                            mitilog_error *error),
+                                   const void *context, mitilog_error *error)
+{
+    if (st == NULL || custom == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "store_submit_custom: no store or write");
+    store_request request = {.custom = custom, .custom_context = context};
+    return store_submit(st, &request, error);
 }
 
 mitilog_status store_put_rejection(store *st,

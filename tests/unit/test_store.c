@@ -219,12 +219,15 @@ static char *instances_of_study(store *st, const char *study)
     return json;
 }
 
-static int migration_count(void)
+/* The number of the newest built-in migration (migrations/NNN_*.sql). */
+static int newest_migration(void)
 {
-    int count = 0;
-    for (const sql_file *file = sql_files; file->name != NULL; file++)
-        count += strncmp(file->name, "migrations/", 11) == 0;
-    return count;
+    int newest = 0;
+    for (const sql_file *file = sql_files; file->name != NULL; file++) {
+        if (strncmp(file->name, "migrations/", 11) == 0 && atoi(file->name + 11) > newest)
+            newest = atoi(file->name + 11);
+    }
+    return newest;
 }
 
 /* --- tests -------------------------------------------------------------- */
@@ -258,10 +261,10 @@ static void durability_setting(void **state)
 static void open_creates_schema(void **state)
 {
     fixture *f = *state;
-    assert_int_equal(migration_count(), 5); /* sql/migrations/001..005 */
-    assert_int_equal(store_schema_version(f->store), migration_count());
+    assert_true(newest_migration() >= 8); /* sql/migrations/001..008 */
+    assert_int_equal(store_schema_version(f->store), newest_migration());
     assert_int_equal(query_int(f->path, "PRAGMA user_version"),
-                     migration_count());
+                     newest_migration());
     assert_int_equal(query_int(f->path, "SELECT count(*) FROM sqlite_schema "
                                         "WHERE name IN ('instances', "
                                         "'rejections')"),
@@ -464,7 +467,7 @@ static void migration_4_keeps_modes(void **state)
     store *st = NULL;
     if (store_open(path, 5000, &st, &error) != MITILOG_OK)
         fail_msg("store_open: %s", error.text);
-    assert_int_equal(store_schema_version(st), migration_count());
+    assert_int_equal(store_schema_version(st), newest_migration());
     store_close(st);
     assert_int_equal(query_int(path, "SELECT modes_image_type FROM instances WHERE id = 7"), 9);
     assert_int_equal(query_int(path, "SELECT modes_regions FROM instances WHERE id = 7"), 1);
@@ -615,7 +618,7 @@ static void reopen_keeps_schema_and_rows(void **state)
     /* Reopen: migration 001 would fail on CREATE TABLE if re-applied. */
     if (store_open(f->path, 5000, &f->store, &error) != MITILOG_OK)
         fail_msg("reopen: %s", error.text);
-    assert_int_equal(store_schema_version(f->store), migration_count());
+    assert_int_equal(store_schema_version(f->store), newest_migration());
     char *json = instances_of_study(f->store, "1.2.3.7");
     assert_json(json, "$[0].sop_instance_uid", "1.2.3.7.1");
     assert_json_type(json, "$[0].acquired_at", "null");
@@ -921,7 +924,7 @@ static void health_counts(void **state)
     assert_json(json, "$.status", "ok");
     assert_json(json, "$.database", "ok");
     char version[16];
-    snprintf(version, sizeof version, "%d", migration_count());
+    snprintf(version, sizeof version, "%d", newest_migration());
     assert_json(json, "$.schema_version", version);
     assert_json(json, "$.instances", "0");
     assert_json_type(json, "$.last_received_at", "null");
@@ -1047,11 +1050,77 @@ static void exam_rows_sorted_by_uid(void **state)
     store_exam_list_free(&list);   /* a freed list is empty */
 }
 
+
+/* Screen profiles: a learned profile is proposed with the next version of
+ * its key, one version at a time is active, activation keeps who confirmed
+ * it, retiring leaves none active (common practice, no source). */
+static void screen_profiles_states(void **state)
+{
+    fixture *f = *state;
+    mitilog_error error = {{0}};
+    char **texts = NULL;
+    size_t count = 7;
+    assert_int_equal(store_screen_profiles_active(f->store, &texts, &count, &error), MITILOG_OK);
+    assert_int_equal(count, 0);
+    assert_null(texts);
+
+    store_screen_profile_new profile = {.key = "room-a", .manufacturer = "Acme", .rows = 480,
+                                        .columns = 640, .text = "first",
+                                        .example = (const unsigned char *)"P5 1 1 255 x",
+                                        .example_size = 12};
+    int version = 0;
+    assert_int_equal(store_screen_profile_put(f->store, &profile, &version, &error), MITILOG_OK);
+    assert_int_equal(version, 1);
+    profile.text = "second";
+    assert_int_equal(store_screen_profile_put(f->store, &profile, &version, &error), MITILOG_OK);
+    assert_int_equal(version, 2);
+    /* Proposed profiles are not read with. */
+    assert_int_equal(store_screen_profiles_active(f->store, &texts, &count, &error), MITILOG_OK);
+    assert_int_equal(count, 0);
+
+    assert_int_equal(store_screen_profile_activate(f->store, "room-a", 1, "j.doe", &error),
+                     MITILOG_OK);
+    assert_int_equal(store_screen_profile_activate(f->store, "room-a", 2, "j.doe", &error),
+                     MITILOG_OK);
+    assert_int_equal(store_screen_profiles_active(f->store, &texts, &count, &error), MITILOG_OK);
+    assert_int_equal(count, 1);
+    assert_string_equal(texts[0], "second");
+    free(texts[0]);
+    free(texts);
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM screen_profiles "
+                                        "WHERE state = 'retired' AND version = 1"), 1);
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM screen_profiles WHERE "
+                                        "confirmed_by = 'j.doe' AND state = 'active'"), 1);
+
+    store_screen_profile_row row;
+    assert_int_equal(store_screen_profile_get(f->store, "room-a", 0, &row, &error), MITILOG_OK);
+    assert_int_equal(row.version, 2);
+    assert_string_equal(row.state, "active");
+    assert_int_equal(row.example_size, 12);
+    store_screen_profile_row_free(&row);
+    assert_int_equal(store_screen_profile_get(f->store, "room-b", 0, &row, &error),
+                     MITILOG_ERROR_NOT_FOUND);
+    assert_int_equal(store_screen_profile_activate(f->store, "room-a", 9, "j.doe", &error),
+                     MITILOG_ERROR_NOT_FOUND);
+
+    char *json = NULL;
+    assert_int_equal(store_screen_profiles_json(f->store, &json, &error), MITILOG_OK);
+    assert_non_null(strstr(json, "\"room-a\""));
+    free(json);
+
+    assert_int_equal(store_screen_profile_retire(f->store, "room-a", &error), MITILOG_OK);
+    assert_int_equal(store_screen_profiles_active(f->store, &texts, &count, &error), MITILOG_OK);
+    assert_int_equal(count, 0);
+    assert_int_equal(store_screen_profile_retire(f->store, "room-a", &error),
+                     MITILOG_ERROR_NOT_FOUND);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test_setup_teardown(durability_setting, fixture_setup, fixture_teardown),
         cmocka_unit_test_setup_teardown(exam_rows_sorted_by_uid, fixture_setup, fixture_teardown),
+        cmocka_unit_test_setup_teardown(screen_profiles_states, fixture_setup, fixture_teardown),
         cmocka_unit_test_setup_teardown(open_creates_schema, fixture_setup,
                                         fixture_teardown),
         cmocka_unit_test_setup_teardown(put_and_read_back, fixture_setup,
