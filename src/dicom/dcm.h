@@ -72,6 +72,7 @@ mitilog_status dcm_initialise(int log_level, mitilog_error *error);
     X(PATIENT_BIRTH_DATE, 0x0010, 0x0030)                                  \
     X(PATIENT_AGE, 0x0010, 0x1010)                                         \
     X(BODY_PART_EXAMINED, 0x0018, 0x0015)                                  \
+    X(SOFTWARE_VERSIONS, 0x0018, 0x1020)                                   \
     X(FRAME_TIME, 0x0018, 0x1063)                                          \
     X(PROTOCOL_NAME, 0x0018, 0x1030)                                       \
     X(TRANSDUCER_DATA, 0x0018, 0x5010)                                     \
@@ -86,6 +87,8 @@ mitilog_status dcm_initialise(int log_level, mitilog_error *error);
     X(SERIES_INSTANCE_UID, 0x0020, 0x000E)                                 \
     X(INSTANCE_NUMBER, 0x0020, 0x0013)                                     \
     X(NUMBER_OF_FRAMES, 0x0028, 0x0008)                                    \
+    X(ROWS, 0x0028, 0x0010)                                                \
+    X(COLUMNS, 0x0028, 0x0011)                                             \
     X(PERFORMED_PROCEDURE_STEP_DESCRIPTION, 0x0040, 0x0254)
 
 typedef enum dcm_attribute {

@@ -14,6 +14,7 @@
  * preset, shift and transducer are the first instance's.
  */
 #include "ingest/ingest_internal.h"
+#include "store/store_reading.h"
 
 #include <stdlib.h>
 #include <string.h>
@@ -101,6 +102,8 @@ mitilog_status ingest_register_policy(store *st, const rules_policy *policy, mit
     };
     input.name = rules_policy_name(policy);
     status = store_register_policy(st, &input, error);
+    if (status == MITILOG_OK)
+        status = store_set_index_source(st, rules_policy_index_source(policy), error);
 done:
     free(texts);
     free(rules);
