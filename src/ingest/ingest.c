@@ -416,6 +416,74 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
     return outcome;
 }
 
+mitilog_status ingest_read_stored(ingest *ingest, const char *from, const char *to,
+                                  ingest_backfill_counts *counts, mitilog_error *error)
+{
+    ingest_backfill_counts local = {0};
+    store_reading_entry *entries = NULL;
+    size_t count = 0;
+    mitilog_status status =
+        store_reading_backfill_candidates(ingest->store, from, to, &entries, &count, error);
+    for (size_t i = 0; status == MITILOG_OK && i < count; i++) {
+        store_reading_entry *entry = &entries[i];
+        char path[PATH_SIZE] = "";
+        mitilog_error ignored;
+        struct stat info;
+        if (hashed_path(ingest->objects, entry->sop_instance_uid, path, &ignored) !=
+                MITILOG_OK ||
+            stat(path, &info) != 0) {
+            if (entry->path != NULL && stat(entry->path, &info) == 0)
+                snprintf(path, sizeof path, "%s", entry->path);
+            else {
+                local.not_kept++;
+                continue;
+            }
+        }
+        dcm_object *object = NULL;
+        dcm_facts facts;
+        memset(&facts, 0, sizeof facts);
+        int wanted = dcm_object_load(path, &object, &ignored) == MITILOG_OK &&
+                     dcm_object_facts(object, 1, &facts, &ignored) == MITILOG_OK &&
+                     ingest_reading_wants(&ingest->reading, &facts, 1);
+        dcm_facts_free(&facts);
+        dcm_object_free(object);
+        if (!wanted) {
+            local.no_profile++;
+            continue;
+        }
+        char reason[MITILOG_ERROR_TEXT_SIZE];
+        long long bytes = (long long)info.st_size;
+        int reserved = ingest_reading_reserve(&ingest->reading, bytes, reason, sizeof reason);
+        if (!reserved) {
+            /* A full queue: wait for it to empty, then try once more. */
+            ingest_reading_flush(&ingest->reading);
+            reserved = ingest_reading_reserve(&ingest->reading, bytes, reason, sizeof reason);
+        }
+        if (!reserved) {
+            local.queue_full++;
+            continue;
+        }
+        store_reading_request request = {path, 0, bytes, NULL};
+        status = store_reading_enqueue(ingest->store, entry->instance_id, &request, error);
+        if (status != MITILOG_OK) {
+            ingest_reading_release(&ingest->reading, bytes);
+            break;
+        }
+        ingest_reading_push(&ingest->reading, entry->instance_id, entry->sop_instance_uid,
+                            entry->study_instance_uid, path, 0, bytes);
+        local.queued++;
+    }
+    store_reading_entries_free(entries, count);
+    ingest_flush(ingest);
+    if (counts != NULL) {
+        counts->queued += local.queued;
+        counts->not_kept += local.not_kept;
+        counts->no_profile += local.no_profile;
+        counts->queue_full += local.queue_full;
+    }
+    return status;
+}
+
 uint16_t ingest_store_handler(void *context, const dcm_received *object)
 {
     ingest_source source = {object->spool_path,

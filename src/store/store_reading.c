@@ -333,3 +333,71 @@ mitilog_status store_set_index_source(store *st, const char *preferred, mitilog_
                                  "index source must be screen or header");
     return store_submit_custom(st, write_index_source, preferred, error);
 }
+
+mitilog_status store_load_mismatches(store *st, const char *study_instance_uid,
+                                     store_mismatch **rows, size_t *count, mitilog_error *error)
+{
+    *rows = NULL;
+    *count = 0;
+    if (st == NULL || study_instance_uid == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "mismatches: no study");
+    pthread_mutex_lock(&st->reader_lock);
+    sqlite3_stmt *statement = NULL;
+    mitilog_status status = store_cached_statement(&st->reader_cache, st->reader,
+                                                   "queries/reading_mismatches.sql", &statement,
+                                                   error);
+    size_t capacity = 0;
+    int failed = 0, rc = SQLITE_DONE;
+    if (status == MITILOG_OK)
+        rc = sqlite3_bind_text(statement, 1, study_instance_uid, -1, SQLITE_TRANSIENT);
+    while (status == MITILOG_OK && rc == SQLITE_OK && !failed &&
+           (rc = sqlite3_step(statement)) == SQLITE_ROW) {
+        rc = SQLITE_OK;
+        if (*count == capacity) {
+            size_t grown = capacity ? capacity * 2 : 8;
+            store_mismatch *more = realloc(*rows, grown * sizeof *more);
+            if (more == NULL) {
+                failed = 1;
+                break;
+            }
+            *rows = more;
+            capacity = grown;
+        }
+        store_mismatch *m = &(*rows)[(*count)++];
+        memset(m, 0, sizeof *m);
+        m->sop_instance_uid = column_copy(statement, 0, &failed);
+        m->index = column_copy(statement, 1, &failed);
+        m->header_value = sqlite3_column_double(statement, 2);
+        m->screen_value = sqlite3_column_double(statement, 3);
+        m->screen_text = column_copy(statement, 4, &failed);
+        m->decimals = sqlite3_column_int(statement, 5);
+        m->room = column_copy(statement, 6, &failed);
+        m->profile_key = column_copy(statement, 7, &failed);
+        m->profile_version = sqlite3_column_int(statement, 8);
+    }
+    if (status == MITILOG_OK && failed)
+        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "mismatches: out of memory");
+    else if (status == MITILOG_OK && rc != SQLITE_DONE && rc != SQLITE_OK)
+        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "mismatches: %s",
+                                   sqlite3_errmsg(st->reader));
+    store_release(statement);
+    pthread_mutex_unlock(&st->reader_lock);
+    if (status != MITILOG_OK) {
+        store_mismatches_free(*rows, *count);
+        *rows = NULL;
+        *count = 0;
+    }
+    return status;
+}
+
+void store_mismatches_free(store_mismatch *rows, size_t count)
+{
+    for (size_t i = 0; rows != NULL && i < count; i++) {
+        free(rows[i].sop_instance_uid);
+        free(rows[i].index);
+        free(rows[i].screen_text);
+        free(rows[i].room);
+        free(rows[i].profile_key);
+    }
+    free(rows);
+}

@@ -91,6 +91,23 @@ mitilog_status store_reading_backfill_candidates(store *store, const char *from,
                                                  size_t *count, mitilog_error *error);
 void store_reading_entries_free(store_reading_entry *entries, size_t count);
 
+/* A capture whose header and screen disagree beyond the screen's rounding
+ * (sql/queries/reading_mismatches.sql). Strings malloc'd. */
+typedef struct store_mismatch {
+    char *sop_instance_uid;
+    char *index;                  /* "mi", "tis", ... */
+    double header_value, screen_value;
+    char *screen_text;
+    int decimals;
+    char *room;
+    char *profile_key;
+    int profile_version;
+} store_mismatch;
+mitilog_status store_load_mismatches(store *store, const char *study_instance_uid,
+                                     store_mismatch **rows, size_t *count,
+                                     mitilog_error *error);
+void store_mismatches_free(store_mismatch *rows, size_t count);
+
 /* Which value of an index the rules and the API use when both the header
  * and the screen have one: "screen" or "header" (the policy's
  * index_source, kept in the database so every reader uses the same). */
