@@ -19,6 +19,7 @@ static const subcommand subcommands[] = {
     {"inspect", command_inspect, "print what mitilog extracts from one DICOM file"},
     {"frame", command_frame, "write one decoded frame of a DICOM file as PGM/PPM"},
     {"header", command_header, "write the header copy kept for one instance"},
+    {"device", command_device, "set up the screen profiles of devices that draw the indices"},
     {"passwd", command_passwd, "make a password-file line for the HTTP login"},
     {"report", command_report, "write the weekly outlier list or exposure statistics"},
     {"simulate", command_simulate, "generate a fictional department's ultrasound traffic"},

@@ -28,12 +28,8 @@ static const double PROFILE_RELOAD_SECONDS = 10.0;
 
 static void free_profiles(screen_profile **profiles, size_t count)
 {
-#ifdef MITILOG_HAVE_SCREEN_READER
     for (size_t i = 0; i < count; i++)
         screen_profile_free(profiles[i]);
-#else
-    (void)count;
-#endif
     free(profiles);
 }
 
@@ -53,13 +49,11 @@ static void reload_profiles(ingest_reading *reading)
     if (count > 0)
         loaded = calloc(count, sizeof *loaded);
     for (size_t i = 0; i < count; i++) {
-#ifdef MITILOG_HAVE_SCREEN_READER
         screen_profile *profile = NULL;
         if (loaded != NULL && screen_profile_from_text(texts[i], &profile, &error) == MITILOG_OK)
             loaded[loaded_count++] = profile;
         else if (loaded != NULL)
             log_warning("screen profile %zu not used: %s", i + 1, error.text);
-#endif
         free(texts[i]);
     }
     free(texts);
@@ -104,14 +98,9 @@ static void device_of(const dcm_facts *facts, screen_device *device)
 static const screen_profile *matching_profile(ingest_reading *reading,
                                               const screen_device *device)
 {
-#ifdef MITILOG_HAVE_SCREEN_READER
     for (size_t i = 0; i < reading->profile_count; i++)
         if (screen_profile_matches(reading->profiles[i], device))
             return reading->profiles[i];
-#else
-    (void)reading;
-    (void)device;
-#endif
     return NULL;
 }
 
@@ -251,7 +240,6 @@ static void set_not_read(store_screen_result *result, char *reason, size_t reaso
     result->reason = reason;
 }
 
-#ifdef MITILOG_HAVE_SCREEN_READER
 static const char *value_status_name(screen_value_status status)
 {
     switch (status) {
@@ -277,7 +265,6 @@ static size_t frames_to_read(size_t frame_count, unsigned wanted, size_t *indice
         indices[i] = i * (frame_count - 1) / (count - 1);
     return count;
 }
-#endif
 
 /* Reads item's object into result (values and reasons point into
  * readings, which must outlive result). */
@@ -304,7 +291,6 @@ static void read_object(ingest_reading *reading, const ingest_reading_item *item
         dcm_object_free(object);
         return;
     }
-#ifdef MITILOG_HAVE_SCREEN_READER
     screen_device device;
     device_of(&facts, &device);
     maybe_reload_profiles(reading);
@@ -376,12 +362,6 @@ static void read_object(ingest_reading *reading, const ingest_reading_item *item
         result->profile_version = combined->profile_version;
     }
     pthread_rwlock_unlock(&reading->profiles_lock);
-#else
-    (void)reading;
-    (void)combined;
-    set_not_read(result, reason, reason_size, "%s",
-                 "this build of mitilog has no screen reader");
-#endif
     dcm_facts_free(&facts);
     dcm_object_free(object);
 }

@@ -1,0 +1,498 @@
+/* mitilog device learn|show|list|activate|retire|bench: setting up the
+ * screen profiles of devices that burn the indices into the pixels
+ * (docs/screen-reading.md).
+ *
+ *   learn --key KEY --value FILE:MI=1.2,TIS=0.4 ... FILE...
+ *         learns a profile from labelled frames and stores it as proposed
+ *         (--print: print it instead, no database)
+ *   show KEY          the profile (active, else newest) and its report
+ *   list              every profile version as JSON
+ *   activate KEY [--version N] [--by NAME]
+ *   retire KEY
+ *   bench MANIFEST    learn and read the frames a manifest names, printing
+ *                     each reading and the CPU time of reading per frame
+ *                     (bench/screen.py)
+ *
+ * Frames are binary PGM files (P5, 8-bit grey): DCMTK's dcmj2pnm writes
+ * them from any DICOM image ("dcmj2pnm --write-8-bit-pnm --frame N"). */
+#include <ctype.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/resource.h>
+
+#include "cli/cli_options.h"
+#include "cli/commands.h"
+#include "screen/screen.h"
+#include "store/store.h"
+
+enum { DEVICE_FRAMES_MAX = 64, DEVICE_REPORT_SIZE = 4096 };
+
+typedef struct device_frame {
+    char *path;
+    unsigned char *file;    /* the whole PGM file, kept for the database */
+    size_t file_size;
+    screen_example example; /* image.grey points into file */
+} device_frame;
+
+static void frame_free(device_frame *frame)
+{
+    free(frame->path);
+    free(frame->file);
+    memset(frame, 0, sizeof *frame);
+}
+
+/* Skips whitespace and # comments of a PGM header. */
+static size_t pgm_skip(const unsigned char *data, size_t size, size_t at)
+{
+    while (at < size) {
+        if (data[at] == '#') {
+            while (at < size && data[at] != '\n')
+                at++;
+        } else if (isspace(data[at])) {
+            at++;
+        } else {
+            break;
+        }
+    }
+    return at;
+}
+
+static size_t pgm_number(const unsigned char *data, size_t size, size_t at, long *value)
+{
+    at = pgm_skip(data, size, at);
+    *value = -1;
+    long number = 0;
+    size_t start = at;
+    while (at < size && isdigit(data[at]) && number < 100000)
+        number = number * 10 + (data[at++] - '0');
+    if (at > start)
+        *value = number;
+    return at;
+}
+
+/* Reads a binary PGM (P5, maxval 255) into frame. */
+static int frame_load(const char *path, device_frame *frame, char *why, size_t why_size)
+{
+    memset(frame, 0, sizeof *frame);
+    FILE *in = fopen(path, "rb");
+    if (in == NULL) {
+        snprintf(why, why_size, "cannot open %s", path);
+        return -1;
+    }
+    size_t capacity = 1 << 20, size = 0;
+    unsigned char *data = malloc(capacity);
+    while (data != NULL) {
+        size += fread(data + size, 1, capacity - size, in);
+        if (size < capacity)
+            break;
+        unsigned char *bigger = capacity < (64u << 20) ? realloc(data, capacity * 2) : NULL;
+        if (bigger == NULL) {
+            free(data);
+            data = NULL;
+            break;
+        }
+        data = bigger;
+        capacity *= 2;
+    }
+    fclose(in);
+    if (data == NULL) {
+        snprintf(why, why_size, "%s is too large or memory ran out", path);
+        return -1;
+    }
+    long width = -1, height = -1, maximum = -1;
+    size_t at = 2;
+    if (size > 2 && data[0] == 'P' && data[1] == '5') {
+        at = pgm_number(data, size, at, &width);
+        at = pgm_number(data, size, at, &height);
+        at = pgm_number(data, size, at, &maximum);
+        at++; /* the one whitespace character before the pixels */
+    }
+    if (width <= 0 || height <= 0 || maximum != 255 ||
+        at + (size_t)width * (size_t)height > size) {
+        free(data);
+        snprintf(why, why_size,
+                 "%s is not an 8-bit binary PGM file; convert a DICOM image with "
+                 "'dcmj2pnm --write-8-bit-pnm FILE OUT.pgm'", path);
+        return -1;
+    }
+    frame->path = strdup(path);
+    frame->file = data;
+    frame->file_size = size;
+    frame->example.image = (screen_image){.width = (int)width, .height = (int)height,
+                                          .stride = (size_t)width, .grey = data + at};
+    return frame->path != NULL ? 0 : -1;
+}
+
+static int index_by_label(const char *label)
+{
+    static const char *const names[EXT_INDEX_COUNT] = {"MI", "TIS", "TIB", "TIC", "TISF",
+                                                       "TISS"};
+    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+        if (strcasecmp(label, names[i]) == 0)
+            return i;
+    }
+    return -1;
+}
+
+/* Parses "MI=1.2,TIS=0.4" into truth (the text kept as typed). */
+static int parse_values(const char *text, screen_value truth[EXT_INDEX_COUNT], char *why,
+                        size_t why_size)
+{
+    char *copy = strdup(text);
+    if (copy == NULL)
+        return -1;
+    int result = 0;
+    char *save = NULL;
+    for (char *item = strtok_r(copy, ",", &save); item != NULL && result == 0;
+         item = strtok_r(NULL, ",", &save)) {
+        char *equals = strchr(item, '=');
+        int index = -1;
+        if (equals != NULL) {
+            *equals = '\0';
+            index = index_by_label(item);
+        }
+        char *end = NULL;
+        double value = equals != NULL ? strtod(equals + 1, &end) : 0.0;
+        if (index < 0 || end == equals + 1 || *end != '\0' || value < 0.0 || value > 99.0 ||
+            strchr(equals + 1, '.') == NULL || strlen(equals + 1) >= sizeof truth[0].text) {
+            snprintf(why, why_size,
+                     "'%s' is not INDEX=VALUE as drawn (MI, TIS, TIB, TIC, TISF, TISS; "
+                     "e.g. MI=1.2 or TIB=0.45)", item);
+            result = -1;
+            break;
+        }
+        truth[index].status = SCREEN_VALUE_READ;
+        truth[index].value = value;
+        snprintf(truth[index].text, sizeof truth[index].text, "%s", equals + 1);
+    }
+    free(copy);
+    return result;
+}
+
+static void print_reading(FILE *out, const char *path, const screen_reading *reading)
+{
+    fprintf(out, "read %s", path);
+    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+        const screen_value *v = &reading->values[i];
+        if (v->status == SCREEN_VALUE_READ)
+            fprintf(out, " %s=%s", ext_index_name((ext_index)i), v->text);
+        else if (v->status == SCREEN_VALUE_NOT_READ)
+            fprintf(out, " %s=-", ext_index_name((ext_index)i));
+    }
+    fputc('\n', out);
+    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+        const screen_value *v = &reading->values[i];
+        if (v->status == SCREEN_VALUE_NOT_READ)
+            fprintf(out, "  %s not read: %s\n", ext_index_name((ext_index)i), v->reason);
+    }
+}
+
+static double cpu_seconds(void)
+{
+    struct rusage usage;
+    getrusage(RUSAGE_SELF, &usage);
+    return (double)usage.ru_utime.tv_sec + (double)usage.ru_utime.tv_usec / 1e6 +
+           (double)usage.ru_stime.tv_sec + (double)usage.ru_stime.tv_usec / 1e6;
+}
+
+/* bench MANIFEST: lines "learn KEY FILE VALUES" and "read KEY FILE ...";
+ * a key's profile is learned at its first read line. */
+static int device_bench(const char *manifest)
+{
+    FILE *in = fopen(manifest, "r");
+    if (in == NULL) {
+        fprintf(stderr, "mitilog device bench: cannot open %s\n", manifest);
+        return EXIT_STATUS_USAGE;
+    }
+    char line[4096], current[SCREEN_KEY_SIZE] = "";
+    device_frame frames[DEVICE_FRAMES_MAX];
+    size_t frame_count = 0;
+    screen_profile *profile = NULL;
+    int learned = 0;
+    double reading_seconds = 0.0;
+    unsigned long reads = 0;
+    int exit_status = EXIT_STATUS_SUCCESS;
+    while (fgets(line, sizeof line, in) != NULL) {
+        char verb[16], key[SCREEN_KEY_SIZE], path[2048], values[1024] = "";
+        if (sscanf(line, "%15s %127s %2047s %1023s", verb, key, path, values) < 3)
+            continue;
+        if (strcmp(key, current) != 0) {
+            screen_profile_free(profile);
+            profile = NULL;
+            learned = 0;
+            for (size_t f = 0; f < frame_count; f++)
+                frame_free(&frames[f]);
+            frame_count = 0;
+            snprintf(current, sizeof current, "%s", key);
+        }
+        char why[512];
+        if (strcmp(verb, "learn") == 0 && frame_count < DEVICE_FRAMES_MAX) {
+            if (frame_load(path, &frames[frame_count], why, sizeof why) != 0 ||
+                parse_values(values, frames[frame_count].example.truth, why, sizeof why) != 0) {
+                fprintf(stderr, "mitilog device bench: %s\n", why);
+                exit_status = EXIT_STATUS_FAILURE;
+                continue;
+            }
+            frame_count++;
+            continue;
+        }
+        if (strcmp(verb, "read") != 0)
+            continue;
+        if (!learned) {
+            learned = 1;
+            screen_example examples[DEVICE_FRAMES_MAX];
+            for (size_t f = 0; f < frame_count; f++)
+                examples[f] = frames[f].example;
+            char report[DEVICE_REPORT_SIZE];
+            mitilog_error error;
+            double before = cpu_seconds();
+            if (screen_learn(NULL, key, examples, frame_count, &profile, report, sizeof report,
+                             &error) != MITILOG_OK) {
+                printf("learned %s refused: %s\n", key, error.text);
+                printf("%s", report);
+            } else {
+                printf("learned %s ok in %.1f ms\n", key, (cpu_seconds() - before) * 1e3);
+            }
+        }
+        device_frame frame;
+        if (frame_load(path, &frame, why, sizeof why) != 0) {
+            fprintf(stderr, "mitilog device bench: %s\n", why);
+            exit_status = EXIT_STATUS_FAILURE;
+            continue;
+        }
+        if (profile == NULL) {
+            printf("read %s no-profile\n", path);
+        } else {
+            screen_reading reading;
+            mitilog_error error;
+            double before = cpu_seconds();
+            screen_read(profile, &frame.example.image, &reading, &error);
+            reading_seconds += cpu_seconds() - before;
+            reads++;
+            print_reading(stdout, path, &reading);
+        }
+        frame_free(&frame);
+    }
+    fclose(in);
+    screen_profile_free(profile);
+    for (size_t f = 0; f < frame_count; f++)
+        frame_free(&frames[f]);
+    printf("frames_read %lu cpu_ms_per_frame %.3f\n", reads,
+           reads ? reading_seconds * 1e3 / (double)reads : 0.0);
+    return exit_status;
+}
+
+static int device_usage(FILE *out)
+{
+    fprintf(out,
+            "usage: mitilog device learn [--config FILE] --key KEY [--print]\n"
+            "                            --value FILE:MI=1.2,TIS=0.4 ... FILE...\n"
+            "       mitilog device show [--config FILE] KEY\n"
+            "       mitilog device list [--config FILE]\n"
+            "       mitilog device activate [--config FILE] [--version N] [--by NAME] KEY\n"
+            "       mitilog device retire [--config FILE] KEY\n"
+            "       mitilog device bench MANIFEST\n"
+            "Sets up the screen profiles of devices that draw the indices into the image\n"
+            "(docs/screen-reading.md). Frames are 8-bit binary PGM files (dcmj2pnm\n"
+            "--write-8-bit-pnm writes them from DICOM). learn needs every digit and the\n"
+            "point among the values of its frames; the profile it stores is 'proposed'\n"
+            "until activated.\n");
+    return out == stdout ? EXIT_STATUS_SUCCESS : EXIT_STATUS_USAGE;
+}
+
+static int device_learn(int argc, char **argv, store **st_out, const char *config_path)
+{
+    const char *key = NULL;
+    int print_only = 0;
+    device_frame frames[DEVICE_FRAMES_MAX];
+    const char *values_for[DEVICE_FRAMES_MAX] = {0};
+    char *value_options[DEVICE_FRAMES_MAX];
+    size_t value_count = 0, frame_count = 0;
+    int exit_status = EXIT_STATUS_USAGE;
+    for (int i = 2; i < argc; i++) {
+        if (strcmp(argv[i], "--key") == 0 && i + 1 < argc)
+            key = argv[++i];
+        else if (strcmp(argv[i], "--print") == 0)
+            print_only = 1;
+        else if (strcmp(argv[i], "--config") == 0 && i + 1 < argc)
+            i++;
+        else if (strcmp(argv[i], "--value") == 0 && i + 1 < argc &&
+                 value_count < DEVICE_FRAMES_MAX)
+            value_options[value_count++] = argv[++i];
+        else if (argv[i][0] != '-' && frame_count < DEVICE_FRAMES_MAX) {
+            char why[512];
+            if (frame_load(argv[i], &frames[frame_count], why, sizeof why) != 0) {
+                fprintf(stderr, "mitilog device learn: %s\n", why);
+                goto done;
+            }
+            frame_count++;
+        } else {
+            device_usage(stderr);
+            goto done;
+        }
+    }
+    if (key == NULL || frame_count == 0) {
+        fprintf(stderr, "mitilog device learn: give --key KEY and at least one frame\n");
+        goto done;
+    }
+    for (size_t v = 0; v < value_count; v++) {
+        char *colon = strrchr(value_options[v], ':');
+        size_t f = 0;
+        if (colon != NULL) {
+            *colon = '\0';
+            for (; f < frame_count && strcmp(frames[f].path, value_options[v]) != 0; f++)
+                ;
+        }
+        char why[512] = "";
+        if (colon == NULL || f == frame_count ||
+            parse_values(colon + 1, frames[f].example.truth, why, sizeof why) != 0) {
+            fprintf(stderr, "mitilog device learn: --value %s: %s\n", value_options[v],
+                    why[0] ? why : "give FILE:MI=1.2,... for a FILE also named as a frame");
+            goto done;
+        }
+        values_for[f] = colon + 1;
+    }
+    for (size_t f = 0; f < frame_count; f++) {
+        if (values_for[f] == NULL) {
+            fprintf(stderr, "mitilog device learn: no values for %s: give --value "
+                            "%s:MI=1.2,TIS=0.4 as its screen shows them\n",
+                    frames[f].path, frames[f].path);
+            goto done;
+        }
+    }
+    screen_example examples[DEVICE_FRAMES_MAX];
+    for (size_t f = 0; f < frame_count; f++)
+        examples[f] = frames[f].example;
+    char report[DEVICE_REPORT_SIZE];
+    mitilog_error error;
+    screen_profile *profile = NULL;
+    exit_status = EXIT_STATUS_FAILURE;
+    if (screen_learn(NULL, key, examples, frame_count, &profile, report, sizeof report,
+                     &error) != MITILOG_OK) {
+        fprintf(stderr, "mitilog device learn: %s\n%s", error.text, report);
+        goto done;
+    }
+    char *text = NULL;
+    if (screen_profile_to_text(profile, &text, &error) != MITILOG_OK) {
+        fprintf(stderr, "mitilog device learn: %s\n", error.text);
+        screen_profile_free(profile);
+        goto done;
+    }
+    if (print_only) {
+        fputs(text, stdout);
+        exit_status = EXIT_STATUS_SUCCESS;
+    } else {
+        config config;
+        store *st = NULL;
+        int version = 0;
+        if (cli_load_config(config_path, &config) != 0) {
+            exit_status = EXIT_STATUS_USAGE;
+        } else if (store_open(config.database_path, (int)config.busy_timeout_ms, &st,
+                              &error) != MITILOG_OK) {
+            fprintf(stderr, "mitilog device learn: %s\n", error.text);
+        } else {
+            store_screen_profile_new row = {
+                .key = key, .rows = examples[0].image.height,
+                .columns = examples[0].image.width, .text = text, .report = report,
+                .example = frames[0].file, .example_size = frames[0].file_size};
+            if (store_screen_profile_put(st, &row, &version, &error) != MITILOG_OK) {
+                fprintf(stderr, "mitilog device learn: %s\n", error.text);
+            } else {
+                printf("%sstored %s version %d as proposed; check it with 'mitilog device "
+                       "show %s' and the dashboard's Devices page, then 'mitilog device "
+                       "activate %s'\n",
+                       report, key, version, key, key);
+                exit_status = EXIT_STATUS_SUCCESS;
+            }
+        }
+        *st_out = st;
+        config_free(&config);
+    }
+    free(text);
+    screen_profile_free(profile);
+done:
+    for (size_t f = 0; f < frame_count; f++)
+        frame_free(&frames[f]);
+    return exit_status;
+}
+
+int command_device(int argc, char **argv)
+{
+    if (argc < 2 || cli_wants_help(argc, argv))
+        return device_usage(cli_wants_help(argc, argv) ? stdout : stderr);
+    const char *action = argv[1];
+    if (strcmp(action, "bench") == 0)
+        return argc == 3 ? device_bench(argv[2]) : device_usage(stderr);
+    const char *config_path = NULL, *key = NULL, *by = NULL;
+    int version = 0;
+    for (int i = 2; i < argc; i++) {
+        if (strcmp(argv[i], "--config") == 0 && i + 1 < argc)
+            config_path = argv[++i];
+        else if (strcmp(action, "learn") == 0)
+            continue;
+        else if (strcmp(argv[i], "--version") == 0 && i + 1 < argc)
+            version = atoi(argv[++i]);
+        else if (strcmp(argv[i], "--by") == 0 && i + 1 < argc)
+            by = argv[++i];
+        else if (argv[i][0] != '-' && key == NULL)
+            key = argv[i];
+        else
+            return device_usage(stderr);
+    }
+    if (strcmp(action, "learn") == 0) {
+        store *st = NULL;
+        int status = device_learn(argc, argv, &st, config_path);
+        store_close(st);
+        return status;
+    }
+    int needs_key = strcmp(action, "list") != 0;
+    if ((needs_key && key == NULL) || (!needs_key && key != NULL) ||
+        (strcmp(action, "show") != 0 && strcmp(action, "list") != 0 &&
+         strcmp(action, "activate") != 0 && strcmp(action, "retire") != 0))
+        return device_usage(stderr);
+    config config;
+    if (cli_load_config(config_path, &config) != 0) {
+        config_free(&config);
+        return EXIT_STATUS_USAGE;
+    }
+    int exit_status = EXIT_STATUS_FAILURE;
+    mitilog_error error = {{0}};
+    store *st = NULL;
+    if (store_open(config.database_path, (int)config.busy_timeout_ms, &st, &error) !=
+        MITILOG_OK) {
+        fprintf(stderr, "mitilog device %s: %s\n", action, error.text);
+    } else if (strcmp(action, "list") == 0) {
+        char *json = NULL;
+        if (store_screen_profiles_json(st, &json, &error) == MITILOG_OK) {
+            printf("%s\n", json);
+            exit_status = EXIT_STATUS_SUCCESS;
+        }
+        free(json);
+    } else if (strcmp(action, "show") == 0) {
+        store_screen_profile_row row;
+        if (store_screen_profile_get(st, key, version, &row, &error) == MITILOG_OK) {
+            printf("# %s version %d, %s\n", key, row.version, row.state);
+            for (char *line = strtok(row.report, "\n"); line != NULL; line = strtok(NULL, "\n"))
+                printf("# %s\n", line);
+            printf("%s", row.text);
+            store_screen_profile_row_free(&row);
+            exit_status = EXIT_STATUS_SUCCESS;
+        }
+    } else if (strcmp(action, "activate") == 0) {
+        const char *who = by != NULL ? by : getenv("USER");
+        if (store_screen_profile_activate(st, key, version, who ? who : "unknown", &error) ==
+            MITILOG_OK) {
+            printf("%s is active: frames of this device are read with it from now on\n", key);
+            exit_status = EXIT_STATUS_SUCCESS;
+        }
+    } else if (store_screen_profile_retire(st, key, &error) == MITILOG_OK) {
+        printf("%s retired: its frames are no longer read from the pixels\n", key);
+        exit_status = EXIT_STATUS_SUCCESS;
+    }
+    if (exit_status != EXIT_STATUS_SUCCESS && error.text[0] != '\0')
+        fprintf(stderr, "mitilog device %s: %s\n", action, error.text);
+    store_close(st);
+    config_free(&config);
+    return exit_status;
+}
