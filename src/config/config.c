@@ -89,8 +89,9 @@ static const option options[] = {
      "How long a write waits for a locked database before answering A700."},
     {"storage", "sr_depth_limit", OPTION_UNSIGNED, FIELD(sr_depth_limit), "64", 1, 1024, NULL, 0,
      "Levels of an SR content tree read; deeper items are skipped (and logged)."},
-    {"reading", "workers", OPTION_UNSIGNED, FIELD(reading_workers), "1", 1, 16, NULL, 0,
-     "Threads reading the indices drawn in the pixels, after the C-STORE is answered."},
+    {"reading", "workers", OPTION_UNSIGNED, FIELD(reading_workers), "1", 0, 16, NULL, 0,
+     "Threads reading the indices drawn in the pixels, after the C-STORE is answered; 0 "
+     "queues objects without reading them until a restart with workers (maintenance)."},
     {"reading", "queue_objects", OPTION_UNSIGNED, FIELD(reading_queue_objects), "10000", 1,
      10000000, NULL, 0,
      "Objects waiting to be read at most; beyond it an object is stored with its pixel values "

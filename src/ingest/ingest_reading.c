@@ -531,8 +531,11 @@ mitilog_status ingest_reading_start(ingest_reading *reading, const config *confi
             log_info("reading queue: %zu object(s) acknowledged earlier and not yet read are "
                      "read now",
                      count);
-        unsigned workers = config->reading_workers > 0 ? config->reading_workers : 1;
-        reading->threads = calloc(workers, sizeof *reading->threads);
+        unsigned workers = config->reading_workers;
+        if (workers == 0)
+            log_warning("reading: [reading] workers = 0: objects are queued, not read, until "
+                        "a restart with workers");
+        reading->threads = calloc(workers ? workers : 1, sizeof *reading->threads);
         if (reading->threads == NULL)
             status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "reading: out of memory");
         for (unsigned i = 0; status == MITILOG_OK && i < workers; i++) {
