@@ -247,6 +247,77 @@ mitilog_status frame_fragments(DcmPixelSequence *sequence, size_t index, size_t 
     return MITILOG_OK;
 }
 
+/* A check of an RLE frame before DCMTK decodes it (PS3.5 section G.3):
+ * DCMTK's decoder fills what a short segment leaves out with whatever the
+ * buffer held, so a frame cut short must be refused here. Each of the
+ * header's segments must unpack (PackBits, G.3.1) to exactly
+ * rows x columns bytes. */
+mitilog_status rle_frame_complete(DcmDataset *dataset, size_t index, size_t frame_count,
+                                  mitilog_error *error)
+{
+    DcmElement *element = NULL;
+    if (dataset->findAndGetElement(DCM_PixelData, element).bad() || element == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no pixel data");
+    DcmPixelSequence *sequence = NULL;
+    if (static_cast<DcmPixelData *>(element)
+            ->getEncapsulatedRepresentation(EXS_RLELossless, NULL, sequence)
+            .bad() ||
+        sequence == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "RLE transfer syntax but the pixel data is not encapsulated");
+    std::vector<unsigned char> bytes;
+    mitilog_status status = frame_fragments(sequence, index, frame_count, bytes, error);
+    if (status != MITILOG_OK)
+        return status;
+    Uint16 rows = 0, columns = 0, samples = 1, allocated = 8;
+    dataset->findAndGetUint16(DCM_Rows, rows);
+    dataset->findAndGetUint16(DCM_Columns, columns);
+    dataset->findAndGetUint16(DCM_SamplesPerPixel, samples);
+    dataset->findAndGetUint16(DCM_BitsAllocated, allocated);
+    auto word = [&bytes](size_t at) {
+        return static_cast<Uint32>(bytes[at]) | static_cast<Uint32>(bytes[at + 1]) << 8 |
+               static_cast<Uint32>(bytes[at + 2]) << 16 | static_cast<Uint32>(bytes[at + 3]) << 24;
+    };
+    size_t expected_segments = static_cast<size_t>(samples) * ((allocated + 7) / 8);
+    if (bytes.size() < 64 || word(0) != expected_segments || expected_segments > 15)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "frame %zu does not decode: its RLE header is not the one of "
+                                 "%zu segment(s) (PS3.5 G.5)",
+                                 index + 1, expected_segments);
+    size_t wanted = static_cast<size_t>(rows) * columns;
+    for (size_t segment = 0; segment < expected_segments; segment++) {
+        size_t at = word(4 + 4 * segment);
+        size_t end = segment + 1 < expected_segments ? word(8 + 4 * segment) : bytes.size();
+        if (at < 64 || end > bytes.size() || at > end)
+            return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                     "frame %zu does not decode: RLE segment %zu lies outside "
+                                     "its fragment",
+                                     index + 1, segment + 1);
+        size_t produced = 0;
+        while (at < end && produced < wanted) {
+            signed char header = static_cast<signed char>(bytes[at++]);
+            if (header >= 0) {
+                size_t literal = static_cast<size_t>(header) + 1;
+                if (at + literal > end)
+                    break;
+                at += literal;
+                produced += literal;
+            } else if (header != -128) {
+                if (at >= end)
+                    break;
+                at++;
+                produced += static_cast<size_t>(1 - header);
+            }
+        }
+        if (produced < wanted)
+            return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                     "frame %zu does not decode: its RLE data ends early "
+                                     "(segment %zu gives %zu of %zu bytes)",
+                                     index + 1, segment + 1, produced, wanted);
+    }
+    return MITILOG_OK;
+}
+
 unsigned char scale_sample(OPJ_INT32 value, const opj_image_comp_t &component)
 {
     long long sample = value;
@@ -435,7 +506,11 @@ mitilog_status dcm_object_frame(dcm_object *object, size_t index, dcm_frame *fra
                                          "transfer syntax %s: its frames are not decoded here "
                                          "(video and other codecs are not read)",
                                          transfer.getXferName());
-            status = frame_by_dicom_image(dataset, xfer, index, frame, error);
+            status = xfer == EXS_RLELossless
+                         ? rle_frame_complete(dataset, index, frame->frame_count, error)
+                         : MITILOG_OK;
+            if (status == MITILOG_OK)
+                status = frame_by_dicom_image(dataset, xfer, index, frame, error);
         }
         if (status != MITILOG_OK)
             dcm_frame_free(frame);
