@@ -422,6 +422,9 @@ mitilog_status ingest_read_stored(ingest *ingest, const char *from, const char *
     ingest_backfill_counts local = {0};
     store_reading_entry *entries = NULL;
     size_t count = 0;
+    /* What an earlier run left queued is read first, so that the list
+     * below holds every capture of the period. */
+    ingest_reading_flush(&ingest->reading);
     mitilog_status status =
         store_reading_backfill_candidates(ingest->store, from, to, &entries, &count, error);
     for (size_t i = 0; status == MITILOG_OK && i < count; i++) {

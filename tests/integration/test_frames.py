@@ -9,7 +9,6 @@ The compressed files are made from native ones by DCMTK's `dcmcjpeg`,
 encapsulated by pydicom, PS3.5 section A.4).
 """
 
-import io
 import os
 import subprocess
 import sys
@@ -19,7 +18,6 @@ import pydicom
 import pytest
 from PIL import Image
 from pydicom.encaps import encapsulate
-from pydicom.uid import JPEG2000Lossless
 
 from conftest import BINARY, REPO, run
 
@@ -106,31 +104,8 @@ def screen_files(tmp_path_factory):
             result = run(command + [native, path])
             assert result.returncode == 0, result.stderr
             files[source, syntax] = path
-        files[source, "jpeg2000"] = make_jpeg2000(native, str(folder / ("%s-j2k.dcm" % source)))
+        files[source, "jpeg2000"] = make_screens.write_jpeg2000(native, str(folder / ("%s-j2k.dcm" % source)))
     return files
-
-
-def make_jpeg2000(native, path):
-    """A lossless JPEG 2000 copy: each frame a J2K codestream from Pillow's
-    OpenJPEG, in an encapsulated Pixel Data with a Basic Offset Table."""
-    ds = pydicom.dcmread(native)
-    array = ds.pixel_array
-    frames = int(getattr(ds, "NumberOfFrames", 1) or 1)
-    if frames == 1:
-        array = array[numpy.newaxis]
-    streams = []
-    for frame in array:
-        buffer = io.BytesIO()
-        Image.fromarray(frame).save(buffer, format="JPEG2000", irreversible=False,
-                                    no_jp2=True)
-        streams.append(buffer.getvalue())
-    ds.PixelData = encapsulate(streams, has_bot=True)
-    ds["PixelData"].VR = "OB"
-    ds.file_meta.TransferSyntaxUID = JPEG2000Lossless
-    ds.is_implicit_VR = False
-    ds.is_little_endian = True
-    ds.save_as(path, write_like_original=False)
-    return path
 
 
 @pytest.mark.parametrize("source", sorted(SOURCES))
