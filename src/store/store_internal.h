@@ -158,10 +158,12 @@ mitilog_status store_write_context(store *store, const ext_record *record,
                                    sqlite3_int64 instance_id,
                                    mitilog_error *error);
 /* store_reading.c: an instance's queue row and reading state, after its
- * row; inside the batch's transaction. *stale_spool: as in
+ * row; inside the batch's transaction. replaced: the row existed before,
+ * so its older queue row and reading are dropped first (a new row has
+ * none: two statements saved per object). *stale_spool: as in
  * store_put_instance_read(). */
 mitilog_status store_write_reading(store *store, const struct store_reading_request *reading,
-                                   sqlite3_int64 instance_id, char **stale_spool,
+                                   sqlite3_int64 instance_id, int replaced, char **stale_spool,
                                    mitilog_error *error);
 /* store_write_exam.c: one exam with its timeline and mode maxima. */
 mitilog_status store_write_exam(store *store, const store_exam *exam,

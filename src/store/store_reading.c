@@ -27,11 +27,30 @@ static sqlite3_stmt *writer_statement(store *st, const char *name, mitilog_error
     return statement;
 }
 
+static mitilog_status clear_older(store *st, sqlite3_int64 instance_id, char **stale_spool,
+                                  mitilog_error *error);
+static mitilog_status write_request(store *st, const store_reading_request *reading,
+                                    sqlite3_int64 instance_id, mitilog_error *error);
+
 mitilog_status store_write_reading(store *st, const store_reading_request *reading,
-                                   sqlite3_int64 instance_id, char **stale_spool,
+                                   sqlite3_int64 instance_id, int replaced, char **stale_spool,
                                    mitilog_error *error)
 {
     *stale_spool = NULL;
+    if (replaced) {
+        mitilog_status status = clear_older(st, instance_id, stale_spool, error);
+        if (status != MITILOG_OK)
+            return status;
+    }
+    if (reading == NULL)
+        return MITILOG_OK;
+    return write_request(st, reading, instance_id, error);
+}
+
+/* Drops an instance's older queue row and reading. */
+static mitilog_status clear_older(store *st, sqlite3_int64 instance_id, char **stale_spool,
+                                  mitilog_error *error)
+{
     sqlite3_stmt *clear_queue = writer_statement(st, "queries/reading_clear_queue.sql", error);
     if (clear_queue == NULL)
         return MITILOG_ERROR_DATABASE;
@@ -55,10 +74,15 @@ mitilog_status store_write_reading(store *st, const store_reading_request *readi
     store_release(clear_reading);
     if (rc != SQLITE_DONE)
         return reading_error(st, error, "clear reading");
-    if (reading == NULL)
-        return MITILOG_OK;
+    return MITILOG_OK;
+}
 
+/* The queue row (or the 'not_read' state) of a reading request. */
+static mitilog_status write_request(store *st, const store_reading_request *reading,
+                                    sqlite3_int64 instance_id, mitilog_error *error)
+{
     char now[40];
+    int rc;
     files_utc_now(now, sizeof now);
     if (reading->not_read_reason == NULL) {
         sqlite3_stmt *insert = writer_statement(st, "queries/reading_queue_insert.sql", error);
@@ -107,7 +131,8 @@ static mitilog_status write_enqueue(store *st, const void *context, mitilog_erro
 {
     const enqueue_context *c = context;
     char *stale = NULL;
-    mitilog_status status = store_write_reading(st, c->reading, c->instance_id, &stale, error);
+    mitilog_status status =
+        store_write_reading(st, c->reading, c->instance_id, 1, &stale, error);
     free(stale); /* a backfill never replaces a spool copy still queued */
     return status;
 }

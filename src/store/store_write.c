@@ -383,6 +383,7 @@ static mitilog_status store_write_instance(store *st,
             free(request->stale_spool);
             request->stale_spool = NULL;
             status = store_write_reading(st, request->reading, instance_id,
+                                         request->outcome == STORE_PUT_REPLACED,
                                          &request->stale_spool, &request->error);
         }
     }
