@@ -337,6 +337,10 @@ def test_full_queue_stores_the_object_not_read_and_rescore_reads_it(daemon_facto
                             ).fetchall()
     assert [s for s, _ in states] == ["queued", "queued", "not_read", "not_read"]
     assert all("reading queue full" in reason for _, reason in states[2:])
+    reading = daemon.get_json("/api/v1/ingest")["reading"]
+    assert (reading["queued"], reading["not_read_queue_full"], reading["read"]) == (2, 2, 0)
+    # the images read from nothing yet are "without indices" for now
+    assert daemon.get_json("/api/v1/ingest")["objects_per_hour"][0]["without_indices"] == 4
     daemon.stop()
     with open(daemon.config) as f:
         text = f.read().replace("workers = 0", "workers = 1")
@@ -348,3 +352,8 @@ def test_full_queue_stores_the_object_not_read_and_rescore_reads_it(daemon_facto
     with daemon.db() as db:
         rows = db.execute("SELECT state, mi, tis, tib FROM screen_readings").fetchall()
     assert rows == [("read", 0.9, 0.4, 1.2)] * 4
+    daemon.returncode = None
+    daemon.start()
+    status = daemon.get_json("/api/v1/ingest")
+    assert status["reading"]["read"] == 4
+    assert status["objects_per_hour"][0]["without_indices"] == 0
