@@ -217,6 +217,8 @@ static void read_slot(const screen_profile *profile, const screen_image *image, 
     screen_blob blobs[SCREEN_VALUE_CHARACTERS_MAX + 2];
     size_t count = screen_segment(image, &band, threshold, start, limit, blobs,
                                   sizeof blobs / sizeof blobs[0], &touches);
+    count = screen_split_wide(image, &band, threshold, blobs, count,
+                              sizeof blobs / sizeof blobs[0], profile->split_width);
     if (count == 0 || blobs[0].left - start > slot->gap_max) {
         set_reason(value, "no value next to the label %s%s", name, "");
         return;
