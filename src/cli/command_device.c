@@ -388,7 +388,8 @@ static int device_learn(int argc, char **argv, store **st_out, const char *confi
         int version = 0;
         if (cli_load_config(config_path, &config) != 0) {
             exit_status = EXIT_STATUS_USAGE;
-        } else if (store_open(config.database_path, (int)config.busy_timeout_ms, &st,
+        } else if (cli_prepare_data_directory(&config, &error) != 0 ||
+                   store_open(config.database_path, (int)config.busy_timeout_ms, &st,
                               &error) != MITILOG_OK) {
             fprintf(stderr, "mitilog device learn: %s\n", error.text);
         } else {
@@ -459,9 +460,10 @@ int command_device(int argc, char **argv)
     int exit_status = EXIT_STATUS_FAILURE;
     mitilog_error error = {{0}};
     store *st = NULL;
-    if (store_open(config.database_path, (int)config.busy_timeout_ms, &st, &error) !=
-        MITILOG_OK) {
-        fprintf(stderr, "mitilog device %s: %s\n", action, error.text);
+    if (cli_prepare_data_directory(&config, &error) != 0 ||
+        store_open(config.database_path, (int)config.busy_timeout_ms, &st, &error) !=
+            MITILOG_OK) {
+        /* the reason is printed below */
     } else if (strcmp(action, "list") == 0) {
         char *json = NULL;
         if (store_screen_profiles_json(st, &json, &error) == MITILOG_OK) {
