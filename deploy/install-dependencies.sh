@@ -10,6 +10,9 @@ packages=(
   build-essential cmake pkg-config g++
   libdcmtk-dev libsqlite3-dev libmicrohttpd-dev libgnutls28-dev
   libinih-dev libssl-dev zlib1g-dev
+  # JPEG 2000 frames: DCMTK has no decoder for them, OpenJPEG decodes the
+  # frame's fragments from memory (src/dicom/dcm_frame.cc)
+  libopenjp2-7-dev
   # unit tests
   libcmocka-dev
   # fuzzing (tests/fuzz/run.sh): clang with libFuzzer and its sanitizer runtimes

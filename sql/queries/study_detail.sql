@@ -37,12 +37,15 @@ SELECT json_object(
         'gap_cap_seconds', e.gap_cap_seconds,
         'sr_scan_time_seconds', e.sr_scan_time_seconds),
     'timeline', (SELECT json_group_array(json_object(
-            'position', position, 'sop_instance_uid', sop_instance_uid,
-            'start_seconds', start_seconds, 'interval_seconds', interval_seconds,
-            'cine_seconds', cine_seconds, 'attributed_seconds', attributed_seconds,
-            'capped', json(iif(capped, 'true', 'false'))))
+            'position', t.position, 'sop_instance_uid', t.sop_instance_uid,
+            'start_seconds', t.start_seconds, 'interval_seconds', t.interval_seconds,
+            'cine_seconds', t.cine_seconds, 'attributed_seconds', t.attributed_seconds,
+            'capped', json(iif(t.capped, 'true', 'false')),
+            'indices', json((SELECT v.indices FROM instances i
+                             JOIN instance_provenance v ON v.instance_id = i.id
+                             WHERE i.sop_instance_uid = t.sop_instance_uid))))
         FROM (SELECT * FROM exam_timeline WHERE study_instance_uid = ?1
-              ORDER BY position)),
+              ORDER BY position) t),
     'source', json_object(
         'exam_type', e.exam_type_source,
         'governing_index', e.governing_index_source,
@@ -74,7 +77,10 @@ SELECT json_object(
         FROM exam_measurements WHERE study_instance_uid = ?1
         ORDER BY policy_version = ?2 DESC, evaluated_at DESC LIMIT 1)),
     'instances', (SELECT json_group_array(json(document)) FROM
-        (SELECT document FROM instance_documents WHERE study_instance_uid = ?1
-         ORDER BY acquired_at IS NULL, acquired_at, id)))
+        (SELECT json_set(d.document, '$.indices', json(v.indices),
+                         '$.screen_reading', json(v.screen_reading)) AS document
+         FROM instance_documents d JOIN instance_provenance v ON v.instance_id = d.id
+         WHERE d.study_instance_uid = ?1
+         ORDER BY d.acquired_at IS NULL, d.acquired_at, d.id)))
 FROM (SELECT 1 FROM instances WHERE study_instance_uid = ?1 LIMIT 1)
 LEFT JOIN exams e ON e.study_instance_uid = ?1;

@@ -215,7 +215,9 @@ int command_import(int argc, char **argv)
     for (unsigned i = 0; i < started; i++)
         pthread_join(workers[i], NULL);
     started = 0;
-    /* Exam records rebuilt, WAL checkpointed and synced: then the summary. */
+    /* Pixels read, exam records rebuilt, WAL checkpointed and synced:
+     * then the summary. */
+    ingest_flush(pipeline);
     ingest_free(pipeline);
     pipeline = NULL;
     store_close(store);

@@ -1,5 +1,7 @@
-/* mitilog rescore [--config FILE] [--from YYYY-MM-DD] [--to YYYY-MM-DD]:
- * re-evaluates the stored exams (by first acquisition date) and the days
+/* mitilog rescore [--config FILE] [--from YYYY-MM-DD] [--to YYYY-MM-DD]
+ * [--read-pixels]: with --read-pixels, first reads again the indices drawn
+ * in the pixels of the stored captures whose object is still at hand
+ * (ingest_read_stored); then re-evaluates the stored exams (by first acquisition date) and the days
  * of rule output_not_reported in the period under the current policy
  * ([rules] policy). Findings of earlier policy versions are kept and
  * marked superseded; an evaluation that would write what is stored
@@ -10,9 +12,11 @@
 #include "cli/cli_options.h"
 #include "cli/commands.h"
 #include "config/config_site.h"
+#include "dicom/dcm.h"
 #include "ingest/ingest.h"
 #include "rules/rules.h"
 #include "store/store.h"
+#include "util/log.h"
 
 static int rescore_is_date(const char *text)
 {
@@ -27,7 +31,7 @@ static int rescore_is_date(const char *text)
 int command_rescore(int argc, char **argv)
 {
     const char *config_path = NULL, *from = NULL, *to = NULL;
-    int usage = 0;
+    int usage = 0, read_pixels = 0;
     for (int i = 1; i < argc; i++) {
         if (strcmp(argv[i], "--config") == 0 && i + 1 < argc)
             config_path = argv[++i];
@@ -35,6 +39,8 @@ int command_rescore(int argc, char **argv)
             from = argv[++i];
         else if (strcmp(argv[i], "--to") == 0 && i + 1 < argc && rescore_is_date(argv[i + 1]))
             to = argv[++i];
+        else if (strcmp(argv[i], "--read-pixels") == 0)
+            read_pixels = 1;
         else
             usage = 1;
     }
@@ -42,6 +48,11 @@ int command_rescore(int argc, char **argv)
         int help = cli_wants_help(argc, argv);
         fprintf(help ? stdout : stderr,
                 "usage: mitilog rescore [--config FILE] [--from YYYY-MM-DD] [--to YYYY-MM-DD]\n"
+                "                       [--read-pixels]\n"
+                "--read-pixels first reads again the indices drawn in the pixels of the\n"
+                "ultrasound images and cines of the period whose object is still at hand\n"
+                "(retention full, or an imported file still where it was imported from)\n"
+                "and whose device has an active screen profile (docs/reading.md).\n"
                 "Re-evaluates the stored exams whose first acquisition falls in the period\n"
                 "(inclusive; open when not given) under the current policy ([rules] policy),\n"
                 "and rule output_not_reported for each day of the period. Findings of other\n"
@@ -73,8 +84,24 @@ int command_rescore(int argc, char **argv)
         exit_status = EXIT_STATUS_USAGE;
         goto done;
     }
-    if (store_open(config.database_path, (int)config.busy_timeout_ms, &st, &error) != MITILOG_OK ||
-        ingest_register_policy(st, policy, &error) != MITILOG_OK ||
+    if (store_open(config.database_path, (int)config.busy_timeout_ms, &st, &error) != MITILOG_OK)
+        goto failed;
+    if (read_pixels) {
+        ingest *pipeline = NULL;
+        ingest_backfill_counts read = {0};
+        if (dcm_initialise(LOG_LEVEL_WARNING, &error) != MITILOG_OK ||
+            cli_prepare_data_directory(&config, &error) != 0 ||
+            ingest_create(&config, st, &pipeline, &error) != MITILOG_OK)
+            goto failed;
+        mitilog_status read_status = ingest_read_stored(pipeline, from, to, &read, &error);
+        ingest_free(pipeline);
+        if (read_status != MITILOG_OK)
+            goto failed;
+        printf("rescore: pixels: %lu captures read again, %lu not kept (retention), "
+               "%lu without an active screen profile, %lu left for a later run (queue full)\n",
+               read.queued, read.not_kept, read.no_profile, read.queue_full);
+    }
+    if (ingest_register_policy(st, policy, &error) != MITILOG_OK ||
         store_list(st, STORE_LIST_EXAMS_IN_PERIOD, from, to, &items, &count, &error) !=
             MITILOG_OK)
         goto failed;

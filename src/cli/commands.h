@@ -17,6 +17,7 @@ int command_report(int argc, char **argv);
 int command_rescore(int argc, char **argv);
 int command_passwd(int argc, char **argv);
 int command_header(int argc, char **argv);
+int command_frame(int argc, char **argv);
 int command_device(int argc, char **argv);
 
 enum {

@@ -17,6 +17,7 @@ static const subcommand subcommands[] = {
     {"check-config", command_check_config, "validate a configuration and print it"},
     {"rescore", command_rescore, "re-evaluate stored exams under the current ALARA policy"},
     {"inspect", command_inspect, "print what mitilog extracts from one DICOM file"},
+    {"frame", command_frame, "write one decoded frame of a DICOM file as PGM/PPM"},
     {"header", command_header, "write the header copy kept for one instance"},
     {"device", command_device, "set up the screen profiles of devices that draw the indices"},
     {"passwd", command_passwd, "make a password-file line for the HTTP login"},

@@ -89,6 +89,19 @@ static const option options[] = {
      "How long a write waits for a locked database before answering A700."},
     {"storage", "sr_depth_limit", OPTION_UNSIGNED, FIELD(sr_depth_limit), "64", 1, 1024, NULL, 0,
      "Levels of an SR content tree read; deeper items are skipped (and logged)."},
+    {"reading", "workers", OPTION_UNSIGNED, FIELD(reading_workers), "1", 0, 16, NULL, 0,
+     "Threads reading the indices drawn in the pixels, after the C-STORE is answered; 0 "
+     "queues objects without reading them until a restart with workers (maintenance)."},
+    {"reading", "queue_objects", OPTION_UNSIGNED, FIELD(reading_queue_objects), "10000", 1,
+     10000000, NULL, 0,
+     "Objects waiting to be read at most; beyond it an object is stored with its pixel values "
+     "'not read: reading queue full'."},
+    {"reading", "queue_megabytes", OPTION_UNSIGNED, FIELD(reading_queue_megabytes), "4096", 1,
+     1048576, NULL, 0,
+     "Spooled bytes (MiB) of the objects waiting to be read at most; beyond it as queue_objects."},
+    {"reading", "cine_frames", OPTION_UNSIGNED, FIELD(reading_cine_frames), "3", 1, 64, NULL, 0,
+     "Frames of a cine read (first, last and evenly between); a value is kept only when they "
+     "agree."},
     {"site", "rules", OPTION_STRING, FIELD(site_rules_path), MITILOG_SOURCE_DIR "/conf/site.ini", 0,
      0, NULL, 1,
      "Site file: exam types, rooms, shifts, age groups, SR codes (docs/configuration.md); "

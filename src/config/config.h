@@ -52,6 +52,12 @@ typedef struct config {
     unsigned busy_timeout_ms;
     unsigned sr_depth_limit;       /* SR content tree levels read */
 
+    /* [reading] the pixel reader's queue (src/ingest/ingest_reading.c) */
+    unsigned reading_workers;      /* threads reading frames */
+    unsigned reading_queue_objects; /* objects waiting at most */
+    unsigned reading_queue_megabytes; /* their spooled bytes at most */
+    unsigned reading_cine_frames;  /* frames of a cine read and compared */
+
     /* [site] */
     char *site_rules_path;         /* the site file (conf/site.ini); "" = none */
 

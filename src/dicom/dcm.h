@@ -72,6 +72,7 @@ mitilog_status dcm_initialise(int log_level, mitilog_error *error);
     X(PATIENT_BIRTH_DATE, 0x0010, 0x0030)                                  \
     X(PATIENT_AGE, 0x0010, 0x1010)                                         \
     X(BODY_PART_EXAMINED, 0x0018, 0x0015)                                  \
+    X(SOFTWARE_VERSIONS, 0x0018, 0x1020)                                   \
     X(FRAME_TIME, 0x0018, 0x1063)                                          \
     X(PROTOCOL_NAME, 0x0018, 0x1030)                                       \
     X(TRANSDUCER_DATA, 0x0018, 0x5010)                                     \
@@ -86,6 +87,8 @@ mitilog_status dcm_initialise(int log_level, mitilog_error *error);
     X(SERIES_INSTANCE_UID, 0x0020, 0x000E)                                 \
     X(INSTANCE_NUMBER, 0x0020, 0x0013)                                     \
     X(NUMBER_OF_FRAMES, 0x0028, 0x0008)                                    \
+    X(ROWS, 0x0028, 0x0010)                                                \
+    X(COLUMNS, 0x0028, 0x0011)                                             \
     X(PERFORMED_PROCEDURE_STEP_DESCRIPTION, 0x0040, 0x0254)
 
 typedef enum dcm_attribute {
@@ -168,6 +171,39 @@ void dcm_facts_free(dcm_facts *facts);
  * for nothing but another header copy and dcm_object_free(). */
 mitilog_status dcm_object_header_bytes(dcm_object *object, unsigned char **bytes,
                                        size_t *size, mitilog_error *error);
+
+/* ------------------------------------------------------------------ */
+/* Frames (dcm_frame.cc)                                               */
+/* ------------------------------------------------------------------ */
+
+/* One decoded frame as 8-bit pixels, row-major, no padding between rows.
+ * grey is always filled (width x height bytes, 0 black .. 255 white;
+ * MONOCHROME1 is inverted to MONOCHROME2's sense). rgb is filled only for
+ * colour objects (width x height x 3, interleaved R, G, B) and NULL for
+ * monochrome ones; the grey of a colour pixel is
+ * (299 R + 587 G + 114 B + 500) / 1000, the luma weights of ITU-R BT.601.
+ * Both are malloc'd and freed by dcm_frame_free(). */
+typedef struct dcm_frame {
+    int width;
+    int height;
+    size_t frame_count;          /* frames in the object (1 for single) */
+    unsigned char *grey;
+    unsigned char *rgb;
+} dcm_frame;
+
+/* Frame index (0-based) of the object's Pixel Data, decoded whatever its
+ * transfer syntax: native (uncompressed), RLE, JPEG baseline, extended
+ * and lossless (dcmjpeg), JPEG-LS (dcmjpls), JPEG 2000 (OpenJPEG, from
+ * the frame's fragments in memory). Samples over 8 bits are scaled to 8
+ * (the top bits). Enhanced US Volume objects are refused. When the frame
+ * cannot be had, MITILOG_ERROR_INVALID with the reason in plain words in
+ * error (no pixel data, no such frame, an unsupported transfer syntax or
+ * photometric interpretation, a frame that does not decode);
+ * MITILOG_ERROR_MEMORY when out of memory. frame_count is set whenever
+ * the object has pixel data, also when the frame itself fails. */
+mitilog_status dcm_object_frame(dcm_object *object, size_t index,
+                                dcm_frame *frame, mitilog_error *error);
+void dcm_frame_free(dcm_frame *frame);
 
 /* ------------------------------------------------------------------ */
 /* Receiving: Storage SCP + Verification SCP                           */

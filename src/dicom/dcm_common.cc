@@ -53,6 +53,7 @@ mitilog_status dcm_initialise(int log_level, mitilog_error *error)
          * and odd-length OB values are padded. DcmSCP turns it off for
          * the same reason ("we want to see the real data"). */
         dcmEnableAutomaticInputDataCorrection.set(OFFalse);
+        dcm_frame_codecs_register();
         /* dcmnet reads TCP_NODELAY at every accept; without it Nagle's
          * algorithm slows one-object-at-a-time senders to ~20 objects/s. */
         if (setenv("TCP_NODELAY", "1", 1) != 0)

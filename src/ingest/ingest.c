@@ -3,12 +3,15 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include "config/config_site.h"
 #include "extract/ext.h"
 #include "extract/ext_sr.h"
 #include "ingest/ingest_internal.h"
+#include "ingest/ingest_reading.h"
+#include "store/store_reading.h"
 #include "util/files.h"
 #include "util/hash.h"
 #include "util/log.h"
@@ -27,6 +30,7 @@ struct ingest {
     ext_site_rules rules;         /* the site file, read at start */
     dcm_private_request private_requests[EXT_SITE_PRESET_SOURCES_MAX];
     ingest_exams exams;
+    ingest_reading reading;       /* the pixel reader's queue and workers */
     ingest_schemes schemes;
     unsigned sr_depth_limit;      /* [storage] sr_depth_limit */
 };
@@ -82,6 +86,11 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out,
     }
     if (status == MITILOG_OK)
         status = ingest_exams_start(&created->exams, store, &created->rules, error);
+    if (status == MITILOG_OK) {
+        status = ingest_reading_start(&created->reading, config, store, &created->exams, error);
+        if (status != MITILOG_OK)
+            ingest_exams_stop(&created->exams);
+    }
     if (status != MITILOG_OK) {
         ext_site_rules_free(&created->rules);
         pthread_mutex_destroy(&created->schemes.lock);
@@ -111,14 +120,17 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out,
 
 void ingest_flush(ingest *ingest)
 {
-    if (ingest != NULL)
+    if (ingest != NULL) {
+        ingest_reading_flush(&ingest->reading);
         ingest_exams_flush(&ingest->exams);
+    }
 }
 
 void ingest_free(ingest *ingest)
 {
     if (ingest == NULL)
         return;
+    ingest_reading_stop(&ingest->reading);
     ingest_exams_stop(&ingest->exams);
     ext_site_rules_free(&ingest->rules);
     ingest_schemes_free(&ingest->schemes);
@@ -249,6 +261,69 @@ static mitilog_status retain(ingest *ingest, dcm_object *object, const ingest_so
     return files_copy(source->path, path, error);
 }
 
+/* What is done about an object's pixels: nothing (wanted 0), a queue row
+ * naming the file to read, or "not read" with the reason. */
+typedef struct reading_plan {
+    int wanted;
+    int reserved;                 /* a queue place is held */
+    store_reading_request request;
+    char path[PATH_SIZE];
+    char reason[MITILOG_ERROR_TEXT_SIZE + 64];
+} reading_plan;
+
+/* Decides whether the object is read and, if so, which file the worker
+ * reads: the kept object (retention full), the imported file, or a copy
+ * in the reading spool (a received object's memory file is gone once the
+ * C-STORE is answered). Never fails the object: anything that prevents
+ * reading is recorded as its reason. */
+static void plan_reading(ingest *ingest, const ingest_source *source, const dcm_facts *facts,
+                         const ext_record *record, reading_plan *plan)
+{
+    int capture = record->is_ultrasound &&
+                  (record->kind == EXT_KIND_IMAGE || record->kind == EXT_KIND_MULTIFRAME);
+    if (!ingest_reading_wants(&ingest->reading, facts, capture))
+        return;
+    plan->wanted = 1;
+    struct stat info;
+    long long bytes = stat(source->path, &info) == 0 ? (long long)info.st_size : 0;
+    if (!ingest_reading_reserve(&ingest->reading, bytes, plan->reason, sizeof plan->reason)) {
+        plan->request.not_read_reason = plan->reason;
+        return;
+    }
+    plan->reserved = 1;
+    plan->request.bytes = bytes;
+    mitilog_error error;
+    if (ingest->retention == RETENTION_FULL &&
+        hashed_path(ingest->objects, record->sop_instance_uid, plan->path, &error) == MITILOG_OK) {
+        plan->request.path = plan->path;
+    } else if (!source->is_spool) {
+        snprintf(plan->path, sizeof plan->path, "%s", source->path);
+        plan->request.path = plan->path;
+    } else if (ingest_reading_spool_file(&ingest->reading, plan->path, sizeof plan->path,
+                                         &error) == MITILOG_OK &&
+               files_copy(source->path, plan->path, &error) == MITILOG_OK) {
+        plan->request.path = plan->path;
+        plan->request.owned = 1;
+    } else {
+        unlink(plan->path);
+        ingest_reading_release(&ingest->reading, bytes);
+        plan->reserved = 0;
+        snprintf(plan->reason, sizeof plan->reason,
+                 "the object could not be kept for reading: %s", error.text);
+        plan->request.not_read_reason = plan->reason;
+        plan->request.path = NULL;
+    }
+}
+
+/* The instance did not commit: give the place and the copy back. */
+static void cancel_reading(ingest *ingest, reading_plan *plan)
+{
+    if (plan->reserved)
+        ingest_reading_release(&ingest->reading, plan->request.bytes);
+    if (plan->request.owned)
+        unlink(plan->path);
+}
+
 static ingest_outcome reject(ingest *ingest, const ingest_source *source, mitilog_error *reason)
 {
     quarantine(ingest, source, reason->text);
@@ -300,28 +375,116 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
     store_put_outcome put = STORE_PUT_INSERTED;
     unsigned char *header_bytes = NULL;
     size_t header_size = 0;
+    reading_plan plan;
+    memset(&plan, 0, sizeof plan);
+    long long instance_id = 0;
+    char *stale_spool = NULL;
     if (record.calling_ae_title == NULL) {
         mitilog_error_set(reason, MITILOG_ERROR_MEMORY, "out of memory");
     } else if (retain(ingest, object, source, record.sop_instance_uid, &header_bytes,
                       &header_size, reason) != MITILOG_OK) {
         log_error("object %s: cannot keep its copy: %s", record.sop_instance_uid, reason->text);
-    } else if (store_put_instance(ingest->store, &record,
-                                  header_bytes != NULL
-                                      ? &(store_bytes){header_bytes, header_size}
-                                      : NULL,
-                                  &put, reason) != MITILOG_OK) {
+    } else if (plan_reading(ingest, source, &facts, &record, &plan),
+               store_put_instance_read(ingest->store, &record,
+                                       header_bytes != NULL
+                                           ? &(store_bytes){header_bytes, header_size}
+                                           : NULL,
+                                       plan.wanted ? &plan.request : NULL, &put, &instance_id,
+                                       &stale_spool, reason) != MITILOG_OK) {
         log_error("object %s not stored: %s", record.sop_instance_uid, reason->text);
+        cancel_reading(ingest, &plan);
     } else {
         outcome = put == STORE_PUT_REPLACED ? INGEST_OUTCOME_REPLACED : INGEST_OUTCOME_STORED;
+        if (stale_spool != NULL)
+            unlink(stale_spool); /* the older receipt's copy, no longer queued */
+        if (plan.wanted && plan.request.not_read_reason == NULL)
+            ingest_reading_push(&ingest->reading, instance_id, record.sop_instance_uid,
+                                record.study_instance_uid, plan.request.path,
+                                plan.request.owned, plan.request.bytes);
+        else if (plan.wanted)
+            log_warning("object %s: pixel values not read: %s", record.sop_instance_uid,
+                        plan.request.not_read_reason);
         ingest_exams_mark(&ingest->exams, record.study_instance_uid);
         log_debug("object %s stored (%s)", record.sop_instance_uid,
                   put == STORE_PUT_REPLACED ? "replaced" : "new");
     }
+    free(stale_spool);
     free(header_bytes);
     dcm_object_free(object);
     dcm_facts_free(&facts);
     ext_record_free(&record);
     return outcome;
+}
+
+mitilog_status ingest_read_stored(ingest *ingest, const char *from, const char *to,
+                                  ingest_backfill_counts *counts, mitilog_error *error)
+{
+    ingest_backfill_counts local = {0};
+    store_reading_entry *entries = NULL;
+    size_t count = 0;
+    /* What an earlier run left queued is read first, so that the list
+     * below holds every capture of the period. */
+    ingest_reading_flush(&ingest->reading);
+    mitilog_status status =
+        store_reading_backfill_candidates(ingest->store, from, to, &entries, &count, error);
+    for (size_t i = 0; status == MITILOG_OK && i < count; i++) {
+        store_reading_entry *entry = &entries[i];
+        char path[PATH_SIZE] = "";
+        mitilog_error ignored;
+        struct stat info;
+        if (hashed_path(ingest->objects, entry->sop_instance_uid, path, &ignored) !=
+                MITILOG_OK ||
+            stat(path, &info) != 0) {
+            if (entry->path != NULL && stat(entry->path, &info) == 0)
+                snprintf(path, sizeof path, "%s", entry->path);
+            else {
+                local.not_kept++;
+                continue;
+            }
+        }
+        dcm_object *object = NULL;
+        dcm_facts facts;
+        memset(&facts, 0, sizeof facts);
+        int wanted = dcm_object_load(path, &object, &ignored) == MITILOG_OK &&
+                     dcm_object_facts(object, 1, &facts, &ignored) == MITILOG_OK &&
+                     ingest_reading_wants(&ingest->reading, &facts, 1);
+        dcm_facts_free(&facts);
+        dcm_object_free(object);
+        if (!wanted) {
+            local.no_profile++;
+            continue;
+        }
+        char reason[MITILOG_ERROR_TEXT_SIZE];
+        long long bytes = (long long)info.st_size;
+        int reserved = ingest_reading_reserve(&ingest->reading, bytes, reason, sizeof reason);
+        if (!reserved) {
+            /* A full queue: wait for it to empty, then try once more. */
+            ingest_reading_flush(&ingest->reading);
+            reserved = ingest_reading_reserve(&ingest->reading, bytes, reason, sizeof reason);
+        }
+        if (!reserved) {
+            local.queue_full++;
+            continue;
+        }
+        store_reading_request request = {path, 0, bytes, NULL};
+        status = store_reading_enqueue(ingest->store, entry->instance_id, &request, error);
+        if (status != MITILOG_OK) {
+            ingest_reading_release(&ingest->reading, bytes);
+            break;
+        }
+        ingest_reading_push(&ingest->reading, entry->instance_id, entry->sop_instance_uid,
+                            entry->study_instance_uid, path, 0, bytes);
+        local.queued++;
+    }
+    store_reading_entries_free(entries, count);
+    ingest_flush(ingest);
+    if (counts != NULL) {
+        counts->queued += local.queued;
+        counts->not_kept += local.not_kept;
+        counts->no_profile += local.no_profile;
+        counts->queue_full += local.queue_full;
+    }
+    return status;
 }
 
 uint16_t ingest_store_handler(void *context, const dcm_received *object)

@@ -104,6 +104,18 @@ mitilog_status ingest_evaluate_day(store *store, const rules_policy *policy,
                                    const char *day, store_evaluation_counts *counts,
                                    mitilog_error *error);
 
+/* Backfill (mitilog rescore --read-pixels): queues for reading every
+ * stored ultrasound image and cine acquired between from and to (dates,
+ * NULL open) whose object is still at hand (retention full keeps it under
+ * objects/; an imported file where it was imported from) and whose device
+ * has an active profile, and waits until they are read. Counts (may be
+ * NULL) are added to. */
+typedef struct ingest_backfill_counts {
+    unsigned long queued, not_kept, no_profile, queue_full;
+} ingest_backfill_counts;
+mitilog_status ingest_read_stored(ingest *ingest, const char *from, const char *to,
+                                  ingest_backfill_counts *counts, mitilog_error *error);
+
 /* dcm_store_handler for the receiver: context is the ingest. */
 uint16_t ingest_store_handler(void *context, const dcm_received *object);
 

@@ -14,7 +14,9 @@
  * preset, shift and transducer are the first instance's.
  */
 #include "ingest/ingest_internal.h"
+#include "store/store_reading.h"
 
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
@@ -101,6 +103,8 @@ mitilog_status ingest_register_policy(store *st, const rules_policy *policy, mit
     };
     input.name = rules_policy_name(policy);
     status = store_register_policy(st, &input, error);
+    if (status == MITILOG_OK)
+        status = store_set_index_source(st, rules_policy_index_source(policy), error);
 done:
     free(texts);
     free(rules);
@@ -138,6 +142,57 @@ static store_finding *ingest_findings(const rules_result *result)
         };
     }
     return findings;
+}
+
+/* The rules' findings followed by one header_screen_mismatch finding per
+ * capture and index whose header and screen disagree beyond the screen's
+ * rounding (docs/policy.md): not a rule of the policy file, always on,
+ * since a device whose header does not match its display makes every
+ * header-based audit of it doubtful. *texts gets the strings the extra
+ * findings point to (3 per mismatch: uid list, assumptions, source). */
+static store_finding *ingest_findings_with_mismatches(const rules_result *result,
+                                                      const store_mismatch *mismatches,
+                                                      size_t mismatch_count, char ***texts)
+{
+    store_finding *base = ingest_findings(result);
+    if (base == NULL || mismatch_count == 0)
+        return base;
+    store_finding *all = realloc(base, (result->finding_count + mismatch_count) * sizeof *all);
+    *texts = calloc(3 * mismatch_count, sizeof **texts);
+    if (all == NULL || *texts == NULL) {
+        free(all != NULL ? all : base);
+        return NULL;
+    }
+    for (size_t i = 0; i < mismatch_count; i++) {
+        const store_mismatch *mm = &mismatches[i];
+        char assumptions[512], source[512];
+        snprintf(assumptions, sizeof assumptions,
+                 "header %s = %g; the screen showed %s (%d decimal%s); they differ by more "
+                 "than the screen's rounding",
+                 mm->index, mm->header_value, mm->screen_text ? mm->screen_text : "?",
+                 mm->decimals, mm->decimals == 1 ? "" : "s");
+        snprintf(source, sizeof source,
+                 "device of screen profile %s version %d%s%s: its DICOM header does not match "
+                 "its display; check the device's software with its vendor",
+                 mm->profile_key ? mm->profile_key : "?", mm->profile_version,
+                 mm->room && mm->room[0] ? ", room " : "", mm->room ? mm->room : "");
+        (*texts)[3 * i] = strdup(mm->sop_instance_uid ? mm->sop_instance_uid : "");
+        (*texts)[3 * i + 1] = strdup(assumptions);
+        (*texts)[3 * i + 2] = strdup(source);
+        all[result->finding_count + i] = (store_finding){
+            .rule_id = "header_screen_mismatch",
+            .severity = "warning",
+            .quantity = mm->index,
+            .unit = "",
+            .measured = mm->screen_value,
+            .has_limit = 0,
+            .instance_uids = (const char *const *)&(*texts)[3 * i],
+            .instance_count = 1,
+            .assumptions = (*texts)[3 * i + 1],
+            .source = (*texts)[3 * i + 2],
+        };
+    }
+    return all;
 }
 
 mitilog_status ingest_evaluate_day(store *st, const rules_policy *policy, const char *day,
@@ -210,6 +265,9 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
     ext_timeline_entry *entries = calloc(n ? n : 1, sizeof *entries);
     rules_result result = {0};
     store_finding *findings = NULL;
+    store_mismatch *mismatches = NULL;
+    size_t mismatch_count = 0;
+    char **mismatch_texts = NULL;
     if (captures == NULL || entries == NULL) {
         status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
         goto done;
@@ -247,7 +305,11 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
     status = rules_evaluate(policy, &input, &result, error);
     if (status != MITILOG_OK)
         goto done;
-    findings = ingest_findings(&result);
+    status = store_load_mismatches(st, study, &mismatches, &mismatch_count, error);
+    if (status != MITILOG_OK)
+        goto done;
+    findings = ingest_findings_with_mismatches(&result, mismatches, mismatch_count,
+                                               &mismatch_texts);
     if (findings == NULL) {
         status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
         goto done;
@@ -268,7 +330,7 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
         .last_received_at = context.last_received_at,
         .closed = input.closed,
         .findings = findings,
-        .finding_count = result.finding_count,
+        .finding_count = result.finding_count + mismatch_count,
         .governing_index = ext_index_name(m->governing_index),
         .has_max_governing = m->index_reported[m->governing_index],
         .max_governing = m->max_index[m->governing_index],
@@ -289,6 +351,10 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
             ingest_dwell_thresholds[k]);
     status = store_put_evaluation(st, &evaluation, counts, error);
 done:
+    for (size_t i = 0; mismatch_texts != NULL && i < 3 * mismatch_count; i++)
+        free(mismatch_texts[i]);
+    free(mismatch_texts);
+    store_mismatches_free(mismatches, mismatch_count);
     free(findings);
     rules_result_free(&result);
     free(entries);

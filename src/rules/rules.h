@@ -179,6 +179,10 @@ const char *rules_policy_normalised(const rules_policy *policy);
 
 double rules_policy_closed_after_idle_minutes(const rules_policy *policy);
 double rules_policy_gap_cap_seconds(const rules_policy *policy);
+/* Which value of an index the rules use when the header has one and the
+ * screen showed one too: "screen" (the default) or "header" ([policy]
+ * index_source; docs/policy.md). */
+const char *rules_policy_index_source(const rules_policy *policy);
 
 /* Iteration for the HTTP layer; pointers stay valid while the policy does. */
 typedef struct rules_setting {

@@ -90,6 +90,7 @@ struct rules_policy {
     char *name;
     double closed_after_idle_minutes;
     double gap_cap_seconds;
+    int index_source_header;  /* [policy] index_source = header */
     char *normalised;
     char version[HASH_HEX_SIZE];
 };

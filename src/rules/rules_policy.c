@@ -254,9 +254,12 @@ mitilog_status rules_policy_finish(rules_policy *policy, mitilog_error *error)
     char line[400], number[64], number2[64];
     rules_format_number(policy->closed_after_idle_minutes, number, sizeof number);
     rules_format_number(policy->gap_cap_seconds, number2, sizeof number2);
+    /* index_source appears only when it is not the default, so that the
+     * versions of policies written before it existed do not change. */
     snprintf(line, sizeof line,
-             "[policy]\nclosed_after_idle_minutes = %s\ngap_cap_seconds = %s\nname = %s\n", number,
-             number2, policy->name ? policy->name : "");
+             "[policy]\nclosed_after_idle_minutes = %s\ngap_cap_seconds = %s\n%sname = %s\n",
+             number, number2, policy->index_source_header ? "index_source = header\n" : "",
+             policy->name ? policy->name : "");
     int failed = append_text(&text, &length, &capacity, line);
     for (size_t i = 0; i < policy->rule_count && !failed; i++) {
         rules_rule *rule = &policy->rules[i];
@@ -296,6 +299,11 @@ const char *rules_policy_normalised(const rules_policy *policy)
 double rules_policy_closed_after_idle_minutes(const rules_policy *policy)
 {
     return policy->closed_after_idle_minutes;
+}
+
+const char *rules_policy_index_source(const rules_policy *policy)
+{
+    return policy != NULL && policy->index_source_header ? "header" : "screen";
 }
 
 double rules_policy_gap_cap_seconds(const rules_policy *policy)

@@ -392,6 +392,14 @@ static int handle_policy_key(parse_state *state, const char *section, const char
             return fail(state, MITILOG_ERROR_MEMORY, section, key, "out of memory");
         return 1;
     }
+    if (strcmp(key, "index_source") == 0) {
+        if (strcmp(value, "screen") != 0 && strcmp(value, "header") != 0)
+            return fail(state, MITILOG_ERROR_INVALID, section, key,
+                        "must be screen (the value the screen showed wins when the header "
+                        "has one too) or header");
+        policy->index_source_header = strcmp(value, "header") == 0;
+        return 1;
+    }
     double *target = NULL;
     double maximum = 0;
     if (strcmp(key, "closed_after_idle_minutes") == 0) {

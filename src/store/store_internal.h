@@ -21,6 +21,9 @@
 typedef struct store_request {
     const ext_record *record;           /* exactly one of record ...     */
     const store_bytes *header;          /* record's header copy, or NULL */
+    const struct store_reading_request *reading; /* record's pixels, or NULL */
+    long long instance_id;              /* record: the row written       */
+    char *stale_spool;                  /* record: malloc'd, or NULL     */
     const store_rejection *rejection;   /* ... rejection ...             */
     const store_exam *exam;             /* ... exam ...                  */
     const store_evaluation *evaluation; /* ... evaluation ...            */
@@ -153,6 +156,14 @@ void store_write_drain(store *store);
 mitilog_status store_write_context(store *store, const ext_record *record,
                                    const store_bytes *header,
                                    sqlite3_int64 instance_id,
+                                   mitilog_error *error);
+/* store_reading.c: an instance's queue row and reading state, after its
+ * row; inside the batch's transaction. replaced: the row existed before,
+ * so its older queue row and reading are dropped first (a new row has
+ * none: two statements saved per object). *stale_spool: as in
+ * store_put_instance_read(). */
+mitilog_status store_write_reading(store *store, const struct store_reading_request *reading,
+                                   sqlite3_int64 instance_id, int replaced, char **stale_spool,
                                    mitilog_error *error);
 /* store_write_exam.c: one exam with its timeline and mode maxima. */
 mitilog_status store_write_exam(store *store, const store_exam *exam,

@@ -16,10 +16,13 @@
  * is rolled back so that the next batch starts clean.
  */
 #include "store/store_internal.h"
+#include "store/store_reading.h"
 
 #include <math.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "extract/ext_text.h"
 #include "util/log.h"
@@ -375,6 +378,14 @@ static mitilog_status store_write_instance(store *st,
         else
             status = store_write_context(st, record, request->header,
                                          instance_id, &request->error);
+        request->instance_id = instance_id;
+        if (status == MITILOG_OK) {
+            free(request->stale_spool);
+            request->stale_spool = NULL;
+            status = store_write_reading(st, request->reading, instance_id,
+                                         request->outcome == STORE_PUT_REPLACED,
+                                         &request->stale_spool, &request->error);
+        }
     }
     sqlite3_reset(statement);
     sqlite3_clear_bindings(statement);
@@ -637,6 +648,40 @@ mitilog_status store_put_instance(store *st, const ext_record *record,
     status = store_submit(st, &request, error);
     if (status == MITILOG_OK && outcome != NULL)
         *outcome = request.outcome;
+    if (status == MITILOG_OK && request.stale_spool != NULL)
+        unlink(request.stale_spool); /* an older spool copy nobody will read */
+    free(request.stale_spool);
+    return status;
+}
+
+mitilog_status store_put_instance_read(store *st, const ext_record *record,
+                                       const store_bytes *header,
+                                       const store_reading_request *reading,
+                                       store_put_outcome *outcome,
+                                       long long *instance_id, char **stale_spool,
+                                       mitilog_error *error)
+{
+    if (st == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no store");
+    if (stale_spool != NULL)
+        *stale_spool = NULL;
+    mitilog_status status = store_check_record(record, error);
+    if (status != MITILOG_OK)
+        return status;
+    if (header != NULL && (header->data == NULL || header->size == 0))
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "%s: empty header copy",
+                                 record->sop_instance_uid);
+    store_request request = {.record = record, .header = header, .reading = reading};
+    status = store_submit(st, &request, error);
+    if (status == MITILOG_OK && outcome != NULL)
+        *outcome = request.outcome;
+    if (status == MITILOG_OK && instance_id != NULL)
+        *instance_id = request.instance_id;
+    if (stale_spool != NULL && status == MITILOG_OK)
+        *stale_spool = request.stale_spool;
+    else
+        free(request.stale_spool);
     return status;
 }
 

@@ -1,0 +1,2 @@
+-- An instance (re)stored: its older pixel reading goes. ?1 instance id.
+DELETE FROM screen_readings WHERE instance_id = ?1;
