@@ -13,6 +13,7 @@ const PAGES = [
   ['presets.html', 'Presets over time'],
   ['policy.html', 'Policy'],
   ['status.html', 'Ingest status'],
+  ['devices.html', 'Devices'],
 ];
 
 /* el('td', {class: 'n'}, 'text', child...) */

@@ -13,8 +13,10 @@
  *                     each reading and the CPU time of reading per frame
  *                     (bench/screen.py)
  *
- * Frames are binary PGM files (P5, 8-bit grey): DCMTK's dcmj2pnm writes
- * them from any DICOM image ("dcmj2pnm --write-8-bit-pnm --frame N"). */
+ * Frames are DICOM images (the first frame, decoded by the shim; the
+ * indices in the header are its values) or binary PGM files (P5, 8-bit
+ * grey), which DCMTK's dcmj2pnm writes
+ * ("dcmj2pnm --write-8-bit-pnm --frame N"). */
 #include <ctype.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -23,6 +25,8 @@
 
 #include "cli/cli_options.h"
 #include "cli/commands.h"
+#include "dicom/dcm.h"
+#include "extract/ext.h"
 #include "screen/screen.h"
 #include "store/store.h"
 
@@ -30,16 +34,94 @@ enum { DEVICE_FRAMES_MAX = 64, DEVICE_REPORT_SIZE = 4096 };
 
 typedef struct device_frame {
     char *path;
-    unsigned char *file;    /* the whole PGM file, kept for the database */
+    unsigned char *file;    /* the frame as a PGM file, kept for the database */
     size_t file_size;
     screen_example example; /* image.grey points into file */
+    int from_header;        /* a DICOM file: truth holds its header values */
+    char *manufacturer, *model_name, *software_versions; /* DICOM only */
 } device_frame;
 
 static void frame_free(device_frame *frame)
 {
     free(frame->path);
     free(frame->file);
+    free(frame->manufacturer);
+    free(frame->model_name);
+    free(frame->software_versions);
     memset(frame, 0, sizeof *frame);
+}
+
+static char *copy_or_null(const char *text)
+{
+    return text != NULL ? strdup(text) : NULL;
+}
+
+/* The first frame of a DICOM image, decoded by the shim, as a PGM file in
+ * frame; the indices its header holds become the frame's truth. */
+static int frame_load_dicom(const char *path, device_frame *frame, char *why,
+                            size_t why_size)
+{
+    dcm_object *object = NULL;
+    dcm_facts facts;
+    dcm_frame pixels;
+    mitilog_error error = {{0}};
+    memset(&facts, 0, sizeof facts);
+    memset(&pixels, 0, sizeof pixels);
+    int result = -1;
+    if (dcm_object_load(path, &object, &error) != MITILOG_OK ||
+        dcm_object_facts(object, 0, &facts, &error) != MITILOG_OK ||
+        dcm_object_frame(object, 0, &pixels, &error) != MITILOG_OK) {
+        snprintf(why, why_size, "%s is neither an 8-bit binary PGM file nor a DICOM image "
+                                "whose first frame decodes: %.300s", path, error.text);
+        goto done;
+    }
+    char header[64];
+    int header_length = snprintf(header, sizeof header, "P5\n%d %d\n255\n", pixels.width,
+                                 pixels.height);
+    size_t size = (size_t)header_length + (size_t)pixels.width * (size_t)pixels.height;
+    frame->file = malloc(size);
+    frame->path = strdup(path);
+    if (frame->file == NULL || frame->path == NULL) {
+        snprintf(why, why_size, "out of memory reading %s", path);
+        goto done;
+    }
+    memcpy(frame->file, header, (size_t)header_length);
+    memcpy(frame->file + header_length, pixels.grey,
+           (size_t)pixels.width * (size_t)pixels.height);
+    frame->file_size = size;
+    frame->example.image = (screen_image){.width = pixels.width, .height = pixels.height,
+                                          .stride = (size_t)pixels.width,
+                                          .grey = frame->file + header_length};
+    frame->from_header = 1;
+    frame->manufacturer = copy_or_null(facts.values[DCM_ATTRIBUTE_MANUFACTURER]);
+    frame->model_name = copy_or_null(facts.values[DCM_ATTRIBUTE_MANUFACTURER_MODEL_NAME]);
+    frame->software_versions = copy_or_null(facts.values[DCM_ATTRIBUTE_SOFTWARE_VERSIONS]);
+    static const int attributes[EXT_INDEX_COUNT] = {
+        DCM_ATTRIBUTE_MECHANICAL_INDEX,        DCM_ATTRIBUTE_SOFT_TISSUE_THERMAL_INDEX,
+        DCM_ATTRIBUTE_BONE_THERMAL_INDEX,      DCM_ATTRIBUTE_CRANIAL_THERMAL_INDEX,
+        DCM_ATTRIBUTE_SOFT_TISSUE_FOCUS_THERMAL_INDEX,
+        DCM_ATTRIBUTE_SOFT_TISSUE_SURFACE_THERMAL_INDEX};
+    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+        ext_number number = ext_parse_decimal_string(facts.values[attributes[i]]);
+        if (number.status == EXT_VALUE_OK && number.value >= 0.0 && number.value < 100.0) {
+            /* The header's value, shown on the screen with one or two
+             * decimals: learning tries both. */
+            frame->example.truth[i].status = SCREEN_VALUE_READ;
+            frame->example.truth[i].value = number.value;
+        }
+    }
+    result = 0;
+done:
+    dcm_frame_free(&pixels);
+    dcm_facts_free(&facts);
+    dcm_object_free(object);
+    if (result != 0) {
+        free(frame->file);
+        free(frame->path);
+        frame->file = NULL;
+        frame->path = NULL;
+    }
+    return result;
 }
 
 /* Skips whitespace and # comments of a PGM header. */
@@ -102,7 +184,11 @@ static int frame_load(const char *path, device_frame *frame, char *why, size_t w
     }
     long width = -1, height = -1, maximum = -1;
     size_t at = 2;
-    if (size > 2 && data[0] == 'P' && data[1] == '5') {
+    if (size < 2 || data[0] != 'P' || data[1] != '5') {
+        free(data);
+        return frame_load_dicom(path, frame, why, why_size);
+    }
+    {
         at = pgm_number(data, size, at, &width);
         at = pgm_number(data, size, at, &height);
         at = pgm_number(data, size, at, &maximum);
@@ -112,8 +198,7 @@ static int frame_load(const char *path, device_frame *frame, char *why, size_t w
         at + (size_t)width * (size_t)height > size) {
         free(data);
         snprintf(why, why_size,
-                 "%s is not an 8-bit binary PGM file; convert a DICOM image with "
-                 "'dcmj2pnm --write-8-bit-pnm FILE OUT.pgm'", path);
+                 "%s is not an 8-bit binary PGM file (P5, maximum 255)", path);
         return -1;
     }
     frame->path = strdup(path);
@@ -287,23 +372,27 @@ static int device_usage(FILE *out)
 {
     fprintf(out,
             "usage: mitilog device learn [--config FILE] --key KEY [--print]\n"
-            "                            --value FILE:MI=1.2,TIS=0.4 ... FILE...\n"
+            "                            [--manufacturer M] [--model M] [--software S]\n"
+            "                            [--value FILE:MI=1.2,TIS=0.4 ...] FILE...\n"
             "       mitilog device show [--config FILE] KEY\n"
             "       mitilog device list [--config FILE]\n"
             "       mitilog device activate [--config FILE] [--version N] [--by NAME] KEY\n"
             "       mitilog device retire [--config FILE] KEY\n"
             "       mitilog device bench MANIFEST\n"
             "Sets up the screen profiles of devices that draw the indices into the image\n"
-            "(docs/screen-reading.md). Frames are 8-bit binary PGM files (dcmj2pnm\n"
-            "--write-8-bit-pnm writes them from DICOM). learn needs every digit and the\n"
-            "point among the values of its frames; the profile it stores is 'proposed'\n"
-            "until activated.\n");
+            "(docs/screen-reading.md). A FILE is a DICOM image (its first frame; the\n"
+            "indices in its header are its values and its Manufacturer, Model Name and\n"
+            "Software Versions name the device) or an 8-bit binary PGM file. --value\n"
+            "gives the values a frame's screen shows (replacing its header's). learn\n"
+            "needs every digit and the point among the values; the profile it stores is\n"
+            "'proposed' until activated.\n");
     return out == stdout ? EXIT_STATUS_SUCCESS : EXIT_STATUS_USAGE;
 }
 
 static int device_learn(int argc, char **argv, store **st_out, const char *config_path)
 {
-    const char *key = NULL;
+    const char *key = NULL, *manufacturer = NULL, *model_name = NULL,
+               *software_versions = NULL;
     int print_only = 0;
     device_frame frames[DEVICE_FRAMES_MAX];
     const char *values_for[DEVICE_FRAMES_MAX] = {0};
@@ -315,6 +404,12 @@ static int device_learn(int argc, char **argv, store **st_out, const char *confi
             key = argv[++i];
         else if (strcmp(argv[i], "--print") == 0)
             print_only = 1;
+        else if (strcmp(argv[i], "--manufacturer") == 0 && i + 1 < argc)
+            manufacturer = argv[++i];
+        else if (strcmp(argv[i], "--model") == 0 && i + 1 < argc)
+            model_name = argv[++i];
+        else if (strcmp(argv[i], "--software") == 0 && i + 1 < argc)
+            software_versions = argv[++i];
         else if (strcmp(argv[i], "--config") == 0 && i + 1 < argc)
             i++;
         else if (strcmp(argv[i], "--value") == 0 && i + 1 < argc &&
@@ -345,6 +440,8 @@ static int device_learn(int argc, char **argv, store **st_out, const char *confi
                 ;
         }
         char why[512] = "";
+        if (colon != NULL && f < frame_count) /* typed values replace the header's */
+            memset(frames[f].example.truth, 0, sizeof frames[f].example.truth);
         if (colon == NULL || f == frame_count ||
             parse_values(colon + 1, frames[f].example.truth, why, sizeof why) != 0) {
             fprintf(stderr, "mitilog device learn: --value %s: %s\n", value_options[v],
@@ -353,12 +450,25 @@ static int device_learn(int argc, char **argv, store **st_out, const char *confi
         }
         values_for[f] = colon + 1;
     }
+    screen_device device = {.manufacturer = manufacturer, .model_name = model_name,
+                            .software_versions = software_versions};
     for (size_t f = 0; f < frame_count; f++) {
-        if (values_for[f] == NULL) {
-            fprintf(stderr, "mitilog device learn: no values for %s: give --value "
+        int header_values = 0;
+        for (int i = 0; i < EXT_INDEX_COUNT; i++)
+            header_values |= frames[f].example.truth[i].status == SCREEN_VALUE_READ;
+        if (values_for[f] == NULL && !(frames[f].from_header && header_values)) {
+            fprintf(stderr, "mitilog device learn: no values for %s%s: give --value "
                             "%s:MI=1.2,TIS=0.4 as its screen shows them\n",
-                    frames[f].path, frames[f].path);
+                    frames[f].path, frames[f].from_header ? " (its header has none)" : "",
+                    frames[f].path);
             goto done;
+        }
+        /* The device as its DICOM files name it, unless given. */
+        if (frames[f].from_header) {
+            if (device.manufacturer == NULL) device.manufacturer = frames[f].manufacturer;
+            if (device.model_name == NULL) device.model_name = frames[f].model_name;
+            if (device.software_versions == NULL)
+                device.software_versions = frames[f].software_versions;
         }
     }
     screen_example examples[DEVICE_FRAMES_MAX];
@@ -368,7 +478,7 @@ static int device_learn(int argc, char **argv, store **st_out, const char *confi
     mitilog_error error;
     screen_profile *profile = NULL;
     exit_status = EXIT_STATUS_FAILURE;
-    if (screen_learn(NULL, key, examples, frame_count, &profile, report, sizeof report,
+    if (screen_learn(&device, key, examples, frame_count, &profile, report, sizeof report,
                      &error) != MITILOG_OK) {
         fprintf(stderr, "mitilog device learn: %s\n%s", error.text, report);
         goto done;
@@ -388,12 +498,16 @@ static int device_learn(int argc, char **argv, store **st_out, const char *confi
         int version = 0;
         if (cli_load_config(config_path, &config) != 0) {
             exit_status = EXIT_STATUS_USAGE;
-        } else if (store_open(config.database_path, (int)config.busy_timeout_ms, &st,
+        } else if (cli_prepare_data_directory(&config, &error) != 0 ||
+                   store_open(config.database_path, (int)config.busy_timeout_ms, &st,
                               &error) != MITILOG_OK) {
             fprintf(stderr, "mitilog device learn: %s\n", error.text);
         } else {
             store_screen_profile_new row = {
-                .key = key, .rows = examples[0].image.height,
+                .key = key, .manufacturer = device.manufacturer,
+                .model_name = device.model_name,
+                .software_versions = device.software_versions,
+                .rows = examples[0].image.height,
                 .columns = examples[0].image.width, .text = text, .report = report,
                 .example = frames[0].file, .example_size = frames[0].file_size};
             if (store_screen_profile_put(st, &row, &version, &error) != MITILOG_OK) {
@@ -459,9 +573,10 @@ int command_device(int argc, char **argv)
     int exit_status = EXIT_STATUS_FAILURE;
     mitilog_error error = {{0}};
     store *st = NULL;
-    if (store_open(config.database_path, (int)config.busy_timeout_ms, &st, &error) !=
-        MITILOG_OK) {
-        fprintf(stderr, "mitilog device %s: %s\n", action, error.text);
+    if (cli_prepare_data_directory(&config, &error) != 0 ||
+        store_open(config.database_path, (int)config.busy_timeout_ms, &st, &error) !=
+            MITILOG_OK) {
+        /* the reason is printed below */
     } else if (strcmp(action, "list") == 0) {
         char *json = NULL;
         if (store_screen_profiles_json(st, &json, &error) == MITILOG_OK) {

@@ -57,6 +57,11 @@ int http_route_findings(http_server *server, struct MHD_Connection *connection,
 int http_route_stats(http_server *server, struct MHD_Connection *connection,
                      const char *url, http_reply *reply);
 
+/* http_routes_devices.c: /api/v1/devices and /api/v1/devices/example;
+ * 0 if url is neither. */
+int http_route_devices(http_server *server, struct MHD_Connection *connection,
+                       const char *url, http_reply *reply);
+
 /* http_static.c: serves url from web_root; 0 if there is no such file. */
 int http_route_static(const http_server *server, const char *url,
                       http_reply *reply);

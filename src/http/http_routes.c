@@ -185,6 +185,8 @@ int http_route_api(http_server *server, struct MHD_Connection *connection,
         return 1;
     else if (http_route_stats(server, connection, url, reply))
         return 1;
+    else if (http_route_devices(server, connection, url, reply))
+        return 1;
     else if (strncmp(url, "/api/", 5) == 0 || strcmp(url, "/api") == 0)
         *reply = http_error_reply(server, MHD_HTTP_NOT_FOUND,
                                   "not found: %s", url);

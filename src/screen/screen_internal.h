@@ -52,6 +52,7 @@ struct screen_profile {
     int rows, columns;
     int band_above, band_below;  /* rows of the text line around baseline */
     int ink_threshold;           /* ink above this is text */
+    int split_width;             /* a wider run is characters touching */
     double glyph_threshold;      /* least correlation of a character */
     double glyph_margin;         /* over the next-best other character */
     double label_threshold;      /* least correlation of a label */
@@ -97,6 +98,12 @@ typedef struct screen_blob {
 size_t screen_segment(const screen_image *image, const screen_band *band, int threshold,
                       int left, int right, screen_blob *blobs, size_t max,
                       int *touches_end);
+
+/* Splits every run wider than split_width at its column of least ink
+ * (characters drawn touching), keeping at most max runs in blobs; returns
+ * the new count. */
+size_t screen_split_wide(const screen_image *image, const screen_band *band, int threshold,
+                         screen_blob *blobs, size_t count, size_t max, int split_width);
 
 /* Normalised cross-correlation of template t placed at (x, top of band)
  * against the frame's ink; -1 when the window leaves the frame. */

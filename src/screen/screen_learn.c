@@ -265,9 +265,35 @@ static mitilog_status find_lines(const screen_image *image, int threshold, learn
         line->band.background = screen_median(image, line->band.top, line->band.bottom,
                                                line->left - 2, line->right + 2);
         int touches = 0;
-        line->blob_count = screen_segment(image, &line->band, threshold, line->left - 2,
+        int line_threshold = threshold;
+        if (line_threshold == 0) {
+            /* Before the text's own contrast is known: half the ink of the
+             * line's strongest twentieth. */
+            unsigned histogram[256] = {0};
+            unsigned total = 0, seen = 0;
+            for (int y = line->band.top; y <= line->band.bottom; y++) {
+                for (int x = line->left; x <= line->right; x++) {
+                    histogram[screen_ink(image, line->band.background, x, y)]++;
+                    total++;
+                }
+            }
+            line_threshold = LEARN_FIRST_THRESHOLD;
+            for (int level = 255; level >= 0; level--) {
+                seen += histogram[level];
+                if (seen * 20 >= total) {
+                    if (level / 2 > line_threshold)
+                        line_threshold = level / 2;
+                    break;
+                }
+            }
+        }
+        line->blob_count = screen_segment(image, &line->band, line_threshold, line->left - 2,
                                           line->right + 2, line->blobs, LEARN_BLOB_MAX,
                                           &touches);
+        /* No digit is wider than the line is high. */
+        line->blob_count = screen_split_wide(image, &line->band, line_threshold, line->blobs,
+                                             line->blob_count, LEARN_BLOB_MAX,
+                                             line->height * 95 / 100);
         lines[kept++] = *line;
     }
     free(members);
@@ -560,6 +586,14 @@ static double assignment_penalty(learn_search *search)
                 penalty += (similarity - 0.75) * 4.0;
         }
     }
+    /* A label of another length than the index's usual one counts
+     * against the assignment, but characters drawn touching can make a
+     * label look shorter. */
+    for (size_t k = 0; k < search->index_count; k++) {
+        int p = search->current[k];
+        if (p >= 0 && !letters_fit(search->indices[k], search->places[p].letters))
+            penalty += 2.0;
+    }
     search->evaluations++;
     return penalty;
 }
@@ -672,7 +706,7 @@ static mitilog_status place_indices(const learn_frame *frames, const screen_exam
     for (size_t k = 0; k < search->index_count; k++) {
         int index = search->indices[k];
         for (size_t p = 0; p < place_count; p++) {
-            int fits = letters_fit(index, places[p].letters);
+            int fits = 1;
             for (size_t e = 0; e < count && fits; e++) {
                 const screen_value *truth = &examples[e].truth[index];
                 if (truth->status != SCREEN_VALUE_READ)
@@ -709,10 +743,8 @@ static mitilog_status place_indices(const learn_frame *frames, const screen_exam
         int p = search->best_assigned >= 0 ? search->best[k] : -1;
         learned[index] = 0;
         if (p < 0) {
-            report_add(report, "%s not learned: its value was not found next to a label of "
-                               "its kind (%s)\n",
-                       screen_index_label((ext_index)index),
-                       index == EXT_INDEX_MI ? "two letters" : "three letters");
+            report_add(report, "%s not learned: its value was not found next to a label\n",
+                       screen_index_label((ext_index)index));
             continue;
         }
         /* Another assignment explaining the digits nearly as well, with
@@ -840,10 +872,10 @@ static int verify(const screen_profile *profile, const screen_example *examples,
     return failures;
 }
 
-mitilog_status screen_learn(const screen_device *device, const char *profile_key,
-                            const screen_example *examples, size_t count,
-                            screen_profile **out, char *report_text, size_t report_size,
-                            mitilog_error *error)
+static mitilog_status learn_once(const screen_device *device, const char *profile_key,
+                                 const screen_example *examples, size_t count,
+                                 int contrast_percent, screen_profile **out,
+                                 char *report_text, size_t report_size, mitilog_error *error)
 {
     report_buffer report = {.text = report_text, .size = report_size};
     if (report_text != NULL && report_size > 0)
@@ -884,7 +916,7 @@ mitilog_status screen_learn(const screen_device *device, const char *profile_key
 
     /* Two passes: the first finds the values with a contrast every screen
      * has; the second segments with half the text's own contrast. */
-    int threshold = LEARN_FIRST_THRESHOLD;
+    int threshold = 0;
     int learned[EXT_INDEX_COUNT] = {0};
     for (int pass = 0; pass < 2; pass++) {
         report.length = 0;
@@ -964,7 +996,7 @@ mitilog_status screen_learn(const screen_device *device, const char *profile_key
         }
         if (ink_pixels == 0)
             break;
-        threshold = (int)(ink_sum / ink_pixels) * 60 / 100;
+        threshold = (int)(ink_sum / ink_pixels) * contrast_percent / 100;
         if (threshold < 16)
             threshold = 16;
     }
@@ -1010,7 +1042,7 @@ mitilog_status screen_learn(const screen_device *device, const char *profile_key
     if (learned_count == 0) {
         status = mitilog_error_set(error, MITILOG_ERROR_REFUSED,
                                    "no index could be learned from these examples: %s",
-                                   report.length ? report.text : "no value was given");
+                                   report.length ? "see the report" : "no value was given");
         goto done;
     }
     snprintf(profile->key, sizeof profile->key, "%s", profile_key);
@@ -1104,6 +1136,11 @@ mitilog_status screen_learn(const screen_device *device, const char *profile_key
         }
     }
 
+    for (size_t g = 0; g < profile->glyph_count; g++) {
+        if (profile->glyphs[g].character != '.' &&
+            profile->glyphs[g].shape.width + 2 > profile->split_width)
+            profile->split_width = profile->glyphs[g].shape.width + 2;
+    }
     /* Every digit and the point, or a digit never seen could pass for one
      * that was. */
     char missing[32] = "";
@@ -1156,4 +1193,44 @@ done:
     free(picks);
     screen_profile_free(profile);
     return status;
+}
+
+mitilog_status screen_learn(const screen_device *device, const char *profile_key,
+                            const screen_example *examples, size_t count,
+                            screen_profile **out, char *report_text, size_t report_size,
+                            mitilog_error *error)
+{
+    /* Text is cut into characters at a share of its own contrast: below
+     * half, thin strokes of small fonts hold together; above, bold and
+     * tight fonts come apart. The first share whose profile reads its
+     * examples back is kept; the report and reason are those of the
+     * first try when none does. */
+    static const int shares[] = {45, 60, 35};
+    mitilog_error first_error = {{0}};
+    char *first_report = report_text != NULL && report_size > 0 ? malloc(report_size) : NULL;
+    mitilog_status first_status = MITILOG_OK;
+    for (size_t i = 0; i < sizeof shares / sizeof shares[0]; i++) {
+        mitilog_error attempt_error = {{0}};
+        mitilog_status status = learn_once(device, profile_key, examples, count, shares[i],
+                                           out, report_text, report_size, &attempt_error);
+        if (status == MITILOG_OK || status != MITILOG_ERROR_REFUSED) {
+            if (status != MITILOG_OK && error != NULL)
+                *error = attempt_error;
+            free(first_report);
+            return status;
+        }
+        if (i == 0) {
+            first_error = attempt_error;
+            first_status = status;
+            if (first_report != NULL)
+                memcpy(first_report, report_text, report_size);
+        }
+    }
+    if (first_report != NULL) {
+        memcpy(report_text, first_report, report_size);
+        free(first_report);
+    }
+    if (error != NULL)
+        *error = first_error;
+    return first_status;
 }

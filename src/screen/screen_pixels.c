@@ -36,6 +36,17 @@ int screen_median(const screen_image *image, int top, int bottom, int left, int 
     return 255;
 }
 
+static int compare_blob_left(const void *a, const void *b)
+{
+    const screen_blob *x = a, *y = b;
+    return (x->left > y->left) - (x->left < y->left);
+}
+
+/* Characters are the connected parts (8-neighbours) of the pixels with
+ * ink above threshold; parts that share most of the narrower one's
+ * columns (a colon, the dot of an i, a thin stroke broken by the
+ * threshold) are one character. Column projections alone are not enough:
+ * bold and tight fonts let neighbouring characters share a column. */
 size_t screen_segment(const screen_image *image, const screen_band *band, int threshold,
                       int left, int right, screen_blob *blobs, size_t max,
                       int *touches_end)
@@ -45,39 +56,110 @@ size_t screen_segment(const screen_image *image, const screen_band *band, int th
     if (right >= image->width) right = image->width - 1;
     int top = band->top < 0 ? 0 : band->top;
     int bottom = band->bottom >= image->height ? image->height - 1 : band->bottom;
+    if (right < left || bottom < top || max == 0)
+        return 0;
+    int width = right - left + 1, height = bottom - top + 1;
+    size_t pixels = (size_t)width * (size_t)height;
+    enum { LOCAL_PIXELS = 16384, LOCAL_PARTS = 128 };
+    unsigned char local_mask[LOCAL_PIXELS];
+    int local_stack[LOCAL_PIXELS];
+    screen_blob local_parts[LOCAL_PARTS];
+    unsigned char *mask = pixels <= LOCAL_PIXELS ? local_mask : malloc(pixels);
+    int *stack = pixels <= LOCAL_PIXELS ? local_stack : malloc(pixels * sizeof *stack);
+    size_t part_capacity = LOCAL_PARTS, part_count = 0;
+    screen_blob *parts = local_parts;
     size_t count = 0;
-    int in_run = 0;
-    for (int x = left; x <= right; x++) {
-        int first = -1, last = -1;
-        for (int y = top; y <= bottom; y++) {
-            if (screen_ink(image, band->background, x, y) > threshold) {
-                if (first < 0) first = y;
-                last = y;
+    if (mask == NULL || stack == NULL)
+        goto done;
+    for (int y = 0; y < height; y++) {
+        for (int x = 0; x < width; x++)
+            mask[(size_t)y * (size_t)width + (size_t)x] =
+                screen_ink(image, band->background, left + x, top + y) > threshold;
+    }
+    for (size_t start = 0; start < pixels; start++) {
+        if (mask[start] != 1)
+            continue;
+        int sx = (int)(start % (size_t)width), sy = (int)(start / (size_t)width);
+        screen_blob part = {.left = sx, .right = sx, .top = sy, .bottom = sy};
+        size_t depth = 0;
+        stack[depth++] = (int)start;
+        mask[start] = 2;
+        while (depth > 0) {
+            int p = stack[--depth];
+            int px = p % width, py = p / width;
+            if (px < part.left) part.left = px;
+            if (px > part.right) part.right = px;
+            if (py < part.top) part.top = py;
+            if (py > part.bottom) part.bottom = py;
+            const int neighbours[8][2] = {{1, 0}, {-1, 0}, {0, 1},  {0, -1},
+                                          {1, 1}, {-1, 1}, {1, -1}, {-1, -1}};
+            for (int n = 0; n < 8; n++) {
+                int nx = px + neighbours[n][0], ny = py + neighbours[n][1];
+                if (nx < 0 || ny < 0 || nx >= width || ny >= height)
+                    continue;
+                size_t q = (size_t)ny * (size_t)width + (size_t)nx;
+                if (mask[q] == 1) {
+                    mask[q] = 2;
+                    stack[depth++] = (int)q;
+                }
             }
         }
-        if (first >= 0) {
-            if (!in_run) {
-                if (count == max) {
-                    /* More runs than asked for: the caller only wanted the
-                     * first max; what follows is not its business. */
-                    return count;
-                }
-                blobs[count].left = x;
-                blobs[count].top = first;
-                blobs[count].bottom = last;
-                count++;
-                in_run = 1;
+        if (part_count == part_capacity) {
+            size_t grown = part_capacity * 2;
+            screen_blob *bigger = parts == local_parts ? malloc(grown * sizeof *bigger)
+                                                       : realloc(parts, grown * sizeof *bigger);
+            if (bigger == NULL)
+                goto done;
+            if (parts == local_parts)
+                memcpy(bigger, local_parts, sizeof local_parts);
+            parts = bigger;
+            part_capacity = grown;
+        }
+        part.left += left;
+        part.right += left;
+        part.top += top;
+        part.bottom += top;
+        parts[part_count++] = part;
+    }
+    qsort(parts, part_count, sizeof *parts, compare_blob_left);
+    /* Parts sharing at least half of the narrower one's columns. */
+    for (size_t i = 0; i < part_count; i++) {
+        screen_blob *a = &parts[i];
+        if (a->left > a->right)
+            continue; /* merged away */
+        for (size_t j = i + 1; j < part_count && parts[j].left <= a->right; j++) {
+            screen_blob *b = &parts[j];
+            if (b->left > b->right)
+                continue;
+            int low = a->left > b->left ? a->left : b->left;
+            int high = a->right < b->right ? a->right : b->right;
+            int narrow = a->right - a->left < b->right - b->left ? a->right - a->left + 1
+                                                                 : b->right - b->left + 1;
+            if ((high - low + 1) * 2 >= narrow) {
+                if (b->left < a->left) a->left = b->left;
+                if (b->right > a->right) a->right = b->right;
+                if (b->top < a->top) a->top = b->top;
+                if (b->bottom > a->bottom) a->bottom = b->bottom;
+                b->left = 1;
+                b->right = 0;
             }
-            screen_blob *blob = &blobs[count - 1];
-            blob->right = x;
-            if (first < blob->top) blob->top = first;
-            if (last > blob->bottom) blob->bottom = last;
-            if (x == right)
-                *touches_end = 1;
-        } else {
-            in_run = 0;
         }
     }
+    for (size_t i = 0; i < part_count; i++) {
+        if (parts[i].left > parts[i].right)
+            continue;
+        if (parts[i].right == right)
+            *touches_end = 1;
+        if (count < max)
+            blobs[count++] = parts[i];
+    }
+done:
+    if (mask != local_mask)
+        free(mask);
+    if (stack != local_stack)
+        free(stack);
+    if (parts != local_parts)
+        free(parts);
     return count;
 }
 
@@ -125,3 +207,57 @@ int screen_cut(const screen_image *image, int background, int top, int bottom, i
     screen_template_set(t, width, height, ink);
     return 0;
 }
+
+size_t screen_split_wide(const screen_image *image, const screen_band *band, int threshold,
+                         screen_blob *blobs, size_t count, size_t max, int split_width)
+{
+    if (split_width < 3)
+        return count;
+    for (size_t i = 0; i < count; i++) {
+        screen_blob *blob = &blobs[i];
+        int width = blob->right - blob->left + 1;
+        if (width <= split_width || count == max)
+            continue;
+        /* The column of least ink in the middle of the run. */
+        int from = blob->left + width * 3 / 10, to = blob->right - width * 3 / 10;
+        int cut = -1;
+        long least = -1;
+        for (int x = from; x <= to; x++) {
+            long sum = 0;
+            for (int y = blob->top; y <= blob->bottom; y++) {
+                int ink = screen_ink(image, band->background, x, y);
+                sum += ink > threshold ? ink : 0;
+            }
+            if (least < 0 || sum < least) {
+                least = sum;
+                cut = x;
+            }
+        }
+        if (cut <= blob->left || cut >= blob->right)
+            continue;
+        memmove(&blobs[i + 2], &blobs[i + 1], (count - i - 1) * sizeof *blobs);
+        count++;
+        screen_blob right_part = {.left = cut + 1, .right = blob->right};
+        blob->right = cut - 1 >= blob->left ? cut - 1 : blob->left;
+        screen_blob *parts[2] = {blob, &right_part};
+        for (int p = 0; p < 2; p++) {
+            int top = -1, bottom = -1;
+            for (int y = band->top < 0 ? 0 : band->top;
+                 y <= band->bottom && y < image->height; y++) {
+                for (int x = parts[p]->left; x <= parts[p]->right; x++) {
+                    if (screen_ink(image, band->background, x, y) > threshold) {
+                        if (top < 0) top = y;
+                        bottom = y;
+                        break;
+                    }
+                }
+            }
+            parts[p]->top = top < 0 ? blob->top : top;
+            parts[p]->bottom = bottom < 0 ? blob->bottom : bottom;
+        }
+        blobs[i + 1] = right_part;
+        i--; /* the left part may still be too wide */
+    }
+    return count;
+}
+

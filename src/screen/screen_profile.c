@@ -7,7 +7,7 @@
  *   mitilog-screen-profile 1
  *   key <rest of line>              version N
  *   manufacturer / model_name / software_versions <rest of line, may be empty>
- *   rows R   columns C   band ABOVE BELOW   ink_threshold T
+ *   rows R   columns C   band ABOVE BELOW   ink_threshold T   split_width W
  *   glyph_threshold F   glyph_margin F   label_threshold F
  *   slot NAME not_shown
  *   slot NAME LABEL_X BASELINE DECIMALS GAP_MAX STOP_GAP SPAN LABEL_TEXT
@@ -185,9 +185,9 @@ mitilog_status screen_profile_to_text(const screen_profile *profile, char **text
     append(&buffer, "key %s\nversion %d\n", profile->key, profile->version);
     append(&buffer, "manufacturer %s\nmodel_name %s\nsoftware_versions %s\n",
            profile->manufacturer, profile->model_name, profile->software_versions);
-    append(&buffer, "rows %d\ncolumns %d\nband %d %d\nink_threshold %d\n", profile->rows,
-           profile->columns, profile->band_above, profile->band_below,
-           profile->ink_threshold);
+    append(&buffer, "rows %d\ncolumns %d\nband %d %d\nink_threshold %d\nsplit_width %d\n",
+           profile->rows, profile->columns, profile->band_above, profile->band_below,
+           profile->ink_threshold, profile->split_width);
     append(&buffer, "glyph_threshold %.3f\nglyph_margin %.3f\nlabel_threshold %.3f\n",
            profile->glyph_threshold, profile->glyph_margin, profile->label_threshold);
     for (int i = 0; i < EXT_INDEX_COUNT; i++) {
@@ -316,6 +316,10 @@ static int parse_line(screen_profile *profile, char *line, int line_number, int 
     } else if (strcmp(name, "ink_threshold") == 0) {
         if (sscanf(rest, "%d", &profile->ink_threshold) != 1 || profile->ink_threshold < 1 ||
             profile->ink_threshold > 254)
+            return -1;
+    } else if (strcmp(name, "split_width") == 0) {
+        if (sscanf(rest, "%d", &profile->split_width) != 1 || profile->split_width < 0 ||
+            profile->split_width > 512)
             return -1;
     } else if (strcmp(name, "glyph_threshold") == 0 || strcmp(name, "glyph_margin") == 0 ||
                strcmp(name, "label_threshold") == 0) {

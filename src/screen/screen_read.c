@@ -217,6 +217,18 @@ static void read_slot(const screen_profile *profile, const screen_image *image, 
     screen_blob blobs[SCREEN_VALUE_CHARACTERS_MAX + 2];
     size_t count = screen_segment(image, &band, threshold, start, limit, blobs,
                                   sizeof blobs / sizeof blobs[0], &touches);
+    count = screen_split_wide(image, &band, threshold, blobs, count,
+                              sizeof blobs / sizeof blobs[0], profile->split_width);
+    /* A speck off the baseline (a pixel of the label's edge, noise) is no
+     * character: points sit on the baseline, digits are tall. */
+    int baseline = band.top + profile->band_above;
+    size_t kept = 0;
+    for (size_t i = 0; i < count; i++) {
+        int tall = (blobs[i].bottom - blobs[i].top + 1) * 4 > profile->band_above;
+        if (tall || blobs[i].bottom >= baseline - 1)
+            blobs[kept++] = blobs[i];
+    }
+    count = kept;
     if (count == 0 || blobs[0].left - start > slot->gap_max) {
         set_reason(value, "no value next to the label %s%s", name, "");
         return;
