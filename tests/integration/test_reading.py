@@ -357,3 +357,21 @@ def test_full_queue_stores_the_object_not_read_and_rescore_reads_it(daemon_facto
     status = daemon.get_json("/api/v1/ingest")
     assert status["reading"]["read"] == 4
     assert status["objects_per_hour"][0]["without_indices"] == 0
+
+
+def test_import_reads_the_pixels_before_it_reports(daemon_factory, tmp_path):
+    """`mitilog import` reads the pixels of the imported files and returns
+    once they are read (docs/reading.md, backfill)."""
+    daemon = daemon_factory("imported")
+    learn_profile(daemon, str(tmp_path))
+    folder = tmp_path / "import"
+    folder.mkdir()
+    drawn = dict(mi="1.5", tis="0.7", tib="2.1")
+    write_screen(str(folder), "imported_1", "pixels_only", drawn)
+    result = daemon.import_(str(folder))
+    assert result.returncode == 0, result.stderr
+    with daemon.db() as db:
+        rows = db.execute("SELECT state, mi, tis, tib FROM screen_readings").fetchall()
+        queued = db.execute("SELECT count(*) FROM reading_queue").fetchone()[0]
+    assert rows == [("read", 1.5, 0.7, 2.1)]
+    assert queued == 0
