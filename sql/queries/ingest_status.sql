@@ -68,7 +68,20 @@ SELECT json_object(
         'read', (SELECT count(*) FROM screen_readings WHERE state = 'read'),
         'not_read', (SELECT count(*) FROM screen_readings WHERE state = 'not_read'),
         'not_read_queue_full', (SELECT count(*) FROM screen_readings
-                                WHERE state = 'not_read' AND reason LIKE 'reading queue full%')),
+                                WHERE state = 'not_read' AND reason LIKE 'reading queue full%'),
+        -- per device (its screen profile): captures whose header and screen
+        -- disagree (current header_screen_mismatch findings, docs/policy.md)
+        'header_screen_mismatch_by_device', (SELECT json_group_array(json_object(
+                'profile_key', profile_key, 'station_names', json(stations),
+                'captures', captures, 'findings', findings))
+            FROM (SELECT r.profile_key, count(DISTINCT i.id) AS captures,
+                         count(*) AS findings,
+                         json_group_array(DISTINCT i.station_name) AS stations
+                  FROM findings f, json_each(f.instance_uids) u
+                  JOIN instances i ON i.sop_instance_uid = u.value
+                  JOIN screen_readings r ON r.instance_id = i.id
+                  WHERE f.rule_id = 'header_screen_mismatch' AND f.superseded = 0
+                  GROUP BY r.profile_key ORDER BY captures DESC, r.profile_key))),
     'objects_per_hour', (SELECT json_group_array(json_object(
         'hour', hour || ':00Z', 'objects', objects, 'without_indices', without_indices))
         FROM hours),

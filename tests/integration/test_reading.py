@@ -215,6 +215,9 @@ def test_disagreeing_device_is_a_finding(sent):
     assert mismatches[0]["quantity"] == "mi"
     assert mismatches[0]["measured_value"] == 1.3
     assert PROFILE_KEY in mismatches[0]["source"]
+    by_device = daemon.get_json("/api/v1/ingest")["reading"]["header_screen_mismatch_by_device"]
+    assert by_device == [dict(profile_key=PROFILE_KEY, station_names=["LARK-3"], captures=1,
+                              findings=1)]
 
 
 def test_timeline_carries_the_provenance(sent):
