@@ -73,6 +73,7 @@ mitilog_status dcm_initialise(int log_level, mitilog_error *error);
     X(PATIENT_AGE, 0x0010, 0x1010)                                         \
     X(BODY_PART_EXAMINED, 0x0018, 0x0015)                                  \
     X(FRAME_TIME, 0x0018, 0x1063)                                          \
+    X(FRAME_TIME_VECTOR, 0x0018, 0x1065)                                   \
     X(PROTOCOL_NAME, 0x0018, 0x1030)                                       \
     X(TRANSDUCER_DATA, 0x0018, 0x5010)                                     \
     X(MECHANICAL_INDEX, 0x0018, 0x5022)                                    \
