@@ -2,6 +2,7 @@
  * (recursively) through the same pipeline as network objects, several
  * files at once. */
 #define _XOPEN_SOURCE 700
+#include <errno.h>
 #include <ftw.h>
 #include <pthread.h>
 #include <stdio.h>
@@ -125,7 +126,8 @@ static void print_import_usage(FILE *out)
     fprintf(out, "usage: mitilog import [--config FILE] [--jobs N] PATH...\n"
                  "Reads DICOM files, and folders recursively, into the database. Prints one\n"
                  "summary line. Exit status: 0 all stored, 1 something was rejected or could\n"
-                 "not be stored (reasons on stderr and in the rejections table), 2 usage.\n"
+                 "not be stored (reasons on stderr and in the rejections table), 2 usage\n"
+                 "(also a PATH that does not exist).\n"
                  "  --jobs N   files read at once, 1-%d (default: two per processor, at most 8)\n",
             IMPORT_JOBS_MAX);
 }
@@ -161,6 +163,19 @@ int command_import(int argc, char **argv)
         print_import_usage(stderr);
         return EXIT_STATUS_USAGE;
     }
+    /* A path that is not there is a mistake in the command, not an object
+     * to reject: say so before anything is opened or imported. */
+    int missing = 0;
+    for (int i = first_path; i < argc; i++) {
+        struct stat info;
+        if (stat(argv[i], &info) != 0) {
+            fprintf(stderr, "mitilog import: %s: %s; check the path (nothing was imported)\n",
+                    argv[i], strerror(errno));
+            missing = 1;
+        }
+    }
+    if (missing)
+        return EXIT_STATUS_USAGE;
     config config;
     if (cli_load_config(config_path, &config) != 0) {
         config_free(&config);

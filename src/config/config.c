@@ -302,7 +302,7 @@ static mitilog_status config_finish(config *config, mitilog_error *error)
     return MITILOG_OK;
 }
 
-mitilog_status config_set_defaults(config *config, mitilog_error *error)
+static mitilog_status assign_defaults(config *config, mitilog_error *error)
 {
     memset(config, 0, sizeof *config);
     config->source_path = strdup("(defaults)");
@@ -324,9 +324,17 @@ mitilog_status config_set_defaults(config *config, mitilog_error *error)
     return MITILOG_OK;
 }
 
+/* The defaults alone, database path resolved like a loaded file's: the
+ * database is var/mitilog.sqlite3, as documented, not ./mitilog.sqlite3. */
+mitilog_status config_set_defaults(config *config, mitilog_error *error)
+{
+    mitilog_status status = assign_defaults(config, error);
+    return status == MITILOG_OK ? config_finish(config, error) : status;
+}
+
 mitilog_status config_load(const char *path, config *config, mitilog_error *error)
 {
-    mitilog_status status = config_set_defaults(config, error);
+    mitilog_status status = assign_defaults(config, error);
     if (status != MITILOG_OK)
         return status;
     FILE *file = fopen(path, "r");
