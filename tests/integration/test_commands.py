@@ -130,3 +130,67 @@ def test_rescore_accepts_a_leap_day_and_refuses_a_reversed_period(tmp_path):
                      "--to", "2026-11-01"])
     assert reversed_.returncode == 2
     assert "after" in reversed_.stderr
+
+
+# ---------------------------------------------------------------------------
+# Files that are not (whole) DICOM
+# ---------------------------------------------------------------------------
+
+def us_image(path, pixels=4096):
+    ds = Dataset()
+    ds.SOPInstanceUID, ds.StudyInstanceUID = generate_uid(), generate_uid()
+    ds.SeriesInstanceUID = generate_uid()
+    ds.Modality, ds.MechanicalIndex = "US", "1.0"
+    ds.Rows, ds.Columns, ds.SamplesPerPixel = 64, pixels // 64, 1
+    ds.BitsAllocated, ds.BitsStored, ds.HighBit = 8, 8, 7
+    ds.PixelRepresentation, ds.PhotometricInterpretation = 0, "MONOCHROME2"
+    ds.PixelData = bytes(pixels)
+    meta = FileMetaDataset()
+    meta.MediaStorageSOPClassUID = ds.SOPClassUID = "1.2.840.10008.5.1.4.1.1.6.1"
+    meta.MediaStorageSOPInstanceUID = ds.SOPInstanceUID
+    meta.TransferSyntaxUID = ExplicitVRLittleEndian
+    ds.file_meta = meta
+    ds.is_little_endian, ds.is_implicit_VR = True, False
+    ds.save_as(str(path), write_like_original=False)
+    return path
+
+
+def test_inspect_and_import_say_a_text_file_is_not_dicom(tmp_path):
+    text = tmp_path / "notes.txt"
+    text.write_text("Room 3 probe serviced on Tuesday.\n" * 20)
+    result = run([BINARY, "inspect", str(text)])
+    assert result.returncode == 1
+    assert "not a DICOM file" in result.stderr and "text file" in result.stderr
+    assert result.stderr.count(str(text)) == 1, result.stderr   # the path once
+    assert "premature end of stream" not in result.stderr
+    assert not re.search(r"^[EW]: ", result.stderr, re.M), result.stderr  # no toolkit lines
+    config = tmp_path / "mitilog.ini"
+    config.write_text("[storage]\ndata_directory = %s\n" % (tmp_path / "var"))
+    imported = run([BINARY, "import", "--config", str(config), str(text)])
+    assert imported.returncode == 1
+    assert "rejected 1" in imported.stdout
+    assert "not a DICOM file" in imported.stderr
+    assert imported.stderr.count(str(text)) == 1, imported.stderr
+    assert not re.search(r"^[EW]: ", imported.stderr, re.M), imported.stderr
+
+
+def test_truncated_file_names_the_byte_and_the_element(tmp_path):
+    whole = us_image(tmp_path / "whole.dcm")
+    size = os.path.getsize(whole)
+    # reference: PS3.5 section 7.1.2, explicit VR OB/OW: 12 bytes of tag,
+    # VR, reserved and length before the value; pydicom wrote Pixel Data last.
+    pixels = len(pydicom.dcmread(str(whole)).PixelData)
+    pixel_element_at = size - 12 - pixels
+    cut = tmp_path / "cut.dcm"
+    cut_at = pixel_element_at + 100
+    with open(whole, "rb") as f:
+        cut.write_bytes(f.read(cut_at))
+    result = run([BINARY, "inspect", str(cut)])
+    assert result.returncode == 1
+    message = result.stderr
+    assert "truncated" in message
+    assert "at byte %d of %d" % (cut_at, size) in message, message
+    assert "PixelData (7fe0,0010) at byte %d declares %d bytes" % (pixel_element_at, pixels) \
+        in message, message
+    assert message.count(str(cut)) == 1 and "premature end of stream" not in message
+    assert not re.search(r"^[EW]: ", message, re.M), message
