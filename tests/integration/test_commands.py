@@ -13,7 +13,7 @@ import pytest
 from pydicom.dataset import Dataset, FileMetaDataset
 from pydicom.uid import ExplicitVRLittleEndian, generate_uid
 
-from conftest import BINARY, REPO, run
+from conftest import BINARY, REPO, free_port, run
 
 
 # ---------------------------------------------------------------------------
@@ -194,3 +194,84 @@ def test_truncated_file_names_the_byte_and_the_element(tmp_path):
         in message, message
     assert message.count(str(cut)) == 1 and "premature end of stream" not in message
     assert not re.search(r"^[EW]: ", message, re.M), message
+
+
+# ---------------------------------------------------------------------------
+# check-config
+# ---------------------------------------------------------------------------
+
+def shipped_policy():
+    with open(os.path.join(REPO, "conf", "policy.ini")) as f:
+        return f.read()
+
+
+def check_config(tmp_path, main, policy=None):
+    if policy is not None:
+        (tmp_path / "policy.ini").write_text(policy)
+        main += "\n[rules]\npolicy = policy.ini\n"
+    path = tmp_path / "mitilog.ini"
+    path.write_text(main)
+    return run([BINARY, "check-config", str(path)])
+
+
+def test_check_config_reports_every_problem_readably(tmp_path):
+    # common practice, no source: a validator lists every error at once.
+    result = check_config(tmp_path, "port = 104\n[storage]\nretention = everything\n"
+                                    "bogus = 1\n[dicom]\nmax_pdu_bytes = -3\n")
+    assert result.returncode == 2
+    lines = result.stderr.splitlines()
+    assert any(":1: port:" in l and "before any [section]" in l and "[dicom]" in l
+               for l in lines), result.stderr
+    assert "[] port" not in result.stderr
+    assert any(":3: [storage] retention: 'everything' is not one of none, header or full" in l
+               for l in lines), result.stderr
+    assert "|" not in result.stderr
+    assert any(":4: [storage] bogus: unknown key" in l for l in lines)
+    assert any(":6: [dicom] max_pdu_bytes:" in l for l in lines)
+
+
+def test_check_config_names_the_groups_and_the_rule_section(tmp_path):
+    policy = shipped_policy()
+    assert "limit.group.ophthalmic = 1.0" in policy and "[rule thermal_dose]" in policy
+    policy = policy.replace("limit.group.ophthalmic = 1.0", "limit.group.opthalmic = 1.0", 1)
+    policy = policy.replace("[rule thermal_dose]", "[rule thermal_dos]", 1)
+    result = check_config(tmp_path, "[http]\nport = 8080\n", policy)
+    assert result.returncode == 2
+    # docs/policy.md lists the groups
+    assert "'opthalmic' is not a group; the groups are general, obstetric, neonatal, " \
+           "transcranial, ophthalmic, contrast" in result.stderr, result.stderr
+    header = policy.splitlines().index("[rule thermal_dos]") + 1
+    assert "policy.ini:%d: [rule thermal_dos]: 'thermal_dos' is not a rule" % header \
+        in result.stderr, result.stderr
+    assert "severity: unknown rule" not in result.stderr
+    assert "[rules] policy" in result.stderr
+
+
+def test_check_config_names_the_key_of_a_missing_policy(tmp_path):
+    result = check_config(tmp_path, "[rules]\npolicy = missing.ini\n")
+    assert result.returncode == 2
+    assert "[rules] policy" in result.stderr and "missing.ini" in result.stderr
+
+
+def test_check_config_refuses_a_data_directory_serve_refuses(tmp_path):
+    main = "[storage]\ndata_directory = /proc/nope\n[dicom]\nport = %d\n[http]\nport = %d\n" % (
+        free_port(), free_port())
+    result = check_config(tmp_path, main)
+    assert result.returncode == 2
+    assert "[storage] data_directory /proc/nope" in result.stderr
+    assert not os.path.exists("/proc/nope")
+    serve = run([BINARY, "serve", "--config", str(tmp_path / "mitilog.ini")], timeout=60)
+    assert serve.returncode != 0, "serve accepted what check-config refused"
+    fine = check_config(tmp_path, "[storage]\ndata_directory = %s\n" % (tmp_path / "a" / "b"))
+    assert fine.returncode == 0, fine.stderr
+    assert not (tmp_path / "a").exists(), "check-config left a folder behind"
+
+
+def test_check_config_cross_checks_policy_categories_with_site_exam_types(tmp_path):
+    policy = shipped_policy()
+    assert "limit.category.neonatal_bowel" in policy
+    policy = policy.replace("limit.category.neonatal_bowel", "limit.category.neonatal_bowl", 1)
+    result = check_config(tmp_path, "[http]\nport = 8080\n", policy)
+    assert result.returncode == 2
+    assert "category 'neonatal_bowl' is not an exam type" in result.stderr, result.stderr
+    assert "neonatal_bowel" in result.stderr   # the existing keys are named
