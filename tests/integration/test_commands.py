@@ -34,6 +34,33 @@ def test_read_only_command_never_creates_a_database(tmp_path, command):
     assert "--config" in result.stderr
 
 
+def test_inspect_creates_nothing(tmp_path):
+    # inspect reads one file and the site rules; it never opens a database.
+    work = tmp_path / "work"
+    work.mkdir()
+    path = us_image(tmp_path / "one.dcm")
+    result = run([BINARY, "inspect", str(path)], cwd=str(work))
+    assert result.returncode == 0, result.stderr
+    assert os.listdir(work) == []
+
+
+def test_readme_says_which_week_the_dashboard_shows():
+    # The dashboard's week list asks /api/v1/outliers without a week, whose
+    # default docs/api.md states (checked against the data in
+    # test_reports.py::test_parameters_and_iso_weeks); README must say it.
+    with open(os.path.join(REPO, "README.md")) as f:
+        readme = " ".join(f.read().split())
+    with open(os.path.join(REPO, "docs", "api.md")) as f:
+        api = " ".join(f.read().split())
+    assert "default: the week of the latest exam day held" in api
+    assert re.search(r"dashboard \(`[^`]*`\) opens on the outlier list of the ISO 8601 week "
+                     r"\(Monday to Sunday\) of the latest exam day held", readme), \
+        "README.md does not say which week the dashboard shows"
+    with open(os.path.join(REPO, "web", "week.js")) as f:
+        week_js = f.read()
+    assert "(week ? '&week=' + encodeURIComponent(week) : '')" in week_js
+
+
 def test_read_only_command_with_a_config_names_it(tmp_path):
     data = tmp_path / "data"
     config = tmp_path / "site.ini"
