@@ -134,8 +134,12 @@ static mitilog_status dcm_describe_load_failure(DcmFileFormat &file, uint64_t fi
                     offset += meta->getElement(i)->calcElementLength(EXS_LittleEndianExplicit,
                                                                      EET_ExplicitLength);
         }
-        for (unsigned long i = 0; i + 1 < item->card(); i++)
-            offset += item->getElement(i)->calcElementLength(xfer, EET_ExplicitLength);
+        for (unsigned long i = 0; i + 1 < item->card(); i++) {
+            DcmElement *element = item->getElement(i);
+            offset += element->calcElementLength(
+                xfer, element->getLengthField() == DCM_UndefinedLength ? EET_UndefinedLength
+                                                                       : EET_ExplicitLength);
+        }
         DcmElement *last = item->getElement(item->card() - 1);
         DcmTag tag(last->getTag());
         Uint32 length = last->getLengthField();
