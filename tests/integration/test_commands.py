@@ -302,3 +302,17 @@ def test_check_config_cross_checks_policy_categories_with_site_exam_types(tmp_pa
     assert result.returncode == 2
     assert "category 'neonatal_bowl' is not an exam type" in result.stderr, result.stderr
     assert "neonatal_bowel" in result.stderr   # the existing keys are named
+
+
+def test_serve_and_import_name_the_key_of_a_missing_policy(tmp_path):
+    main = tmp_path / "mitilog.ini"
+    main.write_text("[rules]\npolicy = missing.ini\n[storage]\ndata_directory = %s\n"
+                    "[dicom]\nport = %d\n[http]\nport = %d\n"
+                    % (tmp_path / "var", free_port(), free_port()))
+    (tmp_path / "empty").mkdir()
+    for command in (["serve", "--config", str(main)],
+                    ["import", "--config", str(main), str(tmp_path / "empty")]):
+        result = run([BINARY] + command, timeout=60)
+        assert result.returncode != 0
+        assert "[rules] policy: " in result.stderr and "missing.ini" in result.stderr, \
+            result.stderr
