@@ -61,35 +61,50 @@ static int compare_tallies(const void *left, const void *right)
 }
 
 /* Member order: outliers and exams with findings first, by robust z
- * (undefined last) then value, descending; then the others by value. */
-typedef struct member_sort {
-    const stats_exam *exams;
-    const stats_exam_flag *flags;
-} member_sort;
-static member_sort member_context;   /* qsort has no user pointer */
+ * (undefined last) then value, descending; then the others by value.
+ * Each member is sorted with its keys beside it, so that the comparison
+ * needs no other data (qsort passes none; the HTTP threads sort at once). */
+typedef struct member_key {
+    int rank;                   /* 0: outlier or with findings; 1: other */
+    double robust_z;            /* -INFINITY when undefined */
+    double value;               /* -INFINITY when the exam has none */
+    size_t index;               /* into the week's exams */
+} member_key;
 
-static int member_rank(size_t index)
+static member_key member_key_of(const stats_exam *exams, const stats_exam_flag *flags,
+                                size_t index)
 {
-    const stats_exam_flag *flag = &member_context.flags[index];
-    return flag->is_outlier || member_context.exams[index].finding_count > 0 ? 0 : 1;
+    const stats_exam_flag *flag = &flags[index];
+    member_key key;
+    key.rank = flag->is_outlier || exams[index].finding_count > 0 ? 0 : 1;
+    key.robust_z = isnan(flag->robust_z) ? -INFINITY : flag->robust_z;
+    key.value = flag->has_value ? exams[index].max_governing : -INFINITY;
+    key.index = index;
+    return key;
 }
 
 static int compare_members(const void *left, const void *right)
 {
-    size_t a = *(const size_t *)left, b = *(const size_t *)right;
-    int rank_a = member_rank(a), rank_b = member_rank(b);
-    if (rank_a != rank_b)
-        return rank_a - rank_b;
-    const stats_exam_flag *fa = &member_context.flags[a], *fb = &member_context.flags[b];
-    double za = isnan(fa->robust_z) ? -INFINITY : fa->robust_z;
-    double zb = isnan(fb->robust_z) ? -INFINITY : fb->robust_z;
-    if (za != zb)
-        return za > zb ? -1 : 1;
-    double va = fa->has_value ? member_context.exams[a].max_governing : -INFINITY;
-    double vb = fb->has_value ? member_context.exams[b].max_governing : -INFINITY;
-    if (va != vb)
-        return va > vb ? -1 : 1;
-    return (a > b) - (a < b);
+    const member_key *a = left, *b = right;
+    if (a->rank != b->rank)
+        return a->rank - b->rank;
+    if (a->robust_z != b->robust_z)
+        return a->robust_z > b->robust_z ? -1 : 1;
+    if (a->value != b->value)
+        return a->value > b->value ? -1 : 1;
+    return (a->index > b->index) - (a->index < b->index);
+}
+
+/* Sorts a group's members (indices into exams) into member order; keys
+ * holds at least count entries. */
+static void sort_members(size_t *members, size_t count, const stats_exam *exams,
+                         const stats_exam_flag *flags, member_key *keys)
+{
+    for (size_t m = 0; m < count; m++)
+        keys[m] = member_key_of(exams, flags, members[m]);
+    qsort(keys, count, sizeof *keys, compare_members);
+    for (size_t m = 0; m < count; m++)
+        members[m] = keys[m].index;
 }
 
 static int compare_groups(const void *left, const void *right)
@@ -119,6 +134,7 @@ mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
     memset(&keys, 0, sizeof keys);
     double *values = NULL, *scratch = NULL;
     unsigned char *has_type = NULL;
+    member_key *member_keys = NULL;
     mitilog_status status = MITILOG_ERROR_MEMORY;
     size_t capacity = week_count + baseline_count + 1;
 
@@ -128,7 +144,7 @@ mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
     if (values == NULL || scratch == NULL || result->flags == NULL ||
         stats_group_by_key(week, week_count, STATS_BY_EXAM_TYPE, &types) != MITILOG_OK ||
         stats_group_by_known_key(baseline, baseline_count, STATS_BY_EXAM_TYPE, &types.table,
-                           &base_types) != MITILOG_OK ||
+                                 &base_types) != MITILOG_OK ||
         stats_group_by_key(week, week_count, by, &keys) != MITILOG_OK)
         goto done;
     size_t type_count = types.table.count, key_count = keys.table.count;
@@ -136,7 +152,9 @@ mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
     result->baselines = calloc(type_count + 1, sizeof *result->baselines);
     result->groups = calloc(key_count + 1, sizeof *result->groups);
     has_type = malloc(type_count + 1);
-    if (result->baselines == NULL || result->groups == NULL || has_type == NULL)
+    member_keys = malloc((week_count + 1) * sizeof *member_keys);
+    if (result->baselines == NULL || result->groups == NULL || has_type == NULL ||
+        member_keys == NULL)
         goto done;
 
     /* Baselines per exam type (of the week), and each exam's flags. */
@@ -186,8 +204,6 @@ mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
     }
 
     /* Groups. */
-    member_context.exams = week;
-    member_context.flags = result->flags;
     for (size_t g = 0; g < key_count; g++) {
         stats_group *group = &result->groups[g];
         result->group_count++;
@@ -234,7 +250,7 @@ mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
         }
         group->department_median = stats_median_of(values, d);
         if (group->member_count > 1)
-            qsort(group->members, group->member_count, sizeof *group->members, compare_members);
+            sort_members(group->members, group->member_count, week, result->flags, member_keys);
         if (group->rule_count > 1)
             qsort(group->rules, group->rule_count, sizeof *group->rules, compare_tallies);
     }
@@ -245,6 +261,7 @@ done:
     free(values);
     free(scratch);
     free(has_type);
+    free(member_keys);
     stats_key_groups_free(&types);
     stats_key_groups_free(&base_types);
     stats_key_groups_free(&keys);
