@@ -9,6 +9,7 @@
 #include <string.h>
 
 #include "stats/stats.h"
+#include "util/hash_table.h"
 
 int stats_keys_equal(const char *a, const char *b)
 {
@@ -28,59 +29,23 @@ int stats_keys_compare(const char *a, const char *b)
 void stats_key_table_free(stats_key_table *table)
 {
     free(table->keys);
-    free(table->slots);
+    hash_table_free(&table->indices);
     memset(table, 0, sizeof *table);
 }
 
-/* FNV-1a, 64-bit. */
-static uint64_t key_hash(const char *key)
-{
-    uint64_t hash = 0xcbf29ce484222325u;
-    for (const unsigned char *c = (const unsigned char *)key; *c != '\0'; c++)
-        hash = (hash ^ *c) * 0x100000001b3u;
-    return hash;
-}
-
-/* The slot holding key, or the empty slot where it would go. */
-static size_t key_slot(const stats_key_table *table, const char *key)
-{
-    size_t mask = table->slot_count - 1;
-    size_t slot = (size_t)key_hash(key) & mask;
-    while (table->slots[slot] != 0 && !stats_keys_equal(table->keys[table->slots[slot] - 1], key))
-        slot = (slot + 1) & mask;
-    return slot;
-}
-
-/* The key's index, or SIZE_MAX when the table does not hold it. */
 size_t stats_key_find(const stats_key_table *table, const char *key)
 {
     if (key == NULL)
         return table->null_index > 0 ? table->null_index - 1 : SIZE_MAX;
-    if (table->slot_count == 0)
-        return SIZE_MAX;
-    size_t slot = key_slot(table, key);
-    return table->slots[slot] > 0 ? table->slots[slot] - 1 : SIZE_MAX;
+    const hash_entry *entry = hash_table_find(&table->indices, key, strlen(key));
+    return entry != NULL ? (size_t)entry->number : SIZE_MAX;
 }
 
-/* The key's index, added when new. */
 mitilog_status stats_key_add(stats_key_table *table, const char *key, size_t *index)
 {
     *index = stats_key_find(table, key);
     if (*index != SIZE_MAX)
         return MITILOG_OK;
-    if (key != NULL && 2 * (table->count + 1) > table->slot_count) {
-        size_t slot_count = table->slot_count ? table->slot_count * 2 : 64;
-        size_t *slots = calloc(slot_count, sizeof *slots);
-        if (slots == NULL)
-            return MITILOG_ERROR_MEMORY;
-        free(table->slots);
-        table->slots = slots;
-        table->slot_count = slot_count;
-        for (size_t k = 0; k < table->count; k++) {
-            if (table->keys[k] != NULL)
-                table->slots[key_slot(table, table->keys[k])] = k + 1;
-        }
-    }
     if (table->count == table->capacity) {
         size_t capacity = table->capacity ? table->capacity * 2 : 16;
         const char **keys = realloc(table->keys, capacity * sizeof *keys);
@@ -89,15 +54,14 @@ mitilog_status stats_key_add(stats_key_table *table, const char *key, size_t *in
         table->keys = keys;
         table->capacity = capacity;
     }
+    if (key == NULL)
+        table->null_index = table->count + 1;
+    else if (hash_table_put(&table->indices, key, strlen(key), table->count, NULL) != MITILOG_OK)
+        return MITILOG_ERROR_MEMORY;
     *index = table->count;
     table->keys[table->count++] = key;
-    if (key == NULL)
-        table->null_index = *index + 1;
-    else
-        table->slots[key_slot(table, key)] = *index + 1;
     return MITILOG_OK;
 }
-
 
 void stats_key_groups_free(stats_key_groups *groups)
 {
@@ -131,7 +95,7 @@ mitilog_status stats_key_groups_fill(stats_key_groups *groups, size_t count, siz
 }
 
 mitilog_status stats_group_by_key(const stats_exam *exams, size_t count,
-                                   stats_dimension dimension, stats_key_groups *groups)
+                                  stats_dimension dimension, stats_key_groups *groups)
 {
     memset(groups, 0, sizeof *groups);
     groups->key_of = malloc((count + 1) * sizeof *groups->key_of);
@@ -145,11 +109,10 @@ mitilog_status stats_group_by_key(const stats_exam *exams, size_t count,
     return stats_key_groups_fill(groups, count, groups->table.count);
 }
 
-/* The exams whose key the table of another grouping holds, grouped by its
- * keys (exams with other keys are left out). */
 mitilog_status stats_group_by_known_key(const stats_exam *exams, size_t count,
-                                         stats_dimension dimension, const stats_key_table *known,
-                                         stats_key_groups *groups)
+                                        stats_dimension dimension,
+                                        const stats_key_table *known,
+                                        stats_key_groups *groups)
 {
     memset(groups, 0, sizeof *groups);
     groups->key_of = malloc((count + 1) * sizeof *groups->key_of);

@@ -1,13 +1,14 @@
 /*
  * stats_keys.h - grouping exams by a text key (exam type, room, preset,
  * ...), shared by the outlier list, the period table and drift; internal
- * to src/stats/. A hash table gives each distinct key an index in
- * first-seen order, and each group lists its members in input order, so
- * the work is one pass per value instead of one per key and exam, and
- * every sum and value list is built in the same order as by a scan.
+ * to src/stats/. A hash table (util/hash_table.h) gives each distinct key
+ * an index in first-seen order, and each group lists its members in input
+ * order, so the work is one pass per value instead of one per key and
+ * exam, and every sum and value list is built in the same order as by a
+ * scan.
  *
  * Keys are borrowed from the exams (NULL is a key of its own: "not
- * recorded"). Every table and grouping is freed with its own *_free(),
+ * recorded"); the hash table keeps a copy of each distinct one. Every table and grouping is freed with its own *_free(),
  * which accepts a zeroed or partly filled one.
  */
 #ifndef MITILOG_STATS_KEYS_H
@@ -16,16 +17,17 @@
 #include <stddef.h>
 
 #include "stats/stats_exam.h"
+#include "util/hash_table.h"
 #include "util/status.h"
 
 /* The distinct keys, each with an index in first-seen order. */
 typedef struct stats_key_table {
-    const char **keys;          /* by index, first-seen order */
+    const char **keys;          /* by index, first-seen order; borrowed */
     size_t count, capacity;
-    size_t *slots;              /* index + 1; 0 = empty */
-    size_t slot_count;          /* a power of two */
+    hash_table indices;         /* key text to index */
     size_t null_index;          /* index + 1 of the NULL key; 0 = none yet */
 } stats_key_table;
+
 /* Exams grouped by a key: table.keys in first-seen order; the members of
  * key k are members[start[k]] .. members[start[k + 1] - 1], in input
  * order; key_of[i] is exam i's key. */
