@@ -61,6 +61,10 @@ SELECT json_object(
         'studies', (SELECT count(*) FROM exams),
         'rejections', (SELECT count(*) FROM rejections),
         'quarantined', (SELECT count(*) FROM rejections WHERE quarantine_path <> ''),
+        -- re-sent objects (same SOP Instance UID) replace their row: how
+        -- many rows were replaced, and how many times in all
+        'replaced_instances', (SELECT count(*) FROM instances WHERE replaced_count > 0),
+        'replacements', (SELECT coalesce(sum(replaced_count), 0) FROM instances),
         'last_received_at', (SELECT max(received_at) FROM instances)),
     'reading', json_object(
         'queued', (SELECT count(*) FROM reading_queue),

@@ -379,7 +379,7 @@ static void finish_item(ingest_reading *reading, ingest_reading_item *item)
 {
     store_screen_result result;
     screen_reading combined;
-    char reason[SCREEN_REASON_SIZE + 512];
+    char reason[MITILOG_ERROR_TEXT_SIZE + 128];
     read_object(reading, item, &result, &combined, reason, sizeof reason);
     int stale = 0;
     mitilog_error error;
