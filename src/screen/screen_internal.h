@@ -99,6 +99,14 @@ size_t screen_segment(const screen_image *image, const screen_band *band, int th
                       int left, int right, screen_blob *blobs, size_t max,
                       int *touches_end);
 
+/* 1 when a run fills the band from its top row to its bottom row: no
+ * character does (the band has a margin above and below the text); it is
+ * the edge of a box drawn behind the text, or the picture beside it. */
+static inline int screen_blob_is_barrier(const screen_blob *blob, const screen_band *band)
+{
+    return blob->top <= band->top && blob->bottom >= band->bottom;
+}
+
 /* Splits every run wider than split_width at its column of least ink
  * (characters drawn touching), keeping at most max runs in blobs; returns
  * the new count. */

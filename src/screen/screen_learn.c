@@ -94,10 +94,11 @@ static mitilog_status find_components(const screen_image *image, learn_component
     int64_t *integral = malloc((size_t)(width + 1) * (size_t)(height + 1) * sizeof *integral);
     unsigned char *mask = calloc(pixels, 1);
     int *stack = malloc(pixels * sizeof *stack);
+    short *difference = malloc(pixels * sizeof *difference);
     learn_component *components = NULL;
     size_t used = 0, capacity = 0;
     mitilog_status status = MITILOG_OK;
-    if (integral == NULL || mask == NULL || stack == NULL) {
+    if (integral == NULL || mask == NULL || stack == NULL || difference == NULL) {
         status = MITILOG_ERROR_MEMORY;
         goto done;
     }
@@ -125,11 +126,15 @@ static mitilog_status find_components(const screen_image *image, learn_component
                           integral[(size_t)y1 * row_length + (size_t)x0] +
                           integral[(size_t)y0 * row_length + (size_t)x0];
             int mean = (int)(sum / ((int64_t)(y1 - y0) * (x1 - x0)));
-            int difference = image->grey[(size_t)y * image->stride + (size_t)x] - mean;
-            if (difference > LEARN_FIRST_THRESHOLD || difference < -LEARN_FIRST_THRESHOLD)
-                mask[(size_t)y * (size_t)width + (size_t)x] = 1;
+            difference[(size_t)y * (size_t)width + (size_t)x] =
+                (short)(image->grey[(size_t)y * image->stride + (size_t)x] - mean);
         }
     }
+    /* Brighter than the neighbourhood, then darker: one at a time, so that
+     * the dark box behind light text is not joined to its characters. */
+    for (int polarity = 1; polarity >= -1; polarity -= 2) {
+    for (size_t p = 0; p < pixels; p++)
+        mask[p] = difference[p] * polarity > LEARN_FIRST_THRESHOLD;
     for (size_t start = 0; start < pixels; start++) {
         if (mask[start] != 1)
             continue;
@@ -175,10 +180,12 @@ static mitilog_status find_components(const screen_image *image, learn_component
         }
         components[used++] = c;
     }
+    }
 done:
     free(integral);
     free(mask);
     free(stack);
+    free(difference);
     if (status != MITILOG_OK) {
         free(components);
         return status;
@@ -290,6 +297,14 @@ static mitilog_status find_lines(const screen_image *image, int threshold, learn
         line->blob_count = screen_segment(image, &line->band, line_threshold, line->left - 2,
                                           line->right + 2, line->blobs, LEARN_BLOB_MAX,
                                           &touches);
+        /* What fills the band from top to bottom is no character (the
+         * edge of a box behind the text, the picture). */
+        size_t kept_blobs = 0;
+        for (size_t b = 0; b < line->blob_count; b++) {
+            if (!screen_blob_is_barrier(&line->blobs[b], &line->band))
+                line->blobs[kept_blobs++] = line->blobs[b];
+        }
+        line->blob_count = kept_blobs;
         /* No digit is wider than the line is high. */
         line->blob_count = screen_split_wide(image, &line->band, line_threshold, line->blobs,
                                              line->blob_count, LEARN_BLOB_MAX,

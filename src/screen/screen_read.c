@@ -224,6 +224,12 @@ static void read_slot(const screen_profile *profile, const screen_image *image, 
     int baseline = band.top + profile->band_above;
     size_t kept = 0;
     for (size_t i = 0; i < count; i++) {
+        /* The edge of the box behind the text, or the picture: the text
+         * ends there. */
+        if (screen_blob_is_barrier(&blobs[i], &band)) {
+            touches = 0;
+            break;
+        }
         int tall = (blobs[i].bottom - blobs[i].top + 1) * 4 > profile->band_above;
         if (tall || blobs[i].bottom >= baseline - 1)
             blobs[kept++] = blobs[i];
