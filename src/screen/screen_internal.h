@@ -30,8 +30,12 @@ typedef struct screen_glyph {
 } screen_glyph;
 
 /* Where and how one index is drawn. The text line is the band of rows
- * baseline - band_above .. baseline + band_below; the label starts at
- * column label_x; the value follows it. */
+ * baseline - band_above .. baseline + band_below, a row of margin above
+ * the tallest digit and two below the baseline; labels and glyphs are
+ * compared on the text's own rows only, baseline - band_above + 2 ..
+ * baseline (what lies in the margin, such as the picture around a box
+ * drawn behind the text, changes from place to place). The label starts
+ * at column label_x; the value follows it. */
 typedef struct screen_slot {
     int shown;                 /* 0: the device does not draw this index */
     int label_x, baseline;
@@ -60,6 +64,12 @@ struct screen_profile {
     screen_glyph glyphs[SCREEN_GLYPH_MAX];
     size_t glyph_count;
 };
+
+/* Rows of the text itself (labels and glyphs are this tall). */
+static inline int screen_text_rows(const screen_profile *profile)
+{
+    return profile->band_above - 1;
+}
 
 /* screen_profile.c */
 screen_profile *screen_profile_new(void);

@@ -1113,9 +1113,9 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
         const learn_candidate *c = &picks[source][i].candidate;
         const learn_line *line = &frames[source].lines[c->line];
         int label_right = line->blobs[c->value_first - 1].right;
-        int top = slot->baseline - profile->band_above;
-        int bottom = slot->baseline + profile->band_below;
-        /* The label patch: its own columns, the band's rows. */
+        int top = slot->baseline - profile->band_above + 2;
+        int bottom = slot->baseline;
+        /* The label patch: its own columns, the text's rows. */
         slot->label.width = label_right - slot->label_x + 1;
         int background = screen_slot_background(profile, &examples[source].image, slot);
         if (screen_cut(&examples[source].image, background, top, bottom, slot->label_x,
@@ -1137,8 +1137,7 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
             int pick_background = screen_slot_background(profile, &examples[e].image, &here);
             for (size_t k = 0; k < pick->length; k++) {
                 if (add_glyph(profile, &examples[e].image, pick_background,
-                              here.baseline - profile->band_above,
-                              here.baseline + profile->band_below,
+                              here.baseline - profile->band_above + 2, here.baseline,
                               &pick_line->blobs[pick->value_first + k], pick->text[k],
                               &problem) != 0) {
                     status = mitilog_error_set(

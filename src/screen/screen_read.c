@@ -52,7 +52,7 @@ static label_match match_label(const screen_profile *profile, const screen_image
     for (int dy = -SCREEN_LABEL_SHIFT; dy <= SCREEN_LABEL_SHIFT; dy++) {
         for (int dx = -SCREEN_LABEL_SHIFT; dx <= SCREEN_LABEL_SHIFT; dx++) {
             double score = screen_correlate(image, best.background, &slot->label,
-                                            slot->label_x + dx, top + dy);
+                                            slot->label_x + dx, top + 2 + dy);
             if (score > best.score) {
                 best.score = score;
                 best.dx = dx;
@@ -257,7 +257,7 @@ static void read_slot(const screen_profile *profile, const screen_image *image, 
     char text[SCREEN_VALUE_CHARACTERS_MAX + 1];
     for (size_t i = 0; i < used; i++) {
         const char *why = NULL;
-        char character = match_blob(profile, image, band.background, band.top, &blobs[i],
+        char character = match_blob(profile, image, band.background, band.top + 2, &blobs[i],
                                     &why);
         if (character == 0) {
             value->status = SCREEN_VALUE_NOT_READ;
