@@ -214,10 +214,16 @@ static void read_slot(const screen_profile *profile, const screen_image *image, 
         limit = image->width - 1;
         frame_edge = 1;
     }
+    /* Characters are cut on the text's rows and the one under the
+     * baseline: the margin above may show the picture around a box drawn
+     * behind the text, which would join them. */
+    screen_band rows = {.top = band.top + 2,
+                        .bottom = band.top + profile->band_above + 1,
+                        .background = band.background};
     screen_blob blobs[SCREEN_VALUE_CHARACTERS_MAX + 2];
-    size_t count = screen_segment(image, &band, threshold, start, limit, blobs,
+    size_t count = screen_segment(image, &rows, threshold, start, limit, blobs,
                                   sizeof blobs / sizeof blobs[0], &touches);
-    count = screen_split_wide(image, &band, threshold, blobs, count,
+    count = screen_split_wide(image, &rows, threshold, blobs, count,
                               sizeof blobs / sizeof blobs[0], profile->split_width);
     /* A speck off the baseline (a pixel of the label's edge, noise) is no
      * character: points sit on the baseline, digits are tall. */
@@ -226,7 +232,7 @@ static void read_slot(const screen_profile *profile, const screen_image *image, 
     for (size_t i = 0; i < count; i++) {
         /* The edge of the box behind the text, or the picture: the text
          * ends there. */
-        if (screen_blob_is_barrier(&blobs[i], &band)) {
+        if (screen_blob_is_barrier(&blobs[i], &rows)) {
             touches = 0;
             break;
         }
