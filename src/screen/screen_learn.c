@@ -1060,6 +1060,23 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
                                    report.length ? "see the report" : "no value was given");
         goto done;
     }
+    /* Every index given a value must have been placed: when one was not,
+     * the place taken by another could be its own (a label misread, a
+     * value not found), and that other would read the wrong index. */
+    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+        int known = 0;
+        for (size_t e = 0; e < count; e++)
+            known |= examples[e].truth[i].status == SCREEN_VALUE_READ;
+        if (known && !learned[i]) {
+            status = mitilog_error_set(
+                error, MITILOG_ERROR_REFUSED,
+                "%s was given a value but not found on the screen, so the places found for "
+                "the other indices are not certain either: give values only for the indices "
+                "the screens show, or other frames (see the report)",
+                screen_index_label((ext_index)i));
+            goto done;
+        }
+    }
     snprintf(profile->key, sizeof profile->key, "%s", profile_key);
     if (device != NULL) {
         snprintf(profile->manufacturer, sizeof profile->manufacturer, "%s",
