@@ -90,6 +90,10 @@ typedef struct screen_band {
 
 /* Median grey of rows top..bottom, columns left..right (clipped). */
 int screen_median(const screen_image *image, int top, int bottom, int left, int right);
+/* The background grey there: the median of the most common band of 24
+ * grey levels. Not the median of all: dense bold text, or the picture
+ * around a box drawn behind the text, can make up half the pixels. */
+int screen_background(const screen_image *image, int top, int bottom, int left, int right);
 
 static inline int screen_ink(const screen_image *image, int background, int x, int y)
 {
@@ -132,8 +136,9 @@ double screen_correlate(const screen_image *image, int background, const screen_
 int screen_cut(const screen_image *image, int background, int top, int bottom, int left,
                int right, screen_template *t);
 
-/* screen_read.c: the background grey of a slot's text line (its median
- * from the label's first column to the end of the value's columns). */
+/* screen_read.c: the background grey of a slot's text line, from the
+ * label's first column to the end of the value's columns
+ * (screen_background). */
 int screen_slot_background(const screen_profile *profile, const screen_image *image,
                            const screen_slot *slot);
 

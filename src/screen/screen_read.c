@@ -39,8 +39,8 @@ int screen_slot_background(const screen_profile *profile, const screen_image *im
                            const screen_slot *slot)
 {
     int top = band_top(profile, slot);
-    return screen_median(image, top, top + band_height(profile) - 1, slot->label_x,
-                         slot->label_x + slot->label.width + slot->span);
+    return screen_background(image, top, top + band_height(profile) - 1, slot->label_x,
+                             slot->label_x + slot->label.width + slot->span);
 }
 
 static label_match match_label(const screen_profile *profile, const screen_image *image,
