@@ -294,9 +294,12 @@ static mitilog_status find_lines(const screen_image *image, int threshold, learn
                 }
             }
         }
+        /* A character touching what lies beside the text (a box's edge,
+         * the picture) was joined to it in the search for characters:
+         * look a little further right. */
+        int right = line->right + 2 * line->height;
         line->blob_count = screen_segment(image, &line->band, line_threshold, line->left - 2,
-                                          line->right + 2, line->blobs, LEARN_BLOB_MAX,
-                                          &touches);
+                                          right, line->blobs, LEARN_BLOB_MAX, &touches);
         /* What fills the band from top to bottom is no character (the
          * edge of a box behind the text, the picture). */
         size_t kept_blobs = 0;
@@ -1236,7 +1239,7 @@ mitilog_status screen_learn(const screen_device *device, const char *profile_key
      * tight fonts come apart. The first share whose profile reads its
      * examples back is kept; the report and reason are those of the
      * first try when none does. */
-    static const int shares[] = {45, 60, 35};
+    static const int shares[] = {45, 60, 35, 75};
     mitilog_error first_error = {{0}};
     char *first_report = report_text != NULL && report_size > 0 ? malloc(report_size) : NULL;
     mitilog_status first_status = MITILOG_OK;
