@@ -536,6 +536,12 @@ int command_device(int argc, char **argv)
     if (argc < 2 || cli_wants_help(argc, argv))
         return device_usage(cli_wants_help(argc, argv) ? stdout : stderr);
     const char *action = argv[1];
+    mitilog_error initialise_error = {{0}};
+    if ((strcmp(action, "bench") == 0 || strcmp(action, "learn") == 0) &&
+        dcm_initialise(3, &initialise_error) != MITILOG_OK) {
+        fprintf(stderr, "mitilog device %s: %s\n", action, initialise_error.text);
+        return EXIT_STATUS_FAILURE;
+    }
     if (strcmp(action, "bench") == 0)
         return argc == 3 ? device_bench(argv[2]) : device_usage(stderr);
     const char *config_path = NULL, *key = NULL, *by = NULL;

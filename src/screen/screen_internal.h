@@ -30,8 +30,12 @@ typedef struct screen_glyph {
 } screen_glyph;
 
 /* Where and how one index is drawn. The text line is the band of rows
- * baseline - band_above .. baseline + band_below; the label starts at
- * column label_x; the value follows it. */
+ * baseline - band_above .. baseline + band_below, a row of margin above
+ * the tallest digit and two below the baseline; labels and glyphs are
+ * compared on the text's own rows only, baseline - band_above + 2 ..
+ * baseline (what lies in the margin, such as the picture around a box
+ * drawn behind the text, changes from place to place). The label starts
+ * at column label_x; the value follows it. */
 typedef struct screen_slot {
     int shown;                 /* 0: the device does not draw this index */
     int label_x, baseline;
@@ -61,6 +65,12 @@ struct screen_profile {
     size_t glyph_count;
 };
 
+/* Rows of the text itself (labels and glyphs are this tall). */
+static inline int screen_text_rows(const screen_profile *profile)
+{
+    return profile->band_above - 1;
+}
+
 /* screen_profile.c */
 screen_profile *screen_profile_new(void);
 /* Names as screens show them: "MI", "TIS", ... */
@@ -80,6 +90,10 @@ typedef struct screen_band {
 
 /* Median grey of rows top..bottom, columns left..right (clipped). */
 int screen_median(const screen_image *image, int top, int bottom, int left, int right);
+/* The background grey there: the median of the most common band of 24
+ * grey levels. Not the median of all: dense bold text, or the picture
+ * around a box drawn behind the text, can make up half the pixels. */
+int screen_background(const screen_image *image, int top, int bottom, int left, int right);
 
 static inline int screen_ink(const screen_image *image, int background, int x, int y)
 {
@@ -99,6 +113,14 @@ size_t screen_segment(const screen_image *image, const screen_band *band, int th
                       int left, int right, screen_blob *blobs, size_t max,
                       int *touches_end);
 
+/* 1 when a run fills the band from its top row to its bottom row: no
+ * character does (the band has a margin above and below the text); it is
+ * the edge of a box drawn behind the text, or the picture beside it. */
+static inline int screen_blob_is_barrier(const screen_blob *blob, const screen_band *band)
+{
+    return blob->top <= band->top && blob->bottom >= band->bottom;
+}
+
 /* Splits every run wider than split_width at its column of least ink
  * (characters drawn touching), keeping at most max runs in blobs; returns
  * the new count. */
@@ -114,8 +136,9 @@ double screen_correlate(const screen_image *image, int background, const screen_
 int screen_cut(const screen_image *image, int background, int top, int bottom, int left,
                int right, screen_template *t);
 
-/* screen_read.c: the background grey of a slot's text line (its median
- * from the label's first column to the end of the value's columns). */
+/* screen_read.c: the background grey of a slot's text line, from the
+ * label's first column to the end of the value's columns
+ * (screen_background). */
 int screen_slot_background(const screen_profile *profile, const screen_image *image,
                            const screen_slot *slot);
 

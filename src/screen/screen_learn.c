@@ -94,10 +94,11 @@ static mitilog_status find_components(const screen_image *image, learn_component
     int64_t *integral = malloc((size_t)(width + 1) * (size_t)(height + 1) * sizeof *integral);
     unsigned char *mask = calloc(pixels, 1);
     int *stack = malloc(pixels * sizeof *stack);
+    short *difference = malloc(pixels * sizeof *difference);
     learn_component *components = NULL;
     size_t used = 0, capacity = 0;
     mitilog_status status = MITILOG_OK;
-    if (integral == NULL || mask == NULL || stack == NULL) {
+    if (integral == NULL || mask == NULL || stack == NULL || difference == NULL) {
         status = MITILOG_ERROR_MEMORY;
         goto done;
     }
@@ -125,11 +126,15 @@ static mitilog_status find_components(const screen_image *image, learn_component
                           integral[(size_t)y1 * row_length + (size_t)x0] +
                           integral[(size_t)y0 * row_length + (size_t)x0];
             int mean = (int)(sum / ((int64_t)(y1 - y0) * (x1 - x0)));
-            int difference = image->grey[(size_t)y * image->stride + (size_t)x] - mean;
-            if (difference > LEARN_FIRST_THRESHOLD || difference < -LEARN_FIRST_THRESHOLD)
-                mask[(size_t)y * (size_t)width + (size_t)x] = 1;
+            difference[(size_t)y * (size_t)width + (size_t)x] =
+                (short)(image->grey[(size_t)y * image->stride + (size_t)x] - mean);
         }
     }
+    /* Brighter than the neighbourhood, then darker: one at a time, so that
+     * the dark box behind light text is not joined to its characters. */
+    for (int polarity = 1; polarity >= -1; polarity -= 2) {
+    for (size_t p = 0; p < pixels; p++)
+        mask[p] = difference[p] * polarity > LEARN_FIRST_THRESHOLD;
     for (size_t start = 0; start < pixels; start++) {
         if (mask[start] != 1)
             continue;
@@ -175,10 +180,12 @@ static mitilog_status find_components(const screen_image *image, learn_component
         }
         components[used++] = c;
     }
+    }
 done:
     free(integral);
     free(mask);
     free(stack);
+    free(difference);
     if (status != MITILOG_OK) {
         free(components);
         return status;
@@ -287,9 +294,20 @@ static mitilog_status find_lines(const screen_image *image, int threshold, learn
                 }
             }
         }
+        /* A character touching what lies beside the text (a box's edge,
+         * the picture) was joined to it in the search for characters:
+         * look a little further right. */
+        int right = line->right + 2 * line->height;
         line->blob_count = screen_segment(image, &line->band, line_threshold, line->left - 2,
-                                          line->right + 2, line->blobs, LEARN_BLOB_MAX,
-                                          &touches);
+                                          right, line->blobs, LEARN_BLOB_MAX, &touches);
+        /* What fills the band from top to bottom is no character (the
+         * edge of a box behind the text, the picture). */
+        size_t kept_blobs = 0;
+        for (size_t b = 0; b < line->blob_count; b++) {
+            if (!screen_blob_is_barrier(&line->blobs[b], &line->band))
+                line->blobs[kept_blobs++] = line->blobs[b];
+        }
+        line->blob_count = kept_blobs;
         /* No digit is wider than the line is high. */
         line->blob_count = screen_split_wide(image, &line->band, line_threshold, line->blobs,
                                              line->blob_count, LEARN_BLOB_MAX,
@@ -1045,6 +1063,23 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
                                    report.length ? "see the report" : "no value was given");
         goto done;
     }
+    /* Every index given a value must have been placed: when one was not,
+     * the place taken by another could be its own (a label misread, a
+     * value not found), and that other would read the wrong index. */
+    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+        int known = 0;
+        for (size_t e = 0; e < count; e++)
+            known |= examples[e].truth[i].status == SCREEN_VALUE_READ;
+        if (known && !learned[i]) {
+            status = mitilog_error_set(
+                error, MITILOG_ERROR_REFUSED,
+                "%s was given a value but not found on the screen, so the places found for "
+                "the other indices are not certain either: give values only for the indices "
+                "the screens show, or other frames (see the report)",
+                screen_index_label((ext_index)i));
+            goto done;
+        }
+    }
     snprintf(profile->key, sizeof profile->key, "%s", profile_key);
     if (device != NULL) {
         snprintf(profile->manufacturer, sizeof profile->manufacturer, "%s",
@@ -1098,9 +1133,9 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
         const learn_candidate *c = &picks[source][i].candidate;
         const learn_line *line = &frames[source].lines[c->line];
         int label_right = line->blobs[c->value_first - 1].right;
-        int top = slot->baseline - profile->band_above;
-        int bottom = slot->baseline + profile->band_below;
-        /* The label patch: its own columns, the band's rows. */
+        int top = slot->baseline - profile->band_above + 2;
+        int bottom = slot->baseline;
+        /* The label patch: its own columns, the text's rows. */
         slot->label.width = label_right - slot->label_x + 1;
         int background = screen_slot_background(profile, &examples[source].image, slot);
         if (screen_cut(&examples[source].image, background, top, bottom, slot->label_x,
@@ -1122,8 +1157,7 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
             int pick_background = screen_slot_background(profile, &examples[e].image, &here);
             for (size_t k = 0; k < pick->length; k++) {
                 if (add_glyph(profile, &examples[e].image, pick_background,
-                              here.baseline - profile->band_above,
-                              here.baseline + profile->band_below,
+                              here.baseline - profile->band_above + 2, here.baseline,
                               &pick_line->blobs[pick->value_first + k], pick->text[k],
                               &problem) != 0) {
                     status = mitilog_error_set(
@@ -1205,7 +1239,7 @@ mitilog_status screen_learn(const screen_device *device, const char *profile_key
      * tight fonts come apart. The first share whose profile reads its
      * examples back is kept; the report and reason are those of the
      * first try when none does. */
-    static const int shares[] = {45, 60, 35};
+    static const int shares[] = {45, 60, 35, 75};
     mitilog_error first_error = {{0}};
     char *first_report = report_text != NULL && report_size > 0 ? malloc(report_size) : NULL;
     mitilog_status first_status = MITILOG_OK;

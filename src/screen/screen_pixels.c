@@ -47,6 +47,41 @@ static int compare_blob_left(const void *a, const void *b)
  * columns (a colon, the dot of an i, a thin stroke broken by the
  * threshold) are one character. Column projections alone are not enough:
  * bold and tight fonts let neighbouring characters share a column. */
+int screen_background(const screen_image *image, int top, int bottom, int left, int right)
+{
+    enum { WINDOW = 24 };
+    if (top < 0) top = 0;
+    if (left < 0) left = 0;
+    if (bottom >= image->height) bottom = image->height - 1;
+    if (right >= image->width) right = image->width - 1;
+    unsigned histogram[256] = {0};
+    for (int y = top; y <= bottom; y++) {
+        const unsigned char *row = image->grey + (size_t)y * image->stride;
+        for (int x = left; x <= right; x++)
+            histogram[row[x]]++;
+    }
+    unsigned window = 0, best = 0;
+    int best_start = 0;
+    for (int level = 0; level < 256; level++) {
+        window += histogram[level];
+        if (level >= WINDOW)
+            window -= histogram[level - WINDOW];
+        if (window > best) {
+            best = window;
+            best_start = level - WINDOW + 1 < 0 ? 0 : level - WINDOW + 1;
+        }
+    }
+    if (best == 0)
+        return 0;
+    unsigned seen = 0;
+    for (int level = best_start; level < best_start + WINDOW && level < 256; level++) {
+        seen += histogram[level];
+        if (seen * 2 >= best)
+            return level;
+    }
+    return best_start;
+}
+
 size_t screen_segment(const screen_image *image, const screen_band *band, int threshold,
                       int left, int right, screen_blob *blobs, size_t max,
                       int *touches_end)

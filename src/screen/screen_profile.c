@@ -310,7 +310,7 @@ static int parse_line(screen_profile *profile, char *line, int line_number, int 
         if (sscanf(rest, "%d", &profile->columns) != 1 || profile->columns < 0) return -1;
     } else if (strcmp(name, "band") == 0) {
         if (sscanf(rest, "%d %d", &profile->band_above, &profile->band_below) != 2 ||
-            profile->band_above < 1 || profile->band_below < 0 ||
+            profile->band_above < 3 || profile->band_below < 0 ||
             profile->band_above + profile->band_below > 120)
             return -1;
     } else if (strcmp(name, "ink_threshold") == 0) {
@@ -396,7 +396,7 @@ static const char *check_profile(const screen_profile *profile)
         return "it has no key";
     if (profile->band_above < 1 || profile->ink_threshold < 1)
         return "it has no text band or ink threshold";
-    int height = profile->band_above + profile->band_below + 1;
+    int height = screen_text_rows(profile);
     int shown = 0;
     for (int i = 0; i < EXT_INDEX_COUNT; i++) {
         const screen_slot *slot = &profile->slots[i];
@@ -404,13 +404,13 @@ static const char *check_profile(const screen_profile *profile)
             continue;
         shown++;
         if (slot->label.ink == NULL || slot->label.height != height)
-            return "a slot has no label patch of the band's height";
+            return "a slot has no label patch as tall as the text";
     }
     if (shown == 0)
         return "it reads no index";
     for (size_t i = 0; i < profile->glyph_count; i++) {
         if (profile->glyphs[i].shape.height != height)
-            return "a glyph is not as tall as the text band";
+            return "a glyph is not as tall as the text";
     }
     return NULL;
 }

@@ -39,8 +39,8 @@ int screen_slot_background(const screen_profile *profile, const screen_image *im
                            const screen_slot *slot)
 {
     int top = band_top(profile, slot);
-    return screen_median(image, top, top + band_height(profile) - 1, slot->label_x,
-                         slot->label_x + slot->label.width + slot->span);
+    return screen_background(image, top, top + band_height(profile) - 1, slot->label_x,
+                             slot->label_x + slot->label.width + slot->span);
 }
 
 static label_match match_label(const screen_profile *profile, const screen_image *image,
@@ -52,7 +52,7 @@ static label_match match_label(const screen_profile *profile, const screen_image
     for (int dy = -SCREEN_LABEL_SHIFT; dy <= SCREEN_LABEL_SHIFT; dy++) {
         for (int dx = -SCREEN_LABEL_SHIFT; dx <= SCREEN_LABEL_SHIFT; dx++) {
             double score = screen_correlate(image, best.background, &slot->label,
-                                            slot->label_x + dx, top + dy);
+                                            slot->label_x + dx, top + 2 + dy);
             if (score > best.score) {
                 best.score = score;
                 best.dx = dx;
@@ -214,16 +214,28 @@ static void read_slot(const screen_profile *profile, const screen_image *image, 
         limit = image->width - 1;
         frame_edge = 1;
     }
+    /* Characters are cut on the text's rows and the one under the
+     * baseline: the margin above may show the picture around a box drawn
+     * behind the text, which would join them. */
+    screen_band rows = {.top = band.top + 2,
+                        .bottom = band.top + profile->band_above + 1,
+                        .background = band.background};
     screen_blob blobs[SCREEN_VALUE_CHARACTERS_MAX + 2];
-    size_t count = screen_segment(image, &band, threshold, start, limit, blobs,
+    size_t count = screen_segment(image, &rows, threshold, start, limit, blobs,
                                   sizeof blobs / sizeof blobs[0], &touches);
-    count = screen_split_wide(image, &band, threshold, blobs, count,
+    count = screen_split_wide(image, &rows, threshold, blobs, count,
                               sizeof blobs / sizeof blobs[0], profile->split_width);
     /* A speck off the baseline (a pixel of the label's edge, noise) is no
      * character: points sit on the baseline, digits are tall. */
     int baseline = band.top + profile->band_above;
     size_t kept = 0;
     for (size_t i = 0; i < count; i++) {
+        /* The edge of the box behind the text, or the picture: the text
+         * ends there. */
+        if (screen_blob_is_barrier(&blobs[i], &rows)) {
+            touches = 0;
+            break;
+        }
         int tall = (blobs[i].bottom - blobs[i].top + 1) * 4 > profile->band_above;
         if (tall || blobs[i].bottom >= baseline - 1)
             blobs[kept++] = blobs[i];
@@ -251,7 +263,7 @@ static void read_slot(const screen_profile *profile, const screen_image *image, 
     char text[SCREEN_VALUE_CHARACTERS_MAX + 1];
     for (size_t i = 0; i < used; i++) {
         const char *why = NULL;
-        char character = match_blob(profile, image, band.background, band.top, &blobs[i],
+        char character = match_blob(profile, image, band.background, band.top + 2, &blobs[i],
                                     &why);
         if (character == 0) {
             value->status = SCREEN_VALUE_NOT_READ;

@@ -382,11 +382,31 @@ static void learning_refuses(void **state)
     screen_profile *profile = NULL;
     char report[2048];
     mitilog_error error = {{0}};
+    /* One frame: its three values of one shape cannot be told apart. */
     assert_int_equal(screen_learn(NULL, "k", examples, 1, &profile, report, sizeof report,
                                   &error),
                      MITILOG_ERROR_REFUSED);
     assert_null(profile);
+
+    /* Without TIB's values, 5 and 6 are never seen. */
+    parse_truth("MI=1.2,TIS=3.4", examples[0].truth);
+    parse_truth("MI=0.7,TIS=8.9", examples[1].truth);
+    assert_int_equal(screen_learn(NULL, "k", examples, 2, &profile, report, sizeof report,
+                                  &error),
+                     MITILOG_ERROR_REFUSED);
+    assert_null(profile);
     assert_non_null(strstr(error.text, "every digit"));
+    assert_non_null(strstr(error.text, "5 6"));
+    parse_truth("MI=0.7,TIS=8.9,TIB=0.8", examples[1].truth);
+
+    /* A value given for an index the screen does not show: the places of
+     * the others are not certain either (it could have taken one). */
+    parse_truth("MI=1.2,TIS=3.4,TIB=5.6,TIC=4.1", examples[0].truth);
+    assert_int_equal(screen_learn(NULL, "k", examples, 2, &profile, report, sizeof report,
+                                  &error),
+                     MITILOG_ERROR_REFUSED);
+    assert_null(profile);
+    assert_non_null(strstr(error.text, "TIC was given a value but not found"));
 
     /* MI typed as 1.3 where the screen shows 1.2. */
     parse_truth("MI=1.3,TIS=3.4,TIB=5.6", examples[0].truth);
