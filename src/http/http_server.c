@@ -99,6 +99,31 @@ http_reply http_error_reply(http_server *server, unsigned status,
     return http_json_reply(status, json);
 }
 
+http_reply http_status_reply(http_server *server, mitilog_status status, char *body,
+                             const char *content_type, const mitilog_error *error)
+{
+    if (status == MITILOG_OK) {
+        http_reply reply = http_json_reply(MHD_HTTP_OK, body);
+        if (content_type != NULL && reply.status == MHD_HTTP_OK && reply.response != NULL) {
+            MHD_del_response_header(reply.response, "Content-Type",
+                                    "application/json; charset=utf-8");
+            MHD_add_response_header(reply.response, "Content-Type", content_type);
+        }
+        return reply;
+    }
+    free(body);
+    unsigned code;
+    switch (status) {
+    case MITILOG_ERROR_INVALID: code = MHD_HTTP_BAD_REQUEST; break;
+    case MITILOG_ERROR_NOT_FOUND: code = MHD_HTTP_NOT_FOUND; break;
+    case MITILOG_ERROR_DATABASE: code = MHD_HTTP_SERVICE_UNAVAILABLE; break;
+    default: code = MHD_HTTP_INTERNAL_SERVER_ERROR; break;
+    }
+    return http_error_reply(server, code, "%s",
+                            error != NULL && error->text[0] != '\0' ? error->text
+                                                                    : mitilog_status_name(status));
+}
+
 /* Queues reply on connection with the common headers; frees it. */
 static enum MHD_Result http_queue(struct MHD_Connection *connection,
                                   http_reply reply)

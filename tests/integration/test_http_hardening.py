@@ -1,0 +1,153 @@
+"""The HTTP side against hostile or careless clients: one parameter checker
+for every endpoint (real calendar dates, instants with their offsets, years
+in range), slow clients that must not take the API down, libmicrohttpd's
+own edge cases, login throttling and the HTTPS profile.
+
+Every client here is a real one on 127.0.0.1 (raw sockets, http.client,
+openssl s_client); every wait is bounded."""
+import datetime
+import http.client
+import json
+import socket
+import time
+
+import pytest
+
+from conftest import BINARY, run
+
+
+def raw_get(port, target, timeout=10, source="127.0.0.1"):
+    """GET over a fresh socket; (status, headers dict, body bytes)."""
+    connection = http.client.HTTPConnection("127.0.0.1", port, timeout=timeout,
+                                            source_address=(source, 0))
+    try:
+        connection.request("GET", target)
+        response = connection.getresponse()
+        return response.status, dict(response.getheaders()), response.read()
+    finally:
+        connection.close()
+
+
+def error_text(body):
+    """The message of the project's error document (docs/api.md: errors are
+    {"error": "..."}); fails if the body is anything else."""
+    document = json.loads(body)
+    assert set(document) == {"error"}, document
+    return document["error"]
+
+
+@pytest.fixture(scope="module")
+def served(module_daemon_factory, fixtures):
+    """A daemon holding one stored object (sent with DCMTK's storescu)."""
+    daemon = module_daemon_factory("parameters")
+    daemon.start()
+    usable = [f for f in fixtures["manifest"] if f.get("expect", "stored") == "stored"]
+    result = daemon.storescu([usable[0]["path"]])
+    assert result.returncode == 0, result.stderr
+    return daemon
+
+
+# ---- one parameter checker for every endpoint ---------------------------
+
+# Dates that do not exist in the proleptic Gregorian calendar (ISO 8601-1
+# 4.3.2: months 01-12, day within its month; 2026 is not a leap year), or
+# lie outside the years the API accepts (docs/api.md, "Parameters").
+IMPOSSIBLE_DATES = ["2026-02-31", "2026-02-29", "2026-13-45", "2026-04-31",
+                    "2026-00-10", "10000-01-01", "0000-01-01", "1899-12-31",
+                    "9999-12-31", "2026-1-01", "2026-01-01T00:00"]
+DATE_ENDPOINTS = ["/api/v1/findings", "/api/v1/studies", "/api/v1/stats"]
+
+
+@pytest.mark.parametrize("endpoint", DATE_ENDPOINTS)
+@pytest.mark.parametrize("name", ["from", "to"])
+def test_impossible_dates_are_refused_everywhere(served, endpoint, name):
+    for date in IMPOSSIBLE_DATES:
+        status, body = served.get("%s?%s=%s" % (endpoint, name, date))
+        assert status == 400, (endpoint, name, date, body)
+        assert set(body) == {"error"} and ("parameter %s" % name) in body["error"]
+    # A real date (2024 is a leap year, ISO 8601-1 4.3.2) is accepted.
+    status, body = served.get("%s?%s=2024-02-29" % (endpoint, name))
+    assert status == 200, body
+
+
+@pytest.mark.parametrize("endpoint", DATE_ENDPOINTS)
+def test_a_period_that_ends_before_it_starts_is_refused(served, endpoint):
+    # common practice, no source: an empty period is a client mistake
+    status, body = served.get("%s?from=2026-03-02&to=2026-03-01" % endpoint)
+    assert status == 400 and "from" in body["error"], body
+
+
+@pytest.mark.parametrize("endpoint", ["/api/v1/outliers", "/api/v1/drift"])
+def test_weeks_with_years_out_of_range_are_refused(served, endpoint):
+    # Before: week=9999-W52 answered a period ending "0000-01-02" (the year
+    # wrapped). ISO 8601-1 4.3.2: a week date's year has four digits.
+    for week in ["9999-W52", "9999-W01", "0001-W01", "1899-W10", "2025-W53", "2026-W00"]:
+        status, body = served.get("%s?week=%s" % (endpoint, week))
+        assert status == 400, (week, body)
+        assert "parameter week" in body["error"]
+    status, body = served.get("%s?week=2026-W53" % endpoint)  # 2026 has 53 weeks
+    assert status == 200, body
+
+
+def test_since_is_an_instant_with_its_offset(served):
+    everything = served.get_json("/api/v1/instances?limit=10")
+    assert len(everything) == 1
+    received = everything[0]["received_at"]       # e.g. 2026-12-03T09:51:12.345Z
+    at = datetime.datetime.strptime(received, "%Y-%m-%dT%H:%M:%S.%fZ").replace(
+        tzinfo=datetime.timezone.utc)
+
+    def count(since):
+        status, body = served.get("/api/v1/instances?since=" + since.replace("+", "%2B"))
+        assert status == 200, (since, body)
+        return len(body)
+
+    second = at.replace(microsecond=0)
+    # RFC 3339 5.6: "Z" is UTC; the same second without a fraction is the
+    # start of that second, so the object received later in it is included
+    # (before: "...:12Z" sorted after "...:12.345Z" as text and dropped it).
+    assert count(second.strftime("%Y-%m-%dT%H:%M:%SZ")) == 1
+    assert count(second.strftime("%Y-%m-%dT%H:%M:%S")) == 1  # no offset: UTC
+    # RFC 3339 5.6: "+02:00" is two hours ahead of UTC; 11:51:12+02:00 is
+    # 09:51:12Z (before: the offset was ignored and the text compared).
+    ahead = second.astimezone(datetime.timezone(datetime.timedelta(hours=2)))
+    assert count(ahead.strftime("%Y-%m-%dT%H:%M:%S+02:00")) == 1
+    assert count(ahead.strftime("%Y-%m-%dT%H:%M:%S+0200")) == 1
+    behind = second.astimezone(datetime.timezone(datetime.timedelta(hours=-5, minutes=-30)))
+    assert count(behind.strftime("%Y-%m-%dT%H:%M:%S-05:30")) == 1
+    # One millisecond after the receipt, in any offset: nothing.
+    later = at + datetime.timedelta(milliseconds=1)
+    assert count(later.strftime("%Y-%m-%dT%H:%M:%S.") + "%03dZ" % (later.microsecond // 1000)) == 0
+    later_ahead = later.astimezone(datetime.timezone(datetime.timedelta(hours=2)))
+    assert count(later_ahead.strftime("%Y-%m-%dT%H:%M:%S.")
+                 + "%03d+02:00" % (later_ahead.microsecond // 1000)) == 0
+    # At the exact millisecond: included ("at or after", docs/api.md).
+    assert count(received) == 1
+    # A day-only instant is that day's midnight UTC.
+    assert count(at.strftime("%Y-%m-%d")) == 1
+    assert count((at + datetime.timedelta(days=1)).strftime("%Y-%m-%d")) == 0
+
+
+def test_impossible_instants_are_refused(served):
+    # ISO 8601-1 4.3.2 / RFC 3339 5.6 (hours 00-23, minutes and seconds
+    # 00-59, offsets hh:mm) and the API's year range.
+    for since in ["2026-13-45", "2026-02-30T10:00:00Z", "2026-01-01T24:00:00Z",
+                  "2026-01-01T10:60:00Z", "2026-01-01T10:00:61Z", "2026-01-01T10:00+25:00",
+                  "2026-01-01T10:00:00ZZ", "2026-01-01T10", "yesterday", "1899-12-31T23:00:00Z",
+                  "9999-12-31T23:00:00-02:00", "2026-01-01T10:00:00.Z"]:
+        status, body = served.get("/api/v1/instances?since=" + since.replace("+", "%2B"))
+        assert status == 400, (since, body)
+        assert "parameter since" in error_text(json.dumps(body))
+
+
+def test_error_documents_keep_one_shape_and_headers(served):
+    # docs/api.md: every error is {"error": "..."} as JSON with the common
+    # security headers (Content-Security-Policy, nosniff).
+    for target, expected in [("/api/v1/findings?limit=0", 400),
+                             ("/api/v1/studies/1.2.3", 404),
+                             ("/api/v1/nothing", 404),
+                             ("/api/v1/instances?study=x", 400)]:
+        status, headers, body = raw_get(served.http_port, target)
+        assert status == expected, (target, body)
+        assert headers["Content-Type"].startswith("application/json")
+        assert headers["X-Content-Type-Options"] == "nosniff"
+        error_text(body)
