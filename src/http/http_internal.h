@@ -19,6 +19,21 @@
 #include "http/http.h"
 #include "http/http_auth.h"
 
+/* http_guard.c: the deadline for receiving each request (see there). */
+typedef struct http_guard http_guard;
+mitilog_status http_guard_start(unsigned deadline_seconds, http_guard **out,
+                                mitilog_error *error);
+void http_guard_stop(http_guard *guard);
+/* MHD_OPTION_NOTIFY_CONNECTION callback; context is the guard. */
+void http_guard_notify(void *context, struct MHD_Connection *connection, void **socket_context,
+                       enum MHD_ConnectionNotificationCode code);
+/* Notes the length of the request target (URI log callback). */
+void http_guard_target(http_guard *guard, struct MHD_Connection *connection, size_t length);
+/* The request has arrived whole: stops its clock; gives the target length. */
+size_t http_guard_received(http_guard *guard, struct MHD_Connection *connection);
+/* The reply is done: the next request on this connection starts now. */
+void http_guard_completed(http_guard *guard, struct MHD_Connection *connection);
+
 struct http_server {
     struct MHD_Daemon *daemon;
     store *store;
@@ -30,6 +45,7 @@ struct http_server {
     http_auth *auth;             /* NULL: no login required              */
     char *tls_certificate;       /* PEM text kept for MHD, NULL: HTTP    */
     char *tls_private_key;
+    http_guard *guard;           /* request deadlines                    */
 };
 
 /* A response to queue: status code and the response (owned). */

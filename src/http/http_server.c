@@ -21,17 +21,43 @@
 
 enum {
     HTTP_THREAD_POOL_SIZE = 4,
-    HTTP_CONNECTION_LIMIT = 64,
-    HTTP_CONNECTION_TIMEOUT_S = 30,
-    HTTP_ERROR_MESSAGE_MAX = 300
+    HTTP_DEFAULT_CONNECTIONS = 256,
+    HTTP_DEFAULT_CONNECTIONS_PER_ADDRESS = 32,
+    HTTP_DEFAULT_REQUEST_TIMEOUT_S = 10,
+    HTTP_IDLE_TIMEOUT_S = 30,
+    HTTP_ERROR_MESSAGE_MAX = 300,
+    /* Request target (path and query) and header fields this server
+     * reads; longer ones answer 414 and 431 (RFC 9110 4.1 recommends
+     * supporting targets of at least 8000 octets). */
+    HTTP_TARGET_MAX = 8192,
+    HTTP_HEADERS_MAX = 16384
 };
+
+/* Memory of one connection for its request head and libmicrohttpd's
+ * records of each parameter and header (about 64 bytes each): large
+ * enough that a target of HTTP_TARGET_MAX bytes, split into as many
+ * parameters as it can hold, still reaches the access handler (which then
+ * answers), instead of libmicrohttpd running out of memory half-way. The
+ * pages are mapped on demand: an ordinary request touches a few. */
+static const size_t http_connection_memory = 1024 * 1024;
+
+/* GnuTLS priorities for HTTPS: TLS 1.3 and 1.2 only, key exchange by
+ * ephemeral elliptic-curve Diffie-Hellman (forward secrecy), AEAD ciphers
+ * only (AES-GCM, ChaCha20-Poly1305): the recommendations of BCP 195
+ * (RFC 9325 4.1 and 4.2), as on the DICOM side. */
+static const char http_tls_priorities[] =
+    "NORMAL:-VERS-ALL:+VERS-TLS1.3:+VERS-TLS1.2:-KX-ALL:+ECDHE-RSA:+ECDHE-ECDSA:"
+    "-CIPHER-ALL:+AES-256-GCM:+AES-128-GCM:+CHACHA20-POLY1305:-MAC-ALL:+AEAD:%SERVER_PRECEDENCE";
 
 /* The last resort when SQLite cannot build an error body: a constant. */
 static const char http_fallback_error[] = "{\"error\":\"internal error\"}";
 
-/* Headers of every response: no MIME sniffing, no framing, own origin. */
-static void http_add_common_headers(struct MHD_Response *response)
+/* Headers of every response: no MIME sniffing, no framing, own origin;
+ * over HTTPS, HTTPS only for a year (RFC 6797 6.1). */
+static void http_add_common_headers(const http_server *server, struct MHD_Response *response)
 {
+    if (server->tls_certificate != NULL)
+        MHD_add_response_header(response, "Strict-Transport-Security", "max-age=31536000");
     MHD_add_response_header(response, "Referrer-Policy", "no-referrer");
     MHD_add_response_header(response, "X-Content-Type-Options", "nosniff");
     MHD_add_response_header(response, "X-Frame-Options", "DENY");
@@ -125,12 +151,12 @@ http_reply http_status_reply(http_server *server, mitilog_status status, char *b
 }
 
 /* Queues reply on connection with the common headers; frees it. */
-static enum MHD_Result http_queue(struct MHD_Connection *connection,
+static enum MHD_Result http_queue(const http_server *server, struct MHD_Connection *connection,
                                   http_reply reply)
 {
     if (reply.response == NULL)
         return MHD_NO; /* out of memory: MHD closes the connection */
-    http_add_common_headers(reply.response);
+    http_add_common_headers(server, reply.response);
     enum MHD_Result result =
         MHD_queue_response(connection, reply.status, reply.response);
     MHD_destroy_response(reply.response);
@@ -158,11 +184,21 @@ static enum MHD_Result http_queue_login_request(http_server *server,
                                         "a login is required");
     if (reply.response == NULL)
         return MHD_NO;
-    http_add_common_headers(reply.response);
+    http_add_common_headers(server, reply.response);
     enum MHD_Result result =
         MHD_queue_basic_auth_fail_response(connection, "mitilog", reply.response);
     MHD_destroy_response(reply.response);
     return result;
+}
+
+/* Adds the bytes of one header field ("name: value" and CRLF). */
+static enum MHD_Result http_count_header(void *context, enum MHD_ValueKind kind,
+                                         const char *key, const char *value)
+{
+    (void)kind;
+    size_t *total = context;
+    *total += strlen(key) + (value != NULL ? strlen(value) : 0) + 4;
+    return MHD_YES;
 }
 
 /* MHD access handler: GET and HEAD only (MHD leaves out the body of a
@@ -181,6 +217,20 @@ static enum MHD_Result http_handle(void *context,
     (void)state;
     http_server *server = context;
     http_reply reply;
+    size_t target = http_guard_received(server->guard, connection);
+    if (target > HTTP_TARGET_MAX)
+        return http_queue(server, connection,
+                          http_error_reply(server, MHD_HTTP_URI_TOO_LONG,
+                                           "the request target (path and query) has %zu bytes; "
+                                           "at most %d are read",
+                                           target, HTTP_TARGET_MAX));
+    size_t header_bytes = 0;
+    MHD_get_connection_values(connection, MHD_HEADER_KIND, http_count_header, &header_bytes);
+    if (header_bytes > HTTP_HEADERS_MAX)
+        return http_queue(server, connection,
+                          http_error_reply(server, MHD_HTTP_REQUEST_HEADER_FIELDS_TOO_LARGE,
+                                           "the header fields have %zu bytes; at most %d are read",
+                                           header_bytes, HTTP_HEADERS_MAX));
     if (server->auth != NULL && strcmp(url, "/healthz") != 0 &&
         !http_login_accepted(server, connection))
         return http_queue_login_request(server, connection);
@@ -190,13 +240,32 @@ static enum MHD_Result http_handle(void *context,
                                  "method not allowed: %s", method);
         if (reply.response != NULL)
             MHD_add_response_header(reply.response, "Allow", "GET, HEAD");
-        return http_queue(connection, reply);
+        return http_queue(server, connection, reply);
     }
     if (http_route_api(server, connection, url, &reply) ||
         http_route_static(server, url, &reply))
-        return http_queue(connection, reply);
-    return http_queue(connection, http_error_reply(server, MHD_HTTP_NOT_FOUND,
-                                                   "not found: %s", url));
+        return http_queue(server, connection, reply);
+    return http_queue(server, connection, http_error_reply(server, MHD_HTTP_NOT_FOUND,
+                                                           "not found: %s", url));
+}
+
+/* MHD_OPTION_URI_LOG_CALLBACK: sees the request target before MHD splits
+ * off its parameters; only its length is kept. */
+static void *http_target_seen(void *context, const char *uri, struct MHD_Connection *connection)
+{
+    http_server *server = context;
+    http_guard_target(server->guard, connection, strlen(uri));
+    return NULL;
+}
+
+/* MHD_OPTION_NOTIFY_COMPLETED: a reply is done. */
+static void http_request_completed(void *context, struct MHD_Connection *connection,
+                                   void **state, enum MHD_RequestTerminationCode code)
+{
+    (void)state;
+    (void)code;
+    http_server *server = context;
+    http_guard_completed(server->guard, connection);
 }
 
 /* Routes libmicrohttpd's own messages into the log. */
@@ -366,7 +435,22 @@ mitilog_status http_server_start(const http_settings *settings, store *st,
     struct MHD_OptionItem tls_options[] = {
         {MHD_OPTION_HTTPS_MEM_CERT, 0, server->tls_certificate},
         {MHD_OPTION_HTTPS_MEM_KEY, 0, server->tls_private_key},
+        {MHD_OPTION_HTTPS_PRIORITIES, 0, (void *)http_tls_priorities},
         {MHD_OPTION_END, 0, NULL}};
+    unsigned connections = settings->max_connections != 0 ? settings->max_connections
+                                                          : HTTP_DEFAULT_CONNECTIONS;
+    unsigned per_address = settings->max_connections_per_address == 0
+                               ? HTTP_DEFAULT_CONNECTIONS_PER_ADDRESS
+                           : settings->max_connections_per_address == HTTP_SETTINGS_UNLIMITED
+                               ? 0 /* MHD: no limit */
+                               : settings->max_connections_per_address;
+    unsigned deadline = settings->request_timeout_seconds != 0
+                            ? settings->request_timeout_seconds
+                            : HTTP_DEFAULT_REQUEST_TIMEOUT_S;
+    if (http_guard_start(deadline, &server->guard, error) != MITILOG_OK) {
+        http_server_stop(server);
+        return MITILOG_ERROR_IO;
+    }
     if (server->tls_certificate == NULL)
         tls_options[0].option = MHD_OPTION_END;
     server->daemon = MHD_start_daemon(
@@ -375,8 +459,13 @@ mitilog_status http_server_start(const http_settings *settings, store *st,
         MHD_OPTION_EXTERNAL_LOGGER, &http_log_library, NULL,
         MHD_OPTION_SOCK_ADDR, (struct sockaddr *)&address,
         MHD_OPTION_THREAD_POOL_SIZE, (unsigned)HTTP_THREAD_POOL_SIZE,
-        MHD_OPTION_CONNECTION_LIMIT, (unsigned)HTTP_CONNECTION_LIMIT,
-        MHD_OPTION_CONNECTION_TIMEOUT, (unsigned)HTTP_CONNECTION_TIMEOUT_S,
+        MHD_OPTION_CONNECTION_LIMIT, connections,
+        MHD_OPTION_PER_IP_CONNECTION_LIMIT, per_address,
+        MHD_OPTION_CONNECTION_TIMEOUT, (unsigned)HTTP_IDLE_TIMEOUT_S,
+        MHD_OPTION_CONNECTION_MEMORY_LIMIT, http_connection_memory,
+        MHD_OPTION_NOTIFY_CONNECTION, &http_guard_notify, server->guard,
+        MHD_OPTION_NOTIFY_COMPLETED, &http_request_completed, server,
+        MHD_OPTION_URI_LOG_CALLBACK, &http_target_seen, server,
         MHD_OPTION_END);
     if (server->daemon == NULL) {
         mitilog_status status =
@@ -387,8 +476,15 @@ mitilog_status http_server_start(const http_settings *settings, store *st,
     const union MHD_DaemonInfo *info =
         MHD_get_daemon_info(server->daemon, MHD_DAEMON_INFO_BIND_PORT);
     server->port = info != NULL ? info->port : settings->port;
-    log_info("http: listening on %s://%s:%u%s%s%s",
-             server->tls_certificate != NULL ? "https" : "http", text, server->port,
+    char per_address_text[32];
+    if (per_address == 0)
+        snprintf(per_address_text, sizeof per_address_text, "no limit");
+    else
+        snprintf(per_address_text, sizeof per_address_text, "%u", per_address);
+    log_info("http: listening on %s://%s:%u (at most %u connections, per address %s, "
+             "%u s to send a request)%s%s%s",
+             server->tls_certificate != NULL ? "https" : "http", text, server->port, connections,
+             per_address_text, deadline,
              server->auth != NULL ? " (login required)" : "",
              server->web_root != NULL ? ", files from " : "",
              server->web_root != NULL ? server->web_root : "");
@@ -402,6 +498,7 @@ void http_server_stop(http_server *server)
         return;
     if (server->daemon != NULL)
         MHD_stop_daemon(server->daemon);
+    http_guard_stop(server->guard);
     sqlite3_finalize(server->error_json);
     sqlite3_close(server->json);
     pthread_mutex_destroy(&server->json_lock);

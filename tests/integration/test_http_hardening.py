@@ -151,3 +151,157 @@ def test_error_documents_keep_one_shape_and_headers(served):
         assert headers["Content-Type"].startswith("application/json")
         assert headers["X-Content-Type-Options"] == "nosniff"
         error_text(body)
+
+
+# ---- slow clients --------------------------------------------------------
+
+class Dribbler:
+    """Connections that send a request head one byte at a time, the way a
+    slow-headers attack does (common practice, no source)."""
+    HEAD = b"GET /healthz HTTP/1.1\r\nHost: x\r\nX-Slow: " + b"a" * 4000
+
+    def __init__(self, port, count, source):
+        self.sockets = []
+        self.sent = 0
+        for _ in range(count):
+            s = socket.socket(socket.AF_INET, socket.SOCK_STREAM)
+            s.settimeout(2)
+            s.bind((source, 0))
+            try:
+                s.connect(("127.0.0.1", port))
+            except OSError:
+                s.close()
+                continue
+            self.sockets.append(s)
+        self.step()
+
+    def step(self):
+        """One more byte on every connection the server has not closed;
+        returns how many are still open."""
+        byte = self.HEAD[self.sent:self.sent + 1]
+        self.sent += 1
+        still = []
+        for s in self.sockets:
+            try:
+                s.send(byte)
+                still.append(s)
+            except OSError:
+                s.close()
+        self.sockets = still
+        return len(still)
+
+    def close(self):
+        for s in self.sockets:
+            s.close()
+
+
+def closed_by_server(s, wait):
+    """True when the server closes s (EOF or reset) within wait seconds."""
+    s.settimeout(wait)
+    try:
+        return s.recv(1) == b""
+    except socket.timeout:
+        return False
+    except OSError:
+        return True
+
+
+def healthz_answered(port, source="127.0.0.1", wait=5):
+    try:
+        status, _, body = raw_get(port, "/healthz", timeout=wait, source=source)
+        return status == 200 and b'"status"' in body
+    except OSError:
+        return False
+
+
+def test_dribbling_clients_leave_healthz_answered(daemon_factory):
+    # Before: 70 dribbling connections filled libmicrohttpd's 64 slots and
+    # /healthz got no answer for as long as they dribbled.
+    daemon = daemon_factory()  # defaults: 256 connections, 32 per address, 10 s deadline
+    daemon.start()
+    dribbler = Dribbler(daemon.http_port, 70, "127.0.0.2")
+    try:
+        answered = 0
+        for _ in range(6):
+            dribbler.step()
+            answered += healthz_answered(daemon.http_port)
+            time.sleep(0.5)
+        assert answered == 6
+        # The client holding the slots kept its share: 32 per address.
+        assert 0 < dribbler.step() <= 32
+    finally:
+        dribbler.close()
+    daemon.allowed_error_patterns.append(r"http: ")
+
+
+def test_a_request_must_arrive_whole_within_the_deadline(daemon_factory):
+    # Before: each byte restarted libmicrohttpd's idle timeout, so a client
+    # sending one byte a second kept its connection for good.
+    # Default deadline: 10 s (docs/configuration.md).
+    daemon = daemon_factory()
+    daemon.start()
+    mark = daemon.mark()
+    dribbler = Dribbler(daemon.http_port, 1, "127.0.0.1")
+    try:
+        open_connections = 1
+        for _ in range(40):           # 40 bytes over about 20 s
+            time.sleep(0.5)
+            open_connections = dribbler.step()
+            if open_connections == 0:
+                break
+        assert open_connections == 0, "the server kept a dribbling connection for 20 s"
+    finally:
+        dribbler.close()
+    assert "no whole request within 10 s" in daemon.log()[mark:]
+    daemon.allowed_error_patterns.append(r"http: ")  # MHD's note on the closed socket
+    # A kept-alive connection gets a fresh deadline for each request.
+    connection = http.client.HTTPConnection("127.0.0.1", daemon.http_port, timeout=10)
+    for _ in range(3):
+        connection.request("GET", "/healthz")
+        response = connection.getresponse()
+        assert response.status == 200
+        response.read()
+        time.sleep(1)
+    connection.close()
+
+
+def test_one_address_cannot_take_every_slot(daemon_factory):
+    daemon = daemon_factory()  # default: 32 connections per address
+    daemon.start()
+    held = []
+    try:
+        for _ in range(32):
+            s = socket.create_connection(("127.0.0.1", daemon.http_port), timeout=5,
+                                         source_address=("127.0.0.2", 0))
+            held.append(s)
+        extra = socket.create_connection(("127.0.0.1", daemon.http_port), timeout=5,
+                                         source_address=("127.0.0.2", 0))
+        held.append(extra)
+        # The 33rd from the same address is closed at once...
+        assert closed_by_server(extra, 5)
+        # ...while another address is served.
+        assert healthz_answered(daemon.http_port, source="127.0.0.1")
+    finally:
+        for s in held:
+            s.close()
+    daemon.allowed_error_patterns.append(r"http: ")
+
+
+def test_dribblers_from_the_monitor_address_are_cut_and_healthz_returns(daemon_factory):
+    # The monitor and the slow client share 127.0.0.1: the per-address
+    # limit then refuses the monitor too, until the deadline frees it.
+    daemon = daemon_factory()  # default deadline: 10 s
+    daemon.start()
+    dribbler = Dribbler(daemon.http_port, 70, "127.0.0.1")
+    try:
+        answered = False
+        for _ in range(30):           # at most about 45 s
+            dribbler.step()
+            if healthz_answered(daemon.http_port, wait=1):
+                answered = True
+                break
+            time.sleep(0.5)
+        assert answered
+    finally:
+        dribbler.close()
+    daemon.allowed_error_patterns.append(r"http: ")
