@@ -7,6 +7,7 @@
 #include "cli/cli_options.h"
 #include "cli/commands.h"
 #include "config/config_site.h"
+#include "http/http_auth.h"
 #include "rules/rules.h"
 
 /* The site rules file ([site] rules): exam types, rooms, shifts, SR codes. */
@@ -25,6 +26,36 @@ static int check_site(const char *path)
                rules.sr_code_count);
     }
     ext_site_rules_free(&rules);
+    return status;
+}
+
+/* What the HTTP side will be: scheme, login (the password file is read
+ * and checked), limits. */
+static int check_http(const config *config)
+{
+    int https = config->http_tls_certificate[0] != '\0';
+    char login[600] = "no login";
+    int status = 0;
+    if (config->http_password_file[0] != '\0') {
+        http_auth *auth = NULL;
+        mitilog_error error;
+        if (http_auth_load(config->http_password_file, &auth, &error) != MITILOG_OK) {
+            fprintf(stderr, "mitilog: [http] password_file: %s\n", error.text);
+            return -1;
+        }
+        snprintf(login, sizeof login, "login required (%zu users in %s)",
+                 http_auth_user_count(auth), config->http_password_file);
+        http_auth_free(auth);
+    }
+    char per_address[32] = "no limit";
+    if (config->http_max_connections_per_address != 0)
+        snprintf(per_address, sizeof per_address, "%u", config->http_max_connections_per_address);
+    printf("\n; HTTP: %s://%s:%u/ %s, %s; at most %u connections, per address %s, "
+           "%u s to send a request\n",
+           https ? "https" : "http", config->http_address, config->http_port,
+           https ? "(TLS 1.2 and 1.3, forward-secret AEAD ciphers, HSTS)" : "(plain HTTP)",
+           login, config->http_max_connections, per_address,
+           config->http_request_timeout_seconds);
     return status;
 }
 
@@ -73,6 +104,8 @@ int command_check_config(int argc, char **argv)
             return EXIT_STATUS_USAGE;
         }
         config_print(&config, stdout);
+        if (check_http(&config) != 0)
+            status = EXIT_STATUS_USAGE;
         if (check_site(config.site_rules_path) != 0)
             status = EXIT_STATUS_USAGE;
         if (policy_path == NULL && check_policy(config.rules_policy_path) != 0)

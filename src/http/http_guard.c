@@ -148,8 +148,7 @@ void http_guard_stop(http_guard *guard)
     free(guard);
 }
 
-/* The printable address of the connection's peer. */
-static void http_guard_address(struct MHD_Connection *connection, char *out, size_t size)
+void http_client_address(struct MHD_Connection *connection, char *out, size_t size)
 {
     snprintf(out, size, "an unknown address");
     const union MHD_ConnectionInfo *info =
@@ -186,7 +185,7 @@ void http_guard_notify(void *context, struct MHD_Connection *connection, void **
         entry->socket = info->connect_fd;
         entry->receiving = 1;
         http_guard_now(&entry->since);
-        http_guard_address(connection, entry->address, sizeof entry->address);
+        http_client_address(connection, entry->address, sizeof entry->address);
         pthread_mutex_lock(&guard->lock);
         entry->next = guard->first;
         if (guard->first != NULL)

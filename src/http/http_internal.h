@@ -18,6 +18,7 @@
 
 #include "http/http.h"
 #include "http/http_auth.h"
+#include "http/http_throttle.h"
 
 /* http_guard.c: the deadline for receiving each request (see there). */
 typedef struct http_guard http_guard;
@@ -33,6 +34,9 @@ void http_guard_target(http_guard *guard, struct MHD_Connection *connection, siz
 size_t http_guard_received(http_guard *guard, struct MHD_Connection *connection);
 /* The reply is done: the next request on this connection starts now. */
 void http_guard_completed(http_guard *guard, struct MHD_Connection *connection);
+/* The printable address of the connection's peer ("an unknown address"
+ * when MHD does not say); out holds at least INET6_ADDRSTRLEN bytes. */
+void http_client_address(struct MHD_Connection *connection, char *out, size_t size);
 
 struct http_server {
     struct MHD_Daemon *daemon;
@@ -43,6 +47,7 @@ struct http_server {
     pthread_mutex_t json_lock;
     unsigned port;               /* the bound port                       */
     http_auth *auth;             /* NULL: no login required              */
+    http_throttle *throttle;     /* failed logins; with auth only        */
     char *tls_certificate;       /* PEM text kept for MHD, NULL: HTTP    */
     char *tls_private_key;
     http_guard *guard;           /* request deadlines                    */

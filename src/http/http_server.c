@@ -14,6 +14,7 @@
 #include <string.h>
 #include <sys/socket.h>
 #include <sys/stat.h>
+#include <time.h>
 #include <unistd.h>
 
 #include "store/sql_files.h"
@@ -163,17 +164,27 @@ static enum MHD_Result http_queue(const http_server *server, struct MHD_Connecti
     return result;
 }
 
-/* 1 when the request carries a user and password of the password file. */
-static int http_login_accepted(http_server *server, struct MHD_Connection *connection)
+/* Copies text for a log line: at most 64 bytes of it, quotes, backslashes,
+ * control characters and bytes outside ASCII written as \xNN, so that a
+ * user name cannot forge a line. */
+static void http_escape_for_log(const char *text, char *out, size_t size)
 {
-    char *password = NULL;
-    char *user = MHD_basic_auth_get_username_password(connection, &password);
-    int accepted = http_auth_check(server->auth, user, password);
-    if (user != NULL)
-        MHD_free(user);
-    if (password != NULL)
-        MHD_free(password);
-    return accepted;
+    size_t used = 0;
+    for (size_t i = 0; text[i] != '\0' && i < 64 && used + 5 < size; i++) {
+        unsigned char byte = (unsigned char)text[i];
+        if (byte < 0x20 || byte >= 0x7f || byte == '"' || byte == '\\')
+            used += (size_t)snprintf(out + used, size - used, "\\x%02x", byte);
+        else
+            out[used++] = (char)byte;
+    }
+    out[used] = '\0';
+}
+
+static double http_monotonic_seconds(void)
+{
+    struct timespec now;
+    clock_gettime(CLOCK_MONOTONIC, &now);
+    return (double)now.tv_sec + (double)now.tv_nsec / 1e9;
 }
 
 /* 401 with a Basic challenge and a JSON body. */
@@ -189,6 +200,57 @@ static enum MHD_Result http_queue_login_request(http_server *server,
         MHD_queue_basic_auth_fail_response(connection, "mitilog", reply.response);
     MHD_destroy_response(reply.response);
     return result;
+}
+
+/* Checks the login of a request: 1 when accepted; else 0 with the reply
+ * queued in *result (401 with a challenge, or 429 while this address or
+ * user must wait after repeated failures: http_throttle.h). Every failure
+ * is logged with the address and the escaped user name, never the
+ * password. */
+static int http_login_accepted(http_server *server, struct MHD_Connection *connection,
+                               enum MHD_Result *result)
+{
+    char *password = NULL;
+    char *user = MHD_basic_auth_get_username_password(connection, &password);
+    char address[INET6_ADDRSTRLEN + 32];
+    http_client_address(connection, address, sizeof address);
+    char shown[64 * 4 + 1];
+    http_escape_for_log(user != NULL ? user : "", shown, sizeof shown);
+    double now = http_monotonic_seconds();
+    unsigned wait = http_throttle_wait(server->throttle, address, user, now);
+    int accepted = 0;
+    if (user == NULL || password == NULL) {
+        *result = http_queue_login_request(server, connection);
+    } else if (wait > 0) {
+        log_warning("http: login refused for user \"%s\" from %s: too many failed logins, "
+                    "next try in %u s",
+                    shown, address, wait);
+        http_reply reply = http_error_reply(server, MHD_HTTP_TOO_MANY_REQUESTS,
+                                            "too many failed logins from this address or for "
+                                            "this user: try again in %u seconds",
+                                            wait);
+        char seconds[16];
+        snprintf(seconds, sizeof seconds, "%u", wait);
+        if (reply.response != NULL)
+            MHD_add_response_header(reply.response, "Retry-After", seconds); /* RFC 6585 4 */
+        *result = http_queue(server, connection, reply);
+    } else if (http_auth_check(server->auth, user, password)) {
+        http_throttle_succeeded(server->throttle, address, user);
+        accepted = 1;
+    } else {
+        unsigned address_failures, user_failures;
+        http_throttle_failed(server->throttle, address, user, http_monotonic_seconds(),
+                             &address_failures, &user_failures);
+        log_warning("http: login failed for user \"%s\" from %s (%u failures from this "
+                    "address, %u for this user)",
+                    shown, address, address_failures, user_failures);
+        *result = http_queue_login_request(server, connection);
+    }
+    if (user != NULL)
+        MHD_free(user);
+    if (password != NULL)
+        MHD_free(password);
+    return accepted;
 }
 
 /* Adds the bytes of one header field ("name: value" and CRLF). */
@@ -231,9 +293,10 @@ static enum MHD_Result http_handle(void *context,
                           http_error_reply(server, MHD_HTTP_REQUEST_HEADER_FIELDS_TOO_LARGE,
                                            "the header fields have %zu bytes; at most %d are read",
                                            header_bytes, HTTP_HEADERS_MAX));
+    enum MHD_Result result;
     if (server->auth != NULL && strcmp(url, "/healthz") != 0 &&
-        !http_login_accepted(server, connection))
-        return http_queue_login_request(server, connection);
+        !http_login_accepted(server, connection, &result))
+        return result;
     if (strcmp(method, MHD_HTTP_METHOD_GET) != 0 &&
         strcmp(method, MHD_HTTP_METHOD_HEAD) != 0) {
         reply = http_error_reply(server, MHD_HTTP_METHOD_NOT_ALLOWED,
@@ -361,7 +424,10 @@ static mitilog_status http_prepare_security(http_server *server, const http_sett
         if (server->tls_certificate == NULL)
             return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                      "HTTP login without HTTPS would send passwords in clear");
-        return http_auth_load(settings->password_file, &server->auth, error);
+        mitilog_status status = http_auth_load(settings->password_file, &server->auth, error);
+        if (status == MITILOG_OK)
+            status = http_throttle_create(&server->throttle, error);
+        return status;
     }
     return MITILOG_OK;
 }
@@ -504,6 +570,7 @@ void http_server_stop(http_server *server)
     pthread_mutex_destroy(&server->json_lock);
     free(server->web_root);
     http_auth_free(server->auth);
+    http_throttle_free(server->throttle);
     free(server->tls_certificate);
     free(server->tls_private_key);
     free(server);

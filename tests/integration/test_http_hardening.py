@@ -305,3 +305,184 @@ def test_dribblers_from_the_monitor_address_are_cut_and_healthz_returns(daemon_f
     finally:
         dribbler.close()
     daemon.allowed_error_patterns.append(r"http: ")
+
+
+# ---- libmicrohttpd's own edge cases ----------------------------------------
+
+def test_many_parameters_get_an_answer(served):
+    # Before: 500 parameters exhausted libmicrohttpd's per-connection memory
+    # and the request got no answer (the connection was held 30 s).
+    query = "&".join("p%d=%d" % (i, i) for i in range(500))   # 4.4 kB
+    status, headers, body = raw_get(served.http_port, "/api/v1/instances?limit=1&" + query)
+    assert status == 200, body[:200]
+    assert headers["X-Content-Type-Options"] == "nosniff"
+    # 2000 of them are more than the 8192 bytes read: a JSON 414, not silence.
+    query = "&".join("p%d=%d" % (i, i) for i in range(2000))
+    status, headers, body = raw_get(served.http_port, "/api/v1/instances?limit=1&" + query)
+    assert status == 414, body[:200]
+    error_text(body)
+    # As many parameters as 8000 bytes hold (RFC 9110 4.1 recommends
+    # supporting targets of at least 8000 octets).
+    status, _, body = raw_get(served.http_port, "/api/v1/healthz?" + "a&" * 3980)
+    assert status == 404, body[:200]
+    error_text(body)
+
+
+def test_oversized_targets_and_headers_get_json_errors(served):
+    # Before: libmicrohttpd answered these itself with an HTML page and
+    # none of the security headers. RFC 9110 15.5.15 (414 URI Too Long),
+    # RFC 6585 5 (431 Request Header Fields Too Large).
+    status, headers, body = raw_get(served.http_port, "/api/v1/instances?study=" + "1" * 40000)
+    assert status == 414
+    assert headers["Content-Type"].startswith("application/json")
+    assert headers["Content-Security-Policy"].startswith("default-src 'self'")
+    assert "request target" in error_text(body)
+    connection = http.client.HTTPConnection("127.0.0.1", served.http_port, timeout=10)
+    connection.putrequest("GET", "/healthz")
+    connection.putheader("X-Padding", "p" * 40000)
+    connection.endheaders()
+    response = connection.getresponse()
+    body = response.read()
+    connection.close()
+    assert response.status == 431
+    assert response.getheader("Content-Type").startswith("application/json")
+    assert response.getheader("X-Frame-Options") == "DENY"
+    assert "header fields" in error_text(body)
+
+
+# ---- HTTPS and login -------------------------------------------------------
+
+from test_https import make_certificates, password_line  # noqa: E402
+
+
+@pytest.fixture
+def secured(daemon_factory, tmp_path):
+    ca, certificate, key = make_certificates(str(tmp_path))
+    passwords = tmp_path / "passwords"
+    passwords.write_text(password_line("lead", "tide pool 42") + "\n"
+                         + password_line("nurse", "reef 7") + "\n")
+    daemon = daemon_factory(http=dict(tls_certificate=certificate, tls_private_key=key,
+                                      password_file=str(passwords)))
+    daemon.get = lambda path, timeout=10: (200, {})  # start() waits on C-ECHO alone
+    daemon.start()
+    daemon.allowed_error_patterns.append(r"http: ")  # failed handshakes and logins
+    return daemon, ca
+
+
+def tls_get(daemon, ca, path, user=None, password=None, source="127.0.0.1"):
+    import base64
+    import ssl
+    context = ssl.create_default_context(cafile=ca)
+    connection = http.client.HTTPSConnection("127.0.0.1", daemon.http_port, context=context,
+                                             timeout=10, source_address=(source, 0))
+    headers = {}
+    if user is not None:
+        token = base64.b64encode(("%s:%s" % (user, password)).encode()).decode()
+        headers["Authorization"] = "Basic " + token  # RFC 7617
+    connection.request("GET", path, headers=headers)
+    response = connection.getresponse()
+    body = response.read()
+    connection.close()
+    return response.status, dict(response.getheaders()), body
+
+
+def s_client(port, *options):
+    """openssl s_client handshake; True when a session was established."""
+    result = run(["openssl", "s_client", "-connect", "127.0.0.1:%d" % port, "-brief"]
+                 + list(options), timeout=20, input="")
+    return result.returncode == 0 and "Protocol version" in result.stdout + result.stderr
+
+
+def test_https_profile(secured):
+    daemon, ca = secured
+    port = daemon.http_port
+    # BCP 195 (RFC 9325 3.1.1): TLS 1.0 and 1.1 must not be negotiated. The
+    # client is told to offer them (OpenSSL's security level 0), so that a
+    # refusal is the server's. Before: both were accepted.
+    assert not s_client(port, "-tls1_1", "-cipher", "DEFAULT:@SECLEVEL=0")
+    assert not s_client(port, "-tls1", "-cipher", "DEFAULT:@SECLEVEL=0")
+    assert s_client(port, "-tls1_2")
+    assert s_client(port, "-tls1_3")
+    # RFC 9325 4.1/4.2: forward-secret key exchange (ECDHE) and AEAD only.
+    assert s_client(port, "-tls1_2", "-cipher", "ECDHE-RSA-AES128-GCM-SHA256")
+    assert s_client(port, "-tls1_2", "-cipher", "ECDHE-RSA-AES256-GCM-SHA384")
+    assert not s_client(port, "-tls1_2", "-cipher", "AES128-GCM-SHA256")       # RSA key exchange
+    assert not s_client(port, "-tls1_2", "-cipher", "ECDHE-RSA-AES128-SHA")    # CBC
+    assert not s_client(port, "-tls1_2", "-cipher", "AES256-SHA256")
+    # RFC 6797 6.1: HSTS on every HTTPS reply, errors included.
+    for path in ("/healthz", "/api/v1/nothing"):
+        _, headers, _ = tls_get(daemon, ca, path, "lead", "tide pool 42")
+        assert headers.get("Strict-Transport-Security") == "max-age=31536000"
+    assert "HTTP on https://127.0.0.1:%d/" % port in daemon.log()
+
+
+def test_no_hsts_over_plain_http(served):
+    # RFC 6797 7.2: a server must not send HSTS over plain HTTP.
+    _, headers, _ = raw_get(served.http_port, "/healthz")
+    assert "Strict-Transport-Security" not in headers
+
+
+def test_failed_logins_are_throttled_and_logged(secured):
+    daemon, ca = secured
+    mark = daemon.mark()
+    # Five wrong passwords from one address: 401 each, one log line each.
+    for attempt in range(5):
+        status, _, _ = tls_get(daemon, ca, "/api/v1/instances?limit=1", "lead", "guess %d" % attempt)
+        assert status == 401
+    # The sixth try waits, even with the right password (OWASP
+    # Authentication Cheat Sheet, "Login Throttling"; RFC 6585 4: 429 with
+    # Retry-After). Before: 200.
+    status, headers, body = tls_get(daemon, ca, "/api/v1/instances?limit=1", "lead", "tide pool 42")
+    assert status == 429, body
+    assert int(headers["Retry-After"]) >= 1
+    assert "try again" in error_text(body)
+    # The same user from another address waits too (per user)...
+    status, _, _ = tls_get(daemon, ca, "/api/v1/instances?limit=1", "lead", "tide pool 42",
+                           source="127.0.0.2")
+    assert status == 429
+    # ...another user from another address does not.
+    status, _, body = tls_get(daemon, ca, "/api/v1/instances?limit=1", "nurse", "reef 7",
+                              source="127.0.0.2")
+    assert status == 200, body
+    log = daemon.log()[mark:]
+    failures = [line for line in log.splitlines() if "login failed for user \"lead\" from 127.0.0.1" in line]
+    assert len(failures) == 5, log
+    assert "guess" not in log and "tide pool" not in log       # never the password
+    assert "login refused for user \"lead\"" in log
+
+
+def test_unknown_users_are_counted_and_names_escaped(secured):
+    daemon, ca = secured
+    mark = daemon.mark()
+    # A newline in the name must not start a log line of its own.
+    status, _, _ = tls_get(daemon, ca, "/api/v1/policy", "ghost\n2026-01-01T00:00:00Z info: forged",
+                           "x", source="127.0.0.3")
+    assert status == 401
+    log = daemon.log()[mark:]
+    assert "ghost\\x0a2026" in log
+    assert not any(line.startswith("2026-01-01T00:00:00Z info: forged") for line in log.splitlines())
+    # Unknown names are throttled like known ones (the reply tells nothing).
+    for attempt in range(4):
+        status, _, _ = tls_get(daemon, ca, "/api/v1/policy", "ghost%d" % attempt, "x",
+                               source="127.0.0.3")
+        assert status == 401
+    status, _, _ = tls_get(daemon, ca, "/api/v1/policy", "ghost", "x", source="127.0.0.3")
+    assert status == 429
+
+
+def test_check_config_says_what_http_is(tmp_path):
+    ca, certificate, key = make_certificates(str(tmp_path))
+    passwords = tmp_path / "passwords"
+    passwords.write_text(password_line("lead", "x") + "\n")
+    path = tmp_path / "m.ini"
+    path.write_text("[http]\naddress = 0.0.0.0\ntls_certificate = %s\ntls_private_key = %s\n"
+                    "password_file = %s\n" % (certificate, key, passwords))
+    result = run([BINARY, "check-config", str(path)])
+    assert result.returncode == 0, result.stderr
+    # Before: "HTTP has no TLS or login yet" whatever was configured.
+    assert "no TLS or login yet" not in result.stdout
+    assert "HTTP: https://0.0.0.0:8080/" in result.stdout
+    assert "login required (1 users in %s)" % passwords in result.stdout
+    path.write_text("[http]\n")
+    result = run([BINARY, "check-config", str(path)])
+    assert "HTTP: http://127.0.0.1:8080/ (plain HTTP), no login" in result.stdout
