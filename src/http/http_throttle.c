@@ -122,7 +122,8 @@ unsigned http_throttle_wait(http_throttle *throttle, const char *address, const 
             wait = user_wait;
     }
     pthread_mutex_unlock(&throttle->lock);
-    return wait > 0 ? (unsigned)wait + 1 : 0;
+    unsigned seconds = (unsigned)wait;
+    return seconds < wait ? seconds + 1 : seconds;
 }
 
 /* One more failure on entry: past the free ones, locked for 1, 2, 4 ...
