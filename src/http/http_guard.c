@@ -229,6 +229,20 @@ void http_guard_target(http_guard *guard, struct MHD_Connection *connection, siz
     pthread_mutex_unlock(&guard->lock);
 }
 
+void http_guard_close(http_guard *guard, struct MHD_Connection *connection, const char *reason)
+{
+    http_guard_entry *entry = http_guard_entry_of(connection);
+    if (entry == NULL)
+        return;
+    pthread_mutex_lock(&guard->lock);
+    if (!entry->cut) {
+        entry->cut = 1;
+        shutdown(entry->socket, SHUT_RDWR);
+        log_warning("http: closed a connection from %s: %s", entry->address, reason);
+    }
+    pthread_mutex_unlock(&guard->lock);
+}
+
 size_t http_guard_received(http_guard *guard, struct MHD_Connection *connection)
 {
     http_guard_entry *entry = http_guard_entry_of(connection);

@@ -30,6 +30,9 @@ void http_guard_notify(void *context, struct MHD_Connection *connection, void **
                        enum MHD_ConnectionNotificationCode code);
 /* Notes the length of the request target (URI log callback). */
 void http_guard_target(http_guard *guard, struct MHD_Connection *connection, size_t length);
+/* Closes the connection without a reply (its socket is shut down; MHD
+ * then drops it), logging reason. */
+void http_guard_close(http_guard *guard, struct MHD_Connection *connection, const char *reason);
 /* The request has arrived whole: stops its clock; gives the target length. */
 size_t http_guard_received(http_guard *guard, struct MHD_Connection *connection);
 /* The reply is done: the next request on this connection starts now. */

@@ -31,7 +31,8 @@ enum {
      * reads; longer ones answer 414 and 431 (RFC 9110 4.1 recommends
      * supporting targets of at least 8000 octets). */
     HTTP_TARGET_MAX = 8192,
-    HTTP_HEADERS_MAX = 16384
+    HTTP_HEADERS_MAX = 16384,
+    HTTP_PARAMETERS_MAX = 6000 /* see http_target_seen() */
 };
 
 /* Memory of one connection for its request head and libmicrohttpd's
@@ -313,11 +314,22 @@ static enum MHD_Result http_handle(void *context,
 }
 
 /* MHD_OPTION_URI_LOG_CALLBACK: sees the request target before MHD splits
- * off its parameters; only its length is kept. */
+ * off its parameters; keeps its length. Past about 8000 parameters MHD
+ * 0.9.75 runs out of the connection's memory while recording them and
+ * then neither answers nor closes (until the request deadline): a target
+ * with more than HTTP_PARAMETERS_MAX is closed at once instead. Fewer
+ * reach the handler, which answers 414 for a target over
+ * HTTP_TARGET_MAX. */
 static void *http_target_seen(void *context, const char *uri, struct MHD_Connection *connection)
 {
     http_server *server = context;
+    size_t separators = 0;
+    for (const char *at = strchr(uri, '?'); at != NULL && *at != '\0'; at++)
+        separators += *at == '&';
     http_guard_target(server->guard, connection, strlen(uri));
+    if (separators >= HTTP_PARAMETERS_MAX)
+        http_guard_close(server->guard, connection,
+                         "the request target has more than 6000 parameters");
     return NULL;
 }
 
@@ -521,8 +533,8 @@ mitilog_status http_server_start(const http_settings *settings, store *st,
         tls_options[0].option = MHD_OPTION_END;
     server->daemon = MHD_start_daemon(
         flags, (uint16_t)settings->port, NULL, NULL, &http_handle, server,
+        MHD_OPTION_EXTERNAL_LOGGER, &http_log_library, NULL, /* first: MHD asks for it */
         MHD_OPTION_ARRAY, tls_options,
-        MHD_OPTION_EXTERNAL_LOGGER, &http_log_library, NULL,
         MHD_OPTION_SOCK_ADDR, (struct sockaddr *)&address,
         MHD_OPTION_THREAD_POOL_SIZE, (unsigned)HTTP_THREAD_POOL_SIZE,
         MHD_OPTION_CONNECTION_LIMIT, connections,
