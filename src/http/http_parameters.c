@@ -209,10 +209,20 @@ static int http_check(const http_parameter_rule *rule, const char *text,
     case HTTP_PARAMETER_CHOICE:
         if (http_is_choice(text, rule->choices))
             return 1;
-        snprintf(message, size, "one of %s", rule->choices);
-        for (char *bar = strchr(message, '|'); bar != NULL; bar = strchr(bar, '|'))
-            *bar = ',';
+    {
+        /* "one of a, b, c" from "a|b|c" */
+        size_t used = (size_t)snprintf(message, size, "one of ");
+        for (const char *at = rule->choices; *at != '\0' && used + 3 < size; at++) {
+            if (*at == '|') {
+                message[used++] = ',';
+                message[used++] = ' ';
+            } else {
+                message[used++] = *at;
+            }
+        }
+        message[used] = '\0';
         return 0;
+    }
     }
     snprintf(message, size, "unknown rule");
     return 0;

@@ -153,6 +153,12 @@ def test_error_documents_keep_one_shape_and_headers(served):
         assert headers["Content-Type"].startswith("application/json")
         assert headers["X-Content-Type-Options"] == "nosniff"
         error_text(body)
+    # The message names the parameter and what it may be.
+    status, body = served.get("/api/v1/findings?severity=fatal")
+    assert status == 400
+    assert body["error"] == "parameter severity: one of advisory, warning, violation"
+    status, body = served.get("/api/v1/stats?by=colour")
+    assert body["error"] == "parameter by: one of exam_type, room, preset, shift, transducer"
 
 
 # ---- slow clients --------------------------------------------------------
