@@ -235,8 +235,9 @@ def test_dribbling_clients_leave_healthz_answered(daemon_factory):
             answered += healthz_answered(daemon.http_port)
             time.sleep(0.5)
         assert answered == 6
-        # The client holding the slots kept its share: 32 per address.
-        assert 0 < dribbler.step() <= 32
+        # The slow address was never given more than its 32 connections
+        # (fewer once the 10 s deadline has cut them).
+        assert dribbler.step() <= 32
     finally:
         dribbler.close()
     daemon.allowed_error_patterns.append(r"http: ")
