@@ -10,7 +10,7 @@
 enum {
     HTTP_THROTTLE_ENTRIES = 4096, /* addresses and names remembered */
     HTTP_THROTTLE_KEY_MAX = 80,
-    HTTP_THROTTLE_FREE_FAILURES = 5,
+    HTTP_THROTTLE_FAILURES_BEFORE_WAIT = 5,
     HTTP_THROTTLE_WAIT_MAX_S = 300,
     HTTP_THROTTLE_FORGET_S = 3600
 };
@@ -135,8 +135,8 @@ static unsigned http_throttle_count(http_throttle_entry *entry, double now)
         entry->failures = 0;
     entry->failures++;
     entry->last_failure = now;
-    if (entry->failures >= HTTP_THROTTLE_FREE_FAILURES) {
-        unsigned steps = entry->failures - HTTP_THROTTLE_FREE_FAILURES;
+    if (entry->failures >= HTTP_THROTTLE_FAILURES_BEFORE_WAIT) {
+        unsigned steps = entry->failures - HTTP_THROTTLE_FAILURES_BEFORE_WAIT;
         double wait = steps >= 9 ? HTTP_THROTTLE_WAIT_MAX_S : (double)(1u << steps);
         if (wait > HTTP_THROTTLE_WAIT_MAX_S)
             wait = HTTP_THROTTLE_WAIT_MAX_S;
