@@ -10,7 +10,9 @@
 #include <stdlib.h>
 #include <string.h>
 
-#include "stats/stats_week.h"
+/* The statistics' calendar (day numbers, ISO weeks), reached through
+ * report.h as the audit routes reach it. */
+#include "report/report.h"
 
 enum { HTTP_UID_MAX = 64, HTTP_TEXT_MAX = 128, HTTP_INTEGER_DIGITS_MAX = 9 };
 
