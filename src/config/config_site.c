@@ -157,11 +157,11 @@ static int exam_type_entry(site_state *state, const char *key, const char *value
         free(type->label);
         type->label = copy;
     } else if (strcmp(key, "governing_index") == 0) {
-        if (strcasecmp(value, "TIS") == 0) type->governing = EXT_GOVERNING_TIS;
-        else if (strcasecmp(value, "TIB") == 0) type->governing = EXT_GOVERNING_TIB;
-        else if (strcasecmp(value, "TIC") == 0) type->governing = EXT_GOVERNING_TIC;
+        if (strcasecmp(value, "TIS") == 0) type->governing = EXAM_GOVERNING_TIS;
+        else if (strcasecmp(value, "TIB") == 0) type->governing = EXAM_GOVERNING_TIB;
+        else if (strcasecmp(value, "TIC") == 0) type->governing = EXAM_GOVERNING_TIC;
         else if (strcasecmp(value, "by_gestation") == 0) {
-            type->governing = EXT_GOVERNING_BY_GESTATION;
+            type->governing = EXAM_GOVERNING_BY_GESTATION;
             type->obstetric = 1;
         } else
             return site_fail(state, key, "not TIS, TIB, TIC or by_gestation");

@@ -5,8 +5,8 @@
 #include "extract/ext.h"
 #include "extract/ext_text.h"
 
-/* The attribute carrying each displayed index, in ext_index order. */
-static const dcm_attribute index_attributes[EXT_INDEX_COUNT] = {
+/* The attribute carrying each displayed index, in exam_index order. */
+static const dcm_attribute index_attributes[EXAM_INDEX_COUNT] = {
     DCM_ATTRIBUTE_MECHANICAL_INDEX,
     DCM_ATTRIBUTE_SOFT_TISSUE_THERMAL_INDEX,
     DCM_ATTRIBUTE_BONE_THERMAL_INDEX,
@@ -116,7 +116,7 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
 
     record->is_ultrasound = ext_is_ultrasound_sop_class(record->sop_class_uid) ||
                             (record->modality != NULL && strcmp(record->modality, "US") == 0);
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         const char *raw = record->is_ultrasound ? values[index_attributes[i]] : NULL;
         record->indices[i] = ext_parse_decimal_string(raw);
         record->index_raw[i] = exact_duplicate(raw, &failed, &record->text_replaced);
@@ -148,7 +148,7 @@ void ext_record_free(ext_record *record)
         free(*strings[i]);
         *strings[i] = NULL;
     }
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         free(record->index_raw[i]);
         record->index_raw[i] = NULL;
     }

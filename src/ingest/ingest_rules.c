@@ -33,7 +33,7 @@ double ingest_clock_now(void)
     return (double)now.tv_sec + (double)now.tv_nsec / 1e9;
 }
 
-/* ext_mode bits (1 << ext_mode) to Image Type value 4 bits (RULES_MODE_*):
+/* exam_mode bits (1 << exam_mode) to Image Type value 4 bits (RULES_MODE_*):
  * equal up to 3D (0x40); colour power and later sit one bit higher
  * (0x100, 0x200, 0x400) because 0x80 is not defined [DICOM PS3.3
  * C.8.5.6.1.1]. */
@@ -123,7 +123,7 @@ static store_finding *ingest_findings(const rules_result *result)
             .has_limit = f->has_limit,
             .limit = f->limit,
             .threshold = f->threshold,
-            .governing_index = f->has_index ? ext_index_name(f->index) : NULL,
+            .governing_index = f->has_index ? exam_index_name(f->index) : NULL,
             .instance_uids = (const char *const *)f->instance_uids,
             .instance_count = f->instance_count,
             .has_span = f->has_span,
@@ -197,7 +197,6 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
 {
     const char *study = record->study_instance_uid;
     const ext_exam *exam = record->exam;
-    const ext_exam_instance *instances = record->instances;
     store_study_context context;
     mitilog_status status = store_load_study_context(st, study, now, &context, error);
     if (status != MITILOG_OK || !context.found) {
@@ -206,22 +205,12 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
         return status != MITILOG_OK ? status : store_put_exam(st, record, error);
     }
     size_t n = exam->capture_count;
-    rules_capture *captures = calloc(n ? n : 1, sizeof *captures);
     ext_timeline_entry *entries = calloc(n ? n : 1, sizeof *entries);
     rules_result result = {0};
     store_finding *findings = NULL;
-    if (captures == NULL || entries == NULL) {
+    if (entries == NULL) {
         status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
         goto done;
-    }
-    for (size_t i = 0; i < n; i++) {
-        const ext_capture *capture = &exam->captures[i];
-        captures[i].sop_instance_uid = instances[exam->capture_instance[i]].sop_instance_uid;
-        captures[i].time_seconds = capture->time_seconds;
-        captures[i].has_time = capture->has_time;
-        captures[i].cine_seconds = capture->cine_seconds;
-        memcpy(captures[i].indices, capture->indices, sizeof capture->indices);
-        captures[i].modes = ingest_rules_modes(capture->modes);
     }
     rules_age age = RULES_AGE_UNKNOWN;
     if (context.age_group != NULL && rules_age_parse(context.age_group, &age) != 0)
@@ -241,7 +230,7 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
         .preset = context.preset,
         .closed = context.idle_seconds >= idle_minutes * 60.0,
         .sr_scan_time_seconds = exam->sr_scan_time_seconds,
-        .captures = captures,
+        .captures = exam->captures,
         .capture_count = n,
     };
     status = rules_evaluate(policy, &input, &result, error);
@@ -269,11 +258,11 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
         .closed = input.closed,
         .findings = findings,
         .finding_count = result.finding_count,
-        .governing_index = ext_index_name(m->governing_index),
+        .governing_index = exam_index_name(m->governing_index),
         .has_max_governing = m->index_reported[m->governing_index],
         .max_governing = m->max_index[m->governing_index],
-        .has_max_mi = m->index_reported[EXT_INDEX_MI],
-        .max_mi = m->max_index[EXT_INDEX_MI],
+        .has_max_mi = m->index_reported[EXAM_INDEX_MI],
+        .max_mi = m->max_index[EXAM_INDEX_MI],
         .cem43_minutes = m->cem43_minutes,
         .estimated_seconds = m->estimated_seconds,
         .doppler_seconds = m->doppler_seconds,
@@ -292,7 +281,6 @@ done:
     free(findings);
     rules_result_free(&result);
     free(entries);
-    free(captures);
     store_study_context_free(&context);
     return status;
 }

@@ -7,7 +7,7 @@
  * - rules_policy_load() allocates a rules_policy; rules_policy_free()
  *   releases it. A loaded policy is immutable and may be shared by threads.
  *   Strings returned by the iteration API point into the policy.
- * - rules_exam and rules_capture are caller-owned, read only during the
+ * - rules_exam and exam_capture are caller-owned, read only during the
  *   call; nothing of them is kept.
  * - rules_evaluate() and rules_output_not_reported() fill a caller-supplied
  *   rules_result whose findings and strings are heap copies owned by the
@@ -29,22 +29,6 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
-
-/* Image Type (0008,0008) value 4 of US images: a 4-hex-digit bitmap of
- * the imaging modes [std: DICOM PS3.3 C.8.5.6.1.1]. */
-enum {
-    RULES_MODE_2D = 0x0001,
-    RULES_MODE_M = 0x0002,
-    RULES_MODE_CW = 0x0004,
-    RULES_MODE_PW = 0x0008,
-    RULES_MODE_COLOUR = 0x0010,
-    RULES_MODE_COLOUR_M = 0x0020,
-    RULES_MODE_3D = 0x0040,
-    RULES_MODE_COLOUR_POWER = 0x0100,
-    /* What counts as Doppler for the first-trimester rule. */
-    RULES_MODE_DOPPLER = RULES_MODE_CW | RULES_MODE_PW | RULES_MODE_COLOUR |
-                         RULES_MODE_COLOUR_M | RULES_MODE_COLOUR_POWER
-};
 
 /* Category group: which table and which governing index apply. */
 typedef enum rules_group {
@@ -80,17 +64,6 @@ int rules_group_parse(const char *text, rules_group *group);
 int rules_age_parse(const char *text, rules_age *age);
 int rules_severity_parse(const char *text, rules_severity *severity);
 
-/* One capture (instance) of an exam, as an ext_record and the timeline
- * provide it. */
-typedef struct rules_capture {
-    const char *sop_instance_uid;
-    double time_seconds;     /* acquisition time on any fixed scale */
-    int has_time;
-    double cine_seconds;     /* frames x frame time / 1000; 0 if single */
-    ext_number indices[EXT_INDEX_COUNT];
-    unsigned modes;          /* RULES_MODE_* bits; 0 if unknown */
-} rules_capture;
-
 /* One exam (study) as the exam record describes it. */
 typedef struct rules_exam {
     const char *study_instance_uid;
@@ -99,14 +72,14 @@ typedef struct rules_exam {
     rules_age age;
     double gestational_age_weeks;   /* 13+6 is 13 + 6/7 */
     int gestational_age_known;
-    ext_index governing_index;      /* used when has_governing_index */
+    exam_index governing_index;      /* used when has_governing_index */
     int has_governing_index;        /* 0: the engine decides (domain s.3) */
     const char *room;
     const char *transducer;
     const char *preset;
     int closed;                     /* 0: open, findings are provisional */
     double sr_scan_time_seconds;    /* <= 0: no SR scan time */
-    const rules_capture *captures;
+    const exam_capture *captures;
     size_t capture_count;
 } rules_exam;
 
@@ -120,7 +93,7 @@ typedef struct rules_finding {
     double limit;            /* meaningful when has_limit */
     int has_limit;
     double threshold;        /* dwell: the TI threshold; else 0 */
-    ext_index index;         /* governing index used, when has_index */
+    exam_index index;         /* governing index used, when has_index */
     int has_index;
     char **instance_uids;    /* the instances that produced it */
     size_t instance_count;
@@ -140,9 +113,9 @@ typedef struct rules_finding {
 
 /* Values computed for every exam, finding or not. */
 typedef struct rules_measurements {
-    ext_index governing_index;
-    double max_index[EXT_INDEX_COUNT];   /* when index_reported[i] */
-    int index_reported[EXT_INDEX_COUNT];
+    exam_index governing_index;
+    double max_index[EXAM_INDEX_COUNT];   /* when index_reported[i] */
+    int index_reported[EXAM_INDEX_COUNT];
     double estimated_seconds;   /* timeline estimate (after the SR bound) */
     double span_seconds;        /* last capture time - first */
     double doppler_seconds;     /* estimated time in Doppler modes */
@@ -205,7 +178,7 @@ int rules_policy_rule_at(const rules_policy *policy, size_t index,
 /* Governing index of domain reference section 3 (when the exam does not
  * name one): obstetric < 10 weeks TIS, >= 10 weeks or unknown TIB;
  * transcranial TIC; everything else (neonatal head included) TIS. */
-ext_index rules_governing_index(const rules_exam *exam);
+exam_index rules_governing_index(const rules_exam *exam);
 
 /* Every enabled rule except output_not_reported on one exam. Fills result
  * (findings in policy order, then by threshold). MITILOG_ERROR_MEMORY or

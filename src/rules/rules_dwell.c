@@ -30,10 +30,10 @@ mitilog_status rules_check_dwell(const rules_rule *rule, const rules_view *view,
             rules_format_number(step->minutes, limit_text, sizeof limit_text);
             if (step->not_recommended)
                 snprintf(note, sizeof note, "%s >= %s: not recommended at all",
-                         ext_index_name(view->governing), threshold);
+                         exam_index_name(view->governing), threshold);
             else
                 snprintf(note, sizeof note, "%s >= %s: at most %s min",
-                         ext_index_name(view->governing), threshold, limit_text);
+                         exam_index_name(view->governing), threshold, limit_text);
             double limit = step->not_recommended ? 0 : step->minutes;
             status = rules_emit(rule, view, rule->severity, "time_at_or_above", minutes, "min",
                                 &limit, step->threshold, view->governing, &match, note, result,

@@ -118,7 +118,7 @@ typedef struct rules_finding_input {
     double limit;
     int has_limit;
     double threshold;
-    ext_index index;
+    exam_index index;
     int has_index;
     const char **instance_uids;
     size_t instance_count;
@@ -141,8 +141,8 @@ mitilog_status rules_result_append(rules_result *result,
 /* rules_exposure.c: the per-exam rules, on a prepared exam view. */
 typedef struct rules_view {
     const rules_exam *exam;
-    ext_index governing;
-    ext_capture *captures;          /* converted, exam->capture_count */
+    exam_index governing;
+    const exam_capture *captures;    /* the exam's, exam->capture_count */
     ext_timeline_entry *entries;    /* timeline, summary.entry_count */
     ext_timeline_summary summary;
     const char *assumptions;        /* the timeline's, for findings */
@@ -172,23 +172,23 @@ typedef struct rules_match {
     int has_span;
     double estimated_seconds; /* their attributed timeline time */
     double max_value;        /* over the matching captures */
-    ext_index max_index;
+    exam_index max_index;
 } rules_match;
 
-/* Captures whose index (EXT_INDEX_COUNT: the highest reported TI of any
+/* Captures whose index (EXAM_INDEX_COUNT: the highest reported TI of any
  * kind) compares with threshold, and which have any of mode_mask (0: any
  * mode). Returns 0, or -1 when out of memory. */
-int rules_match_captures(const rules_view *view, ext_index index, rules_compare compare,
+int rules_match_captures(const rules_view *view, exam_index index, rules_compare compare,
                          double threshold, unsigned mode_mask, rules_match *match);
-/* Highest reported value of an index (EXT_INDEX_COUNT: any TI) over all
+/* Highest reported value of an index (EXAM_INDEX_COUNT: any TI) over all
  * captures; 0 if none reports it. */
-int rules_highest(const rules_view *view, ext_index index, double *value, ext_index *which);
+int rules_highest(const rules_view *view, exam_index index, double *value, exam_index *which);
 
 /* Appends a finding for an exam from a match (rules_captures.c). */
 mitilog_status rules_emit(const rules_rule *rule, const rules_view *view,
                           rules_severity severity, const char *quantity, double measured,
                           const char *unit, const double *limit, double threshold,
-                          ext_index index, const rules_match *match, const char *note,
+                          exam_index index, const rules_match *match, const char *note,
                           rules_result *result, mitilog_error *error);
 
 /* CEM43 over the timeline on the governing index (untimed and unreported

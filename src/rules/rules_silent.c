@@ -64,7 +64,7 @@ static mitilog_status emit_group(const rules_rule *rule, const char *version,
     input.unit = "instances";
     input.limit = limit;
     input.has_limit = 1;
-    input.index = EXT_INDEX_COUNT;
+    input.index = EXAM_INDEX_COUNT;
     input.instance_uids = uids;
     input.instance_count = silent;
     input.assumptions = note;

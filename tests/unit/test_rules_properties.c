@@ -23,7 +23,7 @@ static double uniform(void)   /* [0, 1): a 64-bit LCG, top 53 bits */
 }
 
 typedef struct generated {
-    rules_capture captures[MAX_CAPTURES + 1];
+    exam_capture captures[MAX_CAPTURES + 1];
     char uids[MAX_CAPTURES + 1][32];
     rules_exam exam;
 } generated;
@@ -35,16 +35,16 @@ static void generate(generated *out)
     double t = 0;
     for (size_t i = 0; i < count; i++) {
         snprintf(out->uids[i], sizeof out->uids[i], "1.2.%zu", i);
-        rules_capture *capture = &out->captures[i];
+        exam_capture *capture = &out->captures[i];
         t += uniform() * 900;   /* gaps up to 15 min: some above the cap */
         *capture = support_capture(out->uids[i], t, uniform() < 0.3 ? uniform() * 600 : 0);
         capture->has_time = uniform() > 0.05;
-        for (int x = 0; x < EXT_INDEX_COUNT; x++) {
+        for (int x = 0; x < EXAM_INDEX_COUNT; x++) {
             if (uniform() < 0.85)
-                capture->indices[x] = support_number(x == EXT_INDEX_MI ? uniform() * 2.2
+                capture->indices[x] = support_number(x == EXAM_INDEX_MI ? uniform() * 2.2
                                                                        : uniform() * 3.5);
         }
-        capture->modes = uniform() < 0.3 ? RULES_MODE_PW : RULES_MODE_2D;
+        capture->modes = uniform() < 0.3 ? EXAM_MODE_BIT(EXAM_MODE_PW) : EXAM_MODE_BIT(EXAM_MODE_2D);
     }
     out->exam = support_exam((rules_group)(uniform() * RULES_GROUP_COUNT), out->captures, count);
     out->exam.age = (rules_age)(uniform() * RULES_AGE_COUNT);
@@ -122,7 +122,7 @@ static void lowering_indices_never_adds_a_finding(void **state)
         generated lower = exam;
         lower.exam.captures = lower.captures;
         for (size_t i = 0; i < lower.exam.capture_count; i++) {
-            for (int x = 0; x < EXT_INDEX_COUNT; x++)
+            for (int x = 0; x < EXAM_INDEX_COUNT; x++)
                 lower.captures[i].indices[x].value *= uniform();
         }
         evaluate(policy, &lower.exam, &after);

@@ -2,7 +2,7 @@
  * test_rules_store.c - findings in a real SQLite file (store_findings.c):
  * written, replaced under the same policy version, superseded under a new
  * one; re-evaluating with the same content changes nothing (the whole
- * findings table compared before and after); the ext_mode to Image Type
+ * findings table compared before and after); the exam_mode to Image Type
  * bit mapping of the ingest. Expected values: docs/policy.md ("A finding",
  * "Version") and the design rule "rescoring twice under the same
  * policy changes nothing"; bit values DICOM PS3.3 C.8.5.6.1.1.
@@ -20,6 +20,7 @@
 #include <string.h>
 #include <unistd.h>
 
+#include "extract/ext_modes.h"
 #include "ingest/ingest_internal.h"
 #include "store/store.h"
 
@@ -207,16 +208,24 @@ static void test_rescoring_twice_changes_nothing(void **state)
     free(measurements_after);
 }
 
-/* ext_mode bits (1 << mode) to Image Type value 4 bits: 2D 0001 ... 3D
- * 0040 unchanged, colour power 0100 [DICOM PS3.3 C.8.5.6.1.1]. */
+/* The rules read the mode bits extraction sets (one bit set, no
+ * conversion between stages): Image Type value 4 0100 is colour power,
+ * which counts as Doppler; 0040 (3D) does not [DICOM PS3.3 C.8.5.6.1.1]. */
 static void test_mode_bits(void **state)
 {
     (void)state;
-    assert_int_equal(ingest_rules_modes(1u << 0), RULES_MODE_2D);
-    assert_int_equal(ingest_rules_modes(1u << 3), RULES_MODE_PW);
-    assert_int_equal(ingest_rules_modes(1u << 6), RULES_MODE_3D);
-    assert_int_equal(ingest_rules_modes(1u << 7), RULES_MODE_COLOUR_POWER);
-    assert_int_equal(ingest_rules_modes((1u << 0) | (1u << 7)), 0x0101);
+    assert_int_equal(ext_modes_from_image_type("ORIGINAL\\PRIMARY\\ABDOMINAL\\0001").modes,
+                     EXAM_MODE_BIT(EXAM_MODE_2D));
+    assert_int_equal(ext_modes_from_image_type("ORIGINAL\\PRIMARY\\ABDOMINAL\\0008").modes,
+                     EXAM_MODE_BIT(EXAM_MODE_PW));
+    assert_int_equal(ext_modes_from_image_type("ORIGINAL\\PRIMARY\\ABDOMINAL\\0040").modes,
+                     EXAM_MODE_BIT(EXAM_MODE_3D));
+    assert_int_equal(ext_modes_from_image_type("ORIGINAL\\PRIMARY\\ABDOMINAL\\0100").modes,
+                     EXAM_MODE_BIT(EXAM_MODE_POWER));
+    assert_true(ext_modes_from_image_type("ORIGINAL\\PRIMARY\\ABDOMINAL\\0101").modes &
+                EXAM_MODES_DOPPLER);
+    assert_false(ext_modes_from_image_type("ORIGINAL\\PRIMARY\\ABDOMINAL\\0041").modes &
+                 EXAM_MODES_DOPPLER);
 }
 
 int main(void)

@@ -1,0 +1,146 @@
+/*
+ * exam.h - the exam vocabulary every stage of the pipeline speaks:
+ * extraction fills these types, the rules and statistics read them, the
+ * store writes them and the HTTP API names them.
+ *
+ * Owns, each in exactly one place:
+ *  - the displayed indices (exam_index) and their API names;
+ *  - the imaging modes (exam_mode): one bit set, one set of names;
+ *  - the governing-index rule (exam_governing_index, docs/domain.md
+ *    section 3);
+ *  - the TI threshold ladder (exam_ti_ladder): the displayed-TI steps at
+ *    or above which time is measured, stored and drawn;
+ *  - the value of one reading (exam_number: ok, missing or invalid,
+ *    never guessed) and one capture of an exam (exam_capture).
+ *
+ * Pure data and computation: no allocation, no state. Strings returned
+ * are static; an exam_capture borrows its sop_instance_uid from whoever
+ * filled it (the exam record's instances) and owns nothing.
+ */
+#ifndef MITILOG_EXAM_H
+#define MITILOG_EXAM_H
+
+#include <stddef.h>
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* ---- One reading ---------------------------------------------------- */
+
+typedef enum exam_value_status {
+    EXAM_VALUE_MISSING = 0, /* attribute absent or empty                 */
+    EXAM_VALUE_OK,          /* one well-formed number                     */
+    EXAM_VALUE_INVALID      /* present but not one well-formed number     */
+} exam_value_status;
+
+/* "missing", "ok", "invalid" */
+const char *exam_value_status_name(exam_value_status status);
+
+typedef struct exam_number {
+    exam_value_status status;
+    double value;    /* meaningful only when status == EXAM_VALUE_OK */
+} exam_number;
+
+/* ---- Indices (docs/domain.md section 1) ----------------------------- */
+
+typedef enum exam_index {
+    EXAM_INDEX_MI = 0,      /* (0018,5022) MechanicalIndex                */
+    EXAM_INDEX_TIS,         /* (0018,5027) SoftTissueThermalIndex         */
+    EXAM_INDEX_TIB,         /* (0018,5024) BoneThermalIndex               */
+    EXAM_INDEX_TIC,         /* (0018,5026) CranialThermalIndex            */
+    EXAM_INDEX_TIS_FOCUS,   /* (0018,5028) SoftTissueFocusThermalIndex    */
+    EXAM_INDEX_TIS_SURFACE, /* (0018,5029) SoftTissueSurfaceThermalIndex  */
+    EXAM_INDEX_COUNT
+} exam_index;
+
+/* API / column name of an index: "mi", "tis", "tib", "tic", "tis_focus",
+ * "tis_surface"; "unknown" out of range. */
+const char *exam_index_name(exam_index index);
+
+/* ---- Imaging modes -------------------------------------------------- */
+
+/* One bit per mode (EXAM_MODE_BIT), in the order of the Image Type value 4
+ * bitmap of PS3.3 C.8.5.6.1.1 (whose bit values ext_modes.c decodes);
+ * the API lists modes in this order. */
+typedef enum exam_mode {
+    EXAM_MODE_2D = 0,          /* B-mode / 2D imaging         */
+    EXAM_MODE_M,               /* M-mode                      */
+    EXAM_MODE_CW,              /* CW Doppler                  */
+    EXAM_MODE_PW,              /* PW Doppler                  */
+    EXAM_MODE_COLOUR,          /* colour (flow) Doppler       */
+    EXAM_MODE_COLOUR_M,        /* colour M-mode               */
+    EXAM_MODE_3D,              /* 3D rendering (3D/4D)        */
+    EXAM_MODE_POWER,           /* colour power (Doppler) mode */
+    EXAM_MODE_TISSUE_CHARACTERIZATION,
+    EXAM_MODE_SPATIALLY_RELATED_FRAMES,
+    EXAM_MODE_COUNT
+} exam_mode;
+
+#define EXAM_MODE_BIT(mode) (1u << (unsigned)(mode))
+
+/* The modes that count as Doppler (time in Doppler, first-trimester
+ * Doppler rule). */
+#define EXAM_MODES_DOPPLER                                                       \
+    (EXAM_MODE_BIT(EXAM_MODE_CW) | EXAM_MODE_BIT(EXAM_MODE_PW) |                 \
+     EXAM_MODE_BIT(EXAM_MODE_COLOUR) | EXAM_MODE_BIT(EXAM_MODE_COLOUR_M) |       \
+     EXAM_MODE_BIT(EXAM_MODE_POWER))
+
+/* API name: "2d", "m", "cw", "pw", "colour", "colour_m", "3d", "power",
+ * "tissue_characterization", "spatially_related_frames"; NULL if bad. */
+const char *exam_mode_name(exam_mode mode);
+/* Mode of an API name (also "b" for 2d, "color" for colour); -1 if none. */
+int exam_mode_from_name(const char *name);
+
+/* ---- The TI threshold ladder ---------------------------------------- */
+
+/* Displayed TI values at or above which time is measured (per exam, per
+ * policy evaluation, stored as rows of exam_time_at_or_above and drawn
+ * by the dashboard). Ascending. The period statistics report the first
+ * EXAM_TI_STATISTICS_STEPS of them. A policy's dwell table may name any
+ * threshold; these are the ones every exam is measured at. */
+enum { EXAM_TI_STEP_COUNT = 6, EXAM_TI_STATISTICS_STEPS = 4 };
+extern const double exam_ti_ladder[EXAM_TI_STEP_COUNT];
+
+enum { EXAM_TI_LABEL_SIZE = 24 };
+/* The text of a threshold as the API's keys write it: at least one
+ * decimal ("0.7", "1.0", "2.5"). */
+void exam_ti_threshold_label(double threshold, char out[EXAM_TI_LABEL_SIZE]);
+
+/* ---- The governing index (docs/domain.md section 3) ----------------- */
+
+typedef enum exam_governing {
+    EXAM_GOVERNING_TIS = 0,
+    EXAM_GOVERNING_TIB,
+    EXAM_GOVERNING_TIC,
+    EXAM_GOVERNING_BY_GESTATION  /* TIS below EXAM_OSSIFICATION_WEEKS, else TIB */
+} exam_governing;
+
+/* Bone ossifies from roughly 10 weeks of gestation (docs/domain.md
+ * section 3). */
+#define EXAM_OSSIFICATION_WEEKS 10.0
+
+/* The governing index under a rule at a gestational age; *source (may be
+ * NULL) is "exam_type", "gestational_age" or "gestational_age_unknown". An
+ * unknown gestational age counts as ossifying (TIB). */
+exam_index exam_governing_index(exam_governing rule, int has_gestational_age,
+                                double gestational_age_weeks, const char **source);
+
+/* ---- One capture of an exam ----------------------------------------- */
+
+/* An image, cine loop or volume of an exam as the timeline and the rules
+ * read it; filled by the exam record (ext_exam_build). */
+typedef struct exam_capture {
+    const char *sop_instance_uid;  /* borrowed; NULL when not known */
+    double time_seconds;     /* acquisition time on any fixed scale */
+    int has_time;            /* 0: no usable acquisition time */
+    double cine_seconds;     /* frames x frame time / 1000; 0 if single */
+    exam_number indices[EXAM_INDEX_COUNT];
+    unsigned modes;          /* EXAM_MODE_BIT set; 0 if unknown */
+} exam_capture;
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif
