@@ -23,9 +23,6 @@
 #include "extract/ext_timeline.h"
 #include "util/log.h"
 
-/* Dwell rows reported in exam_measurements.seconds_at_or_above. */
-static const double ingest_dwell_thresholds[STORE_DWELL_STEPS] = {0.7, 1.0, 1.5, 2.0, 2.5, 3.0};
-
 double ingest_clock_now(void)
 {
     struct timespec now;
@@ -272,10 +269,10 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
     ext_timeline_summary summary;
     ext_timeline_build(exam->captures, n, rules_policy_gap_cap_seconds(policy),
                        exam->sr_scan_time_seconds, entries, &summary);
-    for (int k = 0; k < STORE_DWELL_STEPS; k++)
+    for (int k = 0; k < EXAM_TI_STEP_COUNT; k++)
         evaluation.seconds_at_or_above[k] = ext_timeline_time_at_or_above(
             exam->captures, entries, summary.entry_count, m->governing_index,
-            ingest_dwell_thresholds[k]);
+            exam_ti_ladder[k]);
     status = store_put_evaluation(st, &evaluation, counts, error);
 done:
     free(findings);

@@ -8,7 +8,7 @@
 
 #include "util/hash.h"
 
-_Static_assert((int)STORE_THRESHOLD_COUNT == (int)STATS_THRESHOLD_COUNT,
+_Static_assert((int)EXAM_TI_STATISTICS_STEPS == (int)STATS_THRESHOLD_COUNT,
                "store and stats thresholds differ");
 
 const char report_caution[] =

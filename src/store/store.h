@@ -192,8 +192,6 @@ typedef struct store_finding {
     const char *room, *transducer;      /* device-level findings */
 } store_finding;
 
-enum { STORE_DWELL_STEPS = 6 };         /* 0.7 1.0 1.5 2.0 2.5 3.0 */
-
 /* One evaluation: of an exam (study_instance_uid set) or of a
  * device-level rule over a period (study_instance_uid NULL, rule_id and
  * period set). Written in ONE transaction: policy row ensured, this
@@ -221,7 +219,7 @@ typedef struct store_evaluation {
     int has_max_governing, has_max_mi;
     double max_governing, max_mi;
     double cem43_minutes, estimated_seconds, doppler_seconds;
-    double seconds_at_or_above[STORE_DWELL_STEPS];
+    double seconds_at_or_above[EXAM_TI_STEP_COUNT];  /* at exam_ti_ladder[k] */
 } store_evaluation;
 
 typedef struct store_evaluation_counts {
@@ -287,8 +285,6 @@ mitilog_status store_policy_json(store *store, char **json, mitilog_error *error
 
 /* ---- Statistics reads (store_read_stats.c) ---- */
 
-enum { STORE_THRESHOLD_COUNT = 4 };   /* governing TI 0.7, 1.0, 1.5, 2.0 */
-
 /* One exam for statistics (sql/queries/stats_exam_rows.sql). Strings
  * belong to the store_exam_list that holds the row (NULL: not recorded,
  * or a column not asked for; study_instance_uid is always read). */
@@ -303,7 +299,7 @@ typedef struct store_exam_row {
     char *room, *preset, *shift, *transducer;
     char *study_description;
     double estimated_seconds;
-    double seconds_at_or_above[STORE_THRESHOLD_COUNT];
+    double seconds_at_or_above[EXAM_TI_STATISTICS_STEPS]; /* at exam_ti_ladder[k] */
     long capture_count, indexed_count;
     long finding_count;
     char *first_acquired_at;

@@ -81,7 +81,7 @@ static int store_evaluation_hash(const store_evaluation *e, char out[HASH_HEX_SI
                    store_or_empty(e->governing_index), e->has_max_governing, e->max_governing,
                    e->has_max_mi, e->max_mi, e->cem43_minutes, e->estimated_seconds,
                    e->doppler_seconds);
-    for (int i = 0; i < STORE_DWELL_STEPS; i++)
+    for (int i = 0; i < EXAM_TI_STEP_COUNT; i++)
         store_text_add(&text, "|%.17g", e->seconds_at_or_above[i]);
     for (size_t i = 0; i < e->finding_count; i++) {
         const store_finding *f = &e->findings[i];
@@ -319,13 +319,29 @@ static int store_write_measurements(sqlite3_stmt *statement, const store_evaluat
         {":cem43_minutes", 1, e->cem43_minutes},
         {":estimated_seconds", 1, e->estimated_seconds},
         {":doppler_seconds", 1, e->doppler_seconds},
-        {":s07", 1, e->seconds_at_or_above[0]}, {":s10", 1, e->seconds_at_or_above[1]},
-        {":s15", 1, e->seconds_at_or_above[2]}, {":s20", 1, e->seconds_at_or_above[3]},
-        {":s25", 1, e->seconds_at_or_above[4]}, {":s30", 1, e->seconds_at_or_above[5]},
     };
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof reals / sizeof reals[0]; i++)
         rc = store_bind_double_named(statement, reals[i].name, reals[i].present, reals[i].value);
     return store_run(statement, rc);
+}
+
+/* The evaluation's time at or above each threshold of the TI ladder, as
+ * rows (after its measurements row, which they refer to). */
+static int store_write_time_at_or_above(sqlite3_stmt *removal, sqlite3_stmt *insert,
+                                        const store_evaluation *e)
+{
+    int rc = store_bind_text_named(removal, ":study_instance_uid", e->study_instance_uid);
+    if (rc == SQLITE_OK) rc = store_bind_text_named(removal, ":policy_version", e->policy_version);
+    rc = store_run(removal, rc);
+    for (int k = 0; rc == SQLITE_OK && k < EXAM_TI_STEP_COUNT; k++) {
+        rc = store_bind_text_named(insert, ":study_instance_uid", e->study_instance_uid);
+        if (rc == SQLITE_OK) rc = store_bind_text_named(insert, ":policy_version", e->policy_version);
+        if (rc == SQLITE_OK) rc = store_bind_double_named(insert, ":threshold", 1, exam_ti_ladder[k]);
+        if (rc == SQLITE_OK)
+            rc = store_bind_double_named(insert, ":seconds", 1, e->seconds_at_or_above[k]);
+        rc = store_run(insert, rc);
+    }
+    return rc;
 }
 
 mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
@@ -355,8 +371,15 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
                                            exam ? "queries/exam_measurements_upsert.sql"
                                                 : "queries/device_evaluation_upsert.sql",
                                            error);
+    sqlite3_stmt *times_removal =
+        exam ? store_statement(st, &set, "queries/measurement_time_at_or_above_delete.sql", error)
+             : NULL;
+    sqlite3_stmt *times_insert =
+        exam ? store_statement(st, &set, "queries/measurement_time_at_or_above_insert.sql", error)
+             : NULL;
     if (ensure == NULL || stored == NULL || (exam && context == NULL) || removal == NULL ||
-        supersede == NULL || insert == NULL || append == NULL || values == NULL) {
+        supersede == NULL || insert == NULL || append == NULL || values == NULL ||
+        (exam && (times_removal == NULL || times_insert == NULL))) {
         store_statements_finalize(&set);
         return MITILOG_ERROR_DATABASE;
     }
@@ -401,6 +424,8 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
         }
         if (rc == SQLITE_OK && exam) {
             rc = store_write_measurements(values, e, hash);
+            if (rc == SQLITE_OK)
+                rc = store_write_time_at_or_above(times_removal, times_insert, e);
         } else if (rc == SQLITE_OK) {
             rc = store_bind_text_named(values, ":rule_id", e->rule_id);
             if (rc == SQLITE_OK) rc = store_bind_text_named(values, ":policy_version", e->policy_version);

@@ -129,8 +129,7 @@ static store_exam_row *store_list_add(store_exam_list *list, size_t *capacity)
 enum {
     EXAM_UID, EXAM_DAY, EXAM_TYPE, EXAM_TYPE_LABEL, EXAM_GOVERNING_INDEX, EXAM_MAX_GOVERNING,
     EXAM_MAX_MI, EXAM_ROOM, EXAM_PRESET, EXAM_SHIFT, EXAM_TRANSDUCER, EXAM_DESCRIPTION,
-    EXAM_ESTIMATED, EXAM_SECONDS, EXAM_CAPTURES = EXAM_SECONDS + STORE_THRESHOLD_COUNT,
-    EXAM_INDEXED, EXAM_FINDINGS, EXAM_FIRST_ACQUIRED
+    EXAM_ESTIMATED, EXAM_CAPTURES, EXAM_INDEXED, EXAM_FINDINGS, EXAM_FIRST_ACQUIRED
 };
 
 /* The queries the loader chooses from. */
@@ -150,7 +149,7 @@ enum {
 /* Columns of stats_exam_values.sql. */
 enum {
     VALUES_TYPE, VALUES_KEY, VALUES_MAX_GOVERNING, VALUES_MAX_MI, VALUES_ESTIMATED,
-    VALUES_SECONDS, VALUES_CAPTURES = VALUES_SECONDS + STORE_THRESHOLD_COUNT, VALUES_INDEXED,
+    VALUES_CAPTURES, VALUES_INDEXED,
     VALUES_FINDINGS, VALUES_UID
 };
 
@@ -216,8 +215,6 @@ static int store_exam_row_read(store_exam_list *list, store_exam_row *row,
             store_double(statement, VALUES_MAX_GOVERNING, &row->has_max_governing);
         row->max_mi = store_double(statement, VALUES_MAX_MI, &row->has_max_mi);
         row->estimated_seconds = store_double(statement, VALUES_ESTIMATED, NULL);
-        for (int t = 0; t < STORE_THRESHOLD_COUNT; t++)
-            row->seconds_at_or_above[t] = store_double(statement, VALUES_SECONDS + t, NULL);
         row->capture_count = (long)sqlite3_column_int64(statement, VALUES_CAPTURES);
         row->indexed_count = (long)sqlite3_column_int64(statement, VALUES_INDEXED);
         row->finding_count = (long)sqlite3_column_int64(statement, VALUES_FINDINGS);
@@ -246,8 +243,6 @@ static int store_exam_row_read(store_exam_list *list, store_exam_row *row,
     row->max_governing = store_double(statement, EXAM_MAX_GOVERNING, &row->has_max_governing);
     row->max_mi = store_double(statement, EXAM_MAX_MI, &row->has_max_mi);
     row->estimated_seconds = store_double(statement, EXAM_ESTIMATED, NULL);
-    for (int t = 0; t < STORE_THRESHOLD_COUNT; t++)
-        row->seconds_at_or_above[t] = store_double(statement, EXAM_SECONDS + t, NULL);
     row->capture_count = (long)sqlite3_column_int64(statement, EXAM_CAPTURES);
     row->indexed_count = (long)sqlite3_column_int64(statement, EXAM_INDEXED);
     row->finding_count = (long)sqlite3_column_int64(statement, EXAM_FINDINGS);
@@ -260,6 +255,38 @@ static int store_compare_rows(const void *left, const void *right)
 {
     const store_exam_row *a = left, *b = right;
     return strcmp(a->study_instance_uid, b->study_instance_uid);
+}
+
+/* Puts the times at or above the statistics' thresholds
+ * (stats_exam_time_at_or_above.sql) on the rows, sorted by UID. */
+static mitilog_status store_load_time_at_or_above(store *st, const char *from_day,
+                                                  const char *to_day, store_exam_list *list,
+                                                  mitilog_error *error)
+{
+    static const char name[] = "queries/stats_exam_time_at_or_above.sql";
+    sqlite3_stmt *statement = NULL;
+    mitilog_status status = store_period_statement(st, name, from_day, to_day, &statement,
+                                                   error);
+    if (status == MITILOG_OK &&
+        sqlite3_bind_double(statement, 3, exam_ti_ladder[EXAM_TI_STATISTICS_STEPS - 1]) !=
+            SQLITE_OK)
+        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: bind failed", name);
+    int rc = SQLITE_DONE;
+    while (status == MITILOG_OK && (rc = sqlite3_step(statement)) == SQLITE_ROW) {
+        store_exam_row key = {.study_instance_uid = (char *)sqlite3_column_text(statement, 0)};
+        store_exam_row *row = key.study_instance_uid == NULL
+                                  ? NULL
+                                  : bsearch(&key, list->rows, list->count, sizeof *list->rows,
+                                            store_compare_rows);
+        double threshold = sqlite3_column_double(statement, 1);
+        for (int k = 0; row != NULL && k < EXAM_TI_STATISTICS_STEPS; k++)
+            if (exam_ti_ladder[k] == threshold)
+                row->seconds_at_or_above[k] = sqlite3_column_double(statement, 2);
+    }
+    if (status == MITILOG_OK && rc != SQLITE_DONE)
+        status = store_sql_error(error, st->reader, name);
+    sqlite3_finalize(statement);
+    return status;
 }
 
 static mitilog_status store_load_exams(store *st, store_exam_query query, const char *from_day,
@@ -284,6 +311,13 @@ static mitilog_status store_load_exams(store *st, store_exam_query query, const 
             SQLITE_OK)
         status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: bind failed",
                                    names[query]);
+    /* The rows and their times from one snapshot. */
+    int timed = query == STORE_QUERY_ROWS || query == STORE_QUERY_VALUES;
+    int in_transaction = 0;
+    if (status == MITILOG_OK && timed) {
+        status = store_exec_file(st->reader, "queries/read_begin.sql", error);
+        in_transaction = status == MITILOG_OK;
+    }
     int rc = SQLITE_DONE;
     while (status == MITILOG_OK && (rc = sqlite3_step(statement)) == SQLITE_ROW) {
         store_exam_row *row = store_list_add(list, &capacity);
@@ -293,15 +327,23 @@ static mitilog_status store_load_exams(store *st, store_exam_query query, const 
     if (status == MITILOG_OK && rc != SQLITE_DONE)
         status = store_sql_error(error, st->reader, "query exam rows");
     sqlite3_finalize(statement);
+    /* Sorted here rather than by the query: SQLite's sorter copied every
+     * row into a record and back, about as much work as the scan. */
+    if (status == MITILOG_OK && query != STORE_QUERY_GOVERNING && list->count > 1)
+        qsort(list->rows, list->count, sizeof *list->rows, store_compare_rows);
+    if (status == MITILOG_OK && timed)
+        status = store_load_time_at_or_above(st, from_day, to_day, list, error);
+    if (in_transaction) {
+        mitilog_status ended = store_exec_file(st->reader, "queries/read_end.sql",
+                                               status == MITILOG_OK ? error : NULL);
+        if (status == MITILOG_OK)
+            status = ended;
+    }
     pthread_mutex_unlock(&st->reader_lock);
     if (status != MITILOG_OK) {
         store_exam_list_free(list);
         return status;
     }
-    /* Sorted here rather than by the query: SQLite's sorter copied every
-     * row into a record and back, about as much work as the scan. */
-    if (query != STORE_QUERY_GOVERNING && list->count > 1)
-        qsort(list->rows, list->count, sizeof *list->rows, store_compare_rows);
     return MITILOG_OK;
 }
 

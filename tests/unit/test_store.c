@@ -258,7 +258,7 @@ static void durability_setting(void **state)
 static void open_creates_schema(void **state)
 {
     fixture *f = *state;
-    assert_int_equal(migration_count(), 5); /* sql/migrations/001..005 */
+    assert_int_equal(migration_count(), 6); /* sql/migrations/001..006 */
     assert_int_equal(store_schema_version(f->store), migration_count());
     assert_int_equal(query_int(f->path, "PRAGMA user_version"),
                      migration_count());
