@@ -178,20 +178,12 @@ static int exam_type_entry(site_state *state, const char *key, const char *value
             return site_fail(state, key, "not a whole number of weeks from 1 to 45");
         type->nominal_gestational_age_weeks = (double)number;
     } else if (strcmp(key, "group") == 0) {
-        /* The policy groups of docs/policy.md (rules_group_name()). */
-        static const char *const groups[] = {"general", "obstetric", "neonatal",
-                                             "transcranial", "ophthalmic", "contrast"};
-        size_t known = 0;
-        while (known < sizeof groups / sizeof groups[0] && strcmp(value, groups[known]) != 0)
-            known++;
-        if (known == sizeof groups / sizeof groups[0])
+        exam_group group;
+        if (exam_group_parse(value, &group) != 0)
             return site_fail(state, key, "not general, obstetric, neonatal, transcranial, "
                                          "ophthalmic or contrast");
-        char *copy = strdup(value);
-        if (copy == NULL)
-            return site_fail(state, key, "out of memory");
-        free(type->group);
-        type->group = copy;
+        type->group = group;
+        type->has_group = 1;
     } else if (strcmp(key, "fields") == 0) {
         return set_fields(state, value);
     } else if (strcmp(key, "match") == 0) {

@@ -52,6 +52,25 @@ int exam_mode_from_name(const char *name)
     return -1;
 }
 
+static const char *const exam_group_names[EXAM_GROUP_COUNT] = {
+    "general", "obstetric", "neonatal", "transcranial", "ophthalmic", "contrast"};
+
+const char *exam_group_name(exam_group group)
+{
+    return (unsigned)group < EXAM_GROUP_COUNT ? exam_group_names[group] : "unknown";
+}
+
+int exam_group_parse(const char *text, exam_group *group)
+{
+    for (int i = 0; text != NULL && i < EXAM_GROUP_COUNT; i++) {
+        if (strcmp(text, exam_group_names[i]) == 0) {
+            *group = (exam_group)i;
+            return 0;
+        }
+    }
+    return -1;
+}
+
 void exam_ti_threshold_label(double threshold, char out[EXAM_TI_LABEL_SIZE])
 {
     snprintf(out, EXAM_TI_LABEL_SIZE, "%.15g", threshold);

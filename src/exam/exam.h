@@ -10,6 +10,8 @@
  *    section 3);
  *  - the TI threshold ladder (exam_ti_ladder): the displayed-TI steps at
  *    or above which time is measured, stored and drawn;
+ *  - the exam's policy group (exam_group): which tables, limits and
+ *    governing index apply;
  *  - the value of one reading (exam_number: ok, missing or invalid,
  *    never guessed) and one capture of an exam (exam_capture).
  *
@@ -125,6 +127,27 @@ typedef enum exam_governing {
  * unknown gestational age counts as ossifying (TIB). */
 exam_index exam_governing_index(exam_governing rule, int has_gestational_age,
                                 double gestational_age_weeks, const char **source);
+
+/* ---- The exam's group ---------------------------------------------- */
+
+/* The policy group of an exam type (docs/policy.md: "group:NAME"
+ * selectors; the site's [exam_type KEY] group key): which tables,
+ * limits and governing index apply. */
+typedef enum exam_group {
+    EXAM_GROUP_GENERAL = 0,
+    EXAM_GROUP_OBSTETRIC,
+    EXAM_GROUP_NEONATAL,     /* neonatal head and body */
+    EXAM_GROUP_TRANSCRANIAL, /* adult head */
+    EXAM_GROUP_OPHTHALMIC,
+    EXAM_GROUP_CONTRAST,     /* gas contrast agents */
+    EXAM_GROUP_COUNT
+} exam_group;
+
+/* "general", "obstetric", "neonatal", "transcranial", "ophthalmic",
+ * "contrast"; "unknown" out of range. */
+const char *exam_group_name(exam_group group);
+/* 0 and *group set for one of those names, -1 otherwise. */
+int exam_group_parse(const char *text, exam_group *group);
 
 /* ---- One capture of an exam ----------------------------------------- */
 

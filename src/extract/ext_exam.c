@@ -16,6 +16,15 @@ exam_index ext_governing_index(const ext_exam_type *type, int has_gestational_ag
                                 source);
 }
 
+exam_group ext_exam_type_group(const ext_exam_type *type)
+{
+    if (type == NULL)
+        return EXAM_GROUP_GENERAL;
+    if (type->has_group)
+        return type->group;
+    return type->obstetric ? EXAM_GROUP_OBSTETRIC : EXAM_GROUP_GENERAL;
+}
+
 static void take_max(exam_number *max, exam_number value)
 {
     if (value.status != EXAM_VALUE_OK)

@@ -74,6 +74,10 @@ typedef struct ext_exam {
 exam_index ext_governing_index(const ext_exam_type *type, int has_gestational_age,
                               double gestational_age_weeks, const char **source);
 
+/* The policy group of an exam type: its group key, else obstetric for
+ * obstetric types, else general (also without an exam type). */
+exam_group ext_exam_type_group(const ext_exam_type *type);
+
 mitilog_status ext_exam_build(const ext_site_rules *rules,
                               const ext_exam_instance *instances, size_t count,
                               ext_exam *exam, mitilog_error *error);

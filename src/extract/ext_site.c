@@ -114,7 +114,6 @@ void ext_site_rules_free(ext_site_rules *rules)
         free(type->matches);
         free(type->key);
         free(type->label);
-        free(type->group);
     }
     free(rules->exam_types);
     ext_classify_cache_free(rules->classify_cache);

@@ -50,10 +50,9 @@ typedef struct ext_exam_type {
     int obstetric;
     int trimester;              /* 0 unknown, 1..3 */
     double nominal_gestational_age_weeks; /* 0: none configured */
-    char *group;                /* policy group ("obstetric", "neonatal",
-                                 * "transcranial", "ophthalmic", "contrast",
-                                 * "general"); NULL: not set (obstetric
-                                 * types count as obstetric, others general) */
+    int has_group;              /* 0: not set (obstetric types count as
+                                 * obstetric, others general) */
+    exam_group group;           /* the site's group key, when has_group */
     ext_match *matches;         /* tried in order */
     size_t match_count;
 } ext_exam_type;

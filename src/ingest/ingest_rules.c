@@ -39,16 +39,6 @@ unsigned ingest_rules_modes(unsigned ext_modes)
     return (ext_modes & 0x7fu) | ((ext_modes & ~0x7fu) << 1);
 }
 
-static rules_group ingest_group_of(const ext_exam_type *type)
-{
-    rules_group group = RULES_GROUP_GENERAL;
-    if (type == NULL)
-        return group;
-    if (type->group != NULL && rules_group_parse(type->group, &group) == 0)
-        return group;
-    return type->obstetric ? RULES_GROUP_OBSTETRIC : RULES_GROUP_GENERAL;
-}
-
 mitilog_status ingest_register_policy(store *st, const rules_policy *policy, mitilog_error *error)
 {
     size_t count = rules_policy_rule_count(policy);
@@ -216,7 +206,7 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
     rules_exam input = {
         .study_instance_uid = study,
         .category = exam->exam_type != NULL ? exam->exam_type->key : NULL,
-        .group = ingest_group_of(exam->exam_type),
+        .group = ext_exam_type_group(exam->exam_type),
         .age = age,
         .gestational_age_weeks = exam->gestational_age_weeks,
         .gestational_age_known = exam->has_gestational_age,

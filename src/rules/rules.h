@@ -30,17 +30,6 @@
 extern "C" {
 #endif
 
-/* Category group: which table and which governing index apply. */
-typedef enum rules_group {
-    RULES_GROUP_GENERAL = 0,
-    RULES_GROUP_OBSTETRIC,
-    RULES_GROUP_NEONATAL,     /* neonatal head and body */
-    RULES_GROUP_TRANSCRANIAL, /* adult head */
-    RULES_GROUP_OPHTHALMIC,
-    RULES_GROUP_CONTRAST,     /* gas contrast agents */
-    RULES_GROUP_COUNT
-} rules_group;
-
 typedef enum rules_age {
     RULES_AGE_UNKNOWN = 0,    /* limits for adults apply */
     RULES_AGE_ADULT,
@@ -55,12 +44,11 @@ typedef enum rules_severity {
     RULES_SEVERITY_VIOLATION
 } rules_severity;
 
-/* Stable lower-case names ("obstetric", "neonate", "warning"); the
- * parsers return 0 on success, -1 for an unknown name. */
-const char *rules_group_name(rules_group group);
+/* Stable lower-case names ("neonate", "warning"; the groups' are
+ * exam_group_name()); the parsers return 0 on success, -1 for an unknown
+ * name. */
 const char *rules_age_name(rules_age age);
 const char *rules_severity_name(rules_severity severity);
-int rules_group_parse(const char *text, rules_group *group);
 int rules_age_parse(const char *text, rules_age *age);
 int rules_severity_parse(const char *text, rules_severity *severity);
 
@@ -68,7 +56,7 @@ int rules_severity_parse(const char *text, rules_severity *severity);
 typedef struct rules_exam {
     const char *study_instance_uid;
     const char *category;    /* exam type key, e.g. "neonatal_lung"; may be NULL */
-    rules_group group;
+    exam_group group;
     rules_age age;
     double gestational_age_weeks;   /* 13+6 is 13 + 6/7 */
     int gestational_age_known;

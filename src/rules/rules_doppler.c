@@ -14,7 +14,7 @@ mitilog_status rules_check_first_trimester(const rules_rule *rule, const rules_v
                                            rules_result *result, mitilog_error *error)
 {
     const rules_exam *exam = view->exam;
-    if (exam->group != RULES_GROUP_OBSTETRIC || !exam->gestational_age_known ||
+    if (exam->group != EXAM_GROUP_OBSTETRIC || !exam->gestational_age_known ||
         !(exam->gestational_age_weeks < rule->before_weeks))
         return MITILOG_OK;
     rules_match match;

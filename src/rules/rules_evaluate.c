@@ -12,9 +12,9 @@ exam_index rules_governing_index(const rules_exam *exam)
      * gestation, transcranial TIC, everything else (neonatal head
      * included) TIS. */
     exam_governing rule = EXAM_GOVERNING_TIS;
-    if (exam->group == RULES_GROUP_OBSTETRIC)
+    if (exam->group == EXAM_GROUP_OBSTETRIC)
         rule = EXAM_GOVERNING_BY_GESTATION;
-    else if (exam->group == RULES_GROUP_TRANSCRANIAL)
+    else if (exam->group == EXAM_GROUP_TRANSCRANIAL)
         rule = EXAM_GOVERNING_TIC;
     return exam_governing_index(rule, exam->gestational_age_known, exam->gestational_age_weeks,
                                 NULL);

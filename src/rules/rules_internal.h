@@ -35,7 +35,7 @@ typedef enum rules_selector_kind {
 typedef struct rules_selector {
     rules_selector_kind kind;
     char *category;          /* RULES_SELECT_CATEGORY */
-    int value;               /* rules_group or rules_age */
+    int value;               /* exam_group or rules_age */
 } rules_selector;
 
 /* One "base[.selector.name] = number|off" key. */

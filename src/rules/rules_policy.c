@@ -24,15 +24,8 @@ const char *rules_kind_name(rules_kind kind)
     return kind < RULES_KIND_COUNT ? kind_names[kind] : "unknown";
 }
 
-static const char *const group_names[RULES_GROUP_COUNT] = {
-    "general", "obstetric", "neonatal", "transcranial", "ophthalmic", "contrast"};
 static const char *const age_names[RULES_AGE_COUNT] = {"unknown", "adult", "child", "neonate"};
 static const char *const severity_names[3] = {"advisory", "warning", "violation"};
-
-const char *rules_group_name(rules_group group)
-{
-    return group < RULES_GROUP_COUNT ? group_names[group] : "unknown";
-}
 
 const char *rules_age_name(rules_age age)
 {
@@ -51,15 +44,6 @@ static int lookup(const char *const *names, int count, const char *text)
             return i;
     }
     return -1;
-}
-
-int rules_group_parse(const char *text, rules_group *group)
-{
-    int found = lookup(group_names, RULES_GROUP_COUNT, text);
-    if (found < 0)
-        return -1;
-    *group = (rules_group)found;
-    return 0;
 }
 
 int rules_age_parse(const char *text, rules_age *age)
@@ -95,7 +79,7 @@ static void format_selector(const rules_selector *selector, char separator, char
         snprintf(out, size, "category%c%s", separator, selector->category);
         break;
     case RULES_SELECT_GROUP:
-        snprintf(out, size, "group%c%s", separator, rules_group_name((rules_group)selector->value));
+        snprintf(out, size, "group%c%s", separator, exam_group_name((exam_group)selector->value));
         break;
     case RULES_SELECT_AGE:
         snprintf(out, size, "age%c%s", separator, rules_age_name((rules_age)selector->value));

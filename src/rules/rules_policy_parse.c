@@ -102,8 +102,8 @@ static int parse_selector(const char *text, rules_selector *selector)
     const char *name = dot + 1;
     size_t kind_length = (size_t)(dot - text);
     if (kind_length == 5 && strncmp(text, "group", 5) == 0) {
-        rules_group group;
-        if (rules_group_parse(name, &group) != 0)
+        exam_group group;
+        if (exam_group_parse(name, &group) != 0)
             return -1;
         selector->kind = RULES_SELECT_GROUP;
         selector->value = (int)group;

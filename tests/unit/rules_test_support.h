@@ -89,7 +89,7 @@ static inline exam_capture support_capture(const char *uid, double t, double cin
     return capture;
 }
 
-static inline rules_exam support_exam(rules_group group, const exam_capture *captures,
+static inline rules_exam support_exam(exam_group group, const exam_capture *captures,
                                       size_t count)
 {
     rules_exam exam;

@@ -102,7 +102,7 @@ static int exam_key(test_case *c, const char *key, const char *value)
         snprintf(c->category, sizeof c->category, "%s", value);
         exam->category = c->category;
     } else if (strcmp(key, "group") == 0) {
-        failed = rules_group_parse(value, &exam->group);
+        failed = exam_group_parse(value, &exam->group);
     } else if (strcmp(key, "age") == 0) {
         failed = rules_age_parse(value, &exam->age);
     } else if (strcmp(key, "gestational_age") == 0) {

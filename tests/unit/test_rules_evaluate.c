@@ -28,7 +28,7 @@ static int teardown(void **state)
 
 /* One capture whose cine lasts seconds, with the given index at value:
  * the timeline attributes exactly those seconds to it. */
-static void evaluate_one(rules_group group, double weeks, exam_index index, double value,
+static void evaluate_one(exam_group group, double weeks, exam_index index, double value,
                          double seconds, rules_result *result)
 {
     exam_capture capture = support_capture("1.2.3.4.1", 0, seconds);
@@ -48,7 +48,7 @@ typedef struct step {
 /* At each threshold: TI exactly at it for exactly the limit is allowed; one
  * second longer is one finding at that threshold; a TI just below it for
  * the same time is none (the lower steps allow longer). */
-static void check_table(const char *rule_id, rules_group group, double weeks, exam_index index,
+static void check_table(const char *rule_id, exam_group group, double weeks, exam_index index,
                         const step *steps, size_t count)
 {
     for (size_t s = 0; s < count; s++) {
@@ -82,11 +82,11 @@ static void obstetric_table_at_and_around_each_threshold(void **state)
 {
     (void)state;
     const step table[] = {{0.7, 60}, {1.0, 30}, {1.5, 15}, {2.0, 4}, {2.5, 1}, {3.0, -1}};
-    check_table("dwell_obstetric_neonatal", RULES_GROUP_OBSTETRIC, 20, EXAM_INDEX_TIB, table, 6);
-    check_table("dwell_obstetric_neonatal", RULES_GROUP_NEONATAL, 0, EXAM_INDEX_TIS, table, 6);
+    check_table("dwell_obstetric_neonatal", EXAM_GROUP_OBSTETRIC, 20, EXAM_INDEX_TIB, table, 6);
+    check_table("dwell_obstetric_neonatal", EXAM_GROUP_NEONATAL, 0, EXAM_INDEX_TIS, table, 6);
     /* Not recommended: a still image at 3.0 with no attributed time. */
     rules_result result;
-    evaluate_one(RULES_GROUP_OBSTETRIC, 20, EXAM_INDEX_TIB, 3.0, 0, &result);
+    evaluate_one(EXAM_GROUP_OBSTETRIC, 20, EXAM_INDEX_TIB, 3.0, 0, &result);
     assert_int_equal(support_count(&result, "dwell_obstetric_neonatal", 3.0), 1);
     rules_result_free(&result);
 }
@@ -96,15 +96,15 @@ static void general_table_at_and_around_each_threshold(void **state)
 {
     (void)state;
     const step table[] = {{1.0, 120}, {1.5, 60}, {2.0, 15}, {2.5, 4}, {3.0, 1}};
-    check_table("dwell_general", RULES_GROUP_GENERAL, 0, EXAM_INDEX_TIS, table, 5);
-    check_table("dwell_general", RULES_GROUP_TRANSCRANIAL, 0, EXAM_INDEX_TIC, table, 5);
+    check_table("dwell_general", EXAM_GROUP_GENERAL, 0, EXAM_INDEX_TIS, table, 5);
+    check_table("dwell_general", EXAM_GROUP_TRANSCRANIAL, 0, EXAM_INDEX_TIC, table, 5);
     rules_result result;
     /* TI up to 1.0 unrestricted: 0.99 for five hours is no finding. */
-    evaluate_one(RULES_GROUP_GENERAL, 0, EXAM_INDEX_TIS, 0.99, 5 * 3600, &result);
+    evaluate_one(EXAM_GROUP_GENERAL, 0, EXAM_INDEX_TIS, 0.99, 5 * 3600, &result);
     assert_int_equal(result.finding_count, 0);
     rules_result_free(&result);
     /* The OB table does not apply to a general exam. */
-    evaluate_one(RULES_GROUP_GENERAL, 0, EXAM_INDEX_TIS, 0.8, 61 * 60, &result);
+    evaluate_one(EXAM_GROUP_GENERAL, 0, EXAM_INDEX_TIS, 0.8, 61 * 60, &result);
     assert_int_equal(support_count(&result, "dwell_obstetric_neonatal", -1), 0);
     rules_result_free(&result);
 }
@@ -114,7 +114,7 @@ static void general_table_at_and_around_each_threshold(void **state)
 static void governing_index_switches_at_ten_weeks(void **state)
 {
     (void)state;
-    rules_exam exam = support_exam(RULES_GROUP_OBSTETRIC, NULL, 0);
+    rules_exam exam = support_exam(EXAM_GROUP_OBSTETRIC, NULL, 0);
     exam.gestational_age_known = 1;
     exam.gestational_age_weeks = 9 + 6 / 7.0;
     assert_int_equal(rules_governing_index(&exam), EXAM_INDEX_TIS);
@@ -122,17 +122,17 @@ static void governing_index_switches_at_ten_weeks(void **state)
     assert_int_equal(rules_governing_index(&exam), EXAM_INDEX_TIB);
     exam.gestational_age_known = 0;
     assert_int_equal(rules_governing_index(&exam), EXAM_INDEX_TIB);
-    exam.group = RULES_GROUP_TRANSCRANIAL;
+    exam.group = EXAM_GROUP_TRANSCRANIAL;
     assert_int_equal(rules_governing_index(&exam), EXAM_INDEX_TIC);
-    exam.group = RULES_GROUP_NEONATAL;
+    exam.group = EXAM_GROUP_NEONATAL;
     assert_int_equal(rules_governing_index(&exam), EXAM_INDEX_TIS);
-    exam.group = RULES_GROUP_GENERAL;
+    exam.group = EXAM_GROUP_GENERAL;
     assert_int_equal(rules_governing_index(&exam), EXAM_INDEX_TIS);
     /* In evaluation: TIS 1.2 and TIB 0.5 for 31 min; 9+6 judges TIS. */
     exam_capture capture = support_capture("1", 0, 31 * 60);
     capture.indices[EXAM_INDEX_TIS] = support_number(1.2);
     capture.indices[EXAM_INDEX_TIB] = support_number(0.5);
-    rules_exam ob = support_exam(RULES_GROUP_OBSTETRIC, &capture, 1);
+    rules_exam ob = support_exam(EXAM_GROUP_OBSTETRIC, &capture, 1);
     ob.gestational_age_known = 1;
     ob.gestational_age_weeks = 9 + 6 / 7.0;
     rules_result result;
@@ -159,7 +159,7 @@ static size_t doppler_findings(double weeks, unsigned modes, double tib, rules_s
     exam_capture captures[2] = {support_capture("1", 0, 0), support_capture("2", 120, 0)};
     captures[1].modes = modes;
     captures[1].indices[EXAM_INDEX_TIB] = support_number(tib);
-    rules_exam exam = support_exam(RULES_GROUP_OBSTETRIC, captures, 2);
+    rules_exam exam = support_exam(EXAM_GROUP_OBSTETRIC, captures, 2);
     exam.gestational_age_known = 1;
     exam.gestational_age_weeks = weeks;
     rules_result result;
@@ -193,7 +193,7 @@ static void first_trimester_doppler_boundary(void **state)
     assert_int_equal(doppler_findings(12, EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_M), 0.5, &severity), 0);
 }
 
-static rules_result evaluate_mi(rules_group group, const char *category, double mi, double tis)
+static rules_result evaluate_mi(exam_group group, const char *category, double mi, double tis)
 {
     exam_capture capture = support_capture("1", 0, 10);
     capture.indices[EXAM_INDEX_MI] = support_number(mi);
@@ -210,20 +210,20 @@ static rules_result evaluate_mi(rules_group group, const char *category, double 
 static void equipment_maxima(void **state)
 {
     (void)state;
-    rules_result result = evaluate_mi(RULES_GROUP_GENERAL, NULL, 1.9, 0.5);
+    rules_result result = evaluate_mi(EXAM_GROUP_GENERAL, NULL, 1.9, 0.5);
     assert_int_equal(result.finding_count, 0);
     rules_result_free(&result);
-    result = evaluate_mi(RULES_GROUP_GENERAL, NULL, 1.91, 0.5);
+    result = evaluate_mi(EXAM_GROUP_GENERAL, NULL, 1.91, 0.5);
     assert_int_equal(result.finding_count, 1);
     assert_string_equal(result.findings[0].rule_id, "equipment_maxima");
     assert_int_equal(result.findings[0].severity, RULES_SEVERITY_VIOLATION);
     assert_string_equal(result.findings[0].quantity, "mi");
     assert_non_null(strstr(result.findings[0].assumptions, "equipment"));
     rules_result_free(&result);
-    result = evaluate_mi(RULES_GROUP_OPHTHALMIC, NULL, 0.23, 1.0);
+    result = evaluate_mi(EXAM_GROUP_OPHTHALMIC, NULL, 0.23, 1.0);
     assert_int_equal(result.finding_count, 0);
     rules_result_free(&result);
-    result = evaluate_mi(RULES_GROUP_OPHTHALMIC, NULL, 0.24, 1.01);
+    result = evaluate_mi(EXAM_GROUP_OPHTHALMIC, NULL, 0.24, 1.01);
     assert_int_equal(support_count(&result, "equipment_maxima", -1), 2);
     assert_int_equal(support_count(&result, "mi_ceiling", -1), 1);
     assert_int_equal(support_count(&result, "ti_ceiling", -1), 1);
@@ -234,23 +234,23 @@ static void equipment_maxima(void **state)
 static void mi_ceiling_per_category(void **state)
 {
     (void)state;
-    rules_result result = evaluate_mi(RULES_GROUP_NEONATAL, "neonatal_lung", 0.3, 0.2);
+    rules_result result = evaluate_mi(EXAM_GROUP_NEONATAL, "neonatal_lung", 0.3, 0.2);
     assert_int_equal(result.finding_count, 0);
     rules_result_free(&result);
-    result = evaluate_mi(RULES_GROUP_NEONATAL, "neonatal_lung", 0.31, 0.2);
+    result = evaluate_mi(EXAM_GROUP_NEONATAL, "neonatal_lung", 0.31, 0.2);
     assert_int_equal(support_count(&result, "mi_ceiling", -1), 1);
     assert_close(result.findings[0].limit, 0.3, 1e-12);
     rules_result_free(&result);
-    result = evaluate_mi(RULES_GROUP_NEONATAL, "neonatal_head", 0.8, 0.2);
+    result = evaluate_mi(EXAM_GROUP_NEONATAL, "neonatal_head", 0.8, 0.2);
     assert_int_equal(support_count(&result, "mi_ceiling", -1), 0);
     rules_result_free(&result);
-    result = evaluate_mi(RULES_GROUP_CONTRAST, NULL, 0.7, 0.2);
+    result = evaluate_mi(EXAM_GROUP_CONTRAST, NULL, 0.7, 0.2);
     assert_int_equal(result.finding_count, 0);
     rules_result_free(&result);
-    result = evaluate_mi(RULES_GROUP_CONTRAST, NULL, 0.71, 0.2);
+    result = evaluate_mi(EXAM_GROUP_CONTRAST, NULL, 0.71, 0.2);
     assert_int_equal(support_count(&result, "mi_ceiling", -1), 1);
     rules_result_free(&result);
-    result = evaluate_mi(RULES_GROUP_GENERAL, NULL, 1.5, 0.2);
+    result = evaluate_mi(EXAM_GROUP_GENERAL, NULL, 1.5, 0.2);
     assert_int_equal(result.finding_count, 0);
     rules_result_free(&result);
 }
@@ -294,7 +294,7 @@ static void optional_rules_off_by_default(void **state)
     exam_capture captures[3] = {support_capture("1", 0, 0), support_capture("2", 3 * 3600, 0),
                                  support_capture("3", 3 * 3600 + 1, 600)};
     captures[2].indices[EXAM_INDEX_TIS] = support_number(6.0);
-    rules_exam exam = support_exam(RULES_GROUP_GENERAL, captures, 3);
+    rules_exam exam = support_exam(EXAM_GROUP_GENERAL, captures, 3);
     rules_result result;
     mitilog_error error;
     assert_int_equal(rules_evaluate(policy, &exam, &result, &error), MITILOG_OK);
@@ -334,7 +334,7 @@ static void open_exam_is_provisional(void **state)
     (void)state;
     exam_capture capture = support_capture("1", 0, 10);
     capture.indices[EXAM_INDEX_MI] = support_number(2.0);
-    rules_exam exam = support_exam(RULES_GROUP_GENERAL, &capture, 1);
+    rules_exam exam = support_exam(EXAM_GROUP_GENERAL, &capture, 1);
     exam.closed = 0;
     rules_result result;
     mitilog_error error;

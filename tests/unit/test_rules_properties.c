@@ -46,7 +46,7 @@ static void generate(generated *out)
         }
         capture->modes = uniform() < 0.3 ? EXAM_MODE_BIT(EXAM_MODE_PW) : EXAM_MODE_BIT(EXAM_MODE_2D);
     }
-    out->exam = support_exam((rules_group)(uniform() * RULES_GROUP_COUNT), out->captures, count);
+    out->exam = support_exam((exam_group)(uniform() * EXAM_GROUP_COUNT), out->captures, count);
     out->exam.age = (rules_age)(uniform() * RULES_AGE_COUNT);
     out->exam.gestational_age_known = uniform() < 0.8;
     out->exam.gestational_age_weeks = 5 + uniform() * 35;
