@@ -136,4 +136,17 @@ SELECT s.day,
        s.finding_count
 FROM exam_summaries s;
 
+-- The policy group of each exam (exam_group_name(): "general",
+-- "obstetric", ...), as the site's exam type gave it when the exam record
+-- was last built; the dashboard chooses the limits to draw by it. NULL
+-- for exams built before this version until they are built again (the
+-- next object of the study, or `mitilog rescore`).
+ALTER TABLE exams ADD COLUMN exam_group TEXT;
+
+-- What each policy sets for exams of each group and age group, as a JSON
+-- array built by SQLite's JSON functions when the policy is registered
+-- (sql/queries/policy_limits_append.sql); /api/v1/policy serves it.
+ALTER TABLE policies ADD COLUMN limits_json TEXT NOT NULL DEFAULT '[]'
+    CHECK (json_valid(limits_json));
+
 PRAGMA user_version = 6;

@@ -9,6 +9,7 @@ SELECT json_object(
     'exam_type', e.exam_type,
     'exam_type_label', e.exam_type_label,
     'governing_index', e.governing_index,
+    'group', e.exam_group,
     'gestational_age_weeks', e.gestational_age_weeks,
     'first_acquired_at', e.first_acquired_at,
     'last_acquired_at', e.last_acquired_at,

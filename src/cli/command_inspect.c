@@ -37,8 +37,6 @@ static void modes_line(const char *key, unsigned modes, const char *source)
 
 static void print_record(const ext_record *r)
 {
-    static const char *const index_names[EXAM_INDEX_COUNT] = {"mi", "tis", "tib", "tic",
-                                                             "tis_focus", "tis_surface"};
     char buffer[64];
     line("sop_instance_uid", r->sop_instance_uid, "(0008,0018)");
     line("sop_class_uid", r->sop_class_uid, "(0008,0016)");
@@ -60,7 +58,7 @@ static void print_record(const ext_record *r)
     for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         snprintf(buffer, sizeof buffer, "%s (%s)", text(r->index_raw[i]),
                  exam_value_status_name(r->indices[i].status));
-        line(index_names[i], buffer, "image header");
+        line(exam_index_name((exam_index)i), buffer, "image header");
     }
     modes_line("modes", r->modes, "union");
     snprintf(buffer, sizeof buffer, "image_type value 4 (%s%s%04X)",

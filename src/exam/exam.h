@@ -149,6 +149,34 @@ const char *exam_group_name(exam_group group);
 /* 0 and *group set for one of those names, -1 otherwise. */
 int exam_group_parse(const char *text, exam_group *group);
 
+/* ---- The limits a policy sets for an exam ------------------------- */
+
+/* One row of a dwell table: the longest time allowed at or above a
+ * displayed TI (docs/policy.md, rule kind dwell). */
+typedef struct exam_dwell_step {
+    double threshold;        /* TI at or above */
+    double minutes;          /* longest time allowed, unless not_recommended */
+    int not_recommended;     /* any time at all is a finding */
+} exam_dwell_step;
+
+enum { EXAM_MAX_DWELL_STEPS = 16 };
+
+/* What a policy sets for an exam of one group and age group (no
+ * exam-type-specific key): the limits the dashboard draws. Filled by
+ * rules_policy_limits(), written into the policy document by the store.
+ * Strings point into the policy. */
+typedef struct exam_limits {
+    exam_group group;
+    const char *age_group;           /* "adult", "child", "neonate" */
+    int has_ti_ceiling, has_mi_ceiling, has_mi_equipment, has_ti_equipment;
+    double ti_ceiling;               /* governing TI (rule kind ti_ceiling) */
+    double mi_ceiling;               /* rule kind mi_ceiling */
+    double mi_equipment, ti_equipment; /* rule kind equipment_maxima */
+    const char *dwell_rule;          /* the dwell rule that applies; NULL: none */
+    exam_dwell_step dwell[EXAM_MAX_DWELL_STEPS];
+    size_t dwell_count;              /* ascending thresholds */
+} exam_limits;
+
 /* ---- One capture of an exam ----------------------------------------- */
 
 /* An image, cine loop or volume of an exam as the timeline and the rules

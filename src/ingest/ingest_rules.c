@@ -77,6 +77,15 @@ mitilog_status ingest_register_policy(store *st, const rules_policy *policy, mit
         }
         used += info.setting_count;
     }
+    /* The limits of every group and age group (an unknown age reads as
+     * adult), for the dashboard. */
+    static const rules_age ages[] = {RULES_AGE_ADULT, RULES_AGE_CHILD, RULES_AGE_NEONATE};
+    enum { LIMIT_COUNT = EXAM_GROUP_COUNT * (sizeof ages / sizeof ages[0]) };
+    exam_limits limits[LIMIT_COUNT];
+    size_t limit_count = 0;
+    for (int g = 0; g < EXAM_GROUP_COUNT; g++)
+        for (size_t a = 0; a < sizeof ages / sizeof ages[0]; a++)
+            rules_policy_limits(policy, (exam_group)g, ages[a], &limits[limit_count++]);
     store_policy input = {
         .version = rules_policy_version(policy),
         .name = NULL,
@@ -85,6 +94,8 @@ mitilog_status ingest_register_policy(store *st, const rules_policy *policy, mit
         .gap_cap_seconds = rules_policy_gap_cap_seconds(policy),
         .rules = rules,
         .rule_count = count,
+        .limits = limits,
+        .limit_count = limit_count,
     };
     input.name = rules_policy_name(policy);
     status = store_register_policy(st, &input, error);

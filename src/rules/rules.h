@@ -163,6 +163,13 @@ size_t rules_policy_rule_count(const rules_policy *policy);
 int rules_policy_rule_at(const rules_policy *policy, size_t index,
                          rules_rule_info *info);
 
+/* The limits the policy sets for an exam of a group and age group
+ * without an exam-type-specific key (what the dashboard draws): the
+ * first applicable rule of each kind, as rules_evaluate() would apply
+ * it. */
+void rules_policy_limits(const rules_policy *policy, exam_group group, rules_age age,
+                         exam_limits *limits);
+
 /* Governing index of domain reference section 3 (when the exam does not
  * name one): obstetric < 10 weeks TIS, >= 10 weeks or unknown TIB;
  * transcranial TIC; everything else (neonatal head included) TIS. */

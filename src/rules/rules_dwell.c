@@ -14,7 +14,7 @@ mitilog_status rules_check_dwell(const rules_rule *rule, const rules_view *view,
 {
     mitilog_status status = MITILOG_OK;
     for (size_t s = 0; s < rule->step_count && status == MITILOG_OK; s++) {
-        const rules_dwell_step *step = &rule->steps[s];
+        const exam_dwell_step *step = &rule->steps[s];
         rules_match match;
         if (rules_match_captures(view, view->governing, RULES_AT_OR_ABOVE, step->threshold, 0,
                                  &match) != 0)

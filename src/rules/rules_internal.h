@@ -46,13 +46,7 @@ typedef struct rules_limit {
     double value;
 } rules_limit;
 
-typedef struct rules_dwell_step {
-    double threshold;        /* TI at or above */
-    double minutes;          /* longest time allowed */
-    int not_recommended;     /* any time at all is a finding */
-} rules_dwell_step;
-
-enum { RULES_MAX_DWELL_STEPS = 16, RULES_MAX_SELECTORS = 16 };
+enum { RULES_MAX_SELECTORS = 16 };
 
 typedef struct rules_rule {
     char *id;
@@ -72,7 +66,7 @@ typedef struct rules_rule {
 
     rules_limit *limits;
     size_t limit_count;
-    rules_dwell_step steps[RULES_MAX_DWELL_STEPS];
+    exam_dwell_step steps[EXAM_MAX_DWELL_STEPS];
     size_t step_count;       /* sorted by threshold */
     double before_weeks;     /* first_trimester_doppler, default 14 */
     unsigned minimum_instances;  /* output_not_reported, default 1 */

@@ -212,7 +212,7 @@ static int handle_limit(parse_state *state, rules_rule *rule, const char *sectio
 static int handle_dwell(parse_state *state, rules_rule *rule, const char *section,
                         const char *key, const char *value)
 {
-    rules_dwell_step step = {0, 0, 0};
+    exam_dwell_step step = {0, 0, 0};
     char reason[300];
     if (parse_number(key + strlen("dwell."), &step.threshold) != 0)
         return fail(state, MITILOG_ERROR_INVALID, section, key,
@@ -223,7 +223,7 @@ static int handle_dwell(parse_state *state, rules_rule *rule, const char *sectio
         snprintf(reason, sizeof reason, "'%.200s' is not minutes >= 0 or not_recommended", value);
         return fail(state, MITILOG_ERROR_INVALID, section, key, reason);
     }
-    if (rule->step_count >= RULES_MAX_DWELL_STEPS)
+    if (rule->step_count >= EXAM_MAX_DWELL_STEPS)
         return fail(state, MITILOG_ERROR_INVALID, section, key, "too many thresholds");
     size_t at = rule->step_count;
     for (size_t i = 0; i < rule->step_count; i++) {

@@ -165,6 +165,8 @@ typedef struct store_policy {
     double closed_after_idle_minutes, gap_cap_seconds;
     const store_policy_rule *rules;
     size_t rule_count;
+    const exam_limits *limits;          /* per group and age group, for the */
+    size_t limit_count;                 /* dashboard (/api/v1/policy) */
 } store_policy;
 
 /* Writes (or refreshes) the policy row with its rules described as JSON

@@ -139,13 +139,49 @@ static int store_run(sqlite3_stmt *statement, int rc)
     return rc;
 }
 
+/* One entry of the policy's limits (policy_limits_append.sql) and its
+ * dwell table (policy_dwell_step_append.sql), entry number index. */
+static int store_write_limits(sqlite3_stmt *limits, sqlite3_stmt *step, const char *version,
+                              size_t index, const exam_limits *l)
+{
+    int rc = store_bind_text_named(limits, ":version", version);
+    if (rc == SQLITE_OK) rc = store_bind_text_named(limits, ":group", exam_group_name(l->group));
+    if (rc == SQLITE_OK) rc = store_bind_text_named(limits, ":age_group", l->age_group);
+    if (rc == SQLITE_OK)
+        rc = store_bind_double_named(limits, ":ti_ceiling", l->has_ti_ceiling, l->ti_ceiling);
+    if (rc == SQLITE_OK)
+        rc = store_bind_double_named(limits, ":mi_ceiling", l->has_mi_ceiling, l->mi_ceiling);
+    if (rc == SQLITE_OK)
+        rc = store_bind_double_named(limits, ":mi_equipment", l->has_mi_equipment,
+                                     l->mi_equipment);
+    if (rc == SQLITE_OK)
+        rc = store_bind_double_named(limits, ":ti_equipment", l->has_ti_equipment,
+                                     l->ti_equipment);
+    if (rc == SQLITE_OK) rc = store_bind_text_named(limits, ":dwell_rule", l->dwell_rule);
+    rc = store_run(limits, rc);
+    for (size_t k = 0; rc == SQLITE_OK && k < l->dwell_count; k++) {
+        const exam_dwell_step *d = &l->dwell[k];
+        rc = store_bind_text_named(step, ":version", version);
+        if (rc == SQLITE_OK) rc = store_bind_int_named(step, ":index", (sqlite3_int64)index);
+        if (rc == SQLITE_OK) rc = store_bind_double_named(step, ":threshold", 1, d->threshold);
+        if (rc == SQLITE_OK)
+            rc = store_bind_double_named(step, ":minutes", !d->not_recommended, d->minutes);
+        if (rc == SQLITE_OK)
+            rc = store_bind_int_named(step, ":not_recommended", d->not_recommended != 0);
+        rc = store_run(step, rc);
+    }
+    return rc;
+}
+
 mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog_error *error)
 {
     store_statements set = {0};
     sqlite3_stmt *upsert = store_statement(st, &set, "queries/policy_upsert.sql", error);
     sqlite3_stmt *rule = store_statement(st, &set, "queries/policy_rule_append.sql", error);
     sqlite3_stmt *setting = store_statement(st, &set, "queries/policy_setting_set.sql", error);
-    if (upsert == NULL || rule == NULL || setting == NULL) {
+    sqlite3_stmt *limits = store_statement(st, &set, "queries/policy_limits_append.sql", error);
+    sqlite3_stmt *step = store_statement(st, &set, "queries/policy_dwell_step_append.sql", error);
+    if (upsert == NULL || rule == NULL || setting == NULL || limits == NULL || step == NULL) {
         store_statements_finalize(&set);
         return MITILOG_ERROR_DATABASE;
     }
@@ -183,6 +219,8 @@ mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog
             rc = store_run(setting, rc);
         }
     }
+    for (size_t k = 0; rc == SQLITE_OK && k < policy->limit_count; k++)
+        rc = store_write_limits(limits, step, policy->version, k, &policy->limits[k]);
     mitilog_status status = MITILOG_OK;
     if (rc != SQLITE_OK)
         status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "policy %s: %s",

@@ -8,9 +8,6 @@
 
 #include <math.h>
 
-static const char *const index_names[EXAM_INDEX_COUNT] = {
-    "mi", "tis", "tib", "tic", "tis_focus", "tis_surface"};
-
 static int store_exam_bind(sqlite3_stmt *statement, const store_exam *input)
 {
     const ext_exam *exam = input->exam;
@@ -22,8 +19,9 @@ static int store_exam_bind(sqlite3_stmt *statement, const store_exam *input)
         {":exam_type", exam->exam_type != NULL ? exam->exam_type->key : NULL},
         {":exam_type_label", exam->exam_type != NULL ? exam->exam_type->label : NULL},
         {":exam_type_source", exam->exam_type_source},
-        {":governing_index", index_names[exam->governing_index]},
+        {":governing_index", exam_index_name(exam->governing_index)},
         {":governing_index_source", exam->governing_index_source},
+        {":exam_group", exam_group_name(ext_exam_type_group(exam->exam_type))},
         {":gestational_age_source",
          exam->has_gestational_age ? exam->gestational_age_source : NULL},
         {":first_acquired_at", exam->first_acquired_at},
@@ -126,7 +124,7 @@ static int store_exam_children(store *st, const store_exam *input)
             if (rc == SQLITE_OK)
                 rc = store_bind_int_named(statement, ":rank", m);
             if (rc == SQLITE_OK)
-                rc = store_bind_text_named(statement, ":index_name", index_names[x]);
+                rc = store_bind_text_named(statement, ":index_name", exam_index_name((exam_index)x));
             if (rc == SQLITE_OK)
                 rc = store_bind_double_named(statement, ":max_value", 1, maximum.value);
             rc = store_exam_step(statement, rc);
