@@ -71,6 +71,25 @@ int exam_group_parse(const char *text, exam_group *group)
     return -1;
 }
 
+static const char *const exam_severity_names[] = {"advisory", "warning", "violation"};
+
+const char *exam_severity_name(exam_severity severity)
+{
+    return (unsigned)severity <= EXAM_SEVERITY_VIOLATION ? exam_severity_names[severity]
+                                                         : "unknown";
+}
+
+int exam_severity_parse(const char *text, exam_severity *severity)
+{
+    for (int i = 0; text != NULL && i <= EXAM_SEVERITY_VIOLATION; i++) {
+        if (strcmp(text, exam_severity_names[i]) == 0) {
+            *severity = (exam_severity)i;
+            return 0;
+        }
+    }
+    return -1;
+}
+
 void exam_ti_threshold_label(double threshold, char out[EXAM_TI_LABEL_SIZE])
 {
     snprintf(out, EXAM_TI_LABEL_SIZE, "%.15g", threshold);

@@ -24,6 +24,8 @@
 
 #include <stddef.h>
 
+#include "util/hash.h"
+
 #ifdef __cplusplus
 extern "C" {
 #endif
@@ -176,6 +178,50 @@ typedef struct exam_limits {
     exam_dwell_step dwell[EXAM_MAX_DWELL_STEPS];
     size_t dwell_count;              /* ascending thresholds */
 } exam_limits;
+
+/* ---- A finding ------------------------------------------------------ */
+
+typedef enum exam_severity {
+    EXAM_SEVERITY_ADVISORY = 0,
+    EXAM_SEVERITY_WARNING,
+    EXAM_SEVERITY_VIOLATION
+} exam_severity;
+
+/* "advisory", "warning", "violation"; "unknown" out of range. */
+const char *exam_severity_name(exam_severity severity);
+/* 0 and *severity set for one of those names, -1 otherwise. */
+int exam_severity_parse(const char *text, exam_severity *severity);
+
+/* One finding of a policy rule on an exam (or, study_instance_uid NULL,
+ * on a room and transducer over a period). The policy engine fills it
+ * (its strings owned by the rules_result that holds it), the store
+ * writes it as it is. */
+typedef struct exam_finding {
+    char *rule_id;
+    exam_severity severity;
+    char *quantity;          /* "tib", "mi", "time_at_or_above", "cem43", ... */
+    double measured;
+    char *unit;              /* "", "min", "CEM43 min", "instances" */
+    double limit;            /* meaningful when has_limit */
+    int has_limit;
+    double threshold;        /* dwell: the TI threshold; else 0 */
+    exam_index index;         /* governing index used, when has_index */
+    int has_index;
+    char **instance_uids;    /* the instances that produced it */
+    size_t instance_count;
+    double first_seconds;    /* time span of those instances, when has_span */
+    double last_seconds;
+    int has_span;
+    double estimated_seconds;  /* timeline time behind it (dwell: time at
+                                  or above; Doppler: time in Doppler) */
+    char *assumptions;       /* "estimate: gap cap 300 s; ..." or "" */
+    int provisional;         /* exam not closed */
+    char policy_version[HASH_HEX_SIZE];
+    char *source;            /* the rule's source text, for users */
+    char *study_instance_uid;  /* NULL for output_not_reported */
+    char *room;                /* output_not_reported: the group */
+    char *transducer;
+} exam_finding;
 
 /* ---- One capture of an exam ----------------------------------------- */
 

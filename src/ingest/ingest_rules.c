@@ -64,7 +64,7 @@ mitilog_status ingest_register_policy(store *st, const rules_policy *policy, mit
         store_policy_rule *rule = &rules[r];
         rule->id = info.id;
         rule->kind = info.kind;
-        rule->severity = rules_severity_name(info.severity);
+        rule->severity = exam_severity_name(info.severity);
         rule->enabled = info.enabled;
         rule->source = info.source;
         rule->description = info.description;
@@ -105,39 +105,6 @@ done:
     return status;
 }
 
-/* Flattens a rules_result into store_findings (borrowing its strings). */
-static store_finding *ingest_findings(const rules_result *result)
-{
-    store_finding *findings = calloc(result->finding_count ? result->finding_count : 1,
-                                     sizeof *findings);
-    for (size_t i = 0; findings != NULL && i < result->finding_count; i++) {
-        const rules_finding *f = &result->findings[i];
-        findings[i] = (store_finding){
-            .rule_id = f->rule_id,
-            .severity = rules_severity_name(f->severity),
-            .quantity = f->quantity,
-            .unit = f->unit,
-            .measured = f->measured,
-            .has_limit = f->has_limit,
-            .limit = f->limit,
-            .threshold = f->threshold,
-            .governing_index = f->has_index ? exam_index_name(f->index) : NULL,
-            .instance_uids = (const char *const *)f->instance_uids,
-            .instance_count = f->instance_count,
-            .has_span = f->has_span,
-            .first_seconds = f->first_seconds,
-            .last_seconds = f->last_seconds,
-            .estimated_seconds = f->estimated_seconds,
-            .assumptions = f->assumptions,
-            .source = f->source,
-            .provisional = f->provisional,
-            .room = f->study_instance_uid == NULL ? f->room : NULL,
-            .transducer = f->study_instance_uid == NULL ? f->transducer : NULL,
-        };
-    }
-    return findings;
-}
-
 mitilog_status ingest_evaluate_day(store *st, const rules_policy *policy, const char *day,
                                    store_evaluation_counts *counts, mitilog_error *error)
 {
@@ -148,7 +115,6 @@ mitilog_status ingest_evaluate_day(store *st, const rules_policy *policy, const 
         return status;
     rules_instance *instances = calloc(count ? count : 1, sizeof *instances);
     rules_result result = {0};
-    store_finding *findings = NULL;
     if (instances == NULL) {
         status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
         goto done;
@@ -162,11 +128,6 @@ mitilog_status ingest_evaluate_day(store *st, const rules_policy *policy, const 
     status = rules_output_not_reported(policy, instances, count, &result, error);
     if (status != MITILOG_OK)
         goto done;
-    findings = ingest_findings(&result);
-    if (findings == NULL) {
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-        goto done;
-    }
     store_evaluation evaluation = {
         .policy_version = rules_policy_version(policy),
         .policy_name = rules_policy_name(policy),
@@ -174,12 +135,11 @@ mitilog_status ingest_evaluate_day(store *st, const rules_policy *policy, const 
         .rule_id = "output_not_reported",
         .period = day,
         .closed = 1,
-        .findings = findings,
+        .findings = result.findings,
         .finding_count = result.finding_count,
     };
     status = store_put_evaluation(st, &evaluation, counts, error);
 done:
-    free(findings);
     rules_result_free(&result);
     free(instances);
     store_day_instances_free(rows, count);
@@ -205,7 +165,6 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
     size_t n = exam->capture_count;
     ext_timeline_entry *entries = calloc(n ? n : 1, sizeof *entries);
     rules_result result = {0};
-    store_finding *findings = NULL;
     if (entries == NULL) {
         status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
         goto done;
@@ -234,11 +193,6 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
     status = rules_evaluate(policy, &input, &result, error);
     if (status != MITILOG_OK)
         goto done;
-    findings = ingest_findings(&result);
-    if (findings == NULL) {
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-        goto done;
-    }
     const rules_measurements *m = &result.measurements;
     store_evaluation evaluation = {
         .exam = record,
@@ -254,7 +208,7 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
         .age_group = context.age_group,
         .last_received_at = context.last_received_at,
         .closed = input.closed,
-        .findings = findings,
+        .findings = result.findings,
         .finding_count = result.finding_count,
         .governing_index = exam_index_name(m->governing_index),
         .has_max_governing = m->index_reported[m->governing_index],
@@ -276,7 +230,6 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
             exam_ti_ladder[k]);
     status = store_put_evaluation(st, &evaluation, counts, error);
 done:
-    free(findings);
     rules_result_free(&result);
     free(entries);
     store_study_context_free(&context);

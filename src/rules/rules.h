@@ -38,19 +38,10 @@ typedef enum rules_age {
     RULES_AGE_COUNT
 } rules_age;
 
-typedef enum rules_severity {
-    RULES_SEVERITY_ADVISORY = 0,
-    RULES_SEVERITY_WARNING,
-    RULES_SEVERITY_VIOLATION
-} rules_severity;
-
-/* Stable lower-case names ("neonate", "warning"; the groups' are
- * exam_group_name()); the parsers return 0 on success, -1 for an unknown
- * name. */
+/* Stable lower-case names ("neonate"; groups and severities are named by
+ * exam/exam.h); the parser returns 0 on success, -1 for an unknown name. */
 const char *rules_age_name(rules_age age);
-const char *rules_severity_name(rules_severity severity);
 int rules_age_parse(const char *text, rules_age *age);
-int rules_severity_parse(const char *text, rules_severity *severity);
 
 /* One exam (study) as the exam record describes it. */
 typedef struct rules_exam {
@@ -71,33 +62,6 @@ typedef struct rules_exam {
     size_t capture_count;
 } rules_exam;
 
-/* One finding. Strings are owned by the rules_result. */
-typedef struct rules_finding {
-    char *rule_id;
-    rules_severity severity;
-    char *quantity;          /* "tib", "mi", "time_at_or_above", "cem43", ... */
-    double measured;
-    char *unit;              /* "", "min", "CEM43 min", "instances" */
-    double limit;            /* meaningful when has_limit */
-    int has_limit;
-    double threshold;        /* dwell: the TI threshold; else 0 */
-    exam_index index;         /* governing index used, when has_index */
-    int has_index;
-    char **instance_uids;    /* the instances that produced it */
-    size_t instance_count;
-    double first_seconds;    /* time span of those instances, when has_span */
-    double last_seconds;
-    int has_span;
-    double estimated_seconds;  /* timeline time behind it (dwell: time at
-                                  or above; Doppler: time in Doppler) */
-    char *assumptions;       /* "estimate: gap cap 300 s; ..." or "" */
-    int provisional;         /* exam not closed */
-    char policy_version[HASH_HEX_SIZE];
-    char *source;            /* the rule's source text, for users */
-    char *study_instance_uid;  /* NULL for output_not_reported */
-    char *room;                /* output_not_reported: the group */
-    char *transducer;
-} rules_finding;
 
 /* Values computed for every exam, finding or not. */
 typedef struct rules_measurements {
@@ -111,7 +75,7 @@ typedef struct rules_measurements {
 } rules_measurements;
 
 typedef struct rules_result {
-    rules_finding *findings;
+    exam_finding *findings;
     size_t finding_count;
     rules_measurements measurements;   /* rules_evaluate only */
     char policy_version[HASH_HEX_SIZE];
@@ -150,7 +114,7 @@ typedef struct rules_setting {
 typedef struct rules_rule_info {
     const char *id;
     const char *kind;    /* "ti_ceiling", "dwell", ... */
-    rules_severity severity;
+    exam_severity severity;
     int enabled;
     const char *source;
     const char *description;   /* one line, what the rule checks */

@@ -92,7 +92,7 @@ int rules_highest(const rules_view *view, exam_index index, double *value, exam_
     return found;
 }
 
-mitilog_status rules_emit(const rules_rule *rule, const rules_view *view, rules_severity severity,
+mitilog_status rules_emit(const rules_rule *rule, const rules_view *view, exam_severity severity,
                           const char *quantity, double measured, const char *unit,
                           const double *limit, double threshold, exam_index index,
                           const rules_match *match, const char *note, rules_result *result,

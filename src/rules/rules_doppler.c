@@ -51,7 +51,7 @@ mitilog_status rules_check_first_trimester(const rules_rule *rule, const rules_v
         int has_ti_limit = rules_rule_limit(rule, "ti_limit", exam, &ti_limit);
         int has_minutes_limit = rules_rule_limit(rule, "doppler_minutes_limit", exam,
                                                  &minutes_limit);
-        rules_severity severity = rule->severity;
+        exam_severity severity = rule->severity;
         int over = (has_ti_limit && reporting > 0 && match.max_value > ti_limit) ||
                    (has_minutes_limit && doppler_seconds / 60.0 > minutes_limit);
         if (over && rule->has_severity_over_limit)

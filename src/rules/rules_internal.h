@@ -51,9 +51,9 @@ enum { RULES_MAX_SELECTORS = 16 };
 typedef struct rules_rule {
     char *id;
     rules_kind kind;
-    rules_severity severity;
+    exam_severity severity;
     int has_severity;
-    rules_severity severity_over_limit;   /* first_trimester_doppler */
+    exam_severity severity_over_limit;   /* first_trimester_doppler */
     int has_severity_over_limit;
     int enabled;
     char *source;
@@ -105,7 +105,7 @@ int rules_rule_limit(const rules_rule *rule, const char *base,
 /* rules_findings.c: appending findings to a result. */
 typedef struct rules_finding_input {
     const rules_rule *rule;
-    rules_severity severity;
+    exam_severity severity;
     const char *quantity;
     double measured;
     const char *unit;
@@ -180,7 +180,7 @@ int rules_highest(const rules_view *view, exam_index index, double *value, exam_
 
 /* Appends a finding for an exam from a match (rules_captures.c). */
 mitilog_status rules_emit(const rules_rule *rule, const rules_view *view,
-                          rules_severity severity, const char *quantity, double measured,
+                          exam_severity severity, const char *quantity, double measured,
                           const char *unit, const double *limit, double threshold,
                           exam_index index, const rules_match *match, const char *note,
                           rules_result *result, mitilog_error *error);

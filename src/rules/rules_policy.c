@@ -25,16 +25,10 @@ const char *rules_kind_name(rules_kind kind)
 }
 
 static const char *const age_names[RULES_AGE_COUNT] = {"unknown", "adult", "child", "neonate"};
-static const char *const severity_names[3] = {"advisory", "warning", "violation"};
 
 const char *rules_age_name(rules_age age)
 {
     return age < RULES_AGE_COUNT ? age_names[age] : "unknown";
-}
-
-const char *rules_severity_name(rules_severity severity)
-{
-    return severity <= RULES_SEVERITY_VIOLATION ? severity_names[severity] : "unknown";
 }
 
 static int lookup(const char *const *names, int count, const char *text)
@@ -52,15 +46,6 @@ int rules_age_parse(const char *text, rules_age *age)
     if (found < 0)
         return -1;
     *age = (rules_age)found;
-    return 0;
-}
-
-int rules_severity_parse(const char *text, rules_severity *severity)
-{
-    int found = lookup(severity_names, 3, text);
-    if (found < 0)
-        return -1;
-    *severity = (rules_severity)found;
     return 0;
 }
 
@@ -172,13 +157,13 @@ static int build_settings(rules_rule *rule)
     char key[200], value[64];
     collapse_spaces(rule->source);
     int failed = add_setting(rule, "enabled", rule->enabled ? "yes" : "no") ||
-                 add_setting(rule, "severity", rules_severity_name(rule->severity)) ||
+                 add_setting(rule, "severity", exam_severity_name(rule->severity)) ||
                  add_selector_list(rule, "applies", rule->applies, rule->applies_count) ||
                  add_selector_list(rule, "except", rule->excepts, rule->except_count);
     if (rule->has_severity_over_limit)
         failed = failed ||
                  add_setting(rule, "severity_over_limit",
-                             rules_severity_name(rule->severity_over_limit));
+                             exam_severity_name(rule->severity_over_limit));
     if (rule->kind == RULES_KIND_FIRST_TRIMESTER_DOPPLER) {
         rules_format_number(rule->before_weeks, value, sizeof value);
         failed = failed || add_setting(rule, "before_weeks", value);

@@ -329,8 +329,8 @@ static int handle_rule_key(parse_state *state, rules_rule *rule, const char *sec
         return 0;
     char reason[300];
     if (strcmp(key, "severity") == 0 || strcmp(key, "severity_over_limit") == 0) {
-        rules_severity severity;
-        if (rules_severity_parse(value, &severity) != 0) {
+        exam_severity severity;
+        if (exam_severity_parse(value, &severity) != 0) {
             snprintf(reason, sizeof reason, "'%.200s' is not advisory, warning or violation",
                      value);
             return fail(state, MITILOG_ERROR_INVALID, section, key, reason);

@@ -177,22 +177,6 @@ mitilog_status store_register_policy(store *store, const store_policy *policy,
 /* Copies the active version ("" when none) into out. */
 void store_active_policy_version(store *store, char out[65]);
 
-typedef struct store_finding {
-    const char *rule_id, *severity, *quantity, *unit;
-    double measured;
-    int has_limit;
-    double limit;
-    double threshold;
-    const char *governing_index;        /* "tib", NULL */
-    const char *const *instance_uids;
-    size_t instance_count;
-    int has_span;
-    double first_seconds, last_seconds; /* ext_iso_to_seconds scale */
-    double estimated_seconds;
-    const char *assumptions, *source;
-    int provisional;
-    const char *room, *transducer;      /* device-level findings */
-} store_finding;
 
 /* One evaluation: of an exam (study_instance_uid set) or of a
  * device-level rule over a period (study_instance_uid NULL, rule_id and
@@ -214,7 +198,7 @@ typedef struct store_evaluation {
     const char *exam_type, *room, *preset, *shift, *transducer, *age_group;
     const char *last_received_at;
     int closed;
-    const store_finding *findings;
+    const exam_finding *findings;
     size_t finding_count;
     /* exam measurements */
     const char *governing_index;

@@ -66,6 +66,23 @@ static const char *store_or_empty(const char *text)
     return text != NULL ? text : "";
 }
 
+/* The room and transducer of a device-level finding (an exam's findings
+ * take the evaluation's). */
+static const char *store_finding_room(const exam_finding *f)
+{
+    return f->study_instance_uid == NULL ? f->room : NULL;
+}
+
+static const char *store_finding_transducer(const exam_finding *f)
+{
+    return f->study_instance_uid == NULL ? f->transducer : NULL;
+}
+
+static const char *store_finding_index(const exam_finding *f)
+{
+    return f->has_index ? exam_index_name(f->index) : NULL;
+}
+
 /* The canonical text an evaluation's hash is computed from. */
 static int store_evaluation_hash(const store_evaluation *e, char out[HASH_HEX_SIZE])
 {
@@ -84,15 +101,17 @@ static int store_evaluation_hash(const store_evaluation *e, char out[HASH_HEX_SI
     for (int i = 0; i < EXAM_TI_STEP_COUNT; i++)
         store_text_add(&text, "|%.17g", e->seconds_at_or_above[i]);
     for (size_t i = 0; i < e->finding_count; i++) {
-        const store_finding *f = &e->findings[i];
+        const exam_finding *f = &e->findings[i];
         store_text_add(&text, "\nf=%s|%s|%s|%s|%.17g|%d:%.17g|%.17g|%s|%d:%.17g:%.17g|%.17g|%s|"
                        "%s|%d|%s|%s|",
-                       f->rule_id, f->severity, store_or_empty(f->quantity),
-                       store_or_empty(f->unit), f->measured, f->has_limit, f->limit,
-                       f->threshold, store_or_empty(f->governing_index), f->has_span,
-                       f->first_seconds, f->last_seconds, f->estimated_seconds,
-                       store_or_empty(f->assumptions), store_or_empty(f->source),
-                       f->provisional, store_or_empty(f->room), store_or_empty(f->transducer));
+                       f->rule_id, exam_severity_name(f->severity),
+                       store_or_empty(f->quantity), store_or_empty(f->unit), f->measured,
+                       f->has_limit, f->limit, f->threshold,
+                       store_or_empty(store_finding_index(f)), f->has_span, f->first_seconds,
+                       f->last_seconds, f->estimated_seconds, store_or_empty(f->assumptions),
+                       store_or_empty(f->source), f->provisional,
+                       store_or_empty(store_finding_room(f)),
+                       store_or_empty(store_finding_transducer(f)));
         for (size_t k = 0; k < f->instance_count; k++)
             store_text_add(&text, "%s,", f->instance_uids[k]);
     }
@@ -230,7 +249,7 @@ mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog
 }
 
 /* Builds a finding's instance_uids JSON array with SQLite (malloc'ed). */
-static int store_uids_json(sqlite3_stmt *append, const store_finding *finding, char **out)
+static int store_uids_json(sqlite3_stmt *append, const exam_finding *finding, char **out)
 {
     char *array = strdup("[]");
     int rc = array != NULL ? SQLITE_OK : SQLITE_NOMEM;
@@ -259,7 +278,7 @@ static int store_uids_json(sqlite3_stmt *append, const store_finding *finding, c
 }
 
 static int store_insert_finding(sqlite3_stmt *insert, sqlite3_stmt *append,
-                                const store_evaluation *e, const store_finding *f)
+                                const store_evaluation *e, const exam_finding *f)
 {
     char *uids = NULL;
     int rc = store_uids_json(append, f, &uids);
@@ -269,19 +288,20 @@ static int store_insert_finding(sqlite3_stmt *insert, sqlite3_stmt *append,
     } texts[] = {
         {":study_instance_uid", e->study_instance_uid},
         {":rule_id", f->rule_id},
-        {":severity", f->severity},
+        {":severity", exam_severity_name(f->severity)},
         {":quantity", f->quantity},
         {":unit", f->unit},
-        {":governing_index", f->governing_index},
+        {":governing_index", store_finding_index(f)},
         {":instance_uids", uids},
         {":assumptions", f->assumptions},
         {":source_text", f->source},
         {":policy_version", e->policy_version},
         {":exam_type", e->exam_type},
-        {":room", f->room != NULL ? f->room : e->room},
+        {":room", store_finding_room(f) != NULL ? store_finding_room(f) : e->room},
         {":preset", e->preset},
         {":shift", e->shift},
-        {":transducer", f->transducer != NULL ? f->transducer : e->transducer},
+        {":transducer", store_finding_transducer(f) != NULL ? store_finding_transducer(f)
+                                                            : e->transducer},
         {":period", e->study_instance_uid == NULL ? e->period : NULL},
     };
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0]; i++)

@@ -118,7 +118,7 @@ static inline size_t support_count(const rules_result *result, const char *rule_
     return count;
 }
 
-static inline const rules_finding *support_find(const rules_result *result, const char *rule_id,
+static inline const exam_finding *support_find(const rules_result *result, const char *rule_id,
                                                 double threshold)
 {
     for (size_t i = 0; i < result->finding_count; i++) {

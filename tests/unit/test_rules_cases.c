@@ -186,7 +186,7 @@ static int handle(void *user, const char *section, const char *key, const char *
 }
 
 /* "ID" or "ID@threshold" -> the first matching finding. */
-static const rules_finding *finding_for(const rules_result *result, const char *what)
+static const exam_finding *finding_for(const rules_result *result, const char *what)
 {
     char id[TEXT];
     snprintf(id, sizeof id, "%s", what);
@@ -197,7 +197,7 @@ static const rules_finding *finding_for(const rules_result *result, const char *
         threshold = atof(at + 1);
     }
     for (size_t i = 0; i < result->finding_count; i++) {
-        const rules_finding *finding = &result->findings[i];
+        const exam_finding *finding = &result->findings[i];
         if (strcmp(finding->rule_id, id) == 0 &&
             (threshold < 0 || fabs(finding->threshold - threshold) < 1e-9))
             return finding;
@@ -213,7 +213,7 @@ static void check_expectation(const char *name, const test_case *c, const rules_
     const char *dot = strchr(key, '.');
     const char *what = dot ? dot + 1 : "";
     size_t kind = dot ? (size_t)(dot - key) : strlen(key);
-    const rules_finding *finding = dot ? finding_for(result, what) : NULL;
+    const exam_finding *finding = dot ? finding_for(result, what) : NULL;
     double actual = 0;
     const char *actual_text = NULL;
     if (strcmp(key, "findings") == 0) {
@@ -239,7 +239,7 @@ static void check_expectation(const char *name, const test_case *c, const rules_
     } else if (kind == 5 && strncmp(key, "limit", 5) == 0) {
         actual = finding->limit;
     } else if (kind == 8 && strncmp(key, "severity", 8) == 0) {
-        actual_text = rules_severity_name(finding->severity);
+        actual_text = exam_severity_name(finding->severity);
     } else if (kind == 5 && strncmp(key, "index", 5) == 0) {
         actual_text = finding->has_index ? exam_index_name(finding->index) : "none";
     } else if (kind == 9 && strncmp(key, "instances", 9) == 0) {

@@ -61,7 +61,7 @@ static void check_table(const char *rule_id, exam_group group, double weeks, exa
         }
         evaluate_one(group, weeks, index, steps[s].threshold, limit_seconds + 1, &result);
         assert_int_equal(support_count(&result, rule_id, -1), 1);
-        const rules_finding *finding = support_find(&result, rule_id, steps[s].threshold);
+        const exam_finding *finding = support_find(&result, rule_id, steps[s].threshold);
         assert_non_null(finding);
         assert_close(finding->measured, (limit_seconds + 1) / 60.0, 1e-9);
         assert_close(finding->limit, limit_seconds / 60.0, 1e-9);
@@ -154,7 +154,7 @@ static void governing_index_switches_at_ten_weeks(void **state)
     rules_result_free(&result);
 }
 
-static size_t doppler_findings(double weeks, unsigned modes, double tib, rules_severity *severity)
+static size_t doppler_findings(double weeks, unsigned modes, double tib, exam_severity *severity)
 {
     exam_capture captures[2] = {support_capture("1", 0, 0), support_capture("2", 120, 0)};
     captures[1].modes = modes;
@@ -166,7 +166,7 @@ static size_t doppler_findings(double weeks, unsigned modes, double tib, rules_s
     mitilog_error error;
     assert_int_equal(rules_evaluate(policy, &exam, &result, &error), MITILOG_OK);
     size_t count = support_count(&result, "first_trimester_doppler", -1);
-    const rules_finding *finding = support_find(&result, "first_trimester_doppler", -1);
+    const exam_finding *finding = support_find(&result, "first_trimester_doppler", -1);
     if (finding) {
         *severity = finding->severity;
         assert_close(finding->estimated_seconds, 120, 1e-9);
@@ -181,14 +181,14 @@ static size_t doppler_findings(double weeks, unsigned modes, double tib, rules_s
 static void first_trimester_doppler_boundary(void **state)
 {
     (void)state;
-    rules_severity severity = RULES_SEVERITY_VIOLATION;
+    exam_severity severity = EXAM_SEVERITY_VIOLATION;
     assert_int_equal(doppler_findings(13 + 6 / 7.0, EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_PW), 0.8, &severity), 1);
-    assert_int_equal(severity, RULES_SEVERITY_ADVISORY);
+    assert_int_equal(severity, EXAM_SEVERITY_ADVISORY);
     assert_int_equal(doppler_findings(14.0, EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_PW), 0.8, &severity), 0);
     assert_int_equal(doppler_findings(12, EXAM_MODE_BIT(EXAM_MODE_CW), 1.0, &severity), 1);
-    assert_int_equal(severity, RULES_SEVERITY_ADVISORY);
+    assert_int_equal(severity, EXAM_SEVERITY_ADVISORY);
     assert_int_equal(doppler_findings(12, EXAM_MODE_BIT(EXAM_MODE_COLOUR), 1.01, &severity), 1);
-    assert_int_equal(severity, RULES_SEVERITY_WARNING);
+    assert_int_equal(severity, EXAM_SEVERITY_WARNING);
     assert_int_equal(doppler_findings(12, EXAM_MODE_BIT(EXAM_MODE_POWER), 0.5, &severity), 1);
     assert_int_equal(doppler_findings(12, EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_M), 0.5, &severity), 0);
 }
@@ -216,7 +216,7 @@ static void equipment_maxima(void **state)
     result = evaluate_mi(EXAM_GROUP_GENERAL, NULL, 1.91, 0.5);
     assert_int_equal(result.finding_count, 1);
     assert_string_equal(result.findings[0].rule_id, "equipment_maxima");
-    assert_int_equal(result.findings[0].severity, RULES_SEVERITY_VIOLATION);
+    assert_int_equal(result.findings[0].severity, EXAM_SEVERITY_VIOLATION);
     assert_string_equal(result.findings[0].quantity, "mi");
     assert_non_null(strstr(result.findings[0].assumptions, "equipment"));
     rules_result_free(&result);
@@ -282,7 +282,7 @@ static void output_not_reported_aggregates_per_device(void **state)
     assert_string_equal(result.findings[1].room, "ROOM B");
     assert_close(result.findings[1].measured, 2, 0);
     assert_close(result.findings[1].last_seconds, 900, 0);
-    assert_int_equal(result.findings[1].severity, RULES_SEVERITY_ADVISORY);
+    assert_int_equal(result.findings[1].severity, EXAM_SEVERITY_ADVISORY);
     rules_result_free(&result);
 }
 
@@ -306,7 +306,7 @@ static void optional_rules_off_by_default(void **state)
                                              "limit = 5\n\n[rule exam_duration]");
     assert_non_null(site);
     assert_int_equal(rules_evaluate(site, &exam, &result, &error), MITILOG_OK);
-    const rules_finding *dose = support_find(&result, "thermal_dose", -1);
+    const exam_finding *dose = support_find(&result, "thermal_dose", -1);
     assert_non_null(dose);
     assert_close(dose->measured, 10 + 1 / 60.0, 1e-9);
     assert_string_equal(dose->unit, "CEM43 min");
@@ -321,7 +321,7 @@ static void optional_rules_off_by_default(void **state)
     assert_int_equal(rules_policy_load_text(text, "p.ini", &site, &error), MITILOG_OK);
     free(text);
     assert_int_equal(rules_evaluate(site, &exam, &result, &error), MITILOG_OK);
-    const rules_finding *duration = support_find(&result, "exam_duration", -1);
+    const exam_finding *duration = support_find(&result, "exam_duration", -1);
     assert_non_null(duration);
     assert_close(duration->measured, 180 + 1 / 60.0, 1e-9);   /* 0 s to 10801 s */
     rules_result_free(&result);

@@ -60,10 +60,10 @@ static void evaluate(const rules_policy *policy, const rules_exam *exam, rules_r
     assert_int_equal(rules_evaluate(policy, exam, result, &error), MITILOG_OK);
 }
 
-static int has_finding(const rules_result *result, const rules_finding *finding)
+static int has_finding(const rules_result *result, const exam_finding *finding)
 {
     for (size_t i = 0; i < result->finding_count; i++) {
-        const rules_finding *other = &result->findings[i];
+        const exam_finding *other = &result->findings[i];
         if (strcmp(other->rule_id, finding->rule_id) == 0 &&
             strcmp(other->quantity, finding->quantity) == 0 &&
             other->threshold == finding->threshold)
@@ -72,7 +72,7 @@ static int has_finding(const rules_result *result, const rules_finding *finding)
     return 0;
 }
 
-static int is_dwell(const rules_finding *finding)
+static int is_dwell(const exam_finding *finding)
 {
     return strncmp(finding->rule_id, "dwell_", 6) == 0;
 }
@@ -136,7 +136,7 @@ static void lowering_indices_never_adds_a_finding(void **state)
     }
 }
 
-static void same_findings(const rules_finding *a, const rules_finding *b)
+static void same_findings(const exam_finding *a, const exam_finding *b)
 {
     assert_string_equal(a->rule_id, b->rule_id);
     assert_int_equal(a->severity, b->severity);

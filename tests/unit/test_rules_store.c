@@ -97,14 +97,15 @@ static long count_of(const fixture *f, const char *sql)
     return value;
 }
 
-static const char *const uids[] = {"1.2.3.1", "1.2.3.2"};
+static char *uids[] = {"1.2.3.1", "1.2.3.2"};
 
-static store_evaluation exam_evaluation(const char *version, store_finding *findings,
+static store_evaluation exam_evaluation(const char *version, exam_finding *findings,
                                         double measured)
 {
-    findings[0] = (store_finding){.rule_id = "ti_ceiling", .severity = "warning",
+    findings[0] = (exam_finding){.rule_id = "ti_ceiling", .severity = EXAM_SEVERITY_WARNING,
                                   .quantity = "tis", .unit = "", .measured = measured,
-                                  .has_limit = 1, .limit = 2.0, .governing_index = "tis",
+                                  .has_limit = 1, .limit = 2.0, .index = EXAM_INDEX_TIS,
+                                  .has_index = 1,
                                   .instance_uids = uids, .instance_count = 2, .has_span = 1,
                                   .first_seconds = 63900000000.0,
                                   .last_seconds = 63900000060.0, .estimated_seconds = 60,
@@ -112,7 +113,7 @@ static store_evaluation exam_evaluation(const char *version, store_finding *find
                                   .source = "TI 2.0 [trade]", .provisional = 1};
     findings[1] = findings[0];
     findings[1].rule_id = "equipment_maxima";
-    findings[1].severity = "violation";
+    findings[1].severity = EXAM_SEVERITY_VIOLATION;
     findings[1].quantity = "mi";
     findings[1].measured = 2.1;
     findings[1].limit = 1.9;
@@ -132,7 +133,7 @@ static void test_written_replaced_superseded(void **state)
 {
     fixture *f = *state;
     mitilog_error error;
-    store_finding findings[2];
+    exam_finding findings[2];
     store_evaluation evaluation = exam_evaluation("v1", findings, 2.5);
     store_evaluation_counts counts = {0};
     assert_int_equal(store_put_evaluation(f->store, &evaluation, &counts, &error), MITILOG_OK);
@@ -176,10 +177,11 @@ static void test_rescoring_twice_changes_nothing(void **state)
 {
     fixture *f = *state;
     mitilog_error error;
-    store_finding findings[2];
+    exam_finding findings[2];
     store_evaluation evaluation = exam_evaluation("v1", findings, 2.5);
     assert_int_equal(store_put_evaluation(f->store, &evaluation, NULL, &error), MITILOG_OK);
-    store_finding device[1] = {{.rule_id = "output_not_reported", .severity = "advisory",
+    exam_finding device[1] = {{.rule_id = "output_not_reported",
+                                .severity = EXAM_SEVERITY_ADVISORY,
                                 .quantity = "instances_without_index", .unit = "instances",
                                 .measured = 1, .has_limit = 1, .limit = 1,
                                 .instance_uids = uids, .instance_count = 1,
