@@ -223,6 +223,21 @@ typedef struct exam_finding {
     char *transducer;
 } exam_finding;
 
+/* ---- One received instance of a day -------------------------------- */
+
+/* An ultrasound instance as the day-level rule output_not_reported reads
+ * it; the store fills it (store_load_day_instances, which owns and frees
+ * the strings). */
+typedef struct exam_device_instance {
+    const char *sop_instance_uid;
+    const char *study_instance_uid;
+    const char *room;          /* station name or department; NULL = "" */
+    const char *transducer;
+    int has_any_index;         /* any of the six indices ok */
+    double time_seconds;       /* acquisition time, when has_time */
+    int has_time;
+} exam_device_instance;
+
 /* ---- One capture of an exam ----------------------------------------- */
 
 /* An image, cine loop or volume of an exam as the timeline and the rules

@@ -108,23 +108,12 @@ done:
 mitilog_status ingest_evaluate_day(store *st, const rules_policy *policy, const char *day,
                                    store_evaluation_counts *counts, mitilog_error *error)
 {
-    store_device_instance *rows = NULL;
+    exam_device_instance *instances = NULL;
     size_t count = 0;
-    mitilog_status status = store_load_day_instances(st, day, &rows, &count, error);
+    mitilog_status status = store_load_day_instances(st, day, &instances, &count, error);
     if (status != MITILOG_OK)
         return status;
-    rules_instance *instances = calloc(count ? count : 1, sizeof *instances);
     rules_result result = {0};
-    if (instances == NULL) {
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-        goto done;
-    }
-    for (size_t i = 0; i < count; i++) {
-        double seconds = rows[i].acquired_at ? ext_iso_to_seconds(rows[i].acquired_at) : -1;
-        instances[i] = (rules_instance){rows[i].sop_instance_uid, rows[i].study_instance_uid,
-                                        rows[i].room, rows[i].transducer,
-                                        rows[i].has_any_index, seconds, seconds >= 0};
-    }
     status = rules_output_not_reported(policy, instances, count, &result, error);
     if (status != MITILOG_OK)
         goto done;
@@ -141,8 +130,7 @@ mitilog_status ingest_evaluate_day(store *st, const rules_policy *policy, const 
     status = store_put_evaluation(st, &evaluation, counts, error);
 done:
     rules_result_free(&result);
-    free(instances);
-    store_day_instances_free(rows, count);
+    store_day_instances_free(instances, count);
     return status;
 }
 

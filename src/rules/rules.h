@@ -146,23 +146,12 @@ mitilog_status rules_evaluate(const rules_policy *policy,
                               const rules_exam *exam, rules_result *result,
                               mitilog_error *error);
 
-/* One ultrasound instance for rule output_not_reported. */
-typedef struct rules_instance {
-    const char *sop_instance_uid;
-    const char *study_instance_uid;
-    const char *room;          /* station name or department; NULL = "" */
-    const char *transducer;
-    int has_any_index;         /* any of the six indices ok */
-    double time_seconds;
-    int has_time;
-} rules_instance;
-
 /* Groups instances by (room, transducer); one finding per group with at
  * least the rule's minimum of instances that report no index at all:
  * measured = silent count, instances = their UIDs, span = first/last
  * silent time. Findings ordered by room, then transducer. */
 mitilog_status rules_output_not_reported(const rules_policy *policy,
-                                         const rules_instance *instances,
+                                         const exam_device_instance *instances,
                                          size_t count, rules_result *result,
                                          mitilog_error *error);
 

@@ -246,15 +246,12 @@ mitilog_status store_list(store *store, store_list_kind kind, const char *a, con
                           char ***texts, size_t *count, mitilog_error *error);
 void store_texts_free(char **texts, size_t count);
 
-/* Ultrasound instances of one day for rule output_not_reported. */
-typedef struct store_device_instance {
-    char *sop_instance_uid, *study_instance_uid, *room, *transducer, *acquired_at;
-    int has_any_index;
-} store_device_instance;
+/* Ultrasound instances of one day for rule output_not_reported; free
+ * with store_day_instances_free(). */
 mitilog_status store_load_day_instances(store *store, const char *day,
-                                        store_device_instance **instances, size_t *count,
+                                        exam_device_instance **instances, size_t *count,
                                         mitilog_error *error);
-void store_day_instances_free(store_device_instance *instances, size_t count);
+void store_day_instances_free(exam_device_instance *instances, size_t count);
 
 /* GET /api/v1/findings. Filters: NULL or "" = none. */
 typedef struct store_finding_filter {

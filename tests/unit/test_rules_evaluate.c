@@ -259,10 +259,10 @@ static void mi_ceiling_per_category(void **state)
 static void output_not_reported_aggregates_per_device(void **state)
 {
     (void)state;
-    rules_instance instances[11];
+    exam_device_instance instances[11];
     const char *uids[11] = {"a1", "a2", "a3", "a4", "a5", "y1", "y2", "y3", "b1", "b2", "b3"};
     for (size_t i = 0; i < 11; i++) {
-        instances[i] = (rules_instance){uids[i], "1.2", i < 8 ? "ROOM A" : "ROOM B",
+        instances[i] = (exam_device_instance){uids[i], "1.2", i < 8 ? "ROOM A" : "ROOM B",
                                         i < 5 || i >= 8 ? "C5-1" : "L12-5", 0, 100.0 * i, 1};
     }
     for (size_t i = 5; i < 8; i++)
