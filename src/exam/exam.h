@@ -223,6 +223,27 @@ typedef struct exam_finding {
     char *transducer;
 } exam_finding;
 
+/* ---- A policy rule as described to users ---------------------------- */
+
+/* One normalised setting and one rule of a policy (docs/policy.md), as
+ * the policy engine describes them (rules_policy_rule_at) and the store
+ * writes them into the policy document. Strings point into the policy. */
+typedef struct exam_setting {
+    const char *key;     /* "limit", "limit.group.ophthalmic", "dwell.1.0" */
+    const char *value;   /* normalised: "2", "off", "not_recommended" */
+} exam_setting;
+
+typedef struct exam_rule_info {
+    const char *id;
+    const char *kind;    /* "ti_ceiling", "dwell", ... */
+    exam_severity severity;
+    int enabled;
+    const char *source;
+    const char *description;   /* one line, what the rule checks */
+    const exam_setting *settings;
+    size_t setting_count;
+} exam_rule_info;
+
 /* ---- One received instance of a day -------------------------------- */
 
 /* An ultrasound instance as the day-level rule output_not_reported reads

@@ -42,41 +42,14 @@ unsigned ingest_rules_modes(unsigned ext_modes)
 mitilog_status ingest_register_policy(store *st, const rules_policy *policy, mitilog_error *error)
 {
     size_t count = rules_policy_rule_count(policy);
-    store_policy_rule *rules = calloc(count ? count : 1, sizeof *rules);
-    const char **texts = NULL;
-    size_t total = 0;
+    exam_rule_info *rules = calloc(count ? count : 1, sizeof *rules);
     mitilog_status status = MITILOG_OK;
-    for (size_t r = 0; rules != NULL && r < count; r++) {
-        rules_rule_info info;
-        if (rules_policy_rule_at(policy, r, &info) == 0)
-            total += info.setting_count;
-    }
-    texts = calloc(total * 2 + 1, sizeof *texts);
-    if (rules == NULL || texts == NULL) {
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-        goto done;
-    }
-    size_t used = 0;
-    for (size_t r = 0; r < count; r++) {
-        rules_rule_info info;
-        if (rules_policy_rule_at(policy, r, &info) != 0)
-            continue;
-        store_policy_rule *rule = &rules[r];
-        rule->id = info.id;
-        rule->kind = info.kind;
-        rule->severity = exam_severity_name(info.severity);
-        rule->enabled = info.enabled;
-        rule->source = info.source;
-        rule->description = info.description;
-        rule->setting_keys = texts + used;
-        rule->setting_values = texts + total + used;
-        rule->setting_count = info.setting_count;
-        for (size_t k = 0; k < info.setting_count; k++) {
-            texts[used + k] = info.settings[k].key;
-            texts[total + used + k] = info.settings[k].value;
-        }
-        used += info.setting_count;
-    }
+    if (rules == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    size_t described = 0;
+    for (size_t r = 0; r < count; r++)
+        if (rules_policy_rule_at(policy, r, &rules[described]) == 0)
+            described++;
     /* The limits of every group and age group (an unknown age reads as
      * adult), for the dashboard. */
     static const rules_age ages[] = {RULES_AGE_ADULT, RULES_AGE_CHILD, RULES_AGE_NEONATE};
@@ -93,14 +66,12 @@ mitilog_status ingest_register_policy(store *st, const rules_policy *policy, mit
         .closed_after_idle_minutes = rules_policy_closed_after_idle_minutes(policy),
         .gap_cap_seconds = rules_policy_gap_cap_seconds(policy),
         .rules = rules,
-        .rule_count = count,
+        .rule_count = described,
         .limits = limits,
         .limit_count = limit_count,
     };
     input.name = rules_policy_name(policy);
     status = store_register_policy(st, &input, error);
-done:
-    free(texts);
     free(rules);
     return status;
 }

@@ -105,27 +105,12 @@ const char *rules_policy_normalised(const rules_policy *policy);
 double rules_policy_closed_after_idle_minutes(const rules_policy *policy);
 double rules_policy_gap_cap_seconds(const rules_policy *policy);
 
-/* Iteration for the HTTP layer; pointers stay valid while the policy does. */
-typedef struct rules_setting {
-    const char *key;     /* "limit", "limit.group.ophthalmic", "dwell.1.0" */
-    const char *value;   /* normalised: "2", "off", "not_recommended" */
-} rules_setting;
-
-typedef struct rules_rule_info {
-    const char *id;
-    const char *kind;    /* "ti_ceiling", "dwell", ... */
-    exam_severity severity;
-    int enabled;
-    const char *source;
-    const char *description;   /* one line, what the rule checks */
-    const rules_setting *settings;
-    size_t setting_count;
-} rules_rule_info;
-
+/* Iteration (exam_rule_info, exam/exam.h); pointers stay valid while the
+ * policy does. */
 size_t rules_policy_rule_count(const rules_policy *policy);
 /* Returns 0, or -1 if index is out of range. */
 int rules_policy_rule_at(const rules_policy *policy, size_t index,
-                         rules_rule_info *info);
+                         exam_rule_info *info);
 
 /* The limits the policy sets for an exam of a group and age group
  * without an exam-type-specific key (what the dashboard draws): the

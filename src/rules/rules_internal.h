@@ -74,7 +74,7 @@ typedef struct rules_rule {
     char **seen_keys;        /* for "set twice" errors */
     size_t seen_count;
 
-    rules_setting *settings; /* normalised, for iteration */
+    exam_setting *settings; /* normalised, for iteration */
     size_t setting_count;
 } rules_rule;
 

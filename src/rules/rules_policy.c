@@ -81,7 +81,7 @@ static int compare_text(const void *a, const void *b)
 
 static int compare_setting(const void *a, const void *b)
 {
-    return strcmp(((const rules_setting *)a)->key, ((const rules_setting *)b)->key);
+    return strcmp(((const exam_setting *)a)->key, ((const exam_setting *)b)->key);
 }
 
 static int compare_rule(const void *a, const void *b)
@@ -94,7 +94,7 @@ static int compare_rule(const void *a, const void *b)
 
 static int add_setting(rules_rule *rule, const char *key, const char *value)
 {
-    rules_setting *grown = realloc(rule->settings, (rule->setting_count + 1) * sizeof *grown);
+    exam_setting *grown = realloc(rule->settings, (rule->setting_count + 1) * sizeof *grown);
     if (grown == NULL)
         return -1;
     rule->settings = grown;
@@ -277,7 +277,7 @@ size_t rules_policy_rule_count(const rules_policy *policy)
     return policy->rule_count;
 }
 
-int rules_policy_rule_at(const rules_policy *policy, size_t index, rules_rule_info *info)
+int rules_policy_rule_at(const rules_policy *policy, size_t index, exam_rule_info *info)
 {
     if (index >= policy->rule_count)
         return -1;

@@ -145,25 +145,16 @@ mitilog_status store_health_json(store *store, char **json,
                                  mitilog_error *error);
 
 /* ---- ALARA policy and findings (store_findings.c, store_findings_read.c).
- * The store knows no rules: callers (src/ingest, src/cli) flatten a
- * policy and its findings into the plain structs below; every string is
- * borrowed for the call. */
-
-typedef struct store_policy_rule {
-    const char *id, *kind, *severity;   /* "ti_ceiling", "warning" */
-    int enabled;
-    const char *source, *description;
-    const char *const *setting_keys;    /* "limit.group.ophthalmic" */
-    const char *const *setting_values;  /* normalised text: "2", "off" */
-    size_t setting_count;
-} store_policy_rule;
+ * The store knows no rules: callers (src/ingest, src/cli) pass a policy
+ * and its findings as the exam vocabulary's types (exam/exam.h); every
+ * string is borrowed for the call. */
 
 typedef struct store_policy {
     const char *version;                /* SHA-256 hex of the normalised text */
     const char *name;
     const char *normalised_text;
     double closed_after_idle_minutes, gap_cap_seconds;
-    const store_policy_rule *rules;
+    const exam_rule_info *rules;
     size_t rule_count;
     const exam_limits *limits;          /* per group and age group, for the */
     size_t limit_count;                 /* dashboard (/api/v1/policy) */

@@ -217,11 +217,12 @@ mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog
         rc = store_bind_double_named(upsert, ":gap_cap_seconds", 1, policy->gap_cap_seconds);
     rc = store_run(upsert, rc);
     for (size_t r = 0; rc == SQLITE_OK && r < policy->rule_count; r++) {
-        const store_policy_rule *info = &policy->rules[r];
+        const exam_rule_info *info = &policy->rules[r];
         rc = store_bind_text_named(rule, ":version", policy->version);
         if (rc == SQLITE_OK) rc = store_bind_text_named(rule, ":id", info->id);
         if (rc == SQLITE_OK) rc = store_bind_text_named(rule, ":kind", info->kind);
-        if (rc == SQLITE_OK) rc = store_bind_text_named(rule, ":severity", info->severity);
+        if (rc == SQLITE_OK)
+            rc = store_bind_text_named(rule, ":severity", exam_severity_name(info->severity));
         if (rc == SQLITE_OK) rc = store_bind_int_named(rule, ":enabled", info->enabled != 0);
         if (rc == SQLITE_OK) rc = store_bind_text_named(rule, ":source", info->source);
         if (rc == SQLITE_OK)
@@ -232,9 +233,9 @@ mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog
             if (rc == SQLITE_OK)
                 rc = store_bind_int_named(setting, ":rule_index", (sqlite3_int64)r);
             if (rc == SQLITE_OK)
-                rc = store_bind_text_named(setting, ":key", info->setting_keys[k]);
+                rc = store_bind_text_named(setting, ":key", info->settings[k].key);
             if (rc == SQLITE_OK)
-                rc = store_bind_text_named(setting, ":value", info->setting_values[k]);
+                rc = store_bind_text_named(setting, ":value", info->settings[k].value);
             rc = store_run(setting, rc);
         }
     }
