@@ -223,6 +223,22 @@ typedef struct exam_finding {
     char *transducer;
 } exam_finding;
 
+/* Values computed for every exam under a policy, finding or not (the
+ * policy engine fills them, the store writes them). Times are ESTIMATES
+ * from the exam timeline on the policy's gap cap. */
+typedef struct exam_measurements {
+    exam_index governing_index;
+    double max_index[EXAM_INDEX_COUNT];   /* when index_reported[i] */
+    int index_reported[EXAM_INDEX_COUNT];
+    double estimated_seconds;   /* timeline estimate (after the SR bound) */
+    double span_seconds;        /* last capture time - first */
+    double doppler_seconds;     /* estimated time in Doppler modes */
+    double cem43_minutes;       /* thermal dose, an estimate */
+    /* timeline seconds with the governing index at or above
+     * exam_ti_ladder[k] */
+    double seconds_at_or_above[EXAM_TI_STEP_COUNT];
+} exam_measurements;
+
 /* ---- A policy rule as described to users ---------------------------- */
 
 /* One normalised setting and one rule of a policy (docs/policy.md), as

@@ -121,13 +121,7 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
         /* No instance left to give a context: the record alone. */
         return status != MITILOG_OK ? status : store_put_exam(st, record, error);
     }
-    size_t n = exam->capture_count;
-    ext_timeline_entry *entries = calloc(n ? n : 1, sizeof *entries);
     rules_result result = {0};
-    if (entries == NULL) {
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-        goto done;
-    }
     rules_age age = RULES_AGE_UNKNOWN;
     if (context.age_group != NULL && rules_age_parse(context.age_group, &age) != 0)
         age = RULES_AGE_UNKNOWN;
@@ -147,12 +141,11 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
         .closed = context.idle_seconds >= idle_minutes * 60.0,
         .sr_scan_time_seconds = exam->sr_scan_time_seconds,
         .captures = exam->captures,
-        .capture_count = n,
+        .capture_count = exam->capture_count,
     };
     status = rules_evaluate(policy, &input, &result, error);
     if (status != MITILOG_OK)
         goto done;
-    const rules_measurements *m = &result.measurements;
     store_evaluation evaluation = {
         .exam = record,
         .policy_version = rules_policy_version(policy),
@@ -169,28 +162,11 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
         .closed = input.closed,
         .findings = result.findings,
         .finding_count = result.finding_count,
-        .governing_index = exam_index_name(m->governing_index),
-        .has_max_governing = m->index_reported[m->governing_index],
-        .max_governing = m->max_index[m->governing_index],
-        .has_max_mi = m->index_reported[EXAM_INDEX_MI],
-        .max_mi = m->max_index[EXAM_INDEX_MI],
-        .cem43_minutes = m->cem43_minutes,
-        .estimated_seconds = m->estimated_seconds,
-        .doppler_seconds = m->doppler_seconds,
+        .measurements = &result.measurements,
     };
-    /* Time at or above each dwell row, on the policy's gap cap (the same
-     * timeline rules_evaluate builds): an ESTIMATE. */
-    ext_timeline_summary summary;
-    ext_timeline_build(exam->captures, n, rules_policy_gap_cap_seconds(policy),
-                       exam->sr_scan_time_seconds, entries, &summary);
-    for (int k = 0; k < EXAM_TI_STEP_COUNT; k++)
-        evaluation.seconds_at_or_above[k] = ext_timeline_time_at_or_above(
-            exam->captures, entries, summary.entry_count, m->governing_index,
-            exam_ti_ladder[k]);
     status = store_put_evaluation(st, &evaluation, counts, error);
 done:
     rules_result_free(&result);
-    free(entries);
     store_study_context_free(&context);
     return status;
 }

@@ -63,21 +63,10 @@ typedef struct rules_exam {
 } rules_exam;
 
 
-/* Values computed for every exam, finding or not. */
-typedef struct rules_measurements {
-    exam_index governing_index;
-    double max_index[EXAM_INDEX_COUNT];   /* when index_reported[i] */
-    int index_reported[EXAM_INDEX_COUNT];
-    double estimated_seconds;   /* timeline estimate (after the SR bound) */
-    double span_seconds;        /* last capture time - first */
-    double doppler_seconds;     /* estimated time in Doppler modes */
-    double cem43_minutes;       /* thermal dose, an estimate */
-} rules_measurements;
-
 typedef struct rules_result {
     exam_finding *findings;
     size_t finding_count;
-    rules_measurements measurements;   /* rules_evaluate only */
+    exam_measurements measurements;    /* rules_evaluate only */
     char policy_version[HASH_HEX_SIZE];
 } rules_result;
 

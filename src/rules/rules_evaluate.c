@@ -19,7 +19,7 @@ exam_index rules_governing_index(const rules_exam *exam)
     return exam_governing_index(rule, exam->gestational_age_known, exam->gestational_age_weeks,
                                 NULL);
 }
-static void measure(rules_view *view, rules_measurements *out)
+static void measure(rules_view *view, exam_measurements *out)
 {
     memset(out, 0, sizeof *out);
     out->governing_index = view->governing;
@@ -41,6 +41,10 @@ static void measure(rules_view *view, rules_measurements *out)
             out->doppler_seconds += view->entries[k].attributed_seconds;
     }
     out->cem43_minutes = rules_timeline_cem43(view);
+    for (int k = 0; k < EXAM_TI_STEP_COUNT; k++)
+        out->seconds_at_or_above[k] =
+            ext_timeline_time_at_or_above(view->captures, view->entries, view->summary.entry_count,
+                                          view->governing, exam_ti_ladder[k]);
 }
 
 static void describe_timeline(const rules_view *view, double gap_cap, char *out, size_t size)

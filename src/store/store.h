@@ -191,12 +191,7 @@ typedef struct store_evaluation {
     int closed;
     const exam_finding *findings;
     size_t finding_count;
-    /* exam measurements */
-    const char *governing_index;
-    int has_max_governing, has_max_mi;
-    double max_governing, max_mi;
-    double cem43_minutes, estimated_seconds, doppler_seconds;
-    double seconds_at_or_above[EXAM_TI_STEP_COUNT];  /* at exam_ti_ladder[k] */
+    const exam_measurements *measurements;  /* of an exam; NULL: device-level */
 } store_evaluation;
 
 typedef struct store_evaluation_counts {

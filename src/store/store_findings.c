@@ -94,12 +94,15 @@ static int store_evaluation_hash(const store_evaluation *e, char out[HASH_HEX_SI
                    store_or_empty(e->exam_type), store_or_empty(e->room),
                    store_or_empty(e->preset), store_or_empty(e->shift),
                    store_or_empty(e->transducer), store_or_empty(e->age_group), e->closed);
+    const exam_measurements none = {0}, *m = e->measurements != NULL ? e->measurements : &none;
+    exam_index governing = m->governing_index;
     store_text_add(&text, "m=%s|%d:%.17g|%d:%.17g|%.17g|%.17g|%.17g",
-                   store_or_empty(e->governing_index), e->has_max_governing, e->max_governing,
-                   e->has_max_mi, e->max_mi, e->cem43_minutes, e->estimated_seconds,
-                   e->doppler_seconds);
+                   e->measurements != NULL ? exam_index_name(governing) : "",
+                   m->index_reported[governing], m->max_index[governing],
+                   m->index_reported[EXAM_INDEX_MI], m->max_index[EXAM_INDEX_MI],
+                   m->cem43_minutes, m->estimated_seconds, m->doppler_seconds);
     for (int i = 0; i < EXAM_TI_STEP_COUNT; i++)
-        store_text_add(&text, "|%.17g", e->seconds_at_or_above[i]);
+        store_text_add(&text, "|%.17g", m->seconds_at_or_above[i]);
     for (size_t i = 0; i < e->finding_count; i++) {
         const exam_finding *f = &e->findings[i];
         store_text_add(&text, "\nf=%s|%s|%s|%s|%.17g|%d:%.17g|%.17g|%s|%d:%.17g:%.17g|%.17g|%s|"
@@ -366,18 +369,21 @@ static int store_write_measurements(sqlite3_stmt *statement, const store_evaluat
 {
     int rc = store_bind_text_named(statement, ":study_instance_uid", e->study_instance_uid);
     if (rc == SQLITE_OK) rc = store_bind_text_named(statement, ":policy_version", e->policy_version);
-    if (rc == SQLITE_OK) rc = store_bind_text_named(statement, ":governing_index", e->governing_index);
+    const exam_measurements *m = e->measurements;
+    exam_index governing = m->governing_index;
+    if (rc == SQLITE_OK)
+        rc = store_bind_text_named(statement, ":governing_index", exam_index_name(governing));
     if (rc == SQLITE_OK) rc = store_bind_text_named(statement, ":evaluation_hash", hash);
     const struct {
         const char *name;
         int present;
         double value;
     } reals[] = {
-        {":max_governing", e->has_max_governing, e->max_governing},
-        {":max_mi", e->has_max_mi, e->max_mi},
-        {":cem43_minutes", 1, e->cem43_minutes},
-        {":estimated_seconds", 1, e->estimated_seconds},
-        {":doppler_seconds", 1, e->doppler_seconds},
+        {":max_governing", m->index_reported[governing], m->max_index[governing]},
+        {":max_mi", m->index_reported[EXAM_INDEX_MI], m->max_index[EXAM_INDEX_MI]},
+        {":cem43_minutes", 1, m->cem43_minutes},
+        {":estimated_seconds", 1, m->estimated_seconds},
+        {":doppler_seconds", 1, m->doppler_seconds},
     };
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof reals / sizeof reals[0]; i++)
         rc = store_bind_double_named(statement, reals[i].name, reals[i].present, reals[i].value);
@@ -397,7 +403,8 @@ static int store_write_time_at_or_above(sqlite3_stmt *removal, sqlite3_stmt *ins
         if (rc == SQLITE_OK) rc = store_bind_text_named(insert, ":policy_version", e->policy_version);
         if (rc == SQLITE_OK) rc = store_bind_double_named(insert, ":threshold", 1, exam_ti_ladder[k]);
         if (rc == SQLITE_OK)
-            rc = store_bind_double_named(insert, ":seconds", 1, e->seconds_at_or_above[k]);
+            rc = store_bind_double_named(insert, ":seconds", 1,
+                                         e->measurements->seconds_at_or_above[k]);
         rc = store_run(insert, rc);
     }
     return rc;

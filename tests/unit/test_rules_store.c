@@ -100,8 +100,12 @@ static long count_of(const fixture *f, const char *sql)
 static char *uids[] = {"1.2.3.1", "1.2.3.2"};
 
 static store_evaluation exam_evaluation(const char *version, exam_finding *findings,
-                                        double measured)
+                                        exam_measurements *measurements, double measured)
 {
+    *measurements = (exam_measurements){.governing_index = EXAM_INDEX_TIS,
+                                        .estimated_seconds = 60};
+    measurements->index_reported[EXAM_INDEX_TIS] = 1;
+    measurements->max_index[EXAM_INDEX_TIS] = measured;
     findings[0] = (exam_finding){.rule_id = "ti_ceiling", .severity = EXAM_SEVERITY_WARNING,
                                   .quantity = "tis", .unit = "", .measured = measured,
                                   .has_limit = 1, .limit = 2.0, .index = EXAM_INDEX_TIS,
@@ -123,8 +127,7 @@ static store_evaluation exam_evaluation(const char *version, exam_finding *findi
                               .room = "Room 1", .preset = "ABD", .shift = "night",
                               .last_received_at = "2026-11-02T10:00:00Z", .closed = 0,
                               .findings = findings, .finding_count = 2,
-                              .governing_index = "tis", .has_max_governing = 1,
-                              .max_governing = measured, .estimated_seconds = 60};
+                              .measurements = measurements};
 }
 
 static const char *const all_findings = "SELECT * FROM findings ORDER BY id";
@@ -134,7 +137,8 @@ static void test_written_replaced_superseded(void **state)
     fixture *f = *state;
     mitilog_error error;
     exam_finding findings[2];
-    store_evaluation evaluation = exam_evaluation("v1", findings, 2.5);
+    exam_measurements measurements;
+    store_evaluation evaluation = exam_evaluation("v1", findings, &measurements, 2.5);
     store_evaluation_counts counts = {0};
     assert_int_equal(store_put_evaluation(f->store, &evaluation, &counts, &error), MITILOG_OK);
     assert_int_equal(counts.written, 2);
@@ -148,7 +152,7 @@ static void test_written_replaced_superseded(void **state)
     free(started);
 
     /* Same version, new content: replaced, not superseded. */
-    evaluation = exam_evaluation("v1", findings, 2.7);
+    evaluation = exam_evaluation("v1", findings, &measurements, 2.7);
     evaluation.closed = 1;
     findings[0].provisional = findings[1].provisional = 0;
     memset(&counts, 0, sizeof counts);
@@ -161,7 +165,7 @@ static void test_written_replaced_superseded(void **state)
     assert_int_equal(count_of(f, "SELECT closed FROM exam_context"), 1);
 
     /* A new version: the old findings are kept, superseded. */
-    evaluation = exam_evaluation("v2", findings, 2.7);
+    evaluation = exam_evaluation("v2", findings, &measurements, 2.7);
     memset(&counts, 0, sizeof counts);
     assert_int_equal(store_put_evaluation(f->store, &evaluation, &counts, &error), MITILOG_OK);
     assert_int_equal(counts.superseded, 2);
@@ -178,7 +182,8 @@ static void test_rescoring_twice_changes_nothing(void **state)
     fixture *f = *state;
     mitilog_error error;
     exam_finding findings[2];
-    store_evaluation evaluation = exam_evaluation("v1", findings, 2.5);
+    exam_measurements values;
+    store_evaluation evaluation = exam_evaluation("v1", findings, &values, 2.5);
     assert_int_equal(store_put_evaluation(f->store, &evaluation, NULL, &error), MITILOG_OK);
     exam_finding device[1] = {{.rule_id = "output_not_reported",
                                 .severity = EXAM_SEVERITY_ADVISORY,
