@@ -20,7 +20,6 @@
 #include <time.h>
 
 #include "extract/ext_exam.h"
-#include "extract/ext_timeline.h"
 #include "util/log.h"
 
 double ingest_clock_now(void)
@@ -28,15 +27,6 @@ double ingest_clock_now(void)
     struct timespec now;
     clock_gettime(CLOCK_REALTIME, &now);
     return (double)now.tv_sec + (double)now.tv_nsec / 1e9;
-}
-
-/* exam_mode bits (1 << exam_mode) to Image Type value 4 bits (RULES_MODE_*):
- * equal up to 3D (0x40); colour power and later sit one bit higher
- * (0x100, 0x200, 0x400) because 0x80 is not defined [DICOM PS3.3
- * C.8.5.6.1.1]. */
-unsigned ingest_rules_modes(unsigned ext_modes)
-{
-    return (ext_modes & 0x7fu) | ((ext_modes & ~0x7fu) << 1);
 }
 
 mitilog_status ingest_register_policy(store *st, const rules_policy *policy, mitilog_error *error)
