@@ -275,6 +275,38 @@ typedef struct exam_device_instance {
     int has_time;
 } exam_device_instance;
 
+/* ---- One exam of a period ------------------------------------------ */
+
+/* Findings of one rule on one exam. */
+typedef struct exam_rule_count {
+    const char *rule_id;
+    size_t count;
+} exam_rule_count;
+
+/* One exam as the period views read it: the store fills it (its strings
+ * belong to the list that holds the row), the statistics and reports read
+ * it. NULL strings: not recorded, or not asked for. */
+typedef struct exam_row {
+    const char *study_instance_uid;
+    const char *day;             /* local date of the first capture */
+    const char *exam_type, *exam_type_label, *governing_index;
+    const char *room, *preset, *shift, *transducer;
+    const char *study_description, *first_acquired_at;
+    double max_governing;        /* highest governing TI, when has_governing */
+    int has_governing;
+    double max_mi;               /* when has_mi */
+    int has_mi;
+    double estimated_seconds;    /* timeline estimate */
+    /* timeline seconds with the governing index at or above
+     * exam_ti_ladder[k] (an estimate) */
+    double seconds_at_or_above[EXAM_TI_STATISTICS_STEPS];
+    size_t capture_count;        /* captures that could carry indices */
+    size_t indexed_count;        /* ... of which carried at least one */
+    size_t finding_count;        /* findings of the current policy */
+    const exam_rule_count *rules;  /* findings by rule (the report joins them) */
+    size_t rule_count;
+} exam_row;
+
 /* ---- One capture of an exam ----------------------------------------- */
 
 /* An image, cine loop or volume of an exam as the timeline and the rules

@@ -254,25 +254,10 @@ mitilog_status store_policy_json(store *store, char **json, mitilog_error *error
 
 /* ---- Statistics reads (store_read_stats.c) ---- */
 
-/* One exam for statistics (sql/queries/stats_exam_rows.sql). Strings
- * belong to the store_exam_list that holds the row (NULL: not recorded,
- * or a column not asked for; study_instance_uid is always read). */
-typedef struct store_exam_row {
-    char *study_instance_uid;
-    char *day;                  /* local date of the first capture */
-    char *exam_type, *exam_type_label, *governing_index;
-    double max_governing;       /* when has_max_governing */
-    int has_max_governing;
-    double max_mi;
-    int has_max_mi;
-    char *room, *preset, *shift, *transducer;
-    char *study_description;
-    double estimated_seconds;
-    double seconds_at_or_above[EXAM_TI_STATISTICS_STEPS]; /* at exam_ti_ladder[k] */
-    long capture_count, indexed_count;
-    long finding_count;
-    char *first_acquired_at;
-} store_exam_row;
+/* The exams of a period are exam_row (exam/exam.h), read by
+ * sql/queries/stats_exam_rows.sql and its shorter variants; their strings
+ * belong to the store_exam_list that holds them (study_instance_uid is
+ * always read). */
 
 /* The text columns store_load_exam_rows copies besides exam_type (the
  * others are left NULL): copying only what a report uses keeps a long
@@ -295,7 +280,7 @@ enum {
  * (a zeroed list is empty). */
 typedef struct store_exam_text_block store_exam_text_block;
 typedef struct store_exam_list {
-    store_exam_row *rows;
+    exam_row *rows;
     size_t count;
     store_exam_text_block *texts;
 } store_exam_list;
@@ -305,7 +290,7 @@ typedef struct store_exam_list {
 mitilog_status store_load_exam_rows(store *store, const char *from_day,
                                     const char *to_day, unsigned columns,
                                     store_exam_list *list, mitilog_error *error);
-/* Only exam_type and the governing maximum (has_max_governing,
+/* Only exam_type and the governing maximum (has_governing,
  * max_governing) of the exams whose day is at or after from_day and
  * before before_day, in no particular order (sql/queries/
  * stats_exam_governing.sql): a baseline. */

@@ -1001,7 +1001,7 @@ static void exam_rows_sorted_by_uid(void **state)
         assert_non_null(list.rows[i].day);
         assert_string_equal(list.rows[i].exam_type, "abdomen");
         assert_null(list.rows[i].room);   /* not asked for */
-        assert_int_equal(list.rows[i].has_max_governing, 1);
+        assert_int_equal(list.rows[i].has_governing, 1);
     }
     assert_string_equal(list.rows[0].day, "2024-03-03");
     store_exam_list_free(&list);
@@ -1028,7 +1028,7 @@ static void exam_rows_sorted_by_uid(void **state)
         assert_string_equal(list.rows[i].study_instance_uid, expected[i]);
         assert_string_equal(list.rows[i].day, expected_days[i]);
         assert_string_equal(list.rows[i].exam_type, "abdomen");
-        assert_int_equal(list.rows[i].has_max_governing, 1);
+        assert_int_equal(list.rows[i].has_governing, 1);
         assert_true(list.rows[i].max_governing == expected_governing[i]);
         assert_null(list.rows[i].first_acquired_at);   /* identity not asked for */
         assert_null(list.rows[i].shift);
