@@ -4,7 +4,8 @@
 -- 005), so that the thresholds are the one ladder of the exam vocabulary
 -- (exam_ti_ladder, src/exam/exam.h) and SQL loops over it.
 --
--- ti_thresholds holds that ladder. The store writes it from the C
+-- ti_thresholds holds that ladder (and mode_names of migration 004 the
+-- vocabulary's mode names, which the store keeps the same way). The store writes it from the C
 -- definition each time it opens the database (store_open.c): when the
 -- ladder it finds differs from its own, it replaces the rows and
 -- recomputes every exam's times in the same transaction. This migration
