@@ -159,6 +159,6 @@ def test_changed_ladder_is_recomputed(imported):
         assert db.execute("SELECT rank, mode FROM mode_names ORDER BY rank").fetchall() == modes
     assert modes[0] == (0, "2d")
     assert after == before
-    timed = {(uid, threshold): seconds for uid, threshold, seconds in after}
+    timed = {(uid, threshold): seconds for _, uid, threshold, seconds in after}
     for uid, threshold, seconds in oracle:
         assert timed[(uid, threshold)] == pytest.approx(seconds, abs=1e-9)
