@@ -50,6 +50,10 @@ SELECT json_object(
         'studies', (SELECT count(*) FROM exams),
         'rejections', (SELECT count(*) FROM rejections),
         'quarantined', (SELECT count(*) FROM rejections WHERE quarantine_path <> ''),
+        -- re-sent objects (same SOP Instance UID) replace their row: how
+        -- many rows were replaced, and how many times in all
+        'replaced_instances', (SELECT count(*) FROM instances WHERE replaced_count > 0),
+        'replacements', (SELECT coalesce(sum(replaced_count), 0) FROM instances),
         'last_received_at', (SELECT max(received_at) FROM instances)),
     'objects_per_hour', (SELECT json_group_array(json_object(
         'hour', hour || ':00Z', 'objects', objects, 'without_indices', without_indices))

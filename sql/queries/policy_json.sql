@@ -8,7 +8,7 @@ SELECT json_object(
     'ti_ladder', json((SELECT json_group_array(threshold)
                        FROM (SELECT threshold FROM ti_thresholds ORDER BY threshold))),
     'limits', json(limits_json),
-    'caution', 'Defaults typed from the domain reference; values marked "from memory" must be '
+    'caution', 'Defaults with their sources in docs/domain.md section 4; values marked "from memory" must be '
                || 'checked against the named document. Local policy governs: the department''s '
                || 'safety policy, its medical physicist and local regulation decide; mitilog advises.')
 FROM policies WHERE version = ?1;

@@ -114,3 +114,42 @@ exam_number ext_parse_integer_string(const char *raw)
     number.value = (double)value;
     return number;
 }
+
+exam_number ext_frame_time_vector(const char *raw, double *sum_ms)
+{
+    exam_number number = {EXAM_VALUE_MISSING, 0.0};
+    *sum_ms = 0.0;
+    if (raw == NULL)
+        return number;
+    const char *start = NULL;
+    if (trimmed_span(raw, &start) == 0)
+        return number;
+    number.status = EXAM_VALUE_INVALID;
+    double sum = 0.0;
+    size_t count = 0;
+    const char *value = raw;
+    for (;;) {
+        const char *end = strchr(value, '\\');
+        size_t length = end != NULL ? (size_t)(end - value) : strlen(value);
+        char buffer[DECIMAL_STRING_MAXIMUM + 1];
+        if (length > DECIMAL_STRING_MAXIMUM)
+            return number;
+        memcpy(buffer, value, length);
+        buffer[length] = '\0';
+        exam_number one = ext_parse_decimal_string(buffer);
+        if (one.status != EXAM_VALUE_OK || one.value < 0)
+            return number;
+        if (count > 0) /* the first value is 0 by definition, not an interval */
+            sum += one.value;
+        count++;
+        if (end == NULL)
+            break;
+        value = end + 1;
+    }
+    if (count < 2 || !(sum > 0))
+        return number;
+    number.status = EXAM_VALUE_OK;
+    number.value = sum / (double)(count - 1);
+    *sum_ms = sum;
+    return number;
+}
