@@ -90,6 +90,18 @@ typedef enum exam_mode {
      EXAM_MODE_BIT(EXAM_MODE_COLOUR) | EXAM_MODE_BIT(EXAM_MODE_COLOUR_M) |       \
      EXAM_MODE_BIT(EXAM_MODE_POWER))
 
+/* The DICOM encoding of a mode set: the bits of Image Type (0008,0008)
+ * value 4 of US images [std: DICOM PS3.3 C.8.5.6.1.1: 0001 2D, 0002 M,
+ * 0004 CW, 0008 PW, 0010 Color Doppler, 0020 Color M-Mode, 0040 3D
+ * Rendering, 0100 Color Power Mode, 0200 Tissue Characterization, 0400
+ * Spatially-related frames; 0080 and 0800-8000 undefined]. The reader
+ * (ext_modes.c) decodes with it, the simulator encodes with it. */
+unsigned exam_modes_image_type_bits(unsigned modes);
+/* The defined Image Type value 4 bits (the others are unknown). */
+unsigned exam_image_type_defined_bits(void);
+/* The mode set of a value 4 bitmap (undefined bits ignored). */
+unsigned exam_modes_from_image_type_bits(unsigned bits);
+
 /* API name: "2d", "m", "cw", "pw", "colour", "colour_m", "3d", "power",
  * "tissue_characterization", "spatially_related_frames"; NULL if bad. */
 const char *exam_mode_name(exam_mode mode);
