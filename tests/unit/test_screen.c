@@ -64,15 +64,15 @@ static int index_named(const char *name)
     static const char *const names[] = {"MI", "TIS", "TIB", "TIC"};
     for (int i = 0; i < 4; i++) {
         if (strcmp(name, names[i]) == 0)
-            return i; /* EXT_INDEX_MI .. EXT_INDEX_TIC, in this order */
+            return i; /* EXAM_INDEX_MI .. EXAM_INDEX_TIC, in this order */
     }
     return -1;
 }
 
 /* "MI=1.2,TIS=0.4" into truth values (the text as drawn). */
-static void parse_truth(const char *text, screen_value truth[EXT_INDEX_COUNT])
+static void parse_truth(const char *text, screen_value truth[EXAM_INDEX_COUNT])
 {
-    memset(truth, 0, sizeof(screen_value) * EXT_INDEX_COUNT);
+    memset(truth, 0, sizeof(screen_value) * EXAM_INDEX_COUNT);
     char copy[256];
     snprintf(copy, sizeof copy, "%s", text);
     char *save = NULL;
@@ -178,12 +178,12 @@ static void reads_rendered_strips(void **state)
             if (sscanf(line, "%15s %31s %399s %127s", verb, name, file, values) != 4 ||
                 strcmp(verb, "read") != 0 || strcmp(name, designs[d]) != 0)
                 continue;
-            screen_value truth[EXT_INDEX_COUNT];
+            screen_value truth[EXAM_INDEX_COUNT];
             parse_truth(values, truth);
             screen_reading reading = read_frame(profile, strrchr(file, '/') + 1);
             assert_string_equal(reading.reason, "");
             assert_string_equal(reading.profile_key, designs[d]);
-            for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+            for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
                 if (truth[i].status != SCREEN_VALUE_READ) {
                     assert_int_equal(reading.values[i].status, SCREEN_VALUE_NOT_SHOWN);
                     continue;
@@ -218,7 +218,7 @@ static void refuses_frame_of_another_size(void **state)
     screen_profile *profile = learn_design("harbor");
     screen_reading reading = read_frame(profile, "harbor-other-size.pgm");
     assert_non_null(strstr(reading.reason, "600x480"));
-    for (int i = EXT_INDEX_MI; i <= EXT_INDEX_TIB; i++)
+    for (int i = EXAM_INDEX_MI; i <= EXAM_INDEX_TIB; i++)
         assert_refused(&reading, i, "not the same screen");
     screen_profile_free(profile);
 }
@@ -228,7 +228,7 @@ static void refuses_blank_region(void **state)
     (void)state;
     screen_profile *profile = learn_design("harbor");
     screen_reading reading = read_frame(profile, "harbor-blank.pgm");
-    for (int i = EXT_INDEX_MI; i <= EXT_INDEX_TIB; i++)
+    for (int i = EXAM_INDEX_MI; i <= EXAM_INDEX_TIB; i++)
         assert_refused(&reading, i, "blank or empty");
     screen_profile_free(profile);
 }
@@ -240,7 +240,7 @@ static void refuses_moved_layout(void **state)
     (void)state;
     screen_profile *profile = learn_design("harbor");
     screen_reading reading = read_frame(profile, "harbor-moved.pgm");
-    for (int i = EXT_INDEX_MI; i <= EXT_INDEX_TIB; i++)
+    for (int i = EXAM_INDEX_MI; i <= EXAM_INDEX_TIB; i++)
         assert_refused(&reading, i, "layout may have changed");
     screen_profile_free(profile);
 }
@@ -251,10 +251,10 @@ static void refuses_label_not_found(void **state)
     (void)state;
     screen_profile *profile = learn_design("harbor");
     screen_reading reading = read_frame(profile, "harbor-relabelled.pgm");
-    assert_refused(&reading, EXT_INDEX_MI, "label MI not found");
-    assert_int_equal(reading.values[EXT_INDEX_TIS].status, SCREEN_VALUE_READ);
-    assert_string_equal(reading.values[EXT_INDEX_TIS].text, "0.5");
-    assert_string_equal(reading.values[EXT_INDEX_TIB].text, "0.6");
+    assert_refused(&reading, EXAM_INDEX_MI, "label MI not found");
+    assert_int_equal(reading.values[EXAM_INDEX_TIS].status, SCREEN_VALUE_READ);
+    assert_string_equal(reading.values[EXAM_INDEX_TIS].text, "0.5");
+    assert_string_equal(reading.values[EXAM_INDEX_TIB].text, "0.6");
     screen_profile_free(profile);
 }
 
@@ -264,8 +264,8 @@ static void refuses_other_number_format(void **state)
     (void)state;
     screen_profile *profile = learn_design("harbor");
     screen_reading reading = read_frame(profile, "harbor-two-decimals.pgm");
-    assert_refused(&reading, EXT_INDEX_MI, "number format");
-    assert_refused(&reading, EXT_INDEX_TIS, "number format");
+    assert_refused(&reading, EXAM_INDEX_MI, "number format");
+    assert_refused(&reading, EXAM_INDEX_TIS, "number format");
     screen_profile_free(profile);
 }
 
@@ -276,8 +276,8 @@ static void refuses_value_cut_by_edge(void **state)
     (void)state;
     screen_profile *profile = learn_design("edge");
     screen_reading reading = read_frame(profile, "edge-cut.pgm");
-    assert_refused(&reading, EXT_INDEX_MI, "cut by the edge");
-    assert_string_equal(reading.values[EXT_INDEX_TIS].text, "0.5");
+    assert_refused(&reading, EXAM_INDEX_MI, "cut by the edge");
+    assert_string_equal(reading.values[EXAM_INDEX_TIS].text, "0.5");
     screen_profile_free(profile);
 }
 
@@ -293,15 +293,15 @@ static void refuses_uncertain_glyph(void **state)
     screen_image image = image_of(&f);
     screen_reading before;
     assert_int_equal(screen_read(profile, &image, &before, NULL), MITILOG_OK);
-    assert_string_equal(before.values[EXT_INDEX_MI].text, "1.2");
+    assert_string_equal(before.values[EXAM_INDEX_MI].text, "1.2");
     for (int y = 0; y < 12; y++) {
         for (int x = 28; x < 36; x++)
             f.grey[(size_t)y * (size_t)f.width + (size_t)x] = f.grey[0];
     }
     screen_reading reading;
     assert_int_equal(screen_read(profile, &image, &reading, NULL), MITILOG_OK);
-    assert_int_equal(reading.values[EXT_INDEX_MI].status, SCREEN_VALUE_NOT_READ);
-    assert_non_null(strstr(reading.values[EXT_INDEX_MI].reason, "MI"));
+    assert_int_equal(reading.values[EXAM_INDEX_MI].status, SCREEN_VALUE_NOT_READ);
+    assert_non_null(strstr(reading.values[EXAM_INDEX_MI].reason, "MI"));
     frame_free(&f);
     screen_profile_free(profile);
 }
@@ -320,7 +320,7 @@ static void refuses_glyph_without_margin(void **state)
     screen_profile *strict = NULL;
     assert_int_equal(screen_profile_from_text(text, &strict, NULL), MITILOG_OK);
     screen_reading reading = read_frame(strict, "harbor-read-1.pgm");
-    assert_refused(&reading, EXT_INDEX_MI, "either of two glyphs");
+    assert_refused(&reading, EXAM_INDEX_MI, "either of two glyphs");
     free(text);
     screen_profile_free(strict);
     screen_profile_free(profile);
@@ -416,8 +416,8 @@ static void learning_refuses(void **state)
         /* Whatever was learned must not read MI 1.2 as anything else. */
         screen_reading reading;
         assert_int_equal(screen_read(profile, &examples[0].image, &reading, NULL), MITILOG_OK);
-        assert_true(reading.values[EXT_INDEX_MI].status != SCREEN_VALUE_READ ||
-                    strcmp(reading.values[EXT_INDEX_MI].text, "1.2") == 0);
+        assert_true(reading.values[EXAM_INDEX_MI].status != SCREEN_VALUE_READ ||
+                    strcmp(reading.values[EXAM_INDEX_MI].text, "1.2") == 0);
         screen_profile_free(profile);
     } else {
         assert_int_equal(status, MITILOG_ERROR_REFUSED);
@@ -434,25 +434,25 @@ static void combining_cine_frames(void **state)
     memset(frames, 0, sizeof frames);
     for (int f = 0; f < 3; f++) {
         snprintf(frames[f].profile_key, sizeof frames[f].profile_key, "harbor");
-        frames[f].values[EXT_INDEX_MI] =
+        frames[f].values[EXAM_INDEX_MI] =
             (screen_value){.status = SCREEN_VALUE_READ, .value = 1.2, .decimals = 1,
                            .text = "1.2"};
-        frames[f].values[EXT_INDEX_TIS] =
+        frames[f].values[EXAM_INDEX_TIS] =
             (screen_value){.status = SCREEN_VALUE_READ, .value = 0.4, .decimals = 1,
                            .text = "0.4"};
-        frames[f].values[EXT_INDEX_TIB].status = SCREEN_VALUE_NOT_SHOWN;
+        frames[f].values[EXAM_INDEX_TIB].status = SCREEN_VALUE_NOT_SHOWN;
     }
-    frames[1].values[EXT_INDEX_TIS].text[2] = '5';
-    frames[2].values[EXT_INDEX_MI].status = SCREEN_VALUE_NOT_READ;
+    frames[1].values[EXAM_INDEX_TIS].text[2] = '5';
+    frames[2].values[EXAM_INDEX_MI].status = SCREEN_VALUE_NOT_READ;
     screen_reading combined;
     screen_combine(frames, 3, &combined);
-    assert_int_equal(combined.values[EXT_INDEX_MI].status, SCREEN_VALUE_READ);
-    assert_string_equal(combined.values[EXT_INDEX_MI].text, "1.2");
-    assert_int_equal(combined.values[EXT_INDEX_TIS].status, SCREEN_VALUE_NOT_READ);
-    assert_non_null(strstr(combined.values[EXT_INDEX_TIS].reason, "disagree"));
-    assert_int_equal(combined.values[EXT_INDEX_TIB].status, SCREEN_VALUE_NOT_SHOWN);
+    assert_int_equal(combined.values[EXAM_INDEX_MI].status, SCREEN_VALUE_READ);
+    assert_string_equal(combined.values[EXAM_INDEX_MI].text, "1.2");
+    assert_int_equal(combined.values[EXAM_INDEX_TIS].status, SCREEN_VALUE_NOT_READ);
+    assert_non_null(strstr(combined.values[EXAM_INDEX_TIS].reason, "disagree"));
+    assert_int_equal(combined.values[EXAM_INDEX_TIB].status, SCREEN_VALUE_NOT_SHOWN);
     screen_combine(NULL, 0, &combined);
-    assert_int_equal(combined.values[EXT_INDEX_MI].status, SCREEN_VALUE_NOT_READ);
+    assert_int_equal(combined.values[EXAM_INDEX_MI].status, SCREEN_VALUE_NOT_READ);
 }
 
 /* A profile is for its device's frame size and key fields (DICOM strings
