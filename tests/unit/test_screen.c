@@ -306,6 +306,28 @@ static void refuses_uncertain_glyph(void **state)
     screen_profile_free(profile);
 }
 
+/* The label without a number after it ("MI" with its value erased). */
+static void refuses_label_without_value(void **state)
+{
+    (void)state;
+    screen_profile *profile = learn_design("harbor");
+    frame f;
+    assert_int_equal(frame_load("harbor-learn-1.pgm", &f), 0);
+    /* "MI 1.2" from x = 8 (screens.py, design harbor): the value is drawn
+     * from about x = 29 to 50, in the strip's rows 0..21. */
+    for (int y = 0; y < 22; y++) {
+        for (int x = 26; x < 60; x++)
+            f.grey[(size_t)y * (size_t)f.width + (size_t)x] = f.grey[0];
+    }
+    screen_image image = image_of(&f);
+    screen_reading reading;
+    assert_int_equal(screen_read(profile, &image, &reading, NULL), MITILOG_OK);
+    assert_refused(&reading, EXT_INDEX_MI, "no value next to the label");
+    assert_string_equal(reading.values[EXT_INDEX_TIS].text, "3.4");
+    frame_free(&f);
+    screen_profile_free(profile);
+}
+
 /* A margin no glyph can have over the next best: every value is refused
  * as "either of two glyphs" rather than guessed. */
 static void refuses_glyph_without_margin(void **state)
@@ -480,6 +502,7 @@ int main(void)
         cmocka_unit_test(refuses_value_cut_by_edge),
         cmocka_unit_test(refuses_uncertain_glyph),
         cmocka_unit_test(refuses_glyph_without_margin),
+        cmocka_unit_test(refuses_label_without_value),
         cmocka_unit_test(profile_text_round_trip),
         cmocka_unit_test(learning_refuses),
         cmocka_unit_test(combining_cine_frames),
