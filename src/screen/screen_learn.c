@@ -1074,9 +1074,9 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
         if (known && !learned[i]) {
             status = mitilog_error_set(
                 error, MITILOG_ERROR_REFUSED,
-                "%s was given a value but not found on the screen, so the places found for "
-                "the other indices are not certain either: give values only for the indices "
-                "the screens show, or other frames (see the report)",
+                "%s was given a value but not placed for certain (see the report), so the "
+                "places found for the other indices are not certain either: give values "
+                "only for the indices the screens show, or more frames",
                 screen_index_label((ext_index)i));
             goto done;
         }

@@ -428,7 +428,7 @@ static void learning_refuses(void **state)
                                   &error),
                      MITILOG_ERROR_REFUSED);
     assert_null(profile);
-    assert_non_null(strstr(error.text, "TIC was given a value but not found"));
+    assert_non_null(strstr(error.text, "TIC was given a value but not placed"));
 
     /* MI typed as 1.3 where the screen shows 1.2. */
     parse_truth("MI=1.3,TIS=3.4,TIB=5.6", examples[0].truth);
