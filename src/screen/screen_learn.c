@@ -617,6 +617,26 @@ static double assignment_penalty(learn_search *search)
     return penalty;
 }
 
+/* 1 when index k may take place p: a place free so far, or one that shows
+ * other indices never given a value on the same frame as k (one place
+ * showing TIS, TIB or TIC by exam; the labels tell them apart). */
+static int place_free_for(const learn_search *search, size_t k, size_t p, unsigned long used)
+{
+    if (!(used & (1ul << p)))
+        return 1;
+    for (size_t j = 0; j < k; j++) {
+        if (search->current[j] != (int)p)
+            continue;
+        for (size_t e = 0; e < search->example_count; e++) {
+            const screen_value *truth = search->examples[e].truth;
+            if (truth[search->indices[k]].status == SCREEN_VALUE_READ &&
+                truth[search->indices[j]].status == SCREEN_VALUE_READ)
+                return 0;
+        }
+    }
+    return 1;
+}
+
 static void search_assign(learn_search *search, size_t k, int assigned, unsigned long used)
 {
     if (search->evaluations > 20000)
@@ -642,7 +662,7 @@ static void search_assign(learn_search *search, size_t k, int assigned, unsigned
     }
     int any = 0;
     for (size_t p = 0; p < search->place_count; p++) {
-        if (!search->compatible[k][p] || (used & (1ul << p)))
+        if (!search->compatible[k][p] || !place_free_for(search, k, p, used))
             continue;
         any = 1;
         search->current[k] = (int)p;
