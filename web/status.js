@@ -1,5 +1,6 @@
 // status.js - ingest status: objects per hour, rejected and quarantined
-// objects, devices that went silent, transducers not reporting output.
+// objects, re-sent objects that replaced their rows, devices that went
+// silent, transducers not reporting output.
 import { el, svg, clear, header, getJSON, showError, orNone, scale, niceMax, hatchDefs } from './common.js';
 
 header('status.html');
@@ -52,6 +53,9 @@ async function main() {
     el('dt', {}, 'Studies'), el('dd', {}, String(t.studies)),
     el('dt', {}, 'Rejected objects'), el('dd', {}, String(t.rejections)),
     el('dt', {}, 'Quarantined'), el('dd', {}, String(t.quarantined)),
+    el('dt', {}, 'Re-sent (replaced)'), el('dd', { id: 'replaced' },
+      t.replacements === 0 ? 'none: every object arrived once'
+        : `${t.replacements} object(s) received again for ${t.replaced_instances} instance(s); each replaced its row, counted once`),
     el('dt', {}, 'Last received'), el('dd', {}, orNone(t.last_received_at)),
     el('dt', {}, 'Generated'), el('dd', {}, data.generated_at)));
   content.appendChild(el('h2', {}, `Objects per hour, last ${data.window_hours} hours`));

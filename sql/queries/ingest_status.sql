@@ -3,7 +3,9 @@
 -- UTC. A device (calling AE title and Station Name) is "silent" when it
 -- has sent nothing for ?2 hours although it sent before. not_reporting:
 -- per room and transducer, image objects of the last ?3 days of data
--- (by acquisition day) that carried no index at all.
+-- (by acquisition day) that carried no index at all, neither in the header
+-- nor read from the screen (migration 007). reading: the pixel reading
+-- queue and the states of the readings.
 WITH now AS (
     SELECT strftime('%Y-%m-%dT%H:%M:%SZ', 'now') AS at,
            strftime('%Y-%m-%dT%H:%M:%SZ', 'now', printf('-%d hours', ?1)) AS window_start,
@@ -12,7 +14,10 @@ WITH now AS (
 hours AS (
     SELECT substr(received_at, 1, 13) AS hour, count(*) AS objects,
            sum(iif(object_kind IN ('image', 'multiframe', 'volume')
-                   AND mi IS NULL AND tis IS NULL AND tib IS NULL AND tic IS NULL, 1, 0))
+                   AND mi IS NULL AND tis IS NULL AND tib IS NULL AND tic IS NULL
+                   AND NOT EXISTS (SELECT 1 FROM screen_readings r WHERE r.instance_id = instances.id
+                                   AND (r.mi IS NOT NULL OR r.tis IS NOT NULL OR r.tib IS NOT NULL
+                                        OR r.tic IS NOT NULL)), 1, 0))
                AS without_indices
     FROM instances WHERE received_at >= (SELECT window_start FROM now)
     GROUP BY 1 ORDER BY 1
@@ -29,9 +34,15 @@ last_day AS (
 ),
 not_reporting AS (
     SELECT room, transducer_data AS transducer, count(*) AS instances,
-           sum(iif(mi IS NULL AND tis IS NULL AND tib IS NULL AND tic IS NULL, 1, 0))
+           sum(iif(mi IS NULL AND tis IS NULL AND tib IS NULL AND tic IS NULL
+                   AND NOT EXISTS (SELECT 1 FROM screen_readings r WHERE r.instance_id = instances.id
+                                   AND (r.mi IS NOT NULL OR r.tis IS NOT NULL OR r.tib IS NOT NULL
+                                        OR r.tic IS NOT NULL)), 1, 0))
                AS without_indices,
-           min(iif(mi IS NULL AND tis IS NULL AND tib IS NULL AND tic IS NULL,
+           min(iif(mi IS NULL AND tis IS NULL AND tib IS NULL AND tic IS NULL
+                   AND NOT EXISTS (SELECT 1 FROM screen_readings r WHERE r.instance_id = instances.id
+                                   AND (r.mi IS NOT NULL OR r.tis IS NOT NULL OR r.tib IS NOT NULL
+                                        OR r.tic IS NOT NULL)),
                    acquired_at, NULL)) AS first_without_at
     FROM instances
     WHERE object_kind IN ('image', 'multiframe', 'volume')
@@ -50,7 +61,31 @@ SELECT json_object(
         'studies', (SELECT count(*) FROM exams),
         'rejections', (SELECT count(*) FROM rejections),
         'quarantined', (SELECT count(*) FROM rejections WHERE quarantine_path <> ''),
+        -- re-sent objects (same SOP Instance UID) replace their row: how
+        -- many rows were replaced, and how many times in all
+        'replaced_instances', (SELECT count(*) FROM instances WHERE replaced_count > 0),
+        'replacements', (SELECT coalesce(sum(replaced_count), 0) FROM instances),
         'last_received_at', (SELECT max(received_at) FROM instances)),
+    'reading', json_object(
+        'queued', (SELECT count(*) FROM reading_queue),
+        'queued_bytes', (SELECT coalesce(sum(bytes), 0) FROM reading_queue),
+        'read', (SELECT count(*) FROM screen_readings WHERE state = 'read'),
+        'not_read', (SELECT count(*) FROM screen_readings WHERE state = 'not_read'),
+        'not_read_queue_full', (SELECT count(*) FROM screen_readings
+                                WHERE state = 'not_read' AND reason LIKE 'reading queue full%'),
+        -- per device (its screen profile): captures whose header and screen
+        -- disagree (current header_screen_mismatch findings, docs/policy.md)
+        'header_screen_mismatch_by_device', (SELECT json_group_array(json_object(
+                'profile_key', profile_key, 'station_names', json(stations),
+                'captures', captures, 'findings', findings))
+            FROM (SELECT r.profile_key, count(DISTINCT i.id) AS captures,
+                         count(*) AS findings,
+                         json_group_array(DISTINCT i.station_name) AS stations
+                  FROM findings f, json_each(f.instance_uids) u
+                  JOIN instances i ON i.sop_instance_uid = u.value
+                  JOIN screen_readings r ON r.instance_id = i.id
+                  WHERE f.rule_id = 'header_screen_mismatch' AND f.superseded = 0
+                  GROUP BY r.profile_key ORDER BY captures DESC, r.profile_key))),
     'objects_per_hour', (SELECT json_group_array(json_object(
         'hour', hour || ':00Z', 'objects', objects, 'without_indices', without_indices))
         FROM hours),

@@ -5,7 +5,7 @@ SELECT json_object(
     'closed_after_idle_minutes', closed_after_idle_minutes,
     'gap_cap_seconds', gap_cap_seconds,
     'rules', json(rules_json),
-    'caution', 'Defaults typed from the domain reference; values marked "from memory" must be '
+    'caution', 'Defaults with their sources in docs/domain.md section 4; values marked "from memory" must be '
                || 'checked against the named document. Local policy governs: the department''s '
                || 'safety policy, its medical physicist and local regulation decide; mitilog advises.')
 FROM policies WHERE version = ?1;

@@ -2,6 +2,7 @@
 
 #include <stdio.h>
 #include <string.h>
+#include <sys/stat.h>
 
 #include "util/files.h"
 #include "util/log.h"
@@ -44,4 +45,22 @@ int cli_prepare_data_directory(const config *config, mitilog_error *error)
             return -1;
     }
     return 0;
+}
+
+int cli_require_database(const char *command, const config *config)
+{
+    struct stat information;
+    if (stat(config->database_path, &information) == 0 && S_ISREG(information.st_mode))
+        return 0;
+    int defaults = config->source_path == NULL || strcmp(config->source_path, "(defaults)") == 0;
+    fprintf(stderr,
+            "mitilog %s: no database at %s: nothing has been stored there, and this command\n"
+            "only reads, so it does not create one. The path is [storage] data_directory\n"
+            "(%s) joined with [storage] database, from %s.\n%s"
+            "Give the configuration of the daemon that receives the objects with --config FILE\n"
+            "(after deploy/demo.sh: --config demo-data/mitilog.ini).\n",
+            command, config->database_path, config->data_directory,
+            defaults ? "the built-in defaults" : config->source_path,
+            defaults ? "No --config was given: relative paths are from the current folder.\n" : "");
+    return -1;
 }

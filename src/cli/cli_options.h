@@ -16,4 +16,10 @@ int cli_load_config(const char *path, config *config);
 /* Creates the data folder and the database's folder (mode 0750). */
 int cli_prepare_data_directory(const config *config, mitilog_error *error);
 
+/* For commands that only read (report, header): 0 when the database the
+ * configuration names exists; else prints, after "mitilog COMMAND: ", the
+ * path, the keys it comes from and what to do, and returns -1. Such a
+ * command never creates a database. */
+int cli_require_database(const char *command, const config *config);
+
 #endif

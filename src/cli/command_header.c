@@ -38,6 +38,10 @@ int command_header(int argc, char **argv)
         config_free(&config);
         return EXIT_STATUS_USAGE;
     }
+    if (cli_require_database("header", &config) != 0) {
+        config_free(&config);
+        return EXIT_STATUS_FAILURE;
+    }
     int exit_status = EXIT_STATUS_FAILURE;
     mitilog_error error;
     store *st = NULL;

@@ -1,8 +1,8 @@
 /* mitilog import --config FILE [--jobs N] PATH...: files and folders
  * (recursively) through the same pipeline as network objects, several
  * files at once. */
-#define _XOPEN_SOURCE 700
-#include <ftw.h>
+#include <errno.h>
+#include <fts.h>
 #include <pthread.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -35,9 +35,6 @@ typedef struct import_queue {
     ingest *pipeline;
     import_totals totals;           /* under lock */
 } import_queue;
-
-/* nftw() has no user pointer: the walk's queue lives here for its duration. */
-static import_queue *walk_queue;
 
 static void import_count(import_queue *queue, ingest_outcome outcome)
 {
@@ -99,17 +96,35 @@ static void import_queue_push(import_queue *queue, const char *path)
     pthread_mutex_unlock(&queue->lock);
 }
 
-static int visit(const char *path, const struct stat *info, int type, struct FTW *walk)
+/* Every file under folder onto the queue (links not followed, the
+ * working directory kept); what cannot be read is counted as rejected. */
+static void import_walk(import_queue *queue, const char *folder)
 {
-    (void)info;
-    (void)walk;
-    if (type == FTW_F)
-        import_queue_push(walk_queue, path);
-    else if (type == FTW_DNR || type == FTW_NS) {
-        log_warning("import: %s cannot be read", path);
-        import_count(walk_queue, INGEST_OUTCOME_REJECTED);
+    char *roots[] = {(char *)folder, NULL};
+    FTS *walk = fts_open(roots, FTS_PHYSICAL | FTS_NOCHDIR, NULL);
+    if (walk == NULL) {
+        log_warning("import: %s cannot be read: %s", folder, strerror(errno));
+        import_count(queue, INGEST_OUTCOME_REJECTED);
+        return;
     }
-    return 0;
+    FTSENT *entry;
+    while ((entry = fts_read(walk)) != NULL) {
+        switch (entry->fts_info) {
+        case FTS_F:
+        case FTS_DEFAULT: /* not a folder nor a link: the reader decides */
+            import_queue_push(queue, entry->fts_path);
+            break;
+        case FTS_DNR:
+        case FTS_NS:
+        case FTS_ERR:
+            log_warning("import: %s cannot be read", entry->fts_path);
+            import_count(queue, INGEST_OUTCOME_REJECTED);
+            break;
+        default: /* folders (before and after), links, cycles */
+            break;
+        }
+    }
+    fts_close(walk);
 }
 
 /* Workers by default: two per processor online (while one waits for the
@@ -125,7 +140,8 @@ static void print_import_usage(FILE *out)
     fprintf(out, "usage: mitilog import [--config FILE] [--jobs N] PATH...\n"
                  "Reads DICOM files, and folders recursively, into the database. Prints one\n"
                  "summary line. Exit status: 0 all stored, 1 something was rejected or could\n"
-                 "not be stored (reasons on stderr and in the rejections table), 2 usage.\n"
+                 "not be stored (reasons on stderr and in the rejections table), 2 usage\n"
+                 "(also a PATH that does not exist).\n"
                  "  --jobs N   files read at once, 1-%d (default: two per processor, at most 8)\n",
             IMPORT_JOBS_MAX);
 }
@@ -161,6 +177,19 @@ int command_import(int argc, char **argv)
         print_import_usage(stderr);
         return EXIT_STATUS_USAGE;
     }
+    /* A path that is not there is a mistake in the command, not an object
+     * to reject: say so before anything is opened or imported. */
+    int missing = 0;
+    for (int i = first_path; i < argc; i++) {
+        struct stat info;
+        if (stat(argv[i], &info) != 0) {
+            fprintf(stderr, "mitilog import: %s: %s; check the path (nothing was imported)\n",
+                    argv[i], strerror(errno));
+            missing = 1;
+        }
+    }
+    if (missing)
+        return EXIT_STATUS_USAGE;
     config config;
     if (cli_load_config(config_path, &config) != 0) {
         config_free(&config);
@@ -196,14 +225,13 @@ int command_import(int argc, char **argv)
         log_error("import: cannot start a worker thread");
         goto done;
     }
-    walk_queue = &queue;
     for (int i = first_path; i < argc; i++) {
         struct stat info;
         if (stat(argv[i], &info) != 0) {
             log_warning("import: %s does not exist", argv[i]);
             import_count(&queue, INGEST_OUTCOME_REJECTED);
         } else if (S_ISDIR(info.st_mode)) {
-            nftw(argv[i], visit, 32, FTW_PHYS);
+            import_walk(&queue, argv[i]);
         } else {
             import_queue_push(&queue, argv[i]);
         }

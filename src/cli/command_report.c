@@ -111,6 +111,10 @@ int command_report(int argc, char **argv)
         config_free(&config);
         return EXIT_STATUS_USAGE;
     }
+    if (cli_require_database("report", &config) != 0) {
+        config_free(&config);
+        return EXIT_STATUS_FAILURE;
+    }
     mitilog_error error;
     store *store = NULL;
     char *document = NULL;

@@ -15,55 +15,80 @@
 #include "dicom/dcm.h"
 #include "ingest/ingest.h"
 #include "rules/rules.h"
+#include "stats/stats_calendar.h"
 #include "store/store.h"
 #include "util/log.h"
 
-static int rescore_is_date(const char *text)
+/* A real calendar date, exactly YYYY-MM-DD (2026-02-30 is not one). */
+static int rescore_is_date(const char *text, long *day)
 {
-    if (strlen(text) != 10 || text[4] != '-' || text[7] != '-')
-        return 0;
-    for (int i = 0; i < 10; i++)
-        if (i != 4 && i != 7 && (text[i] < '0' || text[i] > '9'))
-            return 0;
-    return 1;
+    return strlen(text) == 10 && stats_day_number(text, day) == MITILOG_OK;
+}
+
+static void print_rescore_usage(FILE *out)
+{
+    fprintf(out,
+            "usage: mitilog rescore [--config FILE] [--from YYYY-MM-DD] [--to YYYY-MM-DD]\n"
+            "                       [--read-pixels]\n"
+            "--read-pixels first reads again the indices drawn in the pixels of the\n"
+            "ultrasound images and cines of the period whose object is still at hand\n"
+            "(retention full, or an imported file still where it was imported from)\n"
+            "and whose device has an active screen profile (docs/reading.md).\n"
+            "Re-evaluates the stored exams whose first acquisition falls in the period\n"
+            "(inclusive; open when not given) under the current policy ([rules] policy),\n"
+            "and rule output_not_reported for each day of the period. Findings of other\n"
+            "policy versions are kept, marked superseded. Idempotent. Prints one line:\n"
+            "exams evaluated, findings written, findings superseded.\n");
 }
 
 int command_rescore(int argc, char **argv)
 {
     const char *config_path = NULL, *from = NULL, *to = NULL;
-    int usage = 0, read_pixels = 0;
-    for (int i = 1; i < argc; i++) {
-        if (strcmp(argv[i], "--config") == 0 && i + 1 < argc)
-            config_path = argv[++i];
-        else if (strcmp(argv[i], "--from") == 0 && i + 1 < argc && rescore_is_date(argv[i + 1]))
-            from = argv[++i];
-        else if (strcmp(argv[i], "--to") == 0 && i + 1 < argc && rescore_is_date(argv[i + 1]))
-            to = argv[++i];
-        else if (strcmp(argv[i], "--read-pixels") == 0)
-            read_pixels = 1;
-        else
-            usage = 1;
+    long from_day = 0, to_day = 0;
+    int read_pixels = 0;
+    if (cli_wants_help(argc, argv)) {
+        print_rescore_usage(stdout);
+        return EXIT_STATUS_SUCCESS;
     }
-    if (cli_wants_help(argc, argv) || usage) {
-        int help = cli_wants_help(argc, argv);
-        fprintf(help ? stdout : stderr,
-                "usage: mitilog rescore [--config FILE] [--from YYYY-MM-DD] [--to YYYY-MM-DD]\n"
-                "                       [--read-pixels]\n"
-                "--read-pixels first reads again the indices drawn in the pixels of the\n"
-                "ultrasound images and cines of the period whose object is still at hand\n"
-                "(retention full, or an imported file still where it was imported from)\n"
-                "and whose device has an active screen profile (docs/reading.md).\n"
-                "Re-evaluates the stored exams whose first acquisition falls in the period\n"
-                "(inclusive; open when not given) under the current policy ([rules] policy),\n"
-                "and rule output_not_reported for each day of the period. Findings of other\n"
-                "policy versions are kept, marked superseded. Idempotent. Prints one line:\n"
-                "exams evaluated, findings written, findings superseded.\n");
-        return help ? EXIT_STATUS_SUCCESS : EXIT_STATUS_USAGE;
+    for (int i = 1; i < argc; i++) {
+        const char *option = argv[i];
+        int is_from = strcmp(option, "--from") == 0, is_to = strcmp(option, "--to") == 0;
+        if ((is_from || is_to || strcmp(option, "--config") == 0) && i + 1 >= argc) {
+            fprintf(stderr, "mitilog rescore: %s needs a value\n\n", option);
+        } else if (strcmp(option, "--config") == 0) {
+            config_path = argv[++i];
+            continue;
+        } else if (strcmp(option, "--read-pixels") == 0) {
+            read_pixels = 1;
+            continue;
+        } else if (is_from || is_to) {
+            const char *value = argv[++i];
+            if (rescore_is_date(value, is_from ? &from_day : &to_day)) {
+                *(is_from ? &from : &to) = value;
+                continue;
+            }
+            fprintf(stderr,
+                    "mitilog rescore: %s '%s' is not a calendar date; write it as YYYY-MM-DD,\n"
+                    "e.g. 2026-11-02\n\n",
+                    option, value);
+        } else {
+            fprintf(stderr, "mitilog rescore: unknown argument '%s'\n\n", option);
+        }
+        print_rescore_usage(stderr);
+        return EXIT_STATUS_USAGE;
+    }
+    if (from != NULL && to != NULL && from_day > to_day) {
+        fprintf(stderr, "mitilog rescore: --from %s is after --to %s; swap them\n", from, to);
+        return EXIT_STATUS_USAGE;
     }
     config config;
     if (cli_load_config(config_path, &config) != 0) {
         config_free(&config);
         return EXIT_STATUS_USAGE;
+    }
+    if (cli_require_database("rescore", &config) != 0) {
+        config_free(&config);
+        return EXIT_STATUS_FAILURE;
     }
     int exit_status = EXIT_STATUS_SUCCESS;
     mitilog_error error;

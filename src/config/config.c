@@ -67,7 +67,8 @@ static const option options[] = {
      "Folder holding the dashboard's files."},
     {"http", "allow_insecure_non_loopback", OPTION_CHOICE, FIELD(http_allow_insecure_non_loopback),
      "no", 0, 0, "|yes|no|", 0,
-     "HTTP has no TLS or login yet: serve refuses a non-loopback address unless this says yes."},
+     "yes: serve a non-loopback address over plain HTTP or without a login (not advised); no: "
+     "such an address needs tls_certificate, tls_private_key and password_file."},
     {"http", "tls_certificate", OPTION_STRING, FIELD(http_tls_certificate), "", 0, 0, NULL, 1,
      "PEM certificate for HTTPS; with tls_private_key the API and dashboard use TLS."},
     {"http", "tls_private_key", OPTION_STRING, FIELD(http_tls_private_key), "", 0, 0, NULL, 1,
@@ -75,6 +76,16 @@ static const option options[] = {
     {"http", "password_file", OPTION_STRING, FIELD(http_password_file), "", 0, 0, NULL, 1,
      "File of user:crypt-hash lines (mitilog passwd); set: every request but /healthz needs a "
      "login. Needs HTTPS."},
+    {"http", "max_connections", OPTION_UNSIGNED, FIELD(http_max_connections), "256", 8, 4096, NULL,
+     0, "Open HTTP connections of all clients together; more are closed at once."},
+    {"http", "max_connections_per_address", OPTION_UNSIGNED,
+     FIELD(http_max_connections_per_address), "32", 0, 4096, NULL, 0,
+     "Open HTTP connections from one client address; 0 = no limit (e.g. behind a reverse proxy "
+     "on this host, which then limits clients itself)."},
+    {"http", "request_timeout_seconds", OPTION_UNSIGNED, FIELD(http_request_timeout_seconds), "10",
+     1, 600, NULL, 0,
+     "Seconds a client has to send a whole request (TLS handshake, request line and headers), "
+     "however slowly it sends each byte; then the connection is closed."},
     {"storage", "data_directory", OPTION_STRING, FIELD(data_directory), "var", 0, 0, NULL, 1,
      "Folder for the database, spool, quarantine and header copies."},
     {"storage", "database", OPTION_STRING, FIELD(database_path), "mitilog.sqlite3", 0, 0, NULL, 0,
@@ -177,7 +188,22 @@ static int option_assign(config *config, const option *option, const char *value
         char needle[64];
         snprintf(needle, sizeof needle, "|%s|", value);
         if (value[0] == '\0' || strchr(value, '|') != NULL || strstr(option->choices, needle) == NULL) {
-            snprintf(reason, reason_size, "'%s' is not one of %s", value, option->choices);
+            /* "|none|header|full|" reads "none, header or full" */
+            char allowed[256];
+            size_t used = 0;
+            const char *choice = option->choices + 1;
+            while (*choice != '\0' && used < sizeof allowed - 1) {
+                const char *end = strchr(choice, '|');
+                size_t length = end != NULL ? (size_t)(end - choice) : strlen(choice);
+                int last = end == NULL || end[1] == '\0';
+                int n = snprintf(allowed + used, sizeof allowed - used, "%s%.*s",
+                                 used == 0 ? "" : last ? " or " : ", ", (int)length, choice);
+                if (n < 0 || (size_t)n >= sizeof allowed - used)
+                    break;
+                used += (size_t)n;
+                choice = end != NULL ? end + 1 : choice + length;
+            }
+            snprintf(reason, reason_size, "'%s' is not one of %s", value, allowed);
             return -1;
         }
     }
@@ -211,96 +237,121 @@ static int config_address_is_loopback(const char *address)
 }
 
 /* Checks that only make sense across keys or need more than a bound. */
-static int config_validate(const config *config, char *reason, size_t reason_size,
-                           const char **section, const char **key)
+static void config_report(load_state *state, int line, const char *section, const char *key,
+                          const char *reason);
+
+static void config_problem(load_state *state, const char *section, const char *key,
+                           const char *reason)
 {
+    const option *option = option_find(section, key);
+    config_report(state, option ? state->lines[option - options] : 0, section, key, reason);
+}
+
+static void config_validate(load_state *state)
+{
+    const config *config = state->config;
+    char reason[512];
+    const size_t reason_size = sizeof reason;
     size_t length = strlen(config->ae_title);
     if (length == 0 || length > 16 || strchr(config->ae_title, '\\') != NULL) {
-        *section = "dicom";
-        *key = "ae_title";
         snprintf(reason, reason_size, "an AE title has 1 to 16 characters and no backslash");
-        return -1;
+        config_problem(state, "dicom", "ae_title", reason);
     }
     config_peer *peers = NULL;
     size_t peer_count = 0;
     mitilog_error peer_error;
     if (config_peers_parse(config->allowed_calling_ae_titles, &peers, &peer_count, &peer_error) !=
         MITILOG_OK) {
-        *section = "dicom";
-        *key = "allowed_calling_ae_titles";
         snprintf(reason, reason_size, "%.200s", peer_error.text);
-        return -1;
+        config_problem(state, "dicom", "allowed_calling_ae_titles", reason);
     }
     free(peers);
     int certificate = config->dicom_tls_certificate[0] != '\0';
     if (certificate != (config->dicom_tls_private_key[0] != '\0') ||
         (config->dicom_tls_ca_certificates[0] != '\0' && !certificate)) {
-        *section = "dicom";
-        *key = certificate ? "tls_private_key" : "tls_certificate";
         snprintf(reason, reason_size,
                  "DICOM TLS needs both tls_certificate and tls_private_key "
                  "(tls_ca_certificates only with them)");
-        return -1;
+        config_problem(state, "dicom", certificate ? "tls_private_key" : "tls_certificate", reason);
     }
     int https = config->http_tls_certificate[0] != '\0';
     if (https != (config->http_tls_private_key[0] != '\0')) {
-        *section = "http";
-        *key = https ? "tls_private_key" : "tls_certificate";
         snprintf(reason, reason_size, "HTTPS needs both tls_certificate and tls_private_key");
-        return -1;
+        config_problem(state, "http", https ? "tls_private_key" : "tls_certificate", reason);
     }
     int login = config->http_password_file[0] != '\0';
     if (login && !https) {
-        *section = "http";
-        *key = "password_file";
         snprintf(reason, reason_size,
                  "a login over plain HTTP would send passwords in clear: set tls_certificate "
                  "and tls_private_key too");
-        return -1;
+        config_problem(state, "http", "password_file", reason);
     }
     if (!config_address_is_loopback(config->http_address) && !(https && login) &&
         strcmp(config->http_allow_insecure_non_loopback, "yes") != 0) {
-        *section = "http";
-        *key = "address";
         snprintf(reason, reason_size,
                  "%.64s is not a loopback address: set tls_certificate, tls_private_key and "
                  "password_file (HTTPS with a login), or use 127.0.0.1 behind a reverse "
                  "proxy, or set allow_insecure_non_loopback = yes",
                  config->http_address);
-        return -1;
+        config_problem(state, "http", "address", reason);
     }
     if (config->http_port == config->port) {
-        *section = "http";
-        *key = "port";
         snprintf(reason, reason_size, "the HTTP port equals the DICOM port %u", config->port);
-        return -1;
+        config_problem(state, "http", "port", reason);
     }
-    return 0;
 }
 
+static void config_report(load_state *state, int line, const char *section, const char *key,
+                          const char *reason)
+{
+    if (state->error_line == 0 || line < state->error_line)
+        state->error_line = line;
+    state->status = MITILOG_ERROR_INVALID;
+    if (line > 0)
+        mitilog_error_append(state->error, state->status, "%s:%d: [%s] %s: %s", state->path,
+                             line, section, key, reason);
+    else
+        mitilog_error_append(state->error, state->status, "%s: [%s] %s (default): %s",
+                             state->path, section, key, reason);
+}
+
+/* Every problem of the file is reported, each on its own line. */
 static int handle_entry(void *user, const char *section, const char *key, const char *value)
 {
     load_state *state = user;
     int line = state->line_number;
-    if (state->status != MITILOG_OK)
-        return 0;
     const option *option = option_find(section, key);
+    if (option == NULL && section[0] == '\0') {
+        char sections[128] = "";
+        for (size_t i = 0; i < OPTION_COUNT; i++) {
+            if (strcasecmp(options[i].key, key) != 0)
+                continue;
+            size_t used = strlen(sections);
+            snprintf(sections + used, sizeof sections - used, "%s[%s]", used ? " or " : "",
+                     options[i].section);
+        }
+        state->error_line = state->error_line == 0 ? line : state->error_line;
+        state->status = MITILOG_ERROR_INVALID;
+        if (sections[0] != '\0')
+            mitilog_error_append(state->error, state->status,
+                                 "%s:%d: %s: this key comes before any [section]; put it under "
+                                 "%s",
+                                 state->path, line, key, sections);
+        else
+            mitilog_error_append(state->error, state->status,
+                                 "%s:%d: %s: unknown key, and it comes before any [section]",
+                                 state->path, line, key);
+        return 1;
+    }
     if (option == NULL) {
-        state->error_line = line;
-        state->status = mitilog_error_set(state->error, MITILOG_ERROR_INVALID,
-                                          "%s:%d: [%s] %s: unknown key", state->path, line,
-                                          section, key);
-        return 0;
+        config_report(state, line, section, key, "unknown key");
+        return 1;
     }
     state->lines[option - options] = line;
-    char reason[256];
+    char reason[512];
     if (option_assign(state->config, option, value, state->base_directory, reason, sizeof reason) !=
-        0) {
-        state->error_line = line;
-        state->status = mitilog_error_set(state->error, MITILOG_ERROR_INVALID, "%s:%d: [%s] %s: %s",
-                                          state->path, line, option->section, option->key, reason);
-        return 0;
-    }
+        0)
+        config_report(state, line, option->section, option->key, reason);
     return 1;
 }
 
@@ -315,7 +366,7 @@ static mitilog_status config_finish(config *config, mitilog_error *error)
     return MITILOG_OK;
 }
 
-mitilog_status config_set_defaults(config *config, mitilog_error *error)
+static mitilog_status assign_defaults(config *config, mitilog_error *error)
 {
     memset(config, 0, sizeof *config);
     config->source_path = strdup("(defaults)");
@@ -337,9 +388,17 @@ mitilog_status config_set_defaults(config *config, mitilog_error *error)
     return MITILOG_OK;
 }
 
+/* The defaults alone, database path resolved like a loaded file's: the
+ * database is var/mitilog.sqlite3, as documented, not ./mitilog.sqlite3. */
+mitilog_status config_set_defaults(config *config, mitilog_error *error)
+{
+    mitilog_status status = assign_defaults(config, error);
+    return status == MITILOG_OK ? config_finish(config, error) : status;
+}
+
 mitilog_status config_load(const char *path, config *config, mitilog_error *error)
 {
-    mitilog_status status = config_set_defaults(config, error);
+    mitilog_status status = assign_defaults(config, error);
     if (status != MITILOG_OK)
         return status;
     FILE *file = fopen(path, "r");
@@ -360,32 +419,27 @@ mitilog_status config_load(const char *path, config *config, mitilog_error *erro
             option_assign(config, &options[i], options[i].default_value, state.base_directory,
                           reason, sizeof reason);
     }
+    if (error != NULL)
+        error->text[0] = '\0';
     int result = ini_parse_stream(read_line, &state, handle_entry, &state);
     fclose(file);
-    if (result > 0 && (state.status == MITILOG_OK || result < state.error_line))
-        state.status = mitilog_error_set(error, MITILOG_ERROR_PARSE,
-                                         "%s:%d: syntax error (expected [section] or key = value)",
-                                         path, result);
-    else if (state.status == MITILOG_OK && result < 0)
-        state.status = mitilog_error_set(error, MITILOG_ERROR_IO, "%s: cannot be read", path);
+    if (result > 0) {
+        state.status = MITILOG_ERROR_PARSE;
+        mitilog_error_append(error, state.status,
+                             "%s:%d: syntax error (expected [section] or key = value)", path,
+                             result);
+    } else if (result < 0) {
+        state.status = MITILOG_ERROR_IO;
+        mitilog_error_append(error, state.status, "%s: cannot be read", path);
+    }
     free(state.base_directory);
-    if (state.status != MITILOG_OK)
-        return state.status;
     free(config->source_path);
     config->source_path = strdup(path);
     if (config->source_path == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-    char reason[256];
-    const char *section = "", *key = "";
-    if (config_validate(config, reason, sizeof reason, &section, &key) != 0) {
-        const option *option = option_find(section, key);
-        int line = option ? state.lines[option - options] : 0;
-        if (line > 0)
-            return mitilog_error_set(error, MITILOG_ERROR_INVALID, "%s:%d: [%s] %s: %s", path,
-                                     line, section, key, reason);
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "%s: [%s] %s (default): %s", path,
-                                 section, key, reason);
-    }
+    config_validate(&state);
+    if (state.status != MITILOG_OK)
+        return state.status;
     return config_finish(config, error);
 }
 

@@ -10,7 +10,8 @@
 
 typedef enum site_section {
     SECTION_NONE, SECTION_EXAM_TYPE, SECTION_ROOMS, SECTION_ROOMS_BY_AE, SECTION_SHIFT,
-    SECTION_AGE_GROUPS, SECTION_EXTRACTION, SECTION_SR_CODES, SECTION_TIMELINE
+    SECTION_AGE_GROUPS, SECTION_EXTRACTION, SECTION_SR_CODES, SECTION_TIMELINE,
+    SECTION_REFUSED /* its header was reported: its keys are skipped */
 } site_section;
 
 typedef struct site_state {
@@ -40,12 +41,15 @@ static char *site_read_line(char *buffer, int size, void *stream)
     return line;
 }
 
+/* Records one problem; every problem of the file is reported, a line each. */
 static int site_fail(site_state *state, const char *key, const char *reason)
 {
-    state->error_line = state->line_number;
-    state->status = mitilog_error_set(state->error, MITILOG_ERROR_INVALID, "%s:%d: [%s] %s: %s",
-                                      state->path, state->line_number, state->section_name, key,
-                                      reason);
+    if (state->status == MITILOG_OK) {
+        state->error_line = state->line_number;
+        state->status = MITILOG_ERROR_INVALID;
+    }
+    mitilog_error_append(state->error, MITILOG_ERROR_INVALID, "%s:%d: [%s] %s: %s", state->path,
+                         state->line_number, state->section_name, key, reason);
     return 0;
 }
 
@@ -293,28 +297,33 @@ static int other_entry(site_state *state, const char *key, const char *value)
 static int site_entry(void *user, const char *section, const char *key, const char *value)
 {
     site_state *state = user;
-    if (state->status != MITILOG_OK)
-        return 0;
-    if (strcmp(section, state->section_name) != 0 && !begin_section(state, section))
-        return 0;
+    if (strcmp(section, state->section_name) != 0 && !begin_section(state, section)) {
+        state->section = SECTION_REFUSED;
+        return 1;
+    }
+    if (state->section == SECTION_REFUSED)
+        return 1;
     if (state->section == SECTION_EXAM_TYPE)
-        return exam_type_entry(state, key, value);
-    return other_entry(state, key, value);
+        exam_type_entry(state, key, value);
+    else
+        other_entry(state, key, value);
+    return 1; /* go on: one run reports every problem */
 }
 
 static mitilog_status site_validate(const char *path, ext_site_rules *rules, mitilog_error *error)
 {
+    mitilog_status status = MITILOG_OK;
     for (size_t i = 0; i < rules->shift_count; i++)
         if (rules->shifts[i].from_minute < 0 || rules->shifts[i].to_minute < 0)
-            return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                     "%s: [shift %s] needs both from and to", path,
-                                     rules->shifts[i].name);
+            status = mitilog_error_append(error, MITILOG_ERROR_INVALID,
+                                          "%s: [shift %s] needs both from and to", path,
+                                          rules->shifts[i].name);
     for (size_t i = 0; i < rules->exam_type_count; i++)
         if (rules->exam_types[i].match_count == 0)
-            return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                     "%s: [exam_type %s] has no match rule", path,
-                                     rules->exam_types[i].key);
-    return MITILOG_OK;
+            status = mitilog_error_append(error, MITILOG_ERROR_INVALID,
+                                          "%s: [exam_type %s] has no match rule", path,
+                                          rules->exam_types[i].key);
+    return status;
 }
 
 mitilog_status config_site_load(const char *path, ext_site_rules *rules, mitilog_error *error)
@@ -338,17 +347,18 @@ mitilog_status config_site_load(const char *path, ext_site_rules *rules, mitilog
     state.error = error;
     state.section_name[0] = '\0';
     set_all_fields(&state);
+    if (error != NULL)
+        error->text[0] = '\0';
     int result = ini_parse_stream(site_read_line, &state, site_entry, &state);
     fclose(file);
-    if (result > 0 && (state.status == MITILOG_OK || result < state.error_line))
-        return mitilog_error_set(error, MITILOG_ERROR_PARSE,
-                                 "%s:%d: syntax error (expected [section] or key = value)", path,
-                                 result);
-    if (state.status != MITILOG_OK)
-        return state.status;
-    if (result < 0)
+    if (result > 0)
+        state.status = mitilog_error_append(
+            error, MITILOG_ERROR_PARSE, "%s:%d: syntax error (expected [section] or key = value)",
+            path, result);
+    else if (result < 0)
         return mitilog_error_set(error, MITILOG_ERROR_IO, "%s: cannot be read", path);
     if (rules->source_path == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-    return site_validate(path, rules, error);
+    mitilog_status valid = site_validate(path, rules, error);
+    return state.status != MITILOG_OK ? state.status : valid;
 }

@@ -74,6 +74,7 @@ mitilog_status dcm_initialise(int log_level, mitilog_error *error);
     X(BODY_PART_EXAMINED, 0x0018, 0x0015)                                  \
     X(SOFTWARE_VERSIONS, 0x0018, 0x1020)                                   \
     X(FRAME_TIME, 0x0018, 0x1063)                                          \
+    X(FRAME_TIME_VECTOR, 0x0018, 0x1065)                                   \
     X(PROTOCOL_NAME, 0x0018, 0x1030)                                       \
     X(TRANSDUCER_DATA, 0x0018, 0x5010)                                     \
     X(MECHANICAL_INDEX, 0x0018, 0x5022)                                    \
@@ -150,7 +151,10 @@ typedef struct dcm_object dcm_object;
 
 /* Reads a DICOM file (Part 10, or a bare dataset as a fall-back).
  * Large values are read lazily: the file must stay in place until
- * dcm_object_free(). */
+ * dcm_object_free(). A file that cannot be read gets a plain-words error
+ * that does not repeat the path (the caller names the file): not DICOM
+ * (and whether it looks like text), or truncated at byte N of the M its
+ * elements need, naming the element larger than the rest of the file. */
 mitilog_status dcm_object_load(const char *path, dcm_object **out,
                                mitilog_error *error);
 void dcm_object_free(dcm_object *object);

@@ -40,6 +40,12 @@ mitilog_status dcm_initialise(int log_level, mitilog_error *error)
         if (log_level > 0)
             OFLog::getLogger("dcmtk.dcmsr")
                 .setLogLevel(OFLogger::ERROR_LOG_LEVEL);
+        /* A file dcmdata cannot parse is described in plain words by
+         * dcm_object_load (dcm_read.cc); its own lines would repeat that
+         * in the toolkit's terms. */
+        if (log_level > 0)
+            OFLog::getLogger("dcmtk.dcmdata")
+                .setLogLevel(OFLogger::FATAL_LOG_LEVEL);
         if (!dcmDataDict.isDictionaryLoaded()) {
             const char *path = getenv(DCM_DICT_ENVIRONMENT_VARIABLE);
             return mitilog_error_set(

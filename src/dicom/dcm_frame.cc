@@ -436,11 +436,29 @@ mitilog_status frame_by_openjpeg(DcmDataset *dataset, E_TransferSyntax xfer, siz
 
 } // namespace
 
+namespace {
+
+/* At exit, after every thread that decoded has been joined: DCMTK keeps
+ * the registered codecs until they are cleaned up. */
+void dcm_frame_codecs_cleanup()
+{
+    DJLSDecoderRegistration::cleanup();
+    DJDecoderRegistration::cleanup();
+    DcmRLEDecoderRegistration::cleanup();
+}
+
+} // namespace
+
 void dcm_frame_codecs_register(void)
 {
+    static bool registered = false;
+    if (registered)
+        return;
+    registered = true;
     DcmRLEDecoderRegistration::registerCodecs();
     DJDecoderRegistration::registerCodecs();
     DJLSDecoderRegistration::registerCodecs();
+    std::atexit(dcm_frame_codecs_cleanup);
 }
 
 mitilog_status dcm_object_frame(dcm_object *object, size_t index, dcm_frame *frame,

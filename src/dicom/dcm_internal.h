@@ -39,8 +39,9 @@ class DcmFileFormat;
  * the shim (dcm_extra.cc). */
 DcmFileFormat *dcm_object_file(dcm_object *object);
 
-/* Registers DCMTK's RLE, JPEG and JPEG-LS decoders (dcm_frame.cc);
- * dcm_initialise() calls it once, before any thread starts. */
+/* Registers DCMTK's RLE, JPEG and JPEG-LS decoders (dcm_frame.cc) once,
+ * and their clean-up at exit; dcm_initialise() calls it before any thread
+ * starts. */
 void dcm_frame_codecs_register(void);
 
 /* Catch-all for the C boundary: every exception becomes a status. */

@@ -75,6 +75,99 @@ static uint64_t dcm_header_end(DcmDataset &dataset, uint64_t file_size)
     return pixels < file_size ? file_size - pixels : 0;
 }
 
+/* The first bytes of the file read as text: printable ASCII, tab, line
+ * ends or bytes of UTF-8 sequences, nothing else. Not DICOM parsing: a
+ * hint for the message only. */
+static int dcm_file_looks_like_text(const char *path)
+{
+    unsigned char bytes[512];
+    FILE *file = fopen(path, "rb");
+    if (file == NULL)
+        return 0;
+    size_t count = fread(bytes, 1, sizeof bytes, file);
+    fclose(file);
+    if (count == 0)
+        return 0;
+    for (size_t i = 0; i < count; i++) {
+        unsigned char c = bytes[i];
+        if (!(c == '\t' || c == '\n' || c == '\r' || (c >= 0x20 && c < 0x7f) || c >= 0x80))
+            return 0;
+    }
+    return 1;
+}
+
+/* Says in plain words why DCMTK could not read the file, from what it
+ * did read: the Part 10 header (PS3.10 section 7.1: preamble, "DICM",
+ * meta elements) and the elements of the data set up to the one where
+ * reading stopped, which is the last one kept. */
+static mitilog_status dcm_describe_load_failure(DcmFileFormat &file, uint64_t file_size,
+                                                const char *path, const OFCondition &condition,
+                                                mitilog_error *error)
+{
+    DcmMetaInfo *meta = file.getMetaInfo();
+    DcmDataset *dataset = file.getDataset();
+    int has_meta = meta != NULL && meta->card() > 0;
+    DcmElement *first = dataset != NULL && dataset->card() > 0 ? dataset->getElement(0) : NULL;
+    int first_known = first != NULL && first->getGTag() != 0x0000 &&
+                      strcmp(DcmTag(first->getTag()).getTagName(), DcmTag_ERROR_TagName) != 0 &&
+                      strcmp(DcmTag(first->getTag()).getTagName(), "Unknown Tag & Data") != 0;
+    if (!has_meta && !first_known) {
+        return mitilog_error_set(
+            error, MITILOG_ERROR_PARSE,
+            "not a DICOM file: it has no DICOM file header (\"DICM\" at byte 128) and its "
+            "first bytes do not read as DICOM data elements%s; export it from the modality or "
+            "PACS as a DICOM file",
+            dcm_file_looks_like_text(path) ? " (it looks like a text file)" : "");
+    }
+    /* Where the element reading stopped starts: the Part 10 header, then
+     * the data set's elements before it, at their encoded lengths. */
+    DcmItem *item = dataset != NULL && dataset->card() > 0 ? static_cast<DcmItem *>(dataset)
+                                                            : static_cast<DcmItem *>(meta);
+    E_TransferSyntax xfer = item == dataset ? dataset->getOriginalXfer() : EXS_LittleEndianExplicit;
+    if (item != NULL && item->card() > 0 && xfer != EXS_Unknown &&
+        DcmXfer(xfer).getStreamCompression() == ESC_none) {
+        uint64_t offset = 0;
+        if (has_meta) {
+            offset = 132; /* preamble and "DICM" */
+            if (item == dataset)
+                for (unsigned long i = 0; i < meta->card(); i++)
+                    offset += meta->getElement(i)->calcElementLength(EXS_LittleEndianExplicit,
+                                                                     EET_ExplicitLength);
+        }
+        for (unsigned long i = 0; i + 1 < item->card(); i++) {
+            DcmElement *element = item->getElement(i);
+            offset += element->calcElementLength(
+                xfer, element->getLengthField() == DCM_UndefinedLength ? EET_UndefinedLength
+                                                                       : EET_ExplicitLength);
+        }
+        DcmElement *last = item->getElement(item->card() - 1);
+        DcmTag tag(last->getTag());
+        Uint32 length = last->getLengthField();
+        if (length != DCM_UndefinedLength) {
+            uint64_t needed = offset + DcmXfer(xfer).sizeofTagHeader(last->getVR()) + length;
+            if (needed > file_size)
+                return mitilog_error_set(
+                    error, MITILOG_ERROR_PARSE,
+                    "truncated DICOM file: it ends at byte %llu of %llu; element %s %s at byte "
+                    "%llu declares %lu bytes, larger than the rest of the file. It was cut "
+                    "short in a copy or transfer: take it again from its source",
+                    (unsigned long long)file_size, (unsigned long long)needed,
+                    tag.getTagName(), tag.toString().c_str(), (unsigned long long)offset,
+                    (unsigned long)length);
+        }
+        return mitilog_error_set(
+            error, MITILOG_ERROR_PARSE,
+            "damaged or truncated DICOM file (%llu bytes): reading stopped in element %s %s "
+            "at byte %llu (%s). Take it again from its source",
+            (unsigned long long)file_size, tag.getTagName(), tag.toString().c_str(),
+            (unsigned long long)offset, condition.text());
+    }
+    return mitilog_error_set(error, MITILOG_ERROR_PARSE,
+                             "damaged or truncated DICOM file (%llu bytes): %s. Take it again "
+                             "from its source",
+                             (unsigned long long)file_size, condition.text());
+}
+
 mitilog_status dcm_object_load(const char *path, dcm_object **out,
                                mitilog_error *error)
 {
@@ -84,15 +177,12 @@ mitilog_status dcm_object_load(const char *path, dcm_object **out,
     *out = NULL;
     struct stat status;
     if (stat(path, &status) != 0)
-        return mitilog_error_set(error, MITILOG_ERROR_IO, "%s: %s", path,
-                                 strerror(errno));
+        return mitilog_error_set(error, MITILOG_ERROR_IO, "%s", strerror(errno));
     /* A FIFO or device would block the reader: regular files only. */
     if (!S_ISREG(status.st_mode))
-        return mitilog_error_set(error, MITILOG_ERROR_PARSE,
-                                 "%s: not a regular file", path);
+        return mitilog_error_set(error, MITILOG_ERROR_PARSE, "not a regular file");
     if (status.st_size == 0)
-        return mitilog_error_set(error, MITILOG_ERROR_PARSE,
-                                 "%s: empty file, not DICOM", path);
+        return mitilog_error_set(error, MITILOG_ERROR_PARSE, "empty file: not DICOM");
     try {
         std::unique_ptr<dcm_object> object(new dcm_object);
         object->path = path;
@@ -102,12 +192,13 @@ mitilog_status dcm_object_load(const char *path, dcm_object **out,
             object->file.loadFile(OFFilename(path), EXS_Unknown, EGL_noChange,
                                   DCM_MaxReadLength, ERM_autoDetect);
         if (condition.bad())
-            return dcm_error_from_condition(error, MITILOG_ERROR_PARSE, path,
-                                            condition);
+            return dcm_describe_load_failure(object->file,
+                                             static_cast<uint64_t>(status.st_size),
+                                             path, condition, error);
         if (object->file.getDataset() == NULL ||
             object->file.getDataset()->card() == 0)
             return mitilog_error_set(error, MITILOG_ERROR_PARSE,
-                                     "%s: no data elements, not DICOM", path);
+                                     "no data elements: not a DICOM file");
         object->header_end =
             dcm_header_end(*object->file.getDataset(), static_cast<uint64_t>(status.st_size));
         *out = object.release();

@@ -43,6 +43,15 @@ ext_number ext_parse_decimal_string(const char *raw);
 /* Integer String (VR IS): at most 12 characters, [+-]digits, VM 1. */
 ext_number ext_parse_integer_string(const char *raw);
 
+/* Frame Time Vector (0018,1065), DS with one value per frame: the time
+ * from the previous frame, the first value 0 by definition (PS3.3 Cine
+ * module, C.7.6.5.1.2). Fills the mean of the values after the first
+ * (the frame time) and their exact sum (the cine's duration). OK only
+ * when there are at least two values, every one a well-formed DS, none
+ * negative and the sum above 0; MISSING when absent or empty; else
+ * INVALID. */
+ext_number ext_frame_time_vector(const char *raw, double *sum_ms);
+
 /* The displayed indices, in the order of the domain reference. */
 typedef enum ext_index {
     EXT_INDEX_MI = 0,      /* (0018,5022) MechanicalIndex                */
@@ -120,7 +129,10 @@ typedef struct ext_record {
     char received_at[EXT_ISO_TIME_SIZE];  /* UTC, set by the caller */
 
     ext_number number_of_frames;
-    ext_number frame_time_ms;
+    ext_number frame_time_ms;      /* Frame Time, else the mean of Frame
+                                    * Time Vector's values after the first */
+    int frame_time_from_vector;    /* 1 when frame_time_ms came from it */
+    double frame_time_vector_sum_ms; /* its exact sum, when used */
 
     int is_ultrasound;             /* modality US or an US SOP class */
     ext_number indices[EXT_INDEX_COUNT];

@@ -146,3 +146,14 @@ int ext_modes_conflict(const ext_bitmap *bitmap, unsigned region_modes,
         from_bitmap |= EXT_MODE_BIT(EXT_MODE_COLOUR);
     return from_bitmap != (region_modes & comparable);
 }
+
+unsigned ext_modes_union(const ext_bitmap *bitmap, unsigned region_modes,
+                         unsigned sr_modes)
+{
+    unsigned from_regions = region_modes;
+    if (bitmap->status == EXT_BITMAP_OK &&
+        (bitmap->modes & EXT_MODE_BIT(EXT_MODE_POWER)) &&
+        !(bitmap->modes & EXT_MODE_BIT(EXT_MODE_COLOUR)))
+        from_regions &= ~EXT_MODE_BIT(EXT_MODE_COLOUR);
+    return bitmap->modes | from_regions | sr_modes;
+}

@@ -84,4 +84,11 @@ unsigned ext_modes_from_regions(const ext_region_mode_input *regions,
 int ext_modes_conflict(const ext_bitmap *bitmap, unsigned region_modes,
                        size_t region_count);
 
+/* The instance's modes: the union of the three sources, except that a
+ * color flow region of an image whose bitmap says Color Power Mode
+ * without Color Doppler (0100 set, 0010 not) is that power mode, not a
+ * colour Doppler one [std: DICOM PS3.3 C.8.5.6.1.1 and C.8.5.5.1.2]. */
+unsigned ext_modes_union(const ext_bitmap *bitmap, unsigned region_modes,
+                         unsigned sr_modes);
+
 #endif

@@ -114,3 +114,42 @@ ext_number ext_parse_integer_string(const char *raw)
     number.value = (double)value;
     return number;
 }
+
+ext_number ext_frame_time_vector(const char *raw, double *sum_ms)
+{
+    ext_number number = {EXT_VALUE_MISSING, 0.0};
+    *sum_ms = 0.0;
+    if (raw == NULL)
+        return number;
+    const char *start = NULL;
+    if (trimmed_span(raw, &start) == 0)
+        return number;
+    number.status = EXT_VALUE_INVALID;
+    double sum = 0.0;
+    size_t count = 0;
+    const char *value = raw;
+    for (;;) {
+        const char *end = strchr(value, '\\');
+        size_t length = end != NULL ? (size_t)(end - value) : strlen(value);
+        char buffer[DECIMAL_STRING_MAXIMUM + 1];
+        if (length > DECIMAL_STRING_MAXIMUM)
+            return number;
+        memcpy(buffer, value, length);
+        buffer[length] = '\0';
+        ext_number one = ext_parse_decimal_string(buffer);
+        if (one.status != EXT_VALUE_OK || one.value < 0)
+            return number;
+        if (count > 0) /* the first value is 0 by definition, not an interval */
+            sum += one.value;
+        count++;
+        if (end == NULL)
+            break;
+        value = end + 1;
+    }
+    if (count < 2 || !(sum > 0))
+        return number;
+    number.status = EXT_VALUE_OK;
+    number.value = sum / (double)(count - 1);
+    *sum_ms = sum;
+    return number;
+}

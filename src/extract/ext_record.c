@@ -113,6 +113,16 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
     record->acquired_at_source = ext_acquisition_time(facts, record->acquired_at);
     record->number_of_frames = ext_parse_integer_string(values[DCM_ATTRIBUTE_NUMBER_OF_FRAMES]);
     record->frame_time_ms = ext_parse_decimal_string(values[DCM_ATTRIBUTE_FRAME_TIME]);
+    if (record->frame_time_ms.status == EXT_VALUE_MISSING) {
+        /* A cine may time its frames by Frame Time Vector instead (PS3.3
+         * C.7.6.5, Frame Increment Pointer to (0018,1065)). */
+        ext_number mean = ext_frame_time_vector(values[DCM_ATTRIBUTE_FRAME_TIME_VECTOR],
+                                                &record->frame_time_vector_sum_ms);
+        if (mean.status == EXT_VALUE_OK) {
+            record->frame_time_ms = mean;
+            record->frame_time_from_vector = 1;
+        }
+    }
 
     record->is_ultrasound = ext_is_ultrasound_sop_class(record->sop_class_uid) ||
                             (record->modality != NULL && strcmp(record->modality, "US") == 0);

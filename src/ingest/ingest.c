@@ -78,6 +78,11 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out,
     }
     pthread_mutex_init(&created->schemes.lock, NULL);
     mitilog_status status = config_site_load(config->site_rules_path, &created->rules, error);
+    if (status != MITILOG_OK && error != NULL) {
+        char reason[sizeof error->text];
+        snprintf(reason, sizeof reason, "%s", error->text);
+        mitilog_error_set(error, status, "[site] rules: %s", reason);
+    }
     for (size_t i = 0; status == MITILOG_OK && i < created->rules.preset_count; i++) {
         const ext_preset_source *preset = &created->rules.presets[i];
         if (preset->is_private)
@@ -100,6 +105,12 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out,
     if (config->rules_policy_path != NULL && config->rules_policy_path[0] != '\0') {
         rules_policy *policy = NULL;
         status = rules_policy_load(config->rules_policy_path, &policy, error);
+        if (status != MITILOG_OK && error != NULL) {
+            /* Name the key that names the file. */
+            char reason[sizeof error->text];
+            snprintf(reason, sizeof reason, "%s", error->text);
+            mitilog_error_set(error, status, "[rules] policy: %s", reason);
+        }
         if (status == MITILOG_OK)
             status = ingest_set_policy(created, policy, error);
         if (status != MITILOG_OK) {

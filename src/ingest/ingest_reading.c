@@ -72,6 +72,15 @@ static void maybe_reload_profiles(ingest_reading *reading)
     pthread_rwlock_rdlock(&reading->profiles_lock);
     int due = ingest_clock_now() - reading->profiles_loaded_at >= PROFILE_RELOAD_SECONDS;
     pthread_rwlock_unlock(&reading->profiles_lock);
+    if (!due)
+        return;
+    /* One thread reloads; the others go on with the profiles they have. */
+    pthread_rwlock_wrlock(&reading->profiles_lock);
+    double now = ingest_clock_now();
+    due = now - reading->profiles_loaded_at >= PROFILE_RELOAD_SECONDS;
+    if (due)
+        reading->profiles_loaded_at = now;
+    pthread_rwlock_unlock(&reading->profiles_lock);
     if (due)
         reload_profiles(reading);
 }
@@ -370,7 +379,7 @@ static void finish_item(ingest_reading *reading, ingest_reading_item *item)
 {
     store_screen_result result;
     screen_reading combined;
-    char reason[SCREEN_REASON_SIZE + 512];
+    char reason[MITILOG_ERROR_TEXT_SIZE + 128];
     read_object(reading, item, &result, &combined, reason, sizeof reason);
     int stale = 0;
     mitilog_error error;

@@ -23,6 +23,7 @@ typedef struct parse_state {
     mitilog_status status;
     mitilog_error *error;
     int error_line;
+    int unknown_rule_line;   /* header line of an unknown rule, said once */
 } parse_state;
 
 /* inih asks for one line per call; counting here gives messages a line
@@ -49,12 +50,17 @@ static char *read_line(char *buffer, int size, void *stream)
     return buffer;
 }
 
+/* Records one problem (every problem of the file is reported, one line
+ * each) and returns 0: the entry is not taken. */
 static int fail(parse_state *state, mitilog_status status, const char *section, const char *key,
                 const char *reason)
 {
-    state->error_line = state->line_number;
-    state->status = mitilog_error_set(state->error, status, "%s:%d: [%s] %s: %s", state->name,
-                                      state->line_number, section, key, reason);
+    if (state->status == MITILOG_OK) {
+        state->error_line = state->line_number;
+        state->status = status;
+    }
+    mitilog_error_append(state->error, status, "%s:%d: [%s] %s: %s", state->name,
+                         state->line_number, section, key, reason);
     return 0;
 }
 
@@ -124,6 +130,35 @@ static int parse_selector(const char *text, rules_selector *selector)
     return 0;
 }
 
+/* Why a selector (KIND SEPARATOR NAME) was refused, naming what exists. */
+static void selector_reason(const char *text, char separator, char *reason, size_t size)
+{
+    const char *mark = strchr(text, separator);
+    size_t kind_length = mark != NULL ? (size_t)(mark - text) : strlen(text);
+    const char *name = mark != NULL ? mark + 1 : "";
+    char names[200] = "";
+    size_t used = 0;
+    int is_group = kind_length == 5 && strncmp(text, "group", 5) == 0;
+    int is_age = kind_length == 3 && strncmp(text, "age", 3) == 0;
+    int count = is_group ? RULES_GROUP_COUNT : is_age ? RULES_AGE_COUNT : 0;
+    for (int i = 0; i < count; i++) {
+        const char *known = is_group ? rules_group_name((rules_group)i) : rules_age_name((rules_age)i);
+        int n = snprintf(names + used, sizeof names - used, "%s%s", i ? ", " : "", known);
+        if (n > 0 && (size_t)n < sizeof names - used)
+            used += (size_t)n;
+    }
+    if (count > 0)
+        snprintf(reason, size, "'%.60s' is not a%s %s; the %s are %s", name,
+                 is_age ? "n" : "", is_group ? "group" : "age group",
+                 is_group ? "groups" : "age groups", names);
+    else if (kind_length == 8 && strncmp(text, "category", 8) == 0)
+        snprintf(reason, size,
+                 "'%.60s' is not an exam type key (lower-case letters, digits, _ and -)", name);
+    else
+        snprintf(reason, size, "'%.100s' is not group%cNAME, age%cNAME or category%cNAME", text,
+                 separator, separator, separator);
+}
+
 /* "group:obstetric, age:neonate" (applies / except). */
 static int parse_selector_list(parse_state *state, const char *section, const char *key,
                                const char *value, rules_selector *list, size_t *count)
@@ -141,11 +176,10 @@ static int parse_selector_list(parse_state *state, const char *section, const ch
         if (rc == -2)
             return fail(state, MITILOG_ERROR_MEMORY, section, key, "out of memory");
         if (rc != 0) {
-            char reason[300];
+            char reason[400];
             if (colon)
                 *colon = ':';
-            snprintf(reason, sizeof reason,
-                     "'%.200s' is not group:NAME, age:NAME or category:NAME", item);
+            selector_reason(item, ':', reason, sizeof reason);
             return fail(state, MITILOG_ERROR_INVALID, section, key, reason);
         }
         (*count)++;
@@ -183,9 +217,11 @@ static int handle_limit(parse_state *state, rules_rule *rule, const char *sectio
         int rc = parse_selector(key + base_length + 1, &limit.selector);
         if (rc == -2)
             return fail(state, MITILOG_ERROR_MEMORY, section, key, "out of memory");
-        if (rc != 0)
-            return fail(state, MITILOG_ERROR_INVALID, section, key,
-                        "the selector is not group.NAME, age.NAME or category.NAME");
+        if (rc != 0) {
+            char reason[400];
+            selector_reason(key + base_length + 1, '.', reason, sizeof reason);
+            return fail(state, MITILOG_ERROR_INVALID, section, key, reason);
+        }
     }
     if (strcasecmp(value, "off") == 0) {
         limit.off = 1;
@@ -421,11 +457,19 @@ static int handle_policy_key(parse_state *state, const char *section, const char
     return 1;
 }
 
+static int handle_entry_checked(parse_state *state, const char *section, const char *key,
+                                const char *value);
+
+/* Every entry is looked at, so that one run reports every problem. */
 static int handle_entry(void *user, const char *section, const char *key, const char *value)
 {
-    parse_state *state = user;
-    if (state->status != MITILOG_OK)
-        return 0;
+    handle_entry_checked(user, section, key, value);
+    return 1;
+}
+
+static int handle_entry_checked(parse_state *state, const char *section, const char *key,
+                                const char *value)
+{
     int continued = state->continuation && strcmp(section, state->last_section) == 0 &&
                     strcmp(key, state->last_key) == 0;
     snprintf(state->last_section, sizeof state->last_section, "%s", section);
@@ -439,9 +483,31 @@ static int handle_entry(void *user, const char *section, const char *key, const 
         return fail(state, MITILOG_ERROR_INVALID, section, key,
                     "unknown section (expected [policy] or [rule ID])");
     rules_rule *rule = find_or_add_rule(state, section);
-    if (rule == NULL)
-        return fail(state, MITILOG_ERROR_INVALID, section, key,
-                    "unknown rule id (see docs/policy.md for the list)");
+    if (rule == NULL) {
+        rules_kind kind;
+        if (rule_kind_from_id(section + 5, &kind) == 0)
+            return fail(state, MITILOG_ERROR_MEMORY, section, key, "out of memory");
+        if (state->unknown_rule_line == state->header_line)
+            return 0; /* said once, at the section */
+        state->unknown_rule_line = state->header_line;
+        char names[300] = "";
+        size_t used = 0;
+        for (int k = 0; k < RULES_KIND_COUNT; k++) {
+            const char *known = k == RULES_KIND_DWELL ? "dwell_NAME" : rules_kind_name((rules_kind)k);
+            int n = snprintf(names + used, sizeof names - used, "%s%s", k ? ", " : "", known);
+            if (n > 0 && (size_t)n < sizeof names - used)
+                used += (size_t)n;
+        }
+        if (state->status == MITILOG_OK) {
+            state->status = MITILOG_ERROR_INVALID;
+            state->error_line = state->header_line;
+        }
+        mitilog_error_append(state->error, MITILOG_ERROR_INVALID,
+                             "%s:%d: [%s]: '%s' is not a rule; the rules are %s "
+                             "(docs/policy.md)",
+                             state->name, state->header_line, section, section + 5, names);
+        return 0;
+    }
     return handle_rule_key(state, rule, section, key, value, continued);
 }
 
@@ -449,6 +515,7 @@ static int handle_entry(void *user, const char *section, const char *key, const 
 static mitilog_status check_complete(const rules_policy *policy, const char *name,
                                      mitilog_error *error)
 {
+    mitilog_status status = MITILOG_OK;
     for (size_t i = 0; i < policy->rule_count; i++) {
         const rules_rule *rule = &policy->rules[i];
         const char *missing = !rule->has_severity ? "severity"
@@ -457,10 +524,11 @@ static mitilog_status check_complete(const rules_policy *policy, const char *nam
                                   ? "dwell.THRESHOLD"
                                   : NULL;
         if (missing)
-            return mitilog_error_set(error, MITILOG_ERROR_INVALID, "%s:%d: [rule %s] %s: missing",
-                                     name, rule->line, rule->id, missing);
+            status = mitilog_error_append(error, MITILOG_ERROR_INVALID,
+                                          "%s:%d: [rule %s] %s: missing", name, rule->line,
+                                          rule->id, missing);
     }
-    return MITILOG_OK;
+    return status;
 }
 
 mitilog_status rules_policy_load_text(const char *text, const char *name, rules_policy **policy,
@@ -480,16 +548,19 @@ mitilog_status rules_policy_load_text(const char *text, const char *name, rules_
     state.previous_complete = 1;
     state.status = MITILOG_OK;
     state.error = error;
+    if (error != NULL)
+        error->text[0] = '\0';
     int result = ini_parse_stream(read_line, &state, handle_entry, &state);
     mitilog_status status = state.status;
-    if (result > 0 && (status == MITILOG_OK || result < state.error_line))
-        status = mitilog_error_set(error, MITILOG_ERROR_PARSE,
-                                   "%s:%d: syntax error (expected [section] or key = value)",
-                                   name, result);
-    else if (status == MITILOG_OK && result < 0)
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "%s: cannot be parsed", name);
+    if (result > 0)
+        status = mitilog_error_append(error, MITILOG_ERROR_PARSE,
+                                      "%s:%d: syntax error (expected [section] or key = value)",
+                                      name, result);
+    else if (result < 0)
+        status = mitilog_error_append(error, MITILOG_ERROR_MEMORY, "%s: cannot be parsed", name);
+    mitilog_status complete = check_complete(parsed, name, error);
     if (status == MITILOG_OK)
-        status = check_complete(parsed, name, error);
+        status = complete;
     if (status == MITILOG_OK)
         status = rules_policy_finish(parsed, error);
     if (status != MITILOG_OK) {

@@ -149,37 +149,37 @@ mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog
         store_statements_finalize(&set);
         return MITILOG_ERROR_DATABASE;
     }
-    int rc = store_bind_text_named(upsert, ":version", policy->version);
+    int rc = store_bind_text_named(st, upsert, ":version", policy->version);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(upsert, ":name", policy->name);
+        rc = store_bind_text_named(st, upsert, ":name", policy->name);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(upsert, ":normalised_text",
+        rc = store_bind_text_named(st, upsert, ":normalised_text",
                                    store_or_empty(policy->normalised_text));
     if (rc == SQLITE_OK)
-        rc = store_bind_double_named(upsert, ":closed_after_idle_minutes", 1,
+        rc = store_bind_double_named(st, upsert, ":closed_after_idle_minutes", 1,
                                      policy->closed_after_idle_minutes);
     if (rc == SQLITE_OK)
-        rc = store_bind_double_named(upsert, ":gap_cap_seconds", 1, policy->gap_cap_seconds);
+        rc = store_bind_double_named(st, upsert, ":gap_cap_seconds", 1, policy->gap_cap_seconds);
     rc = store_run(upsert, rc);
     for (size_t r = 0; rc == SQLITE_OK && r < policy->rule_count; r++) {
         const store_policy_rule *info = &policy->rules[r];
-        rc = store_bind_text_named(rule, ":version", policy->version);
-        if (rc == SQLITE_OK) rc = store_bind_text_named(rule, ":id", info->id);
-        if (rc == SQLITE_OK) rc = store_bind_text_named(rule, ":kind", info->kind);
-        if (rc == SQLITE_OK) rc = store_bind_text_named(rule, ":severity", info->severity);
-        if (rc == SQLITE_OK) rc = store_bind_int_named(rule, ":enabled", info->enabled != 0);
-        if (rc == SQLITE_OK) rc = store_bind_text_named(rule, ":source", info->source);
+        rc = store_bind_text_named(st, rule, ":version", policy->version);
+        if (rc == SQLITE_OK) rc = store_bind_text_named(st, rule, ":id", info->id);
+        if (rc == SQLITE_OK) rc = store_bind_text_named(st, rule, ":kind", info->kind);
+        if (rc == SQLITE_OK) rc = store_bind_text_named(st, rule, ":severity", info->severity);
+        if (rc == SQLITE_OK) rc = store_bind_int_named(st, rule, ":enabled", info->enabled != 0);
+        if (rc == SQLITE_OK) rc = store_bind_text_named(st, rule, ":source", info->source);
         if (rc == SQLITE_OK)
-            rc = store_bind_text_named(rule, ":description", info->description);
+            rc = store_bind_text_named(st, rule, ":description", info->description);
         rc = store_run(rule, rc);
         for (size_t k = 0; rc == SQLITE_OK && k < info->setting_count; k++) {
-            rc = store_bind_text_named(setting, ":version", policy->version);
+            rc = store_bind_text_named(st, setting, ":version", policy->version);
             if (rc == SQLITE_OK)
-                rc = store_bind_int_named(setting, ":rule_index", (sqlite3_int64)r);
+                rc = store_bind_int_named(st, setting, ":rule_index", (sqlite3_int64)r);
             if (rc == SQLITE_OK)
-                rc = store_bind_text_named(setting, ":key", info->setting_keys[k]);
+                rc = store_bind_text_named(st, setting, ":key", info->setting_keys[k]);
             if (rc == SQLITE_OK)
-                rc = store_bind_text_named(setting, ":value", info->setting_values[k]);
+                rc = store_bind_text_named(st, setting, ":value", info->setting_values[k]);
             rc = store_run(setting, rc);
         }
     }
@@ -220,7 +220,7 @@ static int store_uids_json(sqlite3_stmt *append, const store_finding *finding, c
     return rc;
 }
 
-static int store_insert_finding(sqlite3_stmt *insert, sqlite3_stmt *append,
+static int store_insert_finding(store *st, sqlite3_stmt *insert, sqlite3_stmt *append,
                                 const store_evaluation *e, const store_finding *f)
 {
     char *uids = NULL;
@@ -247,7 +247,7 @@ static int store_insert_finding(sqlite3_stmt *insert, sqlite3_stmt *append,
         {":period", e->study_instance_uid == NULL ? e->period : NULL},
     };
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0]; i++)
-        rc = store_bind_text_named(insert, texts[i].name, texts[i].value);
+        rc = store_bind_text_named(st, insert, texts[i].name, texts[i].value);
     const struct {
         const char *name;
         int present;
@@ -261,9 +261,9 @@ static int store_insert_finding(sqlite3_stmt *insert, sqlite3_stmt *append,
         {":estimated_seconds", 1, f->estimated_seconds},
     };
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof reals / sizeof reals[0]; i++)
-        rc = store_bind_double_named(insert, reals[i].name, reals[i].present, reals[i].value);
+        rc = store_bind_double_named(st, insert, reals[i].name, reals[i].present, reals[i].value);
     if (rc == SQLITE_OK)
-        rc = store_bind_int_named(insert, ":provisional", f->provisional != 0);
+        rc = store_bind_int_named(st, insert, ":provisional", f->provisional != 0);
     rc = store_run(insert, rc);
     free(uids);
     return rc;
@@ -284,7 +284,7 @@ static int store_bind_scope(sqlite3_stmt *statement, const store_evaluation *e)
     return rc;
 }
 
-static int store_write_context_row(sqlite3_stmt *statement, const store_evaluation *e)
+static int store_write_context_row(store *st, sqlite3_stmt *statement, const store_evaluation *e)
 {
     const struct {
         const char *name;
@@ -296,19 +296,21 @@ static int store_write_context_row(sqlite3_stmt *statement, const store_evaluati
     };
     int rc = SQLITE_OK;
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0]; i++)
-        rc = store_bind_text_named(statement, texts[i].name, texts[i].value);
+        rc = store_bind_text_named(st, statement, texts[i].name, texts[i].value);
     if (rc == SQLITE_OK)
-        rc = store_bind_int_named(statement, ":closed", e->closed != 0);
+        rc = store_bind_int_named(st, statement, ":closed", e->closed != 0);
     return store_run(statement, rc);
 }
 
-static int store_write_measurements(sqlite3_stmt *statement, const store_evaluation *e,
+static int store_write_measurements(store *st, sqlite3_stmt *statement, const store_evaluation *e,
                                     const char *hash)
 {
-    int rc = store_bind_text_named(statement, ":study_instance_uid", e->study_instance_uid);
-    if (rc == SQLITE_OK) rc = store_bind_text_named(statement, ":policy_version", e->policy_version);
-    if (rc == SQLITE_OK) rc = store_bind_text_named(statement, ":governing_index", e->governing_index);
-    if (rc == SQLITE_OK) rc = store_bind_text_named(statement, ":evaluation_hash", hash);
+    int rc = store_bind_text_named(st, statement, ":study_instance_uid", e->study_instance_uid);
+    if (rc == SQLITE_OK)
+        rc = store_bind_text_named(st, statement, ":policy_version", e->policy_version);
+    if (rc == SQLITE_OK)
+        rc = store_bind_text_named(st, statement, ":governing_index", e->governing_index);
+    if (rc == SQLITE_OK) rc = store_bind_text_named(st, statement, ":evaluation_hash", hash);
     const struct {
         const char *name;
         int present;
@@ -324,7 +326,8 @@ static int store_write_measurements(sqlite3_stmt *statement, const store_evaluat
         {":s25", 1, e->seconds_at_or_above[4]}, {":s30", 1, e->seconds_at_or_above[5]},
     };
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof reals / sizeof reals[0]; i++)
-        rc = store_bind_double_named(statement, reals[i].name, reals[i].present, reals[i].value);
+        rc = store_bind_double_named(st, statement, reals[i].name, reals[i].present,
+                                     reals[i].value);
     return store_run(statement, rc);
 }
 
@@ -360,13 +363,14 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
         store_statements_finalize(&set);
         return MITILOG_ERROR_DATABASE;
     }
-    int rc = store_bind_text_named(ensure, ":version", e->policy_version);
-    if (rc == SQLITE_OK) rc = store_bind_text_named(ensure, ":name", e->policy_name);
+    int rc = store_bind_text_named(st, ensure, ":version", e->policy_version);
+    if (rc == SQLITE_OK) rc = store_bind_text_named(st, ensure, ":name", e->policy_name);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(ensure, ":normalised_text", store_or_empty(e->normalised_text));
+        rc = store_bind_text_named(st, ensure, ":normalised_text",
+                                   store_or_empty(e->normalised_text));
     rc = store_run(ensure, rc);
     if (rc == SQLITE_OK && exam)
-        rc = store_write_context_row(context, e);
+        rc = store_write_context_row(st, context, e);
     /* Unchanged? */
     int unchanged = 0;
     if (rc == SQLITE_OK) {
@@ -396,16 +400,17 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
             superseded = (unsigned long)sqlite3_changes(st->writer);
         }
         for (size_t i = 0; rc == SQLITE_OK && i < e->finding_count; i++) {
-            rc = store_insert_finding(insert, append, e, &e->findings[i]);
+            rc = store_insert_finding(st, insert, append, e, &e->findings[i]);
             written++;
         }
         if (rc == SQLITE_OK && exam) {
-            rc = store_write_measurements(values, e, hash);
+            rc = store_write_measurements(st, values, e, hash);
         } else if (rc == SQLITE_OK) {
-            rc = store_bind_text_named(values, ":rule_id", e->rule_id);
-            if (rc == SQLITE_OK) rc = store_bind_text_named(values, ":policy_version", e->policy_version);
-            if (rc == SQLITE_OK) rc = store_bind_text_named(values, ":period", e->period);
-            if (rc == SQLITE_OK) rc = store_bind_text_named(values, ":evaluation_hash", hash);
+            rc = store_bind_text_named(st, values, ":rule_id", e->rule_id);
+            if (rc == SQLITE_OK)
+                rc = store_bind_text_named(st, values, ":policy_version", e->policy_version);
+            if (rc == SQLITE_OK) rc = store_bind_text_named(st, values, ":period", e->period);
+            if (rc == SQLITE_OK) rc = store_bind_text_named(st, values, ":evaluation_hash", hash);
             rc = store_run(values, rc);
         }
     }

@@ -215,6 +215,8 @@ mitilog_status store_open(const char *path, int busy_timeout_ms, store **out,
     pthread_mutex_init(&opened->queue_lock, NULL);
     pthread_cond_init(&opened->queue_changed, NULL);
     pthread_mutex_init(&opened->reader_lock, NULL);
+    pthread_mutex_init(&opened->parameter_lock, NULL);
+    hash_table_init(&opened->parameter_indices, STORE_PARAMETER_ENTRIES);
 
     mitilog_status status = store_connect(
         path, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE, busy_timeout_ms,
@@ -253,7 +255,7 @@ void store_close(store *st)
     store_write_drain(st);
     /* Nobody writes any more: what threads remember of the writer's
      * parameters is forgotten before its statements are finalized. */
-    store_parameter_forget();
+    store_parameter_forget(st);
     store_read_finalize(st);
     store_cache_finalize(&st->reader_cache);
     sqlite3_close(st->reader);
@@ -269,6 +271,7 @@ void store_close(store *st)
             log_warning("database close failed: %s",
                         sqlite3_errmsg(st->writer));
     }
+    pthread_mutex_destroy(&st->parameter_lock);
     pthread_mutex_destroy(&st->reader_lock);
     pthread_cond_destroy(&st->queue_changed);
     pthread_mutex_destroy(&st->queue_lock);

@@ -88,15 +88,15 @@ static mitilog_status write_request(store *st, const store_reading_request *read
         sqlite3_stmt *insert = writer_statement(st, "queries/reading_queue_insert.sql", error);
         if (insert == NULL)
             return MITILOG_ERROR_DATABASE;
-        rc = store_bind_int_named(insert, ":instance_id", instance_id);
+        rc = store_bind_int_named(st, insert, ":instance_id", instance_id);
         if (rc == SQLITE_OK)
-            rc = store_bind_text_named(insert, ":path", reading->path);
+            rc = store_bind_text_named(st, insert, ":path", reading->path);
         if (rc == SQLITE_OK)
-            rc = store_bind_int_named(insert, ":owned", reading->owned ? 1 : 0);
+            rc = store_bind_int_named(st, insert, ":owned", reading->owned ? 1 : 0);
         if (rc == SQLITE_OK)
-            rc = store_bind_int_named(insert, ":bytes", reading->bytes);
+            rc = store_bind_int_named(st, insert, ":bytes", reading->bytes);
         if (rc == SQLITE_OK)
-            rc = store_bind_text_named(insert, ":queued_at", now);
+            rc = store_bind_text_named(st, insert, ":queued_at", now);
         if (rc == SQLITE_OK)
             rc = store_step_done(insert);
         store_release(insert);
@@ -106,14 +106,14 @@ static mitilog_status write_request(store *st, const store_reading_request *read
     sqlite3_stmt *state = writer_statement(st, "queries/reading_state_insert.sql", error);
     if (state == NULL)
         return MITILOG_ERROR_DATABASE;
-    rc = store_bind_int_named(state, ":instance_id", instance_id);
+    rc = store_bind_int_named(st, state, ":instance_id", instance_id);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(state, ":state",
+        rc = store_bind_text_named(st, state, ":state",
                                    reading->not_read_reason == NULL ? "queued" : "not_read");
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(state, ":reason", reading->not_read_reason);
+        rc = store_bind_text_named(st, state, ":reason", reading->not_read_reason);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(state, ":updated_at", now);
+        rc = store_bind_text_named(st, state, ":updated_at", now);
     if (rc == SQLITE_OK)
         rc = store_step_done(state);
     store_release(state);
@@ -152,28 +152,29 @@ typedef struct result_context {
     int stale;
 } result_context;
 
-static int bind_value(sqlite3_stmt *statement, const char *index, const store_screen_value *v)
+static int bind_value(store *st, sqlite3_stmt *statement, const char *index,
+                      const store_screen_value *v)
 {
     char name[48];
     int read = v->status != NULL && strcmp(v->status, "read") == 0;
     snprintf(name, sizeof name, ":%s", index);
-    int rc = store_bind_double_named(statement, name, read, v->value);
+    int rc = store_bind_double_named(st, statement, name, read, v->value);
     snprintf(name, sizeof name, ":%s_status", index);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(statement, name, v->status);
+        rc = store_bind_text_named(st, statement, name, v->status);
     snprintf(name, sizeof name, ":%s_text", index);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(statement, name, v->status != NULL ? v->text : NULL);
+        rc = store_bind_text_named(st, statement, name, v->status != NULL ? v->text : NULL);
     snprintf(name, sizeof name, ":%s_decimals", index);
     if (rc == SQLITE_OK) {
-        int i = store_parameter_index(statement, name);
+        int i = store_parameter_index(st, statement, name);
         rc = i == 0 ? SQLITE_RANGE
              : read ? sqlite3_bind_int(statement, i, v->decimals)
                     : sqlite3_bind_null(statement, i);
     }
     snprintf(name, sizeof name, ":%s_reason", index);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(statement, name, read ? NULL : v->reason);
+        rc = store_bind_text_named(st, statement, name, read ? NULL : v->reason);
     return rc;
 }
 
@@ -204,25 +205,25 @@ static mitilog_status write_result(store *st, const void *context, mitilog_error
         return MITILOG_ERROR_DATABASE;
     char now[40];
     files_utc_now(now, sizeof now);
-    rc = store_bind_int_named(upsert, ":instance_id", r->instance_id);
+    rc = store_bind_int_named(st, upsert, ":instance_id", r->instance_id);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(upsert, ":state", r->read ? "read" : "not_read");
+        rc = store_bind_text_named(st, upsert, ":state", r->read ? "read" : "not_read");
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(upsert, ":reason", r->reason);
+        rc = store_bind_text_named(st, upsert, ":reason", r->reason);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(upsert, ":profile_key", r->profile_key);
+        rc = store_bind_text_named(st, upsert, ":profile_key", r->profile_key);
     if (rc == SQLITE_OK) {
-        int i = store_parameter_index(upsert, ":profile_version");
+        int i = store_parameter_index(st, upsert, ":profile_version");
         rc = i == 0               ? SQLITE_RANGE
              : r->profile_key ? sqlite3_bind_int(upsert, i, r->profile_version)
                               : sqlite3_bind_null(upsert, i);
     }
     if (rc == SQLITE_OK)
-        rc = store_bind_int_named(upsert, ":frames_read", r->frames_read);
+        rc = store_bind_int_named(st, upsert, ":frames_read", r->frames_read);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(upsert, ":updated_at", now);
+        rc = store_bind_text_named(st, upsert, ":updated_at", now);
     for (int i = 0; rc == SQLITE_OK && i < EXT_INDEX_COUNT; i++)
-        rc = bind_value(upsert, ext_index_name((ext_index)i), &r->values[i]);
+        rc = bind_value(st, upsert, ext_index_name((ext_index)i), &r->values[i]);
     if (rc == SQLITE_OK)
         rc = store_step_done(upsert);
     store_release(upsert);

@@ -27,7 +27,7 @@ typedef enum mitilog_status {
     MITILOG_ERROR_REFUSED    /* a policy said no (allowlist, limits)     */
 } mitilog_status;
 
-enum { MITILOG_ERROR_TEXT_SIZE = 512 };
+enum { MITILOG_ERROR_TEXT_SIZE = 2048 };
 
 typedef struct mitilog_error {
     char text[MITILOG_ERROR_TEXT_SIZE];
@@ -37,6 +37,14 @@ typedef struct mitilog_error {
  * return mitilog_error_set(error, MITILOG_ERROR_IO, "open %s", path); */
 mitilog_status mitilog_error_set(mitilog_error *error, mitilog_status status,
                                  const char *format, ...)
+    __attribute__((format(printf, 3, 4)));
+
+/* For a loader that reports every problem of a file: the first call on
+ * an error whose text is empty sets it, later ones add a line each. When
+ * no more fits, the text ends with "(more errors not shown)". Returns
+ * status. */
+mitilog_status mitilog_error_append(mitilog_error *error, mitilog_status status,
+                                    const char *format, ...)
     __attribute__((format(printf, 3, 4)));
 
 /* Stable lower-case name of a status ("ok", "invalid", ...). */

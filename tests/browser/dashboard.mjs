@@ -97,6 +97,11 @@ try {
     await shot(name);
   }
   check('stats distribution drawn', true);
+  if (config.replaced_text) {
+    await open('/status.html', '#replaced');
+    const replaced = await page.textContent('#replaced');
+    check('status page shows re-sent objects', replaced.includes(config.replaced_text), replaced);
+  }
 
   // 5. The HTML report prints to PDF.
   if (config.report_html) {

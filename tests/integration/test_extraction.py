@@ -99,7 +99,11 @@ def test_simulator_fields_match_pydicom(simulated):
         if str(ds.SOPClassUID) in SR_CLASSES:
             assert row["object_kind"] == "sr"
         else:
-            expected = [m for m in MODE_ORDER if m in bitmap | regions]
+            # PS3.3 C.8.5.6.1.1: with Color Power Mode and no Color Doppler
+            # bit, the color flow region shows power, not colour Doppler.
+            shown = regions - {"colour"} if "power" in bitmap and "colour" not in bitmap \
+                else regions
+            expected = [m for m in MODE_ORDER if m in bitmap | shown]
             assert row["modes"] == expected
             assert row["transducer"] == str(ds.TransducerData)
             assert row["source"]["transducer"] == "transducer_data"
@@ -330,3 +334,46 @@ def test_check_config_reports_bad_regex(tmp_path):
     result = run([BINARY, "check-config", str(main)])
     assert result.returncode == 2
     assert re.search(r"site\.ini:2: \[exam_type a\] match: bad regular expression", result.stderr)
+
+
+def test_cine_timed_by_frame_time_vector(daemon_factory, tmp_path):
+    # reference: DICOM PS3.3 C.7.6.5.1.2 (Cine module): Frame Time Vector
+    # holds the time from the previous frame, 0 for the first; Frame
+    # Increment Pointer names it when there is no Frame Time.
+    vector = ["0", "30", "40", "35", "45"]
+    ds = base(Modality="US", StudyDescription="Abdomen", MechanicalIndex="0.9",
+              ImageType=["ORIGINAL", "PRIMARY", "ABDOMINAL", "0001"],
+              NumberOfFrames=str(len(vector)), FrameTimeVector=vector,
+              FrameIncrementPointer=0x00181065,
+              Rows=2, Columns=2, SamplesPerPixel=1, BitsAllocated=8, BitsStored=8,
+              HighBit=7, PixelRepresentation=0, PhotometricInterpretation="MONOCHROME2")
+    ds.PixelData = bytes(4 * len(vector))
+    path = write(ds, str(tmp_path / "cine.dcm"), "1.2.840.10008.5.1.4.1.1.3.1")
+    values = [float(v) for v in pydicom.dcmread(path).FrameTimeVector]  # independent reader
+    daemon = daemon_factory("ftv").start()
+    assert daemon.storescu([path]).returncode == 0
+    row = daemon.get_json("/api/v1/instances")[0]
+    assert row["frame_time_ms"] == pytest.approx(sum(values[1:]) / (len(values) - 1))
+    assert row["cine_seconds"] == pytest.approx(sum(values) / 1000.0)
+
+
+def test_power_mode_region_is_not_colour_doppler(daemon_factory, tmp_path):
+    # reference: DICOM PS3.3 C.8.5.6.1.1: 0100 Color Power Mode, 0010 Color
+    # Doppler; C.8.5.5.1.2: Region Data Type 0002 color flow, where either is
+    # drawn. Bitmap 0101 = 2D + power only.
+    tissue, flow = Dataset(), Dataset()
+    for region, kind in ((tissue, 1), (flow, 2)):
+        region.RegionDataType, region.RegionSpatialFormat = kind, 1
+        region.RegionLocationMinX0, region.RegionLocationMinY0 = 0, 0
+        region.RegionLocationMaxX1, region.RegionLocationMaxY1 = 1, 1
+        region.RegionFlags = 0
+    ds = base(Modality="US", StudyDescription="Renal", MechanicalIndex="0.9",
+              ImageType=["ORIGINAL", "PRIMARY", "ABDOMINAL", "0101"],
+              SequenceOfUltrasoundRegions=Sequence([tissue, flow]))
+    path = write(ds, str(tmp_path / "power.dcm"), "1.2.840.10008.5.1.4.1.1.6.1")
+    bitmap, regions = reference_modes(pydicom.dcmread(path))
+    assert bitmap == {"2d", "power"} and regions == {"2d", "colour"}
+    daemon = daemon_factory("power").start()
+    assert daemon.storescu([path]).returncode == 0
+    row = daemon.get_json("/api/v1/instances")[0]
+    assert row["modes"] == ["2d", "power"]

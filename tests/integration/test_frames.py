@@ -29,6 +29,7 @@ SYNTAXES = {
     "native": (None, True),
     "rle": (["dcmcrle"], True),
     "jpeg_baseline": (["dcmcjpeg", "+eb"], False),
+    "jpeg_extended": (["dcmcjpeg", "+ee"], False),
     "jpeg_lossless": (["dcmcjpeg", "+e1"], True),
     "jpegls": (["dcmcjpls", "+el"], True),
 }

@@ -215,6 +215,9 @@ def test_disagreeing_device_is_a_finding(sent):
     assert mismatches[0]["quantity"] == "mi"
     assert mismatches[0]["measured_value"] == 1.3
     assert PROFILE_KEY in mismatches[0]["source"]
+    by_device = daemon.get_json("/api/v1/ingest")["reading"]["header_screen_mismatch_by_device"]
+    assert by_device == [dict(profile_key=PROFILE_KEY, station_names=["LARK-3"], captures=1,
+                              findings=1)]
 
 
 def test_timeline_carries_the_provenance(sent):
@@ -337,6 +340,10 @@ def test_full_queue_stores_the_object_not_read_and_rescore_reads_it(daemon_facto
                             ).fetchall()
     assert [s for s, _ in states] == ["queued", "queued", "not_read", "not_read"]
     assert all("reading queue full" in reason for _, reason in states[2:])
+    reading = daemon.get_json("/api/v1/ingest")["reading"]
+    assert (reading["queued"], reading["not_read_queue_full"], reading["read"]) == (2, 2, 0)
+    # the images read from nothing yet are "without indices" for now
+    assert daemon.get_json("/api/v1/ingest")["objects_per_hour"][0]["without_indices"] == 4
     daemon.stop()
     with open(daemon.config) as f:
         text = f.read().replace("workers = 0", "workers = 1")
@@ -348,3 +355,85 @@ def test_full_queue_stores_the_object_not_read_and_rescore_reads_it(daemon_facto
     with daemon.db() as db:
         rows = db.execute("SELECT state, mi, tis, tib FROM screen_readings").fetchall()
     assert rows == [("read", 0.9, 0.4, 1.2)] * 4
+    daemon.returncode = None
+    daemon.start()
+    status = daemon.get_json("/api/v1/ingest")
+    assert status["reading"]["read"] == 4
+    assert status["objects_per_hour"][0]["without_indices"] == 0
+
+
+def test_import_reads_the_pixels_before_it_reports(daemon_factory, tmp_path):
+    """`mitilog import` reads the pixels of the imported files and returns
+    once they are read (docs/reading.md, backfill)."""
+    daemon = daemon_factory("imported")
+    learn_profile(daemon, str(tmp_path))
+    folder = tmp_path / "import"
+    folder.mkdir()
+    drawn = dict(mi="1.5", tis="0.7", tib="2.1")
+    write_screen(str(folder), "imported_1", "pixels_only", drawn)
+    result = daemon.import_(str(folder))
+    assert result.returncode == 0, result.stderr
+    with daemon.db() as db:
+        rows = db.execute("SELECT state, mi, tis, tib FROM screen_readings").fetchall()
+        queued = db.execute("SELECT count(*) FROM reading_queue").fetchone()[0]
+    assert rows == [("read", 1.5, 0.7, 2.1)]
+    assert queued == 0
+
+
+def test_cine_whose_frames_disagree_is_not_read(sent, tmp_path):
+    """A cine whose last frame shows another MI: MI is "not read" with a
+    reason (the frames read disagree), never one of the two numbers; the
+    indices on which the frames agree are read (common practice, no
+    source)."""
+    daemon = sent["daemon"]
+    same = dict(tis="0.3", tib="1.2")
+    frames = [dict(mi="0.9", **same)] * 3 + [dict(mi="1.1", **same)]
+    path = str(tmp_path / "changing_cine.dcm")
+    make_screens.write(make_screens.make_screen("changing_cine", "pixels_only", frames[0],
+                                                frames=4, frame_values=frames), path)
+    result = daemon.storescu([path], options=["-xe"])
+    assert result.returncode == 0, result.stderr
+    uid = uid_of(path)
+    deadline = time.monotonic() + 120
+    while True:
+        _, by_uid = instances_by_uid(daemon, sent["study_uid"])
+        reading = by_uid[uid]["screen_reading"]
+        if reading["state"] != "queued" or time.monotonic() > deadline:
+            break
+        time.sleep(0.2)
+    indices = by_uid[uid]["indices"]
+    assert indices["mi"]["value"] is None
+    assert indices["mi"]["screen"]["status"] == "not_read"
+    assert indices["mi"]["screen"]["reason"]
+    assert indices["tis"]["value"] == 0.3 and indices["tib"]["value"] == 1.2
+
+
+def test_object_resent_while_queued_is_read_as_last_received(daemon_factory, tmp_path):
+    """An object re-sent before it was read is read once, as last received:
+    what is kept belongs to the latest receipt, and the older spool copy
+    goes (common practice, no source)."""
+    daemon = daemon_factory("resent")
+    learn_profile(daemon, str(tmp_path))
+    add_reading_section(daemon, workers=0)
+    daemon.start()
+    first = write_screen(str(tmp_path), "resent", "pixels_only", dict(mi="0.5", tis="0.1",
+                                                                     tib="0.2"))
+    assert daemon.storescu([first], options=["-xe"]).returncode == 0
+    os.makedirs(str(tmp_path / "second"))
+    second = write_screen(str(tmp_path / "second"), "resent", "pixels_only",
+                          dict(mi="1.7", tis="0.9", tib="2.4"))
+    assert uid_of(first) == uid_of(second)
+    assert daemon.storescu([second], options=["-xe"]).returncode == 0
+    assert len(spool_files(daemon)) == 1
+    daemon.stop()
+    with open(daemon.config) as f:
+        text = f.read().replace("workers = 0", "workers = 1")
+    with open(daemon.config, "w") as f:
+        f.write(text)
+    daemon.returncode = None
+    daemon.start()
+    wait_until_read(daemon, 1)
+    with daemon.db() as db:
+        rows = db.execute("SELECT state, mi, tis, tib FROM screen_readings").fetchall()
+    assert rows == [("read", 1.7, 0.9, 2.4)]
+    assert spool_files(daemon) == []

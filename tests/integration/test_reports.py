@@ -58,6 +58,9 @@ def department(tmp_path_factory):
     daemon = Daemon(work)
     imported = daemon.import_(sim)
     assert "imported" in imported.stdout, imported.stderr
+    # One object received again: it replaces its row (the ingest page shows it).
+    again = daemon.import_(first)
+    assert "replaced 1" in again.stdout, again.stdout + again.stderr
     daemon.start()
     yield daemon
     daemon.stop()
@@ -221,6 +224,13 @@ def test_drift_and_ingest(department):
     ingest = department.get_json("/api/v1/ingest")
     assert ingest["totals"]["instances"] > 1000
     assert any(d["objects"] > 0 for d in ingest["devices"])
+    # The object imported twice: one row replaced once (sqlite3 reads the
+    # same rows independently of the API's query).
+    assert ingest["totals"]["replaced_instances"] == 1
+    assert ingest["totals"]["replacements"] == 1
+    with department.db() as db:
+        assert db.execute("SELECT count(*), sum(replaced_count) FROM instances "
+                          "WHERE replaced_count > 0").fetchone() == (1, 1)
     # The planted silent probe (L4-15 in US-ROOM-3 from day 15).
     assert any(r["transducer"] == "L4-15" for r in ingest["not_reporting"])
 
@@ -242,7 +252,8 @@ def test_dashboard_in_chromium(department, tmp_path):
     config = dict(url="http://127.0.0.1:%d" % department.http_port, out=out, week="2026-W47",
                   hot_preset=HOT_PRESET, hot_room=HOT_ROOM, study=study,
                   hostile_study=HOSTILE_STUDY, hostile_text=HOSTILE_DESCRIPTION,
-                  hostile_week="2026-W45", report_html=html_report)
+                  hostile_week="2026-W45", report_html=html_report,
+                  replaced_text="1 object(s) received again for 1 instance(s)")
     config_path = os.path.join(str(tmp_path), "browser.json")
     with open(config_path, "w") as f:
         json.dump(config, f)

@@ -5,9 +5,11 @@ Run with /usr/bin/python3 -m pytest tests/integration/test_simulator.py
 build/mitilog. Files are read with pydicom, never with mitilog.
 """
 import collections
+import csv
 import glob
 import hashlib
 import os
+import re
 import shutil
 import statistics
 import subprocess
@@ -290,3 +292,38 @@ def test_send_to_storescp(tmp_path):
                           "--out", str(tmp_path / "out2"), "--send", "127.0.0.1:%d" % port],
                          capture_output=True, text=True, timeout=300)
     assert run.returncode == 1
+
+
+def test_demo_doc_counts_are_the_demos_own(tmp_path):
+    """docs/demo.md's planted-problem counts are those of deploy/demo.sh's
+    run: its seed and 28 days from the default start, recounted here from
+    the simulator's own manifest (its ground truth)."""
+    with open(os.path.join(ROOT, "deploy", "demo.sh")) as f:
+        demo = f.read()
+    seed = re.search(r"seed=\$\{DEMO_SEED:-(\d+)\}", demo).group(1)
+    days = re.search(r"days=\$\{DEMO_DAYS:-(\d+)\}", demo).group(1)
+    with open(os.path.join(ROOT, "docs", "demo.md")) as f:
+        doc = f.read()
+    claims = {}
+    for row in doc.splitlines():
+        tag = re.match(r"\| `([a-z-]+)` \|", row)
+        count = re.search(r"(\d+) exams with seed (\d+)", row)
+        if tag and count:
+            assert count.group(2) == seed, "%s: counted with seed %s, the demo uses %s" % (
+                tag.group(1), count.group(2), seed)
+            claims[tag.group(1)] = int(count.group(1))
+        elif tag and "exactly 3 exams" in row:
+            claims[tag.group(1)] = 3
+    assert len(claims) >= 4, claims
+    out = tmp_path / "demo"
+    # the pixel matrix does not change the random stream, only file sizes
+    made = subprocess.run([BINARY, "simulate", "--days", days, "--seed", seed, "--matrix", "4x4",
+                           "--out", str(out)], stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                          text=True, timeout=600)
+    assert made.returncode == 0, made.stderr
+    studies = collections.defaultdict(set)
+    with open(out / "manifest.csv", newline="") as f:
+        for row in csv.DictReader(f):
+            for planted in filter(None, row["planted"].split(";")):
+                studies[planted].add(row["study_instance_uid"])
+    assert {tag: len(studies[tag]) for tag in claims} == claims

@@ -39,6 +39,11 @@ static void defaults(void **state)
     assert_string_equal(config.http_address, "127.0.0.1");
     assert_int_equal(config.http_port, 8080);
     assert_string_equal(config.retention, "header");
+    /* README's table: the database lives in data_directory (var) */
+    size_t length = strlen(config.database_path);
+    assert_true(length >= strlen("/var/mitilog.sqlite3"));
+    assert_string_equal(config.database_path + length - strlen("/var/mitilog.sqlite3"),
+                        "/var/mitilog.sqlite3");
     config_free(&config);
 }
 

@@ -126,7 +126,7 @@ static int fixture_setup(void **state)
     put_instance(f->store, "1.2.3.2", "1.2.3", "2024-03-01T09:05:00.000Z",
                  1.3);
     f->port = free_port();
-    http_settings settings = {"127.0.0.1", f->port, f->web_root, NULL, NULL, NULL};
+    http_settings settings = {"127.0.0.1", f->port, f->web_root, NULL, NULL, NULL, 0, 0, 0};
     if (http_server_start(&settings, f->store, &f->server, &error) !=
         MITILOG_OK)
         fail_msg("http_server_start: %s", error.text);
@@ -304,16 +304,14 @@ static void health(void **state)
     response r = get_json(f, "/healthz", 200);
     assert_json(r.body, "$.status", "ok");
     assert_json(r.body, "$.database", "ok");
-    /* The newest built-in migration (sql/migrations/NNN_*.sql). */
+    /* the newest built-in migration (sql/migrations/NNN_*.sql) */
     int newest = 0;
-    for (const sql_file *file = sql_files; file->name != NULL; file++) {
+    for (const sql_file *file = sql_files; file->name != NULL; file++)
         if (strncmp(file->name, "migrations/", 11) == 0 && atoi(file->name + 11) > newest)
             newest = atoi(file->name + 11);
-    }
-    char version[16];
-    snprintf(version, sizeof version, "%d", newest);
-    assert_true(newest >= 8);
-    assert_json(r.body, "$.schema_version", version);
+    char newest_text[16];
+    snprintf(newest_text, sizeof newest_text, "%d", newest);
+    assert_json(r.body, "$.schema_version", newest_text);
     assert_json(r.body, "$.instances", "2");
     assert_json(r.body, "$.studies", "1");
     assert_json(r.body, "$.rejections", "0");
@@ -474,7 +472,7 @@ static void static_files(void **state)
 static void port_taken_and_bad_settings(void **state)
 {
     fixture *f = *state;
-    http_settings same = {"127.0.0.1", f->port, NULL, NULL, NULL, NULL};
+    http_settings same = {"127.0.0.1", f->port, NULL, NULL, NULL, NULL, 0, 0, 0};
     http_server *second = NULL;
     mitilog_error error = {{0}};
     assert_int_equal(http_server_start(&same, f->store, &second, &error),
@@ -482,15 +480,15 @@ static void port_taken_and_bad_settings(void **state)
     assert_null(second);
     assert_non_null(strstr(error.text, "in use"));
 
-    http_settings bad_address = {"localhost:80", 0, NULL, NULL, NULL, NULL};
+    http_settings bad_address = {"localhost:80", 0, NULL, NULL, NULL, NULL, 0, 0, 0};
     assert_int_equal(http_server_start(&bad_address, f->store, &second,
                                        &error), MITILOG_ERROR_INVALID);
-    http_settings bad_port = {"127.0.0.1", 70000, NULL, NULL, NULL, NULL};
+    http_settings bad_port = {"127.0.0.1", 70000, NULL, NULL, NULL, NULL, 0, 0, 0};
     assert_int_equal(http_server_start(&bad_port, f->store, &second, &error),
                      MITILOG_ERROR_INVALID);
 
     /* No web root: "/" is a JSON 404. */
-    http_settings api_only = {NULL, free_port(), "/nonexistent/web", NULL, NULL, NULL};
+    http_settings api_only = {NULL, free_port(), "/nonexistent/web", NULL, NULL, NULL, 0, 0, 0};
     assert_int_equal(http_server_start(&api_only, f->store, &second, &error),
                      MITILOG_OK);
     response r = http_request(api_only.port, "GET", "/");

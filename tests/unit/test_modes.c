@@ -89,6 +89,32 @@ static void regions_and_conflicts(void **state)
     assert_int_equal(ext_modes_conflict(&only_2d, 0, 0), 0); /* no regions: nothing to compare */
 }
 
+/* PS3.3 C.8.5.6.1.1: 0100 Color Power Mode and 0010 Color Doppler are
+ * distinct bits; a color flow region (C.8.5.5.1.2, 0002) is where either
+ * is drawn, so with only 0100 set it shows power, not colour Doppler. */
+static void power_mode_union(void **state)
+{
+    (void)state;
+    ext_region_mode_input regions[] = {{0x0001, 0x0001}, {0x0002, 0x0001}};
+    unsigned from_regions = ext_modes_from_regions(regions, 2);
+    assert_int_equal(from_regions, BIT(2D) | BIT(COLOUR)); /* sources kept apart */
+    ext_bitmap power = ext_modes_from_image_type("ORIGINAL\\PRIMARY\\ABDOMINAL\\0101");
+    assert_int_equal(ext_modes_union(&power, from_regions, 0), BIT(2D) | BIT(POWER));
+    assert_int_equal(ext_modes_conflict(&power, from_regions, 2), 0);
+    /* both bits set: the image shows both */
+    ext_bitmap both = ext_modes_from_image_type("ORIGINAL\\PRIMARY\\ABDOMINAL\\0111");
+    assert_int_equal(ext_modes_union(&both, from_regions, 0),
+                     BIT(2D) | BIT(COLOUR) | BIT(POWER));
+    /* no usable bitmap: the region's word stands */
+    ext_bitmap none = ext_modes_from_image_type("ORIGINAL\\PRIMARY");
+    assert_int_equal(ext_modes_union(&none, from_regions, BIT(PW)),
+                     BIT(2D) | BIT(COLOUR) | BIT(PW));
+    /* colour M-mode region is not touched */
+    ext_region_mode_input m_regions[] = {{0x0002, 0x0002}};
+    assert_int_equal(ext_modes_union(&power, ext_modes_from_regions(m_regions, 1), 0),
+                     BIT(2D) | BIT(POWER) | BIT(COLOUR_M));
+}
+
 static void names(void **state)
 {
     (void)state;
@@ -106,6 +132,7 @@ int main(void)
         cmocka_unit_test(each_bit_of_the_table),
         cmocka_unit_test(missing_and_invalid),
         cmocka_unit_test(regions_and_conflicts),
+        cmocka_unit_test(power_mode_union),
         cmocka_unit_test(names),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

@@ -78,11 +78,16 @@ static void errors_name_file_line_and_key(void **state)
     expect_error("[rule ti_ceiling]\nseverity = severe\n",
                  "site.ini:2: [rule ti_ceiling] severity: 'severe' is not advisory");
     snprintf(text, sizeof text, "%slimit.group.martian = 1\n", head);
-    expect_error(text, "site.ini:4: [rule ti_ceiling] limit.group.martian: the selector");
+    /* the group names of docs/policy.md ("Selectors") */
+    expect_error(text, "site.ini:4: [rule ti_ceiling] limit.group.martian: 'martian' is not a "
+                       "group; the groups are general, obstetric, neonatal, transcranial, "
+                       "ophthalmic, contrast");
     snprintf(text, sizeof text, "%slimit = 1\nlimit = 2\n", head);
     expect_error(text, "site.ini:5: [rule ti_ceiling] limit: set twice");
+    /* an unknown rule is named at its section header, not at a key */
     expect_error("; c\n[rule no_such_rule]\nseverity = warning\n",
-                 "site.ini:3: [rule no_such_rule] severity: unknown rule id");
+                 "site.ini:2: [rule no_such_rule]: 'no_such_rule' is not a rule; the rules are "
+                 "ti_ceiling, mi_ceiling,");
     expect_error("[policy]\ngap_cap_seconds = 0\n", "site.ini:2: [policy] gap_cap_seconds:");
     expect_error("[rule ti_ceiling]\nseverity = warning\nlimit = 2\n",
                  "site.ini:1: [rule ti_ceiling] source: missing");
@@ -92,6 +97,12 @@ static void errors_name_file_line_and_key(void **state)
                  "site.ini:4: [rule dwell_x] applies: 'obstetric' is not group:NAME");
     expect_error("[rule ti_ceiling]\nseverity = warning\nsource = s\nno equals sign\n",
                  "site.ini:4: syntax error");
+    /* every problem of the file, each once, in file order */
+    expect_error("[rule ti_ceiling]\nseverity = severe\nsource = s\nlimt = 1\n"
+                 "[rule ti_celing]\nseverity = warning\nsource = s\n",
+                 "site.ini:2: [rule ti_ceiling] severity: 'severe' is not advisory, warning or "
+                 "violation\nsite.ini:4: [rule ti_ceiling] limt: unknown key\n"
+                 "site.ini:5: [rule ti_celing]: 'ti_celing' is not a rule");
     rules_policy *policy = NULL;
     mitilog_error error;
     assert_int_equal(rules_policy_load("/nonexistent/policy.ini", &policy, &error),

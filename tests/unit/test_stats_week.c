@@ -1,4 +1,5 @@
-/* ISO weeks, weekly outliers, period statistics and drift (stats_week.h).
+/* ISO weeks, weekly outliers, period statistics and drift
+ * (stats_calendar.h, stats_outliers.h, stats_period.h, stats_drift.h).
  * ISO week expectations were printed by Python 3.11:
  *   date.fromisoformat(D).isocalendar(), date.fromisocalendar(Y, W, 1)
  *   2026-12-28 -> (2026, 53); 2027-01-03 -> (2026, 53); 2027-01-04 -> (2027, 1)
@@ -21,7 +22,11 @@
 
 #include <cmocka.h>
 
-#include "stats/stats_week.h"
+#include "stats/stats_calendar.h"
+#include "stats/stats_drift.h"
+#include "stats/stats_exam.h"
+#include "stats/stats_outliers.h"
+#include "stats/stats_period.h"
 
 #define assert_close(actual, expected, tolerance)                                  \
     do {                                                                           \
