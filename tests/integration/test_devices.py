@@ -87,9 +87,9 @@ def test_learn_activate_and_dashboard(daemon_factory, tmp_path):
     status, _, body = fetch(daemon, "/api/v1/devices/example?key=nothing-here")
     assert status == 404 and b"no screen profile nothing-here" in body
     status, _, body = fetch(daemon, "/api/v1/devices/example?key=room-3-scanner&version=x")
-    assert status == 400 and b"parameter version" in body
+    assert status == 400 and b"version" in body
     status, _, body = fetch(daemon, "/api/v1/devices/example")
-    assert status == 400 and b"parameter key" in body
+    assert status == 400 and b"key" in body
 
     # The Devices page is served with the dashboard.
     status, _, body = fetch(daemon, "/devices.html")
