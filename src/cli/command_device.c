@@ -490,6 +490,7 @@ static int device_learn(int argc, char **argv, store **st_out, const char *confi
         goto done;
     }
     if (print_only) {
+        fputs(report, stderr);
         fputs(text, stdout);
         exit_status = EXIT_STATUS_SUCCESS;
     } else {

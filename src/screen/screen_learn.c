@@ -443,9 +443,10 @@ static int candidate_top(const learn_frame *frames, const learn_candidate *c)
 static int same_place(const learn_frame *frames, const learn_candidate *a,
                       const learn_candidate *b)
 {
+    /* Not the number of label characters: a thin letter may come apart
+     * in one frame and not in another. */
     return abs(candidate_label_x(frames, a) - candidate_label_x(frames, b)) <= 2 &&
            abs(candidate_top(frames, a) - candidate_top(frames, b)) <= 2 &&
-           a->value_first - a->label_first == b->value_first - b->label_first &&
            a->decimals == b->decimals;
 }
 
@@ -616,6 +617,26 @@ static double assignment_penalty(learn_search *search)
     return penalty;
 }
 
+/* 1 when index k may take place p: a place free so far, or one that shows
+ * other indices never given a value on the same frame as k (one place
+ * showing TIS, TIB or TIC by exam; the labels tell them apart). */
+static int place_free_for(const learn_search *search, size_t k, size_t p, unsigned long used)
+{
+    if (!(used & (1ul << p)))
+        return 1;
+    for (size_t j = 0; j < k; j++) {
+        if (search->current[j] != (int)p)
+            continue;
+        for (size_t e = 0; e < search->example_count; e++) {
+            const screen_value *truth = search->examples[e].truth;
+            if (truth[search->indices[k]].status == SCREEN_VALUE_READ &&
+                truth[search->indices[j]].status == SCREEN_VALUE_READ)
+                return 0;
+        }
+    }
+    return 1;
+}
+
 static void search_assign(learn_search *search, size_t k, int assigned, unsigned long used)
 {
     if (search->evaluations > 20000)
@@ -641,7 +662,7 @@ static void search_assign(learn_search *search, size_t k, int assigned, unsigned
     }
     int any = 0;
     for (size_t p = 0; p < search->place_count; p++) {
-        if (!search->compatible[k][p] || (used & (1ul << p)))
+        if (!search->compatible[k][p] || !place_free_for(search, k, p, used))
             continue;
         any = 1;
         search->current[k] = (int)p;
@@ -1073,9 +1094,9 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
         if (known && !learned[i]) {
             status = mitilog_error_set(
                 error, MITILOG_ERROR_REFUSED,
-                "%s was given a value but not found on the screen, so the places found for "
-                "the other indices are not certain either: give values only for the indices "
-                "the screens show, or other frames (see the report)",
+                "%s was given a value but not placed for certain (see the report), so the "
+                "places found for the other indices are not certain either: give values "
+                "only for the indices the screens show, or more frames",
                 screen_index_label((exam_index)i));
             goto done;
         }

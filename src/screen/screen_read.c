@@ -236,8 +236,10 @@ static void read_slot(const screen_profile *profile, const screen_image *image, 
             touches = 0;
             break;
         }
+        /* Nor is a point before the first digit (a speck at the label's
+         * edge): the number starts with a digit. */
         int tall = (blobs[i].bottom - blobs[i].top + 1) * 4 > profile->band_above;
-        if (tall || blobs[i].bottom >= baseline - 1)
+        if (tall || (kept > 0 && blobs[i].bottom >= baseline - 1))
             blobs[kept++] = blobs[i];
     }
     count = kept;
