@@ -101,6 +101,8 @@ static int serve_start(serve_state *state, mitilog_error *error)
         .allowed_peers = state->allowed,
         .allowed_peer_count = peer_count,
         .max_associations = config->max_associations,
+        .max_negotiations = config->max_negotiations,
+        .max_negotiations_per_address = config->max_negotiations_per_address,
         .acse_timeout_seconds = config->acse_timeout_seconds,
         .dimse_timeout_seconds = config->dimse_timeout_seconds,
         .max_pdu = config->max_pdu_bytes,

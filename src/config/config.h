@@ -27,6 +27,8 @@ typedef struct config {
     unsigned port;
     char *allowed_calling_ae_titles; /* "AE[@address], ..." or "" = any */
     unsigned max_associations;
+    unsigned max_negotiations;     /* connections not yet associated */
+    unsigned max_negotiations_per_address;
     unsigned acse_timeout_seconds;
     unsigned dimse_timeout_seconds;
     unsigned max_pdu_bytes;
@@ -51,6 +53,8 @@ typedef struct config {
     char *durability;              /* "power_loss" or "process" */
     unsigned busy_timeout_ms;
     unsigned sr_depth_limit;       /* SR content tree levels read */
+    unsigned quarantine_max_bytes; /* quarantine/ quota; oldest removed */
+    unsigned quarantine_max_files;
 
     /* [site] */
     char *site_rules_path;         /* the site file (conf/site.ini); "" = none */
