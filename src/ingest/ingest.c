@@ -261,7 +261,8 @@ static int quarantine_make_room(ingest *ingest, uint64_t incoming)
         count++;
     }
     closedir(folder);
-    qsort(files, count, sizeof *files, quarantined_older_first);
+    if (count > 1)
+        qsort(files, count, sizeof *files, quarantined_older_first);
     size_t removed = 0;
     uint64_t freed = 0;
     for (size_t i = 0; i < count && (count - removed + 1 > ingest->quarantine_max_files ||
