@@ -110,6 +110,7 @@ static int serve_start(serve_state *state, mitilog_error *error)
         .tls_private_key_file = serve_optional(config->dicom_tls_private_key),
         .tls_ca_file = serve_optional(config->dicom_tls_ca_certificates),
         .max_object_bytes = config->max_object_bytes,
+        .max_memory_in_flight_bytes = config->max_memory_in_flight_bytes,
     };
     if (dcm_server_create(&settings, ingest_store_handler, state->ingest, &state->dicom, error) !=
             MITILOG_OK ||

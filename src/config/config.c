@@ -59,6 +59,10 @@ static const option options[] = {
      4294967295UL, NULL, 0,
      "Largest object accepted (data set bytes received); past it the rest is discarded as it "
      "arrives and the object gets C001; 0 = no limit."},
+    {"dicom", "max_memory_in_flight_bytes", OPTION_UNSIGNED, FIELD(max_memory_in_flight_bytes),
+     "1073741824", 0, 4294967295UL, NULL, 0,
+     "Objects being received, all associations together; one that passes it while others are in "
+     "flight is discarded and gets A700 (retry); 0 = no limit."},
     {"dicom", "tls_certificate", OPTION_STRING, FIELD(dicom_tls_certificate), "", 0, 0, NULL, 1,
      "PEM certificate for DICOM TLS; with tls_private_key: TLS only, no plain TCP. Empty: plain "
      "TCP."},

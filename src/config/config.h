@@ -33,6 +33,7 @@ typedef struct config {
     unsigned dimse_timeout_seconds;
     unsigned max_pdu_bytes;
     unsigned max_object_bytes;     /* 0 = no limit */
+    unsigned max_memory_in_flight_bytes; /* all objects in memory; 0 = none */
     char *dicom_tls_certificate;   /* "" = plain TCP */
     char *dicom_tls_private_key;
     char *dicom_tls_ca_certificates; /* non-empty: client certificates required */

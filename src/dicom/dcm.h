@@ -241,6 +241,13 @@ typedef struct dcm_server_settings {
      * than max_object_bytes plus one PDU of it; 0 = no limit. An
      * association holds at most one object at a time. */
     uint64_t max_object_bytes;
+    /* All associations' objects in memory together: an object that takes
+     * the total past this while others are in flight is discarded as it
+     * arrives and answered DCM_STATUS_OUT_OF_RESOURCES (the sender
+     * retries); one object alone may always reach max_object_bytes. So
+     * received objects hold at most the larger of the two, plus a PDU per
+     * association. 0 = no limit. */
+    uint64_t max_memory_in_flight_bytes;
 } dcm_server_settings;
 
 typedef struct dcm_server dcm_server;

@@ -109,6 +109,7 @@ struct dcm_server {
     unsigned acse_timeout = DCM_DEFAULT_ACSE_TIMEOUT;
     uint32_t max_pdu = ASC_DEFAULTMAXPDU;
     uint64_t max_object_bytes = 0; /* 0 = no limit */
+    uint64_t max_memory_in_flight = 0; /* 0 = no limit */
     std::string tls_certificate_file, tls_private_key_file, tls_ca_file;
     bool tls = false, tls_require_client = false;
     dcm_store_handler handler = NULL;
@@ -133,6 +134,7 @@ struct dcm_server {
     std::atomic<unsigned long> next_association_id{0};
     std::atomic<unsigned long> accepted{0}, refused{0}, active{0};
     std::atomic<unsigned long> objects{0};
+    std::atomic<uint64_t> memory_in_flight{0}; /* memory files, all */
 };
 
 /* Trims the space padding DICOM puts around AE titles. */
@@ -200,9 +202,17 @@ class dcm_association_scp : public DcmThreadSCP
      * (docs/performance.md). spool_ is its /proc/self/fd path. */
     int spool_fd_ = -1;
     std::string spool_;
-    /* The object being received passed max_object_bytes: its bytes are
-     * discarded as they arrive (notifyRECEIVEProgress). */
+    /* The object being received is being discarded as it arrives
+     * (notifyRECEIVEProgress): past max_object_bytes (oversized_), or past
+     * the server's memory budget while others were in flight (crowded_). */
     bool oversized_ = false;
+    bool crowded_ = false;
+    uint64_t counted_ = 0; /* its bytes in server_->memory_in_flight */
+    void release_counted()
+    {
+        server_->memory_in_flight -= counted_;
+        counted_ = 0;
+    }
 
   public:
     ~dcm_association_scp() override
@@ -342,10 +352,27 @@ bool dcm_association_scp::open_spool()
  * plus one fragment however long the object is. */
 void dcm_association_scp::notifyRECEIVEProgress(const unsigned long byte_count)
 {
-    if (server_->max_object_bytes == 0 ||
-        byte_count <= server_->max_object_bytes || spool_fd_ < 0)
+    if (spool_fd_ < 0)
         return;
-    oversized_ = true;
+    if (!oversized_ && !crowded_) {
+        /* The budget of all memory files together: an object that takes
+         * the total past it while other objects are in flight is
+         * discarded and answered A700 (retry later); one object alone may
+         * always reach max_object_bytes. */
+        uint64_t delta = byte_count - counted_;
+        uint64_t total = (server_->memory_in_flight += delta);
+        counted_ = byte_count;
+        if (server_->max_object_bytes > 0 &&
+            byte_count > server_->max_object_bytes)
+            oversized_ = true;
+        else if (server_->max_memory_in_flight > 0 &&
+                 total > server_->max_memory_in_flight &&
+                 total > counted_)
+            crowded_ = true;
+        if (!oversized_ && !crowded_)
+            return;
+        release_counted();
+    }
     if (ftruncate(spool_fd_, 0) != 0)
         log_warning("association %lu: cannot empty the memory file: %s", id_,
                     strerror(errno));
@@ -378,10 +405,11 @@ dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
     if (!open_spool())
         return refuse_store(request, context_id, "no memory file to receive into");
     const std::string &path = spool_;
-    oversized_ = false;
+    oversized_ = crowded_ = false;
     OFCondition condition =
         receiveSTORERequest(request, context_id, OFString(path.c_str()));
     if (condition.bad()) {
+        release_counted();
         log_warning("association %lu from AE '%s' (%s): receiving C-STORE "
                     "of %s failed: %s",
                     id_, calling_ae_.c_str(), peer_ip_.c_str(),
@@ -405,6 +433,17 @@ dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
                     request.AffectedSOPInstanceUID, DCM_STATUS_TOO_LARGE,
                     static_cast<unsigned long long>(server_->max_object_bytes));
         status = DCM_STATUS_TOO_LARGE;
+    } else if (crowded_) {
+        log_warning("association %lu from AE '%s' (%s): object %s refused "
+                    "(0x%04X): objects in flight passed "
+                    "max_memory_in_flight_bytes %llu; discarded as it "
+                    "arrived, the sender should retry",
+                    id_, calling_ae_.c_str(), peer_ip_.c_str(),
+                    request.AffectedSOPInstanceUID,
+                    DCM_STATUS_OUT_OF_RESOURCES,
+                    static_cast<unsigned long long>(
+                        server_->max_memory_in_flight));
+        status = DCM_STATUS_OUT_OF_RESOURCES;
     } else {
         dcm_received received;
         received.spool_path = path.c_str();
@@ -425,6 +464,7 @@ dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
     if (ftruncate(spool_fd_, 0) != 0)
         log_warning("association %lu: cannot empty the memory file: %s", id_,
                     strerror(errno));
+    release_counted();
     return sendSTOREResponse(context_id, request, status);
 }
 
@@ -1132,6 +1172,7 @@ mitilog_status dcm_server_create(const dcm_server_settings *settings,
                           : pdu > ASC_MAXIMUMPDUSIZE ? ASC_MAXIMUMPDUSIZE
                                                      : pdu;
         server->max_object_bytes = settings->max_object_bytes;
+        server->max_memory_in_flight = settings->max_memory_in_flight_bytes;
         server->tls = certificate;
         if (certificate) {
             server->tls_certificate_file = settings->tls_certificate_file;
