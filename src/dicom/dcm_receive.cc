@@ -1,9 +1,14 @@
 /*
- * dcm_receive.cc - the Storage SCP (with Verification): an accept loop of
- * our own on a listener thread, one thread per association running a
- * DcmThreadSCP subclass (dcmtk-notes.md, approach (b)). Each C-STORE is
- * written byte for byte to the association's memory file and handed to
- * the C handler, whose status is the C-STORE response.
+ * dcm_receive.cc - the Storage SCP (with Verification). A supervisor
+ * thread keeps exactly one connection thread waiting in DCMTK's accept;
+ * as soon as DCMTK has accepted a connection (our transport layer's
+ * createConnection() hook, before any byte is read) the supervisor starts
+ * the next waiting thread, and the accepting one goes on to read the TLS
+ * handshake and the A-ASSOCIATE-RQ and then serves the association with a
+ * DcmThreadSCP subclass. Negotiations are counted per address and in all,
+ * and closed (shutdown(2)) at a total deadline by the supervisor. Each
+ * C-STORE is written byte for byte to the association's memory file and
+ * handed to the C handler, whose status is the C-STORE response.
  */
 #include "dicom/dcm_internal.h"
 
@@ -229,7 +234,7 @@ void dcm_association_scp::notifyAssociationRequest(
     called_ae_ = dcm_trim(params.DULparams.calledAPTitle);
     peer_ip_ = getPeerIP().c_str();
     /* DcmSCP hands the parameters as const, but accepting contexts is
-     * exactly what this hook is for (see dcmtk-notes.md). */
+     * exactly what this hook is for (a profile holds only 128 classes). */
     T_ASC_Parameters *writable = const_cast<T_ASC_Parameters *>(&params);
     OFCondition condition = ASC_acceptContextsWithPreferredTransferSyntaxes(
         writable, dcm_verification_class, 1,
@@ -515,7 +520,7 @@ static uint16_t dcm_big16(const unsigned char *p)
  * fixed 68 bytes, then items of type, reserved byte, 16-bit length).
  * DCMTK 3.6.7 parses it too, but loses memory on two malformed forms (a
  * presentation context without a transfer syntax, a UID sub-item longer
- * than its 64 bytes; docs/dcmtk.md): such a request is refused here,
+ * than its 64 bytes; docs/security.md): such a request is refused here,
  * before DCMTK sees it. Only framing, counts and lengths are checked;
  * DCMTK still interprets every value. */
 static bool dcm_associate_rq_valid(const unsigned char *body, size_t length,

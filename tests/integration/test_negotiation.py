@@ -167,7 +167,7 @@ def test_tls_silent_and_dripping_handshakes_do_not_hold_the_listener(daemon_fact
 
 
 def malformed_requests():
-    """Requests DCMTK 3.6.7 would parse and lose memory on (docs/dcmtk.md)."""
+    """Requests DCMTK 3.6.7 would parse and lose memory on (docs/security.md)."""
     no_transfer = rawscu.associate_request(AE_TITLE, "MALFORMED", [
         (1, rawscu.VERIFICATION.encode("ascii"), [])])
     long_abstract = rawscu.associate_request(AE_TITLE, "MALFORMED", [
