@@ -76,6 +76,11 @@ def echo_request():
         (1, rawscu.VERIFICATION.encode("ascii"), [EXPLICIT_LE])])
 
 
+def threads(daemon):
+    with open("/proc/%d/status" % daemon.process.pid) as f:
+        return int(next(line for line in f if line.startswith("Threads:")).split()[1])
+
+
 def wait_for(predicate, bound):
     """Polls predicate for at most bound seconds (a bound on a hang, not a
     measured time)."""
@@ -92,6 +97,7 @@ def test_dripping_peers_do_not_hold_the_listener(daemon_factory):
     # drip an A-ASSOCIATE-RQ; the deadline is long so that they are all
     # still negotiating when a legitimate C-ECHO comes
     daemon = daemon_factory("drip", dicom=dict(acse_timeout_seconds=120)).start()
+    baseline = threads(daemon)
     drippers = [Dripper(daemon.dicom_port, "127.0.1.%d" % (n + 1), echo_request())
                 for n in range(64)]
     try:
@@ -109,6 +115,9 @@ def test_dripping_peers_do_not_hold_the_listener(daemon_factory):
         for d in drippers:
             d.stop()
     assert echoscu(daemon.dicom_port).returncode == 0
+    # each negotiating thread ends with its connection (common practice,
+    # no source: no thread outlives its peer); bounded wait
+    assert wait_for(lambda: threads(daemon) <= baseline, 30), (threads(daemon), baseline)
 
 
 def test_connections_negotiating_from_one_address_are_limited(daemon_factory):
@@ -143,6 +152,19 @@ def test_negotiation_has_a_total_deadline(daemon_factory):
     finally:
         dripper.stop()
     assert "acse_timeout_seconds" in daemon.log()
+    assert echoscu(daemon.dicom_port).returncode == 0
+
+
+def test_silent_connection_is_closed_at_the_deadline(daemon_factory):
+    daemon = daemon_factory("silent", dicom=dict(acse_timeout_seconds=2)).start()
+    silent = Dripper(daemon.dicom_port, "127.0.0.5", b"", first=0)
+    try:
+        silent.start()
+        # PS3.8 9.1.4 (ARTIM): a connection that sends nothing is closed;
+        # 60 s bound on the wait, the deadline is 2 s
+        assert wait_for(silent.closed_by_server.is_set, 60)
+    finally:
+        silent.stop()
     assert echoscu(daemon.dicom_port).returncode == 0
 
 
