@@ -135,6 +135,11 @@ struct dcm_server {
     bool need_acceptor = false;
     std::map<std::thread::id, dcm_negotiation> negotiations;
     std::map<std::string, unsigned> negotiating_per_address;
+    /* Lines about refused or cut connections: at most one a second, so
+     * that a peer reconnecting in a loop cannot flood the log. */
+    std::mutex log_mutex;
+    std::chrono::steady_clock::time_point last_peer_line;
+    unsigned long suppressed_peer_lines = 0;
     bool started = false;
     std::atomic<unsigned long> next_association_id{0};
     std::atomic<unsigned long> accepted{0}, refused{0}, active{0};
@@ -150,6 +155,33 @@ static std::string dcm_trim(const char *text)
     size_t last = value.find_last_not_of(' ');
     return first == std::string::npos ? ""
                                       : value.substr(first, last - first + 1);
+}
+
+/* Whether a line about a refused or cut connection may be written now
+ * (one a second); *suppressed receives how many were left out since the
+ * last one written. */
+static bool dcm_peer_line_allowed(dcm_server *server,
+                                  unsigned long *suppressed)
+{
+    std::lock_guard<std::mutex> lock(server->log_mutex);
+    auto now = std::chrono::steady_clock::now();
+    if (now - server->last_peer_line < std::chrono::seconds(1)) {
+        server->suppressed_peer_lines++;
+        return false;
+    }
+    *suppressed = server->suppressed_peer_lines;
+    server->suppressed_peer_lines = 0;
+    server->last_peer_line = now;
+    return true;
+}
+
+/* " (N similar lines left out)" or "". */
+static std::string dcm_suppressed_note(unsigned long suppressed)
+{
+    return suppressed == 0 ? std::string()
+                           : " (" + std::to_string(suppressed) +
+                                 " similar line" + (suppressed == 1 ? "" : "s") +
+                                 " about peers left out in the last second)";
 }
 
 /* ------------------------------------------------------------------ */
@@ -699,9 +731,11 @@ class dcm_guarded_connection : public DcmTransportConnection
  * whole. */
 bool dcm_guarded_connection::incomplete()
 {
-    log_info("connection from %s closed before its association request was "
-             "complete",
-             peer_.c_str());
+    unsigned long suppressed = 0;
+    if (dcm_peer_line_allowed(server_, &suppressed))
+        log_info("connection from %s closed before its association request "
+                 "was complete%s",
+                 peer_.c_str(), dcm_suppressed_note(suppressed).c_str());
     first_.clear();
     dcm_negotiation_refused(server_);
     return false;
@@ -749,8 +783,11 @@ bool dcm_guarded_connection::read_first_pdu()
      * PDU parameter value (6). */
     unsigned char abort_pdu[10] = {0x07, 0, 0, 0, 0, 4, 0, 0, 2, 6};
     (void)inner_->write(abort_pdu, sizeof abort_pdu);
-    log_warning("association request from %s refused (A-ABORT): %s",
-                peer_.c_str(), reason.c_str());
+    unsigned long suppressed = 0;
+    if (dcm_peer_line_allowed(server_, &suppressed))
+        log_warning("association request from %s refused (A-ABORT): %s%s",
+                    peer_.c_str(), reason.c_str(),
+                    dcm_suppressed_note(suppressed).c_str());
     first_.clear();
     dcm_negotiation_refused(server_);
     return false;
@@ -875,13 +912,17 @@ static bool dcm_negotiation_begin(dcm_server *server,
     if (refusal == NULL)
         return true;
     server->refused++;
+    unsigned long suppressed = 0;
+    if (!dcm_peer_line_allowed(server, &suppressed))
+        return false;
     if (limit > 0)
         log_warning("connection from %s closed unread: %u connections are "
-                    "negotiating already (%s)",
-                    peer.c_str(), limit, refusal);
+                    "negotiating already (%s)%s",
+                    peer.c_str(), limit, refusal,
+                    dcm_suppressed_note(suppressed).c_str());
     else
-        log_warning("connection from %s closed unread: %s", peer.c_str(),
-                    refusal);
+        log_warning("connection from %s closed unread: %s%s", peer.c_str(),
+                    refusal, dcm_suppressed_note(suppressed).c_str());
     return false;
 }
 
@@ -925,10 +966,12 @@ static void dcm_negotiation_watch(dcm_server *server, bool all)
             continue;
         negotiation.expired = true;
         shutdown(negotiation.watch_fd, SHUT_RDWR);
-        if (!all)
+        unsigned long suppressed = 0;
+        if (!all && dcm_peer_line_allowed(server, &suppressed))
             log_warning("connection from %s closed: association request "
-                        "not complete after %u s (acse_timeout_seconds)",
-                        negotiation.peer.c_str(), server->acse_timeout);
+                        "not complete after %u s (acse_timeout_seconds)%s",
+                        negotiation.peer.c_str(), server->acse_timeout,
+                        dcm_suppressed_note(suppressed).c_str());
     }
 }
 
