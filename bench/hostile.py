@@ -3,7 +3,9 @@
 
 1. C-ECHO round trip (echoscu, wall time) alone, then while 64 peers, each
    from its own loopback address, drip an A-ASSOCIATE-RQ one byte every
-   0.5 s: median and worst of --echoes echoes each, side by side.
+   0.5 s: median and worst of --echoes echoes each, side by side. The same
+   with DICOM TLS and required client certificates, half the peers silent
+   and half dripping a ClientHello.
 2. Resident memory over --requests malformed association requests (a
    presentation context without a transfer syntax, then one with a 60 KB
    abstract syntax, alternately), sampled every tenth of the run.
@@ -73,14 +75,16 @@ def echo_seconds(port):
 
 
 def drip(port, address, data, stop):
+    """Sends data a byte every 0.5 s (nothing, for empty data) until stop."""
+    s = socket.socket()
     try:
-        s = socket.socket()
         s.bind((address, 0))
         s.connect(("127.0.0.1", port))
         for byte in data:
             if stop.wait(0.5):
                 break
             s.send(bytes([byte]))
+        stop.wait()
     except OSError:
         pass
     finally:
@@ -107,6 +111,72 @@ def latency(binary, echoes, drippers):
     for name, runs in (("alone", alone), ("%d drippers" % drippers, crowded)):
         times = [t for t, _ in runs]
         print("C-ECHO %-12s median %.3f s, worst %.3f s, %d/%d answered"
+              % (name, statistics.median(times), max(times), sum(ok for _, ok in runs), len(runs)))
+
+
+def make_pki(folder):
+    """A CA, and a server and a client certificate it signed (openssl)."""
+    def openssl(*args):
+        subprocess.run(["openssl"] + list(args), cwd=folder, check=True,
+                       stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    openssl("req", "-x509", "-newkey", "rsa:2048", "-nodes", "-days", "2", "-subj",
+            "/CN=bench ca", "-keyout", "ca.key", "-out", "ca.crt")
+    for name in ("server", "client"):
+        openssl("req", "-newkey", "rsa:2048", "-nodes", "-subj", "/CN=" + name,
+                "-keyout", name + ".key", "-out", name + ".csr")
+        openssl("x509", "-req", "-in", name + ".csr", "-CA", "ca.crt", "-CAkey", "ca.key",
+                "-CAcreateserial", "-days", "2", "-out", name + ".crt")
+
+
+def tls_echo_seconds(port, pki):
+    start = time.monotonic()
+    ok = subprocess.run(["echoscu", "-ta", "10", "-to", "10", "+tls",
+                         os.path.join(pki, "client.key"), os.path.join(pki, "client.crt"),
+                         "+cf", os.path.join(pki, "ca.crt"), "-aec", benchlib.AE_TITLE,
+                         "127.0.0.1", str(port)], env=benchlib.ENV,
+                        stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL).returncode == 0
+    return time.monotonic() - start, ok
+
+
+def tls_latency(binary, echoes, peers):
+    """TLS with required client certificates: half the peers silent, half
+    dripping a ClientHello (RFC 5246 6.2.1 record header, then its start)."""
+    import tempfile
+    pki = tempfile.mkdtemp(prefix="mitilog-bench-pki-")
+    make_pki(pki)
+    server = benchlib.Mitilog(binary, dicom_extra=dict(
+        acse_timeout_seconds=120, tls_certificate=os.path.join(pki, "server.crt"),
+        tls_private_key=os.path.join(pki, "server.key"),
+        tls_ca_certificates=os.path.join(pki, "ca.crt")))
+    server._err = open(server.stderr_path, "wb")
+    server.process = subprocess.Popen([binary, "serve", "--config", server.config],
+                                      env=benchlib.ENV, stdout=subprocess.DEVNULL,
+                                      stderr=server._err)
+    try:
+        deadline = time.monotonic() + 30
+        while not tls_echo_seconds(server.port, pki)[1]:
+            if time.monotonic() > deadline:
+                raise RuntimeError("TLS server does not answer")
+            time.sleep(0.2)
+        alone = [tls_echo_seconds(server.port, pki) for _ in range(echoes)]
+        hello = b"\x16\x03\x01\x00\xc8\x01\x00\x00\xc4\x03\x03" + b"\x42" * 64
+        stop = threading.Event()
+        threads = [threading.Thread(target=drip, daemon=True, args=(
+            server.port, "127.0.4.%d" % (n + 1), hello if n % 2 else b"\0" * 0, stop))
+            for n in range(peers)]
+        for t in threads:
+            t.start()
+        time.sleep(2)
+        crowded = [tls_echo_seconds(server.port, pki) for _ in range(echoes)]
+        stop.set()
+        for t in threads:
+            t.join()
+    finally:
+        server.close()
+        benchlib.remove_later(pki)
+    for name, runs in (("alone", alone), ("%d peers" % peers, crowded)):
+        times = [t for t, _ in runs]
+        print("TLS C-ECHO %-9s median %.3f s, worst %.3f s, %d/%d answered"
               % (name, statistics.median(times), max(times), sum(ok for _, ok in runs), len(runs)))
 
 
@@ -228,6 +298,7 @@ def main():
     benchlib.header("hostile peers")
     benchlib.log("binary: %s" % binary)
     latency(binary, args.echoes, args.drippers)
+    tls_latency(binary, args.echoes, args.drippers)
     leak(binary, args.requests)
     big_object(binary, args.object_mb, args.limit_mb)
     return 0
