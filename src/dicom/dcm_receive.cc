@@ -511,8 +511,8 @@ OFCondition dcm_association_scp::handleIncomingCommand(
     if (message->CommandField == DIMSE_C_FIND_RQ) {
         /* Negotiation refuses every Query/Retrieve context (only
          * Verification and storage classes are accepted); a C-FIND sent
-         * on an accepted context anyway is answered with a refusal (PS3.4
-         * C.4.1.1.4: 0122 SOP Class not supported) instead of an abort. */
+         * on an accepted context anyway is answered with a refusal (PS3.7
+         * Annex C: 0122 Refused: SOP Class not supported) instead of an abort. */
         T_DIMSE_C_FindRQ &request = message->msg.CFindRQ;
         T_ASC_PresentationContextID context_id = context.presentationContextID;
         DcmDataset *identifier = NULL;

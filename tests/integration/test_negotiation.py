@@ -248,7 +248,7 @@ def test_c_find_on_an_accepted_context_is_refused_not_aborted(daemon_factory):
     # Query/Retrieve Level (0008,0052) CS "STUDY", explicit VR little endian
     identifier = struct.pack("<HH2sH", 0x0008, 0x0052, b"CS", 6) + b"STUDY "
     status = assoc.c_find_on_context(STUDY_ROOT_FIND, identifier)
-    # PS3.4 C.4.1.1.4: 0122 Refused: SOP Class not supported (a response,
+    # PS3.7 Annex C: 0122 Refused: SOP Class not supported (a response,
     # where an A-ABORT was sent before)
     assert status == 0x0122
     assoc.release()
