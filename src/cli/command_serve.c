@@ -101,6 +101,8 @@ static int serve_start(serve_state *state, mitilog_error *error)
         .allowed_peers = state->allowed,
         .allowed_peer_count = peer_count,
         .max_associations = config->max_associations,
+        .max_negotiations = config->max_negotiations,
+        .max_negotiations_per_address = config->max_negotiations_per_address,
         .acse_timeout_seconds = config->acse_timeout_seconds,
         .dimse_timeout_seconds = config->dimse_timeout_seconds,
         .max_pdu = config->max_pdu_bytes,
@@ -108,6 +110,7 @@ static int serve_start(serve_state *state, mitilog_error *error)
         .tls_private_key_file = serve_optional(config->dicom_tls_private_key),
         .tls_ca_file = serve_optional(config->dicom_tls_ca_certificates),
         .max_object_bytes = config->max_object_bytes,
+        .max_memory_in_flight_bytes = config->max_memory_in_flight_bytes,
     };
     if (dcm_server_create(&settings, ingest_store_handler, state->ingest, &state->dicom, error) !=
             MITILOG_OK ||

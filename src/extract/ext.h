@@ -189,6 +189,11 @@ void ext_record_free_context(ext_record *record);
 /* 1 for the ultrasound storage SOP classes of the domain reference. */
 int ext_is_ultrasound_sop_class(const char *sop_class_uid);
 
+/* 1 when uid is a valid UID (PS3.5 section 9.1): digits and dots,
+ * components non-empty and without a leading zero (but "0" itself),
+ * 1 to 64 bytes. */
+int ext_uid_is_valid(const char *uid);
+
 #ifdef __cplusplus
 }
 #endif

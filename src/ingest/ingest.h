@@ -27,6 +27,9 @@ typedef enum ingest_outcome {
     INGEST_OUTCOME_STORED = 0,
     INGEST_OUTCOME_REPLACED,   /* same SOP Instance UID stored before     */
     INGEST_OUTCOME_REJECTED,   /* cannot be understood: quarantined       */
+    INGEST_OUTCOME_MISMATCHED, /* object is not what its C-STORE command
+                                  announced (class or instance UID):
+                                  quarantined, answered A900             */
     INGEST_OUTCOME_NOT_STORED  /* database or disk failure: retry later   */
 } ingest_outcome;
 

@@ -197,6 +197,50 @@ static void record_from_facts(void **state)
     clear_facts(&facts);
 }
 
+static void uid_syntax(void **state)
+{
+    (void)state;
+    /* PS3.5 section 9.1: digits and dots; a component starts with 0 only
+     * when it is "0"; at most 64 bytes. Examples from PS3.5 9.1 and B.2. */
+    assert_true(ext_uid_is_valid("1.2.840.10008.1.2.1"));
+    assert_true(ext_uid_is_valid("1.2.840.10008.0.1"));
+    assert_true(ext_uid_is_valid("2.25.329800735698586629295641978511506172918"));
+    assert_true(ext_uid_is_valid("0"));
+    char longest[65];
+    memset(longest, '1', 64);
+    longest[1] = '.';
+    longest[64] = '\0';
+    assert_true(ext_uid_is_valid(longest)); /* exactly 64 bytes */
+    char too_long[66];
+    memset(too_long, '1', 65);
+    too_long[1] = '.';
+    too_long[65] = '\0';
+    assert_false(ext_uid_is_valid(too_long));
+    assert_false(ext_uid_is_valid(""));
+    assert_false(ext_uid_is_valid("1.2.03"));      /* leading zero */
+    assert_false(ext_uid_is_valid("1..2"));        /* empty component */
+    assert_false(ext_uid_is_valid(".1.2"));
+    assert_false(ext_uid_is_valid("1.2."));
+    assert_false(ext_uid_is_valid("../../tmp/x"));
+    assert_false(ext_uid_is_valid("1.2.3\n4"));
+    assert_false(ext_uid_is_valid("1.2.3 "));      /* padding is trimmed before */
+}
+
+static void record_with_invalid_uid_is_refused(void **state)
+{
+    (void)state;
+    dcm_facts facts;
+    ext_record record;
+    mitilog_error error;
+    memset(&facts, 0, sizeof facts);
+    set_value(&facts, DCM_ATTRIBUTE_SOP_CLASS_UID, "1.2.840.10008.5.1.4.1.1.6.1");
+    set_value(&facts, DCM_ATTRIBUTE_SOP_INSTANCE_UID, "2.25.1");
+    set_value(&facts, DCM_ATTRIBUTE_STUDY_INSTANCE_UID, "../../etc");
+    assert_int_equal(ext_record_from_facts(&facts, &record, &error), MITILOG_ERROR_INVALID);
+    assert_non_null(strstr(error.text, "Study Instance UID"));
+    clear_facts(&facts);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -206,6 +250,8 @@ int main(void)
         cmocka_unit_test(date_time_conversion),
         cmocka_unit_test(acquisition_time_fall_backs),
         cmocka_unit_test(record_from_facts),
+        cmocka_unit_test(uid_syntax),
+        cmocka_unit_test(record_with_invalid_uid_is_refused),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
