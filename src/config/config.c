@@ -98,7 +98,7 @@ static const option options[] = {
      "Seconds a client has to send a whole request (TLS handshake, request line and headers), "
      "however slowly it sends each byte; then the connection is closed."},
     {"storage", "data_directory", OPTION_STRING, FIELD(data_directory), "var", 0, 0, NULL, 1,
-     "Folder for the database, spool, quarantine and header copies."},
+     "Folder for the database, quarantine/, objects/ (full copies) and reading/ (objects waiting to be read)."},
     {"storage", "database", OPTION_STRING, FIELD(database_path), "mitilog.sqlite3", 0, 0, NULL, 0,
      "SQLite database file; relative to data_directory."},
     {"storage", "retention", OPTION_CHOICE, FIELD(retention), "header", 0, 0, "|none|header|full|", 0,

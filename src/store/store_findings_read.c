@@ -2,8 +2,9 @@
  * store_findings_read.c - the read side of the ALARA policy engine: what
  * an evaluation needs (a study's context, lists of studies and days, the
  * instances of a day) and the JSON of GET /api/v1/findings and
- * /api/v1/policy. Read connection, under reader_lock; statements are
- * prepared per call (sqlite3_prepare is cheap next to these queries).
+ * /api/v1/policy. Read connection, under reader_lock; statements come from the
+ * reader's statement cache (store_cached_statement) and live until
+ * store_close().
  */
 #include "store/store_internal.h"
 

@@ -41,8 +41,8 @@ static const char *store_value_status_name(exam_value_status status)
 }
 
 /* The stored name of an acquisition time source, NULL if bad. Must match
- * ext_time_source_name() (src/extract/); kept here so that the store
- * depends on no other stage. */
+ * ext_time_source_name() (src/extract/) and the schema's CHECK constraint:
+ * the stored spelling is the store's, the meaning extraction's. */
 static const char *store_time_source_name(ext_time_source source)
 {
     switch (source) {
