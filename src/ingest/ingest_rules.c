@@ -13,6 +13,7 @@
  * comes from the site's [exam_type KEY] group key; the age group, room,
  * preset, shift and transducer are the first instance's.
  */
+#include "ingest/ingest.h"
 #include "ingest/ingest_internal.h"
 #include "store/store_reading.h"
 
