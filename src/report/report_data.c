@@ -8,7 +8,7 @@
 
 #include "util/hash.h"
 
-_Static_assert((int)STORE_THRESHOLD_COUNT == (int)STATS_THRESHOLD_COUNT,
+_Static_assert((int)EXAM_TI_STATISTICS_STEPS == (int)STATS_THRESHOLD_COUNT,
                "store and stats thresholds differ");
 
 const char report_caution[] =
@@ -90,7 +90,7 @@ mitilog_status report_data_load(store *st, const char *from, const char *to, uns
     }
     size_t f = 0;
     for (size_t i = 0; i < data->row_count; i++) {
-        const store_exam_row *row = &data->rows[i];
+        const exam_row *row = &data->rows[i];
         stats_exam *exam = &data->exams[i];
         exam->study_instance_uid = row->study_instance_uid;
         exam->day = row->day;
@@ -100,15 +100,15 @@ mitilog_status report_data_load(store *st, const char *from, const char *to, uns
         exam->shift = row->shift;
         exam->transducer = row->transducer;
         exam->max_governing = row->max_governing;
-        exam->has_governing = row->has_max_governing;
+        exam->has_governing = row->has_governing;
         exam->max_mi = row->max_mi;
-        exam->has_mi = row->has_max_mi;
+        exam->has_mi = row->has_mi;
         exam->estimated_seconds = row->estimated_seconds;
         memcpy(exam->seconds_at_or_above, row->seconds_at_or_above,
                sizeof exam->seconds_at_or_above);
-        exam->capture_count = row->capture_count > 0 ? (size_t)row->capture_count : 0;
-        exam->indexed_count = row->indexed_count > 0 ? (size_t)row->indexed_count : 0;
-        exam->finding_count = row->finding_count > 0 ? (size_t)row->finding_count : 0;
+        exam->capture_count = row->capture_count;
+        exam->indexed_count = row->indexed_count;
+        exam->finding_count = row->finding_count;
         data->capture_count += exam->capture_count;
         data->indexed_count += exam->indexed_count;
         /* Both lists are ordered by Study Instance UID (SQLite's BINARY

@@ -15,7 +15,7 @@
 
 typedef struct report_data {
     store_exam_list list;           /* the rows and their strings */
-    store_exam_row *rows;           /* list.rows, ordered by Study Instance UID */
+    exam_row *rows;           /* list.rows, ordered by Study Instance UID */
     size_t row_count;
     store_finding_count *findings;  /* with REPORT_LOAD_RULES */
     size_t finding_count;

@@ -262,7 +262,7 @@ static void stats_html_row(FILE *out, const stats_period_row *row, const char *k
     fprintf(out, "<td class=\"n\">%.0f %%</td>", 100.0 * row->share_with_findings);
     html_number_cell(out, row->estimated_seconds.count > 0,
                      row->estimated_seconds.median / 60.0, 3);
-    for (int t = 1; t < STATS_THRESHOLD_COUNT; t++) {
+    for (int t = 0; t < STATS_THRESHOLD_COUNT; t++) {
         fprintf(out, "<td class=\"n\">%zu / ", row->thresholds[t].exam_count);
         report_html_number(out, g->count > 0, row->thresholds[t].p95_seconds / 60.0, 3);
         fputs("</td>", out);
@@ -294,10 +294,14 @@ static void stats_html(const stats_document *doc, FILE *out)
     report_html_text(out, by);
     fputs("</th><th>Exams</th><th>TI median</th><th>TI P75</th><th>TI P95</th>"
           "<th>MI median</th><th>MI P75</th><th>MI P95</th><th>With findings</th>"
-          "<th>Scan minutes (median)</th><th>&ge; 1.0: exams / P95 min</th>"
-          "<th>&ge; 1.5: exams / P95 min</th><th>&ge; 2.0: exams / P95 min</th>"
-          "<th>Captures with indices</th></tr></thead><tbody>\n",
+          "<th>Scan minutes (median)</th>",
           out);
+    for (int t = 0; t < STATS_THRESHOLD_COUNT; t++) {
+        char label[EXAM_TI_LABEL_SIZE];
+        exam_ti_threshold_label(stats_thresholds[t], label);
+        fprintf(out, "<th>&ge; %s: exams / P95 min</th>", label);
+    }
+    fputs("<th>Captures with indices</th></tr></thead><tbody>\n", out);
     for (size_t r = 0; r < doc->result.row_count; r++) {
         const stats_period_row *row = &doc->result.rows[r];
         stats_html_row(out, row, row->key != NULL ? row->key : "(not recorded)", 0);

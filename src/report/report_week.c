@@ -100,10 +100,10 @@ static mitilog_status week_compute(store *st, const report_week_request *request
         doc->indexed += exam->indexed_count;
     }
     for (size_t i = 0; i < doc->baseline.count; i++) {
-        const store_exam_row *row = &doc->baseline.rows[i];
+        const exam_row *row = &doc->baseline.rows[i];
         stats_exam *exam = &doc->baseline_exams[doc->baseline_count++];
         exam->exam_type = row->exam_type;
-        exam->has_governing = row->has_max_governing;
+        exam->has_governing = row->has_governing;
         exam->max_governing = row->max_governing;
     }
     status = stats_week_outliers(doc->week_exams, doc->week_count, doc->baseline_exams,
@@ -239,7 +239,7 @@ static mitilog_status week_json(const week_document *doc, char **out, mitilog_er
             const stats_exam_flag *flag = &doc->result.flags[e];
             const stats_baseline *base = &doc->result.baselines[flag->baseline];
             size_t row_index = doc->week_rows[e];
-            const store_exam_row *row = &doc->data.rows[row_index];
+            const exam_row *row = &doc->data.rows[row_index];
             BIND_INT(exam_insert, "group_position", position);
             BIND_INT(exam_insert, "position", (long long)m + 1);
             BIND_TEXT(exam_insert, "study_instance_uid", row->study_instance_uid);
@@ -256,9 +256,9 @@ static mitilog_status week_json(const week_document *doc, char **out, mitilog_er
             BIND_TEXT(exam_insert, "shift", row->shift);
             BIND_TEXT(exam_insert, "transducer", row->transducer);
             BIND_TEXT(exam_insert, "governing_index", row->governing_index);
-            BIND_NUMBER(exam_insert, "max_governing", row->has_max_governing,
+            BIND_NUMBER(exam_insert, "max_governing", row->has_governing,
                         row->max_governing);
-            BIND_NUMBER(exam_insert, "max_mi", row->has_max_mi, row->max_mi);
+            BIND_NUMBER(exam_insert, "max_mi", row->has_mi, row->max_mi);
             BIND_NUMBER(exam_insert, "robust_z", 1, flag->robust_z);
             BIND_INT(exam_insert, "above_robust_z", flag->above_robust_z);
             BIND_INT(exam_insert, "above_p95", flag->above_p95);
@@ -345,7 +345,7 @@ static void week_csv(const week_document *doc, FILE *out)
             if (!week_listed(doc, e))
                 continue;
             const stats_exam_flag *flag = &doc->result.flags[e];
-            const store_exam_row *row = &doc->data.rows[doc->week_rows[e]];
+            const exam_row *row = &doc->data.rows[doc->week_rows[e]];
             char reason[128];
             snprintf(reason, sizeof reason, "%s%s%s%s", flag->above_robust_z ? "robust z > limit" : "",
                      flag->above_robust_z && flag->above_p95 ? "; " : "",
@@ -369,8 +369,8 @@ static void week_csv(const week_document *doc, FILE *out)
             report_csv_field(out, 0, row->shift);
             report_csv_field(out, 0, row->transducer);
             report_csv_field(out, 0, row->governing_index);
-            report_csv_number(out, row->has_max_governing, row->max_governing);
-            report_csv_number(out, row->has_max_mi, row->max_mi);
+            report_csv_number(out, row->has_governing, row->max_governing);
+            report_csv_number(out, row->has_mi, row->max_mi);
             report_csv_number(out, 1, flag->robust_z);
             report_csv_field(out, 0, reason);
             report_csv_field(out, 0, doc->week_info.policy_version);
@@ -464,7 +464,7 @@ static void week_html(const week_document *doc, FILE *out)
             if (!week_listed(doc, e))
                 continue;
             const stats_exam_flag *flag = &doc->result.flags[e];
-            const store_exam_row *row = &doc->data.rows[doc->week_rows[e]];
+            const exam_row *row = &doc->data.rows[doc->week_rows[e]];
             fputs("<tr>", out);
             char study_key[9];
             report_study_key(row->study_instance_uid, study_key);
@@ -477,8 +477,8 @@ static void week_html(const week_document *doc, FILE *out)
             html_cell_text(out, row->shift);
             html_cell_text(out, row->transducer);
             html_cell_text(out, row->governing_index);
-            html_cell_number(out, row->has_max_governing, row->max_governing, 3);
-            html_cell_number(out, row->has_max_mi, row->max_mi, 3);
+            html_cell_number(out, row->has_governing, row->max_governing, 3);
+            html_cell_number(out, row->has_mi, row->max_mi, 3);
             html_cell_number(out, 1, flag->robust_z, 3);
             fputs("<td>", out);
             if (flag->above_robust_z)

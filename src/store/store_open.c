@@ -8,6 +8,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "exam/exam.h"
 #include "store/sql_files.h"
 #include "util/log.h"
 
@@ -195,6 +196,70 @@ static mitilog_status store_configure_writer(sqlite3 *db, const char *path,
     return store_exec_file(db, "queries/pragma_writer.sql", error);
 }
 
+/* 1 when the database's TI ladder (ti_thresholds) is the exam
+ * vocabulary's, 0 when not, -1 on error. */
+static int store_ladder_matches(sqlite3 *db, mitilog_error *error)
+{
+    sqlite3_stmt *statement = NULL;
+    if (store_prepare(db, "queries/ti_thresholds_select.sql", &statement, error) != MITILOG_OK)
+        return -1;
+    int matches = 1, count = 0, rc;
+    while ((rc = sqlite3_step(statement)) == SQLITE_ROW) {
+        if (count >= EXAM_TI_STEP_COUNT ||
+            sqlite3_column_double(statement, 0) != exam_ti_ladder[count])
+            matches = 0;
+        count++;
+    }
+    if (rc != SQLITE_DONE) {
+        store_sql_error(error, db, "queries/ti_thresholds_select.sql");
+        matches = -1;
+    } else if (count != EXAM_TI_STEP_COUNT) {
+        matches = 0;
+    }
+    sqlite3_finalize(statement);
+    return matches;
+}
+
+/* Makes the database's TI ladder the exam vocabulary's (exam_ti_ladder):
+ * when it differs, the thresholds are replaced and every exam's time at
+ * or above them recomputed, in one transaction. Another process that
+ * did it meanwhile leaves nothing to do. */
+static mitilog_status store_sync_ladder(sqlite3 *db, const char *path, mitilog_error *error)
+{
+    int matches = store_ladder_matches(db, error);
+    if (matches != 0)
+        return matches > 0 ? MITILOG_OK : MITILOG_ERROR_DATABASE;
+    mitilog_status status = store_exec_file(db, "queries/write_begin.sql", error);
+    if (status != MITILOG_OK)
+        return status;
+    matches = store_ladder_matches(db, error);
+    if (matches < 0)
+        status = MITILOG_ERROR_DATABASE;
+    if (matches == 0) {
+        status = store_exec_file(db, "queries/ti_thresholds_delete.sql", error);
+        sqlite3_stmt *insert = NULL;
+        if (status == MITILOG_OK)
+            status = store_prepare(db, "queries/ti_threshold_insert.sql", &insert, error);
+        for (int k = 0; status == MITILOG_OK && k < EXAM_TI_STEP_COUNT; k++) {
+            if (sqlite3_bind_double(insert, 1, exam_ti_ladder[k]) != SQLITE_OK ||
+                store_step_done(insert) != SQLITE_DONE)
+                status = store_sql_error(error, db, "queries/ti_threshold_insert.sql");
+        }
+        sqlite3_finalize(insert);
+        if (status == MITILOG_OK)
+            status = store_exec_file(db, "queries/exam_time_at_or_above_refresh_all.sql", error);
+    }
+    if (status == MITILOG_OK)
+        status = store_exec_file(db, "queries/write_commit.sql", error);
+    if (status != MITILOG_OK) {
+        store_exec_file(db, "queries/write_rollback.sql", NULL);
+        return status;
+    }
+    if (matches == 0)
+        log_info("database %s: TI threshold ladder updated, time at or above recomputed", path);
+    return MITILOG_OK;
+}
+
 mitilog_status store_open(const char *path, int busy_timeout_ms, store **out,
                           mitilog_error *error)
 {
@@ -221,6 +286,8 @@ mitilog_status store_open(const char *path, int busy_timeout_ms, store **out,
     if (status == MITILOG_OK)
         status = store_migrate(opened->writer, path, &opened->schema_version,
                                error);
+    if (status == MITILOG_OK)
+        status = store_sync_ladder(opened->writer, path, error);
     if (status == MITILOG_OK)
         status = store_write_prepare(opened, error);
     /* The read connection is opened after the migrations, read-only. */
