@@ -342,34 +342,6 @@ mitilog_status store_ingest_json(store *store, int window_hours,
                                  int silent_hours, int days, char **json,
                                  mitilog_error *error);
 
-/* A one-off in-memory SQLite connection for building documents with
- * SQLite's JSON functions from computed values (src/report/). schema
- * names an sql/ file run at open. Freed with store_scratch_close(). */
-typedef struct store_scratch store_scratch;
-mitilog_status store_scratch_open(const char *schema, store_scratch **out,
-                                  mitilog_error *error);
-void store_scratch_close(store_scratch *scratch);
-/* Prepares sql/NAME on the scratch connection; the statement is owned by
- * the scratch (finalised at close) and reset by store_scratch_step. */
-typedef struct store_scratch_statement store_scratch_statement;
-mitilog_status store_scratch_prepare(store_scratch *scratch, const char *name,
-                                     store_scratch_statement **out,
-                                     mitilog_error *error);
-/* Binding by parameter name (":key"); text NULL binds NULL. */
-mitilog_status store_scratch_bind_text(store_scratch_statement *statement,
-                                       const char *name, const char *text);
-mitilog_status store_scratch_bind_double(store_scratch_statement *statement,
-                                         const char *name, int present,
-                                         double value);
-mitilog_status store_scratch_bind_int(store_scratch_statement *statement,
-                                      const char *name, long long value);
-/* Runs to completion (inserts) and resets, clearing bindings. */
-mitilog_status store_scratch_run(store_scratch_statement *statement,
-                                 mitilog_error *error);
-/* Runs a one-row, one-column query; *text malloc'ed. Resets. */
-mitilog_status store_scratch_text(store_scratch_statement *statement,
-                                  char **text, mitilog_error *error);
-
 #ifdef __cplusplus
 }
 #endif

@@ -21,6 +21,7 @@
 #include <string.h>
 
 #include "util/hash.h"
+#include "json/json.h"
 
 typedef struct store_text {
     char *data;
@@ -252,40 +253,25 @@ mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog
     return status;
 }
 
-/* Builds a finding's instance_uids JSON array with SQLite (malloc'ed). */
-static int store_uids_json(sqlite3_stmt *append, const exam_finding *finding, char **out)
+/* A finding's instance_uids as a JSON array (malloc'ed); a NULL UID is
+ * null. */
+static int store_uids_json(const exam_finding *finding, char **out)
 {
-    char *array = strdup("[]");
-    int rc = array != NULL ? SQLITE_OK : SQLITE_NOMEM;
-    for (size_t i = 0; rc == SQLITE_OK && i < finding->instance_count; i++) {
-        rc = sqlite3_bind_text(append, 1, array, -1, SQLITE_TRANSIENT);
-        if (rc == SQLITE_OK)
-            rc = sqlite3_bind_text(append, 2, finding->instance_uids[i], -1, SQLITE_STATIC);
-        if (rc == SQLITE_OK && sqlite3_step(append) == SQLITE_ROW &&
-            sqlite3_column_text(append, 0) != NULL) {
-            char *next = strdup((const char *)sqlite3_column_text(append, 0));
-            free(array);
-            array = next;
-            rc = array != NULL ? SQLITE_OK : SQLITE_NOMEM;
-        } else if (rc == SQLITE_OK) {
-            rc = SQLITE_ERROR;
-        }
-        sqlite3_reset(append);
-        sqlite3_clear_bindings(append);
-    }
-    if (rc != SQLITE_OK) {
-        free(array);
-        array = NULL;
-    }
-    *out = array;
-    return rc;
+    json_writer writer;
+    json_writer_init(&writer);
+    json_array_begin(&writer);
+    for (size_t i = 0; i < finding->instance_count; i++)
+        json_string(&writer, finding->instance_uids[i]);
+    json_array_end(&writer);
+    mitilog_status status = json_writer_take(&writer, out, NULL);
+    return status == MITILOG_OK ? SQLITE_OK : SQLITE_NOMEM;
 }
 
-static int store_insert_finding(sqlite3_stmt *insert, sqlite3_stmt *append,
+static int store_insert_finding(sqlite3_stmt *insert,
                                 const store_evaluation *e, const exam_finding *f)
 {
     char *uids = NULL;
-    int rc = store_uids_json(append, f, &uids);
+    int rc = store_uids_json(f, &uids);
     const struct {
         const char *name;
         const char *value;
@@ -432,7 +418,6 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
     sqlite3_stmt *removal = store_statement(st, &set, "queries/findings_delete.sql", error);
     sqlite3_stmt *supersede = store_statement(st, &set, "queries/findings_supersede.sql", error);
     sqlite3_stmt *insert = store_statement(st, &set, "queries/finding_insert.sql", error);
-    sqlite3_stmt *append = store_statement(st, &set, "queries/json_array_append.sql", error);
     sqlite3_stmt *values = store_statement(st, &set,
                                            exam ? "queries/exam_measurements_upsert.sql"
                                                 : "queries/device_evaluation_upsert.sql",
@@ -444,7 +429,7 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
         exam ? store_statement(st, &set, "queries/measurement_time_at_or_above_insert.sql", error)
              : NULL;
     if (ensure == NULL || stored == NULL || (exam && context == NULL) || removal == NULL ||
-        supersede == NULL || insert == NULL || append == NULL || values == NULL ||
+        supersede == NULL || insert == NULL || values == NULL ||
         (exam && (times_removal == NULL || times_insert == NULL))) {
         store_statements_finalize(&set);
         return MITILOG_ERROR_DATABASE;
@@ -485,7 +470,7 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
             superseded = (unsigned long)sqlite3_changes(st->writer);
         }
         for (size_t i = 0; rc == SQLITE_OK && i < e->finding_count; i++) {
-            rc = store_insert_finding(insert, append, e, &e->findings[i]);
+            rc = store_insert_finding(insert, e, &e->findings[i]);
             written++;
         }
         if (rc == SQLITE_OK && exam) {
