@@ -20,9 +20,6 @@ struct http_server {
     struct MHD_Daemon *daemon;
     store *store;
     char *web_root;              /* resolved real path, NULL: no files   */
-    sqlite3 *json;               /* in-memory, quotes error messages     */
-    sqlite3_stmt *error_json;    /* queries/error_json.sql, under lock   */
-    pthread_mutex_t json_lock;
     unsigned port;               /* the bound port                       */
     http_auth *auth;             /* NULL: no login required              */
     char *tls_certificate;       /* PEM text kept for MHD, NULL: HTTP    */
@@ -38,7 +35,7 @@ typedef struct http_reply {
 /* http_server.c */
 /* JSON body (malloc'ed, taken over) with the API headers. */
 http_reply http_json_reply(unsigned status, char *json);
-/* {"error": message} built by SQLite (valid JSON for any message). */
+/* {"error": message} written by json/json.h (valid JSON for any message). */
 http_reply http_error_reply(http_server *server, unsigned status,
                             const char *format, ...)
     __attribute__((format(printf, 3, 4)));

@@ -58,7 +58,6 @@ typedef struct store_read_statements {
     sqlite3_stmt *instances_since;
     sqlite3_stmt *studies;
     sqlite3_stmt *health;
-    sqlite3_stmt *health_error;
     sqlite3_stmt *study_load;
     sqlite3_stmt *study_detail;
 } store_read_statements;
