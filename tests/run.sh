@@ -2,7 +2,8 @@
 # tests/run.sh - the test command: installs the dependencies, builds the
 # normal tree (build/) and the sanitizer tree (build-asan/), runs the unit
 # tests of both with ctest, then the black-box integration tests against
-# both executables. Exits non-zero if anything fails; prints a summary.
+# both executables, then the HTTP tests against a ThreadSanitizer build
+# (build-tsan/). Exits non-zero if anything fails; prints a summary.
 set -uo pipefail
 
 top=$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)
@@ -78,12 +79,29 @@ for tree in build build-asan; do
   fi
 done
 
+# ThreadSanitizer (build-tsan/, -DMITILOG_SANITIZE=thread; the executable
+# only): the tests that drive the HTTP API, among them many clients at once
+# (test_concurrency.py). The first report stops the daemon with status 66,
+# which the tests check with its stderr.
+before=$failed
+failed=0
+step "build build-tsan/ (RelWithDebInfo, -DMITILOG_SANITIZE=thread, executable only)" \
+  build_tree build-tsan -DMITILOG_SANITIZE=thread -DMITILOG_TESTS=OFF
+tsan_built=$(( failed == 0 ))
+[ "$before" -ne 0 ] && failed=1
+if [ "$tsan_built" -eq 1 ]; then
+  step "HTTP integration tests build-tsan/mitilog (ThreadSanitizer, concurrent clients)" \
+    env MITILOG_BINARY="$top/build-tsan/mitilog" TSAN_OPTIONS=halt_on_error=1:exitcode=66 \
+    "$python" -m pytest -v -p no:cacheprovider tests/integration/test_concurrency.py \
+    tests/integration/test_access.py tests/integration/test_reports.py
+fi
+
 # Every benchmark once at its tiny size, so that none of them rots (speed
 # is never asserted: bench/README.md). MITILOG_BENCH=0 skips them.
 if [ "${MITILOG_BENCH:-1}" != 0 ] && [ -n "${built[build]:-}" ]; then
   bench_tiny() {
     local script
-    for script in ingest parse memory query scale; do
+    for script in ingest parse memory query scale hostile; do
       echo "--- bench/$script.py --tiny"
       MITILOG="$top/build/mitilog" "$python" "$top/bench/$script.py" --tiny || return 1
     done

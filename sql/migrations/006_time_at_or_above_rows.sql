@@ -4,7 +4,8 @@
 -- 005), so that the thresholds are the one ladder of the exam vocabulary
 -- (exam_ti_ladder, src/exam/exam.h) and SQL loops over it.
 --
--- ti_thresholds holds that ladder. The store writes it from the C
+-- ti_thresholds holds that ladder (and mode_names of migration 004 the
+-- vocabulary's mode names, which the store keeps the same way). The store writes it from the C
 -- definition each time it opens the database (store_open.c): when the
 -- ladder it finds differs from its own, it replaces the rows and
 -- recomputes every exam's times in the same transaction. This migration
@@ -19,11 +20,11 @@
 --
 -- exam_time_at_or_above holds, per exam and threshold, the seconds of the
 -- exam timeline whose capture's displayed governing index is at or above
--- the threshold (docs/domain.md section 5; an estimate). An exam has a row
--- for every threshold of the ladder, or none at all when a timeline row
--- refers to an instance that is not, or no longer, in the study: the
--- queries then compute the times from the timeline, as the NULL columns
--- meant before.
+-- the threshold (docs/domain.md section 5; an estimate), keyed by the
+-- exam's day like exam_summaries. An exam has a row for every threshold
+-- of the ladder; its seconds are NULL when a timeline row refers to an
+-- instance that is not, or no longer, in the study: the queries then
+-- compute the times from the timeline, as the NULL columns meant before.
 
 CREATE TABLE ti_thresholds (
     threshold REAL PRIMARY KEY CHECK (threshold > 0)
@@ -32,20 +33,23 @@ CREATE TABLE ti_thresholds (
 INSERT INTO ti_thresholds (threshold) VALUES (0.7), (1.0), (1.5), (2.0);
 
 CREATE TABLE exam_time_at_or_above (
+    day                TEXT NOT NULL,  -- the exam's day, as in exam_summaries
     study_instance_uid TEXT NOT NULL,
     threshold          REAL NOT NULL,
-    seconds            REAL NOT NULL,
-    PRIMARY KEY (study_instance_uid, threshold)
+    seconds            REAL,           -- NULL: computed from the timeline when read
+    PRIMARY KEY (day, study_instance_uid, threshold)
 ) STRICT, WITHOUT ROWID;
+-- A period's times are one range scan by day; an exam's are found by study.
+CREATE INDEX exam_time_at_or_above_study ON exam_time_at_or_above (study_instance_uid);
 
-INSERT INTO exam_time_at_or_above (study_instance_uid, threshold, seconds)
-SELECT study_instance_uid, 0.7, s07 FROM exam_summaries WHERE s07 IS NOT NULL
+INSERT INTO exam_time_at_or_above (day, study_instance_uid, threshold, seconds)
+SELECT day, study_instance_uid, 0.7, s07 FROM exam_summaries
 UNION ALL
-SELECT study_instance_uid, 1.0, s10 FROM exam_summaries WHERE s10 IS NOT NULL
+SELECT day, study_instance_uid, 1.0, s10 FROM exam_summaries
 UNION ALL
-SELECT study_instance_uid, 1.5, s15 FROM exam_summaries WHERE s15 IS NOT NULL
+SELECT day, study_instance_uid, 1.5, s15 FROM exam_summaries
 UNION ALL
-SELECT study_instance_uid, 2.0, s20 FROM exam_summaries WHERE s20 IS NOT NULL;
+SELECT day, study_instance_uid, 2.0, s20 FROM exam_summaries;
 
 CREATE TABLE exam_measurement_time_at_or_above (
     study_instance_uid TEXT NOT NULL,
@@ -80,28 +84,31 @@ BEGIN
 END;
 
 -- The times of one exam at every threshold of the ladder, from its
--- timeline; none when a timeline row refers to an instance that is
--- missing or in another study. Run by the summary refresh of migration
--- 005 (exam_summary_refresh) and by the store when the ladder changed.
+-- timeline; NULL seconds when a timeline row refers to an instance that is
+-- missing or in another study (the period query then computes them). Run
+-- by the summary refresh of migration 005 (exam_summary_refresh), after
+-- the summary row it takes the day and governing index from, and by the
+-- store when the ladder changed.
 CREATE TRIGGER exam_summary_dwell_refresh_run INSTEAD OF INSERT ON exam_summary_dwell_refresh
 BEGIN
     DELETE FROM exam_time_at_or_above WHERE study_instance_uid = NEW.study_instance_uid;
-    INSERT INTO exam_time_at_or_above (study_instance_uid, threshold, seconds)
-    SELECT NEW.study_instance_uid, t.threshold,
-           (SELECT coalesce(sum(iif(CASE g.governing_index WHEN 'tis' THEN i.tis
-                                         WHEN 'tib' THEN i.tib WHEN 'tic' THEN i.tic END
-                                    >= t.threshold, tl.attributed_seconds, 0)), 0)
-            FROM exams g
-            CROSS JOIN exam_timeline tl ON tl.study_instance_uid = g.study_instance_uid
-            CROSS JOIN instances i ON i.sop_instance_uid = tl.sop_instance_uid
-            WHERE g.study_instance_uid = NEW.study_instance_uid)
-    FROM ti_thresholds t
-    WHERE EXISTS (SELECT 1 FROM exams WHERE study_instance_uid = NEW.study_instance_uid)
-      AND (SELECT count(*) = count(i.id)
-           FROM exam_timeline tl
-           LEFT JOIN instances i ON i.sop_instance_uid = tl.sop_instance_uid
-                                AND i.study_instance_uid = tl.study_instance_uid
-           WHERE tl.study_instance_uid = NEW.study_instance_uid);
+    INSERT INTO exam_time_at_or_above (day, study_instance_uid, threshold, seconds)
+    SELECT s.day, s.study_instance_uid, t.threshold,
+           iif((SELECT count(*) = count(i.id)
+                FROM exam_timeline tl
+                LEFT JOIN instances i ON i.sop_instance_uid = tl.sop_instance_uid
+                                     AND i.study_instance_uid = tl.study_instance_uid
+                WHERE tl.study_instance_uid = s.study_instance_uid),
+               (SELECT coalesce(sum(iif(CASE s.governing_index WHEN 'tis' THEN i.tis
+                                             WHEN 'tib' THEN i.tib WHEN 'tic' THEN i.tic END
+                                        >= t.threshold, tl.attributed_seconds, 0)), 0)
+                FROM exam_timeline tl
+                CROSS JOIN instances i ON i.sop_instance_uid = tl.sop_instance_uid
+                WHERE tl.study_instance_uid = s.study_instance_uid),
+               NULL)
+    FROM exam_summaries s
+    CROSS JOIN ti_thresholds t
+    WHERE s.study_instance_uid = NEW.study_instance_uid;
 END;
 
 -- What the period queries read of each exam (as in migration 005, without

@@ -1,9 +1,8 @@
 /* cli_privileges.c - see cli_privileges.h. */
-#define _XOPEN_SOURCE 700 /* nftw() */
 #include "cli/cli_privileges.h"
 
 #include <errno.h>
-#include <ftw.h>
+#include <fts.h>
 #include <grp.h>
 #include <pwd.h>
 #include <stdio.h>
@@ -33,30 +32,34 @@ mitilog_status cli_identity_resolve(const char *user, cli_identity *identity,
     return MITILOG_OK;
 }
 
-/* nftw() has no user argument: the one walk in flight, serve's start. */
-static const cli_identity *give_identity;
-static int give_errno;
-
-static int give_one(const char *path, const struct stat *info, int type, struct FTW *walk)
-{
-    (void)info;
-    (void)type;
-    (void)walk;
-    if (lchown(path, give_identity->uid, give_identity->gid) != 0)
-        give_errno = errno;
-    return 0;
-}
-
 mitilog_status cli_identity_give(const cli_identity *identity, const char *path,
                                  mitilog_error *error)
 {
     if (!identity->change)
         return MITILOG_OK;
-    give_identity = identity;
-    give_errno = 0;
-    if (nftw(path, give_one, 16, FTW_PHYS | FTW_MOUNT) != 0 || give_errno != 0)
+    /* Every entry once (directories before their contents), links not
+     * followed, not into other file systems, the working directory kept. */
+    char *roots[] = {(char *)path, NULL};
+    FTS *walk = fts_open(roots, FTS_PHYSICAL | FTS_NOCHDIR | FTS_XDEV, NULL);
+    int failure = walk == NULL ? errno : 0;
+    FTSENT *entry;
+    errno = 0;
+    while (walk != NULL && (entry = fts_read(walk)) != NULL) {
+        if (entry->fts_info == FTS_DP)
+            continue; /* the same directory, after its contents */
+        if (entry->fts_info == FTS_ERR)
+            failure = entry->fts_errno;
+        else if (lchown(entry->fts_path, identity->uid, identity->gid) != 0)
+            failure = errno;
+        errno = 0;
+    }
+    if (walk != NULL && errno != 0 && failure == 0)
+        failure = errno; /* fts_read() failed */
+    if (walk != NULL)
+        fts_close(walk);
+    if (failure != 0)
         return mitilog_error_set(error, MITILOG_ERROR_IO, "cannot give %s to user %s: %s", path,
-                                 identity->name, strerror(give_errno ? give_errno : errno));
+                                 identity->name, strerror(failure));
     return MITILOG_OK;
 }
 

@@ -1,9 +1,8 @@
 /* mitilog import --config FILE [--jobs N] PATH...: files and folders
  * (recursively) through the same pipeline as network objects, several
  * files at once. */
-#define _XOPEN_SOURCE 700
 #include <errno.h>
-#include <ftw.h>
+#include <fts.h>
 #include <pthread.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -36,9 +35,6 @@ typedef struct import_queue {
     ingest *pipeline;
     import_totals totals;           /* under lock */
 } import_queue;
-
-/* nftw() has no user pointer: the walk's queue lives here for its duration. */
-static import_queue *walk_queue;
 
 static void import_count(import_queue *queue, ingest_outcome outcome)
 {
@@ -100,17 +96,35 @@ static void import_queue_push(import_queue *queue, const char *path)
     pthread_mutex_unlock(&queue->lock);
 }
 
-static int visit(const char *path, const struct stat *info, int type, struct FTW *walk)
+/* Every file under folder onto the queue (links not followed, the
+ * working directory kept); what cannot be read is counted as rejected. */
+static void import_walk(import_queue *queue, const char *folder)
 {
-    (void)info;
-    (void)walk;
-    if (type == FTW_F)
-        import_queue_push(walk_queue, path);
-    else if (type == FTW_DNR || type == FTW_NS) {
-        log_warning("import: %s cannot be read", path);
-        import_count(walk_queue, INGEST_OUTCOME_REJECTED);
+    char *roots[] = {(char *)folder, NULL};
+    FTS *walk = fts_open(roots, FTS_PHYSICAL | FTS_NOCHDIR, NULL);
+    if (walk == NULL) {
+        log_warning("import: %s cannot be read: %s", folder, strerror(errno));
+        import_count(queue, INGEST_OUTCOME_REJECTED);
+        return;
     }
-    return 0;
+    FTSENT *entry;
+    while ((entry = fts_read(walk)) != NULL) {
+        switch (entry->fts_info) {
+        case FTS_F:
+        case FTS_DEFAULT: /* not a folder nor a link: the reader decides */
+            import_queue_push(queue, entry->fts_path);
+            break;
+        case FTS_DNR:
+        case FTS_NS:
+        case FTS_ERR:
+            log_warning("import: %s cannot be read", entry->fts_path);
+            import_count(queue, INGEST_OUTCOME_REJECTED);
+            break;
+        default: /* folders (before and after), links, cycles */
+            break;
+        }
+    }
+    fts_close(walk);
 }
 
 /* Workers by default: two per processor online (while one waits for the
@@ -211,14 +225,13 @@ int command_import(int argc, char **argv)
         log_error("import: cannot start a worker thread");
         goto done;
     }
-    walk_queue = &queue;
     for (int i = first_path; i < argc; i++) {
         struct stat info;
         if (stat(argv[i], &info) != 0) {
             log_warning("import: %s does not exist", argv[i]);
             import_count(&queue, INGEST_OUTCOME_REJECTED);
         } else if (S_ISDIR(info.st_mode)) {
-            nftw(argv[i], visit, 32, FTW_PHYS);
+            import_walk(&queue, argv[i]);
         } else {
             import_queue_push(&queue, argv[i]);
         }

@@ -12,7 +12,7 @@
 #include "config/config_site.h"
 #include "ingest/ingest.h"
 #include "rules/rules.h"
-#include "stats/stats_week.h"
+#include "stats/stats_calendar.h"
 #include "store/store.h"
 
 /* A real calendar date, exactly YYYY-MM-DD (2026-02-30 is not one). */

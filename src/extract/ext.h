@@ -41,6 +41,7 @@ exam_number ext_parse_integer_string(const char *raw);
  * INVALID. */
 exam_number ext_frame_time_vector(const char *raw, double *sum_ms);
 
+
 typedef enum ext_time_source {
     EXT_TIME_NONE = 0,
     EXT_TIME_ACQUISITION_DATE_TIME, /* (0008,002A)                        */

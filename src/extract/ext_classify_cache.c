@@ -3,9 +3,10 @@
  * values they were decided on (ext_classify.h). POSIX regular expressions
  * cost more per image than reading the image's header, and a study's
  * images share their Study Description, Protocol Name and so on, so the
- * answer is kept: a direct-mapped table of EXT_CLASSIFY_CACHE_SLOTS
- * entries keyed by the field values, length-prefixed, under one mutex (the network
- * threads classify at once). A collision replaces the older entry.
+ * answer is kept in a hash table (util/hash_table.h) of at most
+ * EXT_CLASSIFY_CACHE_ENTRIES entries keyed by the field values,
+ * length-prefixed, under one mutex (the network threads classify at once).
+ * When it is full it starts again empty.
  */
 #include "extract/ext_classify.h"
 
@@ -15,20 +16,15 @@
 #include <stdlib.h>
 #include <string.h>
 
-#include "util/hash.h"
+#include "util/hash_table.h"
 
-enum { EXT_CLASSIFY_CACHE_SLOTS = 512, EXT_CLASSIFY_KEY_MAX = 4096 };
+enum { EXT_CLASSIFY_CACHE_ENTRIES = 512, EXT_CLASSIFY_KEY_MAX = 4096 };
 
-typedef struct ext_classify_slot {
-    char *key;                  /* NULL: empty */
-    uint64_t hash;
-    long type_index;            /* -1: no exam type matched */
-    const char *source;         /* static field name, or NULL */
-} ext_classify_slot;
-
+/* Each entry: number = the exam type's index (-1 as int64: none matched),
+ * pointer = the static field name of the match, or NULL. */
 struct ext_classify_cache {
     pthread_mutex_t lock;
-    ext_classify_slot slots[EXT_CLASSIFY_CACHE_SLOTS];
+    hash_table answers;         /* under lock */
 };
 
 struct ext_classify_cache *ext_classify_cache_create(void)
@@ -38,6 +34,8 @@ struct ext_classify_cache *ext_classify_cache_create(void)
         free(cache);
         cache = NULL;
     }
+    if (cache != NULL)
+        hash_table_init(&cache->answers, EXT_CLASSIFY_CACHE_ENTRIES);
     return cache;
 }
 
@@ -45,18 +43,16 @@ void ext_classify_cache_free(struct ext_classify_cache *cache)
 {
     if (cache == NULL)
         return;
-    for (size_t i = 0; i < EXT_CLASSIFY_CACHE_SLOTS; i++)
-        free(cache->slots[i].key);
+    hash_table_free(&cache->answers);
     pthread_mutex_destroy(&cache->lock);
     free(cache);
 }
 
 /* The fields, each as its length, a colon and its bytes ("-:" for an
  * absent one, so NULL and "" differ and no value can pose as two), into
- * key, and the key's FNV-1a hash. Returns the key's length, or 0 when the
- * values are too long to be cached. */
-static size_t ext_classify_key(const char *const *fields, char key[EXT_CLASSIFY_KEY_MAX],
-                               uint64_t *hash)
+ * key. Returns the key's length, or 0 when the values are too long to be
+ * cached. */
+static size_t ext_classify_key(const char *const *fields, char key[EXT_CLASSIFY_KEY_MAX])
 {
     size_t length = 0;
     for (int f = 0; f < EXT_FIELD_COUNT; f++) {
@@ -73,7 +69,6 @@ static size_t ext_classify_key(const char *const *fields, char key[EXT_CLASSIFY_
         length += size;
     }
     key[length] = '\0';
-    *hash = hash_fnv1a(key, length);
     return length;
 }
 
@@ -81,15 +76,15 @@ int ext_classify_cache_get(struct ext_classify_cache *cache, const char *const *
                            long *type_index, const char **source)
 {
     char key[EXT_CLASSIFY_KEY_MAX];
-    uint64_t hash;
-    if (ext_classify_key(fields, key, &hash) == 0)
+    size_t length = ext_classify_key(fields, key);
+    if (length == 0)
         return 0;
     int found = 0;
     pthread_mutex_lock(&cache->lock);
-    const ext_classify_slot *slot = &cache->slots[hash % EXT_CLASSIFY_CACHE_SLOTS];
-    if (slot->key != NULL && slot->hash == hash && strcmp(slot->key, key) == 0) {
-        *type_index = slot->type_index;
-        *source = slot->source;
+    const hash_entry *entry = hash_table_find(&cache->answers, key, length);
+    if (entry != NULL) {
+        *type_index = (long)(int64_t)entry->number;
+        *source = entry->pointer;
         found = 1;
     }
     pthread_mutex_unlock(&cache->lock);
@@ -100,16 +95,11 @@ void ext_classify_cache_put(struct ext_classify_cache *cache, const char *const 
                             long type_index, const char *source)
 {
     char key[EXT_CLASSIFY_KEY_MAX];
-    uint64_t hash;
-    size_t length = ext_classify_key(fields, key, &hash);
-    char *copy = length > 0 ? malloc(length + 1) : NULL;
-    if (copy == NULL)
-        return; /* not cached: the next call decides again */
-    memcpy(copy, key, length + 1);
+    size_t length = ext_classify_key(fields, key);
+    if (length == 0)
+        return;
     pthread_mutex_lock(&cache->lock);
-    ext_classify_slot *slot = &cache->slots[hash % EXT_CLASSIFY_CACHE_SLOTS];
-    char *old = slot->key;
-    *slot = (ext_classify_slot){copy, hash, type_index, source};
+    /* Out of memory: not cached; the next call decides again. */
+    (void)hash_table_put(&cache->answers, key, length, (uint64_t)(int64_t)type_index, source);
     pthread_mutex_unlock(&cache->lock);
-    free(old);
 }

@@ -1,7 +1,8 @@
 /*
  * report.h - the weekly outlier list, statistics for a period and preset
  * drift as documents: loads exam rows through store.h, computes with
- * stats_week.h, and writes JSON (the writer of json/json.h), CSV
+ * src/stats/ (stats_calendar.h, stats_outliers.h, stats_period.h,
+ * stats_drift.h), and writes JSON (the writer of json/json.h), CSV
  * (RFC 4180, UTF-8, CRLF) or printable HTML
  * (every text escaped). Used by the HTTP API (/api/v1/outliers,
  * /api/v1/stats, /api/v1/drift) and by `mitilog report`.
@@ -13,7 +14,11 @@
 #ifndef MITILOG_REPORT_H
 #define MITILOG_REPORT_H
 
-#include "stats/stats_week.h"
+#include "stats/stats_calendar.h"
+#include "stats/stats_drift.h"
+#include "stats/stats_exam.h"
+#include "stats/stats_outliers.h"
+#include "stats/stats_period.h"
 #include "store/store.h"
 #include "util/status.h"
 

@@ -49,7 +49,7 @@ static mitilog_status stats_compute(store *st, const report_stats_request *reque
                                              report_dimension_column(doc->by), REPORT_LOAD_INFO,
                                              &doc->data, error);
     if (status == MITILOG_OK)
-        status = stats_period_table(doc->data.exams, doc->data.row_count, doc->by, &doc->result,
+        status = stats_period_table(doc->data.rows, doc->data.row_count, doc->by, &doc->result,
                                     error);
     return status;
 }
@@ -125,14 +125,14 @@ static void row_json(json_writer *w, const stats_period_row *row, int is_total)
     json_number(w, est->count > 0, est->p95);
     json_object_end(w);
 
-    const stats_threshold_time *order[STATS_THRESHOLD_COUNT];
-    for (int t = 0; t < STATS_THRESHOLD_COUNT; t++)
+    const stats_threshold_time *order[EXAM_TI_STATISTICS_STEPS];
+    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++)
         order[t] = &row->thresholds[t];
-    qsort(order, STATS_THRESHOLD_COUNT, sizeof order[0], threshold_compare);
+    qsort(order, EXAM_TI_STATISTICS_STEPS, sizeof order[0], threshold_compare);
     int valued = row->governing.count > 0;
     json_key(w, "time_at_or_above");
     json_array_begin(w);
-    for (int t = 0; t < STATS_THRESHOLD_COUNT; t++) {
+    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++) {
         const stats_threshold_time *time = order[t];
         json_object_begin(w);
         json_key(w, "threshold");
@@ -219,7 +219,7 @@ static void stats_csv_row(const stats_document *doc, FILE *out, const stats_peri
     report_csv_number(out, mi->count > 0, mi->maximum);
     report_csv_number(out, est->count > 0, est->median / 60.0);
     report_csv_number(out, est->count > 0, est->p95 / 60.0);
-    for (int t = 0; t < STATS_THRESHOLD_COUNT; t++) {
+    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++) {
         const stats_threshold_time *time = &row->thresholds[t];
         report_csv_count(out, time->exam_count);
         report_csv_number(out, g->count > 0, time->median_seconds / 60.0);
@@ -284,7 +284,7 @@ static void stats_html_row(FILE *out, const stats_period_row *row, const char *k
     fprintf(out, "<td class=\"n\">%.0f %%</td>", 100.0 * row->share_with_findings);
     html_number_cell(out, row->estimated_seconds.count > 0,
                      row->estimated_seconds.median / 60.0, 3);
-    for (int t = 0; t < STATS_THRESHOLD_COUNT; t++) {
+    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++) {
         fprintf(out, "<td class=\"n\">%zu / ", row->thresholds[t].exam_count);
         report_html_number(out, g->count > 0, row->thresholds[t].p95_seconds / 60.0, 3);
         fputs("</td>", out);
@@ -318,9 +318,9 @@ static void stats_html(const stats_document *doc, FILE *out)
           "<th>MI median</th><th>MI P75</th><th>MI P95</th><th>With findings</th>"
           "<th>Scan minutes (median)</th>",
           out);
-    for (int t = 0; t < STATS_THRESHOLD_COUNT; t++) {
+    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++) {
         char label[EXAM_TI_LABEL_SIZE];
-        exam_ti_threshold_label(stats_thresholds[t], label);
+        exam_ti_threshold_label(exam_ti_ladder[t], label);
         fprintf(out, "<th>&ge; %s: exams / P95 min</th>", label);
     }
     fputs("<th>Captures with indices</th></tr></thead><tbody>\n", out);
@@ -404,7 +404,7 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
                                              REPORT_LOAD_INFO, &data, error);
     if (status != MITILOG_OK)
         return status;
-    status = stats_drift(data.exams, data.row_count, first_monday, weeks, baseline_weeks,
+    status = stats_drift(data.rows, data.row_count, first_monday, weeks, baseline_weeks,
                          request->minimum_baseline ? request->minimum_baseline : 10,
                          request->z_limit > 0 ? request->z_limit : 3.0, &result, error);
     json_writer json;

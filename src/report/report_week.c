@@ -25,7 +25,7 @@ typedef struct week_document {
     report_data data;                /* the week's exams */
     store_exam_list baseline;        /* the baseline weeks' exam types and values */
     store_period_info week_info;     /* policy facts for the week itself */
-    stats_exam *week_exams, *baseline_exams;
+    const exam_row *week_exams, *baseline_exams;   /* data.rows, baseline.rows */
     size_t *week_rows;               /* week exam -> data row */
     size_t week_count, baseline_count;
     stats_week_result result;
@@ -35,8 +35,6 @@ typedef struct week_document {
 static void week_document_free(week_document *doc)
 {
     stats_week_result_free(&doc->result);
-    free(doc->week_exams);
-    free(doc->baseline_exams);
     free(doc->week_rows);
     store_period_info_free(&doc->week_info);
     store_exam_list_free(&doc->baseline);
@@ -86,26 +84,19 @@ static mitilog_status week_compute(store *st, const report_week_request *request
         return status;
     doc->week_info = doc->data.info;
     memset(&doc->data.info, 0, sizeof doc->data.info);
-    size_t n = doc->data.row_count;
-    doc->week_exams = calloc(n + 1, sizeof *doc->week_exams);
-    doc->baseline_exams = calloc(doc->baseline.count + 1, sizeof *doc->baseline_exams);
-    doc->week_rows = calloc(n + 1, sizeof *doc->week_rows);
-    if (doc->week_exams == NULL || doc->baseline_exams == NULL || doc->week_rows == NULL)
+    /* The statistics read the store's rows as they are. */
+    doc->week_exams = doc->data.rows;
+    doc->week_count = doc->data.row_count;
+    doc->week_rows = calloc(doc->week_count + 1, sizeof *doc->week_rows);
+    if (doc->week_rows == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "weekly report: out of memory");
-    for (size_t i = 0; i < n; i++) {
-        const stats_exam *exam = &doc->data.exams[i];
-        doc->week_rows[doc->week_count] = i;
-        doc->week_exams[doc->week_count++] = *exam;
-        doc->captures += exam->capture_count;
-        doc->indexed += exam->indexed_count;
+    for (size_t i = 0; i < doc->week_count; i++) {
+        doc->week_rows[i] = i;
+        doc->captures += doc->week_exams[i].capture_count;
+        doc->indexed += doc->week_exams[i].indexed_count;
     }
-    for (size_t i = 0; i < doc->baseline.count; i++) {
-        const exam_row *row = &doc->baseline.rows[i];
-        stats_exam *exam = &doc->baseline_exams[doc->baseline_count++];
-        exam->exam_type = row->exam_type;
-        exam->has_governing = row->has_governing;
-        exam->max_governing = row->max_governing;
-    }
+    doc->baseline_exams = doc->baseline.rows;
+    doc->baseline_count = doc->baseline.count;
     status = stats_week_outliers(doc->week_exams, doc->week_count, doc->baseline_exams,
                                  doc->baseline_count, &settings, request->group, &doc->result,
                                  error);

@@ -164,33 +164,33 @@ static int store_run(sqlite3_stmt *statement, int rc)
 
 /* One entry of the policy's limits (policy_limits_append.sql) and its
  * dwell table (policy_dwell_step_append.sql), entry number index. */
-static int store_write_limits(sqlite3_stmt *limits, sqlite3_stmt *step, const char *version,
+static int store_write_limits(store *st, sqlite3_stmt *limits, sqlite3_stmt *step, const char *version,
                               size_t index, const exam_limits *l)
 {
-    int rc = store_bind_text_named(limits, ":version", version);
-    if (rc == SQLITE_OK) rc = store_bind_text_named(limits, ":group", exam_group_name(l->group));
-    if (rc == SQLITE_OK) rc = store_bind_text_named(limits, ":age_group", l->age_group);
+    int rc = store_bind_text_named(st, limits, ":version", version);
+    if (rc == SQLITE_OK) rc = store_bind_text_named(st, limits, ":group", exam_group_name(l->group));
+    if (rc == SQLITE_OK) rc = store_bind_text_named(st, limits, ":age_group", l->age_group);
     if (rc == SQLITE_OK)
-        rc = store_bind_double_named(limits, ":ti_ceiling", l->has_ti_ceiling, l->ti_ceiling);
+        rc = store_bind_double_named(st, limits, ":ti_ceiling", l->has_ti_ceiling, l->ti_ceiling);
     if (rc == SQLITE_OK)
-        rc = store_bind_double_named(limits, ":mi_ceiling", l->has_mi_ceiling, l->mi_ceiling);
+        rc = store_bind_double_named(st, limits, ":mi_ceiling", l->has_mi_ceiling, l->mi_ceiling);
     if (rc == SQLITE_OK)
-        rc = store_bind_double_named(limits, ":mi_equipment", l->has_mi_equipment,
+        rc = store_bind_double_named(st, limits, ":mi_equipment", l->has_mi_equipment,
                                      l->mi_equipment);
     if (rc == SQLITE_OK)
-        rc = store_bind_double_named(limits, ":ti_equipment", l->has_ti_equipment,
+        rc = store_bind_double_named(st, limits, ":ti_equipment", l->has_ti_equipment,
                                      l->ti_equipment);
-    if (rc == SQLITE_OK) rc = store_bind_text_named(limits, ":dwell_rule", l->dwell_rule);
+    if (rc == SQLITE_OK) rc = store_bind_text_named(st, limits, ":dwell_rule", l->dwell_rule);
     rc = store_run(limits, rc);
     for (size_t k = 0; rc == SQLITE_OK && k < l->dwell_count; k++) {
         const exam_dwell_step *d = &l->dwell[k];
-        rc = store_bind_text_named(step, ":version", version);
-        if (rc == SQLITE_OK) rc = store_bind_int_named(step, ":index", (sqlite3_int64)index);
-        if (rc == SQLITE_OK) rc = store_bind_double_named(step, ":threshold", 1, d->threshold);
+        rc = store_bind_text_named(st, step, ":version", version);
+        if (rc == SQLITE_OK) rc = store_bind_int_named(st, step, ":index", (sqlite3_int64)index);
+        if (rc == SQLITE_OK) rc = store_bind_double_named(st, step, ":threshold", 1, d->threshold);
         if (rc == SQLITE_OK)
-            rc = store_bind_double_named(step, ":minutes", !d->not_recommended, d->minutes);
+            rc = store_bind_double_named(st, step, ":minutes", !d->not_recommended, d->minutes);
         if (rc == SQLITE_OK)
-            rc = store_bind_int_named(step, ":not_recommended", d->not_recommended != 0);
+            rc = store_bind_int_named(st, step, ":not_recommended", d->not_recommended != 0);
         rc = store_run(step, rc);
     }
     return rc;
@@ -208,43 +208,43 @@ mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog
         store_statements_finalize(&set);
         return MITILOG_ERROR_DATABASE;
     }
-    int rc = store_bind_text_named(upsert, ":version", policy->version);
+    int rc = store_bind_text_named(st, upsert, ":version", policy->version);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(upsert, ":name", policy->name);
+        rc = store_bind_text_named(st, upsert, ":name", policy->name);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(upsert, ":normalised_text",
+        rc = store_bind_text_named(st, upsert, ":normalised_text",
                                    store_or_empty(policy->normalised_text));
     if (rc == SQLITE_OK)
-        rc = store_bind_double_named(upsert, ":closed_after_idle_minutes", 1,
+        rc = store_bind_double_named(st, upsert, ":closed_after_idle_minutes", 1,
                                      policy->closed_after_idle_minutes);
     if (rc == SQLITE_OK)
-        rc = store_bind_double_named(upsert, ":gap_cap_seconds", 1, policy->gap_cap_seconds);
+        rc = store_bind_double_named(st, upsert, ":gap_cap_seconds", 1, policy->gap_cap_seconds);
     rc = store_run(upsert, rc);
     for (size_t r = 0; rc == SQLITE_OK && r < policy->rule_count; r++) {
         const exam_rule_info *info = &policy->rules[r];
-        rc = store_bind_text_named(rule, ":version", policy->version);
-        if (rc == SQLITE_OK) rc = store_bind_text_named(rule, ":id", info->id);
-        if (rc == SQLITE_OK) rc = store_bind_text_named(rule, ":kind", info->kind);
+        rc = store_bind_text_named(st, rule, ":version", policy->version);
+        if (rc == SQLITE_OK) rc = store_bind_text_named(st, rule, ":id", info->id);
+        if (rc == SQLITE_OK) rc = store_bind_text_named(st, rule, ":kind", info->kind);
         if (rc == SQLITE_OK)
-            rc = store_bind_text_named(rule, ":severity", exam_severity_name(info->severity));
-        if (rc == SQLITE_OK) rc = store_bind_int_named(rule, ":enabled", info->enabled != 0);
-        if (rc == SQLITE_OK) rc = store_bind_text_named(rule, ":source", info->source);
+            rc = store_bind_text_named(st, rule, ":severity", exam_severity_name(info->severity));
+        if (rc == SQLITE_OK) rc = store_bind_int_named(st, rule, ":enabled", info->enabled != 0);
+        if (rc == SQLITE_OK) rc = store_bind_text_named(st, rule, ":source", info->source);
         if (rc == SQLITE_OK)
-            rc = store_bind_text_named(rule, ":description", info->description);
+            rc = store_bind_text_named(st, rule, ":description", info->description);
         rc = store_run(rule, rc);
         for (size_t k = 0; rc == SQLITE_OK && k < info->setting_count; k++) {
-            rc = store_bind_text_named(setting, ":version", policy->version);
+            rc = store_bind_text_named(st, setting, ":version", policy->version);
             if (rc == SQLITE_OK)
-                rc = store_bind_int_named(setting, ":rule_index", (sqlite3_int64)r);
+                rc = store_bind_int_named(st, setting, ":rule_index", (sqlite3_int64)r);
             if (rc == SQLITE_OK)
-                rc = store_bind_text_named(setting, ":key", info->settings[k].key);
+                rc = store_bind_text_named(st, setting, ":key", info->settings[k].key);
             if (rc == SQLITE_OK)
-                rc = store_bind_text_named(setting, ":value", info->settings[k].value);
+                rc = store_bind_text_named(st, setting, ":value", info->settings[k].value);
             rc = store_run(setting, rc);
         }
     }
     for (size_t k = 0; rc == SQLITE_OK && k < policy->limit_count; k++)
-        rc = store_write_limits(limits, step, policy->version, k, &policy->limits[k]);
+        rc = store_write_limits(st, limits, step, policy->version, k, &policy->limits[k]);
     mitilog_status status = MITILOG_OK;
     if (rc != SQLITE_OK)
         status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "policy %s: %s",
@@ -267,7 +267,7 @@ static int store_uids_json(const exam_finding *finding, char **out)
     return status == MITILOG_OK ? SQLITE_OK : SQLITE_NOMEM;
 }
 
-static int store_insert_finding(sqlite3_stmt *insert,
+static int store_insert_finding(store *st, sqlite3_stmt *insert,
                                 const store_evaluation *e, const exam_finding *f)
 {
     char *uids = NULL;
@@ -295,7 +295,7 @@ static int store_insert_finding(sqlite3_stmt *insert,
         {":period", e->study_instance_uid == NULL ? e->period : NULL},
     };
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0]; i++)
-        rc = store_bind_text_named(insert, texts[i].name, texts[i].value);
+        rc = store_bind_text_named(st, insert, texts[i].name, texts[i].value);
     const struct {
         const char *name;
         int present;
@@ -309,9 +309,9 @@ static int store_insert_finding(sqlite3_stmt *insert,
         {":estimated_seconds", 1, f->estimated_seconds},
     };
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof reals / sizeof reals[0]; i++)
-        rc = store_bind_double_named(insert, reals[i].name, reals[i].present, reals[i].value);
+        rc = store_bind_double_named(st, insert, reals[i].name, reals[i].present, reals[i].value);
     if (rc == SQLITE_OK)
-        rc = store_bind_int_named(insert, ":provisional", f->provisional != 0);
+        rc = store_bind_int_named(st, insert, ":provisional", f->provisional != 0);
     rc = store_run(insert, rc);
     free(uids);
     return rc;
@@ -332,7 +332,7 @@ static int store_bind_scope(sqlite3_stmt *statement, const store_evaluation *e)
     return rc;
 }
 
-static int store_write_context_row(sqlite3_stmt *statement, const store_evaluation *e)
+static int store_write_context_row(store *st, sqlite3_stmt *statement, const store_evaluation *e)
 {
     const struct {
         const char *name;
@@ -344,22 +344,22 @@ static int store_write_context_row(sqlite3_stmt *statement, const store_evaluati
     };
     int rc = SQLITE_OK;
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0]; i++)
-        rc = store_bind_text_named(statement, texts[i].name, texts[i].value);
+        rc = store_bind_text_named(st, statement, texts[i].name, texts[i].value);
     if (rc == SQLITE_OK)
-        rc = store_bind_int_named(statement, ":closed", e->closed != 0);
+        rc = store_bind_int_named(st, statement, ":closed", e->closed != 0);
     return store_run(statement, rc);
 }
 
-static int store_write_measurements(sqlite3_stmt *statement, const store_evaluation *e,
+static int store_write_measurements(store *st, sqlite3_stmt *statement, const store_evaluation *e,
                                     const char *hash)
 {
-    int rc = store_bind_text_named(statement, ":study_instance_uid", e->study_instance_uid);
-    if (rc == SQLITE_OK) rc = store_bind_text_named(statement, ":policy_version", e->policy_version);
+    int rc = store_bind_text_named(st, statement, ":study_instance_uid", e->study_instance_uid);
+    if (rc == SQLITE_OK) rc = store_bind_text_named(st, statement, ":policy_version", e->policy_version);
     const exam_measurements *m = e->measurements;
     exam_index governing = m->governing_index;
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(statement, ":governing_index", exam_index_name(governing));
-    if (rc == SQLITE_OK) rc = store_bind_text_named(statement, ":evaluation_hash", hash);
+        rc = store_bind_text_named(st, statement, ":governing_index", exam_index_name(governing));
+    if (rc == SQLITE_OK) rc = store_bind_text_named(st, statement, ":evaluation_hash", hash);
     const struct {
         const char *name;
         int present;
@@ -372,24 +372,25 @@ static int store_write_measurements(sqlite3_stmt *statement, const store_evaluat
         {":doppler_seconds", 1, m->doppler_seconds},
     };
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof reals / sizeof reals[0]; i++)
-        rc = store_bind_double_named(statement, reals[i].name, reals[i].present, reals[i].value);
+        rc = store_bind_double_named(st, statement, reals[i].name, reals[i].present,
+                                     reals[i].value);
     return store_run(statement, rc);
 }
 
 /* The evaluation's time at or above each threshold of the TI ladder, as
  * rows (after its measurements row, which they refer to). */
-static int store_write_time_at_or_above(sqlite3_stmt *removal, sqlite3_stmt *insert,
+static int store_write_time_at_or_above(store *st, sqlite3_stmt *removal, sqlite3_stmt *insert,
                                         const store_evaluation *e)
 {
-    int rc = store_bind_text_named(removal, ":study_instance_uid", e->study_instance_uid);
-    if (rc == SQLITE_OK) rc = store_bind_text_named(removal, ":policy_version", e->policy_version);
+    int rc = store_bind_text_named(st, removal, ":study_instance_uid", e->study_instance_uid);
+    if (rc == SQLITE_OK) rc = store_bind_text_named(st, removal, ":policy_version", e->policy_version);
     rc = store_run(removal, rc);
     for (int k = 0; rc == SQLITE_OK && k < EXAM_TI_STEP_COUNT; k++) {
-        rc = store_bind_text_named(insert, ":study_instance_uid", e->study_instance_uid);
-        if (rc == SQLITE_OK) rc = store_bind_text_named(insert, ":policy_version", e->policy_version);
-        if (rc == SQLITE_OK) rc = store_bind_double_named(insert, ":threshold", 1, exam_ti_ladder[k]);
+        rc = store_bind_text_named(st, insert, ":study_instance_uid", e->study_instance_uid);
+        if (rc == SQLITE_OK) rc = store_bind_text_named(st, insert, ":policy_version", e->policy_version);
+        if (rc == SQLITE_OK) rc = store_bind_double_named(st, insert, ":threshold", 1, exam_ti_ladder[k]);
         if (rc == SQLITE_OK)
-            rc = store_bind_double_named(insert, ":seconds", 1,
+            rc = store_bind_double_named(st, insert, ":seconds", 1,
                                          e->measurements->seconds_at_or_above[k]);
         rc = store_run(insert, rc);
     }
@@ -434,13 +435,14 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
         store_statements_finalize(&set);
         return MITILOG_ERROR_DATABASE;
     }
-    int rc = store_bind_text_named(ensure, ":version", e->policy_version);
-    if (rc == SQLITE_OK) rc = store_bind_text_named(ensure, ":name", e->policy_name);
+    int rc = store_bind_text_named(st, ensure, ":version", e->policy_version);
+    if (rc == SQLITE_OK) rc = store_bind_text_named(st, ensure, ":name", e->policy_name);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(ensure, ":normalised_text", store_or_empty(e->normalised_text));
+        rc = store_bind_text_named(st, ensure, ":normalised_text",
+                                   store_or_empty(e->normalised_text));
     rc = store_run(ensure, rc);
     if (rc == SQLITE_OK && exam)
-        rc = store_write_context_row(context, e);
+        rc = store_write_context_row(st, context, e);
     /* Unchanged? */
     int unchanged = 0;
     if (rc == SQLITE_OK) {
@@ -470,18 +472,19 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
             superseded = (unsigned long)sqlite3_changes(st->writer);
         }
         for (size_t i = 0; rc == SQLITE_OK && i < e->finding_count; i++) {
-            rc = store_insert_finding(insert, e, &e->findings[i]);
+            rc = store_insert_finding(st, insert, e, &e->findings[i]);
             written++;
         }
         if (rc == SQLITE_OK && exam) {
-            rc = store_write_measurements(values, e, hash);
+            rc = store_write_measurements(st, values, e, hash);
             if (rc == SQLITE_OK)
-                rc = store_write_time_at_or_above(times_removal, times_insert, e);
+                rc = store_write_time_at_or_above(st, times_removal, times_insert, e);
         } else if (rc == SQLITE_OK) {
-            rc = store_bind_text_named(values, ":rule_id", e->rule_id);
-            if (rc == SQLITE_OK) rc = store_bind_text_named(values, ":policy_version", e->policy_version);
-            if (rc == SQLITE_OK) rc = store_bind_text_named(values, ":period", e->period);
-            if (rc == SQLITE_OK) rc = store_bind_text_named(values, ":evaluation_hash", hash);
+            rc = store_bind_text_named(st, values, ":rule_id", e->rule_id);
+            if (rc == SQLITE_OK)
+                rc = store_bind_text_named(st, values, ":policy_version", e->policy_version);
+            if (rc == SQLITE_OK) rc = store_bind_text_named(st, values, ":period", e->period);
+            if (rc == SQLITE_OK) rc = store_bind_text_named(st, values, ":evaluation_hash", hash);
             rc = store_run(values, rc);
         }
     }

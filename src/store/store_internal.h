@@ -14,6 +14,7 @@
 
 #include "extract/ext_exam.h"
 #include "store/store.h"
+#include "util/hash_table.h"
 
 /* One queued write: a caller's record (or rejection) and, once the batch
  * that holds it has committed or failed, its result. Lives on the caller's
@@ -88,6 +89,9 @@ struct store {
 
     int schema_version;
     char active_policy[65];             /* under reader_lock; "" = none  */
+
+    pthread_mutex_t parameter_lock;
+    hash_table parameter_indices;       /* under parameter_lock          */
 };
 
 /* store_sql.c */
@@ -104,16 +108,19 @@ mitilog_status store_cached_statement(store_cache *cache, sqlite3 *db,
                                       const char *name,
                                       sqlite3_stmt **statement,
                                       mitilog_error *error);
-/* sqlite3_bind_parameter_index() remembered per thread, by statement and
- * a 64-bit hash of the name: binding an instance by the names of its ~90
- * parameters spent more instructions on finding them than on the insert.
- * Only for statements that live until store_close() (the caches above and
- * the reader's statements of store_read.c); statements prepared for one
- * call bind by position. store_close() calls store_parameter_forget()
- * before it finalizes them, so a later statement at the same address is
- * never answered from an older one's memory. */
-int store_parameter_index(sqlite3_stmt *statement, const char *name);
-void store_parameter_forget(void);
+/* sqlite3_bind_parameter_index() remembered in the store, by statement
+ * and name: binding an instance by the names of its ~90 parameters spent
+ * more instructions on finding them than on the insert. Only for
+ * statements that live until store_close() (the caches above and the
+ * writer's statements); statements prepared for one call bind by
+ * position. store_close() calls store_parameter_forget() before it
+ * finalizes them, so a later statement at the same address is never
+ * answered from an older one's memory. */
+enum { STORE_PARAMETER_ENTRIES = 4096 };  /* remembered at most: statements
+                                            x parameters, a few hundred
+                                            today; a bound, not a goal */
+int store_parameter_index(store *st, sqlite3_stmt *statement, const char *name);
+void store_parameter_forget(store *st);
 /* Resets a cached statement and clears its bindings (NULL: nothing). */
 void store_release(sqlite3_stmt *statement);
 void store_cache_finalize(store_cache *cache);
@@ -146,11 +153,11 @@ mitilog_status store_write_exam(store *store, const store_exam *exam,
 /* 1 if text is well-formed UTF-8 (store_write.c). */
 int store_is_text_utf8(const char *text);
 /* Binding helpers shared by the writers (store_write_context.c). */
-int store_bind_text_named(sqlite3_stmt *statement, const char *name,
+int store_bind_text_named(store *st, sqlite3_stmt *statement, const char *name,
                           const char *value);
-int store_bind_double_named(sqlite3_stmt *statement, const char *name,
+int store_bind_double_named(store *st, sqlite3_stmt *statement, const char *name,
                             int present, double value);
-int store_bind_int_named(sqlite3_stmt *statement, const char *name,
+int store_bind_int_named(store *st, sqlite3_stmt *statement, const char *name,
                          sqlite3_int64 value);
 
 /* store_findings.c: inside the batch's transaction. */

@@ -279,12 +279,18 @@ static mitilog_status store_load_time_at_or_above(store *st, const char *from_da
             SQLITE_OK)
         status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: bind failed", name);
     int rc = SQLITE_DONE;
+    exam_row *row = NULL;
     while (status == MITILOG_OK && (rc = sqlite3_step(statement)) == SQLITE_ROW) {
-        exam_row key = {.study_instance_uid = (const char *)sqlite3_column_text(statement, 0)};
-        exam_row *row = key.study_instance_uid == NULL
-                                  ? NULL
-                                  : bsearch(&key, list->rows, list->count, sizeof *list->rows,
-                                            store_compare_rows);
+        /* An exam's rows come one after another: one search per exam. */
+        const char *uid = (const char *)sqlite3_column_text(statement, 0);
+        if (uid == NULL) {
+            row = NULL;
+            continue;
+        }
+        if (row == NULL || strcmp(row->study_instance_uid, uid) != 0) {
+            exam_row key = {.study_instance_uid = uid};
+            row = bsearch(&key, list->rows, list->count, sizeof *list->rows, store_compare_rows);
+        }
         double threshold = sqlite3_column_double(statement, 1);
         for (int k = 0; row != NULL && k < EXAM_TI_STATISTICS_STEPS; k++)
             if (exam_ti_ladder[k] == threshold)

@@ -11,7 +11,6 @@
 #include <string.h>
 
 #include "store/sql_files.h"
-#include "util/hash.h"
 
 mitilog_status store_sql_error(mitilog_error *error, sqlite3 *db,
                                const char *what)
@@ -75,37 +74,37 @@ mitilog_status store_cached_statement(store_cache *cache, sqlite3 *db,
     return MITILOG_OK;
 }
 
-enum { STORE_PARAMETER_SLOTS = 512 };
+enum { STORE_PARAMETER_NAME_MAX = 256 };
 
-/* Bumped by store_parameter_forget(): what a thread remembered before
- * belongs to statements that may be gone. */
-static _Atomic unsigned store_parameter_generation = 1;
-
-int store_parameter_index(sqlite3_stmt *statement, const char *name)
+int store_parameter_index(store *st, sqlite3_stmt *statement, const char *name)
 {
-    static _Thread_local struct {
-        sqlite3_stmt *statement;
-        uint64_t hash;
-        unsigned generation;
-        int index;
-    } remembered[STORE_PARAMETER_SLOTS];
-    uint64_t hash = hash_fnv1a(name, strlen(name));
-    unsigned generation = store_parameter_generation;
-    size_t slot = (size_t)((hash ^ (uint64_t)(uintptr_t)statement) % STORE_PARAMETER_SLOTS);
-    if (remembered[slot].statement == statement && remembered[slot].hash == hash &&
-        remembered[slot].generation == generation)
-        return remembered[slot].index;
-    int index = sqlite3_bind_parameter_index(statement, name);
-    remembered[slot].statement = statement;
-    remembered[slot].hash = hash;
-    remembered[slot].generation = generation;
-    remembered[slot].index = index;
+    /* The key: the statement's address, then the name's bytes. */
+    unsigned char key[sizeof statement + STORE_PARAMETER_NAME_MAX];
+    size_t length = strlen(name);
+    if (length > STORE_PARAMETER_NAME_MAX)
+        return sqlite3_bind_parameter_index(statement, name);
+    memcpy(key, &statement, sizeof statement);
+    memcpy(key + sizeof statement, name, length);
+    size_t key_size = sizeof statement + length;
+    pthread_mutex_lock(&st->parameter_lock);
+    const hash_entry *entry = hash_table_find(&st->parameter_indices, key, key_size);
+    int index;
+    if (entry != NULL) {
+        index = (int)entry->number;
+    } else {
+        index = sqlite3_bind_parameter_index(statement, name);
+        /* Out of memory: not remembered; asked again next time. */
+        (void)hash_table_put(&st->parameter_indices, key, key_size, (uint64_t)index, NULL);
+    }
+    pthread_mutex_unlock(&st->parameter_lock);
     return index;
 }
 
-void store_parameter_forget(void)
+void store_parameter_forget(store *st)
 {
-    store_parameter_generation++;
+    pthread_mutex_lock(&st->parameter_lock);
+    hash_table_free(&st->parameter_indices);
+    pthread_mutex_unlock(&st->parameter_lock);
 }
 
 void store_release(sqlite3_stmt *statement)

@@ -127,10 +127,10 @@ static mitilog_status store_check_record(const ext_record *record,
 
 /* Binds text (NULL: SQL NULL) to the named parameter. SQLITE_STATIC: the
  * caller's record outlives the statement's use (bindings are cleared). */
-static int store_bind_text(sqlite3_stmt *statement, const char *name,
+static int store_bind_text(store *st, sqlite3_stmt *statement, const char *name,
                            const char *value)
 {
-    int index = store_parameter_index(statement, name);
+    int index = store_parameter_index(st, statement, name);
     if (index == 0)
         return SQLITE_RANGE;
     if (value == NULL)
@@ -140,12 +140,12 @@ static int store_bind_text(sqlite3_stmt *statement, const char *name,
 
 /* Binds a classified number to :<name> (value or NULL) and
  * :<name>_status; as an integer when integer is set. */
-static int store_bind_number(sqlite3_stmt *statement, const char *name,
+static int store_bind_number(store *st, sqlite3_stmt *statement, const char *name,
                              exam_number number, int integer)
 {
     char parameter[64];
     snprintf(parameter, sizeof parameter, ":%s", name);
-    int index = store_parameter_index(statement, parameter);
+    int index = store_parameter_index(st, statement, parameter);
     if (index == 0)
         return SQLITE_RANGE;
     int rc;
@@ -159,20 +159,20 @@ static int store_bind_number(sqlite3_stmt *statement, const char *name,
     if (rc != SQLITE_OK)
         return rc;
     snprintf(parameter, sizeof parameter, ":%s_status", name);
-    return store_bind_text(statement, parameter,
+    return store_bind_text(st, statement, parameter,
                            store_value_status_name(number.status));
 }
 
-int store_bind_text_named(sqlite3_stmt *statement, const char *name,
+int store_bind_text_named(store *st, sqlite3_stmt *statement, const char *name,
                           const char *value)
 {
-    return store_bind_text(statement, name, value);
+    return store_bind_text(st, statement, name, value);
 }
 
-int store_bind_double_named(sqlite3_stmt *statement, const char *name,
+int store_bind_double_named(store *st, sqlite3_stmt *statement, const char *name,
                             int present, double value)
 {
-    int index = store_parameter_index(statement, name);
+    int index = store_parameter_index(st, statement, name);
     if (index == 0)
         return SQLITE_RANGE;
     if (!present || !isfinite(value))
@@ -180,10 +180,10 @@ int store_bind_double_named(sqlite3_stmt *statement, const char *name,
     return sqlite3_bind_double(statement, index, value);
 }
 
-int store_bind_int_named(sqlite3_stmt *statement, const char *name,
+int store_bind_int_named(store *st, sqlite3_stmt *statement, const char *name,
                          sqlite3_int64 value)
 {
-    int index = store_parameter_index(statement, name);
+    int index = store_parameter_index(st, statement, name);
     if (index == 0)
         return SQLITE_RANGE;
     return sqlite3_bind_int64(statement, index, value);
@@ -195,7 +195,7 @@ static const char *store_bitmap_status_name(int status)
 }
 
 /* Binds the exam-context columns (migration 002) from record. */
-static int store_bind_context(sqlite3_stmt *statement,
+static int store_bind_context(store *st, sqlite3_stmt *statement,
                               const ext_record *record)
 {
     static const char *const kinds[] = {"other", "image", "multiframe",
@@ -250,47 +250,47 @@ static int store_bind_context(sqlite3_stmt *statement,
     int rc = SQLITE_OK;
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0];
          i++)
-        rc = store_bind_text(statement, texts[i].name, texts[i].value);
+        rc = store_bind_text(st, statement, texts[i].name, texts[i].value);
     if (rc == SQLITE_OK)
-        rc = store_bind_int_named(statement, ":has_acoustic_record",
+        rc = store_bind_int_named(st, statement, ":has_acoustic_record",
                                   record->has_acoustic_record ? 1 : 0);
     if (rc == SQLITE_OK)
-        rc = store_bind_int_named(statement, ":modes", record->modes);
+        rc = store_bind_int_named(st, statement, ":modes", record->modes);
     if (rc == SQLITE_OK)
-        rc = store_bind_int_named(statement, ":modes_image_type", record->modes_image_type);
+        rc = store_bind_int_named(st, statement, ":modes_image_type", record->modes_image_type);
     if (rc == SQLITE_OK)
-        rc = store_bind_int_named(statement, ":modes_regions", record->modes_regions);
+        rc = store_bind_int_named(st, statement, ":modes_regions", record->modes_regions);
     if (rc == SQLITE_OK)
-        rc = store_bind_int_named(statement, ":modes_sr", record->modes_sr);
+        rc = store_bind_int_named(st, statement, ":modes_sr", record->modes_sr);
     if (rc == SQLITE_OK)
         rc = record->image_type_bitmap_status == 1
-                 ? store_bind_int_named(statement, ":image_type_bitmap",
+                 ? store_bind_int_named(st, statement, ":image_type_bitmap",
                                         record->image_type_bitmap)
-                 : store_bind_text(statement, ":image_type_bitmap", NULL);
+                 : store_bind_text(st, statement, ":image_type_bitmap", NULL);
     if (rc == SQLITE_OK)
-        rc = store_bind_int_named(statement, ":modes_conflict",
+        rc = store_bind_int_named(st, statement, ":modes_conflict",
                                   record->modes_conflict ? 1 : 0);
     if (rc == SQLITE_OK)
         rc = record->has_frequency
-                 ? store_bind_int_named(statement, ":frequency_khz",
+                 ? store_bind_int_named(st, statement, ":frequency_khz",
                                         record->frequency_khz)
-                 : store_bind_text(statement, ":frequency_khz", NULL);
+                 : store_bind_text(st, statement, ":frequency_khz", NULL);
     if (rc == SQLITE_OK)
-        rc = store_bind_double_named(statement, ":cine_seconds",
+        rc = store_bind_double_named(st, statement, ":cine_seconds",
                                      record->cine_seconds > 0,
                                      record->cine_seconds);
     if (rc == SQLITE_OK)
-        rc = store_bind_double_named(statement, ":gestational_age_weeks",
+        rc = store_bind_double_named(st, statement, ":gestational_age_weeks",
                                      record->has_gestational_age,
                                      record->gestational_age_weeks);
     if (rc == SQLITE_OK)
-        rc = store_bind_int_named(statement, ":text_replaced",
+        rc = store_bind_int_named(st, statement, ":text_replaced",
                                   record->text_replaced ? 1 : 0);
     return rc;
 }
 
 /* Binds every parameter of queries/instance_upsert.sql from record. */
-static int store_bind_instance(sqlite3_stmt *statement,
+static int store_bind_instance(store *st, sqlite3_stmt *statement,
                                const ext_record *record)
 {
     const struct {
@@ -319,28 +319,28 @@ static int store_bind_instance(sqlite3_stmt *statement,
     int rc = SQLITE_OK;
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0];
          i++)
-        rc = store_bind_text(statement, texts[i].name, texts[i].value);
+        rc = store_bind_text(st, statement, texts[i].name, texts[i].value);
     if (rc == SQLITE_OK)
-        rc = store_bind_number(statement, "number_of_frames",
+        rc = store_bind_number(st, statement, "number_of_frames",
                                record->number_of_frames, 1);
     if (rc == SQLITE_OK)
-        rc = store_bind_number(statement, "frame_time_ms",
+        rc = store_bind_number(st, statement, "frame_time_ms",
                                record->frame_time_ms, 0);
     if (rc == SQLITE_OK)
         rc = sqlite3_bind_int(statement,
-                              store_parameter_index(statement,
+                              store_parameter_index(st, statement,
                                                            ":is_ultrasound"),
                               record->is_ultrasound ? 1 : 0);
     for (int i = 0; rc == SQLITE_OK && i < EXAM_INDEX_COUNT; i++) {
         char parameter[64];
-        rc = store_bind_number(statement, exam_index_name((exam_index)i),
+        rc = store_bind_number(st, statement, exam_index_name((exam_index)i),
                                record->indices[i], 0);
         snprintf(parameter, sizeof parameter, ":%s_raw", exam_index_name((exam_index)i));
         if (rc == SQLITE_OK)
-            rc = store_bind_text(statement, parameter, record->index_raw[i]);
+            rc = store_bind_text(st, statement, parameter, record->index_raw[i]);
     }
     if (rc == SQLITE_OK)
-        rc = store_bind_context(statement, record);
+        rc = store_bind_context(st, statement, record);
     return rc;
 }
 
@@ -351,7 +351,7 @@ static mitilog_status store_write_instance(store *st,
     sqlite3_stmt *statement = st->write.upsert_instance;
     const ext_record *record = request->record;
     mitilog_status status = MITILOG_OK;
-    int rc = store_bind_instance(statement, record);
+    int rc = store_bind_instance(st, statement, record);
     if (rc != SQLITE_OK) {
         status = mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE,
                                    "%s: bind: %s", record->sop_instance_uid,
@@ -406,7 +406,7 @@ static mitilog_status store_write_rejection(store *st,
     int rc = SQLITE_OK;
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0];
          i++)
-        rc = store_bind_text(statement, texts[i].name, texts[i].value);
+        rc = store_bind_text(st, statement, texts[i].name, texts[i].value);
     mitilog_status status = MITILOG_OK;
     if (rc != SQLITE_OK)
         status = mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE,

@@ -25,34 +25,34 @@ static int store_write_sr_value(store *st, sqlite3_int64 instance_id,
                                 const ext_sr_value *value)
 {
     sqlite3_stmt *statement = st->write.insert_sr_value;
-    int rc = store_bind_int_named(statement, ":instance_id", instance_id);
+    int rc = store_bind_int_named(st, statement, ":instance_id", instance_id);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(statement, ":study_instance_uid",
+        rc = store_bind_text_named(st, statement, ":study_instance_uid",
                                    record->study_instance_uid);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(statement, ":quantity",
+        rc = store_bind_text_named(st, statement, ":quantity",
                                    ext_quantity_name(value->quantity));
     if (rc == SQLITE_OK)
-        rc = store_bind_double_named(statement, ":value",
+        rc = store_bind_double_named(st, statement, ":value",
                                      value->number.status == EXAM_VALUE_OK,
                                      value->number.value);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(statement, ":raw_value", value->raw);
+        rc = store_bind_text_named(st, statement, ":raw_value", value->raw);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(statement, ":unit", value->unit);
+        rc = store_bind_text_named(st, statement, ":unit", value->unit);
     if (rc == SQLITE_OK)
-        rc = store_bind_double_named(statement, ":normalised",
+        rc = store_bind_double_named(st, statement, ":normalised",
                                      value->normalised_ok, value->normalised);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(statement, ":concept", value->concept);
+        rc = store_bind_text_named(st, statement, ":concept", value->concept);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(statement, ":concept_meaning",
+        rc = store_bind_text_named(st, statement, ":concept_meaning",
                                    value->meaning);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(statement, ":item_position",
+        rc = store_bind_text_named(st, statement, ":item_position",
                                    value->position);
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(
+        rc = store_bind_text_named(st, 
             statement, ":mode",
             value->mode >= 0 ? exam_mode_name((exam_mode)value->mode) : NULL);
     if (rc == SQLITE_OK)
@@ -68,9 +68,9 @@ static int store_write_header(store *st, const store_bytes *header,
 {
     sqlite3_stmt *statement =
         header != NULL ? st->write.upsert_header : st->write.delete_header;
-    int rc = store_bind_int_named(statement, ":instance_id", instance_id);
+    int rc = store_bind_int_named(st, statement, ":instance_id", instance_id);
     if (rc == SQLITE_OK && header != NULL) {
-        int index = store_parameter_index(statement, ":bytes");
+        int index = store_parameter_index(st, statement, ":bytes");
         rc = index == 0 ? SQLITE_RANGE
                         : sqlite3_bind_blob64(statement, index, header->data,
                                               header->size, SQLITE_STATIC);

@@ -8,7 +8,7 @@
 
 #include <math.h>
 
-static int store_exam_bind(sqlite3_stmt *statement, const store_exam *input)
+static int store_exam_bind(store *st, sqlite3_stmt *statement, const store_exam *input)
 {
     const ext_exam *exam = input->exam;
     const struct {
@@ -29,7 +29,7 @@ static int store_exam_bind(sqlite3_stmt *statement, const store_exam *input)
     };
     int rc = SQLITE_OK;
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0]; i++)
-        rc = store_bind_text_named(statement, texts[i].name, texts[i].value);
+        rc = store_bind_text_named(st, statement, texts[i].name, texts[i].value);
     const struct {
         const char *name;
         sqlite3_int64 value;
@@ -44,7 +44,7 @@ static int store_exam_bind(sqlite3_stmt *statement, const store_exam *input)
         {":capped_count", (sqlite3_int64)exam->summary.capped_count},
     };
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof integers / sizeof integers[0]; i++)
-        rc = store_bind_int_named(statement, integers[i].name, integers[i].value);
+        rc = store_bind_int_named(st, statement, integers[i].name, integers[i].value);
     const struct {
         const char *name;
         int present;
@@ -65,7 +65,7 @@ static int store_exam_bind(sqlite3_stmt *statement, const store_exam *input)
         {":sr_scan_time_seconds", exam->sr_scan_time_seconds > 0, exam->sr_scan_time_seconds},
     };
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof reals / sizeof reals[0]; i++)
-        rc = store_bind_double_named(statement, reals[i].name, reals[i].present,
+        rc = store_bind_double_named(st, statement, reals[i].name, reals[i].present,
                                      reals[i].value);
     /* NOT NULL columns: a non-finite sum must not become NULL silently. */
     for (size_t i = 7; rc == SQLITE_OK && i <= 11; i++)
@@ -91,24 +91,24 @@ static int store_exam_children(store *st, const store_exam *input)
         const ext_timeline_entry *entry = &exam->entries[i];
         size_t instance = exam->capture_instance[entry->capture];
         sqlite3_stmt *statement = st->write.insert_timeline;
-        rc = store_bind_text_named(statement, ":study_instance_uid", input->study_instance_uid);
+        rc = store_bind_text_named(st, statement, ":study_instance_uid", input->study_instance_uid);
         if (rc == SQLITE_OK)
-            rc = store_bind_int_named(statement, ":position", (sqlite3_int64)i + 1);
+            rc = store_bind_int_named(st, statement, ":position", (sqlite3_int64)i + 1);
         if (rc == SQLITE_OK)
-            rc = store_bind_text_named(statement, ":sop_instance_uid",
+            rc = store_bind_text_named(st, statement, ":sop_instance_uid",
                                        input->instances[instance].sop_instance_uid);
         if (rc == SQLITE_OK)
-            rc = store_bind_double_named(statement, ":start_seconds", 1, entry->start_seconds);
+            rc = store_bind_double_named(st, statement, ":start_seconds", 1, entry->start_seconds);
         if (rc == SQLITE_OK)
-            rc = store_bind_double_named(statement, ":interval_seconds", 1,
+            rc = store_bind_double_named(st, statement, ":interval_seconds", 1,
                                          entry->interval_seconds);
         if (rc == SQLITE_OK)
-            rc = store_bind_double_named(statement, ":cine_seconds", 1, entry->cine_seconds);
+            rc = store_bind_double_named(st, statement, ":cine_seconds", 1, entry->cine_seconds);
         if (rc == SQLITE_OK)
-            rc = store_bind_double_named(statement, ":attributed_seconds", 1,
+            rc = store_bind_double_named(st, statement, ":attributed_seconds", 1,
                                          entry->attributed_seconds);
         if (rc == SQLITE_OK)
-            rc = store_bind_int_named(statement, ":capped", entry->capped ? 1 : 0);
+            rc = store_bind_int_named(st, statement, ":capped", entry->capped ? 1 : 0);
         rc = store_exam_step(statement, rc);
     }
     for (int m = 0; rc == SQLITE_OK && m < EXAM_MODE_COUNT; m++) {
@@ -117,16 +117,16 @@ static int store_exam_children(store *st, const store_exam *input)
             if (maximum.status != EXAM_VALUE_OK)
                 continue;
             sqlite3_stmt *statement = st->write.insert_mode_maximum;
-            rc = store_bind_text_named(statement, ":study_instance_uid",
+            rc = store_bind_text_named(st, statement, ":study_instance_uid",
                                        input->study_instance_uid);
             if (rc == SQLITE_OK)
-                rc = store_bind_text_named(statement, ":mode", exam_mode_name((exam_mode)m));
+                rc = store_bind_text_named(st, statement, ":mode", exam_mode_name((exam_mode)m));
             if (rc == SQLITE_OK)
-                rc = store_bind_int_named(statement, ":rank", m);
+                rc = store_bind_int_named(st, statement, ":rank", m);
             if (rc == SQLITE_OK)
-                rc = store_bind_text_named(statement, ":index_name", exam_index_name((exam_index)x));
+                rc = store_bind_text_named(st, statement, ":index_name", exam_index_name((exam_index)x));
             if (rc == SQLITE_OK)
-                rc = store_bind_double_named(statement, ":max_value", 1, maximum.value);
+                rc = store_bind_double_named(st, statement, ":max_value", 1, maximum.value);
             rc = store_exam_step(statement, rc);
         }
     }
@@ -142,7 +142,8 @@ mitilog_status store_write_exam(store *st, const store_exam *input, mitilog_erro
         rc = store_exam_step(deletes[i], rc);
     }
     if (rc == SQLITE_OK)
-        rc = store_exam_step(st->write.upsert_exam, store_exam_bind(st->write.upsert_exam, input));
+        rc = store_exam_step(st->write.upsert_exam,
+                             store_exam_bind(st, st->write.upsert_exam, input));
     if (rc == SQLITE_OK)
         rc = store_exam_children(st, input);
     if (rc != SQLITE_OK)

@@ -1,8 +1,8 @@
 /*
  * hash.h - SHA-256 (OpenSSL) as lower-case hex, used to name files from
  * identifiers so no raw header string ever becomes a path; and FNV-1a, a
- * fast 64-bit hash for in-memory lookup tables (not for anything that
- * must resist a chosen input). No allocation is left to the caller.
+ * fast 64-bit hash for the in-memory lookup table of hash_table.h (not
+ * for anything that must resist a chosen input). No allocation is left to the caller.
  */
 #ifndef MITILOG_HASH_H
 #define MITILOG_HASH_H

@@ -1,6 +1,5 @@
 #include "util/log.h"
 
-#include <pthread.h>
 #include <stdarg.h>
 #include <stdio.h>
 #include <string.h>
@@ -8,8 +7,9 @@
 #include <sys/time.h>
 #include <time.h>
 
+/* The one process-wide setting (log.h): written once at start-up, before
+ * any thread; read by every line. */
 static log_level minimum_level = LOG_LEVEL_INFO;
-static pthread_mutex_t output_lock = PTHREAD_MUTEX_INITIALIZER;
 
 void log_set_level(log_level level) { minimum_level = level; }
 
@@ -39,11 +39,12 @@ static void log_write(log_level level, const char *format, va_list arguments)
     used += snprintf(line + used, sizeof line - (size_t)used, ".%03ldZ %s: ",
                      (long)(now.tv_usec / 1000), labels[level]);
     vsnprintf(line + used, sizeof line - (size_t)used, format, arguments);
-    pthread_mutex_lock(&output_lock);
+    /* stderr's own lock (POSIX flockfile) keeps each line whole. */
+    flockfile(stderr);
     fputs(line, stderr);
     fputc('\n', stderr);
     fflush(stderr);
-    pthread_mutex_unlock(&output_lock);
+    funlockfile(stderr);
 }
 
 #define LOG_DEFINE(name, level)                                              \

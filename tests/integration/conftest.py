@@ -31,7 +31,8 @@ AE_TITLE = "MITILOG"
 DCMTK_ENV = dict(os.environ, TCP_NODELAY="1")
 
 # A sanitizer report is never an expected error.
-SANITIZER_RE = re.compile(r"(AddressSanitizer|LeakSanitizer|UndefinedBehaviorSanitizer|runtime error:)")
+SANITIZER_RE = re.compile(r"(AddressSanitizer|LeakSanitizer|UndefinedBehaviorSanitizer|"
+                          r"ThreadSanitizer|runtime error:)")
 ERROR_RE = re.compile(r"\berror:", re.IGNORECASE)
 
 
@@ -90,6 +91,7 @@ class Daemon:
                 f.write("\n")
         self.stdout_path = os.path.join(self.workdir, "serve.stdout")
         self.stderr_path = os.path.join(self.workdir, "serve.stderr")
+        self.environment = dict(DCMTK_ENV)   # of the serve process
         self.process = None
         self.returncode = None
         self.stopped_at = None
@@ -103,7 +105,7 @@ class Daemon:
         self.process = subprocess.Popen(
             [BINARY, "serve", "--config", self.config],
             stdout=self._out, stderr=self._err, cwd=self.workdir,
-            env=DCMTK_ENV)
+            env=self.environment)
         calling = "ECHOSCU"
         if self.allowed.strip():
             calling = self.allowed.split(",")[0].split("@")[0].strip()

@@ -129,10 +129,13 @@ ORDER BY 1, 2
 
 
 def test_changed_ladder_is_recomputed(imported):
-    """A database whose ladder is not the binary's (a threshold missing, the
-    times lost) is brought back at the next start: the binary's ladder,
-    every exam's times recomputed from its timeline."""
+    """A database whose ladder and mode names are not the binary's (a
+    threshold missing, the times lost, a mode renamed) is brought back at
+    the next start: the binary's ladder, every exam's times recomputed from
+    its timeline, the binary's mode names (docs/api.md: "2d" for bit 0,
+    PS3.3 C.8.5.6.1.1 order)."""
     with imported.db() as db:
+        modes = db.execute("SELECT rank, mode FROM mode_names ORDER BY rank").fetchall()
         ladder = [row[0] for row in db.execute(
             "SELECT threshold FROM ti_thresholds ORDER BY threshold")]
         before = db.execute("SELECT * FROM exam_time_at_or_above ORDER BY 1, 2").fetchall()
@@ -142,6 +145,7 @@ def test_changed_ladder_is_recomputed(imported):
     db = sqlite3.connect(imported.database)
     db.execute("DELETE FROM ti_thresholds WHERE threshold = ?", (ladder[-1],))
     db.execute("DELETE FROM exam_time_at_or_above")
+    db.execute("UPDATE mode_names SET mode = 'b-mode' WHERE rank = 0")
     db.commit()
     db.close()
     imported.process = None
@@ -152,7 +156,9 @@ def test_changed_ladder_is_recomputed(imported):
             "SELECT threshold FROM ti_thresholds ORDER BY threshold")] == ladder
         after = db.execute("SELECT * FROM exam_time_at_or_above ORDER BY 1, 2").fetchall()
         oracle = db.execute(ORACLE).fetchall()
+        assert db.execute("SELECT rank, mode FROM mode_names ORDER BY rank").fetchall() == modes
+    assert modes[0] == (0, "2d")
     assert after == before
-    timed = {(uid, threshold): seconds for uid, threshold, seconds in after}
+    timed = {(uid, threshold): seconds for _, uid, threshold, seconds in after}
     for uid, threshold, seconds in oracle:
         assert timed[(uid, threshold)] == pytest.approx(seconds, abs=1e-9)
