@@ -162,6 +162,24 @@ static int store_run(sqlite3_stmt *statement, int rc)
     return rc;
 }
 
+/* Runs statement, which may add a policy row (policy_upsert.sql,
+ * policy_ensure.sql); when it did, the new row is the current policy and
+ * every exam summary takes that policy's measurement
+ * (exam_summary_policy_refresh.sql). An update of an existing row leaves
+ * the current policy as it was, so nothing more is run. */
+static int store_run_policy_row(sqlite3 *db, sqlite3_stmt *statement, sqlite3_stmt *refresh,
+                                int rc)
+{
+    if (rc != SQLITE_OK)
+        return store_run(statement, rc);
+    /* an upsert's update and a DO NOTHING leave the last rowid alone */
+    sqlite3_set_last_insert_rowid(db, 0);
+    rc = store_run(statement, rc);
+    if (rc == SQLITE_OK && sqlite3_last_insert_rowid(db) != 0)
+        rc = store_run(refresh, rc);
+    return rc;
+}
+
 /* One entry of the policy's limits (policy_limits_append.sql) and its
  * dwell table (policy_dwell_step_append.sql), entry number index. */
 static int store_write_limits(store *st, sqlite3_stmt *limits, sqlite3_stmt *step, const char *version,
@@ -200,11 +218,13 @@ mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog
 {
     store_statements set = {0};
     sqlite3_stmt *upsert = store_statement(st, &set, "queries/policy_upsert.sql", error);
+    sqlite3_stmt *refresh =
+        store_statement(st, &set, "queries/exam_summary_policy_refresh.sql", error);
     sqlite3_stmt *rule = store_statement(st, &set, "queries/policy_rule_append.sql", error);
     sqlite3_stmt *setting = store_statement(st, &set, "queries/policy_setting_set.sql", error);
     sqlite3_stmt *limits = store_statement(st, &set, "queries/policy_limits_append.sql", error);
     sqlite3_stmt *step = store_statement(st, &set, "queries/policy_dwell_step_append.sql", error);
-    if (upsert == NULL || rule == NULL || setting == NULL || limits == NULL || step == NULL) {
+    if (upsert == NULL || refresh == NULL || rule == NULL || setting == NULL || limits == NULL || step == NULL) {
         store_statements_finalize(&set);
         return MITILOG_ERROR_DATABASE;
     }
@@ -219,7 +239,7 @@ mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog
                                      policy->closed_after_idle_minutes);
     if (rc == SQLITE_OK)
         rc = store_bind_double_named(st, upsert, ":gap_cap_seconds", 1, policy->gap_cap_seconds);
-    rc = store_run(upsert, rc);
+    rc = store_run_policy_row(st->writer, upsert, refresh, rc);
     for (size_t r = 0; rc == SQLITE_OK && r < policy->rule_count; r++) {
         const exam_rule_info *info = &policy->rules[r];
         rc = store_bind_text_named(st, rule, ":version", policy->version);
@@ -409,6 +429,8 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "evaluation: out of memory");
     store_statements set = {0};
     sqlite3_stmt *ensure = store_statement(st, &set, "queries/policy_ensure.sql", error);
+    sqlite3_stmt *refresh =
+        store_statement(st, &set, "queries/exam_summary_policy_refresh.sql", error);
     sqlite3_stmt *stored = store_statement(st, &set,
                                            exam ? "queries/evaluation_hash_exam.sql"
                                                 : "queries/evaluation_hash_device.sql",
@@ -429,7 +451,7 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
     sqlite3_stmt *times_insert =
         exam ? store_statement(st, &set, "queries/measurement_time_at_or_above_insert.sql", error)
              : NULL;
-    if (ensure == NULL || stored == NULL || (exam && context == NULL) || removal == NULL ||
+    if (ensure == NULL || refresh == NULL || stored == NULL || (exam && context == NULL) || removal == NULL ||
         supersede == NULL || insert == NULL || values == NULL ||
         (exam && (times_removal == NULL || times_insert == NULL))) {
         store_statements_finalize(&set);
@@ -440,7 +462,7 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
     if (rc == SQLITE_OK)
         rc = store_bind_text_named(st, ensure, ":normalised_text",
                                    store_or_empty(e->normalised_text));
-    rc = store_run(ensure, rc);
+    rc = store_run_policy_row(st->writer, ensure, refresh, rc);
     if (rc == SQLITE_OK && exam)
         rc = store_write_context_row(st, context, e);
     /* Unchanged? */

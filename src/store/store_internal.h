@@ -50,7 +50,10 @@ typedef struct store_write_statements {
     sqlite3_stmt *insert_mode_maximum;
     sqlite3_stmt *upsert_header;
     sqlite3_stmt *delete_header;
-    sqlite3_stmt *refresh_summary;
+    sqlite3_stmt *summary_delete;     /* the exam summary refresh, in order */
+    sqlite3_stmt *summary_insert;
+    sqlite3_stmt *times_delete;
+    sqlite3_stmt *times_insert;
 } store_write_statements;
 
 /* Statements of the read connection; used under reader_lock. */
