@@ -255,7 +255,7 @@ mitilog_status store_policy_json(store *store, char **json, mitilog_error *error
 /* ---- Statistics reads (store_read_stats.c) ---- */
 
 /* The exams of a period are exam_row (exam/exam.h), read by
- * sql/queries/stats_exam_rows.sql and its shorter variants; their strings
+ * sql/queries/reports/stats_exam_rows.sql and its shorter variants; their strings
  * belong to the store_exam_list that holds them (study_instance_uid is
  * always read). */
 
@@ -270,7 +270,7 @@ enum {
     STORE_EXAM_SHIFT = 1 << 4,
     STORE_EXAM_TRANSDUCER = 1 << 5,
     /* day only; with ROOM and PRESET and no other bit, the short rows of
-     * sql/queries/stats_exam_series.sql: exam type, day, room, preset,
+     * sql/queries/reports/stats_exam_series.sql: exam type, day, room, preset,
      * governing maximum, capture and indexed counts (drift) */
     STORE_EXAM_DAY = 1 << 6,
     STORE_EXAM_ALL = (1 << 7) - 1
@@ -292,7 +292,7 @@ mitilog_status store_load_exam_rows(store *store, const char *from_day,
                                     store_exam_list *list, mitilog_error *error);
 /* Only exam_type and the governing maximum (has_governing,
  * max_governing) of the exams whose day is at or after from_day and
- * before before_day, in no particular order (sql/queries/
+ * before before_day, in no particular order (sql/queries/reports/
  * stats_exam_governing.sql): a baseline. */
 mitilog_status store_load_exam_governing(store *store, const char *from_day,
                                          const char *before_day, store_exam_list *list,

@@ -217,13 +217,13 @@ static int store_write_limits(store *st, sqlite3_stmt *limits, sqlite3_stmt *ste
 mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog_error *error)
 {
     store_statements set = {0};
-    sqlite3_stmt *upsert = store_statement(st, &set, "queries/policy_upsert.sql", error);
+    sqlite3_stmt *upsert = store_statement(st, &set, "queries/findings/policy_upsert.sql", error);
     sqlite3_stmt *refresh =
-        store_statement(st, &set, "queries/exam_summary_policy_refresh.sql", error);
-    sqlite3_stmt *rule = store_statement(st, &set, "queries/policy_rule_append.sql", error);
-    sqlite3_stmt *setting = store_statement(st, &set, "queries/policy_setting_set.sql", error);
-    sqlite3_stmt *limits = store_statement(st, &set, "queries/policy_limits_append.sql", error);
-    sqlite3_stmt *step = store_statement(st, &set, "queries/policy_dwell_step_append.sql", error);
+        store_statement(st, &set, "queries/exams/exam_summary_policy_refresh.sql", error);
+    sqlite3_stmt *rule = store_statement(st, &set, "queries/findings/policy_rule_append.sql", error);
+    sqlite3_stmt *setting = store_statement(st, &set, "queries/findings/policy_setting_set.sql", error);
+    sqlite3_stmt *limits = store_statement(st, &set, "queries/findings/policy_limits_append.sql", error);
+    sqlite3_stmt *step = store_statement(st, &set, "queries/findings/policy_dwell_step_append.sql", error);
     if (upsert == NULL || refresh == NULL || rule == NULL || setting == NULL || limits == NULL || step == NULL) {
         store_statements_finalize(&set);
         return MITILOG_ERROR_DATABASE;
@@ -428,28 +428,28 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
     if (store_evaluation_hash(e, hash) != 0)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "evaluation: out of memory");
     store_statements set = {0};
-    sqlite3_stmt *ensure = store_statement(st, &set, "queries/policy_ensure.sql", error);
+    sqlite3_stmt *ensure = store_statement(st, &set, "queries/findings/policy_ensure.sql", error);
     sqlite3_stmt *refresh =
-        store_statement(st, &set, "queries/exam_summary_policy_refresh.sql", error);
+        store_statement(st, &set, "queries/exams/exam_summary_policy_refresh.sql", error);
     sqlite3_stmt *stored = store_statement(st, &set,
-                                           exam ? "queries/evaluation_hash_exam.sql"
-                                                : "queries/evaluation_hash_device.sql",
+                                           exam ? "queries/findings/evaluation_hash_exam.sql"
+                                                : "queries/findings/evaluation_hash_device.sql",
                                            error);
-    sqlite3_stmt *context = exam ? store_statement(st, &set, "queries/exam_context_upsert.sql",
+    sqlite3_stmt *context = exam ? store_statement(st, &set, "queries/exams/exam_context_upsert.sql",
                                                    error)
                                  : NULL;
-    sqlite3_stmt *removal = store_statement(st, &set, "queries/findings_delete.sql", error);
-    sqlite3_stmt *supersede = store_statement(st, &set, "queries/findings_supersede.sql", error);
-    sqlite3_stmt *insert = store_statement(st, &set, "queries/finding_insert.sql", error);
+    sqlite3_stmt *removal = store_statement(st, &set, "queries/findings/findings_delete.sql", error);
+    sqlite3_stmt *supersede = store_statement(st, &set, "queries/findings/findings_supersede.sql", error);
+    sqlite3_stmt *insert = store_statement(st, &set, "queries/findings/finding_insert.sql", error);
     sqlite3_stmt *values = store_statement(st, &set,
-                                           exam ? "queries/exam_measurements_upsert.sql"
-                                                : "queries/device_evaluation_upsert.sql",
+                                           exam ? "queries/findings/exam_measurements_upsert.sql"
+                                                : "queries/findings/device_evaluation_upsert.sql",
                                            error);
     sqlite3_stmt *times_removal =
-        exam ? store_statement(st, &set, "queries/measurement_time_at_or_above_delete.sql", error)
+        exam ? store_statement(st, &set, "queries/findings/measurement_time_at_or_above_delete.sql", error)
              : NULL;
     sqlite3_stmt *times_insert =
-        exam ? store_statement(st, &set, "queries/measurement_time_at_or_above_insert.sql", error)
+        exam ? store_statement(st, &set, "queries/findings/measurement_time_at_or_above_insert.sql", error)
              : NULL;
     if (ensure == NULL || refresh == NULL || stored == NULL || (exam && context == NULL) || removal == NULL ||
         supersede == NULL || insert == NULL || values == NULL ||

@@ -144,12 +144,12 @@ mitilog_status store_read_prepare(store *st, mitilog_error *error)
         const char *name;
         sqlite3_stmt **statement;
     } files[] = {
-        {"queries/instances_by_study.sql", &st->read.instances_by_study},
-        {"queries/instances_since.sql", &st->read.instances_since},
-        {"queries/studies.sql", &st->read.studies},
-        {"queries/health.sql", &st->read.health},
-        {"queries/study_load.sql", &st->read.study_load},
-        {"queries/study_detail.sql", &st->read.study_detail},
+        {"queries/instances/instances_by_study.sql", &st->read.instances_by_study},
+        {"queries/instances/instances_since.sql", &st->read.instances_since},
+        {"queries/instances/studies.sql", &st->read.studies},
+        {"queries/database/health.sql", &st->read.health},
+        {"queries/instances/study_load.sql", &st->read.study_load},
+        {"queries/instances/study_detail.sql", &st->read.study_detail},
     };
     for (size_t i = 0; i < sizeof files / sizeof files[0]; i++) {
         mitilog_status status = store_prepare(st->reader, files[i].name,

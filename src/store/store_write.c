@@ -289,7 +289,7 @@ static int store_bind_context(store *st, sqlite3_stmt *statement,
     return rc;
 }
 
-/* Binds every parameter of queries/instance_upsert.sql from record. */
+/* Binds every parameter of queries/instances/instance_upsert.sql from record. */
 static int store_bind_instance(store *st, sqlite3_stmt *statement,
                                const ext_record *record)
 {
@@ -734,26 +734,26 @@ mitilog_status store_write_prepare(store *st, mitilog_error *error)
         const char *name;
         sqlite3_stmt **statement;
     } files[] = {
-        {"queries/write_begin.sql", &st->write.begin},
-        {"queries/write_commit.sql", &st->write.commit},
-        {"queries/write_rollback.sql", &st->write.rollback},
-        {"queries/instance_upsert.sql", &st->write.upsert_instance},
-        {"queries/rejection_insert.sql", &st->write.insert_rejection},
-        {"queries/sr_values_delete.sql", &st->write.delete_sr_values},
-        {"queries/sr_value_insert.sql", &st->write.insert_sr_value},
-        {"queries/exam_upsert.sql", &st->write.upsert_exam},
-        {"queries/exam_timeline_delete.sql", &st->write.delete_timeline},
-        {"queries/exam_mode_maxima_delete.sql",
+        {"queries/database/write_begin.sql", &st->write.begin},
+        {"queries/database/write_commit.sql", &st->write.commit},
+        {"queries/database/write_rollback.sql", &st->write.rollback},
+        {"queries/instances/instance_upsert.sql", &st->write.upsert_instance},
+        {"queries/instances/rejection_insert.sql", &st->write.insert_rejection},
+        {"queries/instances/sr_values_delete.sql", &st->write.delete_sr_values},
+        {"queries/instances/sr_value_insert.sql", &st->write.insert_sr_value},
+        {"queries/exams/exam_upsert.sql", &st->write.upsert_exam},
+        {"queries/exams/exam_timeline_delete.sql", &st->write.delete_timeline},
+        {"queries/exams/exam_mode_maxima_delete.sql",
          &st->write.delete_mode_maxima},
-        {"queries/exam_timeline_insert.sql", &st->write.insert_timeline},
-        {"queries/exam_mode_maximum_insert.sql",
+        {"queries/exams/exam_timeline_insert.sql", &st->write.insert_timeline},
+        {"queries/exams/exam_mode_maximum_insert.sql",
          &st->write.insert_mode_maximum},
-        {"queries/instance_header_upsert.sql", &st->write.upsert_header},
-        {"queries/instance_header_delete.sql", &st->write.delete_header},
-        {"queries/exam_summary_delete.sql", &st->write.summary_delete},
-        {"queries/exam_summary_insert.sql", &st->write.summary_insert},
-        {"queries/exam_time_at_or_above_delete.sql", &st->write.times_delete},
-        {"queries/exam_time_at_or_above_insert.sql", &st->write.times_insert},
+        {"queries/instances/instance_header_upsert.sql", &st->write.upsert_header},
+        {"queries/instances/instance_header_delete.sql", &st->write.delete_header},
+        {"queries/exams/exam_summary_delete.sql", &st->write.summary_delete},
+        {"queries/exams/exam_summary_insert.sql", &st->write.summary_insert},
+        {"queries/exams/exam_time_at_or_above_delete.sql", &st->write.times_delete},
+        {"queries/exams/exam_time_at_or_above_insert.sql", &st->write.times_insert},
     };
     for (size_t i = 0; i < sizeof files / sizeof files[0]; i++) {
         mitilog_status status = store_prepare(st->writer, files[i].name,

@@ -969,8 +969,8 @@ static void exec_sql(const char *path, const char *sql)
 static void refresh_every_summary(const char *path)
 {
     static const char *const files[] = {
-        "queries/exam_summary_delete.sql", "queries/exam_summary_insert.sql",
-        "queries/exam_time_at_or_above_delete.sql", "queries/exam_time_at_or_above_insert.sql"};
+        "queries/exams/exam_summary_delete.sql", "queries/exams/exam_summary_insert.sql",
+        "queries/exams/exam_time_at_or_above_delete.sql", "queries/exams/exam_time_at_or_above_insert.sql"};
     sqlite3 *db = NULL;
     sqlite3_stmt *exams = NULL;
     assert_int_equal(sqlite3_open(path, &db), SQLITE_OK);
