@@ -29,6 +29,35 @@ static const char *const exam_mode_names[EXAM_MODE_COUNT] = {
     "2d", "m", "cw", "pw", "colour", "colour_m", "3d", "power",
     "tissue_characterization", "spatially_related_frames"};
 
+/* PS3.3 C.8.5.6.1.1: the Image Type value 4 bit of each mode, in
+ * exam_mode order (the only place those bit values are written). */
+static const unsigned exam_image_type_bits[EXAM_MODE_COUNT] = {
+    0x0001, 0x0002, 0x0004, 0x0008, 0x0010, 0x0020, 0x0040, 0x0100,
+    0x0200, 0x0400};
+
+unsigned exam_modes_image_type_bits(unsigned modes)
+{
+    unsigned bits = 0;
+    for (int m = 0; m < EXAM_MODE_COUNT; m++)
+        if (modes & EXAM_MODE_BIT(m))
+            bits |= exam_image_type_bits[m];
+    return bits;
+}
+
+unsigned exam_image_type_defined_bits(void)
+{
+    return exam_modes_image_type_bits((1u << EXAM_MODE_COUNT) - 1);
+}
+
+unsigned exam_modes_from_image_type_bits(unsigned bits)
+{
+    unsigned modes = 0;
+    for (int m = 0; m < EXAM_MODE_COUNT; m++)
+        if (bits & exam_image_type_bits[m])
+            modes |= EXAM_MODE_BIT(m);
+    return modes;
+}
+
 const char *exam_mode_name(exam_mode mode)
 {
     if ((int)mode < 0 || mode >= EXAM_MODE_COUNT)

@@ -1,23 +1,31 @@
 /*
  * exam.h - the exam vocabulary every stage of the pipeline speaks:
  * extraction fills these types, the rules and statistics read them, the
- * store writes them and the HTTP API names them.
+ * store writes them and the HTTP API names them. Stages pass them as they
+ * are; none keeps a look-alike copied field by field.
  *
  * Owns, each in exactly one place:
- *  - the displayed indices (exam_index) and their API names;
- *  - the imaging modes (exam_mode): one bit set, one set of names;
- *  - the governing-index rule (exam_governing_index, docs/domain.md
- *    section 3);
+ *  - the value of one reading (exam_number: ok, missing or invalid, never
+ *    guessed) and the displayed indices (exam_index) with their API names;
+ *  - the imaging modes (exam_mode): one bit set, one set of names, and
+ *    their DICOM encoding in Image Type value 4;
  *  - the TI threshold ladder (exam_ti_ladder): the displayed-TI steps at
  *    or above which time is measured, stored and drawn;
- *  - the exam's policy group (exam_group): which tables, limits and
- *    governing index apply;
- *  - the value of one reading (exam_number: ok, missing or invalid,
- *    never guessed) and one capture of an exam (exam_capture).
+ *  - the governing-index rule (exam_governing_index, docs/domain.md
+ *    section 3) and the exam's policy group (exam_group);
+ *  - what a policy sets for an exam (exam_limits, exam_dwell_step) and
+ *    how its rules are described (exam_rule_info);
+ *  - a finding (exam_finding, exam_severity) and an evaluation's
+ *    measurements (exam_measurements);
+ *  - one capture of an exam (exam_capture), one instance of a day
+ *    (exam_device_instance) and one exam of a period (exam_row).
  *
- * Pure data and computation: no allocation, no state. Strings returned
- * are static; an exam_capture borrows its sop_instance_uid from whoever
- * filled it (the exam record's instances) and owns nothing.
+ * Pure data and computation: no allocation, no state; names returned are
+ * static. Who fills a type owns its strings and says so in its own
+ * header: the exam record (ext_exam.h) for captures, the policy engine's
+ * rules_result (rules.h) for findings, the policy for rule descriptions
+ * and limits, the store's lists (store.h) for exam rows and day
+ * instances.
  */
 #ifndef MITILOG_EXAM_H
 #define MITILOG_EXAM_H
@@ -89,6 +97,18 @@ typedef enum exam_mode {
     (EXAM_MODE_BIT(EXAM_MODE_CW) | EXAM_MODE_BIT(EXAM_MODE_PW) |                 \
      EXAM_MODE_BIT(EXAM_MODE_COLOUR) | EXAM_MODE_BIT(EXAM_MODE_COLOUR_M) |       \
      EXAM_MODE_BIT(EXAM_MODE_POWER))
+
+/* The DICOM encoding of a mode set: the bits of Image Type (0008,0008)
+ * value 4 of US images [std: DICOM PS3.3 C.8.5.6.1.1: 0001 2D, 0002 M,
+ * 0004 CW, 0008 PW, 0010 Color Doppler, 0020 Color M-Mode, 0040 3D
+ * Rendering, 0100 Color Power Mode, 0200 Tissue Characterization, 0400
+ * Spatially-related frames; 0080 and 0800-8000 undefined]. The reader
+ * (ext_modes.c) decodes with it, the simulator encodes with it. */
+unsigned exam_modes_image_type_bits(unsigned modes);
+/* The defined Image Type value 4 bits (the others are unknown). */
+unsigned exam_image_type_defined_bits(void);
+/* The mode set of a value 4 bitmap (undefined bits ignored). */
+unsigned exam_modes_from_image_type_bits(unsigned bits);
 
 /* API name: "2d", "m", "cw", "pw", "colour", "colour_m", "3d", "power",
  * "tissue_characterization", "spatially_related_frames"; NULL if bad. */

@@ -5,12 +5,6 @@
 #include <string.h>
 #include <strings.h>
 
-/* PS3.3 C.8.5.6.1.1: the Image Type value 4 bit of each mode, in
- * exam_mode order (the only place those bit values are written). */
-static const unsigned mode_bits[EXAM_MODE_COUNT] = {
-    0x0001, 0x0002, 0x0004, 0x0008, 0x0010, 0x0020, 0x0040, 0x0100,
-    0x0200, 0x0400};
-
 int ext_multi_value(const char *values, int number, char *out, size_t size)
 {
     if (size == 0)
@@ -71,13 +65,8 @@ ext_bitmap ext_modes_from_image_type(const char *image_type)
     }
     result.status = EXT_BITMAP_OK;
     result.raw = raw;
-    unsigned known = 0;
-    for (int m = 0; m < EXAM_MODE_COUNT; m++) {
-        known |= mode_bits[m];
-        if (raw & mode_bits[m])
-            result.modes |= EXAM_MODE_BIT(m);
-    }
-    result.unknown_bits = raw & ~known;
+    result.modes = exam_modes_from_image_type_bits(raw);
+    result.unknown_bits = raw & ~exam_image_type_defined_bits();
     return result;
 }
 
