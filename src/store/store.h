@@ -161,7 +161,7 @@ typedef struct store_policy {
 } store_policy;
 
 /* Writes (or refreshes) the policy row with its rules described as JSON
- * (built by SQLite's JSON functions) and makes it this store's active
+ * (written by json/json.h) and makes it this store's active
  * policy: the one GET /api/v1/policy serves and study details use. */
 mitilog_status store_register_policy(store *store, const store_policy *policy,
                                      mitilog_error *error);
