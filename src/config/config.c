@@ -67,7 +67,8 @@ static const option options[] = {
      "Folder holding the dashboard's files."},
     {"http", "allow_insecure_non_loopback", OPTION_CHOICE, FIELD(http_allow_insecure_non_loopback),
      "no", 0, 0, "|yes|no|", 0,
-     "HTTP has no TLS or login yet: serve refuses a non-loopback address unless this says yes."},
+     "yes: serve a non-loopback address over plain HTTP or without a login (not advised); no: "
+     "such an address needs tls_certificate, tls_private_key and password_file."},
     {"http", "tls_certificate", OPTION_STRING, FIELD(http_tls_certificate), "", 0, 0, NULL, 1,
      "PEM certificate for HTTPS; with tls_private_key the API and dashboard use TLS."},
     {"http", "tls_private_key", OPTION_STRING, FIELD(http_tls_private_key), "", 0, 0, NULL, 1,
@@ -75,6 +76,16 @@ static const option options[] = {
     {"http", "password_file", OPTION_STRING, FIELD(http_password_file), "", 0, 0, NULL, 1,
      "File of user:crypt-hash lines (mitilog passwd); set: every request but /healthz needs a "
      "login. Needs HTTPS."},
+    {"http", "max_connections", OPTION_UNSIGNED, FIELD(http_max_connections), "256", 8, 4096, NULL,
+     0, "Open HTTP connections of all clients together; more are closed at once."},
+    {"http", "max_connections_per_address", OPTION_UNSIGNED,
+     FIELD(http_max_connections_per_address), "32", 0, 4096, NULL, 0,
+     "Open HTTP connections from one client address; 0 = no limit (e.g. behind a reverse proxy "
+     "on this host, which then limits clients itself)."},
+    {"http", "request_timeout_seconds", OPTION_UNSIGNED, FIELD(http_request_timeout_seconds), "10",
+     1, 600, NULL, 0,
+     "Seconds a client has to send a whole request (TLS handshake, request line and headers), "
+     "however slowly it sends each byte; then the connection is closed."},
     {"storage", "data_directory", OPTION_STRING, FIELD(data_directory), "var", 0, 0, NULL, 1,
      "Folder for the database, spool, quarantine and header copies."},
     {"storage", "database", OPTION_STRING, FIELD(database_path), "mitilog.sqlite3", 0, 0, NULL, 0,

@@ -43,6 +43,9 @@ typedef struct config {
     char *http_tls_certificate;    /* PEM; "" = plain HTTP */
     char *http_tls_private_key;    /* PEM */
     char *http_password_file;      /* "user:crypt-hash" lines; "" = no login */
+    unsigned http_max_connections;
+    unsigned http_max_connections_per_address; /* 0 = no per-address limit */
+    unsigned http_request_timeout_seconds;
 
     /* [storage] */
     char *data_directory;
