@@ -284,6 +284,34 @@ mitilog_status store_findings_json(store *store, const store_finding_filter *fil
 /* GET /api/v1/policy: the active policy; MITILOG_ERROR_NOT_FOUND if none. */
 mitilog_status store_policy_json(store *store, char **json, mitilog_error *error);
 
+/* ---- Reviews (store_reviews.c, migration 012) ---- */
+
+/* One review act: a finding (finding_id > 0) or a whole exam
+ * (finding_id 0, study_instance_uid set) marked with an outcome
+ * ("acceptable", "discussed_with_operator", "referred_to_physics",
+ * "preset_to_change" or "reopened") and a comment, by reviewer in role.
+ * Strings are borrowed for the call. The history is append-only. */
+typedef struct store_review {
+    const char *study_instance_uid;     /* NULL with a finding: its own */
+    long long finding_id;               /* 0: the whole exam            */
+    const char *outcome, *comment, *reviewer, *role;
+} store_review;
+/* Appends the review in its own commit; MITILOG_ERROR_NOT_FOUND when the
+ * finding or exam is unknown (or the finding is of another study). */
+mitilog_status store_put_review(store *store, const store_review *review,
+                                mitilog_error *error);
+/* The review history, oldest first: JSON array, or CSV text with a
+ * header line when csv is set. study, from, to (YYYY-MM-DD, on the day
+ * recorded): NULL = any. *out is malloc'ed, freed by the caller. */
+mitilog_status store_reviews_text(store *store, const char *study, const char *from,
+                                  const char *to, int csv, char **out,
+                                  mitilog_error *error);
+/* GET /api/v1/worklist: the week starting on monday (YYYY-MM-DD), or
+ * NULL for the last complete week with data (queries/review_worklist.sql
+ * says how it ranks). *json is malloc'ed, freed by the caller. */
+mitilog_status store_worklist_json(store *store, const char *monday, char **json,
+                                   mitilog_error *error);
+
 
 /* ---- Statistics reads (store_read_stats.c) ---- */
 

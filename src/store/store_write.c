@@ -485,6 +485,7 @@ static mitilog_status store_write_one(store *st, store_request *request)
            : request->exam != NULL ? store_write_exam_summarised(st, request)
            : request->evaluation != NULL ? store_write_evaluated(st, request)
            : request->policy != NULL ? store_write_policy(st, request->policy, &request->error)
+           : request->review != NULL ? store_write_review(st, request->review, &request->error)
                                      : store_write_rejection(st, request);
 }
 
@@ -706,6 +707,16 @@ mitilog_status store_register_policy(store *st, const store_policy *policy,
         pthread_mutex_unlock(&st->reader_lock);
     }
     return status;
+}
+
+mitilog_status store_put_review(store *st, const store_review *review, mitilog_error *error)
+{
+    if (st == NULL || review == NULL || review->outcome == NULL || review->reviewer == NULL ||
+        review->role == NULL || (review->finding_id <= 0 && review->study_instance_uid == NULL))
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "a review needs a finding or a study, an outcome and a reviewer");
+    store_request request = {.review = review};
+    return store_submit(st, &request, error);
 }
 
 mitilog_status store_put_rejection(store *st,

@@ -303,7 +303,7 @@ static void health(void **state)
     response r = get_json(f, "/healthz", 200);
     assert_json(r.body, "$.status", "ok");
     assert_json(r.body, "$.database", "ok");
-    assert_json(r.body, "$.schema_version", "5"); /* migrations 001 to 005 */
+    assert_json(r.body, "$.schema_version", "12"); /* migrations 001 to 005 and 012 */
     assert_json(r.body, "$.instances", "2");
     assert_json(r.body, "$.studies", "1");
     assert_json(r.body, "$.rejections", "0");
