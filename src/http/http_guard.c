@@ -38,6 +38,7 @@ typedef struct http_guard_entry {
     struct timespec since; /* start of the request being received */
     int receiving;         /* 1 until the access handler saw the request */
     int cut;               /* shut down by the watchdog */
+    unsigned replies;      /* requests answered on this connection */
     size_t target_length;  /* bytes of the request target, query included */
     char address[INET6_ADDRSTRLEN];
 } http_guard_entry;
@@ -74,9 +75,15 @@ static void http_guard_sweep(http_guard *guard)
             continue;
         entry->cut = 1;
         shutdown(entry->socket, SHUT_RDWR);
-        log_warning("http: closed a connection from %s: no whole request within %u s "
-                    "([http] request_timeout_seconds)",
-                    entry->address, guard->deadline_seconds);
+        /* A kept-alive connection waiting for its next request is usually
+         * a browser's idle one, not a slow client: not worth a warning. */
+        if (entry->replies > 0)
+            log_debug("http: closed a kept-alive connection from %s: no further request "
+                      "within %u s", entry->address, guard->deadline_seconds);
+        else
+            log_warning("http: closed a connection from %s: no whole request within %u s "
+                        "([http] request_timeout_seconds)",
+                        entry->address, guard->deadline_seconds);
     }
 }
 
@@ -263,6 +270,7 @@ void http_guard_completed(http_guard *guard, struct MHD_Connection *connection)
     pthread_mutex_lock(&guard->lock);
     entry->receiving = 1;
     entry->target_length = 0;
+    entry->replies++;
     http_guard_now(&entry->since);
     pthread_mutex_unlock(&guard->lock);
 }

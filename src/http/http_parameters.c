@@ -172,16 +172,14 @@ static int http_check(const http_parameter_rule *rule, const char *text,
                  "with Z or +hh:mm; without an offset UTC) with a year from %d to %d",
                  HTTP_YEAR_MINIMUM, HTTP_YEAR_MAXIMUM);
         return 0;
-    case HTTP_PARAMETER_WEEK: {
-        long monday;
+    case HTTP_PARAMETER_WEEK:
+        /* stats_iso_week_parse() also checks that the week exists. */
         if (stats_iso_week_parse(text, &value->iso_year, &value->iso_week) == MITILOG_OK &&
-            value->iso_year >= HTTP_YEAR_MINIMUM && value->iso_year <= HTTP_YEAR_MAXIMUM &&
-            stats_iso_week_monday(value->iso_year, value->iso_week, &monday) == MITILOG_OK)
+            value->iso_year >= HTTP_YEAR_MINIMUM && value->iso_year <= HTTP_YEAR_MAXIMUM)
             return 1;
         snprintf(message, size, "not an ISO week YYYY-Www that exists, with a year from %d to %d",
                  HTTP_YEAR_MINIMUM, HTTP_YEAR_MAXIMUM);
         return 0;
-    }
     case HTTP_PARAMETER_INTEGER:
         if (length > 0 && length <= HTTP_INTEGER_DIGITS_MAX &&
             strspn(text, "0123456789") == length) {
@@ -209,10 +207,20 @@ static int http_check(const http_parameter_rule *rule, const char *text,
     case HTTP_PARAMETER_CHOICE:
         if (http_is_choice(text, rule->choices))
             return 1;
-        snprintf(message, size, "one of %s", rule->choices);
-        for (char *bar = strchr(message, '|'); bar != NULL; bar = strchr(bar, '|'))
-            *bar = ',';
+    {
+        /* "one of a, b, c" from "a|b|c" */
+        size_t used = (size_t)snprintf(message, size, "one of ");
+        for (const char *at = rule->choices; *at != '\0' && used + 3 < size; at++) {
+            if (*at == '|') {
+                message[used++] = ',';
+                message[used++] = ' ';
+            } else {
+                message[used++] = *at;
+            }
+        }
+        message[used] = '\0';
         return 0;
+    }
     }
     snprintf(message, size, "unknown rule");
     return 0;

@@ -10,7 +10,7 @@
 enum {
     HTTP_THROTTLE_ENTRIES = 4096, /* addresses and names remembered */
     HTTP_THROTTLE_KEY_MAX = 80,
-    HTTP_THROTTLE_FREE_FAILURES = 5,
+    HTTP_THROTTLE_FIRST_WAITING_FAILURE = 5,
     HTTP_THROTTLE_WAIT_MAX_S = 300,
     HTTP_THROTTLE_FORGET_S = 3600
 };
@@ -126,7 +126,7 @@ unsigned http_throttle_wait(http_throttle *throttle, const char *address, const 
     return seconds < wait ? seconds + 1 : seconds;
 }
 
-/* One more failure on entry: past the free ones, locked for 1, 2, 4 ...
+/* One more failure on entry: from the fifth on, locked for 1, 2, 4 ...
  * up to HTTP_THROTTLE_WAIT_MAX_S seconds. A failure counts only if the
  * entry has not been forgotten. */
 static unsigned http_throttle_count(http_throttle_entry *entry, double now)
@@ -135,8 +135,8 @@ static unsigned http_throttle_count(http_throttle_entry *entry, double now)
         entry->failures = 0;
     entry->failures++;
     entry->last_failure = now;
-    if (entry->failures >= HTTP_THROTTLE_FREE_FAILURES) {
-        unsigned steps = entry->failures - HTTP_THROTTLE_FREE_FAILURES;
+    if (entry->failures >= HTTP_THROTTLE_FIRST_WAITING_FAILURE) {
+        unsigned steps = entry->failures - HTTP_THROTTLE_FIRST_WAITING_FAILURE;
         double wait = steps >= 9 ? HTTP_THROTTLE_WAIT_MAX_S : (double)(1u << steps);
         if (wait > HTTP_THROTTLE_WAIT_MAX_S)
             wait = HTTP_THROTTLE_WAIT_MAX_S;

@@ -1,10 +1,9 @@
 /*
  * http_throttle.h - failed logins per client address and per user name.
  *
- * The first HTTP_THROTTLE_FREE_FAILURES (5) failures of an address or of
- * a user name cost nothing; each further one makes that address or name
- * wait 1, 2, 4 ... up to 300 seconds before its next try (answered 429
- * without checking the password meanwhile). A success clears the counts
+ * From the fifth failure of an address or of a user name on, each failure
+ * makes that address or name wait 1, 2, 4 ... up to 300 seconds before its
+ * next try (answered 429 without checking the password meanwhile). A success clears the counts
  * of its address and user; counts are forgotten an hour after the last
  * failure. Unknown user names are counted like known ones, so the replies
  * tell nothing about which names exist. At most 4096 addresses and names

@@ -92,7 +92,8 @@ static void throttle(void **state)
     assert_int_equal(http_throttle_create(&table, &error), MITILOG_OK);
     unsigned by_address, by_user;
     /* common practice, no source (OWASP Authentication Cheat Sheet,
-     * "Login Throttling"): five free failures, then 1, 2, 4 ... s. */
+     * "Login Throttling"): four free failures; from the fifth on, waits of
+     * 1, 2, 4 ... s. */
     for (int i = 1; i <= 4; i++) {
         http_throttle_failed(table, "10.0.0.1", "lead", 100.0, &by_address, &by_user);
         assert_int_equal(by_address, (unsigned)i);
