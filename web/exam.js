@@ -13,38 +13,24 @@ const SERIES = [
   { key: 'tic', label: 'TIC', shape: 'diamond', dash: '10 3 2 3', stroke: '#5b4a7a' },
 ];
 
-// Defaults of docs/policy.md, used when the policy API does not answer.
-const DEFAULT_LIMITS = {
-  source: 'policy defaults (docs/policy.md); the active policy could not be read',
-  ti: 2.0, mi: 1.9,
-  dwell: { general: { '1.0': 120, '1.5': 60, '2.0': 15, '2.5': 4, '3.0': 1 },
-           obstetric: { '0.7': 60, '1.0': 30, '1.5': 15, '2.0': 4, '2.5': 1 } },
-};
-
-function limitsFromPolicy(policy, examType) {
-  const limits = { source: `active policy ${policy.version ? policy.version.slice(0, 12) + '…' : ''}`, ti: null, mi: null, miCeiling: null, dwell: {} };
-  const obstetric = /^(obstetric|neonatal|gyn)/.test(examType || '');
-  for (const rule of policy.rules || []) {
-    if (rule.enabled === false) continue;
-    const settings = rule.settings || {};
-    if (rule.kind === 'ti_ceiling' || rule.id === 'ti_ceiling') limits.ti = parseFloat(settings.limit);
-    if (rule.kind === 'equipment_maxima' || rule.id === 'equipment_maxima') limits.mi = parseFloat(settings.mi_limit);
-    if (rule.id === 'mi_ceiling') limits.miCeiling = parseFloat(settings.limit);
-    if ((rule.kind === 'dwell' || rule.id.startsWith('dwell_')) &&
-        ((obstetric && rule.id.includes('obstetric')) || (!obstetric && rule.id.includes('general')))) {
-      for (const [key, value] of Object.entries(settings)) {
-        const match = /^dwell\.([0-9.]+)$/.exec(key);
-        if (match && /^[0-9.]+$/.test(String(value))) limits.dwell[match[1]] = parseFloat(value);
-      }
-      limits.dwellRule = rule.id;
-    }
-  }
-  return limits;
-}
-
-function chooseDwell(limits, examType) {
-  if (limits.dwellRule !== undefined || !limits.dwell.general) return limits.dwell;
-  return /^(obstetric|neonatal|gyn)/.test(examType || '') ? limits.dwell.obstetric : limits.dwell.general;
+// The limits drawn come from the active policy (/api/v1/policy `limits`:
+// per exam group and age group, as the policy engine applies them) and
+// the exam's own group (`group` of the study); nothing is assumed here.
+// Without either, no limit is drawn and the legend says why.
+function limitsFor(policy, study) {
+  const none = (why) => ({ source: why, ti: null, mi: null, miCeiling: null, dwell: [] });
+  if (!policy || !Array.isArray(policy.limits)) return none('the active policy could not be read: no limits drawn');
+  if (!study.group) return none('the exam group is not recorded yet (the exam is rebuilt with its next object): no limits drawn');
+  const age = (study.context && study.context.age_group) || 'adult';
+  const entry = policy.limits.find((l) => l.group === study.group && l.age_group === age) ||
+    policy.limits.find((l) => l.group === study.group && l.age_group === 'adult');
+  if (!entry) return none(`the active policy sets no limits for group ${study.group}: no limits drawn`);
+  return {
+    source: `active policy ${policy.version ? policy.version.slice(0, 12) + '…' : ''}, group ${entry.group}, age group ${entry.age_group}` +
+      (entry.dwell_rule ? `, dwell table of ${entry.dwell_rule}` : ''),
+    ti: entry.ti_ceiling, mi: entry.mi_equipment, miCeiling: entry.mi_ceiling,
+    dwell: (entry.dwell || []).map((d) => ({ threshold: d.threshold, text: d.not_recommended ? 'not recommended' : `${d.minutes} min` })),
+  };
 }
 
 function timelineChart(study, limits) {
@@ -58,7 +44,7 @@ function timelineChart(study, limits) {
     return chart;
   }
   const present = SERIES.filter((s) => points.some((p) => typeof p.instance[s.key] === 'number'));
-  const dwell = chooseDwell(limits, study.exam_type);
+  const dwell = limits.dwell;
   const limitValues = [limits.ti, limits.mi].filter((v) => typeof v === 'number' && !Number.isNaN(v));
   const values = points.flatMap((p) => present.map((s) => p.instance[s.key]).filter((v) => typeof v === 'number'));
   const yMax = niceMax(Math.max(...values, ...limitValues, 0.5) * 1.05);
@@ -82,11 +68,11 @@ function timelineChart(study, limits) {
   // dwell thresholds (thin, dotted, labelled) and limits (thick, dashed,
   // labelled); labels are spread apart so that they never overlap.
   const labels = [];
-  for (const [threshold, limitMinutes] of Object.entries(dwell || {})) {
-    const v = parseFloat(threshold);
+  for (const step of dwell) {
+    const v = step.threshold;
     if (!(v <= yMax)) continue;
     chart.appendChild(svg('line', { x1: left, x2: width - right, y1: y(v), y2: y(v), stroke: '#8a989b', 'stroke-dasharray': '1 3', 'stroke-width': 1.2, class: 'dwell' }));
-    labels.push({ y: y(v) + 4, text: `TI ≥ ${threshold}: ${limitMinutes} min`, bold: false });
+    labels.push({ y: y(v) + 4, text: `TI ≥ ${Number.isInteger(v) ? v.toFixed(1) : v}: ${step.text}`, bold: false });
   }
   const limitLines = [
     [limits.ti, 'TI ceiling'], [limits.mi, 'MI equipment max'], [limits.miCeiling, 'MI ceiling'],
@@ -176,11 +162,11 @@ async function main() {
     showError(content, error);
     return;
   }
-  let limits = DEFAULT_LIMITS;
+  let policy = null;
   try {
-    const policy = await getJSON('/api/v1/policy');
-    if (policy && Array.isArray(policy.rules)) limits = limitsFromPolicy(policy, study.exam_type);
-  } catch (error) { /* defaults stay, and the legend says so */ }
+    policy = await getJSON('/api/v1/policy');
+  } catch (error) { /* no limits drawn, and the legend says why */ }
+  const limits = limitsFor(policy, study);
   const key = await studyKey(uid);
   const first = (study.instances || [])[0] || {};
   const context = study.context || {};

@@ -121,7 +121,7 @@ static int check_categories(const rules_policy *policy, const char *policy_path,
 {
     int unknown = 0;
     for (size_t i = 0; i < rules_policy_rule_count(policy); i++) {
-        rules_rule_info info;
+        exam_rule_info info;
         if (rules_policy_rule_at(policy, i, &info) != 0)
             continue;
         for (size_t s = 0; s < info.setting_count; s++) {

@@ -5,8 +5,8 @@
 #include "extract/ext.h"
 #include "extract/ext_text.h"
 
-/* The attribute carrying each displayed index, in ext_index order. */
-static const dcm_attribute index_attributes[EXT_INDEX_COUNT] = {
+/* The attribute carrying each displayed index, in exam_index order. */
+static const dcm_attribute index_attributes[EXAM_INDEX_COUNT] = {
     DCM_ATTRIBUTE_MECHANICAL_INDEX,
     DCM_ATTRIBUTE_SOFT_TISSUE_THERMAL_INDEX,
     DCM_ATTRIBUTE_BONE_THERMAL_INDEX,
@@ -113,12 +113,12 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
     record->acquired_at_source = ext_acquisition_time(facts, record->acquired_at);
     record->number_of_frames = ext_parse_integer_string(values[DCM_ATTRIBUTE_NUMBER_OF_FRAMES]);
     record->frame_time_ms = ext_parse_decimal_string(values[DCM_ATTRIBUTE_FRAME_TIME]);
-    if (record->frame_time_ms.status == EXT_VALUE_MISSING) {
+    if (record->frame_time_ms.status == EXAM_VALUE_MISSING) {
         /* A cine may time its frames by Frame Time Vector instead (PS3.3
          * C.7.6.5, Frame Increment Pointer to (0018,1065)). */
-        ext_number mean = ext_frame_time_vector(values[DCM_ATTRIBUTE_FRAME_TIME_VECTOR],
+        exam_number mean = ext_frame_time_vector(values[DCM_ATTRIBUTE_FRAME_TIME_VECTOR],
                                                 &record->frame_time_vector_sum_ms);
-        if (mean.status == EXT_VALUE_OK) {
+        if (mean.status == EXAM_VALUE_OK) {
             record->frame_time_ms = mean;
             record->frame_time_from_vector = 1;
         }
@@ -126,7 +126,7 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
 
     record->is_ultrasound = ext_is_ultrasound_sop_class(record->sop_class_uid) ||
                             (record->modality != NULL && strcmp(record->modality, "US") == 0);
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         const char *raw = record->is_ultrasound ? values[index_attributes[i]] : NULL;
         record->indices[i] = ext_parse_decimal_string(raw);
         record->index_raw[i] = exact_duplicate(raw, &failed, &record->text_replaced);
@@ -158,7 +158,7 @@ void ext_record_free(ext_record *record)
         free(*strings[i]);
         *strings[i] = NULL;
     }
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         free(record->index_raw[i]);
         record->index_raw[i] = NULL;
     }

@@ -20,11 +20,7 @@
 #include <time.h>
 
 #include "extract/ext_exam.h"
-#include "extract/ext_timeline.h"
 #include "util/log.h"
-
-/* Dwell rows reported in exam_measurements.seconds_at_or_above. */
-static const double ingest_dwell_thresholds[STORE_DWELL_STEPS] = {0.7, 1.0, 1.5, 2.0, 2.5, 3.0};
 
 double ingest_clock_now(void)
 {
@@ -33,63 +29,26 @@ double ingest_clock_now(void)
     return (double)now.tv_sec + (double)now.tv_nsec / 1e9;
 }
 
-/* ext_mode bits (1 << ext_mode) to Image Type value 4 bits (RULES_MODE_*):
- * equal up to 3D (0x40); colour power and later sit one bit higher
- * (0x100, 0x200, 0x400) because 0x80 is not defined [DICOM PS3.3
- * C.8.5.6.1.1]. */
-unsigned ingest_rules_modes(unsigned ext_modes)
-{
-    return (ext_modes & 0x7fu) | ((ext_modes & ~0x7fu) << 1);
-}
-
-static rules_group ingest_group_of(const ext_exam_type *type)
-{
-    rules_group group = RULES_GROUP_GENERAL;
-    if (type == NULL)
-        return group;
-    if (type->group != NULL && rules_group_parse(type->group, &group) == 0)
-        return group;
-    return type->obstetric ? RULES_GROUP_OBSTETRIC : RULES_GROUP_GENERAL;
-}
-
 mitilog_status ingest_register_policy(store *st, const rules_policy *policy, mitilog_error *error)
 {
     size_t count = rules_policy_rule_count(policy);
-    store_policy_rule *rules = calloc(count ? count : 1, sizeof *rules);
-    const char **texts = NULL;
-    size_t total = 0;
+    exam_rule_info *rules = calloc(count ? count : 1, sizeof *rules);
     mitilog_status status = MITILOG_OK;
-    for (size_t r = 0; rules != NULL && r < count; r++) {
-        rules_rule_info info;
-        if (rules_policy_rule_at(policy, r, &info) == 0)
-            total += info.setting_count;
-    }
-    texts = calloc(total * 2 + 1, sizeof *texts);
-    if (rules == NULL || texts == NULL) {
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-        goto done;
-    }
-    size_t used = 0;
-    for (size_t r = 0; r < count; r++) {
-        rules_rule_info info;
-        if (rules_policy_rule_at(policy, r, &info) != 0)
-            continue;
-        store_policy_rule *rule = &rules[r];
-        rule->id = info.id;
-        rule->kind = info.kind;
-        rule->severity = rules_severity_name(info.severity);
-        rule->enabled = info.enabled;
-        rule->source = info.source;
-        rule->description = info.description;
-        rule->setting_keys = texts + used;
-        rule->setting_values = texts + total + used;
-        rule->setting_count = info.setting_count;
-        for (size_t k = 0; k < info.setting_count; k++) {
-            texts[used + k] = info.settings[k].key;
-            texts[total + used + k] = info.settings[k].value;
-        }
-        used += info.setting_count;
-    }
+    if (rules == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    size_t described = 0;
+    for (size_t r = 0; r < count; r++)
+        if (rules_policy_rule_at(policy, r, &rules[described]) == 0)
+            described++;
+    /* The limits of every group and age group (an unknown age reads as
+     * adult), for the dashboard. */
+    static const rules_age ages[] = {RULES_AGE_ADULT, RULES_AGE_CHILD, RULES_AGE_NEONATE};
+    enum { LIMIT_COUNT = EXAM_GROUP_COUNT * (sizeof ages / sizeof ages[0]) };
+    exam_limits limits[LIMIT_COUNT];
+    size_t limit_count = 0;
+    for (int g = 0; g < EXAM_GROUP_COUNT; g++)
+        for (size_t a = 0; a < sizeof ages / sizeof ages[0]; a++)
+            rules_policy_limits(policy, (exam_group)g, ages[a], &limits[limit_count++]);
     store_policy input = {
         .version = rules_policy_version(policy),
         .name = NULL,
@@ -97,78 +56,28 @@ mitilog_status ingest_register_policy(store *st, const rules_policy *policy, mit
         .closed_after_idle_minutes = rules_policy_closed_after_idle_minutes(policy),
         .gap_cap_seconds = rules_policy_gap_cap_seconds(policy),
         .rules = rules,
-        .rule_count = count,
+        .rule_count = described,
+        .limits = limits,
+        .limit_count = limit_count,
     };
     input.name = rules_policy_name(policy);
     status = store_register_policy(st, &input, error);
-done:
-    free(texts);
     free(rules);
     return status;
-}
-
-/* Flattens a rules_result into store_findings (borrowing its strings). */
-static store_finding *ingest_findings(const rules_result *result)
-{
-    store_finding *findings = calloc(result->finding_count ? result->finding_count : 1,
-                                     sizeof *findings);
-    for (size_t i = 0; findings != NULL && i < result->finding_count; i++) {
-        const rules_finding *f = &result->findings[i];
-        findings[i] = (store_finding){
-            .rule_id = f->rule_id,
-            .severity = rules_severity_name(f->severity),
-            .quantity = f->quantity,
-            .unit = f->unit,
-            .measured = f->measured,
-            .has_limit = f->has_limit,
-            .limit = f->limit,
-            .threshold = f->threshold,
-            .governing_index = f->has_index ? ext_index_name(f->index) : NULL,
-            .instance_uids = (const char *const *)f->instance_uids,
-            .instance_count = f->instance_count,
-            .has_span = f->has_span,
-            .first_seconds = f->first_seconds,
-            .last_seconds = f->last_seconds,
-            .estimated_seconds = f->estimated_seconds,
-            .assumptions = f->assumptions,
-            .source = f->source,
-            .provisional = f->provisional,
-            .room = f->study_instance_uid == NULL ? f->room : NULL,
-            .transducer = f->study_instance_uid == NULL ? f->transducer : NULL,
-        };
-    }
-    return findings;
 }
 
 mitilog_status ingest_evaluate_day(store *st, const rules_policy *policy, const char *day,
                                    store_evaluation_counts *counts, mitilog_error *error)
 {
-    store_device_instance *rows = NULL;
+    exam_device_instance *instances = NULL;
     size_t count = 0;
-    mitilog_status status = store_load_day_instances(st, day, &rows, &count, error);
+    mitilog_status status = store_load_day_instances(st, day, &instances, &count, error);
     if (status != MITILOG_OK)
         return status;
-    rules_instance *instances = calloc(count ? count : 1, sizeof *instances);
     rules_result result = {0};
-    store_finding *findings = NULL;
-    if (instances == NULL) {
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-        goto done;
-    }
-    for (size_t i = 0; i < count; i++) {
-        double seconds = rows[i].acquired_at ? ext_iso_to_seconds(rows[i].acquired_at) : -1;
-        instances[i] = (rules_instance){rows[i].sop_instance_uid, rows[i].study_instance_uid,
-                                        rows[i].room, rows[i].transducer,
-                                        rows[i].has_any_index, seconds, seconds >= 0};
-    }
     status = rules_output_not_reported(policy, instances, count, &result, error);
     if (status != MITILOG_OK)
         goto done;
-    findings = ingest_findings(&result);
-    if (findings == NULL) {
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-        goto done;
-    }
     store_evaluation evaluation = {
         .policy_version = rules_policy_version(policy),
         .policy_name = rules_policy_name(policy),
@@ -176,15 +85,13 @@ mitilog_status ingest_evaluate_day(store *st, const rules_policy *policy, const 
         .rule_id = "output_not_reported",
         .period = day,
         .closed = 1,
-        .findings = findings,
+        .findings = result.findings,
         .finding_count = result.finding_count,
     };
     status = store_put_evaluation(st, &evaluation, counts, error);
 done:
-    free(findings);
     rules_result_free(&result);
-    free(instances);
-    store_day_instances_free(rows, count);
+    store_day_instances_free(instances, count);
     return status;
 }
 
@@ -197,7 +104,6 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
 {
     const char *study = record->study_instance_uid;
     const ext_exam *exam = record->exam;
-    const ext_exam_instance *instances = record->instances;
     store_study_context context;
     mitilog_status status = store_load_study_context(st, study, now, &context, error);
     if (status != MITILOG_OK || !context.found) {
@@ -205,24 +111,7 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
         /* No instance left to give a context: the record alone. */
         return status != MITILOG_OK ? status : store_put_exam(st, record, error);
     }
-    size_t n = exam->capture_count;
-    rules_capture *captures = calloc(n ? n : 1, sizeof *captures);
-    ext_timeline_entry *entries = calloc(n ? n : 1, sizeof *entries);
     rules_result result = {0};
-    store_finding *findings = NULL;
-    if (captures == NULL || entries == NULL) {
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-        goto done;
-    }
-    for (size_t i = 0; i < n; i++) {
-        const ext_capture *capture = &exam->captures[i];
-        captures[i].sop_instance_uid = instances[exam->capture_instance[i]].sop_instance_uid;
-        captures[i].time_seconds = capture->time_seconds;
-        captures[i].has_time = capture->has_time;
-        captures[i].cine_seconds = capture->cine_seconds;
-        memcpy(captures[i].indices, capture->indices, sizeof capture->indices);
-        captures[i].modes = ingest_rules_modes(capture->modes);
-    }
     rules_age age = RULES_AGE_UNKNOWN;
     if (context.age_group != NULL && rules_age_parse(context.age_group, &age) != 0)
         age = RULES_AGE_UNKNOWN;
@@ -230,7 +119,7 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
     rules_exam input = {
         .study_instance_uid = study,
         .category = exam->exam_type != NULL ? exam->exam_type->key : NULL,
-        .group = ingest_group_of(exam->exam_type),
+        .group = ext_exam_type_group(exam->exam_type),
         .age = age,
         .gestational_age_weeks = exam->gestational_age_weeks,
         .gestational_age_known = exam->has_gestational_age,
@@ -241,18 +130,12 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
         .preset = context.preset,
         .closed = context.idle_seconds >= idle_minutes * 60.0,
         .sr_scan_time_seconds = exam->sr_scan_time_seconds,
-        .captures = captures,
-        .capture_count = n,
+        .captures = exam->captures,
+        .capture_count = exam->capture_count,
     };
     status = rules_evaluate(policy, &input, &result, error);
     if (status != MITILOG_OK)
         goto done;
-    findings = ingest_findings(&result);
-    if (findings == NULL) {
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-        goto done;
-    }
-    const rules_measurements *m = &result.measurements;
     store_evaluation evaluation = {
         .exam = record,
         .policy_version = rules_policy_version(policy),
@@ -267,32 +150,13 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
         .age_group = context.age_group,
         .last_received_at = context.last_received_at,
         .closed = input.closed,
-        .findings = findings,
+        .findings = result.findings,
         .finding_count = result.finding_count,
-        .governing_index = ext_index_name(m->governing_index),
-        .has_max_governing = m->index_reported[m->governing_index],
-        .max_governing = m->max_index[m->governing_index],
-        .has_max_mi = m->index_reported[EXT_INDEX_MI],
-        .max_mi = m->max_index[EXT_INDEX_MI],
-        .cem43_minutes = m->cem43_minutes,
-        .estimated_seconds = m->estimated_seconds,
-        .doppler_seconds = m->doppler_seconds,
+        .measurements = &result.measurements,
     };
-    /* Time at or above each dwell row, on the policy's gap cap (the same
-     * timeline rules_evaluate builds): an ESTIMATE. */
-    ext_timeline_summary summary;
-    ext_timeline_build(exam->captures, n, rules_policy_gap_cap_seconds(policy),
-                       exam->sr_scan_time_seconds, entries, &summary);
-    for (int k = 0; k < STORE_DWELL_STEPS; k++)
-        evaluation.seconds_at_or_above[k] = ext_timeline_time_at_or_above(
-            exam->captures, entries, summary.entry_count, m->governing_index,
-            ingest_dwell_thresholds[k]);
     status = store_put_evaluation(st, &evaluation, counts, error);
 done:
-    free(findings);
     rules_result_free(&result);
-    free(entries);
-    free(captures);
     store_study_context_free(&context);
     return status;
 }

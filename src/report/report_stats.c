@@ -53,7 +53,7 @@ static mitilog_status stats_compute(store *st, const report_stats_request *reque
                                              report_dimension_column(doc->by), REPORT_LOAD_INFO,
                                              &doc->data, error);
     if (status == MITILOG_OK)
-        status = stats_period_table(doc->data.exams, doc->data.row_count, doc->by, &doc->result,
+        status = stats_period_table(doc->data.rows, doc->data.row_count, doc->by, &doc->result,
                                     error);
     return status;
 }
@@ -103,7 +103,7 @@ static mitilog_status insert_row(store_scratch_statement *row_insert,
     BIND_NUMBER(row_insert, "est_p75", est->count > 0, est->p75);
     BIND_NUMBER(row_insert, "est_p95", est->count > 0, est->p95);
     mitilog_status status = store_scratch_run(row_insert, error);
-    for (int t = 0; status == MITILOG_OK && t < STATS_THRESHOLD_COUNT; t++) {
+    for (int t = 0; status == MITILOG_OK && t < EXAM_TI_STATISTICS_STEPS; t++) {
         const stats_threshold_time *time = &row->thresholds[t];
         int valued = g->count > 0;
         BIND_INT(threshold_insert, "row_position", position);
@@ -197,7 +197,7 @@ static void stats_csv_row(const stats_document *doc, FILE *out, const stats_peri
     report_csv_number(out, mi->count > 0, mi->maximum);
     report_csv_number(out, est->count > 0, est->median / 60.0);
     report_csv_number(out, est->count > 0, est->p95 / 60.0);
-    for (int t = 0; t < STATS_THRESHOLD_COUNT; t++) {
+    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++) {
         const stats_threshold_time *time = &row->thresholds[t];
         report_csv_count(out, time->exam_count);
         report_csv_number(out, g->count > 0, time->median_seconds / 60.0);
@@ -262,7 +262,7 @@ static void stats_html_row(FILE *out, const stats_period_row *row, const char *k
     fprintf(out, "<td class=\"n\">%.0f %%</td>", 100.0 * row->share_with_findings);
     html_number_cell(out, row->estimated_seconds.count > 0,
                      row->estimated_seconds.median / 60.0, 3);
-    for (int t = 1; t < STATS_THRESHOLD_COUNT; t++) {
+    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++) {
         fprintf(out, "<td class=\"n\">%zu / ", row->thresholds[t].exam_count);
         report_html_number(out, g->count > 0, row->thresholds[t].p95_seconds / 60.0, 3);
         fputs("</td>", out);
@@ -294,10 +294,14 @@ static void stats_html(const stats_document *doc, FILE *out)
     report_html_text(out, by);
     fputs("</th><th>Exams</th><th>TI median</th><th>TI P75</th><th>TI P95</th>"
           "<th>MI median</th><th>MI P75</th><th>MI P95</th><th>With findings</th>"
-          "<th>Scan minutes (median)</th><th>&ge; 1.0: exams / P95 min</th>"
-          "<th>&ge; 1.5: exams / P95 min</th><th>&ge; 2.0: exams / P95 min</th>"
-          "<th>Captures with indices</th></tr></thead><tbody>\n",
+          "<th>Scan minutes (median)</th>",
           out);
+    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++) {
+        char label[EXAM_TI_LABEL_SIZE];
+        exam_ti_threshold_label(exam_ti_ladder[t], label);
+        fprintf(out, "<th>&ge; %s: exams / P95 min</th>", label);
+    }
+    fputs("<th>Captures with indices</th></tr></thead><tbody>\n", out);
     for (size_t r = 0; r < doc->result.row_count; r++) {
         const stats_period_row *row = &doc->result.rows[r];
         stats_html_row(out, row, row->key != NULL ? row->key : "(not recorded)", 0);
@@ -379,7 +383,7 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
                                              REPORT_LOAD_INFO, &data, error);
     if (status != MITILOG_OK)
         return status;
-    status = stats_drift(data.exams, data.row_count, first_monday, weeks, baseline_weeks,
+    status = stats_drift(data.rows, data.row_count, first_monday, weeks, baseline_weeks,
                          request->minimum_baseline ? request->minimum_baseline : 10,
                          request->z_limit > 0 ? request->z_limit : 3.0, &result, error);
     store_scratch_statement *meta_insert, *series_insert, *point_insert, *query;

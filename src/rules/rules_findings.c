@@ -14,7 +14,7 @@ static char *copy_or_null(const char *text, int *failed)
     return copy;
 }
 
-static void finding_free(rules_finding *finding)
+static void finding_free(exam_finding *finding)
 {
     free(finding->rule_id);
     free(finding->quantity);
@@ -32,12 +32,12 @@ static void finding_free(rules_finding *finding)
 mitilog_status rules_result_append(rules_result *result, const rules_finding_input *input,
                                    const char *policy_version, mitilog_error *error)
 {
-    rules_finding *grown =
+    exam_finding *grown =
         realloc(result->findings, (result->finding_count + 1) * sizeof *grown);
     if (grown == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
     result->findings = grown;
-    rules_finding *finding = &grown[result->finding_count];
+    exam_finding *finding = &grown[result->finding_count];
     memset(finding, 0, sizeof *finding);
     int failed = 0;
     finding->rule_id = copy_or_null(input->rule->id, &failed);

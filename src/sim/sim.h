@@ -72,17 +72,6 @@ typedef enum sim_shift {
     SIM_SHIFT_NIGHT = 2     /* 23:00-07:00 (wraps midnight) */
 } sim_shift;
 
-/* Imaging modes, as Image Type value 4 bits (PS3.3 C.8.5.6.1.1). */
-enum {
-    SIM_MODE_BIT_2D = 0x0001,
-    SIM_MODE_BIT_M = 0x0002,
-    SIM_MODE_BIT_CW = 0x0004,
-    SIM_MODE_BIT_PW = 0x0008,
-    SIM_MODE_BIT_COLOUR = 0x0010,
-    SIM_MODE_BIT_3D = 0x0040,
-    SIM_MODE_BIT_POWER = 0x0100
-};
-
 /* The mode a capture was taken in; each maps to a bitmap and regions. */
 typedef enum sim_mode {
     SIM_MODE_B = 0,      /* 2D                     0001 */

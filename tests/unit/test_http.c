@@ -80,8 +80,8 @@ static void put_instance(store *st, const char *uid, const char *study,
     record.acquired_at_source = EXT_TIME_ACQUISITION;
     snprintf(record.received_at, sizeof record.received_at, "%s",
              received_at);
-    record.indices[EXT_INDEX_MI] = (ext_number){EXT_VALUE_OK, mi};
-    record.index_raw[EXT_INDEX_MI] = strdup("0.9");
+    record.indices[EXAM_INDEX_MI] = (exam_number){EXAM_VALUE_OK, mi};
+    record.index_raw[EXAM_INDEX_MI] = strdup("0.9");
     mitilog_error error = {{0}};
     if (store_put_instance(st, &record, NULL, NULL, &error) != MITILOG_OK)
         fail_msg("put: %s", error.text);
@@ -90,7 +90,7 @@ static void put_instance(store *st, const char *uid, const char *study,
     free(record.study_instance_uid);
     free(record.station_name);
     free(record.modality);
-    free(record.index_raw[EXT_INDEX_MI]);
+    free(record.index_raw[EXAM_INDEX_MI]);
 }
 
 /* Store with two instances, a web root with three files, a secret file
@@ -305,7 +305,7 @@ static void health(void **state)
     response r = get_json(f, "/healthz", 200);
     assert_json(r.body, "$.status", "ok");
     assert_json(r.body, "$.database", "ok");
-    assert_json(r.body, "$.schema_version", "12"); /* migrations 001 to 005 and 012 */
+    assert_json(r.body, "$.schema_version", "12"); /* migrations 001 to 006 and 012 */
     assert_json(r.body, "$.instances", "2");
     assert_json(r.body, "$.studies", "1");
     assert_json(r.body, "$.rejections", "0");
