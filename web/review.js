@@ -152,6 +152,38 @@ async function main() {
       ') — used within the limit, listed for completeness'));
   if (worklist.informational.length > 0) informational.appendChild(findingsTable(worklist.informational, 'informational-list'));
   content.appendChild(informational);
+  await operatorSection(worklist);
+}
+
+/* Per-operator figures for the lead's coaching, only when the site
+ * records operators ([extraction] record_operator, docs/configuration.md). */
+async function operatorSection(worklist) {
+  const box = el('section', { id: 'operators-box' }, el('h2', {}, 'Operators'));
+  content.appendChild(box);
+  let operators;
+  try {
+    operators = await getJSON(`api/v1/operators?from=${worklist.from}&to=${worklist.to}`);
+  } catch (error) {
+    showError(box, error);
+    return;
+  }
+  if (!operators.recorded) {
+    box.appendChild(el('p', { class: 'note', id: 'operators-off' },
+      'Operators are not recorded at this site ([extraction] record_operator = no; see docs/configuration.md on privacy).'));
+    return;
+  }
+  box.appendChild(el('p', { class: 'note' },
+    `${operators.exams_with_operator} of ${operators.exam_count} exams name an operator. For coaching, not ranking: a higher median can come from harder exams.`));
+  box.appendChild(el('table', { id: 'operators' },
+    el('thead', {}, el('tr', {}, ['Operator', 'Exams', 'With an index value', 'Median governing index (max per exam)', 'Exams with findings', 'Findings']
+      .map((h) => el('th', { scope: 'col' }, h)))),
+    el('tbody', {}, operators.operators.map((o) => el('tr', {},
+      el('td', { class: 'key' }, o.operator),
+      el('td', { class: 'n' }, o.exam_count),
+      el('td', { class: 'n' }, o.valued_count),
+      el('td', { class: 'n' }, o.median_governing === null ? 'unknown (no value)' : fmt(o.median_governing, 2)),
+      el('td', { class: 'n' }, o.exams_with_findings),
+      el('td', { class: 'n' }, o.finding_count))))));
 }
 
 main();

@@ -148,7 +148,7 @@ int http_route_findings(http_server *server, struct MHD_Connection *connection,
 int http_route_stats(http_server *server, struct MHD_Connection *connection,
                      const char *url, http_reply *reply);
 
-/* http_routes_reviews.c: GET /api/v1/session, /api/v1/worklist and
+/* http_routes_reviews.c: GET /api/v1/session, /api/v1/worklist, operators and
  * /api/v1/reviews; 0 if url is none of them. */
 int http_route_reviews(http_server *server, struct MHD_Connection *connection, const char *url,
                        const http_identity *identity, http_reply *reply);

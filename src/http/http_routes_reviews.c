@@ -1,7 +1,7 @@
 /*
  * http_routes_reviews.c - the review worklist and acting on it:
- * GET /api/v1/session, /api/v1/worklist, /api/v1/reviews and
- * POST /api/v1/reviews.
+ * GET /api/v1/session, /api/v1/worklist, /api/v1/operators,
+ * /api/v1/reviews and POST /api/v1/reviews.
  *
  * Writes need a login (the password file, http_auth.h) with the role
  * "reviewer", and are protected against cross-site request forgery three
@@ -195,6 +195,25 @@ static http_reply http_reviews(http_server *server, struct MHD_Connection *conne
     return reply;
 }
 
+/* GET /api/v1/operators?from=&to= */
+static http_reply http_operators(http_server *server, struct MHD_Connection *connection)
+{
+    static const http_parameter_rule rules[] = {
+        {"from", HTTP_PARAMETER_DATE, 0, 0, NULL},
+        {"to", HTTP_PARAMETER_DATE, 0, 0, NULL},
+    };
+    http_parameter_value values[2];
+    http_reply reply;
+    if (!http_parameters_read(server, connection, rules, 2, values, &reply) ||
+        !http_parameters_period(server, &values[0], &values[1], &reply))
+        return reply;
+    char *json = NULL;
+    mitilog_error error = {{0}};
+    mitilog_status status =
+        store_operators_json(server->store, values[0].text, values[1].text, &json, &error);
+    return http_status_reply(server, status, json, NULL, &error);
+}
+
 int http_route_reviews(http_server *server, struct MHD_Connection *connection, const char *url,
                        const http_identity *identity, http_reply *reply)
 {
@@ -204,6 +223,8 @@ int http_route_reviews(http_server *server, struct MHD_Connection *connection, c
         *reply = http_worklist(server, connection);
     else if (strcmp(url, "/api/v1/reviews") == 0)
         *reply = http_reviews(server, connection);
+    else if (strcmp(url, "/api/v1/operators") == 0)
+        *reply = http_operators(server, connection);
     else
         return 0;
     return 1;

@@ -278,6 +278,11 @@ mitilog_status store_reviews_text(store *store, const char *study, const char *f
  * says how it ranks). *json is malloc'ed, freed by the caller. */
 mitilog_status store_worklist_json(store *store, const char *monday, char **json,
                                    mitilog_error *error);
+/* GET /api/v1/operators: per-operator exams, median governing index and
+ * findings of a period (from, to YYYY-MM-DD; NULL = open), when the site
+ * records operators (queries/review_operators.sql). */
+mitilog_status store_operators_json(store *store, const char *from, const char *to, char **json,
+                                    mitilog_error *error);
 
 
 /* ---- Statistics reads (store_read_stats.c) ---- */

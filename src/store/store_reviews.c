@@ -100,3 +100,13 @@ mitilog_status store_worklist_json(store *st, const char *monday, char **json,
     return store_read_text(st, "queries/review_worklist.sql", texts, 1, "query worklist", json,
                            error);
 }
+
+mitilog_status store_operators_json(store *st, const char *from, const char *to, char **json,
+                                    mitilog_error *error)
+{
+    if (st == NULL || json == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_operators_json: no store");
+    const char *texts[] = {from, to};
+    return store_read_text(st, "queries/review_operators.sql", texts, 2, "query operators", json,
+                           error);
+}

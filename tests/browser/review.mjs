@@ -73,6 +73,8 @@ try {
   check('informational advisories counted apart', /Informational advisories: [1-9]/.test(informational), informational);
   const listedInformational = await page.locator('#worklist tbody tr', { hasText: 'below its limit' }).count();
   check('no informational advisory in the main list', listedInformational === 0, listedInformational);
+  const operators = await page.locator('#operators tbody tr').count();
+  check('operator view shown when operators are recorded', operators > 0, operators);
   await shot(page, 'review-worklist');
 
   // 2. A reviewer records a review of the MI breach on its exam page.

@@ -21,6 +21,7 @@ import os
 import shutil
 import sqlite3
 import ssl
+import statistics
 import subprocess
 import urllib.parse
 
@@ -98,6 +99,15 @@ def department(tmp_path_factory):
         f.write(password_line(*VIEWER) + "\n")
     daemon = Daemon(work, http=dict(tls_certificate=certificate, tls_private_key=key,
                                     password_file=passwords))
+    # The site records operators (the simulator writes Operators' Name).
+    with open(os.path.join(REPO, "conf", "site.ini")) as f:
+        site = f.read()
+    assert "record_operator = no" in site
+    site_path = os.path.join(str(work), "site.ini")
+    with open(site_path, "w") as f:
+        f.write(site.replace("record_operator = no", "record_operator = yes"))
+    with open(daemon.config, "a") as f:
+        f.write("[site]\nrules = %s\n" % site_path)
     imported = daemon.import_(sim)
     assert "imported" in imported.stdout, imported.stderr
     # The harness probes /healthz over plain HTTP: with HTTPS it waits on
@@ -156,6 +166,45 @@ def test_worklist_default_week_and_ranking(department):
     # A week without data is never the default; asking for one answers empty.
     empty = client.json("/api/v1/worklist?week=2026-W30")
     assert empty["exam_count"] == 0 and empty["findings"] == []
+
+
+def test_silent_probe_first_seen_beyond_look_back(department):
+    # docs/demo.md: the L4-15 probe of US-ROOM-3 stops reporting on day 15
+    # (2026-11-16); the page looks at the last 7 days of data (from
+    # 2026-11-17 here), yet must say when the silence began.
+    client = Client(department.http_port, department.ca, VIEWER)
+    ingest = client.json("/api/v1/ingest")
+    row = [r for r in ingest["not_reporting"] if r["transducer"] == "L4-15"][0]
+    assert ingest["not_reporting_days"] == 7
+    assert row["first_without_at"].startswith("2026-11-16"), row
+
+
+def test_operator_view_against_python(department):
+    client = Client(department.http_port, department.ca, VIEWER)
+    answer = client.json("/api/v1/operators?from=2026-11-09&to=2026-11-15")
+    assert answer["recorded"] is True and answer["operators"]
+    # Recomputed from the database: each exam's first stored Operators'
+    # Name and maximum governing index; medians by Python's statistics
+    # module (the middle value, or the mean of the two middle ones).
+    with department.db() as db:
+        rows = db.execute(
+            "SELECT e.study_instance_uid, CASE e.governing_index WHEN 'tis' THEN e.max_tis "
+            "WHEN 'tib' THEN e.max_tib WHEN 'tic' THEN e.max_tic END, "
+            "(SELECT operator_name FROM instances i WHERE i.study_instance_uid = "
+            " e.study_instance_uid AND operator_name IS NOT NULL ORDER BY id LIMIT 1) "
+            "FROM exams e WHERE substr(e.first_acquired_at, 1, 10) "
+            "BETWEEN '2026-11-09' AND '2026-11-15'").fetchall()
+    by_operator = {}
+    for _, value, operator in rows:
+        if operator is not None:
+            by_operator.setdefault(operator, []).append(value)
+    assert sorted(by_operator) == [o["operator"] for o in answer["operators"]]
+    for o in answer["operators"]:
+        values = [v for v in by_operator[o["operator"]] if v is not None]
+        assert o["exam_count"] == len(by_operator[o["operator"]])
+        assert o["valued_count"] == len(values)
+        assert o["median_governing"] == pytest.approx(statistics.median(values))
+    assert answer["exam_count"] == len(rows)
 
 
 def test_reviews_need_reviewer_token_and_same_origin(department):
