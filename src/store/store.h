@@ -281,6 +281,16 @@ mitilog_status store_worklist_json(store *store, const char *monday, char **json
 /* GET /api/v1/operators: per-operator exams, median governing index and
  * findings of a period (from, to YYYY-MM-DD; NULL = open), when the site
  * records operators (queries/review_operators.sql). */
+/* What a baseline [from_day, before_day) really holds: first and last
+ * exam day (out, "" when none; 11 bytes each), weeks with exams and
+ * exams (queries/baseline_span.sql). */
+typedef struct store_span {
+    char first_day[11], last_day[11];
+    long weeks, exams;
+} store_span;
+mitilog_status store_load_baseline_span(store *store, const char *from_day,
+                                        const char *before_day, store_span *span,
+                                        mitilog_error *error);
 mitilog_status store_operators_json(store *store, const char *from, const char *to, char **json,
                                     mitilog_error *error);
 

@@ -1,8 +1,9 @@
 /*
  * store_reviews.c - the review history (migration 012) and the review
  * worklist: appending a review on the writer connection (inside the
- * group-commit queue's transaction), reading the history as JSON or CSV
- * and the week's worklist as JSON on the read connection.
+ * group-commit queue's transaction), reading the history as JSON or CSV,
+ * the week's worklist, the operator view and the real span of a weekly
+ * baseline on the read connection.
  *
  * Statements here are prepared for one call and finalized at its end:
  * reviews are a few a day, and the connections' statement caches are
@@ -10,6 +11,7 @@
  */
 #include "store/store_internal.h"
 
+#include <stdio.h>
 #include <string.h>
 
 static int store_bind_text_or_null(sqlite3_stmt *statement, int index, const char *text)
@@ -109,4 +111,34 @@ mitilog_status store_operators_json(store *st, const char *from, const char *to,
     const char *texts[] = {from, to};
     return store_read_text(st, "queries/review_operators.sql", texts, 2, "query operators", json,
                            error);
+}
+
+mitilog_status store_load_baseline_span(store *st, const char *from_day, const char *before_day,
+                                        store_span *span, mitilog_error *error)
+{
+    memset(span, 0, sizeof *span);
+    if (st == NULL || from_day == NULL || before_day == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "baseline span: no store or days");
+    pthread_mutex_lock(&st->reader_lock);
+    sqlite3_stmt *statement = NULL;
+    mitilog_status status = store_prepare(st->reader, "queries/baseline_span.sql", &statement,
+                                          error);
+    if (status == MITILOG_OK) {
+        int rc = sqlite3_bind_text(statement, 1, from_day, -1, SQLITE_TRANSIENT);
+        if (rc == SQLITE_OK)
+            rc = sqlite3_bind_text(statement, 2, before_day, -1, SQLITE_TRANSIENT);
+        if (rc != SQLITE_OK || sqlite3_step(statement) != SQLITE_ROW) {
+            status = store_sql_error(error, st->reader, "query baseline span");
+        } else {
+            const char *first = (const char *)sqlite3_column_text(statement, 0);
+            const char *last = (const char *)sqlite3_column_text(statement, 1);
+            snprintf(span->first_day, sizeof span->first_day, "%s", first != NULL ? first : "");
+            snprintf(span->last_day, sizeof span->last_day, "%s", last != NULL ? last : "");
+            span->weeks = (long)sqlite3_column_int64(statement, 2);
+            span->exams = (long)sqlite3_column_int64(statement, 3);
+        }
+    }
+    sqlite3_finalize(statement);
+    pthread_mutex_unlock(&st->reader_lock);
+    return status;
 }

@@ -168,6 +168,30 @@ def test_worklist_default_week_and_ranking(department):
     assert empty["exam_count"] == 0 and empty["findings"] == []
 
 
+def test_baseline_says_its_real_span_and_count(department):
+    # The 12 weeks before 2026-W47 reach back to 2026-08-24, but the data
+    # begins on 2026-11-02: the baseline is two weeks (W45, W46) of exams.
+    client = Client(department.http_port, department.ca, VIEWER)
+    week = client.json("/api/v1/outliers?week=2026-W47&group=preset")
+    assert week["baseline_weeks"] == 12 and week["baseline_from"] == "2026-08-24"
+    with department.db() as db:
+        days = [row[0] for row in db.execute(
+            "SELECT substr(first_acquired_at, 1, 10) FROM exams WHERE first_acquired_at IS "
+            "NOT NULL AND substr(first_acquired_at, 1, 10) BETWEEN '2026-08-24' AND '2026-11-15'")]
+    assert week["baseline_data_from"] == min(days) == "2026-11-02"
+    assert week["baseline_data_to"] == max(days) == "2026-11-15"
+    assert week["baseline_weeks_with_data"] == len({iso_week(d) for d in days}) == 2
+    assert week["baseline_exam_count"] == len(days)
+    # The printed report says the same, not the 12 weeks asked for.
+    out = os.path.join(department.workdir, "week.html")
+    result = run([BINARY, "report", "week", "2026-W47", "--config", department.config,
+                  "--format", "html", "--output", out], timeout=120)
+    assert result.returncode == 0, result.stderr
+    with open(out, encoding="utf-8") as f:
+        html = f.read()
+    assert "from 2026-11-02 to 2026-11-15 (2 weeks with data; %d exams)" % len(days) in html
+
+
 def test_silent_probe_first_seen_beyond_look_back(department):
     # docs/demo.md: the L4-15 probe of US-ROOM-3 stops reporting on day 15
     # (2026-11-16); the page looks at the last 7 days of data (from
