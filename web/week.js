@@ -58,7 +58,6 @@ function groupTable(document_, groups) {
       el('td', { class: 'n' }, percent(group.outlier_rate)),
       el('td', { class: 'n' }, fmt(group.median_governing)),
       el('td', { class: 'n' }, fmt(group.department_median)),
-      el('td', { class: 'n' }, group.median_ratio === null ? '—' : '× ' + fmt(group.median_ratio)),
       el('td', { class: 'n' }, fmt(group.median_mi)),
       el('td', {}, rules),
       el('td', { class: 'n' }, percent(group.data_completeness))));
@@ -69,7 +68,7 @@ function groupTable(document_, groups) {
       el('th', { class: 'n' }, 'Rank'), el('th', {}, label ? label[1] : document_.group_by),
       el('th', { class: 'n' }, 'Exams'), el('th', { class: 'n' }, 'Outliers'), el('th', { class: 'n' }, 'Rate'),
       el('th', { class: 'n' }, 'Median governing TI'), el('th', { class: 'n' }, 'Department median, same exam types'),
-      el('th', { class: 'n' }, 'Ratio'), el('th', { class: 'n' }, 'Median MI'), el('th', {}, 'Findings by rule'),
+      el('th', { class: 'n' }, 'Median MI'), el('th', {}, 'Findings by rule'),
       el('th', { class: 'n' }, 'Captures with indices'))),
     body);
 }
