@@ -1,4 +1,5 @@
--- 012_reviews.sql - what reviewers did about findings and exams.
+-- 012_reviews.sql - what reviewers did about findings and exams, and the
+-- accession number a reviewer searches the PACS by.
 --
 -- Append-only: one row per act (who, when, what); a later row about the
 -- same finding or exam does not change an earlier one, and UPDATE and
@@ -32,5 +33,9 @@ CREATE TRIGGER reviews_no_delete BEFORE DELETE ON reviews
 BEGIN
     SELECT raise(ABORT, 'reviews are append-only: add a new review instead');
 END;
+
+-- Accession Number (0008,0050) of each instance, so that a listed exam
+-- can be found in the PACS; NULL when absent or received before this.
+ALTER TABLE instances ADD COLUMN accession_number TEXT;
 
 PRAGMA user_version = 12;

@@ -95,7 +95,10 @@ described AS (
          ORDER BY r.id DESC LIMIT 1) AS review_id,
         (SELECT i.operator_name FROM instances i
          WHERE i.study_instance_uid = f.study_instance_uid AND i.operator_name IS NOT NULL
-         ORDER BY i.id LIMIT 1) AS operator_name
+         ORDER BY i.id LIMIT 1) AS operator_name,
+        (SELECT i.accession_number FROM instances i
+         WHERE i.study_instance_uid = f.study_instance_uid AND i.accession_number IS NOT NULL
+         ORDER BY i.id LIMIT 1) AS accession_number
     FROM week_findings f
 ),
 rows AS (
@@ -112,7 +115,7 @@ documents AS (
         'day', day, 'first_acquired_at', first_acquired_at,
         'exam_type_label', exam_type_label, 'study_description', study_description,
         'room', room, 'preset', preset, 'shift', shift, 'transducer', transducer,
-        'operator_name', operator_name,
+        'operator_name', operator_name, 'accession_number', accession_number,
         'open', json(iif(open, 'true', 'false')),
         'review', iif(review_id IS NULL, NULL, json_object(
             'outcome', outcome, 'reviewer', reviewer, 'reviewed_at', reviewed_at,

@@ -63,6 +63,7 @@ try {
   const firstText = await first.textContent();
   check('MI breach ranks first', firstText.includes('violation') && firstText.includes('MI 2.1'), firstText);
   check('MI breach above the fold', await aboveFold(first));
+  if (config.accession) check('MI breach names its accession number', firstText.includes(config.accession), firstText);
   const hot = page.locator('#patterns tbody tr', { hasText: `preset: ${config.hot_preset}` });
   check('hot preset listed as a pattern', (await hot.count()) === 1, await hot.count());
   check('hot preset above the fold', (await hot.count()) === 1 && await aboveFold(hot.first()));

@@ -34,6 +34,7 @@ DAYS = 21
 SEED = 2026
 REVIEWER = ("lead", "harbour light 7")
 VIEWER = ("guest", "quiet tern 3")
+ACCESSION = "WV26112000417"
 BROWSER_DIR = os.path.join(REPO, "tests", "browser")
 OUT_DIR = os.path.join(REPO, "tests", "out")
 
@@ -92,6 +93,18 @@ def department(tmp_path_factory):
     result = run([BINARY, "simulate", "--days", str(DAYS), "--seed", str(SEED), "--out", sim],
                  timeout=300)
     assert result.returncode == 0, result.stderr
+    # The MI breach exam of 2026-11-20 carries an Accession Number (the
+    # simulator writes none), set with pydicom as a RIS would.
+    import pydicom
+    with open(os.path.join(sim, "manifest.csv"), newline="") as f:
+        breach = [row["path"] for row in csv.DictReader(f)
+                  if "mi-over-limit" in row["planted"] and "2026-11-20" in row["path"]]
+    assert breach
+    for path in breach:
+        full = path if os.path.isabs(path) else os.path.join(sim, path)
+        ds = pydicom.dcmread(full)
+        ds.AccessionNumber = ACCESSION
+        ds.save_as(full, write_like_original=False)
     ca, certificate, key = make_certificates(str(work))
     passwords = os.path.join(str(work), "passwords")
     with open(passwords, "w") as f:
@@ -149,6 +162,7 @@ def test_worklist_default_week_and_ranking(department):
     assert findings[0]["rule_id"] == "equipment_maxima"
     assert findings[0]["measured_value"] == 2.1 and findings[0]["day"] == "2026-11-20"
     assert findings[0]["reason"] == "MI 2.1 displayed, above the limit 1.9"
+    assert findings[0]["accession_number"] == ACCESSION  # as written with pydicom
     # Severity first (violation, warning, advisory), then size, largest first.
     order = {"violation": 3, "warning": 2, "advisory": 1}
     keys = [(order[f["severity"]], f["size"] if f["size"] is not None else -1) for f in findings]
@@ -312,7 +326,8 @@ def test_review_in_chromium(department, tmp_path):
                 '<script>document.getElementById("f").submit();</script></body></html>' % url)
     out = os.path.join(OUT_DIR, "browser-review-" + os.path.basename(os.path.dirname(BINARY)))
     config = dict(url=url, out=out, reviewer=list(REVIEWER), viewer=list(VIEWER),
-                  hot_preset="Abdomen General", night_shift="night", cross_site_page=cross_site)
+                  hot_preset="Abdomen General", night_shift="night", cross_site_page=cross_site,
+                  accession=ACCESSION)
     # GnuTLS (through libmicrohttpd) notes Chromium's TLS 1.3 key updates
     # and closes as "received handshake message out of context"; the
     # pages are checked below, the note is not a failure.
