@@ -1,23 +1,31 @@
 /*
  * exam.h - the exam vocabulary every stage of the pipeline speaks:
  * extraction fills these types, the rules and statistics read them, the
- * store writes them and the HTTP API names them.
+ * store writes them and the HTTP API names them. Stages pass them as they
+ * are; none keeps a look-alike copied field by field.
  *
  * Owns, each in exactly one place:
- *  - the displayed indices (exam_index) and their API names;
- *  - the imaging modes (exam_mode): one bit set, one set of names;
- *  - the governing-index rule (exam_governing_index, docs/domain.md
- *    section 3);
+ *  - the value of one reading (exam_number: ok, missing or invalid, never
+ *    guessed) and the displayed indices (exam_index) with their API names;
+ *  - the imaging modes (exam_mode): one bit set, one set of names, and
+ *    their DICOM encoding in Image Type value 4;
  *  - the TI threshold ladder (exam_ti_ladder): the displayed-TI steps at
  *    or above which time is measured, stored and drawn;
- *  - the exam's policy group (exam_group): which tables, limits and
- *    governing index apply;
- *  - the value of one reading (exam_number: ok, missing or invalid,
- *    never guessed) and one capture of an exam (exam_capture).
+ *  - the governing-index rule (exam_governing_index, docs/domain.md
+ *    section 3) and the exam's policy group (exam_group);
+ *  - what a policy sets for an exam (exam_limits, exam_dwell_step) and
+ *    how its rules are described (exam_rule_info);
+ *  - a finding (exam_finding, exam_severity) and an evaluation's
+ *    measurements (exam_measurements);
+ *  - one capture of an exam (exam_capture), one instance of a day
+ *    (exam_device_instance) and one exam of a period (exam_row).
  *
- * Pure data and computation: no allocation, no state. Strings returned
- * are static; an exam_capture borrows its sop_instance_uid from whoever
- * filled it (the exam record's instances) and owns nothing.
+ * Pure data and computation: no allocation, no state; names returned are
+ * static. Who fills a type owns its strings and says so in its own
+ * header: the exam record (ext_exam.h) for captures, the policy engine's
+ * rules_result (rules.h) for findings, the policy for rule descriptions
+ * and limits, the store's lists (store.h) for exam rows and day
+ * instances.
  */
 #ifndef MITILOG_EXAM_H
 #define MITILOG_EXAM_H

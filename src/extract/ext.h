@@ -3,9 +3,11 @@
  *
  * Owns the interpretation of attribute values: DS/IS classification
  * (ok / missing / invalid, never guessed), the acquisition date-time with
- * its fall-backs, and the six displayed acoustic output indices. The
- * ext_record is the struct that the store writes and that rules and
- * statistics read back.
+ * its fall-backs, and the six displayed acoustic output indices (their
+ * names and value type are the exam vocabulary's, exam/exam.h). The
+ * ext_record is the struct that the store writes; the exam record built
+ * from a study's instances (ext_exam.h) fills the vocabulary's captures
+ * that the rules read.
  *
  * Ownership: ext_record_from_facts() fills a caller-supplied record whose
  * strings are heap copies owned by the record; free with ext_record_free().

@@ -28,9 +28,8 @@ int report_format_parse(const char *name, report_format *format)
 void report_data_free(report_data *data)
 {
     store_exam_list_free(&data->list);
-    store_finding_counts_free(data->findings, data->finding_count);
+    store_finding_counts_free(&data->findings);
     store_period_info_free(&data->info);
-    free(data->rules);
     memset(data, 0, sizeof *data);
 }
 
@@ -66,22 +65,12 @@ mitilog_status report_data_load(store *st, const char *from, const char *to, uns
     data->rows = data->list.rows;
     data->row_count = data->list.count;
     if (status == MITILOG_OK && (load & REPORT_LOAD_RULES))
-        status = store_load_finding_counts(st, from, to, &data->findings,
-                                           &data->finding_count, error);
+        status = store_load_finding_counts(st, from, to, &data->findings, error);
     if (status == MITILOG_OK && (load & REPORT_LOAD_INFO))
         status = store_load_period_info(st, from, to, &data->info, error);
     if (status != MITILOG_OK) {
         report_data_free(data);
         return status;
-    }
-    data->rules = calloc(data->finding_count + 1, sizeof *data->rules);
-    if (data->rules == NULL) {
-        report_data_free(data);
-        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "report: out of memory");
-    }
-    for (size_t f = 0; f < data->finding_count; f++) {
-        data->rules[f].rule_id = data->findings[f].rule_id;
-        data->rules[f].count = data->findings[f].count > 0 ? (size_t)data->findings[f].count : 0;
     }
     size_t f = 0;
     for (size_t i = 0; i < data->row_count; i++) {
@@ -90,14 +79,15 @@ mitilog_status report_data_load(store *st, const char *from, const char *to, uns
         data->indexed_count += row->indexed_count;
         /* Both lists are ordered by Study Instance UID (SQLite's BINARY
          * collation is strcmp order). */
-        while (f < data->finding_count && row->study_instance_uid != NULL &&
-               strcmp(data->findings[f].study_instance_uid, row->study_instance_uid) < 0)
+        const store_finding_counts *findings = &data->findings;
+        while (f < findings->count && row->study_instance_uid != NULL &&
+               strcmp(findings->study_instance_uids[f], row->study_instance_uid) < 0)
             f++;
         size_t first = f;
-        while (f < data->finding_count && row->study_instance_uid != NULL &&
-               strcmp(data->findings[f].study_instance_uid, row->study_instance_uid) == 0)
+        while (f < findings->count && row->study_instance_uid != NULL &&
+               strcmp(findings->study_instance_uids[f], row->study_instance_uid) == 0)
             f++;
-        row->rules = f > first ? &data->rules[first] : NULL;
+        row->rules = f > first ? &findings->counts[first] : NULL;
         row->rule_count = f - first;
     }
     return MITILOG_OK;

@@ -18,9 +18,8 @@ typedef struct report_data {
     exam_row *rows;                 /* list.rows, ordered by Study Instance UID;
                                        the statistics read them as they are */
     size_t row_count;
-    store_finding_count *findings;  /* with REPORT_LOAD_RULES */
-    size_t finding_count;
-    exam_rule_count *rules;         /* parallel to findings */
+    store_finding_counts findings;  /* with REPORT_LOAD_RULES; the rows'
+                                       rules point into findings.counts */
     store_period_info info;         /* with REPORT_LOAD_INFO */
     size_t capture_count, indexed_count;   /* over all rows */
 } report_data;

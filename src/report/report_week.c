@@ -495,7 +495,7 @@ static void week_html(const week_document *doc, FILE *out)
             if (flag->above_p95)
                 fputs("above baseline P95; ", out);
             if (row->finding_count > 0)
-                fprintf(out, "%ld findings", row->finding_count);
+                fprintf(out, "%zu findings", row->finding_count);
             fputs("</td></tr>\n", out);
         }
         fputs("</tbody></table>\n", out);

@@ -7,11 +7,13 @@
  * - rules_policy_load() allocates a rules_policy; rules_policy_free()
  *   releases it. A loaded policy is immutable and may be shared by threads.
  *   Strings returned by the iteration API point into the policy.
- * - rules_exam and exam_capture are caller-owned, read only during the
- *   call; nothing of them is kept.
+ * - rules_exam and its exam_captures (exam/exam.h, as the exam record
+ *   filled them) are caller-owned, read only during the call; nothing of
+ *   them is kept.
  * - rules_evaluate() and rules_output_not_reported() fill a caller-supplied
- *   rules_result whose findings and strings are heap copies owned by the
- *   result; rules_result_free() releases them (safe on a zeroed result and
+ *   rules_result whose findings (exam_finding) and strings are heap copies
+ *   owned by the result, passed to the store as they are;
+ *   rules_result_free() releases them (safe on a zeroed result and
  *   on a result whose evaluation failed).
  *
  * Times on the timeline are ESTIMATES (see extract/ext_timeline.h); every

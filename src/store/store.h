@@ -343,18 +343,20 @@ mitilog_status store_load_exam_governing(store *store, const char *from_day,
 void store_exam_list_free(store_exam_list *list);
 
 /* Findings (not superseded) per exam and rule for the same period,
- * ordered by Study Instance UID, then rule. */
-typedef struct store_finding_count {
-    char *study_instance_uid;
-    char *rule_id;
-    long count;
-} store_finding_count;
+ * ordered by Study Instance UID, then rule: counts[i] (the vocabulary's
+ * rule counts, which the period's exam rows point into) is of exam
+ * study_instance_uids[i]. Every string is owned here; free with
+ * store_finding_counts_free() (a zeroed value is empty). */
+typedef struct store_finding_counts {
+    char **study_instance_uids;
+    exam_rule_count *counts;
+    size_t count;
+} store_finding_counts;
 
 mitilog_status store_load_finding_counts(store *store, const char *from_day,
-                                         const char *to_day,
-                                         store_finding_count **rows,
-                                         size_t *count, mitilog_error *error);
-void store_finding_counts_free(store_finding_count *rows, size_t count);
+                                         const char *to_day, store_finding_counts *counts,
+                                         mitilog_error *error);
+void store_finding_counts_free(store_finding_counts *counts);
 
 /* What a report states: the current policy (NULL when none was recorded),
  * the versions of the period's findings ("v1,v2" or NULL) and the first

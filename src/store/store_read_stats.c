@@ -384,47 +384,51 @@ mitilog_status store_load_exam_governing(store *st, const char *from_day,
     return store_load_exams(st, STORE_QUERY_GOVERNING, from_day, before_day, 0, list, error);
 }
 
-void store_finding_counts_free(store_finding_count *rows, size_t count)
+void store_finding_counts_free(store_finding_counts *counts)
 {
-    for (size_t i = 0; rows != NULL && i < count; i++) {
-        free(rows[i].study_instance_uid);
-        free(rows[i].rule_id);
+    for (size_t i = 0; i < counts->count; i++) {
+        free(counts->study_instance_uids[i]);
+        free((char *)counts->counts[i].rule_id);
     }
-    free(rows);
+    free(counts->study_instance_uids);
+    free(counts->counts);
+    memset(counts, 0, sizeof *counts);
 }
 
 mitilog_status store_load_finding_counts(store *st, const char *from_day, const char *to_day,
-                                         store_finding_count **rows, size_t *count,
-                                         mitilog_error *error)
+                                         store_finding_counts *counts, mitilog_error *error)
 {
-    *rows = NULL;
-    *count = 0;
+    memset(counts, 0, sizeof *counts);
     if (st == NULL || from_day == NULL || to_day == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "store_load_finding_counts: no store or period");
     sqlite3_stmt *statement = NULL;
-    store_finding_count *list = NULL;
-    size_t n = 0, capacity = 0;
+    size_t capacity = 0;
     pthread_mutex_lock(&st->reader_lock);
     mitilog_status status = store_period_statement(st, "queries/stats_finding_counts.sql",
                                                    from_day, to_day, &statement, error);
     int rc = SQLITE_DONE;
     while (status == MITILOG_OK && (rc = sqlite3_step(statement)) == SQLITE_ROW) {
-        if (n == capacity) {
+        if (counts->count == capacity) {
             size_t grown_capacity = capacity ? capacity * 2 : 64;
-            store_finding_count *grown = realloc(list, grown_capacity * sizeof *grown);
+            char **uids = realloc(counts->study_instance_uids, grown_capacity * sizeof *uids);
+            if (uids != NULL)
+                counts->study_instance_uids = uids;
+            exam_rule_count *grown = uids == NULL ? NULL
+                                                  : realloc(counts->counts,
+                                                            grown_capacity * sizeof *grown);
             if (grown == NULL) {
                 status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "findings: out of memory");
                 break;
             }
-            list = grown;
+            counts->counts = grown;
             capacity = grown_capacity;
         }
-        store_finding_count *row = &list[n++];
+        size_t n = counts->count++;
         int failed = 0;
-        row->study_instance_uid = store_text_copy(statement, 0, &failed);
-        row->rule_id = store_text_copy(statement, 1, &failed);
-        row->count = store_count(statement, 2);
+        counts->study_instance_uids[n] = store_text_copy(statement, 0, &failed);
+        counts->counts[n].rule_id = store_text_copy(statement, 1, &failed);
+        counts->counts[n].count = store_count(statement, 2);
         if (failed)
             status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "findings: out of memory");
     }
@@ -432,13 +436,9 @@ mitilog_status store_load_finding_counts(store *st, const char *from_day, const 
         status = store_sql_error(error, st->reader, "query finding counts");
     sqlite3_finalize(statement);
     pthread_mutex_unlock(&st->reader_lock);
-    if (status != MITILOG_OK) {
-        store_finding_counts_free(list, n);
-        return status;
-    }
-    *rows = list;
-    *count = n;
-    return MITILOG_OK;
+    if (status != MITILOG_OK)
+        store_finding_counts_free(counts);
+    return status;
 }
 
 void store_period_info_free(store_period_info *info)
