@@ -54,10 +54,7 @@ struct http_guard {
     size_t count;
 };
 
-static void http_guard_now(struct timespec *now)
-{
-    clock_gettime(CLOCK_MONOTONIC, now);
-}
+static void http_guard_now(struct timespec *now) { clock_gettime(CLOCK_MONOTONIC, now); }
 
 static double http_guard_seconds_since(const struct timespec *since, const struct timespec *now)
 {
@@ -79,7 +76,8 @@ static void http_guard_sweep(http_guard *guard)
          * a browser's idle one, not a slow client: not worth a warning. */
         if (entry->replies > 0)
             log_debug("http: closed a kept-alive connection from %s: no further request "
-                      "within %u s", entry->address, guard->deadline_seconds);
+                      "within %u s",
+                      entry->address, guard->deadline_seconds);
         else
             log_warning("http: closed a connection from %s: no whole request within %u s "
                         "([http] request_timeout_seconds)",
@@ -107,8 +105,7 @@ static void *http_guard_watch(void *context)
     return NULL;
 }
 
-mitilog_status http_guard_start(unsigned deadline_seconds, http_guard **out,
-                                mitilog_error *error)
+mitilog_status http_guard_start(unsigned deadline_seconds, http_guard **out, mitilog_error *error)
 {
     *out = NULL;
     http_guard *guard = calloc(1, sizeof *guard);
@@ -167,8 +164,8 @@ void http_client_address(struct MHD_Connection *connection, char *out, size_t si
         inet_ntop(AF_INET, &((const struct sockaddr_in *)(const void *)address)->sin_addr, out,
                   (socklen_t)size);
     else if (address->sa_family == AF_INET6)
-        inet_ntop(AF_INET6, &((const struct sockaddr_in6 *)(const void *)address)->sin6_addr,
-                  out, (socklen_t)size);
+        inet_ntop(AF_INET6, &((const struct sockaddr_in6 *)(const void *)address)->sin6_addr, out,
+                  (socklen_t)size);
 }
 
 void http_guard_notify(void *context, struct MHD_Connection *connection, void **socket_context,

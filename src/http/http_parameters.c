@@ -10,7 +10,9 @@
 #include <stdlib.h>
 #include <string.h>
 
-#include "stats/stats_calendar.h"
+/* The statistics' calendar (day numbers, ISO weeks), reached through
+ * report.h as the audit routes reach it. */
+#include "report/report.h"
 
 enum { HTTP_UID_MAX = 64, HTTP_TEXT_MAX = 128, HTTP_INTEGER_DIGITS_MAX = 9 };
 
@@ -109,18 +111,16 @@ int http_parse_instant(const char *text, char out[HTTP_INSTANT_SIZE])
                 offset_minutes = http_two_digits(rest);
                 rest += 2;
             }
-            if (offset_hours < 0 || offset_hours > 23 || offset_minutes < 0 ||
-                offset_minutes > 59)
+            if (offset_hours < 0 || offset_hours > 23 || offset_minutes < 0 || offset_minutes > 59)
                 return 0;
             offset = sign * (offset_hours * 60 + offset_minutes);
         }
     }
     if (*rest != '\0')
         return 0;
-    /* Local time minus its offset is UTC (ISO 8601-1:2019 4.3.13). */
-    long long total = ((((long long)day * 24 + hour) * 60 + minute - offset) * 60 + second) *
-                          1000 +
-                      millisecond;
+    /* Local time minus its offset is UTC (RFC 3339 4.2). */
+    long long total =
+        ((((long long)day * 24 + hour) * 60 + minute - offset) * 60 + second) * 1000 + millisecond;
     long long per_day = 24LL * 60 * 60 * 1000;
     long utc_day = (long)(total >= 0 ? total / per_day : -((-total + per_day - 1) / per_day));
     long long in_day = total - (long long)utc_day * per_day;
@@ -130,9 +130,8 @@ int http_parse_instant(const char *text, char out[HTTP_INSTANT_SIZE])
         return 0;
     char day_text[11];
     stats_day_text(utc_day, day_text);
-    snprintf(out, HTTP_INSTANT_SIZE, "%sT%02d:%02d:%02d.%03dZ", day_text,
-             (int)(in_day / 3600000), (int)(in_day / 60000 % 60), (int)(in_day / 1000 % 60),
-             (int)(in_day % 1000));
+    snprintf(out, HTTP_INSTANT_SIZE, "%sT%02d:%02d:%02d.%03dZ", day_text, (int)(in_day / 3600000),
+             (int)(in_day / 60000 % 60), (int)(in_day / 1000 % 60), (int)(in_day % 1000));
     return 1;
 }
 
@@ -207,20 +206,20 @@ static int http_check(const http_parameter_rule *rule, const char *text,
     case HTTP_PARAMETER_CHOICE:
         if (http_is_choice(text, rule->choices))
             return 1;
-    {
-        /* "one of a, b, c" from "a|b|c" */
-        size_t used = (size_t)snprintf(message, size, "one of ");
-        for (const char *at = rule->choices; *at != '\0' && used + 3 < size; at++) {
-            if (*at == '|') {
-                message[used++] = ',';
-                message[used++] = ' ';
-            } else {
-                message[used++] = *at;
+        {
+            /* "one of a, b, c" from "a|b|c" */
+            size_t used = (size_t)snprintf(message, size, "one of ");
+            for (const char *at = rule->choices; *at != '\0' && used + 3 < size; at++) {
+                if (*at == '|') {
+                    message[used++] = ',';
+                    message[used++] = ' ';
+                } else {
+                    message[used++] = *at;
+                }
             }
+            message[used] = '\0';
+            return 0;
         }
-        message[used] = '\0';
-        return 0;
-    }
     }
     snprintf(message, size, "unknown rule");
     return 0;
@@ -232,8 +231,8 @@ int http_parameters_read(http_server *server, struct MHD_Connection *connection,
 {
     for (size_t i = 0; i < count; i++) {
         memset(&values[i], 0, sizeof values[i]);
-        values[i].text = MHD_lookup_connection_value(connection, MHD_GET_ARGUMENT_KIND,
-                                                     rules[i].name);
+        values[i].text =
+            MHD_lookup_connection_value(connection, MHD_GET_ARGUMENT_KIND, rules[i].name);
         if (values[i].text == NULL)
             continue;
         char message[256];
@@ -251,8 +250,8 @@ int http_parameters_period(http_server *server, const http_parameter_value *from
 {
     if (from->text == NULL || to->text == NULL || from->number <= to->number)
         return 1;
-    *reply = http_error_reply(server, MHD_HTTP_BAD_REQUEST,
-                              "parameters from and to: from %s is after to %s", from->text,
-                              to->text);
+    *reply =
+        http_error_reply(server, MHD_HTTP_BAD_REQUEST,
+                         "parameters from and to: from %s is after to %s", from->text, to->text);
     return 0;
 }

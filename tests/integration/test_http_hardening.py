@@ -49,8 +49,8 @@ def served(module_daemon_factory, fixtures):
 
 # ---- one parameter checker for every endpoint ---------------------------
 
-# Dates that do not exist in the proleptic Gregorian calendar (ISO 8601-1
-# 4.3.2: months 01-12, day within its month; 2026 is not a leap year), or
+# Dates that do not exist in the Gregorian calendar (RFC 3339 5.7: months
+# 01-12, day within its month, leap years by Appendix C; 2026 is not one), or
 # lie outside the years the API accepts (docs/api.md, "Parameters").
 IMPOSSIBLE_DATES = ["2026-02-31", "2026-02-29", "2026-13-45", "2026-04-31",
                     "2026-00-10", "10000-01-01", "0000-01-01", "1899-12-31",
@@ -65,7 +65,7 @@ def test_impossible_dates_are_refused_everywhere(served, endpoint, name):
         status, body = served.get("%s?%s=%s" % (endpoint, name, date))
         assert status == 400, (endpoint, name, date, body)
         assert set(body) == {"error"} and ("parameter %s" % name) in body["error"]
-    # Real dates (2024 and 2028 are leap years, ISO 8601-1 4.3.2) are
+    # Real dates (2024 and 2028 are leap years, RFC 3339 Appendix C) are
     # accepted; both given, so that no default of the other end (the first
     # or last exam day held) can fall outside the period.
     status, body = served.get("%s?from=2024-02-29&to=2028-02-29" % endpoint)
@@ -82,7 +82,8 @@ def test_a_period_that_ends_before_it_starts_is_refused(served, endpoint):
 @pytest.mark.parametrize("endpoint", ["/api/v1/outliers", "/api/v1/drift"])
 def test_weeks_with_years_out_of_range_are_refused(served, endpoint):
     # Before: week=9999-W52 answered a period ending "0000-01-02" (the year
-    # wrapped). ISO 8601-1 4.3.2: a week date's year has four digits.
+    # wrapped). RFC 3339 Appendix A (ISO 8601 week dates): a four-digit
+    # year and weeks 01-52/53 (2025 has 52, 2026 has 53).
     for week in ["9999-W52", "9999-W01", "0001-W01", "1899-W10", "2025-W53", "2026-W00"]:
         status, body = served.get("%s?week=%s" % (endpoint, week))
         assert status == 400, (week, body)
@@ -130,8 +131,8 @@ def test_since_is_an_instant_with_its_offset(served):
 
 
 def test_impossible_instants_are_refused(served):
-    # ISO 8601-1 4.3.2 / RFC 3339 5.6 (hours 00-23, minutes and seconds
-    # 00-59, offsets hh:mm) and the API's year range.
+    # RFC 3339 5.6 and 5.7 (months 01-12, hours 00-23, minutes 00-59,
+    # offsets hh:mm) and the API's year range.
     for since in ["2026-13-45", "2026-02-30T10:00:00Z", "2026-01-01T24:00:00Z",
                   "2026-01-01T10:60:00Z", "2026-01-01T10:00:61Z", "2026-01-01T10:00+25:00",
                   "2026-01-01T10:00:00ZZ", "2026-01-01T10", "yesterday", "1899-12-31T23:00:00Z",

@@ -24,7 +24,7 @@ static void calendar_dates(void **state)
     assert_int_equal(day, 11017);
     assert_true(http_parse_date("1900-01-01", &day));
     assert_int_equal(day, -25567);
-    /* Gregorian leap years (ISO 8601-1 3.2.1): 2000 and 2024 yes, 1900
+    /* Gregorian leap years (RFC 3339 5.7 and Appendix C): 2000 and 2024 yes, 1900
      * and 2026 no. */
     assert_true(http_parse_date("2000-02-29", &day));
     assert_true(http_parse_date("2024-02-29", &day));
@@ -72,12 +72,23 @@ static void instants(void **state)
     assert_true(http_parse_instant("2026-12-03T09:51:12.345000Z", out));
     assert_string_equal(out, "2026-12-03T09:51:12.345Z");
     /* Impossible fields (RFC 3339 5.6/5.7). */
-    const char *bad[] = {"2026-13-45",           "2026-02-30T10:00:00Z", "2026-01-01T24:00:00Z",
-                         "2026-01-01T10:60Z",    "2026-01-01T10:00:60Z", "2026-01-01T10:00+24:00",
-                         "2026-01-01T10:00+02:60", "2026-01-01T10:00+2",  "2026-01-01T10:00+",
-                         "2026-01-01T10",        "2026-01-01T10:00:00.Z", "2026-01-01T10:00ZZ",
-                         "2026-01-01Z",          "1900-01-01T00:30+01:00", "9998-12-31T23:30-01:00",
-                         "20260101",             ""};
+    const char *bad[] = {"2026-13-45",
+                         "2026-02-30T10:00:00Z",
+                         "2026-01-01T24:00:00Z",
+                         "2026-01-01T10:60Z",
+                         "2026-01-01T10:00:60Z",
+                         "2026-01-01T10:00+24:00",
+                         "2026-01-01T10:00+02:60",
+                         "2026-01-01T10:00+2",
+                         "2026-01-01T10:00+",
+                         "2026-01-01T10",
+                         "2026-01-01T10:00:00.Z",
+                         "2026-01-01T10:00ZZ",
+                         "2026-01-01Z",
+                         "1900-01-01T00:30+01:00",
+                         "9998-12-31T23:30-01:00",
+                         "20260101",
+                         ""};
     for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
         if (http_parse_instant(bad[i], out))
             fail_msg("accepted %s as %s", bad[i], out);
@@ -102,9 +113,9 @@ static void throttle(void **state)
     http_throttle_failed(table, "10.0.0.1", "lead", 100.0, &by_address, &by_user);
     assert_int_equal(by_user, 5);
     assert_int_equal(http_throttle_wait(table, "10.0.0.1", "lead", 100.0), 1);
-    assert_int_equal(http_throttle_wait(table, "10.0.0.2", "lead", 100.0), 1); /* per user */
+    assert_int_equal(http_throttle_wait(table, "10.0.0.2", "lead", 100.0), 1);  /* per user */
     assert_int_equal(http_throttle_wait(table, "10.0.0.1", "nurse", 100.0), 1); /* per address */
-    assert_int_equal(http_throttle_wait(table, "10.0.0.1", "lead", 100.5), 1); /* rounded up */
+    assert_int_equal(http_throttle_wait(table, "10.0.0.1", "lead", 100.5), 1);  /* rounded up */
     assert_int_equal(http_throttle_wait(table, "10.0.0.2", "nurse", 100.0), 0);
     assert_int_equal(http_throttle_wait(table, "10.0.0.1", "lead", 101.5), 0);
     http_throttle_failed(table, "10.0.0.1", "lead", 102.0, &by_address, &by_user);
