@@ -267,10 +267,13 @@ int http_post_refused(http_server *server, struct MHD_Connection *connection, co
     const char *origin = MHD_lookup_connection_value(connection, MHD_HEADER_KIND, "Origin");
     const char *host = MHD_lookup_connection_value(connection, MHD_HEADER_KIND, "Host");
     if (origin != NULL) {
-        char expected[300];
-        snprintf(expected, sizeof expected, "%s://%s",
-                 server->tls_certificate != NULL ? "https" : "http", host != NULL ? host : "");
-        if (host == NULL || strcmp(origin, expected) != 0) {
+        /* Host as the browser named it; either scheme, since a reverse
+         * proxy may end HTTPS in front of plain HTTP here (it must pass
+         * Host on: deploy/nginx-mitilog.conf). */
+        const char *rest = strncmp(origin, "https://", 8) == 0  ? origin + 8
+                           : strncmp(origin, "http://", 7) == 0 ? origin + 7
+                                                                 : NULL;
+        if (host == NULL || rest == NULL || strcmp(rest, host) != 0) {
             *reply = http_error_reply(server, MHD_HTTP_FORBIDDEN,
                                       "refused: the request came from %.100s, not from this "
                                       "server's pages",
