@@ -124,7 +124,11 @@ function thermalDose(measurements) {
   return `${fmt(measurements.cem43_minutes, 3)} min (estimate)`;
 }
 
-function findingsTable(findings) {
+function findingsTable(findings, silent) {
+  if ((!findings || findings.length === 0) && silent) {
+    return el('p', { id: 'no-findings' }, 'No finding could be made: no image of this exam carries an index, so its exposure is unknown. '
+      + 'The room and transducer appear under "No index displayed" on the review worklist and on the ingest status page.');
+  }
   if (!findings || findings.length === 0) return el('p', { id: 'no-findings' }, 'No findings recorded for this exam (or the policy engine has not evaluated it yet).');
   return el('table', { id: 'findings' },
     el('thead', {}, el('tr', {}, ['Rule', 'Severity', 'Quantity', 'Measured', 'Limit', 'Threshold', 'Estimated time', 'Provisional', 'Assumptions', 'Source'].map((t) => el('th', {}, t)))),
@@ -188,7 +192,8 @@ async function main() {
   content.appendChild(timelineChart(study, limits));
   content.appendChild(legend(study, limits));
   content.appendChild(el('h2', {}, 'Findings'));
-  content.appendChild(findingsTable(study.findings));
+  const silent = Object.values(study.maxima || {}).every((v) => v === null);
+  content.appendChild(findingsTable(study.findings, silent));
   content.appendChild(el('h2', {}, `Instances (${(study.instances || []).length})`));
   content.appendChild(instancesTable(study.instances || []));
 }

@@ -99,6 +99,18 @@ try {
   const state = await page.locator('#worklist tbody tr').first().locator('td.state').textContent();
   check('worklist shows the finding reviewed', state.includes('Equipment referred to physics'), state);
 
+  // An exam without any index: exposure unknown, never 0.
+  if (config.silent_study) {
+    await page.goto(`${config.url}/exam.html?study=${encodeURIComponent(config.silent_study)}`, { waitUntil: 'networkidle' });
+    await page.waitForSelector('#no-findings', { timeout: 15000 });
+    const dose = await page.textContent('#thermal-dose');
+    check('silent exam: thermal dose unknown, not 0', dose.startsWith('unknown') && !dose.includes('0.000'), dose);
+    const maxima = await page.textContent('#maxima');
+    check('silent exam: maxima unknown', maxima.startsWith('unknown'), maxima);
+    const none = await page.textContent('#no-findings');
+    check('silent exam: says why there is no finding', none.includes('exposure is unknown'), none);
+  }
+
   // 3. A cross-site form post is refused, even with the reviewer's login.
   const before = JSON.parse(await (await reviewer.context.request.get(config.url + '/api/v1/reviews')).text()).length;
   const refused = page.waitForResponse((r) => r.url().endsWith('/api/v1/reviews') && r.request().method() === 'POST');

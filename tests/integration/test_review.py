@@ -324,10 +324,17 @@ def test_review_in_chromium(department, tmp_path):
                 '<input name="finding" value="1"><input name="outcome" value="acceptable">'
                 '<input name="comment" value="posted by another site"></form>'
                 '<script>document.getElementById("f").submit();</script></body></html>' % url)
+    # An exam of the silent probe (docs/demo.md: L4-15 in US-ROOM-3 from
+    # 2026-11-16): no index at all, so its exposure is unknown, not 0.
+    with department.db() as db:
+        silent = db.execute(
+            "SELECT study_instance_uid FROM exams WHERE max_mi IS NULL AND max_tis IS NULL AND "
+            "max_tib IS NULL AND max_tic IS NULL AND capture_count > 0 AND "
+            "first_acquired_at >= '2026-11-16' ORDER BY first_acquired_at LIMIT 1").fetchone()[0]
     out = os.path.join(OUT_DIR, "browser-review-" + os.path.basename(os.path.dirname(BINARY)))
     config = dict(url=url, out=out, reviewer=list(REVIEWER), viewer=list(VIEWER),
                   hot_preset="Abdomen General", night_shift="night", cross_site_page=cross_site,
-                  accession=ACCESSION)
+                  accession=ACCESSION, silent_study=silent)
     # GnuTLS (through libmicrohttpd) notes Chromium's TLS 1.3 key updates
     # and closes as "received handshake message out of context"; the
     # pages are checked below, the note is not a failure.
