@@ -265,7 +265,7 @@ CREATE TABLE IF NOT EXISTS "instances" (
         CHECK (text_replaced = 0 OR text_replaced = 1),
     modes_image_type               INTEGER NOT NULL DEFAULT 0,  -- Image Type value 4
     modes_regions                  INTEGER NOT NULL DEFAULT 0,  -- Region Data Types
-    modes_sr                       INTEGER NOT NULL DEFAULT 0,  -- SR mode containers
+    modes_sr                       INTEGER NOT NULL DEFAULT 0, accession_number TEXT,  -- SR mode containers
 
     -- A status is one of three words, and a value is present exactly when
     -- its text was one well-formed number.
@@ -328,6 +328,19 @@ CREATE TABLE rejections (
     source_path       TEXT NOT NULL,  -- imported path, or ''
     quarantine_path   TEXT NOT NULL,  -- '' when the bytes were not kept
     reason            TEXT NOT NULL
+) STRICT;
+CREATE TABLE reviews (
+    id                  INTEGER PRIMARY KEY,
+    study_instance_uid  TEXT,        -- NULL only for a device-level finding
+    finding_id          INTEGER,     -- NULL: the whole exam was reviewed
+    outcome             TEXT NOT NULL CHECK (outcome IN (
+                            'acceptable', 'discussed_with_operator',
+                            'referred_to_physics', 'preset_to_change', 'reopened')),
+    comment             TEXT NOT NULL DEFAULT '' CHECK (length(comment) <= 2000),
+    reviewer            TEXT NOT NULL,
+    role                TEXT NOT NULL,
+    reviewed_at         TEXT NOT NULL, -- ISO 8601 UTC
+    CHECK (study_instance_uid IS NOT NULL OR finding_id IS NOT NULL)
 ) STRICT;
 CREATE TABLE screen_profiles (
     id INTEGER PRIMARY KEY,
@@ -406,6 +419,9 @@ CREATE INDEX instances_day ON instances (substr(coalesce(acquired_at, received_a
 CREATE INDEX instances_received ON instances (received_at);
 CREATE INDEX instances_study ON instances (study_instance_uid, acquired_at);
 CREATE INDEX rejections_received ON rejections (received_at);
+CREATE INDEX reviews_finding ON reviews (finding_id, id) WHERE finding_id IS NOT NULL;
+CREATE INDEX reviews_study ON reviews (study_instance_uid, id);
+CREATE INDEX reviews_time ON reviews (reviewed_at);
 CREATE UNIQUE INDEX screen_profiles_one_active
     ON screen_profiles (profile_key) WHERE state = 'active';
 CREATE INDEX screen_readings_state ON screen_readings (state);
@@ -648,4 +664,12 @@ END;
 CREATE TRIGGER exam_time_at_or_above_exam_delete AFTER DELETE ON exams
 BEGIN
     DELETE FROM exam_time_at_or_above WHERE study_instance_uid = OLD.study_instance_uid;
+END;
+CREATE TRIGGER reviews_no_delete BEFORE DELETE ON reviews
+BEGIN
+    SELECT raise(ABORT, 'reviews are append-only: add a new review instead');
+END;
+CREATE TRIGGER reviews_no_update BEFORE UPDATE ON reviews
+BEGIN
+    SELECT raise(ABORT, 'reviews are append-only: add a new review instead');
 END;

@@ -93,7 +93,8 @@ if [ "$tsan_built" -eq 1 ]; then
   step "HTTP integration tests build-tsan/mitilog (ThreadSanitizer, concurrent clients)" \
     env MITILOG_BINARY="$top/build-tsan/mitilog" TSAN_OPTIONS=halt_on_error=1:exitcode=66 \
     "$python" -m pytest -v -p no:cacheprovider tests/integration/test_concurrency.py \
-    tests/integration/test_access.py tests/integration/test_reports.py
+    tests/integration/test_access.py tests/integration/test_reports.py \
+    tests/integration/test_review.py
 fi
 
 # Every benchmark once at its tiny size, so that none of them rots (speed

@@ -8,6 +8,7 @@ export const CAUTION =
   "The department's safety policy, its medical physicist and local regulation decide.";
 
 const PAGES = [
+  ['review.html', 'Review worklist'],
   ['index.html', 'Weekly outliers'],
   ['stats.html', 'Statistics by exam type'],
   ['presets.html', 'Presets over time'],

@@ -115,7 +115,20 @@ function legend(study, limits) {
     ` Thick dashed lines: limits; dotted lines: dwell thresholds with their time limits (${limits.source}).`);
 }
 
-function findingsTable(findings) {
+/* CEM43 is computed from the governing TI: without any value it is
+ * unknown, never 0. */
+function thermalDose(measurements) {
+  if (measurements.max_governing === null || measurements.max_governing === undefined) {
+    return 'unknown: no image carries the governing thermal index, so no thermal dose can be estimated';
+  }
+  return `${fmt(measurements.cem43_minutes, 3)} min (estimate)`;
+}
+
+function findingsTable(findings, silent) {
+  if ((!findings || findings.length === 0) && silent) {
+    return el('p', { id: 'no-findings' }, 'No finding could be made: no image of this exam carries an index, so its exposure is unknown. '
+      + 'The room and transducer appear under "No index displayed" on the review worklist and on the ingest status page.');
+  }
   if (!findings || findings.length === 0) return el('p', { id: 'no-findings' }, 'No findings recorded for this exam (or the policy engine has not evaluated it yet).');
   return el('table', { id: 'findings' },
     el('thead', {}, el('tr', {}, ['Rule', 'Severity', 'Quantity', 'Measured', 'Limit', 'Threshold', 'Estimated time', 'Provisional', 'Assumptions', 'Source'].map((t) => el('th', {}, t)))),
@@ -172,13 +185,15 @@ async function main() {
     el('dt', {}, 'Transducer'), el('dd', {}, orNone(context.transducer || first.transducer)),
     el('dt', {}, 'First / last capture'), el('dd', {}, `${orNone(study.first_acquired_at)} / ${orNone(study.last_acquired_at)}`),
     el('dt', {}, 'Estimated scan time'), el('dd', {}, `${minutes(summary.estimated_seconds)} (estimate: gaps capped at ${fmt(summary.gap_cap_seconds, 0)} s, ${summary.capped_count ?? '—'} capped, ${summary.untimed_count ?? '—'} untimed)`),
-    el('dt', {}, 'Maxima'), el('dd', {}, Object.entries(study.maxima || {}).filter(([, v]) => v !== null).map(([k, v]) => `${k.toUpperCase()} ${v}`).join(', ') || '—'),
-    study.measurements ? [el('dt', {}, 'Thermal dose (CEM43)'), el('dd', {}, `${fmt(study.measurements.cem43_minutes, 3)} min (estimate)`)] : null));
+    el('dt', {}, 'Maxima'), el('dd', { id: 'maxima' }, Object.entries(study.maxima || {}).filter(([, v]) => v !== null).map(([k, v]) => `${k.toUpperCase()} ${v}`).join(', ') ||
+      'unknown: no image of this exam carries an index (not displayed or not sent), so its exposure is unknown, not low'),
+    study.measurements ? [el('dt', {}, 'Thermal dose (CEM43)'), el('dd', { id: 'thermal-dose' }, thermalDose(study.measurements))] : null));
   content.appendChild(el('h2', {}, 'Indices over the exam'));
   content.appendChild(timelineChart(study, limits));
   content.appendChild(legend(study, limits));
   content.appendChild(el('h2', {}, 'Findings'));
-  content.appendChild(findingsTable(study.findings));
+  const silent = Object.values(study.maxima || {}).every((v) => v === null);
+  content.appendChild(findingsTable(study.findings, silent));
   content.appendChild(el('h2', {}, `Instances (${(study.instances || []).length})`));
   content.appendChild(instancesTable(study.instances || []));
 }

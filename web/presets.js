@@ -62,7 +62,7 @@ async function main() {
   content.appendChild(form);
   content.appendChild(el('dl', { class: 'facts' },
     el('dt', {}, 'Weeks'), el('dd', {}, `${data.from} to ${data.to} (${data.weeks} ISO weeks, last ${data.last_week})`),
-    el('dt', {}, 'Method'), el('dd', {}, data.method + `; drift when |z| > ${data.z_limit}; a week needs ${data.minimum_baseline} baseline exams`),
+    el('dt', {}, 'Method'), el('dd', {}, data.method + `; drift is a rise: z > ${data.z_limit} from at least 5 exams in the week (a drop is shown, never flagged); a week needs ${data.minimum_baseline} baseline exams`),
     el('dt', {}, 'Policy version'), el('dd', {}, data.policy_version || 'none recorded'),
     el('dt', {}, 'Data completeness'), el('dd', {}, `${(100 * (data.data_completeness || 0)).toFixed(0)} % of captures carry indices`)));
   const flagged = data.series.filter((s) => s.flagged_weeks > 0);
@@ -70,7 +70,7 @@ async function main() {
   if (flagged.length === 0) content.appendChild(el('p', {}, 'No preset moved beyond its own baseline in these weeks.'));
   const grid = el('div', { class: 'small-multiples', id: 'drift-charts' });
   for (const s of flagged.slice(0, 12)) {
-    grid.appendChild(el('figure', {}, el('figcaption', {}, `${orNone(s.preset)} · ${orNone(s.room)} — ${s.flagged_weeks} week(s) flagged, largest |z| ${fmt(s.max_abs_z, 1)}`), seriesChart(s)));
+    grid.appendChild(el('figure', {}, el('figcaption', {}, `${orNone(s.preset)} · ${orNone(s.room)} — ${s.flagged_weeks} week(s) risen, largest |z| ${fmt(s.max_abs_z, 1)}`), seriesChart(s)));
   }
   content.appendChild(grid);
   content.appendChild(el('h2', {}, 'All presets'));

@@ -58,7 +58,6 @@ function groupTable(document_, groups) {
       el('td', { class: 'n' }, percent(group.outlier_rate)),
       el('td', { class: 'n' }, fmt(group.median_governing)),
       el('td', { class: 'n' }, fmt(group.department_median)),
-      el('td', { class: 'n' }, group.median_ratio === null ? '—' : '× ' + fmt(group.median_ratio)),
       el('td', { class: 'n' }, fmt(group.median_mi)),
       el('td', {}, rules),
       el('td', { class: 'n' }, percent(group.data_completeness))));
@@ -69,7 +68,7 @@ function groupTable(document_, groups) {
       el('th', { class: 'n' }, 'Rank'), el('th', {}, label ? label[1] : document_.group_by),
       el('th', { class: 'n' }, 'Exams'), el('th', { class: 'n' }, 'Outliers'), el('th', { class: 'n' }, 'Rate'),
       el('th', { class: 'n' }, 'Median governing TI'), el('th', { class: 'n' }, 'Department median, same exam types'),
-      el('th', { class: 'n' }, 'Ratio'), el('th', { class: 'n' }, 'Median MI'), el('th', {}, 'Findings by rule'),
+      el('th', { class: 'n' }, 'Median MI'), el('th', {}, 'Findings by rule'),
       el('th', { class: 'n' }, 'Captures with indices'))),
     body);
 }
@@ -124,8 +123,10 @@ async function main() {
   content.appendChild(el('dl', { class: 'facts' },
     el('dt', {}, 'Period'), el('dd', {}, `${data.from} to ${data.to} (ISO week ${data.week}, local dates)`),
     el('dt', {}, 'Exams'), el('dd', {}, `${data.exam_count}, of which ${data.outlier_count} outliers`),
-    el('dt', {}, 'Baseline'), el('dd', {}, `each exam type's exams from ${data.baseline_from} to ${data.baseline_to} (${data.baseline_weeks} weeks; ${data.baseline_exam_count} exams)`),
-    el('dt', {}, 'Outlier rule'), el('dd', {}, `highest governing TI with robust z above ${data.z_limit} or above the baseline's 95th percentile`),
+    el('dt', {}, 'Baseline'), el('dd', { id: 'baseline-span' }, data.baseline_data_from
+      ? `each exam type's exams of the weeks before: data held from ${data.baseline_data_from} to ${data.baseline_data_to} (${data.baseline_weeks_with_data} week(s) with data; ${data.baseline_exam_count} exams; up to ${data.baseline_weeks} weeks are looked at)`
+      : `no exam before this week: each exam type is compared with the week's own exams`),
+    el('dt', {}, 'Outlier rule'), el('dd', {}, `a rise: highest governing TI with robust z above ${data.z_limit} or above the baseline's 95th percentile (a low value is shown, never flagged)`),
     el('dt', {}, 'Policy version'), el('dd', { id: 'policy-version' }, data.policy_version || 'none recorded (exams not yet evaluated by the policy engine)'),
     el('dt', {}, 'Data completeness'), el('dd', {}, `${percent(data.data_completeness)} of captures carry indices (${data.captures_with_indices} of ${data.captures})`)));
   const thin = (data.baselines || []).filter((b) => b.thin);

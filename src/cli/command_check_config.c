@@ -150,7 +150,6 @@ static int check_categories(const rules_policy *policy, const char *policy_path,
     return unknown;
 }
 
-/* from_config: the path came from [rules] policy of that file. */
 /* What the HTTP side will be: scheme, login (the password file is read
  * and checked), limits. */
 static int check_http(const config *config)
@@ -181,7 +180,7 @@ static int check_http(const config *config)
     return status;
 }
 
-
+/* from_config: the path came from [rules] policy of that file. */
 static int check_policy(const char *path, const char *from_config, const ext_site_rules *rules)
 {
     rules_policy *policy = NULL;

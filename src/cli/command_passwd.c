@@ -1,5 +1,6 @@
-/* mitilog passwd USER: prints a password-file line for [http] password_file,
- * reading the password from standard input (not echoed on a terminal). */
+/* mitilog passwd [--role viewer|reviewer] USER: prints a password-file
+ * line for [http] password_file, reading the password from standard input
+ * (not echoed on a terminal). */
 #include <stdio.h>
 #include <string.h>
 #include <termios.h>
@@ -32,11 +33,20 @@ static int read_password(char *buffer, size_t size)
 
 int command_passwd(int argc, char **argv)
 {
-    if (cli_wants_help(argc, argv) || argc != 2 || strchr(argv[1], ':') != NULL) {
-        fprintf(argc == 2 ? stdout : stderr,
-                "usage: mitilog passwd USER\n"
+    const char *role = NULL;
+    if (argc == 4 && strcmp(argv[1], "--role") == 0) {
+        role = argv[2];
+        argv += 2;
+        argc -= 2;
+    }
+    int bad_role = role != NULL && strcmp(role, "viewer") != 0 && strcmp(role, "reviewer") != 0;
+    if (cli_wants_help(argc, argv) || argc != 2 || strchr(argv[1], ':') != NULL || bad_role) {
+        fprintf(argc == 2 && !bad_role ? stdout : stderr,
+                "usage: mitilog passwd [--role viewer|reviewer] USER\n"
                 "Reads a password from standard input and prints 'USER:HASH' (yescrypt,\n"
-                "libxcrypt) for the file named by [http] password_file.\n");
+                "libxcrypt), or 'USER:HASH:ROLE' with --role, for the file named by\n"
+                "[http] password_file. viewer (the default) reads; reviewer also records\n"
+                "reviews of findings.\n");
         return cli_wants_help(argc, argv) ? EXIT_STATUS_SUCCESS : EXIT_STATUS_USAGE;
     }
     char password[512];
@@ -50,6 +60,9 @@ int command_passwd(int argc, char **argv)
         fprintf(stderr, "mitilog passwd: %s\n", error.text);
         return EXIT_STATUS_FAILURE;
     }
-    printf("%s:%s\n", argv[1], hash);
+    if (role != NULL)
+        printf("%s:%s:%s\n", argv[1], hash, role);
+    else
+        printf("%s:%s\n", argv[1], hash);
     return EXIT_STATUS_SUCCESS;
 }

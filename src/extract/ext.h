@@ -96,6 +96,7 @@ typedef struct ext_record {
     char *station_name;
     char *institutional_department_name;
     char *study_description;
+    char *accession_number;         /* (0008,0050), NULL when absent */
     char *protocol_name;
     char *transfer_syntax_uid;
     char *calling_ae_title;         /* "" for imported files */

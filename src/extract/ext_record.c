@@ -162,6 +162,7 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
     record->institutional_department_name =
         trimmed_duplicate(values[DCM_ATTRIBUTE_INSTITUTIONAL_DEPARTMENT_NAME], &failed, &record->text_replaced, latin1);
     record->study_description = trimmed_duplicate(values[DCM_ATTRIBUTE_STUDY_DESCRIPTION], &failed, &record->text_replaced, latin1);
+    record->accession_number = trimmed_duplicate(values[DCM_ATTRIBUTE_ACCESSION_NUMBER], &failed, &record->text_replaced, latin1);
     record->protocol_name = trimmed_duplicate(values[DCM_ATTRIBUTE_PROTOCOL_NAME], &failed, &record->text_replaced, latin1);
     record->transfer_syntax_uid = trimmed_duplicate(facts->transfer_syntax_uid, &failed, &record->text_replaced, latin1);
 
@@ -205,6 +206,7 @@ void ext_record_free(ext_record *record)
                         &record->station_name,
                         &record->institutional_department_name,
                         &record->study_description,
+                        &record->accession_number,
                         &record->protocol_name,
                         &record->transfer_syntax_uid,
                         &record->calling_ae_title,

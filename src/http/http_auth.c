@@ -10,6 +10,7 @@
 typedef struct http_user {
     char *name;
     char *hash;
+    const char *role; /* "viewer" or "reviewer" (static) */
 } http_user;
 
 struct http_auth {
@@ -76,6 +77,19 @@ static mitilog_status http_auth_add(http_auth *auth, char *line, const char *pat
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "%s:%d: expected user:$crypt-hash", path, number);
     *colon = '\0';
+    /* An optional third field names the role; none: viewer. */
+    const char *role = "viewer";
+    char *role_colon = strchr(colon + 1, ':');
+    if (role_colon != NULL) {
+        *role_colon = '\0';
+        if (strcmp(role_colon + 1, "reviewer") == 0)
+            role = "reviewer";
+        else if (strcmp(role_colon + 1, "viewer") != 0)
+            return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                     "%s:%d: role '%.32s' of user %.64s is neither viewer nor "
+                                     "reviewer",
+                                     path, number, role_colon + 1, line);
+    }
     http_user *grown = realloc(auth->users, (auth->count + 1) * sizeof *grown);
     if (grown == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
@@ -83,6 +97,7 @@ static mitilog_status http_auth_add(http_auth *auth, char *line, const char *pat
     http_user *user = &auth->users[auth->count];
     user->name = strdup(line);
     user->hash = strdup(colon + 1);
+    user->role = role;
     if (user->name == NULL || user->hash == NULL) {
         free(user->name);
         free(user->hash);
@@ -157,6 +172,16 @@ int http_auth_check(const http_auth *auth, const char *user, const char *passwor
     int match = computed != NULL && computed[0] != '*' && same_text(computed, expected);
     free(data);
     return match && known;
+}
+
+const char *http_auth_role(const http_auth *auth, const char *user)
+{
+    if (auth == NULL || user == NULL)
+        return NULL;
+    for (size_t i = 0; i < auth->count; i++)
+        if (strcmp(auth->users[i].name, user) == 0)
+            return auth->users[i].role;
+    return NULL;
 }
 
 mitilog_status http_auth_hash(const char *password, char *out, size_t size, mitilog_error *error)

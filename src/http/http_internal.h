@@ -7,6 +7,8 @@
  * http_routes*.c  the JSON API (/healthz, /api/v1/...);
  * http_guard.c   connection deadlines (slow clients);
  * http_throttle.c  login failures per address and per user;
+ * http_routes_reviews.c  the review worklist, the review history and
+ *                recording a review (POST, login and forgery checks);
  * http_static.c  the dashboard's files under web_root.
  */
 #ifndef MITILOG_HTTP_INTERNAL_H
@@ -19,6 +21,8 @@
 #include "http/http.h"
 #include "http/http_auth.h"
 #include "http/http_throttle.h"
+#include "stats/stats_calendar.h"
+#include "util/hash.h"
 
 /* http_guard.c: the deadline for receiving each request (see there). */
 typedef struct http_guard http_guard;
@@ -51,7 +55,14 @@ struct http_server {
     char *tls_certificate;       /* PEM text kept for MHD, NULL: HTTP    */
     char *tls_private_key;
     http_guard *guard;           /* request deadlines                    */
+    char csrf_key[65];           /* random, drawn at start: review tokens */
 };
+
+/* Who sent a request: user "" and role NULL when no login is set. */
+typedef struct http_identity {
+    char user[128];
+    const char *role; /* "viewer" or "reviewer" (static) */
+} http_identity;
 
 /* A response to queue: status code and the response (owned). */
 typedef struct http_reply {
@@ -138,6 +149,25 @@ int http_route_stats(http_server *server, struct MHD_Connection *connection,
  * 0 if url is neither. */
 int http_route_devices(http_server *server, struct MHD_Connection *connection,
                        const char *url, http_reply *reply);
+/* http_routes_reviews.c: GET /api/v1/session, /api/v1/worklist, operators and
+ * /api/v1/reviews; 0 if url is none of them. */
+int http_route_reviews(http_server *server, struct MHD_Connection *connection, const char *url,
+                       const http_identity *identity, http_reply *reply);
+/* The token a write of user must carry (HMAC of the name under csrf_key). */
+mitilog_status http_csrf_token(const http_server *server, const char *user,
+                               char out[HASH_HEX_SIZE]);
+/* A POST being read (see http_routes_reviews.c). */
+typedef struct http_post http_post;
+/* First call of a POST: 1 with *reply when it is refused before its body
+ * is read (path, login, role, origin, content type). */
+int http_post_refused(http_server *server, struct MHD_Connection *connection, const char *url,
+                      const http_identity *identity, http_reply *reply);
+/* NULL when out of memory. Freed by http_post_free(). */
+http_post *http_post_create(struct MHD_Connection *connection, const http_identity *identity);
+void http_post_feed(http_post *post, const char *data, size_t size);
+http_reply http_post_finish(http_server *server, struct MHD_Connection *connection,
+                            http_post *post);
+void http_post_free(http_post *post);
 
 /* http_static.c: serves url from web_root; 0 if there is no such file. */
 int http_route_static(const http_server *server, const char *url,

@@ -12,6 +12,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/random.h>
 #include <sys/socket.h>
 #include <sys/stat.h>
 #include <time.h>
@@ -205,7 +206,7 @@ static enum MHD_Result http_queue_login_request(http_server *server,
  * is logged with the address and the escaped user name, never the
  * password. */
 static int http_login_accepted(http_server *server, struct MHD_Connection *connection,
-                               enum MHD_Result *result)
+                               enum MHD_Result *result, http_identity *identity)
 {
     char *password = NULL;
     char *user = MHD_basic_auth_get_username_password(connection, &password);
@@ -233,7 +234,13 @@ static int http_login_accepted(http_server *server, struct MHD_Connection *conne
         *result = http_queue(server, connection, reply);
     } else if (http_auth_check(server->auth, user, password)) {
         http_throttle_succeeded(server->throttle, address, user);
-        accepted = 1;
+        if (strlen(user) < sizeof identity->user) {
+            snprintf(identity->user, sizeof identity->user, "%s", user);
+            identity->role = http_auth_role(server->auth, user);
+            accepted = 1;
+        } else {
+            *result = http_queue_login_request(server, connection);
+        }
     } else {
         unsigned address_failures, user_failures;
         http_throttle_failed(server->throttle, address, user, http_monotonic_seconds(),
@@ -260,9 +267,10 @@ static enum MHD_Result http_count_header(void *context, enum MHD_ValueKind kind,
     return MHD_YES;
 }
 
-/* MHD access handler: GET and HEAD only (MHD leaves out the body of a
- * HEAD reply), then the API, then static files, else 404. Answers on the
- * first call: no request body is ever needed. */
+/* MHD access handler: GET and HEAD (MHD leaves out the body of a HEAD
+ * reply) to the API, then static files, else 404; answered on the first
+ * call. POST only to /api/v1/reviews: checked on the first call, its body
+ * read by the following ones (*state holds it), answered on the last. */
 static enum MHD_Result http_handle(void *context,
                                    struct MHD_Connection *connection,
                                    const char *url, const char *method,
@@ -271,11 +279,17 @@ static enum MHD_Result http_handle(void *context,
                                    size_t *upload_data_size, void **state)
 {
     (void)version;
-    (void)upload_data;
-    (void)upload_data_size;
-    (void)state;
     http_server *server = context;
     http_reply reply;
+    if (*state != NULL) { /* a POST whose checks passed: its body */
+        http_post *post = *state;
+        if (*upload_data_size != 0) {
+            http_post_feed(post, upload_data, *upload_data_size);
+            *upload_data_size = 0;
+            return MHD_YES;
+        }
+        return http_queue(server, connection, http_post_finish(server, connection, post));
+    }
     size_t target = http_guard_received(server->guard, connection);
     if (target > HTTP_TARGET_MAX)
         return http_queue(server, connection,
@@ -290,10 +304,22 @@ static enum MHD_Result http_handle(void *context,
                           http_error_reply(server, MHD_HTTP_REQUEST_HEADER_FIELDS_TOO_LARGE,
                                            "the header fields have %zu bytes; at most %d are read",
                                            header_bytes, HTTP_HEADERS_MAX));
-    enum MHD_Result result;
+    enum MHD_Result result = MHD_NO;
+    http_identity identity = {"", NULL};
     if (server->auth != NULL && strcmp(url, "/healthz") != 0 &&
-        !http_login_accepted(server, connection, &result))
+        !http_login_accepted(server, connection, &result, &identity))
         return result;
+    if (strcmp(method, MHD_HTTP_METHOD_POST) == 0) {
+        if (http_post_refused(server, connection, url, &identity, &reply))
+            return http_queue(server, connection, reply);
+        http_post *post = http_post_create(connection, &identity);
+        if (post == NULL)
+            return http_queue(server, connection,
+                              http_error_reply(server, MHD_HTTP_INTERNAL_SERVER_ERROR,
+                                               "out of memory reading a review"));
+        *state = post;
+        return MHD_YES;
+    }
     if (strcmp(method, MHD_HTTP_METHOD_GET) != 0 &&
         strcmp(method, MHD_HTTP_METHOD_HEAD) != 0) {
         reply = http_error_reply(server, MHD_HTTP_METHOD_NOT_ALLOWED,
@@ -302,7 +328,8 @@ static enum MHD_Result http_handle(void *context,
             MHD_add_response_header(reply.response, "Allow", "GET, HEAD");
         return http_queue(server, connection, reply);
     }
-    if (http_route_api(server, connection, url, &reply) ||
+    if (http_route_reviews(server, connection, url, &identity, &reply) ||
+        http_route_api(server, connection, url, &reply) ||
         http_route_static(server, url, &reply))
         return http_queue(server, connection, reply);
     return http_queue(server, connection, http_error_reply(server, MHD_HTTP_NOT_FOUND,
@@ -333,9 +360,12 @@ static void *http_target_seen(void *context, const char *uri, struct MHD_Connect
 static void http_request_completed(void *context, struct MHD_Connection *connection,
                                    void **state, enum MHD_RequestTerminationCode code)
 {
-    (void)state;
     (void)code;
     http_server *server = context;
+    if (state != NULL && *state != NULL) { /* a POST's body state */
+        http_post_free(*state);
+        *state = NULL;
+    }
     http_guard_completed(server->guard, connection);
 }
 
@@ -484,6 +514,15 @@ mitilog_status http_server_start(const http_settings *settings, store *st,
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY,
                                  "out of memory starting HTTP");
     server->store = st;
+    unsigned char key[32];
+    if (getrandom(key, sizeof key, 0) != (ssize_t)sizeof key) {
+        http_server_stop(server);
+        return mitilog_error_set(error, MITILOG_ERROR_IO,
+                                 "HTTP: cannot read random bytes for the review tokens: %s",
+                                 strerror(errno));
+    }
+    for (size_t i = 0; i < sizeof key; i++)
+        snprintf(server->csrf_key + 2 * i, 3, "%02x", key[i]);
     server->web_root = http_resolve_web_root(settings->web_root);
     unsigned flags = MHD_USE_AUTO_INTERNAL_THREAD | MHD_USE_ERROR_LOG;
     if (http_prepare_security(server, settings, error) != MITILOG_OK) {

@@ -1,5 +1,5 @@
 /*
- * http_static.c - the dashboard's files from web_root: "/" is index.html;
+ * http_static.c - the dashboard's files from web_root: "/" is review.html (the review worklist);
  * no ".." or hidden path parts, and the resolved file must lie inside
  * web_root (no escape through symbolic links). Regular files only.
  */
@@ -55,7 +55,7 @@ int http_route_static(const http_server *server, const char *url,
     if (server->web_root == NULL || !http_is_safe_path(url))
         return 0;
     if (strcmp(url, "/") == 0)
-        url = "/index.html";
+        url = "/review.html";
     char path[PATH_MAX + 1024];
     snprintf(path, sizeof path, "%s%s", server->web_root, url);
     char *resolved = realpath(path, NULL);

@@ -93,6 +93,24 @@ mitilog_status report_data_load(store *st, const char *from, const char *to, uns
     return MITILOG_OK;
 }
 
+long report_last_complete_day(store *st)
+{
+    long latest = report_latest_day(st);
+    /* day 0 (1970-01-01) was a Thursday: Monday is 0 in (day + 3) mod 7 */
+    long weekday = ((latest + 3) % 7 + 7) % 7;
+    if (weekday == 6)
+        return latest; /* a Sunday: its week is complete */
+    char monday[11];
+    stats_day_text(latest - weekday, monday);
+    store_span span;
+    mitilog_error ignored;
+    long day = latest;
+    if (store_load_baseline_span(st, "1900-01-01", monday, &span, &ignored) == MITILOG_OK &&
+        span.last_day[0] != '\0' && stats_day_number(span.last_day, &day) != MITILOG_OK)
+        day = latest;
+    return day;
+}
+
 long report_latest_day(store *st)
 {
     char *first = NULL, *last = NULL;

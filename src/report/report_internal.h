@@ -49,6 +49,10 @@ void report_study_key(const char *study_instance_uid, char key[9]);
 
 /* The day number of the latest exam held, else of today (local). */
 long report_latest_day(store *store);
+/* The latest exam day of the last complete ISO week that holds exams: the
+ * latest day when it is a Sunday, else the latest exam day before its
+ * week; when every exam is in that week, the latest day. */
+long report_last_complete_day(store *store);
 
 /* Share of captures with indices, NAN when there are none. */
 double report_completeness(size_t captures, size_t indexed);

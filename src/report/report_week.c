@@ -30,6 +30,7 @@ typedef struct week_document {
     size_t week_count, baseline_count;
     stats_week_result result;
     size_t captures, indexed, outliers;
+    store_span baseline_span;        /* what the baseline weeks hold */
 } week_document;
 
 static void week_document_free(week_document *doc)
@@ -56,7 +57,7 @@ static mitilog_status week_compute(store *st, const report_week_request *request
     doc->request = request;
     int year = request->iso_year, week = request->iso_week;
     if (!request->has_week)
-        stats_iso_week_of_day(report_latest_day(st), &year, &week);
+        stats_iso_week_of_day(report_last_complete_day(st), &year, &week);
     long monday;
     if (stats_iso_week_monday(year, week, &monday) != MITILOG_OK)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no ISO week %d-W%02d", year,
@@ -80,6 +81,9 @@ static mitilog_status week_compute(store *st, const report_week_request *request
     if (status == MITILOG_OK)
         status = store_load_exam_governing(st, doc->baseline_from, doc->monday, &doc->baseline,
                                            error);
+    if (status == MITILOG_OK)
+        status = store_load_baseline_span(st, doc->baseline_from, doc->monday,
+                                          &doc->baseline_span, error);
     if (status != MITILOG_OK)
         return status;
     doc->week_info = doc->data.info;
@@ -164,6 +168,10 @@ static mitilog_status week_json(const week_document *doc, char **out, mitilog_er
     report_meta_bool(&meta, "baseline_thin", doc->result.any_thin);
     report_meta_int(&meta, "exam_count", (long long)doc->week_count);
     report_meta_int(&meta, "baseline_exam_count", (long long)doc->baseline_count);
+    /* what the baseline really holds: weeks without data are not counted */
+    report_meta_text(&meta, "baseline_data_from", doc->baseline_span.first_day);
+    report_meta_text(&meta, "baseline_data_to", doc->baseline_span.last_day);
+    report_meta_int(&meta, "baseline_weeks_with_data", (long long)doc->baseline_span.weeks);
     report_meta_int(&meta, "outlier_count", (long long)doc->outliers);
     report_meta_common(&meta, &doc->week_info, doc->captures, doc->indexed);
 
@@ -449,12 +457,22 @@ static void week_html(const week_document *doc, FILE *out)
     report_html_begin(out, title, period, &doc->week_info,
                       report_completeness(doc->captures, doc->indexed), doc->captures,
                       doc->indexed);
-    fprintf(out, "<p>%zu exams this week, %zu outliers. Baseline: each exam type's exams "
-                 "from %s to %s. An exam is an outlier when its highest governing thermal "
-                 "index has robust z above ",
-            doc->week_count, doc->outliers, doc->baseline_from, doc->baseline_to);
+    if (doc->baseline_span.exams > 0)
+        fprintf(out, "<p>%zu exams this week, %zu outliers. Baseline: each exam type's exams "
+                     "of the weeks before; the data held runs from %s to %s (%ld weeks with "
+                     "data; %ld exams). An exam is an outlier when its highest governing "
+                     "thermal index is high: robust z above ",
+                doc->week_count, doc->outliers, doc->baseline_span.first_day,
+                doc->baseline_span.last_day, doc->baseline_span.weeks, doc->baseline_span.exams);
+    else
+        fprintf(out, "<p>%zu exams this week, %zu outliers. Baseline: no exam before this "
+                     "week, so each exam type is compared with the week's own exams. An exam "
+                     "is an outlier when its highest governing thermal index is high: robust "
+                     "z above ",
+                doc->week_count, doc->outliers);
     report_html_number(out, 1, doc->request->settings.z_limit > 0 ? doc->request->settings.z_limit : 3.0, 3);
-    fputs(" or exceeds the baseline's 95th percentile.", out);
+    fputs(" (a rise; a low value is never flagged) or above the baseline's 95th percentile.",
+          out);
     if (doc->result.any_thin) {
         fputs(" <strong>Baseline thin</strong> (fewer than ", out);
         fprintf(out, "%zu exams; the week's own exams were added) for: ",

@@ -125,7 +125,8 @@ mitilog_status stats_drift(const exam_row *exams, size_t count, long first_monda
             double spread = STATS_MAD_SCALE * point->baseline_mad * 1.2533 / sqrt((double)n);
             point->z = (point->median - point->baseline_median) / spread;
             point->has_z = 1;
-            point->flagged = fabs(point->z) > z_limit;
+            /* a rise only, from enough exams (stats_drift.h) */
+            point->flagged = point->z > z_limit && n >= STATS_DRIFT_WEEK_MINIMUM;
             if (point->flagged)
                 series->flagged_count++;
             if (fabs(point->z) > series->max_abs_z)

@@ -26,9 +26,17 @@ extern "C" {
  * exams of the baseline_weeks before it: z = (week median - baseline
  * median) / (1.4826 x baseline MAD x 1.2533 / sqrt(n)), n = the week's
  * exams (1.2533 sqrt(1/n) is the large-sample standard error of a median
- * in units of the spread). |z| > z_limit flags the week. Weeks without a
+ * in units of the spread). Only a rise is flagged: z > z_limit with at
+ * least STATS_DRIFT_WEEK_MINIMUM exams in the week; a drop (z below
+ * -z_limit) keeps its z, shown, never flagged, since lower output is what
+ * ALARA asks for. Weeks without a
  * baseline of at least minimum_baseline exams, or with MAD 0, are not
  * scored. */
+/* A week's median from fewer exams is shown but never flagged (common
+ * practice, no source: a median of two or three exams moves with any one
+ * of them). */
+enum { STATS_DRIFT_WEEK_MINIMUM = 5 };
+
 typedef struct stats_drift_point {
     int iso_year, iso_week;
     size_t count;
@@ -46,7 +54,8 @@ typedef struct stats_drift_series {
     const char *exam_type;      /* of the series' first exam */
     stats_drift_point *points;  /* week_count points, in week order */
     size_t flagged_count;
-    double max_abs_z;           /* 0 when no week was scored */
+    double max_abs_z;           /* largest |z| of a scored week, 0 when
+                                   none: a drop counts here, shown */
 } stats_drift_series;
 
 typedef struct stats_drift_result {

@@ -251,6 +251,49 @@ mitilog_status store_findings_json(store *store, const store_finding_filter *fil
 /* GET /api/v1/policy: the active policy; MITILOG_ERROR_NOT_FOUND if none. */
 mitilog_status store_policy_json(store *store, char **json, mitilog_error *error);
 
+/* ---- Reviews (store_reviews.c, migration 012) ---- */
+
+/* One review act: a finding (finding_id > 0) or a whole exam
+ * (finding_id 0, study_instance_uid set) marked with an outcome
+ * ("acceptable", "discussed_with_operator", "referred_to_physics",
+ * "preset_to_change" or "reopened") and a comment, by reviewer in role.
+ * Strings are borrowed for the call. The history is append-only. */
+typedef struct store_review {
+    const char *study_instance_uid;     /* NULL with a finding: its own */
+    long long finding_id;               /* 0: the whole exam            */
+    const char *outcome, *comment, *reviewer, *role;
+} store_review;
+/* Appends the review in its own commit; MITILOG_ERROR_NOT_FOUND when the
+ * finding or exam is unknown (or the finding is of another study). */
+mitilog_status store_put_review(store *store, const store_review *review,
+                                mitilog_error *error);
+/* The review history, oldest first: JSON array, or CSV text with a
+ * header line when csv is set. study, from, to (YYYY-MM-DD, on the day
+ * recorded): NULL = any. *out is malloc'ed, freed by the caller. */
+mitilog_status store_reviews_text(store *store, const char *study, const char *from,
+                                  const char *to, int csv, char **out,
+                                  mitilog_error *error);
+/* GET /api/v1/worklist: the week starting on monday (YYYY-MM-DD), or
+ * NULL for the last complete week with data (queries/reviews/review_worklist.sql
+ * says how it ranks). *json is malloc'ed, freed by the caller. */
+mitilog_status store_worklist_json(store *store, const char *monday, char **json,
+                                   mitilog_error *error);
+/* GET /api/v1/operators: per-operator exams, median governing index and
+ * findings of a period (from, to YYYY-MM-DD; NULL = open), when the site
+ * records operators (queries/reviews/review_operators.sql). */
+/* What a baseline [from_day, before_day) really holds: first and last
+ * exam day (out, "" when none; 11 bytes each), weeks with exams and
+ * exams (queries/reports/baseline_span.sql). */
+typedef struct store_span {
+    char first_day[11], last_day[11];
+    long weeks, exams;
+} store_span;
+mitilog_status store_load_baseline_span(store *store, const char *from_day,
+                                        const char *before_day, store_span *span,
+                                        mitilog_error *error);
+mitilog_status store_operators_json(store *store, const char *from, const char *to, char **json,
+                                    mitilog_error *error);
+
 
 /* ---- Statistics reads (store_read_stats.c) ---- */
 

@@ -34,6 +34,7 @@ typedef struct store_request {
     mitilog_status (*custom)(struct store *st, const void *context,
                              mitilog_error *error);
     const void *custom_context;
+    const store_review *review;         /* ... review ...                */
     store_evaluation_counts counts;     /* evaluation: what it did       */
     mitilog_status status;
     store_put_outcome outcome;
@@ -158,6 +159,10 @@ mitilog_status store_write_prepare(store *store, mitilog_error *error);
 void store_write_finalize(store *store);
 /* Blocks until no batch is being written and the queue is empty. */
 void store_write_drain(store *store);
+
+/* store_reviews.c: appends request->review in the open transaction. */
+mitilog_status store_write_review(store *store, const store_review *review,
+                                  mitilog_error *error);
 
 /* store_write_context.c: an instance's modes, SR values and header copy
  * (header may be NULL), after its row (instance_id) was written; inside

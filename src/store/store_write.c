@@ -107,6 +107,7 @@ static mitilog_status store_check_record(const ext_record *record,
         record->study_instance_uid, record->series_instance_uid,
         record->modality, record->station_name,
         record->institutional_department_name, record->study_description,
+        record->accession_number,
         record->protocol_name, record->transfer_syntax_uid,
         record->calling_ae_title, record->source_path, record->acquired_at,
         record->received_at, record->index_raw[0], record->index_raw[1],
@@ -309,6 +310,7 @@ static int store_bind_instance(store *st, sqlite3_stmt *statement,
         {":institutional_department_name",
          record->institutional_department_name},
         {":study_description", record->study_description},
+        {":accession_number", record->accession_number},
         {":protocol_name", record->protocol_name},
         {":transfer_syntax_uid", record->transfer_syntax_uid},
         {":calling_ae_title", record->calling_ae_title},
@@ -503,6 +505,7 @@ static mitilog_status store_write_one(store *st, store_request *request)
            : request->evaluation != NULL ? store_write_evaluated(st, request)
            : request->policy != NULL ? store_write_policy(st, request->policy, &request->error)
            : request->custom != NULL ? request->custom(st, request->custom_context, &request->error)
+           : request->review != NULL ? store_write_review(st, request->review, &request->error)
                                      : store_write_rejection(st, request);
 }
 
@@ -769,6 +772,16 @@ mitilog_status store_submit_custom(store *st,
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "store_submit_custom: no store or write");
     store_request request = {.custom = custom, .custom_context = context};
+    return store_submit(st, &request, error);
+}
+
+mitilog_status store_put_review(store *st, const store_review *review, mitilog_error *error)
+{
+    if (st == NULL || review == NULL || review->outcome == NULL || review->reviewer == NULL ||
+        review->role == NULL || (review->finding_id <= 0 && review->study_instance_uid == NULL))
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "a review needs a finding or a study, an outcome and a reviewer");
+    store_request request = {.review = review};
     return store_submit(st, &request, error);
 }
 

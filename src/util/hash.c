@@ -2,6 +2,7 @@
 
 #include <errno.h>
 #include <openssl/evp.h>
+#include <openssl/hmac.h>
 #include <stdio.h>
 #include <string.h>
 
@@ -20,6 +21,17 @@ mitilog_status hash_text_hex(const char *text, char out[HASH_HEX_SIZE])
     unsigned char digest[EVP_MAX_MD_SIZE];
     unsigned length = 0;
     if (EVP_Digest(text, strlen(text), digest, &length, EVP_sha256(), NULL) != 1)
+        return MITILOG_ERROR_MEMORY;
+    hex_encode(digest, length, out);
+    return MITILOG_OK;
+}
+
+mitilog_status hash_hmac_hex(const char *key, const char *text, char out[HASH_HEX_SIZE])
+{
+    unsigned char digest[EVP_MAX_MD_SIZE];
+    unsigned length = 0;
+    if (HMAC(EVP_sha256(), key, (int)strlen(key), (const unsigned char *)text, strlen(text),
+             digest, &length) == NULL)
         return MITILOG_ERROR_MEMORY;
     hex_encode(digest, length, out);
     return MITILOG_OK;

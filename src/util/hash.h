@@ -16,6 +16,8 @@ enum { HASH_HEX_SIZE = 65 };
 
 /* Hash of a text. Returns MITILOG_OK or MITILOG_ERROR_MEMORY. */
 mitilog_status hash_text_hex(const char *text, char out[HASH_HEX_SIZE]);
+/* HMAC-SHA-256 of text under key [std: RFC 2104; FIPS 180-4]. */
+mitilog_status hash_hmac_hex(const char *key, const char *text, char out[HASH_HEX_SIZE]);
 /* Hash of a file's bytes. */
 mitilog_status hash_file_hex(const char *path, char out[HASH_HEX_SIZE], mitilog_error *error);
 

@@ -97,6 +97,9 @@ try {
     await shot(name);
   }
   check('stats distribution drawn', true);
+  await open('/stats.html', '#stats-table tbody tr');
+  const counted = await page.$$eval('#stats-table td[data-counts]', (cells) => cells.map((c) => c.textContent));
+  check('stats rows say how many exams carried a value', counted.length > 0 && counted.every((t) => / \/ /.test(t)), counted.slice(0, 3));
   if (config.replaced_text) {
     await open('/status.html', '#replaced');
     const replaced = await page.textContent('#replaced');

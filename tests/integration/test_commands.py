@@ -45,20 +45,25 @@ def test_inspect_creates_nothing(tmp_path):
 
 
 def test_readme_says_which_week_the_dashboard_shows():
-    # The dashboard's week list asks /api/v1/outliers without a week, whose
-    # default docs/api.md states (checked against the data in
-    # test_reports.py::test_parameters_and_iso_weeks); README must say it.
+    # The dashboard opens on the review worklist, whose default week
+    # (/api/v1/worklist without a week) and the weekly list's
+    # (/api/v1/outliers without a week) docs/api.md states (checked against
+    # the data in test_review.py and test_reports.py); README must say it.
     with open(os.path.join(REPO, "README.md")) as f:
         readme = " ".join(f.read().split())
     with open(os.path.join(REPO, "docs", "api.md")) as f:
         api = " ".join(f.read().split())
-    assert "default: the week of the latest exam day held" in api
-    assert re.search(r"dashboard \(`[^`]*`\) opens on the outlier list of the ISO 8601 week "
-                     r"\(Monday to Sunday\) of the latest exam day held", readme), \
+    assert "default: the last complete ISO week that holds data" in api
+    assert "**last complete week that holds data**" in api
+    assert re.search(r"dashboard \(`[^`]*`\) opens on the \*\*review worklist\*\* of the last "
+                     r"complete ISO 8601 week \(Monday to Sunday\) that holds data", readme), \
         "README.md does not say which week the dashboard shows"
     with open(os.path.join(REPO, "web", "week.js")) as f:
         week_js = f.read()
     assert "(week ? '&week=' + encodeURIComponent(week) : '')" in week_js
+    with open(os.path.join(REPO, "web", "review.js")) as f:
+        review_js = f.read()
+    assert "(week ? `?week=${encodeURIComponent(week)}` : '')" in review_js
 
 
 def test_read_only_command_with_a_config_names_it(tmp_path):

@@ -46,6 +46,12 @@ STABLE_PATHS = [
     "/api/v1/policy",
     "/api/v1/findings",
     "/api/v1/instances?limit=100",
+    "/api/v1/worklist",
+    "/api/v1/worklist?week=2026-W46",
+    "/api/v1/operators?from=2026-11-02&to=2026-11-09",
+    "/api/v1/reviews",
+    "/api/v1/reviews?format=csv",
+    "/api/v1/session",
     "/index.html",
 ]
 # Documents that carry the time of the request: checked for status only.

@@ -108,6 +108,8 @@ static int fixture_setup(void **state)
     char name[256];
     snprintf(name, sizeof name, "%s/index.html", f->web_root);
     write_file(name, "<!doctype html><title>mitilog</title>\n");
+    snprintf(name, sizeof name, "%s/review.html", f->web_root);
+    write_file(name, "<!doctype html><title>review</title>\n");
     snprintf(name, sizeof name, "%s/app.js", f->web_root);
     write_file(name, "console.log('mitilog');\n");
     snprintf(name, sizeof name, "%s/style.css", f->web_root);
@@ -441,10 +443,12 @@ static void static_files(void **state)
     assert_int_equal(r.status, 200);
     assert_common_headers(&r);
     assert_header(&r, "Content-Type", "text/html; charset=utf-8");
-    assert_string_equal(r.body, "<!doctype html><title>mitilog</title>\n");
+    /* "/" is the review worklist (review.html), the landing page */
+    assert_string_equal(r.body, "<!doctype html><title>review</title>\n");
     response_free(&r);
     r = http_request(f->port, "GET", "/index.html");
     assert_int_equal(r.status, 200);
+    assert_string_equal(r.body, "<!doctype html><title>mitilog</title>\n");
     response_free(&r);
     r = http_request(f->port, "GET", "/app.js");
     assert_int_equal(r.status, 200);

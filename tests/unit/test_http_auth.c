@@ -83,12 +83,48 @@ static void bad_files(void **state)
     assert_int_equal(http_auth_load("/nonexistent/passwords", &auth, &error), MITILOG_ERROR_IO);
 }
 
+static void roles(void **state)
+{
+    /* The role field (common practice, no source): absent -> viewer;
+     * "reviewer" may record reviews; anything else refuses the file. The
+     * hashes are the OpenSSL references above, the role appended. */
+    (void)state;
+    char text[512];
+    char nurse[256], physicist[256];
+    snprintf(nurse, sizeof nurse, "%.*s:reviewer\n", (int)strlen(sha512_line) - 1, sha512_line);
+    snprintf(physicist, sizeof physicist, "%.*s:viewer\n", (int)strlen(sha256_line) - 1,
+             sha256_line);
+    snprintf(text, sizeof text, "%s%s", nurse, physicist);
+    char *path = write_file(text);
+    http_auth *auth = NULL;
+    mitilog_error error;
+    assert_int_equal(http_auth_load(path, &auth, &error), MITILOG_OK);
+    assert_true(http_auth_check(auth, "nurse", "correct horse"));
+    assert_string_equal(http_auth_role(auth, "nurse"), "reviewer");
+    assert_true(http_auth_check(auth, "physicist", "correct horse"));
+    assert_string_equal(http_auth_role(auth, "physicist"), "viewer");
+    assert_null(http_auth_role(auth, "nobody"));
+    http_auth_free(auth);
+    unlink(path);
+    path = write_file(sha512_line);
+    assert_int_equal(http_auth_load(path, &auth, &error), MITILOG_OK);
+    assert_string_equal(http_auth_role(auth, "nurse"), "viewer");
+    http_auth_free(auth);
+    unlink(path);
+    snprintf(text, sizeof text, "%.*s:admin\n", (int)strlen(sha512_line) - 1, sha512_line);
+    path = write_file(text);
+    assert_int_equal(http_auth_load(path, &auth, &error), MITILOG_ERROR_INVALID);
+    assert_non_null(strstr(error.text, "neither viewer nor reviewer"));
+    unlink(path);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(openssl_hashes_verify),
         cmocka_unit_test(own_hash_round_trip),
         cmocka_unit_test(bad_files),
+        cmocka_unit_test(roles),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -255,6 +255,44 @@ static void drift_flags_a_step(void **state)
     stats_drift_result_free(&result);
 }
 
+static void drift_shows_a_drop_and_a_thin_week_unflagged(void **state)
+{
+    (void)state;
+    /* The mirror of drift_flags_a_step: week 47 around 0.4 instead of
+     * 1.6, z = -7.22: shown, not flagged (lower output is what ALARA asks
+     * for). Then week 47 with 1.6 in only 2 exams (fewer than
+     * STATS_DRIFT_WEEK_MINIMUM): z = 0.6 / (1.4826 x 0.1 x 1.2533 /
+     * sqrt(2)) = 4.57, still not flagged. Common practice, no source. */
+    static const char *days[3] = {"2026-11-02", "2026-11-09", "2026-11-16"};
+    const double offsets[5] = {-0.1, -0.1, 0.0, 0.1, 0.1};
+    exam_row exams[15];
+    for (int w = 0; w < 3; w++) {
+        for (int i = 0; i < 5; i++)
+            exams[w * 5 + i] = exam(days[w], "abdomen", "Abdomen General", "Room 2",
+                                    (w == 2 ? 0.4 : 1.0) + offsets[i]);
+    }
+    long monday;
+    assert_int_equal(stats_iso_week_monday(2026, 45, &monday), MITILOG_OK);
+    stats_drift_result result;
+    assert_int_equal(stats_drift(exams, 15, monday, 3, 2, 5, 3.0, &result, NULL), MITILOG_OK);
+    const stats_drift_series *series = &result.series[0];
+    assert_true(series->points[2].has_z);
+    assert_close(series->points[2].z, -0.6 / (1.4826 * 0.1 * 1.2533 / sqrt(5.0)), 1e-6);
+    assert_false(series->points[2].flagged);
+    assert_int_equal(series->flagged_count, 0);
+    assert_close(series->max_abs_z, 0.6 / (1.4826 * 0.1 * 1.2533 / sqrt(5.0)), 1e-6);
+    stats_drift_result_free(&result);
+
+    for (int i = 0; i < 2; i++)
+        exams[10 + i] = exam(days[2], "abdomen", "Abdomen General", "Room 2", 1.6);
+    assert_int_equal(stats_drift(exams, 12, monday, 3, 2, 5, 3.0, &result, NULL), MITILOG_OK);
+    series = &result.series[0];
+    assert_int_equal(series->points[2].count, 2);
+    assert_close(series->points[2].z, 0.6 / (1.4826 * 0.1 * 1.2533 / sqrt(2.0)), 1e-6);
+    assert_false(series->points[2].flagged);
+    stats_drift_result_free(&result);
+}
+
 static void dimension_names(void **state)
 {
     (void)state;
@@ -273,6 +311,7 @@ int main(void)
         cmocka_unit_test(outliers_hand_worked),
         cmocka_unit_test(thin_baseline_adds_the_week),
         cmocka_unit_test(period_table_by_exam_type),
+        cmocka_unit_test(drift_shows_a_drop_and_a_thin_week_unflagged),
         cmocka_unit_test(drift_flags_a_step),
         cmocka_unit_test(dimension_names),
     };

@@ -4,8 +4,11 @@
 -- has sent nothing for ?2 hours although it sent before. not_reporting:
 -- per room and transducer, image objects of the last ?3 days of data
 -- (by acquisition day) that carried no index at all, neither in the header
--- nor read from the screen (migration 007). reading: the pixel reading
--- queue and the states of the readings.
+-- nor read from the screen (migration 007); first_without_at is when the
+-- current run without indices began, looked for over all the data, not
+-- only those days: the first exam of that room and transducer without any
+-- index after its last exam with one. reading: the pixel reading queue and
+-- the states of the readings.
 WITH now AS (
     SELECT strftime('%Y-%m-%dT%H:%M:%SZ', 'now') AS at,
            strftime('%Y-%m-%dT%H:%M:%SZ', 'now', printf('-%d hours', ?1)) AS window_start,
@@ -32,7 +35,7 @@ devices AS (
 last_day AS (
     SELECT max(substr(acquired_at, 1, 10)) AS day FROM instances
 ),
-not_reporting AS (
+recent_not_reporting AS (
     SELECT room, transducer_data AS transducer, count(*) AS instances,
            sum(iif(mi IS NULL AND tis IS NULL AND tib IS NULL AND tic IS NULL
                    AND NOT EXISTS (SELECT 1 FROM screen_readings r WHERE r.instance_id = instances.id
@@ -43,13 +46,24 @@ not_reporting AS (
                    AND NOT EXISTS (SELECT 1 FROM screen_readings r WHERE r.instance_id = instances.id
                                    AND (r.mi IS NOT NULL OR r.tis IS NOT NULL OR r.tib IS NOT NULL
                                         OR r.tic IS NOT NULL)),
-                   acquired_at, NULL)) AS first_without_at
+                   acquired_at, NULL)) AS first_recent_without_at
     FROM instances
     WHERE object_kind IN ('image', 'multiframe', 'volume')
       AND substr(acquired_at, 1, 10) >= date((SELECT day FROM last_day), printf('-%d days', ?3 - 1))
     GROUP BY 1, 2
     HAVING without_indices > 0
-    ORDER BY without_indices DESC, 1, 2
+),
+not_reporting AS (
+    SELECT r.room, r.transducer, r.instances, r.without_indices,
+           coalesce((SELECT min(e.first_acquired_at) FROM exam_period_rows e
+                     WHERE e.room IS r.room AND e.transducer IS r.transducer
+                       AND e.indexed_count = 0 AND e.first_acquired_at > coalesce(
+                           (SELECT max(w.first_acquired_at) FROM exam_period_rows w
+                            WHERE w.room IS r.room AND w.transducer IS r.transducer
+                              AND w.indexed_count > 0), '')),
+                    r.first_recent_without_at) AS first_without_at
+    FROM recent_not_reporting r
+    ORDER BY r.without_indices DESC, 1, 2
 )
 SELECT json_object(
     'generated_at', (SELECT at FROM now),

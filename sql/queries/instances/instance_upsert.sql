@@ -5,7 +5,7 @@
 -- An empty :received_at means "now" (UTC).
 INSERT INTO instances (
     sop_instance_uid, sop_class_uid, study_instance_uid, series_instance_uid,
-    modality, station_name, institutional_department_name, study_description,
+    modality, station_name, institutional_department_name, study_description, accession_number,
     protocol_name, transfer_syntax_uid, calling_ae_title, source_path,
     acquired_at, acquired_at_source, received_at, first_received_at,
     number_of_frames, number_of_frames_status,
@@ -28,7 +28,7 @@ INSERT INTO instances (
     operator_name, operator_source, overlong_fields, text_replaced)
 VALUES (
     :sop_instance_uid, :sop_class_uid, :study_instance_uid, :series_instance_uid,
-    :modality, :station_name, :institutional_department_name, :study_description,
+    :modality, :station_name, :institutional_department_name, :study_description, :accession_number,
     :protocol_name, :transfer_syntax_uid, :calling_ae_title, :source_path,
     :acquired_at, :acquired_at_source,
     coalesce(nullif(:received_at, ''), strftime('%Y-%m-%dT%H:%M:%fZ', 'now')),
@@ -50,6 +50,7 @@ ON CONFLICT (sop_instance_uid) DO UPDATE SET
     station_name = excluded.station_name,
     institutional_department_name = excluded.institutional_department_name,
     study_description = excluded.study_description,
+    accession_number = excluded.accession_number,
     protocol_name = excluded.protocol_name,
     transfer_syntax_uid = excluded.transfer_syntax_uid,
     calling_ae_title = excluded.calling_ae_title,
