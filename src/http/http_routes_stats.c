@@ -108,7 +108,7 @@ static http_reply http_outliers(http_server *server, struct MHD_Connection *conn
 /* GET /api/v1/stats?from=YYYY-MM-DD&to=YYYY-MM-DD&by=...&format=json|csv */
 static http_reply http_stats(http_server *server, struct MHD_Connection *connection)
 {
-    report_stats_request request = {NULL, NULL, STATS_BY_EXAM_TYPE};
+    report_stats_request request = {NULL, NULL, STATS_BY_EXAM_TYPE, NULL};
     const char *names[] = {"from", "to"};
     const char *values[2];
     for (int i = 0; i < 2; i++) {
