@@ -122,7 +122,8 @@ int command_report(int argc, char **argv)
     int status = EXIT_STATUS_FAILURE;
     mitilog_status result = store_open(config.database_path, (int)config.busy_timeout_ms, &store,
                                        &error);
-    stats.institution = config.site_institution;
+    if (config.site_institution != NULL && config.site_institution[0] != '\0')
+        stats.institution = config.site_institution;
     if (result == MITILOG_OK)
         result = is_week ? report_week(store, &week, format, &document, &error)
                          : report_stats(store, &stats, format, &document, &error);

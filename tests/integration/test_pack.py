@@ -276,3 +276,29 @@ def test_pack_prints(department):
     # 3 pages on A4); more would mean rows or charts split badly.
     assert 2 <= pages <= 3
     assert len(pngs) == pages
+
+
+def busiest_week(daemon):
+    studies = daemon.get_json("/api/v1/studies?from=%s&to=%s" % (FROM, TO))
+    weeks = collections.Counter()
+    import datetime
+    for study in studies:
+        day = (study.get("first_acquired_at") or study.get("day") or "")[:10]
+        if day:
+            year, week, _ = datetime.date.fromisoformat(day).isocalendar()
+            weeks["%d-W%02d" % (year, week)] += 1
+    assert weeks
+    return weeks.most_common(1)[0][0]
+
+
+@pytest.mark.parametrize("group", ["room", "preset", "shift"])
+def test_week_report_fits_two_pages(department, group):
+    week = busiest_week(department)
+    text = report(department, "week", week, "--group", group, "--format", "html")
+    pages, pngs = print_pages(text, "week-" + group)
+    assert pages <= 2, (week, group, pages)
+    assert len(pngs) == pages
+    visible = parse(text).visible
+    assert visible.count("Advisory") == 1
+    assert "obstetric_second" not in visible
+
