@@ -302,3 +302,38 @@ def test_week_report_fits_two_pages(department, group):
     assert visible.count("Advisory") == 1
     assert "obstetric_second" not in visible
 
+
+def test_exam_chart_in_chromium(department):
+    """The exam page's chart at 1000 px (tests/browser/exam_chart.mjs):
+    MI and TI on separate panels, round ticks, no overlapping labels, no
+    sideways scroll, printable."""
+    browser_dir = os.path.join(REPO, "tests", "browser")
+    node = shutil.which("node")
+    if not (node and os.path.exists("/usr/bin/chromium") and os.path.isdir(
+            os.path.join(browser_dir, "node_modules", "playwright-core"))):
+        if os.environ.get("MITILOG_REQUIRE_BROWSER"):
+            pytest.fail("node, /usr/bin/chromium or tests/browser/node_modules missing")
+        pytest.skip("node, chromium or playwright-core (npm ci in tests/browser) missing")
+    studies = department.get_json("/api/v1/studies?from=%s&to=%s" % (FROM, TO))
+    with_mi = [s for s in studies if s["max_mi"] is not None]
+    with_ti = [s for s in studies if s["max_governing"] is not None]
+    chosen = [max(with_mi, key=lambda s: s["max_mi"]),          # the MI breach
+              max(with_ti, key=lambda s: s["max_governing"]),   # the hottest TI
+              max(studies, key=lambda s: s["instance_count"]),  # the longest
+              next(s for s in with_ti if (s["exam_type"] or "").startswith("obstetric"))]
+    out = os.path.join(OUT_DIR, "pack-" + os.path.basename(os.path.dirname(BINARY)))
+    config_path = os.path.join(department.workdir, "exam-chart.json")
+    with open(config_path, "w") as f:
+        json.dump(dict(url="http://127.0.0.1:%d" % department.http_port, out=out,
+                       studies=[s["study_instance_uid"] for s in chosen]), f)
+    result = subprocess.run([node, os.path.join(browser_dir, "exam_chart.mjs"), config_path],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            timeout=180, cwd=browser_dir)
+    lines = [line for line in result.stdout.splitlines() if line.startswith("{")]
+    assert lines, result.stderr
+    outcome = json.loads(lines[-1])
+    failed = [c for c in outcome["checks"] if not c["ok"]]
+    assert not failed and not outcome["errors"], (failed, outcome["errors"])
+    assert len(outcome["checks"]) >= 4 * 6
+    with open(outcome["pdf"], "rb") as f:
+        assert f.read(5) == b"%PDF-"
