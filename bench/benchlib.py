@@ -182,7 +182,7 @@ class Mitilog:
     data directory under /tmp (removed by close())."""
 
     def __init__(self, binary, retention="header", level="warning",
-                 root="/tmp", durability="power_loss"):
+                 root="/tmp", durability="power_loss", dicom_extra=None):
         self.binary = binary
         self.workdir = tempfile.mkdtemp(prefix="mitilog-bench-", dir=root)
         self.port = free_port()
@@ -191,14 +191,18 @@ class Mitilog:
         self.database = os.path.join(self.data, "mitilog.sqlite3")
         self.config = os.path.join(self.workdir, "mitilog.ini")
         with open(self.config, "w") as f:
-            f.write("[dicom]\nae_title = %s\nport = %d\nmax_associations = 16\n"
-                    "acse_timeout_seconds = 5\ndimse_timeout_seconds = 60\n"
-                    "max_pdu_bytes = 65536\n\n"
+            dicom = dict(max_associations=16, acse_timeout_seconds=5,
+                         dimse_timeout_seconds=60, max_pdu_bytes=65536)
+            dicom.update(dicom_extra or {})
+            f.write("[dicom]\nae_title = %s\nport = %d\n%s\n"
                     "[http]\naddress = 127.0.0.1\nport = %d\n\n"
                     "[storage]\ndata_directory = %s\nretention = %s\n"
                     "durability = %s\n\n"
                     "[log]\nlevel = %s\n"
-                    % (AE_TITLE, self.port, self.http_port, self.data,
+                    % (AE_TITLE, self.port,
+                       "".join("%s = %s\n" % kv
+                               for kv in dicom.items()),
+                       self.http_port, self.data,
                        retention, durability, level))
         self.stderr_path = os.path.join(self.workdir, "serve.stderr")
         self.process = None

@@ -59,7 +59,14 @@ async function exampleCanvas(profile) {
   context.putImageData(image, 0, 0);
   context.lineWidth = 1;
   context.font = '11px sans-serif';
+  // Indices shown at one place (TIS or TIB by exam) share one box.
+  const places = new Map();
   for (const r of regions(profile.profile_text)) {
+    const key = `${r.x},${r.top}`;
+    if (places.has(key)) places.get(key).name += '/' + r.name;
+    else places.set(key, { ...r });
+  }
+  for (const r of places.values()) {
     context.strokeStyle = '#e0a020';
     context.setLineDash([]);
     context.strokeRect(r.x - 0.5, r.top - 0.5, r.width + 1, r.height + 1);

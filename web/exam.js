@@ -1,7 +1,7 @@
 // exam.js - one exam (exam.html?study=UID): the timeline picture of each
 // index over the exam with the applicable limits and dwell thresholds,
 // the findings and the instances. Minimal patient data: a short study key.
-import { el, svg, clear, header, getJSON, showError, param, fmt, minutes, orNone, studyKey, scale, niceMax, marker } from './common.js';
+import { el, svg, clear, header, getJSON, showError, param, fmt, minutes, orNone, studyKey, scale, marker } from './common.js';
 
 header('');
 const content = document.getElementById('content');
@@ -13,38 +13,24 @@ const SERIES = [
   { key: 'tic', label: 'TIC', shape: 'diamond', dash: '10 3 2 3', stroke: '#5b4a7a' },
 ];
 
-// Defaults of docs/policy.md, used when the policy API does not answer.
-const DEFAULT_LIMITS = {
-  source: 'policy defaults (docs/policy.md); the active policy could not be read',
-  ti: 2.0, mi: 1.9,
-  dwell: { general: { '1.0': 120, '1.5': 60, '2.0': 15, '2.5': 4, '3.0': 1 },
-           obstetric: { '0.7': 60, '1.0': 30, '1.5': 15, '2.0': 4, '2.5': 1 } },
-};
-
-function limitsFromPolicy(policy, examType) {
-  const limits = { source: `active policy ${policy.version ? policy.version.slice(0, 12) + '…' : ''}`, ti: null, mi: null, miCeiling: null, dwell: {} };
-  const obstetric = /^(obstetric|neonatal|gyn)/.test(examType || '');
-  for (const rule of policy.rules || []) {
-    if (rule.enabled === false) continue;
-    const settings = rule.settings || {};
-    if (rule.kind === 'ti_ceiling' || rule.id === 'ti_ceiling') limits.ti = parseFloat(settings.limit);
-    if (rule.kind === 'equipment_maxima' || rule.id === 'equipment_maxima') limits.mi = parseFloat(settings.mi_limit);
-    if (rule.id === 'mi_ceiling') limits.miCeiling = parseFloat(settings.limit);
-    if ((rule.kind === 'dwell' || rule.id.startsWith('dwell_')) &&
-        ((obstetric && rule.id.includes('obstetric')) || (!obstetric && rule.id.includes('general')))) {
-      for (const [key, value] of Object.entries(settings)) {
-        const match = /^dwell\.([0-9.]+)$/.exec(key);
-        if (match && /^[0-9.]+$/.test(String(value))) limits.dwell[match[1]] = parseFloat(value);
-      }
-      limits.dwellRule = rule.id;
-    }
-  }
-  return limits;
-}
-
-function chooseDwell(limits, examType) {
-  if (limits.dwellRule !== undefined || !limits.dwell.general) return limits.dwell;
-  return /^(obstetric|neonatal|gyn)/.test(examType || '') ? limits.dwell.obstetric : limits.dwell.general;
+// The limits drawn come from the active policy (/api/v1/policy `limits`:
+// per exam group and age group, as the policy engine applies them) and
+// the exam's own group (`group` of the study); nothing is assumed here.
+// Without either, no limit is drawn and the legend says why.
+function limitsFor(policy, study) {
+  const none = (why) => ({ source: why, ti: null, mi: null, miCeiling: null, dwell: [] });
+  if (!policy || !Array.isArray(policy.limits)) return none('the active policy could not be read: no limits drawn');
+  if (!study.group) return none('the exam group is not recorded yet (the exam is rebuilt with its next object): no limits drawn');
+  const age = (study.context && study.context.age_group) || 'adult';
+  const entry = policy.limits.find((l) => l.group === study.group && l.age_group === age) ||
+    policy.limits.find((l) => l.group === study.group && l.age_group === 'adult');
+  if (!entry) return none(`the active policy sets no limits for group ${study.group}: no limits drawn`);
+  return {
+    source: `active policy ${policy.version ? policy.version.slice(0, 12) + '…' : ''}, group ${entry.group}, age group ${entry.age_group}` +
+      (entry.dwell_rule ? `, dwell table of ${entry.dwell_rule}` : ''),
+    ti: entry.ti_ceiling, mi: entry.mi_equipment, miCeiling: entry.mi_ceiling,
+    dwell: (entry.dwell || []).map((d) => ({ threshold: d.threshold, text: d.not_recommended ? 'not recommended' : `${d.minutes} min` })),
+  };
 }
 
 // Round ticks from 0 to at least `high`: steps of 1, 2 or 5 x 10^n, about
@@ -97,7 +83,7 @@ function timelineChart(study, limits) {
   }
   const tTicks = roundTicks(Math.max(...points.map((p) => p.t), 0.5), 6);
   const x = scale(0, tTicks.top, left, width - right);
-  const dwell = chooseDwell(limits, study.exam_type) || {};
+  const dwell = Array.isArray(limits.dwell) ? limits.dwell : [];
   const finite = (v) => typeof v === 'number' && !Number.isNaN(v);
   // One panel per kind of index: MI (mechanical) above, TI (thermal) below;
   // each has its own axis, limits and labels.
@@ -106,7 +92,7 @@ function timelineChart(study, limits) {
       lines: [[limits.mi, 'MI equipment max', true], [limits.miCeiling, 'MI ceiling', true]] },
     { name: 'TI', series: SERIES.filter((s) => s.key !== 'mi'), top: top + panelHeight + between,
       lines: [[limits.ti, 'TI ceiling', true],
-        ...Object.entries(dwell).map(([threshold, limitMinutes]) => [parseFloat(threshold), `dwell ${limitMinutes} min`, false])] },
+        ...dwell.map((d) => [Number(d.threshold), `dwell ${d.text}`, false])] },
   ];
   for (const panel of panels) {
     const present = panel.series.filter((s) => points.some((p) => finite(p.instance[s.key])));
@@ -215,11 +201,11 @@ async function main() {
     showError(content, error);
     return;
   }
-  let limits = DEFAULT_LIMITS;
+  let policy = null;
   try {
-    const policy = await getJSON('/api/v1/policy');
-    if (policy && Array.isArray(policy.rules)) limits = limitsFromPolicy(policy, study.exam_type);
-  } catch (error) { /* defaults stay, and the legend says so */ }
+    policy = await getJSON('/api/v1/policy');
+  } catch (error) { /* no limits drawn, and the legend says why */ }
+  const limits = limitsFor(policy, study);
   const key = await studyKey(uid);
   const first = (study.instances || [])[0] || {};
   const context = study.context || {};

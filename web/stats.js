@@ -50,8 +50,11 @@ function boxChart(rows, field, title, id) {
 
 function table(data) {
   const label = BY.find(([v]) => v === data.by);
+  // The TI thresholds are the ones the document reports (the policy's ladder).
+  const thresholds = ((data.total || data.rows[0] || {}).time_at_or_above || []).map((x) => x.threshold);
+  const thresholdText = (v) => (Number.isInteger(v) ? v.toFixed(1) : String(v));
   const head = ['Exams', 'TI median', 'TI P75', 'TI P95', 'MI median', 'MI P75', 'MI P95', 'With findings', 'Scan time median',
-    'TI ≥ 1.0: exams / P95', 'TI ≥ 1.5: exams / P95', 'TI ≥ 2.0: exams / P95', 'Captures with indices'];
+    ...thresholds.map((v) => `TI ≥ ${thresholdText(v)}: exams / P95`), 'Captures with indices'];
   const row = (r, total) => {
     const t = (threshold) => (r.time_at_or_above || []).find((x) => Math.abs(x.threshold - threshold) < 1e-9) || {};
     const timeCell = (threshold) => { const x = t(threshold); return el('td', { class: 'n' }, `${x.exam_count ?? '—'} / ${minutes(x.p95_seconds)}`); };
@@ -60,7 +63,7 @@ function table(data) {
       el('td', { class: 'n' }, fmt(r.governing.median)), el('td', { class: 'n' }, fmt(r.governing.p75)), el('td', { class: 'n' }, fmt(r.governing.p95)),
       el('td', { class: 'n' }, fmt(r.mi.median)), el('td', { class: 'n' }, fmt(r.mi.p75)), el('td', { class: 'n' }, fmt(r.mi.p95)),
       el('td', { class: 'n' }, percent(r.share_with_findings)), el('td', { class: 'n' }, minutes(r.estimated_seconds.median)),
-      timeCell(1.0), timeCell(1.5), timeCell(2.0), el('td', { class: 'n' }, percent(r.data_completeness)));
+      thresholds.map(timeCell), el('td', { class: 'n' }, percent(r.data_completeness)));
   };
   return el('table', { id: 'stats-table' },
     el('thead', {}, el('tr', {}, el('th', {}, label ? label[1] : data.by), head.map((h) => el('th', { class: 'n' }, h)))),

@@ -2,7 +2,7 @@
 -- (store_put_exam). Its timeline and mode maxima are rewritten with it.
 INSERT INTO exams (
     study_instance_uid, exam_type, exam_type_label, exam_type_source,
-    governing_index, governing_index_source, gestational_age_weeks,
+    governing_index, governing_index_source, exam_group, gestational_age_weeks,
     gestational_age_source, first_acquired_at, last_acquired_at,
     instance_count, capture_count, cine_count, sr_count, other_count,
     max_mi, max_tis, max_tib, max_tic, max_tis_focus, max_tis_surface,
@@ -11,7 +11,7 @@ INSERT INTO exams (
     updated_at)
 VALUES (
     :study_instance_uid, :exam_type, :exam_type_label, :exam_type_source,
-    :governing_index, :governing_index_source, :gestational_age_weeks,
+    :governing_index, :governing_index_source, :exam_group, :gestational_age_weeks,
     :gestational_age_source, :first_acquired_at, :last_acquired_at,
     :instance_count, :capture_count, :cine_count, :sr_count, :other_count,
     :max_mi, :max_tis, :max_tib, :max_tic, :max_tis_focus, :max_tis_surface,
@@ -24,6 +24,7 @@ ON CONFLICT (study_instance_uid) DO UPDATE SET
     exam_type_source = excluded.exam_type_source,
     governing_index = excluded.governing_index,
     governing_index_source = excluded.governing_index_source,
+    exam_group = excluded.exam_group,
     gestational_age_weeks = excluded.gestational_age_weeks,
     gestational_age_source = excluded.gestational_age_source,
     first_acquired_at = excluded.first_acquired_at,

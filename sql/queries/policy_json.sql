@@ -5,6 +5,9 @@ SELECT json_object(
     'closed_after_idle_minutes', closed_after_idle_minutes,
     'gap_cap_seconds', gap_cap_seconds,
     'rules', json(rules_json),
+    'ti_ladder', json((SELECT json_group_array(threshold)
+                       FROM (SELECT threshold FROM ti_thresholds ORDER BY threshold))),
+    'limits', json(limits_json),
     'caution', 'Defaults with their sources in docs/domain.md section 4; values marked "from memory" must be '
                || 'checked against the named document. Local policy governs: the department''s '
                || 'safety policy, its medical physicist and local regulation decide; mitilog advises.')

@@ -8,14 +8,12 @@
 -- One range scan of exam_summaries by day through exam_period_rows
 -- (migration 005: how the summaries are kept exact, where context and
 -- estimated seconds come from). Time at or above each governing TI
--- threshold (0.7, 1.0, 1.5, 2.0) is summed over the exam timeline: each
--- capture's attributed seconds (already scaled by an SR scan time) count
--- when its displayed governing index is at or above the threshold (domain
--- reference section 5; an estimate). captures: image, multi-frame and
--- volume objects; indexed: those of them with at least one index.
+-- threshold: stats_exam_time_at_or_above.sql. captures: image,
+-- multi-frame and volume objects; indexed: those of them with at least
+-- one index.
 SELECT study_instance_uid, day, exam_type, exam_type_label, governing_index,
        max_governing, max_mi, room, preset, shift, transducer, study_description,
-       estimated_seconds, s07, s10, s15, s20, captures, indexed_count, finding_count,
+       estimated_seconds, captures, indexed_count, finding_count,
        first_acquired_at
 FROM exam_period_rows
 WHERE day >= ?1 AND day <= ?2;

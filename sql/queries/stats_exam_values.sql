@@ -7,7 +7,7 @@
 SELECT exam_type,
        CASE ?3 WHEN 'room' THEN room WHEN 'preset' THEN preset WHEN 'shift' THEN shift
                WHEN 'transducer' THEN transducer END,
-       max_governing, max_mi, estimated_seconds, s07, s10, s15, s20, captures,
+       max_governing, max_mi, estimated_seconds, captures,
        indexed_count, finding_count, study_instance_uid
 FROM exam_period_rows
 WHERE day >= ?1 AND day <= ?2;

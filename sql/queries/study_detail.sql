@@ -9,6 +9,7 @@ SELECT json_object(
     'exam_type', e.exam_type,
     'exam_type_label', e.exam_type_label,
     'governing_index', e.governing_index,
+    'group', e.exam_group,
     'gestational_age_weeks', e.gestational_age_weeks,
     'first_acquired_at', e.first_acquired_at,
     'last_acquired_at', e.last_acquired_at,
@@ -72,9 +73,15 @@ SELECT json_object(
             'max_governing', max_governing, 'max_mi', max_mi,
             'cem43_minutes', cem43_minutes, 'estimated_seconds', estimated_seconds,
             'doppler_seconds', doppler_seconds,
-            'seconds_at_or_above', json(seconds_at_or_above),
+            'seconds_at_or_above', json((SELECT json_group_object(CAST(t.threshold AS TEXT),
+                                                                  t.seconds)
+                                         FROM (SELECT threshold, seconds
+                                               FROM exam_measurement_time_at_or_above x
+                                               WHERE x.study_instance_uid = m.study_instance_uid
+                                                 AND x.policy_version = m.policy_version
+                                               ORDER BY threshold) AS t)),
             'estimate', json('true'), 'evaluated_at', evaluated_at)
-        FROM exam_measurements WHERE study_instance_uid = ?1
+        FROM exam_measurements m WHERE study_instance_uid = ?1
         ORDER BY policy_version = ?2 DESC, evaluated_at DESC LIMIT 1)),
     'instances', (SELECT json_group_array(json(document)) FROM
         (SELECT json_set(d.document, '$.indices', json(v.indices),

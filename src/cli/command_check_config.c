@@ -13,6 +13,7 @@
 #include "cli/cli_options.h"
 #include "cli/commands.h"
 #include "config/config_site.h"
+#include "http/http_auth.h"
 #include "rules/rules.h"
 
 /* The data folder as `serve` will use it: it exists and takes a new file,
@@ -120,7 +121,7 @@ static int check_categories(const rules_policy *policy, const char *policy_path,
 {
     int unknown = 0;
     for (size_t i = 0; i < rules_policy_rule_count(policy); i++) {
-        rules_rule_info info;
+        exam_rule_info info;
         if (rules_policy_rule_at(policy, i, &info) != 0)
             continue;
         for (size_t s = 0; s < info.setting_count; s++) {
@@ -150,6 +151,37 @@ static int check_categories(const rules_policy *policy, const char *policy_path,
 }
 
 /* from_config: the path came from [rules] policy of that file. */
+/* What the HTTP side will be: scheme, login (the password file is read
+ * and checked), limits. */
+static int check_http(const config *config)
+{
+    int https = config->http_tls_certificate[0] != '\0';
+    char login[600] = "no login";
+    int status = 0;
+    if (config->http_password_file[0] != '\0') {
+        http_auth *auth = NULL;
+        mitilog_error error;
+        if (http_auth_load(config->http_password_file, &auth, &error) != MITILOG_OK) {
+            fprintf(stderr, "mitilog: [http] password_file: %s\n", error.text);
+            return -1;
+        }
+        snprintf(login, sizeof login, "login required (%zu users in %s)",
+                 http_auth_user_count(auth), config->http_password_file);
+        http_auth_free(auth);
+    }
+    char per_address[32] = "no limit";
+    if (config->http_max_connections_per_address != 0)
+        snprintf(per_address, sizeof per_address, "%u", config->http_max_connections_per_address);
+    printf("\n; HTTP: %s://%s:%u/ %s, %s; at most %u connections, per address %s, "
+           "%u s to send a request\n",
+           https ? "https" : "http", config->http_address, config->http_port,
+           https ? "(TLS 1.2 and 1.3, forward-secret AEAD ciphers, HSTS)" : "(plain HTTP)",
+           login, config->http_max_connections, per_address,
+           config->http_request_timeout_seconds);
+    return status;
+}
+
+
 static int check_policy(const char *path, const char *from_config, const ext_site_rules *rules)
 {
     rules_policy *policy = NULL;
@@ -215,6 +247,8 @@ int command_check_config(int argc, char **argv)
         config_print(&config, stdout);
     }
     if (check_data_directory(&config) != 0)
+        status = EXIT_STATUS_USAGE;
+    if (check_http(&config) != 0)
         status = EXIT_STATUS_USAGE;
     ext_site_rules rules;
     int site_valid = check_site(config.site_rules_path, config_path, &rules) == 0;

@@ -96,14 +96,14 @@ static int frame_load_dicom(const char *path, device_frame *frame, char *why,
     frame->manufacturer = copy_or_null(facts.values[DCM_ATTRIBUTE_MANUFACTURER]);
     frame->model_name = copy_or_null(facts.values[DCM_ATTRIBUTE_MANUFACTURER_MODEL_NAME]);
     frame->software_versions = copy_or_null(facts.values[DCM_ATTRIBUTE_SOFTWARE_VERSIONS]);
-    static const int attributes[EXT_INDEX_COUNT] = {
+    static const int attributes[EXAM_INDEX_COUNT] = {
         DCM_ATTRIBUTE_MECHANICAL_INDEX,        DCM_ATTRIBUTE_SOFT_TISSUE_THERMAL_INDEX,
         DCM_ATTRIBUTE_BONE_THERMAL_INDEX,      DCM_ATTRIBUTE_CRANIAL_THERMAL_INDEX,
         DCM_ATTRIBUTE_SOFT_TISSUE_FOCUS_THERMAL_INDEX,
         DCM_ATTRIBUTE_SOFT_TISSUE_SURFACE_THERMAL_INDEX};
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
-        ext_number number = ext_parse_decimal_string(facts.values[attributes[i]]);
-        if (number.status == EXT_VALUE_OK && number.value >= 0.0 && number.value < 100.0) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
+        exam_number number = ext_parse_decimal_string(facts.values[attributes[i]]);
+        if (number.status == EXAM_VALUE_OK && number.value >= 0.0 && number.value < 100.0) {
             /* The header's value, shown on the screen with one or two
              * decimals: learning tries both. */
             frame->example.truth[i].status = SCREEN_VALUE_READ;
@@ -211,9 +211,9 @@ static int frame_load(const char *path, device_frame *frame, char *why, size_t w
 
 static int index_by_label(const char *label)
 {
-    static const char *const names[EXT_INDEX_COUNT] = {"MI", "TIS", "TIB", "TIC", "TISF",
+    static const char *const names[EXAM_INDEX_COUNT] = {"MI", "TIS", "TIB", "TIC", "TISF",
                                                        "TISS"};
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         if (strcasecmp(label, names[i]) == 0)
             return i;
     }
@@ -221,7 +221,7 @@ static int index_by_label(const char *label)
 }
 
 /* Parses "MI=1.2,TIS=0.4" into truth (the text kept as typed). */
-static int parse_values(const char *text, screen_value truth[EXT_INDEX_COUNT], char *why,
+static int parse_values(const char *text, screen_value truth[EXAM_INDEX_COUNT], char *why,
                         size_t why_size)
 {
     char *copy = strdup(text);
@@ -258,18 +258,18 @@ static int parse_values(const char *text, screen_value truth[EXT_INDEX_COUNT], c
 static void print_reading(FILE *out, const char *path, const screen_reading *reading)
 {
     fprintf(out, "read %s", path);
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         const screen_value *v = &reading->values[i];
         if (v->status == SCREEN_VALUE_READ)
-            fprintf(out, " %s=%s", ext_index_name((ext_index)i), v->text);
+            fprintf(out, " %s=%s", exam_index_name((exam_index)i), v->text);
         else if (v->status == SCREEN_VALUE_NOT_READ)
-            fprintf(out, " %s=-", ext_index_name((ext_index)i));
+            fprintf(out, " %s=-", exam_index_name((exam_index)i));
     }
     fputc('\n', out);
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         const screen_value *v = &reading->values[i];
         if (v->status == SCREEN_VALUE_NOT_READ)
-            fprintf(out, "  %s not read: %s\n", ext_index_name((ext_index)i), v->reason);
+            fprintf(out, "  %s not read: %s\n", exam_index_name((exam_index)i), v->reason);
     }
 }
 
@@ -454,7 +454,7 @@ static int device_learn(int argc, char **argv, store **st_out, const char *confi
                             .software_versions = software_versions};
     for (size_t f = 0; f < frame_count; f++) {
         int header_values = 0;
-        for (int i = 0; i < EXT_INDEX_COUNT; i++)
+        for (int i = 0; i < EXAM_INDEX_COUNT; i++)
             header_values |= frames[f].example.truth[i].status == SCREEN_VALUE_READ;
         if (values_for[f] == NULL && !(frames[f].from_header && header_values)) {
             fprintf(stderr, "mitilog device learn: no values for %s%s: give --value "
@@ -490,6 +490,7 @@ static int device_learn(int argc, char **argv, store **st_out, const char *confi
         goto done;
     }
     if (print_only) {
+        fputs(report, stderr);
         fputs(text, stdout);
         exit_status = EXIT_STATUS_SUCCESS;
     } else {

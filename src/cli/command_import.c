@@ -42,7 +42,8 @@ static void import_count(import_queue *queue, ingest_outcome outcome)
     switch (outcome) {
     case INGEST_OUTCOME_STORED: queue->totals.imported++; break;
     case INGEST_OUTCOME_REPLACED: queue->totals.replaced++; break;
-    case INGEST_OUTCOME_REJECTED: queue->totals.rejected++; break;
+    case INGEST_OUTCOME_REJECTED:
+    case INGEST_OUTCOME_MISMATCHED: queue->totals.rejected++; break;
     case INGEST_OUTCOME_NOT_STORED: queue->totals.failed++; break;
     }
     pthread_mutex_unlock(&queue->lock);

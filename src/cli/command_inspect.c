@@ -27,18 +27,16 @@ static void line(const char *key, const char *value, const char *source)
 static void modes_line(const char *key, unsigned modes, const char *source)
 {
     char list[256] = "";
-    for (int m = 0; m < EXT_MODE_COUNT; m++)
-        if (modes & EXT_MODE_BIT(m)) {
+    for (int m = 0; m < EXAM_MODE_COUNT; m++)
+        if (modes & EXAM_MODE_BIT(m)) {
             strncat(list, list[0] ? "," : "", sizeof list - strlen(list) - 1);
-            strncat(list, ext_mode_name((ext_mode)m), sizeof list - strlen(list) - 1);
+            strncat(list, exam_mode_name((exam_mode)m), sizeof list - strlen(list) - 1);
         }
     line(key, list[0] ? list : "(none)", source);
 }
 
 static void print_record(const ext_record *r)
 {
-    static const char *const index_names[EXT_INDEX_COUNT] = {"mi", "tis", "tib", "tic",
-                                                             "tis_focus", "tis_surface"};
     char buffer[64];
     line("sop_instance_uid", r->sop_instance_uid, "(0008,0018)");
     line("sop_class_uid", r->sop_class_uid, "(0008,0016)");
@@ -57,10 +55,10 @@ static void print_record(const ext_record *r)
     line("procedure_codes", r->procedure_codes, "(0008,1032)/(0040,0260)/(0032,1064)");
     line("body_part_examined", r->body_part_examined, "(0018,0015)");
     line("image_type", r->image_type, "(0008,0008)");
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         snprintf(buffer, sizeof buffer, "%s (%s)", text(r->index_raw[i]),
-                 ext_value_status_name(r->indices[i].status));
-        line(index_names[i], buffer, "image header");
+                 exam_value_status_name(r->indices[i].status));
+        line(exam_index_name((exam_index)i), buffer, "image header");
     }
     modes_line("modes", r->modes, "union");
     snprintf(buffer, sizeof buffer, "image_type value 4 (%s%s%04X)",
@@ -82,7 +80,7 @@ static void print_record(const ext_record *r)
     line("exam_type", r->exam_type, r->exam_type_source);
     line("exam_type_label", r->exam_type_label, NULL);
     line("governing_index",
-         r->has_governing_index ? ext_index_name(r->governing_index) : NULL,
+         r->has_governing_index ? exam_index_name(r->governing_index) : NULL,
          r->governing_index_source);
     snprintf(buffer, sizeof buffer, "%.2f", r->gestational_age_weeks);
     line("gestational_age_weeks", r->has_gestational_age ? buffer : NULL,
@@ -103,7 +101,7 @@ static void print_record(const ext_record *r)
         snprintf(value, sizeof value, "%s %s", text(v->raw), v->unit ? v->unit : "(no unit)");
         snprintf(source, sizeof source, "item %s %s \"%s\"%s%s", v->position, v->concept,
                  text(v->meaning), v->mode >= 0 ? " mode " : "",
-                 v->mode >= 0 ? ext_mode_name((ext_mode)v->mode) : "");
+                 v->mode >= 0 ? exam_mode_name((exam_mode)v->mode) : "");
         line(key, value, source);
     }
     for (size_t i = 0; i < r->sr->unknown_scheme_count; i++)

@@ -101,6 +101,8 @@ static int serve_start(serve_state *state, mitilog_error *error)
         .allowed_peers = state->allowed,
         .allowed_peer_count = peer_count,
         .max_associations = config->max_associations,
+        .max_negotiations = config->max_negotiations,
+        .max_negotiations_per_address = config->max_negotiations_per_address,
         .acse_timeout_seconds = config->acse_timeout_seconds,
         .dimse_timeout_seconds = config->dimse_timeout_seconds,
         .max_pdu = config->max_pdu_bytes,
@@ -108,14 +110,24 @@ static int serve_start(serve_state *state, mitilog_error *error)
         .tls_private_key_file = serve_optional(config->dicom_tls_private_key),
         .tls_ca_file = serve_optional(config->dicom_tls_ca_certificates),
         .max_object_bytes = config->max_object_bytes,
+        .max_memory_in_flight_bytes = config->max_memory_in_flight_bytes,
     };
     if (dcm_server_create(&settings, ingest_store_handler, state->ingest, &state->dicom, error) !=
             MITILOG_OK ||
         dcm_server_start(state->dicom, error) != MITILOG_OK)
         return -1;
-    http_settings web = {config->http_address,       config->http_port,
-                         config->web_root,           config->http_tls_certificate,
-                         config->http_tls_private_key, config->http_password_file};
+    http_settings web = {
+        .address = config->http_address,
+        .port = config->http_port,
+        .web_root = config->web_root,
+        .tls_certificate_file = config->http_tls_certificate,
+        .tls_private_key_file = config->http_tls_private_key,
+        .password_file = config->http_password_file,
+        .max_connections = config->http_max_connections,
+        .max_connections_per_address = config->http_max_connections_per_address != 0
+                                           ? config->http_max_connections_per_address
+                                           : HTTP_SETTINGS_UNLIMITED,
+        .request_timeout_seconds = config->http_request_timeout_seconds};
     if (http_server_start(&web, state->store, &state->http, error) != MITILOG_OK)
         return -1;
     /* Both ports are bound: root is no longer needed. */
@@ -192,12 +204,15 @@ int command_serve(int argc, char **argv)
         serve_stop(&state);
         return EXIT_STATUS_FAILURE;
     }
-    log_info("mitilog %s: DICOM AE '%s' on port %u (all interfaces%s); HTTP on http://%s:%u/; "
+    log_info("mitilog %s: DICOM AE '%s' on port %u (all interfaces%s); HTTP on %s://%s:%u/%s; "
              "database %s",
              MITILOG_VERSION, state.config.ae_title, state.config.port,
              state.config.dicom_tls_certificate[0] != '\0' ? ", TLS" : "",
+             state.config.http_tls_certificate[0] != '\0' ? "https" : "http",
              state.config.http_address,
-             state.config.http_port, state.config.database_path);
+             state.config.http_port,
+             state.config.http_password_file[0] != '\0' ? " (login required)" : "",
+             state.config.database_path);
     for (;;) {
         int received = 0;
         if (sigwait(&signals, &received) != 0)

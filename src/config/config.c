@@ -42,16 +42,27 @@ static const option options[] = {
      NULL, 0, "Comma-separated calling AE titles, each optionally AE@IPv4; empty accepts any."},
     {"dicom", "max_associations", OPTION_UNSIGNED, FIELD(max_associations), "16", 1, 256, NULL, 0,
      "Concurrent associations; further ones are refused (local limit exceeded)."},
+    {"dicom", "max_negotiations", OPTION_UNSIGNED, FIELD(max_negotiations), "128", 1, 1024, NULL, 0,
+     "Connections still negotiating (TLS handshake, association request) at once; further ones "
+     "are closed unread."},
+    {"dicom", "max_negotiations_per_address", OPTION_UNSIGNED,
+     FIELD(max_negotiations_per_address), "8", 1, 1024, NULL, 0,
+     "Connections from one IP address still negotiating at once; further ones are closed unread."},
     {"dicom", "acse_timeout_seconds", OPTION_UNSIGNED, FIELD(acse_timeout_seconds), "5", 1, 600, NULL,
-     0, "Time allowed for association negotiation."},
+     0, "Total time from connection to complete association request (TLS handshake included); "
+     "then the connection is closed."},
     {"dicom", "dimse_timeout_seconds", OPTION_UNSIGNED, FIELD(dimse_timeout_seconds), "60", 1, 3600,
      NULL, 0, "Idle time allowed between DIMSE messages within an association."},
     {"dicom", "max_pdu_bytes", OPTION_UNSIGNED, FIELD(max_pdu_bytes), "65536", 4096, 131072, NULL, 0,
      "Largest PDU this receiver accepts."},
     {"dicom", "max_object_bytes", OPTION_UNSIGNED, FIELD(max_object_bytes), "2147483648", 0,
      4294967295UL, NULL, 0,
-     "Largest object accepted (bytes received); larger ones get C001 and are deleted; 0 = no "
-     "limit."},
+     "Largest object accepted (data set bytes received); past it the rest is discarded as it "
+     "arrives and the object gets C001; 0 = no limit."},
+    {"dicom", "max_memory_in_flight_bytes", OPTION_UNSIGNED, FIELD(max_memory_in_flight_bytes),
+     "1073741824", 0, 4294967295UL, NULL, 0,
+     "Objects being received, all associations together; one that passes it while others are in "
+     "flight is discarded and gets A700 (retry); 0 = no limit."},
     {"dicom", "tls_certificate", OPTION_STRING, FIELD(dicom_tls_certificate), "", 0, 0, NULL, 1,
      "PEM certificate for DICOM TLS; with tls_private_key: TLS only, no plain TCP. Empty: plain "
      "TCP."},
@@ -67,7 +78,8 @@ static const option options[] = {
      "Folder holding the dashboard's files."},
     {"http", "allow_insecure_non_loopback", OPTION_CHOICE, FIELD(http_allow_insecure_non_loopback),
      "no", 0, 0, "|yes|no|", 0,
-     "HTTP has no TLS or login yet: serve refuses a non-loopback address unless this says yes."},
+     "yes: serve a non-loopback address over plain HTTP or without a login (not advised); no: "
+     "such an address needs tls_certificate, tls_private_key and password_file."},
     {"http", "tls_certificate", OPTION_STRING, FIELD(http_tls_certificate), "", 0, 0, NULL, 1,
      "PEM certificate for HTTPS; with tls_private_key the API and dashboard use TLS."},
     {"http", "tls_private_key", OPTION_STRING, FIELD(http_tls_private_key), "", 0, 0, NULL, 1,
@@ -75,8 +87,18 @@ static const option options[] = {
     {"http", "password_file", OPTION_STRING, FIELD(http_password_file), "", 0, 0, NULL, 1,
      "File of user:crypt-hash lines (mitilog passwd); set: every request but /healthz needs a "
      "login. Needs HTTPS."},
+    {"http", "max_connections", OPTION_UNSIGNED, FIELD(http_max_connections), "256", 8, 4096, NULL,
+     0, "Open HTTP connections of all clients together; more are closed at once."},
+    {"http", "max_connections_per_address", OPTION_UNSIGNED,
+     FIELD(http_max_connections_per_address), "32", 0, 4096, NULL, 0,
+     "Open HTTP connections from one client address; 0 = no limit (e.g. behind a reverse proxy "
+     "on this host, which then limits clients itself)."},
+    {"http", "request_timeout_seconds", OPTION_UNSIGNED, FIELD(http_request_timeout_seconds), "10",
+     1, 600, NULL, 0,
+     "Seconds a client has to send a whole request (TLS handshake, request line and headers), "
+     "however slowly it sends each byte; then the connection is closed."},
     {"storage", "data_directory", OPTION_STRING, FIELD(data_directory), "var", 0, 0, NULL, 1,
-     "Folder for the database, spool, quarantine and header copies."},
+     "Folder for the database, quarantine/, objects/ (full copies) and reading/ (objects waiting to be read)."},
     {"storage", "database", OPTION_STRING, FIELD(database_path), "mitilog.sqlite3", 0, 0, NULL, 0,
      "SQLite database file; relative to data_directory."},
     {"storage", "retention", OPTION_CHOICE, FIELD(retention), "header", 0, 0, "|none|header|full|", 0,
@@ -89,6 +111,13 @@ static const option options[] = {
      "How long a write waits for a locked database before answering A700."},
     {"storage", "sr_depth_limit", OPTION_UNSIGNED, FIELD(sr_depth_limit), "64", 1, 1024, NULL, 0,
      "Levels of an SR content tree read; deeper items are skipped (and logged)."},
+    {"storage", "quarantine_max_bytes", OPTION_UNSIGNED, FIELD(quarantine_max_bytes), "1073741824",
+     0, 4294967295UL, NULL, 0,
+     "Quota of quarantine/ in bytes; the oldest files are removed to make room (0 = keep "
+     "nothing)."},
+    {"storage", "quarantine_max_files", OPTION_UNSIGNED, FIELD(quarantine_max_files), "1000", 0,
+     1000000, NULL, 0,
+     "Quota of quarantine/ in files; the oldest are removed to make room (0 = keep nothing)."},
     {"reading", "workers", OPTION_UNSIGNED, FIELD(reading_workers), "1", 0, 16, NULL, 0,
      "Threads reading the indices drawn in the pixels, after the C-STORE is answered; 0 "
      "queues objects without reading them until a restart with workers (maintenance)."},

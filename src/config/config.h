@@ -27,10 +27,13 @@ typedef struct config {
     unsigned port;
     char *allowed_calling_ae_titles; /* "AE[@address], ..." or "" = any */
     unsigned max_associations;
+    unsigned max_negotiations;     /* connections not yet associated */
+    unsigned max_negotiations_per_address;
     unsigned acse_timeout_seconds;
     unsigned dimse_timeout_seconds;
     unsigned max_pdu_bytes;
     unsigned max_object_bytes;     /* 0 = no limit */
+    unsigned max_memory_in_flight_bytes; /* all objects in memory; 0 = none */
     char *dicom_tls_certificate;   /* "" = plain TCP */
     char *dicom_tls_private_key;
     char *dicom_tls_ca_certificates; /* non-empty: client certificates required */
@@ -43,6 +46,9 @@ typedef struct config {
     char *http_tls_certificate;    /* PEM; "" = plain HTTP */
     char *http_tls_private_key;    /* PEM */
     char *http_password_file;      /* "user:crypt-hash" lines; "" = no login */
+    unsigned http_max_connections;
+    unsigned http_max_connections_per_address; /* 0 = no per-address limit */
+    unsigned http_request_timeout_seconds;
 
     /* [storage] */
     char *data_directory;
@@ -51,6 +57,8 @@ typedef struct config {
     char *durability;              /* "power_loss" or "process" */
     unsigned busy_timeout_ms;
     unsigned sr_depth_limit;       /* SR content tree levels read */
+    unsigned quarantine_max_bytes; /* quarantine/ quota; oldest removed */
+    unsigned quarantine_max_files;
 
     /* [reading] the pixel reader's queue (src/ingest/ingest_reading.c) */
     unsigned reading_workers;      /* threads reading frames */

@@ -161,11 +161,11 @@ static int exam_type_entry(site_state *state, const char *key, const char *value
         free(type->label);
         type->label = copy;
     } else if (strcmp(key, "governing_index") == 0) {
-        if (strcasecmp(value, "TIS") == 0) type->governing = EXT_GOVERNING_TIS;
-        else if (strcasecmp(value, "TIB") == 0) type->governing = EXT_GOVERNING_TIB;
-        else if (strcasecmp(value, "TIC") == 0) type->governing = EXT_GOVERNING_TIC;
+        if (strcasecmp(value, "TIS") == 0) type->governing = EXAM_GOVERNING_TIS;
+        else if (strcasecmp(value, "TIB") == 0) type->governing = EXAM_GOVERNING_TIB;
+        else if (strcasecmp(value, "TIC") == 0) type->governing = EXAM_GOVERNING_TIC;
         else if (strcasecmp(value, "by_gestation") == 0) {
-            type->governing = EXT_GOVERNING_BY_GESTATION;
+            type->governing = EXAM_GOVERNING_BY_GESTATION;
             type->obstetric = 1;
         } else
             return site_fail(state, key, "not TIS, TIB, TIC or by_gestation");
@@ -182,20 +182,12 @@ static int exam_type_entry(site_state *state, const char *key, const char *value
             return site_fail(state, key, "not a whole number of weeks from 1 to 45");
         type->nominal_gestational_age_weeks = (double)number;
     } else if (strcmp(key, "group") == 0) {
-        /* The policy groups of docs/policy.md (rules_group_name()). */
-        static const char *const groups[] = {"general", "obstetric", "neonatal",
-                                             "transcranial", "ophthalmic", "contrast"};
-        size_t known = 0;
-        while (known < sizeof groups / sizeof groups[0] && strcmp(value, groups[known]) != 0)
-            known++;
-        if (known == sizeof groups / sizeof groups[0])
+        exam_group group;
+        if (exam_group_parse(value, &group) != 0)
             return site_fail(state, key, "not general, obstetric, neonatal, transcranial, "
                                          "ophthalmic or contrast");
-        char *copy = strdup(value);
-        if (copy == NULL)
-            return site_fail(state, key, "out of memory");
-        free(type->group);
-        type->group = copy;
+        type->group = group;
+        type->has_group = 1;
     } else if (strcmp(key, "fields") == 0) {
         return set_fields(state, value);
     } else if (strcmp(key, "match") == 0) {

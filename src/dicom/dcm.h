@@ -217,6 +217,9 @@ void dcm_frame_free(dcm_frame *frame);
 enum {
     DCM_STATUS_SUCCESS = 0x0000,
     DCM_STATUS_OUT_OF_RESOURCES = 0xA700,
+    /* A9xx "Error: Data Set does not match SOP Class" (PS3.4 B.2.3): the
+     * data set's SOP Class or Instance UID is not the command's. */
+    DCM_STATUS_DATA_SET_MISMATCH = 0xA900,
     DCM_STATUS_CANNOT_UNDERSTAND = 0xC000,
     /* Cxxx "Error: Cannot understand" (PS3.4 B.2.3), a failure the sender
      * should not retry: the object exceeds [dicom] max_object_bytes. */
@@ -257,6 +260,14 @@ typedef struct dcm_server_settings {
     const dcm_allowed_peer *allowed_peers; /* NULL = accept any caller */
     size_t allowed_peer_count;
     unsigned max_associations;         /* concurrent; extra are refused */
+    /* Connections still negotiating (TLS handshake and A-ASSOCIATE-RQ not
+     * yet complete), over all addresses and from one address; a further
+     * connection is closed at once. 0 = 128 and 8. */
+    unsigned max_negotiations;
+    unsigned max_negotiations_per_address;
+    /* Total time allowed from the TCP connection to a complete
+     * A-ASSOCIATE-RQ (TLS handshake included); then the connection is
+     * closed whatever it still sends. */
     unsigned acse_timeout_seconds;
     unsigned dimse_timeout_seconds;
     uint32_t max_pdu;                  /* receive PDU size in bytes */
@@ -264,10 +275,19 @@ typedef struct dcm_server_settings {
     const char *tls_certificate_file;
     const char *tls_private_key_file;
     const char *tls_ca_file;           /* non-NULL: require client certs */
-    /* Objects larger than this (bytes as received, meta header included)
-     * are answered DCM_STATUS_TOO_LARGE and dropped; 0 = no limit. An
-     * association holds at most one object in memory at a time. */
+    /* Objects larger than this (data set bytes as received) are answered
+     * DCM_STATUS_TOO_LARGE: as soon as the limit is passed the rest of the
+     * object is read and discarded, so an association never holds more
+     * than max_object_bytes plus one PDU of it; 0 = no limit. An
+     * association holds at most one object at a time. */
     uint64_t max_object_bytes;
+    /* All associations' objects in memory together: an object that takes
+     * the total past this while others are in flight is discarded as it
+     * arrives and answered DCM_STATUS_OUT_OF_RESOURCES (the sender
+     * retries); one object alone may always reach max_object_bytes. So
+     * received objects hold at most the larger of the two, plus a PDU per
+     * association. 0 = no limit. */
+    uint64_t max_memory_in_flight_bytes;
 } dcm_server_settings;
 
 typedef struct dcm_server dcm_server;
@@ -329,7 +349,11 @@ mitilog_status dcm_builder_put_pixels(dcm_builder *builder,
                                       const uint8_t *bytes, size_t size,
                                       mitilog_error *error);
 /* Writes a Part 10 file with a meta header in the given transfer syntax
- * (UID string; NULL = Explicit VR Little Endian). */
+ * (UID string; NULL = Explicit VR Little Endian). Besides the native
+ * syntaxes, three compress the pixel data with DCMTK's encoders:
+ * JPEG baseline 1.2.840.10008.1.2.4.50 (lossy, quality 90; colour as
+ * YBR_FULL_422), JPEG-LS lossless 1.2.840.10008.1.2.4.80 and RLE lossless
+ * 1.2.840.10008.1.2.5. The SOP Instance UID is kept either way. */
 mitilog_status dcm_builder_save(dcm_builder *builder, const char *path,
                                 const char *transfer_syntax_uid,
                                 mitilog_error *error);

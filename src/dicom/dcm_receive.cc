@@ -1,14 +1,21 @@
 /*
- * dcm_receive.cc - the Storage SCP (with Verification): an accept loop of
- * our own on a listener thread, one thread per association running a
- * DcmThreadSCP subclass (dcmtk-notes.md, approach (b)). Each C-STORE is
- * written byte for byte to the association's memory file and handed to
- * the C handler, whose status is the C-STORE response.
+ * dcm_receive.cc - the Storage SCP (with Verification). A supervisor
+ * thread keeps exactly one connection thread waiting in DCMTK's accept;
+ * as soon as DCMTK has accepted a connection (our transport layer's
+ * createConnection() hook, before any byte is read) the supervisor starts
+ * the next waiting thread, and the accepting one goes on to read the TLS
+ * handshake and the A-ASSOCIATE-RQ and then serves the association with a
+ * DcmThreadSCP subclass. Negotiations are counted per address and in all,
+ * and closed (shutdown(2)) at a total deadline by the supervisor. Each
+ * C-STORE is written byte for byte to the association's memory file and
+ * handed to the C handler, whose status is the C-STORE response.
  */
 #include "dicom/dcm_internal.h"
 
 #include "dcmtk/dcmdata/dcuid.h"
 #include "dcmtk/dcmnet/assoc.h"
+#include "dcmtk/dcmnet/dcmlayer.h"
+#include "dcmtk/dcmnet/dcmtrans.h"
 #include "dcmtk/dcmnet/dul.h"
 #include "dcmtk/dcmnet/scpthrd.h"
 #include "dcmtk/dcmtls/tlslayer.h"
@@ -17,8 +24,19 @@ extern "C" {
 #include "util/log.h"
 }
 
+#include <arpa/inet.h>
+#include <fcntl.h>
+#include <netinet/in.h>
+#include <sys/socket.h>
+
+#include <algorithm>
 #include <atomic>
+#include <chrono>
+#include <condition_variable>
 #include <cstdio>
+#include <map>
+#include <mutex>
+#include <new>
 #include <cstring>
 #include <list>
 #include <memory>
@@ -61,11 +79,26 @@ static const char *const dcm_verification_transfer_syntaxes[] = {
 };
 static const char *dcm_verification_class[] = {UID_VerificationSOPClass};
 
-enum { DCM_DEFAULT_ACSE_TIMEOUT = 5, DCM_DEFAULT_DIMSE_TIMEOUT = 30 };
+enum {
+    DCM_DEFAULT_ACSE_TIMEOUT = 5,
+    DCM_DEFAULT_DIMSE_TIMEOUT = 30,
+    DCM_DEFAULT_MAX_NEGOTIATIONS = 128,
+    DCM_DEFAULT_MAX_NEGOTIATIONS_PER_ADDRESS = 8
+};
 
 struct dcm_association_thread {
     std::thread thread;
     std::atomic<bool> finished{false};
+};
+
+/* A connection accepted but not yet negotiated (TLS handshake and
+ * A-ASSOCIATE-RQ), keyed by the thread reading it. */
+struct dcm_negotiation {
+    std::string peer;
+    int watch_fd = -1; /* a duplicate of the socket, for shutdown(2) */
+    std::chrono::steady_clock::time_point deadline;
+    bool expired = false;
+    bool refused = false; /* its first PDU was refused (already logged) */
 };
 
 struct dcm_server {
@@ -75,26 +108,43 @@ struct dcm_server {
     bool have_allowlist = false;
     std::vector<std::pair<std::string, std::string>> allowed_peers;
     unsigned max_associations = 1;
+    unsigned max_negotiations = DCM_DEFAULT_MAX_NEGOTIATIONS;
+    unsigned max_negotiations_per_address =
+        DCM_DEFAULT_MAX_NEGOTIATIONS_PER_ADDRESS;
     unsigned acse_timeout = DCM_DEFAULT_ACSE_TIMEOUT;
     uint32_t max_pdu = ASC_DEFAULTMAXPDU;
     uint64_t max_object_bytes = 0; /* 0 = no limit */
+    uint64_t max_memory_in_flight = 0; /* 0 = no limit */
     std::string tls_certificate_file, tls_private_key_file, tls_ca_file;
     bool tls = false, tls_require_client = false;
     dcm_store_handler handler = NULL;
     void *context = NULL;
 
-    /* Runtime. The listener alone touches network and threads until
-     * dcm_server_stop() has joined it. */
+    /* Runtime. The listener (supervisor) alone touches threads until
+     * dcm_server_stop() has joined it; the network is only read once
+     * started. */
     DcmSharedSCPConfig config;
-    std::unique_ptr<DcmTLSTransportLayer> tls_layer; /* outlives network */
+    std::unique_ptr<DcmTransportLayer> layer; /* outlives network */
     T_ASC_Network *network = NULL;
     std::thread listener;
     std::list<std::unique_ptr<dcm_association_thread>> threads;
     std::atomic<bool> stopping{false};
+    /* Guards what follows; wake tells the supervisor to look again. */
+    std::mutex mutex;
+    std::condition_variable wake;
+    bool need_acceptor = false;
+    std::map<std::thread::id, dcm_negotiation> negotiations;
+    std::map<std::string, unsigned> negotiating_per_address;
+    /* Lines about refused or cut connections: at most one a second, so
+     * that a peer reconnecting in a loop cannot flood the log. */
+    std::mutex log_mutex;
+    std::chrono::steady_clock::time_point last_peer_line;
+    unsigned long suppressed_peer_lines = 0;
     bool started = false;
     std::atomic<unsigned long> next_association_id{0};
     std::atomic<unsigned long> accepted{0}, refused{0}, active{0};
     std::atomic<unsigned long> objects{0};
+    std::atomic<uint64_t> memory_in_flight{0}; /* memory files, all */
 };
 
 /* Trims the space padding DICOM puts around AE titles. */
@@ -105,6 +155,33 @@ static std::string dcm_trim(const char *text)
     size_t last = value.find_last_not_of(' ');
     return first == std::string::npos ? ""
                                       : value.substr(first, last - first + 1);
+}
+
+/* Whether a line about a refused or cut connection may be written now
+ * (one a second); *suppressed receives how many were left out since the
+ * last one written. */
+static bool dcm_peer_line_allowed(dcm_server *server,
+                                  unsigned long *suppressed)
+{
+    std::lock_guard<std::mutex> lock(server->log_mutex);
+    auto now = std::chrono::steady_clock::now();
+    if (now - server->last_peer_line < std::chrono::seconds(1)) {
+        server->suppressed_peer_lines++;
+        return false;
+    }
+    *suppressed = server->suppressed_peer_lines;
+    server->suppressed_peer_lines = 0;
+    server->last_peer_line = now;
+    return true;
+}
+
+/* " (N similar lines left out)" or "". */
+static std::string dcm_suppressed_note(unsigned long suppressed)
+{
+    return suppressed == 0 ? std::string()
+                           : " (" + std::to_string(suppressed) +
+                                 " similar line" + (suppressed == 1 ? "" : "s") +
+                                 " about peers left out in the last second)";
 }
 
 /* ------------------------------------------------------------------ */
@@ -142,6 +219,7 @@ class dcm_association_scp : public DcmThreadSCP
     OFCondition
     handleIncomingCommand(T_DIMSE_Message *message,
                           const DcmPresentationContextInfo &context) override;
+    void notifyRECEIVEProgress(const unsigned long byte_count) override;
 
   private:
     OFCondition receive_store(T_DIMSE_C_StoreRQ &request,
@@ -161,6 +239,17 @@ class dcm_association_scp : public DcmThreadSCP
      * (docs/performance.md). spool_ is its /proc/self/fd path. */
     int spool_fd_ = -1;
     std::string spool_;
+    /* The object being received is being discarded as it arrives
+     * (notifyRECEIVEProgress): past max_object_bytes (oversized_), or past
+     * the server's memory budget while others were in flight (crowded_). */
+    bool oversized_ = false;
+    bool crowded_ = false;
+    uint64_t counted_ = 0; /* its bytes in server_->memory_in_flight */
+    void release_counted()
+    {
+        server_->memory_in_flight -= counted_;
+        counted_ = 0;
+    }
 
   public:
     ~dcm_association_scp() override
@@ -177,7 +266,7 @@ void dcm_association_scp::notifyAssociationRequest(
     called_ae_ = dcm_trim(params.DULparams.calledAPTitle);
     peer_ip_ = getPeerIP().c_str();
     /* DcmSCP hands the parameters as const, but accepting contexts is
-     * exactly what this hook is for (see dcmtk-notes.md). */
+     * exactly what this hook is for (a profile holds only 128 classes). */
     T_ASC_Parameters *writable = const_cast<T_ASC_Parameters *>(&params);
     OFCondition condition = ASC_acceptContextsWithPreferredTransferSyntaxes(
         writable, dcm_verification_class, 1,
@@ -293,6 +382,39 @@ bool dcm_association_scp::open_spool()
     return true;
 }
 
+/* Called by DCMTK after each data set fragment written to the memory
+ * file, with the bytes received so far. Past max_object_bytes the file is
+ * emptied after every fragment: DCMTK keeps writing at its offset, which
+ * only leaves a hole, so the memory held stays within max_object_bytes
+ * plus one fragment however long the object is. */
+void dcm_association_scp::notifyRECEIVEProgress(const unsigned long byte_count)
+{
+    if (spool_fd_ < 0)
+        return;
+    if (!oversized_ && !crowded_) {
+        /* The budget of all memory files together: an object that takes
+         * the total past it while other objects are in flight is
+         * discarded and answered A700 (retry later); one object alone may
+         * always reach max_object_bytes. */
+        uint64_t delta = byte_count - counted_;
+        uint64_t total = (server_->memory_in_flight += delta);
+        counted_ = byte_count;
+        if (server_->max_object_bytes > 0 &&
+            byte_count > server_->max_object_bytes)
+            oversized_ = true;
+        else if (server_->max_memory_in_flight > 0 &&
+                 total > server_->max_memory_in_flight &&
+                 total > counted_)
+            crowded_ = true;
+        if (!oversized_ && !crowded_)
+            return;
+        release_counted();
+    }
+    if (ftruncate(spool_fd_, 0) != 0)
+        log_warning("association %lu: cannot empty the memory file: %s", id_,
+                    strerror(errno));
+}
+
 /* Reads the data set into memory, drops it and answers A700. */
 OFCondition
 dcm_association_scp::refuse_store(T_DIMSE_C_StoreRQ &request,
@@ -320,9 +442,11 @@ dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
     if (!open_spool())
         return refuse_store(request, context_id, "no memory file to receive into");
     const std::string &path = spool_;
+    oversized_ = crowded_ = false;
     OFCondition condition =
         receiveSTORERequest(request, context_id, OFString(path.c_str()));
     if (condition.bad()) {
+        release_counted();
         log_warning("association %lu from AE '%s' (%s): receiving C-STORE "
                     "of %s failed: %s",
                     id_, calling_ae_.c_str(), peer_ip_.c_str(),
@@ -336,15 +460,27 @@ dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
     server_->objects++;
     struct stat info;
     uint16_t status;
-    if (server_->max_object_bytes > 0 && fstat(spool_fd_, &info) == 0 &&
-        static_cast<uint64_t>(info.st_size) > server_->max_object_bytes) {
+    if (oversized_ ||
+        (server_->max_object_bytes > 0 && fstat(spool_fd_, &info) == 0 &&
+         static_cast<uint64_t>(info.st_size) > server_->max_object_bytes)) {
         log_warning("association %lu from AE '%s' (%s): object %s refused "
-                    "(0x%04X): %lld bytes exceed max_object_bytes %llu",
+                    "(0x%04X): larger than max_object_bytes %llu, discarded "
+                    "as it arrived",
                     id_, calling_ae_.c_str(), peer_ip_.c_str(),
                     request.AffectedSOPInstanceUID, DCM_STATUS_TOO_LARGE,
-                    static_cast<long long>(info.st_size),
                     static_cast<unsigned long long>(server_->max_object_bytes));
         status = DCM_STATUS_TOO_LARGE;
+    } else if (crowded_) {
+        log_warning("association %lu from AE '%s' (%s): object %s refused "
+                    "(0x%04X): objects in flight passed "
+                    "max_memory_in_flight_bytes %llu; discarded as it "
+                    "arrived, the sender should retry",
+                    id_, calling_ae_.c_str(), peer_ip_.c_str(),
+                    request.AffectedSOPInstanceUID,
+                    DCM_STATUS_OUT_OF_RESOURCES,
+                    static_cast<unsigned long long>(
+                        server_->max_memory_in_flight));
+        status = DCM_STATUS_OUT_OF_RESOURCES;
     } else {
         dcm_received received;
         received.spool_path = path.c_str();
@@ -365,46 +501,483 @@ dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
     if (ftruncate(spool_fd_, 0) != 0)
         log_warning("association %lu: cannot empty the memory file: %s", id_,
                     strerror(errno));
+    release_counted();
     return sendSTOREResponse(context_id, request, status);
 }
 
 OFCondition dcm_association_scp::handleIncomingCommand(
     T_DIMSE_Message *message, const DcmPresentationContextInfo &context)
 {
+    if (message->CommandField == DIMSE_C_FIND_RQ) {
+        /* Negotiation refuses every Query/Retrieve context (only
+         * Verification and storage classes are accepted); a C-FIND sent
+         * on an accepted context anyway is answered with a refusal (PS3.7
+         * Annex C: 0122 Refused: SOP Class not supported) instead of an abort. */
+        T_DIMSE_C_FindRQ &request = message->msg.CFindRQ;
+        T_ASC_PresentationContextID context_id = context.presentationContextID;
+        DcmDataset *identifier = NULL;
+        OFCondition condition = receiveDIMSEDataset(&context_id, &identifier);
+        delete identifier;
+        if (condition.bad())
+            return condition;
+        log_warning("association %lu from AE '%s' (%s): C-FIND on "
+                    "presentation context %u refused (0x0122): this receiver "
+                    "takes C-STORE and C-ECHO only",
+                    id_, calling_ae_.c_str(), peer_ip_.c_str(),
+                    static_cast<unsigned>(context_id));
+        return sendFINDResponse(context_id, request.MessageID,
+                                request.AffectedSOPClassUID, NULL,
+                                STATUS_FIND_Refused_SOPClassNotSupported);
+    }
     if (message->CommandField != DIMSE_C_STORE_RQ)
         return DcmThreadSCP::handleIncomingCommand(message, context);
     return receive_store(message->msg.CStoreRQ, context.presentationContextID);
 }
 
 /* ------------------------------------------------------------------ */
-/* Listener                                                            */
+/* Negotiation: limits, deadline, first PDU checked                    */
 /* ------------------------------------------------------------------ */
 
-static void dcm_association_run(dcm_server *server, T_ASC_Association *assoc,
-                                unsigned long id, dcm_association_thread *self)
+/* Largest A-ASSOCIATE-RQ read. 128 presentation contexts (PS3.8 9.3.2.2:
+ * odd IDs 1-255) of a few hundred bytes each come to well under 64 KB;
+ * the rest leaves room for user identity negotiation. */
+enum { DCM_MAX_ASSOCIATE_RQ_BYTES = 1024 * 1024 };
+
+static uint16_t dcm_big16(const unsigned char *p)
 {
-    try {
-        dcm_association_scp scp(server, id);
-        OFCondition condition = scp.setSharedConfig(server->config);
-        if (condition.good()) {
-            /* From here the scp owns assoc; its destructor drops it. */
-            condition = scp.run(assoc);
-            assoc = NULL;
-        }
-        if (condition.bad())
-            log_error("association %lu: %s", id, condition.text());
-    } catch (...) {
-        mitilog_error error;
-        dcm_error_from_exception(&error, MITILOG_ERROR_IO, "association");
-        log_error("association %lu: %s", id, error.text);
-    }
-    if (assoc != NULL) {
-        ASC_dropAssociation(assoc);
-        ASC_destroyAssociation(&assoc);
-    }
-    server->active--;
-    self->finished = true;
+    return static_cast<uint16_t>((p[0] << 8) | p[1]);
 }
+
+/* Checks the item structure of an A-ASSOCIATE-RQ body (PS3.8 9.3.2: the
+ * fixed 68 bytes, then items of type, reserved byte, 16-bit length).
+ * DCMTK 3.6.7 parses it too, but loses memory on two malformed forms (a
+ * presentation context without a transfer syntax, a UID sub-item longer
+ * than its 64 bytes; docs/security.md): such a request is refused here,
+ * before DCMTK sees it. Only framing, counts and lengths are checked;
+ * DCMTK still interprets every value. */
+static bool dcm_associate_rq_valid(const unsigned char *body, size_t length,
+                                   std::string &reason)
+{
+    char text[160];
+    if (length < 68) {
+        reason = "A-ASSOCIATE-RQ shorter than its fixed fields";
+        return false;
+    }
+    size_t offset = 68;
+    while (offset < length) {
+        if (length - offset < 4) {
+            reason = "A-ASSOCIATE-RQ ends inside an item header";
+            return false;
+        }
+        unsigned type = body[offset];
+        size_t item_length = dcm_big16(body + offset + 2);
+        if (item_length > length - offset - 4) {
+            snprintf(text, sizeof text,
+                     "item 0x%02X overruns the A-ASSOCIATE-RQ", type);
+            reason = text;
+            return false;
+        }
+        const unsigned char *item = body + offset + 4;
+        /* PS3.8 9.3.2.1: the application context name is a UID (PS3.5
+         * 9.1: at most 64 bytes). */
+        if (type == 0x10 && (item_length == 0 || item_length > 64)) {
+            snprintf(text, sizeof text,
+                     "application context name of %zu bytes (1 to 64 "
+                     "allowed)",
+                     item_length);
+            reason = text;
+            return false;
+        }
+        if (type == 0x20) {
+            /* PS3.8 9.3.2.2: context ID and three reserved bytes, then
+             * exactly one abstract syntax and one or more transfer
+             * syntaxes, each a UID of at most 64 bytes. */
+            unsigned id = item_length > 0 ? item[0] : 0;
+            unsigned abstract = 0, transfer = 0;
+            size_t sub = 4;
+            if (item_length < 4) {
+                reason = "presentation context item shorter than 4 bytes";
+                return false;
+            }
+            while (sub < item_length) {
+                if (item_length - sub < 4) {
+                    snprintf(text, sizeof text,
+                             "presentation context %u ends inside a "
+                             "sub-item header",
+                             id);
+                    reason = text;
+                    return false;
+                }
+                unsigned sub_type = item[sub];
+                size_t sub_length = dcm_big16(item + sub + 2);
+                if (sub_length > item_length - sub - 4) {
+                    snprintf(text, sizeof text,
+                             "presentation context %u: sub-item 0x%02X "
+                             "overruns its item",
+                             id, sub_type);
+                    reason = text;
+                    return false;
+                }
+                if ((sub_type == 0x30 || sub_type == 0x40) &&
+                    (sub_length == 0 || sub_length > 64)) {
+                    snprintf(text, sizeof text,
+                             "presentation context %u: %s syntax of %zu "
+                             "bytes (a UID has 1 to 64)",
+                             id, sub_type == 0x30 ? "abstract" : "transfer",
+                             sub_length);
+                    reason = text;
+                    return false;
+                }
+                abstract += sub_type == 0x30;
+                transfer += sub_type == 0x40;
+                sub += 4 + sub_length;
+            }
+            if (abstract != 1 || transfer == 0) {
+                snprintf(text, sizeof text,
+                         "presentation context %u has %u abstract and %u "
+                         "transfer syntaxes (exactly one and at least one "
+                         "needed)",
+                         id, abstract, transfer);
+                reason = text;
+                return false;
+            }
+        }
+        offset += 4 + item_length;
+    }
+    return true;
+}
+
+/* Marks the calling thread's negotiation as refused: DCMTK 3.6.7 may
+ * still return success from ASC_receiveAssociation() for a connection
+ * closed before its request was read. */
+static void dcm_negotiation_refused(dcm_server *server);
+
+/* The connection DCMTK reads and writes through, around its own (plain
+ * TCP or TLS): the first PDU is read whole and, when it is an
+ * A-ASSOCIATE-RQ, checked by dcm_associate_rq_valid() before DCMTK gets
+ * any of its bytes; everything else is passed through unchanged. */
+class dcm_guarded_connection : public DcmTransportConnection
+{
+  public:
+    dcm_guarded_connection(dcm_server *server, DcmNativeSocketType socket,
+                           DcmTransportConnection *inner,
+                           const std::string &peer)
+        : DcmTransportConnection(socket), server_(server), inner_(inner),
+          peer_(peer)
+    {
+    }
+    ~dcm_guarded_connection() override { delete inner_; }
+
+    OFCondition serverSideHandshake() override
+    {
+        return inner_->serverSideHandshake();
+    }
+    OFCondition clientSideHandshake() override
+    {
+        return inner_->clientSideHandshake();
+    }
+    OFCondition renegotiate(const char *suite) override
+    {
+        return inner_->renegotiate(suite);
+    }
+    ssize_t read(void *buffer, size_t size) override;
+    ssize_t write(void *buffer, size_t size) override
+    {
+        return inner_->write(buffer, size);
+    }
+    void close() override { inner_->close(); }
+    void closeTransportConnection() override
+    {
+        inner_->closeTransportConnection();
+    }
+    unsigned long getPeerCertificateLength() override
+    {
+        return inner_->getPeerCertificateLength();
+    }
+    unsigned long getPeerCertificate(void *buffer,
+                                     unsigned long size) override
+    {
+        return inner_->getPeerCertificate(buffer, size);
+    }
+    OFBool networkDataAvailable(int timeout) override
+    {
+        if (offset_ < first_.size())
+            return OFTrue;
+        return inner_->networkDataAvailable(timeout);
+    }
+    OFBool isTransparentConnection() override
+    {
+        return inner_->isTransparentConnection();
+    }
+    OFString &dumpConnectionParameters(OFString &text) override
+    {
+        return inner_->dumpConnectionParameters(text);
+    }
+
+  private:
+    bool read_exactly(unsigned char *buffer, size_t size);
+    bool read_first_pdu();
+    bool incomplete();
+
+    dcm_server *server_;
+    DcmTransportConnection *inner_;
+    std::string peer_;
+    bool first_read_ = false;
+    std::vector<unsigned char> first_; /* the first PDU, until passed on */
+    size_t offset_ = 0;
+};
+
+/* The peer closed, or was cut at the deadline, before its first PDU was
+ * whole. */
+bool dcm_guarded_connection::incomplete()
+{
+    unsigned long suppressed = 0;
+    if (dcm_peer_line_allowed(server_, &suppressed))
+        log_info("connection from %s closed before its association request "
+                 "was complete%s",
+                 peer_.c_str(), dcm_suppressed_note(suppressed).c_str());
+    first_.clear();
+    dcm_negotiation_refused(server_);
+    return false;
+}
+
+bool dcm_guarded_connection::read_exactly(unsigned char *buffer, size_t size)
+{
+    size_t done = 0;
+    while (done < size) {
+        ssize_t got = inner_->read(buffer + done, size - done);
+        if (got < 0 && errno == EINTR)
+            continue;
+        if (got <= 0)
+            return false;
+        done += static_cast<size_t>(got);
+    }
+    return true;
+}
+
+bool dcm_guarded_connection::read_first_pdu()
+{
+    unsigned char header[6];
+    if (!read_exactly(header, sizeof header))
+        return incomplete();
+    first_.assign(header, header + sizeof header);
+    if (header[0] != 0x01) /* not an A-ASSOCIATE-RQ: DCMTK answers it */
+        return true;
+    size_t length = (static_cast<size_t>(header[2]) << 24) |
+                    (static_cast<size_t>(header[3]) << 16) |
+                    (static_cast<size_t>(header[4]) << 8) | header[5];
+    std::string reason;
+    if (length > DCM_MAX_ASSOCIATE_RQ_BYTES) {
+        reason = "A-ASSOCIATE-RQ of " + std::to_string(length) +
+                 " bytes (at most " +
+                 std::to_string(DCM_MAX_ASSOCIATE_RQ_BYTES) + " read)";
+    } else {
+        first_.resize(sizeof header + length);
+        if (!read_exactly(first_.data() + sizeof header, length))
+            return incomplete();
+        if (dcm_associate_rq_valid(first_.data() + sizeof header, length,
+                                   reason))
+            return true;
+    }
+    /* PS3.8 9.3.8: A-ABORT, source service provider (2), reason invalid
+     * PDU parameter value (6). */
+    unsigned char abort_pdu[10] = {0x07, 0, 0, 0, 0, 4, 0, 0, 2, 6};
+    (void)inner_->write(abort_pdu, sizeof abort_pdu);
+    unsigned long suppressed = 0;
+    if (dcm_peer_line_allowed(server_, &suppressed))
+        log_warning("association request from %s refused (A-ABORT): %s%s",
+                    peer_.c_str(), reason.c_str(),
+                    dcm_suppressed_note(suppressed).c_str());
+    first_.clear();
+    dcm_negotiation_refused(server_);
+    return false;
+}
+
+ssize_t dcm_guarded_connection::read(void *buffer, size_t size)
+{
+    if (!first_read_) {
+        first_read_ = true;
+        if (!read_first_pdu()) {
+            errno = ECONNRESET;
+            return -1;
+        }
+    }
+    if (offset_ < first_.size()) {
+        size_t count = std::min(size, first_.size() - offset_);
+        memcpy(buffer, first_.data() + offset_, count);
+        offset_ += count;
+        if (offset_ == first_.size()) {
+            std::vector<unsigned char>().swap(first_);
+            offset_ = 0;
+        }
+        return static_cast<ssize_t>(count);
+    }
+    return inner_->read(buffer, size);
+}
+
+/* Registers the connection DCMTK has just accepted on the calling
+ * thread, or says why it must be closed unread. */
+static bool dcm_negotiation_begin(dcm_server *server,
+                                  DcmNativeSocketType socket,
+                                  std::string &peer);
+
+/* A transport layer (plain or TLS) whose connections are counted,
+ * limited, given a deadline and wrapped in dcm_guarded_connection. DCMTK
+ * calls createConnection() right after accept(), before any byte is read
+ * or the TLS handshake starts. */
+template <class Layer> class dcm_guarded_layer : public Layer
+{
+  public:
+    template <class... Arguments>
+    explicit dcm_guarded_layer(dcm_server *server, Arguments &&...arguments)
+        : Layer(std::forward<Arguments>(arguments)...), server_(server)
+    {
+    }
+    DcmTransportConnection *createConnection(DcmNativeSocketType socket,
+                                             OFBool secure) override
+    {
+        std::string peer;
+        if (!dcm_negotiation_begin(server_, socket, peer))
+            return NULL; /* DCMTK closes the socket */
+        DcmTransportConnection *inner =
+            Layer::createConnection(socket, secure);
+        if (inner == NULL)
+            return NULL;
+        dcm_guarded_connection *guarded = new (std::nothrow)
+            dcm_guarded_connection(server_, socket, inner, peer);
+        return guarded != NULL ? static_cast<DcmTransportConnection *>(guarded)
+                               : inner;
+    }
+
+  private:
+    dcm_server *server_;
+};
+
+static bool dcm_negotiation_begin(dcm_server *server,
+                                  DcmNativeSocketType socket,
+                                  std::string &peer)
+{
+    struct sockaddr_storage address;
+    socklen_t size = sizeof address;
+    char text[INET6_ADDRSTRLEN] = "?";
+    memset(&address, 0, sizeof address);
+    if (getpeername(socket, reinterpret_cast<struct sockaddr *>(&address),
+                    &size) == 0) {
+        if (address.ss_family == AF_INET)
+            inet_ntop(AF_INET,
+                      &reinterpret_cast<struct sockaddr_in *>(&address)
+                           ->sin_addr,
+                      text, sizeof text);
+        else if (address.ss_family == AF_INET6)
+            inet_ntop(AF_INET6,
+                      &reinterpret_cast<struct sockaddr_in6 *>(&address)
+                           ->sin6_addr,
+                      text, sizeof text);
+    }
+    peer = text;
+    const char *refusal = NULL;
+    unsigned limit = 0;
+    try {
+        std::lock_guard<std::mutex> lock(server->mutex);
+        unsigned &from_peer = server->negotiating_per_address[peer];
+        if (server->stopping) {
+            refusal = "the server is stopping";
+        } else if (server->negotiations.size() >= server->max_negotiations) {
+            refusal = "max_negotiations";
+            limit = server->max_negotiations;
+        } else if (from_peer >= server->max_negotiations_per_address) {
+            refusal = "max_negotiations_per_address";
+            limit = server->max_negotiations_per_address;
+        } else {
+            int watch = fcntl(socket, F_DUPFD_CLOEXEC, 0);
+            if (watch < 0) {
+                refusal = "no file descriptor left";
+            } else {
+                dcm_negotiation &entry =
+                    server->negotiations[std::this_thread::get_id()];
+                entry.peer = peer;
+                entry.watch_fd = watch;
+                entry.deadline = std::chrono::steady_clock::now() +
+                                 std::chrono::seconds(server->acse_timeout);
+                from_peer++;
+                server->need_acceptor = true;
+                server->wake.notify_all();
+            }
+        }
+        if (refusal != NULL && from_peer == 0)
+            server->negotiating_per_address.erase(peer);
+    } catch (...) {
+        refusal = "out of memory";
+    }
+    if (refusal == NULL)
+        return true;
+    server->refused++;
+    unsigned long suppressed = 0;
+    if (!dcm_peer_line_allowed(server, &suppressed))
+        return false;
+    if (limit > 0)
+        log_warning("connection from %s closed unread: %u connections are "
+                    "negotiating already (%s)%s",
+                    peer.c_str(), limit, refusal,
+                    dcm_suppressed_note(suppressed).c_str());
+    else
+        log_warning("connection from %s closed unread: %s%s", peer.c_str(),
+                    refusal, dcm_suppressed_note(suppressed).c_str());
+    return false;
+}
+
+static void dcm_negotiation_refused(dcm_server *server)
+{
+    std::lock_guard<std::mutex> lock(server->mutex);
+    auto entry = server->negotiations.find(std::this_thread::get_id());
+    if (entry != server->negotiations.end())
+        entry->second.refused = true;
+}
+
+/* Ends the calling thread's negotiation, if it had one: true when this
+ * thread's connection had been accepted (the thread now owns it).
+ * expired: closed at its deadline or refused (both already logged). */
+static bool dcm_negotiation_end(dcm_server *server, std::string &peer,
+                                bool &expired)
+{
+    std::lock_guard<std::mutex> lock(server->mutex);
+    auto entry = server->negotiations.find(std::this_thread::get_id());
+    if (entry == server->negotiations.end())
+        return false;
+    peer = entry->second.peer;
+    expired = entry->second.expired || entry->second.refused;
+    close(entry->second.watch_fd);
+    auto count = server->negotiating_per_address.find(peer);
+    if (count != server->negotiating_per_address.end() && --count->second == 0)
+        server->negotiating_per_address.erase(count);
+    server->negotiations.erase(entry);
+    return true;
+}
+
+/* Closes (shutdown(2) through the duplicate descriptor, so that blocked
+ * reads return at once) every negotiation past its deadline, or all of
+ * them when stopping. Called with server->mutex held. */
+static void dcm_negotiation_watch(dcm_server *server, bool all)
+{
+    auto now = std::chrono::steady_clock::now();
+    for (auto &entry : server->negotiations) {
+        dcm_negotiation &negotiation = entry.second;
+        if (negotiation.expired || (!all && now < negotiation.deadline))
+            continue;
+        negotiation.expired = true;
+        shutdown(negotiation.watch_fd, SHUT_RDWR);
+        unsigned long suppressed = 0;
+        if (!all && dcm_peer_line_allowed(server, &suppressed))
+            log_warning("connection from %s closed: association request "
+                        "not complete after %u s (acse_timeout_seconds)%s",
+                        negotiation.peer.c_str(), server->acse_timeout,
+                        dcm_suppressed_note(suppressed).c_str());
+    }
+}
+
+/* ------------------------------------------------------------------ */
+/* Connection threads                                                  */
+/* ------------------------------------------------------------------ */
 
 static void dcm_reject_and_drop(T_ASC_Association *assoc,
                                 T_ASC_RejectParameters *reject)
@@ -431,6 +1004,82 @@ static void dcm_refuse_busy(dcm_server *server, T_ASC_Association *assoc,
     dcm_reject_and_drop(assoc, &reject);
 }
 
+/* Runs one negotiated association on the calling thread. */
+static void dcm_association_serve(dcm_server *server, T_ASC_Association *assoc)
+{
+    unsigned long id = ++server->next_association_id;
+    if (server->active.fetch_add(1) >= server->max_associations) {
+        server->active--;
+        dcm_refuse_busy(server, assoc, id);
+        return;
+    }
+    try {
+        dcm_association_scp scp(server, id);
+        OFCondition condition = scp.setSharedConfig(server->config);
+        if (condition.good()) {
+            /* From here the scp owns assoc; its destructor drops it. */
+            condition = scp.run(assoc);
+            assoc = NULL;
+        }
+        if (condition.bad())
+            log_error("association %lu: %s", id, condition.text());
+    } catch (...) {
+        mitilog_error error;
+        dcm_error_from_exception(&error, MITILOG_ERROR_IO, "association");
+        log_error("association %lu: %s", id, error.text);
+    }
+    if (assoc != NULL) {
+        ASC_dropAssociation(assoc);
+        ASC_destroyAssociation(&assoc);
+    }
+    server->active--;
+}
+
+/* A connection thread: waits for a connection (the only thread doing
+ * so); once DCMTK has accepted one (dcm_negotiation_begin), the
+ * supervisor starts the next waiting thread and this one reads the
+ * request (and TLS handshake) and serves the association. The listening
+ * socket is thus never held by a slow peer. */
+static void dcm_connection_run(dcm_server *server, dcm_association_thread *self)
+{
+    try {
+        while (!server->stopping) {
+            T_ASC_Association *assoc = NULL;
+            OFCondition condition = ASC_receiveAssociation(
+                server->network, &assoc, static_cast<long>(server->max_pdu),
+                NULL, NULL, server->tls ? OFTrue : OFFalse, DUL_NOBLOCK, 1);
+            std::string peer;
+            bool expired = false;
+            if (!dcm_negotiation_end(server, peer, expired)) {
+                /* No connection, or one closed unread (already logged). */
+                if (assoc != NULL)
+                    dcm_reject_and_drop(assoc, NULL);
+                if (condition.bad() && condition != DUL_NOASSOCIATIONREQUEST)
+                    log_debug("connection not accepted: %s", condition.text());
+                continue;
+            }
+            if (condition.bad() || expired) {
+                if (!expired)
+                    log_warning("association request from %s not received: "
+                                "%s",
+                                peer.c_str(), condition.text());
+                if (assoc != NULL)
+                    dcm_reject_and_drop(assoc, NULL);
+                break;
+            }
+            dcm_association_serve(server, assoc);
+            break;
+        }
+    } catch (...) {
+        mitilog_error error;
+        dcm_error_from_exception(&error, MITILOG_ERROR_IO, "connection");
+        log_error("DICOM connection thread: %s", error.text);
+    }
+    self->finished = true;
+    std::lock_guard<std::mutex> lock(server->mutex);
+    server->wake.notify_all();
+}
+
 static void dcm_reap_threads(dcm_server *server, bool all)
 {
     for (auto entry = server->threads.begin();
@@ -444,69 +1093,56 @@ static void dcm_reap_threads(dcm_server *server, bool all)
     }
 }
 
-static void dcm_accept_one(dcm_server *server, T_ASC_Association *assoc)
+static bool dcm_spawn_connection_thread(dcm_server *server)
 {
-    unsigned long id = ++server->next_association_id;
-    if (server->active >= server->max_associations) {
-        dcm_refuse_busy(server, assoc, id);
-        return;
-    }
     try {
         std::unique_ptr<dcm_association_thread> entry(
             new dcm_association_thread);
         dcm_association_thread *self = entry.get();
         server->threads.push_back(std::move(entry));
-        server->active++;
         try {
-            self->thread =
-                std::thread(dcm_association_run, server, assoc, id, self);
+            self->thread = std::thread(dcm_connection_run, server, self);
         } catch (...) {
             server->threads.pop_back();
-            server->active--;
             throw;
         }
+        return true;
     } catch (...) {
         mitilog_error error;
         dcm_error_from_exception(&error, MITILOG_ERROR_MEMORY, "thread");
-        log_error("association %lu: cannot start a thread: %s", id, error.text);
-        T_ASC_RejectParameters reject;
-        reject.result = ASC_RESULT_REJECTEDTRANSIENT;
-        reject.source = ASC_SOURCE_SERVICEPROVIDER_PRESENTATION_RELATED;
-        reject.reason = ASC_REASON_SP_PRES_LOCALLIMITEXCEEDED;
-        server->refused++;
-        dcm_reject_and_drop(assoc, &reject);
+        log_error("DICOM listener: cannot start a thread: %s", error.text);
+        return false;
     }
 }
 
-static void dcm_listen(dcm_server *server)
+/* The supervisor: keeps one thread waiting for a connection, closes
+ * negotiations past their deadline, joins finished threads. It alone
+ * touches server->threads. */
+static void dcm_supervise(dcm_server *server)
 {
+    std::unique_lock<std::mutex> lock(server->mutex);
+    server->need_acceptor = true;
     while (!server->stopping) {
+        if (server->need_acceptor) {
+            server->need_acceptor = false;
+            lock.unlock();
+            bool started = dcm_spawn_connection_thread(server);
+            lock.lock();
+            if (!started) {
+                server->need_acceptor = true;
+                server->wake.wait_for(lock, std::chrono::milliseconds(200));
+            }
+            continue;
+        }
+        dcm_negotiation_watch(server, false);
+        lock.unlock();
         dcm_reap_threads(server, false);
-        T_ASC_Association *assoc = NULL;
-        /* Waits at most 1 s for a connection so the stop flag is seen;
-         * reading the A-ASSOCIATE-RQ (and the TLS handshake) is bounded
-         * by the ACSE timeout given to ASC_initializeNetwork(). */
-        OFCondition condition = ASC_receiveAssociation(
-            server->network, &assoc, static_cast<long>(server->max_pdu), NULL,
-            NULL, server->tls ? OFTrue : OFFalse, DUL_NOBLOCK, 1);
-        if (condition == DUL_NOASSOCIATIONREQUEST) {
-            if (assoc != NULL)
-                dcm_reject_and_drop(assoc, NULL);
-            continue;
-        }
-        if (condition.bad()) {
-            const char *peer =
-                assoc != NULL && assoc->params != NULL
-                    ? assoc->params->DULparams.callingPresentationAddress
-                    : "?";
-            log_warning("association request from %s not received: %s", peer,
-                        condition.text());
-            if (assoc != NULL)
-                dcm_reject_and_drop(assoc, NULL);
-            continue;
-        }
-        dcm_accept_one(server, assoc);
+        lock.lock();
+        if (!server->need_acceptor && !server->stopping)
+            server->wake.wait_for(lock, std::chrono::milliseconds(100));
     }
+    dcm_negotiation_watch(server, true);
+    lock.unlock();
     /* Let associations in flight finish: they still get responses. */
     dcm_reap_threads(server, true);
 }
@@ -514,12 +1150,13 @@ static void dcm_listen(dcm_server *server)
 static void dcm_listen_guarded(dcm_server *server)
 {
     try {
-        dcm_listen(server);
+        dcm_supervise(server);
     } catch (...) {
         mitilog_error error;
         dcm_error_from_exception(&error, MITILOG_ERROR_IO, "listener");
         log_error("DICOM listener on port %u stopped: %s", server->port,
                   error.text);
+        server->stopping = true;
         dcm_reap_threads(server, true);
     }
 }
@@ -570,6 +1207,11 @@ mitilog_status dcm_server_create(const dcm_server_settings *settings,
         }
         server->max_associations =
             settings->max_associations > 0 ? settings->max_associations : 1;
+        if (settings->max_negotiations > 0)
+            server->max_negotiations = settings->max_negotiations;
+        if (settings->max_negotiations_per_address > 0)
+            server->max_negotiations_per_address =
+                settings->max_negotiations_per_address;
         if (settings->acse_timeout_seconds > 0)
             server->acse_timeout = settings->acse_timeout_seconds;
         uint32_t pdu =
@@ -578,6 +1220,7 @@ mitilog_status dcm_server_create(const dcm_server_settings *settings,
                           : pdu > ASC_MAXIMUMPDUSIZE ? ASC_MAXIMUMPDUSIZE
                                                      : pdu;
         server->max_object_bytes = settings->max_object_bytes;
+        server->max_memory_in_flight = settings->max_memory_in_flight_bytes;
         server->tls = certificate;
         if (certificate) {
             server->tls_certificate_file = settings->tls_certificate_file;
@@ -620,9 +1263,10 @@ static mitilog_status dcm_tls_check(mitilog_error *error, const char *what,
  * CA signed, otherwise client certificates are not asked for. */
 static mitilog_status dcm_tls_setup(dcm_server *server, mitilog_error *error)
 {
-    server->tls_layer.reset(
-        new DcmTLSTransportLayer(NET_ACCEPTOR, NULL, OFTrue));
-    DcmTLSTransportLayer &tls = *server->tls_layer;
+    DcmTLSTransportLayer *layer = new dcm_guarded_layer<DcmTLSTransportLayer>(
+        server, NET_ACCEPTOR, static_cast<const char *>(NULL), OFTrue);
+    server->layer.reset(layer);
+    DcmTLSTransportLayer &tls = *layer;
     mitilog_status status = dcm_tls_check(
         error, "TLS profile BCP 195", tls.setTLSProfile(TSP_Profile_BCP195));
     if (status == MITILOG_OK)
@@ -708,20 +1352,31 @@ mitilog_status dcm_server_start(dcm_server *server, mitilog_error *error)
                 error, MITILOG_ERROR_IO, "DICOM port %u: %s%s%s", server->port,
                 condition.text(), known ? "" : ": ", known ? "" : reason);
         }
-        mitilog_status status =
-            server->tls ? dcm_tls_setup(server, error) : MITILOG_OK;
+        mitilog_status status = MITILOG_OK;
+        if (server->tls) {
+            status = dcm_tls_setup(server, error);
+        } else {
+            server->layer.reset(
+                new dcm_guarded_layer<DcmTransportLayer>(server));
+            status = dcm_tls_check(
+                error, "transport layer",
+                ASC_setTransportLayer(server->network, server->layer.get(), 0));
+        }
         if (status != MITILOG_OK) {
             ASC_dropNetwork(&server->network);
-            server->tls_layer.reset();
+            server->layer.reset();
             return status;
         }
         server->stopping = false;
         server->listener = std::thread(dcm_listen_guarded, server);
         server->started = true;
         log_info("DICOM server '%s' listening on port %u%s "
-                 "(max_associations %u)",
+                 "(max_associations %u; negotiating at most %u, %u per "
+                 "address, %u s each)",
                  server->ae_title.c_str(), server->port,
-                 server->tls ? " with TLS" : "", server->max_associations);
+                 server->tls ? " with TLS" : "", server->max_associations,
+                 server->max_negotiations,
+                 server->max_negotiations_per_address, server->acse_timeout);
         return MITILOG_OK;
     } catch (...) {
         if (server->network != NULL)
@@ -735,7 +1390,11 @@ void dcm_server_stop(dcm_server *server)
 {
     if (server == NULL || !server->started)
         return;
-    server->stopping = true;
+    {
+        std::lock_guard<std::mutex> lock(server->mutex);
+        server->stopping = true;
+        server->wake.notify_all();
+    }
     try {
         server->listener.join(); /* joins the association threads too */
     } catch (...) {

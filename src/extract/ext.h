@@ -3,9 +3,11 @@
  *
  * Owns the interpretation of attribute values: DS/IS classification
  * (ok / missing / invalid, never guessed), the acquisition date-time with
- * its fall-backs, and the six displayed acoustic output indices. The
- * ext_record is the struct that the store writes and that rules and
- * statistics read back.
+ * its fall-backs, and the six displayed acoustic output indices (their
+ * names and value type are the exam vocabulary's, exam/exam.h). The
+ * ext_record is the struct that the store writes; the exam record built
+ * from a study's instances (ext_exam.h) fills the vocabulary's captures
+ * that the rules read.
  *
  * Ownership: ext_record_from_facts() fills a caller-supplied record whose
  * strings are heap copies owned by the record; free with ext_record_free().
@@ -17,31 +19,20 @@
 #include <stddef.h>
 
 #include "dicom/dcm.h"
+#include "exam/exam.h"
 #include "util/status.h"
 
 #ifdef __cplusplus
 extern "C" {
 #endif
 
-typedef enum ext_value_status {
-    EXT_VALUE_MISSING = 0, /* attribute absent or empty                 */
-    EXT_VALUE_OK,          /* one well-formed number                     */
-    EXT_VALUE_INVALID      /* present but not one well-formed number     */
-} ext_value_status;
-
-const char *ext_value_status_name(ext_value_status status);
-
-typedef struct ext_number {
-    ext_value_status status;
-    double value;    /* meaningful only when status == EXT_VALUE_OK */
-} ext_number;
 
 /* Decimal String (PS3.5 6.2, VR DS): leading/trailing spaces allowed,
  * at most 16 characters, [+-]digits[.digits][(E|e)[+-]digits]. Exactly one
  * value (VM 1): a backslash makes it invalid. NULL or all spaces: missing. */
-ext_number ext_parse_decimal_string(const char *raw);
+exam_number ext_parse_decimal_string(const char *raw);
 /* Integer String (VR IS): at most 12 characters, [+-]digits, VM 1. */
-ext_number ext_parse_integer_string(const char *raw);
+exam_number ext_parse_integer_string(const char *raw);
 
 /* Frame Time Vector (0018,1065), DS with one value per frame: the time
  * from the previous frame, the first value 0 by definition (PS3.3 Cine
@@ -50,22 +41,8 @@ ext_number ext_parse_integer_string(const char *raw);
  * when there are at least two values, every one a well-formed DS, none
  * negative and the sum above 0; MISSING when absent or empty; else
  * INVALID. */
-ext_number ext_frame_time_vector(const char *raw, double *sum_ms);
+exam_number ext_frame_time_vector(const char *raw, double *sum_ms);
 
-/* The displayed indices, in the order of the domain reference. */
-typedef enum ext_index {
-    EXT_INDEX_MI = 0,      /* (0018,5022) MechanicalIndex                */
-    EXT_INDEX_TIS,         /* (0018,5027) SoftTissueThermalIndex         */
-    EXT_INDEX_TIB,         /* (0018,5024) BoneThermalIndex               */
-    EXT_INDEX_TIC,         /* (0018,5026) CranialThermalIndex            */
-    EXT_INDEX_TIS_FOCUS,   /* (0018,5028) SoftTissueFocusThermalIndex    */
-    EXT_INDEX_TIS_SURFACE, /* (0018,5029) SoftTissueSurfaceThermalIndex  */
-    EXT_INDEX_COUNT
-} ext_index;
-
-/* API / column name of an index: "mi", "tis", "tib", "tic", "tis_focus",
- * "tis_surface". */
-const char *ext_index_name(ext_index index);
 
 typedef enum ext_time_source {
     EXT_TIME_NONE = 0,
@@ -128,15 +105,15 @@ typedef struct ext_record {
     ext_time_source acquired_at_source;
     char received_at[EXT_ISO_TIME_SIZE];  /* UTC, set by the caller */
 
-    ext_number number_of_frames;
-    ext_number frame_time_ms;      /* Frame Time, else the mean of Frame
+    exam_number number_of_frames;
+    exam_number frame_time_ms;      /* Frame Time, else the mean of Frame
                                     * Time Vector's values after the first */
     int frame_time_from_vector;    /* 1 when frame_time_ms came from it */
     double frame_time_vector_sum_ms; /* its exact sum, when used */
 
     int is_ultrasound;             /* modality US or an US SOP class */
-    ext_number indices[EXT_INDEX_COUNT];
-    char *index_raw[EXT_INDEX_COUNT]; /* raw text as sent, NULL if absent */
+    exam_number indices[EXAM_INDEX_COUNT];
+    char *index_raw[EXAM_INDEX_COUNT]; /* raw text as sent, NULL if absent */
 
     int text_replaced;   /* some text was not UTF-8: bad bytes became U+FFFD */
 
@@ -174,7 +151,7 @@ typedef struct ext_record {
     char *exam_type_label;
     const char *exam_type_source;
     int has_governing_index;
-    ext_index governing_index;
+    exam_index governing_index;
     const char *governing_index_source;
     int has_gestational_age;
     double gestational_age_weeks;
@@ -211,6 +188,11 @@ void ext_record_free_context(ext_record *record);
 
 /* 1 for the ultrasound storage SOP classes of the domain reference. */
 int ext_is_ultrasound_sop_class(const char *sop_class_uid);
+
+/* 1 when uid is a valid UID (PS3.5 section 9.1): digits and dots,
+ * components non-empty and without a leading zero (but "0" itself),
+ * 1 to 64 bytes. */
+int ext_uid_is_valid(const char *uid);
 
 #ifdef __cplusplus
 }

@@ -101,13 +101,13 @@ static void add_transducer(ext_record *record, const dcm_facts *facts)
 
 static void add_cine(ext_record *record, const dcm_extra *extra)
 {
-    double frames = record->number_of_frames.status == EXT_VALUE_OK
+    double frames = record->number_of_frames.status == EXAM_VALUE_OK
                         ? record->number_of_frames.value
                         : 1;
     if (record->frame_time_from_vector) {
         /* the vector's exact sum: first frame to last [PS3.3 C.7.6.5.1.2] */
         record->cine_seconds = record->frame_time_vector_sum_ms / 1000.0;
-    } else if (frames > 1 && record->frame_time_ms.status == EXT_VALUE_OK &&
+    } else if (frames > 1 && record->frame_time_ms.status == EXAM_VALUE_OK &&
                record->frame_time_ms.value > 0) {
         record->cine_seconds = frames * record->frame_time_ms.value / 1000.0;
     } else if (extra != NULL && extra->frame_duration_count > 0) {

@@ -5,37 +5,31 @@
 #include <stdlib.h>
 #include <string.h>
 
-/* [domain reference section 3: bone ossifies from roughly 10 weeks] */
-static const double ossification_weeks = 10.0;
-
-ext_index ext_governing_index(const ext_exam_type *type, int has_gestational_age,
-                              double gestational_age_weeks, const char **source)
+exam_index ext_governing_index(const ext_exam_type *type, int has_gestational_age,
+                               double gestational_age_weeks, const char **source)
 {
     if (type == NULL) {
         *source = "default";
-        return EXT_INDEX_TIS;
+        return EXAM_INDEX_TIS;
     }
-    switch (type->governing) {
-    case EXT_GOVERNING_TIB: *source = "exam_type"; return EXT_INDEX_TIB;
-    case EXT_GOVERNING_TIC: *source = "exam_type"; return EXT_INDEX_TIC;
-    case EXT_GOVERNING_BY_GESTATION:
-        if (!has_gestational_age) {
-            *source = "gestational_age_unknown";
-            return EXT_INDEX_TIB;
-        }
-        *source = "gestational_age";
-        return gestational_age_weeks < ossification_weeks ? EXT_INDEX_TIS : EXT_INDEX_TIB;
-    case EXT_GOVERNING_TIS: break;
-    }
-    *source = "exam_type";
-    return EXT_INDEX_TIS;
+    return exam_governing_index(type->governing, has_gestational_age, gestational_age_weeks,
+                                source);
 }
 
-static void take_max(ext_number *max, ext_number value)
+exam_group ext_exam_type_group(const ext_exam_type *type)
 {
-    if (value.status != EXT_VALUE_OK)
+    if (type == NULL)
+        return EXAM_GROUP_GENERAL;
+    if (type->has_group)
+        return type->group;
+    return type->obstetric ? EXAM_GROUP_OBSTETRIC : EXAM_GROUP_GENERAL;
+}
+
+static void take_max(exam_number *max, exam_number value)
+{
+    if (value.status != EXAM_VALUE_OK)
         return;
-    if (max->status != EXT_VALUE_OK || value.value > max->value)
+    if (max->status != EXAM_VALUE_OK || value.value > max->value)
         *max = value;
 }
 
@@ -133,13 +127,13 @@ mitilog_status ext_exam_build(const ext_site_rules *rules, const ext_exam_instan
         }
         if (instance->cine_seconds > 0)
             exam->cine_count++;
-        for (int x = 0; x < EXT_INDEX_COUNT; x++) {
+        for (int x = 0; x < EXAM_INDEX_COUNT; x++) {
             take_max(&exam->maxima[x], instance->indices[x]);
-            for (int m = 0; m < EXT_MODE_COUNT; m++)
-                if (instance->modes & EXT_MODE_BIT(m))
+            for (int m = 0; m < EXAM_MODE_COUNT; m++)
+                if (instance->modes & EXAM_MODE_BIT(m))
                     take_max(&exam->mode_maxima[m][x], instance->indices[x]);
         }
-        ext_capture *capture = &exam->captures[exam->capture_count];
+        exam_capture *capture = &exam->captures[exam->capture_count];
         double seconds = instance->acquired_at != NULL ? ext_iso_to_seconds(instance->acquired_at)
                                                        : -1;
         capture->has_time = seconds >= 0;
@@ -147,6 +141,7 @@ mitilog_status ext_exam_build(const ext_site_rules *rules, const ext_exam_instan
         capture->cine_seconds = instance->cine_seconds > 0 ? instance->cine_seconds : 0;
         memcpy(capture->indices, instance->indices, sizeof capture->indices);
         capture->modes = instance->modes;
+        capture->sop_instance_uid = instance->sop_instance_uid;
         exam->capture_instance[exam->capture_count++] = i;
     }
     ext_timeline_build(exam->captures, exam->capture_count, exam->gap_cap_seconds,

@@ -36,7 +36,7 @@ typedef struct ext_exam_instance {
     char *exam_type;            /* key, NULL if unclassified */
     char *exam_type_source;
     int is_capture;             /* an ultrasound image, cine or volume */
-    ext_number indices[EXT_INDEX_COUNT];
+    exam_number indices[EXAM_INDEX_COUNT];
     unsigned modes;
     double cine_seconds;
     int has_sr_gestational_age;
@@ -51,7 +51,7 @@ enum { EXT_EXAM_SOURCE_SIZE = 200 };
 typedef struct ext_exam {
     const ext_exam_type *exam_type;  /* NULL: unclassified */
     char exam_type_source[EXT_EXAM_SOURCE_SIZE];
-    ext_index governing_index;
+    exam_index governing_index;
     const char *governing_index_source;
     int has_gestational_age;
     double gestational_age_weeks;
@@ -59,11 +59,11 @@ typedef struct ext_exam {
     const char *first_acquired_at;
     const char *last_acquired_at;
     size_t instance_count, capture_count, cine_count, sr_count, other_count;
-    ext_number maxima[EXT_INDEX_COUNT];
-    ext_number mode_maxima[EXT_MODE_COUNT][EXT_INDEX_COUNT];
+    exam_number maxima[EXAM_INDEX_COUNT];
+    exam_number mode_maxima[EXAM_MODE_COUNT][EXAM_INDEX_COUNT];
     double gap_cap_seconds;
     double sr_scan_time_seconds;     /* 0: none */
-    ext_capture *captures;           /* capture_count */
+    exam_capture *captures;           /* capture_count */
     size_t *capture_instance;        /* capture -> instance index */
     ext_timeline_entry *entries;     /* summary.entry_count used */
     ext_timeline_summary summary;
@@ -71,8 +71,12 @@ typedef struct ext_exam {
 
 /* The governing index of an exam type at a gestational age; *source is
  * "exam_type", "gestational_age", "gestational_age_unknown" or "default". */
-ext_index ext_governing_index(const ext_exam_type *type, int has_gestational_age,
+exam_index ext_governing_index(const ext_exam_type *type, int has_gestational_age,
                               double gestational_age_weeks, const char **source);
+
+/* The policy group of an exam type: its group key, else obstetric for
+ * obstetric types, else general (also without an exam type). */
+exam_group ext_exam_type_group(const ext_exam_type *type);
 
 mitilog_status ext_exam_build(const ext_site_rules *rules,
                               const ext_exam_instance *instances, size_t count,

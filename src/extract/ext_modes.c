@@ -5,38 +5,6 @@
 #include <string.h>
 #include <strings.h>
 
-static const char *const mode_names[EXT_MODE_COUNT] = {
-    "2d", "m", "cw", "pw", "colour", "colour_m", "3d", "power",
-    "tissue_characterization", "spatially_related_frames"};
-
-/* PS3.3 C.8.5.6.1.1: bit value of each mode, in ext_mode order. */
-static const unsigned mode_bits[EXT_MODE_COUNT] = {
-    0x0001, 0x0002, 0x0004, 0x0008, 0x0010, 0x0020, 0x0040, 0x0100,
-    0x0200, 0x0400};
-
-const char *ext_mode_name(ext_mode mode)
-{
-    if ((int)mode < 0 || mode >= EXT_MODE_COUNT)
-        return NULL;
-    return mode_names[mode];
-}
-
-int ext_mode_from_name(const char *name)
-{
-    if (name == NULL)
-        return -1;
-    for (int i = 0; i < EXT_MODE_COUNT; i++)
-        if (strcasecmp(name, mode_names[i]) == 0)
-            return i;
-    if (strcasecmp(name, "b") == 0)
-        return EXT_MODE_2D;
-    if (strcasecmp(name, "color") == 0)
-        return EXT_MODE_COLOUR;
-    if (strcasecmp(name, "color_m") == 0)
-        return EXT_MODE_COLOUR_M;
-    return -1;
-}
-
 int ext_multi_value(const char *values, int number, char *out, size_t size)
 {
     if (size == 0)
@@ -97,13 +65,8 @@ ext_bitmap ext_modes_from_image_type(const char *image_type)
     }
     result.status = EXT_BITMAP_OK;
     result.raw = raw;
-    unsigned known = 0;
-    for (int m = 0; m < EXT_MODE_COUNT; m++) {
-        known |= mode_bits[m];
-        if (raw & mode_bits[m])
-            result.modes |= EXT_MODE_BIT(m);
-    }
-    result.unknown_bits = raw & ~known;
+    result.modes = exam_modes_from_image_type_bits(raw);
+    result.unknown_bits = raw & ~exam_image_type_defined_bits();
     return result;
 }
 
@@ -115,14 +78,14 @@ unsigned ext_modes_from_regions(const ext_region_mode_input *regions,
         int m_mode = regions[i].region_spatial_format == 0x0002;
         switch (regions[i].region_data_type) {
         case 0x0001: /* tissue */
-            modes |= EXT_MODE_BIT(m_mode ? EXT_MODE_M : EXT_MODE_2D);
+            modes |= EXAM_MODE_BIT(m_mode ? EXAM_MODE_M : EXAM_MODE_2D);
             break;
         case 0x0002: /* color flow */
-            modes |= EXT_MODE_BIT(m_mode ? EXT_MODE_COLOUR_M
-                                         : EXT_MODE_COLOUR);
+            modes |= EXAM_MODE_BIT(m_mode ? EXAM_MODE_COLOUR_M
+                                         : EXAM_MODE_COLOUR);
             break;
-        case 0x0003: modes |= EXT_MODE_BIT(EXT_MODE_PW); break;
-        case 0x0004: modes |= EXT_MODE_BIT(EXT_MODE_CW); break;
+        case 0x0003: modes |= EXAM_MODE_BIT(EXAM_MODE_PW); break;
+        case 0x0004: modes |= EXAM_MODE_BIT(EXAM_MODE_CW); break;
         default: break; /* traces, bars, physiological: no mode */
         }
     }
@@ -137,13 +100,13 @@ int ext_modes_conflict(const ext_bitmap *bitmap, unsigned region_modes,
         return 0;
     /* Modes a region cannot express: compare only what both can say.
      * Colour power is drawn in a color flow region. */
-    unsigned comparable = EXT_MODE_BIT(EXT_MODE_2D) | EXT_MODE_BIT(EXT_MODE_M) |
-                          EXT_MODE_BIT(EXT_MODE_CW) | EXT_MODE_BIT(EXT_MODE_PW) |
-                          EXT_MODE_BIT(EXT_MODE_COLOUR) |
-                          EXT_MODE_BIT(EXT_MODE_COLOUR_M);
+    unsigned comparable = EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_M) |
+                          EXAM_MODE_BIT(EXAM_MODE_CW) | EXAM_MODE_BIT(EXAM_MODE_PW) |
+                          EXAM_MODE_BIT(EXAM_MODE_COLOUR) |
+                          EXAM_MODE_BIT(EXAM_MODE_COLOUR_M);
     unsigned from_bitmap = bitmap->modes & comparable;
-    if (bitmap->modes & EXT_MODE_BIT(EXT_MODE_POWER))
-        from_bitmap |= EXT_MODE_BIT(EXT_MODE_COLOUR);
+    if (bitmap->modes & EXAM_MODE_BIT(EXAM_MODE_POWER))
+        from_bitmap |= EXAM_MODE_BIT(EXAM_MODE_COLOUR);
     return from_bitmap != (region_modes & comparable);
 }
 
@@ -152,8 +115,8 @@ unsigned ext_modes_union(const ext_bitmap *bitmap, unsigned region_modes,
 {
     unsigned from_regions = region_modes;
     if (bitmap->status == EXT_BITMAP_OK &&
-        (bitmap->modes & EXT_MODE_BIT(EXT_MODE_POWER)) &&
-        !(bitmap->modes & EXT_MODE_BIT(EXT_MODE_COLOUR)))
-        from_regions &= ~EXT_MODE_BIT(EXT_MODE_COLOUR);
+        (bitmap->modes & EXAM_MODE_BIT(EXAM_MODE_POWER)) &&
+        !(bitmap->modes & EXAM_MODE_BIT(EXAM_MODE_COLOUR)))
+        from_regions &= ~EXAM_MODE_BIT(EXAM_MODE_COLOUR);
     return bitmap->modes | from_regions | sr_modes;
 }

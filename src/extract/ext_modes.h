@@ -17,7 +17,8 @@
  *    Region Spatial Format (0018,6012) 0002 = M-mode turning tissue into M
  *    and colour flow into colour M.
  *
- * A mode set is a bit set: bit (1u << ext_mode). Pure computation.
+ * A mode set is the exam vocabulary's bit set (EXAM_MODE_BIT, exam/exam.h):
+ * these decoders translate the DICOM encodings into it. Pure computation.
  */
 #ifndef MITILOG_EXT_MODES_H
 #define MITILOG_EXT_MODES_H
@@ -25,27 +26,7 @@
 #include <stddef.h>
 #include <stdint.h>
 
-typedef enum ext_mode {
-    EXT_MODE_2D = 0,          /* B-mode / 2D imaging          bit 0001 */
-    EXT_MODE_M,               /* M-mode                       bit 0002 */
-    EXT_MODE_CW,              /* CW Doppler                   bit 0004 */
-    EXT_MODE_PW,              /* PW Doppler                   bit 0008 */
-    EXT_MODE_COLOUR,          /* colour (flow) Doppler        bit 0010 */
-    EXT_MODE_COLOUR_M,        /* colour M-mode                bit 0020 */
-    EXT_MODE_3D,              /* 3D rendering (3D/4D)         bit 0040 */
-    EXT_MODE_POWER,           /* colour power (Doppler) mode  bit 0100 */
-    EXT_MODE_TISSUE_CHARACTERIZATION, /*                      bit 0200 */
-    EXT_MODE_SPATIALLY_RELATED_FRAMES, /*                     bit 0400 */
-    EXT_MODE_COUNT
-} ext_mode;
-
-#define EXT_MODE_BIT(mode) (1u << (unsigned)(mode))
-
-/* API name: "2d", "m", "cw", "pw", "colour", "colour_m", "3d", "power",
- * "tissue_characterization", "spatially_related_frames"; NULL if bad. */
-const char *ext_mode_name(ext_mode mode);
-/* Mode of an API name (also "b" for 2d, "color" for colour); -1 if none. */
-int ext_mode_from_name(const char *name);
+#include "exam/exam.h"
 
 typedef enum ext_bitmap_status {
     EXT_BITMAP_MISSING = 0, /* no Image Type value 4                    */
@@ -55,7 +36,7 @@ typedef enum ext_bitmap_status {
 
 typedef struct ext_bitmap {
     ext_bitmap_status status;
-    unsigned modes;         /* ext_mode bits of the defined bits set */
+    unsigned modes;         /* exam_mode bits of the defined bits set */
     unsigned raw;           /* the 16-bit value as sent               */
     unsigned unknown_bits;  /* set bits PS3.3 does not define          */
 } ext_bitmap;

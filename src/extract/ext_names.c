@@ -2,23 +2,6 @@
  * database and keys in the API, so they never change once released. */
 #include "extract/ext.h"
 
-const char *ext_value_status_name(ext_value_status status)
-{
-    switch (status) {
-    case EXT_VALUE_OK: return "ok";
-    case EXT_VALUE_INVALID: return "invalid";
-    case EXT_VALUE_MISSING: return "missing";
-    }
-    return "missing";
-}
-
-const char *ext_index_name(ext_index index)
-{
-    static const char *const names[EXT_INDEX_COUNT] = {"mi",  "tis",       "tib",
-                                                       "tic", "tis_focus", "tis_surface"};
-    return (unsigned)index < EXT_INDEX_COUNT ? names[index] : "unknown";
-}
-
 const char *ext_time_source_name(ext_time_source source)
 {
     switch (source) {

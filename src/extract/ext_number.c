@@ -60,16 +60,16 @@ static int decimal_grammar_ok(const char *text, size_t length)
     return position == length;
 }
 
-ext_number ext_parse_decimal_string(const char *raw)
+exam_number ext_parse_decimal_string(const char *raw)
 {
-    ext_number number = {EXT_VALUE_MISSING, 0.0};
+    exam_number number = {EXAM_VALUE_MISSING, 0.0};
     if (raw == NULL)
         return number;
     const char *start = NULL;
     size_t length = trimmed_span(raw, &start);
     if (length == 0)
         return number;
-    number.status = EXT_VALUE_INVALID;
+    number.status = EXAM_VALUE_INVALID;
     if (strlen(raw) > DECIMAL_STRING_MAXIMUM || !decimal_grammar_ok(start, length))
         return number;
     char buffer[DECIMAL_STRING_MAXIMUM + 1];
@@ -80,21 +80,21 @@ ext_number ext_parse_decimal_string(const char *raw)
     double value = strtod(buffer, NULL);
     if (errno == ERANGE || !isfinite(value))
         return number;
-    number.status = EXT_VALUE_OK;
+    number.status = EXAM_VALUE_OK;
     number.value = value;
     return number;
 }
 
-ext_number ext_parse_integer_string(const char *raw)
+exam_number ext_parse_integer_string(const char *raw)
 {
-    ext_number number = {EXT_VALUE_MISSING, 0.0};
+    exam_number number = {EXAM_VALUE_MISSING, 0.0};
     if (raw == NULL)
         return number;
     const char *start = NULL;
     size_t length = trimmed_span(raw, &start);
     if (length == 0)
         return number;
-    number.status = EXT_VALUE_INVALID;
+    number.status = EXAM_VALUE_INVALID;
     if (strlen(raw) > INTEGER_STRING_MAXIMUM)
         return number;
     size_t position = 0;
@@ -110,21 +110,21 @@ ext_number ext_parse_integer_string(const char *raw)
     /* PS3.5: -2^31 <= n <= 2^31 - 1 */
     if (errno == ERANGE || value < INT32_MIN || value > INT32_MAX)
         return number;
-    number.status = EXT_VALUE_OK;
+    number.status = EXAM_VALUE_OK;
     number.value = (double)value;
     return number;
 }
 
-ext_number ext_frame_time_vector(const char *raw, double *sum_ms)
+exam_number ext_frame_time_vector(const char *raw, double *sum_ms)
 {
-    ext_number number = {EXT_VALUE_MISSING, 0.0};
+    exam_number number = {EXAM_VALUE_MISSING, 0.0};
     *sum_ms = 0.0;
     if (raw == NULL)
         return number;
     const char *start = NULL;
     if (trimmed_span(raw, &start) == 0)
         return number;
-    number.status = EXT_VALUE_INVALID;
+    number.status = EXAM_VALUE_INVALID;
     double sum = 0.0;
     size_t count = 0;
     const char *value = raw;
@@ -136,8 +136,8 @@ ext_number ext_frame_time_vector(const char *raw, double *sum_ms)
             return number;
         memcpy(buffer, value, length);
         buffer[length] = '\0';
-        ext_number one = ext_parse_decimal_string(buffer);
-        if (one.status != EXT_VALUE_OK || one.value < 0)
+        exam_number one = ext_parse_decimal_string(buffer);
+        if (one.status != EXAM_VALUE_OK || one.value < 0)
             return number;
         if (count > 0) /* the first value is 0 by definition, not an interval */
             sum += one.value;
@@ -148,7 +148,7 @@ ext_number ext_frame_time_vector(const char *raw, double *sum_ms)
     }
     if (count < 2 || !(sum > 0))
         return number;
-    number.status = EXT_VALUE_OK;
+    number.status = EXAM_VALUE_OK;
     number.value = sum / (double)(count - 1);
     *sum_ms = sum;
     return number;

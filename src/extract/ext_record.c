@@ -5,8 +5,8 @@
 #include "extract/ext.h"
 #include "extract/ext_text.h"
 
-/* The attribute carrying each displayed index, in ext_index order. */
-static const dcm_attribute index_attributes[EXT_INDEX_COUNT] = {
+/* The attribute carrying each displayed index, in exam_index order. */
+static const dcm_attribute index_attributes[EXAM_INDEX_COUNT] = {
     DCM_ATTRIBUTE_MECHANICAL_INDEX,
     DCM_ATTRIBUTE_SOFT_TISSUE_THERMAL_INDEX,
     DCM_ATTRIBUTE_BONE_THERMAL_INDEX,
@@ -78,6 +78,35 @@ static char *exact_duplicate(const char *raw, int *failed, int *replaced)
     return copy;
 }
 
+/* PS3.5 section 9.1 (and 6.2, VR UI): components of digits separated by
+ * single dots, no component empty or starting with 0 unless it is "0",
+ * at most 64 bytes in all. */
+int ext_uid_is_valid(const char *uid)
+{
+    size_t length = 0;
+    size_t component = 0;  /* digits in the current component */
+    int leading_zero = 0;
+    for (const char *c = uid; *c != '\0'; c++, length++) {
+        if (length >= 64)
+            return 0;
+        if (*c == '.') {
+            if (component == 0)
+                return 0;
+            component = 0;
+            leading_zero = 0;
+        } else if (*c >= '0' && *c <= '9') {
+            if (component == 1 && leading_zero)
+                return 0;
+            if (component == 0)
+                leading_zero = *c == '0';
+            component++;
+        } else {
+            return 0;
+        }
+    }
+    return length > 0 && component > 0;
+}
+
 mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
                                      mitilog_error *error)
 {
@@ -102,6 +131,32 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
         trimmed_duplicate(values[DCM_ATTRIBUTE_STUDY_INSTANCE_UID], &failed, &record->text_replaced, latin1);
     record->series_instance_uid =
         trimmed_duplicate(values[DCM_ATTRIBUTE_SERIES_INSTANCE_UID], &failed, &record->text_replaced, latin1);
+    if (!failed) {
+        /* An identifier that is not a UID is refused rather than stored:
+         * it would name files and API paths (PS3.5 section 9.1). The
+         * Study and Series UIDs are checked when present. */
+        const struct {
+            const char *value;
+            const char *name;
+        } uids[] = {
+            {record->sop_instance_uid, "SOP Instance UID (0008,0018)"},
+            {record->sop_class_uid, "SOP Class UID (0008,0016)"},
+            {record->study_instance_uid, "Study Instance UID (0020,000D)"},
+            {record->series_instance_uid, "Series Instance UID (0020,000E)"},
+        };
+        for (size_t i = 0; i < sizeof uids / sizeof uids[0]; i++) {
+            if (uids[i].value == NULL || uids[i].value[0] == '\0' ||
+                ext_uid_is_valid(uids[i].value))
+                continue;
+            mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                              "%s '%.80s%s' is not a valid UID (digits and dots, no "
+                              "leading zero in a component, at most 64 bytes)",
+                              uids[i].name, uids[i].value,
+                              strlen(uids[i].value) > 80 ? "..." : "");
+            ext_record_free(record);
+            return MITILOG_ERROR_INVALID;
+        }
+    }
     record->modality = trimmed_duplicate(values[DCM_ATTRIBUTE_MODALITY], &failed, &record->text_replaced, latin1);
     record->station_name = trimmed_duplicate(values[DCM_ATTRIBUTE_STATION_NAME], &failed, &record->text_replaced, latin1);
     record->institutional_department_name =
@@ -113,12 +168,12 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
     record->acquired_at_source = ext_acquisition_time(facts, record->acquired_at);
     record->number_of_frames = ext_parse_integer_string(values[DCM_ATTRIBUTE_NUMBER_OF_FRAMES]);
     record->frame_time_ms = ext_parse_decimal_string(values[DCM_ATTRIBUTE_FRAME_TIME]);
-    if (record->frame_time_ms.status == EXT_VALUE_MISSING) {
+    if (record->frame_time_ms.status == EXAM_VALUE_MISSING) {
         /* A cine may time its frames by Frame Time Vector instead (PS3.3
          * C.7.6.5, Frame Increment Pointer to (0018,1065)). */
-        ext_number mean = ext_frame_time_vector(values[DCM_ATTRIBUTE_FRAME_TIME_VECTOR],
+        exam_number mean = ext_frame_time_vector(values[DCM_ATTRIBUTE_FRAME_TIME_VECTOR],
                                                 &record->frame_time_vector_sum_ms);
-        if (mean.status == EXT_VALUE_OK) {
+        if (mean.status == EXAM_VALUE_OK) {
             record->frame_time_ms = mean;
             record->frame_time_from_vector = 1;
         }
@@ -126,7 +181,7 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
 
     record->is_ultrasound = ext_is_ultrasound_sop_class(record->sop_class_uid) ||
                             (record->modality != NULL && strcmp(record->modality, "US") == 0);
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         const char *raw = record->is_ultrasound ? values[index_attributes[i]] : NULL;
         record->indices[i] = ext_parse_decimal_string(raw);
         record->index_raw[i] = exact_duplicate(raw, &failed, &record->text_replaced);
@@ -158,7 +213,7 @@ void ext_record_free(ext_record *record)
         free(*strings[i]);
         *strings[i] = NULL;
     }
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         free(record->index_raw[i]);
         record->index_raw[i] = NULL;
     }

@@ -114,7 +114,6 @@ void ext_site_rules_free(ext_site_rules *rules)
         free(type->matches);
         free(type->key);
         free(type->label);
-        free(type->group);
     }
     free(rules->exam_types);
     ext_classify_cache_free(rules->classify_cache);
@@ -215,7 +214,7 @@ mitilog_status ext_site_add_sr_code(ext_site_rules *rules, const char *scheme_co
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "'%.100s' is not SCHEME:CODE", scheme_code);
     int is_mode = strncasecmp(target, "mode:", 5) == 0;
-    int value = is_mode ? ext_mode_from_name(target + 5) : ext_quantity_from_name(target);
+    int value = is_mode ? exam_mode_from_name(target + 5) : ext_quantity_from_name(target);
     if (value < 0)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "'%.60s' is not mi, tis, tib, tic, scan_time, "

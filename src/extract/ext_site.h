@@ -17,6 +17,7 @@
 #include <stddef.h>
 #include <stdint.h>
 
+#include "exam/exam.h"
 #include "util/status.h"
 
 /* The text fields an exam type's regexes may look at. */
@@ -36,13 +37,6 @@ typedef enum ext_field {
 const char *ext_field_name(ext_field field);
 int ext_field_from_name(const char *name); /* -1 if unknown */
 
-typedef enum ext_governing {
-    EXT_GOVERNING_TIS = 0,
-    EXT_GOVERNING_TIB,
-    EXT_GOVERNING_TIC,
-    EXT_GOVERNING_BY_GESTATION  /* TIS below 10 weeks, else TIB */
-} ext_governing;
-
 typedef struct ext_match {
     ext_field field;
     char *pattern;
@@ -52,14 +46,13 @@ typedef struct ext_match {
 typedef struct ext_exam_type {
     char *key;                  /* section name: [exam_type KEY] */
     char *label;
-    ext_governing governing;
+    exam_governing governing;
     int obstetric;
     int trimester;              /* 0 unknown, 1..3 */
     double nominal_gestational_age_weeks; /* 0: none configured */
-    char *group;                /* policy group ("obstetric", "neonatal",
-                                 * "transcranial", "ophthalmic", "contrast",
-                                 * "general"); NULL: not set (obstetric
-                                 * types count as obstetric, others general) */
+    int has_group;              /* 0: not set (obstetric types count as
+                                 * obstetric, others general) */
+    exam_group group;           /* the site's group key, when has_group */
     ext_match *matches;         /* tried in order */
     size_t match_count;
 } ext_exam_type;
@@ -93,7 +86,7 @@ typedef struct ext_sr_code {
     char *scheme;               /* Coding Scheme Designator */
     char *code;                 /* Code Value */
     int is_mode;                /* 0: quantity (NUM), 1: mode (CONTAINER) */
-    int target;                 /* ext_quantity or ext_mode */
+    int target;                 /* ext_quantity or exam_mode */
 } ext_sr_code;
 
 /* Where the preset is read from, tried in order. */

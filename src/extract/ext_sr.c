@@ -96,7 +96,7 @@ static mitilog_status add_value(ext_sr_result *result, const dcm_sr_item *item,
     if (value->position == NULL || value->concept == NULL)
         return MITILOG_ERROR_MEMORY;
     snprintf(value->concept, length, "%s:%s", item->concept_scheme, item->concept_code);
-    if (value->number.status == EXT_VALUE_OK)
+    if (value->number.status == EXAM_VALUE_OK)
         value->normalised_ok = normalise(quantity, value->number.value, value->unit,
                                          &value->normalised);
     if (!value->normalised_ok)
@@ -139,7 +139,7 @@ mitilog_status ext_sr_map(const ext_site_rules *rules, const dcm_sr_item *items,
         if (code != NULL && code->is_mode) {
             if (strcmp(type, "CONTAINER") == 0) {
                 mode_at[item->depth] = code->target;
-                result->modes |= EXT_MODE_BIT(code->target);
+                result->modes |= EXAM_MODE_BIT(code->target);
             } else {
                 result->ignored_count++;
             }

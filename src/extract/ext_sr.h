@@ -27,7 +27,7 @@
 
 typedef struct ext_sr_value {
     ext_quantity quantity;
-    ext_number number;          /* the NUM's DS text classified */
+    exam_number number;          /* the NUM's DS text classified */
     char *raw;                  /* numeric value as sent */
     char *unit;                 /* UCUM code, NULL when none was sent */
     int normalised_ok;          /* unit understood */
@@ -35,7 +35,7 @@ typedef struct ext_sr_value {
     char *position;             /* "1.2.3" */
     char *concept;              /* "SCHEME:CODE" */
     char *meaning;
-    int mode;                   /* ext_mode of the enclosing container, -1 */
+    int mode;                   /* exam_mode of the enclosing container, -1 */
 } ext_sr_value;
 
 typedef struct ext_sr_result {

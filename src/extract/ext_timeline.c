@@ -7,7 +7,7 @@
 
 /* Insertion sort of entry indices by time: studies have tens of captures,
  * and the sort must be stable so equal times keep arrival order. */
-static void sort_by_time(const ext_capture *captures, ext_timeline_entry *entries, size_t count)
+static void sort_by_time(const exam_capture *captures, ext_timeline_entry *entries, size_t count)
 {
     for (size_t i = 1; i < count; i++) {
         ext_timeline_entry moving = entries[i];
@@ -21,7 +21,7 @@ static void sort_by_time(const ext_capture *captures, ext_timeline_entry *entrie
     }
 }
 
-void ext_timeline_build(const ext_capture *captures, size_t count, double gap_cap_seconds,
+void ext_timeline_build(const exam_capture *captures, size_t count, double gap_cap_seconds,
                         double sr_scan_time_seconds, ext_timeline_entry *entries,
                         ext_timeline_summary *summary)
 {
@@ -41,7 +41,7 @@ void ext_timeline_build(const ext_capture *captures, size_t count, double gap_ca
     sort_by_time(captures, entries, used);
     double total = 0;
     for (size_t k = 0; k < used; k++) {
-        const ext_capture *capture = &captures[entries[k].capture];
+        const exam_capture *capture = &captures[entries[k].capture];
         double first = captures[entries[0].capture].time_seconds;
         entries[k].start_seconds = capture->time_seconds - first;
         double interval = 0;
@@ -73,26 +73,26 @@ void ext_timeline_build(const ext_capture *captures, size_t count, double gap_ca
                                 captures[entries[0].capture].time_seconds;
 }
 
-double ext_timeline_time_at_or_above(const ext_capture *captures,
+double ext_timeline_time_at_or_above(const exam_capture *captures,
                                      const ext_timeline_entry *entries, size_t entry_count,
-                                     ext_index index, double threshold)
+                                     exam_index index, double threshold)
 {
     double seconds = 0;
     for (size_t k = 0; k < entry_count; k++) {
-        const ext_number *value = &captures[entries[k].capture].indices[index];
-        if (value->status == EXT_VALUE_OK && value->value >= threshold)
+        const exam_number *value = &captures[entries[k].capture].indices[index];
+        if (value->status == EXAM_VALUE_OK && value->value >= threshold)
             seconds += entries[k].attributed_seconds;
     }
     return seconds;
 }
 
-double ext_timeline_time_unreported(const ext_capture *captures,
+double ext_timeline_time_unreported(const exam_capture *captures,
                                     const ext_timeline_entry *entries, size_t entry_count,
-                                    ext_index index)
+                                    exam_index index)
 {
     double seconds = 0;
     for (size_t k = 0; k < entry_count; k++) {
-        if (captures[entries[k].capture].indices[index].status != EXT_VALUE_OK)
+        if (captures[entries[k].capture].indices[index].status != EXAM_VALUE_OK)
             seconds += entries[k].attributed_seconds;
     }
     return seconds;

@@ -26,15 +26,6 @@ extern "C" {
 
 enum { EXT_TIMELINE_DEFAULT_GAP_CAP_SECONDS = 300 };
 
-/* One capture of a study, as the timeline needs it. */
-typedef struct ext_capture {
-    double time_seconds;     /* acquisition time on any fixed scale */
-    int has_time;            /* 0: no usable acquisition time */
-    double cine_seconds;     /* frames x frame time / 1000; 0 if single */
-    ext_number indices[EXT_INDEX_COUNT];
-    unsigned modes;          /* mode bits, carried through for rules */
-} ext_capture;
-
 /* What the timeline attributes to one capture. */
 typedef struct ext_timeline_entry {
     size_t capture;          /* index into the input array */
@@ -58,22 +49,22 @@ typedef struct ext_timeline_summary {
 /* Fills entries[0..summary->entry_count) in time order (stable for equal
  * times). entries must hold count elements. gap_cap_seconds <= 0 means
  * the default. sr_scan_time_seconds <= 0 means no bound. */
-void ext_timeline_build(const ext_capture *captures, size_t count,
+void ext_timeline_build(const exam_capture *captures, size_t count,
                         double gap_cap_seconds, double sr_scan_time_seconds,
                         ext_timeline_entry *entries,
                         ext_timeline_summary *summary);
 
 /* Seconds of the timeline spent with the given index at or above
  * threshold (only captures whose index is ok count). */
-double ext_timeline_time_at_or_above(const ext_capture *captures,
+double ext_timeline_time_at_or_above(const exam_capture *captures,
                                      const ext_timeline_entry *entries,
-                                     size_t entry_count, ext_index index,
+                                     size_t entry_count, exam_index index,
                                      double threshold);
 
 /* Seconds of the timeline whose capture does not report the index. */
-double ext_timeline_time_unreported(const ext_capture *captures,
+double ext_timeline_time_unreported(const exam_capture *captures,
                                     const ext_timeline_entry *entries,
-                                    size_t entry_count, ext_index index);
+                                    size_t entry_count, exam_index index);
 
 /* Seconds since 0001-01-01T00:00:00 of an ISO 8601 local time as written
  * by ext_iso_from_* (offset, when present, applied to give UTC-based

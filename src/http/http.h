@@ -4,7 +4,9 @@
  *
  * Owns the libmicrohttpd daemon and its threads. Reads the database only
  * through store.h. Only GET (and HEAD) is served; unknown paths answer 404
- * and bad parameters 400, both with a JSON error object.
+ * and bad parameters 400, both with a JSON error object. Each request
+ * must arrive whole within request_timeout_seconds (http_guard.c);
+ * connections are limited in total and per client address.
  *
  * Ownership: http_server_start() gives a server freed by http_server_stop().
  * The store must outlive the server.
@@ -26,7 +28,16 @@ typedef struct http_settings {
     const char *tls_certificate_file; /* PEM; NULL or "" = plain HTTP   */
     const char *tls_private_key_file; /* PEM                             */
     const char *password_file; /* NULL or "": no login (see http_auth.h) */
+    /* Slow and greedy clients; 0 takes the default in brackets. */
+    unsigned max_connections;             /* all clients together [256]     */
+    unsigned max_connections_per_address; /* one client address [32]; see
+                                             HTTP_SETTINGS_UNLIMITED        */
+    unsigned request_timeout_seconds;     /* to send a whole request [10]   */
 } http_settings;
+
+/* max_connections_per_address value meaning "no per-address limit" (a
+ * reverse proxy on the same host connects from one address). */
+enum { HTTP_SETTINGS_UNLIMITED = 0xFFFFFFFFu };
 
 typedef struct http_server http_server;
 

@@ -5,6 +5,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/random.h>
 
 typedef struct http_user {
     char *name;
@@ -14,6 +15,10 @@ typedef struct http_user {
 struct http_auth {
     http_user *users;
     size_t count;
+    /* A hash of a random password with the first user's algorithm and
+     * cost: checked for unknown user names, so that their replies take as
+     * long as a wrong password of a known user. */
+    char *dummy_hash;
 };
 
 void http_auth_free(http_auth *auth)
@@ -25,7 +30,41 @@ void http_auth_free(http_auth *auth)
         free(auth->users[i].hash);
     }
     free(auth->users);
+    free(auth->dummy_hash);
     free(auth);
+}
+
+/* Makes auth->dummy_hash from 32 random bytes (as hex) hashed with the
+ * first user's hash as setting (same algorithm, cost and salt length). */
+static mitilog_status http_auth_make_dummy(http_auth *auth, const char *path,
+                                           mitilog_error *error)
+{
+    unsigned char random[32];
+    char password[2 * sizeof random + 1];
+    if (getrandom(random, sizeof random, 0) != (ssize_t)sizeof random)
+        return mitilog_error_set(error, MITILOG_ERROR_IO, "cannot read random bytes: %s",
+                                 strerror(errno));
+    for (size_t i = 0; i < sizeof random; i++)
+        snprintf(password + 2 * i, 3, "%02x", random[i]);
+    struct crypt_data *data = calloc(1, sizeof *data);
+    if (data == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    const char *hash = crypt_r(password, auth->users[0].hash, data);
+    mitilog_status status = MITILOG_OK;
+    if (hash == NULL || hash[0] == '*')
+        status = mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                   "%s: the hash of user %s is not one crypt(3) knows "
+                                   "(make it with mitilog passwd)",
+                                   path, auth->users[0].name);
+    else if ((auth->dummy_hash = strdup(hash)) == NULL)
+        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    free(data);
+    return status;
+}
+
+size_t http_auth_user_count(const http_auth *auth)
+{
+    return auth != NULL ? auth->count : 0;
 }
 
 /* Adds "name:hash" (line without its newline) to the table. */
@@ -72,6 +111,8 @@ mitilog_status http_auth_load(const char *path, http_auth **out, mitilog_error *
     fclose(file);
     if (status == MITILOG_OK && auth->count == 0)
         status = mitilog_error_set(error, MITILOG_ERROR_INVALID, "%s: no users", path);
+    if (status == MITILOG_OK)
+        status = http_auth_make_dummy(auth, path, error);
     if (status != MITILOG_OK) {
         http_auth_free(auth);
         return status;
@@ -96,19 +137,26 @@ int http_auth_check(const http_auth *auth, const char *user, const char *passwor
 {
     if (auth == NULL || user == NULL || password == NULL)
         return 0;
+    /* An unknown name is checked against the dummy hash: the same work as
+     * a wrong password, so that timing does not tell which names exist. */
+    const char *expected = auth->dummy_hash;
+    int known = 0;
     for (size_t i = 0; i < auth->count; i++) {
-        if (strcmp(auth->users[i].name, user) != 0)
-            continue;
-        struct crypt_data *data = calloc(1, sizeof *data); /* ~32 KiB: not on the stack */
-        if (data == NULL)
-            return 0;
-        const char *computed = crypt_r(password, auth->users[i].hash, data);
-        int match = computed != NULL && computed[0] != '*' &&
-                    same_text(computed, auth->users[i].hash);
-        free(data);
-        return match;
+        if (strcmp(auth->users[i].name, user) == 0) {
+            expected = auth->users[i].hash;
+            known = 1;
+            break;
+        }
     }
-    return 0;
+    struct crypt_data *data = calloc(1, sizeof *data); /* ~32 KiB: not on the stack */
+    if (data == NULL || expected == NULL) {
+        free(data);
+        return 0;
+    }
+    const char *computed = crypt_r(password, expected, data);
+    int match = computed != NULL && computed[0] != '*' && same_text(computed, expected);
+    free(data);
+    return match && known;
 }
 
 mitilog_status http_auth_hash(const char *password, char *out, size_t size, mitilog_error *error)

@@ -14,6 +14,8 @@
 #ifndef MITILOG_HTTP_AUTH_H
 #define MITILOG_HTTP_AUTH_H
 
+#include <stddef.h>
+
 #include "util/status.h"
 
 typedef struct http_auth http_auth;
@@ -21,8 +23,13 @@ typedef struct http_auth http_auth;
 mitilog_status http_auth_load(const char *path, http_auth **out, mitilog_error *error);
 void http_auth_free(http_auth *auth);
 
-/* 1 when user and password match a line of the file, 0 otherwise. */
+/* 1 when user and password match a line of the file, 0 otherwise. An
+ * unknown user costs the same hash computation as a known one (against a
+ * hash of a random password made at load with the first user's setting).
+ * Throttling of failures is http_throttle.h's job. */
 int http_auth_check(const http_auth *auth, const char *user, const char *password);
+/* Users in the file. */
+size_t http_auth_user_count(const http_auth *auth);
 
 /* A new crypt(3) hash of password with a fresh random salt (yescrypt);
  * out must hold 256 bytes. */

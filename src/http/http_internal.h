@@ -3,7 +3,10 @@
  *
  * http_server.c  the daemon, dispatch by method and path, common headers,
  *                JSON and error responses;
- * http_routes.c  the JSON API (/healthz, /api/v1/...): parameter checks;
+ * http_parameters.c  the one checker of query parameters;
+ * http_routes*.c  the JSON API (/healthz, /api/v1/...);
+ * http_guard.c   connection deadlines (slow clients);
+ * http_throttle.c  login failures per address and per user;
  * http_static.c  the dashboard's files under web_root.
  */
 #ifndef MITILOG_HTTP_INTERNAL_H
@@ -15,6 +18,28 @@
 
 #include "http/http.h"
 #include "http/http_auth.h"
+#include "http/http_throttle.h"
+
+/* http_guard.c: the deadline for receiving each request (see there). */
+typedef struct http_guard http_guard;
+mitilog_status http_guard_start(unsigned deadline_seconds, http_guard **out,
+                                mitilog_error *error);
+void http_guard_stop(http_guard *guard);
+/* MHD_OPTION_NOTIFY_CONNECTION callback; context is the guard. */
+void http_guard_notify(void *context, struct MHD_Connection *connection, void **socket_context,
+                       enum MHD_ConnectionNotificationCode code);
+/* Notes the length of the request target (URI log callback). */
+void http_guard_target(http_guard *guard, struct MHD_Connection *connection, size_t length);
+/* Closes the connection without a reply (its socket is shut down; MHD
+ * then drops it), logging reason. */
+void http_guard_close(http_guard *guard, struct MHD_Connection *connection, const char *reason);
+/* The request has arrived whole: stops its clock; gives the target length. */
+size_t http_guard_received(http_guard *guard, struct MHD_Connection *connection);
+/* The reply is done: the next request on this connection starts now. */
+void http_guard_completed(http_guard *guard, struct MHD_Connection *connection);
+/* The printable address of the connection's peer ("an unknown address"
+ * when MHD does not say); out holds at least INET6_ADDRSTRLEN bytes. */
+void http_client_address(struct MHD_Connection *connection, char *out, size_t size);
 
 struct http_server {
     struct MHD_Daemon *daemon;
@@ -25,8 +50,10 @@ struct http_server {
     pthread_mutex_t json_lock;
     unsigned port;               /* the bound port                       */
     http_auth *auth;             /* NULL: no login required              */
+    http_throttle *throttle;     /* failed logins; with auth only        */
     char *tls_certificate;       /* PEM text kept for MHD, NULL: HTTP    */
     char *tls_private_key;
+    http_guard *guard;           /* request deadlines                    */
 };
 
 /* A response to queue: status code and the response (owned). */
@@ -38,10 +65,63 @@ typedef struct http_reply {
 /* http_server.c */
 /* JSON body (malloc'ed, taken over) with the API headers. */
 http_reply http_json_reply(unsigned status, char *json);
+/* The one mapping of a result to a reply: MITILOG_OK -> 200 with body
+ * (taken over; content_type NULL: JSON); MITILOG_ERROR_INVALID -> 400,
+ * MITILOG_ERROR_NOT_FOUND -> 404, MITILOG_ERROR_DATABASE -> 503 (the
+ * database is busy or unavailable: try again), anything else -> 500; the
+ * error replies are {"error": error->text}. */
+http_reply http_status_reply(http_server *server, mitilog_status status, char *body,
+                             const char *content_type, const mitilog_error *error);
 /* {"error": message} built by SQLite (valid JSON for any message). */
 http_reply http_error_reply(http_server *server, unsigned status,
                             const char *format, ...)
     __attribute__((format(printf, 3, 4)));
+
+/* http_parameters.c: the checker of query parameters. Years outside
+ * [HTTP_YEAR_MINIMUM, HTTP_YEAR_MAXIMUM] are refused, so that every period
+ * computed from a date (weeks, baselines) stays within four-digit years. */
+enum {
+    HTTP_YEAR_MINIMUM = 1900,
+    HTTP_YEAR_MAXIMUM = 9998,
+    HTTP_INSTANT_INPUT_MAX = 64,
+    HTTP_INSTANT_SIZE = 32 /* "YYYY-MM-DDThh:mm:ss.sssZ" */
+};
+
+typedef enum http_parameter_kind {
+    HTTP_PARAMETER_DATE,    /* YYYY-MM-DD that exists; number = day number   */
+    HTTP_PARAMETER_INSTANT, /* ISO 8601 date or date-time; instant = UTC text */
+    HTTP_PARAMETER_WEEK,    /* YYYY-Www that exists; iso_year, iso_week      */
+    HTTP_PARAMETER_INTEGER, /* decimal in [minimum, maximum]; number         */
+    HTTP_PARAMETER_UID,     /* digits and dots, 1 to 64 (PS3.5 9.1)          */
+    HTTP_PARAMETER_TEXT,    /* 1 to 128 bytes, no control characters        */
+    HTTP_PARAMETER_CHOICE   /* one of choices, "a|b|c"                       */
+} http_parameter_kind;
+
+typedef struct http_parameter_rule {
+    const char *name;
+    http_parameter_kind kind;
+    long minimum, maximum; /* INTEGER only */
+    const char *choices;   /* CHOICE only   */
+} http_parameter_rule;
+
+typedef struct http_parameter_value {
+    const char *text; /* as sent, borrowed from MHD; NULL: absent */
+    long number;      /* INTEGER: the value; DATE: days since 1970-01-01 */
+    int iso_year, iso_week;
+    char instant[HTTP_INSTANT_SIZE]; /* INSTANT: "YYYY-MM-DDThh:mm:ss.sssZ", UTC */
+} http_parameter_value;
+
+/* Reads rules[i].name into values[i] for each rule; 1 when all present
+ * ones are good, else 0 with a 400 reply naming the first bad one. */
+int http_parameters_read(http_server *server, struct MHD_Connection *connection,
+                         const http_parameter_rule *rules, size_t count,
+                         http_parameter_value *values, http_reply *reply);
+/* 1 unless both dates are present and from is after to (then 0, 400). */
+int http_parameters_period(http_server *server, const http_parameter_value *from,
+                           const http_parameter_value *to, http_reply *reply);
+/* The parsers behind the rules, for tests: 1 if good. */
+int http_parse_date(const char *text, long *day);
+int http_parse_instant(const char *text, char out[HTTP_INSTANT_SIZE]);
 
 /* http_routes.c: handles /healthz and /api/...; 0 if url is neither. */
 int http_route_api(http_server *server, struct MHD_Connection *connection,

@@ -14,6 +14,7 @@
 #include <string.h>
 #include <sys/socket.h>
 #include <sys/stat.h>
+#include <time.h>
 #include <unistd.h>
 
 #include "store/sql_files.h"
@@ -21,17 +22,44 @@
 
 enum {
     HTTP_THREAD_POOL_SIZE = 4,
-    HTTP_CONNECTION_LIMIT = 64,
-    HTTP_CONNECTION_TIMEOUT_S = 30,
-    HTTP_ERROR_MESSAGE_MAX = 300
+    HTTP_DEFAULT_CONNECTIONS = 256,
+    HTTP_DEFAULT_CONNECTIONS_PER_ADDRESS = 32,
+    HTTP_DEFAULT_REQUEST_TIMEOUT_S = 10,
+    HTTP_IDLE_TIMEOUT_S = 30,
+    HTTP_ERROR_MESSAGE_MAX = 300,
+    /* Request target (path and query) and header fields this server
+     * reads; longer ones answer 414 and 431 (RFC 9110 4.1 recommends
+     * supporting targets of at least 8000 octets). */
+    HTTP_TARGET_MAX = 8192,
+    HTTP_HEADERS_MAX = 16384,
+    HTTP_PARAMETERS_MAX = 6000 /* see http_target_seen() */
 };
+
+/* Memory of one connection for its request head and libmicrohttpd's
+ * records of each parameter and header (about 64 bytes each): large
+ * enough that a target of HTTP_TARGET_MAX bytes, split into as many
+ * parameters as it can hold, still reaches the access handler (which then
+ * answers), instead of libmicrohttpd running out of memory half-way. The
+ * pages are mapped on demand: an ordinary request touches a few. */
+static const size_t http_connection_memory = 1024 * 1024;
+
+/* GnuTLS priorities for HTTPS: TLS 1.3 and 1.2 only, key exchange by
+ * ephemeral elliptic-curve Diffie-Hellman (forward secrecy), AEAD ciphers
+ * only (AES-GCM, ChaCha20-Poly1305): the recommendations of BCP 195
+ * (RFC 9325 4.1 and 4.2), as on the DICOM side. */
+static const char http_tls_priorities[] =
+    "NORMAL:-VERS-ALL:+VERS-TLS1.3:+VERS-TLS1.2:-KX-ALL:+ECDHE-RSA:+ECDHE-ECDSA:"
+    "-CIPHER-ALL:+AES-256-GCM:+AES-128-GCM:+CHACHA20-POLY1305:-MAC-ALL:+AEAD:%SERVER_PRECEDENCE";
 
 /* The last resort when SQLite cannot build an error body: a constant. */
 static const char http_fallback_error[] = "{\"error\":\"internal error\"}";
 
-/* Headers of every response: no MIME sniffing, no framing, own origin. */
-static void http_add_common_headers(struct MHD_Response *response)
+/* Headers of every response: no MIME sniffing, no framing, own origin;
+ * over HTTPS, HTTPS only for a year (RFC 6797 6.1). */
+static void http_add_common_headers(const http_server *server, struct MHD_Response *response)
 {
+    if (server->tls_certificate != NULL)
+        MHD_add_response_header(response, "Strict-Transport-Security", "max-age=31536000");
     MHD_add_response_header(response, "Referrer-Policy", "no-referrer");
     MHD_add_response_header(response, "X-Content-Type-Options", "nosniff");
     MHD_add_response_header(response, "X-Frame-Options", "DENY");
@@ -99,30 +127,65 @@ http_reply http_error_reply(http_server *server, unsigned status,
     return http_json_reply(status, json);
 }
 
+http_reply http_status_reply(http_server *server, mitilog_status status, char *body,
+                             const char *content_type, const mitilog_error *error)
+{
+    if (status == MITILOG_OK) {
+        http_reply reply = http_json_reply(MHD_HTTP_OK, body);
+        if (content_type != NULL && reply.status == MHD_HTTP_OK && reply.response != NULL) {
+            MHD_del_response_header(reply.response, "Content-Type",
+                                    "application/json; charset=utf-8");
+            MHD_add_response_header(reply.response, "Content-Type", content_type);
+        }
+        return reply;
+    }
+    free(body);
+    unsigned code;
+    switch (status) {
+    case MITILOG_ERROR_INVALID: code = MHD_HTTP_BAD_REQUEST; break;
+    case MITILOG_ERROR_NOT_FOUND: code = MHD_HTTP_NOT_FOUND; break;
+    case MITILOG_ERROR_DATABASE: code = MHD_HTTP_SERVICE_UNAVAILABLE; break;
+    default: code = MHD_HTTP_INTERNAL_SERVER_ERROR; break;
+    }
+    return http_error_reply(server, code, "%s",
+                            error != NULL && error->text[0] != '\0' ? error->text
+                                                                    : mitilog_status_name(status));
+}
+
 /* Queues reply on connection with the common headers; frees it. */
-static enum MHD_Result http_queue(struct MHD_Connection *connection,
+static enum MHD_Result http_queue(const http_server *server, struct MHD_Connection *connection,
                                   http_reply reply)
 {
     if (reply.response == NULL)
         return MHD_NO; /* out of memory: MHD closes the connection */
-    http_add_common_headers(reply.response);
+    http_add_common_headers(server, reply.response);
     enum MHD_Result result =
         MHD_queue_response(connection, reply.status, reply.response);
     MHD_destroy_response(reply.response);
     return result;
 }
 
-/* 1 when the request carries a user and password of the password file. */
-static int http_login_accepted(http_server *server, struct MHD_Connection *connection)
+/* Copies text for a log line: at most 64 bytes of it, quotes, backslashes,
+ * control characters and bytes outside ASCII written as \xNN, so that a
+ * user name cannot forge a line. */
+static void http_escape_for_log(const char *text, char *out, size_t size)
 {
-    char *password = NULL;
-    char *user = MHD_basic_auth_get_username_password(connection, &password);
-    int accepted = http_auth_check(server->auth, user, password);
-    if (user != NULL)
-        MHD_free(user);
-    if (password != NULL)
-        MHD_free(password);
-    return accepted;
+    size_t used = 0;
+    for (size_t i = 0; text[i] != '\0' && i < 64 && used + 5 < size; i++) {
+        unsigned char byte = (unsigned char)text[i];
+        if (byte < 0x20 || byte >= 0x7f || byte == '"' || byte == '\\')
+            used += (size_t)snprintf(out + used, size - used, "\\x%02x", byte);
+        else
+            out[used++] = (char)byte;
+    }
+    out[used] = '\0';
+}
+
+static double http_monotonic_seconds(void)
+{
+    struct timespec now;
+    clock_gettime(CLOCK_MONOTONIC, &now);
+    return (double)now.tv_sec + (double)now.tv_nsec / 1e9;
 }
 
 /* 401 with a Basic challenge and a JSON body. */
@@ -133,11 +196,72 @@ static enum MHD_Result http_queue_login_request(http_server *server,
                                         "a login is required");
     if (reply.response == NULL)
         return MHD_NO;
-    http_add_common_headers(reply.response);
+    http_add_common_headers(server, reply.response);
     enum MHD_Result result =
         MHD_queue_basic_auth_fail_response(connection, "mitilog", reply.response);
     MHD_destroy_response(reply.response);
     return result;
+}
+
+/* Checks the login of a request: 1 when accepted; else 0 with the reply
+ * queued in *result (401 with a challenge, or 429 while this address or
+ * user must wait after repeated failures: http_throttle.h). Every failure
+ * is logged with the address and the escaped user name, never the
+ * password. */
+static int http_login_accepted(http_server *server, struct MHD_Connection *connection,
+                               enum MHD_Result *result)
+{
+    char *password = NULL;
+    char *user = MHD_basic_auth_get_username_password(connection, &password);
+    char address[INET6_ADDRSTRLEN + 32];
+    http_client_address(connection, address, sizeof address);
+    char shown[64 * 4 + 1];
+    http_escape_for_log(user != NULL ? user : "", shown, sizeof shown);
+    double now = http_monotonic_seconds();
+    unsigned wait = http_throttle_wait(server->throttle, address, user, now);
+    int accepted = 0;
+    if (user == NULL || password == NULL) {
+        *result = http_queue_login_request(server, connection);
+    } else if (wait > 0) {
+        log_warning("http: login refused for user \"%s\" from %s: too many failed logins, "
+                    "next try in %u s",
+                    shown, address, wait);
+        http_reply reply = http_error_reply(server, MHD_HTTP_TOO_MANY_REQUESTS,
+                                            "too many failed logins from this address or for "
+                                            "this user: try again in %u seconds",
+                                            wait);
+        char seconds[16];
+        snprintf(seconds, sizeof seconds, "%u", wait);
+        if (reply.response != NULL)
+            MHD_add_response_header(reply.response, "Retry-After", seconds); /* RFC 6585 4 */
+        *result = http_queue(server, connection, reply);
+    } else if (http_auth_check(server->auth, user, password)) {
+        http_throttle_succeeded(server->throttle, address, user);
+        accepted = 1;
+    } else {
+        unsigned address_failures, user_failures;
+        http_throttle_failed(server->throttle, address, user, http_monotonic_seconds(),
+                             &address_failures, &user_failures);
+        log_warning("http: login failed for user \"%s\" from %s (%u failures from this "
+                    "address, %u for this user)",
+                    shown, address, address_failures, user_failures);
+        *result = http_queue_login_request(server, connection);
+    }
+    if (user != NULL)
+        MHD_free(user);
+    if (password != NULL)
+        MHD_free(password);
+    return accepted;
+}
+
+/* Adds the bytes of one header field ("name: value" and CRLF). */
+static enum MHD_Result http_count_header(void *context, enum MHD_ValueKind kind,
+                                         const char *key, const char *value)
+{
+    (void)kind;
+    size_t *total = context;
+    *total += strlen(key) + (value != NULL ? strlen(value) : 0) + 4;
+    return MHD_YES;
 }
 
 /* MHD access handler: GET and HEAD only (MHD leaves out the body of a
@@ -156,22 +280,67 @@ static enum MHD_Result http_handle(void *context,
     (void)state;
     http_server *server = context;
     http_reply reply;
+    size_t target = http_guard_received(server->guard, connection);
+    if (target > HTTP_TARGET_MAX)
+        return http_queue(server, connection,
+                          http_error_reply(server, MHD_HTTP_URI_TOO_LONG,
+                                           "the request target (path and query) has %zu bytes; "
+                                           "at most %d are read",
+                                           target, HTTP_TARGET_MAX));
+    size_t header_bytes = 0;
+    MHD_get_connection_values(connection, MHD_HEADER_KIND, http_count_header, &header_bytes);
+    if (header_bytes > HTTP_HEADERS_MAX)
+        return http_queue(server, connection,
+                          http_error_reply(server, MHD_HTTP_REQUEST_HEADER_FIELDS_TOO_LARGE,
+                                           "the header fields have %zu bytes; at most %d are read",
+                                           header_bytes, HTTP_HEADERS_MAX));
+    enum MHD_Result result;
     if (server->auth != NULL && strcmp(url, "/healthz") != 0 &&
-        !http_login_accepted(server, connection))
-        return http_queue_login_request(server, connection);
+        !http_login_accepted(server, connection, &result))
+        return result;
     if (strcmp(method, MHD_HTTP_METHOD_GET) != 0 &&
         strcmp(method, MHD_HTTP_METHOD_HEAD) != 0) {
         reply = http_error_reply(server, MHD_HTTP_METHOD_NOT_ALLOWED,
                                  "method not allowed: %s", method);
         if (reply.response != NULL)
             MHD_add_response_header(reply.response, "Allow", "GET, HEAD");
-        return http_queue(connection, reply);
+        return http_queue(server, connection, reply);
     }
     if (http_route_api(server, connection, url, &reply) ||
         http_route_static(server, url, &reply))
-        return http_queue(connection, reply);
-    return http_queue(connection, http_error_reply(server, MHD_HTTP_NOT_FOUND,
-                                                   "not found: %s", url));
+        return http_queue(server, connection, reply);
+    return http_queue(server, connection, http_error_reply(server, MHD_HTTP_NOT_FOUND,
+                                                           "not found: %s", url));
+}
+
+/* MHD_OPTION_URI_LOG_CALLBACK: sees the request target before MHD splits
+ * off its parameters; keeps its length. Past about 8000 parameters MHD
+ * 0.9.75 runs out of the connection's memory while recording them and
+ * then neither answers nor closes (until the request deadline): a target
+ * with more than HTTP_PARAMETERS_MAX is closed at once instead. Fewer
+ * reach the handler, which answers 414 for a target over
+ * HTTP_TARGET_MAX. */
+static void *http_target_seen(void *context, const char *uri, struct MHD_Connection *connection)
+{
+    http_server *server = context;
+    size_t separators = 0;
+    for (const char *at = strchr(uri, '?'); at != NULL && *at != '\0'; at++)
+        separators += *at == '&';
+    http_guard_target(server->guard, connection, strlen(uri));
+    if (separators >= HTTP_PARAMETERS_MAX)
+        http_guard_close(server->guard, connection,
+                         "the request target has more than 6000 parameters");
+    return NULL;
+}
+
+/* MHD_OPTION_NOTIFY_COMPLETED: a reply is done. */
+static void http_request_completed(void *context, struct MHD_Connection *connection,
+                                   void **state, enum MHD_RequestTerminationCode code)
+{
+    (void)state;
+    (void)code;
+    http_server *server = context;
+    http_guard_completed(server->guard, connection);
 }
 
 /* Routes libmicrohttpd's own messages into the log. */
@@ -267,7 +436,10 @@ static mitilog_status http_prepare_security(http_server *server, const http_sett
         if (server->tls_certificate == NULL)
             return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                      "HTTP login without HTTPS would send passwords in clear");
-        return http_auth_load(settings->password_file, &server->auth, error);
+        mitilog_status status = http_auth_load(settings->password_file, &server->auth, error);
+        if (status == MITILOG_OK)
+            status = http_throttle_create(&server->throttle, error);
+        return status;
     }
     return MITILOG_OK;
 }
@@ -341,17 +513,37 @@ mitilog_status http_server_start(const http_settings *settings, store *st,
     struct MHD_OptionItem tls_options[] = {
         {MHD_OPTION_HTTPS_MEM_CERT, 0, server->tls_certificate},
         {MHD_OPTION_HTTPS_MEM_KEY, 0, server->tls_private_key},
+        {MHD_OPTION_HTTPS_PRIORITIES, 0, (void *)http_tls_priorities},
         {MHD_OPTION_END, 0, NULL}};
+    unsigned connections = settings->max_connections != 0 ? settings->max_connections
+                                                          : HTTP_DEFAULT_CONNECTIONS;
+    unsigned per_address = settings->max_connections_per_address == 0
+                               ? HTTP_DEFAULT_CONNECTIONS_PER_ADDRESS
+                           : settings->max_connections_per_address == HTTP_SETTINGS_UNLIMITED
+                               ? 0 /* MHD: no limit */
+                               : settings->max_connections_per_address;
+    unsigned deadline = settings->request_timeout_seconds != 0
+                            ? settings->request_timeout_seconds
+                            : HTTP_DEFAULT_REQUEST_TIMEOUT_S;
+    if (http_guard_start(deadline, &server->guard, error) != MITILOG_OK) {
+        http_server_stop(server);
+        return MITILOG_ERROR_IO;
+    }
     if (server->tls_certificate == NULL)
         tls_options[0].option = MHD_OPTION_END;
     server->daemon = MHD_start_daemon(
         flags, (uint16_t)settings->port, NULL, NULL, &http_handle, server,
+        MHD_OPTION_EXTERNAL_LOGGER, &http_log_library, NULL, /* first: MHD asks for it */
         MHD_OPTION_ARRAY, tls_options,
-        MHD_OPTION_EXTERNAL_LOGGER, &http_log_library, NULL,
         MHD_OPTION_SOCK_ADDR, (struct sockaddr *)&address,
         MHD_OPTION_THREAD_POOL_SIZE, (unsigned)HTTP_THREAD_POOL_SIZE,
-        MHD_OPTION_CONNECTION_LIMIT, (unsigned)HTTP_CONNECTION_LIMIT,
-        MHD_OPTION_CONNECTION_TIMEOUT, (unsigned)HTTP_CONNECTION_TIMEOUT_S,
+        MHD_OPTION_CONNECTION_LIMIT, connections,
+        MHD_OPTION_PER_IP_CONNECTION_LIMIT, per_address,
+        MHD_OPTION_CONNECTION_TIMEOUT, (unsigned)HTTP_IDLE_TIMEOUT_S,
+        MHD_OPTION_CONNECTION_MEMORY_LIMIT, http_connection_memory,
+        MHD_OPTION_NOTIFY_CONNECTION, &http_guard_notify, server->guard,
+        MHD_OPTION_NOTIFY_COMPLETED, &http_request_completed, server,
+        MHD_OPTION_URI_LOG_CALLBACK, &http_target_seen, server,
         MHD_OPTION_END);
     if (server->daemon == NULL) {
         mitilog_status status =
@@ -362,8 +554,15 @@ mitilog_status http_server_start(const http_settings *settings, store *st,
     const union MHD_DaemonInfo *info =
         MHD_get_daemon_info(server->daemon, MHD_DAEMON_INFO_BIND_PORT);
     server->port = info != NULL ? info->port : settings->port;
-    log_info("http: listening on %s://%s:%u%s%s%s",
-             server->tls_certificate != NULL ? "https" : "http", text, server->port,
+    char per_address_text[32];
+    if (per_address == 0)
+        snprintf(per_address_text, sizeof per_address_text, "no limit");
+    else
+        snprintf(per_address_text, sizeof per_address_text, "%u", per_address);
+    log_info("http: listening on %s://%s:%u (at most %u connections, per address %s, "
+             "%u s to send a request)%s%s%s",
+             server->tls_certificate != NULL ? "https" : "http", text, server->port, connections,
+             per_address_text, deadline,
              server->auth != NULL ? " (login required)" : "",
              server->web_root != NULL ? ", files from " : "",
              server->web_root != NULL ? server->web_root : "");
@@ -377,11 +576,13 @@ void http_server_stop(http_server *server)
         return;
     if (server->daemon != NULL)
         MHD_stop_daemon(server->daemon);
+    http_guard_stop(server->guard);
     sqlite3_finalize(server->error_json);
     sqlite3_close(server->json);
     pthread_mutex_destroy(&server->json_lock);
     free(server->web_root);
     http_auth_free(server->auth);
+    http_throttle_free(server->throttle);
     free(server->tls_certificate);
     free(server->tls_private_key);
     free(server);

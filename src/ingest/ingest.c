@@ -1,5 +1,7 @@
 #include "ingest/ingest.h"
 
+#include <dirent.h>
+#include <pthread.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -33,6 +35,9 @@ struct ingest {
     ingest_reading reading;       /* the pixel reader's queue and workers */
     ingest_schemes schemes;
     unsigned sr_depth_limit;      /* [storage] sr_depth_limit */
+    uint64_t quarantine_max_bytes; /* [storage] quarantine_max_bytes */
+    unsigned quarantine_max_files; /* [storage] quarantine_max_files */
+    pthread_mutex_t quarantine_lock; /* one association trims at a time */
 };
 
 /* folder/00 .. folder/ff, so that writing a copy needs no mkdir. */
@@ -56,6 +61,8 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out,
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
     created->store = store;
     created->sr_depth_limit = config->sr_depth_limit > 0 ? config->sr_depth_limit : SR_DEPTH_LIMIT;
+    created->quarantine_max_bytes = config->quarantine_max_bytes;
+    created->quarantine_max_files = config->quarantine_max_files;
     created->retention = strcmp(config->retention, "none") == 0   ? RETENTION_NONE
                          : strcmp(config->retention, "full") == 0 ? RETENTION_FULL
                                                                   : RETENTION_HEADER;
@@ -77,6 +84,7 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out,
         }
     }
     pthread_mutex_init(&created->schemes.lock, NULL);
+    pthread_mutex_init(&created->quarantine_lock, NULL);
     mitilog_status status = config_site_load(config->site_rules_path, &created->rules, error);
     if (status != MITILOG_OK && error != NULL) {
         char reason[sizeof error->text];
@@ -99,6 +107,7 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out,
     if (status != MITILOG_OK) {
         ext_site_rules_free(&created->rules);
         pthread_mutex_destroy(&created->schemes.lock);
+        pthread_mutex_destroy(&created->quarantine_lock);
         free(created);
         return status;
     }
@@ -146,6 +155,7 @@ void ingest_free(ingest *ingest)
     ext_site_rules_free(&ingest->rules);
     ingest_schemes_free(&ingest->schemes);
     pthread_mutex_destroy(&ingest->schemes.lock);
+    pthread_mutex_destroy(&ingest->quarantine_lock);
     free(ingest);
 }
 
@@ -219,20 +229,112 @@ static mitilog_status hashed_path(const char *folder, const char *key, char path
 }
 
 
-/* Keeps the received bytes of a rejected object and records the reason. */
+typedef struct quarantined_file {
+    char name[256];
+    off_t size;
+    struct timespec modified;
+} quarantined_file;
+
+static int quarantined_older_first(const void *left, const void *right)
+{
+    const quarantined_file *a = left, *b = right;
+    if (a->modified.tv_sec != b->modified.tv_sec)
+        return a->modified.tv_sec < b->modified.tv_sec ? -1 : 1;
+    if (a->modified.tv_nsec != b->modified.tv_nsec)
+        return a->modified.tv_nsec < b->modified.tv_nsec ? -1 : 1;
+    return strcmp(a->name, b->name);
+}
+
+/* Removes the oldest files of quarantine/ until one more of incoming
+ * bytes fits the quota ([storage] quarantine_max_files and _bytes).
+ * Returns 0 when it cannot fit (larger than the quota, or a zero
+ * quota): the object is then not kept. Called with quarantine_lock. */
+static int quarantine_make_room(ingest *ingest, uint64_t incoming)
+{
+    if (ingest->quarantine_max_files == 0 || incoming > ingest->quarantine_max_bytes)
+        return 0;
+    DIR *folder = opendir(ingest->quarantine);
+    if (folder == NULL)
+        return 1; /* the copy will fail and say why */
+    quarantined_file *files = NULL;
+    size_t count = 0, capacity = 0;
+    uint64_t total = 0;
+    struct dirent *entry;
+    while ((entry = readdir(folder)) != NULL) {
+        char path[PATH_SIZE];
+        struct stat info;
+        if (entry->d_name[0] == '.' || strlen(entry->d_name) >= sizeof files->name)
+            continue;
+        snprintf(path, sizeof path, "%s/%s", ingest->quarantine, entry->d_name);
+        if (lstat(path, &info) != 0 || !S_ISREG(info.st_mode))
+            continue;
+        if (count == capacity) {
+            size_t grown = capacity ? capacity * 2 : 64;
+            quarantined_file *larger = realloc(files, grown * sizeof *files);
+            if (larger == NULL)
+                break;
+            files = larger;
+            capacity = grown;
+        }
+        snprintf(files[count].name, sizeof files[count].name, "%s", entry->d_name);
+        files[count].size = info.st_size;
+        files[count].modified = info.st_mtim;
+        total += (uint64_t)info.st_size;
+        count++;
+    }
+    closedir(folder);
+    if (count > 1)
+        qsort(files, count, sizeof *files, quarantined_older_first);
+    size_t removed = 0;
+    uint64_t freed = 0;
+    for (size_t i = 0; i < count && (count - removed + 1 > ingest->quarantine_max_files ||
+                                     total - freed + incoming > ingest->quarantine_max_bytes);
+         i++) {
+        char path[PATH_SIZE];
+        snprintf(path, sizeof path, "%s/%s", ingest->quarantine, files[i].name);
+        if (unlink(path) == 0) {
+            removed++;
+            freed += (uint64_t)files[i].size;
+        }
+    }
+    if (removed > 0)
+        log_warning("quarantine quota (%u files, %llu bytes): removed the %zu oldest "
+                    "file%s (%llu bytes) to keep the newest rejected object",
+                    ingest->quarantine_max_files,
+                    (unsigned long long)ingest->quarantine_max_bytes, removed,
+                    removed == 1 ? "" : "s", (unsigned long long)freed);
+    int fits = count - removed + 1 <= ingest->quarantine_max_files &&
+               total - freed + incoming <= ingest->quarantine_max_bytes;
+    free(files);
+    return fits;
+}
+
+/* Keeps the received bytes of a rejected object, within the quarantine
+ * quota (oldest removed first), and records the reason. */
 static void quarantine(ingest *ingest, const ingest_source *source, const char *reason)
 {
     char kept[PATH_SIZE] = "";
     mitilog_error error;
-    if (source->is_spool) {
+    struct stat info;
+    if (source->is_spool && stat(source->path, &info) == 0) {
         char hex[HASH_HEX_SIZE];
-        if (hash_file_hex(source->path, hex, &error) == MITILOG_OK) {
+        pthread_mutex_lock(&ingest->quarantine_lock);
+        if (!quarantine_make_room(ingest, (uint64_t)info.st_size)) {
+            log_warning("association %lu: object %s (%lld bytes) not kept: larger than the "
+                        "quarantine quota (quarantine_max_bytes %llu, quarantine_max_files %u)",
+                        source->association_id, source->announced_sop_instance_uid,
+                        (long long)info.st_size,
+                        (unsigned long long)ingest->quarantine_max_bytes,
+                        ingest->quarantine_max_files);
+        } else if (hash_file_hex(source->path, hex, &error) == MITILOG_OK) {
             snprintf(kept, sizeof kept, "%s/%s.dcm", ingest->quarantine, hex);
             if (files_copy(source->path, kept, &error) != MITILOG_OK) {
                 log_error("quarantine failed: %s", error.text);
+                unlink(kept); /* a partial copy would count against the quota */
                 kept[0] = '\0';
             }
         }
+        pthread_mutex_unlock(&ingest->quarantine_lock);
     }
     char now[32];
     files_utc_now(now, sizeof now);
@@ -376,11 +478,33 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
     if (facts.sr_truncated)
         log_warning("SR %s: content tree deeper than %u levels; deeper items not read",
                     record.sop_instance_uid, ingest->sr_depth_limit);
+    /* The C-STORE command names the instance and class it carries (PS3.7
+     * 9.3.1.1); an object that is another one is refused, never stored
+     * over whatever it names (PS3.4 B.2.3, A900; DCMTK's storescp checks
+     * both UIDs the same way). */
+    const char *mismatch = NULL;
     if (source->announced_sop_instance_uid[0] != '\0' &&
         strcmp(source->announced_sop_instance_uid, record.sop_instance_uid) != 0)
-        log_warning("association %lu: C-STORE announced %s but the object is %s; stored as %s",
-                    source->association_id, source->announced_sop_instance_uid,
-                    record.sop_instance_uid, record.sop_instance_uid);
+        mismatch = "SOP Instance UID";
+    else if (source->announced_sop_class_uid[0] != '\0' &&
+             strcmp(source->announced_sop_class_uid, record.sop_class_uid) != 0)
+        mismatch = "SOP Class UID";
+    if (mismatch != NULL) {
+        mitilog_error_set(reason, MITILOG_ERROR_INVALID,
+                          "the C-STORE command announced %s %.64s but the data set's is %.64s; "
+                          "not stored (A900): the sender must send the object under its own UIDs",
+                          mismatch,
+                          strcmp(mismatch, "SOP Class UID") == 0
+                              ? source->announced_sop_class_uid
+                              : source->announced_sop_instance_uid,
+                          strcmp(mismatch, "SOP Class UID") == 0 ? record.sop_class_uid
+                                                                 : record.sop_instance_uid);
+        dcm_object_free(object);
+        dcm_facts_free(&facts);
+        ext_record_free(&record);
+        reject(ingest, source, reason);
+        return INGEST_OUTCOME_MISMATCHED;
+    }
     record.source_path = source->is_spool ? NULL : strdup(source->path);
 
     store_put_outcome put = STORE_PUT_INSERTED;
@@ -515,6 +639,8 @@ uint16_t ingest_store_handler(void *context, const dcm_received *object)
         return DCM_STATUS_SUCCESS;
     case INGEST_OUTCOME_REJECTED:
         return DCM_STATUS_CANNOT_UNDERSTAND;
+    case INGEST_OUTCOME_MISMATCHED:
+        return DCM_STATUS_DATA_SET_MISMATCH;
     case INGEST_OUTCOME_NOT_STORED:
         break;
     }

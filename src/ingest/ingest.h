@@ -1,11 +1,13 @@
 /*
  * ingest.h - one object through the pipeline: read (dicom shim), extract
  * (ext), keep a copy per the retention setting, commit (store), and decide
- * the DIMSE status. Used by `serve` (network objects arriving in the spool
- * folder) and by `import` (files and folders).
+ * the DIMSE status. Used by `serve` (network objects received into memory
+ * files) and by `import` (files and folders).
  *
- * Owns the data folder layout: spool/, quarantine/, headers/, objects/,
- * each file named from a SHA-256, never from header text. The store is
+ * Owns the data folder layout: quarantine/ (objects that could not be
+ * parsed), objects/ (full copies, retention full) and reading/ (objects
+ * waiting for their pixels to be read); header copies live in the
+ * database. Each file is named from a SHA-256, never from header text. The store is
  * borrowed (it must outlive the ingest). ingest_create() gives an ingest
  * freed by ingest_free(). Thread-safe: network threads call it at once.
  */
@@ -27,6 +29,9 @@ typedef enum ingest_outcome {
     INGEST_OUTCOME_STORED = 0,
     INGEST_OUTCOME_REPLACED,   /* same SOP Instance UID stored before     */
     INGEST_OUTCOME_REJECTED,   /* cannot be understood: quarantined       */
+    INGEST_OUTCOME_MISMATCHED, /* object is not what its C-STORE command
+                                  announced (class or instance UID):
+                                  quarantined, answered A900             */
     INGEST_OUTCOME_NOT_STORED  /* database or disk failure: retry later   */
 } ingest_outcome;
 

@@ -56,8 +56,6 @@ ingest_policy_handle *ingest_exams_hold_policy(ingest_exams *exams);
 void ingest_exams_release_policy(ingest_exams *exams, ingest_policy_handle *handle);
 /* Makes policy (taken over) current; the old one is freed once released. */
 void ingest_exams_swap_policy(ingest_exams *exams, rules_policy *policy);
-/* ext_mode bits to RULES_MODE_* (Image Type value 4) bits. */
-unsigned ingest_rules_modes(unsigned ext_modes);
 
 mitilog_status ingest_exams_start(ingest_exams *exams, store *store,
                                   const ext_site_rules *rules,

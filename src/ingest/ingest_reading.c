@@ -355,7 +355,7 @@ static void read_object(ingest_reading *reading, const ingest_reading_item *item
             result->frames_read = (int)done;
             result->read = combined->reason[0] == '\0';
             result->reason = combined->reason[0] != '\0' ? combined->reason : NULL;
-            for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+            for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
                 const screen_value *v = &combined->values[i];
                 store_screen_value *out = &result->values[i];
                 out->status = value_status_name(v->status);

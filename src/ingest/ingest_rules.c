@@ -13,6 +13,7 @@
  * comes from the site's [exam_type KEY] group key; the age group, room,
  * preset, shift and transducer are the first instance's.
  */
+#include "ingest/ingest.h"
 #include "ingest/ingest_internal.h"
 #include "store/store_reading.h"
 
@@ -22,11 +23,7 @@
 #include <time.h>
 
 #include "extract/ext_exam.h"
-#include "extract/ext_timeline.h"
 #include "util/log.h"
-
-/* Dwell rows reported in exam_measurements.seconds_at_or_above. */
-static const double ingest_dwell_thresholds[STORE_DWELL_STEPS] = {0.7, 1.0, 1.5, 2.0, 2.5, 3.0};
 
 double ingest_clock_now(void)
 {
@@ -35,63 +32,26 @@ double ingest_clock_now(void)
     return (double)now.tv_sec + (double)now.tv_nsec / 1e9;
 }
 
-/* ext_mode bits (1 << ext_mode) to Image Type value 4 bits (RULES_MODE_*):
- * equal up to 3D (0x40); colour power and later sit one bit higher
- * (0x100, 0x200, 0x400) because 0x80 is not defined [DICOM PS3.3
- * C.8.5.6.1.1]. */
-unsigned ingest_rules_modes(unsigned ext_modes)
-{
-    return (ext_modes & 0x7fu) | ((ext_modes & ~0x7fu) << 1);
-}
-
-static rules_group ingest_group_of(const ext_exam_type *type)
-{
-    rules_group group = RULES_GROUP_GENERAL;
-    if (type == NULL)
-        return group;
-    if (type->group != NULL && rules_group_parse(type->group, &group) == 0)
-        return group;
-    return type->obstetric ? RULES_GROUP_OBSTETRIC : RULES_GROUP_GENERAL;
-}
-
 mitilog_status ingest_register_policy(store *st, const rules_policy *policy, mitilog_error *error)
 {
     size_t count = rules_policy_rule_count(policy);
-    store_policy_rule *rules = calloc(count ? count : 1, sizeof *rules);
-    const char **texts = NULL;
-    size_t total = 0;
+    exam_rule_info *rules = calloc(count ? count : 1, sizeof *rules);
     mitilog_status status = MITILOG_OK;
-    for (size_t r = 0; rules != NULL && r < count; r++) {
-        rules_rule_info info;
-        if (rules_policy_rule_at(policy, r, &info) == 0)
-            total += info.setting_count;
-    }
-    texts = calloc(total * 2 + 1, sizeof *texts);
-    if (rules == NULL || texts == NULL) {
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-        goto done;
-    }
-    size_t used = 0;
-    for (size_t r = 0; r < count; r++) {
-        rules_rule_info info;
-        if (rules_policy_rule_at(policy, r, &info) != 0)
-            continue;
-        store_policy_rule *rule = &rules[r];
-        rule->id = info.id;
-        rule->kind = info.kind;
-        rule->severity = rules_severity_name(info.severity);
-        rule->enabled = info.enabled;
-        rule->source = info.source;
-        rule->description = info.description;
-        rule->setting_keys = texts + used;
-        rule->setting_values = texts + total + used;
-        rule->setting_count = info.setting_count;
-        for (size_t k = 0; k < info.setting_count; k++) {
-            texts[used + k] = info.settings[k].key;
-            texts[total + used + k] = info.settings[k].value;
-        }
-        used += info.setting_count;
-    }
+    if (rules == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    size_t described = 0;
+    for (size_t r = 0; r < count; r++)
+        if (rules_policy_rule_at(policy, r, &rules[described]) == 0)
+            described++;
+    /* The limits of every group and age group (an unknown age reads as
+     * adult), for the dashboard. */
+    static const rules_age ages[] = {RULES_AGE_ADULT, RULES_AGE_CHILD, RULES_AGE_NEONATE};
+    enum { LIMIT_COUNT = EXAM_GROUP_COUNT * (sizeof ages / sizeof ages[0]) };
+    exam_limits limits[LIMIT_COUNT];
+    size_t limit_count = 0;
+    for (int g = 0; g < EXAM_GROUP_COUNT; g++)
+        for (size_t a = 0; a < sizeof ages / sizeof ages[0]; a++)
+            rules_policy_limits(policy, (exam_group)g, ages[a], &limits[limit_count++]);
     store_policy input = {
         .version = rules_policy_version(policy),
         .name = NULL,
@@ -99,71 +59,28 @@ mitilog_status ingest_register_policy(store *st, const rules_policy *policy, mit
         .closed_after_idle_minutes = rules_policy_closed_after_idle_minutes(policy),
         .gap_cap_seconds = rules_policy_gap_cap_seconds(policy),
         .rules = rules,
-        .rule_count = count,
+        .rule_count = described,
+        .limits = limits,
+        .limit_count = limit_count,
     };
     input.name = rules_policy_name(policy);
     status = store_register_policy(st, &input, error);
     if (status == MITILOG_OK)
         status = store_set_index_source(st, rules_policy_index_source(policy), error);
-done:
-    free(texts);
     free(rules);
     return status;
 }
 
-/* Flattens a rules_result into store_findings (borrowing its strings). */
-static store_finding *ingest_findings(const rules_result *result)
+/* One header_screen_mismatch finding per capture and index whose header
+ * and screen disagree beyond the screen's rounding (docs/policy.md): not a
+ * rule of the policy file, always on, since a device whose header does not
+ * match its display makes every header-based audit of it doubtful. */
+static mitilog_status ingest_add_mismatches(rules_result *result, const char *study,
+                                            const store_mismatch *mismatches,
+                                            size_t mismatch_count, mitilog_error *error)
 {
-    store_finding *findings = calloc(result->finding_count ? result->finding_count : 1,
-                                     sizeof *findings);
-    for (size_t i = 0; findings != NULL && i < result->finding_count; i++) {
-        const rules_finding *f = &result->findings[i];
-        findings[i] = (store_finding){
-            .rule_id = f->rule_id,
-            .severity = rules_severity_name(f->severity),
-            .quantity = f->quantity,
-            .unit = f->unit,
-            .measured = f->measured,
-            .has_limit = f->has_limit,
-            .limit = f->limit,
-            .threshold = f->threshold,
-            .governing_index = f->has_index ? ext_index_name(f->index) : NULL,
-            .instance_uids = (const char *const *)f->instance_uids,
-            .instance_count = f->instance_count,
-            .has_span = f->has_span,
-            .first_seconds = f->first_seconds,
-            .last_seconds = f->last_seconds,
-            .estimated_seconds = f->estimated_seconds,
-            .assumptions = f->assumptions,
-            .source = f->source,
-            .provisional = f->provisional,
-            .room = f->study_instance_uid == NULL ? f->room : NULL,
-            .transducer = f->study_instance_uid == NULL ? f->transducer : NULL,
-        };
-    }
-    return findings;
-}
-
-/* The rules' findings followed by one header_screen_mismatch finding per
- * capture and index whose header and screen disagree beyond the screen's
- * rounding (docs/policy.md): not a rule of the policy file, always on,
- * since a device whose header does not match its display makes every
- * header-based audit of it doubtful. *texts gets the strings the extra
- * findings point to (3 per mismatch: uid list, assumptions, source). */
-static store_finding *ingest_findings_with_mismatches(const rules_result *result,
-                                                      const store_mismatch *mismatches,
-                                                      size_t mismatch_count, char ***texts)
-{
-    store_finding *base = ingest_findings(result);
-    if (base == NULL || mismatch_count == 0)
-        return base;
-    store_finding *all = realloc(base, (result->finding_count + mismatch_count) * sizeof *all);
-    *texts = calloc(3 * mismatch_count, sizeof **texts);
-    if (all == NULL || *texts == NULL) {
-        free(all != NULL ? all : base);
-        return NULL;
-    }
-    for (size_t i = 0; i < mismatch_count; i++) {
+    mitilog_status status = MITILOG_OK;
+    for (size_t i = 0; i < mismatch_count && status == MITILOG_OK; i++) {
         const store_mismatch *mm = &mismatches[i];
         char assumptions[512], source[512];
         snprintf(assumptions, sizeof assumptions,
@@ -176,54 +93,38 @@ static store_finding *ingest_findings_with_mismatches(const rules_result *result
                  "its display; check the device's software with its vendor",
                  mm->profile_key ? mm->profile_key : "?", mm->profile_version,
                  mm->room && mm->room[0] ? ", room " : "", mm->room ? mm->room : "");
-        (*texts)[3 * i] = strdup(mm->sop_instance_uid ? mm->sop_instance_uid : "");
-        (*texts)[3 * i + 1] = strdup(assumptions);
-        (*texts)[3 * i + 2] = strdup(source);
-        all[result->finding_count + i] = (store_finding){
+        char *uid = mm->sop_instance_uid ? mm->sop_instance_uid : "";
+        exam_finding finding = {
             .rule_id = "header_screen_mismatch",
-            .severity = "warning",
+            .severity = EXAM_SEVERITY_WARNING,
             .quantity = mm->index,
             .unit = "",
             .measured = mm->screen_value,
             .has_limit = 0,
-            .instance_uids = (const char *const *)&(*texts)[3 * i],
+            .instance_uids = &uid,
             .instance_count = 1,
-            .assumptions = (*texts)[3 * i + 1],
-            .source = (*texts)[3 * i + 2],
+            .assumptions = assumptions,
+            .source = source,
+            .study_instance_uid = (char *)study,
         };
+        memcpy(finding.policy_version, result->policy_version, sizeof finding.policy_version);
+        status = rules_result_add(result, &finding, error);
     }
-    return all;
+    return status;
 }
 
 mitilog_status ingest_evaluate_day(store *st, const rules_policy *policy, const char *day,
                                    store_evaluation_counts *counts, mitilog_error *error)
 {
-    store_device_instance *rows = NULL;
+    exam_device_instance *instances = NULL;
     size_t count = 0;
-    mitilog_status status = store_load_day_instances(st, day, &rows, &count, error);
+    mitilog_status status = store_load_day_instances(st, day, &instances, &count, error);
     if (status != MITILOG_OK)
         return status;
-    rules_instance *instances = calloc(count ? count : 1, sizeof *instances);
     rules_result result = {0};
-    store_finding *findings = NULL;
-    if (instances == NULL) {
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-        goto done;
-    }
-    for (size_t i = 0; i < count; i++) {
-        double seconds = rows[i].acquired_at ? ext_iso_to_seconds(rows[i].acquired_at) : -1;
-        instances[i] = (rules_instance){rows[i].sop_instance_uid, rows[i].study_instance_uid,
-                                        rows[i].room, rows[i].transducer,
-                                        rows[i].has_any_index, seconds, seconds >= 0};
-    }
     status = rules_output_not_reported(policy, instances, count, &result, error);
     if (status != MITILOG_OK)
         goto done;
-    findings = ingest_findings(&result);
-    if (findings == NULL) {
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-        goto done;
-    }
     store_evaluation evaluation = {
         .policy_version = rules_policy_version(policy),
         .policy_name = rules_policy_name(policy),
@@ -231,15 +132,13 @@ mitilog_status ingest_evaluate_day(store *st, const rules_policy *policy, const 
         .rule_id = "output_not_reported",
         .period = day,
         .closed = 1,
-        .findings = findings,
+        .findings = result.findings,
         .finding_count = result.finding_count,
     };
     status = store_put_evaluation(st, &evaluation, counts, error);
 done:
-    free(findings);
     rules_result_free(&result);
-    free(instances);
-    store_day_instances_free(rows, count);
+    store_day_instances_free(instances, count);
     return status;
 }
 
@@ -252,7 +151,6 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
 {
     const char *study = record->study_instance_uid;
     const ext_exam *exam = record->exam;
-    const ext_exam_instance *instances = record->instances;
     store_study_context context;
     mitilog_status status = store_load_study_context(st, study, now, &context, error);
     if (status != MITILOG_OK || !context.found) {
@@ -260,27 +158,9 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
         /* No instance left to give a context: the record alone. */
         return status != MITILOG_OK ? status : store_put_exam(st, record, error);
     }
-    size_t n = exam->capture_count;
-    rules_capture *captures = calloc(n ? n : 1, sizeof *captures);
-    ext_timeline_entry *entries = calloc(n ? n : 1, sizeof *entries);
     rules_result result = {0};
-    store_finding *findings = NULL;
     store_mismatch *mismatches = NULL;
     size_t mismatch_count = 0;
-    char **mismatch_texts = NULL;
-    if (captures == NULL || entries == NULL) {
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-        goto done;
-    }
-    for (size_t i = 0; i < n; i++) {
-        const ext_capture *capture = &exam->captures[i];
-        captures[i].sop_instance_uid = instances[exam->capture_instance[i]].sop_instance_uid;
-        captures[i].time_seconds = capture->time_seconds;
-        captures[i].has_time = capture->has_time;
-        captures[i].cine_seconds = capture->cine_seconds;
-        memcpy(captures[i].indices, capture->indices, sizeof capture->indices);
-        captures[i].modes = ingest_rules_modes(capture->modes);
-    }
     rules_age age = RULES_AGE_UNKNOWN;
     if (context.age_group != NULL && rules_age_parse(context.age_group, &age) != 0)
         age = RULES_AGE_UNKNOWN;
@@ -288,7 +168,7 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
     rules_exam input = {
         .study_instance_uid = study,
         .category = exam->exam_type != NULL ? exam->exam_type->key : NULL,
-        .group = ingest_group_of(exam->exam_type),
+        .group = ext_exam_type_group(exam->exam_type),
         .age = age,
         .gestational_age_weeks = exam->gestational_age_weeks,
         .gestational_age_known = exam->has_gestational_age,
@@ -299,22 +179,17 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
         .preset = context.preset,
         .closed = context.idle_seconds >= idle_minutes * 60.0,
         .sr_scan_time_seconds = exam->sr_scan_time_seconds,
-        .captures = captures,
-        .capture_count = n,
+        .captures = exam->captures,
+        .capture_count = exam->capture_count,
     };
     status = rules_evaluate(policy, &input, &result, error);
     if (status != MITILOG_OK)
         goto done;
     status = store_load_mismatches(st, study, &mismatches, &mismatch_count, error);
+    if (status == MITILOG_OK)
+        status = ingest_add_mismatches(&result, study, mismatches, mismatch_count, error);
     if (status != MITILOG_OK)
         goto done;
-    findings = ingest_findings_with_mismatches(&result, mismatches, mismatch_count,
-                                               &mismatch_texts);
-    if (findings == NULL) {
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-        goto done;
-    }
-    const rules_measurements *m = &result.measurements;
     store_evaluation evaluation = {
         .exam = record,
         .policy_version = rules_policy_version(policy),
@@ -329,36 +204,14 @@ static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy
         .age_group = context.age_group,
         .last_received_at = context.last_received_at,
         .closed = input.closed,
-        .findings = findings,
-        .finding_count = result.finding_count + mismatch_count,
-        .governing_index = ext_index_name(m->governing_index),
-        .has_max_governing = m->index_reported[m->governing_index],
-        .max_governing = m->max_index[m->governing_index],
-        .has_max_mi = m->index_reported[EXT_INDEX_MI],
-        .max_mi = m->max_index[EXT_INDEX_MI],
-        .cem43_minutes = m->cem43_minutes,
-        .estimated_seconds = m->estimated_seconds,
-        .doppler_seconds = m->doppler_seconds,
+        .findings = result.findings,
+        .finding_count = result.finding_count,
+        .measurements = &result.measurements,
     };
-    /* Time at or above each dwell row, on the policy's gap cap (the same
-     * timeline rules_evaluate builds): an ESTIMATE. */
-    ext_timeline_summary summary;
-    ext_timeline_build(exam->captures, n, rules_policy_gap_cap_seconds(policy),
-                       exam->sr_scan_time_seconds, entries, &summary);
-    for (int k = 0; k < STORE_DWELL_STEPS; k++)
-        evaluation.seconds_at_or_above[k] = ext_timeline_time_at_or_above(
-            exam->captures, entries, summary.entry_count, m->governing_index,
-            ingest_dwell_thresholds[k]);
     status = store_put_evaluation(st, &evaluation, counts, error);
 done:
-    for (size_t i = 0; mismatch_texts != NULL && i < 3 * mismatch_count; i++)
-        free(mismatch_texts[i]);
-    free(mismatch_texts);
     store_mismatches_free(mismatches, mismatch_count);
-    free(findings);
     rules_result_free(&result);
-    free(entries);
-    free(captures);
     store_study_context_free(&context);
     return status;
 }

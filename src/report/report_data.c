@@ -8,9 +8,6 @@
 
 #include "util/hash.h"
 
-_Static_assert((int)STORE_THRESHOLD_COUNT == (int)STATS_THRESHOLD_COUNT,
-               "store and stats thresholds differ");
-
 const char report_caution[] =
     "Advisory: these figures are estimates from the indices the equipment displayed. "
     "They do not replace the department's safety policy, its medical physicist or "
@@ -31,10 +28,8 @@ int report_format_parse(const char *name, report_format *format)
 void report_data_free(report_data *data)
 {
     store_exam_list_free(&data->list);
-    store_finding_counts_free(data->findings, data->finding_count);
+    store_finding_counts_free(&data->findings);
     store_period_info_free(&data->info);
-    free(data->rules);
-    free(data->exams);
     memset(data, 0, sizeof *data);
 }
 
@@ -70,58 +65,30 @@ mitilog_status report_data_load(store *st, const char *from, const char *to, uns
     data->rows = data->list.rows;
     data->row_count = data->list.count;
     if (status == MITILOG_OK && (load & REPORT_LOAD_RULES))
-        status = store_load_finding_counts(st, from, to, &data->findings,
-                                           &data->finding_count, error);
+        status = store_load_finding_counts(st, from, to, &data->findings, error);
     if (status == MITILOG_OK && (load & REPORT_LOAD_INFO))
         status = store_load_period_info(st, from, to, &data->info, error);
     if (status != MITILOG_OK) {
         report_data_free(data);
         return status;
     }
-    data->exams = calloc(data->row_count + 1, sizeof *data->exams);
-    data->rules = calloc(data->finding_count + 1, sizeof *data->rules);
-    if (data->exams == NULL || data->rules == NULL) {
-        report_data_free(data);
-        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "report: out of memory");
-    }
-    for (size_t f = 0; f < data->finding_count; f++) {
-        data->rules[f].rule_id = data->findings[f].rule_id;
-        data->rules[f].count = data->findings[f].count > 0 ? (size_t)data->findings[f].count : 0;
-    }
     size_t f = 0;
     for (size_t i = 0; i < data->row_count; i++) {
-        const store_exam_row *row = &data->rows[i];
-        stats_exam *exam = &data->exams[i];
-        exam->study_instance_uid = row->study_instance_uid;
-        exam->day = row->day;
-        exam->exam_type = row->exam_type;
-        exam->room = row->room;
-        exam->preset = row->preset;
-        exam->shift = row->shift;
-        exam->transducer = row->transducer;
-        exam->max_governing = row->max_governing;
-        exam->has_governing = row->has_max_governing;
-        exam->max_mi = row->max_mi;
-        exam->has_mi = row->has_max_mi;
-        exam->estimated_seconds = row->estimated_seconds;
-        memcpy(exam->seconds_at_or_above, row->seconds_at_or_above,
-               sizeof exam->seconds_at_or_above);
-        exam->capture_count = row->capture_count > 0 ? (size_t)row->capture_count : 0;
-        exam->indexed_count = row->indexed_count > 0 ? (size_t)row->indexed_count : 0;
-        exam->finding_count = row->finding_count > 0 ? (size_t)row->finding_count : 0;
-        data->capture_count += exam->capture_count;
-        data->indexed_count += exam->indexed_count;
+        exam_row *row = &data->rows[i];
+        data->capture_count += row->capture_count;
+        data->indexed_count += row->indexed_count;
         /* Both lists are ordered by Study Instance UID (SQLite's BINARY
          * collation is strcmp order). */
-        while (f < data->finding_count && row->study_instance_uid != NULL &&
-               strcmp(data->findings[f].study_instance_uid, row->study_instance_uid) < 0)
+        const store_finding_counts *findings = &data->findings;
+        while (f < findings->count && row->study_instance_uid != NULL &&
+               strcmp(findings->study_instance_uids[f], row->study_instance_uid) < 0)
             f++;
         size_t first = f;
-        while (f < data->finding_count && row->study_instance_uid != NULL &&
-               strcmp(data->findings[f].study_instance_uid, row->study_instance_uid) == 0)
+        while (f < findings->count && row->study_instance_uid != NULL &&
+               strcmp(findings->study_instance_uids[f], row->study_instance_uid) == 0)
             f++;
-        exam->rules = f > first ? &data->rules[first] : NULL;
-        exam->rule_count = f - first;
+        row->rules = f > first ? &findings->counts[first] : NULL;
+        row->rule_count = f - first;
     }
     return MITILOG_OK;
 }

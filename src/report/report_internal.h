@@ -2,7 +2,7 @@
  * report_internal.h - what the files of src/report/ share; not API.
  *
  * report_data.c   loads a period's exams and findings and turns them into
- *                 stats_exam rows; CSV and HTML writing helpers;
+ *                 exam_row rows; CSV and HTML writing helpers;
  * report_week.c   the weekly outlier list;
  * report_stats.c  statistics for a period and preset drift;
  * report_pack.c   the statistics as a printable document.
@@ -16,12 +16,11 @@
 
 typedef struct report_data {
     store_exam_list list;           /* the rows and their strings */
-    store_exam_row *rows;           /* list.rows, ordered by Study Instance UID */
+    exam_row *rows;                 /* list.rows, ordered by Study Instance UID;
+                                       the statistics read them as they are */
     size_t row_count;
-    store_finding_count *findings;  /* with REPORT_LOAD_RULES */
-    size_t finding_count;
-    stats_rule_count *rules;        /* parallel to findings */
-    stats_exam *exams;              /* parallel to rows */
+    store_finding_counts findings;  /* with REPORT_LOAD_RULES; the rows'
+                                       rules point into findings.counts */
     store_period_info info;         /* with REPORT_LOAD_INFO */
     size_t capture_count, indexed_count;   /* over all rows */
 } report_data;

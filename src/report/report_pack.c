@@ -32,7 +32,7 @@ static int pack_same(const char *a, const char *b)
     return a != NULL && b != NULL && strcmp(a, b) == 0;
 }
 
-static int pack_key_matches(const stats_exam *exam, stats_dimension by, const char *key)
+static int pack_key_matches(const exam_row *exam, stats_dimension by, const char *key)
 {
     const char *value = stats_exam_key(exam, by);
     return key == NULL ? value == NULL : pack_same(value, key);
@@ -56,9 +56,9 @@ static pack_row_facts pack_facts(const report_pack_input *in, const char *key)
     pack_row_facts facts = {NULL, NULL};
     int mixed = 0;
     for (size_t i = 0; i < in->data->row_count; i++) {
-        if (!pack_key_matches(&in->data->exams[i], in->by, key))
+        const exam_row *row = &in->data->rows[i];
+        if (!pack_key_matches(row, in->by, key))
             continue;
-        const store_exam_row *row = &in->data->rows[i];
         if (facts.label == NULL)
             facts.label = row->exam_type_label;
         if (row->governing_index != NULL) {
@@ -178,7 +178,7 @@ static void pack_time_row(const report_pack_input *in, FILE *out, const stats_pe
     const stats_distribution *est = &row->estimated_seconds;
     pack_cell(out, "estimated_minutes_median", est->count > 0, est->median / 60.0,
               PACK_MINUTE_DECIMALS);
-    for (int t = 0; t < STATS_THRESHOLD_COUNT; t++) {
+    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++) {
         const stats_threshold_time *time = &row->thresholds[t];
         char name[16], field[64];
         pack_threshold_name(time->threshold, name, sizeof name);
@@ -215,8 +215,8 @@ static pack_scale pack_scale_of(const report_pack_input *in)
 {
     double highest = 0.0;
     for (size_t i = 0; i < in->data->row_count; i++)
-        if (in->data->exams[i].has_governing && in->data->exams[i].max_governing > highest)
-            highest = in->data->exams[i].max_governing;
+        if (in->data->rows[i].has_governing && in->data->rows[i].max_governing > highest)
+            highest = in->data->rows[i].max_governing;
     pack_scale scale;
     scale.tick = pack_round_step(highest > 0 ? highest : 1.0, 5);
     scale.top = ceil((highest > 0 ? highest : 1.0) / scale.tick - 1e-9) * scale.tick;
@@ -250,7 +250,7 @@ static void pack_chart(const report_pack_input *in, FILE *out, const pack_scale 
     }
     size_t highest = 0;
     for (size_t i = 0; i < in->data->row_count; i++) {
-        const stats_exam *exam = &in->data->exams[i];
+        const exam_row *exam = &in->data->rows[i];
         if (!exam->has_governing || !pack_key_matches(exam, in->by, key))
             continue;
         int bin = (int)floor(exam->max_governing / scale->bin + 1e-9);
@@ -426,10 +426,10 @@ void report_pack_html(const report_pack_input *in, FILE *out)
     fputs("</th><th colspan=\"2\">With findings</th><th rowspan=\"2\">Scan minutes "
           "(median)</th>",
           out);
-    for (int t = 0; t < STATS_THRESHOLD_COUNT; t++)
-        fprintf(out, "<th colspan=\"2\">TI &ge; %.1f</th>", stats_thresholds[t]);
+    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++)
+        fprintf(out, "<th colspan=\"2\">TI &ge; %.1f</th>", exam_ti_ladder[t]);
     fputs("</tr>\n<tr><th>exams</th><th>share</th>", out);
-    for (int t = 0; t < STATS_THRESHOLD_COUNT; t++)
+    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++)
         fputs("<th>exams</th><th>P95 min</th>", out);
     fputs("</tr></thead><tbody>\n", out);
     for (size_t r = 0; r < in->result->row_count; r++)

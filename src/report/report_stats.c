@@ -57,7 +57,7 @@ static mitilog_status stats_compute(store *st, const report_stats_request *reque
                                              REPORT_LOAD_INFO,
                                              &doc->data, error);
     if (status == MITILOG_OK)
-        status = stats_period_table(doc->data.exams, doc->data.row_count, doc->by, &doc->result,
+        status = stats_period_table(doc->data.rows, doc->data.row_count, doc->by, &doc->result,
                                     error);
     return status;
 }
@@ -107,7 +107,7 @@ static mitilog_status insert_row(store_scratch_statement *row_insert,
     BIND_NUMBER(row_insert, "est_p75", est->count > 0, est->p75);
     BIND_NUMBER(row_insert, "est_p95", est->count > 0, est->p95);
     mitilog_status status = store_scratch_run(row_insert, error);
-    for (int t = 0; status == MITILOG_OK && t < STATS_THRESHOLD_COUNT; t++) {
+    for (int t = 0; status == MITILOG_OK && t < EXAM_TI_STATISTICS_STEPS; t++) {
         const stats_threshold_time *time = &row->thresholds[t];
         int valued = g->count > 0;
         BIND_INT(threshold_insert, "row_position", position);
@@ -203,7 +203,7 @@ static void stats_csv_row(const stats_document *doc, FILE *out, const stats_peri
     report_csv_number(out, mi->count > 0, mi->maximum);
     report_csv_number(out, est->count > 0, est->median / 60.0);
     report_csv_number(out, est->count > 0, est->p95 / 60.0);
-    for (int t = 0; t < STATS_THRESHOLD_COUNT; t++) {
+    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++) {
         const stats_threshold_time *time = &row->thresholds[t];
         report_csv_count(out, time->exam_count);
         report_csv_number(out, g->count > 0, time->median_seconds / 60.0);
@@ -336,7 +336,7 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
                                              REPORT_LOAD_INFO, &data, error);
     if (status != MITILOG_OK)
         return status;
-    status = stats_drift(data.exams, data.row_count, first_monday, weeks, baseline_weeks,
+    status = stats_drift(data.rows, data.row_count, first_monday, weeks, baseline_weeks,
                          request->minimum_baseline ? request->minimum_baseline : 10,
                          request->z_limit > 0 ? request->z_limit : 3.0, &result, error);
     store_scratch_statement *meta_insert, *series_insert, *point_insert, *query;

@@ -25,7 +25,7 @@ typedef struct week_document {
     report_data data;                /* the week's exams */
     store_exam_list baseline;        /* the baseline weeks' exam types and values */
     store_period_info week_info;     /* policy facts for the week itself */
-    stats_exam *week_exams, *baseline_exams;
+    const exam_row *week_exams, *baseline_exams;   /* data.rows, baseline.rows */
     size_t *week_rows;               /* week exam -> data row */
     size_t week_count, baseline_count;
     stats_week_result result;
@@ -35,8 +35,6 @@ typedef struct week_document {
 static void week_document_free(week_document *doc)
 {
     stats_week_result_free(&doc->result);
-    free(doc->week_exams);
-    free(doc->baseline_exams);
     free(doc->week_rows);
     store_period_info_free(&doc->week_info);
     store_exam_list_free(&doc->baseline);
@@ -86,26 +84,19 @@ static mitilog_status week_compute(store *st, const report_week_request *request
         return status;
     doc->week_info = doc->data.info;
     memset(&doc->data.info, 0, sizeof doc->data.info);
-    size_t n = doc->data.row_count;
-    doc->week_exams = calloc(n + 1, sizeof *doc->week_exams);
-    doc->baseline_exams = calloc(doc->baseline.count + 1, sizeof *doc->baseline_exams);
-    doc->week_rows = calloc(n + 1, sizeof *doc->week_rows);
-    if (doc->week_exams == NULL || doc->baseline_exams == NULL || doc->week_rows == NULL)
+    /* The statistics read the store's rows as they are. */
+    doc->week_exams = doc->data.rows;
+    doc->week_count = doc->data.row_count;
+    doc->week_rows = calloc(doc->week_count + 1, sizeof *doc->week_rows);
+    if (doc->week_rows == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "weekly report: out of memory");
-    for (size_t i = 0; i < n; i++) {
-        const stats_exam *exam = &doc->data.exams[i];
-        doc->week_rows[doc->week_count] = i;
-        doc->week_exams[doc->week_count++] = *exam;
-        doc->captures += exam->capture_count;
-        doc->indexed += exam->indexed_count;
+    for (size_t i = 0; i < doc->week_count; i++) {
+        doc->week_rows[i] = i;
+        doc->captures += doc->week_exams[i].capture_count;
+        doc->indexed += doc->week_exams[i].indexed_count;
     }
-    for (size_t i = 0; i < doc->baseline.count; i++) {
-        const store_exam_row *row = &doc->baseline.rows[i];
-        stats_exam *exam = &doc->baseline_exams[doc->baseline_count++];
-        exam->exam_type = row->exam_type;
-        exam->has_governing = row->has_max_governing;
-        exam->max_governing = row->max_governing;
-    }
+    doc->baseline_exams = doc->baseline.rows;
+    doc->baseline_count = doc->baseline.count;
     status = stats_week_outliers(doc->week_exams, doc->week_count, doc->baseline_exams,
                                  doc->baseline_count, &settings, request->group, &doc->result,
                                  error);
@@ -239,7 +230,7 @@ static mitilog_status week_json(const week_document *doc, char **out, mitilog_er
             const stats_exam_flag *flag = &doc->result.flags[e];
             const stats_baseline *base = &doc->result.baselines[flag->baseline];
             size_t row_index = doc->week_rows[e];
-            const store_exam_row *row = &doc->data.rows[row_index];
+            const exam_row *row = &doc->data.rows[row_index];
             BIND_INT(exam_insert, "group_position", position);
             BIND_INT(exam_insert, "position", (long long)m + 1);
             BIND_TEXT(exam_insert, "study_instance_uid", row->study_instance_uid);
@@ -256,9 +247,9 @@ static mitilog_status week_json(const week_document *doc, char **out, mitilog_er
             BIND_TEXT(exam_insert, "shift", row->shift);
             BIND_TEXT(exam_insert, "transducer", row->transducer);
             BIND_TEXT(exam_insert, "governing_index", row->governing_index);
-            BIND_NUMBER(exam_insert, "max_governing", row->has_max_governing,
+            BIND_NUMBER(exam_insert, "max_governing", row->has_governing,
                         row->max_governing);
-            BIND_NUMBER(exam_insert, "max_mi", row->has_max_mi, row->max_mi);
+            BIND_NUMBER(exam_insert, "max_mi", row->has_mi, row->max_mi);
             BIND_NUMBER(exam_insert, "robust_z", 1, flag->robust_z);
             BIND_INT(exam_insert, "above_robust_z", flag->above_robust_z);
             BIND_INT(exam_insert, "above_p95", flag->above_p95);
@@ -345,7 +336,7 @@ static void week_csv(const week_document *doc, FILE *out)
             if (!week_listed(doc, e))
                 continue;
             const stats_exam_flag *flag = &doc->result.flags[e];
-            const store_exam_row *row = &doc->data.rows[doc->week_rows[e]];
+            const exam_row *row = &doc->data.rows[doc->week_rows[e]];
             char reason[128];
             snprintf(reason, sizeof reason, "%s%s%s%s", flag->above_robust_z ? "robust z > limit" : "",
                      flag->above_robust_z && flag->above_p95 ? "; " : "",
@@ -369,8 +360,8 @@ static void week_csv(const week_document *doc, FILE *out)
             report_csv_field(out, 0, row->shift);
             report_csv_field(out, 0, row->transducer);
             report_csv_field(out, 0, row->governing_index);
-            report_csv_number(out, row->has_max_governing, row->max_governing);
-            report_csv_number(out, row->has_max_mi, row->max_mi);
+            report_csv_number(out, row->has_governing, row->max_governing);
+            report_csv_number(out, row->has_mi, row->max_mi);
             report_csv_number(out, 1, flag->robust_z);
             report_csv_field(out, 0, reason);
             report_csv_field(out, 0, doc->week_info.policy_version);
@@ -498,7 +489,7 @@ static void week_html(const week_document *doc, FILE *out)
             if (!week_listed(doc, e))
                 continue;
             const stats_exam_flag *flag = &doc->result.flags[e];
-            const store_exam_row *row = &doc->data.rows[doc->week_rows[e]];
+            const exam_row *row = &doc->data.rows[doc->week_rows[e]];
             fputs("<tr>", out);
             char study_key[9];
             report_study_key(row->study_instance_uid, study_key);
@@ -520,8 +511,8 @@ static void week_html(const week_document *doc, FILE *out)
             if (row->governing_index == NULL)
                 fputs("(not recorded)", out);
             fputs("</td>", out);
-            html_cell_fixed(out, row->has_max_governing, row->max_governing, 2);
-            html_cell_fixed(out, row->has_max_mi, row->max_mi, 2);
+            html_cell_fixed(out, row->has_governing, row->max_governing, 2);
+            html_cell_fixed(out, row->has_mi, row->max_mi, 2);
             html_cell_fixed(out, 1, flag->robust_z, 1);
             fputs("<td class=\"why\">", out);
             const char *separator = "";
@@ -534,7 +525,7 @@ static void week_html(const week_document *doc, FILE *out)
                 separator = "; ";
             }
             if (row->finding_count > 0)
-                fprintf(out, "%s%ld finding%s", separator, row->finding_count,
+                fprintf(out, "%s%zu finding%s", separator, row->finding_count,
                         row->finding_count == 1 ? "" : "s");
             fputs("</td></tr>\n", out);
         }

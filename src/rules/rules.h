@@ -7,11 +7,13 @@
  * - rules_policy_load() allocates a rules_policy; rules_policy_free()
  *   releases it. A loaded policy is immutable and may be shared by threads.
  *   Strings returned by the iteration API point into the policy.
- * - rules_exam and rules_capture are caller-owned, read only during the
- *   call; nothing of them is kept.
+ * - rules_exam and its exam_captures (exam/exam.h, as the exam record
+ *   filled them) are caller-owned, read only during the call; nothing of
+ *   them is kept.
  * - rules_evaluate() and rules_output_not_reported() fill a caller-supplied
- *   rules_result whose findings and strings are heap copies owned by the
- *   result; rules_result_free() releases them (safe on a zeroed result and
+ *   rules_result whose findings (exam_finding) and strings are heap copies
+ *   owned by the result, passed to the store as they are;
+ *   rules_result_free() releases them (safe on a zeroed result and
  *   on a result whose evaluation failed).
  *
  * Times on the timeline are ESTIMATES (see extract/ext_timeline.h); every
@@ -30,33 +32,6 @@
 extern "C" {
 #endif
 
-/* Image Type (0008,0008) value 4 of US images: a 4-hex-digit bitmap of
- * the imaging modes [std: DICOM PS3.3 C.8.5.6.1.1]. */
-enum {
-    RULES_MODE_2D = 0x0001,
-    RULES_MODE_M = 0x0002,
-    RULES_MODE_CW = 0x0004,
-    RULES_MODE_PW = 0x0008,
-    RULES_MODE_COLOUR = 0x0010,
-    RULES_MODE_COLOUR_M = 0x0020,
-    RULES_MODE_3D = 0x0040,
-    RULES_MODE_COLOUR_POWER = 0x0100,
-    /* What counts as Doppler for the first-trimester rule. */
-    RULES_MODE_DOPPLER = RULES_MODE_CW | RULES_MODE_PW | RULES_MODE_COLOUR |
-                         RULES_MODE_COLOUR_M | RULES_MODE_COLOUR_POWER
-};
-
-/* Category group: which table and which governing index apply. */
-typedef enum rules_group {
-    RULES_GROUP_GENERAL = 0,
-    RULES_GROUP_OBSTETRIC,
-    RULES_GROUP_NEONATAL,     /* neonatal head and body */
-    RULES_GROUP_TRANSCRANIAL, /* adult head */
-    RULES_GROUP_OPHTHALMIC,
-    RULES_GROUP_CONTRAST,     /* gas contrast agents */
-    RULES_GROUP_COUNT
-} rules_group;
-
 typedef enum rules_age {
     RULES_AGE_UNKNOWN = 0,    /* limits for adults apply */
     RULES_AGE_ADULT,
@@ -65,94 +40,35 @@ typedef enum rules_age {
     RULES_AGE_COUNT
 } rules_age;
 
-typedef enum rules_severity {
-    RULES_SEVERITY_ADVISORY = 0,
-    RULES_SEVERITY_WARNING,
-    RULES_SEVERITY_VIOLATION
-} rules_severity;
-
-/* Stable lower-case names ("obstetric", "neonate", "warning"); the
- * parsers return 0 on success, -1 for an unknown name. */
-const char *rules_group_name(rules_group group);
+/* Stable lower-case names ("neonate"; groups and severities are named by
+ * exam/exam.h); the parser returns 0 on success, -1 for an unknown name. */
 const char *rules_age_name(rules_age age);
-const char *rules_severity_name(rules_severity severity);
-int rules_group_parse(const char *text, rules_group *group);
 int rules_age_parse(const char *text, rules_age *age);
-int rules_severity_parse(const char *text, rules_severity *severity);
-
-/* One capture (instance) of an exam, as an ext_record and the timeline
- * provide it. */
-typedef struct rules_capture {
-    const char *sop_instance_uid;
-    double time_seconds;     /* acquisition time on any fixed scale */
-    int has_time;
-    double cine_seconds;     /* frames x frame time / 1000; 0 if single */
-    ext_number indices[EXT_INDEX_COUNT];
-    unsigned modes;          /* RULES_MODE_* bits; 0 if unknown */
-} rules_capture;
 
 /* One exam (study) as the exam record describes it. */
 typedef struct rules_exam {
     const char *study_instance_uid;
     const char *category;    /* exam type key, e.g. "neonatal_lung"; may be NULL */
-    rules_group group;
+    exam_group group;
     rules_age age;
     double gestational_age_weeks;   /* 13+6 is 13 + 6/7 */
     int gestational_age_known;
-    ext_index governing_index;      /* used when has_governing_index */
+    exam_index governing_index;      /* used when has_governing_index */
     int has_governing_index;        /* 0: the engine decides (domain s.3) */
     const char *room;
     const char *transducer;
     const char *preset;
     int closed;                     /* 0: open, findings are provisional */
     double sr_scan_time_seconds;    /* <= 0: no SR scan time */
-    const rules_capture *captures;
+    const exam_capture *captures;
     size_t capture_count;
 } rules_exam;
 
-/* One finding. Strings are owned by the rules_result. */
-typedef struct rules_finding {
-    char *rule_id;
-    rules_severity severity;
-    char *quantity;          /* "tib", "mi", "time_at_or_above", "cem43", ... */
-    double measured;
-    char *unit;              /* "", "min", "CEM43 min", "instances" */
-    double limit;            /* meaningful when has_limit */
-    int has_limit;
-    double threshold;        /* dwell: the TI threshold; else 0 */
-    ext_index index;         /* governing index used, when has_index */
-    int has_index;
-    char **instance_uids;    /* the instances that produced it */
-    size_t instance_count;
-    double first_seconds;    /* time span of those instances, when has_span */
-    double last_seconds;
-    int has_span;
-    double estimated_seconds;  /* timeline time behind it (dwell: time at
-                                  or above; Doppler: time in Doppler) */
-    char *assumptions;       /* "estimate: gap cap 300 s; ..." or "" */
-    int provisional;         /* exam not closed */
-    char policy_version[HASH_HEX_SIZE];
-    char *source;            /* the rule's source text, for users */
-    char *study_instance_uid;  /* NULL for output_not_reported */
-    char *room;                /* output_not_reported: the group */
-    char *transducer;
-} rules_finding;
-
-/* Values computed for every exam, finding or not. */
-typedef struct rules_measurements {
-    ext_index governing_index;
-    double max_index[EXT_INDEX_COUNT];   /* when index_reported[i] */
-    int index_reported[EXT_INDEX_COUNT];
-    double estimated_seconds;   /* timeline estimate (after the SR bound) */
-    double span_seconds;        /* last capture time - first */
-    double doppler_seconds;     /* estimated time in Doppler modes */
-    double cem43_minutes;       /* thermal dose, an estimate */
-} rules_measurements;
 
 typedef struct rules_result {
-    rules_finding *findings;
+    exam_finding *findings;
     size_t finding_count;
-    rules_measurements measurements;   /* rules_evaluate only */
+    exam_measurements measurements;    /* rules_evaluate only */
     char policy_version[HASH_HEX_SIZE];
 } rules_result;
 
@@ -184,32 +100,24 @@ double rules_policy_gap_cap_seconds(const rules_policy *policy);
  * index_source; docs/policy.md). */
 const char *rules_policy_index_source(const rules_policy *policy);
 
-/* Iteration for the HTTP layer; pointers stay valid while the policy does. */
-typedef struct rules_setting {
-    const char *key;     /* "limit", "limit.group.ophthalmic", "dwell.1.0" */
-    const char *value;   /* normalised: "2", "off", "not_recommended" */
-} rules_setting;
-
-typedef struct rules_rule_info {
-    const char *id;
-    const char *kind;    /* "ti_ceiling", "dwell", ... */
-    rules_severity severity;
-    int enabled;
-    const char *source;
-    const char *description;   /* one line, what the rule checks */
-    const rules_setting *settings;
-    size_t setting_count;
-} rules_rule_info;
-
+/* Iteration (exam_rule_info, exam/exam.h); pointers stay valid while the
+ * policy does. */
 size_t rules_policy_rule_count(const rules_policy *policy);
 /* Returns 0, or -1 if index is out of range. */
 int rules_policy_rule_at(const rules_policy *policy, size_t index,
-                         rules_rule_info *info);
+                         exam_rule_info *info);
+
+/* The limits the policy sets for an exam of a group and age group
+ * without an exam-type-specific key (what the dashboard draws): the
+ * first applicable rule of each kind, as rules_evaluate() would apply
+ * it. */
+void rules_policy_limits(const rules_policy *policy, exam_group group, rules_age age,
+                         exam_limits *limits);
 
 /* Governing index of domain reference section 3 (when the exam does not
  * name one): obstetric < 10 weeks TIS, >= 10 weeks or unknown TIB;
  * transcranial TIC; everything else (neonatal head included) TIS. */
-ext_index rules_governing_index(const rules_exam *exam);
+exam_index rules_governing_index(const rules_exam *exam);
 
 /* Every enabled rule except output_not_reported on one exam. Fills result
  * (findings in policy order, then by threshold). MITILOG_ERROR_MEMORY or
@@ -218,26 +126,20 @@ mitilog_status rules_evaluate(const rules_policy *policy,
                               const rules_exam *exam, rules_result *result,
                               mitilog_error *error);
 
-/* One ultrasound instance for rule output_not_reported. */
-typedef struct rules_instance {
-    const char *sop_instance_uid;
-    const char *study_instance_uid;
-    const char *room;          /* station name or department; NULL = "" */
-    const char *transducer;
-    int has_any_index;         /* any of the six indices ok */
-    double time_seconds;
-    int has_time;
-} rules_instance;
-
 /* Groups instances by (room, transducer); one finding per group with at
  * least the rule's minimum of instances that report no index at all:
  * measured = silent count, instances = their UIDs, span = first/last
  * silent time. Findings ordered by room, then transducer. */
 mitilog_status rules_output_not_reported(const rules_policy *policy,
-                                         const rules_instance *instances,
+                                         const exam_device_instance *instances,
                                          size_t count, rules_result *result,
                                          mitilog_error *error);
 
+/* Appends a finding made outside the policy engine (e.g. a header that
+ * disagrees with the screen): its strings are borrowed and copied into the
+ * result, which owns them from then on. */
+mitilog_status rules_result_add(rules_result *result, const exam_finding *borrowed,
+                                mitilog_error *error);
 void rules_result_free(rules_result *result);
 
 /* CEM43 = sum t_i x R^(43 - T_i), R = 0.5 for T >= 43 C, 0.25 below

@@ -4,24 +4,24 @@
 
 #include "rules/rules_internal.h"
 
-static const ext_index thermal_indices[] = {EXT_INDEX_TIS, EXT_INDEX_TIB, EXT_INDEX_TIC,
-                                            EXT_INDEX_TIS_FOCUS, EXT_INDEX_TIS_SURFACE};
+static const exam_index thermal_indices[] = {EXAM_INDEX_TIS, EXAM_INDEX_TIB, EXAM_INDEX_TIC,
+                                            EXAM_INDEX_TIS_FOCUS, EXAM_INDEX_TIS_SURFACE};
 
 /* The capture's value of index, or of its highest TI when index is
- * EXT_INDEX_COUNT. Returns 0 when not reported. */
-static int capture_value(const ext_capture *capture, ext_index index, double *value,
-                         ext_index *which)
+ * EXAM_INDEX_COUNT. Returns 0 when not reported. */
+static int capture_value(const exam_capture *capture, exam_index index, double *value,
+                         exam_index *which)
 {
     int found = 0;
     for (size_t t = 0; t < sizeof thermal_indices / sizeof thermal_indices[0]; t++) {
-        ext_index candidate = index == EXT_INDEX_COUNT ? thermal_indices[t] : index;
-        const ext_number *number = &capture->indices[candidate];
-        if (number->status == EXT_VALUE_OK && (!found || number->value > *value)) {
+        exam_index candidate = index == EXAM_INDEX_COUNT ? thermal_indices[t] : index;
+        const exam_number *number = &capture->indices[candidate];
+        if (number->status == EXAM_VALUE_OK && (!found || number->value > *value)) {
             *value = number->value;
             *which = candidate;
             found = 1;
         }
-        if (index != EXT_INDEX_COUNT)
+        if (index != EXAM_INDEX_COUNT)
             break;
     }
     return found;
@@ -37,7 +37,7 @@ static double attributed(const rules_view *view, size_t capture)
     return 0;
 }
 
-int rules_match_captures(const rules_view *view, ext_index index, rules_compare compare,
+int rules_match_captures(const rules_view *view, exam_index index, rules_compare compare,
                          double threshold, unsigned mode_mask, rules_match *match)
 {
     const rules_exam *exam = view->exam;
@@ -47,9 +47,9 @@ int rules_match_captures(const rules_view *view, ext_index index, rules_compare 
     if (match->uids == NULL)
         return -1;
     for (size_t i = 0; i < exam->capture_count; i++) {
-        const ext_capture *capture = &view->captures[i];
+        const exam_capture *capture = &view->captures[i];
         double value = 0;
-        ext_index which = index;
+        exam_index which = index;
         if (mode_mask != 0 && (capture->modes & mode_mask) == 0)
             continue;
         if (!capture_value(capture, index, &value, &which))
@@ -74,14 +74,14 @@ int rules_match_captures(const rules_view *view, ext_index index, rules_compare 
     return 0;
 }
 
-int rules_highest(const rules_view *view, ext_index index, double *value, ext_index *which)
+int rules_highest(const rules_view *view, exam_index index, double *value, exam_index *which)
 {
     int found = 0;
     *value = 0;
     *which = index;
     for (size_t i = 0; i < view->exam->capture_count; i++) {
         double candidate = 0;
-        ext_index candidate_index = index;
+        exam_index candidate_index = index;
         if (capture_value(&view->captures[i], index, &candidate, &candidate_index) &&
             (!found || candidate > *value)) {
             *value = candidate;
@@ -92,9 +92,9 @@ int rules_highest(const rules_view *view, ext_index index, double *value, ext_in
     return found;
 }
 
-mitilog_status rules_emit(const rules_rule *rule, const rules_view *view, rules_severity severity,
+mitilog_status rules_emit(const rules_rule *rule, const rules_view *view, exam_severity severity,
                           const char *quantity, double measured, const char *unit,
-                          const double *limit, double threshold, ext_index index,
+                          const double *limit, double threshold, exam_index index,
                           const rules_match *match, const char *note, rules_result *result,
                           mitilog_error *error)
 {
@@ -111,7 +111,7 @@ mitilog_status rules_emit(const rules_rule *rule, const rules_view *view, rules_
     input.has_limit = limit != NULL;
     input.threshold = threshold;
     input.index = index;
-    input.has_index = index < EXT_INDEX_COUNT;
+    input.has_index = index < EXAM_INDEX_COUNT;
     if (match != NULL) {
         input.instance_uids = match->uids;
         input.instance_count = match->count;

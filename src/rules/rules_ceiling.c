@@ -5,7 +5,7 @@
 
 #include "rules/rules_internal.h"
 
-static mitilog_status check_one(const rules_rule *rule, const rules_view *view, ext_index index,
+static mitilog_status check_one(const rules_rule *rule, const rules_view *view, exam_index index,
                                 const char *base, const char *quantity, const char *note,
                                 rules_result *result, mitilog_error *error)
 {
@@ -27,8 +27,8 @@ mitilog_status rules_check_ceiling(const rules_rule *rule, const rules_view *vie
                                    rules_result *result, mitilog_error *error)
 {
     if (rule->kind == RULES_KIND_MI_CEILING)
-        return check_one(rule, view, EXT_INDEX_MI, "limit", "mi", NULL, result, error);
-    return check_one(rule, view, view->governing, "limit", ext_index_name(view->governing),
+        return check_one(rule, view, EXAM_INDEX_MI, "limit", "mi", NULL, result, error);
+    return check_one(rule, view, view->governing, "limit", exam_index_name(view->governing),
                      NULL, result, error);
 }
 
@@ -38,9 +38,9 @@ mitilog_status rules_check_equipment(const rules_rule *rule, const rules_view *v
     static const char note[] =
         "above the equipment maxima: check the equipment and its labelling, not the user";
     mitilog_status status =
-        check_one(rule, view, EXT_INDEX_MI, "mi_limit", "mi", note, result, error);
+        check_one(rule, view, EXAM_INDEX_MI, "mi_limit", "mi", note, result, error);
     if (status != MITILOG_OK)
         return status;
     /* Any displayed TI (the highest of the five kinds) counts here. */
-    return check_one(rule, view, EXT_INDEX_COUNT, "ti_limit", "ti", note, result, error);
+    return check_one(rule, view, EXAM_INDEX_COUNT, "ti_limit", "ti", note, result, error);
 }

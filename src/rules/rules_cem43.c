@@ -23,8 +23,8 @@ double rules_timeline_cem43(const rules_view *view)
     double dose = 0;
     for (size_t k = 0; k < view->summary.entry_count; k++) {
         const ext_timeline_entry *entry = &view->entries[k];
-        const ext_number *ti = &view->captures[entry->capture].indices[view->governing];
-        if (ti->status != EXT_VALUE_OK)
+        const exam_number *ti = &view->captures[entry->capture].indices[view->governing];
+        if (ti->status != EXAM_VALUE_OK)
             continue;
         dose += rules_cem43_minutes(entry->attributed_seconds / 60.0,
                                     rules_cem43_temperature_from_ti(ti->value));

@@ -14,12 +14,12 @@ mitilog_status rules_check_first_trimester(const rules_rule *rule, const rules_v
                                            rules_result *result, mitilog_error *error)
 {
     const rules_exam *exam = view->exam;
-    if (exam->group != RULES_GROUP_OBSTETRIC || !exam->gestational_age_known ||
+    if (exam->group != EXAM_GROUP_OBSTETRIC || !exam->gestational_age_known ||
         !(exam->gestational_age_weeks < rule->before_weeks))
         return MITILOG_OK;
     rules_match match;
     /* The highest governing TI during Doppler. */
-    if (rules_match_captures(view, view->governing, RULES_AT_OR_ABOVE, -1.0, RULES_MODE_DOPPLER,
+    if (rules_match_captures(view, view->governing, RULES_AT_OR_ABOVE, -1.0, EXAM_MODES_DOPPLER,
                              &match) != 0)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
     /* The finding lists every Doppler capture, reporting the index or not. */
@@ -27,8 +27,8 @@ mitilog_status rules_check_first_trimester(const rules_rule *rule, const rules_v
     double doppler_seconds = 0;
     match.has_span = 0;
     for (size_t i = 0; i < exam->capture_count; i++) {
-        const rules_capture *capture = &exam->captures[i];
-        if ((capture->modes & RULES_MODE_DOPPLER) == 0)
+        const exam_capture *capture = &exam->captures[i];
+        if ((capture->modes & EXAM_MODES_DOPPLER) == 0)
             continue;
         match.uids[doppler_captures++] = capture->sop_instance_uid;
         if (capture->has_time) {
@@ -42,7 +42,7 @@ mitilog_status rules_check_first_trimester(const rules_rule *rule, const rules_v
     }
     match.count = doppler_captures;
     for (size_t k = 0; k < view->summary.entry_count; k++) {
-        if (view->captures[view->entries[k].capture].modes & RULES_MODE_DOPPLER)
+        if (view->captures[view->entries[k].capture].modes & EXAM_MODES_DOPPLER)
             doppler_seconds += view->entries[k].attributed_seconds;
     }
     mitilog_status status = MITILOG_OK;
@@ -51,7 +51,7 @@ mitilog_status rules_check_first_trimester(const rules_rule *rule, const rules_v
         int has_ti_limit = rules_rule_limit(rule, "ti_limit", exam, &ti_limit);
         int has_minutes_limit = rules_rule_limit(rule, "doppler_minutes_limit", exam,
                                                  &minutes_limit);
-        rules_severity severity = rule->severity;
+        exam_severity severity = rule->severity;
         int over = (has_ti_limit && reporting > 0 && match.max_value > ti_limit) ||
                    (has_minutes_limit && doppler_seconds / 60.0 > minutes_limit);
         if (over && rule->has_severity_over_limit)
@@ -61,9 +61,9 @@ mitilog_status rules_check_first_trimester(const rules_rule *rule, const rules_v
                  "gestational age %.2f weeks; %zu Doppler capture(s), %zu reporting %s; "
                  "estimated Doppler time %.0f s",
                  exam->gestational_age_weeks, doppler_captures, reporting,
-                 ext_index_name(view->governing), doppler_seconds);
+                 exam_index_name(view->governing), doppler_seconds);
         match.estimated_seconds = doppler_seconds;
-        status = rules_emit(rule, view, severity, ext_index_name(view->governing),
+        status = rules_emit(rule, view, severity, exam_index_name(view->governing),
                             match.max_value, "", has_ti_limit ? &ti_limit : NULL, 0,
                             view->governing, &match, note, result, error);
     }

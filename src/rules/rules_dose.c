@@ -35,15 +35,15 @@ mitilog_status rules_check_duration(const rules_rule *rule, const rules_view *vi
     if (!(minutes > limit))
         return MITILOG_OK;
     rules_match match = {0};
-    match.max_index = EXT_INDEX_COUNT;
+    match.max_index = EXAM_INDEX_COUNT;
     if (view->summary.entry_count > 0) {
-        const ext_capture *first = &view->captures[view->entries[0].capture];
+        const exam_capture *first = &view->captures[view->entries[0].capture];
         match.first_seconds = first->time_seconds;
         match.last_seconds = first->time_seconds + view->summary.span_seconds;
         match.has_span = 1;
     }
     match.estimated_seconds = view->summary.estimated_seconds;
     return rules_emit(rule, view, rule->severity, "duration", minutes, "min", &limit, 0,
-                      EXT_INDEX_COUNT, &match, "duration = last capture time - first", result,
+                      EXAM_INDEX_COUNT, &match, "duration = last capture time - first", result,
                       error);
 }

@@ -14,7 +14,7 @@ mitilog_status rules_check_dwell(const rules_rule *rule, const rules_view *view,
 {
     mitilog_status status = MITILOG_OK;
     for (size_t s = 0; s < rule->step_count && status == MITILOG_OK; s++) {
-        const rules_dwell_step *step = &rule->steps[s];
+        const exam_dwell_step *step = &rule->steps[s];
         rules_match match;
         if (rules_match_captures(view, view->governing, RULES_AT_OR_ABOVE, step->threshold, 0,
                                  &match) != 0)
@@ -30,10 +30,10 @@ mitilog_status rules_check_dwell(const rules_rule *rule, const rules_view *view,
             rules_format_number(step->minutes, limit_text, sizeof limit_text);
             if (step->not_recommended)
                 snprintf(note, sizeof note, "%s >= %s: not recommended at all",
-                         ext_index_name(view->governing), threshold);
+                         exam_index_name(view->governing), threshold);
             else
                 snprintf(note, sizeof note, "%s >= %s: at most %s min",
-                         ext_index_name(view->governing), threshold, limit_text);
+                         exam_index_name(view->governing), threshold, limit_text);
             double limit = step->not_recommended ? 0 : step->minutes;
             status = rules_emit(rule, view, rule->severity, "time_at_or_above", minutes, "min",
                                 &limit, step->threshold, view->governing, &match, note, result,

@@ -6,30 +6,28 @@
 
 #include "rules/rules_internal.h"
 
-ext_index rules_governing_index(const rules_exam *exam)
+exam_index rules_governing_index(const rules_exam *exam)
 {
-    /* Domain reference, section 3 [trade; BMUS guidance]. */
-    switch (exam->group) {
-    case RULES_GROUP_OBSTETRIC:
-        if (exam->gestational_age_known && exam->gestational_age_weeks < 10.0)
-            return EXT_INDEX_TIS;
-        return EXT_INDEX_TIB;   /* >= 10 weeks or unknown: bone ossifying */
-    case RULES_GROUP_TRANSCRANIAL:
-        return EXT_INDEX_TIC;
-    default:
-        return EXT_INDEX_TIS;   /* neonatal head included (TIS) */
-    }
+    /* The policy group's rule of docs/domain.md section 3: obstetric by
+     * gestation, transcranial TIC, everything else (neonatal head
+     * included) TIS. */
+    exam_governing rule = EXAM_GOVERNING_TIS;
+    if (exam->group == EXAM_GROUP_OBSTETRIC)
+        rule = EXAM_GOVERNING_BY_GESTATION;
+    else if (exam->group == EXAM_GROUP_TRANSCRANIAL)
+        rule = EXAM_GOVERNING_TIC;
+    return exam_governing_index(rule, exam->gestational_age_known, exam->gestational_age_weeks,
+                                NULL);
 }
-
-static void measure(rules_view *view, rules_measurements *out)
+static void measure(rules_view *view, exam_measurements *out)
 {
     memset(out, 0, sizeof *out);
     out->governing_index = view->governing;
     const rules_exam *exam = view->exam;
     for (size_t i = 0; i < exam->capture_count; i++) {
-        for (int x = 0; x < EXT_INDEX_COUNT; x++) {
-            const ext_number *value = &exam->captures[i].indices[x];
-            if (value->status != EXT_VALUE_OK)
+        for (int x = 0; x < EXAM_INDEX_COUNT; x++) {
+            const exam_number *value = &exam->captures[i].indices[x];
+            if (value->status != EXAM_VALUE_OK)
                 continue;
             if (!out->index_reported[x] || value->value > out->max_index[x])
                 out->max_index[x] = value->value;
@@ -39,10 +37,14 @@ static void measure(rules_view *view, rules_measurements *out)
     out->estimated_seconds = view->summary.estimated_seconds;
     out->span_seconds = view->summary.span_seconds;
     for (size_t k = 0; k < view->summary.entry_count; k++) {
-        if (view->captures[view->entries[k].capture].modes & RULES_MODE_DOPPLER)
+        if (view->captures[view->entries[k].capture].modes & EXAM_MODES_DOPPLER)
             out->doppler_seconds += view->entries[k].attributed_seconds;
     }
     out->cem43_minutes = rules_timeline_cem43(view);
+    for (int k = 0; k < EXAM_TI_STEP_COUNT; k++)
+        out->seconds_at_or_above[k] =
+            ext_timeline_time_at_or_above(view->captures, view->entries, view->summary.entry_count,
+                                          view->governing, exam_ti_ladder[k]);
 }
 
 static void describe_timeline(const rules_view *view, double gap_cap, char *out, size_t size)
@@ -54,7 +56,7 @@ static void describe_timeline(const rules_view *view, double gap_cap, char *out,
                                                   summary->entry_count, view->governing);
     if (missing > 0)
         snprintf(unreported, sizeof unreported, "; %s not reported for %.0f s (not counted)",
-                 ext_index_name(view->governing), missing);
+                 exam_index_name(view->governing), missing);
     char bound[96] = "";
     if (summary->scale < 1.0)
         snprintf(bound, sizeof bound, "; scaled x%.3f to the SR scan time %.0f s", summary->scale,
@@ -64,7 +66,7 @@ static void describe_timeline(const rules_view *view, double gap_cap, char *out,
              "gap cap %.0f s (%zu capped); cine = frames x frame time; "
              "%zu capture(s) without a time not counted%s%s; governing index %s (%s)",
              gap_cap, summary->capped_count, summary->untimed_count, bound, unreported,
-             ext_index_name(view->governing),
+             exam_index_name(view->governing),
              exam->has_governing_index ? "from the exam record" : "domain reference s.3");
 }
 
@@ -103,25 +105,17 @@ mitilog_status rules_evaluate(const rules_policy *policy, const rules_exam *exam
     memset(&view, 0, sizeof view);
     view.exam = exam;
     view.policy_version = policy->version;
-    view.governing = exam->has_governing_index && exam->governing_index < EXT_INDEX_COUNT
+    view.governing = exam->has_governing_index && exam->governing_index < EXAM_INDEX_COUNT
                          ? exam->governing_index
                          : rules_governing_index(exam);
     size_t count = exam->capture_count ? exam->capture_count : 1;
-    view.captures = calloc(count, sizeof *view.captures);
+    view.captures = exam->captures;
     view.entries = calloc(count, sizeof *view.entries);
     char assumptions[768];
     mitilog_status status = MITILOG_OK;
-    if (view.captures == NULL || view.entries == NULL) {
+    if (view.entries == NULL) {
         status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
         goto done;
-    }
-    for (size_t i = 0; i < exam->capture_count; i++) {
-        const rules_capture *capture = &exam->captures[i];
-        view.captures[i].time_seconds = capture->time_seconds;
-        view.captures[i].has_time = capture->has_time;
-        view.captures[i].cine_seconds = capture->cine_seconds;
-        memcpy(view.captures[i].indices, capture->indices, sizeof capture->indices);
-        view.captures[i].modes = capture->modes;
     }
     ext_timeline_build(view.captures, exam->capture_count, policy->gap_cap_seconds,
                        exam->sr_scan_time_seconds, view.entries, &view.summary);
@@ -133,7 +127,6 @@ mitilog_status rules_evaluate(const rules_policy *policy, const rules_exam *exam
             status = check_rule(&policy->rules[r], &view, result, error);
     }
 done:
-    free(view.captures);
     free(view.entries);
     if (status != MITILOG_OK)
         rules_result_free(result);

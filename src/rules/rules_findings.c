@@ -14,7 +14,7 @@ static char *copy_or_null(const char *text, int *failed)
     return copy;
 }
 
-static void finding_free(rules_finding *finding)
+static void finding_free(exam_finding *finding)
 {
     free(finding->rule_id);
     free(finding->quantity);
@@ -32,12 +32,12 @@ static void finding_free(rules_finding *finding)
 mitilog_status rules_result_append(rules_result *result, const rules_finding_input *input,
                                    const char *policy_version, mitilog_error *error)
 {
-    rules_finding *grown =
+    exam_finding *grown =
         realloc(result->findings, (result->finding_count + 1) * sizeof *grown);
     if (grown == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
     result->findings = grown;
-    rules_finding *finding = &grown[result->finding_count];
+    exam_finding *finding = &grown[result->finding_count];
     memset(finding, 0, sizeof *finding);
     int failed = 0;
     finding->rule_id = copy_or_null(input->rule->id, &failed);
@@ -68,6 +68,46 @@ mitilog_status rules_result_append(rules_result *result, const rules_finding_inp
         for (size_t i = 0; finding->instance_uids && i < input->instance_count; i++) {
             finding->instance_uids[i] =
                 copy_or_null(input->instance_uids[i] ? input->instance_uids[i] : "", &failed);
+            finding->instance_count = i + 1;
+        }
+    }
+    if (failed) {
+        finding_free(finding);
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    }
+    result->finding_count++;
+    return MITILOG_OK;
+}
+
+mitilog_status rules_result_add(rules_result *result, const exam_finding *borrowed,
+                                mitilog_error *error)
+{
+    exam_finding *grown =
+        realloc(result->findings, (result->finding_count + 1) * sizeof *grown);
+    if (grown == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    result->findings = grown;
+    exam_finding *finding = &grown[result->finding_count];
+    *finding = *borrowed;
+    int failed = 0;
+    finding->rule_id = copy_or_null(borrowed->rule_id, &failed);
+    finding->quantity = copy_or_null(borrowed->quantity ? borrowed->quantity : "", &failed);
+    finding->unit = copy_or_null(borrowed->unit ? borrowed->unit : "", &failed);
+    finding->assumptions =
+        copy_or_null(borrowed->assumptions ? borrowed->assumptions : "", &failed);
+    finding->source = copy_or_null(borrowed->source, &failed);
+    finding->study_instance_uid = copy_or_null(borrowed->study_instance_uid, &failed);
+    finding->room = copy_or_null(borrowed->room, &failed);
+    finding->transducer = copy_or_null(borrowed->transducer, &failed);
+    finding->instance_uids = NULL;
+    finding->instance_count = 0;
+    if (borrowed->instance_count > 0) {
+        finding->instance_uids = calloc(borrowed->instance_count, sizeof(char *));
+        if (finding->instance_uids == NULL)
+            failed = 1;
+        for (size_t i = 0; finding->instance_uids && i < borrowed->instance_count; i++) {
+            finding->instance_uids[i] = copy_or_null(
+                borrowed->instance_uids[i] ? borrowed->instance_uids[i] : "", &failed);
             finding->instance_count = i + 1;
         }
     }

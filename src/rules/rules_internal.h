@@ -35,7 +35,7 @@ typedef enum rules_selector_kind {
 typedef struct rules_selector {
     rules_selector_kind kind;
     char *category;          /* RULES_SELECT_CATEGORY */
-    int value;               /* rules_group or rules_age */
+    int value;               /* exam_group or rules_age */
 } rules_selector;
 
 /* One "base[.selector.name] = number|off" key. */
@@ -46,20 +46,14 @@ typedef struct rules_limit {
     double value;
 } rules_limit;
 
-typedef struct rules_dwell_step {
-    double threshold;        /* TI at or above */
-    double minutes;          /* longest time allowed */
-    int not_recommended;     /* any time at all is a finding */
-} rules_dwell_step;
-
-enum { RULES_MAX_DWELL_STEPS = 16, RULES_MAX_SELECTORS = 16 };
+enum { RULES_MAX_SELECTORS = 16 };
 
 typedef struct rules_rule {
     char *id;
     rules_kind kind;
-    rules_severity severity;
+    exam_severity severity;
     int has_severity;
-    rules_severity severity_over_limit;   /* first_trimester_doppler */
+    exam_severity severity_over_limit;   /* first_trimester_doppler */
     int has_severity_over_limit;
     int enabled;
     char *source;
@@ -72,7 +66,7 @@ typedef struct rules_rule {
 
     rules_limit *limits;
     size_t limit_count;
-    rules_dwell_step steps[RULES_MAX_DWELL_STEPS];
+    exam_dwell_step steps[EXAM_MAX_DWELL_STEPS];
     size_t step_count;       /* sorted by threshold */
     double before_weeks;     /* first_trimester_doppler, default 14 */
     unsigned minimum_instances;  /* output_not_reported, default 1 */
@@ -80,7 +74,7 @@ typedef struct rules_rule {
     char **seen_keys;        /* for "set twice" errors */
     size_t seen_count;
 
-    rules_setting *settings; /* normalised, for iteration */
+    exam_setting *settings; /* normalised, for iteration */
     size_t setting_count;
 } rules_rule;
 
@@ -112,14 +106,14 @@ int rules_rule_limit(const rules_rule *rule, const char *base,
 /* rules_findings.c: appending findings to a result. */
 typedef struct rules_finding_input {
     const rules_rule *rule;
-    rules_severity severity;
+    exam_severity severity;
     const char *quantity;
     double measured;
     const char *unit;
     double limit;
     int has_limit;
     double threshold;
-    ext_index index;
+    exam_index index;
     int has_index;
     const char **instance_uids;
     size_t instance_count;
@@ -142,8 +136,8 @@ mitilog_status rules_result_append(rules_result *result,
 /* rules_exposure.c: the per-exam rules, on a prepared exam view. */
 typedef struct rules_view {
     const rules_exam *exam;
-    ext_index governing;
-    ext_capture *captures;          /* converted, exam->capture_count */
+    exam_index governing;
+    const exam_capture *captures;    /* the exam's, exam->capture_count */
     ext_timeline_entry *entries;    /* timeline, summary.entry_count */
     ext_timeline_summary summary;
     const char *assumptions;        /* the timeline's, for findings */
@@ -173,23 +167,23 @@ typedef struct rules_match {
     int has_span;
     double estimated_seconds; /* their attributed timeline time */
     double max_value;        /* over the matching captures */
-    ext_index max_index;
+    exam_index max_index;
 } rules_match;
 
-/* Captures whose index (EXT_INDEX_COUNT: the highest reported TI of any
+/* Captures whose index (EXAM_INDEX_COUNT: the highest reported TI of any
  * kind) compares with threshold, and which have any of mode_mask (0: any
  * mode). Returns 0, or -1 when out of memory. */
-int rules_match_captures(const rules_view *view, ext_index index, rules_compare compare,
+int rules_match_captures(const rules_view *view, exam_index index, rules_compare compare,
                          double threshold, unsigned mode_mask, rules_match *match);
-/* Highest reported value of an index (EXT_INDEX_COUNT: any TI) over all
+/* Highest reported value of an index (EXAM_INDEX_COUNT: any TI) over all
  * captures; 0 if none reports it. */
-int rules_highest(const rules_view *view, ext_index index, double *value, ext_index *which);
+int rules_highest(const rules_view *view, exam_index index, double *value, exam_index *which);
 
 /* Appends a finding for an exam from a match (rules_captures.c). */
 mitilog_status rules_emit(const rules_rule *rule, const rules_view *view,
-                          rules_severity severity, const char *quantity, double measured,
+                          exam_severity severity, const char *quantity, double measured,
                           const char *unit, const double *limit, double threshold,
-                          ext_index index, const rules_match *match, const char *note,
+                          exam_index index, const rules_match *match, const char *note,
                           rules_result *result, mitilog_error *error);
 
 /* CEM43 over the timeline on the governing index (untimed and unreported

@@ -24,24 +24,11 @@ const char *rules_kind_name(rules_kind kind)
     return kind < RULES_KIND_COUNT ? kind_names[kind] : "unknown";
 }
 
-static const char *const group_names[RULES_GROUP_COUNT] = {
-    "general", "obstetric", "neonatal", "transcranial", "ophthalmic", "contrast"};
 static const char *const age_names[RULES_AGE_COUNT] = {"unknown", "adult", "child", "neonate"};
-static const char *const severity_names[3] = {"advisory", "warning", "violation"};
-
-const char *rules_group_name(rules_group group)
-{
-    return group < RULES_GROUP_COUNT ? group_names[group] : "unknown";
-}
 
 const char *rules_age_name(rules_age age)
 {
     return age < RULES_AGE_COUNT ? age_names[age] : "unknown";
-}
-
-const char *rules_severity_name(rules_severity severity)
-{
-    return severity <= RULES_SEVERITY_VIOLATION ? severity_names[severity] : "unknown";
 }
 
 static int lookup(const char *const *names, int count, const char *text)
@@ -53,30 +40,12 @@ static int lookup(const char *const *names, int count, const char *text)
     return -1;
 }
 
-int rules_group_parse(const char *text, rules_group *group)
-{
-    int found = lookup(group_names, RULES_GROUP_COUNT, text);
-    if (found < 0)
-        return -1;
-    *group = (rules_group)found;
-    return 0;
-}
-
 int rules_age_parse(const char *text, rules_age *age)
 {
     int found = lookup(age_names, RULES_AGE_COUNT, text);
     if (found < 0)
         return -1;
     *age = (rules_age)found;
-    return 0;
-}
-
-int rules_severity_parse(const char *text, rules_severity *severity)
-{
-    int found = lookup(severity_names, 3, text);
-    if (found < 0)
-        return -1;
-    *severity = (rules_severity)found;
     return 0;
 }
 
@@ -95,7 +64,7 @@ static void format_selector(const rules_selector *selector, char separator, char
         snprintf(out, size, "category%c%s", separator, selector->category);
         break;
     case RULES_SELECT_GROUP:
-        snprintf(out, size, "group%c%s", separator, rules_group_name((rules_group)selector->value));
+        snprintf(out, size, "group%c%s", separator, exam_group_name((exam_group)selector->value));
         break;
     case RULES_SELECT_AGE:
         snprintf(out, size, "age%c%s", separator, rules_age_name((rules_age)selector->value));
@@ -112,7 +81,7 @@ static int compare_text(const void *a, const void *b)
 
 static int compare_setting(const void *a, const void *b)
 {
-    return strcmp(((const rules_setting *)a)->key, ((const rules_setting *)b)->key);
+    return strcmp(((const exam_setting *)a)->key, ((const exam_setting *)b)->key);
 }
 
 static int compare_rule(const void *a, const void *b)
@@ -125,7 +94,7 @@ static int compare_rule(const void *a, const void *b)
 
 static int add_setting(rules_rule *rule, const char *key, const char *value)
 {
-    rules_setting *grown = realloc(rule->settings, (rule->setting_count + 1) * sizeof *grown);
+    exam_setting *grown = realloc(rule->settings, (rule->setting_count + 1) * sizeof *grown);
     if (grown == NULL)
         return -1;
     rule->settings = grown;
@@ -188,13 +157,13 @@ static int build_settings(rules_rule *rule)
     char key[200], value[64];
     collapse_spaces(rule->source);
     int failed = add_setting(rule, "enabled", rule->enabled ? "yes" : "no") ||
-                 add_setting(rule, "severity", rules_severity_name(rule->severity)) ||
+                 add_setting(rule, "severity", exam_severity_name(rule->severity)) ||
                  add_selector_list(rule, "applies", rule->applies, rule->applies_count) ||
                  add_selector_list(rule, "except", rule->excepts, rule->except_count);
     if (rule->has_severity_over_limit)
         failed = failed ||
                  add_setting(rule, "severity_over_limit",
-                             rules_severity_name(rule->severity_over_limit));
+                             exam_severity_name(rule->severity_over_limit));
     if (rule->kind == RULES_KIND_FIRST_TRIMESTER_DOPPLER) {
         rules_format_number(rule->before_weeks, value, sizeof value);
         failed = failed || add_setting(rule, "before_weeks", value);
@@ -316,7 +285,7 @@ size_t rules_policy_rule_count(const rules_policy *policy)
     return policy->rule_count;
 }
 
-int rules_policy_rule_at(const rules_policy *policy, size_t index, rules_rule_info *info)
+int rules_policy_rule_at(const rules_policy *policy, size_t index, exam_rule_info *info)
 {
     if (index >= policy->rule_count)
         return -1;

@@ -108,8 +108,8 @@ static int parse_selector(const char *text, rules_selector *selector)
     const char *name = dot + 1;
     size_t kind_length = (size_t)(dot - text);
     if (kind_length == 5 && strncmp(text, "group", 5) == 0) {
-        rules_group group;
-        if (rules_group_parse(name, &group) != 0)
+        exam_group group;
+        if (exam_group_parse(name, &group) != 0)
             return -1;
         selector->kind = RULES_SELECT_GROUP;
         selector->value = (int)group;
@@ -140,9 +140,9 @@ static void selector_reason(const char *text, char separator, char *reason, size
     size_t used = 0;
     int is_group = kind_length == 5 && strncmp(text, "group", 5) == 0;
     int is_age = kind_length == 3 && strncmp(text, "age", 3) == 0;
-    int count = is_group ? RULES_GROUP_COUNT : is_age ? RULES_AGE_COUNT : 0;
+    int count = is_group ? EXAM_GROUP_COUNT : is_age ? RULES_AGE_COUNT : 0;
     for (int i = 0; i < count; i++) {
-        const char *known = is_group ? rules_group_name((rules_group)i) : rules_age_name((rules_age)i);
+        const char *known = is_group ? exam_group_name((exam_group)i) : rules_age_name((rules_age)i);
         int n = snprintf(names + used, sizeof names - used, "%s%s", i ? ", " : "", known);
         if (n > 0 && (size_t)n < sizeof names - used)
             used += (size_t)n;
@@ -248,7 +248,7 @@ static int handle_limit(parse_state *state, rules_rule *rule, const char *sectio
 static int handle_dwell(parse_state *state, rules_rule *rule, const char *section,
                         const char *key, const char *value)
 {
-    rules_dwell_step step = {0, 0, 0};
+    exam_dwell_step step = {0, 0, 0};
     char reason[300];
     if (parse_number(key + strlen("dwell."), &step.threshold) != 0)
         return fail(state, MITILOG_ERROR_INVALID, section, key,
@@ -259,7 +259,7 @@ static int handle_dwell(parse_state *state, rules_rule *rule, const char *sectio
         snprintf(reason, sizeof reason, "'%.200s' is not minutes >= 0 or not_recommended", value);
         return fail(state, MITILOG_ERROR_INVALID, section, key, reason);
     }
-    if (rule->step_count >= RULES_MAX_DWELL_STEPS)
+    if (rule->step_count >= EXAM_MAX_DWELL_STEPS)
         return fail(state, MITILOG_ERROR_INVALID, section, key, "too many thresholds");
     size_t at = rule->step_count;
     for (size_t i = 0; i < rule->step_count; i++) {
@@ -365,8 +365,8 @@ static int handle_rule_key(parse_state *state, rules_rule *rule, const char *sec
         return 0;
     char reason[300];
     if (strcmp(key, "severity") == 0 || strcmp(key, "severity_over_limit") == 0) {
-        rules_severity severity;
-        if (rules_severity_parse(value, &severity) != 0) {
+        exam_severity severity;
+        if (exam_severity_parse(value, &severity) != 0) {
             snprintf(reason, sizeof reason, "'%.200s' is not advisory, warning or violation",
                      value);
             return fail(state, MITILOG_ERROR_INVALID, section, key, reason);

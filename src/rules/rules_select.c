@@ -57,3 +57,35 @@ int rules_rule_limit(const rules_rule *rule, const char *base, const rules_exam 
     }
     return 0;
 }
+
+void rules_policy_limits(const rules_policy *policy, exam_group group, rules_age age,
+                         exam_limits *limits)
+{
+    memset(limits, 0, sizeof *limits);
+    limits->group = group;
+    limits->age_group = rules_age_name(age);
+    rules_exam exam = {.group = group, .age = age};
+    int has_ti = 0, has_mi = 0, has_equipment = 0;
+    for (size_t r = 0; r < policy->rule_count; r++) {
+        const rules_rule *rule = &policy->rules[r];
+        if (!rules_rule_applies(rule, &exam))
+            continue;
+        if (rule->kind == RULES_KIND_TI_CEILING && !has_ti) {
+            has_ti = 1;
+            limits->has_ti_ceiling = rules_rule_limit(rule, "limit", &exam, &limits->ti_ceiling);
+        } else if (rule->kind == RULES_KIND_MI_CEILING && !has_mi) {
+            has_mi = 1;
+            limits->has_mi_ceiling = rules_rule_limit(rule, "limit", &exam, &limits->mi_ceiling);
+        } else if (rule->kind == RULES_KIND_EQUIPMENT_MAXIMA && !has_equipment) {
+            has_equipment = 1;
+            limits->has_mi_equipment =
+                rules_rule_limit(rule, "mi_limit", &exam, &limits->mi_equipment);
+            limits->has_ti_equipment =
+                rules_rule_limit(rule, "ti_limit", &exam, &limits->ti_equipment);
+        } else if (rule->kind == RULES_KIND_DWELL && limits->dwell_rule == NULL) {
+            limits->dwell_rule = rule->id;
+            limits->dwell_count = rule->step_count;
+            memcpy(limits->dwell, rule->steps, rule->step_count * sizeof rule->steps[0]);
+        }
+    }
+}

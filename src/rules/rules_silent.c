@@ -16,8 +16,8 @@ static const char *text_or_empty(const char *text)
 
 static int compare_instance(const void *a, const void *b)
 {
-    const rules_instance *left = *(const rules_instance *const *)a;
-    const rules_instance *right = *(const rules_instance *const *)b;
+    const exam_device_instance *left = *(const exam_device_instance *const *)a;
+    const exam_device_instance *right = *(const exam_device_instance *const *)b;
     int order = strcmp(text_or_empty(left->room), text_or_empty(right->room));
     if (order == 0)
         order = strcmp(text_or_empty(left->transducer), text_or_empty(right->transducer));
@@ -26,14 +26,14 @@ static int compare_instance(const void *a, const void *b)
     return order;
 }
 
-static int same_group(const rules_instance *a, const rules_instance *b)
+static int same_group(const exam_device_instance *a, const exam_device_instance *b)
 {
     return strcmp(text_or_empty(a->room), text_or_empty(b->room)) == 0 &&
            strcmp(text_or_empty(a->transducer), text_or_empty(b->transducer)) == 0;
 }
 
 static mitilog_status emit_group(const rules_rule *rule, const char *version,
-                                 const rules_instance *const *group, size_t count,
+                                 const exam_device_instance *const *group, size_t count,
                                  const char **uids, rules_result *result, mitilog_error *error)
 {
     size_t silent = 0;
@@ -64,7 +64,7 @@ static mitilog_status emit_group(const rules_rule *rule, const char *version,
     input.unit = "instances";
     input.limit = limit;
     input.has_limit = 1;
-    input.index = EXT_INDEX_COUNT;
+    input.index = EXAM_INDEX_COUNT;
     input.instance_uids = uids;
     input.instance_count = silent;
     input.assumptions = note;
@@ -74,7 +74,7 @@ static mitilog_status emit_group(const rules_rule *rule, const char *version,
 }
 
 mitilog_status rules_output_not_reported(const rules_policy *policy,
-                                         const rules_instance *instances, size_t count,
+                                         const exam_device_instance *instances, size_t count,
                                          rules_result *result, mitilog_error *error)
 {
     if (result == NULL)
@@ -90,7 +90,7 @@ mitilog_status rules_output_not_reported(const rules_policy *policy,
     }
     if (rule == NULL || count == 0)
         return MITILOG_OK;
-    const rules_instance **sorted = malloc(count * sizeof *sorted);
+    const exam_device_instance **sorted = malloc(count * sizeof *sorted);
     const char **uids = malloc(count * sizeof *uids);
     mitilog_status status = MITILOG_OK;
     if (sorted == NULL || uids == NULL) {

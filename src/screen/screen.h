@@ -67,7 +67,7 @@ typedef struct screen_value {
 } screen_value;
 
 typedef struct screen_reading {
-    screen_value values[EXT_INDEX_COUNT];
+    screen_value values[EXAM_INDEX_COUNT];
     char profile_key[SCREEN_KEY_SIZE];
     int profile_version;
     char reason[SCREEN_REASON_SIZE]; /* whole-frame refusal, "" if none */
@@ -108,7 +108,7 @@ void screen_combine(const screen_reading *readings, size_t count,
  * administrator); a value with status NOT_READ is unknown. */
 typedef struct screen_example {
     screen_image image;
-    screen_value truth[EXT_INDEX_COUNT];
+    screen_value truth[EXAM_INDEX_COUNT];
 } screen_example;
 
 /* Learns a profile for a device from labelled examples: finds the region

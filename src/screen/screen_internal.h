@@ -60,7 +60,7 @@ struct screen_profile {
     double glyph_threshold;      /* least correlation of a character */
     double glyph_margin;         /* over the next-best other character */
     double label_threshold;      /* least correlation of a label */
-    screen_slot slots[EXT_INDEX_COUNT];
+    screen_slot slots[EXAM_INDEX_COUNT];
     screen_glyph glyphs[SCREEN_GLYPH_MAX];
     size_t glyph_count;
 };
@@ -74,7 +74,7 @@ static inline int screen_text_rows(const screen_profile *profile)
 /* screen_profile.c */
 screen_profile *screen_profile_new(void);
 /* Names as screens show them: "MI", "TIS", ... */
-const char *screen_index_label(ext_index index);
+const char *screen_index_label(exam_index index);
 /* Takes ownership of ink (width*height); computes mean and deviation. */
 void screen_template_set(screen_template *t, int width, int height, unsigned char *ink);
 void screen_template_clear(screen_template *t);

@@ -443,9 +443,10 @@ static int candidate_top(const learn_frame *frames, const learn_candidate *c)
 static int same_place(const learn_frame *frames, const learn_candidate *a,
                       const learn_candidate *b)
 {
+    /* Not the number of label characters: a thin letter may come apart
+     * in one frame and not in another. */
     return abs(candidate_label_x(frames, a) - candidate_label_x(frames, b)) <= 2 &&
            abs(candidate_top(frames, a) - candidate_top(frames, b)) <= 2 &&
-           a->value_first - a->label_first == b->value_first - b->label_first &&
            a->decimals == b->decimals;
 }
 
@@ -500,9 +501,9 @@ static int blob_is_colon(const screen_image *image, const learn_line *line,
  * at least three. */
 static int letters_fit(int index, int letters)
 {
-    if (index == EXT_INDEX_MI)
+    if (index == EXAM_INDEX_MI)
         return letters == 2;
-    if (index == EXT_INDEX_TIS || index == EXT_INDEX_TIB || index == EXT_INDEX_TIC)
+    if (index == EXAM_INDEX_TIS || index == EXAM_INDEX_TIB || index == EXAM_INDEX_TIC)
         return letters == 3;
     return letters >= 3;
 }
@@ -513,13 +514,13 @@ typedef struct learn_search {
     size_t example_count;
     learn_place *places;
     size_t place_count;
-    int indices[EXT_INDEX_COUNT];
+    int indices[EXAM_INDEX_COUNT];
     size_t index_count;
     /* compatible[k][p]: the form (1 + decimals) index k takes at place p,
      * 0 when incompatible */
-    int compatible[EXT_INDEX_COUNT][64];
-    char forms[EXT_INDEX_COUNT][64][8][24]; /* text per example (first 8) */
-    int current[EXT_INDEX_COUNT], best[EXT_INDEX_COUNT], second[EXT_INDEX_COUNT];
+    int compatible[EXAM_INDEX_COUNT][64];
+    char forms[EXAM_INDEX_COUNT][64][8][24]; /* text per example (first 8) */
+    int current[EXAM_INDEX_COUNT], best[EXAM_INDEX_COUNT], second[EXAM_INDEX_COUNT];
     int best_assigned;
     double best_penalty, second_penalty;
     const learn_candidate *candidates;
@@ -571,7 +572,7 @@ static const learn_candidate *place_candidate(const learn_search *search, size_t
  * digits: the same digit drawn unlike itself, or two digits drawn alike. */
 static double assignment_penalty(learn_search *search)
 {
-    enum { SAMPLE_MAX = EXT_INDEX_COUNT * 8 * 6 };
+    enum { SAMPLE_MAX = EXAM_INDEX_COUNT * 8 * 6 };
     learn_sample samples[SAMPLE_MAX];
     size_t n = 0;
     for (size_t k = 0; k < search->index_count; k++) {
@@ -616,6 +617,26 @@ static double assignment_penalty(learn_search *search)
     return penalty;
 }
 
+/* 1 when index k may take place p: a place free so far, or one that shows
+ * other indices never given a value on the same frame as k (one place
+ * showing TIS, TIB or TIC by exam; the labels tell them apart). */
+static int place_free_for(const learn_search *search, size_t k, size_t p, unsigned long used)
+{
+    if (!(used & (1ul << p)))
+        return 1;
+    for (size_t j = 0; j < k; j++) {
+        if (search->current[j] != (int)p)
+            continue;
+        for (size_t e = 0; e < search->example_count; e++) {
+            const screen_value *truth = search->examples[e].truth;
+            if (truth[search->indices[k]].status == SCREEN_VALUE_READ &&
+                truth[search->indices[j]].status == SCREEN_VALUE_READ)
+                return 0;
+        }
+    }
+    return 1;
+}
+
 static void search_assign(learn_search *search, size_t k, int assigned, unsigned long used)
 {
     if (search->evaluations > 20000)
@@ -641,7 +662,7 @@ static void search_assign(learn_search *search, size_t k, int assigned, unsigned
     }
     int any = 0;
     for (size_t p = 0; p < search->place_count; p++) {
-        if (!search->compatible[k][p] || (used & (1ul << p)))
+        if (!search->compatible[k][p] || !place_free_for(search, k, p, used))
             continue;
         any = 1;
         search->current[k] = (int)p;
@@ -658,8 +679,8 @@ static void search_assign(learn_search *search, size_t k, int assigned, unsigned
 static mitilog_status place_indices(const learn_frame *frames, const screen_example *examples,
                                     size_t count, int threshold, learn_candidate *candidates,
                                     size_t *candidate_counts,
-                                    learn_pick (*picks)[EXT_INDEX_COUNT],
-                                    int learned[EXT_INDEX_COUNT], report_buffer *report)
+                                    learn_pick (*picks)[EXAM_INDEX_COUNT],
+                                    int learned[EXAM_INDEX_COUNT], report_buffer *report)
 {
     static const char *const patterns[] = {"0.0", "00.0", "0.00", "00.00"};
     static const int pattern_decimals[] = {1, 1, 2, 2};
@@ -714,7 +735,7 @@ static mitilog_status place_indices(const learn_frame *frames, const screen_exam
     search->candidates = candidates;
     search->places = places;
     search->place_count = place_count;
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         int known = 0;
         for (size_t e = 0; e < count; e++)
             known |= examples[e].truth[i].status == SCREEN_VALUE_READ;
@@ -762,7 +783,7 @@ static mitilog_status place_indices(const learn_frame *frames, const screen_exam
         learned[index] = 0;
         if (p < 0) {
             report_add(report, "%s not learned: its value was not found next to a label\n",
-                       screen_index_label((ext_index)index));
+                       screen_index_label((exam_index)index));
             continue;
         }
         /* Another assignment explaining the digits nearly as well, with
@@ -770,7 +791,7 @@ static mitilog_status place_indices(const learn_frame *frames, const screen_exam
         if (search->second_penalty < search->best_penalty + 0.5 && search->second[k] != p) {
             report_add(report, "%s not learned: the examples do not tell which of two places "
                                "shows it (add a frame whose values differ)\n",
-                       screen_index_label((ext_index)index));
+                       screen_index_label((exam_index)index));
             continue;
         }
         learned[index] = 1;
@@ -862,14 +883,14 @@ static int add_glyph(screen_profile *profile, const screen_image *image, int bac
 /* The learned profile reads every example back: a learned index must read
  * exactly its value where it was found, and nowhere read another. */
 static int verify(const screen_profile *profile, const screen_example *examples, size_t count,
-                  learn_pick picks[][EXT_INDEX_COUNT], report_buffer *report)
+                  learn_pick picks[][EXAM_INDEX_COUNT], report_buffer *report)
 {
     int failures = 0;
     for (size_t e = 0; e < count; e++) {
         screen_reading reading;
         if (screen_read(profile, &examples[e].image, &reading, NULL) != MITILOG_OK)
             return -1;
-        for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+        for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
             if (!profile->slots[i].shown || examples[e].truth[i].status != SCREEN_VALUE_READ)
                 continue;
             const screen_value *v = &reading.values[i];
@@ -877,12 +898,12 @@ static int verify(const screen_profile *profile, const screen_example *examples,
             if (v->status == SCREEN_VALUE_READ &&
                 (expected == NULL || strcmp(v->text, expected) != 0)) {
                 report_add(report, "example %zu: %s read back as %s, given %s\n", e + 1,
-                           screen_index_label((ext_index)i), v->text,
+                           screen_index_label((exam_index)i), v->text,
                            expected ? expected : "a value not drawn");
                 failures++;
             } else if (v->status != SCREEN_VALUE_READ && expected != NULL) {
                 report_add(report, "example %zu: %s not read back: %s\n", e + 1,
-                           screen_index_label((ext_index)i), v->reason);
+                           screen_index_label((exam_index)i), v->reason);
                 failures++;
             }
         }
@@ -923,7 +944,7 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
     learn_frame *frames = calloc(count, sizeof *frames);
     learn_candidate *candidates = malloc(count * LEARN_CANDIDATE_MAX * sizeof *candidates);
     size_t *candidate_counts = calloc(count, sizeof *candidate_counts);
-    learn_pick(*picks)[EXT_INDEX_COUNT] = calloc(count, sizeof *picks);
+    learn_pick(*picks)[EXAM_INDEX_COUNT] = calloc(count, sizeof *picks);
     screen_profile *profile = screen_profile_new();
     const char *problem = NULL;
     if (frames == NULL || candidates == NULL || candidate_counts == NULL || picks == NULL ||
@@ -935,7 +956,7 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
     /* Two passes: the first finds the values with a contrast every screen
      * has; the second segments with half the text's own contrast. */
     int threshold = 0;
-    int learned[EXT_INDEX_COUNT] = {0};
+    int learned[EXAM_INDEX_COUNT] = {0};
     for (int pass = 0; pass < 2; pass++) {
         report.length = 0;
         if (report.text != NULL && report.size > 0)
@@ -958,8 +979,8 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
         /* Two indices found at the very same characters of one example
          * (equal values, one place): that example tells neither apart. */
         for (size_t e = 0; e < count; e++) {
-            for (int i = 0; i < EXT_INDEX_COUNT; i++) {
-                for (int j = i + 1; j < EXT_INDEX_COUNT; j++) {
+            for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
+                for (int j = i + 1; j < EXAM_INDEX_COUNT; j++) {
                     learn_candidate *a = &picks[e][i].candidate, *b = &picks[e][j].candidate;
                     if (picks[e][i].found && picks[e][j].found && a->line == b->line &&
                         a->value_first == b->value_first) {
@@ -969,7 +990,7 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
                 }
             }
         }
-        for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+        for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
             int any = 0;
             for (size_t e = 0; e < count; e++)
                 any |= learned[i] && picks[e][i].found;
@@ -977,13 +998,13 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
                 learned[i] = 0;
                 report_add(&report, "%s not learned: it has the same value at the same "
                                         "place as another index in every example\n",
-                               screen_index_label((ext_index)i));
+                               screen_index_label((exam_index)i));
             }
         }
         if (pass == 1)
             break;
         /* Half the contrast of the values' strokes (their brightest tenth). */
-        for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+        for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
             for (size_t e = 0; e < count && learned[i]; e++) {
                 if (!picks[e][i].found)
                     continue;
@@ -1020,8 +1041,8 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
     }
 
     /* Geometry: one text band for the device's font. */
-    int cap = 0, inner_gap = 0, after_gap = -1, widest = 0, decimals_seen[EXT_INDEX_COUNT];
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    int cap = 0, inner_gap = 0, after_gap = -1, widest = 0, decimals_seen[EXAM_INDEX_COUNT];
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         decimals_seen[i] = 0;
         for (size_t e = 0; e < count && learned[i]; e++) {
             if (!picks[e][i].found)
@@ -1031,7 +1052,7 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
             int baseline = candidate_baseline(frames, c);
             if (decimals_seen[i] != 0 && decimals_seen[i] != c->decimals) {
                 problem = "its values were drawn with different numbers of decimals";
-                report_add(&report, "%s not learned: %s\n", screen_index_label((ext_index)i),
+                report_add(&report, "%s not learned: %s\n", screen_index_label((exam_index)i),
                            problem);
                 learned[i] = 0;
                 break;
@@ -1055,7 +1076,7 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
         }
     }
     int learned_count = 0;
-    for (int i = 0; i < EXT_INDEX_COUNT; i++)
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++)
         learned_count += learned[i];
     if (learned_count == 0) {
         status = mitilog_error_set(error, MITILOG_ERROR_REFUSED,
@@ -1066,17 +1087,17 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
     /* Every index given a value must have been placed: when one was not,
      * the place taken by another could be its own (a label misread, a
      * value not found), and that other would read the wrong index. */
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         int known = 0;
         for (size_t e = 0; e < count; e++)
             known |= examples[e].truth[i].status == SCREEN_VALUE_READ;
         if (known && !learned[i]) {
             status = mitilog_error_set(
                 error, MITILOG_ERROR_REFUSED,
-                "%s was given a value but not found on the screen, so the places found for "
-                "the other indices are not certain either: give values only for the indices "
-                "the screens show, or other frames (see the report)",
-                screen_index_label((ext_index)i));
+                "%s was given a value but not placed for certain (see the report), so the "
+                "places found for the other indices are not certain either: give values "
+                "only for the indices the screens show, or more frames",
+                screen_index_label((exam_index)i));
             goto done;
         }
     }
@@ -1102,7 +1123,7 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
     if (stop_gap <= inner_gap)
         stop_gap = inner_gap + 1;
 
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         screen_slot *slot = &profile->slots[i];
         if (!learned[i])
             continue;
@@ -1141,7 +1162,7 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
         if (screen_cut(&examples[source].image, background, top, bottom, slot->label_x,
                        label_right, &slot->label) != 0) {
             report_add(&report, "%s not learned: its label lies too near the edge of the "
-                                "frame\n", screen_index_label((ext_index)i));
+                                "frame\n", screen_index_label((exam_index)i));
             slot->shown = 0;
             learned[i] = 0;
             continue;
@@ -1162,7 +1183,7 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
                               &problem) != 0) {
                     status = mitilog_error_set(
                         error, MITILOG_ERROR_REFUSED,
-                        "%s in example %zu: %s", screen_index_label((ext_index)i), e + 1,
+                        "%s in example %zu: %s", screen_index_label((exam_index)i), e + 1,
                         problem);
                     goto done;
                 }
@@ -1189,10 +1210,10 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
             missing[missing_length] = '\0';
         }
     }
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         if (learned[i])
             report_add(&report, "%s: label at x=%d, baseline y=%d, %d decimal%s\n",
-                       screen_index_label((ext_index)i), profile->slots[i].label_x,
+                       screen_index_label((exam_index)i), profile->slots[i].label_x,
                        profile->slots[i].baseline, profile->slots[i].decimals,
                        profile->slots[i].decimals == 1 ? "" : "s");
     }

@@ -64,7 +64,7 @@ void screen_profile_free(screen_profile *profile)
 {
     if (profile == NULL)
         return;
-    for (int i = 0; i < EXT_INDEX_COUNT; i++)
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++)
         screen_template_clear(&profile->slots[i].label);
     for (size_t i = 0; i < profile->glyph_count; i++)
         screen_template_clear(&profile->glyphs[i].shape);
@@ -81,11 +81,11 @@ int screen_profile_version(const screen_profile *profile)
     return profile != NULL ? profile->version : 0;
 }
 
-const char *screen_index_label(ext_index index)
+const char *screen_index_label(exam_index index)
 {
-    static const char *const labels[EXT_INDEX_COUNT] = {"MI",  "TIS",       "TIB",
+    static const char *const labels[EXAM_INDEX_COUNT] = {"MI",  "TIS",       "TIB",
                                                         "TIC", "TIS focus", "TIS surface"};
-    return (unsigned)index < EXT_INDEX_COUNT ? labels[index] : "?";
+    return (unsigned)index < EXAM_INDEX_COUNT ? labels[index] : "?";
 }
 
 /* Compares DICOM strings without their padding spaces. */
@@ -190,9 +190,9 @@ mitilog_status screen_profile_to_text(const screen_profile *profile, char **text
            profile->ink_threshold, profile->split_width);
     append(&buffer, "glyph_threshold %.3f\nglyph_margin %.3f\nlabel_threshold %.3f\n",
            profile->glyph_threshold, profile->glyph_margin, profile->label_threshold);
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         const screen_slot *slot = &profile->slots[i];
-        const char *name = ext_index_name((ext_index)i);
+        const char *name = exam_index_name((exam_index)i);
         if (!slot->shown) {
             append(&buffer, "slot %s not_shown\n", name);
             continue;
@@ -220,8 +220,8 @@ mitilog_status screen_profile_to_text(const screen_profile *profile, char **text
 
 static int index_by_name(const char *name)
 {
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
-        if (strcmp(name, ext_index_name((ext_index)i)) == 0)
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
+        if (strcmp(name, exam_index_name((exam_index)i)) == 0)
             return i;
     }
     return -1;
@@ -398,7 +398,7 @@ static const char *check_profile(const screen_profile *profile)
         return "it has no text band or ink threshold";
     int height = screen_text_rows(profile);
     int shown = 0;
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         const screen_slot *slot = &profile->slots[i];
         if (!slot->shown)
             continue;

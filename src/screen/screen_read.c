@@ -73,7 +73,7 @@ static void set_reason(screen_value *value, const char *format, const char *a,
 /* The label of slot for messages: as drawn when known, else the index. */
 static const char *slot_name(const screen_slot *slot, int index)
 {
-    return slot->label_text[0] ? slot->label_text : screen_index_label((ext_index)index);
+    return slot->label_text[0] ? slot->label_text : screen_index_label((exam_index)index);
 }
 
 /* 1 when the text is exactly the device's number format: one or two
@@ -176,7 +176,7 @@ static void read_slot(const screen_profile *profile, const screen_image *image, 
     label_match own = match_label(profile, image, slot);
     /* Another index drawn at the same place (one TI slot that shows TIS,
      * TIB or TIC by exam): its label must not match as well. */
-    for (int other = 0; other < EXT_INDEX_COUNT; other++) {
+    for (int other = 0; other < EXAM_INDEX_COUNT; other++) {
         const screen_slot *neighbour = &profile->slots[other];
         if (other == index || !neighbour->shown ||
             abs(neighbour->label_x - slot->label_x) > 2 * SCREEN_LABEL_SHIFT ||
@@ -236,8 +236,10 @@ static void read_slot(const screen_profile *profile, const screen_image *image, 
             touches = 0;
             break;
         }
+        /* Nor is a point before the first digit (a speck at the label's
+         * edge): the number starts with a digit. */
         int tall = (blobs[i].bottom - blobs[i].top + 1) * 4 > profile->band_above;
-        if (tall || blobs[i].bottom >= baseline - 1)
+        if (tall || (kept > 0 && blobs[i].bottom >= baseline - 1))
             blobs[kept++] = blobs[i];
     }
     count = kept;
@@ -295,13 +297,13 @@ mitilog_status screen_read(const screen_profile *profile, const screen_image *im
     memset(reading, 0, sizeof *reading);
     snprintf(reading->profile_key, sizeof reading->profile_key, "%s", profile->key);
     reading->profile_version = profile->version;
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         reading->values[i].status =
             profile->slots[i].shown ? SCREEN_VALUE_NOT_READ : SCREEN_VALUE_NOT_SHOWN;
         if (!profile->slots[i].shown)
             snprintf(reading->values[i].reason, sizeof reading->values[i].reason,
                      "the device profile says %s is not displayed",
-                     screen_index_label((ext_index)i));
+                     screen_index_label((exam_index)i));
     }
     if (image->grey == NULL || image->width <= 0 || image->height <= 0 ||
         image->stride < (size_t)image->width)
@@ -314,14 +316,14 @@ mitilog_status screen_read(const screen_profile *profile, const screen_image *im
                  image->width, image->height, profile->key, profile->columns,
                  profile->rows);
     if (reading->reason[0] != '\0') {
-        for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+        for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
             if (reading->values[i].status == SCREEN_VALUE_NOT_READ)
                 snprintf(reading->values[i].reason, sizeof reading->values[i].reason, "%s",
                          reading->reason);
         }
         return MITILOG_OK;
     }
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         if (profile->slots[i].shown)
             read_slot(profile, image, i, &reading->values[i]);
     }
@@ -335,7 +337,7 @@ void screen_combine(const screen_reading *readings, size_t count, screen_reading
     memset(combined, 0, sizeof *combined);
     if (readings == NULL || count == 0) {
         snprintf(combined->reason, sizeof combined->reason, "no frame was read");
-        for (int i = 0; i < EXT_INDEX_COUNT; i++)
+        for (int i = 0; i < EXAM_INDEX_COUNT; i++)
             snprintf(combined->values[i].reason, sizeof combined->values[i].reason,
                      "no frame was read");
         return;
@@ -348,7 +350,7 @@ void screen_combine(const screen_reading *readings, size_t count, screen_reading
         every_frame_refused &= readings[f].reason[0] != '\0';
     if (every_frame_refused)
         snprintf(combined->reason, sizeof combined->reason, "%s", readings[0].reason);
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         screen_value *out = &combined->values[i];
         const screen_value *first_read = NULL, *first_refusal = NULL;
         int all_not_shown = 1, disagree = 0;

@@ -17,6 +17,8 @@
 #include <stdio.h>
 #include <string.h>
 
+#include "exam/exam.h"
+
 const sim_room sim_rooms[SIM_ROOM_COUNT] = {
     {"US-ROOM-1", "USROOM1", "SIM0001"},
     {"US-ROOM-2", "USROOM2", "SIM0002"},
@@ -124,24 +126,27 @@ int sim_exam_type_find(const char *key)
 
 static const struct {
     const char *name;
-    unsigned bitmap;
+    unsigned modes;              /* EXAM_MODE_BIT set */
     double mi_factor;
     double ti_factor;
 } sim_mode_table[SIM_MODE_COUNT] = {
-    [SIM_MODE_B] = {"b", SIM_MODE_BIT_2D, 1.00, 1.0},
-    [SIM_MODE_M] = {"m", SIM_MODE_BIT_2D | SIM_MODE_BIT_M, 0.90, 0.7},
-    [SIM_MODE_COLOUR] = {"colour", SIM_MODE_BIT_2D | SIM_MODE_BIT_COLOUR,
+    [SIM_MODE_B] = {"b", EXAM_MODE_BIT(EXAM_MODE_2D), 1.00, 1.0},
+    [SIM_MODE_M] = {"m", EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_M), 0.90, 0.7},
+    [SIM_MODE_COLOUR] = {"colour", EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_COLOUR),
                          0.75, 2.0},
-    [SIM_MODE_POWER] = {"power", SIM_MODE_BIT_2D | SIM_MODE_BIT_POWER, 0.75,
+    [SIM_MODE_POWER] = {"power", EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_POWER), 0.75,
                         2.2},
     [SIM_MODE_PW] = {"pw",
-                     SIM_MODE_BIT_2D | SIM_MODE_BIT_COLOUR | SIM_MODE_BIT_PW,
+                     EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_COLOUR) | EXAM_MODE_BIT(EXAM_MODE_PW),
                      0.55, 4.0},
-    [SIM_MODE_CW] = {"cw", SIM_MODE_BIT_2D | SIM_MODE_BIT_CW, 0.30, 4.5},
-    [SIM_MODE_3D] = {"3d", SIM_MODE_BIT_2D | SIM_MODE_BIT_3D, 0.90, 1.2},
+    [SIM_MODE_CW] = {"cw", EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_CW), 0.30, 4.5},
+    [SIM_MODE_3D] = {"3d", EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_3D), 0.90, 1.2},
 };
 
-unsigned sim_mode_bitmap(sim_mode mode) { return sim_mode_table[mode].bitmap; }
+unsigned sim_mode_bitmap(sim_mode mode)
+{
+    return exam_modes_image_type_bits(sim_mode_table[mode].modes);
+}
 const char *sim_mode_name(sim_mode mode) { return sim_mode_table[mode].name; }
 double sim_mode_mi_factor(sim_mode mode)
 {

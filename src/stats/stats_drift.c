@@ -33,7 +33,7 @@ static int compare_series(const void *left, const void *right)
     return c != 0 ? c : stats_keys_compare(a->room, b->room);
 }
 
-mitilog_status stats_drift(const stats_exam *exams, size_t count, long first_monday,
+mitilog_status stats_drift(const exam_row *exams, size_t count, long first_monday,
                            size_t week_count, size_t baseline_weeks,
                            size_t minimum_baseline, double z_limit,
                            stats_drift_result *result, mitilog_error *error)

@@ -3,7 +3,7 @@
  * the governing index scored against the same series' trailing weeks.
  * docs/domain.md section 5.
  *
- * Pure computation on caller-owned arrays of stats_exam. Series borrow
+ * Pure computation on caller-owned arrays of exam_row (exam/exam.h). Series borrow
  * the input's strings: the input must outlive the result; each series
  * owns its points. stats_drift_result_free() frees what stats_drift()
  * allocated; it accepts a zeroed or partly filled result.
@@ -58,7 +58,7 @@ typedef struct stats_drift_result {
 
 /* exams may span the weeks and their baselines; first_monday is the day
  * number of the first week shown. */
-mitilog_status stats_drift(const stats_exam *exams, size_t count, long first_monday,
+mitilog_status stats_drift(const exam_row *exams, size_t count, long first_monday,
                            size_t week_count, size_t baseline_weeks,
                            size_t minimum_baseline, double z_limit,
                            stats_drift_result *result, mitilog_error *error);

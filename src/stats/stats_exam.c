@@ -1,12 +1,11 @@
 /*
- * stats_exam.c - the thresholds and the dimensions exams are grouped by
+ * stats_exam.c - the dimensions exams are grouped by
  * (stats_exam.h).
  */
 #include "stats/stats_exam.h"
 
 #include <string.h>
 
-const double stats_thresholds[STATS_THRESHOLD_COUNT] = {0.7, 1.0, 1.5, 2.0};
 
 static const char *const dimension_names[] = {"exam_type", "room", "preset", "shift",
                                                "transducer"};
@@ -30,7 +29,7 @@ int stats_dimension_parse(const char *name, stats_dimension *dimension)
     return -1;
 }
 
-const char *stats_exam_key(const stats_exam *exam, stats_dimension dimension)
+const char *stats_exam_key(const exam_row *exam, stats_dimension dimension)
 {
     switch (dimension) {
     case STATS_BY_ROOM: return exam->room;

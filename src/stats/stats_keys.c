@@ -94,7 +94,7 @@ mitilog_status stats_key_groups_fill(stats_key_groups *groups, size_t count, siz
     return MITILOG_OK;
 }
 
-mitilog_status stats_group_by_key(const stats_exam *exams, size_t count,
+mitilog_status stats_group_by_key(const exam_row *exams, size_t count,
                                   stats_dimension dimension, stats_key_groups *groups)
 {
     memset(groups, 0, sizeof *groups);
@@ -109,7 +109,7 @@ mitilog_status stats_group_by_key(const stats_exam *exams, size_t count,
     return stats_key_groups_fill(groups, count, groups->table.count);
 }
 
-mitilog_status stats_group_by_known_key(const stats_exam *exams, size_t count,
+mitilog_status stats_group_by_known_key(const exam_row *exams, size_t count,
                                         stats_dimension dimension,
                                         const stats_key_table *known,
                                         stats_key_groups *groups)

@@ -54,11 +54,11 @@ void stats_key_groups_free(stats_key_groups *groups);
  * within; SIZE_MAX: left out); keys: how many key indices there are. */
 mitilog_status stats_key_groups_fill(stats_key_groups *groups, size_t count, size_t keys);
 /* The exams grouped by their value of a dimension. */
-mitilog_status stats_group_by_key(const stats_exam *exams, size_t count,
+mitilog_status stats_group_by_key(const exam_row *exams, size_t count,
                                   stats_dimension dimension, stats_key_groups *groups);
 /* The exams whose key the table of another grouping holds, grouped by its
  * keys (exams with other keys are left out). */
-mitilog_status stats_group_by_known_key(const stats_exam *exams, size_t count,
+mitilog_status stats_group_by_known_key(const exam_row *exams, size_t count,
                                         stats_dimension dimension,
                                         const stats_key_table *known,
                                         stats_key_groups *groups);

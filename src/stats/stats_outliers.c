@@ -32,10 +32,10 @@ void stats_week_result_free(stats_week_result *result)
 }
 
 /* Adds an exam's findings to a group's tallies. */
-static mitilog_status tally_rules(stats_group *group, const stats_exam *exam)
+static mitilog_status tally_rules(stats_group *group, const exam_row *exam)
 {
     for (size_t r = 0; r < exam->rule_count; r++) {
-        const stats_rule_count *rule = &exam->rules[r];
+        const exam_rule_count *rule = &exam->rules[r];
         size_t j = 0;
         while (j < group->rule_count && !stats_keys_equal(group->rules[j].rule_id, rule->rule_id))
             j++;
@@ -71,7 +71,7 @@ typedef struct member_key {
     size_t index;               /* into the week's exams */
 } member_key;
 
-static member_key member_key_of(const stats_exam *exams, const stats_exam_flag *flags,
+static member_key member_key_of(const exam_row *exams, const stats_exam_flag *flags,
                                 size_t index)
 {
     const stats_exam_flag *flag = &flags[index];
@@ -97,7 +97,7 @@ static int compare_members(const void *left, const void *right)
 
 /* Sorts a group's members (indices into exams) into member order; keys
  * holds at least count entries. */
-static void sort_members(size_t *members, size_t count, const stats_exam *exams,
+static void sort_members(size_t *members, size_t count, const exam_row *exams,
                          const stats_exam_flag *flags, member_key *keys)
 {
     for (size_t m = 0; m < count; m++)
@@ -117,8 +117,8 @@ static int compare_groups(const void *left, const void *right)
     return stats_keys_compare(a->key, b->key);
 }
 
-mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
-                                   const stats_exam *baseline, size_t baseline_count,
+mitilog_status stats_week_outliers(const exam_row *week, size_t week_count,
+                                   const exam_row *baseline, size_t baseline_count,
                                    const stats_week_settings *settings,
                                    stats_dimension by, stats_week_result *result,
                                    mitilog_error *error)
@@ -163,7 +163,7 @@ mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
         base->exam_type = types.table.keys[t];
         size_t n = 0;
         for (size_t at = base_types.start[t]; at < base_types.start[t + 1]; at++) {
-            const stats_exam *exam = &baseline[base_types.members[at]];
+            const exam_row *exam = &baseline[base_types.members[at]];
             if (exam->has_governing)
                 values[n++] = exam->max_governing;
         }
@@ -172,7 +172,7 @@ mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
             base->thin = 1;
             result->any_thin = 1;
             for (size_t at = types.start[t]; at < types.start[t + 1]; at++) {
-                const stats_exam *exam = &week[types.members[at]];
+                const exam_row *exam = &week[types.members[at]];
                 if (exam->has_governing)
                     values[n++] = exam->max_governing;
             }
@@ -215,7 +215,7 @@ mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
         memset(has_type, 0, type_count + 1);
         for (size_t at = keys.start[g]; at < keys.start[g + 1]; at++) {
             size_t i = keys.members[at];
-            const stats_exam *exam = &week[i];
+            const exam_row *exam = &week[i];
             group->members[group->member_count++] = i;
             has_type[types.key_of[i]] = 1;
             group->exam_count++;
@@ -234,7 +234,7 @@ mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
         group->has_median = n > 0;
         group->median_governing = stats_median_of(values, n);
         for (size_t at = keys.start[g]; at < keys.start[g + 1]; at++) {
-            const stats_exam *exam = &week[keys.members[at]];
+            const exam_row *exam = &week[keys.members[at]];
             if (exam->has_mi)
                 values[mi_n++] = exam->max_mi;
         }

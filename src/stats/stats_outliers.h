@@ -5,7 +5,7 @@
  * grouped by a dimension and ranked. docs/domain.md section 5
  * ("Outliers").
  *
- * Pure computation on caller-owned arrays of stats_exam. A result holds
+ * Pure computation on caller-owned arrays of exam_row (exam/exam.h). A result holds
  * indices into the caller's week array and borrows its strings: the input
  * must outlive the result. stats_week_result_free() frees what
  * stats_week_outliers() allocated; it accepts a zeroed or partly filled
@@ -92,8 +92,8 @@ typedef struct stats_week_result {
  * added ("baseline thin"). An exam is an outlier when its governing index
  * has robust z > z_limit or exceeds the baseline P95 (stats_outlier_test).
  * Then grouped by the dimension. MITILOG_ERROR_MEMORY on allocation. */
-mitilog_status stats_week_outliers(const stats_exam *week, size_t week_count,
-                                   const stats_exam *baseline, size_t baseline_count,
+mitilog_status stats_week_outliers(const exam_row *week, size_t week_count,
+                                   const exam_row *baseline, size_t baseline_count,
                                    const stats_week_settings *settings,
                                    stats_dimension by, stats_week_result *result,
                                    mitilog_error *error);

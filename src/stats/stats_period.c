@@ -42,7 +42,7 @@ static int compare_rows(const void *left, const void *right)
 
 /* One row over the exams listed in members (count of them), or over all
  * exams in input order when members is NULL. */
-static void period_row(const stats_exam *exams, const size_t *members, size_t count,
+static void period_row(const exam_row *exams, const size_t *members, size_t count,
                        const char *key, double *values, stats_period_row *row)
 {
 #define MEMBER(at) (&exams[members != NULL ? members[at] : (at)])
@@ -50,7 +50,7 @@ static void period_row(const stats_exam *exams, const size_t *members, size_t co
     row->key = key;
     size_t n = 0;
     for (size_t at = 0; at < count; at++) {
-        const stats_exam *exam = MEMBER(at);
+        const exam_row *exam = MEMBER(at);
         row->exam_count++;
         row->capture_count += exam->capture_count;
         row->indexed_count += exam->indexed_count;
@@ -74,12 +74,12 @@ static void period_row(const stats_exam *exams, const size_t *members, size_t co
             values[n++] = MEMBER(at)->estimated_seconds;
     }
     distribution_of(values, n, &row->estimated_seconds);
-    for (int t = 0; t < STATS_THRESHOLD_COUNT; t++) {
+    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++) {
         stats_threshold_time *time = &row->thresholds[t];
-        time->threshold = stats_thresholds[t];
+        time->threshold = exam_ti_ladder[t];
         n = 0;
         for (size_t at = 0; at < count; at++) {
-            const stats_exam *exam = MEMBER(at);
+            const exam_row *exam = MEMBER(at);
             if (!exam->has_governing)
                 continue;
             double seconds = exam->seconds_at_or_above[t];
@@ -99,7 +99,7 @@ static void period_row(const stats_exam *exams, const size_t *members, size_t co
 #undef MEMBER
 }
 
-mitilog_status stats_period_table(const stats_exam *exams, size_t count,
+mitilog_status stats_period_table(const exam_row *exams, size_t count,
                                   stats_dimension by, stats_period_result *result,
                                   mitilog_error *error)
 {

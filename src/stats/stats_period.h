@@ -6,7 +6,7 @@
  * threshold. docs/domain.md section 5 ("Statistics by exam type").
  * Quantiles are type 7 (stats.h).
  *
- * Pure computation on caller-owned arrays of stats_exam. Rows borrow the
+ * Pure computation on caller-owned arrays of exam_row (exam/exam.h). Rows borrow the
  * input's strings: the input must outlive the result.
  * stats_period_result_free() frees what stats_period_table() allocated;
  * it accepts a zeroed or partly filled result.
@@ -44,7 +44,7 @@ typedef struct stats_period_row {
     stats_distribution governing;
     stats_distribution mi;
     stats_distribution estimated_seconds;
-    stats_threshold_time thresholds[STATS_THRESHOLD_COUNT];
+    stats_threshold_time thresholds[EXAM_TI_STATISTICS_STEPS];
     size_t capture_count, indexed_count;
 } stats_period_row;
 
@@ -54,7 +54,7 @@ typedef struct stats_period_result {
     stats_period_row total;     /* all exams; key NULL */
 } stats_period_result;
 
-mitilog_status stats_period_table(const stats_exam *exams, size_t count,
+mitilog_status stats_period_table(const exam_row *exams, size_t count,
                                   stats_dimension by, stats_period_result *result,
                                   mitilog_error *error);
 void stats_period_result_free(stats_period_result *result);

@@ -145,26 +145,19 @@ mitilog_status store_health_json(store *store, char **json,
                                  mitilog_error *error);
 
 /* ---- ALARA policy and findings (store_findings.c, store_findings_read.c).
- * The store knows no rules: callers (src/ingest, src/cli) flatten a
- * policy and its findings into the plain structs below; every string is
- * borrowed for the call. */
-
-typedef struct store_policy_rule {
-    const char *id, *kind, *severity;   /* "ti_ceiling", "warning" */
-    int enabled;
-    const char *source, *description;
-    const char *const *setting_keys;    /* "limit.group.ophthalmic" */
-    const char *const *setting_values;  /* normalised text: "2", "off" */
-    size_t setting_count;
-} store_policy_rule;
+ * The store knows no rules: callers (src/ingest, src/cli) pass a policy
+ * and its findings as the exam vocabulary's types (exam/exam.h); every
+ * string is borrowed for the call. */
 
 typedef struct store_policy {
     const char *version;                /* SHA-256 hex of the normalised text */
     const char *name;
     const char *normalised_text;
     double closed_after_idle_minutes, gap_cap_seconds;
-    const store_policy_rule *rules;
+    const exam_rule_info *rules;
     size_t rule_count;
+    const exam_limits *limits;          /* per group and age group, for the */
+    size_t limit_count;                 /* dashboard (/api/v1/policy) */
 } store_policy;
 
 /* Writes (or refreshes) the policy row with its rules described as JSON
@@ -175,24 +168,6 @@ mitilog_status store_register_policy(store *store, const store_policy *policy,
 /* Copies the active version ("" when none) into out. */
 void store_active_policy_version(store *store, char out[65]);
 
-typedef struct store_finding {
-    const char *rule_id, *severity, *quantity, *unit;
-    double measured;
-    int has_limit;
-    double limit;
-    double threshold;
-    const char *governing_index;        /* "tib", NULL */
-    const char *const *instance_uids;
-    size_t instance_count;
-    int has_span;
-    double first_seconds, last_seconds; /* ext_iso_to_seconds scale */
-    double estimated_seconds;
-    const char *assumptions, *source;
-    int provisional;
-    const char *room, *transducer;      /* device-level findings */
-} store_finding;
-
-enum { STORE_DWELL_STEPS = 6 };         /* 0.7 1.0 1.5 2.0 2.5 3.0 */
 
 /* One evaluation: of an exam (study_instance_uid set) or of a
  * device-level rule over a period (study_instance_uid NULL, rule_id and
@@ -214,14 +189,9 @@ typedef struct store_evaluation {
     const char *exam_type, *room, *preset, *shift, *transducer, *age_group;
     const char *last_received_at;
     int closed;
-    const store_finding *findings;
+    const exam_finding *findings;
     size_t finding_count;
-    /* exam measurements */
-    const char *governing_index;
-    int has_max_governing, has_max_mi;
-    double max_governing, max_mi;
-    double cem43_minutes, estimated_seconds, doppler_seconds;
-    double seconds_at_or_above[STORE_DWELL_STEPS];
+    const exam_measurements *measurements;  /* of an exam; NULL: device-level */
 } store_evaluation;
 
 typedef struct store_evaluation_counts {
@@ -262,15 +232,12 @@ mitilog_status store_list(store *store, store_list_kind kind, const char *a, con
                           char ***texts, size_t *count, mitilog_error *error);
 void store_texts_free(char **texts, size_t count);
 
-/* Ultrasound instances of one day for rule output_not_reported. */
-typedef struct store_device_instance {
-    char *sop_instance_uid, *study_instance_uid, *room, *transducer, *acquired_at;
-    int has_any_index;
-} store_device_instance;
+/* Ultrasound instances of one day for rule output_not_reported; free
+ * with store_day_instances_free(). */
 mitilog_status store_load_day_instances(store *store, const char *day,
-                                        store_device_instance **instances, size_t *count,
+                                        exam_device_instance **instances, size_t *count,
                                         mitilog_error *error);
-void store_day_instances_free(store_device_instance *instances, size_t count);
+void store_day_instances_free(exam_device_instance *instances, size_t count);
 
 /* GET /api/v1/findings. Filters: NULL or "" = none. */
 typedef struct store_finding_filter {
@@ -287,27 +254,10 @@ mitilog_status store_policy_json(store *store, char **json, mitilog_error *error
 
 /* ---- Statistics reads (store_read_stats.c) ---- */
 
-enum { STORE_THRESHOLD_COUNT = 4 };   /* governing TI 0.7, 1.0, 1.5, 2.0 */
-
-/* One exam for statistics (sql/queries/stats_exam_rows.sql). Strings
- * belong to the store_exam_list that holds the row (NULL: not recorded,
- * or a column not asked for; study_instance_uid is always read). */
-typedef struct store_exam_row {
-    char *study_instance_uid;
-    char *day;                  /* local date of the first capture */
-    char *exam_type, *exam_type_label, *governing_index;
-    double max_governing;       /* when has_max_governing */
-    int has_max_governing;
-    double max_mi;
-    int has_max_mi;
-    char *room, *preset, *shift, *transducer;
-    char *study_description;
-    double estimated_seconds;
-    double seconds_at_or_above[STORE_THRESHOLD_COUNT];
-    long capture_count, indexed_count;
-    long finding_count;
-    char *first_acquired_at;
-} store_exam_row;
+/* The exams of a period are exam_row (exam/exam.h), read by
+ * sql/queries/stats_exam_rows.sql and its shorter variants; their strings
+ * belong to the store_exam_list that holds them (study_instance_uid is
+ * always read). */
 
 /* The text columns store_load_exam_rows copies besides exam_type (the
  * others are left NULL): copying only what a report uses keeps a long
@@ -330,7 +280,7 @@ enum {
  * (a zeroed list is empty). */
 typedef struct store_exam_text_block store_exam_text_block;
 typedef struct store_exam_list {
-    store_exam_row *rows;
+    exam_row *rows;
     size_t count;
     store_exam_text_block *texts;
 } store_exam_list;
@@ -340,7 +290,7 @@ typedef struct store_exam_list {
 mitilog_status store_load_exam_rows(store *store, const char *from_day,
                                     const char *to_day, unsigned columns,
                                     store_exam_list *list, mitilog_error *error);
-/* Only exam_type and the governing maximum (has_max_governing,
+/* Only exam_type and the governing maximum (has_governing,
  * max_governing) of the exams whose day is at or after from_day and
  * before before_day, in no particular order (sql/queries/
  * stats_exam_governing.sql): a baseline. */
@@ -350,18 +300,20 @@ mitilog_status store_load_exam_governing(store *store, const char *from_day,
 void store_exam_list_free(store_exam_list *list);
 
 /* Findings (not superseded) per exam and rule for the same period,
- * ordered by Study Instance UID, then rule. */
-typedef struct store_finding_count {
-    char *study_instance_uid;
-    char *rule_id;
-    long count;
-} store_finding_count;
+ * ordered by Study Instance UID, then rule: counts[i] (the vocabulary's
+ * rule counts, which the period's exam rows point into) is of exam
+ * study_instance_uids[i]. Every string is owned here; free with
+ * store_finding_counts_free() (a zeroed value is empty). */
+typedef struct store_finding_counts {
+    char **study_instance_uids;
+    exam_rule_count *counts;
+    size_t count;
+} store_finding_counts;
 
 mitilog_status store_load_finding_counts(store *store, const char *from_day,
-                                         const char *to_day,
-                                         store_finding_count **rows,
-                                         size_t *count, mitilog_error *error);
-void store_finding_counts_free(store_finding_count *rows, size_t count);
+                                         const char *to_day, store_finding_counts *counts,
+                                         mitilog_error *error);
+void store_finding_counts_free(store_finding_counts *counts);
 
 /* What a report states: the current policy (NULL when none was recorded),
  * the versions of the period's findings ("v1,v2" or NULL) and the first

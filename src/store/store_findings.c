@@ -66,6 +66,23 @@ static const char *store_or_empty(const char *text)
     return text != NULL ? text : "";
 }
 
+/* The room and transducer of a device-level finding (an exam's findings
+ * take the evaluation's). */
+static const char *store_finding_room(const exam_finding *f)
+{
+    return f->study_instance_uid == NULL ? f->room : NULL;
+}
+
+static const char *store_finding_transducer(const exam_finding *f)
+{
+    return f->study_instance_uid == NULL ? f->transducer : NULL;
+}
+
+static const char *store_finding_index(const exam_finding *f)
+{
+    return f->has_index ? exam_index_name(f->index) : NULL;
+}
+
 /* The canonical text an evaluation's hash is computed from. */
 static int store_evaluation_hash(const store_evaluation *e, char out[HASH_HEX_SIZE])
 {
@@ -77,22 +94,27 @@ static int store_evaluation_hash(const store_evaluation *e, char out[HASH_HEX_SI
                    store_or_empty(e->exam_type), store_or_empty(e->room),
                    store_or_empty(e->preset), store_or_empty(e->shift),
                    store_or_empty(e->transducer), store_or_empty(e->age_group), e->closed);
+    const exam_measurements none = {0}, *m = e->measurements != NULL ? e->measurements : &none;
+    exam_index governing = m->governing_index;
     store_text_add(&text, "m=%s|%d:%.17g|%d:%.17g|%.17g|%.17g|%.17g",
-                   store_or_empty(e->governing_index), e->has_max_governing, e->max_governing,
-                   e->has_max_mi, e->max_mi, e->cem43_minutes, e->estimated_seconds,
-                   e->doppler_seconds);
-    for (int i = 0; i < STORE_DWELL_STEPS; i++)
-        store_text_add(&text, "|%.17g", e->seconds_at_or_above[i]);
+                   e->measurements != NULL ? exam_index_name(governing) : "",
+                   m->index_reported[governing], m->max_index[governing],
+                   m->index_reported[EXAM_INDEX_MI], m->max_index[EXAM_INDEX_MI],
+                   m->cem43_minutes, m->estimated_seconds, m->doppler_seconds);
+    for (int i = 0; i < EXAM_TI_STEP_COUNT; i++)
+        store_text_add(&text, "|%.17g", m->seconds_at_or_above[i]);
     for (size_t i = 0; i < e->finding_count; i++) {
-        const store_finding *f = &e->findings[i];
+        const exam_finding *f = &e->findings[i];
         store_text_add(&text, "\nf=%s|%s|%s|%s|%.17g|%d:%.17g|%.17g|%s|%d:%.17g:%.17g|%.17g|%s|"
                        "%s|%d|%s|%s|",
-                       f->rule_id, f->severity, store_or_empty(f->quantity),
-                       store_or_empty(f->unit), f->measured, f->has_limit, f->limit,
-                       f->threshold, store_or_empty(f->governing_index), f->has_span,
-                       f->first_seconds, f->last_seconds, f->estimated_seconds,
-                       store_or_empty(f->assumptions), store_or_empty(f->source),
-                       f->provisional, store_or_empty(f->room), store_or_empty(f->transducer));
+                       f->rule_id, exam_severity_name(f->severity),
+                       store_or_empty(f->quantity), store_or_empty(f->unit), f->measured,
+                       f->has_limit, f->limit, f->threshold,
+                       store_or_empty(store_finding_index(f)), f->has_span, f->first_seconds,
+                       f->last_seconds, f->estimated_seconds, store_or_empty(f->assumptions),
+                       store_or_empty(f->source), f->provisional,
+                       store_or_empty(store_finding_room(f)),
+                       store_or_empty(store_finding_transducer(f)));
         for (size_t k = 0; k < f->instance_count; k++)
             store_text_add(&text, "%s,", f->instance_uids[k]);
     }
@@ -139,13 +161,49 @@ static int store_run(sqlite3_stmt *statement, int rc)
     return rc;
 }
 
+/* One entry of the policy's limits (policy_limits_append.sql) and its
+ * dwell table (policy_dwell_step_append.sql), entry number index. */
+static int store_write_limits(store *st, sqlite3_stmt *limits, sqlite3_stmt *step, const char *version,
+                              size_t index, const exam_limits *l)
+{
+    int rc = store_bind_text_named(st, limits, ":version", version);
+    if (rc == SQLITE_OK) rc = store_bind_text_named(st, limits, ":group", exam_group_name(l->group));
+    if (rc == SQLITE_OK) rc = store_bind_text_named(st, limits, ":age_group", l->age_group);
+    if (rc == SQLITE_OK)
+        rc = store_bind_double_named(st, limits, ":ti_ceiling", l->has_ti_ceiling, l->ti_ceiling);
+    if (rc == SQLITE_OK)
+        rc = store_bind_double_named(st, limits, ":mi_ceiling", l->has_mi_ceiling, l->mi_ceiling);
+    if (rc == SQLITE_OK)
+        rc = store_bind_double_named(st, limits, ":mi_equipment", l->has_mi_equipment,
+                                     l->mi_equipment);
+    if (rc == SQLITE_OK)
+        rc = store_bind_double_named(st, limits, ":ti_equipment", l->has_ti_equipment,
+                                     l->ti_equipment);
+    if (rc == SQLITE_OK) rc = store_bind_text_named(st, limits, ":dwell_rule", l->dwell_rule);
+    rc = store_run(limits, rc);
+    for (size_t k = 0; rc == SQLITE_OK && k < l->dwell_count; k++) {
+        const exam_dwell_step *d = &l->dwell[k];
+        rc = store_bind_text_named(st, step, ":version", version);
+        if (rc == SQLITE_OK) rc = store_bind_int_named(st, step, ":index", (sqlite3_int64)index);
+        if (rc == SQLITE_OK) rc = store_bind_double_named(st, step, ":threshold", 1, d->threshold);
+        if (rc == SQLITE_OK)
+            rc = store_bind_double_named(st, step, ":minutes", !d->not_recommended, d->minutes);
+        if (rc == SQLITE_OK)
+            rc = store_bind_int_named(st, step, ":not_recommended", d->not_recommended != 0);
+        rc = store_run(step, rc);
+    }
+    return rc;
+}
+
 mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog_error *error)
 {
     store_statements set = {0};
     sqlite3_stmt *upsert = store_statement(st, &set, "queries/policy_upsert.sql", error);
     sqlite3_stmt *rule = store_statement(st, &set, "queries/policy_rule_append.sql", error);
     sqlite3_stmt *setting = store_statement(st, &set, "queries/policy_setting_set.sql", error);
-    if (upsert == NULL || rule == NULL || setting == NULL) {
+    sqlite3_stmt *limits = store_statement(st, &set, "queries/policy_limits_append.sql", error);
+    sqlite3_stmt *step = store_statement(st, &set, "queries/policy_dwell_step_append.sql", error);
+    if (upsert == NULL || rule == NULL || setting == NULL || limits == NULL || step == NULL) {
         store_statements_finalize(&set);
         return MITILOG_ERROR_DATABASE;
     }
@@ -162,11 +220,12 @@ mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog
         rc = store_bind_double_named(st, upsert, ":gap_cap_seconds", 1, policy->gap_cap_seconds);
     rc = store_run(upsert, rc);
     for (size_t r = 0; rc == SQLITE_OK && r < policy->rule_count; r++) {
-        const store_policy_rule *info = &policy->rules[r];
+        const exam_rule_info *info = &policy->rules[r];
         rc = store_bind_text_named(st, rule, ":version", policy->version);
         if (rc == SQLITE_OK) rc = store_bind_text_named(st, rule, ":id", info->id);
         if (rc == SQLITE_OK) rc = store_bind_text_named(st, rule, ":kind", info->kind);
-        if (rc == SQLITE_OK) rc = store_bind_text_named(st, rule, ":severity", info->severity);
+        if (rc == SQLITE_OK)
+            rc = store_bind_text_named(st, rule, ":severity", exam_severity_name(info->severity));
         if (rc == SQLITE_OK) rc = store_bind_int_named(st, rule, ":enabled", info->enabled != 0);
         if (rc == SQLITE_OK) rc = store_bind_text_named(st, rule, ":source", info->source);
         if (rc == SQLITE_OK)
@@ -177,12 +236,14 @@ mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog
             if (rc == SQLITE_OK)
                 rc = store_bind_int_named(st, setting, ":rule_index", (sqlite3_int64)r);
             if (rc == SQLITE_OK)
-                rc = store_bind_text_named(st, setting, ":key", info->setting_keys[k]);
+                rc = store_bind_text_named(st, setting, ":key", info->settings[k].key);
             if (rc == SQLITE_OK)
-                rc = store_bind_text_named(st, setting, ":value", info->setting_values[k]);
+                rc = store_bind_text_named(st, setting, ":value", info->settings[k].value);
             rc = store_run(setting, rc);
         }
     }
+    for (size_t k = 0; rc == SQLITE_OK && k < policy->limit_count; k++)
+        rc = store_write_limits(st, limits, step, policy->version, k, &policy->limits[k]);
     mitilog_status status = MITILOG_OK;
     if (rc != SQLITE_OK)
         status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "policy %s: %s",
@@ -192,7 +253,7 @@ mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog
 }
 
 /* Builds a finding's instance_uids JSON array with SQLite (malloc'ed). */
-static int store_uids_json(sqlite3_stmt *append, const store_finding *finding, char **out)
+static int store_uids_json(sqlite3_stmt *append, const exam_finding *finding, char **out)
 {
     char *array = strdup("[]");
     int rc = array != NULL ? SQLITE_OK : SQLITE_NOMEM;
@@ -221,7 +282,7 @@ static int store_uids_json(sqlite3_stmt *append, const store_finding *finding, c
 }
 
 static int store_insert_finding(store *st, sqlite3_stmt *insert, sqlite3_stmt *append,
-                                const store_evaluation *e, const store_finding *f)
+                                const store_evaluation *e, const exam_finding *f)
 {
     char *uids = NULL;
     int rc = store_uids_json(append, f, &uids);
@@ -231,19 +292,20 @@ static int store_insert_finding(store *st, sqlite3_stmt *insert, sqlite3_stmt *a
     } texts[] = {
         {":study_instance_uid", e->study_instance_uid},
         {":rule_id", f->rule_id},
-        {":severity", f->severity},
+        {":severity", exam_severity_name(f->severity)},
         {":quantity", f->quantity},
         {":unit", f->unit},
-        {":governing_index", f->governing_index},
+        {":governing_index", store_finding_index(f)},
         {":instance_uids", uids},
         {":assumptions", f->assumptions},
         {":source_text", f->source},
         {":policy_version", e->policy_version},
         {":exam_type", e->exam_type},
-        {":room", f->room != NULL ? f->room : e->room},
+        {":room", store_finding_room(f) != NULL ? store_finding_room(f) : e->room},
         {":preset", e->preset},
         {":shift", e->shift},
-        {":transducer", f->transducer != NULL ? f->transducer : e->transducer},
+        {":transducer", store_finding_transducer(f) != NULL ? store_finding_transducer(f)
+                                                            : e->transducer},
         {":period", e->study_instance_uid == NULL ? e->period : NULL},
     };
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0]; i++)
@@ -306,29 +368,47 @@ static int store_write_measurements(store *st, sqlite3_stmt *statement, const st
                                     const char *hash)
 {
     int rc = store_bind_text_named(st, statement, ":study_instance_uid", e->study_instance_uid);
+    if (rc == SQLITE_OK) rc = store_bind_text_named(st, statement, ":policy_version", e->policy_version);
+    const exam_measurements *m = e->measurements;
+    exam_index governing = m->governing_index;
     if (rc == SQLITE_OK)
-        rc = store_bind_text_named(st, statement, ":policy_version", e->policy_version);
-    if (rc == SQLITE_OK)
-        rc = store_bind_text_named(st, statement, ":governing_index", e->governing_index);
+        rc = store_bind_text_named(st, statement, ":governing_index", exam_index_name(governing));
     if (rc == SQLITE_OK) rc = store_bind_text_named(st, statement, ":evaluation_hash", hash);
     const struct {
         const char *name;
         int present;
         double value;
     } reals[] = {
-        {":max_governing", e->has_max_governing, e->max_governing},
-        {":max_mi", e->has_max_mi, e->max_mi},
-        {":cem43_minutes", 1, e->cem43_minutes},
-        {":estimated_seconds", 1, e->estimated_seconds},
-        {":doppler_seconds", 1, e->doppler_seconds},
-        {":s07", 1, e->seconds_at_or_above[0]}, {":s10", 1, e->seconds_at_or_above[1]},
-        {":s15", 1, e->seconds_at_or_above[2]}, {":s20", 1, e->seconds_at_or_above[3]},
-        {":s25", 1, e->seconds_at_or_above[4]}, {":s30", 1, e->seconds_at_or_above[5]},
+        {":max_governing", m->index_reported[governing], m->max_index[governing]},
+        {":max_mi", m->index_reported[EXAM_INDEX_MI], m->max_index[EXAM_INDEX_MI]},
+        {":cem43_minutes", 1, m->cem43_minutes},
+        {":estimated_seconds", 1, m->estimated_seconds},
+        {":doppler_seconds", 1, m->doppler_seconds},
     };
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof reals / sizeof reals[0]; i++)
         rc = store_bind_double_named(st, statement, reals[i].name, reals[i].present,
                                      reals[i].value);
     return store_run(statement, rc);
+}
+
+/* The evaluation's time at or above each threshold of the TI ladder, as
+ * rows (after its measurements row, which they refer to). */
+static int store_write_time_at_or_above(store *st, sqlite3_stmt *removal, sqlite3_stmt *insert,
+                                        const store_evaluation *e)
+{
+    int rc = store_bind_text_named(st, removal, ":study_instance_uid", e->study_instance_uid);
+    if (rc == SQLITE_OK) rc = store_bind_text_named(st, removal, ":policy_version", e->policy_version);
+    rc = store_run(removal, rc);
+    for (int k = 0; rc == SQLITE_OK && k < EXAM_TI_STEP_COUNT; k++) {
+        rc = store_bind_text_named(st, insert, ":study_instance_uid", e->study_instance_uid);
+        if (rc == SQLITE_OK) rc = store_bind_text_named(st, insert, ":policy_version", e->policy_version);
+        if (rc == SQLITE_OK) rc = store_bind_double_named(st, insert, ":threshold", 1, exam_ti_ladder[k]);
+        if (rc == SQLITE_OK)
+            rc = store_bind_double_named(st, insert, ":seconds", 1,
+                                         e->measurements->seconds_at_or_above[k]);
+        rc = store_run(insert, rc);
+    }
+    return rc;
 }
 
 mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
@@ -358,8 +438,15 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
                                            exam ? "queries/exam_measurements_upsert.sql"
                                                 : "queries/device_evaluation_upsert.sql",
                                            error);
+    sqlite3_stmt *times_removal =
+        exam ? store_statement(st, &set, "queries/measurement_time_at_or_above_delete.sql", error)
+             : NULL;
+    sqlite3_stmt *times_insert =
+        exam ? store_statement(st, &set, "queries/measurement_time_at_or_above_insert.sql", error)
+             : NULL;
     if (ensure == NULL || stored == NULL || (exam && context == NULL) || removal == NULL ||
-        supersede == NULL || insert == NULL || append == NULL || values == NULL) {
+        supersede == NULL || insert == NULL || append == NULL || values == NULL ||
+        (exam && (times_removal == NULL || times_insert == NULL))) {
         store_statements_finalize(&set);
         return MITILOG_ERROR_DATABASE;
     }
@@ -405,6 +492,8 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
         }
         if (rc == SQLITE_OK && exam) {
             rc = store_write_measurements(st, values, e, hash);
+            if (rc == SQLITE_OK)
+                rc = store_write_time_at_or_above(st, times_removal, times_insert, e);
         } else if (rc == SQLITE_OK) {
             rc = store_bind_text_named(st, values, ":rule_id", e->rule_id);
             if (rc == SQLITE_OK)

@@ -2,14 +2,17 @@
  * store_findings_read.c - the read side of the ALARA policy engine: what
  * an evaluation needs (a study's context, lists of studies and days, the
  * instances of a day) and the JSON of GET /api/v1/findings and
- * /api/v1/policy. Read connection, under reader_lock; statements are
- * prepared per call (sqlite3_prepare is cheap next to these queries).
+ * /api/v1/policy. Read connection, under reader_lock; statements come from the
+ * reader's statement cache (store_cached_statement) and live until
+ * store_close().
  */
 #include "store/store_internal.h"
 
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+
+#include "extract/ext_timeline.h"
 
 enum { STORE_FINDINGS_LIMIT_DEFAULT = 1000, STORE_FINDINGS_LIMIT_MAX = 10000 };
 
@@ -161,20 +164,19 @@ mitilog_status store_list(store *st, store_list_kind kind, const char *a, const 
     return status;
 }
 
-void store_day_instances_free(store_device_instance *instances, size_t count)
+void store_day_instances_free(exam_device_instance *instances, size_t count)
 {
     for (size_t i = 0; instances != NULL && i < count; i++) {
-        free(instances[i].sop_instance_uid);
-        free(instances[i].study_instance_uid);
-        free(instances[i].room);
-        free(instances[i].transducer);
-        free(instances[i].acquired_at);
+        free((char *)instances[i].sop_instance_uid);
+        free((char *)instances[i].study_instance_uid);
+        free((char *)instances[i].room);
+        free((char *)instances[i].transducer);
     }
     free(instances);
 }
 
 mitilog_status store_load_day_instances(store *st, const char *day,
-                                        store_device_instance **instances, size_t *count,
+                                        exam_device_instance **instances, size_t *count,
                                         mitilog_error *error)
 {
     *instances = NULL;
@@ -192,7 +194,7 @@ mitilog_status store_load_day_instances(store *st, const char *day,
             rc = SQLITE_OK;
             if (*count == capacity) {
                 size_t grown = capacity ? capacity * 2 : 64;
-                store_device_instance *array = realloc(*instances, grown * sizeof *array);
+                exam_device_instance *array = realloc(*instances, grown * sizeof *array);
                 if (array == NULL) {
                     rc = SQLITE_NOMEM;
                     break;
@@ -200,7 +202,7 @@ mitilog_status store_load_day_instances(store *st, const char *day,
                 *instances = array;
                 capacity = grown;
             }
-            store_device_instance *instance = &(*instances)[(*count)++];
+            exam_device_instance *instance = &(*instances)[(*count)++];
             int failed = 0;
             memset(instance, 0, sizeof *instance);
             instance->sop_instance_uid = store_copy(statement, 0, &failed);
@@ -208,7 +210,11 @@ mitilog_status store_load_day_instances(store *st, const char *day,
             instance->room = store_copy(statement, 2, &failed);
             instance->transducer = store_copy(statement, 3, &failed);
             instance->has_any_index = sqlite3_column_int(statement, 4) != 0;
-            instance->acquired_at = store_copy(statement, 5, &failed);
+            const unsigned char *acquired_at = sqlite3_column_text(statement, 5);
+            double seconds =
+                acquired_at != NULL ? ext_iso_to_seconds((const char *)acquired_at) : -1;
+            instance->time_seconds = seconds;
+            instance->has_time = seconds >= 0;
             if (failed) {
                 rc = SQLITE_NOMEM;
                 break;

@@ -8,6 +8,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "exam/exam.h"
 #include "store/sql_files.h"
 #include "util/log.h"
 
@@ -198,6 +199,104 @@ static mitilog_status store_configure_writer(sqlite3 *db, const char *path,
     return store_exec_file(db, "queries/pragma_writer.sql", error);
 }
 
+/* 1 when the database's TI ladder (ti_thresholds) and mode names
+ * (mode_names) are the exam vocabulary's, 0 when not, -1 on error;
+ * *ladder_matches tells which. */
+static int store_vocabulary_matches(sqlite3 *db, int *ladder_matches, mitilog_error *error)
+{
+    sqlite3_stmt *ladder = NULL, *modes = NULL;
+    if (store_prepare(db, "queries/ti_thresholds_select.sql", &ladder, error) != MITILOG_OK ||
+        store_prepare(db, "queries/mode_names_select.sql", &modes, error) != MITILOG_OK) {
+        sqlite3_finalize(ladder);
+        return -1;
+    }
+    int thresholds_match = 1, modes_match = 1, count = 0, rc;
+    while ((rc = sqlite3_step(ladder)) == SQLITE_ROW) {
+        if (count >= EXAM_TI_STEP_COUNT ||
+            sqlite3_column_double(ladder, 0) != exam_ti_ladder[count])
+            thresholds_match = 0;
+        count++;
+    }
+    if (count != EXAM_TI_STEP_COUNT)
+        thresholds_match = 0;
+    int result = rc == SQLITE_DONE ? 0 : -1;
+    count = 0;
+    while (result == 0 && (rc = sqlite3_step(modes)) == SQLITE_ROW) {
+        const char *name = (const char *)sqlite3_column_text(modes, 1);
+        if (count >= EXAM_MODE_COUNT || sqlite3_column_int(modes, 0) != count ||
+            name == NULL || strcmp(name, exam_mode_name((exam_mode)count)) != 0)
+            modes_match = 0;
+        count++;
+    }
+    if (result == 0 && rc != SQLITE_DONE)
+        result = -1;
+    if (count != EXAM_MODE_COUNT)
+        modes_match = 0;
+    if (result < 0)
+        store_sql_error(error, db, "vocabulary of the database");
+    sqlite3_finalize(ladder);
+    sqlite3_finalize(modes);
+    *ladder_matches = thresholds_match;
+    return result < 0 ? -1 : thresholds_match && modes_match;
+}
+
+/* Makes the database's TI ladder and mode names the exam vocabulary's
+ * (exam_ti_ladder, exam_mode_name()), in one transaction: when the ladder
+ * differs, the thresholds are replaced and every exam's time at or above
+ * them recomputed; when a mode name differs, the names are replaced
+ * (a mode keeps its bit position: modes are only ever added at the end).
+ * Another process that did it meanwhile leaves nothing to do. */
+static mitilog_status store_sync_vocabulary(sqlite3 *db, const char *path, mitilog_error *error)
+{
+    int ladder_matches = 1;
+    int matches = store_vocabulary_matches(db, &ladder_matches, error);
+    if (matches != 0)
+        return matches > 0 ? MITILOG_OK : MITILOG_ERROR_DATABASE;
+    mitilog_status status = store_exec_file(db, "queries/write_begin.sql", error);
+    if (status != MITILOG_OK)
+        return status;
+    matches = store_vocabulary_matches(db, &ladder_matches, error);
+    if (matches < 0)
+        status = MITILOG_ERROR_DATABASE;
+    if (matches == 0 && !ladder_matches) {
+        status = store_exec_file(db, "queries/ti_thresholds_delete.sql", error);
+        sqlite3_stmt *insert = NULL;
+        if (status == MITILOG_OK)
+            status = store_prepare(db, "queries/ti_threshold_insert.sql", &insert, error);
+        for (int k = 0; status == MITILOG_OK && k < EXAM_TI_STEP_COUNT; k++) {
+            if (sqlite3_bind_double(insert, 1, exam_ti_ladder[k]) != SQLITE_OK ||
+                store_step_done(insert) != SQLITE_DONE)
+                status = store_sql_error(error, db, "queries/ti_threshold_insert.sql");
+        }
+        sqlite3_finalize(insert);
+        if (status == MITILOG_OK)
+            status = store_exec_file(db, "queries/exam_time_at_or_above_refresh_all.sql", error);
+    }
+    if (status == MITILOG_OK && matches == 0) {
+        status = store_exec_file(db, "queries/mode_names_delete.sql", error);
+        sqlite3_stmt *insert = NULL;
+        if (status == MITILOG_OK)
+            status = store_prepare(db, "queries/mode_name_insert.sql", &insert, error);
+        for (int m = 0; status == MITILOG_OK && m < EXAM_MODE_COUNT; m++) {
+            if (sqlite3_bind_int(insert, 1, m) != SQLITE_OK ||
+                sqlite3_bind_text(insert, 2, exam_mode_name((exam_mode)m), -1, SQLITE_STATIC) !=
+                    SQLITE_OK ||
+                store_step_done(insert) != SQLITE_DONE)
+                status = store_sql_error(error, db, "queries/mode_name_insert.sql");
+        }
+        sqlite3_finalize(insert);
+    }
+    if (status == MITILOG_OK)
+        status = store_exec_file(db, "queries/write_commit.sql", error);
+    if (status != MITILOG_OK) {
+        store_exec_file(db, "queries/write_rollback.sql", NULL);
+        return status;
+    }
+    if (matches == 0 && !ladder_matches)
+        log_info("database %s: TI threshold ladder updated, time at or above recomputed", path);
+    return MITILOG_OK;
+}
+
 mitilog_status store_open(const char *path, int busy_timeout_ms, store **out,
                           mitilog_error *error)
 {
@@ -226,6 +325,8 @@ mitilog_status store_open(const char *path, int busy_timeout_ms, store **out,
     if (status == MITILOG_OK)
         status = store_migrate(opened->writer, path, &opened->schema_version,
                                error);
+    if (status == MITILOG_OK)
+        status = store_sync_vocabulary(opened->writer, path, error);
     if (status == MITILOG_OK)
         status = store_write_prepare(opened, error);
     /* The read connection is opened after the migrations, read-only. */

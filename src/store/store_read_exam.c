@@ -19,13 +19,13 @@ static char *store_column_copy(sqlite3_stmt *statement, int column, int *failed)
     return copy;
 }
 
-static ext_value_status store_status_of(const unsigned char *text)
+static exam_value_status store_status_of(const unsigned char *text)
 {
     if (text == NULL)
-        return EXT_VALUE_MISSING;
+        return EXAM_VALUE_MISSING;
     if (strcmp((const char *)text, "ok") == 0)
-        return EXT_VALUE_OK;
-    return strcmp((const char *)text, "invalid") == 0 ? EXT_VALUE_INVALID : EXT_VALUE_MISSING;
+        return EXAM_VALUE_OK;
+    return strcmp((const char *)text, "invalid") == 0 ? EXAM_VALUE_INVALID : EXAM_VALUE_MISSING;
 }
 
 static int store_fill_instance(sqlite3_stmt *statement, ext_exam_instance *instance)
@@ -39,9 +39,9 @@ static int store_fill_instance(sqlite3_stmt *statement, ext_exam_instance *insta
     instance->exam_type_source = store_column_copy(statement, 4, &failed);
     instance->is_capture = sqlite3_column_int(statement, 5) != 0 && instance->kind != NULL &&
                            strcmp(instance->kind, "sr") != 0;
-    for (int x = 0; x < EXT_INDEX_COUNT; x++) {
+    for (int x = 0; x < EXAM_INDEX_COUNT; x++) {
         instance->indices[x].status = store_status_of(sqlite3_column_text(statement, 7 + 2 * x));
-        if (instance->indices[x].status == EXT_VALUE_OK)
+        if (instance->indices[x].status == EXAM_VALUE_OK)
             instance->indices[x].value = sqlite3_column_double(statement, 6 + 2 * x);
     }
     instance->modes = (unsigned)sqlite3_column_int64(statement, 18);

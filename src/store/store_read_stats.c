@@ -110,17 +110,17 @@ void store_exam_list_free(store_exam_list *list)
 }
 
 /* Appends a zeroed row; NULL when out of memory. */
-static store_exam_row *store_list_add(store_exam_list *list, size_t *capacity)
+static exam_row *store_list_add(store_exam_list *list, size_t *capacity)
 {
     if (list->count == *capacity) {
         size_t grown_capacity = *capacity ? *capacity * 2 : 256;
-        store_exam_row *grown = realloc(list->rows, grown_capacity * sizeof *grown);
+        exam_row *grown = realloc(list->rows, grown_capacity * sizeof *grown);
         if (grown == NULL)
             return NULL;
         list->rows = grown;
         *capacity = grown_capacity;
     }
-    store_exam_row *row = &list->rows[list->count++];
+    exam_row *row = &list->rows[list->count++];
     memset(row, 0, sizeof *row);
     return row;
 }
@@ -129,8 +129,7 @@ static store_exam_row *store_list_add(store_exam_list *list, size_t *capacity)
 enum {
     EXAM_UID, EXAM_DAY, EXAM_TYPE, EXAM_TYPE_LABEL, EXAM_GOVERNING_INDEX, EXAM_MAX_GOVERNING,
     EXAM_MAX_MI, EXAM_ROOM, EXAM_PRESET, EXAM_SHIFT, EXAM_TRANSDUCER, EXAM_DESCRIPTION,
-    EXAM_ESTIMATED, EXAM_SECONDS, EXAM_CAPTURES = EXAM_SECONDS + STORE_THRESHOLD_COUNT,
-    EXAM_INDEXED, EXAM_FINDINGS, EXAM_FIRST_ACQUIRED
+    EXAM_ESTIMATED, EXAM_CAPTURES, EXAM_INDEXED, EXAM_FINDINGS, EXAM_FIRST_ACQUIRED
 };
 
 /* The queries the loader chooses from. */
@@ -150,7 +149,7 @@ enum {
 /* Columns of stats_exam_values.sql. */
 enum {
     VALUES_TYPE, VALUES_KEY, VALUES_MAX_GOVERNING, VALUES_MAX_MI, VALUES_ESTIMATED,
-    VALUES_SECONDS, VALUES_CAPTURES = VALUES_SECONDS + STORE_THRESHOLD_COUNT, VALUES_INDEXED,
+    VALUES_CAPTURES, VALUES_INDEXED,
     VALUES_FINDINGS, VALUES_UID
 };
 
@@ -170,7 +169,7 @@ static const char *store_key_name(unsigned columns)
 }
 
 /* Where a row of stats_exam_values.sql puts its key. */
-static char **store_key_field(store_exam_row *row, unsigned columns)
+static const char **store_key_field(exam_row *row, unsigned columns)
 {
     if (columns & STORE_EXAM_ROOM)
         return &row->room;
@@ -183,14 +182,21 @@ static char **store_key_field(store_exam_row *row, unsigned columns)
     return NULL;
 }
 
+/* A count column (never negative). */
+static size_t store_count(sqlite3_stmt *statement, int column)
+{
+    sqlite3_int64 value = sqlite3_column_int64(statement, column);
+    return value > 0 ? (size_t)value : 0;
+}
+
 /* One row of the chosen query. */
-static int store_exam_row_read(store_exam_list *list, store_exam_row *row,
+static int exam_row_read(store_exam_list *list, exam_row *row,
                                sqlite3_stmt *statement, unsigned columns, store_exam_query query)
 {
     int failed = 0;
     if (query == STORE_QUERY_GOVERNING) {
         row->exam_type = store_list_text(list, statement, 0, &failed);
-        row->max_governing = store_double(statement, 1, &row->has_max_governing);
+        row->max_governing = store_double(statement, 1, &row->has_governing);
         return failed;
     }
     if (query == STORE_QUERY_SERIES) {
@@ -201,26 +207,24 @@ static int store_exam_row_read(store_exam_list *list, store_exam_row *row,
         if (columns & STORE_EXAM_PRESET)
             row->preset = store_list_text(list, statement, SERIES_PRESET, &failed);
         row->max_governing =
-            store_double(statement, SERIES_MAX_GOVERNING, &row->has_max_governing);
-        row->capture_count = (long)sqlite3_column_int64(statement, SERIES_CAPTURES);
-        row->indexed_count = (long)sqlite3_column_int64(statement, SERIES_INDEXED);
+            store_double(statement, SERIES_MAX_GOVERNING, &row->has_governing);
+        row->capture_count = store_count(statement, SERIES_CAPTURES);
+        row->indexed_count = store_count(statement, SERIES_INDEXED);
         row->study_instance_uid = store_list_text(list, statement, SERIES_UID, &failed);
         return failed;
     }
     if (query == STORE_QUERY_VALUES) {
         row->exam_type = store_list_text(list, statement, VALUES_TYPE, &failed);
-        char **key = store_key_field(row, columns);
+        const char **key = store_key_field(row, columns);
         if (key != NULL)
             *key = store_list_text(list, statement, VALUES_KEY, &failed);
         row->max_governing =
-            store_double(statement, VALUES_MAX_GOVERNING, &row->has_max_governing);
-        row->max_mi = store_double(statement, VALUES_MAX_MI, &row->has_max_mi);
+            store_double(statement, VALUES_MAX_GOVERNING, &row->has_governing);
+        row->max_mi = store_double(statement, VALUES_MAX_MI, &row->has_mi);
         row->estimated_seconds = store_double(statement, VALUES_ESTIMATED, NULL);
-        for (int t = 0; t < STORE_THRESHOLD_COUNT; t++)
-            row->seconds_at_or_above[t] = store_double(statement, VALUES_SECONDS + t, NULL);
-        row->capture_count = (long)sqlite3_column_int64(statement, VALUES_CAPTURES);
-        row->indexed_count = (long)sqlite3_column_int64(statement, VALUES_INDEXED);
-        row->finding_count = (long)sqlite3_column_int64(statement, VALUES_FINDINGS);
+        row->capture_count = store_count(statement, VALUES_CAPTURES);
+        row->indexed_count = store_count(statement, VALUES_INDEXED);
+        row->finding_count = store_count(statement, VALUES_FINDINGS);
         row->study_instance_uid = store_list_text(list, statement, VALUES_UID, &failed);
         return failed;
     }
@@ -243,14 +247,12 @@ static int store_exam_row_read(store_exam_list *list, store_exam_row *row,
         row->shift = store_list_text(list, statement, EXAM_SHIFT, &failed);
     if (columns & STORE_EXAM_TRANSDUCER)
         row->transducer = store_list_text(list, statement, EXAM_TRANSDUCER, &failed);
-    row->max_governing = store_double(statement, EXAM_MAX_GOVERNING, &row->has_max_governing);
-    row->max_mi = store_double(statement, EXAM_MAX_MI, &row->has_max_mi);
+    row->max_governing = store_double(statement, EXAM_MAX_GOVERNING, &row->has_governing);
+    row->max_mi = store_double(statement, EXAM_MAX_MI, &row->has_mi);
     row->estimated_seconds = store_double(statement, EXAM_ESTIMATED, NULL);
-    for (int t = 0; t < STORE_THRESHOLD_COUNT; t++)
-        row->seconds_at_or_above[t] = store_double(statement, EXAM_SECONDS + t, NULL);
-    row->capture_count = (long)sqlite3_column_int64(statement, EXAM_CAPTURES);
-    row->indexed_count = (long)sqlite3_column_int64(statement, EXAM_INDEXED);
-    row->finding_count = (long)sqlite3_column_int64(statement, EXAM_FINDINGS);
+    row->capture_count = store_count(statement, EXAM_CAPTURES);
+    row->indexed_count = store_count(statement, EXAM_INDEXED);
+    row->finding_count = store_count(statement, EXAM_FINDINGS);
     return failed;
 }
 
@@ -258,8 +260,46 @@ static int store_exam_row_read(store_exam_list *list, store_exam_row *row,
  * length) is strcmp's order on these NUL-free strings; UIDs are unique. */
 static int store_compare_rows(const void *left, const void *right)
 {
-    const store_exam_row *a = left, *b = right;
+    const exam_row *a = left, *b = right;
     return strcmp(a->study_instance_uid, b->study_instance_uid);
+}
+
+/* Puts the times at or above the statistics' thresholds
+ * (stats_exam_time_at_or_above.sql) on the rows, sorted by UID. */
+static mitilog_status store_load_time_at_or_above(store *st, const char *from_day,
+                                                  const char *to_day, store_exam_list *list,
+                                                  mitilog_error *error)
+{
+    static const char name[] = "queries/stats_exam_time_at_or_above.sql";
+    sqlite3_stmt *statement = NULL;
+    mitilog_status status = store_period_statement(st, name, from_day, to_day, &statement,
+                                                   error);
+    if (status == MITILOG_OK &&
+        sqlite3_bind_double(statement, 3, exam_ti_ladder[EXAM_TI_STATISTICS_STEPS - 1]) !=
+            SQLITE_OK)
+        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: bind failed", name);
+    int rc = SQLITE_DONE;
+    exam_row *row = NULL;
+    while (status == MITILOG_OK && (rc = sqlite3_step(statement)) == SQLITE_ROW) {
+        /* An exam's rows come one after another: one search per exam. */
+        const char *uid = (const char *)sqlite3_column_text(statement, 0);
+        if (uid == NULL) {
+            row = NULL;
+            continue;
+        }
+        if (row == NULL || strcmp(row->study_instance_uid, uid) != 0) {
+            exam_row key = {.study_instance_uid = uid};
+            row = bsearch(&key, list->rows, list->count, sizeof *list->rows, store_compare_rows);
+        }
+        double threshold = sqlite3_column_double(statement, 1);
+        for (int k = 0; row != NULL && k < EXAM_TI_STATISTICS_STEPS; k++)
+            if (exam_ti_ladder[k] == threshold)
+                row->seconds_at_or_above[k] = sqlite3_column_double(statement, 2);
+    }
+    if (status == MITILOG_OK && rc != SQLITE_DONE)
+        status = store_sql_error(error, st->reader, name);
+    sqlite3_finalize(statement);
+    return status;
 }
 
 static mitilog_status store_load_exams(store *st, store_exam_query query, const char *from_day,
@@ -284,24 +324,39 @@ static mitilog_status store_load_exams(store *st, store_exam_query query, const 
             SQLITE_OK)
         status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: bind failed",
                                    names[query]);
+    /* The rows and their times from one snapshot. */
+    int timed = query == STORE_QUERY_ROWS || query == STORE_QUERY_VALUES;
+    int in_transaction = 0;
+    if (status == MITILOG_OK && timed) {
+        status = store_exec_file(st->reader, "queries/read_begin.sql", error);
+        in_transaction = status == MITILOG_OK;
+    }
     int rc = SQLITE_DONE;
     while (status == MITILOG_OK && (rc = sqlite3_step(statement)) == SQLITE_ROW) {
-        store_exam_row *row = store_list_add(list, &capacity);
-        if (row == NULL || store_exam_row_read(list, row, statement, columns, query))
+        exam_row *row = store_list_add(list, &capacity);
+        if (row == NULL || exam_row_read(list, row, statement, columns, query))
             status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "exam rows: out of memory");
     }
     if (status == MITILOG_OK && rc != SQLITE_DONE)
         status = store_sql_error(error, st->reader, "query exam rows");
     sqlite3_finalize(statement);
+    /* Sorted here rather than by the query: SQLite's sorter copied every
+     * row into a record and back, about as much work as the scan. */
+    if (status == MITILOG_OK && query != STORE_QUERY_GOVERNING && list->count > 1)
+        qsort(list->rows, list->count, sizeof *list->rows, store_compare_rows);
+    if (status == MITILOG_OK && timed)
+        status = store_load_time_at_or_above(st, from_day, to_day, list, error);
+    if (in_transaction) {
+        mitilog_status ended = store_exec_file(st->reader, "queries/read_end.sql",
+                                               status == MITILOG_OK ? error : NULL);
+        if (status == MITILOG_OK)
+            status = ended;
+    }
     pthread_mutex_unlock(&st->reader_lock);
     if (status != MITILOG_OK) {
         store_exam_list_free(list);
         return status;
     }
-    /* Sorted here rather than by the query: SQLite's sorter copied every
-     * row into a record and back, about as much work as the scan. */
-    if (query != STORE_QUERY_GOVERNING && list->count > 1)
-        qsort(list->rows, list->count, sizeof *list->rows, store_compare_rows);
     return MITILOG_OK;
 }
 
@@ -329,47 +384,51 @@ mitilog_status store_load_exam_governing(store *st, const char *from_day,
     return store_load_exams(st, STORE_QUERY_GOVERNING, from_day, before_day, 0, list, error);
 }
 
-void store_finding_counts_free(store_finding_count *rows, size_t count)
+void store_finding_counts_free(store_finding_counts *counts)
 {
-    for (size_t i = 0; rows != NULL && i < count; i++) {
-        free(rows[i].study_instance_uid);
-        free(rows[i].rule_id);
+    for (size_t i = 0; i < counts->count; i++) {
+        free(counts->study_instance_uids[i]);
+        free((char *)counts->counts[i].rule_id);
     }
-    free(rows);
+    free(counts->study_instance_uids);
+    free(counts->counts);
+    memset(counts, 0, sizeof *counts);
 }
 
 mitilog_status store_load_finding_counts(store *st, const char *from_day, const char *to_day,
-                                         store_finding_count **rows, size_t *count,
-                                         mitilog_error *error)
+                                         store_finding_counts *counts, mitilog_error *error)
 {
-    *rows = NULL;
-    *count = 0;
+    memset(counts, 0, sizeof *counts);
     if (st == NULL || from_day == NULL || to_day == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "store_load_finding_counts: no store or period");
     sqlite3_stmt *statement = NULL;
-    store_finding_count *list = NULL;
-    size_t n = 0, capacity = 0;
+    size_t capacity = 0;
     pthread_mutex_lock(&st->reader_lock);
     mitilog_status status = store_period_statement(st, "queries/stats_finding_counts.sql",
                                                    from_day, to_day, &statement, error);
     int rc = SQLITE_DONE;
     while (status == MITILOG_OK && (rc = sqlite3_step(statement)) == SQLITE_ROW) {
-        if (n == capacity) {
+        if (counts->count == capacity) {
             size_t grown_capacity = capacity ? capacity * 2 : 64;
-            store_finding_count *grown = realloc(list, grown_capacity * sizeof *grown);
+            char **uids = realloc(counts->study_instance_uids, grown_capacity * sizeof *uids);
+            if (uids != NULL)
+                counts->study_instance_uids = uids;
+            exam_rule_count *grown = uids == NULL ? NULL
+                                                  : realloc(counts->counts,
+                                                            grown_capacity * sizeof *grown);
             if (grown == NULL) {
                 status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "findings: out of memory");
                 break;
             }
-            list = grown;
+            counts->counts = grown;
             capacity = grown_capacity;
         }
-        store_finding_count *row = &list[n++];
+        size_t n = counts->count++;
         int failed = 0;
-        row->study_instance_uid = store_text_copy(statement, 0, &failed);
-        row->rule_id = store_text_copy(statement, 1, &failed);
-        row->count = (long)sqlite3_column_int64(statement, 2);
+        counts->study_instance_uids[n] = store_text_copy(statement, 0, &failed);
+        counts->counts[n].rule_id = store_text_copy(statement, 1, &failed);
+        counts->counts[n].count = store_count(statement, 2);
         if (failed)
             status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "findings: out of memory");
     }
@@ -377,13 +436,9 @@ mitilog_status store_load_finding_counts(store *st, const char *from_day, const 
         status = store_sql_error(error, st->reader, "query finding counts");
     sqlite3_finalize(statement);
     pthread_mutex_unlock(&st->reader_lock);
-    if (status != MITILOG_OK) {
-        store_finding_counts_free(list, n);
-        return status;
-    }
-    *rows = list;
-    *count = n;
-    return MITILOG_OK;
+    if (status != MITILOG_OK)
+        store_finding_counts_free(counts);
+    return status;
 }
 
 void store_period_info_free(store_period_info *info)

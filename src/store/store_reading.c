@@ -222,8 +222,8 @@ static mitilog_status write_result(store *st, const void *context, mitilog_error
         rc = store_bind_int_named(st, upsert, ":frames_read", r->frames_read);
     if (rc == SQLITE_OK)
         rc = store_bind_text_named(st, upsert, ":updated_at", now);
-    for (int i = 0; rc == SQLITE_OK && i < EXT_INDEX_COUNT; i++)
-        rc = bind_value(st, upsert, ext_index_name((ext_index)i), &r->values[i]);
+    for (int i = 0; rc == SQLITE_OK && i < EXAM_INDEX_COUNT; i++)
+        rc = bind_value(st, upsert, exam_index_name((exam_index)i), &r->values[i]);
     if (rc == SQLITE_OK)
         rc = store_step_done(upsert);
     store_release(upsert);

@@ -62,7 +62,7 @@ typedef struct store_screen_result {
     const char *profile_key;      /* NULL when no profile matched */
     int profile_version;
     int frames_read;
-    store_screen_value values[EXT_INDEX_COUNT];
+    store_screen_value values[EXAM_INDEX_COUNT];
 } store_screen_result;
 
 /* Writes a result and takes its queue row off, in one transaction. When

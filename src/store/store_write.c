@@ -30,19 +30,19 @@
 enum { STORE_BATCH_MAX = 256 };
 
 /* The schema's name of a value status (CHECK constraint), NULL if bad. */
-static const char *store_value_status_name(ext_value_status status)
+static const char *store_value_status_name(exam_value_status status)
 {
     switch (status) {
-    case EXT_VALUE_MISSING: return "missing";
-    case EXT_VALUE_OK: return "ok";
-    case EXT_VALUE_INVALID: return "invalid";
+    case EXAM_VALUE_MISSING: return "missing";
+    case EXAM_VALUE_OK: return "ok";
+    case EXAM_VALUE_INVALID: return "invalid";
     }
     return NULL;
 }
 
 /* The stored name of an acquisition time source, NULL if bad. Must match
- * ext_time_source_name() (src/extract/); kept here so that the store
- * depends on no other stage. */
+ * ext_time_source_name() (src/extract/) and the schema's CHECK constraint:
+ * the stored spelling is the store's, the meaning extraction's. */
 static const char *store_time_source_name(ext_time_source source)
 {
     switch (source) {
@@ -65,11 +65,11 @@ int store_is_text_utf8(const char *text)
 }
 
 /* Checks a value classification: a known status, a finite value when ok. */
-static int store_number_is_valid(ext_number number)
+static int store_number_is_valid(exam_number number)
 {
     if (store_value_status_name(number.status) == NULL)
         return 0;
-    return number.status != EXT_VALUE_OK || isfinite(number.value);
+    return number.status != EXAM_VALUE_OK || isfinite(number.value);
 }
 
 /* Rejects records the schema would refuse or that could not be served as
@@ -94,9 +94,9 @@ static mitilog_status store_check_record(const ext_record *record,
                                  record->sop_instance_uid);
     int numbers_ok = store_number_is_valid(record->number_of_frames) &&
                      store_number_is_valid(record->frame_time_ms) &&
-                     (record->number_of_frames.status != EXT_VALUE_OK ||
+                     (record->number_of_frames.status != EXAM_VALUE_OK ||
                       fabs(record->number_of_frames.value) < 9.0e15);
-    for (int i = 0; i < EXT_INDEX_COUNT; i++)
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++)
         numbers_ok = numbers_ok && store_number_is_valid(record->indices[i]);
     if (!numbers_ok)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
@@ -144,7 +144,7 @@ static int store_bind_text(store *st, sqlite3_stmt *statement, const char *name,
 /* Binds a classified number to :<name> (value or NULL) and
  * :<name>_status; as an integer when integer is set. */
 static int store_bind_number(store *st, sqlite3_stmt *statement, const char *name,
-                             ext_number number, int integer)
+                             exam_number number, int integer)
 {
     char parameter[64];
     snprintf(parameter, sizeof parameter, ":%s", name);
@@ -152,7 +152,7 @@ static int store_bind_number(store *st, sqlite3_stmt *statement, const char *nam
     if (index == 0)
         return SQLITE_RANGE;
     int rc;
-    if (number.status != EXT_VALUE_OK)
+    if (number.status != EXAM_VALUE_OK)
         rc = sqlite3_bind_null(statement, index);
     else if (integer)
         rc = sqlite3_bind_int64(statement, index,
@@ -228,7 +228,7 @@ static int store_bind_context(store *st, sqlite3_stmt *statement,
         {":exam_type_label", record->exam_type_label},
         {":exam_type_source", record->exam_type_source},
         {":governing_index", record->has_governing_index
-                                 ? ext_index_name(record->governing_index)
+                                 ? exam_index_name(record->governing_index)
                                  : NULL},
         {":governing_index_source", record->has_governing_index
                                         ? record->governing_index_source
@@ -334,11 +334,11 @@ static int store_bind_instance(store *st, sqlite3_stmt *statement,
                               store_parameter_index(st, statement,
                                                            ":is_ultrasound"),
                               record->is_ultrasound ? 1 : 0);
-    for (int i = 0; rc == SQLITE_OK && i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; rc == SQLITE_OK && i < EXAM_INDEX_COUNT; i++) {
         char parameter[64];
-        rc = store_bind_number(st, statement, ext_index_name((ext_index)i),
+        rc = store_bind_number(st, statement, exam_index_name((exam_index)i),
                                record->indices[i], 0);
-        snprintf(parameter, sizeof parameter, ":%s_raw", ext_index_name((ext_index)i));
+        snprintf(parameter, sizeof parameter, ":%s_raw", exam_index_name((exam_index)i));
         if (rc == SQLITE_OK)
             rc = store_bind_text(st, statement, parameter, record->index_raw[i]);
     }

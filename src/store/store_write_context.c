@@ -34,7 +34,7 @@ static int store_write_sr_value(store *st, sqlite3_int64 instance_id,
                                    ext_quantity_name(value->quantity));
     if (rc == SQLITE_OK)
         rc = store_bind_double_named(st, statement, ":value",
-                                     value->number.status == EXT_VALUE_OK,
+                                     value->number.status == EXAM_VALUE_OK,
                                      value->number.value);
     if (rc == SQLITE_OK)
         rc = store_bind_text_named(st, statement, ":raw_value", value->raw);
@@ -54,7 +54,7 @@ static int store_write_sr_value(store *st, sqlite3_int64 instance_id,
     if (rc == SQLITE_OK)
         rc = store_bind_text_named(st, 
             statement, ":mode",
-            value->mode >= 0 ? ext_mode_name((ext_mode)value->mode) : NULL);
+            value->mode >= 0 ? exam_mode_name((exam_mode)value->mode) : NULL);
     if (rc == SQLITE_OK)
         rc = store_step_done(statement) == SQLITE_DONE ? SQLITE_OK
                                                        : SQLITE_ERROR;

@@ -8,9 +8,6 @@
 
 #include <math.h>
 
-static const char *const index_names[EXT_INDEX_COUNT] = {
-    "mi", "tis", "tib", "tic", "tis_focus", "tis_surface"};
-
 static int store_exam_bind(store *st, sqlite3_stmt *statement, const store_exam *input)
 {
     const ext_exam *exam = input->exam;
@@ -22,8 +19,9 @@ static int store_exam_bind(store *st, sqlite3_stmt *statement, const store_exam 
         {":exam_type", exam->exam_type != NULL ? exam->exam_type->key : NULL},
         {":exam_type_label", exam->exam_type != NULL ? exam->exam_type->label : NULL},
         {":exam_type_source", exam->exam_type_source},
-        {":governing_index", index_names[exam->governing_index]},
+        {":governing_index", exam_index_name(exam->governing_index)},
         {":governing_index_source", exam->governing_index_source},
+        {":exam_group", exam_group_name(ext_exam_type_group(exam->exam_type))},
         {":gestational_age_source",
          exam->has_gestational_age ? exam->gestational_age_source : NULL},
         {":first_acquired_at", exam->first_acquired_at},
@@ -53,12 +51,12 @@ static int store_exam_bind(store *st, sqlite3_stmt *statement, const store_exam 
         double value;
     } reals[] = {
         {":gestational_age_weeks", exam->has_gestational_age, exam->gestational_age_weeks},
-        {":max_mi", exam->maxima[0].status == EXT_VALUE_OK, exam->maxima[0].value},
-        {":max_tis", exam->maxima[1].status == EXT_VALUE_OK, exam->maxima[1].value},
-        {":max_tib", exam->maxima[2].status == EXT_VALUE_OK, exam->maxima[2].value},
-        {":max_tic", exam->maxima[3].status == EXT_VALUE_OK, exam->maxima[3].value},
-        {":max_tis_focus", exam->maxima[4].status == EXT_VALUE_OK, exam->maxima[4].value},
-        {":max_tis_surface", exam->maxima[5].status == EXT_VALUE_OK, exam->maxima[5].value},
+        {":max_mi", exam->maxima[0].status == EXAM_VALUE_OK, exam->maxima[0].value},
+        {":max_tis", exam->maxima[1].status == EXAM_VALUE_OK, exam->maxima[1].value},
+        {":max_tib", exam->maxima[2].status == EXAM_VALUE_OK, exam->maxima[2].value},
+        {":max_tic", exam->maxima[3].status == EXAM_VALUE_OK, exam->maxima[3].value},
+        {":max_tis_focus", exam->maxima[4].status == EXAM_VALUE_OK, exam->maxima[4].value},
+        {":max_tis_surface", exam->maxima[5].status == EXAM_VALUE_OK, exam->maxima[5].value},
         {":estimated_seconds", 1, exam->summary.estimated_seconds},
         {":unscaled_seconds", 1, exam->summary.unscaled_seconds},
         {":scale", 1, exam->summary.entry_count > 0 ? exam->summary.scale : 1.0},
@@ -113,20 +111,20 @@ static int store_exam_children(store *st, const store_exam *input)
             rc = store_bind_int_named(st, statement, ":capped", entry->capped ? 1 : 0);
         rc = store_exam_step(statement, rc);
     }
-    for (int m = 0; rc == SQLITE_OK && m < EXT_MODE_COUNT; m++) {
-        for (int x = 0; rc == SQLITE_OK && x < EXT_INDEX_COUNT; x++) {
-            ext_number maximum = exam->mode_maxima[m][x];
-            if (maximum.status != EXT_VALUE_OK)
+    for (int m = 0; rc == SQLITE_OK && m < EXAM_MODE_COUNT; m++) {
+        for (int x = 0; rc == SQLITE_OK && x < EXAM_INDEX_COUNT; x++) {
+            exam_number maximum = exam->mode_maxima[m][x];
+            if (maximum.status != EXAM_VALUE_OK)
                 continue;
             sqlite3_stmt *statement = st->write.insert_mode_maximum;
             rc = store_bind_text_named(st, statement, ":study_instance_uid",
                                        input->study_instance_uid);
             if (rc == SQLITE_OK)
-                rc = store_bind_text_named(st, statement, ":mode", ext_mode_name((ext_mode)m));
+                rc = store_bind_text_named(st, statement, ":mode", exam_mode_name((exam_mode)m));
             if (rc == SQLITE_OK)
                 rc = store_bind_int_named(st, statement, ":rank", m);
             if (rc == SQLITE_OK)
-                rc = store_bind_text_named(st, statement, ":index_name", index_names[x]);
+                rc = store_bind_text_named(st, statement, ":index_name", exam_index_name((exam_index)x));
             if (rc == SQLITE_OK)
                 rc = store_bind_double_named(st, statement, ":max_value", 1, maximum.value);
             rc = store_exam_step(statement, rc);

@@ -30,7 +30,7 @@ static void log_write(log_level level, const char *format, va_list arguments)
     static const char *const labels[] = {"debug", "info", "warning", "error"};
     if (level < minimum_level)
         return;
-    char line[2048];
+    char line[4096];
     struct timeval now;
     struct tm broken;
     gettimeofday(&now, NULL);
@@ -38,7 +38,19 @@ static void log_write(log_level level, const char *format, va_list arguments)
     int used = (int)strftime(line, sizeof line, "%Y-%m-%dT%H:%M:%S", &broken);
     used += snprintf(line + used, sizeof line - (size_t)used, ".%03ldZ %s: ",
                      (long)(now.tv_usec / 1000), labels[level]);
-    vsnprintf(line + used, sizeof line - (size_t)used, format, arguments);
+    char message[2048];
+    vsnprintf(message, sizeof message, format, arguments);
+    /* One event, one line: control characters from anywhere (an AE title,
+     * a UID, a file name) are written as \xNN, so that no value can end
+     * the line or forge another one, nor send terminal escapes. */
+    for (const unsigned char *c = (const unsigned char *)message;
+         *c != '\0' && used < (int)sizeof line - 5; c++) {
+        if (*c < 0x20 || *c == 0x7f)
+            used += snprintf(line + used, sizeof line - (size_t)used, "\\x%02x", *c);
+        else
+            line[used++] = (char)*c;
+    }
+    line[used] = '\0';
     /* stderr's own lock (POSIX flockfile) keeps each line whole. */
     flockfile(stderr);
     fputs(line, stderr);

@@ -140,6 +140,23 @@ class Association:
             0x0800: struct.pack("<H", 0x0000),
             0x1000: _uid(sop_instance_uid),
         })
+        return self.exchange(command, dataset_bytes)
+
+    def c_find_on_context(self, sop_class_uid, identifier_bytes, message_id=1):
+        """Sends a C-FIND-RQ (PS3.7 9.3.2.1) on this association's one
+        context, whatever its abstract syntax; returns the response status."""
+        command = _command({
+            0x0002: _uid(sop_class_uid),
+            0x0100: struct.pack("<H", 0x0020),
+            0x0110: struct.pack("<H", message_id),
+            0x0700: struct.pack("<H", 0),
+            0x0800: struct.pack("<H", 0x0000),
+        })
+        return self.exchange(command, identifier_bytes)
+
+    def exchange(self, command, dataset_bytes):
+        """Sends a command and its data set; returns the first response's
+        status."""
         self._send_pdvs(command, True)
         self._send_pdvs(dataset_bytes, False)
         received = b""
@@ -169,3 +186,58 @@ class Association:
 
     def close(self):
         self.sock.close()
+
+
+VERIFICATION = "1.2.840.10008.1.1"
+
+
+def associate_request(called_ae, calling_ae, contexts):
+    """A whole A-ASSOCIATE-RQ PDU (PS3.8 9.3.2) with the given presentation
+    contexts: (id, abstract syntax bytes or None, [transfer syntax bytes])."""
+    items = b""
+    for pcid, abstract, transfers in contexts:
+        body = struct.pack(">BBBB", pcid, 0, 0, 0)
+        if abstract is not None:
+            body += _item(0x30, abstract)
+        for ts in transfers:
+            body += _item(0x40, ts)
+        items += _item(0x20, body)
+    user = _item(0x50, _item(0x51, struct.pack(">I", 16384))
+                 + _item(0x52, IMPLEMENTATION_CLASS_UID.encode("ascii")))
+    body = (struct.pack(">HH", 1, 0)
+            + called_ae.ljust(16).encode("ascii")
+            + calling_ae.ljust(16).encode("ascii") + b"\0" * 32
+            + _item(0x10, APPLICATION_CONTEXT.encode("ascii"))
+            + items + user)
+    return struct.pack(">BBI", 0x01, 0, len(body)) + body
+
+
+def read_pdu(sock):
+    """(type, payload) of the next PDU, or (None, b"") when the peer closed."""
+    def exact(n):
+        data = b""
+        while len(data) < n:
+            chunk = sock.recv(n - len(data))
+            if not chunk:
+                return None
+            data += chunk
+        return data
+    head = exact(6)
+    if head is None:
+        return None, b""
+    pdu_type, _, length = struct.unpack(">BBI", head)
+    payload = exact(length)
+    return pdu_type, payload if payload is not None else b""
+
+
+def context_results(ac_payload):
+    """{presentation context id: result} of an A-ASSOCIATE-AC payload
+    (PS3.8 9.3.3.2: 0 acceptance, 3 abstract syntax not supported...)."""
+    results = {}
+    offset = 68
+    while offset + 4 <= len(ac_payload):
+        item_type, _, length = struct.unpack_from(">BBH", ac_payload, offset)
+        if item_type == 0x21:
+            results[ac_payload[offset + 4]] = ac_payload[offset + 6]
+        offset += 4 + length
+    return results

@@ -38,20 +38,6 @@ period AS (SELECT * FROM chosen WHERE day >= ?1 AND day <= ?2),
 current_policy AS (
     SELECT version FROM policies ORDER BY first_loaded_at DESC, rowid DESC LIMIT 1
 ),
-dwell AS (
-    SELECT t.study_instance_uid,
-           sum(iif(t.value >= 0.7, t.attributed_seconds, 0)) AS s07,
-           sum(iif(t.value >= 1.0, t.attributed_seconds, 0)) AS s10,
-           sum(iif(t.value >= 1.5, t.attributed_seconds, 0)) AS s15,
-           sum(iif(t.value >= 2.0, t.attributed_seconds, 0)) AS s20
-    FROM (SELECT tl.study_instance_uid, tl.attributed_seconds,
-                 CASE p.governing_index WHEN 'tis' THEN i.tis WHEN 'tib' THEN i.tib
-                                        WHEN 'tic' THEN i.tic END AS value
-          FROM period p
-          CROSS JOIN exam_timeline tl ON tl.study_instance_uid = p.study_instance_uid
-          CROSS JOIN instances i ON i.sop_instance_uid = tl.sop_instance_uid) AS t
-    GROUP BY t.study_instance_uid
-),
 counts AS (
     SELECT i.study_instance_uid, count(*) AS captures,
            sum(iif(i.mi IS NOT NULL OR i.tis IS NOT NULL OR i.tib IS NOT NULL
@@ -68,7 +54,6 @@ SELECT p.study_instance_uid, p.day, p.exam_type, p.exam_type_label, p.governing_
        coalesce(c.room, f.room), coalesce(c.preset, f.preset), coalesce(c.shift, f.shift),
        coalesce(c.transducer, f.transducer_data), f.study_description,
        coalesce(m.estimated_seconds, p.estimated_seconds),
-       coalesce(d.s07, 0), coalesce(d.s10, 0), coalesce(d.s15, 0), coalesce(d.s20, 0),
        coalesce(k.captures, 0), coalesce(k.indexed, 0),
        (SELECT count(*) FROM findings x
         WHERE x.study_instance_uid = p.study_instance_uid AND x.superseded = 0),
@@ -81,9 +66,44 @@ LEFT JOIN instances f ON f.id = (SELECT j.id FROM instances j
                                  LIMIT 1)
 LEFT JOIN exam_measurements m ON m.study_instance_uid = p.study_instance_uid
                              AND m.policy_version = (SELECT version FROM current_policy)
-LEFT JOIN dwell d ON d.study_instance_uid = p.study_instance_uid
 LEFT JOIN counts k ON k.study_instance_uid = p.study_instance_uid
 ORDER BY p.study_instance_uid
+"""
+
+# Time at or above each governing TI threshold the statistics report, per
+# exam of the period: the same exams, summed from the timeline here.
+ORACLE_TIMES = """
+WITH chosen AS (
+    SELECT e.*,
+           substr(coalesce(e.first_acquired_at,
+                           (SELECT min(j.received_at) FROM instances j
+                            WHERE j.study_instance_uid = e.study_instance_uid)), 1, 10) AS day
+    FROM exams e
+),
+period AS (SELECT * FROM chosen WHERE day >= ?1 AND day <= ?2),
+dwell AS (
+    SELECT t.study_instance_uid,
+           sum(iif(t.value >= 0.7, t.attributed_seconds, 0)) AS s07,
+           sum(iif(t.value >= 1.0, t.attributed_seconds, 0)) AS s10,
+           sum(iif(t.value >= 1.5, t.attributed_seconds, 0)) AS s15,
+           sum(iif(t.value >= 2.0, t.attributed_seconds, 0)) AS s20
+    FROM (SELECT tl.study_instance_uid, tl.attributed_seconds,
+                 CASE p.governing_index WHEN 'tis' THEN i.tis WHEN 'tib' THEN i.tib
+                                        WHEN 'tic' THEN i.tic END AS value
+          FROM period p
+          CROSS JOIN exam_timeline tl ON tl.study_instance_uid = p.study_instance_uid
+          CROSS JOIN instances i ON i.sop_instance_uid = tl.sop_instance_uid) AS t
+    GROUP BY t.study_instance_uid
+)
+SELECT p.study_instance_uid, x.threshold,
+       coalesce(CASE x.threshold WHEN 0.7 THEN d.s07 WHEN 1.0 THEN d.s10
+                                 WHEN 1.5 THEN d.s15 WHEN 2.0 THEN d.s20 END, 0)
+FROM period p
+CROSS JOIN (SELECT 0.7 AS threshold UNION ALL SELECT 1.0 UNION ALL SELECT 1.5
+            UNION ALL SELECT 2.0) AS x
+LEFT JOIN dwell d ON d.study_instance_uid = p.study_instance_uid
+WHERE x.threshold <= ?3
+ORDER BY p.study_instance_uid, x.threshold
 """
 
 ORACLE_FINDING_COUNTS = """
@@ -163,6 +183,12 @@ def assert_summaries_exact(db, periods=(("0000-00-00", "9999-99-99"),)):
             if name == "stats_exam_rows.sql":
                 got.sort(key=lambda row: row[0].encode())   # the store sorts by UID
             assert exact(zero_as_real(got)) == exact(zero_as_real(expected)), (name, first, last)
+        # time at or above the thresholds up to 2.0 (those the statistics show)
+        expected = db.execute(ORACLE_TIMES, (first, last, 2.0)).fetchall()
+        got = db.execute(query_text("stats_exam_time_at_or_above.sql"),
+                         (first, last, 2.0)).fetchall()
+        got.sort(key=lambda row: (row[0].encode(), row[1]))
+        assert exact(zero_as_real(got)) == exact(zero_as_real(expected)), ("times", first, last)
         # the short rows statistics read: the same exams and values, in the
         # same order, with one grouping key
         expected = db.execute(ORACLE_EXAM_ROWS, (first, last)).fetchall()
@@ -171,7 +197,7 @@ def assert_summaries_exact(db, periods=(("0000-00-00", "9999-99-99"),)):
             got = db.execute(query_text("stats_exam_values.sql"), (first, last, key)).fetchall()
             got.sort(key=lambda row: row[-1].encode())
             assert exact(zero_as_real(got)) == exact(zero_as_real(
-                [(r[2], r[column] if column else None) + r[5:7] + r[12:20] + (r[0],)
+                [(r[2], r[column] if column else None) + r[5:7] + r[12:16] + (r[0],)
                  for r in expected])), key
         # a weekly baseline: type and governing value of the days before the last
         got = db.execute(query_text("stats_exam_governing.sql"), (first, last)).fetchall()
@@ -182,7 +208,8 @@ def assert_summaries_exact(db, periods=(("0000-00-00", "9999-99-99"),)):
 
 
 def clean_count(db):
-    return db.execute("SELECT count(*) FROM exam_summaries WHERE s07 IS NOT NULL").fetchone()[0]
+    return db.execute("SELECT count(DISTINCT study_instance_uid) FROM exam_time_at_or_above"
+                      " WHERE seconds IS NOT NULL").fetchone()[0]
 
 
 @pytest.fixture(scope="module")

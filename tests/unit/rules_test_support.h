@@ -70,26 +70,26 @@ static inline rules_policy *support_shipped_policy(void)
     return support_policy_with(NULL, NULL);
 }
 
-static inline ext_number support_number(double value)
+static inline exam_number support_number(double value)
 {
-    ext_number number = {EXT_VALUE_OK, value};
+    exam_number number = {EXAM_VALUE_OK, value};
     return number;
 }
 
 /* A capture at time t with a cine of cine seconds; indices missing. */
-static inline rules_capture support_capture(const char *uid, double t, double cine)
+static inline exam_capture support_capture(const char *uid, double t, double cine)
 {
-    rules_capture capture;
+    exam_capture capture;
     memset(&capture, 0, sizeof capture);
     capture.sop_instance_uid = uid;
     capture.time_seconds = t;
     capture.has_time = 1;
     capture.cine_seconds = cine;
-    capture.modes = RULES_MODE_2D;
+    capture.modes = EXAM_MODE_BIT(EXAM_MODE_2D);
     return capture;
 }
 
-static inline rules_exam support_exam(rules_group group, const rules_capture *captures,
+static inline rules_exam support_exam(exam_group group, const exam_capture *captures,
                                       size_t count)
 {
     rules_exam exam;
@@ -118,7 +118,7 @@ static inline size_t support_count(const rules_result *result, const char *rule_
     return count;
 }
 
-static inline const rules_finding *support_find(const rules_result *result, const char *rule_id,
+static inline const exam_finding *support_find(const rules_result *result, const char *rule_id,
                                                 double threshold)
 {
     for (size_t i = 0; i < result->finding_count; i++) {

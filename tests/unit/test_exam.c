@@ -20,17 +20,17 @@ static void governing(void **state)
     ext_exam_type type;
     memset(&type, 0, sizeof type);
     const char *source = NULL;
-    type.governing = EXT_GOVERNING_BY_GESTATION;
-    assert_int_equal(ext_governing_index(&type, 1, 9.9, &source), EXT_INDEX_TIS);
+    type.governing = EXAM_GOVERNING_BY_GESTATION;
+    assert_int_equal(ext_governing_index(&type, 1, 9.9, &source), EXAM_INDEX_TIS);
     assert_string_equal(source, "gestational_age");
-    assert_int_equal(ext_governing_index(&type, 1, 10.0, &source), EXT_INDEX_TIB);
-    assert_int_equal(ext_governing_index(&type, 0, 0, &source), EXT_INDEX_TIB);
+    assert_int_equal(ext_governing_index(&type, 1, 10.0, &source), EXAM_INDEX_TIB);
+    assert_int_equal(ext_governing_index(&type, 0, 0, &source), EXAM_INDEX_TIB);
     assert_string_equal(source, "gestational_age_unknown");
-    type.governing = EXT_GOVERNING_TIC;
-    assert_int_equal(ext_governing_index(&type, 0, 0, &source), EXT_INDEX_TIC);
-    type.governing = EXT_GOVERNING_TIS;
-    assert_int_equal(ext_governing_index(&type, 1, 30, &source), EXT_INDEX_TIS);
-    assert_int_equal(ext_governing_index(NULL, 0, 0, &source), EXT_INDEX_TIS);
+    type.governing = EXAM_GOVERNING_TIC;
+    assert_int_equal(ext_governing_index(&type, 0, 0, &source), EXAM_INDEX_TIC);
+    type.governing = EXAM_GOVERNING_TIS;
+    assert_int_equal(ext_governing_index(&type, 1, 30, &source), EXAM_INDEX_TIS);
+    assert_int_equal(ext_governing_index(NULL, 0, 0, &source), EXAM_INDEX_TIS);
     assert_string_equal(source, "default");
 }
 
@@ -45,9 +45,9 @@ static ext_exam_instance capture(const char *uid, const char *at, const char *ty
     i.exam_type = (char *)type;
     i.exam_type_source = (char *)"study_description";
     i.is_capture = 1;
-    i.indices[EXT_INDEX_MI] = (ext_number){EXT_VALUE_OK, mi};
-    i.indices[EXT_INDEX_TIB] = tib >= 0 ? (ext_number){EXT_VALUE_OK, tib}
-                                        : (ext_number){EXT_VALUE_MISSING, 0};
+    i.indices[EXAM_INDEX_MI] = (exam_number){EXAM_VALUE_OK, mi};
+    i.indices[EXAM_INDEX_TIB] = tib >= 0 ? (exam_number){EXAM_VALUE_OK, tib}
+                                        : (exam_number){EXAM_VALUE_MISSING, 0};
     i.modes = modes;
     i.cine_seconds = cine;
     return i;
@@ -61,10 +61,10 @@ static void exam_record(void **state)
     assert_int_equal(ext_site_rules_init(&rules, &error), MITILOG_OK);
     ext_exam_type *ob = NULL, *abdomen = NULL;
     assert_int_equal(ext_site_add_exam_type(&rules, "ob", &ob, &error), MITILOG_OK);
-    ob->governing = EXT_GOVERNING_BY_GESTATION;
+    ob->governing = EXAM_GOVERNING_BY_GESTATION;
     ob->nominal_gestational_age_weeks = 20;
     assert_int_equal(ext_site_add_exam_type(&rules, "abdomen", &abdomen, &error), MITILOG_OK);
-    unsigned b = EXT_MODE_BIT(EXT_MODE_2D), pw = b | EXT_MODE_BIT(EXT_MODE_PW);
+    unsigned b = EXAM_MODE_BIT(EXAM_MODE_2D), pw = b | EXAM_MODE_BIT(EXAM_MODE_PW);
     ext_exam_instance instances[5];
     instances[0] = capture("1", "2024-05-01T10:00:00", "ob", 0.9, 0.3, b, 0);
     instances[1] = capture("2", "2024-05-01T10:01:00", "ob", 1.1, 1.4, pw, 0);
@@ -82,15 +82,15 @@ static void exam_record(void **state)
     assert_string_equal(exam.exam_type->key, "ob");   /* 3 of 5 */
     assert_true(exam.has_gestational_age);
     assert_float_equal(exam.gestational_age_weeks, 9.0, 1e-9);  /* SR beats nominal */
-    assert_int_equal(exam.governing_index, EXT_INDEX_TIS);       /* < 10 weeks */
+    assert_int_equal(exam.governing_index, EXAM_INDEX_TIS);       /* < 10 weeks */
     assert_int_equal(exam.capture_count, 4);
     assert_int_equal(exam.sr_count, 1);
     assert_int_equal(exam.cine_count, 1);
     assert_string_equal(exam.first_acquired_at, "2024-05-01T10:00:00");
     assert_string_equal(exam.last_acquired_at, "2024-05-01T10:21:00");
-    assert_float_equal(exam.maxima[EXT_INDEX_MI].value, 1.5, 1e-9);
-    assert_float_equal(exam.mode_maxima[EXT_MODE_PW][EXT_INDEX_TIB].value, 1.4, 1e-9);
-    assert_int_equal(exam.mode_maxima[EXT_MODE_PW][EXT_INDEX_TIS].status, EXT_VALUE_MISSING);
+    assert_float_equal(exam.maxima[EXAM_INDEX_MI].value, 1.5, 1e-9);
+    assert_float_equal(exam.mode_maxima[EXAM_MODE_PW][EXAM_INDEX_TIB].value, 1.4, 1e-9);
+    assert_int_equal(exam.mode_maxima[EXAM_MODE_PW][EXAM_INDEX_TIS].status, EXAM_VALUE_MISSING);
     /* timeline: 0, 60, capped 300 + 3 s cine; capture 4 untimed */
     assert_int_equal(exam.summary.entry_count, 3);
     assert_int_equal(exam.summary.untimed_count, 1);
@@ -103,7 +103,7 @@ static void exam_record(void **state)
     assert_int_equal(ext_exam_build(&rules, instances, 4, &exam, &error), MITILOG_OK);
     assert_float_equal(exam.gestational_age_weeks, 20.0, 1e-9);
     assert_string_equal(exam.gestational_age_source, "exam_type_trimester");
-    assert_int_equal(exam.governing_index, EXT_INDEX_TIB);
+    assert_int_equal(exam.governing_index, EXAM_INDEX_TIB);
     ext_exam_free(&exam);
     ext_site_rules_free(&rules);
 }

@@ -13,18 +13,18 @@
 
 static void assert_ok_value(const char *raw, double expected)
 {
-    ext_number number = ext_parse_decimal_string(raw);
-    if (number.status != EXT_VALUE_OK)
+    exam_number number = ext_parse_decimal_string(raw);
+    if (number.status != EXAM_VALUE_OK)
         fail_msg("'%s' should be a valid DS", raw);
     assert_float_equal(number.value, expected, 1e-12);
 }
 
-static void assert_status(const char *raw, ext_value_status expected)
+static void assert_status(const char *raw, exam_value_status expected)
 {
-    ext_number number = ext_parse_decimal_string(raw);
+    exam_number number = ext_parse_decimal_string(raw);
     if (number.status != expected)
         fail_msg("'%s': status %s, expected %s", raw ? raw : "(null)",
-                 ext_value_status_name(number.status), ext_value_status_name(expected));
+                 exam_value_status_name(number.status), exam_value_status_name(expected));
 }
 
 /* DICOM PS3.5 Table 6.2-1, VR DS: characters 0-9 + - E e . and space;
@@ -48,21 +48,21 @@ static void decimal_string_forms(void **state)
 static void decimal_string_missing_and_invalid(void **state)
 {
     (void)state;
-    assert_status(NULL, EXT_VALUE_MISSING);          /* attribute absent */
-    assert_status("", EXT_VALUE_MISSING);            /* present, zero length */
-    assert_status("    ", EXT_VALUE_MISSING);        /* only padding */
-    assert_status("1,2", EXT_VALUE_INVALID);         /* decimal comma: never guessed */
-    assert_status("abc", EXT_VALUE_INVALID);
-    assert_status("1.1\\1.2", EXT_VALUE_INVALID);    /* VM 2 in a VM 1 attribute */
-    assert_status("1 2", EXT_VALUE_INVALID);         /* embedded space (PS3.5) */
-    assert_status("1.2E", EXT_VALUE_INVALID);
-    assert_status("E5", EXT_VALUE_INVALID);
-    assert_status(".", EXT_VALUE_INVALID);
-    assert_status("NaN", EXT_VALUE_INVALID);
-    assert_status("inf", EXT_VALUE_INVALID);
-    assert_status("0x1A", EXT_VALUE_INVALID);
-    assert_status("12345678901234567", EXT_VALUE_INVALID); /* 17 bytes > 16 */
-    assert_status("1e999", EXT_VALUE_INVALID);       /* out of double range */
+    assert_status(NULL, EXAM_VALUE_MISSING);          /* attribute absent */
+    assert_status("", EXAM_VALUE_MISSING);            /* present, zero length */
+    assert_status("    ", EXAM_VALUE_MISSING);        /* only padding */
+    assert_status("1,2", EXAM_VALUE_INVALID);         /* decimal comma: never guessed */
+    assert_status("abc", EXAM_VALUE_INVALID);
+    assert_status("1.1\\1.2", EXAM_VALUE_INVALID);    /* VM 2 in a VM 1 attribute */
+    assert_status("1 2", EXAM_VALUE_INVALID);         /* embedded space (PS3.5) */
+    assert_status("1.2E", EXAM_VALUE_INVALID);
+    assert_status("E5", EXAM_VALUE_INVALID);
+    assert_status(".", EXAM_VALUE_INVALID);
+    assert_status("NaN", EXAM_VALUE_INVALID);
+    assert_status("inf", EXAM_VALUE_INVALID);
+    assert_status("0x1A", EXAM_VALUE_INVALID);
+    assert_status("12345678901234567", EXAM_VALUE_INVALID); /* 17 bytes > 16 */
+    assert_status("1e999", EXAM_VALUE_INVALID);       /* out of double range */
 }
 
 /* PS3.5 Table 6.2-1, VR IS: [+-]digits, at most 12 bytes,
@@ -70,15 +70,15 @@ static void decimal_string_missing_and_invalid(void **state)
 static void integer_string_forms(void **state)
 {
     (void)state;
-    ext_number number = ext_parse_integer_string(" 120 ");
-    assert_int_equal(number.status, EXT_VALUE_OK);
+    exam_number number = ext_parse_integer_string(" 120 ");
+    assert_int_equal(number.status, EXAM_VALUE_OK);
     assert_float_equal(number.value, 120.0, 0);
-    assert_int_equal(ext_parse_integer_string("+7").status, EXT_VALUE_OK);
-    assert_int_equal(ext_parse_integer_string("2147483647").status, EXT_VALUE_OK);
-    assert_int_equal(ext_parse_integer_string("2147483648").status, EXT_VALUE_INVALID);
-    assert_int_equal(ext_parse_integer_string("12.5").status, EXT_VALUE_INVALID);
-    assert_int_equal(ext_parse_integer_string("").status, EXT_VALUE_MISSING);
-    assert_int_equal(ext_parse_integer_string(NULL).status, EXT_VALUE_MISSING);
+    assert_int_equal(ext_parse_integer_string("+7").status, EXAM_VALUE_OK);
+    assert_int_equal(ext_parse_integer_string("2147483647").status, EXAM_VALUE_OK);
+    assert_int_equal(ext_parse_integer_string("2147483648").status, EXAM_VALUE_INVALID);
+    assert_int_equal(ext_parse_integer_string("12.5").status, EXAM_VALUE_INVALID);
+    assert_int_equal(ext_parse_integer_string("").status, EXAM_VALUE_MISSING);
+    assert_int_equal(ext_parse_integer_string(NULL).status, EXAM_VALUE_MISSING);
 }
 
 /* DA "YYYYMMDD", TM "HHMMSS.FFFFFF" with trailing components optional, DT
@@ -175,14 +175,14 @@ static void record_from_facts(void **state)
     assert_int_equal(ext_record_from_facts(&facts, &record, &error), MITILOG_OK);
     assert_true(record.is_ultrasound);
     assert_string_equal(record.station_name, "US-ROOM-1");
-    assert_int_equal(record.indices[EXT_INDEX_MI].status, EXT_VALUE_OK);
-    assert_float_equal(record.indices[EXT_INDEX_MI].value, 1.1, 1e-12);
-    assert_string_equal(record.index_raw[EXT_INDEX_MI], "1.1 ");
-    assert_int_equal(record.indices[EXT_INDEX_TIB].status, EXT_VALUE_INVALID);
-    assert_string_equal(record.index_raw[EXT_INDEX_TIB], "1,2");
-    assert_int_equal(record.indices[EXT_INDEX_TIS].status, EXT_VALUE_MISSING);
-    assert_int_equal(record.indices[EXT_INDEX_TIC].status, EXT_VALUE_MISSING);
-    assert_null(record.index_raw[EXT_INDEX_TIC]);
+    assert_int_equal(record.indices[EXAM_INDEX_MI].status, EXAM_VALUE_OK);
+    assert_float_equal(record.indices[EXAM_INDEX_MI].value, 1.1, 1e-12);
+    assert_string_equal(record.index_raw[EXAM_INDEX_MI], "1.1 ");
+    assert_int_equal(record.indices[EXAM_INDEX_TIB].status, EXAM_VALUE_INVALID);
+    assert_string_equal(record.index_raw[EXAM_INDEX_TIB], "1,2");
+    assert_int_equal(record.indices[EXAM_INDEX_TIS].status, EXAM_VALUE_MISSING);
+    assert_int_equal(record.indices[EXAM_INDEX_TIC].status, EXAM_VALUE_MISSING);
+    assert_null(record.index_raw[EXAM_INDEX_TIC]);
     assert_float_equal(record.number_of_frames.value, 24.0, 0);
     assert_float_equal(record.frame_time_ms.value, 33.3, 1e-12);
     ext_record_free(&record);
@@ -192,8 +192,52 @@ static void record_from_facts(void **state)
     set_value(&facts, DCM_ATTRIBUTE_MODALITY, "CT");
     assert_int_equal(ext_record_from_facts(&facts, &record, &error), MITILOG_OK);
     assert_false(record.is_ultrasound);
-    assert_int_equal(record.indices[EXT_INDEX_MI].status, EXT_VALUE_MISSING);
+    assert_int_equal(record.indices[EXAM_INDEX_MI].status, EXAM_VALUE_MISSING);
     ext_record_free(&record);
+    clear_facts(&facts);
+}
+
+static void uid_syntax(void **state)
+{
+    (void)state;
+    /* PS3.5 section 9.1: digits and dots; a component starts with 0 only
+     * when it is "0"; at most 64 bytes. Examples from PS3.5 9.1 and B.2. */
+    assert_true(ext_uid_is_valid("1.2.840.10008.1.2.1"));
+    assert_true(ext_uid_is_valid("1.2.840.10008.0.1"));
+    assert_true(ext_uid_is_valid("2.25.329800735698586629295641978511506172918"));
+    assert_true(ext_uid_is_valid("0"));
+    char longest[65];
+    memset(longest, '1', 64);
+    longest[1] = '.';
+    longest[64] = '\0';
+    assert_true(ext_uid_is_valid(longest)); /* exactly 64 bytes */
+    char too_long[66];
+    memset(too_long, '1', 65);
+    too_long[1] = '.';
+    too_long[65] = '\0';
+    assert_false(ext_uid_is_valid(too_long));
+    assert_false(ext_uid_is_valid(""));
+    assert_false(ext_uid_is_valid("1.2.03"));      /* leading zero */
+    assert_false(ext_uid_is_valid("1..2"));        /* empty component */
+    assert_false(ext_uid_is_valid(".1.2"));
+    assert_false(ext_uid_is_valid("1.2."));
+    assert_false(ext_uid_is_valid("../../tmp/x"));
+    assert_false(ext_uid_is_valid("1.2.3\n4"));
+    assert_false(ext_uid_is_valid("1.2.3 "));      /* padding is trimmed before */
+}
+
+static void record_with_invalid_uid_is_refused(void **state)
+{
+    (void)state;
+    dcm_facts facts;
+    ext_record record;
+    mitilog_error error;
+    memset(&facts, 0, sizeof facts);
+    set_value(&facts, DCM_ATTRIBUTE_SOP_CLASS_UID, "1.2.840.10008.5.1.4.1.1.6.1");
+    set_value(&facts, DCM_ATTRIBUTE_SOP_INSTANCE_UID, "2.25.1");
+    set_value(&facts, DCM_ATTRIBUTE_STUDY_INSTANCE_UID, "../../etc");
+    assert_int_equal(ext_record_from_facts(&facts, &record, &error), MITILOG_ERROR_INVALID);
+    assert_non_null(strstr(error.text, "Study Instance UID"));
     clear_facts(&facts);
 }
 
@@ -206,6 +250,8 @@ int main(void)
         cmocka_unit_test(date_time_conversion),
         cmocka_unit_test(acquisition_time_fall_backs),
         cmocka_unit_test(record_from_facts),
+        cmocka_unit_test(uid_syntax),
+        cmocka_unit_test(record_with_invalid_uid_is_refused),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

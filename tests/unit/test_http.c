@@ -81,8 +81,8 @@ static void put_instance(store *st, const char *uid, const char *study,
     record.acquired_at_source = EXT_TIME_ACQUISITION;
     snprintf(record.received_at, sizeof record.received_at, "%s",
              received_at);
-    record.indices[EXT_INDEX_MI] = (ext_number){EXT_VALUE_OK, mi};
-    record.index_raw[EXT_INDEX_MI] = strdup("0.9");
+    record.indices[EXAM_INDEX_MI] = (exam_number){EXAM_VALUE_OK, mi};
+    record.index_raw[EXAM_INDEX_MI] = strdup("0.9");
     mitilog_error error = {{0}};
     if (store_put_instance(st, &record, NULL, NULL, &error) != MITILOG_OK)
         fail_msg("put: %s", error.text);
@@ -91,7 +91,7 @@ static void put_instance(store *st, const char *uid, const char *study,
     free(record.study_instance_uid);
     free(record.station_name);
     free(record.modality);
-    free(record.index_raw[EXT_INDEX_MI]);
+    free(record.index_raw[EXAM_INDEX_MI]);
 }
 
 /* Store with two instances, a web root with three files, a secret file
@@ -126,7 +126,7 @@ static int fixture_setup(void **state)
     put_instance(f->store, "1.2.3.2", "1.2.3", "2024-03-01T09:05:00.000Z",
                  1.3);
     f->port = free_port();
-    http_settings settings = {"127.0.0.1", f->port, f->web_root, NULL, NULL, NULL};
+    http_settings settings = {"127.0.0.1", f->port, f->web_root, NULL, NULL, NULL, 0, 0, 0};
     if (http_server_start(&settings, f->store, &f->server, &error) !=
         MITILOG_OK)
         fail_msg("http_server_start: %s", error.text);
@@ -472,7 +472,7 @@ static void static_files(void **state)
 static void port_taken_and_bad_settings(void **state)
 {
     fixture *f = *state;
-    http_settings same = {"127.0.0.1", f->port, NULL, NULL, NULL, NULL};
+    http_settings same = {"127.0.0.1", f->port, NULL, NULL, NULL, NULL, 0, 0, 0};
     http_server *second = NULL;
     mitilog_error error = {{0}};
     assert_int_equal(http_server_start(&same, f->store, &second, &error),
@@ -480,15 +480,15 @@ static void port_taken_and_bad_settings(void **state)
     assert_null(second);
     assert_non_null(strstr(error.text, "in use"));
 
-    http_settings bad_address = {"localhost:80", 0, NULL, NULL, NULL, NULL};
+    http_settings bad_address = {"localhost:80", 0, NULL, NULL, NULL, NULL, 0, 0, 0};
     assert_int_equal(http_server_start(&bad_address, f->store, &second,
                                        &error), MITILOG_ERROR_INVALID);
-    http_settings bad_port = {"127.0.0.1", 70000, NULL, NULL, NULL, NULL};
+    http_settings bad_port = {"127.0.0.1", 70000, NULL, NULL, NULL, NULL, 0, 0, 0};
     assert_int_equal(http_server_start(&bad_port, f->store, &second, &error),
                      MITILOG_ERROR_INVALID);
 
     /* No web root: "/" is a JSON 404. */
-    http_settings api_only = {NULL, free_port(), "/nonexistent/web", NULL, NULL, NULL};
+    http_settings api_only = {NULL, free_port(), "/nonexistent/web", NULL, NULL, NULL, 0, 0, 0};
     assert_int_equal(http_server_start(&api_only, f->store, &second, &error),
                      MITILOG_OK);
     response r = http_request(api_only.port, "GET", "/");

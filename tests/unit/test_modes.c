@@ -15,7 +15,7 @@
 
 #include "extract/ext_modes.h"
 
-#define BIT(m) EXT_MODE_BIT(EXT_MODE_##m)
+#define BIT(m) EXAM_MODE_BIT(EXAM_MODE_##m)
 
 static void each_bit_of_the_table(void **state)
 {
@@ -118,12 +118,12 @@ static void power_mode_union(void **state)
 static void names(void **state)
 {
     (void)state;
-    assert_string_equal(ext_mode_name(EXT_MODE_2D), "2d");
-    assert_string_equal(ext_mode_name(EXT_MODE_COLOUR), "colour");
-    assert_null(ext_mode_name(EXT_MODE_COUNT));
-    assert_int_equal(ext_mode_from_name("b"), EXT_MODE_2D);
-    assert_int_equal(ext_mode_from_name("PW"), EXT_MODE_PW);
-    assert_int_equal(ext_mode_from_name("bogus"), -1);
+    assert_string_equal(exam_mode_name(EXAM_MODE_2D), "2d");
+    assert_string_equal(exam_mode_name(EXAM_MODE_COLOUR), "colour");
+    assert_null(exam_mode_name(EXAM_MODE_COUNT));
+    assert_int_equal(exam_mode_from_name("b"), EXAM_MODE_2D);
+    assert_int_equal(exam_mode_from_name("PW"), EXAM_MODE_PW);
+    assert_int_equal(exam_mode_from_name("bogus"), -1);
 }
 
 int main(void)

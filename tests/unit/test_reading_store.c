@@ -67,16 +67,16 @@ static void make_record(ext_record *record, const char *uid, double mi)
     record->calling_ae_title = strdup("SCANNER1");
     snprintf(record->acquired_at, sizeof record->acquired_at, "2026-12-01T10:00:00");
     record->acquired_at_source = EXT_TIME_ACQUISITION;
-    record->number_of_frames.status = EXT_VALUE_MISSING;
-    record->frame_time_ms.status = EXT_VALUE_MISSING;
+    record->number_of_frames.status = EXAM_VALUE_MISSING;
+    record->frame_time_ms.status = EXAM_VALUE_MISSING;
     record->is_ultrasound = 1;
-    for (int i = 0; i < EXT_INDEX_COUNT; i++)
-        record->indices[i].status = EXT_VALUE_MISSING;
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++)
+        record->indices[i].status = EXAM_VALUE_MISSING;
     if (mi >= 0) {
-        record->indices[EXT_INDEX_MI] = (ext_number){EXT_VALUE_OK, mi};
+        record->indices[EXAM_INDEX_MI] = (exam_number){EXAM_VALUE_OK, mi};
         char text[32];
         snprintf(text, sizeof text, "%g", mi);
-        record->index_raw[EXT_INDEX_MI] = strdup(text);
+        record->index_raw[EXAM_INDEX_MI] = strdup(text);
     }
 }
 
@@ -87,7 +87,7 @@ static void free_record(ext_record *record)
     free(record->study_instance_uid);
     free(record->modality);
     free(record->calling_ae_title);
-    for (int i = 0; i < EXT_INDEX_COUNT; i++)
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++)
         free(record->index_raw[i]);
 }
 
@@ -128,9 +128,9 @@ static mitilog_status write_mi(store *st, long long id, const char *path, double
     store_screen_result result = {.instance_id = id, .path = path, .read = 1,
                                   .profile_key = "kestrel-320", .profile_version = 1,
                                   .frames_read = 1};
-    for (int i = 0; i < EXT_INDEX_COUNT; i++)
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++)
         result.values[i].status = "not_shown";
-    result.values[EXT_INDEX_MI] = (store_screen_value){"read", value, decimals, text, NULL};
+    result.values[EXAM_INDEX_MI] = (store_screen_value){"read", value, decimals, text, NULL};
     mitilog_error error = {{0}};
     mitilog_status status = store_put_screen_result(st, &result, stale, &error);
     if (status != MITILOG_OK)
@@ -139,7 +139,7 @@ static mitilog_status write_mi(store *st, long long id, const char *path, double
 }
 
 /* The MI value and status the rules read (store_load_study). */
-static void study_mi(store *st, ext_number *mi)
+static void study_mi(store *st, exam_number *mi)
 {
     ext_exam_instance *instances = NULL;
     size_t count = 0;
@@ -148,7 +148,7 @@ static void study_mi(store *st, ext_number *mi)
                                       &error),
                      MITILOG_OK);
     assert_int_equal(count, 1);
-    *mi = instances[0].indices[EXT_INDEX_MI];
+    *mi = instances[0].indices[EXAM_INDEX_MI];
     store_study_free(instances, count);
 }
 
@@ -222,9 +222,9 @@ static void screen_value_is_used_and_mismatch_found(void **state)
 {
     fixture *f = *state;
     long long id = put(f->store, "1.2.3.4", 1.0, "/spool/d.dcm", NULL, NULL);
-    ext_number mi;
+    exam_number mi;
     study_mi(f->store, &mi);
-    assert_int_equal(mi.status, EXT_VALUE_OK);
+    assert_int_equal(mi.status, EXAM_VALUE_OK);
     assert_true(mi.value == 1.0); /* not read yet: the header's */
     int stale = 0;
     write_mi(f->store, id, "/spool/d.dcm", 1.3, "1.3", 1, &stale);

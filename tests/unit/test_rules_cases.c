@@ -17,7 +17,7 @@ enum { MAX_CAPTURES = 64, MAX_EXPECT = 64, TEXT = 128 };
 
 typedef struct test_case {
     rules_exam exam;
-    rules_capture captures[MAX_CAPTURES];
+    exam_capture captures[MAX_CAPTURES];
     char uids[MAX_CAPTURES][TEXT];
     char study[TEXT], category[TEXT], room[TEXT], transducer[TEXT];
     char expect_keys[MAX_EXPECT][TEXT], expect_values[MAX_EXPECT][TEXT];
@@ -61,9 +61,9 @@ static int parse_time(const char *text, double *seconds)
 static int parse_modes(const char *text, unsigned *modes)
 {
     static const struct { const char *name; unsigned bit; } names[] = {
-        {"2D", RULES_MODE_2D}, {"M", RULES_MODE_M}, {"CW", RULES_MODE_CW},
-        {"PW", RULES_MODE_PW}, {"colour", RULES_MODE_COLOUR}, {"colour_m", RULES_MODE_COLOUR_M},
-        {"3D", RULES_MODE_3D}, {"power", RULES_MODE_COLOUR_POWER}};
+        {"2D", EXAM_MODE_BIT(EXAM_MODE_2D)}, {"M", EXAM_MODE_BIT(EXAM_MODE_M)}, {"CW", EXAM_MODE_BIT(EXAM_MODE_CW)},
+        {"PW", EXAM_MODE_BIT(EXAM_MODE_PW)}, {"colour", EXAM_MODE_BIT(EXAM_MODE_COLOUR)}, {"colour_m", EXAM_MODE_BIT(EXAM_MODE_COLOUR_M)},
+        {"3D", EXAM_MODE_BIT(EXAM_MODE_3D)}, {"power", EXAM_MODE_BIT(EXAM_MODE_POWER)}};
     if (strncmp(text, "0x", 2) == 0) {
         *modes = (unsigned)strtoul(text, NULL, 16);
         return 0;
@@ -85,8 +85,8 @@ static int parse_modes(const char *text, unsigned *modes)
 
 static int index_of_name(const char *name)
 {
-    for (int x = 0; x < EXT_INDEX_COUNT; x++) {
-        if (strcmp(ext_index_name((ext_index)x), name) == 0)
+    for (int x = 0; x < EXAM_INDEX_COUNT; x++) {
+        if (strcmp(exam_index_name((exam_index)x), name) == 0)
             return x;
     }
     return -1;
@@ -102,7 +102,7 @@ static int exam_key(test_case *c, const char *key, const char *value)
         snprintf(c->category, sizeof c->category, "%s", value);
         exam->category = c->category;
     } else if (strcmp(key, "group") == 0) {
-        failed = rules_group_parse(value, &exam->group);
+        failed = exam_group_parse(value, &exam->group);
     } else if (strcmp(key, "age") == 0) {
         failed = rules_age_parse(value, &exam->age);
     } else if (strcmp(key, "gestational_age") == 0) {
@@ -112,7 +112,7 @@ static int exam_key(test_case *c, const char *key, const char *value)
     } else if (strcmp(key, "governing_index") == 0) {
         int x = index_of_name(value);
         exam->has_governing_index = x >= 0;
-        exam->governing_index = (ext_index)(x >= 0 ? x : 0);
+        exam->governing_index = (exam_index)(x >= 0 ? x : 0);
         failed = x < 0;
     } else if (strcmp(key, "room") == 0) {
         snprintf(c->room, sizeof c->room, "%s", value);
@@ -128,15 +128,15 @@ static int exam_key(test_case *c, const char *key, const char *value)
     return failed;
 }
 
-static int capture_key(test_case *c, rules_capture *capture, size_t n, const char *key,
+static int capture_key(test_case *c, exam_capture *capture, size_t n, const char *key,
                        const char *value)
 {
     int x = index_of_name(key);
     if (x >= 0) {
         if (strcmp(value, "missing") == 0)
-            capture->indices[x].status = EXT_VALUE_MISSING;
+            capture->indices[x].status = EXAM_VALUE_MISSING;
         else if (parse_number(value, &capture->indices[x].value) == 0)
-            capture->indices[x].status = EXT_VALUE_OK;
+            capture->indices[x].status = EXAM_VALUE_OK;
         else
             return 1;
         return 0;
@@ -166,7 +166,7 @@ static int handle(void *user, const char *section, const char *key, const char *
     } else if (sscanf(section, "capture %u", &n) == 1 && n >= 1 && n <= MAX_CAPTURES) {
         if (n > c->exam.capture_count) {
             for (size_t i = c->exam.capture_count; i < n; i++)
-                c->captures[i].modes = RULES_MODE_2D;
+                c->captures[i].modes = EXAM_MODE_BIT(EXAM_MODE_2D);
             c->exam.capture_count = n;
         }
         failed = capture_key(c, &c->captures[n - 1], n - 1, key, value);
@@ -186,7 +186,7 @@ static int handle(void *user, const char *section, const char *key, const char *
 }
 
 /* "ID" or "ID@threshold" -> the first matching finding. */
-static const rules_finding *finding_for(const rules_result *result, const char *what)
+static const exam_finding *finding_for(const rules_result *result, const char *what)
 {
     char id[TEXT];
     snprintf(id, sizeof id, "%s", what);
@@ -197,7 +197,7 @@ static const rules_finding *finding_for(const rules_result *result, const char *
         threshold = atof(at + 1);
     }
     for (size_t i = 0; i < result->finding_count; i++) {
-        const rules_finding *finding = &result->findings[i];
+        const exam_finding *finding = &result->findings[i];
         if (strcmp(finding->rule_id, id) == 0 &&
             (threshold < 0 || fabs(finding->threshold - threshold) < 1e-9))
             return finding;
@@ -213,7 +213,7 @@ static void check_expectation(const char *name, const test_case *c, const rules_
     const char *dot = strchr(key, '.');
     const char *what = dot ? dot + 1 : "";
     size_t kind = dot ? (size_t)(dot - key) : strlen(key);
-    const rules_finding *finding = dot ? finding_for(result, what) : NULL;
+    const exam_finding *finding = dot ? finding_for(result, what) : NULL;
     double actual = 0;
     const char *actual_text = NULL;
     if (strcmp(key, "findings") == 0) {
@@ -225,7 +225,7 @@ static void check_expectation(const char *name, const test_case *c, const rules_
         double threshold = at ? (*at = '\0', atof(at + 1)) : -1;
         actual = (double)support_count(result, id, threshold);
     } else if (strcmp(key, "governing_index") == 0) {
-        actual_text = ext_index_name(result->measurements.governing_index);
+        actual_text = exam_index_name(result->measurements.governing_index);
     } else if (strcmp(key, "cem43") == 0) {
         actual = result->measurements.cem43_minutes;
     } else if (strcmp(key, "estimated_seconds") == 0) {
@@ -239,9 +239,9 @@ static void check_expectation(const char *name, const test_case *c, const rules_
     } else if (kind == 5 && strncmp(key, "limit", 5) == 0) {
         actual = finding->limit;
     } else if (kind == 8 && strncmp(key, "severity", 8) == 0) {
-        actual_text = rules_severity_name(finding->severity);
+        actual_text = exam_severity_name(finding->severity);
     } else if (kind == 5 && strncmp(key, "index", 5) == 0) {
-        actual_text = finding->has_index ? ext_index_name(finding->index) : "none";
+        actual_text = finding->has_index ? exam_index_name(finding->index) : "none";
     } else if (kind == 9 && strncmp(key, "instances", 9) == 0) {
         actual = (double)finding->instance_count;
     } else if (kind == 11 && strncmp(key, "provisional", 11) == 0) {

@@ -28,10 +28,10 @@ static int teardown(void **state)
 
 /* One capture whose cine lasts seconds, with the given index at value:
  * the timeline attributes exactly those seconds to it. */
-static void evaluate_one(rules_group group, double weeks, ext_index index, double value,
+static void evaluate_one(exam_group group, double weeks, exam_index index, double value,
                          double seconds, rules_result *result)
 {
-    rules_capture capture = support_capture("1.2.3.4.1", 0, seconds);
+    exam_capture capture = support_capture("1.2.3.4.1", 0, seconds);
     capture.indices[index] = support_number(value);
     rules_exam exam = support_exam(group, &capture, 1);
     exam.gestational_age_weeks = weeks;
@@ -48,7 +48,7 @@ typedef struct step {
 /* At each threshold: TI exactly at it for exactly the limit is allowed; one
  * second longer is one finding at that threshold; a TI just below it for
  * the same time is none (the lower steps allow longer). */
-static void check_table(const char *rule_id, rules_group group, double weeks, ext_index index,
+static void check_table(const char *rule_id, exam_group group, double weeks, exam_index index,
                         const step *steps, size_t count)
 {
     for (size_t s = 0; s < count; s++) {
@@ -61,7 +61,7 @@ static void check_table(const char *rule_id, rules_group group, double weeks, ex
         }
         evaluate_one(group, weeks, index, steps[s].threshold, limit_seconds + 1, &result);
         assert_int_equal(support_count(&result, rule_id, -1), 1);
-        const rules_finding *finding = support_find(&result, rule_id, steps[s].threshold);
+        const exam_finding *finding = support_find(&result, rule_id, steps[s].threshold);
         assert_non_null(finding);
         assert_close(finding->measured, (limit_seconds + 1) / 60.0, 1e-9);
         assert_close(finding->limit, limit_seconds / 60.0, 1e-9);
@@ -82,11 +82,11 @@ static void obstetric_table_at_and_around_each_threshold(void **state)
 {
     (void)state;
     const step table[] = {{0.7, 60}, {1.0, 30}, {1.5, 15}, {2.0, 4}, {2.5, 1}, {3.0, -1}};
-    check_table("dwell_obstetric_neonatal", RULES_GROUP_OBSTETRIC, 20, EXT_INDEX_TIB, table, 6);
-    check_table("dwell_obstetric_neonatal", RULES_GROUP_NEONATAL, 0, EXT_INDEX_TIS, table, 6);
+    check_table("dwell_obstetric_neonatal", EXAM_GROUP_OBSTETRIC, 20, EXAM_INDEX_TIB, table, 6);
+    check_table("dwell_obstetric_neonatal", EXAM_GROUP_NEONATAL, 0, EXAM_INDEX_TIS, table, 6);
     /* Not recommended: a still image at 3.0 with no attributed time. */
     rules_result result;
-    evaluate_one(RULES_GROUP_OBSTETRIC, 20, EXT_INDEX_TIB, 3.0, 0, &result);
+    evaluate_one(EXAM_GROUP_OBSTETRIC, 20, EXAM_INDEX_TIB, 3.0, 0, &result);
     assert_int_equal(support_count(&result, "dwell_obstetric_neonatal", 3.0), 1);
     rules_result_free(&result);
 }
@@ -96,15 +96,15 @@ static void general_table_at_and_around_each_threshold(void **state)
 {
     (void)state;
     const step table[] = {{1.0, 120}, {1.5, 60}, {2.0, 15}, {2.5, 4}, {3.0, 1}};
-    check_table("dwell_general", RULES_GROUP_GENERAL, 0, EXT_INDEX_TIS, table, 5);
-    check_table("dwell_general", RULES_GROUP_TRANSCRANIAL, 0, EXT_INDEX_TIC, table, 5);
+    check_table("dwell_general", EXAM_GROUP_GENERAL, 0, EXAM_INDEX_TIS, table, 5);
+    check_table("dwell_general", EXAM_GROUP_TRANSCRANIAL, 0, EXAM_INDEX_TIC, table, 5);
     rules_result result;
     /* TI up to 1.0 unrestricted: 0.99 for five hours is no finding. */
-    evaluate_one(RULES_GROUP_GENERAL, 0, EXT_INDEX_TIS, 0.99, 5 * 3600, &result);
+    evaluate_one(EXAM_GROUP_GENERAL, 0, EXAM_INDEX_TIS, 0.99, 5 * 3600, &result);
     assert_int_equal(result.finding_count, 0);
     rules_result_free(&result);
     /* The OB table does not apply to a general exam. */
-    evaluate_one(RULES_GROUP_GENERAL, 0, EXT_INDEX_TIS, 0.8, 61 * 60, &result);
+    evaluate_one(EXAM_GROUP_GENERAL, 0, EXAM_INDEX_TIS, 0.8, 61 * 60, &result);
     assert_int_equal(support_count(&result, "dwell_obstetric_neonatal", -1), 0);
     rules_result_free(&result);
 }
@@ -114,59 +114,59 @@ static void general_table_at_and_around_each_threshold(void **state)
 static void governing_index_switches_at_ten_weeks(void **state)
 {
     (void)state;
-    rules_exam exam = support_exam(RULES_GROUP_OBSTETRIC, NULL, 0);
+    rules_exam exam = support_exam(EXAM_GROUP_OBSTETRIC, NULL, 0);
     exam.gestational_age_known = 1;
     exam.gestational_age_weeks = 9 + 6 / 7.0;
-    assert_int_equal(rules_governing_index(&exam), EXT_INDEX_TIS);
+    assert_int_equal(rules_governing_index(&exam), EXAM_INDEX_TIS);
     exam.gestational_age_weeks = 10;
-    assert_int_equal(rules_governing_index(&exam), EXT_INDEX_TIB);
+    assert_int_equal(rules_governing_index(&exam), EXAM_INDEX_TIB);
     exam.gestational_age_known = 0;
-    assert_int_equal(rules_governing_index(&exam), EXT_INDEX_TIB);
-    exam.group = RULES_GROUP_TRANSCRANIAL;
-    assert_int_equal(rules_governing_index(&exam), EXT_INDEX_TIC);
-    exam.group = RULES_GROUP_NEONATAL;
-    assert_int_equal(rules_governing_index(&exam), EXT_INDEX_TIS);
-    exam.group = RULES_GROUP_GENERAL;
-    assert_int_equal(rules_governing_index(&exam), EXT_INDEX_TIS);
+    assert_int_equal(rules_governing_index(&exam), EXAM_INDEX_TIB);
+    exam.group = EXAM_GROUP_TRANSCRANIAL;
+    assert_int_equal(rules_governing_index(&exam), EXAM_INDEX_TIC);
+    exam.group = EXAM_GROUP_NEONATAL;
+    assert_int_equal(rules_governing_index(&exam), EXAM_INDEX_TIS);
+    exam.group = EXAM_GROUP_GENERAL;
+    assert_int_equal(rules_governing_index(&exam), EXAM_INDEX_TIS);
     /* In evaluation: TIS 1.2 and TIB 0.5 for 31 min; 9+6 judges TIS. */
-    rules_capture capture = support_capture("1", 0, 31 * 60);
-    capture.indices[EXT_INDEX_TIS] = support_number(1.2);
-    capture.indices[EXT_INDEX_TIB] = support_number(0.5);
-    rules_exam ob = support_exam(RULES_GROUP_OBSTETRIC, &capture, 1);
+    exam_capture capture = support_capture("1", 0, 31 * 60);
+    capture.indices[EXAM_INDEX_TIS] = support_number(1.2);
+    capture.indices[EXAM_INDEX_TIB] = support_number(0.5);
+    rules_exam ob = support_exam(EXAM_GROUP_OBSTETRIC, &capture, 1);
     ob.gestational_age_known = 1;
     ob.gestational_age_weeks = 9 + 6 / 7.0;
     rules_result result;
     mitilog_error error;
     assert_int_equal(rules_evaluate(policy, &ob, &result, &error), MITILOG_OK);
-    assert_int_equal(result.measurements.governing_index, EXT_INDEX_TIS);
+    assert_int_equal(result.measurements.governing_index, EXAM_INDEX_TIS);
     assert_int_equal(support_count(&result, "dwell_obstetric_neonatal", 1.0), 1);
     rules_result_free(&result);
     ob.gestational_age_weeks = 10;
     assert_int_equal(rules_evaluate(policy, &ob, &result, &error), MITILOG_OK);
-    assert_int_equal(result.measurements.governing_index, EXT_INDEX_TIB);
+    assert_int_equal(result.measurements.governing_index, EXAM_INDEX_TIB);
     assert_int_equal(support_count(&result, "dwell_obstetric_neonatal", -1), 0);
     rules_result_free(&result);
     /* A governing index named by the exam record wins. */
     ob.has_governing_index = 1;
-    ob.governing_index = EXT_INDEX_TIS;
+    ob.governing_index = EXAM_INDEX_TIS;
     assert_int_equal(rules_evaluate(policy, &ob, &result, &error), MITILOG_OK);
     assert_int_equal(support_count(&result, "dwell_obstetric_neonatal", 1.0), 1);
     rules_result_free(&result);
 }
 
-static size_t doppler_findings(double weeks, unsigned modes, double tib, rules_severity *severity)
+static size_t doppler_findings(double weeks, unsigned modes, double tib, exam_severity *severity)
 {
-    rules_capture captures[2] = {support_capture("1", 0, 0), support_capture("2", 120, 0)};
+    exam_capture captures[2] = {support_capture("1", 0, 0), support_capture("2", 120, 0)};
     captures[1].modes = modes;
-    captures[1].indices[EXT_INDEX_TIB] = support_number(tib);
-    rules_exam exam = support_exam(RULES_GROUP_OBSTETRIC, captures, 2);
+    captures[1].indices[EXAM_INDEX_TIB] = support_number(tib);
+    rules_exam exam = support_exam(EXAM_GROUP_OBSTETRIC, captures, 2);
     exam.gestational_age_known = 1;
     exam.gestational_age_weeks = weeks;
     rules_result result;
     mitilog_error error;
     assert_int_equal(rules_evaluate(policy, &exam, &result, &error), MITILOG_OK);
     size_t count = support_count(&result, "first_trimester_doppler", -1);
-    const rules_finding *finding = support_find(&result, "first_trimester_doppler", -1);
+    const exam_finding *finding = support_find(&result, "first_trimester_doppler", -1);
     if (finding) {
         *severity = finding->severity;
         assert_close(finding->estimated_seconds, 120, 1e-9);
@@ -181,23 +181,23 @@ static size_t doppler_findings(double weeks, unsigned modes, double tib, rules_s
 static void first_trimester_doppler_boundary(void **state)
 {
     (void)state;
-    rules_severity severity = RULES_SEVERITY_VIOLATION;
-    assert_int_equal(doppler_findings(13 + 6 / 7.0, RULES_MODE_2D | RULES_MODE_PW, 0.8, &severity), 1);
-    assert_int_equal(severity, RULES_SEVERITY_ADVISORY);
-    assert_int_equal(doppler_findings(14.0, RULES_MODE_2D | RULES_MODE_PW, 0.8, &severity), 0);
-    assert_int_equal(doppler_findings(12, RULES_MODE_CW, 1.0, &severity), 1);
-    assert_int_equal(severity, RULES_SEVERITY_ADVISORY);
-    assert_int_equal(doppler_findings(12, RULES_MODE_COLOUR, 1.01, &severity), 1);
-    assert_int_equal(severity, RULES_SEVERITY_WARNING);
-    assert_int_equal(doppler_findings(12, RULES_MODE_COLOUR_POWER, 0.5, &severity), 1);
-    assert_int_equal(doppler_findings(12, RULES_MODE_2D | RULES_MODE_M, 0.5, &severity), 0);
+    exam_severity severity = EXAM_SEVERITY_VIOLATION;
+    assert_int_equal(doppler_findings(13 + 6 / 7.0, EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_PW), 0.8, &severity), 1);
+    assert_int_equal(severity, EXAM_SEVERITY_ADVISORY);
+    assert_int_equal(doppler_findings(14.0, EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_PW), 0.8, &severity), 0);
+    assert_int_equal(doppler_findings(12, EXAM_MODE_BIT(EXAM_MODE_CW), 1.0, &severity), 1);
+    assert_int_equal(severity, EXAM_SEVERITY_ADVISORY);
+    assert_int_equal(doppler_findings(12, EXAM_MODE_BIT(EXAM_MODE_COLOUR), 1.01, &severity), 1);
+    assert_int_equal(severity, EXAM_SEVERITY_WARNING);
+    assert_int_equal(doppler_findings(12, EXAM_MODE_BIT(EXAM_MODE_POWER), 0.5, &severity), 1);
+    assert_int_equal(doppler_findings(12, EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_M), 0.5, &severity), 0);
 }
 
-static rules_result evaluate_mi(rules_group group, const char *category, double mi, double tis)
+static rules_result evaluate_mi(exam_group group, const char *category, double mi, double tis)
 {
-    rules_capture capture = support_capture("1", 0, 10);
-    capture.indices[EXT_INDEX_MI] = support_number(mi);
-    capture.indices[EXT_INDEX_TIS] = support_number(tis);
+    exam_capture capture = support_capture("1", 0, 10);
+    capture.indices[EXAM_INDEX_MI] = support_number(mi);
+    capture.indices[EXAM_INDEX_TIS] = support_number(tis);
     rules_exam exam = support_exam(group, &capture, 1);
     exam.category = category;
     rules_result result;
@@ -210,20 +210,20 @@ static rules_result evaluate_mi(rules_group group, const char *category, double 
 static void equipment_maxima(void **state)
 {
     (void)state;
-    rules_result result = evaluate_mi(RULES_GROUP_GENERAL, NULL, 1.9, 0.5);
+    rules_result result = evaluate_mi(EXAM_GROUP_GENERAL, NULL, 1.9, 0.5);
     assert_int_equal(result.finding_count, 0);
     rules_result_free(&result);
-    result = evaluate_mi(RULES_GROUP_GENERAL, NULL, 1.91, 0.5);
+    result = evaluate_mi(EXAM_GROUP_GENERAL, NULL, 1.91, 0.5);
     assert_int_equal(result.finding_count, 1);
     assert_string_equal(result.findings[0].rule_id, "equipment_maxima");
-    assert_int_equal(result.findings[0].severity, RULES_SEVERITY_VIOLATION);
+    assert_int_equal(result.findings[0].severity, EXAM_SEVERITY_VIOLATION);
     assert_string_equal(result.findings[0].quantity, "mi");
     assert_non_null(strstr(result.findings[0].assumptions, "equipment"));
     rules_result_free(&result);
-    result = evaluate_mi(RULES_GROUP_OPHTHALMIC, NULL, 0.23, 1.0);
+    result = evaluate_mi(EXAM_GROUP_OPHTHALMIC, NULL, 0.23, 1.0);
     assert_int_equal(result.finding_count, 0);
     rules_result_free(&result);
-    result = evaluate_mi(RULES_GROUP_OPHTHALMIC, NULL, 0.24, 1.01);
+    result = evaluate_mi(EXAM_GROUP_OPHTHALMIC, NULL, 0.24, 1.01);
     assert_int_equal(support_count(&result, "equipment_maxima", -1), 2);
     assert_int_equal(support_count(&result, "mi_ceiling", -1), 1);
     assert_int_equal(support_count(&result, "ti_ceiling", -1), 1);
@@ -234,23 +234,23 @@ static void equipment_maxima(void **state)
 static void mi_ceiling_per_category(void **state)
 {
     (void)state;
-    rules_result result = evaluate_mi(RULES_GROUP_NEONATAL, "neonatal_lung", 0.3, 0.2);
+    rules_result result = evaluate_mi(EXAM_GROUP_NEONATAL, "neonatal_lung", 0.3, 0.2);
     assert_int_equal(result.finding_count, 0);
     rules_result_free(&result);
-    result = evaluate_mi(RULES_GROUP_NEONATAL, "neonatal_lung", 0.31, 0.2);
+    result = evaluate_mi(EXAM_GROUP_NEONATAL, "neonatal_lung", 0.31, 0.2);
     assert_int_equal(support_count(&result, "mi_ceiling", -1), 1);
     assert_close(result.findings[0].limit, 0.3, 1e-12);
     rules_result_free(&result);
-    result = evaluate_mi(RULES_GROUP_NEONATAL, "neonatal_head", 0.8, 0.2);
+    result = evaluate_mi(EXAM_GROUP_NEONATAL, "neonatal_head", 0.8, 0.2);
     assert_int_equal(support_count(&result, "mi_ceiling", -1), 0);
     rules_result_free(&result);
-    result = evaluate_mi(RULES_GROUP_CONTRAST, NULL, 0.7, 0.2);
+    result = evaluate_mi(EXAM_GROUP_CONTRAST, NULL, 0.7, 0.2);
     assert_int_equal(result.finding_count, 0);
     rules_result_free(&result);
-    result = evaluate_mi(RULES_GROUP_CONTRAST, NULL, 0.71, 0.2);
+    result = evaluate_mi(EXAM_GROUP_CONTRAST, NULL, 0.71, 0.2);
     assert_int_equal(support_count(&result, "mi_ceiling", -1), 1);
     rules_result_free(&result);
-    result = evaluate_mi(RULES_GROUP_GENERAL, NULL, 1.5, 0.2);
+    result = evaluate_mi(EXAM_GROUP_GENERAL, NULL, 1.5, 0.2);
     assert_int_equal(result.finding_count, 0);
     rules_result_free(&result);
 }
@@ -259,10 +259,10 @@ static void mi_ceiling_per_category(void **state)
 static void output_not_reported_aggregates_per_device(void **state)
 {
     (void)state;
-    rules_instance instances[11];
+    exam_device_instance instances[11];
     const char *uids[11] = {"a1", "a2", "a3", "a4", "a5", "y1", "y2", "y3", "b1", "b2", "b3"};
     for (size_t i = 0; i < 11; i++) {
-        instances[i] = (rules_instance){uids[i], "1.2", i < 8 ? "ROOM A" : "ROOM B",
+        instances[i] = (exam_device_instance){uids[i], "1.2", i < 8 ? "ROOM A" : "ROOM B",
                                         i < 5 || i >= 8 ? "C5-1" : "L12-5", 0, 100.0 * i, 1};
     }
     for (size_t i = 5; i < 8; i++)
@@ -282,7 +282,7 @@ static void output_not_reported_aggregates_per_device(void **state)
     assert_string_equal(result.findings[1].room, "ROOM B");
     assert_close(result.findings[1].measured, 2, 0);
     assert_close(result.findings[1].last_seconds, 900, 0);
-    assert_int_equal(result.findings[1].severity, RULES_SEVERITY_ADVISORY);
+    assert_int_equal(result.findings[1].severity, EXAM_SEVERITY_ADVISORY);
     rules_result_free(&result);
 }
 
@@ -291,10 +291,10 @@ static void optional_rules_off_by_default(void **state)
 {
     (void)state;
     /* TIS 6.0 (43 C worst case) for 10 min: CEM43 = 10 (Sapareto & Dewey). */
-    rules_capture captures[3] = {support_capture("1", 0, 0), support_capture("2", 3 * 3600, 0),
+    exam_capture captures[3] = {support_capture("1", 0, 0), support_capture("2", 3 * 3600, 0),
                                  support_capture("3", 3 * 3600 + 1, 600)};
-    captures[2].indices[EXT_INDEX_TIS] = support_number(6.0);
-    rules_exam exam = support_exam(RULES_GROUP_GENERAL, captures, 3);
+    captures[2].indices[EXAM_INDEX_TIS] = support_number(6.0);
+    rules_exam exam = support_exam(EXAM_GROUP_GENERAL, captures, 3);
     rules_result result;
     mitilog_error error;
     assert_int_equal(rules_evaluate(policy, &exam, &result, &error), MITILOG_OK);
@@ -306,7 +306,7 @@ static void optional_rules_off_by_default(void **state)
                                              "limit = 5\n\n[rule exam_duration]");
     assert_non_null(site);
     assert_int_equal(rules_evaluate(site, &exam, &result, &error), MITILOG_OK);
-    const rules_finding *dose = support_find(&result, "thermal_dose", -1);
+    const exam_finding *dose = support_find(&result, "thermal_dose", -1);
     assert_non_null(dose);
     assert_close(dose->measured, 10 + 1 / 60.0, 1e-9);
     assert_string_equal(dose->unit, "CEM43 min");
@@ -321,7 +321,7 @@ static void optional_rules_off_by_default(void **state)
     assert_int_equal(rules_policy_load_text(text, "p.ini", &site, &error), MITILOG_OK);
     free(text);
     assert_int_equal(rules_evaluate(site, &exam, &result, &error), MITILOG_OK);
-    const rules_finding *duration = support_find(&result, "exam_duration", -1);
+    const exam_finding *duration = support_find(&result, "exam_duration", -1);
     assert_non_null(duration);
     assert_close(duration->measured, 180 + 1 / 60.0, 1e-9);   /* 0 s to 10801 s */
     rules_result_free(&result);
@@ -332,9 +332,9 @@ static void optional_rules_off_by_default(void **state)
 static void open_exam_is_provisional(void **state)
 {
     (void)state;
-    rules_capture capture = support_capture("1", 0, 10);
-    capture.indices[EXT_INDEX_MI] = support_number(2.0);
-    rules_exam exam = support_exam(RULES_GROUP_GENERAL, &capture, 1);
+    exam_capture capture = support_capture("1", 0, 10);
+    capture.indices[EXAM_INDEX_MI] = support_number(2.0);
+    rules_exam exam = support_exam(EXAM_GROUP_GENERAL, &capture, 1);
     exam.closed = 0;
     rules_result result;
     mitilog_error error;

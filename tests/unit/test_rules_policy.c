@@ -27,13 +27,13 @@ static void shipped_policy_loads(void **state)
                               "thermal_dose", "exam_duration"};
     assert_int_equal(rules_policy_rule_count(policy), 9);
     for (size_t i = 0; i < 9; i++) {
-        rules_rule_info info;
+        exam_rule_info info;
         assert_int_equal(rules_policy_rule_at(policy, i, &info), 0);
         assert_string_equal(info.id, expected[i]);
         assert_true(strlen(info.source) > 20);
         assert_true(info.setting_count >= 3);
     }
-    rules_rule_info info;
+    exam_rule_info info;
     assert_int_equal(rules_policy_rule_at(policy, 9, &info), -1);
     /* The OB table exactly as in the domain reference (section 4). */
     rules_policy_rule_at(policy, 4, &info);

@@ -23,7 +23,7 @@ static double uniform(void)   /* [0, 1): a 64-bit LCG, top 53 bits */
 }
 
 typedef struct generated {
-    rules_capture captures[MAX_CAPTURES + 1];
+    exam_capture captures[MAX_CAPTURES + 1];
     char uids[MAX_CAPTURES + 1][32];
     rules_exam exam;
 } generated;
@@ -35,18 +35,18 @@ static void generate(generated *out)
     double t = 0;
     for (size_t i = 0; i < count; i++) {
         snprintf(out->uids[i], sizeof out->uids[i], "1.2.%zu", i);
-        rules_capture *capture = &out->captures[i];
+        exam_capture *capture = &out->captures[i];
         t += uniform() * 900;   /* gaps up to 15 min: some above the cap */
         *capture = support_capture(out->uids[i], t, uniform() < 0.3 ? uniform() * 600 : 0);
         capture->has_time = uniform() > 0.05;
-        for (int x = 0; x < EXT_INDEX_COUNT; x++) {
+        for (int x = 0; x < EXAM_INDEX_COUNT; x++) {
             if (uniform() < 0.85)
-                capture->indices[x] = support_number(x == EXT_INDEX_MI ? uniform() * 2.2
+                capture->indices[x] = support_number(x == EXAM_INDEX_MI ? uniform() * 2.2
                                                                        : uniform() * 3.5);
         }
-        capture->modes = uniform() < 0.3 ? RULES_MODE_PW : RULES_MODE_2D;
+        capture->modes = uniform() < 0.3 ? EXAM_MODE_BIT(EXAM_MODE_PW) : EXAM_MODE_BIT(EXAM_MODE_2D);
     }
-    out->exam = support_exam((rules_group)(uniform() * RULES_GROUP_COUNT), out->captures, count);
+    out->exam = support_exam((exam_group)(uniform() * EXAM_GROUP_COUNT), out->captures, count);
     out->exam.age = (rules_age)(uniform() * RULES_AGE_COUNT);
     out->exam.gestational_age_known = uniform() < 0.8;
     out->exam.gestational_age_weeks = 5 + uniform() * 35;
@@ -60,10 +60,10 @@ static void evaluate(const rules_policy *policy, const rules_exam *exam, rules_r
     assert_int_equal(rules_evaluate(policy, exam, result, &error), MITILOG_OK);
 }
 
-static int has_finding(const rules_result *result, const rules_finding *finding)
+static int has_finding(const rules_result *result, const exam_finding *finding)
 {
     for (size_t i = 0; i < result->finding_count; i++) {
-        const rules_finding *other = &result->findings[i];
+        const exam_finding *other = &result->findings[i];
         if (strcmp(other->rule_id, finding->rule_id) == 0 &&
             strcmp(other->quantity, finding->quantity) == 0 &&
             other->threshold == finding->threshold)
@@ -72,7 +72,7 @@ static int has_finding(const rules_result *result, const rules_finding *finding)
     return 0;
 }
 
-static int is_dwell(const rules_finding *finding)
+static int is_dwell(const exam_finding *finding)
 {
     return strncmp(finding->rule_id, "dwell_", 6) == 0;
 }
@@ -122,7 +122,7 @@ static void lowering_indices_never_adds_a_finding(void **state)
         generated lower = exam;
         lower.exam.captures = lower.captures;
         for (size_t i = 0; i < lower.exam.capture_count; i++) {
-            for (int x = 0; x < EXT_INDEX_COUNT; x++)
+            for (int x = 0; x < EXAM_INDEX_COUNT; x++)
                 lower.captures[i].indices[x].value *= uniform();
         }
         evaluate(policy, &lower.exam, &after);
@@ -136,7 +136,7 @@ static void lowering_indices_never_adds_a_finding(void **state)
     }
 }
 
-static void same_findings(const rules_finding *a, const rules_finding *b)
+static void same_findings(const exam_finding *a, const exam_finding *b)
 {
     assert_string_equal(a->rule_id, b->rule_id);
     assert_int_equal(a->severity, b->severity);

@@ -2,7 +2,7 @@
  * test_rules_store.c - findings in a real SQLite file (store_findings.c):
  * written, replaced under the same policy version, superseded under a new
  * one; re-evaluating with the same content changes nothing (the whole
- * findings table compared before and after); the ext_mode to Image Type
+ * findings table compared before and after); the exam_mode to Image Type
  * bit mapping of the ingest. Expected values: docs/policy.md ("A finding",
  * "Version") and the design rule "rescoring twice under the same
  * policy changes nothing"; bit values DICOM PS3.3 C.8.5.6.1.1.
@@ -20,6 +20,7 @@
 #include <string.h>
 #include <unistd.h>
 
+#include "extract/ext_modes.h"
 #include "ingest/ingest_internal.h"
 #include "store/store.h"
 
@@ -96,14 +97,19 @@ static long count_of(const fixture *f, const char *sql)
     return value;
 }
 
-static const char *const uids[] = {"1.2.3.1", "1.2.3.2"};
+static char *uids[] = {"1.2.3.1", "1.2.3.2"};
 
-static store_evaluation exam_evaluation(const char *version, store_finding *findings,
-                                        double measured)
+static store_evaluation exam_evaluation(const char *version, exam_finding *findings,
+                                        exam_measurements *measurements, double measured)
 {
-    findings[0] = (store_finding){.rule_id = "ti_ceiling", .severity = "warning",
+    *measurements = (exam_measurements){.governing_index = EXAM_INDEX_TIS,
+                                        .estimated_seconds = 60};
+    measurements->index_reported[EXAM_INDEX_TIS] = 1;
+    measurements->max_index[EXAM_INDEX_TIS] = measured;
+    findings[0] = (exam_finding){.rule_id = "ti_ceiling", .severity = EXAM_SEVERITY_WARNING,
                                   .quantity = "tis", .unit = "", .measured = measured,
-                                  .has_limit = 1, .limit = 2.0, .governing_index = "tis",
+                                  .has_limit = 1, .limit = 2.0, .index = EXAM_INDEX_TIS,
+                                  .has_index = 1,
                                   .instance_uids = uids, .instance_count = 2, .has_span = 1,
                                   .first_seconds = 63900000000.0,
                                   .last_seconds = 63900000060.0, .estimated_seconds = 60,
@@ -111,7 +117,7 @@ static store_evaluation exam_evaluation(const char *version, store_finding *find
                                   .source = "TI 2.0 [trade]", .provisional = 1};
     findings[1] = findings[0];
     findings[1].rule_id = "equipment_maxima";
-    findings[1].severity = "violation";
+    findings[1].severity = EXAM_SEVERITY_VIOLATION;
     findings[1].quantity = "mi";
     findings[1].measured = 2.1;
     findings[1].limit = 1.9;
@@ -121,8 +127,7 @@ static store_evaluation exam_evaluation(const char *version, store_finding *find
                               .room = "Room 1", .preset = "ABD", .shift = "night",
                               .last_received_at = "2026-11-02T10:00:00Z", .closed = 0,
                               .findings = findings, .finding_count = 2,
-                              .governing_index = "tis", .has_max_governing = 1,
-                              .max_governing = measured, .estimated_seconds = 60};
+                              .measurements = measurements};
 }
 
 static const char *const all_findings = "SELECT * FROM findings ORDER BY id";
@@ -131,8 +136,9 @@ static void test_written_replaced_superseded(void **state)
 {
     fixture *f = *state;
     mitilog_error error;
-    store_finding findings[2];
-    store_evaluation evaluation = exam_evaluation("v1", findings, 2.5);
+    exam_finding findings[2];
+    exam_measurements measurements;
+    store_evaluation evaluation = exam_evaluation("v1", findings, &measurements, 2.5);
     store_evaluation_counts counts = {0};
     assert_int_equal(store_put_evaluation(f->store, &evaluation, &counts, &error), MITILOG_OK);
     assert_int_equal(counts.written, 2);
@@ -146,7 +152,7 @@ static void test_written_replaced_superseded(void **state)
     free(started);
 
     /* Same version, new content: replaced, not superseded. */
-    evaluation = exam_evaluation("v1", findings, 2.7);
+    evaluation = exam_evaluation("v1", findings, &measurements, 2.7);
     evaluation.closed = 1;
     findings[0].provisional = findings[1].provisional = 0;
     memset(&counts, 0, sizeof counts);
@@ -159,7 +165,7 @@ static void test_written_replaced_superseded(void **state)
     assert_int_equal(count_of(f, "SELECT closed FROM exam_context"), 1);
 
     /* A new version: the old findings are kept, superseded. */
-    evaluation = exam_evaluation("v2", findings, 2.7);
+    evaluation = exam_evaluation("v2", findings, &measurements, 2.7);
     memset(&counts, 0, sizeof counts);
     assert_int_equal(store_put_evaluation(f->store, &evaluation, &counts, &error), MITILOG_OK);
     assert_int_equal(counts.superseded, 2);
@@ -175,10 +181,12 @@ static void test_rescoring_twice_changes_nothing(void **state)
 {
     fixture *f = *state;
     mitilog_error error;
-    store_finding findings[2];
-    store_evaluation evaluation = exam_evaluation("v1", findings, 2.5);
+    exam_finding findings[2];
+    exam_measurements values;
+    store_evaluation evaluation = exam_evaluation("v1", findings, &values, 2.5);
     assert_int_equal(store_put_evaluation(f->store, &evaluation, NULL, &error), MITILOG_OK);
-    store_finding device[1] = {{.rule_id = "output_not_reported", .severity = "advisory",
+    exam_finding device[1] = {{.rule_id = "output_not_reported",
+                                .severity = EXAM_SEVERITY_ADVISORY,
                                 .quantity = "instances_without_index", .unit = "instances",
                                 .measured = 1, .has_limit = 1, .limit = 1,
                                 .instance_uids = uids, .instance_count = 1,
@@ -207,16 +215,24 @@ static void test_rescoring_twice_changes_nothing(void **state)
     free(measurements_after);
 }
 
-/* ext_mode bits (1 << mode) to Image Type value 4 bits: 2D 0001 ... 3D
- * 0040 unchanged, colour power 0100 [DICOM PS3.3 C.8.5.6.1.1]. */
+/* The rules read the mode bits extraction sets (one bit set, no
+ * conversion between stages): Image Type value 4 0100 is colour power,
+ * which counts as Doppler; 0040 (3D) does not [DICOM PS3.3 C.8.5.6.1.1]. */
 static void test_mode_bits(void **state)
 {
     (void)state;
-    assert_int_equal(ingest_rules_modes(1u << 0), RULES_MODE_2D);
-    assert_int_equal(ingest_rules_modes(1u << 3), RULES_MODE_PW);
-    assert_int_equal(ingest_rules_modes(1u << 6), RULES_MODE_3D);
-    assert_int_equal(ingest_rules_modes(1u << 7), RULES_MODE_COLOUR_POWER);
-    assert_int_equal(ingest_rules_modes((1u << 0) | (1u << 7)), 0x0101);
+    assert_int_equal(ext_modes_from_image_type("ORIGINAL\\PRIMARY\\ABDOMINAL\\0001").modes,
+                     EXAM_MODE_BIT(EXAM_MODE_2D));
+    assert_int_equal(ext_modes_from_image_type("ORIGINAL\\PRIMARY\\ABDOMINAL\\0008").modes,
+                     EXAM_MODE_BIT(EXAM_MODE_PW));
+    assert_int_equal(ext_modes_from_image_type("ORIGINAL\\PRIMARY\\ABDOMINAL\\0040").modes,
+                     EXAM_MODE_BIT(EXAM_MODE_3D));
+    assert_int_equal(ext_modes_from_image_type("ORIGINAL\\PRIMARY\\ABDOMINAL\\0100").modes,
+                     EXAM_MODE_BIT(EXAM_MODE_POWER));
+    assert_true(ext_modes_from_image_type("ORIGINAL\\PRIMARY\\ABDOMINAL\\0101").modes &
+                EXAM_MODES_DOPPLER);
+    assert_false(ext_modes_from_image_type("ORIGINAL\\PRIMARY\\ABDOMINAL\\0041").modes &
+                 EXAM_MODES_DOPPLER);
 }
 
 int main(void)

@@ -69,7 +69,7 @@ static void mapping_units_and_modes(void **state)
     assert_string_equal(result.values[0].concept, "99ACME:MI");
     assert_int_equal(result.values[0].mode, -1);
     assert_int_equal(result.values[1].quantity, EXT_QUANTITY_TIB);
-    assert_int_equal(result.values[1].mode, EXT_MODE_PW);
+    assert_int_equal(result.values[1].mode, EXAM_MODE_PW);
     assert_null(result.values[1].unit);
     assert_true(result.values[1].normalised_ok); /* indices are dimensionless */
     assert_true(result.has_scan_time);
@@ -77,8 +77,8 @@ static void mapping_units_and_modes(void **state)
     assert_true(result.has_gestational_age);
     assert_float_equal(result.gestational_age_weeks, 10.0, 1e-9); /* 70 d */
     assert_string_equal(result.gestational_age_position, "1.4");
-    assert_int_equal(result.values[4].number.status, EXT_VALUE_INVALID);
-    assert_int_equal(result.modes, EXT_MODE_BIT(EXT_MODE_PW));
+    assert_int_equal(result.values[4].number.status, EXAM_VALUE_INVALID);
+    assert_int_equal(result.modes, EXAM_MODE_BIT(EXAM_MODE_PW));
     assert_int_equal(result.unknown_scheme_count, 1); /* once, though two items */
     assert_string_equal(result.unknown_schemes[0], "99OTHER");
     assert_int_equal(result.ignored_count, 1);
@@ -135,7 +135,7 @@ static void nested_fifty_levels(void **state)
     mitilog_error error;
     assert_int_equal(ext_sr_map(&rules, items, DEPTH + 2, &result, &error), MITILOG_OK);
     assert_int_equal(result.value_count, 1);
-    assert_int_equal(result.values[0].mode, EXT_MODE_PW); /* inherited over 26 levels */
+    assert_int_equal(result.values[0].mode, EXAM_MODE_PW); /* inherited over 26 levels */
     assert_string_equal(result.values[0].position, positions[DEPTH + 1]);
     ext_sr_result_free(&result);
     ext_site_rules_free(&rules);

@@ -90,10 +90,10 @@ static void iso_week_parse_and_monday(void **state)
     assert_string_equal(week_text, "2026-W08");
 }
 
-static stats_exam exam(const char *day, const char *type, const char *preset, const char *room,
+static exam_row exam(const char *day, const char *type, const char *preset, const char *room,
                        double value)
 {
-    stats_exam e;
+    exam_row e;
     memset(&e, 0, sizeof e);
     e.study_instance_uid = "1.2.3";
     e.day = day;
@@ -114,13 +114,13 @@ static void outliers_hand_worked(void **state)
 {
     (void)state;
     const double values[] = {1.0, 1.1, 1.2, 1.2, 1.3, 1.4, 1.9};
-    stats_exam baseline[7];
+    exam_row baseline[7];
     for (int i = 0; i < 7; i++)
         baseline[i] = exam("2026-11-09", "abdomen", "Abdomen General", "Room 1", values[i]);
-    stats_exam week[3] = {exam("2026-11-16", "abdomen", "Abdomen General", "Room 2", 1.8),
+    exam_row week[3] = {exam("2026-11-16", "abdomen", "Abdomen General", "Room 2", 1.8),
                           exam("2026-11-17", "abdomen", "Renal", "Room 1", 1.5),
                           exam("2026-11-18", "abdomen", "Renal", "Room 1", 1.2)};
-    static const stats_rule_count rules[] = {{"ti_ceiling", 1}, {"dwell_general", 2}};
+    static const exam_rule_count rules[] = {{"ti_ceiling", 1}, {"dwell_general", 2}};
     week[2].rules = rules;
     week[2].rule_count = 2;
     week[2].finding_count = 3;
@@ -171,7 +171,7 @@ static void outliers_hand_worked(void **state)
 static void thin_baseline_adds_the_week(void **state)
 {
     (void)state;
-    stats_exam week[4] = {exam("2026-11-02", "carotid", "Carotid", "Room 3", 0.9),
+    exam_row week[4] = {exam("2026-11-02", "carotid", "Carotid", "Room 3", 0.9),
                           exam("2026-11-02", "carotid", "Carotid", "Room 3", 1.0),
                           exam("2026-11-03", "carotid", "Carotid", "Room 3", 1.1),
                           exam("2026-11-04", "carotid", NULL, NULL, 0.0)};
@@ -196,7 +196,7 @@ static void period_table_by_exam_type(void **state)
     /* Python: statistics.quantiles([0.4,1.2,0.9,2.3,0.7,1.1,1.5,0.3,0.8,1.0,1.9],
      * n=4, method='inclusive') -> [0.75, 1.0, 1.35]; P95 2.1 (test_stats.c). */
     const double values[] = {0.4, 1.2, 0.9, 2.3, 0.7, 1.1, 1.5, 0.3, 0.8, 1.0, 1.9};
-    stats_exam exams[12];
+    exam_row exams[12];
     for (int i = 0; i < 11; i++) {
         exams[i] = exam("2026-11-10", "abdomen", "Abdomen General", "Room 1", values[i]);
         exams[i].seconds_at_or_above[1] = values[i] >= 1.0 ? 60.0 : 0.0;
@@ -230,7 +230,7 @@ static void drift_flags_a_step(void **state)
      * = 7.22 -> flagged. */
     static const char *days[3] = {"2026-11-02", "2026-11-09", "2026-11-16"};
     const double offsets[5] = {-0.1, -0.1, 0.0, 0.1, 0.1};
-    stats_exam exams[15];
+    exam_row exams[15];
     for (int w = 0; w < 3; w++) {
         for (int i = 0; i < 5; i++)
             exams[w * 5 + i] = exam(days[w], "abdomen", "Abdomen General", "Room 2",

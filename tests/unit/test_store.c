@@ -69,14 +69,14 @@ static char *dup_text(const char *text)
     return text != NULL ? strdup(text) : NULL;
 }
 
-static ext_number ok_number(double value)
+static exam_number ok_number(double value)
 {
-    ext_number number = {EXT_VALUE_OK, value};
+    exam_number number = {EXAM_VALUE_OK, value};
     return number;
 }
 
-static const ext_number missing_number = {EXT_VALUE_MISSING, 0.0};
-static const ext_number invalid_number = {EXT_VALUE_INVALID, 0.0};
+static const exam_number missing_number = {EXAM_VALUE_MISSING, 0.0};
+static const exam_number invalid_number = {EXAM_VALUE_INVALID, 0.0};
 
 /* A record built by hand: every index missing unless set afterwards. */
 static void make_record(ext_record *record, const char *sop_instance_uid,
@@ -104,12 +104,12 @@ static void make_record(ext_record *record, const char *sop_instance_uid,
     record->number_of_frames = missing_number;
     record->frame_time_ms = missing_number;
     record->is_ultrasound = 1;
-    for (int i = 0; i < EXT_INDEX_COUNT; i++)
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++)
         record->indices[i] = missing_number;
 }
 
 /* Sets index i to an ok value with its raw text. */
-static void set_index(ext_record *record, ext_index index, ext_number number,
+static void set_index(ext_record *record, exam_index index, exam_number number,
                       const char *raw)
 {
     record->indices[index] = number;
@@ -131,7 +131,7 @@ static void free_record(ext_record *record)
         free(*texts[i]);
         *texts[i] = NULL;
     }
-    for (int i = 0; i < EXT_INDEX_COUNT; i++) {
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         free(record->index_raw[i]);
         record->index_raw[i] = NULL;
     }
@@ -286,12 +286,12 @@ static void put_and_read_back(void **state)
     ext_record record;
     make_record(&record, "1.2.3.4.5.1", "1.2.3.4.5", "2024-03-01T10:15:00",
                 "2024-03-01T09:15:02.123Z");
-    set_index(&record, EXT_INDEX_MI, ok_number(0.8), "0.8");
-    set_index(&record, EXT_INDEX_TIS, ok_number(1.25), " 1.25 ");
-    set_index(&record, EXT_INDEX_TIB, missing_number, NULL);
-    set_index(&record, EXT_INDEX_TIC, invalid_number, "1,2");
-    set_index(&record, EXT_INDEX_TIS_FOCUS, ok_number(0.3), "3E-1");
-    set_index(&record, EXT_INDEX_TIS_SURFACE, missing_number, "");
+    set_index(&record, EXAM_INDEX_MI, ok_number(0.8), "0.8");
+    set_index(&record, EXAM_INDEX_TIS, ok_number(1.25), " 1.25 ");
+    set_index(&record, EXAM_INDEX_TIB, missing_number, NULL);
+    set_index(&record, EXAM_INDEX_TIC, invalid_number, "1,2");
+    set_index(&record, EXAM_INDEX_TIS_FOCUS, ok_number(0.3), "3E-1");
+    set_index(&record, EXAM_INDEX_TIS_SURFACE, missing_number, "");
     record.number_of_frames = ok_number(12);
     record.frame_time_ms = ok_number(33.5);
 
@@ -390,24 +390,24 @@ static void header_copy_follows_its_row(void **state)
 }
 
 /* The schema's mode_names (migration 004) name each bit as the
- * extraction does (ext_mode_name): the modes columns and the
+ * extraction does (exam_mode_name): the modes columns and the
  * instance_modes view read back what was written. */
 static void mode_names_match_extraction(void **state)
 {
     fixture *f = *state;
-    assert_int_equal(query_int(f->path, "SELECT count(*) FROM mode_names"), EXT_MODE_COUNT);
-    for (int m = 0; m < EXT_MODE_COUNT; m++) {
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM mode_names"), EXAM_MODE_COUNT);
+    for (int m = 0; m < EXAM_MODE_COUNT; m++) {
         char sql[160];
         snprintf(sql, sizeof sql, "SELECT count(*) FROM mode_names WHERE rank = %d AND mode = '%s'",
-                 m, ext_mode_name((ext_mode)m));
+                 m, exam_mode_name((exam_mode)m));
         assert_int_equal(query_int(f->path, sql), 1);
     }
     ext_record record;
     make_record(&record, "1.2.3.7.1", "1.2.3.7", "2024-03-01T10:00:00",
                 "2024-03-01T10:00:05.000Z");
-    record.modes_image_type = EXT_MODE_BIT(EXT_MODE_2D) | EXT_MODE_BIT(EXT_MODE_PW);
-    record.modes_regions = EXT_MODE_BIT(EXT_MODE_2D);
-    record.modes_sr = EXT_MODE_BIT(EXT_MODE_POWER);
+    record.modes_image_type = EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_PW);
+    record.modes_regions = EXAM_MODE_BIT(EXAM_MODE_2D);
+    record.modes_sr = EXAM_MODE_BIT(EXAM_MODE_POWER);
     record.modes = record.modes_image_type | record.modes_regions | record.modes_sr;
     mitilog_error error = {{0}};
     assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error), MITILOG_OK);
@@ -511,14 +511,14 @@ static void resend_replaces(void **state)
     ext_record record;
     make_record(&record, "1.2.3.9.1", "1.2.3.9", "2024-03-01T10:00:00",
                 "2024-03-01T10:00:05.000Z");
-    set_index(&record, EXT_INDEX_MI, ok_number(1.0), "1.0");
+    set_index(&record, EXAM_INDEX_MI, ok_number(1.0), "1.0");
     store_put_outcome outcome;
     mitilog_error error = {{0}};
     assert_int_equal(store_put_instance(f->store, &record, NULL, &outcome, &error),
                      MITILOG_OK);
     assert_int_equal(outcome, STORE_PUT_INSERTED);
 
-    set_index(&record, EXT_INDEX_MI, ok_number(1.2), "1.2");
+    set_index(&record, EXAM_INDEX_MI, ok_number(1.2), "1.2");
     snprintf(record.received_at, sizeof record.received_at,
              "2024-03-01T11:00:00.000Z");
     assert_int_equal(store_put_instance(f->store, &record, NULL, &outcome, &error),
@@ -557,7 +557,7 @@ static void *put_worker(void *argument)
         snprintf(uid, sizeof uid, "1.2.826.0.1.%d", w->thread * UID_STRIDE + i);
         ext_record record;
         make_record(&record, uid, "1.2.826.0.1", "2024-03-01T10:00:00", NULL);
-        set_index(&record, EXT_INDEX_MI, ok_number(0.01 * i), "x");
+        set_index(&record, EXAM_INDEX_MI, ok_number(0.01 * i), "x");
         store_put_outcome outcome;
         mitilog_error error;
         if (store_put_instance(w->store, &record, NULL, &outcome, &error) !=
@@ -801,13 +801,13 @@ static void bad_input_is_refused(void **state)
     free_record(&record);
 
     make_record(&record, "1.2.1", "1.2", NULL, NULL);
-    record.indices[EXT_INDEX_MI].status = (ext_value_status)42;
+    record.indices[EXAM_INDEX_MI].status = (exam_value_status)42;
     assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error),
                      MITILOG_ERROR_INVALID);
-    record.indices[EXT_INDEX_MI] = ok_number(0.0 / 0.0); /* NaN */
+    record.indices[EXAM_INDEX_MI] = ok_number(0.0 / 0.0); /* NaN */
     assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error),
                      MITILOG_ERROR_INVALID);
-    record.indices[EXT_INDEX_MI] = missing_number;
+    record.indices[EXAM_INDEX_MI] = missing_number;
     free(record.station_name);
     record.station_name = strdup("Salle \xe9"); /* Latin-1, not UTF-8 */
     assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error),
@@ -837,11 +837,11 @@ static void put_study_instance(store *st, const char *uid, const char *study,
     free(record.station_name);
     record.station_name = strdup(station);
     if (mi == mi)
-        set_index(&record, EXT_INDEX_MI, ok_number(mi), "mi");
+        set_index(&record, EXAM_INDEX_MI, ok_number(mi), "mi");
     else
-        set_index(&record, EXT_INDEX_MI, invalid_number, "bad");
+        set_index(&record, EXAM_INDEX_MI, invalid_number, "bad");
     if (tis == tis)
-        set_index(&record, EXT_INDEX_TIS, ok_number(tis), "tis");
+        set_index(&record, EXAM_INDEX_TIS, ok_number(tis), "tis");
     mitilog_error error = {{0}};
     if (store_put_instance(st, &record, NULL, NULL, &error) != MITILOG_OK)
         fail_msg("put %s: %s", uid, error.text);
@@ -1004,7 +1004,7 @@ static void exam_rows_sorted_by_uid(void **state)
         assert_non_null(list.rows[i].day);
         assert_string_equal(list.rows[i].exam_type, "abdomen");
         assert_null(list.rows[i].room);   /* not asked for */
-        assert_int_equal(list.rows[i].has_max_governing, 1);
+        assert_int_equal(list.rows[i].has_governing, 1);
     }
     assert_string_equal(list.rows[0].day, "2024-03-03");
     store_exam_list_free(&list);
@@ -1031,7 +1031,7 @@ static void exam_rows_sorted_by_uid(void **state)
         assert_string_equal(list.rows[i].study_instance_uid, expected[i]);
         assert_string_equal(list.rows[i].day, expected_days[i]);
         assert_string_equal(list.rows[i].exam_type, "abdomen");
-        assert_int_equal(list.rows[i].has_max_governing, 1);
+        assert_int_equal(list.rows[i].has_governing, 1);
         assert_true(list.rows[i].max_governing == expected_governing[i]);
         assert_null(list.rows[i].first_acquired_at);   /* identity not asked for */
         assert_null(list.rows[i].shift);

@@ -21,15 +21,15 @@
 
 #include "extract/ext_timeline.h"
 
-static ext_capture capture_at(double seconds, double cine_seconds, double tib)
+static exam_capture capture_at(double seconds, double cine_seconds, double tib)
 {
-    ext_capture capture;
+    exam_capture capture;
     memset(&capture, 0, sizeof capture);
     capture.time_seconds = seconds;
     capture.has_time = 1;
     capture.cine_seconds = cine_seconds;
-    capture.indices[EXT_INDEX_TIB].status = EXT_VALUE_OK;
-    capture.indices[EXT_INDEX_TIB].value = tib;
+    capture.indices[EXAM_INDEX_TIB].status = EXAM_VALUE_OK;
+    capture.indices[EXAM_INDEX_TIB].value = tib;
     return capture;
 }
 
@@ -39,7 +39,7 @@ static ext_capture capture_at(double seconds, double cine_seconds, double tib)
 static void capped_gap_and_cine(void **state)
 {
     (void)state;
-    ext_capture captures[3] = {capture_at(0, 0, 0.5), capture_at(60, 0, 1.2),
+    exam_capture captures[3] = {capture_at(0, 0, 0.5), capture_at(60, 0, 1.2),
                                capture_at(600, 0.4, 1.6)};
     ext_timeline_entry entries[3];
     ext_timeline_summary summary;
@@ -55,15 +55,15 @@ static void capped_gap_and_cine(void **state)
     /* Time at or above each threshold, by hand: >= 1.0: 60 + 300.4;
      * >= 1.5: 300.4; >= 2.0: 0; >= 0.5: everything (0.5 counts: "at or
      * above"). */
-    assert_close(ext_timeline_time_at_or_above(captures, entries, 3, EXT_INDEX_TIB, 1.0),
+    assert_close(ext_timeline_time_at_or_above(captures, entries, 3, EXAM_INDEX_TIB, 1.0),
                        360.4, 1e-9);
-    assert_close(ext_timeline_time_at_or_above(captures, entries, 3, EXT_INDEX_TIB, 1.5),
+    assert_close(ext_timeline_time_at_or_above(captures, entries, 3, EXAM_INDEX_TIB, 1.5),
                        300.4, 1e-9);
-    assert_close(ext_timeline_time_at_or_above(captures, entries, 3, EXT_INDEX_TIB, 2.0),
+    assert_close(ext_timeline_time_at_or_above(captures, entries, 3, EXAM_INDEX_TIB, 2.0),
                        0.0, 1e-9);
-    assert_close(ext_timeline_time_at_or_above(captures, entries, 3, EXT_INDEX_TIB, 0.5),
+    assert_close(ext_timeline_time_at_or_above(captures, entries, 3, EXAM_INDEX_TIB, 0.5),
                        360.4, 1e-9);
-    assert_close(ext_timeline_time_unreported(captures, entries, 3, EXT_INDEX_TIC), 360.4,
+    assert_close(ext_timeline_time_unreported(captures, entries, 3, EXAM_INDEX_TIC), 360.4,
                        1e-9);
 }
 
@@ -71,7 +71,7 @@ static void capped_gap_and_cine(void **state)
 static void out_of_order_arrival(void **state)
 {
     (void)state;
-    ext_capture captures[3] = {capture_at(600, 0.4, 1.6), capture_at(0, 0, 0.5),
+    exam_capture captures[3] = {capture_at(600, 0.4, 1.6), capture_at(0, 0, 0.5),
                                capture_at(60, 0, 1.2)};
     ext_timeline_entry entries[3];
     ext_timeline_summary summary;
@@ -86,7 +86,7 @@ static void out_of_order_arrival(void **state)
 static void configured_cap(void **state)
 {
     (void)state;
-    ext_capture captures[3] = {capture_at(0, 0, 0.5), capture_at(60, 0, 1.2),
+    exam_capture captures[3] = {capture_at(0, 0, 0.5), capture_at(60, 0, 1.2),
                                capture_at(600, 0.4, 1.6)};
     ext_timeline_entry entries[3];
     ext_timeline_summary summary;
@@ -98,7 +98,7 @@ static void configured_cap(void **state)
 static void scan_time_bound(void **state)
 {
     (void)state;
-    ext_capture captures[3] = {capture_at(0, 0, 0.5), capture_at(60, 0, 1.2),
+    exam_capture captures[3] = {capture_at(0, 0, 0.5), capture_at(60, 0, 1.2),
                                capture_at(600, 0.4, 1.6)};
     ext_timeline_entry entries[3];
     ext_timeline_summary summary;
@@ -116,7 +116,7 @@ static void scan_time_bound(void **state)
 static void untimed_capture(void **state)
 {
     (void)state;
-    ext_capture captures[3] = {capture_at(0, 0, 0.5), capture_at(30, 0, 1.2),
+    exam_capture captures[3] = {capture_at(0, 0, 0.5), capture_at(30, 0, 1.2),
                                capture_at(90, 0, 1.6)};
     captures[1].has_time = 0;
     ext_timeline_entry entries[3];

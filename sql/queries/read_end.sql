@@ -1,0 +1,2 @@
+-- Ends the read transaction of read_begin.sql.
+COMMIT;
