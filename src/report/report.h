@@ -2,8 +2,8 @@
  * report.h - the weekly outlier list, statistics for a period and preset
  * drift as documents: loads exam rows through store.h, computes with
  * src/stats/ (stats_calendar.h, stats_outliers.h, stats_period.h,
- * stats_drift.h), and writes JSON (built by SQLite's JSON functions on a
- * scratch connection), CSV (RFC 4180, UTF-8, CRLF) or printable HTML
+ * stats_drift.h), and writes JSON (the writer of json/json.h), CSV
+ * (RFC 4180, UTF-8, CRLF) or printable HTML
  * (every text escaped). Used by the HTTP API (/api/v1/outliers,
  * /api/v1/stats, /api/v1/drift) and by `mitilog report`.
  *

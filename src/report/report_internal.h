@@ -13,6 +13,7 @@
 #include <stdio.h>
 
 #include "report/report.h"
+#include "json/json.h"
 
 typedef struct report_data {
     store_exam_list list;           /* the rows and their strings */
@@ -85,11 +86,11 @@ void report_html_end(FILE *out);
 /* The policy statement: "VERSION (name)" or "none recorded ...". */
 const char *report_policy_text(const store_period_info *info, char *buffer, size_t size);
 
-/* Typed key/value pairs of a document's top level (scratch table meta). */
+/* Typed key/value pairs of a document's top level, written as members of
+ * the object open in writer. A number with an integral value is written as
+ * an integer (3, not 3.0), as the documents have always shown them. */
 typedef struct report_meta {
-    store_scratch_statement *insert;
-    mitilog_status status;
-    mitilog_error *error;
+    json_writer *writer;
 } report_meta;
 void report_meta_text(report_meta *meta, const char *name, const char *text);
 void report_meta_number(report_meta *meta, const char *name, int present, double value);
