@@ -96,12 +96,22 @@ static int threshold_compare(const void *left, const void *right)
     return (a->threshold > b->threshold) - (a->threshold < b->threshold);
 }
 
-static void row_json(json_writer *w, const stats_period_row *row, int is_total)
+static void row_json(json_writer *w, const stats_document *doc, const stats_period_row *row,
+                     int is_total)
 {
     double completeness = report_completeness(row->capture_count, row->indexed_count);
     json_object_begin(w);
     json_key(w, "key");
     json_string(w, is_total ? "(all)" : row->key);
+    const char *label = NULL, *governing = NULL;
+    if (!is_total)
+        report_pack_row_facts(&doc->data, doc->by, row->key, &label, &governing);
+    json_key(w, "label");
+    json_string(w, label);
+    json_key(w, "governing_index");
+    json_string(w, governing);
+    json_key(w, "governing_without_value");
+    json_integer(w, (long long)(row->exam_count - row->governing.count));
     json_key(w, "exam_count");
     json_integer(w, (long long)row->exam_count);
     json_key(w, "exams_with_findings");
@@ -177,10 +187,10 @@ static mitilog_status stats_json(const stats_document *doc, char **out, mitilog_
     json_key(w, "rows");
     json_array_begin(w);
     for (size_t r = 0; r < doc->result.row_count; r++)
-        row_json(w, &doc->result.rows[r], 0);
+        row_json(w, doc, &doc->result.rows[r], 0);
     json_array_end(w);
     json_key(w, "total");
-    row_json(w, &doc->result.total, 1);
+    row_json(w, doc, &doc->result.total, 1);
     json_object_end(w);
     mitilog_status status = json_writer_take(w, out, error);
     json_writer_free(w);

@@ -264,8 +264,10 @@ def test_pack_csv_and_json_carry_the_html_numbers(department):
             if row["governing"]["count"]:
                 assert abs(shown(cells["governing_" + name]) - row["governing"][name]) <= 0.005 + 1e-9
                 assert float(record["governing_" + name]) == pytest.approx(row["governing"][name], rel=1e-5)
+        assert row["governing_without_value"] == int(cells["governing_without_value"])
         if key != "(all)":
             assert record["label"] and record["governing_index"]
+            assert (row["label"], row["governing_index"]) == (record["label"], record["governing_index"])
     assert compared > 100
 
 
