@@ -164,6 +164,10 @@ CREATE TABLE IF NOT EXISTS "findings" (
     -- 'YYYY-MM-DD' (first acquisition) or rescore period they cover.
     period              TEXT
 ) STRICT;
+CREATE TABLE index_source_setting (
+    only_row   INTEGER PRIMARY KEY CHECK (only_row = 1),
+    preferred  TEXT NOT NULL CHECK (preferred = 'screen' OR preferred = 'header')
+) STRICT;
 CREATE TABLE instance_headers (
     instance_id  INTEGER PRIMARY KEY REFERENCES instances (id) ON DELETE CASCADE,
     bytes        BLOB NOT NULL    -- Part 10 file: preamble, meta header, data set
@@ -306,6 +310,14 @@ CREATE TABLE policies (
     last_loaded_at   TEXT
 , limits_json TEXT NOT NULL DEFAULT '[]'
     CHECK (json_valid(limits_json))) STRICT;
+CREATE TABLE reading_queue (
+    instance_id  INTEGER PRIMARY KEY REFERENCES instances (id) ON DELETE CASCADE,
+    path         TEXT NOT NULL,        -- the file to read
+    owned        INTEGER NOT NULL CHECK (owned = 0 OR owned = 1),  -- 1: a spool copy,
+                                       -- deleted once read
+    bytes        INTEGER NOT NULL CHECK (bytes >= 0),
+    queued_at    TEXT NOT NULL         -- ISO 8601 UTC
+) STRICT;
 CREATE TABLE rejections (
     id                INTEGER PRIMARY KEY,
     received_at       TEXT NOT NULL,  -- ISO 8601 UTC
@@ -316,6 +328,51 @@ CREATE TABLE rejections (
     source_path       TEXT NOT NULL,  -- imported path, or ''
     quarantine_path   TEXT NOT NULL,  -- '' when the bytes were not kept
     reason            TEXT NOT NULL
+) STRICT;
+CREATE TABLE screen_profiles (
+    id INTEGER PRIMARY KEY,
+    profile_key TEXT NOT NULL,
+    version INTEGER NOT NULL,
+    manufacturer TEXT,
+    model_name TEXT,
+    software_versions TEXT,
+    rows INTEGER,
+    columns INTEGER,
+    profile_text TEXT NOT NULL,
+    state TEXT NOT NULL DEFAULT 'proposed'
+        CHECK (state IN ('proposed', 'active', 'retired')),
+    learned_at TEXT NOT NULL,
+    report TEXT,
+    example_image BLOB,            -- one learning frame as binary PGM (P5)
+    confirmed_by TEXT,
+    confirmed_at TEXT,
+    retired_at TEXT,
+    UNIQUE (profile_key, version)
+);
+CREATE TABLE screen_readings (
+    instance_id      INTEGER PRIMARY KEY REFERENCES instances (id) ON DELETE CASCADE,
+    state            TEXT NOT NULL
+        CHECK (state = 'queued' OR state = 'read' OR state = 'not_read'),
+    reason           TEXT,             -- whole-object reason when not read
+    profile_key      TEXT,
+    profile_version  INTEGER,
+    frames_read      INTEGER NOT NULL DEFAULT 0,
+    updated_at       TEXT NOT NULL,    -- ISO 8601 UTC
+    mi REAL, mi_status TEXT, mi_text TEXT, mi_decimals INTEGER, mi_reason TEXT,
+    tis REAL, tis_status TEXT, tis_text TEXT, tis_decimals INTEGER, tis_reason TEXT,
+    tib REAL, tib_status TEXT, tib_text TEXT, tib_decimals INTEGER, tib_reason TEXT,
+    tic REAL, tic_status TEXT, tic_text TEXT, tic_decimals INTEGER, tic_reason TEXT,
+    tis_focus REAL, tis_focus_status TEXT, tis_focus_text TEXT, tis_focus_decimals INTEGER,
+    tis_focus_reason TEXT,
+    tis_surface REAL, tis_surface_status TEXT, tis_surface_text TEXT,
+    tis_surface_decimals INTEGER, tis_surface_reason TEXT,
+    CHECK ((mi IS NOT NULL) = (mi_status IS NOT NULL AND mi_status = 'read')),
+    CHECK ((tis IS NOT NULL) = (tis_status IS NOT NULL AND tis_status = 'read')),
+    CHECK ((tib IS NOT NULL) = (tib_status IS NOT NULL AND tib_status = 'read')),
+    CHECK ((tic IS NOT NULL) = (tic_status IS NOT NULL AND tic_status = 'read')),
+    CHECK ((tis_focus IS NOT NULL) = (tis_focus_status IS NOT NULL AND tis_focus_status = 'read')),
+    CHECK ((tis_surface IS NOT NULL)
+           = (tis_surface_status IS NOT NULL AND tis_surface_status = 'read'))
 ) STRICT;
 CREATE TABLE IF NOT EXISTS "sr_values" (
     id                  INTEGER PRIMARY KEY,
@@ -349,6 +406,9 @@ CREATE INDEX instances_day ON instances (substr(coalesce(acquired_at, received_a
 CREATE INDEX instances_received ON instances (received_at);
 CREATE INDEX instances_study ON instances (study_instance_uid, acquired_at);
 CREATE INDEX rejections_received ON rejections (received_at);
+CREATE UNIQUE INDEX screen_profiles_one_active
+    ON screen_profiles (profile_key) WHERE state = 'active';
+CREATE INDEX screen_readings_state ON screen_readings (state);
 CREATE INDEX sr_values_instance ON sr_values (instance_id);
 CREATE INDEX sr_values_study ON sr_values (study_instance_uid, quantity);
 CREATE VIEW exam_period_rows AS
@@ -485,6 +545,102 @@ UNION ALL
 SELECT i.id, n.mode, n.rank, 'sr_container'
 FROM instances AS i JOIN mode_names AS n ON (i.modes_sr >> n.rank) & 1
 /* instance_modes(instance_id,mode,rank,source) */;
+CREATE VIEW instance_provenance AS
+SELECT i.id AS instance_id,
+    json_object(
+        'mi', json_object(
+            'value', CASE WHEN (s.mi_status IS NOT NULL AND s.mi_status = 'read' AND (p.preferred = 'screen' OR i.mi_status <> 'ok')) THEN s.mi ELSE i.mi END,
+            'used', CASE WHEN (s.mi_status IS NOT NULL AND s.mi_status = 'read' AND (p.preferred = 'screen' OR i.mi_status <> 'ok')) THEN 'screen' WHEN i.mi_status = 'ok' THEN 'header' END,
+            'source', CASE WHEN (i.mi_status = 'ok' AND s.mi_status IS NOT NULL AND s.mi_status = 'read') THEN 'both'
+                           WHEN i.mi_status = 'ok' THEN 'header'
+                           WHEN s.mi_status IS NOT NULL AND s.mi_status = 'read' THEN 'pixels' END,
+            'agree', CASE WHEN (i.mi_status = 'ok' AND s.mi_status IS NOT NULL AND s.mi_status = 'read')
+                          THEN json(iif(abs(i.mi - s.mi) <= CASE s.mi_decimals WHEN 0 THEN 0.5
+                              WHEN 1 THEN 0.05 WHEN 2 THEN 0.005 ELSE 0.0005 END + 1e-9,
+                              'true', 'false')) END,
+            'header', json_object('value', i.mi, 'status', i.mi_status),
+            'screen', iif(s.instance_id IS NULL, NULL, json_object(
+                'value', s.mi, 'status', s.mi_status, 'text', s.mi_text,
+                'decimals', s.mi_decimals, 'reason', s.mi_reason))),
+        'tis', json_object(
+            'value', CASE WHEN (s.tis_status IS NOT NULL AND s.tis_status = 'read' AND (p.preferred = 'screen' OR i.tis_status <> 'ok')) THEN s.tis ELSE i.tis END,
+            'used', CASE WHEN (s.tis_status IS NOT NULL AND s.tis_status = 'read' AND (p.preferred = 'screen' OR i.tis_status <> 'ok')) THEN 'screen' WHEN i.tis_status = 'ok' THEN 'header' END,
+            'source', CASE WHEN (i.tis_status = 'ok' AND s.tis_status IS NOT NULL AND s.tis_status = 'read') THEN 'both'
+                           WHEN i.tis_status = 'ok' THEN 'header'
+                           WHEN s.tis_status IS NOT NULL AND s.tis_status = 'read' THEN 'pixels' END,
+            'agree', CASE WHEN (i.tis_status = 'ok' AND s.tis_status IS NOT NULL AND s.tis_status = 'read')
+                          THEN json(iif(abs(i.tis - s.tis) <= CASE s.tis_decimals WHEN 0 THEN 0.5
+                              WHEN 1 THEN 0.05 WHEN 2 THEN 0.005 ELSE 0.0005 END + 1e-9,
+                              'true', 'false')) END,
+            'header', json_object('value', i.tis, 'status', i.tis_status),
+            'screen', iif(s.instance_id IS NULL, NULL, json_object(
+                'value', s.tis, 'status', s.tis_status, 'text', s.tis_text,
+                'decimals', s.tis_decimals, 'reason', s.tis_reason))),
+        'tib', json_object(
+            'value', CASE WHEN (s.tib_status IS NOT NULL AND s.tib_status = 'read' AND (p.preferred = 'screen' OR i.tib_status <> 'ok')) THEN s.tib ELSE i.tib END,
+            'used', CASE WHEN (s.tib_status IS NOT NULL AND s.tib_status = 'read' AND (p.preferred = 'screen' OR i.tib_status <> 'ok')) THEN 'screen' WHEN i.tib_status = 'ok' THEN 'header' END,
+            'source', CASE WHEN (i.tib_status = 'ok' AND s.tib_status IS NOT NULL AND s.tib_status = 'read') THEN 'both'
+                           WHEN i.tib_status = 'ok' THEN 'header'
+                           WHEN s.tib_status IS NOT NULL AND s.tib_status = 'read' THEN 'pixels' END,
+            'agree', CASE WHEN (i.tib_status = 'ok' AND s.tib_status IS NOT NULL AND s.tib_status = 'read')
+                          THEN json(iif(abs(i.tib - s.tib) <= CASE s.tib_decimals WHEN 0 THEN 0.5
+                              WHEN 1 THEN 0.05 WHEN 2 THEN 0.005 ELSE 0.0005 END + 1e-9,
+                              'true', 'false')) END,
+            'header', json_object('value', i.tib, 'status', i.tib_status),
+            'screen', iif(s.instance_id IS NULL, NULL, json_object(
+                'value', s.tib, 'status', s.tib_status, 'text', s.tib_text,
+                'decimals', s.tib_decimals, 'reason', s.tib_reason))),
+        'tic', json_object(
+            'value', CASE WHEN (s.tic_status IS NOT NULL AND s.tic_status = 'read' AND (p.preferred = 'screen' OR i.tic_status <> 'ok')) THEN s.tic ELSE i.tic END,
+            'used', CASE WHEN (s.tic_status IS NOT NULL AND s.tic_status = 'read' AND (p.preferred = 'screen' OR i.tic_status <> 'ok')) THEN 'screen' WHEN i.tic_status = 'ok' THEN 'header' END,
+            'source', CASE WHEN (i.tic_status = 'ok' AND s.tic_status IS NOT NULL AND s.tic_status = 'read') THEN 'both'
+                           WHEN i.tic_status = 'ok' THEN 'header'
+                           WHEN s.tic_status IS NOT NULL AND s.tic_status = 'read' THEN 'pixels' END,
+            'agree', CASE WHEN (i.tic_status = 'ok' AND s.tic_status IS NOT NULL AND s.tic_status = 'read')
+                          THEN json(iif(abs(i.tic - s.tic) <= CASE s.tic_decimals WHEN 0 THEN 0.5
+                              WHEN 1 THEN 0.05 WHEN 2 THEN 0.005 ELSE 0.0005 END + 1e-9,
+                              'true', 'false')) END,
+            'header', json_object('value', i.tic, 'status', i.tic_status),
+            'screen', iif(s.instance_id IS NULL, NULL, json_object(
+                'value', s.tic, 'status', s.tic_status, 'text', s.tic_text,
+                'decimals', s.tic_decimals, 'reason', s.tic_reason))),
+        'tis_focus', json_object(
+            'value', CASE WHEN (s.tis_focus_status IS NOT NULL AND s.tis_focus_status = 'read' AND (p.preferred = 'screen' OR i.tis_focus_status <> 'ok')) THEN s.tis_focus ELSE i.tis_focus END,
+            'used', CASE WHEN (s.tis_focus_status IS NOT NULL AND s.tis_focus_status = 'read' AND (p.preferred = 'screen' OR i.tis_focus_status <> 'ok')) THEN 'screen' WHEN i.tis_focus_status = 'ok' THEN 'header' END,
+            'source', CASE WHEN (i.tis_focus_status = 'ok' AND s.tis_focus_status IS NOT NULL AND s.tis_focus_status = 'read') THEN 'both'
+                           WHEN i.tis_focus_status = 'ok' THEN 'header'
+                           WHEN s.tis_focus_status IS NOT NULL AND s.tis_focus_status = 'read' THEN 'pixels' END,
+            'agree', CASE WHEN (i.tis_focus_status = 'ok' AND s.tis_focus_status IS NOT NULL AND s.tis_focus_status = 'read')
+                          THEN json(iif(abs(i.tis_focus - s.tis_focus) <= CASE s.tis_focus_decimals WHEN 0 THEN 0.5
+                              WHEN 1 THEN 0.05 WHEN 2 THEN 0.005 ELSE 0.0005 END + 1e-9,
+                              'true', 'false')) END,
+            'header', json_object('value', i.tis_focus, 'status', i.tis_focus_status),
+            'screen', iif(s.instance_id IS NULL, NULL, json_object(
+                'value', s.tis_focus, 'status', s.tis_focus_status, 'text', s.tis_focus_text,
+                'decimals', s.tis_focus_decimals, 'reason', s.tis_focus_reason))),
+        'tis_surface', json_object(
+            'value', CASE WHEN (s.tis_surface_status IS NOT NULL AND s.tis_surface_status = 'read' AND (p.preferred = 'screen' OR i.tis_surface_status <> 'ok')) THEN s.tis_surface ELSE i.tis_surface END,
+            'used', CASE WHEN (s.tis_surface_status IS NOT NULL AND s.tis_surface_status = 'read' AND (p.preferred = 'screen' OR i.tis_surface_status <> 'ok')) THEN 'screen' WHEN i.tis_surface_status = 'ok' THEN 'header' END,
+            'source', CASE WHEN (i.tis_surface_status = 'ok' AND s.tis_surface_status IS NOT NULL AND s.tis_surface_status = 'read') THEN 'both'
+                           WHEN i.tis_surface_status = 'ok' THEN 'header'
+                           WHEN s.tis_surface_status IS NOT NULL AND s.tis_surface_status = 'read' THEN 'pixels' END,
+            'agree', CASE WHEN (i.tis_surface_status = 'ok' AND s.tis_surface_status IS NOT NULL AND s.tis_surface_status = 'read')
+                          THEN json(iif(abs(i.tis_surface - s.tis_surface) <= CASE s.tis_surface_decimals WHEN 0 THEN 0.5
+                              WHEN 1 THEN 0.05 WHEN 2 THEN 0.005 ELSE 0.0005 END + 1e-9,
+                              'true', 'false')) END,
+            'header', json_object('value', i.tis_surface, 'status', i.tis_surface_status),
+            'screen', iif(s.instance_id IS NULL, NULL, json_object(
+                'value', s.tis_surface, 'status', s.tis_surface_status, 'text', s.tis_surface_text,
+                'decimals', s.tis_surface_decimals, 'reason', s.tis_surface_reason)))
+    ) AS indices,
+    iif(s.instance_id IS NULL, NULL, json_object(
+        'state', s.state, 'reason', s.reason, 'profile_key', s.profile_key,
+        'profile_version', s.profile_version, 'frames_read', s.frames_read,
+        'updated_at', s.updated_at)) AS screen_reading
+FROM instances i
+JOIN index_source_setting p ON p.only_row = 1
+LEFT JOIN screen_readings s ON s.instance_id = i.id
+/* instance_provenance(instance_id,indices,screen_reading) */;
 CREATE TRIGGER exam_summaries_exam_delete AFTER DELETE ON exams
 BEGIN
     DELETE FROM exam_summaries WHERE study_instance_uid = OLD.study_instance_uid;
