@@ -52,6 +52,7 @@ mitilog_status report_week(store *store, const report_week_request *request,
 typedef struct report_stats_request {
     const char *from, *to;      /* YYYY-MM-DD inclusive; NULL: all held */
     stats_dimension by;
+    const char *institution;    /* printed on the document; NULL: not configured */
 } report_stats_request;
 
 mitilog_status report_stats(store *store, const report_stats_request *request,

@@ -265,7 +265,7 @@ void report_html_begin(FILE *out, const char *title, const char *period,
     fputs(report_css, out);
     fputs("</style></head><body>\n<h1>", out);
     report_html_text(out, title);
-    fputs("</h1>\n<p class=\"caution\"><strong>Advisory.</strong> ", out);
+    fputs("</h1>\n<p class=\"caution\">", out);
     report_html_text(out, report_caution);
     fputs("</p>\n<dl class=\"facts\"><dt>Period</dt><dd>", out);
     report_html_text(out, period);

@@ -13,6 +13,7 @@
 typedef struct stats_document {
     char from[11], to[11];
     stats_dimension by;
+    const char *institution;
     report_data data;
     stats_period_result result;
 } stats_document;
@@ -22,6 +23,7 @@ static mitilog_status stats_compute(store *st, const report_stats_request *reque
 {
     memset(doc, 0, sizeof *doc);
     doc->by = request->by;
+    doc->institution = request->institution;
     long from_day, to_day;
     if (request->to == NULL || request->to[0] == '\0')
         to_day = report_latest_day(st);
@@ -46,7 +48,9 @@ static mitilog_status stats_compute(store *st, const report_stats_request *reque
     stats_day_text(to_day, doc->to);
     /* Statistics need the grouping column only, not the findings by rule. */
     mitilog_status status = report_data_load(st, doc->from, doc->to,
-                                             report_dimension_column(doc->by), REPORT_LOAD_INFO,
+                                             report_dimension_column(doc->by) |
+                                                 STORE_EXAM_DETAIL,
+                                             REPORT_LOAD_INFO,
                                              &doc->data, error);
     if (status == MITILOG_OK)
         status = stats_period_table(doc->data.rows, doc->data.row_count, doc->by, &doc->result,
@@ -92,12 +96,22 @@ static int threshold_compare(const void *left, const void *right)
     return (a->threshold > b->threshold) - (a->threshold < b->threshold);
 }
 
-static void row_json(json_writer *w, const stats_period_row *row, int is_total)
+static void row_json(json_writer *w, const stats_document *doc, const stats_period_row *row,
+                     int is_total)
 {
     double completeness = report_completeness(row->capture_count, row->indexed_count);
     json_object_begin(w);
     json_key(w, "key");
     json_string(w, is_total ? "(all)" : row->key);
+    const char *label = NULL, *governing = NULL;
+    if (!is_total)
+        report_pack_row_facts(&doc->data, doc->by, row->key, &label, &governing);
+    json_key(w, "label");
+    json_string(w, label);
+    json_key(w, "governing_index");
+    json_string(w, governing);
+    json_key(w, "governing_without_value");
+    json_integer(w, (long long)(row->exam_count - row->governing.count));
     json_key(w, "exam_count");
     json_integer(w, (long long)row->exam_count);
     json_key(w, "exams_with_findings");
@@ -167,15 +181,16 @@ static mitilog_status stats_json(const stats_document *doc, char **out, mitilog_
                      "method='inclusive', R type 7)");
     report_meta_text(&meta, "governing_value", "highest governing thermal index of each exam");
     report_meta_int(&meta, "exam_count", (long long)doc->result.total.exam_count);
+    report_meta_text(&meta, "institution", doc->institution);
     report_meta_common(&meta, &doc->data.info, doc->data.capture_count,
                        doc->data.indexed_count);
     json_key(w, "rows");
     json_array_begin(w);
     for (size_t r = 0; r < doc->result.row_count; r++)
-        row_json(w, &doc->result.rows[r], 0);
+        row_json(w, doc, &doc->result.rows[r], 0);
     json_array_end(w);
     json_key(w, "total");
-    row_json(w, &doc->result.total, 1);
+    row_json(w, doc, &doc->result.total, 1);
     json_object_end(w);
     mitilog_status status = json_writer_take(w, out, error);
     json_writer_free(w);
@@ -192,11 +207,12 @@ static const char *const stats_csv_columns[] = {
     "exams_at_or_above_1_0", "minutes_at_or_above_1_0_median", "minutes_at_or_above_1_0_p95",
     "exams_at_or_above_1_5", "minutes_at_or_above_1_5_median", "minutes_at_or_above_1_5_p95",
     "exams_at_or_above_2_0", "minutes_at_or_above_2_0_median", "minutes_at_or_above_2_0_p95",
-    "data_completeness", "policy_version", "note"};
+    "data_completeness", "policy_version", "note", "label", "governing_index",
+    "governing_without_value", "institution"};
 enum { STATS_CSV_COLUMNS = sizeof stats_csv_columns / sizeof stats_csv_columns[0] };
 
 static void stats_csv_row(const stats_document *doc, FILE *out, const stats_period_row *row,
-                          const char *record, const char *key)
+                          const char *record, const char *key, int is_total)
 {
     const stats_distribution *g = &row->governing, *mi = &row->mi, *est = &row->estimated_seconds;
     report_csv_field(out, 1, record);
@@ -229,6 +245,13 @@ static void stats_csv_row(const stats_document *doc, FILE *out, const stats_peri
     report_csv_number(out, isfinite(completeness), completeness);
     report_csv_field(out, 0, doc->data.info.policy_version);
     report_csv_field(out, 0, "");
+    const char *label = NULL, *governing = NULL;
+    if (!is_total)
+        report_pack_row_facts(&doc->data, doc->by, row->key, &label, &governing);
+    report_csv_field(out, 0, label);
+    report_csv_field(out, 0, governing);
+    report_csv_count(out, row->exam_count - g->count);
+    report_csv_field(out, 0, "");
     report_csv_end(out);
 }
 
@@ -249,95 +272,35 @@ static void stats_csv(const stats_document *doc, FILE *out)
     report_csv_field(out, 0, stats_dimension_name(doc->by));
     report_csv_field(out, 0, "");
     report_csv_count(out, doc->result.total.exam_count);
-    for (int c = 6; c < STATS_CSV_COLUMNS - 3; c++)
+    for (int c = 6; c < STATS_CSV_COLUMNS - 7; c++)
         fputc(',', out);
     report_csv_number(out, isfinite(completeness), completeness);
     report_csv_field(out, 0, report_policy_text(&doc->data.info, policy, sizeof policy));
     report_csv_field(out, 0, note);
+    report_csv_field(out, 0, "");
+    report_csv_field(out, 0, "");
+    report_csv_field(out, 0, "");
+    report_csv_field(out, 0, doc->institution != NULL ? doc->institution : "");
     report_csv_end(out);
     for (size_t r = 0; r < doc->result.row_count; r++) {
         const stats_period_row *row = &doc->result.rows[r];
-        stats_csv_row(doc, out, row, "row", row->key != NULL ? row->key : "(not recorded)");
+        stats_csv_row(doc, out, row, "row", row->key != NULL ? row->key : "(not recorded)", 0);
     }
-    stats_csv_row(doc, out, &doc->result.total, "total", "(all)");
-}
-
-static void html_number_cell(FILE *out, int present, double value, int digits)
-{
-    fputs("<td class=\"n\">", out);
-    report_html_number(out, present, value, digits);
-    fputs("</td>", out);
-}
-
-static void stats_html_row(FILE *out, const stats_period_row *row, const char *key, int total)
-{
-    const stats_distribution *g = &row->governing, *mi = &row->mi;
-    fputs(total ? "<tr class=\"flag\"><td>" : "<tr><td>", out);
-    report_html_text(out, key);
-    fprintf(out, "</td><td class=\"n\">%zu</td>", row->exam_count);
-    html_number_cell(out, g->count > 0, g->median, 3);
-    html_number_cell(out, g->count > 0, g->p75, 3);
-    html_number_cell(out, g->count > 0, g->p95, 3);
-    html_number_cell(out, mi->count > 0, mi->median, 3);
-    html_number_cell(out, mi->count > 0, mi->p75, 3);
-    html_number_cell(out, mi->count > 0, mi->p95, 3);
-    fprintf(out, "<td class=\"n\">%.0f %%</td>", 100.0 * row->share_with_findings);
-    html_number_cell(out, row->estimated_seconds.count > 0,
-                     row->estimated_seconds.median / 60.0, 3);
-    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++) {
-        fprintf(out, "<td class=\"n\">%zu / ", row->thresholds[t].exam_count);
-        report_html_number(out, g->count > 0, row->thresholds[t].p95_seconds / 60.0, 3);
-        fputs("</td>", out);
-    }
-    double completeness = report_completeness(row->capture_count, row->indexed_count);
-    fputs("<td class=\"n\">", out);
-    if (isfinite(completeness))
-        fprintf(out, "%.0f %%", 100.0 * completeness);
-    else
-        fputs("&mdash;", out);
-    fputs("</td></tr>\n", out);
+    stats_csv_row(doc, out, &doc->result.total, "total", "(all)", 1);
 }
 
 static void stats_html(const stats_document *doc, FILE *out)
 {
-    char title[128], period[128];
-    const char *by = stats_dimension_name(doc->by);
-    snprintf(title, sizeof title, "Exposure statistics by %s, %s to %s", by, doc->from, doc->to);
-    snprintf(period, sizeof period, "%s to %s (local dates of each exam's first capture)",
-             doc->from, doc->to);
-    report_html_begin(out, title, period, &doc->data.info,
-                      report_completeness(doc->data.capture_count, doc->data.indexed_count),
-                      doc->data.capture_count, doc->data.indexed_count);
-    fputs("<p>Per exam: the highest governing thermal index (TIS, TIB or TIC as the exam "
-          "type requires) and the highest MI. Columns &ldquo;at or above&rdquo;: exams with "
-          "any estimated time at or above that governing TI / 95th percentile of minutes.</p>\n"
-          "<table><thead><tr><th>",
-          out);
-    report_html_text(out, by);
-    fputs("</th><th>Exams</th><th>TI median</th><th>TI P75</th><th>TI P95</th>"
-          "<th>MI median</th><th>MI P75</th><th>MI P95</th><th>With findings</th>"
-          "<th>Scan minutes (median)</th>",
-          out);
-    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++) {
-        char label[EXAM_TI_LABEL_SIZE];
-        exam_ti_threshold_label(exam_ti_ladder[t], label);
-        fprintf(out, "<th>&ge; %s: exams / P95 min</th>", label);
-    }
-    fputs("<th>Captures with indices</th></tr></thead><tbody>\n", out);
-    for (size_t r = 0; r < doc->result.row_count; r++) {
-        const stats_period_row *row = &doc->result.rows[r];
-        stats_html_row(out, row, row->key != NULL ? row->key : "(not recorded)", 0);
-    }
-    stats_html_row(out, &doc->result.total, "All exams", 1);
-    fputs("</tbody></table>\n", out);
-    report_html_end(out);
+    report_pack_input in = {doc->from, doc->to, doc->by, doc->institution, &doc->data,
+                            &doc->result};
+    report_pack_html(&in, out);
 }
 
 mitilog_status report_stats(store *st, const report_stats_request *request,
                             report_format format, char **out, mitilog_error *error)
 {
     *out = NULL;
-    report_stats_request defaults = {NULL, NULL, STATS_BY_EXAM_TYPE};
+    report_stats_request defaults = {NULL, NULL, STATS_BY_EXAM_TYPE, NULL};
     if (request == NULL)
         request = &defaults;
     stats_document doc;

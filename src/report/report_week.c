@@ -440,12 +440,23 @@ static void html_cell_text(FILE *out, const char *text)
     fputs("</td>", out);
 }
 
-static void html_cell_number(FILE *out, int present, double value, int digits)
+/* A number with fixed decimals ("—" when absent). */
+static void html_cell_fixed(FILE *out, int present, double value, int decimals)
 {
     fputs("<td class=\"n\">", out);
-    report_html_number(out, present, value, digits);
+    if (present && isfinite(value))
+        fprintf(out, "%.*f", decimals, value);
+    else
+        fputs("&mdash;", out);
     fputs("</td>", out);
 }
+
+static const char week_css[] =
+    "table.exams{font-size:8pt}table.exams td,table.exams th{padding:.05em .3em}\n"
+    "table.exams td{white-space:nowrap}\n"
+    "table.exams tr.group th{background:#f3f6f6;text-align:left}\n"
+    "table.groups{font-size:8.5pt}table.groups td,table.groups th{padding:.05em .3em}\n"
+    "@media print{body{font-size:8.5pt}h2{margin:.6em 0 .2em}}\n";
 
 static void week_html(const week_document *doc, FILE *out)
 {
@@ -480,7 +491,9 @@ static void week_html(const week_document *doc, FILE *out)
         week_thin_types(doc, out, 1);
         fputs(".", out);
     }
-    fputs("</p>\n<h2>Groups</h2>\n<table><thead><tr><th>Rank</th><th>", out);
+    fputs("</p>\n<style>", out);
+    fputs(week_css, out);
+    fputs("</style>\n<h2>Groups</h2>\n<table class=\"groups\"><thead><tr><th>Rank</th><th>", out);
     report_html_text(out, group_by);
     fputs("</th><th>Exams</th><th>Outliers</th><th>Rate</th><th>Median governing TI</th>"
           "<th>Department median (same exam types)</th><th>Median MI</th><th>Findings</th>"
@@ -494,9 +507,9 @@ static void week_html(const week_document *doc, FILE *out)
         fprintf(out, "<td class=\"n\">%zu</td><td class=\"n\">%zu</td>", group->exam_count,
                 group->outlier_count);
         fprintf(out, "<td class=\"n\">%.0f %%</td>", 100.0 * group->outlier_rate);
-        html_cell_number(out, group->has_median, group->median_governing, 3);
-        html_cell_number(out, group->has_median, group->department_median, 3);
-        html_cell_number(out, 1, group->median_mi, 3);
+        html_cell_fixed(out, group->has_median, group->median_governing, 2);
+        html_cell_fixed(out, group->has_median, group->department_median, 2);
+        html_cell_fixed(out, 1, group->median_mi, 2);
         fprintf(out, "<td class=\"n\">%zu</td>", group->finding_count);
         fputs("<td class=\"n\">", out);
         if (isfinite(completeness))
@@ -506,6 +519,11 @@ static void week_html(const week_document *doc, FILE *out)
         fputs("</td></tr>\n", out);
     }
     fputs("</tbody></table>\n", out);
+    /* The listed exams in one table, a heading row per group, one line per
+     * exam: the grouping column is left out (the heading says it), the
+     * reason is short words that do not wrap, numbers have fixed decimals,
+     * so that the busiest week prints on two A4 pages. */
+    int any_listed = 0;
     for (size_t g = 0; g < doc->result.group_count; g++) {
         const stats_group *group = &doc->result.groups[g];
         size_t listed = 0;
@@ -513,13 +531,29 @@ static void week_html(const week_document *doc, FILE *out)
             listed += week_listed(doc, group->members[m]) != 0;
         if (listed == 0)
             continue;
-        fputs("<h3>", out);
+        stats_dimension by = doc->request->group;
+        if (!any_listed) {
+            fputs("<h2>Listed exams</h2>\n<table class=\"exams\"><thead><tr><th>Study key</th>"
+                  "<th>Day</th><th>Exam type</th>",
+                  out);
+            if (by != STATS_BY_ROOM)
+                fputs("<th>Room</th>", out);
+            if (by != STATS_BY_PRESET)
+                fputs("<th>Preset</th>", out);
+            if (by != STATS_BY_SHIFT)
+                fputs("<th>Shift</th>", out);
+            if (by != STATS_BY_TRANSDUCER)
+                fputs("<th>Transducer</th>", out);
+            fputs("<th>Index</th><th>Max</th><th>Max MI</th><th>Robust z</th>"
+                  "<th>Why listed</th></tr></thead><tbody>\n",
+                  out);
+            any_listed = 1;
+        }
+        int columns = 8 + (by != STATS_BY_ROOM) + (by != STATS_BY_PRESET) +
+                      (by != STATS_BY_SHIFT) + (by != STATS_BY_TRANSDUCER);
+        fprintf(out, "<tr class=\"group\"><th colspan=\"%d\">", columns);
         report_html_text(out, group->key != NULL ? group->key : "(not recorded)");
-        fprintf(out, ": %zu exams listed</h3>\n", listed);
-        fputs("<table><thead><tr><th>Study key</th><th>Day</th><th>Exam type</th><th>Room</th>"
-              "<th>Preset</th><th>Shift</th><th>Transducer</th><th>Index</th><th>Max</th>"
-              "<th>Max MI</th><th>Robust z</th><th>Why listed</th></tr></thead><tbody>\n",
-              out);
+        fprintf(out, ": %zu exam%s listed</th></tr>\n", listed, listed == 1 ? "" : "s");
         for (size_t m = 0; m < group->member_count; m++) {
             size_t e = group->members[m];
             if (!week_listed(doc, e))
@@ -533,25 +567,41 @@ static void week_html(const week_document *doc, FILE *out)
             html_cell_text(out, row->day);
             html_cell_text(out, row->exam_type_label != NULL ? row->exam_type_label
                                                              : row->exam_type);
-            html_cell_text(out, row->room);
-            html_cell_text(out, row->preset);
-            html_cell_text(out, row->shift);
-            html_cell_text(out, row->transducer);
-            html_cell_text(out, row->governing_index);
-            html_cell_number(out, row->has_governing, row->max_governing, 3);
-            html_cell_number(out, row->has_mi, row->max_mi, 3);
-            html_cell_number(out, 1, flag->robust_z, 3);
+            if (by != STATS_BY_ROOM)
+                html_cell_text(out, row->room);
+            if (by != STATS_BY_PRESET)
+                html_cell_text(out, row->preset);
+            if (by != STATS_BY_SHIFT)
+                html_cell_text(out, row->shift);
+            if (by != STATS_BY_TRANSDUCER)
+                html_cell_text(out, row->transducer);
             fputs("<td>", out);
-            if (flag->above_robust_z)
-                fputs("robust z above limit; ", out);
-            if (flag->above_p95)
-                fputs("above baseline P95; ", out);
+            for (const char *c = row->governing_index; c != NULL && *c != '\0'; c++)
+                fputc(*c >= 'a' && *c <= 'z' ? *c - 'a' + 'A' : *c, out);
+            if (row->governing_index == NULL)
+                fputs("(not recorded)", out);
+            fputs("</td>", out);
+            html_cell_fixed(out, row->has_governing, row->max_governing, 2);
+            html_cell_fixed(out, row->has_mi, row->max_mi, 2);
+            html_cell_fixed(out, 1, flag->robust_z, 1);
+            fputs("<td class=\"why\">", out);
+            const char *separator = "";
+            if (flag->above_robust_z) {
+                fputs("z above limit", out);
+                separator = "; ";
+            }
+            if (flag->above_p95) {
+                fprintf(out, "%sabove P95", separator);
+                separator = "; ";
+            }
             if (row->finding_count > 0)
-                fprintf(out, "%zu findings", row->finding_count);
+                fprintf(out, "%s%zu finding%s", separator, row->finding_count,
+                        row->finding_count == 1 ? "" : "s");
             fputs("</td></tr>\n", out);
         }
-        fputs("</tbody></table>\n", out);
     }
+    if (any_listed)
+        fputs("</tbody></table>\n", out);
     report_html_end(out);
 }
 
