@@ -274,6 +274,22 @@ static mitilog_status sim_put_pixels(sim_writer *w, const sim_capture *c,
     return status;
 }
 
+/* Laterality of an exam's images: every exam of a paired structure
+ * (shoulder, leg, kidney, testis) looks at one side, chosen from the
+ * patient number; NULL when the body part is not paired. */
+static const char *sim_laterality(const sim_exam_type *type,
+                                  const sim_exam *exam)
+{
+    static const char *const paired[] = {"SHOULDER", "LEG", "KIDNEY",
+                                         "SCROTUM"};
+    if (type->body_part == NULL)
+        return NULL;
+    for (size_t i = 0; i < sizeof paired / sizeof paired[0]; i++)
+        if (strcmp(type->body_part, paired[i]) == 0)
+            return exam->patient_number % 2 ? "R" : "L";
+    return NULL;
+}
+
 static void sim_format_index(double value, char *buffer, size_t size)
 {
     snprintf(buffer, size, "%.1f", value);
@@ -320,9 +336,12 @@ static mitilog_status sim_put_image(sim_writer *w, const sim_exam *exam,
     PUT_S(0x0040, 0x0254, type->study_description);
     if (type->body_part != NULL)
         PUT_S(0x0018, 0x0015, type->body_part);
-    if (type->body_part != NULL && (strcmp(type->body_part, "SHOULDER") == 0
-                                    || strcmp(type->body_part, "LEG") == 0))
-        PUT_S(0x0020, 0x0060, exam->patient_number % 2 ? "R" : "L");
+    /* Laterality (0020,0060) is Type 2C in General Series (PS3.3
+     * C.7.3.1): required for a paired structure, with a value (dciodvfy
+     * warns when it is empty but the side is known). */
+    const char *laterality = sim_laterality(type, exam);
+    if (laterality != NULL)
+        PUT_S(0x0020, 0x0060, laterality);
 
     snprintf(text, sizeof text, "%zu", position + 1);
     PUT_S(0x0020, 0x0013, text);

@@ -5,6 +5,7 @@ Run with /usr/bin/python3 -m pytest tests/integration/test_simulator.py
 build/mitilog. Files are read with pydicom, never with mitilog.
 """
 import collections
+import csv
 import glob
 import hashlib
 import os
@@ -213,16 +214,53 @@ def sample_of_each_kind(directory):
     return kinds
 
 
+def dciodvfy_sample(directory):
+    """One file of every kind (SOP class, photometric interpretation, mode
+    bitmap) and one of every kind for each exam type and each room
+    (device), chosen through the manifest."""
+    with open(os.path.join(str(directory), "manifest.csv")) as f:
+        rows = list(csv.DictReader(f))
+    chosen = {}
+    for key, path in sample_of_each_kind(directory).items():
+        chosen[path] = key
+    by_type = {}
+    for row in rows:
+        path = os.path.join(str(directory), row["path"])
+        ds = pydicom.dcmread(path, stop_before_pixels=True)
+        key = (ds.SOPClassUID, row["exam_type"], row["room"])
+        by_type.setdefault(key, path)
+    for key, path in by_type.items():
+        chosen.setdefault(path, key)
+    return chosen, {row["exam_type"] for row in rows}, {row["room"] for row in rows}
+
+
+def dciodvfy_errors(path):
+    run = subprocess.run(["dciodvfy", path], capture_output=True, text=True)
+    return [l for l in (run.stdout + run.stderr).splitlines() if l.startswith("Error")]
+
+
 def test_dciodvfy_reports_no_errors(week):
+    """Reference: dicom3tools' dciodvfy checks each file against its IOD
+    (PS3.3); every kind, every exam type, every room's device. Paired
+    organs (kidney, testis, shoulder, leg) need Laterality (0020,0060),
+    Type 2C in General Series (PS3.3 C.7.3.1)."""
     if shutil.which("dciodvfy") is None:
         pytest.skip("dciodvfy not installed")
-    kinds = sample_of_each_kind(week)
-    classes = {k[0] for k in kinds}
+    sample, exam_types, rooms = dciodvfy_sample(week)
+    classes = {key[0] for key in sample.values()}
     assert {US_IMAGE, US_MULTIFRAME, COMPREHENSIVE_SR} <= classes
-    for key, path in kinds.items():
-        run = subprocess.run(["dciodvfy", path], capture_output=True, text=True)
-        errors = [l for l in (run.stdout + run.stderr).splitlines() if l.startswith("Error")]
-        assert errors == [], (key, path, errors)
+    assert {key[1] for key in sample.values() if len(key) == 3 and key[1] in exam_types} \
+        == exam_types
+    assert len(exam_types) == 16 and len(rooms) == 5
+    for path, key in sorted(sample.items()):
+        assert dciodvfy_errors(path) == [], (key, path)
+    paired = [p for p, key in sample.items()
+              if key[1] in ("renal", "small_parts", "msk", "venous_leg")]
+    assert paired
+    for path in paired:
+        ds = pydicom.dcmread(path, stop_before_pixels=True)
+        if ds.Modality == "US":
+            assert ds.Laterality in ("R", "L"), path
 
 
 def test_pydicom_reads_every_kind(week):
