@@ -10,6 +10,9 @@ packages=(
   build-essential cmake pkg-config g++
   libdcmtk-dev libsqlite3-dev libmicrohttpd-dev libgnutls28-dev
   libinih-dev libssl-dev zlib1g-dev
+  # the simulator's scanners draw their screen text (`simulate --screens`)
+  # with FreeType in fonts of Debian's font packages
+  libfreetype-dev fonts-dejavu-core fonts-liberation2 fonts-freefont-ttf
   # unit tests
   libcmocka-dev
   # fuzzing (tests/fuzz/run.sh): clang with libFuzzer and its sanitizer runtimes
