@@ -791,9 +791,7 @@ static mitilog_status sim_write_exam(sim_writer *w, const sim_exam *exam,
              study_dir);
     CHECK(sim_mkdir(path, w->error));
 
-    char tags[128], file_tags[160], station[17];
-    sim_planted_tags(exam->planted & ~(unsigned)SIM_PLANTED_RESEND, tags,
-                     sizeof tags);
+    char file_tags[160], station[17];
     kept->count = 0;
     size_t files = exam->capture_count + (type->has_sr ? 1 : 0);
     for (size_t i = 0; i < files; i++) {
@@ -853,9 +851,10 @@ static mitilog_status sim_write_exam(sim_writer *w, const sim_exam *exam,
             return mitilog_error_set(w->error, MITILOG_ERROR_INVALID,
                                      "manifest line too long for %s",
                                      relative);
-        snprintf(file_tags, sizeof file_tags, "%s%s%s", tags,
-                 stale && tags[0] != '\0' ? ";" : "",
-                 stale ? "header-mismatch" : "");
+        sim_planted_tags((exam->planted & ~(unsigned)SIM_PLANTED_RESEND)
+                             | (stale ? (unsigned)SIM_PLANTED_HEADER_MISMATCH
+                                      : 0u),
+                         file_tags, sizeof file_tags);
         fprintf(w->manifest, "%s,%s,%s\n", kept->lines[kept->count],
                 file_tags, kept->screens[kept->count]);
         kept->count++;
