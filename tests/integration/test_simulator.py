@@ -219,8 +219,8 @@ def sample_of_each_kind(directory):
 
 def dciodvfy_sample(directory):
     """One file of every kind (SOP class, photometric interpretation, mode
-    bitmap) and one of every kind for each exam type and each room
-    (device), chosen through the manifest."""
+    bitmap) and one of every kind for each exam type, room and device
+    (software version included), chosen through the manifest."""
     with open(os.path.join(str(directory), "manifest.csv")) as f:
         rows = list(csv.DictReader(f))
     chosen = {}
@@ -230,7 +230,7 @@ def dciodvfy_sample(directory):
     for row in rows:
         path = os.path.join(str(directory), row["path"])
         ds = pydicom.dcmread(path, stop_before_pixels=True)
-        key = (ds.SOPClassUID, row["exam_type"], row["room"])
+        key = (ds.SOPClassUID, row["exam_type"], row["room"], row["device"])
         by_type.setdefault(key, path)
     for key, path in by_type.items():
         chosen.setdefault(path, key)
@@ -252,8 +252,7 @@ def test_dciodvfy_reports_no_errors(week):
     sample, exam_types, rooms = dciodvfy_sample(week)
     classes = {key[0] for key in sample.values()}
     assert {US_IMAGE, US_MULTIFRAME, COMPREHENSIVE_SR} <= classes
-    assert {key[1] for key in sample.values() if len(key) == 3 and key[1] in exam_types} \
-        == exam_types
+    assert {key[1] for key in sample.values() if len(key) == 4} == exam_types
     assert len(exam_types) == 16 and len(rooms) == 5
     for path, key in sorted(sample.items()):
         assert dciodvfy_errors(path) == [], (key, path)
@@ -368,8 +367,10 @@ def screens(tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def screens_compressed(tmp_path_factory):
+    """The first day of `screens`, compressed (a 1-day run: US-ROOM-1 keeps
+    its first software)."""
     out = tmp_path_factory.mktemp("screens-compressed")
-    return out, simulate_screens(out, 2, 4, "--compress")
+    return out, simulate_screens(out, 1, 4, "--compress")
 
 
 def image_rows(rows):
@@ -501,12 +502,13 @@ def test_screen_designs_vary(screens):
     assert [r["room"] for r in image_rows(rows) if r["device"] == PIXELS_ONLY][0] == "US-ROOM-4"
 
 
-def test_screens_are_deterministic(tmp_path):
+def test_screens_are_deterministic(screens_compressed, tmp_path):
     """The same seed gives byte-identical files with --screens --compress
-    (FreeType rendering and DCMTK's encoders included)."""
-    simulate_screens(tmp_path / "a", 1, 9, "--compress")
-    simulate_screens(tmp_path / "b", 1, 9, "--compress")
-    a, b = digests(tmp_path / "a"), digests(tmp_path / "b")
+    (FreeType rendering and DCMTK's encoders included: DCMTK 3.6.7's
+    JPEG-LS encoder left its pad byte unwritten, which this caught)."""
+    out, _ = screens_compressed
+    simulate_screens(tmp_path / "again", 1, 4, "--compress")
+    a, b = digests(out), digests(tmp_path / "again")
     assert len(a) > 100 and a == b
 
 
@@ -535,6 +537,7 @@ def test_compressed_files_keep_pixels_and_pass_dciodvfy(screens, screens_compres
     plain_out, plain_rows = screens
     out, rows = screens_compressed
     plain = {r["path"]: r for r in plain_rows}
+    assert {r["path"] for r in rows} < set(plain)   # the first of two days
     syntaxes = collections.defaultdict(set)
     for row in rows:
         syntaxes[row["device"]].add(row["transfer_syntax"])
@@ -543,6 +546,8 @@ def test_compressed_files_keep_pixels_and_pass_dciodvfy(screens, screens_compres
     assert SYNTAX_JPEG_LS in syntaxes["mitilog-sim-us-5"]
     for row in per_device_sample(rows, 2):
         other = plain[row["path"]]
+        if "resend" in row["planted"] + other["planted"]:
+            continue   # the resend falls on the last day of each run
         assert row["sop_instance_uid"] == other["sop_instance_uid"]
         assert row["mi_text"] == other["mi_text"] and row["mi_box"] == other["mi_box"]
         ds = pydicom.dcmread(os.path.join(str(out), row["path"]), stop_before_pixels=True)
