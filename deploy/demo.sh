@@ -85,7 +85,12 @@ for _ in $(seq 1 100); do
 done
 
 echo "demo: sending $days days of simulated traffic (seed $seed) to 127.0.0.1:$dicom_port"
+# --screens: the rooms' scanners burn the indices into the pixels (US-ROOM-4
+# writes none into the header); --compress: most send JPEG baseline,
+# JPEG-LS or RLE images (docs/demo.md, "Screens"). Uncompressed, four
+# weeks of screens would be about 20 GB; compressed 3.7 GB.
 build/mitilog simulate --days "$days" --seed "$seed" --out "$data/simulated" \
+    --screens --compress \
     --send "127.0.0.1:$dicom_port" --called-aet MITILOG --speed "$speed"
 
 cat <<TEXT

@@ -13,6 +13,9 @@ packages=(
   # JPEG 2000 frames: DCMTK has no decoder for them, OpenJPEG decodes the
   # frame's fragments from memory (src/dicom/dcm_frame.cc)
   libopenjp2-7-dev
+  # the simulator's scanners draw their screen text (`simulate --screens`)
+  # with FreeType in fonts of Debian's font packages
+  libfreetype-dev fonts-dejavu-core fonts-liberation2 fonts-freefont-ttf
   # unit tests
   libcmocka-dev
   # fuzzing (tests/fuzz/run.sh): clang with libFuzzer and its sanitizer runtimes

@@ -21,10 +21,11 @@ static void simulate_usage(FILE *out)
     fprintf(out,
         "usage: mitilog simulate --out DIR [--days N] [--seed S]\n"
         "                        [--start YYYY-MM-DD] [--site N]\n"
-        "                        [--matrix COLUMNSxROWS]\n"
+        "                        [--matrix COLUMNSxROWS | --screens [--compress]]\n"
         "       mitilog simulate --send HOST:PORT [--out DIR] [--days N]\n"
         "                        [--seed S] [--start YYYY-MM-DD] [--aet AE]\n"
-        "                        [--called-aet AE] [--speed X]\n"
+        "                        [--called-aet AE] [--speed X] [--screens]\n"
+        "                        [--compress]\n"
         "\n"
         "Writes an invented ultrasound department's DICOM files (US images,\n"
         "cine loops, acoustic output SRs) to DIR/<date>/<study>/<n>.dcm plus\n"
@@ -42,6 +43,13 @@ static void simulate_usage(FILE *out)
         "  --matrix CxR      pixel matrix of single frames, 2x2 to 2048x2048\n"
         "                    (cine frames: half each way); default 32x24,\n"
         "                    tiny; e.g. 640x480 gives objects of realistic size\n"
+        "  --screens         each room's scanner has its own identity and matrix\n"
+        "                    and burns MI/TI into the pixels (fonts from\n"
+        "                    Debian's font packages); US-ROOM-4 writes no\n"
+        "                    indices into the header; manifest.csv gets the\n"
+        "                    text and pixel box of every index drawn\n"
+        "  --compress        with --screens: scanners that compress write their\n"
+        "                    images as JPEG baseline, JPEG-LS or RLE\n"
         "  --send HOST:PORT  stream the studies with storescu in time order\n"
         "  --aet AE          calling AE title (default: each room's own)\n"
         "  --called-aet AE   called AE title (default MITILOG)\n"
@@ -82,6 +90,8 @@ int command_simulate(int argc, char **argv)
         {"speed", required_argument, NULL, 'x'},
         {"site", required_argument, NULL, 'i'},
         {"matrix", required_argument, NULL, 'm'},
+        {"screens", no_argument, NULL, 'P'},
+        {"compress", no_argument, NULL, 'C'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
@@ -166,6 +176,12 @@ int command_simulate(int argc, char **argv)
             options.matrix_rows = rows;
             break;
         }
+        case 'P':
+            options.screens = 1;
+            break;
+        case 'C':
+            options.compress = 1;
+            break;
         case 'x':
             errno = 0;
             options.speed = strtod(optarg, &end);
@@ -185,6 +201,12 @@ int command_simulate(int argc, char **argv)
         return simulate_bad("unexpected argument", argv[optind]);
     if (options.out_directory == NULL && options.send_host == NULL)
         return simulate_bad("--out DIR is required", NULL);
+    if (options.screens && options.matrix_columns > 0)
+        return simulate_bad("--matrix cannot be combined with --screens "
+                            "(each scanner has its own matrix)", NULL);
+    if (options.compress && !options.screens)
+        return simulate_bad("--compress needs --screens (only the screen "
+                            "scanners compress)", NULL);
 
     char temporary[64] = "";
     if (options.out_directory == NULL) {

@@ -329,7 +329,11 @@ mitilog_status dcm_builder_put_pixels(dcm_builder *builder,
                                       const uint8_t *bytes, size_t size,
                                       mitilog_error *error);
 /* Writes a Part 10 file with a meta header in the given transfer syntax
- * (UID string; NULL = Explicit VR Little Endian). */
+ * (UID string; NULL = Explicit VR Little Endian). Besides the native
+ * syntaxes, three compress the pixel data with DCMTK's encoders:
+ * JPEG baseline 1.2.840.10008.1.2.4.50 (lossy, quality 90; colour as
+ * YBR_FULL_422), JPEG-LS lossless 1.2.840.10008.1.2.4.80 and RLE lossless
+ * 1.2.840.10008.1.2.5. The SOP Instance UID is kept either way. */
 mitilog_status dcm_builder_save(dcm_builder *builder, const char *path,
                                 const char *transfer_syntax_uid,
                                 mitilog_error *error);

@@ -13,10 +13,18 @@
 
 #include <new>
 #include <exception>
+#include <mutex>
 #include <vector>
 
 #include <dcmtk/config/osconfig.h>
+#include <dcmtk/dcmdata/dcpxitem.h>
+#include <dcmtk/dcmdata/dcrleerg.h>
+#include <dcmtk/dcmdata/dcrlerp.h>
 #include <dcmtk/dcmdata/dctk.h>
+#include <dcmtk/dcmjpeg/djencode.h>
+#include <dcmtk/dcmjpeg/djrploss.h>
+#include <dcmtk/dcmjpls/djencode.h>
+#include <dcmtk/dcmjpls/djrparam.h>
 #include <dcmtk/dcmsr/dsrdoc.h>
 
 struct dcm_builder {
@@ -269,6 +277,99 @@ extern "C" mitilog_status dcm_builder_put_pixels(dcm_builder *builder,
     DCM_WRITE_CATCH(error)
 }
 
+namespace {
+
+/* DCMTK keeps its codecs in one process-wide list; the encoders are
+ * registered once, on the first compressed save, and stay registered.
+ * No new SOP Instance UID on lossy compression (EUC_never): the builder
+ * never invents a UID, so the same calls still give the same file. */
+void register_encoders()
+{
+    static std::once_flag once;
+    std::call_once(once, [] {
+        DJEncoderRegistration::registerCodecs(ECC_lossyYCbCr, EUC_never);
+        DJLSEncoderRegistration::registerCodecs(
+            0, 0, 0, 0, OFTrue, 0, OFTrue, EJLSUC_never);
+        DcmRLEEncoderRegistration::registerCodecs(OFFalse);
+    });
+}
+
+/* DCMTK 3.6.7's JPEG-LS encoder rounds an odd-length frame up to even
+ * length without writing the pad byte after the EOI marker, so the file
+ * would carry one byte of whatever the buffer held: files would differ
+ * from run to run. A fragment is padded with a trailing NULL byte (PS3.5
+ * section A.4 and 8.2): this sets that byte, and nothing else, to 00. */
+void zero_jpeg_ls_padding(DcmDataset *dataset)
+{
+    DcmElement *element = NULL;
+    if (dataset->findAndGetElement(DCM_PixelData, element).bad()
+        || element == NULL)
+        return;
+    DcmPixelData *pixel_data = OFstatic_cast(DcmPixelData *, element);
+    E_TransferSyntax current = EXS_Unknown;
+    const DcmRepresentationParameter *parameter = NULL;
+    pixel_data->getCurrentRepresentationKey(current, parameter);
+    DcmPixelSequence *sequence = NULL;
+    if (current != EXS_JPEGLSLossless
+        || pixel_data->getEncapsulatedRepresentation(current, parameter,
+                                                     sequence)
+               .bad()
+        || sequence == NULL)
+        return;
+    for (unsigned long i = 1; i < sequence->card(); i++) {   /* 0: offsets */
+        DcmPixelItem *item = NULL;
+        Uint8 *bytes = NULL;
+        if (sequence->getItem(item, i).bad() || item == NULL
+            || item->getUint8Array(bytes).bad() || bytes == NULL)
+            continue;
+        Uint32 length = item->getLength();
+        if (length >= 3 && length % 2 == 0 && bytes[length - 3] == 0xFF
+            && bytes[length - 2] == 0xD9)
+            bytes[length - 1] = 0;
+    }
+}
+
+/* Compresses the pixel data of the dataset to xfer, one of the encodings
+ * dcm_builder_save accepts. */
+mitilog_status encode_pixels(DcmDataset *dataset, E_TransferSyntax xfer,
+                             const char *path, mitilog_error *error)
+{
+    register_encoders();
+    DJ_RPLossy jpeg_quality(90);
+    DJLSRepresentationParameter jpeg_ls_lossless(0, OFTrue);
+    DcmRLERepresentationParameter rle;
+    const DcmRepresentationParameter *parameter = NULL;
+    switch (xfer) {
+    case EXS_JPEGProcess1:
+        parameter = &jpeg_quality;
+        break;
+    case EXS_JPEGLSLossless:
+        parameter = &jpeg_ls_lossless;
+        break;
+    case EXS_RLELossless:
+        parameter = &rle;
+        break;
+    default:
+        return mitilog_error_set(
+            error, MITILOG_ERROR_INVALID,
+            "save %s: compressed transfer syntax %s not supported (JPEG "
+            "baseline, JPEG-LS lossless and RLE lossless are)",
+            path, DcmXfer(xfer).getXferID());
+    }
+    OFCondition cond = dataset->chooseRepresentation(xfer, parameter);
+    if (cond.bad() || !dataset->canWriteXfer(xfer))
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "save %s: cannot compress the pixel data "
+                                 "as %s: %s",
+                                 path, DcmXfer(xfer).getXferName(),
+                                 cond.bad() ? cond.text() : "encoder refused");
+    if (xfer == EXS_JPEGLSLossless)
+        zero_jpeg_ls_padding(dataset);
+    return MITILOG_OK;
+}
+
+} // namespace
+
 extern "C" mitilog_status dcm_builder_save(dcm_builder *builder,
                                            const char *path,
                                            const char *transfer_syntax_uid,
@@ -284,10 +385,16 @@ extern "C" mitilog_status dcm_builder_save(dcm_builder *builder,
         if (transfer_syntax_uid != NULL) {
             DcmXfer wanted(transfer_syntax_uid);
             xfer = wanted.getXfer();
-            if (xfer == EXS_Unknown || wanted.isEncapsulated())
+            if (xfer == EXS_Unknown)
                 return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                          "unsupported transfer syntax %s",
                                          transfer_syntax_uid);
+            if (wanted.isEncapsulated()) {
+                mitilog_status status = encode_pixels(
+                    builder->file.getDataset(), xfer, path, error);
+                if (status != MITILOG_OK)
+                    return status;
+            }
         }
         OFCondition cond = builder->file.saveFile(
             path, xfer, EET_ExplicitLength, EGL_recalcGL, EPD_noChange, 0, 0,

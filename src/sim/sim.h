@@ -13,8 +13,9 @@
  *
  * Pipeline: sim_department.c (tables) -> sim_schedule.c (exams per day,
  * room and shift) -> sim_exam.c (captures and the index model, with
- * sim_planted.c bending it) -> sim_write.c (files and manifest) ->
- * sim_send.c (storescu feed).
+ * sim_planted.c bending it) -> sim_write.c (files and manifest, with
+ * sim_device.c's scanners and sim_screen.c drawing their screens through
+ * FreeType) -> sim_send.c (storescu feed).
  *
  * Ownership: sim_day_schedule() fills a caller-owned sim_day; sim_exam_build()
  * fills a caller-owned sim_exam (fixed-size arrays, nothing to free).
@@ -180,6 +181,9 @@ typedef struct sim_slot {
     int duration_minutes;
     uint64_t seed;              /* the exam's own random stream */
     unsigned planted;           /* SIM_PLANTED_* bits (sim_planted_mark) */
+    int decimals;               /* digits the room's device displays after
+                                 * the point: 0 or 1 = one, 2 = two (set by
+                                 * the writer from the device) */
 } sim_slot;
 
 typedef struct sim_day {
@@ -222,7 +226,10 @@ enum {
     SIM_PLANTED_SILENT_PROBE = 1 << 2,
     SIM_PLANTED_TIC_HIGH = 1 << 3,
     SIM_PLANTED_MI_OVER_LIMIT = 1 << 4,
-    SIM_PLANTED_RESEND = 1 << 5
+    SIM_PLANTED_RESEND = 1 << 5,
+    /* per file, screen devices only: the header's indices are those of
+     * the capture before while the screen shows the right ones */
+    SIM_PLANTED_HEADER_MISMATCH = 1 << 6
 };
 
 typedef struct sim_capture {
@@ -231,7 +238,8 @@ typedef struct sim_capture {
     int frames;                 /* 1 = single frame */
     double frame_time_ms;
     int has_indices;            /* 0: MI/TI attributes omitted */
-    double mi, tis, tib, tic;   /* as displayed (rounded to 0.1) */
+    double mi, tis, tib, tic;   /* as displayed (rounded to the
+                                 * device's decimals, 0.1 or 0.01) */
 } sim_capture;
 
 typedef struct sim_exam {
@@ -265,6 +273,110 @@ void sim_planted_apply(const sim_exam *exam, sim_capture *capture,
 void sim_planted_tags(unsigned planted, char *buffer, size_t size);
 
 /* ------------------------------------------------------------------ */
+/* Devices and their screens (sim_device.c, sim_screen.c)              */
+/* ------------------------------------------------------------------ */
+
+/* The indices a screen can show, in drawing order. */
+enum { SIM_INDEX_MI = 0, SIM_INDEX_TIS, SIM_INDEX_TIB, SIM_INDEX_TIC,
+       SIM_INDEX_COUNT };
+
+/* How a device's screen is laid out. rows: the text rows, top to bottom,
+ * separated by '|'; each row is a list of items separated by spaces:
+ *   H hospital   D date and time   F transmit frequency   G gain
+ *   P depth      R frame rate      I every index shown, side by side
+ *   M MI         S TIS             X TIB or TIC (whichever the exam shows)
+ * A row keeps its place when it has nothing to show (a probe that reports
+ * no indices leaves its index rows empty). */
+typedef struct sim_screen_design {
+    const char *font_file;      /* a TrueType file of a Debian package */
+    const char *font_package;   /* ... named in the error when missing */
+    int font_pixels;            /* nominal size, FreeType pixel size */
+    const char *rows;
+    int align_right;            /* rows right-aligned (else left) */
+    int anchor_bottom;          /* rows stacked up from the bottom edge */
+    uint8_t colour[3];          /* RGB of the index text */
+    uint8_t other_colour[3];    /* RGB of every other text */
+    const char *labels[SIM_INDEX_COUNT]; /* as drawn, separator included:
+                                          * "MI ", "MI:", "TIb" */
+    int decimals;               /* 1 or 2 */
+    const char *hospital;       /* the short name drawn */
+    int date_style;             /* 0 2026-11-02 09:14:05, 1 02/11/2026
+                                 * 09:14, 2 02.11.26 09:14:05 */
+    const char *frequency_format;   /* printf of MHz (double) */
+    const char *gain_format;        /* printf of gain (int) */
+    const char *depth_format;       /* printf of depth in cm (int) */
+    const char *rate_format;        /* printf of frames per second (int) */
+} sim_screen_design;
+
+typedef struct sim_device {
+    const char *key;            /* manifest name: "ambervale-av40-4.0" */
+    const char *manufacturer;   /* (0008,0070) */
+    const char *model_name;     /* (0008,1090) */
+    const char *software_versions; /* (0018,1020) */
+    unsigned columns, rows;     /* every frame, single or cine */
+    int header_indices;         /* writes MI/TI into the header too */
+    int header_mismatch;        /* now and then a stale header (planted) */
+    const char *compressed_syntax; /* under --compress; NULL: native */
+    sim_screen_design screen;   /* screen.rows NULL: draws nothing */
+} sim_device;
+
+/* The device of a room on day day_index of a run of days days. screens
+ * 0: the header-only department (every room SIM-US 1, tiny matrices); 1:
+ * the screen devices. */
+const sim_device *sim_device_of(int room, int day_index, int days,
+                                int screens);
+/* Day index from which US-ROOM-1's scanner runs its new software: the
+ * middle of the run (day 15 of 28), never on 1-day runs. */
+int sim_software_update_day(int days);
+
+/* One index as drawn on a screen: its text (label included; "" when not
+ * drawn) and the box of its ink in the frame. */
+typedef struct sim_drawn_index {
+    char text[32];
+    int x, y, width, height;
+} sim_drawn_index;
+
+/* What a capture's screen shows besides the picture. */
+typedef struct sim_screen_text {
+    int show[SIM_INDEX_COUNT];  /* 1: drawn */
+    double values[SIM_INDEX_COUNT];
+    int year, month, day, hour, minute, second;
+    double frequency_mhz;
+    int gain, depth_cm, frame_rate;
+} sim_screen_text;
+
+/* The rendered text of one capture, laid over every frame of it. */
+typedef struct sim_overlay {
+    unsigned columns, rows;
+    uint8_t *alpha;             /* coverage 0..255 per pixel */
+    uint8_t *rgb;               /* colour per pixel (3 bytes) */
+    uint8_t *blank;             /* 1: the black panel behind a text row */
+} sim_overlay;
+
+typedef struct sim_screen sim_screen;
+
+/* The FreeType library and the faces it has opened; freed with
+ * sim_screen_close(). */
+mitilog_status sim_screen_open(sim_screen **out, mitilog_error *error);
+void sim_screen_close(sim_screen *screen);
+/* Lays out and renders the text of a capture on device's screen into
+ * overlay (caller-owned; buffers grown here, freed with
+ * sim_overlay_free), and says where each index was drawn. A design whose
+ * text does not fit the frame is an error. */
+mitilog_status sim_screen_render(sim_screen *screen, const sim_device *device,
+                                 const sim_screen_text *text,
+                                 sim_overlay *overlay,
+                                 sim_drawn_index drawn[SIM_INDEX_COUNT],
+                                 mitilog_error *error);
+/* Blends the overlay into one frame (samples 1: grey, 3: RGB). */
+void sim_overlay_apply(const sim_overlay *overlay, uint8_t *frame,
+                       unsigned samples);
+void sim_overlay_free(sim_overlay *overlay);
+/* The value text of an index as the design draws it ("0.4", "1.23"). */
+void sim_screen_format_value(const sim_screen_design *design, double value,
+                             char *buffer, size_t size);
+
+/* ------------------------------------------------------------------ */
 /* Writing (sim_write.c) and sending (sim_send.c)                      */
 /* ------------------------------------------------------------------ */
 
@@ -283,6 +395,12 @@ typedef struct sim_options {
      * four weeks to a couple of hundred MB; department-sized matrices
      * (e.g. 640 x 480) give objects of realistic size for benchmarks. */
     unsigned matrix_columns, matrix_rows;
+    /* --screens: the rooms' scanners burn the indices into the pixels
+     * (sim_device_of); each has its own matrix (no --matrix). */
+    int screens;
+    /* --compress: screen devices that compress write their images in
+     * their own compressed transfer syntax (sim_device.compressed_syntax). */
+    int compress;
     /* --send */
     const char *send_host;      /* NULL: write files only */
     unsigned send_port;
@@ -299,6 +417,9 @@ typedef struct sim_study_record {
     char directory[64];         /* relative to out: "2026-11-02/e0001" */
     size_t file_count;
     int is_resend;
+    /* transfer syntax of the study's images when compressed, else NULL
+     * (storescu must propose it) */
+    const char *compressed_syntax;
 } sim_study_record;
 
 typedef struct sim_run {

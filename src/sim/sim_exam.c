@@ -53,12 +53,22 @@ static void sim_model_indices(const sim_exam_type *type, sim_capture *c,
     }
 }
 
-static void sim_round_indices(sim_capture *c)
+/* Rounds to the digits the room's device displays (floor 0.1 either
+ * way): the displayed value is the model's value. */
+static double sim_round_to(double value, int decimals)
 {
-    c->mi = sim_round1(c->mi, 0.1);
-    c->tis = sim_round1(c->tis, 0.1);
-    c->tib = c->tib > 0.0 ? sim_round1(c->tib, 0.1) : 0.0;
-    c->tic = c->tic > 0.0 ? sim_round1(c->tic, 0.1) : 0.0;
+    if (decimals != 2)
+        return sim_round1(value, 0.1);
+    double r = round(value * 100.0) / 100.0;
+    return r < 0.1 ? 0.1 : r;
+}
+
+static void sim_round_indices(sim_capture *c, int decimals)
+{
+    c->mi = sim_round_to(c->mi, decimals);
+    c->tis = sim_round_to(c->tis, decimals);
+    c->tib = c->tib > 0.0 ? sim_round_to(c->tib, decimals) : 0.0;
+    c->tic = c->tic > 0.0 ? sim_round_to(c->tic, decimals) : 0.0;
 }
 
 static int sim_cine_frames(sim_rng *rng)
@@ -144,6 +154,6 @@ void sim_exam_build(int day_index, int exam_number, const sim_slot *slot,
         }
         sim_model_indices(type, c, &rng);
         sim_planted_apply(exam, c, (size_t)i, &rng);
-        sim_round_indices(c);
+        sim_round_indices(c, slot->decimals);
     }
 }

@@ -17,6 +17,10 @@
  *                  middle B-mode captures (above the 1.9 equipment limit).
  *  resend          the first US-ROOM-4 day-shift exam of day 3 (index 2;
  *                  day 1 on shorter runs) is sent twice, same UIDs.
+ *  header-mismatch with --screens only, per file: US-ROOM-2's scanner
+ *                  now and then writes into the header the indices of the
+ *                  capture before while its screen shows the right ones
+ *                  (sim_write.c decides which captures).
  */
 #include "sim/sim.h"
 
@@ -115,6 +119,7 @@ void sim_planted_tags(unsigned planted, char *buffer, size_t size)
         {SIM_PLANTED_TIC_HIGH, "tic-high"},
         {SIM_PLANTED_MI_OVER_LIMIT, "mi-over-limit"},
         {SIM_PLANTED_RESEND, "resend"},
+        {SIM_PLANTED_HEADER_MISMATCH, "header-mismatch"},
     };
     size_t used = 0;
     if (size == 0)

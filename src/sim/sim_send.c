@@ -3,7 +3,13 @@
  * DCMTK's storescu, one invocation per study, in simulated time order,
  * sleeping so that simulated time runs `speed` times real time (0 = as
  * fast as possible). fork/execvp with an argument vector: no shell.
- * TCP_NODELAY=1 is exported to storescu (see shared/dcmtk-notes.md).
+ * TCP_NODELAY=1 is exported to storescu (bench/README.md: without it
+ * Nagle's algorithm slows a one-object-at-a-time sender).
+ *
+ * A study whose images are compressed (--compress) is sent with -R
+ * (propose only the presentation contexts the files need) and the -x
+ * option that proposes their transfer syntax: without them storescu
+ * proposes only uncompressed syntaxes and fails to convert the files.
  */
 #include "sim/sim.h"
 
@@ -37,6 +43,24 @@ static void sim_sleep(double seconds)
     }
 }
 
+/* storescu's option that proposes a compressed transfer syntax, or NULL
+ * when it has none. */
+static const char *sim_storescu_propose(const char *syntax)
+{
+    static const struct {
+        const char *uid;
+        const char *option;
+    } table[] = {
+        {"1.2.840.10008.1.2.4.50", "-xy"},   /* JPEG baseline (8 bit) */
+        {"1.2.840.10008.1.2.4.80", "-xt"},   /* JPEG-LS lossless */
+        {"1.2.840.10008.1.2.5", "-xr"},      /* RLE lossless */
+    };
+    for (size_t i = 0; i < sizeof table / sizeof table[0]; i++)
+        if (strcmp(table[i].uid, syntax) == 0)
+            return table[i].option;
+    return NULL;
+}
+
 /* Runs storescu on the study's files; returns its exit status or -1. */
 static int sim_storescu(const sim_options *options, const char *calling,
                         const sim_study_record *study)
@@ -58,6 +82,18 @@ static int sim_storescu(const sim_options *options, const char *calling,
     argv[n++] = (char *)"-aec";
     argv[n++] = (char *)(options->called_ae ? options->called_ae : "MITILOG");
     argv[n++] = (char *)"-nh";   /* keep going: failures counted by exit */
+    if (study->compressed_syntax != NULL) {
+        const char *propose = sim_storescu_propose(study->compressed_syntax);
+        if (propose == NULL) {
+            fprintf(stderr, "simulate: no storescu option proposes %s\n",
+                    study->compressed_syntax);
+            free(argv);
+            free(paths);
+            return -1;
+        }
+        argv[n++] = (char *)"-R";
+        argv[n++] = (char *)propose;
+    }
     argv[n++] = (char *)options->send_host;
     argv[n++] = port;
     for (size_t i = 0; i < study->file_count; i++) {

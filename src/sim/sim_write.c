@@ -8,10 +8,16 @@
  * tiny pixel data; exams of types with has_sr end with a Comprehensive SR
  * in its own series. All dates and times are simulated, all UIDs derived
  * from the seed (sim_uid), so a seed gives byte-identical files.
+ *
+ * With --screens each room's scanner (sim_device.c) has its own identity
+ * and matrix and draws its screen text into every frame (sim_screen.c);
+ * the manifest then records, per file, the text drawn for each index and
+ * the box of its ink: the ground truth of what a screen reader must read.
  */
 #include "sim/sim.h"
 
 #include <errno.h>
+#include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -60,6 +66,8 @@ typedef struct sim_writer {
     sim_run *run;
     dcm_builder *builder;
     mitilog_error *error;
+    sim_screen *screen;         /* FreeType, with --screens */
+    sim_overlay overlay;        /* the current capture's screen text */
 } sim_writer;
 
 typedef struct sim_stamp {
@@ -117,6 +125,9 @@ static void sim_patient_age(int days, char *buffer, size_t size)
 static mitilog_status sim_put_common(sim_writer *w, const sim_exam *exam,
                                      const char *study_uid, int is_image)
 {
+    const sim_device *device =
+        sim_device_of(exam->slot.room, exam->day_index, w->options->days,
+                      w->options->screens);
     const sim_exam_type *type = &sim_exam_types[exam->slot.exam_type];
     const sim_room *room = &sim_rooms[exam->slot.room];
     char text[96], station[17], serial[17];
@@ -148,14 +159,14 @@ static mitilog_status sim_put_common(sim_writer *w, const sim_exam *exam,
     PUT_S(0x0008, 0x1030, type->study_description);
     PUT_S(0x0008, 0x0201, "+0000");
 
-    PUT_S(0x0008, 0x0070, SIM_MANUFACTURER);
+    PUT_S(0x0008, 0x0070, device->manufacturer);
     PUT_S(0x0008, 0x0080, SIM_HOSPITAL_NAME);
     PUT_S(0x0008, 0x1010,
           sim_site_name(room->station_name, w->options->site, station));
     PUT_S(0x0008, 0x1040, SIM_DEPARTMENT_NAME);
-    PUT_S(0x0008, 0x1090, SIM_MODEL_NAME);
+    PUT_S(0x0008, 0x1090, device->model_name);
     PUT_S(0x0018, 0x1000, sim_site_name(room->serial, w->options->site, serial));
-    PUT_S(0x0018, 0x1020, "SIM 1.0");
+    PUT_S(0x0018, 0x1020, device->software_versions);
     if (is_image)   /* Operators' Name is not in the SR IODs */
         PUT_S(0x0008, 0x1070, sim_operators[exam->operator_index]);
     return MITILOG_OK;
@@ -251,10 +262,45 @@ static int sim_mode_is_colour(sim_mode mode)
            || mode == SIM_MODE_PW;
 }
 
-/* A deterministic, cheap picture: a speckle-free gradient per frame. */
+/* A screen device's picture: black, with a fan widening down from the
+ * top centre in grey bands that drift one row per frame, and in colour
+ * modes a red and blue flow box inside it. Long runs of equal values, so
+ * that RLE and JPEG-LS compress it well. */
+static void sim_picture(uint8_t *frame, unsigned cols, unsigned rows,
+                        unsigned samples, size_t index, int colour)
+{
+    int centre = (int)cols / 2;
+    for (unsigned y = 0; y < rows; y++) {
+        int half = (int)((y * cols) / (2 * rows));
+        unsigned band = (unsigned)(((y + index) / 8) % 6);
+        int flow_row = colour && y >= rows / 3 && y < 2 * rows / 3;
+        int red = ((y + index) / 6) % 2 == 0;
+        for (unsigned x = 0; x < cols; x++) {
+            int offset = (int)x - centre;
+            int inside = offset >= -half && offset <= half;
+            uint8_t grey = inside ? (uint8_t)(50 + band * 20) : 0;
+            uint8_t *out = &frame[((size_t)y * cols + x) * samples];
+            if (samples == 1) {
+                out[0] = grey;
+                continue;
+            }
+            if (inside && flow_row && offset > -(int)cols / 6
+                && offset < (int)cols / 6) {
+                out[0] = red ? 200 : 40;
+                out[1] = red ? 40 : 60;
+                out[2] = red ? 40 : 200;
+            } else {
+                out[0] = out[1] = out[2] = grey;
+            }
+        }
+    }
+}
+
+/* A deterministic, cheap picture: a speckle-free gradient per frame; on a
+ * screen device, its picture with the screen text laid over. */
 static mitilog_status sim_put_pixels(sim_writer *w, const sim_capture *c,
                                      unsigned cols, unsigned rows,
-                                     unsigned samples)
+                                     unsigned samples, int screen)
 {
     size_t frame = (size_t)cols * rows * samples;
     size_t size = frame * (size_t)c->frames;
@@ -262,7 +308,12 @@ static mitilog_status sim_put_pixels(sim_writer *w, const sim_capture *c,
     if (pixels == NULL)
         return mitilog_error_set(w->error, MITILOG_ERROR_MEMORY,
                                  "pixels: out of memory");
-    for (size_t f = 0; f < (size_t)c->frames; f++)
+    for (size_t f = 0; f < (size_t)c->frames && screen; f++) {
+        sim_picture(pixels + f * frame, cols, rows, samples, f,
+                    samples == 3);
+        sim_overlay_apply(&w->overlay, pixels + f * frame, samples);
+    }
+    for (size_t f = 0; f < (size_t)c->frames && !screen; f++)
         for (size_t i = 0; i < frame; i++) {
             size_t pixel = i / samples, x = pixel % cols, y = pixel / cols;
             pixels[f * frame + i] =
@@ -274,25 +325,102 @@ static mitilog_status sim_put_pixels(sim_writer *w, const sim_capture *c,
     return status;
 }
 
-static void sim_format_index(double value, char *buffer, size_t size)
+/* Laterality of an exam's images: every exam of a paired structure
+ * (shoulder, leg, kidney, testis) looks at one side, chosen from the
+ * patient number; NULL when the body part is not paired. */
+static const char *sim_laterality(const sim_exam_type *type,
+                                  const sim_exam *exam)
 {
-    snprintf(buffer, size, "%.1f", value);
+    static const char *const paired[] = {"SHOULDER", "LEG", "KIDNEY",
+                                         "SCROTUM"};
+    if (type->body_part == NULL)
+        return NULL;
+    for (size_t i = 0; i < sizeof paired / sizeof paired[0]; i++)
+        if (strcmp(type->body_part, paired[i]) == 0)
+            return exam->patient_number % 2 ? "R" : "L";
+    return NULL;
 }
 
+static void sim_format_index(int decimals, double value, char *buffer,
+                             size_t size)
+{
+    snprintf(buffer, size, "%.*f", decimals == 2 ? 2 : 1, value);
+}
+
+/* Lays out the screen text of a capture into w->overlay and fills drawn
+ * (every index "" when the device draws no text). */
+static mitilog_status sim_render_screen(sim_writer *w, const sim_exam *exam,
+                                        size_t position,
+                                        const sim_device *device,
+                                        sim_drawn_index drawn[SIM_INDEX_COUNT])
+{
+    const sim_exam_type *type = &sim_exam_types[exam->slot.exam_type];
+    const sim_capture *c = &exam->captures[position];
+    sim_screen_text text;
+    memset(&text, 0, sizeof text);
+    if (c->has_indices) {
+        text.show[SIM_INDEX_MI] = text.show[SIM_INDEX_TIS] = 1;
+        text.show[SIM_INDEX_TIB] = type->indices == SIM_INDICES_TIB;
+        text.show[SIM_INDEX_TIC] = type->indices == SIM_INDICES_TIC;
+    }
+    text.values[SIM_INDEX_MI] = c->mi;
+    text.values[SIM_INDEX_TIS] = c->tis;
+    text.values[SIM_INDEX_TIB] = c->tib;
+    text.values[SIM_INDEX_TIC] = c->tic;
+    sim_date date = sim_date_from_days(w->start_days + exam->day_index
+                                       + c->second / 86400);
+    long s = c->second % 86400;
+    text.year = date.year;
+    text.month = date.month;
+    text.day = date.day;
+    text.hour = (int)(s / 3600);
+    text.minute = (int)((s / 60) % 60);
+    text.second = (int)(s % 60);
+    text.frequency_mhz = sim_probes[type->probe].frequency_khz / 1000.0;
+    /* the other text near the indices: its own stream, so that the
+     * exposure model's draws stay as they were */
+    uint64_t h = sim_mix(w->options->seed, 0x73637265656eULL,
+                         (uint64_t)(exam->day_index * 1000
+                                    + exam->exam_number),
+                         position, 0);
+    text.gain = 40 + (int)(h % 31);
+    text.depth_cm = 4 + (int)((h >> 8) % 15);
+    text.frame_rate = c->frames > 1 && c->frame_time_ms > 0.0
+                          ? (int)lround(1000.0 / c->frame_time_ms)
+                          : 18 + (int)((h >> 16) % 30);
+    if (device->screen.rows == NULL) {
+        memset(drawn, 0, sizeof(sim_drawn_index) * SIM_INDEX_COUNT);
+        return MITILOG_OK;
+    }
+    return sim_screen_render(w->screen, device, &text, &w->overlay, drawn,
+                             w->error);
+}
+
+/* header: the capture whose indices the header carries (the capture
+ * itself, or the one before on a stale header); NULL: none. */
 static mitilog_status sim_put_image(sim_writer *w, const sim_exam *exam,
                                     size_t position, const char *study_uid,
                                     const char *series_uid,
-                                    const char *sop_uid)
+                                    const char *sop_uid,
+                                    const sim_capture *header)
 {
     const sim_exam_type *type = &sim_exam_types[exam->slot.exam_type];
     const sim_probe *probe = &sim_probes[type->probe];
     const sim_capture *c = &exam->captures[position];
+    const sim_device *device =
+        sim_device_of(exam->slot.room, exam->day_index, w->options->days,
+                      w->options->screens);
+    int screen = device->screen.rows != NULL;
     int cine = c->frames > 1;
     unsigned cols = cine ? CINE_COLUMNS : SINGLE_COLUMNS;
     unsigned rows = cine ? CINE_ROWS : SINGLE_ROWS;
     if (w->options->matrix_columns > 0 && w->options->matrix_rows > 0) {
         cols = cine ? w->options->matrix_columns / 2 : w->options->matrix_columns;
         rows = cine ? w->options->matrix_rows / 2 : w->options->matrix_rows;
+    }
+    if (screen) {   /* a scanner keeps one matrix, single frame or cine */
+        cols = device->columns;
+        rows = device->rows;
     }
     int colour = sim_mode_is_colour(c->mode);
     char text[96];
@@ -320,9 +448,12 @@ static mitilog_status sim_put_image(sim_writer *w, const sim_exam *exam,
     PUT_S(0x0040, 0x0254, type->study_description);
     if (type->body_part != NULL)
         PUT_S(0x0018, 0x0015, type->body_part);
-    if (type->body_part != NULL && (strcmp(type->body_part, "SHOULDER") == 0
-                                    || strcmp(type->body_part, "LEG") == 0))
-        PUT_S(0x0020, 0x0060, exam->patient_number % 2 ? "R" : "L");
+    /* Laterality (0020,0060) is Type 2C in General Series (PS3.3
+     * C.7.3.1): required for a paired structure, with a value (dciodvfy
+     * warns when it is empty but the side is known). */
+    const char *laterality = sim_laterality(type, exam);
+    if (laterality != NULL)
+        PUT_S(0x0020, 0x0060, laterality);
 
     snprintf(text, sizeof text, "%zu", position + 1);
     PUT_S(0x0020, 0x0013, text);
@@ -335,17 +466,18 @@ static mitilog_status sim_put_image(sim_writer *w, const sim_exam *exam,
 
     PUT_S(0x0018, 0x5010, probe->model);
     PUT_S(0x0018, 0x6031, probe->type);
-    if (c->has_indices) {
-        sim_format_index(c->mi, text, sizeof text);
+    if (header != NULL && header->has_indices) {
+        int decimals = exam->slot.decimals;
+        sim_format_index(decimals, header->mi, text, sizeof text);
         PUT_S(0x0018, 0x5022, text);
-        sim_format_index(c->tis, text, sizeof text);
+        sim_format_index(decimals, header->tis, text, sizeof text);
         PUT_S(0x0018, 0x5027, text);
         if (type->indices == SIM_INDICES_TIB) {
-            sim_format_index(c->tib, text, sizeof text);
+            sim_format_index(decimals, header->tib, text, sizeof text);
             PUT_S(0x0018, 0x5024, text);
         }
         if (type->indices == SIM_INDICES_TIC) {
-            sim_format_index(c->tic, text, sizeof text);
+            sim_format_index(decimals, header->tic, text, sizeof text);
             PUT_S(0x0018, 0x5026, text);
         }
     }
@@ -370,7 +502,7 @@ static mitilog_status sim_put_image(sim_writer *w, const sim_exam *exam,
         PUT_S(0x0018, 0x1063, text);
     }
     CHECK(sim_put_regions(w, c, probe, cols, rows));
-    return sim_put_pixels(w, c, cols, rows, colour ? 3 : 1);
+    return sim_put_pixels(w, c, cols, rows, colour ? 3 : 1, screen);
 }
 
 /* ------------------------------------------------------------------ */
@@ -402,11 +534,14 @@ static mitilog_status sim_put_sr(sim_writer *w, const sim_exam *exam,
                                  const char *sop_uid, char uids[][72])
 {
     const sim_exam_type *type = &sim_exam_types[exam->slot.exam_type];
+    const sim_device *device =
+        sim_device_of(exam->slot.room, exam->day_index, w->options->days,
+                      w->options->screens);
     double mi = 0, tis = 0, tib = 0, tic = 0;
     int any = 0;
     for (size_t i = 0; i < exam->capture_count; i++) {
         const sim_capture *c = &exam->captures[i];
-        if (!c->has_indices)
+        if (!c->has_indices || !device->header_indices)
             continue;
         any = 1;
         mi = c->mi > mi ? c->mi : mi;
@@ -417,10 +552,10 @@ static mitilog_status sim_put_sr(sim_writer *w, const sim_exam *exam,
     long first = exam->captures[0].second;
     long last = exam->captures[exam->capture_count - 1].second;
     char v_mi[32], v_tis[32], v_tib[32], v_tic[32], v_time[32], v_ga[32];
-    snprintf(v_mi, sizeof v_mi, "%.1f", mi);
-    snprintf(v_tis, sizeof v_tis, "%.1f", tis);
-    snprintf(v_tib, sizeof v_tib, "%.1f", tib);
-    snprintf(v_tic, sizeof v_tic, "%.1f", tic);
+    sim_format_index(exam->slot.decimals, mi, v_mi, sizeof v_mi);
+    sim_format_index(exam->slot.decimals, tis, v_tis, sizeof v_tis);
+    sim_format_index(exam->slot.decimals, tib, v_tib, sizeof v_tib);
+    sim_format_index(exam->slot.decimals, tic, v_tic, sizeof v_tic);
     snprintf(v_time, sizeof v_time, "%ld", last - first + 60);
 
     dcm_sr_build_item items[8];
@@ -521,11 +656,13 @@ static mitilog_status sim_mkdir(const char *path, mitilog_error *error)
     return MITILOG_OK;
 }
 
-static mitilog_status sim_save(sim_writer *w, const char *relative)
+static mitilog_status sim_save(sim_writer *w, const char *relative,
+                               const char *transfer_syntax)
 {
     char path[4096];
     snprintf(path, sizeof path, "%s/%s", w->options->out_directory, relative);
-    mitilog_status status = dcm_builder_save(w->builder, path, NULL, w->error);
+    mitilog_status status =
+        dcm_builder_save(w->builder, path, transfer_syntax, w->error);
     dcm_builder_free(w->builder);
     w->builder = NULL;
     if (status != MITILOG_OK)
@@ -560,16 +697,77 @@ void sim_run_free(sim_run *run)
     memset(run, 0, sizeof *run);
 }
 
-/* Manifest lines of one study, kept for a resend. */
+/* Manifest lines of one study, kept for a resend: the columns before
+ * planted, and those after it. */
 typedef struct sim_manifest_study {
     char lines[SIM_MAX_CAPTURES + 1][400];
+    char screens[SIM_MAX_CAPTURES + 1][400];
     size_t count;
 } sim_manifest_study;
+
+#define SYNTAX_EXPLICIT_LITTLE "1.2.840.10008.1.2.1"
+
+/* Whether capture i's header carries the capture before's indices: on a
+ * device with header_mismatch, in exams with no other planted problem,
+ * about one capture in eight whose indices differ from the one before
+ * (beyond rounding) gets the stale header. */
+static int sim_stale_header(const sim_writer *w, const sim_exam *exam,
+                            const sim_device *device, size_t i)
+{
+    if (!device->header_mismatch || exam->planted != 0 || i == 0)
+        return 0;
+    const sim_capture *c = &exam->captures[i], *before = c - 1;
+    if (!c->has_indices || !before->has_indices)
+        return 0;
+    uint64_t h = sim_mix(w->options->seed, 0x7374616c65ULL,
+                         (uint64_t)(exam->day_index * 1000
+                                    + exam->exam_number),
+                         i, 0);
+    if (h % 8 != 0)
+        return 0;
+    return fabs(c->mi - before->mi) >= 0.05
+           || fabs(c->tis - before->tis) >= 0.05
+           || fabs(c->tib - before->tib) >= 0.05
+           || fabs(c->tic - before->tic) >= 0.05;
+}
+
+/* The manifest columns after planted: device, software, matrix, transfer
+ * syntax, whether the header carries indices, then text and ink box
+ * ("x y width height") of each index drawn. */
+static int sim_screen_columns(char *buffer, size_t size,
+                              const sim_device *device, unsigned cols,
+                              unsigned rows, const char *syntax,
+                              int header_indices,
+                              const sim_drawn_index drawn[SIM_INDEX_COUNT])
+{
+    int used = snprintf(buffer, size, "%s,%s,%ux%u,%s,%d", device->key,
+                        device->software_versions, cols, rows, syntax,
+                        header_indices);
+    for (int i = 0; i < SIM_INDEX_COUNT && used >= 0 && (size_t)used < size;
+         i++) {
+        const sim_drawn_index *d = &drawn[i];
+        int more = d->text[0] != '\0'
+                       ? snprintf(buffer + used, size - (size_t)used,
+                                  ",%s,%d %d %d %d", d->text, d->x, d->y,
+                                  d->width, d->height)
+                       : snprintf(buffer + used, size - (size_t)used, ",,");
+        if (more < 0)
+            return -1;
+        used += more;
+    }
+    return used;
+}
 
 static mitilog_status sim_write_exam(sim_writer *w, const sim_exam *exam,
                                      sim_manifest_study *kept)
 {
     const sim_exam_type *type = &sim_exam_types[exam->slot.exam_type];
+    const sim_device *device =
+        sim_device_of(exam->slot.room, exam->day_index, w->options->days,
+                      w->options->screens);
+    const char *image_syntax = w->options->compress
+                                   ? device->compressed_syntax
+                                   : NULL;
     uint64_t key = (uint64_t)(exam->day_index * 1000 + exam->exam_number);
     char study_uid[72], series_uid[72], sr_series_uid[72], sr_uid[72];
     char uids[SIM_MAX_CAPTURES][72];
@@ -593,39 +791,73 @@ static mitilog_status sim_write_exam(sim_writer *w, const sim_exam *exam,
              study_dir);
     CHECK(sim_mkdir(path, w->error));
 
-    char tags[128], station[17];
-    sim_planted_tags(exam->planted & ~(unsigned)SIM_PLANTED_RESEND, tags,
-                     sizeof tags);
+    char file_tags[160], station[17];
     kept->count = 0;
     size_t files = exam->capture_count + (type->has_sr ? 1 : 0);
     for (size_t i = 0; i < files; i++) {
         int is_sr = i == exam->capture_count;
         const char *sop = is_sr ? sr_uid : uids[i];
-        if (!is_sr)
+        sim_drawn_index drawn[SIM_INDEX_COUNT];
+        memset(drawn, 0, sizeof drawn);
+        const sim_capture *header = NULL;
+        int stale = 0;
+        if (!is_sr) {
             sim_uid(w->options->seed, UID_INSTANCE, key, i + 1, uids[i],
                     sizeof uids[i]);
+            CHECK(sim_render_screen(w, exam, i, device, drawn));
+            stale = sim_stale_header(w, exam, device, i);
+            if (device->header_indices)
+                header = &exam->captures[stale ? i - 1 : i];
+        }
         CHECK(dcm_builder_create(&w->builder, w->error));
         mitilog_status status =
             is_sr ? sim_put_sr(w, exam, study_uid, sr_series_uid, sr_uid, uids)
-                  : sim_put_image(w, exam, i, study_uid, series_uid, uids[i]);
+                  : sim_put_image(w, exam, i, study_uid, series_uid, uids[i],
+                                  header);
         if (status != MITILOG_OK) {
             dcm_builder_free(w->builder);
             w->builder = NULL;
             return status;
         }
+        const char *syntax = is_sr ? NULL : image_syntax;
         snprintf(relative, sizeof relative, "%s/%03zu.dcm", study_dir, i + 1);
-        CHECK(sim_save(w, relative));
-        int written = snprintf(kept->lines[kept->count++],
+        CHECK(sim_save(w, relative, syntax));
+        int written = snprintf(kept->lines[kept->count],
                                sizeof kept->lines[0], "%s,%s,%s,%s,%s,%s",
                                relative, sop, study_uid, type->key,
                                type->preset,
                                sim_site_name(sim_rooms[exam->slot.room].station_name,
                                              w->options->site, station));
-        if (written < 0 || (size_t)written >= sizeof kept->lines[0])
+        int screen_columns = 0;
+        if (is_sr)
+            screen_columns = snprintf(kept->screens[kept->count],
+                                      sizeof kept->screens[0],
+                                      "%s,%s,,%s,%d,,,,,,,,", device->key,
+                                      device->software_versions,
+                                      SYNTAX_EXPLICIT_LITTLE,
+                                      device->header_indices);
+        else
+            screen_columns = sim_screen_columns(
+                kept->screens[kept->count], sizeof kept->screens[0], device,
+                device->screen.rows != NULL ? device->columns
+                : exam->captures[i].frames > 1 ? CINE_COLUMNS : SINGLE_COLUMNS,
+                device->screen.rows != NULL ? device->rows
+                : exam->captures[i].frames > 1 ? CINE_ROWS : SINGLE_ROWS,
+                syntax != NULL ? syntax : SYNTAX_EXPLICIT_LITTLE,
+                header != NULL && header->has_indices, drawn);
+        if (written < 0 || (size_t)written >= sizeof kept->lines[0]
+            || screen_columns < 0
+            || (size_t)screen_columns >= sizeof kept->screens[0])
             return mitilog_error_set(w->error, MITILOG_ERROR_INVALID,
                                      "manifest line too long for %s",
                                      relative);
-        fprintf(w->manifest, "%s,%s\n", kept->lines[kept->count - 1], tags);
+        sim_planted_tags((exam->planted & ~(unsigned)SIM_PLANTED_RESEND)
+                             | (stale ? (unsigned)SIM_PLANTED_HEADER_MISMATCH
+                                      : 0u),
+                         file_tags, sizeof file_tags);
+        fprintf(w->manifest, "%s,%s,%s\n", kept->lines[kept->count],
+                file_tags, kept->screens[kept->count]);
+        kept->count++;
     }
 
     sim_study_record rec;
@@ -636,6 +868,7 @@ static mitilog_status sim_write_exam(sim_writer *w, const sim_exam *exam,
     rec.room = exam->slot.room;
     snprintf(rec.directory, sizeof rec.directory, "%s", study_dir);
     rec.file_count = files;
+    rec.compressed_syntax = image_syntax;
     return sim_run_add(w->run, &rec, w->error);
 }
 
@@ -646,7 +879,8 @@ static mitilog_status sim_flush_resend(sim_writer *w, sim_manifest_study *kept,
                                        sim_study_record *pending)
 {
     for (size_t i = 0; i < kept->count; i++)
-        fprintf(w->manifest, "%s,resend\n", kept->lines[i]);
+        fprintf(w->manifest, "%s,resend,%s\n", kept->lines[i],
+                kept->screens[i]);
     pending->is_resend = 1;
     mitilog_status status = sim_run_add(w->run, pending, w->error);
     pending->file_count = 0;
@@ -674,7 +908,17 @@ mitilog_status sim_write_all(const sim_options *options, sim_run *run,
         return mitilog_error_set(error, MITILOG_ERROR_IO, "open %s: %s", path,
                                  strerror(errno));
     fprintf(w.manifest, "path,sop_instance_uid,study_instance_uid,exam_type,"
-                        "preset,room,planted\n");
+                        "preset,room,planted,device,software_versions,"
+                        "matrix,transfer_syntax,header_indices,mi_text,"
+                        "mi_box,tis_text,tis_box,tib_text,tib_box,tic_text,"
+                        "tic_box\n");
+    if (options->screens) {
+        status = sim_screen_open(&w.screen, error);
+        if (status != MITILOG_OK) {
+            fclose(w.manifest);
+            return status;
+        }
+    }
 
     sim_day *day = malloc(sizeof *day);
     sim_exam *exam = malloc(sizeof *exam);
@@ -692,6 +936,10 @@ mitilog_status sim_write_all(const sim_options *options, sim_run *run,
         sim_day_schedule(options->seed, d, sim_date_weekday(date), day);
         sim_planted_mark(day, options->days);
         for (size_t i = 0; i < day->count; i++) {
+            day->slots[i].decimals =
+                sim_device_of(day->slots[i].room, d, options->days,
+                              options->screens)
+                    ->screen.decimals;
             sim_exam_build(d, (int)i + 1, &day->slots[i], exam);
             status = sim_write_exam(&w, exam, current);
             if (status != MITILOG_OK)
@@ -714,6 +962,8 @@ mitilog_status sim_write_all(const sim_options *options, sim_run *run,
         status = sim_flush_resend(&w, kept, &pending);
 
 cleanup:
+    sim_overlay_free(&w.overlay);
+    sim_screen_close(w.screen);
     free(day);
     free(exam);
     free(current);

@@ -194,7 +194,10 @@ def test_manifest_records_planted_problems(week):
         header = f.readline().strip().split(",")
         rows = [dict(zip(header, line.rstrip("\n").split(","))) for line in f]
     assert header == ["path", "sop_instance_uid", "study_instance_uid", "exam_type",
-                      "preset", "room", "planted"]
+                      "preset", "room", "planted", "device", "software_versions",
+                      "matrix", "transfer_syntax", "header_indices",
+                      "mi_text", "mi_box", "tis_text", "tis_box",
+                      "tib_text", "tib_box", "tic_text", "tic_box"]
     tags = collections.Counter(t for r in rows for t in r["planted"].split(";") if t)
     assert tags["mi-over-limit"] > 0          # day 5 (index 4) is in week 1
     assert tags["resend"] > 0
@@ -215,16 +218,52 @@ def sample_of_each_kind(directory):
     return kinds
 
 
+def dciodvfy_sample(directory):
+    """One file of every kind (SOP class, photometric interpretation, mode
+    bitmap) and one of every kind for each exam type, room and device
+    (software version included), chosen through the manifest."""
+    with open(os.path.join(str(directory), "manifest.csv")) as f:
+        rows = list(csv.DictReader(f))
+    chosen = {}
+    for key, path in sample_of_each_kind(directory).items():
+        chosen[path] = key
+    by_type = {}
+    for row in rows:
+        path = os.path.join(str(directory), row["path"])
+        ds = pydicom.dcmread(path, stop_before_pixels=True)
+        key = (ds.SOPClassUID, row["exam_type"], row["room"], row["device"])
+        by_type.setdefault(key, path)
+    for key, path in by_type.items():
+        chosen.setdefault(path, key)
+    return chosen, {row["exam_type"] for row in rows}, {row["room"] for row in rows}
+
+
+def dciodvfy_errors(path):
+    run = subprocess.run(["dciodvfy", path], capture_output=True, text=True)
+    return [l for l in (run.stdout + run.stderr).splitlines() if l.startswith("Error")]
+
+
 def test_dciodvfy_reports_no_errors(week):
+    """Reference: dicom3tools' dciodvfy checks each file against its IOD
+    (PS3.3); every kind, every exam type, every room's device. Paired
+    organs (kidney, testis, shoulder, leg) need Laterality (0020,0060),
+    Type 2C in General Series (PS3.3 C.7.3.1)."""
     if shutil.which("dciodvfy") is None:
         pytest.skip("dciodvfy not installed")
-    kinds = sample_of_each_kind(week)
-    classes = {k[0] for k in kinds}
+    sample, exam_types, rooms = dciodvfy_sample(week)
+    classes = {key[0] for key in sample.values()}
     assert {US_IMAGE, US_MULTIFRAME, COMPREHENSIVE_SR} <= classes
-    for key, path in kinds.items():
-        run = subprocess.run(["dciodvfy", path], capture_output=True, text=True)
-        errors = [l for l in (run.stdout + run.stderr).splitlines() if l.startswith("Error")]
-        assert errors == [], (key, path, errors)
+    assert {key[1] for key in sample.values() if len(key) == 4} == exam_types
+    assert len(exam_types) == 16 and len(rooms) == 5
+    for path, key in sorted(sample.items()):
+        assert dciodvfy_errors(path) == [], (key, path)
+    paired = [p for p, key in sample.items()
+              if key[1] in ("renal", "small_parts", "msk", "venous_leg")]
+    assert paired
+    for path in paired:
+        ds = pydicom.dcmread(path, stop_before_pixels=True)
+        if ds.Modality == "US":
+            assert ds.Laterality in ("R", "L"), path
 
 
 def test_pydicom_reads_every_kind(week):
@@ -267,7 +306,7 @@ def test_send_to_storescp(tmp_path):
         port = s.getsockname()[1]
     received = tmp_path / "received"
     received.mkdir()
-    env = dict(os.environ, TCP_NODELAY="1")   # see shared dcmtk-notes: Nagle
+    env = dict(os.environ, TCP_NODELAY="1")   # bench/README.md: Nagle
     scp = subprocess.Popen(["storescp", "-od", str(received), "-uf", "--accept-all", str(port)], env=env,
                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     try:
@@ -327,3 +366,261 @@ def test_demo_doc_counts_are_the_demos_own(tmp_path):
             for planted in filter(None, row["planted"].split(";")):
                 studies[planted].add(row["study_instance_uid"])
     assert {tag: len(studies[tag]) for tag in claims} == claims
+# ---------------------------------------------------------------------------
+# --screens: scanners that burn the indices into the pixels
+# ---------------------------------------------------------------------------
+
+SYNTAX_NATIVE = "1.2.840.10008.1.2.1"
+SYNTAX_JPEG_BASELINE = "1.2.840.10008.1.2.4.50"
+SYNTAX_JPEG_LS = "1.2.840.10008.1.2.4.80"
+SYNTAX_RLE = "1.2.840.10008.1.2.5"
+# DCMTK's decompressors, one per compressed syntax (the reference decoder
+# for files pydicom 2.3 cannot decode without plugins).
+DECOMPRESSORS = {SYNTAX_JPEG_BASELINE: "dcmdjpeg", SYNTAX_JPEG_LS: "dcmdjpls",
+                 SYNTAX_RLE: "dcmdrle"}
+INDEX_ATTRIBUTES = {"mi": "MechanicalIndex", "tis": "SoftTissueThermalIndex",
+                    "tib": "BoneThermalIndex", "tic": "CranialThermalIndex"}
+PIXELS_ONLY = "northmere-nm3"
+
+
+def simulate_screens(out, days, seed, *extra):
+    if not os.access(BINARY, os.X_OK):
+        pytest.skip("no mitilog binary at %s (set MITILOG_BINARY)" % BINARY)
+    subprocess.run([BINARY, "simulate", "--out", str(out), "--days", str(days),
+                    "--seed", str(seed), "--screens"] + list(extra),
+                   check=True, capture_output=True)
+    with open(os.path.join(str(out), "manifest.csv"), newline="") as f:
+        return list(csv.DictReader(f))
+
+
+@pytest.fixture(scope="module")
+def screens(tmp_path_factory):
+    out = tmp_path_factory.mktemp("screens")
+    return out, simulate_screens(out, 2, 4)
+
+
+@pytest.fixture(scope="module")
+def screens_compressed(tmp_path_factory):
+    """The first day of `screens`, compressed (a 1-day run: US-ROOM-1 keeps
+    its first software)."""
+    out = tmp_path_factory.mktemp("screens-compressed")
+    return out, simulate_screens(out, 1, 4, "--compress")
+
+
+def image_rows(rows):
+    return [r for r in rows if r["matrix"]]
+
+
+def per_device_sample(rows, count=6):
+    """The first images of each device (both software versions), plus
+    every row of a planted header mismatch."""
+    sample, seen = [], collections.Counter()
+    for row in image_rows(rows):
+        key = (row["device"], row["software_versions"])
+        if seen[key] < count or "header-mismatch" in row["planted"]:
+            sample.append(row)
+            seen[key] += 1
+    return sample
+
+
+def value_of(text):
+    """The number at the end of a drawn index text ("TIb0.8" -> "0.8")."""
+    digits = text.rstrip()
+    start = len(digits)
+    while start > 0 and (digits[start - 1].isdigit() or digits[start - 1] == "."):
+        start -= 1
+    return digits[start:]
+
+
+def box_of(row, index):
+    x, y, w, h = (int(v) for v in row[index + "_box"].split())
+    return x, y, w, h
+
+
+def frames_of(ds):
+    pixels = ds.pixel_array
+    if int(ds.get("NumberOfFrames", 1) or 1) == 1:
+        pixels = pixels[None, ...]
+    if pixels.ndim == 3:
+        pixels = pixels[..., None]
+    return pixels   # frames x rows x columns x samples
+
+
+def test_screens_draw_text_where_the_manifest_says(screens):
+    """Every index the manifest says was drawn has ink inside its box on
+    every frame (the same ink on each), and its box is inside the frame
+    (reference: pydicom's decoding of the native pixel data, numpy)."""
+    import numpy
+    out, rows = screens
+    checked = collections.Counter()
+    for row in per_device_sample(rows):
+        ds = pydicom.dcmread(os.path.join(str(out), row["path"]))
+        frames = frames_of(ds)
+        assert "%dx%d" % (ds.Columns, ds.Rows) == row["matrix"]
+        for index in INDEX_ATTRIBUTES:
+            if not row[index + "_text"]:
+                continue
+            x, y, w, h = box_of(row, index)
+            assert 0 <= x and 0 <= y and x + w <= ds.Columns and y + h <= ds.Rows
+            region = frames[:, y:y + h, x:x + w, :].astype(numpy.int16)
+            assert region[0].max() >= 100, (row["path"], index)   # bright ink
+            assert (region[0] == 0).any()                         # on black
+            assert (region == region[0]).all(), "text differs between frames"
+            # the box is tight: every edge row and column holds ink
+            ink = region[0].max(axis=2) > 0
+            assert ink[0, :].any() and ink[-1, :].any()
+            assert ink[:, 0].any() and ink[:, -1].any()
+            checked[row["device"]] += 1
+    assert set(checked) == {"ambervale-av40-4.0.2", "ambervale-av40-4.1.0",
+                            "northmere-nm7", "ambervale-av62", PIXELS_ONLY,
+                            "mitilog-sim-us-5"}
+
+
+def test_headers_hold_the_drawn_values(screens):
+    """The header's MI/TIS/TIB/TIC (pydicom) equal the values drawn, to
+    the device's decimals; the pixels-only scanner writes none; the planted
+    stale header differs from its screen and equals the capture before."""
+    out, rows = screens
+    mismatches = 0
+    for row in per_device_sample(rows):
+        ds = pydicom.dcmread(os.path.join(str(out), row["path"]),
+                             stop_before_pixels=True)
+        drawn = {i: value_of(row[i + "_text"]) for i in INDEX_ATTRIBUTES
+                 if row[i + "_text"]}
+        header = {i: str(ds.data_element(a).value) for i, a in INDEX_ATTRIBUTES.items()
+                  if a in ds}
+        if row["device"] == PIXELS_ONLY:
+            assert row["header_indices"] == "0" and header == {}
+            assert drawn, "a pixels-only scanner still draws its indices"
+            continue
+        assert row["header_indices"] == "1"
+        assert set(header) == set(drawn), row["path"]
+        decimals = 2 if row["device"] == "northmere-nm7" else 1
+        for value in list(drawn.values()) + list(header.values()):
+            assert len(value.split(".")[1]) == decimals, (row["path"], value)
+        if "header-mismatch" in row["planted"]:
+            mismatches += 1
+            assert header != drawn
+            before = rows[rows.index(row) - 1]
+            assert before["study_instance_uid"] == row["study_instance_uid"]
+            assert header == {i: value_of(before[i + "_text"]) for i in drawn}
+        else:
+            assert header == drawn, row["path"]
+    assert mismatches > 0, "the planted stale header is missing"
+    tagged = {r["device"] for r in rows if "header-mismatch" in r["planted"]}
+    assert tagged == {"northmere-nm7"}
+
+
+def test_screen_designs_vary(screens):
+    """Label variants, one- and two-decimal scanners, and each device one
+    identity (Manufacturer, Model Name, Software Versions, Rows x Columns);
+    US-ROOM-1's software changes in the middle of the run and its index
+    text moves."""
+    out, rows = screens
+    texts = [r[i + "_text"] for r in image_rows(rows) for i in INDEX_ATTRIBUTES
+             if r[i + "_text"]]
+    for prefix in ("MI ", "MI:", "TIs ", "TIS:", "TIS ", "TIC ", "TIb0.", "TIb1."):
+        assert any(t.startswith(prefix) for t in texts if t[len(prefix):][:1] != " "), prefix
+    identities = collections.defaultdict(set)
+    for row in image_rows(rows)[::7]:
+        ds = pydicom.dcmread(os.path.join(str(out), row["path"]), stop_before_pixels=True)
+        identities[row["device"]].add((ds.Manufacturer, ds.ManufacturerModelName,
+                                       ds.SoftwareVersions, ds.Rows, ds.Columns,
+                                       ds.StationName))
+    for device, seen in identities.items():
+        assert len(seen) == 1, (device, seen)
+    room1 = {r["software_versions"]: r for r in image_rows(rows) if r["room"] == "US-ROOM-1"}
+    assert set(room1) == {"4.0.2", "4.1.0"}
+    assert room1["4.0.2"]["path"] < room1["4.1.0"]["path"]   # day 1, then day 2
+    assert box_of(room1["4.0.2"], "mi")[1] < 72 < box_of(room1["4.1.0"], "mi")[1]
+    assert [r["room"] for r in image_rows(rows) if r["device"] == PIXELS_ONLY][0] == "US-ROOM-4"
+
+
+def test_screens_are_deterministic(screens_compressed, tmp_path):
+    """The same seed gives byte-identical files with --screens --compress
+    (FreeType rendering and DCMTK's encoders included: DCMTK 3.6.7's
+    JPEG-LS encoder left its pad byte unwritten, which this caught)."""
+    out, _ = screens_compressed
+    simulate_screens(tmp_path / "again", 1, 4, "--compress")
+    a, b = digests(out), digests(tmp_path / "again")
+    assert len(a) > 100 and a == b
+
+
+def decompressed(path, syntax, tmp_path):
+    """pydicom dataset of a file, decompressed first with DCMTK's own tool
+    when pydicom has no decoder for its syntax."""
+    if syntax == SYNTAX_NATIVE:
+        return pydicom.dcmread(path)
+    tool = DECOMPRESSORS[syntax]
+    if shutil.which(tool) is None:
+        pytest.skip("%s not installed" % tool)
+    target = os.path.join(str(tmp_path), os.path.basename(os.path.dirname(path))
+                          + "-" + os.path.basename(path))
+    subprocess.run([tool, path, target], check=True, capture_output=True)
+    return pydicom.dcmread(target)
+
+
+def test_compressed_files_keep_pixels_and_pass_dciodvfy(screens, screens_compressed, tmp_path):
+    """--compress: each scanner's images in its own syntax; decoded with
+    DCMTK's dcmdjpls/dcmdrle/dcmdjpeg they equal the uncompressed run's
+    pixels exactly (lossless) or closely (JPEG baseline, quality 90), and
+    the drawn text is still there; dciodvfy reports no error on any kind,
+    exam type or device; the SOP Instance UIDs are those of the
+    uncompressed run."""
+    import numpy
+    plain_out, plain_rows = screens
+    out, rows = screens_compressed
+    plain = {r["path"]: r for r in plain_rows}
+    assert {r["path"] for r in rows} < set(plain)   # the first of two days
+    syntaxes = collections.defaultdict(set)
+    for row in rows:
+        syntaxes[row["device"]].add(row["transfer_syntax"])
+    assert syntaxes["northmere-nm7"] == {SYNTAX_JPEG_BASELINE}
+    assert syntaxes[PIXELS_ONLY] == {SYNTAX_RLE}
+    assert SYNTAX_JPEG_LS in syntaxes["mitilog-sim-us-5"]
+    for row in per_device_sample(rows, 2):
+        other = plain[row["path"]]
+        if "resend" in row["planted"] + other["planted"]:
+            continue   # the resend falls on the last day of each run
+        assert row["sop_instance_uid"] == other["sop_instance_uid"]
+        assert row["mi_text"] == other["mi_text"] and row["mi_box"] == other["mi_box"]
+        ds = pydicom.dcmread(os.path.join(str(out), row["path"]), stop_before_pixels=True)
+        assert ds.file_meta.TransferSyntaxUID == row["transfer_syntax"]
+        a = frames_of(decompressed(os.path.join(str(out), row["path"]),
+                                   row["transfer_syntax"], tmp_path)).astype(numpy.int16)
+        b = frames_of(pydicom.dcmread(os.path.join(str(plain_out), row["path"]))).astype(numpy.int16)
+        if row["transfer_syntax"] == SYNTAX_JPEG_BASELINE:
+            assert a.shape == b.shape   # dcmdjpeg converts YBR back to RGB
+            assert numpy.abs(a - b).mean() < 4.0
+            x, y, w, h = box_of(row, "mi")
+            assert a[0, y:y + h, x:x + w].max() >= 100
+        else:
+            assert (a == b).all(), row["path"]
+    if shutil.which("dciodvfy") is None:
+        pytest.skip("dciodvfy not installed")
+    sample, exam_types, rooms = dciodvfy_sample(out)
+    assert len(rooms) == 5
+    for path, key in sorted(sample.items()):
+        assert dciodvfy_errors(path) == [], (key, path)
+
+
+def test_screens_dciodvfy_native(screens):
+    """dciodvfy (dicom3tools) on every kind, exam type and device of the
+    uncompressed screen run: no error."""
+    if shutil.which("dciodvfy") is None:
+        pytest.skip("dciodvfy not installed")
+    out, _ = screens
+    sample, _, rooms = dciodvfy_sample(out)
+    assert len(rooms) == 5
+    for path, key in sorted(sample.items()):
+        assert dciodvfy_errors(path) == [], (key, path)
+
+
+def test_screens_options_refused(tmp_path):
+    if not os.access(BINARY, os.X_OK):
+        pytest.skip("no mitilog binary")
+    for args in (["--screens", "--matrix", "640x480"], ["--compress"]):
+        run = subprocess.run([BINARY, "simulate", "--out", str(tmp_path / "x")] + args,
+                             capture_output=True, text=True)
+        assert run.returncode == 2, args
+        assert "--" in run.stderr

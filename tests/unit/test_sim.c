@@ -6,8 +6,11 @@
 #include <stdarg.h>
 #include <stddef.h>
 #include <stdint.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+
+#include <math.h>
 
 #include <cmocka.h>
 
@@ -215,6 +218,176 @@ static void test_uid_form(void **state)
         assert_true(*p >= '0' && *p <= '9');
 }
 
+
+/* Without --screens every room has the one header-only scanner; with it
+ * each room its own, US-ROOM-1's software changing in the middle of the
+ * run with the same identity otherwise, one pixels-only scanner, one
+ * with a stale header, one showing two decimals (docs/demo.md,
+ * "Screens"; common practice, no source). */
+static void test_devices(void **state)
+{
+    (void)state;
+    for (int room = 0; room < SIM_ROOM_COUNT; room++)
+        assert_string_equal(sim_device_of(room, 0, 28, 0)->key, "sim-us-1");
+    assert_int_equal(sim_software_update_day(28), 14);
+    assert_int_equal(sim_software_update_day(2), 1);
+    assert_int_equal(sim_software_update_day(1), 1);   /* never */
+    const sim_device *before = sim_device_of(0, 13, 28, 1);
+    const sim_device *after = sim_device_of(0, 14, 28, 1);
+    assert_string_not_equal(before->software_versions,
+                            after->software_versions);
+    assert_string_equal(before->manufacturer, after->manufacturer);
+    assert_string_equal(before->model_name, after->model_name);
+    assert_int_equal(before->columns, after->columns);
+    assert_int_equal(before->rows, after->rows);
+    assert_int_not_equal(before->screen.anchor_bottom,
+                         after->screen.anchor_bottom);
+    int pixels_only = 0, stale = 0, two_decimals = 0;
+    for (int room = 0; room < SIM_ROOM_COUNT; room++) {
+        const sim_device *device = sim_device_of(room, 0, 28, 1);
+        assert_non_null(device->screen.rows);
+        assert_true(device->screen.font_pixels >= 10
+                    && device->screen.font_pixels <= 18);
+        pixels_only += !device->header_indices;
+        stale += device->header_mismatch;
+        two_decimals += device->screen.decimals == 2;
+        for (int other = 0; other < room; other++)
+            assert_string_not_equal(sim_device_of(other, 0, 28, 1)->key,
+                                    device->key);
+    }
+    assert_int_equal(pixels_only, 1);
+    assert_int_equal(stale, 1);
+    assert_int_equal(two_decimals, 1);
+}
+
+/* The displayed value is the model's value rounded to the device's
+ * decimals: tenths for one, hundredths for two (common practice, no
+ * source). */
+static void test_exam_decimals(void **state)
+{
+    (void)state;
+    sim_day *day = malloc(sizeof *day);
+    sim_exam *exam = malloc(sizeof *exam);
+    assert_non_null(day);
+    assert_non_null(exam);
+    sim_day_schedule(3, 0, 0, day);
+    int hundredths = 0;
+    for (int decimals = 1; decimals <= 2; decimals++)
+        for (size_t i = 0; i < day->count; i++) {
+            day->slots[i].decimals = decimals;
+            sim_exam_build(0, (int)i + 1, &day->slots[i], exam);
+            for (size_t c = 0; c < exam->capture_count; c++) {
+                double scaled = exam->captures[c].mi
+                                * (decimals == 2 ? 100.0 : 10.0);
+                assert_true(fabs(scaled - round(scaled)) < 1e-6);
+                if (decimals == 2)
+                    hundredths += fabs(exam->captures[c].mi * 10.0
+                                       - round(exam->captures[c].mi * 10.0))
+                                  > 1e-6;
+            }
+        }
+    assert_true(hundredths > 100);   /* two-decimal values really occur */
+    free(day);
+    free(exam);
+}
+
+static size_t ink_inside(const sim_overlay *overlay, const sim_drawn_index *d)
+{
+    size_t ink = 0;
+    for (int y = d->y; y < d->y + d->height; y++)
+        for (int x = d->x; x < d->x + d->width; x++)
+            ink += overlay->alpha[(size_t)y * overlay->columns + (size_t)x]
+                   > 0;
+    return ink;
+}
+
+/* Each screen design draws each index as label + value inside the frame,
+ * with ink in its box, and draws other text besides; a design that does
+ * not fit its matrix and a missing font are errors, not crashes (common
+ * practice, no source). */
+static void test_screen_render(void **state)
+{
+    (void)state;
+    sim_screen *screen = NULL;
+    mitilog_error error = {{0}};
+    assert_int_equal(sim_screen_open(&screen, &error), MITILOG_OK);
+    sim_overlay overlay;
+    memset(&overlay, 0, sizeof overlay);
+    sim_screen_text text;
+    memset(&text, 0, sizeof text);
+    text.show[SIM_INDEX_MI] = text.show[SIM_INDEX_TIS] = 1;
+    text.show[SIM_INDEX_TIB] = 1;
+    text.values[SIM_INDEX_MI] = 1.23;
+    text.values[SIM_INDEX_TIS] = 0.4;
+    text.values[SIM_INDEX_TIB] = 2.71;
+    text.year = 2026;
+    text.month = 11;
+    text.day = 2;
+    text.hour = 9;
+    text.frequency_mhz = 3.5;
+    text.gain = 52;
+    text.depth_cm = 14;
+    text.frame_rate = 28;
+    for (int day = 0; day <= 14; day += 14)
+        for (int room = 0; room < SIM_ROOM_COUNT; room++) {
+            const sim_device *device = sim_device_of(room, day, 28, 1);
+            sim_drawn_index drawn[SIM_INDEX_COUNT];
+            assert_int_equal(sim_screen_render(screen, device, &text,
+                                               &overlay, drawn, &error),
+                             MITILOG_OK);
+            size_t total = 0, in_boxes = 0;
+            for (size_t i = 0; i < (size_t)device->columns * device->rows;
+                 i++)
+                total += overlay.alpha[i] > 0;
+            for (int index = 0; index < SIM_INDEX_COUNT; index++) {
+                const sim_drawn_index *d = &drawn[index];
+                if (index == SIM_INDEX_TIC) {
+                    assert_string_equal(d->text, "");
+                    continue;
+                }
+                char value[16], expected[48];
+                sim_screen_format_value(&device->screen, text.values[index],
+                                        value, sizeof value);
+                snprintf(expected, sizeof expected, "%s%s",
+                         device->screen.labels[index], value);
+                assert_string_equal(d->text, expected);
+                assert_true(d->x >= 0 && d->y >= 0 && d->width > 0
+                            && d->height >= 6);
+                assert_true(d->x + d->width <= (int)device->columns);
+                assert_true(d->y + d->height <= (int)device->rows);
+                size_t ink = ink_inside(&overlay, d);
+                assert_true(ink > 10);
+                in_boxes += ink;
+            }
+            assert_true(total > in_boxes);   /* other text besides */
+        }
+    /* 2 decimals: "MI:1.23"; 1 decimal rounds the same value to "1.2" */
+    char value[16];
+    sim_screen_format_value(&sim_device_of(1, 0, 28, 1)->screen, 1.23, value,
+                            sizeof value);
+    assert_string_equal(value, "1.23");
+    sim_screen_format_value(&sim_device_of(2, 0, 28, 1)->screen, 1.23, value,
+                            sizeof value);
+    assert_string_equal(value, "1.2");
+
+    sim_device small = *sim_device_of(2, 0, 28, 1);
+    small.columns = 40;
+    small.rows = 30;
+    sim_drawn_index drawn[SIM_INDEX_COUNT];
+    assert_int_equal(sim_screen_render(screen, &small, &text, &overlay,
+                                       drawn, &error),
+                     MITILOG_ERROR_INVALID);
+    assert_non_null(strstr(error.text, "does not fit"));
+    sim_device missing = *sim_device_of(3, 0, 28, 1);
+    missing.screen.font_file = "/nonexistent/font.ttf";
+    assert_int_equal(sim_screen_render(screen, &missing, &text, &overlay,
+                                       drawn, &error),
+                     MITILOG_ERROR_NOT_FOUND);
+    assert_non_null(strstr(error.text, missing.screen.font_package));
+    sim_overlay_free(&overlay);
+    sim_screen_close(screen);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -228,6 +401,9 @@ int main(void)
         cmocka_unit_test(test_exam_captures),
         cmocka_unit_test(test_planted_marks),
         cmocka_unit_test(test_uid_form),
+        cmocka_unit_test(test_devices),
+        cmocka_unit_test(test_exam_decimals),
+        cmocka_unit_test(test_screen_render),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
