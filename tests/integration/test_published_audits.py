@@ -19,6 +19,9 @@ Sources named beside each check:
   during pulsed-wave Doppler.
   The BMUS dwell tables: docs/domain.md section 4; the timeline rule:
   docs/domain.md section 5.
+
+Seed 1 over 28 days; AUDIT_SEED=2026 runs the same checks on the demo's
+seed (docs/demo.md gives the figures of both).
 """
 import collections
 import csv
@@ -33,7 +36,7 @@ ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__)
 BINARY = os.environ.get("MITILOG_BINARY", os.path.join(ROOT, "build", "mitilog"))
 
 DAYS = 28
-SEED = 1
+SEED = int(os.environ.get("AUDIT_SEED", "1"))
 
 # BMUS obstetric (and neonatal) table, docs/domain.md section 4: minutes
 # allowed at or above each TI; longer is a breach.
