@@ -49,7 +49,7 @@ enum { DAY = 1, YEAR = 365 };
 const sim_exam_type sim_exam_types[] = {
     {"ob_early", "US OBSTETRIC EARLY PREGNANCY", "OB Early", "PELVIS",
      "OBSTETRICAL", 3, SIM_INDICES_TIB, 0.9, 0.15,
-     {0.80, 0.12, 0.05, 0.03, 0.00, 0.00, 0.00}, 10, 20, 5, 14, 0.15,
+     {0.80, 0.12, 0.01, 0.005, 0.00, 0.00, 0.00}, 10, 20, 5, 14, 0.15,
      18 * YEAR, 45 * YEAR, 'F', 1, 6, 13,
      {0.0, 0.80, 0.35, 0.35, 0.0, 0.0, 0.0}, 0.0},
     {"ob2", "US OBSTETRIC 2ND TRIMESTER", "OB 2nd/3rd Tri", "ABDOMEN",

@@ -74,13 +74,15 @@ static void sim_round_indices(sim_capture *c, int decimals)
     c->tic = c->tic > 0.0 ? sim_round_to(c->tic, decimals) : 0.0;
 }
 
-/* The governing TI of a capture in the breach stretch: pulsed-wave
- * Doppler at 2.0-2.4 (after rounding), the other indices as the model's
- * index set relates them. */
+/* A capture in the breach stretch: pulsed-wave Doppler at governing TI
+ * 2.0, the other indices as the model's index set relates them. 2.0 is
+ * at the TI ceiling (at most 2.0 passes, docs/domain.md section 4) and at
+ * the obstetric dwell table's 4-minute row: a dwell breach, not a
+ * ceiling one, which stays the planted transcranial exam's. */
 static void sim_breach_indices(const sim_exam_type *type, sim_capture *c,
                                sim_rng *rng)
 {
-    double ti = 2.0 + 0.4 * sim_rng_uniform(rng);
+    double ti = 2.0;
     c->mode = SIM_MODE_PW;
     c->mi = type->mi_b * sim_mode_mi_factor(SIM_MODE_PW)
             * (1.0 + 0.06 * sim_rng_normal(rng));
