@@ -12,6 +12,7 @@
 #include "dicom/dcm.h"
 
 #include <new>
+#include <cstdlib>
 #include <exception>
 #include <mutex>
 #include <vector>
@@ -279,10 +280,20 @@ extern "C" mitilog_status dcm_builder_put_pixels(dcm_builder *builder,
 
 namespace {
 
+/* At exit: DCMTK frees the list entries of its codecs only on
+ * deregistration (a leak checker reports them otherwise). */
+void deregister_encoders()
+{
+    DJEncoderRegistration::cleanup();
+    DJLSEncoderRegistration::cleanup();
+    DcmRLEEncoderRegistration::cleanup();
+}
+
 /* DCMTK keeps its codecs in one process-wide list; the encoders are
- * registered once, on the first compressed save, and stay registered.
- * No new SOP Instance UID on lossy compression (EUC_never): the builder
- * never invents a UID, so the same calls still give the same file. */
+ * registered once, on the first compressed save, and stay registered
+ * until exit. No new SOP Instance UID on lossy compression (EUC_never):
+ * the builder never invents a UID, so the same calls still give the same
+ * file. */
 void register_encoders()
 {
     static std::once_flag once;
@@ -291,6 +302,7 @@ void register_encoders()
         DJLSEncoderRegistration::registerCodecs(
             0, 0, 0, 0, OFTrue, 0, OFTrue, EJLSUC_never);
         DcmRLEEncoderRegistration::registerCodecs(OFFalse);
+        std::atexit(deregister_encoders);
     });
 }
 

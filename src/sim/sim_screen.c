@@ -371,6 +371,15 @@ mitilog_status sim_screen_render(sim_screen *screen, const sim_device *device,
         int x = design->align_right
                     ? (int)device->columns - SIM_SCREEN_MARGIN - total
                     : SIM_SCREEN_MARGIN;
+        if (x < 0 || x + total > (int)device->columns || top < 0
+            || top + line > (int)device->rows)
+            return mitilog_error_set(
+                error, MITILOG_ERROR_INVALID,
+                "screens: row %zu of %s (%d px wide, %d px high) does not "
+                "fit its %ux%u frame: the design needs a larger matrix or "
+                "fewer items per row",
+                r + 1, device->key, total, line, device->columns,
+                device->rows);
         int row_box[4] = {(int)device->columns, (int)device->rows, -1, -1};
         for (size_t i = 0; i < count; i++) {
             int box[4] = {(int)device->columns, (int)device->rows, -1, -1};

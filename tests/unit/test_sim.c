@@ -11,9 +11,11 @@
 #include <string.h>
 
 #include <math.h>
+#include <unistd.h>
 
 #include <cmocka.h>
 
+#include "dicom/dcm.h"
 #include "sim/sim.h"
 
 /* splitmix64 seeded with 0: the first outputs of Vigna's reference
@@ -388,6 +390,108 @@ static void test_screen_render(void **state)
     sim_screen_close(screen);
 }
 
+static mitilog_status build_small_image(dcm_builder **builder,
+                                        mitilog_error *error)
+{
+    /* an 18 x 9 grey frame with a diagonal, small enough that the
+     * compressed streams are a few dozen bytes */
+    uint8_t pixels[18 * 9];
+    for (int i = 0; i < 18 * 9; i++)
+        pixels[i] = (uint8_t)((i % 18 == i / 18) ? 250 : (i * 7) % 60);
+    mitilog_status status = dcm_builder_create(builder, error);
+    if (status == MITILOG_OK)
+        status = dcm_builder_put_string(*builder, 0x0008, 0x0016,
+                                        "1.2.840.10008.5.1.4.1.1.6.1", error);
+    if (status == MITILOG_OK)
+        status = dcm_builder_put_string(*builder, 0x0008, 0x0018,
+                                        "2.25.42", error);
+    if (status == MITILOG_OK)
+        status = dcm_builder_put_unsigned(*builder, 0x0028, 0x0002, 1, error);
+    if (status == MITILOG_OK)
+        status = dcm_builder_put_string(*builder, 0x0028, 0x0004,
+                                        "MONOCHROME2", error);
+    if (status == MITILOG_OK)
+        status = dcm_builder_put_unsigned(*builder, 0x0028, 0x0010, 9, error);
+    if (status == MITILOG_OK)
+        status = dcm_builder_put_unsigned(*builder, 0x0028, 0x0011, 18,
+                                          error);
+    if (status == MITILOG_OK)
+        status = dcm_builder_put_unsigned(*builder, 0x0028, 0x0100, 8, error);
+    if (status == MITILOG_OK)
+        status = dcm_builder_put_unsigned(*builder, 0x0028, 0x0101, 8, error);
+    if (status == MITILOG_OK)
+        status = dcm_builder_put_unsigned(*builder, 0x0028, 0x0102, 7, error);
+    if (status == MITILOG_OK)
+        status = dcm_builder_put_unsigned(*builder, 0x0028, 0x0103, 0, error);
+    if (status == MITILOG_OK)
+        status = dcm_builder_put_pixels(*builder, pixels, sizeof pixels,
+                                        error);
+    return status;
+}
+
+static size_t read_whole(const char *path, uint8_t *buffer, size_t size)
+{
+    FILE *f = fopen(path, "rb");
+    if (f == NULL)
+        return 0;
+    size_t n = fread(buffer, 1, size, f);
+    fclose(f);
+    return n;
+}
+
+/* The builder compresses through DCMTK's encoders (JPEG baseline, JPEG-LS
+ * lossless, RLE lossless: PS3.5 section 10 and Annex A.4), the same calls
+ * give the same bytes twice (DCMTK 3.6.7's JPEG-LS pad byte included),
+ * and a syntax it has no encoder for is an error that says so. */
+static void test_compressed_save(void **state)
+{
+    (void)state;
+    mitilog_error error = {{0}};
+    assert_int_equal(dcm_initialise(3, &error), MITILOG_OK);
+    char directory[] = "/tmp/mitilog-test-sim-XXXXXX";
+    assert_non_null(mkdtemp(directory));
+    static const char *const syntaxes[] = {"1.2.840.10008.1.2.4.50",
+                                           "1.2.840.10008.1.2.4.80",
+                                           "1.2.840.10008.1.2.5"};
+    for (size_t i = 0; i < 3; i++) {
+        static uint8_t first[65536], second[65536];
+        size_t sizes[2] = {0, 0};
+        for (int round = 0; round < 2; round++) {
+            dcm_builder *builder = NULL;
+            if (build_small_image(&builder, &error) != MITILOG_OK)
+                fail_msg("%s", error.text);
+            char path[128];
+            snprintf(path, sizeof path, "%s/%zu-%d.dcm", directory, i, round);
+            assert_int_equal(dcm_builder_save(builder, path, syntaxes[i],
+                                              &error),
+                             MITILOG_OK);
+            dcm_builder_free(builder);
+            sizes[round] = read_whole(path, round ? second : first,
+                                      sizeof first);
+            unlink(path);
+        }
+        assert_true(sizes[0] > 132 && sizes[0] == sizes[1]);
+        assert_memory_equal(first, second, sizes[0]);
+        /* the transfer syntax UID is in the meta header */
+        int found = 0;
+        for (size_t at = 0; at + strlen(syntaxes[i]) < sizes[0]; at++)
+            found |= memcmp(first + at, syntaxes[i], strlen(syntaxes[i])) == 0;
+        assert_true(found);
+    }
+    dcm_builder *builder = NULL;
+    if (build_small_image(&builder, &error) != MITILOG_OK)
+        fail_msg("%s", error.text);
+    char path[128];
+    snprintf(path, sizeof path, "%s/j2k.dcm", directory);
+    assert_int_equal(dcm_builder_save(builder, path,
+                                      "1.2.840.10008.1.2.4.90", &error),
+                     MITILOG_ERROR_INVALID);
+    assert_non_null(strstr(error.text, "not supported"));
+    dcm_builder_free(builder);
+    unlink(path);
+    assert_int_equal(rmdir(directory), 0);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -404,6 +508,7 @@ int main(void)
         cmocka_unit_test(test_devices),
         cmocka_unit_test(test_exam_decimals),
         cmocka_unit_test(test_screen_render),
+        cmocka_unit_test(test_compressed_save),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
