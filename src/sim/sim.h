@@ -121,6 +121,15 @@ typedef struct sim_exam_type {
     char sex;                   /* 'F', 'M' or 0 = either */
     int has_sr;                 /* ends with an acoustic output SR */
     int gestation_low_weeks, gestation_high_weeks; /* 0 = not obstetric */
+    /* Median governing TI of each mode where it departs from ti_b x the
+     * mode's factor (0 = the factor applies): obstetric presets hold
+     * Doppler output down and M-mode for the fetal heart rate is their
+     * usual cause of TI above 0.7 (docs/demo.md, "Index model"). */
+    double ti_by_mode[SIM_MODE_COUNT];
+    /* Share of exams with one stretch of pulsed-wave Doppler at TI
+     * 2.0-2.4 lasting five minutes or more: the rare dwell breach of an
+     * otherwise compliant department (docs/demo.md). */
+    double pw_breach_share;
 } sim_exam_type;
 
 extern const sim_room sim_rooms[SIM_ROOM_COUNT];
@@ -140,7 +149,8 @@ const char *sim_site_name(const char *name, int site, char buffer[17]);
 unsigned sim_mode_bitmap(sim_mode mode);
 /* Short lower-case name of a mode ("b", "pw", ...). */
 const char *sim_mode_name(sim_mode mode);
-/* Median MI and TI factors of a mode relative to B-mode. */
+/* Median MI and TI factors of a mode relative to B-mode (an exam type's
+ * ti_by_mode, when set, takes precedence for TI). */
 double sim_mode_mi_factor(sim_mode mode);
 double sim_mode_ti_factor(sim_mode mode);
 

@@ -7,7 +7,12 @@
  * tests/integration/test_simulator.py): each preset has a median B-mode
  * MI and a median B-mode governing TI; a capture's median is that times the
  * factor of its mode, then multiplied by small noise (sd 6 %) and rounded
- * to one decimal as equipment displays it.
+ * to one decimal as equipment displays it. Obstetric presets set their
+ * own per-mode TI medians (ti_by_mode): B-mode and colour low, M-mode for
+ * the fetal heart rate around 0.8, pulsed-wave Doppler held at 0.6, and a
+ * small share of exams with one five-minute stretch of pulsed-wave
+ * Doppler at TI 2.0-2.4 (pw_breach_share), after the published audits
+ * docs/demo.md cites.
  *
  * Image Type value 3 uses PS3.3 C.8.5.6.1.1 defined terms as dciodvfy
  * knows them: there is no "CARDIAC", so transthoracic echo says "CHEST".
@@ -41,72 +46,89 @@ const size_t sim_probe_count = sizeof sim_probes / sizeof sim_probes[0];
 
 enum { DAY = 1, YEAR = 365 };
 
-/*                     B     M     COL   POW   PW    CW    3D          */
+/* mode_weights and ti_by_mode columns:
+ *                     B     M     COL   POW   PW    CW    3D          */
 const sim_exam_type sim_exam_types[] = {
     {"ob_early", "US OBSTETRIC EARLY PREGNANCY", "OB Early", "PELVIS",
      "OBSTETRICAL", 3, SIM_INDICES_TIB, 0.9, 0.15,
-     {0.80, 0.12, 0.05, 0.03, 0.00, 0.00, 0.00}, 10, 20, 5, 14, 0.15,
-     18 * YEAR, 45 * YEAR, 'F', 1, 6, 13},
+     {0.80, 0.12, 0.01, 0.005, 0.00, 0.00, 0.00}, 10, 20, 5, 14, 0.15,
+     18 * YEAR, 45 * YEAR, 'F', 1, 6, 13,
+     {0.0, 0.80, 0.35, 0.35, 0.0, 0.0, 0.0}, 0.0},
     {"ob2", "US OBSTETRIC 2ND TRIMESTER", "OB 2nd/3rd Tri", "ABDOMEN",
      "OBSTETRICAL", 0, SIM_INDICES_TIB, 1.0, 0.30,
-     {0.72, 0.04, 0.12, 0.00, 0.08, 0.00, 0.04}, 20, 40, 18, 40, 0.20,
-     18 * YEAR, 45 * YEAR, 'F', 1, 18, 24},
+     {0.71, 0.05, 0.12, 0.00, 0.08, 0.00, 0.04}, 20, 40, 18, 40, 0.20,
+     18 * YEAR, 45 * YEAR, 'F', 1, 18, 24,
+     {0.0, 0.80, 0.50, 0.0, 0.60, 0.0, 0.35}, 0.10},
     {"ob3", "US OBSTETRIC 3RD TRIMESTER", "OB 2nd/3rd Tri", "ABDOMEN",
      "OBSTETRICAL", 0, SIM_INDICES_TIB, 1.0, 0.30,
-     {0.60, 0.02, 0.13, 0.00, 0.25, 0.00, 0.00}, 15, 30, 10, 25, 0.25,
-     18 * YEAR, 45 * YEAR, 'F', 1, 28, 40},
+     {0.57, 0.05, 0.13, 0.00, 0.25, 0.00, 0.00}, 15, 30, 10, 25, 0.25,
+     18 * YEAR, 45 * YEAR, 'F', 1, 28, 40,
+     {0.0, 0.80, 0.50, 0.0, 0.60, 0.0, 0.0}, 0.15},
     {"gyn", "US PELVIS TRANSVAGINAL", "Gyn TV", "PELVIS", "GYNECOLOGY", 3,
      SIM_INDICES_TIS, 1.0, 0.20,
      {0.75, 0.00, 0.15, 0.05, 0.05, 0.00, 0.00}, 10, 25, 6, 18, 0.10,
-     18 * YEAR, 80 * YEAR, 'F', 0, 0, 0},
+     18 * YEAR, 80 * YEAR, 'F', 0, 0, 0,
+     {0}, 0.0},
     {"abdomen", "US ABDOMEN", "Abdomen General", "ABDOMEN", "ABDOMINAL", 0,
      SIM_INDICES_TIS, 1.2, 0.30,
      {0.78, 0.00, 0.14, 0.00, 0.08, 0.00, 0.00}, 10, 30, 8, 30, 0.12,
-     18 * YEAR, 90 * YEAR, 0, 0, 0, 0},
+     18 * YEAR, 90 * YEAR, 0, 0, 0, 0,
+     {0}, 0.0},
     {"renal", "US RENAL TRACT", "Renal", "KIDNEY", "ABDOMINAL", 0,
      SIM_INDICES_TIS, 1.15, 0.30,
      {0.75, 0.00, 0.12, 0.05, 0.08, 0.00, 0.00}, 10, 20, 6, 20, 0.10,
-     18 * YEAR, 90 * YEAR, 0, 0, 0, 0},
+     18 * YEAR, 90 * YEAR, 0, 0, 0, 0,
+     {0}, 0.0},
     {"paeds_abdomen", "US PAEDIATRIC ABDOMEN", "Paeds Abdomen", "ABDOMEN",
      "PEDIATRIC", 5, SIM_INDICES_TIS, 0.9, 0.20,
      {0.80, 0.00, 0.12, 0.00, 0.08, 0.00, 0.00}, 10, 25, 6, 20, 0.15,
-     1 * YEAR, 15 * YEAR, 0, 0, 0, 0},
+     1 * YEAR, 15 * YEAR, 0, 0, 0, 0,
+     {0}, 0.0},
     {"echo_adult", "ECHO ADULT TTE", "Echo Adult", "HEART", "CHEST", 2,
      SIM_INDICES_TIS, 1.3, 0.30,
      {0.35, 0.10, 0.25, 0.00, 0.18, 0.12, 0.00}, 20, 45, 20, 40, 0.55,
-     25 * YEAR, 90 * YEAR, 0, 1, 0, 0},
+     25 * YEAR, 90 * YEAR, 0, 1, 0, 0,
+     {0}, 0.0},
     {"echo_paeds", "ECHO PAEDIATRIC TTE", "Echo Paeds", "HEART", "CHEST",
      6, SIM_INDICES_TIS, 1.1, 0.25,
      {0.35, 0.10, 0.25, 0.00, 0.18, 0.12, 0.00}, 20, 45, 15, 35, 0.55,
-     30 * DAY, 15 * YEAR, 0, 0, 0, 0},
+     30 * DAY, 15 * YEAR, 0, 0, 0, 0,
+     {0}, 0.0},
     {"carotid", "US CAROTID DOPPLER", "Carotid", "NECK", "VASCULAR", 1,
      SIM_INDICES_TIS, 1.0, 0.20,
      {0.30, 0.00, 0.30, 0.00, 0.40, 0.00, 0.00}, 15, 30, 10, 25, 0.15,
-     40 * YEAR, 90 * YEAR, 0, 0, 0, 0},
+     40 * YEAR, 90 * YEAR, 0, 0, 0, 0,
+     {0}, 0.0},
     {"venous_leg", "US VENOUS LEG DOPPLER", "Venous Leg", "LEG", "VASCULAR",
      1, SIM_INDICES_TIS, 0.9, 0.15,
      {0.40, 0.00, 0.30, 0.00, 0.30, 0.00, 0.00}, 10, 25, 6, 20, 0.15,
-     20 * YEAR, 90 * YEAR, 0, 0, 0, 0},
+     20 * YEAR, 90 * YEAR, 0, 0, 0, 0,
+     {0}, 0.0},
     {"transcranial", "US TRANSCRANIAL DOPPLER", "Transcranial", "HEAD",
      "TRANSCRANIAL", 2, SIM_INDICES_TIC, 0.8, 0.30,
      {0.20, 0.00, 0.20, 0.00, 0.60, 0.00, 0.00}, 20, 40, 10, 25, 0.20,
-     30 * YEAR, 85 * YEAR, 0, 1, 0, 0},
+     30 * YEAR, 85 * YEAR, 0, 1, 0, 0,
+     {0}, 0.0},
     {"thyroid", "US THYROID", "Thyroid", "THYROID", "THYROID", 1,
      SIM_INDICES_TIS, 1.0, 0.15,
      {0.70, 0.00, 0.15, 0.10, 0.05, 0.00, 0.00}, 10, 20, 6, 18, 0.05,
-     18 * YEAR, 85 * YEAR, 0, 0, 0, 0},
+     18 * YEAR, 85 * YEAR, 0, 0, 0, 0,
+     {0}, 0.0},
     {"small_parts", "US SMALL PARTS", "Small Parts", "SCROTUM",
      "SMALL PARTS", 1, SIM_INDICES_TIS, 0.9, 0.15,
      {0.65, 0.00, 0.15, 0.15, 0.05, 0.00, 0.00}, 10, 20, 5, 15, 0.05,
-     16 * YEAR, 80 * YEAR, 'M', 0, 0, 0},
+     16 * YEAR, 80 * YEAR, 'M', 0, 0, 0,
+     {0}, 0.0},
     {"neonatal_head", "US NEONATAL HEAD", "Neonatal Head", "HEAD",
      "NEONATAL HEAD", 5, SIM_INDICES_TIS, 0.7, 0.10,
      {0.80, 0.00, 0.12, 0.08, 0.00, 0.00, 0.00}, 10, 20, 6, 16, 0.10,
-     0 * DAY, 28 * DAY, 0, 0, 0, 0},
+     0 * DAY, 28 * DAY, 0, 0, 0, 0,
+     {0}, 0.0},
     {"msk", "US MUSCULOSKELETAL", "MSK", "SHOULDER", "MUSCULOSKELETAL", 1,
      SIM_INDICES_TIS, 1.0, 0.15,
      {0.80, 0.00, 0.05, 0.15, 0.00, 0.00, 0.00}, 10, 25, 6, 20, 0.10,
-     16 * YEAR, 80 * YEAR, 0, 0, 0, 0},
+     16 * YEAR, 80 * YEAR, 0, 0, 0, 0,
+     {0}, 0.0},
 };
 const size_t sim_exam_type_count =
     sizeof sim_exam_types / sizeof sim_exam_types[0];

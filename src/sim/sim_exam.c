@@ -34,7 +34,10 @@ static void sim_model_indices(const sim_exam_type *type, sim_capture *c,
     double noise_mi = 1.0 + 0.06 * sim_rng_normal(rng);
     double noise_ti = 1.0 + 0.06 * sim_rng_normal(rng);
     double mi = type->mi_b * sim_mode_mi_factor(c->mode) * noise_mi;
-    double ti = type->ti_b * sim_mode_ti_factor(c->mode) * noise_ti;
+    double median_ti = type->ti_by_mode[c->mode] > 0.0
+                           ? type->ti_by_mode[c->mode]
+                           : type->ti_b * sim_mode_ti_factor(c->mode);
+    double ti = median_ti * noise_ti;
     c->has_indices = 1;
     c->mi = mi;
     c->tib = c->tic = 0.0;
@@ -69,6 +72,65 @@ static void sim_round_indices(sim_capture *c, int decimals)
     c->tis = sim_round_to(c->tis, decimals);
     c->tib = c->tib > 0.0 ? sim_round_to(c->tib, decimals) : 0.0;
     c->tic = c->tic > 0.0 ? sim_round_to(c->tic, decimals) : 0.0;
+}
+
+/* A capture in the breach stretch: pulsed-wave Doppler at governing TI
+ * 2.0, the other indices as the model's index set relates them. 2.0 is
+ * at the TI ceiling (at most 2.0 passes, docs/domain.md section 4) and at
+ * the obstetric dwell table's 4-minute row: a dwell breach, not a
+ * ceiling one, which stays the planted transcranial exam's. */
+static void sim_breach_indices(const sim_exam_type *type, sim_capture *c,
+                               sim_rng *rng)
+{
+    double ti = 2.0;
+    c->mode = SIM_MODE_PW;
+    c->mi = type->mi_b * sim_mode_mi_factor(SIM_MODE_PW)
+            * (1.0 + 0.06 * sim_rng_normal(rng));
+    switch (type->indices) {
+    case SIM_INDICES_TIS:
+        c->tis = ti;
+        break;
+    case SIM_INDICES_TIB:
+        c->tib = ti;
+        c->tis = ti * 0.6;
+        break;
+    case SIM_INDICES_TIC:
+        c->tic = ti;
+        c->tis = ti * 0.5;
+        break;
+    }
+}
+
+/* The breach stretch, captures first..last (0, 0: none): consecutive
+ * captures from a random one of the first half on, as few as make the
+ * intervals that lead to them (each capped at 300 s, docs/domain.md
+ * section 5) add up to at least 270 s, longer than the 4 minutes the
+ * obstetric table allows at TI 2.0. It reaches back when the rest of the
+ * exam is too short; none when the whole exam is. */
+static void sim_breach_stretch(const long *seconds, size_t n, sim_rng *rng,
+                               size_t *first, size_t *last)
+{
+    *first = *last = 0;
+    if (n < 3)
+        return;
+    size_t start = (size_t)sim_rng_range(rng, 1, (int)(n / 2));
+    size_t end = start;
+    long gap = seconds[start] - seconds[start - 1];
+    long total = gap > 300 ? 300 : gap;
+    while (total < 270 && end + 1 < n) {
+        end++;
+        gap = seconds[end] - seconds[end - 1];
+        total += gap > 300 ? 300 : gap;
+    }
+    while (total < 270 && start > 1) {
+        start--;
+        gap = seconds[start] - seconds[start - 1];
+        total += gap > 300 ? 300 : gap;
+    }
+    if (total >= 270) {
+        *first = start;
+        *last = end;
+    }
 }
 
 static int sim_cine_frames(sim_rng *rng)
@@ -127,6 +189,16 @@ void sim_exam_build(int day_index, int exam_number, const sim_slot *slot,
             seconds[i] = (long)(sim_rng_uniform(&rng) * (double)span);
     }
     sim_sort_seconds(seconds, (size_t)n);
+    for (int i = 1; i < n; i++)   /* the times written: one second apart */
+        if (seconds[i] <= seconds[i - 1])
+            seconds[i] = seconds[i - 1] + 1;
+    /* Drawn from the exam's own stream only for exam types that have a
+     * share, so that every other exam keeps its captures. */
+    size_t breach_first = 0, breach_last = 0;
+    if (!dwell && type->pw_breach_share > 0.0
+        && sim_rng_uniform(&rng) < type->pw_breach_share)
+        sim_breach_stretch(seconds, (size_t)n, &rng, &breach_first,
+                           &breach_last);
 
     exam->capture_count = (size_t)n;
     long previous = -1;
@@ -153,6 +225,9 @@ void sim_exam_build(int day_index, int exam_number, const sim_slot *slot,
             c->frame_time_ms = dwell ? 40.0 : (double)sim_rng_range(&rng, 20, 40);
         }
         sim_model_indices(type, c, &rng);
+        if (breach_first > 0 && (size_t)i >= breach_first
+            && (size_t)i <= breach_last)
+            sim_breach_indices(type, c, &rng);
         sim_planted_apply(exam, c, (size_t)i, &rng);
         sim_round_indices(c, slot->decimals);
     }

@@ -7,7 +7,10 @@
  *  hot-preset      "Abdomen General" in US-ROOM-2, days 8-21 (day index
  *                  7..20): MI +0.4, TIS x1.6.
  *  night-ob-dwell  every night-shift 2nd/3rd-trimester OB exam: 15-25 min
- *                  of long PW Doppler cine loops at TIB 1.2-1.8.
+ *                  of long PW Doppler cine loops at TIB 1.9-2.0 (at, not
+ *                  above, the TI 2.0 ceiling): beyond the obstetric
+ *                  dwell table's 4 minutes at 2.0 in every exam, where
+ *                  the rest of the department breaches it in a few.
  *  silent-probe    the L4-15 linear probe in US-ROOM-3 omits MI/TI from
  *                  day 15 (day index 14) on.
  *  tic-high        the first US-ROOM-3 day-shift exam of day 10 (index 9)
@@ -85,7 +88,8 @@ void sim_planted_apply(const sim_exam *exam, sim_capture *capture,
     }
     if ((planted & SIM_PLANTED_NIGHT_OB_DWELL)
         && capture->mode == SIM_MODE_PW) {
-        capture->tib = 1.2 + 0.6 * sim_rng_uniform(rng);
+        /* 1.90-2.04: displayed 1.9 or, two times in three, 2.0 */
+        capture->tib = 1.9 + 0.14 * sim_rng_uniform(rng);
         capture->tis = capture->tib * 0.6;
     }
     if (planted & SIM_PLANTED_TIC_HIGH) {

@@ -25,9 +25,9 @@ BINARY = os.environ.get("MITILOG_BINARY", os.path.join(ROOT, "build", "mitilog")
 # the governing index present (TIC, else TIB, else TIS).
 MODE_MEDIAN_RANGES = {
     "b": ((0.9, 1.2), (0.2, 0.4)),
-    "m": ((0.8, 1.2), (0.1, 0.3)),
+    "m": ((0.8, 1.2), (0.5, 0.9)),
     "colour": ((0.6, 0.9), (0.4, 0.7)),
-    "pw": ((0.4, 0.7), (0.9, 1.5)),
+    "pw": ((0.4, 0.7), (0.7, 1.3)),
     "cw": ((0.3, 0.5), (1.0, 1.6)),
     "3d": ((0.8, 1.0), (0.3, 0.5)),
 }

@@ -176,6 +176,62 @@ static void test_exam_captures(void **state)
     free(exam);
 }
 
+/* The breach stretch of unplanted 2nd- and 3rd-trimester exams
+ * (docs/demo.md, "Index model"): one run of consecutive PW captures at
+ * TIB 2.0 whose intervals, each capped at 300 s (docs/domain.md section
+ * 5), add up to at least 270 s, longer than the BMUS obstetric table's 4
+ * minutes at TI 2.0 (docs/domain.md section 4); never above the 2.0
+ * ceiling. Shares 10 % and 15 % are the model's, checked loosely here. */
+static void test_breach_stretch(void **state)
+{
+    (void)state;
+    sim_day *day = malloc(sizeof *day);
+    sim_exam *exam = malloc(sizeof *exam);
+    assert_non_null(day);
+    assert_non_null(exam);
+    int ob2 = sim_exam_type_find("ob2"), ob3 = sim_exam_type_find("ob3");
+    int exams = 0, breached = 0;
+    for (int d = 0; d < 28; d++) {
+        sim_day_schedule(1, d, d % 7, day);
+        sim_planted_mark(day, 28);
+        for (size_t i = 0; i < day->count; i++) {
+            const sim_slot *slot = &day->slots[i];
+            if ((slot->exam_type != ob2 && slot->exam_type != ob3)
+                || slot->planted != 0)
+                continue;
+            sim_exam_build(d, (int)i + 1, slot, exam);
+            exams++;
+            size_t first = 0, last = 0, count = 0;
+            for (size_t c = 0; c < exam->capture_count; c++) {
+                const sim_capture *cap = &exam->captures[c];
+                assert_true(cap->tib <= 2.0 + 1e-9);
+                if (cap->tib < 1.95)
+                    continue;
+                assert_int_equal(cap->mode, SIM_MODE_PW);
+                if (count++ == 0)
+                    first = c;
+                last = c;
+            }
+            if (count == 0)
+                continue;
+            breached++;
+            assert_int_equal(last - first + 1, count);   /* one run */
+            assert_true(first >= 1);
+            long seconds = 0;
+            for (size_t c = first; c <= last; c++) {
+                long gap = exam->captures[c].second
+                           - exam->captures[c - 1].second;
+                seconds += gap > 300 ? 300 : gap;
+            }
+            assert_true(seconds >= 270);
+        }
+    }
+    assert_true(exams > 150);
+    assert_in_range(breached * 100 / exams, 5, 20);
+    free(day);
+    free(exam);
+}
+
 static void test_planted_marks(void **state)
 {
     (void)state;
@@ -503,6 +559,7 @@ int main(void)
         cmocka_unit_test(test_schedule_volumes),
         cmocka_unit_test(test_schedule_deterministic),
         cmocka_unit_test(test_exam_captures),
+        cmocka_unit_test(test_breach_stretch),
         cmocka_unit_test(test_planted_marks),
         cmocka_unit_test(test_uid_form),
         cmocka_unit_test(test_devices),
