@@ -7,7 +7,8 @@ read from the pixels.
                           [--skip DEVICE] [--by NAME]
     demo_devices.py summary --database DB [--wait SECONDS]
 
-learn: DIR holds images written by `mitilog simulate --screens` and its
+learn: devices that already have an active profile are left as they are.
+DIR holds images written by `mitilog simulate --screens` and its
 manifest.csv. For each device (manifest column `device`: one per scanner
 and software version), the fewest images whose screens together show all
 ten digits and the point (at most 12) are given to `mitilog device learn`
@@ -69,11 +70,19 @@ def learn(options):
     by_device = collections.OrderedDict()
     for row in rows:
         by_device.setdefault(row["device"], []).append(row)
+    listed = run([options.binary, "device", "list", "--config", options.config])
+    active = set()
+    if listed.returncode == 0:
+        import json
+        active = {p["key"] for p in json.loads(listed.stdout or "[]") if p["state"] == "active"}
     failed = 0
     for device, device_rows in by_device.items():
         if options.only and device not in options.only:
             continue
         if device in (options.skip or []):
+            continue
+        if device in active:
+            print("devices: %s (%s) already has an active profile" % (device, device_rows[0]["room"]))
             continue
         pixels_only = device_rows[0]["header_indices"] == "0"
         usable = [r for r in device_rows if "header-mismatch" not in r["planted"]]
