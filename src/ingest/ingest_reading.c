@@ -488,6 +488,10 @@ static void finish_item(ingest_reading *reading, ingest_reading_item *item)
         if (result.read)
             log_debug("object %s: pixels read (profile %s)", item->sop_instance_uid,
                       result.profile_key ? result.profile_key : "");
+        else if (result.profile_key != NULL && result.profile_key[0] != '\0')
+            /* counted against its profile, with one warning an hour */
+            log_debug("object %s: pixel values not read: %s", item->sop_instance_uid,
+                      result.reason ? result.reason : "");
         else
             log_info("object %s: pixel values not read: %s", item->sop_instance_uid,
                      result.reason ? result.reason : "");

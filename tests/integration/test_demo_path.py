@@ -113,6 +113,34 @@ def _drawn_value(text):
     return match.group(1) if match else None
 
 
+def _browser_checks(daemon, tmp_path, pages):
+    """The Devices page and the exam page's provenance table in Debian's
+    headless Chromium (tests/browser/screens.mjs, playwright-core)."""
+    import json
+    import shutil
+    node = shutil.which("node")
+    browser_dir = os.path.join(REPO, "tests", "browser")
+    if not (node and os.path.exists("/usr/bin/chromium") and os.path.isdir(
+            os.path.join(browser_dir, "node_modules", "playwright-core"))):
+        assert not os.environ.get("MITILOG_REQUIRE_BROWSER"), \
+            "node, /usr/bin/chromium or tests/browser/node_modules missing"
+        return
+    config = dict(pages, url="http://127.0.0.1:%d" % daemon.http_port,
+                  out=os.path.join(REPO, "tests", "out",
+                                   "browser-screens-" + os.path.basename(os.path.dirname(BINARY))))
+    config_path = os.path.join(str(tmp_path), "screens.json")
+    with open(config_path, "w") as f:
+        json.dump(config, f)
+    result = subprocess.run([node, os.path.join(browser_dir, "screens.mjs"), config_path],
+                            capture_output=True, text=True, timeout=120, cwd=browser_dir)
+    lines = [line for line in result.stdout.splitlines() if line.startswith("{")]
+    assert lines, result.stderr
+    outcome = json.loads(lines[-1])
+    failed = [c for c in outcome["checks"] if not c["ok"]]
+    assert not failed and not outcome["errors"], (failed, outcome["errors"])
+    assert result.returncode == 0 and len(outcome["checks"]) == 10
+
+
 def test_demo_sets_up_the_scanners_and_reads_their_screens(daemon_factory, tmp_path):
     """The demo's steps on two days (deploy/demo.sh): the daemon runs, the
     administrator script (deploy/demo_devices.py) learns and activates a
@@ -193,6 +221,7 @@ def test_demo_sets_up_the_scanners_and_reads_their_screens(daemon_factory, tmp_p
             decimals = len(text.split(".")[1])
             if abs(float(value) - float(text)) > 0.5 * 10 ** -decimals + 1e-9:
                 differing += 1
+                mismatch_study = row["study_instance_uid"]
                 assert row["sop_instance_uid"] in named, row["path"]
                 break
     assert differing > 0
@@ -221,6 +250,15 @@ def test_demo_sets_up_the_scanners_and_reads_their_screens(daemon_factory, tmp_p
     with open(daemon.stderr_path) as f:
         warnings = [line for line in f if "screen profile ambervale-av40-4.0.2 refuses" in line]
     assert len(warnings) == 1   # once an hour, not once a frame
+
+    first = pixels_only[0]
+    _browser_checks(daemon, tmp_path, dict(
+        pixels_study=first["study_instance_uid"],
+        pixels_text="%s · screen" % _drawn_value(first["mi_text"]),
+        updated_study=updated[0]["study_instance_uid"], mismatch_study=mismatch_study,
+        refused_profile="ambervale-av40-4.0.2",
+        refused_text="software changed: %d of %d frames" % (len(updated),
+                                                            old["recent_frames"])))
 
     # A profile for the new software; the objects kept are read again.
     learned = subprocess.run(
