@@ -1,8 +1,9 @@
-# Turns every sql/migrations/*.sql and sql/queries/*.sql into C string
+# Turns every sql/migrations/*.sql and sql/queries/SUBJECT/*.sql into C string
 # constants, so the binary carries its own schema and queries.
 # Output: const mitilog_sql_file mitilog_sql_files[] (name, text), NULL-ended.
 file(GLOB migrations ${SQL_DIR}/migrations/*.sql)
-file(GLOB queries ${SQL_DIR}/queries/*.sql)
+# queries by subject, one folder each: named "queries/SUBJECT/NAME.sql"
+file(GLOB_RECURSE queries ${SQL_DIR}/queries/*.sql)
 list(SORT migrations)
 list(SORT queries)
 set(body "/* Generated from sql/ by cmake/embed_sql.cmake; do not edit. */\n")

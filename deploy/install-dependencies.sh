@@ -32,6 +32,9 @@ packages=(
   # dashboard browser tests (tests/browser): headless Chromium driven by
   # playwright-core from npm (no downloaded browsers)
   chromium
+  # printed reports: pdfinfo counts the pages of the PDF Chromium prints,
+  # pdftoppm renders them to PNG (tests/integration/test_pack.py)
+  poppler-utils
 )
 
 missing=()

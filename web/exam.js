@@ -1,7 +1,7 @@
 // exam.js - one exam (exam.html?study=UID): the timeline picture of each
 // index over the exam with the applicable limits and dwell thresholds,
 // the findings and the instances. Minimal patient data: a short study key.
-import { el, svg, clear, header, getJSON, showError, param, fmt, minutes, orNone, studyKey, scale, niceMax, marker } from './common.js';
+import { el, svg, clear, header, getJSON, showError, param, fmt, minutes, orNone, studyKey, scale, marker } from './common.js';
 import { provenanceTable } from './provenance.js';
 
 header('');
@@ -34,73 +34,121 @@ function limitsFor(policy, study) {
   };
 }
 
+// Round ticks from 0 to at least `high`: steps of 1, 2 or 5 x 10^n, about
+// `count` of them (common practice, no source). The decimals shown are
+// those of the step, so that a label never reads 2.7 for 2.75.
+function roundTicks(high, count) {
+  const span = high > 0 ? high : 1;
+  const raw = span / count;
+  const power = Math.pow(10, Math.floor(Math.log10(raw)));
+  const step = [1, 2, 5, 10].map((m) => m * power).find((s) => s >= raw - 1e-12);
+  const top = Math.ceil(span / step - 1e-9) * step;
+  const decimals = Math.max(0, -Math.floor(Math.log10(step) + 1e-9));
+  const ticks = [];
+  for (let i = 0; i * step <= top + step / 1e6; i++) ticks.push(Number((i * step).toFixed(decimals)));
+  return { step, top, ticks, decimals };
+}
+
+// Labels in the right margin, each at its line's height when there is
+// room; a label moved to make room is joined to its line by a leader, so
+// that no label sits beside a line it does not name.
+function placeLabels(chart, labels, xLine, xText, lowest, highest) {
+  labels.sort((a, b) => a.y - b.y);
+  const gap = 14;
+  for (let i = 0; i < labels.length; i++) {
+    labels[i].at = Math.max(labels[i].y, i ? labels[i - 1].at + gap : highest);
+  }
+  for (let i = labels.length - 1; i >= 0; i--) {
+    const limit = i === labels.length - 1 ? lowest : labels[i + 1].at - gap;
+    labels[i].at = Math.min(labels[i].at, limit);
+  }
+  for (const label of labels) {
+    if (Math.abs(label.at - label.y) > 0.5) {
+      chart.appendChild(svg('path', { class: 'leader', d: `M${xLine},${label.y}L${xText - 3},${label.at}`, stroke: '#8a989b', fill: 'none', 'stroke-width': 0.8 }));
+    }
+    chart.appendChild(svg('text', { class: 'line-label', x: xText, y: label.at + 4, 'font-weight': label.bold ? 'bold' : null }, label.text));
+  }
+}
+
 function timelineChart(study, limits) {
   const byUid = new Map((study.instances || []).map((i) => [i.sop_instance_uid, i]));
   const points = (study.timeline || []).map((t) => ({ t: t.start_seconds / 60, instance: byUid.get(t.sop_instance_uid) || {} }));
-  const width = 900, height = 360, left = 52, right = 150, top = 24, bottom = 44;
-  const chart = svg('svg', { class: 'chart', id: 'timeline-chart', viewBox: `0 0 ${width} ${height}`, width, height,
-    role: 'img', 'aria-label': 'Indices over the exam' });
+  const width = 900, left = 52, right = 210, top = 34, panelHeight = 150, between = 56, bottom = 44;
+  const height = top + 2 * panelHeight + between + bottom;
+  const chart = svg('svg', { class: 'chart', id: 'timeline-chart', viewBox: `0 0 ${width} ${height}`,
+    preserveAspectRatio: 'xMinYMin meet', role: 'img', 'aria-label': 'MI and thermal indices over the exam, on separate panels' });
   if (points.length === 0) {
-    chart.appendChild(svg('text', { x: 20, y: 40 }, 'No timed captures: the exam has no timeline.'));
+    chart.setAttribute('viewBox', `0 0 ${width} 60`);
+    chart.appendChild(svg('text', { x: 20, y: 36 }, 'No timed captures: the exam has no timeline.'));
     return chart;
   }
-  const present = SERIES.filter((s) => points.some((p) => typeof p.instance[s.key] === 'number'));
-  const dwell = limits.dwell;
-  const limitValues = [limits.ti, limits.mi].filter((v) => typeof v === 'number' && !Number.isNaN(v));
-  const values = points.flatMap((p) => present.map((s) => p.instance[s.key]).filter((v) => typeof v === 'number'));
-  const yMax = niceMax(Math.max(...values, ...limitValues, 0.5) * 1.05);
-  const tMax = Math.max(...points.map((p) => p.t), 0.5);
-  const x = scale(0, tMax, left, width - right);
-  const y = scale(0, yMax, height - bottom, top);
-  // grid and axes
-  for (let i = 0; i <= 5; i++) {
-    const v = (yMax * i) / 5;
-    chart.appendChild(svg('line', { class: 'grid', x1: left, x2: width - right, y1: y(v), y2: y(v) }));
-    chart.appendChild(svg('text', { x: left - 6, y: y(v) + 4, 'text-anchor': 'end' }, v.toFixed(1)));
-  }
-  for (let i = 0; i <= 6; i++) {
-    const t = (tMax * i) / 6;
-    chart.appendChild(svg('text', { x: x(t), y: height - bottom + 16, 'text-anchor': 'middle' }, t.toFixed(1)));
-  }
-  chart.appendChild(svg('line', { class: 'axis', x1: left, x2: left, y1: top, y2: height - bottom }));
-  chart.appendChild(svg('line', { class: 'axis', x1: left, x2: width - right, y1: height - bottom, y2: height - bottom }));
-  chart.appendChild(svg('text', { x: (left + width - right) / 2, y: height - 8, 'text-anchor': 'middle' }, 'minutes since the first capture (estimate)'));
-  chart.appendChild(svg('text', { x: 6, y: 14 }, 'displayed index'));
-  // dwell thresholds (thin, dotted, labelled) and limits (thick, dashed,
-  // labelled); labels are spread apart so that they never overlap.
-  const labels = [];
-  for (const step of dwell) {
-    const v = step.threshold;
-    if (!(v <= yMax)) continue;
-    chart.appendChild(svg('line', { x1: left, x2: width - right, y1: y(v), y2: y(v), stroke: '#8a989b', 'stroke-dasharray': '1 3', 'stroke-width': 1.2, class: 'dwell' }));
-    labels.push({ y: y(v) + 4, text: `TI ≥ ${Number.isInteger(v) ? v.toFixed(1) : v}: ${step.text}`, bold: false });
-  }
-  const limitLines = [
-    [limits.ti, 'TI ceiling'], [limits.mi, 'MI equipment max'], [limits.miCeiling, 'MI ceiling'],
+  const tTicks = roundTicks(Math.max(...points.map((p) => p.t), 0.5), 6);
+  const x = scale(0, tTicks.top, left, width - right);
+  const dwell = Array.isArray(limits.dwell) ? limits.dwell : [];
+  const finite = (v) => typeof v === 'number' && !Number.isNaN(v);
+  // One panel per kind of index: MI (mechanical) above, TI (thermal) below;
+  // each has its own axis, limits and labels.
+  const panels = [
+    { name: 'MI', series: SERIES.filter((s) => s.key === 'mi'), top, always: true,
+      lines: [[limits.mi, 'MI equipment max', true], [limits.miCeiling, 'MI ceiling', true]] },
+    { name: 'TI', series: SERIES.filter((s) => s.key !== 'mi'), top: top + panelHeight + between,
+      lines: [[limits.ti, 'TI ceiling', true],
+        ...dwell.map((d) => [Number(d.threshold), `dwell ${d.text}`, false])] },
   ];
-  for (const [value, label] of limitLines) {
-    if (typeof value !== 'number' || Number.isNaN(value) || value > yMax) continue;
-    chart.appendChild(svg('line', { x1: left, x2: width - right, y1: y(value), y2: y(value), stroke: '#1f2d33', 'stroke-width': 2, 'stroke-dasharray': '8 4', class: 'limit' }));
-    labels.push({ y: y(value) + 4, text: `${label} ${value}`, bold: true });
-  }
-  labels.sort((a, b) => a.y - b.y);
-  for (let i = 1; i < labels.length; i++) labels[i].y = Math.max(labels[i].y, labels[i - 1].y + 13);
-  for (const label of labels) {
-    chart.appendChild(svg('text', { x: width - right + 6, y: label.y, 'font-weight': label.bold ? 'bold' : null }, label.text));
-  }
-  // series: line + distinct markers + end label
-  for (const series of present) {
-    const seriesPoints = points.filter((p) => typeof p.instance[series.key] === 'number');
-    const path = seriesPoints.map((p, i) => `${i ? 'L' : 'M'}${x(p.t).toFixed(1)},${y(p.instance[series.key]).toFixed(1)}`).join('');
-    chart.appendChild(svg('path', { d: path, fill: 'none', stroke: series.stroke, 'stroke-width': 1.6, 'stroke-dasharray': series.dash || null, class: 'series series-' + series.key }));
-    for (const p of seriesPoints) {
-      const m = marker(series.shape, x(p.t), y(p.instance[series.key]), 3.2, { fill: '#ffffff', stroke: series.stroke, 'stroke-width': 1.4, class: 'point' });
-      m.appendChild(svg('title', {}, `${series.label} ${p.instance[series.key]} at ${p.t.toFixed(1)} min`));
-      chart.appendChild(m);
+  for (const panel of panels) {
+    const present = panel.series.filter((s) => points.some((p) => finite(p.instance[s.key])));
+    const values = points.flatMap((p) => present.map((s) => p.instance[s.key]).filter(finite));
+    const high = Math.max(...values, 0.5);
+    // MI limits are always drawn; TI lines above the data only when near it
+    // (within half again), so that they do not squash the values.
+    const lines = panel.lines.filter(([v]) => finite(v) && (panel.always || v <= Math.max(high * 1.5, 1)));
+    const yTicks = roundTicks(Math.max(high, ...lines.map(([v]) => v)), 4);
+    const base = panel.top + panelHeight;
+    const y = scale(0, yTicks.top, base, panel.top);
+    chart.appendChild(svg('text', { class: 'panel-title', x: 6, y: panel.top - 14, 'font-weight': 'bold' },
+      panel.name === 'MI' ? 'MI (mechanical index)' : 'TI (thermal indices: ' + (present.map((s) => s.label).join(', ') || 'none recorded') + ')'));
+    for (const v of yTicks.ticks) {
+      chart.appendChild(svg('line', { class: 'grid', x1: left, x2: width - right, y1: y(v), y2: y(v) }));
+      chart.appendChild(svg('text', { class: 'tick tick-y', x: left - 6, y: y(v) + 4, 'text-anchor': 'end' }, v.toFixed(yTicks.decimals)));
     }
-    const last = seriesPoints[seriesPoints.length - 1];
-    chart.appendChild(svg('text', { x: x(last.t) + 6, y: y(last.instance[series.key]) - 6, 'font-weight': 'bold' }, series.label));
+    for (const t of tTicks.ticks) {
+      chart.appendChild(svg('line', { class: 'axis', x1: x(t), x2: x(t), y1: base, y2: base + 4 }));
+      chart.appendChild(svg('text', { class: 'tick tick-x', x: x(t), y: base + 16, 'text-anchor': 'middle' }, t.toFixed(tTicks.decimals)));
+    }
+    chart.appendChild(svg('line', { class: 'axis', x1: left, x2: left, y1: panel.top, y2: base }));
+    chart.appendChild(svg('line', { class: 'axis', x1: left, x2: width - right, y1: base, y2: base }));
+    // Lines at one value share one label ("2.0: TI ceiling; dwell 4 min").
+    const byValue = new Map();
+    for (const [value, text, bold] of lines) {
+      const entry = byValue.get(value) || { value, texts: [], bold: false };
+      entry.texts.push(text);
+      entry.bold = entry.bold || bold;
+      byValue.set(value, entry);
+    }
+    const labels = [];
+    for (const entry of byValue.values()) {
+      chart.appendChild(svg('line', entry.bold
+        ? { x1: left, x2: width - right, y1: y(entry.value), y2: y(entry.value), stroke: '#1f2d33', 'stroke-width': 2, 'stroke-dasharray': '8 4', class: 'limit' }
+        : { x1: left, x2: width - right, y1: y(entry.value), y2: y(entry.value), stroke: '#8a989b', 'stroke-dasharray': '1 3', 'stroke-width': 1.2, class: 'dwell' }));
+      const prefix = panel.name === 'TI' ? 'TI ≥ ' : 'MI ';
+      labels.push({ y: y(entry.value), text: `${prefix}${entry.value.toFixed(1)}: ${entry.texts.join('; ')}`, bold: entry.bold });
+    }
+    placeLabels(chart, labels, width - right, width - right + 8, base, panel.top);
+    for (const series of present) {
+      const seriesPoints = points.filter((p) => finite(p.instance[series.key]));
+      const path = seriesPoints.map((p, i) => `${i ? 'L' : 'M'}${x(p.t).toFixed(1)},${y(p.instance[series.key]).toFixed(1)}`).join('');
+      chart.appendChild(svg('path', { d: path, fill: 'none', stroke: series.stroke, 'stroke-width': 1.6, 'stroke-dasharray': series.dash || null, class: 'series series-' + series.key }));
+      for (const p of seriesPoints) {
+        const m = marker(series.shape, x(p.t), y(p.instance[series.key]), 3.2, { fill: '#ffffff', stroke: series.stroke, 'stroke-width': 1.4, class: 'point' });
+        m.appendChild(svg('title', {}, `${series.label} ${p.instance[series.key]} at ${p.t.toFixed(1)} min`));
+        chart.appendChild(m);
+      }
+    }
+    if (present.length === 0) {
+      chart.appendChild(svg('text', { x: left + 12, y: panel.top + panelHeight / 2 }, `No ${panel.name} value recorded: unknown, not 0.`));
+    }
   }
+  chart.appendChild(svg('text', { x: (left + width - right) / 2, y: height - 8, 'text-anchor': 'middle' }, 'minutes since the first capture (estimate)'));
   return chart;
 }
 
@@ -113,7 +161,7 @@ function legend(study, limits) {
     return el('span', {}, sample, ` ${s.label}   `);
   });
   return el('p', { class: 'legend' }, items,
-    ` Thick dashed lines: limits; dotted lines: dwell thresholds with their time limits (${limits.source}).`);
+    ` — MI and TI on separate panels, each with its own scale. Thick dashed lines: limits; dotted lines: dwell thresholds of the governing TI with their time limits (${limits.source}).`);
 }
 
 function findingsTable(findings) {

@@ -112,7 +112,7 @@ BEGIN
 END;
 
 -- What the period queries read of each exam (as in migration 005, without
--- the time columns: sql/queries/stats_exam_time_at_or_above.sql reads the
+-- the time columns: sql/queries/reports/stats_exam_time_at_or_above.sql reads the
 -- times by threshold).
 CREATE VIEW exam_period_rows AS
 SELECT s.day,
@@ -152,7 +152,7 @@ ALTER TABLE exams ADD COLUMN exam_group TEXT;
 
 -- What each policy sets for exams of each group and age group, as a JSON
 -- array built by SQLite's JSON functions when the policy is registered
--- (sql/queries/policy_limits_append.sql); /api/v1/policy serves it.
+-- (sql/queries/findings/policy_limits_append.sql); /api/v1/policy serves it.
 ALTER TABLE policies ADD COLUMN limits_json TEXT NOT NULL DEFAULT '[]'
     CHECK (json_valid(limits_json));
 

@@ -24,7 +24,8 @@ static void print_report_usage(FILE *out)
             "week: the weekly outlier list of an ISO week (default: the latest week held),\n"
             "against a trailing baseline per exam type (default 12 weeks, 20 exams).\n"
             "stats: count, median, P75, P95 of each exam's governing index and MI, share of\n"
-            "exams with findings and estimated time above thresholds, per exam type.\n"
+            "exams with findings and estimated time above thresholds, per exam type; as html a\n"
+            "printable document with charts, the [site] institution and a sign-off block.\n"
             "Both state the period, policy version, data completeness and the caution.\n"
             "Default format: html for week, csv for stats. Exit status: 0 written, 1 failed,\n"
             "2 usage.\n");
@@ -55,7 +56,7 @@ int command_report(int argc, char **argv)
     const char *config_path = NULL, *output = NULL;
     report_format format = is_week ? REPORT_HTML : REPORT_CSV;
     report_week_request week = report_week_default_request();
-    report_stats_request stats = {NULL, NULL, STATS_BY_EXAM_TYPE};
+    report_stats_request stats = {NULL, NULL, STATS_BY_EXAM_TYPE, NULL};
     long value = 0;
     for (int i = 2; i < argc; i++) {
         const char *option = argv[i];
@@ -121,6 +122,8 @@ int command_report(int argc, char **argv)
     int status = EXIT_STATUS_FAILURE;
     mitilog_status result = store_open(config.database_path, (int)config.busy_timeout_ms, &store,
                                        &error);
+    if (config.site_institution != NULL && config.site_institution[0] != '\0')
+        stats.institution = config.site_institution;
     if (result == MITILOG_OK)
         result = is_week ? report_week(store, &week, format, &document, &error)
                          : report_stats(store, &stats, format, &document, &error);

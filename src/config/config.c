@@ -135,6 +135,9 @@ static const option options[] = {
      0, NULL, 1,
      "Site file: exam types, rooms, shifts, age groups, SR codes (docs/configuration.md); "
      "empty for none."},
+    {"site", "institution", OPTION_STRING, FIELD(site_institution), "", 0, 0, NULL, 0,
+     "Name of the institution printed on the statistics document and reports; empty: the "
+     "documents say it is not configured."},
     {"rules", "policy", OPTION_STRING, FIELD(rules_policy_path), MITILOG_SOURCE_DIR "/conf/policy.ini",
      0, 0, NULL, 1, "ALARA policy file: rules, limits and their sources (docs/policy.md)."},
     {"service", "user", OPTION_STRING, FIELD(service_user), "", 0, 0, NULL, 0,

@@ -68,6 +68,7 @@ typedef struct config {
 
     /* [site] */
     char *site_rules_path;         /* the site file (conf/site.ini); "" = none */
+    char *site_institution;        /* name printed on reports; "" = not set */
 
     /* [rules] */
     char *rules_policy_path;       /* the ALARA policy file (conf/policy.ini) */

@@ -67,7 +67,7 @@ int ext_iso_from_date_time(const char *date, const char *time,
 int ext_iso_from_dt(const char *date_time, const char *timezone_offset,
                     char out[EXT_ISO_TIME_SIZE]);
 
-/* Acquisition time with the fall-backs of the domain reference:
+/* Acquisition time with the fall-backs of docs/domain.md:
  * acquisition date-time, acquisition date + time, content date + time,
  * instance creation date + time, then study date + time. */
 ext_time_source ext_acquisition_time(const dcm_facts *facts,
@@ -186,7 +186,7 @@ mitilog_status ext_record_enrich(ext_record *record, const dcm_facts *facts,
 /* Frees what ext_record_enrich() added (called by ext_record_free). */
 void ext_record_free_context(ext_record *record);
 
-/* 1 for the ultrasound storage SOP classes of the domain reference. */
+/* 1 for the ultrasound storage SOP classes of docs/domain.md. */
 int ext_is_ultrasound_sop_class(const char *sop_class_uid);
 
 /* 1 when uid is a valid UID (PS3.5 section 9.1): digits and dots,

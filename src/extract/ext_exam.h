@@ -1,14 +1,14 @@
 /*
  * ext_exam.h - the exam (study) record, rebuilt from all of a study's
  * instances whenever one arrives: exam type (the most frequent among the
- * instances; ties to the earliest), governing index (domain reference
+ * instances; ties to the earliest), governing index (docs/domain.md
  * section 3), gestational age (an SR's LOINC 18185-9 value, else the exam
  * type's configured nominal age), first and last acquisition, instance
  * counts, maxima per index and per mode, and the exam timeline
  * (ext_timeline.h: intervals attributed to each capture, capped gaps,
  * cine durations, bounded by an SR scan time).
  *
- * Governing index [domain reference section 3; all trade practice]:
+ * Governing index [docs/domain.md section 3; all trade practice]:
  *   obstetric (by_gestation), GA < 10 weeks   TIS
  *   obstetric, GA >= 10 weeks or unknown       TIB
  *   transcranial / adult head (TIC)            TIC

@@ -5,7 +5,7 @@
  * whose concept name SCHEME:CODE is listed becomes a quantity (mi, tis,
  * tib, tic, scan_time, gestational_age); a CONTAINER listed as mode:NAME
  * gives its mode to every value beneath it. There is no standard SR
- * template for acoustic output (domain reference section 2), so nothing
+ * template for acoustic output (docs/domain.md section 2), so nothing
  * but LOINC 18185-9 "Gestational age" [std: LOINC] is built in.
  *
  * Tolerated: any depth, missing units (value kept, not normalised),

@@ -2,7 +2,7 @@
  * ext_timeline.h - the exam timeline: how long each capture's displayed
  * settings were (estimated to be) in use.
  *
- * Rule (domain reference, "Exam timeline"): order a study's captures by
+ * Rule (docs/domain.md, "Exam timeline"): order a study's captures by
  * acquisition time; the scanning that leads to capture i is the interval
  * since capture i-1, attributed to capture i's displayed settings; each
  * interval is capped (default 300 s: a longer gap means the probe sat

@@ -45,9 +45,6 @@ struct http_server {
     struct MHD_Daemon *daemon;
     store *store;
     char *web_root;              /* resolved real path, NULL: no files   */
-    sqlite3 *json;               /* in-memory, quotes error messages     */
-    sqlite3_stmt *error_json;    /* queries/error_json.sql, under lock   */
-    pthread_mutex_t json_lock;
     unsigned port;               /* the bound port                       */
     http_auth *auth;             /* NULL: no login required              */
     http_throttle *throttle;     /* failed logins; with auth only        */
@@ -72,7 +69,7 @@ http_reply http_json_reply(unsigned status, char *json);
  * error replies are {"error": error->text}. */
 http_reply http_status_reply(http_server *server, mitilog_status status, char *body,
                              const char *content_type, const mitilog_error *error);
-/* {"error": message} built by SQLite (valid JSON for any message). */
+/* {"error": message} written by json/json.h (valid JSON for any message). */
 http_reply http_error_reply(http_server *server, unsigned status,
                             const char *format, ...)
     __attribute__((format(printf, 3, 4)));

@@ -1,7 +1,7 @@
 /*
  * http_routes_devices.c - the device screen profiles for the dashboard's
  * Devices page: GET /api/v1/devices (every profile version, JSON from
- * sql/queries/screen_profiles_json.sql) and
+ * sql/queries/devices/screen_profiles_json.sql) and
  * GET /api/v1/devices/example?key=KEY[&version=N], the frame the profile
  * was learned from as binary PGM (image/x-portable-graymap), on which the
  * page draws the regions named in the profile text. Parameters go through

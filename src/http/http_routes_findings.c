@@ -2,8 +2,8 @@
  * http_routes_findings.c - the ALARA policy engine's API:
  * GET /api/v1/findings and GET /api/v1/policy. Parameters are checked by
  * http_parameters.c before the store sees them (400 naming the
- * parameter); JSON comes from
- * the store (sql/queries/findings.sql, policy_json.sql). Choice: the
+ * parameter); JSON comes from the store (sql/queries/findings/findings.sql,
+ * policy_json.sql). Choice: the
  * policy reaches HTTP through the store (the policies row holds the rules
  * as JSON, written when the policy is registered, and the store knows
  * which version is active), so this module never includes src/rules.

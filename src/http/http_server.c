@@ -17,7 +17,7 @@
 #include <time.h>
 #include <unistd.h>
 
-#include "store/sql_files.h"
+#include "json/json.h"
 #include "util/log.h"
 
 enum {
@@ -110,19 +110,15 @@ http_reply http_error_reply(http_server *server, unsigned status,
     va_end(arguments);
     http_clean_message(message);
 
+    (void)server;
     char *json = NULL;
-    pthread_mutex_lock(&server->json_lock);
-    sqlite3_stmt *statement = server->error_json;
-    if (sqlite3_bind_text(statement, 1, message, -1, SQLITE_STATIC) ==
-            SQLITE_OK &&
-        sqlite3_step(statement) == SQLITE_ROW) {
-        const char *text = (const char *)sqlite3_column_text(statement, 0);
-        json = text != NULL ? strdup(text) : NULL;
-    }
-    sqlite3_reset(statement);
-    sqlite3_clear_bindings(statement);
-    pthread_mutex_unlock(&server->json_lock);
-    if (json == NULL)
+    json_writer writer;
+    json_writer_init(&writer);
+    json_object_begin(&writer);
+    json_key(&writer, "error");
+    json_string(&writer, message);
+    json_object_end(&writer);
+    if (json_writer_take(&writer, &json, NULL) != MITILOG_OK)
         json = strdup(http_fallback_error);
     return http_json_reply(status, json);
 }
@@ -488,18 +484,6 @@ mitilog_status http_server_start(const http_settings *settings, store *st,
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY,
                                  "out of memory starting HTTP");
     server->store = st;
-    pthread_mutex_init(&server->json_lock, NULL);
-    const char *sql = sql_file_text("queries/error_json.sql");
-    if (sql == NULL ||
-        sqlite3_open_v2(":memory:", &server->json,
-                        SQLITE_OPEN_READWRITE | SQLITE_OPEN_MEMORY, NULL) !=
-            SQLITE_OK ||
-        sqlite3_prepare_v2(server->json, sql, -1, &server->error_json,
-                           NULL) != SQLITE_OK) {
-        http_server_stop(server);
-        return mitilog_error_set(error, MITILOG_ERROR_MEMORY,
-                                 "HTTP: cannot prepare error responses");
-    }
     server->web_root = http_resolve_web_root(settings->web_root);
     unsigned flags = MHD_USE_AUTO_INTERNAL_THREAD | MHD_USE_ERROR_LOG;
     if (http_prepare_security(server, settings, error) != MITILOG_OK) {
@@ -577,9 +561,6 @@ void http_server_stop(http_server *server)
     if (server->daemon != NULL)
         MHD_stop_daemon(server->daemon);
     http_guard_stop(server->guard);
-    sqlite3_finalize(server->error_json);
-    sqlite3_close(server->json);
-    pthread_mutex_destroy(&server->json_lock);
     free(server->web_root);
     http_auth_free(server->auth);
     http_throttle_free(server->throttle);

@@ -9,7 +9,7 @@
  * Open/closed: an exam is closed when now - its last receipt >=
  * closed_after_idle_minutes; the clock is ingest_clock_now() only.
  * Choices: the exam's governing index is the exam record's (it already
- * follows domain reference s.3 with the site's exam type); the group
+ * follows docs/domain.md section 3 with the site's exam type); the group
  * comes from the site's [exam_type KEY] group key; the age group, room,
  * preset, shift and transducer are the first instance's.
  */

@@ -2,8 +2,8 @@
  * report.h - the weekly outlier list, statistics for a period and preset
  * drift as documents: loads exam rows through store.h, computes with
  * src/stats/ (stats_calendar.h, stats_outliers.h, stats_period.h,
- * stats_drift.h), and writes JSON (built by SQLite's JSON functions on a
- * scratch connection), CSV (RFC 4180, UTF-8, CRLF) or printable HTML
+ * stats_drift.h), and writes JSON (the writer of json/json.h), CSV
+ * (RFC 4180, UTF-8, CRLF) or printable HTML
  * (every text escaped). Used by the HTTP API (/api/v1/outliers,
  * /api/v1/stats, /api/v1/drift) and by `mitilog report`.
  *
@@ -52,6 +52,7 @@ mitilog_status report_week(store *store, const report_week_request *request,
 typedef struct report_stats_request {
     const char *from, *to;      /* YYYY-MM-DD inclusive; NULL: all held */
     stats_dimension by;
+    const char *institution;    /* printed on the document; NULL: not configured */
 } report_stats_request;
 
 mitilog_status report_stats(store *store, const report_stats_request *request,

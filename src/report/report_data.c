@@ -247,7 +247,7 @@ void report_html_begin(FILE *out, const char *title, const char *period,
     fputs(report_css, out);
     fputs("</style></head><body>\n<h1>", out);
     report_html_text(out, title);
-    fputs("</h1>\n<p class=\"caution\"><strong>Advisory.</strong> ", out);
+    fputs("</h1>\n<p class=\"caution\">", out);
     report_html_text(out, report_caution);
     fputs("</p>\n<dl class=\"facts\"><dt>Period</dt><dd>", out);
     report_html_text(out, period);
@@ -274,50 +274,33 @@ void report_html_end(FILE *out)
           out);
 }
 
-static void report_meta_insert(report_meta *meta, const char *name)
-{
-    if (meta->status == MITILOG_OK)
-        meta->status = store_scratch_bind_text(meta->insert, ":name", name);
-    if (meta->status == MITILOG_OK)
-        meta->status = store_scratch_run(meta->insert, meta->error);
-    else
-        mitilog_error_set(meta->error, meta->status, "report: meta %s", name);
-}
-
 void report_meta_text(report_meta *meta, const char *name, const char *text)
 {
-    if (meta->status == MITILOG_OK)
-        meta->status = store_scratch_bind_text(meta->insert, ":value", text);
-    if (meta->status == MITILOG_OK)
-        meta->status = store_scratch_bind_int(meta->insert, ":is_bool", 0);
-    report_meta_insert(meta, name);
+    json_key(meta->writer, name);
+    json_string(meta->writer, text);
 }
 
 void report_meta_number(report_meta *meta, const char *name, int present, double value)
 {
-    if (meta->status == MITILOG_OK)
-        meta->status = store_scratch_bind_double(meta->insert, ":value", present, value);
-    if (meta->status == MITILOG_OK)
-        meta->status = store_scratch_bind_int(meta->insert, ":is_bool", 0);
-    report_meta_insert(meta, name);
+    json_key(meta->writer, name);
+    /* integral values as integers: 3 for 3.0, as these members always read */
+    if (present && isfinite(value) && value == floor(value) && value > -9.2e18 &&
+        value < 9.2e18)
+        json_integer(meta->writer, (long long)value);
+    else
+        json_number(meta->writer, present, value);
 }
 
 void report_meta_int(report_meta *meta, const char *name, long long value)
 {
-    if (meta->status == MITILOG_OK)
-        meta->status = store_scratch_bind_int(meta->insert, ":value", value);
-    if (meta->status == MITILOG_OK)
-        meta->status = store_scratch_bind_int(meta->insert, ":is_bool", 0);
-    report_meta_insert(meta, name);
+    json_key(meta->writer, name);
+    json_integer(meta->writer, value);
 }
 
 void report_meta_bool(report_meta *meta, const char *name, int value)
 {
-    if (meta->status == MITILOG_OK)
-        meta->status = store_scratch_bind_int(meta->insert, ":value", value != 0);
-    if (meta->status == MITILOG_OK)
-        meta->status = store_scratch_bind_int(meta->insert, ":is_bool", 1);
-    report_meta_insert(meta, name);
+    json_key(meta->writer, name);
+    json_boolean(meta->writer, value);
 }
 
 void report_meta_common(report_meta *meta, const store_period_info *info, size_t captures,

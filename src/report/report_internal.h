@@ -4,7 +4,8 @@
  * report_data.c   loads a period's exams and findings and turns them into
  *                 exam_row rows; CSV and HTML writing helpers;
  * report_week.c   the weekly outlier list;
- * report_stats.c  statistics for a period and preset drift.
+ * report_stats.c  statistics for a period and preset drift;
+ * report_pack.c   the statistics as a printable document.
  */
 #ifndef MITILOG_REPORT_INTERNAL_H
 #define MITILOG_REPORT_INTERNAL_H
@@ -12,6 +13,7 @@
 #include <stdio.h>
 
 #include "report/report.h"
+#include "json/json.h"
 
 typedef struct report_data {
     store_exam_list list;           /* the rows and their strings */
@@ -84,11 +86,11 @@ void report_html_end(FILE *out);
 /* The policy statement: "VERSION (name)" or "none recorded ...". */
 const char *report_policy_text(const store_period_info *info, char *buffer, size_t size);
 
-/* Typed key/value pairs of a document's top level (scratch table meta). */
+/* Typed key/value pairs of a document's top level, written as members of
+ * the object open in writer. A number with an integral value is written as
+ * an integer (3, not 3.0), as the documents have always shown them. */
 typedef struct report_meta {
-    store_scratch_statement *insert;
-    mitilog_status status;
-    mitilog_error *error;
+    json_writer *writer;
 } report_meta;
 void report_meta_text(report_meta *meta, const char *name, const char *text);
 void report_meta_number(report_meta *meta, const char *name, int present, double value);
@@ -97,5 +99,19 @@ void report_meta_bool(report_meta *meta, const char *name, int value);
 /* The facts every document states: policy, completeness, caution. */
 void report_meta_common(report_meta *meta, const store_period_info *info,
                         size_t captures, size_t indexed);
+
+/* The statistics document (report_pack.c): what it prints, all borrowed. */
+typedef struct report_pack_input {
+    const char *from, *to;          /* YYYY-MM-DD */
+    stats_dimension by;
+    const char *institution;        /* NULL or "": not configured */
+    const report_data *data;        /* rows loaded with STORE_EXAM_DETAIL */
+    const stats_period_result *result;
+} report_pack_input;
+void report_pack_html(const report_pack_input *in, FILE *out);
+/* The label and governing index the exams of one row recorded (NULL when
+ * none; governing "mixed" when they differ). */
+void report_pack_row_facts(const report_data *data, stats_dimension by, const char *key,
+                           const char **label, const char **governing);
 
 #endif

@@ -9,14 +9,11 @@
 #include <stdlib.h>
 #include <string.h>
 
-#define BIND_TEXT(statement, name, value) store_scratch_bind_text(statement, ":" name, value)
-#define BIND_NUMBER(statement, name, present, value)                                  \
-    store_scratch_bind_double(statement, ":" name, present, value)
-#define BIND_INT(statement, name, value) store_scratch_bind_int(statement, ":" name, value)
 
 typedef struct stats_document {
     char from[11], to[11];
     stats_dimension by;
+    const char *institution;
     report_data data;
     stats_period_result result;
 } stats_document;
@@ -26,6 +23,7 @@ static mitilog_status stats_compute(store *st, const report_stats_request *reque
 {
     memset(doc, 0, sizeof *doc);
     doc->by = request->by;
+    doc->institution = request->institution;
     long from_day, to_day;
     if (request->to == NULL || request->to[0] == '\0')
         to_day = report_latest_day(st);
@@ -50,7 +48,9 @@ static mitilog_status stats_compute(store *st, const report_stats_request *reque
     stats_day_text(to_day, doc->to);
     /* Statistics need the grouping column only, not the findings by rule. */
     mitilog_status status = report_data_load(st, doc->from, doc->to,
-                                             report_dimension_column(doc->by), REPORT_LOAD_INFO,
+                                             report_dimension_column(doc->by) |
+                                                 STORE_EXAM_DETAIL,
+                                             REPORT_LOAD_INFO,
                                              &doc->data, error);
     if (status == MITILOG_OK)
         status = stats_period_table(doc->data.rows, doc->data.row_count, doc->by, &doc->result,
@@ -64,78 +64,114 @@ static void stats_document_free(stats_document *doc)
     report_data_free(&doc->data);
 }
 
-static mitilog_status insert_row(store_scratch_statement *row_insert,
-                                 store_scratch_statement *threshold_insert, long long position,
-                                 const stats_period_row *row, int is_total,
-                                 mitilog_error *error)
+static void distribution_json(json_writer *w, const char *name, const stats_distribution *d)
+{
+    int valued = d->count > 0;
+    json_key(w, name);
+    json_object_begin(w);
+    json_key(w, "count");
+    json_integer(w, (long long)d->count);
+    json_key(w, "min");
+    json_number(w, valued, d->minimum);
+    json_key(w, "p05");
+    json_number(w, valued, d->p05);
+    json_key(w, "p25");
+    json_number(w, valued, d->p25);
+    json_key(w, "median");
+    json_number(w, valued, d->median);
+    json_key(w, "p75");
+    json_number(w, valued, d->p75);
+    json_key(w, "p95");
+    json_number(w, valued, d->p95);
+    json_key(w, "max");
+    json_number(w, valued, d->maximum);
+    json_object_end(w);
+}
+
+/* The thresholds of a row in ascending order (the ladder's order). */
+static int threshold_compare(const void *left, const void *right)
+{
+    const stats_threshold_time *a = *(const stats_threshold_time *const *)left;
+    const stats_threshold_time *b = *(const stats_threshold_time *const *)right;
+    return (a->threshold > b->threshold) - (a->threshold < b->threshold);
+}
+
+static void row_json(json_writer *w, const stats_document *doc, const stats_period_row *row,
+                     int is_total)
 {
     double completeness = report_completeness(row->capture_count, row->indexed_count);
-    BIND_INT(row_insert, "position", position);
-    BIND_TEXT(row_insert, "key", is_total ? "(all)" : row->key);
-    BIND_INT(row_insert, "is_total", is_total);
-    BIND_INT(row_insert, "exam_count", (long long)row->exam_count);
-    BIND_INT(row_insert, "with_findings_count", (long long)row->with_findings_count);
-    BIND_NUMBER(row_insert, "share_with_findings", 1, row->share_with_findings);
-    BIND_INT(row_insert, "capture_count", (long long)row->capture_count);
-    BIND_INT(row_insert, "indexed_count", (long long)row->indexed_count);
-    BIND_NUMBER(row_insert, "completeness", 1, completeness);
-    const stats_distribution *g = &row->governing, *mi = &row->mi;
-    int hg = g->count > 0, hm = mi->count > 0;
-    BIND_INT(row_insert, "g_count", (long long)g->count);
-    BIND_NUMBER(row_insert, "g_min", hg, g->minimum);
-    BIND_NUMBER(row_insert, "g_p05", hg, g->p05);
-    BIND_NUMBER(row_insert, "g_p25", hg, g->p25);
-    BIND_NUMBER(row_insert, "g_median", hg, g->median);
-    BIND_NUMBER(row_insert, "g_p75", hg, g->p75);
-    BIND_NUMBER(row_insert, "g_p95", hg, g->p95);
-    BIND_NUMBER(row_insert, "g_max", hg, g->maximum);
-    BIND_INT(row_insert, "mi_count", (long long)mi->count);
-    BIND_NUMBER(row_insert, "mi_min", hm, mi->minimum);
-    BIND_NUMBER(row_insert, "mi_p05", hm, mi->p05);
-    BIND_NUMBER(row_insert, "mi_p25", hm, mi->p25);
-    BIND_NUMBER(row_insert, "mi_median", hm, mi->median);
-    BIND_NUMBER(row_insert, "mi_p75", hm, mi->p75);
-    BIND_NUMBER(row_insert, "mi_p95", hm, mi->p95);
-    BIND_NUMBER(row_insert, "mi_max", hm, mi->maximum);
+    json_object_begin(w);
+    json_key(w, "key");
+    json_string(w, is_total ? "(all)" : row->key);
+    const char *label = NULL, *governing = NULL;
+    if (!is_total)
+        report_pack_row_facts(&doc->data, doc->by, row->key, &label, &governing);
+    json_key(w, "label");
+    json_string(w, label);
+    json_key(w, "governing_index");
+    json_string(w, governing);
+    json_key(w, "governing_without_value");
+    json_integer(w, (long long)(row->exam_count - row->governing.count));
+    json_key(w, "exam_count");
+    json_integer(w, (long long)row->exam_count);
+    json_key(w, "exams_with_findings");
+    json_integer(w, (long long)row->with_findings_count);
+    json_key(w, "share_with_findings");
+    json_number(w, 1, row->share_with_findings);
+    json_key(w, "captures");
+    json_integer(w, (long long)row->capture_count);
+    json_key(w, "captures_with_indices");
+    json_integer(w, (long long)row->indexed_count);
+    json_key(w, "data_completeness");
+    json_number(w, 1, completeness);
+    distribution_json(w, "governing", &row->governing);
+    distribution_json(w, "mi", &row->mi);
     const stats_distribution *est = &row->estimated_seconds;
-    BIND_INT(row_insert, "est_count", (long long)est->count);
-    BIND_NUMBER(row_insert, "est_median", est->count > 0, est->median);
-    BIND_NUMBER(row_insert, "est_p75", est->count > 0, est->p75);
-    BIND_NUMBER(row_insert, "est_p95", est->count > 0, est->p95);
-    mitilog_status status = store_scratch_run(row_insert, error);
-    for (int t = 0; status == MITILOG_OK && t < EXAM_TI_STATISTICS_STEPS; t++) {
-        const stats_threshold_time *time = &row->thresholds[t];
-        int valued = g->count > 0;
-        BIND_INT(threshold_insert, "row_position", position);
-        BIND_NUMBER(threshold_insert, "threshold", 1, time->threshold);
-        BIND_INT(threshold_insert, "exam_count", (long long)time->exam_count);
-        BIND_NUMBER(threshold_insert, "median_seconds", valued, time->median_seconds);
-        BIND_NUMBER(threshold_insert, "p95_seconds", valued, time->p95_seconds);
-        BIND_NUMBER(threshold_insert, "total_seconds", 1, time->total_seconds);
-        status = store_scratch_run(threshold_insert, error);
+    json_key(w, "estimated_seconds");
+    json_object_begin(w);
+    json_key(w, "count");
+    json_integer(w, (long long)est->count);
+    json_key(w, "median");
+    json_number(w, est->count > 0, est->median);
+    json_key(w, "p75");
+    json_number(w, est->count > 0, est->p75);
+    json_key(w, "p95");
+    json_number(w, est->count > 0, est->p95);
+    json_object_end(w);
+
+    const stats_threshold_time *order[EXAM_TI_STATISTICS_STEPS];
+    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++)
+        order[t] = &row->thresholds[t];
+    qsort(order, EXAM_TI_STATISTICS_STEPS, sizeof order[0], threshold_compare);
+    int valued = row->governing.count > 0;
+    json_key(w, "time_at_or_above");
+    json_array_begin(w);
+    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++) {
+        const stats_threshold_time *time = order[t];
+        json_object_begin(w);
+        json_key(w, "threshold");
+        json_number(w, 1, time->threshold);
+        json_key(w, "exam_count");
+        json_integer(w, (long long)time->exam_count);
+        json_key(w, "median_seconds");
+        json_number(w, valued, time->median_seconds);
+        json_key(w, "p95_seconds");
+        json_number(w, valued, time->p95_seconds);
+        json_key(w, "total_seconds");
+        json_number(w, 1, time->total_seconds);
+        json_object_end(w);
     }
-    return status;
+    json_array_end(w);
+    json_object_end(w);
 }
 
 static mitilog_status stats_json(const stats_document *doc, char **out, mitilog_error *error)
 {
-    store_scratch *scratch = NULL;
-    store_scratch_statement *meta_insert, *row_insert, *threshold_insert, *query;
-    mitilog_status status = store_scratch_open("queries/report_schema.sql", &scratch, error);
-    if (status == MITILOG_OK)
-        status = store_scratch_prepare(scratch, "queries/report_insert_meta.sql", &meta_insert,
-                                       error);
-    if (status == MITILOG_OK)
-        status = store_scratch_prepare(scratch, "queries/report_insert_stat_row.sql",
-                                       &row_insert, error);
-    if (status == MITILOG_OK)
-        status = store_scratch_prepare(scratch, "queries/report_insert_stat_threshold.sql",
-                                       &threshold_insert, error);
-    if (status == MITILOG_OK)
-        status = store_scratch_prepare(scratch, "queries/report_stats_json.sql", &query, error);
-    if (status != MITILOG_OK)
-        goto done;
-    report_meta meta = {meta_insert, MITILOG_OK, error};
+    json_writer json;
+    json_writer_init(&json);
+    json_writer *w = &json;
+    json_object_begin(w);
+    report_meta meta = {w};
     report_meta_text(&meta, "report", "statistics");
     report_meta_text(&meta, "from", doc->from);
     report_meta_text(&meta, "to", doc->to);
@@ -145,21 +181,22 @@ static mitilog_status stats_json(const stats_document *doc, char **out, mitilog_
                      "method='inclusive', R type 7)");
     report_meta_text(&meta, "governing_value", "highest governing thermal index of each exam");
     report_meta_int(&meta, "exam_count", (long long)doc->result.total.exam_count);
+    report_meta_text(&meta, "institution", doc->institution);
     report_meta_common(&meta, &doc->data.info, doc->data.capture_count,
                        doc->data.indexed_count);
-    status = meta.status;
-    for (size_t r = 0; status == MITILOG_OK && r < doc->result.row_count; r++)
-        status = insert_row(row_insert, threshold_insert, (long long)r + 1,
-                            &doc->result.rows[r], 0, error);
-    if (status == MITILOG_OK)
-        status = insert_row(row_insert, threshold_insert, (long long)doc->result.row_count + 1,
-                            &doc->result.total, 1, error);
-    if (status == MITILOG_OK)
-        status = store_scratch_text(query, out, error);
-done:
-    store_scratch_close(scratch);
+    json_key(w, "rows");
+    json_array_begin(w);
+    for (size_t r = 0; r < doc->result.row_count; r++)
+        row_json(w, doc, &doc->result.rows[r], 0);
+    json_array_end(w);
+    json_key(w, "total");
+    row_json(w, doc, &doc->result.total, 1);
+    json_object_end(w);
+    mitilog_status status = json_writer_take(w, out, error);
+    json_writer_free(w);
     return status;
 }
+
 
 static const char *const stats_csv_columns[] = {
     "record", "from", "to", "by", "key", "exams", "exams_with_findings",
@@ -170,11 +207,12 @@ static const char *const stats_csv_columns[] = {
     "exams_at_or_above_1_0", "minutes_at_or_above_1_0_median", "minutes_at_or_above_1_0_p95",
     "exams_at_or_above_1_5", "minutes_at_or_above_1_5_median", "minutes_at_or_above_1_5_p95",
     "exams_at_or_above_2_0", "minutes_at_or_above_2_0_median", "minutes_at_or_above_2_0_p95",
-    "data_completeness", "policy_version", "note"};
+    "data_completeness", "policy_version", "note", "label", "governing_index",
+    "governing_without_value", "institution"};
 enum { STATS_CSV_COLUMNS = sizeof stats_csv_columns / sizeof stats_csv_columns[0] };
 
 static void stats_csv_row(const stats_document *doc, FILE *out, const stats_period_row *row,
-                          const char *record, const char *key)
+                          const char *record, const char *key, int is_total)
 {
     const stats_distribution *g = &row->governing, *mi = &row->mi, *est = &row->estimated_seconds;
     report_csv_field(out, 1, record);
@@ -207,6 +245,13 @@ static void stats_csv_row(const stats_document *doc, FILE *out, const stats_peri
     report_csv_number(out, isfinite(completeness), completeness);
     report_csv_field(out, 0, doc->data.info.policy_version);
     report_csv_field(out, 0, "");
+    const char *label = NULL, *governing = NULL;
+    if (!is_total)
+        report_pack_row_facts(&doc->data, doc->by, row->key, &label, &governing);
+    report_csv_field(out, 0, label);
+    report_csv_field(out, 0, governing);
+    report_csv_count(out, row->exam_count - g->count);
+    report_csv_field(out, 0, "");
     report_csv_end(out);
 }
 
@@ -227,95 +272,35 @@ static void stats_csv(const stats_document *doc, FILE *out)
     report_csv_field(out, 0, stats_dimension_name(doc->by));
     report_csv_field(out, 0, "");
     report_csv_count(out, doc->result.total.exam_count);
-    for (int c = 6; c < STATS_CSV_COLUMNS - 3; c++)
+    for (int c = 6; c < STATS_CSV_COLUMNS - 7; c++)
         fputc(',', out);
     report_csv_number(out, isfinite(completeness), completeness);
     report_csv_field(out, 0, report_policy_text(&doc->data.info, policy, sizeof policy));
     report_csv_field(out, 0, note);
+    report_csv_field(out, 0, "");
+    report_csv_field(out, 0, "");
+    report_csv_field(out, 0, "");
+    report_csv_field(out, 0, doc->institution != NULL ? doc->institution : "");
     report_csv_end(out);
     for (size_t r = 0; r < doc->result.row_count; r++) {
         const stats_period_row *row = &doc->result.rows[r];
-        stats_csv_row(doc, out, row, "row", row->key != NULL ? row->key : "(not recorded)");
+        stats_csv_row(doc, out, row, "row", row->key != NULL ? row->key : "(not recorded)", 0);
     }
-    stats_csv_row(doc, out, &doc->result.total, "total", "(all)");
-}
-
-static void html_number_cell(FILE *out, int present, double value, int digits)
-{
-    fputs("<td class=\"n\">", out);
-    report_html_number(out, present, value, digits);
-    fputs("</td>", out);
-}
-
-static void stats_html_row(FILE *out, const stats_period_row *row, const char *key, int total)
-{
-    const stats_distribution *g = &row->governing, *mi = &row->mi;
-    fputs(total ? "<tr class=\"flag\"><td>" : "<tr><td>", out);
-    report_html_text(out, key);
-    fprintf(out, "</td><td class=\"n\">%zu</td>", row->exam_count);
-    html_number_cell(out, g->count > 0, g->median, 3);
-    html_number_cell(out, g->count > 0, g->p75, 3);
-    html_number_cell(out, g->count > 0, g->p95, 3);
-    html_number_cell(out, mi->count > 0, mi->median, 3);
-    html_number_cell(out, mi->count > 0, mi->p75, 3);
-    html_number_cell(out, mi->count > 0, mi->p95, 3);
-    fprintf(out, "<td class=\"n\">%.0f %%</td>", 100.0 * row->share_with_findings);
-    html_number_cell(out, row->estimated_seconds.count > 0,
-                     row->estimated_seconds.median / 60.0, 3);
-    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++) {
-        fprintf(out, "<td class=\"n\">%zu / ", row->thresholds[t].exam_count);
-        report_html_number(out, g->count > 0, row->thresholds[t].p95_seconds / 60.0, 3);
-        fputs("</td>", out);
-    }
-    double completeness = report_completeness(row->capture_count, row->indexed_count);
-    fputs("<td class=\"n\">", out);
-    if (isfinite(completeness))
-        fprintf(out, "%.0f %%", 100.0 * completeness);
-    else
-        fputs("&mdash;", out);
-    fputs("</td></tr>\n", out);
+    stats_csv_row(doc, out, &doc->result.total, "total", "(all)", 1);
 }
 
 static void stats_html(const stats_document *doc, FILE *out)
 {
-    char title[128], period[128];
-    const char *by = stats_dimension_name(doc->by);
-    snprintf(title, sizeof title, "Exposure statistics by %s, %s to %s", by, doc->from, doc->to);
-    snprintf(period, sizeof period, "%s to %s (local dates of each exam's first capture)",
-             doc->from, doc->to);
-    report_html_begin(out, title, period, &doc->data.info,
-                      report_completeness(doc->data.capture_count, doc->data.indexed_count),
-                      doc->data.capture_count, doc->data.indexed_count);
-    fputs("<p>Per exam: the highest governing thermal index (TIS, TIB or TIC as the exam "
-          "type requires) and the highest MI. Columns &ldquo;at or above&rdquo;: exams with "
-          "any estimated time at or above that governing TI / 95th percentile of minutes.</p>\n"
-          "<table><thead><tr><th>",
-          out);
-    report_html_text(out, by);
-    fputs("</th><th>Exams</th><th>TI median</th><th>TI P75</th><th>TI P95</th>"
-          "<th>MI median</th><th>MI P75</th><th>MI P95</th><th>With findings</th>"
-          "<th>Scan minutes (median)</th>",
-          out);
-    for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++) {
-        char label[EXAM_TI_LABEL_SIZE];
-        exam_ti_threshold_label(exam_ti_ladder[t], label);
-        fprintf(out, "<th>&ge; %s: exams / P95 min</th>", label);
-    }
-    fputs("<th>Captures with indices</th></tr></thead><tbody>\n", out);
-    for (size_t r = 0; r < doc->result.row_count; r++) {
-        const stats_period_row *row = &doc->result.rows[r];
-        stats_html_row(out, row, row->key != NULL ? row->key : "(not recorded)", 0);
-    }
-    stats_html_row(out, &doc->result.total, "All exams", 1);
-    fputs("</tbody></table>\n", out);
-    report_html_end(out);
+    report_pack_input in = {doc->from, doc->to, doc->by, doc->institution, &doc->data,
+                            &doc->result};
+    report_pack_html(&in, out);
 }
 
 mitilog_status report_stats(store *st, const report_stats_request *request,
                             report_format format, char **out, mitilog_error *error)
 {
     *out = NULL;
-    report_stats_request defaults = {NULL, NULL, STATS_BY_EXAM_TYPE};
+    report_stats_request defaults = {NULL, NULL, STATS_BY_EXAM_TYPE, NULL};
     if (request == NULL)
         request = &defaults;
     stats_document doc;
@@ -376,7 +361,6 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
     report_data data;
     stats_drift_result result;
     memset(&result, 0, sizeof result);
-    store_scratch *scratch = NULL;
     mitilog_status status = report_data_load(st, from, to,
                                              STORE_EXAM_DAY | STORE_EXAM_ROOM |
                                                  STORE_EXAM_PRESET,
@@ -386,23 +370,13 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
     status = stats_drift(data.rows, data.row_count, first_monday, weeks, baseline_weeks,
                          request->minimum_baseline ? request->minimum_baseline : 10,
                          request->z_limit > 0 ? request->z_limit : 3.0, &result, error);
-    store_scratch_statement *meta_insert, *series_insert, *point_insert, *query;
-    if (status == MITILOG_OK)
-        status = store_scratch_open("queries/report_schema.sql", &scratch, error);
-    if (status == MITILOG_OK)
-        status = store_scratch_prepare(scratch, "queries/report_insert_meta.sql", &meta_insert,
-                                       error);
-    if (status == MITILOG_OK)
-        status = store_scratch_prepare(scratch, "queries/report_insert_drift_series.sql",
-                                       &series_insert, error);
-    if (status == MITILOG_OK)
-        status = store_scratch_prepare(scratch, "queries/report_insert_drift_point.sql",
-                                       &point_insert, error);
-    if (status == MITILOG_OK)
-        status = store_scratch_prepare(scratch, "queries/report_drift_json.sql", &query, error);
+    json_writer json;
+    json_writer_init(&json);
+    json_writer *w = &json;
     if (status == MITILOG_OK) {
         char week_text[9];
-        report_meta meta = {meta_insert, MITILOG_OK, error};
+        json_object_begin(w);
+        report_meta meta = {w};
         report_meta_text(&meta, "report", "preset_drift");
         stats_iso_week_text(year, week, week_text);
         report_meta_text(&meta, "last_week", week_text);
@@ -418,41 +392,59 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
                          "room; z = (median - baseline median) / (1.4826 MAD x 1.2533 / "
                          "sqrt(n)) against the same series' exams of the baseline weeks");
         report_meta_common(&meta, &data.info, data.capture_count, data.indexed_count);
-        status = meta.status;
+        json_key(w, "series");
+        json_array_begin(w);
     }
     for (size_t s = 0; status == MITILOG_OK && s < result.series_count; s++) {
         const stats_drift_series *series = &result.series[s];
-        BIND_INT(series_insert, "position", (long long)s + 1);
-        BIND_TEXT(series_insert, "preset", series->preset);
-        BIND_TEXT(series_insert, "room", series->room);
-        BIND_TEXT(series_insert, "exam_type", series->exam_type);
-        BIND_INT(series_insert, "flagged_count", (long long)series->flagged_count);
-        BIND_NUMBER(series_insert, "max_abs_z", 1, series->max_abs_z);
-        status = store_scratch_run(series_insert, error);
-        for (size_t w = 0; status == MITILOG_OK && w < weeks; w++) {
-            const stats_drift_point *point = &series->points[w];
+        json_object_begin(w);
+        json_key(w, "preset");
+        json_string(w, series->preset);
+        json_key(w, "room");
+        json_string(w, series->room);
+        json_key(w, "exam_type");
+        json_string(w, series->exam_type);
+        json_key(w, "flagged_weeks");
+        json_integer(w, (long long)series->flagged_count);
+        json_key(w, "max_abs_z");
+        json_number(w, 1, series->max_abs_z);
+        json_key(w, "points");
+        json_array_begin(w);
+        for (size_t p = 0; p < weeks; p++) {
+            const stats_drift_point *point = &series->points[p];
             char week_text[9], monday[11];
             stats_iso_week_text(point->iso_year, point->iso_week, week_text);
-            stats_day_text(first_monday + 7L * (long)w, monday);
-            BIND_INT(point_insert, "series_position", (long long)s + 1);
-            BIND_INT(point_insert, "position", (long long)w + 1);
-            BIND_TEXT(point_insert, "week", week_text);
-            BIND_TEXT(point_insert, "monday", monday);
-            BIND_INT(point_insert, "count", (long long)point->count);
-            BIND_NUMBER(point_insert, "median", point->has_median, point->median);
-            BIND_INT(point_insert, "baseline_count", (long long)point->baseline_count);
-            BIND_NUMBER(point_insert, "baseline_median", point->baseline_count > 0,
-                        point->baseline_median);
-            BIND_NUMBER(point_insert, "baseline_mad", point->baseline_count > 0,
-                        point->baseline_mad);
-            BIND_NUMBER(point_insert, "z", point->has_z, point->z);
-            BIND_INT(point_insert, "flagged", point->flagged);
-            status = store_scratch_run(point_insert, error);
+            stats_day_text(first_monday + 7L * (long)p, monday);
+            json_object_begin(w);
+            json_key(w, "week");
+            json_string(w, week_text);
+            json_key(w, "monday");
+            json_string(w, monday);
+            json_key(w, "count");
+            json_integer(w, (long long)point->count);
+            json_key(w, "median");
+            json_number(w, point->has_median, point->median);
+            json_key(w, "baseline_count");
+            json_integer(w, (long long)point->baseline_count);
+            json_key(w, "baseline_median");
+            json_number(w, point->baseline_count > 0, point->baseline_median);
+            json_key(w, "baseline_mad");
+            json_number(w, point->baseline_count > 0, point->baseline_mad);
+            json_key(w, "z");
+            json_number(w, point->has_z, point->z);
+            json_key(w, "flagged");
+            json_boolean(w, point->flagged);
+            json_object_end(w);
         }
+        json_array_end(w);
+        json_object_end(w);
     }
-    if (status == MITILOG_OK)
-        status = store_scratch_text(query, out, error);
-    store_scratch_close(scratch);
+    if (status == MITILOG_OK) {
+        json_array_end(w);
+        json_object_end(w);
+        status = json_writer_take(w, out, error);
+    }
+    json_writer_free(w);
     stats_drift_result_free(&result);
     report_data_free(&data);
     return status;

@@ -133,39 +133,23 @@ static void week_thin_types(const week_document *doc, FILE *out, int html)
 
 /* ---- JSON ---- */
 
-#define BIND_TEXT(statement, name, value) store_scratch_bind_text(statement, ":" name, value)
-#define BIND_NUMBER(statement, name, present, value)                                  \
-    store_scratch_bind_double(statement, ":" name, present, value)
-#define BIND_INT(statement, name, value) store_scratch_bind_int(statement, ":" name, value)
+/* The rules of a group by rule id, in byte order. */
+static int rule_count_compare(const void *left, const void *right)
+{
+    const stats_rule_tally *a = left, *b = right;
+    if (a->rule_id == NULL || b->rule_id == NULL)
+        return (a->rule_id != NULL) - (b->rule_id != NULL);
+    return strcmp(a->rule_id, b->rule_id);
+}
 
 static mitilog_status week_json(const week_document *doc, char **out, mitilog_error *error)
 {
-    store_scratch *scratch = NULL;
-    store_scratch_statement *meta_insert, *baseline_insert, *group_insert, *rule_insert,
-        *exam_insert, *query;
-    mitilog_status status = store_scratch_open("queries/report_schema.sql", &scratch, error);
-    if (status == MITILOG_OK)
-        status = store_scratch_prepare(scratch, "queries/report_insert_meta.sql", &meta_insert,
-                                       error);
-    if (status == MITILOG_OK)
-        status = store_scratch_prepare(scratch, "queries/report_insert_baseline.sql",
-                                       &baseline_insert, error);
-    if (status == MITILOG_OK)
-        status = store_scratch_prepare(scratch, "queries/report_insert_group.sql",
-                                       &group_insert, error);
-    if (status == MITILOG_OK)
-        status = store_scratch_prepare(scratch, "queries/report_insert_group_rule.sql",
-                                       &rule_insert, error);
-    if (status == MITILOG_OK)
-        status = store_scratch_prepare(scratch, "queries/report_insert_group_exam.sql",
-                                       &exam_insert, error);
-    if (status == MITILOG_OK)
-        status = store_scratch_prepare(scratch, "queries/report_week_json.sql", &query, error);
-    if (status != MITILOG_OK)
-        goto done;
-
+    json_writer json;
+    json_writer_init(&json);
+    json_writer *w = &json;
     const stats_week_settings *settings = &doc->request->settings;
-    report_meta meta = {meta_insert, MITILOG_OK, error};
+    json_object_begin(w);
+    report_meta meta = {w};
     report_meta_text(&meta, "report", "weekly_outliers");
     report_meta_text(&meta, "week", doc->week);
     report_meta_text(&meta, "from", doc->monday);
@@ -182,90 +166,158 @@ static mitilog_status week_json(const week_document *doc, char **out, mitilog_er
     report_meta_int(&meta, "baseline_exam_count", (long long)doc->baseline_count);
     report_meta_int(&meta, "outlier_count", (long long)doc->outliers);
     report_meta_common(&meta, &doc->week_info, doc->captures, doc->indexed);
-    status = meta.status;
 
-    for (size_t b = 0; status == MITILOG_OK && b < doc->result.baseline_count; b++) {
+    json_key(w, "baselines");
+    json_array_begin(w);
+    for (size_t b = 0; b < doc->result.baseline_count; b++) {
         const stats_baseline *base = &doc->result.baselines[b];
-        BIND_INT(baseline_insert, "position", (long long)b + 1);
-        BIND_TEXT(baseline_insert, "exam_type", base->exam_type);
-        BIND_INT(baseline_insert, "count", (long long)base->count);
-        BIND_INT(baseline_insert, "trailing_count", (long long)base->trailing_count);
-        BIND_INT(baseline_insert, "thin", base->thin);
-        BIND_NUMBER(baseline_insert, "median", base->count > 0, base->median);
-        BIND_NUMBER(baseline_insert, "mad", base->count > 0, base->mad);
-        BIND_NUMBER(baseline_insert, "p95", base->count > 0, base->p95);
-        status = store_scratch_run(baseline_insert, error);
+        json_object_begin(w);
+        json_key(w, "exam_type");
+        json_string(w, base->exam_type);
+        json_key(w, "count");
+        json_integer(w, (long long)base->count);
+        json_key(w, "trailing_count");
+        json_integer(w, (long long)base->trailing_count);
+        json_key(w, "thin");
+        json_boolean(w, base->thin);
+        json_key(w, "median");
+        json_number(w, base->count > 0, base->median);
+        json_key(w, "mad");
+        json_number(w, base->count > 0, base->mad);
+        json_key(w, "p95");
+        json_number(w, base->count > 0, base->p95);
+        json_object_end(w);
     }
+    json_array_end(w);
+
+    mitilog_status status = MITILOG_OK;
+    json_key(w, "groups");
+    json_array_begin(w);
     for (size_t g = 0; status == MITILOG_OK && g < doc->result.group_count; g++) {
         const stats_group *group = &doc->result.groups[g];
-        long long position = (long long)g + 1;
         double completeness = report_completeness(group->capture_count, group->indexed_count);
-        BIND_INT(group_insert, "position", position);
-        BIND_TEXT(group_insert, "key", group->key);
-        BIND_INT(group_insert, "exam_count", (long long)group->exam_count);
-        BIND_INT(group_insert, "valued_count", (long long)group->valued_count);
-        BIND_INT(group_insert, "outlier_count", (long long)group->outlier_count);
-        BIND_NUMBER(group_insert, "outlier_rate", 1, group->outlier_rate);
-        BIND_NUMBER(group_insert, "median_governing", group->has_median,
-                    group->median_governing);
-        BIND_NUMBER(group_insert, "department_median", group->has_median,
-                    group->department_median);
-        BIND_NUMBER(group_insert, "median_ratio", 1, ratio(group));
-        BIND_NUMBER(group_insert, "median_mi", 1, group->median_mi);
-        BIND_INT(group_insert, "capture_count", (long long)group->capture_count);
-        BIND_INT(group_insert, "indexed_count", (long long)group->indexed_count);
-        BIND_NUMBER(group_insert, "completeness", 1, completeness);
-        BIND_INT(group_insert, "finding_count", (long long)group->finding_count);
-        status = store_scratch_run(group_insert, error);
-        for (size_t r = 0; status == MITILOG_OK && r < group->rule_count; r++) {
-            BIND_INT(rule_insert, "group_position", position);
-            BIND_TEXT(rule_insert, "rule_id", group->rules[r].rule_id);
-            BIND_INT(rule_insert, "count", (long long)group->rules[r].count);
-            status = store_scratch_run(rule_insert, error);
+        json_object_begin(w);
+        json_key(w, "rank");
+        json_integer(w, (long long)g + 1);
+        json_key(w, "key");
+        json_string(w, group->key);
+        json_key(w, "exam_count");
+        json_integer(w, (long long)group->exam_count);
+        json_key(w, "valued_count");
+        json_integer(w, (long long)group->valued_count);
+        json_key(w, "outlier_count");
+        json_integer(w, (long long)group->outlier_count);
+        json_key(w, "outlier_rate");
+        json_number(w, 1, group->outlier_rate);
+        json_key(w, "median_governing");
+        json_number(w, group->has_median, group->median_governing);
+        json_key(w, "department_median");
+        json_number(w, group->has_median, group->department_median);
+        json_key(w, "median_ratio");
+        json_number(w, 1, ratio(group));
+        json_key(w, "median_mi");
+        json_number(w, 1, group->median_mi);
+        json_key(w, "captures");
+        json_integer(w, (long long)group->capture_count);
+        json_key(w, "captures_with_indices");
+        json_integer(w, (long long)group->indexed_count);
+        json_key(w, "data_completeness");
+        json_number(w, 1, completeness);
+        json_key(w, "finding_count");
+        json_integer(w, (long long)group->finding_count);
+
+        json_key(w, "findings_by_rule");
+        json_array_begin(w);
+        stats_rule_tally *rules = NULL;
+        if (group->rule_count > 0) {
+            rules = malloc(group->rule_count * sizeof *rules);
+            if (rules == NULL) {
+                status = mitilog_error_set(error, MITILOG_ERROR_MEMORY,
+                                           "weekly report: out of memory");
+                break;
+            }
+            memcpy(rules, group->rules, group->rule_count * sizeof *rules);
+            qsort(rules, group->rule_count, sizeof *rules, rule_count_compare);
         }
-        for (size_t m = 0; status == MITILOG_OK && m < group->member_count; m++) {
+        for (size_t r = 0; r < group->rule_count; r++) {
+            json_object_begin(w);
+            json_key(w, "rule_id");
+            json_string(w, rules[r].rule_id);
+            json_key(w, "count");
+            json_integer(w, (long long)rules[r].count);
+            json_object_end(w);
+        }
+        free(rules);
+        json_array_end(w);
+
+        json_key(w, "exams");
+        json_array_begin(w);
+        for (size_t m = 0; m < group->member_count; m++) {
             size_t e = group->members[m];
             if (!week_listed(doc, e))
                 continue;
             const stats_exam_flag *flag = &doc->result.flags[e];
             const stats_baseline *base = &doc->result.baselines[flag->baseline];
-            size_t row_index = doc->week_rows[e];
-            const exam_row *row = &doc->data.rows[row_index];
-            BIND_INT(exam_insert, "group_position", position);
-            BIND_INT(exam_insert, "position", (long long)m + 1);
-            BIND_TEXT(exam_insert, "study_instance_uid", row->study_instance_uid);
+            const exam_row *row = &doc->data.rows[doc->week_rows[e]];
             char study_key[9];
             report_study_key(row->study_instance_uid, study_key);
-            BIND_TEXT(exam_insert, "study_key", study_key);
-            BIND_TEXT(exam_insert, "day", row->day);
-            BIND_TEXT(exam_insert, "first_acquired_at", row->first_acquired_at);
-            BIND_TEXT(exam_insert, "exam_type", row->exam_type);
-            BIND_TEXT(exam_insert, "exam_type_label", row->exam_type_label);
-            BIND_TEXT(exam_insert, "study_description", row->study_description);
-            BIND_TEXT(exam_insert, "room", row->room);
-            BIND_TEXT(exam_insert, "preset", row->preset);
-            BIND_TEXT(exam_insert, "shift", row->shift);
-            BIND_TEXT(exam_insert, "transducer", row->transducer);
-            BIND_TEXT(exam_insert, "governing_index", row->governing_index);
-            BIND_NUMBER(exam_insert, "max_governing", row->has_governing,
-                        row->max_governing);
-            BIND_NUMBER(exam_insert, "max_mi", row->has_mi, row->max_mi);
-            BIND_NUMBER(exam_insert, "robust_z", 1, flag->robust_z);
-            BIND_INT(exam_insert, "above_robust_z", flag->above_robust_z);
-            BIND_INT(exam_insert, "above_p95", flag->above_p95);
-            BIND_INT(exam_insert, "outlier", flag->is_outlier);
-            BIND_INT(exam_insert, "finding_count", (long long)doc->week_exams[e].finding_count);
-            BIND_INT(exam_insert, "baseline_thin", base->thin);
-            BIND_NUMBER(exam_insert, "baseline_median", base->count > 0, base->median);
-            BIND_NUMBER(exam_insert, "baseline_p95", base->count > 0, base->p95);
-            BIND_NUMBER(exam_insert, "estimated_seconds", 1, row->estimated_seconds);
-            status = store_scratch_run(exam_insert, error);
+            json_object_begin(w);
+            json_key(w, "study_instance_uid");
+            json_string(w, row->study_instance_uid);
+            json_key(w, "study_key");
+            json_string(w, study_key);
+            json_key(w, "day");
+            json_string(w, row->day);
+            json_key(w, "first_acquired_at");
+            json_string(w, row->first_acquired_at);
+            json_key(w, "exam_type");
+            json_string(w, row->exam_type);
+            json_key(w, "exam_type_label");
+            json_string(w, row->exam_type_label);
+            json_key(w, "study_description");
+            json_string(w, row->study_description);
+            json_key(w, "room");
+            json_string(w, row->room);
+            json_key(w, "preset");
+            json_string(w, row->preset);
+            json_key(w, "shift");
+            json_string(w, row->shift);
+            json_key(w, "transducer");
+            json_string(w, row->transducer);
+            json_key(w, "governing_index");
+            json_string(w, row->governing_index);
+            json_key(w, "max_governing");
+            json_number(w, row->has_governing, row->max_governing);
+            json_key(w, "max_mi");
+            json_number(w, row->has_mi, row->max_mi);
+            json_key(w, "robust_z");
+            json_number(w, 1, flag->robust_z);
+            json_key(w, "above_robust_z");
+            json_boolean(w, flag->above_robust_z);
+            json_key(w, "above_p95");
+            json_boolean(w, flag->above_p95);
+            json_key(w, "outlier");
+            json_boolean(w, flag->is_outlier);
+            json_key(w, "finding_count");
+            json_integer(w, (long long)doc->week_exams[e].finding_count);
+            json_key(w, "baseline_thin");
+            json_boolean(w, base->thin);
+            json_key(w, "baseline_median");
+            json_number(w, base->count > 0, base->median);
+            json_key(w, "baseline_p95");
+            json_number(w, base->count > 0, base->p95);
+            json_key(w, "estimated_seconds");
+            json_number(w, 1, row->estimated_seconds);
+            json_object_end(w);
         }
+        json_array_end(w);
+        json_object_end(w);
     }
+    json_array_end(w);
+    json_object_end(w);
     if (status == MITILOG_OK)
-        status = store_scratch_text(query, out, error);
-done:
-    store_scratch_close(scratch);
+        status = json_writer_take(w, out, error);
+    json_writer_free(w);
     return status;
 }
 
@@ -380,12 +432,23 @@ static void html_cell_text(FILE *out, const char *text)
     fputs("</td>", out);
 }
 
-static void html_cell_number(FILE *out, int present, double value, int digits)
+/* A number with fixed decimals ("—" when absent). */
+static void html_cell_fixed(FILE *out, int present, double value, int decimals)
 {
     fputs("<td class=\"n\">", out);
-    report_html_number(out, present, value, digits);
+    if (present && isfinite(value))
+        fprintf(out, "%.*f", decimals, value);
+    else
+        fputs("&mdash;", out);
     fputs("</td>", out);
 }
+
+static const char week_css[] =
+    "table.exams{font-size:8pt}table.exams td,table.exams th{padding:.05em .3em}\n"
+    "table.exams td{white-space:nowrap}\n"
+    "table.exams tr.group th{background:#f3f6f6;text-align:left}\n"
+    "table.groups{font-size:8.5pt}table.groups td,table.groups th{padding:.05em .3em}\n"
+    "@media print{body{font-size:8.5pt}h2{margin:.6em 0 .2em}}\n";
 
 static void week_html(const week_document *doc, FILE *out)
 {
@@ -410,7 +473,9 @@ static void week_html(const week_document *doc, FILE *out)
         week_thin_types(doc, out, 1);
         fputs(".", out);
     }
-    fputs("</p>\n<h2>Groups</h2>\n<table><thead><tr><th>Rank</th><th>", out);
+    fputs("</p>\n<style>", out);
+    fputs(week_css, out);
+    fputs("</style>\n<h2>Groups</h2>\n<table class=\"groups\"><thead><tr><th>Rank</th><th>", out);
     report_html_text(out, group_by);
     fputs("</th><th>Exams</th><th>Outliers</th><th>Rate</th><th>Median governing TI</th>"
           "<th>Department median (same exam types)</th><th>Median MI</th><th>Findings</th>"
@@ -424,9 +489,9 @@ static void week_html(const week_document *doc, FILE *out)
         fprintf(out, "<td class=\"n\">%zu</td><td class=\"n\">%zu</td>", group->exam_count,
                 group->outlier_count);
         fprintf(out, "<td class=\"n\">%.0f %%</td>", 100.0 * group->outlier_rate);
-        html_cell_number(out, group->has_median, group->median_governing, 3);
-        html_cell_number(out, group->has_median, group->department_median, 3);
-        html_cell_number(out, 1, group->median_mi, 3);
+        html_cell_fixed(out, group->has_median, group->median_governing, 2);
+        html_cell_fixed(out, group->has_median, group->department_median, 2);
+        html_cell_fixed(out, 1, group->median_mi, 2);
         fprintf(out, "<td class=\"n\">%zu</td>", group->finding_count);
         fputs("<td class=\"n\">", out);
         if (isfinite(completeness))
@@ -436,6 +501,11 @@ static void week_html(const week_document *doc, FILE *out)
         fputs("</td></tr>\n", out);
     }
     fputs("</tbody></table>\n", out);
+    /* The listed exams in one table, a heading row per group, one line per
+     * exam: the grouping column is left out (the heading says it), the
+     * reason is short words that do not wrap, numbers have fixed decimals,
+     * so that the busiest week prints on two A4 pages. */
+    int any_listed = 0;
     for (size_t g = 0; g < doc->result.group_count; g++) {
         const stats_group *group = &doc->result.groups[g];
         size_t listed = 0;
@@ -443,13 +513,29 @@ static void week_html(const week_document *doc, FILE *out)
             listed += week_listed(doc, group->members[m]) != 0;
         if (listed == 0)
             continue;
-        fputs("<h3>", out);
+        stats_dimension by = doc->request->group;
+        if (!any_listed) {
+            fputs("<h2>Listed exams</h2>\n<table class=\"exams\"><thead><tr><th>Study key</th>"
+                  "<th>Day</th><th>Exam type</th>",
+                  out);
+            if (by != STATS_BY_ROOM)
+                fputs("<th>Room</th>", out);
+            if (by != STATS_BY_PRESET)
+                fputs("<th>Preset</th>", out);
+            if (by != STATS_BY_SHIFT)
+                fputs("<th>Shift</th>", out);
+            if (by != STATS_BY_TRANSDUCER)
+                fputs("<th>Transducer</th>", out);
+            fputs("<th>Index</th><th>Max</th><th>Max MI</th><th>Robust z</th>"
+                  "<th>Why listed</th></tr></thead><tbody>\n",
+                  out);
+            any_listed = 1;
+        }
+        int columns = 8 + (by != STATS_BY_ROOM) + (by != STATS_BY_PRESET) +
+                      (by != STATS_BY_SHIFT) + (by != STATS_BY_TRANSDUCER);
+        fprintf(out, "<tr class=\"group\"><th colspan=\"%d\">", columns);
         report_html_text(out, group->key != NULL ? group->key : "(not recorded)");
-        fprintf(out, ": %zu exams listed</h3>\n", listed);
-        fputs("<table><thead><tr><th>Study key</th><th>Day</th><th>Exam type</th><th>Room</th>"
-              "<th>Preset</th><th>Shift</th><th>Transducer</th><th>Index</th><th>Max</th>"
-              "<th>Max MI</th><th>Robust z</th><th>Why listed</th></tr></thead><tbody>\n",
-              out);
+        fprintf(out, ": %zu exam%s listed</th></tr>\n", listed, listed == 1 ? "" : "s");
         for (size_t m = 0; m < group->member_count; m++) {
             size_t e = group->members[m];
             if (!week_listed(doc, e))
@@ -463,25 +549,41 @@ static void week_html(const week_document *doc, FILE *out)
             html_cell_text(out, row->day);
             html_cell_text(out, row->exam_type_label != NULL ? row->exam_type_label
                                                              : row->exam_type);
-            html_cell_text(out, row->room);
-            html_cell_text(out, row->preset);
-            html_cell_text(out, row->shift);
-            html_cell_text(out, row->transducer);
-            html_cell_text(out, row->governing_index);
-            html_cell_number(out, row->has_governing, row->max_governing, 3);
-            html_cell_number(out, row->has_mi, row->max_mi, 3);
-            html_cell_number(out, 1, flag->robust_z, 3);
+            if (by != STATS_BY_ROOM)
+                html_cell_text(out, row->room);
+            if (by != STATS_BY_PRESET)
+                html_cell_text(out, row->preset);
+            if (by != STATS_BY_SHIFT)
+                html_cell_text(out, row->shift);
+            if (by != STATS_BY_TRANSDUCER)
+                html_cell_text(out, row->transducer);
             fputs("<td>", out);
-            if (flag->above_robust_z)
-                fputs("robust z above limit; ", out);
-            if (flag->above_p95)
-                fputs("above baseline P95; ", out);
+            for (const char *c = row->governing_index; c != NULL && *c != '\0'; c++)
+                fputc(*c >= 'a' && *c <= 'z' ? *c - 'a' + 'A' : *c, out);
+            if (row->governing_index == NULL)
+                fputs("(not recorded)", out);
+            fputs("</td>", out);
+            html_cell_fixed(out, row->has_governing, row->max_governing, 2);
+            html_cell_fixed(out, row->has_mi, row->max_mi, 2);
+            html_cell_fixed(out, 1, flag->robust_z, 1);
+            fputs("<td class=\"why\">", out);
+            const char *separator = "";
+            if (flag->above_robust_z) {
+                fputs("z above limit", out);
+                separator = "; ";
+            }
+            if (flag->above_p95) {
+                fprintf(out, "%sabove P95", separator);
+                separator = "; ";
+            }
             if (row->finding_count > 0)
-                fprintf(out, "%zu findings", row->finding_count);
+                fprintf(out, "%s%zu finding%s", separator, row->finding_count,
+                        row->finding_count == 1 ? "" : "s");
             fputs("</td></tr>\n", out);
         }
-        fputs("</tbody></table>\n", out);
     }
+    if (any_listed)
+        fputs("</tbody></table>\n", out);
     report_html_end(out);
 }
 

@@ -114,7 +114,7 @@ int rules_policy_rule_at(const rules_policy *policy, size_t index,
 void rules_policy_limits(const rules_policy *policy, exam_group group, rules_age age,
                          exam_limits *limits);
 
-/* Governing index of domain reference section 3 (when the exam does not
+/* Governing index of docs/domain.md section 3 (when the exam does not
  * name one): obstetric < 10 weeks TIS, >= 10 weeks or unknown TIB;
  * transcranial TIC; everything else (neonatal head included) TIS. */
 exam_index rules_governing_index(const rules_exam *exam);

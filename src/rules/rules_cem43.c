@@ -14,7 +14,7 @@ double rules_cem43_minutes(double minutes, double temperature_celsius)
 double rules_cem43_temperature_from_ti(double thermal_index)
 {
     /* Worst case: the displayed TI read as the rise in C above 37 C
-     * (domain reference, section 5). */
+     * (docs/domain.md section 5). */
     return 37.0 + thermal_index;
 }
 

@@ -1,6 +1,6 @@
 /* Dwell-time tables: the estimated time at or above each displayed-TI
  * threshold (governing index) against the table's longest time. "At or
- * above" is >= (domain reference, section 5); a time equal to the limit
+ * above" is >= (docs/domain.md section 5); a time equal to the limit
  * is allowed, a longer one is a finding; a "not recommended" step makes
  * any capture at or above its threshold a finding, even one with no
  * attributed time. */

@@ -67,7 +67,7 @@ static void describe_timeline(const rules_view *view, double gap_cap, char *out,
              "%zu capture(s) without a time not counted%s%s; governing index %s (%s)",
              gap_cap, summary->capped_count, summary->untimed_count, bound, unreported,
              exam_index_name(view->governing),
-             exam->has_governing_index ? "from the exam record" : "domain reference s.3");
+             exam->has_governing_index ? "from the exam record" : "docs/domain.md section 3");
 }
 
 static mitilog_status check_rule(const rules_rule *rule, const rules_view *view,

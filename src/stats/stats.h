@@ -61,7 +61,7 @@ typedef struct stats_summary {
  * summary with count 0 and MITILOG_ERROR_INVALID. */
 mitilog_status stats_summarise(double *values, size_t count, stats_summary *summary);
 
-/* The outlier rule of the domain reference: x is an outlier against a
+/* The outlier rule of docs/domain.md: x is an outlier against a
  * baseline when its robust z exceeds z_limit (default 3) or x exceeds the
  * baseline's P95. baseline_sorted must be ascending. *robust_z is set to
  * the score, or NAN when the baseline's MAD is 0. */

@@ -1,7 +1,7 @@
 /*
  * sql_files.h - the SQL text of sql/, compiled into the binary by
  * cmake/embed_sql.cmake. Names are paths relative to sql/, e.g.
- * "migrations/001_instances.sql" or "queries/instances_by_study.sql".
+ * "migrations/001_instances.sql" or "queries/instances/instances_by_study.sql".
  * The table ends with a {NULL, NULL} entry. Static storage; never freed.
  */
 #ifndef MITILOG_SQL_FILES_H

@@ -161,7 +161,7 @@ typedef struct store_policy {
 } store_policy;
 
 /* Writes (or refreshes) the policy row with its rules described as JSON
- * (built by SQLite's JSON functions) and makes it this store's active
+ * (written by json/json.h) and makes it this store's active
  * policy: the one GET /api/v1/policy serves and study details use. */
 mitilog_status store_register_policy(store *store, const store_policy *policy,
                                      mitilog_error *error);
@@ -255,7 +255,7 @@ mitilog_status store_policy_json(store *store, char **json, mitilog_error *error
 /* ---- Statistics reads (store_read_stats.c) ---- */
 
 /* The exams of a period are exam_row (exam/exam.h), read by
- * sql/queries/stats_exam_rows.sql and its shorter variants; their strings
+ * sql/queries/reports/stats_exam_rows.sql and its shorter variants; their strings
  * belong to the store_exam_list that holds them (study_instance_uid is
  * always read). */
 
@@ -270,7 +270,7 @@ enum {
     STORE_EXAM_SHIFT = 1 << 4,
     STORE_EXAM_TRANSDUCER = 1 << 5,
     /* day only; with ROOM and PRESET and no other bit, the short rows of
-     * sql/queries/stats_exam_series.sql: exam type, day, room, preset,
+     * sql/queries/reports/stats_exam_series.sql: exam type, day, room, preset,
      * governing maximum, capture and indexed counts (drift) */
     STORE_EXAM_DAY = 1 << 6,
     STORE_EXAM_ALL = (1 << 7) - 1
@@ -292,7 +292,7 @@ mitilog_status store_load_exam_rows(store *store, const char *from_day,
                                     store_exam_list *list, mitilog_error *error);
 /* Only exam_type and the governing maximum (has_governing,
  * max_governing) of the exams whose day is at or after from_day and
- * before before_day, in no particular order (sql/queries/
+ * before before_day, in no particular order (sql/queries/reports/
  * stats_exam_governing.sql): a baseline. */
 mitilog_status store_load_exam_governing(store *store, const char *from_day,
                                          const char *before_day, store_exam_list *list,
@@ -343,34 +343,6 @@ mitilog_status store_load_day_range(store *store, char **first_day, char **last_
 mitilog_status store_ingest_json(store *store, int window_hours,
                                  int silent_hours, int days, char **json,
                                  mitilog_error *error);
-
-/* A one-off in-memory SQLite connection for building documents with
- * SQLite's JSON functions from computed values (src/report/). schema
- * names an sql/ file run at open. Freed with store_scratch_close(). */
-typedef struct store_scratch store_scratch;
-mitilog_status store_scratch_open(const char *schema, store_scratch **out,
-                                  mitilog_error *error);
-void store_scratch_close(store_scratch *scratch);
-/* Prepares sql/NAME on the scratch connection; the statement is owned by
- * the scratch (finalised at close) and reset by store_scratch_step. */
-typedef struct store_scratch_statement store_scratch_statement;
-mitilog_status store_scratch_prepare(store_scratch *scratch, const char *name,
-                                     store_scratch_statement **out,
-                                     mitilog_error *error);
-/* Binding by parameter name (":key"); text NULL binds NULL. */
-mitilog_status store_scratch_bind_text(store_scratch_statement *statement,
-                                       const char *name, const char *text);
-mitilog_status store_scratch_bind_double(store_scratch_statement *statement,
-                                         const char *name, int present,
-                                         double value);
-mitilog_status store_scratch_bind_int(store_scratch_statement *statement,
-                                      const char *name, long long value);
-/* Runs to completion (inserts) and resets, clearing bindings. */
-mitilog_status store_scratch_run(store_scratch_statement *statement,
-                                 mitilog_error *error);
-/* Runs a one-row, one-column query; *text malloc'ed. Resets. */
-mitilog_status store_scratch_text(store_scratch_statement *statement,
-                                  char **text, mitilog_error *error);
 
 /* ---- Device screen profiles (store_screen_profiles.c; the profile text
  * is src/screen's business, the store keeps it with its state).

@@ -21,6 +21,7 @@
 #include <string.h>
 
 #include "util/hash.h"
+#include "json/json.h"
 
 typedef struct store_text {
     char *data;
@@ -161,50 +162,132 @@ static int store_run(sqlite3_stmt *statement, int rc)
     return rc;
 }
 
-/* One entry of the policy's limits (policy_limits_append.sql) and its
- * dwell table (policy_dwell_step_append.sql), entry number index. */
-static int store_write_limits(store *st, sqlite3_stmt *limits, sqlite3_stmt *step, const char *version,
-                              size_t index, const exam_limits *l)
+/* Runs statement, which may add a policy row (policy_upsert.sql,
+ * policy_ensure.sql); when it did, the new row is the current policy and
+ * every exam summary takes that policy's measurement
+ * (exam_summary_policy_refresh.sql). An update of an existing row leaves
+ * the current policy as it was, so nothing more is run. */
+static int store_run_policy_row(sqlite3 *db, sqlite3_stmt *statement, sqlite3_stmt *refresh,
+                                int rc)
 {
-    int rc = store_bind_text_named(st, limits, ":version", version);
-    if (rc == SQLITE_OK) rc = store_bind_text_named(st, limits, ":group", exam_group_name(l->group));
-    if (rc == SQLITE_OK) rc = store_bind_text_named(st, limits, ":age_group", l->age_group);
-    if (rc == SQLITE_OK)
-        rc = store_bind_double_named(st, limits, ":ti_ceiling", l->has_ti_ceiling, l->ti_ceiling);
-    if (rc == SQLITE_OK)
-        rc = store_bind_double_named(st, limits, ":mi_ceiling", l->has_mi_ceiling, l->mi_ceiling);
-    if (rc == SQLITE_OK)
-        rc = store_bind_double_named(st, limits, ":mi_equipment", l->has_mi_equipment,
-                                     l->mi_equipment);
-    if (rc == SQLITE_OK)
-        rc = store_bind_double_named(st, limits, ":ti_equipment", l->has_ti_equipment,
-                                     l->ti_equipment);
-    if (rc == SQLITE_OK) rc = store_bind_text_named(st, limits, ":dwell_rule", l->dwell_rule);
-    rc = store_run(limits, rc);
-    for (size_t k = 0; rc == SQLITE_OK && k < l->dwell_count; k++) {
-        const exam_dwell_step *d = &l->dwell[k];
-        rc = store_bind_text_named(st, step, ":version", version);
-        if (rc == SQLITE_OK) rc = store_bind_int_named(st, step, ":index", (sqlite3_int64)index);
-        if (rc == SQLITE_OK) rc = store_bind_double_named(st, step, ":threshold", 1, d->threshold);
-        if (rc == SQLITE_OK)
-            rc = store_bind_double_named(st, step, ":minutes", !d->not_recommended, d->minutes);
-        if (rc == SQLITE_OK)
-            rc = store_bind_int_named(st, step, ":not_recommended", d->not_recommended != 0);
-        rc = store_run(step, rc);
-    }
+    if (rc != SQLITE_OK)
+        return store_run(statement, rc);
+    /* an upsert's update and a DO NOTHING leave the last rowid alone */
+    sqlite3_set_last_insert_rowid(db, 0);
+    rc = store_run(statement, rc);
+    if (rc == SQLITE_OK && sqlite3_last_insert_rowid(db) != 0)
+        rc = store_run(refresh, rc);
     return rc;
+}
+
+/* The policy's rules as GET /api/v1/policy shows them: one object per
+ * rule in policy order with its settings by key (a key given twice keeps
+ * its first place and its last value). */
+static void store_rules_json(json_writer *w, const store_policy *policy)
+{
+    json_array_begin(w);
+    for (size_t r = 0; r < policy->rule_count; r++) {
+        const exam_rule_info *info = &policy->rules[r];
+        json_object_begin(w);
+        json_key(w, "id");
+        json_string(w, info->id);
+        json_key(w, "kind");
+        json_string(w, info->kind);
+        json_key(w, "severity");
+        json_string(w, exam_severity_name(info->severity));
+        json_key(w, "enabled");
+        json_boolean(w, info->enabled);
+        json_key(w, "source");
+        json_string(w, info->source);
+        json_key(w, "description");
+        json_string(w, info->description);
+        json_key(w, "settings");
+        json_object_begin(w);
+        for (size_t k = 0; k < info->setting_count; k++) {
+            const char *key = info->settings[k].key != NULL ? info->settings[k].key : "";
+            int earlier = 0;
+            for (size_t j = 0; j < k && !earlier; j++)
+                earlier = info->settings[j].key != NULL && strcmp(info->settings[j].key, key) == 0;
+            if (earlier)
+                continue;
+            size_t last = k;
+            for (size_t j = k + 1; j < info->setting_count; j++)
+                if (info->settings[j].key != NULL && strcmp(info->settings[j].key, key) == 0)
+                    last = j;
+            json_key(w, key);
+            json_string(w, info->settings[last].value);
+        }
+        json_object_end(w);
+        json_object_end(w);
+    }
+    json_array_end(w);
+}
+
+/* What the policy sets per group and age group, with each dwell table
+ * (the limits the dashboard draws). */
+static void store_limits_json(json_writer *w, const store_policy *policy)
+{
+    json_array_begin(w);
+    for (size_t k = 0; k < policy->limit_count; k++) {
+        const exam_limits *l = &policy->limits[k];
+        json_object_begin(w);
+        json_key(w, "group");
+        json_string(w, exam_group_name(l->group));
+        json_key(w, "age_group");
+        json_string(w, l->age_group);
+        json_key(w, "ti_ceiling");
+        json_number(w, l->has_ti_ceiling, l->ti_ceiling);
+        json_key(w, "mi_ceiling");
+        json_number(w, l->has_mi_ceiling, l->mi_ceiling);
+        json_key(w, "mi_equipment");
+        json_number(w, l->has_mi_equipment, l->mi_equipment);
+        json_key(w, "ti_equipment");
+        json_number(w, l->has_ti_equipment, l->ti_equipment);
+        json_key(w, "dwell_rule");
+        json_string(w, l->dwell_rule);
+        json_key(w, "dwell");
+        json_array_begin(w);
+        for (size_t d = 0; d < l->dwell_count; d++) {
+            const exam_dwell_step *step = &l->dwell[d];
+            json_object_begin(w);
+            json_key(w, "threshold");
+            json_number(w, 1, step->threshold);
+            json_key(w, "minutes");
+            json_number(w, !step->not_recommended, step->minutes);
+            json_key(w, "not_recommended");
+            json_boolean(w, step->not_recommended);
+            json_object_end(w);
+        }
+        json_array_end(w);
+        json_object_end(w);
+    }
+    json_array_end(w);
 }
 
 mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog_error *error)
 {
+    char *rules_json = NULL, *limits_json = NULL;
+    json_writer writer;
+    json_writer_init(&writer);
+    store_rules_json(&writer, policy);
+    mitilog_status status = json_writer_take(&writer, &rules_json, error);
+    if (status == MITILOG_OK) {
+        json_writer_init(&writer);
+        store_limits_json(&writer, policy);
+        status = json_writer_take(&writer, &limits_json, error);
+    }
+    if (status != MITILOG_OK) {
+        free(rules_json);
+        return status;
+    }
     store_statements set = {0};
-    sqlite3_stmt *upsert = store_statement(st, &set, "queries/policy_upsert.sql", error);
-    sqlite3_stmt *rule = store_statement(st, &set, "queries/policy_rule_append.sql", error);
-    sqlite3_stmt *setting = store_statement(st, &set, "queries/policy_setting_set.sql", error);
-    sqlite3_stmt *limits = store_statement(st, &set, "queries/policy_limits_append.sql", error);
-    sqlite3_stmt *step = store_statement(st, &set, "queries/policy_dwell_step_append.sql", error);
-    if (upsert == NULL || rule == NULL || setting == NULL || limits == NULL || step == NULL) {
+    sqlite3_stmt *upsert = store_statement(st, &set, "queries/findings/policy_upsert.sql", error);
+    sqlite3_stmt *refresh =
+        store_statement(st, &set, "queries/exams/exam_summary_policy_refresh.sql", error);
+    if (upsert == NULL || refresh == NULL) {
         store_statements_finalize(&set);
+        free(rules_json);
+        free(limits_json);
         return MITILOG_ERROR_DATABASE;
     }
     int rc = store_bind_text_named(st, upsert, ":version", policy->version);
@@ -218,74 +301,39 @@ mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog
                                      policy->closed_after_idle_minutes);
     if (rc == SQLITE_OK)
         rc = store_bind_double_named(st, upsert, ":gap_cap_seconds", 1, policy->gap_cap_seconds);
-    rc = store_run(upsert, rc);
-    for (size_t r = 0; rc == SQLITE_OK && r < policy->rule_count; r++) {
-        const exam_rule_info *info = &policy->rules[r];
-        rc = store_bind_text_named(st, rule, ":version", policy->version);
-        if (rc == SQLITE_OK) rc = store_bind_text_named(st, rule, ":id", info->id);
-        if (rc == SQLITE_OK) rc = store_bind_text_named(st, rule, ":kind", info->kind);
-        if (rc == SQLITE_OK)
-            rc = store_bind_text_named(st, rule, ":severity", exam_severity_name(info->severity));
-        if (rc == SQLITE_OK) rc = store_bind_int_named(st, rule, ":enabled", info->enabled != 0);
-        if (rc == SQLITE_OK) rc = store_bind_text_named(st, rule, ":source", info->source);
-        if (rc == SQLITE_OK)
-            rc = store_bind_text_named(st, rule, ":description", info->description);
-        rc = store_run(rule, rc);
-        for (size_t k = 0; rc == SQLITE_OK && k < info->setting_count; k++) {
-            rc = store_bind_text_named(st, setting, ":version", policy->version);
-            if (rc == SQLITE_OK)
-                rc = store_bind_int_named(st, setting, ":rule_index", (sqlite3_int64)r);
-            if (rc == SQLITE_OK)
-                rc = store_bind_text_named(st, setting, ":key", info->settings[k].key);
-            if (rc == SQLITE_OK)
-                rc = store_bind_text_named(st, setting, ":value", info->settings[k].value);
-            rc = store_run(setting, rc);
-        }
-    }
-    for (size_t k = 0; rc == SQLITE_OK && k < policy->limit_count; k++)
-        rc = store_write_limits(st, limits, step, policy->version, k, &policy->limits[k]);
-    mitilog_status status = MITILOG_OK;
+    if (rc == SQLITE_OK)
+        rc = store_bind_text_named(st, upsert, ":rules_json", rules_json);
+    if (rc == SQLITE_OK)
+        rc = store_bind_text_named(st, upsert, ":limits_json", limits_json);
+    rc = store_run_policy_row(st->writer, upsert, refresh, rc);
     if (rc != SQLITE_OK)
         status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "policy %s: %s",
                                    policy->version, sqlite3_errmsg(st->writer));
     store_statements_finalize(&set);
+    free(rules_json);
+    free(limits_json);
     return status;
 }
 
-/* Builds a finding's instance_uids JSON array with SQLite (malloc'ed). */
-static int store_uids_json(sqlite3_stmt *append, const exam_finding *finding, char **out)
+/* A finding's instance_uids as a JSON array (malloc'ed); a NULL UID is
+ * null. */
+static int store_uids_json(const exam_finding *finding, char **out)
 {
-    char *array = strdup("[]");
-    int rc = array != NULL ? SQLITE_OK : SQLITE_NOMEM;
-    for (size_t i = 0; rc == SQLITE_OK && i < finding->instance_count; i++) {
-        rc = sqlite3_bind_text(append, 1, array, -1, SQLITE_TRANSIENT);
-        if (rc == SQLITE_OK)
-            rc = sqlite3_bind_text(append, 2, finding->instance_uids[i], -1, SQLITE_STATIC);
-        if (rc == SQLITE_OK && sqlite3_step(append) == SQLITE_ROW &&
-            sqlite3_column_text(append, 0) != NULL) {
-            char *next = strdup((const char *)sqlite3_column_text(append, 0));
-            free(array);
-            array = next;
-            rc = array != NULL ? SQLITE_OK : SQLITE_NOMEM;
-        } else if (rc == SQLITE_OK) {
-            rc = SQLITE_ERROR;
-        }
-        sqlite3_reset(append);
-        sqlite3_clear_bindings(append);
-    }
-    if (rc != SQLITE_OK) {
-        free(array);
-        array = NULL;
-    }
-    *out = array;
-    return rc;
+    json_writer writer;
+    json_writer_init(&writer);
+    json_array_begin(&writer);
+    for (size_t i = 0; i < finding->instance_count; i++)
+        json_string(&writer, finding->instance_uids[i]);
+    json_array_end(&writer);
+    mitilog_status status = json_writer_take(&writer, out, NULL);
+    return status == MITILOG_OK ? SQLITE_OK : SQLITE_NOMEM;
 }
 
-static int store_insert_finding(store *st, sqlite3_stmt *insert, sqlite3_stmt *append,
+static int store_insert_finding(store *st, sqlite3_stmt *insert,
                                 const store_evaluation *e, const exam_finding *f)
 {
     char *uids = NULL;
-    int rc = store_uids_json(append, f, &uids);
+    int rc = store_uids_json(f, &uids);
     const struct {
         const char *name;
         const char *value;
@@ -422,30 +470,31 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
     if (store_evaluation_hash(e, hash) != 0)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "evaluation: out of memory");
     store_statements set = {0};
-    sqlite3_stmt *ensure = store_statement(st, &set, "queries/policy_ensure.sql", error);
+    sqlite3_stmt *ensure = store_statement(st, &set, "queries/findings/policy_ensure.sql", error);
+    sqlite3_stmt *refresh =
+        store_statement(st, &set, "queries/exams/exam_summary_policy_refresh.sql", error);
     sqlite3_stmt *stored = store_statement(st, &set,
-                                           exam ? "queries/evaluation_hash_exam.sql"
-                                                : "queries/evaluation_hash_device.sql",
+                                           exam ? "queries/findings/evaluation_hash_exam.sql"
+                                                : "queries/findings/evaluation_hash_device.sql",
                                            error);
-    sqlite3_stmt *context = exam ? store_statement(st, &set, "queries/exam_context_upsert.sql",
+    sqlite3_stmt *context = exam ? store_statement(st, &set, "queries/exams/exam_context_upsert.sql",
                                                    error)
                                  : NULL;
-    sqlite3_stmt *removal = store_statement(st, &set, "queries/findings_delete.sql", error);
-    sqlite3_stmt *supersede = store_statement(st, &set, "queries/findings_supersede.sql", error);
-    sqlite3_stmt *insert = store_statement(st, &set, "queries/finding_insert.sql", error);
-    sqlite3_stmt *append = store_statement(st, &set, "queries/json_array_append.sql", error);
+    sqlite3_stmt *removal = store_statement(st, &set, "queries/findings/findings_delete.sql", error);
+    sqlite3_stmt *supersede = store_statement(st, &set, "queries/findings/findings_supersede.sql", error);
+    sqlite3_stmt *insert = store_statement(st, &set, "queries/findings/finding_insert.sql", error);
     sqlite3_stmt *values = store_statement(st, &set,
-                                           exam ? "queries/exam_measurements_upsert.sql"
-                                                : "queries/device_evaluation_upsert.sql",
+                                           exam ? "queries/findings/exam_measurements_upsert.sql"
+                                                : "queries/findings/device_evaluation_upsert.sql",
                                            error);
     sqlite3_stmt *times_removal =
-        exam ? store_statement(st, &set, "queries/measurement_time_at_or_above_delete.sql", error)
+        exam ? store_statement(st, &set, "queries/findings/measurement_time_at_or_above_delete.sql", error)
              : NULL;
     sqlite3_stmt *times_insert =
-        exam ? store_statement(st, &set, "queries/measurement_time_at_or_above_insert.sql", error)
+        exam ? store_statement(st, &set, "queries/findings/measurement_time_at_or_above_insert.sql", error)
              : NULL;
-    if (ensure == NULL || stored == NULL || (exam && context == NULL) || removal == NULL ||
-        supersede == NULL || insert == NULL || append == NULL || values == NULL ||
+    if (ensure == NULL || refresh == NULL || stored == NULL || (exam && context == NULL) || removal == NULL ||
+        supersede == NULL || insert == NULL || values == NULL ||
         (exam && (times_removal == NULL || times_insert == NULL))) {
         store_statements_finalize(&set);
         return MITILOG_ERROR_DATABASE;
@@ -455,7 +504,7 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
     if (rc == SQLITE_OK)
         rc = store_bind_text_named(st, ensure, ":normalised_text",
                                    store_or_empty(e->normalised_text));
-    rc = store_run(ensure, rc);
+    rc = store_run_policy_row(st->writer, ensure, refresh, rc);
     if (rc == SQLITE_OK && exam)
         rc = store_write_context_row(st, context, e);
     /* Unchanged? */
@@ -487,7 +536,7 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
             superseded = (unsigned long)sqlite3_changes(st->writer);
         }
         for (size_t i = 0; rc == SQLITE_OK && i < e->finding_count; i++) {
-            rc = store_insert_finding(st, insert, append, e, &e->findings[i]);
+            rc = store_insert_finding(st, insert, e, &e->findings[i]);
             written++;
         }
         if (rc == SQLITE_OK && exam) {

@@ -66,7 +66,7 @@ mitilog_status store_load_study_context(store *st, const char *study_instance_ui
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "study context: no study");
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_cached_statement(&st->reader_cache, st->reader, "queries/study_context.sql", &statement,
+    mitilog_status status = store_cached_statement(&st->reader_cache, st->reader, "queries/instances/study_context.sql", &statement,
                                           error);
     if (status == MITILOG_OK) {
         int rc = sqlite3_bind_text(statement, 1, study_instance_uid, -1, SQLITE_TRANSIENT);
@@ -106,8 +106,8 @@ mitilog_status store_list(store *st, store_list_kind kind, const char *a, const 
                           char ***texts, size_t *count, mitilog_error *error)
 {
     static const char *const files[] = {
-        "queries/exams_in_period.sql", "queries/exams_due_closing.sql",
-        "queries/study_days.sql", "queries/days_in_period.sql"};
+        "queries/exams/exams_in_period.sql", "queries/exams/exams_due_closing.sql",
+        "queries/instances/study_days.sql", "queries/reports/days_in_period.sql"};
     *texts = NULL;
     *count = 0;
     if (st == NULL || (unsigned)kind > STORE_LIST_DAYS)
@@ -185,7 +185,7 @@ mitilog_status store_load_day_instances(store *st, const char *day,
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "day instances: no day");
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_cached_statement(&st->reader_cache, st->reader, "queries/device_instances.sql",
+    mitilog_status status = store_cached_statement(&st->reader_cache, st->reader, "queries/instances/device_instances.sql",
                                           &statement, error);
     size_t capacity = 0;
     if (status == MITILOG_OK) {
@@ -266,7 +266,7 @@ mitilog_status store_findings_json(store *st, const store_finding_filter *filter
                                                             : filter->limit;
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_cached_statement(&st->reader_cache, st->reader, "queries/findings.sql", &statement, error);
+    mitilog_status status = store_cached_statement(&st->reader_cache, st->reader, "queries/findings/findings.sql", &statement, error);
     if (status == MITILOG_OK) {
         const char *texts[] = {filter->from, filter->to, filter->severity, filter->rule,
                                filter->room, filter->preset, filter->shift};
@@ -294,7 +294,7 @@ mitilog_status store_policy_json(store *st, char **json, mitilog_error *error)
     sqlite3_stmt *statement = NULL;
     if (st->active_policy[0] == '\0')
         status = mitilog_error_set(error, MITILOG_ERROR_NOT_FOUND, "no policy is loaded");
-    else if ((status = store_cached_statement(&st->reader_cache, st->reader, "queries/policy_json.sql", &statement,
+    else if ((status = store_cached_statement(&st->reader_cache, st->reader, "queries/findings/policy_json.sql", &statement,
                                      error)) == MITILOG_OK)
         status = store_json_query(st, statement,
                                   sqlite3_bind_text(statement, 1, st->active_policy, -1,

@@ -58,7 +58,10 @@ typedef struct store_write_statements {
     sqlite3_stmt *insert_mode_maximum;
     sqlite3_stmt *upsert_header;
     sqlite3_stmt *delete_header;
-    sqlite3_stmt *refresh_summary;
+    sqlite3_stmt *summary_delete;     /* the exam summary refresh, in order */
+    sqlite3_stmt *summary_insert;
+    sqlite3_stmt *times_delete;
+    sqlite3_stmt *times_insert;
 } store_write_statements;
 
 /* Statements of the read connection; used under reader_lock. */
@@ -67,7 +70,6 @@ typedef struct store_read_statements {
     sqlite3_stmt *instances_since;
     sqlite3_stmt *studies;
     sqlite3_stmt *health;
-    sqlite3_stmt *health_error;
     sqlite3_stmt *study_load;
     sqlite3_stmt *study_detail;
 } store_read_statements;

@@ -37,7 +37,7 @@ static mitilog_status store_read_version(sqlite3 *db, int *version,
                                          mitilog_error *error)
 {
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_prepare(db, "queries/schema_version.sql",
+    mitilog_status status = store_prepare(db, "queries/database/schema_version.sql",
                                           &statement, error);
     if (status != MITILOG_OK)
         return status;
@@ -55,7 +55,7 @@ static mitilog_status store_check_foreign_keys(sqlite3 *db, const char *name,
                                                mitilog_error *error)
 {
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_prepare(db, "queries/foreign_key_check.sql",
+    mitilog_status status = store_prepare(db, "queries/database/foreign_key_check.sql",
                                           &statement, error);
     if (status != MITILOG_OK)
         return status;
@@ -78,7 +78,7 @@ static mitilog_status store_apply_migration(sqlite3 *db, const sql_file *file,
                                             int number, const char *path,
                                             mitilog_error *error)
 {
-    mitilog_status status = store_exec_file(db, "queries/write_begin.sql",
+    mitilog_status status = store_exec_file(db, "queries/database/write_begin.sql",
                                             error);
     if (status != MITILOG_OK)
         return status;
@@ -97,9 +97,9 @@ static mitilog_status store_apply_migration(sqlite3 *db, const sql_file *file,
             status = store_check_foreign_keys(db, file->name, error);
     }
     if (status == MITILOG_OK)
-        status = store_exec_file(db, "queries/write_commit.sql", error);
+        status = store_exec_file(db, "queries/database/write_commit.sql", error);
     if (status != MITILOG_OK) {
-        store_exec_file(db, "queries/write_rollback.sql", NULL);
+        store_exec_file(db, "queries/database/write_rollback.sql", NULL);
         return status;
     }
     log_info("database %s: schema at version %d (%s)", path, number,
@@ -117,14 +117,13 @@ static mitilog_status store_migrate(sqlite3 *db, const char *path,
         int number = store_migration_number(file->name);
         if (number < 0)
             continue;
-        /* Numbers rise; a gap is a number reserved by work not merged
-         * yet (migrations are developed side by side), so it is allowed
-         * here and closed when that work is merged. */
+        /* Numbers rise; a gap is allowed, since numbers are handed out
+         * to changes made side by side and merged in any order. */
         if (number <= latest)
             return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
                                      "migration %s out of sequence "
-                                     "(expected a number above %d)",
-                                     file->name, latest);
+                                     "(expected a number above %d)", file->name,
+                                     latest);
         latest = number;
     }
     mitilog_status status = store_read_version(db, version, error);
@@ -137,7 +136,7 @@ static mitilog_status store_migrate(sqlite3 *db, const char *path,
                                  latest);
     if (*version == latest)
         return MITILOG_OK;
-    status = store_exec_file(db, "queries/pragma_foreign_keys_off.sql", error);
+    status = store_exec_file(db, "queries/database/pragma_foreign_keys_off.sql", error);
     for (const sql_file *file = sql_files; status == MITILOG_OK && file->name != NULL;
          file++) {
         int number = store_migration_number(file->name);
@@ -149,7 +148,7 @@ static mitilog_status store_migrate(sqlite3 *db, const char *path,
     }
     mitilog_error restore_error;
     mitilog_status restored =
-        store_exec_file(db, "queries/pragma_foreign_keys_on.sql", &restore_error);
+        store_exec_file(db, "queries/database/pragma_foreign_keys_on.sql", &restore_error);
     if (status == MITILOG_OK && restored != MITILOG_OK && error != NULL)
         *error = restore_error;
     return status != MITILOG_OK ? status : restored;
@@ -179,7 +178,7 @@ static mitilog_status store_configure_writer(sqlite3 *db, const char *path,
                                              mitilog_error *error)
 {
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_prepare(db, "queries/pragma_journal_wal.sql",
+    mitilog_status status = store_prepare(db, "queries/database/pragma_journal_wal.sql",
                                           &statement, error);
     if (status != MITILOG_OK)
         return status;
@@ -196,7 +195,7 @@ static mitilog_status store_configure_writer(sqlite3 *db, const char *path,
     sqlite3_finalize(statement);
     if (status != MITILOG_OK)
         return status;
-    return store_exec_file(db, "queries/pragma_writer.sql", error);
+    return store_exec_file(db, "queries/database/pragma_writer.sql", error);
 }
 
 /* 1 when the database's TI ladder (ti_thresholds) and mode names
@@ -205,8 +204,8 @@ static mitilog_status store_configure_writer(sqlite3 *db, const char *path,
 static int store_vocabulary_matches(sqlite3 *db, int *ladder_matches, mitilog_error *error)
 {
     sqlite3_stmt *ladder = NULL, *modes = NULL;
-    if (store_prepare(db, "queries/ti_thresholds_select.sql", &ladder, error) != MITILOG_OK ||
-        store_prepare(db, "queries/mode_names_select.sql", &modes, error) != MITILOG_OK) {
+    if (store_prepare(db, "queries/exams/ti_thresholds_select.sql", &ladder, error) != MITILOG_OK ||
+        store_prepare(db, "queries/exams/mode_names_select.sql", &modes, error) != MITILOG_OK) {
         sqlite3_finalize(ladder);
         return -1;
     }
@@ -252,44 +251,44 @@ static mitilog_status store_sync_vocabulary(sqlite3 *db, const char *path, mitil
     int matches = store_vocabulary_matches(db, &ladder_matches, error);
     if (matches != 0)
         return matches > 0 ? MITILOG_OK : MITILOG_ERROR_DATABASE;
-    mitilog_status status = store_exec_file(db, "queries/write_begin.sql", error);
+    mitilog_status status = store_exec_file(db, "queries/database/write_begin.sql", error);
     if (status != MITILOG_OK)
         return status;
     matches = store_vocabulary_matches(db, &ladder_matches, error);
     if (matches < 0)
         status = MITILOG_ERROR_DATABASE;
     if (matches == 0 && !ladder_matches) {
-        status = store_exec_file(db, "queries/ti_thresholds_delete.sql", error);
+        status = store_exec_file(db, "queries/exams/ti_thresholds_delete.sql", error);
         sqlite3_stmt *insert = NULL;
         if (status == MITILOG_OK)
-            status = store_prepare(db, "queries/ti_threshold_insert.sql", &insert, error);
+            status = store_prepare(db, "queries/exams/ti_threshold_insert.sql", &insert, error);
         for (int k = 0; status == MITILOG_OK && k < EXAM_TI_STEP_COUNT; k++) {
             if (sqlite3_bind_double(insert, 1, exam_ti_ladder[k]) != SQLITE_OK ||
                 store_step_done(insert) != SQLITE_DONE)
-                status = store_sql_error(error, db, "queries/ti_threshold_insert.sql");
+                status = store_sql_error(error, db, "queries/exams/ti_threshold_insert.sql");
         }
         sqlite3_finalize(insert);
         if (status == MITILOG_OK)
-            status = store_exec_file(db, "queries/exam_time_at_or_above_refresh_all.sql", error);
+            status = store_exec_file(db, "queries/exams/exam_time_at_or_above_refresh_all.sql", error);
     }
     if (status == MITILOG_OK && matches == 0) {
-        status = store_exec_file(db, "queries/mode_names_delete.sql", error);
+        status = store_exec_file(db, "queries/exams/mode_names_delete.sql", error);
         sqlite3_stmt *insert = NULL;
         if (status == MITILOG_OK)
-            status = store_prepare(db, "queries/mode_name_insert.sql", &insert, error);
+            status = store_prepare(db, "queries/exams/mode_name_insert.sql", &insert, error);
         for (int m = 0; status == MITILOG_OK && m < EXAM_MODE_COUNT; m++) {
             if (sqlite3_bind_int(insert, 1, m) != SQLITE_OK ||
                 sqlite3_bind_text(insert, 2, exam_mode_name((exam_mode)m), -1, SQLITE_STATIC) !=
                     SQLITE_OK ||
                 store_step_done(insert) != SQLITE_DONE)
-                status = store_sql_error(error, db, "queries/mode_name_insert.sql");
+                status = store_sql_error(error, db, "queries/exams/mode_name_insert.sql");
         }
         sqlite3_finalize(insert);
     }
     if (status == MITILOG_OK)
-        status = store_exec_file(db, "queries/write_commit.sql", error);
+        status = store_exec_file(db, "queries/database/write_commit.sql", error);
     if (status != MITILOG_OK) {
-        store_exec_file(db, "queries/write_rollback.sql", NULL);
+        store_exec_file(db, "queries/database/write_rollback.sql", NULL);
         return status;
     }
     if (matches == 0 && !ladder_matches)
@@ -337,7 +336,7 @@ mitilog_status store_open(const char *path, int busy_timeout_ms, store **out,
         status = store_connect(path, SQLITE_OPEN_READONLY | SQLITE_OPEN_NOMUTEX, busy_timeout_ms,
                                &opened->reader, error);
     if (status == MITILOG_OK)
-        status = store_exec_file(opened->reader, "queries/pragma_reader.sql",
+        status = store_exec_file(opened->reader, "queries/database/pragma_reader.sql",
                                  error);
     if (status == MITILOG_OK)
         status = store_read_prepare(opened, error);
@@ -364,7 +363,7 @@ void store_close(store *st)
     store_cache_finalize(&st->writer_cache);
     if (st->writer != NULL) {
         mitilog_error error;
-        if (store_exec_file(st->writer, "queries/checkpoint.sql",
+        if (store_exec_file(st->writer, "queries/database/checkpoint.sql",
                             &error) != MITILOG_OK)
             log_warning("database checkpoint at close failed: %s",
                         error.text);
@@ -400,8 +399,8 @@ mitilog_status store_set_durability(store *st, store_durability durability, miti
         pthread_cond_wait(&st->queue_changed, &st->queue_lock);
     mitilog_status status = store_exec_file(
         st->writer,
-        durability == STORE_DURABILITY_PROCESS ? "queries/pragma_synchronous_normal.sql"
-                                               : "queries/pragma_synchronous_full.sql",
+        durability == STORE_DURABILITY_PROCESS ? "queries/database/pragma_synchronous_normal.sql"
+                                               : "queries/database/pragma_synchronous_full.sql",
         error);
     pthread_mutex_unlock(&st->queue_lock);
     return status;

@@ -5,6 +5,8 @@
  */
 #include "store/store_internal.h"
 
+#include "json/json.h"
+
 #include <stdlib.h>
 
 enum { STORE_LIMIT_DEFAULT = 1000, STORE_LIMIT_MAX = 10000 };
@@ -117,14 +119,18 @@ mitilog_status store_health_json(store *st, char **json,
                                            SQLITE_OK, "health query", json,
                                            error);
     if (status != MITILOG_OK) {
-        mitilog_error ignored;
-        sqlite3_stmt *statement = st->read.health_error;
-        int rc = sqlite3_bind_text(statement, 1,
-                                   error != NULL ? error->text
-                                                 : "health query failed",
-                                   -1, SQLITE_TRANSIENT);
-        if (store_run_json(st, statement, rc, "health error", json,
-                           &ignored) != MITILOG_OK)
+        /* written without the database, which just failed */
+        json_writer writer;
+        json_writer_init(&writer);
+        json_object_begin(&writer);
+        json_key(&writer, "status");
+        json_string(&writer, "error");
+        json_key(&writer, "database");
+        json_string(&writer, "error");
+        json_key(&writer, "message");
+        json_string(&writer, error != NULL ? error->text : "health query failed");
+        json_object_end(&writer);
+        if (json_writer_take(&writer, json, NULL) != MITILOG_OK)
             *json = NULL;
         status = MITILOG_ERROR_DATABASE;
     }
@@ -138,13 +144,12 @@ mitilog_status store_read_prepare(store *st, mitilog_error *error)
         const char *name;
         sqlite3_stmt **statement;
     } files[] = {
-        {"queries/instances_by_study.sql", &st->read.instances_by_study},
-        {"queries/instances_since.sql", &st->read.instances_since},
-        {"queries/studies.sql", &st->read.studies},
-        {"queries/health.sql", &st->read.health},
-        {"queries/health_error.sql", &st->read.health_error},
-        {"queries/study_load.sql", &st->read.study_load},
-        {"queries/study_detail.sql", &st->read.study_detail},
+        {"queries/instances/instances_by_study.sql", &st->read.instances_by_study},
+        {"queries/instances/instances_since.sql", &st->read.instances_since},
+        {"queries/instances/studies.sql", &st->read.studies},
+        {"queries/database/health.sql", &st->read.health},
+        {"queries/instances/study_load.sql", &st->read.study_load},
+        {"queries/instances/study_detail.sql", &st->read.study_detail},
     };
     for (size_t i = 0; i < sizeof files / sizeof files[0]; i++) {
         mitilog_status status = store_prepare(st->reader, files[i].name,
@@ -159,7 +164,7 @@ void store_read_finalize(store *st)
 {
     sqlite3_stmt **statements[] = {
         &st->read.instances_by_study, &st->read.instances_since,
-        &st->read.studies, &st->read.health, &st->read.health_error,
+        &st->read.studies, &st->read.health,
         &st->read.study_load, &st->read.study_detail};
     for (size_t i = 0; i < sizeof statements / sizeof statements[0]; i++) {
         sqlite3_finalize(*statements[i]);

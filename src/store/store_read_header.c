@@ -20,7 +20,7 @@ mitilog_status store_get_header(store *st, const char *sop_instance_uid,
     *size = 0;
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_prepare(st->reader, "queries/instance_header_select.sql",
+    mitilog_status status = store_prepare(st->reader, "queries/instances/instance_header_select.sql",
                                           &statement, error);
     if (status == MITILOG_OK) {
         int rc = sqlite3_bind_text(statement, 1, sop_instance_uid, -1, SQLITE_STATIC);

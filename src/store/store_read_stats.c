@@ -1,7 +1,7 @@
 /*
  * store_read_stats.c - the reads behind statistics, outliers and the
  * ingest status (store.h, "Statistics reads"): plain rows for src/report/,
- * from sql/queries/stats_*.sql and ingest_status.sql, on the read
+ * from sql/queries/reports/stats_*.sql and instances/ingest_status.sql, on the read
  * connection under reader_lock. Statements are prepared per call (these
  * are reports, not hot paths) so the store's statement table is unchanged.
  */
@@ -270,7 +270,7 @@ static mitilog_status store_load_time_at_or_above(store *st, const char *from_da
                                                   const char *to_day, store_exam_list *list,
                                                   mitilog_error *error)
 {
-    static const char name[] = "queries/stats_exam_time_at_or_above.sql";
+    static const char name[] = "queries/reports/stats_exam_time_at_or_above.sql";
     sqlite3_stmt *statement = NULL;
     mitilog_status status = store_period_statement(st, name, from_day, to_day, &statement,
                                                    error);
@@ -306,10 +306,10 @@ static mitilog_status store_load_exams(store *st, store_exam_query query, const 
                                        const char *to_day, unsigned columns,
                                        store_exam_list *list, mitilog_error *error)
 {
-    static const char *const names[] = {"queries/stats_exam_rows.sql",
-                                        "queries/stats_exam_values.sql",
-                                        "queries/stats_exam_governing.sql",
-                                        "queries/stats_exam_series.sql"};
+    static const char *const names[] = {"queries/reports/stats_exam_rows.sql",
+                                        "queries/reports/stats_exam_values.sql",
+                                        "queries/reports/stats_exam_governing.sql",
+                                        "queries/reports/stats_exam_series.sql"};
     memset(list, 0, sizeof *list);
     if (st == NULL || from_day == NULL || to_day == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
@@ -328,7 +328,7 @@ static mitilog_status store_load_exams(store *st, store_exam_query query, const 
     int timed = query == STORE_QUERY_ROWS || query == STORE_QUERY_VALUES;
     int in_transaction = 0;
     if (status == MITILOG_OK && timed) {
-        status = store_exec_file(st->reader, "queries/read_begin.sql", error);
+        status = store_exec_file(st->reader, "queries/database/read_begin.sql", error);
         in_transaction = status == MITILOG_OK;
     }
     int rc = SQLITE_DONE;
@@ -347,7 +347,7 @@ static mitilog_status store_load_exams(store *st, store_exam_query query, const 
     if (status == MITILOG_OK && timed)
         status = store_load_time_at_or_above(st, from_day, to_day, list, error);
     if (in_transaction) {
-        mitilog_status ended = store_exec_file(st->reader, "queries/read_end.sql",
+        mitilog_status ended = store_exec_file(st->reader, "queries/database/read_end.sql",
                                                status == MITILOG_OK ? error : NULL);
         if (status == MITILOG_OK)
             status = ended;
@@ -405,7 +405,7 @@ mitilog_status store_load_finding_counts(store *st, const char *from_day, const 
     sqlite3_stmt *statement = NULL;
     size_t capacity = 0;
     pthread_mutex_lock(&st->reader_lock);
-    mitilog_status status = store_period_statement(st, "queries/stats_finding_counts.sql",
+    mitilog_status status = store_period_statement(st, "queries/reports/stats_finding_counts.sql",
                                                    from_day, to_day, &statement, error);
     int rc = SQLITE_DONE;
     while (status == MITILOG_OK && (rc = sqlite3_step(statement)) == SQLITE_ROW) {
@@ -461,7 +461,7 @@ mitilog_status store_load_period_info(store *st, const char *from_day, const cha
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_load_period_info: no store");
     sqlite3_stmt *statement = NULL;
     pthread_mutex_lock(&st->reader_lock);
-    mitilog_status status = store_period_statement(st, "queries/stats_policy_info.sql",
+    mitilog_status status = store_period_statement(st, "queries/reports/stats_policy_info.sql",
                                                    from_day ? from_day : "0000-00-00",
                                                    to_day ? to_day : "9999-99-99",
                                                    &statement, error);
@@ -496,7 +496,7 @@ mitilog_status store_load_day_range(store *st, char **first_day, char **last_day
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_load_day_range: no store");
     sqlite3_stmt *statement = NULL;
     pthread_mutex_lock(&st->reader_lock);
-    mitilog_status status = store_prepare(st->reader, "queries/stats_day_range.sql", &statement,
+    mitilog_status status = store_prepare(st->reader, "queries/reports/stats_day_range.sql", &statement,
                                           error);
     if (status == MITILOG_OK) {
         if (sqlite3_step(statement) != SQLITE_ROW) {
@@ -527,7 +527,7 @@ mitilog_status store_ingest_json(store *st, int window_hours, int silent_hours, 
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_ingest_json: no store");
     sqlite3_stmt *statement = NULL;
     pthread_mutex_lock(&st->reader_lock);
-    mitilog_status status = store_prepare(st->reader, "queries/ingest_status.sql",
+    mitilog_status status = store_prepare(st->reader, "queries/instances/ingest_status.sql",
                                           &statement, error);
     if (status == MITILOG_OK) {
         if (sqlite3_bind_int(statement, 1, window_hours) != SQLITE_OK ||

@@ -51,7 +51,7 @@ mitilog_status store_write_reading(store *st, const store_reading_request *readi
 static mitilog_status clear_older(store *st, sqlite3_int64 instance_id, char **stale_spool,
                                   mitilog_error *error)
 {
-    sqlite3_stmt *clear_queue = writer_statement(st, "queries/reading_clear_queue.sql", error);
+    sqlite3_stmt *clear_queue = writer_statement(st, "queries/readings/reading_clear_queue.sql", error);
     if (clear_queue == NULL)
         return MITILOG_ERROR_DATABASE;
     int rc = sqlite3_bind_int64(clear_queue, 1, instance_id);
@@ -65,7 +65,7 @@ static mitilog_status clear_older(store *st, sqlite3_int64 instance_id, char **s
     if (rc != SQLITE_DONE)
         return reading_error(st, error, "clear");
     sqlite3_stmt *clear_reading =
-        writer_statement(st, "queries/reading_clear_reading.sql", error);
+        writer_statement(st, "queries/readings/reading_clear_reading.sql", error);
     if (clear_reading == NULL)
         return MITILOG_ERROR_DATABASE;
     rc = sqlite3_bind_int64(clear_reading, 1, instance_id);
@@ -85,7 +85,7 @@ static mitilog_status write_request(store *st, const store_reading_request *read
     int rc;
     files_utc_now(now, sizeof now);
     if (reading->not_read_reason == NULL) {
-        sqlite3_stmt *insert = writer_statement(st, "queries/reading_queue_insert.sql", error);
+        sqlite3_stmt *insert = writer_statement(st, "queries/readings/reading_queue_insert.sql", error);
         if (insert == NULL)
             return MITILOG_ERROR_DATABASE;
         rc = store_bind_int_named(st, insert, ":instance_id", instance_id);
@@ -103,7 +103,7 @@ static mitilog_status write_request(store *st, const store_reading_request *read
         if (rc != SQLITE_DONE)
             return reading_error(st, error, "queue");
     }
-    sqlite3_stmt *state = writer_statement(st, "queries/reading_state_insert.sql", error);
+    sqlite3_stmt *state = writer_statement(st, "queries/readings/reading_state_insert.sql", error);
     if (state == NULL)
         return MITILOG_ERROR_DATABASE;
     rc = store_bind_int_named(st, state, ":instance_id", instance_id);
@@ -182,7 +182,7 @@ static mitilog_status write_result(store *st, const void *context, mitilog_error
 {
     result_context *c = (result_context *)context;
     const store_screen_result *r = c->result;
-    sqlite3_stmt *take = writer_statement(st, "queries/reading_queue_take.sql", error);
+    sqlite3_stmt *take = writer_statement(st, "queries/readings/reading_queue_take.sql", error);
     if (take == NULL)
         return MITILOG_ERROR_DATABASE;
     int rc = sqlite3_bind_int64(take, 1, r->instance_id);
@@ -200,7 +200,7 @@ static mitilog_status write_result(store *st, const void *context, mitilog_error
         c->stale = 1;
         return MITILOG_OK;
     }
-    sqlite3_stmt *upsert = writer_statement(st, "queries/reading_result_upsert.sql", error);
+    sqlite3_stmt *upsert = writer_statement(st, "queries/readings/reading_result_upsert.sql", error);
     if (upsert == NULL)
         return MITILOG_ERROR_DATABASE;
     char now[40];
@@ -316,14 +316,14 @@ static mitilog_status load_entries(store *st, const char *name, const char *from
 mitilog_status store_reading_queue_load(store *st, store_reading_entry **entries, size_t *count,
                                         mitilog_error *error)
 {
-    return load_entries(st, "queries/reading_queue_list.sql", NULL, NULL, entries, count, error);
+    return load_entries(st, "queries/readings/reading_queue_list.sql", NULL, NULL, entries, count, error);
 }
 
 mitilog_status store_reading_backfill_candidates(store *st, const char *from, const char *to,
                                                  store_reading_entry **entries, size_t *count,
                                                  mitilog_error *error)
 {
-    return load_entries(st, "queries/reading_backfill_candidates.sql", from, to, entries, count,
+    return load_entries(st, "queries/readings/reading_backfill_candidates.sql", from, to, entries, count,
                         error);
 }
 
@@ -340,7 +340,7 @@ void store_reading_entries_free(store_reading_entry *entries, size_t count)
 static mitilog_status write_index_source(store *st, const void *context, mitilog_error *error)
 {
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_prepare(st->writer, "queries/index_source_set.sql", &statement,
+    mitilog_status status = store_prepare(st->writer, "queries/readings/index_source_set.sql", &statement,
                                           error);
     if (status != MITILOG_OK)
         return status;
@@ -370,7 +370,7 @@ mitilog_status store_load_mismatches(store *st, const char *study_instance_uid,
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
     mitilog_status status = store_cached_statement(&st->reader_cache, st->reader,
-                                                   "queries/reading_mismatches.sql", &statement,
+                                                   "queries/readings/reading_mismatches.sql", &statement,
                                                    error);
     size_t capacity = 0;
     int failed = 0, rc = SQLITE_DONE;

@@ -92,7 +92,7 @@ mitilog_status store_reading_backfill_candidates(store *store, const char *from,
 void store_reading_entries_free(store_reading_entry *entries, size_t count);
 
 /* A capture whose header and screen disagree beyond the screen's rounding
- * (sql/queries/reading_mismatches.sql). Strings malloc'd. */
+ * (sql/queries/readings/reading_mismatches.sql). Strings malloc'd. */
 typedef struct store_mismatch {
     char *sop_instance_uid;
     char *index;                  /* "mi", "tis", ... */

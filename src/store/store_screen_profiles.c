@@ -38,10 +38,10 @@ static mitilog_status write_put(store *st, const void *context, mitilog_error *e
     put_context *put = (put_context *)context;
     const store_screen_profile_new *p = put->profile;
     sqlite3_stmt *next = NULL, *insert = NULL;
-    mitilog_status status = store_prepare(st->writer, "queries/screen_profile_next_version.sql",
+    mitilog_status status = store_prepare(st->writer, "queries/devices/screen_profile_next_version.sql",
                                           &next, error);
     if (status == MITILOG_OK)
-        status = store_prepare(st->writer, "queries/screen_profile_insert.sql", &insert, error);
+        status = store_prepare(st->writer, "queries/devices/screen_profile_insert.sql", &insert, error);
     if (status == MITILOG_OK) {
         int rc = bind_text_or_null(next, ":profile_key", p->key);
         if (rc == SQLITE_OK && sqlite3_step(next) == SQLITE_ROW)
@@ -123,7 +123,7 @@ static mitilog_status write_activate(store *st, const void *context, mitilog_err
     if (c.version == 0) {
         sqlite3_stmt *next = NULL;
         mitilog_status status = store_prepare(
-            st->writer, "queries/screen_profile_next_version.sql", &next, error);
+            st->writer, "queries/devices/screen_profile_next_version.sql", &next, error);
         if (status != MITILOG_OK)
             return status;
         if (bind_text_or_null(next, ":profile_key", c.key) == SQLITE_OK &&
@@ -133,9 +133,9 @@ static mitilog_status write_activate(store *st, const void *context, mitilog_err
     }
     int changed = 0;
     mitilog_status status =
-        run_update(st, "queries/screen_profile_retire_others.sql", &c, NULL, error);
+        run_update(st, "queries/devices/screen_profile_retire_others.sql", &c, NULL, error);
     if (status == MITILOG_OK)
-        status = run_update(st, "queries/screen_profile_activate.sql", &c, &changed, error);
+        status = run_update(st, "queries/devices/screen_profile_activate.sql", &c, &changed, error);
     if (status == MITILOG_OK && changed == 0)
         status = mitilog_error_set(error, MITILOG_ERROR_NOT_FOUND,
                                    "no screen profile %s version %d: list them with "
@@ -159,7 +159,7 @@ static mitilog_status write_retire(store *st, const void *context, mitilog_error
     const state_context *c = context;
     int changed = 0;
     mitilog_status status =
-        run_update(st, "queries/screen_profile_retire.sql", c, &changed, error);
+        run_update(st, "queries/devices/screen_profile_retire.sql", c, &changed, error);
     if (status == MITILOG_OK && changed == 0)
         status = mitilog_error_set(error, MITILOG_ERROR_NOT_FOUND,
                                    "no proposed or active screen profile %s: list them "
@@ -204,7 +204,7 @@ mitilog_status store_screen_profiles_active(store *st, char ***texts, size_t *co
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
     mitilog_status status =
-        store_prepare(st->reader, "queries/screen_profiles_active.sql", &statement, error);
+        store_prepare(st->reader, "queries/devices/screen_profiles_active.sql", &statement, error);
     int rc = SQLITE_DONE;
     while (status == MITILOG_OK && (rc = sqlite3_step(statement)) == SQLITE_ROW) {
         if (used == capacity) {
@@ -260,7 +260,7 @@ mitilog_status store_screen_profile_get(store *st, const char *key, int version,
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
     mitilog_status status =
-        store_prepare(st->reader, "queries/screen_profile_latest.sql", &statement, error);
+        store_prepare(st->reader, "queries/devices/screen_profile_latest.sql", &statement, error);
     if (status == MITILOG_OK) {
         int rc = bind_text_or_null(statement, ":profile_key", key);
         if (rc == SQLITE_OK)
@@ -310,7 +310,7 @@ mitilog_status store_screen_profiles_json(store *st, char **json, mitilog_error 
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
     mitilog_status status =
-        store_prepare(st->reader, "queries/screen_profiles_json.sql", &statement, error);
+        store_prepare(st->reader, "queries/devices/screen_profiles_json.sql", &statement, error);
     if (status == MITILOG_OK) {
         if (sqlite3_step(statement) == SQLITE_ROW)
             status = store_column_dup(statement, json, error);

@@ -292,7 +292,7 @@ static int store_bind_context(store *st, sqlite3_stmt *statement,
     return rc;
 }
 
-/* Binds every parameter of queries/instance_upsert.sql from record. */
+/* Binds every parameter of queries/instances/instance_upsert.sql from record. */
 static int store_bind_instance(store *st, sqlite3_stmt *statement,
                                const ext_record *record)
 {
@@ -444,16 +444,22 @@ static void store_fail_batch(store_request *batch, const char *what,
     }
 }
 
-/* Rewrites the summary row of an exam (migration 005) from what this
- * transaction wrote: once per exam written, not once per row. */
+/* Rewrites the summary row of an exam and its times at or above each
+ * threshold from what this transaction wrote: once per exam written, not
+ * once per row. Four statements, in this order: the times take the day
+ * and governing index from the new summary row. */
 static mitilog_status store_refresh_summary(store *st, const char *study_instance_uid,
                                             mitilog_error *error)
 {
-    sqlite3_stmt *statement = st->write.refresh_summary;
-    int rc = sqlite3_bind_text(statement, 1, study_instance_uid, -1, SQLITE_STATIC);
-    if (rc == SQLITE_OK)
-        rc = store_step_done(statement) == SQLITE_DONE ? SQLITE_OK : SQLITE_ERROR;
-    sqlite3_clear_bindings(statement);
+    sqlite3_stmt *statements[] = {st->write.summary_delete, st->write.summary_insert,
+                                  st->write.times_delete, st->write.times_insert};
+    int rc = SQLITE_OK;
+    for (size_t i = 0; rc == SQLITE_OK && i < sizeof statements / sizeof statements[0]; i++) {
+        rc = sqlite3_bind_text(statements[i], 1, study_instance_uid, -1, SQLITE_STATIC);
+        if (rc == SQLITE_OK)
+            rc = store_step_done(statements[i]) == SQLITE_DONE ? SQLITE_OK : SQLITE_ERROR;
+        sqlite3_clear_bindings(statements[i]);
+    }
     if (rc != SQLITE_OK)
         return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: exam summary: %s",
                                  study_instance_uid, sqlite3_errmsg(st->writer));
@@ -786,23 +792,26 @@ mitilog_status store_write_prepare(store *st, mitilog_error *error)
         const char *name;
         sqlite3_stmt **statement;
     } files[] = {
-        {"queries/write_begin.sql", &st->write.begin},
-        {"queries/write_commit.sql", &st->write.commit},
-        {"queries/write_rollback.sql", &st->write.rollback},
-        {"queries/instance_upsert.sql", &st->write.upsert_instance},
-        {"queries/rejection_insert.sql", &st->write.insert_rejection},
-        {"queries/sr_values_delete.sql", &st->write.delete_sr_values},
-        {"queries/sr_value_insert.sql", &st->write.insert_sr_value},
-        {"queries/exam_upsert.sql", &st->write.upsert_exam},
-        {"queries/exam_timeline_delete.sql", &st->write.delete_timeline},
-        {"queries/exam_mode_maxima_delete.sql",
+        {"queries/database/write_begin.sql", &st->write.begin},
+        {"queries/database/write_commit.sql", &st->write.commit},
+        {"queries/database/write_rollback.sql", &st->write.rollback},
+        {"queries/instances/instance_upsert.sql", &st->write.upsert_instance},
+        {"queries/instances/rejection_insert.sql", &st->write.insert_rejection},
+        {"queries/instances/sr_values_delete.sql", &st->write.delete_sr_values},
+        {"queries/instances/sr_value_insert.sql", &st->write.insert_sr_value},
+        {"queries/exams/exam_upsert.sql", &st->write.upsert_exam},
+        {"queries/exams/exam_timeline_delete.sql", &st->write.delete_timeline},
+        {"queries/exams/exam_mode_maxima_delete.sql",
          &st->write.delete_mode_maxima},
-        {"queries/exam_timeline_insert.sql", &st->write.insert_timeline},
-        {"queries/exam_mode_maximum_insert.sql",
+        {"queries/exams/exam_timeline_insert.sql", &st->write.insert_timeline},
+        {"queries/exams/exam_mode_maximum_insert.sql",
          &st->write.insert_mode_maximum},
-        {"queries/instance_header_upsert.sql", &st->write.upsert_header},
-        {"queries/instance_header_delete.sql", &st->write.delete_header},
-        {"queries/exam_summary_refresh.sql", &st->write.refresh_summary},
+        {"queries/instances/instance_header_upsert.sql", &st->write.upsert_header},
+        {"queries/instances/instance_header_delete.sql", &st->write.delete_header},
+        {"queries/exams/exam_summary_delete.sql", &st->write.summary_delete},
+        {"queries/exams/exam_summary_insert.sql", &st->write.summary_insert},
+        {"queries/exams/exam_time_at_or_above_delete.sql", &st->write.times_delete},
+        {"queries/exams/exam_time_at_or_above_insert.sql", &st->write.times_insert},
     };
     for (size_t i = 0; i < sizeof files / sizeof files[0]; i++) {
         mitilog_status status = store_prepare(st->writer, files[i].name,
@@ -822,7 +831,9 @@ void store_write_finalize(store *st)
         &st->write.insert_sr_value, &st->write.upsert_exam,
         &st->write.delete_timeline, &st->write.delete_mode_maxima,
         &st->write.insert_timeline, &st->write.insert_mode_maximum,
-        &st->write.upsert_header, &st->write.delete_header, &st->write.refresh_summary};
+        &st->write.upsert_header, &st->write.delete_header,
+        &st->write.summary_delete, &st->write.summary_insert, &st->write.times_delete,
+        &st->write.times_insert};
     for (size_t i = 0; i < sizeof statements / sizeof statements[0]; i++) {
         sqlite3_finalize(*statements[i]);
         *statements[i] = NULL;

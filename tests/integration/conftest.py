@@ -27,7 +27,7 @@ MAKE_FIXTURES = os.path.join(REPO, "tests", "fixtures", "make_fixtures.py")
 AE_TITLE = "MITILOG"
 
 # Senders need Nagle off as well, or one-object-at-a-time DIMSE crawls
-# (see the project's DCMTK notes: dcmnet reads TCP_NODELAY at connect).
+# (see docs/dcmtk.md: dcmnet reads TCP_NODELAY at connect).
 DCMTK_ENV = dict(os.environ, TCP_NODELAY="1")
 
 # A sanitizer report is never an expected error.

@@ -29,7 +29,7 @@ INDEX_TAGS = {
     "mi": 0x00185022, "tis": 0x00185027, "tib": 0x00185024,
     "tic": 0x00185026, "tis_focus": 0x00185028, "tis_surface": 0x00185029,
 }
-# reference: the project's domain reference section 2 (storage SOP classes)
+# reference: the project's docs/domain.md section 2 (storage SOP classes)
 US_SOP_CLASSES = {"1.2.840.10008.5.1.4.1.1.6.1", "1.2.840.10008.5.1.4.1.1.3.1",
                   "1.2.840.10008.5.1.4.1.1.6.2"}
 ISO_RE = re.compile(r"^(\d{4})-(\d\d)-(\d\d)T(\d\d):(\d\d):(\d\d)(?:\.(\d{1,6}))?$")

@@ -16,7 +16,7 @@ from conftest import BINARY, run
 from sending import simulated_files, storescu_statuses
 
 # DCMTK 3.6.7 storescu prints status A700 as "Refused: OutOfResources"
-# (project's DCMTK notes); PS3.4 B.2.3: A7xx "Refused: Out of Resources".
+# (docs/dcmtk.md); PS3.4 B.2.3: A7xx "Refused: Out of Resources".
 REFUSED = "Refused: OutOfResources"
 
 

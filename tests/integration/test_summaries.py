@@ -5,7 +5,7 @@ whenever it writes the exam. These
 tests compute the same rows the way the views did before the summaries
 existed (ORACLE below: from exams, exam_timeline, instances, exam_context,
 exam_measurements and findings directly) and require the rows of
-sql/queries/stats_exam_rows.sql, stats_exam_values.sql (both in the Study
+sql/queries/reports/stats_exam_rows.sql, stats_exam_values.sql (both in the Study
 Instance UID order the store sorts them into), stats_exam_governing.sql,
 stats_finding_counts.sql and stats_policy_info.sql to be identical, value
 for value (floats compared exactly), and findings.sql to return the same
@@ -159,7 +159,9 @@ SELECT (SELECT version FROM policies ORDER BY first_loaded_at DESC, rowid DESC L
 
 
 def query_text(name):
-    with open(os.path.join(REPO, "sql", "queries", name)) as f:
+    """A query of sql/queries/ by file name, whichever subject folder holds it."""
+    (path,) = glob.glob(os.path.join(REPO, "sql", "queries", "*", name))
+    with open(path) as f:
         return f.read()
 
 

@@ -1,8 +1,8 @@
 /* The exam record (ext_exam.c): governing index by exam type and
- * gestational age [domain reference section 3: TIS below 10 weeks, TIB
+ * gestational age [docs/domain.md section 3: TIS below 10 weeks, TIB
  * from 10 weeks or unknown, TIC transcranial, TIS otherwise], exam type
  * by majority, GA from SR before the nominal one, maxima per index and
- * mode, and the timeline (domain reference section 5: interval since the
+ * mode, and the timeline (docs/domain.md section 5: interval since the
  * previous capture attributed to the next, capped at 300 s, plus cine). */
 #include <setjmp.h>
 #include <stdarg.h>

@@ -124,7 +124,7 @@ static void clear_facts(dcm_facts *facts)
     memset(facts, 0, sizeof *facts);
 }
 
-/* The order of the exam-timeline section of the domain reference:
+/* The order of the exam-timeline section of docs/domain.md:
  * acquisition date-time, acquisition, content, instance creation, study. */
 static void acquisition_time_fall_backs(void **state)
 {

@@ -1,5 +1,5 @@
 /* The rules on hand-built exams, at and around every limit of the shipped
- * policy (values of the domain reference, section 4, marked there "from
+ * policy (values of docs/domain.md section 4, marked there "from
  * memory": BMUS tables, FDA maxima, ISUOG). */
 #include <setjmp.h>
 #include <stdarg.h>
@@ -77,7 +77,7 @@ static void check_table(const char *rule_id, exam_group group, double weeks, exa
     }
 }
 
-/* BMUS obstetric/neonatal table as in the domain reference (from memory). */
+/* BMUS obstetric/neonatal table as in docs/domain.md (from memory). */
 static void obstetric_table_at_and_around_each_threshold(void **state)
 {
     (void)state;
@@ -91,7 +91,7 @@ static void obstetric_table_at_and_around_each_threshold(void **state)
     rules_result_free(&result);
 }
 
-/* BMUS general table as in the domain reference (from memory; verify). */
+/* BMUS general table as in docs/domain.md (from memory; verify). */
 static void general_table_at_and_around_each_threshold(void **state)
 {
     (void)state;
@@ -109,7 +109,7 @@ static void general_table_at_and_around_each_threshold(void **state)
     rules_result_free(&result);
 }
 
-/* Domain reference section 3: obstetric < 10 weeks TIS, >= 10 weeks or
+/* docs/domain.md section 3: obstetric < 10 weeks TIS, >= 10 weeks or
  * unknown TIB; transcranial TIC; neonatal head TIS. */
 static void governing_index_switches_at_ten_weeks(void **state)
 {

@@ -8,7 +8,7 @@
 
 #include "rules_test_support.h"
 
-/* Sapareto & Dewey 1984 (domain reference, section 5): 1 min at 43 C is
+/* Sapareto & Dewey 1984 (docs/domain.md section 5): 1 min at 43 C is
  * 1.0 CEM43; 1 min at 44 C is 2.0; 1 min at 42 C is 0.25. */
 static void cem43_check_values(void **state)
 {
@@ -25,7 +25,7 @@ static void cem43_check_values(void **state)
 }
 
 /* IEC 62359 / NEMA UD 3: MI = p_r.3 / sqrt(f_awf); worked values of the
- * domain reference, section 1: 2.0 MPa at 4.0 MHz -> 1.0; 1.9 MPa at
+ * docs/domain.md section 1: 2.0 MPa at 4.0 MHz -> 1.0; 1.9 MPa at
  * 1.0 MHz -> 1.9. */
 static void mechanical_index_check_values(void **state)
 {

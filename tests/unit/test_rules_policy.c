@@ -35,7 +35,7 @@ static void shipped_policy_loads(void **state)
     }
     exam_rule_info info;
     assert_int_equal(rules_policy_rule_at(policy, 9, &info), -1);
-    /* The OB table exactly as in the domain reference (section 4). */
+    /* The OB table exactly as in docs/domain.md (section 4). */
     rules_policy_rule_at(policy, 4, &info);
     const char *table[][2] = {{"dwell.0.7", "60.0"}, {"dwell.1.0", "30.0"},
                               {"dwell.1.5", "15.0"}, {"dwell.2.0", "4.0"},

@@ -7,7 +7,7 @@
  *   2021-01-03 -> (2020, 53); 2026-11-16 and 2026-11-22 -> (2026, 47)
  *   fromisocalendar(2026, 53, 1) = 2026-12-28; (2027, 1, 1) = 2027-01-04;
  *   (2026, 1, 1) = 2025-12-29; (2025, 53, 1) -> ValueError "Invalid week: 53"
- * Robust z, hand-worked (domain reference section 5): baseline
+ * Robust z, hand-worked (docs/domain.md section 5): baseline
  *   [1.0, 1.1, 1.2, 1.2, 1.3, 1.4, 1.9]: median 1.2; |x - 1.2| sorted
  *   [0, 0, 0.1, 0.1, 0.2, 0.2, 0.7]: MAD 0.1; P95 (type 7, Python
  *   quantiles(n=20, method='inclusive')[18]) = 1.75.

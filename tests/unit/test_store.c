@@ -261,7 +261,7 @@ static void durability_setting(void **state)
 static void open_creates_schema(void **state)
 {
     fixture *f = *state;
-    assert_true(newest_migration() >= 8); /* sql/migrations/001..008 */
+    assert_true(newest_migration() >= 11); /* sql/migrations/001..008, 011 */
     assert_int_equal(store_schema_version(f->store), newest_migration());
     assert_int_equal(query_int(f->path, "PRAGMA user_version"),
                      newest_migration());
@@ -965,6 +965,72 @@ static void exec_sql(const char *path, const char *sql)
     sqlite3_close(db);
 }
 
+/* What the store runs after it writes an exam (store_refresh_summary),
+ * for every exam the database holds: its summary row, then its times. */
+static void refresh_every_summary(const char *path)
+{
+    static const char *const files[] = {
+        "queries/exams/exam_summary_delete.sql", "queries/exams/exam_summary_insert.sql",
+        "queries/exams/exam_time_at_or_above_delete.sql", "queries/exams/exam_time_at_or_above_insert.sql"};
+    sqlite3 *db = NULL;
+    sqlite3_stmt *exams = NULL;
+    assert_int_equal(sqlite3_open(path, &db), SQLITE_OK);
+    assert_int_equal(sqlite3_prepare_v2(db, "SELECT study_instance_uid FROM exams", -1, &exams,
+                                        NULL),
+                     SQLITE_OK);
+    while (sqlite3_step(exams) == SQLITE_ROW) {
+        for (size_t i = 0; i < sizeof files / sizeof files[0]; i++) {
+            sqlite3_stmt *statement = NULL;
+            assert_int_equal(sqlite3_prepare_v2(db, sql_file_text(files[i]), -1, &statement,
+                                                NULL),
+                             SQLITE_OK);
+            sqlite3_bind_text(statement, 1, (const char *)sqlite3_column_text(exams, 0), -1,
+                              SQLITE_TRANSIENT);
+            assert_int_equal(sqlite3_step(statement), SQLITE_DONE);
+            sqlite3_finalize(statement);
+        }
+    }
+    sqlite3_finalize(exams);
+    sqlite3_close(db);
+}
+
+/* A policy row added makes it the current policy: every exam summary
+ * then names it as the policy of its measurement (with no seconds: that
+ * policy has not measured the exam); registering an older policy again
+ * updates its row and leaves the current policy as it was (the policy refresh the store runs,
+ * exam_summary_policy_refresh.sql). Common practice, no source. */
+static void new_policy_refreshes_summaries(void **state)
+{
+    fixture *f = *state;
+    exec_sql(f->path,
+             "INSERT INTO exams (study_instance_uid, exam_type, exam_type_source, "
+             "governing_index, governing_index_source, first_acquired_at, instance_count, "
+             "capture_count, cine_count, sr_count, other_count, max_tis, estimated_seconds, "
+             "unscaled_seconds, scale, span_seconds, timed_count, untimed_count, "
+             "capped_count, gap_cap_seconds, updated_at) VALUES ('1.5', 'abdomen', 'test', "
+             "'tis', 'test', '2024-03-01T10:00:00', 0, 0, 0, 0, 0, 1.5, 60, 60, 1, 60, 0, 0, 0, "
+             "120, 'now')");
+    refresh_every_summary(f->path);
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM exam_summaries "
+                                        "WHERE measured_policy IS NULL"), 1);
+    mitilog_error error = {{0}};
+    store_policy policy = {"v-one", "first", "", 30, 120, NULL, 0, NULL, 0};
+    assert_int_equal(store_register_policy(f->store, &policy, &error), MITILOG_OK);
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM exam_summaries "
+                                        "WHERE measured_policy = 'v-one' "
+                                        "AND measured_seconds IS NULL"), 1);
+    policy.version = "v-two";
+    policy.name = "second";
+    assert_int_equal(store_register_policy(f->store, &policy, &error), MITILOG_OK);
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM exam_summaries "
+                                        "WHERE measured_policy = 'v-two'"), 1);
+    /* the first again: an update of its row, not a new current policy */
+    policy.version = "v-one";
+    assert_int_equal(store_register_policy(f->store, &policy, &error), MITILOG_OK);
+    assert_int_equal(query_int(f->path, "SELECT count(*) FROM exam_summaries "
+                                        "WHERE measured_policy = 'v-two'"), 1);
+}
+
 /* The exam-row loaders: exams of five days written out of UID order; a
  * period returns its exams sorted by Study Instance UID (the order reports
  * sum in), only the text columns asked for, the same exams whichever of
@@ -990,7 +1056,7 @@ static void exam_rows_sorted_by_uid(void **state)
         exec_sql(f->path, sql);
     }
     /* What the store does in the transaction that writes an exam. */
-    exec_sql(f->path, "INSERT INTO exam_summary_refresh SELECT study_instance_uid FROM exams");
+    refresh_every_summary(f->path);
     store_exam_list list = {0};
     mitilog_error error = {{0}};
     assert_int_equal(store_load_exam_rows(f->store, "2024-03-02", "2024-03-04",
@@ -1121,6 +1187,8 @@ int main(void)
         cmocka_unit_test_setup_teardown(durability_setting, fixture_setup, fixture_teardown),
         cmocka_unit_test_setup_teardown(exam_rows_sorted_by_uid, fixture_setup, fixture_teardown),
         cmocka_unit_test_setup_teardown(screen_profiles_states, fixture_setup, fixture_teardown),
+        cmocka_unit_test_setup_teardown(new_policy_refreshes_summaries, fixture_setup,
+                                        fixture_teardown),
         cmocka_unit_test_setup_teardown(open_creates_schema, fixture_setup,
                                         fixture_teardown),
         cmocka_unit_test_setup_teardown(put_and_read_back, fixture_setup,

@@ -1,1 +1,0 @@
-INSERT INTO group_rules VALUES (:group_position, :rule_id, :count);

@@ -1,1 +1,0 @@
-INSERT INTO meta (name, value, is_bool) VALUES (:name, :value, :is_bool);

@@ -1,0 +1,341 @@
+"""The printed statistics document (`report stats --format html`) and the
+printed week report, over a daemon fed the demo's simulated department
+(seed 2026, 28 days = ISO weeks 45-48 of 2026, as deploy/demo.sh sends).
+
+Independent checks: Python's statistics module (median, quantiles with
+method='inclusive', Hyndman & Fan type 7) recomputed on the exam values the
+API serves; the document read with Python's html.parser, the CSV with the
+csv module, the JSON with the json module; the HTML printed to PDF by
+Debian's headless Chromium, its pages counted by poppler's pdfinfo and
+rendered to PNG by pdftoppm (poppler-utils).
+"""
+import collections
+import csv
+import glob
+import html.parser
+import io
+import json
+import os
+import shutil
+import statistics
+import subprocess
+import tempfile
+
+import pytest
+
+from conftest import BINARY, REPO, Daemon, run
+
+DAYS = 28
+SEED = 2026
+FROM, TO = "2026-11-02", "2026-11-29"
+INSTITUTION = "Northfield General Hospital & Clinics"
+OUT_DIR = os.path.join(REPO, "tests", "out")
+
+
+@pytest.fixture(scope="module")
+def department(tmp_path_factory):
+    work = tmp_path_factory.mktemp("pack")
+    sim = os.path.join(str(work), "sim")
+    result = run([BINARY, "simulate", "--days", str(DAYS), "--seed", str(SEED), "--out", sim],
+                 timeout=600)
+    assert result.returncode == 0, result.stderr
+    daemon = Daemon(work)
+    with open(daemon.config, "a") as f:
+        f.write("[site]\ninstitution = %s\n" % INSTITUTION)
+    imported = daemon.import_(sim)
+    assert "imported" in imported.stdout, imported.stderr
+    daemon.start()
+    yield daemon
+    daemon.stop()
+
+
+def report(daemon, *args):
+    path = os.path.join(daemon.workdir, "report.out")
+    result = run([BINARY, "report"] + list(args) + ["--config", daemon.config,
+                                                     "--output", path], timeout=300)
+    assert result.returncode == 0, result.stderr
+    with open(path, encoding="utf-8", newline="") as f:
+        return f.read()
+
+
+class PackParser(html.parser.HTMLParser):
+    """Cells of the document's tables by table id, row data-key and cell
+    data-field; the visible text apart (attributes and styles excluded)."""
+
+    def __init__(self):
+        super().__init__()
+        self.tables = collections.defaultdict(dict)
+        self.table = self.key = self.field = None
+        self.cell = []
+        self.text = []
+        self.skip = 0
+        self.svg_count = 0
+
+    def handle_starttag(self, tag, attrs):
+        attrs = dict(attrs)
+        if tag in ("style", "title"):
+            self.skip += 1
+        if tag == "svg":
+            self.svg_count += 1
+        if tag == "table":
+            self.table = attrs.get("id")
+        elif tag == "tr" and self.table:
+            self.key = attrs.get("data-key")
+            if self.key is not None:
+                self.tables[self.table][self.key] = {}
+        elif tag == "td" and self.key is not None:
+            self.field = attrs.get("data-field")
+            self.cell = []
+
+    def handle_endtag(self, tag):
+        if tag in ("style", "title"):
+            self.skip -= 1
+        if tag == "td" and self.field is not None:
+            self.tables[self.table][self.key][self.field] = "".join(self.cell).strip()
+            self.field = None
+        elif tag == "table":
+            self.table = None
+
+    def handle_data(self, data):
+        if self.skip:
+            return
+        self.text.append(data)
+        if self.field is not None:
+            self.cell.append(data)
+
+
+def parse(text):
+    parser = PackParser()
+    parser.feed(text)
+    parser.visible = " ".join(parser.text)
+    return parser
+
+
+def python_summary(values):
+    values = sorted(values)
+    if len(values) == 1:
+        return values[0], values[0], values[0]
+    quartiles = statistics.quantiles(values, n=4, method="inclusive")
+    vigintiles = statistics.quantiles(values, n=20, method="inclusive")
+    return statistics.median(values), quartiles[2], vigintiles[18]
+
+
+def shown(text):
+    """A number as the document prints it, None for the dash of 'no value'."""
+    text = text.replace("\u00a0", " ").replace("%", "").strip()
+    return None if text in ("\u2014", "") else float(text)
+
+
+def need_tools(*names):
+    missing = [n for n in names if shutil.which(n) is None and not os.path.exists(n)]
+    if missing:
+        if os.environ.get("MITILOG_REQUIRE_BROWSER"):
+            pytest.fail("missing: " + ", ".join(missing))
+        pytest.skip("missing: " + ", ".join(missing))
+
+
+def print_pages(html_text, name):
+    """Prints the HTML to PDF with headless Chromium, counts its pages with
+    pdfinfo and renders them to PNG with pdftoppm; returns (pages, pngs)."""
+    need_tools("/usr/bin/chromium", "pdfinfo", "pdftoppm")
+    out = os.path.join(OUT_DIR, "pack-" + os.path.basename(os.path.dirname(BINARY)))
+    os.makedirs(out, exist_ok=True)
+    source = os.path.join(out, name + ".html")
+    pdf = os.path.join(out, name + ".pdf")
+    with open(source, "w", encoding="utf-8") as f:
+        f.write(html_text)
+    for old in glob.glob(os.path.join(out, name + "-*.png")):
+        os.remove(old)
+    with tempfile.TemporaryDirectory() as profile:
+        result = run(["/usr/bin/chromium", "--headless", "--no-sandbox", "--disable-gpu",
+                      "--no-first-run", "--disable-background-networking",
+                      "--disable-component-update", "--disable-sync",
+                      "--user-data-dir=" + profile, "--no-pdf-header-footer",
+                      "--print-to-pdf=" + pdf, "file://" + source], timeout=120)
+    assert os.path.exists(pdf), result.stderr
+    info = run(["pdfinfo", pdf], timeout=60)
+    assert info.returncode == 0, info.stderr
+    pages = int([line.split()[1] for line in info.stdout.splitlines()
+                 if line.startswith("Pages:")][0])
+    size = [line for line in info.stdout.splitlines() if line.startswith("Page size:")][0]
+    # A4 (ISO 216), as pdfinfo names the page size.
+    assert "(A4)" in size, size
+    result = run(["pdftoppm", "-r", "50", "-png", pdf, os.path.join(out, name)], timeout=120)
+    assert result.returncode == 0, result.stderr
+    pngs = sorted(glob.glob(os.path.join(out, name + "-*.png")))
+    for png in pngs:
+        with open(png, "rb") as f:
+            assert f.read(8) == b"\x89PNG\r\n\x1a\n"
+    return pages, pngs
+
+
+def test_pack_statistics_match_python(department):
+    document = parse(report(department, "stats", "--from", FROM, "--to", TO,
+                            "--format", "html"))
+    rows = document.tables["distribution"]
+    studies = department.get_json("/api/v1/studies?from=%s&to=%s" % (FROM, TO))
+    by_type = collections.defaultdict(list)
+    for study in studies:
+        by_type[study["exam_type"] if study["exam_type"] is not None else "(not recorded)"].append(study)
+    assert set(rows) - {"(all)"} == set(by_type)
+    assert int(rows["(all)"]["exams"]) == len(studies)
+    checked = 0
+    for exam_type, members in by_type.items():
+        row = rows[exam_type]
+        values = [m["max_governing"] for m in members if m["max_governing"] is not None]
+        # The exams with and without a value are counted apart.
+        assert int(row["exams"]) == len(members)
+        assert int(row["governing_n"]) == len(values)
+        assert int(row["governing_without_value"]) == len(members) - len(values)
+        mi = [m["max_mi"] for m in members if m["max_mi"] is not None]
+        assert int(row["mi_n"]) == len(mi)
+        for prefix, sample in (("governing", values), ("mi", mi)):
+            if not sample:
+                assert shown(row[prefix + "_median"]) is None
+                continue
+            for name, expected in zip(("median", "p75", "p95"), python_summary(sample)):
+                # printed with 2 decimals: within half a unit of the last digit
+                assert abs(shown(row[prefix + "_" + name]) - expected) <= 0.005 + 1e-9, (
+                    exam_type, prefix, name)
+                checked += 1
+    assert checked > 30
+    # Some type of the demo holds exams without a value (a silent probe).
+    assert any(int(r["governing_without_value"]) > 0 for k, r in rows.items() if k != "(all)")
+
+
+def test_pack_says_what_it_is(department):
+    text = report(department, "stats", "--from", FROM, "--to", TO, "--format", "html")
+    document = parse(text)
+    visible = document.visible
+    assert "Northfield General Hospital &amp; Clinics" in text
+    assert INSTITUTION in visible
+    assert FROM in visible and TO in visible
+    assert "Policy version" in visible
+    # The caution once, not "Advisory. Advisory:".
+    assert visible.count("Advisory") == 1
+    # Labels, not internal keys: the site file's labels are shown.
+    assert "Obstetric, 2nd trimester" in visible and "obstetric_second" not in visible
+    # Governing index per row, upper case as the trade writes it.
+    assert "TIS" in visible and "TIB" in visible
+    # One chart per exam type.
+    assert document.svg_count == len(document.tables["distribution"]) - 1
+    for word in ("Sign-off", "Name", "Role", "Date", "Signature"):
+        assert word in visible
+    # Consistent decimals: every index cell has two decimals.
+    for row in document.tables["distribution"].values():
+        for field, value in row.items():
+            if field.startswith(("governing_m", "governing_p", "mi_m", "mi_p")) and shown(value) is not None:
+                assert len(value.split(".")[1]) == 2, (field, value)
+
+
+def test_pack_csv_and_json_carry_the_html_numbers(department):
+    document = parse(report(department, "stats", "--from", FROM, "--to", TO,
+                            "--format", "html"))
+    records = list(csv.DictReader(io.StringIO(
+        report(department, "stats", "--from", FROM, "--to", TO, "--format", "csv"),
+        newline="")))
+    data = json.loads(report(department, "stats", "--from", FROM, "--to", TO,
+                             "--format", "json"))
+    assert records[0]["institution"] == INSTITUTION and data["institution"] == INSTITUTION
+    json_rows = {r["key"] if r["key"] is not None else "(not recorded)": r for r in data["rows"]}
+    json_rows["(all)"] = data["total"]
+    compared = 0
+    for record in records[1:]:
+        key = record["key"]
+        for table in ("distribution", "time"):
+            cells = document.tables[table][key]
+            for field, value in cells.items():
+                if field == "share_with_findings_percent":
+                    csv_value = 100 * float(record["share_with_findings"])
+                else:
+                    csv_value = float(record[field]) if record[field] != "" else None
+                printed = shown(value)
+                if printed is None:
+                    assert csv_value is None, (key, field)
+                    continue
+                decimals = len(value.split(".")[1]) if "." in value else 0
+                assert abs(printed - csv_value) <= 0.5 * 10 ** -decimals + 1e-9, (key, field)
+                compared += 1
+        row = json_rows[key]
+        cells = document.tables["distribution"][key]
+        assert int(cells["exams"]) == row["exam_count"]
+        assert int(cells["governing_n"]) == row["governing"]["count"]
+        for name in ("median", "p75", "p95"):
+            if row["governing"]["count"]:
+                assert abs(shown(cells["governing_" + name]) - row["governing"][name]) <= 0.005 + 1e-9
+                assert float(record["governing_" + name]) == pytest.approx(row["governing"][name], rel=1e-5)
+        assert row["governing_without_value"] == int(cells["governing_without_value"])
+        if key != "(all)":
+            assert record["label"] and record["governing_index"]
+            assert (row["label"], row["governing_index"]) == (record["label"], record["governing_index"])
+    assert compared > 100
+
+
+def test_pack_prints(department):
+    text = report(department, "stats", "--from", FROM, "--to", TO, "--format", "html")
+    pages, pngs = print_pages(text, "statistics")
+    # Two tables of 13 exam types, 13 charts and the sign-off (layout measured:
+    # 3 pages on A4); more would mean rows or charts split badly.
+    assert 2 <= pages <= 3
+    assert len(pngs) == pages
+
+
+def busiest_week(daemon):
+    studies = daemon.get_json("/api/v1/studies?from=%s&to=%s" % (FROM, TO))
+    weeks = collections.Counter()
+    import datetime
+    for study in studies:
+        day = (study.get("first_acquired_at") or study.get("day") or "")[:10]
+        if day:
+            year, week, _ = datetime.date.fromisoformat(day).isocalendar()
+            weeks["%d-W%02d" % (year, week)] += 1
+    assert weeks
+    return weeks.most_common(1)[0][0]
+
+
+@pytest.mark.parametrize("group", ["room", "preset", "shift"])
+def test_week_report_fits_two_pages(department, group):
+    week = busiest_week(department)
+    text = report(department, "week", week, "--group", group, "--format", "html")
+    pages, pngs = print_pages(text, "week-" + group)
+    assert pages <= 2, (week, group, pages)
+    assert len(pngs) == pages
+    visible = parse(text).visible
+    assert visible.count("Advisory") == 1
+    assert "obstetric_second" not in visible
+
+
+def test_exam_chart_in_chromium(department):
+    """The exam page's chart at 1000 px (tests/browser/exam_chart.mjs):
+    MI and TI on separate panels, round ticks, no overlapping labels, no
+    sideways scroll, printable."""
+    browser_dir = os.path.join(REPO, "tests", "browser")
+    node = shutil.which("node")
+    if not (node and os.path.exists("/usr/bin/chromium") and os.path.isdir(
+            os.path.join(browser_dir, "node_modules", "playwright-core"))):
+        if os.environ.get("MITILOG_REQUIRE_BROWSER"):
+            pytest.fail("node, /usr/bin/chromium or tests/browser/node_modules missing")
+        pytest.skip("node, chromium or playwright-core (npm ci in tests/browser) missing")
+    studies = department.get_json("/api/v1/studies?from=%s&to=%s" % (FROM, TO))
+    with_mi = [s for s in studies if s["max_mi"] is not None]
+    with_ti = [s for s in studies if s["max_governing"] is not None]
+    chosen = [max(with_mi, key=lambda s: s["max_mi"]),          # the MI breach
+              max(with_ti, key=lambda s: s["max_governing"]),   # the hottest TI
+              max(studies, key=lambda s: s["instance_count"]),  # the longest
+              next(s for s in with_ti if (s["exam_type"] or "").startswith("obstetric"))]
+    out = os.path.join(OUT_DIR, "pack-" + os.path.basename(os.path.dirname(BINARY)))
+    config_path = os.path.join(department.workdir, "exam-chart.json")
+    with open(config_path, "w") as f:
+        json.dump(dict(url="http://127.0.0.1:%d" % department.http_port, out=out,
+                       studies=[s["study_instance_uid"] for s in chosen]), f)
+    result = subprocess.run([node, os.path.join(browser_dir, "exam_chart.mjs"), config_path],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            timeout=180, cwd=browser_dir)
+    lines = [line for line in result.stdout.splitlines() if line.startswith("{")]
+    assert lines, result.stderr
+    outcome = json.loads(lines[-1])
+    failed = [c for c in outcome["checks"] if not c["ok"]]
+    assert not failed and not outcome["errors"], (failed, outcome["errors"])
+    assert len(outcome["checks"]) >= 4 * 6
+    with open(outcome["pdf"], "rb") as f:
+        assert f.read(5) == b"%PDF-"
