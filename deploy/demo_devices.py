@@ -27,6 +27,7 @@ most common reasons a screen was not read. Reads the database only.
 import argparse
 import collections
 import csv
+import json
 import os
 import re
 import sqlite3
@@ -73,7 +74,6 @@ def learn(options):
     listed = run([options.binary, "device", "list", "--config", options.config])
     active = set()
     if listed.returncode == 0:
-        import json
         active = {p["key"] for p in json.loads(listed.stdout or "[]") if p["state"] == "active"}
     failed = 0
     for device, device_rows in by_device.items():

@@ -1,10 +1,18 @@
 """The demo path, shortened: the simulator streams three days of traffic
 through DCMTK's storescu to a test daemon, and the API shows every
-instance exactly once (the resent study replaced, not duplicated)."""
+instance exactly once (the resent study replaced, not duplicated); and
+the demo's screen set-up (deploy/demo_devices.py) on two days of screens:
+values read from the pixels, mismatch findings, a software update that
+stops a profile until the device is learned again, the dashboard's
+provenance and refused frames."""
 import csv
+import json
 import os
+import re
+import shutil
 import subprocess
 import sys
+import time
 
 import pydicom
 
@@ -95,7 +103,6 @@ def test_screen_department_reaches_the_api(daemon_factory, tmp_path):
 def _wait_for_readings(daemon, limit_seconds=900):
     """Until the reading queue is empty (the daemon reads after it answers
     each C-STORE): a wait, not a timed assertion."""
-    import time
     deadline = time.monotonic() + limit_seconds
     while time.monotonic() < deadline:
         with daemon.db() as db:
@@ -108,7 +115,6 @@ def _wait_for_readings(daemon, limit_seconds=900):
 
 def _drawn_value(text):
     """The number of a drawn index text such as 'MI 1.2', 'TIs0.4'."""
-    import re
     match = re.search(r"([0-9]+\.[0-9]+)$", text)
     return match.group(1) if match else None
 
@@ -116,8 +122,6 @@ def _drawn_value(text):
 def _browser_checks(daemon, tmp_path, pages):
     """The Devices page and the exam page's provenance table in Debian's
     headless Chromium (tests/browser/screens.mjs, playwright-core)."""
-    import json
-    import shutil
     node = shutil.which("node")
     browser_dir = os.path.join(REPO, "tests", "browser")
     if not (node and os.path.exists("/usr/bin/chromium") and os.path.isdir(
