@@ -417,13 +417,17 @@ static void read_object(ingest_reading *reading, const ingest_reading_item *item
 }
 
 /* The first reason a reading refused anything, or NULL when all was
- * read (or not shown). */
+ * read (or not shown). An index left blank on this frame ("nothing is
+ * drawn where ...": an exam that does not show it) is no refusal, as in
+ * the Devices API's count (sql/queries/devices/screen_profiles_json.sql). */
 static const char *refusal_of(const store_screen_result *result)
 {
+    static const char blank[] = "nothing is drawn";
     if (!result->read)
         return result->reason != NULL ? result->reason : "not read";
     for (int i = 0; i < EXAM_INDEX_COUNT; i++)
-        if (result->values[i].reason != NULL)
+        if (result->values[i].reason != NULL &&
+            strncmp(result->values[i].reason, blank, sizeof blank - 1) != 0)
             return result->values[i].reason;
     return NULL;
 }

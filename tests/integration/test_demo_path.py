@@ -254,6 +254,12 @@ def test_demo_sets_up_the_scanners_and_reads_their_screens(daemon_factory, tmp_p
     with open(daemon.stderr_path) as f:
         warnings = [line for line in f if "screen profile ambervale-av40-4.0.2 refuses" in line]
     assert len(warnings) == 1   # once an hour, not once a frame
+    # An index an exam does not show (blank on that frame) is no refusal:
+    # the maternity scanner refuses nothing and is never warned about.
+    assert devices[("mitilog-sim-us-5", 1)]["recent_refused"] == 0
+    with open(daemon.stderr_path) as f:
+        assert not [line for line in f if "refuses frames" in line
+                    and "ambervale-av40-4.0.2" not in line]
 
     first = pixels_only[0]
     _browser_checks(daemon, tmp_path, dict(
