@@ -84,6 +84,24 @@ for _ in $(seq 1 100); do
     sleep 0.1
 done
 
+# The administrator's part (docs/screen-reading.md, "Setting up a
+# device"): a screen profile per scanner and software version, learned
+# from a few of its images and activated, before its traffic arrives. The
+# demo keeps retention = header, so an object is read once, when it
+# arrives: objects received before their device's profile exists could
+# not be read again later (docs/reading.md). The images to learn from are
+# two days of the same simulated department (day 2 has US-ROOM-1's new
+# software). US-ROOM-1's new software is left unlearned until the traffic
+# has been sent, to show what a software update does to a profile.
+learning=$data/learning-images
+echo "demo: setting up the scanners' screen profiles from two simulated days of their images"
+rm -rf "$learning"
+build/mitilog simulate --days 2 --seed "$seed" --out "$learning" --screens --compress >/dev/null
+python3 deploy/demo_devices.py learn --binary build/mitilog --config "$data/mitilog.ini" \
+    --images "$learning" --skip ambervale-av40-4.1.0 --allow-refused
+echo "demo: waiting 11 s for the daemon to pick up the active profiles (it looks every 10 s)"
+sleep 11
+
 echo "demo: sending $days days of simulated traffic (seed $seed) to 127.0.0.1:$dicom_port"
 # --screens: the rooms' scanners burn the indices into the pixels (US-ROOM-4
 # writes none into the header); --compress: most send JPEG baseline,
@@ -93,6 +111,16 @@ build/mitilog simulate --days "$days" --seed "$seed" --out "$data/simulated" \
     --screens --compress \
     --send "127.0.0.1:$dicom_port" --called-aet MITILOG --speed "$speed"
 
+echo "demo: waiting for the last screens to be read"
+python3 deploy/demo_devices.py summary --database "$data/var/mitilog.sqlite3" --wait 900 \
+    > "$data/reading-summary.txt" || true
+# After the software update, US-ROOM-1's images were "not read: software
+# changed" (the Devices page counts them against the old profile); the
+# administrator now learns the new software, for the traffic to come.
+python3 deploy/demo_devices.py learn --binary build/mitilog --config "$data/mitilog.ini" \
+    --images "$learning" --only ambervale-av40-4.1.0 --allow-refused
+rm -rf "$learning"
+
 cat <<TEXT
 
 mitilog is running.
@@ -101,7 +129,14 @@ mitilog is running.
   DICOM:  AE MITILOG on port $dicom_port (echoscu -aec MITILOG 127.0.0.1 $dicom_port)
   Data:   $data/var (SQLite: $data/var/mitilog.sqlite3)
   Log:    $data/serve.log
+  Devices: http://127.0.0.1:$http_port/devices.html   (screen profiles, frames refused)
   What to look for in the simulated data: docs/demo.md
+
+Indices read from the screens (the values the scanners drew into the
+pixels; US-ROOM-4 writes them nowhere else; US-ROOM-3's screen could not
+be learned, US-ROOM-1's frames after its software update were not read
+and the demo's retention = header cannot read them again):
+$(cat "$data/reading-summary.txt")
 
 mitilog advises; the department's safety policy, its physicist and local
 regulation decide. Press Ctrl-C to stop.

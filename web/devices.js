@@ -3,7 +3,8 @@
 // retired), who confirmed them, what learning found, and the frame it was
 // learned from with the regions the reader looks at drawn over it (label
 // boxes solid, value areas dashed). Set-up happens with the command line:
-// mitilog device learn / activate (docs/screen-reading.md).
+// mitilog device learn / activate (docs/screen-reading.md). Per version,
+// how many of its recent frames were refused and why.
 import { el, clear, header, getJSON, showError, orNone } from './common.js';
 
 header('devices.html');
@@ -79,6 +80,20 @@ async function exampleCanvas(profile) {
   return canvas;
 }
 
+// What the profile's frames of the last 7 days came to (GET /api/v1/devices
+// recent_*): a profile that stops matching (a software update, a layout
+// that moved) shows here as frames refused with the main reason.
+function refusedCell(p) {
+  if (!p.recent_frames) return el('td', { class: 'refused-none' }, 'no frames in the last 7 days');
+  if (!p.recent_refused) return el('td', { class: 'refused-none' }, `0 of ${p.recent_frames} refused`);
+  const reason = p.refused_reason || 'not read';
+  const short = reason.split(/[:;]/)[0];
+  const since = p.refused_since ? ` since ${p.refused_since.slice(0, 10)}` : '';
+  return el('td', { class: 'refused', title: reason },
+    el('strong', {}, `${short}: ${p.recent_refused} of ${p.recent_frames} frames${since}`),
+    el('br', {}), el('span', { class: 'note' }, `main reason (${p.refused_reason_frames} frames): ${reason}`));
+}
+
 async function main() {
   clear(content);
   let profiles;
@@ -94,7 +109,7 @@ async function main() {
     return;
   }
   const table = el('table', {},
-    el('thead', {}, el('tr', {}, ...['Key', 'Version', 'State', 'Device', 'Frame size', 'Learned', 'Confirmed by'].map((h) => el('th', {}, h)))));
+    el('thead', {}, el('tr', {}, ...['Key', 'Version', 'State', 'Device', 'Frame size', 'Learned', 'Confirmed by', 'Frames refused (last 7 days)'].map((h) => el('th', {}, h)))));
   const body = el('tbody', {});
   for (const p of profiles) {
     const device = [p.manufacturer, p.model_name, p.software_versions].filter((v) => v).join(' · ');
@@ -102,7 +117,8 @@ async function main() {
       el('td', {}, p.key), el('td', { class: 'n' }, String(p.version)), el('td', {}, p.state),
       el('td', {}, orNone(device || null)), el('td', {}, `${p.columns}×${p.rows}`),
       el('td', {}, p.learned_at),
-      el('td', {}, p.confirmed_by ? `${p.confirmed_by}, ${p.confirmed_at}` : '—')));
+      el('td', {}, p.confirmed_by ? `${p.confirmed_by}, ${p.confirmed_at}` : '—'),
+      refusedCell(p)));
   }
   table.appendChild(body);
   content.appendChild(table);

@@ -2,6 +2,7 @@
 // index over the exam with the applicable limits and dwell thresholds,
 // the findings and the instances. Minimal patient data: a short study key.
 import { el, svg, clear, header, getJSON, showError, param, fmt, minutes, orNone, studyKey, scale, marker } from './common.js';
+import { provenanceTable } from './provenance.js';
 
 header('');
 const content = document.getElementById('content');
@@ -244,6 +245,8 @@ async function main() {
   content.appendChild(findingsTable(study.findings, silent));
   content.appendChild(el('h2', {}, `Instances (${(study.instances || []).length})`));
   content.appendChild(instancesTable(study.instances || []));
+  content.appendChild(el('h2', {}, 'Where each index comes from'));
+  content.appendChild(provenanceTable(study.instances || []));
 }
 
 main();

@@ -113,6 +113,28 @@ static const screen_profile *matching_profile(ingest_reading *reading,
     return NULL;
 }
 
+/* The length of a DICOM string without its trailing padding spaces. */
+static int unpadded_length(const char *text)
+{
+    size_t length = strlen(text);
+    while (length > 0 && text[length - 1] == ' ')
+        length--;
+    return length < 256 ? (int)length : 256;
+}
+
+/* With no matching profile: an active profile of the same device (and
+ * frame size) learned on other software, or NULL. Its objects are queued
+ * so that they are "not read" with that reason and counted against the
+ * profile, never read with it (docs/screen-reading.md). */
+static const screen_profile *outdated_profile(ingest_reading *reading,
+                                              const screen_device *device)
+{
+    for (size_t i = 0; i < reading->profile_count; i++)
+        if (screen_profile_matches_but_software(reading->profiles[i], device))
+            return reading->profiles[i];
+    return NULL;
+}
+
 int ingest_reading_wants(ingest_reading *reading, const dcm_facts *facts,
                          int is_ultrasound_capture)
 {
@@ -122,7 +144,8 @@ int ingest_reading_wants(ingest_reading *reading, const dcm_facts *facts,
     screen_device device;
     device_of(facts, &device);
     pthread_rwlock_rdlock(&reading->profiles_lock);
-    int wanted = matching_profile(reading, &device) != NULL;
+    int wanted = matching_profile(reading, &device) != NULL ||
+                 outdated_profile(reading, &device) != NULL;
     pthread_rwlock_unlock(&reading->profiles_lock);
     return wanted;
 }
@@ -305,7 +328,25 @@ static void read_object(ingest_reading *reading, const ingest_reading_item *item
     maybe_reload_profiles(reading);
     pthread_rwlock_rdlock(&reading->profiles_lock);
     const screen_profile *profile = matching_profile(reading, &device);
-    if (profile == NULL) {
+    const screen_profile *outdated = profile == NULL ? outdated_profile(reading, &device) : NULL;
+    if (outdated != NULL) {
+        char detail[512];
+        const char *now_running = device.software_versions ? device.software_versions : "";
+        const char *learned_on = screen_profile_software(outdated);
+        snprintf(detail, sizeof detail, "software changed: the device now runs %.*s, its "
+                 "screen profile %s was learned on %.*s",
+                 unpadded_length(now_running), now_running, screen_profile_key(outdated),
+                 unpadded_length(learned_on), learned_on);
+        set_not_read(result, reason, reason_size,
+                     "%s; the screen may have moved, so it is not read with that profile: "
+                     "learn the device again on the new software (mitilog device learn)",
+                     detail);
+        snprintf(combined->profile_key, sizeof combined->profile_key, "%s",
+                 screen_profile_key(outdated));
+        combined->profile_version = screen_profile_version(outdated);
+        result->profile_key = combined->profile_key;
+        result->profile_version = combined->profile_version;
+    } else if (profile == NULL) {
         char detail[512];
         snprintf(detail, sizeof detail, "'%s' '%s' software '%s', %dx%d",
                  device.manufacturer ? device.manufacturer : "",
@@ -375,6 +416,45 @@ static void read_object(ingest_reading *reading, const ingest_reading_item *item
     dcm_object_free(object);
 }
 
+/* The first reason a reading refused anything, or NULL when all was
+ * read (or not shown). An index left blank on this frame ("nothing is
+ * drawn where ...": an exam that does not show it) is no refusal, as in
+ * the Devices API's count (sql/queries/devices/screen_profiles_json.sql). */
+static const char *refusal_of(const store_screen_result *result)
+{
+    static const char blank[] = "nothing is drawn";
+    if (!result->read)
+        return result->reason != NULL ? result->reason : "not read";
+    for (int i = 0; i < EXAM_INDEX_COUNT; i++)
+        if (result->values[i].reason != NULL &&
+            strncmp(result->values[i].reason, blank, sizeof blank - 1) != 0)
+            return result->values[i].reason;
+    return NULL;
+}
+
+/* One warning per profile and hour when its frames are refused, not one
+ * per frame: the Devices page and GET /api/v1/devices count them all. */
+static void warn_refusal(ingest_reading *reading, const ingest_reading_item *item,
+                         const store_screen_result *result)
+{
+    const char *refusal = refusal_of(result);
+    const char *key = result->profile_key;
+    if (refusal == NULL || key == NULL || key[0] == '\0')
+        return;
+    uint64_t now = (uint64_t)ingest_clock_now();
+    pthread_mutex_lock(&reading->lock);
+    const hash_entry *entry = hash_table_find(&reading->refusals_warned, key, strlen(key));
+    int due = entry == NULL || now - entry->number >= 3600;
+    if (due && hash_table_put(&reading->refusals_warned, key, strlen(key), now, NULL) !=
+                   MITILOG_OK)
+        due = 1; /* out of memory: warn anyway, never drop it silently */
+    pthread_mutex_unlock(&reading->lock);
+    if (due)
+        log_warning("screen profile %s refuses frames (object %s: %s); the Devices page "
+                    "counts them; this is said once an hour per profile",
+                    key, item->sop_instance_uid, refusal);
+}
+
 static void finish_item(ingest_reading *reading, ingest_reading_item *item)
 {
     store_screen_result result;
@@ -403,6 +483,8 @@ static void finish_item(ingest_reading *reading, ingest_reading_item *item)
     else
         reading->not_read_count++;
     pthread_mutex_unlock(&reading->lock);
+    if (!stale)
+        warn_refusal(reading, item, &result);
     if (stale) {
         log_debug("object %s: re-sent while being read; its newer copy is read instead",
                   item->sop_instance_uid);
@@ -410,6 +492,10 @@ static void finish_item(ingest_reading *reading, ingest_reading_item *item)
         if (result.read)
             log_debug("object %s: pixels read (profile %s)", item->sop_instance_uid,
                       result.profile_key ? result.profile_key : "");
+        else if (result.profile_key != NULL && result.profile_key[0] != '\0')
+            /* counted against its profile, with one warning an hour */
+            log_debug("object %s: pixel values not read: %s", item->sop_instance_uid,
+                      result.reason ? result.reason : "");
         else
             log_info("object %s: pixel values not read: %s", item->sop_instance_uid,
                      result.reason ? result.reason : "");
@@ -511,6 +597,7 @@ mitilog_status ingest_reading_start(ingest_reading *reading, const config *confi
     pthread_cond_init(&reading->changed, NULL);
     pthread_cond_init(&reading->idle, NULL);
     pthread_rwlock_init(&reading->profiles_lock, NULL);
+    hash_table_init(&reading->refusals_warned, 4096);
     reload_profiles(reading);
 
     store_reading_entry *entries = NULL;
@@ -593,6 +680,7 @@ void ingest_reading_stop(ingest_reading *reading)
     }
     reading->tail = NULL;
     free_profiles(reading->profiles, reading->profile_count);
+    hash_table_free(&reading->refusals_warned);
     reading->profiles = NULL;
     reading->profile_count = 0;
     if (reading->read_count + reading->not_read_count + reading->full_count > 0)

@@ -30,6 +30,7 @@
 #include "ingest/ingest_internal.h"
 #include "screen/screen.h"
 #include "store/store.h"
+#include "util/hash_table.h"
 
 typedef struct ingest_reading_item {
     long long instance_id;
@@ -66,6 +67,10 @@ typedef struct ingest_reading {
     screen_profile **profiles;
     size_t profile_count;
     double profiles_loaded_at;        /* ingest_clock_now() */
+
+    hash_table refusals_warned;       /* profile key -> ingest_clock_now()
+                                       * second of its last refusal warning
+                                       * (under lock): one a profile an hour */
 
     pthread_t *threads;
     unsigned thread_count;

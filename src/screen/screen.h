@@ -89,6 +89,14 @@ int screen_profile_version(const screen_profile *profile);
 /* 1 when the profile is for this device (key fields and frame size). */
 int screen_profile_matches(const screen_profile *profile,
                            const screen_device *device);
+/* 1 when the profile names a software version and the device is the
+ * profile's device (manufacturer, model, frame size) with other
+ * software: a software update may have changed the screen, so the
+ * profile is not read with; the object is "not read" with that reason. */
+int screen_profile_matches_but_software(const screen_profile *profile,
+                                        const screen_device *device);
+/* The Software Versions the profile was learned on ("" for any). */
+const char *screen_profile_software(const screen_profile *profile);
 
 /* Reads every index the profile knows from one frame. Fails only when out
  * of memory or for a programming error; anything about the frame itself

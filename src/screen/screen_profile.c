@@ -88,19 +88,32 @@ const char *screen_index_label(exam_index index)
     return (unsigned)index < EXAM_INDEX_COUNT ? labels[index] : "?";
 }
 
-/* Compares DICOM strings without their padding spaces. */
+/* The text without leading and trailing padding spaces: its start, and
+ * its length in *length. */
+static const char *unpadded(const char *text, size_t *length)
+{
+    while (*text == ' ')
+        text++;
+    *length = strlen(text);
+    while (*length > 0 && text[*length - 1] == ' ')
+        (*length)--;
+    return text;
+}
+
+/* Compares DICOM strings without their padding spaces, on both sides: a
+ * profile learned from a DICOM file keeps the value as the file had it,
+ * an odd-length value padded with a space (PS3.5 section 6.2). An empty
+ * wanted text matches anything. */
 static int same_text(const char *wanted, const char *given)
 {
-    if (wanted[0] == '\0')
+    size_t wanted_length = 0, given_length = 0;
+    wanted = unpadded(wanted, &wanted_length);
+    if (wanted_length == 0)
         return 1;
     if (given == NULL)
         return 0;
-    while (*given == ' ')
-        given++;
-    size_t length = strlen(given);
-    while (length > 0 && given[length - 1] == ' ')
-        length--;
-    return strlen(wanted) == length && strncmp(wanted, given, length) == 0;
+    given = unpadded(given, &given_length);
+    return wanted_length == given_length && strncmp(wanted, given, given_length) == 0;
 }
 
 int screen_profile_matches(const screen_profile *profile, const screen_device *device)
@@ -114,6 +127,25 @@ int screen_profile_matches(const screen_profile *profile, const screen_device *d
     return same_text(profile->manufacturer, device->manufacturer) &&
            same_text(profile->model_name, device->model_name) &&
            same_text(profile->software_versions, device->software_versions);
+}
+
+int screen_profile_matches_but_software(const screen_profile *profile,
+                                        const screen_device *device)
+{
+    if (profile == NULL || device == NULL || profile->software_versions[0] == '\0')
+        return 0;
+    if (profile->rows > 0 && device->rows != profile->rows)
+        return 0;
+    if (profile->columns > 0 && device->columns != profile->columns)
+        return 0;
+    return same_text(profile->manufacturer, device->manufacturer) &&
+           same_text(profile->model_name, device->model_name) &&
+           !same_text(profile->software_versions, device->software_versions);
+}
+
+const char *screen_profile_software(const screen_profile *profile)
+{
+    return profile != NULL ? profile->software_versions : "";
 }
 
 /* ---- to text ------------------------------------------------------------ */

@@ -498,9 +498,56 @@ static void profile_matches_device(void **state)
     screen_profile_free(profile);
 }
 
+/* Replaces the profile text's line starting with name by "name value". */
+static char *with_line(char *text, const char *name, const char *value)
+{
+    char *start = strstr(text, name);
+    assert_non_null(start);
+    char *end = strchr(start + 1, '\n');
+    assert_non_null(end);
+    size_t size = strlen(text) + strlen(value) + 2;
+    char *out = malloc(size);
+    assert_non_null(out);
+    snprintf(out, size, "%.*s%s %s%s", (int)(start - text), text, name, value, end);
+    free(text);
+    return out;
+}
+
+/* A profile learned from DICOM files keeps the device's strings as the
+ * file had them, an odd length padded with a space (PS3.5 section 6.2):
+ * it still matches the device's unpadded strings; and the same device on
+ * other software is told apart (the profile is never read with then). */
+static void padded_profile_matches_and_other_software_is_told_apart(void **state)
+{
+    (void)state;
+    screen_profile *learned = learn_design("harbor");
+    char *text = NULL;
+    mitilog_error error = {{0}};
+    assert_int_equal(screen_profile_to_text(learned, &text, &error), MITILOG_OK);
+    screen_profile_free(learned);
+    text = with_line(text, "\nmanufacturer", "Northmere Simulated Imaging ");
+    text = with_line(text, "\nsoftware_versions", "4.0.2 ");
+    screen_profile *profile = NULL;
+    assert_int_equal(screen_profile_from_text(text, &profile, &error), MITILOG_OK);
+    free(text);
+    screen_device device = {.rows = 480, .columns = 640,
+                            .manufacturer = "Northmere Simulated Imaging",
+                            .software_versions = "4.0.2"};
+    assert_true(screen_profile_matches(profile, &device));
+    assert_false(screen_profile_matches_but_software(profile, &device));
+    assert_string_equal(screen_profile_software(profile), "4.0.2 ");
+    device.software_versions = "4.1.0";
+    assert_false(screen_profile_matches(profile, &device));
+    assert_true(screen_profile_matches_but_software(profile, &device));
+    device.rows = 600;   /* another frame size is another screen altogether */
+    assert_false(screen_profile_matches_but_software(profile, &device));
+    screen_profile_free(profile);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
+        cmocka_unit_test(padded_profile_matches_and_other_software_is_told_apart),
         cmocka_unit_test(reads_rendered_strips),
         cmocka_unit_test(refuses_frame_of_another_size),
         cmocka_unit_test(refuses_blank_region),
