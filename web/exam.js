@@ -70,6 +70,15 @@ function placeLabels(chart, labels, xLine, xText, lowest, highest) {
   }
 }
 
+// The value of an index that the rules, exam records and statistics use:
+// the header's or the screen's, as the API's provenance says (docs/api.md,
+// "Index provenance"); the header's top-level value when no provenance.
+function usedValue(instance, key) {
+  const provenance = instance && instance.indices && instance.indices[key];
+  if (provenance && 'value' in provenance) return provenance.value;
+  return instance ? instance[key] : undefined;
+}
+
 function timelineChart(study, limits) {
   const byUid = new Map((study.instances || []).map((i) => [i.sop_instance_uid, i]));
   const points = (study.timeline || []).map((t) => ({ t: t.start_seconds / 60, instance: byUid.get(t.sop_instance_uid) || {} }));
@@ -96,8 +105,8 @@ function timelineChart(study, limits) {
         ...dwell.map((d) => [Number(d.threshold), `dwell ${d.text}`, false])] },
   ];
   for (const panel of panels) {
-    const present = panel.series.filter((s) => points.some((p) => finite(p.instance[s.key])));
-    const values = points.flatMap((p) => present.map((s) => p.instance[s.key]).filter(finite));
+    const present = panel.series.filter((s) => points.some((p) => finite(usedValue(p.instance, s.key))));
+    const values = points.flatMap((p) => present.map((s) => usedValue(p.instance, s.key)).filter(finite));
     const high = Math.max(...values, 0.5);
     // MI limits are always drawn; TI lines above the data only when near it
     // (within half again), so that they do not squash the values.
@@ -135,12 +144,12 @@ function timelineChart(study, limits) {
     }
     placeLabels(chart, labels, width - right, width - right + 8, base, panel.top);
     for (const series of present) {
-      const seriesPoints = points.filter((p) => finite(p.instance[series.key]));
-      const path = seriesPoints.map((p, i) => `${i ? 'L' : 'M'}${x(p.t).toFixed(1)},${y(p.instance[series.key]).toFixed(1)}`).join('');
+      const seriesPoints = points.filter((p) => finite(usedValue(p.instance, series.key)));
+      const path = seriesPoints.map((p, i) => `${i ? 'L' : 'M'}${x(p.t).toFixed(1)},${y(usedValue(p.instance, series.key)).toFixed(1)}`).join('');
       chart.appendChild(svg('path', { d: path, fill: 'none', stroke: series.stroke, 'stroke-width': 1.6, 'stroke-dasharray': series.dash || null, class: 'series series-' + series.key }));
       for (const p of seriesPoints) {
-        const m = marker(series.shape, x(p.t), y(p.instance[series.key]), 3.2, { fill: '#ffffff', stroke: series.stroke, 'stroke-width': 1.4, class: 'point' });
-        m.appendChild(svg('title', {}, `${series.label} ${p.instance[series.key]} at ${p.t.toFixed(1)} min`));
+        const m = marker(series.shape, x(p.t), y(usedValue(p.instance, series.key)), 3.2, { fill: '#ffffff', stroke: series.stroke, 'stroke-width': 1.4, class: 'point' });
+        m.appendChild(svg('title', {}, `${series.label} ${usedValue(p.instance, series.key)} at ${p.t.toFixed(1)} min`));
         chart.appendChild(m);
       }
     }
@@ -153,7 +162,7 @@ function timelineChart(study, limits) {
 }
 
 function legend(study, limits) {
-  const present = SERIES.filter((s) => (study.instances || []).some((i) => typeof i[s.key] === 'number'));
+  const present = SERIES.filter((s) => (study.instances || []).some((i) => typeof usedValue(i, s.key) === 'number'));
   const items = present.map((s) => {
     const sample = svg('svg', { width: 46, height: 14, 'aria-hidden': 'true' },
       svg('line', { x1: 2, x2: 44, y1: 7, y2: 7, stroke: s.stroke, 'stroke-width': 1.6, 'stroke-dasharray': s.dash || null }),
@@ -195,8 +204,8 @@ function instancesTable(instances) {
     el('tbody', {}, instances.map((i, n) => el('tr', {},
       el('td', { class: 'n' }, n + 1), el('td', {}, orNone(i.acquired_at)), el('td', {}, i.object_kind),
       el('td', {}, (i.modes || []).join(' + ') || '—'),
-      el('td', { class: 'n' }, fmt(i.mi, 1)), el('td', { class: 'n' }, fmt(i.tis, 1)),
-      el('td', { class: 'n' }, fmt(i.tib, 1)), el('td', { class: 'n' }, fmt(i.tic, 1)),
+      el('td', { class: 'n' }, fmt(usedValue(i, 'mi'), 1)), el('td', { class: 'n' }, fmt(usedValue(i, 'tis'), 1)),
+      el('td', { class: 'n' }, fmt(usedValue(i, 'tib'), 1)), el('td', { class: 'n' }, fmt(usedValue(i, 'tic'), 1)),
       el('td', {}, orNone(i.preset)), el('td', {}, orNone(i.transducer)),
       el('td', {}, orNone(i.station_name)), el('td', {}, orNone(i.series_description))))));
 }

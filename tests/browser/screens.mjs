@@ -61,6 +61,13 @@ try {
   const pixelReadings = await cellTexts('#provenance td.reading');
   check('exam page: read with the room\'s profile', pixelReadings.length > 0 && pixelReadings.every((t) => t.startsWith('read with northmere-nm3')), pixelReadings.slice(0, 4));
   check('exam page: no header source in the pixels-only room', !pixels.some((t) => t.includes('· header') || t.includes('· both')), pixels.slice(0, 8));
+  // The chart and the instances table draw the values the rules use, so a
+  // pixels-only exam has points and numbers, not blanks (docs/api.md,
+  // "Index provenance": indices[k].value).
+  const chartPoints = await page.locator('#timeline-chart .point').count();
+  check('exam page: the chart draws the pixels-only captures', chartPoints > 0, chartPoints);
+  const instanceCells = await cellTexts('#instances tbody td.n');
+  check('exam page: instances table shows values read from the screen', instanceCells.some((t) => /^\d+\.\d$/.test(t)), instanceCells.slice(0, 12));
   await shot('exam-provenance-pixels');
 
   // 3. Exam after the software update: header values, screen "not read" with the reason.
