@@ -142,7 +142,7 @@ def _browser_checks(daemon, tmp_path, pages):
     outcome = json.loads(lines[-1])
     failed = [c for c in outcome["checks"] if not c["ok"]]
     assert not failed and not outcome["errors"], (failed, outcome["errors"])
-    assert result.returncode == 0 and len(outcome["checks"]) == 10
+    assert result.returncode == 0 and len(outcome["checks"]) == 12
 
 
 def test_demo_sets_up_the_scanners_and_reads_their_screens(daemon_factory, tmp_path):
