@@ -25,8 +25,15 @@ static mitilog_status stats_compute(store *st, const report_stats_request *reque
     doc->by = request->by;
     doc->institution = request->institution;
     long from_day, to_day;
-    if (request->to == NULL || request->to[0] == '\0')
-        to_day = report_latest_day(st);
+    if (request->to == NULL || request->to[0] == '\0') {
+        /* the Sunday of the default week (report.h), never a part week */
+        int year, week;
+        long monday;
+        report_default_week(st, &year, &week);
+        to_day = stats_iso_week_monday(year, week, &monday) == MITILOG_OK
+                     ? monday + 6
+                     : report_last_complete_day(st);
+    }
     else if (stats_day_number(request->to, &to_day) != MITILOG_OK)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "to: not a date YYYY-MM-DD");
     if (request->from == NULL || request->from[0] == '\0') {
@@ -348,7 +355,7 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
     size_t baseline_weeks = request->baseline_weeks ? request->baseline_weeks : 12;
     int year = request->iso_year, week = request->iso_week;
     if (!request->has_week)
-        stats_iso_week_of_day(report_latest_day(st), &year, &week);
+        report_default_week(st, &year, &week);
     long last_monday;
     if (stats_iso_week_monday(year, week, &last_monday) != MITILOG_OK)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no ISO week %d-W%02d", year,
@@ -387,6 +394,7 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
         report_meta_int(&meta, "minimum_baseline",
                         (long long)(request->minimum_baseline ? request->minimum_baseline : 10));
         report_meta_number(&meta, "z_limit", 1, request->z_limit > 0 ? request->z_limit : 3.0);
+        report_meta_int(&meta, "minimum_week_exams", (long long)STATS_DRIFT_WEEK_MINIMUM);
         report_meta_text(&meta, "method",
                          "weekly median of each exam's highest governing TI per preset and "
                          "room; z = (median - baseline median) / (1.4826 MAD x 1.2533 / "

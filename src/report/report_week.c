@@ -57,7 +57,7 @@ static mitilog_status week_compute(store *st, const report_week_request *request
     doc->request = request;
     int year = request->iso_year, week = request->iso_week;
     if (!request->has_week)
-        stats_iso_week_of_day(report_last_complete_day(st), &year, &week);
+        report_default_week(st, &year, &week);
     long monday;
     if (stats_iso_week_monday(year, week, &monday) != MITILOG_OK)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no ISO week %d-W%02d", year,
