@@ -83,10 +83,11 @@ async function main() {
     showError(content, error);
     return;
   }
-  document.getElementById('title').textContent = `Exposure statistics, ${data.from} to ${data.to}`;
+  document.getElementById('title').textContent = `Exposure statistics${data.institution ? ', ' + data.institution : ''}, ${data.from} to ${data.to}`;
   content.appendChild(controls(data.from, data.to, data.by));
   const files = new URLSearchParams({ from: data.from, to: data.to, by: data.by });
   content.appendChild(el('dl', { class: 'facts' },
+    el('dt', {}, 'Institution'), el('dd', { id: 'institution' }, data.institution || 'not configured (set [site] institution in the configuration)'),
     el('dt', {}, 'Period'), el('dd', {}, `${data.from} to ${data.to} (local day of each exam's first capture)`),
     el('dt', {}, 'Exams'), el('dd', {}, String(data.exam_count)),
     el('dt', {}, 'Per exam'), el('dd', {}, 'highest governing thermal index (TIS, TIB or TIC as the exam type requires) and highest MI'),

@@ -339,3 +339,37 @@ def test_exam_chart_in_chromium(department):
     assert len(outcome["checks"]) >= 4 * 6
     with open(outcome["pdf"], "rb") as f:
         assert f.read(5) == b"%PDF-"
+
+
+def stats_page(daemon, query):
+    """The statistics page read in headless Chromium (tests/browser/stats_page.mjs)."""
+    browser_dir = os.path.join(REPO, "tests", "browser")
+    node = shutil.which("node")
+    if not (node and os.path.exists("/usr/bin/chromium") and os.path.isdir(
+            os.path.join(browser_dir, "node_modules", "playwright-core"))):
+        if os.environ.get("MITILOG_REQUIRE_BROWSER"):
+            pytest.fail("node, /usr/bin/chromium or tests/browser/node_modules missing")
+        pytest.skip("node, chromium or playwright-core (npm ci in tests/browser) missing")
+    url = "http://127.0.0.1:%d/stats.html?%s" % (daemon.http_port, query)
+    result = subprocess.run([node, os.path.join(browser_dir, "stats_page.mjs"), url],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            timeout=180, cwd=browser_dir)
+    lines = [line for line in result.stdout.splitlines() if line.startswith("{")]
+    assert lines, result.stderr
+    outcome = json.loads(lines[-1])
+    assert not outcome["errors"], outcome["errors"]
+    return outcome
+
+
+def test_institution_in_api_and_dashboard(department):
+    # The configured [site] institution (docs/configuration.md) is the
+    # same in the API's JSON and CSV as in the printed pack, and shown on
+    # the dashboard's statistics page (common practice, no source: a
+    # statistics document names whose statistics they are).
+    query = "from=%s&to=%s" % (FROM, TO)
+    assert department.get_json("/api/v1/stats?" + query)["institution"] == INSTITUTION
+    status, body = department.get("/api/v1/stats?%s&format=csv" % query)
+    assert status == 200
+    records = list(csv.DictReader(io.StringIO(body, newline="")))
+    assert records[0]["institution"] == INSTITUTION
+    assert stats_page(department, query)["institution"] == INSTITUTION
