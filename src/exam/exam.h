@@ -323,6 +323,8 @@ typedef struct exam_row {
     size_t capture_count;        /* captures that could carry indices */
     size_t indexed_count;        /* ... of which carried at least one */
     size_t finding_count;        /* findings of the current policy */
+    size_t informational_count;  /* ... of which advisories below their own
+                                    limit: informational, counted apart */
     const exam_rule_count *rules;  /* findings by rule (the report joins them) */
     size_t rule_count;
 } exam_row;

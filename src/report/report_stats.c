@@ -125,6 +125,10 @@ static void row_json(json_writer *w, const stats_document *doc, const stats_peri
     json_integer(w, (long long)row->with_findings_count);
     json_key(w, "share_with_findings");
     json_number(w, 1, row->share_with_findings);
+    json_key(w, "exams_informational_only");
+    json_integer(w, (long long)row->informational_only_count);
+    json_key(w, "share_informational_only");
+    json_number(w, 1, row->share_informational_only);
     json_key(w, "captures");
     json_integer(w, (long long)row->capture_count);
     json_key(w, "captures_with_indices");
@@ -215,7 +219,8 @@ static const char *const stats_csv_columns[] = {
     "exams_at_or_above_1_5", "minutes_at_or_above_1_5_median", "minutes_at_or_above_1_5_p95",
     "exams_at_or_above_2_0", "minutes_at_or_above_2_0_median", "minutes_at_or_above_2_0_p95",
     "data_completeness", "policy_version", "note", "label", "governing_index",
-    "governing_without_value", "institution"};
+    "governing_without_value", "institution", "exams_informational_only",
+    "share_informational_only"};
 enum { STATS_CSV_COLUMNS = sizeof stats_csv_columns / sizeof stats_csv_columns[0] };
 
 static void stats_csv_row(const stats_document *doc, FILE *out, const stats_period_row *row,
@@ -259,6 +264,8 @@ static void stats_csv_row(const stats_document *doc, FILE *out, const stats_peri
     report_csv_field(out, 0, governing);
     report_csv_count(out, row->exam_count - g->count);
     report_csv_field(out, 0, "");
+    report_csv_count(out, row->informational_only_count);
+    report_csv_number(out, 1, row->share_informational_only);
     report_csv_end(out);
 }
 
@@ -279,7 +286,8 @@ static void stats_csv(const stats_document *doc, FILE *out)
     report_csv_field(out, 0, stats_dimension_name(doc->by));
     report_csv_field(out, 0, "");
     report_csv_count(out, doc->result.total.exam_count);
-    for (int c = 6; c < STATS_CSV_COLUMNS - 7; c++)
+    /* up to data_completeness, the 9th column from the end */
+    for (int c = 6; c < STATS_CSV_COLUMNS - 9; c++)
         fputc(',', out);
     report_csv_number(out, isfinite(completeness), completeness);
     report_csv_field(out, 0, report_policy_text(&doc->data.info, policy, sizeof policy));
@@ -288,6 +296,8 @@ static void stats_csv(const stats_document *doc, FILE *out)
     report_csv_field(out, 0, "");
     report_csv_field(out, 0, "");
     report_csv_field(out, 0, doc->institution != NULL ? doc->institution : "");
+    report_csv_field(out, 0, "");
+    report_csv_field(out, 0, "");
     report_csv_end(out);
     for (size_t r = 0; r < doc->result.row_count; r++) {
         const stats_period_row *row = &doc->result.rows[r];

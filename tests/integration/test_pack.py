@@ -373,3 +373,49 @@ def test_institution_in_api_and_dashboard(department):
     records = list(csv.DictReader(io.StringIO(body, newline="")))
     assert records[0]["institution"] == INSTITUTION
     assert stats_page(department, query)["institution"] == INSTITUTION
+
+
+def test_with_findings_counts_informational_advisories_apart(department):
+    # "With findings" is an exam with a violation, a warning or an advisory
+    # above its own limit; an exam whose only findings are advisories
+    # below their own limit (first-trimester Doppler used below its TI
+    # limit, docs/demo.md) is counted apart. Recounted here in Python from
+    # the findings table itself.
+    with department.db() as db:
+        exams = dict(db.execute(
+            "SELECT study_instance_uid, exam_type FROM exam_summaries "
+            "WHERE day BETWEEN ? AND ?", (FROM, TO)))
+        findings = db.execute(
+            "SELECT study_instance_uid, severity, measured_value, limit_value FROM findings "
+            "WHERE superseded = 0 AND study_instance_uid IS NOT NULL").fetchall()
+    serious, informational = set(), set()
+    for uid, severity, measured, limit in findings:
+        if uid not in exams:
+            continue
+        if severity == "advisory" and measured is not None and limit is not None and \
+                measured < limit:
+            informational.add(uid)
+        else:
+            serious.add(uid)
+    expected = collections.defaultdict(lambda: [0, 0, 0])
+    for uid, exam_type in exams.items():
+        counts = expected[exam_type]
+        counts[0] += 1
+        if uid in serious:
+            counts[1] += 1
+        elif uid in informational:
+            counts[2] += 1
+    data = department.get_json("/api/v1/stats?from=%s&to=%s" % (FROM, TO))
+    assert {r["key"]: [r["exam_count"], r["exams_with_findings"],
+                       r["exams_informational_only"]] for r in data["rows"]} == expected
+    for r in data["rows"]:
+        assert r["share_with_findings"] == pytest.approx(
+            expected[r["key"]][1] / expected[r["key"]][0], abs=1e-9)
+    # The demo's first-trimester Doppler advisories are there, and apart.
+    assert expected["obstetric_first"][2] > 0
+    # The headings say what is counted: the pack, and the dashboard.
+    text = report(department, "stats", "--from", FROM, "--to", TO, "--format", "html")
+    assert "With findings (violations, warnings, advisories above limit)" in text
+    assert "Informational only" in text
+    headings = stats_page(department, "from=%s&to=%s" % (FROM, TO))["headings"]
+    assert "With findings (violations, warnings, advisories above their limit)" in headings

@@ -11,9 +11,19 @@
 -- threshold: stats_exam_time_at_or_above.sql. captures: image,
 -- multi-frame and volume objects; indexed: those of them with at least
 -- one index.
+-- informational: the exam's findings that are advisories below their own
+-- limit (first-trimester Doppler used below its TI limit), counted apart
+-- from "with findings" as the worklist lists them apart
+-- (queries/reviews/review_worklist.sql).
 SELECT study_instance_uid, day, exam_type, exam_type_label, governing_index,
        max_governing, max_mi, room, preset, shift, transducer, study_description,
        estimated_seconds, captures, indexed_count, finding_count,
-       first_acquired_at
+       first_acquired_at,
+       CASE WHEN finding_count > 0 THEN
+           (SELECT count(*) FROM findings f
+            WHERE f.study_instance_uid = exam_period_rows.study_instance_uid
+              AND f.superseded = 0 AND f.severity = 'advisory'
+              AND f.measured_value < f.limit_value)
+       ELSE 0 END
 FROM exam_period_rows
 WHERE day >= ?1 AND day <= ?2;
