@@ -327,7 +327,19 @@ typedef struct exam_row {
                                     limit: informational, counted apart */
     const exam_rule_count *rules;  /* findings by rule (the report joins them) */
     size_t rule_count;
+    int worst_severity;          /* the most severe finding: an
+                                    EXAM_SEVERITY_RANK_ (filled with every
+                                    column only, else 0) */
 } exam_row;
+
+/* Severity ranks of a finding for ranking lists: an informational
+ * advisory (below its own limit) ranks as none. */
+enum {
+    EXAM_SEVERITY_RANK_NONE = 0,
+    EXAM_SEVERITY_RANK_ADVISORY = 1,
+    EXAM_SEVERITY_RANK_WARNING = 2,
+    EXAM_SEVERITY_RANK_VIOLATION = 3
+};
 
 /* ---- One capture of an exam ----------------------------------------- */
 

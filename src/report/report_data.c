@@ -117,6 +117,16 @@ long report_last_complete_day(store *st)
     return day;
 }
 
+const char *report_severity_name(int rank)
+{
+    switch (rank) {
+    case EXAM_SEVERITY_RANK_VIOLATION: return "violation";
+    case EXAM_SEVERITY_RANK_WARNING: return "warning";
+    case EXAM_SEVERITY_RANK_ADVISORY: return "advisory";
+    default: return NULL;
+    }
+}
+
 void report_default_week(store *st, int *iso_year, int *iso_week)
 {
     stats_iso_week_of_day(report_last_complete_day(st), iso_year, iso_week);

@@ -233,6 +233,8 @@ static mitilog_status week_json(const week_document *doc, char **out, mitilog_er
         json_number(w, 1, completeness);
         json_key(w, "finding_count");
         json_integer(w, (long long)group->finding_count);
+        json_key(w, "worst_severity");
+        json_string(w, report_severity_name(group->worst_severity));
 
         json_key(w, "findings_by_rule");
         json_array_begin(w);
@@ -496,7 +498,8 @@ static void week_html(const week_document *doc, FILE *out)
     fputs("</style>\n<h2>Groups</h2>\n<table class=\"groups\"><thead><tr><th>Rank</th><th>", out);
     report_html_text(out, group_by);
     fputs("</th><th>Exams</th><th>Outliers</th><th>Rate</th><th>Median governing TI</th>"
-          "<th>Department median (same exam types)</th><th>Median MI</th><th>Findings</th>"
+          "<th>Department median (same exam types)</th><th>Median MI</th><th>Findings (most "
+          "severe)</th>"
           "<th>Captures with indices</th></tr></thead><tbody>\n",
           out);
     for (size_t g = 0; g < doc->result.group_count; g++) {
@@ -510,7 +513,10 @@ static void week_html(const week_document *doc, FILE *out)
         html_cell_fixed(out, group->has_median, group->median_governing, 2);
         html_cell_fixed(out, group->has_median, group->department_median, 2);
         html_cell_fixed(out, 1, group->median_mi, 2);
-        fprintf(out, "<td class=\"n\">%zu</td>", group->finding_count);
+        const char *severity = report_severity_name(group->worst_severity);
+        fprintf(out, "<td class=\"n\">%zu%s%s%s</td>", group->finding_count,
+                severity != NULL ? " (" : "", severity != NULL ? severity : "",
+                severity != NULL ? ")" : "");
         fputs("<td class=\"n\">", out);
         if (isfinite(completeness))
             fprintf(out, "%.0f %%", 100.0 * completeness);

@@ -110,6 +110,8 @@ static void sort_members(size_t *members, size_t count, const exam_row *exams,
 static int compare_groups(const void *left, const void *right)
 {
     const stats_group *a = left, *b = right;
+    if (a->worst_severity != b->worst_severity)
+        return a->worst_severity > b->worst_severity ? -1 : 1;
     if (a->outlier_count != b->outlier_count)
         return a->outlier_count > b->outlier_count ? -1 : 1;
     if (a->outlier_rate != b->outlier_rate)
@@ -222,6 +224,8 @@ mitilog_status stats_week_outliers(const exam_row *week, size_t week_count,
             group->capture_count += exam->capture_count;
             group->indexed_count += exam->indexed_count;
             group->finding_count += exam->finding_count;
+            if (exam->worst_severity > group->worst_severity)
+                group->worst_severity = exam->worst_severity;
             if (tally_rules(group, exam) != MITILOG_OK)
                 goto done;
             if (result->flags[i].has_value) {

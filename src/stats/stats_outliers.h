@@ -67,6 +67,8 @@ typedef struct stats_group {
     double median_mi;           /* NAN when no MI */
     size_t capture_count, indexed_count;   /* data completeness */
     size_t finding_count;
+    int worst_severity;         /* most severe finding of its exams, an
+                                   EXAM_SEVERITY_RANK_ (exam.h) */
     stats_rule_tally *rules;    /* findings by rule, by rule id */
     size_t rule_count;
     size_t *members;            /* indices of the group's week exams:
@@ -80,7 +82,9 @@ typedef struct stats_week_result {
     size_t flag_count;
     stats_baseline *baselines;  /* one per exam type of the week */
     size_t baseline_count;
-    stats_group *groups;        /* ranked: outlier count, then rate, key */
+    stats_group *groups;        /* ranked: most severe finding (violation,
+                                   warning, advisory above its limit), then
+                                   outlier count, rate, key */
     size_t group_count;
     int any_thin;
 } stats_week_result;

@@ -130,7 +130,7 @@ enum {
     EXAM_UID, EXAM_DAY, EXAM_TYPE, EXAM_TYPE_LABEL, EXAM_GOVERNING_INDEX, EXAM_MAX_GOVERNING,
     EXAM_MAX_MI, EXAM_ROOM, EXAM_PRESET, EXAM_SHIFT, EXAM_TRANSDUCER, EXAM_DESCRIPTION,
     EXAM_ESTIMATED, EXAM_CAPTURES, EXAM_INDEXED, EXAM_FINDINGS, EXAM_FIRST_ACQUIRED,
-    EXAM_INFORMATIONAL
+    EXAM_INFORMATIONAL, EXAM_WORST_SEVERITY
 };
 
 /* The queries the loader chooses from. */
@@ -256,6 +256,7 @@ static int exam_row_read(store_exam_list *list, exam_row *row,
     row->indexed_count = store_count(statement, EXAM_INDEXED);
     row->finding_count = store_count(statement, EXAM_FINDINGS);
     row->informational_count = store_count(statement, EXAM_INFORMATIONAL);
+    row->worst_severity = (int)store_count(statement, EXAM_WORST_SEVERITY);
     return failed;
 }
 
