@@ -74,13 +74,16 @@ static mitilog_status week_compute(store *st, const report_week_request *request
     stats_day_text(monday - 1, doc->baseline_to);
 
     /* The week's exams in full; of the baseline weeks only what the
-     * baselines use (exam type, governing value). */
+     * baselines use (exam type, group, governing value). */
     mitilog_status status = report_data_load(st, doc->monday, doc->sunday, STORE_EXAM_ALL,
                                              REPORT_LOAD_RULES | REPORT_LOAD_INFO, &doc->data,
                                              error);
+    char baseline_last[11]; /* the Sunday before the week: the rows' period is inclusive */
+    stats_day_text(monday - 1, baseline_last);
     if (status == MITILOG_OK)
-        status = store_load_exam_governing(st, doc->baseline_from, doc->monday, &doc->baseline,
-                                           error);
+        status = store_load_exam_rows(st, doc->baseline_from, baseline_last,
+                                      report_dimension_column(request->group), &doc->baseline,
+                                      error);
     if (status == MITILOG_OK)
         status = store_load_baseline_span(st, doc->baseline_from, doc->monday,
                                           &doc->baseline_span, error);
@@ -312,10 +315,12 @@ static mitilog_status week_json(const week_document *doc, char **out, mitilog_er
             json_integer(w, (long long)doc->week_exams[e].finding_count);
             json_key(w, "baseline_thin");
             json_boolean(w, base->thin);
+            json_key(w, "baseline_without_group");
+            json_boolean(w, flag->without_group);
             json_key(w, "baseline_median");
-            json_number(w, base->count > 0, base->median);
+            json_number(w, flag->compared_count > 0, flag->compared_median);
             json_key(w, "baseline_p95");
-            json_number(w, base->count > 0, base->p95);
+            json_number(w, flag->compared_count > 0, flag->compared_p95);
             json_key(w, "estimated_seconds");
             json_number(w, 1, row->estimated_seconds);
             json_object_end(w);

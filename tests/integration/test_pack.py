@@ -45,6 +45,7 @@ def department(tmp_path_factory):
     imported = daemon.import_(sim)
     assert "imported" in imported.stdout, imported.stderr
     daemon.start()
+    daemon.manifest = os.path.join(sim, "manifest.csv")
     yield daemon
     daemon.stop()
 
@@ -419,3 +420,46 @@ def test_with_findings_counts_informational_advisories_apart(department):
     assert "Informational only" in text
     headings = stats_page(department, "from=%s&to=%s" % (FROM, TO))["headings"]
     assert "With findings (violations, warnings, advisories above their limit)" in headings
+
+
+def test_night_shift_habit_not_absorbed_into_its_baseline(department):
+    # docs/demo.md, planted problem night-ob-dwell: every night-shift
+    # 2nd/3rd-trimester OB exam dwells at TIB 1.2-1.8 (50 exams with seed
+    # 2026). Grouped by shift, each exam is compared with its exam type's
+    # trailing baseline without its own shift's exams (docs/api.md), so the
+    # habit is not absorbed into the baseline that judges it: most of its
+    # planted exams are listed.
+    with open(department.manifest, newline="") as f:
+        planted = {row["study_instance_uid"] for row in csv.DictReader(f)
+                   if "night-ob-dwell" in row["planted"]}
+    assert len(planted) == 50
+    listed, weeks = set(), {}
+    for week in ("2026-W45", "2026-W46", "2026-W47", "2026-W48"):
+        document = department.get_json("/api/v1/outliers?week=%s&group=shift" % week)
+        weeks[week] = document
+        for group in document["groups"]:
+            listed |= {e["study_instance_uid"] for e in group["exams"]} & planted
+    assert len(listed) > 0.75 * len(planted), len(listed)
+    # The baseline each night exam of 2026-W48 was compared with, recounted
+    # with Python's statistics (inclusive quantiles, Hyndman & Fan type 7):
+    # the exam type's trailing exams of the other shifts.
+    document = weeks["2026-W48"]
+    with department.db() as db:
+        rows = db.execute(
+            "SELECT exam_type, shift, max_governing FROM exam_period_rows "
+            "WHERE day >= ? AND day < ? AND max_governing IS NOT NULL",
+            (document["baseline_from"], document["from"])).fetchall()
+        types = dict(db.execute("SELECT study_instance_uid, exam_type FROM exam_summaries"))
+    night = [g for g in document["groups"] if g["key"] == "night"][0]
+    checked = 0
+    for exam in night["exams"]:
+        others = sorted(v for t, shift, v in rows
+                        if t == types[exam["study_instance_uid"]] and shift != "night")
+        if len(others) < document["minimum_baseline"]:
+            continue
+        assert exam["baseline_without_group"] is True
+        assert exam["baseline_median"] == pytest.approx(statistics.median(others), abs=1e-9)
+        p95 = statistics.quantiles(others, n=20, method="inclusive")[18]
+        assert exam["baseline_p95"] == pytest.approx(p95, abs=1e-9)
+        checked += 1
+    assert checked > 0
