@@ -62,7 +62,7 @@ async function main() {
   content.appendChild(form);
   content.appendChild(el('dl', { class: 'facts' },
     el('dt', {}, 'Weeks'), el('dd', {}, `${data.from} to ${data.to} (${data.weeks} ISO weeks, last ${data.last_week})`),
-    el('dt', {}, 'Method'), el('dd', {}, data.method + `; drift is a rise: z > ${data.z_limit} from at least 5 exams in the week (a drop is shown, never flagged); a week needs ${data.minimum_baseline} baseline exams`),
+    el('dt', {}, 'Method'), el('dd', {}, data.method + `; drift is a rise: z > ${data.z_limit} from at least ${data.minimum_week_exams} exams in the week (a drop is shown, never flagged); a week needs ${data.minimum_baseline} baseline exams`),
     el('dt', {}, 'Policy version'), el('dd', {}, data.policy_version || 'none recorded'),
     el('dt', {}, 'Data completeness'), el('dd', {}, `${(100 * (data.data_completeness || 0)).toFixed(0)} % of captures carry indices`)));
   const flagged = data.series.filter((s) => s.flagged_weeks > 0);

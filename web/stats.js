@@ -53,7 +53,7 @@ function table(data) {
   // The TI thresholds are the ones the document reports (the policy's ladder).
   const thresholds = ((data.total || data.rows[0] || {}).time_at_or_above || []).map((x) => x.threshold);
   const thresholdText = (v) => (Number.isInteger(v) ? v.toFixed(1) : String(v));
-  const head = ['Exams', 'With a TI / MI value (percentiles over these)', 'TI median', 'TI P75', 'TI P95', 'MI median', 'MI P75', 'MI P95', 'With findings', 'Scan time median',
+  const head = ['Exams', 'With a TI / MI value (percentiles over these)', 'TI median', 'TI P75', 'TI P95', 'MI median', 'MI P75', 'MI P95', 'With findings (violations, warnings, advisories above their limit)', 'Informational only (advisories below their limit)', 'Scan time median',
     ...thresholds.map((v) => `TI ≥ ${thresholdText(v)}: exams / P95`), 'Captures with indices'];
   const row = (r, total) => {
     const t = (threshold) => (r.time_at_or_above || []).find((x) => Math.abs(x.threshold - threshold) < 1e-9) || {};
@@ -63,7 +63,7 @@ function table(data) {
       el('td', { class: 'n', 'data-counts': 'values' }, `${r.governing.count ?? 0} / ${r.mi.count ?? 0}`),
       el('td', { class: 'n' }, fmt(r.governing.median)), el('td', { class: 'n' }, fmt(r.governing.p75)), el('td', { class: 'n' }, fmt(r.governing.p95)),
       el('td', { class: 'n' }, fmt(r.mi.median)), el('td', { class: 'n' }, fmt(r.mi.p75)), el('td', { class: 'n' }, fmt(r.mi.p95)),
-      el('td', { class: 'n' }, percent(r.share_with_findings)), el('td', { class: 'n' }, minutes(r.estimated_seconds.median)),
+      el('td', { class: 'n' }, percent(r.share_with_findings)), el('td', { class: 'n' }, percent(r.share_informational_only)), el('td', { class: 'n' }, minutes(r.estimated_seconds.median)),
       thresholds.map(timeCell), el('td', { class: 'n' }, percent(r.data_completeness)));
   };
   return el('table', { id: 'stats-table' },
@@ -83,10 +83,11 @@ async function main() {
     showError(content, error);
     return;
   }
-  document.getElementById('title').textContent = `Exposure statistics, ${data.from} to ${data.to}`;
+  document.getElementById('title').textContent = `Exposure statistics${data.institution ? ', ' + data.institution : ''}, ${data.from} to ${data.to}`;
   content.appendChild(controls(data.from, data.to, data.by));
   const files = new URLSearchParams({ from: data.from, to: data.to, by: data.by });
   content.appendChild(el('dl', { class: 'facts' },
+    el('dt', {}, 'Institution'), el('dd', { id: 'institution' }, data.institution || 'not configured (set [site] institution in the configuration)'),
     el('dt', {}, 'Period'), el('dd', {}, `${data.from} to ${data.to} (local day of each exam's first capture)`),
     el('dt', {}, 'Exams'), el('dd', {}, String(data.exam_count)),
     el('dt', {}, 'Per exam'), el('dd', {}, 'highest governing thermal index (TIS, TIB or TIC as the exam type requires) and highest MI'),

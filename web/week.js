@@ -30,7 +30,7 @@ function groupChart(groups) {
   const x = scale(0, maxExams, left, width - right);
   const chart = svg('svg', { class: 'chart', id: 'group-chart', viewBox: `0 0 ${width} ${height}`, width, height,
     role: 'img', 'aria-label': 'Exams and outliers per group' }, hatchDefs('hatch-week'));
-  chart.appendChild(svg('text', { x: left, y: 16 }, 'Exams per group (outline); outliers (hatched) — ranked by outliers'));
+  chart.appendChild(svg('text', { x: left, y: 16 }, 'Exams per group (outline); outliers (hatched) — ranked by most severe finding, then outliers'));
   shown.forEach((group, index) => {
     const y = top + index * rowHeight;
     chart.appendChild(svg('text', { x: left - 8, y: y + 15, 'text-anchor': 'end' }, `${index + 1}. ${orNone(group.key)}`.slice(0, 28)));
@@ -41,7 +41,7 @@ function groupChart(groups) {
         fill: 'url(#hatch-week)', stroke: '#7a4b12', 'stroke-width': 1 }));
     }
     chart.appendChild(svg('text', { x: x(group.exam_count) + 6, y: y + 15 },
-      `${group.outlier_count} of ${group.exam_count} outliers (${percent(group.outlier_rate)}); median ${fmt(group.median_governing, 2)}`));
+      `${group.worst_severity ? group.worst_severity + '; ' : ''}${group.outlier_count} of ${group.exam_count} outliers (${percent(group.outlier_rate)}); median ${fmt(group.median_governing, 2)}`));
   });
   return chart;
 }
@@ -50,9 +50,10 @@ function groupTable(document_, groups) {
   const body = el('tbody', {});
   for (const group of groups) {
     const rules = (group.findings_by_rule || []).map((r) => `${r.rule_id}: ${r.count}`).join(', ') || '—';
-    body.appendChild(el('tr', { class: group.outlier_count > 0 ? 'flagged' : null, 'data-key': group.key === null ? '' : group.key },
+    body.appendChild(el('tr', { class: group.outlier_count > 0 || group.worst_severity ? 'flagged' : null, 'data-key': group.key === null ? '' : group.key },
       el('td', { class: 'n' }, group.rank),
       el('td', { class: 'key' }, orNone(group.key)),
+      el('td', { class: 'severity' }, group.worst_severity || '—'),
       el('td', { class: 'n' }, group.exam_count),
       el('td', { class: 'n' }, group.outlier_count),
       el('td', { class: 'n' }, percent(group.outlier_rate)),
@@ -65,7 +66,7 @@ function groupTable(document_, groups) {
   const label = GROUPS.find(([value]) => value === document_.group_by);
   return el('table', { id: 'groups' },
     el('thead', {}, el('tr', {},
-      el('th', { class: 'n' }, 'Rank'), el('th', {}, label ? label[1] : document_.group_by),
+      el('th', { class: 'n' }, 'Rank'), el('th', {}, label ? label[1] : document_.group_by), el('th', {}, 'Most severe finding'),
       el('th', { class: 'n' }, 'Exams'), el('th', { class: 'n' }, 'Outliers'), el('th', { class: 'n' }, 'Rate'),
       el('th', { class: 'n' }, 'Median governing TI'), el('th', { class: 'n' }, 'Department median, same exam types'),
       el('th', { class: 'n' }, 'Median MI'), el('th', {}, 'Findings by rule'),

@@ -127,7 +127,8 @@ static int serve_start(serve_state *state, mitilog_error *error)
         .max_connections_per_address = config->http_max_connections_per_address != 0
                                            ? config->http_max_connections_per_address
                                            : HTTP_SETTINGS_UNLIMITED,
-        .request_timeout_seconds = config->http_request_timeout_seconds};
+        .request_timeout_seconds = config->http_request_timeout_seconds,
+        .institution = config->site_institution};
     if (http_server_start(&web, state->store, &state->http, error) != MITILOG_OK)
         return -1;
     /* Both ports are bound: root is no longer needed. */

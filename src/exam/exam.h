@@ -323,9 +323,23 @@ typedef struct exam_row {
     size_t capture_count;        /* captures that could carry indices */
     size_t indexed_count;        /* ... of which carried at least one */
     size_t finding_count;        /* findings of the current policy */
+    size_t informational_count;  /* ... of which advisories below their own
+                                    limit: informational, counted apart */
     const exam_rule_count *rules;  /* findings by rule (the report joins them) */
     size_t rule_count;
+    int worst_severity;          /* the most severe finding: an
+                                    EXAM_SEVERITY_RANK_ (filled with every
+                                    column only, else 0) */
 } exam_row;
+
+/* Severity ranks of a finding for ranking lists: an informational
+ * advisory (below its own limit) ranks as none. */
+enum {
+    EXAM_SEVERITY_RANK_NONE = 0,
+    EXAM_SEVERITY_RANK_ADVISORY = 1,
+    EXAM_SEVERITY_RANK_WARNING = 2,
+    EXAM_SEVERITY_RANK_VIOLATION = 3
+};
 
 /* ---- One capture of an exam ----------------------------------------- */
 

@@ -33,6 +33,9 @@ typedef struct http_settings {
     unsigned max_connections_per_address; /* one client address [32]; see
                                              HTTP_SETTINGS_UNLIMITED        */
     unsigned request_timeout_seconds;     /* to send a whole request [10]   */
+    /* [site] institution, answered in /api/v1/stats; NULL or "": not set.
+     * Copied at start. */
+    const char *institution;
 } http_settings;
 
 /* max_connections_per_address value meaning "no per-address limit" (a

@@ -56,6 +56,7 @@ struct http_server {
     char *tls_private_key;
     http_guard *guard;           /* request deadlines                    */
     char csrf_key[65];           /* random, drawn at start: review tokens */
+    char *institution;           /* [site] institution, NULL: not set    */
 };
 
 /* Who sent a request: user "" and role NULL when no login is set. */

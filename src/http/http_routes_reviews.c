@@ -19,6 +19,7 @@
  * handler for a POST to the request's completion (http_post_free).
  */
 #include "http/http_internal.h"
+#include "report/report.h"
 #include "json/json.h"
 
 #include <netinet/in.h>
@@ -161,16 +162,16 @@ static http_reply http_worklist(http_server *server, struct MHD_Connection *conn
     if (!http_parameters_read(server, connection, rules, 1, values, &reply))
         return reply;
     char monday[11];
-    const char *first = NULL;
-    if (values[0].text != NULL) {
-        long day = 0;
-        stats_iso_week_monday(values[0].iso_year, values[0].iso_week, &day);
-        stats_day_text(day, monday);
-        first = monday;
-    }
+    int year = values[0].iso_year, week = values[0].iso_week;
+    if (values[0].text == NULL)
+        report_default_week(server->store, &year, &week); /* one rule: report.h */
+    long day = 0;
+    stats_iso_week_monday(year, week, &day);
+    stats_day_text(day, monday);
     char *json = NULL;
     mitilog_error error = {{0}};
-    mitilog_status status = store_worklist_json(server->store, first, &json, &error);
+    mitilog_status status =
+        store_worklist_json(server->store, monday, values[0].text == NULL, &json, &error);
     return http_status_reply(server, status, json, NULL, &error);
 }
 

@@ -83,7 +83,8 @@ static http_reply http_stats(http_server *server, struct MHD_Connection *connect
     if (!http_parameters_read(server, connection, rules, COUNT, values, &reply) ||
         !http_parameters_period(server, &values[0], &values[1], &reply))
         return reply;
-    report_stats_request request = {values[0].text, values[1].text, STATS_BY_EXAM_TYPE, NULL};
+    report_stats_request request = {values[0].text, values[1].text, STATS_BY_EXAM_TYPE,
+                                    server->institution};
     if (values[2].text != NULL)
         stats_dimension_parse(values[2].text, &request.by);
     report_format format = http_stats_format(&values[3]);

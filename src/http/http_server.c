@@ -514,6 +514,11 @@ mitilog_status http_server_start(const http_settings *settings, store *st,
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY,
                                  "out of memory starting HTTP");
     server->store = st;
+    if (settings->institution != NULL && settings->institution[0] != '\0' &&
+        (server->institution = strdup(settings->institution)) == NULL) {
+        http_server_stop(server);
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory starting HTTP");
+    }
     unsigned char key[32];
     if (getrandom(key, sizeof key, 0) != (ssize_t)sizeof key) {
         http_server_stop(server);
@@ -605,5 +610,6 @@ void http_server_stop(http_server *server)
     http_throttle_free(server->throttle);
     free(server->tls_certificate);
     free(server->tls_private_key);
+    free(server->institution);
     free(server);
 }

@@ -44,6 +44,14 @@ typedef struct report_week_request {
 } report_week_request;
 
 /* Defaults: latest week, by preset, stats_week_default_settings(). */
+/* The week every report, page and the worklist open on when none is
+ * asked for: the last complete ISO week that holds exams (the week of the
+ * latest exam day when that day is a Sunday, else the latest week with
+ * exams that ended before the latest day's week; when every exam is in
+ * that week, that week). Exam days are those of exam_summaries.day. One
+ * rule, here only. */
+void report_default_week(store *store, int *iso_year, int *iso_week);
+
 report_week_request report_week_default_request(void);
 
 mitilog_status report_week(store *store, const report_week_request *request,

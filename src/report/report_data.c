@@ -95,7 +95,14 @@ mitilog_status report_data_load(store *st, const char *from, const char *to, uns
 
 long report_last_complete_day(store *st)
 {
-    long latest = report_latest_day(st);
+    /* The latest exam day, on the same days the weeks are counted on
+     * (exam_summaries.day); the first acquisition's day when none. */
+    store_span all;
+    mitilog_error ignored;
+    long latest = -1;
+    if (store_load_baseline_span(st, "0000-01-01", "9999-12-31", &all, &ignored) != MITILOG_OK ||
+        all.last_day[0] == '\0' || stats_day_number(all.last_day, &latest) != MITILOG_OK)
+        latest = report_latest_day(st);
     /* day 0 (1970-01-01) was a Thursday: Monday is 0 in (day + 3) mod 7 */
     long weekday = ((latest + 3) % 7 + 7) % 7;
     if (weekday == 6)
@@ -103,12 +110,26 @@ long report_last_complete_day(store *st)
     char monday[11];
     stats_day_text(latest - weekday, monday);
     store_span span;
-    mitilog_error ignored;
     long day = latest;
-    if (store_load_baseline_span(st, "1900-01-01", monday, &span, &ignored) == MITILOG_OK &&
+    if (store_load_baseline_span(st, "0000-01-01", monday, &span, &ignored) == MITILOG_OK &&
         span.last_day[0] != '\0' && stats_day_number(span.last_day, &day) != MITILOG_OK)
         day = latest;
     return day;
+}
+
+const char *report_severity_name(int rank)
+{
+    switch (rank) {
+    case EXAM_SEVERITY_RANK_VIOLATION: return "violation";
+    case EXAM_SEVERITY_RANK_WARNING: return "warning";
+    case EXAM_SEVERITY_RANK_ADVISORY: return "advisory";
+    default: return NULL;
+    }
+}
+
+void report_default_week(store *st, int *iso_year, int *iso_week)
+{
+    stats_iso_week_of_day(report_last_complete_day(st), iso_year, iso_week);
 }
 
 long report_latest_day(store *st)

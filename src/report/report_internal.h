@@ -55,6 +55,10 @@ long report_latest_day(store *store);
  * week; when every exam is in that week, the latest day. */
 long report_last_complete_day(store *store);
 
+/* "violation", "warning", "advisory" for an EXAM_SEVERITY_RANK_ (exam.h);
+ * NULL for none (static strings). */
+const char *report_severity_name(int rank);
+
 /* Share of captures with indices, NAN when there are none. */
 double report_completeness(size_t captures, size_t indexed);
 

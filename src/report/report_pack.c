@@ -175,6 +175,7 @@ static void pack_time_row(const report_pack_input *in, FILE *out, const stats_pe
     fputs("<td class=\"n\" data-field=\"share_with_findings_percent\">", out);
     pack_fixed(out, row->exam_count > 0, 100.0 * row->share_with_findings, 0);
     fputs("&nbsp;%</td>", out);
+    pack_count_cell(out, "exams_informational_only", row->informational_only_count);
     const stats_distribution *est = &row->estimated_seconds;
     pack_cell(out, "estimated_minutes_median", est->count > 0, est->median / 60.0,
               PACK_MINUTE_DECIMALS);
@@ -415,15 +416,19 @@ void report_pack_html(const report_pack_input *in, FILE *out)
     pack_distribution_row(in, out, &in->result->total, NULL, 1);
     fputs("</tbody></table>\n", out);
 
-    fputs("<h2>Findings and time at or above each TI threshold</h2>\n<p>Findings: exams with "
-          "at least one finding of the policy. Time: estimated from each exam's timeline "
+    fputs("<h2>Findings and time at or above each TI threshold</h2>\n<p>With findings: exams "
+          "with at least one violation, warning or advisory above its own limit. "
+          "Informational only: exams whose only findings are advisories below their own "
+          "limit (e.g. first-trimester Doppler used below its TI limit), counted apart. Time: estimated from each exam's timeline "
           "(docs/extraction.md); for each threshold of the governing index, the exams with "
           "any time at or above it and the 95th percentile of that time, in minutes, over the "
           "exams with a value.</p>\n<table class=\"pack\" id=\"time\"><thead><tr>"
           "<th rowspan=\"2\">",
           out);
     report_html_text(out, row_heading);
-    fputs("</th><th colspan=\"2\">With findings</th><th rowspan=\"2\">Scan minutes "
+    fputs("</th><th colspan=\"2\">With findings (violations, warnings, advisories above "
+          "limit)</th><th rowspan=\"2\">Informational only (exams)</th><th "
+          "rowspan=\"2\">Scan minutes "
           "(median)</th>",
           out);
     for (int t = 0; t < EXAM_TI_STATISTICS_STEPS; t++)

@@ -25,8 +25,15 @@ static mitilog_status stats_compute(store *st, const report_stats_request *reque
     doc->by = request->by;
     doc->institution = request->institution;
     long from_day, to_day;
-    if (request->to == NULL || request->to[0] == '\0')
-        to_day = report_latest_day(st);
+    if (request->to == NULL || request->to[0] == '\0') {
+        /* the Sunday of the default week (report.h), never a part week */
+        int year, week;
+        long monday;
+        report_default_week(st, &year, &week);
+        to_day = stats_iso_week_monday(year, week, &monday) == MITILOG_OK
+                     ? monday + 6
+                     : report_last_complete_day(st);
+    }
     else if (stats_day_number(request->to, &to_day) != MITILOG_OK)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "to: not a date YYYY-MM-DD");
     if (request->from == NULL || request->from[0] == '\0') {
@@ -118,6 +125,10 @@ static void row_json(json_writer *w, const stats_document *doc, const stats_peri
     json_integer(w, (long long)row->with_findings_count);
     json_key(w, "share_with_findings");
     json_number(w, 1, row->share_with_findings);
+    json_key(w, "exams_informational_only");
+    json_integer(w, (long long)row->informational_only_count);
+    json_key(w, "share_informational_only");
+    json_number(w, 1, row->share_informational_only);
     json_key(w, "captures");
     json_integer(w, (long long)row->capture_count);
     json_key(w, "captures_with_indices");
@@ -208,7 +219,8 @@ static const char *const stats_csv_columns[] = {
     "exams_at_or_above_1_5", "minutes_at_or_above_1_5_median", "minutes_at_or_above_1_5_p95",
     "exams_at_or_above_2_0", "minutes_at_or_above_2_0_median", "minutes_at_or_above_2_0_p95",
     "data_completeness", "policy_version", "note", "label", "governing_index",
-    "governing_without_value", "institution"};
+    "governing_without_value", "institution", "exams_informational_only",
+    "share_informational_only"};
 enum { STATS_CSV_COLUMNS = sizeof stats_csv_columns / sizeof stats_csv_columns[0] };
 
 static void stats_csv_row(const stats_document *doc, FILE *out, const stats_period_row *row,
@@ -252,6 +264,8 @@ static void stats_csv_row(const stats_document *doc, FILE *out, const stats_peri
     report_csv_field(out, 0, governing);
     report_csv_count(out, row->exam_count - g->count);
     report_csv_field(out, 0, "");
+    report_csv_count(out, row->informational_only_count);
+    report_csv_number(out, 1, row->share_informational_only);
     report_csv_end(out);
 }
 
@@ -272,7 +286,8 @@ static void stats_csv(const stats_document *doc, FILE *out)
     report_csv_field(out, 0, stats_dimension_name(doc->by));
     report_csv_field(out, 0, "");
     report_csv_count(out, doc->result.total.exam_count);
-    for (int c = 6; c < STATS_CSV_COLUMNS - 7; c++)
+    /* up to data_completeness, the 9th column from the end */
+    for (int c = 6; c < STATS_CSV_COLUMNS - 9; c++)
         fputc(',', out);
     report_csv_number(out, isfinite(completeness), completeness);
     report_csv_field(out, 0, report_policy_text(&doc->data.info, policy, sizeof policy));
@@ -281,6 +296,8 @@ static void stats_csv(const stats_document *doc, FILE *out)
     report_csv_field(out, 0, "");
     report_csv_field(out, 0, "");
     report_csv_field(out, 0, doc->institution != NULL ? doc->institution : "");
+    report_csv_field(out, 0, "");
+    report_csv_field(out, 0, "");
     report_csv_end(out);
     for (size_t r = 0; r < doc->result.row_count; r++) {
         const stats_period_row *row = &doc->result.rows[r];
@@ -348,7 +365,7 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
     size_t baseline_weeks = request->baseline_weeks ? request->baseline_weeks : 12;
     int year = request->iso_year, week = request->iso_week;
     if (!request->has_week)
-        stats_iso_week_of_day(report_latest_day(st), &year, &week);
+        report_default_week(st, &year, &week);
     long last_monday;
     if (stats_iso_week_monday(year, week, &last_monday) != MITILOG_OK)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no ISO week %d-W%02d", year,
@@ -387,6 +404,7 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
         report_meta_int(&meta, "minimum_baseline",
                         (long long)(request->minimum_baseline ? request->minimum_baseline : 10));
         report_meta_number(&meta, "z_limit", 1, request->z_limit > 0 ? request->z_limit : 3.0);
+        report_meta_int(&meta, "minimum_week_exams", (long long)STATS_DRIFT_WEEK_MINIMUM);
         report_meta_text(&meta, "method",
                          "weekly median of each exam's highest governing TI per preset and "
                          "room; z = (median - baseline median) / (1.4826 MAD x 1.2533 / "

@@ -57,7 +57,7 @@ static mitilog_status week_compute(store *st, const report_week_request *request
     doc->request = request;
     int year = request->iso_year, week = request->iso_week;
     if (!request->has_week)
-        stats_iso_week_of_day(report_last_complete_day(st), &year, &week);
+        report_default_week(st, &year, &week);
     long monday;
     if (stats_iso_week_monday(year, week, &monday) != MITILOG_OK)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no ISO week %d-W%02d", year,
@@ -74,13 +74,16 @@ static mitilog_status week_compute(store *st, const report_week_request *request
     stats_day_text(monday - 1, doc->baseline_to);
 
     /* The week's exams in full; of the baseline weeks only what the
-     * baselines use (exam type, governing value). */
+     * baselines use (exam type, group, governing value). */
     mitilog_status status = report_data_load(st, doc->monday, doc->sunday, STORE_EXAM_ALL,
                                              REPORT_LOAD_RULES | REPORT_LOAD_INFO, &doc->data,
                                              error);
+    char baseline_last[11]; /* the Sunday before the week: the rows' period is inclusive */
+    stats_day_text(monday - 1, baseline_last);
     if (status == MITILOG_OK)
-        status = store_load_exam_governing(st, doc->baseline_from, doc->monday, &doc->baseline,
-                                           error);
+        status = store_load_exam_rows(st, doc->baseline_from, baseline_last,
+                                      report_dimension_column(request->group), &doc->baseline,
+                                      error);
     if (status == MITILOG_OK)
         status = store_load_baseline_span(st, doc->baseline_from, doc->monday,
                                           &doc->baseline_span, error);
@@ -233,6 +236,8 @@ static mitilog_status week_json(const week_document *doc, char **out, mitilog_er
         json_number(w, 1, completeness);
         json_key(w, "finding_count");
         json_integer(w, (long long)group->finding_count);
+        json_key(w, "worst_severity");
+        json_string(w, report_severity_name(group->worst_severity));
 
         json_key(w, "findings_by_rule");
         json_array_begin(w);
@@ -310,10 +315,12 @@ static mitilog_status week_json(const week_document *doc, char **out, mitilog_er
             json_integer(w, (long long)doc->week_exams[e].finding_count);
             json_key(w, "baseline_thin");
             json_boolean(w, base->thin);
+            json_key(w, "baseline_without_group");
+            json_boolean(w, flag->without_group);
             json_key(w, "baseline_median");
-            json_number(w, base->count > 0, base->median);
+            json_number(w, flag->compared_count > 0, flag->compared_median);
             json_key(w, "baseline_p95");
-            json_number(w, base->count > 0, base->p95);
+            json_number(w, flag->compared_count > 0, flag->compared_p95);
             json_key(w, "estimated_seconds");
             json_number(w, 1, row->estimated_seconds);
             json_object_end(w);
@@ -496,7 +503,8 @@ static void week_html(const week_document *doc, FILE *out)
     fputs("</style>\n<h2>Groups</h2>\n<table class=\"groups\"><thead><tr><th>Rank</th><th>", out);
     report_html_text(out, group_by);
     fputs("</th><th>Exams</th><th>Outliers</th><th>Rate</th><th>Median governing TI</th>"
-          "<th>Department median (same exam types)</th><th>Median MI</th><th>Findings</th>"
+          "<th>Department median (same exam types)</th><th>Median MI</th><th>Findings (most "
+          "severe)</th>"
           "<th>Captures with indices</th></tr></thead><tbody>\n",
           out);
     for (size_t g = 0; g < doc->result.group_count; g++) {
@@ -510,7 +518,10 @@ static void week_html(const week_document *doc, FILE *out)
         html_cell_fixed(out, group->has_median, group->median_governing, 2);
         html_cell_fixed(out, group->has_median, group->department_median, 2);
         html_cell_fixed(out, 1, group->median_mi, 2);
-        fprintf(out, "<td class=\"n\">%zu</td>", group->finding_count);
+        const char *severity = report_severity_name(group->worst_severity);
+        fprintf(out, "<td class=\"n\">%zu%s%s%s</td>", group->finding_count,
+                severity != NULL ? " (" : "", severity != NULL ? severity : "",
+                severity != NULL ? ")" : "");
         fputs("<td class=\"n\">", out);
         if (isfinite(completeness))
             fprintf(out, "%.0f %%", 100.0 * completeness);

@@ -129,7 +129,8 @@ mitilog_status stats_drift(const exam_row *exams, size_t count, long first_monda
             point->flagged = point->z > z_limit && n >= STATS_DRIFT_WEEK_MINIMUM;
             if (point->flagged)
                 series->flagged_count++;
-            if (fabs(point->z) > series->max_abs_z)
+            /* the largest |z| only of weeks with enough exams to flag */
+            if (n >= STATS_DRIFT_WEEK_MINIMUM && fabs(point->z) > series->max_abs_z)
                 series->max_abs_z = fabs(point->z);
         }
     }

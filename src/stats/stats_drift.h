@@ -54,8 +54,9 @@ typedef struct stats_drift_series {
     const char *exam_type;      /* of the series' first exam */
     stats_drift_point *points;  /* week_count points, in week order */
     size_t flagged_count;
-    double max_abs_z;           /* largest |z| of a scored week, 0 when
-                                   none: a drop counts here, shown */
+    double max_abs_z;           /* largest |z| of a scored week with at
+                                   least STATS_DRIFT_WEEK_MINIMUM exams, 0
+                                   when none: a drop counts here, shown */
 } stats_drift_series;
 
 typedef struct stats_drift_result {

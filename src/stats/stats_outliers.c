@@ -110,6 +110,8 @@ static void sort_members(size_t *members, size_t count, const exam_row *exams,
 static int compare_groups(const void *left, const void *right)
 {
     const stats_group *a = left, *b = right;
+    if (a->worst_severity != b->worst_severity)
+        return a->worst_severity > b->worst_severity ? -1 : 1;
     if (a->outlier_count != b->outlier_count)
         return a->outlier_count > b->outlier_count ? -1 : 1;
     if (a->outlier_rate != b->outlier_rate)
@@ -128,7 +130,8 @@ mitilog_status stats_week_outliers(const exam_row *week, size_t week_count,
     if (settings == NULL)
         settings = &defaults;
     double z_limit = settings->z_limit > 0 ? settings->z_limit : 3.0;
-    stats_key_groups types, base_types, keys;
+    stats_key_groups types, base_types, keys, base_keys;
+    memset(&base_keys, 0, sizeof base_keys);
     memset(&types, 0, sizeof types);
     memset(&base_types, 0, sizeof base_types);
     memset(&keys, 0, sizeof keys);
@@ -139,13 +142,15 @@ mitilog_status stats_week_outliers(const exam_row *week, size_t week_count,
     size_t capacity = week_count + baseline_count + 1;
 
     values = malloc(capacity * sizeof *values);
-    scratch = malloc(capacity * sizeof *scratch);
+    scratch = malloc(2 * capacity * sizeof *scratch); /* values and a MAD's scratch */
     result->flags = calloc(week_count + 1, sizeof *result->flags);
     if (values == NULL || scratch == NULL || result->flags == NULL ||
         stats_group_by_key(week, week_count, STATS_BY_EXAM_TYPE, &types) != MITILOG_OK ||
         stats_group_by_known_key(baseline, baseline_count, STATS_BY_EXAM_TYPE, &types.table,
                                  &base_types) != MITILOG_OK ||
-        stats_group_by_key(week, week_count, by, &keys) != MITILOG_OK)
+        stats_group_by_key(week, week_count, by, &keys) != MITILOG_OK ||
+        stats_group_by_known_key(baseline, baseline_count, by, &keys.table, &base_keys) !=
+            MITILOG_OK)
         goto done;
     size_t type_count = types.table.count, key_count = keys.table.count;
     result->flag_count = week_count;
@@ -190,15 +195,38 @@ mitilog_status stats_week_outliers(const exam_row *week, size_t week_count,
             flag->baseline = t;
             flag->robust_z = NAN;
             flag->has_value = week[i].has_governing;
+            flag->compared_count = n;
+            flag->compared_median = base->median;
+            flag->compared_p95 = base->p95;
             if (!flag->has_value || n == 0)
                 continue;
+            double median = base->median, mad = base->mad, p95 = base->p95;
+            /* The type's trailing exams of other groups only (stats_outliers.h);
+             * grouped by exam type, every trailing exam is of the group. */
+            size_t other = 0;
+            if (by != STATS_BY_EXAM_TYPE) {
+                for (size_t b = base_types.start[t]; b < base_types.start[t + 1]; b++) {
+                    size_t j = base_types.members[b];
+                    if (baseline[j].has_governing && base_keys.key_of[j] != keys.key_of[i])
+                        scratch[other++] = baseline[j].max_governing;
+                }
+            }
+            if (other >= settings->minimum_baseline && other > 0) {
+                double *own = scratch + other;
+                stats_sort(scratch, other);
+                stats_mad(scratch, other, own, &median, &mad);
+                stats_quantile_sorted(scratch, other, 0.95, &p95);
+                flag->without_group = 1;
+                flag->compared_count = other;
+                flag->compared_median = median;
+                flag->compared_p95 = p95;
+            }
             double z;
-            if (stats_robust_z(week[i].max_governing, base->median, base->mad, &z) ==
-                MITILOG_OK) {
+            if (stats_robust_z(week[i].max_governing, median, mad, &z) == MITILOG_OK) {
                 flag->robust_z = z;
                 flag->above_robust_z = z > z_limit;
             }
-            flag->above_p95 = week[i].max_governing > base->p95;
+            flag->above_p95 = week[i].max_governing > p95;
             flag->is_outlier = flag->above_robust_z || flag->above_p95;
         }
     }
@@ -222,6 +250,8 @@ mitilog_status stats_week_outliers(const exam_row *week, size_t week_count,
             group->capture_count += exam->capture_count;
             group->indexed_count += exam->indexed_count;
             group->finding_count += exam->finding_count;
+            if (exam->worst_severity > group->worst_severity)
+                group->worst_severity = exam->worst_severity;
             if (tally_rules(group, exam) != MITILOG_OK)
                 goto done;
             if (result->flags[i].has_value) {
@@ -265,6 +295,7 @@ done:
     stats_key_groups_free(&types);
     stats_key_groups_free(&base_types);
     stats_key_groups_free(&keys);
+    stats_key_groups_free(&base_keys);
     if (status != MITILOG_OK) {
         stats_week_result_free(result);
         mitilog_error_set(error, status, "weekly outliers: out of memory");

@@ -47,6 +47,12 @@ typedef struct stats_exam_flag {
     int is_outlier, above_robust_z, above_p95;
     double robust_z;            /* NAN when the baseline MAD is 0 */
     size_t baseline;            /* index into stats_week_result.baselines */
+    /* What the exam was compared with: its exam type's baseline without
+     * the exams of its own group (without_group set) when that leaves
+     * minimum_baseline values, else the type's whole baseline. */
+    int without_group;
+    size_t compared_count;
+    double compared_median, compared_p95;
 } stats_exam_flag;
 
 typedef struct stats_rule_tally {
@@ -67,6 +73,8 @@ typedef struct stats_group {
     double median_mi;           /* NAN when no MI */
     size_t capture_count, indexed_count;   /* data completeness */
     size_t finding_count;
+    int worst_severity;         /* most severe finding of its exams, an
+                                   EXAM_SEVERITY_RANK_ (exam.h) */
     stats_rule_tally *rules;    /* findings by rule, by rule id */
     size_t rule_count;
     size_t *members;            /* indices of the group's week exams:
@@ -80,14 +88,20 @@ typedef struct stats_week_result {
     size_t flag_count;
     stats_baseline *baselines;  /* one per exam type of the week */
     size_t baseline_count;
-    stats_group *groups;        /* ranked: outlier count, then rate, key */
+    stats_group *groups;        /* ranked: most severe finding (violation,
+                                   warning, advisory above its limit), then
+                                   outlier count, rate, key */
     size_t group_count;
     int any_thin;
 } stats_week_result;
 
 /* week: the chosen week's exams; baseline: the exams of the trailing
- * weeks (the caller selects them; stats_week_days gives the
- * days). Per exam type: the baseline's governing index values; when they
+ * weeks (the caller selects them; stats_week_days gives the days) with
+ * the group's column when by is not the exam type. Each exam is compared
+ * with the baseline of its exam type built without its own group's exams,
+ * so that a group's own habit (a shift's long Doppler, a hot preset) is
+ * not absorbed into the baseline it is judged by; when that leaves fewer
+ * than minimum_baseline values, with the type's whole baseline. Per exam type: the baseline's governing index values; when they
  * are fewer than settings->minimum_baseline the week's own values are
  * added ("baseline thin"). An exam is an outlier when its governing index
  * has robust z > z_limit or exceeds the baseline P95 (stats_outlier_test).

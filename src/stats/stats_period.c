@@ -54,13 +54,21 @@ static void period_row(const exam_row *exams, const size_t *members, size_t coun
         row->exam_count++;
         row->capture_count += exam->capture_count;
         row->indexed_count += exam->indexed_count;
-        if (exam->finding_count > 0)
+        /* "with findings": a violation, a warning or an advisory above
+         * its own limit; an exam with only informational advisories is
+         * counted apart (exam.h) */
+        if (exam->finding_count > exam->informational_count)
             row->with_findings_count++;
+        else if (exam->informational_count > 0)
+            row->informational_only_count++;
         if (exam->has_governing)
             values[n++] = exam->max_governing;
     }
     row->share_with_findings =
         row->exam_count > 0 ? (double)row->with_findings_count / (double)row->exam_count : 0.0;
+    row->share_informational_only =
+        row->exam_count > 0 ? (double)row->informational_only_count / (double)row->exam_count
+                            : 0.0;
     distribution_of(values, n, &row->governing);
     n = 0;
     for (size_t at = 0; at < count; at++) {

@@ -39,8 +39,11 @@ typedef struct stats_threshold_time {
 typedef struct stats_period_row {
     const char *key;            /* borrowed; NULL: not recorded */
     size_t exam_count;
-    size_t with_findings_count;
+    size_t with_findings_count;  /* a violation, a warning or an advisory
+                                    above its own limit */
     double share_with_findings;
+    size_t informational_only_count; /* only informational advisories */
+    double share_informational_only;
     stats_distribution governing;
     stats_distribution mi;
     stats_distribution estimated_seconds;

@@ -273,10 +273,11 @@ mitilog_status store_put_review(store *store, const store_review *review,
 mitilog_status store_reviews_text(store *store, const char *study, const char *from,
                                   const char *to, int csv, char **out,
                                   mitilog_error *error);
-/* GET /api/v1/worklist: the week starting on monday (YYYY-MM-DD), or
- * NULL for the last complete week with data (queries/reviews/review_worklist.sql
- * says how it ranks). *json is malloc'ed, freed by the caller. */
-mitilog_status store_worklist_json(store *store, const char *monday, char **json,
+/* GET /api/v1/worklist: the week starting on monday (YYYY-MM-DD);
+ * is_default says it is the default week (report_default_week, the one
+ * rule of src/report/report.h). queries/reviews/review_worklist.sql says
+ * how it ranks. *json is malloc'ed, freed by the caller. */
+mitilog_status store_worklist_json(store *store, const char *monday, int is_default, char **json,
                                    mitilog_error *error);
 /* GET /api/v1/operators: per-operator exams, median governing index and
  * findings of a period (from, to YYYY-MM-DD; NULL = open), when the site

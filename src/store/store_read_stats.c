@@ -129,7 +129,8 @@ static exam_row *store_list_add(store_exam_list *list, size_t *capacity)
 enum {
     EXAM_UID, EXAM_DAY, EXAM_TYPE, EXAM_TYPE_LABEL, EXAM_GOVERNING_INDEX, EXAM_MAX_GOVERNING,
     EXAM_MAX_MI, EXAM_ROOM, EXAM_PRESET, EXAM_SHIFT, EXAM_TRANSDUCER, EXAM_DESCRIPTION,
-    EXAM_ESTIMATED, EXAM_CAPTURES, EXAM_INDEXED, EXAM_FINDINGS, EXAM_FIRST_ACQUIRED
+    EXAM_ESTIMATED, EXAM_CAPTURES, EXAM_INDEXED, EXAM_FINDINGS, EXAM_FIRST_ACQUIRED,
+    EXAM_INFORMATIONAL, EXAM_WORST_SEVERITY
 };
 
 /* The queries the loader chooses from. */
@@ -150,7 +151,7 @@ enum {
 enum {
     VALUES_TYPE, VALUES_KEY, VALUES_MAX_GOVERNING, VALUES_MAX_MI, VALUES_ESTIMATED,
     VALUES_CAPTURES, VALUES_INDEXED,
-    VALUES_FINDINGS, VALUES_UID
+    VALUES_FINDINGS, VALUES_UID, VALUES_INFORMATIONAL
 };
 
 /* The context column of a single STORE_EXAM_ROOM/PRESET/SHIFT/TRANSDUCER
@@ -225,6 +226,7 @@ static int exam_row_read(store_exam_list *list, exam_row *row,
         row->capture_count = store_count(statement, VALUES_CAPTURES);
         row->indexed_count = store_count(statement, VALUES_INDEXED);
         row->finding_count = store_count(statement, VALUES_FINDINGS);
+        row->informational_count = store_count(statement, VALUES_INFORMATIONAL);
         row->study_instance_uid = store_list_text(list, statement, VALUES_UID, &failed);
         return failed;
     }
@@ -253,6 +255,8 @@ static int exam_row_read(store_exam_list *list, exam_row *row,
     row->capture_count = store_count(statement, EXAM_CAPTURES);
     row->indexed_count = store_count(statement, EXAM_INDEXED);
     row->finding_count = store_count(statement, EXAM_FINDINGS);
+    row->informational_count = store_count(statement, EXAM_INFORMATIONAL);
+    row->worst_severity = (int)store_count(statement, EXAM_WORST_SEVERITY);
     return failed;
 }
 

@@ -93,13 +93,13 @@ mitilog_status store_reviews_text(store *st, const char *study, const char *from
                            3, "query reviews", out, error);
 }
 
-mitilog_status store_worklist_json(store *st, const char *monday, char **json,
+mitilog_status store_worklist_json(store *st, const char *monday, int is_default, char **json,
                                    mitilog_error *error)
 {
-    if (st == NULL || json == NULL)
+    if (st == NULL || json == NULL || monday == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_worklist_json: no store");
-    const char *texts[] = {monday};
-    return store_read_text(st, "queries/reviews/review_worklist.sql", texts, 1, "query worklist", json,
+    const char *texts[] = {monday, is_default ? "1" : "0"};
+    return store_read_text(st, "queries/reviews/review_worklist.sql", texts, 2, "query worklist", json,
                            error);
 }
 

@@ -54,8 +54,15 @@ try {
   check('week chart drawn', (await page.$$('#group-chart rect')).length > 2);
   await shot('week-by-preset');
   await open(`/index.html?week=${config.week}&group=room`, '#groups tbody tr');
-  const firstRoom = await page.$eval('#groups tbody tr:first-child td.key', (td) => td.textContent);
-  check('hot room first by room', firstRoom === config.hot_room, firstRoom);
+  // Groups rank by their most severe finding, then outliers: the room of
+  // the MI breach (a violation) first, the hot room first of the rest.
+  const rooms = await page.$$eval('#groups tbody tr', (rows) => rows.map((r) => ({
+    key: r.querySelector('td.key').textContent, severity: r.querySelector('td.severity').textContent })));
+  check('breach room first by room, its severity shown', rooms[0].key === config.breach_room &&
+    rooms[0].severity === 'violation', rooms[0]);
+  const hotRoom = rooms.find((r) => r.key === config.hot_room);
+  check('hot room first among rooms of its severity',
+    hotRoom && rooms.find((r) => r.severity === hotRoom.severity) === hotRoom, rooms);
   await shot('week-by-room');
   await page.emulateMedia({ media: 'print' });
   await shot('week-by-room-print');

@@ -45,6 +45,7 @@ def department(tmp_path_factory):
     imported = daemon.import_(sim)
     assert "imported" in imported.stdout, imported.stderr
     daemon.start()
+    daemon.manifest = os.path.join(sim, "manifest.csv")
     yield daemon
     daemon.stop()
 
@@ -339,3 +340,126 @@ def test_exam_chart_in_chromium(department):
     assert len(outcome["checks"]) >= 4 * 6
     with open(outcome["pdf"], "rb") as f:
         assert f.read(5) == b"%PDF-"
+
+
+def stats_page(daemon, query):
+    """The statistics page read in headless Chromium (tests/browser/stats_page.mjs)."""
+    browser_dir = os.path.join(REPO, "tests", "browser")
+    node = shutil.which("node")
+    if not (node and os.path.exists("/usr/bin/chromium") and os.path.isdir(
+            os.path.join(browser_dir, "node_modules", "playwright-core"))):
+        if os.environ.get("MITILOG_REQUIRE_BROWSER"):
+            pytest.fail("node, /usr/bin/chromium or tests/browser/node_modules missing")
+        pytest.skip("node, chromium or playwright-core (npm ci in tests/browser) missing")
+    url = "http://127.0.0.1:%d/stats.html?%s" % (daemon.http_port, query)
+    result = subprocess.run([node, os.path.join(browser_dir, "stats_page.mjs"), url],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            timeout=180, cwd=browser_dir)
+    lines = [line for line in result.stdout.splitlines() if line.startswith("{")]
+    assert lines, result.stderr
+    outcome = json.loads(lines[-1])
+    assert not outcome["errors"], outcome["errors"]
+    return outcome
+
+
+def test_institution_in_api_and_dashboard(department):
+    # The configured [site] institution (docs/configuration.md) is the
+    # same in the API's JSON and CSV as in the printed pack, and shown on
+    # the dashboard's statistics page (common practice, no source: a
+    # statistics document names whose statistics they are).
+    query = "from=%s&to=%s" % (FROM, TO)
+    assert department.get_json("/api/v1/stats?" + query)["institution"] == INSTITUTION
+    status, body = department.get("/api/v1/stats?%s&format=csv" % query)
+    assert status == 200
+    records = list(csv.DictReader(io.StringIO(body, newline="")))
+    assert records[0]["institution"] == INSTITUTION
+    assert stats_page(department, query)["institution"] == INSTITUTION
+
+
+def test_with_findings_counts_informational_advisories_apart(department):
+    # "With findings" is an exam with a violation, a warning or an advisory
+    # above its own limit; an exam whose only findings are advisories
+    # below their own limit (first-trimester Doppler used below its TI
+    # limit, docs/demo.md) is counted apart. Recounted here in Python from
+    # the findings table itself.
+    with department.db() as db:
+        exams = dict(db.execute(
+            "SELECT study_instance_uid, exam_type FROM exam_summaries "
+            "WHERE day BETWEEN ? AND ?", (FROM, TO)))
+        findings = db.execute(
+            "SELECT study_instance_uid, severity, measured_value, limit_value FROM findings "
+            "WHERE superseded = 0 AND study_instance_uid IS NOT NULL").fetchall()
+    serious, informational = set(), set()
+    for uid, severity, measured, limit in findings:
+        if uid not in exams:
+            continue
+        if severity == "advisory" and measured is not None and limit is not None and \
+                measured < limit:
+            informational.add(uid)
+        else:
+            serious.add(uid)
+    expected = collections.defaultdict(lambda: [0, 0, 0])
+    for uid, exam_type in exams.items():
+        counts = expected[exam_type]
+        counts[0] += 1
+        if uid in serious:
+            counts[1] += 1
+        elif uid in informational:
+            counts[2] += 1
+    data = department.get_json("/api/v1/stats?from=%s&to=%s" % (FROM, TO))
+    assert {r["key"]: [r["exam_count"], r["exams_with_findings"],
+                       r["exams_informational_only"]] for r in data["rows"]} == expected
+    for r in data["rows"]:
+        assert r["share_with_findings"] == pytest.approx(
+            expected[r["key"]][1] / expected[r["key"]][0], abs=1e-9)
+    # The demo's first-trimester Doppler advisories are there, and apart.
+    assert expected["obstetric_first"][2] > 0
+    # The headings say what is counted: the pack, and the dashboard.
+    text = report(department, "stats", "--from", FROM, "--to", TO, "--format", "html")
+    assert "With findings (violations, warnings, advisories above limit)" in text
+    assert "Informational only" in text
+    headings = stats_page(department, "from=%s&to=%s" % (FROM, TO))["headings"]
+    assert "With findings (violations, warnings, advisories above their limit)" in headings
+
+
+def test_night_shift_habit_not_absorbed_into_its_baseline(department):
+    # docs/demo.md, planted problem night-ob-dwell: every night-shift
+    # 2nd/3rd-trimester OB exam dwells at TIB 1.2-1.8 (50 exams with seed
+    # 2026). Grouped by shift, each exam is compared with its exam type's
+    # trailing baseline without its own shift's exams (docs/api.md), so the
+    # habit is not absorbed into the baseline that judges it: most of its
+    # planted exams are listed.
+    with open(department.manifest, newline="") as f:
+        planted = {row["study_instance_uid"] for row in csv.DictReader(f)
+                   if "night-ob-dwell" in row["planted"]}
+    assert len(planted) == 50
+    listed, weeks = set(), {}
+    for week in ("2026-W45", "2026-W46", "2026-W47", "2026-W48"):
+        document = department.get_json("/api/v1/outliers?week=%s&group=shift" % week)
+        weeks[week] = document
+        for group in document["groups"]:
+            listed |= {e["study_instance_uid"] for e in group["exams"]} & planted
+    assert len(listed) > 0.75 * len(planted), len(listed)
+    # The baseline each night exam of 2026-W48 was compared with, recounted
+    # with Python's statistics (inclusive quantiles, Hyndman & Fan type 7):
+    # the exam type's trailing exams of the other shifts.
+    document = weeks["2026-W48"]
+    with department.db() as db:
+        rows = db.execute(
+            "SELECT exam_type, shift, max_governing FROM exam_period_rows "
+            "WHERE day >= ? AND day < ? AND max_governing IS NOT NULL",
+            (document["baseline_from"], document["from"])).fetchall()
+        types = dict(db.execute("SELECT study_instance_uid, exam_type FROM exam_summaries"))
+    night = [g for g in document["groups"] if g["key"] == "night"][0]
+    checked = 0
+    for exam in night["exams"]:
+        others = sorted(v for t, shift, v in rows
+                        if t == types[exam["study_instance_uid"]] and shift != "night")
+        if len(others) < document["minimum_baseline"]:
+            continue
+        assert exam["baseline_without_group"] is True
+        assert exam["baseline_median"] == pytest.approx(statistics.median(others), abs=1e-9)
+        p95 = statistics.quantiles(others, n=20, method="inclusive")[18]
+        assert exam["baseline_p95"] == pytest.approx(p95, abs=1e-9)
+        checked += 1
+    assert checked > 0

@@ -182,6 +182,45 @@ def test_worklist_default_week_and_ranking(department):
     assert empty["exam_count"] == 0 and empty["findings"] == []
 
 
+def test_every_default_week_is_the_worklists(department):
+    # One rule for every page and report opened without a week or period:
+    # the last complete ISO 8601 week that holds data (weeks recomputed
+    # with Python's datetime). The data end on Monday 2026-11-23, a part
+    # week of one night shift; the default is 2026-W47 everywhere.
+    client = Client(department.http_port, department.ca, VIEWER)
+    default = client.json("/api/v1/worklist")["week"]
+    assert default == iso_week("2026-11-22") == "2026-W47"
+    assert client.json("/api/v1/outliers")["week"] == default
+    drift = client.json("/api/v1/drift")
+    assert drift["last_week"] == default
+    # The statistics with no period end on that week's Sunday.
+    stats = client.json("/api/v1/stats")
+    assert (stats["from"], stats["to"]) == ("2026-11-02", "2026-11-22")
+    for command in (["week"], ["stats"]):
+        out = os.path.join(department.workdir, "default.json")
+        result = run([BINARY, "report"] + command + ["--config", department.config,
+                                                     "--format", "json", "--output", out],
+                     timeout=120)
+        assert result.returncode == 0, result.stderr
+        with open(out, encoding="utf-8") as f:
+            document = json.load(f)
+        if command == ["week"]:
+            assert document["week"] == default
+        else:
+            assert document["to"] == "2026-11-22"
+    # Drift is never shown, nor its largest |z| taken, from a week of
+    # fewer exams than the page states (common practice, no source: a
+    # median of 2 exams is no evidence of a changed preset).
+    minimum = drift["minimum_week_exams"]
+    assert minimum >= 5
+    for series in drift["series"]:
+        scored = [abs(p["z"]) for p in series["points"]
+                  if p["z"] is not None and p["count"] >= minimum]
+        assert series["max_abs_z"] == pytest.approx(max(scored, default=0.0), abs=0.06)
+        for p in series["points"]:
+            assert not p["flagged"] or p["count"] >= minimum
+
+
 def test_baseline_says_its_real_span_and_count(department):
     # The 12 weeks before 2026-W47 reach back to 2026-08-24, but the data
     # begins on 2026-11-02: the baseline is two weeks (W45, W46) of exams.

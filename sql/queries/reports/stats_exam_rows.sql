@@ -11,9 +11,29 @@
 -- threshold: stats_exam_time_at_or_above.sql. captures: image,
 -- multi-frame and volume objects; indexed: those of them with at least
 -- one index.
+-- informational: the exam's findings that are advisories below their own
+-- limit (first-trimester Doppler used below its TI limit), counted apart
+-- from "with findings" as the worklist lists them apart
+-- (queries/reviews/review_worklist.sql). worst_severity: the exam's most
+-- severe finding, 3 violation, 2 warning, 1 advisory above its own limit,
+-- 0 none or informational only (exam.h, EXAM_SEVERITY_RANK_*).
 SELECT study_instance_uid, day, exam_type, exam_type_label, governing_index,
        max_governing, max_mi, room, preset, shift, transducer, study_description,
        estimated_seconds, captures, indexed_count, finding_count,
-       first_acquired_at
+       first_acquired_at,
+       CASE WHEN finding_count > 0 THEN
+           (SELECT count(*) FROM findings f
+            WHERE f.study_instance_uid = exam_period_rows.study_instance_uid
+              AND f.superseded = 0 AND f.severity = 'advisory'
+              AND f.measured_value < f.limit_value)
+       ELSE 0 END,
+       CASE WHEN finding_count > 0 THEN
+           (SELECT max(CASE f.severity WHEN 'violation' THEN 3 WHEN 'warning' THEN 2
+                       WHEN 'advisory' THEN iif(f.measured_value < f.limit_value, 0, 1)
+                       ELSE 0 END)
+            FROM findings f
+            WHERE f.study_instance_uid = exam_period_rows.study_instance_uid
+              AND f.superseded = 0)
+       ELSE 0 END
 FROM exam_period_rows
 WHERE day >= ?1 AND day <= ?2;

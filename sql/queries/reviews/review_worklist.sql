@@ -1,9 +1,8 @@
 -- GET /api/v1/worklist: the review worklist of one ISO week as one JSON
--- object. ?1 the Monday 'YYYY-MM-DD' of the week asked for, or NULL for
--- the default: the last complete week that holds data (the week of the
--- latest exam day when that day is a Sunday, else the latest week with
--- data that ended before it; when every exam is in the current week, that
--- week). A week is chosen only from days that hold exams.
+-- object. ?1 the Monday 'YYYY-MM-DD' of the week: the one asked for, or
+-- the default week of every report (report_default_week, src/report/
+-- report.h: the last complete week that holds data); ?2 1 when ?1 is
+-- that default.
 --
 -- Findings of the current policy (not superseded) whose day (start, else
 -- the exam's first acquisition, else the device period) is in the week,
@@ -19,19 +18,8 @@
 WITH latest AS (
     SELECT max(day) AS day FROM exam_summaries WHERE day <> ''
 ),
-bounds AS (
-    SELECT CASE WHEN strftime('%w', day) = '0' THEN day
-                ELSE date(day, '-6 days', 'weekday 1', '-1 day') END AS complete_end,
-           day AS latest_day
-    FROM latest
-),
-chosen_day AS (
-    SELECT coalesce((SELECT max(s.day) FROM exam_summaries s, bounds b
-                     WHERE s.day <> '' AND s.day <= b.complete_end),
-                    (SELECT latest_day FROM bounds)) AS day
-),
 week AS (
-    SELECT coalesce(?1, date(day, '-6 days', 'weekday 1')) AS monday FROM chosen_day
+    SELECT ?1 AS monday
 ),
 period AS (
     SELECT monday AS first_day, date(monday, '+6 days') AS last_day FROM week
@@ -170,7 +158,7 @@ SELECT json_object(
             || printf('%02d', (CAST(strftime('%j', date((SELECT monday FROM week), '+3 days'))
                                     AS INTEGER) + 6) / 7),
     'from', (SELECT first_day FROM period), 'to', (SELECT last_day FROM period),
-    'default_week', json(iif(?1 IS NULL, 'true', 'false')),
+    'default_week', json(iif(?2, 'true', 'false')),
     'data_first_day', (SELECT min(day) FROM exam_summaries WHERE day <> ''),
     'data_last_day', (SELECT day FROM latest),
     'weeks_with_data', (SELECT json_group_array(monday) FROM (
