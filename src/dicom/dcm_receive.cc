@@ -965,13 +965,16 @@ static void dcm_negotiation_watch(dcm_server *server, bool all)
         if (negotiation.expired || (!all && now < negotiation.deadline))
             continue;
         negotiation.expired = true;
-        shutdown(negotiation.watch_fd, SHUT_RDWR);
+        /* The line first: once the socket is shut down, the connection's
+         * own thread wakes and would take the line allowance with its
+         * vaguer "closed before ... complete". */
         unsigned long suppressed = 0;
         if (!all && dcm_peer_line_allowed(server, &suppressed))
             log_warning("connection from %s closed: association request "
                         "not complete after %u s (acse_timeout_seconds)%s",
                         negotiation.peer.c_str(), server->acse_timeout,
                         dcm_suppressed_note(suppressed).c_str());
+        shutdown(negotiation.watch_fd, SHUT_RDWR);
     }
 }
 

@@ -3,6 +3,8 @@ machine: a test CA made with openssl, a password file made with
 `mitilog passwd`, and real requests with Python's ssl and urllib."""
 import base64
 import http.client
+import time
+import socket
 import os
 import ssl
 import subprocess
@@ -74,6 +76,16 @@ def test_https_with_login(secured):
     # TLS, so wait on C-ECHO alone and then check over HTTPS.
     daemon.get = lambda path, timeout=10: (200, {})
     daemon.start()
+    # The DICOM port answers first: wait until the HTTPS port takes
+    # connections too before the first request.
+    deadline = time.monotonic() + 30
+    while True:
+        try:
+            socket.create_connection(("127.0.0.1", daemon.http_port), timeout=1).close()
+            break
+        except OSError:
+            assert time.monotonic() < deadline, "the HTTPS port never took a connection"
+            time.sleep(0.1)
     # RFC 7235: a protected resource without credentials answers 401 with a
     # challenge naming the scheme.
     status, headers, _ = request(daemon.http_port, ca, "/api/v1/instances?limit=1")
