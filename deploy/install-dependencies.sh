@@ -18,6 +18,8 @@ packages=(
   libfreetype-dev fonts-dejavu-core fonts-liberation2 fonts-freefont-ttf
   # unit tests
   libcmocka-dev
+  # the code's layout, checked by tests/check-format.sh against .clang-format
+  clang-format
   # fuzzing (tests/fuzz/run.sh): clang with libFuzzer and its sanitizer runtimes
   clang libclang-rt-14-dev
   # run and operate: DCMTK tools (storescu, echoscu, img2dcm), sqlite3 CLI,

@@ -47,6 +47,9 @@ trap summary EXIT
 step "install dependencies" bash "$top/deploy/install-dependencies.sh" || true
 if [ "$failed" -ne 0 ]; then exit 1; fi
 
+# The layout of every C and C++ file, as .clang-format says.
+step "layout (tests/check-format.sh)" bash "$top/tests/check-format.sh"
+
 declare -A built=()
 for tree in build build-asan; do
   options=(-DMITILOG_SANITIZE=OFF)

@@ -9,8 +9,7 @@
 #include <string.h>
 #include <unistd.h>
 
-mitilog_status cli_identity_resolve(const char *user, cli_identity *identity,
-                                    mitilog_error *error)
+mitilog_status cli_identity_resolve(const char *user, cli_identity *identity, mitilog_error *error)
 {
     memset(identity, 0, sizeof *identity);
     if (user == NULL || user[0] == '\0' || geteuid() != 0)
@@ -20,11 +19,11 @@ mitilog_status cli_identity_resolve(const char *user, cli_identity *identity,
     if (entry == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "[service] user '%.60s' is not a known user; refusing to "
-                                 "run as root", user);
+                                 "run as root",
+                                 user);
     if (entry->pw_uid == 0)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "[service] user '%.60s' is root; name an unprivileged user",
-                                 user);
+                                 "[service] user '%.60s' is root; name an unprivileged user", user);
     identity->change = 1;
     identity->uid = entry->pw_uid;
     identity->gid = entry->pw_gid;
@@ -74,7 +73,9 @@ mitilog_status cli_identity_become(const cli_identity *identity, mitilog_error *
         return mitilog_error_set(error, MITILOG_ERROR_IO, "cannot become user %s: %s",
                                  identity->name, strerror(errno));
     if (setuid(0) == 0 || geteuid() == 0)
-        return mitilog_error_set(error, MITILOG_ERROR_IO, "root could be regained after "
-                                 "switching to %s", identity->name);
+        return mitilog_error_set(error, MITILOG_ERROR_IO,
+                                 "root could be regained after "
+                                 "switching to %s",
+                                 identity->name);
     return MITILOG_OK;
 }

@@ -12,7 +12,7 @@
 #include "util/status.h"
 
 typedef struct cli_identity {
-    int change;         /* 1: started as root with a user to become */
+    int change; /* 1: started as root with a user to become */
     uid_t uid;
     gid_t gid;
     char name[64];
@@ -20,8 +20,7 @@ typedef struct cli_identity {
 
 /* Decides what to become. user "" (or not root): change = 0. Root with
  * an unknown user: an error (the daemon must not stay root by mistake). */
-mitilog_status cli_identity_resolve(const char *user, cli_identity *identity,
-                                    mitilog_error *error);
+mitilog_status cli_identity_resolve(const char *user, cli_identity *identity, mitilog_error *error);
 
 /* chown -R (not following symbolic links) of path to the identity. */
 mitilog_status cli_identity_give(const cli_identity *identity, const char *path,

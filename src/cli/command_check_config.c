@@ -81,8 +81,7 @@ static int check_site(const char *path, const char *config_path, ext_site_rules 
 {
     mitilog_error error;
     if (config_site_load(path, rules, &error) != MITILOG_OK) {
-        fprintf(stderr, "mitilog: [site] rules = %s (in %s):\n%s\n", path, config_path,
-                error.text);
+        fprintf(stderr, "mitilog: [site] rules = %s (in %s):\n%s\n", path, config_path, error.text);
         return -1;
     }
     printf("\n; site rules %s: %zu exam types, %zu room names, %zu shifts, %zu SR codes\n",
@@ -174,9 +173,8 @@ static int check_http(const config *config)
     printf("\n; HTTP: %s://%s:%u/ %s, %s; at most %u connections, per address %s, "
            "%u s to send a request\n",
            https ? "https" : "http", config->http_address, config->http_port,
-           https ? "(TLS 1.2 and 1.3, forward-secret AEAD ciphers, HSTS)" : "(plain HTTP)",
-           login, config->http_max_connections, per_address,
-           config->http_request_timeout_seconds);
+           https ? "(TLS 1.2 and 1.3, forward-secret AEAD ciphers, HSTS)" : "(plain HTTP)", login,
+           config->http_max_connections, per_address, config->http_request_timeout_seconds);
     return status;
 }
 

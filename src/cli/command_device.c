@@ -34,7 +34,7 @@ enum { DEVICE_FRAMES_MAX = 64, DEVICE_REPORT_SIZE = 4096 };
 
 typedef struct device_frame {
     char *path;
-    unsigned char *file;    /* the frame as a PGM file, kept for the database */
+    unsigned char *file; /* the frame as a PGM file, kept for the database */
     size_t file_size;
     screen_example example; /* image.grey points into file */
     int from_header;        /* a DICOM file: truth holds its header values */
@@ -51,15 +51,11 @@ static void frame_free(device_frame *frame)
     memset(frame, 0, sizeof *frame);
 }
 
-static char *copy_or_null(const char *text)
-{
-    return text != NULL ? strdup(text) : NULL;
-}
+static char *copy_or_null(const char *text) { return text != NULL ? strdup(text) : NULL; }
 
 /* The first frame of a DICOM image, decoded by the shim, as a PGM file in
  * frame; the indices its header holds become the frame's truth. */
-static int frame_load_dicom(const char *path, device_frame *frame, char *why,
-                            size_t why_size)
+static int frame_load_dicom(const char *path, device_frame *frame, char *why, size_t why_size)
 {
     dcm_object *object = NULL;
     dcm_facts facts;
@@ -71,13 +67,15 @@ static int frame_load_dicom(const char *path, device_frame *frame, char *why,
     if (dcm_object_load(path, &object, &error) != MITILOG_OK ||
         dcm_object_facts(object, 0, &facts, &error) != MITILOG_OK ||
         dcm_object_frame(object, 0, &pixels, &error) != MITILOG_OK) {
-        snprintf(why, why_size, "%s is neither an 8-bit binary PGM file nor a DICOM image "
-                                "whose first frame decodes: %.300s", path, error.text);
+        snprintf(why, why_size,
+                 "%s is neither an 8-bit binary PGM file nor a DICOM image "
+                 "whose first frame decodes: %.300s",
+                 path, error.text);
         goto done;
     }
     char header[64];
-    int header_length = snprintf(header, sizeof header, "P5\n%d %d\n255\n", pixels.width,
-                                 pixels.height);
+    int header_length =
+        snprintf(header, sizeof header, "P5\n%d %d\n255\n", pixels.width, pixels.height);
     size_t size = (size_t)header_length + (size_t)pixels.width * (size_t)pixels.height;
     frame->file = malloc(size);
     frame->path = strdup(path);
@@ -86,10 +84,10 @@ static int frame_load_dicom(const char *path, device_frame *frame, char *why,
         goto done;
     }
     memcpy(frame->file, header, (size_t)header_length);
-    memcpy(frame->file + header_length, pixels.grey,
-           (size_t)pixels.width * (size_t)pixels.height);
+    memcpy(frame->file + header_length, pixels.grey, (size_t)pixels.width * (size_t)pixels.height);
     frame->file_size = size;
-    frame->example.image = (screen_image){.width = pixels.width, .height = pixels.height,
+    frame->example.image = (screen_image){.width = pixels.width,
+                                          .height = pixels.height,
                                           .stride = (size_t)pixels.width,
                                           .grey = frame->file + header_length};
     frame->from_header = 1;
@@ -97,8 +95,10 @@ static int frame_load_dicom(const char *path, device_frame *frame, char *why,
     frame->model_name = copy_or_null(facts.values[DCM_ATTRIBUTE_MANUFACTURER_MODEL_NAME]);
     frame->software_versions = copy_or_null(facts.values[DCM_ATTRIBUTE_SOFTWARE_VERSIONS]);
     static const int attributes[EXAM_INDEX_COUNT] = {
-        DCM_ATTRIBUTE_MECHANICAL_INDEX,        DCM_ATTRIBUTE_SOFT_TISSUE_THERMAL_INDEX,
-        DCM_ATTRIBUTE_BONE_THERMAL_INDEX,      DCM_ATTRIBUTE_CRANIAL_THERMAL_INDEX,
+        DCM_ATTRIBUTE_MECHANICAL_INDEX,
+        DCM_ATTRIBUTE_SOFT_TISSUE_THERMAL_INDEX,
+        DCM_ATTRIBUTE_BONE_THERMAL_INDEX,
+        DCM_ATTRIBUTE_CRANIAL_THERMAL_INDEX,
         DCM_ATTRIBUTE_SOFT_TISSUE_FOCUS_THERMAL_INDEX,
         DCM_ATTRIBUTE_SOFT_TISSUE_SURFACE_THERMAL_INDEX};
     for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
@@ -194,25 +194,22 @@ static int frame_load(const char *path, device_frame *frame, char *why, size_t w
         at = pgm_number(data, size, at, &maximum);
         at++; /* the one whitespace character before the pixels */
     }
-    if (width <= 0 || height <= 0 || maximum != 255 ||
-        at + (size_t)width * (size_t)height > size) {
+    if (width <= 0 || height <= 0 || maximum != 255 || at + (size_t)width * (size_t)height > size) {
         free(data);
-        snprintf(why, why_size,
-                 "%s is not an 8-bit binary PGM file (P5, maximum 255)", path);
+        snprintf(why, why_size, "%s is not an 8-bit binary PGM file (P5, maximum 255)", path);
         return -1;
     }
     frame->path = strdup(path);
     frame->file = data;
     frame->file_size = size;
-    frame->example.image = (screen_image){.width = (int)width, .height = (int)height,
-                                          .stride = (size_t)width, .grey = data + at};
+    frame->example.image = (screen_image){
+        .width = (int)width, .height = (int)height, .stride = (size_t)width, .grey = data + at};
     return frame->path != NULL ? 0 : -1;
 }
 
 static int index_by_label(const char *label)
 {
-    static const char *const names[EXAM_INDEX_COUNT] = {"MI", "TIS", "TIB", "TIC", "TISF",
-                                                       "TISS"};
+    static const char *const names[EXAM_INDEX_COUNT] = {"MI", "TIS", "TIB", "TIC", "TISF", "TISS"};
     for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
         if (strcasecmp(label, names[i]) == 0)
             return i;
@@ -243,7 +240,8 @@ static int parse_values(const char *text, screen_value truth[EXAM_INDEX_COUNT], 
             strchr(equals + 1, '.') == NULL || strlen(equals + 1) >= sizeof truth[0].text) {
             snprintf(why, why_size,
                      "'%s' is not INDEX=VALUE as drawn (MI, TIS, TIB, TIC, TISF, TISS; "
-                     "e.g. MI=1.2 or TIB=0.45)", item);
+                     "e.g. MI=1.2 or TIB=0.45)",
+                     item);
             result = -1;
             break;
         }
@@ -370,29 +368,27 @@ static int device_bench(const char *manifest)
 
 static int device_usage(FILE *out)
 {
-    fprintf(out,
-            "usage: mitilog device learn [--config FILE] --key KEY [--print]\n"
-            "                            [--manufacturer M] [--model M] [--software S]\n"
-            "                            [--value FILE:MI=1.2,TIS=0.4 ...] FILE...\n"
-            "       mitilog device show [--config FILE] KEY\n"
-            "       mitilog device list [--config FILE]\n"
-            "       mitilog device activate [--config FILE] [--version N] [--by NAME] KEY\n"
-            "       mitilog device retire [--config FILE] KEY\n"
-            "       mitilog device bench MANIFEST\n"
-            "Sets up the screen profiles of devices that draw the indices into the image\n"
-            "(docs/screen-reading.md). A FILE is a DICOM image (its first frame; the\n"
-            "indices in its header are its values and its Manufacturer, Model Name and\n"
-            "Software Versions name the device) or an 8-bit binary PGM file. --value\n"
-            "gives the values a frame's screen shows (replacing its header's). learn\n"
-            "needs every digit and the point among the values; the profile it stores is\n"
-            "'proposed' until activated.\n");
+    fprintf(out, "usage: mitilog device learn [--config FILE] --key KEY [--print]\n"
+                 "                            [--manufacturer M] [--model M] [--software S]\n"
+                 "                            [--value FILE:MI=1.2,TIS=0.4 ...] FILE...\n"
+                 "       mitilog device show [--config FILE] KEY\n"
+                 "       mitilog device list [--config FILE]\n"
+                 "       mitilog device activate [--config FILE] [--version N] [--by NAME] KEY\n"
+                 "       mitilog device retire [--config FILE] KEY\n"
+                 "       mitilog device bench MANIFEST\n"
+                 "Sets up the screen profiles of devices that draw the indices into the image\n"
+                 "(docs/screen-reading.md). A FILE is a DICOM image (its first frame; the\n"
+                 "indices in its header are its values and its Manufacturer, Model Name and\n"
+                 "Software Versions name the device) or an 8-bit binary PGM file. --value\n"
+                 "gives the values a frame's screen shows (replacing its header's). learn\n"
+                 "needs every digit and the point among the values; the profile it stores is\n"
+                 "'proposed' until activated.\n");
     return out == stdout ? EXIT_STATUS_SUCCESS : EXIT_STATUS_USAGE;
 }
 
 static int device_learn(int argc, char **argv, store **st_out, const char *config_path)
 {
-    const char *key = NULL, *manufacturer = NULL, *model_name = NULL,
-               *software_versions = NULL;
+    const char *key = NULL, *manufacturer = NULL, *model_name = NULL, *software_versions = NULL;
     int print_only = 0;
     device_frame frames[DEVICE_FRAMES_MAX];
     const char *values_for[DEVICE_FRAMES_MAX] = {0};
@@ -412,8 +408,7 @@ static int device_learn(int argc, char **argv, store **st_out, const char *confi
             software_versions = argv[++i];
         else if (strcmp(argv[i], "--config") == 0 && i + 1 < argc)
             i++;
-        else if (strcmp(argv[i], "--value") == 0 && i + 1 < argc &&
-                 value_count < DEVICE_FRAMES_MAX)
+        else if (strcmp(argv[i], "--value") == 0 && i + 1 < argc && value_count < DEVICE_FRAMES_MAX)
             value_options[value_count++] = argv[++i];
         else if (argv[i][0] != '-' && frame_count < DEVICE_FRAMES_MAX) {
             char why[512];
@@ -450,23 +445,27 @@ static int device_learn(int argc, char **argv, store **st_out, const char *confi
         }
         values_for[f] = colon + 1;
     }
-    screen_device device = {.manufacturer = manufacturer, .model_name = model_name,
+    screen_device device = {.manufacturer = manufacturer,
+                            .model_name = model_name,
                             .software_versions = software_versions};
     for (size_t f = 0; f < frame_count; f++) {
         int header_values = 0;
         for (int i = 0; i < EXAM_INDEX_COUNT; i++)
             header_values |= frames[f].example.truth[i].status == SCREEN_VALUE_READ;
         if (values_for[f] == NULL && !(frames[f].from_header && header_values)) {
-            fprintf(stderr, "mitilog device learn: no values for %s%s: give --value "
-                            "%s:MI=1.2,TIS=0.4 as its screen shows them\n",
+            fprintf(stderr,
+                    "mitilog device learn: no values for %s%s: give --value "
+                    "%s:MI=1.2,TIS=0.4 as its screen shows them\n",
                     frames[f].path, frames[f].from_header ? " (its header has none)" : "",
                     frames[f].path);
             goto done;
         }
         /* The device as its DICOM files name it, unless given. */
         if (frames[f].from_header) {
-            if (device.manufacturer == NULL) device.manufacturer = frames[f].manufacturer;
-            if (device.model_name == NULL) device.model_name = frames[f].model_name;
+            if (device.manufacturer == NULL)
+                device.manufacturer = frames[f].manufacturer;
+            if (device.model_name == NULL)
+                device.model_name = frames[f].model_name;
             if (device.software_versions == NULL)
                 device.software_versions = frames[f].software_versions;
         }
@@ -500,17 +499,20 @@ static int device_learn(int argc, char **argv, store **st_out, const char *confi
         if (cli_load_config(config_path, &config) != 0) {
             exit_status = EXIT_STATUS_USAGE;
         } else if (cli_prepare_data_directory(&config, &error) != 0 ||
-                   store_open(config.database_path, (int)config.busy_timeout_ms, &st,
-                              &error) != MITILOG_OK) {
+                   store_open(config.database_path, (int)config.busy_timeout_ms, &st, &error) !=
+                       MITILOG_OK) {
             fprintf(stderr, "mitilog device learn: %s\n", error.text);
         } else {
-            store_screen_profile_new row = {
-                .key = key, .manufacturer = device.manufacturer,
-                .model_name = device.model_name,
-                .software_versions = device.software_versions,
-                .rows = examples[0].image.height,
-                .columns = examples[0].image.width, .text = text, .report = report,
-                .example = frames[0].file, .example_size = frames[0].file_size};
+            store_screen_profile_new row = {.key = key,
+                                            .manufacturer = device.manufacturer,
+                                            .model_name = device.model_name,
+                                            .software_versions = device.software_versions,
+                                            .rows = examples[0].image.height,
+                                            .columns = examples[0].image.width,
+                                            .text = text,
+                                            .report = report,
+                                            .example = frames[0].file,
+                                            .example_size = frames[0].file_size};
             if (store_screen_profile_put(st, &row, &version, &error) != MITILOG_OK) {
                 fprintf(stderr, "mitilog device learn: %s\n", error.text);
             } else {
@@ -581,8 +583,7 @@ int command_device(int argc, char **argv)
     mitilog_error error = {{0}};
     store *st = NULL;
     if (cli_prepare_data_directory(&config, &error) != 0 ||
-        store_open(config.database_path, (int)config.busy_timeout_ms, &st, &error) !=
-            MITILOG_OK) {
+        store_open(config.database_path, (int)config.busy_timeout_ms, &st, &error) != MITILOG_OK) {
         /* the reason is printed below */
     } else if (strcmp(action, "list") == 0) {
         char *json = NULL;

@@ -17,8 +17,7 @@ static int write_pnm(const char *path, const dcm_frame *frame, int colour)
         return -1;
     size_t pixels = (size_t)frame->width * (size_t)frame->height;
     fprintf(out, "P%c\n%d %d\n255\n", colour ? '6' : '5', frame->width, frame->height);
-    int written = fwrite(colour ? frame->rgb : frame->grey, colour ? 3 : 1, pixels, out) ==
-                  pixels;
+    int written = fwrite(colour ? frame->rgb : frame->grey, colour ? 3 : 1, pixels, out) == pixels;
     return fclose(out) == 0 && written ? 0 : -1;
 }
 

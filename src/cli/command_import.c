@@ -31,9 +31,9 @@ typedef struct import_queue {
     pthread_cond_t changed;
     char *paths[IMPORT_QUEUE_SIZE];
     size_t head, count;
-    int closed;                     /* the walk is over */
+    int closed; /* the walk is over */
     ingest *pipeline;
-    import_totals totals;           /* under lock */
+    import_totals totals; /* under lock */
 } import_queue;
 
 static void import_count(import_queue *queue, ingest_outcome outcome)
@@ -121,8 +121,7 @@ static void import_walk(import_queue *queue, const char *folder)
             log_warning("import: %s cannot be read", entry->fts_path);
             import_count(queue, INGEST_OUTCOME_REJECTED);
             break;
-        default: /* folders (before and after), links, cycles */
-            break;
+        default: /* folders (before and after), links, cycles */ break;
         }
     }
     fts_close(walk);
@@ -138,12 +137,13 @@ static unsigned import_default_jobs(void)
 
 static void print_import_usage(FILE *out)
 {
-    fprintf(out, "usage: mitilog import [--config FILE] [--jobs N] PATH...\n"
-                 "Reads DICOM files, and folders recursively, into the database. Prints one\n"
-                 "summary line. Exit status: 0 all stored, 1 something was rejected or could\n"
-                 "not be stored (reasons on stderr and in the rejections table), 2 usage\n"
-                 "(also a PATH that does not exist).\n"
-                 "  --jobs N   files read at once, 1-%d (default: two per processor, at most 8)\n",
+    fprintf(out,
+            "usage: mitilog import [--config FILE] [--jobs N] PATH...\n"
+            "Reads DICOM files, and folders recursively, into the database. Prints one\n"
+            "summary line. Exit status: 0 all stored, 1 something was rejected or could\n"
+            "not be stored (reasons on stderr and in the rejections table), 2 usage\n"
+            "(also a PATH that does not exist).\n"
+            "  --jobs N   files read at once, 1-%d (default: two per processor, at most 8)\n",
             IMPORT_JOBS_MAX);
 }
 

@@ -63,8 +63,7 @@ static void print_record(const ext_record *r)
     modes_line("modes", r->modes, "union");
     snprintf(buffer, sizeof buffer, "image_type value 4 (%s%s%04X)",
              r->image_type_bitmap_status == EXT_BITMAP_OK ? "" : "not a bitmap",
-             r->image_type_bitmap_status == EXT_BITMAP_OK ? "" : ", raw ",
-             r->image_type_bitmap);
+             r->image_type_bitmap_status == EXT_BITMAP_OK ? "" : ", raw ", r->image_type_bitmap);
     modes_line("modes.image_type", r->modes_image_type, buffer);
     modes_line("modes.region_data_type", r->modes_regions, "(0018,6014)");
     modes_line("modes.sr_container", r->modes_sr, "sr_codes");
@@ -79,8 +78,7 @@ static void print_record(const ext_record *r)
     line("cine_seconds", r->cine_seconds > 0 ? buffer : NULL, NULL);
     line("exam_type", r->exam_type, r->exam_type_source);
     line("exam_type_label", r->exam_type_label, NULL);
-    line("governing_index",
-         r->has_governing_index ? exam_index_name(r->governing_index) : NULL,
+    line("governing_index", r->has_governing_index ? exam_index_name(r->governing_index) : NULL,
          r->governing_index_source);
     snprintf(buffer, sizeof buffer, "%.2f", r->gestational_age_weeks);
     line("gestational_age_weeks", r->has_gestational_age ? buffer : NULL,

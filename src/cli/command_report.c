@@ -13,22 +13,23 @@
 
 static void print_report_usage(FILE *out)
 {
-    fprintf(out,
-            "usage: mitilog report week [YYYY-Www] [--group room|preset|shift|transducer|exam_type]\n"
-            "                      [--baseline-weeks N] [--minimum N] [--all-exams]\n"
-            "                      [--format html|csv|json] [--output FILE] [--config FILE]\n"
-            "       mitilog report stats [--from YYYY-MM-DD] [--to YYYY-MM-DD]\n"
-            "                      [--by exam_type|room|preset|shift|transducer]\n"
-            "                      [--format csv|json|html] [--output FILE] [--config FILE]\n"
-            "\n"
-            "week: the weekly outlier list of an ISO week (default: the latest week held),\n"
-            "against a trailing baseline per exam type (default 12 weeks, 20 exams).\n"
-            "stats: count, median, P75, P95 of each exam's governing index and MI, share of\n"
-            "exams with findings and estimated time above thresholds, per exam type; as html a\n"
-            "printable document with charts, the [site] institution and a sign-off block.\n"
-            "Both state the period, policy version, data completeness and the caution.\n"
-            "Default format: html for week, csv for stats. Exit status: 0 written, 1 failed,\n"
-            "2 usage.\n");
+    fprintf(
+        out,
+        "usage: mitilog report week [YYYY-Www] [--group room|preset|shift|transducer|exam_type]\n"
+        "                      [--baseline-weeks N] [--minimum N] [--all-exams]\n"
+        "                      [--format html|csv|json] [--output FILE] [--config FILE]\n"
+        "       mitilog report stats [--from YYYY-MM-DD] [--to YYYY-MM-DD]\n"
+        "                      [--by exam_type|room|preset|shift|transducer]\n"
+        "                      [--format csv|json|html] [--output FILE] [--config FILE]\n"
+        "\n"
+        "week: the weekly outlier list of an ISO week (default: the latest week held),\n"
+        "against a trailing baseline per exam type (default 12 weeks, 20 exams).\n"
+        "stats: count, median, P75, P95 of each exam's governing index and MI, share of\n"
+        "exams with findings and estimated time above thresholds, per exam type; as html a\n"
+        "printable document with charts, the [site] institution and a sign-off block.\n"
+        "Both state the period, policy version, data completeness and the caution.\n"
+        "Default format: html for week, csv for stats. Exit status: 0 written, 1 failed,\n"
+        "2 usage.\n");
 }
 
 /* A decimal integer in [minimum, maximum]. */
@@ -120,8 +121,8 @@ int command_report(int argc, char **argv)
     store *store = NULL;
     char *document = NULL;
     int status = EXIT_STATUS_FAILURE;
-    mitilog_status result = store_open(config.database_path, (int)config.busy_timeout_ms, &store,
-                                       &error);
+    mitilog_status result =
+        store_open(config.database_path, (int)config.busy_timeout_ms, &store, &error);
     if (config.site_institution != NULL && config.site_institution[0] != '\0')
         stats.institution = config.site_institution;
     if (result == MITILOG_OK)

@@ -27,18 +27,17 @@ static int rescore_is_date(const char *text, long *day)
 
 static void print_rescore_usage(FILE *out)
 {
-    fprintf(out,
-            "usage: mitilog rescore [--config FILE] [--from YYYY-MM-DD] [--to YYYY-MM-DD]\n"
-            "                       [--read-pixels]\n"
-            "--read-pixels first reads again the indices drawn in the pixels of the\n"
-            "ultrasound images and cines of the period whose object is still at hand\n"
-            "(retention full, or an imported file still where it was imported from)\n"
-            "and whose device has an active screen profile (docs/reading.md).\n"
-            "Re-evaluates the stored exams whose first acquisition falls in the period\n"
-            "(inclusive; open when not given) under the current policy ([rules] policy),\n"
-            "and rule output_not_reported for each day of the period. Findings of other\n"
-            "policy versions are kept, marked superseded. Idempotent. Prints one line:\n"
-            "exams evaluated, findings written, findings superseded.\n");
+    fprintf(out, "usage: mitilog rescore [--config FILE] [--from YYYY-MM-DD] [--to YYYY-MM-DD]\n"
+                 "                       [--read-pixels]\n"
+                 "--read-pixels first reads again the indices drawn in the pixels of the\n"
+                 "ultrasound images and cines of the period whose object is still at hand\n"
+                 "(retention full, or an imported file still where it was imported from)\n"
+                 "and whose device has an active screen profile (docs/reading.md).\n"
+                 "Re-evaluates the stored exams whose first acquisition falls in the period\n"
+                 "(inclusive; open when not given) under the current policy ([rules] policy),\n"
+                 "and rule output_not_reported for each day of the period. Findings of other\n"
+                 "policy versions are kept, marked superseded. Idempotent. Prints one line:\n"
+                 "exams evaluated, findings written, findings superseded.\n");
 }
 
 int command_rescore(int argc, char **argv)
@@ -127,13 +126,11 @@ int command_rescore(int argc, char **argv)
                read.queued, read.not_kept, read.no_profile, read.queue_full);
     }
     if (ingest_register_policy(st, policy, &error) != MITILOG_OK ||
-        store_list(st, STORE_LIST_EXAMS_IN_PERIOD, from, to, &items, &count, &error) !=
-            MITILOG_OK)
+        store_list(st, STORE_LIST_EXAMS_IN_PERIOD, from, to, &items, &count, &error) != MITILOG_OK)
         goto failed;
     double now = ingest_clock_now();
     for (size_t i = 0; i < count; i++)
-        if (ingest_evaluate_study(st, &rules, policy, items[i], now, &exams, &error) !=
-            MITILOG_OK)
+        if (ingest_evaluate_study(st, &rules, policy, items[i], now, &exams, &error) != MITILOG_OK)
             goto failed;
     store_texts_free(items, count);
     items = NULL;

@@ -20,12 +20,11 @@
 
 static void print_serve_usage(FILE *out)
 {
-    fprintf(out,
-            "usage: mitilog serve [--config FILE]\n"
-            "Receives DICOM objects (C-STORE, C-ECHO) and serves the HTTP API and\n"
-            "dashboard. Without --config the built-in defaults are used (see\n"
-            "conf/mitilog.ini). Stops cleanly on SIGTERM or SIGINT: no new\n"
-            "associations, objects in flight are answered, the database is closed.\n");
+    fprintf(out, "usage: mitilog serve [--config FILE]\n"
+                 "Receives DICOM objects (C-STORE, C-ECHO) and serves the HTTP API and\n"
+                 "dashboard. Without --config the built-in defaults are used (see\n"
+                 "conf/mitilog.ini). Stops cleanly on SIGTERM or SIGINT: no new\n"
+                 "associations, objects in flight are answered, the database is closed.\n");
 }
 
 /* Holds everything serve starts, so one function can stop it in order. */
@@ -116,19 +115,19 @@ static int serve_start(serve_state *state, mitilog_error *error)
             MITILOG_OK ||
         dcm_server_start(state->dicom, error) != MITILOG_OK)
         return -1;
-    http_settings web = {
-        .address = config->http_address,
-        .port = config->http_port,
-        .web_root = config->web_root,
-        .tls_certificate_file = config->http_tls_certificate,
-        .tls_private_key_file = config->http_tls_private_key,
-        .password_file = config->http_password_file,
-        .max_connections = config->http_max_connections,
-        .max_connections_per_address = config->http_max_connections_per_address != 0
-                                           ? config->http_max_connections_per_address
-                                           : HTTP_SETTINGS_UNLIMITED,
-        .request_timeout_seconds = config->http_request_timeout_seconds,
-        .institution = config->site_institution};
+    http_settings web = {.address = config->http_address,
+                         .port = config->http_port,
+                         .web_root = config->web_root,
+                         .tls_certificate_file = config->http_tls_certificate,
+                         .tls_private_key_file = config->http_tls_private_key,
+                         .password_file = config->http_password_file,
+                         .max_connections = config->http_max_connections,
+                         .max_connections_per_address =
+                             config->http_max_connections_per_address != 0
+                                 ? config->http_max_connections_per_address
+                                 : HTTP_SETTINGS_UNLIMITED,
+                         .request_timeout_seconds = config->http_request_timeout_seconds,
+                         .institution = config->site_institution};
     if (http_server_start(&web, state->store, &state->http, error) != MITILOG_OK)
         return -1;
     /* Both ports are bound: root is no longer needed. */
@@ -162,8 +161,8 @@ static void serve_reload_policy(serve_state *state)
     }
     char version[65];
     store_active_policy_version(state->store, version);
-    log_info("SIGHUP: policy %s reloaded: version %s (other settings are read at start only)",
-             path, version);
+    log_info("SIGHUP: policy %s reloaded: version %s (other settings are read at start only)", path,
+             version);
 }
 
 int command_serve(int argc, char **argv)
@@ -210,8 +209,7 @@ int command_serve(int argc, char **argv)
              MITILOG_VERSION, state.config.ae_title, state.config.port,
              state.config.dicom_tls_certificate[0] != '\0' ? ", TLS" : "",
              state.config.http_tls_certificate[0] != '\0' ? "https" : "http",
-             state.config.http_address,
-             state.config.http_port,
+             state.config.http_address, state.config.http_port,
              state.config.http_password_file[0] != '\0' ? " (login required)" : "",
              state.config.database_path);
     for (;;) {

@@ -18,50 +18,48 @@
 
 static void simulate_usage(FILE *out)
 {
-    fprintf(out,
-        "usage: mitilog simulate --out DIR [--days N] [--seed S]\n"
-        "                        [--start YYYY-MM-DD] [--site N]\n"
-        "                        [--matrix COLUMNSxROWS | --screens [--compress]]\n"
-        "       mitilog simulate --send HOST:PORT [--out DIR] [--days N]\n"
-        "                        [--seed S] [--start YYYY-MM-DD] [--aet AE]\n"
-        "                        [--called-aet AE] [--speed X] [--screens]\n"
-        "                        [--compress]\n"
-        "\n"
-        "Writes an invented ultrasound department's DICOM files (US images,\n"
-        "cine loops, acoustic output SRs) to DIR/<date>/<study>/<n>.dcm plus\n"
-        "DIR/manifest.csv (the simulator's ground truth: planted problems).\n"
-        "The same seed gives byte-identical files.\n"
-        "\n"
-        "  --out DIR         output directory (created; required unless --send)\n"
-        "  --days N          days to simulate, 1-366 (default 28)\n"
-        "  --seed S          random seed, unsigned 64-bit (default 1)\n"
-        "  --start DATE      first day (default 2026-11-02, a Monday)\n"
-        "  --site N          site 1-9 (default 1): N > 1 appends -N to the\n"
-        "                    rooms' station names, AE titles and serials;\n"
-        "                    other seeds over the same days at other sites\n"
-        "                    make a bigger department\n"
-        "  --matrix CxR      pixel matrix of single frames, 2x2 to 2048x2048\n"
-        "                    (cine frames: half each way); default 32x24,\n"
-        "                    tiny; e.g. 640x480 gives objects of realistic size\n"
-        "  --screens         each room's scanner has its own identity and matrix\n"
-        "                    and burns MI/TI into the pixels (fonts from\n"
-        "                    Debian's font packages); US-ROOM-4 writes no\n"
-        "                    indices into the header; manifest.csv gets the\n"
-        "                    text and pixel box of every index drawn\n"
-        "  --compress        with --screens: scanners that compress write their\n"
-        "                    images as JPEG baseline, JPEG-LS or RLE\n"
-        "  --send HOST:PORT  stream the studies with storescu in time order\n"
-        "  --aet AE          calling AE title (default: each room's own)\n"
-        "  --called-aet AE   called AE title (default MITILOG)\n"
-        "  --speed X         simulated time runs X times real time\n"
-        "                    (default 0 = as fast as possible)\n"
-        "  --help            this text\n");
+    fprintf(out, "usage: mitilog simulate --out DIR [--days N] [--seed S]\n"
+                 "                        [--start YYYY-MM-DD] [--site N]\n"
+                 "                        [--matrix COLUMNSxROWS | --screens [--compress]]\n"
+                 "       mitilog simulate --send HOST:PORT [--out DIR] [--days N]\n"
+                 "                        [--seed S] [--start YYYY-MM-DD] [--aet AE]\n"
+                 "                        [--called-aet AE] [--speed X] [--screens]\n"
+                 "                        [--compress]\n"
+                 "\n"
+                 "Writes an invented ultrasound department's DICOM files (US images,\n"
+                 "cine loops, acoustic output SRs) to DIR/<date>/<study>/<n>.dcm plus\n"
+                 "DIR/manifest.csv (the simulator's ground truth: planted problems).\n"
+                 "The same seed gives byte-identical files.\n"
+                 "\n"
+                 "  --out DIR         output directory (created; required unless --send)\n"
+                 "  --days N          days to simulate, 1-366 (default 28)\n"
+                 "  --seed S          random seed, unsigned 64-bit (default 1)\n"
+                 "  --start DATE      first day (default 2026-11-02, a Monday)\n"
+                 "  --site N          site 1-9 (default 1): N > 1 appends -N to the\n"
+                 "                    rooms' station names, AE titles and serials;\n"
+                 "                    other seeds over the same days at other sites\n"
+                 "                    make a bigger department\n"
+                 "  --matrix CxR      pixel matrix of single frames, 2x2 to 2048x2048\n"
+                 "                    (cine frames: half each way); default 32x24,\n"
+                 "                    tiny; e.g. 640x480 gives objects of realistic size\n"
+                 "  --screens         each room's scanner has its own identity and matrix\n"
+                 "                    and burns MI/TI into the pixels (fonts from\n"
+                 "                    Debian's font packages); US-ROOM-4 writes no\n"
+                 "                    indices into the header; manifest.csv gets the\n"
+                 "                    text and pixel box of every index drawn\n"
+                 "  --compress        with --screens: scanners that compress write their\n"
+                 "                    images as JPEG baseline, JPEG-LS or RLE\n"
+                 "  --send HOST:PORT  stream the studies with storescu in time order\n"
+                 "  --aet AE          calling AE title (default: each room's own)\n"
+                 "  --called-aet AE   called AE title (default MITILOG)\n"
+                 "  --speed X         simulated time runs X times real time\n"
+                 "                    (default 0 = as fast as possible)\n"
+                 "  --help            this text\n");
 }
 
 static int simulate_bad(const char *message, const char *value)
 {
-    fprintf(stderr, "mitilog simulate: %s%s%s\n", message,
-            value ? ": " : "", value ? value : "");
+    fprintf(stderr, "mitilog simulate: %s%s%s\n", message, value ? ": " : "", value ? value : "");
     fprintf(stderr, "try 'mitilog simulate --help'\n");
     return EXIT_STATUS_USAGE;
 }
@@ -110,9 +108,7 @@ int command_simulate(int argc, char **argv)
         if (c == -1)
             break;
         switch (c) {
-        case 'o':
-            options.out_directory = optarg;
-            break;
+        case 'o': options.out_directory = optarg; break;
         case 'd': {
             errno = 0;
             long days = strtol(optarg, &end, 10);
@@ -135,8 +131,7 @@ int command_simulate(int argc, char **argv)
             break;
         case 'n': {
             const char *colon = strrchr(optarg, ':');
-            if (colon == NULL || colon == optarg
-                || (size_t)(colon - optarg) >= sizeof host)
+            if (colon == NULL || colon == optarg || (size_t)(colon - optarg) >= sizeof host)
                 return simulate_bad("--send must be HOST:PORT", optarg);
             errno = 0;
             unsigned long port = strtoul(colon + 1, &end, 10);
@@ -176,25 +171,17 @@ int command_simulate(int argc, char **argv)
             options.matrix_rows = rows;
             break;
         }
-        case 'P':
-            options.screens = 1;
-            break;
-        case 'C':
-            options.compress = 1;
-            break;
+        case 'P': options.screens = 1; break;
+        case 'C': options.compress = 1; break;
         case 'x':
             errno = 0;
             options.speed = strtod(optarg, &end);
             if (errno != 0 || *end != '\0' || !(options.speed >= 0.0))
                 return simulate_bad("--speed must be >= 0", optarg);
             break;
-        case 'h':
-            simulate_usage(stdout);
-            return EXIT_STATUS_SUCCESS;
-        case ':':
-            return simulate_bad("missing value for", argv[optind - 1]);
-        default:
-            return simulate_bad("unknown option", argv[optind - 1]);
+        case 'h': simulate_usage(stdout); return EXIT_STATUS_SUCCESS;
+        case ':': return simulate_bad("missing value for", argv[optind - 1]);
+        default: return simulate_bad("unknown option", argv[optind - 1]);
         }
     }
     if (optind < argc)
@@ -203,10 +190,12 @@ int command_simulate(int argc, char **argv)
         return simulate_bad("--out DIR is required", NULL);
     if (options.screens && options.matrix_columns > 0)
         return simulate_bad("--matrix cannot be combined with --screens "
-                            "(each scanner has its own matrix)", NULL);
+                            "(each scanner has its own matrix)",
+                            NULL);
     if (options.compress && !options.screens)
         return simulate_bad("--compress needs --screens (only the screen "
-                            "scanners compress)", NULL);
+                            "scanners compress)",
+                            NULL);
 
     char temporary[64] = "";
     if (options.out_directory == NULL) {
@@ -214,8 +203,7 @@ int command_simulate(int argc, char **argv)
         snprintf(temporary, sizeof temporary, "%s/mitilog-sim-XXXXXX",
                  tmp != NULL && strlen(tmp) < 40 ? tmp : "/tmp");
         if (mkdtemp(temporary) == NULL) {
-            fprintf(stderr, "mitilog simulate: mkdtemp: %s\n",
-                    strerror(errno));
+            fprintf(stderr, "mitilog simulate: mkdtemp: %s\n", strerror(errno));
             return EXIT_STATUS_FAILURE;
         }
         options.out_directory = temporary;
@@ -236,10 +224,8 @@ int command_simulate(int argc, char **argv)
         sim_run_free(&run);
         return EXIT_STATUS_FAILURE;
     }
-    printf("wrote %zu file(s), %zu stud%s (%llu bytes) to %s in %.1f s\n",
-           run.file_count, run.study_count,
-           run.study_count == 1 ? "y" : "ies", run.bytes,
-           options.out_directory,
+    printf("wrote %zu file(s), %zu stud%s (%llu bytes) to %s in %.1f s\n", run.file_count,
+           run.study_count, run.study_count == 1 ? "y" : "ies", run.bytes, options.out_directory,
            (double)(t1.tv_sec - t0.tv_sec) + (t1.tv_nsec - t0.tv_nsec) / 1e9);
     fflush(stdout);
     int exit_status = EXIT_STATUS_SUCCESS;

@@ -20,10 +20,6 @@ int command_header(int argc, char **argv);
 int command_frame(int argc, char **argv);
 int command_device(int argc, char **argv);
 
-enum {
-    EXIT_STATUS_SUCCESS = 0,
-    EXIT_STATUS_FAILURE = 1,
-    EXIT_STATUS_USAGE = 2
-};
+enum { EXIT_STATUS_SUCCESS = 0, EXIT_STATUS_FAILURE = 1, EXIT_STATUS_USAGE = 2 };
 
 #endif

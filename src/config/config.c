@@ -24,10 +24,10 @@ typedef struct option {
     option_type type;
     size_t offset;
     const char *default_value;
-    unsigned long minimum;      /* OPTION_UNSIGNED */
+    unsigned long minimum; /* OPTION_UNSIGNED */
     unsigned long maximum;
-    const char *choices;        /* OPTION_CHOICE: "|a|b|c|" */
-    int is_path;                /* resolved against the config's folder */
+    const char *choices; /* OPTION_CHOICE: "|a|b|c|" */
+    int is_path;         /* resolved against the config's folder */
     const char *description;
 } option;
 
@@ -38,23 +38,24 @@ static const option options[] = {
      "Called AE title this Storage SCP answers to (1-16 characters)."},
     {"dicom", "port", OPTION_UNSIGNED, FIELD(port), "11112", 1, 65535, NULL, 0,
      "TCP port of the Storage SCP. DCMTK 3.6.7 listens on every interface."},
-    {"dicom", "allowed_calling_ae_titles", OPTION_STRING, FIELD(allowed_calling_ae_titles), "", 0, 0,
-     NULL, 0, "Comma-separated calling AE titles, each optionally AE@IPv4; empty accepts any."},
+    {"dicom", "allowed_calling_ae_titles", OPTION_STRING, FIELD(allowed_calling_ae_titles), "", 0,
+     0, NULL, 0, "Comma-separated calling AE titles, each optionally AE@IPv4; empty accepts any."},
     {"dicom", "max_associations", OPTION_UNSIGNED, FIELD(max_associations), "16", 1, 256, NULL, 0,
      "Concurrent associations; further ones are refused (local limit exceeded)."},
     {"dicom", "max_negotiations", OPTION_UNSIGNED, FIELD(max_negotiations), "128", 1, 1024, NULL, 0,
      "Connections still negotiating (TLS handshake, association request) at once; further ones "
      "are closed unread."},
-    {"dicom", "max_negotiations_per_address", OPTION_UNSIGNED,
-     FIELD(max_negotiations_per_address), "8", 1, 1024, NULL, 0,
+    {"dicom", "max_negotiations_per_address", OPTION_UNSIGNED, FIELD(max_negotiations_per_address),
+     "8", 1, 1024, NULL, 0,
      "Connections from one IP address still negotiating at once; further ones are closed unread."},
-    {"dicom", "acse_timeout_seconds", OPTION_UNSIGNED, FIELD(acse_timeout_seconds), "5", 1, 600, NULL,
-     0, "Total time from connection to complete association request (TLS handshake included); "
+    {"dicom", "acse_timeout_seconds", OPTION_UNSIGNED, FIELD(acse_timeout_seconds), "5", 1, 600,
+     NULL, 0,
+     "Total time from connection to complete association request (TLS handshake included); "
      "then the connection is closed."},
     {"dicom", "dimse_timeout_seconds", OPTION_UNSIGNED, FIELD(dimse_timeout_seconds), "60", 1, 3600,
      NULL, 0, "Idle time allowed between DIMSE messages within an association."},
-    {"dicom", "max_pdu_bytes", OPTION_UNSIGNED, FIELD(max_pdu_bytes), "65536", 4096, 131072, NULL, 0,
-     "Largest PDU this receiver accepts."},
+    {"dicom", "max_pdu_bytes", OPTION_UNSIGNED, FIELD(max_pdu_bytes), "65536", 4096, 131072, NULL,
+     0, "Largest PDU this receiver accepts."},
     {"dicom", "max_object_bytes", OPTION_UNSIGNED, FIELD(max_object_bytes), "2147483648", 0,
      4294967295UL, NULL, 0,
      "Largest object accepted (data set bytes received); past it the rest is discarded as it "
@@ -68,8 +69,9 @@ static const option options[] = {
      "TCP."},
     {"dicom", "tls_private_key", OPTION_STRING, FIELD(dicom_tls_private_key), "", 0, 0, NULL, 1,
      "PEM private key matching tls_certificate (unencrypted; keep it mode 0640)."},
-    {"dicom", "tls_ca_certificates", OPTION_STRING, FIELD(dicom_tls_ca_certificates), "", 0, 0, NULL,
-     1, "PEM CA certificate(s); non-empty: senders must present a certificate signed by one."},
+    {"dicom", "tls_ca_certificates", OPTION_STRING, FIELD(dicom_tls_ca_certificates), "", 0, 0,
+     NULL, 1,
+     "PEM CA certificate(s); non-empty: senders must present a certificate signed by one."},
     {"http", "address", OPTION_STRING, FIELD(http_address), "127.0.0.1", 0, 0, NULL, 0,
      "IPv4 address of the HTTP API and dashboard."},
     {"http", "port", OPTION_UNSIGNED, FIELD(http_port), "8080", 1, 65535, NULL, 0,
@@ -98,17 +100,18 @@ static const option options[] = {
      "Seconds a client has to send a whole request (TLS handshake, request line and headers), "
      "however slowly it sends each byte; then the connection is closed."},
     {"storage", "data_directory", OPTION_STRING, FIELD(data_directory), "var", 0, 0, NULL, 1,
-     "Folder for the database, quarantine/, objects/ (full copies) and reading/ (objects waiting to be read)."},
+     "Folder for the database, quarantine/, objects/ (full copies) and reading/ (objects waiting "
+     "to be read)."},
     {"storage", "database", OPTION_STRING, FIELD(database_path), "mitilog.sqlite3", 0, 0, NULL, 0,
      "SQLite database file; relative to data_directory."},
-    {"storage", "retention", OPTION_CHOICE, FIELD(retention), "header", 0, 0, "|none|header|full|", 0,
-     "What is kept of each object: none, header (pixel data dropped) or full."},
+    {"storage", "retention", OPTION_CHOICE, FIELD(retention), "header", 0, 0, "|none|header|full|",
+     0, "What is kept of each object: none, header (pixel data dropped) or full."},
     {"storage", "durability", OPTION_CHOICE, FIELD(durability), "power_loss", 0, 0,
      "|power_loss|process|", 0,
      "power_loss: each commit is synced before Success is sent; process: survives the daemon "
      "being killed, not a power loss (faster on slow disks)."},
-    {"storage", "busy_timeout_ms", OPTION_UNSIGNED, FIELD(busy_timeout_ms), "5000", 0, 600000, NULL, 0,
-     "How long a write waits for a locked database before answering A700."},
+    {"storage", "busy_timeout_ms", OPTION_UNSIGNED, FIELD(busy_timeout_ms), "5000", 0, 600000, NULL,
+     0, "How long a write waits for a locked database before answering A700."},
     {"storage", "sr_depth_limit", OPTION_UNSIGNED, FIELD(sr_depth_limit), "64", 1, 1024, NULL, 0,
      "Levels of an SR content tree read; deeper items are skipped (and logged)."},
     {"storage", "quarantine_max_bytes", OPTION_UNSIGNED, FIELD(quarantine_max_bytes), "1073741824",
@@ -138,8 +141,9 @@ static const option options[] = {
     {"site", "institution", OPTION_STRING, FIELD(site_institution), "", 0, 0, NULL, 0,
      "Name of the institution printed on the statistics document and reports; empty: the "
      "documents say it is not configured."},
-    {"rules", "policy", OPTION_STRING, FIELD(rules_policy_path), MITILOG_SOURCE_DIR "/conf/policy.ini",
-     0, 0, NULL, 1, "ALARA policy file: rules, limits and their sources (docs/policy.md)."},
+    {"rules", "policy", OPTION_STRING, FIELD(rules_policy_path),
+     MITILOG_SOURCE_DIR "/conf/policy.ini", 0, 0, NULL, 1,
+     "ALARA policy file: rules, limits and their sources (docs/policy.md)."},
     {"service", "user", OPTION_STRING, FIELD(service_user), "", 0, 0, NULL, 0,
      "Started as root: after binding, switch to this user (and its groups); empty: stay."},
     {"log", "level", OPTION_CHOICE, FIELD(log_level), "info", 0, 0, "|debug|info|warning|error|", 0,
@@ -156,9 +160,9 @@ typedef struct load_state {
     mitilog_error *error;
     int lines[sizeof options / sizeof options[0]]; /* where each key was set */
     FILE *file;
-    int line_number;        /* line of the text inih is looking at */
-    int previous_complete;  /* the last chunk read ended a line */
-    int error_line;         /* line of the first bad key, 0 if none */
+    int line_number;       /* line of the text inih is looking at */
+    int previous_complete; /* the last chunk read ended a line */
+    int error_line;        /* line of the first bad key, 0 if none */
 } load_state;
 
 /* Debian's inih does not pass line numbers to handlers, so the reader
@@ -208,7 +212,8 @@ static int option_assign(config *config, const option *option, const char *value
     if (option->type == OPTION_CHOICE) {
         char needle[64];
         snprintf(needle, sizeof needle, "|%s|", value);
-        if (value[0] == '\0' || strchr(value, '|') != NULL || strstr(option->choices, needle) == NULL) {
+        if (value[0] == '\0' || strchr(value, '|') != NULL ||
+            strstr(option->choices, needle) == NULL) {
             /* "|none|header|full|" reads "none, header or full" */
             char allowed[256];
             size_t used = 0;
@@ -218,7 +223,10 @@ static int option_assign(config *config, const option *option, const char *value
                 size_t length = end != NULL ? (size_t)(end - choice) : strlen(choice);
                 int last = end == NULL || end[1] == '\0';
                 int n = snprintf(allowed + used, sizeof allowed - used, "%s%.*s",
-                                 used == 0 ? "" : last ? " or " : ", ", (int)length, choice);
+                                 used == 0 ? ""
+                                 : last    ? " or "
+                                           : ", ",
+                                 (int)length, choice);
                 if (n < 0 || (size_t)n >= sizeof allowed - used)
                     break;
                 used += (size_t)n;
@@ -329,11 +337,11 @@ static void config_report(load_state *state, int line, const char *section, cons
         state->error_line = line;
     state->status = MITILOG_ERROR_INVALID;
     if (line > 0)
-        mitilog_error_append(state->error, state->status, "%s:%d: [%s] %s: %s", state->path,
-                             line, section, key, reason);
+        mitilog_error_append(state->error, state->status, "%s:%d: [%s] %s: %s", state->path, line,
+                             section, key, reason);
     else
-        mitilog_error_append(state->error, state->status, "%s: [%s] %s (default): %s",
-                             state->path, section, key, reason);
+        mitilog_error_append(state->error, state->status, "%s: [%s] %s (default): %s", state->path,
+                             section, key, reason);
 }
 
 /* Every problem of the file is reported, each on its own line. */
@@ -425,8 +433,8 @@ mitilog_status config_load(const char *path, config *config, mitilog_error *erro
     FILE *file = fopen(path, "r");
     if (file == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_IO, "%s: %s", path, strerror(errno));
-    load_state state = {config, path, config_parent_directory(path), MITILOG_OK, error, {0},
-                        file, 0, 1, 0};
+    load_state state = {
+        config, path, config_parent_directory(path), MITILOG_OK, error, {0}, file, 0, 1, 0};
     if (state.base_directory == NULL) {
         fclose(file);
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");

@@ -20,21 +20,21 @@ extern "C" {
 #endif
 
 typedef struct config {
-    char *source_path;             /* the file loaded, or "(defaults)" */
+    char *source_path; /* the file loaded, or "(defaults)" */
 
     /* [dicom] */
     char *ae_title;
     unsigned port;
     char *allowed_calling_ae_titles; /* "AE[@address], ..." or "" = any */
     unsigned max_associations;
-    unsigned max_negotiations;     /* connections not yet associated */
+    unsigned max_negotiations; /* connections not yet associated */
     unsigned max_negotiations_per_address;
     unsigned acse_timeout_seconds;
     unsigned dimse_timeout_seconds;
     unsigned max_pdu_bytes;
-    unsigned max_object_bytes;     /* 0 = no limit */
+    unsigned max_object_bytes;           /* 0 = no limit */
     unsigned max_memory_in_flight_bytes; /* all objects in memory; 0 = none */
-    char *dicom_tls_certificate;   /* "" = plain TCP */
+    char *dicom_tls_certificate;         /* "" = plain TCP */
     char *dicom_tls_private_key;
     char *dicom_tls_ca_certificates; /* non-empty: client certificates required */
 
@@ -43,49 +43,48 @@ typedef struct config {
     unsigned http_port;
     char *web_root;
     char *http_allow_insecure_non_loopback; /* "yes" or "no" */
-    char *http_tls_certificate;    /* PEM; "" = plain HTTP */
-    char *http_tls_private_key;    /* PEM */
-    char *http_password_file;      /* "user:crypt-hash" lines; "" = no login */
+    char *http_tls_certificate;             /* PEM; "" = plain HTTP */
+    char *http_tls_private_key;             /* PEM */
+    char *http_password_file;               /* "user:crypt-hash" lines; "" = no login */
     unsigned http_max_connections;
     unsigned http_max_connections_per_address; /* 0 = no per-address limit */
     unsigned http_request_timeout_seconds;
 
     /* [storage] */
     char *data_directory;
-    char *database_path;           /* default: data_directory/mitilog.sqlite3 */
-    char *retention;               /* "none", "header" or "full" */
-    char *durability;              /* "power_loss" or "process" */
+    char *database_path; /* default: data_directory/mitilog.sqlite3 */
+    char *retention;     /* "none", "header" or "full" */
+    char *durability;    /* "power_loss" or "process" */
     unsigned busy_timeout_ms;
     unsigned sr_depth_limit;       /* SR content tree levels read */
     unsigned quarantine_max_bytes; /* quarantine/ quota; oldest removed */
     unsigned quarantine_max_files;
 
     /* [reading] the pixel reader's queue (src/ingest/ingest_reading.c) */
-    unsigned reading_workers;      /* threads reading frames */
-    unsigned reading_queue_objects; /* objects waiting at most */
+    unsigned reading_workers;         /* threads reading frames */
+    unsigned reading_queue_objects;   /* objects waiting at most */
     unsigned reading_queue_megabytes; /* their spooled bytes at most */
-    unsigned reading_cine_frames;  /* frames of a cine read and compared */
+    unsigned reading_cine_frames;     /* frames of a cine read and compared */
 
     /* [site] */
-    char *site_rules_path;         /* the site file (conf/site.ini); "" = none */
-    char *site_institution;        /* name printed on reports; "" = not set */
+    char *site_rules_path;  /* the site file (conf/site.ini); "" = none */
+    char *site_institution; /* name printed on reports; "" = not set */
 
     /* [rules] */
-    char *rules_policy_path;       /* the ALARA policy file (conf/policy.ini) */
+    char *rules_policy_path; /* the ALARA policy file (conf/policy.ini) */
 
     /* [service] */
-    char *service_user;            /* "" = keep the starting user */
+    char *service_user; /* "" = keep the starting user */
 
     /* [log] */
-    char *log_level;               /* debug, info, warning, error */
+    char *log_level; /* debug, info, warning, error */
 } config;
 
 /* Fills config with the built-in defaults. */
 mitilog_status config_set_defaults(config *config, mitilog_error *error);
 
 /* Defaults, then the file. */
-mitilog_status config_load(const char *path, config *config,
-                           mitilog_error *error);
+mitilog_status config_load(const char *path, config *config, mitilog_error *error);
 
 /* Writes the effective configuration as a valid INI file. */
 void config_print(const config *config, FILE *out);

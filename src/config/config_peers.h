@@ -12,7 +12,7 @@
 
 typedef struct config_peer {
     char ae_title[17];
-    char address[16];        /* "" = any source address */
+    char address[16]; /* "" = any source address */
 } config_peer;
 
 /* An empty list gives *count == 0 and *peers == NULL (anyone allowed). */

@@ -9,8 +9,15 @@
 #include <strings.h>
 
 typedef enum site_section {
-    SECTION_NONE, SECTION_EXAM_TYPE, SECTION_ROOMS, SECTION_ROOMS_BY_AE, SECTION_SHIFT,
-    SECTION_AGE_GROUPS, SECTION_EXTRACTION, SECTION_SR_CODES, SECTION_TIMELINE,
+    SECTION_NONE,
+    SECTION_EXAM_TYPE,
+    SECTION_ROOMS,
+    SECTION_ROOMS_BY_AE,
+    SECTION_SHIFT,
+    SECTION_AGE_GROUPS,
+    SECTION_EXTRACTION,
+    SECTION_SR_CODES,
+    SECTION_TIMELINE,
     SECTION_REFUSED /* its header was reported: its keys are skipped */
 } site_section;
 
@@ -25,7 +32,7 @@ typedef struct site_state {
     site_section section;
     ext_exam_type *exam_type;
     ext_shift *shift;
-    int fields[EXT_FIELD_COUNT];   /* the exam type's "fields", in order */
+    int fields[EXT_FIELD_COUNT]; /* the exam type's "fields", in order */
     size_t field_count;
 } site_state;
 
@@ -80,10 +87,9 @@ static int parse_unsigned(const char *value, unsigned long low, unsigned long hi
  * match_body_part_examined / match_image_type_3. */
 static void set_all_fields(site_state *state)
 {
-    static const int text_fields[] = {
-        EXT_FIELD_STUDY_DESCRIPTION, EXT_FIELD_PROTOCOL_NAME,
-        EXT_FIELD_PERFORMED_PROCEDURE_STEP_DESCRIPTION, EXT_FIELD_PROCEDURE_CODE,
-        EXT_FIELD_SERIES_DESCRIPTION};
+    static const int text_fields[] = {EXT_FIELD_STUDY_DESCRIPTION, EXT_FIELD_PROTOCOL_NAME,
+                                      EXT_FIELD_PERFORMED_PROCEDURE_STEP_DESCRIPTION,
+                                      EXT_FIELD_PROCEDURE_CODE, EXT_FIELD_SERIES_DESCRIPTION};
     for (size_t i = 0; i < sizeof text_fields / sizeof text_fields[0]; i++)
         state->fields[i] = text_fields[i];
     state->field_count = sizeof text_fields / sizeof text_fields[0];
@@ -133,13 +139,16 @@ static int set_fields(site_state *state, const char *value)
     snprintf(copy, sizeof copy, "%s", value);
     state->field_count = 0;
     char *saved = NULL;
-    for (char *item = strtok_r(copy, ", ", &saved); item != NULL; item = strtok_r(NULL, ", ", &saved)) {
+    for (char *item = strtok_r(copy, ", ", &saved); item != NULL;
+         item = strtok_r(NULL, ", ", &saved)) {
         int field = ext_field_from_name(item);
         if (field < 0 || state->field_count == EXT_FIELD_COUNT) {
             char reason[300];
-            snprintf(reason, sizeof reason, "'%.60s' is not one of study_description, "
+            snprintf(reason, sizeof reason,
+                     "'%.60s' is not one of study_description, "
                      "protocol_name, performed_procedure_step_description, procedure_code, "
-                     "body_part_examined, image_type_3, series_description", item);
+                     "body_part_examined, image_type_3, series_description",
+                     item);
             return site_fail(state, "fields", reason);
         }
         state->fields[state->field_count++] = field;
@@ -161,9 +170,12 @@ static int exam_type_entry(site_state *state, const char *key, const char *value
         free(type->label);
         type->label = copy;
     } else if (strcmp(key, "governing_index") == 0) {
-        if (strcasecmp(value, "TIS") == 0) type->governing = EXAM_GOVERNING_TIS;
-        else if (strcasecmp(value, "TIB") == 0) type->governing = EXAM_GOVERNING_TIB;
-        else if (strcasecmp(value, "TIC") == 0) type->governing = EXAM_GOVERNING_TIC;
+        if (strcasecmp(value, "TIS") == 0)
+            type->governing = EXAM_GOVERNING_TIS;
+        else if (strcasecmp(value, "TIB") == 0)
+            type->governing = EXAM_GOVERNING_TIB;
+        else if (strcasecmp(value, "TIC") == 0)
+            type->governing = EXAM_GOVERNING_TIC;
         else if (strcasecmp(value, "by_gestation") == 0) {
             type->governing = EXAM_GOVERNING_BY_GESTATION;
             type->obstetric = 1;
@@ -184,8 +196,9 @@ static int exam_type_entry(site_state *state, const char *key, const char *value
     } else if (strcmp(key, "group") == 0) {
         exam_group group;
         if (exam_group_parse(value, &group) != 0)
-            return site_fail(state, key, "not general, obstetric, neonatal, transcranial, "
-                                         "ophthalmic or contrast");
+            return site_fail(state, key,
+                             "not general, obstetric, neonatal, transcranial, "
+                             "ophthalmic or contrast");
         type->group = group;
         type->has_group = 1;
     } else if (strcmp(key, "fields") == 0) {
@@ -239,8 +252,9 @@ static int other_entry(site_state *state, const char *key, const char *value)
         else if (strcmp(key, "child_max_years") == 0 && parse_unsigned(value, 0, 30, &number) == 0)
             state->rules->child_max_years = (unsigned)number;
         else
-            return site_fail(state, key, "unknown key, or not a whole number in range "
-                                         "(neonate_max_days 0-365, child_max_years 0-30)");
+            return site_fail(state, key,
+                             "unknown key, or not a whole number in range "
+                             "(neonate_max_days 0-365, child_max_years 0-30)");
         return 1;
     case SECTION_EXTRACTION:
         if (strcmp(key, "preset_attribute") == 0) {
@@ -281,8 +295,7 @@ static int other_entry(site_state *state, const char *key, const char *value)
         else
             return site_fail(state, key, "unknown key, or not 1-86400 (gap_cap_seconds)");
         return 1;
-    default:
-        return site_fail(state, key, "entry outside a known section");
+    default: return site_fail(state, key, "entry outside a known section");
     }
 }
 

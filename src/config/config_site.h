@@ -16,7 +16,6 @@
 #include "util/status.h"
 
 /* Built-in defaults, then the file; path NULL or "" = defaults only. */
-mitilog_status config_site_load(const char *path, ext_site_rules *rules,
-                                mitilog_error *error);
+mitilog_status config_site_load(const char *path, ext_site_rules *rules, mitilog_error *error);
 
 #endif

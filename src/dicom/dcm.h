@@ -43,69 +43,69 @@ mitilog_status dcm_initialise(int log_level, mitilog_error *error);
 /* The attributes extraction needs, as (keyword, group, element). Values
  * are taken from the top-level dataset; the transfer syntax comes from the
  * file meta information. */
-#define DCM_ATTRIBUTE_LIST(X)                                              \
-    X(SPECIFIC_CHARACTER_SET, 0x0008, 0x0005)                              \
-    X(IMAGE_TYPE, 0x0008, 0x0008)                                          \
-    X(INSTANCE_CREATION_DATE, 0x0008, 0x0012)                              \
-    X(INSTANCE_CREATION_TIME, 0x0008, 0x0013)                              \
-    X(SOP_CLASS_UID, 0x0008, 0x0016)                                       \
-    X(SOP_INSTANCE_UID, 0x0008, 0x0018)                                    \
-    X(STUDY_DATE, 0x0008, 0x0020)                                          \
-    X(ACQUISITION_DATE, 0x0008, 0x0022)                                    \
-    X(CONTENT_DATE, 0x0008, 0x0023)                                        \
-    X(ACQUISITION_DATE_TIME, 0x0008, 0x002A)                               \
-    X(STUDY_TIME, 0x0008, 0x0030)                                          \
-    X(ACQUISITION_TIME, 0x0008, 0x0032)                                    \
-    X(CONTENT_TIME, 0x0008, 0x0033)                                        \
-    X(ACCESSION_NUMBER, 0x0008, 0x0050)                                    \
-    X(MODALITY, 0x0008, 0x0060)                                            \
-    X(MANUFACTURER, 0x0008, 0x0070)                                        \
-    X(INSTITUTION_NAME, 0x0008, 0x0080)                                    \
-    X(TIMEZONE_OFFSET_FROM_UTC, 0x0008, 0x0201)                            \
-    X(STATION_NAME, 0x0008, 0x1010)                                        \
-    X(STUDY_DESCRIPTION, 0x0008, 0x1030)                                   \
-    X(SERIES_DESCRIPTION, 0x0008, 0x103E)                                  \
-    X(INSTITUTIONAL_DEPARTMENT_NAME, 0x0008, 0x1040)                       \
-    X(OPERATORS_NAME, 0x0008, 0x1070)                                      \
-    X(MANUFACTURER_MODEL_NAME, 0x0008, 0x1090)                             \
-    X(PATIENT_ID, 0x0010, 0x0020)                                          \
-    X(PATIENT_BIRTH_DATE, 0x0010, 0x0030)                                  \
-    X(PATIENT_AGE, 0x0010, 0x1010)                                         \
-    X(BODY_PART_EXAMINED, 0x0018, 0x0015)                                  \
-    X(SOFTWARE_VERSIONS, 0x0018, 0x1020)                                   \
-    X(FRAME_TIME, 0x0018, 0x1063)                                          \
-    X(FRAME_TIME_VECTOR, 0x0018, 0x1065)                                   \
-    X(PROTOCOL_NAME, 0x0018, 0x1030)                                       \
-    X(TRANSDUCER_DATA, 0x0018, 0x5010)                                     \
-    X(MECHANICAL_INDEX, 0x0018, 0x5022)                                    \
-    X(BONE_THERMAL_INDEX, 0x0018, 0x5024)                                  \
-    X(CRANIAL_THERMAL_INDEX, 0x0018, 0x5026)                               \
-    X(SOFT_TISSUE_THERMAL_INDEX, 0x0018, 0x5027)                           \
-    X(SOFT_TISSUE_FOCUS_THERMAL_INDEX, 0x0018, 0x5028)                     \
-    X(SOFT_TISSUE_SURFACE_THERMAL_INDEX, 0x0018, 0x5029)                   \
-    X(TRANSDUCER_TYPE, 0x0018, 0x6031)                                     \
-    X(STUDY_INSTANCE_UID, 0x0020, 0x000D)                                  \
-    X(SERIES_INSTANCE_UID, 0x0020, 0x000E)                                 \
-    X(INSTANCE_NUMBER, 0x0020, 0x0013)                                     \
-    X(NUMBER_OF_FRAMES, 0x0028, 0x0008)                                    \
-    X(ROWS, 0x0028, 0x0010)                                                \
-    X(COLUMNS, 0x0028, 0x0011)                                             \
+#define DCM_ATTRIBUTE_LIST(X)                                                                      \
+    X(SPECIFIC_CHARACTER_SET, 0x0008, 0x0005)                                                      \
+    X(IMAGE_TYPE, 0x0008, 0x0008)                                                                  \
+    X(INSTANCE_CREATION_DATE, 0x0008, 0x0012)                                                      \
+    X(INSTANCE_CREATION_TIME, 0x0008, 0x0013)                                                      \
+    X(SOP_CLASS_UID, 0x0008, 0x0016)                                                               \
+    X(SOP_INSTANCE_UID, 0x0008, 0x0018)                                                            \
+    X(STUDY_DATE, 0x0008, 0x0020)                                                                  \
+    X(ACQUISITION_DATE, 0x0008, 0x0022)                                                            \
+    X(CONTENT_DATE, 0x0008, 0x0023)                                                                \
+    X(ACQUISITION_DATE_TIME, 0x0008, 0x002A)                                                       \
+    X(STUDY_TIME, 0x0008, 0x0030)                                                                  \
+    X(ACQUISITION_TIME, 0x0008, 0x0032)                                                            \
+    X(CONTENT_TIME, 0x0008, 0x0033)                                                                \
+    X(ACCESSION_NUMBER, 0x0008, 0x0050)                                                            \
+    X(MODALITY, 0x0008, 0x0060)                                                                    \
+    X(MANUFACTURER, 0x0008, 0x0070)                                                                \
+    X(INSTITUTION_NAME, 0x0008, 0x0080)                                                            \
+    X(TIMEZONE_OFFSET_FROM_UTC, 0x0008, 0x0201)                                                    \
+    X(STATION_NAME, 0x0008, 0x1010)                                                                \
+    X(STUDY_DESCRIPTION, 0x0008, 0x1030)                                                           \
+    X(SERIES_DESCRIPTION, 0x0008, 0x103E)                                                          \
+    X(INSTITUTIONAL_DEPARTMENT_NAME, 0x0008, 0x1040)                                               \
+    X(OPERATORS_NAME, 0x0008, 0x1070)                                                              \
+    X(MANUFACTURER_MODEL_NAME, 0x0008, 0x1090)                                                     \
+    X(PATIENT_ID, 0x0010, 0x0020)                                                                  \
+    X(PATIENT_BIRTH_DATE, 0x0010, 0x0030)                                                          \
+    X(PATIENT_AGE, 0x0010, 0x1010)                                                                 \
+    X(BODY_PART_EXAMINED, 0x0018, 0x0015)                                                          \
+    X(SOFTWARE_VERSIONS, 0x0018, 0x1020)                                                           \
+    X(FRAME_TIME, 0x0018, 0x1063)                                                                  \
+    X(FRAME_TIME_VECTOR, 0x0018, 0x1065)                                                           \
+    X(PROTOCOL_NAME, 0x0018, 0x1030)                                                               \
+    X(TRANSDUCER_DATA, 0x0018, 0x5010)                                                             \
+    X(MECHANICAL_INDEX, 0x0018, 0x5022)                                                            \
+    X(BONE_THERMAL_INDEX, 0x0018, 0x5024)                                                          \
+    X(CRANIAL_THERMAL_INDEX, 0x0018, 0x5026)                                                       \
+    X(SOFT_TISSUE_THERMAL_INDEX, 0x0018, 0x5027)                                                   \
+    X(SOFT_TISSUE_FOCUS_THERMAL_INDEX, 0x0018, 0x5028)                                             \
+    X(SOFT_TISSUE_SURFACE_THERMAL_INDEX, 0x0018, 0x5029)                                           \
+    X(TRANSDUCER_TYPE, 0x0018, 0x6031)                                                             \
+    X(STUDY_INSTANCE_UID, 0x0020, 0x000D)                                                          \
+    X(SERIES_INSTANCE_UID, 0x0020, 0x000E)                                                         \
+    X(INSTANCE_NUMBER, 0x0020, 0x0013)                                                             \
+    X(NUMBER_OF_FRAMES, 0x0028, 0x0008)                                                            \
+    X(ROWS, 0x0028, 0x0010)                                                                        \
+    X(COLUMNS, 0x0028, 0x0011)                                                                     \
     X(PERFORMED_PROCEDURE_STEP_DESCRIPTION, 0x0040, 0x0254)
 
 typedef enum dcm_attribute {
 #define DCM_ATTRIBUTE_ENUM(name, group, element) DCM_ATTRIBUTE_##name,
     DCM_ATTRIBUTE_LIST(DCM_ATTRIBUTE_ENUM)
 #undef DCM_ATTRIBUTE_ENUM
-    DCM_ATTRIBUTE_COUNT
+        DCM_ATTRIBUTE_COUNT
 } dcm_attribute;
 
 /* One item of Sequence of Ultrasound Regions (0018,6011). Binary values
  * with a presence flag each. */
 typedef struct dcm_region {
     int has_region_data_type;
-    uint16_t region_data_type;          /* (0018,6014) US */
+    uint16_t region_data_type; /* (0018,6014) US */
     int has_transducer_frequency;
-    uint32_t transducer_frequency_khz;  /* (0018,6030) UL, kHz */
+    uint32_t transducer_frequency_khz; /* (0018,6030) UL, kHz */
     int has_pulse_repetition_frequency;
     uint32_t pulse_repetition_frequency_hz; /* (0018,6032) UL, Hz */
 } dcm_region;
@@ -113,22 +113,22 @@ typedef struct dcm_region {
 /* One content item of a structured report, in document order (depth-first
  * pre-order). Strings are heap copies, never NULL ("" when absent). */
 typedef struct dcm_sr_item {
-    unsigned depth;              /* root container is 0 */
-    unsigned long node_id;       /* DCMTK's node id: unique in the document */
-    char *position;              /* "1.2.3" style position in the tree */
-    char *value_type;            /* "CONTAINER", "NUM", "CODE", "TEXT", ... */
-    char *relationship;          /* "CONTAINS", "HAS PROPERTIES", ... or "" */
-    char *concept_scheme;        /* concept name: coding scheme designator */
-    char *concept_code;          /* concept name: code value */
-    char *concept_meaning;       /* concept name: code meaning */
-    char *numeric_value;         /* NUM: the DS string as sent */
-    char *unit_scheme;           /* NUM: measurement units code */
+    unsigned depth;        /* root container is 0 */
+    unsigned long node_id; /* DCMTK's node id: unique in the document */
+    char *position;        /* "1.2.3" style position in the tree */
+    char *value_type;      /* "CONTAINER", "NUM", "CODE", "TEXT", ... */
+    char *relationship;    /* "CONTAINS", "HAS PROPERTIES", ... or "" */
+    char *concept_scheme;  /* concept name: coding scheme designator */
+    char *concept_code;    /* concept name: code value */
+    char *concept_meaning; /* concept name: code meaning */
+    char *numeric_value;   /* NUM: the DS string as sent */
+    char *unit_scheme;     /* NUM: measurement units code */
     char *unit_code;
     char *unit_meaning;
-    char *code_scheme;           /* CODE: the coded value */
+    char *code_scheme; /* CODE: the coded value */
     char *code_value;
     char *code_meaning;
-    char *text_value;            /* TEXT / other string values */
+    char *text_value; /* TEXT / other string values */
 } dcm_sr_item;
 
 /* Plain facts read from one object. values[a] is the raw attribute value
@@ -141,10 +141,10 @@ typedef struct dcm_facts {
     int character_set_converted; /* 1 if values were converted to UTF-8 */
     size_t region_count;
     dcm_region *regions;
-    int is_structured_report;    /* SOP class is an SR storage class */
+    int is_structured_report; /* SOP class is an SR storage class */
     size_t sr_item_count;
     dcm_sr_item *sr_items;
-    int sr_truncated;            /* SR deeper than the limit: rest skipped */
+    int sr_truncated; /* SR deeper than the limit: rest skipped */
 } dcm_facts;
 
 typedef struct dcm_object dcm_object;
@@ -155,13 +155,12 @@ typedef struct dcm_object dcm_object;
  * that does not repeat the path (the caller names the file): not DICOM
  * (and whether it looks like text), or truncated at byte N of the M its
  * elements need, naming the element larger than the rest of the file. */
-mitilog_status dcm_object_load(const char *path, dcm_object **out,
-                               mitilog_error *error);
+mitilog_status dcm_object_load(const char *path, dcm_object **out, mitilog_error *error);
 void dcm_object_free(dcm_object *object);
 
 /* Fills facts (zeroed first). sr_depth_limit bounds the SR walk. */
-mitilog_status dcm_object_facts(dcm_object *object, unsigned sr_depth_limit,
-                                dcm_facts *facts, mitilog_error *error);
+mitilog_status dcm_object_facts(dcm_object *object, unsigned sr_depth_limit, dcm_facts *facts,
+                                mitilog_error *error);
 void dcm_facts_free(dcm_facts *facts);
 
 /* The object without its pixel data (and without other bulk data over
@@ -173,8 +172,8 @@ void dcm_facts_free(dcm_facts *facts);
  * copy is written by DCMTK instead, and the bulk data is then removed from
  * the loaded object itself: read its facts first; afterwards it is good
  * for nothing but another header copy and dcm_object_free(). */
-mitilog_status dcm_object_header_bytes(dcm_object *object, unsigned char **bytes,
-                                       size_t *size, mitilog_error *error);
+mitilog_status dcm_object_header_bytes(dcm_object *object, unsigned char **bytes, size_t *size,
+                                       mitilog_error *error);
 
 /* ------------------------------------------------------------------ */
 /* Frames (dcm_frame.cc)                                               */
@@ -190,7 +189,7 @@ mitilog_status dcm_object_header_bytes(dcm_object *object, unsigned char **bytes
 typedef struct dcm_frame {
     int width;
     int height;
-    size_t frame_count;          /* frames in the object (1 for single) */
+    size_t frame_count; /* frames in the object (1 for single) */
     unsigned char *grey;
     unsigned char *rgb;
 } dcm_frame;
@@ -205,8 +204,8 @@ typedef struct dcm_frame {
  * photometric interpretation, a frame that does not decode);
  * MITILOG_ERROR_MEMORY when out of memory. frame_count is set whenever
  * the object has pixel data, also when the frame itself fails. */
-mitilog_status dcm_object_frame(dcm_object *object, size_t index,
-                                dcm_frame *frame, mitilog_error *error);
+mitilog_status dcm_object_frame(dcm_object *object, size_t index, dcm_frame *frame,
+                                mitilog_error *error);
 void dcm_frame_free(dcm_frame *frame);
 
 /* ------------------------------------------------------------------ */
@@ -246,20 +245,19 @@ typedef struct dcm_received {
 
 /* Called on the association's own thread, possibly on several threads at
  * once. Returns the DIMSE status to answer with (DCM_STATUS_*). */
-typedef uint16_t (*dcm_store_handler)(void *context,
-                                      const dcm_received *object);
+typedef uint16_t (*dcm_store_handler)(void *context, const dcm_received *object);
 
 typedef struct dcm_allowed_peer {
-    const char *ae_title;        /* calling AE title */
-    const char *address;         /* NULL or "" = any source address */
+    const char *ae_title; /* calling AE title */
+    const char *address;  /* NULL or "" = any source address */
 } dcm_allowed_peer;
 
 typedef struct dcm_server_settings {
-    const char *ae_title;              /* our AE title (called AE enforced) */
+    const char *ae_title; /* our AE title (called AE enforced) */
     unsigned port;
     const dcm_allowed_peer *allowed_peers; /* NULL = accept any caller */
     size_t allowed_peer_count;
-    unsigned max_associations;         /* concurrent; extra are refused */
+    unsigned max_associations; /* concurrent; extra are refused */
     /* Connections still negotiating (TLS handshake and A-ASSOCIATE-RQ not
      * yet complete), over all addresses and from one address; a further
      * connection is closed at once. 0 = 128 and 8. */
@@ -270,11 +268,11 @@ typedef struct dcm_server_settings {
      * closed whatever it still sends. */
     unsigned acse_timeout_seconds;
     unsigned dimse_timeout_seconds;
-    uint32_t max_pdu;                  /* receive PDU size in bytes */
+    uint32_t max_pdu; /* receive PDU size in bytes */
     /* TLS: all NULL = plain TCP. */
     const char *tls_certificate_file;
     const char *tls_private_key_file;
-    const char *tls_ca_file;           /* non-NULL: require client certs */
+    const char *tls_ca_file; /* non-NULL: require client certs */
     /* Objects larger than this (data set bytes as received) are answered
      * DCM_STATUS_TOO_LARGE: as soon as the limit is passed the rest of the
      * object is read and discarded, so an association never holds more
@@ -293,9 +291,8 @@ typedef struct dcm_server_settings {
 typedef struct dcm_server dcm_server;
 
 /* Copies the settings. Does not bind yet. */
-mitilog_status dcm_server_create(const dcm_server_settings *settings,
-                                 dcm_store_handler handler, void *context,
-                                 dcm_server **out, mitilog_error *error);
+mitilog_status dcm_server_create(const dcm_server_settings *settings, dcm_store_handler handler,
+                                 void *context, dcm_server **out, mitilog_error *error);
 /* Binds the port and starts the listener thread; returns once listening
  * (an error if the port cannot be bound). */
 mitilog_status dcm_server_start(dcm_server *server, mitilog_error *error);
@@ -324,29 +321,23 @@ void dcm_builder_free(dcm_builder *builder);
 /* Puts a string-valued attribute (any string VR, DS, IS, UI, DA, TM...)
  * into the current item (top level, or the innermost open sequence item).
  * The VR comes from the data dictionary. */
-mitilog_status dcm_builder_put_string(dcm_builder *builder, uint16_t group,
-                                      uint16_t element, const char *value,
-                                      mitilog_error *error);
+mitilog_status dcm_builder_put_string(dcm_builder *builder, uint16_t group, uint16_t element,
+                                      const char *value, mitilog_error *error);
 /* US / UL / SS / SL valued attributes. */
-mitilog_status dcm_builder_put_unsigned(dcm_builder *builder, uint16_t group,
-                                        uint16_t element, uint32_t value,
-                                        mitilog_error *error);
-mitilog_status dcm_builder_put_signed(dcm_builder *builder, uint16_t group,
-                                      uint16_t element, int32_t value,
-                                      mitilog_error *error);
+mitilog_status dcm_builder_put_unsigned(dcm_builder *builder, uint16_t group, uint16_t element,
+                                        uint32_t value, mitilog_error *error);
+mitilog_status dcm_builder_put_signed(dcm_builder *builder, uint16_t group, uint16_t element,
+                                      int32_t value, mitilog_error *error);
 /* FD / FL valued attributes. */
-mitilog_status dcm_builder_put_float(dcm_builder *builder, uint16_t group,
-                                     uint16_t element, double value,
-                                     mitilog_error *error);
+mitilog_status dcm_builder_put_float(dcm_builder *builder, uint16_t group, uint16_t element,
+                                     double value, mitilog_error *error);
 /* Opens a new item in sequence (group,element) of the current item (the
  * sequence is created on first use); nested calls nest. */
-mitilog_status dcm_builder_begin_item(dcm_builder *builder, uint16_t group,
-                                      uint16_t element, mitilog_error *error);
-mitilog_status dcm_builder_end_item(dcm_builder *builder,
-                                    mitilog_error *error);
+mitilog_status dcm_builder_begin_item(dcm_builder *builder, uint16_t group, uint16_t element,
+                                      mitilog_error *error);
+mitilog_status dcm_builder_end_item(dcm_builder *builder, mitilog_error *error);
 /* Pixel Data (7FE0,0010) as OB/OW from the given bytes (copied). */
-mitilog_status dcm_builder_put_pixels(dcm_builder *builder,
-                                      const uint8_t *bytes, size_t size,
+mitilog_status dcm_builder_put_pixels(dcm_builder *builder, const uint8_t *bytes, size_t size,
                                       mitilog_error *error);
 /* Writes a Part 10 file with a meta header in the given transfer syntax
  * (UID string; NULL = Explicit VR Little Endian). Besides the native
@@ -355,8 +346,7 @@ mitilog_status dcm_builder_put_pixels(dcm_builder *builder,
  * YBR_FULL_422), JPEG-LS lossless 1.2.840.10008.1.2.4.80 and RLE lossless
  * 1.2.840.10008.1.2.5. The SOP Instance UID is kept either way. */
 mitilog_status dcm_builder_save(dcm_builder *builder, const char *path,
-                                const char *transfer_syntax_uid,
-                                mitilog_error *error);
+                                const char *transfer_syntax_uid, mitilog_error *error);
 
 /* ------------------------------------------------------------------ */
 /* Building structured reports (the simulator)                         */
@@ -368,20 +358,20 @@ mitilog_status dcm_builder_save(dcm_builder *builder, const char *path,
  * where not used. */
 typedef struct dcm_sr_build_item {
     unsigned depth;
-    const char *value_type;      /* "CONTAINER", "NUM", "CODE", "TEXT" */
-    const char *relationship;    /* "CONTAINS", "HAS PROPERTIES", ...;
+    const char *value_type;     /* "CONTAINER", "NUM", "CODE", "TEXT" */
+    const char *relationship;   /* "CONTAINS", "HAS PROPERTIES", ...;
                                   * ignored for the root */
-    const char *concept_scheme;  /* concept name code triple */
+    const char *concept_scheme; /* concept name code triple */
     const char *concept_code;
     const char *concept_meaning;
-    const char *numeric_value;   /* NUM: DS string */
-    const char *unit_scheme;     /* NUM: measurement units, e.g. "UCUM" */
+    const char *numeric_value; /* NUM: DS string */
+    const char *unit_scheme;   /* NUM: measurement units, e.g. "UCUM" */
     const char *unit_code;
     const char *unit_meaning;
-    const char *code_scheme;     /* CODE: the coded value */
+    const char *code_scheme; /* CODE: the coded value */
     const char *code_value;
     const char *code_meaning;
-    const char *text_value;      /* TEXT */
+    const char *text_value; /* TEXT */
 } dcm_sr_build_item;
 
 /* A coding scheme to list in Coding Scheme Identification (0008,0110),
@@ -402,10 +392,9 @@ typedef struct dcm_sr_coding_scheme {
  * Step Sequence (Type 2) unless dcmsr wrote one. Nothing time- or UID-dependent is copied from
  * dcmsr: the caller puts SOP Instance, Study and Series UIDs, dates and
  * times, patient and equipment attributes itself, like for an image. */
-mitilog_status dcm_builder_put_sr_content(
-    dcm_builder *builder, const dcm_sr_build_item *items, size_t item_count,
-    const dcm_sr_coding_scheme *schemes, size_t scheme_count,
-    mitilog_error *error);
+mitilog_status dcm_builder_put_sr_content(dcm_builder *builder, const dcm_sr_build_item *items,
+                                          size_t item_count, const dcm_sr_coding_scheme *schemes,
+                                          size_t scheme_count, mitilog_error *error);
 
 /* ------------------------------------------------------------------ */
 /* Further facts for the exam context (dcm_extra.cc)                   */
@@ -429,22 +418,20 @@ typedef struct dcm_extra {
      * Requested Procedure Code Sequence (0032,1064), joined by '\'. */
     char *procedure_codes;
     char *private_values[DCM_EXTRA_PRIVATE_MAX]; /* per request */
-    size_t region_count;                 /* as dcm_facts.region_count */
-    int *region_spatial_formats;         /* (0018,6012); -1 absent */
+    size_t region_count;                         /* as dcm_facts.region_count */
+    int *region_spatial_formats;                 /* (0018,6012); -1 absent */
     /* Enhanced multi-frame objects: Frame Content Sequence (0020,9111)
      * in the Shared (5200,9229) and Per-frame (5200,9230) Functional
      * Groups. */
     int has_functional_groups;
     size_t frame_content_count;
-    double frame_duration_ms_sum;        /* Frame Acquisition Duration (0018,9220) */
+    double frame_duration_ms_sum; /* Frame Acquisition Duration (0018,9220) */
     size_t frame_duration_count;
     char *first_frame_acquisition_datetime; /* (0018,9074), earliest */
 } dcm_extra;
 
-mitilog_status dcm_object_extra(dcm_object *object,
-                                const dcm_private_request *requests,
-                                size_t request_count, dcm_extra *extra,
-                                mitilog_error *error);
+mitilog_status dcm_object_extra(dcm_object *object, const dcm_private_request *requests,
+                                size_t request_count, dcm_extra *extra, mitilog_error *error);
 void dcm_extra_free(dcm_extra *extra);
 
 #ifdef __cplusplus

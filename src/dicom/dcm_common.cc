@@ -20,14 +20,10 @@
 static OFLogger::LogLevel dcm_log_level_for(int log_level)
 {
     switch (log_level) {
-    case 0:
-        return OFLogger::DEBUG_LOG_LEVEL;
-    case 1:
-        return OFLogger::WARN_LOG_LEVEL;
-    case 2:
-        return OFLogger::WARN_LOG_LEVEL;
-    default:
-        return OFLogger::ERROR_LOG_LEVEL;
+    case 0: return OFLogger::DEBUG_LOG_LEVEL;
+    case 1: return OFLogger::WARN_LOG_LEVEL;
+    case 2: return OFLogger::WARN_LOG_LEVEL;
+    default: return OFLogger::ERROR_LOG_LEVEL;
     }
 }
 
@@ -38,21 +34,18 @@ mitilog_status dcm_initialise(int log_level, mitilog_error *error)
         /* dcmsr warns about every missing type 2 attribute of every SR it
          * reads; above debug only its errors are of interest. */
         if (log_level > 0)
-            OFLog::getLogger("dcmtk.dcmsr")
-                .setLogLevel(OFLogger::ERROR_LOG_LEVEL);
+            OFLog::getLogger("dcmtk.dcmsr").setLogLevel(OFLogger::ERROR_LOG_LEVEL);
         /* A file dcmdata cannot parse is described in plain words by
          * dcm_object_load (dcm_read.cc); its own lines would repeat that
          * in the toolkit's terms. */
         if (log_level > 0)
-            OFLog::getLogger("dcmtk.dcmdata")
-                .setLogLevel(OFLogger::FATAL_LOG_LEVEL);
+            OFLog::getLogger("dcmtk.dcmdata").setLogLevel(OFLogger::FATAL_LOG_LEVEL);
         if (!dcmDataDict.isDictionaryLoaded()) {
             const char *path = getenv(DCM_DICT_ENVIRONMENT_VARIABLE);
-            return mitilog_error_set(
-                error, MITILOG_ERROR_NOT_FOUND,
-                "DCMTK data dictionary not loaded (%s=%s; Debian installs it "
-                "as /usr/share/libdcmtk*/dicom.dic)",
-                DCM_DICT_ENVIRONMENT_VARIABLE, path ? path : "(unset)");
+            return mitilog_error_set(error, MITILOG_ERROR_NOT_FOUND,
+                                     "DCMTK data dictionary not loaded (%s=%s; Debian installs it "
+                                     "as /usr/share/libdcmtk*/dicom.dic)",
+                                     DCM_DICT_ENVIRONMENT_VARIABLE, path ? path : "(unset)");
         }
         /* Keep values as stored: with input data correction on (DCMTK's
          * default) string values lose their trailing padding when read
@@ -63,36 +56,32 @@ mitilog_status dcm_initialise(int log_level, mitilog_error *error)
         /* dcmnet reads TCP_NODELAY at every accept; without it Nagle's
          * algorithm slows one-object-at-a-time senders to ~20 objects/s. */
         if (setenv("TCP_NODELAY", "1", 1) != 0)
-            return mitilog_error_set(error, MITILOG_ERROR_MEMORY,
-                                     "setenv TCP_NODELAY: %s", strerror(errno));
+            return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "setenv TCP_NODELAY: %s",
+                                     strerror(errno));
         return MITILOG_OK;
     }
     DCM_CATCH_ALL(error, MITILOG_ERROR_INVALID, "dcm_initialise")
 }
 
-mitilog_status dcm_error_from_condition(mitilog_error *error,
-                                        mitilog_status status, const char *what,
-                                        const OFCondition &condition)
+mitilog_status dcm_error_from_condition(mitilog_error *error, mitilog_status status,
+                                        const char *what, const OFCondition &condition)
 {
     const char *text = condition.text();
     return mitilog_error_set(error, status, "%s: %s", what,
                              text != NULL ? text : "unknown DCMTK error");
 }
 
-mitilog_status dcm_error_from_exception(mitilog_error *error,
-                                        mitilog_status status, const char *what)
+mitilog_status dcm_error_from_exception(mitilog_error *error, mitilog_status status,
+                                        const char *what)
 {
     try {
         throw;
     } catch (const std::bad_alloc &) {
-        return mitilog_error_set(error, MITILOG_ERROR_MEMORY,
-                                 "%s: out of memory", what);
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "%s: out of memory", what);
     } catch (const std::exception &exception) {
-        return mitilog_error_set(error, status, "%s: internal error: %s", what,
-                                 exception.what());
+        return mitilog_error_set(error, status, "%s: internal error: %s", what, exception.what());
     } catch (...) {
-        return mitilog_error_set(error, status,
-                                 "%s: internal error: unknown exception", what);
+        return mitilog_error_set(error, status, "%s: internal error: unknown exception", what);
     }
 }
 

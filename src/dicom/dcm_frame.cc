@@ -34,7 +34,8 @@
 #include <string>
 #include <vector>
 
-namespace {
+namespace
+{
 
 /* Frames larger than this many pixels are refused: no ultrasound screen
  * comes near it, and a forged Rows x Columns must not ask for gigabytes. */
@@ -70,8 +71,7 @@ void fill_grey_from_rgb(dcm_frame *frame)
 {
     size_t pixels = static_cast<size_t>(frame->width) * static_cast<size_t>(frame->height);
     for (size_t i = 0; i < pixels; i++)
-        frame->grey[i] =
-            grey_of(frame->rgb[3 * i], frame->rgb[3 * i + 1], frame->rgb[3 * i + 2]);
+        frame->grey[i] = grey_of(frame->rgb[3 * i], frame->rgb[3 * i + 1], frame->rgb[3 * i + 2]);
 }
 
 /* ---- DCMTK's own decoders ------------------------------------------ */
@@ -84,13 +84,13 @@ mitilog_status frame_by_dicom_image(DcmDataset *dataset, E_TransferSyntax xfer, 
         static_cast<unsigned long>(index), 1));
     if (image->getStatus() != EIS_Normal)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "frame %zu does not decode (DCMTK: %s)",
-                                 index + 1, DicomImage::getString(image->getStatus()));
+                                 "frame %zu does not decode (DCMTK: %s)", index + 1,
+                                 DicomImage::getString(image->getStatus()));
     unsigned long width = image->getWidth(), height = image->getHeight();
     if (width == 0 || height == 0 || width * height > FRAME_PIXELS_MAX)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "frame of %lux%lu pixels: not read (empty or too large)",
-                                 width, height);
+                                 "frame of %lux%lu pixels: not read (empty or too large)", width,
+                                 height);
     bool colour = !image->isMonochrome();
     mitilog_status status =
         frame_allocate(frame, static_cast<int>(width), static_cast<int>(height), colour, error);
@@ -160,8 +160,7 @@ OPJ_BOOL memory_seek(OPJ_OFF_T offset, void *user)
 /* The JPEG processes of PS3.5 section 8.2.1 that dcmjpeg decodes. */
 bool is_jpeg(E_TransferSyntax xfer)
 {
-    return (xfer >= EXS_JPEGProcess1 && xfer <= EXS_JPEGProcess29) ||
-           xfer == EXS_JPEGProcess14SV1;
+    return (xfer >= EXS_JPEGProcess1 && xfer <= EXS_JPEGProcess29) || xfer == EXS_JPEGProcess14SV1;
 }
 
 void openjpeg_quiet(const char *, void *) {}
@@ -181,7 +180,7 @@ mitilog_status frame_fragments(DcmPixelSequence *sequence, size_t index, size_t 
     struct fragment {
         const Uint8 *data;
         Uint32 length;
-        Uint32 offset;   /* from the first fragment's item tag */
+        Uint32 offset; /* from the first fragment's item tag */
     };
     std::vector<fragment> fragments;
     Uint32 offset = 0;
@@ -342,8 +341,7 @@ mitilog_status frame_by_openjpeg(DcmDataset *dataset, E_TransferSyntax xfer, siz
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no pixel data");
     DcmPixelData *pixel_data = static_cast<DcmPixelData *>(element);
     DcmPixelSequence *sequence = NULL;
-    if (pixel_data->getEncapsulatedRepresentation(xfer, NULL, sequence).bad() ||
-        sequence == NULL)
+    if (pixel_data->getEncapsulatedRepresentation(xfer, NULL, sequence).bad() || sequence == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "JPEG 2000 transfer syntax but the pixel data is not "
                                  "encapsulated");
@@ -373,9 +371,9 @@ mitilog_status frame_by_openjpeg(DcmDataset *dataset, E_TransferSyntax xfer, siz
     opj_stream_set_seek_function(stream, memory_seek);
     opj_dparameters_t parameters;
     opj_set_default_decoder_parameters(&parameters);
-    bool decoded = opj_setup_decoder(codec, &parameters) && opj_read_header(stream, codec, &image) &&
-                   image != NULL && opj_decode(codec, stream, image) &&
-                   opj_end_decompress(codec, stream);
+    bool decoded = opj_setup_decoder(codec, &parameters) &&
+                   opj_read_header(stream, codec, &image) && image != NULL &&
+                   opj_decode(codec, stream, image) && opj_end_decompress(codec, stream);
     opj_stream_destroy(stream);
     opj_destroy_codec(codec);
     if (!decoded) {
@@ -402,8 +400,7 @@ mitilog_status frame_by_openjpeg(DcmDataset *dataset, E_TransferSyntax xfer, siz
                                      "JPEG 2000 frame with subsampled or uneven components: "
                                      "not read");
     }
-    unsigned long long pixels_wanted =
-        static_cast<unsigned long long>(reference.w) * reference.h;
+    unsigned long long pixels_wanted = static_cast<unsigned long long>(reference.w) * reference.h;
     if (reference.w == 0 || reference.h == 0 || pixels_wanted > FRAME_PIXELS_MAX)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "frame of %ux%u pixels: not read (empty or too large)",
@@ -436,7 +433,8 @@ mitilog_status frame_by_openjpeg(DcmDataset *dataset, E_TransferSyntax xfer, siz
 
 } // namespace
 
-namespace {
+namespace
+{
 
 /* At exit, after every thread that decoded has been joined: DCMTK keeps
  * the registered codecs until they are cleaned up. */
@@ -512,8 +510,7 @@ mitilog_status dcm_object_frame(dcm_object *object, size_t index, dcm_frame *fra
         E_TransferSyntax xfer = dataset->getOriginalXfer();
         mitilog_status status;
         if (xfer == EXS_JPEG2000LosslessOnly || xfer == EXS_JPEG2000 ||
-            xfer == EXS_JPEG2000MulticomponentLosslessOnly ||
-            xfer == EXS_JPEG2000Multicomponent) {
+            xfer == EXS_JPEG2000MulticomponentLosslessOnly || xfer == EXS_JPEG2000Multicomponent) {
             status = frame_by_openjpeg(dataset, xfer, index, frame->frame_count,
                                        photometric == "MONOCHROME1", frame, error);
         } else {
@@ -533,8 +530,7 @@ mitilog_status dcm_object_frame(dcm_object *object, size_t index, dcm_frame *fra
         if (status != MITILOG_OK)
             dcm_frame_free(frame);
         return status;
-    }
-    catch (...) {
+    } catch (...) {
         dcm_frame_free(frame);
         return dcm_error_from_exception(error, MITILOG_ERROR_INVALID, "frame");
     }

@@ -17,16 +17,13 @@
 
 /* Writes "<what>: <DCMTK condition text>" into error (the condition text
  * lives only as long as the condition, so it is copied). Returns status. */
-mitilog_status dcm_error_from_condition(mitilog_error *error,
-                                        mitilog_status status,
-                                        const char *what,
-                                        const OFCondition &condition);
+mitilog_status dcm_error_from_condition(mitilog_error *error, mitilog_status status,
+                                        const char *what, const OFCondition &condition);
 
 /* Call only inside a catch block: classifies the exception in flight
  * (std::bad_alloc -> MITILOG_ERROR_MEMORY, anything else -> status) and
  * writes "<what>: <exception text>" into error. */
-mitilog_status dcm_error_from_exception(mitilog_error *error,
-                                        mitilog_status status,
+mitilog_status dcm_error_from_exception(mitilog_error *error, mitilog_status status,
                                         const char *what);
 
 /* malloc'd copy of text (NULL text gives NULL); throws std::bad_alloc when
@@ -45,10 +42,7 @@ DcmFileFormat *dcm_object_file(dcm_object *object);
 void dcm_frame_codecs_register(void);
 
 /* Catch-all for the C boundary: every exception becomes a status. */
-#define DCM_CATCH_ALL(error, status, what)                                 \
-    catch (...)                                                            \
-    {                                                                      \
-        return dcm_error_from_exception((error), (status), (what));        \
-    }
+#define DCM_CATCH_ALL(error, status, what)                                                         \
+    catch (...) { return dcm_error_from_exception((error), (status), (what)); }
 
 #endif

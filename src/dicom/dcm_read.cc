@@ -37,10 +37,7 @@ struct dcm_object {
     uint64_t header_end = 0;
 };
 
-DcmFileFormat *dcm_object_file(dcm_object *object)
-{
-    return object != NULL ? &object->file : NULL;
-}
+DcmFileFormat *dcm_object_file(dcm_object *object) { return object != NULL ? &object->file : NULL; }
 
 static const DcmTagKey dcm_attribute_tags[DCM_ATTRIBUTE_COUNT] = {
 #define DCM_ATTRIBUTE_TAG(name, group, element) DcmTagKey(group, element),
@@ -68,9 +65,8 @@ static uint64_t dcm_header_end(DcmDataset &dataset, uint64_t file_size)
         return 0;
     if (last->getTag() != DCM_PixelData)
         return dataset.tagExists(DCM_PixelData) ? 0 : file_size;
-    E_EncodingType encoding = last->getLengthField() == DCM_UndefinedLength
-                                  ? EET_UndefinedLength
-                                  : EET_ExplicitLength;
+    E_EncodingType encoding =
+        last->getLengthField() == DCM_UndefinedLength ? EET_UndefinedLength : EET_ExplicitLength;
     uint64_t pixels = last->calcElementLength(xfer, encoding);
     return pixels < file_size ? file_size - pixels : 0;
 }
@@ -122,7 +118,7 @@ static mitilog_status dcm_describe_load_failure(DcmFileFormat &file, uint64_t fi
     /* Where the element reading stopped starts: the Part 10 header, then
      * the data set's elements before it, at their encoded lengths. */
     DcmItem *item = dataset != NULL && dataset->card() > 0 ? static_cast<DcmItem *>(dataset)
-                                                            : static_cast<DcmItem *>(meta);
+                                                           : static_cast<DcmItem *>(meta);
     E_TransferSyntax xfer = item == dataset ? dataset->getOriginalXfer() : EXS_LittleEndianExplicit;
     if (item != NULL && item->card() > 0 && xfer != EXS_Unknown &&
         DcmXfer(xfer).getStreamCompression() == ESC_none) {
@@ -151,9 +147,8 @@ static mitilog_status dcm_describe_load_failure(DcmFileFormat &file, uint64_t fi
                     "truncated DICOM file: it ends at byte %llu of %llu; element %s %s at byte "
                     "%llu declares %lu bytes, larger than the rest of the file. It was cut "
                     "short in a copy or transfer: take it again from its source",
-                    (unsigned long long)file_size, (unsigned long long)needed,
-                    tag.getTagName(), tag.toString().c_str(), (unsigned long long)offset,
-                    (unsigned long)length);
+                    (unsigned long long)file_size, (unsigned long long)needed, tag.getTagName(),
+                    tag.toString().c_str(), (unsigned long long)offset, (unsigned long)length);
         }
         return mitilog_error_set(
             error, MITILOG_ERROR_PARSE,
@@ -168,12 +163,10 @@ static mitilog_status dcm_describe_load_failure(DcmFileFormat &file, uint64_t fi
                              (unsigned long long)file_size, condition.text());
 }
 
-mitilog_status dcm_object_load(const char *path, dcm_object **out,
-                               mitilog_error *error)
+mitilog_status dcm_object_load(const char *path, dcm_object **out, mitilog_error *error)
 {
     if (path == NULL || out == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "dcm_object_load: NULL argument");
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "dcm_object_load: NULL argument");
     *out = NULL;
     struct stat status;
     if (stat(path, &status) != 0)
@@ -188,15 +181,12 @@ mitilog_status dcm_object_load(const char *path, dcm_object **out,
         object->path = path;
         /* ERM_autoDetect: Part 10 with a meta header, else a bare
          * dataset; values over DCM_MaxReadLength stay in the file. */
-        OFCondition condition =
-            object->file.loadFile(OFFilename(path), EXS_Unknown, EGL_noChange,
-                                  DCM_MaxReadLength, ERM_autoDetect);
+        OFCondition condition = object->file.loadFile(OFFilename(path), EXS_Unknown, EGL_noChange,
+                                                      DCM_MaxReadLength, ERM_autoDetect);
         if (condition.bad())
-            return dcm_describe_load_failure(object->file,
-                                             static_cast<uint64_t>(status.st_size),
+            return dcm_describe_load_failure(object->file, static_cast<uint64_t>(status.st_size),
                                              path, condition, error);
-        if (object->file.getDataset() == NULL ||
-            object->file.getDataset()->card() == 0)
+        if (object->file.getDataset() == NULL || object->file.getDataset()->card() == 0)
             return mitilog_error_set(error, MITILOG_ERROR_PARSE,
                                      "no data elements: not a DICOM file");
         object->header_end =
@@ -207,10 +197,7 @@ mitilog_status dcm_object_load(const char *path, dcm_object **out,
     DCM_CATCH_ALL(error, MITILOG_ERROR_PARSE, "dcm_object_load")
 }
 
-void dcm_object_free(dcm_object *object)
-{
-    delete object;
-}
+void dcm_object_free(dcm_object *object) { delete object; }
 
 /* ------------------------------------------------------------------ */
 /* Facts                                                               */
@@ -219,8 +206,7 @@ void dcm_object_free(dcm_object *object)
 /* The stored value: multi-valued joined by backslashes, padding kept.
  * (findAndGetOFStringArray has no normalize flag in 3.6.7 and strips the
  * padding, hence getOFStringArray(value, OFFalse) on the element.) */
-static mitilog_status dcm_copy_raw_value(DcmElement &element, char **out,
-                                         mitilog_error *error)
+static mitilog_status dcm_copy_raw_value(DcmElement &element, char **out, mitilog_error *error)
 {
     OFString value;
     OFCondition condition = element.getOFStringArray(value, OFFalse);
@@ -231,8 +217,8 @@ static mitilog_status dcm_copy_raw_value(DcmElement &element, char **out,
     return MITILOG_OK;
 }
 
-static mitilog_status dcm_read_raw_value(DcmItem &item, const DcmTagKey &tag,
-                                         char **out, mitilog_error *error)
+static mitilog_status dcm_read_raw_value(DcmItem &item, const DcmTagKey &tag, char **out,
+                                         mitilog_error *error)
 {
     DcmElement *element = NULL;
     if (item.findAndGetElement(tag, element).bad() || element == NULL)
@@ -247,9 +233,8 @@ struct dcm_attribute_order {
     {
         for (int a = 0; a < DCM_ATTRIBUTE_COUNT; a++)
             attribute[a] = a;
-        std::sort(attribute, attribute + DCM_ATTRIBUTE_COUNT, [](int x, int y) {
-            return dcm_attribute_tags[x] < dcm_attribute_tags[y];
-        });
+        std::sort(attribute, attribute + DCM_ATTRIBUTE_COUNT,
+                  [](int x, int y) { return dcm_attribute_tags[x] < dcm_attribute_tags[y]; });
     }
 };
 
@@ -284,13 +269,11 @@ static mitilog_status dcm_read_raw_values(DcmItem &dataset, int skip, dcm_facts 
 static void dcm_read_regions(DcmItem &dataset, dcm_facts *facts)
 {
     DcmSequenceOfItems *sequence = NULL;
-    if (dataset.findAndGetSequence(DCM_SequenceOfUltrasoundRegions, sequence)
-            .bad() ||
+    if (dataset.findAndGetSequence(DCM_SequenceOfUltrasoundRegions, sequence).bad() ||
         sequence == NULL || sequence->card() == 0)
         return;
     unsigned long count = sequence->card();
-    facts->regions =
-        static_cast<dcm_region *>(calloc(count, sizeof *facts->regions));
+    facts->regions = static_cast<dcm_region *>(calloc(count, sizeof *facts->regions));
     if (facts->regions == NULL)
         throw std::bad_alloc();
     facts->region_count = count;
@@ -309,8 +292,7 @@ static void dcm_read_regions(DcmItem &dataset, dcm_facts *facts)
             region->has_transducer_frequency = 1;
             region->transducer_frequency_khz = value;
         }
-        if (item->findAndGetUint32(DCM_PulseRepetitionFrequency, value)
-                .good()) {
+        if (item->findAndGetUint32(DCM_PulseRepetitionFrequency, value).good()) {
             region->has_pulse_repetition_frequency = 1;
             region->pulse_repetition_frequency_hz = value;
         }
@@ -322,43 +304,32 @@ static char *dcm_copy_ofstring(const OFString &text)
     return dcm_string_copy_length(text.c_str(), text.length());
 }
 
-static char *dcm_copy_term(const char *text)
-{
-    return dcm_string_copy(text != NULL ? text : "");
-}
+static char *dcm_copy_term(const char *text) { return dcm_string_copy(text != NULL ? text : ""); }
 
-static void dcm_sr_fill_item(DSRDocumentTree &tree, unsigned depth,
-                             dcm_sr_item *out)
+static void dcm_sr_fill_item(DSRDocumentTree &tree, unsigned depth, dcm_sr_item *out)
 {
     DSRContentItem &item = tree.getCurrentContentItem();
     OFString position;
     out->depth = depth;
     out->node_id = tree.getNodeID();
     out->position = dcm_copy_ofstring(tree.getPosition(position));
-    out->value_type =
-        dcm_copy_term(DSRTypes::valueTypeToDefinedTerm(item.getValueType()));
+    out->value_type = dcm_copy_term(DSRTypes::valueTypeToDefinedTerm(item.getValueType()));
     out->relationship =
         item.getRelationshipType() == DSRTypes::RT_isRoot
             ? dcm_string_copy("")
-            : dcm_copy_term(DSRTypes::relationshipTypeToDefinedTerm(
-                  item.getRelationshipType()));
+            : dcm_copy_term(DSRTypes::relationshipTypeToDefinedTerm(item.getRelationshipType()));
     const DSRCodedEntryValue &concept_name = item.getConceptName();
-    out->concept_scheme =
-        dcm_copy_ofstring(concept_name.getCodingSchemeDesignator());
+    out->concept_scheme = dcm_copy_ofstring(concept_name.getCodingSchemeDesignator());
     out->concept_code = dcm_copy_ofstring(concept_name.getCodeValue());
     out->concept_meaning = dcm_copy_ofstring(concept_name.getCodeMeaning());
     const DSRNumericMeasurementValue *numeric = item.getNumericValuePtr();
-    const DSRCodedEntryValue *unit =
-        numeric != NULL ? &numeric->getMeasurementUnit() : NULL;
-    out->numeric_value =
-        dcm_copy_ofstring(numeric ? numeric->getNumericValue() : "");
-    out->unit_scheme =
-        dcm_copy_ofstring(unit ? unit->getCodingSchemeDesignator() : "");
+    const DSRCodedEntryValue *unit = numeric != NULL ? &numeric->getMeasurementUnit() : NULL;
+    out->numeric_value = dcm_copy_ofstring(numeric ? numeric->getNumericValue() : "");
+    out->unit_scheme = dcm_copy_ofstring(unit ? unit->getCodingSchemeDesignator() : "");
     out->unit_code = dcm_copy_ofstring(unit ? unit->getCodeValue() : "");
     out->unit_meaning = dcm_copy_ofstring(unit ? unit->getCodeMeaning() : "");
     const DSRCodedEntryValue *code = item.getCodeValuePtr();
-    out->code_scheme =
-        dcm_copy_ofstring(code ? code->getCodingSchemeDesignator() : "");
+    out->code_scheme = dcm_copy_ofstring(code ? code->getCodingSchemeDesignator() : "");
     out->code_value = dcm_copy_ofstring(code ? code->getCodeValue() : "");
     out->code_meaning = dcm_copy_ofstring(code ? code->getCodeMeaning() : "");
     out->text_value = dcm_copy_ofstring(item.getStringValue());
@@ -382,8 +353,7 @@ static dcm_sr_item *dcm_sr_append(dcm_facts *facts, size_t *capacity)
 /* Depth-first pre-order; children of items at depth == limit are
  * skipped and flagged. Items are counted before they are filled so that
  * dcm_facts_free() cleans up a half-filled one. */
-static void dcm_sr_walk(DSRDocumentTree &tree, unsigned depth_limit,
-                        dcm_facts *facts)
+static void dcm_sr_walk(DSRDocumentTree &tree, unsigned depth_limit, dcm_facts *facts)
 {
     size_t capacity = 0;
     if (tree.gotoRoot() == 0)
@@ -423,20 +393,17 @@ static void dcm_trim_uids(DcmDataset &dataset)
 }
 
 /* dataset is a private copy (it is modified). */
-static void dcm_read_structured_report(DcmDataset &dataset,
-                                       unsigned depth_limit,
-                                       const char *sop_instance_uid,
-                                       dcm_facts *facts)
+static void dcm_read_structured_report(DcmDataset &dataset, unsigned depth_limit,
+                                       const char *sop_instance_uid, dcm_facts *facts)
 {
     dcm_trim_uids(dataset);
     DSRDocument document;
-    OFCondition condition =
-        document.read(dataset, DSRTypes::RF_ignoreRelationshipConstraints |
-                                   DSRTypes::RF_acceptUnknownRelationshipType |
-                                   DSRTypes::RF_skipInvalidContentItems);
+    OFCondition condition = document.read(dataset, DSRTypes::RF_ignoreRelationshipConstraints |
+                                                       DSRTypes::RF_acceptUnknownRelationshipType |
+                                                       DSRTypes::RF_skipInvalidContentItems);
     if (condition.bad()) {
-        log_warning("SR %s: content tree not readable, no SR items: %s",
-                    sop_instance_uid, condition.text());
+        log_warning("SR %s: content tree not readable, no SR items: %s", sop_instance_uid,
+                    condition.text());
         return;
     }
     dcm_sr_walk(document.getTree(), depth_limit, facts);
@@ -463,11 +430,9 @@ static bool dcm_text_is_utf8_already(DcmDataset &dataset)
 /* A UTF-8 copy of the dataset, or NULL when none is needed (text already
  * UTF-8) or DCMTK cannot convert it (no converter built in, unknown or
  * broken character set). */
-static DcmDataset *dcm_utf8_copy(DcmDataset &original,
-                                 const char *sop_instance_uid)
+static DcmDataset *dcm_utf8_copy(DcmDataset &original, const char *sop_instance_uid)
 {
-    if (dcm_text_is_utf8_already(original) ||
-        !DcmSpecificCharacterSet::isConversionAvailable())
+    if (dcm_text_is_utf8_already(original) || !DcmSpecificCharacterSet::isConversionAvailable())
         return NULL;
     std::unique_ptr<DcmDataset> copy(new DcmDataset(original));
     OFCondition condition = copy->convertToUTF8();
@@ -484,8 +449,7 @@ static void dcm_read_transfer_syntax(DcmFileFormat &file, dcm_facts *facts)
 {
     OFString uid;
     DcmMetaInfo *meta = file.getMetaInfo();
-    if (meta != NULL &&
-        meta->findAndGetOFString(DCM_TransferSyntaxUID, uid).good() &&
+    if (meta != NULL && meta->findAndGetOFString(DCM_TransferSyntaxUID, uid).good() &&
         !uid.empty()) {
         facts->transfer_syntax_uid = dcm_copy_ofstring(uid);
         return;
@@ -495,12 +459,11 @@ static void dcm_read_transfer_syntax(DcmFileFormat &file, dcm_facts *facts)
         facts->transfer_syntax_uid = dcm_string_copy(DcmXfer(xfer).getXferID());
 }
 
-mitilog_status dcm_object_facts(dcm_object *object, unsigned sr_depth_limit,
-                                dcm_facts *facts, mitilog_error *error)
+mitilog_status dcm_object_facts(dcm_object *object, unsigned sr_depth_limit, dcm_facts *facts,
+                                mitilog_error *error)
 {
     if (object == NULL || facts == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "dcm_object_facts: NULL argument");
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "dcm_object_facts: NULL argument");
     memset(facts, 0, sizeof *facts);
     try {
         DcmDataset &original = *object->file.getDataset();
@@ -508,14 +471,13 @@ mitilog_status dcm_object_facts(dcm_object *object, unsigned sr_depth_limit,
         original.findAndGetOFString(DCM_SOPInstanceUID, sop_instance_uid);
         original.findAndGetOFString(DCM_SOPClassUID, sop_class_uid);
 
-        std::unique_ptr<DcmDataset> utf8(
-            dcm_utf8_copy(original, sop_instance_uid.c_str()));
+        std::unique_ptr<DcmDataset> utf8(dcm_utf8_copy(original, sop_instance_uid.c_str()));
         facts->character_set_converted = utf8 != NULL;
         DcmDataset &dataset = utf8 ? *utf8 : original;
 
         /* The character set as sent, not the ISO_IR 192 of the copy. */
-        mitilog_status status = dcm_read_raw_values(
-            dataset, DCM_ATTRIBUTE_SPECIFIC_CHARACTER_SET, facts, error);
+        mitilog_status status =
+            dcm_read_raw_values(dataset, DCM_ATTRIBUTE_SPECIFIC_CHARACTER_SET, facts, error);
         if (status == MITILOG_OK)
             status = dcm_read_raw_value(
                 original, dcm_attribute_tags[DCM_ATTRIBUTE_SPECIFIC_CHARACTER_SET],
@@ -527,30 +489,26 @@ mitilog_status dcm_object_facts(dcm_object *object, unsigned sr_depth_limit,
         dcm_read_transfer_syntax(object->file, facts);
         dcm_read_regions(dataset, facts);
         facts->is_structured_report =
-            sop_class_uid.compare(0, sizeof dcm_sr_class_root - 1,
-                                  dcm_sr_class_root) == 0;
+            sop_class_uid.compare(0, sizeof dcm_sr_class_root - 1, dcm_sr_class_root) == 0;
         if (facts->is_structured_report) {
             if (!utf8)
                 utf8.reset(new DcmDataset(original));
-            dcm_read_structured_report(*utf8, sr_depth_limit,
-                                       sop_instance_uid.c_str(), facts);
+            dcm_read_structured_report(*utf8, sr_depth_limit, sop_instance_uid.c_str(), facts);
         }
         return MITILOG_OK;
     } catch (...) {
         dcm_facts_free(facts);
-        return dcm_error_from_exception(error, MITILOG_ERROR_PARSE,
-                                        "dcm_object_facts");
+        return dcm_error_from_exception(error, MITILOG_ERROR_PARSE, "dcm_object_facts");
     }
 }
 
 static void dcm_sr_item_free(dcm_sr_item *item)
 {
     char **strings[] = {
-        &item->position,       &item->value_type,   &item->relationship,
-        &item->concept_scheme, &item->concept_code, &item->concept_meaning,
-        &item->numeric_value,  &item->unit_scheme,  &item->unit_code,
-        &item->unit_meaning,   &item->code_scheme,  &item->code_value,
-        &item->code_meaning,   &item->text_value,
+        &item->position,     &item->value_type,      &item->relationship,  &item->concept_scheme,
+        &item->concept_code, &item->concept_meaning, &item->numeric_value, &item->unit_scheme,
+        &item->unit_code,    &item->unit_meaning,    &item->code_scheme,   &item->code_value,
+        &item->code_meaning, &item->text_value,
     };
     for (size_t i = 0; i < sizeof strings / sizeof strings[0]; i++) {
         free(*strings[i]);
@@ -581,8 +539,7 @@ enum { DCM_BULK_LIMIT = 64 * 1024 };
 /* Removes Pixel Data at the top level, and any non-sequence element over
  * 64 KiB at any depth (float pixel data, waveform data, ...). With
  * every_pixel_data, also each remaining Pixel Data (icons) at any depth. */
-static void dcm_remove_bulk(DcmDataset &dataset, E_TransferSyntax xfer,
-                            bool every_pixel_data)
+static void dcm_remove_bulk(DcmDataset &dataset, E_TransferSyntax xfer, bool every_pixel_data)
 {
     DcmStack stack;
     OFList<DcmObject *> doomed;
@@ -591,8 +548,8 @@ static void dcm_remove_bulk(DcmDataset &dataset, E_TransferSyntax xfer,
         DcmObject *object = stack.top();
         DcmObject *parent = stack.card() > 1 ? stack.elem(1) : NULL;
         DcmEVR vr = object->ident();
-        if (parent == NULL || vr == EVR_SQ || vr == EVR_item ||
-            vr == EVR_pixelSQ || vr == EVR_pixelItem)
+        if (parent == NULL || vr == EVR_SQ || vr == EVR_item || vr == EVR_pixelSQ ||
+            vr == EVR_pixelItem)
             continue;
         if (parent->ident() != EVR_dataset && parent->ident() != EVR_item)
             continue; /* fragments of an encapsulated pixel sequence */
@@ -634,10 +591,7 @@ class dcm_string_consumer : public DcmConsumer
 class dcm_string_stream : public DcmOutputStream
 {
   public:
-    explicit dcm_string_stream(std::string &out)
-        : DcmOutputStream(&consumer_), consumer_(out)
-    {
-    }
+    explicit dcm_string_stream(std::string &out) : DcmOutputStream(&consumer_), consumer_(out) {}
 
   private:
     dcm_string_consumer consumer_;
@@ -664,13 +618,13 @@ static bool dcm_needs_rewrite(DcmDataset &dataset, E_TransferSyntax xfer)
 }
 
 /* The first size bytes of the file at path, malloc'd. */
-static mitilog_status dcm_read_prefix(const std::string &path, uint64_t size,
-                                      unsigned char **bytes, mitilog_error *error)
+static mitilog_status dcm_read_prefix(const std::string &path, uint64_t size, unsigned char **bytes,
+                                      mitilog_error *error)
 {
     FILE *file = fopen(path.c_str(), "rb");
     if (file == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_IO, "header copy: %s: %s",
-                                 path.c_str(), strerror(errno));
+        return mitilog_error_set(error, MITILOG_ERROR_IO, "header copy: %s: %s", path.c_str(),
+                                 strerror(errno));
     unsigned char *buffer = static_cast<unsigned char *>(malloc(size));
     size_t read = buffer != NULL ? fread(buffer, 1, size, file) : 0;
     fclose(file);
@@ -685,8 +639,8 @@ static mitilog_status dcm_read_prefix(const std::string &path, uint64_t size,
     return MITILOG_OK;
 }
 
-mitilog_status dcm_object_header_bytes(dcm_object *object, unsigned char **bytes,
-                                       size_t *size, mitilog_error *error)
+mitilog_status dcm_object_header_bytes(dcm_object *object, unsigned char **bytes, size_t *size,
+                                       mitilog_error *error)
 {
     if (object == NULL || bytes == NULL || size == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
@@ -698,8 +652,7 @@ mitilog_status dcm_object_header_bytes(dcm_object *object, unsigned char **bytes
         E_TransferSyntax received_xfer = received.getOriginalXfer();
         if (object->header_end > 0 && received_xfer != EXS_Unknown &&
             !dcm_needs_rewrite(received, received_xfer)) {
-            mitilog_status status =
-                dcm_read_prefix(object->path, object->header_end, bytes, error);
+            mitilog_status status = dcm_read_prefix(object->path, object->header_end, bytes, error);
             if (status == MITILOG_OK)
                 *size = static_cast<size_t>(object->header_end);
             return status;
@@ -729,9 +682,8 @@ mitilog_status dcm_object_header_bytes(dcm_object *object, unsigned char **bytes
             file.transferInit();
             /* Without group lengths (retired in the data set, PS3.5
              * 7.2): recalculating them walked the data set once more. */
-            condition = file.write(stream, xfer, EET_ExplicitLength, &cache,
-                                   EGL_withoutGL, EPD_noChange, 0, 0, 0,
-                                   EWM_fileformat);
+            condition = file.write(stream, xfer, EET_ExplicitLength, &cache, EGL_withoutGL,
+                                   EPD_noChange, 0, 0, 0, EWM_fileformat);
             file.transferEnd();
             /* A deflated transfer syntax writes through a zlib filter that
              * keeps its tail until flushed (DcmOutputFileStream flushes in
@@ -742,12 +694,10 @@ mitilog_status dcm_object_header_bytes(dcm_object *object, unsigned char **bytes
                 condition = EC_IllegalCall;
         }
         if (condition.bad())
-            return dcm_error_from_condition(error, MITILOG_ERROR_IO,
-                                            "header copy", condition);
+            return dcm_error_from_condition(error, MITILOG_ERROR_IO, "header copy", condition);
         unsigned char *copy = static_cast<unsigned char *>(malloc(out.size()));
         if (copy == NULL)
-            return mitilog_error_set(error, MITILOG_ERROR_MEMORY,
-                                     "header copy: out of memory");
+            return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "header copy: out of memory");
         memcpy(copy, out.data(), out.size());
         *bytes = copy;
         *size = out.size();

@@ -109,11 +109,10 @@ struct dcm_server {
     std::vector<std::pair<std::string, std::string>> allowed_peers;
     unsigned max_associations = 1;
     unsigned max_negotiations = DCM_DEFAULT_MAX_NEGOTIATIONS;
-    unsigned max_negotiations_per_address =
-        DCM_DEFAULT_MAX_NEGOTIATIONS_PER_ADDRESS;
+    unsigned max_negotiations_per_address = DCM_DEFAULT_MAX_NEGOTIATIONS_PER_ADDRESS;
     unsigned acse_timeout = DCM_DEFAULT_ACSE_TIMEOUT;
     uint32_t max_pdu = ASC_DEFAULTMAXPDU;
-    uint64_t max_object_bytes = 0; /* 0 = no limit */
+    uint64_t max_object_bytes = 0;     /* 0 = no limit */
     uint64_t max_memory_in_flight = 0; /* 0 = no limit */
     std::string tls_certificate_file, tls_private_key_file, tls_ca_file;
     bool tls = false, tls_require_client = false;
@@ -153,15 +152,13 @@ static std::string dcm_trim(const char *text)
     std::string value(text != NULL ? text : "");
     size_t first = value.find_first_not_of(' ');
     size_t last = value.find_last_not_of(' ');
-    return first == std::string::npos ? ""
-                                      : value.substr(first, last - first + 1);
+    return first == std::string::npos ? "" : value.substr(first, last - first + 1);
 }
 
 /* Whether a line about a refused or cut connection may be written now
  * (one a second); *suppressed receives how many were left out since the
  * last one written. */
-static bool dcm_peer_line_allowed(dcm_server *server,
-                                  unsigned long *suppressed)
+static bool dcm_peer_line_allowed(dcm_server *server, unsigned long *suppressed)
 {
     std::lock_guard<std::mutex> lock(server->log_mutex);
     auto now = std::chrono::steady_clock::now();
@@ -178,10 +175,10 @@ static bool dcm_peer_line_allowed(dcm_server *server,
 /* " (N similar lines left out)" or "". */
 static std::string dcm_suppressed_note(unsigned long suppressed)
 {
-    return suppressed == 0 ? std::string()
-                           : " (" + std::to_string(suppressed) +
-                                 " similar line" + (suppressed == 1 ? "" : "s") +
-                                 " about peers left out in the last second)";
+    return suppressed == 0
+               ? std::string()
+               : " (" + std::to_string(suppressed) + " similar line" +
+                     (suppressed == 1 ? "" : "s") + " about peers left out in the last second)";
 }
 
 /* ------------------------------------------------------------------ */
@@ -191,10 +188,7 @@ static std::string dcm_suppressed_note(unsigned long suppressed)
 class dcm_association_scp : public DcmThreadSCP
 {
   public:
-    dcm_association_scp(dcm_server *server, unsigned long id)
-        : server_(server), id_(id)
-    {
-    }
+    dcm_association_scp(dcm_server *server, unsigned long id) : server_(server), id_(id) {}
 
   protected:
     void notifyAssociationRequest(const T_ASC_Parameters &params,
@@ -204,10 +198,7 @@ class dcm_association_scp : public DcmThreadSCP
     OFCondition negotiateAssociation() override { return EC_Normal; }
     /* The argument is the called address; the peer is checked together
      * with the calling AE title in checkCallingAETitleAccepted(). */
-    OFBool checkCallingHostAccepted(const OFString &) override
-    {
-        return OFTrue;
-    }
+    OFBool checkCallingHostAccepted(const OFString &) override { return OFTrue; }
     OFBool checkCalledAETitleAccepted(const OFString &called) override;
     OFBool checkCallingAETitleAccepted(const OFString &calling) override;
     void refuseAssociation(const DcmRefuseReasonType reason) override;
@@ -216,16 +207,13 @@ class dcm_association_scp : public DcmThreadSCP
     void notifyAbortRequest() override { outcome_ = "aborted (by the peer)"; }
     void notifyDIMSEError(const OFCondition &condition) override;
     void notifyAssociationTermination() override;
-    OFCondition
-    handleIncomingCommand(T_DIMSE_Message *message,
-                          const DcmPresentationContextInfo &context) override;
+    OFCondition handleIncomingCommand(T_DIMSE_Message *message,
+                                      const DcmPresentationContextInfo &context) override;
     void notifyRECEIVEProgress(const unsigned long byte_count) override;
 
   private:
-    OFCondition receive_store(T_DIMSE_C_StoreRQ &request,
-                              T_ASC_PresentationContextID context_id);
-    OFCondition refuse_store(T_DIMSE_C_StoreRQ &request,
-                             T_ASC_PresentationContextID context_id,
+    OFCondition receive_store(T_DIMSE_C_StoreRQ &request, T_ASC_PresentationContextID context_id);
+    OFCondition refuse_store(T_DIMSE_C_StoreRQ &request, T_ASC_PresentationContextID context_id,
                              const char *reason);
     bool open_spool();
 
@@ -259,8 +247,8 @@ class dcm_association_scp : public DcmThreadSCP
     }
 };
 
-void dcm_association_scp::notifyAssociationRequest(
-    const T_ASC_Parameters &params, DcmSCPActionType &action)
+void dcm_association_scp::notifyAssociationRequest(const T_ASC_Parameters &params,
+                                                   DcmSCPActionType &action)
 {
     calling_ae_ = dcm_trim(params.DULparams.callingAPTitle);
     called_ae_ = dcm_trim(params.DULparams.calledAPTitle);
@@ -273,14 +261,12 @@ void dcm_association_scp::notifyAssociationRequest(
         const_cast<const char **>(dcm_verification_transfer_syntaxes), 2);
     if (condition.good())
         condition = ASC_acceptContextsWithPreferredTransferSyntaxes(
-            writable, dcmAllStorageSOPClassUIDs,
-            numberOfDcmAllStorageSOPClassUIDs,
+            writable, dcmAllStorageSOPClassUIDs, numberOfDcmAllStorageSOPClassUIDs,
             const_cast<const char **>(dcm_storage_transfer_syntaxes),
             static_cast<int>(sizeof dcm_storage_transfer_syntaxes /
                              sizeof dcm_storage_transfer_syntaxes[0]));
     if (condition.bad()) {
-        log_error("association %lu: accepting presentation contexts: %s", id_,
-                  condition.text());
+        log_error("association %lu: accepting presentation contexts: %s", id_, condition.text());
         action = DCMSCP_ACTION_REFUSE_ASSOCIATION;
     }
 }
@@ -291,8 +277,7 @@ OFBool dcm_association_scp::checkCalledAETitleAccepted(const OFString &called)
         return OFTrue;
     log_warning("association refused: called AE '%s' from %s is not ours "
                 "('%s')",
-                dcm_trim(called.c_str()).c_str(), peer_ip_.c_str(),
-                server_->ae_title.c_str());
+                dcm_trim(called.c_str()).c_str(), peer_ip_.c_str(), server_->ae_title.c_str());
     return OFFalse;
 }
 
@@ -302,8 +287,7 @@ OFBool dcm_association_scp::checkCallingAETitleAccepted(const OFString &calling)
         return OFTrue;
     std::string title = dcm_trim(calling.c_str());
     for (const auto &peer : server_->allowed_peers)
-        if (peer.first == title &&
-            (peer.second.empty() || peer.second == peer_ip_))
+        if (peer.first == title && (peer.second.empty() || peer.second == peer_ip_))
             return OFTrue;
     log_warning("association refused: calling AE '%s' from %s is not in "
                 "allowed_calling_ae_titles",
@@ -326,12 +310,8 @@ void dcm_association_scp::refuseAssociation(const DcmRefuseReasonType reason)
     case DCMSCP_BAD_APPLICATION_CONTEXT_NAME:
         outcome_ = "refused (bad application context name)";
         break;
-    case DCMSCP_TOO_MANY_ASSOCIATIONS:
-        outcome_ = "refused (too many associations)";
-        break;
-    default:
-        outcome_ = "refused (internal error)";
-        break;
+    case DCMSCP_TOO_MANY_ASSOCIATIONS: outcome_ = "refused (too many associations)"; break;
+    default: outcome_ = "refused (internal error)"; break;
     }
     server_->refused++;
     DcmThreadSCP::refuseAssociation(reason);
@@ -341,8 +321,8 @@ void dcm_association_scp::notifyAssociationAcknowledge()
 {
     server_->accepted++;
     outcome_ = "aborted (no release)";
-    log_debug("association %lu from AE '%s' (%s) accepted", id_,
-              calling_ae_.c_str(), peer_ip_.c_str());
+    log_debug("association %lu from AE '%s' (%s) accepted", id_, calling_ae_.c_str(),
+              peer_ip_.c_str());
 }
 
 void dcm_association_scp::notifyDIMSEError(const OFCondition &condition)
@@ -360,9 +340,8 @@ void dcm_association_scp::notifyAssociationTermination()
         spool_fd_ = -1;
         spool_.clear();
     }
-    log_info("association %lu from AE '%s' (%s): %lu object%s, %s", id_,
-             calling_ae_.c_str(), peer_ip_.c_str(), objects_,
-             objects_ == 1 ? "" : "s", outcome_.c_str());
+    log_info("association %lu from AE '%s' (%s): %lu object%s, %s", id_, calling_ae_.c_str(),
+             peer_ip_.c_str(), objects_, objects_ == 1 ? "" : "s", outcome_.c_str());
 }
 
 /* Makes the association's memory file. The path goes through /proc so
@@ -374,8 +353,7 @@ bool dcm_association_scp::open_spool()
         return true;
     spool_fd_ = memfd_create("mitilog-received", MFD_CLOEXEC);
     if (spool_fd_ < 0) {
-        log_error("association %lu: cannot make a memory file: %s", id_,
-                  strerror(errno));
+        log_error("association %lu: cannot make a memory file: %s", id_, strerror(errno));
         return false;
     }
     spool_ = "/proc/self/fd/" + std::to_string(spool_fd_);
@@ -399,11 +377,9 @@ void dcm_association_scp::notifyRECEIVEProgress(const unsigned long byte_count)
         uint64_t delta = byte_count - counted_;
         uint64_t total = (server_->memory_in_flight += delta);
         counted_ = byte_count;
-        if (server_->max_object_bytes > 0 &&
-            byte_count > server_->max_object_bytes)
+        if (server_->max_object_bytes > 0 && byte_count > server_->max_object_bytes)
             oversized_ = true;
-        else if (server_->max_memory_in_flight > 0 &&
-                 total > server_->max_memory_in_flight &&
+        else if (server_->max_memory_in_flight > 0 && total > server_->max_memory_in_flight &&
                  total > counted_)
             crowded_ = true;
         if (!oversized_ && !crowded_)
@@ -411,63 +387,54 @@ void dcm_association_scp::notifyRECEIVEProgress(const unsigned long byte_count)
         release_counted();
     }
     if (ftruncate(spool_fd_, 0) != 0)
-        log_warning("association %lu: cannot empty the memory file: %s", id_,
-                    strerror(errno));
+        log_warning("association %lu: cannot empty the memory file: %s", id_, strerror(errno));
 }
 
 /* Reads the data set into memory, drops it and answers A700. */
-OFCondition
-dcm_association_scp::refuse_store(T_DIMSE_C_StoreRQ &request,
-                                  T_ASC_PresentationContextID context_id,
-                                  const char *reason)
+OFCondition dcm_association_scp::refuse_store(T_DIMSE_C_StoreRQ &request,
+                                              T_ASC_PresentationContextID context_id,
+                                              const char *reason)
 {
     DcmDataset *dataset = NULL;
-    OFCondition condition =
-        receiveSTORERequest(request, context_id, dataset);
+    OFCondition condition = receiveSTORERequest(request, context_id, dataset);
     delete dataset;
     if (condition.bad())
         return condition;
     log_warning("association %lu from AE '%s' (%s): object %s answered "
                 "A700: %s",
-                id_, calling_ae_.c_str(), peer_ip_.c_str(),
-                request.AffectedSOPInstanceUID, reason);
-    return sendSTOREResponse(context_id, request,
-                             DCM_STATUS_OUT_OF_RESOURCES);
+                id_, calling_ae_.c_str(), peer_ip_.c_str(), request.AffectedSOPInstanceUID, reason);
+    return sendSTOREResponse(context_id, request, DCM_STATUS_OUT_OF_RESOURCES);
 }
 
-OFCondition
-dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
-                                   T_ASC_PresentationContextID context_id)
+OFCondition dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
+                                               T_ASC_PresentationContextID context_id)
 {
     if (!open_spool())
         return refuse_store(request, context_id, "no memory file to receive into");
     const std::string &path = spool_;
     oversized_ = crowded_ = false;
-    OFCondition condition =
-        receiveSTORERequest(request, context_id, OFString(path.c_str()));
+    OFCondition condition = receiveSTORERequest(request, context_id, OFString(path.c_str()));
     if (condition.bad()) {
         release_counted();
         log_warning("association %lu from AE '%s' (%s): receiving C-STORE "
                     "of %s failed: %s",
-                    id_, calling_ae_.c_str(), peer_ip_.c_str(),
-                    request.AffectedSOPInstanceUID, condition.text());
+                    id_, calling_ae_.c_str(), peer_ip_.c_str(), request.AffectedSOPInstanceUID,
+                    condition.text());
         if (ftruncate(spool_fd_, 0) != 0)
-            log_warning("association %lu: cannot empty the memory file: %s",
-                        id_, strerror(errno));
+            log_warning("association %lu: cannot empty the memory file: %s", id_, strerror(errno));
         return condition; /* DCMTK aborts the association */
     }
     objects_++;
     server_->objects++;
     struct stat info;
     uint16_t status;
-    if (oversized_ ||
-        (server_->max_object_bytes > 0 && fstat(spool_fd_, &info) == 0 &&
-         static_cast<uint64_t>(info.st_size) > server_->max_object_bytes)) {
+    if (oversized_ || (server_->max_object_bytes > 0 && fstat(spool_fd_, &info) == 0 &&
+                       static_cast<uint64_t>(info.st_size) > server_->max_object_bytes)) {
         log_warning("association %lu from AE '%s' (%s): object %s refused "
                     "(0x%04X): larger than max_object_bytes %llu, discarded "
                     "as it arrived",
-                    id_, calling_ae_.c_str(), peer_ip_.c_str(),
-                    request.AffectedSOPInstanceUID, DCM_STATUS_TOO_LARGE,
+                    id_, calling_ae_.c_str(), peer_ip_.c_str(), request.AffectedSOPInstanceUID,
+                    DCM_STATUS_TOO_LARGE,
                     static_cast<unsigned long long>(server_->max_object_bytes));
         status = DCM_STATUS_TOO_LARGE;
     } else if (crowded_) {
@@ -475,11 +442,9 @@ dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
                     "(0x%04X): objects in flight passed "
                     "max_memory_in_flight_bytes %llu; discarded as it "
                     "arrived, the sender should retry",
-                    id_, calling_ae_.c_str(), peer_ip_.c_str(),
-                    request.AffectedSOPInstanceUID,
+                    id_, calling_ae_.c_str(), peer_ip_.c_str(), request.AffectedSOPInstanceUID,
                     DCM_STATUS_OUT_OF_RESOURCES,
-                    static_cast<unsigned long long>(
-                        server_->max_memory_in_flight));
+                    static_cast<unsigned long long>(server_->max_memory_in_flight));
         status = DCM_STATUS_OUT_OF_RESOURCES;
     } else {
         dcm_received received;
@@ -493,20 +458,19 @@ dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
         status = server_->handler(server_->context, &received);
         log_debug("association %lu: object %lu, SOP instance %s (class %s), "
                   "status 0x%04X",
-                  id_, objects_, request.AffectedSOPInstanceUID,
-                  request.AffectedSOPClassUID, status);
+                  id_, objects_, request.AffectedSOPInstanceUID, request.AffectedSOPClassUID,
+                  status);
     }
     /* The object is done with: give its memory back now rather than when
      * the next one arrives (a cine loop can be hundreds of MB). */
     if (ftruncate(spool_fd_, 0) != 0)
-        log_warning("association %lu: cannot empty the memory file: %s", id_,
-                    strerror(errno));
+        log_warning("association %lu: cannot empty the memory file: %s", id_, strerror(errno));
     release_counted();
     return sendSTOREResponse(context_id, request, status);
 }
 
-OFCondition dcm_association_scp::handleIncomingCommand(
-    T_DIMSE_Message *message, const DcmPresentationContextInfo &context)
+OFCondition dcm_association_scp::handleIncomingCommand(T_DIMSE_Message *message,
+                                                       const DcmPresentationContextInfo &context)
 {
     if (message->CommandField == DIMSE_C_FIND_RQ) {
         /* Negotiation refuses every Query/Retrieve context (only
@@ -523,10 +487,8 @@ OFCondition dcm_association_scp::handleIncomingCommand(
         log_warning("association %lu from AE '%s' (%s): C-FIND on "
                     "presentation context %u refused (0x0122): this receiver "
                     "takes C-STORE and C-ECHO only",
-                    id_, calling_ae_.c_str(), peer_ip_.c_str(),
-                    static_cast<unsigned>(context_id));
-        return sendFINDResponse(context_id, request.MessageID,
-                                request.AffectedSOPClassUID, NULL,
+                    id_, calling_ae_.c_str(), peer_ip_.c_str(), static_cast<unsigned>(context_id));
+        return sendFINDResponse(context_id, request.MessageID, request.AffectedSOPClassUID, NULL,
                                 STATUS_FIND_Refused_SOPClassNotSupported);
     }
     if (message->CommandField != DIMSE_C_STORE_RQ)
@@ -555,8 +517,7 @@ static uint16_t dcm_big16(const unsigned char *p)
  * than its 64 bytes; docs/security.md): such a request is refused here,
  * before DCMTK sees it. Only framing, counts and lengths are checked;
  * DCMTK still interprets every value. */
-static bool dcm_associate_rq_valid(const unsigned char *body, size_t length,
-                                   std::string &reason)
+static bool dcm_associate_rq_valid(const unsigned char *body, size_t length, std::string &reason)
 {
     char text[160];
     if (length < 68) {
@@ -572,8 +533,7 @@ static bool dcm_associate_rq_valid(const unsigned char *body, size_t length,
         unsigned type = body[offset];
         size_t item_length = dcm_big16(body + offset + 2);
         if (item_length > length - offset - 4) {
-            snprintf(text, sizeof text,
-                     "item 0x%02X overruns the A-ASSOCIATE-RQ", type);
+            snprintf(text, sizeof text, "item 0x%02X overruns the A-ASSOCIATE-RQ", type);
             reason = text;
             return false;
         }
@@ -623,8 +583,7 @@ static bool dcm_associate_rq_valid(const unsigned char *body, size_t length,
                     snprintf(text, sizeof text,
                              "presentation context %u: %s syntax of %zu "
                              "bytes (a UID has 1 to 64)",
-                             id, sub_type == 0x30 ? "abstract" : "transfer",
-                             sub_length);
+                             id, sub_type == 0x30 ? "abstract" : "transfer", sub_length);
                     reason = text;
                     return false;
                 }
@@ -660,42 +619,21 @@ class dcm_guarded_connection : public DcmTransportConnection
 {
   public:
     dcm_guarded_connection(dcm_server *server, DcmNativeSocketType socket,
-                           DcmTransportConnection *inner,
-                           const std::string &peer)
-        : DcmTransportConnection(socket), server_(server), inner_(inner),
-          peer_(peer)
+                           DcmTransportConnection *inner, const std::string &peer)
+        : DcmTransportConnection(socket), server_(server), inner_(inner), peer_(peer)
     {
     }
     ~dcm_guarded_connection() override { delete inner_; }
 
-    OFCondition serverSideHandshake() override
-    {
-        return inner_->serverSideHandshake();
-    }
-    OFCondition clientSideHandshake() override
-    {
-        return inner_->clientSideHandshake();
-    }
-    OFCondition renegotiate(const char *suite) override
-    {
-        return inner_->renegotiate(suite);
-    }
+    OFCondition serverSideHandshake() override { return inner_->serverSideHandshake(); }
+    OFCondition clientSideHandshake() override { return inner_->clientSideHandshake(); }
+    OFCondition renegotiate(const char *suite) override { return inner_->renegotiate(suite); }
     ssize_t read(void *buffer, size_t size) override;
-    ssize_t write(void *buffer, size_t size) override
-    {
-        return inner_->write(buffer, size);
-    }
+    ssize_t write(void *buffer, size_t size) override { return inner_->write(buffer, size); }
     void close() override { inner_->close(); }
-    void closeTransportConnection() override
-    {
-        inner_->closeTransportConnection();
-    }
-    unsigned long getPeerCertificateLength() override
-    {
-        return inner_->getPeerCertificateLength();
-    }
-    unsigned long getPeerCertificate(void *buffer,
-                                     unsigned long size) override
+    void closeTransportConnection() override { inner_->closeTransportConnection(); }
+    unsigned long getPeerCertificateLength() override { return inner_->getPeerCertificateLength(); }
+    unsigned long getPeerCertificate(void *buffer, unsigned long size) override
     {
         return inner_->getPeerCertificate(buffer, size);
     }
@@ -705,10 +643,7 @@ class dcm_guarded_connection : public DcmTransportConnection
             return OFTrue;
         return inner_->networkDataAvailable(timeout);
     }
-    OFBool isTransparentConnection() override
-    {
-        return inner_->isTransparentConnection();
-    }
+    OFBool isTransparentConnection() override { return inner_->isTransparentConnection(); }
     OFString &dumpConnectionParameters(OFString &text) override
     {
         return inner_->dumpConnectionParameters(text);
@@ -764,19 +699,17 @@ bool dcm_guarded_connection::read_first_pdu()
     if (header[0] != 0x01) /* not an A-ASSOCIATE-RQ: DCMTK answers it */
         return true;
     size_t length = (static_cast<size_t>(header[2]) << 24) |
-                    (static_cast<size_t>(header[3]) << 16) |
-                    (static_cast<size_t>(header[4]) << 8) | header[5];
+                    (static_cast<size_t>(header[3]) << 16) | (static_cast<size_t>(header[4]) << 8) |
+                    header[5];
     std::string reason;
     if (length > DCM_MAX_ASSOCIATE_RQ_BYTES) {
-        reason = "A-ASSOCIATE-RQ of " + std::to_string(length) +
-                 " bytes (at most " +
+        reason = "A-ASSOCIATE-RQ of " + std::to_string(length) + " bytes (at most " +
                  std::to_string(DCM_MAX_ASSOCIATE_RQ_BYTES) + " read)";
     } else {
         first_.resize(sizeof header + length);
         if (!read_exactly(first_.data() + sizeof header, length))
             return incomplete();
-        if (dcm_associate_rq_valid(first_.data() + sizeof header, length,
-                                   reason))
+        if (dcm_associate_rq_valid(first_.data() + sizeof header, length, reason))
             return true;
     }
     /* PS3.8 9.3.8: A-ABORT, source service provider (2), reason invalid
@@ -785,9 +718,8 @@ bool dcm_guarded_connection::read_first_pdu()
     (void)inner_->write(abort_pdu, sizeof abort_pdu);
     unsigned long suppressed = 0;
     if (dcm_peer_line_allowed(server_, &suppressed))
-        log_warning("association request from %s refused (A-ABORT): %s%s",
-                    peer_.c_str(), reason.c_str(),
-                    dcm_suppressed_note(suppressed).c_str());
+        log_warning("association request from %s refused (A-ABORT): %s%s", peer_.c_str(),
+                    reason.c_str(), dcm_suppressed_note(suppressed).c_str());
     first_.clear();
     dcm_negotiation_refused(server_);
     return false;
@@ -817,8 +749,7 @@ ssize_t dcm_guarded_connection::read(void *buffer, size_t size)
 
 /* Registers the connection DCMTK has just accepted on the calling
  * thread, or says why it must be closed unread. */
-static bool dcm_negotiation_begin(dcm_server *server,
-                                  DcmNativeSocketType socket,
+static bool dcm_negotiation_begin(dcm_server *server, DcmNativeSocketType socket,
                                   std::string &peer);
 
 /* A transport layer (plain or TLS) whose connections are counted,
@@ -833,46 +764,36 @@ template <class Layer> class dcm_guarded_layer : public Layer
         : Layer(std::forward<Arguments>(arguments)...), server_(server)
     {
     }
-    DcmTransportConnection *createConnection(DcmNativeSocketType socket,
-                                             OFBool secure) override
+    DcmTransportConnection *createConnection(DcmNativeSocketType socket, OFBool secure) override
     {
         std::string peer;
         if (!dcm_negotiation_begin(server_, socket, peer))
             return NULL; /* DCMTK closes the socket */
-        DcmTransportConnection *inner =
-            Layer::createConnection(socket, secure);
+        DcmTransportConnection *inner = Layer::createConnection(socket, secure);
         if (inner == NULL)
             return NULL;
-        dcm_guarded_connection *guarded = new (std::nothrow)
-            dcm_guarded_connection(server_, socket, inner, peer);
-        return guarded != NULL ? static_cast<DcmTransportConnection *>(guarded)
-                               : inner;
+        dcm_guarded_connection *guarded =
+            new (std::nothrow) dcm_guarded_connection(server_, socket, inner, peer);
+        return guarded != NULL ? static_cast<DcmTransportConnection *>(guarded) : inner;
     }
 
   private:
     dcm_server *server_;
 };
 
-static bool dcm_negotiation_begin(dcm_server *server,
-                                  DcmNativeSocketType socket,
-                                  std::string &peer)
+static bool dcm_negotiation_begin(dcm_server *server, DcmNativeSocketType socket, std::string &peer)
 {
     struct sockaddr_storage address;
     socklen_t size = sizeof address;
     char text[INET6_ADDRSTRLEN] = "?";
     memset(&address, 0, sizeof address);
-    if (getpeername(socket, reinterpret_cast<struct sockaddr *>(&address),
-                    &size) == 0) {
+    if (getpeername(socket, reinterpret_cast<struct sockaddr *>(&address), &size) == 0) {
         if (address.ss_family == AF_INET)
-            inet_ntop(AF_INET,
-                      &reinterpret_cast<struct sockaddr_in *>(&address)
-                           ->sin_addr,
-                      text, sizeof text);
+            inet_ntop(AF_INET, &reinterpret_cast<struct sockaddr_in *>(&address)->sin_addr, text,
+                      sizeof text);
         else if (address.ss_family == AF_INET6)
-            inet_ntop(AF_INET6,
-                      &reinterpret_cast<struct sockaddr_in6 *>(&address)
-                           ->sin6_addr,
-                      text, sizeof text);
+            inet_ntop(AF_INET6, &reinterpret_cast<struct sockaddr_in6 *>(&address)->sin6_addr, text,
+                      sizeof text);
     }
     peer = text;
     const char *refusal = NULL;
@@ -893,12 +814,11 @@ static bool dcm_negotiation_begin(dcm_server *server,
             if (watch < 0) {
                 refusal = "no file descriptor left";
             } else {
-                dcm_negotiation &entry =
-                    server->negotiations[std::this_thread::get_id()];
+                dcm_negotiation &entry = server->negotiations[std::this_thread::get_id()];
                 entry.peer = peer;
                 entry.watch_fd = watch;
-                entry.deadline = std::chrono::steady_clock::now() +
-                                 std::chrono::seconds(server->acse_timeout);
+                entry.deadline =
+                    std::chrono::steady_clock::now() + std::chrono::seconds(server->acse_timeout);
                 from_peer++;
                 server->need_acceptor = true;
                 server->wake.notify_all();
@@ -918,11 +838,10 @@ static bool dcm_negotiation_begin(dcm_server *server,
     if (limit > 0)
         log_warning("connection from %s closed unread: %u connections are "
                     "negotiating already (%s)%s",
-                    peer.c_str(), limit, refusal,
-                    dcm_suppressed_note(suppressed).c_str());
+                    peer.c_str(), limit, refusal, dcm_suppressed_note(suppressed).c_str());
     else
-        log_warning("connection from %s closed unread: %s%s", peer.c_str(),
-                    refusal, dcm_suppressed_note(suppressed).c_str());
+        log_warning("connection from %s closed unread: %s%s", peer.c_str(), refusal,
+                    dcm_suppressed_note(suppressed).c_str());
     return false;
 }
 
@@ -937,8 +856,7 @@ static void dcm_negotiation_refused(dcm_server *server)
 /* Ends the calling thread's negotiation, if it had one: true when this
  * thread's connection had been accepted (the thread now owns it).
  * expired: closed at its deadline or refused (both already logged). */
-static bool dcm_negotiation_end(dcm_server *server, std::string &peer,
-                                bool &expired)
+static bool dcm_negotiation_end(dcm_server *server, std::string &peer, bool &expired)
 {
     std::lock_guard<std::mutex> lock(server->mutex);
     auto entry = server->negotiations.find(std::this_thread::get_id());
@@ -982,8 +900,7 @@ static void dcm_negotiation_watch(dcm_server *server, bool all)
 /* Connection threads                                                  */
 /* ------------------------------------------------------------------ */
 
-static void dcm_reject_and_drop(T_ASC_Association *assoc,
-                                T_ASC_RejectParameters *reject)
+static void dcm_reject_and_drop(T_ASC_Association *assoc, T_ASC_RejectParameters *reject)
 {
     if (reject != NULL)
         ASC_rejectAssociation(assoc, reject);
@@ -991,8 +908,7 @@ static void dcm_reject_and_drop(T_ASC_Association *assoc,
     ASC_destroyAssociation(&assoc);
 }
 
-static void dcm_refuse_busy(dcm_server *server, T_ASC_Association *assoc,
-                            unsigned long id)
+static void dcm_refuse_busy(dcm_server *server, T_ASC_Association *assoc, unsigned long id)
 {
     T_ASC_RejectParameters reject;
     reject.result = ASC_RESULT_REJECTEDTRANSIENT;
@@ -1002,8 +918,7 @@ static void dcm_refuse_busy(dcm_server *server, T_ASC_Association *assoc,
     log_warning("association %lu from AE '%s' (%s): 0 objects, refused "
                 "(too many associations: %u in progress)",
                 id, dcm_trim(assoc->params->DULparams.callingAPTitle).c_str(),
-                assoc->params->DULparams.callingPresentationAddress,
-                server->max_associations);
+                assoc->params->DULparams.callingPresentationAddress, server->max_associations);
     dcm_reject_and_drop(assoc, &reject);
 }
 
@@ -1048,9 +963,9 @@ static void dcm_connection_run(dcm_server *server, dcm_association_thread *self)
     try {
         while (!server->stopping) {
             T_ASC_Association *assoc = NULL;
-            OFCondition condition = ASC_receiveAssociation(
-                server->network, &assoc, static_cast<long>(server->max_pdu),
-                NULL, NULL, server->tls ? OFTrue : OFFalse, DUL_NOBLOCK, 1);
+            OFCondition condition =
+                ASC_receiveAssociation(server->network, &assoc, static_cast<long>(server->max_pdu),
+                                       NULL, NULL, server->tls ? OFTrue : OFFalse, DUL_NOBLOCK, 1);
             std::string peer;
             bool expired = false;
             if (!dcm_negotiation_end(server, peer, expired)) {
@@ -1085,8 +1000,7 @@ static void dcm_connection_run(dcm_server *server, dcm_association_thread *self)
 
 static void dcm_reap_threads(dcm_server *server, bool all)
 {
-    for (auto entry = server->threads.begin();
-         entry != server->threads.end();) {
+    for (auto entry = server->threads.begin(); entry != server->threads.end();) {
         if (all || (*entry)->finished) {
             (*entry)->thread.join();
             entry = server->threads.erase(entry);
@@ -1099,8 +1013,7 @@ static void dcm_reap_threads(dcm_server *server, bool all)
 static bool dcm_spawn_connection_thread(dcm_server *server)
 {
     try {
-        std::unique_ptr<dcm_association_thread> entry(
-            new dcm_association_thread);
+        std::unique_ptr<dcm_association_thread> entry(new dcm_association_thread);
         dcm_association_thread *self = entry.get();
         server->threads.push_back(std::move(entry));
         try {
@@ -1157,8 +1070,7 @@ static void dcm_listen_guarded(dcm_server *server)
     } catch (...) {
         mitilog_error error;
         dcm_error_from_exception(&error, MITILOG_ERROR_IO, "listener");
-        log_error("DICOM listener on port %u stopped: %s", server->port,
-                  error.text);
+        log_error("DICOM listener on port %u stopped: %s", server->port, error.text);
         server->stopping = true;
         dcm_reap_threads(server, true);
     }
@@ -1168,31 +1080,24 @@ static void dcm_listen_guarded(dcm_server *server)
 /* C API                                                               */
 /* ------------------------------------------------------------------ */
 
-static bool dcm_is_set(const char *text)
-{
-    return text != NULL && text[0] != '\0';
-}
+static bool dcm_is_set(const char *text) { return text != NULL && text[0] != '\0'; }
 
-mitilog_status dcm_server_create(const dcm_server_settings *settings,
-                                 dcm_store_handler handler, void *context,
-                                 dcm_server **out, mitilog_error *error)
+mitilog_status dcm_server_create(const dcm_server_settings *settings, dcm_store_handler handler,
+                                 void *context, dcm_server **out, mitilog_error *error)
 {
     if (settings == NULL || handler == NULL || out == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "dcm_server_create: NULL argument");
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "dcm_server_create: NULL argument");
     *out = NULL;
     std::string ae_title = dcm_trim(settings->ae_title);
     if (ae_title.empty() || ae_title.size() > 16)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "AE title '%s' must have 1 to 16 characters",
-                                 ae_title.c_str());
+                                 "AE title '%s' must have 1 to 16 characters", ae_title.c_str());
     if (settings->port > 65535)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "port %u out of range", settings->port);
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "port %u out of range",
+                                 settings->port);
     bool certificate = dcm_is_set(settings->tls_certificate_file);
     bool key = dcm_is_set(settings->tls_private_key_file);
-    if (certificate != key ||
-        (dcm_is_set(settings->tls_ca_file) && !certificate))
+    if (certificate != key || (dcm_is_set(settings->tls_ca_file) && !certificate))
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "TLS needs both a certificate and a private "
                                  "key file (and both for a CA file)");
@@ -1201,24 +1106,19 @@ mitilog_status dcm_server_create(const dcm_server_settings *settings,
         server->ae_title = ae_title;
         server->port = settings->port;
         server->have_allowlist = settings->allowed_peers != NULL;
-        for (size_t i = 0;
-             server->have_allowlist && i < settings->allowed_peer_count; i++) {
+        for (size_t i = 0; server->have_allowlist && i < settings->allowed_peer_count; i++) {
             const dcm_allowed_peer *peer = &settings->allowed_peers[i];
-            server->allowed_peers.emplace_back(
-                dcm_trim(peer->ae_title),
-                dcm_is_set(peer->address) ? peer->address : "");
+            server->allowed_peers.emplace_back(dcm_trim(peer->ae_title),
+                                               dcm_is_set(peer->address) ? peer->address : "");
         }
-        server->max_associations =
-            settings->max_associations > 0 ? settings->max_associations : 1;
+        server->max_associations = settings->max_associations > 0 ? settings->max_associations : 1;
         if (settings->max_negotiations > 0)
             server->max_negotiations = settings->max_negotiations;
         if (settings->max_negotiations_per_address > 0)
-            server->max_negotiations_per_address =
-                settings->max_negotiations_per_address;
+            server->max_negotiations_per_address = settings->max_negotiations_per_address;
         if (settings->acse_timeout_seconds > 0)
             server->acse_timeout = settings->acse_timeout_seconds;
-        uint32_t pdu =
-            settings->max_pdu > 0 ? settings->max_pdu : ASC_DEFAULTMAXPDU;
+        uint32_t pdu = settings->max_pdu > 0 ? settings->max_pdu : ASC_DEFAULTMAXPDU;
         server->max_pdu = pdu < ASC_MINIMUMPDUSIZE   ? ASC_MINIMUMPDUSIZE
                           : pdu > ASC_MAXIMUMPDUSIZE ? ASC_MAXIMUMPDUSIZE
                                                      : pdu;
@@ -1258,8 +1158,7 @@ static mitilog_status dcm_tls_check(mitilog_error *error, const char *what,
 {
     return condition.good()
                ? MITILOG_OK
-               : dcm_error_from_condition(error, MITILOG_ERROR_INVALID, what,
-                                          condition);
+               : dcm_error_from_condition(error, MITILOG_ERROR_INVALID, what, condition);
 }
 
 /* BCP 195 profile; with a CA file the peer must show a certificate that
@@ -1270,32 +1169,26 @@ static mitilog_status dcm_tls_setup(dcm_server *server, mitilog_error *error)
         server, NET_ACCEPTOR, static_cast<const char *>(NULL), OFTrue);
     server->layer.reset(layer);
     DcmTLSTransportLayer &tls = *layer;
-    mitilog_status status = dcm_tls_check(
-        error, "TLS profile BCP 195", tls.setTLSProfile(TSP_Profile_BCP195));
+    mitilog_status status =
+        dcm_tls_check(error, "TLS profile BCP 195", tls.setTLSProfile(TSP_Profile_BCP195));
     if (status == MITILOG_OK)
         status = dcm_tls_check(
             error, server->tls_private_key_file.c_str(),
-            tls.setPrivateKeyFile(server->tls_private_key_file.c_str(),
-                                  DCF_Filetype_PEM));
+            tls.setPrivateKeyFile(server->tls_private_key_file.c_str(), DCF_Filetype_PEM));
     if (status == MITILOG_OK)
         status = dcm_tls_check(
             error, server->tls_certificate_file.c_str(),
-            tls.setCertificateFile(server->tls_certificate_file.c_str(),
-                                   DCF_Filetype_PEM));
+            tls.setCertificateFile(server->tls_certificate_file.c_str(), DCF_Filetype_PEM));
     if (status == MITILOG_OK && !tls.checkPrivateKeyMatchesCertificate())
         status = mitilog_error_set(
-            error, MITILOG_ERROR_INVALID,
-            "TLS private key %s does not match certificate %s",
-            server->tls_private_key_file.c_str(),
-            server->tls_certificate_file.c_str());
+            error, MITILOG_ERROR_INVALID, "TLS private key %s does not match certificate %s",
+            server->tls_private_key_file.c_str(), server->tls_certificate_file.c_str());
     if (status == MITILOG_OK)
-        status = dcm_tls_check(error, "TLS cipher suites",
-                               tls.activateCipherSuites());
+        status = dcm_tls_check(error, "TLS cipher suites", tls.activateCipherSuites());
     if (status == MITILOG_OK && server->tls_require_client) {
-        status =
-            dcm_tls_check(error, server->tls_ca_file.c_str(),
-                          tls.addTrustedCertificateFile(
-                              server->tls_ca_file.c_str(), DCF_Filetype_PEM));
+        status = dcm_tls_check(
+            error, server->tls_ca_file.c_str(),
+            tls.addTrustedCertificateFile(server->tls_ca_file.c_str(), DCF_Filetype_PEM));
         tls.setCertificateVerification(DCV_requireCertificate);
     } else if (status == MITILOG_OK) {
         tls.setCertificateVerification(DCV_ignoreCertificate);
@@ -1313,8 +1206,7 @@ static mitilog_status dcm_check_memory_files(mitilog_error *error)
 {
     int fd = memfd_create("mitilog-check", MFD_CLOEXEC);
     if (fd < 0)
-        return mitilog_error_set(error, MITILOG_ERROR_IO,
-                                 "memfd_create: %s", strerror(errno));
+        return mitilog_error_set(error, MITILOG_ERROR_IO, "memfd_create: %s", strerror(errno));
     std::string path = "/proc/self/fd/" + std::to_string(fd);
     FILE *file = fopen(path.c_str(), "wb");
     int saved = errno;
@@ -1332,38 +1224,33 @@ static mitilog_status dcm_check_memory_files(mitilog_error *error)
 mitilog_status dcm_server_start(dcm_server *server, mitilog_error *error)
 {
     if (server == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "dcm_server_start: NULL server");
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "dcm_server_start: NULL server");
     if (server->started)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "DICOM server already started");
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "DICOM server already started");
     try {
         dcmDisableGethostbyaddr.set(OFTrue); /* no reverse DNS per peer */
         mitilog_status checked = dcm_check_memory_files(error);
         if (checked != MITILOG_OK)
             return checked;
         errno = 0;
-        OFCondition condition = ASC_initializeNetwork(
-            NET_ACCEPTOR, static_cast<int>(server->port),
-            static_cast<int>(server->acse_timeout), &server->network);
+        OFCondition condition =
+            ASC_initializeNetwork(NET_ACCEPTOR, static_cast<int>(server->port),
+                                  static_cast<int>(server->acse_timeout), &server->network);
         if (condition.bad()) {
             /* DCMTK's text usually carries strerror() already. */
             const char *reason = errno != 0 ? strerror(errno) : "";
             bool known = reason[0] == '\0' || strstr(condition.text(), reason);
             server->network = NULL;
-            return mitilog_error_set(
-                error, MITILOG_ERROR_IO, "DICOM port %u: %s%s%s", server->port,
-                condition.text(), known ? "" : ": ", known ? "" : reason);
+            return mitilog_error_set(error, MITILOG_ERROR_IO, "DICOM port %u: %s%s%s", server->port,
+                                     condition.text(), known ? "" : ": ", known ? "" : reason);
         }
         mitilog_status status = MITILOG_OK;
         if (server->tls) {
             status = dcm_tls_setup(server, error);
         } else {
-            server->layer.reset(
-                new dcm_guarded_layer<DcmTransportLayer>(server));
-            status = dcm_tls_check(
-                error, "transport layer",
-                ASC_setTransportLayer(server->network, server->layer.get(), 0));
+            server->layer.reset(new dcm_guarded_layer<DcmTransportLayer>(server));
+            status = dcm_tls_check(error, "transport layer",
+                                   ASC_setTransportLayer(server->network, server->layer.get(), 0));
         }
         if (status != MITILOG_OK) {
             ASC_dropNetwork(&server->network);
@@ -1376,16 +1263,14 @@ mitilog_status dcm_server_start(dcm_server *server, mitilog_error *error)
         log_info("DICOM server '%s' listening on port %u%s "
                  "(max_associations %u; negotiating at most %u, %u per "
                  "address, %u s each)",
-                 server->ae_title.c_str(), server->port,
-                 server->tls ? " with TLS" : "", server->max_associations,
-                 server->max_negotiations,
+                 server->ae_title.c_str(), server->port, server->tls ? " with TLS" : "",
+                 server->max_associations, server->max_negotiations,
                  server->max_negotiations_per_address, server->acse_timeout);
         return MITILOG_OK;
     } catch (...) {
         if (server->network != NULL)
             ASC_dropNetwork(&server->network);
-        return dcm_error_from_exception(error, MITILOG_ERROR_IO,
-                                        "dcm_server_start");
+        return dcm_error_from_exception(error, MITILOG_ERROR_IO, "dcm_server_start");
     }
 }
 
@@ -1406,8 +1291,7 @@ void dcm_server_stop(dcm_server *server)
     if (server->network != NULL)
         ASC_dropNetwork(&server->network);
     server->started = false;
-    log_info("DICOM server '%s' on port %u stopped", server->ae_title.c_str(),
-             server->port);
+    log_info("DICOM server '%s' on port %u stopped", server->ae_title.c_str(), server->port);
 }
 
 void dcm_server_free(dcm_server *server)

@@ -25,15 +25,21 @@ const char *exam_index_name(exam_index index)
     return (unsigned)index < EXAM_INDEX_COUNT ? names[index] : "unknown";
 }
 
-static const char *const exam_mode_names[EXAM_MODE_COUNT] = {
-    "2d", "m", "cw", "pw", "colour", "colour_m", "3d", "power",
-    "tissue_characterization", "spatially_related_frames"};
+static const char *const exam_mode_names[EXAM_MODE_COUNT] = {"2d",
+                                                             "m",
+                                                             "cw",
+                                                             "pw",
+                                                             "colour",
+                                                             "colour_m",
+                                                             "3d",
+                                                             "power",
+                                                             "tissue_characterization",
+                                                             "spatially_related_frames"};
 
 /* PS3.3 C.8.5.6.1.1: the Image Type value 4 bit of each mode, in
  * exam_mode order (the only place those bit values are written). */
 static const unsigned exam_image_type_bits[EXAM_MODE_COUNT] = {
-    0x0001, 0x0002, 0x0004, 0x0008, 0x0010, 0x0020, 0x0040, 0x0100,
-    0x0200, 0x0400};
+    0x0001, 0x0002, 0x0004, 0x0008, 0x0010, 0x0020, 0x0040, 0x0100, 0x0200, 0x0400};
 
 unsigned exam_modes_image_type_bits(unsigned modes)
 {
@@ -141,8 +147,7 @@ exam_index exam_governing_index(exam_governing rule, int has_gestational_age,
             return EXAM_INDEX_TIB;
         }
         *source = "gestational_age";
-        return gestational_age_weeks < EXAM_OSSIFICATION_WEEKS ? EXAM_INDEX_TIS
-                                                               : EXAM_INDEX_TIB;
+        return gestational_age_weeks < EXAM_OSSIFICATION_WEEKS ? EXAM_INDEX_TIS : EXAM_INDEX_TIB;
     case EXAM_GOVERNING_TIS: break;
     }
     *source = "exam_type";

@@ -51,7 +51,7 @@ const char *exam_value_status_name(exam_value_status status);
 
 typedef struct exam_number {
     exam_value_status status;
-    double value;    /* meaningful only when status == EXAM_VALUE_OK */
+    double value; /* meaningful only when status == EXAM_VALUE_OK */
 } exam_number;
 
 /* ---- Indices (docs/domain.md section 1) ----------------------------- */
@@ -76,14 +76,14 @@ const char *exam_index_name(exam_index index);
  * bitmap of PS3.3 C.8.5.6.1.1 (whose bit values ext_modes.c decodes);
  * the API lists modes in this order. */
 typedef enum exam_mode {
-    EXAM_MODE_2D = 0,          /* B-mode / 2D imaging         */
-    EXAM_MODE_M,               /* M-mode                      */
-    EXAM_MODE_CW,              /* CW Doppler                  */
-    EXAM_MODE_PW,              /* PW Doppler                  */
-    EXAM_MODE_COLOUR,          /* colour (flow) Doppler       */
-    EXAM_MODE_COLOUR_M,        /* colour M-mode               */
-    EXAM_MODE_3D,              /* 3D rendering (3D/4D)        */
-    EXAM_MODE_POWER,           /* colour power (Doppler) mode */
+    EXAM_MODE_2D = 0,   /* B-mode / 2D imaging         */
+    EXAM_MODE_M,        /* M-mode                      */
+    EXAM_MODE_CW,       /* CW Doppler                  */
+    EXAM_MODE_PW,       /* PW Doppler                  */
+    EXAM_MODE_COLOUR,   /* colour (flow) Doppler       */
+    EXAM_MODE_COLOUR_M, /* colour M-mode               */
+    EXAM_MODE_3D,       /* 3D rendering (3D/4D)        */
+    EXAM_MODE_POWER,    /* colour power (Doppler) mode */
     EXAM_MODE_TISSUE_CHARACTERIZATION,
     EXAM_MODE_SPATIALLY_RELATED_FRAMES,
     EXAM_MODE_COUNT
@@ -93,10 +93,9 @@ typedef enum exam_mode {
 
 /* The modes that count as Doppler (time in Doppler, first-trimester
  * Doppler rule). */
-#define EXAM_MODES_DOPPLER                                                       \
-    (EXAM_MODE_BIT(EXAM_MODE_CW) | EXAM_MODE_BIT(EXAM_MODE_PW) |                 \
-     EXAM_MODE_BIT(EXAM_MODE_COLOUR) | EXAM_MODE_BIT(EXAM_MODE_COLOUR_M) |       \
-     EXAM_MODE_BIT(EXAM_MODE_POWER))
+#define EXAM_MODES_DOPPLER                                                                         \
+    (EXAM_MODE_BIT(EXAM_MODE_CW) | EXAM_MODE_BIT(EXAM_MODE_PW) | EXAM_MODE_BIT(EXAM_MODE_COLOUR) | \
+     EXAM_MODE_BIT(EXAM_MODE_COLOUR_M) | EXAM_MODE_BIT(EXAM_MODE_POWER))
 
 /* The DICOM encoding of a mode set: the bits of Image Type (0008,0008)
  * value 4 of US images [std: DICOM PS3.3 C.8.5.6.1.1: 0001 2D, 0002 M,
@@ -137,7 +136,7 @@ typedef enum exam_governing {
     EXAM_GOVERNING_TIS = 0,
     EXAM_GOVERNING_TIB,
     EXAM_GOVERNING_TIC,
-    EXAM_GOVERNING_BY_GESTATION  /* TIS below EXAM_OSSIFICATION_WEEKS, else TIB */
+    EXAM_GOVERNING_BY_GESTATION /* TIS below EXAM_OSSIFICATION_WEEKS, else TIB */
 } exam_governing;
 
 /* Bone ossifies from roughly 10 weeks of gestation (docs/domain.md
@@ -161,7 +160,7 @@ typedef enum exam_group {
     EXAM_GROUP_NEONATAL,     /* neonatal head and body */
     EXAM_GROUP_TRANSCRANIAL, /* adult head */
     EXAM_GROUP_OPHTHALMIC,
-    EXAM_GROUP_CONTRAST,     /* gas contrast agents */
+    EXAM_GROUP_CONTRAST, /* gas contrast agents */
     EXAM_GROUP_COUNT
 } exam_group;
 
@@ -176,9 +175,9 @@ int exam_group_parse(const char *text, exam_group *group);
 /* One row of a dwell table: the longest time allowed at or above a
  * displayed TI (docs/policy.md, rule kind dwell). */
 typedef struct exam_dwell_step {
-    double threshold;        /* TI at or above */
-    double minutes;          /* longest time allowed, unless not_recommended */
-    int not_recommended;     /* any time at all is a finding */
+    double threshold;    /* TI at or above */
+    double minutes;      /* longest time allowed, unless not_recommended */
+    int not_recommended; /* any time at all is a finding */
 } exam_dwell_step;
 
 enum { EXAM_MAX_DWELL_STEPS = 16 };
@@ -189,14 +188,14 @@ enum { EXAM_MAX_DWELL_STEPS = 16 };
  * Strings point into the policy. */
 typedef struct exam_limits {
     exam_group group;
-    const char *age_group;           /* "adult", "child", "neonate" */
+    const char *age_group; /* "adult", "child", "neonate" */
     int has_ti_ceiling, has_mi_ceiling, has_mi_equipment, has_ti_equipment;
-    double ti_ceiling;               /* governing TI (rule kind ti_ceiling) */
-    double mi_ceiling;               /* rule kind mi_ceiling */
+    double ti_ceiling;                 /* governing TI (rule kind ti_ceiling) */
+    double mi_ceiling;                 /* rule kind mi_ceiling */
     double mi_equipment, ti_equipment; /* rule kind equipment_maxima */
-    const char *dwell_rule;          /* the dwell rule that applies; NULL: none */
+    const char *dwell_rule;            /* the dwell rule that applies; NULL: none */
     exam_dwell_step dwell[EXAM_MAX_DWELL_STEPS];
-    size_t dwell_count;              /* ascending thresholds */
+    size_t dwell_count; /* ascending thresholds */
 } exam_limits;
 
 /* ---- A finding ------------------------------------------------------ */
@@ -219,27 +218,27 @@ int exam_severity_parse(const char *text, exam_severity *severity);
 typedef struct exam_finding {
     char *rule_id;
     exam_severity severity;
-    char *quantity;          /* "tib", "mi", "time_at_or_above", "cem43", ... */
+    char *quantity; /* "tib", "mi", "time_at_or_above", "cem43", ... */
     double measured;
-    char *unit;              /* "", "min", "CEM43 min", "instances" */
-    double limit;            /* meaningful when has_limit */
+    char *unit;   /* "", "min", "CEM43 min", "instances" */
+    double limit; /* meaningful when has_limit */
     int has_limit;
-    double threshold;        /* dwell: the TI threshold; else 0 */
-    exam_index index;         /* governing index used, when has_index */
+    double threshold; /* dwell: the TI threshold; else 0 */
+    exam_index index; /* governing index used, when has_index */
     int has_index;
-    char **instance_uids;    /* the instances that produced it */
+    char **instance_uids; /* the instances that produced it */
     size_t instance_count;
-    double first_seconds;    /* time span of those instances, when has_span */
+    double first_seconds; /* time span of those instances, when has_span */
     double last_seconds;
     int has_span;
-    double estimated_seconds;  /* timeline time behind it (dwell: time at
+    double estimated_seconds; /* timeline time behind it (dwell: time at
                                   or above; Doppler: time in Doppler) */
-    char *assumptions;       /* "estimate: gap cap 300 s; ..." or "" */
-    int provisional;         /* exam not closed */
+    char *assumptions;        /* "estimate: gap cap 300 s; ..." or "" */
+    int provisional;          /* exam not closed */
     char policy_version[HASH_HEX_SIZE];
-    char *source;            /* the rule's source text, for users */
-    char *study_instance_uid;  /* NULL for output_not_reported */
-    char *room;                /* output_not_reported: the group */
+    char *source;             /* the rule's source text, for users */
+    char *study_instance_uid; /* NULL for output_not_reported */
+    char *room;               /* output_not_reported: the group */
     char *transducer;
 } exam_finding;
 
@@ -248,12 +247,12 @@ typedef struct exam_finding {
  * from the exam timeline on the policy's gap cap. */
 typedef struct exam_measurements {
     exam_index governing_index;
-    double max_index[EXAM_INDEX_COUNT];   /* when index_reported[i] */
+    double max_index[EXAM_INDEX_COUNT]; /* when index_reported[i] */
     int index_reported[EXAM_INDEX_COUNT];
-    double estimated_seconds;   /* timeline estimate (after the SR bound) */
-    double span_seconds;        /* last capture time - first */
-    double doppler_seconds;     /* estimated time in Doppler modes */
-    double cem43_minutes;       /* thermal dose, an estimate */
+    double estimated_seconds; /* timeline estimate (after the SR bound) */
+    double span_seconds;      /* last capture time - first */
+    double doppler_seconds;   /* estimated time in Doppler modes */
+    double cem43_minutes;     /* thermal dose, an estimate */
     /* timeline seconds with the governing index at or above
      * exam_ti_ladder[k] */
     double seconds_at_or_above[EXAM_TI_STEP_COUNT];
@@ -265,17 +264,17 @@ typedef struct exam_measurements {
  * the policy engine describes them (rules_policy_rule_at) and the store
  * writes them into the policy document. Strings point into the policy. */
 typedef struct exam_setting {
-    const char *key;     /* "limit", "limit.group.ophthalmic", "dwell.1.0" */
-    const char *value;   /* normalised: "2", "off", "not_recommended" */
+    const char *key;   /* "limit", "limit.group.ophthalmic", "dwell.1.0" */
+    const char *value; /* normalised: "2", "off", "not_recommended" */
 } exam_setting;
 
 typedef struct exam_rule_info {
     const char *id;
-    const char *kind;    /* "ti_ceiling", "dwell", ... */
+    const char *kind; /* "ti_ceiling", "dwell", ... */
     exam_severity severity;
     int enabled;
     const char *source;
-    const char *description;   /* one line, what the rule checks */
+    const char *description; /* one line, what the rule checks */
     const exam_setting *settings;
     size_t setting_count;
 } exam_rule_info;
@@ -288,10 +287,10 @@ typedef struct exam_rule_info {
 typedef struct exam_device_instance {
     const char *sop_instance_uid;
     const char *study_instance_uid;
-    const char *room;          /* station name or department; NULL = "" */
+    const char *room; /* station name or department; NULL = "" */
     const char *transducer;
-    int has_any_index;         /* any of the six indices ok */
-    double time_seconds;       /* acquisition time, when has_time */
+    int has_any_index;   /* any of the six indices ok */
+    double time_seconds; /* acquisition time, when has_time */
     int has_time;
 } exam_device_instance;
 
@@ -308,26 +307,26 @@ typedef struct exam_rule_count {
  * it. NULL strings: not recorded, or not asked for. */
 typedef struct exam_row {
     const char *study_instance_uid;
-    const char *day;             /* local date of the first capture */
+    const char *day; /* local date of the first capture */
     const char *exam_type, *exam_type_label, *governing_index;
     const char *room, *preset, *shift, *transducer;
     const char *study_description, *first_acquired_at;
-    double max_governing;        /* highest governing TI, when has_governing */
+    double max_governing; /* highest governing TI, when has_governing */
     int has_governing;
-    double max_mi;               /* when has_mi */
+    double max_mi; /* when has_mi */
     int has_mi;
-    double estimated_seconds;    /* timeline estimate */
+    double estimated_seconds; /* timeline estimate */
     /* timeline seconds with the governing index at or above
      * exam_ti_ladder[k] (an estimate) */
     double seconds_at_or_above[EXAM_TI_STATISTICS_STEPS];
-    size_t capture_count;        /* captures that could carry indices */
-    size_t indexed_count;        /* ... of which carried at least one */
-    size_t finding_count;        /* findings of the current policy */
-    size_t informational_count;  /* ... of which advisories below their own
+    size_t capture_count;         /* captures that could carry indices */
+    size_t indexed_count;         /* ... of which carried at least one */
+    size_t finding_count;         /* findings of the current policy */
+    size_t informational_count;   /* ... of which advisories below their own
                                     limit: informational, counted apart */
-    const exam_rule_count *rules;  /* findings by rule (the report joins them) */
+    const exam_rule_count *rules; /* findings by rule (the report joins them) */
     size_t rule_count;
-    int worst_severity;          /* the most severe finding: an
+    int worst_severity; /* the most severe finding: an
                                     EXAM_SEVERITY_RANK_ (filled with every
                                     column only, else 0) */
 } exam_row;
@@ -346,12 +345,12 @@ enum {
 /* An image, cine loop or volume of an exam as the timeline and the rules
  * read it; filled by the exam record (ext_exam_build). */
 typedef struct exam_capture {
-    const char *sop_instance_uid;  /* borrowed; NULL when not known */
-    double time_seconds;     /* acquisition time on any fixed scale */
-    int has_time;            /* 0: no usable acquisition time */
-    double cine_seconds;     /* frames x frame time / 1000; 0 if single */
+    const char *sop_instance_uid; /* borrowed; NULL when not known */
+    double time_seconds;          /* acquisition time on any fixed scale */
+    int has_time;                 /* 0: no usable acquisition time */
+    double cine_seconds;          /* frames x frame time / 1000; 0 if single */
     exam_number indices[EXAM_INDEX_COUNT];
-    unsigned modes;          /* EXAM_MODE_BIT set; 0 if unknown */
+    unsigned modes; /* EXAM_MODE_BIT set; 0 if unknown */
 } exam_capture;
 
 #ifdef __cplusplus

@@ -26,7 +26,6 @@
 extern "C" {
 #endif
 
-
 /* Decimal String (PS3.5 6.2, VR DS): leading/trailing spaces allowed,
  * at most 16 characters, [+-]digits[.digits][(E|e)[+-]digits]. Exactly one
  * value (VM 1): a backslash makes it invalid. NULL or all spaces: missing. */
@@ -42,7 +41,6 @@ exam_number ext_parse_integer_string(const char *raw);
  * negative and the sum above 0; MISSING when absent or empty; else
  * INVALID. */
 exam_number ext_frame_time_vector(const char *raw, double *sum_ms);
-
 
 typedef enum ext_time_source {
     EXT_TIME_NONE = 0,
@@ -61,8 +59,7 @@ enum { EXT_ISO_TIME_SIZE = 40 };
  * ("YYYY-MM-DDTHH:MM:SS[.ffffff][+HH:MM]"); the offset is appended only
  * when the DT carries one or timezone_offset (0008,0201, "+HHMM") is
  * given. Returns 0 on success, -1 if the values are missing or malformed. */
-int ext_iso_from_date_time(const char *date, const char *time,
-                           const char *timezone_offset,
+int ext_iso_from_date_time(const char *date, const char *time, const char *timezone_offset,
                            char out[EXT_ISO_TIME_SIZE]);
 int ext_iso_from_dt(const char *date_time, const char *timezone_offset,
                     char out[EXT_ISO_TIME_SIZE]);
@@ -70,16 +67,15 @@ int ext_iso_from_dt(const char *date_time, const char *timezone_offset,
 /* Acquisition time with the fall-backs of docs/domain.md:
  * acquisition date-time, acquisition date + time, content date + time,
  * instance creation date + time, then study date + time. */
-ext_time_source ext_acquisition_time(const dcm_facts *facts,
-                                     char out[EXT_ISO_TIME_SIZE]);
+ext_time_source ext_acquisition_time(const dcm_facts *facts, char out[EXT_ISO_TIME_SIZE]);
 
 /* What kind of object an instance is, from its SOP Class UID. */
 typedef enum ext_object_kind {
-    EXT_KIND_OTHER = 0,   /* any other class: no acoustic record */
-    EXT_KIND_IMAGE,       /* US Image Storage (and its retired UID) */
-    EXT_KIND_MULTIFRAME,  /* US Multi-frame Image Storage (and retired) */
-    EXT_KIND_VOLUME,      /* Enhanced US Volume Storage */
-    EXT_KIND_SR           /* Comprehensive, Enhanced, Comprehensive 3D SR */
+    EXT_KIND_OTHER = 0,  /* any other class: no acoustic record */
+    EXT_KIND_IMAGE,      /* US Image Storage (and its retired UID) */
+    EXT_KIND_MULTIFRAME, /* US Multi-frame Image Storage (and retired) */
+    EXT_KIND_VOLUME,     /* Enhanced US Volume Storage */
+    EXT_KIND_SR          /* Comprehensive, Enhanced, Comprehensive 3D SR */
 } ext_object_kind;
 
 ext_object_kind ext_object_kind_of(const char *sop_class_uid);
@@ -96,59 +92,59 @@ typedef struct ext_record {
     char *station_name;
     char *institutional_department_name;
     char *study_description;
-    char *accession_number;         /* (0008,0050), NULL when absent */
+    char *accession_number; /* (0008,0050), NULL when absent */
     char *protocol_name;
     char *transfer_syntax_uid;
-    char *calling_ae_title;         /* "" for imported files */
-    char *source_path;              /* imported file, NULL for network */
+    char *calling_ae_title; /* "" for imported files */
+    char *source_path;      /* imported file, NULL for network */
 
-    char acquired_at[EXT_ISO_TIME_SIZE];  /* "" when no time at all */
+    char acquired_at[EXT_ISO_TIME_SIZE]; /* "" when no time at all */
     ext_time_source acquired_at_source;
-    char received_at[EXT_ISO_TIME_SIZE];  /* UTC, set by the caller */
+    char received_at[EXT_ISO_TIME_SIZE]; /* UTC, set by the caller */
 
     exam_number number_of_frames;
-    exam_number frame_time_ms;      /* Frame Time, else the mean of Frame
+    exam_number frame_time_ms;       /* Frame Time, else the mean of Frame
                                     * Time Vector's values after the first */
-    int frame_time_from_vector;    /* 1 when frame_time_ms came from it */
+    int frame_time_from_vector;      /* 1 when frame_time_ms came from it */
     double frame_time_vector_sum_ms; /* its exact sum, when used */
 
-    int is_ultrasound;             /* modality US or an US SOP class */
+    int is_ultrasound; /* modality US or an US SOP class */
     exam_number indices[EXAM_INDEX_COUNT];
     char *index_raw[EXAM_INDEX_COUNT]; /* raw text as sent, NULL if absent */
 
-    int text_replaced;   /* some text was not UTF-8: bad bytes became U+FFFD */
+    int text_replaced; /* some text was not UTF-8: bad bytes became U+FFFD */
 
     /* ---- Exam context: filled by ext_record_enrich() (ext_context.c);
      * zero / NULL until then. *_source members are static provenance
      * names (docs/extraction.md), NULL when the value is absent. ---- */
     int enriched;
     ext_object_kind kind;
-    int has_acoustic_record;       /* an US image, cine, volume or SR */
-    char *specific_character_set;  /* as sent */
+    int has_acoustic_record;      /* an US image, cine, volume or SR */
+    char *specific_character_set; /* as sent */
     char *image_type;
     char *series_description;
     char *body_part_examined;
     char *performed_procedure_step_description;
-    char *procedure_codes;         /* "SCHEME:CODE meaning\\..." */
+    char *procedure_codes; /* "SCHEME:CODE meaning\\..." */
 
-    unsigned modes;                /* union of the three sources below */
-    unsigned modes_image_type;     /* Image Type value 4 (ext_modes.h) */
-    int image_type_bitmap_status;  /* ext_bitmap_status */
-    unsigned image_type_bitmap;    /* the raw 16 bits when ok */
-    unsigned modes_regions;        /* Region Data Types */
-    unsigned modes_sr;             /* SR mode containers */
-    int modes_conflict;            /* image type and regions disagree */
+    unsigned modes;               /* union of the three sources below */
+    unsigned modes_image_type;    /* Image Type value 4 (ext_modes.h) */
+    int image_type_bitmap_status; /* ext_bitmap_status */
+    unsigned image_type_bitmap;   /* the raw 16 bits when ok */
+    unsigned modes_regions;       /* Region Data Types */
+    unsigned modes_sr;            /* SR mode containers */
+    int modes_conflict;           /* image type and regions disagree */
 
-    char *transducer_data;         /* (0018,5010), all values */
+    char *transducer_data; /* (0018,5010), all values */
     const char *transducer_source;
-    char *transducer_type;         /* (0018,6031) */
+    char *transducer_type; /* (0018,6031) */
     int has_frequency;
-    unsigned frequency_khz;        /* (0018,6030) of the first region with one */
-    char frequency_source[48];     /* "ultrasound_region_N" */
-    double cine_seconds;           /* frames x frame time, or the sum of
+    unsigned frequency_khz;    /* (0018,6030) of the first region with one */
+    char frequency_source[48]; /* "ultrasound_region_N" */
+    double cine_seconds;       /* frames x frame time, or the sum of
                                     * Frame Acquisition Durations */
 
-    char *exam_type;               /* key of the site's exam type */
+    char *exam_type; /* key of the site's exam type */
     char *exam_type_label;
     const char *exam_type_source;
     int has_governing_index;
@@ -158,20 +154,24 @@ typedef struct ext_record {
     double gestational_age_weeks;
     char gestational_age_source[160];
     int trimester;
-    char *preset;              const char *preset_source;
-    char *room;                const char *room_source;
-    char *shift;               const char *shift_source;
-    const char *age_group;     const char *age_group_source;
-    char *operator_name;       const char *operator_source;
+    char *preset;
+    const char *preset_source;
+    char *room;
+    const char *room_source;
+    char *shift;
+    const char *shift_source;
+    const char *age_group;
+    const char *age_group_source;
+    char *operator_name;
+    const char *operator_source;
 
-    struct ext_sr_result *sr;      /* SR objects only, else NULL */
-    char overlong_fields[256];     /* comma-separated field names */
+    struct ext_sr_result *sr;  /* SR objects only, else NULL */
+    char overlong_fields[256]; /* comma-separated field names */
 } ext_record;
 
 /* Builds the record. Fails (MITILOG_ERROR_INVALID) only when the object
  * cannot be stored at all: no SOP Instance UID or no SOP Class UID. */
-mitilog_status ext_record_from_facts(const dcm_facts *facts,
-                                     ext_record *record,
+mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
                                      mitilog_error *error);
 void ext_record_free(ext_record *record);
 
@@ -180,10 +180,8 @@ struct ext_site_rules;
  * shift, age group, operator, SR values, governing index, gestational
  * age) by the site's rules. extra may be NULL. Call after setting
  * calling_ae_title and received_at. Fails only when out of memory. */
-mitilog_status ext_record_enrich(ext_record *record, const dcm_facts *facts,
-                                 const dcm_extra *extra,
-                                 const struct ext_site_rules *rules,
-                                 mitilog_error *error);
+mitilog_status ext_record_enrich(ext_record *record, const dcm_facts *facts, const dcm_extra *extra,
+                                 const struct ext_site_rules *rules, mitilog_error *error);
 /* Frees what ext_record_enrich() added (called by ext_record_free). */
 void ext_record_free_context(ext_record *record);
 

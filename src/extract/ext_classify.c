@@ -10,16 +10,15 @@
 
 static int present(const char *text) { return text != NULL && text[0] != '\0'; }
 
-const ext_exam_type *ext_classify_exam_type(const ext_site_rules *rules,
-                                            const char *const *fields, const char **source)
+const ext_exam_type *ext_classify_exam_type(const ext_site_rules *rules, const char *const *fields,
+                                            const char **source)
 {
     *source = NULL;
     long cached = -1;
     if (rules->classify_cache != NULL &&
         ext_classify_cache_get(rules->classify_cache, fields, &cached, source))
-        return cached >= 0 && (size_t)cached < rules->exam_type_count
-                   ? &rules->exam_types[cached]
-                   : NULL;
+        return cached >= 0 && (size_t)cached < rules->exam_type_count ? &rules->exam_types[cached]
+                                                                      : NULL;
     const ext_exam_type *found = NULL;
     for (size_t t = 0; t < rules->exam_type_count && found == NULL; t++) {
         const ext_exam_type *type = &rules->exam_types[t];
@@ -121,8 +120,8 @@ static long days_from_civil(int y, int m, int d)
     return era * 146097 + doe - 719468;
 }
 
-int ext_age(const char *patient_age, const char *birth_date, const char *study_date,
-            long *days, long *years, const char **source)
+int ext_age(const char *patient_age, const char *birth_date, const char *study_date, long *days,
+            long *years, const char **source)
 {
     int by, bm, bd, sy, sm, sd;
     *source = NULL;
@@ -145,10 +144,22 @@ int ext_age(const char *patient_age, const char *birth_date, const char *study_d
         if (strlen(text) >= 4 && sscanf(text, "%3d%c%n", &number, &unit, &consumed) == 2 &&
             consumed == 4 && number >= 0 && strspn(text + 4, " ") == strlen(text + 4)) {
             switch (unit) {
-            case 'D': *days = number; *years = number / 365; break;
-            case 'W': *days = 7L * number; *years = 7L * number / 365; break;
-            case 'M': *days = 30L * number; *years = number / 12; break;
-            case 'Y': *days = 365L * number; *years = number; break;
+            case 'D':
+                *days = number;
+                *years = number / 365;
+                break;
+            case 'W':
+                *days = 7L * number;
+                *years = 7L * number / 365;
+                break;
+            case 'M':
+                *days = 30L * number;
+                *years = number / 12;
+                break;
+            case 'Y':
+                *days = 365L * number;
+                *years = number;
+                break;
             default: return -1;
             }
             *source = "patient_age";
@@ -203,8 +214,8 @@ void ext_classify(const ext_site_rules *rules, const ext_classify_input *input,
     out->exam_type = ext_classify_exam_type(rules, input->fields, &out->exam_type_source);
     for (size_t i = 0; i < rules->preset_count && out->preset == NULL; i++) {
         const ext_preset_source *preset = &rules->presets[i];
-        const char *value = preset->is_private ? input->private_presets[i]
-                                               : input->fields[preset->field];
+        const char *value =
+            preset->is_private ? input->private_presets[i] : input->fields[preset->field];
         if (present(value)) {
             out->preset = value;
             out->preset_source = preset->is_private ? "private_tag" : ext_field_name(preset->field);

@@ -24,7 +24,7 @@ enum { EXT_CLASSIFY_CACHE_ENTRIES = 512, EXT_CLASSIFY_KEY_MAX = 4096 };
  * pointer = the static field name of the match, or NULL. */
 struct ext_classify_cache {
     pthread_mutex_t lock;
-    hash_table answers;         /* under lock */
+    hash_table answers; /* under lock */
 };
 
 struct ext_classify_cache *ext_classify_cache_create(void)

@@ -21,14 +21,14 @@ ext_object_kind ext_object_kind_of(const char *uid)
         const char *uid;
         ext_object_kind kind;
     } classes[] = {
-        {"1.2.840.10008.5.1.4.1.1.6.1", EXT_KIND_IMAGE},       /* US Image */
-        {"1.2.840.10008.5.1.4.1.1.6", EXT_KIND_IMAGE},         /* retired */
-        {"1.2.840.10008.5.1.4.1.1.3.1", EXT_KIND_MULTIFRAME},  /* US Multi-frame */
-        {"1.2.840.10008.5.1.4.1.1.3", EXT_KIND_MULTIFRAME},    /* retired */
-        {"1.2.840.10008.5.1.4.1.1.6.2", EXT_KIND_VOLUME},      /* Enhanced US Volume */
-        {"1.2.840.10008.5.1.4.1.1.88.33", EXT_KIND_SR},        /* Comprehensive SR */
-        {"1.2.840.10008.5.1.4.1.1.88.22", EXT_KIND_SR},        /* Enhanced SR */
-        {"1.2.840.10008.5.1.4.1.1.88.34", EXT_KIND_SR},        /* Comprehensive 3D SR */
+        {"1.2.840.10008.5.1.4.1.1.6.1", EXT_KIND_IMAGE},      /* US Image */
+        {"1.2.840.10008.5.1.4.1.1.6", EXT_KIND_IMAGE},        /* retired */
+        {"1.2.840.10008.5.1.4.1.1.3.1", EXT_KIND_MULTIFRAME}, /* US Multi-frame */
+        {"1.2.840.10008.5.1.4.1.1.3", EXT_KIND_MULTIFRAME},   /* retired */
+        {"1.2.840.10008.5.1.4.1.1.6.2", EXT_KIND_VOLUME},     /* Enhanced US Volume */
+        {"1.2.840.10008.5.1.4.1.1.88.33", EXT_KIND_SR},       /* Comprehensive SR */
+        {"1.2.840.10008.5.1.4.1.1.88.22", EXT_KIND_SR},       /* Enhanced SR */
+        {"1.2.840.10008.5.1.4.1.1.88.34", EXT_KIND_SR},       /* Comprehensive 3D SR */
     };
     for (size_t i = 0; uid != NULL && i < sizeof classes / sizeof classes[0]; i++)
         if (strcmp(uid, classes[i].uid) == 0)
@@ -43,15 +43,14 @@ const char *ext_object_kind_name(ext_object_kind kind)
 }
 
 /* A value of facts as UTF-8 (converted by DCMTK, or decoded here). */
-static char *value_copy(const dcm_facts *facts, dcm_attribute attribute, int *failed,
-                        int *replaced)
+static char *value_copy(const dcm_facts *facts, dcm_attribute attribute, int *failed, int *replaced)
 {
     const char *raw = facts->values[attribute];
     if (raw == NULL)
         return NULL;
-    const char *charset =
-        facts->character_set_converted ? "ISO_IR 192"
-                                       : facts->values[DCM_ATTRIBUTE_SPECIFIC_CHARACTER_SET];
+    const char *charset = facts->character_set_converted
+                              ? "ISO_IR 192"
+                              : facts->values[DCM_ATTRIBUTE_SPECIFIC_CHARACTER_SET];
     return ext_text_decode(raw, charset, replaced, failed);
 }
 
@@ -101,9 +100,8 @@ static void add_transducer(ext_record *record, const dcm_facts *facts)
 
 static void add_cine(ext_record *record, const dcm_extra *extra)
 {
-    double frames = record->number_of_frames.status == EXAM_VALUE_OK
-                        ? record->number_of_frames.value
-                        : 1;
+    double frames =
+        record->number_of_frames.status == EXAM_VALUE_OK ? record->number_of_frames.value : 1;
     if (record->frame_time_from_vector) {
         /* the vector's exact sum: first frame to last [PS3.3 C.7.6.5.1.2] */
         record->cine_seconds = record->frame_time_vector_sum_ms / 1000.0;
@@ -167,9 +165,8 @@ static void add_gestational_age(ext_record *record, const ext_exam_type *type)
     }
 }
 
-mitilog_status ext_record_enrich(ext_record *record, const dcm_facts *facts,
-                                 const dcm_extra *extra, const ext_site_rules *rules,
-                                 mitilog_error *error)
+mitilog_status ext_record_enrich(ext_record *record, const dcm_facts *facts, const dcm_extra *extra,
+                                 const ext_site_rules *rules, mitilog_error *error)
 {
     ext_record_free_context(record);
     int failed = 0, *replaced = &record->text_replaced;
@@ -178,13 +175,16 @@ mitilog_status ext_record_enrich(ext_record *record, const dcm_facts *facts,
     record->has_acoustic_record = record->kind != EXT_KIND_OTHER;
     record->specific_character_set =
         copy_text(facts->values[DCM_ATTRIBUTE_SPECIFIC_CHARACTER_SET], &failed);
-    if (record->specific_character_set != NULL && !ext_text_is_utf8(record->specific_character_set)) {
+    if (record->specific_character_set != NULL &&
+        !ext_text_is_utf8(record->specific_character_set)) {
         free(record->specific_character_set);
         record->specific_character_set = NULL;
     }
     record->image_type = value_copy(facts, DCM_ATTRIBUTE_IMAGE_TYPE, &failed, replaced);
-    record->series_description = value_copy(facts, DCM_ATTRIBUTE_SERIES_DESCRIPTION, &failed, replaced);
-    record->body_part_examined = value_copy(facts, DCM_ATTRIBUTE_BODY_PART_EXAMINED, &failed, replaced);
+    record->series_description =
+        value_copy(facts, DCM_ATTRIBUTE_SERIES_DESCRIPTION, &failed, replaced);
+    record->body_part_examined =
+        value_copy(facts, DCM_ATTRIBUTE_BODY_PART_EXAMINED, &failed, replaced);
     record->performed_procedure_step_description =
         value_copy(facts, DCM_ATTRIBUTE_PERFORMED_PROCEDURE_STEP_DESCRIPTION, &failed, replaced);
     record->transducer_data = value_copy(facts, DCM_ATTRIBUTE_TRANSDUCER_DATA, &failed, replaced);
@@ -192,16 +192,18 @@ mitilog_status ext_record_enrich(ext_record *record, const dcm_facts *facts,
     const char *charset = facts->values[DCM_ATTRIBUTE_SPECIFIC_CHARACTER_SET];
     char *private_values[EXT_SITE_PRESET_SOURCES_MAX] = {NULL};
     if (extra != NULL) {
-        record->procedure_codes = ext_text_decode(extra->procedure_codes, charset, replaced, &failed);
+        record->procedure_codes =
+            ext_text_decode(extra->procedure_codes, charset, replaced, &failed);
         for (size_t i = 0; i < EXT_SITE_PRESET_SOURCES_MAX && i < DCM_EXTRA_PRIVATE_MAX; i++)
-            private_values[i] = ext_text_decode(extra->private_values[i], charset, replaced, &failed);
+            private_values[i] =
+                ext_text_decode(extra->private_values[i], charset, replaced, &failed);
     }
     char *operators = value_copy(facts, DCM_ATTRIBUTE_OPERATORS_NAME, &failed, replaced);
 
     if (record->kind == EXT_KIND_SR && facts->sr_item_count > 0 && !failed) {
         record->sr = calloc(1, sizeof *record->sr);
-        if (record->sr == NULL ||
-            ext_sr_map(rules, facts->sr_items, facts->sr_item_count, record->sr, error) != MITILOG_OK)
+        if (record->sr == NULL || ext_sr_map(rules, facts->sr_items, facts->sr_item_count,
+                                             record->sr, error) != MITILOG_OK)
             failed = 1;
         else
             record->modes_sr = record->sr->modes;

@@ -61,8 +61,7 @@ static void choose_exam_type(const ext_site_rules *rules, const ext_exam_instanc
              best_votes, count);
 }
 
-static void choose_gestational_age(const ext_exam_instance *instances, size_t count,
-                                   ext_exam *exam)
+static void choose_gestational_age(const ext_exam_instance *instances, size_t count, ext_exam *exam)
 {
     /* The latest report wins (instances come in acquisition order). */
     for (size_t i = count; i-- > 0;) {
@@ -90,13 +89,13 @@ mitilog_status ext_exam_build(const ext_site_rules *rules, const ext_exam_instan
 {
     memset(exam, 0, sizeof *exam);
     exam->instance_count = count;
-    exam->gap_cap_seconds = rules->gap_cap_seconds > 0 ? rules->gap_cap_seconds
-                                                       : EXT_TIMELINE_DEFAULT_GAP_CAP_SECONDS;
+    exam->gap_cap_seconds =
+        rules->gap_cap_seconds > 0 ? rules->gap_cap_seconds : EXT_TIMELINE_DEFAULT_GAP_CAP_SECONDS;
     choose_exam_type(rules, instances, count, exam);
     choose_gestational_age(instances, count, exam);
-    exam->governing_index = ext_governing_index(exam->exam_type, exam->has_gestational_age,
-                                                exam->gestational_age_weeks,
-                                                &exam->governing_index_source);
+    exam->governing_index =
+        ext_governing_index(exam->exam_type, exam->has_gestational_age, exam->gestational_age_weeks,
+                            &exam->governing_index_source);
     size_t captures = 0;
     for (size_t i = 0; i < count; i++)
         captures += instances[i].is_capture != 0;
@@ -119,7 +118,8 @@ mitilog_status ext_exam_build(const ext_site_rules *rules, const ext_exam_instan
         }
         if (instance->kind != NULL && strcmp(instance->kind, "sr") == 0)
             exam->sr_count++;
-        if (instance->has_sr_scan_time && instance->sr_scan_time_seconds > exam->sr_scan_time_seconds)
+        if (instance->has_sr_scan_time &&
+            instance->sr_scan_time_seconds > exam->sr_scan_time_seconds)
             exam->sr_scan_time_seconds = instance->sr_scan_time_seconds;
         if (!instance->is_capture) {
             exam->other_count += instance->kind == NULL || strcmp(instance->kind, "sr") != 0;
@@ -134,8 +134,8 @@ mitilog_status ext_exam_build(const ext_site_rules *rules, const ext_exam_instan
                     take_max(&exam->mode_maxima[m][x], instance->indices[x]);
         }
         exam_capture *capture = &exam->captures[exam->capture_count];
-        double seconds = instance->acquired_at != NULL ? ext_iso_to_seconds(instance->acquired_at)
-                                                       : -1;
+        double seconds =
+            instance->acquired_at != NULL ? ext_iso_to_seconds(instance->acquired_at) : -1;
         capture->has_time = seconds >= 0;
         capture->time_seconds = seconds >= 0 ? seconds : 0;
         capture->cine_seconds = instance->cine_seconds > 0 ? instance->cine_seconds : 0;

@@ -31,11 +31,11 @@
 /* What the exam needs of one instance (filled from the store). */
 typedef struct ext_exam_instance {
     char *sop_instance_uid;
-    char *kind;                 /* "image", "multiframe", "volume", "sr", "other" */
-    char *acquired_at;          /* ISO, NULL if none */
-    char *exam_type;            /* key, NULL if unclassified */
+    char *kind;        /* "image", "multiframe", "volume", "sr", "other" */
+    char *acquired_at; /* ISO, NULL if none */
+    char *exam_type;   /* key, NULL if unclassified */
     char *exam_type_source;
-    int is_capture;             /* an ultrasound image, cine or volume */
+    int is_capture; /* an ultrasound image, cine or volume */
     exam_number indices[EXAM_INDEX_COUNT];
     unsigned modes;
     double cine_seconds;
@@ -49,7 +49,7 @@ typedef struct ext_exam_instance {
 enum { EXT_EXAM_SOURCE_SIZE = 200 };
 
 typedef struct ext_exam {
-    const ext_exam_type *exam_type;  /* NULL: unclassified */
+    const ext_exam_type *exam_type; /* NULL: unclassified */
     char exam_type_source[EXT_EXAM_SOURCE_SIZE];
     exam_index governing_index;
     const char *governing_index_source;
@@ -62,25 +62,24 @@ typedef struct ext_exam {
     exam_number maxima[EXAM_INDEX_COUNT];
     exam_number mode_maxima[EXAM_MODE_COUNT][EXAM_INDEX_COUNT];
     double gap_cap_seconds;
-    double sr_scan_time_seconds;     /* 0: none */
-    exam_capture *captures;           /* capture_count */
-    size_t *capture_instance;        /* capture -> instance index */
-    ext_timeline_entry *entries;     /* summary.entry_count used */
+    double sr_scan_time_seconds; /* 0: none */
+    exam_capture *captures;      /* capture_count */
+    size_t *capture_instance;    /* capture -> instance index */
+    ext_timeline_entry *entries; /* summary.entry_count used */
     ext_timeline_summary summary;
 } ext_exam;
 
 /* The governing index of an exam type at a gestational age; *source is
  * "exam_type", "gestational_age", "gestational_age_unknown" or "default". */
 exam_index ext_governing_index(const ext_exam_type *type, int has_gestational_age,
-                              double gestational_age_weeks, const char **source);
+                               double gestational_age_weeks, const char **source);
 
 /* The policy group of an exam type: its group key, else obstetric for
  * obstetric types, else general (also without an exam type). */
 exam_group ext_exam_type_group(const ext_exam_type *type);
 
-mitilog_status ext_exam_build(const ext_site_rules *rules,
-                              const ext_exam_instance *instances, size_t count,
-                              ext_exam *exam, mitilog_error *error);
+mitilog_status ext_exam_build(const ext_site_rules *rules, const ext_exam_instance *instances,
+                              size_t count, ext_exam *exam, mitilog_error *error);
 void ext_exam_free(ext_exam *exam);
 
 #endif

@@ -70,8 +70,7 @@ ext_bitmap ext_modes_from_image_type(const char *image_type)
     return result;
 }
 
-unsigned ext_modes_from_regions(const ext_region_mode_input *regions,
-                                size_t count)
+unsigned ext_modes_from_regions(const ext_region_mode_input *regions, size_t count)
 {
     unsigned modes = 0;
     for (size_t i = 0; i < count; i++) {
@@ -81,8 +80,7 @@ unsigned ext_modes_from_regions(const ext_region_mode_input *regions,
             modes |= EXAM_MODE_BIT(m_mode ? EXAM_MODE_M : EXAM_MODE_2D);
             break;
         case 0x0002: /* color flow */
-            modes |= EXAM_MODE_BIT(m_mode ? EXAM_MODE_COLOUR_M
-                                         : EXAM_MODE_COLOUR);
+            modes |= EXAM_MODE_BIT(m_mode ? EXAM_MODE_COLOUR_M : EXAM_MODE_COLOUR);
             break;
         case 0x0003: modes |= EXAM_MODE_BIT(EXAM_MODE_PW); break;
         case 0x0004: modes |= EXAM_MODE_BIT(EXAM_MODE_CW); break;
@@ -92,30 +90,25 @@ unsigned ext_modes_from_regions(const ext_region_mode_input *regions,
     return modes;
 }
 
-int ext_modes_conflict(const ext_bitmap *bitmap, unsigned region_modes,
-                       size_t region_count)
+int ext_modes_conflict(const ext_bitmap *bitmap, unsigned region_modes, size_t region_count)
 {
-    if (bitmap->status != EXT_BITMAP_OK || region_count == 0 ||
-        region_modes == 0)
+    if (bitmap->status != EXT_BITMAP_OK || region_count == 0 || region_modes == 0)
         return 0;
     /* Modes a region cannot express: compare only what both can say.
      * Colour power is drawn in a color flow region. */
     unsigned comparable = EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_M) |
                           EXAM_MODE_BIT(EXAM_MODE_CW) | EXAM_MODE_BIT(EXAM_MODE_PW) |
-                          EXAM_MODE_BIT(EXAM_MODE_COLOUR) |
-                          EXAM_MODE_BIT(EXAM_MODE_COLOUR_M);
+                          EXAM_MODE_BIT(EXAM_MODE_COLOUR) | EXAM_MODE_BIT(EXAM_MODE_COLOUR_M);
     unsigned from_bitmap = bitmap->modes & comparable;
     if (bitmap->modes & EXAM_MODE_BIT(EXAM_MODE_POWER))
         from_bitmap |= EXAM_MODE_BIT(EXAM_MODE_COLOUR);
     return from_bitmap != (region_modes & comparable);
 }
 
-unsigned ext_modes_union(const ext_bitmap *bitmap, unsigned region_modes,
-                         unsigned sr_modes)
+unsigned ext_modes_union(const ext_bitmap *bitmap, unsigned region_modes, unsigned sr_modes)
 {
     unsigned from_regions = region_modes;
-    if (bitmap->status == EXT_BITMAP_OK &&
-        (bitmap->modes & EXAM_MODE_BIT(EXAM_MODE_POWER)) &&
+    if (bitmap->status == EXT_BITMAP_OK && (bitmap->modes & EXAM_MODE_BIT(EXAM_MODE_POWER)) &&
         !(bitmap->modes & EXAM_MODE_BIT(EXAM_MODE_COLOUR)))
         from_regions &= ~EXAM_MODE_BIT(EXAM_MODE_COLOUR);
     return bitmap->modes | from_regions | sr_modes;

@@ -36,9 +36,9 @@ typedef enum ext_bitmap_status {
 
 typedef struct ext_bitmap {
     ext_bitmap_status status;
-    unsigned modes;         /* exam_mode bits of the defined bits set */
-    unsigned raw;           /* the 16-bit value as sent               */
-    unsigned unknown_bits;  /* set bits PS3.3 does not define          */
+    unsigned modes;        /* exam_mode bits of the defined bits set */
+    unsigned raw;          /* the 16-bit value as sent               */
+    unsigned unknown_bits; /* set bits PS3.3 does not define          */
 } ext_bitmap;
 
 /* Decodes value 4 of a backslash-separated Image Type (raw, may be NULL;
@@ -56,20 +56,17 @@ typedef struct ext_region_mode_input {
 } ext_region_mode_input;
 
 /* Mode bits of the regions. */
-unsigned ext_modes_from_regions(const ext_region_mode_input *regions,
-                                size_t count);
+unsigned ext_modes_from_regions(const ext_region_mode_input *regions, size_t count);
 
 /* 1 when both sources are present and give different sets. The bitmap's
  * 2D-only extras that regions cannot express (3D, power, tissue
  * characterization, spatially related frames) are not a conflict. */
-int ext_modes_conflict(const ext_bitmap *bitmap, unsigned region_modes,
-                       size_t region_count);
+int ext_modes_conflict(const ext_bitmap *bitmap, unsigned region_modes, size_t region_count);
 
 /* The instance's modes: the union of the three sources, except that a
  * color flow region of an image whose bitmap says Color Power Mode
  * without Color Doppler (0100 set, 0010 not) is that power mode, not a
  * colour Doppler one [std: DICOM PS3.3 C.8.5.6.1.1 and C.8.5.5.1.2]. */
-unsigned ext_modes_union(const ext_bitmap *bitmap, unsigned region_modes,
-                         unsigned sr_modes);
+unsigned ext_modes_union(const ext_bitmap *bitmap, unsigned region_modes, unsigned sr_modes);
 
 #endif

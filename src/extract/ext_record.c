@@ -84,7 +84,7 @@ static char *exact_duplicate(const char *raw, int *failed, int *replaced)
 int ext_uid_is_valid(const char *uid)
 {
     size_t length = 0;
-    size_t component = 0;  /* digits in the current component */
+    size_t component = 0; /* digits in the current component */
     int leading_zero = 0;
     for (const char *c = uid; *c != '\0'; c++, length++) {
         if (length >= 64)
@@ -117,8 +117,10 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
      * Latin-1 (ISO_IR 100) is decoded here [std: DICOM PS3.3 C.12.1.1.2]. */
     int latin1 = !facts->character_set_converted &&
                  ext_charset_is_latin1(values[DCM_ATTRIBUTE_SPECIFIC_CHARACTER_SET]);
-    record->sop_class_uid = trimmed_duplicate(values[DCM_ATTRIBUTE_SOP_CLASS_UID], &failed, &record->text_replaced, latin1);
-    record->sop_instance_uid = trimmed_duplicate(values[DCM_ATTRIBUTE_SOP_INSTANCE_UID], &failed, &record->text_replaced, latin1);
+    record->sop_class_uid = trimmed_duplicate(values[DCM_ATTRIBUTE_SOP_CLASS_UID], &failed,
+                                              &record->text_replaced, latin1);
+    record->sop_instance_uid = trimmed_duplicate(values[DCM_ATTRIBUTE_SOP_INSTANCE_UID], &failed,
+                                                 &record->text_replaced, latin1);
     if (!failed && (record->sop_instance_uid == NULL || record->sop_instance_uid[0] == '\0')) {
         ext_record_free(record);
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no SOP Instance UID (0008,0018)");
@@ -127,10 +129,10 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
         ext_record_free(record);
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no SOP Class UID (0008,0016)");
     }
-    record->study_instance_uid =
-        trimmed_duplicate(values[DCM_ATTRIBUTE_STUDY_INSTANCE_UID], &failed, &record->text_replaced, latin1);
-    record->series_instance_uid =
-        trimmed_duplicate(values[DCM_ATTRIBUTE_SERIES_INSTANCE_UID], &failed, &record->text_replaced, latin1);
+    record->study_instance_uid = trimmed_duplicate(values[DCM_ATTRIBUTE_STUDY_INSTANCE_UID],
+                                                   &failed, &record->text_replaced, latin1);
+    record->series_instance_uid = trimmed_duplicate(values[DCM_ATTRIBUTE_SERIES_INSTANCE_UID],
+                                                    &failed, &record->text_replaced, latin1);
     if (!failed) {
         /* An identifier that is not a UID is refused rather than stored:
          * it would name files and API paths (PS3.5 section 9.1). The
@@ -151,20 +153,26 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
             mitilog_error_set(error, MITILOG_ERROR_INVALID,
                               "%s '%.80s%s' is not a valid UID (digits and dots, no "
                               "leading zero in a component, at most 64 bytes)",
-                              uids[i].name, uids[i].value,
-                              strlen(uids[i].value) > 80 ? "..." : "");
+                              uids[i].name, uids[i].value, strlen(uids[i].value) > 80 ? "..." : "");
             ext_record_free(record);
             return MITILOG_ERROR_INVALID;
         }
     }
-    record->modality = trimmed_duplicate(values[DCM_ATTRIBUTE_MODALITY], &failed, &record->text_replaced, latin1);
-    record->station_name = trimmed_duplicate(values[DCM_ATTRIBUTE_STATION_NAME], &failed, &record->text_replaced, latin1);
+    record->modality =
+        trimmed_duplicate(values[DCM_ATTRIBUTE_MODALITY], &failed, &record->text_replaced, latin1);
+    record->station_name = trimmed_duplicate(values[DCM_ATTRIBUTE_STATION_NAME], &failed,
+                                             &record->text_replaced, latin1);
     record->institutional_department_name =
-        trimmed_duplicate(values[DCM_ATTRIBUTE_INSTITUTIONAL_DEPARTMENT_NAME], &failed, &record->text_replaced, latin1);
-    record->study_description = trimmed_duplicate(values[DCM_ATTRIBUTE_STUDY_DESCRIPTION], &failed, &record->text_replaced, latin1);
-    record->accession_number = trimmed_duplicate(values[DCM_ATTRIBUTE_ACCESSION_NUMBER], &failed, &record->text_replaced, latin1);
-    record->protocol_name = trimmed_duplicate(values[DCM_ATTRIBUTE_PROTOCOL_NAME], &failed, &record->text_replaced, latin1);
-    record->transfer_syntax_uid = trimmed_duplicate(facts->transfer_syntax_uid, &failed, &record->text_replaced, latin1);
+        trimmed_duplicate(values[DCM_ATTRIBUTE_INSTITUTIONAL_DEPARTMENT_NAME], &failed,
+                          &record->text_replaced, latin1);
+    record->study_description = trimmed_duplicate(values[DCM_ATTRIBUTE_STUDY_DESCRIPTION], &failed,
+                                                  &record->text_replaced, latin1);
+    record->accession_number = trimmed_duplicate(values[DCM_ATTRIBUTE_ACCESSION_NUMBER], &failed,
+                                                 &record->text_replaced, latin1);
+    record->protocol_name = trimmed_duplicate(values[DCM_ATTRIBUTE_PROTOCOL_NAME], &failed,
+                                              &record->text_replaced, latin1);
+    record->transfer_syntax_uid =
+        trimmed_duplicate(facts->transfer_syntax_uid, &failed, &record->text_replaced, latin1);
 
     record->acquired_at_source = ext_acquisition_time(facts, record->acquired_at);
     record->number_of_frames = ext_parse_integer_string(values[DCM_ATTRIBUTE_NUMBER_OF_FRAMES]);
@@ -173,7 +181,7 @@ mitilog_status ext_record_from_facts(const dcm_facts *facts, ext_record *record,
         /* A cine may time its frames by Frame Time Vector instead (PS3.3
          * C.7.6.5, Frame Increment Pointer to (0018,1065)). */
         exam_number mean = ext_frame_time_vector(values[DCM_ATTRIBUTE_FRAME_TIME_VECTOR],
-                                                &record->frame_time_vector_sum_ms);
+                                                 &record->frame_time_vector_sum_ms);
         if (mean.status == EXAM_VALUE_OK) {
             record->frame_time_ms = mean;
             record->frame_time_from_vector = 1;

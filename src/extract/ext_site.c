@@ -11,9 +11,9 @@
 #include "extract/ext_modes.h"
 
 static const char *const field_names[EXT_FIELD_COUNT] = {
-    "study_description", "protocol_name",
-    "performed_procedure_step_description", "procedure_code",
-    "body_part_examined", "image_type_3", "series_description"};
+    "study_description", "protocol_name",      "performed_procedure_step_description",
+    "procedure_code",    "body_part_examined", "image_type_3",
+    "series_description"};
 
 static const char *const quantity_names[EXT_QUANTITY_COUNT] = {
     "mi", "tis", "tib", "tic", "scan_time", "gestational_age"};
@@ -26,8 +26,7 @@ static const struct {
     {"ProtocolName", EXT_FIELD_PROTOCOL_NAME},
     {"SeriesDescription", EXT_FIELD_SERIES_DESCRIPTION},
     {"StudyDescription", EXT_FIELD_STUDY_DESCRIPTION},
-    {"PerformedProcedureStepDescription",
-     EXT_FIELD_PERFORMED_PROCEDURE_STEP_DESCRIPTION},
+    {"PerformedProcedureStepDescription", EXT_FIELD_PERFORMED_PROCEDURE_STEP_DESCRIPTION},
 };
 
 const char *ext_field_name(ext_field field)
@@ -133,19 +132,19 @@ void ext_site_rules_free(ext_site_rules *rules)
     memset(rules, 0, sizeof *rules);
 }
 
-mitilog_status ext_site_add_exam_type(ext_site_rules *rules, const char *key,
-                                      ext_exam_type **out, mitilog_error *error)
+mitilog_status ext_site_add_exam_type(ext_site_rules *rules, const char *key, ext_exam_type **out,
+                                      mitilog_error *error)
 {
     for (size_t i = 0; i < rules->exam_type_count; i++)
         if (strcasecmp(rules->exam_types[i].key, key) == 0)
-            return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                     "exam type '%s' defined twice", key);
-    if (key[0] == '\0' || strlen(key) > 64 || strspn(key, "abcdefghijklmnopqrstuvwxyz"
-                                                          "0123456789_") != strlen(key))
+            return mitilog_error_set(error, MITILOG_ERROR_INVALID, "exam type '%s' defined twice",
+                                     key);
+    if (key[0] == '\0' || strlen(key) > 64 ||
+        strspn(key, "abcdefghijklmnopqrstuvwxyz"
+                    "0123456789_") != strlen(key))
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "exam type key '%s': use 1-64 of a-z, 0-9, _", key);
-    ext_exam_type *type = grow((void **)&rules->exam_types, &rules->exam_type_count,
-                               sizeof *type);
+    ext_exam_type *type = grow((void **)&rules->exam_types, &rules->exam_type_count, sizeof *type);
     if (type == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
     type->key = strdup(key);
@@ -156,8 +155,8 @@ mitilog_status ext_site_add_exam_type(ext_site_rules *rules, const char *key,
     return MITILOG_OK;
 }
 
-mitilog_status ext_site_add_match(ext_exam_type *type, ext_field field,
-                                  const char *pattern, mitilog_error *error)
+mitilog_status ext_site_add_match(ext_exam_type *type, ext_field field, const char *pattern,
+                                  mitilog_error *error)
 {
     regex_t regex;
     int rc = regcomp(&regex, pattern, REG_EXTENDED | REG_ICASE | REG_NOSUB);
@@ -209,16 +208,16 @@ mitilog_status ext_site_add_sr_code(ext_site_rules *rules, const char *scheme_co
                                     const char *target, mitilog_error *error)
 {
     const char *colon = strchr(scheme_code, ':');
-    if (colon == NULL || colon == scheme_code || colon[1] == '\0' ||
-        strlen(scheme_code) > 96)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "'%.100s' is not SCHEME:CODE", scheme_code);
+    if (colon == NULL || colon == scheme_code || colon[1] == '\0' || strlen(scheme_code) > 96)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "'%.100s' is not SCHEME:CODE",
+                                 scheme_code);
     int is_mode = strncasecmp(target, "mode:", 5) == 0;
     int value = is_mode ? exam_mode_from_name(target + 5) : ext_quantity_from_name(target);
     if (value < 0)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "'%.60s' is not mi, tis, tib, tic, scan_time, "
-                                 "gestational_age or mode:NAME", target);
+                                 "gestational_age or mode:NAME",
+                                 target);
     size_t scheme_length = (size_t)(colon - scheme_code);
     for (size_t i = 0; i < rules->sr_code_count; i++) {
         ext_sr_code *code = &rules->sr_codes[i];
@@ -247,8 +246,8 @@ mitilog_status ext_site_add_shift(ext_site_rules *rules, const char *name, ext_s
 {
     for (size_t i = 0; i < rules->shift_count; i++)
         if (strcasecmp(rules->shifts[i].name, name) == 0)
-            return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                     "shift '%s' defined twice", name);
+            return mitilog_error_set(error, MITILOG_ERROR_INVALID, "shift '%s' defined twice",
+                                     name);
     ext_shift *shift = grow((void **)&rules->shifts, &rules->shift_count, sizeof *shift);
     if (shift == NULL || (shift->name = strdup(name)) == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
@@ -285,7 +284,8 @@ static mitilog_status parse_preset(const char *text, ext_preset_source *source,
         if ((group & 1) == 0 || creator[0] == '\0' || strlen(creator) > 64)
             return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                      "'%.80s': a private tag needs an odd group and "
-                                     "its private creator: (0019,1001) CREATOR", text);
+                                     "its private creator: (0019,1001) CREATOR",
+                                     text);
         source->is_private = 1;
         source->group = (uint16_t)group;
         source->element = (uint16_t)element;
@@ -303,7 +303,8 @@ static mitilog_status parse_preset(const char *text, ext_preset_source *source,
     return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                              "'%.80s' is not ProtocolName, SeriesDescription, "
                              "StudyDescription, PerformedProcedureStepDescription "
-                             "or (gggg,eeee) CREATOR", text);
+                             "or (gggg,eeee) CREATOR",
+                             text);
 }
 
 mitilog_status ext_site_set_presets(ext_site_rules *rules, const char *list, mitilog_error *error)
@@ -333,8 +334,7 @@ mitilog_status ext_site_set_presets(ext_site_rules *rules, const char *list, mit
         while (length > 0 && item[length - 1] == ' ')
             item[--length] = '\0';
         if (count == EXT_SITE_PRESET_SOURCES_MAX) {
-            status = mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                       "at most %d preset attributes",
+            status = mitilog_error_set(error, MITILOG_ERROR_INVALID, "at most %d preset attributes",
                                        EXT_SITE_PRESET_SOURCES_MAX);
             break;
         }

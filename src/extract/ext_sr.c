@@ -34,16 +34,36 @@ static int normalise(ext_quantity quantity, double value, const char *unit, doub
     int none = unit == NULL || unit[0] == '\0';
     switch (quantity) {
     case EXT_QUANTITY_SCAN_TIME:
-        if (none) return 0;
-        if (strcmp(unit, "s") == 0) { *out = value; return 1; }
-        if (strcmp(unit, "min") == 0) { *out = value * 60.0; return 1; }
-        if (strcmp(unit, "ms") == 0) { *out = value / 1000.0; return 1; }
-        if (strcmp(unit, "h") == 0) { *out = value * 3600.0; return 1; }
+        if (none)
+            return 0;
+        if (strcmp(unit, "s") == 0) {
+            *out = value;
+            return 1;
+        }
+        if (strcmp(unit, "min") == 0) {
+            *out = value * 60.0;
+            return 1;
+        }
+        if (strcmp(unit, "ms") == 0) {
+            *out = value / 1000.0;
+            return 1;
+        }
+        if (strcmp(unit, "h") == 0) {
+            *out = value * 3600.0;
+            return 1;
+        }
         return 0;
     case EXT_QUANTITY_GESTATIONAL_AGE:
-        if (none) return 0;
-        if (strcmp(unit, "wk") == 0) { *out = value; return 1; }
-        if (strcmp(unit, "d") == 0) { *out = value / 7.0; return 1; }
+        if (none)
+            return 0;
+        if (strcmp(unit, "wk") == 0) {
+            *out = value;
+            return 1;
+        }
+        if (strcmp(unit, "d") == 0) {
+            *out = value / 7.0;
+            return 1;
+        }
         return 0;
     default:
         if (none || strcmp(unit, "1") == 0 || strcmp(unit, "{ratio}") == 0) {
@@ -64,8 +84,8 @@ static mitilog_status remember_scheme(ext_sr_result *result, const char *scheme)
     for (size_t i = 0; i < result->unknown_scheme_count; i++)
         if (strcmp(result->unknown_schemes[i], scheme) == 0)
             return MITILOG_OK;
-    char **grown = realloc(result->unknown_schemes,
-                           (result->unknown_scheme_count + 1) * sizeof *grown);
+    char **grown =
+        realloc(result->unknown_schemes, (result->unknown_scheme_count + 1) * sizeof *grown);
     if (grown == NULL)
         return MITILOG_ERROR_MEMORY;
     result->unknown_schemes = grown;
@@ -97,8 +117,8 @@ static mitilog_status add_value(ext_sr_result *result, const dcm_sr_item *item,
         return MITILOG_ERROR_MEMORY;
     snprintf(value->concept, length, "%s:%s", item->concept_scheme, item->concept_code);
     if (value->number.status == EXAM_VALUE_OK)
-        value->normalised_ok = normalise(quantity, value->number.value, value->unit,
-                                         &value->normalised);
+        value->normalised_ok =
+            normalise(quantity, value->number.value, value->unit, &value->normalised);
     if (!value->normalised_ok)
         return MITILOG_OK;
     if (quantity == EXT_QUANTITY_GESTATIONAL_AGE && !result->has_gestational_age) {

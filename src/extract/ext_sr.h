@@ -27,36 +27,35 @@
 
 typedef struct ext_sr_value {
     ext_quantity quantity;
-    exam_number number;          /* the NUM's DS text classified */
-    char *raw;                  /* numeric value as sent */
-    char *unit;                 /* UCUM code, NULL when none was sent */
-    int normalised_ok;          /* unit understood */
-    double normalised;          /* indices as is; scan time in s; GA in wk */
-    char *position;             /* "1.2.3" */
-    char *concept;              /* "SCHEME:CODE" */
+    exam_number number; /* the NUM's DS text classified */
+    char *raw;          /* numeric value as sent */
+    char *unit;         /* UCUM code, NULL when none was sent */
+    int normalised_ok;  /* unit understood */
+    double normalised;  /* indices as is; scan time in s; GA in wk */
+    char *position;     /* "1.2.3" */
+    char *concept;      /* "SCHEME:CODE" */
     char *meaning;
-    int mode;                   /* exam_mode of the enclosing container, -1 */
+    int mode; /* exam_mode of the enclosing container, -1 */
 } ext_sr_value;
 
 typedef struct ext_sr_result {
     ext_sr_value *values;
     size_t value_count;
-    unsigned modes;             /* from mode containers */
+    unsigned modes; /* from mode containers */
     char **unknown_schemes;
     size_t unknown_scheme_count;
-    size_t ignored_count;       /* listed concept, unusable item */
-    int has_gestational_age;    /* the first usable one */
+    size_t ignored_count;    /* listed concept, unusable item */
+    int has_gestational_age; /* the first usable one */
     double gestational_age_weeks;
-    const char *gestational_age_position;  /* into values[] */
+    const char *gestational_age_position; /* into values[] */
     int has_scan_time;
     double scan_time_seconds;
-    int has_index[4];           /* largest of mi, tis, tib, tic */
+    int has_index[4]; /* largest of mi, tis, tib, tic */
     double max_index[4];
 } ext_sr_result;
 
-mitilog_status ext_sr_map(const ext_site_rules *rules, const dcm_sr_item *items,
-                          size_t count, ext_sr_result *result,
-                          mitilog_error *error);
+mitilog_status ext_sr_map(const ext_site_rules *rules, const dcm_sr_item *items, size_t count,
+                          ext_sr_result *result, mitilog_error *error);
 void ext_sr_result_free(ext_sr_result *result);
 
 #endif

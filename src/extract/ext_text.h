@@ -22,8 +22,7 @@ char *ext_text_latin1_to_utf8(const char *text);
  * Latin-1 decoded, UTF-8 (ISO_IR 192) and ASCII kept, anything else kept
  * where valid UTF-8 and otherwise repaired with U+FFFD (*replaced = 1).
  * NULL for NULL input; *failed = 1 when out of memory. */
-char *ext_text_decode(const char *raw, const char *charset, int *replaced,
-                      int *failed);
+char *ext_text_decode(const char *raw, const char *charset, int *replaced, int *failed);
 /* Number of characters (code points) of UTF-8 text. */
 size_t ext_text_characters(const char *text);
 

@@ -8,8 +8,8 @@
 
 typedef struct time_parts {
     int year, month, day, hour, minute, second;
-    char fraction[7];      /* digits as given, "" if none */
-    char offset[7];        /* "+HH:MM" or "" */
+    char fraction[7]; /* digits as given, "" if none */
+    char offset[7];   /* "+HH:MM" or "" */
 } time_parts;
 
 /* Copies raw without leading/trailing spaces into buffer; 0 if it fits. */
@@ -154,8 +154,7 @@ int ext_iso_from_date_time(const char *date, const char *time, const char *timez
     return 0;
 }
 
-int ext_iso_from_dt(const char *date_time, const char *timezone_offset,
-                    char out[EXT_ISO_TIME_SIZE])
+int ext_iso_from_dt(const char *date_time, const char *timezone_offset, char out[EXT_ISO_TIME_SIZE])
 {
     char buffer[40];
     time_parts parts;

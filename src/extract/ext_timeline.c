@@ -86,9 +86,8 @@ double ext_timeline_time_at_or_above(const exam_capture *captures,
     return seconds;
 }
 
-double ext_timeline_time_unreported(const exam_capture *captures,
-                                    const ext_timeline_entry *entries, size_t entry_count,
-                                    exam_index index)
+double ext_timeline_time_unreported(const exam_capture *captures, const ext_timeline_entry *entries,
+                                    size_t entry_count, exam_index index)
 {
     double seconds = 0;
     for (size_t k = 0; k < entry_count; k++) {
@@ -112,9 +111,8 @@ static long days_from_civil(int year, int month, int day)
 double ext_iso_to_seconds(const char *iso)
 {
     int year, month, day, hour, minute, second, consumed = 0;
-    if (iso == NULL ||
-        sscanf(iso, "%4d-%2d-%2dT%2d:%2d:%2d%n", &year, &month, &day, &hour, &minute, &second,
-               &consumed) != 6)
+    if (iso == NULL || sscanf(iso, "%4d-%2d-%2dT%2d:%2d:%2d%n", &year, &month, &day, &hour, &minute,
+                              &second, &consumed) != 6)
         return -1;
     double seconds = (double)days_from_civil(year, month, day) * 86400.0 + hour * 3600.0 +
                      minute * 60.0 + second;

@@ -22,12 +22,12 @@ extern "C" {
 #endif
 
 typedef struct http_settings {
-    const char *address;    /* IPv4 literal, e.g. "127.0.0.1" */
+    const char *address; /* IPv4 literal, e.g. "127.0.0.1" */
     unsigned port;
-    const char *web_root;   /* folder with the dashboard's files; may be NULL */
+    const char *web_root;             /* folder with the dashboard's files; may be NULL */
     const char *tls_certificate_file; /* PEM; NULL or "" = plain HTTP   */
     const char *tls_private_key_file; /* PEM                             */
-    const char *password_file; /* NULL or "": no login (see http_auth.h) */
+    const char *password_file;        /* NULL or "": no login (see http_auth.h) */
     /* Slow and greedy clients; 0 takes the default in brackets. */
     unsigned max_connections;             /* all clients together [256]     */
     unsigned max_connections_per_address; /* one client address [32]; see
@@ -44,8 +44,8 @@ enum { HTTP_SETTINGS_UNLIMITED = 0xFFFFFFFFu };
 
 typedef struct http_server http_server;
 
-mitilog_status http_server_start(const http_settings *settings, store *store,
-                                 http_server **out, mitilog_error *error);
+mitilog_status http_server_start(const http_settings *settings, store *store, http_server **out,
+                                 mitilog_error *error);
 void http_server_stop(http_server *server);
 
 #ifdef __cplusplus

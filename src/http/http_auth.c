@@ -37,8 +37,7 @@ void http_auth_free(http_auth *auth)
 
 /* Makes auth->dummy_hash from 32 random bytes (as hex) hashed with the
  * first user's hash as setting (same algorithm, cost and salt length). */
-static mitilog_status http_auth_make_dummy(http_auth *auth, const char *path,
-                                           mitilog_error *error)
+static mitilog_status http_auth_make_dummy(http_auth *auth, const char *path, mitilog_error *error)
 {
     unsigned char random[32];
     char password[2 * sizeof random + 1];
@@ -63,10 +62,7 @@ static mitilog_status http_auth_make_dummy(http_auth *auth, const char *path,
     return status;
 }
 
-size_t http_auth_user_count(const http_auth *auth)
-{
-    return auth != NULL ? auth->count : 0;
-}
+size_t http_auth_user_count(const http_auth *auth) { return auth != NULL ? auth->count : 0; }
 
 /* Adds "name:hash" (line without its newline) to the table. */
 static mitilog_status http_auth_add(http_auth *auth, char *line, const char *path, int number,
@@ -74,8 +70,8 @@ static mitilog_status http_auth_add(http_auth *auth, char *line, const char *pat
 {
     char *colon = strchr(line, ':');
     if (colon == NULL || colon == line || colon[1] != '$')
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "%s:%d: expected user:$crypt-hash", path, number);
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "%s:%d: expected user:$crypt-hash",
+                                 path, number);
     *colon = '\0';
     /* An optional third field names the role; none: viewer. */
     const char *role = "viewer";

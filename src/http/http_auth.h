@@ -38,7 +38,6 @@ size_t http_auth_user_count(const http_auth *auth);
 
 /* A new crypt(3) hash of password with a fresh random salt (yescrypt);
  * out must hold 256 bytes. */
-mitilog_status http_auth_hash(const char *password, char *out, size_t size,
-                              mitilog_error *error);
+mitilog_status http_auth_hash(const char *password, char *out, size_t size, mitilog_error *error);
 
 #endif

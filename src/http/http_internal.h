@@ -26,8 +26,7 @@
 
 /* http_guard.c: the deadline for receiving each request (see there). */
 typedef struct http_guard http_guard;
-mitilog_status http_guard_start(unsigned deadline_seconds, http_guard **out,
-                                mitilog_error *error);
+mitilog_status http_guard_start(unsigned deadline_seconds, http_guard **out, mitilog_error *error);
 void http_guard_stop(http_guard *guard);
 /* MHD_OPTION_NOTIFY_CONNECTION callback; context is the guard. */
 void http_guard_notify(void *context, struct MHD_Connection *connection, void **socket_context,
@@ -48,15 +47,15 @@ void http_client_address(struct MHD_Connection *connection, char *out, size_t si
 struct http_server {
     struct MHD_Daemon *daemon;
     store *store;
-    char *web_root;              /* resolved real path, NULL: no files   */
-    unsigned port;               /* the bound port                       */
-    http_auth *auth;             /* NULL: no login required              */
-    http_throttle *throttle;     /* failed logins; with auth only        */
-    char *tls_certificate;       /* PEM text kept for MHD, NULL: HTTP    */
+    char *web_root;          /* resolved real path, NULL: no files   */
+    unsigned port;           /* the bound port                       */
+    http_auth *auth;         /* NULL: no login required              */
+    http_throttle *throttle; /* failed logins; with auth only        */
+    char *tls_certificate;   /* PEM text kept for MHD, NULL: HTTP    */
     char *tls_private_key;
-    http_guard *guard;           /* request deadlines                    */
-    char csrf_key[65];           /* random, drawn at start: review tokens */
-    char *institution;           /* [site] institution, NULL: not set    */
+    http_guard *guard; /* request deadlines                    */
+    char csrf_key[65]; /* random, drawn at start: review tokens */
+    char *institution; /* [site] institution, NULL: not set    */
 };
 
 /* Who sent a request: user "" and role NULL when no login is set. */
@@ -82,8 +81,7 @@ http_reply http_json_reply(unsigned status, char *json);
 http_reply http_status_reply(http_server *server, mitilog_status status, char *body,
                              const char *content_type, const mitilog_error *error);
 /* {"error": message} written by json/json.h (valid JSON for any message). */
-http_reply http_error_reply(http_server *server, unsigned status,
-                            const char *format, ...)
+http_reply http_error_reply(http_server *server, unsigned status, const char *format, ...)
     __attribute__((format(printf, 3, 4)));
 
 /* http_parameters.c: the checker of query parameters. Years outside
@@ -133,23 +131,23 @@ int http_parse_date(const char *text, long *day);
 int http_parse_instant(const char *text, char out[HTTP_INSTANT_SIZE]);
 
 /* http_routes.c: handles /healthz and /api/...; 0 if url is neither. */
-int http_route_api(http_server *server, struct MHD_Connection *connection,
-                   const char *url, http_reply *reply);
+int http_route_api(http_server *server, struct MHD_Connection *connection, const char *url,
+                   http_reply *reply);
 
 /* http_routes_findings.c: /api/v1/findings and /api/v1/policy; 0 if url
  * is neither. */
-int http_route_findings(http_server *server, struct MHD_Connection *connection,
-                        const char *url, http_reply *reply);
+int http_route_findings(http_server *server, struct MHD_Connection *connection, const char *url,
+                        http_reply *reply);
 
 /* http_routes_stats.c: /api/v1/outliers, /api/v1/stats, /api/v1/drift and
  * /api/v1/ingest; 0 if url is none of them. */
-int http_route_stats(http_server *server, struct MHD_Connection *connection,
-                     const char *url, http_reply *reply);
+int http_route_stats(http_server *server, struct MHD_Connection *connection, const char *url,
+                     http_reply *reply);
 
 /* http_routes_devices.c: /api/v1/devices and /api/v1/devices/example;
  * 0 if url is neither. */
-int http_route_devices(http_server *server, struct MHD_Connection *connection,
-                       const char *url, http_reply *reply);
+int http_route_devices(http_server *server, struct MHD_Connection *connection, const char *url,
+                       http_reply *reply);
 /* http_routes_reviews.c: GET /api/v1/session, /api/v1/worklist, operators and
  * /api/v1/reviews; 0 if url is none of them. */
 int http_route_reviews(http_server *server, struct MHD_Connection *connection, const char *url,
@@ -171,7 +169,6 @@ http_reply http_post_finish(http_server *server, struct MHD_Connection *connecti
 void http_post_free(http_post *post);
 
 /* http_static.c: serves url from web_root; 0 if there is no such file. */
-int http_route_static(const http_server *server, const char *url,
-                      http_reply *reply);
+int http_route_static(const http_server *server, const char *url, http_reply *reply);
 
 #endif

@@ -25,8 +25,7 @@ static http_reply http_health(http_server *server)
 }
 
 /* GET /api/v1/instances?study=UID | ?since=ISO8601 [&limit=N] */
-static http_reply http_instances(http_server *server,
-                                 struct MHD_Connection *connection)
+static http_reply http_instances(http_server *server, struct MHD_Connection *connection)
 {
     static const http_parameter_rule rules[] = {
         {"study", HTTP_PARAMETER_UID, 0, 0, NULL},
@@ -42,14 +41,12 @@ static http_reply http_instances(http_server *server,
                                     values[2].text != NULL ? values[2].number : 0};
     char *json = NULL;
     mitilog_error error = {{0}};
-    mitilog_status status =
-        store_instances_json(server->store, &filter, &json, &error);
+    mitilog_status status = store_instances_json(server->store, &filter, &json, &error);
     return http_status_reply(server, status, json, NULL, &error);
 }
 
 /* GET /api/v1/studies[?from=YYYY-MM-DD][&to=YYYY-MM-DD] */
-static http_reply http_studies(http_server *server,
-                               struct MHD_Connection *connection)
+static http_reply http_studies(http_server *server, struct MHD_Connection *connection)
 {
     static const http_parameter_rule rules[] = {
         {"from", HTTP_PARAMETER_DATE, 0, 0, NULL},
@@ -62,8 +59,8 @@ static http_reply http_studies(http_server *server,
         return reply;
     char *json = NULL;
     mitilog_error error = {{0}};
-    mitilog_status status = store_studies_json(server->store, values[0].text,
-                                               values[1].text, &json, &error);
+    mitilog_status status =
+        store_studies_json(server->store, values[0].text, values[1].text, &json, &error);
     return http_status_reply(server, status, json, NULL, &error);
 }
 
@@ -78,15 +75,14 @@ static http_reply http_study(http_server *server, const char *uid)
                                 "most 64)");
     char *json = NULL;
     mitilog_error error = {{0}};
-    mitilog_status status = store_study_json(server->store, uid, &json,
-                                             &error);
+    mitilog_status status = store_study_json(server->store, uid, &json, &error);
     if (status == MITILOG_ERROR_NOT_FOUND)
         mitilog_error_set(&error, status, "no study %s", uid);
     return http_status_reply(server, status, json, NULL, &error);
 }
 
-int http_route_api(http_server *server, struct MHD_Connection *connection,
-                   const char *url, http_reply *reply)
+int http_route_api(http_server *server, struct MHD_Connection *connection, const char *url,
+                   http_reply *reply)
 {
     if (strcmp(url, "/healthz") == 0)
         *reply = http_health(server);
@@ -103,8 +99,7 @@ int http_route_api(http_server *server, struct MHD_Connection *connection,
     else if (http_route_devices(server, connection, url, reply))
         return 1;
     else if (strncmp(url, "/api/", 5) == 0 || strcmp(url, "/api") == 0)
-        *reply = http_error_reply(server, MHD_HTTP_NOT_FOUND,
-                                  "not found: %s", url);
+        *reply = http_error_reply(server, MHD_HTTP_NOT_FOUND, "not found: %s", url);
     else
         return 0;
     return 1;

@@ -33,8 +33,7 @@ static http_reply http_device_example(http_server *server, struct MHD_Connection
         return reply;
     mitilog_error error = {{0}};
     if (values[KEY].text == NULL) {
-        mitilog_error_set(&error, MITILOG_ERROR_INVALID,
-                          "parameter key: give the profile key");
+        mitilog_error_set(&error, MITILOG_ERROR_INVALID, "parameter key: give the profile key");
         return http_status_reply(server, MITILOG_ERROR_INVALID, NULL, NULL, &error);
     }
     int version = values[VERSION].text != NULL ? (int)values[VERSION].number : 0;
@@ -44,15 +43,14 @@ static http_reply http_device_example(http_server *server, struct MHD_Connection
     if (status == MITILOG_OK && row.example == NULL) {
         store_screen_profile_row_free(&row);
         status = mitilog_error_set(&error, MITILOG_ERROR_NOT_FOUND,
-                                   "no example frame is kept for profile %s",
-                                   values[KEY].text);
+                                   "no example frame is kept for profile %s", values[KEY].text);
     }
     if (status != MITILOG_OK)
         return http_status_reply(server, status, NULL, NULL, &error);
     /* Binary: not through the JSON reply, which measures text. */
     reply.status = MHD_HTTP_OK;
-    reply.response = MHD_create_response_from_buffer(row.example_size, row.example,
-                                                     MHD_RESPMEM_MUST_FREE);
+    reply.response =
+        MHD_create_response_from_buffer(row.example_size, row.example, MHD_RESPMEM_MUST_FREE);
     if (reply.response == NULL) {
         store_screen_profile_row_free(&row);
         mitilog_error_set(&error, MITILOG_ERROR_MEMORY, "out of memory");
@@ -65,8 +63,8 @@ static http_reply http_device_example(http_server *server, struct MHD_Connection
     return reply;
 }
 
-int http_route_devices(http_server *server, struct MHD_Connection *connection,
-                       const char *url, http_reply *reply)
+int http_route_devices(http_server *server, struct MHD_Connection *connection, const char *url,
+                       http_reply *reply)
 {
     if (strcmp(url, "/api/v1/devices") == 0)
         *reply = http_devices(server);

@@ -62,8 +62,8 @@ static http_reply http_policy(http_server *server)
     return http_status_reply(server, status, json, NULL, &error);
 }
 
-int http_route_findings(http_server *server, struct MHD_Connection *connection,
-                        const char *url, http_reply *reply)
+int http_route_findings(http_server *server, struct MHD_Connection *connection, const char *url,
+                        http_reply *reply)
 {
     if (strcmp(url, "/api/v1/findings") == 0)
         *reply = http_findings(server, connection);

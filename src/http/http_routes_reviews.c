@@ -32,10 +32,10 @@
 #include "util/log.h"
 
 enum {
-    HTTP_POST_BUFFER = 4096,       /* post processor's buffer              */
-    HTTP_COMMENT_MAX = 2000,       /* bytes, as the reviews table allows   */
-    HTTP_FIELD_MAX = 128,          /* the other fields                     */
-    HTTP_BODY_MAX = 16384          /* a larger body is refused (413)        */
+    HTTP_POST_BUFFER = 4096, /* post processor's buffer              */
+    HTTP_COMMENT_MAX = 2000, /* bytes, as the reviews table allows   */
+    HTTP_FIELD_MAX = 128,    /* the other fields                     */
+    HTTP_BODY_MAX = 16384    /* a larger body is refused (413)        */
 };
 
 static const char http_outcomes[] =
@@ -53,8 +53,7 @@ struct http_post {
     char comment[HTTP_COMMENT_MAX + 1];
 };
 
-mitilog_status http_csrf_token(const http_server *server, const char *user,
-                               char out[HASH_HEX_SIZE])
+mitilog_status http_csrf_token(const http_server *server, const char *user, char out[HASH_HEX_SIZE])
 {
     char message[200];
     snprintf(message, sizeof message, "mitilog review token for %s", user);
@@ -194,8 +193,7 @@ static http_reply http_reviews(http_server *server, struct MHD_Connection *conne
     mitilog_error error = {{0}};
     mitilog_status status = store_reviews_text(server->store, values[0].text, values[1].text,
                                                values[2].text, csv, &text, &error);
-    reply = http_status_reply(server, status, text, csv ? "text/csv; charset=utf-8" : NULL,
-                              &error);
+    reply = http_status_reply(server, status, text, csv ? "text/csv; charset=utf-8" : NULL, &error);
     if (csv && status == MITILOG_OK && reply.response != NULL)
         MHD_add_response_header(reply.response, "Content-Disposition",
                                 "attachment; filename=\"mitilog-reviews.csv\"");
@@ -243,8 +241,7 @@ int http_post_refused(http_server *server, struct MHD_Connection *connection, co
                       const http_identity *identity, http_reply *reply)
 {
     if (strcmp(url, "/api/v1/reviews") != 0) {
-        *reply = http_error_reply(server, MHD_HTTP_METHOD_NOT_ALLOWED,
-                                  "method not allowed: POST");
+        *reply = http_error_reply(server, MHD_HTTP_METHOD_NOT_ALLOWED, "method not allowed: POST");
         if (reply->response != NULL)
             MHD_add_response_header(reply->response, "Allow", "GET, HEAD");
         return 1;
@@ -262,8 +259,7 @@ int http_post_refused(http_server *server, struct MHD_Connection *connection, co
                                   identity->user);
         return 1;
     }
-    const char *site =
-        MHD_lookup_connection_value(connection, MHD_HEADER_KIND, "Sec-Fetch-Site");
+    const char *site = MHD_lookup_connection_value(connection, MHD_HEADER_KIND, "Sec-Fetch-Site");
     if (site != NULL && strcmp(site, "same-origin") != 0) {
         *reply = http_error_reply(server, MHD_HTTP_FORBIDDEN,
                                   "refused: the request was started by another site "
@@ -279,7 +275,7 @@ int http_post_refused(http_server *server, struct MHD_Connection *connection, co
          * Host on: deploy/nginx-mitilog.conf). */
         const char *rest = strncmp(origin, "https://", 8) == 0  ? origin + 8
                            : strncmp(origin, "http://", 7) == 0 ? origin + 7
-                                                                 : NULL;
+                                                                : NULL;
         if (host == NULL || rest == NULL || strcmp(rest, host) != 0) {
             *reply = http_error_reply(server, MHD_HTTP_FORBIDDEN,
                                       "refused: the request came from %.100s, not from this "
@@ -311,10 +307,14 @@ static enum MHD_Result http_post_field(void *context, enum MHD_ValueKind kind, c
     http_post *post = context;
     char *target = NULL;
     size_t capacity = HTTP_FIELD_MAX;
-    if (strcmp(key, "study") == 0) target = post->study;
-    else if (strcmp(key, "finding") == 0) target = post->finding;
-    else if (strcmp(key, "outcome") == 0) target = post->outcome;
-    else if (strcmp(key, "csrf_token") == 0) target = post->token;
+    if (strcmp(key, "study") == 0)
+        target = post->study;
+    else if (strcmp(key, "finding") == 0)
+        target = post->finding;
+    else if (strcmp(key, "outcome") == 0)
+        target = post->outcome;
+    else if (strcmp(key, "csrf_token") == 0)
+        target = post->token;
     else if (strcmp(key, "comment") == 0) {
         target = post->comment;
         capacity = HTTP_COMMENT_MAX;
@@ -336,7 +336,8 @@ http_post *http_post_create(struct MHD_Connection *connection, const http_identi
     if (post == NULL)
         return NULL;
     post->identity = *identity;
-    post->processor = MHD_create_post_processor(connection, HTTP_POST_BUFFER, http_post_field, post);
+    post->processor =
+        MHD_create_post_processor(connection, HTTP_POST_BUFFER, http_post_field, post);
     if (post->processor == NULL) {
         free(post);
         return NULL;
@@ -409,13 +410,16 @@ http_reply http_post_finish(http_server *server, struct MHD_Connection *connecti
         choice += length + (choice[length] == '|');
     }
     if (!known)
-        return http_error_reply(server, MHD_HTTP_BAD_REQUEST, "outcome: one of %s",
-                                http_outcomes);
+        return http_error_reply(server, MHD_HTTP_BAD_REQUEST, "outcome: one of %s", http_outcomes);
     if (!http_plain_text(post->comment))
         return http_error_reply(server, MHD_HTTP_BAD_REQUEST,
                                 "comment: UTF-8 text without control characters, please");
-    store_review review = {study_length > 0 ? post->study : NULL, finding, post->outcome,
-                           post->comment, post->identity.user, post->identity.role};
+    store_review review = {study_length > 0 ? post->study : NULL,
+                           finding,
+                           post->outcome,
+                           post->comment,
+                           post->identity.user,
+                           post->identity.role};
     mitilog_error error = {{0}};
     mitilog_status status = store_put_review(server->store, &review, &error);
     if (status != MITILOG_OK)
@@ -423,7 +427,7 @@ http_reply http_post_finish(http_server *server, struct MHD_Connection *connecti
     log_info("http: %s recorded %s on %s %s", post->identity.user, post->outcome,
              finding > 0 ? "finding" : "study", finding > 0 ? post->finding : post->study);
     char *json = NULL;
-    status = store_reviews_text(server->store, study_length > 0 ? post->study : NULL, NULL, NULL,
-                                0, &json, &error);
+    status = store_reviews_text(server->store, study_length > 0 ? post->study : NULL, NULL, NULL, 0,
+                                &json, &error);
     return http_status_reply(server, status, json, NULL, &error);
 }

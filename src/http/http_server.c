@@ -72,19 +72,16 @@ http_reply http_json_reply(unsigned status, char *json)
 {
     http_reply reply = {status, NULL};
     if (json != NULL)
-        reply.response = MHD_create_response_from_buffer(
-            strlen(json), json, MHD_RESPMEM_MUST_FREE);
+        reply.response = MHD_create_response_from_buffer(strlen(json), json, MHD_RESPMEM_MUST_FREE);
     if (reply.response == NULL) {
         free(json);
         reply.status = MHD_HTTP_INTERNAL_SERVER_ERROR;
         reply.response = MHD_create_response_from_buffer(
-            sizeof http_fallback_error - 1, (void *)http_fallback_error,
-            MHD_RESPMEM_PERSISTENT);
+            sizeof http_fallback_error - 1, (void *)http_fallback_error, MHD_RESPMEM_PERSISTENT);
         if (reply.response == NULL)
             return reply;
     }
-    MHD_add_response_header(reply.response, "Content-Type",
-                            "application/json; charset=utf-8");
+    MHD_add_response_header(reply.response, "Content-Type", "application/json; charset=utf-8");
     MHD_add_response_header(reply.response, "Cache-Control", "no-store");
     return reply;
 }
@@ -101,8 +98,7 @@ static void http_clean_message(char *message)
     }
 }
 
-http_reply http_error_reply(http_server *server, unsigned status,
-                            const char *format, ...)
+http_reply http_error_reply(http_server *server, unsigned status, const char *format, ...)
 {
     char message[HTTP_ERROR_MESSAGE_MAX + 1];
     va_list arguments;
@@ -156,8 +152,7 @@ static enum MHD_Result http_queue(const http_server *server, struct MHD_Connecti
     if (reply.response == NULL)
         return MHD_NO; /* out of memory: MHD closes the connection */
     http_add_common_headers(server, reply.response);
-    enum MHD_Result result =
-        MHD_queue_response(connection, reply.status, reply.response);
+    enum MHD_Result result = MHD_queue_response(connection, reply.status, reply.response);
     MHD_destroy_response(reply.response);
     return result;
 }
@@ -189,8 +184,7 @@ static double http_monotonic_seconds(void)
 static enum MHD_Result http_queue_login_request(http_server *server,
                                                 struct MHD_Connection *connection)
 {
-    http_reply reply = http_error_reply(server, MHD_HTTP_UNAUTHORIZED,
-                                        "a login is required");
+    http_reply reply = http_error_reply(server, MHD_HTTP_UNAUTHORIZED, "a login is required");
     if (reply.response == NULL)
         return MHD_NO;
     http_add_common_headers(server, reply.response);
@@ -258,8 +252,8 @@ static int http_login_accepted(http_server *server, struct MHD_Connection *conne
 }
 
 /* Adds the bytes of one header field ("name: value" and CRLF). */
-static enum MHD_Result http_count_header(void *context, enum MHD_ValueKind kind,
-                                         const char *key, const char *value)
+static enum MHD_Result http_count_header(void *context, enum MHD_ValueKind kind, const char *key,
+                                         const char *value)
 {
     (void)kind;
     size_t *total = context;
@@ -271,12 +265,9 @@ static enum MHD_Result http_count_header(void *context, enum MHD_ValueKind kind,
  * reply) to the API, then static files, else 404; answered on the first
  * call. POST only to /api/v1/reviews: checked on the first call, its body
  * read by the following ones (*state holds it), answered on the last. */
-static enum MHD_Result http_handle(void *context,
-                                   struct MHD_Connection *connection,
-                                   const char *url, const char *method,
-                                   const char *version,
-                                   const char *upload_data,
-                                   size_t *upload_data_size, void **state)
+static enum MHD_Result http_handle(void *context, struct MHD_Connection *connection,
+                                   const char *url, const char *method, const char *version,
+                                   const char *upload_data, size_t *upload_data_size, void **state)
 {
     (void)version;
     http_server *server = context;
@@ -320,20 +311,18 @@ static enum MHD_Result http_handle(void *context,
         *state = post;
         return MHD_YES;
     }
-    if (strcmp(method, MHD_HTTP_METHOD_GET) != 0 &&
-        strcmp(method, MHD_HTTP_METHOD_HEAD) != 0) {
-        reply = http_error_reply(server, MHD_HTTP_METHOD_NOT_ALLOWED,
-                                 "method not allowed: %s", method);
+    if (strcmp(method, MHD_HTTP_METHOD_GET) != 0 && strcmp(method, MHD_HTTP_METHOD_HEAD) != 0) {
+        reply =
+            http_error_reply(server, MHD_HTTP_METHOD_NOT_ALLOWED, "method not allowed: %s", method);
         if (reply.response != NULL)
             MHD_add_response_header(reply.response, "Allow", "GET, HEAD");
         return http_queue(server, connection, reply);
     }
     if (http_route_reviews(server, connection, url, &identity, &reply) ||
-        http_route_api(server, connection, url, &reply) ||
-        http_route_static(server, url, &reply))
+        http_route_api(server, connection, url, &reply) || http_route_static(server, url, &reply))
         return http_queue(server, connection, reply);
-    return http_queue(server, connection, http_error_reply(server, MHD_HTTP_NOT_FOUND,
-                                                           "not found: %s", url));
+    return http_queue(server, connection,
+                      http_error_reply(server, MHD_HTTP_NOT_FOUND, "not found: %s", url));
 }
 
 /* MHD_OPTION_URI_LOG_CALLBACK: sees the request target before MHD splits
@@ -357,8 +346,8 @@ static void *http_target_seen(void *context, const char *uri, struct MHD_Connect
 }
 
 /* MHD_OPTION_NOTIFY_COMPLETED: a reply is done. */
-static void http_request_completed(void *context, struct MHD_Connection *connection,
-                                   void **state, enum MHD_RequestTerminationCode code)
+static void http_request_completed(void *context, struct MHD_Connection *connection, void **state,
+                                   enum MHD_RequestTerminationCode code)
 {
     (void)code;
     http_server *server = context;
@@ -370,8 +359,7 @@ static void http_request_completed(void *context, struct MHD_Connection *connect
 }
 
 /* Routes libmicrohttpd's own messages into the log. */
-static void http_log_library(void *context, const char *format,
-                             va_list arguments)
+static void http_log_library(void *context, const char *format, va_list arguments)
 {
     (void)context;
     char line[512];
@@ -383,9 +371,8 @@ static void http_log_library(void *context, const char *format,
 }
 
 /* After MHD failed to start: why (binding the same address tells). */
-static mitilog_status http_start_error(const struct sockaddr_in *address,
-                                       const char *text, unsigned port,
-                                       mitilog_error *error)
+static mitilog_status http_start_error(const struct sockaddr_in *address, const char *text,
+                                       unsigned port, mitilog_error *error)
 {
     int probe = socket(AF_INET, SOCK_STREAM, 0);
     int reason = 0;
@@ -399,14 +386,13 @@ static mitilog_status http_start_error(const struct sockaddr_in *address,
     if (reason == EADDRINUSE)
         return mitilog_error_set(error, MITILOG_ERROR_IO,
                                  "HTTP: cannot listen on %s:%u: the port is "
-                                 "already in use", text, port);
+                                 "already in use",
+                                 text, port);
     if (reason != 0)
-        return mitilog_error_set(error, MITILOG_ERROR_IO,
-                                 "HTTP: cannot listen on %s:%u: %s", text,
+        return mitilog_error_set(error, MITILOG_ERROR_IO, "HTTP: cannot listen on %s:%u: %s", text,
                                  port, strerror(reason));
-    return mitilog_error_set(error, MITILOG_ERROR_IO,
-                             "HTTP: cannot start the server on %s:%u", text,
-                             port);
+    return mitilog_error_set(error, MITILOG_ERROR_IO, "HTTP: cannot start the server on %s:%u",
+                             text, port);
 }
 
 /* Reads a whole PEM file into a malloc'ed string. */
@@ -414,8 +400,7 @@ static mitilog_status http_read_pem(const char *path, char **out, mitilog_error 
 {
     FILE *file = fopen(path, "rb");
     if (file == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_IO, "HTTPS: %s: %s", path,
-                                 strerror(errno));
+        return mitilog_error_set(error, MITILOG_ERROR_IO, "HTTPS: %s: %s", path, strerror(errno));
     char *text = NULL;
     size_t used = 0, size = 0;
     mitilog_status status = MITILOG_OK;
@@ -453,8 +438,7 @@ static mitilog_status http_prepare_security(http_server *server, const http_sett
         mitilog_status status =
             http_read_pem(settings->tls_certificate_file, &server->tls_certificate, error);
         if (status == MITILOG_OK)
-            status = http_read_pem(settings->tls_private_key_file, &server->tls_private_key,
-                                   error);
+            status = http_read_pem(settings->tls_private_key_file, &server->tls_private_key, error);
         if (status != MITILOG_OK)
             return status;
     }
@@ -477,42 +461,39 @@ static char *http_resolve_web_root(const char *web_root)
         return NULL;
     char *resolved = realpath(web_root, NULL);
     struct stat info;
-    if (resolved == NULL || stat(resolved, &info) != 0 ||
-        !S_ISDIR(info.st_mode)) {
+    if (resolved == NULL || stat(resolved, &info) != 0 || !S_ISDIR(info.st_mode)) {
         log_warning("http: web root %s is not a folder; serving the API "
-                    "only", web_root);
+                    "only",
+                    web_root);
         free(resolved);
         return NULL;
     }
     return resolved;
 }
 
-mitilog_status http_server_start(const http_settings *settings, store *st,
-                                 http_server **out, mitilog_error *error)
+mitilog_status http_server_start(const http_settings *settings, store *st, http_server **out,
+                                 mitilog_error *error)
 {
     if (out == NULL || settings == NULL || st == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "http_server_start: missing argument");
     *out = NULL;
-    const char *text = settings->address != NULL && settings->address[0] != 0
-                           ? settings->address
-                           : "127.0.0.1";
+    const char *text =
+        settings->address != NULL && settings->address[0] != 0 ? settings->address : "127.0.0.1";
     struct sockaddr_in address;
     memset(&address, 0, sizeof address);
     address.sin_family = AF_INET;
     if (inet_pton(AF_INET, text, &address.sin_addr) != 1)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "HTTP address %s is not an IPv4 address",
-                                 text);
+                                 "HTTP address %s is not an IPv4 address", text);
     if (settings->port > 65535)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "HTTP port %u out of range", settings->port);
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "HTTP port %u out of range",
+                                 settings->port);
     address.sin_port = htons((uint16_t)settings->port);
 
     http_server *server = calloc(1, sizeof *server);
     if (server == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_MEMORY,
-                                 "out of memory starting HTTP");
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory starting HTTP");
     server->store = st;
     if (settings->institution != NULL && settings->institution[0] != '\0' &&
         (server->institution = strdup(settings->institution)) == NULL) {
@@ -543,16 +524,15 @@ mitilog_status http_server_start(const http_settings *settings, store *st,
         {MHD_OPTION_HTTPS_MEM_KEY, 0, server->tls_private_key},
         {MHD_OPTION_HTTPS_PRIORITIES, 0, (void *)http_tls_priorities},
         {MHD_OPTION_END, 0, NULL}};
-    unsigned connections = settings->max_connections != 0 ? settings->max_connections
-                                                          : HTTP_DEFAULT_CONNECTIONS;
+    unsigned connections =
+        settings->max_connections != 0 ? settings->max_connections : HTTP_DEFAULT_CONNECTIONS;
     unsigned per_address = settings->max_connections_per_address == 0
                                ? HTTP_DEFAULT_CONNECTIONS_PER_ADDRESS
                            : settings->max_connections_per_address == HTTP_SETTINGS_UNLIMITED
                                ? 0 /* MHD: no limit */
                                : settings->max_connections_per_address;
-    unsigned deadline = settings->request_timeout_seconds != 0
-                            ? settings->request_timeout_seconds
-                            : HTTP_DEFAULT_REQUEST_TIMEOUT_S;
+    unsigned deadline = settings->request_timeout_seconds != 0 ? settings->request_timeout_seconds
+                                                               : HTTP_DEFAULT_REQUEST_TIMEOUT_S;
     if (http_guard_start(deadline, &server->guard, error) != MITILOG_OK) {
         http_server_stop(server);
         return MITILOG_ERROR_IO;
@@ -562,20 +542,15 @@ mitilog_status http_server_start(const http_settings *settings, store *st,
     server->daemon = MHD_start_daemon(
         flags, (uint16_t)settings->port, NULL, NULL, &http_handle, server,
         MHD_OPTION_EXTERNAL_LOGGER, &http_log_library, NULL, /* first: MHD asks for it */
-        MHD_OPTION_ARRAY, tls_options,
-        MHD_OPTION_SOCK_ADDR, (struct sockaddr *)&address,
-        MHD_OPTION_THREAD_POOL_SIZE, (unsigned)HTTP_THREAD_POOL_SIZE,
-        MHD_OPTION_CONNECTION_LIMIT, connections,
-        MHD_OPTION_PER_IP_CONNECTION_LIMIT, per_address,
-        MHD_OPTION_CONNECTION_TIMEOUT, (unsigned)HTTP_IDLE_TIMEOUT_S,
-        MHD_OPTION_CONNECTION_MEMORY_LIMIT, http_connection_memory,
+        MHD_OPTION_ARRAY, tls_options, MHD_OPTION_SOCK_ADDR, (struct sockaddr *)&address,
+        MHD_OPTION_THREAD_POOL_SIZE, (unsigned)HTTP_THREAD_POOL_SIZE, MHD_OPTION_CONNECTION_LIMIT,
+        connections, MHD_OPTION_PER_IP_CONNECTION_LIMIT, per_address, MHD_OPTION_CONNECTION_TIMEOUT,
+        (unsigned)HTTP_IDLE_TIMEOUT_S, MHD_OPTION_CONNECTION_MEMORY_LIMIT, http_connection_memory,
         MHD_OPTION_NOTIFY_CONNECTION, &http_guard_notify, server->guard,
-        MHD_OPTION_NOTIFY_COMPLETED, &http_request_completed, server,
-        MHD_OPTION_URI_LOG_CALLBACK, &http_target_seen, server,
-        MHD_OPTION_END);
+        MHD_OPTION_NOTIFY_COMPLETED, &http_request_completed, server, MHD_OPTION_URI_LOG_CALLBACK,
+        &http_target_seen, server, MHD_OPTION_END);
     if (server->daemon == NULL) {
-        mitilog_status status =
-            http_start_error(&address, text, settings->port, error);
+        mitilog_status status = http_start_error(&address, text, settings->port, error);
         http_server_stop(server);
         return status;
     }
@@ -590,8 +565,7 @@ mitilog_status http_server_start(const http_settings *settings, store *st,
     log_info("http: listening on %s://%s:%u (at most %u connections, per address %s, "
              "%u s to send a request)%s%s%s",
              server->tls_certificate != NULL ? "https" : "http", text, server->port, connections,
-             per_address_text, deadline,
-             server->auth != NULL ? " (login required)" : "",
+             per_address_text, deadline, server->auth != NULL ? " (login required)" : "",
              server->web_root != NULL ? ", files from " : "",
              server->web_root != NULL ? server->web_root : "");
     *out = server;

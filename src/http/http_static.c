@@ -32,8 +32,7 @@ static const char *http_content_type(const char *path)
     size_t length = strlen(path);
     for (size_t i = 0; i < sizeof types / sizeof types[0]; i++) {
         size_t extension = strlen(types[i].extension);
-        if (length > extension &&
-            strcmp(path + length - extension, types[i].extension) == 0)
+        if (length > extension && strcmp(path + length - extension, types[i].extension) == 0)
             return types[i].type;
     }
     return "application/octet-stream";
@@ -43,14 +42,13 @@ static const char *http_content_type(const char *path)
  * with '.', no backslash. */
 static int http_is_safe_path(const char *url)
 {
-    if (url[0] != '/' || strstr(url, "..") != NULL ||
-        strstr(url, "/.") != NULL || strchr(url, '\\') != NULL)
+    if (url[0] != '/' || strstr(url, "..") != NULL || strstr(url, "/.") != NULL ||
+        strchr(url, '\\') != NULL)
         return 0;
     return strlen(url) < 1024;
 }
 
-int http_route_static(const http_server *server, const char *url,
-                      http_reply *reply)
+int http_route_static(const http_server *server, const char *url, http_reply *reply)
 {
     if (server->web_root == NULL || !http_is_safe_path(url))
         return 0;
@@ -62,8 +60,7 @@ int http_route_static(const http_server *server, const char *url,
     if (resolved == NULL)
         return 0;
     size_t root = strlen(server->web_root);
-    if (strncmp(resolved, server->web_root, root) != 0 ||
-        resolved[root] != '/') {
+    if (strncmp(resolved, server->web_root, root) != 0 || resolved[root] != '/') {
         free(resolved);
         return 0;
     }
@@ -76,15 +73,13 @@ int http_route_static(const http_server *server, const char *url,
         return 0;
     }
     /* MHD closes fd when the response is destroyed. */
-    struct MHD_Response *response =
-        MHD_create_response_from_fd64((uint64_t)info.st_size, fd);
+    struct MHD_Response *response = MHD_create_response_from_fd64((uint64_t)info.st_size, fd);
     if (response == NULL) {
         close(fd);
         free(resolved);
         return 0;
     }
-    MHD_add_response_header(response, "Content-Type",
-                            http_content_type(resolved));
+    MHD_add_response_header(response, "Content-Type", http_content_type(resolved));
     MHD_add_response_header(response, "Cache-Control", "no-cache");
     free(resolved);
     reply->status = MHD_HTTP_OK;

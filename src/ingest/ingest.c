@@ -29,14 +29,14 @@ struct ingest {
     retention retention;
     char quarantine[FOLDER_SIZE];
     char objects[FOLDER_SIZE];
-    ext_site_rules rules;         /* the site file, read at start */
+    ext_site_rules rules; /* the site file, read at start */
     dcm_private_request private_requests[EXT_SITE_PRESET_SOURCES_MAX];
     ingest_exams exams;
-    ingest_reading reading;       /* the pixel reader's queue and workers */
+    ingest_reading reading; /* the pixel reader's queue and workers */
     ingest_schemes schemes;
-    unsigned sr_depth_limit;      /* [storage] sr_depth_limit */
-    uint64_t quarantine_max_bytes; /* [storage] quarantine_max_bytes */
-    unsigned quarantine_max_files; /* [storage] quarantine_max_files */
+    unsigned sr_depth_limit;         /* [storage] sr_depth_limit */
+    uint64_t quarantine_max_bytes;   /* [storage] quarantine_max_bytes */
+    unsigned quarantine_max_files;   /* [storage] quarantine_max_files */
     pthread_mutex_t quarantine_lock; /* one association trims at a time */
 };
 
@@ -53,8 +53,7 @@ static mitilog_status ingest_make_subfolders(const char *folder, mitilog_error *
     return MITILOG_OK;
 }
 
-mitilog_status ingest_create(const config *config, store *store, ingest **out,
-                             mitilog_error *error)
+mitilog_status ingest_create(const config *config, store *store, ingest **out, mitilog_error *error)
 {
     ingest *created = calloc(1, sizeof *created);
     if (created == NULL)
@@ -94,8 +93,8 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out,
     for (size_t i = 0; status == MITILOG_OK && i < created->rules.preset_count; i++) {
         const ext_preset_source *preset = &created->rules.presets[i];
         if (preset->is_private)
-            created->private_requests[i] = (dcm_private_request){
-                preset->group, preset->element, preset->private_creator};
+            created->private_requests[i] =
+                (dcm_private_request){preset->group, preset->element, preset->private_creator};
     }
     if (status == MITILOG_OK)
         status = ingest_exams_start(&created->exams, store, &created->rules, error);
@@ -175,25 +174,23 @@ mitilog_status ingest_set_policy(ingest *ingest, rules_policy *policy, mitilog_e
 }
 
 static mitilog_status read_record(dcm_object *object, const ext_site_rules *rules,
-                                  const dcm_private_request *requests,
-                                  const char *calling_ae_title, const char *received_at,
-                                  unsigned sr_depth_limit, dcm_facts *facts, ext_record *record,
-                                  mitilog_error *error);
+                                  const dcm_private_request *requests, const char *calling_ae_title,
+                                  const char *received_at, unsigned sr_depth_limit,
+                                  dcm_facts *facts, ext_record *record, mitilog_error *error);
 
 mitilog_status ingest_read_record(dcm_object *object, const ext_site_rules *rules,
-                                  const dcm_private_request *requests,
-                                  const char *calling_ae_title, const char *received_at,
-                                  dcm_facts *facts, ext_record *record, mitilog_error *error)
+                                  const dcm_private_request *requests, const char *calling_ae_title,
+                                  const char *received_at, dcm_facts *facts, ext_record *record,
+                                  mitilog_error *error)
 {
     return read_record(object, rules, requests, calling_ae_title, received_at, SR_DEPTH_LIMIT,
                        facts, record, error);
 }
 
 static mitilog_status read_record(dcm_object *object, const ext_site_rules *rules,
-                                  const dcm_private_request *requests,
-                                  const char *calling_ae_title, const char *received_at,
-                                  unsigned sr_depth_limit, dcm_facts *facts, ext_record *record,
-                                  mitilog_error *error)
+                                  const dcm_private_request *requests, const char *calling_ae_title,
+                                  const char *received_at, unsigned sr_depth_limit,
+                                  dcm_facts *facts, ext_record *record, mitilog_error *error)
 {
     memset(facts, 0, sizeof *facts);
     memset(record, 0, sizeof *record);
@@ -227,7 +224,6 @@ static mitilog_status hashed_path(const char *folder, const char *key, char path
     snprintf(path, PATH_SIZE, "%s/%.2s/%s.dcm", folder, hex, hex);
     return MITILOG_OK;
 }
-
 
 typedef struct quarantined_file {
     char name[256];
@@ -300,9 +296,8 @@ static int quarantine_make_room(ingest *ingest, uint64_t incoming)
     if (removed > 0)
         log_warning("quarantine quota (%u files, %llu bytes): removed the %zu oldest "
                     "file%s (%llu bytes) to keep the newest rejected object",
-                    ingest->quarantine_max_files,
-                    (unsigned long long)ingest->quarantine_max_bytes, removed,
-                    removed == 1 ? "" : "s", (unsigned long long)freed);
+                    ingest->quarantine_max_files, (unsigned long long)ingest->quarantine_max_bytes,
+                    removed, removed == 1 ? "" : "s", (unsigned long long)freed);
     int fits = count - removed + 1 <= ingest->quarantine_max_files &&
                total - freed + incoming <= ingest->quarantine_max_bytes;
     free(files);
@@ -323,8 +318,7 @@ static void quarantine(ingest *ingest, const ingest_source *source, const char *
             log_warning("association %lu: object %s (%lld bytes) not kept: larger than the "
                         "quarantine quota (quarantine_max_bytes %llu, quarantine_max_files %u)",
                         source->association_id, source->announced_sop_instance_uid,
-                        (long long)info.st_size,
-                        (unsigned long long)ingest->quarantine_max_bytes,
+                        (long long)info.st_size, (unsigned long long)ingest->quarantine_max_bytes,
                         ingest->quarantine_max_files);
         } else if (hash_file_hex(source->path, hex, &error) == MITILOG_OK) {
             snprintf(kept, sizeof kept, "%s/%s.dcm", ingest->quarantine, hex);
@@ -378,7 +372,7 @@ static mitilog_status retain(ingest *ingest, dcm_object *object, const ingest_so
  * naming the file to read, or "not read" with the reason. */
 typedef struct reading_plan {
     int wanted;
-    int reserved;                 /* a queue place is held */
+    int reserved; /* a queue place is held */
     store_reading_request request;
     char path[PATH_SIZE];
     char reason[MITILOG_ERROR_TEXT_SIZE + 64];
@@ -412,8 +406,8 @@ static void plan_reading(ingest *ingest, const ingest_source *source, const dcm_
     } else if (!source->is_spool) {
         snprintf(plan->path, sizeof plan->path, "%s", source->path);
         plan->request.path = plan->path;
-    } else if (ingest_reading_spool_file(&ingest->reading, plan->path, sizeof plan->path,
-                                         &error) == MITILOG_OK &&
+    } else if (ingest_reading_spool_file(&ingest->reading, plan->path, sizeof plan->path, &error) ==
+                   MITILOG_OK &&
                files_copy(source->path, plan->path, &error) == MITILOG_OK) {
         plan->request.path = plan->path;
         plan->request.owned = 1;
@@ -421,8 +415,8 @@ static void plan_reading(ingest *ingest, const ingest_source *source, const dcm_
         unlink(plan->path);
         ingest_reading_release(&ingest->reading, bytes);
         plan->reserved = 0;
-        snprintf(plan->reason, sizeof plan->reason,
-                 "the object could not be kept for reading: %s", error.text);
+        snprintf(plan->reason, sizeof plan->reason, "the object could not be kept for reading: %s",
+                 error.text);
         plan->request.not_read_reason = plan->reason;
         plan->request.path = NULL;
     }
@@ -456,9 +450,9 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
         return reject(ingest, source, reason);
     char now[EXT_ISO_TIME_SIZE];
     files_utc_now(now, sizeof now);
-    mitilog_status read = read_record(object, &ingest->rules, ingest->private_requests,
-                                      source->calling_ae_title, now, ingest->sr_depth_limit,
-                                      &facts, &record, reason);
+    mitilog_status read =
+        read_record(object, &ingest->rules, ingest->private_requests, source->calling_ae_title, now,
+                    ingest->sr_depth_limit, &facts, &record, reason);
     if (read == MITILOG_ERROR_MEMORY) {
         dcm_object_free(object);
         dcm_facts_free(&facts);
@@ -516,16 +510,15 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
     char *stale_spool = NULL;
     if (record.calling_ae_title == NULL) {
         mitilog_error_set(reason, MITILOG_ERROR_MEMORY, "out of memory");
-    } else if (retain(ingest, object, source, record.sop_instance_uid, &header_bytes,
-                      &header_size, reason) != MITILOG_OK) {
+    } else if (retain(ingest, object, source, record.sop_instance_uid, &header_bytes, &header_size,
+                      reason) != MITILOG_OK) {
         log_error("object %s: cannot keep its copy: %s", record.sop_instance_uid, reason->text);
     } else if (plan_reading(ingest, source, &facts, &record, &plan),
-               store_put_instance_read(ingest->store, &record,
-                                       header_bytes != NULL
-                                           ? &(store_bytes){header_bytes, header_size}
-                                           : NULL,
-                                       plan.wanted ? &plan.request : NULL, &put, &instance_id,
-                                       &stale_spool, reason) != MITILOG_OK) {
+               store_put_instance_read(
+                   ingest->store, &record,
+                   header_bytes != NULL ? &(store_bytes){header_bytes, header_size} : NULL,
+                   plan.wanted ? &plan.request : NULL, &put, &instance_id, &stale_spool,
+                   reason) != MITILOG_OK) {
         log_error("object %s not stored: %s", record.sop_instance_uid, reason->text);
         cancel_reading(ingest, &plan);
     } else {
@@ -534,8 +527,8 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
             unlink(stale_spool); /* the older receipt's copy, no longer queued */
         if (plan.wanted && plan.request.not_read_reason == NULL)
             ingest_reading_push(&ingest->reading, instance_id, record.sop_instance_uid,
-                                record.study_instance_uid, plan.request.path,
-                                plan.request.owned, plan.request.bytes);
+                                record.study_instance_uid, plan.request.path, plan.request.owned,
+                                plan.request.bytes);
         else if (plan.wanted)
             log_warning("object %s: pixel values not read: %s", record.sop_instance_uid,
                         plan.request.not_read_reason);
@@ -567,8 +560,7 @@ mitilog_status ingest_read_stored(ingest *ingest, const char *from, const char *
         char path[PATH_SIZE] = "";
         mitilog_error ignored;
         struct stat info;
-        if (hashed_path(ingest->objects, entry->sop_instance_uid, path, &ignored) !=
-                MITILOG_OK ||
+        if (hashed_path(ingest->objects, entry->sop_instance_uid, path, &ignored) != MITILOG_OK ||
             stat(path, &info) != 0) {
             if (entry->path != NULL && stat(entry->path, &info) == 0)
                 snprintf(path, sizeof path, "%s", entry->path);
@@ -635,14 +627,10 @@ uint16_t ingest_store_handler(void *context, const dcm_received *object)
     mitilog_error reason;
     switch (ingest_object(context, &source, &reason)) {
     case INGEST_OUTCOME_STORED:
-    case INGEST_OUTCOME_REPLACED:
-        return DCM_STATUS_SUCCESS;
-    case INGEST_OUTCOME_REJECTED:
-        return DCM_STATUS_CANNOT_UNDERSTAND;
-    case INGEST_OUTCOME_MISMATCHED:
-        return DCM_STATUS_DATA_SET_MISMATCH;
-    case INGEST_OUTCOME_NOT_STORED:
-        break;
+    case INGEST_OUTCOME_REPLACED: return DCM_STATUS_SUCCESS;
+    case INGEST_OUTCOME_REJECTED: return DCM_STATUS_CANNOT_UNDERSTAND;
+    case INGEST_OUTCOME_MISMATCHED: return DCM_STATUS_DATA_SET_MISMATCH;
+    case INGEST_OUTCOME_NOT_STORED: break;
     }
     return DCM_STATUS_OUT_OF_RESOURCES;
 }

@@ -37,10 +37,10 @@ typedef enum ingest_outcome {
 
 typedef struct ingest_source {
     const char *path;
-    int is_spool;                 /* 1: the receiver's memory file       */
-    const char *calling_ae_title; /* "" for imports                      */
-    const char *peer_address;     /* "" for imports                      */
-    const char *announced_sop_class_uid;    /* C-STORE command, or ""    */
+    int is_spool;                        /* 1: the receiver's memory file       */
+    const char *calling_ae_title;        /* "" for imports                      */
+    const char *peer_address;            /* "" for imports                      */
+    const char *announced_sop_class_uid; /* C-STORE command, or ""    */
     const char *announced_sop_instance_uid;
     unsigned long association_id; /* 0 for imports                       */
 } ingest_source;
@@ -52,8 +52,7 @@ void ingest_free(ingest *ingest);
 
 /* Runs one object through the pipeline. reason receives the cause of a
  * rejection or failure (it is also logged). */
-ingest_outcome ingest_object(ingest *ingest, const ingest_source *source,
-                             mitilog_error *reason);
+ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilog_error *reason);
 
 /* Waits until the exam records of every study touched so far have been
  * rebuilt (the exam worker, ingest_exam.c). ingest_free() also drains. */
@@ -67,12 +66,10 @@ const struct ext_site_rules *ingest_site_rules(const ingest *ingest);
  * frees both (dcm_facts_free, ext_record_free), also after a failure.
  * requests: the private tags of the rules' preset sources, index-aligned
  * with rules->presets (NULL creators for non-private entries). */
-mitilog_status ingest_read_record(dcm_object *object,
-                                  const struct ext_site_rules *rules,
-                                  const dcm_private_request *requests,
-                                  const char *calling_ae_title,
-                                  const char *received_at, dcm_facts *facts,
-                                  ext_record *record, mitilog_error *error);
+mitilog_status ingest_read_record(dcm_object *object, const struct ext_site_rules *rules,
+                                  const dcm_private_request *requests, const char *calling_ae_title,
+                                  const char *received_at, dcm_facts *facts, ext_record *record,
+                                  mitilog_error *error);
 
 /* ---- The ALARA policy (ingest_rules.c). ingest_create() loads
  * [rules] policy (none when the path is ""); every rebuilt exam is then
@@ -85,8 +82,7 @@ mitilog_status ingest_read_record(dcm_object *object,
  * from now on and registers it in the store. The previous policy is freed
  * when the worker no longer uses it. On error the policy is freed and the
  * old one stays. */
-mitilog_status ingest_set_policy(ingest *ingest, rules_policy *policy,
-                                 mitilog_error *error);
+mitilog_status ingest_set_policy(ingest *ingest, rules_policy *policy, mitilog_error *error);
 
 /* The clock of open/closed decisions: Unix seconds. */
 double ingest_clock_now(void);
@@ -100,14 +96,12 @@ mitilog_status ingest_register_policy(store *store, const rules_policy *policy,
  * (the day-level rules are evaluated apart: ingest_evaluate_day). counts
  * may be NULL. The exam worker and `mitilog rescore` use it. */
 mitilog_status ingest_evaluate_study(store *store, const struct ext_site_rules *rules,
-                                     const rules_policy *policy,
-                                     const char *study_instance_uid, double now,
-                                     store_evaluation_counts *counts,
+                                     const rules_policy *policy, const char *study_instance_uid,
+                                     double now, store_evaluation_counts *counts,
                                      mitilog_error *error);
 /* output_not_reported over the ultrasound instances of one day. */
-mitilog_status ingest_evaluate_day(store *store, const rules_policy *policy,
-                                   const char *day, store_evaluation_counts *counts,
-                                   mitilog_error *error);
+mitilog_status ingest_evaluate_day(store *store, const rules_policy *policy, const char *day,
+                                   store_evaluation_counts *counts, mitilog_error *error);
 
 /* Backfill (mitilog rescore --read-pixels): queues for reading every
  * stored ultrasound image and cine acquired between from and to (dates,

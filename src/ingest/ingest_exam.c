@@ -228,14 +228,14 @@ static void ingest_exams_do_study(ingest_exams *exams, const char *study)
     char **days = NULL;
     size_t day_count = 0;
     if (status == MITILOG_OK && policy != NULL)
-        status = store_list(exams->store, STORE_LIST_STUDY_DAYS, study, NULL, &days,
-                            &day_count, &error);
+        status =
+            store_list(exams->store, STORE_LIST_STUDY_DAYS, study, NULL, &days, &day_count, &error);
     ingest_exams_release_policy(exams, handle);
     if (status != MITILOG_OK)
         log_error("study %s: exam record not rebuilt or not evaluated: %s", study, error.text);
     else
-        log_debug("study %s: exam record rebuilt; %lu finding(s) written, %lu superseded",
-                  study, counts.written, counts.superseded);
+        log_debug("study %s: exam record rebuilt; %lu finding(s) written, %lu superseded", study,
+                  counts.written, counts.superseded);
     pthread_mutex_lock(&exams->lock);
     double now = ingest_clock_now();
     for (size_t i = 0; i < day_count; i++)

@@ -21,7 +21,7 @@
  * the last holder releases it (ingest_rules_handle_release). */
 typedef struct ingest_policy_handle {
     rules_policy *policy;
-    unsigned holders;              /* under ingest_exams.policy_lock     */
+    unsigned holders; /* under ingest_exams.policy_lock     */
 } ingest_policy_handle;
 
 /* Keys waiting for work, each with the times of its first and latest
@@ -38,17 +38,17 @@ typedef struct ingest_exams {
     const ext_site_rules *rules;
     pthread_mutex_t lock;
     pthread_cond_t changed;
-    ingest_pending studies;       /* study UIDs whose exam is rebuilt */
-    ingest_pending days;          /* days whose device rules are evaluated */
-    int flushing;                 /* rebuild everything now, no settling */
-    int busy;                     /* the worker is rebuilding one */
+    ingest_pending studies; /* study UIDs whose exam is rebuilt */
+    ingest_pending days;    /* days whose device rules are evaluated */
+    int flushing;           /* rebuild everything now, no settling */
+    int busy;               /* the worker is rebuilding one */
     int stopping;
     int started;
     pthread_t thread;
     unsigned long rebuilt, failed;
     pthread_mutex_t policy_lock;
-    ingest_policy_handle *policy;  /* current; NULL: exams not evaluated */
-    double next_sweep;             /* ingest_clock_now() of the next sweep */
+    ingest_policy_handle *policy; /* current; NULL: exams not evaluated */
+    double next_sweep;            /* ingest_clock_now() of the next sweep */
 } ingest_exams;
 
 /* The current policy, held until ingest_exams_release_policy (NULL: none). */
@@ -57,8 +57,7 @@ void ingest_exams_release_policy(ingest_exams *exams, ingest_policy_handle *hand
 /* Makes policy (taken over) current; the old one is freed once released. */
 void ingest_exams_swap_policy(ingest_exams *exams, rules_policy *policy);
 
-mitilog_status ingest_exams_start(ingest_exams *exams, store *store,
-                                  const ext_site_rules *rules,
+mitilog_status ingest_exams_start(ingest_exams *exams, store *store, const ext_site_rules *rules,
                                   mitilog_error *error);
 /* Queues a study (copied); a study already waiting is not queued twice.
  * Once rebuilt, its days are queued in turn, so the day-level rules run
@@ -71,8 +70,7 @@ void ingest_exams_stop(ingest_exams *exams);
 
 /* Rebuilds one study's exam now (also used by tests). */
 mitilog_status ingest_exam_rebuild(store *store, const ext_site_rules *rules,
-                                   const char *study_instance_uid,
-                                   mitilog_error *error);
+                                   const char *study_instance_uid, mitilog_error *error);
 
 typedef struct ingest_schemes {
     pthread_mutex_t lock;
@@ -81,8 +79,7 @@ typedef struct ingest_schemes {
 } ingest_schemes;
 
 /* Logs "SR coding scheme X is not in [sr_codes]" the first time only. */
-void ingest_schemes_note(ingest_schemes *schemes, const char *scheme,
-                         const char *sop_instance_uid);
+void ingest_schemes_note(ingest_schemes *schemes, const char *scheme, const char *sop_instance_uid);
 void ingest_schemes_free(ingest_schemes *schemes);
 
 #endif

@@ -104,8 +104,7 @@ static void device_of(const dcm_facts *facts, screen_device *device)
 }
 
 /* The matching profile (under profiles_lock held for reading), or NULL. */
-static const screen_profile *matching_profile(ingest_reading *reading,
-                                              const screen_device *device)
+static const screen_profile *matching_profile(ingest_reading *reading, const screen_device *device)
 {
     for (size_t i = 0; i < reading->profile_count; i++)
         if (screen_profile_matches(reading->profiles[i], device))
@@ -126,8 +125,7 @@ static int unpadded_length(const char *text)
  * frame size) learned on other software, or NULL. Its objects are queued
  * so that they are "not read" with that reason and counted against the
  * profile, never read with it (docs/screen-reading.md). */
-static const screen_profile *outdated_profile(ingest_reading *reading,
-                                              const screen_device *device)
+static const screen_profile *outdated_profile(ingest_reading *reading, const screen_device *device)
 {
     for (size_t i = 0; i < reading->profile_count; i++)
         if (screen_profile_matches_but_software(reading->profiles[i], device))
@@ -135,8 +133,7 @@ static const screen_profile *outdated_profile(ingest_reading *reading,
     return NULL;
 }
 
-int ingest_reading_wants(ingest_reading *reading, const dcm_facts *facts,
-                         int is_ultrasound_capture)
+int ingest_reading_wants(ingest_reading *reading, const dcm_facts *facts, int is_ultrasound_capture)
 {
     if (reading == NULL || !reading->started || !is_ultrasound_capture)
         return 0;
@@ -144,8 +141,8 @@ int ingest_reading_wants(ingest_reading *reading, const dcm_facts *facts,
     screen_device device;
     device_of(facts, &device);
     pthread_rwlock_rdlock(&reading->profiles_lock);
-    int wanted = matching_profile(reading, &device) != NULL ||
-                 outdated_profile(reading, &device) != NULL;
+    int wanted =
+        matching_profile(reading, &device) != NULL || outdated_profile(reading, &device) != NULL;
     pthread_rwlock_unlock(&reading->profiles_lock);
     return wanted;
 }
@@ -209,16 +206,15 @@ static void enqueue(ingest_reading *reading, ingest_reading_item *item)
 }
 
 static ingest_reading_item *item_new(long long instance_id, const char *sop_instance_uid,
-                                     const char *study_instance_uid, const char *path,
-                                     int owned, long long bytes)
+                                     const char *study_instance_uid, const char *path, int owned,
+                                     long long bytes)
 {
     ingest_reading_item *item = calloc(1, sizeof *item);
     if (item == NULL)
         return NULL;
     item->instance_id = instance_id;
     item->sop_instance_uid = strdup(sop_instance_uid != NULL ? sop_instance_uid : "");
-    item->study_instance_uid =
-        study_instance_uid != NULL ? strdup(study_instance_uid) : NULL;
+    item->study_instance_uid = study_instance_uid != NULL ? strdup(study_instance_uid) : NULL;
     item->path = strdup(path);
     item->owned = owned;
     item->bytes = bytes;
@@ -275,12 +271,9 @@ static void set_not_read(store_screen_result *result, char *reason, size_t reaso
 static const char *value_status_name(screen_value_status status)
 {
     switch (status) {
-    case SCREEN_VALUE_READ:
-        return "read";
-    case SCREEN_VALUE_NOT_SHOWN:
-        return "not_shown";
-    case SCREEN_VALUE_NOT_READ:
-        break;
+    case SCREEN_VALUE_READ: return "read";
+    case SCREEN_VALUE_NOT_SHOWN: return "not_shown";
+    case SCREEN_VALUE_NOT_READ: break;
     }
     return "not_read";
 }
@@ -301,8 +294,8 @@ static size_t frames_to_read(size_t frame_count, unsigned wanted, size_t *indice
 /* Reads item's object into result (values and reasons point into
  * readings, which must outlive result). */
 static void read_object(ingest_reading *reading, const ingest_reading_item *item,
-                        store_screen_result *result, screen_reading *combined,
-                        char *reason, size_t reason_size)
+                        store_screen_result *result, screen_reading *combined, char *reason,
+                        size_t reason_size)
 {
     memset(result, 0, sizeof *result);
     memset(combined, 0, sizeof *combined);
@@ -333,7 +326,8 @@ static void read_object(ingest_reading *reading, const ingest_reading_item *item
         char detail[512];
         const char *now_running = device.software_versions ? device.software_versions : "";
         const char *learned_on = screen_profile_software(outdated);
-        snprintf(detail, sizeof detail, "software changed: the device now runs %.*s, its "
+        snprintf(detail, sizeof detail,
+                 "software changed: the device now runs %.*s, its "
                  "screen profile %s was learned on %.*s",
                  unpadded_length(now_running), now_running, screen_profile_key(outdated),
                  unpadded_length(learned_on), learned_on);
@@ -368,8 +362,7 @@ static void read_object(ingest_reading *reading, const ingest_reading_item *item
         size_t wanted = 1, done = 0;
         int failed = 0;
         for (size_t i = 0; i < wanted && !failed; i++) {
-            if (dcm_object_frame(object, i == 0 ? 0 : indices[i], &frame, &error) !=
-                MITILOG_OK) {
+            if (dcm_object_frame(object, i == 0 ? 0 : indices[i], &frame, &error) != MITILOG_OK) {
                 set_not_read(result, reason, reason_size, "%s", error.text);
                 failed = 1;
                 break;
@@ -445,8 +438,7 @@ static void warn_refusal(ingest_reading *reading, const ingest_reading_item *ite
     pthread_mutex_lock(&reading->lock);
     const hash_entry *entry = hash_table_find(&reading->refusals_warned, key, strlen(key));
     int due = entry == NULL || now - entry->number >= 3600;
-    if (due && hash_table_put(&reading->refusals_warned, key, strlen(key), now, NULL) !=
-                   MITILOG_OK)
+    if (due && hash_table_put(&reading->refusals_warned, key, strlen(key), now, NULL) != MITILOG_OK)
         due = 1; /* out of memory: warn anyway, never drop it silently */
     pthread_mutex_unlock(&reading->lock);
     if (due)
@@ -571,8 +563,8 @@ static void remove_orphans(ingest_reading *reading)
         log_info("reading spool: %lu file(s) of objects never committed removed", removed);
 }
 
-mitilog_status ingest_reading_start(ingest_reading *reading, const config *config,
-                                    store *store, ingest_exams *exams, mitilog_error *error)
+mitilog_status ingest_reading_start(ingest_reading *reading, const config *config, store *store,
+                                    ingest_exams *exams, mitilog_error *error)
 {
     memset(reading, 0, sizeof *reading);
     reading->store = store;
@@ -580,14 +572,13 @@ mitilog_status ingest_reading_start(ingest_reading *reading, const config *confi
     reading->cine_frames = config->reading_cine_frames > 0 ? config->reading_cine_frames : 3;
     if (reading->cine_frames > 64)
         reading->cine_frames = 64;
-    reading->limit_objects = config->reading_queue_objects > 0 ? config->reading_queue_objects
-                                                               : 10000;
-    reading->limit_bytes = (long long)(config->reading_queue_megabytes > 0
-                                           ? config->reading_queue_megabytes
-                                           : 4096)
-                           << 20;
-    int written = snprintf(reading->spool, sizeof reading->spool, "%s/reading",
-                           config->data_directory);
+    reading->limit_objects =
+        config->reading_queue_objects > 0 ? config->reading_queue_objects : 10000;
+    reading->limit_bytes =
+        (long long)(config->reading_queue_megabytes > 0 ? config->reading_queue_megabytes : 4096)
+        << 20;
+    int written =
+        snprintf(reading->spool, sizeof reading->spool, "%s/reading", config->data_directory);
     if (written < 0 || (size_t)written >= sizeof reading->spool)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "data_directory path too long");
     mitilog_status status = files_make_directories(reading->spool, error);
@@ -604,10 +595,9 @@ mitilog_status ingest_reading_start(ingest_reading *reading, const config *confi
     size_t count = 0;
     status = store_reading_queue_load(store, &entries, &count, error);
     for (size_t i = 0; status == MITILOG_OK && i < count; i++) {
-        ingest_reading_item *item =
-            item_new(entries[i].instance_id, entries[i].sop_instance_uid,
-                     entries[i].study_instance_uid, entries[i].path, entries[i].owned,
-                     entries[i].bytes);
+        ingest_reading_item *item = item_new(entries[i].instance_id, entries[i].sop_instance_uid,
+                                             entries[i].study_instance_uid, entries[i].path,
+                                             entries[i].owned, entries[i].bytes);
         if (item == NULL) {
             status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "reading queue: out of memory");
             break;

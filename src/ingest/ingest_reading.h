@@ -58,17 +58,17 @@ typedef struct ingest_reading {
     ingest_reading_item *head, *tail; /* waiting, oldest first            */
     size_t held_objects;              /* waiting + being read + reserved  */
     long long held_bytes;
-    unsigned busy;                    /* workers reading one now          */
+    unsigned busy; /* workers reading one now          */
     int stopping;
     unsigned long read_count, not_read_count, full_count;
 
-    pthread_rwlock_t profiles_lock;   /* profiles: read by workers and
+    pthread_rwlock_t profiles_lock; /* profiles: read by workers and
                                        * receivers, replaced on reload   */
     screen_profile **profiles;
     size_t profile_count;
-    double profiles_loaded_at;        /* ingest_clock_now() */
+    double profiles_loaded_at; /* ingest_clock_now() */
 
-    hash_table refusals_warned;       /* profile key -> ingest_clock_now()
+    hash_table refusals_warned; /* profile key -> ingest_clock_now()
                                        * second of its last refusal warning
                                        * (under lock): one a profile an hour */
 
@@ -80,9 +80,8 @@ typedef struct ingest_reading {
 /* Creates the spool folder, loads the active profiles, takes back the
  * queue left by an earlier run (and deletes spool files no queue row
  * names), starts the workers. */
-mitilog_status ingest_reading_start(ingest_reading *reading, const config *config,
-                                    store *store, ingest_exams *exams,
-                                    mitilog_error *error);
+mitilog_status ingest_reading_start(ingest_reading *reading, const config *config, store *store,
+                                    ingest_exams *exams, mitilog_error *error);
 /* Stops the workers after the object each is reading; what is still
  * queued stays in the database for the next start. */
 void ingest_reading_stop(ingest_reading *reading);

@@ -76,8 +76,8 @@ mitilog_status ingest_register_policy(store *st, const rules_policy *policy, mit
  * rule of the policy file, always on, since a device whose header does not
  * match its display makes every header-based audit of it doubtful. */
 static mitilog_status ingest_add_mismatches(rules_result *result, const char *study,
-                                            const store_mismatch *mismatches,
-                                            size_t mismatch_count, mitilog_error *error)
+                                            const store_mismatch *mismatches, size_t mismatch_count,
+                                            mitilog_error *error)
 {
     mitilog_status status = MITILOG_OK;
     for (size_t i = 0; i < mismatch_count && status == MITILOG_OK; i++) {
@@ -86,8 +86,8 @@ static mitilog_status ingest_add_mismatches(rules_result *result, const char *st
         snprintf(assumptions, sizeof assumptions,
                  "header %s = %g; the screen showed %s (%d decimal%s); they differ by more "
                  "than the screen's rounding",
-                 mm->index, mm->header_value, mm->screen_text ? mm->screen_text : "?",
-                 mm->decimals, mm->decimals == 1 ? "" : "s");
+                 mm->index, mm->header_value, mm->screen_text ? mm->screen_text : "?", mm->decimals,
+                 mm->decimals == 1 ? "" : "s");
         snprintf(source, sizeof source,
                  "device of screen profile %s version %d%s%s: its DICOM header does not match "
                  "its display; check the device's software with its vendor",
@@ -146,8 +146,7 @@ done:
  * the exam record with its evaluation, in one transaction. */
 static mitilog_status ingest_evaluate_exam(store *st, const rules_policy *policy,
                                            const store_exam *record, double now,
-                                           store_evaluation_counts *counts,
-                                           mitilog_error *error)
+                                           store_evaluation_counts *counts, mitilog_error *error)
 {
     const char *study = record->study_instance_uid;
     const ext_exam *exam = record->exam;
@@ -217,9 +216,8 @@ done:
 }
 
 mitilog_status ingest_evaluate_study(store *st, const ext_site_rules *rules,
-                                     const rules_policy *policy, const char *study,
-                                     double now, store_evaluation_counts *counts,
-                                     mitilog_error *error)
+                                     const rules_policy *policy, const char *study, double now,
+                                     store_evaluation_counts *counts, mitilog_error *error)
 {
     ext_exam_instance *instances = NULL;
     size_t count = 0;

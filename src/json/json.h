@@ -48,11 +48,11 @@ typedef struct json_writer {
     char *text;
     size_t length, capacity;
     mitilog_status status;
-    const char *failure;                     /* what went wrong, plain words */
+    const char *failure; /* what went wrong, plain words */
     unsigned depth;
     unsigned char is_object[JSON_MAX_DEPTH]; /* per open container */
     unsigned char has_member[JSON_MAX_DEPTH];
-    int after_key;                           /* a key waits for its value */
+    int after_key; /* a key waits for its value */
 } json_writer;
 
 void json_writer_init(json_writer *writer);

@@ -35,11 +35,11 @@ typedef enum report_format { REPORT_JSON = 0, REPORT_CSV, REPORT_HTML } report_f
 int report_format_parse(const char *name, report_format *format);
 
 typedef struct report_week_request {
-    int has_week;               /* 0: the week of the latest exam held */
+    int has_week; /* 0: the week of the latest exam held */
     int iso_year, iso_week;
-    stats_dimension group;      /* room, preset, shift, transducer, exam_type */
+    stats_dimension group; /* room, preset, shift, transducer, exam_type */
     stats_week_settings settings;
-    int all_exams;              /* list every exam of each group, not only
+    int all_exams; /* list every exam of each group, not only
                                    outliers and exams with findings */
 } report_week_request;
 
@@ -54,25 +54,25 @@ void report_default_week(store *store, int *iso_year, int *iso_week);
 
 report_week_request report_week_default_request(void);
 
-mitilog_status report_week(store *store, const report_week_request *request,
-                           report_format format, char **out, mitilog_error *error);
+mitilog_status report_week(store *store, const report_week_request *request, report_format format,
+                           char **out, mitilog_error *error);
 
 typedef struct report_stats_request {
-    const char *from, *to;      /* YYYY-MM-DD inclusive; NULL: all held */
+    const char *from, *to; /* YYYY-MM-DD inclusive; NULL: all held */
     stats_dimension by;
-    const char *institution;    /* printed on the document; NULL: not configured */
+    const char *institution; /* printed on the document; NULL: not configured */
 } report_stats_request;
 
-mitilog_status report_stats(store *store, const report_stats_request *request,
-                            report_format format, char **out, mitilog_error *error);
+mitilog_status report_stats(store *store, const report_stats_request *request, report_format format,
+                            char **out, mitilog_error *error);
 
 typedef struct report_drift_request {
-    int has_week;               /* last week shown; 0: the latest held */
+    int has_week; /* last week shown; 0: the latest held */
     int iso_year, iso_week;
-    size_t weeks;               /* weeks shown, default 12 */
-    size_t baseline_weeks;      /* default 12 */
-    size_t minimum_baseline;    /* default 10 */
-    double z_limit;             /* default 3 */
+    size_t weeks;            /* weeks shown, default 12 */
+    size_t baseline_weeks;   /* default 12 */
+    size_t minimum_baseline; /* default 10 */
+    double z_limit;          /* default 3 */
 } report_drift_request;
 
 report_drift_request report_drift_default_request(void);

@@ -212,15 +212,9 @@ void report_csv_number(FILE *out, int present, double value)
         fprintf(out, "%.6g", value);
 }
 
-void report_csv_count(FILE *out, size_t value)
-{
-    fprintf(out, ",%zu", value);
-}
+void report_csv_count(FILE *out, size_t value) { fprintf(out, ",%zu", value); }
 
-void report_csv_end(FILE *out)
-{
-    fputs("\r\n", out);
-}
+void report_csv_end(FILE *out) { fputs("\r\n", out); }
 
 void report_html_text(FILE *out, const char *text)
 {
@@ -249,8 +243,9 @@ void report_html_number(FILE *out, int present, double value, int digits)
 const char *report_policy_text(const store_period_info *info, char *buffer, size_t size)
 {
     if (info->policy_version == NULL)
-        snprintf(buffer, size, "none recorded (no exam of this period has been evaluated "
-                               "by the policy engine)");
+        snprintf(buffer, size,
+                 "none recorded (no exam of this period has been evaluated "
+                 "by the policy engine)");
     else
         snprintf(buffer, size, "%s%s%s%s", info->policy_version,
                  info->policy_name != NULL ? " (" : "",
@@ -323,8 +318,7 @@ void report_meta_number(report_meta *meta, const char *name, int present, double
 {
     json_key(meta->writer, name);
     /* integral values as integers: 3 for 3.0, as these members always read */
-    if (present && isfinite(value) && value == floor(value) && value > -9.2e18 &&
-        value < 9.2e18)
+    if (present && isfinite(value) && value == floor(value) && value > -9.2e18 && value < 9.2e18)
         json_integer(meta->writer, (long long)value);
     else
         json_number(meta->writer, present, value);

@@ -16,28 +16,27 @@
 #include "json/json.h"
 
 typedef struct report_data {
-    store_exam_list list;           /* the rows and their strings */
-    exam_row *rows;                 /* list.rows, ordered by Study Instance UID;
+    store_exam_list list; /* the rows and their strings */
+    exam_row *rows;       /* list.rows, ordered by Study Instance UID;
                                        the statistics read them as they are */
     size_t row_count;
-    store_finding_counts findings;  /* with REPORT_LOAD_RULES; the rows'
+    store_finding_counts findings;       /* with REPORT_LOAD_RULES; the rows'
                                        rules point into findings.counts */
-    store_period_info info;         /* with REPORT_LOAD_INFO */
-    size_t capture_count, indexed_count;   /* over all rows */
+    store_period_info info;              /* with REPORT_LOAD_INFO */
+    size_t capture_count, indexed_count; /* over all rows */
 } report_data;
 
 /* What report_data_load reads besides the exam rows. */
 enum {
-    REPORT_LOAD_RULES = 1 << 0,     /* findings by rule of each exam (needs
+    REPORT_LOAD_RULES = 1 << 0, /* findings by rule of each exam (needs
                                        STORE_EXAM_IDENTITY) */
-    REPORT_LOAD_INFO = 1 << 1       /* the period's policy facts */
+    REPORT_LOAD_INFO = 1 << 1   /* the period's policy facts */
 };
 
 /* The exams of [from, to] with the text columns a report uses
  * (STORE_EXAM_* bits) and what load asks for (REPORT_LOAD_* bits). */
-mitilog_status report_data_load(store *store, const char *from, const char *to,
-                                unsigned columns, unsigned load, report_data *data,
-                                mitilog_error *error);
+mitilog_status report_data_load(store *store, const char *from, const char *to, unsigned columns,
+                                unsigned load, report_data *data, mitilog_error *error);
 void report_data_free(report_data *data);
 
 /* The text column a dimension groups by (STORE_EXAM_ROOM, ...; 0 for the
@@ -87,8 +86,8 @@ void report_html_number(FILE *out, int present, double value, int digits);
 /* The page head with printable CSS, the title, the caution and the facts
  * every report states. */
 void report_html_begin(FILE *out, const char *title, const char *period,
-                       const store_period_info *info, double completeness,
-                       size_t captures, size_t indexed);
+                       const store_period_info *info, double completeness, size_t captures,
+                       size_t indexed);
 void report_html_end(FILE *out);
 
 /* The policy statement: "VERSION (name)" or "none recorded ...". */
@@ -105,15 +104,15 @@ void report_meta_number(report_meta *meta, const char *name, int present, double
 void report_meta_int(report_meta *meta, const char *name, long long value);
 void report_meta_bool(report_meta *meta, const char *name, int value);
 /* The facts every document states: policy, completeness, caution. */
-void report_meta_common(report_meta *meta, const store_period_info *info,
-                        size_t captures, size_t indexed);
+void report_meta_common(report_meta *meta, const store_period_info *info, size_t captures,
+                        size_t indexed);
 
 /* The statistics document (report_pack.c): what it prints, all borrowed. */
 typedef struct report_pack_input {
-    const char *from, *to;          /* YYYY-MM-DD */
+    const char *from, *to; /* YYYY-MM-DD */
     stats_dimension by;
-    const char *institution;        /* NULL or "": not configured */
-    const report_data *data;        /* rows loaded with STORE_EXAM_DETAIL */
+    const char *institution; /* NULL or "": not configured */
+    const report_data *data; /* rows loaded with STORE_EXAM_DETAIL */
     const stats_period_result *result;
 } report_pack_input;
 void report_pack_html(const report_pack_input *in, FILE *out);

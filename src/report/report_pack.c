@@ -23,8 +23,8 @@ enum { PACK_INDEX_DECIMALS = 2, PACK_MINUTE_DECIMALS = 1 };
 /* What the document says of one row of the table: the exam type's label
  * and governing index as the exams of that type recorded them. */
 typedef struct pack_row_facts {
-    const char *label;          /* NULL: none recorded */
-    const char *governing;      /* NULL: none recorded; "mixed" when they differ */
+    const char *label;     /* NULL: none recorded */
+    const char *governing; /* NULL: none recorded; "mixed" when they differ */
 } pack_row_facts;
 
 static int pack_same(const char *a, const char *b)
@@ -46,8 +46,9 @@ static void pack_index_text(FILE *out, const char *name)
         return;
     }
     for (const char *c = name; *c != '\0'; c++)
-        fputc(*c >= 'a' && *c <= 'z' ? *c - 'a' + 'A' : (*c == '<' || *c == '>' || *c == '&' ||
-                                                         *c == '"' || *c == '\'' ? '?' : *c),
+        fputc(*c >= 'a' && *c <= 'z'
+                  ? *c - 'a' + 'A'
+                  : (*c == '<' || *c == '>' || *c == '&' || *c == '"' || *c == '\'' ? '?' : *c),
               out);
 }
 
@@ -230,8 +231,14 @@ static pack_scale pack_scale_of(const report_pack_input *in)
     return scale;
 }
 
-enum { CHART_WIDTH = 300, CHART_HEIGHT = 130, CHART_LEFT = 30, CHART_RIGHT = 8, CHART_TOP = 8,
-       CHART_BOTTOM = 30 };
+enum {
+    CHART_WIDTH = 300,
+    CHART_HEIGHT = 130,
+    CHART_LEFT = 30,
+    CHART_RIGHT = 8,
+    CHART_TOP = 8,
+    CHART_BOTTOM = 30
+};
 
 static double pack_x(const pack_scale *scale, double value)
 {
@@ -286,8 +293,8 @@ static void pack_chart(const report_pack_input *in, FILE *out, const pack_scale 
         fprintf(out,
                 "<rect class=\"bar\" x=\"%.1f\" y=\"%.1f\" width=\"%.1f\" height=\"%.1f\">"
                 "<title>%.2f to %.2f: %zu</title></rect>",
-                pack_x(scale, b * scale->bin) + 0.5, base - h, bar_width - 1.0, h,
-                b * scale->bin, (b + 1) * scale->bin, counts[b]);
+                pack_x(scale, b * scale->bin) + 0.5, base - h, bar_width - 1.0, h, b * scale->bin,
+                (b + 1) * scale->bin, counts[b]);
     }
     const stats_distribution *g = &row->governing;
     if (g->count > 0) {
@@ -297,8 +304,8 @@ static void pack_chart(const report_pack_input *in, FILE *out, const pack_scale 
                 pack_x(scale, g->median), pack_x(scale, g->median), CHART_TOP, base,
                 pack_x(scale, g->p95), pack_x(scale, g->p95), CHART_TOP, base);
     }
-    fprintf(out, "<line class=\"axis\" x1=\"%d\" x2=\"%d\" y1=\"%.1f\" y2=\"%.1f\"/>",
-            CHART_LEFT, CHART_WIDTH - CHART_RIGHT, base, base);
+    fprintf(out, "<line class=\"axis\" x1=\"%d\" x2=\"%d\" y1=\"%.1f\" y2=\"%.1f\"/>", CHART_LEFT,
+            CHART_WIDTH - CHART_RIGHT, base, base);
     int tick_count = (int)lround(scale->top / scale->tick);
     int decimals = scale->tick >= 1.0 ? 0 : scale->tick >= 0.1 ? 1 : 2;
     for (int t = 0; t <= tick_count; t++) {
@@ -309,8 +316,7 @@ static void pack_chart(const report_pack_input *in, FILE *out, const pack_scale 
                 pack_x(scale, value), pack_x(scale, value), base, base + 3, pack_x(scale, value),
                 base + 12, decimals, value);
     }
-    fprintf(out,
-            "<text class=\"axis-title\" x=\"%d\" y=\"%d\" text-anchor=\"middle\">highest ",
+    fprintf(out, "<text class=\"axis-title\" x=\"%d\" y=\"%d\" text-anchor=\"middle\">highest ",
             (CHART_LEFT + CHART_WIDTH - CHART_RIGHT) / 2, CHART_HEIGHT - 4);
     if (governing != NULL && strcmp(governing, "mixed") != 0)
         pack_index_text(out, governing);
@@ -380,8 +386,8 @@ void report_pack_html(const report_pack_input *in, FILE *out)
     int have_institution = in->institution != NULL && in->institution[0] != '\0';
     snprintf(title, sizeof title, "Acoustic output statistics%s%s", have_institution ? ", " : "",
              have_institution ? in->institution : "");
-    snprintf(period, sizeof period, "%s to %s (local date of each exam's first capture)",
-             in->from, in->to);
+    snprintf(period, sizeof period, "%s to %s (local date of each exam's first capture)", in->from,
+             in->to);
     report_html_begin(out, title, period, &in->data->info,
                       report_completeness(in->data->capture_count, in->data->indexed_count),
                       in->data->capture_count, in->data->indexed_count);
@@ -419,7 +425,8 @@ void report_pack_html(const report_pack_input *in, FILE *out)
     fputs("<h2>Findings and time at or above each TI threshold</h2>\n<p>With findings: exams "
           "with at least one violation, warning or advisory above its own limit. "
           "Informational only: exams whose only findings are advisories below their own "
-          "limit (e.g. first-trimester Doppler used below its TI limit), counted apart. Time: estimated from each exam's timeline "
+          "limit (e.g. first-trimester Doppler used below its TI limit), counted apart. Time: "
+          "estimated from each exam's timeline "
           "(docs/extraction.md); for each threshold of the governing index, the exams with "
           "any time at or above it and the 95th percentile of that time, in minutes, over the "
           "exams with a value.</p>\n<table class=\"pack\" id=\"time\"><thead><tr>"
@@ -459,8 +466,8 @@ void report_pack_html(const report_pack_input *in, FILE *out)
             fputs(")", out);
         }
         fputs("</figcaption>", out);
-        pack_chart(in, out, &scale, row, row->key, in->by == STATS_BY_EXAM_TYPE ? facts.governing
-                                                                                : NULL);
+        pack_chart(in, out, &scale, row, row->key,
+                   in->by == STATS_BY_EXAM_TYPE ? facts.governing : NULL);
         fputs("</figure>\n", out);
     }
     fputs("</div>\n", out);

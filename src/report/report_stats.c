@@ -9,7 +9,6 @@
 #include <stdlib.h>
 #include <string.h>
 
-
 typedef struct stats_document {
     char from[11], to[11];
     stats_dimension by;
@@ -33,8 +32,7 @@ static mitilog_status stats_compute(store *st, const report_stats_request *reque
         to_day = stats_iso_week_monday(year, week, &monday) == MITILOG_OK
                      ? monday + 6
                      : report_last_complete_day(st);
-    }
-    else if (stats_day_number(request->to, &to_day) != MITILOG_OK)
+    } else if (stats_day_number(request->to, &to_day) != MITILOG_OK)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "to: not a date YYYY-MM-DD");
     if (request->from == NULL || request->from[0] == '\0') {
         char *first_day = NULL, *last_day = NULL;
@@ -55,13 +53,11 @@ static mitilog_status stats_compute(store *st, const report_stats_request *reque
     stats_day_text(to_day, doc->to);
     /* Statistics need the grouping column only, not the findings by rule. */
     mitilog_status status = report_data_load(st, doc->from, doc->to,
-                                             report_dimension_column(doc->by) |
-                                                 STORE_EXAM_DETAIL,
-                                             REPORT_LOAD_INFO,
-                                             &doc->data, error);
+                                             report_dimension_column(doc->by) | STORE_EXAM_DETAIL,
+                                             REPORT_LOAD_INFO, &doc->data, error);
     if (status == MITILOG_OK)
-        status = stats_period_table(doc->data.rows, doc->data.row_count, doc->by, &doc->result,
-                                    error);
+        status =
+            stats_period_table(doc->data.rows, doc->data.row_count, doc->by, &doc->result, error);
     return status;
 }
 
@@ -193,8 +189,7 @@ static mitilog_status stats_json(const stats_document *doc, char **out, mitilog_
     report_meta_text(&meta, "governing_value", "highest governing thermal index of each exam");
     report_meta_int(&meta, "exam_count", (long long)doc->result.total.exam_count);
     report_meta_text(&meta, "institution", doc->institution);
-    report_meta_common(&meta, &doc->data.info, doc->data.capture_count,
-                       doc->data.indexed_count);
+    report_meta_common(&meta, &doc->data.info, doc->data.capture_count, doc->data.indexed_count);
     json_key(w, "rows");
     json_array_begin(w);
     for (size_t r = 0; r < doc->result.row_count; r++)
@@ -208,19 +203,47 @@ static mitilog_status stats_json(const stats_document *doc, char **out, mitilog_
     return status;
 }
 
-
-static const char *const stats_csv_columns[] = {
-    "record", "from", "to", "by", "key", "exams", "exams_with_findings",
-    "share_with_findings", "governing_n", "governing_median", "governing_p75",
-    "governing_p95", "governing_max", "mi_n", "mi_median", "mi_p75", "mi_p95", "mi_max",
-    "estimated_minutes_median", "estimated_minutes_p95",
-    "exams_at_or_above_0_7", "minutes_at_or_above_0_7_median", "minutes_at_or_above_0_7_p95",
-    "exams_at_or_above_1_0", "minutes_at_or_above_1_0_median", "minutes_at_or_above_1_0_p95",
-    "exams_at_or_above_1_5", "minutes_at_or_above_1_5_median", "minutes_at_or_above_1_5_p95",
-    "exams_at_or_above_2_0", "minutes_at_or_above_2_0_median", "minutes_at_or_above_2_0_p95",
-    "data_completeness", "policy_version", "note", "label", "governing_index",
-    "governing_without_value", "institution", "exams_informational_only",
-    "share_informational_only"};
+static const char *const stats_csv_columns[] = {"record",
+                                                "from",
+                                                "to",
+                                                "by",
+                                                "key",
+                                                "exams",
+                                                "exams_with_findings",
+                                                "share_with_findings",
+                                                "governing_n",
+                                                "governing_median",
+                                                "governing_p75",
+                                                "governing_p95",
+                                                "governing_max",
+                                                "mi_n",
+                                                "mi_median",
+                                                "mi_p75",
+                                                "mi_p95",
+                                                "mi_max",
+                                                "estimated_minutes_median",
+                                                "estimated_minutes_p95",
+                                                "exams_at_or_above_0_7",
+                                                "minutes_at_or_above_0_7_median",
+                                                "minutes_at_or_above_0_7_p95",
+                                                "exams_at_or_above_1_0",
+                                                "minutes_at_or_above_1_0_median",
+                                                "minutes_at_or_above_1_0_p95",
+                                                "exams_at_or_above_1_5",
+                                                "minutes_at_or_above_1_5_median",
+                                                "minutes_at_or_above_1_5_p95",
+                                                "exams_at_or_above_2_0",
+                                                "minutes_at_or_above_2_0_median",
+                                                "minutes_at_or_above_2_0_p95",
+                                                "data_completeness",
+                                                "policy_version",
+                                                "note",
+                                                "label",
+                                                "governing_index",
+                                                "governing_without_value",
+                                                "institution",
+                                                "exams_informational_only",
+                                                "share_informational_only"};
 enum { STATS_CSV_COLUMNS = sizeof stats_csv_columns / sizeof stats_csv_columns[0] };
 
 static void stats_csv_row(const stats_document *doc, FILE *out, const stats_period_row *row,
@@ -308,13 +331,13 @@ static void stats_csv(const stats_document *doc, FILE *out)
 
 static void stats_html(const stats_document *doc, FILE *out)
 {
-    report_pack_input in = {doc->from, doc->to, doc->by, doc->institution, &doc->data,
-                            &doc->result};
+    report_pack_input in = {doc->from,        doc->to,    doc->by,
+                            doc->institution, &doc->data, &doc->result};
     report_pack_html(&in, out);
 }
 
-mitilog_status report_stats(store *st, const report_stats_request *request,
-                            report_format format, char **out, mitilog_error *error)
+mitilog_status report_stats(store *st, const report_stats_request *request, report_format format,
+                            char **out, mitilog_error *error)
 {
     *out = NULL;
     report_stats_request defaults = {NULL, NULL, STATS_BY_EXAM_TYPE, NULL};
@@ -368,8 +391,7 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
         report_default_week(st, &year, &week);
     long last_monday;
     if (stats_iso_week_monday(year, week, &last_monday) != MITILOG_OK)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no ISO week %d-W%02d", year,
-                                 week);
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no ISO week %d-W%02d", year, week);
     long first_monday = last_monday - 7L * (long)(weeks - 1);
     char from[11], to[11], shown_from[11];
     stats_day_text(first_monday - 7L * (long)baseline_weeks, from);
@@ -378,10 +400,9 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
     report_data data;
     stats_drift_result result;
     memset(&result, 0, sizeof result);
-    mitilog_status status = report_data_load(st, from, to,
-                                             STORE_EXAM_DAY | STORE_EXAM_ROOM |
-                                                 STORE_EXAM_PRESET,
-                                             REPORT_LOAD_INFO, &data, error);
+    mitilog_status status =
+        report_data_load(st, from, to, STORE_EXAM_DAY | STORE_EXAM_ROOM | STORE_EXAM_PRESET,
+                         REPORT_LOAD_INFO, &data, error);
     if (status != MITILOG_OK)
         return status;
     status = stats_drift(data.rows, data.row_count, first_monday, weeks, baseline_weeks,

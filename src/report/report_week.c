@@ -22,15 +22,15 @@ report_week_request report_week_default_request(void)
 typedef struct week_document {
     char week[9], monday[11], sunday[11], baseline_from[11], baseline_to[11];
     const report_week_request *request;
-    report_data data;                /* the week's exams */
-    store_exam_list baseline;        /* the baseline weeks' exam types and values */
-    store_period_info week_info;     /* policy facts for the week itself */
-    const exam_row *week_exams, *baseline_exams;   /* data.rows, baseline.rows */
-    size_t *week_rows;               /* week exam -> data row */
+    report_data data;                            /* the week's exams */
+    store_exam_list baseline;                    /* the baseline weeks' exam types and values */
+    store_period_info week_info;                 /* policy facts for the week itself */
+    const exam_row *week_exams, *baseline_exams; /* data.rows, baseline.rows */
+    size_t *week_rows;                           /* week exam -> data row */
     size_t week_count, baseline_count;
     stats_week_result result;
     size_t captures, indexed, outliers;
-    store_span baseline_span;        /* what the baseline weeks hold */
+    store_span baseline_span; /* what the baseline weeks hold */
 } week_document;
 
 static void week_document_free(week_document *doc)
@@ -60,8 +60,7 @@ static mitilog_status week_compute(store *st, const report_week_request *request
         report_default_week(st, &year, &week);
     long monday;
     if (stats_iso_week_monday(year, week, &monday) != MITILOG_OK)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no ISO week %d-W%02d", year,
-                                 week);
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no ISO week %d-W%02d", year, week);
     stats_week_settings settings = request->settings;
     if (settings.baseline_weeks == 0)
         settings.baseline_weeks = stats_week_default_settings().baseline_weeks;
@@ -75,18 +74,18 @@ static mitilog_status week_compute(store *st, const report_week_request *request
 
     /* The week's exams in full; of the baseline weeks only what the
      * baselines use (exam type, group, governing value). */
-    mitilog_status status = report_data_load(st, doc->monday, doc->sunday, STORE_EXAM_ALL,
-                                             REPORT_LOAD_RULES | REPORT_LOAD_INFO, &doc->data,
-                                             error);
+    mitilog_status status =
+        report_data_load(st, doc->monday, doc->sunday, STORE_EXAM_ALL,
+                         REPORT_LOAD_RULES | REPORT_LOAD_INFO, &doc->data, error);
     char baseline_last[11]; /* the Sunday before the week: the rows' period is inclusive */
     stats_day_text(monday - 1, baseline_last);
     if (status == MITILOG_OK)
-        status = store_load_exam_rows(st, doc->baseline_from, baseline_last,
-                                      report_dimension_column(request->group), &doc->baseline,
-                                      error);
+        status =
+            store_load_exam_rows(st, doc->baseline_from, baseline_last,
+                                 report_dimension_column(request->group), &doc->baseline, error);
     if (status == MITILOG_OK)
-        status = store_load_baseline_span(st, doc->baseline_from, doc->monday,
-                                          &doc->baseline_span, error);
+        status = store_load_baseline_span(st, doc->baseline_from, doc->monday, &doc->baseline_span,
+                                          error);
     if (status != MITILOG_OK)
         return status;
     doc->week_info = doc->data.info;
@@ -104,9 +103,9 @@ static mitilog_status week_compute(store *st, const report_week_request *request
     }
     doc->baseline_exams = doc->baseline.rows;
     doc->baseline_count = doc->baseline.count;
-    status = stats_week_outliers(doc->week_exams, doc->week_count, doc->baseline_exams,
-                                 doc->baseline_count, &settings, request->group, &doc->result,
-                                 error);
+    status =
+        stats_week_outliers(doc->week_exams, doc->week_count, doc->baseline_exams,
+                            doc->baseline_count, &settings, request->group, &doc->result, error);
     for (size_t i = 0; status == MITILOG_OK && i < doc->result.flag_count; i++)
         doc->outliers += doc->result.flags[i].is_outlier != 0;
     return status;
@@ -245,8 +244,8 @@ static mitilog_status week_json(const week_document *doc, char **out, mitilog_er
         if (group->rule_count > 0) {
             rules = malloc(group->rule_count * sizeof *rules);
             if (rules == NULL) {
-                status = mitilog_error_set(error, MITILOG_ERROR_MEMORY,
-                                           "weekly report: out of memory");
+                status =
+                    mitilog_error_set(error, MITILOG_ERROR_MEMORY, "weekly report: out of memory");
                 break;
             }
             memcpy(rules, group->rules, group->rule_count * sizeof *rules);
@@ -338,12 +337,33 @@ static mitilog_status week_json(const week_document *doc, char **out, mitilog_er
 
 /* ---- CSV ---- */
 
-static const char *const week_csv_columns[] = {
-    "record", "week", "group_by", "group", "rank", "exams", "outliers", "outlier_rate",
-    "median_governing", "department_median", "median_mi", "findings", "data_completeness",
-    "study_key", "day", "exam_type", "room", "preset", "shift", "transducer",
-    "governing_index", "max_governing", "max_mi", "robust_z", "reason", "policy_version",
-    "note"};
+static const char *const week_csv_columns[] = {"record",
+                                               "week",
+                                               "group_by",
+                                               "group",
+                                               "rank",
+                                               "exams",
+                                               "outliers",
+                                               "outlier_rate",
+                                               "median_governing",
+                                               "department_median",
+                                               "median_mi",
+                                               "findings",
+                                               "data_completeness",
+                                               "study_key",
+                                               "day",
+                                               "exam_type",
+                                               "room",
+                                               "preset",
+                                               "shift",
+                                               "transducer",
+                                               "governing_index",
+                                               "max_governing",
+                                               "max_mi",
+                                               "robust_z",
+                                               "reason",
+                                               "policy_version",
+                                               "note"};
 enum { WEEK_CSV_COLUMNS = sizeof week_csv_columns / sizeof week_csv_columns[0] };
 
 static void csv_empty(FILE *out, int count)
@@ -363,8 +383,7 @@ static void week_csv(const week_document *doc, FILE *out)
     /* record "report": the facts of the whole list */
     snprintf(note, sizeof note, "%s Period %s to %s; baseline %s to %s%s.", report_caution,
              doc->monday, doc->sunday, doc->baseline_from, doc->baseline_to,
-             doc->result.any_thin ? " (thin for some exam types: the week's own exams added)"
-                                  : "");
+             doc->result.any_thin ? " (thin for some exam types: the week's own exams added)" : "");
     report_csv_field(out, 1, "report");
     report_csv_field(out, 0, doc->week);
     report_csv_field(out, 0, group_by);
@@ -379,8 +398,7 @@ static void week_csv(const week_document *doc, FILE *out)
     report_csv_end(out);
     for (size_t g = 0; g < doc->result.group_count; g++) {
         const stats_group *group = &doc->result.groups[g];
-        double group_completeness =
-            report_completeness(group->capture_count, group->indexed_count);
+        double group_completeness = report_completeness(group->capture_count, group->indexed_count);
         report_csv_field(out, 1, "group");
         report_csv_field(out, 0, doc->week);
         report_csv_field(out, 0, group_by);
@@ -405,7 +423,8 @@ static void week_csv(const week_document *doc, FILE *out)
             const stats_exam_flag *flag = &doc->result.flags[e];
             const exam_row *row = &doc->data.rows[doc->week_rows[e]];
             char reason[128];
-            snprintf(reason, sizeof reason, "%s%s%s%s", flag->above_robust_z ? "robust z > limit" : "",
+            snprintf(reason, sizeof reason, "%s%s%s%s",
+                     flag->above_robust_z ? "robust z > limit" : "",
                      flag->above_robust_z && flag->above_p95 ? "; " : "",
                      flag->above_p95 ? "above baseline P95" : "",
                      row->finding_count > 0 ? (flag->is_outlier ? "; findings" : "findings") : "");
@@ -470,27 +489,29 @@ static void week_html(const week_document *doc, FILE *out)
     const char *group_by = stats_dimension_name(doc->request->group);
     char title[128], period[160];
     snprintf(title, sizeof title, "Weekly outlier list %s, by %s", doc->week, group_by);
-    snprintf(period, sizeof period, "ISO week %s: %s to %s (local dates)", doc->week,
-             doc->monday, doc->sunday);
+    snprintf(period, sizeof period, "ISO week %s: %s to %s (local dates)", doc->week, doc->monday,
+             doc->sunday);
     report_html_begin(out, title, period, &doc->week_info,
                       report_completeness(doc->captures, doc->indexed), doc->captures,
                       doc->indexed);
     if (doc->baseline_span.exams > 0)
-        fprintf(out, "<p>%zu exams this week, %zu outliers. Baseline: each exam type's exams "
-                     "of the weeks before; the data held runs from %s to %s (%ld weeks with "
-                     "data; %ld exams). An exam is an outlier when its highest governing "
-                     "thermal index is high: robust z above ",
+        fprintf(out,
+                "<p>%zu exams this week, %zu outliers. Baseline: each exam type's exams "
+                "of the weeks before; the data held runs from %s to %s (%ld weeks with "
+                "data; %ld exams). An exam is an outlier when its highest governing "
+                "thermal index is high: robust z above ",
                 doc->week_count, doc->outliers, doc->baseline_span.first_day,
                 doc->baseline_span.last_day, doc->baseline_span.weeks, doc->baseline_span.exams);
     else
-        fprintf(out, "<p>%zu exams this week, %zu outliers. Baseline: no exam before this "
-                     "week, so each exam type is compared with the week's own exams. An exam "
-                     "is an outlier when its highest governing thermal index is high: robust "
-                     "z above ",
+        fprintf(out,
+                "<p>%zu exams this week, %zu outliers. Baseline: no exam before this "
+                "week, so each exam type is compared with the week's own exams. An exam "
+                "is an outlier when its highest governing thermal index is high: robust "
+                "z above ",
                 doc->week_count, doc->outliers);
-    report_html_number(out, 1, doc->request->settings.z_limit > 0 ? doc->request->settings.z_limit : 3.0, 3);
-    fputs(" (a rise; a low value is never flagged) or above the baseline's 95th percentile.",
-          out);
+    report_html_number(
+        out, 1, doc->request->settings.z_limit > 0 ? doc->request->settings.z_limit : 3.0, 3);
+    fputs(" (a rise; a low value is never flagged) or above the baseline's 95th percentile.", out);
     if (doc->result.any_thin) {
         fputs(" <strong>Baseline thin</strong> (fewer than ", out);
         fprintf(out, "%zu exams; the week's own exams were added) for: ",
@@ -560,8 +581,8 @@ static void week_html(const week_document *doc, FILE *out)
                   out);
             any_listed = 1;
         }
-        int columns = 8 + (by != STATS_BY_ROOM) + (by != STATS_BY_PRESET) +
-                      (by != STATS_BY_SHIFT) + (by != STATS_BY_TRANSDUCER);
+        int columns = 8 + (by != STATS_BY_ROOM) + (by != STATS_BY_PRESET) + (by != STATS_BY_SHIFT) +
+                      (by != STATS_BY_TRANSDUCER);
         fprintf(out, "<tr class=\"group\"><th colspan=\"%d\">", columns);
         report_html_text(out, group->key != NULL ? group->key : "(not recorded)");
         fprintf(out, ": %zu exam%s listed</th></tr>\n", listed, listed == 1 ? "" : "s");
@@ -576,8 +597,8 @@ static void week_html(const week_document *doc, FILE *out)
             report_study_key(row->study_instance_uid, study_key);
             html_cell_text(out, study_key);
             html_cell_text(out, row->day);
-            html_cell_text(out, row->exam_type_label != NULL ? row->exam_type_label
-                                                             : row->exam_type);
+            html_cell_text(out,
+                           row->exam_type_label != NULL ? row->exam_type_label : row->exam_type);
             if (by != STATS_BY_ROOM)
                 html_cell_text(out, row->room);
             if (by != STATS_BY_PRESET)
@@ -616,8 +637,8 @@ static void week_html(const week_document *doc, FILE *out)
     report_html_end(out);
 }
 
-mitilog_status report_week(store *st, const report_week_request *request,
-                           report_format format, char **out, mitilog_error *error)
+mitilog_status report_week(store *st, const report_week_request *request, report_format format,
+                           char **out, mitilog_error *error)
 {
     *out = NULL;
     report_week_request defaults = report_week_default_request();

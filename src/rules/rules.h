@@ -33,7 +33,7 @@ extern "C" {
 #endif
 
 typedef enum rules_age {
-    RULES_AGE_UNKNOWN = 0,    /* limits for adults apply */
+    RULES_AGE_UNKNOWN = 0, /* limits for adults apply */
     RULES_AGE_ADULT,
     RULES_AGE_CHILD,
     RULES_AGE_NEONATE,
@@ -48,27 +48,26 @@ int rules_age_parse(const char *text, rules_age *age);
 /* One exam (study) as the exam record describes it. */
 typedef struct rules_exam {
     const char *study_instance_uid;
-    const char *category;    /* exam type key, e.g. "neonatal_lung"; may be NULL */
+    const char *category; /* exam type key, e.g. "neonatal_lung"; may be NULL */
     exam_group group;
     rules_age age;
-    double gestational_age_weeks;   /* 13+6 is 13 + 6/7 */
+    double gestational_age_weeks; /* 13+6 is 13 + 6/7 */
     int gestational_age_known;
-    exam_index governing_index;      /* used when has_governing_index */
-    int has_governing_index;        /* 0: the engine decides (domain s.3) */
+    exam_index governing_index; /* used when has_governing_index */
+    int has_governing_index;    /* 0: the engine decides (domain s.3) */
     const char *room;
     const char *transducer;
     const char *preset;
-    int closed;                     /* 0: open, findings are provisional */
-    double sr_scan_time_seconds;    /* <= 0: no SR scan time */
+    int closed;                  /* 0: open, findings are provisional */
+    double sr_scan_time_seconds; /* <= 0: no SR scan time */
     const exam_capture *captures;
     size_t capture_count;
 } rules_exam;
 
-
 typedef struct rules_result {
     exam_finding *findings;
     size_t finding_count;
-    exam_measurements measurements;    /* rules_evaluate only */
+    exam_measurements measurements; /* rules_evaluate only */
     char policy_version[HASH_HEX_SIZE];
 } rules_result;
 
@@ -77,11 +76,9 @@ typedef struct rules_policy rules_policy;
 /* Parses a policy file (docs/policy.md). Errors name the file, the line
  * and the key: "conf/policy.ini:12: [rule ti_ceiling] limit: 'x' is not a
  * number". On failure *policy is NULL. */
-mitilog_status rules_policy_load(const char *path, rules_policy **policy,
-                                 mitilog_error *error);
+mitilog_status rules_policy_load(const char *path, rules_policy **policy, mitilog_error *error);
 /* The same from text; name is used in error messages. */
-mitilog_status rules_policy_load_text(const char *text, const char *name,
-                                      rules_policy **policy,
+mitilog_status rules_policy_load_text(const char *text, const char *name, rules_policy **policy,
                                       mitilog_error *error);
 void rules_policy_free(rules_policy *policy);
 
@@ -104,8 +101,7 @@ const char *rules_policy_index_source(const rules_policy *policy);
  * policy does. */
 size_t rules_policy_rule_count(const rules_policy *policy);
 /* Returns 0, or -1 if index is out of range. */
-int rules_policy_rule_at(const rules_policy *policy, size_t index,
-                         exam_rule_info *info);
+int rules_policy_rule_at(const rules_policy *policy, size_t index, exam_rule_info *info);
 
 /* The limits the policy sets for an exam of a group and age group
  * without an exam-type-specific key (what the dashboard draws): the
@@ -122,18 +118,16 @@ exam_index rules_governing_index(const rules_exam *exam);
 /* Every enabled rule except output_not_reported on one exam. Fills result
  * (findings in policy order, then by threshold). MITILOG_ERROR_MEMORY or
  * MITILOG_ERROR_INVALID (NULL arguments) on failure. */
-mitilog_status rules_evaluate(const rules_policy *policy,
-                              const rules_exam *exam, rules_result *result,
-                              mitilog_error *error);
+mitilog_status rules_evaluate(const rules_policy *policy, const rules_exam *exam,
+                              rules_result *result, mitilog_error *error);
 
 /* Groups instances by (room, transducer); one finding per group with at
  * least the rule's minimum of instances that report no index at all:
  * measured = silent count, instances = their UIDs, span = first/last
  * silent time. Findings ordered by room, then transducer. */
 mitilog_status rules_output_not_reported(const rules_policy *policy,
-                                         const exam_device_instance *instances,
-                                         size_t count, rules_result *result,
-                                         mitilog_error *error);
+                                         const exam_device_instance *instances, size_t count,
+                                         rules_result *result, mitilog_error *error);
 
 /* Appends a finding made outside the policy engine (e.g. a header that
  * disagrees with the screen): its strings are borrowed and copied into the
@@ -150,8 +144,7 @@ double rules_cem43_temperature_from_ti(double thermal_index);
 
 /* MI = p_r.3 / sqrt(f_awf), MPa and MHz [std: IEC 62359; NEMA UD 3].
  * Returns -1 for a non-positive frequency or a negative pressure. */
-double rules_mechanical_index(double derated_pressure_mpa,
-                              double frequency_mhz);
+double rules_mechanical_index(double derated_pressure_mpa, double frequency_mhz);
 
 #ifdef __cplusplus
 }

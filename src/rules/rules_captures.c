@@ -5,7 +5,7 @@
 #include "rules/rules_internal.h"
 
 static const exam_index thermal_indices[] = {EXAM_INDEX_TIS, EXAM_INDEX_TIB, EXAM_INDEX_TIC,
-                                            EXAM_INDEX_TIS_FOCUS, EXAM_INDEX_TIS_SURFACE};
+                                             EXAM_INDEX_TIS_FOCUS, EXAM_INDEX_TIS_SURFACE};
 
 /* The capture's value of index, or of its highest TI when index is
  * EXAM_INDEX_COUNT. Returns 0 when not reported. */

@@ -28,8 +28,8 @@ mitilog_status rules_check_ceiling(const rules_rule *rule, const rules_view *vie
 {
     if (rule->kind == RULES_KIND_MI_CEILING)
         return check_one(rule, view, EXAM_INDEX_MI, "limit", "mi", NULL, result, error);
-    return check_one(rule, view, view->governing, "limit", exam_index_name(view->governing),
-                     NULL, result, error);
+    return check_one(rule, view, view->governing, "limit", exam_index_name(view->governing), NULL,
+                     result, error);
 }
 
 mitilog_status rules_check_equipment(const rules_rule *rule, const rules_view *view,

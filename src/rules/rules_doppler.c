@@ -49,8 +49,8 @@ mitilog_status rules_check_first_trimester(const rules_rule *rule, const rules_v
     if (doppler_captures > 0) {
         double ti_limit = 0, minutes_limit = 0;
         int has_ti_limit = rules_rule_limit(rule, "ti_limit", exam, &ti_limit);
-        int has_minutes_limit = rules_rule_limit(rule, "doppler_minutes_limit", exam,
-                                                 &minutes_limit);
+        int has_minutes_limit =
+            rules_rule_limit(rule, "doppler_minutes_limit", exam, &minutes_limit);
         exam_severity severity = rule->severity;
         int over = (has_ti_limit && reporting > 0 && match.max_value > ti_limit) ||
                    (has_minutes_limit && doppler_seconds / 60.0 > minutes_limit);
@@ -63,9 +63,9 @@ mitilog_status rules_check_first_trimester(const rules_rule *rule, const rules_v
                  exam->gestational_age_weeks, doppler_captures, reporting,
                  exam_index_name(view->governing), doppler_seconds);
         match.estimated_seconds = doppler_seconds;
-        status = rules_emit(rule, view, severity, exam_index_name(view->governing),
-                            match.max_value, "", has_ti_limit ? &ti_limit : NULL, 0,
-                            view->governing, &match, note, result, error);
+        status = rules_emit(rule, view, severity, exam_index_name(view->governing), match.max_value,
+                            "", has_ti_limit ? &ti_limit : NULL, 0, view->governing, &match, note,
+                            result, error);
     }
     free(match.uids);
     return status;

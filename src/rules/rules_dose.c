@@ -19,8 +19,7 @@ mitilog_status rules_check_thermal_dose(const rules_rule *rule, const rules_view
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
     mitilog_status status =
         rules_emit(rule, view, rule->severity, "cem43", dose, "CEM43 min", &limit, 0,
-                   view->governing, &match, "T = 37 C + governing TI (worst case)", result,
-                   error);
+                   view->governing, &match, "T = 37 C + governing TI (worst case)", result, error);
     free(match.uids);
     return status;
 }

@@ -19,10 +19,10 @@ mitilog_status rules_check_dwell(const rules_rule *rule, const rules_view *view,
         if (rules_match_captures(view, view->governing, RULES_AT_OR_ABOVE, step->threshold, 0,
                                  &match) != 0)
             return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
-        double minutes = ext_timeline_time_at_or_above(view->captures, view->entries,
-                                                       view->summary.entry_count,
-                                                       view->governing, step->threshold) /
-                         60.0;
+        double minutes =
+            ext_timeline_time_at_or_above(view->captures, view->entries, view->summary.entry_count,
+                                          view->governing, step->threshold) /
+            60.0;
         int found = step->not_recommended ? match.count > 0 : minutes > step->minutes;
         if (found) {
             char note[200], threshold[32], limit_text[32];
@@ -35,9 +35,9 @@ mitilog_status rules_check_dwell(const rules_rule *rule, const rules_view *view,
                 snprintf(note, sizeof note, "%s >= %s: at most %s min",
                          exam_index_name(view->governing), threshold, limit_text);
             double limit = step->not_recommended ? 0 : step->minutes;
-            status = rules_emit(rule, view, rule->severity, "time_at_or_above", minutes, "min",
-                                &limit, step->threshold, view->governing, &match, note, result,
-                                error);
+            status =
+                rules_emit(rule, view, rule->severity, "time_at_or_above", minutes, "min", &limit,
+                           step->threshold, view->governing, &match, note, result, error);
         }
         free(match.uids);
     }

@@ -75,20 +75,14 @@ static mitilog_status check_rule(const rules_rule *rule, const rules_view *view,
 {
     switch (rule->kind) {
     case RULES_KIND_TI_CEILING:
-    case RULES_KIND_MI_CEILING:
-        return rules_check_ceiling(rule, view, result, error);
-    case RULES_KIND_EQUIPMENT_MAXIMA:
-        return rules_check_equipment(rule, view, result, error);
-    case RULES_KIND_DWELL:
-        return rules_check_dwell(rule, view, result, error);
+    case RULES_KIND_MI_CEILING: return rules_check_ceiling(rule, view, result, error);
+    case RULES_KIND_EQUIPMENT_MAXIMA: return rules_check_equipment(rule, view, result, error);
+    case RULES_KIND_DWELL: return rules_check_dwell(rule, view, result, error);
     case RULES_KIND_FIRST_TRIMESTER_DOPPLER:
         return rules_check_first_trimester(rule, view, result, error);
-    case RULES_KIND_THERMAL_DOSE:
-        return rules_check_thermal_dose(rule, view, result, error);
-    case RULES_KIND_EXAM_DURATION:
-        return rules_check_duration(rule, view, result, error);
-    default:
-        return MITILOG_OK;   /* output_not_reported: rules_output_not_reported() */
+    case RULES_KIND_THERMAL_DOSE: return rules_check_thermal_dose(rule, view, result, error);
+    case RULES_KIND_EXAM_DURATION: return rules_check_duration(rule, view, result, error);
+    default: return MITILOG_OK; /* output_not_reported: rules_output_not_reported() */
     }
 }
 

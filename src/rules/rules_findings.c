@@ -32,8 +32,7 @@ static void finding_free(exam_finding *finding)
 mitilog_status rules_result_append(rules_result *result, const rules_finding_input *input,
                                    const char *policy_version, mitilog_error *error)
 {
-    exam_finding *grown =
-        realloc(result->findings, (result->finding_count + 1) * sizeof *grown);
+    exam_finding *grown = realloc(result->findings, (result->finding_count + 1) * sizeof *grown);
     if (grown == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
     result->findings = grown;
@@ -82,8 +81,7 @@ mitilog_status rules_result_append(rules_result *result, const rules_finding_inp
 mitilog_status rules_result_add(rules_result *result, const exam_finding *borrowed,
                                 mitilog_error *error)
 {
-    exam_finding *grown =
-        realloc(result->findings, (result->finding_count + 1) * sizeof *grown);
+    exam_finding *grown = realloc(result->findings, (result->finding_count + 1) * sizeof *grown);
     if (grown == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
     result->findings = grown;
@@ -106,8 +104,8 @@ mitilog_status rules_result_add(rules_result *result, const exam_finding *borrow
         if (finding->instance_uids == NULL)
             failed = 1;
         for (size_t i = 0; finding->instance_uids && i < borrowed->instance_count; i++) {
-            finding->instance_uids[i] = copy_or_null(
-                borrowed->instance_uids[i] ? borrowed->instance_uids[i] : "", &failed);
+            finding->instance_uids[i] =
+                copy_or_null(borrowed->instance_uids[i] ? borrowed->instance_uids[i] : "", &failed);
             finding->instance_count = i + 1;
         }
     }

@@ -34,13 +34,13 @@ typedef enum rules_selector_kind {
 
 typedef struct rules_selector {
     rules_selector_kind kind;
-    char *category;          /* RULES_SELECT_CATEGORY */
-    int value;               /* exam_group or rules_age */
+    char *category; /* RULES_SELECT_CATEGORY */
+    int value;      /* exam_group or rules_age */
 } rules_selector;
 
 /* One "base[.selector.name] = number|off" key. */
 typedef struct rules_limit {
-    char *base;              /* "limit", "mi_limit", ... */
+    char *base; /* "limit", "mi_limit", ... */
     rules_selector selector;
     int off;
     double value;
@@ -53,25 +53,25 @@ typedef struct rules_rule {
     rules_kind kind;
     exam_severity severity;
     int has_severity;
-    exam_severity severity_over_limit;   /* first_trimester_doppler */
+    exam_severity severity_over_limit; /* first_trimester_doppler */
     int has_severity_over_limit;
     int enabled;
     char *source;
-    int line;                /* of the [rule ...] header, for messages */
+    int line; /* of the [rule ...] header, for messages */
 
     rules_selector applies[RULES_MAX_SELECTORS];
-    size_t applies_count;    /* 0: all exams */
+    size_t applies_count; /* 0: all exams */
     rules_selector excepts[RULES_MAX_SELECTORS];
     size_t except_count;
 
     rules_limit *limits;
     size_t limit_count;
     exam_dwell_step steps[EXAM_MAX_DWELL_STEPS];
-    size_t step_count;       /* sorted by threshold */
-    double before_weeks;     /* first_trimester_doppler, default 14 */
-    unsigned minimum_instances;  /* output_not_reported, default 1 */
+    size_t step_count;          /* sorted by threshold */
+    double before_weeks;        /* first_trimester_doppler, default 14 */
+    unsigned minimum_instances; /* output_not_reported, default 1 */
 
-    char **seen_keys;        /* for "set twice" errors */
+    char **seen_keys; /* for "set twice" errors */
     size_t seen_count;
 
     exam_setting *settings; /* normalised, for iteration */
@@ -79,12 +79,12 @@ typedef struct rules_rule {
 } rules_rule;
 
 struct rules_policy {
-    rules_rule *rules;       /* sorted by kind, then id */
+    rules_rule *rules; /* sorted by kind, then id */
     size_t rule_count;
     char *name;
     double closed_after_idle_minutes;
     double gap_cap_seconds;
-    int index_source_header;  /* [policy] index_source = header */
+    int index_source_header; /* [policy] index_source = header */
     char *normalised;
     char version[HASH_HEX_SIZE];
 };
@@ -100,8 +100,8 @@ int rules_rule_applies(const rules_rule *rule, const rules_exam *exam);
 /* The most specific limit named base for the exam: category, then group,
  * then age, then the plain key. Returns 1 and sets *value when a number
  * applies, 0 when none is set or the applicable one is "off". */
-int rules_rule_limit(const rules_rule *rule, const char *base,
-                     const rules_exam *exam, double *value);
+int rules_rule_limit(const rules_rule *rule, const char *base, const rules_exam *exam,
+                     double *value);
 
 /* rules_findings.c: appending findings to a result. */
 typedef struct rules_finding_input {
@@ -128,19 +128,17 @@ typedef struct rules_finding_input {
     const char *transducer;
 } rules_finding_input;
 
-mitilog_status rules_result_append(rules_result *result,
-                                   const rules_finding_input *input,
-                                   const char *policy_version,
-                                   mitilog_error *error);
+mitilog_status rules_result_append(rules_result *result, const rules_finding_input *input,
+                                   const char *policy_version, mitilog_error *error);
 
 /* rules_exposure.c: the per-exam rules, on a prepared exam view. */
 typedef struct rules_view {
     const rules_exam *exam;
     exam_index governing;
-    const exam_capture *captures;    /* the exam's, exam->capture_count */
-    ext_timeline_entry *entries;    /* timeline, summary.entry_count */
+    const exam_capture *captures; /* the exam's, exam->capture_count */
+    ext_timeline_entry *entries;  /* timeline, summary.entry_count */
     ext_timeline_summary summary;
-    const char *assumptions;        /* the timeline's, for findings */
+    const char *assumptions; /* the timeline's, for findings */
     const char *policy_version;
 } rules_view;
 
@@ -161,12 +159,12 @@ mitilog_status rules_check_duration(const rules_rule *rule, const rules_view *vi
 typedef enum rules_compare { RULES_AT_OR_ABOVE, RULES_ABOVE } rules_compare;
 
 typedef struct rules_match {
-    const char **uids;       /* heap array of borrowed UIDs; free(uids) */
+    const char **uids; /* heap array of borrowed UIDs; free(uids) */
     size_t count;
     double first_seconds, last_seconds;
     int has_span;
     double estimated_seconds; /* their attributed timeline time */
-    double max_value;        /* over the matching captures */
+    double max_value;         /* over the matching captures */
     exam_index max_index;
 } rules_match;
 
@@ -180,11 +178,11 @@ int rules_match_captures(const rules_view *view, exam_index index, rules_compare
 int rules_highest(const rules_view *view, exam_index index, double *value, exam_index *which);
 
 /* Appends a finding for an exam from a match (rules_captures.c). */
-mitilog_status rules_emit(const rules_rule *rule, const rules_view *view,
-                          exam_severity severity, const char *quantity, double measured,
-                          const char *unit, const double *limit, double threshold,
-                          exam_index index, const rules_match *match, const char *note,
-                          rules_result *result, mitilog_error *error);
+mitilog_status rules_emit(const rules_rule *rule, const rules_view *view, exam_severity severity,
+                          const char *quantity, double measured, const char *unit,
+                          const double *limit, double threshold, exam_index index,
+                          const rules_match *match, const char *note, rules_result *result,
+                          mitilog_error *error);
 
 /* CEM43 over the timeline on the governing index (untimed and unreported
  * captures contribute nothing). */

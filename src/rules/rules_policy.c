@@ -6,7 +6,7 @@
 #include "rules/rules_internal.h"
 
 static const char *const kind_names[RULES_KIND_COUNT] = {
-    "ti_ceiling",  "mi_ceiling",    "equipment_maxima", "dwell", "first_trimester_doppler",
+    "ti_ceiling",          "mi_ceiling",   "equipment_maxima", "dwell", "first_trimester_doppler",
     "output_not_reported", "thermal_dose", "exam_duration"};
 
 static const char *const kind_descriptions[RULES_KIND_COUNT] = {
@@ -56,8 +56,7 @@ void rules_format_number(double value, char *out, size_t size)
         strcat(out, ".0");
 }
 
-static void format_selector(const rules_selector *selector, char separator, char *out,
-                            size_t size)
+static void format_selector(const rules_selector *selector, char separator, char *out, size_t size)
 {
     switch (selector->kind) {
     case RULES_SELECT_CATEGORY:
@@ -69,8 +68,7 @@ static void format_selector(const rules_selector *selector, char separator, char
     case RULES_SELECT_AGE:
         snprintf(out, size, "age%c%s", separator, rules_age_name((rules_age)selector->value));
         break;
-    default:
-        out[0] = '\0';
+    default: out[0] = '\0';
     }
 }
 
@@ -161,9 +159,8 @@ static int build_settings(rules_rule *rule)
                  add_selector_list(rule, "applies", rule->applies, rule->applies_count) ||
                  add_selector_list(rule, "except", rule->excepts, rule->except_count);
     if (rule->has_severity_over_limit)
-        failed = failed ||
-                 add_setting(rule, "severity_over_limit",
-                             exam_severity_name(rule->severity_over_limit));
+        failed = failed || add_setting(rule, "severity_over_limit",
+                                       exam_severity_name(rule->severity_over_limit));
     if (rule->kind == RULES_KIND_FIRST_TRIMESTER_DOPPLER) {
         rules_format_number(rule->before_weeks, value, sizeof value);
         failed = failed || add_setting(rule, "before_weeks", value);
@@ -250,20 +247,11 @@ mitilog_status rules_policy_finish(rules_policy *policy, mitilog_error *error)
     return MITILOG_OK;
 }
 
-const char *rules_policy_version(const rules_policy *policy)
-{
-    return policy->version;
-}
+const char *rules_policy_version(const rules_policy *policy) { return policy->version; }
 
-const char *rules_policy_name(const rules_policy *policy)
-{
-    return policy->name;
-}
+const char *rules_policy_name(const rules_policy *policy) { return policy->name; }
 
-const char *rules_policy_normalised(const rules_policy *policy)
-{
-    return policy->normalised;
-}
+const char *rules_policy_normalised(const rules_policy *policy) { return policy->normalised; }
 
 double rules_policy_closed_after_idle_minutes(const rules_policy *policy)
 {
@@ -275,15 +263,9 @@ const char *rules_policy_index_source(const rules_policy *policy)
     return policy != NULL && policy->index_source_header ? "header" : "screen";
 }
 
-double rules_policy_gap_cap_seconds(const rules_policy *policy)
-{
-    return policy->gap_cap_seconds;
-}
+double rules_policy_gap_cap_seconds(const rules_policy *policy) { return policy->gap_cap_seconds; }
 
-size_t rules_policy_rule_count(const rules_policy *policy)
-{
-    return policy->rule_count;
-}
+size_t rules_policy_rule_count(const rules_policy *policy) { return policy->rule_count; }
 
 int rules_policy_rule_at(const rules_policy *policy, size_t index, exam_rule_info *info)
 {

@@ -12,18 +12,18 @@
 typedef struct parse_state {
     rules_policy *policy;
     const char *name;
-    const char *text;        /* the whole file */
+    const char *text; /* the whole file */
     size_t offset;
     int line_number;
     int previous_complete;
-    int continuation;        /* the current line starts with white space */
-    int header_line;         /* line of the last [section] header */
+    int continuation; /* the current line starts with white space */
+    int header_line;  /* line of the last [section] header */
     char last_section[128];
     char last_key[128];
     mitilog_status status;
     mitilog_error *error;
     int error_line;
-    int unknown_rule_line;   /* header line of an unknown rule, said once */
+    int unknown_rule_line; /* header line of an unknown rule, said once */
 } parse_state;
 
 /* inih asks for one line per call; counting here gives messages a line
@@ -142,15 +142,15 @@ static void selector_reason(const char *text, char separator, char *reason, size
     int is_age = kind_length == 3 && strncmp(text, "age", 3) == 0;
     int count = is_group ? EXAM_GROUP_COUNT : is_age ? RULES_AGE_COUNT : 0;
     for (int i = 0; i < count; i++) {
-        const char *known = is_group ? exam_group_name((exam_group)i) : rules_age_name((rules_age)i);
+        const char *known =
+            is_group ? exam_group_name((exam_group)i) : rules_age_name((rules_age)i);
         int n = snprintf(names + used, sizeof names - used, "%s%s", i ? ", " : "", known);
         if (n > 0 && (size_t)n < sizeof names - used)
             used += (size_t)n;
     }
     if (count > 0)
-        snprintf(reason, size, "'%.60s' is not a%s %s; the %s are %s", name,
-                 is_age ? "n" : "", is_group ? "group" : "age group",
-                 is_group ? "groups" : "age groups", names);
+        snprintf(reason, size, "'%.60s' is not a%s %s; the %s are %s", name, is_age ? "n" : "",
+                 is_group ? "group" : "age group", is_group ? "groups" : "age groups", names);
     else if (kind_length == 8 && strncmp(text, "category", 8) == 0)
         snprintf(reason, size,
                  "'%.60s' is not an exam type key (lower-case letters, digits, _ and -)", name);
@@ -196,8 +196,8 @@ static const char *const limit_bases[RULES_KIND_COUNT][3] = {
     [RULES_KIND_EXAM_DURATION] = {"limit"},
 };
 
-static int handle_limit(parse_state *state, rules_rule *rule, const char *section,
-                        const char *key, const char *value)
+static int handle_limit(parse_state *state, rules_rule *rule, const char *section, const char *key,
+                        const char *value)
 {
     const char *base = NULL;
     size_t base_length = 0;
@@ -210,7 +210,7 @@ static int handle_limit(parse_state *state, rules_rule *rule, const char *sectio
         }
     }
     if (base == NULL)
-        return -1;  /* not a limit key */
+        return -1; /* not a limit key */
     rules_limit limit;
     memset(&limit, 0, sizeof limit);
     if (key[base_length] == '.') {
@@ -245,8 +245,8 @@ static int handle_limit(parse_state *state, rules_rule *rule, const char *sectio
     return 1;
 }
 
-static int handle_dwell(parse_state *state, rules_rule *rule, const char *section,
-                        const char *key, const char *value)
+static int handle_dwell(parse_state *state, rules_rule *rule, const char *section, const char *key,
+                        const char *value)
 {
     exam_dwell_step step = {0, 0, 0};
     char reason[300];
@@ -336,8 +336,8 @@ static int note_key(parse_state *state, rules_rule *rule, const char *section, c
     return 1;
 }
 
-static int append_source(parse_state *state, rules_rule *rule, const char *section,
-                         const char *key, const char *value)
+static int append_source(parse_state *state, rules_rule *rule, const char *section, const char *key,
+                         const char *value)
 {
     size_t old_length = rule->source ? strlen(rule->source) : 0;
     char *grown = realloc(rule->source, old_length + strlen(value) + 2);
@@ -493,7 +493,8 @@ static int handle_entry_checked(parse_state *state, const char *section, const c
         char names[300] = "";
         size_t used = 0;
         for (int k = 0; k < RULES_KIND_COUNT; k++) {
-            const char *known = k == RULES_KIND_DWELL ? "dwell_NAME" : rules_kind_name((rules_kind)k);
+            const char *known =
+                k == RULES_KIND_DWELL ? "dwell_NAME" : rules_kind_name((rules_kind)k);
             int n = snprintf(names + used, sizeof names - used, "%s%s", k ? ", " : "", known);
             if (n > 0 && (size_t)n < sizeof names - used)
                 used += (size_t)n;
@@ -518,15 +519,15 @@ static mitilog_status check_complete(const rules_policy *policy, const char *nam
     mitilog_status status = MITILOG_OK;
     for (size_t i = 0; i < policy->rule_count; i++) {
         const rules_rule *rule = &policy->rules[i];
-        const char *missing = !rule->has_severity ? "severity"
+        const char *missing = !rule->has_severity    ? "severity"
                               : rule->source == NULL ? "source"
                               : rule->kind == RULES_KIND_DWELL && rule->step_count == 0
                                   ? "dwell.THRESHOLD"
                                   : NULL;
         if (missing)
-            status = mitilog_error_append(error, MITILOG_ERROR_INVALID,
-                                          "%s:%d: [rule %s] %s: missing", name, rule->line,
-                                          rule->id, missing);
+            status =
+                mitilog_error_append(error, MITILOG_ERROR_INVALID, "%s:%d: [rule %s] %s: missing",
+                                     name, rule->line, rule->id, missing);
     }
     return status;
 }
@@ -605,8 +606,7 @@ mitilog_status rules_policy_load(const char *path, rules_policy **policy, mitilo
     if (status == MITILOG_OK) {
         text[length] = '\0';
         if (strlen(text) != length)
-            status = mitilog_error_set(error, MITILOG_ERROR_PARSE, "%s: contains a NUL byte",
-                                       path);
+            status = mitilog_error_set(error, MITILOG_ERROR_PARSE, "%s: contains a NUL byte", path);
         else
             status = rules_policy_load_text(text, path, policy, error);
     }

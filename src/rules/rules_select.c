@@ -6,12 +6,10 @@
 static int selector_matches(const rules_selector *selector, const rules_exam *exam)
 {
     switch (selector->kind) {
-    case RULES_SELECT_ALL:
-        return 1;
+    case RULES_SELECT_ALL: return 1;
     case RULES_SELECT_CATEGORY:
         return exam->category != NULL && strcmp(exam->category, selector->category) == 0;
-    case RULES_SELECT_GROUP:
-        return (int)exam->group == selector->value;
+    case RULES_SELECT_GROUP: return (int)exam->group == selector->value;
     case RULES_SELECT_AGE:
         /* An unknown age is read as adult (rules.h). */
         return (int)(exam->age == RULES_AGE_UNKNOWN ? RULES_AGE_ADULT : exam->age) ==

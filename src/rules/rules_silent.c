@@ -9,10 +9,7 @@
 
 #include "rules/rules_internal.h"
 
-static const char *text_or_empty(const char *text)
-{
-    return text ? text : "";
-}
+static const char *text_or_empty(const char *text) { return text ? text : ""; }
 
 static int compare_instance(const void *a, const void *b)
 {
@@ -21,7 +18,7 @@ static int compare_instance(const void *a, const void *b)
     int order = strcmp(text_or_empty(left->room), text_or_empty(right->room));
     if (order == 0)
         order = strcmp(text_or_empty(left->transducer), text_or_empty(right->transducer));
-    if (order == 0)  /* keep the caller's order inside a group */
+    if (order == 0) /* keep the caller's order inside a group */
         order = (left > right) - (left < right);
     return order;
 }
@@ -54,8 +51,10 @@ static mitilog_status emit_group(const rules_rule *rule, const char *version,
     if (silent == 0 || silent < rule->minimum_instances)
         return MITILOG_OK;
     char note[200];
-    snprintf(note, sizeof note, "%zu of %zu ultrasound instance(s) from this room and transducer "
-             "report no MI or TI", silent, count);
+    snprintf(note, sizeof note,
+             "%zu of %zu ultrasound instance(s) from this room and transducer "
+             "report no MI or TI",
+             silent, count);
     double limit = rule->minimum_instances;
     input.rule = rule;
     input.severity = rule->severity;
@@ -104,8 +103,8 @@ mitilog_status rules_output_not_reported(const rules_policy *policy,
         size_t end = start + 1;
         while (end < count && same_group(sorted[start], sorted[end]))
             end++;
-        status = emit_group(rule, policy->version, sorted + start, end - start, uids, result,
-                            error);
+        status =
+            emit_group(rule, policy->version, sorted + start, end - start, uids, result, error);
         start = end;
     }
 done:

@@ -19,8 +19,8 @@
  * (0 background .. 255 strongest text). */
 typedef struct screen_template {
     int width, height;
-    unsigned char *ink;        /* width * height, owned */
-    double mean, deviation;    /* of ink; deviation = sqrt(sum (v-mean)^2) */
+    unsigned char *ink;     /* width * height, owned */
+    double mean, deviation; /* of ink; deviation = sqrt(sum (v-mean)^2) */
 } screen_template;
 
 /* One character of the device's number font (a digit or '.'). */
@@ -37,14 +37,14 @@ typedef struct screen_glyph {
  * drawn behind the text, changes from place to place). The label starts
  * at column label_x; the value follows it. */
 typedef struct screen_slot {
-    int shown;                 /* 0: the device does not draw this index */
+    int shown; /* 0: the device does not draw this index */
     int label_x, baseline;
-    char label_text[16];       /* e.g. "TIs", for messages ("" unknown) */
+    char label_text[16]; /* e.g. "TIs", for messages ("" unknown) */
     screen_template label;
-    int decimals;              /* digits after the point (1 or 2) */
-    int gap_max;               /* widest gap label end .. first character */
-    int stop_gap;              /* a wider gap ends the value */
-    int span;                  /* columns after the label to look in */
+    int decimals; /* digits after the point (1 or 2) */
+    int gap_max;  /* widest gap label end .. first character */
+    int stop_gap; /* a wider gap ends the value */
+    int span;     /* columns after the label to look in */
 } screen_slot;
 
 enum { SCREEN_GLYPH_MAX = 64 };
@@ -54,12 +54,12 @@ struct screen_profile {
     int version;
     char manufacturer[65], model_name[65], software_versions[129];
     int rows, columns;
-    int band_above, band_below;  /* rows of the text line around baseline */
-    int ink_threshold;           /* ink above this is text */
-    int split_width;             /* a wider run is characters touching */
-    double glyph_threshold;      /* least correlation of a character */
-    double glyph_margin;         /* over the next-best other character */
-    double label_threshold;      /* least correlation of a label */
+    int band_above, band_below; /* rows of the text line around baseline */
+    int ink_threshold;          /* ink above this is text */
+    int split_width;            /* a wider run is characters touching */
+    double glyph_threshold;     /* least correlation of a character */
+    double glyph_margin;        /* over the next-best other character */
+    double label_threshold;     /* least correlation of a label */
     screen_slot slots[EXAM_INDEX_COUNT];
     screen_glyph glyphs[SCREEN_GLYPH_MAX];
     size_t glyph_count;
@@ -109,9 +109,8 @@ typedef struct screen_blob {
 /* Column runs with ink above threshold in band, columns left..right
  * (clipped to the frame), at most max; returns how many were found.
  * *touches_end is set when ink reaches column right. */
-size_t screen_segment(const screen_image *image, const screen_band *band, int threshold,
-                      int left, int right, screen_blob *blobs, size_t max,
-                      int *touches_end);
+size_t screen_segment(const screen_image *image, const screen_band *band, int threshold, int left,
+                      int right, screen_blob *blobs, size_t max, int *touches_end);
 
 /* 1 when a run fills the band from its top row to its bottom row: no
  * character does (the band has a margin above and below the text); it is
@@ -129,12 +128,12 @@ size_t screen_split_wide(const screen_image *image, const screen_band *band, int
 
 /* Normalised cross-correlation of template t placed at (x, top of band)
  * against the frame's ink; -1 when the window leaves the frame. */
-double screen_correlate(const screen_image *image, int background, const screen_template *t,
-                        int x, int y);
+double screen_correlate(const screen_image *image, int background, const screen_template *t, int x,
+                        int y);
 
 /* Cuts columns left..right of band (rows top..bottom) as a template. */
-int screen_cut(const screen_image *image, int background, int top, int bottom, int left,
-               int right, screen_template *t);
+int screen_cut(const screen_image *image, int background, int top, int bottom, int left, int right,
+               screen_template *t);
 
 /* screen_read.c: the background grey of a slot's text line, from the
  * label's first column to the end of the value's columns

@@ -27,7 +27,7 @@
 #include <string.h>
 
 enum {
-    LEARN_LOCAL_RADIUS = 15,  /* neighbourhood for finding text          */
+    LEARN_LOCAL_RADIUS = 15,    /* neighbourhood for finding text          */
     LEARN_FIRST_THRESHOLD = 48, /* ink that stands out before the text's
                                  * own contrast is known                 */
     LEARN_LINE_MAX = 4096,
@@ -41,7 +41,7 @@ typedef struct learn_component {
 } learn_component;
 
 typedef struct learn_line {
-    int top, bottom, left, right;   /* band of its tall components */
+    int top, bottom, left, right; /* band of its tall components */
     int height;
     screen_band band;
     screen_blob blobs[LEARN_BLOB_MAX];
@@ -66,15 +66,15 @@ typedef struct report_buffer {
     size_t size, length;
 } report_buffer;
 
-__attribute__((format(printf, 2, 3)))
-static void report_add(report_buffer *report, const char *format, ...)
+__attribute__((format(printf, 2, 3))) static void report_add(report_buffer *report,
+                                                             const char *format, ...)
 {
     if (report->text == NULL || report->size == 0 || report->length + 1 >= report->size)
         return;
     va_list arguments;
     va_start(arguments, format);
-    int written = vsnprintf(report->text + report->length, report->size - report->length,
-                            format, arguments);
+    int written =
+        vsnprintf(report->text + report->length, report->size - report->length, format, arguments);
     va_end(arguments);
     if (written > 0)
         report->length += (size_t)written;
@@ -133,53 +133,57 @@ static mitilog_status find_components(const screen_image *image, learn_component
     /* Brighter than the neighbourhood, then darker: one at a time, so that
      * the dark box behind light text is not joined to its characters. */
     for (int polarity = 1; polarity >= -1; polarity -= 2) {
-    for (size_t p = 0; p < pixels; p++)
-        mask[p] = difference[p] * polarity > LEARN_FIRST_THRESHOLD;
-    for (size_t start = 0; start < pixels; start++) {
-        if (mask[start] != 1)
-            continue;
-        learn_component c = {.left = (int)(start % (size_t)width),
-                             .right = (int)(start % (size_t)width),
-                             .top = (int)(start / (size_t)width),
-                             .bottom = (int)(start / (size_t)width)};
-        size_t depth = 0;
-        stack[depth++] = (int)start;
-        mask[start] = 2;
-        while (depth > 0) {
-            int p = stack[--depth];
-            int px = p % width, py = p / width;
-            if (px < c.left) c.left = px;
-            if (px > c.right) c.right = px;
-            if (py < c.top) c.top = py;
-            if (py > c.bottom) c.bottom = py;
-            for (int dy = -1; dy <= 1; dy++) {
-                for (int dx = -1; dx <= 1; dx++) {
-                    int nx = px + dx, ny = py + dy;
-                    if (nx < 0 || ny < 0 || nx >= width || ny >= height)
-                        continue;
-                    size_t q = (size_t)ny * (size_t)width + (size_t)nx;
-                    if (mask[q] == 1) {
-                        mask[q] = 2;
-                        stack[depth++] = (int)q;
+        for (size_t p = 0; p < pixels; p++)
+            mask[p] = difference[p] * polarity > LEARN_FIRST_THRESHOLD;
+        for (size_t start = 0; start < pixels; start++) {
+            if (mask[start] != 1)
+                continue;
+            learn_component c = {.left = (int)(start % (size_t)width),
+                                 .right = (int)(start % (size_t)width),
+                                 .top = (int)(start / (size_t)width),
+                                 .bottom = (int)(start / (size_t)width)};
+            size_t depth = 0;
+            stack[depth++] = (int)start;
+            mask[start] = 2;
+            while (depth > 0) {
+                int p = stack[--depth];
+                int px = p % width, py = p / width;
+                if (px < c.left)
+                    c.left = px;
+                if (px > c.right)
+                    c.right = px;
+                if (py < c.top)
+                    c.top = py;
+                if (py > c.bottom)
+                    c.bottom = py;
+                for (int dy = -1; dy <= 1; dy++) {
+                    for (int dx = -1; dx <= 1; dx++) {
+                        int nx = px + dx, ny = py + dy;
+                        if (nx < 0 || ny < 0 || nx >= width || ny >= height)
+                            continue;
+                        size_t q = (size_t)ny * (size_t)width + (size_t)nx;
+                        if (mask[q] == 1) {
+                            mask[q] = 2;
+                            stack[depth++] = (int)q;
+                        }
                     }
                 }
             }
-        }
-        int w = c.right - c.left + 1, h = c.bottom - c.top + 1;
-        if (h < 5 || h > 48 || w > 48)
-            continue;
-        if (used == capacity) {
-            size_t grown = capacity ? capacity * 2 : 256;
-            learn_component *bigger = realloc(components, grown * sizeof *bigger);
-            if (bigger == NULL) {
-                status = MITILOG_ERROR_MEMORY;
-                goto done;
+            int w = c.right - c.left + 1, h = c.bottom - c.top + 1;
+            if (h < 5 || h > 48 || w > 48)
+                continue;
+            if (used == capacity) {
+                size_t grown = capacity ? capacity * 2 : 256;
+                learn_component *bigger = realloc(components, grown * sizeof *bigger);
+                if (bigger == NULL) {
+                    status = MITILOG_ERROR_MEMORY;
+                    goto done;
+                }
+                components = bigger;
+                capacity = grown;
             }
-            components = bigger;
-            capacity = grown;
+            components[used++] = c;
         }
-        components[used++] = c;
-    }
     }
 done:
     free(integral);
@@ -244,16 +248,21 @@ static mitilog_status find_lines(const screen_image *image, int threshold, learn
         if (chosen == line_count) {
             if (line_count == LEARN_LINE_MAX)
                 continue;
-            lines[line_count] = (learn_line){.top = c->top, .bottom = c->bottom,
-                                             .left = c->left, .right = c->right,
+            lines[line_count] = (learn_line){.top = c->top,
+                                             .bottom = c->bottom,
+                                             .left = c->left,
+                                             .right = c->right,
                                              .height = h};
             members[line_count] = 1;
             line_count++;
         } else {
             learn_line *line = &lines[chosen];
-            if (c->top < line->top) line->top = c->top;
-            if (c->bottom > line->bottom) line->bottom = c->bottom;
-            if (c->right > line->right) line->right = c->right;
+            if (c->top < line->top)
+                line->top = c->top;
+            if (c->bottom > line->bottom)
+                line->bottom = c->bottom;
+            if (c->right > line->right)
+                line->right = c->right;
             members[chosen]++;
         }
     }
@@ -267,10 +276,10 @@ static mitilog_status find_lines(const screen_image *image, int threshold, learn
 
         line->height = line->bottom - line->top + 1;
         line->band.top = line->top - 1 < 0 ? 0 : line->top - 1;
-        line->band.bottom = line->bottom + 1 >= image->height ? image->height - 1
-                                                              : line->bottom + 1;
+        line->band.bottom =
+            line->bottom + 1 >= image->height ? image->height - 1 : line->bottom + 1;
         line->band.background = screen_median(image, line->band.top, line->band.bottom,
-                                               line->left - 2, line->right + 2);
+                                              line->left - 2, line->right + 2);
         int touches = 0;
         int line_threshold = threshold;
         if (line_threshold == 0) {
@@ -298,8 +307,8 @@ static mitilog_status find_lines(const screen_image *image, int threshold, learn
          * the picture) was joined to it in the search for characters:
          * look a little further right. */
         int right = line->right + 2 * line->height;
-        line->blob_count = screen_segment(image, &line->band, line_threshold, line->left - 2,
-                                          right, line->blobs, LEARN_BLOB_MAX, &touches);
+        line->blob_count = screen_segment(image, &line->band, line_threshold, line->left - 2, right,
+                                          line->blobs, LEARN_BLOB_MAX, &touches);
         /* What fills the band from top to bottom is no character (the
          * edge of a box behind the text, the picture). */
         size_t kept_blobs = 0;
@@ -309,9 +318,9 @@ static mitilog_status find_lines(const screen_image *image, int threshold, learn
         }
         line->blob_count = kept_blobs;
         /* No digit is wider than the line is high. */
-        line->blob_count = screen_split_wide(image, &line->band, line_threshold, line->blobs,
-                                             line->blob_count, LEARN_BLOB_MAX,
-                                             line->height * 95 / 100);
+        line->blob_count =
+            screen_split_wide(image, &line->band, line_threshold, line->blobs, line->blob_count,
+                              LEARN_BLOB_MAX, line->height * 95 / 100);
         lines[kept++] = *line;
     }
     free(members);
@@ -341,8 +350,7 @@ static int gap_between(const screen_blob *a, const screen_blob *b)
 
 /* Candidates for text (e.g. "1.2") in one line of one example. */
 static size_t find_in_line(const learn_line *line, size_t example, size_t line_index,
-                           const char *text, int decimals, learn_candidate *found,
-                           size_t room)
+                           const char *text, int decimals, learn_candidate *found, size_t room)
 {
     size_t length = strlen(text), count = 0;
     for (size_t start = 1; start + length <= line->blob_count && count < room; start++) {
@@ -358,7 +366,8 @@ static size_t find_in_line(const learn_line *line, size_t example, size_t line_i
             }
             if (k > 0) {
                 int gap = gap_between(&b[k - 1], &b[k]);
-                if (gap > inner_gap) inner_gap = gap;
+                if (gap > inner_gap)
+                    inner_gap = gap;
             }
         }
         if (!ok)
@@ -420,7 +429,7 @@ static size_t value_texts(const screen_value *truth, char texts[2][24], int deci
 /* ---- the whole ---------------------------------------------------------- */
 
 typedef struct learn_pick {
-    int found;                 /* this example's candidate is known */
+    int found; /* this example's candidate is known */
     learn_candidate candidate;
 } learn_pick;
 
@@ -440,8 +449,7 @@ static int candidate_top(const learn_frame *frames, const learn_candidate *c)
     return frames[c->example].lines[c->line].top;
 }
 
-static int same_place(const learn_frame *frames, const learn_candidate *a,
-                      const learn_candidate *b)
+static int same_place(const learn_frame *frames, const learn_candidate *a, const learn_candidate *b)
 {
     /* Not the number of label characters: a thin letter may come apart
      * in one frame and not in another. */
@@ -467,7 +475,7 @@ static int candidate_baseline(const learn_frame *frames, const learn_candidate *
  * examples; cands[e] is its candidate in example e, or -1. */
 typedef struct learn_place {
     const learn_candidate *first;
-    int letters;             /* label characters, a colon not counted */
+    int letters; /* label characters, a colon not counted */
     int *cands;
 } learn_place;
 
@@ -481,8 +489,8 @@ static void value_shape(const char *text, char *shape, size_t size)
 }
 
 /* 1 when the column run is a colon: narrow, with an empty row inside. */
-static int blob_is_colon(const screen_image *image, const learn_line *line,
-                         const screen_blob *b, int threshold)
+static int blob_is_colon(const screen_image *image, const learn_line *line, const screen_blob *b,
+                         int threshold)
 {
     if ((b->right - b->left + 1) * 100 > line->height * 40)
         return 0;
@@ -545,8 +553,8 @@ static double blob_similarity(const learn_search *search, size_t ea, const learn
     double best = 0.0;
     for (int oy = -(hb - h); oy <= ha - h; oy++) {
         for (int ox = -(wb - w); ox <= wa - w; ox++) {
-            double score = screen_correlate(&search->examples[ea].image, la->band.background,
-                                            &t, a->left + ox, a->top + oy);
+            double score = screen_correlate(&search->examples[ea].image, la->band.background, &t,
+                                            a->left + ox, a->top + oy);
             if (score > best)
                 best = score;
         }
@@ -588,7 +596,9 @@ static double assignment_penalty(learn_search *search)
             for (size_t j = 0; j < c->length && n < SAMPLE_MAX; j++) {
                 if (text[j] == '.')
                     continue;
-                samples[n++] = (learn_sample){.character = text[j], .example = e, .line = line,
+                samples[n++] = (learn_sample){.character = text[j],
+                                              .example = e,
+                                              .line = line,
                                               .blob = &line->blobs[c->value_first + j]};
             }
         }
@@ -678,8 +688,7 @@ static void search_assign(learn_search *search, size_t k, int assigned, unsigned
  * reported and left out. */
 static mitilog_status place_indices(const learn_frame *frames, const screen_example *examples,
                                     size_t count, int threshold, learn_candidate *candidates,
-                                    size_t *candidate_counts,
-                                    learn_pick (*picks)[EXAM_INDEX_COUNT],
+                                    size_t *candidate_counts, learn_pick (*picks)[EXAM_INDEX_COUNT],
                                     int learned[EXAM_INDEX_COUNT], report_buffer *report)
 {
     static const char *const patterns[] = {"0.0", "00.0", "0.00", "00.00"};
@@ -688,10 +697,10 @@ static mitilog_status place_indices(const learn_frame *frames, const screen_exam
         candidate_counts[e] = 0;
         for (size_t l = 0; l < frames[e].line_count; l++) {
             for (size_t q = 0; q < 4; q++)
-                candidate_counts[e] += find_in_line(
-                    &frames[e].lines[l], e, l, patterns[q], pattern_decimals[q],
-                    &candidates[e * LEARN_CANDIDATE_MAX + candidate_counts[e]],
-                    LEARN_CANDIDATE_MAX - candidate_counts[e]);
+                candidate_counts[e] +=
+                    find_in_line(&frames[e].lines[l], e, l, patterns[q], pattern_decimals[q],
+                                 &candidates[e * LEARN_CANDIDATE_MAX + candidate_counts[e]],
+                                 LEARN_CANDIDATE_MAX - candidate_counts[e]);
         }
     }
     learn_search *search = calloc(1, sizeof *search);
@@ -720,8 +729,7 @@ static mitilog_status place_indices(const learn_frame *frames, const screen_exam
                 const learn_line *line = &frames[e].lines[c->line];
                 int letters = 0;
                 for (size_t b = c->label_first; b < c->value_first; b++)
-                    letters += !blob_is_colon(&examples[e].image, line, &line->blobs[b],
-                                              threshold);
+                    letters += !blob_is_colon(&examples[e].image, line, &line->blobs[b], threshold);
                 places[p].letters = letters;
                 place_count++;
             }
@@ -789,8 +797,9 @@ static mitilog_status place_indices(const learn_frame *frames, const screen_exam
         /* Another assignment explaining the digits nearly as well, with
          * this index elsewhere: the examples do not tell. */
         if (search->second_penalty < search->best_penalty + 0.5 && search->second[k] != p) {
-            report_add(report, "%s not learned: the examples do not tell which of two places "
-                               "shows it (add a frame whose values differ)\n",
+            report_add(report,
+                       "%s not learned: the examples do not tell which of two places "
+                       "shows it (add a frame whose values differ)\n",
                        screen_index_label((exam_index)index));
             continue;
         }
@@ -828,8 +837,10 @@ static double template_similarity(const screen_template *a, const screen_templat
     const screen_template *narrow = wide == a ? b : a;
     if (wide->height != narrow->height)
         return -1.0;
-    screen_image patch = {.width = wide->width, .height = wide->height,
-                          .stride = (size_t)wide->width, .grey = wide->ink};
+    screen_image patch = {.width = wide->width,
+                          .height = wide->height,
+                          .stride = (size_t)wide->width,
+                          .grey = wide->ink};
     double best = -1.0;
     for (int x = 0; x + narrow->width <= wide->width; x++) {
         double score = screen_correlate(&patch, 0, narrow, x, 0);
@@ -839,9 +850,8 @@ static double template_similarity(const screen_template *a, const screen_templat
     return best;
 }
 
-static int add_glyph(screen_profile *profile, const screen_image *image, int background,
-                     int top, int bottom, const screen_blob *blob, char character,
-                     const char **problem)
+static int add_glyph(screen_profile *profile, const screen_image *image, int background, int top,
+                     int bottom, const screen_blob *blob, char character, const char **problem)
 {
     screen_template cut = {0};
     if (screen_cut(image, background, top, bottom, blob->left, blob->right, &cut) != 0) {
@@ -912,9 +922,9 @@ static int verify(const screen_profile *profile, const screen_example *examples,
 }
 
 static mitilog_status learn_once(const screen_device *device, const char *profile_key,
-                                 const screen_example *examples, size_t count,
-                                 int contrast_percent, screen_profile **out,
-                                 char *report_text, size_t report_size, mitilog_error *error)
+                                 const screen_example *examples, size_t count, int contrast_percent,
+                                 screen_profile **out, char *report_text, size_t report_size,
+                                 mitilog_error *error)
 {
     report_buffer report = {.text = report_text, .size = report_size};
     if (report_text != NULL && report_size > 0)
@@ -936,8 +946,8 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
         if (image->width != width || image->height != height)
             return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                      "example %zu is %dx%d, example 1 is %dx%d: learn one "
-                                     "screen size at a time", e + 1, image->width,
-                                     image->height, width, height);
+                                     "screen size at a time",
+                                     e + 1, image->width, image->height, width, height);
     }
 
     mitilog_status status = MITILOG_OK;
@@ -965,14 +975,13 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
             free(frames[e].lines);
             frames[e].lines = NULL;
             if (find_lines(&examples[e].image, threshold, &frames[e]) != MITILOG_OK) {
-                status = mitilog_error_set(error, MITILOG_ERROR_MEMORY,
-                                           "out of memory learning");
+                status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory learning");
                 goto done;
             }
         }
         unsigned long ink_sum = 0, ink_pixels = 0;
-        if (place_indices(frames, examples, count, threshold, candidates, candidate_counts,
-                          picks, learned, &report) != MITILOG_OK) {
+        if (place_indices(frames, examples, count, threshold, candidates, candidate_counts, picks,
+                          learned, &report) != MITILOG_OK) {
             status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory learning");
             goto done;
         }
@@ -996,9 +1005,10 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
                 any |= learned[i] && picks[e][i].found;
             if (learned[i] && !any) {
                 learned[i] = 0;
-                report_add(&report, "%s not learned: it has the same value at the same "
-                                        "place as another index in every example\n",
-                               screen_index_label((exam_index)i));
+                report_add(&report,
+                           "%s not learned: it has the same value at the same "
+                           "place as another index in every example\n",
+                           screen_index_label((exam_index)i));
             }
         }
         if (pass == 1)
@@ -1137,8 +1147,10 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
             const screen_blob *label_last = &line->blobs[c->value_first - 1];
             int gap = gap_between(label_last, &line->blobs[c->value_first]);
             int end = line->blobs[c->value_first + c->length - 1].right - label_last->right;
-            if (gap > gap_max) gap_max = gap;
-            if (end > reach) reach = end;
+            if (gap > gap_max)
+                gap_max = gap;
+            if (end > reach)
+                reach = end;
             if (first) {
                 source = e;
                 slot->label_x = line->blobs[c->label_first].left;
@@ -1159,10 +1171,12 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
         /* The label patch: its own columns, the text's rows. */
         slot->label.width = label_right - slot->label_x + 1;
         int background = screen_slot_background(profile, &examples[source].image, slot);
-        if (screen_cut(&examples[source].image, background, top, bottom, slot->label_x,
-                       label_right, &slot->label) != 0) {
-            report_add(&report, "%s not learned: its label lies too near the edge of the "
-                                "frame\n", screen_index_label((exam_index)i));
+        if (screen_cut(&examples[source].image, background, top, bottom, slot->label_x, label_right,
+                       &slot->label) != 0) {
+            report_add(&report,
+                       "%s not learned: its label lies too near the edge of the "
+                       "frame\n",
+                       screen_index_label((exam_index)i));
             slot->shown = 0;
             learned[i] = 0;
             continue;
@@ -1181,10 +1195,9 @@ static mitilog_status learn_once(const screen_device *device, const char *profil
                               here.baseline - profile->band_above + 2, here.baseline,
                               &pick_line->blobs[pick->value_first + k], pick->text[k],
                               &problem) != 0) {
-                    status = mitilog_error_set(
-                        error, MITILOG_ERROR_REFUSED,
-                        "%s in example %zu: %s", screen_index_label((exam_index)i), e + 1,
-                        problem);
+                    status =
+                        mitilog_error_set(error, MITILOG_ERROR_REFUSED, "%s in example %zu: %s",
+                                          screen_index_label((exam_index)i), e + 1, problem);
                     goto done;
                 }
             }
@@ -1251,9 +1264,8 @@ done:
 }
 
 mitilog_status screen_learn(const screen_device *device, const char *profile_key,
-                            const screen_example *examples, size_t count,
-                            screen_profile **out, char *report_text, size_t report_size,
-                            mitilog_error *error)
+                            const screen_example *examples, size_t count, screen_profile **out,
+                            char *report_text, size_t report_size, mitilog_error *error)
 {
     /* Text is cut into characters at a share of its own contrast: below
      * half, thin strokes of small fonts hold together; above, bold and
@@ -1266,8 +1278,8 @@ mitilog_status screen_learn(const screen_device *device, const char *profile_key
     mitilog_status first_status = MITILOG_OK;
     for (size_t i = 0; i < sizeof shares / sizeof shares[0]; i++) {
         mitilog_error attempt_error = {{0}};
-        mitilog_status status = learn_once(device, profile_key, examples, count, shares[i],
-                                           out, report_text, report_size, &attempt_error);
+        mitilog_status status = learn_once(device, profile_key, examples, count, shares[i], out,
+                                           report_text, report_size, &attempt_error);
         if (status == MITILOG_OK || status != MITILOG_ERROR_REFUSED) {
             if (status != MITILOG_OK && error != NULL)
                 *error = attempt_error;

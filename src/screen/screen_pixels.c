@@ -12,10 +12,14 @@
 
 int screen_median(const screen_image *image, int top, int bottom, int left, int right)
 {
-    if (top < 0) top = 0;
-    if (left < 0) left = 0;
-    if (bottom >= image->height) bottom = image->height - 1;
-    if (right >= image->width) right = image->width - 1;
+    if (top < 0)
+        top = 0;
+    if (left < 0)
+        left = 0;
+    if (bottom >= image->height)
+        bottom = image->height - 1;
+    if (right >= image->width)
+        right = image->width - 1;
     unsigned histogram[256] = {0};
     unsigned total = 0;
     for (int y = top; y <= bottom; y++) {
@@ -50,10 +54,14 @@ static int compare_blob_left(const void *a, const void *b)
 int screen_background(const screen_image *image, int top, int bottom, int left, int right)
 {
     enum { WINDOW = 24 };
-    if (top < 0) top = 0;
-    if (left < 0) left = 0;
-    if (bottom >= image->height) bottom = image->height - 1;
-    if (right >= image->width) right = image->width - 1;
+    if (top < 0)
+        top = 0;
+    if (left < 0)
+        left = 0;
+    if (bottom >= image->height)
+        bottom = image->height - 1;
+    if (right >= image->width)
+        right = image->width - 1;
     unsigned histogram[256] = {0};
     for (int y = top; y <= bottom; y++) {
         const unsigned char *row = image->grey + (size_t)y * image->stride;
@@ -82,13 +90,14 @@ int screen_background(const screen_image *image, int top, int bottom, int left, 
     return best_start;
 }
 
-size_t screen_segment(const screen_image *image, const screen_band *band, int threshold,
-                      int left, int right, screen_blob *blobs, size_t max,
-                      int *touches_end)
+size_t screen_segment(const screen_image *image, const screen_band *band, int threshold, int left,
+                      int right, screen_blob *blobs, size_t max, int *touches_end)
 {
     *touches_end = 0;
-    if (left < 0) left = 0;
-    if (right >= image->width) right = image->width - 1;
+    if (left < 0)
+        left = 0;
+    if (right >= image->width)
+        right = image->width - 1;
     int top = band->top < 0 ? 0 : band->top;
     int bottom = band->bottom >= image->height ? image->height - 1 : band->bottom;
     if (right < left || bottom < top || max == 0)
@@ -122,10 +131,14 @@ size_t screen_segment(const screen_image *image, const screen_band *band, int th
         while (depth > 0) {
             int p = stack[--depth];
             int px = p % width, py = p / width;
-            if (px < part.left) part.left = px;
-            if (px > part.right) part.right = px;
-            if (py < part.top) part.top = py;
-            if (py > part.bottom) part.bottom = py;
+            if (px < part.left)
+                part.left = px;
+            if (px > part.right)
+                part.right = px;
+            if (py < part.top)
+                part.top = py;
+            if (py > part.bottom)
+                part.bottom = py;
             const int neighbours[8][2] = {{1, 0}, {-1, 0}, {0, 1},  {0, -1},
                                           {1, 1}, {-1, 1}, {1, -1}, {-1, -1}};
             for (int n = 0; n < 8; n++) {
@@ -171,10 +184,14 @@ size_t screen_segment(const screen_image *image, const screen_band *band, int th
             int narrow = a->right - a->left < b->right - b->left ? a->right - a->left + 1
                                                                  : b->right - b->left + 1;
             if ((high - low + 1) * 2 >= narrow) {
-                if (b->left < a->left) a->left = b->left;
-                if (b->right > a->right) a->right = b->right;
-                if (b->top < a->top) a->top = b->top;
-                if (b->bottom > a->bottom) a->bottom = b->bottom;
+                if (b->left < a->left)
+                    a->left = b->left;
+                if (b->right > a->right)
+                    a->right = b->right;
+                if (b->top < a->top)
+                    a->top = b->top;
+                if (b->bottom > a->bottom)
+                    a->bottom = b->bottom;
                 b->left = 1;
                 b->right = 0;
             }
@@ -198,8 +215,8 @@ done:
     return count;
 }
 
-double screen_correlate(const screen_image *image, int background, const screen_template *t,
-                        int x, int y)
+double screen_correlate(const screen_image *image, int background, const screen_template *t, int x,
+                        int y)
 {
     if (x < 0 || y < 0 || x + t->width > image->width || y + t->height > image->height ||
         t->deviation <= 0.0)
@@ -210,7 +227,8 @@ double screen_correlate(const screen_image *image, int background, const screen_
         const unsigned char *pixels = image->grey + (size_t)(y + row) * image->stride + x;
         for (int column = 0; column < t->width; column++) {
             int value = pixels[column] - background;
-            if (value < 0) value = -value;
+            if (value < 0)
+                value = -value;
             sum += value;
             sum_squares += (double)value * value;
             sum_products += (double)value * *ink++;
@@ -224,11 +242,11 @@ double screen_correlate(const screen_image *image, int background, const screen_
     return covariance / (sqrt(variance) * t->deviation);
 }
 
-int screen_cut(const screen_image *image, int background, int top, int bottom, int left,
-               int right, screen_template *t)
+int screen_cut(const screen_image *image, int background, int top, int bottom, int left, int right,
+               screen_template *t)
 {
-    if (top < 0 || left < 0 || bottom >= image->height || right >= image->width ||
-        bottom < top || right < left)
+    if (top < 0 || left < 0 || bottom >= image->height || right >= image->width || bottom < top ||
+        right < left)
         return -1;
     int width = right - left + 1, height = bottom - top + 1;
     unsigned char *ink = malloc((size_t)width * (size_t)height);
@@ -277,11 +295,12 @@ size_t screen_split_wide(const screen_image *image, const screen_band *band, int
         screen_blob *parts[2] = {blob, &right_part};
         for (int p = 0; p < 2; p++) {
             int top = -1, bottom = -1;
-            for (int y = band->top < 0 ? 0 : band->top;
-                 y <= band->bottom && y < image->height; y++) {
+            for (int y = band->top < 0 ? 0 : band->top; y <= band->bottom && y < image->height;
+                 y++) {
                 for (int x = parts[p]->left; x <= parts[p]->right; x++) {
                     if (screen_ink(image, band->background, x, y) > threshold) {
-                        if (top < 0) top = y;
+                        if (top < 0)
+                            top = y;
                         bottom = y;
                         break;
                     }
@@ -295,4 +314,3 @@ size_t screen_split_wide(const screen_image *image, const screen_band *band, int
     }
     return count;
 }
-

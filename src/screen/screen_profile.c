@@ -84,7 +84,7 @@ int screen_profile_version(const screen_profile *profile)
 const char *screen_index_label(exam_index index)
 {
     static const char *const labels[EXAM_INDEX_COUNT] = {"MI",  "TIS",       "TIB",
-                                                        "TIC", "TIS focus", "TIS surface"};
+                                                         "TIC", "TIS focus", "TIS surface"};
     return (unsigned)index < EXAM_INDEX_COUNT ? labels[index] : "?";
 }
 
@@ -129,8 +129,7 @@ int screen_profile_matches(const screen_profile *profile, const screen_device *d
            same_text(profile->software_versions, device->software_versions);
 }
 
-int screen_profile_matches_but_software(const screen_profile *profile,
-                                        const screen_device *device)
+int screen_profile_matches_but_software(const screen_profile *profile, const screen_device *device)
 {
     if (profile == NULL || device == NULL || profile->software_versions[0] == '\0')
         return 0;
@@ -156,8 +155,8 @@ typedef struct text_buffer {
     int failed;
 } text_buffer;
 
-__attribute__((format(printf, 2, 3)))
-static void append(text_buffer *buffer, const char *format, ...)
+__attribute__((format(printf, 2, 3))) static void append(text_buffer *buffer, const char *format,
+                                                         ...)
 {
     if (buffer->failed)
         return;
@@ -215,8 +214,8 @@ mitilog_status screen_profile_to_text(const screen_profile *profile, char **text
     text_buffer buffer = {0};
     append(&buffer, "mitilog-screen-profile %d\n", SCREEN_TEXT_FORMAT);
     append(&buffer, "key %s\nversion %d\n", profile->key, profile->version);
-    append(&buffer, "manufacturer %s\nmodel_name %s\nsoftware_versions %s\n",
-           profile->manufacturer, profile->model_name, profile->software_versions);
+    append(&buffer, "manufacturer %s\nmodel_name %s\nsoftware_versions %s\n", profile->manufacturer,
+           profile->model_name, profile->software_versions);
     append(&buffer, "rows %d\ncolumns %d\nband %d %d\nink_threshold %d\nsplit_width %d\n",
            profile->rows, profile->columns, profile->band_above, profile->band_below,
            profile->ink_threshold, profile->split_width);
@@ -229,8 +228,8 @@ mitilog_status screen_profile_to_text(const screen_profile *profile, char **text
             append(&buffer, "slot %s not_shown\n", name);
             continue;
         }
-        append(&buffer, "slot %s %d %d %d %d %d %d %s\n", name, slot->label_x,
-               slot->baseline, slot->decimals, slot->gap_max, slot->stop_gap, slot->span,
+        append(&buffer, "slot %s %d %d %d %d %d %d %s\n", name, slot->label_x, slot->baseline,
+               slot->decimals, slot->gap_max, slot->stop_gap, slot->span,
                slot->label_text[0] ? slot->label_text : "-");
         append(&buffer, "label %s ", name);
         append_hex(&buffer, &slot->label);
@@ -261,9 +260,12 @@ static int index_by_name(const char *name)
 
 static int hex_value(char c)
 {
-    if (c >= '0' && c <= '9') return c - '0';
-    if (c >= 'a' && c <= 'f') return c - 'a' + 10;
-    if (c >= 'A' && c <= 'F') return c - 'A' + 10;
+    if (c >= '0' && c <= '9')
+        return c - '0';
+    if (c >= 'a' && c <= 'f')
+        return c - 'a' + 10;
+    if (c >= 'A' && c <= 'F')
+        return c - 'A' + 10;
     return -1;
 }
 
@@ -271,8 +273,8 @@ static int hex_value(char c)
 static int parse_template(const char *text, screen_template *t)
 {
     int width = 0, height = 0, consumed = 0;
-    if (sscanf(text, "%d %d %n", &width, &height, &consumed) != 2 || width <= 0 ||
-        height <= 0 || width > 512 || height > 128)
+    if (sscanf(text, "%d %d %n", &width, &height, &consumed) != 2 || width <= 0 || height <= 0 ||
+        width > 512 || height > 128)
         return -1;
     const char *hex = text + consumed;
     size_t n = (size_t)width * (size_t)height;
@@ -337,9 +339,11 @@ static int parse_line(screen_profile *profile, char *line, int line_number, int 
     } else if (strcmp(name, "software_versions") == 0) {
         copy_rest(profile->software_versions, sizeof profile->software_versions, rest);
     } else if (strcmp(name, "rows") == 0) {
-        if (sscanf(rest, "%d", &profile->rows) != 1 || profile->rows < 0) return -1;
+        if (sscanf(rest, "%d", &profile->rows) != 1 || profile->rows < 0)
+            return -1;
     } else if (strcmp(name, "columns") == 0) {
-        if (sscanf(rest, "%d", &profile->columns) != 1 || profile->columns < 0) return -1;
+        if (sscanf(rest, "%d", &profile->columns) != 1 || profile->columns < 0)
+            return -1;
     } else if (strcmp(name, "band") == 0) {
         if (sscanf(rest, "%d %d", &profile->band_above, &profile->band_below) != 2 ||
             profile->band_above < 3 || profile->band_below < 0 ||
@@ -382,8 +386,7 @@ static int parse_line(screen_profile *profile, char *line, int line_number, int 
                    &parsed.decimals, &parsed.gap_max, &parsed.stop_gap, &parsed.span,
                    label_text) != 7 ||
             parsed.label_x < 0 || parsed.baseline < 0 || parsed.decimals < 1 ||
-            parsed.decimals > 3 || parsed.gap_max < 0 || parsed.stop_gap < 1 ||
-            parsed.span < 1)
+            parsed.decimals > 3 || parsed.gap_max < 0 || parsed.stop_gap < 1 || parsed.span < 1)
             return -1;
         parsed.shown = 1;
         if (strcmp(label_text, "-") != 0)

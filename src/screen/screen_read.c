@@ -63,8 +63,7 @@ static label_match match_label(const screen_profile *profile, const screen_image
     return best;
 }
 
-static void set_reason(screen_value *value, const char *format, const char *a,
-                       const char *b)
+static void set_reason(screen_value *value, const char *format, const char *a, const char *b)
 {
     value->status = SCREEN_VALUE_NOT_READ;
     snprintf(value->reason, sizeof value->reason, format, a, b);
@@ -99,8 +98,8 @@ static int format_matches(const char *text, int decimals)
 
 /* Matches one character column run; returns the character, or 0 with
  * *why set when it is not certain. */
-static char match_blob(const screen_profile *profile, const screen_image *image,
-                       int background, int top, const screen_blob *blob, const char **why)
+static char match_blob(const screen_profile *profile, const screen_image *image, int background,
+                       int top, const screen_blob *blob, const char **why)
 {
     double best_by_character[128];
     for (int i = 0; i < 128; i++)
@@ -116,8 +115,7 @@ static char match_blob(const screen_profile *profile, const screen_image *image,
         int x = blob->left - difference / 2;
         for (int dy = -1; dy <= 1; dy++) {
             for (int dx = -1; dx <= 1; dx++) {
-                double score = screen_correlate(image, background, &glyph->shape, x + dx,
-                                                top + dy);
+                double score = screen_correlate(image, background, &glyph->shape, x + dx, top + dy);
                 if (score > best_by_character[(int)glyph->character])
                     best_by_character[(int)glyph->character] = score;
             }
@@ -168,8 +166,10 @@ static void read_slot(const screen_profile *profile, const screen_image *image, 
     int touches = 0;
     if (screen_segment(image, &whole, threshold, slot->label_x - 1, last_column, &any, 1,
                        &touches) == 0) {
-        set_reason(value, "nothing is drawn where the profile expects %s (blank or empty "
-                          "region)%s", name, "");
+        set_reason(value,
+                   "nothing is drawn where the profile expects %s (blank or empty "
+                   "region)%s",
+                   name, "");
         return;
     }
 
@@ -186,8 +186,10 @@ static void read_slot(const screen_profile *profile, const screen_image *image, 
         if (theirs.score >= profile->label_threshold &&
             theirs.score > own.score - profile->glyph_margin) {
             if (theirs.score > own.score + profile->glyph_margin) {
-                set_reason(value, "%s is not displayed on this frame (%s is shown in its "
-                                  "place)", name, slot_name(neighbour, other));
+                set_reason(value,
+                           "%s is not displayed on this frame (%s is shown in its "
+                           "place)",
+                           name, slot_name(neighbour, other));
             } else {
                 value->status = SCREEN_VALUE_NOT_READ;
                 snprintf(value->reason, sizeof value->reason,
@@ -198,15 +200,16 @@ static void read_slot(const screen_profile *profile, const screen_image *image, 
         }
     }
     if (own.score < profile->label_threshold) {
-        set_reason(value, "label %s not found where the profile expects it: the screen "
-                          "layout may have changed (software update?); learn the device "
-                          "again%s", name, "");
+        set_reason(value,
+                   "label %s not found where the profile expects it: the screen "
+                   "layout may have changed (software update?); learn the device "
+                   "again%s",
+                   name, "");
         return;
     }
 
-    screen_band band = {.top = top + own.dy,
-                        .bottom = top + own.dy + height - 1,
-                        .background = own.background};
+    screen_band band = {
+        .top = top + own.dy, .bottom = top + own.dy + height - 1, .background = own.background};
     int start = slot->label_x + own.dx + slot->label.width;
     int limit = start + slot->span - 1;
     int frame_edge = 0;
@@ -223,8 +226,8 @@ static void read_slot(const screen_profile *profile, const screen_image *image, 
     screen_blob blobs[SCREEN_VALUE_CHARACTERS_MAX + 2];
     size_t count = screen_segment(image, &rows, threshold, start, limit, blobs,
                                   sizeof blobs / sizeof blobs[0], &touches);
-    count = screen_split_wide(image, &rows, threshold, blobs, count,
-                              sizeof blobs / sizeof blobs[0], profile->split_width);
+    count = screen_split_wide(image, &rows, threshold, blobs, count, sizeof blobs / sizeof blobs[0],
+                              profile->split_width);
     /* A speck off the baseline (a pixel of the label's edge, noise) is no
      * character: points sit on the baseline, digits are tall. */
     int baseline = band.top + profile->band_above;
@@ -251,22 +254,24 @@ static void read_slot(const screen_profile *profile, const screen_image *image, 
     while (used < count && blobs[used].left - blobs[used - 1].right - 1 <= slot->stop_gap)
         used++;
     if (used > SCREEN_VALUE_CHARACTERS_MAX) {
-        set_reason(value, "the text after %s is longer than the device's number "
-                          "format%s", name, "");
+        set_reason(value,
+                   "the text after %s is longer than the device's number "
+                   "format%s",
+                   name, "");
         return;
     }
     if (used == count && touches) {
-        set_reason(value, frame_edge ? "the value of %s is cut by the edge of the frame%s"
-                                     : "the value of %s runs past where the profile "
-                                       "expects it to end%s",
+        set_reason(value,
+                   frame_edge ? "the value of %s is cut by the edge of the frame%s"
+                              : "the value of %s runs past where the profile "
+                                "expects it to end%s",
                    name, "");
         return;
     }
     char text[SCREEN_VALUE_CHARACTERS_MAX + 1];
     for (size_t i = 0; i < used; i++) {
         const char *why = NULL;
-        char character = match_blob(profile, image, band.background, band.top + 2, &blobs[i],
-                                    &why);
+        char character = match_blob(profile, image, band.background, band.top + 2, &blobs[i], &why);
         if (character == 0) {
             value->status = SCREEN_VALUE_NOT_READ;
             snprintf(value->reason, sizeof value->reason, "%s: %s", name, why);
@@ -313,8 +318,7 @@ mitilog_status screen_read(const screen_profile *profile, const screen_image *im
         snprintf(reading->reason, sizeof reading->reason,
                  "the frame is %dx%d pixels, the profile %.40s is for %dx%d: not the "
                  "same screen",
-                 image->width, image->height, profile->key, profile->columns,
-                 profile->rows);
+                 image->width, image->height, profile->key, profile->columns, profile->rows);
     if (reading->reason[0] != '\0') {
         for (int i = 0; i < EXAM_INDEX_COUNT; i++) {
             if (reading->values[i].status == SCREEN_VALUE_NOT_READ)
@@ -342,8 +346,7 @@ void screen_combine(const screen_reading *readings, size_t count, screen_reading
                      "no frame was read");
         return;
     }
-    snprintf(combined->profile_key, sizeof combined->profile_key, "%s",
-             readings[0].profile_key);
+    snprintf(combined->profile_key, sizeof combined->profile_key, "%s", readings[0].profile_key);
     combined->profile_version = readings[0].profile_version;
     int every_frame_refused = 1;
     for (size_t f = 0; f < count; f++)

@@ -28,26 +28,22 @@ static void sim_sort_seconds(long *values, size_t count)
 }
 
 /* Sets the model's indices for a capture in its mode. */
-static void sim_model_indices(const sim_exam_type *type, sim_capture *c,
-                              sim_rng *rng)
+static void sim_model_indices(const sim_exam_type *type, sim_capture *c, sim_rng *rng)
 {
     double noise_mi = 1.0 + 0.06 * sim_rng_normal(rng);
     double noise_ti = 1.0 + 0.06 * sim_rng_normal(rng);
     double mi = type->mi_b * sim_mode_mi_factor(c->mode) * noise_mi;
-    double median_ti = type->ti_by_mode[c->mode] > 0.0
-                           ? type->ti_by_mode[c->mode]
-                           : type->ti_b * sim_mode_ti_factor(c->mode);
+    double median_ti = type->ti_by_mode[c->mode] > 0.0 ? type->ti_by_mode[c->mode]
+                                                       : type->ti_b * sim_mode_ti_factor(c->mode);
     double ti = median_ti * noise_ti;
     c->has_indices = 1;
     c->mi = mi;
     c->tib = c->tic = 0.0;
     switch (type->indices) {
-    case SIM_INDICES_TIS:
-        c->tis = ti;
-        break;
+    case SIM_INDICES_TIS: c->tis = ti; break;
     case SIM_INDICES_TIB:
         c->tib = ti;
-        c->tis = ti * 0.6;   /* soft tissue below the bone-at-focus value */
+        c->tis = ti * 0.6; /* soft tissue below the bone-at-focus value */
         break;
     case SIM_INDICES_TIC:
         c->tic = ti;
@@ -79,17 +75,13 @@ static void sim_round_indices(sim_capture *c, int decimals)
  * at the TI ceiling (at most 2.0 passes, docs/domain.md section 4) and at
  * the obstetric dwell table's 4-minute row: a dwell breach, not a
  * ceiling one, which stays the planted transcranial exam's. */
-static void sim_breach_indices(const sim_exam_type *type, sim_capture *c,
-                               sim_rng *rng)
+static void sim_breach_indices(const sim_exam_type *type, sim_capture *c, sim_rng *rng)
 {
     double ti = 2.0;
     c->mode = SIM_MODE_PW;
-    c->mi = type->mi_b * sim_mode_mi_factor(SIM_MODE_PW)
-            * (1.0 + 0.06 * sim_rng_normal(rng));
+    c->mi = type->mi_b * sim_mode_mi_factor(SIM_MODE_PW) * (1.0 + 0.06 * sim_rng_normal(rng));
     switch (type->indices) {
-    case SIM_INDICES_TIS:
-        c->tis = ti;
-        break;
+    case SIM_INDICES_TIS: c->tis = ti; break;
     case SIM_INDICES_TIB:
         c->tib = ti;
         c->tis = ti * 0.6;
@@ -107,8 +99,8 @@ static void sim_breach_indices(const sim_exam_type *type, sim_capture *c,
  * section 5) add up to at least 270 s, longer than the 4 minutes the
  * obstetric table allows at TI 2.0. It reaches back when the rest of the
  * exam is too short; none when the whole exam is. */
-static void sim_breach_stretch(const long *seconds, size_t n, sim_rng *rng,
-                               size_t *first, size_t *last)
+static void sim_breach_stretch(const long *seconds, size_t n, sim_rng *rng, size_t *first,
+                               size_t *last)
 {
     *first = *last = 0;
     if (n < 3)
@@ -141,8 +133,7 @@ static int sim_cine_frames(sim_rng *rng)
     return sim_rng_range(rng, 61, 120);
 }
 
-void sim_exam_build(int day_index, int exam_number, const sim_slot *slot,
-                    sim_exam *exam)
+void sim_exam_build(int day_index, int exam_number, const sim_slot *slot, sim_exam *exam)
 {
     const sim_exam_type *type = &sim_exam_types[slot->exam_type];
     sim_rng rng;
@@ -154,15 +145,11 @@ void sim_exam_build(int day_index, int exam_number, const sim_slot *slot,
     exam->planted = slot->planted;
     exam->operator_index = sim_rng_range(&rng, 0, SIM_OPERATOR_COUNT - 1);
     exam->patient_number = (uint32_t)(day_index * 1000 + exam_number);
-    exam->patient_age_days = sim_rng_range(&rng, type->age_low_days,
-                                           type->age_high_days);
-    exam->patient_sex = type->sex != 0 ? type->sex
-                        : (sim_rng_uniform(&rng) < 0.5 ? 'F' : 'M');
+    exam->patient_age_days = sim_rng_range(&rng, type->age_low_days, type->age_high_days);
+    exam->patient_sex = type->sex != 0 ? type->sex : (sim_rng_uniform(&rng) < 0.5 ? 'F' : 'M');
     if (type->gestation_low_weeks > 0)
-        exam->gestation_days = sim_rng_range(&rng,
-                                             type->gestation_low_weeks * 7,
-                                             type->gestation_high_weeks * 7
-                                                 + 6);
+        exam->gestation_days =
+            sim_rng_range(&rng, type->gestation_low_weeks * 7, type->gestation_high_weeks * 7 + 6);
 
     int dwell = (exam->planted & SIM_PLANTED_NIGHT_OB_DWELL) != 0;
     int n = sim_rng_range(&rng, type->captures_low, type->captures_high);
@@ -182,23 +169,20 @@ void sim_exam_build(int day_index, int exam_number, const sim_slot *slot,
         span = n * 10;
     long seconds[SIM_MAX_CAPTURES];
     for (int i = 0; i < n; i++) {
-        if (dwell)   /* 3 B-mode views in 5 min, then PW to the end */
-            seconds[i] = i < 3 ? 40 + i * 80
-                               : 300 + (span - 300) * (i - 2) / (n - 2);
+        if (dwell) /* 3 B-mode views in 5 min, then PW to the end */
+            seconds[i] = i < 3 ? 40 + i * 80 : 300 + (span - 300) * (i - 2) / (n - 2);
         else
             seconds[i] = (long)(sim_rng_uniform(&rng) * (double)span);
     }
     sim_sort_seconds(seconds, (size_t)n);
-    for (int i = 1; i < n; i++)   /* the times written: one second apart */
+    for (int i = 1; i < n; i++) /* the times written: one second apart */
         if (seconds[i] <= seconds[i - 1])
             seconds[i] = seconds[i - 1] + 1;
     /* Drawn from the exam's own stream only for exam types that have a
      * share, so that every other exam keeps its captures. */
     size_t breach_first = 0, breach_last = 0;
-    if (!dwell && type->pw_breach_share > 0.0
-        && sim_rng_uniform(&rng) < type->pw_breach_share)
-        sim_breach_stretch(seconds, (size_t)n, &rng, &breach_first,
-                           &breach_last);
+    if (!dwell && type->pw_breach_share > 0.0 && sim_rng_uniform(&rng) < type->pw_breach_share)
+        sim_breach_stretch(seconds, (size_t)n, &rng, &breach_first, &breach_last);
 
     exam->capture_count = (size_t)n;
     long previous = -1;
@@ -210,23 +194,19 @@ void sim_exam_build(int day_index, int exam_number, const sim_slot *slot,
         previous = t;
         c->second = t;
         int mode = dwell ? (i < 3 ? SIM_MODE_B : SIM_MODE_PW)
-                         : sim_rng_pick(&rng, type->mode_weights,
-                                        SIM_MODE_COUNT);
+                         : sim_rng_pick(&rng, type->mode_weights, SIM_MODE_COUNT);
         c->mode = mode < 0 ? SIM_MODE_B : (sim_mode)mode;
         double cine = type->cine_fraction;
         if (c->mode == SIM_MODE_PW || c->mode == SIM_MODE_CW)
             cine *= 1.5;
         c->frames = 1;
         c->frame_time_ms = 0.0;
-        if (c->mode != SIM_MODE_3D && (dwell ? i >= 3
-                                             : sim_rng_uniform(&rng) < cine)) {
-            c->frames = dwell ? sim_rng_range(&rng, 100, 120)
-                              : sim_cine_frames(&rng);
+        if (c->mode != SIM_MODE_3D && (dwell ? i >= 3 : sim_rng_uniform(&rng) < cine)) {
+            c->frames = dwell ? sim_rng_range(&rng, 100, 120) : sim_cine_frames(&rng);
             c->frame_time_ms = dwell ? 40.0 : (double)sim_rng_range(&rng, 20, 40);
         }
         sim_model_indices(type, c, &rng);
-        if (breach_first > 0 && (size_t)i >= breach_first
-            && (size_t)i <= breach_last)
+        if (breach_first > 0 && (size_t)i >= breach_first && (size_t)i <= breach_last)
             sim_breach_indices(type, c, &rng);
         sim_planted_apply(exam, c, (size_t)i, &rng);
         sim_round_indices(c, slot->decimals);

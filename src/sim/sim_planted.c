@@ -30,14 +30,10 @@
 #include <stdio.h>
 #include <string.h>
 
-enum {
-    ROOM_1 = 0, ROOM_2 = 1, ROOM_3 = 2, ROOM_4 = 3, ROOM_MATERNITY = 4,
-    PROBE_L4_15 = 1
-};
+enum { ROOM_1 = 0, ROOM_2 = 1, ROOM_3 = 2, ROOM_4 = 3, ROOM_MATERNITY = 4, PROBE_L4_15 = 1 };
 
 /* Forces the first day-shift slot of a room to an exam type. */
-static void sim_force_first(sim_day *day, int room, const char *key,
-                            unsigned bit)
+static void sim_force_first(sim_day *day, int room, const char *key, unsigned bit)
 {
     for (size_t i = 0; i < day->count; i++) {
         sim_slot *slot = &day->slots[i];
@@ -66,19 +62,17 @@ void sim_planted_mark(sim_day *day, int days)
     for (size_t i = 0; i < day->count; i++) {
         sim_slot *slot = &day->slots[i];
         const sim_exam_type *type = &sim_exam_types[slot->exam_type];
-        if (slot->room == ROOM_2 && slot->exam_type == abdomen && d >= 7
-            && d <= 20)
+        if (slot->room == ROOM_2 && slot->exam_type == abdomen && d >= 7 && d <= 20)
             slot->planted |= SIM_PLANTED_HOT_PRESET;
-        if (slot->room == ROOM_MATERNITY && slot->shift == SIM_SHIFT_NIGHT
-            && (slot->exam_type == ob2 || slot->exam_type == ob3))
+        if (slot->room == ROOM_MATERNITY && slot->shift == SIM_SHIFT_NIGHT &&
+            (slot->exam_type == ob2 || slot->exam_type == ob3))
             slot->planted |= SIM_PLANTED_NIGHT_OB_DWELL;
         if (slot->room == ROOM_3 && type->probe == PROBE_L4_15 && d >= 14)
             slot->planted |= SIM_PLANTED_SILENT_PROBE;
     }
 }
 
-void sim_planted_apply(const sim_exam *exam, sim_capture *capture,
-                       size_t position, sim_rng *rng)
+void sim_planted_apply(const sim_exam *exam, sim_capture *capture, size_t position, sim_rng *rng)
 {
     unsigned planted = exam->planted;
     size_t n = exam->capture_count;
@@ -86,8 +80,7 @@ void sim_planted_apply(const sim_exam *exam, sim_capture *capture,
         capture->mi += 0.4;
         capture->tis *= 1.6;
     }
-    if ((planted & SIM_PLANTED_NIGHT_OB_DWELL)
-        && capture->mode == SIM_MODE_PW) {
+    if ((planted & SIM_PLANTED_NIGHT_OB_DWELL) && capture->mode == SIM_MODE_PW) {
         /* 1.90-2.04: displayed 1.9 or, two times in three, 2.0 */
         capture->tib = 1.9 + 0.14 * sim_rng_uniform(rng);
         capture->tis = capture->tib * 0.6;
@@ -101,8 +94,8 @@ void sim_planted_apply(const sim_exam *exam, sim_capture *capture,
         }
     }
     if (planted & SIM_PLANTED_MI_OVER_LIMIT) {
-        if (position >= n / 3 && position < n - n / 3
-            && (capture->mode == SIM_MODE_B || position == n / 2)) {
+        if (position >= n / 3 && position < n - n / 3 &&
+            (capture->mode == SIM_MODE_B || position == n / 2)) {
             capture->mode = SIM_MODE_B;
             capture->mi = 2.1;
         }
@@ -132,8 +125,7 @@ void sim_planted_tags(unsigned planted, char *buffer, size_t size)
     for (size_t i = 0; i < sizeof tags / sizeof tags[0]; i++) {
         if (!(planted & tags[i].bit))
             continue;
-        int w = snprintf(buffer + used, size - used, "%s%s",
-                         used > 0 ? ";" : "", tags[i].tag);
+        int w = snprintf(buffer + used, size - used, "%s%s", used > 0 ? ";" : "", tags[i].tag);
         if (w < 0 || (size_t)w >= size - used)
             return;
         used += (size_t)w;

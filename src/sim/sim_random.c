@@ -8,10 +8,7 @@
 
 #include <math.h>
 
-void sim_rng_seed(sim_rng *rng, uint64_t seed)
-{
-    rng->state = seed;
-}
+void sim_rng_seed(sim_rng *rng, uint64_t seed) { rng->state = seed; }
 
 uint64_t sim_rng_next(sim_rng *rng)
 {
@@ -21,10 +18,7 @@ uint64_t sim_rng_next(sim_rng *rng)
     return z ^ (z >> 31);
 }
 
-double sim_rng_uniform(sim_rng *rng)
-{
-    return (double)(sim_rng_next(rng) >> 11) * 0x1.0p-53;
-}
+double sim_rng_uniform(sim_rng *rng) { return (double)(sim_rng_next(rng) >> 11) * 0x1.0p-53; }
 
 int sim_rng_range(sim_rng *rng, int low, int high)
 {
@@ -69,8 +63,7 @@ static uint64_t sim_mix_word(uint64_t h, uint64_t word)
     return sim_rng_next(&rng);
 }
 
-uint64_t sim_mix(uint64_t seed, uint64_t a, uint64_t b, uint64_t c,
-                 uint64_t d)
+uint64_t sim_mix(uint64_t seed, uint64_t a, uint64_t b, uint64_t c, uint64_t d)
 {
     uint64_t h = sim_mix_word(UINT64_C(0x6d69746973696d31), seed);
     h = sim_mix_word(h, a);

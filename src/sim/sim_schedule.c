@@ -11,37 +11,35 @@
 #include <string.h>
 
 typedef struct sim_room_shift {
-    int low, high;              /* exams per shift */
-    const char *mix;            /* "key:weight,key:weight" */
+    int low, high;   /* exams per shift */
+    const char *mix; /* "key:weight,key:weight" */
 } sim_room_shift;
 
 /* [room][weekend][shift] */
 static const sim_room_shift sim_plan[SIM_ROOM_COUNT][2][SIM_SHIFT_COUNT] = {
-    { /* US-ROOM-1: general */
+    {/* US-ROOM-1: general */
      {{9, 12, "abdomen:4,renal:2,thyroid:1.5,small_parts:1,msk:1.5,gyn:0.5"},
       {3, 5, "abdomen:3,renal:1,thyroid:1,small_parts:1"},
       {0, 1, "abdomen:1"}},
      {{6, 8, "abdomen:4,renal:2,small_parts:1,msk:1"},
       {2, 3, "abdomen:3,renal:1"},
       {0, 1, "abdomen:1"}}},
-    { /* US-ROOM-2: general and vascular */
+    {/* US-ROOM-2: general and vascular */
      {{9, 12, "abdomen:4,renal:1,carotid:2,venous_leg:2"},
       {3, 5, "venous_leg:2,abdomen:2"},
       {0, 0, ""}},
      {{0, 0, ""}, {0, 0, ""}, {0, 0, ""}}},
-    { /* US-ROOM-3: echo, vascular, transcranial */
+    {/* US-ROOM-3: echo, vascular, transcranial */
      {{8, 11, "echo_adult:4,carotid:2,transcranial:1,thyroid:1,venous_leg:1"},
       {2, 4, "echo_adult:3,carotid:1"},
       {0, 0, ""}},
      {{0, 0, ""}, {0, 0, ""}, {0, 0, ""}}},
-    { /* US-ROOM-4: paediatrics and neonates */
+    {/* US-ROOM-4: paediatrics and neonates */
      {{8, 11, "paeds_abdomen:4,echo_paeds:2,neonatal_head:3,msk:1"},
       {0, 2, "paeds_abdomen:2,neonatal_head:1"},
       {0, 0, ""}},
-     {{4, 6, "paeds_abdomen:3,neonatal_head:2,echo_paeds:1"},
-      {0, 0, ""},
-      {0, 0, ""}}},
-    { /* US-MATERNITY: obstetrics and gynaecology, round the clock */
+     {{4, 6, "paeds_abdomen:3,neonatal_head:2,echo_paeds:1"}, {0, 0, ""}, {0, 0, ""}}},
+    {/* US-MATERNITY: obstetrics and gynaecology, round the clock */
      {{10, 14, "ob_early:3,ob2:4,ob3:3,gyn:1.5"},
       {4, 6, "ob_early:2,ob2:2,ob3:3,gyn:1"},
       {1, 4, "ob3:3,ob_early:2,ob2:1"}},
@@ -50,8 +48,7 @@ static const sim_room_shift sim_plan[SIM_ROOM_COUNT][2][SIM_SHIFT_COUNT] = {
       {1, 4, "ob3:3,ob_early:2,ob2:1"}}},
 };
 
-static const int sim_shift_start[SIM_SHIFT_COUNT] = {7 * 60, 15 * 60,
-                                                     23 * 60};
+static const int sim_shift_start[SIM_SHIFT_COUNT] = {7 * 60, 15 * 60, 23 * 60};
 enum { SIM_SHIFT_MINUTES = 8 * 60 };
 
 sim_shift sim_shift_of_minute(int minute_of_day)
@@ -66,8 +63,7 @@ sim_shift sim_shift_of_minute(int minute_of_day)
 
 const char *sim_shift_name(sim_shift shift)
 {
-    static const char *const names[SIM_SHIFT_COUNT] = {"day", "evening",
-                                                       "night"};
+    static const char *const names[SIM_SHIFT_COUNT] = {"day", "evening", "night"};
     return names[shift];
 }
 
@@ -102,8 +98,7 @@ static int sim_slot_compare(const sim_slot *a, const sim_slot *b)
     return a->room < b->room ? -1 : a->room > b->room;
 }
 
-void sim_day_schedule(uint64_t seed, int day_index, int weekday,
-                      sim_day *day)
+void sim_day_schedule(uint64_t seed, int day_index, int weekday, sim_day *day)
 {
     memset(day, 0, sizeof *day);
     day->day_index = day_index;
@@ -113,8 +108,8 @@ void sim_day_schedule(uint64_t seed, int day_index, int weekday,
         for (int shift = 0; shift < SIM_SHIFT_COUNT; shift++) {
             const sim_room_shift *plan = &sim_plan[room][weekend][shift];
             sim_rng rng;
-            sim_rng_seed(&rng, sim_mix(seed, 1, (uint64_t)day_index,
-                                       (uint64_t)room, (uint64_t)shift));
+            sim_rng_seed(&rng,
+                         sim_mix(seed, 1, (uint64_t)day_index, (uint64_t)room, (uint64_t)shift));
             int n = sim_rng_range(&rng, plan->low, plan->high);
             if (n <= 0)
                 continue;
@@ -125,19 +120,16 @@ void sim_day_schedule(uint64_t seed, int day_index, int weekday,
                 slot->shift = (sim_shift)shift;
                 slot->exam_type = sim_pick_type(&rng, plan->mix);
                 const sim_exam_type *type = &sim_exam_types[slot->exam_type];
-                int duration = sim_rng_range(&rng, type->minutes_low,
-                                             type->minutes_high);
+                int duration = sim_rng_range(&rng, type->minutes_low, type->minutes_high);
                 if (duration > slot_minutes - 3)
                     duration = slot_minutes - 3;
                 if (duration < 5)
                     duration = 5;
                 int slack = slot_minutes - duration - 2;
                 slot->duration_minutes = duration;
-                slot->start_minute = sim_shift_start[shift] + i * slot_minutes
-                                     + sim_rng_range(&rng, 0,
-                                                     slack > 0 ? slack : 0);
-                slot->seed = sim_mix(seed, 2, (uint64_t)day_index,
-                                     (uint64_t)(room * 8 + shift),
+                slot->start_minute = sim_shift_start[shift] + i * slot_minutes +
+                                     sim_rng_range(&rng, 0, slack > 0 ? slack : 0);
+                slot->seed = sim_mix(seed, 2, (uint64_t)day_index, (uint64_t)(room * 8 + shift),
                                      (uint64_t)i);
             }
         }
@@ -190,9 +182,9 @@ int sim_date_weekday(sim_date date)
 int sim_date_parse(const char *text, sim_date *out)
 {
     int y, m, d, used = 0;
-    if (text == NULL || strlen(text) != 10
-        || sscanf(text, "%4d-%2d-%2d%n", &y, &m, &d, &used) != 3
-        || used != 10 || text[4] != '-' || text[7] != '-')
+    if (text == NULL || strlen(text) != 10 ||
+        sscanf(text, "%4d-%2d-%2d%n", &y, &m, &d, &used) != 3 || used != 10 || text[4] != '-' ||
+        text[7] != '-')
         return -1;
     if (y < 1900 || y > 9999 || m < 1 || m > 12 || d < 1 || d > 31)
         return -1;

@@ -32,8 +32,7 @@ static double sim_now(void)
 static void sim_sleep(double seconds)
 {
     while (seconds > 0) {
-        struct timespec ts = {(time_t)seconds,
-                              (long)((seconds - (double)(time_t)seconds) * 1e9)};
+        struct timespec ts = {(time_t)seconds, (long)((seconds - (double)(time_t)seconds) * 1e9)};
         struct timespec rest;
         if (nanosleep(&ts, &rest) == 0)
             return;
@@ -51,9 +50,9 @@ static const char *sim_storescu_propose(const char *syntax)
         const char *uid;
         const char *option;
     } table[] = {
-        {"1.2.840.10008.1.2.4.50", "-xy"},   /* JPEG baseline (8 bit) */
-        {"1.2.840.10008.1.2.4.80", "-xt"},   /* JPEG-LS lossless */
-        {"1.2.840.10008.1.2.5", "-xr"},      /* RLE lossless */
+        {"1.2.840.10008.1.2.4.50", "-xy"}, /* JPEG baseline (8 bit) */
+        {"1.2.840.10008.1.2.4.80", "-xt"}, /* JPEG-LS lossless */
+        {"1.2.840.10008.1.2.5", "-xr"},    /* RLE lossless */
     };
     for (size_t i = 0; i < sizeof table / sizeof table[0]; i++)
         if (strcmp(table[i].uid, syntax) == 0)
@@ -69,7 +68,7 @@ static int sim_storescu(const sim_options *options, const char *calling,
     snprintf(port, sizeof port, "%u", options->send_port);
     size_t max = study->file_count + 16;
     char **argv = calloc(max, sizeof *argv);
-    char (*paths)[4096] = calloc(study->file_count, sizeof *paths);
+    char(*paths)[4096] = calloc(study->file_count, sizeof *paths);
     if (argv == NULL || paths == NULL) {
         free(argv);
         free(paths);
@@ -81,12 +80,11 @@ static int sim_storescu(const sim_options *options, const char *calling,
     argv[n++] = (char *)calling;
     argv[n++] = (char *)"-aec";
     argv[n++] = (char *)(options->called_ae ? options->called_ae : "MITILOG");
-    argv[n++] = (char *)"-nh";   /* keep going: failures counted by exit */
+    argv[n++] = (char *)"-nh"; /* keep going: failures counted by exit */
     if (study->compressed_syntax != NULL) {
         const char *propose = sim_storescu_propose(study->compressed_syntax);
         if (propose == NULL) {
-            fprintf(stderr, "simulate: no storescu option proposes %s\n",
-                    study->compressed_syntax);
+            fprintf(stderr, "simulate: no storescu option proposes %s\n", study->compressed_syntax);
             free(argv);
             free(paths);
             return -1;
@@ -97,8 +95,8 @@ static int sim_storescu(const sim_options *options, const char *calling,
     argv[n++] = (char *)options->send_host;
     argv[n++] = port;
     for (size_t i = 0; i < study->file_count; i++) {
-        snprintf(paths[i], sizeof paths[i], "%s/%s/%03zu.dcm",
-                 options->out_directory, study->directory, i + 1);
+        snprintf(paths[i], sizeof paths[i], "%s/%s/%03zu.dcm", options->out_directory,
+                 study->directory, i + 1);
         argv[n++] = paths[i];
     }
     argv[n] = NULL;
@@ -109,8 +107,7 @@ static int sim_storescu(const sim_options *options, const char *calling,
     if (pid == 0) {
         setenv("TCP_NODELAY", "1", 1);
         execvp(argv[0], argv);
-        fprintf(stderr, "simulate: cannot run %s: %s\n", argv[0],
-                strerror(errno));
+        fprintf(stderr, "simulate: cannot run %s: %s\n", argv[0], strerror(errno));
         _exit(127);
     }
     if (pid > 0) {
@@ -124,8 +121,7 @@ static int sim_storescu(const sim_options *options, const char *calling,
     return status;
 }
 
-mitilog_status sim_send_all(const sim_options *options, const sim_run *run,
-                            mitilog_error *error)
+mitilog_status sim_send_all(const sim_options *options, const sim_run *run, mitilog_error *error)
 {
     size_t sent = 0, failed = 0, batches_failed = 0;
     double real_start = sim_now();
@@ -133,17 +129,15 @@ mitilog_status sim_send_all(const sim_options *options, const sim_run *run,
     for (size_t i = 0; i < run->study_count; i++) {
         const sim_study_record *study = &run->studies[i];
         if (options->speed > 0) {
-            double due = (double)(study->send_second - sim_start)
-                         / options->speed;
+            double due = (double)(study->send_second - sim_start) / options->speed;
             double wait = due - (sim_now() - real_start);
             if (wait > 0)
                 sim_sleep(wait);
         }
         char site_ae[17];
-        const char *calling = options->calling_ae
-                                  ? options->calling_ae
-                                  : sim_site_name(sim_rooms[study->room].ae_title,
-                                                  options->site, site_ae);
+        const char *calling = options->calling_ae ? options->calling_ae
+                                                  : sim_site_name(sim_rooms[study->room].ae_title,
+                                                                  options->site, site_ae);
         int rc = sim_storescu(options, calling, study);
         if (rc == 0) {
             sent += study->file_count;
@@ -151,18 +145,16 @@ mitilog_status sim_send_all(const sim_options *options, const sim_run *run,
             failed += study->file_count;
             batches_failed++;
         }
-        printf("batch %zu/%zu: %s%s from %s: %zu object(s) %s\n", i + 1,
-               run->study_count, study->directory,
-               study->is_resend ? " (resend)" : "", calling,
-               study->file_count, rc == 0 ? "sent" : "FAILED");
+        printf("batch %zu/%zu: %s%s from %s: %zu object(s) %s\n", i + 1, run->study_count,
+               study->directory, study->is_resend ? " (resend)" : "", calling, study->file_count,
+               rc == 0 ? "sent" : "FAILED");
         fflush(stdout);
     }
     printf("summary: %zu object(s) sent, %zu failed, %zu batch(es) failed, "
            "%.1f s\n",
            sent, failed, batches_failed, sim_now() - real_start);
     if (batches_failed > 0)
-        return mitilog_error_set(error, MITILOG_ERROR_IO,
-                                 "%zu batch(es) failed to send",
+        return mitilog_error_set(error, MITILOG_ERROR_IO, "%zu batch(es) failed to send",
                                  batches_failed);
     return MITILOG_OK;
 }

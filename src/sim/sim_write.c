@@ -29,22 +29,16 @@
 #define SOP_US_MULTIFRAME "1.2.840.10008.5.1.4.1.1.3.1"
 #define SOP_COMPREHENSIVE_SR "1.2.840.10008.5.1.4.1.1.88.33"
 
-enum {
-    UID_STUDY = 1, UID_SERIES = 2, UID_INSTANCE = 3, UID_SR_SERIES = 4,
-    UID_SR_INSTANCE = 5
-};
+enum { UID_STUDY = 1, UID_SERIES = 2, UID_INSTANCE = 3, UID_SR_SERIES = 4, UID_SR_INSTANCE = 5 };
 
 /* Pixel matrix: single frames 32x24, cine frames 16x12 (kept tiny, so
  * four weeks stay a couple of hundred MB). */
-enum { SINGLE_COLUMNS = 32, SINGLE_ROWS = 24, CINE_COLUMNS = 16,
-       CINE_ROWS = 12 };
+enum { SINGLE_COLUMNS = 32, SINGLE_ROWS = 24, CINE_COLUMNS = 16, CINE_ROWS = 12 };
 
-void sim_uid(uint64_t seed, uint64_t kind, uint64_t a, uint64_t b,
-             char *buffer, size_t size)
+void sim_uid(uint64_t seed, uint64_t kind, uint64_t a, uint64_t b, char *buffer, size_t size)
 {
-    unsigned __int128 v =
-        ((unsigned __int128)sim_mix(seed, 0x75696431, kind, a, b) << 64)
-        | sim_mix(seed, 0x75696432, kind, a, b);
+    unsigned __int128 v = ((unsigned __int128)sim_mix(seed, 0x75696431, kind, a, b) << 64) |
+                          sim_mix(seed, 0x75696432, kind, a, b);
     char digits[48];
     size_t n = 0;
     do {
@@ -61,54 +55,50 @@ void sim_uid(uint64_t seed, uint64_t kind, uint64_t a, uint64_t b,
 
 typedef struct sim_writer {
     const sim_options *options;
-    long start_days;            /* days since epoch of the start date */
+    long start_days; /* days since epoch of the start date */
     FILE *manifest;
     sim_run *run;
     dcm_builder *builder;
     mitilog_error *error;
-    sim_screen *screen;         /* FreeType, with --screens */
-    sim_overlay overlay;        /* the current capture's screen text */
+    sim_screen *screen;  /* FreeType, with --screens */
+    sim_overlay overlay; /* the current capture's screen text */
 } sim_writer;
 
 typedef struct sim_stamp {
-    char date[16];              /* YYYYMMDD */
-    char time[16];              /* HHMMSS */
-    char datetime[32];          /* YYYYMMDDHHMMSS */
+    char date[16];     /* YYYYMMDD */
+    char time[16];     /* HHMMSS */
+    char datetime[32]; /* YYYYMMDDHHMMSS */
 } sim_stamp;
 
-static void sim_stamp_of(const sim_writer *w, int day_index, long second,
-                         sim_stamp *out)
+static void sim_stamp_of(const sim_writer *w, int day_index, long second, sim_stamp *out)
 {
     long day = w->start_days + day_index + second / 86400;
     long s = second % 86400;
     sim_date date = sim_date_from_days(day);
-    snprintf(out->date, sizeof out->date, "%04d%02d%02d", date.year,
-             date.month, date.day);
-    snprintf(out->time, sizeof out->time, "%02ld%02ld%02ld", s / 3600,
-             (s / 60) % 60, s % 60);
-    snprintf(out->datetime, sizeof out->datetime, "%s%s", out->date,
-             out->time);
+    snprintf(out->date, sizeof out->date, "%04d%02d%02d", date.year, date.month, date.day);
+    snprintf(out->time, sizeof out->time, "%02ld%02ld%02ld", s / 3600, (s / 60) % 60, s % 60);
+    snprintf(out->datetime, sizeof out->datetime, "%s%s", out->date, out->time);
 }
 
-#define PUT_S(g, e, v)                                                      \
-    do {                                                                    \
-        if (dcm_builder_put_string(w->builder, g, e, v, w->error))          \
-            return MITILOG_ERROR_INVALID;                                   \
+#define PUT_S(g, e, v)                                                                             \
+    do {                                                                                           \
+        if (dcm_builder_put_string(w->builder, g, e, v, w->error))                                 \
+            return MITILOG_ERROR_INVALID;                                                          \
     } while (0)
-#define PUT_U(g, e, v)                                                      \
-    do {                                                                    \
-        if (dcm_builder_put_unsigned(w->builder, g, e, v, w->error))        \
-            return MITILOG_ERROR_INVALID;                                   \
+#define PUT_U(g, e, v)                                                                             \
+    do {                                                                                           \
+        if (dcm_builder_put_unsigned(w->builder, g, e, v, w->error))                               \
+            return MITILOG_ERROR_INVALID;                                                          \
     } while (0)
-#define PUT_F(g, e, v)                                                      \
-    do {                                                                    \
-        if (dcm_builder_put_float(w->builder, g, e, v, w->error))           \
-            return MITILOG_ERROR_INVALID;                                   \
+#define PUT_F(g, e, v)                                                                             \
+    do {                                                                                           \
+        if (dcm_builder_put_float(w->builder, g, e, v, w->error))                                  \
+            return MITILOG_ERROR_INVALID;                                                          \
     } while (0)
-#define CHECK(call)                                                         \
-    do {                                                                    \
-        if ((call) != MITILOG_OK)                                           \
-            return MITILOG_ERROR_INVALID;                                   \
+#define CHECK(call)                                                                                \
+    do {                                                                                           \
+        if ((call) != MITILOG_OK)                                                                  \
+            return MITILOG_ERROR_INVALID;                                                          \
     } while (0)
 
 static void sim_patient_age(int days, char *buffer, size_t size)
@@ -122,12 +112,11 @@ static void sim_patient_age(int days, char *buffer, size_t size)
 }
 
 /* Patient, study and equipment attributes shared by every object. */
-static mitilog_status sim_put_common(sim_writer *w, const sim_exam *exam,
-                                     const char *study_uid, int is_image)
+static mitilog_status sim_put_common(sim_writer *w, const sim_exam *exam, const char *study_uid,
+                                     int is_image)
 {
     const sim_device *device =
-        sim_device_of(exam->slot.room, exam->day_index, w->options->days,
-                      w->options->screens);
+        sim_device_of(exam->slot.room, exam->day_index, w->options->days, w->options->screens);
     const sim_exam_type *type = &sim_exam_types[exam->slot.exam_type];
     const sim_room *room = &sim_rooms[exam->slot.room];
     char text[96], station[17], serial[17];
@@ -137,8 +126,7 @@ static mitilog_status sim_put_common(sim_writer *w, const sim_exam *exam,
     /* Birth date: the exam date minus the patient's age in days. */
     sim_stamp_of(w, exam->day_index - exam->patient_age_days, 0, &birth);
 
-    snprintf(text, sizeof text, "SIMULATED^PATIENT%06u",
-             (unsigned)exam->patient_number);
+    snprintf(text, sizeof text, "SIMULATED^PATIENT%06u", (unsigned)exam->patient_number);
     PUT_S(0x0010, 0x0010, text);
     snprintf(text, sizeof text, "SIM%06u", (unsigned)exam->patient_number);
     PUT_S(0x0010, 0x0020, text);
@@ -161,23 +149,20 @@ static mitilog_status sim_put_common(sim_writer *w, const sim_exam *exam,
 
     PUT_S(0x0008, 0x0070, device->manufacturer);
     PUT_S(0x0008, 0x0080, SIM_HOSPITAL_NAME);
-    PUT_S(0x0008, 0x1010,
-          sim_site_name(room->station_name, w->options->site, station));
+    PUT_S(0x0008, 0x1010, sim_site_name(room->station_name, w->options->site, station));
     PUT_S(0x0008, 0x1040, SIM_DEPARTMENT_NAME);
     PUT_S(0x0008, 0x1090, device->model_name);
     PUT_S(0x0018, 0x1000, sim_site_name(room->serial, w->options->site, serial));
     PUT_S(0x0018, 0x1020, device->software_versions);
-    if (is_image)   /* Operators' Name is not in the SR IODs */
+    if (is_image) /* Operators' Name is not in the SR IODs */
         PUT_S(0x0008, 0x1070, sim_operators[exam->operator_index]);
     return MITILOG_OK;
 }
 
-static mitilog_status sim_put_region(sim_writer *w, unsigned spatial,
-                                     unsigned data_type, unsigned x0,
-                                     unsigned y0, unsigned x1, unsigned y1,
-                                     unsigned units_x, unsigned units_y,
-                                     double delta_x, double delta_y,
-                                     uint32_t frequency_khz, uint32_t prf)
+static mitilog_status sim_put_region(sim_writer *w, unsigned spatial, unsigned data_type,
+                                     unsigned x0, unsigned y0, unsigned x1, unsigned y1,
+                                     unsigned units_x, unsigned units_y, double delta_x,
+                                     double delta_y, uint32_t frequency_khz, uint32_t prf)
 {
     CHECK(dcm_builder_begin_item(w->builder, 0x0018, 0x6011, w->error));
     PUT_U(0x0018, 0x6012, spatial);
@@ -203,71 +188,58 @@ enum { SPATIAL_2D = 1, SPATIAL_M = 2, SPATIAL_SPECTRAL = 3 };
 enum { DATA_TISSUE = 1, DATA_COLOUR = 2, DATA_PW = 3, DATA_CW = 4 };
 
 /* Sequence of Ultrasound Regions for a capture's mode. */
-static mitilog_status sim_put_regions(sim_writer *w, const sim_capture *c,
-                                      const sim_probe *probe, unsigned cols,
-                                      unsigned rows)
+static mitilog_status sim_put_regions(sim_writer *w, const sim_capture *c, const sim_probe *probe,
+                                      unsigned cols, unsigned rows)
 {
     uint32_t f = probe->frequency_khz;
     uint32_t doppler_f = f * 7 / 10;
-    double depth = 0.3 * 64.0 / (double)cols;   /* cm per pixel */
+    double depth = 0.3 * 64.0 / (double)cols; /* cm per pixel */
     unsigned half = rows / 2;
     switch (c->mode) {
     case SIM_MODE_B:
     case SIM_MODE_3D:
-        return sim_put_region(w, SPATIAL_2D, DATA_TISSUE, 0, 0, cols - 1,
-                              rows - 1, UNITS_CM, UNITS_CM, depth, depth, f,
-                              0);
+        return sim_put_region(w, SPATIAL_2D, DATA_TISSUE, 0, 0, cols - 1, rows - 1, UNITS_CM,
+                              UNITS_CM, depth, depth, f, 0);
     case SIM_MODE_COLOUR:
     case SIM_MODE_POWER:
-        CHECK(sim_put_region(w, SPATIAL_2D, DATA_TISSUE, 0, 0, cols - 1,
-                             rows - 1, UNITS_CM, UNITS_CM, depth, depth, f,
-                             0));
-        return sim_put_region(w, SPATIAL_2D, DATA_COLOUR, cols / 4, rows / 4,
-                              3 * cols / 4 - 1, 3 * rows / 4 - 1, UNITS_CM,
-                              UNITS_CM, depth, depth, doppler_f,
+        CHECK(sim_put_region(w, SPATIAL_2D, DATA_TISSUE, 0, 0, cols - 1, rows - 1, UNITS_CM,
+                             UNITS_CM, depth, depth, f, 0));
+        return sim_put_region(w, SPATIAL_2D, DATA_COLOUR, cols / 4, rows / 4, 3 * cols / 4 - 1,
+                              3 * rows / 4 - 1, UNITS_CM, UNITS_CM, depth, depth, doppler_f,
                               c->mode == SIM_MODE_POWER ? 1500 : 3000);
     case SIM_MODE_M:
-        CHECK(sim_put_region(w, SPATIAL_2D, DATA_TISSUE, 0, 0, cols - 1,
-                             half - 1, UNITS_CM, UNITS_CM, depth, depth, f,
-                             0));
-        return sim_put_region(w, SPATIAL_M, DATA_TISSUE, 0, half, cols - 1,
-                              rows - 1, UNITS_SECONDS, UNITS_CM, 0.05, depth,
-                              f, 0);
+        CHECK(sim_put_region(w, SPATIAL_2D, DATA_TISSUE, 0, 0, cols - 1, half - 1, UNITS_CM,
+                             UNITS_CM, depth, depth, f, 0));
+        return sim_put_region(w, SPATIAL_M, DATA_TISSUE, 0, half, cols - 1, rows - 1, UNITS_SECONDS,
+                              UNITS_CM, 0.05, depth, f, 0);
     case SIM_MODE_PW:
-        CHECK(sim_put_region(w, SPATIAL_2D, DATA_TISSUE, 0, 0, cols - 1,
-                             half - 1, UNITS_CM, UNITS_CM, depth, depth, f,
-                             0));
-        CHECK(sim_put_region(w, SPATIAL_2D, DATA_COLOUR, cols / 4, 0,
-                             3 * cols / 4 - 1, half - 1, UNITS_CM, UNITS_CM,
-                             depth, depth, doppler_f, 3500));
-        return sim_put_region(w, SPATIAL_SPECTRAL, DATA_PW, 0, half,
-                              cols - 1, rows - 1, UNITS_SECONDS,
-                              UNITS_CM_PER_S, 0.05, 2.5, doppler_f, 5000);
+        CHECK(sim_put_region(w, SPATIAL_2D, DATA_TISSUE, 0, 0, cols - 1, half - 1, UNITS_CM,
+                             UNITS_CM, depth, depth, f, 0));
+        CHECK(sim_put_region(w, SPATIAL_2D, DATA_COLOUR, cols / 4, 0, 3 * cols / 4 - 1, half - 1,
+                             UNITS_CM, UNITS_CM, depth, depth, doppler_f, 3500));
+        return sim_put_region(w, SPATIAL_SPECTRAL, DATA_PW, 0, half, cols - 1, rows - 1,
+                              UNITS_SECONDS, UNITS_CM_PER_S, 0.05, 2.5, doppler_f, 5000);
     case SIM_MODE_CW:
-        CHECK(sim_put_region(w, SPATIAL_2D, DATA_TISSUE, 0, 0, cols - 1,
-                             half - 1, UNITS_CM, UNITS_CM, depth, depth, f,
-                             0));
-        return sim_put_region(w, SPATIAL_SPECTRAL, DATA_CW, 0, half,
-                              cols - 1, rows - 1, UNITS_SECONDS,
-                              UNITS_CM_PER_S, 0.05, 10.0, doppler_f, 12000);
-    case SIM_MODE_COUNT:
-        break;
+        CHECK(sim_put_region(w, SPATIAL_2D, DATA_TISSUE, 0, 0, cols - 1, half - 1, UNITS_CM,
+                             UNITS_CM, depth, depth, f, 0));
+        return sim_put_region(w, SPATIAL_SPECTRAL, DATA_CW, 0, half, cols - 1, rows - 1,
+                              UNITS_SECONDS, UNITS_CM_PER_S, 0.05, 10.0, doppler_f, 12000);
+    case SIM_MODE_COUNT: break;
     }
     return MITILOG_OK;
 }
 
 static int sim_mode_is_colour(sim_mode mode)
 {
-    return mode == SIM_MODE_COLOUR || mode == SIM_MODE_POWER
-           || mode == SIM_MODE_PW;
+    return mode == SIM_MODE_COLOUR || mode == SIM_MODE_POWER || mode == SIM_MODE_PW;
 }
 
 /* A screen device's picture: black, with a fan widening down from the
  * top centre in grey bands that drift one row per frame, and in colour
  * modes a red and blue flow box inside it. Long runs of equal values, so
  * that RLE and JPEG-LS compress it well. */
-static void sim_picture(uint8_t *frame, unsigned cols, unsigned rows,
-                        unsigned samples, size_t index, int colour)
+static void sim_picture(uint8_t *frame, unsigned cols, unsigned rows, unsigned samples,
+                        size_t index, int colour)
 {
     int centre = (int)cols / 2;
     for (unsigned y = 0; y < rows; y++) {
@@ -284,8 +256,7 @@ static void sim_picture(uint8_t *frame, unsigned cols, unsigned rows,
                 out[0] = grey;
                 continue;
             }
-            if (inside && flow_row && offset > -(int)cols / 6
-                && offset < (int)cols / 6) {
+            if (inside && flow_row && offset > -(int)cols / 6 && offset < (int)cols / 6) {
                 out[0] = red ? 200 : 40;
                 out[1] = red ? 40 : 60;
                 out[2] = red ? 40 : 200;
@@ -298,29 +269,24 @@ static void sim_picture(uint8_t *frame, unsigned cols, unsigned rows,
 
 /* A deterministic, cheap picture: a speckle-free gradient per frame; on a
  * screen device, its picture with the screen text laid over. */
-static mitilog_status sim_put_pixels(sim_writer *w, const sim_capture *c,
-                                     unsigned cols, unsigned rows,
-                                     unsigned samples, int screen)
+static mitilog_status sim_put_pixels(sim_writer *w, const sim_capture *c, unsigned cols,
+                                     unsigned rows, unsigned samples, int screen)
 {
     size_t frame = (size_t)cols * rows * samples;
     size_t size = frame * (size_t)c->frames;
     uint8_t *pixels = malloc(size);
     if (pixels == NULL)
-        return mitilog_error_set(w->error, MITILOG_ERROR_MEMORY,
-                                 "pixels: out of memory");
+        return mitilog_error_set(w->error, MITILOG_ERROR_MEMORY, "pixels: out of memory");
     for (size_t f = 0; f < (size_t)c->frames && screen; f++) {
-        sim_picture(pixels + f * frame, cols, rows, samples, f,
-                    samples == 3);
+        sim_picture(pixels + f * frame, cols, rows, samples, f, samples == 3);
         sim_overlay_apply(&w->overlay, pixels + f * frame, samples);
     }
     for (size_t f = 0; f < (size_t)c->frames && !screen; f++)
         for (size_t i = 0; i < frame; i++) {
             size_t pixel = i / samples, x = pixel % cols, y = pixel / cols;
-            pixels[f * frame + i] =
-                (uint8_t)((x * 3 + y * 5 + f * 7 + (i % samples) * 40) & 0xFF);
+            pixels[f * frame + i] = (uint8_t)((x * 3 + y * 5 + f * 7 + (i % samples) * 40) & 0xFF);
         }
-    mitilog_status status =
-        dcm_builder_put_pixels(w->builder, pixels, size, w->error);
+    mitilog_status status = dcm_builder_put_pixels(w->builder, pixels, size, w->error);
     free(pixels);
     return status;
 }
@@ -328,11 +294,9 @@ static mitilog_status sim_put_pixels(sim_writer *w, const sim_capture *c,
 /* Laterality of an exam's images: every exam of a paired structure
  * (shoulder, leg, kidney, testis) looks at one side, chosen from the
  * patient number; NULL when the body part is not paired. */
-static const char *sim_laterality(const sim_exam_type *type,
-                                  const sim_exam *exam)
+static const char *sim_laterality(const sim_exam_type *type, const sim_exam *exam)
 {
-    static const char *const paired[] = {"SHOULDER", "LEG", "KIDNEY",
-                                         "SCROTUM"};
+    static const char *const paired[] = {"SHOULDER", "LEG", "KIDNEY", "SCROTUM"};
     if (type->body_part == NULL)
         return NULL;
     for (size_t i = 0; i < sizeof paired / sizeof paired[0]; i++)
@@ -341,16 +305,14 @@ static const char *sim_laterality(const sim_exam_type *type,
     return NULL;
 }
 
-static void sim_format_index(int decimals, double value, char *buffer,
-                             size_t size)
+static void sim_format_index(int decimals, double value, char *buffer, size_t size)
 {
     snprintf(buffer, size, "%.*f", decimals == 2 ? 2 : 1, value);
 }
 
 /* Lays out the screen text of a capture into w->overlay and fills drawn
  * (every index "" when the device draws no text). */
-static mitilog_status sim_render_screen(sim_writer *w, const sim_exam *exam,
-                                        size_t position,
+static mitilog_status sim_render_screen(sim_writer *w, const sim_exam *exam, size_t position,
                                         const sim_device *device,
                                         sim_drawn_index drawn[SIM_INDEX_COUNT])
 {
@@ -367,8 +329,7 @@ static mitilog_status sim_render_screen(sim_writer *w, const sim_exam *exam,
     text.values[SIM_INDEX_TIS] = c->tis;
     text.values[SIM_INDEX_TIB] = c->tib;
     text.values[SIM_INDEX_TIC] = c->tic;
-    sim_date date = sim_date_from_days(w->start_days + exam->day_index
-                                       + c->second / 86400);
+    sim_date date = sim_date_from_days(w->start_days + exam->day_index + c->second / 86400);
     long s = c->second % 86400;
     text.year = date.year;
     text.month = date.month;
@@ -380,9 +341,7 @@ static mitilog_status sim_render_screen(sim_writer *w, const sim_exam *exam,
     /* the other text near the indices: its own stream, so that the
      * exposure model's draws stay as they were */
     uint64_t h = sim_mix(w->options->seed, 0x73637265656eULL,
-                         (uint64_t)(exam->day_index * 1000
-                                    + exam->exam_number),
-                         position, 0);
+                         (uint64_t)(exam->day_index * 1000 + exam->exam_number), position, 0);
     text.gain = 40 + (int)(h % 31);
     text.depth_cm = 4 + (int)((h >> 8) % 15);
     text.frame_rate = c->frames > 1 && c->frame_time_ms > 0.0
@@ -392,24 +351,20 @@ static mitilog_status sim_render_screen(sim_writer *w, const sim_exam *exam,
         memset(drawn, 0, sizeof(sim_drawn_index) * SIM_INDEX_COUNT);
         return MITILOG_OK;
     }
-    return sim_screen_render(w->screen, device, &text, &w->overlay, drawn,
-                             w->error);
+    return sim_screen_render(w->screen, device, &text, &w->overlay, drawn, w->error);
 }
 
 /* header: the capture whose indices the header carries (the capture
  * itself, or the one before on a stale header); NULL: none. */
-static mitilog_status sim_put_image(sim_writer *w, const sim_exam *exam,
-                                    size_t position, const char *study_uid,
-                                    const char *series_uid,
-                                    const char *sop_uid,
-                                    const sim_capture *header)
+static mitilog_status sim_put_image(sim_writer *w, const sim_exam *exam, size_t position,
+                                    const char *study_uid, const char *series_uid,
+                                    const char *sop_uid, const sim_capture *header)
 {
     const sim_exam_type *type = &sim_exam_types[exam->slot.exam_type];
     const sim_probe *probe = &sim_probes[type->probe];
     const sim_capture *c = &exam->captures[position];
     const sim_device *device =
-        sim_device_of(exam->slot.room, exam->day_index, w->options->days,
-                      w->options->screens);
+        sim_device_of(exam->slot.room, exam->day_index, w->options->days, w->options->screens);
     int screen = device->screen.rows != NULL;
     int cine = c->frames > 1;
     unsigned cols = cine ? CINE_COLUMNS : SINGLE_COLUMNS;
@@ -418,7 +373,7 @@ static mitilog_status sim_put_image(sim_writer *w, const sim_exam *exam,
         cols = cine ? w->options->matrix_columns / 2 : w->options->matrix_columns;
         rows = cine ? w->options->matrix_rows / 2 : w->options->matrix_rows;
     }
-    if (screen) {   /* a scanner keeps one matrix, single frame or cine */
+    if (screen) { /* a scanner keeps one matrix, single frame or cine */
         cols = device->columns;
         rows = device->rows;
     }
@@ -433,8 +388,8 @@ static mitilog_status sim_put_image(sim_writer *w, const sim_exam *exam,
     PUT_S(0x0008, 0x0018, sop_uid);
     PUT_S(0x0008, 0x0012, at.date);
     PUT_S(0x0008, 0x0013, at.time);
-    snprintf(text, sizeof text, "ORIGINAL\\PRIMARY\\%s\\%04X",
-             type->image_type_3, sim_mode_bitmap(c->mode));
+    snprintf(text, sizeof text, "ORIGINAL\\PRIMARY\\%s\\%04X", type->image_type_3,
+             sim_mode_bitmap(c->mode));
     PUT_S(0x0008, 0x0008, text);
     CHECK(sim_put_common(w, exam, study_uid, 1));
 
@@ -509,9 +464,8 @@ static mitilog_status sim_put_image(sim_writer *w, const sim_exam *exam,
 /* The acoustic output SR                                              */
 /* ------------------------------------------------------------------ */
 
-static dcm_sr_build_item sim_sr_num(const char *scheme, const char *code,
-                                    const char *meaning, const char *value,
-                                    const char *unit_code,
+static dcm_sr_build_item sim_sr_num(const char *scheme, const char *code, const char *meaning,
+                                    const char *value, const char *unit_code,
                                     const char *unit_meaning)
 {
     dcm_sr_build_item item;
@@ -529,14 +483,12 @@ static dcm_sr_build_item sim_sr_num(const char *scheme, const char *code,
     return item;
 }
 
-static mitilog_status sim_put_sr(sim_writer *w, const sim_exam *exam,
-                                 const char *study_uid, const char *series_uid,
-                                 const char *sop_uid, char uids[][72])
+static mitilog_status sim_put_sr(sim_writer *w, const sim_exam *exam, const char *study_uid,
+                                 const char *series_uid, const char *sop_uid, char uids[][72])
 {
     const sim_exam_type *type = &sim_exam_types[exam->slot.exam_type];
     const sim_device *device =
-        sim_device_of(exam->slot.room, exam->day_index, w->options->days,
-                      w->options->screens);
+        sim_device_of(exam->slot.room, exam->day_index, w->options->days, w->options->screens);
     double mi = 0, tis = 0, tib = 0, tic = 0;
     int any = 0;
     for (size_t i = 0; i < exam->capture_count; i++) {
@@ -568,41 +520,32 @@ static mitilog_status sim_put_sr(sim_writer *w, const sim_exam *exam,
     items[0].concept_meaning = "Acoustic Output Report";
     n = 1;
     if (any) {
-        items[n++] = sim_sr_num(SIM_SR_SCHEME, "AO-MI",
-                                "Maximum Mechanical Index", v_mi, "1",
-                                "no units");
-        items[n++] = sim_sr_num(SIM_SR_SCHEME, "AO-TIS",
-                                "Maximum Soft Tissue Thermal Index", v_tis,
+        items[n++] =
+            sim_sr_num(SIM_SR_SCHEME, "AO-MI", "Maximum Mechanical Index", v_mi, "1", "no units");
+        items[n++] = sim_sr_num(SIM_SR_SCHEME, "AO-TIS", "Maximum Soft Tissue Thermal Index", v_tis,
                                 "1", "no units");
         if (type->indices == SIM_INDICES_TIB)
-            items[n++] = sim_sr_num(SIM_SR_SCHEME, "AO-TIB",
-                                    "Maximum Bone Thermal Index", v_tib, "1",
-                                    "no units");
+            items[n++] = sim_sr_num(SIM_SR_SCHEME, "AO-TIB", "Maximum Bone Thermal Index", v_tib,
+                                    "1", "no units");
         if (type->indices == SIM_INDICES_TIC)
-            items[n++] = sim_sr_num(SIM_SR_SCHEME, "AO-TIC",
-                                    "Maximum Cranial Thermal Index", v_tic,
+            items[n++] = sim_sr_num(SIM_SR_SCHEME, "AO-TIC", "Maximum Cranial Thermal Index", v_tic,
                                     "1", "no units");
     }
-    items[n++] = sim_sr_num(SIM_SR_SCHEME, "AO-SCANTIME", "Total Scan Time",
-                            v_time, "s", "second");
+    items[n++] = sim_sr_num(SIM_SR_SCHEME, "AO-SCANTIME", "Total Scan Time", v_time, "s", "second");
     if (exam->gestation_days > 0) {
         /* Early pregnancy in days, later in weeks: both UCUM units occur. */
         if (exam->gestation_days < 14 * 7) {
             snprintf(v_ga, sizeof v_ga, "%d", exam->gestation_days);
-            items[n++] = sim_sr_num("LN", "18185-9", "Gestational age", v_ga,
-                                    "d", "day");
+            items[n++] = sim_sr_num("LN", "18185-9", "Gestational age", v_ga, "d", "day");
         } else {
             snprintf(v_ga, sizeof v_ga, "%.1f", exam->gestation_days / 7.0);
-            items[n++] = sim_sr_num("LN", "18185-9", "Gestational age", v_ga,
-                                    "wk", "week");
+            items[n++] = sim_sr_num("LN", "18185-9", "Gestational age", v_ga, "wk", "week");
         }
     }
     static const dcm_sr_coding_scheme schemes[] = {
-        {SIM_SR_SCHEME, "Mitilog simulator acoustic output codes (invented)",
-         "Mitilog simulator"},
+        {SIM_SR_SCHEME, "Mitilog simulator acoustic output codes (invented)", "Mitilog simulator"},
     };
-    CHECK(dcm_builder_put_sr_content(w->builder, items, n, schemes, 1,
-                                     w->error));
+    CHECK(dcm_builder_put_sr_content(w->builder, items, n, schemes, 1, w->error));
 
     sim_stamp at, series;
     sim_stamp_of(w, exam->day_index, last + 60, &at);
@@ -628,14 +571,13 @@ static mitilog_status sim_put_sr(sim_writer *w, const sim_exam *exam,
     {
         char image_series[72];
         sim_uid(w->options->seed, UID_SERIES,
-                (uint64_t)(exam->day_index * 1000 + exam->exam_number), 0,
-                image_series, sizeof image_series);
+                (uint64_t)(exam->day_index * 1000 + exam->exam_number), 0, image_series,
+                sizeof image_series);
         PUT_S(0x0020, 0x000E, image_series);
     }
     for (size_t i = 0; i < exam->capture_count; i++) {
         CHECK(dcm_builder_begin_item(w->builder, 0x0008, 0x1199, w->error));
-        PUT_S(0x0008, 0x1150, exam->captures[i].frames > 1 ? SOP_US_MULTIFRAME
-                                                          : SOP_US_IMAGE);
+        PUT_S(0x0008, 0x1150, exam->captures[i].frames > 1 ? SOP_US_MULTIFRAME : SOP_US_IMAGE);
         PUT_S(0x0008, 0x1155, uids[i]);
         CHECK(dcm_builder_end_item(w->builder, w->error));
     }
@@ -651,18 +593,15 @@ static mitilog_status sim_put_sr(sim_writer *w, const sim_exam *exam,
 static mitilog_status sim_mkdir(const char *path, mitilog_error *error)
 {
     if (mkdir(path, 0755) != 0 && errno != EEXIST)
-        return mitilog_error_set(error, MITILOG_ERROR_IO, "mkdir %s: %s",
-                                 path, strerror(errno));
+        return mitilog_error_set(error, MITILOG_ERROR_IO, "mkdir %s: %s", path, strerror(errno));
     return MITILOG_OK;
 }
 
-static mitilog_status sim_save(sim_writer *w, const char *relative,
-                               const char *transfer_syntax)
+static mitilog_status sim_save(sim_writer *w, const char *relative, const char *transfer_syntax)
 {
     char path[4096];
     snprintf(path, sizeof path, "%s/%s", w->options->out_directory, relative);
-    mitilog_status status =
-        dcm_builder_save(w->builder, path, transfer_syntax, w->error);
+    mitilog_status status = dcm_builder_save(w->builder, path, transfer_syntax, w->error);
     dcm_builder_free(w->builder);
     w->builder = NULL;
     if (status != MITILOG_OK)
@@ -674,16 +613,13 @@ static mitilog_status sim_save(sim_writer *w, const char *relative,
     return MITILOG_OK;
 }
 
-static mitilog_status sim_run_add(sim_run *run, const sim_study_record *rec,
-                                  mitilog_error *error)
+static mitilog_status sim_run_add(sim_run *run, const sim_study_record *rec, mitilog_error *error)
 {
     if (run->study_count == run->study_capacity) {
         size_t capacity = run->study_capacity ? run->study_capacity * 2 : 256;
-        sim_study_record *grown =
-            realloc(run->studies, capacity * sizeof *grown);
+        sim_study_record *grown = realloc(run->studies, capacity * sizeof *grown);
         if (grown == NULL)
-            return mitilog_error_set(error, MITILOG_ERROR_MEMORY,
-                                     "study list: out of memory");
+            return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "study list: out of memory");
         run->studies = grown;
         run->study_capacity = capacity;
     }
@@ -711,8 +647,8 @@ typedef struct sim_manifest_study {
  * device with header_mismatch, in exams with no other planted problem,
  * about one capture in eight whose indices differ from the one before
  * (beyond rounding) gets the stale header. */
-static int sim_stale_header(const sim_writer *w, const sim_exam *exam,
-                            const sim_device *device, size_t i)
+static int sim_stale_header(const sim_writer *w, const sim_exam *exam, const sim_device *device,
+                            size_t i)
 {
     if (!device->header_mismatch || exam->planted != 0 || i == 0)
         return 0;
@@ -720,36 +656,27 @@ static int sim_stale_header(const sim_writer *w, const sim_exam *exam,
     if (!c->has_indices || !before->has_indices)
         return 0;
     uint64_t h = sim_mix(w->options->seed, 0x7374616c65ULL,
-                         (uint64_t)(exam->day_index * 1000
-                                    + exam->exam_number),
-                         i, 0);
+                         (uint64_t)(exam->day_index * 1000 + exam->exam_number), i, 0);
     if (h % 8 != 0)
         return 0;
-    return fabs(c->mi - before->mi) >= 0.05
-           || fabs(c->tis - before->tis) >= 0.05
-           || fabs(c->tib - before->tib) >= 0.05
-           || fabs(c->tic - before->tic) >= 0.05;
+    return fabs(c->mi - before->mi) >= 0.05 || fabs(c->tis - before->tis) >= 0.05 ||
+           fabs(c->tib - before->tib) >= 0.05 || fabs(c->tic - before->tic) >= 0.05;
 }
 
 /* The manifest columns after planted: device, software, matrix, transfer
  * syntax, whether the header carries indices, then text and ink box
  * ("x y width height") of each index drawn. */
-static int sim_screen_columns(char *buffer, size_t size,
-                              const sim_device *device, unsigned cols,
-                              unsigned rows, const char *syntax,
-                              int header_indices,
+static int sim_screen_columns(char *buffer, size_t size, const sim_device *device, unsigned cols,
+                              unsigned rows, const char *syntax, int header_indices,
                               const sim_drawn_index drawn[SIM_INDEX_COUNT])
 {
-    int used = snprintf(buffer, size, "%s,%s,%ux%u,%s,%d", device->key,
-                        device->software_versions, cols, rows, syntax,
-                        header_indices);
-    for (int i = 0; i < SIM_INDEX_COUNT && used >= 0 && (size_t)used < size;
-         i++) {
+    int used = snprintf(buffer, size, "%s,%s,%ux%u,%s,%d", device->key, device->software_versions,
+                        cols, rows, syntax, header_indices);
+    for (int i = 0; i < SIM_INDEX_COUNT && used >= 0 && (size_t)used < size; i++) {
         const sim_drawn_index *d = &drawn[i];
         int more = d->text[0] != '\0'
-                       ? snprintf(buffer + used, size - (size_t)used,
-                                  ",%s,%d %d %d %d", d->text, d->x, d->y,
-                                  d->width, d->height)
+                       ? snprintf(buffer + used, size - (size_t)used, ",%s,%d %d %d %d", d->text,
+                                  d->x, d->y, d->width, d->height)
                        : snprintf(buffer + used, size - (size_t)used, ",,");
         if (more < 0)
             return -1;
@@ -758,37 +685,28 @@ static int sim_screen_columns(char *buffer, size_t size,
     return used;
 }
 
-static mitilog_status sim_write_exam(sim_writer *w, const sim_exam *exam,
-                                     sim_manifest_study *kept)
+static mitilog_status sim_write_exam(sim_writer *w, const sim_exam *exam, sim_manifest_study *kept)
 {
     const sim_exam_type *type = &sim_exam_types[exam->slot.exam_type];
     const sim_device *device =
-        sim_device_of(exam->slot.room, exam->day_index, w->options->days,
-                      w->options->screens);
-    const char *image_syntax = w->options->compress
-                                   ? device->compressed_syntax
-                                   : NULL;
+        sim_device_of(exam->slot.room, exam->day_index, w->options->days, w->options->screens);
+    const char *image_syntax = w->options->compress ? device->compressed_syntax : NULL;
     uint64_t key = (uint64_t)(exam->day_index * 1000 + exam->exam_number);
     char study_uid[72], series_uid[72], sr_series_uid[72], sr_uid[72];
     char uids[SIM_MAX_CAPTURES][72];
     sim_uid(w->options->seed, UID_STUDY, key, 0, study_uid, sizeof study_uid);
-    sim_uid(w->options->seed, UID_SERIES, key, 0, series_uid,
-            sizeof series_uid);
-    sim_uid(w->options->seed, UID_SR_SERIES, key, 0, sr_series_uid,
-            sizeof sr_series_uid);
+    sim_uid(w->options->seed, UID_SERIES, key, 0, series_uid, sizeof series_uid);
+    sim_uid(w->options->seed, UID_SR_SERIES, key, 0, sr_series_uid, sizeof sr_series_uid);
     sim_uid(w->options->seed, UID_SR_INSTANCE, key, 0, sr_uid, sizeof sr_uid);
 
     sim_stamp day;
     sim_stamp_of(w, exam->day_index, 0, &day);
     char day_dir[32], study_dir[64], path[4096], relative[128];
-    snprintf(day_dir, sizeof day_dir, "%.4s-%.2s-%.2s", day.date,
-             day.date + 4, day.date + 6);
-    snprintf(study_dir, sizeof study_dir, "%s/e%03d", day_dir,
-             exam->exam_number);
+    snprintf(day_dir, sizeof day_dir, "%.4s-%.2s-%.2s", day.date, day.date + 4, day.date + 6);
+    snprintf(study_dir, sizeof study_dir, "%s/e%03d", day_dir, exam->exam_number);
     snprintf(path, sizeof path, "%s/%s", w->options->out_directory, day_dir);
     CHECK(sim_mkdir(path, w->error));
-    snprintf(path, sizeof path, "%s/%s", w->options->out_directory,
-             study_dir);
+    snprintf(path, sizeof path, "%s/%s", w->options->out_directory, study_dir);
     CHECK(sim_mkdir(path, w->error));
 
     char file_tags[160], station[17];
@@ -802,8 +720,7 @@ static mitilog_status sim_write_exam(sim_writer *w, const sim_exam *exam,
         const sim_capture *header = NULL;
         int stale = 0;
         if (!is_sr) {
-            sim_uid(w->options->seed, UID_INSTANCE, key, i + 1, uids[i],
-                    sizeof uids[i]);
+            sim_uid(w->options->seed, UID_INSTANCE, key, i + 1, uids[i], sizeof uids[i]);
             CHECK(sim_render_screen(w, exam, i, device, drawn));
             stale = sim_stale_header(w, exam, device, i);
             if (device->header_indices)
@@ -812,8 +729,7 @@ static mitilog_status sim_write_exam(sim_writer *w, const sim_exam *exam,
         CHECK(dcm_builder_create(&w->builder, w->error));
         mitilog_status status =
             is_sr ? sim_put_sr(w, exam, study_uid, sr_series_uid, sr_uid, uids)
-                  : sim_put_image(w, exam, i, study_uid, series_uid, uids[i],
-                                  header);
+                  : sim_put_image(w, exam, i, study_uid, series_uid, uids[i], header);
         if (status != MITILOG_OK) {
             dcm_builder_free(w->builder);
             w->builder = NULL;
@@ -822,49 +738,43 @@ static mitilog_status sim_write_exam(sim_writer *w, const sim_exam *exam,
         const char *syntax = is_sr ? NULL : image_syntax;
         snprintf(relative, sizeof relative, "%s/%03zu.dcm", study_dir, i + 1);
         CHECK(sim_save(w, relative, syntax));
-        int written = snprintf(kept->lines[kept->count],
-                               sizeof kept->lines[0], "%s,%s,%s,%s,%s,%s",
-                               relative, sop, study_uid, type->key,
-                               type->preset,
-                               sim_site_name(sim_rooms[exam->slot.room].station_name,
-                                             w->options->site, station));
+        int written = snprintf(
+            kept->lines[kept->count], sizeof kept->lines[0], "%s,%s,%s,%s,%s,%s", relative, sop,
+            study_uid, type->key, type->preset,
+            sim_site_name(sim_rooms[exam->slot.room].station_name, w->options->site, station));
         int screen_columns = 0;
         if (is_sr)
-            screen_columns = snprintf(kept->screens[kept->count],
-                                      sizeof kept->screens[0],
-                                      "%s,%s,,%s,%d,,,,,,,,", device->key,
-                                      device->software_versions,
-                                      SYNTAX_EXPLICIT_LITTLE,
-                                      device->header_indices);
+            screen_columns =
+                snprintf(kept->screens[kept->count], sizeof kept->screens[0],
+                         "%s,%s,,%s,%d,,,,,,,,", device->key, device->software_versions,
+                         SYNTAX_EXPLICIT_LITTLE, device->header_indices);
         else
-            screen_columns = sim_screen_columns(
-                kept->screens[kept->count], sizeof kept->screens[0], device,
-                device->screen.rows != NULL ? device->columns
-                : exam->captures[i].frames > 1 ? CINE_COLUMNS : SINGLE_COLUMNS,
-                device->screen.rows != NULL ? device->rows
-                : exam->captures[i].frames > 1 ? CINE_ROWS : SINGLE_ROWS,
-                syntax != NULL ? syntax : SYNTAX_EXPLICIT_LITTLE,
-                header != NULL && header->has_indices, drawn);
-        if (written < 0 || (size_t)written >= sizeof kept->lines[0]
-            || screen_columns < 0
-            || (size_t)screen_columns >= sizeof kept->screens[0])
+            screen_columns =
+                sim_screen_columns(kept->screens[kept->count], sizeof kept->screens[0], device,
+                                   device->screen.rows != NULL    ? device->columns
+                                   : exam->captures[i].frames > 1 ? CINE_COLUMNS
+                                                                  : SINGLE_COLUMNS,
+                                   device->screen.rows != NULL    ? device->rows
+                                   : exam->captures[i].frames > 1 ? CINE_ROWS
+                                                                  : SINGLE_ROWS,
+                                   syntax != NULL ? syntax : SYNTAX_EXPLICIT_LITTLE,
+                                   header != NULL && header->has_indices, drawn);
+        if (written < 0 || (size_t)written >= sizeof kept->lines[0] || screen_columns < 0 ||
+            (size_t)screen_columns >= sizeof kept->screens[0])
             return mitilog_error_set(w->error, MITILOG_ERROR_INVALID,
-                                     "manifest line too long for %s",
-                                     relative);
-        sim_planted_tags((exam->planted & ~(unsigned)SIM_PLANTED_RESEND)
-                             | (stale ? (unsigned)SIM_PLANTED_HEADER_MISMATCH
-                                      : 0u),
+                                     "manifest line too long for %s", relative);
+        sim_planted_tags((exam->planted & ~(unsigned)SIM_PLANTED_RESEND) |
+                             (stale ? (unsigned)SIM_PLANTED_HEADER_MISMATCH : 0u),
                          file_tags, sizeof file_tags);
-        fprintf(w->manifest, "%s,%s,%s\n", kept->lines[kept->count],
-                file_tags, kept->screens[kept->count]);
+        fprintf(w->manifest, "%s,%s,%s\n", kept->lines[kept->count], file_tags,
+                kept->screens[kept->count]);
         kept->count++;
     }
 
     sim_study_record rec;
     memset(&rec, 0, sizeof rec);
     rec.send_second =
-        ((long)exam->day_index * 86400
-         + exam->captures[exam->capture_count - 1].second + 60);
+        ((long)exam->day_index * 86400 + exam->captures[exam->capture_count - 1].second + 60);
     rec.room = exam->slot.room;
     snprintf(rec.directory, sizeof rec.directory, "%s", study_dir);
     rec.file_count = files;
@@ -879,16 +789,14 @@ static mitilog_status sim_flush_resend(sim_writer *w, sim_manifest_study *kept,
                                        sim_study_record *pending)
 {
     for (size_t i = 0; i < kept->count; i++)
-        fprintf(w->manifest, "%s,resend,%s\n", kept->lines[i],
-                kept->screens[i]);
+        fprintf(w->manifest, "%s,resend,%s\n", kept->lines[i], kept->screens[i]);
     pending->is_resend = 1;
     mitilog_status status = sim_run_add(w->run, pending, w->error);
     pending->file_count = 0;
     return status;
 }
 
-mitilog_status sim_write_all(const sim_options *options, sim_run *run,
-                             mitilog_error *error)
+mitilog_status sim_write_all(const sim_options *options, sim_run *run, mitilog_error *error)
 {
     sim_writer w;
     memset(&w, 0, sizeof w);
@@ -905,8 +813,7 @@ mitilog_status sim_write_all(const sim_options *options, sim_run *run,
     snprintf(path, sizeof path, "%s/manifest.csv", options->out_directory);
     w.manifest = fopen(path, "w");
     if (w.manifest == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_IO, "open %s: %s", path,
-                                 strerror(errno));
+        return mitilog_error_set(error, MITILOG_ERROR_IO, "open %s: %s", path, strerror(errno));
     fprintf(w.manifest, "path,sop_instance_uid,study_instance_uid,exam_type,"
                         "preset,room,planted,device,software_versions,"
                         "matrix,transfer_syntax,header_indices,mi_text,"
@@ -927,8 +834,7 @@ mitilog_status sim_write_all(const sim_options *options, sim_run *run,
     sim_study_record pending;
     memset(&pending, 0, sizeof pending);
     if (day == NULL || exam == NULL || current == NULL || kept == NULL) {
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY,
-                                   "simulate: out of memory");
+        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "simulate: out of memory");
         goto cleanup;
     }
     for (int d = 0; d < options->days && status == MITILOG_OK; d++) {
@@ -937,16 +843,14 @@ mitilog_status sim_write_all(const sim_options *options, sim_run *run,
         sim_planted_mark(day, options->days);
         for (size_t i = 0; i < day->count; i++) {
             day->slots[i].decimals =
-                sim_device_of(day->slots[i].room, d, options->days,
-                              options->screens)
+                sim_device_of(day->slots[i].room, d, options->days, options->screens)
                     ->screen.decimals;
             sim_exam_build(d, (int)i + 1, &day->slots[i], exam);
             status = sim_write_exam(&w, exam, current);
             if (status != MITILOG_OK)
                 break;
             sim_study_record *last = &run->studies[run->study_count - 1];
-            if (pending.file_count > 0
-                && last->send_second >= pending.send_second) {
+            if (pending.file_count > 0 && last->send_second >= pending.send_second) {
                 status = sim_flush_resend(&w, kept, &pending);
                 if (status != MITILOG_OK)
                     break;

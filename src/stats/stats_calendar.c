@@ -43,10 +43,7 @@ static int iso_weekday(long days)
     return (int)((r + 3) % 7) + 1;
 }
 
-static int is_leap(long year)
-{
-    return (year % 4 == 0 && year % 100 != 0) || year % 400 == 0;
-}
+static int is_leap(long year) { return (year % 4 == 0 && year % 100 != 0) || year % 400 == 0; }
 
 mitilog_status stats_day_number(const char *date, long *days)
 {

@@ -16,7 +16,6 @@
 extern "C" {
 #endif
 
-
 /* Days since 1970-01-01 of a valid proleptic Gregorian date; -1 with
  * MITILOG_ERROR_INVALID for anything else (format, month, day of month). */
 mitilog_status stats_day_number(const char *date, long *days);

@@ -34,9 +34,8 @@ static int compare_series(const void *left, const void *right)
 }
 
 mitilog_status stats_drift(const exam_row *exams, size_t count, long first_monday,
-                           size_t week_count, size_t baseline_weeks,
-                           size_t minimum_baseline, double z_limit,
-                           stats_drift_result *result, mitilog_error *error)
+                           size_t week_count, size_t baseline_weeks, size_t minimum_baseline,
+                           double z_limit, stats_drift_result *result, mitilog_error *error)
 {
     memset(result, 0, sizeof *result);
     result->week_count = week_count;
@@ -57,8 +56,8 @@ mitilog_status stats_drift(const exam_row *exams, size_t count, long first_monda
     double *scratch = malloc((count + 1) * sizeof *scratch);
     mitilog_status status = MITILOG_ERROR_MEMORY;
     series_groups.key_of = malloc((count + 1) * sizeof *series_groups.key_of);
-    if (preset_of == NULL || room_of == NULL || days == NULL || values == NULL ||
-        scratch == NULL || series_groups.key_of == NULL)
+    if (preset_of == NULL || room_of == NULL || days == NULL || values == NULL || scratch == NULL ||
+        series_groups.key_of == NULL)
         goto done;
     result->series = calloc(count + 1, sizeof *result->series);
     if (result->series == NULL)

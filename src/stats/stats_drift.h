@@ -50,11 +50,11 @@ typedef struct stats_drift_point {
 } stats_drift_point;
 
 typedef struct stats_drift_series {
-    const char *preset, *room;  /* borrowed */
-    const char *exam_type;      /* of the series' first exam */
-    stats_drift_point *points;  /* week_count points, in week order */
+    const char *preset, *room; /* borrowed */
+    const char *exam_type;     /* of the series' first exam */
+    stats_drift_point *points; /* week_count points, in week order */
     size_t flagged_count;
-    double max_abs_z;           /* largest |z| of a scored week with at
+    double max_abs_z; /* largest |z| of a scored week with at
                                    least STATS_DRIFT_WEEK_MINIMUM exams, 0
                                    when none: a drop counts here, shown */
 } stats_drift_series;
@@ -69,9 +69,8 @@ typedef struct stats_drift_result {
 /* exams may span the weeks and their baselines; first_monday is the day
  * number of the first week shown. */
 mitilog_status stats_drift(const exam_row *exams, size_t count, long first_monday,
-                           size_t week_count, size_t baseline_weeks,
-                           size_t minimum_baseline, double z_limit,
-                           stats_drift_result *result, mitilog_error *error);
+                           size_t week_count, size_t baseline_weeks, size_t minimum_baseline,
+                           double z_limit, stats_drift_result *result, mitilog_error *error);
 void stats_drift_result_free(stats_drift_result *result);
 
 #ifdef __cplusplus

@@ -6,9 +6,7 @@
 
 #include <string.h>
 
-
-static const char *const dimension_names[] = {"exam_type", "room", "preset", "shift",
-                                               "transducer"};
+static const char *const dimension_names[] = {"exam_type", "room", "preset", "shift", "transducer"};
 
 const char *stats_dimension_name(stats_dimension dimension)
 {

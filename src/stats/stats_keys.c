@@ -94,24 +94,23 @@ mitilog_status stats_key_groups_fill(stats_key_groups *groups, size_t count, siz
     return MITILOG_OK;
 }
 
-mitilog_status stats_group_by_key(const exam_row *exams, size_t count,
-                                  stats_dimension dimension, stats_key_groups *groups)
+mitilog_status stats_group_by_key(const exam_row *exams, size_t count, stats_dimension dimension,
+                                  stats_key_groups *groups)
 {
     memset(groups, 0, sizeof *groups);
     groups->key_of = malloc((count + 1) * sizeof *groups->key_of);
     if (groups->key_of == NULL)
         return MITILOG_ERROR_MEMORY;
     for (size_t i = 0; i < count; i++) {
-        if (stats_key_add(&groups->table, stats_exam_key(&exams[i], dimension), &groups->key_of[i]) !=
-            MITILOG_OK)
+        if (stats_key_add(&groups->table, stats_exam_key(&exams[i], dimension),
+                          &groups->key_of[i]) != MITILOG_OK)
             return MITILOG_ERROR_MEMORY;
     }
     return stats_key_groups_fill(groups, count, groups->table.count);
 }
 
 mitilog_status stats_group_by_known_key(const exam_row *exams, size_t count,
-                                        stats_dimension dimension,
-                                        const stats_key_table *known,
+                                        stats_dimension dimension, const stats_key_table *known,
                                         stats_key_groups *groups)
 {
     memset(groups, 0, sizeof *groups);

@@ -22,10 +22,10 @@
 
 /* The distinct keys, each with an index in first-seen order. */
 typedef struct stats_key_table {
-    const char **keys;          /* by index, first-seen order; borrowed */
+    const char **keys; /* by index, first-seen order; borrowed */
     size_t count, capacity;
-    hash_table indices;         /* key text to index */
-    size_t null_index;          /* index + 1 of the NULL key; 0 = none yet */
+    hash_table indices; /* key text to index */
+    size_t null_index;  /* index + 1 of the NULL key; 0 = none yet */
 } stats_key_table;
 
 /* Exams grouped by a key: table.keys in first-seen order; the members of
@@ -54,13 +54,12 @@ void stats_key_groups_free(stats_key_groups *groups);
  * within; SIZE_MAX: left out); keys: how many key indices there are. */
 mitilog_status stats_key_groups_fill(stats_key_groups *groups, size_t count, size_t keys);
 /* The exams grouped by their value of a dimension. */
-mitilog_status stats_group_by_key(const exam_row *exams, size_t count,
-                                  stats_dimension dimension, stats_key_groups *groups);
+mitilog_status stats_group_by_key(const exam_row *exams, size_t count, stats_dimension dimension,
+                                  stats_key_groups *groups);
 /* The exams whose key the table of another grouping holds, grouped by its
  * keys (exams with other keys are left out). */
 mitilog_status stats_group_by_known_key(const exam_row *exams, size_t count,
-                                        stats_dimension dimension,
-                                        const stats_key_table *known,
+                                        stats_dimension dimension, const stats_key_table *known,
                                         stats_key_groups *groups);
 /* The median of count values (sorted in place); NAN when count is 0. */
 double stats_median_of(double *values, size_t count);

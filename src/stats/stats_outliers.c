@@ -65,14 +65,13 @@ static int compare_tallies(const void *left, const void *right)
  * Each member is sorted with its keys beside it, so that the comparison
  * needs no other data (qsort passes none; the HTTP threads sort at once). */
 typedef struct member_key {
-    int rank;                   /* 0: outlier or with findings; 1: other */
-    double robust_z;            /* -INFINITY when undefined */
-    double value;               /* -INFINITY when the exam has none */
-    size_t index;               /* into the week's exams */
+    int rank;        /* 0: outlier or with findings; 1: other */
+    double robust_z; /* -INFINITY when undefined */
+    double value;    /* -INFINITY when the exam has none */
+    size_t index;    /* into the week's exams */
 } member_key;
 
-static member_key member_key_of(const exam_row *exams, const stats_exam_flag *flags,
-                                size_t index)
+static member_key member_key_of(const exam_row *exams, const stats_exam_flag *flags, size_t index)
 {
     const stats_exam_flag *flag = &flags[index];
     member_key key;
@@ -121,9 +120,8 @@ static int compare_groups(const void *left, const void *right)
 
 mitilog_status stats_week_outliers(const exam_row *week, size_t week_count,
                                    const exam_row *baseline, size_t baseline_count,
-                                   const stats_week_settings *settings,
-                                   stats_dimension by, stats_week_result *result,
-                                   mitilog_error *error)
+                                   const stats_week_settings *settings, stats_dimension by,
+                                   stats_week_result *result, mitilog_error *error)
 {
     memset(result, 0, sizeof *result);
     stats_week_settings defaults = stats_week_default_settings();
@@ -269,9 +267,9 @@ mitilog_status stats_week_outliers(const exam_row *week, size_t week_count,
                 values[mi_n++] = exam->max_mi;
         }
         group->median_mi = stats_median_of(values, mi_n);
-        group->outlier_rate =
-            group->valued_count > 0 ? (double)group->outlier_count / (double)group->valued_count
-                                    : 0.0;
+        group->outlier_rate = group->valued_count > 0
+                                  ? (double)group->outlier_count / (double)group->valued_count
+                                  : 0.0;
         /* The department's median over the exam types this group has. */
         size_t d = 0;
         for (size_t i = 0; i < week_count; i++) {

@@ -42,8 +42,8 @@ static int compare_rows(const void *left, const void *right)
 
 /* One row over the exams listed in members (count of them), or over all
  * exams in input order when members is NULL. */
-static void period_row(const exam_row *exams, const size_t *members, size_t count,
-                       const char *key, double *values, stats_period_row *row)
+static void period_row(const exam_row *exams, const size_t *members, size_t count, const char *key,
+                       double *values, stats_period_row *row)
 {
 #define MEMBER(at) (&exams[members != NULL ? members[at] : (at)])
     memset(row, 0, sizeof *row);
@@ -67,8 +67,7 @@ static void period_row(const exam_row *exams, const size_t *members, size_t coun
     row->share_with_findings =
         row->exam_count > 0 ? (double)row->with_findings_count / (double)row->exam_count : 0.0;
     row->share_informational_only =
-        row->exam_count > 0 ? (double)row->informational_only_count / (double)row->exam_count
-                            : 0.0;
+        row->exam_count > 0 ? (double)row->informational_only_count / (double)row->exam_count : 0.0;
     distribution_of(values, n, &row->governing);
     n = 0;
     for (size_t at = 0; at < count; at++) {
@@ -107,9 +106,8 @@ static void period_row(const exam_row *exams, const size_t *members, size_t coun
 #undef MEMBER
 }
 
-mitilog_status stats_period_table(const exam_row *exams, size_t count,
-                                  stats_dimension by, stats_period_result *result,
-                                  mitilog_error *error)
+mitilog_status stats_period_table(const exam_row *exams, size_t count, stats_dimension by,
+                                  stats_period_result *result, mitilog_error *error)
 {
     memset(result, 0, sizeof *result);
     stats_key_groups keys;

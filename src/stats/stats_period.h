@@ -25,21 +25,21 @@ extern "C" {
 
 typedef struct stats_distribution {
     size_t count;
-    double minimum, p05, p25, median, p75, p95, maximum;   /* count > 0 */
+    double minimum, p05, p25, median, p75, p95, maximum; /* count > 0 */
 } stats_distribution;
 
 typedef struct stats_threshold_time {
     double threshold;
-    size_t exam_count;          /* exams with any estimated time at or above */
-    double median_seconds;      /* over all exams with a governing value */
+    size_t exam_count;     /* exams with any estimated time at or above */
+    double median_seconds; /* over all exams with a governing value */
     double p95_seconds;
     double total_seconds;
 } stats_threshold_time;
 
 typedef struct stats_period_row {
-    const char *key;            /* borrowed; NULL: not recorded */
+    const char *key; /* borrowed; NULL: not recorded */
     size_t exam_count;
-    size_t with_findings_count;  /* a violation, a warning or an advisory
+    size_t with_findings_count; /* a violation, a warning or an advisory
                                     above its own limit */
     double share_with_findings;
     size_t informational_only_count; /* only informational advisories */
@@ -52,14 +52,13 @@ typedef struct stats_period_row {
 } stats_period_row;
 
 typedef struct stats_period_result {
-    stats_period_row *rows;     /* by key (NULL last) */
+    stats_period_row *rows; /* by key (NULL last) */
     size_t row_count;
-    stats_period_row total;     /* all exams; key NULL */
+    stats_period_row total; /* all exams; key NULL */
 } stats_period_result;
 
-mitilog_status stats_period_table(const exam_row *exams, size_t count,
-                                  stats_dimension by, stats_period_result *result,
-                                  mitilog_error *error);
+mitilog_status stats_period_table(const exam_row *exams, size_t count, stats_dimension by,
+                                  stats_period_result *result, mitilog_error *error);
 void stats_period_result_free(stats_period_result *result);
 
 #ifdef __cplusplus

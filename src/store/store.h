@@ -31,8 +31,7 @@ typedef struct store store;
 /* Opens (creating if needed) the database at path, enables WAL, applies
  * the migrations in sql/migrations in order and records the schema version
  * in PRAGMA user_version. busy_timeout_ms bounds waits on a locked file. */
-mitilog_status store_open(const char *path, int busy_timeout_ms, store **out,
-                          mitilog_error *error);
+mitilog_status store_open(const char *path, int busy_timeout_ms, store **out, mitilog_error *error);
 /* Finishes pending writes, checkpoints the WAL and closes. NULL is fine. */
 void store_close(store *store);
 
@@ -53,7 +52,7 @@ int store_schema_version(store *store);
 
 typedef enum store_put_outcome {
     STORE_PUT_INSERTED = 0,
-    STORE_PUT_REPLACED        /* same SOP Instance UID was stored before */
+    STORE_PUT_REPLACED /* same SOP Instance UID was stored before */
 } store_put_outcome;
 
 /* Bytes borrowed for the duration of a call. */
@@ -68,31 +67,27 @@ typedef struct store_bytes {
  * replaces its row and its copy (a re-send without a header removes the
  * older copy). MITILOG_ERROR_DATABASE when the database cannot be written
  * (locked, read-only, full): nothing of the record is kept. */
-mitilog_status store_put_instance(store *store, const ext_record *record,
-                                  const store_bytes *header,
-                                  store_put_outcome *outcome,
-                                  mitilog_error *error);
+mitilog_status store_put_instance(store *store, const ext_record *record, const store_bytes *header,
+                                  store_put_outcome *outcome, mitilog_error *error);
 
 /* The header copy of an instance, malloc'd into *bytes (the caller frees
  * it); *bytes stays NULL when the instance or its copy is not stored. */
-mitilog_status store_get_header(store *store, const char *sop_instance_uid,
-                                unsigned char **bytes, size_t *size,
-                                mitilog_error *error);
+mitilog_status store_get_header(store *store, const char *sop_instance_uid, unsigned char **bytes,
+                                size_t *size, mitilog_error *error);
 
 /* A rejected object: the received bytes were moved to quarantine_path. */
 typedef struct store_rejection {
-    const char *received_at;        /* ISO 8601 UTC */
-    const char *calling_ae_title;   /* "" for imports */
-    const char *peer_address;       /* "" for imports */
-    const char *sop_class_uid;      /* as announced, may be "" */
-    const char *sop_instance_uid;   /* as announced, may be "" */
-    const char *source_path;        /* imported path, or "" */
-    const char *quarantine_path;    /* "" when the bytes were not kept */
+    const char *received_at;      /* ISO 8601 UTC */
+    const char *calling_ae_title; /* "" for imports */
+    const char *peer_address;     /* "" for imports */
+    const char *sop_class_uid;    /* as announced, may be "" */
+    const char *sop_instance_uid; /* as announced, may be "" */
+    const char *source_path;      /* imported path, or "" */
+    const char *quarantine_path;  /* "" when the bytes were not kept */
     const char *reason;
 } store_rejection;
 
-mitilog_status store_put_rejection(store *store,
-                                   const store_rejection *rejection,
+mitilog_status store_put_rejection(store *store, const store_rejection *rejection,
                                    mitilog_error *error);
 
 /* An exam to write: the record built by ext_exam_build() from the
@@ -106,43 +101,38 @@ typedef struct store_exam {
 
 /* Writes (replaces) the study's exam row, timeline and per-mode maxima in
  * one transaction; returns after the commit. */
-mitilog_status store_put_exam(store *store, const store_exam *exam,
-                              mitilog_error *error);
+mitilog_status store_put_exam(store *store, const store_exam *exam, mitilog_error *error);
 
 /* The study's instances as plain structs for ext_exam_build(), in
  * acquisition order; *instances is malloc'ed (NULL with count 0 when the
  * study has none). Free with store_study_free(). */
 mitilog_status store_load_study(store *store, const char *study_instance_uid,
-                                ext_exam_instance **instances, size_t *count,
-                                mitilog_error *error);
+                                ext_exam_instance **instances, size_t *count, mitilog_error *error);
 void store_study_free(ext_exam_instance *instances, size_t count);
 
 /* JSON object of one exam with its instances and timeline;
  * MITILOG_ERROR_NOT_FOUND when no instance has that Study Instance UID. */
-mitilog_status store_study_json(store *store, const char *study_instance_uid,
-                                char **json, mitilog_error *error);
+mitilog_status store_study_json(store *store, const char *study_instance_uid, char **json,
+                                mitilog_error *error);
 
 /* Read side. Filters: NULL or "" means "no filter". */
 typedef struct store_instance_filter {
     const char *study_instance_uid;
-    const char *since;              /* received_at >= since (ISO 8601) */
-    long limit;                     /* <= 0: default 1000 */
+    const char *since; /* received_at >= since (ISO 8601) */
+    long limit;        /* <= 0: default 1000 */
 } store_instance_filter;
 
 /* JSON array of instance objects (keys as documented in docs/api.md). */
-mitilog_status store_instances_json(store *store,
-                                    const store_instance_filter *filter,
-                                    char **json, mitilog_error *error);
+mitilog_status store_instances_json(store *store, const store_instance_filter *filter, char **json,
+                                    mitilog_error *error);
 
 /* JSON array, one object per study with acquisitions between from and to
  * (dates "YYYY-MM-DD", inclusive; NULL = open). */
-mitilog_status store_studies_json(store *store, const char *from,
-                                  const char *to, char **json,
+mitilog_status store_studies_json(store *store, const char *from, const char *to, char **json,
                                   mitilog_error *error);
 
 /* JSON object: database status, schema version and counts. */
-mitilog_status store_health_json(store *store, char **json,
-                                 mitilog_error *error);
+mitilog_status store_health_json(store *store, char **json, mitilog_error *error);
 
 /* ---- ALARA policy and findings (store_findings.c, store_findings_read.c).
  * The store knows no rules: callers (src/ingest, src/cli) pass a policy
@@ -150,14 +140,14 @@ mitilog_status store_health_json(store *store, char **json,
  * string is borrowed for the call. */
 
 typedef struct store_policy {
-    const char *version;                /* SHA-256 hex of the normalised text */
+    const char *version; /* SHA-256 hex of the normalised text */
     const char *name;
     const char *normalised_text;
     double closed_after_idle_minutes, gap_cap_seconds;
     const exam_rule_info *rules;
     size_t rule_count;
-    const exam_limits *limits;          /* per group and age group, for the */
-    size_t limit_count;                 /* dashboard (/api/v1/policy) */
+    const exam_limits *limits; /* per group and age group, for the */
+    size_t limit_count;        /* dashboard (/api/v1/policy) */
 } store_policy;
 
 /* Writes (or refreshes) the policy row with its rules described as JSON
@@ -167,7 +157,6 @@ mitilog_status store_register_policy(store *store, const store_policy *policy,
                                      mitilog_error *error);
 /* Copies the active version ("" when none) into out. */
 void store_active_policy_version(store *store, char out[65]);
-
 
 /* One evaluation: of an exam (study_instance_uid set) or of a
  * device-level rule over a period (study_instance_uid NULL, rule_id and
@@ -184,14 +173,14 @@ typedef struct store_evaluation {
     const store_exam *exam;
     const char *policy_version, *policy_name, *normalised_text;
     const char *study_instance_uid;
-    const char *rule_id, *period;       /* device-level */
+    const char *rule_id, *period; /* device-level */
     /* exam context */
     const char *exam_type, *room, *preset, *shift, *transducer, *age_group;
     const char *last_received_at;
     int closed;
     const exam_finding *findings;
     size_t finding_count;
-    const exam_measurements *measurements;  /* of an exam; NULL: device-level */
+    const exam_measurements *measurements; /* of an exam; NULL: device-level */
 } store_evaluation;
 
 typedef struct store_evaluation_counts {
@@ -200,19 +189,17 @@ typedef struct store_evaluation_counts {
 
 /* counts (may be NULL) is added to. */
 mitilog_status store_put_evaluation(store *store, const store_evaluation *evaluation,
-                                    store_evaluation_counts *counts,
-                                    mitilog_error *error);
+                                    store_evaluation_counts *counts, mitilog_error *error);
 
 /* A study's context for an evaluation (malloc'ed strings, NULL when
  * absent; store_study_context_free). found = 0: no instance. */
 typedef struct store_study_context {
     int found;
     char *room, *preset, *shift, *transducer, *age_group, *last_received_at;
-    double idle_seconds;                /* now - last receipt */
+    double idle_seconds; /* now - last receipt */
 } store_study_context;
 mitilog_status store_load_study_context(store *store, const char *study_instance_uid,
-                                        double now_unix_seconds,
-                                        store_study_context *context,
+                                        double now_unix_seconds, store_study_context *context,
                                         mitilog_error *error);
 void store_study_context_free(store_study_context *context);
 
@@ -241,13 +228,13 @@ void store_day_instances_free(exam_device_instance *instances, size_t count);
 
 /* GET /api/v1/findings. Filters: NULL or "" = none. */
 typedef struct store_finding_filter {
-    const char *from, *to;              /* dates YYYY-MM-DD */
+    const char *from, *to; /* dates YYYY-MM-DD */
     const char *severity, *rule, *room, *preset, *shift;
     int include_superseded;
-    long limit;                         /* <= 0: default 1000 */
+    long limit; /* <= 0: default 1000 */
 } store_finding_filter;
-mitilog_status store_findings_json(store *store, const store_finding_filter *filter,
-                                   char **json, mitilog_error *error);
+mitilog_status store_findings_json(store *store, const store_finding_filter *filter, char **json,
+                                   mitilog_error *error);
 /* GET /api/v1/policy: the active policy; MITILOG_ERROR_NOT_FOUND if none. */
 mitilog_status store_policy_json(store *store, char **json, mitilog_error *error);
 
@@ -259,20 +246,18 @@ mitilog_status store_policy_json(store *store, char **json, mitilog_error *error
  * "preset_to_change" or "reopened") and a comment, by reviewer in role.
  * Strings are borrowed for the call. The history is append-only. */
 typedef struct store_review {
-    const char *study_instance_uid;     /* NULL with a finding: its own */
-    long long finding_id;               /* 0: the whole exam            */
+    const char *study_instance_uid; /* NULL with a finding: its own */
+    long long finding_id;           /* 0: the whole exam            */
     const char *outcome, *comment, *reviewer, *role;
 } store_review;
 /* Appends the review in its own commit; MITILOG_ERROR_NOT_FOUND when the
  * finding or exam is unknown (or the finding is of another study). */
-mitilog_status store_put_review(store *store, const store_review *review,
-                                mitilog_error *error);
+mitilog_status store_put_review(store *store, const store_review *review, mitilog_error *error);
 /* The review history, oldest first: JSON array, or CSV text with a
  * header line when csv is set. study, from, to (YYYY-MM-DD, on the day
  * recorded): NULL = any. *out is malloc'ed, freed by the caller. */
-mitilog_status store_reviews_text(store *store, const char *study, const char *from,
-                                  const char *to, int csv, char **out,
-                                  mitilog_error *error);
+mitilog_status store_reviews_text(store *store, const char *study, const char *from, const char *to,
+                                  int csv, char **out, mitilog_error *error);
 /* GET /api/v1/worklist: the week starting on monday (YYYY-MM-DD);
  * is_default says it is the default week (report_default_week, the one
  * rule of src/report/report.h). queries/reviews/review_worklist.sql says
@@ -289,12 +274,10 @@ typedef struct store_span {
     char first_day[11], last_day[11];
     long weeks, exams;
 } store_span;
-mitilog_status store_load_baseline_span(store *store, const char *from_day,
-                                        const char *before_day, store_span *span,
-                                        mitilog_error *error);
+mitilog_status store_load_baseline_span(store *store, const char *from_day, const char *before_day,
+                                        store_span *span, mitilog_error *error);
 mitilog_status store_operators_json(store *store, const char *from, const char *to, char **json,
                                     mitilog_error *error);
-
 
 /* ---- Statistics reads (store_read_stats.c) ---- */
 
@@ -307,8 +290,8 @@ mitilog_status store_operators_json(store *store, const char *from, const char *
  * others are left NULL): copying only what a report uses keeps a long
  * period cheap. */
 enum {
-    STORE_EXAM_IDENTITY = 1 << 0,   /* day, first_acquired_at */
-    STORE_EXAM_DETAIL = 1 << 1,     /* exam_type_label, governing_index, study_description */
+    STORE_EXAM_IDENTITY = 1 << 0, /* day, first_acquired_at */
+    STORE_EXAM_DETAIL = 1 << 1,   /* exam_type_label, governing_index, study_description */
     STORE_EXAM_ROOM = 1 << 2,
     STORE_EXAM_PRESET = 1 << 3,
     STORE_EXAM_SHIFT = 1 << 4,
@@ -331,16 +314,14 @@ typedef struct store_exam_list {
 
 /* Exams whose day is between from_day and to_day (YYYY-MM-DD, inclusive),
  * ordered by Study Instance UID; columns: STORE_EXAM_* bits. */
-mitilog_status store_load_exam_rows(store *store, const char *from_day,
-                                    const char *to_day, unsigned columns,
-                                    store_exam_list *list, mitilog_error *error);
+mitilog_status store_load_exam_rows(store *store, const char *from_day, const char *to_day,
+                                    unsigned columns, store_exam_list *list, mitilog_error *error);
 /* Only exam_type and the governing maximum (has_governing,
  * max_governing) of the exams whose day is at or after from_day and
  * before before_day, in no particular order (sql/queries/reports/
  * stats_exam_governing.sql): a baseline. */
-mitilog_status store_load_exam_governing(store *store, const char *from_day,
-                                         const char *before_day, store_exam_list *list,
-                                         mitilog_error *error);
+mitilog_status store_load_exam_governing(store *store, const char *from_day, const char *before_day,
+                                         store_exam_list *list, mitilog_error *error);
 void store_exam_list_free(store_exam_list *list);
 
 /* Findings (not superseded) per exam and rule for the same period,
@@ -354,9 +335,8 @@ typedef struct store_finding_counts {
     size_t count;
 } store_finding_counts;
 
-mitilog_status store_load_finding_counts(store *store, const char *from_day,
-                                         const char *to_day, store_finding_counts *counts,
-                                         mitilog_error *error);
+mitilog_status store_load_finding_counts(store *store, const char *from_day, const char *to_day,
+                                         store_finding_counts *counts, mitilog_error *error);
 void store_finding_counts_free(store_finding_counts *counts);
 
 /* What a report states: the current policy (NULL when none was recorded),
@@ -370,10 +350,8 @@ typedef struct store_period_info {
     char *first_day, *last_day;
 } store_period_info;
 
-mitilog_status store_load_period_info(store *store, const char *from_day,
-                                      const char *to_day,
-                                      store_period_info *info,
-                                      mitilog_error *error);
+mitilog_status store_load_period_info(store *store, const char *from_day, const char *to_day,
+                                      store_period_info *info, mitilog_error *error);
 void store_period_info_free(store_period_info *info);
 
 /* The first and last exam day held (first acquisition; NULL when no
@@ -384,9 +362,8 @@ mitilog_status store_load_day_range(store *store, char **first_day, char **last_
 /* JSON object for GET /api/v1/ingest (docs/api.md): objects per hour over
  * window_hours, rejections and quarantine, devices (silent after
  * silent_hours), transducers not reporting output in the last days. */
-mitilog_status store_ingest_json(store *store, int window_hours,
-                                 int silent_hours, int days, char **json,
-                                 mitilog_error *error);
+mitilog_status store_ingest_json(store *store, int window_hours, int silent_hours, int days,
+                                 char **json, mitilog_error *error);
 
 /* ---- Device screen profiles (store_screen_profiles.c; the profile text
  * is src/screen's business, the store keeps it with its state).
@@ -397,28 +374,25 @@ typedef struct store_screen_profile_new {
     const char *key;
     const char *manufacturer, *model_name, *software_versions; /* or NULL */
     int rows, columns;
-    const char *text;              /* screen_profile_to_text() */
-    const char *report;            /* what learning found, or NULL */
-    const unsigned char *example;  /* one learning frame as PGM, or NULL */
+    const char *text;             /* screen_profile_to_text() */
+    const char *report;           /* what learning found, or NULL */
+    const unsigned char *example; /* one learning frame as PGM, or NULL */
     size_t example_size;
 } store_screen_profile_new;
 
 /* Stores profile as proposed; *version gets the version it was given. */
-mitilog_status store_screen_profile_put(store *store,
-                                        const store_screen_profile_new *profile,
+mitilog_status store_screen_profile_put(store *store, const store_screen_profile_new *profile,
                                         int *version, mitilog_error *error);
 /* Makes version (0: the newest) of key the active one; who confirmed it is
  * kept. MITILOG_ERROR_NOT_FOUND when there is no such profile. */
-mitilog_status store_screen_profile_activate(store *store, const char *key,
-                                             int version, const char *confirmed_by,
-                                             mitilog_error *error);
+mitilog_status store_screen_profile_activate(store *store, const char *key, int version,
+                                             const char *confirmed_by, mitilog_error *error);
 /* Retires every version of key; NOT_FOUND when none was in use. */
-mitilog_status store_screen_profile_retire(store *store, const char *key,
-                                           mitilog_error *error);
+mitilog_status store_screen_profile_retire(store *store, const char *key, mitilog_error *error);
 /* The text of every active profile: *texts is a malloc'd array of *count
  * malloc'd strings; free each and the array (NULL and 0 when none). */
-mitilog_status store_screen_profiles_active(store *store, char ***texts,
-                                            size_t *count, mitilog_error *error);
+mitilog_status store_screen_profiles_active(store *store, char ***texts, size_t *count,
+                                            mitilog_error *error);
 /* One profile of key: version 0 means the active one, else the newest.
  * Every out pointer may be NULL; strings and example are malloc'd (example
  * NULL when none was kept). NOT_FOUND when key has no such profile. */
@@ -431,12 +405,10 @@ typedef struct store_screen_profile_row {
     size_t example_size;
 } store_screen_profile_row;
 mitilog_status store_screen_profile_get(store *store, const char *key, int version,
-                                        store_screen_profile_row *row,
-                                        mitilog_error *error);
+                                        store_screen_profile_row *row, mitilog_error *error);
 void store_screen_profile_row_free(store_screen_profile_row *row);
 /* GET /api/v1/devices: every profile version as a JSON array (malloc'd). */
-mitilog_status store_screen_profiles_json(store *store, char **json,
-                                          mitilog_error *error);
+mitilog_status store_screen_profiles_json(store *store, char **json, mitilog_error *error);
 
 #ifdef __cplusplus
 }

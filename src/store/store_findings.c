@@ -40,8 +40,8 @@ static void store_text_add(store_text *text, const char *format, ...)
         va_list arguments;
         va_start(arguments, format);
         size_t room = text->capacity - text->length;
-        int used = vsnprintf(text->data ? text->data + text->length : NULL,
-                             text->data ? room : 0, format, arguments);
+        int used = vsnprintf(text->data ? text->data + text->length : NULL, text->data ? room : 0,
+                             format, arguments);
         va_end(arguments);
         if (used < 0) {
             text->failed = 1;
@@ -62,10 +62,7 @@ static void store_text_add(store_text *text, const char *format, ...)
     }
 }
 
-static const char *store_or_empty(const char *text)
-{
-    return text != NULL ? text : "";
-}
+static const char *store_or_empty(const char *text) { return text != NULL ? text : ""; }
 
 /* The room and transducer of a device-level finding (an exam's findings
  * take the evaluation's). */
@@ -88,29 +85,30 @@ static const char *store_finding_index(const exam_finding *f)
 static int store_evaluation_hash(const store_evaluation *e, char out[HASH_HEX_SIZE])
 {
     store_text text = {0};
-    store_text_add(&text, "v=%s\nstudy=%s\nrule=%s\nperiod=%s\ntype=%s\nroom=%s\npreset=%s\n"
+    store_text_add(&text,
+                   "v=%s\nstudy=%s\nrule=%s\nperiod=%s\ntype=%s\nroom=%s\npreset=%s\n"
                    "shift=%s\ntransducer=%s\nage=%s\nclosed=%d\n",
                    store_or_empty(e->policy_version), store_or_empty(e->study_instance_uid),
                    store_or_empty(e->rule_id), store_or_empty(e->period),
-                   store_or_empty(e->exam_type), store_or_empty(e->room),
-                   store_or_empty(e->preset), store_or_empty(e->shift),
-                   store_or_empty(e->transducer), store_or_empty(e->age_group), e->closed);
+                   store_or_empty(e->exam_type), store_or_empty(e->room), store_or_empty(e->preset),
+                   store_or_empty(e->shift), store_or_empty(e->transducer),
+                   store_or_empty(e->age_group), e->closed);
     const exam_measurements none = {0}, *m = e->measurements != NULL ? e->measurements : &none;
     exam_index governing = m->governing_index;
     store_text_add(&text, "m=%s|%d:%.17g|%d:%.17g|%.17g|%.17g|%.17g",
                    e->measurements != NULL ? exam_index_name(governing) : "",
                    m->index_reported[governing], m->max_index[governing],
-                   m->index_reported[EXAM_INDEX_MI], m->max_index[EXAM_INDEX_MI],
-                   m->cem43_minutes, m->estimated_seconds, m->doppler_seconds);
+                   m->index_reported[EXAM_INDEX_MI], m->max_index[EXAM_INDEX_MI], m->cem43_minutes,
+                   m->estimated_seconds, m->doppler_seconds);
     for (int i = 0; i < EXAM_TI_STEP_COUNT; i++)
         store_text_add(&text, "|%.17g", m->seconds_at_or_above[i]);
     for (size_t i = 0; i < e->finding_count; i++) {
         const exam_finding *f = &e->findings[i];
-        store_text_add(&text, "\nf=%s|%s|%s|%s|%.17g|%d:%.17g|%.17g|%s|%d:%.17g:%.17g|%.17g|%s|"
+        store_text_add(&text,
+                       "\nf=%s|%s|%s|%s|%.17g|%d:%.17g|%.17g|%s|%d:%.17g:%.17g|%.17g|%s|"
                        "%s|%d|%s|%s|",
-                       f->rule_id, exam_severity_name(f->severity),
-                       store_or_empty(f->quantity), store_or_empty(f->unit), f->measured,
-                       f->has_limit, f->limit, f->threshold,
+                       f->rule_id, exam_severity_name(f->severity), store_or_empty(f->quantity),
+                       store_or_empty(f->unit), f->measured, f->has_limit, f->limit, f->threshold,
                        store_or_empty(store_finding_index(f)), f->has_span, f->first_seconds,
                        f->last_seconds, f->estimated_seconds, store_or_empty(f->assumptions),
                        store_or_empty(f->source), f->provisional,
@@ -167,8 +165,7 @@ static int store_run(sqlite3_stmt *statement, int rc)
  * every exam summary takes that policy's measurement
  * (exam_summary_policy_refresh.sql). An update of an existing row leaves
  * the current policy as it was, so nothing more is run. */
-static int store_run_policy_row(sqlite3 *db, sqlite3_stmt *statement, sqlite3_stmt *refresh,
-                                int rc)
+static int store_run_policy_row(sqlite3 *db, sqlite3_stmt *statement, sqlite3_stmt *refresh, int rc)
 {
     if (rc != SQLITE_OK)
         return store_run(statement, rc);
@@ -307,8 +304,8 @@ mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog
         rc = store_bind_text_named(st, upsert, ":limits_json", limits_json);
     rc = store_run_policy_row(st->writer, upsert, refresh, rc);
     if (rc != SQLITE_OK)
-        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "policy %s: %s",
-                                   policy->version, sqlite3_errmsg(st->writer));
+        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "policy %s: %s", policy->version,
+                                   sqlite3_errmsg(st->writer));
     store_statements_finalize(&set);
     free(rules_json);
     free(limits_json);
@@ -329,8 +326,8 @@ static int store_uids_json(const exam_finding *finding, char **out)
     return status == MITILOG_OK ? SQLITE_OK : SQLITE_NOMEM;
 }
 
-static int store_insert_finding(store *st, sqlite3_stmt *insert,
-                                const store_evaluation *e, const exam_finding *f)
+static int store_insert_finding(store *st, sqlite3_stmt *insert, const store_evaluation *e,
+                                const exam_finding *f)
 {
     char *uids = NULL;
     int rc = store_uids_json(f, &uids);
@@ -352,8 +349,8 @@ static int store_insert_finding(store *st, sqlite3_stmt *insert,
         {":room", store_finding_room(f) != NULL ? store_finding_room(f) : e->room},
         {":preset", e->preset},
         {":shift", e->shift},
-        {":transducer", store_finding_transducer(f) != NULL ? store_finding_transducer(f)
-                                                            : e->transducer},
+        {":transducer",
+         store_finding_transducer(f) != NULL ? store_finding_transducer(f) : e->transducer},
         {":period", e->study_instance_uid == NULL ? e->period : NULL},
     };
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0]; i++)
@@ -400,9 +397,13 @@ static int store_write_context_row(store *st, sqlite3_stmt *statement, const sto
         const char *name;
         const char *value;
     } texts[] = {
-        {":study_instance_uid", e->study_instance_uid}, {":room", e->room},
-        {":preset", e->preset}, {":shift", e->shift}, {":transducer", e->transducer},
-        {":age_group", e->age_group}, {":last_received_at", e->last_received_at},
+        {":study_instance_uid", e->study_instance_uid},
+        {":room", e->room},
+        {":preset", e->preset},
+        {":shift", e->shift},
+        {":transducer", e->transducer},
+        {":age_group", e->age_group},
+        {":last_received_at", e->last_received_at},
     };
     int rc = SQLITE_OK;
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0]; i++)
@@ -416,12 +417,14 @@ static int store_write_measurements(store *st, sqlite3_stmt *statement, const st
                                     const char *hash)
 {
     int rc = store_bind_text_named(st, statement, ":study_instance_uid", e->study_instance_uid);
-    if (rc == SQLITE_OK) rc = store_bind_text_named(st, statement, ":policy_version", e->policy_version);
+    if (rc == SQLITE_OK)
+        rc = store_bind_text_named(st, statement, ":policy_version", e->policy_version);
     const exam_measurements *m = e->measurements;
     exam_index governing = m->governing_index;
     if (rc == SQLITE_OK)
         rc = store_bind_text_named(st, statement, ":governing_index", exam_index_name(governing));
-    if (rc == SQLITE_OK) rc = store_bind_text_named(st, statement, ":evaluation_hash", hash);
+    if (rc == SQLITE_OK)
+        rc = store_bind_text_named(st, statement, ":evaluation_hash", hash);
     const struct {
         const char *name;
         int present;
@@ -434,8 +437,8 @@ static int store_write_measurements(store *st, sqlite3_stmt *statement, const st
         {":doppler_seconds", 1, m->doppler_seconds},
     };
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof reals / sizeof reals[0]; i++)
-        rc = store_bind_double_named(st, statement, reals[i].name, reals[i].present,
-                                     reals[i].value);
+        rc =
+            store_bind_double_named(st, statement, reals[i].name, reals[i].present, reals[i].value);
     return store_run(statement, rc);
 }
 
@@ -445,12 +448,15 @@ static int store_write_time_at_or_above(store *st, sqlite3_stmt *removal, sqlite
                                         const store_evaluation *e)
 {
     int rc = store_bind_text_named(st, removal, ":study_instance_uid", e->study_instance_uid);
-    if (rc == SQLITE_OK) rc = store_bind_text_named(st, removal, ":policy_version", e->policy_version);
+    if (rc == SQLITE_OK)
+        rc = store_bind_text_named(st, removal, ":policy_version", e->policy_version);
     rc = store_run(removal, rc);
     for (int k = 0; rc == SQLITE_OK && k < EXAM_TI_STEP_COUNT; k++) {
         rc = store_bind_text_named(st, insert, ":study_instance_uid", e->study_instance_uid);
-        if (rc == SQLITE_OK) rc = store_bind_text_named(st, insert, ":policy_version", e->policy_version);
-        if (rc == SQLITE_OK) rc = store_bind_double_named(st, insert, ":threshold", 1, exam_ti_ladder[k]);
+        if (rc == SQLITE_OK)
+            rc = store_bind_text_named(st, insert, ":policy_version", e->policy_version);
+        if (rc == SQLITE_OK)
+            rc = store_bind_double_named(st, insert, ":threshold", 1, exam_ti_ladder[k]);
         if (rc == SQLITE_OK)
             rc = store_bind_double_named(st, insert, ":seconds", 1,
                                          e->measurements->seconds_at_or_above[k]);
@@ -477,30 +483,34 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
                                            exam ? "queries/findings/evaluation_hash_exam.sql"
                                                 : "queries/findings/evaluation_hash_device.sql",
                                            error);
-    sqlite3_stmt *context = exam ? store_statement(st, &set, "queries/exams/exam_context_upsert.sql",
-                                                   error)
-                                 : NULL;
-    sqlite3_stmt *removal = store_statement(st, &set, "queries/findings/findings_delete.sql", error);
-    sqlite3_stmt *supersede = store_statement(st, &set, "queries/findings/findings_supersede.sql", error);
+    sqlite3_stmt *context =
+        exam ? store_statement(st, &set, "queries/exams/exam_context_upsert.sql", error) : NULL;
+    sqlite3_stmt *removal =
+        store_statement(st, &set, "queries/findings/findings_delete.sql", error);
+    sqlite3_stmt *supersede =
+        store_statement(st, &set, "queries/findings/findings_supersede.sql", error);
     sqlite3_stmt *insert = store_statement(st, &set, "queries/findings/finding_insert.sql", error);
     sqlite3_stmt *values = store_statement(st, &set,
                                            exam ? "queries/findings/exam_measurements_upsert.sql"
                                                 : "queries/findings/device_evaluation_upsert.sql",
                                            error);
     sqlite3_stmt *times_removal =
-        exam ? store_statement(st, &set, "queries/findings/measurement_time_at_or_above_delete.sql", error)
+        exam ? store_statement(st, &set, "queries/findings/measurement_time_at_or_above_delete.sql",
+                               error)
              : NULL;
     sqlite3_stmt *times_insert =
-        exam ? store_statement(st, &set, "queries/findings/measurement_time_at_or_above_insert.sql", error)
+        exam ? store_statement(st, &set, "queries/findings/measurement_time_at_or_above_insert.sql",
+                               error)
              : NULL;
-    if (ensure == NULL || refresh == NULL || stored == NULL || (exam && context == NULL) || removal == NULL ||
-        supersede == NULL || insert == NULL || values == NULL ||
+    if (ensure == NULL || refresh == NULL || stored == NULL || (exam && context == NULL) ||
+        removal == NULL || supersede == NULL || insert == NULL || values == NULL ||
         (exam && (times_removal == NULL || times_insert == NULL))) {
         store_statements_finalize(&set);
         return MITILOG_ERROR_DATABASE;
     }
     int rc = store_bind_text_named(st, ensure, ":version", e->policy_version);
-    if (rc == SQLITE_OK) rc = store_bind_text_named(st, ensure, ":name", e->policy_name);
+    if (rc == SQLITE_OK)
+        rc = store_bind_text_named(st, ensure, ":name", e->policy_name);
     if (rc == SQLITE_OK)
         rc = store_bind_text_named(st, ensure, ":normalised_text",
                                    store_or_empty(e->normalised_text));
@@ -547,17 +557,19 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
             rc = store_bind_text_named(st, values, ":rule_id", e->rule_id);
             if (rc == SQLITE_OK)
                 rc = store_bind_text_named(st, values, ":policy_version", e->policy_version);
-            if (rc == SQLITE_OK) rc = store_bind_text_named(st, values, ":period", e->period);
-            if (rc == SQLITE_OK) rc = store_bind_text_named(st, values, ":evaluation_hash", hash);
+            if (rc == SQLITE_OK)
+                rc = store_bind_text_named(st, values, ":period", e->period);
+            if (rc == SQLITE_OK)
+                rc = store_bind_text_named(st, values, ":evaluation_hash", hash);
             rc = store_run(values, rc);
         }
     }
     mitilog_status status = MITILOG_OK;
     if (rc != SQLITE_OK) {
-        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "evaluation of %s: %s",
-                                   exam ? e->study_instance_uid : e->period,
-                                   rc == SQLITE_RANGE ? "bad parameter"
-                                                      : sqlite3_errmsg(st->writer));
+        status =
+            mitilog_error_set(error, MITILOG_ERROR_DATABASE, "evaluation of %s: %s",
+                              exam ? e->study_instance_uid : e->period,
+                              rc == SQLITE_RANGE ? "bad parameter" : sqlite3_errmsg(st->writer));
     } else {
         counts->evaluations++;
         counts->unchanged += unchanged ? 1 : 0;

@@ -66,8 +66,8 @@ mitilog_status store_load_study_context(store *st, const char *study_instance_ui
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "study context: no study");
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_cached_statement(&st->reader_cache, st->reader, "queries/instances/study_context.sql", &statement,
-                                          error);
+    mitilog_status status = store_cached_statement(
+        &st->reader_cache, st->reader, "queries/instances/study_context.sql", &statement, error);
     if (status == MITILOG_OK) {
         int rc = sqlite3_bind_text(statement, 1, study_instance_uid, -1, SQLITE_TRANSIENT);
         if (rc == SQLITE_OK)
@@ -114,7 +114,8 @@ mitilog_status store_list(store *st, store_list_kind kind, const char *a, const 
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_list: bad arguments");
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_cached_statement(&st->reader_cache, st->reader, files[kind], &statement, error);
+    mitilog_status status =
+        store_cached_statement(&st->reader_cache, st->reader, files[kind], &statement, error);
     size_t capacity = 0;
     if (status == MITILOG_OK) {
         int rc;
@@ -185,8 +186,8 @@ mitilog_status store_load_day_instances(store *st, const char *day,
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "day instances: no day");
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_cached_statement(&st->reader_cache, st->reader, "queries/instances/device_instances.sql",
-                                          &statement, error);
+    mitilog_status status = store_cached_statement(
+        &st->reader_cache, st->reader, "queries/instances/device_instances.sql", &statement, error);
     size_t capacity = 0;
     if (status == MITILOG_OK) {
         int rc = sqlite3_bind_text(statement, 1, day, -1, SQLITE_TRANSIENT);
@@ -236,8 +237,8 @@ mitilog_status store_load_day_instances(store *st, const char *day,
 }
 
 /* Runs a one-row JSON query prepared here; NOT_FOUND when it gives no row. */
-static mitilog_status store_json_query(store *st, sqlite3_stmt *statement, int rc,
-                                       const char *what, char **json, mitilog_error *error)
+static mitilog_status store_json_query(store *st, sqlite3_stmt *statement, int rc, const char *what,
+                                       char **json, mitilog_error *error)
 {
     mitilog_status status;
     if (rc != SQLITE_OK)
@@ -261,14 +262,15 @@ mitilog_status store_findings_json(store *st, const store_finding_filter *filter
     store_finding_filter none = {0};
     if (filter == NULL)
         filter = &none;
-    long limit = filter->limit <= 0 ? STORE_FINDINGS_LIMIT_DEFAULT
+    long limit = filter->limit <= 0                         ? STORE_FINDINGS_LIMIT_DEFAULT
                  : filter->limit > STORE_FINDINGS_LIMIT_MAX ? STORE_FINDINGS_LIMIT_MAX
                                                             : filter->limit;
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_cached_statement(&st->reader_cache, st->reader, "queries/findings/findings.sql", &statement, error);
+    mitilog_status status = store_cached_statement(
+        &st->reader_cache, st->reader, "queries/findings/findings.sql", &statement, error);
     if (status == MITILOG_OK) {
-        const char *texts[] = {filter->from, filter->to, filter->severity, filter->rule,
+        const char *texts[] = {filter->from, filter->to,     filter->severity, filter->rule,
                                filter->room, filter->preset, filter->shift};
         int rc = SQLITE_OK;
         for (int i = 0; rc == SQLITE_OK && i < 7; i++)
@@ -294,12 +296,12 @@ mitilog_status store_policy_json(store *st, char **json, mitilog_error *error)
     sqlite3_stmt *statement = NULL;
     if (st->active_policy[0] == '\0')
         status = mitilog_error_set(error, MITILOG_ERROR_NOT_FOUND, "no policy is loaded");
-    else if ((status = store_cached_statement(&st->reader_cache, st->reader, "queries/findings/policy_json.sql", &statement,
-                                     error)) == MITILOG_OK)
-        status = store_json_query(st, statement,
-                                  sqlite3_bind_text(statement, 1, st->active_policy, -1,
-                                                    SQLITE_TRANSIENT),
-                                  "query policy", json, error);
+    else if ((status = store_cached_statement(&st->reader_cache, st->reader,
+                                              "queries/findings/policy_json.sql", &statement,
+                                              error)) == MITILOG_OK)
+        status = store_json_query(
+            st, statement, sqlite3_bind_text(statement, 1, st->active_policy, -1, SQLITE_TRANSIENT),
+            "query policy", json, error);
     store_release(statement);
     pthread_mutex_unlock(&st->reader_lock);
     return status;

@@ -33,12 +33,11 @@ static int store_migration_number(const char *name)
 }
 
 /* Reads PRAGMA user_version into *version. */
-static mitilog_status store_read_version(sqlite3 *db, int *version,
-                                         mitilog_error *error)
+static mitilog_status store_read_version(sqlite3 *db, int *version, mitilog_error *error)
 {
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_prepare(db, "queries/database/schema_version.sql",
-                                          &statement, error);
+    mitilog_status status =
+        store_prepare(db, "queries/database/schema_version.sql", &statement, error);
     if (status != MITILOG_OK)
         return status;
     if (sqlite3_step(statement) == SQLITE_ROW) {
@@ -51,19 +50,18 @@ static mitilog_status store_read_version(sqlite3 *db, int *version,
 }
 
 /* MITILOG_OK when no foreign key of the database is dangling. */
-static mitilog_status store_check_foreign_keys(sqlite3 *db, const char *name,
-                                               mitilog_error *error)
+static mitilog_status store_check_foreign_keys(sqlite3 *db, const char *name, mitilog_error *error)
 {
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_prepare(db, "queries/database/foreign_key_check.sql",
-                                          &statement, error);
+    mitilog_status status =
+        store_prepare(db, "queries/database/foreign_key_check.sql", &statement, error);
     if (status != MITILOG_OK)
         return status;
     int rc = sqlite3_step(statement);
     if (rc == SQLITE_ROW)
         status = mitilog_error_set(error, MITILOG_ERROR_DATABASE,
-                                   "%s left a dangling reference in table %s",
-                                   name, sqlite3_column_text(statement, 0));
+                                   "%s left a dangling reference in table %s", name,
+                                   sqlite3_column_text(statement, 0));
     else if (rc != SQLITE_DONE)
         status = store_sql_error(error, db, name);
     sqlite3_finalize(statement);
@@ -74,12 +72,10 @@ static mitilog_status store_check_foreign_keys(sqlite3 *db, const char *name,
  * applied it meanwhile. The file itself sets user_version; this checks it,
  * and that no reference is left dangling (foreign keys are off while
  * migrations run, so that a table can be rebuilt). */
-static mitilog_status store_apply_migration(sqlite3 *db, const sql_file *file,
-                                            int number, const char *path,
-                                            mitilog_error *error)
+static mitilog_status store_apply_migration(sqlite3 *db, const sql_file *file, int number,
+                                            const char *path, mitilog_error *error)
 {
-    mitilog_status status = store_exec_file(db, "queries/database/write_begin.sql",
-                                            error);
+    mitilog_status status = store_exec_file(db, "queries/database/write_begin.sql", error);
     if (status != MITILOG_OK)
         return status;
     int version = 0;
@@ -91,8 +87,8 @@ static mitilog_status store_apply_migration(sqlite3 *db, const sql_file *file,
         if (status == MITILOG_OK && version != number)
             status = mitilog_error_set(error, MITILOG_ERROR_DATABASE,
                                        "%s left user_version at %d, "
-                                       "expected %d", file->name, version,
-                                       number);
+                                       "expected %d",
+                                       file->name, version, number);
         if (status == MITILOG_OK)
             status = store_check_foreign_keys(db, file->name, error);
     }
@@ -102,15 +98,14 @@ static mitilog_status store_apply_migration(sqlite3 *db, const sql_file *file,
         store_exec_file(db, "queries/database/write_rollback.sql", NULL);
         return status;
     }
-    log_info("database %s: schema at version %d (%s)", path, number,
-             file->name);
+    log_info("database %s: schema at version %d (%s)", path, number, file->name);
     return MITILOG_OK;
 }
 
 /* Brings the schema up to the newest built-in migration; *version gets
  * the resulting schema version. */
-static mitilog_status store_migrate(sqlite3 *db, const char *path,
-                                    int *version, mitilog_error *error)
+static mitilog_status store_migrate(sqlite3 *db, const char *path, int *version,
+                                    mitilog_error *error)
 {
     int latest = 0;
     for (const sql_file *file = sql_files; file->name != NULL; file++) {
@@ -122,8 +117,8 @@ static mitilog_status store_migrate(sqlite3 *db, const char *path,
         if (number <= latest)
             return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
                                      "migration %s out of sequence "
-                                     "(expected a number above %d)", file->name,
-                                     latest);
+                                     "(expected a number above %d)",
+                                     file->name, latest);
         latest = number;
     }
     mitilog_status status = store_read_version(db, version, error);
@@ -132,13 +127,12 @@ static mitilog_status store_migrate(sqlite3 *db, const char *path,
     if (*version > latest)
         return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
                                  "database %s has schema version %d, newer "
-                                 "than this program's %d", path, *version,
-                                 latest);
+                                 "than this program's %d",
+                                 path, *version, latest);
     if (*version == latest)
         return MITILOG_OK;
     status = store_exec_file(db, "queries/database/pragma_foreign_keys_off.sql", error);
-    for (const sql_file *file = sql_files; status == MITILOG_OK && file->name != NULL;
-         file++) {
+    for (const sql_file *file = sql_files; status == MITILOG_OK && file->name != NULL; file++) {
         int number = store_migration_number(file->name);
         if (number <= *version)
             continue;
@@ -155,13 +149,11 @@ static mitilog_status store_migrate(sqlite3 *db, const char *path,
 }
 
 /* Opens path with flags, extended result codes and the busy timeout. */
-static mitilog_status store_connect(const char *path, int flags,
-                                    int busy_timeout_ms, sqlite3 **out,
+static mitilog_status store_connect(const char *path, int flags, int busy_timeout_ms, sqlite3 **out,
                                     mitilog_error *error)
 {
     sqlite3 *db = NULL;
-    if (sqlite3_open_v2(path, &db, flags | SQLITE_OPEN_FULLMUTEX, NULL) !=
-        SQLITE_OK) {
+    if (sqlite3_open_v2(path, &db, flags | SQLITE_OPEN_FULLMUTEX, NULL) != SQLITE_OK) {
         mitilog_error_set(error, MITILOG_ERROR_DATABASE, "open %s: %s", path,
                           db != NULL ? sqlite3_errmsg(db) : "out of memory");
         sqlite3_close(db);
@@ -174,12 +166,11 @@ static mitilog_status store_connect(const char *path, int flags,
 }
 
 /* Puts the writer into WAL mode and applies its PRAGMAs. */
-static mitilog_status store_configure_writer(sqlite3 *db, const char *path,
-                                             mitilog_error *error)
+static mitilog_status store_configure_writer(sqlite3 *db, const char *path, mitilog_error *error)
 {
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_prepare(db, "queries/database/pragma_journal_wal.sql",
-                                          &statement, error);
+    mitilog_status status =
+        store_prepare(db, "queries/database/pragma_journal_wal.sql", &statement, error);
     if (status != MITILOG_OK)
         return status;
     if (sqlite3_step(statement) != SQLITE_ROW) {
@@ -189,8 +180,8 @@ static mitilog_status store_configure_writer(sqlite3 *db, const char *path,
         if (mode == NULL || strcmp(mode, "wal") != 0)
             status = mitilog_error_set(error, MITILOG_ERROR_DATABASE,
                                        "database %s: cannot use WAL mode "
-                                       "(journal mode stays %s)", path,
-                                       mode != NULL ? mode : "unknown");
+                                       "(journal mode stays %s)",
+                                       path, mode != NULL ? mode : "unknown");
     }
     sqlite3_finalize(statement);
     if (status != MITILOG_OK)
@@ -222,8 +213,8 @@ static int store_vocabulary_matches(sqlite3 *db, int *ladder_matches, mitilog_er
     count = 0;
     while (result == 0 && (rc = sqlite3_step(modes)) == SQLITE_ROW) {
         const char *name = (const char *)sqlite3_column_text(modes, 1);
-        if (count >= EXAM_MODE_COUNT || sqlite3_column_int(modes, 0) != count ||
-            name == NULL || strcmp(name, exam_mode_name((exam_mode)count)) != 0)
+        if (count >= EXAM_MODE_COUNT || sqlite3_column_int(modes, 0) != count || name == NULL ||
+            strcmp(name, exam_mode_name((exam_mode)count)) != 0)
             modes_match = 0;
         count++;
     }
@@ -269,7 +260,8 @@ static mitilog_status store_sync_vocabulary(sqlite3 *db, const char *path, mitil
         }
         sqlite3_finalize(insert);
         if (status == MITILOG_OK)
-            status = store_exec_file(db, "queries/exams/exam_time_at_or_above_refresh_all.sql", error);
+            status =
+                store_exec_file(db, "queries/exams/exam_time_at_or_above_refresh_all.sql", error);
     }
     if (status == MITILOG_OK && matches == 0) {
         status = store_exec_file(db, "queries/exams/mode_names_delete.sql", error);
@@ -296,34 +288,28 @@ static mitilog_status store_sync_vocabulary(sqlite3 *db, const char *path, mitil
     return MITILOG_OK;
 }
 
-mitilog_status store_open(const char *path, int busy_timeout_ms, store **out,
-                          mitilog_error *error)
+mitilog_status store_open(const char *path, int busy_timeout_ms, store **out, mitilog_error *error)
 {
     if (out == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "store_open: no result pointer");
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_open: no result pointer");
     *out = NULL;
     if (path == NULL || path[0] == '\0')
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "store_open: no database path");
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_open: no database path");
     store *opened = calloc(1, sizeof *opened);
     if (opened == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_MEMORY,
-                                 "out of memory opening %s", path);
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory opening %s", path);
     pthread_mutex_init(&opened->queue_lock, NULL);
     pthread_cond_init(&opened->queue_changed, NULL);
     pthread_mutex_init(&opened->reader_lock, NULL);
     pthread_mutex_init(&opened->parameter_lock, NULL);
     hash_table_init(&opened->parameter_indices, STORE_PARAMETER_ENTRIES);
 
-    mitilog_status status = store_connect(
-        path, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE, busy_timeout_ms,
-        &opened->writer, error);
+    mitilog_status status = store_connect(path, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE,
+                                          busy_timeout_ms, &opened->writer, error);
     if (status == MITILOG_OK)
         status = store_configure_writer(opened->writer, path, error);
     if (status == MITILOG_OK)
-        status = store_migrate(opened->writer, path, &opened->schema_version,
-                               error);
+        status = store_migrate(opened->writer, path, &opened->schema_version, error);
     if (status == MITILOG_OK)
         status = store_sync_vocabulary(opened->writer, path, error);
     if (status == MITILOG_OK)
@@ -336,8 +322,7 @@ mitilog_status store_open(const char *path, int busy_timeout_ms, store **out,
         status = store_connect(path, SQLITE_OPEN_READONLY | SQLITE_OPEN_NOMUTEX, busy_timeout_ms,
                                &opened->reader, error);
     if (status == MITILOG_OK)
-        status = store_exec_file(opened->reader, "queries/database/pragma_reader.sql",
-                                 error);
+        status = store_exec_file(opened->reader, "queries/database/pragma_reader.sql", error);
     if (status == MITILOG_OK)
         status = store_read_prepare(opened, error);
     if (status != MITILOG_OK) {
@@ -363,13 +348,10 @@ void store_close(store *st)
     store_cache_finalize(&st->writer_cache);
     if (st->writer != NULL) {
         mitilog_error error;
-        if (store_exec_file(st->writer, "queries/database/checkpoint.sql",
-                            &error) != MITILOG_OK)
-            log_warning("database checkpoint at close failed: %s",
-                        error.text);
+        if (store_exec_file(st->writer, "queries/database/checkpoint.sql", &error) != MITILOG_OK)
+            log_warning("database checkpoint at close failed: %s", error.text);
         if (sqlite3_close(st->writer) != SQLITE_OK)
-            log_warning("database close failed: %s",
-                        sqlite3_errmsg(st->writer));
+            log_warning("database close failed: %s", sqlite3_errmsg(st->writer));
     }
     pthread_mutex_destroy(&st->parameter_lock);
     pthread_mutex_destroy(&st->reader_lock);
@@ -378,15 +360,9 @@ void store_close(store *st)
     free(st);
 }
 
-int store_schema_version(store *st)
-{
-    return st != NULL ? st->schema_version : 0;
-}
+int store_schema_version(store *st) { return st != NULL ? st->schema_version : 0; }
 
-sqlite3 *store_writer_connection(store *st)
-{
-    return st != NULL ? st->writer : NULL;
-}
+sqlite3 *store_writer_connection(store *st) { return st != NULL ? st->writer : NULL; }
 
 mitilog_status store_set_durability(store *st, store_durability durability, mitilog_error *error)
 {
@@ -397,11 +373,11 @@ mitilog_status store_set_durability(store *st, store_durability durability, miti
     pthread_mutex_lock(&st->queue_lock);
     while (st->leader_active)
         pthread_cond_wait(&st->queue_changed, &st->queue_lock);
-    mitilog_status status = store_exec_file(
-        st->writer,
-        durability == STORE_DURABILITY_PROCESS ? "queries/database/pragma_synchronous_normal.sql"
-                                               : "queries/database/pragma_synchronous_full.sql",
-        error);
+    mitilog_status status = store_exec_file(st->writer,
+                                            durability == STORE_DURABILITY_PROCESS
+                                                ? "queries/database/pragma_synchronous_normal.sql"
+                                                : "queries/database/pragma_synchronous_full.sql",
+                                            error);
     pthread_mutex_unlock(&st->queue_lock);
     return status;
 }

@@ -21,8 +21,7 @@ static long store_clamp_limit(long limit)
 
 /* Binds text to parameter index, with NULL and "" both meaning SQL NULL
  * ("no filter"). */
-static int store_bind_filter(sqlite3_stmt *statement, int index,
-                             const char *text)
+static int store_bind_filter(sqlite3_stmt *statement, int index, const char *text)
 {
     if (text == NULL || text[0] == '\0')
         return sqlite3_bind_null(statement, index);
@@ -31,14 +30,12 @@ static int store_bind_filter(sqlite3_stmt *statement, int index,
 
 /* Runs a bound one-row, one-column statement and copies its text to *json;
  * resets the statement either way. Call under reader_lock. */
-static mitilog_status store_run_json(store *st, sqlite3_stmt *statement,
-                                     int bind_rc, const char *what,
-                                     char **json, mitilog_error *error)
+static mitilog_status store_run_json(store *st, sqlite3_stmt *statement, int bind_rc,
+                                     const char *what, char **json, mitilog_error *error)
 {
     mitilog_status status;
     if (bind_rc != SQLITE_OK)
-        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE,
-                                   "%s: bind: %s", what,
+        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: bind: %s", what,
                                    sqlite3_errstr(bind_rc));
     else if (sqlite3_step(statement) != SQLITE_ROW)
         status = store_sql_error(error, st->reader, what);
@@ -49,9 +46,8 @@ static mitilog_status store_run_json(store *st, sqlite3_stmt *statement,
     return status;
 }
 
-mitilog_status store_instances_json(store *st,
-                                    const store_instance_filter *filter,
-                                    char **json, mitilog_error *error)
+mitilog_status store_instances_json(store *st, const store_instance_filter *filter, char **json,
+                                    mitilog_error *error)
 {
     if (st == NULL || json == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
@@ -61,12 +57,10 @@ mitilog_status store_instances_json(store *st,
     if (filter == NULL)
         filter = &none;
     long limit = store_clamp_limit(filter->limit);
-    int by_study = filter->study_instance_uid != NULL &&
-                   filter->study_instance_uid[0] != '\0';
+    int by_study = filter->study_instance_uid != NULL && filter->study_instance_uid[0] != '\0';
 
     pthread_mutex_lock(&st->reader_lock);
-    sqlite3_stmt *statement = by_study ? st->read.instances_by_study
-                                       : st->read.instances_since;
+    sqlite3_stmt *statement = by_study ? st->read.instances_by_study : st->read.instances_since;
     int rc;
     if (by_study) {
         rc = store_bind_filter(statement, 1, filter->study_instance_uid);
@@ -79,14 +73,12 @@ mitilog_status store_instances_json(store *st,
         if (rc == SQLITE_OK)
             rc = sqlite3_bind_int64(statement, 2, limit);
     }
-    mitilog_status status =
-        store_run_json(st, statement, rc, "query instances", json, error);
+    mitilog_status status = store_run_json(st, statement, rc, "query instances", json, error);
     pthread_mutex_unlock(&st->reader_lock);
     return status;
 }
 
-mitilog_status store_studies_json(store *st, const char *from,
-                                  const char *to, char **json,
+mitilog_status store_studies_json(store *st, const char *from, const char *to, char **json,
                                   mitilog_error *error)
 {
     if (st == NULL || json == NULL)
@@ -98,8 +90,7 @@ mitilog_status store_studies_json(store *st, const char *from,
     int rc = store_bind_filter(statement, 1, from);
     if (rc == SQLITE_OK)
         rc = store_bind_filter(statement, 2, to);
-    mitilog_status status =
-        store_run_json(st, statement, rc, "query studies", json, error);
+    mitilog_status status = store_run_json(st, statement, rc, "query studies", json, error);
     pthread_mutex_unlock(&st->reader_lock);
     return status;
 }
@@ -107,17 +98,15 @@ mitilog_status store_studies_json(store *st, const char *from,
 /* On failure returns MITILOG_ERROR_DATABASE and, when it can still be
  * built, sets *json to {"status":"error","database":"error","message":..}
  * for the health check to serve. */
-mitilog_status store_health_json(store *st, char **json,
-                                 mitilog_error *error)
+mitilog_status store_health_json(store *st, char **json, mitilog_error *error)
 {
     if (st == NULL || json == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "store_health_json: no store or result");
     *json = NULL;
     pthread_mutex_lock(&st->reader_lock);
-    mitilog_status status = store_run_json(st, st->read.health,
-                                           SQLITE_OK, "health query", json,
-                                           error);
+    mitilog_status status =
+        store_run_json(st, st->read.health, SQLITE_OK, "health query", json, error);
     if (status != MITILOG_OK) {
         /* written without the database, which just failed */
         json_writer writer;
@@ -152,8 +141,7 @@ mitilog_status store_read_prepare(store *st, mitilog_error *error)
         {"queries/instances/study_detail.sql", &st->read.study_detail},
     };
     for (size_t i = 0; i < sizeof files / sizeof files[0]; i++) {
-        mitilog_status status = store_prepare(st->reader, files[i].name,
-                                              files[i].statement, error);
+        mitilog_status status = store_prepare(st->reader, files[i].name, files[i].statement, error);
         if (status != MITILOG_OK)
             return status;
     }
@@ -162,10 +150,12 @@ mitilog_status store_read_prepare(store *st, mitilog_error *error)
 
 void store_read_finalize(store *st)
 {
-    sqlite3_stmt **statements[] = {
-        &st->read.instances_by_study, &st->read.instances_since,
-        &st->read.studies, &st->read.health,
-        &st->read.study_load, &st->read.study_detail};
+    sqlite3_stmt **statements[] = {&st->read.instances_by_study,
+                                   &st->read.instances_since,
+                                   &st->read.studies,
+                                   &st->read.health,
+                                   &st->read.study_load,
+                                   &st->read.study_detail};
     for (size_t i = 0; i < sizeof statements / sizeof statements[0]; i++) {
         sqlite3_finalize(*statements[i]);
         *statements[i] = NULL;

@@ -59,8 +59,7 @@ static int store_fill_instance(sqlite3_stmt *statement, ext_exam_instance *insta
 }
 
 mitilog_status store_load_study(store *st, const char *study_instance_uid,
-                                ext_exam_instance **instances, size_t *count,
-                                mitilog_error *error)
+                                ext_exam_instance **instances, size_t *count, mitilog_error *error)
 {
     *instances = NULL;
     *count = 0;
@@ -131,11 +130,11 @@ mitilog_status store_study_json(store *st, const char *study_instance_uid, char 
                  ? sqlite3_bind_text(statement, 2, st->active_policy, -1, SQLITE_TRANSIENT)
                  : sqlite3_bind_null(statement, 2);
     if (rc != SQLITE_OK)
-        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "study: bind: %s",
-                                   sqlite3_errstr(rc));
+        status =
+            mitilog_error_set(error, MITILOG_ERROR_DATABASE, "study: bind: %s", sqlite3_errstr(rc));
     else if ((rc = sqlite3_step(statement)) == SQLITE_DONE)
-        status = mitilog_error_set(error, MITILOG_ERROR_NOT_FOUND, "no study %s",
-                                   study_instance_uid);
+        status =
+            mitilog_error_set(error, MITILOG_ERROR_NOT_FOUND, "no study %s", study_instance_uid);
     else if (rc != SQLITE_ROW)
         status = store_sql_error(error, st->reader, "query study");
     else

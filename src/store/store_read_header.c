@@ -9,19 +9,17 @@
 #include <stdlib.h>
 #include <string.h>
 
-mitilog_status store_get_header(store *st, const char *sop_instance_uid,
-                                unsigned char **bytes, size_t *size,
-                                mitilog_error *error)
+mitilog_status store_get_header(store *st, const char *sop_instance_uid, unsigned char **bytes,
+                                size_t *size, mitilog_error *error)
 {
     if (st == NULL || sop_instance_uid == NULL || bytes == NULL || size == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "store_get_header: NULL argument");
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_get_header: NULL argument");
     *bytes = NULL;
     *size = 0;
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_prepare(st->reader, "queries/instances/instance_header_select.sql",
-                                          &statement, error);
+    mitilog_status status = store_prepare(
+        st->reader, "queries/instances/instance_header_select.sql", &statement, error);
     if (status == MITILOG_OK) {
         int rc = sqlite3_bind_text(statement, 1, sop_instance_uid, -1, SQLITE_STATIC);
         if (rc == SQLITE_OK)

@@ -40,10 +40,8 @@ static double store_double(sqlite3_stmt *statement, int column, int *present)
 }
 
 /* Prepares name on the reader and binds the two days. Call under lock. */
-static mitilog_status store_period_statement(store *st, const char *name,
-                                             const char *from_day,
-                                             const char *to_day,
-                                             sqlite3_stmt **statement,
+static mitilog_status store_period_statement(store *st, const char *name, const char *from_day,
+                                             const char *to_day, sqlite3_stmt **statement,
                                              mitilog_error *error)
 {
     mitilog_status status = store_prepare(st->reader, name, statement, error);
@@ -127,39 +125,67 @@ static exam_row *store_list_add(store_exam_list *list, size_t *capacity)
 
 /* Columns of stats_exam_rows.sql. */
 enum {
-    EXAM_UID, EXAM_DAY, EXAM_TYPE, EXAM_TYPE_LABEL, EXAM_GOVERNING_INDEX, EXAM_MAX_GOVERNING,
-    EXAM_MAX_MI, EXAM_ROOM, EXAM_PRESET, EXAM_SHIFT, EXAM_TRANSDUCER, EXAM_DESCRIPTION,
-    EXAM_ESTIMATED, EXAM_CAPTURES, EXAM_INDEXED, EXAM_FINDINGS, EXAM_FIRST_ACQUIRED,
-    EXAM_INFORMATIONAL, EXAM_WORST_SEVERITY
+    EXAM_UID,
+    EXAM_DAY,
+    EXAM_TYPE,
+    EXAM_TYPE_LABEL,
+    EXAM_GOVERNING_INDEX,
+    EXAM_MAX_GOVERNING,
+    EXAM_MAX_MI,
+    EXAM_ROOM,
+    EXAM_PRESET,
+    EXAM_SHIFT,
+    EXAM_TRANSDUCER,
+    EXAM_DESCRIPTION,
+    EXAM_ESTIMATED,
+    EXAM_CAPTURES,
+    EXAM_INDEXED,
+    EXAM_FINDINGS,
+    EXAM_FIRST_ACQUIRED,
+    EXAM_INFORMATIONAL,
+    EXAM_WORST_SEVERITY
 };
 
 /* The queries the loader chooses from. */
 typedef enum store_exam_query {
-    STORE_QUERY_ROWS,           /* stats_exam_rows.sql: every column */
-    STORE_QUERY_VALUES,         /* stats_exam_values.sql: type, one key, values */
-    STORE_QUERY_GOVERNING,      /* stats_exam_governing.sql: type, governing value */
-    STORE_QUERY_SERIES          /* stats_exam_series.sql: type, day, room, preset, values */
+    STORE_QUERY_ROWS,      /* stats_exam_rows.sql: every column */
+    STORE_QUERY_VALUES,    /* stats_exam_values.sql: type, one key, values */
+    STORE_QUERY_GOVERNING, /* stats_exam_governing.sql: type, governing value */
+    STORE_QUERY_SERIES     /* stats_exam_series.sql: type, day, room, preset, values */
 } store_exam_query;
 
 /* Columns of stats_exam_series.sql. */
 enum {
-    SERIES_TYPE, SERIES_DAY, SERIES_ROOM, SERIES_PRESET, SERIES_MAX_GOVERNING,
-    SERIES_CAPTURES, SERIES_INDEXED, SERIES_UID
+    SERIES_TYPE,
+    SERIES_DAY,
+    SERIES_ROOM,
+    SERIES_PRESET,
+    SERIES_MAX_GOVERNING,
+    SERIES_CAPTURES,
+    SERIES_INDEXED,
+    SERIES_UID
 };
 
 /* Columns of stats_exam_values.sql. */
 enum {
-    VALUES_TYPE, VALUES_KEY, VALUES_MAX_GOVERNING, VALUES_MAX_MI, VALUES_ESTIMATED,
-    VALUES_CAPTURES, VALUES_INDEXED,
-    VALUES_FINDINGS, VALUES_UID, VALUES_INFORMATIONAL
+    VALUES_TYPE,
+    VALUES_KEY,
+    VALUES_MAX_GOVERNING,
+    VALUES_MAX_MI,
+    VALUES_ESTIMATED,
+    VALUES_CAPTURES,
+    VALUES_INDEXED,
+    VALUES_FINDINGS,
+    VALUES_UID,
+    VALUES_INFORMATIONAL
 };
 
 /* The context column of a single STORE_EXAM_ROOM/PRESET/SHIFT/TRANSDUCER
  * bit, as stats_exam_values.sql names it; "" for none; NULL for several. */
 static const char *store_key_name(unsigned columns)
 {
-    switch (columns & (STORE_EXAM_ROOM | STORE_EXAM_PRESET | STORE_EXAM_SHIFT |
-                       STORE_EXAM_TRANSDUCER)) {
+    switch (columns &
+            (STORE_EXAM_ROOM | STORE_EXAM_PRESET | STORE_EXAM_SHIFT | STORE_EXAM_TRANSDUCER)) {
     case 0: return "";
     case STORE_EXAM_ROOM: return "room";
     case STORE_EXAM_PRESET: return "preset";
@@ -191,8 +217,8 @@ static size_t store_count(sqlite3_stmt *statement, int column)
 }
 
 /* One row of the chosen query. */
-static int exam_row_read(store_exam_list *list, exam_row *row,
-                               sqlite3_stmt *statement, unsigned columns, store_exam_query query)
+static int exam_row_read(store_exam_list *list, exam_row *row, sqlite3_stmt *statement,
+                         unsigned columns, store_exam_query query)
 {
     int failed = 0;
     if (query == STORE_QUERY_GOVERNING) {
@@ -207,8 +233,7 @@ static int exam_row_read(store_exam_list *list, exam_row *row,
             row->room = store_list_text(list, statement, SERIES_ROOM, &failed);
         if (columns & STORE_EXAM_PRESET)
             row->preset = store_list_text(list, statement, SERIES_PRESET, &failed);
-        row->max_governing =
-            store_double(statement, SERIES_MAX_GOVERNING, &row->has_governing);
+        row->max_governing = store_double(statement, SERIES_MAX_GOVERNING, &row->has_governing);
         row->capture_count = store_count(statement, SERIES_CAPTURES);
         row->indexed_count = store_count(statement, SERIES_INDEXED);
         row->study_instance_uid = store_list_text(list, statement, SERIES_UID, &failed);
@@ -219,8 +244,7 @@ static int exam_row_read(store_exam_list *list, exam_row *row,
         const char **key = store_key_field(row, columns);
         if (key != NULL)
             *key = store_list_text(list, statement, VALUES_KEY, &failed);
-        row->max_governing =
-            store_double(statement, VALUES_MAX_GOVERNING, &row->has_governing);
+        row->max_governing = store_double(statement, VALUES_MAX_GOVERNING, &row->has_governing);
         row->max_mi = store_double(statement, VALUES_MAX_MI, &row->has_mi);
         row->estimated_seconds = store_double(statement, VALUES_ESTIMATED, NULL);
         row->capture_count = store_count(statement, VALUES_CAPTURES);
@@ -276,8 +300,7 @@ static mitilog_status store_load_time_at_or_above(store *st, const char *from_da
 {
     static const char name[] = "queries/reports/stats_exam_time_at_or_above.sql";
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_period_statement(st, name, from_day, to_day, &statement,
-                                                   error);
+    mitilog_status status = store_period_statement(st, name, from_day, to_day, &statement, error);
     if (status == MITILOG_OK &&
         sqlite3_bind_double(statement, 3, exam_ti_ladder[EXAM_TI_STATISTICS_STEPS - 1]) !=
             SQLITE_OK)
@@ -307,13 +330,12 @@ static mitilog_status store_load_time_at_or_above(store *st, const char *from_da
 }
 
 static mitilog_status store_load_exams(store *st, store_exam_query query, const char *from_day,
-                                       const char *to_day, unsigned columns,
-                                       store_exam_list *list, mitilog_error *error)
+                                       const char *to_day, unsigned columns, store_exam_list *list,
+                                       mitilog_error *error)
 {
-    static const char *const names[] = {"queries/reports/stats_exam_rows.sql",
-                                        "queries/reports/stats_exam_values.sql",
-                                        "queries/reports/stats_exam_governing.sql",
-                                        "queries/reports/stats_exam_series.sql"};
+    static const char *const names[] = {
+        "queries/reports/stats_exam_rows.sql", "queries/reports/stats_exam_values.sql",
+        "queries/reports/stats_exam_governing.sql", "queries/reports/stats_exam_series.sql"};
     memset(list, 0, sizeof *list);
     if (st == NULL || from_day == NULL || to_day == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
@@ -321,13 +343,11 @@ static mitilog_status store_load_exams(store *st, store_exam_query query, const 
     sqlite3_stmt *statement = NULL;
     size_t capacity = 0;
     pthread_mutex_lock(&st->reader_lock);
-    mitilog_status status = store_period_statement(st, names[query], from_day, to_day,
-                                                   &statement, error);
+    mitilog_status status =
+        store_period_statement(st, names[query], from_day, to_day, &statement, error);
     if (status == MITILOG_OK && query == STORE_QUERY_VALUES &&
-        sqlite3_bind_text(statement, 3, store_key_name(columns), -1, SQLITE_STATIC) !=
-            SQLITE_OK)
-        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: bind failed",
-                                   names[query]);
+        sqlite3_bind_text(statement, 3, store_key_name(columns), -1, SQLITE_STATIC) != SQLITE_OK)
+        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: bind failed", names[query]);
     /* The rows and their times from one snapshot. */
     int timed = query == STORE_QUERY_ROWS || query == STORE_QUERY_VALUES;
     int in_transaction = 0;
@@ -365,8 +385,7 @@ static mitilog_status store_load_exams(store *st, store_exam_query query, const 
 }
 
 mitilog_status store_load_exam_rows(store *st, const char *from_day, const char *to_day,
-                                    unsigned columns, store_exam_list *list,
-                                    mitilog_error *error)
+                                    unsigned columns, store_exam_list *list, mitilog_error *error)
 {
     /* Without identity and detail columns and with at most one grouping
      * column, the short rows of stats_exam_values.sql do; the day with
@@ -381,9 +400,8 @@ mitilog_status store_load_exam_rows(store *st, const char *from_day, const char 
     return store_load_exams(st, query, from_day, to_day, columns, list, error);
 }
 
-mitilog_status store_load_exam_governing(store *st, const char *from_day,
-                                         const char *before_day, store_exam_list *list,
-                                         mitilog_error *error)
+mitilog_status store_load_exam_governing(store *st, const char *from_day, const char *before_day,
+                                         store_exam_list *list, mitilog_error *error)
 {
     return store_load_exams(st, STORE_QUERY_GOVERNING, from_day, before_day, 0, list, error);
 }
@@ -418,9 +436,8 @@ mitilog_status store_load_finding_counts(store *st, const char *from_day, const 
             char **uids = realloc(counts->study_instance_uids, grown_capacity * sizeof *uids);
             if (uids != NULL)
                 counts->study_instance_uids = uids;
-            exam_rule_count *grown = uids == NULL ? NULL
-                                                  : realloc(counts->counts,
-                                                            grown_capacity * sizeof *grown);
+            exam_rule_count *grown =
+                uids == NULL ? NULL : realloc(counts->counts, grown_capacity * sizeof *grown);
             if (grown == NULL) {
                 status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "findings: out of memory");
                 break;
@@ -465,10 +482,9 @@ mitilog_status store_load_period_info(store *st, const char *from_day, const cha
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_load_period_info: no store");
     sqlite3_stmt *statement = NULL;
     pthread_mutex_lock(&st->reader_lock);
-    mitilog_status status = store_period_statement(st, "queries/reports/stats_policy_info.sql",
-                                                   from_day ? from_day : "0000-00-00",
-                                                   to_day ? to_day : "9999-99-99",
-                                                   &statement, error);
+    mitilog_status status = store_period_statement(
+        st, "queries/reports/stats_policy_info.sql", from_day ? from_day : "0000-00-00",
+        to_day ? to_day : "9999-99-99", &statement, error);
     if (status == MITILOG_OK) {
         if (sqlite3_step(statement) != SQLITE_ROW) {
             status = store_sql_error(error, st->reader, "query period information");
@@ -500,8 +516,8 @@ mitilog_status store_load_day_range(store *st, char **first_day, char **last_day
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_load_day_range: no store");
     sqlite3_stmt *statement = NULL;
     pthread_mutex_lock(&st->reader_lock);
-    mitilog_status status = store_prepare(st->reader, "queries/reports/stats_day_range.sql", &statement,
-                                          error);
+    mitilog_status status =
+        store_prepare(st->reader, "queries/reports/stats_day_range.sql", &statement, error);
     if (status == MITILOG_OK) {
         if (sqlite3_step(statement) != SQLITE_ROW) {
             status = store_sql_error(error, st->reader, "query exam days");
@@ -531,8 +547,8 @@ mitilog_status store_ingest_json(store *st, int window_hours, int silent_hours, 
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_ingest_json: no store");
     sqlite3_stmt *statement = NULL;
     pthread_mutex_lock(&st->reader_lock);
-    mitilog_status status = store_prepare(st->reader, "queries/instances/ingest_status.sql",
-                                          &statement, error);
+    mitilog_status status =
+        store_prepare(st->reader, "queries/instances/ingest_status.sql", &statement, error);
     if (status == MITILOG_OK) {
         if (sqlite3_bind_int(statement, 1, window_hours) != SQLITE_OK ||
             sqlite3_bind_int(statement, 2, silent_hours) != SQLITE_OK ||

@@ -51,7 +51,8 @@ mitilog_status store_write_reading(store *st, const store_reading_request *readi
 static mitilog_status clear_older(store *st, sqlite3_int64 instance_id, char **stale_spool,
                                   mitilog_error *error)
 {
-    sqlite3_stmt *clear_queue = writer_statement(st, "queries/readings/reading_clear_queue.sql", error);
+    sqlite3_stmt *clear_queue =
+        writer_statement(st, "queries/readings/reading_clear_queue.sql", error);
     if (clear_queue == NULL)
         return MITILOG_ERROR_DATABASE;
     int rc = sqlite3_bind_int64(clear_queue, 1, instance_id);
@@ -85,7 +86,8 @@ static mitilog_status write_request(store *st, const store_reading_request *read
     int rc;
     files_utc_now(now, sizeof now);
     if (reading->not_read_reason == NULL) {
-        sqlite3_stmt *insert = writer_statement(st, "queries/readings/reading_queue_insert.sql", error);
+        sqlite3_stmt *insert =
+            writer_statement(st, "queries/readings/reading_queue_insert.sql", error);
         if (insert == NULL)
             return MITILOG_ERROR_DATABASE;
         rc = store_bind_int_named(st, insert, ":instance_id", instance_id);
@@ -131,15 +133,13 @@ static mitilog_status write_enqueue(store *st, const void *context, mitilog_erro
 {
     const enqueue_context *c = context;
     char *stale = NULL;
-    mitilog_status status =
-        store_write_reading(st, c->reading, c->instance_id, 1, &stale, error);
+    mitilog_status status = store_write_reading(st, c->reading, c->instance_id, 1, &stale, error);
     free(stale); /* a backfill never replaces a spool copy still queued */
     return status;
 }
 
 mitilog_status store_reading_enqueue(store *st, long long instance_id,
-                                     const store_reading_request *reading,
-                                     mitilog_error *error)
+                                     const store_reading_request *reading, mitilog_error *error)
 {
     if (st == NULL || reading == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "reading queue: nothing to queue");
@@ -200,7 +200,8 @@ static mitilog_status write_result(store *st, const void *context, mitilog_error
         c->stale = 1;
         return MITILOG_OK;
     }
-    sqlite3_stmt *upsert = writer_statement(st, "queries/readings/reading_result_upsert.sql", error);
+    sqlite3_stmt *upsert =
+        writer_statement(st, "queries/readings/reading_result_upsert.sql", error);
     if (upsert == NULL)
         return MITILOG_ERROR_DATABASE;
     char now[40];
@@ -214,7 +215,7 @@ static mitilog_status write_result(store *st, const void *context, mitilog_error
         rc = store_bind_text_named(st, upsert, ":profile_key", r->profile_key);
     if (rc == SQLITE_OK) {
         int i = store_parameter_index(st, upsert, ":profile_version");
-        rc = i == 0               ? SQLITE_RANGE
+        rc = i == 0           ? SQLITE_RANGE
              : r->profile_key ? sqlite3_bind_int(upsert, i, r->profile_version)
                               : sqlite3_bind_null(upsert, i);
     }
@@ -257,9 +258,9 @@ static char *column_copy(sqlite3_stmt *statement, int column, int *failed)
 
 /* Runs a list on the read connection: columns instance id, SOP UID, study
  * UID, path, then (queue only) owned and bytes. */
-static mitilog_status load_entries(store *st, const char *name, const char *from,
-                                   const char *to, store_reading_entry **entries,
-                                   size_t *count, mitilog_error *error)
+static mitilog_status load_entries(store *st, const char *name, const char *from, const char *to,
+                                   store_reading_entry **entries, size_t *count,
+                                   mitilog_error *error)
 {
     *entries = NULL;
     *count = 0;
@@ -316,15 +317,16 @@ static mitilog_status load_entries(store *st, const char *name, const char *from
 mitilog_status store_reading_queue_load(store *st, store_reading_entry **entries, size_t *count,
                                         mitilog_error *error)
 {
-    return load_entries(st, "queries/readings/reading_queue_list.sql", NULL, NULL, entries, count, error);
+    return load_entries(st, "queries/readings/reading_queue_list.sql", NULL, NULL, entries, count,
+                        error);
 }
 
 mitilog_status store_reading_backfill_candidates(store *st, const char *from, const char *to,
                                                  store_reading_entry **entries, size_t *count,
                                                  mitilog_error *error)
 {
-    return load_entries(st, "queries/readings/reading_backfill_candidates.sql", from, to, entries, count,
-                        error);
+    return load_entries(st, "queries/readings/reading_backfill_candidates.sql", from, to, entries,
+                        count, error);
 }
 
 void store_reading_entries_free(store_reading_entry *entries, size_t count)
@@ -340,8 +342,8 @@ void store_reading_entries_free(store_reading_entry *entries, size_t count)
 static mitilog_status write_index_source(store *st, const void *context, mitilog_error *error)
 {
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_prepare(st->writer, "queries/readings/index_source_set.sql", &statement,
-                                          error);
+    mitilog_status status =
+        store_prepare(st->writer, "queries/readings/index_source_set.sql", &statement, error);
     if (status != MITILOG_OK)
         return status;
     if (sqlite3_bind_text(statement, 1, context, -1, SQLITE_TRANSIENT) != SQLITE_OK ||
@@ -369,9 +371,9 @@ mitilog_status store_load_mismatches(store *st, const char *study_instance_uid,
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "mismatches: no study");
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_cached_statement(&st->reader_cache, st->reader,
-                                                   "queries/readings/reading_mismatches.sql", &statement,
-                                                   error);
+    mitilog_status status =
+        store_cached_statement(&st->reader_cache, st->reader,
+                               "queries/readings/reading_mismatches.sql", &statement, error);
     size_t capacity = 0;
     int failed = 0, rc = SQLITE_DONE;
     if (status == MITILOG_OK)

@@ -24,34 +24,37 @@ static int store_bind_text_or_null(sqlite3_stmt *statement, int index, const cha
 mitilog_status store_write_review(store *st, const store_review *review, mitilog_error *error)
 {
     sqlite3_stmt *insert = NULL;
-    mitilog_status status = store_prepare(st->writer, "queries/reviews/review_insert.sql", &insert, error);
+    mitilog_status status =
+        store_prepare(st->writer, "queries/reviews/review_insert.sql", &insert, error);
     if (status != MITILOG_OK)
         return status;
     int rc = store_bind_text_or_null(insert, 1, review->study_instance_uid);
     if (rc == SQLITE_OK)
         rc = review->finding_id > 0 ? sqlite3_bind_int64(insert, 2, review->finding_id)
                                     : sqlite3_bind_null(insert, 2);
-    if (rc == SQLITE_OK) rc = sqlite3_bind_text(insert, 3, review->outcome, -1, SQLITE_TRANSIENT);
+    if (rc == SQLITE_OK)
+        rc = sqlite3_bind_text(insert, 3, review->outcome, -1, SQLITE_TRANSIENT);
     if (rc == SQLITE_OK)
         rc = sqlite3_bind_text(insert, 4, review->comment != NULL ? review->comment : "", -1,
                                SQLITE_TRANSIENT);
-    if (rc == SQLITE_OK) rc = sqlite3_bind_text(insert, 5, review->reviewer, -1, SQLITE_TRANSIENT);
-    if (rc == SQLITE_OK) rc = sqlite3_bind_text(insert, 6, review->role, -1, SQLITE_TRANSIENT);
+    if (rc == SQLITE_OK)
+        rc = sqlite3_bind_text(insert, 5, review->reviewer, -1, SQLITE_TRANSIENT);
+    if (rc == SQLITE_OK)
+        rc = sqlite3_bind_text(insert, 6, review->role, -1, SQLITE_TRANSIENT);
     if (rc != SQLITE_OK)
         status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "review: bind: %s",
                                    sqlite3_errstr(rc));
     else if (sqlite3_step(insert) != SQLITE_DONE)
         status = store_sql_error(error, st->writer, "review");
     else if (sqlite3_changes(st->writer) == 0)
-        status = review->finding_id > 0
-                     ? mitilog_error_set(error, MITILOG_ERROR_NOT_FOUND,
-                                         "no finding %lld%s%s", review->finding_id,
-                                         review->study_instance_uid != NULL ? " in study " : "",
-                                         review->study_instance_uid != NULL
-                                             ? review->study_instance_uid
-                                             : "")
-                     : mitilog_error_set(error, MITILOG_ERROR_NOT_FOUND, "no study %s",
-                                         review->study_instance_uid);
+        status =
+            review->finding_id > 0
+                ? mitilog_error_set(
+                      error, MITILOG_ERROR_NOT_FOUND, "no finding %lld%s%s", review->finding_id,
+                      review->study_instance_uid != NULL ? " in study " : "",
+                      review->study_instance_uid != NULL ? review->study_instance_uid : "")
+                : mitilog_error_set(error, MITILOG_ERROR_NOT_FOUND, "no study %s",
+                                    review->study_instance_uid);
     sqlite3_finalize(insert);
     return status;
 }
@@ -59,8 +62,7 @@ mitilog_status store_write_review(store *st, const store_review *review, mitilog
 /* Runs a one-row, one-column query on the read connection (bound by
  * bind) and copies the text into *out. */
 static mitilog_status store_read_text(store *st, const char *name, const char *const *texts,
-                                      int count, const char *what, char **out,
-                                      mitilog_error *error)
+                                      int count, const char *what, char **out, mitilog_error *error)
 {
     *out = NULL;
     pthread_mutex_lock(&st->reader_lock);
@@ -89,8 +91,9 @@ mitilog_status store_reviews_text(store *st, const char *study, const char *from
     if (st == NULL || out == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_reviews_text: no store");
     const char *texts[] = {study, from, to};
-    return store_read_text(st, csv ? "queries/reviews/reviews_csv.sql" : "queries/reviews/reviews_json.sql", texts,
-                           3, "query reviews", out, error);
+    return store_read_text(
+        st, csv ? "queries/reviews/reviews_csv.sql" : "queries/reviews/reviews_json.sql", texts, 3,
+        "query reviews", out, error);
 }
 
 mitilog_status store_worklist_json(store *st, const char *monday, int is_default, char **json,
@@ -99,8 +102,8 @@ mitilog_status store_worklist_json(store *st, const char *monday, int is_default
     if (st == NULL || json == NULL || monday == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_worklist_json: no store");
     const char *texts[] = {monday, is_default ? "1" : "0"};
-    return store_read_text(st, "queries/reviews/review_worklist.sql", texts, 2, "query worklist", json,
-                           error);
+    return store_read_text(st, "queries/reviews/review_worklist.sql", texts, 2, "query worklist",
+                           json, error);
 }
 
 mitilog_status store_operators_json(store *st, const char *from, const char *to, char **json,
@@ -109,8 +112,8 @@ mitilog_status store_operators_json(store *st, const char *from, const char *to,
     if (st == NULL || json == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_operators_json: no store");
     const char *texts[] = {from, to};
-    return store_read_text(st, "queries/reviews/review_operators.sql", texts, 2, "query operators", json,
-                           error);
+    return store_read_text(st, "queries/reviews/review_operators.sql", texts, 2, "query operators",
+                           json, error);
 }
 
 mitilog_status store_load_baseline_span(store *st, const char *from_day, const char *before_day,
@@ -121,8 +124,8 @@ mitilog_status store_load_baseline_span(store *st, const char *from_day, const c
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "baseline span: no store or days");
     pthread_mutex_lock(&st->reader_lock);
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_prepare(st->reader, "queries/reports/baseline_span.sql", &statement,
-                                          error);
+    mitilog_status status =
+        store_prepare(st->reader, "queries/reports/baseline_span.sql", &statement, error);
     if (status == MITILOG_OK) {
         int rc = sqlite3_bind_text(statement, 1, from_day, -1, SQLITE_TRANSIENT);
         if (rc == SQLITE_OK)

@@ -10,8 +10,7 @@
 #include <stdlib.h>
 #include <string.h>
 
-static int bind_text_or_null(sqlite3_stmt *statement, const char *name,
-                             const char *value)
+static int bind_text_or_null(sqlite3_stmt *statement, const char *name, const char *value)
 {
     int index = sqlite3_bind_parameter_index(statement, name);
     if (index == 0)
@@ -38,10 +37,11 @@ static mitilog_status write_put(store *st, const void *context, mitilog_error *e
     put_context *put = (put_context *)context;
     const store_screen_profile_new *p = put->profile;
     sqlite3_stmt *next = NULL, *insert = NULL;
-    mitilog_status status = store_prepare(st->writer, "queries/devices/screen_profile_next_version.sql",
-                                          &next, error);
+    mitilog_status status =
+        store_prepare(st->writer, "queries/devices/screen_profile_next_version.sql", &next, error);
     if (status == MITILOG_OK)
-        status = store_prepare(st->writer, "queries/devices/screen_profile_insert.sql", &insert, error);
+        status =
+            store_prepare(st->writer, "queries/devices/screen_profile_insert.sql", &insert, error);
     if (status == MITILOG_OK) {
         int rc = bind_text_or_null(next, ":profile_key", p->key);
         if (rc == SQLITE_OK && sqlite3_step(next) == SQLITE_ROW)
@@ -51,21 +51,28 @@ static mitilog_status write_put(store *st, const void *context, mitilog_error *e
     }
     if (status == MITILOG_OK) {
         int rc = bind_text_or_null(insert, ":profile_key", p->key);
-        if (rc == SQLITE_OK) rc = bind_int(insert, ":version", put->version);
-        if (rc == SQLITE_OK) rc = bind_text_or_null(insert, ":manufacturer", p->manufacturer);
-        if (rc == SQLITE_OK) rc = bind_text_or_null(insert, ":model_name", p->model_name);
+        if (rc == SQLITE_OK)
+            rc = bind_int(insert, ":version", put->version);
+        if (rc == SQLITE_OK)
+            rc = bind_text_or_null(insert, ":manufacturer", p->manufacturer);
+        if (rc == SQLITE_OK)
+            rc = bind_text_or_null(insert, ":model_name", p->model_name);
         if (rc == SQLITE_OK)
             rc = bind_text_or_null(insert, ":software_versions", p->software_versions);
-        if (rc == SQLITE_OK) rc = bind_int(insert, ":rows", p->rows);
-        if (rc == SQLITE_OK) rc = bind_int(insert, ":columns", p->columns);
-        if (rc == SQLITE_OK) rc = bind_text_or_null(insert, ":profile_text", p->text);
-        if (rc == SQLITE_OK) rc = bind_text_or_null(insert, ":report", p->report);
+        if (rc == SQLITE_OK)
+            rc = bind_int(insert, ":rows", p->rows);
+        if (rc == SQLITE_OK)
+            rc = bind_int(insert, ":columns", p->columns);
+        if (rc == SQLITE_OK)
+            rc = bind_text_or_null(insert, ":profile_text", p->text);
+        if (rc == SQLITE_OK)
+            rc = bind_text_or_null(insert, ":report", p->report);
         if (rc == SQLITE_OK) {
             int index = sqlite3_bind_parameter_index(insert, ":example_image");
-            rc = p->example != NULL && p->example_size > 0
-                     ? sqlite3_bind_blob64(insert, index, p->example, p->example_size,
-                                           SQLITE_STATIC)
-                     : sqlite3_bind_null(insert, index);
+            rc =
+                p->example != NULL && p->example_size > 0
+                    ? sqlite3_bind_blob64(insert, index, p->example, p->example_size, SQLITE_STATIC)
+                    : sqlite3_bind_null(insert, index);
         }
         if (rc != SQLITE_OK || sqlite3_step(insert) != SQLITE_DONE)
             status = store_sql_error(error, st->writer, "store screen profile");
@@ -97,8 +104,8 @@ typedef struct state_context {
 
 /* Runs one prepared UPDATE with key (and version, who) bound; *changed gets
  * the rows it changed. */
-static mitilog_status run_update(store *st, const char *name, const state_context *c,
-                                 int *changed, mitilog_error *error)
+static mitilog_status run_update(store *st, const char *name, const state_context *c, int *changed,
+                                 mitilog_error *error)
 {
     sqlite3_stmt *statement = NULL;
     mitilog_status status = store_prepare(st->writer, name, &statement, error);
@@ -139,13 +146,13 @@ static mitilog_status write_activate(store *st, const void *context, mitilog_err
     if (status == MITILOG_OK && changed == 0)
         status = mitilog_error_set(error, MITILOG_ERROR_NOT_FOUND,
                                    "no screen profile %s version %d: list them with "
-                                   "'mitilog device list'", c.key, c.version);
+                                   "'mitilog device list'",
+                                   c.key, c.version);
     return status;
 }
 
 mitilog_status store_screen_profile_activate(store *st, const char *key, int version,
-                                             const char *confirmed_by,
-                                             mitilog_error *error)
+                                             const char *confirmed_by, mitilog_error *error)
 {
     if (st == NULL || key == NULL || version < 0)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
@@ -163,7 +170,8 @@ static mitilog_status write_retire(store *st, const void *context, mitilog_error
     if (status == MITILOG_OK && changed == 0)
         status = mitilog_error_set(error, MITILOG_ERROR_NOT_FOUND,
                                    "no proposed or active screen profile %s: list them "
-                                   "with 'mitilog device list'", c->key);
+                                   "with 'mitilog device list'",
+                                   c->key);
     return status;
 }
 
@@ -250,8 +258,7 @@ void store_screen_profile_row_free(store_screen_profile_row *row)
 }
 
 mitilog_status store_screen_profile_get(store *st, const char *key, int version,
-                                        store_screen_profile_row *row,
-                                        mitilog_error *error)
+                                        store_screen_profile_row *row, mitilog_error *error)
 {
     if (st == NULL || key == NULL || row == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
@@ -288,8 +295,8 @@ mitilog_status store_screen_profile_get(store *st, const char *key, int version,
         } else if (rc == SQLITE_DONE) {
             status = mitilog_error_set(error, MITILOG_ERROR_NOT_FOUND,
                                        "no screen profile %s%s: list them with "
-                                       "'mitilog device list'", key,
-                                       version ? " of that version" : "");
+                                       "'mitilog device list'",
+                                       key, version ? " of that version" : "");
         } else {
             status = store_sql_error(error, st->reader, "screen profile");
         }

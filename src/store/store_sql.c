@@ -12,27 +12,25 @@
 
 #include "store/sql_files.h"
 
-mitilog_status store_sql_error(mitilog_error *error, sqlite3 *db,
-                               const char *what)
+mitilog_status store_sql_error(mitilog_error *error, sqlite3 *db, const char *what)
 {
     if (db == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
-                                 "%s: out of memory", what);
-    return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: %s", what,
-                             sqlite3_errmsg(db));
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: out of memory", what);
+    return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: %s", what, sqlite3_errmsg(db));
 }
 
-mitilog_status store_prepare(sqlite3 *db, const char *name,
-                             sqlite3_stmt **statement, mitilog_error *error)
+mitilog_status store_prepare(sqlite3 *db, const char *name, sqlite3_stmt **statement,
+                             mitilog_error *error)
 {
     *statement = NULL;
     const char *text = sql_file_text(name);
     if (text == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
-                                 "SQL file %s is not built in", name);
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "SQL file %s is not built in",
+                                 name);
     const char *tail = NULL;
-    if (sqlite3_prepare_v3(db, text, -1, SQLITE_PREPARE_PERSISTENT, statement,
-                           &tail) != SQLITE_OK || *statement == NULL) {
+    if (sqlite3_prepare_v3(db, text, -1, SQLITE_PREPARE_PERSISTENT, statement, &tail) !=
+            SQLITE_OK ||
+        *statement == NULL) {
         mitilog_status status = store_sql_error(error, db, name);
         sqlite3_finalize(*statement);
         *statement = NULL;
@@ -41,8 +39,7 @@ mitilog_status store_prepare(sqlite3 *db, const char *name,
     /* A query file holds exactly one statement; anything after it but
      * comments and blanks would be silently ignored. */
     sqlite3_stmt *extra = NULL;
-    if (sqlite3_prepare_v2(db, tail, -1, &extra, NULL) != SQLITE_OK ||
-        extra != NULL) {
+    if (sqlite3_prepare_v2(db, tail, -1, &extra, NULL) != SQLITE_OK || extra != NULL) {
         sqlite3_finalize(extra);
         sqlite3_finalize(*statement);
         *statement = NULL;
@@ -52,10 +49,8 @@ mitilog_status store_prepare(sqlite3 *db, const char *name,
     return MITILOG_OK;
 }
 
-mitilog_status store_cached_statement(store_cache *cache, sqlite3 *db,
-                                      const char *name,
-                                      sqlite3_stmt **statement,
-                                      mitilog_error *error)
+mitilog_status store_cached_statement(store_cache *cache, sqlite3 *db, const char *name,
+                                      sqlite3_stmt **statement, mitilog_error *error)
 {
     for (size_t i = 0; i < cache->count; i++) {
         if (cache->names[i] == name || strcmp(cache->names[i], name) == 0) {
@@ -64,8 +59,7 @@ mitilog_status store_cached_statement(store_cache *cache, sqlite3 *db,
         }
     }
     if (cache->count == STORE_CACHE_MAX)
-        return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
-                                 "%s: statement cache full", name);
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: statement cache full", name);
     mitilog_status status = store_prepare(db, name, statement, error);
     if (status != MITILOG_OK)
         return status;
@@ -122,8 +116,8 @@ void store_cache_finalize(store_cache *cache)
     memset(cache, 0, sizeof *cache);
 }
 
-mitilog_status store_exec_text(sqlite3 *db, const char *name,
-                               const char *text, mitilog_error *error)
+mitilog_status store_exec_text(sqlite3 *db, const char *name, const char *text,
+                               mitilog_error *error)
 {
     const char *next = text;
     while (next != NULL && *next != '\0') {
@@ -147,13 +141,12 @@ mitilog_status store_exec_text(sqlite3 *db, const char *name,
     return MITILOG_OK;
 }
 
-mitilog_status store_exec_file(sqlite3 *db, const char *name,
-                               mitilog_error *error)
+mitilog_status store_exec_file(sqlite3 *db, const char *name, mitilog_error *error)
 {
     const char *text = sql_file_text(name);
     if (text == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
-                                 "SQL file %s is not built in", name);
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "SQL file %s is not built in",
+                                 name);
     return store_exec_text(db, name, text, error);
 }
 
@@ -166,18 +159,15 @@ int store_step_done(sqlite3_stmt *statement)
     return rc;
 }
 
-mitilog_status store_column_dup(sqlite3_stmt *statement, char **out,
-                                mitilog_error *error)
+mitilog_status store_column_dup(sqlite3_stmt *statement, char **out, mitilog_error *error)
 {
     const unsigned char *text = sqlite3_column_text(statement, 0);
     size_t length = (size_t)sqlite3_column_bytes(statement, 0);
     if (text == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
-                                 "query gave no text");
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "query gave no text");
     char *copy = malloc(length + 1);
     if (copy == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_MEMORY,
-                                 "out of memory for a %zu-byte result",
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory for a %zu-byte result",
                                  length);
     memcpy(copy, text, length);
     copy[length] = '\0';

@@ -59,10 +59,7 @@ static const char *store_time_source_name(ext_time_source source)
 /* 1 if text (may be NULL) is well-formed UTF-8: JSON output needs it. */
 static int store_is_utf8(const char *text) { return text == NULL || ext_text_is_utf8(text); }
 
-int store_is_text_utf8(const char *text)
-{
-    return store_is_utf8(text);
-}
+int store_is_text_utf8(const char *text) { return store_is_utf8(text); }
 
 /* Checks a value classification: a known status, a finite value when ok. */
 static int store_number_is_valid(exam_number number)
@@ -74,24 +71,20 @@ static int store_number_is_valid(exam_number number)
 
 /* Rejects records the schema would refuse or that could not be served as
  * JSON, before they reach the queue. */
-static mitilog_status store_check_record(const ext_record *record,
-                                         mitilog_error *error)
+static mitilog_status store_check_record(const ext_record *record, mitilog_error *error)
 {
     if (record == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no record");
     if (record->sop_instance_uid == NULL || record->sop_instance_uid[0] == 0)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "record without SOP Instance UID");
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "record without SOP Instance UID");
     if (record->sop_class_uid == NULL || record->sop_class_uid[0] == 0)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "%s: record without SOP Class UID",
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "%s: record without SOP Class UID",
                                  record->sop_instance_uid);
     if (memchr(record->acquired_at, 0, sizeof record->acquired_at) == NULL ||
         memchr(record->received_at, 0, sizeof record->received_at) == NULL ||
         store_time_source_name(record->acquired_at_source) == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "%s: bad acquisition or receipt time",
-                                 record->sop_instance_uid);
+                                 "%s: bad acquisition or receipt time", record->sop_instance_uid);
     int numbers_ok = store_number_is_valid(record->number_of_frames) &&
                      store_number_is_valid(record->frame_time_ms) &&
                      (record->number_of_frames.status != EXAM_VALUE_OK ||
@@ -99,40 +92,55 @@ static mitilog_status store_check_record(const ext_record *record,
     for (int i = 0; i < EXAM_INDEX_COUNT; i++)
         numbers_ok = numbers_ok && store_number_is_valid(record->indices[i]);
     if (!numbers_ok)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "%s: bad value classification",
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "%s: bad value classification",
                                  record->sop_instance_uid);
-    const char *texts[] = {
-        record->sop_class_uid, record->sop_instance_uid,
-        record->study_instance_uid, record->series_instance_uid,
-        record->modality, record->station_name,
-        record->institutional_department_name, record->study_description,
-        record->accession_number,
-        record->protocol_name, record->transfer_syntax_uid,
-        record->calling_ae_title, record->source_path, record->acquired_at,
-        record->received_at, record->index_raw[0], record->index_raw[1],
-        record->index_raw[2], record->index_raw[3], record->index_raw[4],
-        record->index_raw[5], record->specific_character_set,
-        record->image_type, record->series_description,
-        record->body_part_examined,
-        record->performed_procedure_step_description,
-        record->procedure_codes, record->transducer_data,
-        record->transducer_type, record->exam_type, record->exam_type_label,
-        record->preset, record->room, record->shift, record->operator_name,
-        record->gestational_age_source};
+    const char *texts[] = {record->sop_class_uid,
+                           record->sop_instance_uid,
+                           record->study_instance_uid,
+                           record->series_instance_uid,
+                           record->modality,
+                           record->station_name,
+                           record->institutional_department_name,
+                           record->study_description,
+                           record->accession_number,
+                           record->protocol_name,
+                           record->transfer_syntax_uid,
+                           record->calling_ae_title,
+                           record->source_path,
+                           record->acquired_at,
+                           record->received_at,
+                           record->index_raw[0],
+                           record->index_raw[1],
+                           record->index_raw[2],
+                           record->index_raw[3],
+                           record->index_raw[4],
+                           record->index_raw[5],
+                           record->specific_character_set,
+                           record->image_type,
+                           record->series_description,
+                           record->body_part_examined,
+                           record->performed_procedure_step_description,
+                           record->procedure_codes,
+                           record->transducer_data,
+                           record->transducer_type,
+                           record->exam_type,
+                           record->exam_type_label,
+                           record->preset,
+                           record->room,
+                           record->shift,
+                           record->operator_name,
+                           record->gestational_age_source};
     for (size_t i = 0; i < sizeof texts / sizeof texts[0]; i++) {
         if (!store_is_utf8(texts[i]))
             return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                     "%s: text attribute is not UTF-8",
-                                     record->sop_instance_uid);
+                                     "%s: text attribute is not UTF-8", record->sop_instance_uid);
     }
     return MITILOG_OK;
 }
 
 /* Binds text (NULL: SQL NULL) to the named parameter. SQLITE_STATIC: the
  * caller's record outlives the statement's use (bindings are cleared). */
-static int store_bind_text(store *st, sqlite3_stmt *statement, const char *name,
-                           const char *value)
+static int store_bind_text(store *st, sqlite3_stmt *statement, const char *name, const char *value)
 {
     int index = store_parameter_index(st, statement, name);
     if (index == 0)
@@ -156,25 +164,22 @@ static int store_bind_number(store *st, sqlite3_stmt *statement, const char *nam
     if (number.status != EXAM_VALUE_OK)
         rc = sqlite3_bind_null(statement, index);
     else if (integer)
-        rc = sqlite3_bind_int64(statement, index,
-                                (sqlite3_int64)number.value);
+        rc = sqlite3_bind_int64(statement, index, (sqlite3_int64)number.value);
     else
         rc = sqlite3_bind_double(statement, index, number.value);
     if (rc != SQLITE_OK)
         return rc;
     snprintf(parameter, sizeof parameter, ":%s_status", name);
-    return store_bind_text(st, statement, parameter,
-                           store_value_status_name(number.status));
+    return store_bind_text(st, statement, parameter, store_value_status_name(number.status));
 }
 
-int store_bind_text_named(store *st, sqlite3_stmt *statement, const char *name,
-                          const char *value)
+int store_bind_text_named(store *st, sqlite3_stmt *statement, const char *name, const char *value)
 {
     return store_bind_text(st, statement, name, value);
 }
 
-int store_bind_double_named(store *st, sqlite3_stmt *statement, const char *name,
-                            int present, double value)
+int store_bind_double_named(store *st, sqlite3_stmt *statement, const char *name, int present,
+                            double value)
 {
     int index = store_parameter_index(st, statement, name);
     if (index == 0)
@@ -184,8 +189,7 @@ int store_bind_double_named(store *st, sqlite3_stmt *statement, const char *name
     return sqlite3_bind_double(statement, index, value);
 }
 
-int store_bind_int_named(store *st, sqlite3_stmt *statement, const char *name,
-                         sqlite3_int64 value)
+int store_bind_int_named(store *st, sqlite3_stmt *statement, const char *name, sqlite3_int64 value)
 {
     int index = store_parameter_index(st, statement, name);
     if (index == 0)
@@ -199,13 +203,10 @@ static const char *store_bitmap_status_name(int status)
 }
 
 /* Binds the exam-context columns (migration 002) from record. */
-static int store_bind_context(store *st, sqlite3_stmt *statement,
-                              const ext_record *record)
+static int store_bind_context(store *st, sqlite3_stmt *statement, const ext_record *record)
 {
-    static const char *const kinds[] = {"other", "image", "multiframe",
-                                        "volume", "sr"};
-    const char *kind = (unsigned)record->kind < 5 ? kinds[record->kind]
-                                                  : "other";
+    static const char *const kinds[] = {"other", "image", "multiframe", "volume", "sr"};
+    const char *kind = (unsigned)record->kind < 5 ? kinds[record->kind] : "other";
     const struct {
         const char *name;
         const char *value;
@@ -215,28 +216,22 @@ static int store_bind_context(store *st, sqlite3_stmt *statement,
         {":image_type", record->image_type},
         {":series_description", record->series_description},
         {":body_part_examined", record->body_part_examined},
-        {":performed_procedure_step_description",
-         record->performed_procedure_step_description},
+        {":performed_procedure_step_description", record->performed_procedure_step_description},
         {":procedure_codes", record->procedure_codes},
-        {":image_type_bitmap_status",
-         store_bitmap_status_name(record->image_type_bitmap_status)},
+        {":image_type_bitmap_status", store_bitmap_status_name(record->image_type_bitmap_status)},
         {":transducer_data", record->transducer_data},
         {":transducer_source", record->transducer_source},
         {":transducer_type", record->transducer_type},
-        {":frequency_source",
-         record->has_frequency ? record->frequency_source : NULL},
+        {":frequency_source", record->has_frequency ? record->frequency_source : NULL},
         {":exam_type", record->exam_type},
         {":exam_type_label", record->exam_type_label},
         {":exam_type_source", record->exam_type_source},
-        {":governing_index", record->has_governing_index
-                                 ? exam_index_name(record->governing_index)
-                                 : NULL},
-        {":governing_index_source", record->has_governing_index
-                                        ? record->governing_index_source
-                                        : NULL},
-        {":gestational_age_source", record->has_gestational_age
-                                        ? record->gestational_age_source
-                                        : NULL},
+        {":governing_index",
+         record->has_governing_index ? exam_index_name(record->governing_index) : NULL},
+        {":governing_index_source",
+         record->has_governing_index ? record->governing_index_source : NULL},
+        {":gestational_age_source",
+         record->has_gestational_age ? record->gestational_age_source : NULL},
         {":preset", record->preset},
         {":preset_source", record->preset_source},
         {":room", record->room},
@@ -247,13 +242,10 @@ static int store_bind_context(store *st, sqlite3_stmt *statement,
         {":age_group_source", record->age_group_source},
         {":operator_name", record->operator_name},
         {":operator_source", record->operator_source},
-        {":overlong_fields", record->overlong_fields[0] != '\0'
-                                 ? record->overlong_fields
-                                 : NULL},
+        {":overlong_fields", record->overlong_fields[0] != '\0' ? record->overlong_fields : NULL},
     };
     int rc = SQLITE_OK;
-    for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0];
-         i++)
+    for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0]; i++)
         rc = store_bind_text(st, statement, texts[i].name, texts[i].value);
     if (rc == SQLITE_OK)
         rc = store_bind_int_named(st, statement, ":has_acoustic_record",
@@ -272,30 +264,24 @@ static int store_bind_context(store *st, sqlite3_stmt *statement,
                                         record->image_type_bitmap)
                  : store_bind_text(st, statement, ":image_type_bitmap", NULL);
     if (rc == SQLITE_OK)
-        rc = store_bind_int_named(st, statement, ":modes_conflict",
-                                  record->modes_conflict ? 1 : 0);
+        rc = store_bind_int_named(st, statement, ":modes_conflict", record->modes_conflict ? 1 : 0);
     if (rc == SQLITE_OK)
         rc = record->has_frequency
-                 ? store_bind_int_named(st, statement, ":frequency_khz",
-                                        record->frequency_khz)
+                 ? store_bind_int_named(st, statement, ":frequency_khz", record->frequency_khz)
                  : store_bind_text(st, statement, ":frequency_khz", NULL);
     if (rc == SQLITE_OK)
-        rc = store_bind_double_named(st, statement, ":cine_seconds",
-                                     record->cine_seconds > 0,
+        rc = store_bind_double_named(st, statement, ":cine_seconds", record->cine_seconds > 0,
                                      record->cine_seconds);
     if (rc == SQLITE_OK)
         rc = store_bind_double_named(st, statement, ":gestational_age_weeks",
-                                     record->has_gestational_age,
-                                     record->gestational_age_weeks);
+                                     record->has_gestational_age, record->gestational_age_weeks);
     if (rc == SQLITE_OK)
-        rc = store_bind_int_named(st, statement, ":text_replaced",
-                                  record->text_replaced ? 1 : 0);
+        rc = store_bind_int_named(st, statement, ":text_replaced", record->text_replaced ? 1 : 0);
     return rc;
 }
 
 /* Binds every parameter of queries/instances/instance_upsert.sql from record. */
-static int store_bind_instance(store *st, sqlite3_stmt *statement,
-                               const ext_record *record)
+static int store_bind_instance(store *st, sqlite3_stmt *statement, const ext_record *record)
 {
     const struct {
         const char *name;
@@ -307,39 +293,31 @@ static int store_bind_instance(store *st, sqlite3_stmt *statement,
         {":series_instance_uid", record->series_instance_uid},
         {":modality", record->modality},
         {":station_name", record->station_name},
-        {":institutional_department_name",
-         record->institutional_department_name},
+        {":institutional_department_name", record->institutional_department_name},
         {":study_description", record->study_description},
         {":accession_number", record->accession_number},
         {":protocol_name", record->protocol_name},
         {":transfer_syntax_uid", record->transfer_syntax_uid},
         {":calling_ae_title", record->calling_ae_title},
         {":source_path", record->source_path},
-        {":acquired_at",
-         record->acquired_at[0] != 0 ? record->acquired_at : NULL},
-        {":acquired_at_source",
-         store_time_source_name(record->acquired_at_source)},
+        {":acquired_at", record->acquired_at[0] != 0 ? record->acquired_at : NULL},
+        {":acquired_at_source", store_time_source_name(record->acquired_at_source)},
         {":received_at", record->received_at},
     };
     int rc = SQLITE_OK;
-    for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0];
-         i++)
+    for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0]; i++)
         rc = store_bind_text(st, statement, texts[i].name, texts[i].value);
     if (rc == SQLITE_OK)
-        rc = store_bind_number(st, statement, "number_of_frames",
-                               record->number_of_frames, 1);
+        rc = store_bind_number(st, statement, "number_of_frames", record->number_of_frames, 1);
     if (rc == SQLITE_OK)
-        rc = store_bind_number(st, statement, "frame_time_ms",
-                               record->frame_time_ms, 0);
+        rc = store_bind_number(st, statement, "frame_time_ms", record->frame_time_ms, 0);
     if (rc == SQLITE_OK)
-        rc = sqlite3_bind_int(statement,
-                              store_parameter_index(st, statement,
-                                                           ":is_ultrasound"),
+        rc = sqlite3_bind_int(statement, store_parameter_index(st, statement, ":is_ultrasound"),
                               record->is_ultrasound ? 1 : 0);
     for (int i = 0; rc == SQLITE_OK && i < EXAM_INDEX_COUNT; i++) {
         char parameter[64];
-        rc = store_bind_number(st, statement, exam_index_name((exam_index)i),
-                               record->indices[i], 0);
+        rc =
+            store_bind_number(st, statement, exam_index_name((exam_index)i), record->indices[i], 0);
         snprintf(parameter, sizeof parameter, ":%s_raw", exam_index_name((exam_index)i));
         if (rc == SQLITE_OK)
             rc = store_bind_text(st, statement, parameter, record->index_raw[i]);
@@ -350,36 +328,29 @@ static int store_bind_instance(store *st, sqlite3_stmt *statement,
 }
 
 /* Writes one instance row (inside the batch's transaction). */
-static mitilog_status store_write_instance(store *st,
-                                           store_request *request)
+static mitilog_status store_write_instance(store *st, store_request *request)
 {
     sqlite3_stmt *statement = st->write.upsert_instance;
     const ext_record *record = request->record;
     mitilog_status status = MITILOG_OK;
     int rc = store_bind_instance(st, statement, record);
     if (rc != SQLITE_OK) {
-        status = mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE,
-                                   "%s: bind: %s", record->sop_instance_uid,
-                                   sqlite3_errstr(rc));
+        status = mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE, "%s: bind: %s",
+                                   record->sop_instance_uid, sqlite3_errstr(rc));
     } else if ((rc = sqlite3_step(statement)) != SQLITE_ROW) {
-        status = mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE,
-                                   "%s: store instance: %s",
-                                   record->sop_instance_uid,
-                                   sqlite3_errmsg(st->writer));
+        status =
+            mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE, "%s: store instance: %s",
+                              record->sop_instance_uid, sqlite3_errmsg(st->writer));
     } else {
-        request->outcome = sqlite3_column_int64(statement, 0) > 0
-                               ? STORE_PUT_REPLACED
-                               : STORE_PUT_INSERTED;
+        request->outcome =
+            sqlite3_column_int64(statement, 0) > 0 ? STORE_PUT_REPLACED : STORE_PUT_INSERTED;
         sqlite3_int64 instance_id = sqlite3_column_int64(statement, 1);
         if ((rc = store_step_done(statement)) != SQLITE_DONE)
-            status = mitilog_error_set(&request->error,
-                                       MITILOG_ERROR_DATABASE,
-                                       "%s: store instance: %s",
-                                       record->sop_instance_uid,
-                                       sqlite3_errmsg(st->writer));
+            status =
+                mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE, "%s: store instance: %s",
+                                  record->sop_instance_uid, sqlite3_errmsg(st->writer));
         else
-            status = store_write_context(st, record, request->header,
-                                         instance_id, &request->error);
+            status = store_write_context(st, record, request->header, instance_id, &request->error);
         request->instance_id = instance_id;
         if (status == MITILOG_OK) {
             free(request->stale_spool);
@@ -396,8 +367,7 @@ static mitilog_status store_write_instance(store *st,
 
 /* Writes one rejection row (inside the batch's transaction); NULL fields
  * are stored as "". */
-static mitilog_status store_write_rejection(store *st,
-                                            store_request *request)
+static mitilog_status store_write_rejection(store *st, store_request *request)
 {
     sqlite3_stmt *statement = st->write.insert_rejection;
     const store_rejection *rejection = request->rejection;
@@ -417,16 +387,14 @@ static mitilog_status store_write_rejection(store *st,
     };
 #undef STORE_TEXT
     int rc = SQLITE_OK;
-    for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0];
-         i++)
+    for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0]; i++)
         rc = store_bind_text(st, statement, texts[i].name, texts[i].value);
     mitilog_status status = MITILOG_OK;
     if (rc != SQLITE_OK)
-        status = mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE,
-                                   "rejection: bind: %s", sqlite3_errstr(rc));
+        status = mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE, "rejection: bind: %s",
+                                   sqlite3_errstr(rc));
     else if (store_step_done(statement) != SQLITE_DONE)
-        status = mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE,
-                                   "store rejection: %s",
+        status = mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE, "store rejection: %s",
                                    sqlite3_errmsg(st->writer));
     sqlite3_reset(statement);
     sqlite3_clear_bindings(statement);
@@ -434,15 +402,12 @@ static mitilog_status store_write_rejection(store *st,
 }
 
 /* Fails every request of the batch that has not failed on its own. */
-static void store_fail_batch(store_request *batch, const char *what,
-                             const char *message)
+static void store_fail_batch(store_request *batch, const char *what, const char *message)
 {
-    for (store_request *request = batch; request != NULL;
-         request = request->next) {
+    for (store_request *request = batch; request != NULL; request = request->next) {
         if (request->status == MITILOG_OK)
-            request->status = mitilog_error_set(
-                &request->error, MITILOG_ERROR_DATABASE, "%s: %s", what,
-                message);
+            request->status =
+                mitilog_error_set(&request->error, MITILOG_ERROR_DATABASE, "%s: %s", what, message);
     }
 }
 
@@ -500,10 +465,10 @@ static mitilog_status store_write_one(store *st, store_request *request)
     request->outcome = STORE_PUT_INSERTED;
     memset(&request->counts, 0, sizeof request->counts);
     request->error.text[0] = '\0';
-    return request->record != NULL ? store_write_instance(st, request)
-           : request->exam != NULL ? store_write_exam_summarised(st, request)
+    return request->record != NULL       ? store_write_instance(st, request)
+           : request->exam != NULL       ? store_write_exam_summarised(st, request)
            : request->evaluation != NULL ? store_write_evaluated(st, request)
-           : request->policy != NULL ? store_write_policy(st, request->policy, &request->error)
+           : request->policy != NULL     ? store_write_policy(st, request->policy, &request->error)
            : request->custom != NULL ? request->custom(st, request->custom_context, &request->error)
            : request->review != NULL ? store_write_review(st, request->review, &request->error)
                                      : store_write_rejection(st, request);
@@ -576,8 +541,7 @@ static void store_write_batch(store *st, store_request *batch)
     for (store_request *request = batch; request != NULL; request = request->next)
         request->status = MITILOG_OK;
     int failed_alone = 0;
-    if (store_write_together(st, batch, &failed_alone) == 0 || !failed_alone ||
-        batch->next == NULL)
+    if (store_write_together(st, batch, &failed_alone) == 0 || !failed_alone || batch->next == NULL)
         return;
     for (store_request *request = batch; request != NULL; request = request->next) {
         store_request *next = request->next;
@@ -590,8 +554,7 @@ static void store_write_batch(store *st, store_request *batch)
 
 /* Queues request and waits until a committed (or failed) batch holds it;
  * leads the next batch when nobody else is writing. */
-static mitilog_status store_submit(store *st, store_request *request,
-                                   mitilog_error *error)
+static mitilog_status store_submit(store *st, store_request *request, mitilog_error *error)
 {
     request->next = NULL;
     request->done = 0;
@@ -613,8 +576,7 @@ static mitilog_status store_submit(store *st, store_request *request,
         st->leader_active = 1;
         store_request *batch = st->queue_head;
         store_request *last = batch;
-        for (int count = 1; count < STORE_BATCH_MAX && last->next != NULL;
-             count++)
+        for (int count = 1; count < STORE_BATCH_MAX && last->next != NULL; count++)
             last = last->next;
         st->queue_head = last->next;
         if (st->queue_head == NULL)
@@ -639,10 +601,8 @@ static mitilog_status store_submit(store *st, store_request *request,
     return request->status;
 }
 
-mitilog_status store_put_instance(store *st, const ext_record *record,
-                                  const store_bytes *header,
-                                  store_put_outcome *outcome,
-                                  mitilog_error *error)
+mitilog_status store_put_instance(store *st, const ext_record *record, const store_bytes *header,
+                                  store_put_outcome *outcome, mitilog_error *error)
 {
     if (st == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no store");
@@ -650,8 +610,7 @@ mitilog_status store_put_instance(store *st, const ext_record *record,
     if (status != MITILOG_OK)
         return status;
     if (header != NULL && (header->data == NULL || header->size == 0))
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "%s: empty header copy",
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "%s: empty header copy",
                                  record->sop_instance_uid);
     store_request request = {.record = record, .header = header};
     status = store_submit(st, &request, error);
@@ -666,9 +625,8 @@ mitilog_status store_put_instance(store *st, const ext_record *record,
 mitilog_status store_put_instance_read(store *st, const ext_record *record,
                                        const store_bytes *header,
                                        const store_reading_request *reading,
-                                       store_put_outcome *outcome,
-                                       long long *instance_id, char **stale_spool,
-                                       mitilog_error *error)
+                                       store_put_outcome *outcome, long long *instance_id,
+                                       char **stale_spool, mitilog_error *error)
 {
     if (st == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no store");
@@ -678,8 +636,7 @@ mitilog_status store_put_instance_read(store *st, const ext_record *record,
     if (status != MITILOG_OK)
         return status;
     if (header != NULL && (header->data == NULL || header->size == 0))
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "%s: empty header copy",
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "%s: empty header copy",
                                  record->sop_instance_uid);
     store_request request = {.record = record, .header = header, .reading = reading};
     status = store_submit(st, &request, error);
@@ -699,18 +656,14 @@ static mitilog_status store_check_exam(const store_exam *exam, mitilog_error *er
 {
     if (exam == NULL || exam->exam == NULL || exam->study_instance_uid == NULL ||
         exam->study_instance_uid[0] == 0)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "store_put_exam: no exam or study");
-    if (!store_is_utf8(exam->study_instance_uid) ||
-        !store_is_utf8(exam->exam->exam_type_source) ||
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_put_exam: no exam or study");
+    if (!store_is_utf8(exam->study_instance_uid) || !store_is_utf8(exam->exam->exam_type_source) ||
         !store_is_utf8(exam->exam->gestational_age_source))
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "exam: text is not UTF-8");
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "exam: text is not UTF-8");
     return MITILOG_OK;
 }
 
-mitilog_status store_put_exam(store *st, const store_exam *exam,
-                              mitilog_error *error)
+mitilog_status store_put_exam(store *st, const store_exam *exam, mitilog_error *error)
 {
     if (st == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_put_exam: no store");
@@ -721,10 +674,8 @@ mitilog_status store_put_exam(store *st, const store_exam *exam,
     return store_submit(st, &request, error);
 }
 
-mitilog_status store_put_evaluation(store *st,
-                                    const store_evaluation *evaluation,
-                                    store_evaluation_counts *counts,
-                                    mitilog_error *error)
+mitilog_status store_put_evaluation(store *st, const store_evaluation *evaluation,
+                                    store_evaluation_counts *counts, mitilog_error *error)
 {
     if (st == NULL || evaluation == NULL || evaluation->policy_version == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
@@ -745,8 +696,7 @@ mitilog_status store_put_evaluation(store *st,
     return status;
 }
 
-mitilog_status store_register_policy(store *st, const store_policy *policy,
-                                     mitilog_error *error)
+mitilog_status store_register_policy(store *st, const store_policy *policy, mitilog_error *error)
 {
     if (st == NULL || policy == NULL || policy->version == NULL ||
         strlen(policy->version) >= sizeof st->active_policy)
@@ -756,8 +706,7 @@ mitilog_status store_register_policy(store *st, const store_policy *policy,
     mitilog_status status = store_submit(st, &request, error);
     if (status == MITILOG_OK) {
         pthread_mutex_lock(&st->reader_lock);
-        snprintf(st->active_policy, sizeof st->active_policy, "%s",
-                 policy->version);
+        snprintf(st->active_policy, sizeof st->active_policy, "%s", policy->version);
         pthread_mutex_unlock(&st->reader_lock);
     }
     return status;
@@ -785,16 +734,13 @@ mitilog_status store_put_review(store *st, const store_review *review, mitilog_e
     return store_submit(st, &request, error);
 }
 
-mitilog_status store_put_rejection(store *st,
-                                   const store_rejection *rejection,
+mitilog_status store_put_rejection(store *st, const store_rejection *rejection,
                                    mitilog_error *error)
 {
     if (st == NULL || rejection == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "no store or no rejection");
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no store or no rejection");
     if (rejection->reason == NULL || rejection->reason[0] == '\0')
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "rejection without a reason");
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "rejection without a reason");
     store_request request = {.rejection = rejection};
     return store_submit(st, &request, error);
 }
@@ -814,11 +760,9 @@ mitilog_status store_write_prepare(store *st, mitilog_error *error)
         {"queries/instances/sr_value_insert.sql", &st->write.insert_sr_value},
         {"queries/exams/exam_upsert.sql", &st->write.upsert_exam},
         {"queries/exams/exam_timeline_delete.sql", &st->write.delete_timeline},
-        {"queries/exams/exam_mode_maxima_delete.sql",
-         &st->write.delete_mode_maxima},
+        {"queries/exams/exam_mode_maxima_delete.sql", &st->write.delete_mode_maxima},
         {"queries/exams/exam_timeline_insert.sql", &st->write.insert_timeline},
-        {"queries/exams/exam_mode_maximum_insert.sql",
-         &st->write.insert_mode_maximum},
+        {"queries/exams/exam_mode_maximum_insert.sql", &st->write.insert_mode_maximum},
         {"queries/instances/instance_header_upsert.sql", &st->write.upsert_header},
         {"queries/instances/instance_header_delete.sql", &st->write.delete_header},
         {"queries/exams/exam_summary_delete.sql", &st->write.summary_delete},
@@ -827,8 +771,7 @@ mitilog_status store_write_prepare(store *st, mitilog_error *error)
         {"queries/exams/exam_time_at_or_above_insert.sql", &st->write.times_insert},
     };
     for (size_t i = 0; i < sizeof files / sizeof files[0]; i++) {
-        mitilog_status status = store_prepare(st->writer, files[i].name,
-                                              files[i].statement, error);
+        mitilog_status status = store_prepare(st->writer, files[i].name, files[i].statement, error);
         if (status != MITILOG_OK)
             return status;
     }
@@ -837,16 +780,24 @@ mitilog_status store_write_prepare(store *st, mitilog_error *error)
 
 void store_write_finalize(store *st)
 {
-    sqlite3_stmt **statements[] = {
-        &st->write.begin, &st->write.commit, &st->write.rollback,
-        &st->write.upsert_instance,
-        &st->write.insert_rejection, &st->write.delete_sr_values,
-        &st->write.insert_sr_value, &st->write.upsert_exam,
-        &st->write.delete_timeline, &st->write.delete_mode_maxima,
-        &st->write.insert_timeline, &st->write.insert_mode_maximum,
-        &st->write.upsert_header, &st->write.delete_header,
-        &st->write.summary_delete, &st->write.summary_insert, &st->write.times_delete,
-        &st->write.times_insert};
+    sqlite3_stmt **statements[] = {&st->write.begin,
+                                   &st->write.commit,
+                                   &st->write.rollback,
+                                   &st->write.upsert_instance,
+                                   &st->write.insert_rejection,
+                                   &st->write.delete_sr_values,
+                                   &st->write.insert_sr_value,
+                                   &st->write.upsert_exam,
+                                   &st->write.delete_timeline,
+                                   &st->write.delete_mode_maxima,
+                                   &st->write.insert_timeline,
+                                   &st->write.insert_mode_maximum,
+                                   &st->write.upsert_header,
+                                   &st->write.delete_header,
+                                   &st->write.summary_delete,
+                                   &st->write.summary_insert,
+                                   &st->write.times_delete,
+                                   &st->write.times_insert};
     for (size_t i = 0; i < sizeof statements / sizeof statements[0]; i++) {
         sqlite3_finalize(*statements[i]);
         *statements[i] = NULL;

@@ -65,8 +65,8 @@ static int store_exam_bind(store *st, sqlite3_stmt *statement, const store_exam 
         {":sr_scan_time_seconds", exam->sr_scan_time_seconds > 0, exam->sr_scan_time_seconds},
     };
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof reals / sizeof reals[0]; i++)
-        rc = store_bind_double_named(st, statement, reals[i].name, reals[i].present,
-                                     reals[i].value);
+        rc =
+            store_bind_double_named(st, statement, reals[i].name, reals[i].present, reals[i].value);
     /* NOT NULL columns: a non-finite sum must not become NULL silently. */
     for (size_t i = 7; rc == SQLITE_OK && i <= 11; i++)
         if (!isfinite(reals[i].value))
@@ -124,7 +124,8 @@ static int store_exam_children(store *st, const store_exam *input)
             if (rc == SQLITE_OK)
                 rc = store_bind_int_named(st, statement, ":rank", m);
             if (rc == SQLITE_OK)
-                rc = store_bind_text_named(st, statement, ":index_name", exam_index_name((exam_index)x));
+                rc = store_bind_text_named(st, statement, ":index_name",
+                                           exam_index_name((exam_index)x));
             if (rc == SQLITE_OK)
                 rc = store_bind_double_named(st, statement, ":max_value", 1, maximum.value);
             rc = store_exam_step(statement, rc);

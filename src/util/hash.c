@@ -30,8 +30,8 @@ mitilog_status hash_hmac_hex(const char *key, const char *text, char out[HASH_HE
 {
     unsigned char digest[EVP_MAX_MD_SIZE];
     unsigned length = 0;
-    if (HMAC(EVP_sha256(), key, (int)strlen(key), (const unsigned char *)text, strlen(text),
-             digest, &length) == NULL)
+    if (HMAC(EVP_sha256(), key, (int)strlen(key), (const unsigned char *)text, strlen(text), digest,
+             &length) == NULL)
         return MITILOG_ERROR_MEMORY;
     hex_encode(digest, length, out);
     return MITILOG_OK;

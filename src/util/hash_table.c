@@ -50,8 +50,8 @@ const hash_entry *hash_table_find(const hash_table *table, const void *key, size
 {
     if (table->count == 0)
         return NULL;
-    size_t slot = hash_table_slot(table->slots, table->slot_count, hash_fnv1a(key, key_size),
-                                  key, key_size);
+    size_t slot =
+        hash_table_slot(table->slots, table->slot_count, hash_fnv1a(key, key_size), key, key_size);
     return table->slots[slot].key != NULL ? &table->slots[slot] : NULL;
 }
 
@@ -74,8 +74,8 @@ static mitilog_status hash_table_grow(hash_table *table)
     return MITILOG_OK;
 }
 
-mitilog_status hash_table_put(hash_table *table, const void *key, size_t key_size,
-                              uint64_t number, const void *pointer)
+mitilog_status hash_table_put(hash_table *table, const void *key, size_t key_size, uint64_t number,
+                              const void *pointer)
 {
     uint64_t hash = hash_fnv1a(key, key_size);
     if (table->count > 0) {

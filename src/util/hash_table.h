@@ -24,18 +24,18 @@ extern "C" {
 #endif
 
 typedef struct hash_entry {
-    unsigned char *key;         /* the table's copy; NULL: empty slot */
+    unsigned char *key; /* the table's copy; NULL: empty slot */
     size_t key_size;
-    uint64_t hash;              /* hash_fnv1a of the key */
-    uint64_t number;            /* the values */
-    const void *pointer;        /* borrowed */
+    uint64_t hash;       /* hash_fnv1a of the key */
+    uint64_t number;     /* the values */
+    const void *pointer; /* borrowed */
 } hash_entry;
 
 typedef struct hash_table {
     hash_entry *slots;
-    size_t slot_count;          /* 0 or a power of two */
-    size_t count;               /* entries held */
-    size_t limit;               /* 0: none */
+    size_t slot_count; /* 0 or a power of two */
+    size_t count;      /* entries held */
+    size_t limit;      /* 0: none */
 } hash_table;
 
 /* An empty table; limit 0: grows without bound. */
@@ -48,8 +48,8 @@ const hash_entry *hash_table_find(const hash_table *table, const void *key, size
 /* Adds key with its values, or replaces the values of a key already held.
  * MITILOG_ERROR_MEMORY when a copy or the slots cannot be allocated (the
  * table is then unchanged, or emptied when it was a full cache). */
-mitilog_status hash_table_put(hash_table *table, const void *key, size_t key_size,
-                              uint64_t number, const void *pointer);
+mitilog_status hash_table_put(hash_table *table, const void *key, size_t key_size, uint64_t number,
+                              const void *pointer);
 
 #ifdef __cplusplus
 }

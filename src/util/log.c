@@ -36,8 +36,8 @@ static void log_write(log_level level, const char *format, va_list arguments)
     gettimeofday(&now, NULL);
     gmtime_r(&now.tv_sec, &broken);
     int used = (int)strftime(line, sizeof line, "%Y-%m-%dT%H:%M:%S", &broken);
-    used += snprintf(line + used, sizeof line - (size_t)used, ".%03ldZ %s: ",
-                     (long)(now.tv_usec / 1000), labels[level]);
+    used += snprintf(line + used, sizeof line - (size_t)used,
+                     ".%03ldZ %s: ", (long)(now.tv_usec / 1000), labels[level]);
     char message[2048];
     vsnprintf(message, sizeof message, format, arguments);
     /* One event, one line: control characters from anywhere (an AE title,
@@ -59,13 +59,13 @@ static void log_write(log_level level, const char *format, va_list arguments)
     funlockfile(stderr);
 }
 
-#define LOG_DEFINE(name, level)                                              \
-    void name(const char *format, ...)                                       \
-    {                                                                        \
-        va_list arguments;                                                   \
-        va_start(arguments, format);                                         \
-        log_write(level, format, arguments);                                 \
-        va_end(arguments);                                                   \
+#define LOG_DEFINE(name, level)                                                                    \
+    void name(const char *format, ...)                                                             \
+    {                                                                                              \
+        va_list arguments;                                                                         \
+        va_start(arguments, format);                                                               \
+        log_write(level, format, arguments);                                                       \
+        va_end(arguments);                                                                         \
     }
 
 LOG_DEFINE(log_debug, LOG_LEVEL_DEBUG)

@@ -4,8 +4,8 @@
 #include <stdio.h>
 #include <string.h>
 
-mitilog_status mitilog_error_set(mitilog_error *error, mitilog_status status,
-                                 const char *format, ...)
+mitilog_status mitilog_error_set(mitilog_error *error, mitilog_status status, const char *format,
+                                 ...)
 {
     if (error != NULL) {
         va_list arguments;
@@ -16,8 +16,8 @@ mitilog_status mitilog_error_set(mitilog_error *error, mitilog_status status,
     return status;
 }
 
-mitilog_status mitilog_error_append(mitilog_error *error, mitilog_status status,
-                                    const char *format, ...)
+mitilog_status mitilog_error_append(mitilog_error *error, mitilog_status status, const char *format,
+                                    ...)
 {
     static const char more[] = "\n(more errors not shown)";
     if (error == NULL)

@@ -35,17 +35,15 @@ typedef struct mitilog_error {
 
 /* printf-style; safe with error == NULL. Returns status for chaining:
  * return mitilog_error_set(error, MITILOG_ERROR_IO, "open %s", path); */
-mitilog_status mitilog_error_set(mitilog_error *error, mitilog_status status,
-                                 const char *format, ...)
-    __attribute__((format(printf, 3, 4)));
+mitilog_status mitilog_error_set(mitilog_error *error, mitilog_status status, const char *format,
+                                 ...) __attribute__((format(printf, 3, 4)));
 
 /* For a loader that reports every problem of a file: the first call on
  * an error whose text is empty sets it, later ones add a line each. When
  * no more fits, the text ends with "(more errors not shown)". Returns
  * status. */
-mitilog_status mitilog_error_append(mitilog_error *error, mitilog_status status,
-                                    const char *format, ...)
-    __attribute__((format(printf, 3, 4)));
+mitilog_status mitilog_error_append(mitilog_error *error, mitilog_status status, const char *format,
+                                    ...) __attribute__((format(printf, 3, 4)));
 
 /* Stable lower-case name of a status ("ok", "invalid", ...). */
 const char *mitilog_status_name(mitilog_status status);

@@ -35,8 +35,7 @@ int LLVMFuzzerInitialize(int *argc, char ***argv)
         abort();
     }
     const char *folder = getenv("TMPDIR") != NULL ? getenv("TMPDIR") : "/tmp";
-    snprintf(fuzz_path, sizeof fuzz_path, "%.40s/fuzz-reader-%ld.dcm", folder,
-             (long)getpid());
+    snprintf(fuzz_path, sizeof fuzz_path, "%.40s/fuzz-reader-%ld.dcm", folder, (long)getpid());
     return 0;
 }
 

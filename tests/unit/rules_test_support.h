@@ -10,12 +10,12 @@
 #include "rules/rules.h"
 
 /* cmocka 1.1's assert_float_equal is single precision: compare in double. */
-#define assert_close(actual, expected, tolerance)                                  \
-    do {                                                                           \
-        double actual_value = (actual), expected_value = (expected);               \
-        if (!(actual_value - expected_value <= (tolerance) &&                      \
-              expected_value - actual_value <= (tolerance)))                       \
-            fail_msg("%.9f != %.9f", actual_value, expected_value);                \
+#define assert_close(actual, expected, tolerance)                                                  \
+    do {                                                                                           \
+        double actual_value = (actual), expected_value = (expected);                               \
+        if (!(actual_value - expected_value <= (tolerance) &&                                      \
+              expected_value - actual_value <= (tolerance)))                                       \
+            fail_msg("%.9f != %.9f", actual_value, expected_value);                                \
     } while (0)
 
 static inline const char *support_source_dir(void)
@@ -65,10 +65,7 @@ static inline rules_policy *support_policy_with(const char *from, const char *to
     return policy;
 }
 
-static inline rules_policy *support_shipped_policy(void)
-{
-    return support_policy_with(NULL, NULL);
-}
+static inline rules_policy *support_shipped_policy(void) { return support_policy_with(NULL, NULL); }
 
 static inline exam_number support_number(double value)
 {
@@ -89,8 +86,7 @@ static inline exam_capture support_capture(const char *uid, double t, double cin
     return capture;
 }
 
-static inline rules_exam support_exam(exam_group group, const exam_capture *captures,
-                                      size_t count)
+static inline rules_exam support_exam(exam_group group, const exam_capture *captures, size_t count)
 {
     rules_exam exam;
     memset(&exam, 0, sizeof exam);
@@ -119,7 +115,7 @@ static inline size_t support_count(const rules_result *result, const char *rule_
 }
 
 static inline const exam_finding *support_find(const rules_result *result, const char *rule_id,
-                                                double threshold)
+                                               double threshold)
 {
     for (size_t i = 0; i < result->finding_count; i++) {
         if (strcmp(result->findings[i].rule_id, rule_id) == 0 &&

@@ -91,7 +91,8 @@ static void descriptions(void **state)
     };
     for (size_t i = 0; i < sizeof table / sizeof table[0]; i++) {
         const char *source = NULL;
-        const char *got = classify_field(rules, EXT_FIELD_STUDY_DESCRIPTION, table[i].text, &source);
+        const char *got =
+            classify_field(rules, EXT_FIELD_STUDY_DESCRIPTION, table[i].text, &source);
         if (strcmp(got, table[i].expected) != 0)
             fail_msg("'%s' classified as %s, expected %s", table[i].text, got, table[i].expected);
         if (strcmp(got, "unclassified") != 0)
@@ -104,8 +105,9 @@ static void descriptions(void **state)
     assert_string_equal(classify_field(rules, EXT_FIELD_IMAGE_TYPE_3, "OBSTETRICAL", &source),
                         "obstetric");
     assert_string_equal(source, "image_type_3");
-    assert_string_equal(classify_field(rules, EXT_FIELD_PROCEDURE_CODE,
-                                       "LN:24558-9 US Abdomen", &source), "abdomen");
+    assert_string_equal(
+        classify_field(rules, EXT_FIELD_PROCEDURE_CODE, "LN:24558-9 US Abdomen", &source),
+        "abdomen");
     assert_string_equal(source, "procedure_code");
 }
 
@@ -153,8 +155,9 @@ static void shift_boundaries(void **state)
         int minute;
         const char *shift;
     } table[] = {
-        {0, "night"}, {6 * 60 + 59, "night"}, {7 * 60, "day"}, {14 * 60 + 59, "day"},
-        {15 * 60, "evening"}, {22 * 60 + 59, "evening"}, {23 * 60, "night"}, {23 * 60 + 59, "night"},
+        {0, "night"},          {6 * 60 + 59, "night"},  {7 * 60, "day"},
+        {14 * 60 + 59, "day"}, {15 * 60, "evening"},    {22 * 60 + 59, "evening"},
+        {23 * 60, "night"},    {23 * 60 + 59, "night"},
     };
     for (size_t i = 0; i < sizeof table / sizeof table[0]; i++)
         assert_string_equal(ext_classify_shift(rules, table[i].minute), table[i].shift);
@@ -208,11 +211,11 @@ static void age_boundaries(void **state)
         {"005W", NULL, NULL, "child"},
         {"015Y", NULL, NULL, "child"},
         {"016Y", NULL, NULL, "adult"},
-        {"030Y", "19000101", "garbage", "adult"},  /* bad date: falls back to age */
+        {"030Y", "19000101", "garbage", "adult"}, /* bad date: falls back to age */
     };
     for (size_t i = 0; i < sizeof table / sizeof table[0]; i++) {
-        assert_int_equal(ext_age(table[i].age, table[i].birth, table[i].study, &days, &years,
-                                 &source), 0);
+        assert_int_equal(
+            ext_age(table[i].age, table[i].birth, table[i].study, &days, &years, &source), 0);
         assert_string_equal(ext_age_group(rules, days, years), table[i].group);
     }
     assert_int_equal(ext_age("12Y", NULL, NULL, &days, &years, &source), -1);
@@ -237,7 +240,8 @@ static void site_file_errors(void **state)
         const char *text;
         const char *expected;
     } table[] = {
-        {"[exam_type a]\nlabel = A\nmatch = (unclosed\n", ":3: [exam_type a] match: bad regular expression"},
+        {"[exam_type a]\nlabel = A\nmatch = (unclosed\n",
+         ":3: [exam_type a] match: bad regular expression"},
         {"[exam_type a]\ngoverning_index = TIX\n", ":2: [exam_type a] governing_index"},
         {"[shift night]\nfrom = 25:00\n", ":2: [shift night] from"},
         {"[sr_codes]\n99X:1 = volume\n", ":2: [sr_codes] 99X:1"},
@@ -279,9 +283,16 @@ static void site_file_errors(void **state)
 static void cache_changes_no_answer(void **state)
 {
     ext_site_rules *rules = *state;
-    const char *texts[] = {"US OB 2ND TRI", "OB 2nd/3rd Tri", "OBSTETRICAL", "TCD",
-                           "LN:24558-9 US Abdomen", "US THYROID", "QA phantom", "",
-                           "Échographie obstétricale T3", "CEUS liver"};
+    const char *texts[] = {"US OB 2ND TRI",
+                           "OB 2nd/3rd Tri",
+                           "OBSTETRICAL",
+                           "TCD",
+                           "LN:24558-9 US Abdomen",
+                           "US THYROID",
+                           "QA phantom",
+                           "",
+                           "Échographie obstétricale T3",
+                           "CEUS liver"};
     struct ext_classify_cache *cache = rules->classify_cache;
     assert_non_null(cache);
     for (int round = 0; round < 2; round++) {
@@ -313,7 +324,8 @@ static void cache_keys_are_unambiguous(void **state)
     stored[0] = "OB\x1f";
     stored[1] = "2ND";
     asked[0] = "OB";
-    asked[1] = "\x1f" "2ND";
+    asked[1] = "\x1f"
+               "2ND";
     ext_classify_cache_put(cache, stored, 3, NULL);
     long type_index = -2;
     const char *source = NULL;

@@ -50,13 +50,14 @@ static void defaults(void **state)
 static void values_and_paths(void **state)
 {
     (void)state;
-    const char *path = write_config("good.ini", "[dicom]\n"
-                                                "ae_title = AUDIT1\n"
-                                                "port = 4242 ; inline comment\n"
-                                                "allowed_calling_ae_titles = ROOM1, ROOM2@127.0.0.1\n"
-                                                "[storage]\n"
-                                                "data_directory = data\n"
-                                                "retention = none\n");
+    const char *path =
+        write_config("good.ini", "[dicom]\n"
+                                 "ae_title = AUDIT1\n"
+                                 "port = 4242 ; inline comment\n"
+                                 "allowed_calling_ae_titles = ROOM1, ROOM2@127.0.0.1\n"
+                                 "[storage]\n"
+                                 "data_directory = data\n"
+                                 "retention = none\n");
     config config;
     mitilog_error error;
     assert_int_equal(config_load(path, &config, &error), MITILOG_OK);

@@ -48,8 +48,7 @@ static void write_bytes(const char *path, const void *bytes, size_t size)
     assert_int_equal(fclose(file), 0);
 }
 
-static int run_command(const char *format, ...)
-    __attribute__((format(printf, 1, 2)));
+static int run_command(const char *format, ...) __attribute__((format(printf, 1, 2)));
 static int run_command(const char *format, ...)
 {
     char command[4096];
@@ -63,17 +62,14 @@ static int run_command(const char *format, ...)
 
 /* Writes dump text to <name>.dump and converts it with dump2dcm (extra
  * options e.g. "+ti" or "-F +ti"); the DICOM file goes to out. */
-static void make_dicom(const char *name, const char *dump, const char *options,
-                       char *out, size_t size)
+static void make_dicom(const char *name, const char *dump, const char *options, char *out,
+                       size_t size)
 {
     char dump_path[512];
-    snprintf(dump_path, sizeof dump_path, "%s/%s.dump", temporary_directory,
-             name);
+    snprintf(dump_path, sizeof dump_path, "%s/%s.dump", temporary_directory, name);
     write_bytes(dump_path, dump, strlen(dump));
     snprintf(out, size, "%s/%s.dcm", temporary_directory, name);
-    assert_int_equal(run_command("dump2dcm -q +l 1000000 %s %s %s", options,
-                                 dump_path, out),
-                     0);
+    assert_int_equal(run_command("dump2dcm -q +l 1000000 %s %s %s", options, dump_path, out), 0);
 }
 
 static void trim_right(char *text)
@@ -85,8 +81,7 @@ static void trim_right(char *text)
 
 /* The value dcmdump prints for tag in file ("+U8": converted to UTF-8),
  * i.e. what is between the brackets; "" when dcmdump prints nothing. */
-static void dcmdump_value(const char *file, const char *tag, char *out,
-                          size_t size)
+static void dcmdump_value(const char *file, const char *tag, char *out, size_t size)
 {
     char command[1024];
     snprintf(command, sizeof command, "dcmdump -q +U8 +P %s %s", tag, file);
@@ -120,43 +115,42 @@ static void dcmdump_value(const char *file, const char *tag, char *out,
 /* Latin-1 bytes: \xC9 is É, \xE8 è, \xE9 é [std: ISO/IEC 8859-1]. The
  * string literals are split after each escape so that a following hex
  * digit ("c", "e") does not extend the escape. */
-static const char us_image_dump[] =
-    "(0008,0005) CS [ISO_IR 100]\n"
-    "(0008,0008) CS [ORIGINAL\\PRIMARY\\ABDOMINAL\\0001]\n"
-    "(0008,0016) UI =UltrasoundImageStorage\n"
-    "(0008,0018) UI [" US_SOP_INSTANCE_UID "]\n"
-    "(0008,0060) CS [US]\n"
-    "(0008,1010) SH [Salle \xC9"
-    "chographie]\n"
-    "(0008,1070) PN [Lef\xE8"
-    "vre^H\xE9"
-    "l\xE8"
-    "ne]\n"
-    "(0018,5022) DS [0.8 ]\n"
-    "(0018,5024) DS [1.2\\1.3]\n"
-    "(0018,5027) DS []\n"
-    "(0018,6011) SQ (Sequence)\n"
-    "(fffe,e000) na (Item)\n"
-    "(0018,6014) US 1\n"
-    "(0018,6030) UL 3500\n"
-    "(fffe,e00d) na (ItemDelimitationItem)\n"
-    "(fffe,e000) na (Item)\n"
-    "(0018,6014) US 3\n"
-    "(0018,6030) UL 3500\n"
-    "(0018,6032) UL 4000\n"
-    "(fffe,e00d) na (ItemDelimitationItem)\n"
-    "(fffe,e0dd) na (SequenceDelimitationItem)\n"
-    "(0020,000d) UI [1.2.826.0.1.3680043.10.543.2]\n"
-    "(0020,000e) UI [1.2.826.0.1.3680043.10.543.3]\n"
-    "(0028,0002) US 1\n"
-    "(0028,0004) CS [MONOCHROME2]\n"
-    "(0028,0010) US 2\n"
-    "(0028,0011) US 2\n"
-    "(0028,0100) US 8\n"
-    "(0028,0101) US 8\n"
-    "(0028,0102) US 7\n"
-    "(0028,0103) US 0\n"
-    "(7fe0,0010) OB 00\\01\\02\\03\n";
+static const char us_image_dump[] = "(0008,0005) CS [ISO_IR 100]\n"
+                                    "(0008,0008) CS [ORIGINAL\\PRIMARY\\ABDOMINAL\\0001]\n"
+                                    "(0008,0016) UI =UltrasoundImageStorage\n"
+                                    "(0008,0018) UI [" US_SOP_INSTANCE_UID "]\n"
+                                    "(0008,0060) CS [US]\n"
+                                    "(0008,1010) SH [Salle \xC9"
+                                    "chographie]\n"
+                                    "(0008,1070) PN [Lef\xE8"
+                                    "vre^H\xE9"
+                                    "l\xE8"
+                                    "ne]\n"
+                                    "(0018,5022) DS [0.8 ]\n"
+                                    "(0018,5024) DS [1.2\\1.3]\n"
+                                    "(0018,5027) DS []\n"
+                                    "(0018,6011) SQ (Sequence)\n"
+                                    "(fffe,e000) na (Item)\n"
+                                    "(0018,6014) US 1\n"
+                                    "(0018,6030) UL 3500\n"
+                                    "(fffe,e00d) na (ItemDelimitationItem)\n"
+                                    "(fffe,e000) na (Item)\n"
+                                    "(0018,6014) US 3\n"
+                                    "(0018,6030) UL 3500\n"
+                                    "(0018,6032) UL 4000\n"
+                                    "(fffe,e00d) na (ItemDelimitationItem)\n"
+                                    "(fffe,e0dd) na (SequenceDelimitationItem)\n"
+                                    "(0020,000d) UI [1.2.826.0.1.3680043.10.543.2]\n"
+                                    "(0020,000e) UI [1.2.826.0.1.3680043.10.543.3]\n"
+                                    "(0028,0002) US 1\n"
+                                    "(0028,0004) CS [MONOCHROME2]\n"
+                                    "(0028,0010) US 2\n"
+                                    "(0028,0011) US 2\n"
+                                    "(0028,0100) US 8\n"
+                                    "(0028,0101) US 8\n"
+                                    "(0028,0102) US 7\n"
+                                    "(0028,0103) US 0\n"
+                                    "(7fe0,0010) OB 00\\01\\02\\03\n";
 
 static void make_us_image(char *out, size_t size)
 {
@@ -192,18 +186,15 @@ static void test_raw_values_and_regions(void **state)
     assert_string_equal(reference, "1.2\\1.3");
     /* Present but empty: dcmdump prints "(no value available)". */
     assert_non_null(facts.values[DCM_ATTRIBUTE_SOFT_TISSUE_THERMAL_INDEX]);
-    assert_string_equal(facts.values[DCM_ATTRIBUTE_SOFT_TISSUE_THERMAL_INDEX],
-                        "");
+    assert_string_equal(facts.values[DCM_ATTRIBUTE_SOFT_TISSUE_THERMAL_INDEX], "");
     /* Absent from the dump: NULL. */
     assert_null(facts.values[DCM_ATTRIBUTE_CRANIAL_THERMAL_INDEX]);
     assert_null(facts.values[DCM_ATTRIBUTE_TRANSDUCER_DATA]);
     /* 31 bytes padded to 32 (dcmdump: #  32, 4 ImageType). */
     assert_string_equal(facts.values[DCM_ATTRIBUTE_IMAGE_TYPE],
                         "ORIGINAL\\PRIMARY\\ABDOMINAL\\0001 ");
-    assert_string_equal(facts.values[DCM_ATTRIBUTE_SOP_INSTANCE_UID],
-                        US_SOP_INSTANCE_UID);
-    assert_string_equal(facts.values[DCM_ATTRIBUTE_SOP_CLASS_UID],
-                        US_IMAGE_CLASS_UID);
+    assert_string_equal(facts.values[DCM_ATTRIBUTE_SOP_INSTANCE_UID], US_SOP_INSTANCE_UID);
+    assert_string_equal(facts.values[DCM_ATTRIBUTE_SOP_CLASS_UID], US_IMAGE_CLASS_UID);
     /* dump2dcm +te writes Explicit VR Little Endian [std: PS3.5 A.2,
      * UID 1.2.840.10008.1.2.1]; dcmdump shows =LittleEndianExplicit. */
     assert_string_equal(facts.transfer_syntax_uid, "1.2.840.10008.1.2.1");
@@ -244,22 +235,19 @@ static void test_latin1_converted_to_utf8(void **state)
     /* U+00C9 is C3 89 in UTF-8, U+00E8 C3 A8, U+00E9 C3 A9 [std: RFC
      * 3629; Unicode]. 17 characters padded to 18 bytes in Latin-1, the
      * padding space is kept. */
-    assert_string_equal(facts.values[DCM_ATTRIBUTE_STATION_NAME],
-                        "Salle \xC3\x89"
-                        "chographie ");
+    assert_string_equal(facts.values[DCM_ATTRIBUTE_STATION_NAME], "Salle \xC3\x89"
+                                                                  "chographie ");
     assert_string_equal(facts.values[DCM_ATTRIBUTE_OPERATORS_NAME],
                         "Lef\xC3\xA8vre^H\xC3\xA9l\xC3\xA8ne");
     /* dcmdump +U8 converts the same way (padding not shown). */
     dcmdump_value(path, "0008,1010", reference, sizeof reference);
     char value[256];
-    snprintf(value, sizeof value, "%s",
-             facts.values[DCM_ATTRIBUTE_STATION_NAME]);
+    snprintf(value, sizeof value, "%s", facts.values[DCM_ATTRIBUTE_STATION_NAME]);
     trim_right(value);
     assert_string_equal(value, reference);
     /* The character set as sent, not the ISO_IR 192 of the converted copy
      * (dcmdump: (0008,0005) CS [ISO_IR 100]). */
-    assert_string_equal(facts.values[DCM_ATTRIBUTE_SPECIFIC_CHARACTER_SET],
-                        "ISO_IR 100");
+    assert_string_equal(facts.values[DCM_ATTRIBUTE_SPECIFIC_CHARACTER_SET], "ISO_IR 100");
     dcm_facts_free(&facts);
     dcm_object_free(object);
 }
@@ -277,8 +265,7 @@ static void test_bare_dataset(void **state)
     assert_int_equal(dcm_object_load(path, &object, &error), MITILOG_OK);
     assert_int_equal(dcm_object_facts(object, 8, &facts, &error), MITILOG_OK);
     assert_string_equal(facts.transfer_syntax_uid, "1.2.840.10008.1.2");
-    assert_string_equal(facts.values[DCM_ATTRIBUTE_SOP_INSTANCE_UID],
-                        US_SOP_INSTANCE_UID);
+    assert_string_equal(facts.values[DCM_ATTRIBUTE_SOP_INSTANCE_UID], US_SOP_INSTANCE_UID);
     assert_int_equal(facts.region_count, 2);
     dcm_facts_free(&facts);
     dcm_object_free(object);
@@ -289,8 +276,7 @@ static void assert_parse_error(const char *path)
     mitilog_error error;
     dcm_object *object = (dcm_object *)&error; /* must be reset to NULL */
     error.text[0] = '\0';
-    assert_int_equal(dcm_object_load(path, &object, &error),
-                     MITILOG_ERROR_PARSE);
+    assert_int_equal(dcm_object_load(path, &object, &error), MITILOG_ERROR_PARSE);
     assert_null(object);
     assert_true(strlen(error.text) > 0);
 }
@@ -353,11 +339,11 @@ static void test_unreadable_files(void **state)
  * CONTAINER { NUM MI 0.9 {no units}, CONTAINER { TEXT "C5-1" } } with
  * concepts in an invented private scheme "99MTLG" [std: PS3.16 8.2,
  * "99" prefix for private schemes]; units in UCUM, "1" = unity. */
-#define CODE(value, scheme, meaning)                                       \
-    "(fffe,e000) na (Item)\n"                                              \
-    "(0008,0100) SH [" value "]\n"                                         \
-    "(0008,0102) SH [" scheme "]\n"                                        \
-    "(0008,0104) LO [" meaning "]\n"                                       \
+#define CODE(value, scheme, meaning)                                                               \
+    "(fffe,e000) na (Item)\n"                                                                      \
+    "(0008,0100) SH [" value "]\n"                                                                 \
+    "(0008,0102) SH [" scheme "]\n"                                                                \
+    "(0008,0104) LO [" meaning "]\n"                                                               \
     "(fffe,e00d) na\n"
 #define SEQUENCE(tag, items) "(" tag ") SQ (Sequence)\n" items "(fffe,e0dd) na\n"
 
@@ -381,42 +367,96 @@ static const char sr_dump[] =
     "(0020,0013) IS [1]\n"
     "(0008,0023) DA [20240102]\n"
     "(0008,0033) TM [101600]\n"
-    "(0040,a040) CS [CONTAINER]\n"
-    SEQUENCE("0040,a043", CODE("MTLG001", "99MTLG", "Acoustic output report"))
-    "(0040,a050) CS [SEPARATE]\n"
-    "(0040,a491) CS [COMPLETE]\n"
-    "(0040,a493) CS [UNVERIFIED]\n"
-    "(0040,a730) SQ (Sequence)\n"
-    "(fffe,e000) na (Item)\n"
-    "(0040,a010) CS [CONTAINS]\n"
-    "(0040,a040) CS [NUM]\n"
-    SEQUENCE("0040,a043", CODE("MTLG010", "99MTLG", "Mechanical index"))
-    "(0040,a300) SQ (Sequence)\n"
-    "(fffe,e000) na (Item)\n"
-    SEQUENCE("0040,08ea", CODE("1", "UCUM", "no units"))
-    "(0040,a30a) DS [0.9]\n"
-    "(fffe,e00d) na\n"
-    "(fffe,e0dd) na\n"
-    "(fffe,e00d) na\n"
-    "(fffe,e000) na (Item)\n"
-    "(0040,a010) CS [CONTAINS]\n"
-    "(0040,a040) CS [CONTAINER]\n"
-    SEQUENCE("0040,a043", CODE("MTLG020", "99MTLG", "Probe settings"))
-    "(0040,a050) CS [SEPARATE]\n"
-    "(0040,a730) SQ (Sequence)\n"
-    "(fffe,e000) na (Item)\n"
-    "(0040,a010) CS [CONTAINS]\n"
-    "(0040,a040) CS [TEXT]\n"
-    SEQUENCE("0040,a043", CODE("MTLG021", "99MTLG", "Transducer"))
-    "(0040,a160) UT [C5-1]\n"
-    "(fffe,e00d) na\n"
-    "(fffe,e0dd) na\n"
-    "(fffe,e00d) na\n"
-    "(fffe,e0dd) na\n";
+    "(0040,a040) CS [CONTAINER]\n" SEQUENCE(
+        "0040,a043",
+        CODE(
+            "MTLG001", "99MTLG",
+            "Acoustic output report")) "(0040,a050) CS [SEPARATE]\n"
+                                       "(0040,a491) CS [COMPLETE]\n"
+                                       "(0040,a493) CS [UNVERIFIED]\n"
+                                       "(0040,a730) SQ (Sequence)\n"
+                                       "(fffe,e000) na (Item)\n"
+                                       "(0040,a010) CS [CONTAINS]\n"
+                                       "(0040,a040) CS [NUM]\n" SEQUENCE(
+                                           "0040,a043",
+                                           CODE(
+                                               "MTLG010", "99MTLG",
+                                               "Mechanical index")) "(0040,a300) SQ (Sequence)\n"
+                                                                    "(fffe,e000) na "
+                                                                    "(Item)\n" SEQUENCE(
+                                                                        "0040,08ea",
+                                                                        CODE(
+                                                                            "1", "UCUM",
+                                                                            "no units")) "(0040,"
+                                                                                         "a30a) DS "
+                                                                                         "[0.9]\n"
+                                                                                         "(fffe,"
+                                                                                         "e00d) "
+                                                                                         "na\n"
+                                                                                         "(fffe,"
+                                                                                         "e0dd) "
+                                                                                         "na\n"
+                                                                                         "(fffe,"
+                                                                                         "e00d) "
+                                                                                         "na\n"
+                                                                                         "(fffe,"
+                                                                                         "e000) na "
+                                                                                         "(Item)\n"
+                                                                                         "(0040,"
+                                                                                         "a010) CS "
+                                                                                         "[CONTAINS"
+                                                                                         "]\n"
+                                                                                         "(0040,"
+                                                                                         "a040) CS "
+                                                                                         "[CONTAINE"
+                                                                                         "R]"
+                                                                                         "\n" SEQUENCE(
+                                                                                             "0040,"
+                                                                                             "a043",
+                                                                                             CODE(
+                                                                                                 "M"
+                                                                                                 "T"
+                                                                                                 "L"
+                                                                                                 "G"
+                                                                                                 "0"
+                                                                                                 "2"
+                                                                                                 "0",
+                                                                                                 "9"
+                                                                                                 "9"
+                                                                                                 "M"
+                                                                                                 "T"
+                                                                                                 "L"
+                                                                                                 "G",
+                                                                                                 "P"
+                                                                                                 "r"
+                                                                                                 "o"
+                                                                                                 "b"
+                                                                                                 "e"
+                                                                                                 " "
+                                                                                                 "s"
+                                                                                                 "e"
+                                                                                                 "t"
+                                                                                                 "t"
+                                                                                                 "i"
+                                                                                                 "n"
+                                                                                                 "g"
+                                                                                                 "s")) "(0040,a050) CS [SEPARATE]\n"
+                                                                                                       "(0040,a730) SQ (Sequence)\n"
+                                                                                                       "(fffe,e000) na (Item)\n"
+                                                                                                       "(0040,a010) CS [CONTAINS]\n"
+                                                                                                       "(0040,a040) CS [TEXT]\n" SEQUENCE(
+                                                                                                           "0040,a043",
+                                                                                                           CODE(
+                                                                                                               "MTLG021",
+                                                                                                               "99MTLG",
+                                                                                                               "Transducer")) "(0040,a160) UT [C5-1]\n"
+                                                                                                                              "(fffe,e00d) na\n"
+                                                                                                                              "(fffe,e0dd) na\n"
+                                                                                                                              "(fffe,e00d) na\n"
+                                                                                                                              "(fffe,e0dd) na\n";
 
-static void assert_sr_item(const dcm_sr_item *item, unsigned depth,
-                           const char *position, const char *value_type,
-                           const char *relationship, const char *code)
+static void assert_sr_item(const dcm_sr_item *item, unsigned depth, const char *position,
+                           const char *value_type, const char *relationship, const char *code)
 {
     assert_int_equal(item->depth, depth);
     assert_string_equal(item->position, position);
@@ -441,8 +481,7 @@ static void test_structured_report(void **state)
     assert_int_equal(facts.sr_item_count, 4);
     /* Depth-first pre-order, positions as dsrdump prints them. */
     assert_sr_item(&facts.sr_items[0], 0, "1", "CONTAINER", "", "MTLG001");
-    assert_string_equal(facts.sr_items[0].concept_meaning,
-                        "Acoustic output report");
+    assert_string_equal(facts.sr_items[0].concept_meaning, "Acoustic output report");
     assert_sr_item(&facts.sr_items[1], 1, "1.1", "NUM", "CONTAINS", "MTLG010");
     assert_string_equal(facts.sr_items[1].numeric_value, "0.9");
     assert_string_equal(facts.sr_items[1].unit_scheme, "UCUM");
@@ -450,10 +489,8 @@ static void test_structured_report(void **state)
     assert_string_equal(facts.sr_items[1].unit_meaning, "no units");
     assert_string_equal(facts.sr_items[1].text_value, "");
     assert_string_equal(facts.sr_items[1].code_value, "");
-    assert_sr_item(&facts.sr_items[2], 1, "1.2", "CONTAINER", "CONTAINS",
-                   "MTLG020");
-    assert_sr_item(&facts.sr_items[3], 2, "1.2.1", "TEXT", "CONTAINS",
-                   "MTLG021");
+    assert_sr_item(&facts.sr_items[2], 1, "1.2", "CONTAINER", "CONTAINS", "MTLG020");
+    assert_sr_item(&facts.sr_items[3], 2, "1.2.1", "TEXT", "CONTAINS", "MTLG021");
     assert_string_equal(facts.sr_items[3].text_value, "C5-1");
     assert_string_equal(facts.sr_items[3].numeric_value, "");
     for (size_t i = 1; i < facts.sr_item_count; i++)
@@ -514,10 +551,8 @@ static void make_us_image_with_waveform(char *out, size_t size)
                                "(5400,1010) OW ",
                                words);
     for (size_t i = 0; i < words; i++)
-        length += (size_t)snprintf(dump + length, capacity - length, "%s0001",
-                                   i == 0 ? "" : "\\");
-    snprintf(dump + length, capacity - length,
-             "\n(fffe,e00d) na\n(fffe,e0dd) na\n");
+        length += (size_t)snprintf(dump + length, capacity - length, "%s0001", i == 0 ? "" : "\\");
+    snprintf(dump + length, capacity - length, "\n(fffe,e00d) na\n(fffe,e0dd) na\n");
     make_dicom("us_waveform", dump, "+te", out, size);
     free(dump);
 }
@@ -553,9 +588,8 @@ static void test_save_header(void **state)
     assert_int_equal(dcm_object_load(path, &object, &error), MITILOG_OK);
     /* Facts first: the header copy removes the bulk data from the object. */
     assert_int_equal(dcm_object_facts(object, 8, &facts, &error), MITILOG_OK);
-    assert_string_equal(facts.values[DCM_ATTRIBUTE_STATION_NAME],
-                        "Salle \xC3\x89"
-                        "chographie ");
+    assert_string_equal(facts.values[DCM_ATTRIBUTE_STATION_NAME], "Salle \xC3\x89"
+                                                                  "chographie ");
     dcm_facts_free(&facts);
     path_in_temporary(header_path, sizeof header_path, "header.dcm");
     save_header_copy(object, header_path);
@@ -563,14 +597,12 @@ static void test_save_header(void **state)
     /* dcmdump +P prints nothing for an absent tag. */
     dcmdump_value(header_path, "7fe0,0010", reference, sizeof reference);
     assert_string_equal(reference, "");
-    dcmdump_value(header_path, "5400,1010", reference,
-                  sizeof reference);
+    dcmdump_value(header_path, "5400,1010", reference, sizeof reference);
     assert_string_equal(reference, "");
     /* Small elements stay, including the private one and the sequence. */
     dcmdump_value(header_path, "0009,1001", reference, sizeof reference);
     assert_string_equal(reference, "01\\02\\03\\04");
-    dcmdump_value(header_path, "5400,1004", reference,
-                  sizeof reference);
+    dcmdump_value(header_path, "5400,1004", reference, sizeof reference);
     assert_true(strstr(reference, "16") != NULL);
     /* Same SOP Instance UID in the dataset and in the meta header. */
     dcmdump_value(header_path, "0002,0003", reference, sizeof reference);
@@ -578,8 +610,7 @@ static void test_save_header(void **state)
 
     assert_int_equal(dcm_object_load(header_path, &header, &error), MITILOG_OK);
     assert_int_equal(dcm_object_facts(header, 8, &facts, &error), MITILOG_OK);
-    assert_string_equal(facts.values[DCM_ATTRIBUTE_SOP_INSTANCE_UID],
-                        US_SOP_INSTANCE_UID);
+    assert_string_equal(facts.values[DCM_ATTRIBUTE_SOP_INSTANCE_UID], US_SOP_INSTANCE_UID);
     assert_string_equal(facts.transfer_syntax_uid, "1.2.840.10008.1.2.1");
     assert_string_equal(facts.values[DCM_ATTRIBUTE_MECHANICAL_INDEX], "0.8 ");
     dcm_facts_free(&facts);
@@ -658,17 +689,17 @@ typedef struct recorded_store {
     pthread_mutex_t mutex;
     pthread_cond_t changed;
     int calls;
-    int spool_file_was_part10;   /* "DICM" at offset 128 */
-    int spool_path_is_memory;    /* "/proc/self/fd/N" */
-    unsigned char tail[256];     /* the received object's last bytes */
+    int spool_file_was_part10; /* "DICM" at offset 128 */
+    int spool_path_is_memory;  /* "/proc/self/fd/N" */
+    unsigned char tail[256];   /* the received object's last bytes */
     size_t tail_size;
     char sop_class_uid[80];
     char sop_instance_uid[80];
     char calling_ae_title[20];
     char called_ae_title[20];
     char peer_address[64];
-    int block;                   /* handler waits while this is set */
-    int inside;                  /* handlers running now */
+    int block;  /* handler waits while this is set */
+    int inside; /* handlers running now */
     uint16_t answer;
 } recorded_store;
 
@@ -688,8 +719,7 @@ static uint16_t record_store(void *context, const dcm_received *object)
     pthread_mutex_lock(&record->mutex);
     record->calls++;
     record->inside++;
-    record->spool_file_was_part10 =
-        size == sizeof header && memcmp(header + 128, "DICM", 4) == 0;
+    record->spool_file_was_part10 = size == sizeof header && memcmp(header + 128, "DICM", 4) == 0;
     record->spool_path_is_memory = strncmp(object->spool_path, "/proc/self/fd/", 14) == 0;
     memcpy(record->tail, tail, tail_size);
     record->tail_size = tail_size;
@@ -701,8 +731,7 @@ static uint16_t record_store(void *context, const dcm_received *object)
              object->calling_ae_title);
     snprintf(record->called_ae_title, sizeof record->called_ae_title, "%s",
              object->called_ae_title);
-    snprintf(record->peer_address, sizeof record->peer_address, "%s",
-             object->peer_address);
+    snprintf(record->peer_address, sizeof record->peer_address, "%s", object->peer_address);
     pthread_cond_broadcast(&record->changed);
     while (record->block)
         pthread_cond_wait(&record->changed, &record->mutex);
@@ -782,15 +811,13 @@ static void test_receive_echo_store_and_called_ae(void **state)
     unsigned port = free_port();
     dcm_server_settings settings = receiver_settings(port);
     dcm_server *server = NULL;
-    assert_int_equal(dcm_server_create(&settings, record_store, &record,
-                                       &server, &error),
+    assert_int_equal(dcm_server_create(&settings, record_store, &record, &server, &error),
                      MITILOG_OK);
     assert_int_equal(dcm_server_start(server, &error), MITILOG_OK);
 
     /* The port is taken now: a second server fails to start. */
     dcm_server *second = NULL;
-    assert_int_equal(dcm_server_create(&settings, record_store, &record,
-                                       &second, &error),
+    assert_int_equal(dcm_server_create(&settings, record_store, &record, &second, &error),
                      MITILOG_OK);
     assert_int_equal(dcm_server_start(second, &error), MITILOG_ERROR_IO);
     assert_non_null(strstr(error.text, "in use"));
@@ -823,8 +850,7 @@ static void test_receive_echo_store_and_called_ae(void **state)
                          0);
     /* A handler answering Out of Resources: storescu sees the status. */
     record.answer = DCM_STATUS_OUT_OF_RESOURCES;
-    run_command("storescu -q -aec MITILOG localhost %u %s >/dev/null 2>&1",
-                port, image);
+    run_command("storescu -q -aec MITILOG localhost %u %s >/dev/null 2>&1", port, image);
     assert_int_equal(record.calls, 2);
 
     dcm_server_stop(server);
@@ -855,8 +881,7 @@ static void test_receive_allowed_peers(void **state)
     settings.allowed_peers = peers;
     settings.allowed_peer_count = 3;
     dcm_server *server = NULL;
-    assert_int_equal(dcm_server_create(&settings, record_store, &record,
-                                       &server, &error),
+    assert_int_equal(dcm_server_create(&settings, record_store, &record, &server, &error),
                      MITILOG_OK);
     assert_int_equal(dcm_server_start(server, &error), MITILOG_OK);
     make_us_image(image, sizeof image);
@@ -911,16 +936,15 @@ static void test_receive_association_limit(void **state)
     dcm_server_settings settings = receiver_settings(port);
     settings.max_associations = 1;
     dcm_server *server = NULL;
-    assert_int_equal(dcm_server_create(&settings, record_store, &record,
-                                       &server, &error),
+    assert_int_equal(dcm_server_create(&settings, record_store, &record, &server, &error),
                      MITILOG_OK);
     assert_int_equal(dcm_server_start(server, &error), MITILOG_OK);
     make_us_image(image, sizeof image);
 
     /* One storescu holds the only slot while its handler blocks. */
     background_send send;
-    snprintf(send.command, sizeof send.command,
-             "storescu -q -aec MITILOG localhost %u %s", port, image);
+    snprintf(send.command, sizeof send.command, "storescu -q -aec MITILOG localhost %u %s", port,
+             image);
     pthread_t thread;
     assert_int_equal(pthread_create(&thread, NULL, run_background, &send), 0);
     pthread_mutex_lock(&record.mutex);
@@ -928,9 +952,7 @@ static void test_receive_association_limit(void **state)
     clock_gettime(CLOCK_REALTIME, &deadline);
     deadline.tv_sec += 20;
     while (record.inside == 0)
-        assert_int_equal(pthread_cond_timedwait(&record.changed, &record.mutex,
-                                                &deadline),
-                         0);
+        assert_int_equal(pthread_cond_timedwait(&record.changed, &record.mutex, &deadline), 0);
     pthread_mutex_unlock(&record.mutex);
 
     /* A second association: transient rejection, local limit exceeded. */
@@ -964,15 +986,14 @@ static void test_receive_tls(void **state)
     recorded_store record;
     record_init(&record);
     const char *d = temporary_directory;
-    int made = run_command(
-        "cd %s && openssl req -x509 -newkey rsa:2048 -nodes -days 2 "
-        "-subj /CN=mitilog-test-ca -keyout ca.key -out ca.pem && "
-        "for who in server client; do "
-        "openssl req -newkey rsa:2048 -nodes -subj /CN=$who "
-        "-keyout $who.key -out $who.csr && "
-        "openssl x509 -req -in $who.csr -CA ca.pem -CAkey ca.key "
-        "-CAcreateserial -days 2 -out $who.pem; done >/dev/null 2>&1",
-        d);
+    int made = run_command("cd %s && openssl req -x509 -newkey rsa:2048 -nodes -days 2 "
+                           "-subj /CN=mitilog-test-ca -keyout ca.key -out ca.pem && "
+                           "for who in server client; do "
+                           "openssl req -newkey rsa:2048 -nodes -subj /CN=$who "
+                           "-keyout $who.key -out $who.csr && "
+                           "openssl x509 -req -in $who.csr -CA ca.pem -CAkey ca.key "
+                           "-CAcreateserial -days 2 -out $who.pem; done >/dev/null 2>&1",
+                           d);
     if (made != 0)
         skip();
     char certificate[512], key[512], ca[512];
@@ -985,8 +1006,7 @@ static void test_receive_tls(void **state)
     settings.tls_private_key_file = key;
     settings.tls_ca_file = ca;
     dcm_server *server = NULL;
-    assert_int_equal(dcm_server_create(&settings, record_store, &record,
-                                       &server, &error),
+    assert_int_equal(dcm_server_create(&settings, record_store, &record, &server, &error),
                      MITILOG_OK);
     assert_int_equal(dcm_server_start(server, &error), MITILOG_OK);
     make_us_image(image, sizeof image);
@@ -1011,11 +1031,10 @@ static void test_receive_tls(void **state)
     record_destroy(&record);
 }
 
-#define RECEIVER_TESTS                                                     \
-    cmocka_unit_test(test_receive_echo_store_and_called_ae),               \
-        cmocka_unit_test(test_receive_allowed_peers),                      \
-        cmocka_unit_test(test_receive_association_limit),                  \
-        cmocka_unit_test(test_receive_tls),
+#define RECEIVER_TESTS                                                                             \
+    cmocka_unit_test(test_receive_echo_store_and_called_ae),                                       \
+        cmocka_unit_test(test_receive_allowed_peers),                                              \
+        cmocka_unit_test(test_receive_association_limit), cmocka_unit_test(test_receive_tls),
 
 int main(void)
 {
@@ -1031,17 +1050,15 @@ int main(void)
         fprintf(stderr, "dcm_initialise: %s\n", error.text);
         return 1;
     }
-    const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_raw_values_and_regions),
-        cmocka_unit_test(test_latin1_converted_to_utf8),
-        cmocka_unit_test(test_bare_dataset),
-        cmocka_unit_test(test_unreadable_files),
-        cmocka_unit_test(test_structured_report),
-        cmocka_unit_test(test_broken_structured_report),
-        cmocka_unit_test(test_save_header),
-        cmocka_unit_test(test_save_header_encapsulated),
-        RECEIVER_TESTS
-    };
+    const struct CMUnitTest tests[] = {cmocka_unit_test(test_raw_values_and_regions),
+                                       cmocka_unit_test(test_latin1_converted_to_utf8),
+                                       cmocka_unit_test(test_bare_dataset),
+                                       cmocka_unit_test(test_unreadable_files),
+                                       cmocka_unit_test(test_structured_report),
+                                       cmocka_unit_test(test_broken_structured_report),
+                                       cmocka_unit_test(test_save_header),
+                                       cmocka_unit_test(test_save_header_encapsulated),
+                                       RECEIVER_TESTS};
     int failures = cmocka_run_group_tests(tests, NULL, NULL);
     if (failures == 0)
         run_command("rm -rf %s", temporary_directory);

@@ -46,8 +46,8 @@ static ext_exam_instance capture(const char *uid, const char *at, const char *ty
     i.exam_type_source = (char *)"study_description";
     i.is_capture = 1;
     i.indices[EXAM_INDEX_MI] = (exam_number){EXAM_VALUE_OK, mi};
-    i.indices[EXAM_INDEX_TIB] = tib >= 0 ? (exam_number){EXAM_VALUE_OK, tib}
-                                        : (exam_number){EXAM_VALUE_MISSING, 0};
+    i.indices[EXAM_INDEX_TIB] =
+        tib >= 0 ? (exam_number){EXAM_VALUE_OK, tib} : (exam_number){EXAM_VALUE_MISSING, 0};
     i.modes = modes;
     i.cine_seconds = cine;
     return i;
@@ -79,10 +79,10 @@ static void exam_record(void **state)
     instances[4].sr_gestational_age_position = (char *)"1.4";
     ext_exam exam;
     assert_int_equal(ext_exam_build(&rules, instances, 5, &exam, &error), MITILOG_OK);
-    assert_string_equal(exam.exam_type->key, "ob");   /* 3 of 5 */
+    assert_string_equal(exam.exam_type->key, "ob"); /* 3 of 5 */
     assert_true(exam.has_gestational_age);
-    assert_float_equal(exam.gestational_age_weeks, 9.0, 1e-9);  /* SR beats nominal */
-    assert_int_equal(exam.governing_index, EXAM_INDEX_TIS);       /* < 10 weeks */
+    assert_float_equal(exam.gestational_age_weeks, 9.0, 1e-9); /* SR beats nominal */
+    assert_int_equal(exam.governing_index, EXAM_INDEX_TIS);    /* < 10 weeks */
     assert_int_equal(exam.capture_count, 4);
     assert_int_equal(exam.sr_count, 1);
     assert_int_equal(exam.cine_count, 1);

@@ -33,14 +33,14 @@ static void decimal_string_forms(void **state)
 {
     (void)state;
     assert_ok_value("0.8", 0.8);
-    assert_ok_value("0.8 ", 0.8);          /* padded to even length */
-    assert_ok_value("  1.25", 1.25);       /* leading spaces allowed */
-    assert_ok_value("1.2E-1", 0.12);       /* exponent form */
+    assert_ok_value("0.8 ", 0.8);    /* padded to even length */
+    assert_ok_value("  1.25", 1.25); /* leading spaces allowed */
+    assert_ok_value("1.2E-1", 0.12); /* exponent form */
     assert_ok_value("1.2e+1", 12.0);
     assert_ok_value("+0.4", 0.4);
     assert_ok_value("-0.0", 0.0);
     assert_ok_value("2", 2.0);
-    assert_ok_value(".5", 0.5);            /* ANSI X3.9 allows a bare fraction */
+    assert_ok_value(".5", 0.5); /* ANSI X3.9 allows a bare fraction */
     assert_ok_value("3.", 3.0);
     assert_ok_value("1234567890.12345", 1234567890.12345); /* exactly 16 bytes */
 }
@@ -48,13 +48,13 @@ static void decimal_string_forms(void **state)
 static void decimal_string_missing_and_invalid(void **state)
 {
     (void)state;
-    assert_status(NULL, EXAM_VALUE_MISSING);          /* attribute absent */
-    assert_status("", EXAM_VALUE_MISSING);            /* present, zero length */
-    assert_status("    ", EXAM_VALUE_MISSING);        /* only padding */
-    assert_status("1,2", EXAM_VALUE_INVALID);         /* decimal comma: never guessed */
+    assert_status(NULL, EXAM_VALUE_MISSING);   /* attribute absent */
+    assert_status("", EXAM_VALUE_MISSING);     /* present, zero length */
+    assert_status("    ", EXAM_VALUE_MISSING); /* only padding */
+    assert_status("1,2", EXAM_VALUE_INVALID);  /* decimal comma: never guessed */
     assert_status("abc", EXAM_VALUE_INVALID);
-    assert_status("1.1\\1.2", EXAM_VALUE_INVALID);    /* VM 2 in a VM 1 attribute */
-    assert_status("1 2", EXAM_VALUE_INVALID);         /* embedded space (PS3.5) */
+    assert_status("1.1\\1.2", EXAM_VALUE_INVALID); /* VM 2 in a VM 1 attribute */
+    assert_status("1 2", EXAM_VALUE_INVALID);      /* embedded space (PS3.5) */
     assert_status("1.2E", EXAM_VALUE_INVALID);
     assert_status("E5", EXAM_VALUE_INVALID);
     assert_status(".", EXAM_VALUE_INVALID);
@@ -62,7 +62,7 @@ static void decimal_string_missing_and_invalid(void **state)
     assert_status("inf", EXAM_VALUE_INVALID);
     assert_status("0x1A", EXAM_VALUE_INVALID);
     assert_status("12345678901234567", EXAM_VALUE_INVALID); /* 17 bytes > 16 */
-    assert_status("1e999", EXAM_VALUE_INVALID);       /* out of double range */
+    assert_status("1e999", EXAM_VALUE_INVALID);             /* out of double range */
 }
 
 /* PS3.5 Table 6.2-1, VR IS: [+-]digits, at most 12 bytes,
@@ -145,7 +145,7 @@ static void acquisition_time_fall_backs(void **state)
     assert_int_equal(ext_acquisition_time(&facts, out), EXT_TIME_CONTENT);
     assert_string_equal(out, "2026-11-01T08:04:00");
     set_value(&facts, DCM_ATTRIBUTE_ACQUISITION_DATE, "20261101");
-    set_value(&facts, DCM_ATTRIBUTE_ACQUISITION_TIME, "bad");   /* malformed: skipped */
+    set_value(&facts, DCM_ATTRIBUTE_ACQUISITION_TIME, "bad"); /* malformed: skipped */
     assert_int_equal(ext_acquisition_time(&facts, out), EXT_TIME_CONTENT);
     set_value(&facts, DCM_ATTRIBUTE_ACQUISITION_TIME, "080300");
     assert_int_equal(ext_acquisition_time(&facts, out), EXT_TIME_ACQUISITION);
@@ -217,13 +217,13 @@ static void uid_syntax(void **state)
     too_long[65] = '\0';
     assert_false(ext_uid_is_valid(too_long));
     assert_false(ext_uid_is_valid(""));
-    assert_false(ext_uid_is_valid("1.2.03"));      /* leading zero */
-    assert_false(ext_uid_is_valid("1..2"));        /* empty component */
+    assert_false(ext_uid_is_valid("1.2.03")); /* leading zero */
+    assert_false(ext_uid_is_valid("1..2"));   /* empty component */
     assert_false(ext_uid_is_valid(".1.2"));
     assert_false(ext_uid_is_valid("1.2."));
     assert_false(ext_uid_is_valid("../../tmp/x"));
     assert_false(ext_uid_is_valid("1.2.3\n4"));
-    assert_false(ext_uid_is_valid("1.2.3 "));      /* padding is trimmed before */
+    assert_false(ext_uid_is_valid("1.2.3 ")); /* padding is trimmed before */
 }
 
 static void record_with_invalid_uid_is_refused(void **state)

@@ -36,7 +36,7 @@ typedef struct fixture {
 
 typedef struct response {
     int status;
-    char *head;   /* status line and headers */
+    char *head; /* status line and headers */
     char *body;
 } response;
 
@@ -65,8 +65,8 @@ static void write_file(const char *path, const char *text)
 }
 
 /* Stores one ultrasound instance with MI ok and TIB missing. */
-static void put_instance(store *st, const char *uid, const char *study,
-                         const char *received_at, double mi)
+static void put_instance(store *st, const char *uid, const char *study, const char *received_at,
+                         double mi)
 {
     ext_record record;
     memset(&record, 0, sizeof record);
@@ -76,11 +76,9 @@ static void put_instance(store *st, const char *uid, const char *study,
     record.station_name = strdup("US \"ROOM\" 1");
     record.modality = strdup("US");
     record.is_ultrasound = 1;
-    snprintf(record.acquired_at, sizeof record.acquired_at,
-             "2024-03-01T10:00:00");
+    snprintf(record.acquired_at, sizeof record.acquired_at, "2024-03-01T10:00:00");
     record.acquired_at_source = EXT_TIME_ACQUISITION;
-    snprintf(record.received_at, sizeof record.received_at, "%s",
-             received_at);
+    snprintf(record.received_at, sizeof record.received_at, "%s", received_at);
     record.indices[EXAM_INDEX_MI] = (exam_number){EXAM_VALUE_OK, mi};
     record.index_raw[EXAM_INDEX_MI] = strdup("0.9");
     mitilog_error error = {{0}};
@@ -123,14 +121,11 @@ static int fixture_setup(void **state)
     mitilog_error error = {{0}};
     if (store_open(f->path, 5000, &f->store, &error) != MITILOG_OK)
         fail_msg("store_open: %s", error.text);
-    put_instance(f->store, "1.2.3.1", "1.2.3", "2024-03-01T09:00:00.000Z",
-                 0.9);
-    put_instance(f->store, "1.2.3.2", "1.2.3", "2024-03-01T09:05:00.000Z",
-                 1.3);
+    put_instance(f->store, "1.2.3.1", "1.2.3", "2024-03-01T09:00:00.000Z", 0.9);
+    put_instance(f->store, "1.2.3.2", "1.2.3", "2024-03-01T09:05:00.000Z", 1.3);
     f->port = free_port();
     http_settings settings = {"127.0.0.1", f->port, f->web_root, NULL, NULL, NULL, 0, 0, 0, NULL};
-    if (http_server_start(&settings, f->store, &f->server, &error) !=
-        MITILOG_OK)
+    if (http_server_start(&settings, f->store, &f->server, &error) != MITILOG_OK)
         fail_msg("http_server_start: %s", error.text);
     *state = f;
     return 0;
@@ -150,8 +145,7 @@ static int fixture_teardown(void **state)
 
 /* Sends "method target" over a new connection and reads the whole
  * response (the request asks the server to close the connection). */
-static response http_request(unsigned port, const char *method,
-                             const char *target)
+static response http_request(unsigned port, const char *method, const char *target)
 {
     response result = {0, NULL, NULL};
     int s = socket(AF_INET, SOCK_STREAM, 0);
@@ -161,12 +155,12 @@ static response http_request(unsigned port, const char *method,
     address.sin_family = AF_INET;
     address.sin_port = htons((uint16_t)port);
     address.sin_addr.s_addr = htonl(INADDR_LOOPBACK);
-    assert_int_equal(connect(s, (struct sockaddr *)&address, sizeof address),
-                     0);
+    assert_int_equal(connect(s, (struct sockaddr *)&address, sizeof address), 0);
     char request[1024];
     int length = snprintf(request, sizeof request,
                           "%s %s HTTP/1.1\r\nHost: 127.0.0.1\r\n"
-                          "Connection: close\r\n\r\n", method, target);
+                          "Connection: close\r\n\r\n",
+                          method, target);
     assert_int_equal(send(s, request, (size_t)length, 0), length);
     size_t size = 0, capacity = 65536;
     char *data = malloc(capacity + 1);
@@ -205,8 +199,7 @@ static const char *header(const response *r, const char *name)
     size_t length = strlen(name);
     for (const char *line = strstr(r->head, "\r\n"); line != NULL;
          line = strstr(line + 2, "\r\n")) {
-        if (strncasecmp(line + 2, name, length) == 0 &&
-            line[2 + length] == ':') {
+        if (strncasecmp(line + 2, name, length) == 0 && line[2 + length] == ':') {
             const char *start = line + 3 + length;
             while (*start == ' ')
                 start++;
@@ -218,13 +211,12 @@ static const char *header(const response *r, const char *name)
     return NULL;
 }
 
-static void assert_header(const response *r, const char *name,
-                          const char *expected)
+static void assert_header(const response *r, const char *name, const char *expected)
 {
     const char *value = header(r, name);
     if (value == NULL || strcmp(value, expected) != 0)
-        fail_msg("header %s: '%s', expected '%s'", name,
-                 value != NULL ? value : "(absent)", expected);
+        fail_msg("header %s: '%s', expected '%s'", name, value != NULL ? value : "(absent)",
+                 expected);
 }
 
 /* The headers every response carries. */
@@ -232,8 +224,7 @@ static void assert_common_headers(const response *r)
 {
     assert_header(r, "X-Content-Type-Options", "nosniff");
     assert_header(r, "X-Frame-Options", "DENY");
-    assert_header(r, "Content-Security-Policy",
-                  "default-src 'self'; frame-ancestors 'none'");
+    assert_header(r, "Content-Security-Policy", "default-src 'self'; frame-ancestors 'none'");
 }
 
 static void assert_json_headers(const response *r)
@@ -251,9 +242,11 @@ static const char *json_value(const char *json, const char *path)
     sqlite3 *db = NULL;
     sqlite3_open(":memory:", &db);
     sqlite3_stmt *statement = NULL;
-    sqlite3_prepare_v2(db, "SELECT iif(json_valid(?1), "
-                           "coalesce(json_extract(?1, ?2), '(null)'), "
-                           "'(invalid)')", -1, &statement, NULL);
+    sqlite3_prepare_v2(db,
+                       "SELECT iif(json_valid(?1), "
+                       "coalesce(json_extract(?1, ?2), '(null)'), "
+                       "'(invalid)')",
+                       -1, &statement, NULL);
     sqlite3_bind_text(statement, 1, json, -1, SQLITE_STATIC);
     sqlite3_bind_text(statement, 2, path, -1, SQLITE_STATIC);
     assert_int_equal(sqlite3_step(statement), SQLITE_ROW);
@@ -263,8 +256,7 @@ static const char *json_value(const char *json, const char *path)
     return value;
 }
 
-static void assert_json(const char *json, const char *path,
-                        const char *expected)
+static void assert_json(const char *json, const char *path, const char *expected)
 {
     const char *value = json_value(json, path);
     if (strcmp(value, expected) != 0)
@@ -276,8 +268,7 @@ static response get_json(const fixture *f, const char *target, int status)
 {
     response r = http_request(f->port, "GET", target);
     if (r.status != status)
-        fail_msg("GET %s: status %d, expected %d: %s", target, r.status,
-                 status, r.body);
+        fail_msg("GET %s: status %d, expected %d: %s", target, r.status, status, r.body);
     assert_json_headers(&r);
     if (strcmp(json_value(r.body, "$"), "(invalid)") == 0)
         fail_msg("GET %s: body is not JSON: %s", target, r.body);
@@ -285,16 +276,14 @@ static response get_json(const fixture *f, const char *target, int status)
 }
 
 /* GET target is a 400 whose error message names parameter. */
-static void assert_bad_parameter(const fixture *f, const char *target,
-                                 const char *parameter)
+static void assert_bad_parameter(const fixture *f, const char *target, const char *parameter)
 {
     response r = get_json(f, target, 400);
     const char *message = json_value(r.body, "$.error");
     char expected[64];
     snprintf(expected, sizeof expected, "parameter %s:", parameter);
     if (strncmp(message, expected, strlen(expected)) != 0)
-        fail_msg("GET %s: error '%s' does not name %s", target, message,
-                 parameter);
+        fail_msg("GET %s: error '%s' does not name %s", target, message, parameter);
     response_free(&r);
 }
 
@@ -336,8 +325,10 @@ static void instances(void **state)
 
     /* since (with a '+' sent as %2B and as a bare '+'), limit, and unknown
      * parameters ignored. */
-    r = get_json(f, "/api/v1/instances?since=2024-03-01T09:01:00Z&limit=5"
-                    "&colour=blue", 200);
+    r = get_json(f,
+                 "/api/v1/instances?since=2024-03-01T09:01:00Z&limit=5"
+                 "&colour=blue",
+                 200);
     assert_json(r.body, "$[0].sop_instance_uid", "1.2.3.2");
     assert_json(r.body, "$[1]", "(null)");
     response_free(&r);
@@ -345,8 +336,7 @@ static void instances(void **state)
     assert_json(r.body, "$[0].sop_instance_uid", "1.2.3.1");
     assert_json(r.body, "$[1]", "(null)");
     response_free(&r);
-    r = get_json(f, "/api/v1/instances?since=2024-03-01T00:00:00%2B00:00",
-                 200);
+    r = get_json(f, "/api/v1/instances?since=2024-03-01T00:00:00%2B00:00", 200);
     assert_json(r.body, "$[1].sop_instance_uid", "1.2.3.2");
     response_free(&r);
     r = get_json(f, "/api/v1/instances?since=2024-03-01T00:00:00+00:00", 200);
@@ -374,12 +364,12 @@ static void bad_parameters(void **state)
     assert_bad_parameter(f, "/api/v1/instances?limit=", "limit");
     assert_bad_parameter(f, "/api/v1/instances?since=yesterday", "since");
     assert_bad_parameter(f, "/api/v1/instances?since=202", "since");
-    assert_bad_parameter(f, "/api/v1/instances?since=2024'%20OR%201=1",
-                         "since");
+    assert_bad_parameter(f, "/api/v1/instances?since=2024'%20OR%201=1", "since");
     assert_bad_parameter(f, "/api/v1/instances?study=1.2.x", "study");
     assert_bad_parameter(f, "/api/v1/instances?study=", "study");
-    assert_bad_parameter(f, "/api/v1/instances?study=1234567890123456789012"
-                            "3456789012345678901234567890123456789012345",
+    assert_bad_parameter(f,
+                         "/api/v1/instances?study=1234567890123456789012"
+                         "3456789012345678901234567890123456789012345",
                          "study");
     assert_bad_parameter(f, "/api/v1/studies?from=2024-13-01", "from");
     assert_bad_parameter(f, "/api/v1/studies?to=2024-3-1", "to");
@@ -390,8 +380,7 @@ static void bad_parameters(void **state)
 static void studies(void **state)
 {
     fixture *f = *state;
-    response r = get_json(f, "/api/v1/studies?from=2024-03-01&to=2024-03-01",
-                          200);
+    response r = get_json(f, "/api/v1/studies?from=2024-03-01&to=2024-03-01", 200);
     assert_json(r.body, "$[0].study_instance_uid", "1.2.3");
     assert_json(r.body, "$[0].instance_count", "2");
     assert_json(r.body, "$[0].max_mi", "1.3"); /* max(0.9, 1.3) */
@@ -429,8 +418,7 @@ static void not_found_and_method(void **state)
         assert_json_headers(&r);
         assert_header(&r, "Allow", "GET, HEAD");
         char expected[64];
-        snprintf(expected, sizeof expected, "method not allowed: %s",
-                 methods[i]);
+        snprintf(expected, sizeof expected, "method not allowed: %s", methods[i]);
         assert_json(r.body, "$.error", expected);
         response_free(&r);
     }
@@ -460,9 +448,9 @@ static void static_files(void **state)
     response_free(&r);
 
     /* Traversal, hidden parts, links out of the root, folders: 404. */
-    const char *refused[] = {"/../secret.txt", "/%2e%2e/secret.txt",
-                             "/web/../../secret.txt", "/link.txt",
-                             "/.hidden", "/missing.css", "/..%5csecret.txt"};
+    const char *refused[] = {"/../secret.txt",  "/%2e%2e/secret.txt", "/web/../../secret.txt",
+                             "/link.txt",       "/.hidden",           "/missing.css",
+                             "/..%5csecret.txt"};
     for (size_t i = 0; i < sizeof refused / sizeof refused[0]; i++) {
         r = http_request(f->port, "GET", refused[i]);
         if (r.status != 404)
@@ -479,22 +467,21 @@ static void port_taken_and_bad_settings(void **state)
     http_settings same = {"127.0.0.1", f->port, NULL, NULL, NULL, NULL, 0, 0, 0, NULL};
     http_server *second = NULL;
     mitilog_error error = {{0}};
-    assert_int_equal(http_server_start(&same, f->store, &second, &error),
-                     MITILOG_ERROR_IO);
+    assert_int_equal(http_server_start(&same, f->store, &second, &error), MITILOG_ERROR_IO);
     assert_null(second);
     assert_non_null(strstr(error.text, "in use"));
 
     http_settings bad_address = {"localhost:80", 0, NULL, NULL, NULL, NULL, 0, 0, 0, NULL};
-    assert_int_equal(http_server_start(&bad_address, f->store, &second,
-                                       &error), MITILOG_ERROR_INVALID);
+    assert_int_equal(http_server_start(&bad_address, f->store, &second, &error),
+                     MITILOG_ERROR_INVALID);
     http_settings bad_port = {"127.0.0.1", 70000, NULL, NULL, NULL, NULL, 0, 0, 0, NULL};
     assert_int_equal(http_server_start(&bad_port, f->store, &second, &error),
                      MITILOG_ERROR_INVALID);
 
     /* No web root: "/" is a JSON 404. */
-    http_settings api_only = {NULL, free_port(), "/nonexistent/web", NULL, NULL, NULL, 0, 0, 0, NULL};
-    assert_int_equal(http_server_start(&api_only, f->store, &second, &error),
-                     MITILOG_OK);
+    http_settings api_only = {NULL, free_port(), "/nonexistent/web", NULL, NULL, NULL, 0, 0,
+                              0,    NULL};
+    assert_int_equal(http_server_start(&api_only, f->store, &second, &error), MITILOG_OK);
     response r = http_request(api_only.port, "GET", "/");
     assert_int_equal(r.status, 404);
     assert_json(r.body, "$.error", "not found: /");

@@ -54,8 +54,7 @@ static char *sqlite_text(const char *sql, int is_text, const char *text, double 
 /* Runs Python's json module over document with a check script that
  * reads the parsed value as `doc` and the expected one from argument 1
  * (a Python literal); 0 when the check holds. */
-static int python_check(const char *document, const char *expected_literal,
-                        const char *check)
+static int python_check(const char *document, const char *expected_literal, const char *check)
 {
     char path[] = "/tmp/mitilog-test-json-XXXXXX";
     int fd = mkstemp(path);
@@ -88,8 +87,7 @@ static int python_check(const char *document, const char *expected_literal,
     fputs(expected_literal, file);
     fclose(file);
     char command[512];
-    snprintf(command, sizeof command, "/usr/bin/python3 %s %s %s", script, path,
-             expected_path);
+    snprintf(command, sizeof command, "/usr/bin/python3 %s %s %s", script, path, expected_path);
     int rc = system(command);
     unlink(path);
     unlink(script);
@@ -107,7 +105,8 @@ static const char *const tricky_strings[] = {
     "\x01\x02\x03\x04\x05\x06\x07\b\t\n\x0b\f\r\x0e\x0f",
     "\x10\x11\x12\x13\x14\x15\x16\x17\x18\x19\x1a\x1b\x1c\x1d\x1e\x1f",
     "DEL \x7f end",
-    "Salle \xc3\xa9" "chographie 2 \xe2\x80\x94 \xe2\x82\xac \xf0\x9f\x98\x80",
+    "Salle \xc3\xa9"
+    "chographie 2 \xe2\x80\x94 \xe2\x82\xac \xf0\x9f\x98\x80",
     "line\xe2\x80\xa8separator",
     "\\u0041 is not an escape here",
     "trailing backslash \\",
@@ -139,11 +138,31 @@ static void strings_as_sqlite_prints_them(void **state)
 static void numbers_as_sqlite_prints_them(void **state)
 {
     (void)state;
-    static const double picked[] = {
-        0.0, -0.0, 1.0, -1.0, 0.7, 12.345, 1e-05, 0.0001, 1e20, 1e15, 1e14,
-        123456789012345.0, 1234567890123456.0, 0.1 + 0.2, 1.0 / 3.0, 2.5, 100.0,
-        5e-324, 1.7976931348623157e308, -2.2250738585072014e-308, 999999999999999.9,
-        99999999999999.99, 3.0, 1.5, 2.0};
+    static const double picked[] = {0.0,
+                                    -0.0,
+                                    1.0,
+                                    -1.0,
+                                    0.7,
+                                    12.345,
+                                    1e-05,
+                                    0.0001,
+                                    1e20,
+                                    1e15,
+                                    1e14,
+                                    123456789012345.0,
+                                    1234567890123456.0,
+                                    0.1 + 0.2,
+                                    1.0 / 3.0,
+                                    2.5,
+                                    100.0,
+                                    5e-324,
+                                    1.7976931348623157e308,
+                                    -2.2250738585072014e-308,
+                                    999999999999999.9,
+                                    99999999999999.99,
+                                    3.0,
+                                    1.5,
+                                    2.0};
     uint64_t seed = 0x9e3779b97f4a7c15u;
     for (size_t i = 0; i < 20000 + sizeof picked / sizeof picked[0]; i++) {
         double value;
@@ -225,10 +244,10 @@ static void containers_as_sqlite_prints_them(void **state)
     json_array_end(&writer);
     json_object_end(&writer);
     char *mine = finish(&writer);
-    char *reference = sqlite_text(
-        "SELECT json_object('a', 1, 'b', json_array(), 'c', json_object(), 'd', "
-        "json_array(?1, json_object('k\"ey', NULL), json('true')))",
-        0, NULL, 2.0);
+    char *reference =
+        sqlite_text("SELECT json_object('a', 1, 'b', json_array(), 'c', json_object(), 'd', "
+                    "json_array(?1, json_object('k\"ey', NULL), json('true')))",
+                    0, NULL, 2.0);
     assert_string_equal(mine, reference);
     free(mine);
     free(reference);
@@ -253,8 +272,7 @@ static void strings_round_trip_through_python(void **state)
         used += (size_t)snprintf(literal + used, sizeof literal - used, "b'");
         for (const unsigned char *p = (const unsigned char *)tricky_strings[i]; *p; p++)
             used += (size_t)snprintf(literal + used, sizeof literal - used, "\\x%02x", *p);
-        used += (size_t)snprintf(literal + used, sizeof literal - used,
-                                 "'.decode('utf-8'),");
+        used += (size_t)snprintf(literal + used, sizeof literal - used, "'.decode('utf-8'),");
     }
     snprintf(literal + used, sizeof literal - used, "]");
     assert_int_equal(python_check(mine, literal, "doc == expected"), 0);
@@ -268,9 +286,9 @@ static void strings_round_trip_through_python(void **state)
 static void numbers_round_trip_through_python(void **state)
 {
     (void)state;
-    static const double values[] = {0.7, 12.345, 1e-05, 1e20, 1.0 / 3.0, 2.0 / 3.0,
-                                    123456.789012345, 6.02214076e23, 1.602176634e-19,
-                                    -273.15, 5e-324, 1.5e308};
+    static const double values[] = {
+        0.7,           12.345,          1e-05,   1e20,   1.0 / 3.0, 2.0 / 3.0, 123456.789012345,
+        6.02214076e23, 1.602176634e-19, -273.15, 5e-324, 1.5e308};
     json_writer writer;
     json_writer_init(&writer);
     json_array_begin(&writer);

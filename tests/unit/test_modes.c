@@ -103,8 +103,7 @@ static void power_mode_union(void **state)
     assert_int_equal(ext_modes_conflict(&power, from_regions, 2), 0);
     /* both bits set: the image shows both */
     ext_bitmap both = ext_modes_from_image_type("ORIGINAL\\PRIMARY\\ABDOMINAL\\0111");
-    assert_int_equal(ext_modes_union(&both, from_regions, 0),
-                     BIT(2D) | BIT(COLOUR) | BIT(POWER));
+    assert_int_equal(ext_modes_union(&both, from_regions, 0), BIT(2D) | BIT(COLOUR) | BIT(POWER));
     /* no usable bitmap: the region's word stands */
     ext_bitmap none = ext_modes_from_image_type("ORIGINAL\\PRIMARY");
     assert_int_equal(ext_modes_union(&none, from_regions, BIT(PW)),

@@ -125,8 +125,11 @@ static long long query_int(const char *path, const char *sql)
 static mitilog_status write_mi(store *st, long long id, const char *path, double value,
                                const char *text, int decimals, int *stale)
 {
-    store_screen_result result = {.instance_id = id, .path = path, .read = 1,
-                                  .profile_key = "kestrel-320", .profile_version = 1,
+    store_screen_result result = {.instance_id = id,
+                                  .path = path,
+                                  .read = 1,
+                                  .profile_key = "kestrel-320",
+                                  .profile_version = 1,
                                   .frames_read = 1};
     for (int i = 0; i < EXAM_INDEX_COUNT; i++)
         result.values[i].status = "not_shown";
@@ -144,8 +147,7 @@ static void study_mi(store *st, exam_number *mi)
     ext_exam_instance *instances = NULL;
     size_t count = 0;
     mitilog_error error = {{0}};
-    assert_int_equal(store_load_study(st, "1.2.826.0.1.3680043.9.9.1", &instances, &count,
-                                      &error),
+    assert_int_equal(store_load_study(st, "1.2.826.0.1.3680043.9.9.1", &instances, &count, &error),
                      MITILOG_OK);
     assert_int_equal(count, 1);
     *mi = instances[0].indices[EXAM_INDEX_MI];
@@ -236,9 +238,9 @@ static void screen_value_is_used_and_mismatch_found(void **state)
     assert_true(mi.value == 1.0);
     store_mismatch *rows = NULL;
     size_t count = 0;
-    assert_int_equal(store_load_mismatches(f->store, "1.2.826.0.1.3680043.9.9.1", &rows,
-                                           &count, &error),
-                     MITILOG_OK);
+    assert_int_equal(
+        store_load_mismatches(f->store, "1.2.826.0.1.3680043.9.9.1", &rows, &count, &error),
+        MITILOG_OK);
     assert_int_equal(count, 1);
     assert_string_equal(rows[0].index, "mi");
     assert_true(rows[0].header_value == 1.0 && rows[0].screen_value == 1.3);
@@ -259,16 +261,16 @@ static void rounding_of_the_screen_is_not_a_mismatch(void **state)
     store_mismatch *rows = NULL;
     size_t count = 0;
     mitilog_error error = {{0}};
-    assert_int_equal(store_load_mismatches(f->store, "1.2.826.0.1.3680043.9.9.1", &rows,
-                                           &count, &error),
-                     MITILOG_OK);
+    assert_int_equal(
+        store_load_mismatches(f->store, "1.2.826.0.1.3680043.9.9.1", &rows, &count, &error),
+        MITILOG_OK);
     assert_int_equal(count, 0);
     store_mismatches_free(rows, count);
     id = put(f->store, "1.2.3.5", 0.76, "/spool/f.dcm", NULL, NULL);
     write_mi(f->store, id, "/spool/f.dcm", 0.7, "0.7", 1, &stale);
-    assert_int_equal(store_load_mismatches(f->store, "1.2.826.0.1.3680043.9.9.1", &rows,
-                                           &count, &error),
-                     MITILOG_OK);
+    assert_int_equal(
+        store_load_mismatches(f->store, "1.2.826.0.1.3680043.9.9.1", &rows, &count, &error),
+        MITILOG_OK);
     assert_int_equal(count, 1);
     store_mismatches_free(rows, count);
 }
@@ -284,8 +286,8 @@ int main(void)
                                         fixture_teardown),
         cmocka_unit_test_setup_teardown(screen_value_is_used_and_mismatch_found, fixture_setup,
                                         fixture_teardown),
-        cmocka_unit_test_setup_teardown(rounding_of_the_screen_is_not_a_mismatch,
-                                        fixture_setup, fixture_teardown),
+        cmocka_unit_test_setup_teardown(rounding_of_the_screen_is_not_a_mismatch, fixture_setup,
+                                        fixture_teardown),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -60,10 +60,17 @@ static int parse_time(const char *text, double *seconds)
 /* "2D+PW", "CW", "colour", "power", "M", "3D" or "0x0009". */
 static int parse_modes(const char *text, unsigned *modes)
 {
-    static const struct { const char *name; unsigned bit; } names[] = {
-        {"2D", EXAM_MODE_BIT(EXAM_MODE_2D)}, {"M", EXAM_MODE_BIT(EXAM_MODE_M)}, {"CW", EXAM_MODE_BIT(EXAM_MODE_CW)},
-        {"PW", EXAM_MODE_BIT(EXAM_MODE_PW)}, {"colour", EXAM_MODE_BIT(EXAM_MODE_COLOUR)}, {"colour_m", EXAM_MODE_BIT(EXAM_MODE_COLOUR_M)},
-        {"3D", EXAM_MODE_BIT(EXAM_MODE_3D)}, {"power", EXAM_MODE_BIT(EXAM_MODE_POWER)}};
+    static const struct {
+        const char *name;
+        unsigned bit;
+    } names[] = {{"2D", EXAM_MODE_BIT(EXAM_MODE_2D)},
+                 {"M", EXAM_MODE_BIT(EXAM_MODE_M)},
+                 {"CW", EXAM_MODE_BIT(EXAM_MODE_CW)},
+                 {"PW", EXAM_MODE_BIT(EXAM_MODE_PW)},
+                 {"colour", EXAM_MODE_BIT(EXAM_MODE_COLOUR)},
+                 {"colour_m", EXAM_MODE_BIT(EXAM_MODE_COLOUR_M)},
+                 {"3D", EXAM_MODE_BIT(EXAM_MODE_3D)},
+                 {"power", EXAM_MODE_BIT(EXAM_MODE_POWER)}};
     if (strncmp(text, "0x", 2) == 0) {
         *modes = (unsigned)strtoul(text, NULL, 16);
         return 0;

@@ -42,7 +42,7 @@ static void evaluate_one(exam_group group, double weeks, exam_index index, doubl
 
 typedef struct step {
     double threshold;
-    double minutes;      /* < 0: not recommended */
+    double minutes; /* < 0: not recommended */
 } step;
 
 /* At each threshold: TI exactly at it for exactly the limit is allowed; one
@@ -182,15 +182,23 @@ static void first_trimester_doppler_boundary(void **state)
 {
     (void)state;
     exam_severity severity = EXAM_SEVERITY_VIOLATION;
-    assert_int_equal(doppler_findings(13 + 6 / 7.0, EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_PW), 0.8, &severity), 1);
+    assert_int_equal(doppler_findings(13 + 6 / 7.0,
+                                      EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_PW),
+                                      0.8, &severity),
+                     1);
     assert_int_equal(severity, EXAM_SEVERITY_ADVISORY);
-    assert_int_equal(doppler_findings(14.0, EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_PW), 0.8, &severity), 0);
+    assert_int_equal(doppler_findings(14.0,
+                                      EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_PW),
+                                      0.8, &severity),
+                     0);
     assert_int_equal(doppler_findings(12, EXAM_MODE_BIT(EXAM_MODE_CW), 1.0, &severity), 1);
     assert_int_equal(severity, EXAM_SEVERITY_ADVISORY);
     assert_int_equal(doppler_findings(12, EXAM_MODE_BIT(EXAM_MODE_COLOUR), 1.01, &severity), 1);
     assert_int_equal(severity, EXAM_SEVERITY_WARNING);
     assert_int_equal(doppler_findings(12, EXAM_MODE_BIT(EXAM_MODE_POWER), 0.5, &severity), 1);
-    assert_int_equal(doppler_findings(12, EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_M), 0.5, &severity), 0);
+    assert_int_equal(doppler_findings(12, EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_M),
+                                      0.5, &severity),
+                     0);
 }
 
 static rules_result evaluate_mi(exam_group group, const char *category, double mi, double tis)
@@ -262,11 +270,12 @@ static void output_not_reported_aggregates_per_device(void **state)
     exam_device_instance instances[11];
     const char *uids[11] = {"a1", "a2", "a3", "a4", "a5", "y1", "y2", "y3", "b1", "b2", "b3"};
     for (size_t i = 0; i < 11; i++) {
-        instances[i] = (exam_device_instance){uids[i], "1.2", i < 8 ? "ROOM A" : "ROOM B",
-                                        i < 5 || i >= 8 ? "C5-1" : "L12-5", 0, 100.0 * i, 1};
+        instances[i] = (exam_device_instance){
+            uids[i],   "1.2", i < 8 ? "ROOM A" : "ROOM B", i < 5 || i >= 8 ? "C5-1" : "L12-5", 0,
+            100.0 * i, 1};
     }
     for (size_t i = 5; i < 8; i++)
-        instances[i].has_any_index = 1;   /* the L12-5 reports its indices */
+        instances[i].has_any_index = 1; /* the L12-5 reports its indices */
     instances[10].has_any_index = 1;
     rules_result result;
     mitilog_error error;
@@ -292,7 +301,7 @@ static void optional_rules_off_by_default(void **state)
     (void)state;
     /* TIS 6.0 (43 C worst case) for 10 min: CEM43 = 10 (Sapareto & Dewey). */
     exam_capture captures[3] = {support_capture("1", 0, 0), support_capture("2", 3 * 3600, 0),
-                                 support_capture("3", 3 * 3600 + 1, 600)};
+                                support_capture("3", 3 * 3600 + 1, 600)};
     captures[2].indices[EXAM_INDEX_TIS] = support_number(6.0);
     rules_exam exam = support_exam(EXAM_GROUP_GENERAL, captures, 3);
     rules_result result;
@@ -312,7 +321,7 @@ static void optional_rules_off_by_default(void **state)
     assert_string_equal(dose->unit, "CEM43 min");
     rules_result_free(&result);
     rules_policy_free(site);
-    site = support_policy_with("limit = off\n", "limit = 120\n");   /* mi_ceiling: first */
+    site = support_policy_with("limit = off\n", "limit = 120\n"); /* mi_ceiling: first */
     rules_policy_free(site);
     char *text = support_shipped_text();
     char *at = strstr(text, "[rule exam_duration]");
@@ -323,7 +332,7 @@ static void optional_rules_off_by_default(void **state)
     assert_int_equal(rules_evaluate(site, &exam, &result, &error), MITILOG_OK);
     const exam_finding *duration = support_find(&result, "exam_duration", -1);
     assert_non_null(duration);
-    assert_close(duration->measured, 180 + 1 / 60.0, 1e-9);   /* 0 s to 10801 s */
+    assert_close(duration->measured, 180 + 1 / 60.0, 1e-9); /* 0 s to 10801 s */
     rules_result_free(&result);
     rules_policy_free(site);
 }

@@ -21,10 +21,15 @@ static void shipped_policy_loads(void **state)
     assert_close(rules_policy_closed_after_idle_minutes(policy), 60, 0);
     assert_close(rules_policy_gap_cap_seconds(policy), 300, 0);
     /* Every rule of the policy engine, each with a source. */
-    const char *expected[] = {"ti_ceiling", "mi_ceiling", "equipment_maxima",
-                              "dwell_general", "dwell_obstetric_neonatal",
-                              "first_trimester_doppler", "output_not_reported",
-                              "thermal_dose", "exam_duration"};
+    const char *expected[] = {"ti_ceiling",
+                              "mi_ceiling",
+                              "equipment_maxima",
+                              "dwell_general",
+                              "dwell_obstetric_neonatal",
+                              "first_trimester_doppler",
+                              "output_not_reported",
+                              "thermal_dose",
+                              "exam_duration"};
     assert_int_equal(rules_policy_rule_count(policy), 9);
     for (size_t i = 0; i < 9; i++) {
         exam_rule_info info;

@@ -16,7 +16,7 @@ enum { CASES = 400, MAX_CAPTURES = 14 };
 
 static uint64_t seed = 20240611;
 
-static double uniform(void)   /* [0, 1): a 64-bit LCG, top 53 bits */
+static double uniform(void) /* [0, 1): a 64-bit LCG, top 53 bits */
 {
     seed = seed * 6364136223846793005ULL + 1442695040888963407ULL;
     return (double)(seed >> 11) / 9007199254740992.0;
@@ -36,15 +36,16 @@ static void generate(generated *out)
     for (size_t i = 0; i < count; i++) {
         snprintf(out->uids[i], sizeof out->uids[i], "1.2.%zu", i);
         exam_capture *capture = &out->captures[i];
-        t += uniform() * 900;   /* gaps up to 15 min: some above the cap */
+        t += uniform() * 900; /* gaps up to 15 min: some above the cap */
         *capture = support_capture(out->uids[i], t, uniform() < 0.3 ? uniform() * 600 : 0);
         capture->has_time = uniform() > 0.05;
         for (int x = 0; x < EXAM_INDEX_COUNT; x++) {
             if (uniform() < 0.85)
-                capture->indices[x] = support_number(x == EXAM_INDEX_MI ? uniform() * 2.2
-                                                                       : uniform() * 3.5);
+                capture->indices[x] =
+                    support_number(x == EXAM_INDEX_MI ? uniform() * 2.2 : uniform() * 3.5);
         }
-        capture->modes = uniform() < 0.3 ? EXAM_MODE_BIT(EXAM_MODE_PW) : EXAM_MODE_BIT(EXAM_MODE_2D);
+        capture->modes =
+            uniform() < 0.3 ? EXAM_MODE_BIT(EXAM_MODE_PW) : EXAM_MODE_BIT(EXAM_MODE_2D);
     }
     out->exam = support_exam((exam_group)(uniform() * EXAM_GROUP_COUNT), out->captures, count);
     out->exam.age = (rules_age)(uniform() * RULES_AGE_COUNT);
@@ -88,9 +89,9 @@ static void adding_time_never_removes_a_dwell_finding(void **state)
         generated longer = exam;
         longer.exam.captures = longer.captures;
         size_t count = longer.exam.capture_count;
-        if (uniform() < 0.5) {   /* a longer cine */
+        if (uniform() < 0.5) { /* a longer cine */
             longer.captures[(size_t)(uniform() * count)].cine_seconds += uniform() * 900;
-        } else {                 /* one more capture after the last */
+        } else { /* one more capture after the last */
             double last = 0;
             for (size_t i = 0; i < count; i++)
                 if (longer.captures[i].time_seconds > last)
@@ -165,8 +166,7 @@ static void evaluating_twice_changes_nothing(void **state)
         assert_int_equal(first.finding_count, second.finding_count);
         for (size_t i = 0; i < first.finding_count; i++)
             same_findings(&first.findings[i], &second.findings[i]);
-        assert_memory_equal(&first.measurements, &second.measurements,
-                            sizeof first.measurements);
+        assert_memory_equal(&first.measurements, &second.measurements, sizeof first.measurements);
         rules_result_free(&first);
         rules_result_free(&second);
     }

@@ -42,13 +42,16 @@ static int setup(void **state)
      * second connection (WAL: the store's connections see it). */
     sqlite3 *db = NULL;
     assert_int_equal(sqlite3_open(f->path, &db), SQLITE_OK);
-    assert_int_equal(sqlite3_exec(db,
-        "INSERT INTO exams (study_instance_uid, exam_type_source, governing_index, "
-        "governing_index_source, instance_count, capture_count, cine_count, sr_count, "
-        "other_count, estimated_seconds, unscaled_seconds, scale, span_seconds, timed_count, "
-        "untimed_count, capped_count, gap_cap_seconds, updated_at) VALUES "
-        "('1.2.3', 'none', 'tis', 'default', 1, 1, 0, 0, 0, 60, 60, 1, 0, 1, 0, 0, 300, 'x')",
-        NULL, NULL, NULL), SQLITE_OK);
+    assert_int_equal(
+        sqlite3_exec(
+            db,
+            "INSERT INTO exams (study_instance_uid, exam_type_source, governing_index, "
+            "governing_index_source, instance_count, capture_count, cine_count, sr_count, "
+            "other_count, estimated_seconds, unscaled_seconds, scale, span_seconds, timed_count, "
+            "untimed_count, capped_count, gap_cap_seconds, updated_at) VALUES "
+            "('1.2.3', 'none', 'tis', 'default', 1, 1, 0, 0, 0, 60, 60, 1, 0, 1, 0, 0, 300, 'x')",
+            NULL, NULL, NULL),
+        SQLITE_OK);
     sqlite3_close(db);
     *state = f;
     return 0;
@@ -102,19 +105,27 @@ static char *uids[] = {"1.2.3.1", "1.2.3.2"};
 static store_evaluation exam_evaluation(const char *version, exam_finding *findings,
                                         exam_measurements *measurements, double measured)
 {
-    *measurements = (exam_measurements){.governing_index = EXAM_INDEX_TIS,
-                                        .estimated_seconds = 60};
+    *measurements = (exam_measurements){.governing_index = EXAM_INDEX_TIS, .estimated_seconds = 60};
     measurements->index_reported[EXAM_INDEX_TIS] = 1;
     measurements->max_index[EXAM_INDEX_TIS] = measured;
-    findings[0] = (exam_finding){.rule_id = "ti_ceiling", .severity = EXAM_SEVERITY_WARNING,
-                                  .quantity = "tis", .unit = "", .measured = measured,
-                                  .has_limit = 1, .limit = 2.0, .index = EXAM_INDEX_TIS,
-                                  .has_index = 1,
-                                  .instance_uids = uids, .instance_count = 2, .has_span = 1,
-                                  .first_seconds = 63900000000.0,
-                                  .last_seconds = 63900000060.0, .estimated_seconds = 60,
-                                  .assumptions = "estimate: gap cap 300 s",
-                                  .source = "TI 2.0 [trade]", .provisional = 1};
+    findings[0] = (exam_finding){.rule_id = "ti_ceiling",
+                                 .severity = EXAM_SEVERITY_WARNING,
+                                 .quantity = "tis",
+                                 .unit = "",
+                                 .measured = measured,
+                                 .has_limit = 1,
+                                 .limit = 2.0,
+                                 .index = EXAM_INDEX_TIS,
+                                 .has_index = 1,
+                                 .instance_uids = uids,
+                                 .instance_count = 2,
+                                 .has_span = 1,
+                                 .first_seconds = 63900000000.0,
+                                 .last_seconds = 63900000060.0,
+                                 .estimated_seconds = 60,
+                                 .assumptions = "estimate: gap cap 300 s",
+                                 .source = "TI 2.0 [trade]",
+                                 .provisional = 1};
     findings[1] = findings[0];
     findings[1].rule_id = "equipment_maxima";
     findings[1].severity = EXAM_SEVERITY_VIOLATION;
@@ -122,11 +133,17 @@ static store_evaluation exam_evaluation(const char *version, exam_finding *findi
     findings[1].measured = 2.1;
     findings[1].limit = 1.9;
     findings[1].instance_count = 1;
-    return (store_evaluation){.policy_version = version, .normalised_text = "n",
-                              .study_instance_uid = "1.2.3", .exam_type = "abdomen",
-                              .room = "Room 1", .preset = "ABD", .shift = "night",
-                              .last_received_at = "2026-11-02T10:00:00Z", .closed = 0,
-                              .findings = findings, .finding_count = 2,
+    return (store_evaluation){.policy_version = version,
+                              .normalised_text = "n",
+                              .study_instance_uid = "1.2.3",
+                              .exam_type = "abdomen",
+                              .room = "Room 1",
+                              .preset = "ABD",
+                              .shift = "night",
+                              .last_received_at = "2026-11-02T10:00:00Z",
+                              .closed = 0,
+                              .findings = findings,
+                              .finding_count = 2,
                               .measurements = measurements};
 }
 
@@ -143,7 +160,8 @@ static void test_written_replaced_superseded(void **state)
     assert_int_equal(store_put_evaluation(f->store, &evaluation, &counts, &error), MITILOG_OK);
     assert_int_equal(counts.written, 2);
     assert_int_equal(count_of(f, "SELECT count(*) FROM findings WHERE policy_version = 'v1' "
-                                 "AND superseded = 0 AND provisional = 1"), 2);
+                                 "AND superseded = 0 AND provisional = 1"),
+                     2);
     /* The span goes back to ISO 8601 (seconds since 0001-01-01): 63900000000 s
      * is 2025-11-29T08:00:00 (checked with Python datetime(1,1,1) + timedelta). */
     char *started = table_text(f, "SELECT started_at, instance_uids FROM findings "
@@ -161,7 +179,8 @@ static void test_written_replaced_superseded(void **state)
     assert_int_equal(counts.superseded, 0);
     assert_int_equal(count_of(f, "SELECT count(*) FROM findings"), 2);
     assert_int_equal(count_of(f, "SELECT count(*) FROM findings WHERE measured_value = 2.7 "
-                                 "AND provisional = 0"), 1);
+                                 "AND provisional = 0"),
+                     1);
     assert_int_equal(count_of(f, "SELECT closed FROM exam_context"), 1);
 
     /* A new version: the old findings are kept, superseded. */
@@ -170,9 +189,11 @@ static void test_written_replaced_superseded(void **state)
     assert_int_equal(store_put_evaluation(f->store, &evaluation, &counts, &error), MITILOG_OK);
     assert_int_equal(counts.superseded, 2);
     assert_int_equal(count_of(f, "SELECT count(*) FROM findings WHERE policy_version = 'v1' "
-                                 "AND superseded = 1"), 2);
+                                 "AND superseded = 1"),
+                     2);
     assert_int_equal(count_of(f, "SELECT count(*) FROM findings WHERE policy_version = 'v2' "
-                                 "AND superseded = 0"), 2);
+                                 "AND superseded = 0"),
+                     2);
     assert_int_equal(count_of(f, "SELECT count(*) FROM exam_measurements"), 2);
 }
 
@@ -186,13 +207,21 @@ static void test_rescoring_twice_changes_nothing(void **state)
     store_evaluation evaluation = exam_evaluation("v1", findings, &values, 2.5);
     assert_int_equal(store_put_evaluation(f->store, &evaluation, NULL, &error), MITILOG_OK);
     exam_finding device[1] = {{.rule_id = "output_not_reported",
-                                .severity = EXAM_SEVERITY_ADVISORY,
-                                .quantity = "instances_without_index", .unit = "instances",
-                                .measured = 1, .has_limit = 1, .limit = 1,
-                                .instance_uids = uids, .instance_count = 1,
-                                .room = "Room 2", .transducer = "C5-1"}};
-    store_evaluation day = {.policy_version = "v1", .rule_id = "output_not_reported",
-                            .period = "2026-11-02", .closed = 1, .findings = device,
+                               .severity = EXAM_SEVERITY_ADVISORY,
+                               .quantity = "instances_without_index",
+                               .unit = "instances",
+                               .measured = 1,
+                               .has_limit = 1,
+                               .limit = 1,
+                               .instance_uids = uids,
+                               .instance_count = 1,
+                               .room = "Room 2",
+                               .transducer = "C5-1"}};
+    store_evaluation day = {.policy_version = "v1",
+                            .rule_id = "output_not_reported",
+                            .period = "2026-11-02",
+                            .closed = 1,
+                            .findings = device,
                             .finding_count = 1};
     assert_int_equal(store_put_evaluation(f->store, &day, NULL, &error), MITILOG_OK);
     char *before = table_text(f, all_findings);
@@ -208,7 +237,8 @@ static void test_rescoring_twice_changes_nothing(void **state)
     assert_string_equal(before, after);
     assert_string_equal(measurements, measurements_after);
     assert_int_equal(count_of(f, "SELECT count(*) FROM findings WHERE study_instance_uid IS NULL "
-                                 "AND period = '2026-11-02' AND room = 'Room 2'"), 1);
+                                 "AND period = '2026-11-02' AND room = 'Room 2'"),
+                     1);
     free(before);
     free(after);
     free(measurements);

@@ -55,8 +55,8 @@ static int frame_load(const char *name, frame *f)
 
 static screen_image image_of(const frame *f)
 {
-    return (screen_image){.width = f->width, .height = f->height,
-                          .stride = (size_t)f->width, .grey = f->grey};
+    return (screen_image){
+        .width = f->width, .height = f->height, .stride = (size_t)f->width, .grey = f->grey};
 }
 
 static int index_named(const char *name)
@@ -131,8 +131,7 @@ static int setup(void **state)
     if (mkdtemp(fixture_directory) == NULL)
         return -1;
     char command[1024];
-    snprintf(command, sizeof command,
-             "/usr/bin/python3 %s/tests/fixtures/screens.py fixtures %s",
+    snprintf(command, sizeof command, "/usr/bin/python3 %s/tests/fixtures/screens.py fixtures %s",
              source ? source : MITILOG_SOURCE_DIR, fixture_directory);
     return system(command) == 0 ? 0 : -1;
 }
@@ -413,16 +412,14 @@ static void learning_refuses(void **state)
     char report[2048];
     mitilog_error error = {{0}};
     /* One frame: its three values of one shape cannot be told apart. */
-    assert_int_equal(screen_learn(NULL, "k", examples, 1, &profile, report, sizeof report,
-                                  &error),
+    assert_int_equal(screen_learn(NULL, "k", examples, 1, &profile, report, sizeof report, &error),
                      MITILOG_ERROR_REFUSED);
     assert_null(profile);
 
     /* Without TIB's values, 5 and 6 are never seen. */
     parse_truth("MI=1.2,TIS=3.4", examples[0].truth);
     parse_truth("MI=0.7,TIS=8.9", examples[1].truth);
-    assert_int_equal(screen_learn(NULL, "k", examples, 2, &profile, report, sizeof report,
-                                  &error),
+    assert_int_equal(screen_learn(NULL, "k", examples, 2, &profile, report, sizeof report, &error),
                      MITILOG_ERROR_REFUSED);
     assert_null(profile);
     assert_non_null(strstr(error.text, "every digit"));
@@ -432,8 +429,7 @@ static void learning_refuses(void **state)
     /* A value given for an index the screen does not show: the places of
      * the others are not certain either (it could have taken one). */
     parse_truth("MI=1.2,TIS=3.4,TIB=5.6,TIC=4.1", examples[0].truth);
-    assert_int_equal(screen_learn(NULL, "k", examples, 2, &profile, report, sizeof report,
-                                  &error),
+    assert_int_equal(screen_learn(NULL, "k", examples, 2, &profile, report, sizeof report, &error),
                      MITILOG_ERROR_REFUSED);
     assert_null(profile);
     assert_non_null(strstr(error.text, "TIC was given a value but not placed"));
@@ -465,11 +461,9 @@ static void combining_cine_frames(void **state)
     for (int f = 0; f < 3; f++) {
         snprintf(frames[f].profile_key, sizeof frames[f].profile_key, "harbor");
         frames[f].values[EXAM_INDEX_MI] =
-            (screen_value){.status = SCREEN_VALUE_READ, .value = 1.2, .decimals = 1,
-                           .text = "1.2"};
+            (screen_value){.status = SCREEN_VALUE_READ, .value = 1.2, .decimals = 1, .text = "1.2"};
         frames[f].values[EXAM_INDEX_TIS] =
-            (screen_value){.status = SCREEN_VALUE_READ, .value = 0.4, .decimals = 1,
-                           .text = "0.4"};
+            (screen_value){.status = SCREEN_VALUE_READ, .value = 0.4, .decimals = 1, .text = "0.4"};
         frames[f].values[EXAM_INDEX_TIB].status = SCREEN_VALUE_NOT_SHOWN;
     }
     frames[1].values[EXAM_INDEX_TIS].text[2] = '5';
@@ -530,7 +524,8 @@ static void padded_profile_matches_and_other_software_is_told_apart(void **state
     screen_profile *profile = NULL;
     assert_int_equal(screen_profile_from_text(text, &profile, &error), MITILOG_OK);
     free(text);
-    screen_device device = {.rows = 480, .columns = 640,
+    screen_device device = {.rows = 480,
+                            .columns = 640,
                             .manufacturer = "Northmere Simulated Imaging",
                             .software_versions = "4.0.2"};
     assert_true(screen_profile_matches(profile, &device));
@@ -539,7 +534,7 @@ static void padded_profile_matches_and_other_software_is_told_apart(void **state
     device.software_versions = "4.1.0";
     assert_false(screen_profile_matches(profile, &device));
     assert_true(screen_profile_matches_but_software(profile, &device));
-    device.rows = 600;   /* another frame size is another screen altogether */
+    device.rows = 600; /* another frame size is another screen altogether */
     assert_false(screen_profile_matches_but_software(profile, &device));
     screen_profile_free(profile);
 }

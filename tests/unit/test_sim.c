@@ -90,7 +90,7 @@ static void test_calendar(void **state)
     (void)state;
     sim_date d;
     assert_int_equal(sim_date_parse("2026-11-02", &d), 0);
-    assert_int_equal(sim_date_weekday(d), 0);          /* a Monday */
+    assert_int_equal(sim_date_weekday(d), 0); /* a Monday */
     assert_int_equal(sim_date_to_days((sim_date){1970, 1, 1}), 0);
     sim_date back = sim_date_from_days(sim_date_to_days(d) + 29);
     assert_int_equal(back.year, 2026);
@@ -111,22 +111,18 @@ static void test_schedule_volumes(void **state)
         for (int d = 0; d < 28; d++) {
             int weekday = d % 7;
             sim_day_schedule(seed, d, weekday, day);
-            int low = weekday >= 5 ? SIM_WEEKEND_EXAMS_LOW
-                                   : SIM_WEEKDAY_EXAMS_LOW;
-            int high = weekday >= 5 ? SIM_WEEKEND_EXAMS_HIGH
-                                    : SIM_WEEKDAY_EXAMS_HIGH;
+            int low = weekday >= 5 ? SIM_WEEKEND_EXAMS_LOW : SIM_WEEKDAY_EXAMS_LOW;
+            int high = weekday >= 5 ? SIM_WEEKEND_EXAMS_HIGH : SIM_WEEKDAY_EXAMS_HIGH;
             assert_in_range(day->count, low, high);
             int night = 0;
             for (size_t i = 0; i < day->count; i++) {
                 const sim_slot *s = &day->slots[i];
                 if (i > 0)
-                    assert_true(s->start_minute
-                                >= day->slots[i - 1].start_minute);
-                assert_int_equal(sim_shift_of_minute(s->start_minute),
-                                 s->shift);
+                    assert_true(s->start_minute >= day->slots[i - 1].start_minute);
+                assert_int_equal(sim_shift_of_minute(s->start_minute), s->shift);
                 night += s->shift == SIM_SHIFT_NIGHT;
             }
-            assert_in_range(night, 1, 6);   /* the night is small */
+            assert_in_range(night, 1, 6); /* the night is small */
         }
     }
     free(day);
@@ -157,16 +153,14 @@ static void test_exam_captures(void **state)
         sim_planted_mark(day, 28);
         for (size_t i = 0; i < day->count; i++) {
             sim_exam_build(d, (int)i + 1, &day->slots[i], exam);
-            assert_in_range(exam->capture_count, SIM_CAPTURES_LOW,
-                            SIM_CAPTURES_HIGH);
+            assert_in_range(exam->capture_count, SIM_CAPTURES_LOW, SIM_CAPTURES_HIGH);
             for (size_t c = 0; c < exam->capture_count; c++) {
                 const sim_capture *cap = &exam->captures[c];
                 if (c > 0)
                     assert_true(cap->second > exam->captures[c - 1].second);
                 assert_in_range(cap->frames, 1, 120);
                 if (cap->frames > 1)
-                    assert_true(cap->frame_time_ms >= 20.0
-                                && cap->frame_time_ms <= 40.0);
+                    assert_true(cap->frame_time_ms >= 20.0 && cap->frame_time_ms <= 40.0);
                 if (cap->has_indices)
                     assert_true(cap->mi >= 0.1 && cap->mi <= 2.1);
             }
@@ -196,8 +190,7 @@ static void test_breach_stretch(void **state)
         sim_planted_mark(day, 28);
         for (size_t i = 0; i < day->count; i++) {
             const sim_slot *slot = &day->slots[i];
-            if ((slot->exam_type != ob2 && slot->exam_type != ob3)
-                || slot->planted != 0)
+            if ((slot->exam_type != ob2 && slot->exam_type != ob3) || slot->planted != 0)
                 continue;
             sim_exam_build(d, (int)i + 1, slot, exam);
             exams++;
@@ -215,12 +208,11 @@ static void test_breach_stretch(void **state)
             if (count == 0)
                 continue;
             breached++;
-            assert_int_equal(last - first + 1, count);   /* one run */
+            assert_int_equal(last - first + 1, count); /* one run */
             assert_true(first >= 1);
             long seconds = 0;
             for (size_t c = first; c <= last; c++) {
-                long gap = exam->captures[c].second
-                           - exam->captures[c - 1].second;
+                long gap = exam->captures[c].second - exam->captures[c - 1].second;
                 seconds += gap > 300 ? 300 : gap;
             }
             assert_true(seconds >= 270);
@@ -249,13 +241,12 @@ static void test_planted_marks(void **state)
             tic += (day->slots[i].planted & SIM_PLANTED_TIC_HIGH) != 0;
         }
     }
-    assert_int_equal(all, 0x3Fu);   /* every planted problem occurs */
+    assert_int_equal(all, 0x3Fu); /* every planted problem occurs */
     assert_int_equal(mi_over, 3);
     assert_int_equal(resend, 1);
     assert_int_equal(tic, 1);
     char tags[128];
-    sim_planted_tags(SIM_PLANTED_HOT_PRESET | SIM_PLANTED_RESEND, tags,
-                     sizeof tags);
+    sim_planted_tags(SIM_PLANTED_HOT_PRESET | SIM_PLANTED_RESEND, tags, sizeof tags);
     assert_string_equal(tags, "hot-preset;resend");
     free(day);
 }
@@ -276,7 +267,6 @@ static void test_uid_form(void **state)
         assert_true(*p >= '0' && *p <= '9');
 }
 
-
 /* Without --screens every room has the one header-only scanner; with it
  * each room its own, US-ROOM-1's software changing in the middle of the
  * run with the same identity otherwise, one pixels-only scanner, one
@@ -289,29 +279,25 @@ static void test_devices(void **state)
         assert_string_equal(sim_device_of(room, 0, 28, 0)->key, "sim-us-1");
     assert_int_equal(sim_software_update_day(28), 14);
     assert_int_equal(sim_software_update_day(2), 1);
-    assert_int_equal(sim_software_update_day(1), 1);   /* never */
+    assert_int_equal(sim_software_update_day(1), 1); /* never */
     const sim_device *before = sim_device_of(0, 13, 28, 1);
     const sim_device *after = sim_device_of(0, 14, 28, 1);
-    assert_string_not_equal(before->software_versions,
-                            after->software_versions);
+    assert_string_not_equal(before->software_versions, after->software_versions);
     assert_string_equal(before->manufacturer, after->manufacturer);
     assert_string_equal(before->model_name, after->model_name);
     assert_int_equal(before->columns, after->columns);
     assert_int_equal(before->rows, after->rows);
-    assert_int_not_equal(before->screen.anchor_bottom,
-                         after->screen.anchor_bottom);
+    assert_int_not_equal(before->screen.anchor_bottom, after->screen.anchor_bottom);
     int pixels_only = 0, stale = 0, two_decimals = 0;
     for (int room = 0; room < SIM_ROOM_COUNT; room++) {
         const sim_device *device = sim_device_of(room, 0, 28, 1);
         assert_non_null(device->screen.rows);
-        assert_true(device->screen.font_pixels >= 10
-                    && device->screen.font_pixels <= 18);
+        assert_true(device->screen.font_pixels >= 10 && device->screen.font_pixels <= 18);
         pixels_only += !device->header_indices;
         stale += device->header_mismatch;
         two_decimals += device->screen.decimals == 2;
         for (int other = 0; other < room; other++)
-            assert_string_not_equal(sim_device_of(other, 0, 28, 1)->key,
-                                    device->key);
+            assert_string_not_equal(sim_device_of(other, 0, 28, 1)->key, device->key);
     }
     assert_int_equal(pixels_only, 1);
     assert_int_equal(stale, 1);
@@ -335,16 +321,14 @@ static void test_exam_decimals(void **state)
             day->slots[i].decimals = decimals;
             sim_exam_build(0, (int)i + 1, &day->slots[i], exam);
             for (size_t c = 0; c < exam->capture_count; c++) {
-                double scaled = exam->captures[c].mi
-                                * (decimals == 2 ? 100.0 : 10.0);
+                double scaled = exam->captures[c].mi * (decimals == 2 ? 100.0 : 10.0);
                 assert_true(fabs(scaled - round(scaled)) < 1e-6);
                 if (decimals == 2)
-                    hundredths += fabs(exam->captures[c].mi * 10.0
-                                       - round(exam->captures[c].mi * 10.0))
-                                  > 1e-6;
+                    hundredths += fabs(exam->captures[c].mi * 10.0 -
+                                       round(exam->captures[c].mi * 10.0)) > 1e-6;
             }
         }
-    assert_true(hundredths > 100);   /* two-decimal values really occur */
+    assert_true(hundredths > 100); /* two-decimal values really occur */
     free(day);
     free(exam);
 }
@@ -354,8 +338,7 @@ static size_t ink_inside(const sim_overlay *overlay, const sim_drawn_index *d)
     size_t ink = 0;
     for (int y = d->y; y < d->y + d->height; y++)
         for (int x = d->x; x < d->x + d->width; x++)
-            ink += overlay->alpha[(size_t)y * overlay->columns + (size_t)x]
-                   > 0;
+            ink += overlay->alpha[(size_t)y * overlay->columns + (size_t)x] > 0;
     return ink;
 }
 
@@ -390,12 +373,10 @@ static void test_screen_render(void **state)
         for (int room = 0; room < SIM_ROOM_COUNT; room++) {
             const sim_device *device = sim_device_of(room, day, 28, 1);
             sim_drawn_index drawn[SIM_INDEX_COUNT];
-            assert_int_equal(sim_screen_render(screen, device, &text,
-                                               &overlay, drawn, &error),
+            assert_int_equal(sim_screen_render(screen, device, &text, &overlay, drawn, &error),
                              MITILOG_OK);
             size_t total = 0, in_boxes = 0;
-            for (size_t i = 0; i < (size_t)device->columns * device->rows;
-                 i++)
+            for (size_t i = 0; i < (size_t)device->columns * device->rows; i++)
                 total += overlay.alpha[i] > 0;
             for (int index = 0; index < SIM_INDEX_COUNT; index++) {
                 const sim_drawn_index *d = &drawn[index];
@@ -404,50 +385,42 @@ static void test_screen_render(void **state)
                     continue;
                 }
                 char value[16], expected[48];
-                sim_screen_format_value(&device->screen, text.values[index],
-                                        value, sizeof value);
-                snprintf(expected, sizeof expected, "%s%s",
-                         device->screen.labels[index], value);
+                sim_screen_format_value(&device->screen, text.values[index], value, sizeof value);
+                snprintf(expected, sizeof expected, "%s%s", device->screen.labels[index], value);
                 assert_string_equal(d->text, expected);
-                assert_true(d->x >= 0 && d->y >= 0 && d->width > 0
-                            && d->height >= 6);
+                assert_true(d->x >= 0 && d->y >= 0 && d->width > 0 && d->height >= 6);
                 assert_true(d->x + d->width <= (int)device->columns);
                 assert_true(d->y + d->height <= (int)device->rows);
                 size_t ink = ink_inside(&overlay, d);
                 assert_true(ink > 10);
                 in_boxes += ink;
             }
-            assert_true(total > in_boxes);   /* other text besides */
+            assert_true(total > in_boxes); /* other text besides */
         }
     /* 2 decimals: "MI:1.23"; 1 decimal rounds the same value to "1.2" */
     char value[16];
-    sim_screen_format_value(&sim_device_of(1, 0, 28, 1)->screen, 1.23, value,
-                            sizeof value);
+    sim_screen_format_value(&sim_device_of(1, 0, 28, 1)->screen, 1.23, value, sizeof value);
     assert_string_equal(value, "1.23");
-    sim_screen_format_value(&sim_device_of(2, 0, 28, 1)->screen, 1.23, value,
-                            sizeof value);
+    sim_screen_format_value(&sim_device_of(2, 0, 28, 1)->screen, 1.23, value, sizeof value);
     assert_string_equal(value, "1.2");
 
     sim_device small = *sim_device_of(2, 0, 28, 1);
     small.columns = 40;
     small.rows = 30;
     sim_drawn_index drawn[SIM_INDEX_COUNT];
-    assert_int_equal(sim_screen_render(screen, &small, &text, &overlay,
-                                       drawn, &error),
+    assert_int_equal(sim_screen_render(screen, &small, &text, &overlay, drawn, &error),
                      MITILOG_ERROR_INVALID);
     assert_non_null(strstr(error.text, "does not fit"));
     sim_device missing = *sim_device_of(3, 0, 28, 1);
     missing.screen.font_file = "/nonexistent/font.ttf";
-    assert_int_equal(sim_screen_render(screen, &missing, &text, &overlay,
-                                       drawn, &error),
+    assert_int_equal(sim_screen_render(screen, &missing, &text, &overlay, drawn, &error),
                      MITILOG_ERROR_NOT_FOUND);
     assert_non_null(strstr(error.text, missing.screen.font_package));
     sim_overlay_free(&overlay);
     sim_screen_close(screen);
 }
 
-static mitilog_status build_small_image(dcm_builder **builder,
-                                        mitilog_error *error)
+static mitilog_status build_small_image(dcm_builder **builder, mitilog_error *error)
 {
     /* an 18 x 9 grey frame with a diagonal, small enough that the
      * compressed streams are a few dozen bytes */
@@ -456,21 +429,18 @@ static mitilog_status build_small_image(dcm_builder **builder,
         pixels[i] = (uint8_t)((i % 18 == i / 18) ? 250 : (i * 7) % 60);
     mitilog_status status = dcm_builder_create(builder, error);
     if (status == MITILOG_OK)
-        status = dcm_builder_put_string(*builder, 0x0008, 0x0016,
-                                        "1.2.840.10008.5.1.4.1.1.6.1", error);
+        status =
+            dcm_builder_put_string(*builder, 0x0008, 0x0016, "1.2.840.10008.5.1.4.1.1.6.1", error);
     if (status == MITILOG_OK)
-        status = dcm_builder_put_string(*builder, 0x0008, 0x0018,
-                                        "2.25.42", error);
+        status = dcm_builder_put_string(*builder, 0x0008, 0x0018, "2.25.42", error);
     if (status == MITILOG_OK)
         status = dcm_builder_put_unsigned(*builder, 0x0028, 0x0002, 1, error);
     if (status == MITILOG_OK)
-        status = dcm_builder_put_string(*builder, 0x0028, 0x0004,
-                                        "MONOCHROME2", error);
+        status = dcm_builder_put_string(*builder, 0x0028, 0x0004, "MONOCHROME2", error);
     if (status == MITILOG_OK)
         status = dcm_builder_put_unsigned(*builder, 0x0028, 0x0010, 9, error);
     if (status == MITILOG_OK)
-        status = dcm_builder_put_unsigned(*builder, 0x0028, 0x0011, 18,
-                                          error);
+        status = dcm_builder_put_unsigned(*builder, 0x0028, 0x0011, 18, error);
     if (status == MITILOG_OK)
         status = dcm_builder_put_unsigned(*builder, 0x0028, 0x0100, 8, error);
     if (status == MITILOG_OK)
@@ -480,8 +450,7 @@ static mitilog_status build_small_image(dcm_builder **builder,
     if (status == MITILOG_OK)
         status = dcm_builder_put_unsigned(*builder, 0x0028, 0x0103, 0, error);
     if (status == MITILOG_OK)
-        status = dcm_builder_put_pixels(*builder, pixels, sizeof pixels,
-                                        error);
+        status = dcm_builder_put_pixels(*builder, pixels, sizeof pixels, error);
     return status;
 }
 
@@ -506,8 +475,7 @@ static void test_compressed_save(void **state)
     assert_int_equal(dcm_initialise(3, &error), MITILOG_OK);
     char directory[] = "/tmp/mitilog-test-sim-XXXXXX";
     assert_non_null(mkdtemp(directory));
-    static const char *const syntaxes[] = {"1.2.840.10008.1.2.4.50",
-                                           "1.2.840.10008.1.2.4.80",
+    static const char *const syntaxes[] = {"1.2.840.10008.1.2.4.50", "1.2.840.10008.1.2.4.80",
                                            "1.2.840.10008.1.2.5"};
     for (size_t i = 0; i < 3; i++) {
         static uint8_t first[65536], second[65536];
@@ -518,12 +486,9 @@ static void test_compressed_save(void **state)
                 fail_msg("%s", error.text);
             char path[128];
             snprintf(path, sizeof path, "%s/%zu-%d.dcm", directory, i, round);
-            assert_int_equal(dcm_builder_save(builder, path, syntaxes[i],
-                                              &error),
-                             MITILOG_OK);
+            assert_int_equal(dcm_builder_save(builder, path, syntaxes[i], &error), MITILOG_OK);
             dcm_builder_free(builder);
-            sizes[round] = read_whole(path, round ? second : first,
-                                      sizeof first);
+            sizes[round] = read_whole(path, round ? second : first, sizeof first);
             unlink(path);
         }
         assert_true(sizes[0] > 132 && sizes[0] == sizes[1]);
@@ -539,8 +504,7 @@ static void test_compressed_save(void **state)
         fail_msg("%s", error.text);
     char path[128];
     snprintf(path, sizeof path, "%s/j2k.dcm", directory);
-    assert_int_equal(dcm_builder_save(builder, path,
-                                      "1.2.840.10008.1.2.4.90", &error),
+    assert_int_equal(dcm_builder_save(builder, path, "1.2.840.10008.1.2.4.90", &error),
                      MITILOG_ERROR_INVALID);
     assert_non_null(strstr(error.text, "not supported"));
     dcm_builder_free(builder);

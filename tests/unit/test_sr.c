@@ -50,14 +50,14 @@ static void mapping_units_and_modes(void **state)
         item(0, "CONTAINER", "99ACME", "ROOT", NULL, NULL, "1"),
         item(1, "NUM", "99ACME", "MI", "1.2", "1", "1.1"),
         item(1, "CONTAINER", "99ACME", "PW", NULL, NULL, "1.2"),
-        item(2, "NUM", "99ACME", "TIB", "2.5", NULL, "1.2.1"),   /* no unit: tolerated */
-        item(2, "TEXT", "99ACME", "MI", NULL, NULL, "1.2.2"),    /* wrong value type */
+        item(2, "NUM", "99ACME", "TIB", "2.5", NULL, "1.2.1"), /* no unit: tolerated */
+        item(2, "TEXT", "99ACME", "MI", NULL, NULL, "1.2.2"),  /* wrong value type */
         item(1, "NUM", "99ACME", "T", "5", "min", "1.3"),
         item(1, "NUM", "LN", "18185-9", "70", "d", "1.4"),
-        item(1, "NUM", "LN", "11979-2", "2024", "a", "1.5"),     /* known scheme, unmapped code */
-        item(1, "NUM", "99OTHER", "X", "9", "1", "1.6"),         /* unknown scheme */
+        item(1, "NUM", "LN", "11979-2", "2024", "a", "1.5"), /* known scheme, unmapped code */
+        item(1, "NUM", "99OTHER", "X", "9", "1", "1.6"),     /* unknown scheme */
         item(1, "NUM", "99OTHER", "Y", "9", "1", "1.7"),
-        item(1, "NUM", "99ACME", "MI", "abc", "1", "1.8"),       /* not a DS */
+        item(1, "NUM", "99ACME", "MI", "abc", "1", "1.8"), /* not a DS */
     };
     ext_sr_result result;
     mitilog_error error;
@@ -96,12 +96,15 @@ static void gestational_age_units(void **state)
         const char *value, *unit;
         int ok;
         double weeks;
-    } table[] = {{"20.5", "wk", 1, 20.5}, {"63", "d", 1, 9.0}, {"5", "mo", 0, 0},
-                 {"20", NULL, 0, 0}, {"1e1", "wk", 1, 10.0}};
+    } table[] = {{"20.5", "wk", 1, 20.5},
+                 {"63", "d", 1, 9.0},
+                 {"5", "mo", 0, 0},
+                 {"20", NULL, 0, 0},
+                 {"1e1", "wk", 1, 10.0}};
     for (size_t i = 0; i < sizeof table / sizeof table[0]; i++) {
-        dcm_sr_item items[] = {item(0, "CONTAINER", "DCM", "125000", NULL, NULL, "1"),
-                               item(1, "NUM", "LN", "18185-9", table[i].value, table[i].unit,
-                                    "1.1")};
+        dcm_sr_item items[] = {
+            item(0, "CONTAINER", "DCM", "125000", NULL, NULL, "1"),
+            item(1, "NUM", "LN", "18185-9", table[i].value, table[i].unit, "1.1")};
         ext_sr_result result;
         mitilog_error error;
         assert_int_equal(ext_sr_map(&rules, items, 2, &result, &error), MITILOG_OK);

@@ -21,11 +21,11 @@
 
 #include "stats/stats.h"
 
-#define assert_close(actual, expected)                                                  \
-    do {                                                                                \
-        double actual_value = (actual), expected_value = (expected);                    \
-        if (fabs(actual_value - expected_value) > 1e-12)                                \
-            fail_msg("%.15g != %.15g", actual_value, expected_value);                   \
+#define assert_close(actual, expected)                                                             \
+    do {                                                                                           \
+        double actual_value = (actual), expected_value = (expected);                               \
+        if (fabs(actual_value - expected_value) > 1e-12)                                           \
+            fail_msg("%.15g != %.15g", actual_value, expected_value);                              \
     } while (0)
 
 static const double data[] = {0.4, 1.2, 0.9, 2.3, 0.7, 1.1, 1.5, 0.3, 0.8, 1.0, 1.9};
@@ -156,8 +156,7 @@ static void sort_is_ascending_and_stable(void **state)
         qsort(reference, n, sizeof *reference, compare_tagged);
         for (size_t i = 0; i < n; i++) {
             if (memcmp(&values[i], &reference[i].value, sizeof values[i]) != 0)
-                fail_msg("size %zu, position %zu: %g != %g", n, i, values[i],
-                         reference[i].value);
+                fail_msg("size %zu, position %zu: %g != %g", n, i, values[i], reference[i].value);
         }
         free(values);
         free(reference);
@@ -188,7 +187,7 @@ static void quantiles_select_as_sorting_does(void **state)
                 unsigned r = (unsigned)(random_state >> 33);
                 values[i] = kind == 0   ? (r % 10 < 7 ? 0.0 : (double)(r % 50) / 10.0)
                             : kind == 1 ? (double)(r % 1000003) / 7.0
-                                        : (double)(n - i);   /* descending */
+                                        : (double)(n - i); /* descending */
                 sorted[i] = values[i];
             }
             stats_sort(sorted, n);

@@ -28,11 +28,11 @@
 #include "stats/stats_outliers.h"
 #include "stats/stats_period.h"
 
-#define assert_close(actual, expected, tolerance)                                  \
-    do {                                                                           \
-        double actual_value = (actual), expected_value = (expected);               \
-        if (fabs(actual_value - expected_value) > (tolerance))                     \
-            fail_msg("%.15g != %.15g", actual_value, expected_value);              \
+#define assert_close(actual, expected, tolerance)                                                  \
+    do {                                                                                           \
+        double actual_value = (actual), expected_value = (expected);                               \
+        if (fabs(actual_value - expected_value) > (tolerance))                                     \
+            fail_msg("%.15g != %.15g", actual_value, expected_value);                              \
     } while (0)
 
 static void iso_weeks_match_python(void **state)
@@ -91,7 +91,7 @@ static void iso_week_parse_and_monday(void **state)
 }
 
 static exam_row exam(const char *day, const char *type, const char *preset, const char *room,
-                       double value)
+                     double value)
 {
     exam_row e;
     memset(&e, 0, sizeof e);
@@ -118,8 +118,8 @@ static void outliers_hand_worked(void **state)
     for (int i = 0; i < 7; i++)
         baseline[i] = exam("2026-11-09", "abdomen", "Abdomen General", "Room 1", values[i]);
     exam_row week[3] = {exam("2026-11-16", "abdomen", "Abdomen General", "Room 2", 1.8),
-                          exam("2026-11-17", "abdomen", "Renal", "Room 1", 1.5),
-                          exam("2026-11-18", "abdomen", "Renal", "Room 1", 1.2)};
+                        exam("2026-11-17", "abdomen", "Renal", "Room 1", 1.5),
+                        exam("2026-11-18", "abdomen", "Renal", "Room 1", 1.2)};
     static const exam_rule_count rules[] = {{"ti_ceiling", 1}, {"dwell_general", 2}};
     week[2].rules = rules;
     week[2].rule_count = 2;
@@ -127,9 +127,9 @@ static void outliers_hand_worked(void **state)
     stats_week_settings settings = stats_week_default_settings();
     settings.minimum_baseline = 5;
     stats_week_result result;
-    assert_int_equal(stats_week_outliers(week, 3, baseline, 7, &settings, STATS_BY_PRESET,
-                                         &result, NULL),
-                     MITILOG_OK);
+    assert_int_equal(
+        stats_week_outliers(week, 3, baseline, 7, &settings, STATS_BY_PRESET, &result, NULL),
+        MITILOG_OK);
     assert_int_equal(result.baseline_count, 1);
     assert_false(result.any_thin);
     assert_close(result.baselines[0].median, 1.2, 1e-12);
@@ -161,9 +161,9 @@ static void outliers_hand_worked(void **state)
     stats_week_result_free(&result);
 
     /* Grouped by room instead. */
-    assert_int_equal(stats_week_outliers(week, 3, baseline, 7, &settings, STATS_BY_ROOM, &result,
-                                         NULL),
-                     MITILOG_OK);
+    assert_int_equal(
+        stats_week_outliers(week, 3, baseline, 7, &settings, STATS_BY_ROOM, &result, NULL),
+        MITILOG_OK);
     assert_string_equal(result.groups[0].key, "Room 2");
     stats_week_result_free(&result);
 }
@@ -172,9 +172,9 @@ static void thin_baseline_adds_the_week(void **state)
 {
     (void)state;
     exam_row week[4] = {exam("2026-11-02", "carotid", "Carotid", "Room 3", 0.9),
-                          exam("2026-11-02", "carotid", "Carotid", "Room 3", 1.0),
-                          exam("2026-11-03", "carotid", "Carotid", "Room 3", 1.1),
-                          exam("2026-11-04", "carotid", NULL, NULL, 0.0)};
+                        exam("2026-11-02", "carotid", "Carotid", "Room 3", 1.0),
+                        exam("2026-11-03", "carotid", "Carotid", "Room 3", 1.1),
+                        exam("2026-11-04", "carotid", NULL, NULL, 0.0)};
     week[3].has_governing = 0;
     stats_week_result result;
     assert_int_equal(stats_week_outliers(week, 4, NULL, 0, NULL, STATS_BY_PRESET, &result, NULL),
@@ -242,8 +242,8 @@ static void drift_flags_a_step(void **state)
     assert_int_equal(stats_drift(exams, 15, monday, 3, 2, 5, 3.0, &result, NULL), MITILOG_OK);
     assert_int_equal(result.series_count, 1);
     const stats_drift_series *series = &result.series[0];
-    assert_false(series->points[0].has_z);      /* no baseline */
-    assert_true(series->points[1].has_z);       /* week 46 against week 45 */
+    assert_false(series->points[0].has_z); /* no baseline */
+    assert_true(series->points[1].has_z);  /* week 46 against week 45 */
     assert_close(series->points[1].z, 0.0, 1e-9);
     assert_false(series->points[1].flagged);
     assert_int_equal(series->points[2].iso_week, 47);

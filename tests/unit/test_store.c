@@ -64,10 +64,7 @@ static int fixture_teardown(void **state)
 }
 
 /* Duplicates text (NULL stays NULL). */
-static char *dup_text(const char *text)
-{
-    return text != NULL ? strdup(text) : NULL;
-}
+static char *dup_text(const char *text) { return text != NULL ? strdup(text) : NULL; }
 
 static exam_number ok_number(double value)
 {
@@ -80,8 +77,8 @@ static const exam_number invalid_number = {EXAM_VALUE_INVALID, 0.0};
 
 /* A record built by hand: every index missing unless set afterwards. */
 static void make_record(ext_record *record, const char *sop_instance_uid,
-                        const char *study_instance_uid,
-                        const char *acquired_at, const char *received_at)
+                        const char *study_instance_uid, const char *acquired_at,
+                        const char *received_at)
 {
     memset(record, 0, sizeof *record);
     record->sop_class_uid = dup_text("1.2.840.10008.5.1.4.1.1.6.1");
@@ -97,8 +94,7 @@ static void make_record(ext_record *record, const char *sop_instance_uid,
     record->calling_ae_title = dup_text("SCANNER1");
     snprintf(record->acquired_at, sizeof record->acquired_at, "%s",
              acquired_at != NULL ? acquired_at : "");
-    record->acquired_at_source =
-        acquired_at != NULL ? EXT_TIME_ACQUISITION : EXT_TIME_NONE;
+    record->acquired_at_source = acquired_at != NULL ? EXT_TIME_ACQUISITION : EXT_TIME_NONE;
     snprintf(record->received_at, sizeof record->received_at, "%s",
              received_at != NULL ? received_at : "");
     record->number_of_frames = missing_number;
@@ -109,8 +105,7 @@ static void make_record(ext_record *record, const char *sop_instance_uid,
 }
 
 /* Sets index i to an ok value with its raw text. */
-static void set_index(ext_record *record, exam_index index, exam_number number,
-                      const char *raw)
+static void set_index(ext_record *record, exam_index index, exam_number number, const char *raw)
 {
     record->indices[index] = number;
     free(record->index_raw[index]);
@@ -120,13 +115,18 @@ static void set_index(ext_record *record, exam_index index, exam_number number,
 /* Frees what make_record() and set_index() allocated. */
 static void free_record(ext_record *record)
 {
-    char **texts[] = {
-        &record->sop_class_uid, &record->sop_instance_uid,
-        &record->study_instance_uid, &record->series_instance_uid,
-        &record->modality, &record->station_name,
-        &record->institutional_department_name, &record->study_description,
-        &record->protocol_name, &record->transfer_syntax_uid,
-        &record->calling_ae_title, &record->source_path};
+    char **texts[] = {&record->sop_class_uid,
+                      &record->sop_instance_uid,
+                      &record->study_instance_uid,
+                      &record->series_instance_uid,
+                      &record->modality,
+                      &record->station_name,
+                      &record->institutional_department_name,
+                      &record->study_description,
+                      &record->protocol_name,
+                      &record->transfer_syntax_uid,
+                      &record->calling_ae_title,
+                      &record->source_path};
     for (size_t i = 0; i < sizeof texts / sizeof texts[0]; i++) {
         free(*texts[i]);
         *texts[i] = NULL;
@@ -139,16 +139,14 @@ static void free_record(ext_record *record)
 
 /* Evaluates "SELECT <function>(json, path)" in an in-memory SQLite and
  * returns the result as malloc'ed text ("(null)" for SQL NULL). */
-static char *json_eval(const char *function, const char *json,
-                       const char *path)
+static char *json_eval(const char *function, const char *json, const char *path)
 {
     sqlite3 *db = NULL;
     assert_int_equal(sqlite3_open(":memory:", &db), SQLITE_OK);
     char sql[64];
     snprintf(sql, sizeof sql, "SELECT %s(?1, ?2)", function);
     sqlite3_stmt *statement = NULL;
-    assert_int_equal(sqlite3_prepare_v2(db, sql, -1, &statement, NULL),
-                     SQLITE_OK);
+    assert_int_equal(sqlite3_prepare_v2(db, sql, -1, &statement, NULL), SQLITE_OK);
     sqlite3_bind_text(statement, 1, json, -1, SQLITE_STATIC);
     sqlite3_bind_text(statement, 2, path, -1, SQLITE_STATIC);
     if (sqlite3_step(statement) != SQLITE_ROW)
@@ -161,19 +159,16 @@ static char *json_eval(const char *function, const char *json,
 }
 
 /* Asserts that json_extract(json, path) is the text expected. */
-static void assert_json(const char *json, const char *path,
-                        const char *expected)
+static void assert_json(const char *json, const char *path, const char *expected)
 {
     char *value = json_eval("json_extract", json, path);
     if (strcmp(value, expected) != 0)
-        fail_msg("%s: got '%s', expected '%s' in %s", path, value, expected,
-                 json);
+        fail_msg("%s: got '%s', expected '%s' in %s", path, value, expected, json);
     free(value);
 }
 
 /* Asserts json_type(json, path): 'null', 'true', 'real', 'integer', ... */
-static void assert_json_type(const char *json, const char *path,
-                             const char *expected)
+static void assert_json_type(const char *json, const char *path, const char *expected)
 {
     char *type = json_eval("json_type", json, path);
     if (strcmp(type, expected) != 0)
@@ -197,8 +192,7 @@ static void assert_json_length(const char *json, int length)
 static long long query_int(const char *path, const char *sql)
 {
     sqlite3 *db = NULL;
-    assert_int_equal(sqlite3_open_v2(path, &db, SQLITE_OPEN_READONLY, NULL),
-                     SQLITE_OK);
+    assert_int_equal(sqlite3_open_v2(path, &db, SQLITE_OPEN_READONLY, NULL), SQLITE_OK);
     sqlite3_stmt *statement = NULL;
     if (sqlite3_prepare_v2(db, sql, -1, &statement, NULL) != SQLITE_OK)
         fail_msg("%s: %s", sql, sqlite3_errmsg(db));
@@ -257,14 +251,12 @@ static void durability_setting(void **state)
     assert_int_equal(writer_synchronous(f->store), 2);
 }
 
-
 static void open_creates_schema(void **state)
 {
     fixture *f = *state;
     assert_true(newest_migration() >= 12); /* sql/migrations/001..008, 011, 012 */
     assert_int_equal(store_schema_version(f->store), newest_migration());
-    assert_int_equal(query_int(f->path, "PRAGMA user_version"),
-                     newest_migration());
+    assert_int_equal(query_int(f->path, "PRAGMA user_version"), newest_migration());
     assert_int_equal(query_int(f->path, "SELECT count(*) FROM sqlite_schema "
                                         "WHERE name IN ('instances', "
                                         "'rejections')"),
@@ -334,13 +326,11 @@ static void put_and_read_back(void **state)
 
     /* The same instance through the since filter; a later since: none. */
     store_instance_filter since = {NULL, "2024-03-01", 0};
-    assert_int_equal(store_instances_json(f->store, &since, &json, &error),
-                     MITILOG_OK);
+    assert_int_equal(store_instances_json(f->store, &since, &json, &error), MITILOG_OK);
     assert_json(json, "$[0].sop_instance_uid", "1.2.3.4.5.1");
     free(json);
     since.since = "2024-03-02";
-    assert_int_equal(store_instances_json(f->store, &since, &json, &error),
-                     MITILOG_OK);
+    assert_int_equal(store_instances_json(f->store, &since, &json, &error), MITILOG_OK);
     assert_string_equal(json, "[]");
     free(json);
     free_record(&record);
@@ -353,24 +343,23 @@ static void header_copy_follows_its_row(void **state)
 {
     fixture *f = *state;
     ext_record record;
-    make_record(&record, "1.2.3.8.1", "1.2.3.8", "2024-03-01T10:00:00",
-                "2024-03-01T10:00:05.000Z");
+    make_record(&record, "1.2.3.8.1", "1.2.3.8", "2024-03-01T10:00:00", "2024-03-01T10:00:05.000Z");
     const unsigned char first[] = {'D', 'I', 'C', 'M', 0, 1, 2, 0xFF};
     const unsigned char second[] = {'D', 'I', 'C', 'M', 9, 9};
     mitilog_error error = {{0}};
     unsigned char *bytes = NULL;
     size_t size = 0;
-    assert_int_equal(store_put_instance(f->store, &record, &(store_bytes){first, sizeof first},
-                                        NULL, &error),
-                     MITILOG_OK);
+    assert_int_equal(
+        store_put_instance(f->store, &record, &(store_bytes){first, sizeof first}, NULL, &error),
+        MITILOG_OK);
     assert_int_equal(store_get_header(f->store, "1.2.3.8.1", &bytes, &size, &error), MITILOG_OK);
     assert_int_equal(size, sizeof first);
     assert_memory_equal(bytes, first, sizeof first);
     free(bytes);
 
-    assert_int_equal(store_put_instance(f->store, &record, &(store_bytes){second, sizeof second},
-                                        NULL, &error),
-                     MITILOG_OK);
+    assert_int_equal(
+        store_put_instance(f->store, &record, &(store_bytes){second, sizeof second}, NULL, &error),
+        MITILOG_OK);
     assert_int_equal(store_get_header(f->store, "1.2.3.8.1", &bytes, &size, &error), MITILOG_OK);
     assert_int_equal(size, sizeof second);
     assert_memory_equal(bytes, second, sizeof second);
@@ -383,8 +372,7 @@ static void header_copy_follows_its_row(void **state)
     assert_int_equal(store_get_header(f->store, "1.2.3.404", &bytes, &size, &error), MITILOG_OK);
     assert_null(bytes);
     /* An empty copy is refused before anything is written. */
-    assert_int_equal(store_put_instance(f->store, &record, &(store_bytes){first, 0}, NULL,
-                                        &error),
+    assert_int_equal(store_put_instance(f->store, &record, &(store_bytes){first, 0}, NULL, &error),
                      MITILOG_ERROR_INVALID);
     free_record(&record);
 }
@@ -403,8 +391,7 @@ static void mode_names_match_extraction(void **state)
         assert_int_equal(query_int(f->path, sql), 1);
     }
     ext_record record;
-    make_record(&record, "1.2.3.7.1", "1.2.3.7", "2024-03-01T10:00:00",
-                "2024-03-01T10:00:05.000Z");
+    make_record(&record, "1.2.3.7.1", "1.2.3.7", "2024-03-01T10:00:00", "2024-03-01T10:00:05.000Z");
     record.modes_image_type = EXAM_MODE_BIT(EXAM_MODE_2D) | EXAM_MODE_BIT(EXAM_MODE_PW);
     record.modes_regions = EXAM_MODE_BIT(EXAM_MODE_2D);
     record.modes_sr = EXAM_MODE_BIT(EXAM_MODE_POWER);
@@ -477,7 +464,8 @@ static void migration_4_keeps_modes(void **state)
     /* The rebuilt tables keep their rows, and their checks still refuse
      * what they refused (an unknown severity). */
     assert_int_equal(query_int(path, "SELECT count(*) FROM sr_values WHERE instance_id = 7 "
-                                     "AND quantity = 'tib' AND value = 1.5"), 1);
+                                     "AND quantity = 'tib' AND value = 1.5"),
+                     1);
     assert_int_equal(query_int(path, "SELECT capped FROM exam_timeline"), 1);
     assert_int_equal(query_int(path, "SELECT closed FROM exam_context WHERE room = 'R1'"), 1);
     assert_int_equal(query_int(path, "SELECT superseded FROM findings WHERE severity = 'warning'"),
@@ -486,14 +474,15 @@ static void migration_4_keeps_modes(void **state)
                      1);
     sqlite3 *check = NULL;
     assert_int_equal(sqlite3_open(path, &check), SQLITE_OK);
-    assert_int_not_equal(sqlite3_exec(check, "INSERT INTO findings (rule_id, severity, "
-                                             "policy_version, evaluated_at) VALUES "
-                                             "('x', 'severe', 'v', 'now')",
+    assert_int_not_equal(sqlite3_exec(check,
+                                      "INSERT INTO findings (rule_id, severity, "
+                                      "policy_version, evaluated_at) VALUES "
+                                      "('x', 'severe', 'v', 'now')",
                                       NULL, NULL, NULL),
                          SQLITE_OK);
-    assert_int_not_equal(sqlite3_exec(check, "UPDATE instances SET mi_status = 'fine'", NULL,
-                                      NULL, NULL),
-                         SQLITE_OK);
+    assert_int_not_equal(
+        sqlite3_exec(check, "UPDATE instances SET mi_status = 'fine'", NULL, NULL, NULL),
+        SQLITE_OK);
     sqlite3_close(check);
     const char *suffixes[] = {"", "-wal", "-shm"};
     for (int i = 0; i < 3; i++) {
@@ -509,20 +498,16 @@ static void resend_replaces(void **state)
 {
     fixture *f = *state;
     ext_record record;
-    make_record(&record, "1.2.3.9.1", "1.2.3.9", "2024-03-01T10:00:00",
-                "2024-03-01T10:00:05.000Z");
+    make_record(&record, "1.2.3.9.1", "1.2.3.9", "2024-03-01T10:00:00", "2024-03-01T10:00:05.000Z");
     set_index(&record, EXAM_INDEX_MI, ok_number(1.0), "1.0");
     store_put_outcome outcome;
     mitilog_error error = {{0}};
-    assert_int_equal(store_put_instance(f->store, &record, NULL, &outcome, &error),
-                     MITILOG_OK);
+    assert_int_equal(store_put_instance(f->store, &record, NULL, &outcome, &error), MITILOG_OK);
     assert_int_equal(outcome, STORE_PUT_INSERTED);
 
     set_index(&record, EXAM_INDEX_MI, ok_number(1.2), "1.2");
-    snprintf(record.received_at, sizeof record.received_at,
-             "2024-03-01T11:00:00.000Z");
-    assert_int_equal(store_put_instance(f->store, &record, NULL, &outcome, &error),
-                     MITILOG_OK);
+    snprintf(record.received_at, sizeof record.received_at, "2024-03-01T11:00:00.000Z");
+    assert_int_equal(store_put_instance(f->store, &record, NULL, &outcome, &error), MITILOG_OK);
     assert_int_equal(outcome, STORE_PUT_REPLACED);
 
     char *json = instances_of_study(f->store, "1.2.3.9");
@@ -560,8 +545,7 @@ static void *put_worker(void *argument)
         set_index(&record, EXAM_INDEX_MI, ok_number(0.01 * i), "x");
         store_put_outcome outcome;
         mitilog_error error;
-        if (store_put_instance(w->store, &record, NULL, &outcome, &error) !=
-            MITILOG_OK)
+        if (store_put_instance(w->store, &record, NULL, &outcome, &error) != MITILOG_OK)
             w->failed++;
         else if (outcome == STORE_PUT_INSERTED)
             w->inserted++;
@@ -579,8 +563,7 @@ static void concurrent_puts(void **state)
     worker workers[THREADS];
     for (int t = 0; t < THREADS; t++) {
         workers[t] = (worker){f->store, t, 0, 0, 0};
-        assert_int_equal(pthread_create(&threads[t], NULL, put_worker,
-                                        &workers[t]), 0);
+        assert_int_equal(pthread_create(&threads[t], NULL, put_worker, &workers[t]), 0);
     }
     int inserted = 0, replaced = 0, failed = 0;
     for (int t = 0; t < THREADS; t++) {
@@ -594,9 +577,7 @@ static void concurrent_puts(void **state)
     assert_int_equal(inserted, 900);
     assert_int_equal(replaced, 700);
     assert_int_equal(query_int(f->path, "SELECT count(*) FROM instances"), 900);
-    assert_int_equal(query_int(f->path,
-                               "SELECT sum(replaced_count) FROM instances"),
-                     700);
+    assert_int_equal(query_int(f->path, "SELECT sum(replaced_count) FROM instances"), 700);
 }
 
 static void reopen_keeps_schema_and_rows(void **state)
@@ -605,8 +586,7 @@ static void reopen_keeps_schema_and_rows(void **state)
     ext_record record;
     make_record(&record, "1.2.3.7.1", "1.2.3.7", NULL, NULL);
     mitilog_error error = {{0}};
-    assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error),
-                     MITILOG_OK);
+    assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error), MITILOG_OK);
     store_close(f->store);
     f->store = NULL;
     /* After close the WAL was checkpointed and truncated into the file. */
@@ -642,19 +622,15 @@ static void read_only_database_fails_cleanly(void **state)
      * query_only makes the writer connection refuse every write with
      * SQLITE_READONLY, as a read-only file would. */
     sqlite3 *writer = store_writer_connection(f->store);
-    assert_int_equal(sqlite3_exec(writer, "PRAGMA query_only = ON", NULL,
-                                  NULL, NULL), SQLITE_OK);
+    assert_int_equal(sqlite3_exec(writer, "PRAGMA query_only = ON", NULL, NULL, NULL), SQLITE_OK);
     assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error),
                      MITILOG_ERROR_DATABASE);
     assert_non_null(strstr(error.text, "readonly"));
     store_rejection rejection = {"", "", "", "", "", "", "", "test"};
-    assert_int_equal(store_put_rejection(f->store, &rejection, &error),
-                     MITILOG_ERROR_DATABASE);
+    assert_int_equal(store_put_rejection(f->store, &rejection, &error), MITILOG_ERROR_DATABASE);
     /* Writable again: the connection recovers. */
-    assert_int_equal(sqlite3_exec(writer, "PRAGMA query_only = OFF", NULL,
-                                  NULL, NULL), SQLITE_OK);
-    assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error),
-                     MITILOG_OK);
+    assert_int_equal(sqlite3_exec(writer, "PRAGMA query_only = OFF", NULL, NULL, NULL), SQLITE_OK);
+    assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error), MITILOG_OK);
     assert_int_equal(query_int(f->path, "SELECT count(*) FROM instances"), 1);
 
     /* A real read-only file, where file modes apply (not as root). */
@@ -664,8 +640,7 @@ static void read_only_database_fails_cleanly(void **state)
         store *read_only = NULL;
         mitilog_status status = store_open(f->path, 100, &read_only, &error);
         if (status == MITILOG_OK) {
-            assert_int_equal(store_put_instance(read_only, &record, NULL, NULL,
-                                                &error),
+            assert_int_equal(store_put_instance(read_only, &record, NULL, NULL, &error),
                              MITILOG_ERROR_DATABASE);
             store_close(read_only);
         } else {
@@ -683,8 +658,8 @@ static void full_database_fails_and_recovers(void **state)
     sqlite3 *writer = store_writer_connection(f->store);
     /* Cap the file at its current size: the next new page is SQLITE_FULL,
      * as on a full disk. */
-    assert_int_equal(sqlite3_exec(writer, "PRAGMA max_page_count = 1", NULL,
-                                  NULL, NULL), SQLITE_OK);
+    assert_int_equal(sqlite3_exec(writer, "PRAGMA max_page_count = 1", NULL, NULL, NULL),
+                     SQLITE_OK);
     char long_text[4000];
     memset(long_text, 'a', sizeof long_text - 1);
     long_text[sizeof long_text - 1] = '\0';
@@ -699,25 +674,25 @@ static void full_database_fails_and_recovers(void **state)
         snprintf(uid, sizeof uid, "1.2.3.6.%d", i + 1);
         free(record.sop_instance_uid);
         record.sop_instance_uid = strdup(uid);
-        mitilog_status status = store_put_instance(f->store, &record, NULL, NULL,
-                                                   &error);
+        mitilog_status status = store_put_instance(f->store, &record, NULL, NULL, &error);
         if (status != MITILOG_OK) {
             assert_int_equal(status, MITILOG_ERROR_DATABASE);
             assert_non_null(strstr(error.text, "full"));
             failures++;
             /* Nothing of the failed record is kept. */
             char sql[96];
-            snprintf(sql, sizeof sql, "SELECT count(*) FROM instances "
-                                      "WHERE sop_instance_uid = '%s'", uid);
+            snprintf(sql, sizeof sql,
+                     "SELECT count(*) FROM instances "
+                     "WHERE sop_instance_uid = '%s'",
+                     uid);
             assert_int_equal(query_int(f->path, sql), 0);
         }
     }
     assert_int_equal(failures, 1);
     /* Space again: the same record goes in. */
-    assert_int_equal(sqlite3_exec(writer, "PRAGMA max_page_count = 1000000",
-                                  NULL, NULL, NULL), SQLITE_OK);
-    assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error),
-                     MITILOG_OK);
+    assert_int_equal(sqlite3_exec(writer, "PRAGMA max_page_count = 1000000", NULL, NULL, NULL),
+                     SQLITE_OK);
+    assert_int_equal(store_put_instance(f->store, &record, NULL, NULL, &error), MITILOG_OK);
     free_record(&record);
 }
 
@@ -743,32 +718,28 @@ static void bad_record_fails_alone(void **state)
     fixture *f = *state;
     /* A trigger on the writer refuses one UID inside the write. */
     sqlite3 *writer = store_writer_connection(f->store);
-    assert_int_equal(
-        sqlite3_exec(writer,
-                     "CREATE TEMP TRIGGER refuse BEFORE INSERT ON "
-                     "main.instances WHEN NEW.sop_instance_uid = '1.2.3.5.66' "
-                     "BEGIN SELECT RAISE(ABORT, 'refused by test'); END",
-                     NULL, NULL, NULL),
-        SQLITE_OK);
+    assert_int_equal(sqlite3_exec(writer,
+                                  "CREATE TEMP TRIGGER refuse BEFORE INSERT ON "
+                                  "main.instances WHEN NEW.sop_instance_uid = '1.2.3.5.66' "
+                                  "BEGIN SELECT RAISE(ABORT, 'refused by test'); END",
+                                  NULL, NULL, NULL),
+                     SQLITE_OK);
     /* Hold the write lock from another connection, so that the first
      * leader waits in BEGIN IMMEDIATE while the others queue up behind it
      * and then share one batch. */
     sqlite3 *blocker = NULL;
     assert_int_equal(sqlite3_open(f->path, &blocker), SQLITE_OK);
-    assert_int_equal(sqlite3_exec(blocker, "BEGIN IMMEDIATE", NULL, NULL,
-                                  NULL), SQLITE_OK);
+    assert_int_equal(sqlite3_exec(blocker, "BEGIN IMMEDIATE", NULL, NULL, NULL), SQLITE_OK);
     const char *uids[] = {"1.2.3.5.1", "1.2.3.5.2", "1.2.3.5.66", "1.2.3.5.3"};
     batch_put puts[4];
     pthread_t threads[4];
     for (int i = 0; i < 4; i++) {
         puts[i] = (batch_put){f->store, uids[i], MITILOG_OK, {{0}}};
-        assert_int_equal(pthread_create(&threads[i], NULL, batch_put_worker,
-                                        &puts[i]), 0);
+        assert_int_equal(pthread_create(&threads[i], NULL, batch_put_worker, &puts[i]), 0);
         usleep(50000);
     }
     usleep(200000);
-    assert_int_equal(sqlite3_exec(blocker, "COMMIT", NULL, NULL, NULL),
-                     SQLITE_OK);
+    assert_int_equal(sqlite3_exec(blocker, "COMMIT", NULL, NULL, NULL), SQLITE_OK);
     sqlite3_close(blocker);
     for (int i = 0; i < 4; i++)
         pthread_join(threads[i], NULL);
@@ -789,10 +760,8 @@ static void bad_input_is_refused(void **state)
     assert_int_equal(store_open("/nonexistent-dir/x/y.db", 0, &none, &error),
                      MITILOG_ERROR_DATABASE);
     assert_null(none);
-    assert_int_equal(store_put_instance(f->store, NULL, NULL, NULL, &error),
-                     MITILOG_ERROR_INVALID);
-    assert_int_equal(store_put_instance(NULL, NULL, NULL, NULL, NULL),
-                     MITILOG_ERROR_INVALID);
+    assert_int_equal(store_put_instance(f->store, NULL, NULL, NULL, &error), MITILOG_ERROR_INVALID);
+    assert_int_equal(store_put_instance(NULL, NULL, NULL, NULL, NULL), MITILOG_ERROR_INVALID);
 
     ext_record record;
     make_record(&record, "", "1.2", NULL, NULL);
@@ -817,20 +786,18 @@ static void bad_input_is_refused(void **state)
                      MITILOG_ERROR_INVALID);
     free_record(&record);
     store_rejection no_reason = {0};
-    assert_int_equal(store_put_rejection(f->store, &no_reason, &error),
-                     MITILOG_ERROR_INVALID);
+    assert_int_equal(store_put_rejection(f->store, &no_reason, &error), MITILOG_ERROR_INVALID);
     char *json = NULL;
-    assert_int_equal(store_instances_json(NULL, NULL, &json, &error),
-                     MITILOG_ERROR_INVALID);
+    assert_int_equal(store_instances_json(NULL, NULL, &json, &error), MITILOG_ERROR_INVALID);
     store_close(NULL);
     assert_int_equal(query_int(f->path, "SELECT count(*) FROM instances"), 0);
 }
 
 /* Puts one instance of study with the given time and indices (NAN: the
  * index is missing). */
-static void put_study_instance(store *st, const char *uid, const char *study,
-                               const char *station, const char *acquired_at,
-                               const char *received_at, double mi, double tis)
+static void put_study_instance(store *st, const char *uid, const char *study, const char *station,
+                               const char *acquired_at, const char *received_at, double mi,
+                               double tis)
 {
     ext_record record;
     make_record(&record, uid, study, acquired_at, received_at);
@@ -860,22 +827,18 @@ static void studies_aggregate(void **state)
      * max_tib = null (never ok), instance_count 3,
      * first 10:00, last 10:20.
      * Study B, no acquisition time, received 2024-03-02: MI 0.5. */
-    put_study_instance(f->store, "9.1.2", "9.1", "ROOM-2",
-                       "2024-03-01T10:05:00", "2024-03-01T09:06:00.000Z",
-                       1.1, none);
-    put_study_instance(f->store, "9.1.1", "9.1", "ROOM-1",
-                       "2024-03-01T10:00:00", "2024-03-01T09:01:00.000Z",
-                       0.8, 0.4);
-    put_study_instance(f->store, "9.1.3", "9.1", "ROOM-2",
-                       "2024-03-01T10:20:00", "2024-03-01T09:21:00.000Z",
-                       none, 0.9);
-    put_study_instance(f->store, "9.2.1", "9.2", "ROOM-3", NULL,
-                       "2024-03-02T08:00:00.000Z", 0.5, none);
+    put_study_instance(f->store, "9.1.2", "9.1", "ROOM-2", "2024-03-01T10:05:00",
+                       "2024-03-01T09:06:00.000Z", 1.1, none);
+    put_study_instance(f->store, "9.1.1", "9.1", "ROOM-1", "2024-03-01T10:00:00",
+                       "2024-03-01T09:01:00.000Z", 0.8, 0.4);
+    put_study_instance(f->store, "9.1.3", "9.1", "ROOM-2", "2024-03-01T10:20:00",
+                       "2024-03-01T09:21:00.000Z", none, 0.9);
+    put_study_instance(f->store, "9.2.1", "9.2", "ROOM-3", NULL, "2024-03-02T08:00:00.000Z", 0.5,
+                       none);
 
     char *json = NULL;
     mitilog_error error = {{0}};
-    assert_int_equal(store_studies_json(f->store, NULL, NULL, &json, &error),
-                     MITILOG_OK);
+    assert_int_equal(store_studies_json(f->store, NULL, NULL, &json, &error), MITILOG_OK);
     assert_json_length(json, 2);
     assert_json(json, "$[0].study_instance_uid", "9.1");
     assert_json(json, "$[0].station_name", "ROOM-1");
@@ -891,24 +854,22 @@ static void studies_aggregate(void **state)
     assert_json_type(json, "$[1].max_tis", "null");
     free(json);
 
-    assert_int_equal(store_studies_json(f->store, "2024-03-01", "2024-03-01",
-                                        &json, &error), MITILOG_OK);
+    assert_int_equal(store_studies_json(f->store, "2024-03-01", "2024-03-01", &json, &error),
+                     MITILOG_OK);
     assert_json_length(json, 1);
     assert_json(json, "$[0].study_instance_uid", "9.1");
     free(json);
-    assert_int_equal(store_studies_json(f->store, "2024-03-02", NULL, &json,
-                                        &error), MITILOG_OK);
+    assert_int_equal(store_studies_json(f->store, "2024-03-02", NULL, &json, &error), MITILOG_OK);
     assert_json(json, "$[0].study_instance_uid", "9.2");
     free(json);
-    assert_int_equal(store_studies_json(f->store, "2024-03-03", "2024-12-31",
-                                        &json, &error), MITILOG_OK);
+    assert_int_equal(store_studies_json(f->store, "2024-03-03", "2024-12-31", &json, &error),
+                     MITILOG_OK);
     assert_string_equal(json, "[]");
     free(json);
 
     /* Instances of study A in acquisition order, and the limit. */
     store_instance_filter filter = {"9.1", NULL, 2};
-    assert_int_equal(store_instances_json(f->store, &filter, &json, &error),
-                     MITILOG_OK);
+    assert_int_equal(store_instances_json(f->store, &filter, &json, &error), MITILOG_OK);
     assert_json_length(json, 2);
     assert_json(json, "$[0].sop_instance_uid", "9.1.1");
     assert_json(json, "$[1].sop_instance_uid", "9.1.2");
@@ -930,15 +891,12 @@ static void health_counts(void **state)
     assert_json_type(json, "$.last_received_at", "null");
     free(json);
 
-    put_study_instance(f->store, "8.1.1", "8.1", "R", NULL,
-                       "2024-05-01T10:00:00.000Z", 0.2, 0.1);
-    put_study_instance(f->store, "8.2.1", "8.2", "R", NULL,
-                       "2024-05-02T10:00:00.000Z", 0.2, 0.1);
-    store_rejection rejection = {"2024-05-02T10:00:01.000Z", "SCANNER1",
-                                 "10.0.0.5", "1.2.840.10008.5.1.4.1.1.7", "",
-                                 "", "", "no SOP Instance UID"};
-    assert_int_equal(store_put_rejection(f->store, &rejection, &error),
-                     MITILOG_OK);
+    put_study_instance(f->store, "8.1.1", "8.1", "R", NULL, "2024-05-01T10:00:00.000Z", 0.2, 0.1);
+    put_study_instance(f->store, "8.2.1", "8.2", "R", NULL, "2024-05-02T10:00:00.000Z", 0.2, 0.1);
+    store_rejection rejection = {
+        "2024-05-02T10:00:01.000Z", "SCANNER1", "10.0.0.5", "1.2.840.10008.5.1.4.1.1.7", "", "", "",
+        "no SOP Instance UID"};
+    assert_int_equal(store_put_rejection(f->store, &rejection, &error), MITILOG_OK);
     assert_int_equal(store_health_json(f->store, &json, &error), MITILOG_OK);
     assert_json(json, "$.instances", "2");
     assert_json(json, "$.studies", "2");
@@ -969,20 +927,20 @@ static void exec_sql(const char *path, const char *sql)
  * for every exam the database holds: its summary row, then its times. */
 static void refresh_every_summary(const char *path)
 {
-    static const char *const files[] = {
-        "queries/exams/exam_summary_delete.sql", "queries/exams/exam_summary_insert.sql",
-        "queries/exams/exam_time_at_or_above_delete.sql", "queries/exams/exam_time_at_or_above_insert.sql"};
+    static const char *const files[] = {"queries/exams/exam_summary_delete.sql",
+                                        "queries/exams/exam_summary_insert.sql",
+                                        "queries/exams/exam_time_at_or_above_delete.sql",
+                                        "queries/exams/exam_time_at_or_above_insert.sql"};
     sqlite3 *db = NULL;
     sqlite3_stmt *exams = NULL;
     assert_int_equal(sqlite3_open(path, &db), SQLITE_OK);
-    assert_int_equal(sqlite3_prepare_v2(db, "SELECT study_instance_uid FROM exams", -1, &exams,
-                                        NULL),
-                     SQLITE_OK);
+    assert_int_equal(
+        sqlite3_prepare_v2(db, "SELECT study_instance_uid FROM exams", -1, &exams, NULL),
+        SQLITE_OK);
     while (sqlite3_step(exams) == SQLITE_ROW) {
         for (size_t i = 0; i < sizeof files / sizeof files[0]; i++) {
             sqlite3_stmt *statement = NULL;
-            assert_int_equal(sqlite3_prepare_v2(db, sql_file_text(files[i]), -1, &statement,
-                                                NULL),
+            assert_int_equal(sqlite3_prepare_v2(db, sql_file_text(files[i]), -1, &statement, NULL),
                              SQLITE_OK);
             sqlite3_bind_text(statement, 1, (const char *)sqlite3_column_text(exams, 0), -1,
                               SQLITE_TRANSIENT);
@@ -1012,23 +970,27 @@ static void new_policy_refreshes_summaries(void **state)
              "120, 'now')");
     refresh_every_summary(f->path);
     assert_int_equal(query_int(f->path, "SELECT count(*) FROM exam_summaries "
-                                        "WHERE measured_policy IS NULL"), 1);
+                                        "WHERE measured_policy IS NULL"),
+                     1);
     mitilog_error error = {{0}};
     store_policy policy = {"v-one", "first", "", 30, 120, NULL, 0, NULL, 0};
     assert_int_equal(store_register_policy(f->store, &policy, &error), MITILOG_OK);
     assert_int_equal(query_int(f->path, "SELECT count(*) FROM exam_summaries "
                                         "WHERE measured_policy = 'v-one' "
-                                        "AND measured_seconds IS NULL"), 1);
+                                        "AND measured_seconds IS NULL"),
+                     1);
     policy.version = "v-two";
     policy.name = "second";
     assert_int_equal(store_register_policy(f->store, &policy, &error), MITILOG_OK);
     assert_int_equal(query_int(f->path, "SELECT count(*) FROM exam_summaries "
-                                        "WHERE measured_policy = 'v-two'"), 1);
+                                        "WHERE measured_policy = 'v-two'"),
+                     1);
     /* the first again: an update of its row, not a new current policy */
     policy.version = "v-one";
     assert_int_equal(store_register_policy(f->store, &policy, &error), MITILOG_OK);
     assert_int_equal(query_int(f->path, "SELECT count(*) FROM exam_summaries "
-                                        "WHERE measured_policy = 'v-two'"), 1);
+                                        "WHERE measured_policy = 'v-two'"),
+                     1);
 }
 
 /* The exam-row loaders: exams of five days written out of UID order; a
@@ -1039,9 +1001,9 @@ static void new_policy_refreshes_summaries(void **state)
 static void exam_rows_sorted_by_uid(void **state)
 {
     fixture *f = *state;
-    static const char *const exams[][2] = {
-        {"1.9", "2024-03-01"}, {"1.4", "2024-03-02"}, {"1.30", "2024-03-02"},
-        {"1.10", "2024-03-03"}, {"1.2", "2024-03-04"}, {"1.1", "2024-03-05"}};
+    static const char *const exams[][2] = {{"1.9", "2024-03-01"},  {"1.4", "2024-03-02"},
+                                           {"1.30", "2024-03-02"}, {"1.10", "2024-03-03"},
+                                           {"1.2", "2024-03-04"},  {"1.1", "2024-03-05"}};
     for (size_t i = 0; i < sizeof exams / sizeof exams[0]; i++) {
         char sql[1024];
         snprintf(sql, sizeof sql,
@@ -1059,8 +1021,8 @@ static void exam_rows_sorted_by_uid(void **state)
     refresh_every_summary(f->path);
     store_exam_list list = {0};
     mitilog_error error = {{0}};
-    assert_int_equal(store_load_exam_rows(f->store, "2024-03-02", "2024-03-04",
-                                          STORE_EXAM_IDENTITY, &list, &error),
+    assert_int_equal(store_load_exam_rows(f->store, "2024-03-02", "2024-03-04", STORE_EXAM_IDENTITY,
+                                          &list, &error),
                      MITILOG_OK);
     /* strcmp order "1.10" < "1.2" < "1.30" < "1.4", not the days' order */
     static const char *const expected[] = {"1.10", "1.2", "1.30", "1.4"};
@@ -1069,15 +1031,15 @@ static void exam_rows_sorted_by_uid(void **state)
         assert_string_equal(list.rows[i].study_instance_uid, expected[i]);
         assert_non_null(list.rows[i].day);
         assert_string_equal(list.rows[i].exam_type, "abdomen");
-        assert_null(list.rows[i].room);   /* not asked for */
+        assert_null(list.rows[i].room); /* not asked for */
         assert_int_equal(list.rows[i].has_governing, 1);
     }
     assert_string_equal(list.rows[0].day, "2024-03-03");
     store_exam_list_free(&list);
     /* the short rows of statistics: same exams, same order */
-    assert_int_equal(store_load_exam_rows(f->store, "2024-03-02", "2024-03-04",
-                                          STORE_EXAM_ROOM, &list, &error),
-                     MITILOG_OK);
+    assert_int_equal(
+        store_load_exam_rows(f->store, "2024-03-02", "2024-03-04", STORE_EXAM_ROOM, &list, &error),
+        MITILOG_OK);
     assert_int_equal(list.count, 4);
     for (size_t i = 0; i < list.count; i++) {
         assert_string_equal(list.rows[i].study_instance_uid, expected[i]);
@@ -1099,13 +1061,12 @@ static void exam_rows_sorted_by_uid(void **state)
         assert_string_equal(list.rows[i].exam_type, "abdomen");
         assert_int_equal(list.rows[i].has_governing, 1);
         assert_true(list.rows[i].max_governing == expected_governing[i]);
-        assert_null(list.rows[i].first_acquired_at);   /* identity not asked for */
+        assert_null(list.rows[i].first_acquired_at); /* identity not asked for */
         assert_null(list.rows[i].shift);
     }
     store_exam_list_free(&list);
     /* a baseline: from the first day, before the end day */
-    assert_int_equal(store_load_exam_governing(f->store, "2024-03-01", "2024-03-04", &list,
-                                               &error),
+    assert_int_equal(store_load_exam_governing(f->store, "2024-03-01", "2024-03-04", &list, &error),
                      MITILOG_OK);
     assert_int_equal(list.count, 4);
     double sum = 0;
@@ -1113,9 +1074,8 @@ static void exam_rows_sorted_by_uid(void **state)
         sum += list.rows[i].max_governing;
     assert_true(sum == 0.5 + 1.5 + 2.5 + 3.5);
     store_exam_list_free(&list);
-    store_exam_list_free(&list);   /* a freed list is empty */
+    store_exam_list_free(&list); /* a freed list is empty */
 }
-
 
 /* Screen profiles: a learned profile is proposed with the next version of
  * its key, one version at a time is active, activation keeps who confirmed
@@ -1130,8 +1090,11 @@ static void screen_profiles_states(void **state)
     assert_int_equal(count, 0);
     assert_null(texts);
 
-    store_screen_profile_new profile = {.key = "room-a", .manufacturer = "Acme", .rows = 480,
-                                        .columns = 640, .text = "first",
+    store_screen_profile_new profile = {.key = "room-a",
+                                        .manufacturer = "Acme",
+                                        .rows = 480,
+                                        .columns = 640,
+                                        .text = "first",
                                         .example = (const unsigned char *)"P5 1 1 255 x",
                                         .example_size = 12};
     int version = 0;
@@ -1154,9 +1117,11 @@ static void screen_profiles_states(void **state)
     free(texts[0]);
     free(texts);
     assert_int_equal(query_int(f->path, "SELECT count(*) FROM screen_profiles "
-                                        "WHERE state = 'retired' AND version = 1"), 1);
+                                        "WHERE state = 'retired' AND version = 1"),
+                     1);
     assert_int_equal(query_int(f->path, "SELECT count(*) FROM screen_profiles WHERE "
-                                        "confirmed_by = 'j.doe' AND state = 'active'"), 1);
+                                        "confirmed_by = 'j.doe' AND state = 'active'"),
+                     1);
 
     store_screen_profile_row row;
     assert_int_equal(store_screen_profile_get(f->store, "room-a", 0, &row, &error), MITILOG_OK);
@@ -1189,34 +1154,25 @@ int main(void)
         cmocka_unit_test_setup_teardown(screen_profiles_states, fixture_setup, fixture_teardown),
         cmocka_unit_test_setup_teardown(new_policy_refreshes_summaries, fixture_setup,
                                         fixture_teardown),
-        cmocka_unit_test_setup_teardown(open_creates_schema, fixture_setup,
-                                        fixture_teardown),
-        cmocka_unit_test_setup_teardown(put_and_read_back, fixture_setup,
-                                        fixture_teardown),
+        cmocka_unit_test_setup_teardown(open_creates_schema, fixture_setup, fixture_teardown),
+        cmocka_unit_test_setup_teardown(put_and_read_back, fixture_setup, fixture_teardown),
         cmocka_unit_test_setup_teardown(header_copy_follows_its_row, fixture_setup,
                                         fixture_teardown),
         cmocka_unit_test_setup_teardown(mode_names_match_extraction, fixture_setup,
                                         fixture_teardown),
-        cmocka_unit_test_setup_teardown(migration_4_keeps_modes, fixture_setup,
+        cmocka_unit_test_setup_teardown(migration_4_keeps_modes, fixture_setup, fixture_teardown),
+        cmocka_unit_test_setup_teardown(resend_replaces, fixture_setup, fixture_teardown),
+        cmocka_unit_test_setup_teardown(concurrent_puts, fixture_setup, fixture_teardown),
+        cmocka_unit_test_setup_teardown(reopen_keeps_schema_and_rows, fixture_setup,
                                         fixture_teardown),
-        cmocka_unit_test_setup_teardown(resend_replaces, fixture_setup,
+        cmocka_unit_test_setup_teardown(read_only_database_fails_cleanly, fixture_setup,
                                         fixture_teardown),
-        cmocka_unit_test_setup_teardown(concurrent_puts, fixture_setup,
+        cmocka_unit_test_setup_teardown(full_database_fails_and_recovers, fixture_setup,
                                         fixture_teardown),
-        cmocka_unit_test_setup_teardown(reopen_keeps_schema_and_rows,
-                                        fixture_setup, fixture_teardown),
-        cmocka_unit_test_setup_teardown(read_only_database_fails_cleanly,
-                                        fixture_setup, fixture_teardown),
-        cmocka_unit_test_setup_teardown(full_database_fails_and_recovers,
-                                        fixture_setup, fixture_teardown),
-        cmocka_unit_test_setup_teardown(bad_record_fails_alone, fixture_setup,
-                                        fixture_teardown),
-        cmocka_unit_test_setup_teardown(bad_input_is_refused, fixture_setup,
-                                        fixture_teardown),
-        cmocka_unit_test_setup_teardown(studies_aggregate, fixture_setup,
-                                        fixture_teardown),
-        cmocka_unit_test_setup_teardown(health_counts, fixture_setup,
-                                        fixture_teardown),
+        cmocka_unit_test_setup_teardown(bad_record_fails_alone, fixture_setup, fixture_teardown),
+        cmocka_unit_test_setup_teardown(bad_input_is_refused, fixture_setup, fixture_teardown),
+        cmocka_unit_test_setup_teardown(studies_aggregate, fixture_setup, fixture_teardown),
+        cmocka_unit_test_setup_teardown(health_counts, fixture_setup, fixture_teardown),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

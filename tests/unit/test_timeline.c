@@ -11,12 +11,12 @@
 
 /* cmocka 1.1's assert_float_equal works in single precision; times here
  * are ~6e10 s, so compare in double. */
-#define assert_close(actual, expected, tolerance)                                  \
-    do {                                                                           \
-        double actual_value = (actual), expected_value = (expected);               \
-        if (!(actual_value - expected_value <= (tolerance) &&                      \
-              expected_value - actual_value <= (tolerance)))                       \
-            fail_msg("%.9f != %.9f", actual_value, expected_value);                \
+#define assert_close(actual, expected, tolerance)                                                  \
+    do {                                                                                           \
+        double actual_value = (actual), expected_value = (expected);                               \
+        if (!(actual_value - expected_value <= (tolerance) &&                                      \
+              expected_value - actual_value <= (tolerance)))                                       \
+            fail_msg("%.9f != %.9f", actual_value, expected_value);                                \
     } while (0)
 
 #include "extract/ext_timeline.h"
@@ -40,7 +40,7 @@ static void capped_gap_and_cine(void **state)
 {
     (void)state;
     exam_capture captures[3] = {capture_at(0, 0, 0.5), capture_at(60, 0, 1.2),
-                               capture_at(600, 0.4, 1.6)};
+                                capture_at(600, 0.4, 1.6)};
     ext_timeline_entry entries[3];
     ext_timeline_summary summary;
     ext_timeline_build(captures, 3, 0, 0, entries, &summary);
@@ -55,16 +55,15 @@ static void capped_gap_and_cine(void **state)
     /* Time at or above each threshold, by hand: >= 1.0: 60 + 300.4;
      * >= 1.5: 300.4; >= 2.0: 0; >= 0.5: everything (0.5 counts: "at or
      * above"). */
-    assert_close(ext_timeline_time_at_or_above(captures, entries, 3, EXAM_INDEX_TIB, 1.0),
-                       360.4, 1e-9);
-    assert_close(ext_timeline_time_at_or_above(captures, entries, 3, EXAM_INDEX_TIB, 1.5),
-                       300.4, 1e-9);
-    assert_close(ext_timeline_time_at_or_above(captures, entries, 3, EXAM_INDEX_TIB, 2.0),
-                       0.0, 1e-9);
-    assert_close(ext_timeline_time_at_or_above(captures, entries, 3, EXAM_INDEX_TIB, 0.5),
-                       360.4, 1e-9);
-    assert_close(ext_timeline_time_unreported(captures, entries, 3, EXAM_INDEX_TIC), 360.4,
-                       1e-9);
+    assert_close(ext_timeline_time_at_or_above(captures, entries, 3, EXAM_INDEX_TIB, 1.0), 360.4,
+                 1e-9);
+    assert_close(ext_timeline_time_at_or_above(captures, entries, 3, EXAM_INDEX_TIB, 1.5), 300.4,
+                 1e-9);
+    assert_close(ext_timeline_time_at_or_above(captures, entries, 3, EXAM_INDEX_TIB, 2.0), 0.0,
+                 1e-9);
+    assert_close(ext_timeline_time_at_or_above(captures, entries, 3, EXAM_INDEX_TIB, 0.5), 360.4,
+                 1e-9);
+    assert_close(ext_timeline_time_unreported(captures, entries, 3, EXAM_INDEX_TIC), 360.4, 1e-9);
 }
 
 /* Arrival order must not matter: the same exam given as [600, 0, 60]. */
@@ -72,7 +71,7 @@ static void out_of_order_arrival(void **state)
 {
     (void)state;
     exam_capture captures[3] = {capture_at(600, 0.4, 1.6), capture_at(0, 0, 0.5),
-                               capture_at(60, 0, 1.2)};
+                                capture_at(60, 0, 1.2)};
     ext_timeline_entry entries[3];
     ext_timeline_summary summary;
     ext_timeline_build(captures, 3, 0, 0, entries, &summary);
@@ -87,7 +86,7 @@ static void configured_cap(void **state)
 {
     (void)state;
     exam_capture captures[3] = {capture_at(0, 0, 0.5), capture_at(60, 0, 1.2),
-                               capture_at(600, 0.4, 1.6)};
+                                capture_at(600, 0.4, 1.6)};
     ext_timeline_entry entries[3];
     ext_timeline_summary summary;
     ext_timeline_build(captures, 3, 120, 0, entries, &summary);
@@ -99,7 +98,7 @@ static void scan_time_bound(void **state)
 {
     (void)state;
     exam_capture captures[3] = {capture_at(0, 0, 0.5), capture_at(60, 0, 1.2),
-                               capture_at(600, 0.4, 1.6)};
+                                capture_at(600, 0.4, 1.6)};
     ext_timeline_entry entries[3];
     ext_timeline_summary summary;
     ext_timeline_build(captures, 3, 0, 180.2, entries, &summary);
@@ -117,7 +116,7 @@ static void untimed_capture(void **state)
 {
     (void)state;
     exam_capture captures[3] = {capture_at(0, 0, 0.5), capture_at(30, 0, 1.2),
-                               capture_at(90, 0, 1.6)};
+                                capture_at(90, 0, 1.6)};
     captures[1].has_time = 0;
     ext_timeline_entry entries[3];
     ext_timeline_summary summary;
@@ -134,19 +133,19 @@ static void iso_to_seconds(void **state)
     (void)state;
     assert_close(ext_iso_to_seconds("1970-01-01T00:00:00"), 719162.0 * 86400.0, 0);
     assert_close(ext_iso_to_seconds("2026-11-23T14:05:12") -
-                           ext_iso_to_seconds("2026-11-23T14:00:00"),
-                       312.0, 1e-9);
+                     ext_iso_to_seconds("2026-11-23T14:00:00"),
+                 312.0, 1e-9);
     assert_close(ext_iso_to_seconds("2026-11-24T00:01:00") -
-                           ext_iso_to_seconds("2026-11-23T23:59:00"),
-                       120.0, 1e-9);
+                     ext_iso_to_seconds("2026-11-23T23:59:00"),
+                 120.0, 1e-9);
     assert_close(ext_iso_to_seconds("2024-03-01T00:00:00") -
-                           ext_iso_to_seconds("2024-02-28T00:00:00"),
-                       2 * 86400.0, 1e-9); /* 2024 is a leap year */
+                     ext_iso_to_seconds("2024-02-28T00:00:00"),
+                 2 * 86400.0, 1e-9); /* 2024 is a leap year */
     assert_close(ext_iso_to_seconds("2026-11-23T14:00:00+01:00"),
-                       ext_iso_to_seconds("2026-11-23T13:00:00"), 1e-9);
+                 ext_iso_to_seconds("2026-11-23T13:00:00"), 1e-9);
     assert_close(ext_iso_to_seconds("2026-11-23T14:00:00.25") -
-                           ext_iso_to_seconds("2026-11-23T14:00:00"),
-                       0.25, 1e-9);
+                     ext_iso_to_seconds("2026-11-23T14:00:00"),
+                 0.25, 1e-9);
     assert_true(ext_iso_to_seconds("yesterday") < 0);
 }
 
