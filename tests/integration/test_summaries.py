@@ -57,7 +57,18 @@ SELECT p.study_instance_uid, p.day, p.exam_type, p.exam_type_label, p.governing_
        coalesce(k.captures, 0), coalesce(k.indexed, 0),
        (SELECT count(*) FROM findings x
         WHERE x.study_instance_uid = p.study_instance_uid AND x.superseded = 0),
-       p.first_acquired_at
+       p.first_acquired_at,
+       -- advisories measured below their own limit (informational), and
+       -- the most severe other finding: 3 violation, 2 warning, 1 advisory
+       -- at or above its limit, 0 none (docs/api.md, GET /api/v1/stats)
+       (SELECT count(*) FROM findings x
+        WHERE x.study_instance_uid = p.study_instance_uid AND x.superseded = 0
+          AND x.severity = 'advisory' AND x.measured_value < x.limit_value),
+       coalesce((SELECT max(iif(x.severity = 'violation', 3,
+                            iif(x.severity = 'warning', 2,
+                            iif(x.measured_value < x.limit_value, 0, 1))))
+                 FROM findings x
+                 WHERE x.study_instance_uid = p.study_instance_uid AND x.superseded = 0), 0)
 FROM period p
 LEFT JOIN exam_context c ON c.study_instance_uid = p.study_instance_uid
 LEFT JOIN instances f ON f.id = (SELECT j.id FROM instances j
@@ -197,9 +208,9 @@ def assert_summaries_exact(db, periods=(("0000-00-00", "9999-99-99"),)):
         for key, column in (("", None), ("room", 7), ("preset", 8), ("shift", 9),
                             ("transducer", 10)):
             got = db.execute(query_text("stats_exam_values.sql"), (first, last, key)).fetchall()
-            got.sort(key=lambda row: row[-1].encode())
+            got.sort(key=lambda row: row[8].encode())
             assert exact(zero_as_real(got)) == exact(zero_as_real(
-                [(r[2], r[column] if column else None) + r[5:7] + r[12:16] + (r[0],)
+                [(r[2], r[column] if column else None) + r[5:7] + r[12:16] + (r[0], r[17])
                  for r in expected])), key
         # a weekly baseline: type and governing value of the days before the last
         got = db.execute(query_text("stats_exam_governing.sql"), (first, last)).fetchall()
