@@ -8,6 +8,7 @@ Environment:
 
 import json
 import os
+import random
 import re
 import signal
 import socket
@@ -36,7 +37,34 @@ SANITIZER_RE = re.compile(r"(AddressSanitizer|LeakSanitizer|UndefinedBehaviorSan
 ERROR_RE = re.compile(r"\berror:", re.IGNORECASE)
 
 
+HANDED_OUT_PORTS = set()
+
+
 def free_port():
+    """A port for a daemon, below the kernel's ephemeral range: a port the
+    kernel hands out (bind to 0) can be taken again by any outgoing
+    connection (storescu, echoscu, HTTP clients) before the daemon binds it,
+    which made restarts fail with "Address already in use" now and then
+    (ip(7): ip_local_port_range). Common practice, no source."""
+    try:
+        with open("/proc/sys/net/ipv4/ip_local_port_range") as f:
+            ephemeral_low = int(f.read().split()[0])
+    except (OSError, ValueError, IndexError):
+        ephemeral_low = 32768
+    low, high = 10000, min(ephemeral_low, 65536) - 1
+    generator = random.Random()
+    for _ in range(500):
+        port = generator.randint(low, high) if high > low else 0
+        if port in HANDED_OUT_PORTS:
+            continue
+        with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
+            try:
+                s.bind(("127.0.0.1", port))
+            except OSError:
+                continue
+            port = s.getsockname()[1]
+        HANDED_OUT_PORTS.add(port)
+        return port
     with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
         s.bind(("127.0.0.1", 0))
         return s.getsockname()[1]
