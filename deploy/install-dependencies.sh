@@ -16,6 +16,14 @@ packages=(
   # the simulator's scanners draw their screen text (`simulate --screens`)
   # with FreeType in fonts of Debian's font packages
   libfreetype-dev fonts-dejavu-core fonts-liberation2 fonts-freefont-ttf
+  # the shared store for a group of sites: PostgreSQL's client library, and
+  # the server itself for the tests (tests/postgresql/cluster.sh)
+  libpq-dev postgresql
+  # outbound HTTP for notifications (libcurl), multipart bodies of DICOMweb
+  # STOW-RS requests (GMime)
+  libcurl4-openssl-dev libgmime-3.0-dev
+  # promtool checks the /metrics text format in the tests
+  prometheus
   # unit tests
   libcmocka-dev
   # the code's layout, checked by tests/check-format.sh against .clang-format
