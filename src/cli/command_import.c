@@ -138,18 +138,20 @@ static unsigned import_default_jobs(void)
 static void print_import_usage(FILE *out)
 {
     fprintf(out,
-            "usage: mitilog import [--config FILE] [--jobs N] PATH...\n"
+            "usage: mitilog import [--config FILE] [--jobs N] [--site NAME] PATH...\n"
             "Reads DICOM files, and folders recursively, into the database. Prints one\n"
             "summary line. Exit status: 0 all stored, 1 something was rejected or could\n"
             "not be stored (reasons on stderr and in the rejections table), 2 usage\n"
             "(also a PATH that does not exist).\n"
-            "  --jobs N   files read at once, 1-%d (default: two per processor, at most 8)\n",
+            "  --jobs N   files read at once, 1-%d (default: two per processor, at most 8)\n"
+            "  --site S   the site recorded on what is imported (default: [receiver] site)\n",
             IMPORT_JOBS_MAX);
 }
 
 int command_import(int argc, char **argv)
 {
     const char *config_path = NULL;
+    const char *site = NULL;
     int first_path = 0;
     unsigned jobs = import_default_jobs();
     for (int i = 1; i < argc; i++) {
@@ -158,6 +160,13 @@ int command_import(int argc, char **argv)
             return EXIT_STATUS_SUCCESS;
         } else if (strcmp(argv[i], "--config") == 0 && i + 1 < argc) {
             config_path = argv[++i];
+        } else if (strcmp(argv[i], "--site") == 0 && i + 1 < argc) {
+            char reason[160];
+            site = argv[++i];
+            if (!exam_site_name_check(site, reason, sizeof reason)) {
+                fprintf(stderr, "mitilog import: --site %s: %s\n", site, reason);
+                return EXIT_STATUS_USAGE;
+            }
         } else if (strcmp(argv[i], "--jobs") == 0 && i + 1 < argc) {
             char *end = NULL;
             long value = strtol(argv[++i], &end, 10);
@@ -195,6 +204,15 @@ int command_import(int argc, char **argv)
     if (cli_load_config(config_path, &config) != 0) {
         config_free(&config);
         return EXIT_STATUS_USAGE;
+    }
+    if (site != NULL) {
+        char *copy = strdup(site);
+        if (copy == NULL) {
+            config_free(&config);
+            return EXIT_STATUS_FAILURE;
+        }
+        free(config.receiver_site);
+        config.receiver_site = copy;
     }
     mitilog_error error;
     store *store = NULL;

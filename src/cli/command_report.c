@@ -13,23 +13,48 @@
 
 static void print_report_usage(FILE *out)
 {
-    fprintf(
-        out,
-        "usage: mitilog report week [YYYY-Www] [--group room|preset|shift|transducer|exam_type]\n"
-        "                      [--baseline-weeks N] [--minimum N] [--all-exams]\n"
-        "                      [--format html|csv|json] [--output FILE] [--config FILE]\n"
-        "       mitilog report stats [--from YYYY-MM-DD] [--to YYYY-MM-DD]\n"
-        "                      [--by exam_type|room|preset|shift|transducer]\n"
-        "                      [--format csv|json|html] [--output FILE] [--config FILE]\n"
-        "\n"
-        "week: the weekly outlier list of an ISO week (default: the latest week held),\n"
-        "against a trailing baseline per exam type (default 12 weeks, 20 exams).\n"
-        "stats: count, median, P75, P95 of each exam's governing index and MI, share of\n"
-        "exams with findings and estimated time above thresholds, per exam type; as html a\n"
-        "printable document with charts, the [site] institution and a sign-off block.\n"
-        "Both state the period, policy version, data completeness and the caution.\n"
-        "Default format: html for week, csv for stats. Exit status: 0 written, 1 failed,\n"
-        "2 usage.\n");
+    fprintf(out,
+            "usage: mitilog report week [YYYY-Www]\n"
+            "                      [--group room|preset|shift|transducer|exam_type|site]\n"
+            "                      [--baseline-weeks N] [--minimum N] [--all-exams]\n"
+            "                      [--format html|csv|json] [--output FILE] [--config FILE]\n"
+            "       mitilog report stats [--from YYYY-MM-DD] [--to YYYY-MM-DD]\n"
+            "                      [--by exam_type|room|preset|shift|transducer|site]\n"
+            "                      [--format csv|json|html] [--output FILE] [--config FILE]\n"
+            "       either with --site NAME[,NAME...] (repeatable): only those sites\n"
+            "\n"
+            "week: the weekly outlier list of an ISO week (default: the latest week held),\n"
+            "against a trailing baseline per exam type (default 12 weeks, 20 exams).\n"
+            "stats: count, median, P75, P95 of each exam's governing index and MI, share of\n"
+            "exams with findings and estimated time above thresholds, per exam type; as html a\n"
+            "printable document with charts, the [site] institution and a sign-off block.\n"
+            "Both state the period, policy version, data completeness and the caution.\n"
+            "Default format: html for week, csv for stats. Exit status: 0 written, 1 failed,\n"
+            "2 usage.\n");
+}
+
+/* Adds the site names of text (separated by commas) to sites, copied
+ * into text_buffer; 1 if every name is a site name (exam.h), else 0. */
+static int report_parse_sites(const char *text, store_sites *sites,
+                              char text_buffer[EXAM_SITES_MAX][EXAM_SITE_MAX + 1])
+{
+    for (const char *at = text;;) {
+        size_t length = strcspn(at, ",");
+        char name[EXAM_SITE_MAX + 2];
+        if (sites->count == EXAM_SITES_MAX || length > EXAM_SITE_MAX)
+            return 0;
+        memcpy(name, at, length);
+        name[length] = '\0';
+        if (!exam_site_name_check(name, NULL, 0))
+            return 0;
+        memcpy(text_buffer[sites->count], name, length + 1);
+        sites->names[sites->count] = text_buffer[sites->count];
+        sites->count++;
+        at += length;
+        if (*at == '\0')
+            return 1;
+        at++;
+    }
 }
 
 /* A decimal integer in [minimum, maximum]. */
@@ -59,6 +84,8 @@ int command_report(int argc, char **argv)
     report_week_request week = report_week_default_request();
     report_stats_request stats = {NULL, NULL, STATS_BY_EXAM_TYPE, NULL, NULL};
     long value = 0;
+    store_sites sites = {0};
+    char site_text[EXAM_SITES_MAX][EXAM_SITE_MAX + 1];
     for (int i = 2; i < argc; i++) {
         const char *option = argv[i];
         const char *next = i + 1 < argc ? argv[i + 1] : NULL;
@@ -71,6 +98,9 @@ int command_report(int argc, char **argv)
             i++;
         } else if (strcmp(option, "--format") == 0 && next != NULL) {
             bad = report_format_parse(next, &format) != 0;
+            i++;
+        } else if (strcmp(option, "--site") == 0 && next != NULL) {
+            bad = !report_parse_sites(next, &sites, site_text);
             i++;
         } else if (is_week && strcmp(option, "--group") == 0 && next != NULL) {
             bad = stats_dimension_parse(next, &week.group) != 0;
@@ -107,6 +137,10 @@ int command_report(int argc, char **argv)
             print_report_usage(stderr);
             return EXIT_STATUS_USAGE;
         }
+    }
+    if (sites.count > 0) {
+        week.sites = &sites;
+        stats.sites = &sites;
     }
     config config;
     if (cli_load_config(config_path, &config) != 0) {

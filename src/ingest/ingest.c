@@ -55,6 +55,10 @@ static mitilog_status ingest_make_subfolders(const char *folder, mitilog_error *
 
 mitilog_status ingest_create(const config *config, store *store, ingest **out, mitilog_error *error)
 {
+    /* Every object and rejection this ingest writes records its site. */
+    mitilog_status site_status = store_set_site(store, config->receiver_site, error);
+    if (site_status != MITILOG_OK)
+        return site_status;
     ingest *created = calloc(1, sizeof *created);
     if (created == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
@@ -97,7 +101,8 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out, m
                 (dcm_private_request){preset->group, preset->element, preset->private_creator};
     }
     if (status == MITILOG_OK)
-        status = ingest_exams_start(&created->exams, store, &created->rules, error);
+        status = ingest_exams_start(&created->exams, store, &created->rules, config->receiver_site,
+                                    error);
     if (status == MITILOG_OK) {
         status = ingest_reading_start(&created->reading, config, store, &created->exams, error);
         if (status != MITILOG_OK)
@@ -532,7 +537,7 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
         else if (plan.wanted)
             log_warning("object %s: pixel values not read: %s", record.sop_instance_uid,
                         plan.request.not_read_reason);
-        ingest_exams_mark(&ingest->exams, record.study_instance_uid);
+        ingest_exams_wake(&ingest->exams); /* its study was marked in the commit */
         log_debug("object %s stored (%s)", record.sop_instance_uid,
                   put == STORE_PUT_REPLACED ? "replaced" : "new");
     }

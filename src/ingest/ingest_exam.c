@@ -1,33 +1,45 @@
 /*
  * ingest_exam.c - the exam worker (ingest_internal.h). Choice: the exam
  * record is rebuilt off the C-STORE path. ingest_object() commits the
- * instance (and only then is the C-STORE answered), then marks its study
- * dirty; this thread rebuilds dirty studies one at a time from what the
- * store holds, so a burst of a study's images costs few rebuilds (marks
- * coalesce while a study waits). A rebuilt study queues its days, and
- * the day-level rules run once a day has settled. `import` flushes
- * before it exits and `serve` drains the queues at shutdown
- * (ingest_free).
+ * instance together with a mark of its study in the database's exam
+ * queue (exam_jobs, store.h "The exam rebuild queue"; only then is the
+ * C-STORE answered), and this thread takes due jobs from that queue and
+ * rebuilds them one at a time from what the store holds, so a burst of a
+ * study's images costs one rebuild (marks coalesce while a job waits),
+ * whichever of the receivers writing the database takes it, and a job
+ * marked before a kill -9 is rebuilt after the restart. A rebuilt study
+ * queues its days, and the day-level rules run once a day has settled.
+ * `import` flushes before it exits and `serve` drains the queues at
+ * shutdown (ingest_free).
  */
 #include "ingest/ingest_internal.h"
 
+#include <errno.h>
+#include <limits.h>
+#include <signal.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/types.h>
 #include <time.h>
+#include <unistd.h>
 
 #include "extract/ext_exam.h"
 #include "ingest/ingest.h"
 #include "util/log.h"
 
-/* A study is rebuilt once no instance of it has arrived for SETTLE
- * seconds, or MAX_WAIT seconds after its first waiting instance, so a
- * study sent as a burst costs one rebuild instead of one per image. A
- * day's device-level rules (output_not_reported) read every instance of
- * the day, so a day waits longer: it is evaluated once its studies have
- * been quiet for DAY_SETTLE seconds (at most DAY_MAX_WAIT). */
-#define INGEST_EXAM_SETTLE_SECONDS 0.5
-#define INGEST_EXAM_MAX_WAIT_SECONDS 5.0
+/* A study is rebuilt once no instance of it has arrived for
+ * STORE_EXAM_JOB_SETTLE_MS, or STORE_EXAM_JOB_MAX_WAIT_MS after its first
+ * waiting instance (store.h), so a study sent as a burst costs one
+ * rebuild instead of one per image. A day's device-level rules
+ * (output_not_reported) read every instance of the day, so a day waits
+ * longer: it is evaluated once its studies have been quiet for
+ * DAY_SETTLE seconds (at most DAY_MAX_WAIT). Jobs are taken a few at a
+ * time; one taken by a receiver that never finished it is taken again
+ * after JOB_STALE; another receiver's marks are seen within JOB_POLL. */
+#define INGEST_JOB_TAKE_LIMIT 8
+#define INGEST_JOB_STALE_MS (10LL * 60 * 1000)
+#define INGEST_JOB_POLL_SECONDS 1.0
 #define INGEST_DAY_SETTLE_SECONDS 5.0
 #define INGEST_DAY_MAX_WAIT_SECONDS 60.0
 
@@ -216,8 +228,9 @@ static void ingest_exams_sweep(ingest_exams *exams, const rules_policy *policy)
     store_texts_free(due, count);
 }
 
-/* Rebuilds and evaluates one study, then queues its days. */
-static void ingest_exams_do_study(ingest_exams *exams, const char *study)
+/* Rebuilds and evaluates one study, then queues its days; MITILOG_OK
+ * when rebuilt. */
+static mitilog_status ingest_exams_do_study(ingest_exams *exams, const char *study)
 {
     mitilog_error error;
     ingest_policy_handle *handle = ingest_exams_hold_policy(exams);
@@ -234,8 +247,8 @@ static void ingest_exams_do_study(ingest_exams *exams, const char *study)
     if (status != MITILOG_OK)
         log_error("study %s: exam record not rebuilt or not evaluated: %s", study, error.text);
     else
-        log_debug("study %s: exam record rebuilt; %lu finding(s) written, %lu superseded", study,
-                  counts.written, counts.superseded);
+        log_debug("study %s: exam record rebuilt by %s; %lu finding(s) written, %lu superseded",
+                  study, exams->owner, counts.written, counts.superseded);
     pthread_mutex_lock(&exams->lock);
     double now = ingest_clock_now();
     for (size_t i = 0; i < day_count; i++)
@@ -247,6 +260,7 @@ static void ingest_exams_do_study(ingest_exams *exams, const char *study)
         exams->failed++;
     pthread_mutex_unlock(&exams->lock);
     store_texts_free(days, day_count);
+    return status;
 }
 
 /* Evaluates the day-level rules of one day under the current policy. */
@@ -262,17 +276,55 @@ static void ingest_exams_do_day(ingest_exams *exams, const char *day)
     ingest_exams_release_policy(exams, handle);
 }
 
+/* Takes the due jobs (every waiting one when draining) and rebuilds them;
+ * the number taken. Called without the lock. */
+static size_t ingest_exams_do_jobs(ingest_exams *exams, int draining)
+{
+    long long now_ms = store_now_ms();
+    store_exam_job *jobs = NULL;
+    size_t count = 0;
+    mitilog_error error;
+    /* A look first, on the read connection: a take is a write, and an
+     * idle receiver writes nothing. */
+    long long next_due_ms = -1, queued = 0;
+    if (store_exam_jobs_next(exams->store, &next_due_ms, &queued, &error) == MITILOG_OK &&
+        (next_due_ms < 0 || (!draining && next_due_ms > now_ms)))
+        return 0;
+    if (store_take_exam_jobs(exams->store, exams->owner, draining ? LLONG_MAX : now_ms,
+                             now_ms - INGEST_JOB_STALE_MS, INGEST_JOB_TAKE_LIMIT, &jobs, &count,
+                             &error) != MITILOG_OK) {
+        log_error("exam queue: jobs not taken, tried again shortly: %s", error.text);
+        return 0;
+    }
+    for (size_t i = 0; i < count; i++) {
+        pthread_mutex_lock(&exams->lock);
+        exams->busy = 1;
+        pthread_mutex_unlock(&exams->lock);
+        /* A rebuild that failed is logged and dropped, as the exam's next
+         * instance marks it again; only a job marked again meanwhile
+         * stays queued. */
+        ingest_exams_do_study(exams, jobs[i].study_instance_uid);
+        if (store_finish_exam_job(exams->store, exams->owner, &jobs[i], 1, &error) != MITILOG_OK)
+            log_error("study %s: exam job not finished, taken again after %lld s: %s",
+                      jobs[i].study_instance_uid, INGEST_JOB_STALE_MS / 1000, error.text);
+        pthread_mutex_lock(&exams->lock);
+        exams->busy = 0;
+        pthread_cond_broadcast(&exams->changed);
+        pthread_mutex_unlock(&exams->lock);
+    }
+    store_exam_jobs_free(jobs, count);
+    return count;
+}
+
 static void *ingest_exams_run(void *argument)
 {
     ingest_exams *exams = argument;
     pthread_mutex_lock(&exams->lock);
     for (;;) {
-        while (exams->studies.count == 0 && exams->days.count == 0 && !exams->stopping) {
-            ingest_policy_handle *handle = ingest_exams_hold_policy(exams);
-            if (handle == NULL) {
-                pthread_cond_wait(&exams->changed, &exams->lock);
-                continue;
-            }
+        int draining = exams->flushing || exams->stopping;
+        /* The closing sweep, when a policy is loaded and it is time. */
+        ingest_policy_handle *handle = draining ? NULL : ingest_exams_hold_policy(exams);
+        if (handle != NULL) {
             double now = ingest_clock_now();
             if (now >= exams->next_sweep) {
                 exams->next_sweep = now + ingest_sweep_interval(handle->policy);
@@ -283,50 +335,110 @@ static void *ingest_exams_run(void *argument)
                 continue;
             }
             ingest_exams_release_policy(exams, handle);
-            struct timespec until;
-            until.tv_sec = (time_t)exams->next_sweep;
-            until.tv_nsec = (long)((exams->next_sweep - (double)until.tv_sec) * 1e9);
-            pthread_cond_timedwait(&exams->changed, &exams->lock, &until);
         }
-        if (exams->studies.count == 0 && exams->days.count == 0)
-            break; /* stopping, nothing left */
+        pthread_mutex_unlock(&exams->lock);
+        size_t taken = ingest_exams_do_jobs(exams, draining);
+        pthread_mutex_lock(&exams->lock);
+        if (taken > 0)
+            continue;
+        /* Days go after every due study: a study's rebuild may queue its
+         * days again. */
         double now = ingest_clock_now();
-        double wake = now + INGEST_DAY_MAX_WAIT_SECONDS;
-        long study = ingest_pending_due(exams, &exams->studies, INGEST_EXAM_SETTLE_SECONDS,
-                                        INGEST_EXAM_MAX_WAIT_SECONDS, now, &wake);
-        /* Days go after every waiting study: a study's rebuild may queue
-         * its days again. */
-        long day = study >= 0 || exams->studies.count > 0
-                       ? -1
-                       : ingest_pending_due(exams, &exams->days, INGEST_DAY_SETTLE_SECONDS,
-                                            INGEST_DAY_MAX_WAIT_SECONDS, now, &wake);
-        if (study < 0 && day < 0) {
-            ingest_exams_wait_until(exams, wake);
+        double wake = now + INGEST_JOB_POLL_SECONDS;
+        long day = ingest_pending_due(exams, &exams->days, INGEST_DAY_SETTLE_SECONDS,
+                                      INGEST_DAY_MAX_WAIT_SECONDS, now, &wake);
+        if (day >= 0) {
+            char *key = ingest_pending_take(&exams->days, (size_t)day);
+            exams->busy = 1;
+            pthread_mutex_unlock(&exams->lock);
+            ingest_exams_do_day(exams, key);
+            free(key);
+            pthread_mutex_lock(&exams->lock);
+            exams->busy = 0;
+            pthread_cond_broadcast(&exams->changed);
             continue;
         }
-        char *key = study >= 0 ? ingest_pending_take(&exams->studies, (size_t)study)
-                               : ingest_pending_take(&exams->days, (size_t)day);
-        exams->busy = 1;
+        if (draining) {
+            /* Nothing left to take: a flush that began before this pass
+             * is over. */
+            exams->empty_passes++;
+            pthread_cond_broadcast(&exams->changed);
+            if (exams->stopping)
+                break;
+        }
+        /* Until the next job is due (this receiver's marks wake it
+         * sooner: ingest_exams_wake), a day settles, the next sweep, or
+         * the poll for other receivers' marks. */
         pthread_mutex_unlock(&exams->lock);
-        if (study >= 0)
-            ingest_exams_do_study(exams, key);
-        else
-            ingest_exams_do_day(exams, key);
-        free(key);
+        long long next_due_ms = -1, queued = 0;
+        mitilog_error error;
+        if (store_exam_jobs_next(exams->store, &next_due_ms, &queued, &error) != MITILOG_OK)
+            log_warning("exam queue: not read: %s", error.text);
         pthread_mutex_lock(&exams->lock);
-        exams->busy = 0;
-        pthread_cond_broadcast(&exams->changed);
+        if (next_due_ms >= 0 && (double)next_due_ms / 1000.0 < wake)
+            wake = (double)next_due_ms / 1000.0;
+        if (exams->policy != NULL && exams->next_sweep < wake)
+            wake = exams->next_sweep;
+        if (exams->flushing || exams->stopping || exams->woken)
+            wake = now; /* asked for meanwhile: go round again */
+        exams->woken = 0;
+        if (wake > now) {
+            exams->wake_at = wake;
+            ingest_exams_wait_until(exams, wake);
+            exams->wake_at = 0;
+        }
     }
     pthread_mutex_unlock(&exams->lock);
     return NULL;
 }
 
+/* Hands back the jobs of earlier processes on this host that ended while
+ * holding them (a kill -9 during a rebuild), so they are taken again at
+ * once rather than after INGEST_JOB_STALE_MS. */
+static void ingest_exams_release_dead(ingest_exams *exams, const char *host_part)
+{
+    char **owners = NULL;
+    size_t count = 0;
+    mitilog_error error;
+    if (store_exam_job_owners(exams->store, &owners, &count, &error) != MITILOG_OK) {
+        log_warning("exam queue: owners not read: %s", error.text);
+        return;
+    }
+    size_t length = strlen(host_part);
+    for (size_t i = 0; i < count; i++) {
+        const char *at = strstr(owners[i], host_part);
+        if (at == NULL || at[length] != ' ' || strncmp(at + length, " pid ", 5) != 0)
+            continue;
+        char *end = NULL;
+        long pid = strtol(at + length + 5, &end, 10);
+        if (end == at + length + 5 || *end != '\0' || pid <= 0)
+            continue;
+        if (pid != (long)getpid() && kill((pid_t)pid, 0) != 0 && errno == ESRCH) {
+            if (store_release_exam_jobs(exams->store, owners[i], &error) != MITILOG_OK)
+                log_warning("exam queue: jobs of %s not handed back: %s", owners[i], error.text);
+            else
+                log_info("exam queue: jobs left taken by %s (ended) handed back", owners[i]);
+        }
+    }
+    store_texts_free(owners, count);
+}
+
 mitilog_status ingest_exams_start(ingest_exams *exams, store *store, const ext_site_rules *rules,
-                                  mitilog_error *error)
+                                  const char *site, mitilog_error *error)
 {
     memset(exams, 0, sizeof *exams);
     exams->store = store;
     exams->rules = rules;
+    /* Who takes jobs: the site, this host and this process. */
+    char host[128] = "";
+    if (gethostname(host, sizeof host - 1) != 0 || host[0] == '\0')
+        snprintf(host, sizeof host, "localhost");
+    host[sizeof host - 1] = '\0';
+    char host_part[256];
+    snprintf(host_part, sizeof host_part, "@%s", host);
+    snprintf(exams->owner, sizeof exams->owner, "%s%s pid %ld", site != NULL ? site : "", host_part,
+             (long)getpid());
+    ingest_exams_release_dead(exams, host_part);
     pthread_mutex_init(&exams->lock, NULL);
     pthread_mutex_init(&exams->policy_lock, NULL);
     pthread_cond_init(&exams->changed, NULL);
@@ -340,20 +452,33 @@ mitilog_status ingest_exams_start(ingest_exams *exams, store *store, const ext_s
     return MITILOG_OK;
 }
 
+void ingest_exams_wake(ingest_exams *exams)
+{
+    if (!exams->started)
+        return;
+    pthread_mutex_lock(&exams->lock);
+    /* A new job is due a settling time from now: only a worker asleep
+     * beyond that needs waking (waking it for every image cost a context
+     * switch per object). */
+    double due = ingest_clock_now() + (double)STORE_EXAM_JOB_SETTLE_MS / 1000.0;
+    if (exams->wake_at > due) {
+        exams->woken = 1;
+        pthread_cond_broadcast(&exams->changed);
+    }
+    pthread_mutex_unlock(&exams->lock);
+}
+
 void ingest_exams_mark(ingest_exams *exams, const char *study_instance_uid)
 {
     if (!exams->started || study_instance_uid == NULL || study_instance_uid[0] == '\0')
         return;
-    pthread_mutex_lock(&exams->lock);
-    int added = ingest_pending_mark(&exams->studies, study_instance_uid, ingest_clock_now());
-    /* Only a new study can be due before the worker's next wake-up (a
-     * further mark of a waiting one only delays it): waking the worker
-     * for every image cost a context switch per object. */
-    if (added > 0)
-        pthread_cond_broadcast(&exams->changed);
-    pthread_mutex_unlock(&exams->lock);
-    if (added < 0)
-        log_error("study %s: out of memory, exam record not rebuilt", study_instance_uid);
+    mitilog_error error;
+    if (store_mark_exam_job(exams->store, study_instance_uid, store_now_ms(), &error) !=
+        MITILOG_OK) {
+        log_error("study %s: exam not queued for a rebuild: %s", study_instance_uid, error.text);
+        return;
+    }
+    ingest_exams_wake(exams);
 }
 
 void ingest_exams_flush(ingest_exams *exams)
@@ -362,8 +487,10 @@ void ingest_exams_flush(ingest_exams *exams)
         return;
     pthread_mutex_lock(&exams->lock);
     exams->flushing++;
+    /* Two empty passes from now: the first may have begun before this. */
+    unsigned long until = exams->empty_passes + 2;
     pthread_cond_broadcast(&exams->changed);
-    while (exams->studies.count > 0 || exams->days.count > 0 || exams->busy)
+    while (exams->empty_passes < until || exams->busy)
         pthread_cond_wait(&exams->changed, &exams->lock);
     exams->flushing--;
     pthread_mutex_unlock(&exams->lock);
@@ -379,7 +506,6 @@ void ingest_exams_stop(ingest_exams *exams)
     pthread_cond_broadcast(&exams->changed);
     pthread_mutex_unlock(&exams->lock);
     pthread_join(exams->thread, NULL);
-    ingest_pending_free(&exams->studies);
     ingest_pending_free(&exams->days);
     ingest_exams_release_policy(exams, exams->policy);
     exams->policy = NULL;

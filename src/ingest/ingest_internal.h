@@ -2,10 +2,11 @@
  * ingest_internal.h - what the files of src/ingest/ share; not API.
  *
  * ingest.c       one object through read, extract, retain, commit;
- * ingest_exam.c  the exam worker: studies marked dirty after a commit are
- *                rebuilt (store_load_study -> ext_exam_build ->
- *                store_put_exam) on one background thread, so a C-STORE
- *                is answered as soon as its instance has committed;
+ * ingest_exam.c  the exam worker: studies marked in the database's exam
+ *                queue with their instance's commit are taken and rebuilt
+ *                (store_load_study -> ext_exam_build -> store_put_exam)
+ *                on one background thread, so a C-STORE is answered as
+ *                soon as its instance (and its mark) has committed;
  * ingest_site.c  the site rules, and logging unknown SR schemes once.
  */
 #ifndef MITILOG_INGEST_INTERNAL_H
@@ -38,10 +39,13 @@ typedef struct ingest_exams {
     const ext_site_rules *rules;
     pthread_mutex_t lock;
     pthread_cond_t changed;
-    ingest_pending studies; /* study UIDs whose exam is rebuilt */
-    ingest_pending days;    /* days whose device rules are evaluated */
-    int flushing;           /* rebuild everything now, no settling */
-    int busy;               /* the worker is rebuilding one */
+    ingest_pending days;        /* days whose device rules are evaluated */
+    int flushing;               /* rebuild everything now, no settling */
+    int busy;                   /* the worker is rebuilding one */
+    int woken;                  /* a job was marked while the worker waited */
+    double wake_at;             /* when the waiting worker wakes; 0: not waiting */
+    unsigned long empty_passes; /* passes that found nothing to do while draining */
+    char owner[512];            /* "SITE@HOST pid N": who takes exam jobs */
     int stopping;
     int started;
     pthread_t thread;
@@ -58,12 +62,16 @@ void ingest_exams_release_policy(ingest_exams *exams, ingest_policy_handle *hand
 void ingest_exams_swap_policy(ingest_exams *exams, rules_policy *policy);
 
 mitilog_status ingest_exams_start(ingest_exams *exams, store *store, const ext_site_rules *rules,
-                                  mitilog_error *error);
-/* Queues a study (copied); a study already waiting is not queued twice.
- * Once rebuilt, its days are queued in turn, so the day-level rules run
- * once per settled day, not once per study. */
+                                  const char *site, mitilog_error *error);
+/* Queues a study in the database's exam queue (its own commit); a study
+ * already waiting is not queued twice. Once rebuilt, its days are queued
+ * in turn, so the day-level rules run once per settled day, not once per
+ * study. */
 void ingest_exams_mark(ingest_exams *exams, const char *study_instance_uid);
-/* Waits until every queued study has been rebuilt. */
+/* Tells the worker that an instance's commit marked a study. */
+void ingest_exams_wake(ingest_exams *exams);
+/* Waits until every queued study has been rebuilt (every job of the
+ * queue this receiver can take). */
 void ingest_exams_flush(ingest_exams *exams);
 /* Flushes, stops and joins the worker. */
 void ingest_exams_stop(ingest_exams *exams);

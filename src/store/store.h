@@ -60,6 +60,46 @@ typedef struct store_sites {
     const char *names[EXAM_SITES_MAX];
 } store_sites;
 
+/* ---- The exam rebuild queue (exam_jobs, migration 013;
+ * store_exam_jobs.c). Every instance written marks its study's exam in
+ * the same transaction: due settle_ms after its latest mark, at most
+ * max_wait_ms after the first (Unix milliseconds). The exam worker of
+ * each receiver takes due jobs (rows locked on PostgreSQL), rebuilds
+ * them and finishes them; a job marked again meanwhile stays and is
+ * rebuilt again, so each burst is rebuilt once, whichever receiver takes
+ * it, and a kill -9 after an acknowledgement loses no rebuild. */
+enum { STORE_EXAM_JOB_SETTLE_MS = 500, STORE_EXAM_JOB_MAX_WAIT_MS = 5000 };
+void store_set_exam_job_timing(store *store, long long settle_ms, long long max_wait_ms);
+/* The clock of the queue: Unix milliseconds (CLOCK_REALTIME, shared by
+ * receivers on several machines). */
+long long store_now_ms(void);
+/* Marks a study in its own commit (the closing sweep, a finished reading). */
+mitilog_status store_mark_exam_job(store *store, const char *study_instance_uid, long long now_ms,
+                                   mitilog_error *error);
+typedef struct store_exam_job {
+    char *study_instance_uid; /* malloc'ed */
+    long long generation;     /* the mark taken */
+} store_exam_job;
+/* Takes up to limit jobs due at now_ms for owner (waiting ones, and ones
+ * taken before stale_before_ms by a receiver that never finished them);
+ * *jobs is malloc'ed, freed with store_exam_jobs_free(). */
+mitilog_status store_take_exam_jobs(store *store, const char *owner, long long now_ms,
+                                    long long stale_before_ms, size_t limit, store_exam_job **jobs,
+                                    size_t *count, mitilog_error *error);
+void store_exam_jobs_free(store_exam_job *jobs, size_t count);
+/* done: the exam was rebuilt as of job->generation; the job is removed
+ * unless marked again meanwhile, then handed back (as when done is 0). */
+mitilog_status store_finish_exam_job(store *store, const char *owner, const store_exam_job *job,
+                                     int done, mitilog_error *error);
+/* Hands back every job owner holds (its process is gone). */
+mitilog_status store_release_exam_jobs(store *store, const char *owner, mitilog_error *error);
+/* The owners holding jobs (store_texts_free). */
+mitilog_status store_exam_job_owners(store *store, char ***owners, size_t *count,
+                                     mitilog_error *error);
+/* The earliest due time of a waiting job (-1: none) and the jobs queued. */
+mitilog_status store_exam_jobs_next(store *store, long long *next_due_ms, long long *queued,
+                                    mitilog_error *error);
+
 /* Schema version after migration (PRAGMA user_version). */
 int store_schema_version(store *store);
 

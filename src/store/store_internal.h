@@ -99,8 +99,9 @@ struct store {
     pthread_mutex_t reader_lock;
 
     int schema_version;
-    char site[EXAM_SITE_MAX + 1]; /* recorded by every write */
-    char active_policy[65];       /* under reader_lock; "" = none  */
+    char site[EXAM_SITE_MAX + 1];                       /* recorded by every write */
+    long long exam_job_settle_ms, exam_job_max_wait_ms; /* store_set_exam_job_timing */
+    char active_policy[65];                             /* under reader_lock; "" = none  */
 
     pthread_mutex_t parameter_lock;
     hash_table parameter_indices; /* under parameter_lock          */
@@ -176,6 +177,10 @@ mitilog_status store_write_context(store *store, const ext_record *record,
 mitilog_status store_write_reading(store *store, const struct store_reading_request *reading,
                                    sqlite3_int64 instance_id, int replaced, char **stale_spool,
                                    mitilog_error *error);
+/* store_exam_jobs.c: marks the study's exam for a rebuild, inside the
+ * batch's transaction (the instance write calls it). */
+mitilog_status store_write_exam_job_mark(store *store, const char *study_instance_uid,
+                                         long long now_ms, mitilog_error *error);
 /* store_write_exam.c: one exam with its timeline and mode maxima. */
 mitilog_status store_write_exam(store *store, const store_exam *exam, mitilog_error *error);
 /* 1 if text is well-formed UTF-8 (store_write.c). */

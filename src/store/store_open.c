@@ -305,6 +305,8 @@ mitilog_status store_open(const char *path, int busy_timeout_ms, store **out, mi
     pthread_mutex_init(&opened->parameter_lock, NULL);
     hash_table_init(&opened->parameter_indices, STORE_PARAMETER_ENTRIES);
     snprintf(opened->site, sizeof opened->site, "%s", EXAM_SITE_DEFAULT);
+    opened->exam_job_settle_ms = STORE_EXAM_JOB_SETTLE_MS;
+    opened->exam_job_max_wait_ms = STORE_EXAM_JOB_MAX_WAIT_MS;
 
     mitilog_status status = store_connect(path, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE,
                                           busy_timeout_ms, &opened->writer, error);

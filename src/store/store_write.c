@@ -360,6 +360,11 @@ static mitilog_status store_write_instance(store *st, store_request *request)
                                          request->outcome == STORE_PUT_REPLACED,
                                          &request->stale_spool, &request->error);
         }
+        /* Its exam is to be rebuilt: marked in this transaction, so the
+         * acknowledgement never runs ahead of the mark. */
+        if (status == MITILOG_OK)
+            status = store_write_exam_job_mark(st, record->study_instance_uid, store_now_ms(),
+                                               &request->error);
     }
     sqlite3_reset(statement);
     sqlite3_clear_bindings(statement);
