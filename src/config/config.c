@@ -139,6 +139,14 @@ static const option options[] = {
      "Site name this receiver records on every object and rejection it takes (1-64 "
      "characters, no comma); receivers of several sites writing one database tell their "
      "objects apart by it, and every document can be filtered and grouped by it."},
+    {"receiver", "exam_settle_ms", OPTION_UNSIGNED, FIELD(exam_settle_ms), "500", 0, 600000, NULL,
+     0,
+     "Milliseconds without a new object of a study before its exam record is rebuilt (one "
+     "rebuild per burst; the queue is in the database, shared by the receivers)."},
+    {"receiver", "exam_max_wait_ms", OPTION_UNSIGNED, FIELD(exam_max_wait_ms), "5000", 0, 3600000,
+     NULL, 0,
+     "Milliseconds after a study's first waiting object by which its exam record is rebuilt even "
+     "while objects keep arriving."},
     {"site", "rules", OPTION_STRING, FIELD(site_rules_path), MITILOG_SOURCE_DIR "/conf/site.ini", 0,
      0, NULL, 1,
      "Site file: exam types, rooms, shifts, age groups, SR codes (docs/configuration.md); "

@@ -67,7 +67,9 @@ typedef struct config {
     unsigned reading_cine_frames;     /* frames of a cine read and compared */
 
     /* [receiver] */
-    char *receiver_site; /* the site recorded on every object received (exam.h) */
+    char *receiver_site;       /* the site recorded on every object received (exam.h) */
+    unsigned exam_settle_ms;   /* an exam is rebuilt this long after its last object */
+    unsigned exam_max_wait_ms; /* ... at most this long after its first */
 
     /* [site] */
     char *site_rules_path;  /* the site file (conf/site.ini); "" = none */

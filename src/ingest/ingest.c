@@ -61,6 +61,7 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out, m
     mitilog_status site_status = store_set_site(store, config->receiver_site, error);
     if (site_status != MITILOG_OK)
         return site_status;
+    store_set_exam_job_timing(store, config->exam_settle_ms, config->exam_max_wait_ms);
     ingest *created = calloc(1, sizeof *created);
     if (created == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
