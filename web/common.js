@@ -50,19 +50,66 @@ export function clear(node) {
   return node;
 }
 
+/* The sites the page is limited to (?site=, docs/sites.md), or null. */
+export function chosenSite() {
+  const value = new URLSearchParams(window.location.search).get('site');
+  return value ? value : null;
+}
+
+/* A hidden field that keeps the chosen site when a page's form is sent. */
+export function siteField() {
+  const site = chosenSite();
+  return site ? el('input', { type: 'hidden', name: 'site', value: site }) : null;
+}
+
+/* The site selector: shown once more than one site holds data; choosing
+ * one reloads the page with ?site=NAME (every API call of the page then
+ * carries it, getJSON below). */
+async function siteSelector(holder) {
+  let sites = [];
+  try {
+    sites = (await getJSON('/api/v1/sites')).map((s) => s.site);
+  } catch (error) {
+    return; /* the page says what failed to load */
+  }
+  const chosen = chosenSite();
+  if (chosen && !sites.includes(chosen)) sites.push(chosen);
+  if (sites.length < 2) return;
+  const select = el('select', { id: 'site-select', name: 'site' },
+    el('option', { value: '', selected: chosen ? null : 'selected' }, 'All sites'),
+    sites.map((s) => el('option', { value: s, selected: s === chosen ? 'selected' : null }, s)));
+  select.addEventListener('change', () => {
+    const query = new URLSearchParams(window.location.search);
+    if (select.value) query.set('site', select.value);
+    else query.delete('site');
+    window.location.search = query.toString();
+  });
+  holder.appendChild(el('label', { class: 'site-selector' }, 'Site ', select));
+  holder.hidden = false;
+}
+
 export function header(current) {
   const list = el('ul', {});
+  const site = chosenSite();
   for (const [href, label] of PAGES) {
-    list.appendChild(el('li', {}, el('a', { href, 'aria-current': href === current ? 'page' : null }, label)));
+    const target = site ? href + '?site=' + encodeURIComponent(site) : href;
+    list.appendChild(el('li', {}, el('a', { href: target, 'aria-current': href === current ? 'page' : null }, label)));
   }
+  const selector = el('div', { id: 'site-choice', hidden: 'hidden' });
   const top = el('header', { class: 'site-header' },
     el('span', { class: 'site-name' }, 'mitilog ', el('small', {}, 'acoustic output audit')),
     el('nav', { 'aria-label': 'Pages' }, list),
+    selector,
     el('p', { class: 'caution', role: 'note' }, CAUTION));
   document.body.insertBefore(top, document.body.firstChild);
+  siteSelector(selector);
 }
 
 export async function getJSON(url) {
+  const site = chosenSite();
+  if (site && url.startsWith('/api/v1/') && !/[?&]site=/.test(url)) {
+    url += (url.includes('?') ? '&' : '?') + 'site=' + encodeURIComponent(site);
+  }
   const response = await fetch(url, { headers: { Accept: 'application/json' } });
   let body = null;
   try { body = await response.json(); } catch (e) { body = null; }

@@ -1,11 +1,11 @@
 // stats.js - exposure statistics by exam type (or room, preset, shift,
 // transducer) for a chosen period: distribution pictures and the table,
 // with the files (CSV, JSON) the accreditation lead takes away.
-import { el, svg, clear, header, getJSON, showError, param, fmt, percent, minutes, orNone, scale, niceMax } from './common.js';
+import { el, svg, clear, header, getJSON, showError, param, fmt, percent, minutes, orNone, scale, niceMax, siteField, chosenSite } from './common.js';
 
 header('stats.html');
 const content = document.getElementById('content');
-const BY = [['exam_type', 'Exam type'], ['room', 'Room'], ['preset', 'Preset'], ['shift', 'Shift'], ['transducer', 'Transducer']];
+const BY = [['exam_type', 'Exam type'], ['room', 'Room'], ['preset', 'Preset'], ['shift', 'Shift'], ['transducer', 'Transducer'], ['site', 'Site (compare sites)']];
 
 function controls(from, to, by) {
   const select = el('select', { name: 'by', id: 'by' });
@@ -14,6 +14,7 @@ function controls(from, to, by) {
     el('label', {}, 'From', el('input', { type: 'date', name: 'from', id: 'from', value: from || '' })),
     el('label', {}, 'To', el('input', { type: 'date', name: 'to', id: 'to', value: to || '' })),
     el('label', {}, 'By', select),
+    siteField(),
     el('button', { type: 'submit' }, 'Show'),
     el('button', { type: 'button', id: 'print' }, 'Print'));
   form.querySelector('#print').addEventListener('click', () => window.print());
@@ -86,9 +87,11 @@ async function main() {
   document.getElementById('title').textContent = `Exposure statistics${data.institution ? ', ' + data.institution : ''}, ${data.from} to ${data.to}`;
   content.appendChild(controls(data.from, data.to, data.by));
   const files = new URLSearchParams({ from: data.from, to: data.to, by: data.by });
+  if (chosenSite()) files.set('site', chosenSite());
   content.appendChild(el('dl', { class: 'facts' },
     el('dt', {}, 'Institution'), el('dd', { id: 'institution' }, data.institution || 'not configured (set [site] institution in the configuration)'),
     el('dt', {}, 'Period'), el('dd', {}, `${data.from} to ${data.to} (local day of each exam's first capture)`),
+    el('dt', {}, 'Sites'), el('dd', { id: 'sites' }, data.sites ? data.sites.join(', ') : 'all'),
     el('dt', {}, 'Exams'), el('dd', {}, String(data.exam_count)),
     el('dt', {}, 'Per exam'), el('dd', {}, 'highest governing thermal index (TIS, TIB or TIC as the exam type requires) and highest MI'),
     el('dt', {}, 'Percentiles'), el('dd', {}, data.quantile_method),

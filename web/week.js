@@ -1,11 +1,11 @@
 // week.js - the weekly outlier list (index.html): ISO week picker, group
 // by room / preset / shift / transducer / exam type, each group's counts
 // and medians, a bar picture, then each group's listed exams.
-import { el, svg, clear, header, getJSON, showError, param, fmt, percent, orNone, hatchDefs, scale, niceMax } from './common.js';
+import { el, svg, clear, header, getJSON, showError, param, fmt, percent, orNone, hatchDefs, scale, niceMax, siteField } from './common.js';
 
 header('index.html');
 const content = document.getElementById('content');
-const GROUPS = [['preset', 'Preset'], ['room', 'Room'], ['shift', 'Shift'], ['transducer', 'Transducer'], ['exam_type', 'Exam type']];
+const GROUPS = [['preset', 'Preset'], ['room', 'Room'], ['shift', 'Shift'], ['transducer', 'Transducer'], ['exam_type', 'Exam type'], ['site', 'Site (compare sites)']];
 
 function controls(week, group) {
   const weekInput = el('input', { type: 'week', id: 'week', name: 'week', value: week || '', required: true });
@@ -16,6 +16,7 @@ function controls(week, group) {
   const form = el('form', { class: 'controls', method: 'get', action: 'index.html' },
     el('label', {}, 'ISO week', weekInput),
     el('label', {}, 'Group by', select),
+    siteField(),
     el('button', { type: 'submit' }, 'Show'),
     el('button', { type: 'button', id: 'print' }, 'Print'));
   form.querySelector('#print').addEventListener('click', () => window.print());
@@ -123,6 +124,7 @@ async function main() {
   content.appendChild(controls(data.week, data.group_by));
   content.appendChild(el('dl', { class: 'facts' },
     el('dt', {}, 'Period'), el('dd', {}, `${data.from} to ${data.to} (ISO week ${data.week}, local dates)`),
+    el('dt', {}, 'Sites'), el('dd', { id: 'sites' }, data.sites ? data.sites.join(', ') : 'all'),
     el('dt', {}, 'Exams'), el('dd', {}, `${data.exam_count}, of which ${data.outlier_count} outliers`),
     el('dt', {}, 'Baseline'), el('dd', { id: 'baseline-span' }, data.baseline_data_from
       ? `each exam type's exams of the weeks before: data held from ${data.baseline_data_from} to ${data.baseline_data_to} (${data.baseline_weeks_with_data} week(s) with data; ${data.baseline_exam_count} exams; up to ${data.baseline_weeks} weeks are looked at)`

@@ -588,7 +588,7 @@ int command_device(int argc, char **argv)
         /* the reason is printed below */
     } else if (strcmp(action, "list") == 0) {
         char *json = NULL;
-        if (store_screen_profiles_json(st, &json, &error) == MITILOG_OK) {
+        if (store_screen_profiles_json(st, NULL, &json, &error) == MITILOG_OK) {
             printf("%s\n", json);
             exit_status = EXIT_STATUS_SUCCESS;
         }

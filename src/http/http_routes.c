@@ -84,6 +84,15 @@ static http_reply http_study(http_server *server, const char *uid)
     return http_status_reply(server, status, json, NULL, &error);
 }
 
+/* GET /api/v1/sites: every site held, with its counts. */
+static http_reply http_sites(http_server *server)
+{
+    char *json = NULL;
+    mitilog_error error = {{0}};
+    mitilog_status status = store_sites_json(server->store, &json, &error);
+    return http_status_reply(server, status, json, NULL, &error);
+}
+
 int http_route_api(http_server *server, struct MHD_Connection *connection, const char *url,
                    http_reply *reply)
 {
@@ -93,6 +102,8 @@ int http_route_api(http_server *server, struct MHD_Connection *connection, const
         *reply = http_instances(server, connection);
     else if (strcmp(url, "/api/v1/studies") == 0)
         *reply = http_studies(server, connection);
+    else if (strcmp(url, "/api/v1/sites") == 0)
+        *reply = http_sites(server);
     else if (strncmp(url, "/api/v1/studies/", 16) == 0)
         *reply = http_study(server, url + 16);
     else if (http_route_findings(server, connection, url, reply))

@@ -13,11 +13,19 @@
 
 #include <string.h>
 
-static http_reply http_devices(http_server *server)
+static http_reply http_devices(http_server *server, struct MHD_Connection *connection)
 {
+    static const http_parameter_rule rules[] = {
+        {"site", HTTP_PARAMETER_SITES, 0, 0, NULL},
+    };
+    http_parameter_value values[1];
+    http_reply reply;
+    if (!http_parameters_read(server, connection, rules, 1, values, &reply))
+        return reply;
     char *json = NULL;
     mitilog_error error = {{0}};
-    mitilog_status status = store_screen_profiles_json(server->store, &json, &error);
+    mitilog_status status =
+        store_screen_profiles_json(server->store, &values[0].sites, &json, &error);
     return http_status_reply(server, status, json, NULL, &error);
 }
 
@@ -68,7 +76,7 @@ int http_route_devices(http_server *server, struct MHD_Connection *connection, c
                        http_reply *reply)
 {
     if (strcmp(url, "/api/v1/devices") == 0)
-        *reply = http_devices(server);
+        *reply = http_devices(server, connection);
     else if (strcmp(url, "/api/v1/devices/example") == 0)
         *reply = http_device_example(server, connection);
     else

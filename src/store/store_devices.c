@@ -281,7 +281,8 @@ mitilog_status store_screen_profile_get(store *st, const char *key, int version,
     return status;
 }
 
-mitilog_status store_screen_profiles_json(store *st, char **json, mitilog_error *error)
+mitilog_status store_screen_profiles_json(store *st, const store_sites *sites, char **json,
+                                          mitilog_error *error)
 {
     if (st == NULL || json == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
@@ -290,6 +291,7 @@ mitilog_status store_screen_profiles_json(store *st, char **json, mitilog_error 
     pthread_mutex_lock(&st->reader_lock);
     store_query query;
     store_query_begin(&query, &st->reader, "queries/devices/screen_profiles_json.sql");
+    store_bind_sites(&query, sites);
     mitilog_status status = store_query_text(&query, "screen profiles", 0, json, error);
     pthread_mutex_unlock(&st->reader_lock);
     return status;

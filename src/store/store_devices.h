@@ -58,7 +58,9 @@ mitilog_status store_screen_profile_get(store *store, const char *key, int versi
                                         store_screen_profile_row *row, mitilog_error *error);
 void store_screen_profile_row_free(store_screen_profile_row *row);
 /* GET /api/v1/devices: every profile version as a JSON array (malloc'd). */
-mitilog_status store_screen_profiles_json(store *store, char **json, mitilog_error *error);
+/* sites: the objects whose frames are counted (NULL: every site). */
+mitilog_status store_screen_profiles_json(store *store, const store_sites *sites, char **json,
+                                          mitilog_error *error);
 
 #ifdef __cplusplus
 }

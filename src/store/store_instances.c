@@ -560,6 +560,19 @@ mitilog_status store_studies_json(store *st, const char *from, const char *to,
     return status;
 }
 
+mitilog_status store_sites_json(store *st, char **json, mitilog_error *error)
+{
+    if (st == NULL || json == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_sites_json: no store");
+    *json = NULL;
+    pthread_mutex_lock(&st->reader_lock);
+    store_query query;
+    store_query_begin(&query, &st->reader, "queries/instances/sites.sql");
+    mitilog_status status = store_query_text(&query, "query sites", 0, json, error);
+    pthread_mutex_unlock(&st->reader_lock);
+    return status;
+}
+
 mitilog_status store_ingest_json(store *st, int window_hours, int silent_hours, int days,
                                  const store_sites *sites, char **json, mitilog_error *error)
 {

@@ -91,6 +91,8 @@ mitilog_status store_studies_json(store *store, const char *from, const char *to
 /* JSON object for GET /api/v1/ingest (docs/api.md): objects per hour over
  * window_hours, rejections and quarantine, devices (silent after
  * silent_hours), transducers not reporting output in the last days. */
+/* GET /api/v1/sites: every site held, with its counts (docs/api.md). */
+mitilog_status store_sites_json(store *store, char **json, mitilog_error *error);
 mitilog_status store_ingest_json(store *store, int window_hours, int silent_hours, int days,
                                  const store_sites *sites, char **json, mitilog_error *error);
 

@@ -10,16 +10,18 @@ tests start their own daemon and send with DCMTK's storescu.
 """
 import collections
 import csv
+import json
 import os
+import shutil
 import signal
 import sqlite3
 import statistics
+import subprocess
 import time
-import urllib.parse
 
 import pytest
 
-from conftest import AE_TITLE, BINARY, Daemon, run
+from conftest import BINARY, REPO, run
 
 DAYS = 2
 SEED = 21
@@ -181,7 +183,8 @@ def test_listings_filter_by_site(two_sites):
 def test_malformed_site_is_400(two_sites, value, reason):
     daemon, _ = two_sites
     for path in ("/api/v1/studies", "/api/v1/stats", "/api/v1/outliers", "/api/v1/findings",
-                 "/api/v1/worklist", "/api/v1/drift", "/api/v1/ingest", "/api/v1/operators"):
+                 "/api/v1/worklist", "/api/v1/drift", "/api/v1/ingest", "/api/v1/operators",
+                 "/api/v1/devices"):
         status, body = daemon.get(path + "?site=" + value)
         assert status == 400, (path, status, body)
         assert body["error"].startswith("parameter site:") and reason in body["error"], body
@@ -251,7 +254,6 @@ def test_report_takes_a_site(two_sites, tmp_path):
     result = run([BINARY, "report", "week", "--all-exams", "--format", "json", "--site", "south",
                   "--config", daemon.config, "--output", str(out)])
     assert result.returncode == 0, result.stderr
-    import json
     document = json.loads(out.read_text())
     assert document["sites"] == ["south"]
     listed = {e["study_instance_uid"] for g in document["groups"] for e in g["exams"]}
@@ -355,3 +357,56 @@ def test_kill_after_ack_loses_no_rebuild(daemon_factory, simulated):
                                (study,)).fetchall() == [(len(files),)]
                     and db.execute("SELECT count(*) FROM exam_jobs").fetchone()[0] == 0)
     wait_until(rebuilt, 60, "exam rebuilt after the restart")
+
+
+def sites_page(daemon, page, choose=None):
+    """A dashboard page read in headless Chromium (tests/browser/sites_page.mjs)."""
+    browser_dir = os.path.join(REPO, "tests", "browser")
+    node = shutil.which("node")
+    if not (node and os.path.exists("/usr/bin/chromium") and os.path.isdir(
+            os.path.join(browser_dir, "node_modules", "playwright-core"))):
+        if os.environ.get("MITILOG_REQUIRE_BROWSER"):
+            pytest.fail("node, /usr/bin/chromium or tests/browser/node_modules missing")
+        pytest.skip("node, chromium or playwright-core (npm ci in tests/browser) missing")
+    url = "http://127.0.0.1:%d/%s" % (daemon.http_port, page)
+    result = subprocess.run([node, os.path.join(browser_dir, "sites_page.mjs"), url]
+                            + ([choose] if choose else []),
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            timeout=180, cwd=browser_dir)
+    lines = [line for line in result.stdout.splitlines() if line.startswith("{")]
+    assert lines, result.stderr
+    outcome = json.loads(lines[-1])
+    assert not outcome["errors"], outcome["errors"]
+    return outcome
+
+
+def test_dashboard_compares_and_chooses_sites(two_sites):
+    daemon, _ = two_sites
+    whole = daemon.get_json("/api/v1/stats")
+    outcome = sites_page(daemon, "stats.html?by=site&from=%s&to=%s" % (whole["from"], whole["to"]),
+                         choose="south")
+    before, after = outcome["before"], outcome["after"]
+    # several sites hold data: the selector is shown with every site
+    held = [s["site"] for s in daemon.get_json("/api/v1/sites")]
+    assert before["selector_shown"] and before["options"] == ["All sites"] + held
+    assert before["heading"] == "Site (compare sites)"
+    assert before["keys"][:2] == ["north", "south"] and before["sites_fact"] == "all"
+    # choosing a site reloads the page limited to it, comparison kept
+    assert "site=south" in after["url"] and after["chosen"] == "south"
+    assert after["sites_fact"] == "south" and after["keys"][0] == "south"
+    assert "north" not in after["keys"]
+    # the weekly list compares sites too
+    week = sites_page(daemon, "index.html?group=site")["before"]
+    assert week["heading"] == "Site (compare sites)"
+    assert set(week["keys"]) <= {"north", "south"} and week["keys"]
+
+
+def test_dashboard_hides_the_selector_for_one_site(daemon_factory, simulated):
+    study, files = burst_study(simulated, 2)
+    daemon = daemon_factory("one-site")
+    daemon.start()
+    result = daemon.storescu(files)
+    assert result.returncode == 0, result.stderr
+    assert [s["site"] for s in daemon.get_json("/api/v1/sites")] == ["main"]
+    page = sites_page(daemon, "stats.html")["before"]
+    assert not page["selector_shown"] and page["options"] == []

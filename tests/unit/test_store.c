@@ -1141,7 +1141,7 @@ static void screen_profiles_states(void **state)
                      MITILOG_ERROR_NOT_FOUND);
 
     char *json = NULL;
-    assert_int_equal(store_screen_profiles_json(f->store, &json, &error), MITILOG_OK);
+    assert_int_equal(store_screen_profiles_json(f->store, NULL, &json, &error), MITILOG_OK);
     assert_non_null(strstr(json, "\"room-a\""));
     free(json);
 
