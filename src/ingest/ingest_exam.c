@@ -284,10 +284,14 @@ static size_t ingest_exams_do_jobs(ingest_exams *exams, int draining)
     mitilog_error error;
     /* A look first, on the read connection: a take is a write, and an
      * idle receiver writes nothing. */
-    long long next_due_ms = -1, queued = 0;
-    if (store_exam_jobs_next(exams->store, &next_due_ms, &queued, &error) == MITILOG_OK &&
-        (next_due_ms < 0 || (!draining && next_due_ms > now_ms)))
-        return 0;
+    long long next_due_ms = -1, queued = 0, oldest_taken_ms = -1;
+    if (store_exam_jobs_next(exams->store, &next_due_ms, &queued, &oldest_taken_ms, &error) ==
+        MITILOG_OK) {
+        int stale = oldest_taken_ms >= 0 && oldest_taken_ms < now_ms - INGEST_JOB_STALE_MS;
+        int due = next_due_ms >= 0 && (draining || next_due_ms <= now_ms);
+        if (!stale && !due)
+            return 0;
+    }
     if (store_take_exam_jobs(exams->store, exams->owner, draining ? LLONG_MAX : now_ms,
                              now_ms - INGEST_JOB_STALE_MS, INGEST_JOB_TAKE_LIMIT, &jobs, &count,
                              &error) != MITILOG_OK) {
@@ -368,9 +372,10 @@ static void *ingest_exams_run(void *argument)
          * sooner: ingest_exams_wake), a day settles, the next sweep, or
          * the poll for other receivers' marks. */
         pthread_mutex_unlock(&exams->lock);
-        long long next_due_ms = -1, queued = 0;
+        long long next_due_ms = -1, queued = 0, oldest_taken_ms = -1;
         mitilog_error error;
-        if (store_exam_jobs_next(exams->store, &next_due_ms, &queued, &error) != MITILOG_OK)
+        if (store_exam_jobs_next(exams->store, &next_due_ms, &queued, &oldest_taken_ms, &error) !=
+            MITILOG_OK)
             log_warning("exam queue: not read: %s", error.text);
         pthread_mutex_lock(&exams->lock);
         if (next_due_ms >= 0 && (double)next_due_ms / 1000.0 < wake)

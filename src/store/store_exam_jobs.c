@@ -210,10 +210,11 @@ mitilog_status store_exam_job_owners(store *st, char ***owners, size_t *count, m
 }
 
 mitilog_status store_exam_jobs_next(store *st, long long *next_due_ms, long long *queued,
-                                    mitilog_error *error)
+                                    long long *oldest_taken_ms, mitilog_error *error)
 {
     *next_due_ms = -1;
     *queued = 0;
+    *oldest_taken_ms = -1;
     if (st == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_exam_jobs_next: no store");
     mitilog_status status = MITILOG_OK;
@@ -224,6 +225,8 @@ mitilog_status store_exam_jobs_next(store *st, long long *next_due_ms, long long
         if (!store_column_is_null(&query, 0))
             *next_due_ms = store_column_integer(&query, 0);
         *queued = store_column_integer(&query, 1);
+        if (!store_column_is_null(&query, 2))
+            *oldest_taken_ms = store_column_integer(&query, 2);
     }
     if (store_query_end(&query) != MITILOG_OK)
         status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "query the exam jobs: %s",

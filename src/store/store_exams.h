@@ -90,9 +90,10 @@ mitilog_status store_release_exam_jobs(store *store, const char *owner, mitilog_
 /* The owners holding jobs (store_texts_free). */
 mitilog_status store_exam_job_owners(store *store, char ***owners, size_t *count,
                                      mitilog_error *error);
-/* The earliest due time of a waiting job (-1: none) and the jobs queued. */
+/* The earliest due time of a waiting job (-1: none), the jobs queued and
+ * the earliest time a job still taken was taken (-1: none). */
 mitilog_status store_exam_jobs_next(store *store, long long *next_due_ms, long long *queued,
-                                    mitilog_error *error);
+                                    long long *oldest_taken_ms, mitilog_error *error);
 
 #ifdef __cplusplus
 }

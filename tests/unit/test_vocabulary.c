@@ -115,12 +115,41 @@ static void doppler_modes(void **state)
     }
 }
 
+/* A site name ([receiver] site, exam.h): plain words of 1 to 64 bytes, no
+ * control character, no comma (filters list sites with commas), no space
+ * at either end. Common practice, no source. */
+static void site_names(void **state)
+{
+    (void)state;
+    char reason[160];
+    assert_true(exam_site_name_check("main", reason, sizeof reason));
+    assert_true(exam_site_name_check("North Wing 2", reason, sizeof reason));
+    assert_true(exam_site_name_check("H\xc3\xb4pital-Sud_3.b", reason, sizeof reason));
+    char longest[66];
+    memset(longest, 'x', 64);
+    longest[64] = '\0';
+    assert_true(exam_site_name_check(longest, reason, sizeof reason));
+    longest[64] = 'x';
+    longest[65] = '\0';
+    assert_false(exam_site_name_check(longest, reason, sizeof reason));
+    assert_non_null(strstr(reason, "1 to 64"));
+    assert_false(exam_site_name_check("", reason, sizeof reason));
+    assert_false(exam_site_name_check(NULL, NULL, 0));
+    assert_false(exam_site_name_check("north,south", reason, sizeof reason));
+    assert_non_null(strstr(reason, "comma"));
+    assert_false(exam_site_name_check("north\tside", reason, sizeof reason));
+    assert_non_null(strstr(reason, "control"));
+    assert_false(exam_site_name_check("del\x7f", reason, sizeof reason));
+    assert_false(exam_site_name_check(" north", reason, sizeof reason));
+    assert_false(exam_site_name_check("north ", reason, sizeof reason));
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(ladder),          cmocka_unit_test(threshold_labels),
         cmocka_unit_test(governing_index), cmocka_unit_test(names),
-        cmocka_unit_test(doppler_modes),
+        cmocka_unit_test(doppler_modes),   cmocka_unit_test(site_names),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
