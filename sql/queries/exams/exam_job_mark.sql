@@ -8,12 +8,13 @@
 -- again while a receiver rebuilds it is rebuilt once more after
 -- (exam_job_finish.sql); its first mark then restarts from this one.
 INSERT INTO exam_jobs (study_instance_uid, first_marked_at, due_at, generation)
-VALUES (:study_instance_uid, :now_ms, :now_ms + :settle_ms, 1)
+-- (CAST: so that PostgreSQL knows the parameters' type in the sum.)
+VALUES (:study_instance_uid, :now_ms, CAST(:now_ms AS BIGINT) + CAST(:settle_ms AS BIGINT), 1)
 ON CONFLICT (study_instance_uid) DO UPDATE SET
     first_marked_at = CASE WHEN exam_jobs.taken_by IS NULL THEN exam_jobs.first_marked_at
                            ELSE excluded.first_marked_at END,
     due_at = CASE WHEN exam_jobs.taken_by IS NULL
-                       AND exam_jobs.first_marked_at + :max_wait_ms < excluded.due_at
-                  THEN exam_jobs.first_marked_at + :max_wait_ms
+                       AND exam_jobs.first_marked_at + CAST(:max_wait_ms AS BIGINT) < excluded.due_at
+                  THEN exam_jobs.first_marked_at + CAST(:max_wait_ms AS BIGINT)
                   ELSE excluded.due_at END,
     generation = exam_jobs.generation + 1;
