@@ -23,6 +23,7 @@
 #include "store/store.h"
 #include "store/store_internal.h"
 #include "store/store_devices.h"
+#include "store/store_exams.h"
 #include "store/store_findings.h"
 #include "store/store_instances.h"
 #include "store/store_reports.h"
@@ -1152,10 +1153,88 @@ static void screen_profiles_states(void **state)
                      MITILOG_ERROR_NOT_FOUND);
 }
 
+/* The exam rebuild queue (exam_jobs, migration 013): an instance's write
+ * marks its study; a burst of marks is one job, due a quiet period after
+ * the last mark; a job marked again while it is being rebuilt survives
+ * its finish and is taken again; a receiver never takes a job another
+ * holds, unless that one took it before the stale limit. Common practice
+ * (a work queue with generations), no source. */
+static void exam_queue_keeps_bursts(void **state)
+{
+    fixture *f = *state;
+    mitilog_error error = {{0}};
+    store_set_exam_job_timing(f->store, 1000, 60000);
+    ext_record record;
+    make_record(&record, "1.2.9.1", "1.2.9", "2024-03-01T10:15:00", "2024-03-01T09:15:02.123Z");
+    assert_int_equal(store_set_site(f->store, "north", &error), MITILOG_OK);
+    assert_int_not_equal(store_set_site(f->store, "a,b", &error), MITILOG_OK);
+    if (store_put_instance(f->store, &record, NULL, NULL, &error) != MITILOG_OK)
+        fail_msg("put: %s", error.text);
+    free_record(&record);
+    assert_int_equal(store_mark_exam_job(f->store, "1.2.9", store_now_ms(), &error), MITILOG_OK);
+    long long next = -1, queued = 0, oldest = -1;
+    assert_int_equal(store_exam_jobs_next(f->store, &next, &queued, &oldest, &error), MITILOG_OK);
+    assert_int_equal(queued, 1); /* two marks, one job */
+    assert_int_equal(oldest, -1);
+    long long now = store_now_ms();
+    assert_true(next > now - 100 && next <= now + 1000);
+    store_exam_job *jobs = NULL;
+    size_t count = 0;
+    /* not due yet: nothing taken */
+    assert_int_equal(
+        store_take_exam_jobs(f->store, "a", now, now - 600000, 8, &jobs, &count, &error),
+        MITILOG_OK);
+    assert_int_equal(count, 0);
+    store_exam_jobs_free(jobs, count);
+    assert_int_equal(
+        store_take_exam_jobs(f->store, "a", next, now - 600000, 8, &jobs, &count, &error),
+        MITILOG_OK);
+    assert_int_equal(count, 1);
+    assert_string_equal(jobs[0].study_instance_uid, "1.2.9");
+    assert_int_equal(jobs[0].generation, 2);
+    /* another receiver finds it taken */
+    store_exam_job *other = NULL;
+    size_t other_count = 0;
+    assert_int_equal(store_take_exam_jobs(f->store, "b", next + 5000, now - 600000, 8, &other,
+                                          &other_count, &error),
+                     MITILOG_OK);
+    assert_int_equal(other_count, 0);
+    store_exam_jobs_free(other, other_count);
+    /* marked again during the rebuild: the finish hands it back */
+    assert_int_equal(store_mark_exam_job(f->store, "1.2.9", store_now_ms(), &error), MITILOG_OK);
+    assert_int_equal(store_finish_exam_job(f->store, "a", &jobs[0], 1, &error), MITILOG_OK);
+    store_exam_jobs_free(jobs, count);
+    assert_int_equal(store_exam_jobs_next(f->store, &next, &queued, &oldest, &error), MITILOG_OK);
+    assert_int_equal(queued, 1);
+    assert_true(next >= 0);
+    assert_int_equal(
+        store_take_exam_jobs(f->store, "b", next, now - 600000, 8, &jobs, &count, &error),
+        MITILOG_OK);
+    assert_int_equal(count, 1);
+    assert_int_equal(jobs[0].generation, 3);
+    /* finished at the generation taken: gone */
+    assert_int_equal(store_finish_exam_job(f->store, "b", &jobs[0], 1, &error), MITILOG_OK);
+    store_exam_jobs_free(jobs, count);
+    assert_int_equal(store_exam_jobs_next(f->store, &next, &queued, &oldest, &error), MITILOG_OK);
+    assert_int_equal(queued, 0);
+    assert_int_equal(next, -1);
+    /* the instance recorded the store's site */
+    sqlite3 *db = NULL;
+    assert_int_equal(sqlite3_open_v2(f->path, &db, SQLITE_OPEN_READONLY, NULL), SQLITE_OK);
+    sqlite3_stmt *statement = NULL;
+    assert_int_equal(sqlite3_prepare_v2(db, "SELECT site FROM instances", -1, &statement, NULL),
+                     SQLITE_OK);
+    assert_int_equal(sqlite3_step(statement), SQLITE_ROW);
+    assert_string_equal((const char *)sqlite3_column_text(statement, 0), "north");
+    sqlite3_finalize(statement);
+    sqlite3_close(db);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test_setup_teardown(durability_setting, fixture_setup, fixture_teardown),
+        cmocka_unit_test_setup_teardown(exam_queue_keeps_bursts, fixture_setup, fixture_teardown),
         cmocka_unit_test_setup_teardown(exam_rows_sorted_by_uid, fixture_setup, fixture_teardown),
         cmocka_unit_test_setup_teardown(screen_profiles_states, fixture_setup, fixture_teardown),
         cmocka_unit_test_setup_teardown(new_policy_refreshes_summaries, fixture_setup,
