@@ -33,14 +33,15 @@ static http_reply http_instances(http_server *server, struct MHD_Connection *con
         {"study", HTTP_PARAMETER_UID, 0, 0, NULL},
         {"since", HTTP_PARAMETER_INSTANT, 0, 0, NULL},
         {"limit", HTTP_PARAMETER_INTEGER, 1, HTTP_LIMIT_MAX, NULL},
+        {"site", HTTP_PARAMETER_SITES, 0, 0, NULL},
     };
-    http_parameter_value values[3];
+    http_parameter_value values[4];
     http_reply reply;
-    if (!http_parameters_read(server, connection, rules, 3, values, &reply))
+    if (!http_parameters_read(server, connection, rules, 4, values, &reply))
         return reply;
-    store_instance_filter filter = {values[0].text,
-                                    values[1].text != NULL ? values[1].instant : NULL,
-                                    values[2].text != NULL ? values[2].number : 0};
+    store_instance_filter filter = {
+        values[0].text, values[1].text != NULL ? values[1].instant : NULL,
+        values[2].text != NULL ? values[2].number : 0, &values[3].sites};
     char *json = NULL;
     mitilog_error error = {{0}};
     mitilog_status status = store_instances_json(server->store, &filter, &json, &error);

@@ -184,17 +184,19 @@ static http_reply http_reviews(http_server *server, struct MHD_Connection *conne
         {"from", HTTP_PARAMETER_DATE, 0, 0, NULL},
         {"to", HTTP_PARAMETER_DATE, 0, 0, NULL},
         {"format", HTTP_PARAMETER_CHOICE, 0, 0, "json|csv"},
+        {"site", HTTP_PARAMETER_SITES, 0, 0, NULL},
     };
-    http_parameter_value values[4];
+    http_parameter_value values[5];
     http_reply reply;
-    if (!http_parameters_read(server, connection, rules, 4, values, &reply) ||
+    if (!http_parameters_read(server, connection, rules, 5, values, &reply) ||
         !http_parameters_period(server, &values[1], &values[2], &reply))
         return reply;
     int csv = values[3].text != NULL && strcmp(values[3].text, "csv") == 0;
     char *text = NULL;
     mitilog_error error = {{0}};
-    mitilog_status status = store_reviews_text(server->store, values[0].text, values[1].text,
-                                               values[2].text, csv, &text, &error);
+    mitilog_status status =
+        store_reviews_text(server->store, values[0].text, values[1].text, values[2].text,
+                           &values[4].sites, csv, &text, &error);
     reply = http_status_reply(server, status, text, csv ? "text/csv; charset=utf-8" : NULL, &error);
     if (csv && status == MITILOG_OK && reply.response != NULL)
         MHD_add_response_header(reply.response, "Content-Disposition",
@@ -430,7 +432,7 @@ http_reply http_post_finish(http_server *server, struct MHD_Connection *connecti
     log_info("http: %s recorded %s on %s %s", post->identity.user, post->outcome,
              finding > 0 ? "finding" : "study", finding > 0 ? post->finding : post->study);
     char *json = NULL;
-    status = store_reviews_text(server->store, study_length > 0 ? post->study : NULL, NULL, NULL, 0,
-                                &json, &error);
+    status = store_reviews_text(server->store, study_length > 0 ? post->study : NULL, NULL, NULL,
+                                NULL, 0, &json, &error);
     return http_status_reply(server, status, json, NULL, &error);
 }

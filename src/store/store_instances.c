@@ -519,7 +519,7 @@ mitilog_status store_instances_json(store *st, const store_instance_filter *filt
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "store_instances_json: no store or result");
     *json = NULL;
-    store_instance_filter none = {NULL, NULL, 0};
+    store_instance_filter none = {NULL, NULL, 0, NULL};
     if (filter == NULL)
         filter = &none;
     long limit = store_clamp_limit(filter->limit);
@@ -532,10 +532,12 @@ mitilog_status store_instances_json(store *st, const store_instance_filter *filt
         store_bind_filter_at(&query, 1, filter->study_instance_uid);
         store_bind_filter_at(&query, 2, filter->since);
         store_bind_integer_at(&query, 3, limit);
+        store_bind_sites(&query, filter->sites);
     } else {
         store_query_begin(&query, &st->reader, "queries/instances/instances_since.sql");
         store_bind_filter_at(&query, 1, filter->since);
         store_bind_integer_at(&query, 2, limit);
+        store_bind_sites(&query, filter->sites);
     }
     mitilog_status status = store_query_text(&query, "query instances", 0, json, error);
     pthread_mutex_unlock(&st->reader_lock);

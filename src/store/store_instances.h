@@ -75,8 +75,9 @@ mitilog_status store_put_rejection(store *store, const store_rejection *rejectio
 /* Read side. Filters: NULL or "" means "no filter". */
 typedef struct store_instance_filter {
     const char *study_instance_uid;
-    const char *since; /* received_at >= since (ISO 8601) */
-    long limit;        /* <= 0: default 1000 */
+    const char *since;        /* received_at >= since (ISO 8601) */
+    long limit;               /* <= 0: default 1000 */
+    const store_sites *sites; /* NULL: every site */
 } store_instance_filter;
 
 /* JSON array of instance objects (keys as documented in docs/api.md). */

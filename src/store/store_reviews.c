@@ -66,14 +66,15 @@ static mitilog_status store_read_text(store *st, const char *name, const char *c
 }
 
 mitilog_status store_reviews_text(store *st, const char *study, const char *from, const char *to,
-                                  int csv, char **out, mitilog_error *error)
+                                  const store_sites *sites, int csv, char **out,
+                                  mitilog_error *error)
 {
     if (st == NULL || out == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_reviews_text: no store");
     const char *texts[] = {study, from, to};
     return store_read_text(
         st, csv ? "queries/reviews/reviews_csv.sql" : "queries/reviews/reviews_json.sql", texts, 3,
-        NULL, "query reviews", out, error);
+        sites, "query reviews", out, error);
 }
 
 mitilog_status store_worklist_json(store *st, const char *monday, int is_default,

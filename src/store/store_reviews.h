@@ -31,7 +31,8 @@ mitilog_status store_put_review(store *store, const store_review *review, mitilo
  * header line when csv is set. study, from, to (YYYY-MM-DD, on the day
  * recorded): NULL = any. *out is malloc'ed, freed by the caller. */
 mitilog_status store_reviews_text(store *store, const char *study, const char *from, const char *to,
-                                  int csv, char **out, mitilog_error *error);
+                                  const store_sites *sites, int csv, char **out,
+                                  mitilog_error *error);
 /* GET /api/v1/worklist: the week starting on monday (YYYY-MM-DD);
  * is_default says it is the default week (report_default_week, the one
  * rule of src/report/report.h). queries/reviews/review_worklist.sql says

@@ -155,6 +155,14 @@ def test_listings_filter_by_site(two_sites):
         north_instances = db.execute(
             "SELECT count(*) FROM instances WHERE site = 'north'").fetchone()[0]
     assert daemon.get_json("/api/v1/ingest?site=north")["totals"]["instances"] == north_instances
+    # instances carry their site and are filtered by it
+    instances = daemon.get_json("/api/v1/instances?site=south&limit=10000")
+    assert instances and {i["site"] for i in instances} == {"south"}
+    assert {i["study_instance_uid"] for i in instances} == by_site["south"] & {
+        i["study_instance_uid"] for i in instances}
+    study = sorted(by_site["north"])[0]
+    assert daemon.get_json("/api/v1/instances?study=%s&site=south" % study) == []
+    assert daemon.get_json("/api/v1/instances?study=%s&site=north" % study)
     # findings of a site are those of its exams
     findings = daemon.get_json("/api/v1/findings?site=south&limit=10000")
     assert all(f["site"] == "south" and f["study_instance_uid"] in by_site["south"]
@@ -184,7 +192,7 @@ def test_malformed_site_is_400(two_sites, value, reason):
     daemon, _ = two_sites
     for path in ("/api/v1/studies", "/api/v1/stats", "/api/v1/outliers", "/api/v1/findings",
                  "/api/v1/worklist", "/api/v1/drift", "/api/v1/ingest", "/api/v1/operators",
-                 "/api/v1/devices"):
+                 "/api/v1/devices", "/api/v1/instances", "/api/v1/reviews"):
         status, body = daemon.get(path + "?site=" + value)
         assert status == 400, (path, status, body)
         assert body["error"].startswith("parameter site:") and reason in body["error"], body

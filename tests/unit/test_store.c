@@ -210,7 +210,7 @@ static long long query_int(const char *path, const char *sql)
 
 static char *instances_of_study(store *st, const char *study)
 {
-    store_instance_filter filter = {study, NULL, 0};
+    store_instance_filter filter = {study, NULL, 0, NULL};
     char *json = NULL;
     mitilog_error error = {{0}};
     if (store_instances_json(st, &filter, &json, &error) != MITILOG_OK)
@@ -330,7 +330,7 @@ static void put_and_read_back(void **state)
     free(json);
 
     /* The same instance through the since filter; a later since: none. */
-    store_instance_filter since = {NULL, "2024-03-01", 0};
+    store_instance_filter since = {NULL, "2024-03-01", 0, NULL};
     assert_int_equal(store_instances_json(f->store, &since, &json, &error), MITILOG_OK);
     assert_json(json, "$[0].sop_instance_uid", "1.2.3.4.5.1");
     free(json);
@@ -874,7 +874,7 @@ static void studies_aggregate(void **state)
     free(json);
 
     /* Instances of study A in acquisition order, and the limit. */
-    store_instance_filter filter = {"9.1", NULL, 2};
+    store_instance_filter filter = {"9.1", NULL, 2, NULL};
     assert_int_equal(store_instances_json(f->store, &filter, &json, &error), MITILOG_OK);
     assert_json_length(json, 2);
     assert_json(json, "$[0].sop_instance_uid", "9.1.1");

@@ -1,6 +1,6 @@
 -- GET /api/v1/reviews?format=csv: the rows of reviews_json.sql as one
 -- CSV text (RFC 4180: CRLF line ends, every field quoted, quotes
--- doubled), with a header line. Same parameters.
+-- doubled), with a header line. Same parameters (the sites too).
 SELECT 'id,reviewed_at,reviewer,role,study_instance_uid,finding_id,rule_id,severity,'
        || 'outcome,comment' || char(13, 10)
        || coalesce(group_concat(line, ''), '')
@@ -15,4 +15,9 @@ FROM (
     WHERE (?1 IS NULL OR r.study_instance_uid = ?1)
       AND (?2 IS NULL OR substr(r.reviewed_at, 1, 10) >= ?2)
       AND (?3 IS NULL OR substr(r.reviewed_at, 1, 10) <= ?3)
+      AND (:site_count = 0 OR r.study_instance_uid IN (
+          SELECT x.study_instance_uid FROM exam_summaries x
+          WHERE x.site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+                           :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15,
+                           :site_16)))
     ORDER BY r.id);
