@@ -159,7 +159,7 @@ def test_error_documents_keep_one_shape_and_headers(served):
     assert status == 400
     assert body["error"] == "parameter severity: one of advisory, warning, violation"
     status, body = served.get("/api/v1/stats?by=colour")
-    assert body["error"] == "parameter by: one of exam_type, room, preset, shift, transducer"
+    assert body["error"] == "parameter by: one of exam_type, room, preset, shift, transducer, site"
 
 
 # ---- slow clients --------------------------------------------------------
