@@ -132,8 +132,7 @@ enum {
     EXAM_FINDINGS,
     EXAM_FIRST_ACQUIRED,
     EXAM_INFORMATIONAL,
-    EXAM_WORST_SEVERITY,
-    EXAM_SITE
+    EXAM_WORST_SEVERITY
 };
 
 /* The queries the loader chooses from. */
@@ -266,8 +265,6 @@ static int exam_row_read(store_exam_list *list, exam_row *row, store_query *stat
         row->shift = store_list_text(list, statement, EXAM_SHIFT, &failed);
     if (columns & STORE_EXAM_TRANSDUCER)
         row->transducer = store_list_text(list, statement, EXAM_TRANSDUCER, &failed);
-    if (columns & STORE_EXAM_SITE)
-        row->site = store_list_text(list, statement, EXAM_SITE, &failed);
     row->max_governing = store_double(statement, EXAM_MAX_GOVERNING, &row->has_governing);
     row->max_mi = store_double(statement, EXAM_MAX_MI, &row->has_mi);
     row->estimated_seconds = store_double(statement, EXAM_ESTIMATED, NULL);
@@ -320,6 +317,33 @@ static mitilog_status store_load_time_at_or_above(store *st, const char *from_da
     return MITILOG_OK;
 }
 
+/* Puts each exam's site (stats_exam_sites.sql) on the rows, sorted by
+ * UID; the names go into the list's text blocks. */
+static mitilog_status store_load_sites(store *st, const char *from_day, const char *to_day,
+                                       const store_sites *sites, store_exam_list *list,
+                                       mitilog_error *error)
+{
+    static const char name[] = "queries/reports/stats_exam_sites.sql";
+    store_query query;
+    store_period_query(st, &query, name, from_day, to_day, sites);
+    int failed = 0;
+    while (!failed && store_query_step(&query)) {
+        const char *uid = store_column_text(&query, 0);
+        if (uid == NULL)
+            continue;
+        exam_row key = {.study_instance_uid = uid};
+        exam_row *row =
+            bsearch(&key, list->rows, list->count, sizeof *list->rows, store_compare_rows);
+        if (row != NULL)
+            row->site = store_list_text(list, &query, 1, &failed);
+    }
+    if (store_query_end(&query) != MITILOG_OK)
+        return store_period_error(error, name, &query);
+    if (failed)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "exam sites: out of memory");
+    return MITILOG_OK;
+}
+
 static mitilog_status store_load_exams(store *st, store_exam_query query, const char *from_day,
                                        const char *to_day, const store_sites *sites,
                                        unsigned columns, store_exam_list *list,
@@ -359,6 +383,8 @@ static mitilog_status store_load_exams(store *st, store_exam_query query, const 
         qsort(list->rows, list->count, sizeof *list->rows, store_compare_rows);
     if (status == MITILOG_OK && timed)
         status = store_load_time_at_or_above(st, from_day, to_day, list, error);
+    if (status == MITILOG_OK && query == STORE_QUERY_ROWS && (columns & STORE_EXAM_SITE))
+        status = store_load_sites(st, from_day, to_day, sites, list, error);
     if (in_transaction) {
         mitilog_status ended = store_link_script(&st->reader, "queries/database/read_end.sql",
                                                  status == MITILOG_OK ? error : NULL);

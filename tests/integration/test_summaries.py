@@ -68,9 +68,7 @@ SELECT p.study_instance_uid, p.day, p.exam_type, p.exam_type_label, p.governing_
                             iif(x.severity = 'warning', 2,
                             iif(x.measured_value < x.limit_value, 0, 1))))
                  FROM findings x
-                 WHERE x.study_instance_uid = p.study_instance_uid AND x.superseded = 0), 0),
-       -- an exam belongs to the site of its first instance (docs/sites.md)
-       f.site
+                 WHERE x.study_instance_uid = p.study_instance_uid AND x.superseded = 0), 0)
 FROM period p
 LEFT JOIN exam_context c ON c.study_instance_uid = p.study_instance_uid
 LEFT JOIN instances f ON f.id = (SELECT j.id FROM instances j
@@ -236,11 +234,16 @@ def assert_summaries_exact(db, periods=(("0000-00-00", "9999-99-99"),)):
     # no source.
     first, last = periods[0]
     rows = db.execute(query_text("stats_exam_rows.sql"), every_site((first, last))).fetchall()
-    assert rows and {row[-1] for row in rows} == {"main"}
-    assert sorted(db.execute(query_text("stats_exam_rows.sql"),
-                             every_site((first, last), ("main",))).fetchall()) == sorted(rows)
-    assert db.execute(query_text("stats_exam_rows.sql"),
-                      every_site((first, last), ("elsewhere",))).fetchall() == []
+    sites = db.execute(query_text("stats_exam_sites.sql"), every_site((first, last))).fetchall()
+    assert rows and sorted(sites) == sorted((row[0], "main") for row in rows)
+    for name in ("stats_exam_rows.sql", "stats_exam_sites.sql", "stats_exam_series.sql"):
+        assert sorted(db.execute(query_text(name), every_site((first, last), ("main",)))
+                      .fetchall()) == sorted(db.execute(query_text(name),
+                                                        every_site((first, last))).fetchall())
+        assert db.execute(query_text(name),
+                          every_site((first, last), ("elsewhere",))).fetchall() == []
+    assert {key for _, key, *rest in db.execute(query_text("stats_exam_values.sql"),
+                                                every_site((first, last, "site")))} == {"main"}
 
 
 def clean_count(db):
