@@ -82,7 +82,7 @@ struct store_statement {
     int *formats;
     char **owned; /* values this statement allocated */
     PGresult *result;
-    int row;   /* the current row; -1 before the first */
+    int row; /* the current row; -1 before the first */
     int rows;
     char **decoded; /* [columns] of the current row: bytea bytes, or NULL */
     size_t *decoded_lengths;
@@ -132,8 +132,8 @@ static int store_pg_is_lost(PGconn *connection, const PGresult *result)
 
 /* Fills error for a failure of what; marks the connection lost when it
  * was (and broken when a transaction was open). */
-static mitilog_status store_pg_fail(store_connection *c, const PGresult *result, int was_in_transaction,
-                                    const char *what, mitilog_error *error)
+static mitilog_status store_pg_fail(store_connection *c, const PGresult *result,
+                                    int was_in_transaction, const char *what, mitilog_error *error)
 {
     char message[MITILOG_ERROR_TEXT_SIZE / 2];
     store_pg_message(c->connection, result, message, sizeof message);
@@ -531,9 +531,8 @@ static mitilog_status store_pg_execute(store_statement *s, mitilog_error *error)
             return status;
     }
     PGTransactionStatusType before = PQtransactionStatus(c->connection);
-    PGresult *result =
-        PQexecPrepared(c->connection, s->server_name, s->text.parameter_count,
-                       (const char *const *)s->values, s->lengths, s->formats, 0);
+    PGresult *result = PQexecPrepared(c->connection, s->server_name, s->text.parameter_count,
+                                      (const char *const *)s->values, s->lengths, s->formats, 0);
     ExecStatusType state = PQresultStatus(result);
     if (state != PGRES_COMMAND_OK && state != PGRES_TUPLES_OK) {
         status = store_pg_fail(c, result, before != PQTRANS_IDLE, s->name, error);

@@ -12,8 +12,8 @@
  * tokenizer takes into an identifier or a parameter name. */
 static int store_text_identifier_char(unsigned char c)
 {
-    return (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') ||
-           c == '_' || c >= 0x80;
+    return (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') || c == '_' ||
+           c >= 0x80;
 }
 
 static int store_text_identifier_start(unsigned char c)
@@ -72,8 +72,7 @@ static mitilog_status store_text_named(store_text_rewrite *rewrite, const char *
 {
     for (int i = 0; i < rewrite->largest; i++) {
         const char *known = rewrite->names[i];
-        if (known != NULL && strlen(known) == name_length &&
-            memcmp(known, name, name_length) == 0)
+        if (known != NULL && strlen(known) == name_length && memcmp(known, name, name_length) == 0)
             return store_text_emit(rewrite, i + 1, error);
     }
     long number = (long)rewrite->largest + 1;

@@ -45,9 +45,9 @@ static void named_parameters_share_an_index(void **state)
     (void)state;
     store_postgresql_text text;
     mitilog_error error;
-    assert_int_equal(store_postgresql_rewrite("SELECT :from, ?3, :to, :from, $day, :to", &text,
-                                              &error),
-                     MITILOG_OK);
+    assert_int_equal(
+        store_postgresql_rewrite("SELECT :from, ?3, :to, :from, $day, :to", &text, &error),
+        MITILOG_OK);
     assert_string_equal(text.text, "SELECT $1, $3, $4, $1, $5, $4");
     assert_int_equal(text.parameter_count, 5);
     assert_int_equal(store_postgresql_text_index(&text, ":from"), 1);
@@ -67,8 +67,9 @@ static void literals_identifiers_and_comments_are_left_alone(void **state)
              "SELECT \"col ?1\", \"a\"\"b :c\" FROM t WHERE x = $1", 1);
     rewrites("-- what ?1 :x means\nSELECT ?1 /* not :this /* nor ?9 */ ?2 */ + :y",
              "-- what ?1 :x means\nSELECT $1 /* not :this /* nor ?9 */ ?2 */ + $2", 2);
-    rewrites("SELECT $$ ?1 :a $$, $body$ it's ? $body$, ?1", "SELECT $$ ?1 :a $$, $body$ it's ? "
-                                                              "$body$, $1",
+    rewrites("SELECT $$ ?1 :a $$, $body$ it's ? $body$, ?1",
+             "SELECT $$ ?1 :a $$, $body$ it's ? "
+             "$body$, $1",
              1);
 }
 
@@ -86,8 +87,8 @@ static void postgresql_syntax_is_kept(void **state)
 static void malformed_text_is_refused(void **state)
 {
     (void)state;
-    const char *bad[] = {"SELECT 'open", "SELECT \"open", "SELECT /* open /* */",
-                         "SELECT $x$ open", "SELECT ?0", "SELECT ?40000"};
+    const char *bad[] = {"SELECT 'open",    "SELECT \"open", "SELECT /* open /* */",
+                         "SELECT $x$ open", "SELECT ?0",     "SELECT ?40000"};
     for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
         store_postgresql_text text;
         mitilog_error error = {{0}};
