@@ -110,8 +110,13 @@ static const char *store_pg_message(PGconn *connection, const PGresult *result, 
     if (text == NULL || text[0] == '\0')
         text = connection != NULL ? PQerrorMessage(connection) : "out of memory";
     snprintf(buffer, size, "%s", text != NULL && text[0] != '\0' ? text : "unknown error");
+    /* libpq's messages run over lines ("...failed: Connection refused\n\tIs
+     * the server running..."): one line for the log. */
+    for (char *p = buffer; *p != '\0'; p++)
+        if (*p == '\n' || *p == '\t')
+            *p = ' ';
     size_t length = strlen(buffer);
-    while (length > 0 && (buffer[length - 1] == '\n' || buffer[length - 1] == ' '))
+    while (length > 0 && buffer[length - 1] == ' ')
         buffer[--length] = '\0';
     return buffer;
 }
@@ -220,10 +225,9 @@ static mitilog_status store_pg_open(const char *target, int read_only, int busy_
     if (c->connection == NULL || PQstatus(c->connection) != CONNECTION_OK) {
         char message[MITILOG_ERROR_TEXT_SIZE / 2];
         store_pg_message(c->connection, NULL, message, sizeof message);
-        mitilog_error_set(error, MITILOG_ERROR_DATABASE,
-                          "cannot connect to PostgreSQL (%s): %s; check [storage] connection "
-                          "and that the server is running and accepts this user",
-                          target != NULL ? target : "", message);
+        /* Not the conninfo itself: it may hold a password. */
+        mitilog_error_set(error, MITILOG_ERROR_DATABASE, "cannot connect to PostgreSQL: %s",
+                          message);
         PQfinish(c->connection);
         free(c);
         return MITILOG_ERROR_DATABASE;
