@@ -12,8 +12,9 @@ null; docs/postgresql-dialect.md).
 DB.sqlite3 is a database made by mitilog (e.g. the simulator's days
 imported with `mitilog import`, as tests/api_snapshot.py does). With
 --copy, the PostgreSQL database is emptied (schema public dropped), each
---schema file is run (the PostgreSQL baseline and compat.sql), and the
-SQLite rows are copied in. Reads run as they are; writes run on both
+--schema file is run (the PostgreSQL baseline and compat.sql), two reviews
+are added to the SQLite file (so give it a copy) and its rows are copied
+in. Reads run as they are; writes run on both
 inside a transaction that is rolled back, and what they changed is
 compared (the rows of the table they write, read back with the same
 ORDER BY on both).
@@ -141,6 +142,19 @@ def reads(f):
     }
 
 
+# Reads documented as unordered (the store sorts their rows): compared as
+# sets of rows.
+UNORDERED = {"reports/stats_exam_rows.sql", "reports/stats_exam_values.sql",
+             "reports/stats_exam_governing.sql", "reports/stats_exam_series.sql",
+             "reports/stats_exam_time_at_or_above.sql"}
+
+# Statements run before a write on both engines (file, parameters), so
+# that the write has its place (an insert after its delete).
+BEFORE = {
+    "exams/exam_summary_insert.sql": "exams/exam_summary_delete.sql",
+    "exams/exam_time_at_or_above_insert.sql": "exams/exam_time_at_or_above_delete.sql",
+}
+
 # Statements that write: parameters, then the table to read back (with an
 # ORDER BY that both engines read the same way).
 NOW_COLUMNS = "(values differ by the run's clock: compared without them)"
@@ -230,6 +244,19 @@ def all_queries():
     return names
 
 
+def seed(lite):
+    """Rows the simulator does not make (reviews), added to the SQLite
+    database with the statement that writes them before the copy, so that
+    the reads of them have something to compare."""
+    f = facts(lite)
+    parameters, _ = writes(f)["reviews/review_insert.sql"]
+    lite_sql = sqlfiles.query_text("queries/reviews/review_insert.sql", "sqlite")
+    lite.execute("BEGIN")
+    for p in parameters:
+        sqlfiles.run_sqlite(lite, lite_sql, p)
+    lite.execute("COMMIT")
+
+
 def main():
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--sqlite", required=True)
@@ -259,6 +286,7 @@ def main():
             with open(path, encoding="utf-8") as f:
                 cursor.execute(f.read())
         pg.commit()
+        seed(lite)
         counts = sqlfiles.copy_database(lite, pg)
         print("copied %d rows in %d tables" % (sum(counts.values()), len(counts)))
     # SQLite's JSON writes reals with 15 significant digits; so does
@@ -283,10 +311,15 @@ def main():
         lite_sql = sqlfiles.query_text(query, "sqlite")
         pg_sql = sqlfiles.query_text(query, "postgresql")
         if name in read_cases:
-            result = compare_reads(lite, pg, lite_sql, pg_sql, read_cases[name], args.verbose)
+            result = compare_reads(lite, pg, lite_sql, pg_sql, read_cases[name], args.verbose,
+                                   name in UNORDERED)
         elif name in write_cases:
             parameters, check = write_cases[name]
-            result = compare_writes(lite, pg, lite_sql, pg_sql, parameters, check)
+            before = None
+            if name in BEFORE:
+                before = (sqlfiles.query_text("queries/" + BEFORE[name], "sqlite"),
+                          sqlfiles.query_text("queries/" + BEFORE[name], "postgresql"))
+            result = compare_writes(lite, pg, lite_sql, pg_sql, parameters, check, before)
         else:
             result = prepare_only(pg, pg_sql)
         kind = result.split()[0].rstrip(":")
@@ -299,7 +332,7 @@ def main():
     return 1 if failures else 0
 
 
-def compare_reads(lite, pg, lite_sql, pg_sql, cases, verbose):
+def compare_reads(lite, pg, lite_sql, pg_sql, cases, verbose, unordered=False):
     for parameters in cases:
         try:
             expected = sqlfiles.run_sqlite(lite, lite_sql, parameters)
@@ -311,6 +344,8 @@ def compare_reads(lite, pg, lite_sql, pg_sql, cases, verbose):
         except Exception as error:  # noqa: BLE001 - report any driver error
             pg.rollback()
             return "ERROR: PostgreSQL: %s" % str(error).strip().split("\n")[0]
+        if unordered:
+            expected, answered = sorted(expected, key=repr), sorted(answered, key=repr)
         difference = sqlfiles.same_rows(expected, answered)
         if difference:
             if verbose:
@@ -319,10 +354,13 @@ def compare_reads(lite, pg, lite_sql, pg_sql, cases, verbose):
     return "same (%d parameter sets)" % len(cases)
 
 
-def compare_writes(lite, pg, lite_sql, pg_sql, cases, check):
+def compare_writes(lite, pg, lite_sql, pg_sql, cases, check, before=None):
     lite.execute("SAVEPOINT compare")
     try:
         for parameters in cases:
+            if before:
+                sqlfiles.run_sqlite(lite, before[0], parameters)
+                sqlfiles.run_postgresql(pg, before[1], parameters)
             try:
                 sqlfiles.run_sqlite(lite, lite_sql, parameters)
             except sqlite3.Error as error:

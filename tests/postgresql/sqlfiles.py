@@ -190,8 +190,8 @@ def same(a, b, path="$"):
     (SQLite's JSON writes reals with 15, docs/postgresql-dialect.md); an
     integer must stay an integer; object keys must come in the same order."""
     if isinstance(a, bool) or isinstance(b, bool):
-        a = int(a) if isinstance(a, bool) else a
-        b = int(b) if isinstance(b, bool) else b
+        # JSON true is not 1 (a row's column is made 0/1 by normalise)
+        return None if type(a) is type(b) and a == b else "%s: %r != %r" % (path, a, b)
     if _number(a) and _number(b):
         if isinstance(a, int) and isinstance(b, int):
             return None if a == b else "%s: %r != %r" % (path, a, b)

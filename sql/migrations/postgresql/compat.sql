@@ -1,12 +1,12 @@
 -- compat.sql - the few SQLite functions the common query files use, as
 -- PostgreSQL functions of the same name and the same answers, so that
 -- those files run unchanged on both engines (docs/postgresql-dialect.md).
--- Applied with the PostgreSQL baseline (012_baseline.sql) and safe to run
--- again: every object is CREATE OR REPLACE (the aggregates are dropped and
--- made again). Each function follows SQLite's documented behaviour
--- (sqlite.org/lang_corefunc.html, lang_datefunc.html, json1.html) for the
--- arguments the queries give it, and tests/postgresql/test_compat.py
--- checks it against SQLite itself.
+-- Applied with the PostgreSQL baseline (012_baseline.sql), before its
+-- views, and safe to run again: every object is CREATE OR REPLACE (the
+-- operator is made when absent). Each function follows SQLite's
+-- documented behaviour (sqlite.org/lang_corefunc.html, lang_datefunc.html,
+-- json1.html) for the arguments the queries give it, and
+-- tests/postgresql/test_compat.py checks it against SQLite itself.
 --
 -- Times: SQLite's date and time functions read and write UTC; so do these
 -- (timestamp without time zone holding UTC, never the session's zone).
@@ -44,8 +44,7 @@ CREATE OR REPLACE FUNCTION json_group_array_final(elements anycompatiblearray)
 RETURNS json LANGUAGE sql IMMUTABLE PARALLEL SAFE
 AS $$ SELECT array_to_json(elements) $$;
 
-DROP AGGREGATE IF EXISTS json_group_array(anycompatible);
-CREATE AGGREGATE json_group_array(anycompatible) (
+CREATE OR REPLACE AGGREGATE json_group_array(anycompatible) (
     SFUNC = array_append,
     STYPE = anycompatiblearray,
     FINALFUNC = json_group_array_final,
@@ -64,8 +63,7 @@ CREATE OR REPLACE FUNCTION json_group_object_final(state text)
 RETURNS json LANGUAGE sql IMMUTABLE PARALLEL SAFE
 AS $$ SELECT ('{' || state || '}')::json $$;
 
-DROP AGGREGATE IF EXISTS json_group_object(text, anycompatible);
-CREATE AGGREGATE json_group_object(text, anycompatible) (
+CREATE OR REPLACE AGGREGATE json_group_object(text, anycompatible) (
     SFUNC = json_group_object_step,
     STYPE = text,
     FINALFUNC = json_group_object_final,
@@ -116,8 +114,7 @@ AS $$ SELECT CASE WHEN value IS NULL THEN state
                   WHEN state IS NULL THEN value
                   ELSE state || separator || value END $$;
 
-DROP AGGREGATE IF EXISTS group_concat(text, text);
-CREATE AGGREGATE group_concat(text, text) (
+CREATE OR REPLACE AGGREGATE group_concat(text, text) (
     SFUNC = group_concat_step,
     STYPE = text
 );
@@ -420,5 +417,20 @@ CREATE OR REPLACE FUNCTION compat_shift_right(bits bigint, count bigint)
 RETURNS bigint LANGUAGE sql IMMUTABLE PARALLEL SAFE
 AS $$ SELECT bits >> count::integer $$;
 
-DROP OPERATOR IF EXISTS >> (bigint, bigint);
-CREATE OPERATOR >> (LEFTARG = bigint, RIGHTARG = bigint, FUNCTION = compat_shift_right);
+DO $$
+BEGIN
+    IF to_regoperator('>>(bigint,bigint)') IS NULL THEN
+        CREATE OPERATOR >> (LEFTARG = bigint, RIGHTARG = bigint,
+                            FUNCTION = compat_shift_right);
+    END IF;
+END
+$$;
+
+-- sqlite_text(real): a real as SQLite's CAST(real AS TEXT) writes it
+-- (15 significant digits, a whole number with '.0': 1.0, 0.7), where a
+-- real becomes text that the API shows (a JSON member's name).
+CREATE OR REPLACE FUNCTION sqlite_text(value double precision)
+RETURNS text LANGUAGE sql IMMUTABLE PARALLEL SAFE
+SET extra_float_digits = 0
+AS $$ SELECT CASE WHEN value::text ~ '^-?[0-9]+$' THEN value::text || '.0'
+                  ELSE value::text END $$;
