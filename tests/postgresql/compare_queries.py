@@ -212,6 +212,42 @@ def writes(f):
             [[f["study"]]],
             "SELECT day, study_instance_uid, threshold, seconds FROM exam_time_at_or_above "
             "WHERE study_instance_uid = '%s' ORDER BY day, threshold" % f["study"]),
+        "findings/policy_upsert.sql": (
+            [{"version": "compare-1", "name": "Compared", "normalised_text": "[x]",
+              "rules_json": '[{"id":"a"}]', "limits_json": "[]",
+              "closed_after_idle_minutes": 30.0, "gap_cap_seconds": None},
+             {"version": "compare-1", "name": "Compared again", "normalised_text": "[x]",
+              "rules_json": "[]", "limits_json": '[{"b":1.5}]',
+              "closed_after_idle_minutes": None, "gap_cap_seconds": 120.0}],
+            "SELECT version, name, normalised_text, rules_json, limits_json, "
+            "closed_after_idle_minutes, gap_cap_seconds FROM policies ORDER BY version"),
+        "findings/policy_ensure.sql": (
+            [{"version": f["policy"], "name": "x", "normalised_text": "y"},
+             {"version": "compare-2", "name": None, "normalised_text": "z"}],
+            "SELECT version, name, normalised_text FROM policies ORDER BY version"),
+        "findings/findings_supersede.sql": (
+            [[f["study"], "another-version", None, None],
+             [None, "another-version", f["device_rule"], f["device_period"]]],
+            "SELECT id, superseded FROM findings ORDER BY id"),
+        "findings/device_evaluation_upsert.sql": (
+            [{"rule_id": "r", "policy_version": f["policy"], "period": "2026-11-02",
+              "evaluation_hash": "h1"},
+             {"rule_id": "r", "policy_version": f["policy"], "period": "2026-11-02",
+              "evaluation_hash": "h2"}],
+            "SELECT rule_id, policy_version, period, evaluation_hash FROM device_evaluations "
+            "ORDER BY rule_id, policy_version, period"),
+        "exams/exam_context_upsert.sql": (
+            [{"study_instance_uid": f["study"], "room": "R9", "preset": None, "shift": "night",
+              "transducer": "L1", "age_group": "adult", "last_received_at": review[0],
+              "closed": 1}],
+            "SELECT * FROM exam_context ORDER BY study_instance_uid"),
+        "devices/screen_profile_insert.sql": (
+            [{"profile_key": "k", "version": 1, "manufacturer": "M", "model_name": None,
+              "software_versions": "1.0", "rows": 600, "columns": 800, "profile_text": "[p]",
+              "report": None, "example_image": b"P5 1 1 255\n\x00"}],
+            "SELECT profile_key, version, manufacturer, model_name, software_versions, rows, "
+            "columns, profile_text, state, report, example_image FROM screen_profiles "
+            "ORDER BY id"),
         "readings/reading_clear_queue.sql": (
             [[f["instance_id"]]],
             "SELECT count(*) FROM reading_queue"),
