@@ -325,9 +325,8 @@ def main():
         seed(lite)
         counts = sqlfiles.copy_database(lite, pg)
         print("copied %d rows in %d tables" % (sum(counts.values()), len(counts)))
-    # SQLite's JSON writes reals with 15 significant digits; so does
-    # PostgreSQL's float output with extra_float_digits = 0.
-    cursor.execute("SET extra_float_digits = 0")
+    # As the engine's sessions (store_engine_postgresql.c).
+    cursor.execute("SET TimeZone = 'UTC'")
     pg.commit()
 
     f = facts(lite)

@@ -249,6 +249,9 @@ def copy_database(sqlite_connection, postgresql_connection, tables=None):
     names = [n for n in names if n in target and (tables is None or n in tables)]
     order = _parents_first(sqlite_connection, names)
     counts = {}
+    # The baseline fills its vocabulary (mode names, the ladder): the copy
+    # takes SQLite's instead.
+    cursor.execute("TRUNCATE %s CASCADE" % ", ".join('"%s"' % t for t in order))
     for table in order:
         cursor.execute("SELECT column_name FROM information_schema.columns "
                        "WHERE table_schema = current_schema() AND table_name = %s", (table,))
@@ -256,11 +259,21 @@ def copy_database(sqlite_connection, postgresql_connection, tables=None):
         columns = [row[1] for row in sqlite_connection.execute(
             "SELECT * FROM pragma_table_info(?)", (table,))
                    if row[1] in postgresql_columns]
+        selected = ['t."%s"' % c for c in columns]
+        join = ""
+        if "first_received_at" in postgresql_columns and "first_received_at" not in columns \
+                and "instance_id" in columns:
+            # PostgreSQL's partitioned children carry their instance's
+            # first receipt (the partition key).
+            columns.append("first_received_at")
+            selected.append("i.first_received_at")
+            join = " JOIN instances i ON i.id = t.instance_id"
         quoted = ", ".join('"%s"' % c for c in columns)
         rows = sqlite_connection.execute(
-            "SELECT %s FROM \"%s\" ORDER BY rowid" % (quoted, table)
-            if _has_rowid(sqlite_connection, table)
-            else "SELECT %s FROM \"%s\"" % (quoted, table)).fetchall()
+            "SELECT %s FROM \"%s\" t%s%s" % (", ".join(selected), table, join,
+                                           " ORDER BY t.rowid"
+                                           if _has_rowid(sqlite_connection, table) else "")
+        ).fetchall()
         import psycopg2
         rows = [tuple(psycopg2.Binary(v) if isinstance(v, bytes) else v for v in row)
                 for row in rows]
@@ -275,6 +288,21 @@ def copy_database(sqlite_connection, postgresql_connection, tables=None):
             cursor.execute("SELECT setval(pg_get_serial_sequence(%s, %s), "
                            "coalesce((SELECT max(\"%s\") FROM \"%s\"), 0) + 1, false)"
                            % ("%s", "%s", column, table), (table, column))
+    if "instance_keys" in target:
+        # PostgreSQL keeps one row per SOP Instance UID across the month
+        # partitions in instance_keys (012_baseline.sql).
+        cursor.execute("INSERT INTO instance_keys (sop_instance_uid, id, first_received_at) "
+                       "SELECT sop_instance_uid, id, first_received_at FROM instances")
+    for sequence, table in (("instances_id_seq", "instances"), ("sr_values_id_seq", "sr_values")):
+        cursor.execute("SELECT to_regclass(%s)", (sequence,))
+        if cursor.fetchone()[0] is not None:
+            cursor.execute("SELECT setval(%%s, coalesce((SELECT max(id) FROM %s), 0) + 1, false)"
+                           % table, (sequence,))
+    if "schema_version" in target:
+        version = sqlite_connection.execute("PRAGMA user_version").fetchone()[0]
+        cursor.execute("INSERT INTO schema_version (only_row, version) VALUES (1, %s) "
+                       "ON CONFLICT (only_row) DO UPDATE SET version = excluded.version",
+                       (version,))
     postgresql_connection.commit()
     return counts
 
