@@ -221,7 +221,20 @@ static mitilog_status store_pg_open(const char *target, int read_only, int busy_
     c->read_only = read_only;
     c->lock_timeout_ms = busy_timeout_ms;
     c->generation = 1;
-    c->connection = PQconnectdb(target != NULL ? target : "");
+    /* Defaults first, so that the same keys in target win: a connection
+     * attempt gives up after 10 s (libpq waits for ever by default), and
+     * a server that vanished from the network is noticed within about a
+     * minute (keepalives), so that the receiver answers A700 rather than
+     * hang. */
+    static const char *const keys[] = {"connect_timeout",
+                                       "keepalives",
+                                       "keepalives_idle",
+                                       "keepalives_interval",
+                                       "keepalives_count",
+                                       "dbname",
+                                       NULL};
+    const char *values[] = {"10", "1", "30", "10", "3", target != NULL ? target : "", NULL};
+    c->connection = PQconnectdbParams(keys, values, 1);
     if (c->connection == NULL || PQstatus(c->connection) != CONNECTION_OK) {
         char message[MITILOG_ERROR_TEXT_SIZE / 2];
         store_pg_message(c->connection, NULL, message, sizeof message);
