@@ -92,8 +92,11 @@ def stored(conninfo):
 def test_objects_land_and_resending_replaces(daemon_factory, server, sim):
     files, rows = sim
     conninfo = new_database(server, "t_land")
-    daemon = daemon_factory("land", storage=dict(engine="postgresql",
-                                                 connection=conninfo)).start()
+    # The dashboard's reads go through read_connection (here the same
+    # server, told apart by its application_name).
+    daemon = daemon_factory("land", storage=dict(
+        engine="postgresql", connection=conninfo,
+        read_connection=conninfo + " application_name=mitilog_reads")).start()
     sent = files[:6]
     statuses = storescu_statuses(daemon.dicom_port, sent)
     assert set(statuses.values()) == {"Success"}, statuses
@@ -109,6 +112,11 @@ def test_objects_land_and_resending_replaces(daemon_factory, server, sim):
     assert len(rows_now) == len(sent)
     assert sorted(rows_now[rows[f]["sop_instance_uid"]] for f in sent) == ["0"] * 3 + ["1"] * 3
     assert psql(conninfo, "SELECT count(*) FROM instance_keys") == [str(len(sent))]
+    # The health document is read on the read connection, the one session
+    # of that name (the writer has none); common practice, no source.
+    assert daemon.get("/healthz")[0] == 200
+    assert psql(conninfo, "SELECT count(*) FROM pg_stat_activity "
+                          "WHERE application_name = 'mitilog_reads'") == ["1"]
     assert psql(conninfo, "SELECT version FROM schema_version") != []
 
 

@@ -356,6 +356,27 @@ static void a_lost_connection_commits_nothing_and_recovers(void **state)
     pg->close(c);
 }
 
+/* A read connection (the dashboard's) refuses writes: its transactions
+ * are read-only (PostgreSQL documentation, 20.11.1,
+ * default_transaction_read_only). */
+static void a_read_connection_does_not_write(void **state)
+{
+    store_connection *c = connect_or_skip(state);
+    fixture *f = *state;
+    run(c, "CREATE TABLE IF NOT EXISTS read_only_test (value bigint)");
+    store_connection *reader = NULL;
+    mitilog_error error;
+    assert_int_equal(pg->open(f->database, 1, 5000, &reader, &error), MITILOG_OK);
+    assert_int_not_equal(
+        pg->execute_script(reader, "write", "INSERT INTO read_only_test VALUES (1)", &error),
+        MITILOG_OK);
+    assert_non_null(strstr(error.text, "read-only"));
+    assert_int_equal(pg->connection_lost(reader), 0);
+    assert_int_equal(query_integer(reader, "SELECT count(*) FROM read_only_test"), 0);
+    pg->close(reader);
+    pg->close(c);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -363,6 +384,7 @@ int main(void)
         cmocka_unit_test(columns_are_typed_as_sqlite_would),
         cmocka_unit_test(resending_replaces_never_duplicates),
         cmocka_unit_test(a_lost_connection_commits_nothing_and_recovers),
+        cmocka_unit_test(a_read_connection_does_not_write),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
 }
