@@ -23,8 +23,10 @@
 --   "re-sending replaces, never duplicates" is kept by instance_keys, an
 --   unpartitioned table with the SOP Instance UID as primary key: the
 --   instance upsert (queries/instances/postgresql/instance_upsert.sql)
---   inserts there first, and its row lock makes two receivers that get
---   the same object at once write one row. A default partition takes any
+--   inserts there first and so learns the UID's id and month, then
+--   upserts on (sop_instance_uid, first_received_at), unique within the
+--   month's partition; two receivers that get the same object at once
+--   wait for each other there and write one row. A default partition takes any
 --   month not yet created, so no insert ever fails for want of one;
 --   mitilog_month_partitions() creates months ahead (run at every start).
 -- * Foreign keys to instances (header copies, SR values, screen readings,
@@ -219,7 +221,9 @@ CREATE TABLE instances (
 ) PARTITION BY RANGE (first_received_at);
 CREATE TABLE instances_default PARTITION OF instances DEFAULT;
 CREATE INDEX instances_id ON instances (id);
-CREATE INDEX instances_sop ON instances (sop_instance_uid);
+-- One row per UID and month of first receipt (which instance_keys fixes
+-- for a UID): the conflict target of the instance upsert.
+CREATE UNIQUE INDEX instances_sop ON instances (sop_instance_uid, first_received_at);
 CREATE INDEX instances_day ON instances (substr(coalesce(acquired_at, received_at), 1, 10));
 CREATE INDEX instances_received ON instances (received_at);
 CREATE INDEX instances_study ON instances (study_instance_uid, acquired_at);
