@@ -236,8 +236,8 @@ static int upsert_instance(store_connection *c, store_statement *s, const char *
         {":object_kind", "image"},
         {":image_type_bitmap_status", "missing"},
     };
-    int status = pg->bind_text(s, pg->parameter_index(s, ":sop_instance_uid"), uid, strlen(uid),
-                               error);
+    int status =
+        pg->bind_text(s, pg->parameter_index(s, ":sop_instance_uid"), uid, strlen(uid), error);
     for (size_t i = 0; status == MITILOG_OK && i < sizeof texts / sizeof texts[0]; i++) {
         int index = pg->parameter_index(s, texts[i][0]);
         assert_true(index > 0);
@@ -282,8 +282,8 @@ static void resending_replaces_never_duplicates(void **state)
     long long ids[2] = {0, 0};
     for (int round = 0; round < 2; round++) {
         long long replaced = -1;
-        if (upsert_instance(c, s, "1.2.826.0.1.3680043.10.999.1", &replaced, &ids[round],
-                            &error) != 0)
+        if (upsert_instance(c, s, "1.2.826.0.1.3680043.10.999.1", &replaced, &ids[round], &error) !=
+            0)
             fail_msg("%s", error.text);
         assert_int_equal(replaced, round);
     }
