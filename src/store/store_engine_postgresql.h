@@ -46,4 +46,12 @@ int store_postgresql_latest_migration(void);
 mitilog_status store_postgresql_migrate(store_connection *connection, int busy_timeout_ms,
                                         int *version, mitilog_error *error);
 
+/* The advisory lock store_postgresql_migrate takes, for what else must
+ * happen once when receivers start together (the vocabulary's sync after
+ * the migrations). Taken again by the same session it nests: each lock
+ * needs its unlock. Unlock restores busy_timeout_ms as the lock timeout. */
+mitilog_status store_postgresql_lock(store_connection *connection, mitilog_error *error);
+mitilog_status store_postgresql_unlock(store_connection *connection, int busy_timeout_ms,
+                                       mitilog_error *error);
+
 #endif
