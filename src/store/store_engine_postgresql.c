@@ -252,7 +252,9 @@ static mitilog_status store_pg_open(const char *target, int read_only, int busy_
         char message[MITILOG_ERROR_TEXT_SIZE / 2];
         store_pg_message(c->connection, NULL, message, sizeof message);
         /* Not the conninfo itself: it may hold a password. */
-        mitilog_error_set(error, MITILOG_ERROR_DATABASE, "cannot connect to PostgreSQL: %s",
+        mitilog_error_set(error, MITILOG_ERROR_DATABASE,
+                          "cannot connect to PostgreSQL: %s; check that the server is running "
+                          "and that [storage] connection names it (host, port, database, user)",
                           message);
         PQfinish(c->connection);
         free(c);

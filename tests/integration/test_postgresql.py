@@ -190,7 +190,7 @@ def test_check_config_says_whether_the_server_answers(tmp_path, server):
                             stderr=subprocess.PIPE, text=True, timeout=60)
     assert result.returncode == 2
     assert "[storage] connection: cannot connect to PostgreSQL" in result.stderr
-    assert "Check that the server is running" in result.stderr
+    assert "check that the server is running" in result.stderr
 
 
 def test_three_receivers_start_together_and_share_one_database(daemon_factory, server, sim):
