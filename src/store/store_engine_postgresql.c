@@ -167,6 +167,17 @@ static mitilog_status store_pg_fail(store_connection *c, const PGresult *result,
                              state != NULL ? ")" : "");
 }
 
+/* Rows changed by an INSERT, UPDATE or DELETE (also one with RETURNING);
+ * a SELECT or any other command leaves the count of the last one, as
+ * SQLite's sqlite3_changes() does. */
+static void store_pg_count_changes(store_connection *c, const PGresult *result)
+{
+    const char *command = PQcmdStatus((PGresult *)result);
+    if (strncmp(command, "INSERT ", 7) == 0 || strncmp(command, "UPDATE ", 7) == 0 ||
+        strncmp(command, "DELETE ", 7) == 0)
+        c->changes = atoll(PQcmdTuples((PGresult *)result));
+}
+
 /* Runs one plain command (no parameters, no rows wanted). */
 static mitilog_status store_pg_command(store_connection *c, const char *sql, const char *what,
                                        mitilog_error *error)
@@ -306,7 +317,7 @@ static mitilog_status store_pg_execute_script(store_connection *c, const char *n
                                    "committed",
                                    name);
     else
-        c->changes = atoll(PQcmdTuples(result));
+        store_pg_count_changes(c, result);
     PQclear(result);
     return status;
 }
@@ -593,7 +604,7 @@ static mitilog_status store_pg_execute(store_statement *s, mitilog_error *error)
                                  "committed",
                                  s->name);
     }
-    c->changes = atoll(PQcmdTuples(result));
+    store_pg_count_changes(c, result);
     s->result = result;
     s->rows = PQntuples(result);
     s->row = 0;

@@ -417,6 +417,15 @@ static void a_lost_connection_commits_nothing_and_recovers(void **state)
     pg->reset(commit);
     assert_int_equal(query_integer(other, "SELECT count(*) FROM lost_test"), 1);
     assert_int_equal(query_integer(other, "SELECT min(value) FROM lost_test"), 3);
+    /* changes(): rows of the last INSERT, UPDATE or DELETE; a SELECT
+     * keeps it (sqlite.org/c3ref/changes.html). */
+    run(other, "UPDATE lost_test SET value = value");
+    assert_int_equal(pg->changes(other), 1);
+    assert_int_equal(query_integer(other, "SELECT count(*) FROM lost_test"), 1);
+    run(other, "INSERT INTO lost_test SELECT 5 UNION ALL SELECT 6");
+    assert_int_equal(query_integer(other, "SELECT 42"), 42);
+    assert_int_equal(pg->changes(other), 2);
+    run(other, "DELETE FROM lost_test WHERE value > 4");
 
     /* A failed statement turns COMMIT into a rollback: reported. */
     store_statement *bad = NULL;
