@@ -37,7 +37,9 @@ int store_postgresql_latest_migration(void);
  *     "PRAGMA user_version = N;" (SQLite's record of it) is left out and
  *     schema_version set instead;
  *   - the month partitions from this month to twelve months ahead are
- *     created.
+ *     created, and those of older months whose rows wait in the default
+ *     partition (a copy of older data, a receiver that ran past the months
+ *     made ahead), the rows moved into them.
  * Each step runs in its own transaction, all of them under a
  * PostgreSQL advisory lock, so that receivers starting together migrate
  * once: the others wait, then find nothing to do. busy_timeout_ms is the

@@ -195,10 +195,16 @@ static mitilog_status store_pg_migrate_locked(store_connection *c, int *version,
         }
     }
     if (status == MITILOG_OK)
-        status = store_pg_in_transaction(c, "month partitions",
-                                         "SELECT mitilog_month_partitions(current_date, "
-                                         "(current_date + interval '12 months')::date)",
-                                         error);
+        /* From the oldest month waiting in the default partition (rows
+         * that arrived before their month's partition, or were copied in)
+         * to twelve months ahead. */
+        status = store_pg_in_transaction(
+            c, "month partitions",
+            "SELECT mitilog_month_partitions(least(current_date, (SELECT "
+            "to_date(substr(min(first_received_at), 1, 7), 'YYYY-MM') FROM instances_default "
+            "WHERE first_received_at ~ '^[0-9]{4}-[0-9]{2}')), "
+            "(current_date + interval '12 months')::date)",
+            error);
     return status;
 }
 

@@ -217,14 +217,23 @@ static void columns_are_typed_as_sqlite_would(void **state)
 /* Binds what the instance upsert needs of one object (its UID, the
  * statuses the schema requires) and runs it: *replaced_count and *id from
  * its row; returns 0, or -1 with error filled (no row is an error). */
+static int upsert_instance_at(store_statement *s, const char *uid, const char *received_at,
+                              long long *replaced_count, long long *id, mitilog_error *error);
+
 static int upsert_instance(store_connection *c, store_statement *s, const char *uid,
                            long long *replaced_count, long long *id, mitilog_error *error)
 {
     (void)c;
+    return upsert_instance_at(s, uid, "", replaced_count, id, error);
+}
+
+/* The same, received at received_at ("" = now). */
+static int upsert_instance_at(store_statement *s, const char *uid, const char *received_at,
+                              long long *replaced_count, long long *id, mitilog_error *error)
+{
     static const char *texts[][2] = {
         {":sop_class_uid", "1.2.840.10008.5.1.4.1.1.6.1"},
         {":acquired_at_source", "missing"},
-        {":received_at", ""},
         {":number_of_frames_status", "missing"},
         {":frame_time_ms_status", "missing"},
         {":mi_status", "missing"},
@@ -238,6 +247,9 @@ static int upsert_instance(store_connection *c, store_statement *s, const char *
     };
     int status =
         pg->bind_text(s, pg->parameter_index(s, ":sop_instance_uid"), uid, strlen(uid), error);
+    if (status == MITILOG_OK)
+        status = pg->bind_text(s, pg->parameter_index(s, ":received_at"), received_at,
+                               strlen(received_at), error);
     for (size_t i = 0; status == MITILOG_OK && i < sizeof texts / sizeof texts[0]; i++) {
         int index = pg->parameter_index(s, texts[i][0]);
         assert_true(index > 0);
@@ -293,6 +305,57 @@ static void resending_replaces_never_duplicates(void **state)
     assert_int_equal(query_integer(c, "SELECT count(*) FROM instance_keys"), 1);
     /* The row sits in this month's partition, not the default one. */
     assert_int_equal(query_integer(c, "SELECT count(*) FROM instances_default"), 0);
+    pg->close(c);
+}
+
+/* Rows of a month without its partition wait in the default partition
+ * (an object copied in from an older database); the next start makes the
+ * month's partition and moves them there, the instance and its header
+ * copy alike. */
+static void older_months_move_out_of_the_default_partition(void **state)
+{
+    store_connection *c = connect_or_skip(state);
+    int version = 0;
+    mitilog_error error;
+    if (store_postgresql_migrate(c, 5000, &version, &error) != MITILOG_OK)
+        fail_msg("%s", error.text);
+    store_statement *s = NULL;
+    if (pg->prepare(c, upsert_name, sql_file_text(upsert_name), &s, &error) != MITILOG_OK)
+        fail_msg("%s", error.text);
+    long long replaced = -1, id = 0;
+    if (upsert_instance_at(s, "1.2.826.0.1.3680043.10.999.3", "2025-03-10T08:00:00.000Z", &replaced,
+                           &id, &error) != 0)
+        fail_msg("%s", error.text);
+    pg->finalize(s);
+    char sql[200];
+    snprintf(sql, sizeof sql,
+             "INSERT INTO instance_headers (instance_id, first_received_at, bytes) "
+             "VALUES (%lld, '2025-03-10T08:00:00.000Z', '\\x00')",
+             id);
+    run(c, sql);
+    assert_int_equal(query_integer(c, "SELECT count(*) FROM instances_default"), 1);
+    assert_int_equal(query_integer(c, "SELECT count(*) FROM instance_headers_default"), 1);
+    if (store_postgresql_migrate(c, 5000, &version, &error) != MITILOG_OK)
+        fail_msg("%s", error.text);
+    assert_int_equal(query_integer(c, "SELECT count(*) FROM instances_default"), 0);
+    assert_int_equal(query_integer(c, "SELECT count(*) FROM instance_headers_default"), 0);
+    assert_int_equal(query_integer(c, "SELECT count(*) FROM instances_2025_03"), 1);
+    assert_int_equal(query_integer(c, "SELECT count(*) FROM instance_headers_2025_03"), 1);
+    snprintf(sql, sizeof sql, "SELECT count(*) FROM instances WHERE id = %lld", id);
+    assert_int_equal(query_integer(c, sql), 1);
+    /* The moved partition is a partition like the others: a re-send
+     * finds its row there (one row, replaced once). */
+    if (pg->prepare(c, upsert_name, sql_file_text(upsert_name), &s, &error) != MITILOG_OK)
+        fail_msg("%s", error.text);
+    long long again = 0;
+    if (upsert_instance(c, s, "1.2.826.0.1.3680043.10.999.3", &replaced, &again, &error) != 0)
+        fail_msg("%s", error.text);
+    pg->finalize(s);
+    assert_int_equal(replaced, 1);
+    assert_int_equal(again, id);
+    assert_int_equal(query_integer(c, "SELECT count(*) FROM instances WHERE sop_instance_uid = "
+                                      "'1.2.826.0.1.3680043.10.999.3'"),
+                     1);
     pg->close(c);
 }
 
@@ -481,6 +544,7 @@ int main(void)
         cmocka_unit_test(columns_are_typed_as_sqlite_would),
         cmocka_unit_test(resending_replaces_never_duplicates),
         cmocka_unit_test(two_receivers_with_one_object_write_one_row),
+        cmocka_unit_test(older_months_move_out_of_the_default_partition),
         cmocka_unit_test(a_lost_connection_commits_nothing_and_recovers),
         cmocka_unit_test(a_read_connection_does_not_write),
     };

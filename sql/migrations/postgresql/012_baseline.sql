@@ -261,36 +261,50 @@ CREATE INDEX sr_values_study ON sr_values (study_instance_uid, quantity);
 
 -- Creates the month partitions of instances, instance_headers and
 -- sr_values for every month from first_month to last_month (any day of
--- each), unless they exist. A month whose rows already went to the default
--- partition is left there (still found by every query), with a notice.
+-- each), unless they exist. Rows of such a month that went to the default
+-- partition meanwhile (a receiver running past the months made ahead, a
+-- copy of older data) are moved into the new partition, in the caller's
+-- transaction (PostgreSQL documentation, 5.11.2.2 "Partition
+-- Maintenance": a partition made apart and attached). Returns the number
+-- of partitions made.
 CREATE FUNCTION mitilog_month_partitions(first_month date, last_month date)
 RETURNS integer LANGUAGE plpgsql AS $function$
 DECLARE
     month date := date_trunc('month', first_month)::date;
     parent text;
+    partition text;
     low text;
     high text;
     occupied boolean;
+    made integer := 0;
 BEGIN
     WHILE month <= last_month LOOP
         low := to_char(month, 'YYYY-MM');
         high := to_char(month + interval '1 month', 'YYYY-MM');
         FOREACH parent IN ARRAY ARRAY['instances', 'instance_headers', 'sr_values'] LOOP
-            CONTINUE WHEN to_regclass(parent || '_' || to_char(month, 'YYYY_MM')) IS NOT NULL;
+            partition := parent || '_' || to_char(month, 'YYYY_MM');
+            CONTINUE WHEN to_regclass(partition) IS NOT NULL;
             EXECUTE format('SELECT EXISTS (SELECT 1 FROM %I WHERE first_received_at >= %L '
                            'AND first_received_at < %L)', parent || '_default', low, high)
                 INTO STRICT occupied;
             IF occupied THEN
-                RAISE NOTICE 'month % of % stays in %_default: rows arrived before its partition',
-                    low, parent, parent;
-                CONTINUE;
+                EXECUTE format('CREATE TABLE %I (LIKE %I INCLUDING DEFAULTS INCLUDING CONSTRAINTS)',
+                               partition, parent);
+                EXECUTE format('WITH moved AS (DELETE FROM %I WHERE first_received_at >= %L '
+                               'AND first_received_at < %L RETURNING *) '
+                               'INSERT INTO %I SELECT * FROM moved',
+                               parent || '_default', low, high, partition);
+                EXECUTE format('ALTER TABLE %I ATTACH PARTITION %I FOR VALUES FROM (%L) TO (%L)',
+                               parent, partition, low, high);
+            ELSE
+                EXECUTE format('CREATE TABLE %I PARTITION OF %I FOR VALUES FROM (%L) TO (%L)',
+                               partition, parent, low, high);
             END IF;
-            EXECUTE format('CREATE TABLE %I PARTITION OF %I FOR VALUES FROM (%L) TO (%L)',
-                           parent || '_' || to_char(month, 'YYYY_MM'), parent, low, high);
+            made := made + 1;
         END LOOP;
         month := (month + interval '1 month')::date;
     END LOOP;
-    RETURN 0;
+    RETURN made;
 END
 $function$;
 
