@@ -59,6 +59,8 @@ typedef enum store_pg_kind {
     STORE_PG_KIND_ROLLBACK
 } store_pg_kind;
 
+enum { STORE_PG_SETTINGS_MAX = 8 };
+
 struct store_connection {
     PGconn *connection;
     int read_only;
@@ -68,6 +70,12 @@ struct store_connection {
     unsigned generation;       /* bumped at each (re)connection */
     unsigned statement_number; /* names the server-side statements */
     long long changes;
+    /* Scripts of SET statements run on the connection (the writer's
+     * synchronous_commit), oldest first, each once: run again after a
+     * reconnection, so that a new session has the settings the old one
+     * had. */
+    char *settings[STORE_PG_SETTINGS_MAX];
+    int setting_count;
 };
 
 struct store_statement {
@@ -230,6 +238,8 @@ static mitilog_status store_pg_ensure(store_connection *c, store_pg_kind kind, c
     c->lost = 0;
     c->broken = 0;
     mitilog_status status = store_pg_session(c, error);
+    for (int i = 0; status == MITILOG_OK && i < c->setting_count; i++)
+        status = store_pg_command(c, c->settings[i], "session settings", error);
     if (status == MITILOG_OK)
         log_info("database: connected again to the PostgreSQL server");
     return status;
@@ -287,10 +297,14 @@ static void store_pg_close(store_connection *c)
     if (c == NULL)
         return;
     PQfinish(c->connection);
+    for (int i = 0; i < c->setting_count; i++)
+        free(c->settings[i]);
     free(c);
 }
 
 static store_pg_kind store_pg_statement_kind(const char *sql);
+static int store_pg_is_setting(const char *sql);
+static void store_pg_remember_setting(store_connection *c, const char *sql);
 
 static mitilog_status store_pg_execute_script(store_connection *c, const char *name,
                                               const char *sql, mitilog_error *error)
@@ -318,6 +332,8 @@ static mitilog_status store_pg_execute_script(store_connection *c, const char *n
                                    name);
     else
         store_pg_count_changes(c, result);
+    if (status == MITILOG_OK && store_pg_is_setting(sql))
+        store_pg_remember_setting(c, sql);
     PQclear(result);
     return status;
 }
@@ -351,6 +367,57 @@ static store_pg_kind store_pg_statement_kind(const char *sql)
     if (length == 8 && strncasecmp(p, "ROLLBACK", 8) == 0)
         return STORE_PG_KIND_ROLLBACK;
     return STORE_PG_KIND_OTHER;
+}
+
+/* 1 when sql is only SET statements (and comments): a session setting
+ * to keep across reconnections. */
+static int store_pg_is_setting(const char *sql)
+{
+    const char *p = sql;
+    int statements = 0;
+    for (;;) {
+        while (*p == ' ' || *p == '\t' || *p == '\n' || *p == '\r' || *p == ';')
+            p++;
+        if (p[0] == '-' && p[1] == '-') {
+            while (*p != '\0' && *p != '\n')
+                p++;
+            continue;
+        }
+        if (*p == '\0')
+            return statements > 0;
+        if (strncasecmp(p, "SET ", 4) != 0 || strncasecmp(p, "SET LOCAL ", 10) == 0)
+            return 0;
+        /* To the end of the statement; settings hold no quoted ';'. */
+        while (*p != '\0' && *p != ';' && *p != '\'')
+            p++;
+        if (*p == '\'')
+            return 0;
+        statements++;
+    }
+}
+
+/* Remembers a setting script (moved to the end when already known). */
+static void store_pg_remember_setting(store_connection *c, const char *sql)
+{
+    for (int i = 0; i < c->setting_count; i++) {
+        if (strcmp(c->settings[i], sql) == 0) {
+            char *known = c->settings[i];
+            memmove(&c->settings[i], &c->settings[i + 1],
+                    (size_t)(c->setting_count - i - 1) * sizeof *c->settings);
+            c->settings[c->setting_count - 1] = known;
+            return;
+        }
+    }
+    char *copy = strdup(sql);
+    if (copy == NULL)
+        return; /* not kept: the server's default applies after a reconnection */
+    if (c->setting_count == STORE_PG_SETTINGS_MAX) {
+        free(c->settings[0]);
+        memmove(&c->settings[0], &c->settings[1],
+                (size_t)(STORE_PG_SETTINGS_MAX - 1) * sizeof *c->settings);
+        c->setting_count--;
+    }
+    c->settings[c->setting_count++] = copy;
 }
 
 /* Prepares s on the server under its name. */

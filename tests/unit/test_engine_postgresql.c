@@ -444,6 +444,8 @@ static void a_lost_connection_commits_nothing_and_recovers(void **state)
                      MITILOG_OK);
     assert_int_equal(pg->prepare(c, "commit", "COMMIT", &commit, &error), MITILOG_OK);
     assert_int_equal(pg->prepare(c, "rollback", "ROLLBACK", &rollback, &error), MITILOG_OK);
+    /* A session setting (the writer's durability) outlives the session. */
+    run(c, "-- durability\nSET synchronous_commit = off;");
     long long pid = query_integer(c, "SELECT pg_backend_pid()");
     int has_row = 0;
     assert_int_equal(pg->step(begin, &has_row, &error), MITILOG_OK);
@@ -480,6 +482,9 @@ static void a_lost_connection_commits_nothing_and_recovers(void **state)
     pg->reset(commit);
     assert_int_equal(query_integer(other, "SELECT count(*) FROM lost_test"), 1);
     assert_int_equal(query_integer(other, "SELECT min(value) FROM lost_test"), 3);
+    assert_int_not_equal(query_integer(c, "SELECT pg_backend_pid()"), pid);
+    assert_int_equal(
+        query_integer(c, "SELECT (current_setting('synchronous_commit') = 'off')::int"), 1);
     /* changes(): rows of the last INSERT, UPDATE or DELETE; a SELECT
      * keeps it (sqlite.org/c3ref/changes.html). */
     run(other, "UPDATE lost_test SET value = value");
