@@ -3,6 +3,7 @@
 #include <arpa/inet.h>
 #include <errno.h>
 #include <ini.h>
+#include <libpq-fe.h>
 #include <limits.h>
 #include <stddef.h>
 #include <stdio.h>
@@ -341,6 +342,30 @@ static void config_validate(load_state *state)
                  "engine = postgresql needs connection, e.g. 'host=127.0.0.1 port=5432 "
                  "dbname=mitilog user=mitilog'");
         config_problem(state, "storage", "engine", reason);
+    }
+    /* The connection strings' syntax, by libpq itself (the server is
+     * asked only by check-config and at start). */
+    const char *connections[][2] = {{"connection", config->storage_connection},
+                                    {"read_connection", config->storage_read_connection}};
+    for (size_t i = 0; postgresql && i < 2; i++) {
+        if (connections[i][1][0] == '\0')
+            continue;
+        char *message = NULL;
+        PQconninfoOption *parsed = PQconninfoParse(connections[i][1], &message);
+        if (parsed == NULL) {
+            size_t message_length = message != NULL ? strlen(message) : 0;
+            while (message_length > 0 && message[message_length - 1] == '\n')
+                message_length--;
+            snprintf(reason, reason_size,
+                     "not a libpq connection string (%.*s); write key=value pairs "
+                     "('host=db.example port=5432 dbname=mitilog user=mitilog') or a URI "
+                     "('postgresql://mitilog@db.example/mitilog')",
+                     (int)(message_length < 200 ? message_length : 200),
+                     message != NULL ? message : "");
+            config_problem(state, "storage", connections[i][0], reason);
+        }
+        PQfreemem(message);
+        PQconninfoFree(parsed);
     }
     if (!postgresql && config->storage_connection[0] != '\0') {
         snprintf(reason, reason_size,

@@ -129,6 +129,12 @@ static void storage_engine_and_connections(void **state)
                       "bad.ini:2: [storage] connection: connection is used only with engine");
     assert_load_error("[storage]\nread_connection = host=db\n",
                       "bad.ini:2: [storage] read_connection: read_connection is used only");
+    /* libpq's own parser says what is wrong (section 34.1.1). */
+    assert_load_error("[storage]\nengine = postgresql\nconnection = host db.example\n",
+                      "bad.ini:3: [storage] connection: not a libpq connection string");
+    assert_load_error("[storage]\nengine = postgresql\nconnection = host=db\n"
+                      "read_connection = hostaddr=1.2.3.4 colour=blue\n",
+                      "bad.ini:4: [storage] read_connection: not a libpq connection string");
 
     const char *path = write_config(
         "postgresql.ini",
