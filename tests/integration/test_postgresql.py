@@ -231,3 +231,56 @@ def test_three_receivers_start_together_and_share_one_database(daemon_factory, s
         assert set(statuses.values()) == {"Success"}, statuses
     present = stored(conninfo)
     assert set(present) == {rows[f]["sop_instance_uid"] for f in sum(mine, [])}
+
+
+# What PostgreSQL's schema has beyond SQLite's, on purpose
+# (sql/migrations/postgresql/012_baseline.sql says why).
+POSTGRESQL_ONLY_TABLES = {"instance_keys", "schema_version"}
+POSTGRESQL_ONLY_COLUMNS = {("instance_headers", "first_received_at"),
+                           ("sr_values", "first_received_at"),
+                           ("policies", "row_order")}
+
+
+def test_both_engines_have_the_same_tables_and_columns(tmp_path, server):
+    """The PostgreSQL baseline plus the later common migrations give the
+    tables, views and columns the SQLite migrations give (design rule:
+    one schema, two dialects), so that a migration written for one engine
+    only is noticed."""
+    conninfo = new_database(server, "t_schema")
+    folder = tmp_path / "empty"
+    folder.mkdir()
+    configs = {}
+    for engine, storage in (("sqlite", ""), ("postgresql", "engine = postgresql\n"
+                                                           "connection = %s\n" % conninfo)):
+        configs[engine] = tmp_path / ("%s.ini" % engine)
+        configs[engine].write_text("[storage]\ndata_directory = %s\n%s"
+                                   % (tmp_path / ("var-" + engine), storage))
+        # An import of nothing opens the store, which makes the schema.
+        result = subprocess.run([BINARY, "import", "--config", str(configs[engine]),
+                                 str(folder)], stdout=subprocess.PIPE,
+                                stderr=subprocess.PIPE, text=True, timeout=120)
+        assert result.returncode == 0, result.stderr
+    import sqlite3
+    with sqlite3.connect(str(tmp_path / "var-sqlite" / "mitilog.sqlite3")) as db:
+        names = [n for (n,) in db.execute(
+            "SELECT name FROM sqlite_master WHERE type IN ('table', 'view') "
+            "AND name NOT LIKE 'sqlite_%'")]
+        sqlite_columns = {(n, c) for n in names
+                          for (_, c, *_rest) in db.execute("PRAGMA table_info(\"%s\")" % n)}
+    postgresql_columns = set(tuple(row.split("|")) for row in psql(
+        conninfo,
+        "SELECT c.relname, a.attname FROM pg_class c "
+        "JOIN pg_namespace n ON n.oid = c.relnamespace AND n.nspname = 'public' "
+        "JOIN pg_attribute a ON a.attrelid = c.oid AND a.attnum > 0 AND NOT a.attisdropped "
+        "WHERE c.relkind IN ('r', 'p', 'v') AND NOT c.relispartition"))
+    postgresql_columns = {(t, c) for t, c in postgresql_columns
+                          if t not in POSTGRESQL_ONLY_TABLES
+                          and (t, c) not in POSTGRESQL_ONLY_COLUMNS}
+    # Not vacuous: the instances table alone has ninety columns.
+    assert len({c for t, c in sqlite_columns if t == "instances"}) > 80
+    assert sorted(sqlite_columns - postgresql_columns) == []
+    assert sorted(postgresql_columns - sqlite_columns) == []
+    # And the same schema version.
+    assert psql(conninfo, "SELECT version FROM schema_version") == [
+        str(sqlite3.connect(str(tmp_path / "var-sqlite" / "mitilog.sqlite3")).execute(
+            "PRAGMA user_version").fetchone()[0])]
