@@ -17,9 +17,9 @@
  * request reconnects (PQreset) and prepares its statement again, so that
  * a receiver recovers by itself once the server is back. A transaction
  * that was open when the server went away is gone with it: until the
- * caller ends it (ROLLBACK) or begins another (BEGIN), every statement of
- * the connection fails as lost, and its COMMIT in particular, so that
- * nothing of it is ever reported committed. A COMMIT that PostgreSQL
+ * caller ends it (ROLLBACK, or a COMMIT, which fails) or begins another
+ * (BEGIN), every statement of the connection fails as lost, and its
+ * COMMIT in particular, so that nothing of it is ever reported committed. A COMMIT that PostgreSQL
  * turns into a rollback (the transaction had failed) is an error too.
  *
  * Ownership: open() gives a connection freed by close(); prepare() gives
@@ -223,6 +223,11 @@ static mitilog_status store_pg_ensure(store_connection *c, store_pg_kind kind, c
 {
     if (c->broken && kind != STORE_PG_KIND_BEGIN && kind != STORE_PG_KIND_ROLLBACK) {
         c->lost = 1;
+        /* A COMMIT fails, and ends the lost transaction for its caller
+         * (in_transaction is 0 from here), so that the connection's next
+         * request, a read in particular, connects again. */
+        if (kind == STORE_PG_KIND_COMMIT)
+            c->broken = 0;
         return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
                                  "%s: the PostgreSQL server went away during this transaction, "
                                  "which was not committed; it must be rolled back and written "

@@ -466,6 +466,10 @@ static void a_lost_connection_commits_nothing_and_recovers(void **state)
     assert_int_not_equal(pg->step(commit, &has_row, &error), MITILOG_OK);
     assert_int_equal(pg->connection_lost(c), 1);
     pg->reset(commit);
+    /* The failed COMMIT ended the lost transaction: a read connects again
+     * (a dashboard's connection after its snapshot was lost). */
+    assert_int_equal(query_integer(c, "SELECT 5"), 5);
+    assert_int_equal(pg->connection_lost(c), 0);
     assert_int_equal(pg->step(rollback, &has_row, &error), MITILOG_OK);
     pg->reset(rollback);
 
