@@ -154,6 +154,9 @@ def test_server_killed_mid_ingest_answers_a700_and_recovers(daemon_factory, serv
     # Back: the receiver connects again by itself, no restart.
     again = storescu_statuses(daemon.dicom_port, files[120:125])
     assert set(again.values()) == {"Success"}, again
+    # The dashboard's reads recover too (their connection was lost alike).
+    assert daemon.get("/healthz")[0] == 200
+    assert daemon.get("/api/v1/studies")[0] == 200
     daemon.allow_errors_since(mark)
 
     # Nothing acknowledged is lost: every Success of the whole run is a
