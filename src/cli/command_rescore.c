@@ -110,7 +110,7 @@ int command_rescore(int argc, char **argv)
         exit_status = EXIT_STATUS_USAGE;
         goto done;
     }
-    if (store_open(config.database_path, (int)config.busy_timeout_ms, &st, &error) != MITILOG_OK ||
+    if (cli_open_store(&config, &st, &error) != MITILOG_OK ||
         store_set_site(st, config.receiver_site, &error) != MITILOG_OK)
         goto failed;
     if (read_pixels) {

@@ -36,6 +36,15 @@ typedef struct store store;
  * the migrations in sql/migrations in order and records the schema version
  * in PRAGMA user_version. busy_timeout_ms bounds waits on a locked file. */
 mitilog_status store_open(const char *path, int busy_timeout_ms, store **out, mitilog_error *error);
+/* Opens the store on a PostgreSQL server: connection (libpq's conninfo)
+ * for the writes and the schema (store_engine_postgresql.h: baseline,
+ * later migrations, month partitions, under an advisory lock so that
+ * receivers starting together migrate once); read_connection (a replica,
+ * or NULL/"" for connection itself) for the reads, in read-only sessions.
+ * When the server goes away, writes fail (the receiver answers A700) and
+ * the next request connects again. busy_timeout_ms bounds lock waits. */
+mitilog_status store_open_postgresql(const char *connection, const char *read_connection,
+                                     int busy_timeout_ms, store **out, mitilog_error *error);
 /* Finishes pending writes, checkpoints the WAL and closes. NULL is fine. */
 void store_close(store *store);
 

@@ -13,6 +13,7 @@
 #include "json/json.h"
 #include "store/store_exams.h"
 #include "store/sql_files.h"
+#include "store/store_engine_postgresql.h"
 #include "store/store_engine_sqlite.h"
 #include "util/log.h"
 
@@ -191,13 +192,19 @@ static mitilog_status store_configure_writer(store_link *link, const char *path,
     return store_link_script(link, "queries/database/pragma_writer.sql", error);
 }
 
-mitilog_status store_open(const char *path, int busy_timeout_ms, store **out, mitilog_error *error)
+/* Opens the store on engine: target (an SQLite path, a PostgreSQL
+ * conninfo) for the writer, read_target for the read connection. */
+static mitilog_status store_open_engine(const store_engine *engine, const char *target,
+                                        const char *read_target, int busy_timeout_ms, store **out,
+                                        mitilog_error *error)
 {
     if (out == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_open: no result pointer");
     *out = NULL;
-    if (path == NULL || path[0] == '\0')
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_open: no database path");
+    int postgresql = engine == &store_engine_postgresql;
+    /* Messages name the SQLite file; never a conninfo (it may hold a
+     * password). */
+    const char *path = postgresql ? "(PostgreSQL)" : target;
     store *opened = calloc(1, sizeof *opened);
     if (opened == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory opening %s", path);
@@ -207,18 +214,40 @@ mitilog_status store_open(const char *path, int busy_timeout_ms, store **out, mi
     opened->exam_job_settle_ms = STORE_EXAM_JOB_SETTLE_MS;
     opened->exam_job_max_wait_ms = STORE_EXAM_JOB_MAX_WAIT_MS;
 
-    const store_engine *engine = &store_engine_sqlite;
     mitilog_status status =
-        store_link_open(&opened->writer, engine, path, 0, busy_timeout_ms, error);
-    if (status == MITILOG_OK)
+        store_link_open(&opened->writer, engine, target, 0, busy_timeout_ms, error);
+    if (status == MITILOG_OK && postgresql) {
+        /* Receivers starting together migrate and sync the vocabulary
+         * once: one after the other under the advisory lock (SQLite's
+         * BEGIN IMMEDIATE serialises them; PostgreSQL's BEGIN does not). */
+        status = store_postgresql_lock(opened->writer.connection, error);
+        if (status == MITILOG_OK) {
+            status = store_postgresql_migrate(opened->writer.connection, busy_timeout_ms,
+                                              &opened->schema_version, error);
+            if (status == MITILOG_OK)
+                status =
+                    store_link_script(&opened->writer, "queries/database/pragma_writer.sql", error);
+            if (status == MITILOG_OK)
+                status = store_exams_sync_vocabulary(&opened->writer, path, error);
+            mitilog_error unlock_error;
+            if (store_postgresql_unlock(opened->writer.connection, busy_timeout_ms,
+                                        &unlock_error) != MITILOG_OK &&
+                status == MITILOG_OK) {
+                status = MITILOG_ERROR_DATABASE;
+                if (error != NULL)
+                    *error = unlock_error;
+            }
+        }
+    }
+    if (status == MITILOG_OK && !postgresql)
         status = store_configure_writer(&opened->writer, path, error);
-    if (status == MITILOG_OK)
+    if (status == MITILOG_OK && !postgresql)
         status = store_migrate(&opened->writer, path, &opened->schema_version, error);
-    if (status == MITILOG_OK)
+    if (status == MITILOG_OK && !postgresql)
         status = store_exams_sync_vocabulary(&opened->writer, path, error);
     /* The read connection is opened after the migrations, read-only. */
     if (status == MITILOG_OK)
-        status = store_link_open(&opened->reader, engine, path, 1, busy_timeout_ms, error);
+        status = store_link_open(&opened->reader, engine, read_target, 1, busy_timeout_ms, error);
     if (status == MITILOG_OK)
         status = store_link_script(&opened->reader, "queries/database/pragma_reader.sql", error);
     if (status != MITILOG_OK) {
@@ -227,6 +256,31 @@ mitilog_status store_open(const char *path, int busy_timeout_ms, store **out, mi
     }
     *out = opened;
     return MITILOG_OK;
+}
+
+mitilog_status store_open(const char *path, int busy_timeout_ms, store **out, mitilog_error *error)
+{
+    if (path == NULL || path[0] == '\0') {
+        if (out != NULL)
+            *out = NULL;
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_open: no database path");
+    }
+    return store_open_engine(&store_engine_sqlite, path, path, busy_timeout_ms, out, error);
+}
+
+mitilog_status store_open_postgresql(const char *connection, const char *read_connection,
+                                     int busy_timeout_ms, store **out, mitilog_error *error)
+{
+    if (connection == NULL || connection[0] == '\0') {
+        if (out != NULL)
+            *out = NULL;
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "no PostgreSQL connection string: set [storage] connection");
+    }
+    const char *reads =
+        read_connection != NULL && read_connection[0] != '\0' ? read_connection : connection;
+    return store_open_engine(&store_engine_postgresql, connection, reads, busy_timeout_ms, out,
+                             error);
 }
 
 void store_close(store *st)

@@ -923,8 +923,13 @@ static void statement_layer_binds_and_caches(void **state)
     assert_non_null(strstr(query.error.text, "queries/no_such/file.sql"));
     store_query_end(&query);
 
+    /* PostgreSQL's own text where it has one (the instance upsert), the
+     * common one for an engine without its own. */
     store_engine other = store_engine_sqlite;
     other.name = "postgresql";
+    assert_ptr_equal(store_sql_text(&other, "queries/instances/instance_upsert.sql"),
+                     sql_file_text("queries/instances/postgresql/instance_upsert.sql"));
+    other.name = "another";
     assert_ptr_equal(store_sql_text(&other, "queries/findings/findings.sql"),
                      sql_file_text("queries/findings/findings.sql"));
     assert_null(store_sql_text(&other, "queries/findings/no_such.sql"));

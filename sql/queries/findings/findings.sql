@@ -30,9 +30,9 @@ candidates AS (
 chosen AS (
     SELECT f.*, substr(coalesce(f.started_at, e.first_acquired_at, f.period), 1, 10) AS day
     FROM candidates f LEFT JOIN exams e ON e.study_instance_uid = f.study_instance_uid
-    WHERE (?3 IS NULL OR f.severity = ?3) AND (?4 IS NULL OR f.rule_id = ?4)
-      AND (?5 IS NULL OR f.room = ?5) AND (?6 IS NULL OR f.preset = ?6)
-      AND (?7 IS NULL OR f.shift = ?7)
+    WHERE (CAST(?3 AS TEXT) IS NULL OR f.severity = ?3) AND (CAST(?4 AS TEXT) IS NULL OR f.rule_id = ?4)
+      AND (CAST(?5 AS TEXT) IS NULL OR f.room = ?5) AND (CAST(?6 AS TEXT) IS NULL OR f.preset = ?6)
+      AND (CAST(?7 AS TEXT) IS NULL OR f.shift = ?7)
       AND (:site_count = 0 OR f.study_instance_uid IN (
           SELECT x.study_instance_uid FROM exam_summaries x
           WHERE (:site_count = 0 OR x.site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
@@ -54,5 +54,5 @@ SELECT coalesce(json_group_array(json(document)), '[]') FROM (
         'site', (SELECT min(x.site) FROM exam_summaries x
                  WHERE x.study_instance_uid = chosen.study_instance_uid)) AS document
     FROM chosen
-    WHERE (?1 IS NULL OR day >= ?1) AND (?2 IS NULL OR day <= ?2)
+    WHERE (CAST(?1 AS TEXT) IS NULL OR day >= ?1) AND (CAST(?2 AS TEXT) IS NULL OR day <= ?2)
     ORDER BY day DESC, id DESC LIMIT (SELECT row_limit FROM asked));

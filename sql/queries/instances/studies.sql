@@ -92,8 +92,8 @@ SELECT json_group_array(json_object(
         'age_group', 'first instance')))
 FROM (
     SELECT * FROM studies
-    WHERE (?1 IS NULL OR substr(first_effective_at, 1, 10) >= ?1)
-      AND (?2 IS NULL OR substr(first_effective_at, 1, 10) <= ?2)
+    WHERE (CAST(?1 AS TEXT) IS NULL OR substr(first_effective_at, 1, 10) >= ?1)
+      AND (CAST(?2 AS TEXT) IS NULL OR substr(first_effective_at, 1, 10) <= ?2)
       AND (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
           :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
     ORDER BY first_effective_at, study_instance_uid) AS s
