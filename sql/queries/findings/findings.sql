@@ -16,7 +16,7 @@
 WITH asked AS (
     -- ?9 first: a named parameter takes the number after the highest one
     -- seen before it, so every ?N comes before :site_count in the text.
-    SELECT ?9 AS row_limit
+    SELECT CAST(?9 AS INTEGER) AS row_limit
 ),
 candidates AS (
     SELECT f.* FROM findings f

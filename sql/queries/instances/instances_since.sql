@@ -9,7 +9,7 @@
 WITH asked AS (
     -- ?1 and ?2 first: a named parameter takes the number after the
     -- highest one seen before it in the text.
-    SELECT ?1 AS since, ?2 AS row_limit
+    SELECT CAST(?1 AS TEXT) AS since, CAST(?2 AS INTEGER) AS row_limit
 )
 SELECT json_group_array(json(document))
 FROM (
