@@ -22,6 +22,14 @@ CREATE TABLE IF NOT EXISTS "exam_context" (
     last_received_at    TEXT,
     closed              INTEGER NOT NULL DEFAULT 0 CHECK (closed = 0 OR closed = 1)
 ) STRICT;
+CREATE TABLE exam_jobs (
+    study_instance_uid  TEXT PRIMARY KEY,
+    first_marked_at     BIGINT NOT NULL,  -- first mark of the burst
+    due_at              BIGINT NOT NULL,  -- last mark + quiet period, at most first + longest wait
+    generation          BIGINT NOT NULL DEFAULT 1,
+    taken_by            TEXT,             -- the receiver rebuilding it; NULL: waiting
+    taken_at            BIGINT
+);
 CREATE TABLE exam_measurement_time_at_or_above (
     study_instance_uid TEXT NOT NULL,
     policy_version     TEXT NOT NULL,
@@ -81,7 +89,7 @@ CREATE TABLE exam_summaries (
     min_received_at     TEXT,
     captures            INTEGER NOT NULL,
     indexed_count       INTEGER NOT NULL,
-    finding_count       INTEGER NOT NULL,
+    finding_count       INTEGER NOT NULL, site TEXT NOT NULL DEFAULT 'main',
     PRIMARY KEY (day, study_instance_uid)
 ) STRICT, WITHOUT ROWID;
 CREATE TABLE exam_time_at_or_above (
@@ -265,7 +273,7 @@ CREATE TABLE IF NOT EXISTS "instances" (
         CHECK (text_replaced = 0 OR text_replaced = 1),
     modes_image_type               INTEGER NOT NULL DEFAULT 0,  -- Image Type value 4
     modes_regions                  INTEGER NOT NULL DEFAULT 0,  -- Region Data Types
-    modes_sr                       INTEGER NOT NULL DEFAULT 0, accession_number TEXT,  -- SR mode containers
+    modes_sr                       INTEGER NOT NULL DEFAULT 0, accession_number TEXT, site TEXT NOT NULL DEFAULT 'main',  -- SR mode containers
 
     -- A status is one of three words, and a value is present exactly when
     -- its text was one well-formed number.
@@ -328,7 +336,7 @@ CREATE TABLE rejections (
     source_path       TEXT NOT NULL,  -- imported path, or ''
     quarantine_path   TEXT NOT NULL,  -- '' when the bytes were not kept
     reason            TEXT NOT NULL
-) STRICT;
+, site TEXT NOT NULL DEFAULT 'main') STRICT;
 CREATE TABLE reviews (
     id                  INTEGER PRIMARY KEY,
     study_instance_uid  TEXT,        -- NULL only for a device-level finding
@@ -406,6 +414,8 @@ CREATE TABLE IF NOT EXISTS "sr_values" (
 CREATE TABLE ti_thresholds (
     threshold REAL PRIMARY KEY CHECK (threshold > 0)
 ) STRICT, WITHOUT ROWID;
+CREATE INDEX exam_jobs_due ON exam_jobs (due_at);
+CREATE INDEX exam_summaries_site_day ON exam_summaries (site, day);
 CREATE UNIQUE INDEX exam_summaries_study ON exam_summaries (study_instance_uid);
 CREATE INDEX exam_summaries_with_findings ON exam_summaries (day) WHERE finding_count > 0;
 CREATE INDEX exam_time_at_or_above_study ON exam_time_at_or_above (study_instance_uid);
@@ -417,8 +427,10 @@ CREATE INDEX findings_period ON findings (superseded, started_at);
 CREATE INDEX findings_study ON findings (study_instance_uid, superseded);
 CREATE INDEX instances_day ON instances (substr(coalesce(acquired_at, received_at), 1, 10));
 CREATE INDEX instances_received ON instances (received_at);
+CREATE INDEX instances_site ON instances (site, received_at);
 CREATE INDEX instances_study ON instances (study_instance_uid, acquired_at);
 CREATE INDEX rejections_received ON rejections (received_at);
+CREATE INDEX rejections_site ON rejections (site, received_at);
 CREATE INDEX reviews_finding ON reviews (finding_id, id) WHERE finding_id IS NOT NULL;
 CREATE INDEX reviews_study ON reviews (study_instance_uid, id);
 CREATE INDEX reviews_time ON reviews (reviewed_at);

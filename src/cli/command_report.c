@@ -57,7 +57,7 @@ int command_report(int argc, char **argv)
     const char *config_path = NULL, *output = NULL;
     report_format format = is_week ? REPORT_HTML : REPORT_CSV;
     report_week_request week = report_week_default_request();
-    report_stats_request stats = {NULL, NULL, STATS_BY_EXAM_TYPE, NULL};
+    report_stats_request stats = {NULL, NULL, STATS_BY_EXAM_TYPE, NULL, NULL};
     long value = 0;
     for (int i = 2; i < argc; i++) {
         const char *option = argv[i];

@@ -12,6 +12,7 @@
 
 #include "config/config_paths.h"
 #include "config/config_peers.h"
+#include "exam/exam.h"
 
 /* One row per key: the single description of the configuration. It parses
  * the file, checks bounds, prints the effective values, and is what
@@ -134,6 +135,10 @@ static const option options[] = {
     {"reading", "cine_frames", OPTION_UNSIGNED, FIELD(reading_cine_frames), "3", 1, 64, NULL, 0,
      "Frames of a cine read (first, last and evenly between); a value is kept only when they "
      "agree."},
+    {"receiver", "site", OPTION_STRING, FIELD(receiver_site), EXAM_SITE_DEFAULT, 0, 0, NULL, 0,
+     "Site name this receiver records on every object and rejection it takes (1-64 "
+     "characters, no comma); receivers of several sites writing one database tell their "
+     "objects apart by it, and every document can be filtered and grouped by it."},
     {"site", "rules", OPTION_STRING, FIELD(site_rules_path), MITILOG_SOURCE_DIR "/conf/site.ini", 0,
      0, NULL, 1,
      "Site file: exam types, rooms, shifts, age groups, SR codes (docs/configuration.md); "
@@ -286,6 +291,8 @@ static void config_validate(load_state *state)
         snprintf(reason, reason_size, "an AE title has 1 to 16 characters and no backslash");
         config_problem(state, "dicom", "ae_title", reason);
     }
+    if (!exam_site_name_check(config->receiver_site, reason, reason_size))
+        config_problem(state, "receiver", "site", reason);
     config_peer *peers = NULL;
     size_t peer_count = 0;
     mitilog_error peer_error;

@@ -66,6 +66,9 @@ typedef struct config {
     unsigned reading_queue_megabytes; /* their spooled bytes at most */
     unsigned reading_cine_frames;     /* frames of a cine read and compared */
 
+    /* [receiver] */
+    char *receiver_site; /* the site recorded on every object received (exam.h) */
+
     /* [site] */
     char *site_rules_path;  /* the site file (conf/site.ini); "" = none */
     char *site_institution; /* name printed on reports; "" = not set */

@@ -153,3 +153,23 @@ exam_index exam_governing_index(exam_governing rule, int has_gestational_age,
     *source = "exam_type";
     return EXAM_INDEX_TIS;
 }
+
+int exam_site_name_check(const char *text, char *reason, size_t size)
+{
+    const char *problem = NULL;
+    size_t length = text != NULL ? strlen(text) : 0;
+    if (length == 0 || length > EXAM_SITE_MAX)
+        problem = "a site name has 1 to 64 characters";
+    else if (text[0] == ' ' || text[length - 1] == ' ')
+        problem = "a site name neither starts nor ends with a space";
+    for (size_t i = 0; problem == NULL && i < length; i++) {
+        unsigned char c = (unsigned char)text[i];
+        if (c < 0x20 || c == 0x7f)
+            problem = "a site name has no control characters";
+        else if (c == ',')
+            problem = "a site name has no comma (filters list sites separated by commas)";
+    }
+    if (problem != NULL && reason != NULL && size > 0)
+        snprintf(reason, size, "%s", problem);
+    return problem == NULL;
+}

@@ -310,6 +310,7 @@ typedef struct exam_row {
     const char *day; /* local date of the first capture */
     const char *exam_type, *exam_type_label, *governing_index;
     const char *room, *preset, *shift, *transducer;
+    const char *site; /* of the exam's first instance */
     const char *study_description, *first_acquired_at;
     double max_governing; /* highest governing TI, when has_governing */
     int has_governing;
@@ -339,6 +340,19 @@ enum {
     EXAM_SEVERITY_RANK_WARNING = 2,
     EXAM_SEVERITY_RANK_VIOLATION = 3
 };
+
+/* ---- The site of a receiver ----------------------------------------- */
+
+/* A site names the receiver that took an object ([receiver] site): plain
+ * words of 1 to EXAM_SITE_MAX bytes, no control character, no comma (a
+ * filter lists sites separated by commas), no space at either end.
+ * Every instance and rejection records it; an exam belongs to the site
+ * of its first instance. Filters name at most EXAM_SITES_MAX sites. */
+enum { EXAM_SITE_MAX = 64, EXAM_SITES_MAX = 16 };
+#define EXAM_SITE_DEFAULT "main"
+/* 1 when text is a valid site name, else 0 with the rule broken in
+ * reason (reason may be NULL). */
+int exam_site_name_check(const char *text, char *reason, size_t size);
 
 /* ---- One capture of an exam ----------------------------------------- */
 

@@ -101,7 +101,9 @@ typedef enum http_parameter_kind {
     HTTP_PARAMETER_INTEGER, /* decimal in [minimum, maximum]; number         */
     HTTP_PARAMETER_UID,     /* digits and dots, 1 to 64 (PS3.5 9.1)          */
     HTTP_PARAMETER_TEXT,    /* 1 to 128 bytes, no control characters        */
-    HTTP_PARAMETER_CHOICE   /* one of choices, "a|b|c"                       */
+    HTTP_PARAMETER_CHOICE,  /* one of choices, "a|b|c"                       */
+    HTTP_PARAMETER_SITES    /* site names (exam.h), the parameter repeated or
+                               names separated by commas; sites          */
 } http_parameter_kind;
 
 typedef struct http_parameter_rule {
@@ -116,6 +118,8 @@ typedef struct http_parameter_value {
     long number;      /* INTEGER: the value; DATE: days since 1970-01-01 */
     int iso_year, iso_week;
     char instant[HTTP_INSTANT_SIZE]; /* INSTANT: "YYYY-MM-DDThh:mm:ss.sssZ", UTC */
+    store_sites sites;               /* SITES: names point into site_text */
+    char site_text[EXAM_SITES_MAX * (EXAM_SITE_MAX + 1)];
 } http_parameter_value;
 
 /* Reads rules[i].name into values[i] for each rule; 1 when all present

@@ -220,9 +220,73 @@ static int http_check(const http_parameter_rule *rule, const char *text,
             message[used] = '\0';
             return 0;
         }
+    case HTTP_PARAMETER_SITES: break; /* http_sites_add() */
     }
     snprintf(message, size, "unknown rule");
     return 0;
+}
+
+/* Adds the names of one site= value (names separated by commas, spaces
+ * around them dropped) to value->sites; 1 if good, else 0 with the rule
+ * broken in message. */
+static int http_sites_add(const char *text, http_parameter_value *value, char *message, size_t size)
+{
+    const char *at = text;
+    for (;;) {
+        size_t length = strcspn(at, ",");
+        const char *start = at;
+        while (length > 0 && *start == ' ') {
+            start++;
+            length--;
+        }
+        while (length > 0 && start[length - 1] == ' ')
+            length--;
+        if (value->sites.count == EXAM_SITES_MAX) {
+            snprintf(message, size, "at most %d sites", EXAM_SITES_MAX);
+            return 0;
+        }
+        char name[EXAM_SITE_MAX + 2];
+        char reason[128];
+        if (length > EXAM_SITE_MAX)
+            length = EXAM_SITE_MAX + 1; /* too long: the check says so */
+        memcpy(name, start, length);
+        name[length] = '\0';
+        if (!exam_site_name_check(name, reason, sizeof reason)) {
+            snprintf(message, size, "%s", reason);
+            return 0;
+        }
+        char *kept = value->site_text + value->sites.count * (EXAM_SITE_MAX + 1);
+        memcpy(kept, name, length + 1);
+        value->sites.names[value->sites.count++] = kept;
+        at += strcspn(at, ",");
+        if (*at == '\0')
+            return 1;
+        at++;
+    }
+}
+
+/* Every value of one repeated parameter, for http_sites_collect(). */
+typedef struct http_sites_walk {
+    const char *name;
+    http_parameter_value *value;
+    char message[256];
+    int failed;
+} http_sites_walk;
+
+static enum MHD_Result http_sites_collect(void *context, enum MHD_ValueKind kind, const char *key,
+                                          const char *text)
+{
+    (void)kind;
+    http_sites_walk *walk = context;
+    if (walk->failed || key == NULL || strcmp(key, walk->name) != 0)
+        return MHD_YES;
+    if (text == NULL)
+        text = "";
+    if (walk->value->text == NULL)
+        walk->value->text = text;
+    if (!http_sites_add(text, walk->value, walk->message, sizeof walk->message))
+        walk->failed = 1;
+    return MHD_YES;
 }
 
 int http_parameters_read(http_server *server, struct MHD_Connection *connection,
@@ -231,6 +295,16 @@ int http_parameters_read(http_server *server, struct MHD_Connection *connection,
 {
     for (size_t i = 0; i < count; i++) {
         memset(&values[i], 0, sizeof values[i]);
+        if (rules[i].kind == HTTP_PARAMETER_SITES) {
+            http_sites_walk walk = {rules[i].name, &values[i], "", 0};
+            MHD_get_connection_values(connection, MHD_GET_ARGUMENT_KIND, http_sites_collect, &walk);
+            if (walk.failed) {
+                *reply = http_error_reply(server, MHD_HTTP_BAD_REQUEST, "parameter %s: %s",
+                                          rules[i].name, walk.message);
+                return 0;
+            }
+            continue;
+        }
         values[i].text =
             MHD_lookup_connection_value(connection, MHD_GET_ARGUMENT_KIND, rules[i].name);
         if (values[i].text == NULL)

@@ -51,16 +51,17 @@ static http_reply http_studies(http_server *server, struct MHD_Connection *conne
     static const http_parameter_rule rules[] = {
         {"from", HTTP_PARAMETER_DATE, 0, 0, NULL},
         {"to", HTTP_PARAMETER_DATE, 0, 0, NULL},
+        {"site", HTTP_PARAMETER_SITES, 0, 0, NULL},
     };
-    http_parameter_value values[2];
+    http_parameter_value values[3];
     http_reply reply;
-    if (!http_parameters_read(server, connection, rules, 2, values, &reply) ||
+    if (!http_parameters_read(server, connection, rules, 3, values, &reply) ||
         !http_parameters_period(server, &values[0], &values[1], &reply))
         return reply;
     char *json = NULL;
     mitilog_error error = {{0}};
-    mitilog_status status =
-        store_studies_json(server->store, values[0].text, values[1].text, &json, &error);
+    mitilog_status status = store_studies_json(server->store, values[0].text, values[1].text,
+                                               &values[2].sites, &json, &error);
     return http_status_reply(server, status, json, NULL, &error);
 }
 

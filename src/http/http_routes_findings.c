@@ -30,6 +30,7 @@ static http_reply http_findings(http_server *server, struct MHD_Connection *conn
         {"shift", HTTP_PARAMETER_TEXT, 0, 0, NULL},
         {"include_superseded", HTTP_PARAMETER_CHOICE, 0, 0, "0|1"},
         {"limit", HTTP_PARAMETER_INTEGER, 1, HTTP_FINDINGS_LIMIT_MAX, NULL},
+        {"site", HTTP_PARAMETER_SITES, 0, 0, NULL},
     };
     enum { COUNT = sizeof rules / sizeof rules[0] };
     http_parameter_value values[COUNT];
@@ -47,6 +48,7 @@ static http_reply http_findings(http_server *server, struct MHD_Connection *conn
     filter.shift = values[6].text;
     filter.include_superseded = values[7].text != NULL && values[7].text[0] == '1';
     filter.limit = values[8].text != NULL ? values[8].number : 0;
+    filter.sites = &values[9].sites;
     char *json = NULL;
     mitilog_error error = {{0}};
     mitilog_status status = store_findings_json(server->store, &filter, &json, &error);

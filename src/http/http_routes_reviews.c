@@ -155,22 +155,23 @@ static http_reply http_worklist(http_server *server, struct MHD_Connection *conn
 {
     static const http_parameter_rule rules[] = {
         {"week", HTTP_PARAMETER_WEEK, 0, 0, NULL},
+        {"site", HTTP_PARAMETER_SITES, 0, 0, NULL},
     };
-    http_parameter_value values[1];
+    http_parameter_value values[2];
     http_reply reply;
-    if (!http_parameters_read(server, connection, rules, 1, values, &reply))
+    if (!http_parameters_read(server, connection, rules, 2, values, &reply))
         return reply;
     char monday[11];
     int year = values[0].iso_year, week = values[0].iso_week;
     if (values[0].text == NULL)
-        report_default_week(server->store, &year, &week); /* one rule: report.h */
+        report_default_week(server->store, &values[1].sites, &year, &week); /* one rule: report.h */
     long day = 0;
     stats_iso_week_monday(year, week, &day);
     stats_day_text(day, monday);
     char *json = NULL;
     mitilog_error error = {{0}};
-    mitilog_status status =
-        store_worklist_json(server->store, monday, values[0].text == NULL, &json, &error);
+    mitilog_status status = store_worklist_json(server->store, monday, values[0].text == NULL,
+                                                &values[1].sites, &json, &error);
     return http_status_reply(server, status, json, NULL, &error);
 }
 
@@ -206,16 +207,17 @@ static http_reply http_operators(http_server *server, struct MHD_Connection *con
     static const http_parameter_rule rules[] = {
         {"from", HTTP_PARAMETER_DATE, 0, 0, NULL},
         {"to", HTTP_PARAMETER_DATE, 0, 0, NULL},
+        {"site", HTTP_PARAMETER_SITES, 0, 0, NULL},
     };
-    http_parameter_value values[2];
+    http_parameter_value values[3];
     http_reply reply;
-    if (!http_parameters_read(server, connection, rules, 2, values, &reply) ||
+    if (!http_parameters_read(server, connection, rules, 3, values, &reply) ||
         !http_parameters_period(server, &values[0], &values[1], &reply))
         return reply;
     char *json = NULL;
     mitilog_error error = {{0}};
-    mitilog_status status =
-        store_operators_json(server->store, values[0].text, values[1].text, &json, &error);
+    mitilog_status status = store_operators_json(server->store, values[0].text, values[1].text,
+                                                 &values[2].sites, &json, &error);
     return http_status_reply(server, status, json, NULL, &error);
 }
 

@@ -10,7 +10,7 @@
 
 #include "report/report.h"
 
-#define HTTP_DIMENSIONS "exam_type|room|preset|shift|transducer"
+#define HTTP_DIMENSIONS "exam_type|room|preset|shift|transducer|site"
 
 /* The reply to a report call: the one mapping of http_server.c, with the
  * CSV content type when CSV was asked for. */
@@ -41,6 +41,7 @@ static http_reply http_outliers(http_server *server, struct MHD_Connection *conn
         {"minimum", HTTP_PARAMETER_INTEGER, 1, 100000, NULL},
         {"exams", HTTP_PARAMETER_CHOICE, 0, 0, "all|listed"},
         {"format", HTTP_PARAMETER_CHOICE, 0, 0, "json|csv"},
+        {"site", HTTP_PARAMETER_SITES, 0, 0, NULL},
     };
     enum { COUNT = sizeof rules / sizeof rules[0] };
     http_parameter_value values[COUNT];
@@ -48,6 +49,7 @@ static http_reply http_outliers(http_server *server, struct MHD_Connection *conn
     if (!http_parameters_read(server, connection, rules, COUNT, values, &reply))
         return reply;
     report_week_request request = report_week_default_request();
+    request.sites = &values[6].sites;
     if (values[0].text != NULL) {
         request.iso_year = values[0].iso_year;
         request.iso_week = values[0].iso_week;
@@ -76,6 +78,7 @@ static http_reply http_stats(http_server *server, struct MHD_Connection *connect
         {"to", HTTP_PARAMETER_DATE, 0, 0, NULL},
         {"by", HTTP_PARAMETER_CHOICE, 0, 0, HTTP_DIMENSIONS},
         {"format", HTTP_PARAMETER_CHOICE, 0, 0, "json|csv"},
+        {"site", HTTP_PARAMETER_SITES, 0, 0, NULL},
     };
     enum { COUNT = sizeof rules / sizeof rules[0] };
     http_parameter_value values[COUNT];
@@ -84,7 +87,7 @@ static http_reply http_stats(http_server *server, struct MHD_Connection *connect
         !http_parameters_period(server, &values[0], &values[1], &reply))
         return reply;
     report_stats_request request = {values[0].text, values[1].text, STATS_BY_EXAM_TYPE,
-                                    server->institution};
+                                    server->institution, &values[4].sites};
     if (values[2].text != NULL)
         stats_dimension_parse(values[2].text, &request.by);
     report_format format = http_stats_format(&values[3]);
@@ -101,6 +104,7 @@ static http_reply http_drift(http_server *server, struct MHD_Connection *connect
         {"week", HTTP_PARAMETER_WEEK, 0, 0, NULL},
         {"weeks", HTTP_PARAMETER_INTEGER, 1, 104, NULL},
         {"baseline_weeks", HTTP_PARAMETER_INTEGER, 1, 104, NULL},
+        {"site", HTTP_PARAMETER_SITES, 0, 0, NULL},
     };
     enum { COUNT = sizeof rules / sizeof rules[0] };
     http_parameter_value values[COUNT];
@@ -108,6 +112,7 @@ static http_reply http_drift(http_server *server, struct MHD_Connection *connect
     if (!http_parameters_read(server, connection, rules, COUNT, values, &reply))
         return reply;
     report_drift_request request = report_drift_default_request();
+    request.sites = &values[3].sites;
     if (values[0].text != NULL) {
         request.iso_year = values[0].iso_year;
         request.iso_week = values[0].iso_week;
@@ -130,11 +135,12 @@ static http_reply http_ingest(http_server *server, struct MHD_Connection *connec
         {"hours", HTTP_PARAMETER_INTEGER, 1, 720, NULL},
         {"silent_hours", HTTP_PARAMETER_INTEGER, 1, 720, NULL},
         {"days", HTTP_PARAMETER_INTEGER, 1, 90, NULL},
+        {"site", HTTP_PARAMETER_SITES, 0, 0, NULL},
     };
     const long defaults[] = {48, 24, 7};
-    http_parameter_value values[3];
+    http_parameter_value values[4];
     http_reply reply;
-    if (!http_parameters_read(server, connection, rules, 3, values, &reply))
+    if (!http_parameters_read(server, connection, rules, 4, values, &reply))
         return reply;
     long chosen[3];
     for (int i = 0; i < 3; i++)
@@ -142,7 +148,7 @@ static http_reply http_ingest(http_server *server, struct MHD_Connection *connec
     char *json = NULL;
     mitilog_error error = {{0}};
     mitilog_status status = store_ingest_json(server->store, (int)chosen[0], (int)chosen[1],
-                                              (int)chosen[2], &json, &error);
+                                              (int)chosen[2], &values[3].sites, &json, &error);
     return http_report_reply(server, status, json, &error, REPORT_JSON);
 }
 

@@ -39,8 +39,10 @@ typedef struct report_week_request {
     int iso_year, iso_week;
     stats_dimension group; /* room, preset, shift, transducer, exam_type */
     stats_week_settings settings;
-    int all_exams; /* list every exam of each group, not only
+    int all_exams;            /* list every exam of each group, not only
                                    outliers and exams with findings */
+    const store_sites *sites; /* NULL: every site; else the week, its
+                                 baseline and its default week are theirs */
 } report_week_request;
 
 /* Defaults: latest week, by preset, stats_week_default_settings(). */
@@ -50,7 +52,7 @@ typedef struct report_week_request {
  * exams that ended before the latest day's week; when every exam is in
  * that week, that week). Exam days are those of exam_summaries.day. One
  * rule, here only. */
-void report_default_week(store *store, int *iso_year, int *iso_week);
+void report_default_week(store *store, const store_sites *sites, int *iso_year, int *iso_week);
 
 report_week_request report_week_default_request(void);
 
@@ -60,7 +62,8 @@ mitilog_status report_week(store *store, const report_week_request *request, rep
 typedef struct report_stats_request {
     const char *from, *to; /* YYYY-MM-DD inclusive; NULL: all held */
     stats_dimension by;
-    const char *institution; /* printed on the document; NULL: not configured */
+    const char *institution;  /* printed on the document; NULL: not configured */
+    const store_sites *sites; /* NULL: every site */
 } report_stats_request;
 
 mitilog_status report_stats(store *store, const report_stats_request *request, report_format format,
@@ -69,10 +72,11 @@ mitilog_status report_stats(store *store, const report_stats_request *request, r
 typedef struct report_drift_request {
     int has_week; /* last week shown; 0: the latest held */
     int iso_year, iso_week;
-    size_t weeks;            /* weeks shown, default 12 */
-    size_t baseline_weeks;   /* default 12 */
-    size_t minimum_baseline; /* default 10 */
-    double z_limit;          /* default 3 */
+    size_t weeks;             /* weeks shown, default 12 */
+    size_t baseline_weeks;    /* default 12 */
+    size_t minimum_baseline;  /* default 10 */
+    double z_limit;           /* default 3 */
+    const store_sites *sites; /* NULL: every site */
 } report_drift_request;
 
 report_drift_request report_drift_default_request(void);

@@ -40,6 +40,7 @@ unsigned report_dimension_column(stats_dimension dimension)
     case STATS_BY_PRESET: return STORE_EXAM_PRESET;
     case STATS_BY_SHIFT: return STORE_EXAM_SHIFT;
     case STATS_BY_TRANSDUCER: return STORE_EXAM_TRANSDUCER;
+    case STATS_BY_SITE: return STORE_EXAM_SITE;
     case STATS_BY_EXAM_TYPE: break;
     }
     return 0;
@@ -55,19 +56,20 @@ void report_study_key(const char *study_instance_uid, char key[9])
     }
 }
 
-mitilog_status report_data_load(store *st, const char *from, const char *to, unsigned columns,
-                                unsigned load, report_data *data, mitilog_error *error)
+mitilog_status report_data_load(store *st, const char *from, const char *to,
+                                const store_sites *sites, unsigned columns, unsigned load,
+                                report_data *data, mitilog_error *error)
 {
     memset(data, 0, sizeof *data);
     if (load & REPORT_LOAD_RULES)
         columns |= STORE_EXAM_IDENTITY;
-    mitilog_status status = store_load_exam_rows(st, from, to, columns, &data->list, error);
+    mitilog_status status = store_load_exam_rows(st, from, to, sites, columns, &data->list, error);
     data->rows = data->list.rows;
     data->row_count = data->list.count;
     if (status == MITILOG_OK && (load & REPORT_LOAD_RULES))
-        status = store_load_finding_counts(st, from, to, &data->findings, error);
+        status = store_load_finding_counts(st, from, to, sites, &data->findings, error);
     if (status == MITILOG_OK && (load & REPORT_LOAD_INFO))
-        status = store_load_period_info(st, from, to, &data->info, error);
+        status = store_load_period_info(st, from, to, sites, &data->info, error);
     if (status != MITILOG_OK) {
         report_data_free(data);
         return status;
@@ -93,16 +95,17 @@ mitilog_status report_data_load(store *st, const char *from, const char *to, uns
     return MITILOG_OK;
 }
 
-long report_last_complete_day(store *st)
+long report_last_complete_day(store *st, const store_sites *sites)
 {
     /* The latest exam day, on the same days the weeks are counted on
      * (exam_summaries.day); the first acquisition's day when none. */
     store_span all;
     mitilog_error ignored;
     long latest = -1;
-    if (store_load_baseline_span(st, "0000-01-01", "9999-12-31", &all, &ignored) != MITILOG_OK ||
+    if (store_load_baseline_span(st, "0000-01-01", "9999-12-31", sites, &all, &ignored) !=
+            MITILOG_OK ||
         all.last_day[0] == '\0' || stats_day_number(all.last_day, &latest) != MITILOG_OK)
-        latest = report_latest_day(st);
+        latest = report_latest_day(st, sites);
     /* day 0 (1970-01-01) was a Thursday: Monday is 0 in (day + 3) mod 7 */
     long weekday = ((latest + 3) % 7 + 7) % 7;
     if (weekday == 6)
@@ -111,7 +114,7 @@ long report_last_complete_day(store *st)
     stats_day_text(latest - weekday, monday);
     store_span span;
     long day = latest;
-    if (store_load_baseline_span(st, "0000-01-01", monday, &span, &ignored) == MITILOG_OK &&
+    if (store_load_baseline_span(st, "0000-01-01", monday, sites, &span, &ignored) == MITILOG_OK &&
         span.last_day[0] != '\0' && stats_day_number(span.last_day, &day) != MITILOG_OK)
         day = latest;
     return day;
@@ -127,17 +130,17 @@ const char *report_severity_name(int rank)
     }
 }
 
-void report_default_week(store *st, int *iso_year, int *iso_week)
+void report_default_week(store *st, const store_sites *sites, int *iso_year, int *iso_week)
 {
-    stats_iso_week_of_day(report_last_complete_day(st), iso_year, iso_week);
+    stats_iso_week_of_day(report_last_complete_day(st, sites), iso_year, iso_week);
 }
 
-long report_latest_day(store *st)
+long report_latest_day(store *st, const store_sites *sites)
 {
     char *first = NULL, *last = NULL;
     mitilog_error ignored;
     long day = -1;
-    if (store_load_day_range(st, &first, &last, &ignored) == MITILOG_OK) {
+    if (store_load_day_range(st, sites, &first, &last, &ignored) == MITILOG_OK) {
         if (last == NULL || stats_day_number(last, &day) != MITILOG_OK)
             day = -1;
     }
@@ -334,6 +337,19 @@ void report_meta_bool(report_meta *meta, const char *name, int value)
 {
     json_key(meta->writer, name);
     json_boolean(meta->writer, value);
+}
+
+void report_meta_sites(report_meta *meta, const store_sites *sites)
+{
+    json_key(meta->writer, "sites");
+    if (sites == NULL || sites->count == 0) {
+        json_null(meta->writer);
+        return;
+    }
+    json_array_begin(meta->writer);
+    for (size_t i = 0; i < sites->count; i++)
+        json_string(meta->writer, sites->names[i]);
+    json_array_end(meta->writer);
 }
 
 void report_meta_common(report_meta *meta, const store_period_info *info, size_t captures,

@@ -35,8 +35,9 @@ enum {
 
 /* The exams of [from, to] with the text columns a report uses
  * (STORE_EXAM_* bits) and what load asks for (REPORT_LOAD_* bits). */
-mitilog_status report_data_load(store *store, const char *from, const char *to, unsigned columns,
-                                unsigned load, report_data *data, mitilog_error *error);
+mitilog_status report_data_load(store *store, const char *from, const char *to,
+                                const store_sites *sites, unsigned columns, unsigned load,
+                                report_data *data, mitilog_error *error);
 void report_data_free(report_data *data);
 
 /* The text column a dimension groups by (STORE_EXAM_ROOM, ...; 0 for the
@@ -48,11 +49,11 @@ unsigned report_dimension_column(stats_dimension dimension);
 void report_study_key(const char *study_instance_uid, char key[9]);
 
 /* The day number of the latest exam held, else of today (local). */
-long report_latest_day(store *store);
+long report_latest_day(store *store, const store_sites *sites);
 /* The latest exam day of the last complete ISO week that holds exams: the
  * latest day when it is a Sunday, else the latest exam day before its
  * week; when every exam is in that week, the latest day. */
-long report_last_complete_day(store *store);
+long report_last_complete_day(store *store, const store_sites *sites);
 
 /* "violation", "warning", "advisory" for an EXAM_SEVERITY_RANK_ (exam.h);
  * NULL for none (static strings). */
@@ -104,6 +105,8 @@ void report_meta_number(report_meta *meta, const char *name, int present, double
 void report_meta_int(report_meta *meta, const char *name, long long value);
 void report_meta_bool(report_meta *meta, const char *name, int value);
 /* The facts every document states: policy, completeness, caution. */
+/* "sites": the sites asked for, or null for every site. */
+void report_meta_sites(report_meta *meta, const store_sites *sites);
 void report_meta_common(report_meta *meta, const store_period_info *info, size_t captures,
                         size_t indexed);
 

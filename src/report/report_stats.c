@@ -13,6 +13,7 @@ typedef struct stats_document {
     char from[11], to[11];
     stats_dimension by;
     const char *institution;
+    const store_sites *sites;
     report_data data;
     stats_period_result result;
 } stats_document;
@@ -23,21 +24,22 @@ static mitilog_status stats_compute(store *st, const report_stats_request *reque
     memset(doc, 0, sizeof *doc);
     doc->by = request->by;
     doc->institution = request->institution;
+    doc->sites = request->sites;
     long from_day, to_day;
     if (request->to == NULL || request->to[0] == '\0') {
         /* the Sunday of the default week (report.h), never a part week */
         int year, week;
         long monday;
-        report_default_week(st, &year, &week);
+        report_default_week(st, request->sites, &year, &week);
         to_day = stats_iso_week_monday(year, week, &monday) == MITILOG_OK
                      ? monday + 6
-                     : report_last_complete_day(st);
+                     : report_last_complete_day(st, request->sites);
     } else if (stats_day_number(request->to, &to_day) != MITILOG_OK)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "to: not a date YYYY-MM-DD");
     if (request->from == NULL || request->from[0] == '\0') {
         char *first_day = NULL, *last_day = NULL;
         from_day = to_day - 27;
-        if (store_load_day_range(st, &first_day, &last_day, error) == MITILOG_OK) {
+        if (store_load_day_range(st, request->sites, &first_day, &last_day, error) == MITILOG_OK) {
             long first;
             if (first_day != NULL && stats_day_number(first_day, &first) == MITILOG_OK)
                 from_day = first;
@@ -52,7 +54,7 @@ static mitilog_status stats_compute(store *st, const report_stats_request *reque
     stats_day_text(from_day, doc->from);
     stats_day_text(to_day, doc->to);
     /* Statistics need the grouping column only, not the findings by rule. */
-    mitilog_status status = report_data_load(st, doc->from, doc->to,
+    mitilog_status status = report_data_load(st, doc->from, doc->to, request->sites,
                                              report_dimension_column(doc->by) | STORE_EXAM_DETAIL,
                                              REPORT_LOAD_INFO, &doc->data, error);
     if (status == MITILOG_OK)
@@ -189,6 +191,7 @@ static mitilog_status stats_json(const stats_document *doc, char **out, mitilog_
     report_meta_text(&meta, "governing_value", "highest governing thermal index of each exam");
     report_meta_int(&meta, "exam_count", (long long)doc->result.total.exam_count);
     report_meta_text(&meta, "institution", doc->institution);
+    report_meta_sites(&meta, doc->sites);
     report_meta_common(&meta, &doc->data.info, doc->data.capture_count, doc->data.indexed_count);
     json_key(w, "rows");
     json_array_begin(w);
@@ -340,7 +343,7 @@ mitilog_status report_stats(store *st, const report_stats_request *request, repo
                             char **out, mitilog_error *error)
 {
     *out = NULL;
-    report_stats_request defaults = {NULL, NULL, STATS_BY_EXAM_TYPE, NULL};
+    report_stats_request defaults = {NULL, NULL, STATS_BY_EXAM_TYPE, NULL, NULL};
     if (request == NULL)
         request = &defaults;
     stats_document doc;
@@ -388,7 +391,7 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
     size_t baseline_weeks = request->baseline_weeks ? request->baseline_weeks : 12;
     int year = request->iso_year, week = request->iso_week;
     if (!request->has_week)
-        report_default_week(st, &year, &week);
+        report_default_week(st, request->sites, &year, &week);
     long last_monday;
     if (stats_iso_week_monday(year, week, &last_monday) != MITILOG_OK)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no ISO week %d-W%02d", year, week);
@@ -400,9 +403,9 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
     report_data data;
     stats_drift_result result;
     memset(&result, 0, sizeof result);
-    mitilog_status status =
-        report_data_load(st, from, to, STORE_EXAM_DAY | STORE_EXAM_ROOM | STORE_EXAM_PRESET,
-                         REPORT_LOAD_INFO, &data, error);
+    mitilog_status status = report_data_load(st, from, to, request->sites,
+                                             STORE_EXAM_DAY | STORE_EXAM_ROOM | STORE_EXAM_PRESET,
+                                             REPORT_LOAD_INFO, &data, error);
     if (status != MITILOG_OK)
         return status;
     status = stats_drift(data.rows, data.row_count, first_monday, weeks, baseline_weeks,
@@ -430,6 +433,7 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
                          "weekly median of each exam's highest governing TI per preset and "
                          "room; z = (median - baseline median) / (1.4826 MAD x 1.2533 / "
                          "sqrt(n)) against the same series' exams of the baseline weeks");
+        report_meta_sites(&meta, request->sites);
         report_meta_common(&meta, &data.info, data.capture_count, data.indexed_count);
         json_key(w, "series");
         json_array_begin(w);

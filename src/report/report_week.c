@@ -57,7 +57,7 @@ static mitilog_status week_compute(store *st, const report_week_request *request
     doc->request = request;
     int year = request->iso_year, week = request->iso_week;
     if (!request->has_week)
-        report_default_week(st, &year, &week);
+        report_default_week(st, request->sites, &year, &week);
     long monday;
     if (stats_iso_week_monday(year, week, &monday) != MITILOG_OK)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no ISO week %d-W%02d", year, week);
@@ -75,17 +75,17 @@ static mitilog_status week_compute(store *st, const report_week_request *request
     /* The week's exams in full; of the baseline weeks only what the
      * baselines use (exam type, group, governing value). */
     mitilog_status status =
-        report_data_load(st, doc->monday, doc->sunday, STORE_EXAM_ALL,
+        report_data_load(st, doc->monday, doc->sunday, request->sites, STORE_EXAM_ALL,
                          REPORT_LOAD_RULES | REPORT_LOAD_INFO, &doc->data, error);
     char baseline_last[11]; /* the Sunday before the week: the rows' period is inclusive */
     stats_day_text(monday - 1, baseline_last);
     if (status == MITILOG_OK)
         status =
-            store_load_exam_rows(st, doc->baseline_from, baseline_last,
+            store_load_exam_rows(st, doc->baseline_from, baseline_last, request->sites,
                                  report_dimension_column(request->group), &doc->baseline, error);
     if (status == MITILOG_OK)
-        status = store_load_baseline_span(st, doc->baseline_from, doc->monday, &doc->baseline_span,
-                                          error);
+        status = store_load_baseline_span(st, doc->baseline_from, doc->monday, request->sites,
+                                          &doc->baseline_span, error);
     if (status != MITILOG_OK)
         return status;
     doc->week_info = doc->data.info;
@@ -175,6 +175,7 @@ static mitilog_status week_json(const week_document *doc, char **out, mitilog_er
     report_meta_text(&meta, "baseline_data_to", doc->baseline_span.last_day);
     report_meta_int(&meta, "baseline_weeks_with_data", (long long)doc->baseline_span.weeks);
     report_meta_int(&meta, "outlier_count", (long long)doc->outliers);
+    report_meta_sites(&meta, doc->request->sites);
     report_meta_common(&meta, &doc->week_info, doc->captures, doc->indexed);
 
     json_key(w, "baselines");
@@ -296,6 +297,8 @@ static mitilog_status week_json(const week_document *doc, char **out, mitilog_er
             json_string(w, row->shift);
             json_key(w, "transducer");
             json_string(w, row->transducer);
+            json_key(w, "site");
+            json_string(w, row->site);
             json_key(w, "governing_index");
             json_string(w, row->governing_index);
             json_key(w, "max_governing");

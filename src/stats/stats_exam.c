@@ -6,7 +6,8 @@
 
 #include <string.h>
 
-static const char *const dimension_names[] = {"exam_type", "room", "preset", "shift", "transducer"};
+static const char *const dimension_names[] = {"exam_type", "room",       "preset",
+                                              "shift",     "transducer", "site"};
 
 const char *stats_dimension_name(stats_dimension dimension)
 {
@@ -34,6 +35,7 @@ const char *stats_exam_key(const exam_row *exam, stats_dimension dimension)
     case STATS_BY_PRESET: return exam->preset;
     case STATS_BY_SHIFT: return exam->shift;
     case STATS_BY_TRANSDUCER: return exam->transducer;
+    case STATS_BY_SITE: return exam->site;
     case STATS_BY_EXAM_TYPE: break;
     }
     return exam->exam_type;

@@ -28,10 +28,11 @@ typedef enum stats_dimension {
     STATS_BY_ROOM,
     STATS_BY_PRESET,
     STATS_BY_SHIFT,
-    STATS_BY_TRANSDUCER
+    STATS_BY_TRANSDUCER,
+    STATS_BY_SITE /* the site of the exam's first instance (exam.h) */
 } stats_dimension;
 
-/* "exam_type", "room", "preset", "shift", "transducer". */
+/* "exam_type", "room", "preset", "shift", "transducer", "site". */
 const char *stats_dimension_name(stats_dimension dimension);
 /* 0 and *dimension set, or -1 for an unknown name. */
 int stats_dimension_parse(const char *name, stats_dimension *dimension);

@@ -47,6 +47,19 @@ typedef enum store_durability {
 mitilog_status store_set_durability(store *store, store_durability durability,
                                     mitilog_error *error);
 
+/* The site this store's writes record on every instance and rejection
+ * ([receiver] site; exam.h says what a site name is); "main" until set.
+ * Call before the first write. MITILOG_ERROR_CONFIG when not a site name. */
+mitilog_status store_set_site(store *store, const char *site, mitilog_error *error);
+
+/* The sites a read is limited to: count 0 (or a NULL pointer where one is
+ * taken) reads every site; a name that no row holds matches nothing.
+ * Names are borrowed for the call. */
+typedef struct store_sites {
+    size_t count; /* at most EXAM_SITES_MAX */
+    const char *names[EXAM_SITES_MAX];
+} store_sites;
+
 /* Schema version after migration (PRAGMA user_version). */
 int store_schema_version(store *store);
 
@@ -128,8 +141,8 @@ mitilog_status store_instances_json(store *store, const store_instance_filter *f
 
 /* JSON array, one object per study with acquisitions between from and to
  * (dates "YYYY-MM-DD", inclusive; NULL = open). */
-mitilog_status store_studies_json(store *store, const char *from, const char *to, char **json,
-                                  mitilog_error *error);
+mitilog_status store_studies_json(store *store, const char *from, const char *to,
+                                  const store_sites *sites, char **json, mitilog_error *error);
 
 /* JSON object: database status, schema version and counts. */
 mitilog_status store_health_json(store *store, char **json, mitilog_error *error);
@@ -231,7 +244,8 @@ typedef struct store_finding_filter {
     const char *from, *to; /* dates YYYY-MM-DD */
     const char *severity, *rule, *room, *preset, *shift;
     int include_superseded;
-    long limit; /* <= 0: default 1000 */
+    long limit;               /* <= 0: default 1000 */
+    const store_sites *sites; /* NULL: every site */
 } store_finding_filter;
 mitilog_status store_findings_json(store *store, const store_finding_filter *filter, char **json,
                                    mitilog_error *error);
@@ -262,8 +276,8 @@ mitilog_status store_reviews_text(store *store, const char *study, const char *f
  * is_default says it is the default week (report_default_week, the one
  * rule of src/report/report.h). queries/reviews/review_worklist.sql says
  * how it ranks. *json is malloc'ed, freed by the caller. */
-mitilog_status store_worklist_json(store *store, const char *monday, int is_default, char **json,
-                                   mitilog_error *error);
+mitilog_status store_worklist_json(store *store, const char *monday, int is_default,
+                                   const store_sites *sites, char **json, mitilog_error *error);
 /* GET /api/v1/operators: per-operator exams, median governing index and
  * findings of a period (from, to YYYY-MM-DD; NULL = open), when the site
  * records operators (queries/reviews/review_operators.sql). */
@@ -275,9 +289,10 @@ typedef struct store_span {
     long weeks, exams;
 } store_span;
 mitilog_status store_load_baseline_span(store *store, const char *from_day, const char *before_day,
-                                        store_span *span, mitilog_error *error);
-mitilog_status store_operators_json(store *store, const char *from, const char *to, char **json,
-                                    mitilog_error *error);
+                                        const store_sites *sites, store_span *span,
+                                        mitilog_error *error);
+mitilog_status store_operators_json(store *store, const char *from, const char *to,
+                                    const store_sites *sites, char **json, mitilog_error *error);
 
 /* ---- Statistics reads (store_read_stats.c) ---- */
 
@@ -300,7 +315,8 @@ enum {
      * sql/queries/reports/stats_exam_series.sql: exam type, day, room, preset,
      * governing maximum, capture and indexed counts (drift) */
     STORE_EXAM_DAY = 1 << 6,
-    STORE_EXAM_ALL = (1 << 7) - 1
+    STORE_EXAM_SITE = 1 << 7, /* the exam's site (of its first instance) */
+    STORE_EXAM_ALL = (1 << 8) - 1
 };
 
 /* Rows and the memory of their strings; free with store_exam_list_free()
@@ -315,13 +331,15 @@ typedef struct store_exam_list {
 /* Exams whose day is between from_day and to_day (YYYY-MM-DD, inclusive),
  * ordered by Study Instance UID; columns: STORE_EXAM_* bits. */
 mitilog_status store_load_exam_rows(store *store, const char *from_day, const char *to_day,
-                                    unsigned columns, store_exam_list *list, mitilog_error *error);
+                                    const store_sites *sites, unsigned columns,
+                                    store_exam_list *list, mitilog_error *error);
 /* Only exam_type and the governing maximum (has_governing,
  * max_governing) of the exams whose day is at or after from_day and
  * before before_day, in no particular order (sql/queries/reports/
  * stats_exam_governing.sql): a baseline. */
 mitilog_status store_load_exam_governing(store *store, const char *from_day, const char *before_day,
-                                         store_exam_list *list, mitilog_error *error);
+                                         const store_sites *sites, store_exam_list *list,
+                                         mitilog_error *error);
 void store_exam_list_free(store_exam_list *list);
 
 /* Findings (not superseded) per exam and rule for the same period,
@@ -336,7 +354,8 @@ typedef struct store_finding_counts {
 } store_finding_counts;
 
 mitilog_status store_load_finding_counts(store *store, const char *from_day, const char *to_day,
-                                         store_finding_counts *counts, mitilog_error *error);
+                                         const store_sites *sites, store_finding_counts *counts,
+                                         mitilog_error *error);
 void store_finding_counts_free(store_finding_counts *counts);
 
 /* What a report states: the current policy (NULL when none was recorded),
@@ -351,19 +370,20 @@ typedef struct store_period_info {
 } store_period_info;
 
 mitilog_status store_load_period_info(store *store, const char *from_day, const char *to_day,
-                                      store_period_info *info, mitilog_error *error);
+                                      const store_sites *sites, store_period_info *info,
+                                      mitilog_error *error);
 void store_period_info_free(store_period_info *info);
 
 /* The first and last exam day held (first acquisition; NULL when no
  * exam), malloc'ed; the caller frees both. */
-mitilog_status store_load_day_range(store *store, char **first_day, char **last_day,
-                                    mitilog_error *error);
+mitilog_status store_load_day_range(store *store, const store_sites *sites, char **first_day,
+                                    char **last_day, mitilog_error *error);
 
 /* JSON object for GET /api/v1/ingest (docs/api.md): objects per hour over
  * window_hours, rejections and quarantine, devices (silent after
  * silent_hours), transducers not reporting output in the last days. */
 mitilog_status store_ingest_json(store *store, int window_hours, int silent_hours, int days,
-                                 char **json, mitilog_error *error);
+                                 const store_sites *sites, char **json, mitilog_error *error);
 
 /* ---- Device screen profiles (store_screen_profiles.c; the profile text
  * is src/screen's business, the store keeps it with its state).

@@ -279,6 +279,8 @@ mitilog_status store_findings_json(store *st, const store_finding_filter *filter
             rc = sqlite3_bind_int(statement, 8, filter->include_superseded != 0);
         if (rc == SQLITE_OK)
             rc = sqlite3_bind_int64(statement, 9, limit);
+        if (rc == SQLITE_OK)
+            rc = store_bind_sites(statement, filter->sites);
         status = store_json_query(st, statement, rc, "query findings", json, error);
     }
     store_release(statement);

@@ -99,7 +99,8 @@ struct store {
     pthread_mutex_t reader_lock;
 
     int schema_version;
-    char active_policy[65]; /* under reader_lock; "" = none  */
+    char site[EXAM_SITE_MAX + 1]; /* recorded by every write */
+    char active_policy[65];       /* under reader_lock; "" = none  */
 
     pthread_mutex_t parameter_lock;
     hash_table parameter_indices; /* under parameter_lock          */
@@ -144,6 +145,9 @@ void store_cache_finalize(store_cache *cache);
 mitilog_status store_exec_file(sqlite3 *db, const char *name, mitilog_error *error);
 mitilog_status store_exec_text(sqlite3 *db, const char *name, const char *text,
                                mitilog_error *error);
+/* Binds :site_count and :site_1 ... :site_16 of statement, those it has
+ * (sites NULL: every site); an SQLite result code. */
+int store_bind_sites(sqlite3_stmt *statement, const store_sites *sites);
 /* Steps a prepared statement without results to SQLITE_DONE, resets it. */
 int store_step_done(sqlite3_stmt *statement);
 /* Copies column 0 of the current row into a malloc'ed string. */

@@ -5,6 +5,7 @@
  */
 #include "store/store_internal.h"
 
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -303,6 +304,7 @@ mitilog_status store_open(const char *path, int busy_timeout_ms, store **out, mi
     pthread_mutex_init(&opened->reader_lock, NULL);
     pthread_mutex_init(&opened->parameter_lock, NULL);
     hash_table_init(&opened->parameter_indices, STORE_PARAMETER_ENTRIES);
+    snprintf(opened->site, sizeof opened->site, "%s", EXAM_SITE_DEFAULT);
 
     mitilog_status status = store_connect(path, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE,
                                           busy_timeout_ms, &opened->writer, error);
@@ -380,4 +382,16 @@ mitilog_status store_set_durability(store *st, store_durability durability, miti
                                             error);
     pthread_mutex_unlock(&st->queue_lock);
     return status;
+}
+
+mitilog_status store_set_site(store *st, const char *site, mitilog_error *error)
+{
+    char reason[160];
+    if (st == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_set_site: no store");
+    if (!exam_site_name_check(site, reason, sizeof reason))
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "site \"%.80s\": %s",
+                                 site != NULL ? site : "", reason);
+    snprintf(st->site, sizeof st->site, "%s", site);
+    return MITILOG_OK;
 }

@@ -78,8 +78,8 @@ mitilog_status store_instances_json(store *st, const store_instance_filter *filt
     return status;
 }
 
-mitilog_status store_studies_json(store *st, const char *from, const char *to, char **json,
-                                  mitilog_error *error)
+mitilog_status store_studies_json(store *st, const char *from, const char *to,
+                                  const store_sites *sites, char **json, mitilog_error *error)
 {
     if (st == NULL || json == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
@@ -90,6 +90,8 @@ mitilog_status store_studies_json(store *st, const char *from, const char *to, c
     int rc = store_bind_filter(statement, 1, from);
     if (rc == SQLITE_OK)
         rc = store_bind_filter(statement, 2, to);
+    if (rc == SQLITE_OK)
+        rc = store_bind_sites(statement, sites);
     mitilog_status status = store_run_json(st, statement, rc, "query studies", json, error);
     pthread_mutex_unlock(&st->reader_lock);
     return status;

@@ -39,16 +39,18 @@ static double store_double(sqlite3_stmt *statement, int column, int *present)
     return null ? 0.0 : sqlite3_value_double(value);
 }
 
-/* Prepares name on the reader and binds the two days. Call under lock. */
+/* Prepares name on the reader and binds the two days and the sites (NULL:
+ * every site). Call under lock. */
 static mitilog_status store_period_statement(store *st, const char *name, const char *from_day,
-                                             const char *to_day, sqlite3_stmt **statement,
-                                             mitilog_error *error)
+                                             const char *to_day, const store_sites *sites,
+                                             sqlite3_stmt **statement, mitilog_error *error)
 {
     mitilog_status status = store_prepare(st->reader, name, statement, error);
     if (status != MITILOG_OK)
         return status;
     if (sqlite3_bind_text(*statement, 1, from_day, -1, SQLITE_TRANSIENT) != SQLITE_OK ||
-        sqlite3_bind_text(*statement, 2, to_day, -1, SQLITE_TRANSIENT) != SQLITE_OK) {
+        sqlite3_bind_text(*statement, 2, to_day, -1, SQLITE_TRANSIENT) != SQLITE_OK ||
+        store_bind_sites(*statement, sites) != SQLITE_OK) {
         sqlite3_finalize(*statement);
         *statement = NULL;
         return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: bind failed", name);
@@ -143,7 +145,8 @@ enum {
     EXAM_FINDINGS,
     EXAM_FIRST_ACQUIRED,
     EXAM_INFORMATIONAL,
-    EXAM_WORST_SEVERITY
+    EXAM_WORST_SEVERITY,
+    EXAM_SITE
 };
 
 /* The queries the loader chooses from. */
@@ -184,9 +187,10 @@ enum {
  * bit, as stats_exam_values.sql names it; "" for none; NULL for several. */
 static const char *store_key_name(unsigned columns)
 {
-    switch (columns &
-            (STORE_EXAM_ROOM | STORE_EXAM_PRESET | STORE_EXAM_SHIFT | STORE_EXAM_TRANSDUCER)) {
+    switch (columns & (STORE_EXAM_ROOM | STORE_EXAM_PRESET | STORE_EXAM_SHIFT |
+                       STORE_EXAM_TRANSDUCER | STORE_EXAM_SITE)) {
     case 0: return "";
+    case STORE_EXAM_SITE: return "site";
     case STORE_EXAM_ROOM: return "room";
     case STORE_EXAM_PRESET: return "preset";
     case STORE_EXAM_SHIFT: return "shift";
@@ -206,6 +210,8 @@ static const char **store_key_field(exam_row *row, unsigned columns)
         return &row->shift;
     if (columns & STORE_EXAM_TRANSDUCER)
         return &row->transducer;
+    if (columns & STORE_EXAM_SITE)
+        return &row->site;
     return NULL;
 }
 
@@ -273,6 +279,8 @@ static int exam_row_read(store_exam_list *list, exam_row *row, sqlite3_stmt *sta
         row->shift = store_list_text(list, statement, EXAM_SHIFT, &failed);
     if (columns & STORE_EXAM_TRANSDUCER)
         row->transducer = store_list_text(list, statement, EXAM_TRANSDUCER, &failed);
+    if (columns & STORE_EXAM_SITE)
+        row->site = store_list_text(list, statement, EXAM_SITE, &failed);
     row->max_governing = store_double(statement, EXAM_MAX_GOVERNING, &row->has_governing);
     row->max_mi = store_double(statement, EXAM_MAX_MI, &row->has_mi);
     row->estimated_seconds = store_double(statement, EXAM_ESTIMATED, NULL);
@@ -300,7 +308,9 @@ static mitilog_status store_load_time_at_or_above(store *st, const char *from_da
 {
     static const char name[] = "queries/reports/stats_exam_time_at_or_above.sql";
     sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_period_statement(st, name, from_day, to_day, &statement, error);
+    /* Every site: a time of an exam not in the list finds no row. */
+    mitilog_status status =
+        store_period_statement(st, name, from_day, to_day, NULL, &statement, error);
     if (status == MITILOG_OK &&
         sqlite3_bind_double(statement, 3, exam_ti_ladder[EXAM_TI_STATISTICS_STEPS - 1]) !=
             SQLITE_OK)
@@ -330,7 +340,8 @@ static mitilog_status store_load_time_at_or_above(store *st, const char *from_da
 }
 
 static mitilog_status store_load_exams(store *st, store_exam_query query, const char *from_day,
-                                       const char *to_day, unsigned columns, store_exam_list *list,
+                                       const char *to_day, const store_sites *sites,
+                                       unsigned columns, store_exam_list *list,
                                        mitilog_error *error)
 {
     static const char *const names[] = {
@@ -344,7 +355,7 @@ static mitilog_status store_load_exams(store *st, store_exam_query query, const 
     size_t capacity = 0;
     pthread_mutex_lock(&st->reader_lock);
     mitilog_status status =
-        store_period_statement(st, names[query], from_day, to_day, &statement, error);
+        store_period_statement(st, names[query], from_day, to_day, sites, &statement, error);
     if (status == MITILOG_OK && query == STORE_QUERY_VALUES &&
         sqlite3_bind_text(statement, 3, store_key_name(columns), -1, SQLITE_STATIC) != SQLITE_OK)
         status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: bind failed", names[query]);
@@ -385,7 +396,8 @@ static mitilog_status store_load_exams(store *st, store_exam_query query, const 
 }
 
 mitilog_status store_load_exam_rows(store *st, const char *from_day, const char *to_day,
-                                    unsigned columns, store_exam_list *list, mitilog_error *error)
+                                    const store_sites *sites, unsigned columns,
+                                    store_exam_list *list, mitilog_error *error)
 {
     /* Without identity and detail columns and with at most one grouping
      * column, the short rows of stats_exam_values.sql do; the day with
@@ -397,13 +409,14 @@ mitilog_status store_load_exam_rows(store *st, const char *from_day, const char 
                 store_key_name(columns)
             ? STORE_QUERY_VALUES
             : STORE_QUERY_ROWS;
-    return store_load_exams(st, query, from_day, to_day, columns, list, error);
+    return store_load_exams(st, query, from_day, to_day, sites, columns, list, error);
 }
 
 mitilog_status store_load_exam_governing(store *st, const char *from_day, const char *before_day,
-                                         store_exam_list *list, mitilog_error *error)
+                                         const store_sites *sites, store_exam_list *list,
+                                         mitilog_error *error)
 {
-    return store_load_exams(st, STORE_QUERY_GOVERNING, from_day, before_day, 0, list, error);
+    return store_load_exams(st, STORE_QUERY_GOVERNING, from_day, before_day, sites, 0, list, error);
 }
 
 void store_finding_counts_free(store_finding_counts *counts)
@@ -418,7 +431,8 @@ void store_finding_counts_free(store_finding_counts *counts)
 }
 
 mitilog_status store_load_finding_counts(store *st, const char *from_day, const char *to_day,
-                                         store_finding_counts *counts, mitilog_error *error)
+                                         const store_sites *sites, store_finding_counts *counts,
+                                         mitilog_error *error)
 {
     memset(counts, 0, sizeof *counts);
     if (st == NULL || from_day == NULL || to_day == NULL)
@@ -428,7 +442,7 @@ mitilog_status store_load_finding_counts(store *st, const char *from_day, const 
     size_t capacity = 0;
     pthread_mutex_lock(&st->reader_lock);
     mitilog_status status = store_period_statement(st, "queries/reports/stats_finding_counts.sql",
-                                                   from_day, to_day, &statement, error);
+                                                   from_day, to_day, sites, &statement, error);
     int rc = SQLITE_DONE;
     while (status == MITILOG_OK && (rc = sqlite3_step(statement)) == SQLITE_ROW) {
         if (counts->count == capacity) {
@@ -475,7 +489,8 @@ void store_period_info_free(store_period_info *info)
 }
 
 mitilog_status store_load_period_info(store *st, const char *from_day, const char *to_day,
-                                      store_period_info *info, mitilog_error *error)
+                                      const store_sites *sites, store_period_info *info,
+                                      mitilog_error *error)
 {
     memset(info, 0, sizeof *info);
     if (st == NULL)
@@ -484,7 +499,7 @@ mitilog_status store_load_period_info(store *st, const char *from_day, const cha
     pthread_mutex_lock(&st->reader_lock);
     mitilog_status status = store_period_statement(
         st, "queries/reports/stats_policy_info.sql", from_day ? from_day : "0000-00-00",
-        to_day ? to_day : "9999-99-99", &statement, error);
+        to_day ? to_day : "9999-99-99", sites, &statement, error);
     if (status == MITILOG_OK) {
         if (sqlite3_step(statement) != SQLITE_ROW) {
             status = store_sql_error(error, st->reader, "query period information");
@@ -507,8 +522,8 @@ mitilog_status store_load_period_info(store *st, const char *from_day, const cha
     return status;
 }
 
-mitilog_status store_load_day_range(store *st, char **first_day, char **last_day,
-                                    mitilog_error *error)
+mitilog_status store_load_day_range(store *st, const store_sites *sites, char **first_day,
+                                    char **last_day, mitilog_error *error)
 {
     *first_day = NULL;
     *last_day = NULL;
@@ -519,7 +534,9 @@ mitilog_status store_load_day_range(store *st, char **first_day, char **last_day
     mitilog_status status =
         store_prepare(st->reader, "queries/reports/stats_day_range.sql", &statement, error);
     if (status == MITILOG_OK) {
-        if (sqlite3_step(statement) != SQLITE_ROW) {
+        if (store_bind_sites(statement, sites) != SQLITE_OK) {
+            status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "exam days: bind failed");
+        } else if (sqlite3_step(statement) != SQLITE_ROW) {
             status = store_sql_error(error, st->reader, "query exam days");
         } else {
             int failed = 0;
@@ -540,7 +557,7 @@ mitilog_status store_load_day_range(store *st, char **first_day, char **last_day
 }
 
 mitilog_status store_ingest_json(store *st, int window_hours, int silent_hours, int days,
-                                 char **json, mitilog_error *error)
+                                 const store_sites *sites, char **json, mitilog_error *error)
 {
     *json = NULL;
     if (st == NULL)
@@ -552,7 +569,8 @@ mitilog_status store_ingest_json(store *st, int window_hours, int silent_hours, 
     if (status == MITILOG_OK) {
         if (sqlite3_bind_int(statement, 1, window_hours) != SQLITE_OK ||
             sqlite3_bind_int(statement, 2, silent_hours) != SQLITE_OK ||
-            sqlite3_bind_int(statement, 3, days) != SQLITE_OK)
+            sqlite3_bind_int(statement, 3, days) != SQLITE_OK ||
+            store_bind_sites(statement, sites) != SQLITE_OK)
             status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "ingest status: bind");
         else if (sqlite3_step(statement) != SQLITE_ROW)
             status = store_sql_error(error, st->reader, "query ingest status");

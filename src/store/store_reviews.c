@@ -62,7 +62,8 @@ mitilog_status store_write_review(store *st, const store_review *review, mitilog
 /* Runs a one-row, one-column query on the read connection (bound by
  * bind) and copies the text into *out. */
 static mitilog_status store_read_text(store *st, const char *name, const char *const *texts,
-                                      int count, const char *what, char **out, mitilog_error *error)
+                                      int count, const store_sites *sites, const char *what,
+                                      char **out, mitilog_error *error)
 {
     *out = NULL;
     pthread_mutex_lock(&st->reader_lock);
@@ -72,6 +73,8 @@ static mitilog_status store_read_text(store *st, const char *name, const char *c
         int rc = SQLITE_OK;
         for (int i = 0; rc == SQLITE_OK && i < count; i++)
             rc = store_bind_text_or_null(statement, i + 1, texts[i]);
+        if (rc == SQLITE_OK)
+            rc = store_bind_sites(statement, sites);
         if (rc != SQLITE_OK)
             status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: bind: %s", what,
                                        sqlite3_errstr(rc));
@@ -93,31 +96,32 @@ mitilog_status store_reviews_text(store *st, const char *study, const char *from
     const char *texts[] = {study, from, to};
     return store_read_text(
         st, csv ? "queries/reviews/reviews_csv.sql" : "queries/reviews/reviews_json.sql", texts, 3,
-        "query reviews", out, error);
+        NULL, "query reviews", out, error);
 }
 
-mitilog_status store_worklist_json(store *st, const char *monday, int is_default, char **json,
-                                   mitilog_error *error)
+mitilog_status store_worklist_json(store *st, const char *monday, int is_default,
+                                   const store_sites *sites, char **json, mitilog_error *error)
 {
     if (st == NULL || json == NULL || monday == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_worklist_json: no store");
     const char *texts[] = {monday, is_default ? "1" : "0"};
-    return store_read_text(st, "queries/reviews/review_worklist.sql", texts, 2, "query worklist",
-                           json, error);
+    return store_read_text(st, "queries/reviews/review_worklist.sql", texts, 2, sites,
+                           "query worklist", json, error);
 }
 
-mitilog_status store_operators_json(store *st, const char *from, const char *to, char **json,
-                                    mitilog_error *error)
+mitilog_status store_operators_json(store *st, const char *from, const char *to,
+                                    const store_sites *sites, char **json, mitilog_error *error)
 {
     if (st == NULL || json == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_operators_json: no store");
     const char *texts[] = {from, to};
-    return store_read_text(st, "queries/reviews/review_operators.sql", texts, 2, "query operators",
-                           json, error);
+    return store_read_text(st, "queries/reviews/review_operators.sql", texts, 2, sites,
+                           "query operators", json, error);
 }
 
 mitilog_status store_load_baseline_span(store *st, const char *from_day, const char *before_day,
-                                        store_span *span, mitilog_error *error)
+                                        const store_sites *sites, store_span *span,
+                                        mitilog_error *error)
 {
     memset(span, 0, sizeof *span);
     if (st == NULL || from_day == NULL || before_day == NULL)
@@ -130,6 +134,8 @@ mitilog_status store_load_baseline_span(store *st, const char *from_day, const c
         int rc = sqlite3_bind_text(statement, 1, from_day, -1, SQLITE_TRANSIENT);
         if (rc == SQLITE_OK)
             rc = sqlite3_bind_text(statement, 2, before_day, -1, SQLITE_TRANSIENT);
+        if (rc == SQLITE_OK)
+            rc = store_bind_sites(statement, sites);
         if (rc != SQLITE_OK || sqlite3_step(statement) != SQLITE_ROW) {
             status = store_sql_error(error, st->reader, "query baseline span");
         } else {

@@ -8,6 +8,7 @@
 
 #include <stdlib.h>
 #include <stdint.h>
+#include <stdio.h>
 #include <string.h>
 
 #include "store/sql_files.h"
@@ -173,4 +174,25 @@ mitilog_status store_column_dup(sqlite3_stmt *statement, char **out, mitilog_err
     copy[length] = '\0';
     *out = copy;
     return MITILOG_OK;
+}
+
+int store_bind_sites(sqlite3_stmt *statement, const store_sites *sites)
+{
+    size_t count = sites != NULL ? sites->count : 0;
+    if (count > EXAM_SITES_MAX)
+        return SQLITE_RANGE;
+    int index = sqlite3_bind_parameter_index(statement, ":site_count");
+    int rc = index > 0 ? sqlite3_bind_int64(statement, index, (sqlite3_int64)count) : SQLITE_OK;
+    for (int i = 1; rc == SQLITE_OK && i <= EXAM_SITES_MAX; i++) {
+        char name[16];
+        snprintf(name, sizeof name, ":site_%d", i);
+        index = sqlite3_bind_parameter_index(statement, name);
+        if (index <= 0)
+            continue;
+        if ((size_t)i <= count)
+            rc = sqlite3_bind_text(statement, index, sites->names[i - 1], -1, SQLITE_TRANSIENT);
+        else
+            rc = sqlite3_bind_null(statement, index);
+    }
+    return rc;
 }

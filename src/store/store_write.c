@@ -303,6 +303,7 @@ static int store_bind_instance(store *st, sqlite3_stmt *statement, const ext_rec
         {":acquired_at", record->acquired_at[0] != 0 ? record->acquired_at : NULL},
         {":acquired_at_source", store_time_source_name(record->acquired_at_source)},
         {":received_at", record->received_at},
+        {":site", st->site},
     };
     int rc = SQLITE_OK;
     for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0]; i++)
@@ -384,6 +385,7 @@ static mitilog_status store_write_rejection(store *st, store_request *request)
         {":source_path", STORE_TEXT(rejection->source_path)},
         {":quarantine_path", STORE_TEXT(rejection->quarantine_path)},
         {":reason", STORE_TEXT(rejection->reason)},
+        {":site", st->site},
     };
 #undef STORE_TEXT
     int rc = SQLITE_OK;

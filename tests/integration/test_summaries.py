@@ -68,7 +68,9 @@ SELECT p.study_instance_uid, p.day, p.exam_type, p.exam_type_label, p.governing_
                             iif(x.severity = 'warning', 2,
                             iif(x.measured_value < x.limit_value, 0, 1))))
                  FROM findings x
-                 WHERE x.study_instance_uid = p.study_instance_uid AND x.superseded = 0), 0)
+                 WHERE x.study_instance_uid = p.study_instance_uid AND x.superseded = 0), 0),
+       -- an exam belongs to the site of its first instance (docs/sites.md)
+       f.site
 FROM period p
 LEFT JOIN exam_context c ON c.study_instance_uid = p.study_instance_uid
 LEFT JOIN instances f ON f.id = (SELECT j.id FROM instances j
@@ -150,7 +152,10 @@ SELECT coalesce(json_group_array(json(document)), '[]') FROM (
         'superseded', json(iif(superseded, 'true', 'false')),
         'policy_version', policy_version, 'exam_type', exam_type, 'room', room,
         'preset', preset, 'shift', shift, 'transducer', transducer,
-        'period', period, 'evaluated_at', evaluated_at) AS document
+        'period', period, 'evaluated_at', evaluated_at,
+        'site', (SELECT i.site FROM instances i
+                 WHERE i.study_instance_uid = chosen.study_instance_uid
+                 ORDER BY coalesce(i.acquired_at, i.received_at), i.id LIMIT 1)) AS document
     FROM chosen
     WHERE (?1 IS NULL OR day >= ?1) AND (?2 IS NULL OR day <= ?2)
     ORDER BY day DESC, id DESC LIMIT ?9)
@@ -176,6 +181,12 @@ def query_text(name):
         return f.read()
 
 
+def every_site(args, sites=()):
+    """The query's own parameters, then its site filter (migration 013):
+    :site_count and :site_1 ... :site_16, numbered after the highest ?N."""
+    return tuple(args) + (len(sites),) + tuple(sites) + (None,) * (16 - len(sites))
+
+
 def exact(rows):
     """Rows with floats as their exact repr, so 0.1 + 0.2 != 0.3 shows."""
     return [tuple(repr(v) if isinstance(v, float) else v for v in row) for row in rows]
@@ -192,13 +203,13 @@ def assert_summaries_exact(db, periods=(("0000-00-00", "9999-99-99"),)):
                              (ORACLE_FINDING_COUNTS, "stats_finding_counts.sql"),
                              (ORACLE_POLICY_INFO, "stats_policy_info.sql")):
             expected = db.execute(oracle, (first, last)).fetchall()
-            got = db.execute(query_text(name), (first, last)).fetchall()
+            got = db.execute(query_text(name), every_site((first, last))).fetchall()
             if name == "stats_exam_rows.sql":
                 got.sort(key=lambda row: row[0].encode())   # the store sorts by UID
             assert exact(zero_as_real(got)) == exact(zero_as_real(expected)), (name, first, last)
         # time at or above the thresholds up to 2.0 (those the statistics show)
         expected = db.execute(ORACLE_TIMES, (first, last, 2.0)).fetchall()
-        got = db.execute(query_text("stats_exam_time_at_or_above.sql"),
+        got = db.execute(query_text("stats_exam_time_at_or_above.sql"),  # no site filter
                          (first, last, 2.0)).fetchall()
         got.sort(key=lambda row: (row[0].encode(), row[1]))
         assert exact(zero_as_real(got)) == exact(zero_as_real(expected)), ("times", first, last)
@@ -207,17 +218,29 @@ def assert_summaries_exact(db, periods=(("0000-00-00", "9999-99-99"),)):
         expected = db.execute(ORACLE_EXAM_ROWS, (first, last)).fetchall()
         for key, column in (("", None), ("room", 7), ("preset", 8), ("shift", 9),
                             ("transducer", 10)):
-            got = db.execute(query_text("stats_exam_values.sql"), (first, last, key)).fetchall()
+            got = db.execute(query_text("stats_exam_values.sql"),
+                             every_site((first, last, key))).fetchall()
             got.sort(key=lambda row: row[8].encode())
             assert exact(zero_as_real(got)) == exact(zero_as_real(
                 [(r[2], r[column] if column else None) + r[5:7] + r[12:16] + (r[0], r[17])
                  for r in expected])), key
         # a weekly baseline: type and governing value of the days before the last
-        got = db.execute(query_text("stats_exam_governing.sql"), (first, last)).fetchall()
+        got = db.execute(query_text("stats_exam_governing.sql"), every_site((first, last))).fetchall()
         assert sorted(exact(got), key=repr) == sorted(
             exact([(r[2], r[5]) for r in expected if r[1] < last]), key=repr)
     assert db.execute("SELECT count(*) FROM exam_summaries").fetchone()[0] == \
         db.execute("SELECT count(*) FROM exams").fetchone()[0]
+    # The site filter: every exam here was taken by the one receiver, site
+    # 'main' (the default); asking for it reads them all, asking for a
+    # site that took nothing reads none (docs/sites.md). Common practice,
+    # no source.
+    first, last = periods[0]
+    rows = db.execute(query_text("stats_exam_rows.sql"), every_site((first, last))).fetchall()
+    assert rows and {row[-1] for row in rows} == {"main"}
+    assert sorted(db.execute(query_text("stats_exam_rows.sql"),
+                             every_site((first, last), ("main",))).fetchall()) == sorted(rows)
+    assert db.execute(query_text("stats_exam_rows.sql"),
+                      every_site((first, last), ("elsewhere",))).fetchall() == []
 
 
 def clean_count(db):
@@ -324,7 +347,7 @@ def test_findings_filter_matches_a_full_scan(imported, tmp_path):
         for severity in (None, "warning", "advisory"):
             for superseded in (0, 1):
                 args = (first, last, severity, None, None, None, None, superseded, 1000)
-                assert db.execute(query_text("findings.sql"), args).fetchone() == \
+                assert db.execute(query_text("findings.sql"), every_site(args)).fetchone() == \
                     db.execute(ORACLE_FINDINGS, args).fetchone(), args
     db.close()
 

@@ -838,7 +838,7 @@ static void studies_aggregate(void **state)
 
     char *json = NULL;
     mitilog_error error = {{0}};
-    assert_int_equal(store_studies_json(f->store, NULL, NULL, &json, &error), MITILOG_OK);
+    assert_int_equal(store_studies_json(f->store, NULL, NULL, NULL, &json, &error), MITILOG_OK);
     assert_json_length(json, 2);
     assert_json(json, "$[0].study_instance_uid", "9.1");
     assert_json(json, "$[0].station_name", "ROOM-1");
@@ -854,15 +854,16 @@ static void studies_aggregate(void **state)
     assert_json_type(json, "$[1].max_tis", "null");
     free(json);
 
-    assert_int_equal(store_studies_json(f->store, "2024-03-01", "2024-03-01", &json, &error),
+    assert_int_equal(store_studies_json(f->store, "2024-03-01", "2024-03-01", NULL, &json, &error),
                      MITILOG_OK);
     assert_json_length(json, 1);
     assert_json(json, "$[0].study_instance_uid", "9.1");
     free(json);
-    assert_int_equal(store_studies_json(f->store, "2024-03-02", NULL, &json, &error), MITILOG_OK);
+    assert_int_equal(store_studies_json(f->store, "2024-03-02", NULL, NULL, &json, &error),
+                     MITILOG_OK);
     assert_json(json, "$[0].study_instance_uid", "9.2");
     free(json);
-    assert_int_equal(store_studies_json(f->store, "2024-03-03", "2024-12-31", &json, &error),
+    assert_int_equal(store_studies_json(f->store, "2024-03-03", "2024-12-31", NULL, &json, &error),
                      MITILOG_OK);
     assert_string_equal(json, "[]");
     free(json);
@@ -1021,8 +1022,8 @@ static void exam_rows_sorted_by_uid(void **state)
     refresh_every_summary(f->path);
     store_exam_list list = {0};
     mitilog_error error = {{0}};
-    assert_int_equal(store_load_exam_rows(f->store, "2024-03-02", "2024-03-04", STORE_EXAM_IDENTITY,
-                                          &list, &error),
+    assert_int_equal(store_load_exam_rows(f->store, "2024-03-02", "2024-03-04", NULL,
+                                          STORE_EXAM_IDENTITY, &list, &error),
                      MITILOG_OK);
     /* strcmp order "1.10" < "1.2" < "1.30" < "1.4", not the days' order */
     static const char *const expected[] = {"1.10", "1.2", "1.30", "1.4"};
@@ -1037,9 +1038,9 @@ static void exam_rows_sorted_by_uid(void **state)
     assert_string_equal(list.rows[0].day, "2024-03-03");
     store_exam_list_free(&list);
     /* the short rows of statistics: same exams, same order */
-    assert_int_equal(
-        store_load_exam_rows(f->store, "2024-03-02", "2024-03-04", STORE_EXAM_ROOM, &list, &error),
-        MITILOG_OK);
+    assert_int_equal(store_load_exam_rows(f->store, "2024-03-02", "2024-03-04", NULL,
+                                          STORE_EXAM_ROOM, &list, &error),
+                     MITILOG_OK);
     assert_int_equal(list.count, 4);
     for (size_t i = 0; i < list.count; i++) {
         assert_string_equal(list.rows[i].study_instance_uid, expected[i]);
@@ -1047,7 +1048,7 @@ static void exam_rows_sorted_by_uid(void **state)
     }
     store_exam_list_free(&list);
     /* the short rows of drift: same exams, same order, the day with them */
-    assert_int_equal(store_load_exam_rows(f->store, "2024-03-02", "2024-03-04",
+    assert_int_equal(store_load_exam_rows(f->store, "2024-03-02", "2024-03-04", NULL,
                                           STORE_EXAM_DAY | STORE_EXAM_ROOM | STORE_EXAM_PRESET,
                                           &list, &error),
                      MITILOG_OK);
@@ -1066,8 +1067,9 @@ static void exam_rows_sorted_by_uid(void **state)
     }
     store_exam_list_free(&list);
     /* a baseline: from the first day, before the end day */
-    assert_int_equal(store_load_exam_governing(f->store, "2024-03-01", "2024-03-04", &list, &error),
-                     MITILOG_OK);
+    assert_int_equal(
+        store_load_exam_governing(f->store, "2024-03-01", "2024-03-04", NULL, &list, &error),
+        MITILOG_OK);
     assert_int_equal(list.count, 4);
     double sum = 0;
     for (size_t i = 0; i < list.count; i++)

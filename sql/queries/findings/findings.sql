@@ -11,7 +11,14 @@
 -- held; the exact day test below still decides. Findings without one are
 -- few (the same index, started_at NULL) and take their day from the exam
 -- or their period.
-WITH candidates AS (
+-- :site_count, :site_1 ... :site_16: the sites asked for (migration 013;
+-- :site_count 0: every site; names not held match nothing).
+WITH asked AS (
+    -- ?9 first: a named parameter takes the number after the highest one
+    -- seen before it, so every ?N comes before :site_count in the text.
+    SELECT ?9 AS row_limit
+),
+candidates AS (
     SELECT f.* FROM findings f
     WHERE f.superseded IN (0, iif(?8, 1, 0))
       AND f.started_at >= coalesce(?1, '')
@@ -25,7 +32,11 @@ chosen AS (
     FROM candidates f LEFT JOIN exams e ON e.study_instance_uid = f.study_instance_uid
     WHERE (CAST(?3 AS TEXT) IS NULL OR f.severity = ?3) AND (CAST(?4 AS TEXT) IS NULL OR f.rule_id = ?4)
       AND (CAST(?5 AS TEXT) IS NULL OR f.room = ?5) AND (CAST(?6 AS TEXT) IS NULL OR f.preset = ?6)
-      AND (CAST(?7 AS TEXT) IS NULL OR f.shift = ?7))
+      AND (CAST(?7 AS TEXT) IS NULL OR f.shift = ?7)
+      AND (:site_count = 0 OR f.study_instance_uid IN (
+          SELECT x.study_instance_uid FROM exam_summaries x
+          WHERE (:site_count = 0 OR x.site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+              :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16)))))
 SELECT coalesce(json_group_array(json(document)), '[]') FROM (
     SELECT json_object(
         'id', id, 'study_instance_uid', study_instance_uid, 'rule_id', rule_id,
@@ -39,7 +50,9 @@ SELECT coalesce(json_group_array(json(document)), '[]') FROM (
         'superseded', json(iif(superseded, 'true', 'false')),
         'policy_version', policy_version, 'exam_type', exam_type, 'room', room,
         'preset', preset, 'shift', shift, 'transducer', transducer,
-        'period', period, 'evaluated_at', evaluated_at) AS document
+        'period', period, 'evaluated_at', evaluated_at,
+        'site', (SELECT min(x.site) FROM exam_summaries x
+                 WHERE x.study_instance_uid = chosen.study_instance_uid)) AS document
     FROM chosen
     WHERE (CAST(?1 AS TEXT) IS NULL OR day >= ?1) AND (CAST(?2 AS TEXT) IS NULL OR day <= ?2)
-    ORDER BY day DESC, id DESC LIMIT ?9);
+    ORDER BY day DESC, id DESC LIMIT (SELECT row_limit FROM asked));

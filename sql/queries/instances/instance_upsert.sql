@@ -2,7 +2,9 @@
 -- updates the row in place: same id, replaced_count + 1, first_received_at
 -- kept. Returns replaced_count (0 for a new row, > 0 for a replacement)
 -- and the row's id.
--- An empty :received_at means "now" (UTC).
+-- An empty :received_at means "now" (UTC). :site is the receiver's site
+-- ([receiver] site): a re-sent object, from whichever receiver, keeps one
+-- row and records the site of the receiver that wrote it last.
 INSERT INTO instances (
     sop_instance_uid, sop_class_uid, study_instance_uid, series_instance_uid,
     modality, station_name, institutional_department_name, study_description, accession_number,
@@ -25,7 +27,7 @@ INSERT INTO instances (
     exam_type_source, governing_index, governing_index_source,
     gestational_age_weeks, gestational_age_source, preset, preset_source, room,
     room_source, shift, shift_source, age_group, age_group_source,
-    operator_name, operator_source, overlong_fields, text_replaced)
+    operator_name, operator_source, overlong_fields, text_replaced, site)
 VALUES (
     :sop_instance_uid, :sop_class_uid, :study_instance_uid, :series_instance_uid,
     :modality, :station_name, :institutional_department_name, :study_description, :accession_number,
@@ -41,7 +43,7 @@ VALUES (
     :tic, :tic_status, :tic_raw,
     :tis_focus, :tis_focus_status, :tis_focus_raw,
     :tis_surface, :tis_surface_status, :tis_surface_raw,
-    :object_kind, :has_acoustic_record, :specific_character_set, :image_type, :series_description, :body_part_examined, :performed_procedure_step_description, :procedure_codes, :modes, :modes_image_type, :modes_regions, :modes_sr, :image_type_bitmap, :image_type_bitmap_status, :modes_conflict, :transducer_data, :transducer_source, :transducer_type, :frequency_khz, :frequency_source, :cine_seconds, :exam_type, :exam_type_label, :exam_type_source, :governing_index, :governing_index_source, :gestational_age_weeks, :gestational_age_source, :preset, :preset_source, :room, :room_source, :shift, :shift_source, :age_group, :age_group_source, :operator_name, :operator_source, :overlong_fields, :text_replaced)
+    :object_kind, :has_acoustic_record, :specific_character_set, :image_type, :series_description, :body_part_examined, :performed_procedure_step_description, :procedure_codes, :modes, :modes_image_type, :modes_regions, :modes_sr, :image_type_bitmap, :image_type_bitmap_status, :modes_conflict, :transducer_data, :transducer_source, :transducer_type, :frequency_khz, :frequency_source, :cine_seconds, :exam_type, :exam_type_label, :exam_type_source, :governing_index, :governing_index_source, :gestational_age_weeks, :gestational_age_source, :preset, :preset_source, :room, :room_source, :shift, :shift_source, :age_group, :age_group_source, :operator_name, :operator_source, :overlong_fields, :text_replaced, :site)
 ON CONFLICT (sop_instance_uid) DO UPDATE SET
     sop_class_uid = excluded.sop_class_uid,
     study_instance_uid = excluded.study_instance_uid,
@@ -111,5 +113,6 @@ ON CONFLICT (sop_instance_uid) DO UPDATE SET
     operator_name = excluded.operator_name,
     operator_source = excluded.operator_source,
     overlong_fields = excluded.overlong_fields,
-    text_replaced = excluded.text_replaced
+    text_replaced = excluded.text_replaced,
+    site = excluded.site
 RETURNING replaced_count, id;

@@ -3,10 +3,14 @@
 -- stats_exam_rows.sql), ordered by Study Instance UID and rule. Walks from
 -- the period's exam summaries that count findings to their findings (CROSS
 -- JOIN keeps that order: not every finding held, then its exam).
+-- :site_count, :site_1 ... :site_16: the sites asked for (migration 013;
+-- :site_count 0: every site; names not held match nothing).
 SELECT f.study_instance_uid, f.rule_id, count(*)
 FROM exam_summaries s
 CROSS JOIN findings f
 WHERE s.day >= ?1 AND s.day <= ?2 AND s.finding_count > 0
   AND f.study_instance_uid = s.study_instance_uid AND f.superseded = 0
+  AND (:site_count = 0 OR s.site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+      :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
 GROUP BY f.study_instance_uid, f.rule_id
 ORDER BY f.study_instance_uid, f.rule_id;

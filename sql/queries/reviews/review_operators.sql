@@ -7,6 +7,8 @@
 -- with a value; the middle value, or the mean of the two middle ones),
 -- exams with findings and findings, informational advisories (measured
 -- below their own limit) left out as on the worklist.
+-- :site_count, :site_1 ... :site_16: the sites asked for (migration 013;
+-- :site_count 0: every site; names not held match nothing).
 WITH exams AS (
     SELECT r.study_instance_uid, r.max_governing,
            (SELECT i.operator_name FROM instances i
@@ -18,7 +20,10 @@ WITH exams AS (
                        AND f.limit_value IS NOT NULL
                        AND f.measured_value < f.limit_value)) AS findings
     FROM exam_period_rows r
+    JOIN exam_summaries x ON x.day = r.day AND x.study_instance_uid = r.study_instance_uid
     WHERE r.day <> '' AND (CAST(?1 AS TEXT) IS NULL OR r.day >= ?1) AND (CAST(?2 AS TEXT) IS NULL OR r.day <= ?2)
+      AND (:site_count = 0 OR x.site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+          :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
 ),
 named AS (
     SELECT * FROM exams WHERE operator IS NOT NULL
