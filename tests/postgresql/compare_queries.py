@@ -191,8 +191,8 @@ def writes(f):
         "instances/rejection_insert.sql": (
             [{"received_at": review[0], "calling_ae_title": "SCANNER", "peer_address": "10.0.0.1",
               "sop_class_uid": "", "sop_instance_uid": "", "source_path": "",
-              "quarantine_path": "", "reason": "not ultrasound"}],
-            "SELECT received_at, calling_ae_title, reason FROM rejections ORDER BY id"),
+              "quarantine_path": "", "reason": "not ultrasound", "site": "north"}],
+            "SELECT received_at, calling_ae_title, reason, site FROM rejections ORDER BY id"),
         "exams/exam_time_at_or_above_refresh_all.sql": (
             [[]],
             "SELECT day, study_instance_uid, threshold, seconds FROM exam_time_at_or_above "
@@ -320,7 +320,10 @@ def main():
         cursor.execute("DROP SCHEMA IF EXISTS public CASCADE; CREATE SCHEMA public")
         for path in args.schema:
             with open(path, encoding="utf-8") as f:
-                cursor.execute(f.read())
+                # A common migration sets SQLite's user_version; the
+                # PostgreSQL runner leaves that line out, as here.
+                cursor.execute("".join(line for line in f
+                                       if not line.upper().startswith("PRAGMA USER_VERSION")))
         pg.commit()
         seed(lite)
         counts = sqlfiles.copy_database(lite, pg)
@@ -367,7 +370,26 @@ def main():
     return 1 if failures else 0
 
 
+def with_sites(sql, cases):
+    """The cases of a statement with the site parameters (migration 013):
+    each case for every site (:site_count 0) and for the site 'main' and
+    one that is not held."""
+    if ":site_count" not in sql:
+        return cases
+    out = []
+    for case in cases:
+        base = ({str(i + 1): v for i, v in enumerate(case)} if isinstance(case, list)
+                else dict(case))
+        for sites in ([], ["main"], ["main", "elsewhere"]):
+            parameters = dict(base, site_count=len(sites))
+            for i in range(16):
+                parameters["site_%d" % (i + 1)] = sites[i] if i < len(sites) else None
+            out.append(parameters)
+    return out
+
+
 def compare_reads(lite, pg, lite_sql, pg_sql, cases, verbose, unordered=False):
+    cases = with_sites(lite_sql, cases)
     for parameters in cases:
         try:
             expected = sqlfiles.run_sqlite(lite, lite_sql, parameters)
@@ -392,7 +414,7 @@ def compare_reads(lite, pg, lite_sql, pg_sql, cases, verbose, unordered=False):
 def compare_writes(lite, pg, lite_sql, pg_sql, cases, check, before=None):
     lite.execute("SAVEPOINT compare")
     try:
-        for parameters in cases:
+        for parameters in with_sites(lite_sql, cases):
             if before:
                 sqlfiles.run_sqlite(lite, before[0], parameters)
                 sqlfiles.run_postgresql(pg, before[1], parameters)

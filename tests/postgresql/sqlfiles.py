@@ -45,22 +45,23 @@ _TOKEN = re.compile(r"""
 
 
 def postgresql_parameters(sql):
-    """(text with $N, {name: N}): ?N keeps its number, each :name takes the
-    next free one in order of first appearance."""
+    """(text with $N, {name: N}) numbered as SQLite numbers them
+    (lang_expr.html, "Parameters"): ?N is N; a name keeps the number it
+    had, else takes the largest number so far plus one."""
     names = {}
-    numbered = [int(m.group("numbered")[1:]) for m in _TOKEN.finditer(sql)
-                if m.group("numbered")]
-    next_number = max(numbered, default=0)
+    largest = 0
 
     def replace(match):
-        nonlocal next_number
+        nonlocal largest
         if match.group("numbered"):
-            return "$" + match.group("numbered")[1:]
+            number = int(match.group("numbered")[1:])
+            largest = max(largest, number)
+            return "$%d" % number
         if match.group("named"):
             name = match.group("named")[1:]
             if name not in names:
-                next_number += 1
-                names[name] = next_number
+                largest += 1
+                names[name] = largest
             return "$%d" % names[name]
         return match.group(0)
 
@@ -68,10 +69,14 @@ def postgresql_parameters(sql):
 
 
 def bind(names, parameters):
-    """Parameters (a list for ?N, a dict for :name) as the positional list
-    of the rewritten text."""
+    """Parameters as the positional list of the rewritten text: a list is
+    ?1, ?2...; a dict holds names and numbers as text ("1": ?1)."""
     if isinstance(parameters, dict):
-        values = [None] * (max(names.values(), default=0))
+        count = max(list(names.values()) + [int(k) for k in parameters if k.isdigit()] + [0])
+        values = [None] * count
+        for key, value in parameters.items():
+            if key.isdigit():
+                values[int(key) - 1] = value
         for name, number in names.items():
             values[number - 1] = parameters.get(name)
         return values
