@@ -270,6 +270,21 @@ CLOCK = ("evaluated_at", "first_loaded_at", "last_loaded_at", "reviewed_at", "le
          "confirmed_at", "retired_at", "updated_at")
 
 
+def repository_schema():
+    """The files the PostgreSQL migration runner applies to a new database
+    (store_postgresql_migrate.c): compat.sql, the baseline, then every
+    common migration above 012, or its PostgreSQL override."""
+    migrations = os.path.join(sqlfiles.SQL, "migrations")
+    files = [os.path.join(migrations, "postgresql", "compat.sql"),
+             os.path.join(migrations, "postgresql", "012_baseline.sql")]
+    for name in sorted(os.listdir(migrations)):
+        if name.endswith(".sql") and name[:3].isdigit() and int(name[:3]) > 12:
+            override = os.path.join(migrations, "postgresql", name)
+            files.append(override if os.path.exists(override)
+                         else os.path.join(migrations, name))
+    return files
+
+
 def all_queries():
     names = []
     root = os.path.join(sqlfiles.SQL, "queries")
@@ -299,6 +314,10 @@ def main():
     parser.add_argument("--postgresql", required=True, help="libpq connection string")
     parser.add_argument("--schema", action="append", default=[],
                         help="SQL file run before --copy (the baseline, compat.sql)")
+    parser.add_argument("--repo-schema", action="store_true",
+                        help="with --copy: the schema as the PostgreSQL migration runner makes "
+                             "it from this tree (compat.sql, 012_baseline.sql, later "
+                             "migrations)")
     parser.add_argument("--copy", action="store_true",
                         help="empty the PostgreSQL database and copy the SQLite rows")
     parser.add_argument("--only", action="append", default=[],
@@ -318,7 +337,7 @@ def main():
     cursor = pg.cursor()
     if args.copy:
         cursor.execute("DROP SCHEMA IF EXISTS public CASCADE; CREATE SCHEMA public")
-        for path in args.schema:
+        for path in (repository_schema() if args.repo_schema else []) + args.schema:
             with open(path, encoding="utf-8") as f:
                 # A common migration sets SQLite's user_version; the
                 # PostgreSQL runner leaves that line out, as here.
