@@ -385,6 +385,17 @@ def main():
         if kind in ("DIFFERENT", "ERROR"):
             failures += 1
         print("%-48s %s%s" % (name, result, tag))
+    # An override whose common file has moved to another subject would be
+    # left unused: each must sit beside the file it replaces.
+    root = os.path.join(sqlfiles.SQL, "queries")
+    for subject in sorted(os.listdir(root)):
+        folder = os.path.join(root, subject, "postgresql")
+        for name in sorted(os.listdir(folder)) if os.path.isdir(folder) else []:
+            if not os.path.exists(os.path.join(root, subject, name)):
+                failures += 1
+                counted["error"] += 1
+                print("%-48s ERROR: override of no file: queries/%s/%s does not exist"
+                      % ("%s/postgresql/%s" % (subject, name), subject, name))
     print("; ".join("%s %d" % item for item in counted.items()))
     return 1 if failures else 0
 
