@@ -185,7 +185,9 @@ SELECT json_build_object(
                              :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))),
     'data_last_day', (SELECT day FROM latest),
     'weeks_with_data', (SELECT json_group_array(monday ORDER BY monday) FROM (
-        SELECT DISTINCT date(day, '-6 days', 'weekday 1') AS monday FROM exam_summaries
+        -- the Monday on or before each day, as date(day, '-6 days', 'weekday 1')
+        SELECT DISTINCT to_char(date_trunc('week', CAST(day AS date)), 'YYYY-MM-DD') AS monday
+        FROM exam_summaries
         WHERE day <> '' AND (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
             :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
         ) AS mondays),
