@@ -296,15 +296,53 @@ def all_queries():
 
 
 def seed(lite):
-    """Rows the simulator does not make (reviews), added to the SQLite
-    database with the statement that writes them before the copy, so that
-    the reads of them have something to compare."""
+    """Rows the simulator's plain import does not make (reviews, readings
+    of the screen, a learned screen profile, a mismatch finding), added to
+    the SQLite database with the statements that write them before the
+    copy, so that the reads of them have something to compare."""
     f = facts(lite)
-    parameters, _ = writes(f)["reviews/review_insert.sql"]
-    lite_sql = sqlfiles.query_text("queries/reviews/review_insert.sql", "sqlite")
+    run = lambda name, p: sqlfiles.run_sqlite(  # noqa: E731
+        lite, sqlfiles.query_text("queries/" + name, "sqlite"), p)
     lite.execute("BEGIN")
-    for p in parameters:
-        sqlfiles.run_sqlite(lite, lite_sql, p)
+    for p in writes(f)["reviews/review_insert.sql"][0]:
+        run("reviews/review_insert.sql", p)
+    run("devices/screen_profile_insert.sql",
+        {"profile_key": "scanner-a", "version": 1, "manufacturer": "Northwind Imaging",
+         "model_name": "NW-5", "software_versions": "2.1", "rows": 600, "columns": 800,
+         "profile_text": "[profile]", "report": "learned", "example_image": b"P5 1 1 255\n\x00"})
+    run("devices/screen_profile_activate.sql",
+        {"profile_key": "scanner-a", "version": 1, "confirmed_by": "A. Physicist"})
+    captures = lite.execute(
+        "SELECT id, sop_instance_uid, mi, tib FROM instances WHERE study_instance_uid = ? "
+        "AND object_kind = 'image' ORDER BY id LIMIT 6", (f["study"],)).fetchall()
+    states = ["read", "read", "not_read", "read", "read", "queued"]
+    for (instance_id, sop, mi, tib), state in zip(captures, states):
+        reading = {"instance_id": instance_id, "state": state, "profile_key": "scanner-a",
+                   "profile_version": 1, "frames_read": 1 if state == "read" else 0,
+                   "updated_at": "2026-11-03T10:00:00.000Z",
+                   "reason": "no index drawn" if state == "not_read" else None}
+        for index in ("mi", "tis", "tib", "tic", "tis_focus", "tis_surface"):
+            for column in ("", "_status", "_text", "_decimals", "_reason"):
+                reading[index + column] = None
+        if state == "read":
+            # one agreeing MI, one beyond the screen's rounding, one
+            # index left blank on the frame
+            shown = (mi if mi is not None else 0.8) + (0.3 if instance_id % 2 else 0.0)
+            reading.update({"mi": round(shown, 1), "mi_status": "read",
+                            "mi_text": "%.1f" % shown, "mi_decimals": 1,
+                            "tib_status": "not_read",
+                            "tib_reason": "nothing is drawn where the index goes"})
+        run("readings/reading_result_upsert.sql", reading)
+    if captures:
+        run("findings/finding_insert.sql",
+            {"study_instance_uid": f["study"], "rule_id": "header_screen_mismatch",
+             "severity": "advisory", "quantity": "mi", "measured_value": 1.1, "unit": None,
+             "limit_value": None, "threshold": None, "governing_index": None,
+             "instance_uids": "[%s]" % ",".join('"%s"' % c[1] for c in captures[:2]),
+             "first_seconds": None, "last_seconds": None, "estimated_seconds": None,
+             "assumptions": None, "source_text": None, "provisional": 0,
+             "policy_version": f["policy"], "exam_type": None, "room": None, "preset": None,
+             "shift": None, "transducer": None, "period": None})
     lite.execute("COMMIT")
 
 
