@@ -87,6 +87,9 @@ EXPRESSIONS = [
     "(SELECT group_concat(x, ',') FROM (SELECT 'v1' AS x) t WHERE x = 'none')",
     "json_set(json('{\"a\":1,\"b\":2}'), '$.c', json('[3]'))",
     "json_set(json('{\"a\":1,\"b\":2}'), '$.a', json('\"x\"'), '$.d', json(NULL))",
+    "json_set(json('{\"a\":{\"b\":{}}}'), '$.c', json('{\"d\":[]}'))",
+    "json_set(json('{\"x\":{\"a\":2}}'), '$.a', json('3'))",
+    "json_set(json('{}'), '$.a', json(NULL))",
     # bit sets (instance_documents): bigint >> bigint
     "(12288 >> CAST(12 AS BIGINT)) & 1", "(12288 >> CAST(11 AS BIGINT)) & 1",
 ]

@@ -87,6 +87,14 @@ BEGIN
         RAISE EXCEPTION 'json_set: the path % is not a top-level member ($.name)', path;
     END IF;
     name := substr(path, 3);
+    IF strpos(document::text, to_json(name)::text) = 0 THEN
+        -- The name is nowhere in the document, so not a member: added at
+        -- the end by splicing the text, which costs far less than taking
+        -- the object apart (an instance document with its provenance).
+        RETURN (CASE WHEN btrim(document::text) ~ '^\{\s*\}$'
+                     THEN '{' ELSE left(rtrim(document::text), -1) || ',' END
+                || to_json(name)::text || ':' || coalesce(value::text, 'null') || '}')::json;
+    END IF;
     RETURN (SELECT json_group_object(member_name, member ORDER BY ordinal)
             FROM (SELECT e.member_name,
                          CASE WHEN e.member_name = name THEN coalesce(value, 'null'::json)
