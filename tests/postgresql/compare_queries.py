@@ -7,23 +7,24 @@ null; docs/postgresql-dialect.md).
 
     /usr/bin/python3 tests/postgresql/compare_queries.py \
         --sqlite DB.sqlite3 --postgresql 'host=127.0.0.1 port=55420 dbname=mitilog user=mitilog' \
-        [--schema FILE ...] [--copy] [--only NAME ...]
+        [--copy [--repo-schema] [--schema FILE ...]] [--only subject/NAME.sql ...]
 
 DB.sqlite3 is a database made by mitilog (e.g. the simulator's days
 imported with `mitilog import`, as tests/api_snapshot.py does). With
---copy, the PostgreSQL database is emptied (schema public dropped), each
---schema file is run (the PostgreSQL baseline and compat.sql), two reviews
+--copy, the PostgreSQL database is emptied (schema public dropped), the
+schema is made (--repo-schema: as the migration runner makes it from this
+tree; --schema: these files), reviews, screen readings and a profile
 are added to the SQLite file (so give it a copy) and its rows are copied
-in. Reads run as they are; writes run on both
-inside a transaction that is rolled back, and what they changed is
-compared (the rows of the table they write, read back with the same
-ORDER BY on both).
+in. Reads run as they are; writes run on both inside a transaction that
+is rolled back, and what they changed is compared (the rows of the table
+they write, read back with the same ORDER BY on both); the statements
+with no parameter set here are prepared on PostgreSQL (parsed and typed).
 
-Prints one line per statement: "same", "DIFFERENT: where", "ERROR"
-(an error on one engine only), "not run" (SQLite's connection settings:
-pragmas, checkpoints, which PostgreSQL's engine does not run), with
-"(override)" when PostgreSQL reads its own file. Exit status 0 when
-nothing differs and nothing fails.
+Prints one line per statement: "same", "DIFFERENT: where", "ERROR: which
+engine and its message", "prepared", "not run" (SQLite's connection
+settings: pragmas, checkpoints, transactions, which PostgreSQL's engine
+does not run), with "(override)" when PostgreSQL reads its own file.
+Exit status 0 when nothing differs and nothing fails.
 """
 import argparse
 import os

@@ -151,10 +151,6 @@ def _run_postgresql(connection, sql, parameters):
     return rows
 
 
-class _Untyped(str):
-    """A parameter value sent as a quoted literal of unknown type."""
-
-
 def _text_value(value):
     if isinstance(value, (bytes, bytearray, memoryview)):
         import psycopg2
