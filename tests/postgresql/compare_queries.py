@@ -77,6 +77,7 @@ def facts(db):
                              "ORDER BY id LIMIT 1") or f["first_day"]
     f["room"] = one("SELECT room FROM findings WHERE room IS NOT NULL ORDER BY id LIMIT 1")
     f["finding"] = one("SELECT id FROM findings ORDER BY id LIMIT 1")
+    f["connection"] = db
     f["profile_key"] = one("SELECT profile_key FROM screen_profiles ORDER BY id LIMIT 1") \
         or "absent-profile"
     return f
@@ -249,6 +250,47 @@ def writes(f):
             "SELECT profile_key, version, manufacturer, model_name, software_versions, rows, "
             "columns, profile_text, state, report, example_image FROM screen_profiles "
             "ORDER BY id"),
+        "exams/exam_upsert.sql": (
+            [row_parameters(f, "exams", f["study"], {"exam_type": "compared", "max_tib": 1.25}),
+             row_parameters(f, "exams", f["study"], {"study_instance_uid": "2.25.1",
+                                                     "exam_type": None})],
+            "SELECT * FROM exams ORDER BY study_instance_uid"),
+        "instances/instance_upsert.sql": (
+            [row_parameters(f, "instances", f["sop"], {"mi": 0.9, "mi_raw": "0.9"}),
+             row_parameters(f, "instances", f["sop"], {"sop_instance_uid": "2.25.2",
+                                                       "received_at": "2026-11-09T08:00:00Z",
+                                                       "site": "south"})],
+            "SELECT sop_instance_uid, study_instance_uid, mi, mi_raw, received_at, "
+            "first_received_at, replaced_count, site FROM instances "
+            "ORDER BY sop_instance_uid"),
+        "exams/exam_timeline_insert.sql": (
+            [{"study_instance_uid": f["study"], "position": 900, "sop_instance_uid": f["sop"],
+              "start_seconds": 1.5, "interval_seconds": 2.0, "cine_seconds": 0.0,
+              "attributed_seconds": 2.0, "capped": 1}],
+            "SELECT * FROM exam_timeline ORDER BY study_instance_uid, position"),
+        "exams/exam_mode_maximum_insert.sql": (
+            [{"study_instance_uid": f["study"], "mode": "compared", "rank": 30,
+              "index_name": "tib", "max_value": 0.8}],
+            "SELECT * FROM exam_mode_maxima ORDER BY study_instance_uid, mode, index_name"),
+        "findings/exam_measurements_upsert.sql": (
+            [{"study_instance_uid": f["study"], "policy_version": f["policy"],
+              "governing_index": "tib", "max_governing": 1.1, "max_mi": 0.4,
+              "cem43_minutes": 0.001, "estimated_seconds": 300.0, "doppler_seconds": 20.0,
+              "evaluation_hash": "compared"}],
+            "SELECT study_instance_uid, policy_version, governing_index, max_governing, "
+            "cem43_minutes, evaluation_hash FROM exam_measurements "
+            "ORDER BY study_instance_uid, policy_version"),
+        "findings/findings_delete.sql": (
+            [[f["study"], f["policy"], None, None],
+             [None, f["policy"], f["device_rule"], f["device_period"]]],
+            "SELECT id FROM findings ORDER BY id"),
+        "readings/index_source_set.sql": (
+            [["header"]], "SELECT * FROM index_source_setting"),
+        "readings/reading_queue_take.sql": (
+            [[f["instance_id"], "/nowhere"]], "SELECT count(*) FROM reading_queue"),
+        "devices/screen_profile_retire.sql": (
+            [{"profile_key": "scanner-a"}],
+            "SELECT profile_key, version, state FROM screen_profiles ORDER BY id"),
         "readings/reading_clear_queue.sql": (
             [[f["instance_id"]]],
             "SELECT count(*) FROM reading_queue"),
@@ -263,6 +305,18 @@ def writes(f):
             "SELECT instance_id, state, reason, updated_at FROM screen_readings "
             "ORDER BY instance_id"),
     }
+
+
+def row_parameters(f, table, key, changes):
+    """The named parameters of an upsert taken from a row of table (its
+    columns are the parameters' names), with changes."""
+    column = "study_instance_uid" if table == "exams" else "sop_instance_uid"
+    connection = f["connection"]
+    cursor = connection.execute("SELECT * FROM %s WHERE %s = ?" % (table, column), (key,))
+    row = cursor.fetchone()
+    parameters = {d[0]: v for d, v in zip(cursor.description, row)}
+    parameters.update(changes)
+    return parameters
 
 
 # Columns whose values come from the clock ('now'): both engines must

@@ -6,7 +6,9 @@
 -- in instance_keys decides: inserted there (a new object, a new id) or
 -- found and locked there (a re-send, the same id and month), which makes
 -- two receivers sending the same object at once write one row. Returns
--- replaced_count and id. An empty :received_at means "now" (UTC).
+-- replaced_count and id. An empty :received_at means "now" (UTC). :site
+-- is the receiver's site (migration 013): a re-sent object keeps one row
+-- and records the site of the receiver that wrote it last.
 WITH key AS (
     INSERT INTO instance_keys AS k (sop_instance_uid, id, first_received_at)
     VALUES (:sop_instance_uid, nextval('instances_id_seq'),
@@ -31,7 +33,7 @@ inserted AS (
         frequency_source, cine_seconds, exam_type, exam_type_label, exam_type_source,
         governing_index, governing_index_source, gestational_age_weeks, gestational_age_source,
         preset, preset_source, room, room_source, shift, shift_source, age_group,
-        age_group_source, operator_name, operator_source, overlong_fields, text_replaced)
+        age_group_source, operator_name, operator_source, overlong_fields, text_replaced, site)
     SELECT key.id, key.first_received_at, key.first_received_at,
         :sop_instance_uid::text, :sop_class_uid::text, :study_instance_uid::text,
         :series_instance_uid::text, :modality::text, :station_name::text,
@@ -57,7 +59,7 @@ inserted AS (
         :gestational_age_weeks::double precision, :gestational_age_source::text, :preset::text,
         :preset_source::text, :room::text, :room_source::text, :shift::text,
         :shift_source::text, :age_group::text, :age_group_source::text, :operator_name::text,
-        :operator_source::text, :overlong_fields::text, :text_replaced::bigint
+        :operator_source::text, :overlong_fields::text, :text_replaced::bigint, :site::text
     FROM key WHERE key.inserted
     RETURNING replaced_count, id
 ),
@@ -131,7 +133,8 @@ updated AS (
     operator_name = :operator_name,
     operator_source = :operator_source,
     overlong_fields = :overlong_fields,
-    text_replaced = :text_replaced
+    text_replaced = :text_replaced,
+    site = :site
     FROM key
     WHERE NOT key.inserted AND i.id = key.id AND i.first_received_at = key.first_received_at
     RETURNING i.replaced_count, i.id
