@@ -7,23 +7,24 @@ null; docs/postgresql-dialect.md).
 
     /usr/bin/python3 tests/postgresql/compare_queries.py \
         --sqlite DB.sqlite3 --postgresql 'host=127.0.0.1 port=55420 dbname=mitilog user=mitilog' \
-        [--schema FILE ...] [--copy] [--only NAME ...]
+        [--copy [--repo-schema] [--schema FILE ...]] [--only subject/NAME.sql ...]
 
 DB.sqlite3 is a database made by mitilog (e.g. the simulator's days
 imported with `mitilog import`, as tests/api_snapshot.py does). With
---copy, the PostgreSQL database is emptied (schema public dropped), each
---schema file is run (the PostgreSQL baseline and compat.sql), two reviews
+--copy, the PostgreSQL database is emptied (schema public dropped), the
+schema is made (--repo-schema: as the migration runner makes it from this
+tree; --schema: these files), reviews, screen readings and a profile
 are added to the SQLite file (so give it a copy) and its rows are copied
-in. Reads run as they are; writes run on both
-inside a transaction that is rolled back, and what they changed is
-compared (the rows of the table they write, read back with the same
-ORDER BY on both).
+in. Reads run as they are; writes run on both inside a transaction that
+is rolled back, and what they changed is compared (the rows of the table
+they write, read back with the same ORDER BY on both); the statements
+with no parameter set here are prepared on PostgreSQL (parsed and typed).
 
-Prints one line per statement: "same", "DIFFERENT: where", "ERROR"
-(an error on one engine only), "not run" (SQLite's connection settings:
-pragmas, checkpoints, which PostgreSQL's engine does not run), with
-"(override)" when PostgreSQL reads its own file. Exit status 0 when
-nothing differs and nothing fails.
+Prints one line per statement: "same", "DIFFERENT: where", "ERROR: which
+engine and its message", "prepared", "not run" (SQLite's connection
+settings: pragmas, checkpoints, transactions, which PostgreSQL's engine
+does not run), with "(override)" when PostgreSQL reads its own file.
+Exit status 0 when nothing differs and nothing fails.
 """
 import argparse
 import os
@@ -76,6 +77,7 @@ def facts(db):
                              "ORDER BY id LIMIT 1") or f["first_day"]
     f["room"] = one("SELECT room FROM findings WHERE room IS NOT NULL ORDER BY id LIMIT 1")
     f["finding"] = one("SELECT id FROM findings ORDER BY id LIMIT 1")
+    f["connection"] = db
     f["profile_key"] = one("SELECT profile_key FROM screen_profiles ORDER BY id LIMIT 1") \
         or "absent-profile"
     return f
@@ -191,8 +193,8 @@ def writes(f):
         "instances/rejection_insert.sql": (
             [{"received_at": review[0], "calling_ae_title": "SCANNER", "peer_address": "10.0.0.1",
               "sop_class_uid": "", "sop_instance_uid": "", "source_path": "",
-              "quarantine_path": "", "reason": "not ultrasound"}],
-            "SELECT received_at, calling_ae_title, reason FROM rejections ORDER BY id"),
+              "quarantine_path": "", "reason": "not ultrasound", "site": "north"}],
+            "SELECT received_at, calling_ae_title, reason, site FROM rejections ORDER BY id"),
         "exams/exam_time_at_or_above_refresh_all.sql": (
             [[]],
             "SELECT day, study_instance_uid, threshold, seconds FROM exam_time_at_or_above "
@@ -248,6 +250,47 @@ def writes(f):
             "SELECT profile_key, version, manufacturer, model_name, software_versions, rows, "
             "columns, profile_text, state, report, example_image FROM screen_profiles "
             "ORDER BY id"),
+        "exams/exam_upsert.sql": (
+            [row_parameters(f, "exams", f["study"], {"exam_type": "compared", "max_tib": 1.25}),
+             row_parameters(f, "exams", f["study"], {"study_instance_uid": "2.25.1",
+                                                     "exam_type": None})],
+            "SELECT * FROM exams ORDER BY study_instance_uid"),
+        "instances/instance_upsert.sql": (
+            [row_parameters(f, "instances", f["sop"], {"mi": 0.9, "mi_raw": "0.9"}),
+             row_parameters(f, "instances", f["sop"], {"sop_instance_uid": "2.25.2",
+                                                       "received_at": "2026-11-09T08:00:00Z",
+                                                       "site": "south"})],
+            "SELECT sop_instance_uid, study_instance_uid, mi, mi_raw, received_at, "
+            "first_received_at, replaced_count, site FROM instances "
+            "ORDER BY sop_instance_uid"),
+        "exams/exam_timeline_insert.sql": (
+            [{"study_instance_uid": f["study"], "position": 900, "sop_instance_uid": f["sop"],
+              "start_seconds": 1.5, "interval_seconds": 2.0, "cine_seconds": 0.0,
+              "attributed_seconds": 2.0, "capped": 1}],
+            "SELECT * FROM exam_timeline ORDER BY study_instance_uid, position"),
+        "exams/exam_mode_maximum_insert.sql": (
+            [{"study_instance_uid": f["study"], "mode": "compared", "rank": 30,
+              "index_name": "tib", "max_value": 0.8}],
+            "SELECT * FROM exam_mode_maxima ORDER BY study_instance_uid, mode, index_name"),
+        "findings/exam_measurements_upsert.sql": (
+            [{"study_instance_uid": f["study"], "policy_version": f["policy"],
+              "governing_index": "tib", "max_governing": 1.1, "max_mi": 0.4,
+              "cem43_minutes": 0.001, "estimated_seconds": 300.0, "doppler_seconds": 20.0,
+              "evaluation_hash": "compared"}],
+            "SELECT study_instance_uid, policy_version, governing_index, max_governing, "
+            "cem43_minutes, evaluation_hash FROM exam_measurements "
+            "ORDER BY study_instance_uid, policy_version"),
+        "findings/findings_delete.sql": (
+            [[f["study"], f["policy"], None, None],
+             [None, f["policy"], f["device_rule"], f["device_period"]]],
+            "SELECT id FROM findings ORDER BY id"),
+        "readings/index_source_set.sql": (
+            [["header"]], "SELECT * FROM index_source_setting"),
+        "readings/reading_queue_take.sql": (
+            [[f["instance_id"], "/nowhere"]], "SELECT count(*) FROM reading_queue"),
+        "devices/screen_profile_retire.sql": (
+            [{"profile_key": "scanner-a"}],
+            "SELECT profile_key, version, state FROM screen_profiles ORDER BY id"),
         "readings/reading_clear_queue.sql": (
             [[f["instance_id"]]],
             "SELECT count(*) FROM reading_queue"),
@@ -264,10 +307,37 @@ def writes(f):
     }
 
 
+def row_parameters(f, table, key, changes):
+    """The named parameters of an upsert taken from a row of table (its
+    columns are the parameters' names), with changes."""
+    column = "study_instance_uid" if table == "exams" else "sop_instance_uid"
+    connection = f["connection"]
+    cursor = connection.execute("SELECT * FROM %s WHERE %s = ?" % (table, column), (key,))
+    row = cursor.fetchone()
+    parameters = {d[0]: v for d, v in zip(cursor.description, row)}
+    parameters.update(changes)
+    return parameters
+
+
 # Columns whose values come from the clock ('now'): both engines must
 # write a time there, but not the same one.
 CLOCK = ("evaluated_at", "first_loaded_at", "last_loaded_at", "reviewed_at", "learned_at",
          "confirmed_at", "retired_at", "updated_at")
+
+
+def repository_schema():
+    """The files the PostgreSQL migration runner applies to a new database
+    (store_postgresql_migrate.c): compat.sql, the baseline, then every
+    common migration above 012, or its PostgreSQL override."""
+    migrations = os.path.join(sqlfiles.SQL, "migrations")
+    files = [os.path.join(migrations, "postgresql", "compat.sql"),
+             os.path.join(migrations, "postgresql", "012_baseline.sql")]
+    for name in sorted(os.listdir(migrations)):
+        if name.endswith(".sql") and name[:3].isdigit() and int(name[:3]) > 12:
+            override = os.path.join(migrations, "postgresql", name)
+            files.append(override if os.path.exists(override)
+                         else os.path.join(migrations, name))
+    return files
 
 
 def all_queries():
@@ -281,15 +351,53 @@ def all_queries():
 
 
 def seed(lite):
-    """Rows the simulator does not make (reviews), added to the SQLite
-    database with the statement that writes them before the copy, so that
-    the reads of them have something to compare."""
+    """Rows the simulator's plain import does not make (reviews, readings
+    of the screen, a learned screen profile, a mismatch finding), added to
+    the SQLite database with the statements that write them before the
+    copy, so that the reads of them have something to compare."""
     f = facts(lite)
-    parameters, _ = writes(f)["reviews/review_insert.sql"]
-    lite_sql = sqlfiles.query_text("queries/reviews/review_insert.sql", "sqlite")
+    run = lambda name, p: sqlfiles.run_sqlite(  # noqa: E731
+        lite, sqlfiles.query_text("queries/" + name, "sqlite"), p)
     lite.execute("BEGIN")
-    for p in parameters:
-        sqlfiles.run_sqlite(lite, lite_sql, p)
+    for p in writes(f)["reviews/review_insert.sql"][0]:
+        run("reviews/review_insert.sql", p)
+    run("devices/screen_profile_insert.sql",
+        {"profile_key": "scanner-a", "version": 1, "manufacturer": "Northwind Imaging",
+         "model_name": "NW-5", "software_versions": "2.1", "rows": 600, "columns": 800,
+         "profile_text": "[profile]", "report": "learned", "example_image": b"P5 1 1 255\n\x00"})
+    run("devices/screen_profile_activate.sql",
+        {"profile_key": "scanner-a", "version": 1, "confirmed_by": "A. Physicist"})
+    captures = lite.execute(
+        "SELECT id, sop_instance_uid, mi, tib FROM instances WHERE study_instance_uid = ? "
+        "AND object_kind = 'image' ORDER BY id LIMIT 6", (f["study"],)).fetchall()
+    states = ["read", "read", "not_read", "read", "read", "queued"]
+    for (instance_id, sop, mi, tib), state in zip(captures, states):
+        reading = {"instance_id": instance_id, "state": state, "profile_key": "scanner-a",
+                   "profile_version": 1, "frames_read": 1 if state == "read" else 0,
+                   "updated_at": "2026-11-03T10:00:00.000Z",
+                   "reason": "no index drawn" if state == "not_read" else None}
+        for index in ("mi", "tis", "tib", "tic", "tis_focus", "tis_surface"):
+            for column in ("", "_status", "_text", "_decimals", "_reason"):
+                reading[index + column] = None
+        if state == "read":
+            # one agreeing MI, one beyond the screen's rounding, one
+            # index left blank on the frame
+            shown = (mi if mi is not None else 0.8) + (0.3 if instance_id % 2 else 0.0)
+            reading.update({"mi": round(shown, 1), "mi_status": "read",
+                            "mi_text": "%.1f" % shown, "mi_decimals": 1,
+                            "tib_status": "not_read",
+                            "tib_reason": "nothing is drawn where the index goes"})
+        run("readings/reading_result_upsert.sql", reading)
+    if captures:
+        run("findings/finding_insert.sql",
+            {"study_instance_uid": f["study"], "rule_id": "header_screen_mismatch",
+             "severity": "advisory", "quantity": "mi", "measured_value": 1.1, "unit": None,
+             "limit_value": None, "threshold": None, "governing_index": None,
+             "instance_uids": "[%s]" % ",".join('"%s"' % c[1] for c in captures[:2]),
+             "first_seconds": None, "last_seconds": None, "estimated_seconds": None,
+             "assumptions": None, "source_text": None, "provisional": 0,
+             "policy_version": f["policy"], "exam_type": None, "room": None, "preset": None,
+             "shift": None, "transducer": None, "period": None})
     lite.execute("COMMIT")
 
 
@@ -299,6 +407,10 @@ def main():
     parser.add_argument("--postgresql", required=True, help="libpq connection string")
     parser.add_argument("--schema", action="append", default=[],
                         help="SQL file run before --copy (the baseline, compat.sql)")
+    parser.add_argument("--repo-schema", action="store_true",
+                        help="with --copy: the schema as the PostgreSQL migration runner makes "
+                             "it from this tree (compat.sql, 012_baseline.sql, later "
+                             "migrations)")
     parser.add_argument("--copy", action="store_true",
                         help="empty the PostgreSQL database and copy the SQLite rows")
     parser.add_argument("--only", action="append", default=[],
@@ -318,9 +430,12 @@ def main():
     cursor = pg.cursor()
     if args.copy:
         cursor.execute("DROP SCHEMA IF EXISTS public CASCADE; CREATE SCHEMA public")
-        for path in args.schema:
+        for path in (repository_schema() if args.repo_schema else []) + args.schema:
             with open(path, encoding="utf-8") as f:
-                cursor.execute(f.read())
+                # A common migration sets SQLite's user_version; the
+                # PostgreSQL runner leaves that line out, as here.
+                cursor.execute("".join(line for line in f
+                                       if not line.upper().startswith("PRAGMA USER_VERSION")))
         pg.commit()
         seed(lite)
         counts = sqlfiles.copy_database(lite, pg)
@@ -363,11 +478,41 @@ def main():
         if kind in ("DIFFERENT", "ERROR"):
             failures += 1
         print("%-48s %s%s" % (name, result, tag))
+    # An override whose common file has moved to another subject would be
+    # left unused: each must sit beside the file it replaces.
+    root = os.path.join(sqlfiles.SQL, "queries")
+    for subject in sorted(os.listdir(root)):
+        folder = os.path.join(root, subject, "postgresql")
+        for name in sorted(os.listdir(folder)) if os.path.isdir(folder) else []:
+            if not os.path.exists(os.path.join(root, subject, name)):
+                failures += 1
+                counted["error"] += 1
+                print("%-48s ERROR: override of no file: queries/%s/%s does not exist"
+                      % ("%s/postgresql/%s" % (subject, name), subject, name))
     print("; ".join("%s %d" % item for item in counted.items()))
     return 1 if failures else 0
 
 
+def with_sites(sql, cases):
+    """The cases of a statement with the site parameters (migration 013):
+    each case for every site (:site_count 0) and for the site 'main' and
+    one that is not held."""
+    if ":site_count" not in sql:
+        return cases
+    out = []
+    for case in cases:
+        base = ({str(i + 1): v for i, v in enumerate(case)} if isinstance(case, list)
+                else dict(case))
+        for sites in ([], ["main"], ["main", "elsewhere"]):
+            parameters = dict(base, site_count=len(sites))
+            for i in range(16):
+                parameters["site_%d" % (i + 1)] = sites[i] if i < len(sites) else None
+            out.append(parameters)
+    return out
+
+
 def compare_reads(lite, pg, lite_sql, pg_sql, cases, verbose, unordered=False):
+    cases = with_sites(lite_sql, cases)
     for parameters in cases:
         try:
             expected = sqlfiles.run_sqlite(lite, lite_sql, parameters)
@@ -392,7 +537,7 @@ def compare_reads(lite, pg, lite_sql, pg_sql, cases, verbose, unordered=False):
 def compare_writes(lite, pg, lite_sql, pg_sql, cases, check, before=None):
     lite.execute("SAVEPOINT compare")
     try:
-        for parameters in cases:
+        for parameters in with_sites(lite_sql, cases):
             if before:
                 sqlfiles.run_sqlite(lite, before[0], parameters)
                 sqlfiles.run_postgresql(pg, before[1], parameters)

@@ -87,6 +87,14 @@ BEGIN
         RAISE EXCEPTION 'json_set: the path % is not a top-level member ($.name)', path;
     END IF;
     name := substr(path, 3);
+    IF strpos(document::text, to_json(name)::text) = 0 THEN
+        -- The name is nowhere in the document, so not a member: added at
+        -- the end by splicing the text, which costs far less than taking
+        -- the object apart (an instance document with its provenance).
+        RETURN (CASE WHEN btrim(document::text) ~ '^\{\s*\}$'
+                     THEN '{' ELSE left(rtrim(document::text), -1) || ',' END
+                || to_json(name)::text || ':' || coalesce(value::text, 'null') || '}')::json;
+    END IF;
     RETURN (SELECT json_group_object(member_name, member ORDER BY ordinal)
             FROM (SELECT e.member_name,
                          CASE WHEN e.member_name = name THEN coalesce(value, 'null'::json)
@@ -137,54 +145,101 @@ AS $$ SELECT strpos(haystack, needle) $$;
 CREATE OR REPLACE FUNCTION sqlite_time(value text, modifiers text[])
 RETURNS timestamp LANGUAGE plpgsql STABLE PARALLEL SAFE
 AS $$
+-- No EXCEPTION block: one would open a subtransaction on every call, and
+-- these functions run once per row in period reports. Values are checked
+-- before they are used instead.
 DECLARE
     parts text[];
     result timestamp;
     number double precision;
     modifier text;
-    position integer := 0;
+    first integer := 1;
     amount double precision;
     unit text;
     weekday integer;
+    seconds numeric;
+    zone text;
+    fraction text;
 BEGIN
     IF value IS NULL THEN
         RETURN NULL;
     END IF;
-    value := btrim(value);
-    IF lower(value) = 'now' THEN
+    IF length(value) = 10 AND value ~ '^[0-9]{4}-[01][0-9]-[0-3][0-9]$' THEN
+        -- 'YYYY-MM-DD', the commonest value: a day past the month's end
+        -- rolls into the next month, as SQLite's day count does.
+        IF substr(value, 6, 2)::integer NOT BETWEEN 1 AND 12
+           OR substr(value, 9, 2)::integer NOT BETWEEN 1 AND 31 THEN
+            RETURN NULL;
+        END IF;
+        result := make_timestamp(substr(value, 1, 4)::integer, substr(value, 6, 2)::integer, 1,
+                                 0, 0, 0)
+                  + make_interval(days => substr(value, 9, 2)::integer - 1);
+    ELSIF value ~ '^[0-9]{4}-[0-9]{2}-[0-9]{2}T[0-9]{2}:[0-9]{2}:[0-9]{2}(\.[0-9]+)?(Z|[+-][0-9]{2}:[0-9]{2})?$' THEN
+        -- The times as stored: received_at ('...T10:15:00.123Z') and
+        -- acquired_at ('...T14:06:49+00:00'), read by position rather than
+        -- by a matching expression with groups, which costs more.
+        IF substr(value, 6, 2)::integer NOT BETWEEN 1 AND 12
+           OR substr(value, 9, 2)::integer NOT BETWEEN 1 AND 31
+           OR substr(value, 12, 2)::integer > 24 OR substr(value, 15, 2)::integer > 59
+           OR substr(value, 18, 2)::integer > 59 THEN
+            RETURN NULL;
+        END IF;
+        zone := CASE WHEN right(value, 1) = 'Z' THEN 'Z'
+                     WHEN substr(value, length(value) - 5, 1) IN ('+', '-') THEN right(value, 6) END;
+        fraction := substr(value, 20, length(value) - 19 - coalesce(length(zone), 0));
+        result := make_timestamp(substr(value, 1, 4)::integer, substr(value, 6, 2)::integer, 1,
+                                 0, 0, 0)
+                  + make_interval(days => substr(value, 9, 2)::integer - 1,
+                                  hours => substr(value, 12, 2)::integer,
+                                  mins => substr(value, 15, 2)::integer,
+                                  secs => substr(value, 18, 2)::integer
+                                          + CASE WHEN fraction = '' THEN 0
+                                                 ELSE trunc(('0' || fraction)::numeric * 1000)
+                                                      / 1000.0 END);
+        IF zone IS NOT NULL AND zone <> 'Z' THEN
+            result := result - (CASE WHEN left(zone, 1) = '-' THEN -1 ELSE 1 END)
+                      * make_interval(hours => substr(zone, 2, 2)::integer,
+                                      mins => right(zone, 2)::integer);
+        END IF;
+    ELSIF lower(btrim(value)) = 'now' THEN
         result := date_trunc('milliseconds', statement_timestamp() AT TIME ZONE 'UTC');
-    ELSIF value ~ '^[+-]?([0-9]+\.?[0-9]*|\.[0-9]+)([eE][+-]?[0-9]+)?$' THEN
-        number := value::double precision;
+    ELSIF btrim(value) ~ '^[+-]?([0-9]+\.?[0-9]*|\.[0-9]+)([eE][+-]?[0-9]+)?$' THEN
+        number := btrim(value)::double precision;
         IF coalesce(array_length(modifiers, 1), 0) > 0
            AND lower(btrim(modifiers[1])) = 'unixepoch' THEN
-            position := 1;
+            first := 2;
+            IF abs(number) > 1e12 THEN
+                RETURN NULL;
+            END IF;
             -- Unix seconds, kept to the millisecond as SQLite keeps them.
             result := timestamp '1970-01-01 00:00:00'
                       + make_interval(secs => round(number * 1000.0) / 1000.0);
         ELSE
             -- A Julian day number: milliseconds since the Julian epoch,
             -- rounded as SQLite rounds them (iJD = r * 86400000 + 0.5).
+            IF number < 0 OR number > 5373484.5 THEN
+                RETURN NULL;   -- outside 0000-01-01..9999-12-31, as SQLite
+            END IF;
             result := timestamp '1970-01-01 00:00:00'
                       + make_interval(secs => (floor(number * 86400000.0 + 0.5)
                                                - 210866760000000) / 1000.0);
         END IF;
     ELSE
-        parts := regexp_match(value,
+        parts := regexp_match(btrim(value),
             '^([0-9]{4})-([0-9]{2})-([0-9]{2})'
             '(?:[T ]([0-9]{2}):([0-9]{2})(?::([0-9]{2}(?:\.[0-9]*)?))?)?'
             '\s*(Z|z|[+-][0-9]{2}:?[0-9]{2})?$');
-        IF parts IS NULL THEN
+        IF parts IS NULL OR parts[2]::integer NOT BETWEEN 1 AND 12
+           OR parts[3]::integer NOT BETWEEN 1 AND 31
+           OR coalesce(parts[4], '0')::integer > 24 OR coalesce(parts[5], '0')::integer > 59
+           OR coalesce(parts[6], '0')::numeric >= 60 THEN
             RETURN NULL;
         END IF;
-        BEGIN
-            result := make_timestamp(parts[1]::integer, parts[2]::integer, parts[3]::integer,
-                                     coalesce(parts[4], '0')::integer,
-                                     coalesce(parts[5], '0')::integer, 0)
-                      + make_interval(secs => trunc(coalesce(parts[6], '0')::numeric * 1000)
-                                              / 1000.0);
-        EXCEPTION WHEN others THEN
-            RETURN NULL;
-        END;
+        seconds := trunc(coalesce(nullif(parts[6], ''), '0')::numeric * 1000) / 1000.0;
+        result := make_timestamp(parts[1]::integer, parts[2]::integer, 1, 0, 0, 0)
+                  + make_interval(days => parts[3]::integer - 1,
+                                  hours => coalesce(parts[4], '0')::integer,
+                                  mins => coalesce(parts[5], '0')::integer, secs => seconds);
         IF parts[7] IS NOT NULL AND upper(parts[7]) <> 'Z' THEN
             -- A zone offset: the local time minus the offset is UTC.
             result := result - (CASE WHEN left(parts[7], 1) = '-' THEN -1 ELSE 1 END)
@@ -192,7 +247,7 @@ BEGIN
                                       mins => right(parts[7], 2)::integer);
         END IF;
     END IF;
-    FOR i IN position + 1 .. coalesce(array_length(modifiers, 1), 0) LOOP
+    FOR i IN first .. coalesce(array_length(modifiers, 1), 0) LOOP
         modifier := lower(btrim(modifiers[i]));
         IF modifier = 'start of day' THEN
             result := date_trunc('day', result);
@@ -203,24 +258,28 @@ BEGIN
             result := result + make_interval(days =>
                           ((weekday - extract(dow FROM result)::integer) + 7) % 7);
         ELSE
-            parts := regexp_match(modifier,
-                '^([+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+))\s*(day|hour|minute|second)s?$');
-            IF parts IS NULL THEN
+            -- 'NNN unit': split on the space rather than by a regular
+            -- expression, which costs more than the rest of the call.
+            unit := rtrim(split_part(modifier, ' ', 2), 's');
+            modifier := split_part(modifier, ' ', 1);
+            IF modifier !~ '^[+-]?([0-9]+\.?[0-9]*|\.[0-9]+)$'
+               OR unit NOT IN ('day', 'hour', 'minute', 'second') THEN
                 RETURN NULL;   -- SQLite answers NULL for a modifier it does not know
             END IF;
-            amount := parts[1]::double precision;
-            unit := parts[2];
-            result := result + CASE unit
-                WHEN 'day' THEN make_interval(secs => round(amount * 86400000.0) / 1000.0)
-                WHEN 'hour' THEN make_interval(secs => round(amount * 3600000.0) / 1000.0)
-                WHEN 'minute' THEN make_interval(secs => round(amount * 60000.0) / 1000.0)
-                ELSE make_interval(secs => round(amount * 1000.0) / 1000.0) END;
+            amount := modifier::double precision;
+            IF abs(amount) > 1e10 THEN
+                RETURN NULL;
+            END IF;
+            IF unit = 'day' AND amount = trunc(amount) THEN
+                result := result + make_interval(days => amount::integer);
+            ELSE
+                result := result + make_interval(secs => round(amount * CASE unit
+                    WHEN 'day' THEN 86400000.0 WHEN 'hour' THEN 3600000.0
+                    WHEN 'minute' THEN 60000.0 ELSE 1000.0 END) / 1000.0);
+            END IF;
         END IF;
     END LOOP;
     RETURN result;
-EXCEPTION WHEN datetime_field_overflow OR invalid_datetime_format
-               OR numeric_value_out_of_range THEN
-    RETURN NULL;
 END
 $$;
 
@@ -240,6 +299,16 @@ DECLARE
 BEGIN
     IF t IS NULL OR format IS NULL THEN
         RETURN NULL;
+    END IF;
+    -- The formats of sql/queries, without the walk below.
+    IF format = '%Y-%m-%d' THEN
+        RETURN to_char(t, 'YYYY-MM-DD');
+    ELSIF format = '%Y-%m-%dT%H:%M:%SZ' THEN
+        RETURN to_char(t, 'YYYY-MM-DD"T"HH24:MI:SS"Z"');
+    ELSIF format = '%Y-%m-%dT%H:%M:%fZ' THEN
+        RETURN to_char(t, 'YYYY-MM-DD"T"HH24:MI:SS.MS"Z"');
+    ELSIF format = '%Y-%m-%dT%H:%M:%S' THEN
+        RETURN to_char(t, 'YYYY-MM-DD"T"HH24:MI:SS');
     END IF;
     WHILE i <= length(format) LOOP
         c := substr(format, i, 1);

@@ -4,14 +4,15 @@
 -- The summary row of exam ?1 from what the tables hold now: its exam
 -- record, first instance, context, counts, findings and the current
 -- policy's measurement (none when the exam does not exist). After
--- exam_summary_delete.sql; exam_time_at_or_above_*.sql follow.
+-- exam_summary_delete.sql; exam_time_at_or_above_*.sql follow. site: the
+-- site of the exam's first instance (migration 013).
 INSERT INTO exam_summaries (
     day, study_instance_uid, first_acquired_at, exam_type, exam_type_label,
     governing_index, max_governing, max_mi, estimated_seconds,
     first_key, first_id, first_room, first_preset, first_shift, first_transducer,
     study_description, context_room, context_preset, context_shift,
     context_transducer, measured_policy, measured_seconds, min_received_at,
-    captures, indexed_count, finding_count)
+    captures, indexed_count, finding_count, site)
 SELECT coalesce(substr(coalesce(e.first_acquired_at, k.min_received_at), 1, 10), ''),
        e.study_instance_uid, e.first_acquired_at, e.exam_type, e.exam_type_label,
        e.governing_index,
@@ -26,7 +27,8 @@ SELECT coalesce(substr(coalesce(e.first_acquired_at, k.min_received_at), 1, 10),
         WHERE m.study_instance_uid = e.study_instance_uid AND m.policy_version = p.version),
        k.min_received_at, coalesce(k.captures, 0), coalesce(k.indexed, 0),
        (SELECT count(*) FROM findings x
-        WHERE x.study_instance_uid = e.study_instance_uid AND x.superseded = 0)
+        WHERE x.study_instance_uid = e.study_instance_uid AND x.superseded = 0),
+       coalesce(f.site, 'main')
 FROM exams e
 CROSS JOIN (SELECT sum(CASE WHEN j.object_kind = 'image' OR j.object_kind = 'multiframe'
                                 OR j.object_kind = 'volume' THEN 1 ELSE 0 END) AS captures,

@@ -1,7 +1,7 @@
 -- PostgreSQL's findings.sql (docs/postgresql-dialect.md): the same
--- document built with json_build_object (SQLite's json_object takes any
--- number of mixed arguments, which a PostgreSQL function cannot), chr()
--- for SQLite's char(), an explicit integer test of ?8.
+-- document, built with json_build_object (SQLite's json_object takes any number of mixed
+-- arguments, which no PostgreSQL function can); chr() for SQLite's char(); ?8 and ?9
+-- typed as integers where they first appear; the subquery named.
 -- GET /api/v1/findings: a JSON array of findings, newest first.
 -- ?1 from, ?2 to (dates 'YYYY-MM-DD', inclusive, on the finding's
 -- started_at, else the exam's first acquisition, else its period),
@@ -15,7 +15,14 @@
 -- held; the exact day test below still decides. Findings without one are
 -- few (the same index, started_at NULL) and take their day from the exam
 -- or their period.
-WITH candidates AS (
+-- :site_count, :site_1 ... :site_16: the sites asked for (migration 013;
+-- :site_count 0: every site; names not held match nothing).
+WITH asked AS (
+    -- ?9 first: a named parameter takes the number after the highest one
+    -- seen before it, so every ?N comes before :site_count in the text.
+    SELECT CAST(?9 AS INTEGER) AS row_limit
+),
+candidates AS (
     SELECT f.* FROM findings f
     WHERE f.superseded IN (0, CASE WHEN CAST(?8 AS INTEGER) <> 0 THEN 1 ELSE 0 END)
       AND f.started_at >= coalesce(?1, '')
@@ -29,7 +36,11 @@ chosen AS (
     FROM candidates f LEFT JOIN exams e ON e.study_instance_uid = f.study_instance_uid
     WHERE (CAST(?3 AS TEXT) IS NULL OR f.severity = ?3) AND (CAST(?4 AS TEXT) IS NULL OR f.rule_id = ?4)
       AND (CAST(?5 AS TEXT) IS NULL OR f.room = ?5) AND (CAST(?6 AS TEXT) IS NULL OR f.preset = ?6)
-      AND (CAST(?7 AS TEXT) IS NULL OR f.shift = ?7))
+      AND (CAST(?7 AS TEXT) IS NULL OR f.shift = ?7)
+      AND (:site_count = 0 OR f.study_instance_uid IN (
+          SELECT x.study_instance_uid FROM exam_summaries x
+          WHERE (:site_count = 0 OR x.site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+              :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16)))))
 SELECT coalesce(json_group_array(json(document)), '[]') FROM (
     SELECT json_build_object(
         'id', id, 'study_instance_uid', study_instance_uid, 'rule_id', rule_id,
@@ -43,7 +54,9 @@ SELECT coalesce(json_group_array(json(document)), '[]') FROM (
         'superseded', json(iif(superseded, 'true', 'false')),
         'policy_version', policy_version, 'exam_type', exam_type, 'room', room,
         'preset', preset, 'shift', shift, 'transducer', transducer,
-        'period', period, 'evaluated_at', evaluated_at) AS document
+        'period', period, 'evaluated_at', evaluated_at,
+        'site', (SELECT min(x.site) FROM exam_summaries x
+                 WHERE x.study_instance_uid = chosen.study_instance_uid)) AS document
     FROM chosen
     WHERE (CAST(?1 AS TEXT) IS NULL OR day >= ?1) AND (CAST(?2 AS TEXT) IS NULL OR day <= ?2)
-    ORDER BY day DESC, id DESC LIMIT ?9) AS documents;
+    ORDER BY day DESC, id DESC LIMIT (SELECT row_limit FROM asked)) AS documents;

@@ -1,14 +1,13 @@
 -- PostgreSQL's ingest_status.sql (docs/postgresql-dialect.md): the same
--- document, built with json_build_object (SQLite's json_object takes any
--- number of mixed arguments, which no PostgreSQL function can); ?1 and ?2
--- typed as integers where they first appear (they are numbers in the
--- document); the finding's instance UIDs read with
--- json_array_elements_text (SQLite's json_each has other columns); IS NOT
--- DISTINCT FROM for SQLite's IS; the grouped rows filtered outside (no
--- output names in HAVING); each array's order inside its aggregate, NULLs
--- first as SQLite sorts them; the station names of a profile in name order
--- (SQLite's DISTINCT keeps the order the rows came in, which it does not
--- define).
+-- document, built with json_build_object (SQLite's json_object takes any number of mixed
+-- arguments, which no PostgreSQL function can); ?1, ?2 and ?3 typed as integers where
+-- they first appear (they are numbers in the document); the finding's
+-- instance UIDs read with json_array_elements_text (SQLite's json_each
+-- has other columns); IS NOT DISTINCT FROM for SQLite's IS; the grouped
+-- rows filtered outside (no output names in HAVING); each array's order
+-- inside its aggregate, NULLs first as SQLite sorts them; the station
+-- names of a profile in name order (SQLite's DISTINCT keeps the order the
+-- rows came in, which it does not define).
 -- The ingest status document (store_ingest_json, GET /api/v1/ingest).
 -- ?1: window in hours (objects per hour, device activity); received_at is
 -- UTC. A device (calling AE title and Station Name) is "silent" when it
@@ -20,12 +19,19 @@
 -- only those days: the first exam of that room and transducer without any
 -- index after its last exam with one. reading: the pixel reading queue and
 -- the states of the readings.
+-- Sites (migration 013): :site_count, :site_1 ... :site_16 limit the
+-- instances, exams and rejections counted to the sites asked for
+-- (:site_count 0: every site); sites lists every site held, unfiltered
+-- (instances, studies, rejections, last receipt), for the site selector;
+-- exam_jobs is the depth of the exam rebuild queue (waiting, taken).
 WITH now AS (
     SELECT strftime('%Y-%m-%dT%H:%M:%SZ', 'now') AS at,
            strftime('%Y-%m-%dT%H:%M:%SZ', 'now', printf('-%d hours', CAST(?1 AS INTEGER)))
                AS window_start,
            strftime('%Y-%m-%dT%H:%M:%SZ', 'now', printf('-%d hours', CAST(?2 AS INTEGER)))
-               AS silent_before
+               AS silent_before,
+           -- ?3 here too: every ?N is seen before the named :site_count
+           CAST(?3 AS INTEGER) AS not_reporting_days
 ),
 hours AS (
     SELECT substr(received_at, 1, 13) AS hour, count(*) AS objects,
@@ -36,6 +42,8 @@ hours AS (
                                         OR r.tic IS NOT NULL)), 1, 0))
                AS without_indices
     FROM instances WHERE received_at >= (SELECT window_start FROM now)
+      AND (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+          :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
     GROUP BY 1 ORDER BY 1
 ),
 devices AS (
@@ -43,10 +51,15 @@ devices AS (
            station_name, max(room) AS room, count(*) AS objects,
            sum(iif(received_at >= (SELECT window_start FROM now), 1, 0)) AS objects_in_window,
            max(received_at) AS last_received_at
-    FROM instances GROUP BY 1, 2 ORDER BY 1, 2
+    FROM instances
+    WHERE (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+        :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
+    GROUP BY 1, 2 ORDER BY 1, 2
 ),
 last_day AS (
     SELECT max(substr(acquired_at, 1, 10)) AS day FROM instances
+    WHERE (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+        :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
 ),
 recent_not_reporting AS (
     SELECT * FROM (
@@ -63,6 +76,8 @@ recent_not_reporting AS (
                    acquired_at, NULL)) AS first_recent_without_at
     FROM instances
     WHERE object_kind IN ('image', 'multiframe', 'volume')
+      AND (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+          :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
       AND substr(acquired_at, 1, 10) >= date((SELECT day FROM last_day), printf('-%d days', ?3 - 1))
     GROUP BY 1, 2) AS grouped
     WHERE without_indices > 0
@@ -87,15 +102,44 @@ SELECT json_build_object(
     'silent_after_hours', ?2,
     'not_reporting_days', ?3,
     'totals', json_build_object(
-        'instances', (SELECT count(*) FROM instances),
-        'studies', (SELECT count(*) FROM exams),
-        'rejections', (SELECT count(*) FROM rejections),
-        'quarantined', (SELECT count(*) FROM rejections WHERE quarantine_path <> ''),
+        'instances', (SELECT count(*) FROM instances
+                      WHERE (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+                          :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))),
+        'studies', CASE WHEN :site_count = 0 THEN (SELECT count(*) FROM exams)
+                   ELSE (SELECT count(*) FROM exam_summaries
+                         WHERE (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+                             :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))) END,
+        'rejections', (SELECT count(*) FROM rejections
+                       WHERE (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+                           :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))),
+        'quarantined', (SELECT count(*) FROM rejections WHERE quarantine_path <> ''
+                        AND (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+                            :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))),
         -- re-sent objects (same SOP Instance UID) replace their row: how
         -- many rows were replaced, and how many times in all
-        'replaced_instances', (SELECT count(*) FROM instances WHERE replaced_count > 0),
-        'replacements', (SELECT coalesce(sum(replaced_count), 0) FROM instances),
-        'last_received_at', (SELECT max(received_at) FROM instances)),
+        'replaced_instances', (SELECT count(*) FROM instances WHERE replaced_count > 0
+                               AND (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+                                   :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))),
+        'replacements', (SELECT coalesce(sum(replaced_count), 0) FROM instances
+                         WHERE (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+                             :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))),
+        'last_received_at', (SELECT max(received_at) FROM instances
+                             WHERE (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+                                 :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16)))),
+    'sites', (SELECT coalesce(json_group_array(json_build_object(
+        'site', site, 'instances', instances, 'studies', studies, 'rejections', rejections,
+        'last_received_at', last_received_at) ORDER BY site), '[]') FROM (
+        SELECT n.site,
+               (SELECT count(*) FROM instances i WHERE i.site = n.site) AS instances,
+               (SELECT count(*) FROM exam_summaries x WHERE x.site = n.site) AS studies,
+               (SELECT count(*) FROM rejections j WHERE j.site = n.site) AS rejections,
+               (SELECT max(i.received_at) FROM instances i WHERE i.site = n.site)
+                   AS last_received_at
+        FROM (SELECT DISTINCT site FROM instances UNION SELECT DISTINCT site FROM rejections) n
+        ) AS per_site),
+    'exam_jobs', json_build_object(
+        'waiting', (SELECT count(*) FROM exam_jobs WHERE taken_by IS NULL),
+        'taken', (SELECT count(*) FROM exam_jobs WHERE taken_by IS NOT NULL)),
     'reading', json_build_object(
         'queued', (SELECT count(*) FROM reading_queue),
         'queued_bytes', (SELECT coalesce(sum(bytes), 0) FROM reading_queue),
@@ -124,14 +168,20 @@ SELECT json_build_object(
         ORDER BY hour) FROM hours),
     'rejections_by_reason', (SELECT json_group_array(json_build_object('reason', reason, 'count', n)
                                                      ORDER BY n DESC, reason)
-        FROM (SELECT reason, count(*) AS n FROM rejections GROUP BY reason
+        FROM (SELECT reason, count(*) AS n FROM rejections
+              WHERE (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+                  :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
+              GROUP BY reason
               ORDER BY n DESC, reason LIMIT 50) AS reasons),
     'rejections_recent', (SELECT json_group_array(json_build_object(
         'received_at', received_at, 'calling_ae_title', calling_ae_title,
-        'sop_class_uid', sop_class_uid, 'reason', reason,
+        'sop_class_uid', sop_class_uid, 'reason', reason, 'site', site,
         'quarantined', json(iif(quarantine_path <> '', 'true', 'false')))
         ORDER BY received_at DESC, id DESC)
-        FROM (SELECT * FROM rejections ORDER BY received_at DESC, id DESC LIMIT 50) AS recent),
+        FROM (SELECT * FROM rejections
+              WHERE (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+                  :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
+              ORDER BY received_at DESC, id DESC LIMIT 50) AS recent),
     'devices', (SELECT json_group_array(json_build_object(
         'calling_ae_title', calling_ae_title, 'station_name', station_name, 'room', room,
         'objects', objects, 'objects_in_window', objects_in_window,

@@ -9,7 +9,9 @@
 -- first_received_at), unique in the month's partition: ON CONFLICT waits
 -- for another receiver writing the same object and then updates the row
 -- it committed, where an UPDATE would not see it. Returns replaced_count
--- and id. An empty :received_at means "now" (UTC).
+-- and id. An empty :received_at means "now" (UTC). :site is the receiver's
+-- site (migration 013): a re-sent object keeps one row and records the
+-- site of the receiver that wrote it last.
 WITH key AS (
     INSERT INTO instance_keys AS k (sop_instance_uid, id, first_received_at)
     VALUES (:sop_instance_uid, nextval('instances_id_seq'),
@@ -33,7 +35,7 @@ INSERT INTO instances AS i (
         frequency_source, cine_seconds, exam_type, exam_type_label, exam_type_source,
         governing_index, governing_index_source, gestational_age_weeks, gestational_age_source,
         preset, preset_source, room, room_source, shift, shift_source, age_group,
-        age_group_source, operator_name, operator_source, overlong_fields, text_replaced)
+        age_group_source, operator_name, operator_source, overlong_fields, text_replaced, site)
     SELECT key.id, key.first_received_at, key.first_received_at,
         :sop_instance_uid::text, :sop_class_uid::text, :study_instance_uid::text,
         :series_instance_uid::text, :modality::text, :station_name::text,
@@ -59,7 +61,7 @@ INSERT INTO instances AS i (
         :gestational_age_weeks::double precision, :gestational_age_source::text, :preset::text,
         :preset_source::text, :room::text, :room_source::text, :shift::text,
         :shift_source::text, :age_group::text, :age_group_source::text, :operator_name::text,
-        :operator_source::text, :overlong_fields::text, :text_replaced::bigint
+        :operator_source::text, :overlong_fields::text, :text_replaced::bigint, :site::text
     FROM key
 ON CONFLICT (sop_instance_uid, first_received_at) DO UPDATE SET
     sop_class_uid = :sop_class_uid,
@@ -130,5 +132,6 @@ ON CONFLICT (sop_instance_uid, first_received_at) DO UPDATE SET
     operator_name = :operator_name,
     operator_source = :operator_source,
     overlong_fields = :overlong_fields,
-    text_replaced = :text_replaced
+    text_replaced = :text_replaced,
+    site = :site
 RETURNING i.replaced_count, i.id;

@@ -1,7 +1,7 @@
 -- PostgreSQL's studies.sql (docs/postgresql-dialect.md): the same
--- document, built with json_build_object (SQLite's json_object takes any
--- number of mixed arguments, which no PostgreSQL function can); the bit
--- test compared with 1; the studies' order inside the aggregate.
+-- document, built with json_build_object (SQLite's json_object takes any number of mixed
+-- arguments, which no PostgreSQL function can); the bit test compared with 1; the
+-- studies' order inside the aggregate.
 -- One JSON object per study, as a JSON array ordered by the study's first
 -- acquisition. ?1 from, ?2 to: dates 'YYYY-MM-DD', inclusive, NULL = open.
 --
@@ -13,7 +13,10 @@
 -- numbers only for 'ok'), null when none. Instances without a Study
 -- Instance UID belong to no study and are left out.
 -- station_name, study_description, transducer, preset, room, shift and
--- age_group are those of the first instance; modes: of all instances.
+-- age_group are those of the first instance, and so is site (an exam
+-- belongs to the site of its first instance); modes: of all instances.
+-- :site_count, :site_1 ... :site_16: the sites asked for (migration 013;
+-- :site_count 0: every site; names not held match nothing).
 WITH ranked AS (
     SELECT *,
            coalesce(acquired_at, received_at) AS effective_at,
@@ -43,6 +46,7 @@ studies AS (
            max(iif(position = 1, room, NULL)) AS room,
            max(iif(position = 1, shift, NULL)) AS shift,
            max(iif(position = 1, age_group, NULL)) AS age_group,
+           max(iif(position = 1, site, NULL)) AS site,
            (SELECT json_group_array(mode) FROM
                (SELECT n.mode FROM mode_names n
                 WHERE EXISTS (SELECT 1 FROM instances j
@@ -79,6 +83,7 @@ SELECT json_group_array(json_build_object(
     'room', s.room,
     'shift', s.shift,
     'age_group', s.age_group,
+    'site', s.site,
     'estimated_scan_seconds', e.estimated_seconds,
     'source', json_build_object(
         'exam_type', e.exam_type_source,
@@ -94,5 +99,7 @@ FROM (
     SELECT * FROM studies
     WHERE (CAST(?1 AS TEXT) IS NULL OR substr(first_effective_at, 1, 10) >= ?1)
       AND (CAST(?2 AS TEXT) IS NULL OR substr(first_effective_at, 1, 10) <= ?2)
+      AND (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+          :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
     ) AS s
 LEFT JOIN exams e ON e.study_instance_uid = s.study_instance_uid;

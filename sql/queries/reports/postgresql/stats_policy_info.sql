@@ -7,6 +7,8 @@
 -- exams with a first acquisition), and the first and last exam day held
 -- (exams_first_acquired; the date part is monotonic in the text, so the
 -- date of the least time is the least date).
+-- :site_count, :site_1 ... :site_16: the sites asked for (migration 013;
+-- :site_count 0: every site; names not held match nothing).
 SELECT (SELECT version FROM policies ORDER BY first_loaded_at DESC, row_order DESC LIMIT 1),
        (SELECT name FROM policies ORDER BY first_loaded_at DESC, row_order DESC LIMIT 1),
        (SELECT group_concat(version, ',') FROM
@@ -16,6 +18,8 @@ SELECT (SELECT version FROM policies ORDER BY first_loaded_at DESC, row_order DE
             WHERE s.day >= ?1 AND s.day <= ?2 AND s.finding_count > 0
               AND f.study_instance_uid = s.study_instance_uid AND f.superseded = 0
               AND s.first_acquired_at IS NOT NULL
+              AND (:site_count = 0 OR s.site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+                  :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
             ORDER BY 1) AS versions),
        substr((SELECT min(first_acquired_at) FROM exams), 1, 10),
        substr((SELECT max(first_acquired_at) FROM exams), 1, 10);

@@ -1,8 +1,8 @@
 -- PostgreSQL's review_operators.sql (docs/postgresql-dialect.md): the
--- same document, built with json_build_object (SQLite's json_object takes
--- any number of mixed arguments, which no PostgreSQL function can), exams
--- with findings counted by CASE (PostgreSQL does not sum booleans), the
--- operators' order inside the aggregate.
+-- same document, built with json_build_object (SQLite's json_object takes any number of mixed
+-- arguments, which no PostgreSQL function can); exams with findings counted by CASE
+-- (PostgreSQL does not sum booleans); the median grouped by (SQLite takes
+-- a bare column); the operators' order inside the aggregate.
 -- GET /api/v1/operators: per operator, the exams of a period for the
 -- lead's coaching. ?1 from, ?2 to ('YYYY-MM-DD', inclusive, on the exam
 -- day; NULL: open). An exam's operator is the first Operators' Name
@@ -12,6 +12,8 @@
 -- with a value; the middle value, or the mean of the two middle ones),
 -- exams with findings and findings, informational advisories (measured
 -- below their own limit) left out as on the worklist.
+-- :site_count, :site_1 ... :site_16: the sites asked for (migration 013;
+-- :site_count 0: every site; names not held match nothing).
 WITH exams AS (
     SELECT r.study_instance_uid, r.max_governing,
            (SELECT i.operator_name FROM instances i
@@ -23,7 +25,10 @@ WITH exams AS (
                        AND f.limit_value IS NOT NULL
                        AND f.measured_value < f.limit_value)) AS findings
     FROM exam_period_rows r
+    JOIN exam_summaries x ON x.day = r.day AND x.study_instance_uid = r.study_instance_uid
     WHERE r.day <> '' AND (CAST(?1 AS TEXT) IS NULL OR r.day >= ?1) AND (CAST(?2 AS TEXT) IS NULL OR r.day <= ?2)
+      AND (:site_count = 0 OR x.site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+          :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
 ),
 named AS (
     SELECT * FROM exams WHERE operator IS NOT NULL

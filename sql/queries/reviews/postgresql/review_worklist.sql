@@ -1,9 +1,9 @@
--- PostgreSQL's review_worklist.sql (docs/postgresql-dialect.md): the same
--- document, built with json_build_object (SQLite's json_object takes any
--- number of mixed arguments, which no PostgreSQL function can); ?1 and ?2
--- typed where they first appear; IS NOT DISTINCT FROM for SQLite's IS;
--- greatest() for the two-argument max(); subqueries named; each array's
--- order inside its aggregate.
+-- PostgreSQL's review_worklist.sql (docs/postgresql-dialect.md): the
+-- same document, built with json_build_object (SQLite's json_object takes any number of mixed
+-- arguments, which no PostgreSQL function can); ?1 and ?2 typed where they first
+-- appear; IS NOT DISTINCT FROM for SQLite's IS; greatest() for the
+-- two-argument max(); subqueries named; each array's order inside its
+-- aggregate.
 -- GET /api/v1/worklist: the review worklist of one ISO week as one JSON
 -- object. ?1 the Monday 'YYYY-MM-DD' of the week: the one asked for, or
 -- the default week of every report (report_default_week, src/report/
@@ -20,30 +20,43 @@
 -- "reopened" or none leaves it open. Patterns: a rule's findings of the
 -- week concentrated in one shift, room or preset (at least 2 findings,
 -- at least 60 % of them there, and a larger share of the findings than
--- that group has of the week's exams).
-WITH latest AS (
-    SELECT max(day) AS day FROM exam_summaries WHERE day <> ''
+-- that group has of the week's exams). Device-level findings belong to
+-- no exam and so to no site: left out when sites are asked for.
+-- :site_count, :site_1 ... :site_16: the sites asked for (migration 013;
+-- :site_count 0: every site; names not held match nothing).
+WITH week AS (
+    -- ?1 and ?2 first: a named parameter takes the number after the
+    -- highest one seen before it in the text.
+    SELECT CAST(?1 AS TEXT) AS monday, CAST(?2 AS INTEGER) AS is_default
 ),
-week AS (
-    SELECT CAST(?1 AS TEXT) AS monday
+latest AS (
+    SELECT max(day) AS day FROM exam_summaries WHERE day <> ''
+      AND (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+          :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
 ),
 period AS (
     SELECT monday AS first_day, date(monday, '+6 days') AS last_day FROM week
 ),
 week_exams AS (
-    SELECT r.* FROM exam_period_rows r, period p
-    WHERE r.day BETWEEN p.first_day AND p.last_day
+    SELECT r.*, x.site FROM period p
+    JOIN exam_period_rows r ON r.day BETWEEN p.first_day AND p.last_day
+    JOIN exam_summaries x ON x.day = r.day AND x.study_instance_uid = r.study_instance_uid
+    WHERE (:site_count = 0 OR x.site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+          :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
 ),
 week_findings AS (
-    SELECT f.*, e.day AS day, e.first_acquired_at, e.exam_type_label, e.study_description
+    SELECT f.*, e.day AS day, e.first_acquired_at, e.exam_type_label, e.study_description,
+           e.site AS site
     FROM period p
     JOIN exam_summaries e ON e.day BETWEEN p.first_day AND p.last_day AND e.finding_count > 0
+         AND (:site_count = 0 OR e.site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+             :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
     JOIN findings f ON f.study_instance_uid = e.study_instance_uid AND f.superseded = 0
     UNION ALL
-    SELECT f.*, substr(f.period, 1, 10), NULL, NULL, NULL
+    SELECT f.*, substr(f.period, 1, 10), NULL, NULL, NULL, NULL
     FROM period p
     JOIN findings f ON f.study_instance_uid IS NULL AND f.superseded = 0
-    WHERE substr(f.period, 1, 10) BETWEEN p.first_day AND p.last_day
+    WHERE substr(f.period, 1, 10) BETWEEN p.first_day AND p.last_day AND :site_count = 0
 ),
 described AS (
     SELECT f.*,
@@ -110,6 +123,7 @@ documents AS (
         'exam_type_label', exam_type_label, 'study_description', study_description,
         'room', room, 'preset', preset, 'shift', shift, 'transducer', transducer,
         'operator_name', operator_name, 'accession_number', accession_number,
+        'site', site,
         'open', json(iif(open, 'true', 'false')),
         'review', iif(review_id IS NULL, NULL, json_build_object(
             'outcome', outcome, 'reviewer', reviewer, 'reviewed_at', reviewed_at,
@@ -165,12 +179,18 @@ SELECT json_build_object(
             || printf('%02d', (CAST(strftime('%j', date((SELECT monday FROM week), '+3 days'))
                                     AS INTEGER) + 6) / 7),
     'from', (SELECT first_day FROM period), 'to', (SELECT last_day FROM period),
-    'default_week', json(iif(CAST(?2 AS INTEGER), 'true', 'false')),
-    'data_first_day', (SELECT min(day) FROM exam_summaries WHERE day <> ''),
+    'default_week', json(iif((SELECT is_default FROM week), 'true', 'false')),
+    'data_first_day', (SELECT min(day) FROM exam_summaries WHERE day <> ''
+                         AND (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+                             :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))),
     'data_last_day', (SELECT day FROM latest),
     'weeks_with_data', (SELECT json_group_array(monday ORDER BY monday) FROM (
-        SELECT DISTINCT date(day, '-6 days', 'weekday 1') AS monday FROM exam_summaries
-        WHERE day <> '') AS mondays),
+        -- the Monday on or before each day, as date(day, '-6 days', 'weekday 1')
+        SELECT DISTINCT to_char(date_trunc('week', CAST(day AS date)), 'YYYY-MM-DD') AS monday
+        FROM exam_summaries
+        WHERE day <> '' AND (:site_count = 0 OR site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+            :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
+        ) AS mondays),
     'exam_count', (SELECT count(*) FROM week_exams),
     'counts', json_build_object(
         'violation', (SELECT count(*) FROM documents WHERE severity = 'violation'),
