@@ -19,6 +19,9 @@ packages=(
   # the shared store for a group of sites: PostgreSQL's client library, and
   # the server itself for the tests (tests/postgresql/cluster.sh)
   libpq-dev postgresql
+  # the integration tests read a PostgreSQL store directly (as they read the
+  # SQLite file with Python's sqlite3) when MITILOG_TEST_ENGINE=postgresql
+  python3-psycopg2
   # outbound HTTP for notifications (libcurl), multipart bodies of DICOMweb
   # STOW-RS requests (GMime)
   libcurl4-openssl-dev libgmime-3.0-dev
