@@ -90,7 +90,8 @@ done
 # tests labelled postgresql (ctest -L postgresql) get a server of their own,
 # its connection string in MITILOG_TEST_POSTGRESQL.
 if [ -n "${built[build]:-}" ] && [ -x "$top/build/mitilog" ]; then
-  if grep -qaw postgresql "$top/build/mitilog"; then
+  if "$python" -c 'import sys; sys.path.insert(0, sys.argv[1]); import benchlib; sys.exit(0 if benchlib.has_postgresql_engine(sys.argv[2]) else 1)' \
+    "$top/bench" "$top/build/mitilog"; then
     if ctest --test-dir "$top/build" -N -L postgresql 2>/dev/null | grep -q "Test *#"; then
       store_tests_on_postgresql() {
         local folder conninfo status
@@ -137,7 +138,8 @@ fi
 if [ "${MITILOG_BENCH:-1}" != 0 ] && [ -n "${built[build]:-}" ]; then
   bench_tiny() {
     local script
-    for script in ingest parse memory query scale hostile screen reading login screen_simulated; do
+    for script in ingest parse memory query scale hostile screen reading login screen_simulated \
+      engines_ingest engines_query engines_crash; do
       echo "--- bench/$script.py --tiny"
       MITILOG="$top/build/mitilog" "$python" "$top/bench/$script.py" --tiny || return 1
     done
