@@ -128,12 +128,15 @@ class Daemon:
         sections["dicom"].update(dicom or {})
         sections["http"].update(http or {})
         sections["storage"].update(storage or {})
-        self.engine = ENGINE
-        self.connection = None   # PostgreSQL conninfo of this daemon's database
-        if ENGINE == "postgresql":
+        # A test that names its engine (storage=dict(engine=...)) gets it.
+        self.engine = sections["storage"].get("engine", ENGINE)
+        self.connection = sections["storage"].get("connection")
+        if self.engine == "postgresql" and self.connection is None:
             self.connection = POSTGRESQL.database_for(self.workdir)
             sections["storage"]["engine"] = "postgresql"
             sections["storage"]["connection"] = self.connection
+        if self.engine == "sqlite":
+            sections["storage"].pop("engine", None)   # the default
         self.allowed = sections["dicom"]["allowed_calling_ae_titles"]
         self.config = os.path.join(self.workdir, "mitilog.ini")
         with open(self.config, "w") as f:
