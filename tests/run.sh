@@ -86,13 +86,14 @@ done
 # The same integration tests against a PostgreSQL store (normal tree only:
 # the suite takes minutes per engine). The session starts one throw-away
 # server (tests/postgresql/cluster.sh) and gives each daemon a database of
-# its own; tests about SQLite itself are skipped with their reason. Unit
-# tests labelled postgresql (ctest -L postgresql) get a server of their own,
-# its connection string in MITILOG_TEST_POSTGRESQL.
+# its own; tests about SQLite itself are skipped with their reason. The
+# unit tests named *postgresql* (ctest -R postgresql: the engine against a
+# real server) run again with a server of their own, its connection string
+# in MITILOG_TEST_POSTGRESQL (without it they skip their cases and say so).
 if [ -n "${built[build]:-}" ] && [ -x "$top/build/mitilog" ]; then
   if "$python" -c 'import sys; sys.path.insert(0, sys.argv[1]); import benchlib; sys.exit(0 if benchlib.has_postgresql_engine(sys.argv[2]) else 1)' \
     "$top/bench" "$top/build/mitilog"; then
-    if ctest --test-dir "$top/build" -N -L postgresql 2>/dev/null | grep -q "Test *#"; then
+    if ctest --test-dir "$top/build" -N -R postgresql 2>/dev/null | grep -q "Test *#"; then
       store_tests_on_postgresql() {
         local folder conninfo status
         folder=$(mktemp -d /tmp/mitilog-ctest-postgresql-XXXXXX)
@@ -100,13 +101,13 @@ if [ -n "${built[build]:-}" ] && [ -x "$top/build/mitilog" ]; then
           "${MITILOG_CTEST_POSTGRESQL_PORT:-$("$python" -c 'import socket; s = socket.socket(); s.bind(("127.0.0.1", 0)); print(s.getsockname()[1])')}") ||
           { rm -rf "$folder"; return 1; }
         MITILOG_TEST_POSTGRESQL="$conninfo" ctest --test-dir "$top/build" \
-          --output-on-failure -L postgresql
+          --output-on-failure -R postgresql
         status=$?
         bash "$top/tests/postgresql/cluster.sh" stop "$folder"
         rm -rf "$folder"
         return "$status"
       }
-      step "unit tests build/ on PostgreSQL (ctest -L postgresql)" store_tests_on_postgresql
+      step "unit tests build/ on PostgreSQL (ctest -R postgresql)" store_tests_on_postgresql
     fi
     step "integration tests build/mitilog on PostgreSQL" env MITILOG_BINARY="$top/build/mitilog" \
       MITILOG_TEST_ENGINE=postgresql "$python" -m pytest -v -p no:cacheprovider tests/integration
