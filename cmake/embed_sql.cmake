@@ -1,10 +1,10 @@
-# Turns every sql/migrations/*.sql and sql/queries/SUBJECT/*.sql into C string
-# constants, so the binary carries its own schema and queries.
-# Output: const mitilog_sql_file mitilog_sql_files[] (name, text), NULL-ended.
-file(GLOB migrations ${SQL_DIR}/migrations/*.sql)
-# PostgreSQL's baseline, compatibility functions and migration overrides
-file(GLOB postgresql_migrations ${SQL_DIR}/migrations/postgresql/*.sql)
-list(SORT postgresql_migrations)
+# Turns every sql/migrations/*.sql and sql/queries/SUBJECT/*.sql, and the
+# engine overrides in folders beside them (sql/migrations/ENGINE/*.sql,
+# sql/queries/SUBJECT/ENGINE/*.sql), into C string constants, so the
+# binary carries its own schema and queries.
+# Output: const sql_file sql_files[] (name, text), NULL-ended, named by the
+# path under sql/ ("migrations/ENGINE/NNN_NAME.sql" for an override).
+file(GLOB_RECURSE migrations ${SQL_DIR}/migrations/*.sql)
 # queries by subject, one folder each: named "queries/SUBJECT/NAME.sql"
 file(GLOB_RECURSE queries ${SQL_DIR}/queries/*.sql)
 list(SORT migrations)
@@ -13,7 +13,7 @@ set(body "/* Generated from sql/ by cmake/embed_sql.cmake; do not edit. */\n")
 string(APPEND body "#include \"store/sql_files.h\"\n\n")
 set(table "const sql_file sql_files[] = {\n")
 set(index 0)
-foreach(path ${migrations} ${postgresql_migrations} ${queries})
+foreach(path ${migrations} ${queries})
   file(READ ${path} text)
   file(RELATIVE_PATH name ${SQL_DIR} ${path})
   # Raw bytes as a hex array: no escaping problems, any length.

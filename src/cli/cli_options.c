@@ -47,8 +47,18 @@ int cli_prepare_data_directory(const config *config, mitilog_error *error)
     return 0;
 }
 
+mitilog_status cli_open_store(const config *config, store **out, mitilog_error *error)
+{
+    if (strcmp(config->storage_engine, "postgresql") == 0)
+        return store_open_postgresql(config->storage_connection, config->storage_read_connection,
+                                     (int)config->busy_timeout_ms, out, error);
+    return store_open(config->database_path, (int)config->busy_timeout_ms, out, error);
+}
+
 int cli_require_database(const char *command, const config *config)
 {
+    if (strcmp(config->storage_engine, "postgresql") == 0)
+        return 0;
     struct stat information;
     if (stat(config->database_path, &information) == 0 && S_ISREG(information.st_mode))
         return 0;

@@ -15,6 +15,7 @@
 #include "config/config_site.h"
 #include "http/http_auth.h"
 #include "rules/rules.h"
+#include "store/store_engine_postgresql.h"
 
 /* The data folder as `serve` will use it: it exists and takes a new file,
  * or its first missing folder can be made under an existing one. Probed
@@ -200,6 +201,60 @@ static int check_policy(const char *path, const char *from_config, const ext_sit
     return status;
 }
 
+/* One PostgreSQL connection string of [storage]: does the server answer,
+ * and which schema does it hold? 0 yes (and not newer than this program),
+ * -1 no, said in plain words. */
+static int check_postgresql(const char *key, const char *conninfo)
+{
+    int schema_version = -1;
+    char server_version[32];
+    mitilog_error error;
+    if (store_engine_postgresql_ping(conninfo, &schema_version, server_version,
+                                     sizeof server_version, &error) != MITILOG_OK) {
+        fprintf(stderr,
+                "mitilog: [storage] %s: %s\n"
+                "  Check that the server is running and reachable from here (host, port), that "
+                "the database exists and that this user may connect (pg_hba.conf, password or "
+                "~/.pgpass).\n",
+                key, error.text);
+        return -1;
+    }
+    int latest = store_postgresql_latest_migration();
+    if (schema_version < 0)
+        printf("; storage: [storage] %s answers (PostgreSQL %s); no mitilog schema there yet: "
+               "the first start of serve creates it (version %d)\n",
+               key, server_version, latest);
+    else
+        printf("; storage: [storage] %s answers (PostgreSQL %s); schema version %d, this "
+               "program's %d%s\n",
+               key, server_version, schema_version, latest,
+               schema_version < latest ? " (serve brings it up to date when it starts)" : "");
+    if (schema_version > latest) {
+        fprintf(stderr,
+                "mitilog: [storage] %s: the database has schema version %d, newer than this "
+                "program's %d: run the newer mitilog there\n",
+                key, schema_version, latest);
+        return -1;
+    }
+    return 0;
+}
+
+/* The store the configuration names: the SQLite file, or the PostgreSQL
+ * server(s), asked whether they answer. */
+static int check_storage(const config *config)
+{
+    if (strcmp(config->storage_engine, "postgresql") != 0) {
+        printf("\n; storage: SQLite file %s\n", config->database_path);
+        return 0;
+    }
+    printf("\n");
+    int status = check_postgresql("connection", config->storage_connection);
+    if (config->storage_read_connection[0] != '\0' &&
+        check_postgresql("read_connection", config->storage_read_connection) != 0)
+        status = -1;
+    return status;
+}
+
 int command_check_config(int argc, char **argv)
 {
     const char *config_path = NULL, *policy_path = NULL;
@@ -218,7 +273,8 @@ int command_check_config(int argc, char **argv)
                 "usage: mitilog check-config FILE [--policy POLICY]\n"
                 "       mitilog check-config --policy POLICY\n"
                 "Validates FILE, the site rules it names ([site] rules) and the ALARA policy\n"
-                "([rules] policy, or POLICY when given), and prints the effective\n"
+                "([rules] policy, or POLICY when given), asks a PostgreSQL store whether\n"
+                "it answers ([storage] engine = postgresql), and prints the effective\n"
                 "configuration (defaults filled in, paths resolved) and the policy version.\n"
                 "Every problem of every file is reported, each naming the file, line and\n"
                 "key. Exit status 0 if valid, 2 if not.\n");
@@ -246,6 +302,8 @@ int command_check_config(int argc, char **argv)
     if (check_data_directory(&config) != 0)
         status = EXIT_STATUS_USAGE;
     if (check_http(&config) != 0)
+        status = EXIT_STATUS_USAGE;
+    if (loaded == MITILOG_OK && check_storage(&config) != 0)
         status = EXIT_STATUS_USAGE;
     ext_site_rules rules;
     int site_valid = check_site(config.site_rules_path, config_path, &rules) == 0;

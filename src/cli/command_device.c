@@ -29,6 +29,7 @@
 #include "extract/ext.h"
 #include "screen/screen.h"
 #include "store/store.h"
+#include "store/store_devices.h"
 
 enum { DEVICE_FRAMES_MAX = 64, DEVICE_REPORT_SIZE = 4096 };
 
@@ -499,8 +500,7 @@ static int device_learn(int argc, char **argv, store **st_out, const char *confi
         if (cli_load_config(config_path, &config) != 0) {
             exit_status = EXIT_STATUS_USAGE;
         } else if (cli_prepare_data_directory(&config, &error) != 0 ||
-                   store_open(config.database_path, (int)config.busy_timeout_ms, &st, &error) !=
-                       MITILOG_OK) {
+                   cli_open_store(&config, &st, &error) != MITILOG_OK) {
             fprintf(stderr, "mitilog device learn: %s\n", error.text);
         } else {
             store_screen_profile_new row = {.key = key,
@@ -583,7 +583,7 @@ int command_device(int argc, char **argv)
     mitilog_error error = {{0}};
     store *st = NULL;
     if (cli_prepare_data_directory(&config, &error) != 0 ||
-        store_open(config.database_path, (int)config.busy_timeout_ms, &st, &error) != MITILOG_OK) {
+        cli_open_store(&config, &st, &error) != MITILOG_OK) {
         /* the reason is printed below */
     } else if (strcmp(action, "list") == 0) {
         char *json = NULL;

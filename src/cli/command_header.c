@@ -9,6 +9,7 @@
 #include "cli/cli_options.h"
 #include "cli/commands.h"
 #include "store/store.h"
+#include "store/store_instances.h"
 
 int command_header(int argc, char **argv)
 {
@@ -47,7 +48,7 @@ int command_header(int argc, char **argv)
     store *st = NULL;
     unsigned char *bytes = NULL;
     size_t size = 0;
-    if (store_open(config.database_path, (int)config.busy_timeout_ms, &st, &error) != MITILOG_OK ||
+    if (cli_open_store(&config, &st, &error) != MITILOG_OK ||
         store_get_header(st, uid, &bytes, &size, &error) != MITILOG_OK) {
         fprintf(stderr, "mitilog header: %s\n", error.text);
         goto done;

@@ -208,8 +208,7 @@ int command_import(int argc, char **argv)
     int status = EXIT_STATUS_FAILURE;
     if (dcm_initialise(LOG_LEVEL_WARNING, &error) != MITILOG_OK ||
         cli_prepare_data_directory(&config, &error) != 0 ||
-        store_open(config.database_path, (int)config.busy_timeout_ms, &store, &error) !=
-            MITILOG_OK ||
+        cli_open_store(&config, &store, &error) != MITILOG_OK ||
         /* Nothing is acknowledged to anyone during an import: commits need
          * not be synced one by one. store_close() checkpoints, which syncs
          * the database before the summary line says "imported". */

@@ -121,8 +121,7 @@ int command_report(int argc, char **argv)
     store *store = NULL;
     char *document = NULL;
     int status = EXIT_STATUS_FAILURE;
-    mitilog_status result =
-        store_open(config.database_path, (int)config.busy_timeout_ms, &store, &error);
+    mitilog_status result = cli_open_store(&config, &store, &error);
     if (config.site_institution != NULL && config.site_institution[0] != '\0')
         stats.institution = config.site_institution;
     if (result == MITILOG_OK)

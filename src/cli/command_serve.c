@@ -16,6 +16,7 @@
 #include "http/http.h"
 #include "ingest/ingest.h"
 #include "store/store.h"
+#include "store/store_findings.h"
 #include "util/log.h"
 
 static void print_serve_usage(FILE *out)
@@ -67,8 +68,7 @@ static int serve_start(serve_state *state, mitilog_error *error)
         return -1;
     if (cli_prepare_data_directory(config, error) != 0)
         return -1;
-    if (store_open(config->database_path, (int)config->busy_timeout_ms, &state->store, error) !=
-        MITILOG_OK)
+    if (cli_open_store(config, &state->store, error) != MITILOG_OK)
         return -1;
     if (store_set_durability(state->store,
                              strcmp(config->durability, "process") == 0

@@ -102,8 +102,19 @@ static const option options[] = {
     {"storage", "data_directory", OPTION_STRING, FIELD(data_directory), "var", 0, 0, NULL, 1,
      "Folder for the database, quarantine/, objects/ (full copies) and reading/ (objects waiting "
      "to be read)."},
+    {"storage", "engine", OPTION_CHOICE, FIELD(storage_engine), "sqlite", 0, 0,
+     "|sqlite|postgresql|", 0,
+     "sqlite: one file in data_directory, for one receiver; postgresql: a server that several "
+     "receivers (sites) share, named by connection."},
     {"storage", "database", OPTION_STRING, FIELD(database_path), "mitilog.sqlite3", 0, 0, NULL, 0,
      "SQLite database file; relative to data_directory."},
+    {"storage", "connection", OPTION_STRING, FIELD(storage_connection), "", 0, 0, NULL, 0,
+     "PostgreSQL (engine = postgresql): libpq connection string, key=value "
+     "('host=db.example port=5432 dbname=mitilog user=mitilog') or URI "
+     "('postgresql://mitilog@db.example/mitilog'); a password is better kept in ~/.pgpass."},
+    {"storage", "read_connection", OPTION_STRING, FIELD(storage_read_connection), "", 0, 0, NULL, 0,
+     "PostgreSQL: connection string of a replica the dashboard and API read from (read-only); "
+     "empty = read through connection."},
     {"storage", "retention", OPTION_CHOICE, FIELD(retention), "header", 0, 0, "|none|header|full|",
      0, "What is kept of each object: none, header (pixel data dropped) or full."},
     {"storage", "durability", OPTION_CHOICE, FIELD(durability), "power_loss", 0, 0,
@@ -324,6 +335,26 @@ static void config_validate(load_state *state)
                  config->http_address);
         config_problem(state, "http", "address", reason);
     }
+    int postgresql = strcmp(config->storage_engine, "postgresql") == 0;
+    if (postgresql && config->storage_connection[0] == '\0') {
+        snprintf(reason, reason_size,
+                 "engine = postgresql needs connection, e.g. 'host=127.0.0.1 port=5432 "
+                 "dbname=mitilog user=mitilog'");
+        config_problem(state, "storage", "engine", reason);
+    }
+    if (!postgresql && config->storage_connection[0] != '\0') {
+        snprintf(reason, reason_size,
+                 "connection is used only with engine = postgresql (engine is %.32s): set "
+                 "engine = postgresql, or remove connection",
+                 config->storage_engine);
+        config_problem(state, "storage", "connection", reason);
+    }
+    if (!postgresql && config->storage_read_connection[0] != '\0') {
+        snprintf(reason, reason_size,
+                 "read_connection is used only with engine = postgresql: set engine = "
+                 "postgresql, or remove read_connection");
+        config_problem(state, "storage", "read_connection", reason);
+    }
     if (config->http_port == config->port) {
         snprintf(reason, reason_size, "the HTTP port equals the DICOM port %u", config->port);
         config_problem(state, "http", "port", reason);
@@ -472,6 +503,56 @@ mitilog_status config_load(const char *path, config *config, mitilog_error *erro
     return config_finish(config, error);
 }
 
+/* A connection string with its password (key=value "password=...", or
+ * a URI's "user:password@") replaced by ********, so that printing the
+ * effective configuration does not show it. */
+static void config_print_connection(FILE *out, const char *key, const char *value)
+{
+    fprintf(out, "%s = ", key);
+    const char *uri_password = NULL;
+    if (strncmp(value, "postgresql://", 13) == 0 || strncmp(value, "postgres://", 11) == 0) {
+        const char *authority = strstr(value, "://") + 3;
+        const char *at = strchr(authority, '@');
+        const char *colon = strchr(authority, ':');
+        if (at != NULL && colon != NULL && colon < at)
+            uri_password = colon;
+        if (uri_password != NULL) {
+            fprintf(out, "%.*s:********%s\n", (int)(uri_password - value), value, at);
+            return;
+        }
+        fprintf(out, "%s\n", value);
+        return;
+    }
+    const char *p = value;
+    while (*p != '\0') {
+        if (strncasecmp(p, "password", 8) == 0 && (p == value || p[-1] == ' ' || p[-1] == '\t')) {
+            const char *q = p + 8;
+            while (*q == ' ')
+                q++;
+            if (*q == '=') {
+                q++;
+                while (*q == ' ')
+                    q++;
+                fprintf(out, "password=********");
+                if (*q == '\'') {
+                    for (q++; *q != '\0' && *q != '\''; q++)
+                        if (*q == '\\' && q[1] != '\0')
+                            q++;
+                    if (*q == '\'')
+                        q++;
+                } else {
+                    while (*q != '\0' && *q != ' ' && *q != '\t')
+                        q++;
+                }
+                p = q;
+                continue;
+            }
+        }
+        fputc(*p++, out);
+    }
+    fputc('\n', out);
+}
+
 void config_print(const config *config, FILE *out)
 {
     const char *section = "";
@@ -486,6 +567,9 @@ void config_print(const config *config, FILE *out)
         struct config *mutable_config = (struct config *)config;
         if (option->type == OPTION_UNSIGNED)
             fprintf(out, "%s = %u\n", option->key, *unsigned_field(mutable_config, option));
+        else if (option->offset == offsetof(struct config, storage_connection) ||
+                 option->offset == offsetof(struct config, storage_read_connection))
+            config_print_connection(out, option->key, *string_field(mutable_config, option));
         else
             fprintf(out, "%s = %s\n", option->key, *string_field(mutable_config, option));
     }

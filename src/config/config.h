@@ -52,9 +52,12 @@ typedef struct config {
 
     /* [storage] */
     char *data_directory;
-    char *database_path; /* default: data_directory/mitilog.sqlite3 */
-    char *retention;     /* "none", "header" or "full" */
-    char *durability;    /* "power_loss" or "process" */
+    char *storage_engine;          /* "sqlite" or "postgresql" */
+    char *database_path;           /* SQLite; default: data_directory/mitilog.sqlite3 */
+    char *storage_connection;      /* PostgreSQL conninfo (key=value or URI); "" = none */
+    char *storage_read_connection; /* PostgreSQL conninfo of the dashboard's reads; "" = same */
+    char *retention;               /* "none", "header" or "full" */
+    char *durability;              /* "power_loss" or "process" */
     unsigned busy_timeout_ms;
     unsigned sr_depth_limit;       /* SR content tree levels read */
     unsigned quarantine_max_bytes; /* quarantine/ quota; oldest removed */
@@ -86,7 +89,8 @@ mitilog_status config_set_defaults(config *config, mitilog_error *error);
 /* Defaults, then the file. */
 mitilog_status config_load(const char *path, config *config, mitilog_error *error);
 
-/* Writes the effective configuration as a valid INI file. */
+/* Writes the effective configuration as a valid INI file; a password in a
+ * PostgreSQL connection string is printed as "********". */
 void config_print(const config *config, FILE *out);
 
 void config_free(config *config);

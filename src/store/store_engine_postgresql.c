@@ -110,8 +110,13 @@ static const char *store_pg_message(PGconn *connection, const PGresult *result, 
     if (text == NULL || text[0] == '\0')
         text = connection != NULL ? PQerrorMessage(connection) : "out of memory";
     snprintf(buffer, size, "%s", text != NULL && text[0] != '\0' ? text : "unknown error");
+    /* libpq's messages run over lines ("...failed: Connection refused\n\tIs
+     * the server running..."): one line for the log. */
+    for (char *p = buffer; *p != '\0'; p++)
+        if (*p == '\n' || *p == '\t')
+            *p = ' ';
     size_t length = strlen(buffer);
-    while (length > 0 && (buffer[length - 1] == '\n' || buffer[length - 1] == ' '))
+    while (length > 0 && buffer[length - 1] == ' ')
         buffer[--length] = '\0';
     return buffer;
 }
@@ -216,14 +221,26 @@ static mitilog_status store_pg_open(const char *target, int read_only, int busy_
     c->read_only = read_only;
     c->lock_timeout_ms = busy_timeout_ms;
     c->generation = 1;
-    c->connection = PQconnectdb(target != NULL ? target : "");
+    /* Defaults first, so that the same keys in target win: a connection
+     * attempt gives up after 10 s (libpq waits for ever by default), and
+     * a server that vanished from the network is noticed within about a
+     * minute (keepalives), so that the receiver answers A700 rather than
+     * hang. */
+    static const char *const keys[] = {"connect_timeout",
+                                       "keepalives",
+                                       "keepalives_idle",
+                                       "keepalives_interval",
+                                       "keepalives_count",
+                                       "dbname",
+                                       NULL};
+    const char *values[] = {"10", "1", "30", "10", "3", target != NULL ? target : "", NULL};
+    c->connection = PQconnectdbParams(keys, values, 1);
     if (c->connection == NULL || PQstatus(c->connection) != CONNECTION_OK) {
         char message[MITILOG_ERROR_TEXT_SIZE / 2];
         store_pg_message(c->connection, NULL, message, sizeof message);
-        mitilog_error_set(error, MITILOG_ERROR_DATABASE,
-                          "cannot connect to PostgreSQL (%s): %s; check [storage] connection "
-                          "and that the server is running and accepts this user",
-                          target != NULL ? target : "", message);
+        /* Not the conninfo itself: it may hold a password. */
+        mitilog_error_set(error, MITILOG_ERROR_DATABASE, "cannot connect to PostgreSQL: %s",
+                          message);
         PQfinish(c->connection);
         free(c);
         return MITILOG_ERROR_DATABASE;

@@ -105,15 +105,13 @@ static mitilog_status store_pg_in_transaction(store_connection *c, const char *n
 }
 
 /* The database's schema version: 0 when it has no schema_version table. */
-static mitilog_status store_pg_read_version(store_connection *c, int *version,
-                                            mitilog_error *error)
+static mitilog_status store_pg_read_version(store_connection *c, int *version, mitilog_error *error)
 {
     *version = 0;
     const store_engine *engine = &store_engine_postgresql;
     store_statement *statement = NULL;
-    mitilog_status status =
-        engine->prepare(c, "schema version", "SELECT to_regclass('schema_version') IS NOT NULL",
-                        &statement, error);
+    mitilog_status status = engine->prepare(
+        c, "schema version", "SELECT to_regclass('schema_version') IS NOT NULL", &statement, error);
     int has_row = 0, exists = 0;
     if (status == MITILOG_OK)
         status = engine->step(statement, &has_row, error);
@@ -123,9 +121,9 @@ static mitilog_status store_pg_read_version(store_connection *c, int *version,
     statement = NULL;
     if (status != MITILOG_OK || !exists)
         return status;
-    status = engine->prepare(c, "schema version",
-                             "SELECT coalesce(max(version), 0) FROM schema_version", &statement,
-                             error);
+    status =
+        engine->prepare(c, "schema version", "SELECT coalesce(max(version), 0) FROM schema_version",
+                        &statement, error);
     if (status == MITILOG_OK)
         status = engine->step(statement, &has_row, error);
     if (status == MITILOG_OK && has_row)
@@ -197,11 +195,10 @@ static mitilog_status store_pg_migrate_locked(store_connection *c, int *version,
         }
     }
     if (status == MITILOG_OK)
-        status = store_pg_in_transaction(
-            c, "month partitions",
-            "SELECT mitilog_month_partitions(current_date, "
-            "(current_date + interval '12 months')::date)",
-            error);
+        status = store_pg_in_transaction(c, "month partitions",
+                                         "SELECT mitilog_month_partitions(current_date, "
+                                         "(current_date + interval '12 months')::date)",
+                                         error);
     return status;
 }
 
@@ -210,11 +207,9 @@ mitilog_status store_postgresql_migrate(store_connection *connection, int busy_t
 {
     *version = 0;
     /* The lock waits as long as another receiver migrates. */
-    mitilog_status status =
-        store_pg_script(connection, "migration lock",
-                        "SET lock_timeout = 0; SELECT pg_advisory_lock(" STORE_PG_MIGRATION_LOCK
-                        ")",
-                        error);
+    mitilog_status status = store_pg_script(
+        connection, "migration lock",
+        "SET lock_timeout = 0; SELECT pg_advisory_lock(" STORE_PG_MIGRATION_LOCK ")", error);
     if (status != MITILOG_OK)
         return status;
     status = store_pg_migrate_locked(connection, version, error);
@@ -223,8 +218,8 @@ mitilog_status store_postgresql_migrate(store_connection *connection, int busy_t
              "SELECT pg_advisory_unlock(" STORE_PG_MIGRATION_LOCK "); SET lock_timeout = %d",
              busy_timeout_ms > 0 ? busy_timeout_ms : 1);
     mitilog_error unlock_error;
-    mitilog_status unlocked = store_pg_script(connection, "migration unlock", restore,
-                                              &unlock_error);
+    mitilog_status unlocked =
+        store_pg_script(connection, "migration unlock", restore, &unlock_error);
     if (status == MITILOG_OK && unlocked != MITILOG_OK) {
         if (error != NULL)
             *error = unlock_error;

@@ -253,9 +253,9 @@ static void resending_replaces_never_duplicates(void **state)
             assert_int_equal(pg->bind_text(s, index, texts[i][1], strlen(texts[i][1]), &error),
                              MITILOG_OK);
         }
-        static const char *zeros[] = {":is_ultrasound", ":has_acoustic_record", ":modes",
-                                      ":modes_image_type", ":modes_regions", ":modes_sr",
-                                      ":modes_conflict", ":text_replaced"};
+        static const char *zeros[] = {":is_ultrasound",    ":has_acoustic_record", ":modes",
+                                      ":modes_image_type", ":modes_regions",       ":modes_sr",
+                                      ":modes_conflict",   ":text_replaced"};
         for (size_t i = 0; i < sizeof zeros / sizeof zeros[0]; i++)
             assert_int_equal(pg->bind_integer(s, pg->parameter_index(s, zeros[i]), 0, &error),
                              MITILOG_OK);
@@ -332,7 +332,8 @@ static void a_lost_connection_commits_nothing_and_recovers(void **state)
 
     /* A failed statement turns COMMIT into a rollback: reported. */
     store_statement *bad = NULL;
-    assert_int_equal(pg->prepare(c, "bad", "SELECT 1 / (?1::bigint - ?1::bigint)", &bad, &error), MITILOG_OK);
+    assert_int_equal(pg->prepare(c, "bad", "SELECT 1 / (?1::bigint - ?1::bigint)", &bad, &error),
+                     MITILOG_OK);
     assert_int_equal(pg->step(begin, &has_row, &error), MITILOG_OK);
     pg->reset(begin);
     assert_int_equal(pg->bind_integer(insert, 1, 4, &error), MITILOG_OK);

@@ -25,16 +25,17 @@ SELECT coalesce(substr(coalesce(e.first_acquired_at, k.min_received_at), 1, 10),
        (SELECT count(*) FROM findings x
         WHERE x.study_instance_uid = e.study_instance_uid AND x.superseded = 0)
 FROM exams e
-CROSS JOIN (SELECT sum(j.object_kind = 'image' OR j.object_kind = 'multiframe'
-                       OR j.object_kind = 'volume') AS captures,
-                   sum((j.object_kind = 'image' OR j.object_kind = 'multiframe'
-                        OR j.object_kind = 'volume')
-                       AND (j.mi IS NOT NULL OR j.tis IS NOT NULL OR j.tib IS NOT NULL
-                            OR j.tic IS NOT NULL)) AS indexed,
+CROSS JOIN (SELECT sum(CASE WHEN j.object_kind = 'image' OR j.object_kind = 'multiframe'
+                                OR j.object_kind = 'volume' THEN 1 ELSE 0 END) AS captures,
+                   sum(CASE WHEN (j.object_kind = 'image' OR j.object_kind = 'multiframe'
+                                  OR j.object_kind = 'volume')
+                                 AND (j.mi IS NOT NULL OR j.tis IS NOT NULL
+                                      OR j.tib IS NOT NULL OR j.tic IS NOT NULL)
+                            THEN 1 ELSE 0 END) AS indexed,
                    min(j.received_at) AS min_received_at
             FROM instances j WHERE j.study_instance_uid = ?1) AS k
 LEFT JOIN (SELECT version FROM policies
-           ORDER BY first_loaded_at DESC, rowid DESC LIMIT 1) AS p
+           ORDER BY first_loaded_at DESC, rowid DESC LIMIT 1) AS p ON 1 = 1
 LEFT JOIN exam_context c ON c.study_instance_uid = e.study_instance_uid
 LEFT JOIN instances f ON f.id = (SELECT j.id FROM instances j
                                  WHERE j.study_instance_uid = e.study_instance_uid

@@ -14,8 +14,9 @@ SELECT s.day, s.study_instance_uid, t.threshold,
                                          WHEN 'tib' THEN i.tib WHEN 'tic' THEN i.tic END
                                     >= t.threshold, tl.attributed_seconds, 0)), 0)
             FROM exam_timeline tl
-            CROSS JOIN instances i ON i.sop_instance_uid = tl.sop_instance_uid
-            WHERE tl.study_instance_uid = s.study_instance_uid),
+            CROSS JOIN instances i
+            WHERE tl.study_instance_uid = s.study_instance_uid
+              AND i.sop_instance_uid = tl.sop_instance_uid),
            NULL)
 FROM exam_summaries s
 CROSS JOIN ti_thresholds t

@@ -23,9 +23,9 @@ WITH candidates AS (
 chosen AS (
     SELECT f.*, substr(coalesce(f.started_at, e.first_acquired_at, f.period), 1, 10) AS day
     FROM candidates f LEFT JOIN exams e ON e.study_instance_uid = f.study_instance_uid
-    WHERE (?3 IS NULL OR f.severity = ?3) AND (?4 IS NULL OR f.rule_id = ?4)
-      AND (?5 IS NULL OR f.room = ?5) AND (?6 IS NULL OR f.preset = ?6)
-      AND (?7 IS NULL OR f.shift = ?7))
+    WHERE (CAST(?3 AS TEXT) IS NULL OR f.severity = ?3) AND (CAST(?4 AS TEXT) IS NULL OR f.rule_id = ?4)
+      AND (CAST(?5 AS TEXT) IS NULL OR f.room = ?5) AND (CAST(?6 AS TEXT) IS NULL OR f.preset = ?6)
+      AND (CAST(?7 AS TEXT) IS NULL OR f.shift = ?7))
 SELECT coalesce(json_group_array(json(document)), '[]') FROM (
     SELECT json_object(
         'id', id, 'study_instance_uid', study_instance_uid, 'rule_id', rule_id,
@@ -41,5 +41,5 @@ SELECT coalesce(json_group_array(json(document)), '[]') FROM (
         'preset', preset, 'shift', shift, 'transducer', transducer,
         'period', period, 'evaluated_at', evaluated_at) AS document
     FROM chosen
-    WHERE (?1 IS NULL OR day >= ?1) AND (?2 IS NULL OR day <= ?2)
+    WHERE (CAST(?1 AS TEXT) IS NULL OR day >= ?1) AND (CAST(?2 AS TEXT) IS NULL OR day <= ?2)
     ORDER BY day DESC, id DESC LIMIT ?9);

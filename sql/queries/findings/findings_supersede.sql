@@ -3,5 +3,5 @@
 -- findings_delete.sql.
 UPDATE findings SET superseded = 1
 WHERE policy_version <> ?2 AND superseded = 0
-  AND ((?1 IS NOT NULL AND study_instance_uid = ?1)
-       OR (?1 IS NULL AND study_instance_uid IS NULL AND rule_id = ?3 AND period = ?4));
+  AND ((CAST(?1 AS TEXT) IS NOT NULL AND study_instance_uid = ?1)
+       OR (CAST(?1 AS TEXT) IS NULL AND study_instance_uid IS NULL AND rule_id = ?3 AND period = ?4));

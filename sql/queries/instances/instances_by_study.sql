@@ -9,6 +9,6 @@ FROM (
                     '$.screen_reading', json(v.screen_reading)) AS document
     FROM instance_documents d JOIN instance_provenance v ON v.instance_id = d.id
     WHERE d.study_instance_uid = ?1
-      AND (?2 IS NULL OR d.received_at >= ?2)
+      AND (CAST(?2 AS TEXT) IS NULL OR d.received_at >= ?2)
     ORDER BY d.acquired_at IS NULL, d.acquired_at, d.id
-    LIMIT ?3);
+    LIMIT ?3) AS documents;

@@ -8,6 +8,6 @@ FROM (
     SELECT json_set(d.document, '$.indices', json(v.indices),
                     '$.screen_reading', json(v.screen_reading)) AS document
     FROM instance_documents d JOIN instance_provenance v ON v.instance_id = d.id
-    WHERE ?1 IS NULL OR d.received_at >= ?1
+    WHERE CAST(?1 AS TEXT) IS NULL OR d.received_at >= ?1
     ORDER BY d.received_at, d.id
-    LIMIT ?2);
+    LIMIT ?2) AS documents;

@@ -87,7 +87,7 @@ SELECT json_group_array(json_object(
         'age_group', 'first instance')))
 FROM (
     SELECT * FROM studies
-    WHERE (?1 IS NULL OR substr(first_effective_at, 1, 10) >= ?1)
-      AND (?2 IS NULL OR substr(first_effective_at, 1, 10) <= ?2)
+    WHERE (CAST(?1 AS TEXT) IS NULL OR substr(first_effective_at, 1, 10) >= ?1)
+      AND (CAST(?2 AS TEXT) IS NULL OR substr(first_effective_at, 1, 10) <= ?2)
     ORDER BY first_effective_at, study_instance_uid) AS s
 LEFT JOIN exams e ON e.study_instance_uid = s.study_instance_uid;

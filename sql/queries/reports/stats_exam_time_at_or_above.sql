@@ -15,8 +15,10 @@ SELECT d.study_instance_uid, d.threshold,
                                             WHEN 'tic' THEN i.tic END >= d.threshold,
                      tl.attributed_seconds, 0)), 0)
                  FROM exam_summaries s
-                 CROSS JOIN exam_timeline tl ON tl.study_instance_uid = s.study_instance_uid
-                 CROSS JOIN instances i ON i.sop_instance_uid = tl.sop_instance_uid
-                 WHERE s.study_instance_uid = d.study_instance_uid))
+                 CROSS JOIN exam_timeline tl
+                 CROSS JOIN instances i
+                 WHERE s.study_instance_uid = d.study_instance_uid
+                   AND tl.study_instance_uid = s.study_instance_uid
+                   AND i.sop_instance_uid = tl.sop_instance_uid))
 FROM exam_time_at_or_above d
 WHERE d.day >= ?1 AND d.day <= ?2 AND d.threshold <= ?3;

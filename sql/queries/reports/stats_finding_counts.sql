@@ -5,7 +5,8 @@
 -- JOIN keeps that order: not every finding held, then its exam).
 SELECT f.study_instance_uid, f.rule_id, count(*)
 FROM exam_summaries s
-CROSS JOIN findings f ON f.study_instance_uid = s.study_instance_uid AND f.superseded = 0
+CROSS JOIN findings f
 WHERE s.day >= ?1 AND s.day <= ?2 AND s.finding_count > 0
+  AND f.study_instance_uid = s.study_instance_uid AND f.superseded = 0
 GROUP BY f.study_instance_uid, f.rule_id
 ORDER BY f.study_instance_uid, f.rule_id;

@@ -9,10 +9,10 @@ SELECT (SELECT version FROM policies ORDER BY first_loaded_at DESC, rowid DESC L
        (SELECT group_concat(version, ',') FROM
            (SELECT DISTINCT f.policy_version AS version
             FROM exam_summaries s
-            CROSS JOIN findings f ON f.study_instance_uid = s.study_instance_uid
-                           AND f.superseded = 0
+            CROSS JOIN findings f
             WHERE s.day >= ?1 AND s.day <= ?2 AND s.finding_count > 0
+              AND f.study_instance_uid = s.study_instance_uid AND f.superseded = 0
               AND s.first_acquired_at IS NOT NULL
-            ORDER BY 1)),
+            ORDER BY 1) AS versions),
        substr((SELECT min(first_acquired_at) FROM exams), 1, 10),
        substr((SELECT max(first_acquired_at) FROM exams), 1, 10);

@@ -9,4 +9,4 @@ SELECT coalesce(?1, (SELECT study_instance_uid FROM findings WHERE id = ?2)), ?2
        strftime('%Y-%m-%dT%H:%M:%fZ', 'now')
 WHERE (?2 IS NULL AND EXISTS (SELECT 1 FROM exams WHERE study_instance_uid = ?1))
    OR (?2 IS NOT NULL AND EXISTS (SELECT 1 FROM findings
-                                  WHERE id = ?2 AND (?1 IS NULL OR study_instance_uid IS ?1)));
+                                  WHERE id = ?2 AND (?1 IS NULL OR study_instance_uid IS NOT DISTINCT FROM ?1)));

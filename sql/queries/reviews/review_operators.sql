@@ -18,7 +18,7 @@ WITH exams AS (
                        AND f.limit_value IS NOT NULL
                        AND f.measured_value < f.limit_value)) AS findings
     FROM exam_period_rows r
-    WHERE r.day <> '' AND (?1 IS NULL OR r.day >= ?1) AND (?2 IS NULL OR r.day <= ?2)
+    WHERE r.day <> '' AND (CAST(?1 AS TEXT) IS NULL OR r.day >= ?1) AND (CAST(?2 AS TEXT) IS NULL OR r.day <= ?2)
 ),
 named AS (
     SELECT * FROM exams WHERE operator IS NOT NULL

@@ -180,11 +180,11 @@ SELECT json_object(
     'informational_by_rule', (SELECT coalesce(json_group_array(json_object(
         'rule_id', rule_id, 'rule_label', rule_label, 'count', n)), '[]') FROM (
         SELECT rule_id, max(rule_label) AS rule_label, count(*) AS n FROM documents
-        WHERE informational GROUP BY rule_id ORDER BY n DESC)),
+        WHERE informational GROUP BY rule_id ORDER BY n DESC, rule_id)),
     'patterns', (SELECT coalesce(json_group_array(json_object(
         'rule_id', rule_id, 'rule_label', rule_label, 'dimension', dimension, 'key', key,
         'finding_count', finding_count, 'rule_total', rule_total, 'severity', severity,
         'group_exams', group_exams, 'week_exams', week_exams)), '[]') FROM (
         SELECT * FROM patterns ORDER BY CASE severity WHEN 'violation' THEN 3
                                            WHEN 'warning' THEN 2 ELSE 1 END DESC,
-                                      finding_count DESC)));
+                                      finding_count DESC, rule_id, dimension, key)));

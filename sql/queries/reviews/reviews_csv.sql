@@ -12,7 +12,7 @@ FROM (
                                       f.severity, r.outcome, r.comment)))
            || char(13, 10) AS line
     FROM reviews r LEFT JOIN findings f ON f.id = r.finding_id
-    WHERE (?1 IS NULL OR r.study_instance_uid = ?1)
-      AND (?2 IS NULL OR substr(r.reviewed_at, 1, 10) >= ?2)
-      AND (?3 IS NULL OR substr(r.reviewed_at, 1, 10) <= ?3)
+    WHERE (CAST(?1 AS TEXT) IS NULL OR r.study_instance_uid = ?1)
+      AND (CAST(?2 AS TEXT) IS NULL OR substr(r.reviewed_at, 1, 10) >= ?2)
+      AND (CAST(?3 AS TEXT) IS NULL OR substr(r.reviewed_at, 1, 10) <= ?3)
     ORDER BY r.id);

@@ -9,7 +9,7 @@ SELECT coalesce(json_group_array(json(document)), '[]') FROM (
         'rule_id', f.rule_id, 'severity', f.severity,
         'outcome', r.outcome, 'comment', r.comment) AS document
     FROM reviews r LEFT JOIN findings f ON f.id = r.finding_id
-    WHERE (?1 IS NULL OR r.study_instance_uid = ?1)
-      AND (?2 IS NULL OR substr(r.reviewed_at, 1, 10) >= ?2)
-      AND (?3 IS NULL OR substr(r.reviewed_at, 1, 10) <= ?3)
+    WHERE (CAST(?1 AS TEXT) IS NULL OR r.study_instance_uid = ?1)
+      AND (CAST(?2 AS TEXT) IS NULL OR substr(r.reviewed_at, 1, 10) >= ?2)
+      AND (CAST(?3 AS TEXT) IS NULL OR substr(r.reviewed_at, 1, 10) <= ?3)
     ORDER BY r.id);

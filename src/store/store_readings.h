@@ -1,5 +1,5 @@
 /*
- * store_reading.h - the durable queue of objects waiting for their pixels
+ * store_readings.h - the durable queue of objects waiting for their pixels
  * to be read, and the readings (migration 007; the reader itself is
  * src/screen, the workers src/ingest/ingest_reading.c).
  *
@@ -14,10 +14,10 @@
  * store_reading_queue_load() gives a malloc'd array freed with
  * store_reading_entries_free().
  */
-#ifndef MITILOG_STORE_READING_H
-#define MITILOG_STORE_READING_H
+#ifndef MITILOG_STORE_READINGS_H
+#define MITILOG_STORE_READINGS_H
 
-#include "store/store.h"
+#include "store/store_instances.h"
 
 /* What to do about the pixels of an instance being stored. */
 typedef struct store_reading_request {

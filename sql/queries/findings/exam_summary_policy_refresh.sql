@@ -7,7 +7,7 @@ UPDATE exam_summaries SET (measured_policy, measured_seconds) = (
            (SELECT m.estimated_seconds FROM exam_measurements m
             WHERE m.study_instance_uid = exam_summaries.study_instance_uid
               AND m.policy_version = p.version)
-    FROM (SELECT NULL) LEFT JOIN (SELECT version FROM policies
-                                  ORDER BY first_loaded_at DESC, rowid DESC LIMIT 1) AS p)
-WHERE measured_policy IS NOT (SELECT version FROM policies
+    FROM (SELECT NULL) AS one_row LEFT JOIN (SELECT version FROM policies
+                                  ORDER BY first_loaded_at DESC, rowid DESC LIMIT 1) AS p ON 1 = 1)
+WHERE measured_policy IS DISTINCT FROM (SELECT version FROM policies
                               ORDER BY first_loaded_at DESC, rowid DESC LIMIT 1);

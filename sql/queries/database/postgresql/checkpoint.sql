@@ -1,0 +1,2 @@
+-- PostgreSQL: nothing to do at close; the server checkpoints by itself.
+SELECT 1;

@@ -1,0 +1,2 @@
+-- PostgreSQL: foreign keys are always enforced; nothing to switch.
+SELECT 1;

@@ -1,0 +1,3 @@
+-- PostgreSQL: read connection settings; the engine opens it read-only
+-- already (default_transaction_read_only), said again here.
+SET default_transaction_read_only = on;

@@ -1,0 +1,16 @@
+-- PostgreSQL's exam_summary_policy_refresh.sql (docs/postgresql-dialect.md): the same
+-- statement with policies.row_order (012_baseline.sql) where SQLite orders
+-- by its rowid, the order policies were first registered in.
+-- After a policy row was added (store_findings.c): every exam summary
+-- whose measurement is not of the current policy (the last loaded) takes
+-- that policy's estimated seconds, or NULL when it has not measured the
+-- exam.
+UPDATE exam_summaries SET (measured_policy, measured_seconds) = (
+    SELECT p.version,
+           (SELECT m.estimated_seconds FROM exam_measurements m
+            WHERE m.study_instance_uid = exam_summaries.study_instance_uid
+              AND m.policy_version = p.version)
+    FROM (SELECT NULL) AS one_row LEFT JOIN (SELECT version FROM policies
+                                  ORDER BY first_loaded_at DESC, row_order DESC LIMIT 1) AS p ON 1 = 1)
+WHERE measured_policy IS DISTINCT FROM (SELECT version FROM policies
+                              ORDER BY first_loaded_at DESC, row_order DESC LIMIT 1);
