@@ -135,6 +135,15 @@ static int store_pg_is_lost(PGconn *connection, const PGresult *result)
            strcmp(state, "57P02") == 0 || strcmp(state, "57P03") == 0;
 }
 
+/* 1 while the session has a transaction open; a connection already gone
+ * (PQTRANS_UNKNOWN) was marked lost, and broken when it had one, by the
+ * failure that found it gone. */
+static int store_pg_transaction_open(PGconn *connection)
+{
+    PGTransactionStatusType state = PQtransactionStatus(connection);
+    return state == PQTRANS_INTRANS || state == PQTRANS_INERROR || state == PQTRANS_ACTIVE;
+}
+
 /* Fills error for a failure of what; marks the connection lost when it
  * was (and broken when a transaction was open). */
 static mitilog_status store_pg_fail(store_connection *c, const PGresult *result,
@@ -264,18 +273,32 @@ static void store_pg_close(store_connection *c)
     free(c);
 }
 
+static store_pg_kind store_pg_statement_kind(const char *sql);
+
 static mitilog_status store_pg_execute_script(store_connection *c, const char *name,
                                               const char *sql, mitilog_error *error)
 {
-    mitilog_status status = store_pg_ensure(c, STORE_PG_KIND_OTHER, name, error);
+    /* A script that is one BEGIN, COMMIT or ROLLBACK (database/ files)
+     * ends a transaction lost with the server as a statement does. */
+    store_pg_kind kind = store_pg_statement_kind(sql);
+    if (c->broken && kind == STORE_PG_KIND_ROLLBACK) {
+        c->broken = 0;
+        return MITILOG_OK;
+    }
+    mitilog_status status = store_pg_ensure(c, kind, name, error);
     if (status != MITILOG_OK)
         return status;
-    int was_in_transaction = PQtransactionStatus(c->connection) != PQTRANS_IDLE;
+    int was_in_transaction = store_pg_transaction_open(c->connection);
     /* The simple query protocol runs every statement of the text. */
     PGresult *result = PQexec(c->connection, sql);
     ExecStatusType state = PQresultStatus(result);
     if (state != PGRES_COMMAND_OK && state != PGRES_TUPLES_OK && state != PGRES_EMPTY_QUERY)
         status = store_pg_fail(c, result, was_in_transaction, name, error);
+    else if (kind == STORE_PG_KIND_COMMIT && strcmp(PQcmdStatus(result), "ROLLBACK") == 0)
+        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE,
+                                   "%s: the transaction had failed and was rolled back, not "
+                                   "committed",
+                                   name);
     else
         c->changes = atoll(PQcmdTuples(result));
     PQclear(result);
@@ -317,12 +340,13 @@ static store_pg_kind store_pg_statement_kind(const char *sql)
 static mitilog_status store_pg_prepare_on_server(store_statement *s, mitilog_error *error)
 {
     store_connection *c = s->connection;
+    /* Asked before: once the connection is gone its state is unknown. */
+    int was_in_transaction = store_pg_transaction_open(c->connection);
     PGresult *result =
         PQprepare(c->connection, s->server_name, s->text.text, s->text.parameter_count, NULL);
     mitilog_status status = MITILOG_OK;
     if (PQresultStatus(result) != PGRES_COMMAND_OK)
-        status = store_pg_fail(c, result, PQtransactionStatus(c->connection) != PQTRANS_IDLE,
-                               s->name, error);
+        status = store_pg_fail(c, result, was_in_transaction, s->name, error);
     else
         s->prepared_generation = c->generation;
     PQclear(result);
@@ -547,12 +571,12 @@ static mitilog_status store_pg_execute(store_statement *s, mitilog_error *error)
         if (status != MITILOG_OK)
             return status;
     }
-    PGTransactionStatusType before = PQtransactionStatus(c->connection);
+    int was_in_transaction = store_pg_transaction_open(c->connection);
     PGresult *result = PQexecPrepared(c->connection, s->server_name, s->text.parameter_count,
                                       (const char *const *)s->values, s->lengths, s->formats, 0);
     ExecStatusType state = PQresultStatus(result);
     if (state != PGRES_COMMAND_OK && state != PGRES_TUPLES_OK) {
-        status = store_pg_fail(c, result, before != PQTRANS_IDLE, s->name, error);
+        status = store_pg_fail(c, result, was_in_transaction, s->name, error);
         PQclear(result);
         return status;
     }
