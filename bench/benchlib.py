@@ -279,6 +279,18 @@ def has_postgresql_engine(binary):
     return not re.search(r"engine: (unknown key|.*unknown)", result.stderr)
 
 
+def knows_key(binary, section, key, value):
+    """Whether check-config of this build takes [section] key = value
+    without calling the key unknown."""
+    with tempfile.TemporaryDirectory(prefix="mitilog-bench-") as folder:
+        config = os.path.join(folder, "key.ini")
+        with open(config, "w") as f:
+            f.write("[%s]\n%s = %s\n" % (section, key, value))
+        result = subprocess.run([binary, "check-config", config], stdout=subprocess.DEVNULL,
+                                stderr=subprocess.PIPE, text=True, errors="replace")
+    return "%s: unknown key" % key not in result.stderr
+
+
 def postgresql_count(conninfo, table):
     import psycopg2  # Debian's python3-psycopg2
     connection = psycopg2.connect(conninfo)

@@ -56,11 +56,13 @@ def one_run(store, binary, server, paths, senders, size, args):
                                           durability=args.durability))
     else:
         connection = server.database()
-        for index in range(3 if store == "postgresql x3" else 1):
+        count = 3 if store == "postgresql x3" else 1
+        for index in range(count):
             receivers.append(benchlib.Mitilog(binary, args.retention, root=args.data_root,
                                               durability=args.durability,
                                               connection=connection,
-                                              site="site-%d" % (index + 1)))
+                                              site="site-%d" % (index + 1)
+                                              if count > 1 and args.sites else None))
     try:
         for receiver in receivers:   # one after another: the first makes the tables
             receiver.start()
@@ -121,6 +123,10 @@ def main():
     else:
         stores = ["sqlite"]
         benchlib.log("this build of mitilog has no PostgreSQL engine: SQLite only")
+    args.sites = benchlib.knows_key(binary, "receiver", "site", "site-1")
+    if server is not None and not args.sites:
+        benchlib.log("this build of mitilog has no [receiver] site: the three receivers "
+                     "record the same site")
     paths, size = benchlib.file_set(binary, args.days, args.seed, args.limit, args.matrix)
     benchlib.header("ingest throughput by store")
     benchlib.log("file set: %d objects, %.1f MB (simulate --days %d --seed %d%s); retention %s, "

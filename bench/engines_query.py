@@ -43,7 +43,7 @@ def copy_to_postgresql(binary, source, conninfo):
                             stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True)
     if result.returncode != 0:
         raise SystemExit("engines_query: copy-database failed:\n" + result.stdout)
-    benchlib.log(result.stdout.rstrip())
+    benchlib.log(result.stdout.rstrip().splitlines()[-1])
     return time.monotonic() - started
 
 
