@@ -460,7 +460,18 @@ def pytest_collection_modifyitems(config, items):
             item.add_marker(pytest.mark.skip(reason="SQLite only: " + reason))
 
 
-def pytest_sessionfinish(session, exitstatus):
+@pytest.fixture(scope="session", autouse=True)
+def postgresql_server_lifetime():
+    """Stops the session's PostgreSQL server (if one was started) after
+    every other fixture has stopped its daemons: session fixtures are torn
+    down last, the first made last of all. A daemon still running then (a
+    test that did not stop its own) is killed first, so that it never
+    meets its server gone."""
+    yield POSTGRESQL
+    for daemon in LIVE_DAEMONS:
+        if daemon.process is not None and daemon.process.poll() is None:
+            daemon.process.kill()
+            daemon.process.wait()
     POSTGRESQL.stop()
 
 
