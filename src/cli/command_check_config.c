@@ -213,9 +213,8 @@ static int check_postgresql(const char *key, const char *conninfo)
                                      sizeof server_version, &error) != MITILOG_OK) {
         fprintf(stderr,
                 "mitilog: [storage] %s: %s\n"
-                "  Check that the server is running and reachable from here (host, port), that "
-                "the database exists and that this user may connect (pg_hba.conf, password or "
-                "~/.pgpass).\n",
+                "  The database must exist and this user may need a password (~/.pgpass) or "
+                "a line of the server's pg_hba.conf allowing this host.\n",
                 key, error.text);
         return -1;
     }

@@ -37,7 +37,9 @@ int store_postgresql_latest_migration(void);
  *     "PRAGMA user_version = N;" (SQLite's record of it) is left out and
  *     schema_version set instead;
  *   - the month partitions from this month to twelve months ahead are
- *     created.
+ *     created, and those of older months whose rows wait in the default
+ *     partition (a copy of older data, a receiver that ran past the months
+ *     made ahead), the rows moved into them.
  * Each step runs in its own transaction, all of them under a
  * PostgreSQL advisory lock, so that receivers starting together migrate
  * once: the others wait, then find nothing to do. busy_timeout_ms is the
@@ -45,5 +47,13 @@ int store_postgresql_latest_migration(void);
  * this program is refused. */
 mitilog_status store_postgresql_migrate(store_connection *connection, int busy_timeout_ms,
                                         int *version, mitilog_error *error);
+
+/* The advisory lock store_postgresql_migrate takes, for what else must
+ * happen once when receivers start together (the vocabulary's sync after
+ * the migrations). Taken again by the same session it nests: each lock
+ * needs its unlock. Unlock restores busy_timeout_ms as the lock timeout. */
+mitilog_status store_postgresql_lock(store_connection *connection, mitilog_error *error);
+mitilog_status store_postgresql_unlock(store_connection *connection, int busy_timeout_ms,
+                                       mitilog_error *error);
 
 #endif

@@ -148,18 +148,16 @@ static mitilog_status store_sqlite_bind_real(store_statement *statement, int ind
 }
 
 static mitilog_status store_sqlite_bind_text(store_statement *statement, int index,
-                                             const char *text, size_t length,
-                                             mitilog_error *error)
+                                             const char *text, size_t length, mitilog_error *error)
 {
     return store_sqlite_bind_result(sqlite3_bind_text64(store_sqlite_statement(statement), index,
-                                                        text, (sqlite3_uint64)length,
-                                                        SQLITE_STATIC, SQLITE_UTF8),
+                                                        text, (sqlite3_uint64)length, SQLITE_STATIC,
+                                                        SQLITE_UTF8),
                                     error);
 }
 
 static mitilog_status store_sqlite_bind_blob(store_statement *statement, int index,
-                                             const void *data, size_t length,
-                                             mitilog_error *error)
+                                             const void *data, size_t length, mitilog_error *error)
 {
     return store_sqlite_bind_result(sqlite3_bind_blob64(store_sqlite_statement(statement), index,
                                                         data, (sqlite3_uint64)length,

@@ -13,6 +13,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "extract/ext_text.h"
 #include "store/store_internal.h"
 #include "util/log.h"
 
@@ -166,6 +167,9 @@ mitilog_status store_exams_refresh_summary(store_link *writer, const char *study
     }
     return MITILOG_OK;
 }
+
+/* 1 if text (may be NULL) is well-formed UTF-8: JSON output needs it. */
+static int store_is_text_utf8(const char *text) { return text == NULL || ext_text_is_utf8(text); }
 
 mitilog_status store_exams_check(const store_exam *exam, mitilog_error *error)
 {

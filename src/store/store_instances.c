@@ -17,7 +17,6 @@
 #include "extract/ext_sr.h"
 #include "extract/ext_text.h"
 #include "store/store_internal.h"
-#include "store/store_readings.h"
 
 enum { STORE_LIMIT_DEFAULT = 1000, STORE_LIMIT_MAX = 10000 };
 
@@ -50,8 +49,6 @@ static const char *store_time_source_name(ext_time_source source)
 
 /* 1 if text (may be NULL) is well-formed UTF-8: JSON output needs it. */
 static int store_is_utf8(const char *text) { return text == NULL || ext_text_is_utf8(text); }
-
-int store_is_text_utf8(const char *text) { return store_is_utf8(text); }
 
 /* Checks a value classification: a known status, a finite value when ok. */
 static int store_number_is_valid(exam_number number)

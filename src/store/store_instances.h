@@ -15,6 +15,7 @@
 
 #include "extract/ext.h"
 #include "store/store.h"
+#include "store/store_readings.h"
 
 #ifdef __cplusplus
 extern "C" {
@@ -39,6 +40,17 @@ typedef struct store_bytes {
  * (locked, read-only, full): nothing of the record is kept. */
 mitilog_status store_put_instance(store *store, const ext_record *record, const store_bytes *header,
                                   store_put_outcome *outcome, mitilog_error *error);
+
+/* store_put_instance() with, when reading is not NULL, its queue row and
+ * state in the same transaction. *instance_id (may be NULL) gets the
+ * row's id. Every (re)store of an instance drops its older queue row and
+ * reading; *stale_spool (may be NULL; malloc'd, the caller deletes that
+ * file and frees the string) gets the spool copy of a dropped queue row. */
+mitilog_status store_put_instance_read(store *store, const ext_record *record,
+                                       const store_bytes *header,
+                                       const store_reading_request *reading,
+                                       store_put_outcome *outcome, long long *instance_id,
+                                       char **stale_spool, mitilog_error *error);
 
 /* The header copy of an instance, malloc'd into *bytes (the caller frees
  * it); *bytes stays NULL when the instance or its copy is not stored. */

@@ -16,7 +16,6 @@
 #include <pthread.h>
 
 #include "store/store.h"
-#include "store/store_exams.h"
 #include "store/store_statement.h"
 
 /* A write of one subject, run by the batch leader on the writer link
@@ -74,15 +73,15 @@ void store_commit_release(store_commit_queue *queue);
  * running (store_open.c). */
 void *store_writer_connection(store *store);
 
-/* 1 if text (may be NULL) is well-formed UTF-8: JSON output needs it
- * (store_instances.c). */
-int store_is_text_utf8(const char *text);
+struct store_exam;            /* store_exams.h */
+struct store_reading_request; /* store_readings.h */
 
 /* store_exams.c, for the writes of exams with findings (store_findings.c):
  * an exam with its timeline and mode maxima, and the summary rows of a
  * study refreshed from what the transaction wrote. */
-mitilog_status store_exams_check(const store_exam *exam, mitilog_error *error);
-mitilog_status store_exams_write(store_link *writer, const store_exam *exam, mitilog_error *error);
+mitilog_status store_exams_check(const struct store_exam *exam, mitilog_error *error);
+mitilog_status store_exams_write(store_link *writer, const struct store_exam *exam,
+                                 mitilog_error *error);
 mitilog_status store_exams_refresh_summary(store_link *writer, const char *study_instance_uid,
                                            mitilog_error *error);
 /* Makes the database's TI ladder and mode names the exam vocabulary's
@@ -94,7 +93,6 @@ mitilog_status store_exams_sync_vocabulary(store_link *writer, const char *path,
  * row, inside the batch's transaction (store_instances.c). replaced: the
  * row existed before, so its older queue row and reading are dropped
  * first. *stale_spool: as in store_put_instance_read(). */
-struct store_reading_request;
 mitilog_status store_readings_write(store_link *writer, const struct store_reading_request *reading,
                                     long long instance_id, int replaced, char **stale_spool,
                                     mitilog_error *error);

@@ -211,16 +211,34 @@ static mitilog_status store_open_engine(const store_engine *engine, const char *
 
     mitilog_status status =
         store_link_open(&opened->writer, engine, target, 0, busy_timeout_ms, error);
-    if (status == MITILOG_OK && postgresql)
-        status = store_postgresql_migrate(opened->writer.connection, busy_timeout_ms,
-                                          &opened->schema_version, error);
-    if (status == MITILOG_OK && postgresql)
-        status = store_link_script(&opened->writer, "queries/database/pragma_writer.sql", error);
+    if (status == MITILOG_OK && postgresql) {
+        /* Receivers starting together migrate and sync the vocabulary
+         * once: one after the other under the advisory lock (SQLite's
+         * BEGIN IMMEDIATE serialises them; PostgreSQL's BEGIN does not). */
+        status = store_postgresql_lock(opened->writer.connection, error);
+        if (status == MITILOG_OK) {
+            status = store_postgresql_migrate(opened->writer.connection, busy_timeout_ms,
+                                              &opened->schema_version, error);
+            if (status == MITILOG_OK)
+                status =
+                    store_link_script(&opened->writer, "queries/database/pragma_writer.sql", error);
+            if (status == MITILOG_OK)
+                status = store_exams_sync_vocabulary(&opened->writer, path, error);
+            mitilog_error unlock_error;
+            if (store_postgresql_unlock(opened->writer.connection, busy_timeout_ms,
+                                        &unlock_error) != MITILOG_OK &&
+                status == MITILOG_OK) {
+                status = MITILOG_ERROR_DATABASE;
+                if (error != NULL)
+                    *error = unlock_error;
+            }
+        }
+    }
     if (status == MITILOG_OK && !postgresql)
         status = store_configure_writer(&opened->writer, path, error);
     if (status == MITILOG_OK && !postgresql)
         status = store_migrate(&opened->writer, path, &opened->schema_version, error);
-    if (status == MITILOG_OK)
+    if (status == MITILOG_OK && !postgresql)
         status = store_exams_sync_vocabulary(&opened->writer, path, error);
     /* The read connection is opened after the migrations, read-only. */
     if (status == MITILOG_OK)

@@ -195,31 +195,47 @@ static mitilog_status store_pg_migrate_locked(store_connection *c, int *version,
         }
     }
     if (status == MITILOG_OK)
-        status = store_pg_in_transaction(c, "month partitions",
-                                         "SELECT mitilog_month_partitions(current_date, "
-                                         "(current_date + interval '12 months')::date)",
-                                         error);
+        /* From the oldest month waiting in the default partition (rows
+         * that arrived before their month's partition, or were copied in)
+         * to twelve months ahead. */
+        status = store_pg_in_transaction(
+            c, "month partitions",
+            "SELECT mitilog_month_partitions(least(current_date, (SELECT "
+            "to_date(substr(min(first_received_at), 1, 7), 'YYYY-MM') FROM instances_default "
+            "WHERE first_received_at ~ '^[0-9]{4}-[0-9]{2}')), "
+            "(current_date + interval '12 months')::date)",
+            error);
     return status;
+}
+
+mitilog_status store_postgresql_lock(store_connection *connection, mitilog_error *error)
+{
+    /* The lock waits as long as another receiver migrates. */
+    return store_pg_script(
+        connection, "migration lock",
+        "SET lock_timeout = 0; SELECT pg_advisory_lock(" STORE_PG_MIGRATION_LOCK ")", error);
+}
+
+mitilog_status store_postgresql_unlock(store_connection *connection, int busy_timeout_ms,
+                                       mitilog_error *error)
+{
+    char restore[160];
+    snprintf(restore, sizeof restore,
+             "SELECT pg_advisory_unlock(" STORE_PG_MIGRATION_LOCK "); SET lock_timeout = %d",
+             busy_timeout_ms > 0 ? busy_timeout_ms : 1);
+    return store_pg_script(connection, "migration unlock", restore, error);
 }
 
 mitilog_status store_postgresql_migrate(store_connection *connection, int busy_timeout_ms,
                                         int *version, mitilog_error *error)
 {
     *version = 0;
-    /* The lock waits as long as another receiver migrates. */
-    mitilog_status status = store_pg_script(
-        connection, "migration lock",
-        "SET lock_timeout = 0; SELECT pg_advisory_lock(" STORE_PG_MIGRATION_LOCK ")", error);
+    mitilog_status status = store_postgresql_lock(connection, error);
     if (status != MITILOG_OK)
         return status;
     status = store_pg_migrate_locked(connection, version, error);
-    char restore[160];
-    snprintf(restore, sizeof restore,
-             "SELECT pg_advisory_unlock(" STORE_PG_MIGRATION_LOCK "); SET lock_timeout = %d",
-             busy_timeout_ms > 0 ? busy_timeout_ms : 1);
     mitilog_error unlock_error;
-    mitilog_status unlocked =
-        store_pg_script(connection, "migration unlock", restore, &unlock_error);
+    mitilog_status unlocked = store_postgresql_unlock(connection, busy_timeout_ms, &unlock_error);
     if (status == MITILOG_OK && unlocked != MITILOG_OK) {
         if (error != NULL)
             *error = unlock_error;

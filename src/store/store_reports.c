@@ -56,8 +56,7 @@ enum { STORE_TEXT_BLOCK_SIZE = 64 * 1024 };
 
 /* Copies a column's text into the list's blocks (NULL stays NULL); sets
  * *failed on allocation failure. */
-static char *store_list_text(store_exam_list *list, store_query *statement, int column,
-                             int *failed)
+static char *store_list_text(store_exam_list *list, store_query *statement, int column, int *failed)
 {
     const char *text = store_column_text(statement, column);
     if (text == NULL)

@@ -92,8 +92,11 @@ def stored(conninfo):
 def test_objects_land_and_resending_replaces(daemon_factory, server, sim):
     files, rows = sim
     conninfo = new_database(server, "t_land")
-    daemon = daemon_factory("land", storage=dict(engine="postgresql",
-                                                 connection=conninfo)).start()
+    # The dashboard's reads go through read_connection (here the same
+    # server, told apart by its application_name).
+    daemon = daemon_factory("land", storage=dict(
+        engine="postgresql", connection=conninfo,
+        read_connection=conninfo + " application_name=mitilog_reads")).start()
     sent = files[:6]
     statuses = storescu_statuses(daemon.dicom_port, sent)
     assert set(statuses.values()) == {"Success"}, statuses
@@ -109,6 +112,11 @@ def test_objects_land_and_resending_replaces(daemon_factory, server, sim):
     assert len(rows_now) == len(sent)
     assert sorted(rows_now[rows[f]["sop_instance_uid"]] for f in sent) == ["0"] * 3 + ["1"] * 3
     assert psql(conninfo, "SELECT count(*) FROM instance_keys") == [str(len(sent))]
+    # The health document is read on the read connection, the one session
+    # of that name (the writer has none); common practice, no source.
+    assert daemon.get("/healthz")[0] == 200
+    assert psql(conninfo, "SELECT count(*) FROM pg_stat_activity "
+                          "WHERE application_name = 'mitilog_reads'") == ["1"]
     assert psql(conninfo, "SELECT version FROM schema_version") != []
 
 
@@ -182,4 +190,44 @@ def test_check_config_says_whether_the_server_answers(tmp_path, server):
                             stderr=subprocess.PIPE, text=True, timeout=60)
     assert result.returncode == 2
     assert "[storage] connection: cannot connect to PostgreSQL" in result.stderr
-    assert "Check that the server is running" in result.stderr
+    assert "check that the server is running" in result.stderr
+
+
+def test_three_receivers_start_together_and_share_one_database(daemon_factory, server, sim):
+    files, rows = sim
+    conninfo = new_database(server, "t_three")
+    daemons = [daemon_factory("r%d" % n, storage=dict(engine="postgresql",
+                                                      connection=conninfo))
+               for n in range(3)]
+    # Started at once: each migrates under the advisory lock, so one of
+    # them makes the schema and the others find it made.
+    threads = [threading.Thread(target=d.start) for d in daemons]
+    for thread in threads:
+        thread.start()
+    for thread in threads:
+        thread.join()
+    assert all(d.process.poll() is None for d in daemons)
+    created = sum(d.log().count("PostgreSQL schema created") for d in daemons)
+    assert created == 1
+    # Each sends the objects of studies of its own (one receiver per
+    # site and modality); all land in the one database.
+    studies = []
+    for f in files:
+        if rows[f]["study_instance_uid"] not in studies:
+            studies.append(rows[f]["study_instance_uid"])
+    mine = [[f for f in files if rows[f]["study_instance_uid"] == studies[n]]
+            for n in range(3)]
+    results = [None] * 3
+
+    def send(n):
+        results[n] = storescu_statuses(daemons[n].dicom_port, mine[n])
+
+    senders = [threading.Thread(target=send, args=(n,)) for n in range(3)]
+    for thread in senders:
+        thread.start()
+    for thread in senders:
+        thread.join()
+    for statuses in results:
+        assert set(statuses.values()) == {"Success"}, statuses
+    present = stored(conninfo)
+    assert set(present) == {rows[f]["sop_instance_uid"] for f in sum(mine, [])}

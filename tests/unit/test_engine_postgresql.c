@@ -214,6 +214,69 @@ static void columns_are_typed_as_sqlite_would(void **state)
     pg->close(c);
 }
 
+/* Binds what the instance upsert needs of one object (its UID, the
+ * statuses the schema requires) and runs it: *replaced_count and *id from
+ * its row; returns 0, or -1 with error filled (no row is an error). */
+static int upsert_instance_at(store_statement *s, const char *uid, const char *received_at,
+                              long long *replaced_count, long long *id, mitilog_error *error);
+
+static int upsert_instance(store_connection *c, store_statement *s, const char *uid,
+                           long long *replaced_count, long long *id, mitilog_error *error)
+{
+    (void)c;
+    return upsert_instance_at(s, uid, "", replaced_count, id, error);
+}
+
+/* The same, received at received_at ("" = now). */
+static int upsert_instance_at(store_statement *s, const char *uid, const char *received_at,
+                              long long *replaced_count, long long *id, mitilog_error *error)
+{
+    static const char *texts[][2] = {
+        {":sop_class_uid", "1.2.840.10008.5.1.4.1.1.6.1"},
+        {":acquired_at_source", "missing"},
+        {":number_of_frames_status", "missing"},
+        {":frame_time_ms_status", "missing"},
+        {":mi_status", "missing"},
+        {":tis_status", "missing"},
+        {":tib_status", "missing"},
+        {":tic_status", "missing"},
+        {":tis_focus_status", "missing"},
+        {":tis_surface_status", "missing"},
+        {":object_kind", "image"},
+        {":image_type_bitmap_status", "missing"},
+    };
+    int status =
+        pg->bind_text(s, pg->parameter_index(s, ":sop_instance_uid"), uid, strlen(uid), error);
+    if (status == MITILOG_OK)
+        status = pg->bind_text(s, pg->parameter_index(s, ":received_at"), received_at,
+                               strlen(received_at), error);
+    for (size_t i = 0; status == MITILOG_OK && i < sizeof texts / sizeof texts[0]; i++) {
+        int index = pg->parameter_index(s, texts[i][0]);
+        assert_true(index > 0);
+        status = pg->bind_text(s, index, texts[i][1], strlen(texts[i][1]), error);
+    }
+    static const char *zeros[] = {":is_ultrasound",    ":has_acoustic_record", ":modes",
+                                  ":modes_image_type", ":modes_regions",       ":modes_sr",
+                                  ":modes_conflict",   ":text_replaced"};
+    for (size_t i = 0; status == MITILOG_OK && i < sizeof zeros / sizeof zeros[0]; i++)
+        status = pg->bind_integer(s, pg->parameter_index(s, zeros[i]), 0, error);
+    int has_row = 0;
+    if (status == MITILOG_OK)
+        status = pg->step(s, &has_row, error);
+    if (status == MITILOG_OK && !has_row) {
+        mitilog_error_set(error, MITILOG_ERROR_DATABASE, "the upsert gave no row");
+        status = MITILOG_ERROR_DATABASE;
+    }
+    if (status == MITILOG_OK) {
+        *replaced_count = pg->column_integer(s, 0);
+        *id = pg->column_integer(s, 1);
+    }
+    pg->reset(s);
+    return status == MITILOG_OK ? 0 : -1;
+}
+
+static const char upsert_name[] = "queries/instances/postgresql/instance_upsert.sql";
+
 /* The instance upsert through instance_keys: a re-send keeps the id and
  * counts a replacement; one row in instances, one key. */
 static void resending_replaces_never_duplicates(void **state)
@@ -223,49 +286,18 @@ static void resending_replaces_never_duplicates(void **state)
     mitilog_error error;
     if (store_postgresql_migrate(c, 5000, &version, &error) != MITILOG_OK)
         fail_msg("%s", error.text);
-    const char *name = "queries/instances/postgresql/instance_upsert.sql";
-    const char *sql = sql_file_text(name);
+    const char *sql = sql_file_text(upsert_name);
     assert_non_null(sql);
     store_statement *s = NULL;
-    if (pg->prepare(c, name, sql, &s, &error) != MITILOG_OK)
+    if (pg->prepare(c, upsert_name, sql, &s, &error) != MITILOG_OK)
         fail_msg("%s", error.text);
     long long ids[2] = {0, 0};
     for (int round = 0; round < 2; round++) {
-        static const char *texts[][2] = {
-            {":sop_instance_uid", "1.2.826.0.1.3680043.10.999.1"},
-            {":sop_class_uid", "1.2.840.10008.5.1.4.1.1.6.1"},
-            {":acquired_at_source", "missing"},
-            {":received_at", ""},
-            {":number_of_frames_status", "missing"},
-            {":frame_time_ms_status", "missing"},
-            {":mi_status", "missing"},
-            {":tis_status", "missing"},
-            {":tib_status", "missing"},
-            {":tic_status", "missing"},
-            {":tis_focus_status", "missing"},
-            {":tis_surface_status", "missing"},
-            {":object_kind", "image"},
-            {":image_type_bitmap_status", "missing"},
-        };
-        for (size_t i = 0; i < sizeof texts / sizeof texts[0]; i++) {
-            int index = pg->parameter_index(s, texts[i][0]);
-            assert_true(index > 0);
-            assert_int_equal(pg->bind_text(s, index, texts[i][1], strlen(texts[i][1]), &error),
-                             MITILOG_OK);
-        }
-        static const char *zeros[] = {":is_ultrasound",    ":has_acoustic_record", ":modes",
-                                      ":modes_image_type", ":modes_regions",       ":modes_sr",
-                                      ":modes_conflict",   ":text_replaced"};
-        for (size_t i = 0; i < sizeof zeros / sizeof zeros[0]; i++)
-            assert_int_equal(pg->bind_integer(s, pg->parameter_index(s, zeros[i]), 0, &error),
-                             MITILOG_OK);
-        int has_row = 0;
-        if (pg->step(s, &has_row, &error) != MITILOG_OK)
+        long long replaced = -1;
+        if (upsert_instance(c, s, "1.2.826.0.1.3680043.10.999.1", &replaced, &ids[round], &error) !=
+            0)
             fail_msg("%s", error.text);
-        assert_true(has_row);
-        assert_int_equal(pg->column_integer(s, 0), round); /* replaced_count */
-        ids[round] = pg->column_integer(s, 1);
-        pg->reset(s);
+        assert_int_equal(replaced, round);
     }
     pg->finalize(s);
     assert_int_equal(ids[0], ids[1]);
@@ -273,6 +305,125 @@ static void resending_replaces_never_duplicates(void **state)
     assert_int_equal(query_integer(c, "SELECT count(*) FROM instance_keys"), 1);
     /* The row sits in this month's partition, not the default one. */
     assert_int_equal(query_integer(c, "SELECT count(*) FROM instances_default"), 0);
+    pg->close(c);
+}
+
+/* Rows of a month without its partition wait in the default partition
+ * (an object copied in from an older database); the next start makes the
+ * month's partition and moves them there, the instance and its header
+ * copy alike. */
+static void older_months_move_out_of_the_default_partition(void **state)
+{
+    store_connection *c = connect_or_skip(state);
+    int version = 0;
+    mitilog_error error;
+    if (store_postgresql_migrate(c, 5000, &version, &error) != MITILOG_OK)
+        fail_msg("%s", error.text);
+    store_statement *s = NULL;
+    if (pg->prepare(c, upsert_name, sql_file_text(upsert_name), &s, &error) != MITILOG_OK)
+        fail_msg("%s", error.text);
+    long long replaced = -1, id = 0;
+    if (upsert_instance_at(s, "1.2.826.0.1.3680043.10.999.3", "2025-03-10T08:00:00.000Z", &replaced,
+                           &id, &error) != 0)
+        fail_msg("%s", error.text);
+    pg->finalize(s);
+    char sql[200];
+    snprintf(sql, sizeof sql,
+             "INSERT INTO instance_headers (instance_id, first_received_at, bytes) "
+             "VALUES (%lld, '2025-03-10T08:00:00.000Z', '\\x00')",
+             id);
+    run(c, sql);
+    assert_int_equal(query_integer(c, "SELECT count(*) FROM instances_default"), 1);
+    assert_int_equal(query_integer(c, "SELECT count(*) FROM instance_headers_default"), 1);
+    if (store_postgresql_migrate(c, 5000, &version, &error) != MITILOG_OK)
+        fail_msg("%s", error.text);
+    assert_int_equal(query_integer(c, "SELECT count(*) FROM instances_default"), 0);
+    assert_int_equal(query_integer(c, "SELECT count(*) FROM instance_headers_default"), 0);
+    assert_int_equal(query_integer(c, "SELECT count(*) FROM instances_2025_03"), 1);
+    assert_int_equal(query_integer(c, "SELECT count(*) FROM instance_headers_2025_03"), 1);
+    snprintf(sql, sizeof sql, "SELECT count(*) FROM instances WHERE id = %lld", id);
+    assert_int_equal(query_integer(c, sql), 1);
+    /* The moved partition is a partition like the others: a re-send
+     * finds its row there (one row, replaced once). */
+    if (pg->prepare(c, upsert_name, sql_file_text(upsert_name), &s, &error) != MITILOG_OK)
+        fail_msg("%s", error.text);
+    long long again = 0;
+    if (upsert_instance(c, s, "1.2.826.0.1.3680043.10.999.3", &replaced, &again, &error) != 0)
+        fail_msg("%s", error.text);
+    pg->finalize(s);
+    assert_int_equal(replaced, 1);
+    assert_int_equal(again, id);
+    assert_int_equal(query_integer(c, "SELECT count(*) FROM instances WHERE sop_instance_uid = "
+                                      "'1.2.826.0.1.3680043.10.999.3'"),
+                     1);
+    pg->close(c);
+}
+
+typedef struct upsert_thread {
+    const char *conninfo;
+    const char *uid;
+    long long replaced_count, id;
+    int result;
+    mitilog_error error;
+} upsert_thread;
+
+static void *upsert_thread_run(void *argument)
+{
+    upsert_thread *t = argument;
+    store_connection *c = NULL;
+    store_statement *s = NULL;
+    t->result = -1;
+    if (pg->open(t->conninfo, 0, 60000, &c, &t->error) == MITILOG_OK &&
+        pg->prepare(c, upsert_name, sql_file_text(upsert_name), &s, &t->error) == MITILOG_OK)
+        t->result = upsert_instance(c, s, t->uid, &t->replaced_count, &t->id, &t->error);
+    pg->finalize(s);
+    pg->close(c);
+    return NULL;
+}
+
+/* Two receivers get the same object at once: the second waits for the
+ * first's transaction and then replaces its row (one row, the same id,
+ * replaced_count 1), rather than failing or writing a second row. */
+static void two_receivers_with_one_object_write_one_row(void **state)
+{
+    store_connection *c = connect_or_skip(state);
+    fixture *f = *state;
+    int version = 0;
+    mitilog_error error;
+    if (store_postgresql_migrate(c, 5000, &version, &error) != MITILOG_OK)
+        fail_msg("%s", error.text);
+    static const char uid[] = "1.2.826.0.1.3680043.10.999.2";
+    store_statement *s = NULL;
+    if (pg->prepare(c, upsert_name, sql_file_text(upsert_name), &s, &error) != MITILOG_OK)
+        fail_msg("%s", error.text);
+    run(c, "BEGIN");
+    long long replaced = -1, id = 0;
+    if (upsert_instance(c, s, uid, &replaced, &id, &error) != 0)
+        fail_msg("%s", error.text);
+    assert_int_equal(replaced, 0);
+    /* The other receiver sends the same object while this transaction is
+     * open: it waits on the key's row lock. */
+    upsert_thread other = {.conninfo = f->database, .uid = uid};
+    pthread_t thread;
+    assert_int_equal(pthread_create(&thread, NULL, upsert_thread_run, &other), 0);
+    /* Watched from a third session: pg_stat_activity is read once per
+     * transaction, and this one's is open. */
+    store_connection *watcher = NULL;
+    assert_int_equal(pg->open(f->database, 1, 5000, &watcher, &error), MITILOG_OK);
+    while (query_integer(watcher, "SELECT count(*) FROM pg_stat_activity WHERE datname = "
+                                  "current_database() AND wait_event_type = 'Lock'") == 0)
+        usleep(10000);
+    pg->close(watcher);
+    run(c, "COMMIT");
+    pthread_join(thread, NULL);
+    if (other.result != 0)
+        fail_msg("the second receiver: %s", other.error.text);
+    assert_int_equal(other.replaced_count, 1);
+    assert_int_equal(other.id, id);
+    char sql[160];
+    snprintf(sql, sizeof sql, "SELECT count(*) FROM instances WHERE sop_instance_uid = '%s'", uid);
+    assert_int_equal(query_integer(c, sql), 1);
+    pg->finalize(s);
     pg->close(c);
 }
 
@@ -329,6 +480,15 @@ static void a_lost_connection_commits_nothing_and_recovers(void **state)
     pg->reset(commit);
     assert_int_equal(query_integer(other, "SELECT count(*) FROM lost_test"), 1);
     assert_int_equal(query_integer(other, "SELECT min(value) FROM lost_test"), 3);
+    /* changes(): rows of the last INSERT, UPDATE or DELETE; a SELECT
+     * keeps it (sqlite.org/c3ref/changes.html). */
+    run(other, "UPDATE lost_test SET value = value");
+    assert_int_equal(pg->changes(other), 1);
+    assert_int_equal(query_integer(other, "SELECT count(*) FROM lost_test"), 1);
+    run(other, "INSERT INTO lost_test SELECT 5 UNION ALL SELECT 6");
+    assert_int_equal(query_integer(other, "SELECT 42"), 42);
+    assert_int_equal(pg->changes(other), 2);
+    run(other, "DELETE FROM lost_test WHERE value > 4");
 
     /* A failed statement turns COMMIT into a rollback: reported. */
     store_statement *bad = NULL;
@@ -356,13 +516,37 @@ static void a_lost_connection_commits_nothing_and_recovers(void **state)
     pg->close(c);
 }
 
+/* A read connection (the dashboard's) refuses writes: its transactions
+ * are read-only (PostgreSQL documentation, 20.11.1,
+ * default_transaction_read_only). */
+static void a_read_connection_does_not_write(void **state)
+{
+    store_connection *c = connect_or_skip(state);
+    fixture *f = *state;
+    run(c, "CREATE TABLE IF NOT EXISTS read_only_test (value bigint)");
+    store_connection *reader = NULL;
+    mitilog_error error;
+    assert_int_equal(pg->open(f->database, 1, 5000, &reader, &error), MITILOG_OK);
+    assert_int_not_equal(
+        pg->execute_script(reader, "write", "INSERT INTO read_only_test VALUES (1)", &error),
+        MITILOG_OK);
+    assert_non_null(strstr(error.text, "read-only"));
+    assert_int_equal(pg->connection_lost(reader), 0);
+    assert_int_equal(query_integer(reader, "SELECT count(*) FROM read_only_test"), 0);
+    pg->close(reader);
+    pg->close(c);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(three_receivers_migrate_once),
         cmocka_unit_test(columns_are_typed_as_sqlite_would),
         cmocka_unit_test(resending_replaces_never_duplicates),
+        cmocka_unit_test(two_receivers_with_one_object_write_one_row),
+        cmocka_unit_test(older_months_move_out_of_the_default_partition),
         cmocka_unit_test(a_lost_connection_commits_nothing_and_recovers),
+        cmocka_unit_test(a_read_connection_does_not_write),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
 }

@@ -19,6 +19,7 @@
 #include <unistd.h>
 
 #include "store/store.h"
+#include "store/store_instances.h"
 #include "store/store_readings.h"
 #include "store/store_exams.h"
 

@@ -23,8 +23,10 @@
 --   "re-sending replaces, never duplicates" is kept by instance_keys, an
 --   unpartitioned table with the SOP Instance UID as primary key: the
 --   instance upsert (queries/instances/postgresql/instance_upsert.sql)
---   inserts there first, and its row lock makes two receivers that get
---   the same object at once write one row. A default partition takes any
+--   inserts there first and so learns the UID's id and month, then
+--   upserts on (sop_instance_uid, first_received_at), unique within the
+--   month's partition; two receivers that get the same object at once
+--   wait for each other there and write one row. A default partition takes any
 --   month not yet created, so no insert ever fails for want of one;
 --   mitilog_month_partitions() creates months ahead (run at every start).
 -- * Foreign keys to instances (header copies, SR values, screen readings,
@@ -219,7 +221,9 @@ CREATE TABLE instances (
 ) PARTITION BY RANGE (first_received_at);
 CREATE TABLE instances_default PARTITION OF instances DEFAULT;
 CREATE INDEX instances_id ON instances (id);
-CREATE INDEX instances_sop ON instances (sop_instance_uid);
+-- One row per UID and month of first receipt (which instance_keys fixes
+-- for a UID): the conflict target of the instance upsert.
+CREATE UNIQUE INDEX instances_sop ON instances (sop_instance_uid, first_received_at);
 CREATE INDEX instances_day ON instances (substr(coalesce(acquired_at, received_at), 1, 10));
 CREATE INDEX instances_received ON instances (received_at);
 CREATE INDEX instances_study ON instances (study_instance_uid, acquired_at);
@@ -257,36 +261,50 @@ CREATE INDEX sr_values_study ON sr_values (study_instance_uid, quantity);
 
 -- Creates the month partitions of instances, instance_headers and
 -- sr_values for every month from first_month to last_month (any day of
--- each), unless they exist. A month whose rows already went to the default
--- partition is left there (still found by every query), with a notice.
+-- each), unless they exist. Rows of such a month that went to the default
+-- partition meanwhile (a receiver running past the months made ahead, a
+-- copy of older data) are moved into the new partition, in the caller's
+-- transaction (PostgreSQL documentation, 5.11.2.2 "Partition
+-- Maintenance": a partition made apart and attached). Returns the number
+-- of partitions made.
 CREATE FUNCTION mitilog_month_partitions(first_month date, last_month date)
 RETURNS integer LANGUAGE plpgsql AS $function$
 DECLARE
     month date := date_trunc('month', first_month)::date;
     parent text;
+    partition text;
     low text;
     high text;
     occupied boolean;
+    made integer := 0;
 BEGIN
     WHILE month <= last_month LOOP
         low := to_char(month, 'YYYY-MM');
         high := to_char(month + interval '1 month', 'YYYY-MM');
         FOREACH parent IN ARRAY ARRAY['instances', 'instance_headers', 'sr_values'] LOOP
-            CONTINUE WHEN to_regclass(parent || '_' || to_char(month, 'YYYY_MM')) IS NOT NULL;
+            partition := parent || '_' || to_char(month, 'YYYY_MM');
+            CONTINUE WHEN to_regclass(partition) IS NOT NULL;
             EXECUTE format('SELECT EXISTS (SELECT 1 FROM %I WHERE first_received_at >= %L '
                            'AND first_received_at < %L)', parent || '_default', low, high)
                 INTO STRICT occupied;
             IF occupied THEN
-                RAISE NOTICE 'month % of % stays in %_default: rows arrived before its partition',
-                    low, parent, parent;
-                CONTINUE;
+                EXECUTE format('CREATE TABLE %I (LIKE %I INCLUDING DEFAULTS INCLUDING CONSTRAINTS)',
+                               partition, parent);
+                EXECUTE format('WITH moved AS (DELETE FROM %I WHERE first_received_at >= %L '
+                               'AND first_received_at < %L RETURNING *) '
+                               'INSERT INTO %I SELECT * FROM moved',
+                               parent || '_default', low, high, partition);
+                EXECUTE format('ALTER TABLE %I ATTACH PARTITION %I FOR VALUES FROM (%L) TO (%L)',
+                               parent, partition, low, high);
+            ELSE
+                EXECUTE format('CREATE TABLE %I PARTITION OF %I FOR VALUES FROM (%L) TO (%L)',
+                               partition, parent, low, high);
             END IF;
-            EXECUTE format('CREATE TABLE %I PARTITION OF %I FOR VALUES FROM (%L) TO (%L)',
-                           parent || '_' || to_char(month, 'YYYY_MM'), parent, low, high);
+            made := made + 1;
         END LOOP;
         month := (month + interval '1 month')::date;
     END LOOP;
-    RETURN 0;
+    RETURN made;
 END
 $function$;
 

@@ -1,5 +1,7 @@
--- PostgreSQL: [storage] durability has no counterpart on a server the
--- receiver does not own: every commit waits for the server's flush
--- (synchronous_commit = on), so that a crash of the server loses nothing
--- acknowledged; the server's own settings (fsync) govern the rest.
-SET synchronous_commit = on;
+-- PostgreSQL: [storage] durability = process (and import): COMMIT returns
+-- before the server has flushed it (synchronous_commit = off). What is
+-- committed survives this process being killed, since the server holds
+-- it, but a crash of the server may lose the last fraction of a second
+-- of commits (PostgreSQL documentation, 30.4 "Asynchronous Commit"), as a
+-- power loss may lose them with SQLite. checkpoint.sql flushes at close.
+SET synchronous_commit = off;

@@ -3,19 +3,21 @@
 -- updates the row in place (same id, replaced_count + 1,
 -- first_received_at kept). instances is partitioned by month of first
 -- receipt and cannot hold a unique key on the UID alone, so the UID's row
--- in instance_keys decides: inserted there (a new object, a new id) or
--- found and locked there (a re-send, the same id and month), which makes
--- two receivers sending the same object at once write one row. Returns
--- replaced_count and id. An empty :received_at means "now" (UTC).
+-- in instance_keys gives its id and month: inserted there (a new object,
+-- a new id, this month) or found there (a re-send, the same id and
+-- month). The row is then upserted on (sop_instance_uid,
+-- first_received_at), unique in the month's partition: ON CONFLICT waits
+-- for another receiver writing the same object and then updates the row
+-- it committed, where an UPDATE would not see it. Returns replaced_count
+-- and id. An empty :received_at means "now" (UTC).
 WITH key AS (
     INSERT INTO instance_keys AS k (sop_instance_uid, id, first_received_at)
     VALUES (:sop_instance_uid, nextval('instances_id_seq'),
             coalesce(nullif(:received_at, ''), to_char(clock_timestamp() AT TIME ZONE 'UTC', 'YYYY-MM-DD"T"HH24:MI:SS.MS"Z"')))
     ON CONFLICT (sop_instance_uid) DO UPDATE SET id = k.id
-    RETURNING k.id, k.first_received_at, k.xmax = 0 AS inserted
-),
-inserted AS (
-    INSERT INTO instances (
+    RETURNING k.id, k.first_received_at
+)
+INSERT INTO instances AS i (
         id, first_received_at, received_at,
         sop_instance_uid, sop_class_uid, study_instance_uid, series_instance_uid, modality,
         station_name, institutional_department_name, study_description, accession_number,
@@ -58,11 +60,8 @@ inserted AS (
         :preset_source::text, :room::text, :room_source::text, :shift::text,
         :shift_source::text, :age_group::text, :age_group_source::text, :operator_name::text,
         :operator_source::text, :overlong_fields::text, :text_replaced::bigint
-    FROM key WHERE key.inserted
-    RETURNING replaced_count, id
-),
-updated AS (
-    UPDATE instances AS i SET
+    FROM key
+ON CONFLICT (sop_instance_uid, first_received_at) DO UPDATE SET
     sop_class_uid = :sop_class_uid,
     study_instance_uid = :study_instance_uid,
     series_instance_uid = :series_instance_uid,
@@ -132,10 +131,4 @@ updated AS (
     operator_source = :operator_source,
     overlong_fields = :overlong_fields,
     text_replaced = :text_replaced
-    FROM key
-    WHERE NOT key.inserted AND i.id = key.id AND i.first_received_at = key.first_received_at
-    RETURNING i.replaced_count, i.id
-)
-SELECT replaced_count, id FROM inserted
-UNION ALL
-SELECT replaced_count, id FROM updated;
+RETURNING i.replaced_count, i.id;
