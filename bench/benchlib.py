@@ -10,6 +10,7 @@ import atexit
 import datetime
 import os
 import platform
+import re
 import shutil
 import signal
 import socket
@@ -179,11 +180,15 @@ def split(paths, parts):
 
 class Mitilog:
     """mitilog serve with a temporary configuration on free ports and a
-    data directory under /tmp (removed by close())."""
+    data directory under /tmp (removed by close()). With connection (a
+    PostgreSQL conninfo) the store is that database instead of the SQLite
+    file; site is [receiver] site."""
 
     def __init__(self, binary, retention="header", level="warning",
-                 root="/tmp", durability="power_loss", dicom_extra=None):
+                 root="/tmp", durability="power_loss", dicom_extra=None,
+                 connection=None, site=None):
         self.binary = binary
+        self.connection = connection
         self.workdir = tempfile.mkdtemp(prefix="mitilog-bench-", dir=root)
         self.port = free_port()
         self.http_port = free_port()
@@ -197,13 +202,18 @@ class Mitilog:
             f.write("[dicom]\nae_title = %s\nport = %d\n%s\n"
                     "[http]\naddress = 127.0.0.1\nport = %d\n\n"
                     "[storage]\ndata_directory = %s\nretention = %s\n"
-                    "durability = %s\n\n"
+                    "durability = %s\n%s\n"
+                    "%s"
                     "[log]\nlevel = %s\n"
                     % (AE_TITLE, self.port,
                        "".join("%s = %s\n" % kv
                                for kv in dicom.items()),
                        self.http_port, self.data,
-                       retention, durability, level))
+                       retention, durability,
+                       ("engine = postgresql\nconnection = %s\n" % connection
+                        if connection else ""),
+                       "[receiver]\nsite = %s\n\n" % site if site else "",
+                       level))
         self.stderr_path = os.path.join(self.workdir, "serve.stderr")
         self.process = None
 
@@ -234,6 +244,8 @@ class Mitilog:
         return self.process.returncode
 
     def count(self, table="instances"):
+        if self.connection:
+            return postgresql_count(self.connection, table)
         with sqlite3.connect("file:%s?mode=ro" % self.database,
                              uri=True) as db:
             return db.execute("select count(*) from %s" % table).fetchone()[0]
@@ -248,6 +260,96 @@ class Mitilog:
     def close(self):
         self.stop()
         remove_later(self.workdir)
+
+
+CLUSTER_SCRIPT = os.path.join(ROOT, "tests", "postgresql", "cluster.sh")
+
+
+def has_postgresql_engine(binary):
+    """Whether this build of mitilog knows [storage] engine = postgresql:
+    check-config of a file that names it does not call the key unknown
+    (the server it names need not answer)."""
+    with tempfile.TemporaryDirectory(prefix="mitilog-bench-") as folder:
+        config = os.path.join(folder, "engine.ini")
+        with open(config, "w") as f:
+            f.write("[storage]\nengine = postgresql\n"
+                    "connection = host=127.0.0.1 port=1 dbname=none connect_timeout=1\n")
+        result = subprocess.run([binary, "check-config", config], stdout=subprocess.DEVNULL,
+                                stderr=subprocess.PIPE, text=True, errors="replace")
+    return not re.search(r"engine: (unknown key|.*unknown)", result.stderr)
+
+
+def knows_key(binary, section, key, value):
+    """Whether check-config of this build takes [section] key = value
+    without calling the key unknown."""
+    with tempfile.TemporaryDirectory(prefix="mitilog-bench-") as folder:
+        config = os.path.join(folder, "key.ini")
+        with open(config, "w") as f:
+            f.write("[%s]\n%s = %s\n" % (section, key, value))
+        result = subprocess.run([binary, "check-config", config], stdout=subprocess.DEVNULL,
+                                stderr=subprocess.PIPE, text=True, errors="replace")
+    return "%s: unknown key" % key not in result.stderr
+
+
+def postgresql_count(conninfo, table):
+    import psycopg2  # Debian's python3-psycopg2
+    connection = psycopg2.connect(conninfo)
+    try:
+        with connection.cursor() as cursor:
+            cursor.execute('SELECT count(*) FROM "%s"' % table)
+            return cursor.fetchone()[0]
+    finally:
+        connection.close()
+
+
+class Postgresql:
+    """A throw-away PostgreSQL server (tests/postgresql/cluster.sh: Debian's
+    server, fsync on, 127.0.0.1) in a folder under /tmp, on a free port or
+    the given one; database() makes an empty database and returns its
+    conninfo. kill() is SIGKILL of the postmaster, start() again recovers."""
+
+    def __init__(self, port=None, root="/tmp"):
+        self.folder = tempfile.mkdtemp(prefix="mitilog-bench-postgresql-", dir=root)
+        self.port = port or free_port()
+        self.conninfo = None
+        self.made = 0
+        _LEFT_OVER.append(self.folder)
+        atexit.register(self.stop)
+
+    def start(self):
+        result = subprocess.run(["bash", CLUSTER_SCRIPT, "start", self.folder, str(self.port)],
+                                stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+        if result.returncode != 0:
+            raise RuntimeError("cluster.sh start: " + result.stderr)
+        self.conninfo = result.stdout.strip().splitlines()[-1]
+        return self
+
+    def of(self, database):
+        return "host=127.0.0.1 port=%d dbname=%s user=mitilog" % (self.port, database)
+
+    def execute(self, sql, database="mitilog"):
+        import psycopg2
+        connection = psycopg2.connect(self.of(database))
+        connection.autocommit = True
+        try:
+            with connection.cursor() as cursor:
+                cursor.execute(sql)
+                return cursor.fetchall() if cursor.description else None
+        finally:
+            connection.close()
+
+    def database(self, prefix="bench"):
+        self.made += 1
+        name = "%s_%d" % (prefix, self.made)
+        self.execute("CREATE DATABASE %s" % name)
+        return self.of(name)
+
+    def kill(self):
+        subprocess.run(["bash", CLUSTER_SCRIPT, "kill", self.folder])
+
+    def stop(self):
+        subprocess.run(["bash", CLUSTER_SCRIPT, "stop", self.folder],
+                       stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
 
 
 class Storescp:

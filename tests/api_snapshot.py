@@ -9,6 +9,11 @@ code left them as they were.
     # is migrated by the newer binary when it opens it)
     /usr/bin/python3 tests/api_snapshot.py build --binary build/mitilog \
         --database /tmp/snap-old/work/var/mitilog.sqlite3 --out /tmp/snap-migrated
+    # the same database copied into PostgreSQL (mitilog copy-database into
+    # an empty database) and served from there
+    /usr/bin/python3 tests/api_snapshot.py build --binary build/mitilog \
+        --database /tmp/snap-new/work/var/mitilog.sqlite3 \
+        --connection 'host=127.0.0.1 port=55432 dbname=snapshot user=mitilog' --out /tmp/snap-pg
     # byte-for-byte comparison of two folders
     /usr/bin/python3 tests/api_snapshot.py compare /tmp/snap-old /tmp/snap-new
 
@@ -19,7 +24,10 @@ starts `mitilog serve` on the database and saves the reply of every GET
 document of docs/api.md (several periods, weeks, groupings, studies and
 filters) as one file per request: status line, content type, then the
 body exactly as sent. --database serves a copy of an existing database
-file instead of importing.
+file instead of importing. --connection serves a PostgreSQL database
+instead of SQLite: the simulated files are imported into it, or with
+--database that file is copied into it (`mitilog copy-database`, which
+wants an empty database).
 
 `compare` prints, per request, whether the two replies are byte for byte
 equal. The documents carry the wall-clock times of the run (receipt,
@@ -76,16 +84,18 @@ def file_name(path):
     return re.sub(r"[^A-Za-z0-9._-]", "_", path.strip("/")) or "root"
 
 
-def write_config(work, policy):
+def write_config(work, policy, connection=None):
     config = os.path.join(work, "mitilog.ini")
     dicom_port, http_port = free_port(), free_port()
     with open(config, "w") as f:
         f.write("[dicom]\nae_title = MITILOG\nport = %d\n\n"
                 "[http]\naddress = 127.0.0.1\nport = %d\n\n"
-                "[storage]\ndata_directory = %s\nretention = header\n\n"
+                "[storage]\ndata_directory = %s\nretention = header\n%s\n"
                 "[rules]\npolicy = %s\n\n"
                 "[log]\nlevel = warning\n"
-                % (dicom_port, http_port, os.path.join(work, "var"), policy))
+                % (dicom_port, http_port, os.path.join(work, "var"),
+                   "engine = postgresql\nconnection = %s\n" % connection if connection else "",
+                   policy))
     return config, http_port
 
 
@@ -150,10 +160,16 @@ def build(args):
     os.makedirs(os.path.join(work, "var"))
     os.makedirs(documents)
     shutil.copy(args.policy, os.path.join(work, "policy.ini"))
-    config, port = write_config(work, os.path.join(work, "policy.ini"))
+    config, port = write_config(work, os.path.join(work, "policy.ini"), args.connection)
     binary = os.path.abspath(args.binary)
     environment = dict(os.environ, TCP_NODELAY="1")
-    if args.database:
+    if args.database and args.connection:
+        result = subprocess.run([binary, "copy-database", "--from", args.database,
+                                 "--to", args.connection], capture_output=True, text=True)
+        if result.returncode != 0:
+            sys.exit("copy-database failed: %s%s" % (result.stdout, result.stderr))
+        print(result.stdout.strip().splitlines()[-1])
+    elif args.database:
         source = sqlite3.connect("file:%s?mode=ro" % args.database, uri=True)
         target = sqlite3.connect(os.path.join(work, "var", "mitilog.sqlite3"))
         source.backup(target)
@@ -266,6 +282,8 @@ def main():
     b.add_argument("--binary", default=os.path.join(REPO, "build", "mitilog"))
     b.add_argument("--out", required=True)
     b.add_argument("--database", help="serve a copy of this database instead of importing")
+    b.add_argument("--connection",
+                   help="serve this PostgreSQL database (libpq conninfo) instead of SQLite")
     b.add_argument("--policy", default=os.path.join(REPO, "conf", "policy.ini"))
     b.add_argument("--days", type=int, default=3)
     b.add_argument("--seed", type=int, default=1)

@@ -2,7 +2,8 @@
 # tests/run.sh - the test command: installs the dependencies, builds the
 # normal tree (build/) and the sanitizer tree (build-asan/), runs the unit
 # tests of both with ctest, then the black-box integration tests against
-# both executables, then the HTTP tests against a ThreadSanitizer build
+# both executables, then the same integration tests with a PostgreSQL store
+# (build/ only), then the HTTP tests against a ThreadSanitizer build
 # (build-tsan/). Exits non-zero if anything fails; prints a summary.
 set -uo pipefail
 
@@ -82,6 +83,39 @@ for tree in build build-asan; do
   fi
 done
 
+# The same integration tests against a PostgreSQL store (normal tree only:
+# the suite takes minutes per engine). The session starts one throw-away
+# server (tests/postgresql/cluster.sh) and gives each daemon a database of
+# its own; tests about SQLite itself are skipped with their reason. The
+# unit tests named *postgresql* (ctest -R postgresql: the engine against a
+# real server) run again with a server of their own, its connection string
+# in MITILOG_TEST_POSTGRESQL (without it they skip their cases and say so).
+if [ -n "${built[build]:-}" ] && [ -x "$top/build/mitilog" ]; then
+  if "$python" -c 'import sys; sys.path.insert(0, sys.argv[1]); import benchlib; sys.exit(0 if benchlib.has_postgresql_engine(sys.argv[2]) else 1)' \
+    "$top/bench" "$top/build/mitilog"; then
+    if ctest --test-dir "$top/build" -N -R postgresql 2>/dev/null | grep -q "Test *#"; then
+      store_tests_on_postgresql() {
+        local folder conninfo status
+        folder=$(mktemp -d /tmp/mitilog-ctest-postgresql-XXXXXX)
+        conninfo=$(bash "$top/tests/postgresql/cluster.sh" start "$folder" \
+          "${MITILOG_CTEST_POSTGRESQL_PORT:-$("$python" -c 'import socket; s = socket.socket(); s.bind(("127.0.0.1", 0)); print(s.getsockname()[1])')}") ||
+          { rm -rf "$folder"; return 1; }
+        MITILOG_TEST_POSTGRESQL="$conninfo" ctest --test-dir "$top/build" \
+          --output-on-failure -R postgresql
+        status=$?
+        bash "$top/tests/postgresql/cluster.sh" stop "$folder"
+        rm -rf "$folder"
+        return "$status"
+      }
+      step "unit tests build/ on PostgreSQL (ctest -R postgresql)" store_tests_on_postgresql
+    fi
+    step "integration tests build/mitilog on PostgreSQL" env MITILOG_BINARY="$top/build/mitilog" \
+      MITILOG_TEST_ENGINE=postgresql "$python" -m pytest -v -p no:cacheprovider tests/integration
+  else
+    results+=("SKIP  integration tests on PostgreSQL: build/mitilog has no PostgreSQL engine")
+  fi
+fi
+
 # ThreadSanitizer (build-tsan/, -DMITILOG_SANITIZE=thread; the executable
 # only): the tests that drive the HTTP API, among them many clients at once
 # (test_concurrency.py). The first report stops the daemon with status 66,
@@ -105,7 +139,8 @@ fi
 if [ "${MITILOG_BENCH:-1}" != 0 ] && [ -n "${built[build]:-}" ]; then
   bench_tiny() {
     local script
-    for script in ingest parse memory query scale hostile screen reading login screen_simulated; do
+    for script in ingest parse memory query scale hostile screen reading login screen_simulated \
+      engines_ingest engines_query engines_crash; do
       echo "--- bench/$script.py --tiny"
       MITILOG="$top/build/mitilog" "$python" "$top/bench/$script.py" --tiny || return 1
     done

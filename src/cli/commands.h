@@ -19,6 +19,7 @@ int command_passwd(int argc, char **argv);
 int command_header(int argc, char **argv);
 int command_frame(int argc, char **argv);
 int command_device(int argc, char **argv);
+int command_copy_database(int argc, char **argv);
 
 enum { EXIT_STATUS_SUCCESS = 0, EXIT_STATUS_FAILURE = 1, EXIT_STATUS_USAGE = 2 };
 

@@ -23,6 +23,7 @@ static const subcommand subcommands[] = {
     {"passwd", command_passwd, "make a password-file line for the HTTP login"},
     {"report", command_report, "write the weekly outlier list or exposure statistics"},
     {"simulate", command_simulate, "generate a fictional department's ultrasound traffic"},
+    {"copy-database", command_copy_database, "copy an SQLite database into PostgreSQL"},
 };
 
 static void print_usage(FILE *out)

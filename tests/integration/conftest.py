@@ -1,9 +1,19 @@
 """Black-box harness: starts the real mitilog daemon with a generated
 configuration and talks to it the way a modality or PACS would (DCMTK's
-echoscu and storescu), then reads the HTTP API and the SQLite file.
+echoscu and storescu), then reads the HTTP API and the database.
 
 Environment:
-  MITILOG_BINARY   the executable under test (default: build/mitilog)
+  MITILOG_BINARY       the executable under test (default: build/mitilog)
+  MITILOG_TEST_ENGINE  sqlite (default) or postgresql: the store every test
+                       daemon writes to. With postgresql the session starts
+                       one throw-away server (tests/postgresql/cluster.sh)
+                       and each daemon gets a fresh database of its own.
+  MITILOG_TEST_POSTGRESQL_PORT  the server's port (default: a free one)
+
+Tests that read what was stored use Daemon.db(), which answers the same
+way on both engines (Python's sqlite3, or psycopg2 for PostgreSQL, with
+"?" and "?N" parameters on both). Tests about SQLite itself (its file,
+its faults, its pragmas) are marked @pytest.mark.sqlite_only("why").
 """
 
 import json
@@ -12,9 +22,12 @@ import random
 import re
 import signal
 import socket
+import shutil
 import sqlite3
 import subprocess
 import sys
+import tempfile
+import threading
 import time
 import urllib.error
 import urllib.request
@@ -35,6 +48,12 @@ DCMTK_ENV = dict(os.environ, TCP_NODELAY="1")
 SANITIZER_RE = re.compile(r"(AddressSanitizer|LeakSanitizer|UndefinedBehaviorSanitizer|"
                           r"ThreadSanitizer|runtime error:)")
 ERROR_RE = re.compile(r"\berror:", re.IGNORECASE)
+
+ENGINE = os.environ.get("MITILOG_TEST_ENGINE", "sqlite").strip() or "sqlite"
+if ENGINE not in ("sqlite", "postgresql"):
+    raise pytest.UsageError("MITILOG_TEST_ENGINE is %r; it must be sqlite or postgresql"
+                            % ENGINE)
+CLUSTER_SCRIPT = os.path.join(REPO, "tests", "postgresql", "cluster.sh")
 
 
 HANDED_OUT_PORTS = set()
@@ -109,6 +128,15 @@ class Daemon:
         sections["dicom"].update(dicom or {})
         sections["http"].update(http or {})
         sections["storage"].update(storage or {})
+        # A test that names its engine (storage=dict(engine=...)) gets it.
+        self.engine = sections["storage"].get("engine", ENGINE)
+        self.connection = sections["storage"].get("connection")
+        if self.engine == "postgresql" and self.connection is None:
+            self.connection = POSTGRESQL.database_for(self.workdir)
+            sections["storage"]["engine"] = "postgresql"
+            sections["storage"]["connection"] = self.connection
+        if self.engine == "sqlite":
+            sections["storage"].pop("engine", None)   # the default
         self.allowed = sections["dicom"]["allowed_calling_ae_titles"]
         self.config = os.path.join(self.workdir, "mitilog.ini")
         with open(self.config, "w") as f:
@@ -252,14 +280,199 @@ class Daemon:
                   str(self.dicom_port)] + list(files))
         return run(cmd, timeout=300)
 
-    def db(self):
-        """Read-only connection to the daemon's database."""
+    def db(self, write=False):
+        """A connection to the daemon's database, read-only unless write:
+        sqlite3's own on SQLite, a StoreConnection (the same execute /
+        fetchone / fetchall, "?" and "?N" parameters) on PostgreSQL."""
+        if self.engine == "postgresql":
+            return StoreConnection(self.connection, write=write)
+        if write:
+            return sqlite3.connect(self.database, timeout=10)
         return sqlite3.connect("file:%s?mode=ro" % self.database, uri=True,
                                timeout=10)
 
     def import_(self, *paths):
         return run([BINARY, "import", "--config", self.config] + list(paths),
                    timeout=300)
+
+
+# -- PostgreSQL -----------------------------------------------------------
+
+PARAMETER_RE = re.compile(r"""('(?:[^']|'')*'|"(?:[^"]|"")*"|--[^\n]*|\?(\d*)|%)""")
+
+
+def postgresql_sql(sql, parameters):
+    """SQLite-style SQL ("?", "?N") to psycopg2's ("%s", positional):
+    returns (sql, parameters). String literals, quoted names and comments
+    are kept; every "%" is doubled (psycopg2 formats the whole text). Common practice, no source."""
+    if isinstance(parameters, dict):
+        raise TypeError("StoreConnection takes positional parameters only")
+    given = list(parameters or ())
+    ordered = []
+    next_index = [0]
+
+    def replace(match):
+        token = match.group(1)
+        if token == "%":
+            return "%%"
+        if not token.startswith("?"):
+            return token.replace("%", "%%")  # psycopg2 reads % inside literals too
+        if match.group(2):
+            ordered.append(given[int(match.group(2)) - 1])
+        else:
+            ordered.append(given[next_index[0]])
+            next_index[0] += 1
+        return "%s"
+
+    return PARAMETER_RE.sub(replace, sql), ordered
+
+
+def database_errors():
+    """The exceptions a refused statement raises on either engine."""
+    errors = [sqlite3.DatabaseError]
+    if ENGINE == "postgresql":
+        import psycopg2
+        errors.append(psycopg2.Error)
+    return tuple(errors)
+
+
+class StoreConnection:
+    """A PostgreSQL connection that answers like Python's sqlite3 for what
+    the tests do: execute() returns a cursor with fetchone/fetchall and is
+    iterable; `with` commits (or rolls back) and keeps it open. Read-only
+    connections run each statement in its own transaction, so that a test
+    never holds a snapshot or a lock while the daemon works."""
+
+    def __init__(self, conninfo, write=False):
+        import psycopg2  # Debian's python3-psycopg2 (deploy/install-dependencies.sh)
+        self.connection = psycopg2.connect(conninfo, connect_timeout=10)
+        if not write:
+            self.connection.set_session(readonly=True, autocommit=True)
+
+    def execute(self, sql, parameters=()):
+        sql, ordered = postgresql_sql(sql, parameters)
+        cursor = self.connection.cursor()
+        cursor.execute(sql, ordered)
+        return cursor
+
+    def commit(self):
+        self.connection.commit()
+
+    def rollback(self):
+        self.connection.rollback()
+
+    def close(self):
+        self.connection.close()
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, kind, value, traceback):
+        if not self.connection.autocommit:
+            if kind is None:
+                self.connection.commit()
+            else:
+                self.connection.rollback()
+        return False
+
+
+class PostgresqlServer:
+    """The session's one throw-away PostgreSQL server (cluster.sh), started
+    on first use; one database per daemon working directory, so that a
+    second Daemon on the same directory finds the first one's data, as a
+    second daemon on the same SQLite file would."""
+
+    def __init__(self):
+        self.lock = threading.Lock()
+        self.folder = None
+        self.conninfo = None   # of the server's maintenance database
+        self.port = None
+        self.databases = {}    # working directory -> database name
+
+    def start(self):
+        with self.lock:
+            if self.conninfo is not None:
+                return
+            # The server runs as the user postgres when the tests run as
+            # root; pytest's own temporary folder is closed to other users,
+            # so the cluster lives in a folder of its own under /tmp.
+            self.folder = tempfile.mkdtemp(prefix="mitilog-test-postgresql-")
+            self.port = int(os.environ.get("MITILOG_TEST_POSTGRESQL_PORT") or free_port())
+            result = subprocess.run(["bash", CLUSTER_SCRIPT, "start", self.folder,
+                                     str(self.port)], stdout=subprocess.PIPE,
+                                    stderr=subprocess.PIPE, text=True, timeout=180)
+            if result.returncode != 0:
+                raise RuntimeError("tests/postgresql/cluster.sh could not start a server:\n"
+                                   + result.stderr)
+            self.conninfo = result.stdout.strip().splitlines()[-1]
+
+    def stop(self):
+        with self.lock:
+            if self.folder is None:
+                return
+            subprocess.run(["bash", CLUSTER_SCRIPT, "stop", self.folder],
+                           stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+                           timeout=120)
+            shutil.rmtree(self.folder, ignore_errors=True)
+            self.folder = self.conninfo = None
+
+    def conninfo_of(self, database):
+        return "host=127.0.0.1 port=%d dbname=%s user=mitilog" % (self.port, database)
+
+    def create_database(self, name):
+        import psycopg2
+        connection = psycopg2.connect(self.conninfo, connect_timeout=10)
+        try:
+            connection.autocommit = True  # CREATE DATABASE runs outside a transaction
+            with connection.cursor() as cursor:
+                cursor.execute("CREATE DATABASE %s" % name)
+        finally:
+            connection.close()
+
+    def database_for(self, workdir):
+        """The conninfo of workdir's own database (created on first use)."""
+        self.start()
+        with self.lock:
+            name = self.databases.get(workdir)
+            if name is None:
+                name = "t_%d" % (len(self.databases) + 1)
+                self.create_database(name)
+                self.databases[workdir] = name
+        return self.conninfo_of(name)
+
+
+POSTGRESQL = PostgresqlServer()
+
+
+def pytest_configure(config):
+    config.addinivalue_line(
+        "markers", "sqlite_only(reason): the test is about SQLite itself (its file, "
+        "faults, pragmas); skipped when MITILOG_TEST_ENGINE=postgresql")
+
+
+def pytest_collection_modifyitems(config, items):
+    if ENGINE == "sqlite":
+        return
+    for item in items:
+        marker = item.get_closest_marker("sqlite_only")
+        if marker is not None:
+            reason = marker.args[0] if marker.args else marker.kwargs.get("reason", "")
+            item.add_marker(pytest.mark.skip(reason="SQLite only: " + reason))
+
+
+@pytest.fixture(scope="session", autouse=True)
+def postgresql_server_lifetime():
+    """Stops the session's PostgreSQL server (if one was started) after
+    every other fixture has stopped its daemons: session fixtures are torn
+    down last, the first made last of all. A daemon still running then (a
+    test that did not stop its own) is killed first, so that it never
+    meets its server gone."""
+    yield POSTGRESQL
+    for daemon in LIVE_DAEMONS:
+        if daemon.process is not None and daemon.process.poll() is None:
+            daemon.process.kill()
+            daemon.process.wait()
+    POSTGRESQL.stop()
 
 
 @pytest.fixture(scope="session")
@@ -335,4 +548,4 @@ def pytest_runtest_makereport(item, call):
 
 
 def pytest_report_header(config):
-    return "mitilog binary: %s" % BINARY
+    return "mitilog binary: %s; engine: %s" % (BINARY, ENGINE)

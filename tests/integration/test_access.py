@@ -143,7 +143,8 @@ def test_root_start_drops_to_the_service_user(daemon_factory, fixtures):
     good = [f["path"] for f in fixtures["manifest"] if f["group"] != "bad"][:3]
     result = daemon.storescu(good)
     assert result.returncode == 0, result.stderr
-    assert os.stat(daemon.database).st_uid == nobody.pw_uid
+    if daemon.engine == "sqlite":   # a PostgreSQL store has no file of ours
+        assert os.stat(daemon.database).st_uid == nobody.pw_uid
     # umask 077: nothing the daemon made is readable by others
     for root, dirs, files in os.walk(daemon.data_directory):
         for name in dirs + files:

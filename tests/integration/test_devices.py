@@ -7,7 +7,6 @@ file as PIL wrote it (PIL is the outside reader)."""
 import io
 import json
 import os
-import sqlite3
 import subprocess
 import sys
 import urllib.error
@@ -66,7 +65,7 @@ def test_learn_activate_and_dashboard(daemon_factory, tmp_path):
     shown = run("device", "show", "--config", daemon.config, "room-3-scanner").stdout
     assert shown.startswith("# room-3-scanner version 1, active")
     assert "\nmitilog-screen-profile 1\n" in shown
-    with sqlite3.connect(daemon.database) as db:
+    with daemon.db() as db:
         row = db.execute("SELECT state, confirmed_by, confirmed_at IS NOT NULL "
                          "FROM screen_profiles").fetchone()
     assert row == ("active", "a.admin", 1)

@@ -19,7 +19,6 @@ import io
 import json
 import os
 import shutil
-import sqlite3
 import ssl
 import statistics
 import subprocess
@@ -27,7 +26,7 @@ import urllib.parse
 
 import pytest
 
-from conftest import BINARY, REPO, Daemon, run
+from conftest import BINARY, REPO, Daemon, database_errors, run
 from test_https import make_certificates
 
 DAYS = 21
@@ -331,12 +330,12 @@ def test_reviews_need_reviewer_token_and_same_origin(department):
     row = [f for f in again["findings"] if f["id"] == finding["id"]][0]
     assert row["open"] is False and row["review"]["outcome"] == "acceptable"
     assert again["counts"]["open"] == worklist["counts"]["open"] - 1
-    # Append-only: SQLite refuses to change or delete a recorded review.
-    db = sqlite3.connect(department.database, timeout=10)
-    with pytest.raises(sqlite3.DatabaseError, match="append-only"):
-        db.execute("UPDATE reviews SET outcome = 'acceptable'")
-    with pytest.raises(sqlite3.DatabaseError, match="append-only"):
-        db.execute("DELETE FROM reviews")
+    # Append-only: the database refuses to change or delete a recorded review.
+    db = department.db(write=True)
+    for statement in ("UPDATE reviews SET outcome = 'acceptable'", "DELETE FROM reviews"):
+        with pytest.raises(database_errors(), match="append-only"):
+            db.execute(statement)
+        db.rollback()
     db.close()
     # CSV export read back with the csv module (RFC 4180) equals the JSON.
     status, headers, data = reviewer.request("GET", "/api/v1/reviews?format=csv")

@@ -39,6 +39,7 @@ def assert_nothing_false(daemon, statuses, rows):
     assert lost == []
 
 
+@pytest.mark.sqlite_only("holds SQLite's file lock from a second connection")
 def test_locked_database_answers_a700_then_recovers(daemon_factory, sim):
     files, rows = sim
     daemon = daemon_factory("locked", storage=dict(busy_timeout_ms=300)).start()
@@ -98,6 +99,7 @@ def fill(mount):
     return path
 
 
+@pytest.mark.sqlite_only("fills the file system that holds the SQLite file")
 def test_disk_full_answers_a700_then_recovers(daemon_factory, sim, small_fs):
     files, rows = sim
     daemon = fs_daemon(daemon_factory, "full", small_fs).start()

@@ -289,6 +289,7 @@ def copy_of(daemon, tmp_path, name):
     return path
 
 
+@pytest.mark.sqlite_only("rescores a copy of the SQLite file made with its backup API")
 def test_rescore_under_another_policy_keeps_summaries_exact(imported, tmp_path):
     """`mitilog rescore` under a stricter policy (a lower TI ceiling): new
     findings, the old ones superseded, the new policy's measurements; the
@@ -325,6 +326,7 @@ def test_rescore_under_another_policy_keeps_summaries_exact(imported, tmp_path):
         db.close()
 
 
+@pytest.mark.sqlite_only("edits a copy of the SQLite file made with its backup API")
 def test_findings_filter_matches_a_full_scan(imported, tmp_path):
     """findings.sql (candidates by start time, through findings_period)
     returns what a full scan of findings does, superseded findings and

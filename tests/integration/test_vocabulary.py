@@ -10,7 +10,6 @@ times at or above with a query of the exam timeline written here.
 """
 import configparser
 import os
-import sqlite3
 
 import pytest
 
@@ -142,7 +141,7 @@ def test_changed_ladder_is_recomputed(imported):
         exams = db.execute("SELECT count(*) FROM exams").fetchone()[0]
     assert len(before) == exams * len(ladder)
     imported.stop()
-    db = sqlite3.connect(imported.database)
+    db = imported.db(write=True)
     db.execute("DELETE FROM ti_thresholds WHERE threshold = ?", (ladder[-1],))
     db.execute("DELETE FROM exam_time_at_or_above")
     db.execute("UPDATE mode_names SET mode = 'b-mode' WHERE rank = 0")

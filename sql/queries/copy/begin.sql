@@ -1,0 +1,2 @@
+-- One transaction per table copied.
+BEGIN;

@@ -1,0 +1,2 @@
+-- The table's rows are in.
+COMMIT;

@@ -1,0 +1,2 @@
+-- The planner's statistics of the tables just filled.
+ANALYZE;

@@ -1,0 +1,2 @@
+-- The table's copy failed: none of its rows stay.
+ROLLBACK;
