@@ -6,6 +6,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <time.h>
 #include <unistd.h>
 
 #include "config/config_site.h"
@@ -38,6 +39,7 @@ struct ingest {
     uint64_t quarantine_max_bytes;   /* [storage] quarantine_max_bytes */
     unsigned quarantine_max_files;   /* [storage] quarantine_max_files */
     pthread_mutex_t quarantine_lock; /* one association trims at a time */
+    metrics *metrics;                /* borrowed; NULL: nothing reported */
 };
 
 /* folder/00 .. folder/ff, so that writing a copy needs no mkdir. */
@@ -159,6 +161,21 @@ void ingest_free(ingest *ingest)
 }
 
 const ext_site_rules *ingest_site_rules(const ingest *ingest) { return &ingest->rules; }
+
+void ingest_set_metrics(ingest *ingest, metrics *metrics)
+{
+    ingest->metrics = metrics;
+    ingest_exams_set_metrics(&ingest->exams, metrics);
+    ingest_reading_set_metrics(&ingest->reading, metrics);
+}
+
+/* A clock for durations: seconds, monotonic. */
+static double ingest_monotonic_seconds(void)
+{
+    struct timespec now;
+    clock_gettime(CLOCK_MONOTONIC, &now);
+    return (double)now.tv_sec + (double)now.tv_nsec / 1e9;
+}
 
 mitilog_status ingest_set_policy(ingest *ingest, rules_policy *policy, mitilog_error *error)
 {
@@ -376,6 +393,7 @@ typedef struct reading_plan {
     store_reading_request request;
     char path[PATH_SIZE];
     char reason[MITILOG_ERROR_TEXT_SIZE + 64];
+    metrics_pixel_refusal refusal; /* with not_read_reason: its kind */
 } reading_plan;
 
 /* Decides whether the object is read and, if so, which file the worker
@@ -395,6 +413,7 @@ static void plan_reading(ingest *ingest, const ingest_source *source, const dcm_
     long long bytes = stat(source->path, &info) == 0 ? (long long)info.st_size : 0;
     if (!ingest_reading_reserve(&ingest->reading, bytes, plan->reason, sizeof plan->reason)) {
         plan->request.not_read_reason = plan->reason;
+        plan->refusal = METRICS_PIXEL_QUEUE_FULL;
         return;
     }
     plan->reserved = 1;
@@ -418,6 +437,7 @@ static void plan_reading(ingest *ingest, const ingest_source *source, const dcm_
         snprintf(plan->reason, sizeof plan->reason, "the object could not be kept for reading: %s",
                  error.text);
         plan->request.not_read_reason = plan->reason;
+        plan->refusal = METRICS_PIXEL_NOT_KEPT;
         plan->request.path = NULL;
     }
 }
@@ -508,6 +528,7 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
     memset(&plan, 0, sizeof plan);
     long long instance_id = 0;
     char *stale_spool = NULL;
+    double commit_started = ingest_monotonic_seconds();
     if (record.calling_ae_title == NULL) {
         mitilog_error_set(reason, MITILOG_ERROR_MEMORY, "out of memory");
     } else if (retain(ingest, object, source, record.sop_instance_uid, &header_bytes, &header_size,
@@ -523,15 +544,18 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
         cancel_reading(ingest, &plan);
     } else {
         outcome = put == STORE_PUT_REPLACED ? INGEST_OUTCOME_REPLACED : INGEST_OUTCOME_STORED;
+        metrics_commit_observed(ingest->metrics, ingest_monotonic_seconds() - commit_started);
         if (stale_spool != NULL)
             unlink(stale_spool); /* the older receipt's copy, no longer queued */
         if (plan.wanted && plan.request.not_read_reason == NULL)
             ingest_reading_push(&ingest->reading, instance_id, record.sop_instance_uid,
                                 record.study_instance_uid, plan.request.path, plan.request.owned,
                                 plan.request.bytes);
-        else if (plan.wanted)
+        else if (plan.wanted) {
+            metrics_pixel_refused(ingest->metrics, plan.refusal);
             log_warning("object %s: pixel values not read: %s", record.sop_instance_uid,
                         plan.request.not_read_reason);
+        }
         ingest_exams_mark(&ingest->exams, record.study_instance_uid);
         log_debug("object %s stored (%s)", record.sop_instance_uid,
                   put == STORE_PUT_REPLACED ? "replaced" : "new");

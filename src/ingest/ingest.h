@@ -19,6 +19,7 @@
 #include "config/config.h"
 #include "dicom/dcm.h"
 #include "extract/ext.h"
+#include "metrics/metrics.h"
 #include "rules/rules.h"
 #include "store/store.h"
 #include "util/status.h"
@@ -57,6 +58,12 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
 /* Waits until the exam records of every study touched so far have been
  * rebuilt (the exam worker, ingest_exam.c). ingest_free() also drains. */
 void ingest_flush(ingest *ingest);
+
+/* Reports into metrics (borrowed; it must outlive the ingest) from now
+ * on: commit latency, pixel reading outcomes and queue depths. Call it
+ * before any object is handed in (serve does, before the receiver
+ * starts). */
+void ingest_set_metrics(ingest *ingest, metrics *metrics);
 
 /* The site rules the ingest was created with (borrowed). */
 const struct ext_site_rules *ingest_site_rules(const ingest *ingest);

@@ -306,6 +306,7 @@ static void *ingest_exams_run(void *argument)
         }
         char *key = study >= 0 ? ingest_pending_take(&exams->studies, (size_t)study)
                                : ingest_pending_take(&exams->days, (size_t)day);
+        metrics_queue_set(exams->metrics, METRICS_QUEUE_EXAM_REBUILD, exams->studies.count);
         exams->busy = 1;
         pthread_mutex_unlock(&exams->lock);
         if (study >= 0)
@@ -346,6 +347,7 @@ void ingest_exams_mark(ingest_exams *exams, const char *study_instance_uid)
         return;
     pthread_mutex_lock(&exams->lock);
     int added = ingest_pending_mark(&exams->studies, study_instance_uid, ingest_clock_now());
+    metrics_queue_set(exams->metrics, METRICS_QUEUE_EXAM_REBUILD, exams->studies.count);
     /* Only a new study can be due before the worker's next wake-up (a
      * further mark of a waiting one only delays it): waking the worker
      * for every image cost a context switch per object. */
@@ -354,6 +356,16 @@ void ingest_exams_mark(ingest_exams *exams, const char *study_instance_uid)
     pthread_mutex_unlock(&exams->lock);
     if (added < 0)
         log_error("study %s: out of memory, exam record not rebuilt", study_instance_uid);
+}
+
+void ingest_exams_set_metrics(ingest_exams *exams, metrics *metrics)
+{
+    if (!exams->started)
+        return;
+    pthread_mutex_lock(&exams->lock);
+    exams->metrics = metrics;
+    metrics_queue_set(metrics, METRICS_QUEUE_EXAM_REBUILD, exams->studies.count);
+    pthread_mutex_unlock(&exams->lock);
 }
 
 void ingest_exams_flush(ingest_exams *exams)

@@ -14,6 +14,7 @@
 #include <pthread.h>
 
 #include "extract/ext_site.h"
+#include "metrics/metrics.h"
 #include "rules/rules.h"
 #include "store/store.h"
 
@@ -49,6 +50,7 @@ typedef struct ingest_exams {
     pthread_mutex_t policy_lock;
     ingest_policy_handle *policy; /* current; NULL: exams not evaluated */
     double next_sweep;            /* ingest_clock_now() of the next sweep */
+    metrics *metrics;             /* under lock; NULL: nothing reported */
 } ingest_exams;
 
 /* The current policy, held until ingest_exams_release_policy (NULL: none). */
@@ -63,6 +65,8 @@ mitilog_status ingest_exams_start(ingest_exams *exams, store *store, const ext_s
  * Once rebuilt, its days are queued in turn, so the day-level rules run
  * once per settled day, not once per study. */
 void ingest_exams_mark(ingest_exams *exams, const char *study_instance_uid);
+/* Reports the rebuild queue's depth into metrics (borrowed) from now on. */
+void ingest_exams_set_metrics(ingest_exams *exams, metrics *metrics);
 /* Waits until every queued study has been rebuilt. */
 void ingest_exams_flush(ingest_exams *exams);
 /* Flushes, stops and joins the worker. */

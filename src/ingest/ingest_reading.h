@@ -61,6 +61,8 @@ typedef struct ingest_reading {
     unsigned busy; /* workers reading one now          */
     int stopping;
     unsigned long read_count, not_read_count, full_count;
+    size_t waiting;   /* items in head..tail                 */
+    metrics *metrics; /* under lock; NULL: nothing reported   */
 
     pthread_rwlock_t profiles_lock; /* profiles: read by workers and
                                        * receivers, replaced on reload   */
@@ -85,6 +87,9 @@ mitilog_status ingest_reading_start(ingest_reading *reading, const config *confi
 /* Stops the workers after the object each is reading; what is still
  * queued stays in the database for the next start. */
 void ingest_reading_stop(ingest_reading *reading);
+/* Reports reading outcomes and the queue's depth into metrics (borrowed)
+ * from now on. */
+void ingest_reading_set_metrics(ingest_reading *reading, metrics *metrics);
 /* Waits until nothing is queued or being read. */
 void ingest_reading_flush(ingest_reading *reading);
 
