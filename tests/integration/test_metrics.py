@@ -250,3 +250,23 @@ def test_metrics_stay_open_when_a_login_is_required(daemon_factory, tmp_path):
     status, _, _ = request(daemon.http_port, ca, "/healthz")
     assert status == 200
     daemon.allowed_error_patterns.append(r"http: ")  # MHD logs failed TLS handshakes
+
+
+@pytest.mark.skipif(PROMTOOL is None, reason="promtool (Debian's prometheus) not installed")
+def test_the_documented_configuration_is_valid(tmp_path):
+    """The copy-paste blocks of docs/metrics.md: two scrape configurations
+    and a rules file, checked by promtool check config / check rules."""
+    with open(os.path.join(REPO, "docs", "metrics.md")) as f:
+        blocks = re.findall(r"```yaml\n(.*?)```", f.read(), re.S)
+    configs = [b for b in blocks if b.startswith("scrape_configs:")]
+    rules = [b for b in blocks if b.startswith("groups:")]
+    assert len(configs) == 2 and len(rules) == 1
+    rules_path = tmp_path / "mitilog-rules.yml"
+    rules_path.write_text(rules[0])
+    result = run([PROMTOOL, "check", "rules", str(rules_path)])
+    assert result.returncode == 0, result.stdout + result.stderr
+    for n, block in enumerate(configs):
+        path = tmp_path / ("prometheus-%d.yml" % n)
+        path.write_text(block + "rule_files:\n  - %s\n" % rules_path)
+        result = run([PROMTOOL, "check", "config", str(path)])
+        assert result.returncode == 0, result.stdout + result.stderr
