@@ -39,7 +39,7 @@ struct ingest {
     uint64_t quarantine_max_bytes;   /* [storage] quarantine_max_bytes */
     unsigned quarantine_max_files;   /* [storage] quarantine_max_files */
     pthread_mutex_t quarantine_lock; /* one association trims at a time */
-    metrics *metrics;                /* borrowed; NULL: nothing reported */
+    metrics *metrics;                /* borrowed, set at creation; NULL: none */
 };
 
 /* folder/00 .. folder/ff, so that writing a copy needs no mkdir. */
@@ -57,10 +57,17 @@ static mitilog_status ingest_make_subfolders(const char *folder, mitilog_error *
 
 mitilog_status ingest_create(const config *config, store *store, ingest **out, mitilog_error *error)
 {
+    return ingest_create_with_metrics(config, store, NULL, out, error);
+}
+
+mitilog_status ingest_create_with_metrics(const config *config, store *store, metrics *metrics,
+                                          ingest **out, mitilog_error *error)
+{
     ingest *created = calloc(1, sizeof *created);
     if (created == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
     created->store = store;
+    created->metrics = metrics;
     created->sr_depth_limit = config->sr_depth_limit > 0 ? config->sr_depth_limit : SR_DEPTH_LIMIT;
     created->quarantine_max_bytes = config->quarantine_max_bytes;
     created->quarantine_max_files = config->quarantine_max_files;
@@ -99,9 +106,10 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out, m
                 (dcm_private_request){preset->group, preset->element, preset->private_creator};
     }
     if (status == MITILOG_OK)
-        status = ingest_exams_start(&created->exams, store, &created->rules, error);
+        status = ingest_exams_start(&created->exams, store, &created->rules, metrics, error);
     if (status == MITILOG_OK) {
-        status = ingest_reading_start(&created->reading, config, store, &created->exams, error);
+        status =
+            ingest_reading_start(&created->reading, config, store, &created->exams, metrics, error);
         if (status != MITILOG_OK)
             ingest_exams_stop(&created->exams);
     }
@@ -161,13 +169,6 @@ void ingest_free(ingest *ingest)
 }
 
 const ext_site_rules *ingest_site_rules(const ingest *ingest) { return &ingest->rules; }
-
-void ingest_set_metrics(ingest *ingest, metrics *metrics)
-{
-    ingest->metrics = metrics;
-    ingest_exams_set_metrics(&ingest->exams, metrics);
-    ingest_reading_set_metrics(&ingest->reading, metrics);
-}
 
 /* A clock for durations: seconds, monotonic. */
 static double ingest_monotonic_seconds(void)

@@ -49,6 +49,13 @@ typedef struct ingest_source {
 /* Creates the data folders (mode 0750) from the configuration. */
 mitilog_status ingest_create(const config *config, store *store, ingest **out,
                              mitilog_error *error);
+/* The same, reporting into metrics (borrowed; it must outlive the
+ * ingest; NULL: nothing reported) from the start, so that what the
+ * workers do before the first object arrives (a queue left by an earlier
+ * run) is counted too: commit latency, pixel reading outcomes and queue
+ * depths. `serve` uses it. */
+mitilog_status ingest_create_with_metrics(const config *config, store *store, metrics *metrics,
+                                          ingest **out, mitilog_error *error);
 void ingest_free(ingest *ingest);
 
 /* Runs one object through the pipeline. reason receives the cause of a
@@ -58,12 +65,6 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
 /* Waits until the exam records of every study touched so far have been
  * rebuilt (the exam worker, ingest_exam.c). ingest_free() also drains. */
 void ingest_flush(ingest *ingest);
-
-/* Reports into metrics (borrowed; it must outlive the ingest) from now
- * on: commit latency, pixel reading outcomes and queue depths. Call it
- * before any object is handed in (serve does, before the receiver
- * starts). */
-void ingest_set_metrics(ingest *ingest, metrics *metrics);
 
 /* The site rules the ingest was created with (borrowed). */
 const struct ext_site_rules *ingest_site_rules(const ingest *ingest);

@@ -323,10 +323,11 @@ static void *ingest_exams_run(void *argument)
 }
 
 mitilog_status ingest_exams_start(ingest_exams *exams, store *store, const ext_site_rules *rules,
-                                  mitilog_error *error)
+                                  metrics *metrics, mitilog_error *error)
 {
     memset(exams, 0, sizeof *exams);
     exams->store = store;
+    exams->metrics = metrics;
     exams->rules = rules;
     pthread_mutex_init(&exams->lock, NULL);
     pthread_mutex_init(&exams->policy_lock, NULL);
@@ -356,16 +357,6 @@ void ingest_exams_mark(ingest_exams *exams, const char *study_instance_uid)
     pthread_mutex_unlock(&exams->lock);
     if (added < 0)
         log_error("study %s: out of memory, exam record not rebuilt", study_instance_uid);
-}
-
-void ingest_exams_set_metrics(ingest_exams *exams, metrics *metrics)
-{
-    if (!exams->started)
-        return;
-    pthread_mutex_lock(&exams->lock);
-    exams->metrics = metrics;
-    metrics_queue_set(metrics, METRICS_QUEUE_EXAM_REBUILD, exams->studies.count);
-    pthread_mutex_unlock(&exams->lock);
 }
 
 void ingest_exams_flush(ingest_exams *exams)

@@ -581,10 +581,11 @@ static void remove_orphans(ingest_reading *reading)
 }
 
 mitilog_status ingest_reading_start(ingest_reading *reading, const config *config, store *store,
-                                    ingest_exams *exams, mitilog_error *error)
+                                    ingest_exams *exams, metrics *metrics, mitilog_error *error)
 {
     memset(reading, 0, sizeof *reading);
     reading->store = store;
+    reading->metrics = metrics;
     reading->exams = exams;
     reading->cine_frames = config->reading_cine_frames > 0 ? config->reading_cine_frames : 3;
     if (reading->cine_frames > 64)
@@ -629,6 +630,7 @@ mitilog_status ingest_reading_start(ingest_reading *reading, const config *confi
         reading->tail = item;
     }
     store_reading_entries_free(entries, count);
+    metrics_queue_set(metrics, METRICS_QUEUE_PIXEL_READING, reading->waiting);
     if (status == MITILOG_OK) {
         remove_orphans(reading);
         if (count > 0)
@@ -654,16 +656,6 @@ mitilog_status ingest_reading_start(ingest_reading *reading, const config *confi
     if (status != MITILOG_OK)
         ingest_reading_stop(reading);
     return status;
-}
-
-void ingest_reading_set_metrics(ingest_reading *reading, metrics *metrics)
-{
-    if (reading == NULL || !reading->started)
-        return;
-    pthread_mutex_lock(&reading->lock);
-    reading->metrics = metrics;
-    metrics_queue_set(metrics, METRICS_QUEUE_PIXEL_READING, reading->waiting);
-    pthread_mutex_unlock(&reading->lock);
 }
 
 void ingest_reading_flush(ingest_reading *reading)

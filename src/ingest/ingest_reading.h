@@ -62,7 +62,7 @@ typedef struct ingest_reading {
     int stopping;
     unsigned long read_count, not_read_count, full_count;
     size_t waiting;   /* items in head..tail                 */
-    metrics *metrics; /* under lock; NULL: nothing reported   */
+    metrics *metrics; /* set at start; NULL: nothing reported */
 
     pthread_rwlock_t profiles_lock; /* profiles: read by workers and
                                        * receivers, replaced on reload   */
@@ -81,15 +81,12 @@ typedef struct ingest_reading {
 
 /* Creates the spool folder, loads the active profiles, takes back the
  * queue left by an earlier run (and deletes spool files no queue row
- * names), starts the workers. */
+ * names), starts the workers. metrics: borrowed, NULL: nothing reported. */
 mitilog_status ingest_reading_start(ingest_reading *reading, const config *config, store *store,
-                                    ingest_exams *exams, mitilog_error *error);
+                                    ingest_exams *exams, metrics *metrics, mitilog_error *error);
 /* Stops the workers after the object each is reading; what is still
  * queued stays in the database for the next start. */
 void ingest_reading_stop(ingest_reading *reading);
-/* Reports reading outcomes and the queue's depth into metrics (borrowed)
- * from now on. */
-void ingest_reading_set_metrics(ingest_reading *reading, metrics *metrics);
 /* Waits until nothing is queued or being read. */
 void ingest_reading_flush(ingest_reading *reading);
 

@@ -27,6 +27,7 @@ import pytest
 
 from conftest import AE_TITLE, REPO, echoscu, run
 from test_https import make_certificates, password_line, request
+from test_reading import add_reading_section, learn_profile, wait_until_read, write_screen
 
 sys.path.insert(0, os.path.join(REPO, "tests", "fixtures"))
 import make_fixtures  # noqa: E402  (the fixtures' own writer of US objects)
@@ -212,6 +213,47 @@ def test_metrics_count_what_was_sent(daemon_factory, tmp_path):
     # promtool: parsed, and no lint problem (naming, units, _total)
     status, output = promtool_check(body)
     assert status == 0 and output.strip() == "", output
+
+
+def test_pixel_reading_is_counted(daemon_factory, tmp_path):
+    """Screens of a device with an active profile (tests/fixtures/
+    make_screens.py draws them; the profile is learned as in
+    test_reading.py): with no reading worker and a queue bounded at 2
+    objects, 4 screens leave 2 waiting and 2 refused for a full queue
+    (docs/reading.md); after a restart with a worker the 2 waiting are
+    read."""
+    daemon = daemon_factory("pixels")
+    learn_profile(daemon, str(tmp_path))
+    add_reading_section(daemon, workers=0, queue_objects=2)
+    daemon.start()
+    drawn = dict(mi="0.9", tis="0.4", tib="1.2")
+    paths = [write_screen(str(tmp_path), "queued_%d" % i, "pixels_only", drawn)
+             for i in range(4)]
+    result = daemon.storescu(paths, options=["-xe"])
+    assert result.returncode == 0, result.stderr
+    samples = parse(scrape(daemon)[1])
+    assert value(samples, "mitilog_queue_items", queue="pixel_reading") == 2
+    assert value(samples, "mitilog_pixel_objects_refused_total", reason="queue_full") == 2
+    assert value(samples, "mitilog_pixel_objects_read_total") == 0
+    with daemon.db() as db:
+        not_read = db.execute("SELECT count(*) FROM screen_readings WHERE state = 'not_read'"
+                              ).fetchone()[0]
+    assert not_read == 2
+
+    daemon.stop()
+    with open(daemon.config) as f:
+        text = f.read().replace("workers = 0", "workers = 1")
+    with open(daemon.config, "w") as f:
+        f.write(text)
+    daemon.returncode = None
+    daemon.start()
+    wait_until_read(daemon, 4)
+    samples = parse(scrape(daemon)[1])
+    # the two left queued are read after the restart; counters start at 0
+    assert value(samples, "mitilog_pixel_objects_read_total") == 2
+    assert value(samples, "mitilog_queue_items", queue="pixel_reading") == 0
+    assert sum(v for (name, _), v in samples.items()
+               if name == "mitilog_pixel_objects_refused_total") == 0
 
 
 def value_of_version(samples):
