@@ -28,6 +28,8 @@ import pytest
 from conftest import AE_TITLE, REPO, echoscu, run
 from test_https import make_certificates, password_line, request
 from test_reading import add_reading_section, learn_profile, wait_until_read, write_screen
+from test_store_checks import SC_IMAGE, dataset_bytes
+from test_store_checks import store as raw_store
 
 sys.path.insert(0, os.path.join(REPO, "tests", "fixtures"))
 import make_fixtures  # noqa: E402  (the fixtures' own writer of US objects)
@@ -140,6 +142,10 @@ def test_metrics_count_what_was_sent(daemon_factory, tmp_path):
     result = daemon.storescu([bad], options=["-xe"])
     # storescu reports the failure status (C000) of the refused object
     assert "C000" in result.stdout + result.stderr or result.returncode != 0
+    # a C-STORE whose data set is not the class its command announces,
+    # sent by the raw client (storescu always sends a file's own class)
+    mismatched = dataset_bytes("2.25.93031", sop_class_uid=SC_IMAGE)
+    assert raw_store(daemon.dicom_port, "2.25.93031", mismatched) == 0xA900
     refused = echoscu(daemon.dicom_port, called="NOT-MITILOG")
     assert refused.returncode != 0  # the called AE title is not ours
     accepted = echoscu(daemon.dicom_port)
@@ -153,19 +159,22 @@ def test_metrics_count_what_was_sent(daemon_factory, tmp_path):
     def delta(name, **labels):
         return value(after, name, **labels) - (value(before, name, **labels) or 0)
 
-    # What this test sent: three associations accepted (two storescu, one
-    # echoscu), one refused for its called AE title (PS3.8 7.1.1.9), one
-    # object answered 0000 and one C000 (PS3.4 B.2.3).
-    assert delta("mitilog_associations_accepted_total") == 3
+    # What this test sent: four associations accepted (two storescu, the
+    # raw client, one echoscu), one refused for its called AE title (PS3.8
+    # 7.1.1.9), one object answered 0000, one C000 and one A900 (PS3.4
+    # B.2.3).
+    assert delta("mitilog_associations_accepted_total") == 4
     assert delta("mitilog_associations_refused_total", reason="called_ae_title") == 1
     for reason in ("calling_ae_title", "no_presentation_context", "too_many_associations",
                    "negotiation_limit", "invalid_request", "request_timeout"):
         assert delta("mitilog_associations_refused_total", reason=reason) == 0, reason
     assert delta("mitilog_objects_received_total", status="0000") == 1
     assert delta("mitilog_objects_received_total", status="C000") == 1
+    assert delta("mitilog_objects_received_total", status="A900") == 1
     assert delta("mitilog_objects_received_total", status="A700") == 0
-    # both data sets went over the wire as they are in their files
-    assert delta("mitilog_received_bytes_total") == data_set_bytes(good) + data_set_bytes(bad)
+    # the data sets went over the wire as they are in their files
+    assert delta("mitilog_received_bytes_total") == (
+        data_set_bytes(good) + data_set_bytes(bad) + len(mismatched))
     last = value(after, "mitilog_last_object_received_timestamp_seconds")
     # printed to the millisecond (truncated)
     assert sent_at - 0.001 <= last <= received_by
