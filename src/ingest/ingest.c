@@ -529,13 +529,14 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
     memset(&plan, 0, sizeof plan);
     long long instance_id = 0;
     char *stale_spool = NULL;
-    double commit_started = ingest_monotonic_seconds();
+    double commit_started = 0; /* when the write was requested */
     if (record.calling_ae_title == NULL) {
         mitilog_error_set(reason, MITILOG_ERROR_MEMORY, "out of memory");
     } else if (retain(ingest, object, source, record.sop_instance_uid, &header_bytes, &header_size,
                       reason) != MITILOG_OK) {
         log_error("object %s: cannot keep its copy: %s", record.sop_instance_uid, reason->text);
     } else if (plan_reading(ingest, source, &facts, &record, &plan),
+               commit_started = ingest_monotonic_seconds(),
                store_put_instance_read(
                    ingest->store, &record,
                    header_bytes != NULL ? &(store_bytes){header_bytes, header_size} : NULL,
