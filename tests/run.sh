@@ -105,7 +105,7 @@ fi
 if [ "${MITILOG_BENCH:-1}" != 0 ] && [ -n "${built[build]:-}" ]; then
   bench_tiny() {
     local script
-    for script in ingest parse memory query scale hostile screen reading login screen_simulated; do
+    for script in ingest parse memory query scale hostile screen reading login screen_simulated metrics; do
       echo "--- bench/$script.py --tiny"
       MITILOG="$top/build/mitilog" "$python" "$top/bench/$script.py" --tiny || return 1
     done
