@@ -384,7 +384,7 @@ static void metrics_write_database(metrics_text *out, const metrics_database *da
         return;
     if (database->has_size) {
         metrics_family(out, "mitilog_database_size_bytes", "gauge",
-                       "Size of the database file and its write-ahead log.");
+                       "Size of the database in bytes, by the database engine's own measure.");
         metrics_sample_count(out, "mitilog_database_size_bytes", NULL, NULL, database->size_bytes);
     }
     metrics_family(out, "mitilog_findings", "gauge",

@@ -99,7 +99,7 @@ typedef struct metrics_finding_count {
 typedef struct metrics_database {
     int readable;                    /* 0: the query failed; nothing below is set */
     int has_size;                    /* 0: the size could not be read             */
-    uint64_t size_bytes;             /* database file and its write-ahead log     */
+    uint64_t size_bytes;             /* the engine's measure (store_metrics.c)   */
     metrics_finding_count *findings; /* current (not superseded) findings */
     size_t finding_count;
 } metrics_database;

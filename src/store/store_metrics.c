@@ -1,38 +1,32 @@
 /*
  * store_metrics.c - the database's figures for GET /metrics
  * (store_metrics.h): one grouped count of the current findings and the
- * size of the database's files. Read connection, under reader_lock.
+ * database's size. Read connection, under reader_lock.
  */
 #include "store/store_metrics.h"
 
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
 
 #include "store/store_internal.h"
 
 static const char store_metrics_findings_sql[] = "queries/metrics/findings_by_rule.sql";
+static const char store_metrics_size_sql[] = "queries/metrics/database_size.sql";
 
-/* The size of the main database file and of its write-ahead log (the WAL
- * holds committed pages until a checkpoint: both are disk the database
- * takes). 0 when the main file cannot be seen (an in-memory database). */
+/* The database's size in bytes by its engine's own measure (the SQL file
+ * says which); 0 when it cannot be read (the series is then left out). */
 static int store_metrics_size(store *st, uint64_t *bytes)
 {
-    const char *path = sqlite3_db_filename(st->reader, "main");
-    struct stat info;
-    if (path == NULL || path[0] == '\0' || stat(path, &info) != 0)
-        return 0;
-    *bytes = (uint64_t)info.st_size;
-    size_t length = strlen(path);
-    char *wal = malloc(length + 5);
-    if (wal != NULL) {
-        memcpy(wal, path, length);
-        memcpy(wal + length, "-wal", 5);
-        if (stat(wal, &info) == 0)
-            *bytes += (uint64_t)info.st_size;
-        free(wal);
+    sqlite3_stmt *statement = NULL;
+    int found = 0;
+    if (store_cached_statement(&st->reader_cache, st->reader, store_metrics_size_sql, &statement,
+                               NULL) == MITILOG_OK &&
+        sqlite3_step(statement) == SQLITE_ROW && sqlite3_column_int64(statement, 0) >= 0) {
+        *bytes = (uint64_t)sqlite3_column_int64(statement, 0);
+        found = 1;
     }
-    return 1;
+    store_release(statement);
+    return found;
 }
 
 /* Appends the current row to database->findings; SQLITE_NOMEM when it
