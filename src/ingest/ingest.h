@@ -22,6 +22,7 @@
 #include "metrics/metrics.h"
 #include "rules/rules.h"
 #include "store/store.h"
+#include "store/store_findings.h"
 #include "util/status.h"
 
 typedef struct ingest ingest;

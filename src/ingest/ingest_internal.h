@@ -17,6 +17,7 @@
 #include "metrics/metrics.h"
 #include "rules/rules.h"
 #include "store/store.h"
+#include "store/store_exams.h"
 
 /* A policy shared by the worker and whoever swaps it (SIGHUP): freed when
  * the last holder releases it (ingest_rules_handle_release). */

@@ -1,7 +1,8 @@
 /*
  * store_metrics.c - the database's figures for GET /metrics
  * (store_metrics.h): one grouped count of the current findings and the
- * database's size. Read connection, under reader_lock.
+ * database's size, through the statement layer (store_statement.h) on the
+ * read link, under reader_lock; the SQL is in sql/queries/metrics/.
  */
 #include "store/store_metrics.h"
 
@@ -17,39 +18,36 @@ static const char store_metrics_size_sql[] = "queries/metrics/database_size.sql"
  * says which); 0 when it cannot be read (the series is then left out). */
 static int store_metrics_size(store *st, uint64_t *bytes)
 {
-    sqlite3_stmt *statement = NULL;
-    int found = 0;
-    if (store_cached_statement(&st->reader_cache, st->reader, store_metrics_size_sql, &statement,
-                               NULL) == MITILOG_OK &&
-        sqlite3_step(statement) == SQLITE_ROW && sqlite3_column_int64(statement, 0) >= 0) {
-        *bytes = (uint64_t)sqlite3_column_int64(statement, 0);
-        found = 1;
-    }
-    store_release(statement);
+    store_query query;
+    store_query_begin(&query, &st->reader, store_metrics_size_sql);
+    int found = store_query_step(&query) && !store_column_is_null(&query, 0) &&
+                store_column_integer(&query, 0) >= 0;
+    if (found)
+        *bytes = (uint64_t)store_column_integer(&query, 0);
+    store_query_end(&query);
     return found;
 }
 
-/* Appends the current row to database->findings; SQLITE_NOMEM when it
- * cannot. */
-static int store_metrics_row(sqlite3_stmt *statement, metrics_database *database, size_t *capacity)
+/* Appends the current row to database->findings; 0 when out of memory. */
+static int store_metrics_row(store_query *query, metrics_database *database, size_t *capacity)
 {
     if (database->finding_count == *capacity) {
         size_t grown = *capacity != 0 ? *capacity * 2 : 16;
         metrics_finding_count *rows = realloc(database->findings, grown * sizeof *rows);
         if (rows == NULL)
-            return SQLITE_NOMEM;
+            return 0;
         database->findings = rows;
         *capacity = grown;
     }
-    const unsigned char *rule = sqlite3_column_text(statement, 0);
-    const unsigned char *severity = sqlite3_column_text(statement, 1);
+    const char *rule = store_column_text(query, 0);
+    const char *severity = store_column_text(query, 1);
     metrics_finding_count *row = &database->findings[database->finding_count];
-    row->rule_id = strdup(rule != NULL ? (const char *)rule : "");
-    row->severity = strdup(severity != NULL ? (const char *)severity : "");
-    sqlite3_int64 count = sqlite3_column_int64(statement, 2);
+    row->rule_id = strdup(rule != NULL ? rule : "");
+    row->severity = strdup(severity != NULL ? severity : "");
+    long long count = store_column_integer(query, 2);
     row->count = count > 0 ? (uint64_t)count : 0;
     database->finding_count++;
-    return row->rule_id != NULL && row->severity != NULL ? SQLITE_OK : SQLITE_NOMEM;
+    return row->rule_id != NULL && row->severity != NULL;
 }
 
 mitilog_status store_metrics_read(store *st, metrics_database *database, mitilog_error *error)
@@ -59,24 +57,19 @@ mitilog_status store_metrics_read(store *st, metrics_database *database, mitilog
                                  "store_metrics_read: no store or result");
     memset(database, 0, sizeof *database);
     size_t capacity = 0;
+    int out_of_memory = 0;
     pthread_mutex_lock(&st->reader_lock);
-    sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_cached_statement(&st->reader_cache, st->reader,
-                                                   store_metrics_findings_sql, &statement, error);
-    if (status == MITILOG_OK) {
-        int rc;
-        while ((rc = sqlite3_step(statement)) == SQLITE_ROW) {
-            rc = store_metrics_row(statement, database, &capacity);
-            if (rc != SQLITE_OK)
-                break;
-        }
-        if (rc == SQLITE_NOMEM)
-            status = mitilog_error_set(error, MITILOG_ERROR_MEMORY,
-                                       "out of memory reading the findings' counts");
-        else if (rc != SQLITE_DONE)
-            status = store_sql_error(error, st->reader, store_metrics_findings_sql);
-    }
-    store_release(statement);
+    store_query query;
+    store_query_begin(&query, &st->reader, store_metrics_findings_sql);
+    while (!out_of_memory && store_query_step(&query))
+        out_of_memory = !store_metrics_row(&query, database, &capacity);
+    mitilog_status status = store_query_end(&query);
+    if (out_of_memory)
+        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY,
+                                   "out of memory reading the findings' counts");
+    else if (status != MITILOG_OK)
+        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "findings by rule: %s",
+                                   query.error.text);
     if (status == MITILOG_OK)
         database->has_size = store_metrics_size(st, &database->size_bytes);
     pthread_mutex_unlock(&st->reader_lock);
