@@ -27,6 +27,7 @@ import pytest
 
 from conftest import AE_TITLE, REPO, echoscu, run
 from test_https import make_certificates, password_line, request
+from test_negotiation import Dripper, echo_request, malformed_requests, wait_for
 from test_reading import add_reading_section, learn_profile, wait_until_read, write_screen
 from test_store_checks import SC_IMAGE, dataset_bytes
 from test_store_checks import store as raw_store
@@ -224,6 +225,44 @@ def test_metrics_count_what_was_sent(daemon_factory, tmp_path):
     # promtool: parsed, and no lint problem (naming, units, _total)
     status, output = promtool_check(body)
     assert status == 0 and output.strip() == "", output
+
+
+def test_refusals_are_counted_by_reason(daemon_factory):
+    """Hostile peers as in test_negotiation.py: three malformed
+    association requests (refused with A-ABORT before DCMTK parses them),
+    six connections dripping a request from one address with room for four
+    (two closed unread), and the four left cut at the 2 s deadline."""
+    daemon = daemon_factory("refusals", dicom=dict(
+        acse_timeout_seconds=2, max_negotiations_per_address=4)).start()
+    mark = daemon.mark()
+    before = parse(scrape(daemon)[1])
+    for name, pdu in malformed_requests().items():
+        with socket.create_connection(("127.0.0.1", daemon.dicom_port), timeout=30) as s:
+            s.sendall(pdu)
+            s.recv(64)  # the A-ABORT
+    drippers = [Dripper(daemon.dicom_port, "127.0.0.3", echo_request(), interval=1.0)
+                for _ in range(6)]
+    try:
+        for dripper in drippers:
+            dripper.start()
+        # a bound on a hang, not a measured time: all six end at the server
+        assert wait_for(lambda: all(d.closed_by_server.is_set() for d in drippers), 60)
+    finally:
+        for dripper in drippers:
+            dripper.stop()
+    daemon.allow_errors_since(mark)
+    after = parse(scrape(daemon)[1])
+
+    def delta(reason):
+        name = "mitilog_associations_refused_total"
+        return value(after, name, reason=reason) - value(before, name, reason=reason)
+
+    assert delta("invalid_request") == len(malformed_requests())
+    assert delta("negotiation_limit") == 2
+    assert delta("request_timeout") == 4
+    assert delta("called_ae_title") == 0
+    assert (value(after, "mitilog_associations_accepted_total")
+            == value(before, "mitilog_associations_accepted_total"))
 
 
 def test_pixel_reading_is_counted(daemon_factory, tmp_path):
