@@ -15,6 +15,7 @@
 #include "dicom/dcm.h"
 #include "http/http.h"
 #include "ingest/ingest.h"
+#include "metrics/metrics.h"
 #include "store/store.h"
 #include "store/store_findings.h"
 #include "util/log.h"
@@ -37,6 +38,7 @@ typedef struct serve_state {
     http_server *http;
     config_peer *peers;
     dcm_allowed_peer *allowed;
+    metrics *metrics; /* what every stage reports into; GET /metrics */
 } serve_state;
 
 static void serve_stop(serve_state *state)
@@ -49,6 +51,7 @@ static void serve_stop(serve_state *state)
         http_server_stop(state->http);
     ingest_free(state->ingest);
     store_close(state->store);
+    metrics_free(state->metrics); /* after every stage reporting into it */
     free(state->allowed);
     free(state->peers);
     config_free(&state->config);
@@ -77,7 +80,9 @@ static int serve_start(serve_state *state, mitilog_error *error)
                                  : STORE_DURABILITY_POWER_LOSS,
                              error) != MITILOG_OK)
         return -1;
-    if (ingest_create(config, state->store, &state->ingest, error) != MITILOG_OK)
+    if (metrics_create(&state->metrics, error) != MITILOG_OK ||
+        ingest_create_with_metrics(config, state->store, state->metrics, &state->ingest, error) !=
+            MITILOG_OK)
         return -1;
     /* After the store and ingest made their files and folders. */
     if (cli_identity_give(&identity, config->data_directory, error) != MITILOG_OK)
@@ -111,6 +116,7 @@ static int serve_start(serve_state *state, mitilog_error *error)
         .tls_ca_file = serve_optional(config->dicom_tls_ca_certificates),
         .max_object_bytes = config->max_object_bytes,
         .max_memory_in_flight_bytes = config->max_memory_in_flight_bytes,
+        .metrics = state->metrics,
     };
     if (dcm_server_create(&settings, ingest_store_handler, state->ingest, &state->dicom, error) !=
             MITILOG_OK ||
@@ -128,7 +134,8 @@ static int serve_start(serve_state *state, mitilog_error *error)
                                  ? config->http_max_connections_per_address
                                  : HTTP_SETTINGS_UNLIMITED,
                          .request_timeout_seconds = config->http_request_timeout_seconds,
-                         .institution = config->site_institution};
+                         .institution = config->site_institution,
+                         .metrics = state->metrics};
     if (http_server_start(&web, state->store, &state->http, error) != MITILOG_OK)
         return -1;
     /* Both ports are bound: root is no longer needed. */

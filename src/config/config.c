@@ -87,8 +87,8 @@ static const option options[] = {
     {"http", "tls_private_key", OPTION_STRING, FIELD(http_tls_private_key), "", 0, 0, NULL, 1,
      "PEM private key for HTTPS."},
     {"http", "password_file", OPTION_STRING, FIELD(http_password_file), "", 0, 0, NULL, 1,
-     "File of user:crypt-hash lines (mitilog passwd); set: every request but /healthz needs a "
-     "login. Needs HTTPS."},
+     "File of user:crypt-hash lines (mitilog passwd); set: every request but /healthz and "
+     "/metrics needs a login. Needs HTTPS."},
     {"http", "max_connections", OPTION_UNSIGNED, FIELD(http_max_connections), "256", 8, 4096, NULL,
      0, "Open HTTP connections of all clients together; more are closed at once."},
     {"http", "max_connections_per_address", OPTION_UNSIGNED,

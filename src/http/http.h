@@ -14,6 +14,7 @@
 #ifndef MITILOG_HTTP_H
 #define MITILOG_HTTP_H
 
+#include "metrics/metrics.h"
 #include "store/store.h"
 #include "util/status.h"
 
@@ -36,6 +37,9 @@ typedef struct http_settings {
     /* [site] institution, answered in /api/v1/stats; NULL or "": not set.
      * Copied at start. */
     const char *institution;
+    /* Served at GET /metrics with the store's figures (borrowed; it must
+     * outlive the server); NULL: /metrics answers 404. */
+    const metrics *metrics;
 } http_settings;
 
 /* max_connections_per_address value meaning "no per-address limit" (a

@@ -4,7 +4,7 @@
  * http_server.c  the daemon, dispatch by method and path, common headers,
  *                JSON and error responses;
  * http_parameters.c  the one checker of query parameters;
- * http_routes*.c  the JSON API (/healthz, /api/v1/...);
+ * http_routes*.c  the JSON API (/healthz, /api/v1/...) and /metrics;
  * http_guard.c   connection deadlines (slow clients);
  * http_throttle.c  login failures per address and per user;
  * http_routes_reviews.c  the review worklist, the review history and
@@ -53,9 +53,10 @@ struct http_server {
     http_throttle *throttle; /* failed logins; with auth only        */
     char *tls_certificate;   /* PEM text kept for MHD, NULL: HTTP    */
     char *tls_private_key;
-    http_guard *guard; /* request deadlines                    */
-    char csrf_key[65]; /* random, drawn at start: review tokens */
-    char *institution; /* [site] institution, NULL: not set    */
+    http_guard *guard;      /* request deadlines                    */
+    char csrf_key[65];      /* random, drawn at start: review tokens */
+    char *institution;      /* [site] institution, NULL: not set    */
+    const metrics *metrics; /* GET /metrics; NULL: not served     */
 };
 
 /* Who sent a request: user "" and role NULL when no login is set. */
@@ -133,6 +134,9 @@ int http_parse_instant(const char *text, char out[HTTP_INSTANT_SIZE]);
 /* http_routes.c: handles /healthz and /api/...; 0 if url is neither. */
 int http_route_api(http_server *server, struct MHD_Connection *connection, const char *url,
                    http_reply *reply);
+
+/* http_routes_metrics.c: GET /metrics; 0 if url is not it. */
+int http_route_metrics(http_server *server, const char *url, http_reply *reply);
 
 /* http_routes_findings.c: /api/v1/findings and /api/v1/policy; 0 if url
  * is neither. */

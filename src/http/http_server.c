@@ -297,7 +297,9 @@ static enum MHD_Result http_handle(void *context, struct MHD_Connection *connect
                                            header_bytes, HTTP_HEADERS_MAX));
     enum MHD_Result result = MHD_NO;
     http_identity identity = {"", NULL};
-    if (server->auth != NULL && strcmp(url, "/healthz") != 0 &&
+    /* The monitoring paths stay open, as documented in docs/security.md:
+     * they show counts, never patient data. */
+    if (server->auth != NULL && strcmp(url, "/healthz") != 0 && strcmp(url, "/metrics") != 0 &&
         !http_login_accepted(server, connection, &result, &identity))
         return result;
     if (strcmp(method, MHD_HTTP_METHOD_POST) == 0) {
@@ -318,7 +320,8 @@ static enum MHD_Result http_handle(void *context, struct MHD_Connection *connect
             MHD_add_response_header(reply.response, "Allow", "GET, HEAD");
         return http_queue(server, connection, reply);
     }
-    if (http_route_reviews(server, connection, url, &identity, &reply) ||
+    if (http_route_metrics(server, url, &reply) ||
+        http_route_reviews(server, connection, url, &identity, &reply) ||
         http_route_api(server, connection, url, &reply) || http_route_static(server, url, &reply))
         return http_queue(server, connection, reply);
     return http_queue(server, connection,
@@ -495,6 +498,7 @@ mitilog_status http_server_start(const http_settings *settings, store *st, http_
     if (server == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory starting HTTP");
     server->store = st;
+    server->metrics = settings->metrics;
     if (settings->institution != NULL && settings->institution[0] != '\0' &&
         (server->institution = strdup(settings->institution)) == NULL) {
         http_server_stop(server);

@@ -304,6 +304,7 @@ static void *ingest_exams_run(void *argument)
         }
         char *key = study >= 0 ? ingest_pending_take(&exams->studies, (size_t)study)
                                : ingest_pending_take(&exams->days, (size_t)day);
+        metrics_queue_set(exams->metrics, METRICS_QUEUE_EXAM_REBUILD, exams->studies.count);
         exams->busy = 1;
         pthread_mutex_unlock(&exams->lock);
         if (study >= 0)
@@ -320,10 +321,11 @@ static void *ingest_exams_run(void *argument)
 }
 
 mitilog_status ingest_exams_start(ingest_exams *exams, store *store, const ext_site_rules *rules,
-                                  mitilog_error *error)
+                                  metrics *metrics, mitilog_error *error)
 {
     memset(exams, 0, sizeof *exams);
     exams->store = store;
+    exams->metrics = metrics;
     exams->rules = rules;
     pthread_mutex_init(&exams->lock, NULL);
     pthread_mutex_init(&exams->policy_lock, NULL);
@@ -344,6 +346,7 @@ void ingest_exams_mark(ingest_exams *exams, const char *study_instance_uid)
         return;
     pthread_mutex_lock(&exams->lock);
     int added = ingest_pending_mark(&exams->studies, study_instance_uid, ingest_clock_now());
+    metrics_queue_set(exams->metrics, METRICS_QUEUE_EXAM_REBUILD, exams->studies.count);
     /* Only a new study can be due before the worker's next wake-up (a
      * further mark of a waiting one only delays it): waking the worker
      * for every image cost a context switch per object. */
