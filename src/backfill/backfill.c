@@ -268,7 +268,6 @@ static uint16_t backfill_on_retrieved(void *context, const dcm_retrieved *object
         pthread_mutex_unlock(&run->lock);
         return DCM_STATUS_SUCCESS;
     }
-    backfill_pace(run);
     ingest_source source = {object->spool_path,
                             1,
                             run->settings->source_ae_title,
@@ -277,7 +276,12 @@ static uint16_t backfill_on_retrieved(void *context, const dcm_retrieved *object
                             object->sop_instance_uid,
                             worker->index + 1};
     mitilog_error reason;
-    return backfill_count(run, worker, ingest_object(run->pipeline, &source, &reason));
+    uint16_t status = backfill_count(run, worker, ingest_object(run->pipeline, &source, &reason));
+    /* The wait comes after the commit, before the answer: the PACS sends
+     * the next object only then, and a run stopped while it waits has
+     * committed every object the PACS sent. */
+    backfill_pace(run);
+    return status;
 }
 
 /* Objects of a C-MOVE to the command's own listener (dcm_store_handler). */
@@ -305,7 +309,6 @@ static uint16_t backfill_on_moved(void *context, const dcm_received *object)
             return DCM_STATUS_SUCCESS;
         }
     }
-    backfill_pace(run);
     mitilog_error reason;
     ingest_source source = {object->spool_path,
                             1,
@@ -315,7 +318,9 @@ static uint16_t backfill_on_moved(void *context, const dcm_received *object)
                             object->affected_sop_instance_uid ? object->affected_sop_instance_uid
                                                               : "",
                             object->association_id};
-    return backfill_count(run, NULL, ingest_object(run->pipeline, &source, &reason));
+    uint16_t status = backfill_count(run, NULL, ingest_object(run->pipeline, &source, &reason));
+    backfill_pace(run); /* after the commit, as for C-GET */
+    return status;
 }
 
 /* ---- progress ----------------------------------------------------------- */
