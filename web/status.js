@@ -45,7 +45,7 @@ function backfillLine(b) {
   if (b.objects_per_minute !== null) parts.push(`${b.objects_per_minute.toFixed(1)} objects/min`);
   if (b.state === 'running' && b.seconds_left !== null) parts.push(`about ${b.seconds_left < 120 ? b.seconds_left + ' s' : Math.round(b.seconds_left / 60) + ' min'} left`);
   parts.push(`last progress ${b.updated_at}`);
-  return parts.join(', ') + (b.message ? ` (${b.message})` : '');
+  return parts.join(', ') + (b.message && b.message !== b.state ? ` (${b.message})` : '');
 }
 
 function table(id, head, rows) {
