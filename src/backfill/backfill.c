@@ -144,7 +144,7 @@ typedef struct backfill_run_state {
     store *store;
     ingest *pipeline;
     FILE *terminal;
-    char source[BACKFILL_AE_SIZE + BACKFILL_HOST_SIZE + 16];
+    char source[BACKFILL_AE_SIZE + BACKFILL_HOST_SIZE + 96];
     long long run_id;
 
     pthread_mutex_t lock;
@@ -266,6 +266,7 @@ static uint16_t backfill_on_retrieved(void *context, const dcm_retrieved *object
         pthread_mutex_lock(&run->lock);
         run->totals.objects_skipped++;
         pthread_mutex_unlock(&run->lock);
+        backfill_pace(run); /* not kept, but sent by the PACS all the same */
         return DCM_STATUS_SUCCESS;
     }
     ingest_source source = {object->spool_path,
@@ -306,6 +307,7 @@ static uint16_t backfill_on_moved(void *context, const dcm_received *object)
             pthread_mutex_lock(&run->lock);
             run->totals.objects_skipped++;
             pthread_mutex_unlock(&run->lock);
+            backfill_pace(run);
             return DCM_STATUS_SUCCESS;
         }
     }
@@ -656,6 +658,27 @@ static void *backfill_worker_thread(void *argument)
     return NULL;
 }
 
+/* Frees a match's strings and leaves it empty (uid NULL). */
+static void backfill_drop(dcm_study_match *match)
+{
+    free(match->study_instance_uid);
+    free(match->study_date);
+    free(match->accession_number);
+    free(match->study_description);
+    free(match->modalities_in_study);
+    memset(match, 0, sizeof *match);
+}
+
+/* Moves the matches still holding a study to the front; *count. */
+static void backfill_compact(dcm_study_match *matches, size_t *count)
+{
+    size_t kept = 0;
+    for (size_t i = 0; i < *count; i++)
+        if (matches[i].study_instance_uid != NULL)
+            matches[kept++] = matches[i];
+    *count = kept;
+}
+
 /* Keeps the studies the query asked for: modality US (asked at series
  * level when the PACS does not return Modalities in Study) and the
  * description (when the PACS ignored it as a matching key). */
@@ -663,8 +686,8 @@ static mitilog_status backfill_select(backfill_run_state *run, dcm_association *
                                       dcm_study_match *matches, size_t *count,
                                       mitilog_error *error)
 {
-    size_t kept = 0;
-    for (size_t i = 0; i < *count; i++) {
+    mitilog_status status = MITILOG_OK;
+    for (size_t i = 0; status == MITILOG_OK && i < *count; i++) {
         dcm_study_match *m = &matches[i];
         int keep = m->study_instance_uid != NULL && m->study_instance_uid[0] != '\0';
         if (keep && m->study_description != NULL)
@@ -672,32 +695,29 @@ static mitilog_status backfill_select(backfill_run_state *run, dcm_association *
         if (keep) {
             char *series_modalities = NULL;
             const char *modalities = m->modalities_in_study;
-            if (modalities == NULL || modalities[0] == '\0') {
-                mitilog_status status = dcm_association_study_modalities(
-                    association, m->study_instance_uid, &series_modalities, error);
-                if (status != MITILOG_OK)
-                    return status;
-                modalities = series_modalities;
+            char state[16] = "";
+            if (modalities == NULL || modalities[0] == '\0')
+                /* a study done by an earlier run was an ultrasound study:
+                 * the PACS is not asked again */
+                status = store_backfill_state(run->store, run->source, m->study_instance_uid,
+                                              state, error);
+            if (status == MITILOG_OK && strcmp(state, "done") == 0) {
+                modalities = "US";
+            } else if (status == MITILOG_OK && (modalities == NULL || modalities[0] == '\0')) {
+                status = dcm_association_study_modalities(association, m->study_instance_uid,
+                                                          &series_modalities, error);
+                modalities = series_modalities != NULL ? series_modalities : "";
             }
             char wrapped[512];
             snprintf(wrapped, sizeof wrapped, "\\%s\\", modalities);
-            keep = strstr(wrapped, "\\US\\") != NULL;
+            keep = status == MITILOG_OK && strstr(wrapped, "\\US\\") != NULL;
             free(series_modalities);
         }
-        if (keep) {
-            matches[kept++] = *m;
-        } else {
-            dcm_study_match drop = *m;
-            memset(m, 0, sizeof *m);
-            free(drop.study_instance_uid);
-            free(drop.study_date);
-            free(drop.accession_number);
-            free(drop.study_description);
-            free(drop.modalities_in_study);
-        }
+        if (!keep)
+            backfill_drop(m);
     }
-    *count = kept;
-    return MITILOG_OK;
+    backfill_compact(matches, count);
+    return status;
 }
 
 /* C-FIND, selection, and a row per study found. */
@@ -718,7 +738,6 @@ static mitilog_status backfill_find(backfill_run_state *run, mitilog_error *erro
         status = backfill_select(run, association, matches, &count, error);
     dcm_association_close(association);
     /* Recorded once; the studies done by an earlier run leave the list. */
-    size_t to_do = 0;
     long already = 0;
     for (size_t i = 0; status == MITILOG_OK && i < count; i++) {
         store_backfill_study study = {run->source,
@@ -734,24 +753,18 @@ static mitilog_status backfill_find(backfill_run_state *run, mitilog_error *erro
                                           matches[i].study_instance_uid, state, error);
         if (status == MITILOG_OK && strcmp(state, "done") == 0) {
             already++;
-            dcm_study_match drop = matches[i];
-            memset(&matches[i], 0, sizeof matches[i]);
-            free(drop.study_instance_uid);
-            free(drop.study_date);
-            free(drop.accession_number);
-            free(drop.study_description);
-            free(drop.modalities_in_study);
-        } else if (status == MITILOG_OK) {
-            matches[to_do++] = matches[i];
+            backfill_drop(&matches[i]);
         }
     }
+    size_t found = count;
+    backfill_compact(matches, &count);
     if (status != MITILOG_OK) {
         dcm_study_matches_free(matches, count);
         return status;
     }
     run->studies = matches;
-    run->study_count = to_do;
-    run->totals.studies_found = (long)count;
+    run->study_count = count;
+    run->totals.studies_found = (long)found;
     run->totals.studies_already_done = already;
     return MITILOG_OK;
 }
@@ -766,8 +779,12 @@ mitilog_status backfill_run(const backfill_settings *settings, store *store, ing
     run.store = store;
     run.pipeline = pipeline;
     run.terminal = terminal;
-    snprintf(run.source, sizeof run.source, "%s@%s:%u", settings->source_ae_title,
-             settings->source_host, settings->source_port);
+    /* A study done with a station filter is not done for a run without
+     * it (its other objects are still to fetch): the filter is part of
+     * the source its rows are recorded under. */
+    snprintf(run.source, sizeof run.source, "%s@%s:%u%s%.64s", settings->source_ae_title,
+             settings->source_host, settings->source_port,
+             settings->station[0] != '\0' ? " station=" : "", settings->station);
     pthread_mutex_init(&run.lock, NULL);
     pthread_condattr_t attributes;
     pthread_condattr_init(&attributes);

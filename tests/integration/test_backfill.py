@@ -395,3 +395,31 @@ def test_ingest_status_shows_the_backfill(daemon_factory, pacs_factory, studies,
     # The line as a reader sees it (Chromium's rendering of status.js).
     assert re.search(r"%s@127\.0\.0\.1:%d: finished, 3/3 studies done, 0 failed, %d objects" % (
         PACS_AE, pacs.port, total), page["backfill"]), page["backfill"]
+
+
+def test_station_is_matched_on_the_retrieved_objects(daemon_factory, pacs_factory, studies,
+                                                      direct_records):
+    pacs = pacs_factory()
+    daemon = daemon_factory("station")
+    # Station Name is no study-level key (PS3.4 C.6.2.1): whole studies
+    # are fetched and only the objects of the station are kept.
+    kept = [i for i in direct_records[0] if (i["station_name"] or "").startswith("US-ROOM-3")]
+    assert 0 < len(kept) < len(direct_records[0])
+    done = backfill(daemon, pacs, "--rate", "0", "--station", "US-ROOM-3*")
+    assert done.returncode == 0, done.stdout + done.stderr
+    assert pacs.sub_operations() == len(studies["files"])
+    instances, _ = records(daemon.database)
+    assert instances == kept
+    assert "%d skipped" % (len(studies["files"]) - len(kept)) in done.stdout, done.stdout
+    # With C-MOVE to the daemon the objects never pass through the
+    # command: the filter cannot be applied, which is said at once.
+    refused = backfill(daemon, pacs, "--retrieve", "move", "--station", "US-ROOM-3")
+    assert refused.returncode == 2
+    assert "--station needs objects that pass through this command" in refused.stderr
+    # Without the filter, the same studies are not done yet: only the
+    # other stations' objects are fetched now.
+    sent = pacs.sub_operations()
+    rest = backfill(daemon, pacs, "--rate", "0")
+    assert rest.returncode == 0, rest.stdout + rest.stderr
+    assert pacs.sub_operations() - sent == len(studies["files"]) - len(kept)
+    assert records(daemon.database) == direct_records
