@@ -423,3 +423,18 @@ def test_station_is_matched_on_the_retrieved_objects(daemon_factory, pacs_factor
     assert rest.returncode == 0, rest.stdout + rest.stderr
     assert pacs.sub_operations() - sent == len(studies["files"]) - len(kept)
     assert records(daemon.database) == direct_records
+
+
+def test_check_config_reads_the_backfill_section(tmp_path):
+    config = tmp_path / "mitilog.ini"
+    config.write_text("[backfill]\nsource = ARCHIVE@pacs:99999\nwindow = nights\n")
+    checked = run([BINARY, "check-config", str(config)])
+    # common practice, no source: a bad value is named with its section
+    # and key, and check-config exits 2
+    assert checked.returncode == 2
+    assert "[backfill] source: PACS port '99999' is not a number from 1 to 65535" in \
+        checked.stderr, checked.stderr
+    assert "[backfill] window: time window 'nights' is not HH:MM-HH:MM" in checked.stderr
+    config.write_text("[backfill]\nsource = ARCHIVE@pacs:104\nwindow = 20:00-06:00\n")
+    checked = run([BINARY, "check-config", str(config)])
+    assert "[backfill]" not in checked.stderr, checked.stderr
