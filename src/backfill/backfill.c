@@ -35,9 +35,10 @@ mitilog_status backfill_parse_source(const char *text, backfill_settings *settin
     const char *at = text != NULL ? strchr(text, '@') : NULL;
     const char *colon = at != NULL ? strrchr(at, ':') : NULL;
     if (at == NULL || colon == NULL || at == text || colon == at + 1)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                 "PACS '%s' is not AE@HOST:PORT (e.g. ARCHIVE@pacs.example.org:104)",
-                                 text != NULL ? text : "");
+        return mitilog_error_set(
+            error, MITILOG_ERROR_INVALID,
+            "PACS '%s' is not AE@HOST:PORT (e.g. ARCHIVE@pacs.example.org:104)",
+            text != NULL ? text : "");
     size_t ae_length = (size_t)(at - text);
     size_t host_length = (size_t)(colon - at - 1);
     if (ae_length >= BACKFILL_AE_SIZE)
@@ -126,9 +127,8 @@ long backfill_window_wait_seconds(int start_minute, int end_minute, int now_minu
 {
     if (start_minute < 0 || end_minute < 0)
         return 0;
-    int inside = start_minute < end_minute
-                     ? now_minute >= start_minute && now_minute < end_minute
-                     : now_minute >= start_minute || now_minute < end_minute;
+    int inside = start_minute < end_minute ? now_minute >= start_minute && now_minute < end_minute
+                                           : now_minute >= start_minute || now_minute < end_minute;
     if (inside)
         return 0;
     int minutes = start_minute - now_minute;
@@ -153,14 +153,14 @@ typedef struct backfill_run_state {
     size_t study_count;
     size_t next_study;
     int workers_running;
-    backfill_totals totals;   /* under lock */
-    long objects_this_run;    /* under lock */
-    long studies_this_run;    /* done or failed in this run, under lock */
-    double started;           /* monotonic seconds */
-    double waiting_since;     /* > 0 while waiting for the window */
-    double waited;            /* seconds spent outside the window */
-    double next_slot;         /* rate limit: when the next object may come */
-    int finished;             /* the progress thread stops */
+    backfill_totals totals;                   /* under lock */
+    long objects_this_run;                    /* under lock */
+    long studies_this_run;                    /* done or failed in this run, under lock */
+    double started;                           /* monotonic seconds */
+    double waiting_since;                     /* > 0 while waiting for the window */
+    double waited;                            /* seconds spent outside the window */
+    double next_slot;                         /* rate limit: when the next object may come */
+    int finished;                             /* the progress thread stops */
     char error_text[MITILOG_ERROR_TEXT_SIZE]; /* first association error */
 } backfill_run_state;
 
@@ -401,7 +401,8 @@ static void *backfill_progress_thread(void *argument)
         pthread_mutex_unlock(&run->lock);
         char message[160] = "";
         if (waiting)
-            snprintf(message, sizeof message, "outside the backfill window %s (local time): waiting",
+            snprintf(message, sizeof message,
+                     "outside the backfill window %s (local time): waiting",
                      run->settings->window_text);
         backfill_report(run, waiting ? "waiting" : "running", message, 0);
         pthread_mutex_lock(&run->lock);
@@ -451,8 +452,8 @@ static void backfill_wait_window(backfill_run_state *run)
 
 static dcm_peer backfill_peer(const backfill_settings *s)
 {
-    dcm_peer peer = {s->calling_ae_title,       s->source_ae_title,       s->source_host,
-                     s->source_port,            s->connect_timeout_seconds, s->dimse_timeout_seconds,
+    dcm_peer peer = {s->calling_ae_title, s->source_ae_title,         s->source_host,
+                     s->source_port,      s->connect_timeout_seconds, s->dimse_timeout_seconds,
                      s->dicom_max_pdu};
     return peer;
 }
@@ -470,17 +471,13 @@ static mitilog_status backfill_retrieve(backfill_worker *worker, const char *stu
 
 /* A final status that ends the retrieve well: Success, or Warning
  * (some sub-operations failed: counted apart), PS3.4 C.4.3.1.4. */
-static int backfill_status_ok(uint16_t status)
-{
-    return status == 0x0000 || status == 0xB000;
-}
+static int backfill_status_ok(uint16_t status) { return status == 0x0000 || status == 0xB000; }
 
 /* Fetches what of study is not stored yet; fills counts and message.
  * Returns an association error (the worker reconnects). */
-static mitilog_status backfill_study(backfill_worker *worker, const dcm_study_match *study,
-                                     int *ok, long *pacs_completed, long *pacs_failed,
-                                     long *already, char *message, size_t message_size,
-                                     mitilog_error *error)
+static mitilog_status backfill_study(backfill_worker *worker, const dcm_study_match *study, int *ok,
+                                     long *pacs_completed, long *pacs_failed, long *already,
+                                     char *message, size_t message_size, mitilog_error *error)
 {
     backfill_run_state *run = worker->run;
     const char *uid = study->study_instance_uid;
@@ -501,8 +498,8 @@ static mitilog_status backfill_study(backfill_worker *worker, const dcm_study_ma
         if (!backfill_status_ok(result.status)) {
             *ok = 0;
             snprintf(message, message_size, "the PACS ended the %s with status 0x%04X (%s)",
-                     run->settings->method == DCM_RETRIEVE_GET ? "C-GET" : "C-MOVE",
-                     result.status, result.status_text);
+                     run->settings->method == DCM_RETRIEVE_GET ? "C-GET" : "C-MOVE", result.status,
+                     result.status_text);
         }
         return MITILOG_OK;
     }
@@ -515,8 +512,8 @@ static mitilog_status backfill_study(backfill_worker *worker, const dcm_study_ma
     long missing = 0;
     for (size_t i = 0; status == MITILOG_OK && i < count; i++) {
         int known = 0;
-        status = store_backfill_instance_known(run->store, instances[i].sop_instance_uid, &known,
-                                               error);
+        status =
+            store_backfill_instance_known(run->store, instances[i].sop_instance_uid, &known, error);
         if (status != MITILOG_OK)
             break;
         if (known) {
@@ -634,11 +631,10 @@ static void *backfill_worker_thread(void *argument)
         mitilog_error error;
         mitilog_status status = MITILOG_OK;
         if (worker->association == NULL)
-            status = dcm_association_open(&peer, run->settings->method,
-                                          run->settings->method == DCM_RETRIEVE_GET
-                                              ? backfill_on_retrieved
-                                              : NULL,
-                                          worker, &worker->association, &error);
+            status = dcm_association_open(
+                &peer, run->settings->method,
+                run->settings->method == DCM_RETRIEVE_GET ? backfill_on_retrieved : NULL, worker,
+                &worker->association, &error);
         if (status == MITILOG_OK)
             status = backfill_one(worker, &run->studies[index], &error);
         if (status != MITILOG_OK) {
@@ -683,8 +679,7 @@ static void backfill_compact(dcm_study_match *matches, size_t *count)
  * level when the PACS does not return Modalities in Study) and the
  * description (when the PACS ignored it as a matching key). */
 static mitilog_status backfill_select(backfill_run_state *run, dcm_association *association,
-                                      dcm_study_match *matches, size_t *count,
-                                      mitilog_error *error)
+                                      dcm_study_match *matches, size_t *count, mitilog_error *error)
 {
     mitilog_status status = MITILOG_OK;
     for (size_t i = 0; status == MITILOG_OK && i < *count; i++) {
@@ -699,8 +694,8 @@ static mitilog_status backfill_select(backfill_run_state *run, dcm_association *
             if (modalities == NULL || modalities[0] == '\0')
                 /* a study done by an earlier run was an ultrasound study:
                  * the PACS is not asked again */
-                status = store_backfill_state(run->store, run->source, m->study_instance_uid,
-                                              state, error);
+                status = store_backfill_state(run->store, run->source, m->study_instance_uid, state,
+                                              error);
             if (status == MITILOG_OK && strcmp(state, "done") == 0) {
                 modalities = "US";
             } else if (status == MITILOG_OK && (modalities == NULL || modalities[0] == '\0')) {
@@ -726,8 +721,7 @@ static mitilog_status backfill_find(backfill_run_state *run, mitilog_error *erro
     const backfill_settings *s = run->settings;
     dcm_peer peer = backfill_peer(s);
     dcm_association *association = NULL;
-    mitilog_status status =
-        dcm_association_open(&peer, s->method, NULL, NULL, &association, error);
+    mitilog_status status = dcm_association_open(&peer, s->method, NULL, NULL, &association, error);
     if (status != MITILOG_OK)
         return status;
     dcm_study_query query = {s->date_from, s->date_to, "US", s->description};
@@ -749,8 +743,8 @@ static mitilog_status backfill_find(backfill_run_state *run, mitilog_error *erro
         char state[16] = "";
         status = store_backfill_found(run->store, &study, error);
         if (status == MITILOG_OK)
-            status = store_backfill_state(run->store, run->source,
-                                          matches[i].study_instance_uid, state, error);
+            status = store_backfill_state(run->store, run->source, matches[i].study_instance_uid,
+                                          state, error);
         if (status == MITILOG_OK && strcmp(state, "done") == 0) {
             already++;
             backfill_drop(&matches[i]);
@@ -799,8 +793,8 @@ mitilog_status backfill_run(const backfill_settings *settings, store *store, ing
     pthread_t threads[BACKFILL_CONCURRENCY_MAX];
     unsigned started = 0;
     mitilog_status status = store_backfill_run_begin(store, run.source, &run.run_id, error);
-    if (status == MITILOG_OK && pthread_create(&progress_thread, NULL, backfill_progress_thread,
-                                               &run) == 0)
+    if (status == MITILOG_OK &&
+        pthread_create(&progress_thread, NULL, backfill_progress_thread, &run) == 0)
         progress_started = 1;
     if (status == MITILOG_OK && settings->method == DCM_RETRIEVE_MOVE &&
         settings->move_listen_port != 0) {

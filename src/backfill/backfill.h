@@ -34,8 +34,8 @@ typedef struct backfill_settings {
     unsigned connect_timeout_seconds;
     char date_from[9]; /* YYYYMMDD */
     char date_to[9];
-    const char *station;     /* "" = any */
-    const char *description; /* "" = any */
+    const char *station;      /* "" = any */
+    const char *description;  /* "" = any */
     unsigned rate_per_minute; /* objects, 0 = no limit */
     unsigned concurrency;
     int window_start_minute; /* minutes after local midnight; -1 no window */

@@ -78,19 +78,32 @@ int command_backfill(int argc, char **argv)
             print_backfill_usage(stdout);
             return EXIT_STATUS_SUCCESS;
         }
-        if (strcmp(a, "--config") == 0) target = &config_path;
-        else if (strcmp(a, "--from") == 0) target = &from;
-        else if (strcmp(a, "--since") == 0) target = &since;
-        else if (strcmp(a, "--until") == 0) target = &until;
-        else if (strcmp(a, "--station") == 0) target = &station;
-        else if (strcmp(a, "--description") == 0) target = &description;
-        else if (strcmp(a, "--retrieve") == 0) target = &retrieve;
-        else if (strcmp(a, "--move-destination") == 0) target = &destination;
-        else if (strcmp(a, "--move-listen-port") == 0) target = &listen;
-        else if (strcmp(a, "--rate") == 0) target = &rate;
-        else if (strcmp(a, "--concurrency") == 0) target = &concurrency;
-        else if (strcmp(a, "--window") == 0) target = &window;
-        else if (strcmp(a, "--progress-seconds") == 0) target = &progress;
+        if (strcmp(a, "--config") == 0)
+            target = &config_path;
+        else if (strcmp(a, "--from") == 0)
+            target = &from;
+        else if (strcmp(a, "--since") == 0)
+            target = &since;
+        else if (strcmp(a, "--until") == 0)
+            target = &until;
+        else if (strcmp(a, "--station") == 0)
+            target = &station;
+        else if (strcmp(a, "--description") == 0)
+            target = &description;
+        else if (strcmp(a, "--retrieve") == 0)
+            target = &retrieve;
+        else if (strcmp(a, "--move-destination") == 0)
+            target = &destination;
+        else if (strcmp(a, "--move-listen-port") == 0)
+            target = &listen;
+        else if (strcmp(a, "--rate") == 0)
+            target = &rate;
+        else if (strcmp(a, "--concurrency") == 0)
+            target = &concurrency;
+        else if (strcmp(a, "--window") == 0)
+            target = &window;
+        else if (strcmp(a, "--progress-seconds") == 0)
+            target = &progress;
         if (target == NULL || i + 1 >= argc) {
             fprintf(stderr, "mitilog backfill: %s '%s'\n\n",
                     target == NULL ? "unknown option" : "missing value after", a);
@@ -142,9 +155,10 @@ int command_backfill(int argc, char **argv)
     settings.calling_ae_title = config.backfill_calling_ae_title[0] != '\0'
                                     ? config.backfill_calling_ae_title
                                     : config.ae_title;
-    settings.move_destination = destination != NULL                           ? destination
-                                : config.backfill_move_destination[0] != '\0' ? config.backfill_move_destination
-                                                                               : config.ae_title;
+    settings.move_destination = destination != NULL ? destination
+                                : config.backfill_move_destination[0] != '\0'
+                                    ? config.backfill_move_destination
+                                    : config.ae_title;
     settings.move_listen_port = config.backfill_move_listen_port;
     settings.rate_per_minute = config.backfill_rate_per_minute;
     settings.concurrency = config.backfill_concurrency;
@@ -154,8 +168,9 @@ int command_backfill(int argc, char **argv)
         (concurrency != NULL &&
          parse_unsigned(concurrency, 1, BACKFILL_CONCURRENCY_MAX, &settings.concurrency) != 0) ||
         (progress != NULL && parse_unsigned(progress, 1, 3600, &settings.progress_seconds) != 0)) {
-        fprintf(stderr, "mitilog backfill: --move-listen-port is 1-65535, --rate N/min (N up to "
-                        "1000000, 0 no limit), --concurrency 1-%d, --progress-seconds 1-3600\n",
+        fprintf(stderr,
+                "mitilog backfill: --move-listen-port is 1-65535, --rate N/min (N up to "
+                "1000000, 0 no limit), --concurrency 1-%d, --progress-seconds 1-3600\n",
                 BACKFILL_CONCURRENCY_MAX);
         goto done;
     }

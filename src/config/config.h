@@ -75,10 +75,10 @@ typedef struct config {
 
     /* [backfill] `mitilog backfill` (docs/backfill.md); the command line
      * overrides each */
-    char *backfill_source;           /* "AE@HOST:PORT" or "" */
-    char *backfill_calling_ae_title; /* "" = [dicom] ae_title */
-    char *backfill_retrieve;         /* "get" or "move" */
-    char *backfill_move_destination; /* "" = [dicom] ae_title */
+    char *backfill_source;              /* "AE@HOST:PORT" or "" */
+    char *backfill_calling_ae_title;    /* "" = [dicom] ae_title */
+    char *backfill_retrieve;            /* "get" or "move" */
+    char *backfill_move_destination;    /* "" = [dicom] ae_title */
     unsigned backfill_move_listen_port; /* 0 = the daemon receives */
     unsigned backfill_rate_per_minute;  /* objects; 0 = no limit */
     unsigned backfill_concurrency;      /* studies at once */

@@ -43,17 +43,23 @@ static const char *const dcm_retrieve_storage_classes[] = {
  * so that the PACS can send a compressed object as it is stored (a
  * context accepts one transfer syntax, PS3.8 section 9.3.2.2). */
 static const char *const dcm_retrieve_encapsulated_syntaxes[] = {
-    UID_JPEGProcess1TransferSyntax,         UID_JPEGProcess2_4TransferSyntax,
-    UID_JPEGProcess14SV1TransferSyntax,     UID_JPEGLSLosslessTransferSyntax,
-    UID_JPEGLSLossyTransferSyntax,          UID_JPEG2000LosslessOnlyTransferSyntax,
-    UID_JPEG2000TransferSyntax,             UID_RLELosslessTransferSyntax,
+    UID_JPEGProcess1TransferSyntax,
+    UID_JPEGProcess2_4TransferSyntax,
+    UID_JPEGProcess14SV1TransferSyntax,
+    UID_JPEGLSLosslessTransferSyntax,
+    UID_JPEGLSLossyTransferSyntax,
+    UID_JPEG2000LosslessOnlyTransferSyntax,
+    UID_JPEG2000TransferSyntax,
+    UID_RLELosslessTransferSyntax,
     UID_DeflatedExplicitVRLittleEndianTransferSyntax,
 };
 
-namespace {
+namespace
+{
 
-class RetrieveSCU : public DcmSCU {
-public:
+class RetrieveSCU : public DcmSCU
+{
+  public:
     RetrieveSCU(dcm_retrieved_handler handler, void *context)
         : handler_(handler), context_(context), spool_fd_(-1)
     {
@@ -118,7 +124,7 @@ public:
         return EC_Normal;
     }
 
-private:
+  private:
     dcm_retrieved_handler handler_;
     void *context_;
     int spool_fd_;
@@ -351,9 +357,8 @@ extern "C" mitilog_status dcm_association_find_studies(dcm_association *associat
         keys.putAndInsertString(DCM_AccessionNumber, "");
         keys.putAndInsertString(DCM_ModalitiesInStudy,
                                 query->modality != NULL ? query->modality : "");
-        keys.putAndInsertString(DCM_StudyDescription, query->study_description != NULL
-                                                          ? query->study_description
-                                                          : "");
+        keys.putAndInsertString(DCM_StudyDescription,
+                                query->study_description != NULL ? query->study_description : "");
         keys.putAndInsertString(DCM_NumberOfStudyRelatedInstances, "");
         mitilog_status status = dcm_retrieve_find(
             association, &keys, "studies",
@@ -367,8 +372,7 @@ extern "C" mitilog_status dcm_association_find_studies(dcm_association *associat
                 m.accession_number = dcm_retrieve_value(identifier, DCM_AccessionNumber);
                 m.study_description = dcm_retrieve_value(identifier, DCM_StudyDescription);
                 m.modalities_in_study = dcm_retrieve_value(identifier, DCM_ModalitiesInStudy);
-                char *instances =
-                    dcm_retrieve_value(identifier, DCM_NumberOfStudyRelatedInstances);
+                char *instances = dcm_retrieve_value(identifier, DCM_NumberOfStudyRelatedInstances);
                 if (instances != NULL && instances[0] != '\0')
                     m.instance_count = strtol(instances, NULL, 10);
                 free(instances);
@@ -554,8 +558,7 @@ static void dcm_retrieve_summarise(OFList<RetrieveResponse *> &responses, bool g
         snprintf(result->status_text, sizeof result->status_text, "no final response");
     else
         snprintf(result->status_text, sizeof result->status_text, "%s",
-                 get ? DU_cgetStatusString(result->status)
-                     : DU_cmoveStatusString(result->status));
+                 get ? DU_cgetStatusString(result->status) : DU_cmoveStatusString(result->status));
 }
 
 extern "C" mitilog_status dcm_association_get(dcm_association *association,

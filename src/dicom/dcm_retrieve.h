@@ -76,9 +76,9 @@ typedef struct dcm_study_match {
 } dcm_study_match;
 
 typedef struct dcm_study_query {
-    const char *date_from; /* YYYYMMDD */
-    const char *date_to;   /* YYYYMMDD */
-    const char *modality;  /* Modalities in Study, e.g. "US" */
+    const char *date_from;         /* YYYYMMDD */
+    const char *date_to;           /* YYYYMMDD */
+    const char *modality;          /* Modalities in Study, e.g. "US" */
     const char *study_description; /* NULL or "" = any; wildcards * ? */
 } dcm_study_query;
 
@@ -126,11 +126,10 @@ typedef struct dcm_retrieve_result {
 mitilog_status dcm_association_get(dcm_association *association, const char *study_instance_uid,
                                    const char *series_instance_uid, const char *sop_instance_uid,
                                    dcm_retrieve_result *result, mitilog_error *error);
-mitilog_status dcm_association_move(dcm_association *association,
-                                    const char *destination_ae_title,
-                                    const char *study_instance_uid,
-                                    const char *series_instance_uid, const char *sop_instance_uid,
-                                    dcm_retrieve_result *result, mitilog_error *error);
+mitilog_status dcm_association_move(dcm_association *association, const char *destination_ae_title,
+                                    const char *study_instance_uid, const char *series_instance_uid,
+                                    const char *sop_instance_uid, dcm_retrieve_result *result,
+                                    mitilog_error *error);
 
 #ifdef __cplusplus
 }

@@ -29,8 +29,14 @@ typedef struct backfill_value {
     double real;
 } backfill_value;
 
-#define BACKFILL_TEXT(t) {BACKFILL_VALUE_TEXT, (t), 0, 0.0}
-#define BACKFILL_INTEGER(i) {BACKFILL_VALUE_INTEGER, NULL, (i), 0.0}
+#define BACKFILL_TEXT(t)                                                                           \
+    {                                                                                              \
+        BACKFILL_VALUE_TEXT, (t), 0, 0.0                                                           \
+    }
+#define BACKFILL_INTEGER(i)                                                                        \
+    {                                                                                              \
+        BACKFILL_VALUE_INTEGER, NULL, (i), 0.0                                                     \
+    }
 
 static mitilog_status backfill_bind(sqlite3_stmt *statement, const backfill_value *values,
                                     int count, const char *what, mitilog_error *error)
@@ -131,12 +137,17 @@ mitilog_status store_backfill_finish(store *st, const char *source, const char *
     char now[32];
     files_utc_now(now, sizeof now);
     backfill_value values[] = {
-        BACKFILL_TEXT(source), BACKFILL_TEXT(study_instance_uid), BACKFILL_TEXT(state),
-        BACKFILL_INTEGER(stored), BACKFILL_INTEGER(failed),       BACKFILL_INTEGER(skipped),
-        BACKFILL_TEXT(message != NULL ? message : ""),            BACKFILL_TEXT(now),
+        BACKFILL_TEXT(source),
+        BACKFILL_TEXT(study_instance_uid),
+        BACKFILL_TEXT(state),
+        BACKFILL_INTEGER(stored),
+        BACKFILL_INTEGER(failed),
+        BACKFILL_INTEGER(skipped),
+        BACKFILL_TEXT(message != NULL ? message : ""),
+        BACKFILL_TEXT(now),
     };
-    backfill_write write = {"queries/backfill/study_finish.sql", "backfill: finish a study",
-                            values, 8, 0};
+    backfill_write write = {"queries/backfill/study_finish.sql", "backfill: finish a study", values,
+                            8, 0};
     return backfill_submit(st, &write, error);
 }
 
@@ -176,8 +187,8 @@ mitilog_status store_backfill_run_update(store *st, long long run_id,
         BACKFILL_TEXT(now),
         BACKFILL_INTEGER(progress->finished ? 1 : 0),
     };
-    backfill_write write = {"queries/backfill/run_update.sql", "backfill: record progress",
-                            values, 11, 0};
+    backfill_write write = {"queries/backfill/run_update.sql", "backfill: record progress", values,
+                            11, 0};
     return backfill_submit(st, &write, error);
 }
 
@@ -316,13 +327,14 @@ static mitilog_status backfill_row_json(sqlite3_stmt *statement, void *out, miti
 mitilog_status store_backfill_status_json(store *st, char **json, mitilog_error *error)
 {
     *json = NULL;
-    mitilog_status status = backfill_read(st, "queries/backfill/run_latest.sql", NULL, 0,
-                                          "backfill: read the latest run", backfill_row_json,
-                                          json, error);
+    mitilog_status status =
+        backfill_read(st, "queries/backfill/run_latest.sql", NULL, 0,
+                      "backfill: read the latest run", backfill_row_json, json, error);
     if (status == MITILOG_OK && *json == NULL) {
         *json = strdup("null");
         if (*json == NULL)
-            status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "backfill status: out of memory");
+            status =
+                mitilog_error_set(error, MITILOG_ERROR_MEMORY, "backfill status: out of memory");
     }
     return status;
 }
