@@ -12,7 +12,6 @@
  * (stopped after its commit, before its C-STORE answer) replaces its
  * row under the store's own rule, never duplicates it.
  */
-#define _GNU_SOURCE /* strcasestr */
 #include "backfill/backfill.h"
 
 #include <ctype.h>
