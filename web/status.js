@@ -38,7 +38,7 @@ function hourChart(hours) {
 // progress in the database, docs/backfill.md), as one line.
 function backfillLine(b) {
   if (!b) return 'No backfill from the PACS has run (mitilog backfill, docs/backfill.md).';
-  const states = { running: 'running', waiting: 'waiting for its time window', finished: 'finished', failed: 'stopped on an error' };
+  const states = { running: 'running', waiting: 'waiting for its time window', finished: 'finished', failed: 'stopped on an error', interrupted: 'interrupted (the same command resumes it)' };
   const run = b.run;
   const parts = [`${b.source}: ${states[b.state] || b.state}`,
     `${run.studies_done}/${run.studies_found} studies done`, `${run.studies_failed} failed`, `${run.objects} objects`];

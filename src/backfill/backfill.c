@@ -366,7 +366,8 @@ static void backfill_progress_locked(backfill_run_state *run, store_backfill_pro
                  progress->studies_found, progress->studies_failed, progress->objects, rate, left);
 }
 
-/* Prints the progress line and records it for the ingest status. */
+/* Records the progress for the ingest status, then prints its line (so
+ * that what the terminal says is already in the database). */
 static void backfill_report(backfill_run_state *run, const char *state, const char *message,
                             int finished)
 {
@@ -375,12 +376,12 @@ static void backfill_report(backfill_run_state *run, const char *state, const ch
     pthread_mutex_lock(&run->lock);
     backfill_progress_locked(run, &progress, line, sizeof line);
     pthread_mutex_unlock(&run->lock);
-    fprintf(run->terminal, "%s\n", line);
-    fflush(run->terminal);
     mitilog_error error;
     if (run->run_id > 0 &&
         store_backfill_run_update(run->store, run->run_id, &progress, &error) != MITILOG_OK)
         log_warning("backfill: progress not recorded: %s", error.text);
+    fprintf(run->terminal, "%s\n", line);
+    fflush(run->terminal);
 }
 
 static void *backfill_progress_thread(void *argument)

@@ -1,9 +1,12 @@
 /* mitilog backfill --from AE@HOST:PORT --since DATE --until DATE ...:
  * past ultrasound studies from the PACS through the ingest pipeline
  * (src/backfill/backfill.h, docs/backfill.md). */
+#include <pthread.h>
+#include <signal.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "backfill/backfill.h"
 #include "cli/cli_options.h"
@@ -11,6 +14,7 @@
 #include "dicom/dcm.h"
 #include "ingest/ingest.h"
 #include "store/store.h"
+#include "store/store_backfill.h"
 #include "util/log.h"
 
 static void print_backfill_usage(FILE *out)
@@ -40,6 +44,30 @@ static void print_backfill_usage(FILE *out)
             "Exit status: 0 every study done, 1 a study failed or the PACS could not be\n"
             "queried (the next run retries), 2 usage or configuration error.\n",
             BACKFILL_CONCURRENCY_MAX);
+}
+
+/* SIGINT or SIGTERM: the run is recorded as interrupted and the process
+ * ends at once. Every object answered has committed and every study
+ * marked done has its exam rebuilt; the study in progress resumes with
+ * the next run, like after a kill. */
+typedef struct backfill_stopper {
+    sigset_t signals;
+    store *store;
+} backfill_stopper;
+
+static void *backfill_stop_thread(void *argument)
+{
+    backfill_stopper *stopper = argument;
+    int received = 0;
+    if (sigwait(&stopper->signals, &received) != 0)
+        return NULL;
+    static const char message[] = "interrupted; the same command resumes where it stopped";
+    mitilog_error error;
+    if (store_backfill_run_interrupt(stopper->store, message, &error) != MITILOG_OK)
+        log_warning("backfill: the stop was not recorded: %s", error.text);
+    fprintf(stderr, "mitilog backfill: %s (%s)\n", message, strsignal(received));
+    fflush(stdout);
+    _exit(EXIT_STATUS_FAILURE);
 }
 
 /* "N", "N/min" into *value. */
@@ -123,6 +151,9 @@ int command_backfill(int argc, char **argv)
     int status = EXIT_STATUS_USAGE;
     store *store = NULL;
     ingest *pipeline = NULL;
+    backfill_stopper stopper;
+    pthread_t stop_thread;
+    int stop_started = 0;
     const char *source = from != NULL ? from : config.backfill_source;
     if (source[0] == '\0') {
         fprintf(stderr, "mitilog backfill: no PACS given: add --from AE@HOST:PORT (or [backfill] "
@@ -188,6 +219,13 @@ int command_backfill(int argc, char **argv)
     settings.connect_timeout_seconds = config.backfill_connect_timeout_seconds;
 
     status = EXIT_STATUS_FAILURE;
+    /* Blocked before any thread starts, so that only the stopper takes
+     * them. */
+    sigemptyset(&stopper.signals);
+    sigaddset(&stopper.signals, SIGINT);
+    sigaddset(&stopper.signals, SIGTERM);
+    pthread_sigmask(SIG_BLOCK, &stopper.signals, NULL);
+    stopper.store = NULL;
     if (dcm_initialise(LOG_LEVEL_WARNING, &error) != MITILOG_OK ||
         cli_prepare_data_directory(&config, &error) != 0 ||
         store_open(config.database_path, (int)config.busy_timeout_ms, &store, &error) !=
@@ -196,6 +234,8 @@ int command_backfill(int argc, char **argv)
         log_error("backfill: %s", error.text);
         goto done;
     }
+    stopper.store = store;
+    stop_started = pthread_create(&stop_thread, NULL, backfill_stop_thread, &stopper) == 0;
     backfill_totals totals;
     mitilog_status ran = backfill_run(&settings, store, pipeline, stdout, &totals, &error);
     ingest_flush(pipeline);
@@ -210,6 +250,10 @@ int command_backfill(int argc, char **argv)
         status = totals.studies_failed > 0 ? EXIT_STATUS_FAILURE : EXIT_STATUS_SUCCESS;
     }
 done:
+    if (stop_started) {
+        pthread_cancel(stop_thread); /* sigwait() is a cancellation point */
+        pthread_join(stop_thread, NULL);
+    }
     ingest_free(pipeline);
     store_close(store);
     config_free(&config);

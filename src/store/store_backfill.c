@@ -192,6 +192,16 @@ mitilog_status store_backfill_run_update(store *st, long long run_id,
     return backfill_submit(st, &write, error);
 }
 
+mitilog_status store_backfill_run_interrupt(store *st, const char *message, mitilog_error *error)
+{
+    char now[32];
+    files_utc_now(now, sizeof now);
+    backfill_value values[] = {BACKFILL_TEXT(message), BACKFILL_TEXT(now)};
+    backfill_write write = {"queries/backfill/run_interrupt.sql", "backfill: record the stop",
+                            values, 2, 0};
+    return backfill_submit(st, &write, error);
+}
+
 /* ---- reads (read connection) ------------------------------------------- */
 
 /* Runs a one-row query on the read connection; row() copies what it needs

@@ -69,6 +69,10 @@ mitilog_status store_backfill_run_update(store *st, long long run_id,
                                          const store_backfill_progress *progress,
                                          mitilog_error *error);
 
+/* Marks the newest run still running or waiting as interrupted, with
+ * message. */
+mitilog_status store_backfill_run_interrupt(store *st, const char *message, mitilog_error *error);
+
 /* The newest run as a JSON object (the "backfill" member of the ingest
  * status, docs/api.md), or the text "null" when there never was one. */
 mitilog_status store_backfill_status_json(store *st, char **json, mitilog_error *error);

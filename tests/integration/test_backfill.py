@@ -12,6 +12,7 @@ import json
 import os
 import re
 import shutil
+import signal
 import socket
 import sqlite3
 import struct
@@ -438,3 +439,26 @@ def test_check_config_reads_the_backfill_section(tmp_path):
     config.write_text("[backfill]\nsource = ARCHIVE@pacs:104\nwindow = 20:00-06:00\n")
     checked = run([BINARY, "check-config", str(config)])
     assert "[backfill]" not in checked.stderr, checked.stderr
+
+
+def test_sigterm_records_the_stop(daemon_factory, pacs_factory):
+    pacs = pacs_factory()
+    daemon = daemon_factory("sigterm")
+    process = subprocess.Popen([BINARY, "backfill", "--config", daemon.config, "--from",
+                                "%s@127.0.0.1:%d" % (PACS_AE, pacs.port), "--since", DAY,
+                                "--until", DAY, "--rate", "60/min"],
+                               stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,
+                               env=DCMTK_ENV)
+    deadline = time.monotonic() + 60
+    while instance_count(daemon.database) < 1:
+        assert process.poll() is None and time.monotonic() < deadline
+        time.sleep(0.05)
+    process.send_signal(signal.SIGTERM)
+    _, err = process.communicate(timeout=60)
+    # common practice, no source: a stopped command says so and exits 1
+    assert process.returncode == 1
+    assert "interrupted; the same command resumes where it stopped" in err, err
+    with sqlite3.connect(daemon.database) as db:
+        assert db.execute("SELECT state FROM backfill_runs").fetchall() == [("interrupted",)]
+    resumed = backfill(daemon, pacs, "--rate", "0")
+    assert resumed.returncode == 0, resumed.stdout + resumed.stderr
