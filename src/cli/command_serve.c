@@ -16,6 +16,7 @@
 #include "http/http.h"
 #include "ingest/ingest.h"
 #include "store/store.h"
+#include "store/store_findings.h"
 #include "util/log.h"
 
 static void print_serve_usage(FILE *out)

@@ -3,7 +3,7 @@
  * static files from web/.
  *
  * Owns the libmicrohttpd daemon and its threads. Reads the database only
- * through store.h. Only GET (and HEAD) is served; unknown paths answer 404
+ * through the store's subject headers. Only GET (and HEAD) is served; unknown paths answer 404
  * and bad parameters 400, both with a JSON error object. Each request
  * must arrive whole within request_timeout_seconds (http_guard.c);
  * connections are limited in total and per client address.

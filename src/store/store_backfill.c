@@ -1,7 +1,8 @@
 /*
  * store_backfill.c - the backfill's tables (store_backfill.h, migration
  * 015). A few statements per study, not per object, except the instance
- * look-up of a resumed study: statements are prepared per call. SQL in
+ * look-up of a resumed study; each through the store's statement layer
+ * (store_statement.h) on the writer's batches or the read link. SQL in
  * sql/queries/backfill/, in the subset SQLite and PostgreSQL share.
  */
 #include "store/store_backfill.h"
@@ -12,6 +13,7 @@
 
 #include "json/json.h"
 #include "store/store_internal.h"
+#include "store/store_statement.h"
 #include "util/files.h"
 
 /* One bound value: text (NULL binds NULL), integer or real. */
@@ -38,27 +40,22 @@ typedef struct backfill_value {
         BACKFILL_VALUE_INTEGER, NULL, (i), 0.0                                                     \
     }
 
-static mitilog_status backfill_bind(sqlite3_stmt *statement, const backfill_value *values,
-                                    int count, const char *what, mitilog_error *error)
+static void backfill_bind(store_query *query, const backfill_value *values, int count)
 {
-    int rc = SQLITE_OK;
-    for (int i = 0; rc == SQLITE_OK && i < count; i++) {
+    for (int i = 0; i < count; i++) {
         const backfill_value *v = &values[i];
         switch (v->type) {
         case BACKFILL_VALUE_TEXT:
-            rc = v->text != NULL
-                     ? sqlite3_bind_text(statement, i + 1, v->text, -1, SQLITE_TRANSIENT)
-                     : sqlite3_bind_null(statement, i + 1);
+            if (v->text != NULL)
+                store_bind_text_at(query, i + 1, v->text);
+            else
+                store_bind_null_at(query, i + 1);
             break;
-        case BACKFILL_VALUE_INTEGER: rc = sqlite3_bind_int64(statement, i + 1, v->integer); break;
-        case BACKFILL_VALUE_REAL: rc = sqlite3_bind_double(statement, i + 1, v->real); break;
-        case BACKFILL_VALUE_NULL: rc = sqlite3_bind_null(statement, i + 1); break;
+        case BACKFILL_VALUE_INTEGER: store_bind_integer_at(query, i + 1, v->integer); break;
+        case BACKFILL_VALUE_REAL: store_bind_real_at(query, i + 1, v->real); break;
+        case BACKFILL_VALUE_NULL: store_bind_null_at(query, i + 1); break;
         }
     }
-    if (rc != SQLITE_OK)
-        return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: bind: %s", what,
-                                 sqlite3_errstr(rc));
-    return MITILOG_OK;
 }
 
 /* ---- writes (inside the writer's batch) -------------------------------- */
@@ -71,31 +68,30 @@ typedef struct backfill_write {
     long long returned; /* first column of a returned row, if any */
 } backfill_write;
 
-static mitilog_status backfill_write_run(store *st, const void *context, mitilog_error *error)
+static mitilog_status backfill_write_run(store_link *writer, void *context, mitilog_error *error)
 {
-    backfill_write *write = (backfill_write *)context;
-    sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_prepare(st->writer, write->name, &statement, error);
-    if (status == MITILOG_OK)
-        status = backfill_bind(statement, write->values, write->count, write->what, error);
-    if (status == MITILOG_OK) {
-        int rc = sqlite3_step(statement);
-        if (rc == SQLITE_ROW) {
-            write->returned = sqlite3_column_int64(statement, 0);
-            rc = sqlite3_step(statement);
-        }
-        if (rc != SQLITE_DONE)
-            status = store_sql_error(error, st->writer, write->what);
+    backfill_write *write = context;
+    write->returned = 0;
+    store_query query;
+    store_query_begin(&query, writer, write->name);
+    backfill_bind(&query, write->values, write->count);
+    /* One step runs the statement; only a row (RETURNING) needs the rest
+     * stepped through (a step after the end would run it again). */
+    if (store_query_step(&query)) {
+        write->returned = store_column_integer(&query, 0);
+        store_query_run(&query);
     }
-    sqlite3_finalize(statement);
-    return status;
+    if (store_query_end(&query) != MITILOG_OK)
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: %s", write->what,
+                                 query.error.text);
+    return MITILOG_OK;
 }
 
 static mitilog_status backfill_submit(store *st, backfill_write *write, mitilog_error *error)
 {
     if (st == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "%s: no store", write->what);
-    return store_submit_custom(st, backfill_write_run, write, error);
+    return store_commit_submit(st, backfill_write_run, write, error);
 }
 
 mitilog_status store_backfill_found(store *st, const store_backfill_study *study,
@@ -205,44 +201,40 @@ mitilog_status store_backfill_run_interrupt(store *st, const char *message, miti
 /* ---- reads (read connection) ------------------------------------------- */
 
 /* Runs a one-row query on the read connection; row() copies what it needs
- * from the row (no row: row is not called and *found stays 0). */
+ * from the row (no row: row is not called). */
 static mitilog_status backfill_read(store *st, const char *name, const backfill_value *values,
                                     int count, const char *what,
-                                    mitilog_status (*row)(sqlite3_stmt *statement, void *out,
+                                    mitilog_status (*row)(store_query *query, void *out,
                                                           mitilog_error *error),
                                     void *out, mitilog_error *error)
 {
     if (st == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "%s: no store", what);
     pthread_mutex_lock(&st->reader_lock);
-    sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_prepare(st->reader, name, &statement, error);
-    if (status == MITILOG_OK)
-        status = backfill_bind(statement, values, count, what, error);
-    if (status == MITILOG_OK) {
-        int rc = sqlite3_step(statement);
-        if (rc == SQLITE_ROW)
-            status = row(statement, out, error);
-        else if (rc != SQLITE_DONE)
-            status = store_sql_error(error, st->reader, what);
-    }
-    sqlite3_finalize(statement);
+    store_query query;
+    store_query_begin(&query, &st->reader, name);
+    backfill_bind(&query, values, count);
+    mitilog_status status = MITILOG_OK;
+    if (store_query_step(&query))
+        status = row(&query, out, error);
+    if (store_query_end(&query) != MITILOG_OK && status == MITILOG_OK)
+        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: %s", what, query.error.text);
     pthread_mutex_unlock(&st->reader_lock);
     return status;
 }
 
-static mitilog_status backfill_row_state(sqlite3_stmt *statement, void *out, mitilog_error *error)
+static mitilog_status backfill_row_state(store_query *query, void *out, mitilog_error *error)
 {
     (void)error;
-    const unsigned char *text = sqlite3_column_text(statement, 0);
-    snprintf((char *)out, 16, "%s", text != NULL ? (const char *)text : "");
+    const char *text = store_column_text(query, 0);
+    snprintf((char *)out, 16, "%s", text != NULL ? text : "");
     return MITILOG_OK;
 }
 
-static mitilog_status backfill_row_count(sqlite3_stmt *statement, void *out, mitilog_error *error)
+static mitilog_status backfill_row_count(store_query *query, void *out, mitilog_error *error)
 {
     (void)error;
-    *(long *)out = (long)sqlite3_column_int64(statement, 0);
+    *(long *)out = (long)store_column_integer(query, 0);
     return MITILOG_OK;
 }
 
@@ -276,57 +268,55 @@ mitilog_status store_backfill_study_instances(store *st, const char *study_insta
                          "backfill: count a study's instances", backfill_row_count, count, error);
 }
 
-static void backfill_json_text(json_writer *writer, const char *key, sqlite3_stmt *statement,
-                               int column)
+static void backfill_json_text(json_writer *writer, const char *key, store_query *query, int column)
 {
     json_key(writer, key);
-    const unsigned char *text = sqlite3_column_text(statement, column);
+    const char *text = store_column_text(query, column);
     if (text == NULL)
         json_null(writer);
     else
-        json_string(writer, (const char *)text);
+        json_string(writer, text);
 }
 
-static mitilog_status backfill_row_json(sqlite3_stmt *statement, void *out, mitilog_error *error)
+static mitilog_status backfill_row_json(store_query *query, void *out, mitilog_error *error)
 {
     json_writer writer;
     json_writer_init(&writer);
     json_object_begin(&writer);
-    backfill_json_text(&writer, "source", statement, 1);
-    backfill_json_text(&writer, "state", statement, 2);
-    backfill_json_text(&writer, "message", statement, 3);
+    backfill_json_text(&writer, "source", query, 1);
+    backfill_json_text(&writer, "state", query, 2);
+    backfill_json_text(&writer, "message", query, 3);
     json_key(&writer, "run");
     json_object_begin(&writer);
     json_key(&writer, "studies_found");
-    json_integer(&writer, sqlite3_column_int64(statement, 4));
+    json_integer(&writer, store_column_integer(query, 4));
     json_key(&writer, "studies_done");
-    json_integer(&writer, sqlite3_column_int64(statement, 5));
+    json_integer(&writer, store_column_integer(query, 5));
     json_key(&writer, "studies_failed");
-    json_integer(&writer, sqlite3_column_int64(statement, 6));
+    json_integer(&writer, store_column_integer(query, 6));
     json_key(&writer, "objects");
-    json_integer(&writer, sqlite3_column_int64(statement, 7));
+    json_integer(&writer, store_column_integer(query, 7));
     json_object_end(&writer);
     json_key(&writer, "objects_per_minute");
-    json_number(&writer, sqlite3_column_type(statement, 8) != SQLITE_NULL,
-                sqlite3_column_double(statement, 8));
+    json_number(&writer, !store_column_is_null(query, 8), store_column_real(query, 8));
     json_key(&writer, "seconds_left");
-    if (sqlite3_column_type(statement, 9) == SQLITE_NULL)
+    if (store_column_is_null(query, 9))
         json_null(&writer);
     else
-        json_integer(&writer, sqlite3_column_int64(statement, 9));
-    backfill_json_text(&writer, "started_at", statement, 10);
-    backfill_json_text(&writer, "updated_at", statement, 11);
-    backfill_json_text(&writer, "finished_at", statement, 12);
+        json_integer(&writer, store_column_integer(query, 9));
+    backfill_json_text(&writer, "started_at", query, 10);
+    backfill_json_text(&writer, "updated_at", query, 11);
+    backfill_json_text(&writer, "finished_at", query, 12);
     json_key(&writer, "source_totals");
     json_object_begin(&writer);
     json_key(&writer, "studies");
-    json_integer(&writer, sqlite3_column_int64(statement, 13));
+    json_integer(&writer, store_column_integer(query, 13));
     json_key(&writer, "studies_done");
-    json_integer(&writer, sqlite3_column_int64(statement, 14));
+    json_integer(&writer, store_column_integer(query, 14));
     json_key(&writer, "studies_failed");
-    json_integer(&writer, sqlite3_column_int64(statement, 15));
+    json_integer(&writer, store_column_integer(query, 15));
     json_key(&writer, "objects_stored");
-    json_integer(&writer, sqlite3_column_int64(statement, 16));
+    json_integer(&writer, store_column_integer(query, 16));
     json_object_end(&writer);
     json_object_end(&writer);
     mitilog_status status = json_writer_take(&writer, (char **)out, error);
