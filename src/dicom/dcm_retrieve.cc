@@ -99,8 +99,8 @@ class RetrieveSCU : public DcmSCU
             E_TransferSyntax xfer = incomingObject->getOriginalXfer();
             if (xfer == EXS_Unknown)
                 xfer = EXS_LittleEndianExplicit;
-            DcmFileFormat file(incomingObject);
-            delete incomingObject;
+            /* The file takes the data set over (no copy of its pixels). */
+            DcmFileFormat file(incomingObject, OFFalse);
             incomingObject = NULL;
             if (ftruncate(spool_fd_, 0) != 0) {
                 return EC_Normal; /* answered A700: the PACS may retry */
