@@ -169,6 +169,7 @@ typedef struct backfill_worker {
     dcm_association *association;
     /* this study's objects as handled here (C-GET, listener) */
     long stored, failed, skipped;
+    int reconnect; /* the association failed: open another */
 } backfill_worker;
 
 static double backfill_clock(void)
@@ -473,8 +474,24 @@ static mitilog_status backfill_retrieve(backfill_worker *worker, const char *stu
  * (some sub-operations failed: counted apart), PS3.4 C.4.3.1.4. */
 static int backfill_status_ok(uint16_t status) { return status == 0x0000 || status == 0xB000; }
 
-/* Fetches what of study is not stored yet; fills counts and message.
- * Returns an association error (the worker reconnects). */
+/* The association failed during a study: the study fails with the
+ * reason, the worker opens a new association for the next one. */
+static mitilog_status backfill_lost(backfill_worker *worker, int *ok, char *message,
+                                    size_t message_size, const mitilog_error *error)
+{
+    *ok = 0;
+    worker->reconnect = 1;
+    snprintf(message, message_size, "%s", error->text);
+    for (char *c = message; *c != '\0'; c++)
+        if (*c == '\n' || *c == '\r')
+            *c = ' '; /* DCMTK's texts span lines; a message is one */
+    return MITILOG_OK;
+}
+
+/* Fetches what of study is not stored yet; fills counts and message. An
+ * association that fails (lost, timed out, a stream the PACS broke)
+ * makes the study fail with the reason in message and sets
+ * worker->reconnect; what is returned is a database error. */
 static mitilog_status backfill_study(backfill_worker *worker, const dcm_study_match *study, int *ok,
                                      long *pacs_completed, long *pacs_failed, long *already,
                                      char *message, size_t message_size, mitilog_error *error)
@@ -492,7 +509,7 @@ static mitilog_status backfill_study(backfill_worker *worker, const dcm_study_ma
     if (stored_before == 0) {
         status = backfill_retrieve(worker, uid, NULL, NULL, &result, error);
         if (status != MITILOG_OK)
-            return status;
+            return backfill_lost(worker, ok, message, message_size, error);
         *pacs_completed = result.completed > 0 ? result.completed : 0;
         *pacs_failed = result.failed > 0 ? result.failed : 0;
         if (!backfill_status_ok(result.status)) {
@@ -508,7 +525,7 @@ static mitilog_status backfill_study(backfill_worker *worker, const dcm_study_ma
     size_t count = 0;
     status = dcm_association_find_instances(worker->association, uid, &instances, &count, error);
     if (status != MITILOG_OK)
-        return status;
+        return backfill_lost(worker, ok, message, message_size, error);
     long missing = 0;
     for (size_t i = 0; status == MITILOG_OK && i < count; i++) {
         int known = 0;
@@ -523,8 +540,11 @@ static mitilog_status backfill_study(backfill_worker *worker, const dcm_study_ma
         missing++;
         status = backfill_retrieve(worker, uid, instances[i].series_instance_uid,
                                    instances[i].sop_instance_uid, &result, error);
-        if (status != MITILOG_OK)
+        if (status != MITILOG_OK) {
+            status = backfill_lost(worker, ok, message, message_size, error);
+            missing = -1; /* not all there: no rebuild of its own */
             break;
+        }
         *pacs_completed += result.completed > 0 ? result.completed : 0;
         *pacs_failed += result.failed > 0 ? result.failed : 0;
         if (!backfill_status_ok(result.status) && *ok) {
@@ -567,7 +587,7 @@ static mitilog_status backfill_one(backfill_worker *worker, const dcm_study_matc
     worker->stored = worker->failed = worker->skipped = 0;
     int ok = 1;
     long completed = 0, pacs_failed = 0, already = 0;
-    char message[400];
+    char message[MITILOG_ERROR_TEXT_SIZE + 400];
     status = backfill_study(worker, study, &ok, &completed, &pacs_failed, &already, message,
                             sizeof message, error);
     if (status != MITILOG_OK)
@@ -637,6 +657,11 @@ static void *backfill_worker_thread(void *argument)
                 &worker->association, &error);
         if (status == MITILOG_OK)
             status = backfill_one(worker, &run->studies[index], &error);
+        if (status == MITILOG_OK && worker->reconnect) {
+            dcm_association_close(worker->association);
+            worker->association = NULL;
+            worker->reconnect = 0;
+        }
         if (status != MITILOG_OK) {
             /* The association (or the database) failed: stop here; the
              * study stays as it is for the next run. */
@@ -834,7 +859,7 @@ mitilog_status backfill_run(const backfill_settings *settings, store *store, ing
         if (wanted > BACKFILL_CONCURRENCY_MAX)
             wanted = BACKFILL_CONCURRENCY_MAX;
         for (; started < wanted; started++) {
-            workers[started] = (backfill_worker){&run, started, NULL, 0, 0, 0};
+            workers[started] = (backfill_worker){&run, started, NULL, 0, 0, 0, 0};
             if (pthread_create(&threads[started], NULL, backfill_worker_thread,
                                &workers[started]) != 0)
                 break;

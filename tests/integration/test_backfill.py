@@ -48,14 +48,16 @@ def studies(tmp_path_factory):
     folders = sorted((len(os.listdir(day / name)), name) for name in os.listdir(day))
     chosen = [str(day / name) for _, name in folders[:3]]
     files = [os.path.join(folder, f) for folder in chosen for f in sorted(os.listdir(folder))]
-    return dict(folders=chosen, files=files)
+    fourth = str(day / folders[3][1])
+    return dict(folders=chosen, files=files,
+                fourth=[os.path.join(fourth, f) for f in sorted(os.listdir(fourth))])
 
 
 class Pacs:
     """One dcmqrscp: AE ARCHIVE, an index folder in tmp, -v log (a line
     "Store SCU RQ" per storage sub-operation it sends)."""
 
-    def __init__(self, workdir, destinations=()):
+    def __init__(self, workdir, destinations=(), options=()):
         self.workdir = str(workdir)
         os.makedirs(os.path.join(self.workdir, "archive"), exist_ok=True)
         self.port = free_port()
@@ -69,7 +71,10 @@ class Pacs:
                     % (self.port, hosts, PACS_AE, os.path.join(self.workdir, "archive")))
         self.log_path = os.path.join(self.workdir, "dcmqrscp.log")
         self._log = open(self.log_path, "ab")
-        self.process = subprocess.Popen(["dcmqrscp", "-v", "-c", self.config],
+        self.start(options)
+
+    def start(self, options=()):
+        self.process = subprocess.Popen(["dcmqrscp", "-v"] + list(options) + ["-c", self.config],
                                         stdout=self._log, stderr=self._log, env=DCMTK_ENV)
         deadline = time.monotonic() + 20
         while echoscu(self.port, called=PACS_AE).returncode != 0:
@@ -93,6 +98,11 @@ class Pacs:
 
     def queries(self):
         return self.log().count("Received Find SCP")
+
+    def restart(self, options=()):
+        self.process.terminate()
+        self.process.wait(timeout=30)
+        self.start(options)
 
     def stop(self):
         if self.process.poll() is None:
@@ -462,3 +472,49 @@ def test_sigterm_records_the_stop(daemon_factory, pacs_factory):
         assert db.execute("SELECT state FROM backfill_runs").fetchall() == [("interrupted",)]
     resumed = backfill(daemon, pacs, "--rate", "0")
     assert resumed.returncode == 0, resumed.stdout + resumed.stderr
+
+
+def test_a_study_the_pacs_cannot_send_fails_and_the_rest_goes_on(daemon_factory, pacs_factory,
+                                                                 studies, tmp_path,
+                                                                 direct_records):
+    pacs = pacs_factory()
+    # A fourth study kept RLE-compressed (dcmcrle, DCMTK's RLE encoder;
+    # stored through dcmqrscp started to prefer RLE, +xr). dcmqrscp sends
+    # a C-GET sub-operation on the first context accepted for the class
+    # and cannot decompress (its log: "unable to convert"), so that
+    # study's images fail while the other studies are sent.
+    compressed = tmp_path / "rle"
+    compressed.mkdir()
+    for path in studies["fourth"]:
+        target = str(compressed / os.path.basename(path))
+        if run(["dcmcrle", path, target]).returncode != 0:
+            shutil.copy(path, target)    # an SR: no pixel data to encode
+    pacs.restart(["+xr"])
+    sent = run(["storescu", "-xr", "-aec", PACS_AE, "-aet", "FILLER", "127.0.0.1",
+                str(pacs.port)] + sorted(str(p) for p in compressed.iterdir()), timeout=300)
+    assert sent.returncode == 0, sent.stderr
+    pacs.restart()
+    daemon = daemon_factory("partial")
+    done = backfill(daemon, pacs, "--rate", "0")
+    # common practice, no source: a failed study makes the run exit 1 and
+    # says so; the other studies are done (PS3.4 C.4.3.1.4: failed
+    # sub-operations are counted in the final response)
+    assert done.returncode == 1, done.stdout + done.stderr
+    assert "4 studies found, 3 done, 0 already done before, 1 failed" in done.stdout, done.stdout
+    with sqlite3.connect(daemon.database) as db:
+        failed = db.execute("SELECT message, attempts FROM backfill_studies "
+                            "WHERE state = 'failed'").fetchall()
+        done_uids = {r[0] for r in db.execute(
+            "SELECT study_instance_uid FROM backfill_studies WHERE state = 'done'")}
+    assert len(failed) == 1 and failed[0][1] == 1
+    assert "\n" not in failed[0][0] and ("PACS" in failed[0][0] or "not stored" in failed[0][0])
+    instances, _ = records(daemon.database)
+    assert done_uids == {i["study_instance_uid"] for i in direct_records[0]}
+    assert [i for i in instances if i["study_instance_uid"] in done_uids] == direct_records[0]
+    # The next run tries the failed study again, and only that one.
+    again = backfill(daemon, pacs, "--rate", "0")
+    assert again.returncode == 1
+    assert "4 studies found, 0 done, 3 already done before, 1 failed" in again.stdout, again.stdout
+    with sqlite3.connect(daemon.database) as db:
+        assert db.execute("SELECT attempts FROM backfill_studies WHERE state = 'failed'"
+                          ).fetchall() == [(2,)]
