@@ -880,6 +880,54 @@ static void studies_aggregate(void **state)
     free(json);
 }
 
+/* The statement layer (store_statement.h): a parameter the SQL file does
+ * not have fails the query and names it, instead of being skipped; the
+ * binds after it do nothing; the statement is cached per connection
+ * (the same statement again) and the remembered parameter index answers
+ * as the engine does; an engine without its own text for a file gets the
+ * common one. Common practice, no source. */
+static void statement_layer_binds_and_caches(void **state)
+{
+    fixture *f = *state;
+    store_link *reader = &f->store->reader;
+    store_query query;
+    assert_int_equal(store_query_begin(&query, reader, "queries/findings/study_context.sql"),
+                     MITILOG_OK);
+    store_statement *first = query.statement;
+    store_bind_text(&query, ":no_such_parameter", "x");
+    assert_int_equal(query.status, MITILOG_ERROR_DATABASE);
+    assert_non_null(strstr(query.error.text, ":no_such_parameter"));
+    store_bind_text_at(&query, 1, "later binds are skipped");
+    assert_int_equal(store_query_step(&query), 0);
+    assert_int_equal(store_query_end(&query), MITILOG_ERROR_DATABASE);
+
+    assert_int_equal(store_query_begin(&query, reader, "queries/findings/policy_json.sql"),
+                     MITILOG_OK);
+    assert_int_equal(store_query_end(&query), MITILOG_OK);
+    assert_int_equal(store_query_begin(&query, reader, "queries/findings/study_context.sql"),
+                     MITILOG_OK);
+    assert_ptr_equal(query.statement, first);
+    store_query_end(&query);
+
+    assert_int_equal(store_query_begin(&query, reader, "queries/reviews/review_insert.sql"),
+                     MITILOG_OK);
+    for (int twice = 0; twice < 2; twice++) {
+        assert_true(store_query_has_parameter(&query, "?3"));
+        assert_false(store_query_has_parameter(&query, "?7"));
+    }
+    store_query_end(&query);
+    assert_int_equal(store_query_begin(&query, reader, "queries/no_such/file.sql"),
+                     MITILOG_ERROR_DATABASE);
+    assert_non_null(strstr(query.error.text, "queries/no_such/file.sql"));
+    store_query_end(&query);
+
+    store_engine other = store_engine_sqlite;
+    other.name = "postgresql";
+    assert_ptr_equal(store_sql_text(&other, "queries/findings/findings.sql"),
+                     sql_file_text("queries/findings/findings.sql"));
+    assert_null(store_sql_text(&other, "queries/findings/no_such.sql"));
+}
+
 static void health_counts(void **state)
 {
     fixture *f = *state;
@@ -1177,6 +1225,8 @@ int main(void)
         cmocka_unit_test_setup_teardown(bad_input_is_refused, fixture_setup, fixture_teardown),
         cmocka_unit_test_setup_teardown(studies_aggregate, fixture_setup, fixture_teardown),
         cmocka_unit_test_setup_teardown(health_counts, fixture_setup, fixture_teardown),
+        cmocka_unit_test_setup_teardown(statement_layer_binds_and_caches, fixture_setup,
+                                        fixture_teardown),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
