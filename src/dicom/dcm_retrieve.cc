@@ -25,7 +25,7 @@
 #include <unistd.h>
 
 /* The storage classes of an ultrasound study, accepted in the SCP role
- * for C-GET (PS3.4 C.4.3.3: the SCU proposes the storage classes it will
+ * for C-GET (PS3.4 C.4.3: the SCU proposes the storage classes it will
  * receive, with SCP role selection, PS3.7 D.3.3.4). */
 static const char *const dcm_retrieve_storage_classes[] = {
     UID_UltrasoundImageStorage,

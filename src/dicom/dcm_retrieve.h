@@ -54,7 +54,7 @@ typedef uint16_t (*dcm_retrieved_handler)(void *context, const dcm_retrieved *ob
 typedef struct dcm_association dcm_association;
 
 /* Connects and negotiates: Study Root FIND, and GET (with the storage
- * classes of ultrasound studies in the SCP role, PS3.4 C.4.3.3) or MOVE.
+ * classes of ultrasound studies in the SCP role, PS3.4 C.4.3) or MOVE.
  * Errors in plain words: the PACS cannot be reached, refused the
  * association, or accepted none of the services asked for. handler may
  * be NULL for MOVE. */

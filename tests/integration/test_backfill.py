@@ -412,7 +412,7 @@ def test_station_is_matched_on_the_retrieved_objects(daemon_factory, pacs_factor
                                                       direct_records):
     pacs = pacs_factory()
     daemon = daemon_factory("station")
-    # Station Name is no study-level key (PS3.4 C.6.2.1): whole studies
+    # Station Name is no study-level key (PS3.4 C.6.2): whole studies
     # are fetched and only the objects of the station are kept.
     kept = [i for i in direct_records[0] if (i["station_name"] or "").startswith("US-ROOM-3")]
     assert 0 < len(kept) < len(direct_records[0])
