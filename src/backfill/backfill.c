@@ -833,6 +833,8 @@ mitilog_status backfill_run(const backfill_settings *settings, store *store, ing
         server.acse_timeout_seconds = settings->connect_timeout_seconds;
         server.dimse_timeout_seconds = settings->dimse_timeout_seconds;
         server.max_pdu = settings->dicom_max_pdu;
+        server.max_object_bytes = settings->max_object_bytes;
+        server.max_memory_in_flight_bytes = settings->max_memory_in_flight_bytes;
         status = dcm_server_create(&server, backfill_on_moved, &run, &listener, error);
         if (status == MITILOG_OK)
             status = dcm_server_start(listener, error);

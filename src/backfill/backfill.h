@@ -30,6 +30,9 @@ typedef struct backfill_settings {
     const char *move_destination; /* C-MOVE destination AE title */
     unsigned move_listen_port;    /* 0: the daemon receives moved objects */
     unsigned dicom_max_pdu;       /* PDU size of the listener and association */
+    /* the listener's limits, as [dicom]'s for the daemon (0 = none) */
+    unsigned long long max_object_bytes;
+    unsigned long long max_memory_in_flight_bytes;
     unsigned dimse_timeout_seconds;
     unsigned connect_timeout_seconds;
     char date_from[9]; /* YYYYMMDD */

@@ -215,6 +215,8 @@ int command_backfill(int argc, char **argv)
         goto done;
     }
     settings.dicom_max_pdu = config.max_pdu_bytes;
+    settings.max_object_bytes = config.max_object_bytes;
+    settings.max_memory_in_flight_bytes = config.max_memory_in_flight_bytes;
     settings.dimse_timeout_seconds = config.dimse_timeout_seconds;
     settings.connect_timeout_seconds = config.backfill_connect_timeout_seconds;
 
