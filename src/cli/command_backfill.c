@@ -1,11 +1,14 @@
 /* mitilog backfill --from AE@HOST:PORT --since DATE --until DATE ...:
  * past ultrasound studies from the PACS through the ingest pipeline
  * (src/backfill/backfill.h, docs/backfill.md). */
+#include <errno.h>
+#include <fcntl.h>
 #include <pthread.h>
 #include <signal.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/file.h>
 #include <unistd.h>
 
 #include "backfill/backfill.h"
@@ -68,6 +71,29 @@ static void *backfill_stop_thread(void *argument)
     fprintf(stderr, "mitilog backfill: %s (%s)\n", message, strsignal(received));
     fflush(stdout);
     _exit(EXIT_STATUS_FAILURE);
+}
+
+/* One backfill per database at a time: two would fetch the same studies.
+ * The lock goes with the process, also when it is killed. Returns the
+ * descriptor holding it, or -1 (said on stderr). */
+static int backfill_lock(const char *data_directory)
+{
+    char path[4096];
+    snprintf(path, sizeof path, "%s/backfill.lock", data_directory);
+    int fd = open(path, O_RDWR | O_CREAT | O_CLOEXEC, 0640);
+    if (fd < 0) {
+        fprintf(stderr, "mitilog backfill: cannot open %s: %s\n", path, strerror(errno));
+        return -1;
+    }
+    if (flock(fd, LOCK_EX | LOCK_NB) != 0) {
+        fprintf(stderr,
+                "mitilog backfill: another backfill is running on this database (it holds %s); "
+                "wait for it to end, or stop it first\n",
+                path);
+        close(fd);
+        return -1;
+    }
+    return fd;
 }
 
 /* "N", "N/min" into *value. */
@@ -154,6 +180,7 @@ int command_backfill(int argc, char **argv)
     backfill_stopper stopper;
     pthread_t stop_thread;
     int stop_started = 0;
+    int lock = -1;
     const char *source = from != NULL ? from : config.backfill_source;
     if (source[0] == '\0') {
         fprintf(stderr, "mitilog backfill: no PACS given: add --from AE@HOST:PORT (or [backfill] "
@@ -229,8 +256,14 @@ int command_backfill(int argc, char **argv)
     pthread_sigmask(SIG_BLOCK, &stopper.signals, NULL);
     stopper.store = NULL;
     if (dcm_initialise(LOG_LEVEL_WARNING, &error) != MITILOG_OK ||
-        cli_prepare_data_directory(&config, &error) != 0 ||
-        store_open(config.database_path, (int)config.busy_timeout_ms, &store, &error) !=
+        cli_prepare_data_directory(&config, &error) != 0) {
+        log_error("backfill: %s", error.text);
+        goto done;
+    }
+    lock = backfill_lock(config.data_directory);
+    if (lock < 0)
+        goto done;
+    if (store_open(config.database_path, (int)config.busy_timeout_ms, &store, &error) !=
             MITILOG_OK ||
         ingest_create(&config, store, &pipeline, &error) != MITILOG_OK) {
         log_error("backfill: %s", error.text);
@@ -258,6 +291,8 @@ done:
     }
     ingest_free(pipeline);
     store_close(store);
+    if (lock >= 0)
+        close(lock);
     config_free(&config);
     return status;
 }

@@ -274,9 +274,14 @@ def test_outside_the_window_it_waits_and_says_so(daemon_factory, pacs_factory):
                                env=DCMTK_ENV)
     try:
         line = process.stdout.readline()
+        # Meanwhile a second backfill on the same database refuses to run
+        # (it would fetch the same studies): common practice, no source.
+        second = backfill(daemon, pacs)
     finally:
         process.kill()
         process.wait()
+    assert second.returncode == 1
+    assert "another backfill is running on this database" in second.stderr, second.stderr
     # common practice, no source: the wait is said in words, with the time
     # it ends; nothing is asked of the PACS meanwhile, not even the query.
     assert "outside the backfill window %s (local time): waiting until %s" % (
