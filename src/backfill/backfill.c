@@ -151,7 +151,6 @@ typedef struct backfill_run_state {
     dcm_study_match *studies; /* the studies to do, in the PACS's order */
     size_t study_count;
     size_t next_study;
-    int workers_running;
     backfill_totals totals;                   /* under lock */
     long objects_this_run;                    /* under lock */
     long studies_this_run;                    /* done or failed in this run, under lock */
@@ -348,7 +347,9 @@ static void backfill_progress_locked(backfill_run_state *run, store_backfill_pro
     if (progress->objects_per_minute >= 0)
         snprintf(rate, sizeof rate, "%.1f objects/min", progress->objects_per_minute);
     char left[48] = "time left not known yet";
-    if (progress->seconds_left >= 0) {
+    if (progress->finished) {
+        snprintf(left, sizeof left, "in %.0f s", now - run->started);
+    } else if (progress->seconds_left >= 0) {
         long s = progress->seconds_left;
         if (s < 120)
             snprintf(left, sizeof left, "about %ld s left", s);
