@@ -195,8 +195,10 @@ def test_move_to_own_listener_and_to_the_daemon(daemon_factory, pacs_factory, st
     # PS3.4 C.4.2: the PACS opens its own associations to the destination
     # AE; dcmqrscp finds its address in its HostTable.
     pacs = pacs_factory("pacs", destinations=[(AE_TITLE, listener_port)])
+    # Two studies at once, each on its own association (the PACS opens a
+    # sub-association per C-MOVE to the same listener).
     moved = backfill(daemon, pacs, "--rate", "0", "--retrieve", "move",
-                     "--move-listen-port", str(listener_port))
+                     "--move-listen-port", str(listener_port), "--concurrency", "2")
     assert moved.returncode == 0, moved.stdout + moved.stderr
     assert pacs.sub_operations() == len(studies["files"])
     assert records(daemon.database) == direct_records
