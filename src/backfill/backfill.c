@@ -782,10 +782,12 @@ static mitilog_status backfill_find(backfill_run_state *run, mitilog_error *erro
         dcm_study_matches_free(matches, count);
         return status;
     }
+    pthread_mutex_lock(&run->lock); /* the progress thread reads them */
     run->studies = matches;
     run->study_count = count;
     run->totals.studies_found = (long)found;
     run->totals.studies_already_done = already;
+    pthread_mutex_unlock(&run->lock);
     return MITILOG_OK;
 }
 
