@@ -147,15 +147,15 @@ static mitilog_status dcm_retrieve_add_contexts(RetrieveSCU *scu, dcm_retrieve_m
     uncompressed.push_back(UID_LittleEndianExplicitTransferSyntax);
     uncompressed.push_back(UID_BigEndianExplicitTransferSyntax);
     uncompressed.push_back(UID_LittleEndianImplicitTransferSyntax);
-    OFList<OFString> implicit_only;
-    implicit_only.push_back(UID_LittleEndianExplicitTransferSyntax);
-    implicit_only.push_back(UID_LittleEndianImplicitTransferSyntax);
-    scu->addPresentationContext(UID_FINDStudyRootQueryRetrieveInformationModel, implicit_only);
+    OFList<OFString> little_endian;
+    little_endian.push_back(UID_LittleEndianExplicitTransferSyntax);
+    little_endian.push_back(UID_LittleEndianImplicitTransferSyntax);
+    scu->addPresentationContext(UID_FINDStudyRootQueryRetrieveInformationModel, little_endian);
     if (method == DCM_RETRIEVE_MOVE) {
-        scu->addPresentationContext(UID_MOVEStudyRootQueryRetrieveInformationModel, implicit_only);
+        scu->addPresentationContext(UID_MOVEStudyRootQueryRetrieveInformationModel, little_endian);
         return MITILOG_OK;
     }
-    scu->addPresentationContext(UID_GETStudyRootQueryRetrieveInformationModel, implicit_only);
+    scu->addPresentationContext(UID_GETStudyRootQueryRetrieveInformationModel, little_endian);
     for (const char *sop_class : dcm_retrieve_storage_classes) {
         scu->addPresentationContext(sop_class, uncompressed, ASC_SC_ROLE_SCP);
         for (const char *syntax : dcm_retrieve_encapsulated_syntaxes) {
