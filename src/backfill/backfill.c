@@ -253,6 +253,29 @@ static uint16_t backfill_count(backfill_run_state *run, backfill_worker *worker,
     return status;
 }
 
+/* Whether the object in the file at path belongs to the station filter:
+ * its Station Name as extraction reads it (UTF-8 after Specific
+ * Character Set), so that a pattern matches what the dashboard shows. An
+ * object that cannot be read is kept (the ingest then says why). */
+static int backfill_station_kept(const backfill_run_state *run, const char *path)
+{
+    if (run->settings->station[0] == '\0')
+        return 1;
+    dcm_object *loaded = NULL;
+    dcm_facts facts;
+    memset(&facts, 0, sizeof facts);
+    mitilog_error error;
+    int keep = 1;
+    if (dcm_object_load(path, &loaded, &error) == MITILOG_OK &&
+        dcm_object_facts(loaded, 1, &facts, &error) == MITILOG_OK) {
+        const char *station = facts.values[DCM_ATTRIBUTE_STATION_NAME];
+        keep = backfill_matches(run->settings->station, station != NULL ? station : "");
+    }
+    dcm_facts_free(&facts);
+    dcm_object_free(loaded);
+    return keep;
+}
+
 /* Objects of a C-GET (dcm_retrieved_handler): the same pipeline as a
  * received object. An object of another station is answered Success and
  * not kept (the filter the user asked for). */
@@ -260,7 +283,7 @@ static uint16_t backfill_on_retrieved(void *context, const dcm_retrieved *object
 {
     backfill_worker *worker = context;
     backfill_run_state *run = worker->run;
-    if (!backfill_matches(run->settings->station, object->station_name)) {
+    if (!backfill_station_kept(run, object->spool_path)) {
         worker->skipped++;
         pthread_mutex_lock(&run->lock);
         run->totals.objects_skipped++;
@@ -288,27 +311,12 @@ static uint16_t backfill_on_retrieved(void *context, const dcm_retrieved *object
 static uint16_t backfill_on_moved(void *context, const dcm_received *object)
 {
     backfill_run_state *run = context;
-    if (run->settings->station[0] != '\0') {
-        dcm_object *loaded = NULL;
-        dcm_facts facts;
-        memset(&facts, 0, sizeof facts);
-        mitilog_error error;
-        int keep = 1;
-        if (dcm_object_load(object->spool_path, &loaded, &error) == MITILOG_OK &&
-            dcm_object_facts(loaded, 1, &facts, &error) == MITILOG_OK)
-            keep = backfill_matches(run->settings->station,
-                                    facts.values[DCM_ATTRIBUTE_STATION_NAME] != NULL
-                                        ? facts.values[DCM_ATTRIBUTE_STATION_NAME]
-                                        : "");
-        dcm_facts_free(&facts);
-        dcm_object_free(loaded);
-        if (!keep) {
-            pthread_mutex_lock(&run->lock);
-            run->totals.objects_skipped++;
-            pthread_mutex_unlock(&run->lock);
-            backfill_pace(run);
-            return DCM_STATUS_SUCCESS;
-        }
+    if (!backfill_station_kept(run, object->spool_path)) {
+        pthread_mutex_lock(&run->lock);
+        run->totals.objects_skipped++;
+        pthread_mutex_unlock(&run->lock);
+        backfill_pace(run);
+        return DCM_STATUS_SUCCESS;
     }
     mitilog_error reason;
     ingest_source source = {object->spool_path,

@@ -92,10 +92,9 @@ class RetrieveSCU : public DcmSCU
         if (incomingObject == NULL)
             return EC_IllegalParameter;
         try {
-            OFString sop_class, sop_instance, station;
+            OFString sop_class, sop_instance;
             incomingObject->findAndGetOFString(DCM_SOPClassUID, sop_class);
             incomingObject->findAndGetOFString(DCM_SOPInstanceUID, sop_instance);
-            incomingObject->findAndGetOFStringArray(DCM_StationName, station);
             E_TransferSyntax xfer = incomingObject->getOriginalXfer();
             if (xfer == EXS_Unknown)
                 xfer = EXS_LittleEndianExplicit;
@@ -110,8 +109,7 @@ class RetrieveSCU : public DcmSCU
                 cStoreReturnStatus = STATUS_STORE_Error_CannotUnderstand;
                 return EC_Normal;
             }
-            dcm_retrieved object = {spool_path_, sop_class.c_str(), sop_instance.c_str(),
-                                    station.c_str()};
+            dcm_retrieved object = {spool_path_, sop_class.c_str(), sop_instance.c_str()};
             cStoreReturnStatus = handler_ != NULL ? handler_(context_, &object)
                                                   : STATUS_STORE_Refused_OutOfResources;
             if (ftruncate(spool_fd_, 0) != 0) {

@@ -43,7 +43,6 @@ typedef struct dcm_retrieved {
     const char *spool_path;
     const char *sop_class_uid;
     const char *sop_instance_uid;
-    const char *station_name; /* (0008,1010) as stored; "" when absent */
 } dcm_retrieved;
 
 /* Returns the C-STORE status to answer with (PS3.4 B.2.3: 0x0000
