@@ -4,6 +4,39 @@
 -- anything: the migrations make the schema; this file shows it whole, and
 -- tests/integration/test_schema.py checks that it is what they produce.
 -- Written by: MITILOG_BINARY=build/mitilog /usr/bin/python3 tests/integration/test_schema.py --write
+CREATE TABLE backfill_runs (
+    id                  INTEGER PRIMARY KEY,
+    source              TEXT NOT NULL,
+    state               TEXT NOT NULL,
+    message             TEXT NOT NULL DEFAULT '',
+    studies_found       INTEGER NOT NULL DEFAULT 0,
+    studies_done        INTEGER NOT NULL DEFAULT 0,
+    studies_failed      INTEGER NOT NULL DEFAULT 0,
+    objects             INTEGER NOT NULL DEFAULT 0,
+    objects_per_minute  REAL,
+    seconds_left        INTEGER,        -- NULL: not known yet
+    started_at          TEXT NOT NULL,
+    updated_at          TEXT NOT NULL,
+    finished_at         TEXT
+);
+CREATE TABLE backfill_studies (
+    source              TEXT NOT NULL,
+    study_instance_uid  TEXT NOT NULL,
+    state               TEXT NOT NULL CHECK (state IN ('found', 'retrieving', 'done', 'failed')),
+    study_date          TEXT,            -- YYYYMMDD as the PACS returned it
+    accession_number    TEXT,
+    study_description   TEXT,
+    expected_objects    INTEGER,         -- NULL: the PACS did not say
+    objects_stored      INTEGER NOT NULL DEFAULT 0,
+    objects_failed      INTEGER NOT NULL DEFAULT 0,
+    objects_skipped     INTEGER NOT NULL DEFAULT 0,
+    attempts            INTEGER NOT NULL DEFAULT 0,
+    message             TEXT NOT NULL DEFAULT '',
+    found_at            TEXT NOT NULL,
+    started_at          TEXT,
+    finished_at         TEXT,
+    PRIMARY KEY (source, study_instance_uid)
+);
 CREATE TABLE device_evaluations (
     rule_id          TEXT NOT NULL,
     policy_version   TEXT NOT NULL REFERENCES policies (version),
@@ -406,6 +439,7 @@ CREATE TABLE IF NOT EXISTS "sr_values" (
 CREATE TABLE ti_thresholds (
     threshold REAL PRIMARY KEY CHECK (threshold > 0)
 ) STRICT, WITHOUT ROWID;
+CREATE INDEX backfill_studies_state ON backfill_studies (source, state);
 CREATE UNIQUE INDEX exam_summaries_study ON exam_summaries (study_instance_uid);
 CREATE INDEX exam_summaries_with_findings ON exam_summaries (day) WHERE finding_count > 0;
 CREATE INDEX exam_time_at_or_above_study ON exam_time_at_or_above (study_instance_uid);

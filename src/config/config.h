@@ -73,6 +73,21 @@ typedef struct config {
     /* [rules] */
     char *rules_policy_path; /* the ALARA policy file (conf/policy.ini) */
 
+    /* [backfill] `mitilog backfill` (docs/backfill.md); the command line
+     * overrides each */
+    char *backfill_source;              /* "AE@HOST:PORT" or "" */
+    char *backfill_calling_ae_title;    /* "" = [dicom] ae_title */
+    char *backfill_retrieve;            /* "get" or "move" */
+    char *backfill_move_destination;    /* "" = [dicom] ae_title */
+    unsigned backfill_move_listen_port; /* 0 = the daemon receives */
+    unsigned backfill_rate_per_minute;  /* objects; 0 = no limit */
+    unsigned backfill_concurrency;      /* studies at once */
+    char *backfill_window;              /* "HH:MM-HH:MM" local, "" = any time */
+    char *backfill_station;             /* Station Name filter, "" = any */
+    char *backfill_description;         /* Study Description filter, "" = any */
+    unsigned backfill_progress_seconds;
+    unsigned backfill_connect_timeout_seconds;
+
     /* [service] */
     char *service_user; /* "" = keep the starting user */
 

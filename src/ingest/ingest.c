@@ -642,6 +642,11 @@ mitilog_status ingest_read_stored(ingest *ingest, const char *from, const char *
     return status;
 }
 
+void ingest_mark_study(ingest *ingest, const char *study_instance_uid)
+{
+    ingest_exams_mark(&ingest->exams, study_instance_uid);
+}
+
 uint16_t ingest_store_handler(void *context, const dcm_received *object)
 {
     ingest_source source = {object->spool_path,

@@ -67,6 +67,11 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
  * rebuilt (the exam worker, ingest_exam.c). ingest_free() also drains. */
 void ingest_flush(ingest *ingest);
 
+/* Queues a study's exam record for a rebuild, as a commit of one of its
+ * instances does (the backfill, for a study whose objects were all
+ * stored by an earlier, interrupted run). */
+void ingest_mark_study(ingest *ingest, const char *study_instance_uid);
+
 /* The site rules the ingest was created with (borrowed). */
 const struct ext_site_rules *ingest_site_rules(const ingest *ingest);
 
