@@ -115,19 +115,23 @@ static int serve_start(serve_state *state, mitilog_error *error)
             MITILOG_OK ||
         dcm_server_start(state->dicom, error) != MITILOG_OK)
         return -1;
-    http_settings web = {.address = config->http_address,
-                         .port = config->http_port,
-                         .web_root = config->web_root,
-                         .tls_certificate_file = config->http_tls_certificate,
-                         .tls_private_key_file = config->http_tls_private_key,
-                         .password_file = config->http_password_file,
-                         .max_connections = config->http_max_connections,
-                         .max_connections_per_address =
-                             config->http_max_connections_per_address != 0
-                                 ? config->http_max_connections_per_address
-                                 : HTTP_SETTINGS_UNLIMITED,
-                         .request_timeout_seconds = config->http_request_timeout_seconds,
-                         .institution = config->site_institution};
+    http_settings web = {
+        .address = config->http_address,
+        .port = config->http_port,
+        .web_root = config->web_root,
+        .tls_certificate_file = config->http_tls_certificate,
+        .tls_private_key_file = config->http_tls_private_key,
+        .password_file = config->http_password_file,
+        .max_connections = config->http_max_connections,
+        .max_connections_per_address = config->http_max_connections_per_address != 0
+                                           ? config->http_max_connections_per_address
+                                           : HTTP_SETTINGS_UNLIMITED,
+        .request_timeout_seconds = config->http_request_timeout_seconds,
+        .institution = config->site_institution,
+        .ingest = strcmp(config->dicomweb_enabled, "yes") == 0 ? state->ingest : NULL,
+        .stow_max_bytes =
+            (unsigned long long)config->dicomweb_max_request_megabytes * 1024ull * 1024ull,
+        .stow_max_parts = config->dicomweb_max_parts};
     if (http_server_start(&web, state->store, &state->http, error) != MITILOG_OK)
         return -1;
     /* Both ports are bound: root is no longer needed. */

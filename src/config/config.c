@@ -99,6 +99,14 @@ static const option options[] = {
      1, 600, NULL, 0,
      "Seconds a client has to send a whole request (TLS handshake, request line and headers), "
      "however slowly it sends each byte; then the connection is closed."},
+    {"dicomweb", "enabled", OPTION_CHOICE, FIELD(dicomweb_enabled), "no", 0, 0, "|yes|no|", 0,
+     "yes: accept objects by DICOMweb STOW-RS at POST /dicomweb/studies (needs [http] "
+     "password_file and a user with the role sender)."},
+    {"dicomweb", "max_request_megabytes", OPTION_UNSIGNED, FIELD(dicomweb_max_request_megabytes),
+     "256", 1, 4096, NULL, 0,
+     "Largest STOW-RS request body (MiB); a larger one is answered 413 without reading the rest."},
+    {"dicomweb", "max_parts", OPTION_UNSIGNED, FIELD(dicomweb_max_parts), "1000", 1, 100000, NULL,
+     0, "Objects in one STOW-RS request at most; more are answered 413, none stored."},
     {"storage", "data_directory", OPTION_STRING, FIELD(data_directory), "var", 0, 0, NULL, 1,
      "Folder for the database, quarantine/, objects/ (full copies) and reading/ (objects waiting "
      "to be read)."},
@@ -323,6 +331,12 @@ static void config_validate(load_state *state)
                  "proxy, or set allow_insecure_non_loopback = yes",
                  config->http_address);
         config_problem(state, "http", "address", reason);
+    }
+    if (strcmp(config->dicomweb_enabled, "yes") == 0 && !login) {
+        snprintf(reason, reason_size,
+                 "STOW-RS stores objects only for a signed-in sender: set [http] password_file "
+                 "(with HTTPS) and add a user with mitilog passwd --role sender");
+        config_problem(state, "dicomweb", "enabled", reason);
     }
     if (config->http_port == config->port) {
         snprintf(reason, reason_size, "the HTTP port equals the DICOM port %u", config->port);

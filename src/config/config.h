@@ -50,6 +50,11 @@ typedef struct config {
     unsigned http_max_connections_per_address; /* 0 = no per-address limit */
     unsigned http_request_timeout_seconds;
 
+    /* [dicomweb] STOW-RS (src/http/http_dicomweb.c) */
+    char *dicomweb_enabled; /* "yes" or "no" */
+    unsigned dicomweb_max_request_megabytes;
+    unsigned dicomweb_max_parts;
+
     /* [storage] */
     char *data_directory;
     char *database_path; /* default: data_directory/mitilog.sqlite3 */
