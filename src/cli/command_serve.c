@@ -15,6 +15,7 @@
 #include "dicom/dcm.h"
 #include "http/http.h"
 #include "ingest/ingest.h"
+#include "notify/notify.h"
 #include "store/store.h"
 #include "util/log.h"
 
@@ -34,6 +35,7 @@ typedef struct serve_state {
     ingest *ingest;
     dcm_server *dicom;
     http_server *http;
+    notify *notify;
     config_peer *peers;
     dcm_allowed_peer *allowed;
 } serve_state;
@@ -47,6 +49,7 @@ static void serve_stop(serve_state *state)
     if (state->http != NULL)
         http_server_stop(state->http);
     ingest_free(state->ingest);
+    notify_stop(state->notify);
     store_close(state->store);
     free(state->allowed);
     free(state->peers);
@@ -75,6 +78,9 @@ static int serve_start(serve_state *state, mitilog_error *error)
                                  ? STORE_DURABILITY_PROCESS
                                  : STORE_DURABILITY_POWER_LOSS,
                              error) != MITILOG_OK)
+        return -1;
+    /* Before the ingest: its exam worker writes the findings it queues. */
+    if (notify_start(config, state->store, &state->notify, error) != MITILOG_OK)
         return -1;
     if (ingest_create(config, state->store, &state->ingest, error) != MITILOG_OK)
         return -1;

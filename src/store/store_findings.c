@@ -14,6 +14,7 @@
  * and evaluated_at included.
  */
 #include "store/store_internal.h"
+#include "store/store_notifications.h"
 
 #include <stdarg.h>
 #include <stdio.h>
@@ -549,6 +550,9 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
             rc = store_insert_finding(st, insert, e, &e->findings[i]);
             written++;
         }
+        /* Findings to notify, in the same transaction (the outbox). */
+        if (rc == SQLITE_OK && e->finding_count > 0)
+            rc = store_notifications_enqueue(st, e);
         if (rc == SQLITE_OK && exam) {
             rc = store_write_measurements(st, values, e, hash);
             if (rc == SQLITE_OK)

@@ -103,6 +103,11 @@ struct store {
 
     pthread_mutex_t parameter_lock;
     hash_table parameter_indices; /* under parameter_lock          */
+
+    /* Findings queued for notification (store_notifications.c); set
+     * before any evaluation is written, read-only afterwards. */
+    int notify_minimum_rank; /* 0: none */
+    int notify_webhook, notify_syslog;
 };
 
 /* store_write.c: runs request (with its custom write) in a batch of the
