@@ -34,6 +34,7 @@ struct notify {
     unsigned timeout_seconds, retry_initial, retry_max, max_attempts;
     pthread_t thread;
     int started;
+    int curl_started; /* curl_global_init() was called */
     pthread_mutex_t lock;
     pthread_cond_t wake;
     int stopping; /* under lock */
@@ -379,6 +380,8 @@ void notify_stop(notify *n)
     free(n->syslog_socket);
     free(n->dashboard_url);
     free(n->site);
+    if (n->curl_started)
+        curl_global_cleanup();
     free(n);
 }
 
@@ -391,13 +394,19 @@ mitilog_status notify_start(const config *config, store *st, notify **out, mitil
                                   syslog);
     if (!webhook && !syslog)
         return MITILOG_OK;
-    if (webhook && curl_global_init(CURL_GLOBAL_DEFAULT) != CURLE_OK)
-        return mitilog_error_set(error, MITILOG_ERROR_IO, "notifications: libcurl did not start");
     notify *n = calloc(1, sizeof *n);
     if (n == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "notifications: out of memory");
     pthread_mutex_init(&n->lock, NULL);
     pthread_cond_init(&n->wake, NULL);
+    if (webhook) {
+        if (curl_global_init(CURL_GLOBAL_DEFAULT) != CURLE_OK) {
+            notify_stop(n);
+            return mitilog_error_set(error, MITILOG_ERROR_IO,
+                                     "notifications: libcurl did not start");
+        }
+        n->curl_started = 1;
+    }
     n->store = st;
     n->webhook_url = webhook ? notify_copy(config->notify_webhook_url) : NULL;
     n->webhook_ca = notify_copy(config->notify_webhook_ca);

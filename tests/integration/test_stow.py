@@ -12,6 +12,7 @@ attributes are those PS3.18 section 10.5.3 names.
 import base64
 import email.policy
 import http.client
+import io
 import json
 import os
 import shutil
@@ -165,6 +166,22 @@ def instance_rows(daemon, sop_uids):
         return rows
 
 
+def header_copies(daemon, sop_uids):
+    """The data sets of the kept header copies, read by pydicom; the file
+    meta information is left out, since a C-STORE receiver writes its own
+    (PS3.10 7.1: the implementation that writes the file names itself)."""
+    copies = {}
+    with daemon.db() as db:
+        for uid in sop_uids:
+            row = db.execute("SELECT h.bytes FROM instance_headers h JOIN instances i "
+                             "ON i.id = h.instance_id WHERE i.sop_instance_uid = ?",
+                             (uid,)).fetchone()
+            assert row is not None, uid  # retention header keeps a copy
+            ds = pydicom.dcmread(io.BytesIO(row[0]))
+            copies[uid] = [(element.tag, element.VR, element.value) for element in ds]
+    return copies
+
+
 def test_python_email_body_is_stored_like_storescu(stow, fixtures, daemon_factory):
     entries = good_files(fixtures, 3)
     parts = [open(e["path"], "rb").read() for e in entries]
@@ -188,6 +205,15 @@ def test_python_email_body_is_stored_like_storescu(stow, fixtures, daemon_factor
     assert sent.returncode == 0, sent.stderr
     sop_uids = [e["sop_instance_uid"] for e in entries]
     assert instance_rows(stow, sop_uids) == instance_rows(other, sop_uids)
+    assert header_copies(stow, sop_uids) == header_copies(other, sop_uids)
+
+
+def test_wrong_boundary_is_400(stow, fixtures):
+    data = open(good_files(fixtures, 1)[0]["path"], "rb").read()
+    content_type, body = binary_body([data], boundary="one-boundary")
+    content_type = content_type.replace("one-boundary", "another-boundary")
+    status, _, text = request(stow, stow.context, "POST", STOW, body, content_type)
+    assert status == 400 and b"boundary" in text, text
 
 
 def test_curl_binary_body(stow, fixtures, tmp_path):
