@@ -355,3 +355,14 @@ def test_chunked_oversize_is_cut_while_reading(stow, fixtures):
     status, _, data = request(stow, stow.context, "POST", STOW, body, content_type)
     assert status == 200, data
     stow.allow_errors_since(mark)
+
+
+def test_enabled_without_login_is_a_configuration_error(tmp_path):
+    # A sender must sign in: enabling STOW-RS without a password file is
+    # refused when the configuration is read (common practice, no source).
+    config = tmp_path / "mitilog.ini"
+    config.write_text("[storage]\ndata_directory = %s\n[dicomweb]\nenabled = yes\n"
+                      % (tmp_path / "var"))
+    result = run([BINARY, "check-config", str(config)])
+    assert result.returncode == 2, result.stdout + result.stderr
+    assert "[dicomweb] enabled" in result.stderr and "password_file" in result.stderr
