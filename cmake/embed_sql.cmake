@@ -1,7 +1,10 @@
-# Turns every sql/migrations/*.sql and sql/queries/SUBJECT/*.sql into C string
-# constants, so the binary carries its own schema and queries.
-# Output: const mitilog_sql_file mitilog_sql_files[] (name, text), NULL-ended.
-file(GLOB migrations ${SQL_DIR}/migrations/*.sql)
+# Turns every sql/migrations/*.sql and sql/queries/SUBJECT/*.sql, and the
+# engine overrides in folders beside them (sql/migrations/ENGINE/*.sql,
+# sql/queries/SUBJECT/ENGINE/*.sql), into C string constants, so the
+# binary carries its own schema and queries.
+# Output: const sql_file sql_files[] (name, text), NULL-ended, named by the
+# path under sql/ ("migrations/ENGINE/NNN_NAME.sql" for an override).
+file(GLOB_RECURSE migrations ${SQL_DIR}/migrations/*.sql)
 # queries by subject, one folder each: named "queries/SUBJECT/NAME.sql"
 file(GLOB_RECURSE queries ${SQL_DIR}/queries/*.sql)
 list(SORT migrations)

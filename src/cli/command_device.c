@@ -29,6 +29,7 @@
 #include "extract/ext.h"
 #include "screen/screen.h"
 #include "store/store.h"
+#include "store/store_devices.h"
 
 enum { DEVICE_FRAMES_MAX = 64, DEVICE_REPORT_SIZE = 4096 };
 

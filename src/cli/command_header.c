@@ -9,6 +9,7 @@
 #include "cli/cli_options.h"
 #include "cli/commands.h"
 #include "store/store.h"
+#include "store/store_instances.h"
 
 int command_header(int argc, char **argv)
 {

@@ -17,6 +17,8 @@
 #include "rules/rules.h"
 #include "stats/stats_calendar.h"
 #include "store/store.h"
+#include "store/store_findings.h"
+#include "store/store_exams.h"
 #include "util/log.h"
 
 /* A real calendar date, exactly YYYY-MM-DD (2026-02-30 is not one). */
@@ -126,7 +128,7 @@ int command_rescore(int argc, char **argv)
                read.queued, read.not_kept, read.no_profile, read.queue_full);
     }
     if (ingest_register_policy(st, policy, &error) != MITILOG_OK ||
-        store_list(st, STORE_LIST_EXAMS_IN_PERIOD, from, to, &items, &count, &error) != MITILOG_OK)
+        store_exams_in_period(st, from, to, &items, &count, &error) != MITILOG_OK)
         goto failed;
     double now = ingest_clock_now();
     for (size_t i = 0; i < count; i++)
@@ -135,7 +137,7 @@ int command_rescore(int argc, char **argv)
     store_texts_free(items, count);
     items = NULL;
     count = 0;
-    if (store_list(st, STORE_LIST_DAYS, from, to, &items, &count, &error) != MITILOG_OK)
+    if (store_days_in_period(st, from, to, &items, &count, &error) != MITILOG_OK)
         goto failed;
     for (size_t i = 0; i < count; i++)
         if (ingest_evaluate_day(st, policy, items[i], &days, &error) != MITILOG_OK)

@@ -17,6 +17,7 @@
 #include "ingest/ingest.h"
 #include "notify/notify.h"
 #include "store/store.h"
+#include "store/store_findings.h"
 #include "util/log.h"
 
 static void print_serve_usage(FILE *out)

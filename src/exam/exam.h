@@ -24,7 +24,7 @@
  * static. Who fills a type owns its strings and says so in its own
  * header: the exam record (ext_exam.h) for captures, the policy engine's
  * rules_result (rules.h) for findings, the policy for rule descriptions
- * and limits, the store's lists (store.h) for exam rows and day
+ * and limits, the store's lists (store_reports.h) for exam rows and day
  * instances.
  */
 #ifndef MITILOG_EXAM_H

@@ -3,8 +3,9 @@
  * static files from web/, and DICOMweb STOW-RS (http_dicomweb.c).
  *
  * Owns the libmicrohttpd daemon and its threads. Reads the database only
- * through store.h, stores received objects only through ingest.h. GET
- * and HEAD are served, POST for reviews and STOW-RS; unknown paths answer 404
+ * through the store's subject headers, stores received objects only
+ * through ingest.h. GET and HEAD are served, POST for reviews and
+ * STOW-RS; unknown paths answer 404
  * and bad parameters 400, both with a JSON error object. Each request
  * must arrive whole within request_timeout_seconds (http_guard.c);
  * connections are limited in total and per client address.

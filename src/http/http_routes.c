@@ -5,6 +5,8 @@
  * answers 400 naming the parameter. Unknown parameters are ignored.
  */
 #include "http/http_internal.h"
+#include "store/store_exams.h"
+#include "store/store_instances.h"
 
 #include <stdio.h>
 #include <stdlib.h>

@@ -9,6 +9,7 @@
  * (http_status_reply).
  */
 #include "http/http_internal.h"
+#include "store/store_devices.h"
 
 #include <string.h>
 

@@ -9,6 +9,7 @@
  * which version is active), so this module never includes src/rules.
  */
 #include "http/http_internal.h"
+#include "store/store_findings.h"
 
 #include <string.h>
 

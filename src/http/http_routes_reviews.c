@@ -28,6 +28,7 @@
 #include <string.h>
 
 #include "store/sql_files.h"
+#include "store/store_reviews.h"
 #include "util/hash.h"
 #include "util/log.h"
 

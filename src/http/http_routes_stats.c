@@ -2,13 +2,14 @@
  * http_routes_stats.c - the audit views of the API (docs/api.md):
  * GET /api/v1/outliers, /api/v1/stats, /api/v1/drift, /api/v1/ingest.
  * Parameters are checked by http_parameters.c; the documents come from src/report/ (store
- * and stats) and store.h, never from SQL in this layer.
+ * and stats) and the store's subject headers, never from SQL in this layer.
  */
 #include "http/http_internal.h"
 
 #include <string.h>
 
 #include "report/report.h"
+#include "store/store_instances.h"
 
 #define HTTP_DIMENSIONS "exam_type|room|preset|shift|transducer"
 

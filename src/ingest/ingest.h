@@ -21,6 +21,7 @@
 #include "extract/ext.h"
 #include "rules/rules.h"
 #include "store/store.h"
+#include "store/store_findings.h"
 #include "util/status.h"
 
 typedef struct ingest ingest;

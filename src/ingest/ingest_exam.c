@@ -19,6 +19,8 @@
 #include "extract/ext_exam.h"
 #include "ingest/ingest.h"
 #include "util/log.h"
+#include "store/store_exams.h"
+#include "store/store_findings.h"
 
 /* A study is rebuilt once no instance of it has arrived for SETTLE
  * seconds, or MAX_WAIT seconds after its first waiting instance, so a
@@ -197,15 +199,12 @@ static double ingest_sweep_interval(const rules_policy *policy)
 /* Queues the open exams that have been idle long enough (under lock). */
 static void ingest_exams_sweep(ingest_exams *exams, const rules_policy *policy)
 {
-    char now_text[64], idle_text[64];
-    snprintf(now_text, sizeof now_text, "%.3f", ingest_clock_now());
-    snprintf(idle_text, sizeof idle_text, "%.3f",
-             rules_policy_closed_after_idle_minutes(policy) * 60.0);
     char **due = NULL;
     size_t count = 0;
     mitilog_error error;
-    if (store_list(exams->store, STORE_LIST_DUE_CLOSING, now_text, idle_text, &due, &count,
-                   &error) != MITILOG_OK) {
+    if (store_exams_due_closing(exams->store, ingest_clock_now(),
+                                rules_policy_closed_after_idle_minutes(policy) * 60.0, &due, &count,
+                                &error) != MITILOG_OK) {
         log_warning("closing sweep: %s", error.text);
         return;
     }
@@ -228,8 +227,7 @@ static void ingest_exams_do_study(ingest_exams *exams, const char *study)
     char **days = NULL;
     size_t day_count = 0;
     if (status == MITILOG_OK && policy != NULL)
-        status =
-            store_list(exams->store, STORE_LIST_STUDY_DAYS, study, NULL, &days, &day_count, &error);
+        status = store_study_days(exams->store, study, &days, &day_count, &error);
     ingest_exams_release_policy(exams, handle);
     if (status != MITILOG_OK)
         log_error("study %s: exam record not rebuilt or not evaluated: %s", study, error.text);

@@ -16,6 +16,7 @@
 #include "extract/ext_site.h"
 #include "rules/rules.h"
 #include "store/store.h"
+#include "store/store_exams.h"
 
 /* A policy shared by the worker and whoever swaps it (SIGHUP): freed when
  * the last holder releases it (ingest_rules_handle_release). */

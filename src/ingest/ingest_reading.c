@@ -18,7 +18,8 @@
 #include <unistd.h>
 
 #include "ingest/ingest.h"
-#include "store/store_reading.h"
+#include "store/store_readings.h"
+#include "store/store_devices.h"
 #include "util/files.h"
 #include "util/log.h"
 

@@ -1,7 +1,7 @@
 /*
  * ingest_reading.h - reading the indices drawn in the pixels, off the
  * association's path: a bounded pool of workers over a durable queue
- * (store_reading.h). Not API outside src/ingest and src/cli.
+ * (store_readings.h). Not API outside src/ingest and src/cli.
  *
  * An ultrasound image or cine from a device with an active screen profile
  * is queued when its instance row commits (the C-STORE is answered then);

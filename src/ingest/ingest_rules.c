@@ -15,7 +15,9 @@
  */
 #include "ingest/ingest.h"
 #include "ingest/ingest_internal.h"
-#include "store/store_reading.h"
+#include "store/store_readings.h"
+#include "store/store_exams.h"
+#include "store/store_findings.h"
 
 #include <stdio.h>
 #include <stdlib.h>

@@ -1,6 +1,6 @@
 /*
  * report.h - the weekly outlier list, statistics for a period and preset
- * drift as documents: loads exam rows through store.h, computes with
+ * drift as documents: loads exam rows through store_reports.h, computes with
  * src/stats/ (stats_calendar.h, stats_outliers.h, stats_period.h,
  * stats_drift.h), and writes JSON (the writer of json/json.h), CSV
  * (RFC 4180, UTF-8, CRLF) or printable HTML

@@ -7,6 +7,7 @@
 #include <time.h>
 
 #include "util/hash.h"
+#include "store/store_reports.h"
 
 const char report_caution[] =
     "Advisory: these figures are estimates from the indices the equipment displayed. "

@@ -14,6 +14,7 @@
 
 #include "report/report.h"
 #include "json/json.h"
+#include "store/store_reports.h"
 
 typedef struct report_data {
     store_exam_list list; /* the rows and their strings */

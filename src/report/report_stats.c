@@ -4,6 +4,7 @@
  * preset drift as JSON.
  */
 #include "report/report_internal.h"
+#include "store/store_reports.h"
 
 #include <math.h>
 #include <stdlib.h>

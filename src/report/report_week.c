@@ -4,6 +4,7 @@
  * by room, preset, shift, transducer or exam type; as JSON, CSV or HTML.
  */
 #include "report/report_internal.h"
+#include "store/store_reports.h"
 
 #include <math.h>
 #include <stdlib.h>

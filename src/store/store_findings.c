@@ -1,10 +1,11 @@
 /*
- * store_findings.c - the write side of the ALARA policy engine's output:
- * registering a policy (policies, rules described as JSON by SQLite) and
- * one evaluation (findings, exam_context, exam_measurements or
- * device_evaluations) in one transaction. Runs on the writer connection
- * inside the batch's transaction (store_write.c). Statements are prepared
- * per call: evaluations are rare next to instance writes.
+ * store_findings.c - ALARA policy and findings in the store
+ * (store_findings.h): registering a policy (policies, rules described as
+ * JSON), one evaluation (findings, exam_context, exam_measurements or
+ * device_evaluations) in one group-commit request, what an evaluation
+ * reads (a study's context and days, the instances of a day) and the
+ * JSON of GET /api/v1/findings and /api/v1/policy. SQL:
+ * sql/queries/findings/.
  *
  * Idempotence: an evaluation's content (every finding field but
  * evaluated_at, provisional flags, measurements) is hashed; when the
@@ -13,16 +14,19 @@
  * is written. So rescoring twice leaves the tables byte-identical, ids
  * and evaluated_at included.
  */
-#include "store/store_internal.h"
-#include "store/store_notifications.h"
+#include "store/store_findings.h"
 
 #include <stdarg.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
-#include "util/hash.h"
+#include "extract/ext_timeline.h"
 #include "json/json.h"
+#include "store/store_internal.h"
+#include "util/hash.h"
+
+enum { STORE_FINDINGS_LIMIT_DEFAULT = 1000, STORE_FINDINGS_LIMIT_MAX = 10000 };
 
 typedef struct store_text {
     char *data;
@@ -125,57 +129,41 @@ static int store_evaluation_hash(const store_evaluation *e, char out[HASH_HEX_SI
     return rc;
 }
 
-/* The cached statements of one call, released together. */
-enum { STORE_FINDINGS_STATEMENTS = 12 };
-typedef struct store_statements {
-    sqlite3_stmt *list[STORE_FINDINGS_STATEMENTS];
-    size_t count;
-} store_statements;
-
-static sqlite3_stmt *store_statement(store *st, store_statements *set, const char *name,
-                                     mitilog_error *error)
+/* Runs a bound writer query to its end; 0 when it succeeded (else the
+ * query holds the reason). */
+static int store_run(store_query *query)
 {
-    sqlite3_stmt *statement = NULL;
-    if (set->count == STORE_FINDINGS_STATEMENTS ||
-        store_cached_statement(&st->writer_cache, st->writer, name, &statement, error) !=
-            MITILOG_OK)
-        return NULL;
-    set->list[set->count++] = statement;
-    return statement;
+    store_query_run(query);
+    return store_query_end(query) == MITILOG_OK ? 0 : -1;
 }
 
-static void store_statements_finalize(store_statements *set)
-{
-    for (size_t i = 0; i < set->count; i++)
-        store_release(set->list[i]);
-    set->count = 0;
-}
-
-/* Steps to done, resets, clears the bindings. */
-static int store_run(sqlite3_stmt *statement, int rc)
-{
-    if (rc == SQLITE_OK)
-        rc = store_step_done(statement) == SQLITE_DONE ? SQLITE_OK : SQLITE_ERROR;
-    sqlite3_reset(statement);
-    sqlite3_clear_bindings(statement);
-    return rc;
-}
-
-/* Runs statement, which may add a policy row (policy_upsert.sql,
- * policy_ensure.sql); when it did, the new row is the current policy and
- * every exam summary takes that policy's measurement
+/* Runs the bound policy_upsert.sql or policy_ensure.sql in query, which
+ * may add the row of version; when it did, the new row is the current
+ * policy and every exam summary takes that policy's measurement
  * (exam_summary_policy_refresh.sql). An update of an existing row leaves
- * the current policy as it was, so nothing more is run. */
-static int store_run_policy_row(sqlite3 *db, sqlite3_stmt *statement, sqlite3_stmt *refresh, int rc)
+ * the current policy as it was, so nothing more is run. other is room for
+ * the statements around it; on failure query holds the reason. */
+static int store_run_policy_row(store_link *writer, const char *version, store_query *query,
+                                store_query *other)
 {
-    if (rc != SQLITE_OK)
-        return store_run(statement, rc);
-    /* an upsert's update and a DO NOTHING leave the last rowid alone */
-    sqlite3_set_last_insert_rowid(db, 0);
-    rc = store_run(statement, rc);
-    if (rc == SQLITE_OK && sqlite3_last_insert_rowid(db) != 0)
-        rc = store_run(refresh, rc);
-    return rc;
+    store_query_begin(other, writer, "queries/findings/policy_exists.sql");
+    store_bind_text_at(other, 1, version);
+    int held = store_query_step(other) && store_column_integer(other, 0) > 0;
+    if (store_query_end(other) != MITILOG_OK) {
+        store_query_end(query);
+        *query = *other;
+        return -1;
+    }
+    if (store_run(query) != 0)
+        return -1;
+    if (held)
+        return 0;
+    store_query_begin(other, writer, "queries/findings/exam_summary_policy_refresh.sql");
+    if (store_run(other) != 0) {
+        *query = *other;
+        return -1;
+    }
+    return 0;
 }
 
 /* The policy's rules as GET /api/v1/policy shows them: one object per
@@ -262,54 +250,52 @@ static void store_limits_json(json_writer *w, const store_policy *policy)
     json_array_end(w);
 }
 
-mitilog_status store_write_policy(store *st, const store_policy *policy, mitilog_error *error)
+static mitilog_status store_write_policy(store_link *writer, void *context, mitilog_error *error)
 {
+    const store_policy *policy = context;
     char *rules_json = NULL, *limits_json = NULL;
-    json_writer writer;
-    json_writer_init(&writer);
-    store_rules_json(&writer, policy);
-    mitilog_status status = json_writer_take(&writer, &rules_json, error);
+    json_writer writer_json;
+    json_writer_init(&writer_json);
+    store_rules_json(&writer_json, policy);
+    mitilog_status status = json_writer_take(&writer_json, &rules_json, error);
     if (status == MITILOG_OK) {
-        json_writer_init(&writer);
-        store_limits_json(&writer, policy);
-        status = json_writer_take(&writer, &limits_json, error);
+        json_writer_init(&writer_json);
+        store_limits_json(&writer_json, policy);
+        status = json_writer_take(&writer_json, &limits_json, error);
     }
     if (status != MITILOG_OK) {
         free(rules_json);
         return status;
     }
-    store_statements set = {0};
-    sqlite3_stmt *upsert = store_statement(st, &set, "queries/findings/policy_upsert.sql", error);
-    sqlite3_stmt *refresh =
-        store_statement(st, &set, "queries/exams/exam_summary_policy_refresh.sql", error);
-    if (upsert == NULL || refresh == NULL) {
-        store_statements_finalize(&set);
-        free(rules_json);
-        free(limits_json);
-        return MITILOG_ERROR_DATABASE;
-    }
-    int rc = store_bind_text_named(st, upsert, ":version", policy->version);
-    if (rc == SQLITE_OK)
-        rc = store_bind_text_named(st, upsert, ":name", policy->name);
-    if (rc == SQLITE_OK)
-        rc = store_bind_text_named(st, upsert, ":normalised_text",
-                                   store_or_empty(policy->normalised_text));
-    if (rc == SQLITE_OK)
-        rc = store_bind_double_named(st, upsert, ":closed_after_idle_minutes", 1,
-                                     policy->closed_after_idle_minutes);
-    if (rc == SQLITE_OK)
-        rc = store_bind_double_named(st, upsert, ":gap_cap_seconds", 1, policy->gap_cap_seconds);
-    if (rc == SQLITE_OK)
-        rc = store_bind_text_named(st, upsert, ":rules_json", rules_json);
-    if (rc == SQLITE_OK)
-        rc = store_bind_text_named(st, upsert, ":limits_json", limits_json);
-    rc = store_run_policy_row(st->writer, upsert, refresh, rc);
-    if (rc != SQLITE_OK)
+    store_query upsert, other;
+    store_query_begin(&upsert, writer, "queries/findings/policy_upsert.sql");
+    store_bind_text(&upsert, ":version", policy->version);
+    store_bind_text(&upsert, ":name", policy->name);
+    store_bind_text(&upsert, ":normalised_text", store_or_empty(policy->normalised_text));
+    store_bind_real(&upsert, ":closed_after_idle_minutes", 1, policy->closed_after_idle_minutes);
+    store_bind_real(&upsert, ":gap_cap_seconds", 1, policy->gap_cap_seconds);
+    store_bind_text(&upsert, ":rules_json", rules_json);
+    store_bind_text(&upsert, ":limits_json", limits_json);
+    if (store_run_policy_row(writer, policy->version, &upsert, &other) != 0)
         status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "policy %s: %s", policy->version,
-                                   sqlite3_errmsg(st->writer));
-    store_statements_finalize(&set);
+                                   upsert.error.text);
     free(rules_json);
     free(limits_json);
+    return status;
+}
+
+mitilog_status store_register_policy(store *st, const store_policy *policy, mitilog_error *error)
+{
+    if (st == NULL || policy == NULL || policy->version == NULL ||
+        strlen(policy->version) >= sizeof st->active_policy)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "store_register_policy: no store or policy");
+    mitilog_status status = store_commit_submit(st, store_write_policy, (void *)policy, error);
+    if (status == MITILOG_OK) {
+        pthread_mutex_lock(&st->reader_lock);
+        snprintf(st->active_policy, sizeof st->active_policy, "%s", policy->version);
+        pthread_mutex_unlock(&st->reader_lock);
+    }
     return status;
 }
 
@@ -323,15 +309,16 @@ static int store_uids_json(const exam_finding *finding, char **out)
     for (size_t i = 0; i < finding->instance_count; i++)
         json_string(&writer, finding->instance_uids[i]);
     json_array_end(&writer);
-    mitilog_status status = json_writer_take(&writer, out, NULL);
-    return status == MITILOG_OK ? SQLITE_OK : SQLITE_NOMEM;
+    return json_writer_take(&writer, out, NULL) == MITILOG_OK ? 0 : -1;
 }
 
-static int store_insert_finding(store *st, sqlite3_stmt *insert, const store_evaluation *e,
+static int store_insert_finding(store_link *writer, store_query *insert, const store_evaluation *e,
                                 const exam_finding *f)
 {
     char *uids = NULL;
-    int rc = store_uids_json(f, &uids);
+    store_query_begin(insert, writer, "queries/findings/finding_insert.sql");
+    if (store_uids_json(f, &uids) != 0 && insert->status == MITILOG_OK)
+        insert->status = mitilog_error_set(&insert->error, MITILOG_ERROR_MEMORY, "out of memory");
     const struct {
         const char *name;
         const char *value;
@@ -354,8 +341,8 @@ static int store_insert_finding(store *st, sqlite3_stmt *insert, const store_eva
          store_finding_transducer(f) != NULL ? store_finding_transducer(f) : e->transducer},
         {":period", e->study_instance_uid == NULL ? e->period : NULL},
     };
-    for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0]; i++)
-        rc = store_bind_text_named(st, insert, texts[i].name, texts[i].value);
+    for (size_t i = 0; i < sizeof texts / sizeof texts[0]; i++)
+        store_bind_text(insert, texts[i].name, texts[i].value);
     const struct {
         const char *name;
         int present;
@@ -368,31 +355,25 @@ static int store_insert_finding(store *st, sqlite3_stmt *insert, const store_eva
         {":last_seconds", f->has_span, f->last_seconds},
         {":estimated_seconds", 1, f->estimated_seconds},
     };
-    for (size_t i = 0; rc == SQLITE_OK && i < sizeof reals / sizeof reals[0]; i++)
-        rc = store_bind_double_named(st, insert, reals[i].name, reals[i].present, reals[i].value);
-    if (rc == SQLITE_OK)
-        rc = store_bind_int_named(st, insert, ":provisional", f->provisional != 0);
-    rc = store_run(insert, rc);
+    for (size_t i = 0; i < sizeof reals / sizeof reals[0]; i++)
+        store_bind_real(insert, reals[i].name, reals[i].present, reals[i].value);
+    store_bind_integer(insert, ":provisional", f->provisional != 0);
+    int rc = store_run(insert);
     free(uids);
     return rc;
 }
 
-static int store_bind_scope(sqlite3_stmt *statement, const store_evaluation *e)
+/* Binds the scope of findings_delete.sql and findings_supersede.sql. */
+static void store_bind_scope(store_query *query, const store_evaluation *e)
 {
-    int rc = e->study_instance_uid != NULL
-                 ? sqlite3_bind_text(statement, 1, e->study_instance_uid, -1, SQLITE_STATIC)
-                 : sqlite3_bind_null(statement, 1);
-    if (rc == SQLITE_OK)
-        rc = sqlite3_bind_text(statement, 2, e->policy_version, -1, SQLITE_STATIC);
-    if (rc == SQLITE_OK && sqlite3_bind_parameter_count(statement) >= 4) {
-        rc = sqlite3_bind_text(statement, 3, store_or_empty(e->rule_id), -1, SQLITE_STATIC);
-        if (rc == SQLITE_OK)
-            rc = sqlite3_bind_text(statement, 4, store_or_empty(e->period), -1, SQLITE_STATIC);
-    }
-    return rc;
+    store_bind_text_at(query, 1, e->study_instance_uid);
+    store_bind_text_at(query, 2, e->policy_version);
+    store_bind_text_at(query, 3, store_or_empty(e->rule_id));
+    store_bind_text_at(query, 4, store_or_empty(e->period));
 }
 
-static int store_write_context_row(store *st, sqlite3_stmt *statement, const store_evaluation *e)
+static int store_write_context_row(store_link *writer, store_query *query,
+                                   const store_evaluation *e)
 {
     const struct {
         const char *name;
@@ -406,26 +387,23 @@ static int store_write_context_row(store *st, sqlite3_stmt *statement, const sto
         {":age_group", e->age_group},
         {":last_received_at", e->last_received_at},
     };
-    int rc = SQLITE_OK;
-    for (size_t i = 0; rc == SQLITE_OK && i < sizeof texts / sizeof texts[0]; i++)
-        rc = store_bind_text_named(st, statement, texts[i].name, texts[i].value);
-    if (rc == SQLITE_OK)
-        rc = store_bind_int_named(st, statement, ":closed", e->closed != 0);
-    return store_run(statement, rc);
+    store_query_begin(query, writer, "queries/findings/exam_context_upsert.sql");
+    for (size_t i = 0; i < sizeof texts / sizeof texts[0]; i++)
+        store_bind_text(query, texts[i].name, texts[i].value);
+    store_bind_integer(query, ":closed", e->closed != 0);
+    return store_run(query);
 }
 
-static int store_write_measurements(store *st, sqlite3_stmt *statement, const store_evaluation *e,
-                                    const char *hash)
+static int store_write_measurements(store_link *writer, store_query *query,
+                                    const store_evaluation *e, const char *hash)
 {
-    int rc = store_bind_text_named(st, statement, ":study_instance_uid", e->study_instance_uid);
-    if (rc == SQLITE_OK)
-        rc = store_bind_text_named(st, statement, ":policy_version", e->policy_version);
+    store_query_begin(query, writer, "queries/findings/exam_measurements_upsert.sql");
+    store_bind_text(query, ":study_instance_uid", e->study_instance_uid);
+    store_bind_text(query, ":policy_version", e->policy_version);
     const exam_measurements *m = e->measurements;
     exam_index governing = m->governing_index;
-    if (rc == SQLITE_OK)
-        rc = store_bind_text_named(st, statement, ":governing_index", exam_index_name(governing));
-    if (rc == SQLITE_OK)
-        rc = store_bind_text_named(st, statement, ":evaluation_hash", hash);
+    store_bind_text(query, ":governing_index", exam_index_name(governing));
+    store_bind_text(query, ":evaluation_hash", hash);
     const struct {
         const char *name;
         int present;
@@ -437,37 +415,34 @@ static int store_write_measurements(store *st, sqlite3_stmt *statement, const st
         {":estimated_seconds", 1, m->estimated_seconds},
         {":doppler_seconds", 1, m->doppler_seconds},
     };
-    for (size_t i = 0; rc == SQLITE_OK && i < sizeof reals / sizeof reals[0]; i++)
-        rc =
-            store_bind_double_named(st, statement, reals[i].name, reals[i].present, reals[i].value);
-    return store_run(statement, rc);
+    for (size_t i = 0; i < sizeof reals / sizeof reals[0]; i++)
+        store_bind_real(query, reals[i].name, reals[i].present, reals[i].value);
+    return store_run(query);
 }
 
 /* The evaluation's time at or above each threshold of the TI ladder, as
  * rows (after its measurements row, which they refer to). */
-static int store_write_time_at_or_above(store *st, sqlite3_stmt *removal, sqlite3_stmt *insert,
+static int store_write_time_at_or_above(store_link *writer, store_query *query,
                                         const store_evaluation *e)
 {
-    int rc = store_bind_text_named(st, removal, ":study_instance_uid", e->study_instance_uid);
-    if (rc == SQLITE_OK)
-        rc = store_bind_text_named(st, removal, ":policy_version", e->policy_version);
-    rc = store_run(removal, rc);
-    for (int k = 0; rc == SQLITE_OK && k < EXAM_TI_STEP_COUNT; k++) {
-        rc = store_bind_text_named(st, insert, ":study_instance_uid", e->study_instance_uid);
-        if (rc == SQLITE_OK)
-            rc = store_bind_text_named(st, insert, ":policy_version", e->policy_version);
-        if (rc == SQLITE_OK)
-            rc = store_bind_double_named(st, insert, ":threshold", 1, exam_ti_ladder[k]);
-        if (rc == SQLITE_OK)
-            rc = store_bind_double_named(st, insert, ":seconds", 1,
-                                         e->measurements->seconds_at_or_above[k]);
-        rc = store_run(insert, rc);
+    store_query_begin(query, writer, "queries/findings/measurement_time_at_or_above_delete.sql");
+    store_bind_text(query, ":study_instance_uid", e->study_instance_uid);
+    store_bind_text(query, ":policy_version", e->policy_version);
+    int rc = store_run(query);
+    for (int k = 0; rc == 0 && k < EXAM_TI_STEP_COUNT; k++) {
+        store_query_begin(query, writer,
+                          "queries/findings/measurement_time_at_or_above_insert.sql");
+        store_bind_text(query, ":study_instance_uid", e->study_instance_uid);
+        store_bind_text(query, ":policy_version", e->policy_version);
+        store_bind_real(query, ":threshold", 1, exam_ti_ladder[k]);
+        store_bind_real(query, ":seconds", 1, e->measurements->seconds_at_or_above[k]);
+        rc = store_run(query);
     }
     return rc;
 }
 
-mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
-                                      store_evaluation_counts *counts, mitilog_error *error)
+static mitilog_status store_write_evaluation(store_link *writer, const store_evaluation *e,
+                                             store_evaluation_counts *counts, mitilog_error *error)
 {
     int exam = e->study_instance_uid != NULL;
     if (!exam && (e->rule_id == NULL || e->period == NULL))
@@ -476,110 +451,320 @@ mitilog_status store_write_evaluation(store *st, const store_evaluation *e,
     char hash[HASH_HEX_SIZE];
     if (store_evaluation_hash(e, hash) != 0)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "evaluation: out of memory");
-    store_statements set = {0};
-    sqlite3_stmt *ensure = store_statement(st, &set, "queries/findings/policy_ensure.sql", error);
-    sqlite3_stmt *refresh =
-        store_statement(st, &set, "queries/exams/exam_summary_policy_refresh.sql", error);
-    sqlite3_stmt *stored = store_statement(st, &set,
-                                           exam ? "queries/findings/evaluation_hash_exam.sql"
-                                                : "queries/findings/evaluation_hash_device.sql",
-                                           error);
-    sqlite3_stmt *context =
-        exam ? store_statement(st, &set, "queries/exams/exam_context_upsert.sql", error) : NULL;
-    sqlite3_stmt *removal =
-        store_statement(st, &set, "queries/findings/findings_delete.sql", error);
-    sqlite3_stmt *supersede =
-        store_statement(st, &set, "queries/findings/findings_supersede.sql", error);
-    sqlite3_stmt *insert = store_statement(st, &set, "queries/findings/finding_insert.sql", error);
-    sqlite3_stmt *values = store_statement(st, &set,
-                                           exam ? "queries/findings/exam_measurements_upsert.sql"
-                                                : "queries/findings/device_evaluation_upsert.sql",
-                                           error);
-    sqlite3_stmt *times_removal =
-        exam ? store_statement(st, &set, "queries/findings/measurement_time_at_or_above_delete.sql",
-                               error)
-             : NULL;
-    sqlite3_stmt *times_insert =
-        exam ? store_statement(st, &set, "queries/findings/measurement_time_at_or_above_insert.sql",
-                               error)
-             : NULL;
-    if (ensure == NULL || refresh == NULL || stored == NULL || (exam && context == NULL) ||
-        removal == NULL || supersede == NULL || insert == NULL || values == NULL ||
-        (exam && (times_removal == NULL || times_insert == NULL))) {
-        store_statements_finalize(&set);
-        return MITILOG_ERROR_DATABASE;
-    }
-    int rc = store_bind_text_named(st, ensure, ":version", e->policy_version);
-    if (rc == SQLITE_OK)
-        rc = store_bind_text_named(st, ensure, ":name", e->policy_name);
-    if (rc == SQLITE_OK)
-        rc = store_bind_text_named(st, ensure, ":normalised_text",
-                                   store_or_empty(e->normalised_text));
-    rc = store_run_policy_row(st->writer, ensure, refresh, rc);
-    if (rc == SQLITE_OK && exam)
-        rc = store_write_context_row(st, context, e);
+    store_query query, other;
+    store_query_begin(&query, writer, "queries/findings/policy_ensure.sql");
+    store_bind_text(&query, ":version", e->policy_version);
+    store_bind_text(&query, ":name", e->policy_name);
+    store_bind_text(&query, ":normalised_text", store_or_empty(e->normalised_text));
+    int rc = store_run_policy_row(writer, e->policy_version, &query, &other);
+    if (rc == 0 && exam)
+        rc = store_write_context_row(writer, &query, e);
     /* Unchanged? */
     int unchanged = 0;
-    if (rc == SQLITE_OK) {
-        rc = sqlite3_bind_text(stored, 1, exam ? e->study_instance_uid : e->rule_id, -1,
-                               SQLITE_STATIC);
-        if (rc == SQLITE_OK)
-            rc = sqlite3_bind_text(stored, 2, e->policy_version, -1, SQLITE_STATIC);
-        if (rc == SQLITE_OK && !exam)
-            rc = sqlite3_bind_text(stored, 3, e->period, -1, SQLITE_STATIC);
-        if (rc == SQLITE_OK) {
-            if (sqlite3_step(stored) == SQLITE_ROW) {
-                const unsigned char *previous = sqlite3_column_text(stored, 0);
-                unchanged = previous != NULL && strcmp((const char *)previous, hash) == 0 &&
-                            sqlite3_column_int64(stored, 1) == 0;
-            } else {
-                rc = SQLITE_ERROR;
-            }
+    if (rc == 0) {
+        store_query_begin(&query, writer,
+                          exam ? "queries/findings/evaluation_hash_exam.sql"
+                               : "queries/findings/evaluation_hash_device.sql");
+        store_bind_text_at(&query, 1, exam ? e->study_instance_uid : e->rule_id);
+        store_bind_text_at(&query, 2, e->policy_version);
+        if (!exam)
+            store_bind_text_at(&query, 3, e->period);
+        if (store_query_step(&query)) {
+            const char *previous = store_column_text(&query, 0);
+            unchanged = previous != NULL && strcmp(previous, hash) == 0 &&
+                        store_column_integer(&query, 1) == 0;
+        } else if (query.status == MITILOG_OK) {
+            query.status = mitilog_error_set(&query.error, MITILOG_ERROR_DATABASE, "no row");
         }
-        sqlite3_reset(stored);
-        sqlite3_clear_bindings(stored);
+        rc = store_query_end(&query) == MITILOG_OK ? 0 : -1;
     }
     unsigned long written = 0, superseded = 0;
-    if (rc == SQLITE_OK && !unchanged) {
-        rc = store_run(removal, store_bind_scope(removal, e));
-        if (rc == SQLITE_OK) {
-            rc = store_run(supersede, store_bind_scope(supersede, e));
-            superseded = (unsigned long)sqlite3_changes(st->writer);
+    if (rc == 0 && !unchanged) {
+        store_query_begin(&query, writer, "queries/findings/findings_delete.sql");
+        store_bind_scope(&query, e);
+        rc = store_run(&query);
+        if (rc == 0) {
+            store_query_begin(&query, writer, "queries/findings/findings_supersede.sql");
+            store_bind_scope(&query, e);
+            rc = store_run(&query);
+            superseded = (unsigned long)store_link_changes(writer);
         }
-        for (size_t i = 0; rc == SQLITE_OK && i < e->finding_count; i++) {
-            rc = store_insert_finding(st, insert, e, &e->findings[i]);
+        for (size_t i = 0; rc == 0 && i < e->finding_count; i++) {
+            rc = store_insert_finding(writer, &query, e, &e->findings[i]);
             written++;
         }
-        /* Findings to notify, in the same transaction (the outbox). */
-        if (rc == SQLITE_OK && e->finding_count > 0)
-            rc = store_notifications_enqueue(st, e);
-        if (rc == SQLITE_OK && exam) {
-            rc = store_write_measurements(st, values, e, hash);
-            if (rc == SQLITE_OK)
-                rc = store_write_time_at_or_above(st, times_removal, times_insert, e);
-        } else if (rc == SQLITE_OK) {
-            rc = store_bind_text_named(st, values, ":rule_id", e->rule_id);
-            if (rc == SQLITE_OK)
-                rc = store_bind_text_named(st, values, ":policy_version", e->policy_version);
-            if (rc == SQLITE_OK)
-                rc = store_bind_text_named(st, values, ":period", e->period);
-            if (rc == SQLITE_OK)
-                rc = store_bind_text_named(st, values, ":evaluation_hash", hash);
-            rc = store_run(values, rc);
+        if (rc == 0 && exam) {
+            rc = store_write_measurements(writer, &query, e, hash);
+            if (rc == 0)
+                rc = store_write_time_at_or_above(writer, &query, e);
+        } else if (rc == 0) {
+            store_query_begin(&query, writer, "queries/findings/device_evaluation_upsert.sql");
+            store_bind_text(&query, ":rule_id", e->rule_id);
+            store_bind_text(&query, ":policy_version", e->policy_version);
+            store_bind_text(&query, ":period", e->period);
+            store_bind_text(&query, ":evaluation_hash", hash);
+            rc = store_run(&query);
         }
     }
-    mitilog_status status = MITILOG_OK;
-    if (rc != SQLITE_OK) {
-        status =
-            mitilog_error_set(error, MITILOG_ERROR_DATABASE, "evaluation of %s: %s",
-                              exam ? e->study_instance_uid : e->period,
-                              rc == SQLITE_RANGE ? "bad parameter" : sqlite3_errmsg(st->writer));
-    } else {
-        counts->evaluations++;
-        counts->unchanged += unchanged ? 1 : 0;
-        counts->written += written;
-        counts->superseded += superseded;
+    if (rc != 0)
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "evaluation of %s: %s",
+                                 exam ? e->study_instance_uid : e->period, query.error.text);
+    counts->evaluations++;
+    counts->unchanged += unchanged ? 1 : 0;
+    counts->written += written;
+    counts->superseded += superseded;
+    return MITILOG_OK;
+}
+
+/* One evaluation request: its input and what it did. */
+typedef struct store_evaluation_write {
+    const store_evaluation *evaluation;
+    store_notification_queueing notify; /* the store's, copied */
+    store_evaluation_counts counts;
+} store_evaluation_write;
+
+/* An evaluation, after the exam record it was made from when it has one;
+ * an exam's evaluation then rewrites the exam's summary. */
+static mitilog_status store_write_evaluated(store_link *writer, void *context, mitilog_error *error)
+{
+    store_evaluation_write *write = context;
+    const store_evaluation *evaluation = write->evaluation;
+    memset(&write->counts, 0, sizeof write->counts);
+    if (evaluation->exam != NULL) {
+        mitilog_status status = store_exams_write(writer, evaluation->exam, error);
+        if (status != MITILOG_OK)
+            return status;
     }
-    store_statements_finalize(&set);
+    mitilog_status status = store_write_evaluation(writer, evaluation, &write->counts, error);
+    /* Findings to notify, in the same transaction (the outbox); only
+     * when the evaluation changed and wrote findings. */
+    if (status == MITILOG_OK && write->counts.written > 0)
+        status = store_notifications_enqueue(writer, evaluation, &write->notify, error);
+    if (status == MITILOG_OK && evaluation->study_instance_uid != NULL)
+        status = store_exams_refresh_summary(writer, evaluation->study_instance_uid, error);
+    return status;
+}
+
+mitilog_status store_put_evaluation(store *st, const store_evaluation *evaluation,
+                                    store_evaluation_counts *counts, mitilog_error *error)
+{
+    if (st == NULL || evaluation == NULL || evaluation->policy_version == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "store_put_evaluation: no store or evaluation");
+    if (evaluation->exam != NULL) {
+        mitilog_status checked = store_exams_check(evaluation->exam, error);
+        if (checked != MITILOG_OK)
+            return checked;
+    }
+    store_evaluation_write write = {.evaluation = evaluation, .notify = st->notify};
+    mitilog_status status = store_commit_submit(st, store_write_evaluated, &write, error);
+    if (status == MITILOG_OK && counts != NULL) {
+        counts->evaluations += write.counts.evaluations;
+        counts->unchanged += write.counts.unchanged;
+        counts->written += write.counts.written;
+        counts->superseded += write.counts.superseded;
+    }
+    return status;
+}
+
+/* ---- reads, on the read connection under reader_lock ---- */
+
+void store_active_policy_version(store *st, char out[65])
+{
+    out[0] = '\0';
+    if (st == NULL)
+        return;
+    pthread_mutex_lock(&st->reader_lock);
+    snprintf(out, 65, "%s", st->active_policy);
+    pthread_mutex_unlock(&st->reader_lock);
+}
+
+void store_study_context_free(store_study_context *context)
+{
+    if (context == NULL)
+        return;
+    free(context->room);
+    free(context->preset);
+    free(context->shift);
+    free(context->transducer);
+    free(context->age_group);
+    free(context->last_received_at);
+    memset(context, 0, sizeof *context);
+}
+
+mitilog_status store_load_study_context(store *st, const char *study_instance_uid,
+                                        double now_unix_seconds, store_study_context *context,
+                                        mitilog_error *error)
+{
+    memset(context, 0, sizeof *context);
+    if (st == NULL || study_instance_uid == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "study context: no study");
+    mitilog_status status = MITILOG_OK;
+    pthread_mutex_lock(&st->reader_lock);
+    store_query query;
+    store_query_begin(&query, &st->reader, "queries/findings/study_context.sql");
+    store_bind_text_at(&query, 1, study_instance_uid);
+    store_bind_real_at(&query, 2, now_unix_seconds);
+    if (store_query_step(&query)) {
+        int failed = 0;
+        context->room = store_column_copy(&query, 0, &failed);
+        context->preset = store_column_copy(&query, 1, &failed);
+        context->shift = store_column_copy(&query, 2, &failed);
+        context->transducer = store_column_copy(&query, 3, &failed);
+        context->age_group = store_column_copy(&query, 4, &failed);
+        context->last_received_at = store_column_copy(&query, 5, &failed);
+        context->found = context->last_received_at != NULL;
+        context->idle_seconds = store_column_real(&query, 6);
+        if (failed)
+            status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    } else {
+        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "study context: %s",
+                                   query.status != MITILOG_OK ? query.error.text : "no row");
+    }
+    store_query_end(&query);
+    pthread_mutex_unlock(&st->reader_lock);
+    if (status != MITILOG_OK)
+        store_study_context_free(context);
+    return status;
+}
+
+mitilog_status store_study_days(store *st, const char *study_instance_uid, char ***days,
+                                size_t *count, mitilog_error *error)
+{
+    *days = NULL;
+    *count = 0;
+    if (st == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "study days: no store");
+    pthread_mutex_lock(&st->reader_lock);
+    store_query query;
+    store_query_begin(&query, &st->reader, "queries/findings/study_days.sql");
+    store_bind_filter_at(&query, 1, study_instance_uid);
+    mitilog_status status = store_query_texts(&query, days, count, error);
+    pthread_mutex_unlock(&st->reader_lock);
+    return status;
+}
+
+mitilog_status store_days_in_period(store *st, const char *from_day, const char *to_day,
+                                    char ***days, size_t *count, mitilog_error *error)
+{
+    *days = NULL;
+    *count = 0;
+    if (st == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "days in period: no store");
+    pthread_mutex_lock(&st->reader_lock);
+    store_query query;
+    store_query_begin(&query, &st->reader, "queries/findings/days_in_period.sql");
+    store_bind_filter_at(&query, 1, from_day);
+    store_bind_filter_at(&query, 2, to_day);
+    mitilog_status status = store_query_texts(&query, days, count, error);
+    pthread_mutex_unlock(&st->reader_lock);
+    return status;
+}
+
+void store_day_instances_free(exam_device_instance *instances, size_t count)
+{
+    for (size_t i = 0; instances != NULL && i < count; i++) {
+        free((char *)instances[i].sop_instance_uid);
+        free((char *)instances[i].study_instance_uid);
+        free((char *)instances[i].room);
+        free((char *)instances[i].transducer);
+    }
+    free(instances);
+}
+
+mitilog_status store_load_day_instances(store *st, const char *day,
+                                        exam_device_instance **instances, size_t *count,
+                                        mitilog_error *error)
+{
+    *instances = NULL;
+    *count = 0;
+    if (st == NULL || day == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "day instances: no day");
+    mitilog_status status = MITILOG_OK;
+    size_t capacity = 0;
+    pthread_mutex_lock(&st->reader_lock);
+    store_query query;
+    store_query_begin(&query, &st->reader, "queries/findings/device_instances.sql");
+    store_bind_text_at(&query, 1, day);
+    while (status == MITILOG_OK && store_query_step(&query)) {
+        if (*count == capacity) {
+            size_t grown = capacity ? capacity * 2 : 64;
+            exam_device_instance *array = realloc(*instances, grown * sizeof *array);
+            if (array == NULL) {
+                status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+                break;
+            }
+            *instances = array;
+            capacity = grown;
+        }
+        exam_device_instance *instance = &(*instances)[(*count)++];
+        int failed = 0;
+        memset(instance, 0, sizeof *instance);
+        instance->sop_instance_uid = store_column_copy(&query, 0, &failed);
+        instance->study_instance_uid = store_column_copy(&query, 1, &failed);
+        instance->room = store_column_copy(&query, 2, &failed);
+        instance->transducer = store_column_copy(&query, 3, &failed);
+        instance->has_any_index = store_column_integer(&query, 4) != 0;
+        const char *acquired_at = store_column_text(&query, 5);
+        double seconds = acquired_at != NULL ? ext_iso_to_seconds(acquired_at) : -1;
+        instance->time_seconds = seconds;
+        instance->has_time = seconds >= 0;
+        if (failed)
+            status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
+    }
+    if (store_query_end(&query) != MITILOG_OK && status == MITILOG_OK)
+        status =
+            mitilog_error_set(error, MITILOG_ERROR_DATABASE, "day instances: %s", query.error.text);
+    pthread_mutex_unlock(&st->reader_lock);
+    if (status != MITILOG_OK) {
+        store_day_instances_free(*instances, *count);
+        *instances = NULL;
+        *count = 0;
+    }
+    return status;
+}
+
+mitilog_status store_findings_json(store *st, const store_finding_filter *filter, char **json,
+                                   mitilog_error *error)
+{
+    if (st == NULL || json == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_findings_json: no store");
+    *json = NULL;
+    store_finding_filter none = {0};
+    if (filter == NULL)
+        filter = &none;
+    long limit = filter->limit <= 0                         ? STORE_FINDINGS_LIMIT_DEFAULT
+                 : filter->limit > STORE_FINDINGS_LIMIT_MAX ? STORE_FINDINGS_LIMIT_MAX
+                                                            : filter->limit;
+    pthread_mutex_lock(&st->reader_lock);
+    store_query query;
+    store_query_begin(&query, &st->reader, "queries/findings/findings.sql");
+    const char *texts[] = {filter->from, filter->to,     filter->severity, filter->rule,
+                           filter->room, filter->preset, filter->shift};
+    for (int i = 0; i < 7; i++)
+        store_bind_filter_at(&query, i + 1, texts[i]);
+    store_bind_integer_at(&query, 8, filter->include_superseded != 0);
+    store_bind_integer_at(&query, 9, limit);
+    mitilog_status status = store_query_text(&query, "query findings", 1, json, error);
+    pthread_mutex_unlock(&st->reader_lock);
+    return status;
+}
+
+mitilog_status store_policy_json(store *st, char **json, mitilog_error *error)
+{
+    if (st == NULL || json == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_policy_json: no store");
+    *json = NULL;
+    mitilog_status status;
+    pthread_mutex_lock(&st->reader_lock);
+    if (st->active_policy[0] == '\0') {
+        status = mitilog_error_set(error, MITILOG_ERROR_NOT_FOUND, "no policy is loaded");
+    } else {
+        store_query query;
+        store_query_begin(&query, &st->reader, "queries/findings/policy_json.sql");
+        store_bind_text_at(&query, 1, st->active_policy);
+        status = store_query_text(&query, "query policy", 1, json, error);
+    }
+    pthread_mutex_unlock(&st->reader_lock);
     return status;
 }

@@ -15,6 +15,7 @@
 #include <stddef.h>
 
 #include "store/store.h"
+#include "store/store_findings.h"
 #include "util/status.h"
 
 /* Which findings are queued from now on: severity at or above
@@ -49,8 +50,20 @@ mitilog_status store_notifications_record(store *store, long long id, const char
                                           const char *now, const char *next_attempt_at,
                                           const char *last_error, mitilog_error *error);
 
-/* Inside the transaction of store_write_evaluation (store_findings.c):
- * queues the evaluation's findings for each channel that is on. */
-int store_notifications_enqueue(store *store, const store_evaluation *evaluation);
+/* What is queued: severity rank at or above minimum_rank (0: nothing),
+ * for each channel that is on. */
+typedef struct store_notification_queueing {
+    int minimum_rank;
+    int webhook, syslog;
+} store_notification_queueing;
+
+struct store_link; /* store_statement.h */
+
+/* Inside the transaction of an evaluation that wrote findings
+ * (store_findings.c): queues them for each channel that is on. */
+mitilog_status store_notifications_enqueue(struct store_link *writer,
+                                           const store_evaluation *evaluation,
+                                           const store_notification_queueing *queueing,
+                                           mitilog_error *error);
 
 #endif

@@ -1,15 +1,17 @@
 /*
- * store_open.c - opening and closing the store: the writer connection
- * (WAL, synchronous FULL), the schema migrations of sql/migrations, and
- * the read-only connection for the queries.
+ * store_open.c - the store's handle and lifecycle (store.h): opening the
+ * writer link (WAL, synchronous FULL) and applying the schema migrations
+ * of sql/migrations through the engine, the read-only link for the
+ * queries, durability, health and closing.
  */
 #include "store/store_internal.h"
 
 #include <stdlib.h>
 #include <string.h>
 
-#include "exam/exam.h"
+#include "json/json.h"
 #include "store/sql_files.h"
+#include "store/store_engine_sqlite.h"
 #include "util/log.h"
 
 static const char migration_prefix[] = "migrations/";
@@ -32,39 +34,53 @@ static int store_migration_number(const char *name)
     return number;
 }
 
-/* Reads PRAGMA user_version into *version. */
-static mitilog_status store_read_version(sqlite3 *db, int *version, mitilog_error *error)
+/* Runs a query of no parameters whose first row holds what is wanted;
+ * *has_row says whether it gave one. The query is left open for its
+ * columns: end it with store_query_end(). */
+static mitilog_status store_first_row(store_link *link, const char *name, store_query *query,
+                                      int *has_row, const char *what, mitilog_error *error)
 {
-    sqlite3_stmt *statement = NULL;
-    mitilog_status status =
-        store_prepare(db, "queries/database/schema_version.sql", &statement, error);
+    store_query_begin(query, link, name);
+    *has_row = store_query_step(query);
+    if (query->status != MITILOG_OK) {
+        store_query_end(query);
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: %s", what, query->error.text);
+    }
+    return MITILOG_OK;
+}
+
+/* Reads the schema version (PRAGMA user_version) into *version. */
+static mitilog_status store_read_version(store_link *link, int *version, mitilog_error *error)
+{
+    store_query query;
+    int has_row = 0;
+    mitilog_status status = store_first_row(link, "queries/database/schema_version.sql", &query,
+                                            &has_row, "read schema version", error);
     if (status != MITILOG_OK)
         return status;
-    if (sqlite3_step(statement) == SQLITE_ROW) {
-        *version = sqlite3_column_int(statement, 0);
-    } else {
-        status = store_sql_error(error, db, "read schema version");
-    }
-    sqlite3_finalize(statement);
+    if (has_row)
+        *version = (int)store_column_integer(&query, 0);
+    else
+        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "read schema version: no row");
+    store_query_end(&query);
     return status;
 }
 
 /* MITILOG_OK when no foreign key of the database is dangling. */
-static mitilog_status store_check_foreign_keys(sqlite3 *db, const char *name, mitilog_error *error)
+static mitilog_status store_check_foreign_keys(store_link *link, const char *name,
+                                               mitilog_error *error)
 {
-    sqlite3_stmt *statement = NULL;
-    mitilog_status status =
-        store_prepare(db, "queries/database/foreign_key_check.sql", &statement, error);
+    store_query query;
+    int has_row = 0;
+    mitilog_status status = store_first_row(link, "queries/database/foreign_key_check.sql", &query,
+                                            &has_row, name, error);
     if (status != MITILOG_OK)
         return status;
-    int rc = sqlite3_step(statement);
-    if (rc == SQLITE_ROW)
+    if (has_row)
         status = mitilog_error_set(error, MITILOG_ERROR_DATABASE,
                                    "%s left a dangling reference in table %s", name,
-                                   sqlite3_column_text(statement, 0));
-    else if (rc != SQLITE_DONE)
-        status = store_sql_error(error, db, name);
-    sqlite3_finalize(statement);
+                                   store_column_text(&query, 0));
+    store_query_end(&query);
     return status;
 }
 
@@ -72,30 +88,30 @@ static mitilog_status store_check_foreign_keys(sqlite3 *db, const char *name, mi
  * applied it meanwhile. The file itself sets user_version; this checks it,
  * and that no reference is left dangling (foreign keys are off while
  * migrations run, so that a table can be rebuilt). */
-static mitilog_status store_apply_migration(sqlite3 *db, const sql_file *file, int number,
+static mitilog_status store_apply_migration(store_link *link, const sql_file *file, int number,
                                             const char *path, mitilog_error *error)
 {
-    mitilog_status status = store_exec_file(db, "queries/database/write_begin.sql", error);
+    mitilog_status status = store_link_script(link, "queries/database/write_begin.sql", error);
     if (status != MITILOG_OK)
         return status;
     int version = 0;
-    status = store_read_version(db, &version, error);
+    status = store_read_version(link, &version, error);
     if (status == MITILOG_OK && version < number) {
-        status = store_exec_text(db, file->name, file->text, error);
+        status = store_link_script(link, file->name, error);
         if (status == MITILOG_OK)
-            status = store_read_version(db, &version, error);
+            status = store_read_version(link, &version, error);
         if (status == MITILOG_OK && version != number)
             status = mitilog_error_set(error, MITILOG_ERROR_DATABASE,
                                        "%s left user_version at %d, "
                                        "expected %d",
                                        file->name, version, number);
         if (status == MITILOG_OK)
-            status = store_check_foreign_keys(db, file->name, error);
+            status = store_check_foreign_keys(link, file->name, error);
     }
     if (status == MITILOG_OK)
-        status = store_exec_file(db, "queries/database/write_commit.sql", error);
+        status = store_link_script(link, "queries/database/write_commit.sql", error);
     if (status != MITILOG_OK) {
-        store_exec_file(db, "queries/database/write_rollback.sql", NULL);
+        store_link_script(link, "queries/database/write_rollback.sql", NULL);
         return status;
     }
     log_info("database %s: schema at version %d (%s)", path, number, file->name);
@@ -103,8 +119,9 @@ static mitilog_status store_apply_migration(sqlite3 *db, const sql_file *file, i
 }
 
 /* Brings the schema up to the newest built-in migration; *version gets
- * the resulting schema version. */
-static mitilog_status store_migrate(sqlite3 *db, const char *path, int *version,
+ * the resulting schema version. SQLite's history: sql/migrations/NNN_*.sql
+ * in order. */
+static mitilog_status store_migrate(store_link *link, const char *path, int *version,
                                     mitilog_error *error)
 {
     int latest = 0;
@@ -121,7 +138,7 @@ static mitilog_status store_migrate(sqlite3 *db, const char *path, int *version,
                                      file->name, latest);
         latest = number;
     }
-    mitilog_status status = store_read_version(db, version, error);
+    mitilog_status status = store_read_version(link, version, error);
     if (status != MITILOG_OK)
         return status;
     if (*version > latest)
@@ -131,161 +148,45 @@ static mitilog_status store_migrate(sqlite3 *db, const char *path, int *version,
                                  path, *version, latest);
     if (*version == latest)
         return MITILOG_OK;
-    status = store_exec_file(db, "queries/database/pragma_foreign_keys_off.sql", error);
+    status = store_link_script(link, "queries/database/pragma_foreign_keys_off.sql", error);
     for (const sql_file *file = sql_files; status == MITILOG_OK && file->name != NULL; file++) {
         int number = store_migration_number(file->name);
         if (number <= *version)
             continue;
-        status = store_apply_migration(db, file, number, path, error);
+        status = store_apply_migration(link, file, number, path, error);
         if (status == MITILOG_OK)
             *version = number;
     }
     mitilog_error restore_error;
     mitilog_status restored =
-        store_exec_file(db, "queries/database/pragma_foreign_keys_on.sql", &restore_error);
+        store_link_script(link, "queries/database/pragma_foreign_keys_on.sql", &restore_error);
     if (status == MITILOG_OK && restored != MITILOG_OK && error != NULL)
         *error = restore_error;
     return status != MITILOG_OK ? status : restored;
 }
 
-/* Opens path with flags, extended result codes and the busy timeout. */
-static mitilog_status store_connect(const char *path, int flags, int busy_timeout_ms, sqlite3 **out,
-                                    mitilog_error *error)
-{
-    sqlite3 *db = NULL;
-    if (sqlite3_open_v2(path, &db, flags | SQLITE_OPEN_FULLMUTEX, NULL) != SQLITE_OK) {
-        mitilog_error_set(error, MITILOG_ERROR_DATABASE, "open %s: %s", path,
-                          db != NULL ? sqlite3_errmsg(db) : "out of memory");
-        sqlite3_close(db);
-        return MITILOG_ERROR_DATABASE;
-    }
-    sqlite3_extended_result_codes(db, 1);
-    sqlite3_busy_timeout(db, busy_timeout_ms > 0 ? busy_timeout_ms : 0);
-    *out = db;
-    return MITILOG_OK;
-}
-
 /* Puts the writer into WAL mode and applies its PRAGMAs. */
-static mitilog_status store_configure_writer(sqlite3 *db, const char *path, mitilog_error *error)
+static mitilog_status store_configure_writer(store_link *link, const char *path,
+                                             mitilog_error *error)
 {
-    sqlite3_stmt *statement = NULL;
-    mitilog_status status =
-        store_prepare(db, "queries/database/pragma_journal_wal.sql", &statement, error);
+    store_query query;
+    int has_row = 0;
+    mitilog_status status = store_first_row(link, "queries/database/pragma_journal_wal.sql", &query,
+                                            &has_row, "set WAL mode", error);
     if (status != MITILOG_OK)
         return status;
-    if (sqlite3_step(statement) != SQLITE_ROW) {
-        status = store_sql_error(error, db, "set WAL mode");
-    } else {
-        const char *mode = (const char *)sqlite3_column_text(statement, 0);
-        if (mode == NULL || strcmp(mode, "wal") != 0)
-            status = mitilog_error_set(error, MITILOG_ERROR_DATABASE,
-                                       "database %s: cannot use WAL mode "
-                                       "(journal mode stays %s)",
-                                       path, mode != NULL ? mode : "unknown");
-    }
-    sqlite3_finalize(statement);
+    const char *mode = has_row ? store_column_text(&query, 0) : NULL;
+    if (!has_row)
+        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "set WAL mode: no row");
+    else if (mode == NULL || strcmp(mode, "wal") != 0)
+        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE,
+                                   "database %s: cannot use WAL mode "
+                                   "(journal mode stays %s)",
+                                   path, mode != NULL ? mode : "unknown");
+    store_query_end(&query);
     if (status != MITILOG_OK)
         return status;
-    return store_exec_file(db, "queries/database/pragma_writer.sql", error);
-}
-
-/* 1 when the database's TI ladder (ti_thresholds) and mode names
- * (mode_names) are the exam vocabulary's, 0 when not, -1 on error;
- * *ladder_matches tells which. */
-static int store_vocabulary_matches(sqlite3 *db, int *ladder_matches, mitilog_error *error)
-{
-    sqlite3_stmt *ladder = NULL, *modes = NULL;
-    if (store_prepare(db, "queries/exams/ti_thresholds_select.sql", &ladder, error) != MITILOG_OK ||
-        store_prepare(db, "queries/exams/mode_names_select.sql", &modes, error) != MITILOG_OK) {
-        sqlite3_finalize(ladder);
-        return -1;
-    }
-    int thresholds_match = 1, modes_match = 1, count = 0, rc;
-    while ((rc = sqlite3_step(ladder)) == SQLITE_ROW) {
-        if (count >= EXAM_TI_STEP_COUNT ||
-            sqlite3_column_double(ladder, 0) != exam_ti_ladder[count])
-            thresholds_match = 0;
-        count++;
-    }
-    if (count != EXAM_TI_STEP_COUNT)
-        thresholds_match = 0;
-    int result = rc == SQLITE_DONE ? 0 : -1;
-    count = 0;
-    while (result == 0 && (rc = sqlite3_step(modes)) == SQLITE_ROW) {
-        const char *name = (const char *)sqlite3_column_text(modes, 1);
-        if (count >= EXAM_MODE_COUNT || sqlite3_column_int(modes, 0) != count || name == NULL ||
-            strcmp(name, exam_mode_name((exam_mode)count)) != 0)
-            modes_match = 0;
-        count++;
-    }
-    if (result == 0 && rc != SQLITE_DONE)
-        result = -1;
-    if (count != EXAM_MODE_COUNT)
-        modes_match = 0;
-    if (result < 0)
-        store_sql_error(error, db, "vocabulary of the database");
-    sqlite3_finalize(ladder);
-    sqlite3_finalize(modes);
-    *ladder_matches = thresholds_match;
-    return result < 0 ? -1 : thresholds_match && modes_match;
-}
-
-/* Makes the database's TI ladder and mode names the exam vocabulary's
- * (exam_ti_ladder, exam_mode_name()), in one transaction: when the ladder
- * differs, the thresholds are replaced and every exam's time at or above
- * them recomputed; when a mode name differs, the names are replaced
- * (a mode keeps its bit position: modes are only ever added at the end).
- * Another process that did it meanwhile leaves nothing to do. */
-static mitilog_status store_sync_vocabulary(sqlite3 *db, const char *path, mitilog_error *error)
-{
-    int ladder_matches = 1;
-    int matches = store_vocabulary_matches(db, &ladder_matches, error);
-    if (matches != 0)
-        return matches > 0 ? MITILOG_OK : MITILOG_ERROR_DATABASE;
-    mitilog_status status = store_exec_file(db, "queries/database/write_begin.sql", error);
-    if (status != MITILOG_OK)
-        return status;
-    matches = store_vocabulary_matches(db, &ladder_matches, error);
-    if (matches < 0)
-        status = MITILOG_ERROR_DATABASE;
-    if (matches == 0 && !ladder_matches) {
-        status = store_exec_file(db, "queries/exams/ti_thresholds_delete.sql", error);
-        sqlite3_stmt *insert = NULL;
-        if (status == MITILOG_OK)
-            status = store_prepare(db, "queries/exams/ti_threshold_insert.sql", &insert, error);
-        for (int k = 0; status == MITILOG_OK && k < EXAM_TI_STEP_COUNT; k++) {
-            if (sqlite3_bind_double(insert, 1, exam_ti_ladder[k]) != SQLITE_OK ||
-                store_step_done(insert) != SQLITE_DONE)
-                status = store_sql_error(error, db, "queries/exams/ti_threshold_insert.sql");
-        }
-        sqlite3_finalize(insert);
-        if (status == MITILOG_OK)
-            status =
-                store_exec_file(db, "queries/exams/exam_time_at_or_above_refresh_all.sql", error);
-    }
-    if (status == MITILOG_OK && matches == 0) {
-        status = store_exec_file(db, "queries/exams/mode_names_delete.sql", error);
-        sqlite3_stmt *insert = NULL;
-        if (status == MITILOG_OK)
-            status = store_prepare(db, "queries/exams/mode_name_insert.sql", &insert, error);
-        for (int m = 0; status == MITILOG_OK && m < EXAM_MODE_COUNT; m++) {
-            if (sqlite3_bind_int(insert, 1, m) != SQLITE_OK ||
-                sqlite3_bind_text(insert, 2, exam_mode_name((exam_mode)m), -1, SQLITE_STATIC) !=
-                    SQLITE_OK ||
-                store_step_done(insert) != SQLITE_DONE)
-                status = store_sql_error(error, db, "queries/exams/mode_name_insert.sql");
-        }
-        sqlite3_finalize(insert);
-    }
-    if (status == MITILOG_OK)
-        status = store_exec_file(db, "queries/database/write_commit.sql", error);
-    if (status != MITILOG_OK) {
-        store_exec_file(db, "queries/database/write_rollback.sql", NULL);
-        return status;
-    }
-    if (matches == 0 && !ladder_matches)
-        log_info("database %s: TI threshold ladder updated, time at or above recomputed", path);
-    return MITILOG_OK;
+    return store_link_script(link, "queries/database/pragma_writer.sql", error);
 }
 
 mitilog_status store_open(const char *path, int busy_timeout_ms, store **out, mitilog_error *error)
@@ -298,33 +199,23 @@ mitilog_status store_open(const char *path, int busy_timeout_ms, store **out, mi
     store *opened = calloc(1, sizeof *opened);
     if (opened == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory opening %s", path);
-    pthread_mutex_init(&opened->queue_lock, NULL);
-    pthread_cond_init(&opened->queue_changed, NULL);
+    store_commit_init(&opened->queue);
     pthread_mutex_init(&opened->reader_lock, NULL);
-    pthread_mutex_init(&opened->parameter_lock, NULL);
-    hash_table_init(&opened->parameter_indices, STORE_PARAMETER_ENTRIES);
 
-    mitilog_status status = store_connect(path, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE,
-                                          busy_timeout_ms, &opened->writer, error);
+    const store_engine *engine = &store_engine_sqlite;
+    mitilog_status status =
+        store_link_open(&opened->writer, engine, path, 0, busy_timeout_ms, error);
     if (status == MITILOG_OK)
-        status = store_configure_writer(opened->writer, path, error);
+        status = store_configure_writer(&opened->writer, path, error);
     if (status == MITILOG_OK)
-        status = store_migrate(opened->writer, path, &opened->schema_version, error);
+        status = store_migrate(&opened->writer, path, &opened->schema_version, error);
     if (status == MITILOG_OK)
-        status = store_sync_vocabulary(opened->writer, path, error);
-    if (status == MITILOG_OK)
-        status = store_write_prepare(opened, error);
+        status = store_exams_sync_vocabulary(&opened->writer, path, error);
     /* The read connection is opened after the migrations, read-only. */
     if (status == MITILOG_OK)
-        /* NOMUTEX: every use of the read connection is already serialised
-         * by reader_lock, and SQLite's own mutex around each column call
-         * cost a sixth of a period view's instructions. */
-        status = store_connect(path, SQLITE_OPEN_READONLY | SQLITE_OPEN_NOMUTEX, busy_timeout_ms,
-                               &opened->reader, error);
+        status = store_link_open(&opened->reader, engine, path, 1, busy_timeout_ms, error);
     if (status == MITILOG_OK)
-        status = store_exec_file(opened->reader, "queries/database/pragma_reader.sql", error);
-    if (status == MITILOG_OK)
-        status = store_read_prepare(opened, error);
+        status = store_link_script(&opened->reader, "queries/database/pragma_reader.sql", error);
     if (status != MITILOG_OK) {
         store_close(opened);
         return status;
@@ -337,47 +228,73 @@ void store_close(store *st)
 {
     if (st == NULL)
         return;
-    store_write_drain(st);
-    /* Nobody writes any more: what threads remember of the writer's
-     * parameters is forgotten before its statements are finalized. */
-    store_parameter_forget(st);
-    store_read_finalize(st);
-    store_cache_finalize(&st->reader_cache);
-    sqlite3_close(st->reader);
-    store_write_finalize(st);
-    store_cache_finalize(&st->writer_cache);
-    if (st->writer != NULL) {
+    store_commit_drain(&st->queue);
+    store_link_close(&st->reader);
+    if (st->writer.connection != NULL) {
         mitilog_error error;
-        if (store_exec_file(st->writer, "queries/database/checkpoint.sql", &error) != MITILOG_OK)
+        if (store_link_script(&st->writer, "queries/database/checkpoint.sql", &error) != MITILOG_OK)
             log_warning("database checkpoint at close failed: %s", error.text);
-        if (sqlite3_close(st->writer) != SQLITE_OK)
-            log_warning("database close failed: %s", sqlite3_errmsg(st->writer));
     }
-    pthread_mutex_destroy(&st->parameter_lock);
+    store_link_close(&st->writer);
     pthread_mutex_destroy(&st->reader_lock);
-    pthread_cond_destroy(&st->queue_changed);
-    pthread_mutex_destroy(&st->queue_lock);
+    store_commit_destroy(&st->queue);
     free(st);
 }
 
 int store_schema_version(store *st) { return st != NULL ? st->schema_version : 0; }
 
-sqlite3 *store_writer_connection(store *st) { return st != NULL ? st->writer : NULL; }
+void *store_writer_connection(store *st)
+{
+    if (st == NULL || st->writer.engine != &store_engine_sqlite)
+        return NULL;
+    return store_engine_sqlite_handle(st->writer.connection);
+}
 
 mitilog_status store_set_durability(store *st, store_durability durability, mitilog_error *error)
 {
     if (st == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_set_durability: no store");
-    /* The writer connection belongs to whoever leads a batch: wait until
-     * nobody does, and hold the queue so nobody starts meanwhile. */
-    pthread_mutex_lock(&st->queue_lock);
-    while (st->leader_active)
-        pthread_cond_wait(&st->queue_changed, &st->queue_lock);
-    mitilog_status status = store_exec_file(st->writer,
-                                            durability == STORE_DURABILITY_PROCESS
-                                                ? "queries/database/pragma_synchronous_normal.sql"
-                                                : "queries/database/pragma_synchronous_full.sql",
-                                            error);
-    pthread_mutex_unlock(&st->queue_lock);
+    /* The writer link belongs to whoever leads a batch: wait until nobody
+     * does, and hold the queue so nobody starts meanwhile. */
+    store_commit_hold(&st->queue);
+    mitilog_status status = store_link_script(&st->writer,
+                                              durability == STORE_DURABILITY_PROCESS
+                                                  ? "queries/database/pragma_synchronous_normal.sql"
+                                                  : "queries/database/pragma_synchronous_full.sql",
+                                              error);
+    store_commit_release(&st->queue);
+    return status;
+}
+
+/* On failure returns MITILOG_ERROR_DATABASE and, when it can still be
+ * built, sets *json to {"status":"error","database":"error","message":..}
+ * for the health check to serve. */
+mitilog_status store_health_json(store *st, char **json, mitilog_error *error)
+{
+    if (st == NULL || json == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID,
+                                 "store_health_json: no store or result");
+    *json = NULL;
+    pthread_mutex_lock(&st->reader_lock);
+    store_query query;
+    store_query_begin(&query, &st->reader, "queries/database/health.sql");
+    mitilog_status status = store_query_text(&query, "health query", 0, json, error);
+    if (status != MITILOG_OK) {
+        /* written without the database, which just failed */
+        json_writer writer;
+        json_writer_init(&writer);
+        json_object_begin(&writer);
+        json_key(&writer, "status");
+        json_string(&writer, "error");
+        json_key(&writer, "database");
+        json_string(&writer, "error");
+        json_key(&writer, "message");
+        json_string(&writer, error != NULL ? error->text : "health query failed");
+        json_object_end(&writer);
+        if (json_writer_take(&writer, json, NULL) != MITILOG_OK)
+            *json = NULL;
+        status = MITILOG_ERROR_DATABASE;
+    }
+    pthread_mutex_unlock(&st->reader_lock);
     return status;
 }

@@ -24,6 +24,7 @@
 #include "http/http.h"
 #include "store/sql_files.h"
 #include "store/store.h"
+#include "store/store_instances.h"
 
 typedef struct fixture {
     char directory[64];

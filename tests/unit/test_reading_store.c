@@ -19,7 +19,9 @@
 #include <unistd.h>
 
 #include "store/store.h"
-#include "store/store_reading.h"
+#include "store/store_instances.h"
+#include "store/store_readings.h"
+#include "store/store_exams.h"
 
 typedef struct fixture {
     char directory[64];

@@ -23,6 +23,7 @@
 #include "extract/ext_modes.h"
 #include "ingest/ingest_internal.h"
 #include "store/store.h"
+#include "store/store_findings.h"
 
 typedef struct fixture {
     char directory[64];

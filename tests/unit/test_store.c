@@ -22,6 +22,10 @@
 #include "extract/ext_modes.h"
 #include "store/store.h"
 #include "store/store_internal.h"
+#include "store/store_devices.h"
+#include "store/store_findings.h"
+#include "store/store_instances.h"
+#include "store/store_reports.h"
 
 typedef struct fixture {
     char directory[64];

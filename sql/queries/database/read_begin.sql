@@ -1,2 +1,2 @@
--- One snapshot for the several statements of one read (store_read_stats.c).
+-- One snapshot for the several statements of one read (store_reports.c).
 BEGIN DEFERRED;

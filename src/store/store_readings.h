@@ -1,10 +1,10 @@
 /*
- * store_reading.h - the durable queue of objects waiting for their pixels
+ * store_readings.h - the durable queue of objects waiting for their pixels
  * to be read, and the readings (migration 007; the reader itself is
  * src/screen, the workers src/ingest/ingest_reading.c).
  *
  * An instance that needs reading is stored with store_put_instance_read()
- * and a store_reading_request: its queue row (or, when the queue is full,
+ * (store_instances.h) and a store_reading_request: its queue row (or, when the queue is full,
  * its 'not_read' state) commits in the same transaction as its row, so an
  * object acknowledged but not yet read survives a crash. The result of a
  * reading is written by store_put_screen_result(), which also takes the
@@ -14,9 +14,10 @@
  * store_reading_queue_load() gives a malloc'd array freed with
  * store_reading_entries_free().
  */
-#ifndef MITILOG_STORE_READING_H
-#define MITILOG_STORE_READING_H
+#ifndef MITILOG_STORE_READINGS_H
+#define MITILOG_STORE_READINGS_H
 
+#include "exam/exam.h"
 #include "store/store.h"
 
 /* What to do about the pixels of an instance being stored. */
@@ -26,17 +27,6 @@ typedef struct store_reading_request {
     long long bytes;
     const char *not_read_reason; /* set: not queued, state 'not_read' */
 } store_reading_request;
-
-/* store_put_instance() with, when reading is not NULL, its queue row and
- * state in the same transaction. *instance_id (may be NULL) gets the
- * row's id. Every (re)store of an instance drops its older queue row and
- * reading; *stale_spool (may be NULL; malloc'd, the caller deletes that
- * file and frees the string) gets the spool copy of a dropped queue row. */
-mitilog_status store_put_instance_read(store *store, const ext_record *record,
-                                       const store_bytes *header,
-                                       const store_reading_request *reading,
-                                       store_put_outcome *outcome, long long *instance_id,
-                                       char **stale_spool, mitilog_error *error);
 
 /* Queues an instance already stored (mitilog rescore --read-pixels). */
 mitilog_status store_reading_enqueue(store *store, long long instance_id,

@@ -1,59 +1,48 @@
 /*
- * store_read_stats.c - the reads behind statistics, outliers and the
- * ingest status (store.h, "Statistics reads"): plain rows for src/report/,
- * from sql/queries/reports/stats_*.sql and instances/ingest_status.sql, on the read
- * connection under reader_lock. Statements are prepared per call (these
- * are reports, not hot paths) so the store's statement table is unchanged.
+ * store_reports.c - the period reads behind statistics, outliers and
+ * reports (store_reports.h): plain rows for src/report/, from
+ * sql/queries/reports/, on the read connection under reader_lock.
  */
-#include "store/store_internal.h"
+#include "store/store_reports.h"
+
+#include <stdio.h>
 
 #include <stdlib.h>
 #include <string.h>
 
+#include "store/store_internal.h"
+
 /* Column text copied (NULL stays NULL); sets *failed on allocation
  * failure. */
-static char *store_text_copy(sqlite3_stmt *statement, int column, int *failed)
+static char *store_text_copy(store_query *query, int column, int *failed)
 {
-    const unsigned char *text = sqlite3_column_text(statement, column);
-    if (text == NULL)
-        return NULL;
-    size_t length = (size_t)sqlite3_column_bytes(statement, column);
-    char *copy = malloc(length + 1);
-    if (copy == NULL) {
-        *failed = 1;
-        return NULL;
-    }
-    memcpy(copy, text, length);
-    copy[length] = '\0';
-    return copy;
+    return store_column_copy(query, column, failed);
 }
 
-/* One call into the connection per column (each sqlite3_column_* call
- * takes the connection's mutex; the value's type and number do not). */
-static double store_double(sqlite3_stmt *statement, int column, int *present)
+/* A real column; *present (may be NULL) says it was not NULL. */
+static double store_double(store_query *query, int column, int *present)
 {
-    sqlite3_value *value = sqlite3_column_value(statement, column);
-    int null = sqlite3_value_type(value) == SQLITE_NULL;
+    int null = store_column_is_null(query, column);
     if (present != NULL)
         *present = !null;
-    return null ? 0.0 : sqlite3_value_double(value);
+    return null ? 0.0 : store_column_real(query, column);
 }
 
-/* Prepares name on the reader and binds the two days. Call under lock. */
-static mitilog_status store_period_statement(store *st, const char *name, const char *from_day,
-                                             const char *to_day, sqlite3_stmt **statement,
-                                             mitilog_error *error)
+/* Begins cached statement name on the reader and binds the two days.
+ * Call under lock. */
+static void store_period_query(store *st, store_query *query, const char *name,
+                               const char *from_day, const char *to_day)
 {
-    mitilog_status status = store_prepare(st->reader, name, statement, error);
-    if (status != MITILOG_OK)
-        return status;
-    if (sqlite3_bind_text(*statement, 1, from_day, -1, SQLITE_TRANSIENT) != SQLITE_OK ||
-        sqlite3_bind_text(*statement, 2, to_day, -1, SQLITE_TRANSIENT) != SQLITE_OK) {
-        sqlite3_finalize(*statement);
-        *statement = NULL;
-        return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: bind failed", name);
-    }
-    return MITILOG_OK;
+    store_query_begin(query, &st->reader, name);
+    store_bind_text_at(query, 1, from_day);
+    store_bind_text_at(query, 2, to_day);
+}
+
+/* The reason of a failed period query. */
+static mitilog_status store_period_error(mitilog_error *error, const char *what,
+                                         const store_query *query)
+{
+    return mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: %s", what, query->error.text);
 }
 
 /* The strings of an exam list: blocks of at least 64 KiB, filled in turn,
@@ -67,14 +56,13 @@ enum { STORE_TEXT_BLOCK_SIZE = 64 * 1024 };
 
 /* Copies a column's text into the list's blocks (NULL stays NULL); sets
  * *failed on allocation failure. */
-static char *store_list_text(store_exam_list *list, sqlite3_stmt *statement, int column,
-                             int *failed)
+static char *store_list_text(store_exam_list *list, store_query *statement, int column, int *failed)
 {
-    const unsigned char *text = sqlite3_column_text(statement, column);
+    const char *text = store_column_text(statement, column);
     if (text == NULL)
         return NULL;
     /* NUL-terminated by SQLite; its consumers read C strings. */
-    size_t length = strlen((const char *)text) + 1;
+    size_t length = strlen(text) + 1;
     store_exam_text_block *block = list->texts;
     if (block == NULL || block->size - block->used < length) {
         size_t size = length > STORE_TEXT_BLOCK_SIZE ? length : STORE_TEXT_BLOCK_SIZE;
@@ -210,14 +198,14 @@ static const char **store_key_field(exam_row *row, unsigned columns)
 }
 
 /* A count column (never negative). */
-static size_t store_count(sqlite3_stmt *statement, int column)
+static size_t store_count(store_query *statement, int column)
 {
-    sqlite3_int64 value = sqlite3_column_int64(statement, column);
+    long long value = store_column_integer(statement, column);
     return value > 0 ? (size_t)value : 0;
 }
 
 /* One row of the chosen query. */
-static int exam_row_read(store_exam_list *list, exam_row *row, sqlite3_stmt *statement,
+static int exam_row_read(store_exam_list *list, exam_row *row, store_query *statement,
                          unsigned columns, store_exam_query query)
 {
     int failed = 0;
@@ -299,17 +287,13 @@ static mitilog_status store_load_time_at_or_above(store *st, const char *from_da
                                                   mitilog_error *error)
 {
     static const char name[] = "queries/reports/stats_exam_time_at_or_above.sql";
-    sqlite3_stmt *statement = NULL;
-    mitilog_status status = store_period_statement(st, name, from_day, to_day, &statement, error);
-    if (status == MITILOG_OK &&
-        sqlite3_bind_double(statement, 3, exam_ti_ladder[EXAM_TI_STATISTICS_STEPS - 1]) !=
-            SQLITE_OK)
-        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: bind failed", name);
-    int rc = SQLITE_DONE;
+    store_query query;
+    store_period_query(st, &query, name, from_day, to_day);
+    store_bind_real_at(&query, 3, exam_ti_ladder[EXAM_TI_STATISTICS_STEPS - 1]);
     exam_row *row = NULL;
-    while (status == MITILOG_OK && (rc = sqlite3_step(statement)) == SQLITE_ROW) {
+    while (store_query_step(&query)) {
         /* An exam's rows come one after another: one search per exam. */
-        const char *uid = (const char *)sqlite3_column_text(statement, 0);
+        const char *uid = store_column_text(&query, 0);
         if (uid == NULL) {
             row = NULL;
             continue;
@@ -318,15 +302,14 @@ static mitilog_status store_load_time_at_or_above(store *st, const char *from_da
             exam_row key = {.study_instance_uid = uid};
             row = bsearch(&key, list->rows, list->count, sizeof *list->rows, store_compare_rows);
         }
-        double threshold = sqlite3_column_double(statement, 1);
+        double threshold = store_column_real(&query, 1);
         for (int k = 0; row != NULL && k < EXAM_TI_STATISTICS_STEPS; k++)
             if (exam_ti_ladder[k] == threshold)
-                row->seconds_at_or_above[k] = sqlite3_column_double(statement, 2);
+                row->seconds_at_or_above[k] = store_column_real(&query, 2);
     }
-    if (status == MITILOG_OK && rc != SQLITE_DONE)
-        status = store_sql_error(error, st->reader, name);
-    sqlite3_finalize(statement);
-    return status;
+    if (store_query_end(&query) != MITILOG_OK)
+        return store_period_error(error, name, &query);
+    return MITILOG_OK;
 }
 
 static mitilog_status store_load_exams(store *st, store_exam_query query, const char *from_day,
@@ -340,30 +323,27 @@ static mitilog_status store_load_exams(store *st, store_exam_query query, const 
     if (st == NULL || from_day == NULL || to_day == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "store_load_exam_rows: no store or period");
-    sqlite3_stmt *statement = NULL;
     size_t capacity = 0;
+    mitilog_status status = MITILOG_OK;
     pthread_mutex_lock(&st->reader_lock);
-    mitilog_status status =
-        store_period_statement(st, names[query], from_day, to_day, &statement, error);
-    if (status == MITILOG_OK && query == STORE_QUERY_VALUES &&
-        sqlite3_bind_text(statement, 3, store_key_name(columns), -1, SQLITE_STATIC) != SQLITE_OK)
-        status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "%s: bind failed", names[query]);
     /* The rows and their times from one snapshot. */
     int timed = query == STORE_QUERY_ROWS || query == STORE_QUERY_VALUES;
     int in_transaction = 0;
-    if (status == MITILOG_OK && timed) {
-        status = store_exec_file(st->reader, "queries/database/read_begin.sql", error);
+    if (timed) {
+        status = store_link_script(&st->reader, "queries/database/read_begin.sql", error);
         in_transaction = status == MITILOG_OK;
     }
-    int rc = SQLITE_DONE;
-    while (status == MITILOG_OK && (rc = sqlite3_step(statement)) == SQLITE_ROW) {
+    store_query statement;
+    store_period_query(st, &statement, names[query], from_day, to_day);
+    if (query == STORE_QUERY_VALUES)
+        store_bind_text_at(&statement, 3, store_key_name(columns));
+    while (status == MITILOG_OK && store_query_step(&statement)) {
         exam_row *row = store_list_add(list, &capacity);
-        if (row == NULL || exam_row_read(list, row, statement, columns, query))
+        if (row == NULL || exam_row_read(list, row, &statement, columns, query))
             status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "exam rows: out of memory");
     }
-    if (status == MITILOG_OK && rc != SQLITE_DONE)
-        status = store_sql_error(error, st->reader, "query exam rows");
-    sqlite3_finalize(statement);
+    if (store_query_end(&statement) != MITILOG_OK && status == MITILOG_OK)
+        status = store_period_error(error, "query exam rows", &statement);
     /* Sorted here rather than by the query: SQLite's sorter copied every
      * row into a record and back, about as much work as the scan. */
     if (status == MITILOG_OK && query != STORE_QUERY_GOVERNING && list->count > 1)
@@ -371,8 +351,8 @@ static mitilog_status store_load_exams(store *st, store_exam_query query, const 
     if (status == MITILOG_OK && timed)
         status = store_load_time_at_or_above(st, from_day, to_day, list, error);
     if (in_transaction) {
-        mitilog_status ended = store_exec_file(st->reader, "queries/database/read_end.sql",
-                                               status == MITILOG_OK ? error : NULL);
+        mitilog_status ended = store_link_script(&st->reader, "queries/database/read_end.sql",
+                                                 status == MITILOG_OK ? error : NULL);
         if (status == MITILOG_OK)
             status = ended;
     }
@@ -424,13 +404,12 @@ mitilog_status store_load_finding_counts(store *st, const char *from_day, const 
     if (st == NULL || from_day == NULL || to_day == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
                                  "store_load_finding_counts: no store or period");
-    sqlite3_stmt *statement = NULL;
     size_t capacity = 0;
+    mitilog_status status = MITILOG_OK;
     pthread_mutex_lock(&st->reader_lock);
-    mitilog_status status = store_period_statement(st, "queries/reports/stats_finding_counts.sql",
-                                                   from_day, to_day, &statement, error);
-    int rc = SQLITE_DONE;
-    while (status == MITILOG_OK && (rc = sqlite3_step(statement)) == SQLITE_ROW) {
+    store_query query, *statement = &query;
+    store_period_query(st, &query, "queries/reports/stats_finding_counts.sql", from_day, to_day);
+    while (status == MITILOG_OK && store_query_step(&query)) {
         if (counts->count == capacity) {
             size_t grown_capacity = capacity ? capacity * 2 : 64;
             char **uids = realloc(counts->study_instance_uids, grown_capacity * sizeof *uids);
@@ -453,9 +432,8 @@ mitilog_status store_load_finding_counts(store *st, const char *from_day, const 
         if (failed)
             status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "findings: out of memory");
     }
-    if (status == MITILOG_OK && rc != SQLITE_DONE)
-        status = store_sql_error(error, st->reader, "query finding counts");
-    sqlite3_finalize(statement);
+    if (store_query_end(&query) != MITILOG_OK && status == MITILOG_OK)
+        status = store_period_error(error, "query finding counts", &query);
     pthread_mutex_unlock(&st->reader_lock);
     if (status != MITILOG_OK)
         store_finding_counts_free(counts);
@@ -480,14 +458,14 @@ mitilog_status store_load_period_info(store *st, const char *from_day, const cha
     memset(info, 0, sizeof *info);
     if (st == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_load_period_info: no store");
-    sqlite3_stmt *statement = NULL;
+    mitilog_status status = MITILOG_OK;
     pthread_mutex_lock(&st->reader_lock);
-    mitilog_status status = store_period_statement(
-        st, "queries/reports/stats_policy_info.sql", from_day ? from_day : "0000-00-00",
-        to_day ? to_day : "9999-99-99", &statement, error);
-    if (status == MITILOG_OK) {
-        if (sqlite3_step(statement) != SQLITE_ROW) {
-            status = store_sql_error(error, st->reader, "query period information");
+    store_query query, *statement = &query;
+    store_period_query(st, &query, "queries/reports/stats_policy_info.sql",
+                       from_day ? from_day : "0000-00-00", to_day ? to_day : "9999-99-99");
+    {
+        if (!store_query_step(&query)) {
+            status = store_period_error(error, "query period information", &query);
         } else {
             int failed = 0;
             info->policy_version = store_text_copy(statement, 0, &failed);
@@ -500,7 +478,7 @@ mitilog_status store_load_period_info(store *st, const char *from_day, const cha
                                            "period information: out of memory");
         }
     }
-    sqlite3_finalize(statement);
+    store_query_end(&query);
     pthread_mutex_unlock(&st->reader_lock);
     if (status != MITILOG_OK)
         store_period_info_free(info);
@@ -514,13 +492,13 @@ mitilog_status store_load_day_range(store *st, char **first_day, char **last_day
     *last_day = NULL;
     if (st == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_load_day_range: no store");
-    sqlite3_stmt *statement = NULL;
+    mitilog_status status = MITILOG_OK;
     pthread_mutex_lock(&st->reader_lock);
-    mitilog_status status =
-        store_prepare(st->reader, "queries/reports/stats_day_range.sql", &statement, error);
-    if (status == MITILOG_OK) {
-        if (sqlite3_step(statement) != SQLITE_ROW) {
-            status = store_sql_error(error, st->reader, "query exam days");
+    store_query query, *statement = &query;
+    store_query_begin(&query, &st->reader, "queries/reports/stats_day_range.sql");
+    {
+        if (!store_query_step(&query)) {
+            status = store_period_error(error, "query exam days", &query);
         } else {
             int failed = 0;
             *first_day = store_text_copy(statement, 0, &failed);
@@ -529,7 +507,7 @@ mitilog_status store_load_day_range(store *st, char **first_day, char **last_day
                 status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "exam days: out of memory");
         }
     }
-    sqlite3_finalize(statement);
+    store_query_end(&query);
     pthread_mutex_unlock(&st->reader_lock);
     if (status != MITILOG_OK) {
         free(*first_day);
@@ -539,27 +517,27 @@ mitilog_status store_load_day_range(store *st, char **first_day, char **last_day
     return status;
 }
 
-mitilog_status store_ingest_json(store *st, int window_hours, int silent_hours, int days,
-                                 char **json, mitilog_error *error)
+mitilog_status store_load_baseline_span(store *st, const char *from_day, const char *before_day,
+                                        store_span *span, mitilog_error *error)
 {
-    *json = NULL;
-    if (st == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "store_ingest_json: no store");
-    sqlite3_stmt *statement = NULL;
+    memset(span, 0, sizeof *span);
+    if (st == NULL || from_day == NULL || before_day == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_INVALID, "baseline span: no store or days");
+    mitilog_status status = MITILOG_OK;
     pthread_mutex_lock(&st->reader_lock);
-    mitilog_status status =
-        store_prepare(st->reader, "queries/instances/ingest_status.sql", &statement, error);
-    if (status == MITILOG_OK) {
-        if (sqlite3_bind_int(statement, 1, window_hours) != SQLITE_OK ||
-            sqlite3_bind_int(statement, 2, silent_hours) != SQLITE_OK ||
-            sqlite3_bind_int(statement, 3, days) != SQLITE_OK)
-            status = mitilog_error_set(error, MITILOG_ERROR_DATABASE, "ingest status: bind");
-        else if (sqlite3_step(statement) != SQLITE_ROW)
-            status = store_sql_error(error, st->reader, "query ingest status");
-        else
-            status = store_column_dup(statement, json, error);
+    store_query query;
+    store_period_query(st, &query, "queries/reports/baseline_span.sql", from_day, before_day);
+    if (!store_query_step(&query)) {
+        status = store_period_error(error, "query baseline span", &query);
+    } else {
+        const char *first = store_column_text(&query, 0);
+        const char *last = store_column_text(&query, 1);
+        snprintf(span->first_day, sizeof span->first_day, "%s", first != NULL ? first : "");
+        snprintf(span->last_day, sizeof span->last_day, "%s", last != NULL ? last : "");
+        span->weeks = (long)store_column_integer(&query, 2);
+        span->exams = (long)store_column_integer(&query, 3);
     }
-    sqlite3_finalize(statement);
+    store_query_end(&query);
     pthread_mutex_unlock(&st->reader_lock);
     return status;
 }
