@@ -1,8 +1,10 @@
 -- The current findings of one evaluation (an exam, or a device-level rule
 -- and period) at or above a severity, queued for one channel. A finding
 -- already queued under the same key is left alone (sent once).
--- :study NULL: device-level (:rule_id, :period). Severity ranks:
--- advisory 1, warning 2, violation 3.
+-- :study NULL: device-level (:rule_id, :period). Each parameter is first
+-- compared with a column, so that PostgreSQL knows its type. Severity ranks:
+-- advisory 1, warning 2, violation 3. Of several findings under one key
+-- the highest value is queued (NULLs last on both engines).
 INSERT INTO notification_outbox (
     finding_key, channel, study_instance_uid, accession_number, room, preset,
     rule_id, severity, quantity, measured_value, unit, limit_value,
@@ -16,10 +18,10 @@ SELECT coalesce(f.study_instance_uid, '') || '|' || f.rule_id || '|' || f.severi
        f.limit_value, f.started_at, f.period, :now, :now
 FROM findings f
 WHERE f.superseded = 0 AND f.policy_version = :policy_version
-  AND ((:study IS NOT NULL AND f.study_instance_uid = :study)
-       OR (:study IS NULL AND f.study_instance_uid IS NULL AND f.rule_id = :rule_id
-           AND f.period = :period))
+  AND ((f.study_instance_uid = :study AND :study IS NOT NULL)
+       OR (f.study_instance_uid IS NULL AND f.rule_id = :rule_id AND f.period = :period
+           AND :study IS NULL))
   AND (CASE f.severity WHEN 'violation' THEN 3 WHEN 'warning' THEN 2 ELSE 1 END)
       >= :minimum_rank
-ORDER BY f.measured_value DESC, f.id
+ORDER BY f.measured_value IS NULL, f.measured_value DESC, f.id
 ON CONFLICT (finding_key, channel) DO NOTHING;
