@@ -14,6 +14,7 @@ import http.server
 import json
 import os
 import socket
+import ssl
 import threading
 import time
 
@@ -22,6 +23,7 @@ import pytest
 from pydicom.uid import generate_uid
 
 from conftest import free_port
+from test_https import make_certificates
 
 PATIENT_NAME = "Quillfeather^Imogen"
 PATIENT_ID = "PID-55501-X"
@@ -34,7 +36,7 @@ class Receiver:
     """An HTTP receiver on 127.0.0.1 that records each POST and answers
     with the next status of its script (then 200)."""
 
-    def __init__(self, port, script=()):
+    def __init__(self, port, script=(), tls=None):
         self.port, self.script, self.posts = port, list(script), []
         self.lock = threading.Lock()
         receiver = self
@@ -53,6 +55,10 @@ class Receiver:
                 pass
 
         self.server = http.server.ThreadingHTTPServer(("127.0.0.1", port), Handler)
+        if tls is not None:  # (certificate, key): HTTPS
+            context = ssl.SSLContext(ssl.PROTOCOL_TLS_SERVER)
+            context.load_cert_chain(*tls)
+            self.server.socket = context.wrap_socket(self.server.socket, server_side=True)
         self.thread = threading.Thread(target=self.server.serve_forever, daemon=True)
         self.thread.start()
 
@@ -85,11 +91,13 @@ def good_fixture(fixtures):
     raise AssertionError("no single-frame ultrasound fixture")
 
 
-def configure(daemon, webhook_port, syslog_path=None):
+def configure(daemon, webhook_port, syslog_path=None, max_attempts=50, scheme="http",
+              extra=""):
     with open(daemon.config, "a") as f:
-        f.write("[notifications]\nwebhook_url = http://127.0.0.1:%d/hook\n"
+        f.write("[notifications]\nwebhook_url = %s://127.0.0.1:%d/hook\n"
                 "dashboard_url = %s\nretry_initial_seconds = 1\nretry_max_seconds = 2\n"
-                "max_attempts = 50\ntimeout_seconds = 5\n" % (webhook_port, DASHBOARD))
+                "max_attempts = %d\ntimeout_seconds = 5\n%s"
+                % (scheme, webhook_port, DASHBOARD, max_attempts, extra))
         if syslog_path is not None:
             f.write("syslog = yes\nsyslog_facility = local3\nsyslog_socket = %s\n"
                     % syslog_path)
@@ -201,5 +209,51 @@ def test_receiver_down_does_not_hold_ingest_and_delivers_after_restart(daemon_fa
         wait_for(lambda: [r for r in outbox(daemon) if r[1] == "delivered"], "delivered")
         assert len(receiver.posts) == 1
         assert json.loads(receiver.posts[0][2])["study_instance_uid"] == study
+    finally:
+        receiver.stop()
+
+
+def test_given_up_after_max_attempts_is_recorded(daemon_factory, fixtures, tmp_path):
+    port = free_port()
+    receiver = Receiver(port, script=[500] * 10)
+    try:
+        daemon = daemon_factory()
+        configure(daemon, port, max_attempts=2)
+        daemon.start()
+        path, _ = violating_object(good_fixture(fixtures), tmp_path, "refused", "2.2")
+        assert daemon.storescu([path]).returncode == 0
+        rows = wait_for(lambda: [r for r in outbox(daemon) if r[1] == "failed"], "given up")
+        assert rows[0][2] == 2 and "500" in rows[0][5]
+        assert len(receiver.posts) == 2  # no third attempt
+        assert "given up after 2 attempts" in daemon.log()
+    finally:
+        receiver.stop()
+
+
+def test_https_webhook_is_verified(daemon_factory, fixtures, tmp_path):
+    # A receiver whose certificate no trusted CA signed is refused (the
+    # row waits, its reason recorded); with the CA given by
+    # webhook_ca_certificates the same receiver is trusted (RFC 6125
+    # host name check against the certificate's IP 127.0.0.1).
+    ca, certificate, key = make_certificates(str(tmp_path))
+    port = free_port()
+    receiver = Receiver(port, tls=(certificate, key))
+    try:
+        untrusted = daemon_factory("untrusted")
+        configure(untrusted, port, scheme="https")
+        untrusted.start()
+        path, _ = violating_object(good_fixture(fixtures), tmp_path, "tls", "2.3")
+        assert untrusted.storescu([path]).returncode == 0
+        rows = wait_for(lambda: [r for r in outbox(untrusted) if r[2] >= 1], "an attempt")
+        assert rows[0][1] == "pending" and "certificate" in rows[0][5].lower(), rows
+        assert receiver.posts == []
+
+        trusted = daemon_factory("trusted")
+        configure(trusted, port, scheme="https",
+                  extra="webhook_ca_certificates = %s\n" % ca)
+        trusted.start()
+        assert trusted.storescu([path]).returncode == 0
+        wait_for(lambda: [r for r in outbox(trusted) if r[1] == "delivered"], "delivered")
+        assert len(receiver.posts) == 1
     finally:
         receiver.stop()
