@@ -329,6 +329,31 @@ CREATE TABLE mode_names (
     rank  INTEGER PRIMARY KEY,      -- bit position in the modes columns
     mode  TEXT NOT NULL UNIQUE      -- as src/extract/ext_modes.c names it
 ) STRICT;
+CREATE TABLE notification_outbox (
+    id                  INTEGER PRIMARY KEY,
+    finding_key         TEXT NOT NULL,
+    channel             TEXT NOT NULL CHECK (channel IN ('webhook', 'syslog')),
+    study_instance_uid  TEXT,          -- NULL for a device-level finding
+    accession_number    TEXT,
+    room                TEXT,
+    preset              TEXT,
+    rule_id             TEXT NOT NULL,
+    severity            TEXT NOT NULL,
+    quantity            TEXT,
+    measured_value      REAL,
+    unit                TEXT,
+    limit_value         REAL,
+    started_at          TEXT,
+    period              TEXT,
+    created_at          TEXT NOT NULL, -- ISO 8601 UTC
+    state               TEXT NOT NULL DEFAULT 'pending'
+        CHECK (state IN ('pending', 'delivered', 'failed')),
+    attempts            INTEGER NOT NULL DEFAULT 0 CHECK (attempts >= 0),
+    next_attempt_at     TEXT NOT NULL, -- ISO 8601 UTC
+    last_error          TEXT,
+    delivered_at        TEXT,
+    UNIQUE (finding_key, channel)
+);
 CREATE TABLE policies (
     version          TEXT PRIMARY KEY,
     name             TEXT,
@@ -452,6 +477,7 @@ CREATE INDEX findings_study ON findings (study_instance_uid, superseded);
 CREATE INDEX instances_day ON instances (substr(coalesce(acquired_at, received_at), 1, 10));
 CREATE INDEX instances_received ON instances (received_at);
 CREATE INDEX instances_study ON instances (study_instance_uid, acquired_at);
+CREATE INDEX notification_outbox_due ON notification_outbox (state, next_attempt_at);
 CREATE INDEX rejections_received ON rejections (received_at);
 CREATE INDEX reviews_finding ON reviews (finding_id, id) WHERE finding_id IS NOT NULL;
 CREATE INDEX reviews_study ON reviews (study_instance_uid, id);

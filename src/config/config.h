@@ -50,6 +50,24 @@ typedef struct config {
     unsigned http_max_connections_per_address; /* 0 = no per-address limit */
     unsigned http_request_timeout_seconds;
 
+    /* [dicomweb] STOW-RS (src/http/http_dicomweb.c) */
+    char *dicomweb_enabled; /* "yes" or "no" */
+    unsigned dicomweb_max_request_megabytes;
+    unsigned dicomweb_max_parts;
+
+    /* [notifications] findings sent out (src/notify) */
+    char *notify_severity;        /* advisory, warning or violation */
+    char *notify_webhook_url;     /* "" = no webhook */
+    char *notify_webhook_ca;      /* PEM CA file; "" = the system's */
+    char *notify_syslog;          /* "yes" or "no" */
+    char *notify_syslog_facility; /* daemon, user, local0 ... local7 */
+    char *notify_syslog_socket;   /* Unix datagram socket, /dev/log */
+    char *notify_dashboard_url;   /* base of the exam page links; "" = none */
+    unsigned notify_timeout_seconds;
+    unsigned notify_retry_initial_seconds;
+    unsigned notify_retry_max_seconds;
+    unsigned notify_max_attempts;
+
     /* [storage] */
     char *data_directory;
     char *database_path; /* default: data_directory/mitilog.sqlite3 */

@@ -9,6 +9,8 @@
  * http_throttle.c  login failures per address and per user;
  * http_routes_reviews.c  the review worklist, the review history and
  *                recording a review (POST, login and forgery checks);
+ * http_dicomweb.c  DICOMweb STOW-RS (POST /dicomweb/studies, login with
+ *                the role sender);
  * http_static.c  the dashboard's files under web_root.
  */
 #ifndef MITILOG_HTTP_INTERNAL_H
@@ -53,16 +55,19 @@ struct http_server {
     http_throttle *throttle; /* failed logins; with auth only        */
     char *tls_certificate;   /* PEM text kept for MHD, NULL: HTTP    */
     char *tls_private_key;
-    http_guard *guard;      /* request deadlines                    */
-    char csrf_key[65];      /* random, drawn at start: review tokens */
-    char *institution;      /* [site] institution, NULL: not set    */
-    const metrics *metrics; /* GET /metrics; NULL: not served     */
+    http_guard *guard;                 /* request deadlines                    */
+    char csrf_key[65];                 /* random, drawn at start: review tokens */
+    char *institution;                 /* [site] institution, NULL: not set    */
+    const metrics *metrics;            /* GET /metrics; NULL: not served */
+    struct ingest *ingest;             /* STOW-RS; NULL: not enabled  */
+    unsigned long long stow_max_bytes; /* body of one STOW-RS request */
+    unsigned stow_max_parts;           /* objects of one request      */
 };
 
 /* Who sent a request: user "" and role NULL when no login is set. */
 typedef struct http_identity {
     char user[128];
-    const char *role; /* "viewer" or "reviewer" (static) */
+    const char *role; /* "viewer", "reviewer" or "sender" (static) */
 } http_identity;
 
 /* A response to queue: status code and the response (owned). */
@@ -171,6 +176,26 @@ void http_post_feed(http_post *post, const char *data, size_t size);
 http_reply http_post_finish(http_server *server, struct MHD_Connection *connection,
                             http_post *post);
 void http_post_free(http_post *post);
+
+/* http_dicomweb.c: DICOMweb STOW-RS, POST /dicomweb/studies. */
+typedef struct http_stow http_stow;
+/* First call: 1 with *reply when refused before the body is read (not
+ * enabled, login, role, origin, media type, declared length). */
+int http_stow_refused(http_server *server, struct MHD_Connection *connection,
+                      const http_identity *identity, http_reply *reply);
+/* NULL when out of memory. Freed by http_stow_free(). */
+http_stow *http_stow_create(struct MHD_Connection *connection, const http_identity *identity);
+/* Keeps a piece of the body; 0 once the body is past the limit (the rest
+ * is not kept: answer http_stow_too_large()). */
+int http_stow_feed(http_server *server, http_stow *stow, const char *data, size_t size);
+/* Whether the 413 was already queued while the body was arriving. */
+int http_stow_answered(http_stow *stow);
+void http_stow_set_answered(http_stow *stow);
+http_reply http_stow_too_large(http_server *server);
+/* The body has arrived: stores each part, answers per PS3.18 10.5.3. */
+http_reply http_stow_finish(http_server *server, struct MHD_Connection *connection,
+                            http_stow *stow);
+void http_stow_free(http_stow *stow);
 
 /* http_static.c: serves url from web_root; 0 if there is no such file. */
 int http_route_static(const http_server *server, const char *url, http_reply *reply);

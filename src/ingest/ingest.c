@@ -324,6 +324,13 @@ static int quarantine_make_room(ingest *ingest, uint64_t incoming)
     return fits;
 }
 
+/* The announced instance UID, or words saying none was announced. */
+static const char *record_uid_or_unknown(const ingest_source *source)
+{
+    return source->announced_sop_instance_uid[0] != '\0' ? source->announced_sop_instance_uid
+                                                         : "(UID not read)";
+}
+
 /* Keeps the received bytes of a rejected object, within the quarantine
  * quota (oldest removed first), and records the reason. */
 static void quarantine(ingest *ingest, const ingest_source *source, const char *reason)
@@ -362,7 +369,10 @@ static void quarantine(ingest *ingest, const ingest_source *source, const char *
                                  reason};
     if (store_put_rejection(ingest->store, &rejection, &error) != MITILOG_OK)
         log_error("cannot record rejection: %s", error.text);
-    if (source->is_spool)
+    if (source->description != NULL)
+        log_warning("%s: object %s rejected: %s; bytes kept in %s", source->description,
+                    record_uid_or_unknown(source), reason, kept[0] ? kept : "(nowhere)");
+    else if (source->is_spool)
         log_warning("association %lu: object %s from AE '%s' rejected: %s; bytes kept in %s",
                     source->association_id, source->announced_sop_instance_uid,
                     source->calling_ae_title, reason, kept[0] ? kept : "(nowhere)");
@@ -462,6 +472,14 @@ static ingest_outcome reject(ingest *ingest, const ingest_source *source, mitilo
 
 ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilog_error *reason)
 {
+    return ingest_object_receipt(ingest, source, NULL, reason);
+}
+
+ingest_outcome ingest_object_receipt(ingest *ingest, const ingest_source *source,
+                                     ingest_receipt *receipt, mitilog_error *reason)
+{
+    if (receipt != NULL)
+        memset(receipt, 0, sizeof *receipt);
     dcm_object *object = NULL;
     dcm_facts facts;
     ext_record record;
@@ -488,6 +506,12 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
         dcm_facts_free(&facts);
         ext_record_free(&record);
         return reject(ingest, source, reason);
+    }
+    if (receipt != NULL) {
+        snprintf(receipt->sop_class_uid, sizeof receipt->sop_class_uid, "%s",
+                 record.sop_class_uid != NULL ? record.sop_class_uid : "");
+        snprintf(receipt->sop_instance_uid, sizeof receipt->sop_instance_uid, "%s",
+                 record.sop_instance_uid != NULL ? record.sop_instance_uid : "");
     }
     for (size_t i = 0; record.sr != NULL && i < record.sr->unknown_scheme_count; i++)
         ingest_schemes_note(&ingest->schemes, record.sr->unknown_schemes[i],
@@ -656,7 +680,8 @@ uint16_t ingest_store_handler(void *context, const dcm_received *object)
                             object->affected_sop_class_uid ? object->affected_sop_class_uid : "",
                             object->affected_sop_instance_uid ? object->affected_sop_instance_uid
                                                               : "",
-                            object->association_id};
+                            object->association_id,
+                            NULL};
     mitilog_error reason;
     switch (ingest_object(context, &source, &reason)) {
     case INGEST_OUTCOME_STORED:

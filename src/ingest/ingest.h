@@ -45,6 +45,10 @@ typedef struct ingest_source {
     const char *announced_sop_class_uid; /* C-STORE command, or ""    */
     const char *announced_sop_instance_uid;
     unsigned long association_id; /* 0 for imports                       */
+    /* Names the object in log lines when it came neither by association
+     * nor by import (e.g. "STOW-RS part 2 from 10.1.2.3"); NULL: by the
+     * association or the path. */
+    const char *description;
 } ingest_source;
 
 /* Creates the data folders (mode 0750) from the configuration. */
@@ -62,6 +66,18 @@ void ingest_free(ingest *ingest);
 /* Runs one object through the pipeline. reason receives the cause of a
  * rejection or failure (it is also logged). */
 ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilog_error *reason);
+
+/* What the object said it is, for a sender's receipt (DICOMweb STOW-RS
+ * answers with the UIDs of each part): both "" when the object could not
+ * be read that far. */
+typedef struct ingest_receipt {
+    char sop_class_uid[65];
+    char sop_instance_uid[65];
+} ingest_receipt;
+
+/* ingest_object() that also fills receipt (may be NULL). */
+ingest_outcome ingest_object_receipt(ingest *ingest, const ingest_source *source,
+                                     ingest_receipt *receipt, mitilog_error *reason);
 
 /* Waits until the exam records of every study touched so far have been
  * rebuilt (the exam worker, ingest_exam.c). ingest_free() also drains. */

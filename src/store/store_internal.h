@@ -16,6 +16,7 @@
 #include <pthread.h>
 
 #include "store/store.h"
+#include "store/store_notifications.h"
 #include "store/store_statement.h"
 
 /* A write of one subject, run by the batch leader on the writer link
@@ -53,6 +54,10 @@ struct store {
 
     int schema_version;
     char active_policy[65]; /* under reader_lock; "" = none */
+
+    /* Findings queued for notification (store_notifications.c); set
+     * before any evaluation is written, read-only afterwards. */
+    store_notification_queueing notify;
 };
 
 /* store_commit.c: runs write(context) in a batch on the writer, waiting
