@@ -297,7 +297,8 @@ static uint16_t backfill_on_retrieved(void *context, const dcm_retrieved *object
                             run->settings->source_host,
                             object->sop_class_uid,
                             object->sop_instance_uid,
-                            worker->index + 1};
+                            worker->index + 1,
+                            NULL};
     mitilog_error reason;
     uint16_t status = backfill_count(run, worker, ingest_object(run->pipeline, &source, &reason));
     /* The wait comes after the commit, before the answer: the PACS sends
@@ -326,7 +327,8 @@ static uint16_t backfill_on_moved(void *context, const dcm_received *object)
                             object->affected_sop_class_uid ? object->affected_sop_class_uid : "",
                             object->affected_sop_instance_uid ? object->affected_sop_instance_uid
                                                               : "",
-                            object->association_id};
+                            object->association_id,
+                            NULL};
     uint16_t status = backfill_count(run, NULL, ingest_object(run->pipeline, &source, &reason));
     backfill_pace(run); /* after the commit, as for C-GET */
     return status;
