@@ -4,6 +4,39 @@
 -- anything: the migrations make the schema; this file shows it whole, and
 -- tests/integration/test_schema.py checks that it is what they produce.
 -- Written by: MITILOG_BINARY=build/mitilog /usr/bin/python3 tests/integration/test_schema.py --write
+CREATE TABLE backfill_runs (
+    id                  INTEGER PRIMARY KEY,
+    source              TEXT NOT NULL,
+    state               TEXT NOT NULL,
+    message             TEXT NOT NULL DEFAULT '',
+    studies_found       INTEGER NOT NULL DEFAULT 0,
+    studies_done        INTEGER NOT NULL DEFAULT 0,
+    studies_failed      INTEGER NOT NULL DEFAULT 0,
+    objects             INTEGER NOT NULL DEFAULT 0,
+    objects_per_minute  REAL,
+    seconds_left        INTEGER,        -- NULL: not known yet
+    started_at          TEXT NOT NULL,
+    updated_at          TEXT NOT NULL,
+    finished_at         TEXT
+);
+CREATE TABLE backfill_studies (
+    source              TEXT NOT NULL,
+    study_instance_uid  TEXT NOT NULL,
+    state               TEXT NOT NULL CHECK (state IN ('found', 'retrieving', 'done', 'failed')),
+    study_date          TEXT,            -- YYYYMMDD as the PACS returned it
+    accession_number    TEXT,
+    study_description   TEXT,
+    expected_objects    INTEGER,         -- NULL: the PACS did not say
+    objects_stored      INTEGER NOT NULL DEFAULT 0,
+    objects_failed      INTEGER NOT NULL DEFAULT 0,
+    objects_skipped     INTEGER NOT NULL DEFAULT 0,
+    attempts            INTEGER NOT NULL DEFAULT 0,
+    message             TEXT NOT NULL DEFAULT '',
+    found_at            TEXT NOT NULL,
+    started_at          TEXT,
+    finished_at         TEXT,
+    PRIMARY KEY (source, study_instance_uid)
+);
 CREATE TABLE device_evaluations (
     rule_id          TEXT NOT NULL,
     policy_version   TEXT NOT NULL REFERENCES policies (version),
@@ -304,6 +337,31 @@ CREATE TABLE mode_names (
     rank  INTEGER PRIMARY KEY,      -- bit position in the modes columns
     mode  TEXT NOT NULL UNIQUE      -- as src/extract/ext_modes.c names it
 ) STRICT;
+CREATE TABLE notification_outbox (
+    id                  INTEGER PRIMARY KEY,
+    finding_key         TEXT NOT NULL,
+    channel             TEXT NOT NULL CHECK (channel IN ('webhook', 'syslog')),
+    study_instance_uid  TEXT,          -- NULL for a device-level finding
+    accession_number    TEXT,
+    room                TEXT,
+    preset              TEXT,
+    rule_id             TEXT NOT NULL,
+    severity            TEXT NOT NULL,
+    quantity            TEXT,
+    measured_value      REAL,
+    unit                TEXT,
+    limit_value         REAL,
+    started_at          TEXT,
+    period              TEXT,
+    created_at          TEXT NOT NULL, -- ISO 8601 UTC
+    state               TEXT NOT NULL DEFAULT 'pending'
+        CHECK (state IN ('pending', 'delivered', 'failed')),
+    attempts            INTEGER NOT NULL DEFAULT 0 CHECK (attempts >= 0),
+    next_attempt_at     TEXT NOT NULL, -- ISO 8601 UTC
+    last_error          TEXT,
+    delivered_at        TEXT,
+    UNIQUE (finding_key, channel)
+);
 CREATE TABLE policies (
     version          TEXT PRIMARY KEY,
     name             TEXT,
@@ -414,6 +472,7 @@ CREATE TABLE IF NOT EXISTS "sr_values" (
 CREATE TABLE ti_thresholds (
     threshold REAL PRIMARY KEY CHECK (threshold > 0)
 ) STRICT, WITHOUT ROWID;
+CREATE INDEX backfill_studies_state ON backfill_studies (source, state);
 CREATE INDEX exam_jobs_due ON exam_jobs (due_at);
 CREATE INDEX exam_summaries_site_day ON exam_summaries (site, day);
 CREATE UNIQUE INDEX exam_summaries_study ON exam_summaries (study_instance_uid);
@@ -429,6 +488,7 @@ CREATE INDEX instances_day ON instances (substr(coalesce(acquired_at, received_a
 CREATE INDEX instances_received ON instances (received_at);
 CREATE INDEX instances_site ON instances (site, received_at);
 CREATE INDEX instances_study ON instances (study_instance_uid, acquired_at);
+CREATE INDEX notification_outbox_due ON notification_outbox (state, next_attempt_at);
 CREATE INDEX rejections_received ON rejections (received_at);
 CREATE INDEX rejections_site ON rejections (site, received_at);
 CREATE INDEX reviews_finding ON reviews (finding_id, id) WHERE finding_id IS NOT NULL;

@@ -131,7 +131,8 @@ if [ "$tsan_built" -eq 1 ]; then
     env MITILOG_BINARY="$top/build-tsan/mitilog" TSAN_OPTIONS=halt_on_error=1:exitcode=66 \
     "$python" -m pytest -v -p no:cacheprovider tests/integration/test_concurrency.py \
     tests/integration/test_access.py tests/integration/test_reports.py \
-    tests/integration/test_review.py
+    tests/integration/test_review.py tests/integration/test_metrics.py \
+    tests/integration/test_stow.py tests/integration/test_notifications.py
 fi
 
 # Every benchmark once at its tiny size, so that none of them rots (speed
@@ -140,7 +141,7 @@ if [ "${MITILOG_BENCH:-1}" != 0 ] && [ -n "${built[build]:-}" ]; then
   bench_tiny() {
     local script
     for script in ingest parse memory query scale hostile screen reading login screen_simulated \
-      engines_ingest engines_query engines_crash; do
+      engines_ingest engines_query engines_crash metrics; do
       echo "--- bench/$script.py --tiny"
       MITILOG="$top/build/mitilog" "$python" "$top/bench/$script.py" --tiny || return 1
     done

@@ -34,6 +34,20 @@ function hourChart(hours) {
   return chart;
 }
 
+// The newest run of `mitilog backfill` (another process: it records its
+// progress in the database, docs/backfill.md), as one line.
+function backfillLine(b) {
+  if (!b) return 'No backfill from the PACS has run (mitilog backfill, docs/backfill.md).';
+  const states = { running: 'running', waiting: 'waiting for its time window', finished: 'finished', failed: 'stopped on an error', interrupted: 'interrupted (the same command resumes it)' };
+  const run = b.run;
+  const parts = [`${b.source}: ${states[b.state] || b.state}`,
+    `${run.studies_done}/${run.studies_found} studies done`, `${run.studies_failed} failed`, `${run.objects} objects`];
+  if (b.objects_per_minute !== null) parts.push(`${b.objects_per_minute.toFixed(1)} objects/min`);
+  if (b.state === 'running' && b.seconds_left !== null) parts.push(`about ${b.seconds_left < 120 ? b.seconds_left + ' s' : Math.round(b.seconds_left / 60) + ' min'} left`);
+  parts.push(`last progress ${b.updated_at}`);
+  return parts.join(', ') + (b.message && b.message !== b.state ? ` (${b.message})` : '');
+}
+
 function table(id, head, rows) {
   return el('table', { id }, el('thead', {}, el('tr', {}, head.map((h) => el('th', {}, h)))), el('tbody', {}, rows));
 }
@@ -57,6 +71,7 @@ async function main() {
       t.replacements === 0 ? 'none: every object arrived once'
         : `${t.replacements} object(s) received again for ${t.replaced_instances} instance(s); each replaced its row, counted once`),
     el('dt', {}, 'Last received'), el('dd', {}, orNone(t.last_received_at)),
+    el('dt', {}, 'Backfill from the PACS'), el('dd', { id: 'backfill' }, backfillLine(data.backfill)),
     el('dt', {}, 'Generated'), el('dd', {}, data.generated_at)));
   content.appendChild(el('h2', {}, `Objects per hour, last ${data.window_hours} hours`));
   content.appendChild(hourChart(data.objects_per_hour));

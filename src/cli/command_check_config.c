@@ -10,6 +10,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "backfill/backfill.h"
 #include "cli/cli_options.h"
 #include "cli/commands.h"
 #include "config/config_site.h"
@@ -179,6 +180,25 @@ static int check_http(const config *config)
     return status;
 }
 
+/* [backfill] source and window, as `mitilog backfill` will read them. */
+static int check_backfill(const config *config)
+{
+    backfill_settings settings;
+    memset(&settings, 0, sizeof settings);
+    mitilog_error error;
+    int status = 0;
+    if (config->backfill_source[0] != '\0' &&
+        backfill_parse_source(config->backfill_source, &settings, &error) != MITILOG_OK) {
+        fprintf(stderr, "mitilog: [backfill] source: %s\n", error.text);
+        status = -1;
+    }
+    if (backfill_parse_window(config->backfill_window, &settings, &error) != MITILOG_OK) {
+        fprintf(stderr, "mitilog: [backfill] window: %s\n", error.text);
+        status = -1;
+    }
+    return status;
+}
+
 /* from_config: the path came from [rules] policy of that file. */
 static int check_policy(const char *path, const char *from_config, const ext_site_rules *rules)
 {
@@ -303,6 +323,8 @@ int command_check_config(int argc, char **argv)
     if (check_http(&config) != 0)
         status = EXIT_STATUS_USAGE;
     if (loaded == MITILOG_OK && check_storage(&config) != 0)
+        status = EXIT_STATUS_USAGE;
+    if (check_backfill(&config) != 0)
         status = EXIT_STATUS_USAGE;
     ext_site_rules rules;
     int site_valid = check_site(config.site_rules_path, config_path, &rules) == 0;

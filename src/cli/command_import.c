@@ -51,7 +51,7 @@ static void import_count(import_queue *queue, ingest_outcome outcome)
 
 static void import_one(import_queue *queue, const char *path)
 {
-    ingest_source source = {path, 0, "", "", "", "", 0};
+    ingest_source source = {path, 0, "", "", "", "", 0, NULL};
     mitilog_error reason;
     import_count(queue, ingest_object(queue->pipeline, &source, &reason));
 }

@@ -1,4 +1,4 @@
-/* mitilog passwd [--role viewer|reviewer] USER: prints a password-file
+/* mitilog passwd [--role viewer|reviewer|sender] USER: prints a password-file
  * line for [http] password_file, reading the password from standard input
  * (not echoed on a terminal). */
 #include <stdio.h>
@@ -39,14 +39,16 @@ int command_passwd(int argc, char **argv)
         argv += 2;
         argc -= 2;
     }
-    int bad_role = role != NULL && strcmp(role, "viewer") != 0 && strcmp(role, "reviewer") != 0;
+    int bad_role = role != NULL && strcmp(role, "viewer") != 0 && strcmp(role, "reviewer") != 0 &&
+                   strcmp(role, "sender") != 0;
     if (cli_wants_help(argc, argv) || argc != 2 || strchr(argv[1], ':') != NULL || bad_role) {
         fprintf(argc == 2 && !bad_role ? stdout : stderr,
-                "usage: mitilog passwd [--role viewer|reviewer] USER\n"
+                "usage: mitilog passwd [--role viewer|reviewer|sender] USER\n"
                 "Reads a password from standard input and prints 'USER:HASH' (yescrypt,\n"
                 "libxcrypt), or 'USER:HASH:ROLE' with --role, for the file named by\n"
                 "[http] password_file. viewer (the default) reads; reviewer also records\n"
-                "reviews of findings.\n");
+                "reviews of findings; sender stores objects with DICOMweb STOW-RS and\n"
+                "reads nothing.\n");
         return cli_wants_help(argc, argv) ? EXIT_STATUS_SUCCESS : EXIT_STATUS_USAGE;
     }
     char password[512];

@@ -15,6 +15,8 @@
 #include "dicom/dcm.h"
 #include "http/http.h"
 #include "ingest/ingest.h"
+#include "metrics/metrics.h"
+#include "notify/notify.h"
 #include "store/store.h"
 #include "store/store_findings.h"
 #include "util/log.h"
@@ -35,8 +37,10 @@ typedef struct serve_state {
     ingest *ingest;
     dcm_server *dicom;
     http_server *http;
+    notify *notify;
     config_peer *peers;
     dcm_allowed_peer *allowed;
+    metrics *metrics; /* what every stage reports into; GET /metrics */
 } serve_state;
 
 static void serve_stop(serve_state *state)
@@ -48,7 +52,9 @@ static void serve_stop(serve_state *state)
     if (state->http != NULL)
         http_server_stop(state->http);
     ingest_free(state->ingest);
+    notify_stop(state->notify);
     store_close(state->store);
+    metrics_free(state->metrics); /* after every stage reporting into it */
     free(state->allowed);
     free(state->peers);
     config_free(&state->config);
@@ -76,7 +82,12 @@ static int serve_start(serve_state *state, mitilog_error *error)
                                  : STORE_DURABILITY_POWER_LOSS,
                              error) != MITILOG_OK)
         return -1;
-    if (ingest_create(config, state->store, &state->ingest, error) != MITILOG_OK)
+    /* Before the ingest: its exam worker writes the findings it queues. */
+    if (notify_start(config, state->store, &state->notify, error) != MITILOG_OK)
+        return -1;
+    if (metrics_create(&state->metrics, error) != MITILOG_OK ||
+        ingest_create_with_metrics(config, state->store, state->metrics, &state->ingest, error) !=
+            MITILOG_OK)
         return -1;
     /* After the store and ingest made their files and folders. */
     if (cli_identity_give(&identity, config->data_directory, error) != MITILOG_OK)
@@ -110,24 +121,30 @@ static int serve_start(serve_state *state, mitilog_error *error)
         .tls_ca_file = serve_optional(config->dicom_tls_ca_certificates),
         .max_object_bytes = config->max_object_bytes,
         .max_memory_in_flight_bytes = config->max_memory_in_flight_bytes,
+        .metrics = state->metrics,
     };
     if (dcm_server_create(&settings, ingest_store_handler, state->ingest, &state->dicom, error) !=
             MITILOG_OK ||
         dcm_server_start(state->dicom, error) != MITILOG_OK)
         return -1;
-    http_settings web = {.address = config->http_address,
-                         .port = config->http_port,
-                         .web_root = config->web_root,
-                         .tls_certificate_file = config->http_tls_certificate,
-                         .tls_private_key_file = config->http_tls_private_key,
-                         .password_file = config->http_password_file,
-                         .max_connections = config->http_max_connections,
-                         .max_connections_per_address =
-                             config->http_max_connections_per_address != 0
-                                 ? config->http_max_connections_per_address
-                                 : HTTP_SETTINGS_UNLIMITED,
-                         .request_timeout_seconds = config->http_request_timeout_seconds,
-                         .institution = config->site_institution};
+    http_settings web = {
+        .address = config->http_address,
+        .port = config->http_port,
+        .web_root = config->web_root,
+        .tls_certificate_file = config->http_tls_certificate,
+        .tls_private_key_file = config->http_tls_private_key,
+        .password_file = config->http_password_file,
+        .max_connections = config->http_max_connections,
+        .max_connections_per_address = config->http_max_connections_per_address != 0
+                                           ? config->http_max_connections_per_address
+                                           : HTTP_SETTINGS_UNLIMITED,
+        .request_timeout_seconds = config->http_request_timeout_seconds,
+        .institution = config->site_institution,
+        .ingest = strcmp(config->dicomweb_enabled, "yes") == 0 ? state->ingest : NULL,
+        .stow_max_bytes =
+            (unsigned long long)config->dicomweb_max_request_megabytes * 1024ull * 1024ull,
+        .stow_max_parts = config->dicomweb_max_parts,
+        .metrics = state->metrics};
     if (http_server_start(&web, state->store, &state->http, error) != MITILOG_OK)
         return -1;
     /* Both ports are bound: root is no longer needed. */

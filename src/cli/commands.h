@@ -10,6 +10,7 @@
 
 int command_serve(int argc, char **argv);
 int command_import(int argc, char **argv);
+int command_backfill(int argc, char **argv);
 int command_check_config(int argc, char **argv);
 int command_simulate(int argc, char **argv);
 int command_inspect(int argc, char **argv);

@@ -14,6 +14,7 @@ typedef struct subcommand {
 static const subcommand subcommands[] = {
     {"serve", command_serve, "run the DICOM receiver and the HTTP dashboard"},
     {"import", command_import, "read DICOM files or folders into the database"},
+    {"backfill", command_backfill, "fetch past ultrasound studies from the PACS (C-FIND, C-GET)"},
     {"check-config", command_check_config, "validate a configuration and print it"},
     {"rescore", command_rescore, "re-evaluate stored exams under the current ALARA policy"},
     {"inspect", command_inspect, "print what mitilog extracts from one DICOM file"},

@@ -89,8 +89,8 @@ static const option options[] = {
     {"http", "tls_private_key", OPTION_STRING, FIELD(http_tls_private_key), "", 0, 0, NULL, 1,
      "PEM private key for HTTPS."},
     {"http", "password_file", OPTION_STRING, FIELD(http_password_file), "", 0, 0, NULL, 1,
-     "File of user:crypt-hash lines (mitilog passwd); set: every request but /healthz needs a "
-     "login. Needs HTTPS."},
+     "File of user:crypt-hash lines (mitilog passwd); set: every request but /healthz and "
+     "/metrics needs a login. Needs HTTPS."},
     {"http", "max_connections", OPTION_UNSIGNED, FIELD(http_max_connections), "256", 8, 4096, NULL,
      0, "Open HTTP connections of all clients together; more are closed at once."},
     {"http", "max_connections_per_address", OPTION_UNSIGNED,
@@ -101,6 +101,43 @@ static const option options[] = {
      1, 600, NULL, 0,
      "Seconds a client has to send a whole request (TLS handshake, request line and headers), "
      "however slowly it sends each byte; then the connection is closed."},
+    {"dicomweb", "enabled", OPTION_CHOICE, FIELD(dicomweb_enabled), "no", 0, 0, "|yes|no|", 0,
+     "yes: accept objects by DICOMweb STOW-RS at POST /dicomweb/studies (needs [http] "
+     "password_file and a user with the role sender)."},
+    {"dicomweb", "max_request_megabytes", OPTION_UNSIGNED, FIELD(dicomweb_max_request_megabytes),
+     "256", 1, 4096, NULL, 0,
+     "Largest STOW-RS request body (MiB); a larger one is answered 413 without reading the rest."},
+    {"dicomweb", "max_parts", OPTION_UNSIGNED, FIELD(dicomweb_max_parts), "1000", 1, 100000, NULL,
+     0, "Objects in one STOW-RS request at most; more are answered 413, none stored."},
+    {"notifications", "severity", OPTION_CHOICE, FIELD(notify_severity), "violation", 0, 0,
+     "|advisory|warning|violation|", 0,
+     "Findings of this severity or above are notified (webhook_url, syslog)."},
+    {"notifications", "webhook_url", OPTION_STRING, FIELD(notify_webhook_url), "", 0, 0, NULL, 0,
+     "http(s) URL each finding to notify is posted to as JSON; empty: no webhook."},
+    {"notifications", "webhook_ca_certificates", OPTION_STRING, FIELD(notify_webhook_ca), "", 0, 0,
+     NULL, 1,
+     "PEM CA certificate(s) the webhook's HTTPS certificate is checked against; empty: "
+     "the system's."},
+    {"notifications", "syslog", OPTION_CHOICE, FIELD(notify_syslog), "no", 0, 0, "|yes|no|", 0,
+     "yes: write one syslog line per finding to notify."},
+    {"notifications", "syslog_facility", OPTION_CHOICE, FIELD(notify_syslog_facility), "daemon", 0,
+     0, "|daemon|user|local0|local1|local2|local3|local4|local5|local6|local7|", 0,
+     "Syslog facility of those lines."},
+    {"notifications", "syslog_socket", OPTION_STRING, FIELD(notify_syslog_socket), "/dev/log", 0, 0,
+     NULL, 1, "Unix datagram socket of the syslog daemon."},
+    {"notifications", "dashboard_url", OPTION_STRING, FIELD(notify_dashboard_url), "", 0, 0, NULL,
+     0,
+     "Base URL of the dashboard as readers reach it (https://mitilog.example.org); each "
+     "notification links to the exam's page there. Empty: no link."},
+    {"notifications", "timeout_seconds", OPTION_UNSIGNED, FIELD(notify_timeout_seconds), "10", 1,
+     300, NULL, 0, "Seconds one webhook post may take (connection included)."},
+    {"notifications", "retry_initial_seconds", OPTION_UNSIGNED, FIELD(notify_retry_initial_seconds),
+     "30", 1, 86400, NULL, 0,
+     "Wait before the first retry of a failed notification; doubled at each further failure."},
+    {"notifications", "retry_max_seconds", OPTION_UNSIGNED, FIELD(notify_retry_max_seconds), "3600",
+     1, 604800, NULL, 0, "Longest wait between two attempts."},
+    {"notifications", "max_attempts", OPTION_UNSIGNED, FIELD(notify_max_attempts), "20", 1, 1000,
+     NULL, 0, "Attempts before a notification is given up (and recorded as failed)."},
     {"storage", "data_directory", OPTION_STRING, FIELD(data_directory), "var", 0, 0, NULL, 1,
      "Folder for the database, quarantine/, objects/ (full copies) and reading/ (objects waiting "
      "to be read)."},
@@ -169,6 +206,34 @@ static const option options[] = {
     {"rules", "policy", OPTION_STRING, FIELD(rules_policy_path),
      MITILOG_SOURCE_DIR "/conf/policy.ini", 0, 0, NULL, 1,
      "ALARA policy file: rules, limits and their sources (docs/policy.md)."},
+    {"backfill", "source", OPTION_STRING, FIELD(backfill_source), "", 0, 0, NULL, 0,
+     "PACS to backfill from, AE@HOST:PORT (mitilog backfill --from overrides it)."},
+    {"backfill", "calling_ae_title", OPTION_STRING, FIELD(backfill_calling_ae_title), "", 0, 0,
+     NULL, 0, "AE title mitilog calls the PACS with; empty: [dicom] ae_title."},
+    {"backfill", "retrieve", OPTION_CHOICE, FIELD(backfill_retrieve), "get", 0, 0, "|get|move|", 0,
+     "get: C-GET, objects come back on the same association; move: C-MOVE to move_destination."},
+    {"backfill", "move_destination", OPTION_STRING, FIELD(backfill_move_destination), "", 0, 0,
+     NULL, 0, "AE title the PACS sends C-MOVE objects to; empty: [dicom] ae_title."},
+    {"backfill", "move_listen_port", OPTION_UNSIGNED, FIELD(backfill_move_listen_port), "0", 0,
+     65535, NULL, 0,
+     "With retrieve = move: port of a listener the command opens for the moved objects; 0: the "
+     "running daemon's receiver gets them."},
+    {"backfill", "rate_per_minute", OPTION_UNSIGNED, FIELD(backfill_rate_per_minute), "120", 0,
+     1000000, NULL, 0, "Objects fetched per minute at most, all studies together; 0 = no limit."},
+    {"backfill", "concurrency", OPTION_UNSIGNED, FIELD(backfill_concurrency), "1", 1, 8, NULL, 0,
+     "Studies retrieved at once, one association each."},
+    {"backfill", "window", OPTION_STRING, FIELD(backfill_window), "", 0, 0, NULL, 0,
+     "Local time when the backfill may run, HH:MM-HH:MM (may cross midnight); outside it the "
+     "command waits. Empty: any time."},
+    {"backfill", "station", OPTION_STRING, FIELD(backfill_station), "", 0, 0, NULL, 0,
+     "Only objects of this Station Name (wildcards * and ?); empty: any."},
+    {"backfill", "description", OPTION_STRING, FIELD(backfill_description), "", 0, 0, NULL, 0,
+     "Only studies of this Study Description (wildcards * and ?); empty: any."},
+    {"backfill", "progress_seconds", OPTION_UNSIGNED, FIELD(backfill_progress_seconds), "10", 1,
+     3600, NULL, 0, "Seconds between two progress lines on the terminal."},
+    {"backfill", "connect_timeout_seconds", OPTION_UNSIGNED,
+     FIELD(backfill_connect_timeout_seconds), "30", 1, 600, NULL, 0,
+     "Seconds to connect to the PACS and negotiate an association."},
     {"service", "user", OPTION_STRING, FIELD(service_user), "", 0, 0, NULL, 0,
      "Started as root: after binding, switch to this user (and its groups); empty: stay."},
     {"log", "level", OPTION_CHOICE, FIELD(log_level), "info", 0, 0, "|debug|info|warning|error|", 0,
@@ -394,6 +459,17 @@ static void config_validate(load_state *state)
                  "read_connection is used only with engine = postgresql: set engine = "
                  "postgresql, or remove read_connection");
         config_problem(state, "storage", "read_connection", reason);
+    }
+    if (strcmp(config->dicomweb_enabled, "yes") == 0 && !login) {
+        snprintf(reason, reason_size,
+                 "STOW-RS stores objects only for a signed-in sender: set [http] password_file "
+                 "(with HTTPS) and add a user with mitilog passwd --role sender");
+        config_problem(state, "dicomweb", "enabled", reason);
+    }
+    const char *url = config->notify_webhook_url;
+    if (url[0] != '\0' && strncmp(url, "http://", 7) != 0 && strncmp(url, "https://", 8) != 0) {
+        snprintf(reason, reason_size, "the webhook URL must start with https:// (or http://)");
+        config_problem(state, "notifications", "webhook_url", reason);
     }
     if (config->http_port == config->port) {
         snprintf(reason, reason_size, "the HTTP port equals the DICOM port %u", config->port);

@@ -50,6 +50,24 @@ typedef struct config {
     unsigned http_max_connections_per_address; /* 0 = no per-address limit */
     unsigned http_request_timeout_seconds;
 
+    /* [dicomweb] STOW-RS (src/http/http_dicomweb.c) */
+    char *dicomweb_enabled; /* "yes" or "no" */
+    unsigned dicomweb_max_request_megabytes;
+    unsigned dicomweb_max_parts;
+
+    /* [notifications] findings sent out (src/notify) */
+    char *notify_severity;        /* advisory, warning or violation */
+    char *notify_webhook_url;     /* "" = no webhook */
+    char *notify_webhook_ca;      /* PEM CA file; "" = the system's */
+    char *notify_syslog;          /* "yes" or "no" */
+    char *notify_syslog_facility; /* daemon, user, local0 ... local7 */
+    char *notify_syslog_socket;   /* Unix datagram socket, /dev/log */
+    char *notify_dashboard_url;   /* base of the exam page links; "" = none */
+    unsigned notify_timeout_seconds;
+    unsigned notify_retry_initial_seconds;
+    unsigned notify_retry_max_seconds;
+    unsigned notify_max_attempts;
+
     /* [storage] */
     char *data_directory;
     char *storage_engine;          /* "sqlite" or "postgresql" */
@@ -80,6 +98,21 @@ typedef struct config {
 
     /* [rules] */
     char *rules_policy_path; /* the ALARA policy file (conf/policy.ini) */
+
+    /* [backfill] `mitilog backfill` (docs/backfill.md); the command line
+     * overrides each */
+    char *backfill_source;              /* "AE@HOST:PORT" or "" */
+    char *backfill_calling_ae_title;    /* "" = [dicom] ae_title */
+    char *backfill_retrieve;            /* "get" or "move" */
+    char *backfill_move_destination;    /* "" = [dicom] ae_title */
+    unsigned backfill_move_listen_port; /* 0 = the daemon receives */
+    unsigned backfill_rate_per_minute;  /* objects; 0 = no limit */
+    unsigned backfill_concurrency;      /* studies at once */
+    char *backfill_window;              /* "HH:MM-HH:MM" local, "" = any time */
+    char *backfill_station;             /* Station Name filter, "" = any */
+    char *backfill_description;         /* Study Description filter, "" = any */
+    unsigned backfill_progress_seconds;
+    unsigned backfill_connect_timeout_seconds;
 
     /* [service] */
     char *service_user; /* "" = keep the starting user */

@@ -21,6 +21,7 @@
 #include <stddef.h>
 #include <stdint.h>
 
+#include "metrics/metrics.h"
 #include "util/status.h"
 
 #ifdef __cplusplus
@@ -286,6 +287,11 @@ typedef struct dcm_server_settings {
      * received objects hold at most the larger of the two, plus a PDU per
      * association. 0 = no limit. */
     uint64_t max_memory_in_flight_bytes;
+    /* Borrowed; NULL: nothing reported. Associations accepted and
+     * refused (by reason), C-STOREs by the status answered, data set
+     * bytes received and the time of the latest object are reported
+     * into it (metrics.h). It must outlive the server. */
+    metrics *metrics;
 } dcm_server_settings;
 
 typedef struct dcm_server dcm_server;

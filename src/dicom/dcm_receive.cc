@@ -34,6 +34,7 @@ extern "C" {
 #include <chrono>
 #include <condition_variable>
 #include <cstdio>
+#include <ctime>
 #include <map>
 #include <mutex>
 #include <new>
@@ -118,6 +119,7 @@ struct dcm_server {
     bool tls = false, tls_require_client = false;
     dcm_store_handler handler = NULL;
     void *context = NULL;
+    metrics *monitoring = NULL; /* borrowed; NULL: nothing reported */
 
     /* Runtime. The listener (supervisor) alone touches threads until
      * dcm_server_stop() has joined it; the network is only read once
@@ -145,6 +147,14 @@ struct dcm_server {
     std::atomic<unsigned long> objects{0};
     std::atomic<uint64_t> memory_in_flight{0}; /* memory files, all */
 };
+
+/* The wall clock, seconds since the Unix epoch. */
+static double dcm_wall_clock_seconds()
+{
+    struct timespec now;
+    clock_gettime(CLOCK_REALTIME, &now);
+    return static_cast<double>(now.tv_sec) + static_cast<double>(now.tv_nsec) / 1e9;
+}
 
 /* Trims the space padding DICOM puts around AE titles. */
 static std::string dcm_trim(const char *text)
@@ -232,7 +242,15 @@ class dcm_association_scp : public DcmThreadSCP
      * the server's memory budget while others were in flight (crowded_). */
     bool oversized_ = false;
     bool crowded_ = false;
-    uint64_t counted_ = 0; /* its bytes in server_->memory_in_flight */
+    uint64_t counted_ = 0;  /* its bytes in server_->memory_in_flight */
+    uint64_t reported_ = 0; /* its bytes reported as received (metrics) */
+    /* Answers request with status, counting the answer. */
+    OFCondition answer_store(T_DIMSE_C_StoreRQ &request, T_ASC_PresentationContextID context_id,
+                             uint16_t status)
+    {
+        metrics_object_answered(server_->monitoring, status);
+        return sendSTOREResponse(context_id, request, status);
+    }
     void release_counted()
     {
         server_->memory_in_flight -= counted_;
@@ -297,29 +315,39 @@ OFBool dcm_association_scp::checkCallingAETitleAccepted(const OFString &calling)
 
 void dcm_association_scp::refuseAssociation(const DcmRefuseReasonType reason)
 {
+    metrics_refusal counted = METRICS_REFUSAL_INTERNAL_ERROR;
     switch (reason) {
     case DCMSCP_CALLED_AE_TITLE_NOT_RECOGNIZED:
         outcome_ = "refused (called AE not recognized)";
+        counted = METRICS_REFUSAL_CALLED_AE_TITLE;
         break;
     case DCMSCP_CALLING_AE_TITLE_NOT_RECOGNIZED:
         outcome_ = "refused (calling AE not recognized)";
+        counted = METRICS_REFUSAL_CALLING_AE_TITLE;
         break;
     case DCMSCP_NO_PRESENTATION_CONTEXTS:
         outcome_ = "refused (no acceptable presentation contexts)";
+        counted = METRICS_REFUSAL_NO_PRESENTATION_CONTEXT;
         break;
     case DCMSCP_BAD_APPLICATION_CONTEXT_NAME:
         outcome_ = "refused (bad application context name)";
+        counted = METRICS_REFUSAL_APPLICATION_CONTEXT;
         break;
-    case DCMSCP_TOO_MANY_ASSOCIATIONS: outcome_ = "refused (too many associations)"; break;
+    case DCMSCP_TOO_MANY_ASSOCIATIONS:
+        outcome_ = "refused (too many associations)";
+        counted = METRICS_REFUSAL_TOO_MANY_ASSOCIATIONS;
+        break;
     default: outcome_ = "refused (internal error)"; break;
     }
     server_->refused++;
+    metrics_association_refused(server_->monitoring, counted);
     DcmThreadSCP::refuseAssociation(reason);
 }
 
 void dcm_association_scp::notifyAssociationAcknowledge()
 {
     server_->accepted++;
+    metrics_association_accepted(server_->monitoring);
     outcome_ = "aborted (no release)";
     log_debug("association %lu from AE '%s' (%s) accepted", id_, calling_ae_.c_str(),
               peer_ip_.c_str());
@@ -367,6 +395,10 @@ bool dcm_association_scp::open_spool()
  * plus one fragment however long the object is. */
 void dcm_association_scp::notifyRECEIVEProgress(const unsigned long byte_count)
 {
+    if (byte_count > reported_) {
+        metrics_bytes_received(server_->monitoring, byte_count - reported_);
+        reported_ = byte_count;
+    }
     if (spool_fd_ < 0)
         return;
     if (!oversized_ && !crowded_) {
@@ -396,14 +428,16 @@ OFCondition dcm_association_scp::refuse_store(T_DIMSE_C_StoreRQ &request,
                                               const char *reason)
 {
     DcmDataset *dataset = NULL;
+    reported_ = 0;
     OFCondition condition = receiveSTORERequest(request, context_id, dataset);
     delete dataset;
     if (condition.bad())
         return condition;
+    metrics_object_received(server_->monitoring, dcm_wall_clock_seconds());
     log_warning("association %lu from AE '%s' (%s): object %s answered "
                 "A700: %s",
                 id_, calling_ae_.c_str(), peer_ip_.c_str(), request.AffectedSOPInstanceUID, reason);
-    return sendSTOREResponse(context_id, request, DCM_STATUS_OUT_OF_RESOURCES);
+    return answer_store(request, context_id, DCM_STATUS_OUT_OF_RESOURCES);
 }
 
 OFCondition dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
@@ -413,6 +447,7 @@ OFCondition dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
         return refuse_store(request, context_id, "no memory file to receive into");
     const std::string &path = spool_;
     oversized_ = crowded_ = false;
+    reported_ = 0;
     OFCondition condition = receiveSTORERequest(request, context_id, OFString(path.c_str()));
     if (condition.bad()) {
         release_counted();
@@ -426,6 +461,7 @@ OFCondition dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
     }
     objects_++;
     server_->objects++;
+    metrics_object_received(server_->monitoring, dcm_wall_clock_seconds());
     struct stat info;
     uint16_t status;
     if (oversized_ || (server_->max_object_bytes > 0 && fstat(spool_fd_, &info) == 0 &&
@@ -466,7 +502,7 @@ OFCondition dcm_association_scp::receive_store(T_DIMSE_C_StoreRQ &request,
     if (ftruncate(spool_fd_, 0) != 0)
         log_warning("association %lu: cannot empty the memory file: %s", id_, strerror(errno));
     release_counted();
-    return sendSTOREResponse(context_id, request, status);
+    return answer_store(request, context_id, status);
 }
 
 OFCondition dcm_association_scp::handleIncomingCommand(T_DIMSE_Message *message,
@@ -720,6 +756,7 @@ bool dcm_guarded_connection::read_first_pdu()
     if (dcm_peer_line_allowed(server_, &suppressed))
         log_warning("association request from %s refused (A-ABORT): %s%s", peer_.c_str(),
                     reason.c_str(), dcm_suppressed_note(suppressed).c_str());
+    metrics_association_refused(server_->monitoring, METRICS_REFUSAL_INVALID_REQUEST);
     first_.clear();
     dcm_negotiation_refused(server_);
     return false;
@@ -832,6 +869,8 @@ static bool dcm_negotiation_begin(dcm_server *server, DcmNativeSocketType socket
     if (refusal == NULL)
         return true;
     server->refused++;
+    metrics_association_refused(server->monitoring, limit > 0 ? METRICS_REFUSAL_NEGOTIATION_LIMIT
+                                                              : METRICS_REFUSAL_INTERNAL_ERROR);
     unsigned long suppressed = 0;
     if (!dcm_peer_line_allowed(server, &suppressed))
         return false;
@@ -883,6 +922,8 @@ static void dcm_negotiation_watch(dcm_server *server, bool all)
         if (negotiation.expired || (!all && now < negotiation.deadline))
             continue;
         negotiation.expired = true;
+        if (!all)
+            metrics_association_refused(server->monitoring, METRICS_REFUSAL_REQUEST_TIMEOUT);
         /* The line first: once the socket is shut down, the connection's
          * own thread wakes and would take the line allowance with its
          * vaguer "closed before ... complete". */
@@ -915,6 +956,7 @@ static void dcm_refuse_busy(dcm_server *server, T_ASC_Association *assoc, unsign
     reject.source = ASC_SOURCE_SERVICEPROVIDER_PRESENTATION_RELATED;
     reject.reason = ASC_REASON_SP_PRES_LOCALLIMITEXCEEDED;
     server->refused++;
+    metrics_association_refused(server->monitoring, METRICS_REFUSAL_TOO_MANY_ASSOCIATIONS);
     log_warning("association %lu from AE '%s' (%s): 0 objects, refused "
                 "(too many associations: %u in progress)",
                 id, dcm_trim(assoc->params->DULparams.callingAPTitle).c_str(),
@@ -1134,6 +1176,7 @@ mitilog_status dcm_server_create(const dcm_server_settings *settings, dcm_store_
             server->tls_ca_file = settings->tls_ca_file;
         server->handler = handler;
         server->context = context;
+        server->monitoring = settings->metrics;
 
         DcmSCPConfig &config = *server->config;
         config.setAETitle(server->ae_title.c_str());

@@ -1,9 +1,11 @@
 /*
  * http.h - the HTTP server (libmicrohttpd): JSON API and the dashboard's
- * static files from web/.
+ * static files from web/, and DICOMweb STOW-RS (http_dicomweb.c).
  *
  * Owns the libmicrohttpd daemon and its threads. Reads the database only
- * through the store's subject headers. Only GET (and HEAD) is served; unknown paths answer 404
+ * through the store's subject headers, stores received objects only
+ * through ingest.h. GET and HEAD are served, POST for reviews and
+ * STOW-RS; unknown paths answer 404
  * and bad parameters 400, both with a JSON error object. Each request
  * must arrive whole within request_timeout_seconds (http_guard.c);
  * connections are limited in total and per client address.
@@ -14,6 +16,7 @@
 #ifndef MITILOG_HTTP_H
 #define MITILOG_HTTP_H
 
+#include "metrics/metrics.h"
 #include "store/store.h"
 #include "util/status.h"
 
@@ -36,6 +39,14 @@ typedef struct http_settings {
     /* [site] institution, answered in /api/v1/stats; NULL or "": not set.
      * Copied at start. */
     const char *institution;
+    /* Served at GET /metrics with the store's figures (borrowed; it must
+     * outlive the server); NULL: /metrics answers 404. */
+    const metrics *metrics;
+    /* DICOMweb STOW-RS (POST /dicomweb/studies): the pipeline objects go
+     * through (borrowed, must outlive the server); NULL: not served. */
+    struct ingest *ingest;
+    unsigned long long stow_max_bytes; /* one request's body; 0: 256 MiB */
+    unsigned stow_max_parts;           /* objects in one request; 0: 1000 */
 } http_settings;
 
 /* max_connections_per_address value meaning "no per-address limit" (a

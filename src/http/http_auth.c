@@ -80,10 +80,12 @@ static mitilog_status http_auth_add(http_auth *auth, char *line, const char *pat
         *role_colon = '\0';
         if (strcmp(role_colon + 1, "reviewer") == 0)
             role = "reviewer";
+        else if (strcmp(role_colon + 1, "sender") == 0)
+            role = "sender";
         else if (strcmp(role_colon + 1, "viewer") != 0)
             return mitilog_error_set(error, MITILOG_ERROR_INVALID,
-                                     "%s:%d: role '%.32s' of user %.64s is neither viewer nor "
-                                     "reviewer",
+                                     "%s:%d: role '%.32s' of user %.64s is none of viewer, "
+                                     "reviewer and sender",
                                      path, number, role_colon + 1, line);
     }
     http_user *grown = realloc(auth->users, (auth->count + 1) * sizeof *grown);

@@ -7,8 +7,9 @@
  * hash is a crypt(3) string from libxcrypt (yescrypt "$y$...", or SHA-512
  * "$6$..."), made with `mitilog passwd [--role ROLE] USER` or
  * `mkpasswd -m yescrypt`. Roles: "viewer" (reads; the default when the
- * field is absent) and "reviewer" (reads, and records reviews of
- * findings). Lines starting with '#' and blank lines are ignored.
+ * field is absent), "reviewer" (reads, and records reviews of findings)
+ * and "sender" (a machine client: stores objects with DICOMweb STOW-RS
+ * and reads nothing). Lines starting with '#' and blank lines are ignored.
  *
  * Ownership: http_auth_load() gives a table freed by http_auth_free().
  * http_auth_check() is thread-safe.
@@ -30,7 +31,7 @@ void http_auth_free(http_auth *auth);
  * hash of a random password made at load with the first user's setting).
  * Throttling of failures is http_throttle.h's job. */
 int http_auth_check(const http_auth *auth, const char *user, const char *password);
-/* The role of a user of the file ("viewer" or "reviewer", static), NULL
+/* The role of a user of the file ("viewer", "reviewer" or "sender", static), NULL
  * for an unknown name. Ask only after http_auth_check() accepted. */
 const char *http_auth_role(const http_auth *auth, const char *user);
 /* Users in the file. */

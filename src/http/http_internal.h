@@ -4,11 +4,13 @@
  * http_server.c  the daemon, dispatch by method and path, common headers,
  *                JSON and error responses;
  * http_parameters.c  the one checker of query parameters;
- * http_routes*.c  the JSON API (/healthz, /api/v1/...);
+ * http_routes*.c  the JSON API (/healthz, /api/v1/...) and /metrics;
  * http_guard.c   connection deadlines (slow clients);
  * http_throttle.c  login failures per address and per user;
  * http_routes_reviews.c  the review worklist, the review history and
  *                recording a review (POST, login and forgery checks);
+ * http_dicomweb.c  DICOMweb STOW-RS (POST /dicomweb/studies, login with
+ *                the role sender);
  * http_static.c  the dashboard's files under web_root.
  */
 #ifndef MITILOG_HTTP_INTERNAL_H
@@ -53,15 +55,19 @@ struct http_server {
     http_throttle *throttle; /* failed logins; with auth only        */
     char *tls_certificate;   /* PEM text kept for MHD, NULL: HTTP    */
     char *tls_private_key;
-    http_guard *guard; /* request deadlines                    */
-    char csrf_key[65]; /* random, drawn at start: review tokens */
-    char *institution; /* [site] institution, NULL: not set    */
+    http_guard *guard;                 /* request deadlines                    */
+    char csrf_key[65];                 /* random, drawn at start: review tokens */
+    char *institution;                 /* [site] institution, NULL: not set    */
+    const metrics *metrics;            /* GET /metrics; NULL: not served */
+    struct ingest *ingest;             /* STOW-RS; NULL: not enabled  */
+    unsigned long long stow_max_bytes; /* body of one STOW-RS request */
+    unsigned stow_max_parts;           /* objects of one request      */
 };
 
 /* Who sent a request: user "" and role NULL when no login is set. */
 typedef struct http_identity {
     char user[128];
-    const char *role; /* "viewer" or "reviewer" (static) */
+    const char *role; /* "viewer", "reviewer" or "sender" (static) */
 } http_identity;
 
 /* A response to queue: status code and the response (owned). */
@@ -138,6 +144,9 @@ int http_parse_instant(const char *text, char out[HTTP_INSTANT_SIZE]);
 int http_route_api(http_server *server, struct MHD_Connection *connection, const char *url,
                    http_reply *reply);
 
+/* http_routes_metrics.c: GET /metrics; 0 if url is not it. */
+int http_route_metrics(http_server *server, const char *url, http_reply *reply);
+
 /* http_routes_findings.c: /api/v1/findings and /api/v1/policy; 0 if url
  * is neither. */
 int http_route_findings(http_server *server, struct MHD_Connection *connection, const char *url,
@@ -171,6 +180,26 @@ void http_post_feed(http_post *post, const char *data, size_t size);
 http_reply http_post_finish(http_server *server, struct MHD_Connection *connection,
                             http_post *post);
 void http_post_free(http_post *post);
+
+/* http_dicomweb.c: DICOMweb STOW-RS, POST /dicomweb/studies. */
+typedef struct http_stow http_stow;
+/* First call: 1 with *reply when refused before the body is read (not
+ * enabled, login, role, origin, media type, declared length). */
+int http_stow_refused(http_server *server, struct MHD_Connection *connection,
+                      const http_identity *identity, http_reply *reply);
+/* NULL when out of memory. Freed by http_stow_free(). */
+http_stow *http_stow_create(struct MHD_Connection *connection, const http_identity *identity);
+/* Keeps a piece of the body; 0 once the body is past the limit (the rest
+ * is not kept: answer http_stow_too_large()). */
+int http_stow_feed(http_server *server, http_stow *stow, const char *data, size_t size);
+/* Whether the 413 was already queued while the body was arriving. */
+int http_stow_answered(http_stow *stow);
+void http_stow_set_answered(http_stow *stow);
+http_reply http_stow_too_large(http_server *server);
+/* The body has arrived: stores each part, answers per PS3.18 10.5.3. */
+http_reply http_stow_finish(http_server *server, struct MHD_Connection *connection,
+                            http_stow *stow);
+void http_stow_free(http_stow *stow);
 
 /* http_static.c: serves url from web_root; 0 if there is no such file. */
 int http_route_static(const http_server *server, const char *url, http_reply *reply);

@@ -6,9 +6,12 @@
  */
 #include "http/http_internal.h"
 
+#include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "report/report.h"
+#include "store/store_backfill.h"
 #include "store/store_instances.h"
 
 #define HTTP_DIMENSIONS "exam_type|room|preset|shift|transducer|site"
@@ -129,6 +132,33 @@ static http_reply http_drift(http_server *server, struct MHD_Connection *connect
     return http_report_reply(server, status, body, &error, REPORT_JSON);
 }
 
+/* The ingest document gets the newest backfill run as its last member,
+ * "backfill" (null when there never was one): the run is another process
+ * (mitilog backfill), which records its progress in its own table
+ * (store_backfill.h). *json is replaced by the longer document. */
+static mitilog_status http_ingest_add_backfill(store *store, char **json, mitilog_error *error)
+{
+    char *backfill = NULL;
+    mitilog_status status = store_backfill_status_json(store, &backfill, error);
+    if (status != MITILOG_OK)
+        return status;
+    char *end = strrchr(*json, '}');
+    size_t head = end != NULL ? (size_t)(end - *json) : 0;
+    static const char key[] = ",\"backfill\":";
+    char *joined = end != NULL ? malloc(head + sizeof key + strlen(backfill) + 2) : NULL;
+    if (joined == NULL) {
+        free(backfill);
+        return mitilog_error_set(error, end == NULL ? MITILOG_ERROR_INVALID : MITILOG_ERROR_MEMORY,
+                                 "ingest status: cannot add the backfill");
+    }
+    memcpy(joined, *json, head);
+    sprintf(joined + head, "%s%s}", key, backfill);
+    free(backfill);
+    free(*json);
+    *json = joined;
+    return MITILOG_OK;
+}
+
 /* GET /api/v1/ingest?hours=N&silent_hours=N&days=N */
 static http_reply http_ingest(http_server *server, struct MHD_Connection *connection)
 {
@@ -150,6 +180,8 @@ static http_reply http_ingest(http_server *server, struct MHD_Connection *connec
     mitilog_error error = {{0}};
     mitilog_status status = store_ingest_json(server->store, (int)chosen[0], (int)chosen[1],
                                               (int)chosen[2], &values[3].sites, &json, &error);
+    if (status == MITILOG_OK)
+        status = http_ingest_add_backfill(server->store, &json, &error);
     return http_report_reply(server, status, json, &error, REPORT_JSON);
 }
 

@@ -18,6 +18,8 @@
 #include <time.h>
 #include <unistd.h>
 
+#include <gmime/gmime.h>
+
 #include "json/json.h"
 #include "util/log.h"
 
@@ -261,6 +263,42 @@ static enum MHD_Result http_count_header(void *context, enum MHD_ValueKind kind,
     return MHD_YES;
 }
 
+/* The body of a POST being read: a review form or a STOW-RS request. */
+typedef struct http_upload {
+    http_post *post;
+    http_stow *stow;
+} http_upload;
+
+static const char HTTP_STOW_PATH[] = "/dicomweb/studies";
+
+/* One call with a piece of a STOW-RS body, or its end. A declared
+ * length past the limit was answered 413 before the body (see
+ * http_stow_refused); past it without one, the connection is closed. */
+static enum MHD_Result http_stow_body(http_server *server, struct MHD_Connection *connection,
+                                      http_stow *stow, const char *data, size_t *size)
+{
+    if (*size != 0) {
+        size_t piece = *size;
+        *size = 0;
+        if (http_stow_answered(stow))
+            return MHD_YES;
+        if (!http_stow_feed(server, stow, data, piece)) {
+            /* libmicrohttpd 0.9.75 takes a reply only before the body
+             * or after its end: a body past the limit without a declared
+             * length (chunked) is cut instead, its rest never read. */
+            http_stow_set_answered(stow);
+            http_guard_close(server->guard, connection,
+                             "the STOW-RS body passed [dicomweb] max_request_megabytes; "
+                             "the rest is not read (a client that declares Content-Length "
+                             "is answered 413 before it sends the body)");
+        }
+        return MHD_YES;
+    }
+    if (http_stow_answered(stow))
+        return MHD_YES;
+    return http_queue(server, connection, http_stow_finish(server, connection, stow));
+}
+
 /* MHD access handler: GET and HEAD (MHD leaves out the body of a HEAD
  * reply) to the API, then static files, else 404; answered on the first
  * call. POST only to /api/v1/reviews: checked on the first call, its body
@@ -273,13 +311,15 @@ static enum MHD_Result http_handle(void *context, struct MHD_Connection *connect
     http_server *server = context;
     http_reply reply;
     if (*state != NULL) { /* a POST whose checks passed: its body */
-        http_post *post = *state;
+        http_upload *upload = *state;
+        if (upload->stow != NULL)
+            return http_stow_body(server, connection, upload->stow, upload_data, upload_data_size);
         if (*upload_data_size != 0) {
-            http_post_feed(post, upload_data, *upload_data_size);
+            http_post_feed(upload->post, upload_data, *upload_data_size);
             *upload_data_size = 0;
             return MHD_YES;
         }
-        return http_queue(server, connection, http_post_finish(server, connection, post));
+        return http_queue(server, connection, http_post_finish(server, connection, upload->post));
     }
     size_t target = http_guard_received(server->guard, connection);
     if (target > HTTP_TARGET_MAX)
@@ -297,18 +337,47 @@ static enum MHD_Result http_handle(void *context, struct MHD_Connection *connect
                                            header_bytes, HTTP_HEADERS_MAX));
     enum MHD_Result result = MHD_NO;
     http_identity identity = {"", NULL};
-    if (server->auth != NULL && strcmp(url, "/healthz") != 0 &&
+    /* The monitoring paths stay open, as documented in docs/security.md:
+     * they show counts, never patient data. */
+    if (server->auth != NULL && strcmp(url, "/healthz") != 0 && strcmp(url, "/metrics") != 0 &&
         !http_login_accepted(server, connection, &result, &identity))
         return result;
+    if (strcmp(method, MHD_HTTP_METHOD_POST) == 0 &&
+        strcmp(url, HTTP_STOW_PATH) == 0) { /* DICOMweb STOW-RS */
+        if (http_stow_refused(server, connection, &identity, &reply))
+            return http_queue(server, connection, reply);
+        http_upload *upload = calloc(1, sizeof *upload);
+        if (upload != NULL && (upload->stow = http_stow_create(connection, &identity)) == NULL) {
+            free(upload);
+            upload = NULL;
+        }
+        if (upload == NULL)
+            return http_queue(server, connection,
+                              http_error_reply(server, MHD_HTTP_SERVICE_UNAVAILABLE,
+                                               "out of memory receiving objects: try again later"));
+        *state = upload;
+        return MHD_YES;
+    }
+    /* A sender is a machine client that stores objects: it reads nothing. */
+    if (identity.role != NULL && strcmp(identity.role, "sender") == 0)
+        return http_queue(server, connection,
+                          http_error_reply(server, MHD_HTTP_FORBIDDEN,
+                                           "user %s has the role sender: it may only store "
+                                           "objects (POST %s)",
+                                           identity.user, HTTP_STOW_PATH));
     if (strcmp(method, MHD_HTTP_METHOD_POST) == 0) {
         if (http_post_refused(server, connection, url, &identity, &reply))
             return http_queue(server, connection, reply);
-        http_post *post = http_post_create(connection, &identity);
-        if (post == NULL)
+        http_upload *upload = calloc(1, sizeof *upload);
+        if (upload != NULL && (upload->post = http_post_create(connection, &identity)) == NULL) {
+            free(upload);
+            upload = NULL;
+        }
+        if (upload == NULL)
             return http_queue(server, connection,
                               http_error_reply(server, MHD_HTTP_INTERNAL_SERVER_ERROR,
                                                "out of memory reading a review"));
-        *state = post;
+        *state = upload;
         return MHD_YES;
     }
     if (strcmp(method, MHD_HTTP_METHOD_GET) != 0 && strcmp(method, MHD_HTTP_METHOD_HEAD) != 0) {
@@ -318,7 +387,8 @@ static enum MHD_Result http_handle(void *context, struct MHD_Connection *connect
             MHD_add_response_header(reply.response, "Allow", "GET, HEAD");
         return http_queue(server, connection, reply);
     }
-    if (http_route_reviews(server, connection, url, &identity, &reply) ||
+    if (http_route_metrics(server, url, &reply) ||
+        http_route_reviews(server, connection, url, &identity, &reply) ||
         http_route_api(server, connection, url, &reply) || http_route_static(server, url, &reply))
         return http_queue(server, connection, reply);
     return http_queue(server, connection,
@@ -352,7 +422,10 @@ static void http_request_completed(void *context, struct MHD_Connection *connect
     (void)code;
     http_server *server = context;
     if (state != NULL && *state != NULL) { /* a POST's body state */
-        http_post_free(*state);
+        http_upload *upload = *state;
+        http_post_free(upload->post);
+        http_stow_free(upload->stow);
+        free(upload);
         *state = NULL;
     }
     http_guard_completed(server->guard, connection);
@@ -495,6 +568,13 @@ mitilog_status http_server_start(const http_settings *settings, store *st, http_
     if (server == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory starting HTTP");
     server->store = st;
+    server->metrics = settings->metrics;
+    server->ingest = settings->ingest;
+    server->stow_max_bytes =
+        settings->stow_max_bytes != 0 ? settings->stow_max_bytes : 256ull * 1024ull * 1024ull;
+    server->stow_max_parts = settings->stow_max_parts != 0 ? settings->stow_max_parts : 1000;
+    if (server->ingest != NULL)
+        g_mime_init(); /* before the daemon's threads; GMime parses STOW-RS bodies */
     if (settings->institution != NULL && settings->institution[0] != '\0' &&
         (server->institution = strdup(settings->institution)) == NULL) {
         http_server_stop(server);

@@ -6,6 +6,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <time.h>
 #include <unistd.h>
 
 #include "config/config_site.h"
@@ -40,6 +41,7 @@ struct ingest {
     uint64_t quarantine_max_bytes;   /* [storage] quarantine_max_bytes */
     unsigned quarantine_max_files;   /* [storage] quarantine_max_files */
     pthread_mutex_t quarantine_lock; /* one association trims at a time */
+    metrics *metrics;                /* borrowed, set at creation; NULL: none */
 };
 
 /* folder/00 .. folder/ff, so that writing a copy needs no mkdir. */
@@ -57,6 +59,12 @@ static mitilog_status ingest_make_subfolders(const char *folder, mitilog_error *
 
 mitilog_status ingest_create(const config *config, store *store, ingest **out, mitilog_error *error)
 {
+    return ingest_create_with_metrics(config, store, NULL, out, error);
+}
+
+mitilog_status ingest_create_with_metrics(const config *config, store *store, metrics *metrics,
+                                          ingest **out, mitilog_error *error)
+{
     /* Every object and rejection this ingest writes records its site. */
     mitilog_status site_status = store_set_site(store, config->receiver_site, error);
     if (site_status != MITILOG_OK)
@@ -66,6 +74,7 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out, m
     if (created == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "out of memory");
     created->store = store;
+    created->metrics = metrics;
     created->sr_depth_limit = config->sr_depth_limit > 0 ? config->sr_depth_limit : SR_DEPTH_LIMIT;
     created->quarantine_max_bytes = config->quarantine_max_bytes;
     created->quarantine_max_files = config->quarantine_max_files;
@@ -105,9 +114,10 @@ mitilog_status ingest_create(const config *config, store *store, ingest **out, m
     }
     if (status == MITILOG_OK)
         status = ingest_exams_start(&created->exams, store, &created->rules, config->receiver_site,
-                                    error);
+                                    metrics, error);
     if (status == MITILOG_OK) {
-        status = ingest_reading_start(&created->reading, config, store, &created->exams, error);
+        status =
+            ingest_reading_start(&created->reading, config, store, &created->exams, metrics, error);
         if (status != MITILOG_OK)
             ingest_exams_stop(&created->exams);
     }
@@ -167,6 +177,14 @@ void ingest_free(ingest *ingest)
 }
 
 const ext_site_rules *ingest_site_rules(const ingest *ingest) { return &ingest->rules; }
+
+/* A clock for durations: seconds, monotonic. */
+static double ingest_monotonic_seconds(void)
+{
+    struct timespec now;
+    clock_gettime(CLOCK_MONOTONIC, &now);
+    return (double)now.tv_sec + (double)now.tv_nsec / 1e9;
+}
 
 mitilog_status ingest_set_policy(ingest *ingest, rules_policy *policy, mitilog_error *error)
 {
@@ -312,6 +330,13 @@ static int quarantine_make_room(ingest *ingest, uint64_t incoming)
     return fits;
 }
 
+/* The announced instance UID, or words saying none was announced. */
+static const char *record_uid_or_unknown(const ingest_source *source)
+{
+    return source->announced_sop_instance_uid[0] != '\0' ? source->announced_sop_instance_uid
+                                                         : "(UID not read)";
+}
+
 /* Keeps the received bytes of a rejected object, within the quarantine
  * quota (oldest removed first), and records the reason. */
 static void quarantine(ingest *ingest, const ingest_source *source, const char *reason)
@@ -350,7 +375,10 @@ static void quarantine(ingest *ingest, const ingest_source *source, const char *
                                  reason};
     if (store_put_rejection(ingest->store, &rejection, &error) != MITILOG_OK)
         log_error("cannot record rejection: %s", error.text);
-    if (source->is_spool)
+    if (source->description != NULL)
+        log_warning("%s: object %s rejected: %s; bytes kept in %s", source->description,
+                    record_uid_or_unknown(source), reason, kept[0] ? kept : "(nowhere)");
+    else if (source->is_spool)
         log_warning("association %lu: object %s from AE '%s' rejected: %s; bytes kept in %s",
                     source->association_id, source->announced_sop_instance_uid,
                     source->calling_ae_title, reason, kept[0] ? kept : "(nowhere)");
@@ -384,6 +412,7 @@ typedef struct reading_plan {
     store_reading_request request;
     char path[PATH_SIZE];
     char reason[MITILOG_ERROR_TEXT_SIZE + 64];
+    metrics_pixel_refusal refusal; /* with not_read_reason: its kind */
 } reading_plan;
 
 /* Decides whether the object is read and, if so, which file the worker
@@ -403,6 +432,7 @@ static void plan_reading(ingest *ingest, const ingest_source *source, const dcm_
     long long bytes = stat(source->path, &info) == 0 ? (long long)info.st_size : 0;
     if (!ingest_reading_reserve(&ingest->reading, bytes, plan->reason, sizeof plan->reason)) {
         plan->request.not_read_reason = plan->reason;
+        plan->refusal = METRICS_PIXEL_QUEUE_FULL;
         return;
     }
     plan->reserved = 1;
@@ -426,6 +456,7 @@ static void plan_reading(ingest *ingest, const ingest_source *source, const dcm_
         snprintf(plan->reason, sizeof plan->reason, "the object could not be kept for reading: %s",
                  error.text);
         plan->request.not_read_reason = plan->reason;
+        plan->refusal = METRICS_PIXEL_NOT_KEPT;
         plan->request.path = NULL;
     }
 }
@@ -447,6 +478,14 @@ static ingest_outcome reject(ingest *ingest, const ingest_source *source, mitilo
 
 ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilog_error *reason)
 {
+    return ingest_object_receipt(ingest, source, NULL, reason);
+}
+
+ingest_outcome ingest_object_receipt(ingest *ingest, const ingest_source *source,
+                                     ingest_receipt *receipt, mitilog_error *reason)
+{
+    if (receipt != NULL)
+        memset(receipt, 0, sizeof *receipt);
     dcm_object *object = NULL;
     dcm_facts facts;
     ext_record record;
@@ -473,6 +512,12 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
         dcm_facts_free(&facts);
         ext_record_free(&record);
         return reject(ingest, source, reason);
+    }
+    if (receipt != NULL) {
+        snprintf(receipt->sop_class_uid, sizeof receipt->sop_class_uid, "%s",
+                 record.sop_class_uid != NULL ? record.sop_class_uid : "");
+        snprintf(receipt->sop_instance_uid, sizeof receipt->sop_instance_uid, "%s",
+                 record.sop_instance_uid != NULL ? record.sop_instance_uid : "");
     }
     for (size_t i = 0; record.sr != NULL && i < record.sr->unknown_scheme_count; i++)
         ingest_schemes_note(&ingest->schemes, record.sr->unknown_schemes[i],
@@ -516,12 +561,14 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
     memset(&plan, 0, sizeof plan);
     long long instance_id = 0;
     char *stale_spool = NULL;
+    double commit_started = 0; /* when the write was requested */
     if (record.calling_ae_title == NULL) {
         mitilog_error_set(reason, MITILOG_ERROR_MEMORY, "out of memory");
     } else if (retain(ingest, object, source, record.sop_instance_uid, &header_bytes, &header_size,
                       reason) != MITILOG_OK) {
         log_error("object %s: cannot keep its copy: %s", record.sop_instance_uid, reason->text);
     } else if (plan_reading(ingest, source, &facts, &record, &plan),
+               commit_started = ingest_monotonic_seconds(),
                store_put_instance_read(
                    ingest->store, &record,
                    header_bytes != NULL ? &(store_bytes){header_bytes, header_size} : NULL,
@@ -531,15 +578,18 @@ ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilo
         cancel_reading(ingest, &plan);
     } else {
         outcome = put == STORE_PUT_REPLACED ? INGEST_OUTCOME_REPLACED : INGEST_OUTCOME_STORED;
+        metrics_commit_observed(ingest->metrics, ingest_monotonic_seconds() - commit_started);
         if (stale_spool != NULL)
             unlink(stale_spool); /* the older receipt's copy, no longer queued */
         if (plan.wanted && plan.request.not_read_reason == NULL)
             ingest_reading_push(&ingest->reading, instance_id, record.sop_instance_uid,
                                 record.study_instance_uid, plan.request.path, plan.request.owned,
                                 plan.request.bytes);
-        else if (plan.wanted)
+        else if (plan.wanted) {
+            metrics_pixel_refused(ingest->metrics, plan.refusal);
             log_warning("object %s: pixel values not read: %s", record.sop_instance_uid,
                         plan.request.not_read_reason);
+        }
         ingest_exams_wake(&ingest->exams); /* its study was marked in the commit */
         log_debug("object %s stored (%s)", record.sop_instance_uid,
                   put == STORE_PUT_REPLACED ? "replaced" : "new");
@@ -622,6 +672,11 @@ mitilog_status ingest_read_stored(ingest *ingest, const char *from, const char *
     return status;
 }
 
+void ingest_mark_study(ingest *ingest, const char *study_instance_uid)
+{
+    ingest_exams_mark(&ingest->exams, study_instance_uid);
+}
+
 uint16_t ingest_store_handler(void *context, const dcm_received *object)
 {
     ingest_source source = {object->spool_path,
@@ -631,7 +686,8 @@ uint16_t ingest_store_handler(void *context, const dcm_received *object)
                             object->affected_sop_class_uid ? object->affected_sop_class_uid : "",
                             object->affected_sop_instance_uid ? object->affected_sop_instance_uid
                                                               : "",
-                            object->association_id};
+                            object->association_id,
+                            NULL};
     mitilog_error reason;
     switch (ingest_object(context, &source, &reason)) {
     case INGEST_OUTCOME_STORED:

@@ -19,6 +19,7 @@
 #include "config/config.h"
 #include "dicom/dcm.h"
 #include "extract/ext.h"
+#include "metrics/metrics.h"
 #include "rules/rules.h"
 #include "store/store.h"
 #include "store/store_findings.h"
@@ -44,20 +45,48 @@ typedef struct ingest_source {
     const char *announced_sop_class_uid; /* C-STORE command, or ""    */
     const char *announced_sop_instance_uid;
     unsigned long association_id; /* 0 for imports                       */
+    /* Names the object in log lines when it came neither by association
+     * nor by import (e.g. "STOW-RS part 2 from 10.1.2.3"); NULL: by the
+     * association or the path. */
+    const char *description;
 } ingest_source;
 
 /* Creates the data folders (mode 0750) from the configuration. */
 mitilog_status ingest_create(const config *config, store *store, ingest **out,
                              mitilog_error *error);
+/* The same, reporting into metrics (borrowed; it must outlive the
+ * ingest; NULL: nothing reported) from the start, so that what the
+ * workers do before the first object arrives (a queue left by an earlier
+ * run) is counted too: commit latency, pixel reading outcomes and queue
+ * depths. `serve` uses it. */
+mitilog_status ingest_create_with_metrics(const config *config, store *store, metrics *metrics,
+                                          ingest **out, mitilog_error *error);
 void ingest_free(ingest *ingest);
 
 /* Runs one object through the pipeline. reason receives the cause of a
  * rejection or failure (it is also logged). */
 ingest_outcome ingest_object(ingest *ingest, const ingest_source *source, mitilog_error *reason);
 
+/* What the object said it is, for a sender's receipt (DICOMweb STOW-RS
+ * answers with the UIDs of each part): both "" when the object could not
+ * be read that far. */
+typedef struct ingest_receipt {
+    char sop_class_uid[65];
+    char sop_instance_uid[65];
+} ingest_receipt;
+
+/* ingest_object() that also fills receipt (may be NULL). */
+ingest_outcome ingest_object_receipt(ingest *ingest, const ingest_source *source,
+                                     ingest_receipt *receipt, mitilog_error *reason);
+
 /* Waits until the exam records of every study touched so far have been
  * rebuilt (the exam worker, ingest_exam.c). ingest_free() also drains. */
 void ingest_flush(ingest *ingest);
+
+/* Queues a study's exam record for a rebuild, as a commit of one of its
+ * instances does (the backfill, for a study whose objects were all
+ * stored by an earlier, interrupted run). */
+void ingest_mark_study(ingest *ingest, const char *study_instance_uid);
 
 /* The site rules the ingest was created with (borrowed). */
 const struct ext_site_rules *ingest_site_rules(const ingest *ingest);

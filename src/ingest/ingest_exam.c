@@ -377,6 +377,8 @@ static void *ingest_exams_run(void *argument)
         if (store_exam_jobs_next(exams->store, &next_due_ms, &queued, &oldest_taken_ms, &error) !=
             MITILOG_OK)
             log_warning("exam queue: not read: %s", error.text);
+        else
+            metrics_queue_set(exams->metrics, METRICS_QUEUE_EXAM_REBUILD, (size_t)queued);
         pthread_mutex_lock(&exams->lock);
         if (next_due_ms >= 0 && (double)next_due_ms / 1000.0 < wake)
             wake = (double)next_due_ms / 1000.0;
@@ -427,10 +429,11 @@ static void ingest_exams_release_dead(ingest_exams *exams, const char *host_part
 }
 
 mitilog_status ingest_exams_start(ingest_exams *exams, store *store, const ext_site_rules *rules,
-                                  const char *site, mitilog_error *error)
+                                  const char *site, metrics *metrics, mitilog_error *error)
 {
     memset(exams, 0, sizeof *exams);
     exams->store = store;
+    exams->metrics = metrics;
     exams->rules = rules;
     /* Who takes jobs: the site, this host and this process. */
     char host[128] = "";

@@ -15,6 +15,7 @@
 #include <pthread.h>
 
 #include "extract/ext_site.h"
+#include "metrics/metrics.h"
 #include "rules/rules.h"
 #include "store/store.h"
 #include "store/store_exams.h"
@@ -54,6 +55,7 @@ typedef struct ingest_exams {
     pthread_mutex_t policy_lock;
     ingest_policy_handle *policy; /* current; NULL: exams not evaluated */
     double next_sweep;            /* ingest_clock_now() of the next sweep */
+    metrics *metrics;             /* set at start; NULL: nothing reported */
 } ingest_exams;
 
 /* The current policy, held until ingest_exams_release_policy (NULL: none). */
@@ -62,8 +64,9 @@ void ingest_exams_release_policy(ingest_exams *exams, ingest_policy_handle *hand
 /* Makes policy (taken over) current; the old one is freed once released. */
 void ingest_exams_swap_policy(ingest_exams *exams, rules_policy *policy);
 
+/* metrics: borrowed, NULL: nothing reported. */
 mitilog_status ingest_exams_start(ingest_exams *exams, store *store, const ext_site_rules *rules,
-                                  const char *site, mitilog_error *error);
+                                  const char *site, metrics *metrics, mitilog_error *error);
 /* Queues a study in the database's exam queue (its own commit); a study
  * already waiting is not queued twice. Once rebuilt, its days are queued
  * in turn, so the day-level rules run once per settled day, not once per

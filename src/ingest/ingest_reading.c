@@ -202,6 +202,8 @@ static void enqueue(ingest_reading *reading, ingest_reading_item *item)
     else
         reading->head = item;
     reading->tail = item;
+    reading->waiting++;
+    metrics_queue_set(reading->metrics, METRICS_QUEUE_PIXEL_READING, reading->waiting);
     pthread_cond_signal(&reading->changed);
     pthread_mutex_unlock(&reading->lock);
 }
@@ -293,11 +295,13 @@ static size_t frames_to_read(size_t frame_count, unsigned wanted, size_t *indice
 }
 
 /* Reads item's object into result (values and reasons point into
- * readings, which must outlive result). */
+ * readings, which must outlive result). When it is not read, *refusal
+ * says what kind of reason stopped it. */
 static void read_object(ingest_reading *reading, const ingest_reading_item *item,
                         store_screen_result *result, screen_reading *combined, char *reason,
-                        size_t reason_size)
+                        size_t reason_size, metrics_pixel_refusal *refusal)
 {
+    *refusal = METRICS_PIXEL_SCREEN_REFUSED;
     memset(result, 0, sizeof *result);
     memset(combined, 0, sizeof *combined);
     result->instance_id = item->instance_id;
@@ -307,11 +311,13 @@ static void read_object(ingest_reading *reading, const ingest_reading_item *item
     memset(&facts, 0, sizeof facts);
     mitilog_error error;
     if (dcm_object_load(item->path, &object, &error) != MITILOG_OK) {
+        *refusal = METRICS_PIXEL_OBJECT_UNREADABLE;
         set_not_read(result, reason, reason_size, "the object kept for reading cannot be read: %s",
                      error.text);
         return;
     }
     if (dcm_object_facts(object, 1, &facts, &error) != MITILOG_OK) {
+        *refusal = METRICS_PIXEL_OBJECT_UNREADABLE;
         set_not_read(result, reason, reason_size, "the object kept for reading cannot be read: %s",
                      error.text);
         dcm_object_free(object);
@@ -332,6 +338,7 @@ static void read_object(ingest_reading *reading, const ingest_reading_item *item
                  "screen profile %s was learned on %.*s",
                  unpadded_length(now_running), now_running, screen_profile_key(outdated),
                  unpadded_length(learned_on), learned_on);
+        *refusal = METRICS_PIXEL_SOFTWARE_CHANGED;
         set_not_read(result, reason, reason_size,
                      "%s; the screen may have moved, so it is not read with that profile: "
                      "learn the device again on the new software (mitilog device learn)",
@@ -348,6 +355,7 @@ static void read_object(ingest_reading *reading, const ingest_reading_item *item
                  device.model_name ? device.model_name : "",
                  device.software_versions ? device.software_versions : "", device.columns,
                  device.rows);
+        *refusal = METRICS_PIXEL_NO_PROFILE;
         set_not_read(result, reason, reason_size,
                      "no active screen profile matches this device (%s): set one up with "
                      "mitilog device",
@@ -364,6 +372,7 @@ static void read_object(ingest_reading *reading, const ingest_reading_item *item
         int failed = 0;
         for (size_t i = 0; i < wanted && !failed; i++) {
             if (dcm_object_frame(object, i == 0 ? 0 : indices[i], &frame, &error) != MITILOG_OK) {
+                *refusal = METRICS_PIXEL_FRAME_NOT_DECODED;
                 set_not_read(result, reason, reason_size, "%s", error.text);
                 failed = 1;
                 break;
@@ -372,6 +381,7 @@ static void read_object(ingest_reading *reading, const ingest_reading_item *item
                 wanted = frames_to_read(frame.frame_count, reading->cine_frames, indices);
             screen_image image = {frame.width, frame.height, (size_t)frame.width, frame.grey};
             if (screen_read(profile, &image, &frames_read[done], &error) != MITILOG_OK) {
+                *refusal = METRICS_PIXEL_READER_FAILED;
                 set_not_read(result, reason, reason_size, "the reader failed: %s", error.text);
                 failed = 1;
             } else {
@@ -453,7 +463,8 @@ static void finish_item(ingest_reading *reading, ingest_reading_item *item)
     store_screen_result result;
     screen_reading combined;
     char reason[MITILOG_ERROR_TEXT_SIZE + 128];
-    read_object(reading, item, &result, &combined, reason, sizeof reason);
+    metrics_pixel_refusal refusal;
+    read_object(reading, item, &result, &combined, reason, sizeof reason, &refusal);
     int stale = 0;
     mitilog_error error;
     for (int attempt = 0;; attempt++) {
@@ -475,6 +486,10 @@ static void finish_item(ingest_reading *reading, ingest_reading_item *item)
         reading->read_count++;
     else
         reading->not_read_count++;
+    if (!stale && result.read) /* a stale reading was replaced: its copy is read */
+        metrics_pixel_read(reading->metrics);
+    else if (!stale)
+        metrics_pixel_refused(reading->metrics, refusal);
     pthread_mutex_unlock(&reading->lock);
     if (!stale)
         warn_refusal(reading, item, &result);
@@ -513,6 +528,8 @@ static void *worker(void *argument)
         reading->head = item->next;
         if (reading->head == NULL)
             reading->tail = NULL;
+        reading->waiting--;
+        metrics_queue_set(reading->metrics, METRICS_QUEUE_PIXEL_READING, reading->waiting);
         reading->busy++;
         pthread_mutex_unlock(&reading->lock);
 
@@ -565,10 +582,11 @@ static void remove_orphans(ingest_reading *reading)
 }
 
 mitilog_status ingest_reading_start(ingest_reading *reading, const config *config, store *store,
-                                    ingest_exams *exams, mitilog_error *error)
+                                    ingest_exams *exams, metrics *metrics, mitilog_error *error)
 {
     memset(reading, 0, sizeof *reading);
     reading->store = store;
+    reading->metrics = metrics;
     reading->exams = exams;
     reading->cine_frames = config->reading_cine_frames > 0 ? config->reading_cine_frames : 3;
     if (reading->cine_frames > 64)
@@ -605,6 +623,7 @@ mitilog_status ingest_reading_start(ingest_reading *reading, const config *confi
         }
         reading->held_objects++;
         reading->held_bytes += item->bytes;
+        reading->waiting++;
         if (reading->tail != NULL)
             reading->tail->next = item;
         else
@@ -612,6 +631,7 @@ mitilog_status ingest_reading_start(ingest_reading *reading, const config *confi
         reading->tail = item;
     }
     store_reading_entries_free(entries, count);
+    metrics_queue_set(metrics, METRICS_QUEUE_PIXEL_READING, reading->waiting);
     if (status == MITILOG_OK) {
         remove_orphans(reading);
         if (count > 0)

@@ -61,6 +61,8 @@ typedef struct ingest_reading {
     unsigned busy; /* workers reading one now          */
     int stopping;
     unsigned long read_count, not_read_count, full_count;
+    size_t waiting;   /* items in head..tail                 */
+    metrics *metrics; /* set at start; NULL: nothing reported */
 
     pthread_rwlock_t profiles_lock; /* profiles: read by workers and
                                        * receivers, replaced on reload   */
@@ -79,9 +81,9 @@ typedef struct ingest_reading {
 
 /* Creates the spool folder, loads the active profiles, takes back the
  * queue left by an earlier run (and deletes spool files no queue row
- * names), starts the workers. */
+ * names), starts the workers. metrics: borrowed, NULL: nothing reported. */
 mitilog_status ingest_reading_start(ingest_reading *reading, const config *config, store *store,
-                                    ingest_exams *exams, mitilog_error *error);
+                                    ingest_exams *exams, metrics *metrics, mitilog_error *error);
 /* Stops the workers after the object each is reading; what is still
  * queued stays in the database for the next start. */
 void ingest_reading_stop(ingest_reading *reading);

@@ -519,6 +519,7 @@ static mitilog_status store_write_evaluation(store_link *writer, const store_eva
 /* One evaluation request: its input and what it did. */
 typedef struct store_evaluation_write {
     const store_evaluation *evaluation;
+    store_notification_queueing notify; /* the store's, copied */
     store_evaluation_counts counts;
 } store_evaluation_write;
 
@@ -535,6 +536,10 @@ static mitilog_status store_write_evaluated(store_link *writer, void *context, m
             return status;
     }
     mitilog_status status = store_write_evaluation(writer, evaluation, &write->counts, error);
+    /* Findings to notify, in the same transaction (the outbox); only
+     * when the evaluation changed and wrote findings. */
+    if (status == MITILOG_OK && write->counts.written > 0)
+        status = store_notifications_enqueue(writer, evaluation, &write->notify, error);
     if (status == MITILOG_OK && evaluation->study_instance_uid != NULL)
         status = store_exams_refresh_summary(writer, evaluation->study_instance_uid, error);
     return status;
@@ -551,7 +556,7 @@ mitilog_status store_put_evaluation(store *st, const store_evaluation *evaluatio
         if (checked != MITILOG_OK)
             return checked;
     }
-    store_evaluation_write write = {.evaluation = evaluation};
+    store_evaluation_write write = {.evaluation = evaluation, .notify = st->notify};
     mitilog_status status = store_commit_submit(st, store_write_evaluated, &write, error);
     if (status == MITILOG_OK && counts != NULL) {
         counts->evaluations += write.counts.evaluations;

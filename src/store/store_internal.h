@@ -16,6 +16,7 @@
 #include <pthread.h>
 
 #include "store/store.h"
+#include "store/store_notifications.h"
 #include "store/store_statement.h"
 
 /* A write of one subject, run by the batch leader on the writer link
@@ -55,6 +56,10 @@ struct store {
     char active_policy[65];       /* under reader_lock; "" = none */
     char site[EXAM_SITE_MAX + 1]; /* recorded by every write (store_set_site) */
     long long exam_job_settle_ms, exam_job_max_wait_ms; /* store_set_exam_job_timing */
+
+    /* Findings queued for notification (store_notifications.c); set
+     * before any evaluation is written, read-only afterwards. */
+    store_notification_queueing notify;
 };
 
 /* Binds :site_count and :site_1 ... :site_16, those the query's

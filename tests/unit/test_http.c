@@ -125,7 +125,8 @@ static int fixture_setup(void **state)
     put_instance(f->store, "1.2.3.1", "1.2.3", "2024-03-01T09:00:00.000Z", 0.9);
     put_instance(f->store, "1.2.3.2", "1.2.3", "2024-03-01T09:05:00.000Z", 1.3);
     f->port = free_port();
-    http_settings settings = {"127.0.0.1", f->port, f->web_root, NULL, NULL, NULL, 0, 0, 0, NULL};
+    http_settings settings = {"127.0.0.1", f->port, f->web_root, NULL, NULL, NULL, 0,
+                              0,           0,       NULL,        NULL, NULL, 0,    0};
     if (http_server_start(&settings, f->store, &f->server, &error) != MITILOG_OK)
         fail_msg("http_server_start: %s", error.text);
     *state = f;
@@ -465,23 +466,26 @@ static void static_files(void **state)
 static void port_taken_and_bad_settings(void **state)
 {
     fixture *f = *state;
-    http_settings same = {"127.0.0.1", f->port, NULL, NULL, NULL, NULL, 0, 0, 0, NULL};
+    http_settings same = {"127.0.0.1", f->port, NULL, NULL, NULL, NULL, 0,
+                          0,           0,       NULL, NULL, NULL, 0,    0};
     http_server *second = NULL;
     mitilog_error error = {{0}};
     assert_int_equal(http_server_start(&same, f->store, &second, &error), MITILOG_ERROR_IO);
     assert_null(second);
     assert_non_null(strstr(error.text, "in use"));
 
-    http_settings bad_address = {"localhost:80", 0, NULL, NULL, NULL, NULL, 0, 0, 0, NULL};
+    http_settings bad_address = {"localhost:80", 0,    NULL, NULL, NULL, NULL, 0, 0, 0,
+                                 NULL,           NULL, NULL, 0,    0};
     assert_int_equal(http_server_start(&bad_address, f->store, &second, &error),
                      MITILOG_ERROR_INVALID);
-    http_settings bad_port = {"127.0.0.1", 70000, NULL, NULL, NULL, NULL, 0, 0, 0, NULL};
+    http_settings bad_port = {"127.0.0.1", 70000, NULL, NULL, NULL, NULL, 0,
+                              0,           0,     NULL, NULL, NULL, 0,    0};
     assert_int_equal(http_server_start(&bad_port, f->store, &second, &error),
                      MITILOG_ERROR_INVALID);
 
     /* No web root: "/" is a JSON 404. */
-    http_settings api_only = {NULL, free_port(), "/nonexistent/web", NULL, NULL, NULL, 0, 0,
-                              0,    NULL};
+    http_settings api_only = {
+        NULL, free_port(), "/nonexistent/web", NULL, NULL, NULL, 0, 0, 0, NULL, NULL, NULL, 0, 0};
     assert_int_equal(http_server_start(&api_only, f->store, &second, &error), MITILOG_OK);
     response r = http_request(api_only.port, "GET", "/");
     assert_int_equal(r.status, 404);

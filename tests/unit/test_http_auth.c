@@ -114,7 +114,14 @@ static void roles(void **state)
     snprintf(text, sizeof text, "%.*s:admin\n", (int)strlen(sha512_line) - 1, sha512_line);
     path = write_file(text);
     assert_int_equal(http_auth_load(path, &auth, &error), MITILOG_ERROR_INVALID);
-    assert_non_null(strstr(error.text, "neither viewer nor reviewer"));
+    assert_non_null(strstr(error.text, "none of viewer, reviewer and sender"));
+    unlink(path);
+    /* A machine client's role (common practice, no source). */
+    snprintf(text, sizeof text, "%.*s:sender\n", (int)strlen(sha512_line) - 1, sha512_line);
+    path = write_file(text);
+    assert_int_equal(http_auth_load(path, &auth, &error), MITILOG_OK);
+    assert_string_equal(http_auth_role(auth, "nurse"), "sender");
+    http_auth_free(auth);
     unlink(path);
 }
 
