@@ -345,7 +345,16 @@ class StoreConnection:
 
     def __init__(self, conninfo, write=False):
         import psycopg2  # Debian's python3-psycopg2 (deploy/install-dependencies.sh)
+        import psycopg2.extensions
         self.connection = psycopg2.connect(conninfo, connect_timeout=10)
+        # numeric as SQLite's storage classes give it, as the store's engine
+        # reads it: an integer when written without a fraction, else a real
+        # (sqlite.org/datatype3.html section 2)
+        numeric = psycopg2.extensions.new_type(
+            (1700,), "NUMERIC_AS_SQLITE",
+            lambda text, cursor: None if text is None else
+            (int(text) if re.fullmatch(r"[-+]?\d+", text) else float(text)))
+        psycopg2.extensions.register_type(numeric, self.connection)
         if not write:
             self.connection.set_session(readonly=True, autocommit=True)
 

@@ -313,12 +313,12 @@ def test_kill_while_queued_loses_nothing_and_reads_after_restart(daemon_factory,
     daemon.start()
     wait_until_read(daemon, 5)
     with daemon.db() as db:
-        rows = dict(db.execute(
-            "SELECT i.sop_instance_uid, json_object('mi', r.mi, 'tis', r.tis, 'tib', r.tib) "
+        rows = {uid: {"mi": mi, "tis": tis, "tib": tib} for uid, mi, tis, tib in db.execute(
+            "SELECT i.sop_instance_uid, r.mi, r.tis, r.tib "
             "FROM screen_readings r JOIN instances i ON i.id = r.instance_id "
-            "WHERE r.state = 'read'").fetchall())
+            "WHERE r.state = 'read'").fetchall()}
     for path, drawn in zip(paths, values):
-        assert json.loads(rows[uid_of(path)]) == {k: float(v) for k, v in drawn.items()}
+        assert rows[uid_of(path)] == {k: float(v) for k, v in drawn.items()}
     assert spool_files(daemon) == []
 
 

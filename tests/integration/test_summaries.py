@@ -21,7 +21,7 @@ import time
 
 import pytest
 
-from conftest import BINARY, REPO, Daemon, run
+from conftest import BINARY, REPO, Daemon, StoreConnection, run
 
 DAYS = 3
 SEED = 11
@@ -102,8 +102,8 @@ dwell AS (
                  CASE p.governing_index WHEN 'tis' THEN i.tis WHEN 'tib' THEN i.tib
                                         WHEN 'tic' THEN i.tic END AS value
           FROM period p
-          CROSS JOIN exam_timeline tl ON tl.study_instance_uid = p.study_instance_uid
-          CROSS JOIN instances i ON i.sop_instance_uid = tl.sop_instance_uid) AS t
+          JOIN exam_timeline tl ON tl.study_instance_uid = p.study_instance_uid
+          JOIN instances i ON i.sop_instance_uid = tl.sop_instance_uid) AS t
     GROUP BY t.study_instance_uid
 )
 SELECT p.study_instance_uid, x.threshold,
@@ -166,15 +166,25 @@ SELECT (SELECT version FROM policies ORDER BY first_loaded_at DESC, rowid DESC L
            (SELECT DISTINCT f.policy_version AS version
             FROM findings f JOIN exams e ON e.study_instance_uid = f.study_instance_uid
             WHERE f.superseded = 0 AND substr(e.first_acquired_at, 1, 10) BETWEEN ?1 AND ?2
-            ORDER BY 1)),
+            ORDER BY 1) AS versions),
        (SELECT min(substr(first_acquired_at, 1, 10)) FROM exams),
        (SELECT max(substr(first_acquired_at, 1, 10)) FROM exams)
 """
 
 
-def query_text(name):
-    """A query of sql/queries/ by file name, whichever subject folder holds it."""
-    (path,) = glob.glob(os.path.join(REPO, "sql", "queries", "*", name))
+def on_postgresql(db):
+    return isinstance(db, StoreConnection)
+
+
+def query_text(name, db=None):
+    """A query of sql/queries/ by file name, whichever subject folder holds
+    it; on PostgreSQL its own text (SUBJECT/postgresql/NAME) when it has one."""
+    paths = []
+    if on_postgresql(db):
+        paths = glob.glob(os.path.join(REPO, "sql", "queries", "*", "postgresql", name))
+    if not paths:
+        paths = glob.glob(os.path.join(REPO, "sql", "queries", "*", name))
+    (path,) = paths
     with open(path) as f:
         return f.read()
 
@@ -185,9 +195,19 @@ def every_site(args, sites=()):
     return tuple(args) + (len(sites),) + tuple(sites) + (None,) * (16 - len(sites))
 
 
-def exact(rows):
-    """Rows with floats as their exact repr, so 0.1 + 0.2 != 0.3 shows."""
-    return [tuple(repr(v) if isinstance(v, float) else v for v in row) for row in rows]
+def oracle_text(oracle, db):
+    """An oracle as the engine reads it: PostgreSQL keeps the order SQLite's
+    rowid gives policies as row_order (sql/migrations/postgresql/012_baseline.sql)."""
+    return oracle.replace("rowid DESC", "row_order DESC") if on_postgresql(db) else oracle
+
+
+def exact(rows, places=None):
+    """Rows with floats as their exact repr, so 0.1 + 0.2 != 0.3 shows; with
+    places, rounded to so many decimals first (PostgreSQL adds a sum's terms
+    in the order of its plan, which moves the last bits of a double: IEEE
+    754 addition is not associative)."""
+    return [tuple(repr(round(v, places) if places is not None else v)
+                  if isinstance(v, float) else v for v in row) for row in rows]
 
 
 def zero_as_real(rows):
@@ -196,36 +216,40 @@ def zero_as_real(rows):
 
 
 def assert_summaries_exact(db, periods=(("0000-00-00", "9999-99-99"),)):
+    places = 9 if on_postgresql(db) else None
     for first, last in periods:
         for oracle, name in ((ORACLE_EXAM_ROWS, "stats_exam_rows.sql"),
                              (ORACLE_FINDING_COUNTS, "stats_finding_counts.sql"),
                              (ORACLE_POLICY_INFO, "stats_policy_info.sql")):
-            expected = db.execute(oracle, (first, last)).fetchall()
-            got = db.execute(query_text(name), every_site((first, last))).fetchall()
+            expected = db.execute(oracle_text(oracle, db), (first, last)).fetchall()
+            got = db.execute(query_text(name, db), every_site((first, last))).fetchall()
             if name == "stats_exam_rows.sql":
                 got.sort(key=lambda row: row[0].encode())   # the store sorts by UID
-            assert exact(zero_as_real(got)) == exact(zero_as_real(expected)), (name, first, last)
+            assert exact(zero_as_real(got), places) == exact(zero_as_real(expected), places), \
+                (name, first, last)
         # time at or above the thresholds up to 2.0 (those the statistics show)
-        expected = db.execute(ORACLE_TIMES, (first, last, 2.0)).fetchall()
-        got = db.execute(query_text("stats_exam_time_at_or_above.sql"),  # no site filter
+        expected = db.execute(oracle_text(ORACLE_TIMES, db), (first, last, 2.0)).fetchall()
+        got = db.execute(query_text("stats_exam_time_at_or_above.sql", db),  # no site filter
                          (first, last, 2.0)).fetchall()
         got.sort(key=lambda row: (row[0].encode(), row[1]))
-        assert exact(zero_as_real(got)) == exact(zero_as_real(expected)), ("times", first, last)
+        assert exact(zero_as_real(got), places) == exact(zero_as_real(expected), places), \
+            ("times", first, last)
         # the short rows statistics read: the same exams and values, in the
         # same order, with one grouping key
-        expected = db.execute(ORACLE_EXAM_ROWS, (first, last)).fetchall()
+        expected = db.execute(oracle_text(ORACLE_EXAM_ROWS, db), (first, last)).fetchall()
         for key, column in (("", None), ("room", 7), ("preset", 8), ("shift", 9),
                             ("transducer", 10)):
-            got = db.execute(query_text("stats_exam_values.sql"),
+            got = db.execute(query_text("stats_exam_values.sql", db),
                              every_site((first, last, key))).fetchall()
             got.sort(key=lambda row: row[8].encode())
-            assert exact(zero_as_real(got)) == exact(zero_as_real(
+            assert exact(zero_as_real(got), places) == exact(zero_as_real(
                 [(r[2], r[column] if column else None) + r[5:7] + r[12:16] + (r[0], r[17])
-                 for r in expected])), key
+                 for r in expected]), places), key
         # a weekly baseline: type and governing value of the days before the last
-        got = db.execute(query_text("stats_exam_governing.sql"), every_site((first, last))).fetchall()
-        assert sorted(exact(got), key=repr) == sorted(
-            exact([(r[2], r[5]) for r in expected if r[1] < last]), key=repr)
+        got = db.execute(query_text("stats_exam_governing.sql", db),
+                         every_site((first, last))).fetchall()
+        assert sorted(exact(got, places), key=repr) == sorted(
+            exact([(r[2], r[5]) for r in expected if r[1] < last], places), key=repr)
     assert db.execute("SELECT count(*) FROM exam_summaries").fetchone()[0] == \
         db.execute("SELECT count(*) FROM exams").fetchone()[0]
     # The site filter: every exam here was taken by the one receiver, site
@@ -233,16 +257,18 @@ def assert_summaries_exact(db, periods=(("0000-00-00", "9999-99-99"),)):
     # site that took nothing reads none (docs/sites.md). Common practice,
     # no source.
     first, last = periods[0]
-    rows = db.execute(query_text("stats_exam_rows.sql"), every_site((first, last))).fetchall()
-    sites = db.execute(query_text("stats_exam_sites.sql"), every_site((first, last))).fetchall()
+    rows = db.execute(query_text("stats_exam_rows.sql", db),
+                      every_site((first, last))).fetchall()
+    sites = db.execute(query_text("stats_exam_sites.sql", db),
+                       every_site((first, last))).fetchall()
     assert rows and sorted(sites) == sorted((row[0], "main") for row in rows)
     for name in ("stats_exam_rows.sql", "stats_exam_sites.sql", "stats_exam_series.sql"):
-        assert sorted(db.execute(query_text(name), every_site((first, last), ("main",)))
-                      .fetchall()) == sorted(db.execute(query_text(name),
+        assert sorted(db.execute(query_text(name, db), every_site((first, last), ("main",)))
+                      .fetchall()) == sorted(db.execute(query_text(name, db),
                                                         every_site((first, last))).fetchall())
-        assert db.execute(query_text(name),
+        assert db.execute(query_text(name, db),
                           every_site((first, last), ("elsewhere",))).fetchall() == []
-    assert {key for _, key, *rest in db.execute(query_text("stats_exam_values.sql"),
+    assert {key for _, key, *rest in db.execute(query_text("stats_exam_values.sql", db),
                                                 every_site((first, last, "site")))} == {"main"}
 
 
@@ -352,7 +378,7 @@ def test_findings_filter_matches_a_full_scan(imported, tmp_path):
         for severity in (None, "warning", "advisory"):
             for superseded in (0, 1):
                 args = (first, last, severity, None, None, None, None, superseded, 1000)
-                assert db.execute(query_text("findings.sql"), every_site(args)).fetchone() == \
+                assert db.execute(query_text("findings.sql", db), every_site(args)).fetchone() == \
                     db.execute(ORACLE_FINDINGS, args).fetchone(), args
     db.close()
 

@@ -137,7 +137,7 @@ def test_changed_ladder_is_recomputed(imported):
         modes = db.execute("SELECT rank, mode FROM mode_names ORDER BY rank").fetchall()
         ladder = [row[0] for row in db.execute(
             "SELECT threshold FROM ti_thresholds ORDER BY threshold")]
-        before = db.execute("SELECT * FROM exam_time_at_or_above ORDER BY 1, 2").fetchall()
+        before = db.execute("SELECT * FROM exam_time_at_or_above ORDER BY 1, 2, 3").fetchall()
         exams = db.execute("SELECT count(*) FROM exams").fetchone()[0]
     assert len(before) == exams * len(ladder)
     imported.stop()
@@ -153,11 +153,18 @@ def test_changed_ladder_is_recomputed(imported):
     with imported.db() as db:
         assert [row[0] for row in db.execute(
             "SELECT threshold FROM ti_thresholds ORDER BY threshold")] == ladder
-        after = db.execute("SELECT * FROM exam_time_at_or_above ORDER BY 1, 2").fetchall()
+        after = db.execute("SELECT * FROM exam_time_at_or_above ORDER BY 1, 2, 3").fetchall()
         oracle = db.execute(ORACLE).fetchall()
         assert db.execute("SELECT rank, mode FROM mode_names ORDER BY rank").fetchall() == modes
     assert modes[0] == (0, "2d")
-    assert after == before
+    if imported.engine == "sqlite":
+        assert after == before
+    else:
+        # PostgreSQL adds a sum's terms in the order of its plan: the same
+        # times, to the last bits of a double (IEEE 754 addition is not
+        # associative)
+        assert [row[:3] for row in after] == [row[:3] for row in before]
+        assert [row[3] for row in after] == pytest.approx([row[3] for row in before], abs=1e-9)
     timed = {(uid, threshold): seconds for _, uid, threshold, seconds in after}
     for uid, threshold, seconds in oracle:
         assert timed[(uid, threshold)] == pytest.approx(seconds, abs=1e-9)

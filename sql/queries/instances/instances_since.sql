@@ -21,4 +21,4 @@ FROM (
       AND (:site_count = 0 OR i.site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7,
           :site_8, :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
     ORDER BY d.received_at, d.id
-    LIMIT (SELECT row_limit FROM asked));
+    LIMIT (SELECT row_limit FROM asked)) AS documents;

@@ -12,4 +12,4 @@ SELECT coalesce(json_group_array(json_object(
            (SELECT count(*) FROM rejections j WHERE j.site = n.site) AS rejections,
            (SELECT max(i.received_at) FROM instances i WHERE i.site = n.site) AS last_received_at
     FROM (SELECT DISTINCT site FROM instances UNION SELECT DISTINCT site FROM rejections) n
-    ORDER BY n.site);
+    ORDER BY n.site) AS sites;

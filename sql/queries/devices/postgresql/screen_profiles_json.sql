@@ -14,7 +14,9 @@
 -- the profile learned on the old software), how many were refused (the
 -- object, or any index it knows, "not read"), the most common reason and
 -- the first acquisition among the refused. A profile that stops matching
--- shows here, never as wrong numbers.
+-- shows here, never as wrong numbers. With sites asked for (migration
+-- 013: :site_count, :site_1 ... :site_16), only the frames of their
+-- objects are counted; the profiles themselves belong to the device.
 WITH recent AS MATERIALIZED (
     SELECT r.profile_key, r.profile_version, i.acquired_at,
            -- an index left blank on this frame (the exam does not show it)
@@ -37,6 +39,8 @@ WITH recent AS MATERIALIZED (
     JOIN instances i ON i.id = r.instance_id
     WHERE r.state <> 'queued' AND r.profile_key IS NOT NULL
       AND r.updated_at >= strftime('%Y-%m-%dT%H:%M:%SZ', 'now', '-7 days')
+      AND (:site_count = 0 OR i.site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7,
+          :site_8, :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
 ),
 counts AS MATERIALIZED (
     SELECT profile_key, profile_version, count(*) AS frames, sum(refused::integer) AS refused,

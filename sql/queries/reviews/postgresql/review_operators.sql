@@ -25,9 +25,11 @@ WITH exams AS (
                        AND f.limit_value IS NOT NULL
                        AND f.measured_value < f.limit_value)) AS findings
     FROM exam_period_rows r
-    JOIN exam_summaries x ON x.day = r.day AND x.study_instance_uid = r.study_instance_uid
     WHERE r.day <> '' AND (CAST(?1 AS TEXT) IS NULL OR r.day >= ?1) AND (CAST(?2 AS TEXT) IS NULL OR r.day <= ?2)
-      AND (:site_count = 0 OR x.site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+      -- the summary row's site, looked up only when sites are asked for
+      AND (:site_count = 0 OR (SELECT x.site FROM exam_summaries x
+                               WHERE x.day = r.day
+                                 AND x.study_instance_uid = r.study_instance_uid) IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
           :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
 ),
 named AS (

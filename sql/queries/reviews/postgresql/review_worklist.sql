@@ -38,10 +38,12 @@ period AS (
     SELECT monday AS first_day, date(monday, '+6 days') AS last_day FROM week
 ),
 week_exams AS (
-    SELECT r.*, x.site FROM period p
+    SELECT r.* FROM period p
     JOIN exam_period_rows r ON r.day BETWEEN p.first_day AND p.last_day
-    JOIN exam_summaries x ON x.day = r.day AND x.study_instance_uid = r.study_instance_uid
-    WHERE (:site_count = 0 OR x.site IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
+    -- the summary row's site, looked up only when sites are asked for
+    WHERE (:site_count = 0 OR (SELECT x.site FROM exam_summaries x
+                               WHERE x.day = r.day
+                                 AND x.study_instance_uid = r.study_instance_uid) IN (:site_1, :site_2, :site_3, :site_4, :site_5, :site_6, :site_7, :site_8,
           :site_9, :site_10, :site_11, :site_12, :site_13, :site_14, :site_15, :site_16))
 ),
 week_findings AS (
