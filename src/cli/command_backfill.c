@@ -74,7 +74,9 @@ static void *backfill_stop_thread(void *argument)
 }
 
 /* One backfill per database at a time: two would fetch the same studies.
- * The lock goes with the process, also when it is killed. Returns the
+ * On SQLite (whose database is a file of this machine) a lock file beside
+ * it; PostgreSQL's lock is the database's own (store_backfill_lock). The
+ * lock goes with the process, also when it is killed. Returns the
  * descriptor holding it, or -1 (said on stderr). */
 static int backfill_lock(const char *data_directory)
 {
@@ -181,6 +183,7 @@ int command_backfill(int argc, char **argv)
     pthread_t stop_thread;
     int stop_started = 0;
     int lock = -1;
+    int held = -1; /* the database's backfill lock (store_backfill_lock) */
     const char *source = from != NULL ? from : config.backfill_source;
     if (source[0] == '\0') {
         fprintf(stderr, "mitilog backfill: no PACS given: add --from AE@HOST:PORT (or [backfill] "
@@ -260,12 +263,26 @@ int command_backfill(int argc, char **argv)
         log_error("backfill: %s", error.text);
         goto done;
     }
-    lock = backfill_lock(config.data_directory);
-    if (lock < 0)
+    if (cli_open_store(&config, &store, &error) != MITILOG_OK) {
+        log_error("backfill: %s", error.text);
         goto done;
-    if (store_open(config.database_path, (int)config.busy_timeout_ms, &store, &error) !=
-            MITILOG_OK ||
-        ingest_create(&config, store, &pipeline, &error) != MITILOG_OK) {
+    }
+    if (store_backfill_lock(store, &held, &error) != MITILOG_OK) {
+        fprintf(stderr, "mitilog backfill: %s\n", error.text);
+        goto done;
+    }
+    if (held == 0) {
+        fprintf(stderr, "mitilog backfill: another backfill is running on this database (perhaps "
+                        "on another machine that shares it); wait for it to end, or stop it "
+                        "first\n");
+        goto done;
+    }
+    if (held < 0) {
+        lock = backfill_lock(config.data_directory);
+        if (lock < 0)
+            goto done;
+    }
+    if (ingest_create(&config, store, &pipeline, &error) != MITILOG_OK) {
         log_error("backfill: %s", error.text);
         goto done;
     }

@@ -338,3 +338,26 @@ mitilog_status store_backfill_status_json(store *st, char **json, mitilog_error 
     }
     return status;
 }
+
+mitilog_status store_backfill_lock(store *st, int *held, mitilog_error *error)
+{
+    *held = -1;
+    if (store_sql_text(st->writer.engine, "queries/backfill/run_lock.sql") == NULL)
+        return MITILOG_OK;
+    /* The writer link belongs to whoever leads a batch: hold the queue. */
+    store_commit_hold(&st->queue);
+    store_query query;
+    store_query_begin(&query, &st->writer, "queries/backfill/run_lock.sql");
+    if (store_query_step(&query))
+        *held = store_column_integer(&query, 0) == 1;
+    mitilog_status status = store_query_end(&query);
+    store_commit_release(&st->queue);
+    if (status != MITILOG_OK)
+        return mitilog_error_set(error, status, "backfill: cannot take the database's backfill "
+                                                "lock: %s",
+                                 query.error.text);
+    if (*held < 0)
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
+                                 "backfill: the database's backfill lock gave no answer");
+    return MITILOG_OK;
+}

@@ -73,6 +73,14 @@ mitilog_status store_backfill_run_update(store *st, long long run_id,
  * message. */
 mitilog_status store_backfill_run_interrupt(store *st, const char *message, mitilog_error *error);
 
+/* One backfill per database at a time. On an engine with a lock of its
+ * own (PostgreSQL's advisory lock, queries/backfill/postgresql/
+ * run_lock.sql) tries it on the writer connection without waiting:
+ * *held 1 when taken (until the store is closed or the process ends), 0
+ * when another backfill holds it. *held -1 on an engine without one
+ * (SQLite): the caller locks a file beside the database. */
+mitilog_status store_backfill_lock(store *st, int *held, mitilog_error *error);
+
 /* The newest run as a JSON object (the "backfill" member of the ingest
  * status, docs/api.md), or the text "null" when there never was one. */
 mitilog_status store_backfill_status_json(store *st, char **json, mitilog_error *error);

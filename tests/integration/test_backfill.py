@@ -14,7 +14,6 @@ import re
 import shutil
 import signal
 import socket
-import sqlite3
 import struct
 import subprocess
 import threading
@@ -22,8 +21,8 @@ import time
 
 import pytest
 
-from conftest import (AE_TITLE, BINARY, DCMTK_ENV, REPO, Daemon, echoscu, free_port,
-                      run)
+from conftest import (AE_TITLE, BINARY, DCMTK_ENV, REPO, Daemon, database_errors, echoscu,
+                      free_port, run)
 from rawscu import _command, _item, _parse_command, read_pdu
 
 PACS_AE = "ARCHIVE"
@@ -132,16 +131,16 @@ def backfill(daemon, pacs, *options, timeout=300):
                 "--since", DAY, "--until", DAY] + list(options), timeout=timeout)
 
 
-def rows(database, table, skip, key):
-    with sqlite3.connect("file:%s?mode=ro" % database, uri=True) as db:
+def rows(daemon, table, skip, key):
+    with daemon.db() as db:
         cursor = db.execute("SELECT * FROM %s ORDER BY %s" % (table, key))
         names = [d[0] for d in cursor.description]
         return [{n: v for n, v in zip(names, row) if n not in skip} for row in cursor]
 
 
-def records(database):
-    return (rows(database, "instances", INSTANCE_CLOCK_COLUMNS, "sop_instance_uid"),
-            rows(database, "exams", EXAM_CLOCK_COLUMNS, "study_instance_uid"))
+def records(daemon):
+    return (rows(daemon, "instances", INSTANCE_CLOCK_COLUMNS, "sop_instance_uid"),
+            rows(daemon, "exams", EXAM_CLOCK_COLUMNS, "study_instance_uid"))
 
 
 @pytest.fixture(scope="module")
@@ -154,11 +153,11 @@ def direct_records(module_daemon_factory, studies):
     sent = daemon.storescu(studies["files"], calling=PACS_AE)
     assert sent.returncode == 0, sent.stderr
     daemon.stop()
-    return records(daemon.database)
+    return records(daemon)
 
 
-def study_states(database):
-    with sqlite3.connect("file:%s?mode=ro" % database, uri=True) as db:
+def study_states(daemon):
+    with daemon.db() as db:
         return db.execute("SELECT state, objects_stored, objects_failed FROM backfill_studies "
                           "ORDER BY study_instance_uid").fetchall()
 
@@ -174,11 +173,11 @@ def test_get_stores_what_a_direct_send_stores(daemon_factory, pacs_factory, stud
     # sub-operation of the C-GET, once.
     assert pacs.sub_operations() == total
     assert "3 studies found, 3 done" in done.stdout, done.stdout
-    assert [s[0] for s in study_states(daemon.database)] == ["done"] * 3
-    assert sum(s[1] for s in study_states(daemon.database)) == total
+    assert [s[0] for s in study_states(daemon)] == ["done"] * 3
+    assert sum(s[1] for s in study_states(daemon)) == total
     # The records equal those of the same files sent directly (storescu,
     # the reference sender), but for when they were written.
-    instances, exams = records(daemon.database)
+    instances, exams = records(daemon)
     assert len(instances) == total
     assert (instances, exams) == direct_records
     # Run again: every study is done, nothing is fetched.
@@ -201,7 +200,7 @@ def test_move_to_own_listener_and_to_the_daemon(daemon_factory, pacs_factory, st
                      "--move-listen-port", str(listener_port), "--concurrency", "2")
     assert moved.returncode == 0, moved.stdout + moved.stderr
     assert pacs.sub_operations() == len(studies["files"])
-    assert records(daemon.database) == direct_records
+    assert records(daemon) == direct_records
     # The running daemon's receiver as the destination: the command only
     # asks, the daemon stores.
     receiver = daemon_factory("receiver")
@@ -210,15 +209,15 @@ def test_move_to_own_listener_and_to_the_daemon(daemon_factory, pacs_factory, st
     moved = backfill(receiver, other, "--rate", "0", "--retrieve", "move")
     assert moved.returncode == 0, moved.stdout + moved.stderr
     receiver.stop()
-    assert records(receiver.database) == direct_records
-    assert [s[0] for s in study_states(receiver.database)] == ["done"] * 3
+    assert records(receiver) == direct_records
+    assert [s[0] for s in study_states(receiver)] == ["done"] * 3
 
 
-def instance_count(database):
+def instance_count(daemon):
     try:
-        with sqlite3.connect("file:%s?mode=ro" % database, uri=True, timeout=10) as db:
+        with daemon.db() as db:
             return db.execute("SELECT count(*) FROM instances").fetchone()[0]
-    except sqlite3.OperationalError:
+    except database_errors():
         return 0   # not created yet
 
 
@@ -234,19 +233,19 @@ def test_kill_mid_study_resumes_without_fetching_twice(daemon_factory, pacs_fact
                                stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
                                env=DCMTK_ENV)
     deadline = time.monotonic() + 120
-    while instance_count(daemon.database) < 8:
+    while instance_count(daemon) < 8:
         assert process.poll() is None, "the backfill ended before it could be killed"
         assert time.monotonic() < deadline
         time.sleep(0.05)
     process.kill()      # SIGKILL: no clean-up of any kind
     process.wait()
-    committed = instance_count(daemon.database)
+    committed = instance_count(daemon)
     sent_before = pacs.sub_operations()
     assert 8 <= committed < total
     # Objects are answered after their commit: at most the one in flight
     # was sent and not committed.
     assert sent_before - committed in (0, 1)
-    with sqlite3.connect(daemon.database) as db:
+    with daemon.db() as db:
         states = dict(db.execute("SELECT state, count(*) FROM backfill_studies GROUP BY 1"))
     assert states.get("retrieving") == 1, states
     resumed = backfill(daemon, pacs, "--rate", "0")
@@ -254,7 +253,7 @@ def test_kill_mid_study_resumes_without_fetching_twice(daemon_factory, pacs_fact
     # The second run fetched exactly the instances that were not stored
     # (C-FIND at IMAGE level for the interrupted study, PS3.4 C.4.1.3).
     assert pacs.sub_operations() - sent_before == total - committed
-    instances, exams = records(daemon.database)
+    instances, exams = records(daemon)
     assert len(instances) == total
     assert sum(i["replaced_count"] for i in instances) == 0
     assert (instances, exams) == direct_records
@@ -289,7 +288,7 @@ def test_outside_the_window_it_waits_and_says_so(daemon_factory, pacs_factory):
     assert "outside the backfill window %s (local time): waiting until %s" % (
         window, window[:5]) in line, line
     assert pacs.queries() == 0
-    with sqlite3.connect(daemon.database) as db:
+    with daemon.db() as db:
         assert db.execute("SELECT state FROM backfill_runs").fetchall() == [("waiting",)]
 
 
@@ -426,7 +425,7 @@ def test_station_is_matched_on_the_retrieved_objects(daemon_factory, pacs_factor
     done = backfill(daemon, pacs, "--rate", "0", "--station", "US-ROOM-3*")
     assert done.returncode == 0, done.stdout + done.stderr
     assert pacs.sub_operations() == len(studies["files"])
-    instances, _ = records(daemon.database)
+    instances, _ = records(daemon)
     assert instances == kept
     assert "%d skipped" % (len(studies["files"]) - len(kept)) in done.stdout, done.stdout
     # With C-MOVE to the daemon the objects never pass through the
@@ -440,7 +439,7 @@ def test_station_is_matched_on_the_retrieved_objects(daemon_factory, pacs_factor
     rest = backfill(daemon, pacs, "--rate", "0")
     assert rest.returncode == 0, rest.stdout + rest.stderr
     assert pacs.sub_operations() - sent == len(studies["files"]) - len(kept)
-    assert records(daemon.database) == direct_records
+    assert records(daemon) == direct_records
 
 
 def test_check_config_reads_the_backfill_section(tmp_path):
@@ -467,7 +466,7 @@ def test_sigterm_records_the_stop(daemon_factory, pacs_factory):
                                stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,
                                env=DCMTK_ENV)
     deadline = time.monotonic() + 60
-    while instance_count(daemon.database) < 1:
+    while instance_count(daemon) < 1:
         assert process.poll() is None and time.monotonic() < deadline
         time.sleep(0.05)
     process.send_signal(signal.SIGTERM)
@@ -475,7 +474,7 @@ def test_sigterm_records_the_stop(daemon_factory, pacs_factory):
     # common practice, no source: a stopped command says so and exits 1
     assert process.returncode == 1
     assert "interrupted; the same command resumes where it stopped" in err, err
-    with sqlite3.connect(daemon.database) as db:
+    with daemon.db() as db:
         assert db.execute("SELECT state FROM backfill_runs").fetchall() == [("interrupted",)]
     resumed = backfill(daemon, pacs, "--rate", "0")
     assert resumed.returncode == 0, resumed.stdout + resumed.stderr
@@ -508,20 +507,20 @@ def test_a_study_the_pacs_cannot_send_fails_and_the_rest_goes_on(daemon_factory,
     # sub-operations are counted in the final response)
     assert done.returncode == 1, done.stdout + done.stderr
     assert "4 studies found, 3 done, 0 already done before, 1 failed" in done.stdout, done.stdout
-    with sqlite3.connect(daemon.database) as db:
+    with daemon.db() as db:
         failed = db.execute("SELECT message, attempts FROM backfill_studies "
                             "WHERE state = 'failed'").fetchall()
         done_uids = {r[0] for r in db.execute(
             "SELECT study_instance_uid FROM backfill_studies WHERE state = 'done'")}
     assert len(failed) == 1 and failed[0][1] == 1
     assert "\n" not in failed[0][0] and ("PACS" in failed[0][0] or "not stored" in failed[0][0])
-    instances, _ = records(daemon.database)
+    instances, _ = records(daemon)
     assert done_uids == {i["study_instance_uid"] for i in direct_records[0]}
     assert [i for i in instances if i["study_instance_uid"] in done_uids] == direct_records[0]
     # The next run tries the failed study again, and only that one.
     again = backfill(daemon, pacs, "--rate", "0")
     assert again.returncode == 1
     assert "4 studies found, 0 done, 3 already done before, 1 failed" in again.stdout, again.stdout
-    with sqlite3.connect(daemon.database) as db:
+    with daemon.db() as db:
         assert db.execute("SELECT attempts FROM backfill_studies WHERE state = 'failed'"
                           ).fetchall() == [(2,)]

@@ -214,13 +214,19 @@ def test_metrics_count_what_was_sent(daemon_factory, tmp_path):
               for (name, labels), count in final.items() if name == "mitilog_findings"}
     assert series == oracle
     assert value(final, "mitilog_database_up") == 1
-    # the database's pages as Python's sqlite3 counts them (SQLite's
-    # PRAGMA page_count and page_size, sqlite.org/pragma.html); nothing
-    # writes now that the exam is evaluated
+    # the database's size as the engine itself counts it: on SQLite its
+    # pages as Python's sqlite3 counts them (PRAGMA page_count and
+    # page_size, sqlite.org/pragma.html), on PostgreSQL pg_database_size
+    # (PostgreSQL documentation, "Database Object Management Functions");
+    # nothing writes now that the exam is evaluated
     with daemon.db() as db:
-        pages = db.execute("PRAGMA page_count").fetchone()[0]
-        page_size = db.execute("PRAGMA page_size").fetchone()[0]
-    assert value(final, "mitilog_database_size_bytes") == pages * page_size > 0
+        if daemon.engine == "postgresql":
+            size = db.execute("SELECT pg_database_size(current_database())").fetchone()[0]
+        else:
+            pages = db.execute("PRAGMA page_count").fetchone()[0]
+            page_size = db.execute("PRAGMA page_size").fetchone()[0]
+            size = pages * page_size
+    assert value(final, "mitilog_database_size_bytes") == size > 0
 
     # promtool: parsed, and no lint problem (naming, units, _total)
     status, output = promtool_check(body)

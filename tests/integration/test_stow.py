@@ -155,7 +155,9 @@ VOLATILE = {"id", "received_at", "first_received_at", "calling_ae_title", "sourc
 def instance_rows(daemon, sop_uids):
     with daemon.db() as db:
         db.row_factory = None
-        columns = [row[1] for row in db.execute("PRAGMA table_info(instances)")]
+        # the table's columns as the engine lists them (a query that
+        # returns no row still describes its columns, PEP 249 description)
+        columns = [d[0] for d in db.execute("SELECT * FROM instances WHERE 1 = 0").description]
         kept = [c for c in columns if c not in VOLATILE]
         rows = {}
         for uid in sop_uids:
