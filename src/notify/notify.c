@@ -23,8 +23,9 @@
 #include "util/log.h"
 
 enum {
-    NOTIFY_BATCH = 32,      /* rows read per pass */
-    NOTIFY_POLL_SECONDS = 1 /* between passes when idle */
+    NOTIFY_BATCH = 8,        /* rows taken per pass */
+    NOTIFY_POLL_SECONDS = 1, /* between passes when idle */
+    NOTIFY_LEASE_SECONDS = 60 /* a taken batch's margin beyond its timeouts */
 };
 
 struct notify {
@@ -338,8 +339,13 @@ static void *notify_run(void *context)
         store_notification *rows = NULL;
         size_t count = 0;
         mitilog_error error;
-        if (store_notifications_due(n->store, now, NOTIFY_BATCH, &rows, &count, &error) !=
-            MITILOG_OK)
+        /* The lease outlasts the batch's deliveries, each bounded by
+         * the connect and transfer timeouts (twice timeout_seconds). */
+        char lease_until[32];
+        notify_time_after(NOTIFY_LEASE_SECONDS + 2 * n->timeout_seconds * NOTIFY_BATCH,
+                          lease_until, sizeof lease_until);
+        if (store_notifications_take(n->store, now, lease_until, NOTIFY_BATCH, &rows, &count,
+                                     &error) != MITILOG_OK)
             log_warning("notifications: cannot read the outbox (will try again): %s", error.text);
         for (size_t i = 0; i < count && !notify_stopping(n); i++)
             notify_deliver(n, &rows[i]);

@@ -83,58 +83,86 @@ void store_notifications_free(store_notification *rows, size_t count)
     free(rows);
 }
 
-mitilog_status store_notifications_due(store *st, const char *now, size_t limit,
-                                       store_notification **out, size_t *count,
-                                       mitilog_error *error)
+/* What one take asks and what it got (store_notifications_take_write). */
+typedef struct store_notification_take {
+    const char *now, *lease_until;
+    size_t limit;
+    store_notification *rows;
+    size_t used;
+    int failed; /* out of memory */
+} store_notification_take;
+
+static mitilog_status store_notifications_take_write(store_link *writer, void *context,
+                                                     mitilog_error *error)
+{
+    store_notification_take *take = context;
+    store_notifications_free(take->rows, take->used); /* a batch tried again starts over */
+    take->rows = calloc(take->limit > 0 ? take->limit : 1, sizeof *take->rows);
+    take->used = 0;
+    take->failed = 0;
+    if (take->rows == NULL)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "outbox: out of memory");
+    store_query query;
+    store_query_begin(&query, writer, "queries/notifications/outbox_take.sql");
+    store_bind_text(&query, ":now", take->now);
+    store_bind_text(&query, ":lease_until", take->lease_until);
+    store_bind_integer(&query, ":limit", (long long)take->limit);
+    while (store_query_step(&query)) {
+        if (take->used == take->limit)
+            continue; /* the LIMIT holds; read to the end all the same */
+        store_notification *row = &take->rows[take->used++];
+        row->id = store_column_integer(&query, 0);
+        row->channel = store_column_copy(&query, 1, &take->failed);
+        row->study_instance_uid = store_column_copy(&query, 2, &take->failed);
+        row->accession_number = store_column_copy(&query, 3, &take->failed);
+        row->room = store_column_copy(&query, 4, &take->failed);
+        row->preset = store_column_copy(&query, 5, &take->failed);
+        row->rule_id = store_column_copy(&query, 6, &take->failed);
+        row->severity = store_column_copy(&query, 7, &take->failed);
+        row->quantity = store_column_copy(&query, 8, &take->failed);
+        row->has_value = !store_column_is_null(&query, 9);
+        row->measured_value = row->has_value ? store_column_real(&query, 9) : 0.0;
+        row->unit = store_column_copy(&query, 10, &take->failed);
+        row->has_limit = !store_column_is_null(&query, 11);
+        row->limit_value = row->has_limit ? store_column_real(&query, 11) : 0.0;
+        row->started_at = store_column_copy(&query, 12, &take->failed);
+        row->period = store_column_copy(&query, 13, &take->failed);
+        row->created_at = store_column_copy(&query, 14, &take->failed);
+        row->attempts = (long)store_column_integer(&query, 15);
+        if (row->channel == NULL || row->rule_id == NULL || row->severity == NULL)
+            take->failed = 1;
+    }
+    if (store_query_end(&query) != MITILOG_OK)
+        return mitilog_error_set(error, MITILOG_ERROR_DATABASE,
+                                 "taking from the notification outbox: %s", query.error.text);
+    if (take->failed)
+        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "outbox: out of memory");
+    return MITILOG_OK;
+}
+
+/* Oldest first, as they were chosen (UPDATE ... RETURNING gives no order). */
+static int store_notifications_by_id(const void *a, const void *b)
+{
+    long long x = ((const store_notification *)a)->id, y = ((const store_notification *)b)->id;
+    return (x > y) - (x < y);
+}
+
+mitilog_status store_notifications_take(store *st, const char *now, const char *lease_until,
+                                        size_t limit, store_notification **out, size_t *count,
+                                        mitilog_error *error)
 {
     *out = NULL;
     *count = 0;
-    store_notification *rows = calloc(limit > 0 ? limit : 1, sizeof *rows);
-    if (rows == NULL)
-        return mitilog_error_set(error, MITILOG_ERROR_MEMORY, "outbox: out of memory");
-    size_t used = 0;
-    int failed = 0;
-    pthread_mutex_lock(&st->reader_lock);
-    store_query query;
-    store_query_begin(&query, &st->reader, "queries/notifications/outbox_due.sql");
-    store_bind_text(&query, ":now", now);
-    store_bind_integer(&query, ":limit", (long long)limit);
-    while (used < limit && store_query_step(&query)) {
-        store_notification *row = &rows[used++];
-        row->id = store_column_integer(&query, 0);
-        row->channel = store_column_copy(&query, 1, &failed);
-        row->study_instance_uid = store_column_copy(&query, 2, &failed);
-        row->accession_number = store_column_copy(&query, 3, &failed);
-        row->room = store_column_copy(&query, 4, &failed);
-        row->preset = store_column_copy(&query, 5, &failed);
-        row->rule_id = store_column_copy(&query, 6, &failed);
-        row->severity = store_column_copy(&query, 7, &failed);
-        row->quantity = store_column_copy(&query, 8, &failed);
-        row->has_value = !store_column_is_null(&query, 9);
-        row->measured_value = row->has_value ? store_column_real(&query, 9) : 0.0;
-        row->unit = store_column_copy(&query, 10, &failed);
-        row->has_limit = !store_column_is_null(&query, 11);
-        row->limit_value = row->has_limit ? store_column_real(&query, 11) : 0.0;
-        row->started_at = store_column_copy(&query, 12, &failed);
-        row->period = store_column_copy(&query, 13, &failed);
-        row->created_at = store_column_copy(&query, 14, &failed);
-        row->attempts = (long)store_column_integer(&query, 15);
-        if (row->channel == NULL || row->rule_id == NULL || row->severity == NULL)
-            failed = 1;
-    }
-    mitilog_status status = store_query_end(&query);
-    pthread_mutex_unlock(&st->reader_lock);
-    if (status != MITILOG_OK)
-        status = mitilog_error_set(error, status, "reading the notification outbox: %s",
-                                   query.error.text);
-    else if (failed)
-        status = mitilog_error_set(error, MITILOG_ERROR_MEMORY, "outbox: out of memory");
+    store_notification_take take = {now, lease_until, limit, NULL, 0, 0};
+    mitilog_status status =
+        store_commit_submit(st, store_notifications_take_write, &take, error);
     if (status != MITILOG_OK) {
-        store_notifications_free(rows, used);
+        store_notifications_free(take.rows, take.used);
         return status;
     }
-    *out = rows;
-    *count = used;
+    qsort(take.rows, take.used, sizeof *take.rows, store_notifications_by_id);
+    *out = take.rows;
+    *count = take.used;
     return MITILOG_OK;
 }
 

@@ -37,11 +37,16 @@ typedef struct store_notification {
     long attempts; /* made before this one */
 } store_notification;
 
-/* Pending rows whose next attempt is at or before now (ISO 8601 UTC),
- * at most limit, oldest first. */
-mitilog_status store_notifications_due(store *store, const char *now, size_t limit,
-                                       store_notification **out, size_t *count,
-                                       mitilog_error *error);
+/* Takes pending rows whose next attempt is at or before now (ISO 8601
+ * UTC), at most limit, oldest first, for this sender alone: their next
+ * attempt moves to lease_until, so that another sender on the same
+ * database (another receiver) does not take them, and they come back
+ * due when a sender stops before recording the outcome (killed, machine
+ * gone). On PostgreSQL the rows are locked as they are taken (FOR UPDATE
+ * SKIP LOCKED); on SQLite the writer lock makes takes one at a time. */
+mitilog_status store_notifications_take(store *store, const char *now, const char *lease_until,
+                                        size_t limit, store_notification **out, size_t *count,
+                                        mitilog_error *error);
 void store_notifications_free(store_notification *rows, size_t count);
 
 /* Records one attempt: state "delivered", "pending" (next attempt at

@@ -257,3 +257,43 @@ def test_https_webhook_is_verified(daemon_factory, fixtures, tmp_path):
         assert len(receiver.posts) == 1
     finally:
         receiver.stop()
+
+
+def test_two_receivers_on_one_database_post_each_finding_once(daemon_factory, fixtures,
+                                                              tmp_path):
+    """Two receivers write to one database (one PostgreSQL database, or one
+    SQLite file) and both run a sender over the same outbox: every finding
+    reaches the webhook once, not once per receiver. Common practice, no
+    source: an outbox read by several workers hands each row to one."""
+    port = free_port()
+    receiver = Receiver(port)
+    try:
+        first = daemon_factory("first")
+        if first.engine == "postgresql":
+            shared = dict(engine="postgresql", connection=first.connection)
+        else:
+            shared = dict(database=first.database)
+        second = daemon_factory("second", storage=shared)
+        for daemon in (first, second):
+            configure(daemon, port)
+            daemon.start()
+        studies = []
+        for index in range(6):
+            daemon = (first, second)[index % 2]
+            path, study = violating_object(good_fixture(fixtures), tmp_path,
+                                           "shared%d" % index, "2.%d" % (index + 2),
+                                           generate_uid())
+            assert daemon.storescu([path]).returncode == 0
+            studies.append(study)
+        rows = wait_for(lambda: (lambda r: len(r) == 6 and all(x[1] == "delivered" for x in r)
+                                 and r)([x for x in outbox(first) if x[0] == "webhook"]),
+                        "six findings delivered")
+        assert sorted(r[6] for r in rows) == sorted(studies)
+        # Stopped: no sender is left that could still post a copy.
+        second.stop()
+        first.stop()
+        posted = [json.loads(p[2])["study_instance_uid"] for p in receiver.posts]
+        assert sorted(posted) == sorted(studies)
+        assert all(r[2] == 1 for r in rows)   # one attempt each
+    finally:
+        receiver.stop()
