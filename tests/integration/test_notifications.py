@@ -34,9 +34,9 @@ SITE = "Harbourside General (fictional)"
 
 class Receiver:
     """An HTTP receiver on 127.0.0.1 that records each POST and answers
-    with the next status of its script (then 200)."""
+    with the next status of its script (then 200), after delay seconds."""
 
-    def __init__(self, port, script=(), tls=None):
+    def __init__(self, port, script=(), tls=None, delay=0):
         self.port, self.script, self.posts = port, list(script), []
         self.lock = threading.Lock()
         receiver = self
@@ -44,6 +44,7 @@ class Receiver:
         class Handler(http.server.BaseHTTPRequestHandler):
             def do_POST(self):
                 body = self.rfile.read(int(self.headers.get("Content-Length", "0")))
+                time.sleep(delay)
                 with receiver.lock:
                     status = receiver.script.pop(0) if receiver.script else 200
                     receiver.posts.append((status, self.headers.get("Content-Type"), body))
@@ -266,7 +267,10 @@ def test_two_receivers_on_one_database_post_each_finding_once(daemon_factory, fi
     reaches the webhook once, not once per receiver. Common practice, no
     source: an outbox read by several workers hands each row to one."""
     port = free_port()
-    receiver = Receiver(port)
+    # A slow receiver (2 s per post, longer than a sender's 1 s between
+    # passes): while one sender posts a row, the other has surely looked
+    # at the outbox again.
+    receiver = Receiver(port, delay=2)
     try:
         first = daemon_factory("first")
         if first.engine == "postgresql":
