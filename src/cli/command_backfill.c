@@ -74,14 +74,15 @@ static void *backfill_stop_thread(void *argument)
 }
 
 /* One backfill per database at a time: two would fetch the same studies.
- * On SQLite (whose database is a file of this machine) a lock file beside
- * it; PostgreSQL's lock is the database's own (store_backfill_lock). The
+ * On SQLite a lock file beside the database file (DATABASE-backfill.lock),
+ * so that two configurations naming the same file share it; PostgreSQL's
+ * lock is the database's own (store_backfill_lock). The
  * lock goes with the process, also when it is killed. Returns the
  * descriptor holding it, or -1 (said on stderr). */
-static int backfill_lock(const char *data_directory)
+static int backfill_lock(const char *database_path)
 {
     char path[4096];
-    snprintf(path, sizeof path, "%s/backfill.lock", data_directory);
+    snprintf(path, sizeof path, "%s-backfill.lock", database_path);
     int fd = open(path, O_RDWR | O_CREAT | O_CLOEXEC, 0640);
     if (fd < 0) {
         fprintf(stderr, "mitilog backfill: cannot open %s: %s\n", path, strerror(errno));
@@ -278,7 +279,7 @@ int command_backfill(int argc, char **argv)
         goto done;
     }
     if (held < 0) {
-        lock = backfill_lock(config.data_directory);
+        lock = backfill_lock(config.database_path);
         if (lock < 0)
             goto done;
     }

@@ -524,3 +524,42 @@ def test_a_study_the_pacs_cannot_send_fails_and_the_rest_goes_on(daemon_factory,
     with daemon.db() as db:
         assert db.execute("SELECT attempts FROM backfill_studies WHERE state = 'failed'"
                           ).fetchall() == [(2,)]
+
+
+def test_a_second_receiver_on_the_same_database_waits_its_turn(daemon_factory, pacs_factory):
+    """Two receivers (two configurations, two data folders, as on two
+    machines) share one database: while the first one's backfill runs,
+    the second one's is refused in plain words, whatever the engine.
+    Common practice, no source: one worker per job across a cluster."""
+    pacs = pacs_factory()
+    first = daemon_factory("first-receiver")
+    if first.engine == "postgresql":
+        shared = dict(engine="postgresql", connection=first.connection)
+    else:
+        shared = dict(database=first.database)
+    second = daemon_factory("second-receiver", storage=shared)
+    assert second.data_directory != first.data_directory
+    # The first run waits for a window two hours from now: it holds its
+    # turn without asking anything of the PACS.
+    start = time.localtime(time.time() + 2 * 3600)
+    window = "%02d:%02d-%02d:%02d" % (start.tm_hour, start.tm_min, (start.tm_hour + 1) % 24,
+                                      start.tm_min)
+    process = subprocess.Popen([BINARY, "backfill", "--config", first.config, "--from",
+                                "%s@127.0.0.1:%d" % (PACS_AE, pacs.port), "--since", DAY,
+                                "--until", DAY, "--window", window],
+                               stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, text=True,
+                               env=DCMTK_ENV)
+    try:
+        line = process.stdout.readline()
+        assert "outside the backfill window" in line, line
+        refused = backfill(second, pacs)
+    finally:
+        process.kill()
+        process.wait()
+    assert refused.returncode == 1
+    assert "another backfill is running on this database" in refused.stderr, refused.stderr
+    assert pacs.queries() == 0
+    # Once the first is gone (killed: its lock goes with it), the second runs.
+    done = backfill(second, pacs, "--rate", "0")
+    assert done.returncode == 0, done.stdout + done.stderr
+    assert "3 studies found, 3 done" in done.stdout, done.stdout
