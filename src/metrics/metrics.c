@@ -404,7 +404,8 @@ static void metrics_write_database(metrics_text *out, const metrics_database *da
 }
 
 mitilog_status metrics_exposition(const metrics *metrics, const metrics_database *database,
-                                  const char *version, char **text, mitilog_error *error)
+                                  const char *version, const char *site, char **text,
+                                  mitilog_error *error)
 {
     if (metrics == NULL || text == NULL)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID,
@@ -412,8 +413,15 @@ mitilog_status metrics_exposition(const metrics *metrics, const metrics_database
     *text = NULL;
     metrics_text out = {NULL, 0, 0, 0};
     metrics_family(&out, "mitilog_build_info", "gauge",
-                   "Always 1; the version label names the running build.");
-    metrics_sample(&out, "mitilog_build_info", "version", version != NULL ? version : "", "1");
+                   "Always 1; the version label names the running build, the site label the "
+                   "receiver's site.");
+    /* Two labels: the version, and the site, which tells apart the
+     * scrapes of receivers sharing one database. */
+    metrics_text_append(&out, "mitilog_build_info{version=\"");
+    metrics_text_label_value(&out, version != NULL ? version : "");
+    metrics_text_append(&out, "\",site=\"");
+    metrics_text_label_value(&out, site != NULL ? site : "");
+    metrics_text_append(&out, "\"} 1\n");
     metrics_write_pipeline(&out, metrics);
     if (database != NULL)
         metrics_write_database(&out, database);

@@ -115,7 +115,8 @@ void metrics_database_free(metrics_database *database);
  * database's) into *text (malloc'ed, NUL-terminated, the caller frees).
  * version names the build (mitilog_build_info). */
 mitilog_status metrics_exposition(const metrics *metrics, const metrics_database *database,
-                                  const char *version, char **text, mitilog_error *error);
+                                  const char *version, const char *site, char **text,
+                                  mitilog_error *error);
 
 /* A growing text; zero-initialise it, free data when done. */
 typedef struct metrics_text {

@@ -64,6 +64,9 @@ mitilog_status store_set_durability(store *store, store_durability durability,
  * ([receiver] site; exam.h says what a site name is); "main" until set.
  * Call before the first write. MITILOG_ERROR_INVALID when not a site name. */
 mitilog_status store_set_site(store *store, const char *site, mitilog_error *error);
+/* The site set by store_set_site ("main" until set); owned by the store,
+ * valid while it is open. */
+const char *store_site(const store *store);
 
 /* The sites a read is limited to: count 0 (or a NULL pointer where one is
  * taken) reads every site; a name that no row holds matches nothing.

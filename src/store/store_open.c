@@ -370,6 +370,8 @@ mitilog_status store_set_site(store *st, const char *site, mitilog_error *error)
     return MITILOG_OK;
 }
 
+const char *store_site(const store *st) { return st != NULL ? st->site : ""; }
+
 void store_bind_sites(store_query *query, const store_sites *sites)
 {
     size_t count = sites != NULL ? sites->count : 0;

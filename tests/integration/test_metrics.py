@@ -195,7 +195,9 @@ def test_metrics_count_what_was_sent(daemon_factory, tmp_path):
     with daemon.db() as db:
         assert db.execute("SELECT count(*) FROM instances").fetchone()[0] == committed
 
-    assert value(after, "mitilog_build_info", version=value_of_version(after)) == 1
+    # the default [receiver] site (docs/sites.md)
+    assert value(after, "mitilog_build_info", version=value_of_version(after),
+                 site="main") == 1
     start = value(after, "process_start_time_seconds")
     assert start <= sent_at
 
@@ -368,3 +370,31 @@ def test_the_documented_configuration_is_valid(tmp_path):
         path.write_text(block + "rule_files:\n  - %s\n" % rules_path)
         result = run([PROMTOOL, "check", "config", str(path)])
         assert result.returncode == 0, result.stdout + result.stderr
+
+
+def test_receivers_sharing_a_database_are_told_apart_by_site(daemon_factory):
+    """Three receivers of three sites write to one database: each one's
+    scrape names its own site in mitilog_build_info, so that a Prometheus
+    server scraping all three tells them apart; promtool still finds the
+    text clean (Prometheus text exposition format 0.0.4, label syntax)."""
+    first = daemon_factory("north")
+    if first.engine == "postgresql":
+        shared = dict(engine="postgresql", connection=first.connection)
+    else:
+        shared = dict(database=first.database)
+    receivers = [first, daemon_factory("south", storage=shared),
+                 daemon_factory("east", storage=shared)]
+    sites = ["north-wing", "south-wing", "east-clinic"]
+    for daemon, site in zip(receivers, sites):
+        with open(daemon.config, "a") as f:
+            f.write("[receiver]\nsite = %s\n" % site)
+        daemon.start()
+    for daemon, site in zip(receivers, sites):
+        _, body = scrape(daemon)
+        samples = parse(body)
+        labels = [dict(labels) for name, labels in samples if name == "mitilog_build_info"]
+        assert [l["site"] for l in labels] == [site], body
+        assert value(samples, "mitilog_build_info", version=labels[0]["version"],
+                     site=site) == 1
+        status, output = promtool_check(body)
+        assert status == 0 and output.strip() == "", output

@@ -64,7 +64,7 @@ static char *exposition(const metrics *m, const metrics_database *database)
 {
     char *text = NULL;
     mitilog_error error = {{0}};
-    if (metrics_exposition(m, database, "9.9.9", &text, &error) != MITILOG_OK)
+    if (metrics_exposition(m, database, "9.9.9", "north-wing", &text, &error) != MITILOG_OK)
         fail_msg("metrics_exposition: %s", error.text);
     return text;
 }
@@ -124,7 +124,7 @@ static void counters_and_labels(void **state)
     assert_true(sample(text, "mitilog_received_bytes_total") == 1024);
     assert_true(sample(text, "mitilog_queue_items{queue=\"pixel_reading\"}") == 7);
     assert_true(sample(text, "mitilog_pixel_objects_refused_total{reason=\"no_profile\"}") == 1);
-    assert_true(sample(text, "mitilog_build_info{version=\"9.9.9\"}") == 1);
+    assert_true(sample(text, "mitilog_build_info{version=\"9.9.9\",site=\"north-wing\"}") == 1);
     /* no object yet: no timestamp sample rather than a false 0 */
     assert_null(strstr(text, "mitilog_last_object_received_timestamp_seconds"));
     free(text);
