@@ -25,7 +25,7 @@
 enum {
     NOTIFY_BATCH = 8,        /* rows taken per pass */
     NOTIFY_POLL_SECONDS = 1, /* between passes when idle */
-    NOTIFY_LEASE_SECONDS = 60 /* a taken batch's margin beyond its timeouts */
+    NOTIFY_LEASE_SECONDS = 10 /* a taken batch's margin beyond its timeouts */
 };
 
 struct notify {
@@ -340,9 +340,10 @@ static void *notify_run(void *context)
         size_t count = 0;
         mitilog_error error;
         /* The lease outlasts the batch's deliveries, each bounded by
-         * the connect and transfer timeouts (twice timeout_seconds). */
+         * timeout_seconds (CURLOPT_TIMEOUT covers the whole transfer,
+         * connecting included). */
         char lease_until[32];
-        notify_time_after(NOTIFY_LEASE_SECONDS + 2 * n->timeout_seconds * NOTIFY_BATCH,
+        notify_time_after(NOTIFY_LEASE_SECONDS + n->timeout_seconds * NOTIFY_BATCH,
                           lease_until, sizeof lease_until);
         if (store_notifications_take(n->store, now, lease_until, NOTIFY_BATCH, &rows, &count,
                                      &error) != MITILOG_OK)

@@ -36,8 +36,11 @@ class Receiver:
     """An HTTP receiver on 127.0.0.1 that records each POST and answers
     with the next status of its script (then 200), after delay seconds."""
 
-    def __init__(self, port, script=(), tls=None, delay=0):
+    def __init__(self, port, script=(), tls=None, delay=0, gate=None):
         self.port, self.script, self.posts = port, list(script), []
+        # gate: the first post is held until gate is set; arrived is set
+        # when it came
+        self.arrived = threading.Event()
         self.lock = threading.Lock()
         receiver = self
 
@@ -45,6 +48,9 @@ class Receiver:
             def do_POST(self):
                 body = self.rfile.read(int(self.headers.get("Content-Length", "0")))
                 time.sleep(delay)
+                if gate is not None and not receiver.arrived.is_set():
+                    receiver.arrived.set()
+                    gate.wait(120)
                 with receiver.lock:
                     status = receiver.script.pop(0) if receiver.script else 200
                     receiver.posts.append((status, self.headers.get("Content-Type"), body))
@@ -93,12 +99,12 @@ def good_fixture(fixtures):
 
 
 def configure(daemon, webhook_port, syslog_path=None, max_attempts=50, scheme="http",
-              extra=""):
+              extra="", timeout=5):
     with open(daemon.config, "a") as f:
         f.write("[notifications]\nwebhook_url = %s://127.0.0.1:%d/hook\n"
                 "dashboard_url = %s\nretry_initial_seconds = 1\nretry_max_seconds = 2\n"
-                "max_attempts = %d\ntimeout_seconds = 5\n%s"
-                % (scheme, webhook_port, DASHBOARD, max_attempts, extra))
+                "max_attempts = %d\ntimeout_seconds = %d\n%s"
+                % (scheme, webhook_port, DASHBOARD, max_attempts, timeout, extra))
         if syslog_path is not None:
             f.write("syslog = yes\nsyslog_facility = local3\nsyslog_socket = %s\n"
                     % syslog_path)
@@ -300,4 +306,46 @@ def test_two_receivers_on_one_database_post_each_finding_once(daemon_factory, fi
         assert sorted(posted) == sorted(studies)
         assert all(r[2] == 1 for r in rows)   # one attempt each
     finally:
+        receiver.stop()
+
+
+def test_a_receiver_killed_mid_delivery_hands_the_finding_back(daemon_factory, fixtures,
+                                                               tmp_path):
+    """A receiver takes a finding and is killed (SIGKILL) while posting it:
+    once its lease ends, a second receiver on the same database posts the
+    finding, which is then recorded as delivered after one recorded
+    attempt. Common practice, no source: a lease on a taken job."""
+    port = free_port()
+    gate = threading.Event()
+    receiver = Receiver(port, gate=gate)
+    try:
+        first = daemon_factory("taker")
+        if first.engine == "postgresql":
+            shared = dict(engine="postgresql", connection=first.connection)
+        else:
+            shared = dict(database=first.database)
+        second = daemon_factory("heir", storage=shared)
+        for daemon in (first, second):
+            configure(daemon, port, timeout=2)
+        first.start()
+        path, study = violating_object(good_fixture(fixtures), tmp_path, "leased", "2.7",
+                                       generate_uid())
+        assert first.storescu([path]).returncode == 0
+        assert receiver.arrived.wait(90), "the first receiver never posted"
+        first.process.kill()           # SIGKILL, mid-delivery: nothing recorded
+        first.wait()
+        first.process = None           # killed on purpose: no clean exit to check
+        gate.set()
+        # (read through the first's configuration: the database is the same)
+        assert [r[1] for r in outbox(first) if r[0] == "webhook"] == ["pending"]
+        second.start()
+        rows = wait_for(lambda: [r for r in outbox(first)
+                                 if r[0] == "webhook" and r[1] == "delivered"],
+                        "delivered by the second receiver", timeout=120)
+        assert rows[0][2] == 1 and rows[0][6] == study
+        posted = [json.loads(p[2])["study_instance_uid"] for p in receiver.posts]
+        assert posted == [study, study]  # the cut post, then the heir's
+        assert "delivered" in second.log()
+    finally:
+        gate.set()
         receiver.stop()
