@@ -228,7 +228,10 @@ int command_serve(int argc, char **argv)
              state.config.http_tls_certificate[0] != '\0' ? "https" : "http",
              state.config.http_address, state.config.http_port,
              state.config.http_password_file[0] != '\0' ? " (login required)" : "",
-             state.config.database_path);
+             /* Not the conninfo itself: it may hold a password. */
+             strcmp(state.config.storage_engine, "postgresql") == 0
+                 ? "PostgreSQL (the server of [storage] connection)"
+                 : state.config.database_path);
     for (;;) {
         int received = 0;
         if (sigwait(&signals, &received) != 0)

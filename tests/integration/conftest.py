@@ -298,30 +298,41 @@ class Daemon:
 
 # -- PostgreSQL -----------------------------------------------------------
 
-PARAMETER_RE = re.compile(r"""('(?:[^']|'')*'|"(?:[^"]|"")*"|--[^\n]*|\?(\d*)|%)""")
+PARAMETER_RE = re.compile(
+    r"""('(?:[^']|'')*'|"(?:[^"]|"")*"|--[^\n]*|\?(\d*)|(?<!:):([A-Za-z_][A-Za-z0-9_]*)|%)""")
 
 
 def postgresql_sql(sql, parameters):
-    """SQLite-style SQL ("?", "?N") to psycopg2's ("%s", positional):
+    """SQLite-style SQL ("?", "?N", ":name") to psycopg2's ("%s", positional):
     returns (sql, parameters). String literals, quoted names and comments
     are kept; every "%" is doubled (psycopg2 formats the whole text). Common practice, no source."""
     if isinstance(parameters, dict):
         raise TypeError("StoreConnection takes positional parameters only")
     given = list(parameters or ())
     ordered = []
-    next_index = [0]
+    # SQLite's numbering (lang_expr.html#varparam): "?" takes the number
+    # after the largest so far, "?N" is N, and ":name" takes the number
+    # after the largest so far the first time it appears, its own again
+    # after that.
+    largest = [0]
+    named = {}
 
     def replace(match):
         token = match.group(1)
         if token == "%":
             return "%%"
+        if token.startswith(":") and match.group(3):
+            name = match.group(3)
+            if name not in named:
+                largest[0] += 1
+                named[name] = largest[0]
+            ordered.append(given[named[name] - 1])
+            return "%s"
         if not token.startswith("?"):
             return token.replace("%", "%%")  # psycopg2 reads % inside literals too
-        if match.group(2):
-            ordered.append(given[int(match.group(2)) - 1])
-        else:
-            ordered.append(given[next_index[0]])
-            next_index[0] += 1
+        number = int(match.group(2)) if match.group(2) else largest[0] + 1
+        largest[0] = max(largest[0], number)
+        ordered.append(given[number - 1])
         return "%s"
 
     return PARAMETER_RE.sub(replace, sql), ordered

@@ -14,7 +14,6 @@ import json
 import os
 import shutil
 import signal
-import sqlite3
 import statistics
 import subprocess
 import time
@@ -350,8 +349,9 @@ def test_kill_after_ack_loses_no_rebuild(daemon_factory, simulated):
     daemon.process.wait(timeout=30)
     daemon._out.close()
     daemon._err.close()
-    with sqlite3.connect(daemon.database) as db:
-        waiting = db.execute("SELECT study_instance_uid, taken_by FROM exam_jobs").fetchall()
+    with daemon.db() as db:
+        waiting = [tuple(row) for row in
+                   db.execute("SELECT study_instance_uid, taken_by FROM exam_jobs").fetchall()]
         exams = db.execute("SELECT count(*) FROM exams").fetchone()[0]
     # the mark committed with the instances (a C-STORE is answered only
     # after its commit); common practice, no source
