@@ -22,9 +22,8 @@ static http_reply http_metrics(http_server *server)
     if (store_metrics_read(server->store, &database, &error) != MITILOG_OK)
         log_warning("http: /metrics: the database's figures are left out: %s", error.text);
     char *text = NULL;
-    mitilog_status status =
-        metrics_exposition(server->metrics, &database, MITILOG_VERSION,
-                           store_site(server->store), &text, &error);
+    mitilog_status status = metrics_exposition(server->metrics, &database, MITILOG_VERSION,
+                                               store_site(server->store), &text, &error);
     metrics_database_free(&database);
     if (status != MITILOG_OK)
         return http_status_reply(server, status, NULL, NULL, &error);

@@ -23,8 +23,8 @@
 #include "util/log.h"
 
 enum {
-    NOTIFY_BATCH = 8,        /* rows taken per pass */
-    NOTIFY_POLL_SECONDS = 1, /* between passes when idle */
+    NOTIFY_BATCH = 8,         /* rows taken per pass */
+    NOTIFY_POLL_SECONDS = 1,  /* between passes when idle */
     NOTIFY_LEASE_SECONDS = 10 /* a taken batch's margin beyond its timeouts */
 };
 
@@ -343,8 +343,8 @@ static void *notify_run(void *context)
          * timeout_seconds (CURLOPT_TIMEOUT covers the whole transfer,
          * connecting included). */
         char lease_until[32];
-        notify_time_after(NOTIFY_LEASE_SECONDS + n->timeout_seconds * NOTIFY_BATCH,
-                          lease_until, sizeof lease_until);
+        notify_time_after(NOTIFY_LEASE_SECONDS + n->timeout_seconds * NOTIFY_BATCH, lease_until,
+                          sizeof lease_until);
         if (store_notifications_take(n->store, now, lease_until, NOTIFY_BATCH, &rows, &count,
                                      &error) != MITILOG_OK)
             log_warning("notifications: cannot read the outbox (will try again): %s", error.text);

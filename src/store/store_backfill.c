@@ -353,8 +353,9 @@ mitilog_status store_backfill_lock(store *st, int *held, mitilog_error *error)
     mitilog_status status = store_query_end(&query);
     store_commit_release(&st->queue);
     if (status != MITILOG_OK)
-        return mitilog_error_set(error, status, "backfill: cannot take the database's backfill "
-                                                "lock: %s",
+        return mitilog_error_set(error, status,
+                                 "backfill: cannot take the database's backfill "
+                                 "lock: %s",
                                  query.error.text);
     if (*held < 0)
         return mitilog_error_set(error, MITILOG_ERROR_DATABASE,

@@ -154,8 +154,7 @@ mitilog_status store_notifications_take(store *st, const char *now, const char *
     *out = NULL;
     *count = 0;
     store_notification_take take = {now, lease_until, limit, NULL, 0, 0};
-    mitilog_status status =
-        store_commit_submit(st, store_notifications_take_write, &take, error);
+    mitilog_status status = store_commit_submit(st, store_notifications_take_write, &take, error);
     if (status != MITILOG_OK) {
         store_notifications_free(take.rows, take.used);
         return status;
