@@ -153,6 +153,21 @@ mitilog_status store_notifications_take(store *st, const char *now, const char *
 {
     *out = NULL;
     *count = 0;
+    /* A read first: an idle sender writes nothing. */
+    long long due = 0;
+    pthread_mutex_lock(&st->reader_lock);
+    store_query query;
+    store_query_begin(&query, &st->reader, "queries/notifications/outbox_due_count.sql");
+    store_bind_text(&query, ":now", now);
+    if (store_query_step(&query))
+        due = store_column_integer(&query, 0);
+    mitilog_status read = store_query_end(&query);
+    pthread_mutex_unlock(&st->reader_lock);
+    if (read != MITILOG_OK)
+        return mitilog_error_set(error, read, "reading the notification outbox: %s",
+                                 query.error.text);
+    if (due == 0)
+        return MITILOG_OK;
     store_notification_take take = {now, lease_until, limit, NULL, 0, 0};
     mitilog_status status = store_commit_submit(st, store_notifications_take_write, &take, error);
     if (status != MITILOG_OK) {
