@@ -72,75 +72,125 @@ step "browser test packages (npm ci in tests/browser/)" \
   bash -c "cd '$top/tests/browser' && npm ci --no-audit --no-fund --loglevel=error"
 export MITILOG_REQUIRE_BROWSER=1
 
+# Passes that do not depend on each other run two at a time (the machine
+# has two cores and the integration tests spend most of their time waiting
+# on daemons and sockets): each writes its own log, shown whole when it
+# ends. Their daemons take ports from separate ranges
+# (MITILOG_TEST_PORTS, tests/integration/conftest.py), so two passes never
+# race for one port.
+declare -a background_names=() background_pids=() background_logs=() background_starts=()
+logs=$(mktemp -d /tmp/mitilog-test-logs-XXXXXX)
+in_background() {  # in_background NAME COMMAND...: a step started now, judged by finish_background
+  local name=$1; shift
+  local log="$logs/${#background_names[@]}.log"
+  echo
+  echo "=== $name (started, side by side; its output follows when it ends)"
+  ( "$@" ) >"$log" 2>&1 &
+  background_names+=("$name")
+  background_pids+=("$!")
+  background_logs+=("$log")
+  background_starts+=("$(date +%s)")
+}
+finish_background() {  # waits for every step in_background started, in order
+  local i status
+  for i in "${!background_pids[@]}"; do
+    wait "${background_pids[$i]}"
+    status=$?
+    echo
+    echo "=== ${background_names[$i]} (output)"
+    cat "${background_logs[$i]}"
+    if [ "$status" -eq 0 ]; then
+      results+=("PASS  ${background_names[$i]} (ended after $(( $(date +%s) - ${background_starts[$i]} ))s)")
+    else
+      results+=("FAIL  ${background_names[$i]} (ended after $(( $(date +%s) - ${background_starts[$i]} ))s)")
+      failed=1
+    fi
+  done
+  background_names=() background_pids=() background_logs=() background_starts=()
+}
+
 for tree in build build-asan; do
   if [ -n "${built[$tree]:-}" ] && [ -x "$top/$tree/mitilog" ]; then
     step "unit tests $tree/" ctest --test-dir "$top/$tree" --output-on-failure -j"$jobs"
-    step "integration tests $tree/mitilog" env MITILOG_BINARY="$top/$tree/mitilog" \
-      "$python" -m pytest -v -p no:cacheprovider tests/integration
   else
     results+=("FAIL  $tree/ did not build: its tests were not run")
     failed=1
   fi
 done
 
-# The same integration tests against a PostgreSQL store (normal tree only:
-# the suite takes minutes per engine). The session starts one throw-away
-# server (tests/postgresql/cluster.sh) and gives each daemon a database of
-# its own; tests about SQLite itself are skipped with their reason. The
-# unit tests named *postgresql* (ctest -R postgresql: the engine against a
-# real server) run again with a server of their own, its connection string
-# in MITILOG_TEST_POSTGRESQL (without it they skip their cases and say so).
+# PostgreSQL: the unit tests named *postgresql* (the engine against a real
+# server) with a server of their own, its connection string in
+# MITILOG_TEST_POSTGRESQL; the dialect checks of tests/postgresql/ (each
+# compatibility function against SQLite itself, every statement on both
+# engines over one simulated department); then the integration tests with
+# MITILOG_TEST_ENGINE=postgresql: the session starts one throw-away server
+# (tests/postgresql/cluster.sh) and gives each daemon a database of its
+# own; tests about SQLite itself are skipped with their reason. Left out on
+# PostgreSQL: files that start no daemon (the simulator, the commands
+# without a configuration, SQLite's schema file) and those about the DICOM
+# and HTTP front doors, where the store is not reached differently; they
+# run on SQLite.
+store_tests_on_postgresql() {
+  local folder conninfo status port
+  port=$("$python" -c 'import socket; s = socket.socket(); s.bind(("127.0.0.1", 0)); print(s.getsockname()[1])')
+  folder=$(mktemp -d /tmp/mitilog-ctest-postgresql-XXXXXX)
+  conninfo=$(bash "$top/tests/postgresql/cluster.sh" start "$folder" "${MITILOG_CTEST_POSTGRESQL_PORT:-$port}") ||
+    { rm -rf "$folder"; return 1; }
+  MITILOG_TEST_POSTGRESQL="$conninfo" ctest --test-dir "$top/build" --output-on-failure -R postgresql &&
+    MITILOG_TEST_POSTGRESQL="$conninfo" MITILOG_BINARY="$top/build/mitilog" \
+      "$python" -m pytest -v -p no:cacheprovider tests/postgresql
+  status=$?
+  bash "$top/tests/postgresql/cluster.sh" stop "$folder"
+  rm -rf "$folder"
+  return "$status"
+}
+postgresql_pass() {
+  local status=0
+  echo "--- unit tests named postgresql and tests/postgresql/ (one server of their own)"
+  store_tests_on_postgresql || status=1
+  echo "--- integration tests on PostgreSQL"
+  MITILOG_BINARY="$top/build/mitilog" MITILOG_TEST_ENGINE=postgresql MITILOG_TEST_PORTS=21000-31999 \
+    "$python" -m pytest -v -p no:cacheprovider tests/integration \
+    --ignore=tests/integration/test_simulator.py --ignore=tests/integration/test_commands.py \
+    --ignore=tests/integration/test_schema.py --ignore=tests/integration/test_negotiation.py \
+    --ignore=tests/integration/test_http_hardening.py --ignore=tests/integration/test_https.py ||
+    status=1
+  return "$status"
+}
+
+# First pair: the normal executable on SQLite, and on PostgreSQL.
 if [ -n "${built[build]:-}" ] && [ -x "$top/build/mitilog" ]; then
-  if "$python" -c 'import sys; sys.path.insert(0, sys.argv[1]); import benchlib; sys.exit(0 if benchlib.has_postgresql_engine(sys.argv[2]) else 1)' \
-    "$top/bench" "$top/build/mitilog"; then
-    if ctest --test-dir "$top/build" -N -R postgresql 2>/dev/null | grep -q "Test *#"; then
-      store_tests_on_postgresql() {
-        local folder conninfo status
-        folder=$(mktemp -d /tmp/mitilog-ctest-postgresql-XXXXXX)
-        conninfo=$(bash "$top/tests/postgresql/cluster.sh" start "$folder" \
-          "${MITILOG_CTEST_POSTGRESQL_PORT:-$("$python" -c 'import socket; s = socket.socket(); s.bind(("127.0.0.1", 0)); print(s.getsockname()[1])')}") ||
-          { rm -rf "$folder"; return 1; }
-        MITILOG_TEST_POSTGRESQL="$conninfo" ctest --test-dir "$top/build" \
-          --output-on-failure -R postgresql
-        status=$?
-        bash "$top/tests/postgresql/cluster.sh" stop "$folder"
-        rm -rf "$folder"
-        return "$status"
-      }
-      step "unit tests build/ on PostgreSQL (ctest -R postgresql)" store_tests_on_postgresql
-    fi
-    # Left out on PostgreSQL: files that start no daemon (the simulator,
-    # the commands without a configuration, SQLite's schema file) and those
-    # about the DICOM and HTTP front doors, where the store is not reached
-    # differently; they run on SQLite above.
-    step "integration tests build/mitilog on PostgreSQL" env MITILOG_BINARY="$top/build/mitilog" \
-      MITILOG_TEST_ENGINE=postgresql "$python" -m pytest -v -p no:cacheprovider tests/integration \
-      --ignore=tests/integration/test_simulator.py --ignore=tests/integration/test_commands.py \
-      --ignore=tests/integration/test_schema.py --ignore=tests/integration/test_negotiation.py \
-      --ignore=tests/integration/test_http_hardening.py --ignore=tests/integration/test_https.py
-  else
-    results+=("SKIP  integration tests on PostgreSQL: build/mitilog has no PostgreSQL engine")
-  fi
+  in_background "integration tests build/mitilog (SQLite)" env MITILOG_BINARY="$top/build/mitilog" \
+    MITILOG_TEST_PORTS=10000-20999 "$python" -m pytest -v -p no:cacheprovider tests/integration
+  in_background "PostgreSQL: engine unit tests, dialect checks, integration tests build/mitilog" \
+    postgresql_pass
+  finish_background
 fi
 
-# ThreadSanitizer (build-tsan/, -DMITILOG_SANITIZE=thread; the executable
-# only): the tests that drive the HTTP API, among them many clients at once
-# (test_concurrency.py). The first report stops the daemon with status 66,
-# which the tests check with its stderr.
-before=$failed
-failed=0
-step "build build-tsan/ (RelWithDebInfo, -DMITILOG_SANITIZE=thread, executable only)" \
-  build_tree build-tsan -DMITILOG_SANITIZE=thread -DMITILOG_TESTS=OFF
-tsan_built=$(( failed == 0 ))
-[ "$before" -ne 0 ] && failed=1
-if [ "$tsan_built" -eq 1 ]; then
-  step "HTTP integration tests build-tsan/mitilog (ThreadSanitizer, concurrent clients)" \
-    env MITILOG_BINARY="$top/build-tsan/mitilog" TSAN_OPTIONS=halt_on_error=1:exitcode=66 \
-    "$python" -m pytest -v -p no:cacheprovider tests/integration/test_concurrency.py \
-    tests/integration/test_access.py tests/integration/test_reports.py \
-    tests/integration/test_review.py tests/integration/test_metrics.py \
-    tests/integration/test_stow.py tests/integration/test_notifications.py
+# Second pair: the ASan/UBSan executable on SQLite, and the ThreadSanitizer
+# tree (build-tsan/, -DMITILOG_SANITIZE=thread; the executable only) built
+# and run over the tests that drive the HTTP API, among them many clients at
+# once (test_concurrency.py). The first ThreadSanitizer report stops the
+# daemon with status 66, which the tests check with its stderr.
+tsan_pass() {
+  cmake -S "$top" -B "$top/build-tsan" -DCMAKE_BUILD_TYPE=RelWithDebInfo \
+    -DMITILOG_SANITIZE=thread -DMITILOG_TESTS=OFF && cmake --build "$top/build-tsan" -j1 &&
+    MITILOG_BINARY="$top/build-tsan/mitilog" TSAN_OPTIONS=halt_on_error=1:exitcode=66 \
+      MITILOG_TEST_PORTS=21000-31999 \
+      "$python" -m pytest -v -p no:cacheprovider tests/integration/test_concurrency.py \
+      tests/integration/test_access.py tests/integration/test_reports.py \
+      tests/integration/test_review.py tests/integration/test_metrics.py \
+      tests/integration/test_stow.py tests/integration/test_notifications.py
+}
+if [ -n "${built[build-asan]:-}" ] && [ -x "$top/build-asan/mitilog" ]; then
+  in_background "integration tests build-asan/mitilog (ASan/UBSan, SQLite)" \
+    env MITILOG_BINARY="$top/build-asan/mitilog" MITILOG_TEST_PORTS=10000-20999 \
+    "$python" -m pytest -v -p no:cacheprovider tests/integration
 fi
+in_background "build build-tsan/ and its HTTP integration tests (ThreadSanitizer, concurrent clients)" \
+  tsan_pass
+finish_background
+rm -rf "$logs"
 
 # Every benchmark once at its tiny size, so that none of them rots (speed
 # is never asserted: bench/README.md). MITILOG_BENCH=0 skips them.

@@ -71,6 +71,12 @@ def free_port():
     except (OSError, ValueError, IndexError):
         ephemeral_low = 32768
     low, high = 10000, min(ephemeral_low, 65536) - 1
+    # Two test passes side by side (tests/run.sh) take separate ranges,
+    # MITILOG_TEST_PORTS=LOW-HIGH, so they never race for one port.
+    asked = os.environ.get("MITILOG_TEST_PORTS", "")
+    if asked:
+        first, _, last = asked.partition("-")
+        low, high = max(low, int(first)), min(high, int(last))
     generator = random.Random()
     for _ in range(500):
         port = generator.randint(low, high) if high > low else 0
