@@ -379,7 +379,7 @@ def seed(lite):
     for p in writes(f)["reviews/review_insert.sql"][0]:
         run("reviews/review_insert.sql", p)
     run("devices/screen_profile_insert.sql",
-        {"profile_key": "scanner-a", "version": 1, "manufacturer": "Northwind Imaging",
+        {"profile_key": "scanner-a", "version": 1, "manufacturer": "Lantern Hill Sonics",
          "model_name": "NW-5", "software_versions": "2.1", "rows": 600, "columns": 800,
          "profile_text": "[profile]", "report": "learned", "example_image": b"P5 1 1 255\n\x00"})
     run("devices/screen_profile_activate.sql",
