@@ -244,6 +244,7 @@ static int upsert_instance_at(store_statement *s, const char *uid, const char *r
         {":tis_surface_status", "missing"},
         {":object_kind", "image"},
         {":image_type_bitmap_status", "missing"},
+        {":site", "north"}, /* the receiver's site (migration 013) */
     };
     int status =
         pg->bind_text(s, pg->parameter_index(s, ":sop_instance_uid"), uid, strlen(uid), error);
