@@ -52,10 +52,11 @@ ENGINE_ONLY = {
 }
 
 # Statements PostgreSQL has and SQLite has not (store_copy.c runs them on
-# PostgreSQL only): an override without a common file is expected here.
+# PostgreSQL only; the backfill's advisory lock, where SQLite's command
+# locks a file instead): an override without a common file is expected here.
 POSTGRESQL_ONLY = {
     "copy/postgresql/analyze.sql", "copy/postgresql/instance_keys_fill.sql",
-    "copy/postgresql/sequences_reset.sql",
+    "copy/postgresql/sequences_reset.sql", "backfill/postgresql/run_lock.sql",
 }
 
 
