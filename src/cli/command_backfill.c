@@ -62,8 +62,9 @@ static void *backfill_stop_thread(void *argument)
 {
     backfill_stopper *stopper = argument;
     int received = 0;
-    if (sigwait(&stopper->signals, &received) != 0)
-        return NULL;
+    if (sigwait(&stopper->signals, &received) != 0 || received == SIGUSR1)
+        return NULL; /* SIGUSR1: the command's own end (no cancellation:
+                        a cancelled thread's unwinding upset ASan) */
     static const char message[] = "interrupted; the same command resumes where it stopped";
     mitilog_error error;
     if (store_backfill_run_interrupt(stopper->store, message, &error) != MITILOG_OK)
@@ -257,6 +258,7 @@ int command_backfill(int argc, char **argv)
     sigemptyset(&stopper.signals);
     sigaddset(&stopper.signals, SIGINT);
     sigaddset(&stopper.signals, SIGTERM);
+    sigaddset(&stopper.signals, SIGUSR1); /* the command's end, to the stop thread */
     pthread_sigmask(SIG_BLOCK, &stopper.signals, NULL);
     stopper.store = NULL;
     if (dcm_initialise(LOG_LEVEL_WARNING, &error) != MITILOG_OK ||
@@ -304,7 +306,7 @@ int command_backfill(int argc, char **argv)
     }
 done:
     if (stop_started) {
-        pthread_cancel(stop_thread); /* sigwait() is a cancellation point */
+        pthread_kill(stop_thread, SIGUSR1);
         pthread_join(stop_thread, NULL);
     }
     ingest_free(pipeline);

@@ -382,7 +382,12 @@ static void *ingest_exams_run(void *argument)
         pthread_mutex_lock(&exams->lock);
         if (next_due_ms >= 0 && (double)next_due_ms / 1000.0 < wake)
             wake = (double)next_due_ms / 1000.0;
-        if (exams->policy != NULL && exams->next_sweep < wake)
+        /* The policy is swapped under policy_lock (taken after lock, as
+         * ingest_exams_hold_policy does). */
+        pthread_mutex_lock(&exams->policy_lock);
+        int has_policy = exams->policy != NULL;
+        pthread_mutex_unlock(&exams->policy_lock);
+        if (has_policy && exams->next_sweep < wake)
             wake = exams->next_sweep;
         if (exams->flushing || exams->stopping || exams->woken)
             wake = now; /* asked for meanwhile: go round again */
