@@ -72,11 +72,12 @@ step "browser test packages (npm ci in tests/browser/)" \
   bash -c "cd '$top/tests/browser' && npm ci --no-audit --no-fund --loglevel=error"
 export MITILOG_REQUIRE_BROWSER=1
 
-# Passes that do not depend on each other run side by side (the
-# integration tests spend most of their time waiting on daemons and
-# sockets): each writes its own log, shown whole when it ends. Their
-# daemons take ports from separate ranges (MITILOG_TEST_PORTS,
-# tests/integration/conftest.py), so two passes never race for one port.
+# Passes that do not depend on each other run two at a time (the machine
+# has two cores and the integration tests spend most of their time waiting
+# on daemons and sockets): each writes its own log, shown whole when it
+# ends. Their daemons take ports from separate ranges
+# (MITILOG_TEST_PORTS, tests/integration/conftest.py), so two passes never
+# race for one port.
 declare -a background_names=() background_pids=() background_logs=() background_starts=()
 logs=$(mktemp -d /tmp/mitilog-test-logs-XXXXXX)
 in_background() {  # in_background NAME COMMAND...: a step started now, judged by finish_background
@@ -150,7 +151,7 @@ postgresql_pass() {
   echo "--- unit tests named postgresql and tests/postgresql/ (one server of their own)"
   store_tests_on_postgresql || status=1
   echo "--- integration tests on PostgreSQL"
-  MITILOG_BINARY="$top/build/mitilog" MITILOG_TEST_ENGINE=postgresql MITILOG_TEST_PORTS=24000-31999 \
+  MITILOG_BINARY="$top/build/mitilog" MITILOG_TEST_ENGINE=postgresql MITILOG_TEST_PORTS=21000-31999 \
     "$python" -m pytest -v -p no:cacheprovider tests/integration \
     --ignore=tests/integration/test_simulator.py --ignore=tests/integration/test_commands.py \
     --ignore=tests/integration/test_schema.py --ignore=tests/integration/test_negotiation.py \
@@ -161,58 +162,53 @@ postgresql_pass() {
   return "$status"
 }
 
-# The ThreadSanitizer tree (build-tsan/, -DMITILOG_SANITIZE=thread; the
-# executable only), built and run over the tests that drive the HTTP API,
-# among them many clients at once (test_concurrency.py). The first
-# ThreadSanitizer report stops the daemon with status 66, which the tests
-# check with its stderr.
+# First pair: the normal executable on SQLite, and on PostgreSQL.
+if [ -n "${built[build]:-}" ] && [ -x "$top/build/mitilog" ]; then
+  in_background "integration tests build/mitilog (SQLite)" env MITILOG_BINARY="$top/build/mitilog" \
+    MITILOG_TEST_PORTS=10000-20999 "$python" -m pytest -v -p no:cacheprovider tests/integration
+  in_background "PostgreSQL: engine unit tests, dialect checks, integration tests build/mitilog" \
+    postgresql_pass
+  finish_background
+fi
+
+# Second pair: the ASan/UBSan executable on SQLite, and the ThreadSanitizer
+# tree (build-tsan/, -DMITILOG_SANITIZE=thread; the executable only) built
+# and run over the tests that drive the HTTP API, among them many clients at
+# once (test_concurrency.py). The first ThreadSanitizer report stops the
+# daemon with status 66, which the tests check with its stderr.
 tsan_pass() {
   cmake -S "$top" -B "$top/build-tsan" -DCMAKE_BUILD_TYPE=RelWithDebInfo \
-    -DMITILOG_SANITIZE=thread -DMITILOG_TESTS=OFF && cmake --build "$top/build-tsan" -j"$jobs" &&
+    -DMITILOG_SANITIZE=thread -DMITILOG_TESTS=OFF && cmake --build "$top/build-tsan" -j1 &&
     MITILOG_BINARY="$top/build-tsan/mitilog" TSAN_OPTIONS=halt_on_error=1:exitcode=66 \
-      MITILOG_TEST_PORTS=10000-20999 \
+      MITILOG_TEST_PORTS=21000-31999 \
       "$python" -m pytest -v -p no:cacheprovider tests/integration/test_concurrency.py \
       tests/integration/test_access.py tests/integration/test_reports.py \
       tests/integration/test_review.py tests/integration/test_metrics.py \
       tests/integration/test_stow.py tests/integration/test_notifications.py
 }
-
-# Every benchmark once at its tiny size, so that none of them rots (speed
-# is never asserted: bench/README.md; their figures here, beside other
-# work, mean nothing). MITILOG_BENCH=0 skips them.
-bench_tiny() {
-  local script
-  for script in ingest parse memory query scale hostile screen reading login screen_simulated \
-    engines_ingest engines_query engines_crash metrics; do
-    echo "--- bench/$script.py --tiny"
-    MITILOG="$top/build/mitilog" MITILOG_TEST_PORTS=21000-31999 \
-      "$python" "$top/bench/$script.py" --tiny || return 1
-  done
-}
-
-# First, side by side: the normal executable on SQLite, the ASan/UBSan
-# executable on SQLite, and the normal executable on PostgreSQL.
-if [ -n "${built[build]:-}" ] && [ -x "$top/build/mitilog" ]; then
-  in_background "integration tests build/mitilog (SQLite)" env MITILOG_BINARY="$top/build/mitilog" \
-    MITILOG_TEST_PORTS=10000-16999 "$python" -m pytest -v -p no:cacheprovider tests/integration
-  in_background "PostgreSQL: engine unit tests, dialect checks, integration tests build/mitilog" \
-    postgresql_pass
-fi
 if [ -n "${built[build-asan]:-}" ] && [ -x "$top/build-asan/mitilog" ]; then
   in_background "integration tests build-asan/mitilog (ASan/UBSan, SQLite)" \
-    env MITILOG_BINARY="$top/build-asan/mitilog" MITILOG_TEST_PORTS=17000-23999 \
+    env MITILOG_BINARY="$top/build-asan/mitilog" MITILOG_TEST_PORTS=10000-20999 \
     "$python" -m pytest -v -p no:cacheprovider tests/integration
 fi
-finish_background
-
-# Then the ThreadSanitizer tree beside the benchmarks.
 in_background "build build-tsan/ and its HTTP integration tests (ThreadSanitizer, concurrent clients)" \
   tsan_pass
-if [ "${MITILOG_BENCH:-1}" != 0 ] && [ -n "${built[build]:-}" ]; then
-  in_background "benchmarks at tiny size (bench/*.py --tiny)" bench_tiny
-fi
 finish_background
 rm -rf "$logs"
+
+# Every benchmark once at its tiny size, so that none of them rots (speed
+# is never asserted: bench/README.md). MITILOG_BENCH=0 skips them.
+if [ "${MITILOG_BENCH:-1}" != 0 ] && [ -n "${built[build]:-}" ]; then
+  bench_tiny() {
+    local script
+    for script in ingest parse memory query scale hostile screen reading login screen_simulated \
+      engines_ingest engines_query engines_crash metrics; do
+      echo "--- bench/$script.py --tiny"
+      MITILOG="$top/build/mitilog" "$python" "$top/bench/$script.py" --tiny || return 1
+    done
+  }
+  step "benchmarks at tiny size (bench/*.py --tiny)" bench_tiny
+fi
 
 # A short libFuzzer run over the reader and extraction (clang; build-fuzz/).
 # MITILOG_FUZZ_SECONDS=0 skips it; bench/README.md describes a long run.
