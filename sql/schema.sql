@@ -497,7 +497,7 @@ CREATE INDEX reviews_time ON reviews (reviewed_at);
 CREATE UNIQUE INDEX screen_profiles_one_active
     ON screen_profiles (profile_key) WHERE state = 'active';
 CREATE INDEX screen_readings_state ON screen_readings (state);
-CREATE INDEX sr_values_instance ON sr_values (instance_id);
+CREATE INDEX sr_values_instance_quantity ON sr_values (instance_id, quantity, id);
 CREATE INDEX sr_values_study ON sr_values (study_instance_uid, quantity);
 CREATE VIEW exam_period_rows AS
 SELECT s.day,

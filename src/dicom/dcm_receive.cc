@@ -31,6 +31,7 @@ extern "C" {
 
 #include <algorithm>
 #include <atomic>
+#include <cerrno>
 #include <chrono>
 #include <condition_variable>
 #include <cstdio>
@@ -833,6 +834,13 @@ static bool dcm_negotiation_begin(dcm_server *server, DcmNativeSocketType socket
                       sizeof text);
     }
     peer = text;
+    if (server->stopping) {
+        /* The stop's own wake-up connection (dcm_server_wake_acceptor), or
+         * a peer arriving as the server stops: closed unread, not counted
+         * as a refusal. */
+        log_debug("connection from %s closed unread: the server is stopping", peer.c_str());
+        return false;
+    }
     const char *refusal = NULL;
     unsigned limit = 0;
     try {
@@ -1014,7 +1022,7 @@ static void dcm_connection_run(dcm_server *server, dcm_association_thread *self)
                 /* No connection, or one closed unread (already logged). */
                 if (assoc != NULL)
                     dcm_reject_and_drop(assoc, NULL);
-                if (condition.bad() && condition != DUL_NOASSOCIATIONREQUEST)
+                if (condition.bad() && condition != DUL_NOASSOCIATIONREQUEST && !server->stopping)
                     log_debug("connection not accepted: %s", condition.text());
                 continue;
             }
@@ -1317,6 +1325,26 @@ mitilog_status dcm_server_start(dcm_server *server, mitilog_error *error)
     }
 }
 
+/* The thread waiting for a connection looks at server->stopping only
+ * between waits of up to a second (DCMTK's timeout is in whole seconds);
+ * a connection of our own to the listening port ends its wait at once,
+ * and dcm_negotiation_begin closes it unread. If it cannot be made, the
+ * wait simply runs out. */
+static void dcm_server_wake_acceptor(dcm_server *server)
+{
+    int wake = socket(AF_INET, SOCK_STREAM | SOCK_CLOEXEC, 0);
+    if (wake < 0)
+        return;
+    struct sockaddr_in address;
+    memset(&address, 0, sizeof address);
+    address.sin_family = AF_INET;
+    address.sin_port = htons(static_cast<uint16_t>(server->port));
+    address.sin_addr.s_addr = htonl(INADDR_LOOPBACK);
+    if (connect(wake, reinterpret_cast<struct sockaddr *>(&address), sizeof address) != 0)
+        log_debug("DICOM server: waking the listener: %s", strerror(errno));
+    close(wake);
+}
+
 void dcm_server_stop(dcm_server *server)
 {
     if (server == NULL || !server->started)
@@ -1326,6 +1354,7 @@ void dcm_server_stop(dcm_server *server)
         server->stopping = true;
         server->wake.notify_all();
     }
+    dcm_server_wake_acceptor(server);
     try {
         server->listener.join(); /* joins the association threads too */
     } catch (...) {

@@ -188,7 +188,7 @@ class Daemon:
                 raise AssertionError("mitilog serve did not answer C-ECHO and "
                                      "/healthz within %ds:\n%s"
                                      % (timeout, self.log()))
-            time.sleep(0.2)
+            time.sleep(0.05)
 
     def terminate(self):
         if self.process is not None and self.process.poll() is None:
@@ -424,8 +424,9 @@ class PostgresqlServer:
             # so the cluster lives in a folder of its own under /tmp.
             self.folder = tempfile.mkdtemp(prefix="mitilog-test-postgresql-")
             self.port = int(os.environ.get("MITILOG_TEST_POSTGRESQL_PORT") or free_port())
+            # "fast": fsync off; the tests kill processes, never the machine
             result = subprocess.run(["bash", CLUSTER_SCRIPT, "start", self.folder,
-                                     str(self.port)], stdout=subprocess.PIPE,
+                                     str(self.port), "fast"], stdout=subprocess.PIPE,
                                     stderr=subprocess.PIPE, text=True, timeout=180)
             if result.returncode != 0:
                 raise RuntimeError("tests/postgresql/cluster.sh could not start a server:\n"

@@ -3,8 +3,14 @@
 # and benchmarks: Debian's postgresql binaries, a cluster in a folder of our
 # own owned by an unprivileged user, listening on 127.0.0.1 only.
 #
-#   cluster.sh start DIR PORT   initdb (first time) and start; prints the
-#                               connection string on stdout
+#   cluster.sh start DIR PORT [fast]
+#                               initdb (first time) and start; prints the
+#                               connection string on stdout. `fast` turns
+#                               fsync and full-page writes off: for the
+#                               tests, whose crashes are of processes (the
+#                               operating system keeps what was written),
+#                               never of the machine. The benchmarks start
+#                               it without, as a deployment runs.
 #   cluster.sh stop DIR         fast shutdown
 #   cluster.sh kill DIR         SIGKILL of the postmaster (crash tests)
 #
@@ -18,6 +24,7 @@ set -euo pipefail
 command=${1:-}
 dir=${2:-}
 port=${3:-55432}
+speed=${4:-}
 if [ -z "$command" ] || [ -z "$dir" ]; then
   echo "usage: $0 start|stop|kill DIR [PORT]" >&2
   exit 2
@@ -49,9 +56,13 @@ start)
       exit 1
     }
   fi
-  # fsync stays on: the crash tests count on what was acknowledged being on disk.
+  # synchronous_commit stays on in both: a commit is in the write-ahead log
+  # (handed to the operating system) before it is acknowledged, so a killed
+  # server loses nothing acknowledged. fsync is on unless `fast` is asked.
+  durability=""
+  if [ "$speed" = fast ]; then durability="-c fsync=off -c full_page_writes=off"; fi
   as_owner "$bindir/pg_ctl" -D "$dir/data" -l "$dir/server.log" -w -t 60 \
-    -o "-c listen_addresses=127.0.0.1 -c port=$port -c unix_socket_directories='$dir' -c max_connections=200 -c shared_buffers=256MB" \
+    -o "-c listen_addresses=127.0.0.1 -c port=$port -c unix_socket_directories='$dir' -c max_connections=200 -c shared_buffers=256MB $durability" \
     start >/dev/null || {
     tail -20 "$dir/server.log" >&2
     exit 1

@@ -30,7 +30,7 @@ def postgresql_conninfo():
     os.chmod(folder, 0o755)  # cluster.sh runs the server as postgres when started by root
     try:
         started = subprocess.run(["bash", os.path.join(HERE, "cluster.sh"), "start",
-                                  os.path.join(folder, "cluster"), str(_free_port())],
+                                  os.path.join(folder, "cluster"), str(_free_port()), "fast"],
                                  capture_output=True, text=True, check=True)
         yield started.stdout.strip().splitlines()[-1]
     finally:
