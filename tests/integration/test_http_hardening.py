@@ -215,6 +215,30 @@ def closed_by_server(s, wait):
         return True
 
 
+def closed_by_server_among(sockets, wait):
+    """How many of sockets the server closes (EOF or reset): waits up to
+    wait seconds for the first, then one more second for any other."""
+    import selectors
+    selector = selectors.DefaultSelector()
+    for s in sockets:
+        selector.register(s, selectors.EVENT_READ)
+    closed = set()
+    deadline = time.monotonic() + wait
+    while time.monotonic() < deadline:
+        for key, _ in selector.select(timeout=max(0.0, deadline - time.monotonic())):
+            try:
+                data = key.fileobj.recv(1)
+            except OSError:
+                data = b""
+            if data == b"":
+                closed.add(key.fileobj)
+                selector.unregister(key.fileobj)
+        if closed and deadline - time.monotonic() > 1:
+            deadline = time.monotonic() + 1
+    selector.close()
+    return len(closed)
+
+
 def healthz_answered(port, source="127.0.0.1", wait=5):
     try:
         status, _, body = raw_get(port, "/healthz", timeout=wait, source=source)
@@ -280,8 +304,10 @@ def test_one_address_cannot_take_every_slot(daemon_factory):
         extra = socket.create_connection(("127.0.0.1", daemon.http_port), timeout=5,
                                          source_address=("127.0.0.2", 0))
         held.append(extra)
-        # The 33rd from the same address is closed at once...
-        assert closed_by_server(extra, 5)
+        # One of the 33 from the same address is closed at once: the one the
+        # server's threads take last, which is not always the last one
+        # connected (each thread of the pool takes connections of its own)...
+        assert closed_by_server_among(held, 5) == 1
         # ...while another address is served.
         assert healthz_answered(daemon.http_port, source="127.0.0.1")
     finally:
