@@ -285,7 +285,7 @@ int command_backfill(int argc, char **argv)
         if (lock < 0)
             goto done;
     }
-    if (ingest_create(&config, store, &pipeline, &error) != MITILOG_OK) {
+    if (ingest_create(&config, store, NULL, &pipeline, &error) != MITILOG_OK) {
         log_error("backfill: %s", error.text);
         goto done;
     }

@@ -231,7 +231,7 @@ int command_import(int argc, char **argv)
          * not be synced one by one. store_close() checkpoints, which syncs
          * the database before the summary line says "imported". */
         store_set_durability(store, STORE_DURABILITY_PROCESS, &error) != MITILOG_OK ||
-        ingest_create(&config, store, &pipeline, &error) != MITILOG_OK) {
+        ingest_create(&config, store, NULL, &pipeline, &error) != MITILOG_OK) {
         log_error("import: %s", error.text);
         goto done;
     }

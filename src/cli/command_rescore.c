@@ -118,7 +118,7 @@ int command_rescore(int argc, char **argv)
         ingest_backfill_counts read = {0};
         if (dcm_initialise(LOG_LEVEL_WARNING, &error) != MITILOG_OK ||
             cli_prepare_data_directory(&config, &error) != 0 ||
-            ingest_create(&config, st, &pipeline, &error) != MITILOG_OK)
+            ingest_create(&config, st, NULL, &pipeline, &error) != MITILOG_OK)
             goto failed;
         mitilog_status read_status = ingest_read_stored(pipeline, from, to, &read, &error);
         ingest_free(pipeline);

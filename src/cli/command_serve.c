@@ -86,8 +86,7 @@ static int serve_start(serve_state *state, mitilog_error *error)
     if (notify_start(config, state->store, &state->notify, error) != MITILOG_OK)
         return -1;
     if (metrics_create(&state->metrics, error) != MITILOG_OK ||
-        ingest_create_with_metrics(config, state->store, state->metrics, &state->ingest, error) !=
-            MITILOG_OK)
+        ingest_create(config, state->store, state->metrics, &state->ingest, error) != MITILOG_OK)
         return -1;
     /* After the store and ingest made their files and folders. */
     if (cli_identity_give(&identity, config->data_directory, error) != MITILOG_OK)

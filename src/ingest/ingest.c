@@ -57,13 +57,8 @@ static mitilog_status ingest_make_subfolders(const char *folder, mitilog_error *
     return MITILOG_OK;
 }
 
-mitilog_status ingest_create(const config *config, store *store, ingest **out, mitilog_error *error)
-{
-    return ingest_create_with_metrics(config, store, NULL, out, error);
-}
-
-mitilog_status ingest_create_with_metrics(const config *config, store *store, metrics *metrics,
-                                          ingest **out, mitilog_error *error)
+mitilog_status ingest_create(const config *config, store *store, metrics *metrics, ingest **out,
+                             mitilog_error *error)
 {
     /* Every object and rejection this ingest writes records its site. */
     mitilog_status site_status = store_set_site(store, config->receiver_site, error);

@@ -51,16 +51,14 @@ typedef struct ingest_source {
     const char *description;
 } ingest_source;
 
-/* Creates the data folders (mode 0750) from the configuration. */
-mitilog_status ingest_create(const config *config, store *store, ingest **out,
+/* Creates the data folders (mode 0750) from the configuration. metrics
+ * (borrowed; it must outlive the ingest; NULL: nothing reported) receives
+ * from the start what the workers do, also before the first object
+ * arrives (a queue left by an earlier run): commit latency, pixel reading
+ * outcomes and queue depths. `serve` passes its own; the commands pass
+ * NULL. */
+mitilog_status ingest_create(const config *config, store *store, metrics *metrics, ingest **out,
                              mitilog_error *error);
-/* The same, reporting into metrics (borrowed; it must outlive the
- * ingest; NULL: nothing reported) from the start, so that what the
- * workers do before the first object arrives (a queue left by an earlier
- * run) is counted too: commit latency, pixel reading outcomes and queue
- * depths. `serve` uses it. */
-mitilog_status ingest_create_with_metrics(const config *config, store *store, metrics *metrics,
-                                          ingest **out, mitilog_error *error);
 void ingest_free(ingest *ingest);
 
 /* Runs one object through the pipeline. reason receives the cause of a
