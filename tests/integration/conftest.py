@@ -286,6 +286,14 @@ class Daemon:
                   str(self.dicom_port)] + list(files))
         return run(cmd, timeout=300)
 
+    def shared_storage(self):
+        """The [storage] keys of a second receiver (its own configuration
+        and data folder, as on another machine) writing to this daemon's
+        database, whatever the engine."""
+        if self.engine == "postgresql":
+            return dict(engine="postgresql", connection=self.connection)
+        return dict(database=self.database)
+
     def db(self, write=False):
         """A connection to the daemon's database, read-only unless write:
         sqlite3's own on SQLite, a StoreConnection (the same execute /

@@ -131,6 +131,26 @@ def backfill(daemon, pacs, *options, timeout=300):
                 "--since", DAY, "--until", DAY] + list(options), timeout=timeout)
 
 
+def closed_window():
+    """A one-minute backfill window two hours from now (local time):
+    surely closed while a test runs."""
+    start = time.localtime(time.time() + 2 * 3600)
+    if start.tm_min == 59:
+        return "%02d:59-%02d:00" % (start.tm_hour, (start.tm_hour + 1) % 24)
+    return "%02d:%02d-%02d:%02d" % (start.tm_hour, start.tm_min, start.tm_hour, start.tm_min + 1)
+
+
+def waiting_backfill(daemon, pacs, window):
+    """A backfill started in the background with a window that is closed:
+    it holds its turn on the database and waits, asking nothing of the
+    PACS. The caller reads its first line and kills it."""
+    return subprocess.Popen([BINARY, "backfill", "--config", daemon.config, "--from",
+                             "%s@127.0.0.1:%d" % (PACS_AE, pacs.port), "--since", DAY,
+                             "--until", DAY, "--window", window],
+                            stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, text=True,
+                            env=DCMTK_ENV)
+
+
 def rows(daemon, table, skip, key):
     with daemon.db() as db:
         cursor = db.execute("SELECT * FROM %s ORDER BY %s" % (table, key))
@@ -262,17 +282,8 @@ def test_kill_mid_study_resumes_without_fetching_twice(daemon_factory, pacs_fact
 def test_outside_the_window_it_waits_and_says_so(daemon_factory, pacs_factory):
     pacs = pacs_factory()
     daemon = daemon_factory("window")
-    # A one-minute window two hours from now (local time): surely closed.
-    start = time.localtime(time.time() + 2 * 3600)
-    window = "%02d:%02d-%02d:%02d" % (start.tm_hour, start.tm_min, start.tm_hour,
-                                      (start.tm_min + 1) % 60)
-    if start.tm_min == 59:
-        window = "%02d:59-%02d:00" % (start.tm_hour, (start.tm_hour + 1) % 24)
-    process = subprocess.Popen([BINARY, "backfill", "--config", daemon.config, "--from",
-                                "%s@127.0.0.1:%d" % (PACS_AE, pacs.port), "--since", DAY,
-                                "--until", DAY, "--window", window],
-                               stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, text=True,
-                               env=DCMTK_ENV)
+    window = closed_window()
+    process = waiting_backfill(daemon, pacs, window)
     try:
         line = process.stdout.readline()
         # Meanwhile a second backfill on the same database refuses to run
@@ -533,22 +544,12 @@ def test_a_second_receiver_on_the_same_database_waits_its_turn(daemon_factory, p
     Common practice, no source: one worker per job across a cluster."""
     pacs = pacs_factory()
     first = daemon_factory("first-receiver")
-    if first.engine == "postgresql":
-        shared = dict(engine="postgresql", connection=first.connection)
-    else:
-        shared = dict(database=first.database)
+    shared = first.shared_storage()
     second = daemon_factory("second-receiver", storage=shared)
     assert second.data_directory != first.data_directory
-    # The first run waits for a window two hours from now: it holds its
-    # turn without asking anything of the PACS.
-    start = time.localtime(time.time() + 2 * 3600)
-    window = "%02d:%02d-%02d:%02d" % (start.tm_hour, start.tm_min, (start.tm_hour + 1) % 24,
-                                      start.tm_min)
-    process = subprocess.Popen([BINARY, "backfill", "--config", first.config, "--from",
-                                "%s@127.0.0.1:%d" % (PACS_AE, pacs.port), "--since", DAY,
-                                "--until", DAY, "--window", window],
-                               stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, text=True,
-                               env=DCMTK_ENV)
+    # The first run waits for a closed window: it holds its turn without
+    # asking anything of the PACS.
+    process = waiting_backfill(first, pacs, closed_window())
     try:
         line = process.stdout.readline()
         assert "outside the backfill window" in line, line

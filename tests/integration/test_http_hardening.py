@@ -306,7 +306,9 @@ def test_one_address_cannot_take_every_slot(daemon_factory):
         held.append(extra)
         # One of the 33 from the same address is closed at once: the one the
         # server's threads take last, which is not always the last one
-        # connected (each thread of the pool takes connections of its own)...
+        # connected (each thread of the pool takes connections of its own).
+        # The limit is libmicrohttpd's MHD_OPTION_PER_IP_CONNECTION_LIMIT,
+        # whose manual says a connection over it is closed at once...
         assert closed_by_server_among(held, 5) == 1
         # ...while another address is served.
         assert healthz_answered(daemon.http_port, source="127.0.0.1")

@@ -378,10 +378,7 @@ def test_receivers_sharing_a_database_are_told_apart_by_site(daemon_factory):
     server scraping all three tells them apart; promtool still finds the
     text clean (Prometheus text exposition format 0.0.4, label syntax)."""
     first = daemon_factory("north")
-    if first.engine == "postgresql":
-        shared = dict(engine="postgresql", connection=first.connection)
-    else:
-        shared = dict(database=first.database)
+    shared = first.shared_storage()
     receivers = [first, daemon_factory("south", storage=shared),
                  daemon_factory("east", storage=shared)]
     sites = ["north-wing", "south-wing", "east-clinic"]

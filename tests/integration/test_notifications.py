@@ -279,10 +279,7 @@ def test_two_receivers_on_one_database_post_each_finding_once(daemon_factory, fi
     receiver = Receiver(port, delay=2)
     try:
         first = daemon_factory("first")
-        if first.engine == "postgresql":
-            shared = dict(engine="postgresql", connection=first.connection)
-        else:
-            shared = dict(database=first.database)
+        shared = first.shared_storage()
         second = daemon_factory("second", storage=shared)
         for daemon in (first, second):
             configure(daemon, port)
@@ -320,10 +317,7 @@ def test_a_receiver_killed_mid_delivery_hands_the_finding_back(daemon_factory, f
     receiver = Receiver(port, gate=gate)
     try:
         first = daemon_factory("taker")
-        if first.engine == "postgresql":
-            shared = dict(engine="postgresql", connection=first.connection)
-        else:
-            shared = dict(database=first.database)
+        shared = first.shared_storage()
         second = daemon_factory("heir", storage=shared)
         for daemon in (first, second):
             configure(daemon, port, timeout=2)
