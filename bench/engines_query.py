@@ -87,7 +87,23 @@ def sqlite_replicate(database, copies):
     return time.monotonic() - started
 
 
+def migrate_in_place(binary, database):
+    """copy-database copies only a database at this build's schema
+    version: the cached department (made by an earlier build, perhaps) is
+    brought up to it first, as opening it with `mitilog report` does."""
+    import tempfile
+    folder = tempfile.mkdtemp(prefix="mitilog-bench-migrate-", dir="/tmp")
+    config = os.path.join(folder, "migrate.ini")
+    with open(config, "w") as f:
+        f.write("[storage]\ndata_directory = %s\ndatabase = %s\nretention = none\n"
+                % (os.path.dirname(database), os.path.basename(database)))
+    query.migrate(binary, config)
+    os.remove(config)
+    os.rmdir(folder)
+
+
 def copy_to_postgresql(binary, source, conninfo):
+    migrate_in_place(binary, source)
     started = time.monotonic()
     result = subprocess.run([binary, "copy-database", "--from", source, "--to", conninfo],
                             stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True)

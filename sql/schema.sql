@@ -37,6 +37,10 @@ CREATE TABLE backfill_studies (
     finished_at         TEXT,
     PRIMARY KEY (source, study_instance_uid)
 );
+CREATE TABLE data_days (
+    day      TEXT PRIMARY KEY,
+    changes  INTEGER NOT NULL DEFAULT 0
+);
 CREATE TABLE device_evaluations (
     rule_id          TEXT NOT NULL,
     policy_version   TEXT NOT NULL REFERENCES policies (version),
@@ -395,6 +399,17 @@ CREATE TABLE rejections (
     quarantine_path   TEXT NOT NULL,  -- '' when the bytes were not kept
     reason            TEXT NOT NULL
 , site TEXT NOT NULL DEFAULT 'main') STRICT;
+CREATE TABLE report_snapshots (
+    view        TEXT NOT NULL,
+    request     TEXT NOT NULL,
+    signature   TEXT NOT NULL,
+    body        TEXT NOT NULL,
+    made_at     TEXT NOT NULL,   -- ISO 8601 UTC
+    made_ms     REAL NOT NULL,   -- how long the document took to make
+    asked_at    TEXT NOT NULL,   -- last asked for (to the hour): what the
+                                 -- refresher keeps ready, what is forgotten
+    PRIMARY KEY (view, request)
+);
 CREATE TABLE reviews (
     id                  INTEGER PRIMARY KEY,
     study_instance_uid  TEXT,        -- NULL only for a device-level finding
@@ -491,6 +506,7 @@ CREATE INDEX instances_study ON instances (study_instance_uid, acquired_at);
 CREATE INDEX notification_outbox_due ON notification_outbox (state, next_attempt_at);
 CREATE INDEX rejections_received ON rejections (received_at);
 CREATE INDEX rejections_site ON rejections (site, received_at);
+CREATE INDEX report_snapshots_asked ON report_snapshots (asked_at);
 CREATE INDEX reviews_finding ON reviews (finding_id, id) WHERE finding_id IS NOT NULL;
 CREATE INDEX reviews_study ON reviews (study_instance_uid, id);
 CREATE INDEX reviews_time ON reviews (reviewed_at);
@@ -729,6 +745,85 @@ FROM instances i
 JOIN index_source_setting p ON p.only_row = 1
 LEFT JOIN screen_readings s ON s.instance_id = i.id
 /* instance_provenance(instance_id,indices,screen_reading) */;
+CREATE TRIGGER data_days_finding_delete AFTER DELETE ON findings
+BEGIN
+    INSERT INTO data_days (day, changes)
+    SELECT day, 1 FROM exam_summaries WHERE study_instance_uid = OLD.study_instance_uid
+    UNION SELECT substr(OLD.started_at, 1, 10), 1 WHERE OLD.started_at IS NOT NULL
+    UNION SELECT substr(OLD.period, 1, 10), 1 WHERE OLD.period IS NOT NULL
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+END;
+CREATE TRIGGER data_days_finding_insert AFTER INSERT ON findings
+BEGIN
+    INSERT INTO data_days (day, changes)
+    SELECT day, 1 FROM exam_summaries WHERE study_instance_uid = NEW.study_instance_uid
+    UNION SELECT substr(NEW.started_at, 1, 10), 1 WHERE NEW.started_at IS NOT NULL
+    UNION SELECT substr(NEW.period, 1, 10), 1 WHERE NEW.period IS NOT NULL
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+END;
+CREATE TRIGGER data_days_finding_update AFTER UPDATE ON findings
+BEGIN
+    INSERT INTO data_days (day, changes)
+    SELECT day, 1 FROM exam_summaries WHERE study_instance_uid = OLD.study_instance_uid
+    UNION SELECT substr(OLD.started_at, 1, 10), 1 WHERE OLD.started_at IS NOT NULL
+    UNION SELECT substr(OLD.period, 1, 10), 1 WHERE OLD.period IS NOT NULL
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+    INSERT INTO data_days (day, changes)
+    SELECT day, 1 FROM exam_summaries WHERE study_instance_uid = NEW.study_instance_uid
+    UNION SELECT substr(NEW.started_at, 1, 10), 1 WHERE NEW.started_at IS NOT NULL
+    UNION SELECT substr(NEW.period, 1, 10), 1 WHERE NEW.period IS NOT NULL
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+END;
+CREATE TRIGGER data_days_summary_delete AFTER DELETE ON exam_summaries
+BEGIN
+    INSERT INTO data_days (day, changes) VALUES (OLD.day, 1)
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+    INSERT INTO data_days (day, changes)
+    SELECT DISTINCT substr(started_at, 1, 10), 1 FROM findings
+    WHERE study_instance_uid = OLD.study_instance_uid AND started_at IS NOT NULL
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+END;
+CREATE TRIGGER data_days_summary_insert AFTER INSERT ON exam_summaries
+BEGIN
+    INSERT INTO data_days (day, changes) VALUES (NEW.day, 1)
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+    INSERT INTO data_days (day, changes)
+    SELECT DISTINCT substr(started_at, 1, 10), 1 FROM findings
+    WHERE study_instance_uid = NEW.study_instance_uid AND started_at IS NOT NULL
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+END;
+CREATE TRIGGER data_days_summary_update AFTER UPDATE ON exam_summaries
+BEGIN
+    INSERT INTO data_days (day, changes) VALUES (OLD.day, 1)
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+    INSERT INTO data_days (day, changes) VALUES (NEW.day, 1)
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+    INSERT INTO data_days (day, changes)
+    SELECT DISTINCT substr(started_at, 1, 10), 1 FROM findings
+    WHERE study_instance_uid = OLD.study_instance_uid AND started_at IS NOT NULL
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+    INSERT INTO data_days (day, changes)
+    SELECT DISTINCT substr(started_at, 1, 10), 1 FROM findings
+    WHERE study_instance_uid = NEW.study_instance_uid AND started_at IS NOT NULL
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+END;
+CREATE TRIGGER data_days_time_delete AFTER DELETE ON exam_time_at_or_above
+BEGIN
+    INSERT INTO data_days (day, changes) VALUES (OLD.day, 1)
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+END;
+CREATE TRIGGER data_days_time_insert AFTER INSERT ON exam_time_at_or_above
+BEGIN
+    INSERT INTO data_days (day, changes) VALUES (NEW.day, 1)
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+END;
+CREATE TRIGGER data_days_time_update AFTER UPDATE ON exam_time_at_or_above
+BEGIN
+    INSERT INTO data_days (day, changes) VALUES (OLD.day, 1)
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+    INSERT INTO data_days (day, changes) VALUES (NEW.day, 1)
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+END;
 CREATE TRIGGER exam_summaries_exam_delete AFTER DELETE ON exams
 BEGIN
     DELETE FROM exam_summaries WHERE study_instance_uid = OLD.study_instance_uid;

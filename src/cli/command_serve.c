@@ -8,6 +8,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "report/report_refresher.h"
 #include "cli/cli_options.h"
 #include "cli/cli_privileges.h"
 #include "cli/commands.h"
@@ -38,6 +39,7 @@ typedef struct serve_state {
     dcm_server *dicom;
     http_server *http;
     notify *notify;
+    report_refresher *refresher; /* kept documents made again; NULL: off */
     config_peer *peers;
     dcm_allowed_peer *allowed;
     metrics *metrics; /* what every stage reports into; GET /metrics */
@@ -45,6 +47,7 @@ typedef struct serve_state {
 
 static void serve_stop(serve_state *state)
 {
+    report_refresher_stop(state->refresher);
     if (state->dicom != NULL) {
         dcm_server_stop(state->dicom);
         dcm_server_free(state->dicom);
@@ -145,6 +148,10 @@ static int serve_start(serve_state *state, mitilog_error *error)
         .stow_max_parts = config->dicomweb_max_parts,
         .metrics = state->metrics};
     if (http_server_start(&web, state->store, &state->http, error) != MITILOG_OK)
+        return -1;
+    if (config->http_refresh_seconds > 0 &&
+        report_refresher_start(state->store, config->http_refresh_seconds, MITILOG_VERSION,
+                               &state->refresher, error) != MITILOG_OK)
         return -1;
     /* Both ports are bound: root is no longer needed. */
     if (cli_identity_become(&identity, error) != MITILOG_OK)

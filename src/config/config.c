@@ -101,6 +101,11 @@ static const option options[] = {
      1, 600, NULL, 0,
      "Seconds a client has to send a whole request (TLS handshake, request line and headers), "
      "however slowly it sends each byte; then the connection is closed."},
+    {"http", "refresh_seconds", OPTION_UNSIGNED, FIELD(http_refresh_seconds), "60", 0, 86400, NULL,
+     0,
+     "Every this many seconds, the kept documents of the period views (outliers, statistics, "
+     "drift) asked for in the last 14 days whose data has changed are made again, so that they "
+     "are ready when asked for; 0 = only when asked for."},
     {"dicomweb", "enabled", OPTION_CHOICE, FIELD(dicomweb_enabled), "no", 0, 0, "|yes|no|", 0,
      "yes: accept objects by DICOMweb STOW-RS at POST /dicomweb/studies (needs [http] "
      "password_file and a user with the role sender)."},

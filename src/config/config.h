@@ -49,6 +49,7 @@ typedef struct config {
     unsigned http_max_connections;
     unsigned http_max_connections_per_address; /* 0 = no per-address limit */
     unsigned http_request_timeout_seconds;
+    unsigned http_refresh_seconds; /* kept documents made again; 0 = off */
 
     /* [dicomweb] STOW-RS (src/http/http_dicomweb.c) */
     char *dicomweb_enabled; /* "yes" or "no" */

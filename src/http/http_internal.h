@@ -20,6 +20,7 @@
 #include <pthread.h>
 #include <sqlite3.h>
 
+#include "report/report.h"
 #include "http/http.h"
 #include "http/http_auth.h"
 #include "http/http_throttle.h"
@@ -86,6 +87,11 @@ http_reply http_json_reply(unsigned status, char *json);
  * error replies are {"error": error->text}. */
 http_reply http_status_reply(http_server *server, mitilog_status status, char *body,
                              const char *content_type, const mitilog_error *error);
+/* A period view's or the findings list's document, kept or made now
+ * (report.h, report_view_serve), with the header that says which:
+ * "Mitilog-Document: kept; made-at=TIME" or "Mitilog-Document: made;
+ * milliseconds=N". CSV is served as text/csv. */
+http_reply http_view_reply(http_server *server, const report_view_request *request);
 /* {"error": message} written by json/json.h (valid JSON for any message). */
 http_reply http_error_reply(http_server *server, unsigned status, const char *format, ...)
     __attribute__((format(printf, 3, 4)));

@@ -9,6 +9,7 @@
  * which version is active), so this module never includes src/rules.
  */
 #include "http/http_internal.h"
+#include "report/report.h"
 #include "store/store_findings.h"
 
 #include <string.h>
@@ -50,10 +51,9 @@ static http_reply http_findings(http_server *server, struct MHD_Connection *conn
     filter.include_superseded = values[7].text != NULL && values[7].text[0] == '1';
     filter.limit = values[8].text != NULL ? values[8].number : 0;
     filter.sites = &values[9].sites;
-    char *json = NULL;
-    mitilog_error error = {{0}};
-    mitilog_status status = store_findings_json(server->store, &filter, &json, &error);
-    return http_status_reply(server, status, json, NULL, &error);
+    report_view_request view = {
+        .view = REPORT_VIEW_FINDINGS, .format = REPORT_JSON, .findings = filter};
+    return http_view_reply(server, &view);
 }
 
 /* GET /api/v1/policy: the active policy; 404 when none is loaded. */

@@ -67,11 +67,9 @@ static http_reply http_outliers(http_server *server, struct MHD_Connection *conn
         request.settings.minimum_baseline = (size_t)values[3].number;
     if (values[4].text != NULL)
         request.all_exams = strcmp(values[4].text, "all") == 0;
-    report_format format = http_stats_format(&values[5]);
-    char *body = NULL;
-    mitilog_error error = {{0}};
-    mitilog_status status = report_week(server->store, &request, format, &body, &error);
-    return http_report_reply(server, status, body, &error, format);
+    report_view_request view = {
+        .view = REPORT_VIEW_OUTLIERS, .format = http_stats_format(&values[5]), .outliers = request};
+    return http_view_reply(server, &view);
 }
 
 /* GET /api/v1/stats?from=YYYY-MM-DD&to=YYYY-MM-DD&by=...&format=json|csv */
@@ -94,11 +92,10 @@ static http_reply http_stats(http_server *server, struct MHD_Connection *connect
                                     server->institution, &values[4].sites};
     if (values[2].text != NULL)
         stats_dimension_parse(values[2].text, &request.by);
-    report_format format = http_stats_format(&values[3]);
-    char *body = NULL;
-    mitilog_error error = {{0}};
-    mitilog_status status = report_stats(server->store, &request, format, &body, &error);
-    return http_report_reply(server, status, body, &error, format);
+    report_view_request view = {.view = REPORT_VIEW_STATISTICS,
+                                .format = http_stats_format(&values[3]),
+                                .statistics = request};
+    return http_view_reply(server, &view);
 }
 
 /* GET /api/v1/drift?week=YYYY-Www&weeks=N&baseline_weeks=N */
@@ -126,10 +123,8 @@ static http_reply http_drift(http_server *server, struct MHD_Connection *connect
         request.weeks = (size_t)values[1].number;
     if (values[2].text != NULL)
         request.baseline_weeks = (size_t)values[2].number;
-    char *body = NULL;
-    mitilog_error error = {{0}};
-    mitilog_status status = report_drift(server->store, &request, &body, &error);
-    return http_report_reply(server, status, body, &error, REPORT_JSON);
+    report_view_request view = {.view = REPORT_VIEW_DRIFT, .format = REPORT_JSON, .drift = request};
+    return http_view_reply(server, &view);
 }
 
 /* The ingest document gets the newest backfill run as its last member,

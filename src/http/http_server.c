@@ -667,3 +667,27 @@ void http_server_stop(http_server *server)
     free(server->institution);
     free(server);
 }
+
+/* A period view's document, kept or made now (report_view_serve), with
+ * the header that says which: "Mitilog-Document: kept; made-at=TIME" or
+ * "Mitilog-Document: made; milliseconds=N". */
+http_reply http_view_reply(http_server *server, const report_view_request *request)
+{
+    char *body = NULL;
+    mitilog_error error = {{0}};
+    report_served served;
+    mitilog_status status =
+        report_view_serve(server->store, request, MITILOG_VERSION, &body, &served, &error);
+    http_reply reply =
+        http_status_reply(server, status, body,
+                          request->format == REPORT_CSV ? "text/csv; charset=utf-8" : NULL, &error);
+    if (status == MITILOG_OK && reply.response != NULL) {
+        char header[96];
+        if (served.from_snapshot)
+            snprintf(header, sizeof header, "kept; made-at=%s", served.made_at);
+        else
+            snprintf(header, sizeof header, "made; milliseconds=%.0f", served.made_ms);
+        MHD_add_response_header(reply.response, "Mitilog-Document", header);
+    }
+    return reply;
+}

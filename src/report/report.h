@@ -20,6 +20,7 @@
 #include "stats/stats_outliers.h"
 #include "stats/stats_period.h"
 #include "store/store.h"
+#include "store/store_findings.h"
 #include "util/status.h"
 
 #ifdef __cplusplus
@@ -84,6 +85,56 @@ report_drift_request report_drift_default_request(void);
 /* JSON only. */
 mitilog_status report_drift(store *store, const report_drift_request *request, char **out,
                             mitilog_error *error);
+
+/* ---- Kept documents (report_snapshot.c) ----
+ * A period view's document is kept in the store (store_snapshots.h) with
+ * the signature of the data it was made from: the change counts of the
+ * days it reads (its week and baseline weeks, its period, its drift weeks
+ * and their baselines), the policies held and the span of exams held. A
+ * request whose document was kept and whose signature is unchanged is
+ * answered with the kept document; otherwise it is made, kept and
+ * answered. The document is the same either way: only the time it was
+ * made ("made_at") tells them apart. Statistics without both from and to
+ * are always made afresh (their default period moves with the data). The
+ * findings list is kept the same way, over the days of its from and to
+ * (every day when either is not given). */
+typedef enum report_view {
+    REPORT_VIEW_OUTLIERS = 0, /* report_week */
+    REPORT_VIEW_STATISTICS,   /* report_stats */
+    REPORT_VIEW_DRIFT,        /* report_drift, JSON only */
+    REPORT_VIEW_FINDINGS      /* store_findings_json, JSON only */
+} report_view;
+
+typedef struct report_view_request {
+    report_view view;
+    report_format format;
+    report_week_request outliers;
+    report_stats_request statistics;
+    report_drift_request drift;
+    store_finding_filter findings;
+} report_view_request;
+
+typedef struct report_served {
+    int from_snapshot; /* 1: the kept document was still true */
+    char made_at[32];  /* when a kept document was made (ISO 8601 UTC) */
+    double made_ms;    /* when made now: how long it took */
+} report_served;
+
+/* The document of request->view into *out (malloc'd), from a kept one
+ * when it is still true, else made now and kept; version names the build
+ * (a document kept by another build is never served). A document that
+ * could not be kept is still answered (the failure is logged). */
+mitilog_status report_view_serve(store *store, const report_view_request *request,
+                                 const char *version, char **out, report_served *served,
+                                 mitilog_error *error);
+
+/* Makes again every kept document asked for in the last 14 days whose
+ * data has changed (at most 200, the most recently asked first), and
+ * forgets those not asked for in 30 days; *remade gets how many were
+ * made. For the daemon's refresher (report_refresher.h), so that the
+ * views people look at are ready before they are asked for again. */
+mitilog_status report_snapshots_refresh(store *store, const char *version, size_t *remade,
+                                        mitilog_error *error);
 
 #ifdef __cplusplus
 }

@@ -41,6 +41,17 @@ mitilog_status report_data_load(store *store, const char *from, const char *to,
                                 report_data *data, mitilog_error *error);
 void report_data_free(report_data *data);
 
+/* The ISO week a weekly or drift request is for (its own, else
+ * report_default_week) and the first and last day numbers its document
+ * reads (the baseline weeks included): one rule for the document and for
+ * its snapshot. */
+mitilog_status report_week_span(store *store, const report_week_request *request, int *iso_year,
+                                int *iso_week, long *first_day, long *last_day,
+                                mitilog_error *error);
+mitilog_status report_drift_span(store *store, const report_drift_request *request, int *iso_year,
+                                 int *iso_week, long *first_day, long *last_day,
+                                 mitilog_error *error);
+
 /* The text column a dimension groups by (STORE_EXAM_ROOM, ...; 0 for the
  * exam type, always read). */
 unsigned report_dimension_column(stats_dimension dimension);

@@ -381,13 +381,10 @@ report_drift_request report_drift_default_request(void)
     return request;
 }
 
-mitilog_status report_drift(store *st, const report_drift_request *request, char **out,
-                            mitilog_error *error)
+mitilog_status report_drift_span(store *st, const report_drift_request *request, int *iso_year,
+                                 int *iso_week, long *first_day, long *last_day,
+                                 mitilog_error *error)
 {
-    *out = NULL;
-    report_drift_request defaults = report_drift_default_request();
-    if (request == NULL)
-        request = &defaults;
     size_t weeks = request->weeks ? request->weeks : 12;
     size_t baseline_weeks = request->baseline_weeks ? request->baseline_weeks : 12;
     int year = request->iso_year, week = request->iso_week;
@@ -397,9 +394,32 @@ mitilog_status report_drift(store *st, const report_drift_request *request, char
     if (stats_iso_week_monday(year, week, &last_monday) != MITILOG_OK)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no ISO week %d-W%02d", year, week);
     long first_monday = last_monday - 7L * (long)(weeks - 1);
+    *first_day = first_monday - 7L * (long)baseline_weeks;
+    *last_day = last_monday + 6;
+    *iso_year = year;
+    *iso_week = week;
+    return MITILOG_OK;
+}
+
+mitilog_status report_drift(store *st, const report_drift_request *request, char **out,
+                            mitilog_error *error)
+{
+    *out = NULL;
+    report_drift_request defaults = report_drift_default_request();
+    if (request == NULL)
+        request = &defaults;
+    size_t weeks = request->weeks ? request->weeks : 12;
+    size_t baseline_weeks = request->baseline_weeks ? request->baseline_weeks : 12;
+    int year, week;
+    long first_day, last_day;
+    mitilog_status span =
+        report_drift_span(st, request, &year, &week, &first_day, &last_day, error);
+    if (span != MITILOG_OK)
+        return span;
+    long first_monday = first_day + 7L * (long)baseline_weeks;
     char from[11], to[11], shown_from[11];
-    stats_day_text(first_monday - 7L * (long)baseline_weeks, from);
-    stats_day_text(last_monday + 6, to);
+    stats_day_text(first_day, from);
+    stats_day_text(last_day, to);
     stats_day_text(first_monday, shown_from);
     report_data data;
     stats_drift_result result;

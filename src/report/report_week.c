@@ -51,22 +51,39 @@ static int week_listed(const week_document *doc, size_t exam)
            doc->week_exams[exam].finding_count > 0;
 }
 
-static mitilog_status week_compute(store *st, const report_week_request *request,
-                                   week_document *doc, mitilog_error *error)
+mitilog_status report_week_span(store *st, const report_week_request *request, int *iso_year,
+                                int *iso_week, long *first_day, long *last_day,
+                                mitilog_error *error)
 {
-    memset(doc, 0, sizeof *doc);
-    doc->request = request;
     int year = request->iso_year, week = request->iso_week;
     if (!request->has_week)
         report_default_week(st, request->sites, &year, &week);
     long monday;
     if (stats_iso_week_monday(year, week, &monday) != MITILOG_OK)
         return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no ISO week %d-W%02d", year, week);
+    size_t baseline_weeks = request->settings.baseline_weeks;
+    if (baseline_weeks == 0)
+        baseline_weeks = stats_week_default_settings().baseline_weeks;
+    stats_week_days(monday, baseline_weeks, first_day, last_day);
+    *iso_year = year;
+    *iso_week = week;
+    return MITILOG_OK;
+}
+
+static mitilog_status week_compute(store *st, const report_week_request *request,
+                                   week_document *doc, mitilog_error *error)
+{
+    memset(doc, 0, sizeof *doc);
+    doc->request = request;
+    int year, week;
+    long first, last;
+    mitilog_status span = report_week_span(st, request, &year, &week, &first, &last, error);
+    if (span != MITILOG_OK)
+        return span;
+    long monday = last - 6;
     stats_week_settings settings = request->settings;
     if (settings.baseline_weeks == 0)
         settings.baseline_weeks = stats_week_default_settings().baseline_weeks;
-    long first, last;
-    stats_week_days(monday, settings.baseline_weeks, &first, &last);
     stats_iso_week_text(year, week, doc->week);
     stats_day_text(monday, doc->monday);
     stats_day_text(last, doc->sunday);

@@ -30,9 +30,11 @@ enum { STORE_COPY_BATCH_ROWS = 200, STORE_COPY_BATCH_PARAMETERS = 20000 };
 /* Tables the PostgreSQL migrations fill themselves (the vocabulary and the
  * settings row): a new database holds their rows already, so they are not
  * taken as data, and the copy replaces them with the SQLite database's
- * rows, which the stored exams were computed with. */
+ * rows, which the stored exams were computed with. data_days (migration
+ * 018) is filled by triggers as the exams' rows arrive, so it too is
+ * replaced rather than added to. */
 static const char *const store_copy_vocabulary[] = {"mode_names", "ti_thresholds",
-                                                    "index_source_setting"};
+                                                    "index_source_setting", "data_days"};
 
 typedef struct store_copy_text {
     char *text;

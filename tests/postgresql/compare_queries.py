@@ -117,6 +117,11 @@ def reads(f):
         "findings/evaluation_hash_device.sql": [[f["device_rule"], f["policy"],
                                                  f["device_period"]]],
         "findings/evaluation_hash_exam.sql": [[f["study"], f["policy"]]],
+        "snapshots/snapshot_signature.sql": [[f["first_day"], f["last_day"]],
+                                             ["", "9999-12-31"], ["2000-01-01", "2000-01-07"]],
+        "snapshots/snapshot_get.sql": [["statistics", "from=a;to=b", "s1"],
+                                       ["statistics", "none", "s1"]],
+        "snapshots/snapshot_keys.sql": [["2000-01-01T00:00:00.000Z", 10]],
         "findings/findings.sql": [
             [None, None, None, None, None, None, None, 0, 1000],
             [f["first_day"], f["last_day"], None, None, None, None, None, 1, 50],
@@ -221,9 +226,11 @@ def writes(f):
             [[]],
             "SELECT day, study_instance_uid, measured_policy, measured_seconds "
             "FROM exam_summaries ORDER BY day, study_instance_uid"),
+        # With the day counts the triggers of migration 018 raise.
         "exams/exam_summary_delete.sql": (
             [[f["study"]]],
-            "SELECT count(*) FROM exam_summaries"),
+            "SELECT (SELECT count(*) FROM exam_summaries), day, changes FROM data_days "
+            "ORDER BY day"),
         "exams/exam_summary_insert.sql": (
             [[f["study"]], [f["study2"]]],
             "SELECT * FROM exam_summaries WHERE study_instance_uid IN ('%s', '%s') "
@@ -245,10 +252,23 @@ def writes(f):
             [{"version": f["policy"], "name": "x", "normalised_text": "y"},
              {"version": "compare-2", "name": None, "normalised_text": "z"}],
             "SELECT version, name, normalised_text FROM policies ORDER BY version"),
+        "snapshots/snapshot_put.sql": (
+            [["statistics", "from=a;to=b", "s1", "{\"a\": 1}", 12.5, 1],
+             ["statistics", "from=a;to=b", "s2", "{\"a\": 2}", 13.5, 0],
+             ["drift", "week=2026-W46", "s1", "{}", 1.0, 0]],
+            "SELECT view, request, signature, body, made_ms FROM report_snapshots "
+            "ORDER BY view, request"),
+        "snapshots/snapshot_asked.sql": (
+            [["statistics", "from=a;to=b"]],
+            "SELECT count(*) FROM report_snapshots"),
+        "snapshots/snapshots_prune.sql": (
+            [["9999-01-01T00:00:00.000Z"]],
+            "SELECT count(*) FROM report_snapshots"),
         "findings/findings_supersede.sql": (
             [[f["study"], "another-version", None, None],
              [None, "another-version", f["device_rule"], f["device_period"]]],
-            "SELECT id, superseded FROM findings ORDER BY id"),
+            "SELECT id, superseded, '' AS day FROM findings "
+            "UNION ALL SELECT changes, 0, day FROM data_days ORDER BY 3, 1"),
         "findings/device_evaluation_upsert.sql": (
             [{"rule_id": "r", "policy_version": f["policy"], "period": "2026-11-02",
               "evaluation_hash": "h1"},

@@ -261,6 +261,9 @@ def copy_database(sqlite_connection, postgresql_connection, tables=None):
     # The baseline fills its vocabulary (mode names, the ladder): the copy
     # takes SQLite's instead.
     cursor.execute("TRUNCATE %s CASCADE" % ", ".join('"%s"' % t for t in order))
+    # Triggers off while copying: rows arrive as SQLite holds them, the
+    # day counts of data_days (migration 018) included, not counted again.
+    cursor.execute("SET session_replication_role = replica")
     for table in order:
         cursor.execute("SELECT column_name FROM information_schema.columns "
                        "WHERE table_schema = current_schema() AND table_name = %s", (table,))
@@ -297,6 +300,7 @@ def copy_database(sqlite_connection, postgresql_connection, tables=None):
             cursor.execute("SELECT setval(pg_get_serial_sequence(%s, %s), "
                            "coalesce((SELECT max(\"%s\") FROM \"%s\"), 0) + 1, false)"
                            % ("%s", "%s", column, table), (table, column))
+    cursor.execute("SET session_replication_role = DEFAULT")
     if "instance_keys" in target:
         # PostgreSQL keeps one row per SOP Instance UID across the month
         # partitions in instance_keys (012_baseline.sql).
