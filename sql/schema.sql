@@ -774,6 +774,27 @@ BEGIN
     UNION SELECT substr(NEW.period, 1, 10), 1 WHERE NEW.period IS NOT NULL
     ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
 END;
+CREATE TRIGGER data_days_measurement_delete AFTER DELETE ON exam_measurements
+BEGIN
+    INSERT INTO data_days (day, changes)
+    SELECT day, 1 FROM exam_summaries WHERE study_instance_uid = OLD.study_instance_uid
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+END;
+CREATE TRIGGER data_days_measurement_insert AFTER INSERT ON exam_measurements
+BEGIN
+    INSERT INTO data_days (day, changes)
+    SELECT day, 1 FROM exam_summaries WHERE study_instance_uid = NEW.study_instance_uid
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+END;
+CREATE TRIGGER data_days_measurement_update AFTER UPDATE ON exam_measurements
+BEGIN
+    INSERT INTO data_days (day, changes)
+    SELECT day, 1 FROM exam_summaries WHERE study_instance_uid = OLD.study_instance_uid
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+    INSERT INTO data_days (day, changes)
+    SELECT day, 1 FROM exam_summaries WHERE study_instance_uid = NEW.study_instance_uid
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+END;
 CREATE TRIGGER data_days_summary_delete AFTER DELETE ON exam_summaries
 BEGIN
     INSERT INTO data_days (day, changes) VALUES (OLD.day, 1)

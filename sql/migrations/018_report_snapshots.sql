@@ -5,7 +5,7 @@
 -- whose change count goes up, in the writing transaction, whenever a row a
 -- period view or the findings list reads for that day is inserted,
 -- updated or deleted: an exam's summary, its time at or above each
--- threshold, its findings. The
+-- threshold, its measurements under a policy, its findings. The
 -- triggers below do it, so that no write path can forget. The sum of the
 -- counts over a period's days therefore changes whenever its data does,
 -- and only then.
@@ -124,6 +124,30 @@ BEGIN
     SELECT day, 1 FROM exam_summaries WHERE study_instance_uid = OLD.study_instance_uid
     UNION SELECT substr(OLD.started_at, 1, 10), 1 WHERE OLD.started_at IS NOT NULL
     UNION SELECT substr(OLD.period, 1, 10), 1 WHERE OLD.period IS NOT NULL
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+END;
+
+-- An exam's measurements under a policy (the estimated time the period
+-- views show under the current policy): the day of its exam's summary.
+CREATE TRIGGER data_days_measurement_insert AFTER INSERT ON exam_measurements
+BEGIN
+    INSERT INTO data_days (day, changes)
+    SELECT day, 1 FROM exam_summaries WHERE study_instance_uid = NEW.study_instance_uid
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+END;
+CREATE TRIGGER data_days_measurement_update AFTER UPDATE ON exam_measurements
+BEGIN
+    INSERT INTO data_days (day, changes)
+    SELECT day, 1 FROM exam_summaries WHERE study_instance_uid = OLD.study_instance_uid
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+    INSERT INTO data_days (day, changes)
+    SELECT day, 1 FROM exam_summaries WHERE study_instance_uid = NEW.study_instance_uid
+    ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
+END;
+CREATE TRIGGER data_days_measurement_delete AFTER DELETE ON exam_measurements
+BEGIN
+    INSERT INTO data_days (day, changes)
+    SELECT day, 1 FROM exam_summaries WHERE study_instance_uid = OLD.study_instance_uid
     ON CONFLICT (day) DO UPDATE SET changes = changes + 1;
 END;
 

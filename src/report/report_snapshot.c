@@ -21,9 +21,9 @@
 
 enum {
     REPORT_SNAPSHOT_REQUEST_MAX = 4096,
-    REPORT_SNAPSHOT_REFRESH_MAX = 200, /* documents made again per refresh, at most */
-    REPORT_SNAPSHOT_REFRESH_DAYS = 14, /* asked for within: kept ready */
-    REPORT_SNAPSHOT_FORGET_DAYS = 30,  /* not asked for within: forgotten */
+    REPORT_SNAPSHOT_REFRESH_MAX = 200,   /* documents made again per refresh, at most */
+    REPORT_SNAPSHOT_REFRESH_DAYS = 14,   /* asked for within: kept ready */
+    REPORT_SNAPSHOT_FORGET_DAYS = 30,    /* not asked for within: forgotten */
     REPORT_SNAPSHOT_ASKED_SECONDS = 3600 /* "asked for" is written at most this often */
 };
 
@@ -343,8 +343,7 @@ static int request_encode(store *st, const report_view_request *request,
             snprintf(last_day, 11, "9999-12-31");
         return 1;
     }
-    default:
-        return 0;
+    default: return 0;
     }
     if (out->overflow || first > last)
         return 0;
@@ -380,10 +379,8 @@ static mitilog_status view_make(store *st, const report_view_request *request, c
         return report_week(st, &request->outliers, request->format, out, error);
     case REPORT_VIEW_STATISTICS:
         return report_stats(st, &request->statistics, request->format, out, error);
-    case REPORT_VIEW_DRIFT:
-        return report_drift(st, &request->drift, out, error);
-    case REPORT_VIEW_FINDINGS:
-        return store_findings_json(st, &request->findings, out, error);
+    case REPORT_VIEW_DRIFT: return report_drift(st, &request->drift, out, error);
+    case REPORT_VIEW_FINDINGS: return store_findings_json(st, &request->findings, out, error);
     }
     return mitilog_error_set(error, MITILOG_ERROR_INVALID, "no such view");
 }
@@ -405,9 +402,8 @@ static mitilog_status view_signature(store *st, const char *version, const char 
 /* Makes the document and keeps it under signature; a failure to keep it
  * is logged, not returned. */
 static mitilog_status view_make_and_keep(store *st, const report_view_request *resolved,
-                                         const char *request_text, const char *signature,
-                                         int asked, char **out, double *made_ms,
-                                         mitilog_error *error)
+                                         const char *request_text, const char *signature, int asked,
+                                         char **out, double *made_ms, mitilog_error *error)
 {
     double started = now_ms();
     mitilog_status status = view_make(st, resolved, out, error);
@@ -418,14 +414,13 @@ static mitilog_status view_make_and_keep(store *st, const report_view_request *r
     if (store_snapshot_put(st, report_view_names[resolved->view], request_text, signature, *out,
                            *made_ms, asked, &keep_error) != MITILOG_OK)
         log_warning("report: the %s document was answered but not kept (%s); it will be made "
-                 "again when asked for",
-                 report_view_names[resolved->view], keep_error.text);
+                    "again when asked for",
+                    report_view_names[resolved->view], keep_error.text);
     return MITILOG_OK;
 }
 
-mitilog_status report_view_serve(store *st, const report_view_request *request,
-                                 const char *version, char **out, report_served *served,
-                                 mitilog_error *error)
+mitilog_status report_view_serve(store *st, const report_view_request *request, const char *version,
+                                 char **out, report_served *served, mitilog_error *error)
 {
     *out = NULL;
     memset(served, 0, sizeof *served);
@@ -450,14 +445,14 @@ mitilog_status report_view_serve(store *st, const report_view_request *request,
     char signature[STORE_SNAPSHOT_SIGNATURE_MAX + 1], asked_at[32];
     mitilog_error read_error = {{0}};
     const char *view = report_view_names[request->view];
-    int kept = view_signature(st, version, first_day, last_day, signature, &read_error) ==
-               MITILOG_OK;
+    int kept =
+        view_signature(st, version, first_day, last_day, signature, &read_error) == MITILOG_OK;
     if (kept && store_snapshot_get(st, view, text.text, signature, out, served->made_at, asked_at,
                                    &read_error) != MITILOG_OK)
         kept = 0;
     if (!kept)
-        log_warning("report: kept documents not read (%s); making the %s document",
-                    read_error.text, view);
+        log_warning("report: kept documents not read (%s); making the %s document", read_error.text,
+                    view);
     if (*out != NULL) {
         served->from_snapshot = 1;
         char hour_ago[32];
@@ -475,8 +470,7 @@ mitilog_status report_view_serve(store *st, const report_view_request *request,
         served->made_ms = now_ms() - started;
         return status;
     }
-    return view_make_and_keep(st, &resolved, text.text, signature, 1, out, &served->made_ms,
-                              error);
+    return view_make_and_keep(st, &resolved, text.text, signature, 1, out, &served->made_ms, error);
 }
 
 mitilog_status report_snapshots_refresh(store *st, const char *version, size_t *remade,
@@ -510,15 +504,25 @@ mitilog_status report_snapshots_refresh(store *st, const char *version, size_t *
         status = view_signature(st, version, first_day, last_day, signature, error);
         if (status != MITILOG_OK || strcmp(signature, keys[i].signature) == 0)
             continue;
+        /* Another receiver on the same database may have made it since. */
+        char *already = NULL, made_at[32], asked_at[32];
+        status = store_snapshot_get(st, keys[i].view, text.text, signature, &already, made_at,
+                                    asked_at, error);
+        if (already != NULL) {
+            free(already);
+            continue;
+        }
+        if (status != MITILOG_OK)
+            continue;
         char *body = NULL;
         double made_ms = 0;
         mitilog_error failed = {{0}};
-        if (view_make_and_keep(st, &resolved, text.text, signature, 0, &body, &made_ms,
-                               &failed) == MITILOG_OK)
+        if (view_make_and_keep(st, &resolved, text.text, signature, 0, &body, &made_ms, &failed) ==
+            MITILOG_OK)
             (*remade)++;
         else
             log_warning("report: the kept %s document (%s) could not be made again: %s",
-                     keys[i].view, keys[i].request, failed.text);
+                        keys[i].view, keys[i].request, failed.text);
         free(body);
     }
     free(decoded);

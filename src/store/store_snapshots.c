@@ -70,10 +70,10 @@ mitilog_status store_snapshot_get(store *st, const char *view, const char *reque
     if (status != MITILOG_OK || failed) {
         free(*body);
         *body = NULL;
-        return status != MITILOG_OK ? mitilog_error_set(error, MITILOG_ERROR_DATABASE,
-                                                        "snapshot: %s", query.error.text)
-                                    : mitilog_error_set(error, MITILOG_ERROR_MEMORY,
-                                                        "snapshot: out of memory");
+        return status != MITILOG_OK
+                   ? mitilog_error_set(error, MITILOG_ERROR_DATABASE, "snapshot: %s",
+                                       query.error.text)
+                   : mitilog_error_set(error, MITILOG_ERROR_MEMORY, "snapshot: out of memory");
     }
     return MITILOG_OK;
 }
@@ -84,8 +84,7 @@ typedef struct store_snapshot_write {
     int asked;
 } store_snapshot_write;
 
-static mitilog_status store_write_snapshot(store_link *writer, void *context,
-                                           mitilog_error *error)
+static mitilog_status store_write_snapshot(store_link *writer, void *context, mitilog_error *error)
 {
     const store_snapshot_write *write = context;
     store_query query;
@@ -160,8 +159,7 @@ mitilog_status store_snapshots_prune(store *st, const char *before, mitilog_erro
 }
 
 mitilog_status store_snapshot_keys(store *st, const char *since, size_t limit,
-                                   store_snapshot_key **keys, size_t *count,
-                                   mitilog_error *error)
+                                   store_snapshot_key **keys, size_t *count, mitilog_error *error)
 {
     *keys = NULL;
     *count = 0;
@@ -196,10 +194,10 @@ mitilog_status store_snapshot_keys(store *st, const char *since, size_t limit,
     pthread_mutex_unlock(&st->reader_lock);
     if (status != MITILOG_OK || failed) {
         store_snapshot_keys_free(list, used);
-        return status != MITILOG_OK ? mitilog_error_set(error, MITILOG_ERROR_DATABASE,
-                                                        "snapshot keys: %s", query.error.text)
-                                    : mitilog_error_set(error, MITILOG_ERROR_MEMORY,
-                                                        "snapshot keys: out of memory");
+        return status != MITILOG_OK
+                   ? mitilog_error_set(error, MITILOG_ERROR_DATABASE, "snapshot keys: %s",
+                                       query.error.text)
+                   : mitilog_error_set(error, MITILOG_ERROR_MEMORY, "snapshot keys: out of memory");
     }
     *keys = list;
     *count = used;

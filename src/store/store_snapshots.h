@@ -59,8 +59,7 @@ typedef struct store_snapshot_key {
  * the most recently asked first, at most limit: *keys malloc'd, freed with
  * store_snapshot_keys_free(). */
 mitilog_status store_snapshot_keys(store *store, const char *since, size_t limit,
-                                   store_snapshot_key **keys, size_t *count,
-                                   mitilog_error *error);
+                                   store_snapshot_key **keys, size_t *count, mitilog_error *error);
 void store_snapshot_keys_free(store_snapshot_key *keys, size_t count);
 
 /* Forgets the documents last asked for before before (ISO 8601 UTC). */

@@ -11,11 +11,13 @@ department (seed 7, 14 days from 2026-11-02) spans ISO weeks 45 and 46.
 import glob
 import json
 import os
+import re
+import signal
 import time
 
 import pytest
 
-from conftest import BINARY, Daemon, run
+from conftest import BINARY, REPO, Daemon, run
 
 DAYS = 14
 SEED = 7
@@ -44,12 +46,26 @@ def department(tmp_path_factory):
         os.rename(folder, target)
         held[name] = target
     daemon = Daemon(work, http=dict(refresh_seconds=1))
+    daemon.policy = os.path.join(str(work), "policy.ini")
+    write_policy(daemon.policy, "2.0")
+    with open(daemon.config, "a") as f:
+        f.write("[rules]\npolicy = %s\n" % daemon.policy)
     imported = daemon.import_(sim)
     assert "imported" in imported.stdout, imported.stderr
     daemon.start()
     daemon.held = held
     yield daemon
     daemon.stop()
+
+
+def write_policy(path, ti_limit):
+    """The shipped policy with the plain TI ceiling set to ti_limit."""
+    with open(os.path.join(REPO, "conf", "policy.ini")) as f:
+        text = f.read()
+    assert "limit = 2.0\nlimit.group.ophthalmic = 1.0" in text
+    with open(path, "w") as f:
+        f.write(text.replace("limit = 2.0\nlimit.group.ophthalmic = 1.0",
+                             "limit = %s\nlimit.group.ophthalmic = 1.0" % ti_limit))
 
 
 def get(daemon, path):
@@ -244,3 +260,28 @@ def test_the_findings_list_follows_a_changed_finding(department):
     get(department, other)
     header, _ = get(department, other)
     assert header.startswith("kept"), header
+
+
+def test_a_new_policy_and_a_rescore_make_the_documents_again(department):
+    path = "/api/v1/stats?from=%s&to=%s&by=exam_type" % (WEEK_FROM, WEEK_TO)
+    get(department, path)
+    header, before = get(department, path)
+    assert header.startswith("kept"), header
+    old = department.get_json("/api/v1/policy")["version"]
+    write_policy(department.policy, "0.4")
+    department.process.send_signal(signal.SIGHUP)
+    deadline = time.monotonic() + 30
+    while department.get_json("/api/v1/policy")["version"] == old:
+        assert time.monotonic() < deadline, department.log()
+        time.sleep(0.2)
+    result = run([BINARY, "rescore", "--config", department.config, "--from", WEEK_FROM,
+                  "--to", WEEK_TO], timeout=300)
+    assert result.returncode == 0, result.stderr
+    _, after = get(department, path)
+    fresh_text = fresh(department, "stats", "--from", WEEK_FROM, "--to", WEEK_TO, "--by",
+                       "exam_type", "--format", "json")
+    same_document(path, after, fresh_text)
+    assert json.loads(after) != json.loads(before)
+    assert json.loads(after)["policy_version"] != json.loads(before)["policy_version"] or \
+        json.loads(after)["total"]["with_findings_count"] > \
+        json.loads(before)["total"]["with_findings_count"]

@@ -88,3 +88,20 @@ END
 $function$;
 CREATE TRIGGER data_days_finding AFTER INSERT OR UPDATE OR DELETE ON findings
     FOR EACH ROW EXECUTE FUNCTION mitilog_data_day_finding();
+
+-- exam_measurements: the day of the exam's summary.
+CREATE FUNCTION mitilog_data_day_measurement() RETURNS trigger LANGUAGE plpgsql AS $function$
+BEGIN
+    IF TG_OP <> 'INSERT' THEN
+        PERFORM mitilog_data_day_changed(s.day) FROM exam_summaries s
+        WHERE s.study_instance_uid = OLD.study_instance_uid;
+    END IF;
+    IF TG_OP <> 'DELETE' THEN
+        PERFORM mitilog_data_day_changed(s.day) FROM exam_summaries s
+        WHERE s.study_instance_uid = NEW.study_instance_uid;
+    END IF;
+    RETURN NULL;
+END
+$function$;
+CREATE TRIGGER data_days_measurement AFTER INSERT OR UPDATE OR DELETE ON exam_measurements
+    FOR EACH ROW EXECUTE FUNCTION mitilog_data_day_measurement();
