@@ -237,7 +237,8 @@ tsan_pass() {
       integration "$top/build-tsan/mitilog" 21000-31999 tests/integration/test_concurrency.py \
       tests/integration/test_access.py tests/integration/test_reports.py \
       tests/integration/test_review.py tests/integration/test_metrics.py \
-      tests/integration/test_stow.py tests/integration/test_notifications.py
+      tests/integration/test_stow.py tests/integration/test_notifications.py \
+      tests/integration/test_snapshots.py
 }
 
 lane_two() {
