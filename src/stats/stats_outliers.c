@@ -118,6 +118,14 @@ static int compare_groups(const void *left, const void *right)
     return stats_keys_compare(a->key, b->key);
 }
 
+/* The baseline of one exam type without one group's exams. */
+typedef struct without_group {
+    size_t type_stamp; /* the exam type's index + 1 it was made for; 0: none */
+    int usable;        /* count >= the minimum: compared with it */
+    size_t count;
+    double median, mad, p95;
+} without_group;
+
 mitilog_status stats_week_outliers(const exam_row *week, size_t week_count,
                                    const exam_row *baseline, size_t baseline_count,
                                    const stats_week_settings *settings, stats_dimension by,
@@ -136,6 +144,7 @@ mitilog_status stats_week_outliers(const exam_row *week, size_t week_count,
     double *values = NULL, *scratch = NULL;
     unsigned char *has_type = NULL;
     member_key *member_keys = NULL;
+    without_group *pairs = NULL;
     mitilog_status status = MITILOG_ERROR_MEMORY;
     size_t capacity = week_count + baseline_count + 1;
 
@@ -156,8 +165,9 @@ mitilog_status stats_week_outliers(const exam_row *week, size_t week_count,
     result->groups = calloc(key_count + 1, sizeof *result->groups);
     has_type = malloc(type_count + 1);
     member_keys = malloc((week_count + 1) * sizeof *member_keys);
+    pairs = calloc(key_count + 1, sizeof *pairs);
     if (result->baselines == NULL || result->groups == NULL || has_type == NULL ||
-        member_keys == NULL)
+        member_keys == NULL || pairs == NULL)
         goto done;
 
     /* Baselines per exam type (of the week), and each exam's flags. */
@@ -200,22 +210,33 @@ mitilog_status stats_week_outliers(const exam_row *week, size_t week_count,
                 continue;
             double median = base->median, mad = base->mad, p95 = base->p95;
             /* The type's trailing exams of other groups only (stats_outliers.h);
-             * grouped by exam type, every trailing exam is of the group. */
-            size_t other = 0;
-            if (by != STATS_BY_EXAM_TYPE) {
+             * grouped by exam type, every trailing exam is of the group.
+             * They depend on the exam's type and group only: made once per
+             * pair (a week of many exams has few pairs). */
+            without_group *pair = &pairs[keys.key_of[i]];
+            if (by != STATS_BY_EXAM_TYPE && pair->type_stamp != t + 1) {
+                pair->type_stamp = t + 1;
+                size_t other = 0;
                 for (size_t b = base_types.start[t]; b < base_types.start[t + 1]; b++) {
                     size_t j = base_types.members[b];
                     if (baseline[j].has_governing && base_keys.key_of[j] != keys.key_of[i])
                         scratch[other++] = baseline[j].max_governing;
                 }
+                pair->count = other;
+                pair->usable = other >= settings->minimum_baseline && other > 0;
+                if (pair->usable) {
+                    double *own = scratch + other;
+                    stats_sort(scratch, other);
+                    stats_mad(scratch, other, own, &pair->median, &pair->mad);
+                    stats_quantile_sorted(scratch, other, 0.95, &pair->p95);
+                }
             }
-            if (other >= settings->minimum_baseline && other > 0) {
-                double *own = scratch + other;
-                stats_sort(scratch, other);
-                stats_mad(scratch, other, own, &median, &mad);
-                stats_quantile_sorted(scratch, other, 0.95, &p95);
+            if (by != STATS_BY_EXAM_TYPE && pair->usable) {
+                median = pair->median;
+                mad = pair->mad;
+                p95 = pair->p95;
                 flag->without_group = 1;
-                flag->compared_count = other;
+                flag->compared_count = pair->count;
                 flag->compared_median = median;
                 flag->compared_p95 = p95;
             }
@@ -290,6 +311,7 @@ done:
     free(scratch);
     free(has_type);
     free(member_keys);
+    free(pairs);
     stats_key_groups_free(&types);
     stats_key_groups_free(&base_types);
     stats_key_groups_free(&keys);
