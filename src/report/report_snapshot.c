@@ -86,6 +86,19 @@ static void text_sites(snapshot_text *out, const store_sites *sites)
     }
 }
 
+/* The resolved ISO week: into the request (so that it is made for that
+ * week) and into the text. */
+static void text_week(snapshot_text *out, int year, int week, int *has_week, int *iso_year,
+                      int *iso_week)
+{
+    char week_text[9];
+    *has_week = 1;
+    *iso_year = year;
+    *iso_week = week;
+    stats_iso_week_text(year, week, week_text);
+    text_pair(out, "week", week_text);
+}
+
 /* What a request text decodes into: the request structs point into it. */
 typedef struct snapshot_decoded {
     char buffer[REPORT_SNAPSHOT_REQUEST_MAX];
@@ -257,18 +270,13 @@ static int request_encode(store *st, const report_view_request *request,
     *status = MITILOG_OK;
     long first = 0, last = 0;
     int year = 0, week = 0;
-    char week_text[9];
     switch (request->view) {
     case REPORT_VIEW_OUTLIERS: {
         report_week_request *r = &resolved->outliers;
         *status = report_week_span(st, r, &year, &week, &first, &last, error);
         if (*status != MITILOG_OK)
             return 0;
-        r->has_week = 1;
-        r->iso_year = year;
-        r->iso_week = week;
-        stats_iso_week_text(year, week, week_text);
-        text_pair(out, "week", week_text);
+        text_week(out, year, week, &r->has_week, &r->iso_year, &r->iso_week);
         text_pair(out, "group", stats_dimension_name(r->group));
         text_number(out, "baseline_weeks", (double)r->settings.baseline_weeks);
         text_number(out, "minimum", (double)r->settings.minimum_baseline);
@@ -297,11 +305,7 @@ static int request_encode(store *st, const report_view_request *request,
         *status = report_drift_span(st, r, &year, &week, &first, &last, error);
         if (*status != MITILOG_OK)
             return 0;
-        r->has_week = 1;
-        r->iso_year = year;
-        r->iso_week = week;
-        stats_iso_week_text(year, week, week_text);
-        text_pair(out, "week", week_text);
+        text_week(out, year, week, &r->has_week, &r->iso_year, &r->iso_week);
         text_number(out, "weeks", (double)r->weeks);
         text_number(out, "baseline_weeks", (double)r->baseline_weeks);
         text_number(out, "minimum", (double)r->minimum_baseline);

@@ -11,7 +11,6 @@ department (seed 7, 14 days from 2026-11-02) spans ISO weeks 45 and 46.
 import glob
 import json
 import os
-import re
 import signal
 import time
 
@@ -173,6 +172,16 @@ def test_an_exam_outside_the_period_leaves_it_kept(department):
                                         "--format", "json"))
 
 
+def write(daemon, sql, parameters):
+    """One write of the test's own to the daemon's database, committed."""
+    connection = daemon.db(write=True)
+    try:
+        connection.execute(sql, parameters)
+        connection.commit()
+    finally:
+        connection.close()
+
+
 def day_changes(daemon, day):
     with daemon.db() as db:
         row = db.execute("SELECT changes FROM data_days WHERE day = ?", (day,)).fetchone()
@@ -188,22 +197,12 @@ def test_writes_by_anyone_raise_the_day_count(department):
             "ON s.study_instance_uid = f.study_instance_uid WHERE s.day BETWEEN ? AND ? "
             "ORDER BY f.id LIMIT 1", (WEEK_FROM, WEEK_TO)).fetchone()
     before = day_changes(department, day)
-    connection = department.db(write=True)
-    try:
-        connection.execute("UPDATE findings SET assumptions = assumptions "
-                           "WHERE study_instance_uid = ?", (study,))
-        connection.commit()
-    finally:
-        connection.close()
+    write(department, "UPDATE findings SET assumptions = assumptions "
+          "WHERE study_instance_uid = ?", (study,))
     middle = day_changes(department, day)
     assert middle > before
-    connection = department.db(write=True)
-    try:
-        connection.execute("UPDATE exam_summaries SET site = site WHERE study_instance_uid = ?",
-                           (study,))
-        connection.commit()
-    finally:
-        connection.close()
+    write(department, "UPDATE exam_summaries SET site = site WHERE study_instance_uid = ?",
+          (study,))
     assert day_changes(department, day) > middle
 
 
@@ -230,13 +229,8 @@ def test_the_refresher_makes_changed_documents_before_they_are_asked(department)
             "(SELECT 1 FROM findings f WHERE f.study_instance_uid = s.study_instance_uid "
             "AND f.severity = 'warning' AND substr(f.started_at, 1, 10) = s.day) LIMIT 1",
             (WEEK_FROM,)).fetchone()
-    connection = department.db(write=True)
-    try:
-        connection.execute("UPDATE exam_summaries SET site = site WHERE study_instance_uid = ?",
-                           (study,))
-        connection.commit()
-    finally:
-        connection.close()
+    write(department, "UPDATE exam_summaries SET site = site WHERE study_instance_uid = ?",
+          (study,))
 
     # The request texts (report_snapshot.c) by a part only each of these has.
     parts = {"outliers": "%group=room;baseline_weeks=3;%", "statistics": "%by=preset;%",
@@ -265,13 +259,8 @@ def test_the_findings_list_follows_a_changed_finding(department):
     listed = json.loads(before)
     assert listed, "the week has findings"
     target = listed[len(listed) // 2]
-    connection = department.db(write=True)
-    try:
-        connection.execute("UPDATE findings SET assumptions = ? WHERE id = ?",
-                           ("changed by the test", target["id"]))
-        connection.commit()
-    finally:
-        connection.close()
+    write(department, "UPDATE findings SET assumptions = ? WHERE id = ?",
+          ("changed by the test", target["id"]))
     _, after = get(department, path)
     changed = [f for f in json.loads(after) if f["id"] == target["id"]]
     assert changed and changed[0]["assumptions"] == "changed by the test"
