@@ -39,9 +39,10 @@ typedef struct http_settings {
     /* [site] institution, answered in /api/v1/stats; NULL or "": not set.
      * Copied at start. */
     const char *institution;
-    /* Served at GET /metrics with the store's figures (borrowed; it must
-     * outlive the server); NULL: /metrics answers 404. */
-    const metrics *metrics;
+    /* Served at GET /metrics with the store's figures, and counting the
+     * documents the server answers (borrowed; it must outlive the server);
+     * NULL: /metrics answers 404. */
+    metrics *metrics;
     /* DICOMweb STOW-RS (POST /dicomweb/studies): the pipeline objects go
      * through (borrowed, must outlive the server); NULL: not served. */
     struct ingest *ingest;

@@ -59,7 +59,7 @@ struct http_server {
     http_guard *guard;                 /* request deadlines                    */
     char csrf_key[65];                 /* random, drawn at start: review tokens */
     char *institution;                 /* [site] institution, NULL: not set    */
-    const metrics *metrics;            /* GET /metrics; NULL: not served */
+    metrics *metrics;                  /* GET /metrics, and what it counts here; NULL: none */
     struct ingest *ingest;             /* STOW-RS; NULL: not enabled  */
     unsigned long long stow_max_bytes; /* body of one STOW-RS request */
     unsigned stow_max_parts;           /* objects of one request      */

@@ -681,6 +681,8 @@ http_reply http_view_reply(http_server *server, const report_view_request *reque
     http_reply reply =
         http_status_reply(server, status, body,
                           request->format == REPORT_CSV ? "text/csv; charset=utf-8" : NULL, &error);
+    if (status == MITILOG_OK)
+        metrics_document_served(server->metrics, served.from_snapshot);
     if (status == MITILOG_OK && reply.response != NULL) {
         char header[96];
         if (served.from_snapshot)

@@ -75,6 +75,7 @@ struct metrics {
     atomic_uint_fast64_t commit_nanoseconds;
     atomic_uint_fast64_t queues[METRICS_QUEUE_COUNT];
     atomic_uint_fast64_t pixel_read;
+    atomic_uint_fast64_t documents_kept, documents_made;
     atomic_uint_fast64_t pixel_refused[METRICS_PIXEL_REFUSAL_COUNT];
 };
 
@@ -101,6 +102,8 @@ mitilog_status metrics_create(metrics **out, mitilog_error *error)
     for (size_t i = 0; i < METRICS_QUEUE_COUNT; i++)
         atomic_init(&created->queues[i], 0);
     atomic_init(&created->pixel_read, 0);
+    atomic_init(&created->documents_kept, 0);
+    atomic_init(&created->documents_made, 0);
     for (size_t i = 0; i < METRICS_PIXEL_REFUSAL_COUNT; i++)
         atomic_init(&created->pixel_refused[i], 0);
     *out = created;
@@ -185,6 +188,12 @@ void metrics_pixel_read(metrics *metrics)
 {
     if (metrics != NULL)
         atomic_fetch_add(&metrics->pixel_read, 1);
+}
+
+void metrics_document_served(metrics *metrics, int kept)
+{
+    if (metrics != NULL)
+        atomic_fetch_add(kept ? &metrics->documents_kept : &metrics->documents_made, 1);
 }
 
 void metrics_pixel_refused(metrics *metrics, metrics_pixel_refusal reason)
@@ -373,6 +382,14 @@ static void metrics_write_pipeline(metrics_text *out, const metrics *m)
     for (size_t i = 0; i < METRICS_PIXEL_REFUSAL_COUNT; i++)
         metrics_sample_count(out, "mitilog_pixel_objects_refused_total", "reason",
                              metrics_pixel_labels[i], atomic_load(&counters->pixel_refused[i]));
+
+    metrics_family(out, "mitilog_documents_served_total", "counter",
+                   "Documents of the period views answered: kept (from the database, their "
+                   "data unchanged) or made now from the rows.");
+    metrics_sample_count(out, "mitilog_documents_served_total", "way", "kept",
+                         atomic_load(&counters->documents_kept));
+    metrics_sample_count(out, "mitilog_documents_served_total", "way", "made",
+                         atomic_load(&counters->documents_made));
 }
 
 static void metrics_write_database(metrics_text *out, const metrics_database *database)

@@ -88,6 +88,9 @@ void metrics_commit_observed(metrics *metrics, double seconds);
 void metrics_queue_set(metrics *metrics, metrics_queue queue, uint64_t items);
 void metrics_pixel_read(metrics *metrics);
 void metrics_pixel_refused(metrics *metrics, metrics_pixel_refusal reason);
+/* A period view's document answered: kept (from the database, still
+ * true) or made now (report.h, report_view_serve). */
+void metrics_document_served(metrics *metrics, int kept);
 
 /* ---- What the store reads at scrape time (store_metrics.h) ---- */
 typedef struct metrics_finding_count {

@@ -294,3 +294,25 @@ def test_a_new_policy_and_a_rescore_make_the_documents_again(department):
     assert json.loads(after)["policy_version"] != json.loads(before)["policy_version"] or \
         json.loads(after)["total"]["with_findings_count"] > \
         json.loads(before)["total"]["with_findings_count"]
+
+
+def served_counts(daemon):
+    """mitilog_documents_served_total by way, from GET /metrics."""
+    _, text = daemon.get("/metrics")
+    counts = {}
+    for line in text.splitlines():
+        if line.startswith("mitilog_documents_served_total{"):
+            way = line.split('way="')[1].split('"')[0]
+            counts[way] = int(float(line.rsplit(" ", 1)[1]))
+    return counts
+
+
+def test_metrics_count_kept_and_made_documents(department):
+    before = served_counts(department)
+    path = "/api/v1/drift?week=%s&weeks=3" % WEEK
+    first, _ = get(department, path)
+    second, _ = get(department, path)
+    assert first.startswith("made") and second.startswith("kept"), (first, second)
+    after = served_counts(department)
+    assert after["made"] == before["made"] + 1
+    assert after["kept"] == before["kept"] + 1
